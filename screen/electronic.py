@@ -1,0 +1,201 @@
+"""Electronic stage: ΔSCF vertical ionisation energy and electron affinity.
+
+For each geometry three single points are run with the same Hamiltonian:
+the closed-shell neutral, and the cation and anion as doublets (one unpaired
+electron, ``uhf = 1``) at the *neutral* geometry, which makes both quantities
+vertical:
+
+.. math::
+
+    IP_v = E(M^{+\\bullet}) - E(M), \\qquad EA_v = E(M) - E(M^{-\\bullet})
+
+Positive EA means the anion is bound. Orbital energies of the neutral
+(HOMO, LUMO) are reported too. All values here are *raw* engine values on the
+isolated-molecule (gas) scale; GFN2-xTB ΔSCF IPs are systematically too large
+by several eV, which is why the calibration stage exists.
+
+References
+----------
+.. [1] C. Bannwarth, S. Ehlert, S. Grimme, J. Chem. Theory Comput. 15 (2019)
+   1652. :doi:`10.1021/acs.jctc.8b01176`
+.. [2] V. Ásgeirsson, C. A. Bauer, S. Grimme, Chem. Sci. 8 (2017) 4879.
+   :doi:`10.1039/c7sc00601b` (IPEA1-xTB, vertical IP/EA with xTB)
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import asdict, dataclass
+
+import numpy as np
+import pandas as pd
+from rdkit import Chem
+
+from screen.constants import BOHR_ANGSTROM, HARTREE_EV
+from screen.engines import Engine, EngineError, make_engine
+from screen.io import Journal, write_csv
+from screen.structures import STATUS_COLUMNS as STRUCTURE_COLUMNS
+from screen.structures import read_structures
+
+__all__ = ["ElectronicOptions", "vertical_levels", "run_electronic", "ELECTRONIC_COLUMNS", "RAW_COLUMNS"]
+
+#: raw engine columns that travel on into levels.csv
+RAW_COLUMNS = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev"]
+#: columns of the per-shard electronic table
+ELECTRONIC_COLUMNS = (["key", "status", "error"] + RAW_COLUMNS
+                      + ["xtb_energy_eh", "xtb_cation_eh", "xtb_anion_eh", "scf_rungs", "n_atoms",
+                         "sp_wall_s", "smiles_computed", "truncated_chains", "n_conformers", "forcefield",
+                         "geometry", "structure_wall_s"])
+
+
+@dataclass(frozen=True)
+class ElectronicOptions:
+    """Settings of the electronic stage.
+
+    Parameters
+    ----------
+    engine : {"tblite", "xtb"}
+        Backend.
+    method : {"GFN2-xTB", "GFN1-xTB", "IPEA1-xTB"}
+        Hamiltonian.
+    solvent : str or None
+        ALPB solvent for all three states (``None``: isolated molecule).
+    accuracy : float
+        SCF accuracy factor.
+    max_iter : int
+        SCF iteration limit on the first rung of the fallback ladder.
+    electronic_temperature_k : float
+        Fermi smearing temperature [K].
+    threads : int
+        OpenMP threads per job (set by the stage runner before the engine loads).
+    """
+
+    engine: str = "tblite"
+    method: str = "GFN2-xTB"
+    solvent: str | None = None
+    accuracy: float = 1.0
+    max_iter: int = 250
+    electronic_temperature_k: float = 300.0
+    threads: int = 1
+
+    def make_engine(self) -> Engine:
+        """The engine these options describe."""
+        return make_engine(self.engine, self.method, solvent=self.solvent, accuracy=self.accuracy,
+                           max_iter=self.max_iter, electronic_temperature_k=self.electronic_temperature_k)
+
+    @classmethod
+    def from_mapping(cls, mapping: dict | None) -> ElectronicOptions:
+        """Build from a config mapping, rejecting unknown keys."""
+        mapping = dict(mapping or {})
+        unknown = set(mapping) - set(asdict(cls()))
+        if unknown:
+            raise ValueError(f"unknown electronic option(s) {sorted(unknown)}; allowed: {sorted(asdict(cls()))}")
+        return cls(**mapping)
+
+
+def vertical_levels(numbers, positions_bohr, engine: Engine) -> dict:
+    """Raw ΔSCF vertical IP/EA and neutral frontier orbital energies.
+
+    Parameters
+    ----------
+    numbers : array_like of int, shape (n,)
+        Atomic numbers of a neutral closed-shell molecule.
+    positions_bohr : array_like, shape (n, 3)
+        Neutral geometry [bohr].
+    engine : Engine
+        Engine and method.
+
+    Returns
+    -------
+    dict
+        ``xtb_ip_ev``, ``xtb_ea_ev`` [eV] (ΔSCF, vertical), ``xtb_homo_ev``,
+        ``xtb_lumo_ev``, ``xtb_gap_ev`` [eV] (neutral orbital energies and
+        their difference), total energies [Eh] of the three states, the SCF
+        rung of each state (``"n/c/a"``) and the summed wall time [s].
+
+    Examples
+    --------
+    >>> from screen.structures import build_structure
+    >>> mol, _ = build_structure("c1ccccc1")
+    >>> z = [a.GetAtomicNum() for a in mol.GetAtoms()]
+    >>> r = vertical_levels(z, mol.GetConformer().GetPositions() / BOHR_ANGSTROM, make_engine())
+    >>> r["xtb_ip_ev"] > r["xtb_ea_ev"], r["xtb_homo_ev"] < r["xtb_lumo_ev"]
+    (True, True)
+    """
+    neutral = engine.singlepoint(numbers, positions_bohr, charge=0, uhf=0)
+    cation = engine.singlepoint(numbers, positions_bohr, charge=1, uhf=1)
+    anion = engine.singlepoint(numbers, positions_bohr, charge=-1, uhf=1)
+    homo, lumo = neutral.frontier_eh()
+    return {
+        "xtb_ip_ev": (cation.energy_eh - neutral.energy_eh) * HARTREE_EV,
+        "xtb_ea_ev": (neutral.energy_eh - anion.energy_eh) * HARTREE_EV,
+        "xtb_homo_ev": homo * HARTREE_EV,
+        "xtb_lumo_ev": lumo * HARTREE_EV,
+        "xtb_gap_ev": (lumo - homo) * HARTREE_EV,
+        "xtb_energy_eh": neutral.energy_eh,
+        "xtb_cation_eh": cation.energy_eh,
+        "xtb_anion_eh": anion.energy_eh,
+        "scf_rungs": f"{neutral.rung}/{cation.rung}/{anion.rung}",
+        "sp_wall_s": neutral.wall_s + cation.wall_s + anion.wall_s,
+    }
+
+
+def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicOptions = ElectronicOptions(),
+                   journal_path=None, engine: Engine | None = None) -> pd.DataFrame:
+    """Electronic stage for one shard: structures → raw levels table.
+
+    Every key of the structures table gets one row: molecules whose structure
+    failed stay ``failed`` with that reason; an engine failure makes the row
+    ``failed`` with the engine's message. Finished molecules are journalled.
+
+    Parameters
+    ----------
+    structures_sdf, structures_csv : path-like
+        Outputs of :func:`screen.structures.run_structures`.
+    out_csv : path-like
+        Output table (columns :data:`ELECTRONIC_COLUMNS`), written atomically.
+    options : ElectronicOptions
+    journal_path : path-like, optional
+        Default ``out_csv`` + ``.journal.jsonl``.
+    engine : Engine, optional
+        Overrides the engine built from ``options`` (tests).
+
+    Returns
+    -------
+    pandas.DataFrame
+    """
+    status = pd.read_csv(structures_csv, dtype=str, keep_default_na=False)
+    mols = read_structures(structures_sdf)
+    journal = Journal(journal_path or f"{out_csv}.journal.jsonl")
+    done = journal.load()
+    engine = engine or options.make_engine()
+    carried = [c for c in STRUCTURE_COLUMNS if c in ELECTRONIC_COLUMNS and c not in ("key", "status", "error")]
+    for row in status.to_dict("records"):
+        key = row["key"]
+        if key in done:
+            continue
+        rec = {"key": key, **{c: row.get(c, "") for c in carried}, "structure_wall_s": row.get("wall_s", "")}
+        if row["status"] != "ok":
+            rec.update(status="failed", error=row["error"])
+        elif key not in mols:
+            rec.update(status="failed", error="structure: geometry missing from the structures file")
+        else:
+            numbers, pos = molecule_numbers_positions(mols[key])
+            start = time.perf_counter()
+            try:
+                rec.update(vertical_levels(numbers, pos, engine), status="ok", error="", n_atoms=len(numbers))
+            except EngineError as exc:
+                rec.update(status="failed", error=f"electronic: {exc}", sp_wall_s=time.perf_counter() - start)
+        journal.append(rec)
+        done[key] = rec
+    table = pd.DataFrame([{c: done[k].get(c, "") for c in ELECTRONIC_COLUMNS} for k in status["key"]],
+                         columns=ELECTRONIC_COLUMNS)
+    write_csv(table, out_csv)
+    journal.remove()
+    return table
+
+
+def molecule_numbers_positions(mol: Chem.Mol) -> tuple[np.ndarray, np.ndarray]:
+    """Atomic numbers and positions [bohr] of a molecule's first conformer."""
+    return (np.array([a.GetAtomicNum() for a in mol.GetAtoms()]),
+            mol.GetConformer().GetPositions() / BOHR_ANGSTROM)

@@ -1,0 +1,391 @@
+"""Tight-binding engines behind one small interface.
+
+Two backends compute the same GFN-xTB Hamiltonians:
+
+* :class:`TbliteEngine` (default) — the maintained ``tblite`` library
+  (GFN2-xTB, GFN1-xTB, IPEA1-xTB; ALPB/GBSA implicit solvation).
+* :class:`XtbEngine` — the older ``xtb-python`` bindings (GFN2-xTB,
+  GFN1-xTB), an optional extra whose wheels stop at Python 3.11.
+
+Both follow the same protocol as ASE's calculators, kept deliberately small:
+construct with the method and SCF settings, then call :meth:`Engine.singlepoint`
+with atomic numbers, positions in bohr, total charge and the number of
+unpaired electrons. Energies come back in Hartree.
+
+SCF convergence failures are handled by a documented fallback ladder
+(:data:`SCF_LADDER`): the same Hamiltonian and electronic temperature with
+progressively gentler Broyden mixing and more iterations. Every rung gives the
+same converged energy (to the SCF threshold); only the path differs, so the
+rung that succeeded is recorded but never changes a number. An unconverged
+energy is never returned: exhausting the ladder raises :class:`ScfError`.
+
+References
+----------
+.. [1] C. Bannwarth, S. Ehlert, S. Grimme, "GFN2-xTB — An accurate and broadly
+   parametrized self-consistent tight-binding quantum chemical method with
+   multipole electrostatics and density-dependent dispersion contributions",
+   J. Chem. Theory Comput. 15 (2019) 1652. :doi:`10.1021/acs.jctc.8b01176`
+.. [2] S. Grimme, C. Bannwarth, P. Shushkov, "A robust and accurate
+   tight-binding quantum chemical method for structures, vibrational
+   frequencies, and noncovalent interactions of large molecular systems
+   parametrized for all spd-block elements (Z = 1-86)",
+   J. Chem. Theory Comput. 13 (2017) 1989. :doi:`10.1021/acs.jctc.7b00118`
+.. [3] V. Ásgeirsson, C. A. Bauer, S. Grimme, "Quantum chemical calculation of
+   electron ionization mass spectra for general organic and inorganic
+   molecules", Chem. Sci. 8 (2017) 4879. :doi:`10.1039/c7sc00601b`
+.. [4] S. Ehlert, M. Stahn, S. Spicher, S. Grimme, "Robust and efficient
+   implicit solvation model for fast semiempirical methods" (ALPB),
+   J. Chem. Theory Comput. 17 (2021) 4250. :doi:`10.1021/acs.jctc.1c00471`
+"""
+
+from __future__ import annotations
+
+import time
+from abc import ABC, abstractmethod
+from dataclasses import dataclass, field, replace
+from importlib.metadata import PackageNotFoundError, version
+
+import numpy as np
+
+from screen.constants import KB_HARTREE_K
+
+__all__ = [
+    "ENGINES",
+    "SCF_LADDER",
+    "EngineError",
+    "ScfError",
+    "ScfSettings",
+    "SinglePoint",
+    "Engine",
+    "TbliteEngine",
+    "XtbEngine",
+    "make_engine",
+]
+
+
+class EngineError(RuntimeError):
+    """The engine could not be set up or a calculation failed outright."""
+
+
+class ScfError(EngineError):
+    """The SCF did not converge on any rung of the fallback ladder."""
+
+
+@dataclass(frozen=True)
+class ScfSettings:
+    """SCF controls for one single point.
+
+    Parameters
+    ----------
+    accuracy : float
+        Numerical accuracy factor (1.0 is the library default; smaller is tighter).
+    max_iter : int
+        Maximum number of SCF cycles.
+    mixer_damping : float
+        Broyden mixer damping (tblite default 0.4).
+    electronic_temperature_k : float
+        Fermi smearing temperature [K] (xTB default 300 K).
+    """
+
+    accuracy: float = 1.0
+    max_iter: int = 250
+    mixer_damping: float = 0.4
+    electronic_temperature_k: float = 300.0
+
+
+#: Fallback ladder for SCF convergence: same Hamiltonian and temperature,
+#: gentler mixing and more cycles on each rung. Rung 0 is the default.
+SCF_LADDER: tuple[dict, ...] = (
+    {},
+    {"mixer_damping": 0.2, "max_iter": 500},
+    {"mixer_damping": 0.05, "max_iter": 1500},
+)
+
+
+@dataclass(frozen=True)
+class SinglePoint:
+    """Result of one converged single-point calculation.
+
+    Attributes
+    ----------
+    energy_eh : float
+        Total energy [Eh].
+    orbital_energies_eh : numpy.ndarray
+        Orbital (eigen)energies [Eh], ascending.
+    occupations : numpy.ndarray
+        Orbital occupation numbers (0…2 in a spin-restricted treatment).
+    charge : int
+        Total charge [e].
+    uhf : int
+        Number of unpaired electrons.
+    wall_s : float
+        Wall time of the successful attempt plus failed attempts [s].
+    rung : int
+        Index into :data:`SCF_LADDER` of the rung that converged.
+    """
+
+    energy_eh: float
+    orbital_energies_eh: np.ndarray
+    occupations: np.ndarray
+    charge: int
+    uhf: int
+    wall_s: float
+    rung: int = 0
+    n_electrons: int = field(default=0)
+
+    def frontier_eh(self) -> tuple[float, float]:
+        """HOMO and LUMO orbital energies [Eh] of a closed-shell result.
+
+        The HOMO is orbital ``n_electrons // 2 - 1`` of the ascending list; this
+        is robust against fractional occupations from Fermi smearing.
+        """
+        n_occ = self.n_electrons // 2
+        eps = self.orbital_energies_eh
+        if n_occ < 1 or n_occ >= eps.size:
+            raise EngineError(f"no frontier orbitals for {self.n_electrons} electrons in {eps.size} orbitals")
+        return float(eps[n_occ - 1]), float(eps[n_occ])
+
+
+def _package_version(name: str) -> str:
+    try:
+        return version(name)
+    except PackageNotFoundError:
+        return "absent"
+
+
+class Engine(ABC):
+    """A GFN-xTB engine: method, SCF settings and a single-point call.
+
+    Parameters
+    ----------
+    method : str
+        ``"GFN2-xTB"`` (default), ``"GFN1-xTB"`` or ``"IPEA1-xTB"``
+        (availability depends on the backend: see :attr:`methods`).
+    scf : ScfSettings, optional
+        SCF controls for rung 0 of the ladder.
+    solvent : str or None
+        Implicit solvent name for ALPB, or ``None`` for the isolated molecule.
+    """
+
+    #: short backend name used in protocol fingerprints
+    name: str = ""
+    #: package distribution that provides the backend
+    package: str = ""
+    #: methods this backend offers
+    methods: tuple[str, ...] = ()
+
+    def __init__(self, method: str = "GFN2-xTB", scf: ScfSettings | None = None, solvent: str | None = None):
+        if method not in self.methods:
+            raise EngineError(
+                f"method {method!r} is not available with engine {self.name!r}; choose one of {', '.join(self.methods)}"
+            )
+        self.method = method
+        self.scf = scf or ScfSettings()
+        self.solvent = solvent
+
+    @property
+    def version(self) -> str:
+        """Version string of the backing library."""
+        return _package_version(self.package)
+
+    def describe(self) -> dict:
+        """Everything about the engine that changes numbers, for provenance."""
+        return {
+            "engine": self.name,
+            "engine_version": self.version,
+            "method": self.method,
+            "solvent": self.solvent,
+            "accuracy": self.scf.accuracy,
+            "electronic_temperature_k": self.scf.electronic_temperature_k,
+        }
+
+    @abstractmethod
+    def _run(self, numbers: np.ndarray, positions_bohr: np.ndarray, charge: int, uhf: int,
+             scf: ScfSettings) -> tuple[float, np.ndarray, np.ndarray]:
+        """One attempt: return (energy [Eh], orbital energies [Eh], occupations) or raise ScfError."""
+
+    def singlepoint(self, numbers, positions_bohr, *, charge: int = 0, uhf: int = 0,
+                    ladder: tuple[dict, ...] = SCF_LADDER) -> SinglePoint:
+        """Converged single point, walking the SCF fallback ladder.
+
+        Parameters
+        ----------
+        numbers : array_like of int, shape (n,)
+            Atomic numbers.
+        positions_bohr : array_like of float, shape (n, 3)
+            Cartesian positions [bohr].
+        charge : int
+            Total charge [e].
+        uhf : int
+            Number of unpaired electrons (0 for closed shell, 1 for a doublet ion).
+        ladder : tuple of dict
+            Overrides of :attr:`scf` for each rung, tried in order.
+
+        Returns
+        -------
+        SinglePoint
+
+        Raises
+        ------
+        ScfError
+            No rung converged.
+        EngineError
+            Invalid input (for example an electron count incompatible with ``uhf``).
+        """
+        numbers = np.ascontiguousarray(numbers, dtype=np.int32)
+        positions = np.ascontiguousarray(positions_bohr, dtype=np.float64)
+        n_electrons = int(numbers.sum()) - int(charge)  # all-electron count; parity is what matters
+        if (n_electrons - uhf) % 2:
+            raise EngineError(f"charge {charge} with {uhf} unpaired electrons is impossible for this molecule")
+        start = time.perf_counter()
+        errors = []
+        for rung, override in enumerate(ladder):
+            settings = replace(self.scf, **override)
+            try:
+                energy, eps, occ = self._run(numbers, positions, int(charge), int(uhf), settings)
+            except ScfError as exc:
+                errors.append(f"rung {rung}: {exc}")
+                continue
+            valence_electrons = int(round(float(np.sum(occ))))
+            return SinglePoint(
+                energy_eh=float(energy), orbital_energies_eh=np.asarray(eps, dtype=float),
+                occupations=np.asarray(occ, dtype=float), charge=int(charge), uhf=int(uhf),
+                wall_s=time.perf_counter() - start, rung=rung, n_electrons=valence_electrons,
+            )
+        raise ScfError("SCF did not converge (" + "; ".join(errors) + ")")
+
+
+class TbliteEngine(Engine):
+    """GFN-xTB through ``tblite`` (default engine).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> eng = TbliteEngine("GFN2-xTB")
+    >>> h2 = eng.singlepoint([1, 1], np.array([[0, 0, 0], [0, 0, 1.4]]))
+    >>> round(h2.energy_eh, 3)
+    -0.982
+    """
+
+    name = "tblite"
+    package = "tblite"
+    methods = ("GFN2-xTB", "GFN1-xTB", "IPEA1-xTB")
+
+    def __init__(self, method: str = "GFN2-xTB", scf: ScfSettings | None = None, solvent: str | None = None):
+        super().__init__(method, scf, solvent)
+        try:
+            from tblite import interface as _tb  # noqa: F401
+        except ImportError as exc:  # pragma: no cover - tblite is a hard dependency
+            raise EngineError("the tblite engine needs the 'tblite' package (pip install tblite)") from exc
+
+    def _run(self, numbers, positions, charge, uhf, scf):
+        from tblite.exceptions import TBLiteRuntimeError, TBLiteValueError
+        from tblite.interface import Calculator
+
+        try:
+            calc = Calculator(self.method, numbers, positions, charge=float(charge), uhf=int(uhf))
+            calc.set("verbosity", 0)
+            calc.set("accuracy", float(scf.accuracy))
+            calc.set("max-iter", int(scf.max_iter))
+            calc.set("mixer-damping", float(scf.mixer_damping))
+            calc.set("temperature", float(scf.electronic_temperature_k) * KB_HARTREE_K)
+            if self.solvent:
+                calc.add("alpb-solvation", self.solvent)
+        except (TBLiteValueError, TBLiteRuntimeError) as exc:
+            raise EngineError(f"tblite setup failed: {exc}") from exc
+        try:
+            res = calc.singlepoint()
+        except TBLiteRuntimeError as exc:
+            if "converge" in str(exc).lower():
+                raise ScfError(str(exc)) from exc
+            raise EngineError(f"tblite failed: {exc}") from exc
+        return res.get("energy"), res.get("orbital-energies"), res.get("orbital-occupations")
+
+    def ase_calculator(self):
+        """An ASE calculator for geometry optimisation with the same method and settings."""
+        from tblite.ase import TBLite
+
+        kwargs = dict(method=self.method, accuracy=self.scf.accuracy, max_iterations=self.scf.max_iter,
+                      mixer_damping=self.scf.mixer_damping,
+                      electronic_temperature=self.scf.electronic_temperature_k, verbosity=0)
+        if self.solvent:
+            kwargs["solvation"] = ("alpb", self.solvent)
+        return TBLite(**kwargs)
+
+
+class XtbEngine(Engine):
+    """GFN-xTB through ``xtb-python`` (optional second backend, Python ≤ 3.11).
+
+    Implicit solvation is not offered through this backend.
+    """
+
+    name = "xtb"
+    package = "xtb"
+    methods = ("GFN2-xTB", "GFN1-xTB")
+
+    def __init__(self, method: str = "GFN2-xTB", scf: ScfSettings | None = None, solvent: str | None = None):
+        super().__init__(method, scf, solvent)
+        if solvent:
+            raise EngineError("engine 'xtb' does not support implicit solvation here; use engine 'tblite'")
+        try:
+            from xtb import interface as _xi  # noqa: F401
+        except ImportError as exc:
+            raise EngineError(
+                "engine 'xtb' needs the optional xtb-python package: pip install 'dascreen[xtb]' (Python <= 3.11)"
+            ) from exc
+
+    def _run(self, numbers, positions, charge, uhf, scf):
+        from xtb.interface import Calculator, Param, XTBException
+        from xtb.libxtb import VERBOSITY_MUTED
+
+        param = {"GFN2-xTB": Param.GFN2xTB, "GFN1-xTB": Param.GFN1xTB}[self.method]
+        try:
+            calc = Calculator(param, numbers, positions, charge=float(charge), uhf=int(uhf))
+            calc.set_verbosity(VERBOSITY_MUTED)
+            calc.set_accuracy(float(scf.accuracy))
+            calc.set_max_iterations(int(scf.max_iter))
+            calc.set_electronic_temperature(float(scf.electronic_temperature_k))
+            res = calc.singlepoint()
+        except XTBException as exc:
+            if "converge" in str(exc).lower() or "scf" in str(exc).lower():
+                raise ScfError(str(exc)) from exc
+            raise EngineError(f"xtb failed: {exc}") from exc
+        return res.get_energy(), res.get_orbital_eigenvalues(), res.get_orbital_occupations()
+
+    def ase_calculator(self):
+        """An ASE calculator for geometry optimisation with the same method."""
+        from xtb.ase.calculator import XTB
+
+        return XTB(method=self.method, accuracy=self.scf.accuracy, max_iterations=self.scf.max_iter,
+                   electronic_temperature=self.scf.electronic_temperature_k)
+
+
+#: registry of backends by name
+ENGINES: dict[str, type[Engine]] = {"tblite": TbliteEngine, "xtb": XtbEngine}
+
+
+def make_engine(name: str = "tblite", method: str = "GFN2-xTB", *, solvent: str | None = None,
+                **scf) -> Engine:
+    """Build an engine by backend name.
+
+    Parameters
+    ----------
+    name : {"tblite", "xtb"}
+        Backend.
+    method : str
+        Hamiltonian, e.g. ``"GFN2-xTB"``.
+    solvent : str, optional
+        ALPB solvent name (tblite only).
+    **scf
+        Fields of :class:`ScfSettings`.
+
+    Raises
+    ------
+    EngineError
+        Unknown backend or method, or the backend's package is missing.
+    """
+    try:
+        cls = ENGINES[name]
+    except KeyError:
+        raise EngineError(f"unknown engine {name!r}; choose one of {', '.join(ENGINES)}") from None
+    return cls(method, ScfSettings(**scf), solvent)

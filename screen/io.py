@@ -1,0 +1,140 @@
+"""File helpers shared by all stages: atomic writes, a crash-safe journal, sidecars.
+
+An interrupted run must never leave a file that looks finished, and a killed
+stage should redo only the molecules it had not finished. Two small tools give
+that:
+
+* :func:`atomic_path` — write to a temporary file in the target's directory,
+  fsync, then :func:`os.replace` it into place (atomic on POSIX).
+* :class:`Journal` — an append-only JSON-lines file with one record per
+  finished molecule, flushed and fsynced per record. A torn last line (the
+  process died mid-write) is ignored on reading.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import json
+import os
+import tempfile
+from collections.abc import Iterator
+from pathlib import Path
+
+import pandas as pd
+
+__all__ = ["atomic_path", "write_csv", "write_json", "read_json", "Journal"]
+
+
+@contextlib.contextmanager
+def atomic_path(target: str | os.PathLike) -> Iterator[Path]:
+    """Yield a temporary path next to ``target``; move it into place on success.
+
+    Parameters
+    ----------
+    target : path-like
+        Final file name. Its directory is created if missing.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> with atomic_path(d / "x.txt") as tmp:
+    ...     _ = tmp.write_text("done")
+    >>> (d / "x.txt").read_text()
+    'done'
+    """
+    target = Path(target)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    fd, name = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+    os.close(fd)
+    tmp = Path(name)
+    try:
+        yield tmp
+        with open(tmp, "rb") as fh:
+            os.fsync(fh.fileno())
+        os.replace(tmp, target)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+
+
+def write_csv(frame: pd.DataFrame, target: str | os.PathLike) -> None:
+    """Write ``frame`` as CSV (no index) atomically."""
+    with atomic_path(target) as tmp:
+        frame.to_csv(tmp, index=False)
+
+
+def write_json(obj, target: str | os.PathLike) -> None:
+    """Write ``obj`` as indented, key-sorted JSON atomically."""
+    with atomic_path(target) as tmp:
+        tmp.write_text(json.dumps(obj, indent=2, sort_keys=True, default=str) + "\n", encoding="utf-8")
+
+
+def read_json(path: str | os.PathLike):
+    """Read a JSON file."""
+    return json.loads(Path(path).read_text(encoding="utf-8"))
+
+
+class Journal:
+    """Append-only record of finished work units, safe against SIGKILL.
+
+    Parameters
+    ----------
+    path : path-like
+        The ``.jsonl`` file. Created on first :meth:`append`.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> j = Journal(pathlib.Path(tempfile.mkdtemp()) / "j.jsonl")
+    >>> j.append({"key": "m1", "value": 1.0})
+    >>> j.load()
+    {'m1': {'key': 'm1', 'value': 1.0}}
+    """
+
+    def __init__(self, path: str | os.PathLike):
+        self.path = Path(path)
+
+    def load(self) -> dict[str, dict]:
+        """Records by ``key``; the last record of a key wins, torn lines are skipped."""
+        done: dict[str, dict] = {}
+        if not self.path.exists():
+            return done
+        with open(self.path, encoding="utf-8") as fh:
+            for line in fh:
+                if not line.endswith("\n"):
+                    break  # torn final line from an interrupted write
+                try:
+                    rec = json.loads(line)
+                except json.JSONDecodeError:
+                    continue
+                if isinstance(rec, dict) and "key" in rec:
+                    done[rec["key"]] = rec
+        return done
+
+    def append(self, record: dict) -> None:
+        """Append one record durably (flush + fsync)."""
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        line = json.dumps(record, sort_keys=True, default=_json_default) + "\n"
+        with open(self.path, "a", encoding="utf-8") as fh:
+            fh.write(line)
+            fh.flush()
+            os.fsync(fh.fileno())
+
+    def remove(self) -> None:
+        """Delete the journal once its content is in a finished output."""
+        with contextlib.suppress(FileNotFoundError):
+            self.path.unlink()
+
+
+def _json_default(obj):
+    try:
+        import numpy as np
+
+        if isinstance(obj, np.generic):
+            return obj.item()
+        if isinstance(obj, np.ndarray):
+            return obj.tolist()
+    except ImportError:  # pragma: no cover
+        pass
+    raise TypeError(f"not JSON serialisable: {type(obj).__name__}")

@@ -1,0 +1,391 @@
+"""Structures stage: SMILES → one 3D geometry per molecule.
+
+Route (every step seeded, so the same input gives the same geometry):
+
+1. optional truncation of long linear or branched alkyl side chains to methyl
+   (a common-practice simplification in screening: the chains barely change the
+   frontier levels of the conjugated core but multiply the conformer space);
+2. RDKit ETKDGv3 embedding of several conformers; the count grows with the
+   number of rotatable bonds (:func:`conformer_count`);
+3. MMFF94 optimisation of every conformer (UFF when MMFF lacks parameters,
+   e.g. for Se or B);
+4. GFN2-xTB single points on the unique conformers, keeping the lowest;
+5. optional (``geometry="xtb"``) GFN2-xTB optimisation of that conformer with
+   ASE's L-BFGS optimiser and the engine's ASE calculator.
+
+References
+----------
+.. [1] S. Wang, J. Witek, G. A. Landrum, S. Riniker, "Improving conformer
+   generation for small rings and macrocycles based on distance geometry and
+   experimental torsional-angle preferences", J. Chem. Inf. Model. 60 (2020)
+   2044. :doi:`10.1021/acs.jcim.0c00025` (ETKDGv3)
+.. [2] T. A. Halgren, "Merck molecular force field. I.", J. Comput. Chem. 17
+   (1996) 490. :doi:`10.1002/(SICI)1096-987X(199604)17:5/6<490::AID-JCC1>3.0.CO;2-P`
+.. [3] C. Bannwarth, S. Ehlert, S. Grimme, J. Chem. Theory Comput. 15 (2019)
+   1652. :doi:`10.1021/acs.jctc.8b01176`
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import asdict, dataclass
+
+import numpy as np
+import pandas as pd
+from rdkit import Chem, RDLogger
+from rdkit.Chem import AllChem, rdMolDescriptors
+
+from screen.constants import BOHR_ANGSTROM
+from screen.engines import Engine, EngineError, make_engine
+from screen.io import Journal, atomic_path, write_csv
+
+__all__ = [
+    "StructureOptions",
+    "conformer_count",
+    "truncate_side_chains",
+    "build_structure",
+    "run_structures",
+    "read_structures",
+    "STATUS_COLUMNS",
+]
+
+#: columns of the per-shard structures status table
+STATUS_COLUMNS = ["key", "status", "error", "smiles_computed", "truncated_chains", "n_conformers",
+                  "forcefield", "geometry", "xtb_rank_energy_eh", "opt_converged", "wall_s"]
+
+
+@dataclass(frozen=True)
+class StructureOptions:
+    """Settings of the structures stage (all of them change the numbers).
+
+    Parameters
+    ----------
+    seed : int
+        Random seed for ETKDG.
+    conformers_base, conformers_per_rotor, conformers_max : int
+        Conformer count = min(max, base + per_rotor × rotatable bonds).
+    prune_rms_a : float
+        RMSD threshold [Å] below which ETKDG drops a conformer as a duplicate.
+    forcefield : {"mmff", "uff"}
+        Preferred force field; MMFF falls back to UFF when parameters are missing.
+    ff_max_iters : int
+        Force-field optimisation iterations.
+    geometry : {"ff", "xtb"}
+        ``ff``: keep the force-field geometry of the xTB-lowest conformer;
+        ``xtb``: optimise it further with the engine.
+    xtb_fmax_ev_a : float
+        Force convergence for the xTB optimisation [eV Å⁻¹].
+    xtb_max_steps : int
+        Optimiser step limit.
+    truncate_side_chains : bool
+        Replace pendant alkyl chains of ``truncate_min_carbons`` or more carbons by methyl.
+    truncate_min_carbons : int
+        Shortest chain that is truncated.
+    ranking_method : str
+        xTB method for ranking conformers (GFN2-xTB).
+    """
+
+    seed: int = 61453
+    conformers_base: int = 4
+    conformers_per_rotor: int = 2
+    conformers_max: int = 24
+    prune_rms_a: float = 0.3
+    forcefield: str = "mmff"
+    ff_max_iters: int = 2000
+    geometry: str = "ff"
+    xtb_fmax_ev_a: float = 0.05
+    xtb_max_steps: int = 300
+    truncate_side_chains: bool = False
+    truncate_min_carbons: int = 3
+    ranking_method: str = "GFN2-xTB"
+
+    def __post_init__(self):
+        if self.geometry not in ("ff", "xtb"):
+            raise ValueError(f"structures.geometry must be 'ff' or 'xtb', not {self.geometry!r}")
+        if self.forcefield not in ("mmff", "uff"):
+            raise ValueError(f"structures.forcefield must be 'mmff' or 'uff', not {self.forcefield!r}")
+
+
+def conformer_count(mol: Chem.Mol, options: StructureOptions = StructureOptions()) -> int:
+    """Number of conformers to embed for ``mol``.
+
+    Examples
+    --------
+    >>> conformer_count(Chem.MolFromSmiles("c1ccccc1"))
+    4
+    >>> conformer_count(Chem.MolFromSmiles("c1ccc(-c2ccccc2)cc1"))
+    6
+    """
+    n_rot = rdMolDescriptors.CalcNumRotatableBonds(mol)
+    return int(min(options.conformers_max, options.conformers_base + options.conformers_per_rotor * n_rot))
+
+
+def _alkyl_atom(atom: Chem.Atom) -> bool:
+    # acyclic sp3 carbon with at most one neighbour other than C/H (the attachment point)
+    return (atom.GetAtomicNum() == 6 and not atom.IsInRing() and not atom.GetIsAromatic()
+            and atom.GetHybridization() == Chem.HybridizationType.SP3
+            and sum(n.GetAtomicNum() not in (1, 6) for n in atom.GetNeighbors()) <= 1)
+
+
+def truncate_side_chains(mol: Chem.Mol, min_carbons: int = 3) -> tuple[Chem.Mol, int]:
+    """Replace pendant saturated alkyl chains by methyl groups.
+
+    A chain is a connected set of acyclic sp3 carbons, each with at most one
+    neighbour other than carbon or hydrogen, attached to the rest of the
+    molecule by exactly one bond. Chains
+    of at least ``min_carbons`` carbons keep only their first carbon.
+
+    Parameters
+    ----------
+    mol : rdkit.Chem.Mol
+        Molecule without explicit hydrogens.
+    min_carbons : int
+        Shortest chain to truncate.
+
+    Returns
+    -------
+    (rdkit.Chem.Mol, int)
+        The truncated molecule and the number of chains truncated.
+
+    Examples
+    --------
+    >>> m, n = truncate_side_chains(Chem.MolFromSmiles("CCCCCCc1ccsc1"))
+    >>> Chem.MolToSmiles(m), n
+    ('Cc1ccsc1', 1)
+    >>> Chem.MolToSmiles(truncate_side_chains(Chem.MolFromSmiles("CCCCC(CC)Cn1c2ccccc2c2ccccc21"))[0])
+    'Cn1c2ccccc2c2ccccc21'
+    """
+    alkyl = {a.GetIdx() for a in mol.GetAtoms() if _alkyl_atom(a)}
+    seen: set[int] = set()
+    to_remove: set[int] = set()
+    n_chains = 0
+    for start in sorted(alkyl):
+        if start in seen:
+            continue
+        comp, stack = set(), [start]
+        while stack:
+            i = stack.pop()
+            if i in comp:
+                continue
+            comp.add(i)
+            stack.extend(n.GetIdx() for n in mol.GetAtomWithIdx(i).GetNeighbors() if n.GetIdx() in alkyl)
+        seen |= comp
+        anchors = [(i, n.GetIdx()) for i in comp for n in mol.GetAtomWithIdx(i).GetNeighbors()
+                   if n.GetIdx() not in comp and n.GetAtomicNum() > 1]
+        if len(anchors) != 1 or len(comp) < min_carbons:
+            continue
+        keep = anchors[0][0]
+        to_remove |= comp - {keep}
+        n_chains += 1
+    if not to_remove:
+        return Chem.Mol(mol), 0
+    rw = Chem.RWMol(mol)
+    for idx in sorted(to_remove, reverse=True):
+        rw.RemoveAtom(idx)
+    out = rw.GetMol()
+    for atom in out.GetAtoms():
+        atom.SetNoImplicit(False)
+        atom.SetNumExplicitHs(0)
+    Chem.SanitizeMol(out)
+    return out, n_chains
+
+
+def _embed(mol_h: Chem.Mol, n_conf: int, options: StructureOptions) -> list[int]:
+    params = AllChem.ETKDGv3()
+    params.randomSeed = int(options.seed)
+    params.pruneRmsThresh = float(options.prune_rms_a)
+    params.numThreads = 1
+    ids = list(AllChem.EmbedMultipleConfs(mol_h, numConfs=n_conf, params=params))
+    if not ids:  # difficult cages and macrocycles: random starting coordinates
+        params.useRandomCoords = True
+        params.maxIterations = 2000
+        ids = list(AllChem.EmbedMultipleConfs(mol_h, numConfs=n_conf, params=params))
+    return ids
+
+
+def _ff_optimise(mol_h: Chem.Mol, options: StructureOptions) -> str:
+    if options.forcefield == "mmff" and AllChem.MMFFHasAllMoleculeParams(mol_h):
+        AllChem.MMFFOptimizeMoleculeConfs(mol_h, numThreads=1, maxIters=options.ff_max_iters, mmffVariant="MMFF94")
+        return "MMFF94"
+    if AllChem.UFFHasAllMoleculeParams(mol_h):
+        AllChem.UFFOptimizeMoleculeConfs(mol_h, numThreads=1, maxIters=options.ff_max_iters)
+        return "UFF"
+    return "none"
+
+
+def _xtb_optimise(numbers: np.ndarray, positions_a: np.ndarray, engine: Engine,
+                  options: StructureOptions) -> tuple[np.ndarray, bool]:
+    from ase import Atoms
+    from ase.optimize import LBFGS
+
+    atoms = Atoms(numbers=numbers, positions=positions_a)
+    atoms.calc = engine.ase_calculator()
+    opt = LBFGS(atoms, logfile=None)
+    converged = bool(opt.run(fmax=options.xtb_fmax_ev_a, steps=options.xtb_max_steps))
+    return atoms.get_positions(), converged
+
+
+def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
+                    engine: Engine | None = None) -> tuple[Chem.Mol, dict]:
+    """Make the screening geometry of one molecule.
+
+    Parameters
+    ----------
+    smiles : str
+        Canonical SMILES of a neutral closed-shell molecule (from the prepare stage).
+    options : StructureOptions
+        Route settings.
+    engine : Engine, optional
+        Engine for conformer ranking and optional optimisation; by default
+        tblite with :attr:`StructureOptions.ranking_method`.
+
+    Returns
+    -------
+    (rdkit.Chem.Mol, dict)
+        Molecule with hydrogens and exactly one conformer [Å], and a record of
+        the route (conformer count, force field, xTB ranking energy [Eh], ...).
+
+    Raises
+    ------
+    ValueError
+        The SMILES does not parse or no conformer could be embedded.
+    EngineError
+        No conformer gave a converged xTB energy.
+
+    Examples
+    --------
+    >>> mol, info = build_structure("c1ccsc1")
+    >>> mol.GetNumAtoms(), info["forcefield"]
+    (9, 'MMFF94')
+    """
+    start = time.perf_counter()
+    mol = Chem.MolFromSmiles(smiles)
+    if mol is None:
+        raise ValueError(f"SMILES does not parse: {smiles!r}")
+    n_trunc = 0
+    if options.truncate_side_chains:
+        mol, n_trunc = truncate_side_chains(mol, options.truncate_min_carbons)
+    smiles_computed = Chem.MolToSmiles(mol)
+    mol_h = Chem.AddHs(mol)
+    n_conf = conformer_count(mol, options)
+    ids = _embed(mol_h, n_conf, options)
+    if not ids:
+        raise ValueError(f"RDKit ETKDG could not embed a 3D structure ({n_conf} attempts, random coordinates too)")
+    ff = _ff_optimise(mol_h, options)
+    if engine is None:
+        engine = make_engine("tblite", options.ranking_method)
+    numbers = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
+    best_id, best_e, errors = None, np.inf, []
+    for cid in ids:
+        pos_bohr = mol_h.GetConformer(cid).GetPositions() / BOHR_ANGSTROM
+        try:
+            e = engine.singlepoint(numbers, pos_bohr).energy_eh
+        except EngineError as exc:
+            errors.append(str(exc))
+            continue
+        if e < best_e - 1e-9:
+            best_id, best_e = cid, e
+    if best_id is None:
+        raise EngineError(f"no conformer gave a converged xTB energy: {errors[0] if errors else 'unknown'}")
+    conf = Chem.Conformer(mol_h.GetConformer(best_id))
+    conf.SetId(0)
+    out = Chem.Mol(mol_h)
+    out.RemoveAllConformers()
+    out.AddConformer(conf, assignId=False)
+    opt_converged = ""
+    if options.geometry == "xtb":
+        pos, ok = _xtb_optimise(numbers, out.GetConformer().GetPositions(), engine, options)
+        c = out.GetConformer()
+        for i, p in enumerate(pos):
+            c.SetAtomPosition(i, p.tolist())
+        opt_converged = bool(ok)
+        if not ok:
+            raise EngineError(f"xTB geometry optimisation did not converge in {options.xtb_max_steps} steps")
+    info = {
+        "smiles_computed": smiles_computed,
+        "truncated_chains": n_trunc,
+        "n_conformers": len(ids),
+        "forcefield": ff,
+        "geometry": options.geometry,
+        "xtb_rank_energy_eh": float(best_e),
+        "opt_converged": opt_converged,
+        "wall_s": time.perf_counter() - start,
+    }
+    return out, info
+
+
+def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = StructureOptions(),
+                   journal_path=None, engine: Engine | None = None) -> pd.DataFrame:
+    """Structures stage for one shard: ``shard-NNN.csv`` → SDF + status table.
+
+    Every key of the shard gets a row in ``out_csv`` (``status`` ok or failed with
+    the reason); ok molecules are written to ``out_sdf`` (title = key). Finished
+    molecules are journalled, so a killed run resumes where it stopped.
+
+    Parameters
+    ----------
+    shard_csv : path-like
+        Shard table with columns ``key, smiles``.
+    out_sdf, out_csv : path-like
+        Outputs (written atomically).
+    options : StructureOptions
+    journal_path : path-like, optional
+        Journal file; default ``out_csv`` + ``.journal.jsonl``.
+    engine : Engine, optional
+        Engine for ranking/optimisation.
+
+    Returns
+    -------
+    pandas.DataFrame
+        The status table.
+    """
+    RDLogger.DisableLog("rdApp.*")
+    shard = pd.read_csv(shard_csv, dtype=str, keep_default_na=False)
+    journal = Journal(journal_path or f"{out_csv}.journal.jsonl")
+    done = journal.load()
+    engine = engine or make_engine("tblite", options.ranking_method)
+    for key, smiles in zip(shard["key"], shard["smiles"]):
+        if key in done:
+            continue
+        rec = {"key": key}
+        try:
+            mol, info = build_structure(smiles, options, engine)
+            rec.update(status="ok", error="", molblock=Chem.MolToMolBlock(mol), **info)
+        except (ValueError, EngineError, RuntimeError) as exc:
+            rec.update(status="failed", error=f"structure: {exc}")
+        journal.append(rec)
+        done[key] = rec
+    rows = []
+    with atomic_path(out_sdf) as tmp:
+        writer = Chem.SDWriter(str(tmp))
+        for key in shard["key"]:
+            rec = done[key]
+            rows.append({c: rec.get(c, "") for c in STATUS_COLUMNS})
+            if rec["status"] != "ok":
+                continue
+            mol = Chem.MolFromMolBlock(rec["molblock"], removeHs=False)
+            mol.SetProp("_Name", key)
+            for prop in ("smiles_computed", "forcefield", "geometry", "n_conformers", "truncated_chains"):
+                mol.SetProp(f"dascreen_{prop}", str(rec[prop]))
+            writer.write(mol)
+        writer.close()
+    table = pd.DataFrame(rows, columns=STATUS_COLUMNS)
+    write_csv(table, out_csv)
+    journal.remove()
+    return table
+
+
+def read_structures(sdf_path) -> dict[str, Chem.Mol]:
+    """Molecules of a structures SDF by key (hydrogens kept)."""
+    supplier = Chem.SDMolSupplier(str(sdf_path), removeHs=False, sanitize=False)
+    return {m.GetProp("_Name"): m for m in supplier if m is not None}
+
+
+def options_from_mapping(mapping: dict | None) -> StructureOptions:
+    """Build :class:`StructureOptions` from a config mapping, rejecting unknown keys."""
+    mapping = dict(mapping or {})
+    known = set(asdict(StructureOptions()))
+    unknown = set(mapping) - known
+    if unknown:
+        raise ValueError(f"unknown structures option(s) {sorted(unknown)}; allowed: {sorted(known)}")
+    return StructureOptions(**mapping)
