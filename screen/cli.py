@@ -1,0 +1,183 @@
+"""The ``dascreen`` command line.
+
+Sub-commands
+------------
+run         the whole pipeline (Snakemake) from a candidate list to levels and ranking
+rank        ranking and report only, from an existing levels file (seconds)
+calibrate   fit calibration models on the reference sets and print their statistics
+partners    list the built-in partner materials
+config      print the default configuration (every option, with its default)
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import yaml
+
+from screen import __version__
+from screen.config import ConfigError, load_config
+
+__all__ = ["main", "build_parser"]
+
+WORKFLOW = Path(__file__).parent / "workflow" / "Snakefile"
+
+EXIT_OK, EXIT_ERROR, EXIT_CONFIG, EXIT_STRICT = 0, 1, 2, 3
+
+
+def _parse_set(items: list[str]) -> dict:
+    """``section.key=value`` pairs (values parsed as YAML) into a nested dict."""
+    out: dict = {}
+    for item in items or []:
+        if "=" not in item:
+            raise ConfigError(f"--set {item!r}: expected section.key=value, e.g. --set device.eqe=0.7")
+        path, raw = item.split("=", 1)
+        node = out
+        parts = path.strip().split(".")
+        for part in parts[:-1]:
+            node = node.setdefault(part, {})
+        node[parts[-1]] = yaml.safe_load(raw)
+    return out
+
+
+def _load(args, extra: dict) -> dict:
+    overrides = _parse_set(getattr(args, "set", []))
+    for key, value in extra.items():
+        if value is not None:
+            overrides[key] = value
+    return load_config(getattr(args, "config", None), overrides)
+
+
+def _print_summary(levels_csv: Path) -> dict:
+    import pandas as pd
+
+    from screen.levels import summarise
+
+    levels = pd.read_csv(levels_csv, dtype=str, keep_default_na=False)
+    counts = summarise(levels)
+    print(f"dascreen: {counts['rows']} rows: {counts['ok']} ok, {counts['rejected']} rejected, "
+          f"{counts['failed']} failed -> {levels_csv}")
+    bad = levels[levels["status"] != "ok"]
+    for _, row in bad.head(20).iterrows():
+        ident = row["id"].replace("\n", "\\n")[:60]
+        print(f"  {row['status']:8s} {ident}: {row['error'][:160]}")
+    if len(bad) > 20:
+        print(f"  ... and {len(bad) - 20} more (see levels.csv)")
+    return counts
+
+
+def cmd_run(args) -> int:
+    """Run the workflow through Snakemake in a subprocess."""
+    candidates = Path(args.candidates)
+    if not candidates.is_file():
+        raise ConfigError(f"candidates file {str(candidates)!r} does not exist")
+    out = Path(args.out).resolve()
+    cfg = _load(args, {"candidates": str(candidates.resolve()), "out": str(out), "partner": args.partner,
+                       "strict": True if args.strict else None})
+    for key in ("models", "reference"):
+        cfg["calibration"][key] = str(data_path(cfg["calibration"][key]))
+    out.mkdir(parents=True, exist_ok=True)
+    cfg_file = out / "config.yaml"
+    cfg_file.write_text(yaml.safe_dump(cfg, sort_keys=False), encoding="utf-8")
+    cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(WORKFLOW), "--directory", str(out),
+           "--configfile", str(cfg_file), "--cores", str(args.cores), "--rerun-incomplete",
+           "--show-failed-logs"]
+    if args.dry_run:
+        cmd.append("--dry-run")
+    if args.profile:
+        cmd += ["--workflow-profile", str(Path(args.profile).resolve())]
+    cmd += args.snakemake_args or []
+    env = dict(os.environ)
+    print("dascreen: running", " ".join(cmd[2:6]), "...", flush=True)
+    rc = subprocess.call(cmd, env=env)
+    if rc != 0:
+        print(f"dascreen: the workflow stopped with exit code {rc}; see the log above and {out}/logs/",
+              file=sys.stderr)
+        return EXIT_ERROR
+    if args.dry_run:
+        return EXIT_OK
+    counts = _print_summary(out / "levels.csv")
+    if cfg["strict"] and (counts["rejected"] or counts["failed"]):
+        print("dascreen: --strict: some rows were rejected or failed", file=sys.stderr)
+        return EXIT_STRICT
+    return EXIT_OK
+
+
+def data_path(path: str | Path) -> Path:
+    """Absolute path of a data folder: as given if absolute or present under the
+    working directory, else the copy shipped beside the package (``models/``)."""
+    path = Path(path)
+    if path.is_absolute() or path.exists():
+        return path.resolve()
+    return Path(__file__).resolve().parent.parent / path
+
+
+def cmd_config(args) -> int:
+    """Print the default configuration."""
+    print(yaml.safe_dump(load_config(None), sort_keys=False), end="")
+    return EXIT_OK
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser (exposed for documentation and tests)."""
+    parser = argparse.ArgumentParser(
+        prog="dascreen",
+        description="Screen organic-photovoltaic donor/acceptor candidates: calibrated xTB frontier levels, "
+                    "offsets to a partner material, Scharber-model Voc/Jsc/PCE and a ranked report. "
+                    "Results are screening estimates, not measurements.",
+    )
+    parser.add_argument("--version", action="version", version=f"dascreen {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    p = sub.add_parser("run", help="whole pipeline: candidates -> levels.csv -> ranking and report",
+                       description="Run the whole pipeline through Snakemake: prepare, structures, electronic "
+                                   "(xTB), levels (calibrated) and the ranking against the partner.")
+    p.add_argument("candidates", help="candidate list: .csv (id,smiles[,name,role,...]), .smi or .sdf")
+    p.add_argument("--partner", default=None,
+                   help="partner material: library name (see `dascreen partners`), a one-row levels CSV, "
+                        "smiles:<SMILES> or id:<ID> (default from config: scharber-reference-acceptor)")
+    p.add_argument("--out", default="results", help="output folder (default: ./results)")
+    p.add_argument("--cores", type=int, default=os.cpu_count() or 1, help="CPU cores to use (default: all)")
+    p.add_argument("--config", default=None, help="YAML config file (see `dascreen config` for every field)")
+    p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
+                   help="override one config field, e.g. --set structures.geometry=xtb (repeatable)")
+    p.add_argument("--strict", action="store_true",
+                   help="exit with code 3 if any row is rejected or fails (default: report them, exit 0)")
+    p.add_argument("--dry-run", action="store_true", help="show the jobs Snakemake would run, run nothing")
+    p.add_argument("--profile", default=None,
+                   help="Snakemake workflow profile folder (e.g. profiles/slurm for a cluster)")
+    p.set_defaults(func=cmd_run)
+    p.epilog = "Arguments after a bare `--` are passed to Snakemake unchanged (e.g. -- --keep-going)."
+
+    p = sub.add_parser("config", help="print the default configuration with every field",
+                       description="Print the complete default configuration as YAML.")
+    p.set_defaults(func=cmd_config)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point of the ``dascreen`` console script."""
+    parser = build_parser()
+    argv = list(sys.argv[1:] if argv is None else argv)
+    passthrough: list[str] = []
+    if "--" in argv:  # everything after a bare -- goes to Snakemake unchanged (run only)
+        cut = argv.index("--")
+        argv, passthrough = argv[:cut], argv[cut + 1:]
+    args = parser.parse_args(argv)
+    args.snakemake_args = passthrough
+    try:
+        return args.func(args)
+    except ConfigError as exc:
+        print(f"dascreen: configuration error: {exc}", file=sys.stderr)
+        return EXIT_CONFIG
+    except (FileNotFoundError, ValueError) as exc:
+        print(f"dascreen: error: {exc}", file=sys.stderr)
+        return EXIT_CONFIG
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,138 @@
+"""Job-level entry points: ``python -m screen.stages <stage> ...``.
+
+The workflow rules call these so that each job is its own process (a native
+crash costs one job, never the scheduler) with its own thread settings. Each
+sub-command is a thin wrapper around a function of the stage's module, which
+is what Python users call directly.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import os
+import platform
+import sys
+from dataclasses import replace
+
+__all__ = ["main", "provenance"]
+
+
+def provenance(config: dict) -> dict:
+    """Protocol, protocol id and library versions for sidecar files."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    from screen import __version__
+    from screen.config import protocol, protocol_id
+
+    def _v(name):
+        try:
+            return version(name)
+        except PackageNotFoundError:
+            return "absent"
+
+    return {
+        "dascreen": __version__,
+        "protocol_id": protocol_id(config),
+        "protocol": protocol(config),
+        "versions": {"python": platform.python_version(), **{p: _v(p) for p in
+                     ("tblite", "xtb", "rdkit", "numpy", "pandas", "scikit-learn", "ase", "pvlib")}},
+    }
+
+
+def _prepare(args, cfg):
+    from screen.prepare import PrepareOptions, prepare
+
+    popts = cfg["prepare"]
+    opts = PrepareOptions(
+        max_heavy_atoms=popts["max_heavy_atoms"], allowed_elements=tuple(popts["allowed_elements"]),
+        allow_charged=popts["allow_charged"], allow_open_shell=popts["allow_open_shell"],
+        keep_isotopes=popts["keep_isotopes"], shard_size=popts["shard_size"], min_shards=popts["min_shards"],
+    )
+    if args.max_shards:
+        n_rows = _count_rows(args.input)
+        opts = replace(opts, shard_size=max(opts.shard_size, math.ceil(n_rows / args.max_shards)))
+    summary = prepare(args.input, args.outdir, opts)
+    print(json.dumps(summary))
+
+
+def _count_rows(path) -> int:
+    with open(path, "rb") as fh:
+        return sum(1 for _ in fh)
+
+
+def _structures(args, cfg):
+    from screen.structures import options_from_mapping, run_structures
+
+    table = run_structures(args.shard, args.sdf, args.table, options_from_mapping(cfg["structures"]))
+    print(table["status"].value_counts().to_dict())
+
+
+def _electronic(args, cfg):
+    from screen.electronic import ElectronicOptions, run_electronic
+
+    table = run_electronic(args.sdf, args.table, args.out, ElectronicOptions.from_mapping(cfg["electronic"]))
+    print(table["status"].value_counts().to_dict())
+
+
+def _levels(args, cfg):
+    import pandas as pd
+
+    from screen.io import write_csv, write_json
+    from screen.levels import assemble, summarise
+
+    manifest = pd.read_csv(args.manifest, dtype=str, keep_default_na=False)
+    manifest["row"] = manifest["row"].astype(int)
+    tables = [pd.read_csv(p, dtype={"key": str, "status": str, "error": str}, keep_default_na=False,
+                          na_values=[""]) for p in args.electronic]
+    levels = assemble(manifest, tables)
+    if args.models:
+        from screen.calibrate import apply_models, load_models
+
+        models = load_models(args.models, cfg)
+        levels = apply_models(levels, models, scale=cfg["levels"]["scale"])
+    write_csv(levels, args.out)
+    meta = {**provenance(cfg), "counts": summarise(levels), "input": cfg.get("candidates", ""),
+            "scale": cfg["levels"]["scale"], "models": args.models or None}
+    write_json(meta, f"{args.out}.meta.json" if not args.meta else args.meta)
+    print(json.dumps(summarise(levels)))
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run one stage job; see ``python -m screen.stages --help``."""
+    parser = argparse.ArgumentParser(prog="python -m screen.stages", description=__doc__)
+    parser.add_argument("--config", required=True,
+                        help="the configuration sections this job depends on, as JSON text (defaults fill the rest)")
+    sub = parser.add_subparsers(dest="stage", required=True)
+    p = sub.add_parser("prepare")
+    p.add_argument("--input", required=True)
+    p.add_argument("--outdir", required=True)
+    p.add_argument("--max-shards", type=int, default=0)
+    p = sub.add_parser("structures")
+    p.add_argument("--shard", required=True)
+    p.add_argument("--sdf", required=True)
+    p.add_argument("--table", required=True)
+    p = sub.add_parser("electronic")
+    p.add_argument("--sdf", required=True)
+    p.add_argument("--table", required=True)
+    p.add_argument("--out", required=True)
+    p = sub.add_parser("levels")
+    p.add_argument("--manifest", required=True)
+    p.add_argument("--electronic", nargs="*", default=[])
+    p.add_argument("--models", default="")
+    p.add_argument("--out", required=True)
+    p.add_argument("--meta", default="")
+    args = parser.parse_args(argv)
+
+    from screen.config import resolve
+
+    cfg = resolve(json.loads(args.config), "workflow configuration")
+    os.environ["OMP_NUM_THREADS"] = str(cfg["electronic"]["threads"])
+    handler = {"prepare": _prepare, "structures": _structures, "electronic": _electronic, "levels": _levels}
+    handler[args.stage](args, cfg)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,20 @@
+# Join every input row with its computed values; calibrated columns come from the models.
+
+
+rule levels:
+    input:
+        outdir=f"{WORK}/candidates/prepared",
+        electronic=electronic_tables("candidates"),
+    output:
+        levels=LEVELS,
+        meta=f"{LEVELS}.meta.json",
+    params:
+        py=PY,
+        cfg=sections("candidates", "structures", "electronic", "levels", "calibration"),
+    log:
+        f"{LOGS}/levels.log",
+    conda:
+        "../envs/dascreen.yaml"
+    shell:
+        "{params.py} -m screen.stages --config {params.cfg:q} levels --manifest {input.outdir:q}/manifest.csv"
+        " --electronic {input.electronic:q} --out {output.levels:q} --meta {output.meta:q} > {log:q} 2>&1"
