@@ -8,7 +8,8 @@ Route (every step seeded, so the same input gives the same geometry):
 2. RDKit ETKDGv3 embedding of several conformers; the count grows with the
    number of rotatable bonds (:func:`conformer_count`);
 3. MMFF94 optimisation of every conformer (UFF when MMFF lacks parameters,
-   e.g. for Se or B);
+   e.g. for B; when neither has parameters, e.g. aromatic Se, the chosen
+   conformer is optimised with the xTB engine instead, step 5);
 4. GFN2-xTB single points on the unique conformers, keeping the lowest;
 5. optional (``geometry="xtb"``) GFN2-xTB optimisation of that conformer with
    ASE's L-BFGS optimiser and the engine's ASE calculator.
@@ -259,6 +260,7 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     (9, 'MMFF94')
     """
     start = time.perf_counter()
+    RDLogger.DisableLog("rdApp.*")
     mol = Chem.MolFromSmiles(smiles)
     if mol is None:
         raise ValueError(f"SMILES does not parse: {smiles!r}")
@@ -293,7 +295,10 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     out.RemoveAllConformers()
     out.AddConformer(conf, assignId=False)
     opt_converged = ""
-    if options.geometry == "xtb":
+    # without force-field parameters (e.g. aromatic Se in UFF) ETKDG geometries are too crude:
+    # optimise with the engine instead, whatever the route
+    geometry = "xtb" if ff == "none" else options.geometry
+    if geometry == "xtb":
         pos, ok = _xtb_optimise(numbers, out.GetConformer().GetPositions(), engine, options)
         c = out.GetConformer()
         for i, p in enumerate(pos):
@@ -306,7 +311,7 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
         "truncated_chains": n_trunc,
         "n_conformers": len(ids),
         "forcefield": ff,
-        "geometry": options.geometry,
+        "geometry": geometry,
         "xtb_rank_energy_eh": float(best_e),
         "opt_converged": opt_converged,
         "wall_s": time.perf_counter() - start,

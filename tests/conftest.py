@@ -1,0 +1,48 @@
+"""Shared fixtures: small molecules with cached geometries so tests stay fast."""
+
+from __future__ import annotations
+
+import functools
+from pathlib import Path
+
+import pytest
+
+DATA = Path(__file__).parent / "data"
+REPO = Path(__file__).resolve().parent.parent
+
+# Acene series, benzene → pentacene.
+ACENES = {
+    "benzene": "c1ccccc1",
+    "naphthalene": "c1ccc2ccccc2c1",
+    "anthracene": "c1ccc2cc3ccccc3cc2c1",
+    "tetracene": "c1ccc2cc3cc4ccccc4cc3cc2c1",
+    "pentacene": "c1ccc2cc3cc4cc5ccccc5cc4cc3cc2c1",
+}
+
+
+@functools.lru_cache(maxsize=None)
+def structure(smiles: str):
+    """Default-route geometry of a molecule (cached across tests)."""
+    from screen.structures import build_structure
+
+    return build_structure(smiles)[0]
+
+
+@functools.lru_cache(maxsize=None)
+def raw_levels(smiles: str, engine: str = "tblite", method: str = "GFN2-xTB") -> dict:
+    """Raw ΔSCF levels of a molecule at its default geometry (cached)."""
+    from screen.electronic import molecule_numbers_positions, vertical_levels
+    from screen.engines import make_engine
+
+    z, pos = molecule_numbers_positions(structure(smiles))
+    return vertical_levels(z, pos, make_engine(engine, method))
+
+
+@pytest.fixture(scope="session")
+def data_dir() -> Path:
+    return DATA
+
+
+@pytest.fixture(scope="session")
+def repo_dir() -> Path:
+    return REPO

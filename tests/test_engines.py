@@ -1,0 +1,86 @@
+"""Engine layer: both backends, SCF ladder, spin/charge bookkeeping."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from conftest import structure
+from screen.constants import BOHR_ANGSTROM, HARTREE_EV
+from screen.electronic import molecule_numbers_positions
+from screen.engines import SCF_LADDER, EngineError, ScfError, make_engine
+
+
+def _benzene():
+    return molecule_numbers_positions(structure("c1ccccc1"))
+
+
+def test_unit_constants_are_codata():
+    # CODATA 2018: 1 Eh = 27.211386245988 eV, a0 = 0.529177210903 Å (scipy.constants; from memory)
+    assert HARTREE_EV == pytest.approx(27.211386245988, rel=1e-9)
+    assert BOHR_ANGSTROM == pytest.approx(0.529177210903, rel=1e-9)
+
+
+def test_both_backends_agree_on_gfn2_energy():
+    pytest.importorskip("xtb.interface", reason="xtb-python is an optional backend (Python <= 3.11)")
+    z, pos = _benzene()
+    e_tb = make_engine("tblite", "GFN2-xTB").singlepoint(z, pos).energy_eh
+    e_xtb = make_engine("xtb", "GFN2-xTB").singlepoint(z, pos).energy_eh
+    # same Hamiltonian, same geometry: agreement to the SCF convergence threshold
+    assert e_tb == pytest.approx(e_xtb, abs=1e-6)
+    c_tb = make_engine("tblite").singlepoint(z, pos, charge=1, uhf=1).energy_eh
+    c_xtb = make_engine("xtb").singlepoint(z, pos, charge=1, uhf=1).energy_eh
+    assert c_tb == pytest.approx(c_xtb, abs=1e-6)
+
+
+@pytest.mark.parametrize("method", ["GFN2-xTB", "GFN1-xTB", "IPEA1-xTB"])
+def test_tblite_methods_give_frontier_orbitals(method):
+    z, pos = _benzene()
+    sp = make_engine("tblite", method).singlepoint(z, pos)
+    homo, lumo = sp.frontier_eh()
+    assert sp.n_electrons == 30  # benzene valence electrons: 6×4 + 6×1
+    assert homo < lumo < 0.5
+    assert sp.rung == 0
+
+
+def test_impossible_spin_state_is_refused():
+    z, pos = _benzene()
+    with pytest.raises(EngineError, match="impossible"):
+        make_engine().singlepoint(z, pos, charge=1, uhf=0)
+
+
+def test_scf_ladder_recovers_and_records_rung():
+    z, pos = _benzene()
+    eng = make_engine(max_iter=2)  # rung 0 cannot converge in 2 cycles
+    sp = eng.singlepoint(z, pos)
+    assert sp.rung >= 1
+    ref = make_engine().singlepoint(z, pos)
+    assert sp.energy_eh == pytest.approx(ref.energy_eh, abs=1e-6)  # rungs change the path, not the answer
+
+
+def test_unconverged_energy_is_never_returned():
+    z, pos = _benzene()
+    eng = make_engine()
+    with pytest.raises(ScfError, match="did not converge"):
+        eng.singlepoint(z, pos, ladder=({"max_iter": 1}, {"max_iter": 2}))
+
+
+def test_unknown_engine_and_method_messages():
+    with pytest.raises(EngineError, match="unknown engine 'orca'"):
+        make_engine("orca")
+    with pytest.raises(EngineError, match="not available with engine 'xtb'"):
+        make_engine("xtb", "IPEA1-xTB") if _has_xtb() else make_engine("tblite", "GFN0-xTB")
+
+
+def _has_xtb() -> bool:
+    try:
+        import xtb.interface  # noqa: F401
+    except ImportError:
+        return False
+    return True
+
+
+def test_ladder_is_documented_and_energy_neutral():
+    assert SCF_LADDER[0] == {}
+    assert all("electronic_temperature_k" not in rung for rung in SCF_LADDER)
+    assert np.all(np.diff([r.get("max_iter", 250) for r in SCF_LADDER]) > 0)
