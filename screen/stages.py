@@ -77,16 +77,10 @@ def _electronic(args, cfg):
 
 
 def _levels(args, cfg):
-    import pandas as pd
-
     from screen.io import write_csv, write_json
-    from screen.levels import assemble, summarise
+    from screen.levels import summarise
 
-    manifest = pd.read_csv(args.manifest, dtype=str, keep_default_na=False)
-    manifest["row"] = manifest["row"].astype(int)
-    tables = [pd.read_csv(p, dtype={"key": str, "status": str, "error": str}, keep_default_na=False,
-                          na_values=[""]) for p in args.electronic]
-    levels = assemble(manifest, tables)
+    levels = _read_computed(args.manifest, args.electronic)
     if args.models:
         from screen.calibrate import apply_models, load_models
 
@@ -97,6 +91,41 @@ def _levels(args, cfg):
             "scale": cfg["levels"]["scale"], "models": args.models or None}
     write_json(meta, f"{args.out}.meta.json" if not args.meta else args.meta)
     print(json.dumps(summarise(levels)))
+
+
+def _read_computed(manifest_path, electronic_paths):
+    import pandas as pd
+
+    from screen.levels import assemble
+
+    manifest = pd.read_csv(manifest_path, dtype=str, keep_default_na=False)
+    manifest["row"] = manifest["row"].astype(int)
+    tables = [pd.read_csv(p, dtype={"key": str, "status": str, "error": str}, keep_default_na=False,
+                          na_values=[""]) for p in electronic_paths]
+    return assemble(manifest, tables)
+
+
+def _reference_input(args, cfg):
+    from screen.calibrate import read_reference, reference_inputs
+    from screen.io import write_csv
+
+    frame = reference_inputs(read_reference(args.reference))
+    write_csv(frame, args.out)
+    print(f"{len(frame)} distinct reference structures")
+
+
+def _calibrate(args, cfg):
+    from screen.calibrate import fingerprint, fit_all, read_reference, save_models, stats_table
+    from screen.io import write_csv
+
+    computed = _read_computed(args.manifest, args.electronic)
+    models = fit_all(read_reference(args.reference), computed)
+    target = save_models(models, args.models_root, fingerprint(cfg, args.reference))
+    table = stats_table(models)
+    write_csv(table, target / "statistics.csv")
+    failed = computed[computed["status"] != "ok"]
+    write_csv(failed[["id", "smiles", "status", "error"]], target / "reference_failures.csv")
+    print(table.to_string(index=False))
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -123,13 +152,22 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--models", default="")
     p.add_argument("--out", required=True)
     p.add_argument("--meta", default="")
+    p = sub.add_parser("reference-input")
+    p.add_argument("--reference", required=True)
+    p.add_argument("--out", required=True)
+    p = sub.add_parser("calibrate")
+    p.add_argument("--reference", required=True)
+    p.add_argument("--manifest", required=True)
+    p.add_argument("--electronic", nargs="*", default=[])
+    p.add_argument("--models-root", required=True)
     args = parser.parse_args(argv)
 
     from screen.config import resolve
 
     cfg = resolve(json.loads(args.config), "workflow configuration")
     os.environ["OMP_NUM_THREADS"] = str(cfg["electronic"]["threads"])
-    handler = {"prepare": _prepare, "structures": _structures, "electronic": _electronic, "levels": _levels}
+    handler = {"prepare": _prepare, "structures": _structures, "electronic": _electronic, "levels": _levels,
+               "reference-input": _reference_input, "calibrate": _calibrate}
     handler[args.stage](args, cfg)
     return 0
 

@@ -2,16 +2,34 @@
 import json
 import sys
 
-from screen.config import resolve
+from screen.calibrate import find_models, reference_files
+from screen.config import protocol_id, resolve
 
 CFG = resolve(config, "snakemake configuration")
+PROTOCOL = protocol_id(CFG)
 PY = sys.executable
 OUT = CFG["out"]
 WORK = f"{OUT}/work"
 LOGS = f"{OUT}/logs"
 LEVELS = f"{OUT}/levels.csv"
-INPUTS = {"candidates": CFG["candidates"]}
+REFERENCE = CFG["calibration"]["reference"]
+REFERENCE_FILES = reference_files(REFERENCE)
+INPUTS = {"candidates": CFG["candidates"], "reference": f"{WORK}/reference/input.csv"}
 MAX_SHARDS = 400
+
+# Calibration: use a shipped model whose fingerprint matches this protocol, else fit one here.
+SHIPPED = None if CFG["calibration"]["refit"] == "always" else find_models(CFG)
+if SHIPPED is None and CFG["calibration"]["refit"] == "never":
+    raise WorkflowError(
+        f"no calibration model in {CFG['calibration']['models']}/{PROTOCOL} matches this protocol and "
+        "calibration.refit is 'never'; run `dascreen calibrate` or set calibration.refit: auto"
+    )
+MODELS = str(SHIPPED) if SHIPPED else f"{OUT}/models/{PROTOCOL}"
+if SHIPPED is None:
+    logger.info(
+        f"dascreen: no shipped calibration matches protocol {PROTOCOL}; the reference molecules in "
+        f"{REFERENCE} are computed with this protocol and the models fitted into {MODELS}"
+    )
 
 
 def sections(*names):

@@ -5,6 +5,7 @@ rule levels:
     input:
         outdir=f"{WORK}/candidates/prepared",
         electronic=electronic_tables("candidates"),
+        models=MODELS,
     output:
         levels=LEVELS,
         meta=f"{LEVELS}.meta.json",
@@ -17,4 +18,4 @@ rule levels:
         "../envs/dascreen.yaml"
     shell:
         "{params.py} -m screen.stages --config {params.cfg:q} levels --manifest {input.outdir:q}/manifest.csv"
-        " --electronic {input.electronic:q} --out {output.levels:q} --meta {output.meta:q} > {log:q} 2>&1"
+        " --electronic {input.electronic:q} --models {input.models:q} --out {output.levels:q} --meta {output.meta:q} > {log:q} 2>&1"
