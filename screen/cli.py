@@ -76,24 +76,9 @@ def cmd_run(args) -> int:
     if not candidates.is_file():
         raise ConfigError(f"candidates file {str(candidates)!r} does not exist")
     out = Path(args.out).resolve()
-    cfg = _load(args, {"candidates": str(candidates.resolve()), "out": str(out), "partner": args.partner,
-                       "strict": True if args.strict else None})
-    for key in ("models", "reference"):
-        cfg["calibration"][key] = str(data_path(cfg["calibration"][key]))
-    out.mkdir(parents=True, exist_ok=True)
-    cfg_file = out / "config.yaml"
-    cfg_file.write_text(yaml.safe_dump(cfg, sort_keys=False), encoding="utf-8")
-    cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(WORKFLOW), "--directory", str(out),
-           "--configfile", str(cfg_file), "--cores", str(args.cores), "--rerun-incomplete",
-           "--show-failed-logs"]
-    if args.dry_run:
-        cmd.append("--dry-run")
-    if args.profile:
-        cmd += ["--workflow-profile", str(Path(args.profile).resolve())]
-    cmd += args.snakemake_args or []
-    env = dict(os.environ)
-    print("dascreen: running", " ".join(cmd[2:6]), "...", flush=True)
-    rc = subprocess.call(cmd, env=env)
+    cfg = _absolute_paths(_load(args, {"candidates": str(candidates.resolve()), "out": str(out),
+                                       "partner": args.partner, "strict": True if args.strict else None}))
+    rc = _snakemake(cfg, out, args.cores, [], args.snakemake_args, args.dry_run, args.profile)
     if rc != 0:
         print(f"dascreen: the workflow stopped with exit code {rc}; see the log above and {out}/logs/",
               file=sys.stderr)
@@ -114,6 +99,66 @@ def data_path(path: str | Path) -> Path:
     if path.is_absolute() or path.exists():
         return path.resolve()
     return Path(__file__).resolve().parent.parent / path
+
+
+def _snakemake(cfg: dict, out: Path, cores: int, targets: list[str], extra: list[str] | None = None,
+               dry_run: bool = False, profile: str | None = None) -> int:
+    """Write the resolved config into ``out`` and run the packaged workflow on it."""
+    out.mkdir(parents=True, exist_ok=True)
+    cfg_file = out / "config.yaml"
+    cfg_file.write_text(yaml.safe_dump(cfg, sort_keys=False), encoding="utf-8")
+    cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(WORKFLOW), "--directory", str(out),
+           "--configfile", str(cfg_file), "--cores", str(cores), "--rerun-incomplete", "--show-failed-logs"]
+    if dry_run:
+        cmd.append("--dry-run")
+    if profile:
+        cmd += ["--workflow-profile", str(Path(profile).resolve())]
+    cmd += list(extra or []) + list(targets)
+    print("dascreen: snakemake --cores", cores, "in", out, flush=True)
+    return subprocess.call(cmd)
+
+
+def _absolute_paths(cfg: dict) -> dict:
+    for key in ("models", "reference"):
+        cfg["calibration"][key] = str(data_path(cfg["calibration"][key]))
+    return cfg
+
+
+def cmd_calibrate(args) -> int:
+    """Compute the reference molecules with the run's protocol and fit the models."""
+    import shutil
+
+    import pandas as pd
+
+    from screen.calibrate import load_models, stats_table
+    from screen.config import protocol_id
+
+    out = Path(args.out).resolve()
+    overrides = {"out": str(out), "calibration": {"refit": "always"}}
+    if args.reference:
+        overrides["calibration"]["reference"] = str(Path(args.reference).resolve())
+    cfg = _absolute_paths(_load(args, overrides))
+    pid = protocol_id(cfg)
+    target = out / "models" / pid
+    rc = _snakemake(cfg, out, args.cores, [str(target)])
+    if rc != 0:
+        print(f"dascreen: calibration stopped with exit code {rc}; see {out}/logs/", file=sys.stderr)
+        return EXIT_ERROR
+    models = load_models(target, cfg)
+    pd.set_option("display.width", 200)
+    print(f"\ncalibration models for protocol {pid} (reference: {cfg['calibration']['reference']})")
+    print(stats_table(models).to_string(index=False))
+    failures = pd.read_csv(target / "reference_failures.csv")
+    if len(failures):
+        print(f"{len(failures)} reference molecule(s) could not be computed: see {target / 'reference_failures.csv'}")
+    if args.install:
+        dest = Path(args.install).resolve() / pid
+        if dest.exists():
+            shutil.rmtree(dest)
+        shutil.copytree(target, dest)
+        print(f"dascreen: models copied to {dest}")
+    print(f"dascreen: models in {target}")
+    return EXIT_OK
 
 
 def cmd_config(args) -> int:
@@ -152,6 +197,23 @@ def build_parser() -> argparse.ArgumentParser:
                    help="Snakemake workflow profile folder (e.g. profiles/slurm for a cluster)")
     p.set_defaults(func=cmd_run)
     p.epilog = "Arguments after a bare `--` are passed to Snakemake unchanged (e.g. -- --keep-going)."
+
+    p = sub.add_parser("calibrate", help="fit calibration models on the reference sets and print statistics",
+                       description="Compute the reference molecules with this run's protocol (same conformer "
+                                   "route, engine and method as the candidates), fit the linear models and print "
+                                   "n, slope, intercept, R², leave-one-out MAE/RMSE, max error and σ.")
+    p.add_argument("--config", default=None, help="YAML config file (protocol settings are what matter)")
+    p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
+                   help="override one config field, e.g. --set electronic.method=IPEA1-xTB (repeatable)")
+    p.add_argument("--reference", default=None,
+                   help="reference folder with ip_gas.csv, ea_gas.csv, gap_optical.csv, levels_film.csv "
+                        "(default: the shipped models/reference); e.g. a copy with your own measured film levels")
+    p.add_argument("--out", default="results/calibration", help="work and output folder")
+    p.add_argument("--cores", type=int, default=os.cpu_count() or 1, help="CPU cores to use")
+    p.add_argument("--install", default=None, metavar="MODELS_DIR",
+                   help="also copy the fitted models to MODELS_DIR/<protocol-id>/ (e.g. models) so later runs "
+                        "use them without refitting")
+    p.set_defaults(func=cmd_calibrate)
 
     p = sub.add_parser("config", help="print the default configuration with every field",
                        description="Print the complete default configuration as YAML.")
