@@ -1,0 +1,581 @@
+"""Tests of the prepare stage (``screen.prepare``): readers, validation, sharding, writing."""
+
+from __future__ import annotations
+
+import csv
+import gzip
+import json
+import os
+import re
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from screen.prepare import (
+    MANIFEST_COLUMNS,
+    REASON_CODES,
+    SHARD_COLUMNS,
+    PrepareOptions,
+    prepare,
+    read_candidates,
+    read_manifest,
+    shard,
+    structure_key,
+    validate,
+)
+
+DATA = Path(__file__).parent / "data"
+ROOT = Path(__file__).parent.parent
+KEY_RE = re.compile(r"^m[0-9a-f]{16}$")
+
+
+def _frame(rows: list[tuple[str, str]] | list[tuple[str, str, str]]) -> pd.DataFrame:
+    """Build a minimal candidate frame from (id, smiles[, role]) tuples."""
+    data = {
+        "id": [r[0] for r in rows],
+        "smiles_input": [r[1] for r in rows],
+        "role": [r[2] if len(r) > 2 else "" for r in rows],
+    }
+    return pd.DataFrame(data)
+
+
+def _one(smiles: str, options: PrepareOptions | None = None, role: str = "") -> pd.Series:
+    """Validate a single SMILES and return its manifest row."""
+    out = validate(_frame([("x", smiles, role)]), options or PrepareOptions())
+    assert len(out) == 1
+    return out.iloc[0]
+
+
+def _write_csv(path: Path, header: list[str], rows: list[list[str]]) -> Path:
+    with path.open("w", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh, lineterminator="\n")
+        writer.writerow(header)
+        writer.writerows(rows)
+    return path
+
+
+# ----------------------------------------------------------------------------------------------
+# one test per reason code
+# ----------------------------------------------------------------------------------------------
+
+
+def test_reason_empty() -> None:
+    for smiles in ("", "   ", "\t"):
+        row = _one(smiles)
+        assert (row.status, row.reason) == ("rejected", "empty")
+        assert "empty" in row.error
+
+
+def test_reason_unparsable_unclosed_ring() -> None:
+    row = _one("C1CCC")
+    assert (row.status, row.reason) == ("rejected", "unparsable")
+    assert "unclosed ring" in row.error
+
+
+def test_reason_unparsable_bad_bracket_names_position() -> None:
+    row = _one("C[C")
+    assert (row.status, row.reason) == ("rejected", "unparsable")
+    assert "position 3" in row.error and "C[C" in row.error
+
+
+def test_reason_unparsable_whitespace_inside() -> None:
+    row = _one("CCO ethanol")
+    assert (row.status, row.reason) == ("rejected", "unparsable")
+    assert "whitespace" in row.error
+
+
+def test_reason_valence_names_atom_and_element() -> None:
+    row = _one("CC(C)(C)(C)C")
+    assert (row.status, row.reason) == ("rejected", "valence")
+    assert "atom 1 (C)" in row.error and "valence 5" in row.error
+
+
+def test_reason_aromaticity() -> None:
+    row = _one("c1ccnc1")
+    assert (row.status, row.reason) == ("rejected", "aromaticity")
+    assert "3 (n)" in row.error and "[nH]" in row.error
+
+
+def test_reason_unsupported_element_metal_lists_allowed() -> None:
+    row = _one("C[Hg]C")
+    assert (row.status, row.reason) == ("rejected", "unsupported_element")
+    assert "Hg" in row.error and "Cl" in row.error and "Se" in row.error
+
+
+def test_reason_unsupported_element_unknown_symbol() -> None:
+    row = _one("C[Xx]C")
+    assert (row.status, row.reason) == ("rejected", "unsupported_element")
+    assert "Xx" in row.error
+
+
+def test_reason_unsupported_element_custom_set() -> None:
+    row = _one("c1cc[se]c1", PrepareOptions(allowed_elements=("H", "C", "S")))
+    assert (row.status, row.reason) == ("rejected", "unsupported_element")
+    assert "Se" in row.error and "H, C, S" in row.error
+
+
+def test_reason_dummy_atom() -> None:
+    for smiles, shown in (("*c1ccccc1", "*"), ("[*:1]CC", "[*:1]"), ("[R1]CC", "[R1]")):
+        row = _one(smiles)
+        assert (row.status, row.reason) == ("rejected", "dummy_atom"), smiles
+        assert shown in row.error
+
+
+def test_reason_charged_and_neutral_formal_charges() -> None:
+    row = _one("C[N+](C)(C)C")
+    assert (row.status, row.reason) == ("rejected", "charged")
+    assert "+1" in row.error
+    assert _one("CC(=O)[O-]").reason == "charged"
+    # nitro groups and zwitterions are neutral overall: accepted with a note
+    for smiles in ("c1ccccc1N(=O)=O", "[NH3+]CC(=O)[O-]"):
+        row = _one(smiles)
+        assert (row.status, row.reason) == ("ok", ""), smiles
+        assert row.note.startswith("charge_separated")
+    # allowed on request
+    assert _one("C[N+](C)(C)C", PrepareOptions(allow_charged=True)).status == "ok"
+
+
+def test_reason_open_shell() -> None:
+    row = _one("C[O]")
+    assert (row.status, row.reason) == ("rejected", "open_shell")
+    assert "1 (O, 1)" in row.error
+    assert _one("[CH2]").reason == "open_shell"
+    assert _one("C[O]", PrepareOptions(allow_open_shell=True)).status == "ok"
+
+
+def test_reason_multi_fragment_lists_fragments() -> None:
+    row = _one("CCO.O")
+    assert (row.status, row.reason) == ("rejected", "multi_fragment")
+    assert "'CCO'" in row.error and "'O'" in row.error
+    salt = _one("CC(=O)[O-].[Na+]")
+    assert salt.reason == "multi_fragment" and "Na" in salt.error
+    many = _one(".".join(["C"] * 9))
+    assert many.reason == "multi_fragment" and "9 disconnected" in many.error and "more" in many.error
+
+
+def test_reason_too_many_atoms_gives_count_and_limit() -> None:
+    row = _one("C" * 12, PrepareOptions(max_heavy_atoms=10))
+    assert (row.status, row.reason) == ("rejected", "too_many_atoms")
+    assert "12" in row.error and "10" in row.error
+    assert row.smiles == "C" * 12 and row.heavy_atoms == 12 and row.key == ""
+
+
+def test_reason_bad_role_and_role_normalisation() -> None:
+    out = validate(_frame([("a", "CCO", "solvent"), ("b", "CCC", " Donor "), ("c", "CCCC", "")]))
+    assert (out.status[0], out.reason[0]) == ("rejected", "bad_role")
+    assert "solvent" in out.error[0]
+    assert (out.status[1], out.role[1]) == ("ok", "donor")
+    assert out.status[2] == "ok"
+
+
+def test_reason_duplicate_id_names_first_row() -> None:
+    out = validate(_frame([("x", "C1CC"), ("y", "CC"), ("x", "CCO"), ("x", "CCN")]))
+    assert list(out.status) == ["rejected", "ok", "rejected", "rejected"]
+    assert list(out.reason) == ["unparsable", "", "duplicate_id", "duplicate_id"]
+    assert "row 0" in out.error[2] and "row 0" in out.error[3]
+
+
+def test_reason_malformed_row(tmp_path: Path) -> None:
+    path = tmp_path / "bad.csv"
+    path.write_text("id,smiles\na,CCO\nb,CC,O\nc,CCC\n", encoding="utf-8")
+    out = validate(read_candidates(path))
+    assert list(out.id) == ["a", "b", "c"]
+    assert (out.status[1], out.reason[1]) == ("rejected", "malformed_row")
+    assert "3 fields" in out.error[1] and "line 3" in out.error[1]
+    assert list(out.status[[0, 2]]) == ["ok", "ok"]
+
+
+def test_missing_id_is_auto_assigned_with_note() -> None:
+    out = validate(_frame([("", "CCO"), ("row-0", "CCC"), ("  ", "CCN")]))
+    assert list(out.status) == ["ok", "ok", "ok"]
+    assert out.id[0] == "row-0-2"  # 'row-0' is taken by an explicit id
+    assert out.id[2] == "row-2"
+    assert out.note[0].startswith("missing_id") and out.note[2].startswith("missing_id")
+    assert out.reason[0] == "" and out.error[0] == ""
+
+
+def test_internal_error_is_contained(monkeypatch: pytest.MonkeyPatch) -> None:
+    import screen.prepare as prep
+
+    real = prep._check_structure
+
+    def flaky(smiles: str, options: PrepareOptions):  # type: ignore[no-untyped-def]
+        if smiles == "CCC":
+            raise RuntimeError("boom")
+        return real(smiles, options)
+
+    monkeypatch.setattr(prep, "_check_structure", flaky)
+    out = prep.validate(_frame([("a", "CC"), ("b", "CCC"), ("c", "CCCC")]))
+    assert list(out.status) == ["ok", "rejected", "ok"]
+    assert out.reason[1] == "internal_error" and "boom" in out.error[1]
+
+
+def test_every_reason_code_is_documented() -> None:
+    import screen.prepare as prep
+
+    for code in REASON_CODES:
+        assert f"``{code}``" in (prep.__doc__ or ""), code
+
+
+# ----------------------------------------------------------------------------------------------
+# structures: canonical form, duplicates, stereo, isotopes
+# ----------------------------------------------------------------------------------------------
+
+
+def test_duplicate_structures_share_key_and_both_ok() -> None:
+    out = validate(_frame([("k", "C1=CC=CC=C1"), ("a", "c1ccccc1"), ("e", "CCO"), ("b", "OCC")]))
+    assert list(out.status) == ["ok"] * 4
+    assert out.key[0] == out.key[1] and out.key[2] == out.key[3] and out.key[0] != out.key[2]
+    assert list(out.duplicate_of) == ["", "k", "", "e"]
+    assert list(out.reason) == [""] * 4
+
+
+def test_stereo_kept_and_distinguished() -> None:
+    out = validate(_frame([("r", "F[C@H](Cl)Br"), ("s", "F[C@@H](Cl)Br"), ("r2", "Br[C@@H](Cl)F")]))
+    assert "@" in out.smiles[0]
+    assert out.key[0] != out.key[1]
+    assert out.key[0] == out.key[2]
+    ez = validate(_frame([("e", "C/C=C/C"), ("z", "C/C=C\\C")]))
+    assert ez.key[0] != ez.key[1] and "/" in ez.smiles[0]
+
+
+def test_isotopes_stripped_by_default_or_kept() -> None:
+    row = _one("[2H]c1ccccc1")
+    assert row.status == "ok" and row.smiles == "c1ccccc1"
+    assert "isotopes_removed" in row.note and "[2H] x1" in row.note
+    kept = _one("[2H]c1ccccc1", PrepareOptions(keep_isotopes=True))
+    assert kept.smiles == "[2H]c1ccccc1" and kept.key != row.key and kept.note == ""
+
+
+def test_canonical_smiles_is_stable_under_revalidation() -> None:
+    demo = validate(read_candidates(ROOT / "candidates" / "demo.csv"))
+    again = validate(_frame([(i, s) for i, s in zip(demo.id, demo.smiles)]))
+    assert list(again.smiles) == list(demo.smiles)
+    assert list(again.key) == list(demo.key)
+
+
+def test_validate_is_idempotent_on_its_output() -> None:
+    first = validate(read_candidates(DATA / "hostile.csv"))
+    second = validate(first)
+    cols = ["row", "id", "key", "smiles", "status", "reason", "error", "duplicate_of", "note"]
+    assert second[cols].equals(first[cols])
+
+
+def test_structure_key_format() -> None:
+    key = structure_key("c1ccccc1")
+    assert KEY_RE.match(key)
+    assert key == structure_key("c1ccccc1") and key != structure_key("c1ccncc1")
+
+
+def test_no_rdkit_noise_printed(capfd: pytest.CaptureFixture[str]) -> None:
+    validate(read_candidates(DATA / "hostile.csv"))
+    read_candidates(DATA / "sample.sdf")
+    captured = capfd.readouterr()
+    assert captured.out == "" and captured.err == ""
+
+
+# ----------------------------------------------------------------------------------------------
+# hostile input
+# ----------------------------------------------------------------------------------------------
+
+
+def test_hostile_rows_each_once_with_expected_outcome() -> None:
+    raw = pd.read_csv(DATA / "hostile.csv", dtype=str, keep_default_na=False)
+    assert len(raw) >= 55
+    out = validate(read_candidates(DATA / "hostile.csv"))
+    assert len(out) == len(raw)
+    assert list(out.row) == list(range(len(raw)))
+    # ids survive verbatim (except the empty one, which gets an auto id)
+    for given, got in zip(raw.id, out.id):
+        if given.strip():
+            assert got == given
+    mismatches = [
+        (r.id[:30], r.smiles_input[:30], r.status, r.reason, r.error)
+        for r in out.itertuples()
+        if (r.status, r.reason) != (r.expect_status, r.expect_reason)
+    ]
+    assert mismatches == []
+    assert set(out.expect_reason) - {""} <= set(REASON_CODES)
+
+
+def test_hostile_keys_are_path_safe_and_ok_ids_unique() -> None:
+    out = validate(read_candidates(DATA / "hostile.csv"))
+    ok = out[out.status == "ok"]
+    assert all(KEY_RE.match(k) for k in ok.key)
+    assert all(k == "" for k in out[out.status != "ok"].key)
+    assert ok.id.is_unique
+    assert set(out.duplicate_of) - {""} <= set(ok.id)
+
+
+def test_hostile_specific_rows() -> None:
+    out = validate(read_candidates(DATA / "hostile.csv")).set_index("row")
+    by_id = {r.id: r for r in out.itertuples()}
+    assert "\n" in next(i for i in by_id if i.startswith("line"))
+    assert any(len(i) == 500 for i in by_id)
+    assert by_id["NA"].status == "ok" and by_id["007"].status == "ok"
+    assert by_id["ethanol-b"].duplicate_of == "ethanol-a"
+    assert by_id["nitro-cs"].duplicate_of == "nitro"
+    assert by_id["ring-dot"].smiles == "CC"
+    assert "Na" in by_id["nacl"].error
+
+
+# ----------------------------------------------------------------------------------------------
+# readers
+# ----------------------------------------------------------------------------------------------
+
+
+def test_read_csv_keeps_text_and_passthrough(tmp_path: Path) -> None:
+    path = _write_csv(
+        tmp_path / "c.csv",
+        ["ID", " Smiles ", "batch", "status"],
+        [["007", "CCO", "NA", "x"], ["NA", "CCC", "", "y"], ["", "", "", ""]],
+    )
+    frame = read_candidates(path)
+    assert list(frame.columns[:7]) == ["row", "id", "smiles_input", "name", "role", "note", "read_error"]
+    assert list(frame.id) == ["007", "NA"]  # the all-blank row is not a row
+    assert list(frame.batch) == ["NA", ""]
+    assert list(frame.input_status) == ["x", "y"]  # clashes with a manifest column: renamed
+
+
+def test_read_csv_gz_and_bom(tmp_path: Path) -> None:
+    text = "\ufeffid,smiles\nq1,c1ccsc1\n"
+    path = tmp_path / "c.csv.gz"
+    path.write_bytes(gzip.compress(text.encode("utf-8")))
+    frame = read_candidates(path)
+    assert list(frame.id) == ["q1"] and list(frame.smiles_input) == ["c1ccsc1"]
+
+
+def test_csv_without_smiles_column_raises(tmp_path: Path) -> None:
+    path = _write_csv(tmp_path / "nosmiles.csv", ["id", "structure"], [["a", "CCO"]])
+    with pytest.raises(ValueError) as err:
+        read_candidates(path)
+    assert "nosmiles.csv" in str(err.value) and "structure" in str(err.value)
+    with pytest.raises(ValueError):
+        prepare(path, tmp_path / "out")
+
+
+def test_unknown_extension_and_non_utf8(tmp_path: Path) -> None:
+    with pytest.raises(ValueError, match="extension"):
+        read_candidates(tmp_path / "x.xlsx")
+    bad = tmp_path / "latin.csv"
+    bad.write_bytes("id,smiles\ncaf\xe9,CCO\n".encode("latin-1"))
+    with pytest.raises(ValueError, match="UTF-8"):
+        read_candidates(bad)
+
+
+def test_read_smi() -> None:
+    frame = read_candidates(DATA / "sample.smi")
+    assert list(frame.id) == ["KF-S01", "Kestrel sample 2", "row-2"]
+    assert list(frame.smiles_input) == ["c1ccsc1", "c1ccc2nsnc2c1", "Cc1ccc(s1)-c1cccs1"]
+    assert frame.note[2].startswith("missing_id")
+    out = validate(frame)
+    assert list(out.status) == ["ok"] * 3
+
+
+def test_read_sdf_with_broken_record() -> None:
+    frame = read_candidates(DATA / "sample.sdf")
+    assert list(frame.id) == ["KF-M01", "KF-M02", "KF-M03"]
+    assert list(frame.role) == ["donor", "acceptor", ""]
+    assert list(frame.batch) == ["2024-A", "2024-A", "2024-B"]
+    out = validate(frame)
+    assert list(out.status) == ["ok", "rejected", "ok"]
+    assert out.reason[1] == "unparsable"
+    assert "record 2" in out.error[1] and "KF-M02" in out.error[1] and "counts line" in out.error[1]
+    assert out.smiles[2] == "C[C@H](N)C(=O)O"  # stereo perceived from the 3D coordinates
+
+
+def test_read_sdf_dummy_and_valence(tmp_path: Path) -> None:
+    block = (
+        "{title}\n     test\n\n"
+        "  {n}  {m}  0  0  0  0  0  0  0  0999 V2000\n{atoms}{bonds}M  END\n$$$$\n"
+    )
+    atom = "    {x:.4f}    0.0000    0.0000 {el:<3} 0  0  0  0  0  0  0  0  0  0  0  0\n"
+    rgroup = block.format(
+        title="rg", n=2, m=1,
+        atoms=atom.format(x=0, el="C") + atom.format(x=1.5, el="R#"),
+        bonds="  1  2  1  0\n",
+    )
+    penta = block.format(
+        title="penta", n=6, m=5,
+        atoms="".join(atom.format(x=float(i), el="C") for i in range(6)),
+        bonds="".join(f"  1  {j}  1  0\n" for j in range(2, 7)),
+    )
+    path = tmp_path / "x.sd"
+    path.write_text(rgroup + penta)
+    out = validate(read_candidates(path))
+    assert list(out.reason) == ["dummy_atom", "valence"]
+
+
+# ----------------------------------------------------------------------------------------------
+# shards
+# ----------------------------------------------------------------------------------------------
+
+
+def _validated(n: int) -> pd.DataFrame:
+    return validate(_frame([(f"c{i}", "C" * (i + 1)) for i in range(n)]))
+
+
+@pytest.mark.parametrize(
+    ("unique", "size", "minimum", "expected"),
+    [
+        (0, 25, 1, []),
+        (1, 25, 4, [1]),
+        (10, 4, 1, [4, 4, 2]),
+        (10, 25, 4, [3, 3, 2, 2]),
+        (3, 25, 8, [1, 1, 1]),
+        (25, 25, 1, [25]),
+    ],
+)
+def test_shard_sizes(unique: int, size: int, minimum: int, expected: list[int]) -> None:
+    parts = shard(_validated(unique), PrepareOptions(shard_size=size, min_shards=minimum))
+    assert [len(p) for p in parts] == expected
+
+
+def test_shards_cover_unique_keys_once_deterministically() -> None:
+    out = validate(read_candidates(DATA / "hostile.csv"))
+    options = PrepareOptions(shard_size=7)
+    parts = shard(out, options)
+    keys = [k for p in parts for k in p.key]
+    ok_keys = list(dict.fromkeys(out[out.status == "ok"].key))
+    assert keys == ok_keys  # each unique key once, in first-occurrence order
+    assert all(list(p.columns) == list(SHARD_COLUMNS) for p in parts)
+    again = shard(validate(read_candidates(DATA / "hostile.csv")), options)
+    assert all(a.equals(b) for a, b in zip(parts, again)) and len(parts) == len(again)
+
+
+def test_shard_rejects_unvalidated_frame() -> None:
+    with pytest.raises(ValueError, match="validate"):
+        shard(_frame([("a", "CC")]))
+
+
+def test_options_are_checked() -> None:
+    with pytest.raises(ValueError, match="shard_size"):
+        PrepareOptions(shard_size=0)
+    with pytest.raises(ValueError, match="allowed_elements"):
+        PrepareOptions(allowed_elements=("C", "Xq"))
+    assert PrepareOptions(allowed_elements=["C", "H"]).allowed_elements == ("C", "H")  # type: ignore[arg-type]
+
+
+# ----------------------------------------------------------------------------------------------
+# prepare(): files, atomicity, confinement
+# ----------------------------------------------------------------------------------------------
+
+
+def _tree(root: Path) -> set[str]:
+    return {str(p.relative_to(root)) for p in root.rglob("*")}
+
+
+def test_prepare_writes_only_inside_out_dir_and_no_temp_files(tmp_path: Path) -> None:
+    parent = tmp_path / "parent"
+    parent.mkdir()
+    src = parent / "hostile.csv"
+    src.write_bytes((DATA / "hostile.csv").read_bytes())
+    before = _tree(parent)
+    out = parent / "prepared"
+    summary = prepare(src, out, PrepareOptions(shard_size=10))
+    after = _tree(parent)
+    assert {p for p in after - before if not p.startswith("prepared")} == set()
+    files = sorted(os.listdir(out))
+    assert not [f for f in files if f.startswith(".") or f.endswith(".tmp")]
+    shards = [f for f in files if f.startswith("shard-")]
+    assert shards == [f"shard-{k:03d}.csv" for k in range(summary["shards"])]
+    assert set(files) == set(shards) | {"manifest.csv", "manifest.meta.json"}
+    # keys (not ids) are the only per-structure text that could ever become a path
+    manifest = read_manifest(out / "manifest.csv")
+    assert all(KEY_RE.match(k) for k in manifest.key if k)
+
+
+def test_prepare_manifest_contract(tmp_path: Path) -> None:
+    summary = prepare(DATA / "hostile.csv", tmp_path)
+    manifest = read_manifest(tmp_path / "manifest.csv")
+    raw = pd.read_csv(DATA / "hostile.csv", dtype=str, keep_default_na=False)
+    assert list(manifest.columns[: len(MANIFEST_COLUMNS)]) == list(MANIFEST_COLUMNS)
+    assert list(manifest.columns[len(MANIFEST_COLUMNS):]) == ["expect_status", "expect_reason", "what"]
+    assert list(manifest.row) == list(range(len(raw)))
+    assert list(manifest.smiles_input) == list(raw.smiles)
+    assert [i for i in manifest.id if i] == [i for i in manifest.id]
+    # ids (newlines, quotes, commas, formula-like text, 500 chars) survive the CSV round trip
+    assert list(manifest.id) == list(validate(read_candidates(DATA / "hostile.csv")).id)
+    assert summary["rows"] == len(raw) == summary["ok"] + summary["rejected"]
+    assert summary["ok"] == int((raw.expect_status == "ok").sum())
+    shards = [pd.read_csv(tmp_path / f"shard-{k:03d}.csv", dtype=str, keep_default_na=False)
+              for k in range(summary["shards"])]
+    assert sum(len(s) for s in shards) == summary["unique"]
+    ok = manifest[manifest.status == "ok"]
+    assert summary["unique"] == ok.key.nunique()
+    meta = json.loads((tmp_path / "manifest.meta.json").read_text())
+    assert meta["counts"] == summary and meta["options"]["max_heavy_atoms"] == 200
+
+
+def test_prepare_five_end_to_end(tmp_path: Path) -> None:
+    summary = prepare(DATA / "five.csv", tmp_path, PrepareOptions(shard_size=2))
+    assert summary == {"rows": 6, "ok": 5, "rejected": 1, "unique": 5, "shards": 3}
+    manifest = read_manifest(tmp_path / "manifest.csv")
+    assert manifest.heavy_atoms.max() <= 14
+    assert list(manifest.reason) == ["", "", "", "", "", "unparsable"]
+
+
+def test_prepare_empty_input(tmp_path: Path) -> None:
+    src = tmp_path / "empty.csv"
+    src.write_text("id,smiles\n")
+    out = tmp_path / "out"
+    summary = prepare(src, out)
+    assert summary == {"rows": 0, "ok": 0, "rejected": 0, "unique": 0, "shards": 0}
+    manifest = read_manifest(out / "manifest.csv")
+    assert len(manifest) == 0 and list(manifest.columns) == list(MANIFEST_COLUMNS)
+    assert not [f for f in os.listdir(out) if f.startswith("shard-")]
+    smi = tmp_path / "empty.smi"
+    smi.write_text("# nothing here\n\n")
+    assert prepare(smi, tmp_path / "out2")["rows"] == 0
+
+
+def test_prepare_removes_stale_shards(tmp_path: Path) -> None:
+    prepare(DATA / "hostile.csv", tmp_path, PrepareOptions(shard_size=5))
+    many = len([f for f in os.listdir(tmp_path) if f.startswith("shard-")])
+    summary = prepare(DATA / "five.csv", tmp_path)
+    left = sorted(f for f in os.listdir(tmp_path) if f.startswith("shard-"))
+    assert many > 1 and left == ["shard-000.csv"] and summary["shards"] == 1
+
+
+def test_written_files_have_ordinary_permissions(tmp_path: Path) -> None:
+    prepare(DATA / "five.csv", tmp_path)
+    mask = os.umask(0o022)
+    os.umask(mask)
+    for name in os.listdir(tmp_path):
+        assert (tmp_path / name).stat().st_mode & 0o777 == 0o666 & ~mask, name
+
+
+def test_atomic_write_cleans_up_on_failure(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    import screen.prepare as prep
+
+    def broken_replace(src: str, dst: str) -> None:
+        raise OSError("disk full")
+
+    monkeypatch.setattr(prep.os, "replace", broken_replace)
+    with pytest.raises(OSError):
+        prep.prepare(DATA / "five.csv", tmp_path)
+    assert os.listdir(tmp_path) == []  # no temp file left, nothing looks finished
+
+
+# ----------------------------------------------------------------------------------------------
+# shipped data
+# ----------------------------------------------------------------------------------------------
+
+
+def test_demo_candidates_all_valid() -> None:
+    frame = read_candidates(ROOT / "candidates" / "demo.csv")
+    out = validate(frame)
+    assert len(out) == 30
+    assert list(out.status) == ["ok"] * 30, out[out.status != "ok"][["id", "error"]]
+    assert out.id.is_unique and out.key.is_unique
+    assert out.heavy_atoms.between(20, 70).all()
+    roles = out.role.value_counts().to_dict()
+    assert roles["donor"] == 18 and roles["acceptor"] == 12
+    assert "notes" in out.columns
+
+
+def test_five_is_small() -> None:
+    out = validate(read_candidates(DATA / "five.csv"))
+    assert len(out) == 6 and (out.status == "ok").sum() == 5
+    assert out.heavy_atoms.dropna().max() <= 14
