@@ -1,0 +1,194 @@
+"""Consistency checks for the calibration reference sets and the partner library.
+
+These tests do not judge whether a literature value is *right* (each row names its
+source and says whether it was recalled, ``from_memory=true``); they check that the
+files parse, that every structure is a valid, neutral, closed-shell single molecule
+made of supported elements, that values sit in physical ranges, and that the sets are
+large enough and contain the acene series used to anchor the calibration.
+"""
+
+from __future__ import annotations
+
+import csv
+import re
+from pathlib import Path
+
+import pytest
+from rdkit import Chem, RDLogger
+
+RDLogger.DisableLog("rdApp.*")
+
+ROOT = Path(__file__).resolve().parents[1]
+REF = ROOT / "models" / "reference"
+IP = REF / "ip_gas.csv"
+EA = REF / "ea_gas.csv"
+GAP = REF / "gap_optical.csv"
+FILM = REF / "levels_film.csv"
+PARTNERS = ROOT / "screen" / "data" / "partners.csv"
+README = REF / "README.md"
+
+GAS_COLUMNS = ["name", "smiles", "value_ev", "kind", "phase", "method", "source", "doi", "from_memory", "notes"]
+FILM_COLUMNS = ["name", "smiles", "representation", "homo_ev", "lumo_ev", "gap_opt_ev", "method",
+                "fc_reference_ev", "source", "doi", "from_memory", "notes"]
+PARTNER_COLUMNS = ["id", "name", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "scale", "homo_sigma_ev",
+                   "lumo_sigma_ev", "gap_opt_sigma_ev", "fc_reference_ev", "smiles", "source", "doi",
+                   "from_memory", "notes"]
+
+ALLOWED_ELEMENTS = {"H", "B", "C", "N", "O", "F", "Si", "P", "S", "Cl", "Se", "Br", "I"}
+
+ACENES = {
+    "benzene": "c1ccccc1",
+    "naphthalene": "c1ccc2ccccc2c1",
+    "anthracene": "c1ccc2cc3ccccc3cc2c1",
+    "tetracene": "c1ccc2cc3cc4ccccc4cc3cc2c1",
+    "pentacene": "c1ccc2cc3cc4cc5ccccc5cc4cc3cc2c1",
+}
+
+# Family names that must never appear in the data files. Built from pieces so that this
+# test file does not contain them literally.
+FORBIDDEN = ["p3" + "ht", "pc" + "bm", "pc61" + "bm", "phthalo" + "cyanin", "n7" + "19", "ruthen" + "ium"]
+
+
+def read_rows(path: Path) -> tuple[list[str], list[dict[str, str]]]:
+    with open(path, newline="", encoding="utf-8") as handle:
+        reader = csv.DictReader(handle)
+        rows = list(reader)
+        return list(reader.fieldnames or []), rows
+
+
+def canonical(smiles: str) -> str:
+    mol = Chem.MolFromSmiles(smiles)
+    assert mol is not None, f"RDKit cannot parse {smiles!r}"
+    return Chem.MolToSmiles(mol)
+
+
+def check_structure(smiles: str, where: str) -> None:
+    mol = Chem.MolFromSmiles(smiles)
+    assert mol is not None, f"{where}: invalid SMILES {smiles!r}"
+    assert len(Chem.GetMolFrags(mol)) == 1, f"{where}: more than one fragment"
+    assert Chem.GetFormalCharge(mol) == 0, f"{where}: net charge is not zero"
+    radicals = sum(atom.GetNumRadicalElectrons() for atom in mol.GetAtoms())
+    assert radicals == 0, f"{where}: open-shell structure ({radicals} radical electrons)"
+    elements = {atom.GetSymbol() for atom in Chem.AddHs(mol).GetAtoms()}
+    assert elements <= ALLOWED_ELEMENTS, f"{where}: unsupported elements {elements - ALLOWED_ELEMENTS}"
+
+
+def as_float(text: str, where: str) -> float:
+    try:
+        return float(text)
+    except ValueError as exc:  # pragma: no cover - reported through the assertion
+        raise AssertionError(f"{where}: {text!r} is not a number") from exc
+
+
+GAS_SETS = {
+    # file: (allowed kinds, allowed phases, value range [eV], minimum rows)
+    IP: ({"vertical", "adiabatic"}, {"gas"}, (5.0, 11.0), 35),
+    EA: ({"vertical", "adiabatic"}, {"gas"}, (-2.0, 3.5), 22),
+    GAP: ({"onset", "maximum", "0-0"}, {"gas", "solution", "film"}, (1.0, 6.0), 22),
+}
+
+
+@pytest.mark.parametrize("path", list(GAS_SETS), ids=lambda p: p.name)
+def test_gas_reference_file(path: Path) -> None:
+    kinds, phases, (low, high), minimum = GAS_SETS[path]
+    columns, rows = read_rows(path)
+    assert columns == GAS_COLUMNS
+    assert len(rows) >= minimum, f"{path.name}: {len(rows)} rows < {minimum}"
+    seen: dict[str, str] = {}
+    for row in rows:
+        where = f"{path.name}:{row['name']}"
+        assert row["name"].strip(), f"{where}: empty name"
+        check_structure(row["smiles"], where)
+        key = canonical(row["smiles"])
+        assert key not in seen, f"{where}: duplicate SMILES (also {seen[key]})"
+        seen[key] = row["name"]
+        value = as_float(row["value_ev"], where)
+        assert low <= value <= high, f"{where}: {value} eV outside [{low}, {high}]"
+        assert row["kind"] in kinds, f"{where}: kind {row['kind']!r}"
+        assert row["phase"] in phases, f"{where}: phase {row['phase']!r}"
+        assert row["method"].strip(), f"{where}: empty method"
+        assert row["source"].strip(), f"{where}: empty source"
+        assert row["from_memory"] in {"true", "false"}, f"{where}: from_memory {row['from_memory']!r}"
+
+
+@pytest.mark.parametrize("path", [IP, EA, GAP], ids=lambda p: p.name)
+def test_acene_series_present(path: Path) -> None:
+    _, rows = read_rows(path)
+    present = {canonical(row["smiles"]) for row in rows}
+    missing = [name for name, smi in ACENES.items() if canonical(smi) not in present]
+    assert not missing, f"{path.name}: acenes missing {missing}"
+
+
+def test_acene_trends_are_monotonic() -> None:
+    # Physical sanity: IP and optical gap fall, EA rises along benzene -> pentacene.
+    for path, sign in ((IP, -1), (EA, +1), (GAP, -1)):
+        _, rows = read_rows(path)
+        by_key = {canonical(row["smiles"]): float(row["value_ev"]) for row in rows}
+        series = [by_key[canonical(smi)] for smi in ACENES.values()]
+        steps = [sign * (b - a) for a, b in zip(series, series[1:])]
+        assert all(step > 0 for step in steps), f"{path.name}: acene series not monotonic {series}"
+
+
+def check_levels(homo: float, lumo: float, where: str) -> None:
+    assert -7.0 <= homo <= -4.5, f"{where}: HOMO {homo} outside [-7, -4.5]"
+    assert -4.5 <= lumo <= -2.5, f"{where}: LUMO {lumo} outside [-4.5, -2.5]"
+    assert lumo > homo, f"{where}: LUMO {lumo} not above HOMO {homo}"
+
+
+def test_levels_film() -> None:
+    columns, rows = read_rows(FILM)
+    assert columns == FILM_COLUMNS
+    assert len(rows) >= 15
+    seen: dict[str, str] = {}
+    for row in rows:
+        where = f"{FILM.name}:{row['name']}"
+        check_structure(row["smiles"], where)
+        key = canonical(row["smiles"])
+        assert key not in seen, f"{where}: duplicate SMILES (also {seen[key]})"
+        seen[key] = row["name"]
+        assert row["representation"].strip(), f"{where}: empty representation"
+        check_levels(as_float(row["homo_ev"], where), as_float(row["lumo_ev"], where), where)
+        gap = as_float(row["gap_opt_ev"], where)
+        assert 1.0 <= gap <= 6.0, f"{where}: optical gap {gap}"
+        assert row["method"].strip(), f"{where}: empty method"
+        if row["fc_reference_ev"].strip():
+            fc = as_float(row["fc_reference_ev"], where)
+            assert -5.2 <= fc <= -4.6, f"{where}: ferrocene level {fc}"
+        assert row["source"].strip(), f"{where}: empty source"
+        assert row["from_memory"] in {"true", "false"}, f"{where}: from_memory {row['from_memory']!r}"
+
+
+def test_partner_library() -> None:
+    columns, rows = read_rows(PARTNERS)
+    assert columns == PARTNER_COLUMNS
+    ids = [row["id"] for row in rows]
+    assert len(ids) == len(set(ids)), "duplicate partner ids"
+    assert "scharber-reference-acceptor" in ids
+    film_smiles = {canonical(row["smiles"]) for row in read_rows(FILM)[1]}
+    for row in rows:
+        where = f"{PARTNERS.name}:{row['id']}"
+        assert re.fullmatch(r"[a-z0-9]+(-[a-z0-9]+)*", row["id"]), f"{where}: id must be lowercase, hyphenated"
+        assert row["role"] in {"acceptor", "donor"}, f"{where}: role {row['role']!r}"
+        assert row["scale"] == "film", f"{where}: scale {row['scale']!r}"
+        check_levels(as_float(row["homo_ev"], where), as_float(row["lumo_ev"], where), where)
+        gap = as_float(row["gap_opt_ev"], where)
+        assert 1.0 <= gap <= 6.0, f"{where}: optical gap {gap}"
+        for column in ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev"):
+            sigma = as_float(row[column], where)
+            assert 0.0 < sigma <= 1.0, f"{where}: {column} {sigma}"
+        if row["fc_reference_ev"].strip():
+            assert -5.2 <= as_float(row["fc_reference_ev"], where) <= -4.6
+        if row["smiles"].strip():
+            check_structure(row["smiles"], where)
+            assert canonical(row["smiles"]) in film_smiles, f"{where}: SMILES not the levels_film.csv representation"
+        assert row["source"].strip(), f"{where}: empty source"
+        assert row["from_memory"] in {"true", "false"}, f"{where}: from_memory {row['from_memory']!r}"
+    roles = {row["role"] for row in rows}
+    assert roles == {"acceptor", "donor"}
+
+
+@pytest.mark.parametrize("path", [IP, EA, GAP, FILM, PARTNERS, README], ids=lambda p: p.name)
+def test_no_forbidden_family_names(path: Path) -> None:
+    text = path.read_text(encoding="utf-8").lower()
+    found = [word for word in FORBIDDEN if word in text]
+    assert not found, f"{path.name} mentions a material family that must not appear ({len(found)} hit(s))"
