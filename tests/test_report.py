@@ -1,0 +1,420 @@
+"""Tests of the HTML report (screen.report) on a small, clearly synthetic ranking.
+
+Every molecule, level and id below is made up for the test; the numbers are
+self-consistent under the Scharber device model of screen.device but describe
+no real material.
+"""
+
+from __future__ import annotations
+
+import csv
+import re
+from html.parser import HTMLParser
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from screen.device import DeviceModel
+from screen.report import describe_flag, render_report, safe_csv_frame, write_report
+
+XSS_ID = "<script>alert(1)</script>"
+CREATED = "2000-01-01 00:00 UTC (test)"
+
+# id, name, smiles, role, homo, lumo, gap, extra flags
+_CANDIDATES = [
+    ("synth-D1", "synthetic donor one", "Cc1ccc(-c2ccc(-c3ccc(C)s3)s2)s1", "donor", -5.45, -3.80, 1.55, ""),
+    ("synth-D2", "synthetic donor two", "c1ccc2c(c1)sc1ccccc12", "donor", -5.30, -3.70, 1.70, ""),
+    (XSS_ID, "name with <b>markup</b> & ampersand", "N#Cc1ccc(-c2ccc(C#N)s2)s1", "donor", -5.50, -3.95, 1.50,
+     ""),
+    ("=1+1", "formula-like id", "c1ccc(-c2ccccn2)nc1", "donor", -5.60, -4.05, 1.45, ""),
+    ("+cmd", "plus-led id", "O=C1c2ccccc2C(=O)c2ccccc21", "donor", -5.20, -4.10, 1.20, "gap_out_of_window"),
+    ("@SUM(A1)", "at-led id", "c1ccc2cc3ccccc3cc2c1", "donor", -5.10, -3.40, 2.10, ""),
+    ("-cmd", "minus-led id", "c1csc(-c2cccs2)c1", "donor", -5.70, -3.30, 2.40, ""),
+    ("synth-A1", "synthetic acceptor", "O=C1C(=Cc2ccc(s2)C=C2C(=O)c3ccccc3C2=O)C(=O)c2ccccc12", "acceptor",
+     -5.90, -4.00, 1.90, "same_role_as_partner"),
+    ("synth-D8", "", "", "donor", -5.35, -3.75, 1.65, "role_assumed;weird_new_code"),
+]
+PARTNER = {
+    "id": "scharber-reference-acceptor",
+    "name": "Scharber-model reference fullerene-derivative acceptor",
+    "role": "acceptor",
+    "homo_ev": -6.1,
+    "lumo_ev": -4.3,
+    "gap_opt_ev": 2.0,
+    "scale": "film",
+    "source": "Scharber et al., Adv. Mater. 18 (2006) 789",
+    "homo_sigma_ev": 0.2,
+    "lumo_sigma_ev": 0.1,
+    "gap_opt_sigma_ev": 0.3,
+}
+
+
+def synthetic_inputs(n_extra: int = 0):
+    """Ranking, levels, partner and meta of a synthetic screen.
+
+    Parameters
+    ----------
+    n_extra : int
+        Additional generated donor rows (for size tests), without SMILES
+        drawings beyond the shortlist.
+    """
+    cands = list(_CANDIDATES)
+    rng = np.random.default_rng(7)
+    for i in range(n_extra):
+        gap = float(rng.uniform(1.1, 2.6))
+        lumo = float(rng.uniform(-4.1, -3.2))
+        cands.append((f"gen-{i:04d}", f"generated {i}", "c1ccc(-c2cccs2)cc1", "donor", round(lumo - gap - 0.1, 3),
+                      round(lumo, 3), round(gap, 3), ""))
+    model = DeviceModel()
+    homo = np.array([c[4] for c in cands])
+    lumo = np.array([c[5] for c in cands])
+    gap = np.array([c[6] for c in cands])
+    out = model.evaluate(homo, lumo, gap, PARTNER["homo_ev"], PARTNER["lumo_ev"], PARTNER["gap_opt_ev"])
+    rows = []
+    for i, c in enumerate(cands):
+        flags = ";".join(x for x in (str(out["flags"][i]), c[7]) if x)
+        rows.append({
+            "id": c[0], "name": c[1], "smiles": c[2], "role": c[3], "homo_ev": c[4], "lumo_ev": c[5],
+            "gap_opt_ev": c[6], "partner": PARTNER["id"], "delta_lumo_ev": round(float(out["delta_lumo_ev"][i]), 4),
+            "delta_homo_ev": round(float(out["delta_homo_ev"][i]), 4), "voc_v": round(float(out["voc_v"][i]), 4),
+            "jsc_ma_cm2": round(float(out["jsc_ma_cm2"][i]), 3), "ff": 0.65,
+            "pce_pct": round(float(out["pce_pct"][i]), 3), "pce_sigma_pct": 1.1 + 0.01 * i,
+            "p_above_target": round(float(np.clip(out["pce_pct"][i] / 20.0, 0, 1)), 3),
+            "passes": flags == "", "flags": flags,
+            "homo_sigma_ev": 0.15, "lumo_sigma_ev": 0.12, "gap_opt_sigma_ev": 0.1,
+            "series": "batch-<A>" if i % 2 else "batch-B",
+        })
+    ranking = pd.DataFrame(rows)
+    ranking = ranking.sort_values(["passes", "pce_pct"], ascending=[False, False], kind="stable")
+    ranking.insert(0, "rank", np.arange(1, len(ranking) + 1))
+    ranking = ranking.reset_index(drop=True)
+
+    lev = ranking[["id", "smiles", "homo_ev", "lumo_ev", "gap_opt_ev", "homo_sigma_ev", "lumo_sigma_ev",
+                   "gap_opt_sigma_ev", "name", "role"]].copy()
+    lev["status"], lev["error"], lev["scale"] = "ok", "", "film"
+    bad = pd.DataFrame([
+        {"id": "synth-bad-smiles", "smiles": "C1CC(", "status": "rejected",
+         "error": "SMILES not readable: unclosed ring <1>", "name": "broken input", "role": "donor",
+         "scale": ""},
+        {"id": "synth-xtb-fail", "smiles": "c1ccccc1[N+](=O)[O-]", "status": "failed",
+         "error": "cation SCF did not converge in 250 iterations", "name": "", "role": "donor",
+         "scale": ""},
+    ])
+    levels = pd.concat([lev, bad], ignore_index=True)
+    meta = {
+        "created": CREATED,
+        "partner": PARTNER,
+        "device": {"eqe": 0.65, "ff": 0.65, "loss_v": 0.3, "min_delta_lumo_ev": 0.3, "min_delta_homo_ev": 0.3,
+                   "absorber": "donor", "spectrum": "ASTM G173-03", "pin_w_m2": 1000.37},
+        "rank": {"target_pce_pct": 10, "shortlist_size": 5, "sort_by": "pce_pct", "gap_min_ev": 1.3,
+                 "gap_max_ev": 3.0},
+        "levels_meta": {
+            "dascreen": "0.1.0", "protocol_id": "tblite-gfn2-ff-0000test",
+            "protocol": {"structures": {"geometry": "ff", "forcefield": "mmff", "ranking_method": "GFN2-xTB"},
+                         "electronic": {"engine": "tblite", "method": "GFN2-xTB", "solvent": None}},
+            "models": "models/tblite-gfn2-ff-0000test",
+            "calibration": {"ip": {"n": 20, "loo_mae_ev": 0.112, "loo_rmse_ev": 0.15},
+                            "ea": {"n": 15, "loo_mae_ev": 0.2, "loo_rmse_ev": 0.26},
+                            "homo_film": {"n": 8, "loo_mae_ev": 0.18, "loo_rmse_ev": 0.22}},
+        },
+        "counts": {"rows": len(levels), "ok": len(lev), "rejected": 1, "failed": 1},
+    }
+    return ranking, levels, dict(PARTNER), meta
+
+
+class _Page(HTMLParser):
+    """Collects tags, attributes, text and nesting errors of an HTML page."""
+
+    VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
+
+    def __init__(self):
+        super().__init__(convert_charrefs=True)
+        self.starts: list[tuple[str, dict]] = []
+        self.stack: list[str] = []
+        self.errors: list[str] = []
+        self.text: list[str] = []
+        self.script_text: list[str] = []
+        self._in_script = False
+        self.decl = ""
+
+    def handle_decl(self, decl):
+        self.decl = decl
+
+    def handle_starttag(self, tag, attrs):
+        self.starts.append((tag, dict(attrs)))
+        if tag == "script":
+            self._in_script = True
+        if tag not in self.VOID:
+            self.stack.append(tag)
+
+    def handle_startendtag(self, tag, attrs):
+        self.starts.append((tag, dict(attrs)))
+
+    def handle_endtag(self, tag):
+        if tag == "script":
+            self._in_script = False
+        if tag in self.VOID:
+            return
+        if not self.stack or self.stack[-1] != tag:
+            self.errors.append(f"</{tag}> closes {self.stack[-1] if self.stack else 'nothing'}")
+            if tag in self.stack:
+                while self.stack and self.stack.pop() != tag:
+                    pass
+            return
+        self.stack.pop()
+
+    def handle_data(self, data):
+        (self.script_text if self._in_script else self.text).append(data)
+
+    def tags(self, name):
+        return [a for t, a in self.starts if t == name]
+
+    def with_class(self, cls):
+        return [(t, a) for t, a in self.starts if cls in (a.get("class") or "").split()]
+
+
+def _parse(page: str) -> _Page:
+    parser = _Page()
+    parser.feed(page)
+    parser.close()
+    return parser
+
+
+@pytest.fixture(scope="module")
+def written(tmp_path_factory):
+    ranking, levels, partner, meta = synthetic_inputs()
+    out = tmp_path_factory.mktemp("report")
+    path = write_report(ranking, levels, partner, meta, out)
+    return path, ranking, levels, partner, meta
+
+
+def test_writes_files_and_parses(written):
+    path, ranking, *_ = written
+    assert path == path.parent / "report.html" and path.is_file()
+    assert (path.parent / "ranking.safe.csv").is_file()
+    assert not [p for p in path.parent.iterdir() if p.name.startswith(".")], "temporary files left behind"
+    page = path.read_text(encoding="utf-8")
+    assert page.startswith("<!DOCTYPE html>")
+    doc = _parse(page)
+    assert doc.decl.lower() == "doctype html"
+    assert not doc.errors, doc.errors[:5]
+    assert not doc.stack, f"unclosed elements: {doc.stack}"
+    assert [a.get("charset") for a in doc.tags("meta") if "charset" in a] == ["utf-8"]
+    assert len(doc.tags("title")) == 1
+    ids = [a["id"] for _, a in doc.starts if "id" in a]
+    assert len(ids) == len(set(ids)), "duplicate element ids"
+
+
+def test_every_ranked_id_listed(written):
+    path, ranking, *_ = written
+    doc = _parse(path.read_text(encoding="utf-8"))
+    row_ids = {a.get("data-id") for a in doc.tags("tr") if "data-id" in a}
+    for ident in ranking["id"]:
+        assert ident in row_ids, ident
+    full_rows = [a["data-id"] for a in doc.tags("tr") if "data-id" in a]
+    assert full_rows.count("synth-D1") == 2  # shortlist + full table
+
+
+def test_one_structure_drawing_per_shortlisted_row(written):
+    path, ranking, _levels, _partner, meta = written
+    page = path.read_text(encoding="utf-8")
+    doc = _parse(page)
+    drawings = [a for t, a in doc.with_class("mol") if t == "svg"]
+    passing = ranking[ranking["passes"]]
+    n_short = min(meta["rank"]["shortlist_size"], len(passing))
+    assert len(drawings) == n_short
+    # drawings sit in the shortlist table, one per row
+    table = page[page.index('id="shortlist-table"'):page.index("</table>", page.index('id="shortlist-table"'))]
+    rows = table.split("<tr data-id=")[1:]
+    assert len(rows) == n_short
+    assert all(r.count('<svg class="mol"') == 1 for r in rows)
+    assert "<?xml" not in page
+
+
+def test_two_figures_present(written):
+    path, *_ = written
+    page = path.read_text(encoding="utf-8")
+    doc = _parse(page)
+    svg_ids = {a.get("id") for a in doc.tags("svg")}
+    assert {"fig-levels", "fig-map"} <= svg_ids
+    assert "Energy vs vacuum [eV]" in page
+    assert "PCE [%]" in page
+    assert "Donor optical gap [eV]" in page
+
+
+def test_no_external_references(written):
+    path, *_ = written
+    doc = _parse(path.read_text(encoding="utf-8"))
+    bad = re.compile(r"^\s*(https?:|//|data:|javascript:|file:|ftp:)", re.I)
+    for tag, attrs in doc.starts:
+        for name, value in attrs.items():
+            if name in ("src", "href", "xlink:href", "action", "poster", "srcset") and value is not None:
+                assert not bad.match(value), (tag, name, value)
+            if name in ("src", "href", "xlink:href"):
+                assert value.startswith("#") or re.fullmatch(r"[\w.-]+", value), (tag, name, value)
+    hrefs = sorted(a["href"] for a in doc.tags("a") if "href" in a)
+    assert hrefs == ["ranking.csv", "ranking.safe.csv", "shortlist.sdf"]
+    assert not doc.tags("link") and not doc.tags("img") and not doc.tags("iframe")
+    assert "@import" not in path.read_text(encoding="utf-8")
+
+
+def test_not_ranked_section_lists_rejected_and_failed(written):
+    path, *_ = written
+    page = path.read_text(encoding="utf-8")
+    start = page.index('id="not-ranked"')
+    section = page[start:page.index("</table>", start)]
+    assert "synth-bad-smiles" in section and "synth-xtb-fail" in section
+    assert "SMILES not readable: unclosed ring &lt;1&gt;" in section
+    assert "cation SCF did not converge in 250 iterations" in section
+    assert "rejected" in section and "failed" in section
+    assert "Not ranked (2)" in page
+
+
+def test_user_text_is_escaped(written):
+    path, *_ = written
+    page = path.read_text(encoding="utf-8")
+    doc = _parse(page)
+    assert page.count("<script") == 1 and len(doc.tags("script")) == 1
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
+    assert "<b>markup</b>" not in page and "&lt;b&gt;markup&lt;/b&gt;" in page
+    assert "batch-&lt;A&gt;" in page  # pass-through column
+    assert XSS_ID in "".join(doc.text)  # shown as text
+    assert "alert" not in "".join(doc.script_text)
+
+
+def test_flags_in_plain_words(written):
+    path, *_ = written
+    page = path.read_text(encoding="utf-8")
+    assert "LUMO offset to the partner below 0.30 eV" in page
+    assert "optical gap outside the screening window (1.30\u20133.00 eV)" in page
+    assert "same role as the partner" in page
+    assert "role not given in the input; assumed to complement the partner" in page
+    assert "weird_new_code" in page  # unknown code verbatim
+    visible = "".join(_parse(page).text)
+    for code in ("lumo_offset_low", "gap_out_of_window", "same_role_as_partner", "role_assumed"):
+        assert code not in visible, code  # known codes are shown only in words
+
+
+def test_header_contents(written):
+    path, *_ = written
+    page = path.read_text(encoding="utf-8")
+    for text in ("scharber-reference-acceptor", "\u22124.30 \u00b1 0.10 eV", "film", "GFN2-xTB",
+                 "force-field geometry", "tblite-gfn2-ff-0000test", "0.112", CREATED, "Screening estimates",
+                 "safety data sheets", "local regulations", "1000.37", "dascreen"):
+        assert text in page, text
+    # levels with σ in the table
+    assert "\u22125.45 \u00b1 0.15" in "".join(_parse(page).text)
+
+
+def test_missing_meta_is_tolerated(tmp_path):
+    ranking, levels, partner, _ = synthetic_inputs()
+    path = write_report(ranking.drop(columns=["homo_sigma_ev"]), levels, {}, {}, tmp_path)
+    page = path.read_text(encoding="utf-8")
+    assert "not recorded" in page
+    assert not _parse(page).errors
+    # σ recovered from the levels table by id
+    assert "\u22125.45 \u00b1 0.15" in "".join(_parse(page).text)
+
+
+def test_empty_ranking(tmp_path):
+    ranking, levels, partner, meta = synthetic_inputs()
+    path = write_report(ranking.iloc[0:0], levels, partner, meta, tmp_path)
+    page = path.read_text(encoding="utf-8")
+    assert "no candidates to show" in page
+    assert not _parse(page).errors
+
+
+def test_safe_csv(written):
+    path, ranking, *_ = written
+    with open(path.parent / "ranking.safe.csv", newline="", encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    ids = [r["id"] for r in rows]
+    for raw in ("=1+1", "+cmd", "@SUM(A1)", "-cmd"):
+        assert "'" + raw in ids and raw not in ids
+    assert XSS_ID in ids and "synth-D1" in ids
+    back = pd.read_csv(path.parent / "ranking.safe.csv")
+    assert pd.api.types.is_float_dtype(back["homo_ev"]) and (back["homo_ev"] < 0).all()
+    assert np.allclose(back["homo_ev"], ranking["homo_ev"])
+    assert back["rank"].tolist() == ranking["rank"].tolist()
+
+
+def test_safe_csv_frame_cells():
+    t = pd.DataFrame({"a": ["=x", "\tcmd", "\rcmd", "-5.4", "-2+3", "plain", None],
+                      "b": [-5.4, -1.0, 0.0, 1.0, 2.0, 3.0, 4.0],
+                      "c": [-1, "=mixed", 2.5, "@x", "x", "", "+1"]})
+    out = safe_csv_frame(t)
+    assert out["a"].tolist()[:6] == ["'=x", "'\tcmd", "'\rcmd", "-5.4", "'-2+3", "plain"]
+    assert out["b"].tolist() == t["b"].tolist() and out["b"].dtype == t["b"].dtype
+    assert out["c"].tolist() == [-1, "'=mixed", 2.5, "'@x", "x", "", "+1"]
+    assert t["a"][0] == "=x"  # input untouched
+
+
+def test_deterministic_output(tmp_path):
+    ranking, levels, partner, meta = synthetic_inputs()
+    a = write_report(ranking, levels, partner, meta, tmp_path / "a").read_bytes()
+    b = write_report(ranking.copy(), levels.copy(), dict(partner), dict(meta), tmp_path / "b").read_bytes()
+    assert a == b
+    assert (tmp_path / "a" / "ranking.safe.csv").read_bytes() == (tmp_path / "b" / "ranking.safe.csv").read_bytes()
+    other = dict(meta, created="2099-12-31 23:59 UTC")
+    c = write_report(ranking, levels, partner, other, tmp_path / "c").read_bytes()
+    la, lc = a.decode().splitlines(), c.decode().splitlines()
+    diff = [i for i, (x, y) in enumerate(zip(la, lc)) if x != y]
+    assert len(la) == len(lc) and len(diff) == 1 and "Generated" in la[diff[0]]
+
+
+def test_default_date_is_set(tmp_path):
+    ranking, levels, partner, meta = synthetic_inputs()
+    meta.pop("created")
+    page = render_report(ranking, levels, partner, meta)
+    assert re.search(r"Generated \d{4}-\d\d-\d\d \d\d:\d\d UTC", page)
+
+
+def test_acceptor_candidates_against_donor_partner(tmp_path):
+    ranking, levels, _partner, meta = synthetic_inputs()
+    donor = {"id": "synth-donor-partner", "role": "donor", "homo_ev": -5.3, "lumo_ev": -3.5, "gap_opt_ev": 1.7,
+             "scale": "film"}
+    ranking = ranking.assign(role="acceptor")
+    path = write_report(ranking, levels, donor, meta, tmp_path)
+    page = path.read_text(encoding="utf-8")
+    assert "Acceptor candidates sit at the partner donor" in page
+    assert not _parse(page).errors
+
+
+def test_describe_flag_defaults():
+    assert describe_flag("lumo_offset_low").startswith("LUMO offset to the partner below the required minimum")
+    assert describe_flag("too_many_heavy_atoms", {"rank": {"max_heavy_atoms": 120}}).endswith("(120)")
+    assert describe_flag(" input_missing ").startswith("a level the device model needs")
+
+
+def test_page_stays_light_for_1000_rows(tmp_path):
+    ranking, levels, partner, meta = synthetic_inputs(n_extra=1000)
+    meta["rank"]["shortlist_size"] = 10
+    path = write_report(ranking, levels, partner, meta, tmp_path)
+    size = path.stat().st_size
+    assert size < 2_000_000, size
+    doc = _parse(path.read_text(encoding="utf-8"))
+    assert len([1 for t, _ in doc.with_class("mol") if t == "svg"]) == 10
+
+
+def test_meta_as_written_by_the_ranking_stage(tmp_path):
+    """Keys as screen.rank writes them: device.as_dict(), filters, partner_role, levels path."""
+    ranking, levels, partner, meta = synthetic_inputs()
+    meta["device"] = {"absorber": "donor", "eqe": 0.65, "ff": 0.65, "incident_power_w_m2": 1000.3706,
+                      "loss_v": 0.3, "min_delta_homo_ev": 0.3, "min_delta_lumo_ev": 0.3, "pin_w_m2": None,
+                      "spectrum": "ASTM G173-03 AM1.5G (global, 37\u00b0 tilt)"}
+    meta["rank"] = {"target_pce_pct": 10.0, "shortlist_size": 3, "sort_by": "pce_pct"}
+    meta["filters"] = {"gap_min_ev": 1.3, "gap_max_ev": 3.0, "max_heavy_atoms": 80}
+    meta["partner_role"], meta["partner_role_assumed"] = "acceptor", True
+    meta["levels"] = {"path": "/somewhere/private/levels.csv", "sha256": "ab" * 32}
+    partner = dict(partner, role="", from_memory=True, notes="synthetic <note>")
+    ranking.loc[0, "flags"] = "role_assumed;heavy_atoms_unknown"
+    page = write_report(ranking, levels, partner, meta, tmp_path).read_text(encoding="utf-8")
+    assert "1000.37 W" in page
+    assert "optical gap outside the screening window (1.30\u20133.00 eV)" in page
+    assert "assumed: the complement" in page and "Candidate donors" in page
+    assert "values recalled from the literature" in page and "synthetic &lt;note&gt;" in page
+    assert "<code>levels.csv</code> (sha256 abababababab\u2026)" in page and "/somewhere/private" not in page
+    assert 'class="flag info" data-code="role_assumed"' in page
+    assert not _parse(page).errors
