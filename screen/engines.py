@@ -40,6 +40,7 @@ References
 
 from __future__ import annotations
 
+import os
 import time
 from abc import ABC, abstractmethod
 from dataclasses import dataclass, field, replace
@@ -48,6 +49,11 @@ from importlib.metadata import PackageNotFoundError, version
 import numpy as np
 
 from screen.constants import KB_HARTREE_K
+
+# One OpenMP thread per process unless the user says otherwise: the pipeline parallelises over
+# shards, and OpenMP threads competing for busy cores slow xTB down by 10-30x. Must be set before
+# the native libraries load, hence at import time.
+os.environ.setdefault("OMP_NUM_THREADS", "1")
 
 __all__ = [
     "ENGINES",

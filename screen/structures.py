@@ -51,7 +51,7 @@ __all__ = [
 ]
 
 #: columns of the per-shard structures status table
-STATUS_COLUMNS = ["key", "status", "error", "smiles_computed", "truncated_chains", "n_conformers",
+STATUS_COLUMNS = ["key", "status", "error", "smiles_computed", "truncated_chains", "n_conformers", "embedding",
                   "forcefield", "geometry", "xtb_rank_energy_eh", "opt_converged", "wall_s"]
 
 
@@ -191,17 +191,35 @@ def truncate_side_chains(mol: Chem.Mol, min_carbons: int = 3) -> tuple[Chem.Mol,
     return out, n_chains
 
 
-def _embed(mol_h: Chem.Mol, n_conf: int, options: StructureOptions) -> list[int]:
+#: cycle rank (independent rings) from which a molecule is embedded as a cage
+CAGE_CYCLE_RANK = 20
+
+
+def _cycle_rank(mol: Chem.Mol) -> int:
+    return mol.GetNumBonds() - mol.GetNumAtoms() + len(Chem.GetMolFrags(mol))
+
+
+def _embed(mol_h: Chem.Mol, n_conf: int, options: StructureOptions) -> tuple[list[int], str]:
+    """Embed conformers; returns their ids and the embedding route used."""
+    heavy = Chem.RemoveHs(mol_h)
+    if _cycle_rank(heavy) >= CAGE_CYCLE_RANK:
+        # fullerenes and other cages: ETKDG's torsion terms stall for minutes and fail; plain
+        # distance geometry from random coordinates embeds them in well under a second
+        params = AllChem.ETDG()
+        params.randomSeed = int(options.seed)
+        params.useRandomCoords = True
+        params.numThreads = 1
+        return list(AllChem.EmbedMultipleConfs(mol_h, numConfs=1, params=params)), "ETDG-random (cage)"
     params = AllChem.ETKDGv3()
     params.randomSeed = int(options.seed)
     params.pruneRmsThresh = float(options.prune_rms_a)
     params.numThreads = 1
     ids = list(AllChem.EmbedMultipleConfs(mol_h, numConfs=n_conf, params=params))
-    if not ids:  # difficult cages and macrocycles: random starting coordinates
-        params.useRandomCoords = True
-        params.maxIterations = 2000
-        ids = list(AllChem.EmbedMultipleConfs(mol_h, numConfs=n_conf, params=params))
-    return ids
+    if ids:
+        return ids, "ETKDGv3"
+    params.useRandomCoords = True  # strained macrocycles: random starting coordinates
+    params.maxIterations = 2000
+    return list(AllChem.EmbedMultipleConfs(mol_h, numConfs=n_conf, params=params)), "ETKDGv3-random"
 
 
 def _ff_optimise(mol_h: Chem.Mol, options: StructureOptions) -> str:
@@ -270,7 +288,7 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     smiles_computed = Chem.MolToSmiles(mol)
     mol_h = Chem.AddHs(mol)
     n_conf = conformer_count(mol, options)
-    ids = _embed(mol_h, n_conf, options)
+    ids, embedding = _embed(mol_h, n_conf, options)
     if not ids:
         raise ValueError(f"RDKit ETKDG could not embed a 3D structure ({n_conf} attempts, random coordinates too)")
     ff = _ff_optimise(mol_h, options)
@@ -310,6 +328,7 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
         "smiles_computed": smiles_computed,
         "truncated_chains": n_trunc,
         "n_conformers": len(ids),
+        "embedding": embedding,
         "forcefield": ff,
         "geometry": geometry,
         "xtb_rank_energy_eh": float(best_e),
