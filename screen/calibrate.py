@@ -28,6 +28,10 @@ scatter is the σ of film levels. Electrochemical values are first brought to
 one ferrocene convention (:data:`FC_REFERENCE_EV` = −4.8 eV): a value reported
 with Fc at −5.1 eV is shifted by +0.3 eV.
 
+A reference row with a non-empty ``exclude_reason`` stays in its file (and in
+the documentation) but is not fitted, e.g. azulene's optical gap: its S1 is an
+anomalous, weakly allowed state that no orbital-gap model describes.
+
 Every model file records the protocol fingerprint; :func:`load_models`
 refuses a model whose fingerprint does not match the run's.
 
@@ -233,6 +237,8 @@ def _read_ref_csv(path: Path, needed: list[str]) -> pd.DataFrame:
     if missing:
         raise CalibrationError(f"{path}: missing column(s) {missing}; found {list(frame.columns)}")
     frame = frame[frame["smiles"].str.strip().ne("")].copy()
+    if "exclude_reason" not in frame.columns:
+        frame["exclude_reason"] = ""
     return frame
 
 
@@ -332,7 +338,7 @@ def fit_property(prop: str, ref: pd.DataFrame, computed: pd.DataFrame, exclude=N
     dict
         Model parameters, statistics, residuals and the alternatives tried.
     """
-    data = _joined(ref, computed)
+    data = _joined(ref[ref["exclude_reason"].str.strip().eq("")], computed)
     if exclude is not None:
         data = data[[not exclude(n, s) for n, s in zip(data["name"], data["smiles"])]]
     y = data["value_ev"].astype(float).to_numpy()
@@ -364,6 +370,7 @@ def _normalised_film(film: pd.DataFrame) -> pd.DataFrame:
 
 def fit_film(film: pd.DataFrame, computed: pd.DataFrame, ip_model: dict, ea_model: dict) -> dict[str, dict]:
     """Fit the film shifts P₊ (HOMO) and P₋ (LUMO) on top of the gas models."""
+    film = film[film["exclude_reason"].str.strip().eq("")]
     data = _joined(_normalised_film(film), computed)
     out = {}
     for level, gas_prop, model_d in (("homo", "ip", ip_model), ("lumo", "ea", ea_model)):

@@ -52,10 +52,17 @@ def atomic_path(target: str | os.PathLike) -> Iterator[Path]:
         yield tmp
         with open(tmp, "rb") as fh:
             os.fsync(fh.fileno())
+        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the usual permissions
         os.replace(tmp, target)
     finally:
         if tmp.exists():
             tmp.unlink()
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def write_csv(frame: pd.DataFrame, target: str | os.PathLike) -> None:

@@ -27,9 +27,10 @@ FILM = REF / "levels_film.csv"
 PARTNERS = ROOT / "screen" / "data" / "partners.csv"
 README = REF / "README.md"
 
-GAS_COLUMNS = ["name", "smiles", "value_ev", "kind", "phase", "method", "source", "doi", "from_memory", "notes"]
+GAS_COLUMNS = ["name", "smiles", "value_ev", "kind", "phase", "method", "source", "doi", "from_memory", "notes",
+               "exclude_reason"]
 FILM_COLUMNS = ["name", "smiles", "representation", "homo_ev", "lumo_ev", "gap_opt_ev", "method",
-                "fc_reference_ev", "source", "doi", "from_memory", "notes"]
+                "fc_reference_ev", "source", "doi", "from_memory", "notes", "exclude_reason"]
 PARTNER_COLUMNS = ["id", "name", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "scale", "homo_sigma_ev",
                    "lumo_sigma_ev", "gap_opt_sigma_ev", "fc_reference_ev", "smiles", "source", "doi",
                    "from_memory", "notes"]
