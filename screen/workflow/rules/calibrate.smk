@@ -10,7 +10,7 @@ rule reference_input:
     params:
         py=PY,
         cfg=sections("calibration"),
-        reference=REFERENCE,
+        reference=lambda wildcards, input: Path(input[0]).parent,
     log:
         f"{LOGS}/reference/input.log",
     conda:
@@ -30,8 +30,8 @@ rule calibrate:
     params:
         py=PY,
         cfg=sections("structures", "electronic", "calibration"),
-        root=f"{OUT}/models",
-        reference=REFERENCE,
+        root=lambda wildcards, output: Path(output[0]).parent,
+        reference=lambda wildcards, input: Path(input.reference[0]).parent,
     log:
         f"{LOGS}/calibrate.log",
     conda:

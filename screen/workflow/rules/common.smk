@@ -1,6 +1,7 @@
 # Shared definitions: resolved configuration, output locations, helpers.
 import json
 import sys
+from pathlib import Path
 
 from screen.calibrate import find_models, reference_files
 from screen.config import protocol_id, resolve

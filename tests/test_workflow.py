@@ -1,0 +1,90 @@
+"""The workflow end to end on a small fixture, through the `dascreen` command and Snakemake."""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from screen.calibrate import find_models
+from screen.config import load_config
+
+CONTRACT = ["id", "smiles", "status", "error", "ip_ev", "ea_ev", "gap_fund_ev", "homo_ev", "lumo_ev", "gap_opt_ev",
+            "ip_sigma_ev", "ea_sigma_ev", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev", "scale"]
+RAW = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev"]
+
+
+def _dascreen(*args, cwd=None):
+    return subprocess.run([sys.executable, "-m", "screen.cli", *args], capture_output=True, text=True, cwd=cwd,
+                          env={**os.environ, "PYTHONUNBUFFERED": "1"})
+
+
+@pytest.fixture(scope="module")
+def five_run(tmp_path_factory, data_dir, repo_dir):
+    if find_models(load_config(repo_dir / "config" / "config.yaml",
+                               {"calibration": {"models": str(repo_dir / "models"),
+                                                "reference": str(repo_dir / "models" / "reference")}})) is None:
+        pytest.fail("no shipped calibration model matches the default protocol: run "
+                    "`dascreen calibrate --install models` and commit models/")
+    out = tmp_path_factory.mktemp("five")
+    proc = _dascreen("run", str(data_dir / "five.csv"), "--out", str(out), "--cores", "2", cwd=repo_dir)
+    return out, proc
+
+
+def test_run_exits_zero_and_summarises(five_run):
+    out, proc = five_run
+    assert proc.returncode == 0, proc.stdout[-3000:] + proc.stderr[-3000:]
+    assert "6 rows: 5 ok, 1 rejected, 0 failed" in proc.stdout
+
+
+def test_levels_has_every_row_in_input_order_with_contract_columns(five_run, data_dir):
+    out, _ = five_run
+    levels = pd.read_csv(out / "levels.csv", dtype={"id": str}, keep_default_na=False)
+    inp = pd.read_csv(data_dir / "five.csv", dtype=str, keep_default_na=False)
+    assert list(levels["id"]) == list(inp["id"])
+    assert levels.columns[: len(CONTRACT)].tolist() == CONTRACT
+    assert set(RAW) <= set(levels.columns)
+    ok = levels[levels["status"] == "ok"]
+    assert len(ok) == 5
+    assert (ok["scale"] == "film").all()  # every level says its scale
+    assert (pd.to_numeric(ok["homo_ev"]) < pd.to_numeric(ok["lumo_ev"])).all()
+    assert (pd.to_numeric(ok["ip_ev"]) > 0).all()
+    bad = levels[levels["status"] != "ok"].iloc[0]
+    assert bad["status"] == "rejected" and "SMILES syntax error" in bad["error"]
+
+
+def test_sidecar_records_protocol_and_versions(five_run):
+    out, _ = five_run
+    meta = json.loads((out / "levels.csv.meta.json").read_text())
+    assert meta["protocol"]["electronic"]["method"] == "GFN2-xTB"
+    assert meta["protocol_id"].startswith("tblite-gfn2-ff-")
+    assert meta["versions"]["tblite"] != "absent"
+    assert meta["counts"] == {"rows": 6, "ok": 5, "rejected": 1, "failed": 0}
+
+
+def test_rerun_is_a_no_op_and_strict_fails_on_bad_rows(five_run, data_dir, repo_dir):
+    out, _ = five_run
+    before = (out / "levels.csv").read_bytes()
+    proc = _dascreen("run", str(data_dir / "five.csv"), "--out", str(out), "--cores", "1", "--strict", cwd=repo_dir)
+    assert proc.returncode == 3, proc.stderr[-2000:]
+    assert "Nothing to be done" in proc.stdout + proc.stderr
+    assert (out / "levels.csv").read_bytes() == before
+
+
+def test_bad_config_is_one_clear_message(tmp_path, data_dir):
+    cfg = tmp_path / "bad.yaml"
+    cfg.write_text("device:\n  absorber: acceptor\n")
+    proc = _dascreen("run", str(data_dir / "five.csv"), "--out", str(tmp_path / "o"), "--config", str(cfg))
+    assert proc.returncode == 2
+    assert "bad.yaml" in proc.stderr and "device.absorber" in proc.stderr and "donor, both" in proc.stderr
+
+
+def test_snakemake_lint_is_clean(repo_dir):
+    proc = subprocess.run([sys.executable, "-m", "snakemake", "--lint"], capture_output=True, text=True,
+                          cwd=repo_dir)
+    assert "Congratulations" in proc.stdout + proc.stderr, proc.stdout + proc.stderr
