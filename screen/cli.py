@@ -77,7 +77,7 @@ def cmd_run(args) -> int:
         raise ConfigError(f"candidates file {str(candidates)!r} does not exist")
     out = Path(args.out).resolve()
     cfg = _absolute_paths(_load(args, {"candidates": str(candidates.resolve()), "out": str(out),
-                                       "partner": args.partner, "strict": True if args.strict else None}))
+                                       "partner": _partner_arg(args.partner), "strict": True if args.strict else None}))
     rc = _snakemake(cfg, out, args.cores, [], args.snakemake_args, args.dry_run, args.profile)
     if rc != 0:
         print(f"dascreen: the workflow stopped with exit code {rc}; see the log above and {out}/logs/",
@@ -86,6 +86,7 @@ def cmd_run(args) -> int:
     if args.dry_run:
         return EXIT_OK
     counts = _print_summary(out / "levels.csv")
+    _print_ranking_of_run(cfg, out)
     if cfg["strict"] and (counts["rejected"] or counts["failed"]):
         print("dascreen: --strict: some rows were rejected or failed", file=sys.stderr)
         return EXIT_STRICT
@@ -161,6 +162,93 @@ def cmd_calibrate(args) -> int:
     return EXIT_OK
 
 
+def _partner_arg(spec: str | None) -> str | None:
+    """A partner given as a path to an existing file becomes absolute (the workflow runs elsewhere)."""
+    if spec is None:
+        return None
+    from screen.partners import PartnerError, partner_kind
+
+    try:
+        if partner_kind(spec) == "file":
+            return str(Path(spec).expanduser().resolve())
+    except PartnerError:
+        pass  # reported with the library ids when the partner is resolved
+    return spec
+
+
+def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
+    """Print the best ``top`` rows of a ranking.csv and its path."""
+    import pandas as pd
+
+    table = pd.read_csv(ranking_csv, dtype={"id": str}, keep_default_na=False, na_values=[""])
+    show = table.head(top).copy()
+    show["id"] = [str(i).replace("\n", "\\n").replace("\r", "\\r")[:28] for i in show["id"]]
+    show["flags"] = show["flags"].fillna("").astype(str).str.slice(0, 40)
+    cols = ["rank", "id", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "delta_lumo_ev", "delta_homo_ev", "voc_v",
+            "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "passes", "flags"]
+    passing = int(table["passes"].astype(str).str.lower().eq("true").sum()) if len(table) else 0
+    partner = table["partner"].iloc[0] if len(table) else "?"
+    print(f"dascreen: {len(table)} ranked against {partner}, {passing} pass the filters; top {min(top, len(table))}:")
+    if len(show):
+        with pd.option_context("display.width", 250, "display.max_columns", 30):
+            print(show[cols].to_string(index=False, na_rep="-", float_format=lambda x: f"{x:.3g}"))
+    print(f"dascreen: ranking -> {ranking_csv}")
+
+
+def _print_ranking_of_run(cfg: dict, out: Path) -> None:
+    from screen.partners import PartnerError, partner_slug
+
+    try:
+        path = out / "rankings" / partner_slug(cfg["partner"]) / "ranking.csv"
+    except PartnerError:
+        return
+    if path.is_file():
+        _print_ranking(path)
+
+
+def cmd_rank(args) -> int:
+    """Rank a levels file against a partner (no quantum chemistry unless a new smiles: partner)."""
+    from screen.rank import run_rank
+
+    out = Path(args.out).resolve()
+    levels = Path(args.levels) if args.levels else out / "levels.csv"
+    if not levels.is_file():
+        raise ConfigError(f"levels file {str(levels)!r} does not exist; run `dascreen run` first or pass "
+                          "--levels FILE (columns id,homo_ev,lumo_ev,gap_opt_ev,scale)")
+    if args.config is None and (out / "config.yaml").is_file():
+        args.config = str(out / "config.yaml")  # the run's own settings, so smiles: partners share its protocol
+        print(f"dascreen: using the run's configuration {args.config}")
+    from screen.config import resolve
+
+    cfg = _load(args, {})
+    for key, value in (("role", args.role), ("sort_by", args.sort_by), ("target_pce_pct", args.target_pce)):
+        if value is not None:
+            cfg["rank"][key] = value
+    cfg = _absolute_paths(resolve(cfg, "command line"))
+    partner = args.partner or cfg["partner"]
+    try:
+        path = run_rank(levels, partner, out, cfg, models_dir=args.models)
+    except RuntimeError as exc:  # the report failed after the ranking was written
+        print(f"dascreen: error: {exc}", file=sys.stderr)
+        return EXIT_ERROR
+    _print_ranking(path, args.top)
+    return EXIT_OK
+
+
+def cmd_partners(args) -> int:
+    """Print the built-in partner library."""
+    import pandas as pd
+
+    from screen.partners import LIBRARY_PATH, library_table
+
+    table = library_table(source_width=0 if args.full else 70)
+    with pd.option_context("display.width", 250, "display.max_colwidth", None):
+        print(table.to_string(index=False, float_format=lambda x: f"{x:.2f}"))
+    print(f"\n{len(table)} partners in {LIBRARY_PATH}; energies in eV on the vacuum scale. Use one with "
+          "--partner ID; or a one-row levels CSV, smiles:<SMILES> or id:<ID of a levels row>.")
+    return EXIT_OK
+
+
 def cmd_config(args) -> int:
     """Print the default configuration."""
     print(yaml.safe_dump(load_config(None), sort_keys=False), end="")
@@ -214,6 +302,39 @@ def build_parser() -> argparse.ArgumentParser:
                    help="also copy the fitted models to MODELS_DIR/<protocol-id>/ (e.g. models) so later runs "
                         "use them without refitting")
     p.set_defaults(func=cmd_calibrate)
+
+    p = sub.add_parser("rank", help="ranking and report only, from an existing levels file (seconds)",
+                       description="Pair every candidate of a levels file with a partner material, estimate "
+                                   "Voc/Jsc/PCE with the Scharber model, apply the filters and write "
+                                   "OUT/rankings/<partner>/ (ranking.csv, shortlist.sdf, ranking.meta.json, report). "
+                                   "Runs no quantum chemistry, except once for a new smiles: partner.")
+    p.add_argument("--partner", default=None,
+                   help="library name (see `dascreen partners`), a one-row levels CSV, smiles:<SMILES> or "
+                        "id:<ID> of a levels row (default from config: scharber-reference-acceptor)")
+    p.add_argument("--levels", default=None,
+                   help="levels file to rank (default OUT/levels.csv); any CSV with id,homo_ev,lumo_ev,gap_opt_ev,"
+                        "scale works, e.g. your own cyclic-voltammetry levels")
+    p.add_argument("--out", default="results", help="output folder (default: ./results)")
+    p.add_argument("--role", choices=["donor", "acceptor"], default=None,
+                   help="role of rows without a role column value (default: the partner's complement)")
+    p.add_argument("--sort-by", choices=["pce_pct", "p_above_target"], default=None,
+                   help="ranking key after the pass/fail split (default pce_pct)")
+    p.add_argument("--target-pce", type=float, default=None, metavar="PCT",
+                   help="efficiency threshold for p_above_target, in %% (default 10)")
+    p.add_argument("--config", default=None,
+                   help="YAML config file (default: OUT/config.yaml if present, else the defaults)")
+    p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
+                   help="override one config field, e.g. --set device.eqe=0.7 (repeatable)")
+    p.add_argument("--models", default=None, metavar="DIR",
+                   help="calibration models folder for a smiles: partner (default: the one the levels used)")
+    p.add_argument("--top", type=int, default=10, help="rows to print (default 10)")
+    p.set_defaults(func=cmd_rank)
+
+    p = sub.add_parser("partners", help="list the built-in partner materials",
+                       description="Print the built-in partner library (id, role, HOMO, LUMO, optical gap, scale, "
+                                   "source).")
+    p.add_argument("--full", action="store_true", help="do not shorten the sources")
+    p.set_defaults(func=cmd_partners)
 
     p = sub.add_parser("config", help="print the default configuration with every field",
                        description="Print the complete default configuration as YAML.")

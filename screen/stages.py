@@ -128,6 +128,14 @@ def _calibrate(args, cfg):
     print(table.to_string(index=False))
 
 
+def _rank(args, cfg):
+    from screen.rank import run_rank
+
+    path = run_rank(args.levels, args.partner, args.out, cfg, models_dir=args.models or None,
+                    cache_dir=args.cache or None)
+    print(f"ranking -> {path}")
+
+
 def main(argv: list[str] | None = None) -> int:
     """Run one stage job; see ``python -m screen.stages --help``."""
     parser = argparse.ArgumentParser(prog="python -m screen.stages", description=__doc__)
@@ -160,6 +168,12 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--manifest", required=True)
     p.add_argument("--electronic", nargs="*", default=[])
     p.add_argument("--models-root", required=True)
+    p = sub.add_parser("rank")
+    p.add_argument("--levels", required=True)
+    p.add_argument("--partner", required=True)
+    p.add_argument("--out", required=True, help="output folder; the ranking goes to OUT/rankings/<slug>/")
+    p.add_argument("--models", default="", help="calibration folder (used by smiles: partners only)")
+    p.add_argument("--cache", default="", help="cache folder of computed partners")
     args = parser.parse_args(argv)
 
     from screen.config import resolve
@@ -167,7 +181,7 @@ def main(argv: list[str] | None = None) -> int:
     cfg = resolve(json.loads(args.config), "workflow configuration")
     os.environ["OMP_NUM_THREADS"] = str(cfg["electronic"]["threads"])
     handler = {"prepare": _prepare, "structures": _structures, "electronic": _electronic, "levels": _levels,
-               "reference-input": _reference_input, "calibrate": _calibrate}
+               "reference-input": _reference_input, "calibrate": _calibrate, "rank": _rank}
     handler[args.stage](args, cfg)
     return 0
 

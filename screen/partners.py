@@ -1,0 +1,645 @@
+"""Partner materials: the donor or acceptor every candidate is paired with.
+
+A partner is one levels row (HOMO, LUMO, optical gap, their σ, the energy
+scale and a role).  :func:`resolve_partner` accepts four kinds of
+specification (design notes §3):
+
+``<library id>``
+    A row of the built-in library ``screen/data/partners.csv`` (see
+    ``dascreen partners``); ids are matched case-insensitively.
+``<path>``
+    A CSV file holding exactly one levels row (columns ``id, homo_ev,
+    lumo_ev, gap_opt_ev, scale``; optional ``role``, ``name``, σ columns,
+    ``smiles``, ``source``).
+``smiles:<SMILES>``
+    Computed exactly like the candidates: :func:`screen.structures.build_structure`
+    and :func:`screen.electronic.vertical_levels` with the configuration's
+    protocol, then :func:`screen.calibrate.apply_models` with the run's
+    calibration models.  The raw engine values are cached as JSON keyed by
+    structure key and protocol id, so a second call does not touch the engine.
+    Computing the partner with the candidates' protocol and calibration also
+    cancels part of the systematic error of the offsets.
+``id:<ID>``
+    A row of the current levels table (e.g. a candidate promoted to partner).
+
+Every partner gets a :attr:`Partner.slug`, a path-safe folder name for
+``OUT/rankings/<slug>/`` that :func:`partner_slug` computes without any
+quantum-chemistry call (the workflow needs it when it parses the Snakefile).
+
+Energies are on the vacuum scale in eV (HOMO = −IP < 0, LUMO = −EA).
+
+References
+----------
+.. [1] M. C. Scharber et al., "Design rules for donors in bulk-heterojunction
+   solar cells — towards 10 % energy-conversion efficiency", Adv. Mater. 18
+   (2006) 789. :doi:`10.1002/adma.200501717`
+.. [2] C. Bannwarth, S. Ehlert, S. Grimme, J. Chem. Theory Comput. 15 (2019)
+   1652. :doi:`10.1021/acs.jctc.8b01176`
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import math
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+
+__all__ = [
+    "LIBRARY_PATH",
+    "LIBRARY_COLUMNS",
+    "ROLES",
+    "SCALES",
+    "Partner",
+    "PartnerError",
+    "load_library",
+    "library_partners",
+    "library_table",
+    "partner_slug",
+    "partner_kind",
+    "resolve_partner",
+    "complement",
+]
+
+#: the built-in partner library
+LIBRARY_PATH = Path(__file__).parent / "data" / "partners.csv"
+#: columns of the library file, in order
+LIBRARY_COLUMNS = ["id", "name", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "scale", "homo_sigma_ev",
+                   "lumo_sigma_ev", "gap_opt_sigma_ev", "fc_reference_ev", "smiles", "source", "doi",
+                   "from_memory", "notes"]
+#: allowed roles
+ROLES = ("donor", "acceptor")
+#: allowed energy scales (design notes §2)
+SCALES = ("film", "gas")
+
+_SMILES_PREFIX = "smiles:"
+_ID_PREFIX = "id:"
+_SIGMA = ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")
+
+
+class PartnerError(ValueError):
+    """A partner specification that cannot be resolved (message says why and what is allowed)."""
+
+
+@dataclass(frozen=True)
+class Partner:
+    """One partner material: frontier levels, optical gap, scale and role.
+
+    Parameters
+    ----------
+    id : str
+        Identifier written to the ``partner`` column of the ranking (library
+        id, the id of the file/levels row, or ``smiles:<canonical SMILES>``).
+    name : str
+        Human-readable name.
+    role : str
+        ``'donor'``, ``'acceptor'`` or ``''`` (unknown: the ranking then takes
+        the complement of the candidates' role).
+    homo_ev, lumo_ev : float
+        Frontier levels, vacuum scale. [eV]
+    gap_opt_ev : float
+        Optical gap (NaN if unknown). [eV]
+    homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev : float
+        Standard uncertainties; 0 when not given. [eV]
+    scale : str
+        ``'film'`` or ``'gas'`` (design notes §2).
+    source : str
+        Where the numbers come from (citation, file path or protocol).
+    slug : str
+        Path-safe folder name for ``rankings/<slug>/``.
+    kind : str
+        ``'library'``, ``'file'``, ``'smiles'`` or ``'id'``.
+    spec : str
+        The specification as given.
+    smiles : str
+        SMILES if known.
+    doi : str
+        DOI of the source if known.
+    from_memory : bool or None
+        Library entries: the values were recalled rather than read from the
+        source (None when not stated).
+    notes : str
+        Free text (library notes, how a value was obtained).
+    """
+
+    id: str
+    name: str
+    role: str
+    homo_ev: float
+    lumo_ev: float
+    gap_opt_ev: float
+    homo_sigma_ev: float = 0.0
+    lumo_sigma_ev: float = 0.0
+    gap_opt_sigma_ev: float = 0.0
+    scale: str = "film"
+    source: str = ""
+    slug: str = ""
+    kind: str = "library"
+    spec: str = ""
+    smiles: str = ""
+    doi: str = ""
+    from_memory: bool | None = None
+    notes: str = ""
+
+    def as_dict(self) -> dict:
+        """Plain dict (NaN written as None) for JSON sidecars and the report.
+
+        Examples
+        --------
+        >>> p = Partner("x", "X", "acceptor", -6.0, -4.0, float("nan"))
+        >>> p.as_dict()["gap_opt_ev"] is None
+        True
+        """
+        out = dataclasses.asdict(self)
+        for key, value in out.items():
+            if isinstance(value, float) and not math.isfinite(value):
+                out[key] = None
+        return out
+
+
+def complement(role: str) -> str:
+    """The other role of a donor/acceptor pair.
+
+    Examples
+    --------
+    >>> complement("donor"), complement("acceptor")
+    ('acceptor', 'donor')
+    """
+    if role not in ROLES:
+        raise PartnerError(f"role must be 'donor' or 'acceptor', not {role!r}")
+    return "acceptor" if role == "donor" else "donor"
+
+
+# --------------------------------------------------------------------------- library
+
+def _float(value, what: str) -> float:
+    if value is None or (isinstance(value, str) and not value.strip()):
+        return float("nan")
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        raise PartnerError(f"{what}: {value!r} is not a number") from None
+
+
+def _sigma_value(value, what: str) -> float:
+    s = _float(value, what)
+    if math.isnan(s):
+        return 0.0
+    if s < 0 or not math.isfinite(s):
+        raise PartnerError(f"{what}: σ must be finite and >= 0, not {value!r}")
+    return s
+
+
+def _text(value) -> str:
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return ""
+    return str(value).strip()
+
+
+def load_library(path: str | Path | None = None) -> pd.DataFrame:
+    """Read and check the partner library.
+
+    Parameters
+    ----------
+    path : path-like, optional
+        Library CSV (default :data:`LIBRARY_PATH`).
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per partner with :data:`LIBRARY_COLUMNS`; energies as floats
+        [eV], text columns as str.
+
+    Raises
+    ------
+    PartnerError
+        Missing file or column, duplicate id, role or scale outside the
+        allowed values, or a level that is not a number.
+
+    Examples
+    --------
+    >>> lib = load_library()
+    >>> "scharber-reference-acceptor" in set(lib["id"])
+    True
+    """
+    path = Path(path) if path is not None else LIBRARY_PATH
+    if not path.is_file():
+        raise PartnerError(f"partner library {path} is missing")
+    frame = pd.read_csv(path, dtype=str, keep_default_na=False)
+    missing = [c for c in LIBRARY_COLUMNS if c not in frame.columns]
+    if missing:
+        raise PartnerError(f"{path}: the partner library needs columns {LIBRARY_COLUMNS}; missing {missing}")
+    frame["id"] = frame["id"].str.strip()
+    dup = frame["id"][frame["id"].str.lower().duplicated()].tolist()
+    if dup:
+        raise PartnerError(f"{path}: duplicate partner id(s) {dup}")
+    for col in ("role", "scale"):
+        frame[col] = frame[col].str.strip().str.lower()
+    bad_role = frame.loc[~frame["role"].isin(ROLES), "id"].tolist()
+    if bad_role:
+        raise PartnerError(f"{path}: partner(s) {bad_role} have a role other than 'donor' or 'acceptor'")
+    bad_scale = frame.loc[~frame["scale"].isin(SCALES), "id"].tolist()
+    if bad_scale:
+        raise PartnerError(f"{path}: partner(s) {bad_scale} have a scale other than 'film' or 'gas'")
+    for col in ("homo_ev", "lumo_ev", "gap_opt_ev", "fc_reference_ev", *_SIGMA):
+        values = pd.to_numeric(frame[col].replace("", float("nan")), errors="coerce")
+        bad = frame.loc[values.isna() & frame[col].str.strip().ne(""), "id"].tolist()
+        if bad:
+            raise PartnerError(f"{path}: column {col} of partner(s) {bad} is not a number")
+        frame[col] = values
+    return frame
+
+
+def _library_row_partner(row: dict, path: Path) -> Partner:
+    pid = row["id"]
+    for col in ("homo_ev", "lumo_ev"):
+        if not math.isfinite(row[col]):
+            raise PartnerError(f"{path}: partner {pid!r} has no {col}")
+    fm = _text(row.get("from_memory")).lower()
+    return Partner(
+        id=pid, name=_text(row["name"]) or pid, role=row["role"], homo_ev=float(row["homo_ev"]),
+        lumo_ev=float(row["lumo_ev"]), gap_opt_ev=float(row["gap_opt_ev"]),
+        homo_sigma_ev=_sigma_value(row["homo_sigma_ev"], f"{path}: {pid} homo_sigma_ev"),
+        lumo_sigma_ev=_sigma_value(row["lumo_sigma_ev"], f"{path}: {pid} lumo_sigma_ev"),
+        gap_opt_sigma_ev=_sigma_value(row["gap_opt_sigma_ev"], f"{path}: {pid} gap_opt_sigma_ev"),
+        scale=row["scale"], source=_text(row["source"]), slug=pid, kind="library", spec=pid,
+        smiles=_text(row["smiles"]), doi=_text(row["doi"]),
+        from_memory={"true": True, "false": False}.get(fm), notes=_text(row["notes"]),
+    )
+
+
+def library_partners(path: str | Path | None = None) -> dict[str, Partner]:
+    """The library as :class:`Partner` objects by id (file order).
+
+    Examples
+    --------
+    >>> lib = library_partners()
+    >>> lib["scharber-reference-acceptor"].lumo_ev
+    -4.3
+    """
+    path = Path(path) if path is not None else LIBRARY_PATH
+    frame = load_library(path)
+    return {row["id"]: _library_row_partner(row, path) for row in frame.to_dict("records")}
+
+
+def library_table(path: str | Path | None = None, source_width: int = 70) -> pd.DataFrame:
+    """The library as a display table (``dascreen partners``).
+
+    Parameters
+    ----------
+    path : path-like, optional
+        Library CSV (default :data:`LIBRARY_PATH`).
+    source_width : int
+        Sources longer than this are shortened with ``...`` (0: never).
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``id, role, homo_ev, lumo_ev, gap_opt_ev, scale, source``
+        (energies in eV; the source is followed by its DOI when known).
+    """
+    rows = []
+    for p in library_partners(path).values():
+        src = p.source + (f" doi:{p.doi}" if p.doi else "")
+        if source_width and len(src) > source_width:
+            src = src[: source_width - 3] + "..."
+        rows.append({"id": p.id, "role": p.role, "homo_ev": p.homo_ev, "lumo_ev": p.lumo_ev,
+                     "gap_opt_ev": p.gap_opt_ev, "scale": p.scale, "source": src})
+    return pd.DataFrame(rows, columns=["id", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "scale", "source"])
+
+
+# --------------------------------------------------------------------------- specs and slugs
+
+def _library_ids(path: Path | None = None) -> list[str]:
+    try:
+        return list(load_library(path)["id"])
+    except PartnerError:
+        return []
+
+
+def _library_lookup(spec: str, path: Path | None = None) -> str | None:
+    low = spec.strip().lower()
+    for pid in _library_ids(path):
+        if pid.lower() == low:
+            return pid
+    return None
+
+
+def _unknown(spec: str, path: Path | None = None) -> PartnerError:
+    ids = _library_ids(path)
+    return PartnerError(
+        f"unknown partner {spec!r}: not a library id and not an existing file. Library ids: "
+        f"{', '.join(ids) if ids else '(library unreadable)'}. Other forms: a path to a one-row levels CSV "
+        f"(id,homo_ev,lumo_ev,gap_opt_ev,scale[,role]), smiles:<SMILES> or id:<ID of a levels row>"
+    )
+
+
+def partner_kind(spec: str, library_path: str | Path | None = None) -> str:
+    """Which of the four forms a specification is: library, file, smiles or id.
+
+    Parameters
+    ----------
+    spec : str
+        Partner specification.
+    library_path : path-like, optional
+        Library CSV (default :data:`LIBRARY_PATH`).
+
+    Raises
+    ------
+    PartnerError
+        Empty specification, or neither a library id nor an existing file
+        (the message lists the library ids).
+
+    Examples
+    --------
+    >>> partner_kind("c60"), partner_kind("smiles:c1ccccc1"), partner_kind("id:KF-D01")
+    ('library', 'smiles', 'id')
+    """
+    spec = (spec or "").strip()
+    if not spec:
+        raise PartnerError("empty partner specification; " + str(_unknown("", library_path)))
+    if spec.lower().startswith(_SMILES_PREFIX):
+        return "smiles"
+    if spec.lower().startswith(_ID_PREFIX):
+        return "id"
+    lib = Path(library_path) if library_path is not None else None
+    if _library_lookup(spec, lib) is not None:
+        return "library"
+    if Path(spec).expanduser().is_file():
+        return "file"
+    raise _unknown(spec, lib)
+
+
+def _short_hash(text: str, n: int = 10) -> str:
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()[:n]
+
+
+def _safe_stem(text: str, limit: int = 40) -> str:
+    stem = re.sub(r"[^A-Za-z0-9._-]+", "-", text).strip("-._")[:limit].strip("-._")
+    return stem or "partner"
+
+
+def _canonical_key(smiles: str) -> tuple[str, str]:
+    """Canonical SMILES (same round trip as the prepare stage) and structure key."""
+    from rdkit import Chem, rdBase
+
+    from screen.prepare import structure_key
+
+    text = smiles.strip()
+    with rdBase.BlockLogs():
+        mol = Chem.MolFromSmiles(text) if text else None
+        if mol is None:
+            raise PartnerError(f"partner smiles:{text!r} does not parse as SMILES")
+        mol = Chem.RemoveHs(mol)
+        first = Chem.MolToSmiles(mol)
+        again = Chem.MolFromSmiles(first)
+        canonical = Chem.MolToSmiles(again) if again is not None else first
+        charge = Chem.GetFormalCharge(mol)
+        electrons = sum(a.GetAtomicNum() + a.GetTotalNumHs() for a in mol.GetAtoms()) - charge
+    if charge != 0:
+        raise PartnerError(f"partner smiles:{text!r} has net charge {charge:+d}; partners must be neutral")
+    if electrons % 2 or any(a.GetNumRadicalElectrons() for a in mol.GetAtoms()):
+        raise PartnerError(f"partner smiles:{text!r} is open-shell; partners must be closed-shell molecules")
+    return canonical, structure_key(canonical)
+
+
+def partner_slug(spec: str, library_path: str | Path | None = None) -> str:
+    """Path-safe folder name of a partner, without any engine call.
+
+    Parameters
+    ----------
+    spec : str
+        Partner specification (library id, file path, ``smiles:…``, ``id:…``).
+    library_path : path-like, optional
+        Library CSV (default :data:`LIBRARY_PATH`).
+
+    Returns
+    -------
+    str
+        The library id as written in the library; ``smiles-<structure key>``;
+        ``file-<sanitised stem>-<hash of the absolute path>``;
+        ``id-<hash of the id>``.  Only ``[A-Za-z0-9._-]`` characters.
+
+    Raises
+    ------
+    PartnerError
+        As :func:`partner_kind`, or a SMILES that does not parse.
+
+    Examples
+    --------
+    >>> partner_slug("C60")
+    'c60'
+    >>> partner_slug("smiles:c1ccsc1").startswith("smiles-m")
+    True
+    >>> partner_slug("id:KF-D01").startswith("id-")
+    True
+    """
+    kind = partner_kind(spec, library_path)
+    spec = spec.strip()
+    if kind == "library":
+        return _library_lookup(spec, Path(library_path) if library_path is not None else None)
+    if kind == "smiles":
+        return f"smiles-{_canonical_key(spec[len(_SMILES_PREFIX):])[1]}"
+    if kind == "id":
+        return f"id-{_short_hash(spec[len(_ID_PREFIX):])}"
+    path = Path(spec).expanduser().resolve()
+    return f"file-{_safe_stem(path.stem)}-{_short_hash(str(path), 8)}"
+
+
+# --------------------------------------------------------------------------- resolving
+
+def _row_partner(row: dict, *, kind: str, spec: str, slug: str, where: str, source: str) -> Partner:
+    pid = _text(row.get("id"))
+    status = _text(row.get("status")).lower()
+    if status and status != "ok":
+        raise PartnerError(f"{where}: row {pid!r} has status {status!r} ({_text(row.get('error'))}); "
+                           "a partner needs computed levels")
+    vals = {c: _float(row.get(c), f"{where}: {c} of {pid!r}") for c in ("homo_ev", "lumo_ev", "gap_opt_ev")}
+    for c in ("homo_ev", "lumo_ev"):
+        if not math.isfinite(vals[c]):
+            raise PartnerError(f"{where}: row {pid!r} has no {c}; a partner needs HOMO and LUMO")
+    scale = _text(row.get("scale")).lower()
+    if scale not in SCALES:
+        raise PartnerError(f"{where}: row {pid!r} has scale {scale!r}; every partner must declare "
+                           "its scale, 'film' or 'gas'")
+    role = _text(row.get("role")).lower()
+    if role not in ROLES + ("",):
+        raise PartnerError(f"{where}: row {pid!r} has role {role!r}; allowed: donor, acceptor or empty")
+    sig = {c: _sigma_value(row.get(c), f"{where}: {c} of {pid!r}") for c in _SIGMA}
+    return Partner(id=pid, name=_text(row.get("name")) or pid, role=role, **vals, **sig, scale=scale,
+                   source=_text(row.get("source")) or source, slug=slug, kind=kind, spec=spec,
+                   smiles=_text(row.get("smiles")), notes=_text(row.get("notes")))
+
+
+def _from_file(spec: str, slug: str) -> Partner:
+    from screen.levels import read_levels
+
+    path = Path(spec).expanduser().resolve()
+    frame = read_levels(path)
+    if len(frame) != 1:
+        raise PartnerError(f"partner file {path} has {len(frame)} rows; a partner file holds exactly one levels "
+                           "row (columns id, homo_ev, lumo_ev, gap_opt_ev, scale; optional role and σ columns). "
+                           "To use one row of a larger levels file, rank that file with --partner id:<ID>")
+    return _row_partner(frame.iloc[0].to_dict(), kind="file", spec=spec, slug=slug, where=f"partner file {path}",
+                        source=f"file {path}")
+
+
+def _from_levels(spec: str, slug: str, levels) -> Partner:
+    from screen.levels import read_levels
+
+    ident = spec[len(_ID_PREFIX):].strip()
+    if levels is None:
+        raise PartnerError(f"partner {spec!r} names a row of the levels table, but no levels table was given")
+    frame = levels if isinstance(levels, pd.DataFrame) else read_levels(levels)
+    where = "levels table" if isinstance(levels, pd.DataFrame) else f"levels file {levels}"
+    ids = frame["id"].fillna("").astype(str)
+    rows = frame[ids.eq(ident)]
+    if rows.empty:
+        sample = ", ".join(repr(i) for i in ids.head(8))
+        raise PartnerError(f"partner {spec!r}: no row with id {ident!r} in the {where} (ids start {sample})")
+    if len(rows) > 1 and "status" in rows:
+        ok = rows[rows["status"].astype(str).str.lower().eq("ok")]
+        rows = ok if len(ok) else rows.iloc[:1]
+    if len(rows) > 1:
+        cols = [c for c in ("homo_ev", "lumo_ev", "gap_opt_ev", "scale") if c in rows]
+        if len(rows[cols].drop_duplicates()) > 1:
+            raise PartnerError(f"partner {spec!r}: {len(rows)} rows of the {where} have id {ident!r} with "
+                               "different levels; make the ids unique")
+    return _row_partner(rows.iloc[0].to_dict(), kind="id", spec=spec, slug=slug, where=where,
+                        source=f"row {ident!r} of the {where}")
+
+
+def _cache_file(cache_dir: Path, key: str, pid: str) -> Path:
+    return Path(cache_dir) / f"{key}__{pid}.json"
+
+
+def _raw_levels(canonical: str, key: str, cfg: dict, cache_dir) -> dict:
+    """Raw engine values of a partner structure (cached by structure key + protocol id)."""
+    from screen.config import protocol, protocol_id
+    from screen.io import read_json, write_json
+
+    pid = protocol_id(cfg)
+    cache = _cache_file(cache_dir, key, pid) if cache_dir is not None else None
+    if cache is not None and cache.is_file():
+        rec = read_json(cache)
+        if rec.get("protocol_id") == pid and rec.get("key") == key and rec.get("status") == "ok":
+            return rec
+    # only here does anything touch the quantum-chemistry engine
+    from screen.electronic import ElectronicOptions, molecule_numbers_positions, vertical_levels
+    from screen.engines import EngineError
+    from screen.structures import build_structure, options_from_mapping
+
+    try:
+        mol, info = build_structure(canonical, options_from_mapping(cfg["structures"]))
+        numbers, pos = molecule_numbers_positions(mol)
+        raw = vertical_levels(numbers, pos, ElectronicOptions.from_mapping(cfg["electronic"]).make_engine())
+    except (ValueError, EngineError, RuntimeError) as exc:
+        raise PartnerError(f"partner smiles:{canonical}: the calculation failed: {exc}") from exc
+    rec = {"key": key, "smiles": canonical, "protocol_id": pid, "protocol": protocol(cfg), "status": "ok",
+           "n_atoms": int(len(numbers)), **{k: v for k, v in info.items()}, **raw}
+    if cache is not None:
+        write_json(rec, cache)
+    return rec
+
+
+def _from_smiles(spec: str, slug: str, config, cache_dir, models_dir) -> Partner:
+    from screen.calibrate import CalibrationError, apply_models, find_models, load_models
+    from screen.config import protocol_id, resolve
+
+    cfg = resolve(config)
+    canonical, key = _canonical_key(spec[len(_SMILES_PREFIX):])
+    pid = protocol_id(cfg)
+    folder = Path(models_dir) if models_dir else find_models(cfg)
+    if folder is None:
+        raise PartnerError(
+            f"partner {spec!r} is computed like the candidates and needs the calibration models of protocol "
+            f"{pid}; none found in {cfg['calibration']['models']}/{pid}. Run `dascreen calibrate --install "
+            "models` (or the pipeline) first, or pass the models folder")
+    try:
+        models = load_models(folder, cfg)
+    except CalibrationError as exc:
+        raise PartnerError(f"partner {spec!r}: {exc}") from exc
+    rec = _raw_levels(canonical, key, cfg, cache_dir)
+    frame = pd.DataFrame([{"id": canonical, "status": "ok", **{c: rec[c] for c in
+                           ("xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev")}}])
+    scale = cfg["levels"]["scale"]
+    row = apply_models(frame, models, scale=scale).iloc[0].to_dict()
+    return Partner(
+        id=f"smiles:{canonical}", name=canonical, role="",
+        homo_ev=float(row["homo_ev"]), lumo_ev=float(row["lumo_ev"]), gap_opt_ev=float(row["gap_opt_ev"]),
+        homo_sigma_ev=float(row["homo_sigma_ev"]), lumo_sigma_ev=float(row["lumo_sigma_ev"]),
+        gap_opt_sigma_ev=float(row["gap_opt_sigma_ev"]), scale=scale,
+        source=f"computed: protocol {pid}, calibration {folder}", slug=slug, kind="smiles", spec=spec,
+        smiles=canonical, notes=f"structure key {key}; raw xTB IP {rec['xtb_ip_ev']:.3f} eV, "
+                                f"EA {rec['xtb_ea_ev']:.3f} eV",
+    )
+
+
+def resolve_partner(spec: str, *, levels=None, config: dict | None = None, cache_dir=None, models_dir=None,
+                    library_path: str | Path | None = None) -> Partner:
+    """Turn a partner specification into a :class:`Partner`.
+
+    Parameters
+    ----------
+    spec : str
+        Library id (case-insensitive), path to a one-row levels CSV,
+        ``smiles:<SMILES>`` or ``id:<ID>``.  A library id wins over a file of
+        the same name in the working directory; write ``./name`` for the file.
+    levels : pandas.DataFrame or path-like, optional
+        The current levels table (needed for ``id:``).
+    config : dict, optional
+        Run configuration (``smiles:`` uses its structures, electronic,
+        calibration and levels sections; defaults fill the rest).
+    cache_dir : path-like, optional
+        Folder for the ``smiles:`` cache (``<structure key>__<protocol id>.json``
+        with the raw engine values).  None: compute without caching.
+    models_dir : path-like, optional
+        ``models/<protocol-id>`` folder for ``smiles:``; default
+        :func:`screen.calibrate.find_models` of ``config``.  Its fingerprint
+        must match the configuration's protocol.
+    library_path : path-like, optional
+        Library CSV (default :data:`LIBRARY_PATH`).
+
+    Returns
+    -------
+    Partner
+
+    Raises
+    ------
+    PartnerError
+        Unknown name (the message lists the library ids), a file with other
+        than one row, a row without scale or levels, missing calibration
+        models, or a failed calculation.
+
+    Notes
+    -----
+    Only the ``smiles:`` form can run the quantum-chemistry engine, and only
+    when its raw values are not cached; the calibrated levels are recomputed
+    from the cached raw values on every call (cheap), so a refitted
+    calibration takes effect without recomputing the partner.
+
+    References
+    ----------
+    .. [1] C. Bannwarth, S. Ehlert, S. Grimme, J. Chem. Theory Comput. 15
+       (2019) 1652. :doi:`10.1021/acs.jctc.8b01176`
+
+    Examples
+    --------
+    >>> p = resolve_partner("scharber-reference-acceptor")
+    >>> p.role, p.lumo_ev, p.scale
+    ('acceptor', -4.3, 'film')
+    """
+    lib = Path(library_path) if library_path is not None else None
+    kind = partner_kind(spec, lib)
+    slug = partner_slug(spec, lib)
+    spec = spec.strip()
+    if kind == "library":
+        return library_partners(lib)[slug]
+    if kind == "file":
+        return _from_file(spec, slug)
+    if kind == "id":
+        return _from_levels(spec, slug, levels)
+    return _from_smiles(spec, slug, config, cache_dir, models_dir)

@@ -1,0 +1,51 @@
+# Ranking against the configured partner: partner offsets, Scharber device model, filters, report.
+# It reads only levels.csv (+ its sidecar), so a new partner or device setting reruns this rule alone.
+from importlib.util import find_spec
+from pathlib import Path
+
+from screen.partners import partner_kind, partner_slug
+
+PARTNER = CFG["partner"]
+PARTNER_KIND = partner_kind(PARTNER)  # cheap: no quantum chemistry at parse time
+PARTNER_SLUG = partner_slug(PARTNER)
+RANKING_DIR = f"{OUT}/rankings/{PARTNER_SLUG}"
+RANKING = f"{RANKING_DIR}/ranking.csv"
+# report.html is an output only when the report module is installed
+RANK_OUTPUTS = {
+    "ranking": RANKING,
+    "shortlist": f"{RANKING_DIR}/shortlist.sdf",
+    "meta": f"{RANKING_DIR}/ranking.meta.json",
+    **({"report": f"{RANKING_DIR}/report.html"} if find_spec("screen.report") else {}),
+}
+# a file partner is an input too, so editing it reruns the ranking
+RANK_INPUTS = {
+    "levels": LEVELS,
+    "meta": f"{LEVELS}.meta.json",
+    **({"partner": PARTNER} if PARTNER_KIND == "file" else {}),
+}
+# a smiles: partner is computed with the candidates' protocol and calibration
+RANK_SECTIONS = ("partner", "device", "rank") + (
+    ("structures", "electronic", "calibration", "levels") if PARTNER_KIND == "smiles" else ()
+)
+
+
+rule rank:
+    input:
+        **RANK_INPUTS,
+    output:
+        **RANK_OUTPUTS,
+    params:
+        py=PY,
+        cfg=sections(*RANK_SECTIONS),
+        partner=PARTNER,
+        models=MODELS,
+        cache=f"{WORK}/partners",
+        out=lambda wildcards, output: str(Path(output.ranking).parent.parent.parent),
+    log:
+        f"{LOGS}/rank/{PARTNER_SLUG}.log",
+    conda:
+        "../envs/dascreen.yaml"
+    shell:
+        "{params.py} -m screen.stages --config {params.cfg:q} rank --levels {input.levels:q}"
+        " --partner {params.partner:q} --out {params.out:q} --models {params.models:q} --cache {params.cache:q}"
+        " > {log:q} 2>&1"

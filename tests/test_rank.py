@@ -1,0 +1,362 @@
+"""Tests of screen.rank: pairing, offsets, flags, sorting, σ propagation, outputs and the CLI."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+import time
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from screen.device import DeviceModel
+from screen.partners import PartnerError, resolve_partner
+from screen.rank import (
+    EXTRA_COLUMNS,
+    RANKING_COLUMNS,
+    RankOptions,
+    ScaleMismatchError,
+    rank_candidates,
+    run_rank,
+)
+
+REF = "scharber-reference-acceptor"
+#: the ranking.csv contract of shared/design.md §3, written out independently of the module
+CONTRACT = ["rank", "id", "smiles", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "partner", "delta_lumo_ev",
+            "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "pce_sigma_pct", "p_above_target", "passes",
+            "flags"]
+
+
+def _levels(rows, **common):
+    frame = pd.DataFrame(rows)
+    for key, value in {"scale": "film", **common}.items():
+        if key not in frame:
+            frame[key] = value
+    return frame
+
+
+def _flags(ranking, ident):
+    return set(filter(None, ranking.set_index("id").loc[ident, "flags"].split(";")))
+
+
+@pytest.fixture(scope="module")
+def partner():
+    return resolve_partner(REF)
+
+
+# --------------------------------------------------------------------------- physics through the ranking path
+
+def test_scharber_worked_case(partner):
+    # Scharber et al., Adv. Mater. 18 (2006) 789, doi:10.1002/adma.200501717: a donor with
+    # HOMO -5.4 eV and a 1.5 eV gap (LUMO -3.9 eV) on the -4.3 eV acceptor gives Voc = 0.8 V
+    # (the published rule, exact arithmetic) and close to 10 % efficiency on the paper's map
+    # (# from memory); the ASTM G173-03 integral of screen.device gives 9.79 %.
+    lv = _levels([{"id": "scharber-donor", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "role": "donor"}])
+    r = rank_candidates(lv, partner, DeviceModel(), RankOptions())
+    row = r.iloc[0]
+    assert row["voc_v"] == pytest.approx(0.80, abs=1e-9)
+    assert row["pce_pct"] == pytest.approx(9.8, abs=0.05)
+    assert row["delta_lumo_ev"] == pytest.approx(0.4) and row["delta_homo_ev"] == pytest.approx(0.7)
+    assert row["ff"] == 0.65 and bool(row["passes"]) and row["flags"] == ""
+    assert row["partner"] == REF
+
+
+def test_sub_threshold_lumo_offset_is_flagged_and_fails(partner):
+    lv = _levels([
+        {"id": "low", "homo_ev": -5.3, "lumo_ev": -4.1, "gap_opt_ev": 1.2, "role": "donor"},   # ΔLUMO 0.2
+        {"id": "edge", "homo_ev": -5.3, "lumo_ev": -4.0, "gap_opt_ev": 1.3, "role": "donor"},  # ΔLUMO 0.3 (fp)
+    ])
+    r = rank_candidates(lv, partner)
+    by = r.set_index("id")
+    assert by.loc["low", "delta_lumo_ev"] == pytest.approx(0.2)
+    assert _flags(r, "low") == {"lumo_offset_low"} and not by.loc["low", "passes"]
+    assert _flags(r, "edge") == set() and by.loc["edge", "passes"]
+    assert list(r["id"]) == ["edge", "low"]  # failing rows after passing ones, whatever their PCE
+    assert by.loc["low", "pce_pct"] > by.loc["edge", "pce_pct"]
+
+
+def test_acceptor_candidates_against_a_donor_partner():
+    donor = resolve_partner("pm6")
+    lv = _levels([{"id": "nfa", "homo_ev": -5.7, "lumo_ev": -4.05, "gap_opt_ev": 1.4, "role": "acceptor"}])
+    r = rank_candidates(lv, donor, DeviceModel(absorber="both"))
+    row = r.iloc[0]
+    # sign convention: Δ = donor − acceptor, here the donor is the partner
+    assert row["delta_lumo_ev"] == pytest.approx(donor.lumo_ev - (-4.05))
+    assert row["delta_homo_ev"] == pytest.approx(donor.homo_ev - (-5.7))
+    assert row["voc_v"] == pytest.approx(-4.05 - donor.homo_ev - 0.3)
+    assert row["role"] == "acceptor"
+
+
+def test_scale_mismatch_is_refused_naming_both_scales():
+    c60 = resolve_partner("c60")
+    lv = _levels([{"id": "g", "homo_ev": -7.0, "lumo_ev": -1.5, "gap_opt_ev": 3.0}], scale="gas")
+    with pytest.raises(ScaleMismatchError) as err:
+        rank_candidates(lv, c60)
+    msg = str(err.value)
+    assert "levels are on the 'gas' scale but partner 'c60' is on the 'film' scale" in msg
+    assert "levels.scale=film" in msg
+    mixed = pd.concat([lv, _levels([{"id": "f", "homo_ev": -5.5, "lumo_ev": -3.5, "gap_opt_ev": 2.0}])])
+    with pytest.raises(ScaleMismatchError, match="'gas' scale \\(1 rows\\)"):
+        rank_candidates(mixed, c60)
+
+
+def test_rows_not_ok_are_not_ranked(partner):
+    lv = _levels([
+        {"id": "a", "status": "ok", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "scale": "film"},
+        {"id": "b", "status": "rejected", "homo_ev": np.nan, "lumo_ev": np.nan, "gap_opt_ev": np.nan, "scale": ""},
+        {"id": "c", "status": "failed", "homo_ev": np.nan, "lumo_ev": np.nan, "gap_opt_ev": np.nan, "scale": ""},
+    ])
+    r = rank_candidates(lv, partner)
+    assert list(r["id"]) == ["a"]
+    assert r.attrs["not_ranked"] == {"rejected": 1, "failed": 1}
+
+
+# --------------------------------------------------------------------------- contract, sorting, flags
+
+def test_columns_exactly_per_contract(partner):
+    assert RANKING_COLUMNS == CONTRACT
+    lv = _levels([{"id": "a", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5}])
+    r = rank_candidates(lv, partner)
+    assert list(r.columns) == CONTRACT + EXTRA_COLUMNS
+    assert r["rank"].tolist() == [1]
+    empty = rank_candidates(lv.assign(status="failed"), partner)
+    assert list(empty.columns) == CONTRACT + EXTRA_COLUMNS and len(empty) == 0
+
+
+def test_sorting_passing_first_then_key_then_id(partner):
+    rows = [
+        {"id": "b-fail", "homo_ev": -5.2, "lumo_ev": -4.2, "gap_opt_ev": 1.0},   # ΔLUMO 0.1, high PCE
+        {"id": "z", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5},
+        {"id": "a", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5},        # tie with z -> by id
+        {"id": "best", "homo_ev": -5.5, "lumo_ev": -3.95, "gap_opt_ev": 1.55},
+        {"id": "worse", "homo_ev": -5.6, "lumo_ev": -3.5, "gap_opt_ev": 2.1},
+        {"id": "missing", "homo_ev": np.nan, "lumo_ev": -3.5, "gap_opt_ev": 2.0},
+    ]
+    r = rank_candidates(_levels(rows, role="donor"), partner)
+    assert r["rank"].tolist() == list(range(1, 7))
+    passing = r[r["passes"]]
+    assert passing["pce_pct"].is_monotonic_decreasing
+    assert list(r["id"]) == ["best", "a", "z", "worse", "b-fail", "missing"]
+    assert _flags(r, "missing") == {"input_missing"} and np.isnan(r.set_index("id").loc["missing", "pce_pct"])
+
+
+def test_sort_by_probability(partner):
+    rows = [{"id": "sure", "homo_ev": -5.6, "lumo_ev": -3.9, "gap_opt_ev": 1.7, "homo_sigma_ev": 0.0},
+            {"id": "gamble", "homo_ev": -5.45, "lumo_ev": -3.9, "gap_opt_ev": 1.55, "homo_sigma_ev": 0.3}]
+    lv = _levels(rows, role="donor")
+    opts = RankOptions(sort_by="p_above_target", target_pce_pct=9.0, partner_sigma=False)
+    r = rank_candidates(lv, partner, options=opts)
+    assert r["p_above_target"].is_monotonic_decreasing
+    assert r.set_index("id").loc["sure", "p_above_target"] == 1.0
+
+
+def test_same_role_as_partner_is_flagged(partner):
+    lv = _levels([{"id": "acc", "homo_ev": -5.9, "lumo_ev": -4.0, "gap_opt_ev": 1.8, "role": "acceptor"},
+                  {"id": "don", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "role": "Donor"}])
+    r = rank_candidates(lv, partner)
+    by = r.set_index("id")
+    assert _flags(r, "acc") == {"same_role_as_partner"} and not by.loc["acc", "passes"]
+    assert np.isnan(by.loc["acc", "pce_pct"])  # no pair, no device numbers
+    assert by.loc["don", "role"] == "donor" and by.loc["don", "passes"]
+
+
+def test_role_assumed_and_default_role(partner):
+    lv = _levels([{"id": "x", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "role": ""}])
+    r = rank_candidates(lv, partner)
+    assert r.loc[0, "role"] == "donor" and _flags(r, "x") == {"role_assumed"} and r.loc[0, "passes"]
+    r = rank_candidates(lv, partner, options=RankOptions(role="donor"))
+    assert r.loc[0, "flags"] == ""
+    r = rank_candidates(lv.drop(columns="role"), partner, options=RankOptions(role="acceptor"))
+    assert _flags(r, "x") == {"same_role_as_partner"}
+    r = rank_candidates(lv.assign(role="dye"), partner)
+    assert _flags(r, "x") == {"role_invalid", "role_assumed"} and not r.loc[0, "passes"]
+
+
+def test_sigma_zero_gives_probability_zero_or_one(partner):
+    gaps = np.linspace(1.1, 2.2, 12)
+    lv = _levels({"id": [f"c{i:02d}" for i in range(12)], "homo_ev": -3.9 - gaps, "lumo_ev": -3.9,
+                  "gap_opt_ev": gaps})
+    r = rank_candidates(lv, partner, options=RankOptions(partner_sigma=False, target_pce_pct=9.0))
+    assert set(r["p_above_target"]) <= {0.0, 1.0}
+    assert (r["pce_sigma_pct"] == 0).all()
+    assert ((r["pce_pct"] > 9.0) == (r["p_above_target"] == 1.0)).all()
+    # with σ (the partner's, from the library) the probabilities are no longer all 0 or 1
+    r = rank_candidates(lv, partner, options=RankOptions(target_pce_pct=9.0))
+    assert ((r["p_above_target"] > 0) & (r["p_above_target"] < 1)).any() and (r["pce_sigma_pct"] > 0).all()
+
+
+def test_gap_window_and_heavy_atom_filters(partner):
+    lv = _levels([
+        {"id": "wide", "smiles": "c1ccccc1", "homo_ev": -6.0, "lumo_ev": -2.5, "gap_opt_ev": 3.5},
+        {"id": "big", "smiles": "c1ccc2cc3ccccc3cc2c1", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5},
+        {"id": "nosmiles", "smiles": "", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5},
+    ], role="donor")
+    r = rank_candidates(lv, partner, options=RankOptions(max_heavy_atoms=10))
+    assert _flags(r, "wide") == {"gap_out_of_window"}
+    assert _flags(r, "big") == {"too_many_heavy_atoms"}
+    assert _flags(r, "nosmiles") == {"heavy_atoms_unknown"} and r.set_index("id").loc["nosmiles", "passes"]
+    lv["heavy_atoms"] = [6, 14, 5]
+    r = rank_candidates(lv, partner, options=RankOptions(max_heavy_atoms=10))
+    assert _flags(r, "nosmiles") == set()
+
+
+def test_partner_without_role_takes_the_complement(tmp_path):
+    path = tmp_path / "acc.csv"
+    pd.DataFrame([{"id": "mine", "homo_ev": -6.0, "lumo_ev": -4.3, "gap_opt_ev": 1.7, "scale": "film"}]
+                 ).to_csv(path, index=False)
+    p = resolve_partner(str(path))
+    lv = _levels([{"id": "d", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "role": "donor"}])
+    r = rank_candidates(lv, p)
+    assert r.attrs["partner_role"] == "acceptor" and r.attrs["partner_role_assumed"]
+    assert r.loc[0, "voc_v"] == pytest.approx(0.8)
+    with pytest.raises(PartnerError, match="no role"):
+        rank_candidates(lv.drop(columns="role"), p)
+
+
+def test_ten_thousand_rows_are_fast(partner):
+    rng = np.random.default_rng(7)  # synthetic levels, for timing only
+    n = 10_000
+    homo = rng.uniform(-5.9, -4.9, n)
+    gap = rng.uniform(1.1, 2.6, n)
+    lv = _levels({"id": [f"s{i:05d}" for i in range(n)], "homo_ev": homo, "lumo_ev": homo + gap + 0.1,
+                  "gap_opt_ev": gap, "homo_sigma_ev": 0.15, "lumo_sigma_ev": 0.2, "gap_opt_sigma_ev": 0.1})
+    rank_candidates(lv.head(10), partner)  # spectrum loaded once, outside the timing
+    best = np.inf
+    for _ in range(2):
+        t = time.perf_counter()
+        r = rank_candidates(lv, partner)
+        best = min(best, time.perf_counter() - t)
+    assert len(r) == n and r["pce_sigma_pct"].notna().all()
+    assert best < 2.0, f"ranking 10 000 rows took {best:.2f} s"
+
+
+# --------------------------------------------------------------------------- run_rank and outputs
+
+@pytest.fixture()
+def cv_file(tmp_path):
+    """A user's own levels file (e.g. cyclic voltammetry): only the minimum columns."""
+    path = tmp_path / "my_cv.csv"
+    path.write_text(
+        "id,smiles,homo_ev,lumo_ev,gap_opt_ev,scale\n"
+        "KF-D01,Cc1ccc(s1)-c1ccc(-c2ccc(C)s2)c2nsnc12,-5.40,-3.90,1.50,film\n"
+        "\"two\nlines $$$$\",c1ccc(-c2cccs2)s1,-5.55,-3.60,1.95,film\n"
+        "low-offset,c1ccsc1,-5.20,-4.15,1.05,film\n", encoding="utf-8")
+    return path
+
+
+def test_run_rank_writes_ranking_shortlist_and_meta(cv_file, tmp_path):
+    from rdkit import Chem
+
+    out = tmp_path / "out"
+    cfg = {"rank": {"role": "donor", "shortlist_size": 5}}
+    path = run_rank(cv_file, REF, out, cfg, report=False)
+    assert path == out / "rankings" / REF / "ranking.csv"
+    table = pd.read_csv(path, dtype={"id": str})
+    assert list(table.columns[:18]) == CONTRACT
+    assert table.loc[0, "id"] == "KF-D01" and table.loc[0, "voc_v"] == pytest.approx(0.8)
+    assert table.loc[0, "pce_pct"] == pytest.approx(9.8, abs=0.05)
+    assert table["rank"].tolist() == [1, 2, 3]
+    assert table.set_index("id").loc["low-offset", "flags"] == "lumo_offset_low"
+
+    mols = [m for m in Chem.SDMolSupplier(str(path.parent / "shortlist.sdf"))]
+    assert len(mols) == 2 and all(m is not None for m in mols)  # only the passing rows
+    assert mols[0].GetProp("_Name") == "KF-D01" and float(mols[0].GetProp("pce_pct")) == pytest.approx(9.79, abs=0.01)
+    assert mols[1].GetProp("_Name") == "two lines $ $ $ $"
+    for prop in ("homo_ev", "lumo_ev", "delta_lumo_ev", "voc_v", "jsc_ma_cm2", "pce_sigma_pct", "flags"):
+        assert mols[0].HasProp(prop)
+
+    meta = json.loads((path.parent / "ranking.meta.json").read_text())
+    assert meta["partner"]["id"] == REF and meta["device"]["eqe"] == 0.65
+    assert meta["counts"]["ranked"] == 3 and meta["counts"]["passing"] == 2 and meta["counts"]["shortlist"] == 2
+    assert meta["rank"]["shortlist_size"] == 5 and meta["filters"]["min_delta_lumo_ev"] == 0.3
+    assert meta["levels"]["path"] == str(cv_file.resolve()) and meta["levels_meta"] is None
+
+
+def test_run_rank_records_levels_provenance(cv_file, tmp_path):
+    (tmp_path / "my_cv.csv.meta.json").write_text(json.dumps({"protocol_id": "tblite-gfn2-ff-x", "scale": "film"}))
+    path = run_rank(cv_file, "c60", tmp_path / "o", {}, report=False)
+    meta = json.loads((path.parent / "ranking.meta.json").read_text())
+    assert meta["levels_meta"]["protocol_id"] == "tblite-gfn2-ff-x"
+
+
+def test_id_partner_and_file_partner_through_run_rank(tmp_path):
+    lv = tmp_path / "levels.csv"
+    _levels([{"id": "D1", "role": "donor", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5},
+             {"id": "D2", "role": "donor", "homo_ev": -5.3, "lumo_ev": -3.7, "gap_opt_ev": 1.6},
+             {"id": "A1", "role": "acceptor", "homo_ev": -6.0, "lumo_ev": -4.3, "gap_opt_ev": 1.7}]
+            ).to_csv(lv, index=False)
+    path = run_rank(lv, "id:A1", tmp_path, {}, report=False)
+    table = pd.read_csv(path).set_index("id")
+    assert path.parent.name.startswith("id-")
+    assert table.loc["D1", "voc_v"] == pytest.approx(0.8) and table.loc["D1", "partner"] == "A1"
+    assert "same_role_as_partner" in table.loc["A1", "flags"]
+    assert "is_partner" in table.loc["A1", "flags"]
+
+    one = tmp_path / "acceptor.csv"
+    pd.read_csv(lv).iloc[[2]].to_csv(one, index=False)
+    path = run_rank(lv, str(one), tmp_path, {}, report=False)
+    assert path.parent.name.startswith("file-acceptor-")
+    assert pd.read_csv(path).set_index("id").loc["D1", "voc_v"] == pytest.approx(0.8)
+    two = tmp_path / "two.csv"
+    pd.read_csv(lv).iloc[[1, 2]].to_csv(two, index=False)
+    with pytest.raises(PartnerError, match="2 rows"):
+        run_rank(lv, str(two), tmp_path, {}, report=False)
+
+
+def test_run_rank_makes_no_engine_call(cv_file, tmp_path, monkeypatch):
+    from screen import engines
+
+    def forbidden(self, *a, **k):
+        raise AssertionError("re-ranking called the xTB engine")
+
+    monkeypatch.setattr(engines.Engine, "singlepoint", forbidden)
+    run_rank(cv_file, "itic", tmp_path, {"rank": {"role": "donor"}}, report=False)
+
+
+def test_cli_rank_does_not_import_the_engine(cv_file, tmp_path):
+    out = tmp_path / "cli"
+    code = (
+        "import sys\n"
+        "from screen.cli import main\n"
+        f"rc = main(['rank', '--partner', '{REF}', '--levels', {str(cv_file)!r}, '--out', {str(out)!r},"
+        " '--role', 'donor', '--target-pce', '9', '--set', 'rank.shortlist_size=1'])\n"
+        "assert rc == 0, rc\n"
+        # screen.levels imports screen.electronic for its column names; the engine libraries stay unloaded
+        "bad = [m for m in sys.modules if m.split('.')[0] in ('tblite', 'xtb')]\n"
+        "assert not bad, bad\n"
+    )
+    res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300)
+    assert res.returncode == 0, res.stdout + res.stderr
+    assert str(out / "rankings" / REF / "ranking.csv") in res.stdout
+    assert "KF-D01" in res.stdout
+    meta = json.loads((out / "rankings" / REF / "ranking.meta.json").read_text())
+    assert meta["rank"]["target_pce_pct"] == 9.0 and meta["rank"]["shortlist_size"] == 1
+
+
+def test_cli_rank_reports_scale_mismatch(cv_file, tmp_path):
+    gas = tmp_path / "gas.csv"
+    pd.read_csv(cv_file).assign(scale="gas").to_csv(gas, index=False)
+    res = subprocess.run([sys.executable, "-m", "screen.cli", "rank", "--partner", "c60", "--levels", str(gas),
+                          "--out", str(tmp_path)], capture_output=True, text=True, timeout=300)
+    assert res.returncode == 2
+    assert "'gas' scale but partner 'c60' is on the 'film' scale" in res.stderr
+
+
+def test_cli_partners_lists_the_library():
+    res = subprocess.run([sys.executable, "-m", "screen.cli", "partners"], capture_output=True, text=True,
+                         timeout=300)
+    assert res.returncode == 0, res.stderr
+    for word in ("id", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "scale", "source", REF):
+        assert word in res.stdout
+
+
+def test_report_is_written_when_the_module_exists(cv_file, tmp_path):
+    pytest.importorskip("screen.report", reason="screen.report is written separately")
+    import screen.report as report
+
+    if not hasattr(report, "write_report"):
+        pytest.skip("screen.report has no write_report yet")
+    path = run_rank(cv_file, REF, tmp_path, {"rank": {"role": "donor"}})
+    assert (path.parent / "report.html").is_file()
