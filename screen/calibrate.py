@@ -22,6 +22,8 @@ calibration and fit only these two shifts on the film reference set:
 
 .. math:: E_{HOMO}^{film} = -(IP_{gas} - P_+), \\qquad E_{LUMO}^{film} = -(EA_{gas} + P_-)
 
+The optical gap gets the same treatment (gas/solution S1 model plus one
+film shift), since the Scharber model needs the film absorption onset.
 One parameter per level is what a small, heterogeneous film set (different
 ferrocene conventions, oligomer stand-ins for polymers) can support; its LOO
 scatter is the σ of film levels. Electrochemical values are first brought to
@@ -368,15 +370,23 @@ def _normalised_film(film: pd.DataFrame) -> pd.DataFrame:
     return film
 
 
-def fit_film(film: pd.DataFrame, computed: pd.DataFrame, ip_model: dict, ea_model: dict) -> dict[str, dict]:
-    """Fit the film shifts P₊ (HOMO) and P₋ (LUMO) on top of the gas models."""
+def fit_film(film: pd.DataFrame, computed: pd.DataFrame, ip_model: dict, ea_model: dict,
+             gap_model: dict) -> dict[str, dict]:
+    """Fit the film shifts on top of the gas models: P₊ (HOMO), P₋ (LUMO) and the optical-gap shift.
+
+    The optical-gap shift collects what separates a film absorption onset from
+    the gas/solution S1 energies of the gas set: solid-state red shift, onset
+    versus 0–0, and longer effective conjugation in real films.
+    """
     film = film[film["exclude_reason"].str.strip().eq("")]
     data = _joined(_normalised_film(film), computed)
+    data["gap_opt_ev"] = pd.to_numeric(data.get("gap_opt_ev"), errors="coerce")
     out = {}
-    for level, gas_prop, model_d in (("homo", "ip", ip_model), ("lumo", "ea", ea_model)):
+    for level, gas_prop, model_d, sign in (("homo", "ip", ip_model, -1.0), ("lumo", "ea", ea_model, -1.0),
+                                           ("gap_opt", "gap_opt", gap_model, 1.0)):
         rows = data.dropna(subset=[f"{level}_ev"])
         model = LinearLevelModel.from_dict(model_d["model"])
-        gas_level = -model.predict(_features(rows, model.features))
+        gas_level = sign * model.predict(_features(rows, model.features))
         measured = rows[f"{level}_ev"].to_numpy(float)
         shift = FilmShift(level).fit(gas_level, measured)
         n = len(measured)
@@ -396,7 +406,7 @@ def fit_film(film: pd.DataFrame, computed: pd.DataFrame, ip_model: dict, ea_mode
 def fit_all(sets: dict[str, pd.DataFrame], computed: pd.DataFrame, exclude=None) -> dict[str, dict]:
     """Fit every model (``ip``, ``ea``, ``gap_opt``, ``homo_film``, ``lumo_film``)."""
     models = {prop: fit_property(prop, sets[prop], computed, exclude) for prop in PROPERTIES}
-    models.update(fit_film(sets["film"], computed, models["ip"], models["ea"]))
+    models.update(fit_film(sets["film"], computed, models["ip"], models["ea"], models["gap_opt"]))
     return models
 
 
@@ -410,7 +420,7 @@ def save_models(models: dict[str, dict], out_dir: str | Path, fp: dict) -> Path:
 
 # --------------------------------------------------------------------------- using models
 
-MODEL_NAMES = ("ip", "ea", "gap_opt", "homo_film", "lumo_film")
+MODEL_NAMES = ("ip", "ea", "gap_opt", "homo_film", "lumo_film", "gap_opt_film")
 
 
 def _compare(found: dict, expected: dict) -> list[str]:
@@ -481,7 +491,7 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "fi
     models : dict
         From :func:`load_models`.
     scale : {"film", "gas"}
-        Scale of ``homo_ev``/``lumo_ev``; ``ip_ev``/``ea_ev`` are always gas.
+        Scale of ``homo_ev``/``lumo_ev``/``gap_opt_ev``; ``ip_ev``/``ea_ev``/``gap_fund_ev`` are always gas.
 
     Returns
     -------
@@ -500,9 +510,10 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "fi
         pred[prop] = m.predict(_features(sub, m.features), return_std=True)
     (ip, ip_s), (ea, ea_s), (gap, gap_s) = pred["ip"], pred["ea"], pred["gap_opt"]
     if scale == "film":
-        h, l_ = models["homo_film"], models["lumo_film"]
+        h, l_, g = models["homo_film"], models["lumo_film"], models["gap_opt_film"]
         homo, homo_s = -ip + h["shift_ev"], np.hypot(ip_s, h["sigma_ev"])
         lumo, lumo_s = -ea + l_["shift_ev"], np.hypot(ea_s, l_["sigma_ev"])
+        gap, gap_s = gap + g["shift_ev"], np.hypot(gap_s, g["sigma_ev"])
     else:
         homo, homo_s, lumo, lumo_s = -ip, ip_s, -ea, ea_s
     values = {"ip_ev": ip, "ea_ev": ea, "gap_fund_ev": ip - ea, "homo_ev": homo, "lumo_ev": lumo,

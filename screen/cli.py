@@ -105,11 +105,24 @@ def data_path(path: str | Path) -> Path:
 def _snakemake(cfg: dict, out: Path, cores: int, targets: list[str], extra: list[str] | None = None,
                dry_run: bool = False, profile: str | None = None) -> int:
     """Write the resolved config into ``out`` and run the packaged workflow on it."""
+    import fcntl
+
     out.mkdir(parents=True, exist_ok=True)
+    # our own lock: flock is released by the kernel even when a run is killed with SIGKILL, so holding
+    # it proves that any Snakemake lock left in the folder is stale
+    lock = open(out / ".dascreen.lock", "w")  # noqa: SIM115 - held for the whole run
+    try:
+        fcntl.flock(lock, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except BlockingIOError:
+        raise ConfigError(f"another dascreen run is using {out}; wait for it or choose another --out") from None
     cfg_file = out / "config.yaml"
     cfg_file.write_text(yaml.safe_dump(cfg, sort_keys=False), encoding="utf-8")
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(WORKFLOW), "--directory", str(out),
            "--configfile", str(cfg_file), "--cores", str(cores), "--rerun-incomplete", "--show-failed-logs"]
+    locks = out / ".snakemake" / "locks"
+    if locks.is_dir() and any(locks.iterdir()):
+        subprocess.call(cmd + ["--unlock"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        print("dascreen: removed the lock left by an interrupted run; resuming", flush=True)
     if dry_run:
         cmd.append("--dry-run")
     if profile:

@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import time
 from dataclasses import asdict, dataclass
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -33,9 +34,10 @@ from rdkit import Chem
 
 from screen.constants import BOHR_ANGSTROM, HARTREE_EV
 from screen.engines import Engine, EngineError, make_engine
-from screen.io import Journal, write_csv
+from screen.io import Journal, Progress, write_csv
+from screen.isolation import IsolatedWorker
 from screen.structures import STATUS_COLUMNS as STRUCTURE_COLUMNS
-from screen.structures import read_structures
+from screen.structures import _plain, read_structures
 
 __all__ = ["ElectronicOptions", "vertical_levels", "run_electronic", "ELECTRONIC_COLUMNS", "RAW_COLUMNS"]
 
@@ -140,8 +142,22 @@ def vertical_levels(numbers, positions_bohr, engine: Engine) -> dict:
     }
 
 
+_ENGINE_CACHE: dict[tuple, Engine] = {}
+
+
+def _electronic_job(numbers, positions_bohr, options: dict) -> dict:
+    """Worker-process entry: raw levels of one geometry."""
+    opts = ElectronicOptions(**options)
+    key = tuple(sorted(options.items()))
+    engine = _ENGINE_CACHE.get(key)
+    if engine is None:
+        engine = _ENGINE_CACHE[key] = opts.make_engine()
+    return vertical_levels(numbers, positions_bohr, engine)
+
+
 def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicOptions = ElectronicOptions(),
-                   journal_path=None, engine: Engine | None = None) -> pd.DataFrame:
+                   journal_path=None, engine: Engine | None = None, isolate: bool = True,
+                   timeout_s: float | None = None, progress: Progress | None = None) -> pd.DataFrame:
     """Electronic stage for one shard: structures → raw levels table.
 
     Every key of the structures table gets one row: molecules whose structure
@@ -158,7 +174,13 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
     journal_path : path-like, optional
         Default ``out_csv`` + ``.journal.jsonl``.
     engine : Engine, optional
-        Overrides the engine built from ``options`` (tests).
+        Overrides the engine built from ``options``; molecules then run in this process.
+    isolate : bool
+        Run each molecule in a child process so a native crash fails one molecule only.
+    timeout_s : float, optional
+        Per-molecule time limit [s] (isolated runs only).
+    progress : Progress, optional
+        Progress reporter (default: lines on standard output).
 
     Returns
     -------
@@ -168,26 +190,38 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
     mols = read_structures(structures_sdf)
     journal = Journal(journal_path or f"{out_csv}.journal.jsonl")
     done = journal.load()
-    engine = engine or options.make_engine()
+    progress = progress or Progress(f"electronic {Path(out_csv).stem}")
     carried = [c for c in STRUCTURE_COLUMNS if c in ELECTRONIC_COLUMNS and c not in ("key", "status", "error")]
-    for row in status.to_dict("records"):
-        key = row["key"]
-        if key in done:
-            continue
-        rec = {"key": key, **{c: row.get(c, "") for c in carried}, "structure_wall_s": row.get("wall_s", "")}
-        if row["status"] != "ok":
-            rec.update(status="failed", error=row["error"])
-        elif key not in mols:
-            rec.update(status="failed", error="structure: geometry missing from the structures file")
-        else:
-            numbers, pos = molecule_numbers_positions(mols[key])
-            start = time.perf_counter()
-            try:
-                rec.update(vertical_levels(numbers, pos, engine), status="ok", error="", n_atoms=len(numbers))
-            except EngineError as exc:
-                rec.update(status="failed", error=f"electronic: {exc}", sp_wall_s=time.perf_counter() - start)
-        journal.append(rec)
-        done[key] = rec
+    if engine is not None or not isolate:
+        engine = engine or options.make_engine()
+        call = lambda z, pos: vertical_levels(z, pos, engine)  # noqa: E731
+        worker = None
+    else:
+        worker = IsolatedWorker(_electronic_job, timeout_s=timeout_s)
+        call = lambda z, pos: worker(z, pos, asdict(options))  # noqa: E731
+    todo = [row for row in status.to_dict("records") if row["key"] not in done]
+    try:
+        for i, row in enumerate(todo, 1):
+            key = row["key"]
+            rec = {"key": key, **{c: row.get(c, "") for c in carried}, "structure_wall_s": row.get("wall_s", "")}
+            if row["status"] != "ok":
+                rec.update(status="failed", error=row["error"])
+            elif key not in mols:
+                rec.update(status="failed", error="structure: geometry missing from the structures file")
+            else:
+                numbers, pos = molecule_numbers_positions(mols[key])
+                start = time.perf_counter()
+                try:
+                    rec.update(call(numbers, pos), status="ok", error="", n_atoms=len(numbers))
+                except (EngineError, RuntimeError) as exc:
+                    rec.update(status="failed", error=f"electronic: {_plain(exc)}",
+                               sp_wall_s=time.perf_counter() - start)
+            journal.append(rec)
+            done[key] = rec
+            progress.report(i, len(todo), key)
+    finally:
+        if worker is not None:
+            worker.close()
     table = pd.DataFrame([{c: done[k].get(c, "") for c in ELECTRONIC_COLUMNS} for k in status["key"]],
                          columns=ELECTRONIC_COLUMNS)
     write_csv(table, out_csv)

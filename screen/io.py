@@ -16,13 +16,15 @@ from __future__ import annotations
 import contextlib
 import json
 import os
+import sys
 import tempfile
+import time
 from collections.abc import Iterator
 from pathlib import Path
 
 import pandas as pd
 
-__all__ = ["atomic_path", "write_csv", "write_json", "read_json", "Journal"]
+__all__ = ["atomic_path", "write_csv", "write_json", "read_json", "Journal", "Progress"]
 
 
 @contextlib.contextmanager
@@ -145,3 +147,39 @@ def _json_default(obj):
     except ImportError:  # pragma: no cover
         pass
     raise TypeError(f"not JSON serialisable: {type(obj).__name__}")
+
+
+class Progress:
+    """Progress lines for a long per-molecule loop: count, rate and ETA.
+
+    Lines go to ``stream`` (the job's log under Snakemake) at most every
+    ``every_s`` seconds, and always for the last item.
+
+    Examples
+    --------
+    >>> import io
+    >>> buf = io.StringIO()
+    >>> p = Progress("electronic shard-000", stream=buf, every_s=0)
+    >>> p.report(1, 2, "m1"); p.report(2, 2, "m2")
+    >>> buf.getvalue().splitlines()[-1].startswith("electronic shard-000: 2/2 molecules (100%)")
+    True
+    """
+
+    def __init__(self, label: str, stream=None, every_s: float = 10.0):
+        self.label = label
+        self.stream = stream or sys.stdout
+        self.every_s = every_s
+        self.start = time.monotonic()
+        self._last = -float("inf")
+
+    def report(self, done: int, total: int, key: str = "") -> None:
+        now = time.monotonic()
+        if done < total and now - self._last < self.every_s:
+            return
+        self._last = now
+        elapsed = now - self.start
+        rate = elapsed / done if done else float("nan")
+        eta = rate * (total - done)
+        pct = 100.0 * done / total if total else 100.0
+        print(f"{self.label}: {done}/{total} molecules ({pct:.0f}%), {rate:.2f} s/molecule, "
+              f"ETA {eta:.0f} s{' (last ' + key + ')' if key else ''}", file=self.stream, flush=True)

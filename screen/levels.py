@@ -110,5 +110,5 @@ def read_levels(path) -> pd.DataFrame:
         raise ValueError(f"{path}: a levels file needs columns {LEVELS_MIN_COLUMNS}; missing {missing}; "
                          f"found {list(frame.columns)}")
     frame["id"] = frame["id"].fillna("").astype(str)
-    frame["scale"] = frame["scale"].fillna("").astype(str)
+    frame["scale"] = frame["scale"].astype(object).where(frame["scale"].notna(), "").astype(str)
     return frame

@@ -1123,9 +1123,10 @@ _GEOMETRY_WORDS = {
 _CALIBRATION_LABELS = {
     "ip": "ionisation energy (gas)",
     "ea": "electron affinity (gas)",
-    "gap_opt": "optical gap",
+    "gap_opt": "optical gap (gas/solution)",
     "homo_film": "HOMO, film shift",
     "lumo_film": "LUMO, film shift",
+    "gap_opt_film": "optical gap, film shift",
 }
 
 

@@ -65,14 +65,18 @@ def _count_rows(path) -> int:
 def _structures(args, cfg):
     from screen.structures import options_from_mapping, run_structures
 
-    table = run_structures(args.shard, args.sdf, args.table, options_from_mapping(cfg["structures"]))
+    ex = cfg["execution"]
+    table = run_structures(args.shard, args.sdf, args.table, options_from_mapping(cfg["structures"]),
+                           isolate=ex["isolate"], timeout_s=ex["molecule_timeout_s"])
     print(table["status"].value_counts().to_dict())
 
 
 def _electronic(args, cfg):
     from screen.electronic import ElectronicOptions, run_electronic
 
-    table = run_electronic(args.sdf, args.table, args.out, ElectronicOptions.from_mapping(cfg["electronic"]))
+    ex = cfg["execution"]
+    table = run_electronic(args.sdf, args.table, args.out, ElectronicOptions.from_mapping(cfg["electronic"]),
+                           isolate=ex["isolate"], timeout_s=ex["molecule_timeout_s"])
     print(table["status"].value_counts().to_dict())
 
 
@@ -125,6 +129,10 @@ def _calibrate(args, cfg):
     write_csv(table, target / "statistics.csv")
     failed = computed[computed["status"] != "ok"]
     write_csv(failed[["id", "smiles", "status", "error"]], target / "reference_failures.csv")
+    # the raw values the models were fitted on: hold-out tests and refits need no recomputation
+    raw_cols = ["id", "name", "smiles", "status", "error", "xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev",
+                "xtb_gap_ev"]
+    write_csv(computed[[c for c in raw_cols if c in computed.columns]], target / "reference_raw.csv")
     print(table.to_string(index=False))
 
 

@@ -30,6 +30,7 @@ from __future__ import annotations
 
 import time
 from dataclasses import asdict, dataclass
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -38,7 +39,8 @@ from rdkit.Chem import AllChem, rdMolDescriptors
 
 from screen.constants import BOHR_ANGSTROM
 from screen.engines import Engine, EngineError, make_engine
-from screen.io import Journal, atomic_path, write_csv
+from screen.io import Journal, Progress, atomic_path, write_csv
+from screen.isolation import IsolatedWorker
 
 __all__ = [
     "StructureOptions",
@@ -338,8 +340,34 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     return out, info
 
 
+def _molblock_and_info(mol: Chem.Mol, info: dict) -> tuple[str, dict]:
+    return Chem.MolToMolBlock(mol), info
+
+
+_ENGINES: dict[str, Engine] = {}
+
+
+def _structure_job(smiles: str, options: dict) -> tuple[str, dict]:
+    """Worker-process entry: one molecule's structure as (molblock, info)."""
+    opts = StructureOptions(**options)
+    engine = _ENGINES.get(opts.ranking_method)
+    if engine is None:
+        engine = _ENGINES[opts.ranking_method] = make_engine("tblite", opts.ranking_method)
+    return _molblock_and_info(*build_structure(smiles, opts, engine))
+
+
+def _plain(exc: Exception) -> str:
+    """Error text without the exception-type prefix an isolated worker adds."""
+    text = str(exc)
+    for prefix in ("ValueError: ", "EngineError: ", "ScfError: "):
+        if text.startswith(prefix):
+            return text[len(prefix):]
+    return text
+
+
 def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = StructureOptions(),
-                   journal_path=None, engine: Engine | None = None) -> pd.DataFrame:
+                   journal_path=None, engine: Engine | None = None, isolate: bool = True,
+                   timeout_s: float | None = None, progress: Progress | None = None) -> pd.DataFrame:
     """Structures stage for one shard: ``shard-NNN.csv`` → SDF + status table.
 
     Every key of the shard gets a row in ``out_csv`` (``status`` ok or failed with
@@ -356,7 +384,14 @@ def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = Stru
     journal_path : path-like, optional
         Journal file; default ``out_csv`` + ``.journal.jsonl``.
     engine : Engine, optional
-        Engine for ranking/optimisation.
+        Engine for ranking/optimisation; when given, molecules run in this process.
+    isolate : bool
+        Run each molecule in a child process (:class:`screen.isolation.IsolatedWorker`) so a
+        native crash fails one molecule, not the shard.
+    timeout_s : float, optional
+        Per-molecule time limit [s] (isolated runs only).
+    progress : Progress, optional
+        Progress reporter (default: lines on standard output).
 
     Returns
     -------
@@ -364,21 +399,32 @@ def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = Stru
         The status table.
     """
     RDLogger.DisableLog("rdApp.*")
+    progress = progress or Progress(f"structures {Path(shard_csv).stem}")
     shard = pd.read_csv(shard_csv, dtype=str, keep_default_na=False)
     journal = Journal(journal_path or f"{out_csv}.journal.jsonl")
     done = journal.load()
-    engine = engine or make_engine("tblite", options.ranking_method)
-    for key, smiles in zip(shard["key"], shard["smiles"]):
-        if key in done:
-            continue
-        rec = {"key": key}
-        try:
-            mol, info = build_structure(smiles, options, engine)
-            rec.update(status="ok", error="", molblock=Chem.MolToMolBlock(mol), **info)
-        except (ValueError, EngineError, RuntimeError) as exc:
-            rec.update(status="failed", error=f"structure: {exc}")
-        journal.append(rec)
-        done[key] = rec
+    todo = [(k, s) for k, s in zip(shard["key"], shard["smiles"]) if k not in done]
+    if engine is not None or not isolate:
+        engine = engine or make_engine("tblite", options.ranking_method)
+        call = lambda smi: _molblock_and_info(*build_structure(smi, options, engine))  # noqa: E731
+        worker = None
+    else:
+        worker = IsolatedWorker(_structure_job, timeout_s=timeout_s)
+        call = lambda smi: worker(smi, asdict(options))  # noqa: E731
+    try:
+        for i, (key, smiles) in enumerate(todo, 1):
+            rec = {"key": key}
+            try:
+                molblock, info = call(smiles)
+                rec.update(status="ok", error="", molblock=molblock, **info)
+            except (ValueError, EngineError, RuntimeError) as exc:
+                rec.update(status="failed", error=f"structure: {_plain(exc)}")
+            journal.append(rec)
+            done[key] = rec
+            progress.report(i, len(todo), key)
+    finally:
+        if worker is not None:
+            worker.close()
     rows = []
     with atomic_path(out_sdf) as tmp:
         writer = Chem.SDWriter(str(tmp))

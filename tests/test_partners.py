@@ -172,6 +172,8 @@ _MODELS = {
                   "shift_ev": 1.1, "sigma_ev": 0.2, "n": 8},
     "lumo_film": {"property": "lumo_film", "target": "lumo_ev", "scale": "film", "kind": "shift", "base": "ea",
                   "shift_ev": -1.0, "sigma_ev": 0.25, "n": 8},
+    "gap_opt_film": {"property": "gap_opt_film", "target": "gap_opt_ev", "scale": "film", "kind": "shift",
+                     "base": "gap_opt", "shift_ev": -0.5, "sigma_ev": 0.2, "n": 8},
 }
 
 
@@ -213,10 +215,11 @@ def test_smiles_partner_computed_like_candidates_and_cached(smiles_setup, monkey
     ref = raw_levels("c1ccsc1")
     for key in ("xtb_ip_ev", "xtb_ea_ev", "xtb_gap_ev"):
         assert rec[key] == pytest.approx(ref[key], abs=1e-6)
-    # calibration applied: HOMO_film = -(0.8 IP_xtb + 0.2) + 1.1, LUMO_film = -(0.9 EA_xtb - 0.3) - 1.0
+    # calibration applied: HOMO_film = -(0.8 IP_xtb + 0.2) + 1.1, LUMO_film = -(0.9 EA_xtb - 0.3) - 1.0,
+    # gap_film = 0.7 gap_xtb + 0.4 - 0.5
     assert p.homo_ev == pytest.approx(round(-(0.8 * rec["xtb_ip_ev"] + 0.2) + 1.1, 4), abs=1e-4)
     assert p.lumo_ev == pytest.approx(round(-(0.9 * rec["xtb_ea_ev"] - 0.3) - 1.0, 4), abs=1e-4)
-    assert p.gap_opt_ev == pytest.approx(round(0.7 * rec["xtb_gap_ev"] + 0.4, 4), abs=1e-4)
+    assert p.gap_opt_ev == pytest.approx(round(0.7 * rec["xtb_gap_ev"] + 0.4 - 0.5, 4), abs=1e-4)
     assert p.homo_sigma_ev > 0.2 and p.lumo_sigma_ev > 0.25
 
     # second call: no engine call at all

@@ -12,7 +12,7 @@ import re
 from pathlib import Path
 
 NAMES = {"ip": "IP (gas)", "ea": "EA (gas)", "gap_opt": "optical gap", "homo_film": "HOMO (film)",
-         "lumo_film": "LUMO (film)"}
+         "lumo_film": "LUMO (film)", "gap_opt_film": "optical gap (film)"}
 
 
 def table(models_root: Path) -> str:

@@ -28,7 +28,7 @@ rule structures:
         table=f"{WORK}/{{batch}}/structures/shard-{{shard}}.csv",
     params:
         py=PY,
-        cfg=sections("structures"),
+        cfg=sections("structures", "execution"),
     threads: 1
     resources:
         mem_mb=1000,
@@ -50,7 +50,7 @@ rule electronic:
         f"{WORK}/{{batch}}/electronic/shard-{{shard}}.csv",
     params:
         py=PY,
-        cfg=sections("electronic"),
+        cfg=sections("electronic", "execution"),
     threads: 1
     resources:
         mem_mb=1000,
