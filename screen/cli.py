@@ -15,6 +15,7 @@ import argparse
 import os
 import subprocess
 import sys
+import threading
 from pathlib import Path
 
 import yaml
@@ -129,7 +130,25 @@ def _snakemake(cfg: dict, out: Path, cores: int, targets: list[str], extra: list
         cmd += ["--workflow-profile", str(Path(profile).resolve())]
     cmd += list(extra or []) + list(targets)
     print("dascreen: snakemake --cores", cores, "in", out, flush=True)
-    return subprocess.call(cmd)
+    stop = threading.Event()
+    reporter = threading.Thread(target=_report_progress, args=(out, stop), daemon=True)
+    reporter.start()
+    try:
+        return subprocess.call(cmd)
+    finally:
+        stop.set()
+
+
+def _report_progress(out: Path, stop: threading.Event, every_s: float = 60.0) -> None:
+    """Every minute of a long run: molecules done / total and the ETA."""
+    from screen.io import batch_progress
+
+    while not stop.wait(every_s):
+        if (out / "work" / "candidates" / "prepared").is_dir():
+            try:
+                print(_progress_line(batch_progress(out)), flush=True)
+            except OSError:  # a file moved while being counted: try again next time
+                pass
 
 
 def _absolute_paths(cfg: dict) -> dict:
@@ -262,6 +281,24 @@ def cmd_partners(args) -> int:
     return EXIT_OK
 
 
+def cmd_status(args) -> int:
+    """Print how far a (running) batch has got."""
+    from screen.io import batch_progress
+
+    out = Path(args.out)
+    if not (out / "work" / "candidates" / "prepared").is_dir():
+        raise ConfigError(f"{out} holds no prepared batch (is it the --out folder of a dascreen run?)")
+    print(_progress_line(batch_progress(out)))
+    return EXIT_OK
+
+
+def _progress_line(p: dict) -> str:
+    pct = 100.0 * p["done"] / p["total"] if p["total"] else 100.0
+    eta = "unknown" if p["eta_s"] != p["eta_s"] else f"{p['eta_s'] / 60:.1f} min"
+    return (f"dascreen: {p['done']}/{p['total']} molecules computed ({pct:.0f}%), "
+            f"{p['elapsed_s'] / 60:.1f} min elapsed, ETA {eta}")
+
+
 def cmd_config(args) -> int:
     """Print the default configuration."""
     print(yaml.safe_dump(load_config(None), sort_keys=False), end="")
@@ -348,6 +385,12 @@ def build_parser() -> argparse.ArgumentParser:
                                    "source).")
     p.add_argument("--full", action="store_true", help="do not shorten the sources")
     p.set_defaults(func=cmd_partners)
+
+    p = sub.add_parser("status", help="molecules done / total of a run folder, with an ETA",
+                       description="Count the molecules a (running) batch has finished, from its shard outputs "
+                                   "and journals, and estimate the time left.")
+    p.add_argument("--out", default="results", help="the run's output folder")
+    p.set_defaults(func=cmd_status)
 
     p = sub.add_parser("config", help="print the default configuration with every field",
                        description="Print the complete default configuration as YAML.")

@@ -183,3 +183,42 @@ class Progress:
         pct = 100.0 * done / total if total else 100.0
         print(f"{self.label}: {done}/{total} molecules ({pct:.0f}%), {rate:.2f} s/molecule, "
               f"ETA {eta:.0f} s{' (last ' + key + ')' if key else ''}", file=self.stream, flush=True)
+
+
+def batch_progress(out_dir: str | os.PathLike, batch: str = "candidates", stage: str = "electronic") -> dict:
+    """Molecules done / total of a run folder, with an ETA, from shard outputs and journals.
+
+    Parameters
+    ----------
+    out_dir : path-like
+        The run's output folder (``--out``).
+    batch : str
+        Work batch (``candidates`` or ``reference``).
+    stage : {"structures", "electronic"}
+        Which stage to count (a molecule is finished when its electronic result exists).
+
+    Returns
+    -------
+    dict
+        ``total`` unique structures, ``done``, ``elapsed_s`` since the first shard started,
+        ``eta_s`` (NaN until something is done).
+    """
+    import math
+
+    work = Path(out_dir) / "work" / batch
+    shards = sorted((work / "prepared").glob("shard-*.csv"))
+    total = sum(max(0, sum(1 for _ in open(p, encoding="utf-8")) - 1) for p in shards)
+    done, first = 0, None
+    for shard in shards:
+        final = work / stage / shard.name
+        journal = Path(f"{final}.journal.jsonl")
+        if final.exists():
+            done += max(0, sum(1 for _ in open(final, encoding="utf-8")) - 1)
+        elif journal.exists():
+            done += len(Journal(journal).load())
+    starts = [p.stat().st_mtime for p in shards]
+    if starts:
+        first = min(starts)
+    elapsed = time.time() - first if first else 0.0
+    eta = elapsed / done * (total - done) if done else math.nan
+    return {"total": total, "done": done, "elapsed_s": elapsed, "eta_s": eta}

@@ -1159,11 +1159,8 @@ def _shard_bounds(unique: int, options: PrepareOptions) -> list[tuple[int, int]]
     """Return ``[start, stop)`` index ranges of the shards for ``unique`` structures."""
     if unique == 0:
         return []
-    by_size = math.ceil(unique / options.shard_size)
-    if by_size >= options.min_shards:
-        size = options.shard_size
-        return [(s, min(s + size, unique)) for s in range(0, unique, size)]
-    count = min(options.min_shards, unique)
+    # balanced blocks (sizes differ by at most one) so that parallel shards finish together
+    count = min(unique, max(options.min_shards, math.ceil(unique / options.shard_size)))
     base, extra = divmod(unique, count)
     bounds: list[tuple[int, int]] = []
     start = 0
@@ -1191,10 +1188,8 @@ def shard(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) -> li
         Every unique key of an ``ok`` row appears in exactly one shard, in order of first
         occurrence.  The number of shards is ``max(min_shards, ceil(unique / shard_size))``,
         but never more than ``unique`` (so no shard is empty; no structures, no shards).
-        When ``shard_size`` decides the count, shards are filled in contiguous blocks of
-        ``shard_size`` (only the last is partial, so appending candidates leaves earlier
-        shards unchanged); when ``min_shards`` decides, the structures are split into
-        contiguous blocks whose sizes differ by at most one.
+        The structures are split into contiguous blocks whose sizes differ by at most
+        one, so that shards running in parallel finish at about the same time.
 
     Raises
     ------

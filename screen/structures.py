@@ -10,7 +10,9 @@ Route (every step seeded, so the same input gives the same geometry):
 3. MMFF94 optimisation of every conformer (UFF when MMFF lacks parameters,
    e.g. for B; when neither has parameters, e.g. aromatic Se, the chosen
    conformer is optimised with the xTB engine instead, step 5);
-4. GFN2-xTB single points on the unique conformers, keeping the lowest;
+4. GFN2-xTB single points on the lowest few conformers by force-field energy
+   (at most ``rank_max_conformers`` within ``rank_window_kcal_mol``), keeping
+   the lowest by xTB energy;
 5. optional (``geometry="xtb"``) GFN2-xTB optimisation of that conformer with
    ASE's L-BFGS optimiser and the engine's ASE calculator.
 
@@ -86,6 +88,10 @@ class StructureOptions:
         Shortest chain that is truncated.
     ranking_method : str
         xTB method for ranking conformers (GFN2-xTB).
+    rank_max_conformers : int
+        At most this many conformers, the lowest by force-field energy, get an xTB single point.
+    rank_window_kcal_mol : float
+        ... and only those within this force-field energy window of the lowest [kcal/mol].
     """
 
     seed: int = 61453
@@ -101,6 +107,8 @@ class StructureOptions:
     truncate_side_chains: bool = False
     truncate_min_carbons: int = 3
     ranking_method: str = "GFN2-xTB"
+    rank_max_conformers: int = 6
+    rank_window_kcal_mol: float = 6.0
 
     def __post_init__(self):
         if self.geometry not in ("ff", "xtb"):
@@ -224,14 +232,26 @@ def _embed(mol_h: Chem.Mol, n_conf: int, options: StructureOptions) -> tuple[lis
     return list(AllChem.EmbedMultipleConfs(mol_h, numConfs=n_conf, params=params)), "ETKDGv3-random"
 
 
-def _ff_optimise(mol_h: Chem.Mol, options: StructureOptions) -> str:
+def _ff_optimise(mol_h: Chem.Mol, options: StructureOptions) -> tuple[str, list[float] | None]:
+    """Optimise every conformer; returns the force field used and the energies [kcal/mol]."""
     if options.forcefield == "mmff" and AllChem.MMFFHasAllMoleculeParams(mol_h):
-        AllChem.MMFFOptimizeMoleculeConfs(mol_h, numThreads=1, maxIters=options.ff_max_iters, mmffVariant="MMFF94")
-        return "MMFF94"
+        res = AllChem.MMFFOptimizeMoleculeConfs(mol_h, numThreads=1, maxIters=options.ff_max_iters,
+                                                mmffVariant="MMFF94")
+        return "MMFF94", [e for _, e in res]
     if AllChem.UFFHasAllMoleculeParams(mol_h):
-        AllChem.UFFOptimizeMoleculeConfs(mol_h, numThreads=1, maxIters=options.ff_max_iters)
-        return "UFF"
-    return "none"
+        res = AllChem.UFFOptimizeMoleculeConfs(mol_h, numThreads=1, maxIters=options.ff_max_iters)
+        return "UFF", [e for _, e in res]
+    return "none", None
+
+
+def _prefilter(ids: list[int], energies: list[float] | None, options: StructureOptions) -> list[int]:
+    """Conformers worth an xTB single point: the lowest by force-field energy within the window."""
+    if energies is None:
+        return ids
+    order = sorted(range(len(ids)), key=lambda i: (energies[i], ids[i]))
+    e_min = energies[order[0]]
+    keep = [ids[i] for i in order if energies[i] - e_min <= options.rank_window_kcal_mol]
+    return keep[: options.rank_max_conformers]
 
 
 def _xtb_optimise(numbers: np.ndarray, positions_a: np.ndarray, engine: Engine,
@@ -293,12 +313,13 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     ids, embedding = _embed(mol_h, n_conf, options)
     if not ids:
         raise ValueError(f"RDKit ETKDG could not embed a 3D structure ({n_conf} attempts, random coordinates too)")
-    ff = _ff_optimise(mol_h, options)
+    ff, ff_energies = _ff_optimise(mol_h, options)
+    ranked = _prefilter(ids, ff_energies, options)
     if engine is None:
         engine = make_engine("tblite", options.ranking_method)
     numbers = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
     best_id, best_e, errors = None, np.inf, []
-    for cid in ids:
+    for cid in ranked:
         pos_bohr = mol_h.GetConformer(cid).GetPositions() / BOHR_ANGSTROM
         try:
             e = engine.singlepoint(numbers, pos_bohr).energy_eh
@@ -330,6 +351,7 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
         "smiles_computed": smiles_computed,
         "truncated_chains": n_trunc,
         "n_conformers": len(ids),
+        "n_ranked": len(ranked),
         "embedding": embedding,
         "forcefield": ff,
         "geometry": geometry,

@@ -88,3 +88,9 @@ def test_snakemake_lint_is_clean(repo_dir):
     proc = subprocess.run([sys.executable, "-m", "snakemake", "--lint"], capture_output=True, text=True,
                           cwd=repo_dir)
     assert "Congratulations" in proc.stdout + proc.stderr, proc.stdout + proc.stderr
+
+
+def test_status_counts_molecules_done(five_run):
+    out, _ = five_run
+    proc = _dascreen("status", "--out", str(out))
+    assert proc.returncode == 0 and "5/5 molecules computed (100%)" in proc.stdout, proc.stdout + proc.stderr

@@ -26,7 +26,8 @@ def table(models_root: Path) -> str:
                 terms = " ".join(f"{c:+.3f}·{f}" for c, f in zip(d["coef"], d["features"]))
                 desc = f"{terms} {d['intercept']:+.3f}"
             else:
-                desc = f"gas {m['base'].upper()} model, shift {m['shift_ev']:+.3f} eV"
+                base = {"ip": "IP", "ea": "EA", "gap_opt": "optical-gap"}.get(m["base"], m["base"])
+                desc = f"gas {base} model, shift {m['shift_ev']:+.3f} eV"
             lines.append(f"| `{folder.name}` | {label} | {m['n']} | {m['loo_mae_ev']:.3f} | {m['loo_rmse_ev']:.3f} "
                          f"| {m['max_abs_error_ev']:.3f} | {m['r2']:.3f} | {desc} |")
     return "\n".join(lines)
