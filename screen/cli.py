@@ -188,7 +188,7 @@ def cmd_calibrate(args) -> int:
         dest = Path(args.install).resolve() / pid
         if dest.exists():
             shutil.rmtree(dest)
-        shutil.copytree(target, dest)
+        shutil.copytree(target, dest, ignore=shutil.ignore_patterns(".snakemake*"))
         print(f"dascreen: models copied to {dest}")
     print(f"dascreen: models in {target}")
     return EXIT_OK
