@@ -14,11 +14,13 @@ from screen.calibrate import (CalibrationError, LinearLevelModel, apply_models, 
                               load_models, read_reference, stats_table)
 from screen.config import load_config
 
-# Published gas-phase values, NIST Chemistry WebBook (SRD 69) ion energetics — from memory:
-# vertical IP benzene 9.24, naphthalene 8.14, anthracene 7.44, tetracene 6.97, pentacene 6.61 eV;
-# EA benzene −1.12 (electron transmission), naphthalene −0.19 (ETS), anthracene 0.53, tetracene 1.07,
-# pentacene 1.39 eV. Fundamental gap = IP − EA.
-FUND_GAP_EV = {"benzene": 10.36, "naphthalene": 8.33, "anthracene": 6.91, "tetracene": 5.90, "pentacene": 5.22}
+# Published gas-phase values (the rows of models/reference/*.csv, where each has its source):
+# IP benzene 9.24 (ZEKE, Chewter et al., J. Chem. Phys. 86 (1987) 4737), naphthalene 8.14 (NIST WebBook),
+# anthracene 7.44 and pentacene 6.61 (NIST WebBook, from memory), tetracene 6.93 (ZEKE, Zhang, Pei, Kong,
+# doi:10.1063/1.2837467); EA benzene −1.12 (electron transmission, from memory), naphthalene −0.19 (ETS,
+# NIST WebBook), anthracene 0.53, tetracene 1.07 (from memory), pentacene 1.39 (from memory; 1.43 in a
+# newer measurement). Fundamental gap = IP − EA.
+FUND_GAP_EV = {"benzene": 10.36, "naphthalene": 8.33, "anthracene": 6.91, "tetracene": 5.86, "pentacene": 5.22}
 # Optical gaps, S1 0–0 in the gas phase (jet/vapour spectra, from memory; the same values as
 # models/reference/gap_optical.csv): 4.72, 3.97, 3.43, 2.78, 2.31 eV.
 OPT_GAP_EV = {"benzene": 4.72, "naphthalene": 3.97, "anthracene": 3.43, "tetracene": 2.78, "pentacene": 2.31}
