@@ -24,7 +24,7 @@ from pathlib import Path
 
 import pandas as pd
 
-__all__ = ["atomic_path", "write_csv", "write_json", "read_json", "Journal", "Progress"]
+__all__ = ["cell_text", "atomic_path", "write_csv", "write_json", "read_json", "Journal", "Progress"]
 
 
 @contextlib.contextmanager
@@ -59,6 +59,26 @@ def atomic_path(target: str | os.PathLike) -> Iterator[Path]:
     finally:
         if tmp.exists():
             tmp.unlink()
+
+
+def cell_text(value) -> str:
+    """A table cell as text: ``''`` for None, NaN or pandas NA, ``str(value)`` otherwise.
+
+    Examples
+    --------
+    >>> cell_text(float("nan")), cell_text(None), cell_text(3)
+    ('', '', '3')
+    """
+    if value is None:
+        return ""
+    if isinstance(value, str):
+        return value
+    try:
+        if pd.isna(value):
+            return ""
+    except (TypeError, ValueError):
+        pass
+    return str(value)
 
 
 def _umask() -> int:

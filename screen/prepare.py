@@ -119,6 +119,8 @@ from typing import Any
 import pandas as pd
 from rdkit import Chem, rdBase
 
+from screen.io import cell_text as _text
+
 __all__ = [
     "PrepareOptions",
     "MANIFEST_COLUMNS",
@@ -269,18 +271,6 @@ class PrepareOptions:
 # ----------------------------------------------------------------------------------------------
 
 
-def _text(value: Any) -> str:
-    """Return ``value`` as text, with missing values (None, NaN, pandas NA) as ``''``."""
-    if value is None:
-        return ""
-    if isinstance(value, str):
-        return value
-    try:
-        if pd.isna(value):
-            return ""
-    except (TypeError, ValueError):
-        pass
-    return str(value)
 
 
 def _snippet(text: str, limit: int = _MAX_SNIPPET) -> str:

@@ -50,6 +50,7 @@ import pandas as pd
 
 from screen import __version__
 from screen.io import atomic_path
+from screen.io import cell_text as _text
 
 __all__ = [
     "write_report",
@@ -151,18 +152,6 @@ def _num(value) -> float:
     return out if math.isfinite(out) else math.nan
 
 
-def _text(value) -> str:
-    """String of a cell: ``''`` for None/NaN, ``str()`` otherwise."""
-    if value is None:
-        return ""
-    if isinstance(value, float) and math.isnan(value):
-        return ""
-    try:
-        if pd.isna(value):
-            return ""
-    except (TypeError, ValueError):
-        pass
-    return str(value)
 
 
 def _e(value) -> str:

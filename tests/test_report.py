@@ -10,7 +10,6 @@ from __future__ import annotations
 import csv
 import re
 from html.parser import HTMLParser
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
