@@ -2,12 +2,13 @@
 
 Eight small conjugated molecules with gas-phase first ionisation energies
 (IE) from the NIST Chemistry WebBook (SRD 69, evaluated IE, Lias et al.
-compilation), as tabulated in ``models/reference/ip_gas.csv`` — that file
-records for each value whether it was read on the WebBook page
-(naphthalene) or recalled (``from_memory``: the other seven). The values are
+compilation), as tabulated in ``models/reference/ip_gas.csv`` — its
+``from_memory`` column says which values were checked against a read source
+and which are recalled (printed per molecule below). The values are
 mostly adiabatic thresholds; both routes below compute *vertical* IPs, which
-lie higher by the relaxation energy of the cation (typically < 0.1 eV for
-rigid aromatics, more for biphenyl, whose ring twist changes on ionisation).
+lie higher by the relaxation energy of the cation (recalled: typically
+< 0.1 eV for rigid aromatics, more for biphenyl, whose ring twist changes on
+ionisation).
 
 Both routes use the same geometry per molecule — the project's screening
 structure (:func:`screen.structures.build_structure`: ETKDGv3 conformers,
