@@ -39,7 +39,8 @@ import pandas as pd
 REPO = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(REPO))
 
-from screen.rank import RankOptions, rank_candidates, run_rank  # noqa: E402
+from screen.rank import RankOptions, rank_candidates  # noqa: E402
+from screen.rank_io import run_rank  # noqa: E402
 
 
 def synthetic_levels(n: int, seed: int, smiles_pool: list[str]) -> pd.DataFrame:

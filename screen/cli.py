@@ -240,7 +240,7 @@ def _print_ranking_of_run(cfg: dict, out: Path) -> None:
 
 def cmd_rank(args) -> int:
     """Rank a levels file against a partner (no quantum chemistry unless a new smiles: partner)."""
-    from screen.rank import run_rank
+    from screen.rank_io import run_rank
 
     out = Path(args.out).resolve()
     levels = Path(args.levels) if args.levels else out / "levels.csv"

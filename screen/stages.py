@@ -137,7 +137,7 @@ def _calibrate(args, cfg):
 
 
 def _rank(args, cfg):
-    from screen.rank import run_rank
+    from screen.rank_io import run_rank
 
     path = run_rank(args.levels, args.partner, args.out, cfg, models_dir=args.models or None,
                     cache_dir=args.cache or None)

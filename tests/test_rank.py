@@ -19,8 +19,8 @@ from screen.rank import (
     RankOptions,
     ScaleMismatchError,
     rank_candidates,
-    run_rank,
 )
+from screen.rank_io import run_rank
 
 REF = "scharber-reference-acceptor"
 #: the ranking.csv contract of shared/design.md §3, written out independently of the module
