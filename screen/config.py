@@ -15,13 +15,13 @@ from pathlib import Path
 import jsonschema
 import yaml
 
-__all__ = ["SCHEMA_PATH", "ConfigError", "load_config", "resolve", "defaults", "protocol", "protocol_id"]
+__all__ = ["SCHEMA_PATH", "ConfigError", "load_config", "resolve", "defaults", "section_defaults", "protocol",
+           "protocol_id"]
 
 SCHEMA_PATH = Path(__file__).parent / "workflow" / "schemas" / "config.schema.yaml"
 
 
-class ConfigError(ValueError):
-    """A configuration problem: names the file, the field and what is allowed."""
+from screen.errors import ConfigError  # noqa: E402  (re-exported: the error lives on the ground floor)
 
 
 @lru_cache(maxsize=1)
@@ -72,7 +72,7 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     >>> resolve({"device": {"absorber": "acceptor"}})
     Traceback (most recent call last):
     ...
-    screen.config.ConfigError: configuration: field device.absorber: 'acceptor' is not one of ['donor', 'both']; allowed values: donor, both
+    screen.errors.ConfigError: configuration: field device.absorber: 'acceptor' is not one of ['donor', 'both']; allowed values: donor, both
     """
     cfg = copy.deepcopy(config or {})
     schema = _schema()
@@ -85,6 +85,17 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     if errors:  # a default that breaks the schema is a bug here, still say it clearly
         raise ConfigError(f"{source} (after defaults): " + "; ".join(_describe(e) for e in errors))
     return cfg
+
+
+def section_defaults(section: str) -> dict:
+    """Defaults of one schema section: the single source of an options dataclass's defaults.
+
+    Examples
+    --------
+    >>> section_defaults("prepare")["min_shards"]
+    4
+    """
+    return copy.deepcopy(defaults()[section])
 
 
 def defaults() -> dict:
