@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+import dataclasses
 import gzip
 import json
 import os
@@ -12,6 +13,9 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
+from screen import chem
+from screen.config import section_defaults
+from screen.errors import InputError
 from screen.prepare import (
     MANIFEST_COLUMNS,
     REASON_CODES,
@@ -197,15 +201,16 @@ def test_missing_id_is_auto_assigned_with_note() -> None:
 
 def test_internal_error_is_contained(monkeypatch: pytest.MonkeyPatch) -> None:
     import screen.prepare as prep
+    from screen.prepare import validation
 
-    real = prep._check_structure
+    real = validation._check_structure
 
     def flaky(smiles: str, options: PrepareOptions):  # type: ignore[no-untyped-def]
         if smiles == "CCC":
             raise RuntimeError("boom")
         return real(smiles, options)
 
-    monkeypatch.setattr(prep, "_check_structure", flaky)
+    monkeypatch.setattr(validation, "_check_structure", flaky)
     out = prep.validate(_frame([("a", "CC"), ("b", "CCC"), ("c", "CCCC")]))
     assert list(out.status) == ["ok", "rejected", "ok"]
     assert out.reason[1] == "internal_error" and "boom" in out.error[1]
@@ -266,6 +271,16 @@ def test_structure_key_format() -> None:
     key = structure_key("c1ccccc1")
     assert KEY_RE.match(key)
     assert key == structure_key("c1ccccc1") and key != structure_key("c1ccncc1")
+    assert structure_key is chem.structure_key  # one home for the key
+
+
+def test_chem_canonical_smiles_matches_prepare() -> None:
+    demo = validate(read_candidates(ROOT / "candidates" / "demo.csv"))
+    for given, canonical in zip(demo.smiles_input, demo.smiles):
+        assert chem.canonical_smiles(given) == canonical
+        assert chem.canonical_smiles(canonical) == canonical
+    with pytest.raises(InputError):
+        chem.canonical_smiles("C1CC")
 
 
 def test_no_rdkit_noise_printed(capfd: pytest.CaptureFixture[str]) -> None:
@@ -353,6 +368,13 @@ def test_csv_without_smiles_column_raises(tmp_path: Path) -> None:
     assert "nosmiles.csv" in str(err.value) and "structure" in str(err.value)
     with pytest.raises(ValueError):
         prepare(path, tmp_path / "out")
+
+
+def test_bad_input_file_raises_input_error(tmp_path: Path) -> None:
+    path = _write_csv(tmp_path / "nosmiles.csv", ["id", "structure"], [["a", "CCO"]])
+    for bad in (path, tmp_path / "x.xlsx"):
+        with pytest.raises(InputError):
+            read_candidates(bad)
 
 
 def test_unknown_extension_and_non_utf8(tmp_path: Path) -> None:
@@ -449,6 +471,19 @@ def test_shard_rejects_unvalidated_frame() -> None:
         shard(_frame([("a", "CC")]))
 
 
+def test_option_defaults_come_from_the_schema() -> None:
+    schema = section_defaults("prepare")
+    options = PrepareOptions()
+    for field in dataclasses.fields(PrepareOptions):
+        if field.name in schema:
+            value = getattr(options, field.name)
+            expected = schema[field.name]
+            assert (list(value) if isinstance(value, tuple) else value) == expected, field.name
+    assert options.min_shards == schema["min_shards"]
+    built = PrepareOptions.from_mapping({**schema, "shard_size": 3, "unrelated": 1})
+    assert built.shard_size == 3 and built.allowed_elements == tuple(schema["allowed_elements"])
+
+
 def test_options_are_checked() -> None:
     with pytest.raises(ValueError, match="shard_size"):
         PrepareOptions(shard_size=0)
@@ -509,7 +544,7 @@ def test_prepare_manifest_contract(tmp_path: Path) -> None:
 
 
 def test_prepare_five_end_to_end(tmp_path: Path) -> None:
-    summary = prepare(DATA / "five.csv", tmp_path, PrepareOptions(shard_size=2))
+    summary = prepare(DATA / "five.csv", tmp_path, PrepareOptions(shard_size=2, min_shards=1))
     assert summary == {"rows": 6, "ok": 5, "rejected": 1, "unique": 5, "shards": 3}
     manifest = read_manifest(tmp_path / "manifest.csv")
     assert manifest.heavy_atoms.max() <= 14
@@ -533,7 +568,7 @@ def test_prepare_empty_input(tmp_path: Path) -> None:
 def test_prepare_removes_stale_shards(tmp_path: Path) -> None:
     prepare(DATA / "hostile.csv", tmp_path, PrepareOptions(shard_size=5))
     many = len([f for f in os.listdir(tmp_path) if f.startswith("shard-")])
-    summary = prepare(DATA / "five.csv", tmp_path)
+    summary = prepare(DATA / "five.csv", tmp_path, PrepareOptions(min_shards=1))
     left = sorted(f for f in os.listdir(tmp_path) if f.startswith("shard-"))
     assert many > 1 and left == ["shard-000.csv"] and summary["shards"] == 1
 

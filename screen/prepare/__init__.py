@@ -1,0 +1,186 @@
+"""Prepare stage: read candidate structures, validate them and split them into shards.
+
+The package is laid out as :mod:`~screen.prepare.readers` (CSV, SMILES and SDF readers),
+:mod:`~screen.prepare.checks` (chemistry checks and reason codes),
+:mod:`~screen.prepare.validation` (row-level validation), :mod:`~screen.prepare.shards`
+(sharding and the manifest) and :mod:`~screen.prepare.options` (:class:`PrepareOptions`);
+canonical SMILES and structure keys live in :mod:`screen.chem`.  Everything a caller needs is
+importable from ``screen.prepare``.
+
+The prepare stage is the entry point of the pipeline (see ``design.md``, section 1).  It turns
+a user's candidate list into
+
+* ``manifest.csv`` -- one row for **every** input row, in input order, with a status
+  (``ok`` or ``rejected``), a machine-readable reason code, a human-readable error message and
+  the canonical structure; and
+* ``shard-000.csv``, ``shard-001.csv``, ... -- the unique accepted structures (one row per
+  structure key), which the expensive stages process independently.
+
+Input formats
+-------------
+The format is chosen from the file extension (a trailing ``.gz`` is accepted for every format):
+
+``.csv``
+    Header row with at least a ``smiles`` column; ``id``, ``name`` and ``role`` are recognised
+    (header matching ignores case and surrounding blanks); every other column is passed
+    through verbatim.  All fields are read as text, so ids such as ``007`` or ``NA`` survive
+    unchanged (the equivalent of ``pandas.read_csv(dtype=str, keep_default_na=False)``; the
+    :mod:`csv` module is used so that a malformed line becomes a rejected row in its place
+    instead of aborting the read or being dropped).  Lines that are empty, or whose fields are
+    all blank (spreadsheet exports often end with ``,,,`` lines), are not rows.
+``.smi``, ``.smiles``, ``.txt``
+    ``SMILES<whitespace>id`` per line; the id is the rest of the line (it may contain blanks).
+    Blank lines and lines starting with ``#`` are skipped, as is a first line whose first token
+    is literally ``smiles`` (a header).
+``.sdf``, ``.sd``
+    The title line of each record is the id; the data items ``name`` and ``role`` (any case)
+    fill those columns, other data items are passed through.  A record that RDKit cannot read
+    becomes a rejected row (reason ``unparsable``), never a crash.
+
+Reason codes
+------------
+A rejected row carries exactly one reason (the first problem found, in this order):
+
+``malformed_row``       CSV line with more fields than the header (fields may be misassigned).
+``empty``               blank or whitespace-only SMILES.
+``unparsable``          SMILES syntax error (message gives RDKit's complaint in short form),
+                        SMILES with embedded whitespace, unreadable SDF record, or another
+                        sanitisation failure.  Element symbols unknown to RDKit (``[Xx]``)
+                        and R-groups (``[R]``) make the SMILES unparsable for RDKit; they are
+                        recognised and reported as ``unsupported_element`` / ``dummy_atom``.
+``dummy_atom``          ``*``, ``[*:1]``, R-groups (``[R]``, SDF ``R#``), CXSMILES
+                        attachment-point labels.
+``multi_fragment``      more than one disconnected fragment (salts, mixtures, solvates); the
+                        message lists the fragments.  Checked before the element check, so a
+                        metal salt such as ``[Na+].[Cl-]`` is reported as a salt (the message
+                        also names the disallowed elements).
+``unsupported_element`` elements outside ``PrepareOptions.allowed_elements`` (metals, noble
+                        gases, ...) or unknown element symbols; the message lists the
+                        offending elements and the allowed set.
+``valence``             impossible valence, e.g. pentavalent carbon (message names the element
+                        and the 0-based atom index in the order of ``smiles_input``).
+``aromaticity``         aromatic system that cannot be kekulised, e.g. pyrrole written
+                        ``c1ccnc1`` without ``[nH]``.
+``charged``             net charge different from zero.  Species that are neutral overall
+                        but carry formal charges (nitro groups, N-oxides, zwitterions) are
+                        accepted, with a ``charge_separated`` note.
+``open_shell``          any atom with radical electrons, or an odd number of electrons.
+``too_many_atoms``      more heavy atoms than ``PrepareOptions.max_heavy_atoms``.
+``bad_role``            ``role`` other than ``donor``, ``acceptor`` or empty (case and
+                        surrounding blanks are ignored; the value is stored in lower case).
+``duplicate_id``        second and later rows whose id was already used by an earlier row
+                        (whatever that row's status); the message names the first row.
+``internal_error``      an unexpected exception while checking this row (the batch goes on).
+
+Rows that are accepted may carry informative notes in the ``note`` column, as ``code: text``
+items separated by ``"; "``:
+
+``missing_id``          the id was empty; ``row-<row>`` (``row`` = 0-based input position) was
+                        assigned (with a ``-2``, ``-3`` ... suffix if that text is already an id
+                        in the file).  Auto-assignment is friendlier than rejection.
+``isotopes_removed``    isotope labels were stripped (unless ``keep_isotopes``).
+``atom_maps_removed``   atom-map numbers on real atoms were stripped.
+``charge_separated``    formal charges present, net charge zero.
+
+Duplicate structures (different SMILES strings of the same molecule) are **not** rejected:
+every such row is ``ok``, shares the same ``key`` (so the computation is done once) and, from
+the second occurrence on, ``duplicate_of`` holds the id of the first ``ok`` row with that key.
+Because only the first row with a given id can be ``ok``, ids of ``ok`` rows are unique and
+``duplicate_of`` is unambiguous.
+
+Output files
+------------
+``manifest.csv`` columns, in order: ``row, id, key, smiles_input, smiles, status, reason,
+error, duplicate_of, name, role, heavy_atoms, note`` and then the passthrough columns
+(:data:`MANIFEST_COLUMNS`).  ``note`` is not in the original contract; it sits after
+``heavy_atoms`` so that passthrough columns stay last.  Ids and passthrough text are written
+verbatim (CSV-quoted where needed); text that a spreadsheet would treat as a formula
+(``=1+1``) is *not* altered here -- escaping belongs to the report writers.  Read the manifest
+back with :func:`read_manifest` (all text) so that ids like ``NA`` survive.  Each shard
+``shard-NNN.csv`` has columns ``key, smiles, id``; ``manifest.meta.json`` records the input
+file's SHA-256, the options and the RDKit version.
+
+Keys are ``"m" + sha1(canonical isomeric SMILES)[:16]`` -- 17 characters from ``[a-z0-9]``,
+safe as file names.  User ids are never used in paths.  Structures are normalised by RDKit
+sanitisation (aromaticity, explicit hydrogens, charge-separated nitro groups); stereochemistry
+is kept; tautomers and resonance forms other than those RDKit normalises are *not* merged.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+from screen.chem import structure_key
+from screen.prepare.checks import REASON_CODES
+from screen.prepare.options import PrepareOptions
+from screen.prepare.readers import read_candidates
+from screen.prepare.shards import (
+    MANIFEST_COLUMNS,
+    SHARD_COLUMNS,
+    read_manifest,
+    shard,
+    write_prepared,
+)
+from screen.prepare.validation import validate
+
+__all__ = [
+    "PrepareOptions",
+    "MANIFEST_COLUMNS",
+    "SHARD_COLUMNS",
+    "REASON_CODES",
+    "read_candidates",
+    "validate",
+    "shard",
+    "prepare",
+    "structure_key",
+    "read_manifest",
+]
+
+
+def prepare(
+    path: str | os.PathLike[str],
+    out_dir: str | os.PathLike[str],
+    options: PrepareOptions = PrepareOptions(),
+) -> dict[str, int]:
+    """Run the prepare stage: read, validate, shard and write the results.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Candidate file (see :func:`read_candidates`).
+    out_dir : str or os.PathLike
+        Output directory, created if needed.  Only these files are written in it:
+        ``shard-NNN.csv`` (columns :data:`SHARD_COLUMNS`), ``manifest.meta.json``
+        (provenance: input file and SHA-256, options, RDKit version, counts, shard files) and
+        ``manifest.csv`` (all rows, columns :data:`MANIFEST_COLUMNS` then passthrough),
+        written last so that its presence means the stage finished.  Shard files of an
+        earlier run beyond the new shard count are removed.  Every write is atomic.
+    options : PrepareOptions
+        Validation limits and sharding.
+
+    Returns
+    -------
+    dict
+        ``{'rows', 'ok', 'rejected', 'unique', 'shards'}`` counts (ints).
+
+    Raises
+    ------
+    screen.errors.InputError
+        A problem with the input file as a whole (see :func:`read_candidates`).
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> work = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (work / "c.csv").write_text("id,smiles\\na,c1ccsc1\\nb,C1CC\\n", encoding="utf-8")
+    >>> prepare(work / "c.csv", work / "prepared")
+    {'rows': 2, 'ok': 1, 'rejected': 1, 'unique': 1, 'shards': 1}
+    >>> sorted(p.name for p in (work / "prepared").iterdir())
+    ['manifest.csv', 'manifest.meta.json', 'shard-000.csv']
+    """
+    path = Path(path)
+    frame = read_candidates(path)
+    manifest = validate(frame, options)
+    shards = shard(manifest, options)
+    return write_prepared(manifest, shards, path, Path(out_dir), options)

@@ -1,0 +1,426 @@
+"""Structure checks of the prepare stage and the reason codes they emit.
+
+:func:`_check_structure` runs every check on one SMILES, in the order of the reason codes
+listed in the :mod:`screen.prepare` docstring, and returns the canonical form or the first
+problem found (a reason code from :data:`REASON_CODES` and a specific message).
+
+Examples
+--------
+>>> checked = _check_structure("C1=CC=CS1", PrepareOptions())
+>>> checked.smiles, checked.heavy_atoms, checked.reason
+('c1ccsc1', 5, '')
+>>> bad = _check_structure("CC(C)(C)(C)C", PrepareOptions())
+>>> bad.reason
+'valence'
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import re
+from dataclasses import dataclass
+
+from rdkit import Chem, rdBase
+
+from screen.chem import canonical_form
+from screen.prepare.options import KNOWN_ELEMENTS as _KNOWN_ELEMENTS
+from screen.prepare.options import PrepareOptions
+
+__all__ = ["REASON_CODES", "snippet"]
+
+#: Every reason code :func:`screen.prepare.validate` can emit (``''`` for ``ok`` rows).
+REASON_CODES: tuple[str, ...] = (
+    "malformed_row",
+    "empty",
+    "unparsable",
+    "dummy_atom",
+    "multi_fragment",
+    "unsupported_element",
+    "valence",
+    "aromaticity",
+    "charged",
+    "open_shell",
+    "too_many_atoms",
+    "bad_role",
+    "duplicate_id",
+    "internal_error",
+)
+
+#: A bracket atom of a SMILES, e.g. ``[13CH3+]``; group 1 is the text inside the brackets.
+_BRACKET_ATOM = re.compile(r"\[([^\[\]]*)\]")
+#: Element symbol at the start of a bracket atom's text, after an optional isotope
+#: (aromatic symbols are lower case, e.g. ``se``).
+_BRACKET_SYMBOL = re.compile(r"\d*([A-Za-z][a-z]*)")
+#: A SMILES followed by a CXSMILES extension block: ``SMILES |...|``.
+_CXSMILES = re.compile(r"^\S+ \|[^|]*\|$")
+#: RDKit log line prefix ``[hh:mm:ss] ``.
+_LOG_PREFIX = re.compile(r"^\[\d\d:\d\d:\d\d\]\s?")
+
+_MAX_FRAGMENTS_SHOWN = 5
+_MAX_SNIPPET = 40
+
+
+def snippet(text: str, limit: int = _MAX_SNIPPET) -> str:
+    """Shorten ``text`` for use inside a message (repr-quoted, newlines visible).
+
+    Examples
+    --------
+    >>> snippet("a" * 50)
+    "'aaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaa...'"
+    """
+    if len(text) > limit:
+        text = text[: limit - 3] + "..."
+    return repr(text)
+
+
+
+def _short_rdkit_message(log: str, smiles: str = "") -> str:
+    """Condense RDKit's multi-line SMILES parse log into one short phrase.
+
+    Parameters
+    ----------
+    log : str
+        Text captured from RDKit's error log.
+    smiles : str
+        The SMILES that failed, used to show the text around the reported position.
+
+    Returns
+    -------
+    str
+        E.g. ``"unclosed ring"`` or ``"syntax error around position 3 (near 'C[C')"``.
+    """
+    lines = [_LOG_PREFIX.sub("", ln).strip() for ln in log.splitlines()]
+    what = ""
+    position: int | None = None
+    for ln in lines:
+        if not ln:
+            continue
+        body = ln.split("Error:", 1)[1].strip() if "Error:" in ln else ln
+        found = re.match(r"check for mistakes around position (\d+)", body)
+        if found:
+            position = int(found.group(1))
+        elif body.startswith("Failed parsing SMILES"):
+            continue
+        elif not what and "Error" in ln:
+            for sep in (" while parsing:", " for input:"):
+                body = body.split(sep, 1)[0]
+            what = body.strip()
+    what = what or "syntax error"
+    if position is None:
+        return what
+    text = f"{what} around position {position}"
+    if smiles:
+        lo = max(0, position - 8)
+        text += f" (near {smiles[lo:position + 4]!r})"
+    return text
+
+
+class _Reject(Exception):
+    """Internal signal: the row is rejected with ``reason`` and ``message``."""
+
+    def __init__(self, reason: str, message: str) -> None:
+        super().__init__(message)
+        self.reason = reason
+        self.message = message
+
+
+@dataclass
+class _Checked:
+    """Result of checking one structure."""
+
+    smiles: str = ""
+    heavy_atoms: int | None = None
+    notes: list[str] = dataclasses.field(default_factory=list)
+    reason: str = ""
+    error: str = ""
+
+
+# ----------------------------------------------------------------------------------------------
+# structure checks
+# ----------------------------------------------------------------------------------------------
+
+
+def _scan_failed_smiles(smiles: str, options: PrepareOptions) -> _Reject | None:
+    """Explain a SMILES RDKit could not parse by an unknown element or an R-group, if any."""
+    unknown: list[str] = []
+    rgroups: list[str] = []
+    for match in _BRACKET_ATOM.finditer(smiles):
+        symbol_match = _BRACKET_SYMBOL.match(match.group(1))
+        if symbol_match is None:
+            continue
+        symbol = symbol_match.group(1)
+        if re.fullmatch(r"R\d*", symbol):
+            if match.group(0) not in rgroups:
+                rgroups.append(match.group(0))
+            continue
+        canonical = symbol[0].upper() + symbol[1:]
+        if canonical not in _KNOWN_ELEMENTS and symbol not in unknown:
+            unknown.append(symbol)
+    if rgroups:
+        return _Reject(
+            "dummy_atom",
+            f"R-group placeholder(s) {', '.join(rgroups)}: a complete molecule is "
+            "needed (replace the R-group by a real substituent, e.g. a methyl)",
+        )
+    if unknown:
+        return _Reject(
+            "unsupported_element",
+            f"unknown element symbol(s) {', '.join(unknown)}; "
+            f"allowed elements: {', '.join(options.allowed_elements)}",
+        )
+    return None
+
+
+def _parse_unsanitized(smiles: str, options: PrepareOptions) -> Chem.Mol:
+    """Parse ``smiles`` without sanitisation; raise :class:`_Reject` with a specific message."""
+    stripped = smiles.strip()
+    if not stripped:
+        raise _Reject("empty", "SMILES is empty")
+    if re.search(r"\s", stripped) and not _CXSMILES.match(stripped):
+        pos = re.search(r"\s", stripped).start()  # type: ignore[union-attr]
+        raise _Reject(
+            "unparsable",
+            f"SMILES contains whitespace at position {pos} (a SMILES is one token; "
+            "put names in a separate column)",
+        )
+    with rdBase.BlockLogs():
+        with rdBase.CaptureErrorLog() as capture:
+            mol = Chem.MolFromSmiles(stripped, sanitize=False)
+        log = capture.messages
+    if mol is None:
+        explained = _scan_failed_smiles(stripped, options)
+        if explained is not None:
+            raise explained
+        raise _Reject("unparsable", f"SMILES syntax error: {_short_rdkit_message(log, stripped)}")
+    if mol.GetNumAtoms() == 0:
+        raise _Reject("unparsable", "SMILES contains no atoms")
+    return mol
+
+
+def _check_dummies(mol: Chem.Mol) -> None:
+    """Reject dummy atoms, R-groups and attachment-point labels."""
+    bad: list[str] = []
+    for atom in mol.GetAtoms():
+        label = atom.GetProp("atomLabel") if atom.HasProp("atomLabel") else ""
+        if atom.GetAtomicNum() == 0:
+            text = "*"
+            if atom.GetAtomMapNum():
+                text = f"[*:{atom.GetAtomMapNum()}]"
+            elif label or atom.HasProp("dummyLabel"):
+                text = label or atom.GetProp("dummyLabel")
+            bad.append(f"atom {atom.GetIdx()} ({text})")
+        elif re.fullmatch(r"_(R|AP)\d*", label):
+            bad.append(f"atom {atom.GetIdx()} ({label})")
+    if bad:
+        raise _Reject(
+            "dummy_atom",
+            f"dummy/attachment atom(s) at {', '.join(bad)}: a complete molecule is needed "
+            "(cap open valences, e.g. with hydrogen or methyl)",
+        )
+
+
+def _disallowed_elements(mol: Chem.Mol, options: PrepareOptions) -> list[str]:
+    """Element symbols of ``mol``'s explicit atoms that are not allowed, in first-seen order."""
+    allowed = set(options.allowed_elements)
+    found: list[str] = []
+    for atom in mol.GetAtoms():
+        symbol = atom.GetSymbol()
+        if symbol not in allowed and symbol not in found:
+            found.append(symbol)
+    return found
+
+
+def _check_fragments(mol: Chem.Mol, options: PrepareOptions) -> None:
+    """Reject salts, mixtures and solvates (more than one connected component)."""
+    frags = Chem.GetMolFrags(mol, asMols=False, sanitizeFrags=False)
+    if len(frags) <= 1:
+        return
+    texts: list[str] = []
+    try:
+        mol.UpdatePropertyCache(strict=False)
+        for frag in Chem.GetMolFrags(mol, asMols=True, sanitizeFrags=False)[:_MAX_FRAGMENTS_SHOWN]:
+            texts.append(snippet(Chem.MolToSmiles(frag, canonical=False)))
+    except Exception:  # pragma: no cover - depends on RDKit internals
+        texts = [f"{len(f)} atoms" for f in frags[:_MAX_FRAGMENTS_SHOWN]]
+    more = len(frags) - len(texts)
+    listing = ", ".join(texts) + (f" and {more} more" if more > 0 else "")
+    message = (
+        f"{len(frags)} disconnected fragments ({listing}): salts, mixtures and solvates are "
+        "not screened; give the single neutral molecule of interest"
+    )
+    bad = _disallowed_elements(mol, options)
+    if bad:
+        message += f"; also contains elements not allowed: {', '.join(bad)}"
+    raise _Reject("multi_fragment", message)
+
+
+def _check_elements(mol: Chem.Mol, options: PrepareOptions) -> None:
+    """Reject atoms of elements outside ``options.allowed_elements``."""
+    bad = _disallowed_elements(mol, options)
+    if bad:
+        raise _Reject(
+            "unsupported_element",
+            f"element(s) not allowed: {', '.join(bad)}; "
+            f"allowed elements: {', '.join(options.allowed_elements)}",
+        )
+
+
+def _symbol(atom: Chem.Atom) -> str:
+    """Element symbol as written in SMILES (lower case for aromatic atoms)."""
+    symbol = atom.GetSymbol()
+    return symbol.lower() if atom.GetIsAromatic() else symbol
+
+
+def _check_chemistry(mol: Chem.Mol) -> None:
+    """Reject valence and kekulisation problems with the atom index and element named."""
+    with rdBase.BlockLogs():
+        with rdBase.CaptureErrorLog():
+            problems = list(Chem.DetectChemistryProblems(mol))
+    if not problems:
+        return
+    first = problems[0]
+    more = f" (and {len(problems) - 1} more problem(s))" if len(problems) > 1 else ""
+    kind = first.GetType()
+    if kind == "AtomValenceException":
+        idx = first.GetAtomIdx()
+        atom = mol.GetAtomWithIdx(idx)
+        match = re.search(r"valence for atom # \d+ \w+, (\d+), is greater", first.Message())
+        valence = f" has valence {match.group(1)}," if match else ""
+        raise _Reject(
+            "valence",
+            f"atom {idx} ({atom.GetSymbol()}){valence} more bonds than {atom.GetSymbol()} "
+            f"allows (0-based atom index in the order of smiles_input; RDKit: {first.Message()}){more}",
+        )
+    if kind in ("KekulizeException", "AtomKekulizeException"):
+        if kind == "KekulizeException":
+            indices = list(first.GetAtomIndices())
+        else:
+            indices = [first.GetAtomIdx()]
+        atoms = ", ".join(f"{i} ({_symbol(mol.GetAtomWithIdx(i))})" for i in indices[:12])
+        raise _Reject(
+            "aromaticity",
+            f"cannot kekulise the aromatic atoms {atoms}: check the aromatic notation "
+            f"(e.g. a pyrrole-type nitrogen needs [nH]; RDKit: {first.Message()}){more}",
+        )
+    raise _Reject("unparsable", f"RDKit sanitisation failed: {first.Message()}{more}")
+
+
+def _formal_charge_note(mol: Chem.Mol) -> str | None:
+    """Describe formal charges of a net-neutral molecule, or None if there are none."""
+    charged = [a for a in mol.GetAtoms() if a.GetFormalCharge() != 0]
+    if not charged:
+        return None
+    shown = ", ".join(
+        f"{a.GetSymbol()}{a.GetIdx()}({a.GetFormalCharge():+d})" for a in charged[:6]
+    )
+    if len(charged) > 6:
+        shown += f" and {len(charged) - 6} more"
+    return f"charge_separated: formal charges on {shown}, net charge 0"
+
+
+def _sanitize(mol: Chem.Mol) -> None:
+    """Sanitise ``mol`` in place; an RDKit failure becomes an ``unparsable`` rejection."""
+    with rdBase.BlockLogs():
+        with rdBase.CaptureErrorLog() as capture:
+            try:
+                Chem.SanitizeMol(mol)
+            except Exception as exc:  # RDKit raises several exception types here
+                detail = str(exc).strip().splitlines()[0] if str(exc).strip() else ""
+                detail = detail or _short_rdkit_message(capture.messages)
+                raise _Reject("unparsable", f"RDKit sanitisation failed: {detail}") from None
+
+
+def _check_hydrogen_allowed(mol: Chem.Mol, options: PrepareOptions) -> None:
+    """Reject hydrogens when ``H`` is not an allowed element."""
+    if "H" not in options.allowed_elements and any(a.GetTotalNumHs() for a in mol.GetAtoms()):
+        raise _Reject(
+            "unsupported_element",
+            f"element(s) not allowed: H; allowed elements: {', '.join(options.allowed_elements)}",
+        )
+
+
+def _check_charge(mol: Chem.Mol, options: PrepareOptions, notes: list[str]) -> int:
+    """Reject a net charge (unless allowed); note formal charges that cancel; return the charge."""
+    charge = Chem.GetFormalCharge(mol)
+    if charge != 0 and not options.allow_charged:
+        raise _Reject(
+            "charged",
+            f"net charge {charge:+d}: only neutral molecules are screened "
+            "(formal charges that cancel, as in nitro groups, are fine)",
+        )
+    if charge == 0:
+        note = _formal_charge_note(mol)
+        if note:
+            notes.append(note)
+    return charge
+
+
+def _check_open_shell(mol: Chem.Mol, options: PrepareOptions, charge: int) -> None:
+    """Reject radicals and odd-electron species (unless allowed)."""
+    if options.allow_open_shell:
+        return
+    radicals = [a for a in mol.GetAtoms() if a.GetNumRadicalElectrons() > 0]
+    if radicals:
+        shown = ", ".join(
+            f"{a.GetIdx()} ({a.GetSymbol()}, {a.GetNumRadicalElectrons()})" for a in radicals[:6]
+        )
+        raise _Reject(
+            "open_shell",
+            f"radical electrons on atom(s) {shown}: only closed-shell molecules are "
+            "screened (a bracket atom has only the hydrogens written in it: [CH3] is a "
+            "methyl radical, methane is C or [CH4])",
+        )
+    electrons = sum(a.GetAtomicNum() + a.GetTotalNumHs() for a in mol.GetAtoms()) - charge
+    if electrons % 2:
+        raise _Reject(
+            "open_shell",
+            f"odd number of electrons ({electrons}): only closed-shell molecules are screened",
+        )
+
+
+def _strip_labels(mol: Chem.Mol, options: PrepareOptions, notes: list[str]) -> None:
+    """Remove isotope labels (unless kept) and atom-map numbers, with notes."""
+    isotopes = [a for a in mol.GetAtoms() if a.GetIsotope()]
+    if isotopes and not options.keep_isotopes:
+        labels: dict[str, int] = {}
+        for atom in isotopes:
+            label = f"{atom.GetIsotope()}{atom.GetSymbol()}"
+            labels[label] = labels.get(label, 0) + 1
+            atom.SetIsotope(0)
+        shown = ", ".join(f"[{k}] x{v}" for k, v in labels.items())
+        notes.append(f"isotopes_removed: {shown}")
+    mapped = [a for a in mol.GetAtoms() if a.GetAtomMapNum()]
+    if mapped:
+        for atom in mapped:
+            atom.SetAtomMapNum(0)
+        notes.append(f"atom_maps_removed: {len(mapped)} atom(s)")
+
+
+def _check_structure(smiles: str, options: PrepareOptions) -> _Checked:
+    """Run every structure check on one SMILES and return the canonical form or the problem."""
+    result = _Checked()
+    try:
+        mol = _parse_unsanitized(smiles, options)
+        _check_dummies(mol)
+        _check_fragments(mol, options)
+        _check_elements(mol, options)
+        _check_chemistry(mol)
+        _sanitize(mol)
+        _check_hydrogen_allowed(mol, options)
+        charge = _check_charge(mol, options, result.notes)
+        _check_open_shell(mol, options, charge)
+        _strip_labels(mol, options, result.notes)
+        # canonical_form round-trips through SMILES so that the canonical form is exactly what
+        # RDKit's default parser makes of it (stereo flags made meaningless by isotope
+        # stripping are dropped, and re-validating the canonical SMILES gives the same key).
+        result.smiles, result.heavy_atoms = canonical_form(mol)
+        if result.heavy_atoms > options.max_heavy_atoms:
+            raise _Reject(
+                "too_many_atoms",
+                f"{result.heavy_atoms} heavy atoms, more than the limit of "
+                f"{options.max_heavy_atoms} (PrepareOptions.max_heavy_atoms)",
+            )
+    except _Reject as rej:
+        result.reason = rej.reason
+        result.error = rej.message
+    return result

@@ -1,0 +1,383 @@
+"""Readers of candidate files: CSV, SMILES and SDF, each optionally gzipped.
+
+:func:`read_candidates` turns a candidate file into a frame of text columns, one row per
+input record in input order.  A record that cannot be read (a CSV line with too many fields,
+an SDF record RDKit rejects) becomes a row with a ``read_error`` instead of stopping the read;
+:func:`screen.prepare.validate` turns it into a rejection.  A problem with the file as a whole
+(unknown extension, not UTF-8, no ``smiles`` column) raises :class:`screen.errors.InputError`.
+
+Examples
+--------
+>>> import pathlib, tempfile
+>>> path = pathlib.Path(tempfile.mkdtemp()) / "c.smi"
+>>> _ = path.write_text("c1ccsc1 thiophene\\nCCO\\n", encoding="utf-8")
+>>> frame = read_candidates(path)
+>>> list(frame.id), list(frame.smiles_input)
+(['thiophene', 'row-1'], ['c1ccsc1', 'CCO'])
+"""
+
+from __future__ import annotations
+
+import csv
+import gzip
+import io
+import os
+import re
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+from rdkit import Chem, rdBase
+
+from screen.errors import InputError
+from screen.prepare.checks import snippet as _snippet
+from screen.prepare.shards import MANIFEST_COLUMNS
+
+__all__ = ["read_candidates", "assign_missing_ids"]
+
+#: Names a passthrough column may not take (it would clash with a column this stage writes).
+_RESERVED: frozenset[str] = frozenset(MANIFEST_COLUMNS) | {"read_error"}
+
+_CSV_SUFFIXES = (".csv",)
+_SMI_SUFFIXES = (".smi", ".smiles", ".txt")
+_SDF_SUFFIXES = (".sdf", ".sd")
+
+def _format_of(path: Path) -> tuple[str, bool]:
+    """Return (format, gzipped) for ``path`` from its extension."""
+    name = path.name.lower()
+    gz = name.endswith(".gz")
+    if gz:
+        name = name[:-3]
+    for fmt, suffixes in (("csv", _CSV_SUFFIXES), ("smi", _SMI_SUFFIXES), ("sdf", _SDF_SUFFIXES)):
+        if name.endswith(suffixes):
+            return fmt, gz
+    allowed = ", ".join(_CSV_SUFFIXES + _SMI_SUFFIXES + _SDF_SUFFIXES)
+    raise InputError(
+        f"{path}: unknown candidate file type; use one of the extensions {allowed} "
+        "(optionally followed by .gz)"
+    )
+
+
+def _read_text(path: Path, gz: bool) -> str:
+    """Read the whole file as UTF-8 text (a byte-order mark is ignored)."""
+    raw = gzip.decompress(path.read_bytes()) if gz else path.read_bytes()
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise InputError(
+            f"{path}: not UTF-8 text (undecodable byte at offset {exc.start}); "
+            "save the file as UTF-8"
+        ) from None
+
+
+def _unique_column(name: str, taken: set[str]) -> str:
+    """Return ``name``, prefixed with ``input_`` if it clashes with a column we write."""
+    out = name
+    while out in _RESERVED or out in taken:
+        out = "input_" + out
+    return out
+
+
+def _read_csv(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
+    """Parse candidate CSV text into row dicts and the passthrough column names."""
+    reader = csv.reader(io.StringIO(text, newline=""))
+    header: list[str] | None = None
+    records: list[dict[str, str]] = []
+    mapping: dict[int, str] = {}
+    passthrough: list[str] = []
+    try:
+        for fields in reader:
+            if header is None:
+                if not fields or all(not f.strip() for f in fields):
+                    continue
+                header = [f.strip() for f in fields]
+                lowered = [h.lower() for h in header]
+                if "smiles" not in lowered:
+                    raise InputError(
+                        f"{path}: no 'smiles' column; columns found: {header}. "
+                        "A candidate CSV needs a header with at least 'smiles' (and usually 'id')"
+                    )
+                taken: set[str] = set()
+                standard: set[str] = set()
+                for i, (h, low) in enumerate(zip(header, lowered)):
+                    if low in ("id", "smiles", "name", "role") and low not in standard:
+                        standard.add(low)
+                        mapping[i] = "smiles_input" if low == "smiles" else low
+                    else:
+                        out = _unique_column(h or f"column_{i + 1}", taken)
+                        taken.add(out)
+                        mapping[i] = out
+                        passthrough.append(out)
+                continue
+            if not fields or all(not f.strip() for f in fields):
+                continue
+            record = {"id": "", "smiles_input": "", "name": "", "role": "", "read_error": ""}
+            record.update({col: "" for col in passthrough})
+            for i, value in enumerate(fields[: len(header)]):
+                record[mapping[i]] = value
+            if len(fields) > len(header):
+                record["read_error"] = (
+                    f"malformed_row:line {reader.line_num} has {len(fields)} fields but the "
+                    f"header has {len(header)} (unquoted comma inside a field?); "
+                    "the row is not trusted"
+                )
+            records.append(record)
+    except csv.Error as exc:
+        raise InputError(f"{path}: CSV error near line {reader.line_num}: {exc}") from None
+    return records, passthrough
+
+
+def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
+    """Parse a SMILES file (``SMILES<whitespace>id`` per line)."""
+    records: list[dict[str, str]] = []
+    first_data = True
+    for line in text.splitlines():
+        stripped = line.strip()
+        if not stripped or stripped.startswith("#"):
+            continue
+        parts = stripped.split(None, 1)
+        if first_data and parts[0].lower() == "smiles":
+            first_data = False
+            continue
+        first_data = False
+        records.append(
+            {
+                "id": parts[1].strip() if len(parts) > 1 else "",
+                "smiles_input": parts[0],
+                "name": "",
+                "role": "",
+                "read_error": "",
+            }
+        )
+    return records, []
+
+
+def _sdf_records(text: str) -> list[str]:
+    """Split SDF text into record blocks at ``$$$$`` lines (a trailing empty block is dropped)."""
+    blocks: list[str] = []
+    current: list[str] = []
+    for line in text.splitlines():
+        if line.strip() == "$$$$":
+            blocks.append("\n".join(current))
+            current = []
+        else:
+            current.append(line)
+    if any(ln.strip() for ln in current):
+        blocks.append("\n".join(current))
+    return blocks
+
+
+def _sdf_data_items(lines: list[str]) -> dict[str, str]:
+    """Parse ``> <name>`` data items that follow ``M  END``."""
+    items: dict[str, str] = {}
+    i = 0
+    while i < len(lines):
+        match = re.match(r"^>.*?<([^>]*)>", lines[i])
+        if match:
+            key = match.group(1)
+            values: list[str] = []
+            i += 1
+            while i < len(lines) and lines[i].strip() != "":
+                values.append(lines[i])
+                i += 1
+            items.setdefault(key, "\n".join(values))
+        i += 1
+    return items
+
+
+def _molblock_problem(lines: list[str]) -> str | None:
+    """Describe what is wrong with a V2000 connection table, if a simple check finds it.
+
+    RDKit reports molblock problems on its warning log, which cannot be captured per call, so
+    the common faults (bad counts line, truncated atom or bond block, bad coordinates) are
+    re-checked here to give a specific message.
+
+    Parameters
+    ----------
+    lines : list of str
+        The record's lines up to and including ``M  END``.
+
+    Returns
+    -------
+    str or None
+        A message, or None if no fault was found (or the record is V3000).
+    """
+    if len(lines) < 4:
+        return f"header too short ({len(lines)} lines before 'M  END', need at least 4)"
+    counts = lines[3]
+    if "V3000" in counts:
+        return None
+    try:
+        n_atoms, n_bonds = int(counts[0:3]), int(counts[3:6])
+    except ValueError:
+        return f"counts line (line 4) is not valid: {_snippet(counts)}"
+    body = lines[4:-1]
+    if len(body) < n_atoms + n_bonds:
+        return (
+            f"counts line announces {n_atoms} atoms and {n_bonds} bonds but only "
+            f"{len(body)} lines follow"
+        )
+    for k, line in enumerate(body[:n_atoms], start=5):
+        try:
+            float(line[0:10]), float(line[10:20]), float(line[20:30])
+        except ValueError:
+            return f"atom line {k} has unreadable coordinates: {_snippet(line)}"
+    return None
+
+
+def _molblock_to_smiles(molblock: str) -> tuple[str | None, str]:
+    """Convert a connection table to SMILES, keeping what validation must still judge.
+
+    The block is first read with sanitisation (so stereochemistry is perceived from wedges or
+    3D coordinates); if that fails it is read without, so that e.g. a pentavalent carbon
+    reaches :func:`validate` and is reported as ``valence`` rather than as unreadable.
+
+    Parameters
+    ----------
+    molblock : str
+        One record up to and including ``M  END``.
+
+    Returns
+    -------
+    tuple of (str or None, str)
+        The SMILES (None if RDKit cannot read the block at all) and RDKit's exception text,
+        if any.
+    """
+    with rdBase.BlockLogs():
+        with rdBase.CaptureErrorLog():
+            try:
+                mol = Chem.MolFromMolBlock(molblock, sanitize=True, removeHs=False)
+                if mol is not None:
+                    return Chem.MolToSmiles(Chem.RemoveHs(mol)), ""
+                mol = Chem.MolFromMolBlock(molblock, sanitize=False, removeHs=False)
+                if mol is None:
+                    return None, ""
+                mol.UpdatePropertyCache(strict=False)
+                return Chem.MolToSmiles(mol), ""
+            except Exception as exc:  # RDKit raises several exception types on bad blocks
+                text = str(exc).strip()
+                return None, text.splitlines()[0] if text else type(exc).__name__
+
+
+def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
+    """Parse an SD file; unreadable records become rows with a read error."""
+    records: list[dict[str, str]] = []
+    passthrough: list[str] = []
+    column_of: dict[str, str] = {}
+    for number, block in enumerate(_sdf_records(text), start=1):
+        lines = block.split("\n")
+        title = lines[0].strip() if lines else ""
+        end = next((i for i, ln in enumerate(lines) if ln.startswith("M  END")), None)
+        data = _sdf_data_items(lines[end + 1 :]) if end is not None else {}
+        record = {"id": title, "smiles_input": "", "name": "", "role": "", "read_error": ""}
+        for key, value in data.items():
+            low = key.strip().lower()
+            if low in ("name", "role") and not record[low]:
+                record[low] = value
+                continue
+            if key not in column_of:
+                column_of[key] = _unique_column(key.strip() or "property", set(passthrough))
+                passthrough.append(column_of[key])
+            record[column_of[key]] = value
+        if end is None:
+            record["read_error"] = (
+                f"unparsable:SDF record {number} (title {_snippet(title)}) could not be read: "
+                "no 'M  END' line"
+            )
+        else:
+            smiles, detail = _molblock_to_smiles("\n".join(lines[: end + 1]) + "\n")
+            if smiles is None:
+                detail = detail or _molblock_problem(lines[: end + 1]) or (
+                    "RDKit rejected the connection table"
+                )
+                record["read_error"] = (
+                    f"unparsable:SDF record {number} (title {_snippet(title)}) could not be read: "
+                    f"{detail}"
+                )
+            else:
+                record["smiles_input"] = smiles
+        records.append(record)
+    for record in records:
+        for col in passthrough:
+            record.setdefault(col, "")
+    return records, passthrough
+
+
+def assign_missing_ids(ids: list[str], rows: list[int]) -> tuple[list[str], list[str]]:
+    """Fill empty (or blank) ids with ``row-<row>``; return the ids and per-row notes."""
+    explicit = {i for i in ids if i.strip()}
+    out: list[str] = []
+    notes: list[str] = []
+    for ident, row in zip(ids, rows):
+        if ident.strip():
+            out.append(ident)
+            notes.append("")
+            continue
+        candidate = f"row-{row}"
+        suffix = 2
+        while candidate in explicit:
+            candidate = f"row-{row}-{suffix}"
+            suffix += 1
+        explicit.add(candidate)
+        out.append(candidate)
+        notes.append(f"missing_id: no id given, assigned {candidate!r}")
+    return out, notes
+
+
+def read_candidates(path: str | os.PathLike[str]) -> pd.DataFrame:
+    """Read a candidate file (CSV, SMILES or SDF) into a frame of text columns.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Candidate file; the format is chosen by extension (``.csv``, ``.smi``/``.smiles``/
+        ``.txt``, ``.sdf``/``.sd``, each optionally ``.gz``).
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per input record, in input order, with columns ``row`` (0-based input
+        position, int), ``id``, ``smiles_input``, ``name``, ``role``, ``note``, ``read_error``
+        and then the passthrough columns (all text).  ``read_error`` is ``''`` unless the
+        record itself could not be read; it has the form ``"<reason>:<message>"`` and is
+        turned into a rejection by :func:`validate`.  Empty ids are replaced by ``row-<row>``
+        and noted in ``note``.  Passthrough columns whose names clash with a column of the
+        manifest are renamed with an ``input_`` prefix.
+
+    Raises
+    ------
+    screen.errors.InputError
+        Unknown extension, text that is not UTF-8, a CSV without a ``smiles`` column (the
+        message names the file and the columns found) or an unrecoverable CSV syntax error.
+    FileNotFoundError
+        If ``path`` does not exist.
+    """
+    path = Path(path)
+    fmt, gz = _format_of(path)
+    text = _read_text(path, gz)
+    if fmt == "csv":
+        records, passthrough = _read_csv(path, text)
+    elif fmt == "smi":
+        records, passthrough = _read_smi(path, text)
+    else:
+        records, passthrough = _read_sdf(path, text)
+    rows = list(range(len(records)))
+    ids, notes = assign_missing_ids([r["id"] for r in records], rows)
+    columns: dict[str, list[Any]] = {
+        "row": rows,
+        "id": ids,
+        "smiles_input": [r["smiles_input"] for r in records],
+        "name": [r["name"] for r in records],
+        "role": [r["role"] for r in records],
+        "note": notes,
+        "read_error": [r["read_error"] for r in records],
+    }
+    for col in passthrough:
+        columns[col] = [r.get(col, "") for r in records]
+    frame = pd.DataFrame(columns)
+    frame["row"] = frame["row"].astype("int64")
+    for col in frame.columns:
+        if col != "row":
+            frame[col] = frame[col].astype(object)
+    return frame
+

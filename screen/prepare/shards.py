@@ -1,0 +1,231 @@
+"""Shards and the manifest: split the unique accepted structures, write and read the files.
+
+Examples
+--------
+>>> import pandas as pd
+>>> frame = pd.DataFrame({"status": ["ok", "ok", "rejected", "ok"], "key": ["ma", "mb", "", "ma"],
+...                       "smiles": ["C", "CC", "", "C"], "id": ["a", "b", "c", "d"]})
+>>> [list(part.key) for part in shard(frame, PrepareOptions(shard_size=1, min_shards=1))]
+[['ma'], ['mb']]
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import math
+import os
+import re
+from pathlib import Path
+
+import pandas as pd
+from rdkit import rdBase
+
+from screen.chem import KEY_RECIPE
+from screen.io import atomic_path
+from screen.io import cell_text as _text
+from screen.prepare.options import PrepareOptions
+from screen.provenance import sha256_file
+
+__all__ = ["MANIFEST_COLUMNS", "SHARD_COLUMNS", "shard", "write_prepared", "read_manifest"]
+
+#: Columns of ``manifest.csv``, in order; passthrough columns follow.
+MANIFEST_COLUMNS: tuple[str, ...] = (
+    "row",
+    "id",
+    "key",
+    "smiles_input",
+    "smiles",
+    "status",
+    "reason",
+    "error",
+    "duplicate_of",
+    "name",
+    "role",
+    "heavy_atoms",
+    "note",
+)
+
+#: Columns of every ``shard-NNN.csv``.
+SHARD_COLUMNS: tuple[str, ...] = ("key", "smiles", "id")
+
+
+#: Shard file names this stage writes (used to remove stale shards of an earlier run).
+_SHARD_FILE = re.compile(r"^shard-(\d{3,})\.csv$")
+
+
+def _shard_bounds(unique: int, options: PrepareOptions) -> list[tuple[int, int]]:
+    """Return ``[start, stop)`` index ranges of the shards for ``unique`` structures."""
+    if unique == 0:
+        return []
+    # balanced blocks (sizes differ by at most one) so that parallel shards finish together
+    count = min(unique, max(options.min_shards, math.ceil(unique / options.shard_size)))
+    base, extra = divmod(unique, count)
+    bounds: list[tuple[int, int]] = []
+    start = 0
+    for k in range(count):
+        stop = start + base + (1 if k < extra else 0)
+        bounds.append((start, stop))
+        start = stop
+    return bounds
+
+
+def shard(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) -> list[pd.DataFrame]:
+    """Split the unique accepted structures into shards.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        Output of :func:`screen.prepare.validate`.
+    options : PrepareOptions
+        ``shard_size`` and ``min_shards`` are used.
+
+    Returns
+    -------
+    list of pandas.DataFrame
+        Each with columns ``key, smiles, id`` (the id of the first ``ok`` row with that key).
+        Every unique key of an ``ok`` row appears in exactly one shard, in order of first
+        occurrence.  The number of shards is ``max(min_shards, ceil(unique / shard_size))``,
+        but never more than ``unique`` (so no shard is empty; no structures, no shards).
+        The structures are split into contiguous blocks whose sizes differ by at most
+        one, so that shards running in parallel finish at about the same time.
+
+    Raises
+    ------
+    ValueError
+        If the frame is not a validated frame, or if two different canonical SMILES share a
+        key (a hash collision -- never expected in practice).
+    """
+    missing = [c for c in ("status", "key", "smiles", "id") if c not in frame.columns]
+    if missing:
+        raise ValueError(f"shard(): the frame lacks {missing}; pass the output of validate()")
+    ok = frame[frame["status"] == "ok"]
+    seen: dict[str, str] = {}
+    keys: list[str] = []
+    smiles: list[str] = []
+    ids: list[str] = []
+    for key, smi, ident in zip(ok["key"], ok["smiles"], ok["id"]):
+        key, smi, ident = _text(key), _text(smi), _text(ident)
+        if key in seen:
+            if seen[key] != smi:
+                raise ValueError(
+                    f"shard(): key {key} is shared by two different structures "
+                    f"{seen[key]!r} and {smi!r}"
+                )
+            continue
+        seen[key] = smi
+        keys.append(key)
+        smiles.append(smi)
+        ids.append(ident)
+    shards: list[pd.DataFrame] = []
+    for start, stop in _shard_bounds(len(keys), options):
+        shards.append(
+            pd.DataFrame(
+                {
+                    "key": pd.Series(keys[start:stop], dtype=object),
+                    "smiles": pd.Series(smiles[start:stop], dtype=object),
+                    "id": pd.Series(ids[start:stop], dtype=object),
+                }
+            )
+        )
+    return shards
+
+
+def _write_text(path: Path, text: str) -> None:
+    """Write UTF-8 ``text`` to ``path`` atomically (line ends kept as given)."""
+    with atomic_path(path) as tmp:
+        with open(tmp, "w", encoding="utf-8", newline="") as handle:
+            handle.write(text)
+
+
+def _csv_text(frame: pd.DataFrame) -> str:
+    """Render a frame as CSV text (no index, ``\\n`` line ends, missing values empty)."""
+    return frame.to_csv(index=False, lineterminator="\n", na_rep="")
+
+
+def _summary(manifest: pd.DataFrame, shards: list[pd.DataFrame]) -> dict[str, int]:
+    """Count rows, accepted, rejected and unique structures."""
+    ok = manifest["status"] == "ok"
+    return {
+        "rows": int(len(manifest)),
+        "ok": int(ok.sum()),
+        "rejected": int((~ok).sum()),
+        "unique": int(sum(len(s) for s in shards)),
+        "shards": int(len(shards)),
+    }
+
+
+def write_prepared(
+    manifest: pd.DataFrame,
+    shards: list[pd.DataFrame],
+    source: Path,
+    out: Path,
+    options: PrepareOptions,
+) -> dict[str, int]:
+    """Write the shards, the sidecar and the manifest (last) into ``out``.
+
+    Parameters
+    ----------
+    manifest : pandas.DataFrame
+        Output of :func:`screen.prepare.validate`.
+    shards : list of pandas.DataFrame
+        Output of :func:`shard`.
+    source : pathlib.Path
+        The candidate file (its path and SHA-256 go into the sidecar).
+    out : pathlib.Path
+        Output directory, created if needed.  Shard files of an earlier run beyond the new
+        shard count are removed.  Every write is atomic; ``manifest.csv`` is written last so
+        that its presence means the stage finished.
+    options : PrepareOptions
+        Recorded in the sidecar.
+
+    Returns
+    -------
+    dict
+        ``{'rows', 'ok', 'rejected', 'unique', 'shards'}`` counts (ints).
+    """
+    out.mkdir(parents=True, exist_ok=True)
+    names = [f"shard-{k:03d}.csv" for k in range(len(shards))]
+    for name, part in zip(names, shards):
+        _write_text(out / name, _csv_text(part))
+    keep = set(names)
+    for entry in sorted(os.listdir(out)):
+        if _SHARD_FILE.match(entry) and entry not in keep and (out / entry).is_file():
+            (out / entry).unlink()
+
+    summary = _summary(manifest, shards)
+    meta = {
+        "stage": "prepare",
+        "input": {"path": str(source), "sha256": sha256_file(source)},
+        "rdkit_version": rdBase.rdkitVersion,
+        "options": dataclasses.asdict(options),
+        "counts": summary,
+        "shards": [{"file": n, "structures": len(s)} for n, s in zip(names, shards)],
+        "manifest_columns": list(manifest.columns),
+        "key": KEY_RECIPE,
+    }
+    _write_text(out / "manifest.meta.json", json.dumps(meta, indent=2) + "\n")
+    _write_text(out / "manifest.csv", _csv_text(manifest))
+    return summary
+
+
+def read_manifest(path: str | os.PathLike[str]) -> pd.DataFrame:
+    """Read a ``manifest.csv`` back with every column as text (ids like ``NA`` survive).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        A manifest written by :func:`prepare`.
+
+    Returns
+    -------
+    pandas.DataFrame
+        All columns as text except ``row`` (int) and ``heavy_atoms`` (nullable int).
+    """
+    frame = pd.read_csv(path, dtype=str, keep_default_na=False)
+    if "row" in frame.columns:
+        frame["row"] = frame["row"].astype("int64")
+    if "heavy_atoms" in frame.columns:
+        frame["heavy_atoms"] = pd.to_numeric(frame["heavy_atoms"].replace("", None)).astype("Int64")
+    return frame
+

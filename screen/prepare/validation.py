@@ -1,0 +1,204 @@
+"""Row validation: every input row gets a status, a reason code and a specific message.
+
+:func:`validate` runs the structure checks of :mod:`screen.prepare.checks` on each row, then
+the row-level checks (role, repeated id), assigns the structure key and marks duplicate
+structures.  One row's problem never stops the batch.
+
+Examples
+--------
+>>> import pandas as pd
+>>> out = validate(pd.DataFrame({"id": ["a", "b"], "smiles_input": ["OCC", "C1CC"]}))
+>>> list(out.status), list(out.reason), out.smiles[0]
+(['ok', 'rejected'], ['', 'unparsable'], 'CCO')
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+
+import pandas as pd
+
+from screen.chem import structure_key
+from screen.io import cell_text as _text
+from screen.prepare.checks import REASON_CODES, _Checked, _check_structure
+from screen.prepare.checks import snippet as _snippet
+from screen.prepare.options import PrepareOptions
+from screen.prepare.readers import assign_missing_ids as _assign_missing_ids
+from screen.prepare.shards import MANIFEST_COLUMNS
+
+__all__ = ["validate"]
+
+_ROLES: frozenset[str] = frozenset({"donor", "acceptor", ""})
+
+
+def _join_notes(*parts: Iterable[str] | str) -> str:
+    """Join note items with ``"; "``, skipping empty and repeated ones (order kept)."""
+    items: list[str] = []
+    for part in parts:
+        if isinstance(part, str):
+            part = part.split("; ") if part else []
+        items.extend(p for p in part if p and p not in items)
+    return "; ".join(items)
+
+
+def validate(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) -> pd.DataFrame:
+    """Check every row, canonicalise accepted structures and mark duplicates.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        Output of :func:`screen.prepare.read_candidates`, or any frame with an ``id`` column and a
+        ``smiles_input`` (or ``smiles``) column; ``row``, ``name``, ``role``, ``note`` and
+        ``read_error`` are optional.  Columns previously written by this function are
+        recomputed, so validating a manifest again is safe.
+    options : PrepareOptions
+        Limits and allowed elements.
+
+    Returns
+    -------
+    pandas.DataFrame
+        A new frame, same rows in the same order, with the columns of
+        :data:`MANIFEST_COLUMNS` followed by the passthrough columns: ``key`` (``''`` unless
+        ``ok``), ``smiles`` (canonical isomeric SMILES, filled whenever the structure could be
+        canonicalised, also for ``too_many_atoms`` and id/role rejections), ``heavy_atoms``
+        (nullable int), ``status`` (``'ok'`` or ``'rejected'``), ``reason`` (see the module
+        docstring), ``error`` (specific message, ``''`` if ok), ``duplicate_of`` (id of the
+        first ``ok`` row with the same key, ``''`` otherwise) and ``note``.
+
+    Raises
+    ------
+    ValueError
+        If the frame has neither ``smiles_input`` nor ``smiles``, or no ``id`` column.
+    """
+    smiles_col = _smiles_column(frame)
+    n = len(frame)
+    try:
+        rows = [int(r) for r in frame["row"]] if "row" in frame.columns else list(range(n))
+    except (TypeError, ValueError):
+        rows = list(range(n))
+
+    def column(name: str) -> list[str]:
+        return [_text(v) for v in frame[name]] if name in frame.columns else [""] * n
+
+    smiles_in = column(smiles_col)
+    ids, id_notes = _assign_missing_ids(column("id"), rows)
+    prior_notes = column("note")
+    roles_raw = column("role")
+    read_errors = column("read_error")
+    out: dict[str, list] = {name: [] for name in _OUTPUT_COLUMNS}
+    first_row_of_id: dict[str, int] = {}
+    first_id_of_key: dict[str, str] = {}
+    for i in range(n):
+        ident = ids[i]
+        role = roles_raw[i].strip().lower()
+        checked, reason, error = _check_row(
+            smiles_in[i], read_errors[i], roles_raw[i], ident, first_row_of_id, options
+        )
+        first_row_of_id.setdefault(ident, rows[i])
+        key = ""
+        duplicate_of = ""
+        if not reason:
+            key = structure_key(checked.smiles)
+            if key in first_id_of_key:
+                duplicate_of = first_id_of_key[key]
+            else:
+                first_id_of_key[key] = ident
+        out["key"].append(key)
+        out["smiles"].append(checked.smiles)
+        out["status"].append("rejected" if reason else "ok")
+        out["reason"].append(reason)
+        out["error"].append(error)
+        out["duplicate_of"].append(duplicate_of)
+        out["role"].append(role if role in _ROLES else roles_raw[i])
+        out["heavy_atoms"].append(checked.heavy_atoms)
+        out["note"].append(_join_notes(_join_notes(prior_notes[i], [id_notes[i]]), checked.notes))
+    return _assemble(frame, smiles_col, rows, ids, smiles_in, column("name"), out)
+
+
+#: Columns :func:`validate` computes row by row.
+_OUTPUT_COLUMNS = ("key", "smiles", "status", "reason", "error", "duplicate_of", "role",
+                   "heavy_atoms", "note")
+
+
+def _smiles_column(frame: pd.DataFrame) -> str:
+    """Name of the column holding the input SMILES; check that the frame has an id column."""
+    if "smiles_input" in frame.columns:
+        smiles_col = "smiles_input"
+    elif "smiles" in frame.columns:
+        smiles_col = "smiles"
+    else:
+        raise ValueError(
+            f"validate(): the frame needs a 'smiles_input' or 'smiles' column; "
+            f"columns found: {list(frame.columns)}"
+        )
+    if "id" not in frame.columns:
+        raise ValueError(
+            f"validate(): the frame needs an 'id' column; columns found: {list(frame.columns)}"
+        )
+    return smiles_col
+
+
+def _check_row(
+    smiles: str,
+    read_error: str,
+    role_raw: str,
+    ident: str,
+    first_row_of_id: dict[str, int],
+    options: PrepareOptions,
+) -> tuple[_Checked, str, str]:
+    """Check one row: read error, structure, role, repeated id.
+
+    Returns the structure check result and the row's reason code and message (``''`` if ok).
+    Any unexpected exception becomes ``internal_error``: the batch goes on.
+    """
+    checked = _Checked()
+    reason = ""
+    error = ""
+    try:
+        if read_error:
+            code, _, message = read_error.partition(":")
+            reason, error = (code, message) if code in REASON_CODES and message else (
+                "unparsable",
+                read_error,
+            )
+        else:
+            checked = _check_structure(smiles, options)
+            reason, error = checked.reason, checked.error
+        if not reason and role_raw.strip().lower() not in _ROLES:
+            reason = "bad_role"
+            error = f"role {_snippet(role_raw)} is not one of 'donor', 'acceptor' or empty"
+        if not reason and ident in first_row_of_id:
+            first = first_row_of_id[ident]
+            reason = "duplicate_id"
+            error = (
+                f"id {_snippet(ident)} is already used by row {first} (0-based, as in the "
+                "'row' column); ids must be unique, so this row is not screened"
+            )
+    except Exception as exc:  # the batch goes on whatever happens to one row
+        reason = "internal_error"
+        error = f"unexpected {type(exc).__name__} while checking this row: {exc}"
+    return checked, reason, error
+
+
+def _assemble(
+    frame: pd.DataFrame,
+    smiles_col: str,
+    rows: list[int],
+    ids: list[str],
+    smiles_in: list[str],
+    names: list[str],
+    out: dict[str, list],
+) -> pd.DataFrame:
+    """Build the manifest frame: :data:`MANIFEST_COLUMNS`, then the passthrough columns."""
+    data = {"row": pd.Series(rows, dtype="int64"), "id": pd.Series(ids, dtype=object),
+            "smiles_input": pd.Series(smiles_in, dtype=object),
+            "name": pd.Series(names, dtype=object)}
+    for name, values in out.items():
+        data[name] = pd.Series(values, dtype="Int64" if name == "heavy_atoms" else object)
+    result = pd.DataFrame({name: data[name] for name in MANIFEST_COLUMNS})
+    own = set(MANIFEST_COLUMNS) | {"read_error", smiles_col}
+    for col in frame.columns:
+        if col not in own:
+            result[col] = [_text(v) for v in frame[col]]
+            result[col] = result[col].astype(object)
+    return result
