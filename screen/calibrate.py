@@ -63,8 +63,9 @@ import numpy as np
 import pandas as pd
 from rdkit import Chem, RDLogger
 
-from screen.config import protocol, protocol_id
+from screen.config import Config
 from screen.io import write_json
+from screen.provenance import provenance
 
 __all__ = [
     "PROPERTIES",
@@ -279,14 +280,20 @@ def reference_hash(reference_dir: str | Path) -> str:
     return h.hexdigest()
 
 
-def fingerprint(config: dict, reference_dir: str | Path) -> dict:
-    """What a model depends on: protocol, engine version (major.minor), reference data."""
-    from screen.stages import provenance
+def fingerprint(config, reference_dir: str | Path) -> dict:
+    """What a model depends on: protocol, engine version (major.minor), reference data.
 
-    prov = provenance(config)
-    engine = config.get("electronic", {}).get("engine", "tblite")
-    ver = prov["versions"].get(engine, "absent")
-    return {"protocol_id": protocol_id(config), "protocol": protocol(config),
+    Parameters
+    ----------
+    config : Config or mapping
+        The run configuration (its protocol sections matter).
+    reference_dir : path-like
+        Folder of the reference sets.
+    """
+    cfg = Config.of(config)
+    prov = provenance(cfg)
+    ver = prov["versions"].get(cfg.electronic.engine, "absent")
+    return {"protocol_id": cfg.protocol_id, "protocol": cfg.protocol,
             "engine_version": ".".join(ver.split(".")[:2]), "reference_sha256": reference_hash(reference_dir)}
 
 
@@ -428,7 +435,7 @@ def _compare(found: dict, expected: dict) -> list[str]:
             for k in ("protocol_id", "engine_version", "reference_sha256") if found.get(k) != expected.get(k)]
 
 
-def load_models(model_dir: str | Path, config: dict | None = None, reference_dir: str | Path | None = None,
+def load_models(model_dir: str | Path, config=None, reference_dir: str | Path | None = None,
                 check: bool = True) -> dict[str, dict]:
     """Load the five model files of one folder and check their fingerprint.
 
@@ -436,7 +443,7 @@ def load_models(model_dir: str | Path, config: dict | None = None, reference_dir
     ----------
     model_dir : path-like
         ``models/<protocol-id>`` folder.
-    config : dict, optional
+    config : Config or mapping, optional
         Run configuration; with ``check`` the fingerprint must match it.
     reference_dir : path-like, optional
         Reference data whose hash must match (default: the config's).
@@ -455,9 +462,7 @@ def load_models(model_dir: str | Path, config: dict | None = None, reference_dir
             raise CalibrationError(f"calibration model {path} is missing; run `dascreen calibrate`")
         models[name] = json.loads(path.read_text(encoding="utf-8"))
     if check and config is not None:
-        from screen.config import resolve
-
-        cfg = resolve(config)
+        cfg = Config.of(config)
         ref = reference_dir or cfg["calibration"]["reference"]
         expected = fingerprint(cfg, ref)
         for name, model in models.items():
@@ -468,12 +473,16 @@ def load_models(model_dir: str | Path, config: dict | None = None, reference_dir
     return models
 
 
-def find_models(config: dict) -> Path | None:
-    """The shipped model folder matching ``config``, or ``None`` when a refit is needed."""
-    from screen.config import resolve
+def find_models(config) -> Path | None:
+    """The shipped model folder matching ``config``, or ``None`` when a refit is needed.
 
-    cfg = resolve(config)
-    folder = Path(cfg["calibration"]["models"]) / protocol_id(cfg)
+    Parameters
+    ----------
+    config : Config or mapping
+        The run configuration (``calibration.models`` and the protocol).
+    """
+    cfg = Config.of(config)
+    folder = Path(cfg["calibration"]["models"]) / cfg.protocol_id
     try:
         load_models(folder, cfg)
     except CalibrationError:

@@ -21,13 +21,14 @@ from pathlib import Path
 import yaml
 
 from screen import __version__
-from screen.config import ConfigError, load_config
+from screen.config import Config, merge
+from screen.errors import ConfigError, DascreenError, InputError, exit_code
 
 __all__ = ["main", "build_parser"]
 
 WORKFLOW = Path(__file__).parent / "workflow" / "Snakefile"
 
-EXIT_OK, EXIT_ERROR, EXIT_CONFIG, EXIT_STRICT = 0, 1, 2, 3
+EXIT_OK, EXIT_ERROR, EXIT_STRICT = 0, 1, 3
 
 
 def _parse_set(items: list[str]) -> dict:
@@ -45,12 +46,24 @@ def _parse_set(items: list[str]) -> dict:
     return out
 
 
-def _load(args, extra: dict) -> dict:
-    overrides = _parse_set(getattr(args, "set", []))
+def _drop_none(extra: dict) -> dict:
+    out = {}
     for key, value in extra.items():
+        if isinstance(value, dict):
+            value = _drop_none(value)
         if value is not None:
-            overrides[key] = value
-    return load_config(getattr(args, "config", None), overrides)
+            out[key] = value
+    return out
+
+
+def _load(args, extra: dict) -> Config:
+    """The process's one :class:`Config`: config file, then ``--set``, then ``extra`` (None values skipped).
+
+    The data folders become absolute paths (the workflow runs in the output folder).
+    """
+    overrides = _parse_set(getattr(args, "set", []))
+    merge(overrides, _drop_none(extra))
+    return Config.load(getattr(args, "config", None), overrides).with_paths(data_path)
 
 
 def _print_summary(levels_csv: Path) -> dict:
@@ -77,8 +90,8 @@ def cmd_run(args) -> int:
     if not candidates.is_file():
         raise ConfigError(f"candidates file {str(candidates)!r} does not exist")
     out = Path(args.out).resolve()
-    cfg = _absolute_paths(_load(args, {"candidates": str(candidates.resolve()), "out": str(out),
-                                       "partner": _partner_arg(args.partner), "strict": True if args.strict else None}))
+    cfg = _load(args, {"candidates": str(candidates.resolve()), "out": str(out),
+                       "partner": _partner_arg(args.partner), "strict": True if args.strict else None})
     rc = _snakemake(cfg, out, args.cores, [], args.snakemake_args, args.dry_run, args.profile)
     if rc != 0:
         print(f"dascreen: the workflow stopped with exit code {rc}; see the log above and {out}/logs/",
@@ -103,7 +116,7 @@ def data_path(path: str | Path) -> Path:
     return Path(__file__).resolve().parent.parent / path
 
 
-def _snakemake(cfg: dict, out: Path, cores: int, targets: list[str], extra: list[str] | None = None,
+def _snakemake(cfg: Config, out: Path, cores: int, targets: list[str], extra: list[str] | None = None,
                dry_run: bool = False, profile: str | None = None) -> int:
     """Write the resolved config into ``out`` and run the packaged workflow on it."""
     import fcntl
@@ -117,7 +130,7 @@ def _snakemake(cfg: dict, out: Path, cores: int, targets: list[str], extra: list
     except BlockingIOError:
         raise ConfigError(f"another dascreen run is using {out}; wait for it or choose another --out") from None
     cfg_file = out / "config.yaml"
-    cfg_file.write_text(yaml.safe_dump(cfg, sort_keys=False), encoding="utf-8")
+    cfg_file.write_text(yaml.safe_dump(cfg.to_dict(), sort_keys=False), encoding="utf-8")
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(WORKFLOW), "--directory", str(out),
            "--configfile", str(cfg_file), "--cores", str(cores), "--rerun-incomplete", "--show-failed-logs"]
     locks = out / ".snakemake" / "locks"
@@ -151,12 +164,6 @@ def _report_progress(out: Path, stop: threading.Event, every_s: float = 60.0) ->
                 pass
 
 
-def _absolute_paths(cfg: dict) -> dict:
-    for key in ("models", "reference"):
-        cfg["calibration"][key] = str(data_path(cfg["calibration"][key]))
-    return cfg
-
-
 def cmd_calibrate(args) -> int:
     """Compute the reference molecules with the run's protocol and fit the models."""
     import shutil
@@ -164,14 +171,13 @@ def cmd_calibrate(args) -> int:
     import pandas as pd
 
     from screen.calibrate import load_models, stats_table
-    from screen.config import protocol_id
 
     out = Path(args.out).resolve()
     overrides = {"out": str(out), "calibration": {"refit": "always"}}
     if args.reference:
         overrides["calibration"]["reference"] = str(Path(args.reference).resolve())
-    cfg = _absolute_paths(_load(args, overrides))
-    pid = protocol_id(cfg)
+    cfg = _load(args, overrides)
+    pid = cfg.protocol_id
     target = out / "models" / pid
     rc = _snakemake(cfg, out, args.cores, [str(target)])
     if rc != 0:
@@ -227,7 +233,7 @@ def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
     print(f"dascreen: ranking -> {ranking_csv}")
 
 
-def _print_ranking_of_run(cfg: dict, out: Path) -> None:
+def _print_ranking_of_run(cfg: Config, out: Path) -> None:
     from screen.partners import PartnerError, partner_slug
 
     try:
@@ -250,13 +256,7 @@ def cmd_rank(args) -> int:
     if args.config is None and (out / "config.yaml").is_file():
         args.config = str(out / "config.yaml")  # the run's own settings, so smiles: partners share its protocol
         print(f"dascreen: using the run's configuration {args.config}")
-    from screen.config import resolve
-
-    cfg = _load(args, {})
-    for key, value in (("role", args.role), ("sort_by", args.sort_by), ("target_pce_pct", args.target_pce)):
-        if value is not None:
-            cfg["rank"][key] = value
-    cfg = _absolute_paths(resolve(cfg, "command line"))
+    cfg = _load(args, {"rank": {"role": args.role, "sort_by": args.sort_by, "target_pce_pct": args.target_pce}})
     partner = args.partner or cfg["partner"]
     try:
         path = run_rank(levels, partner, out, cfg, models_dir=args.models)
@@ -301,7 +301,7 @@ def _progress_line(p: dict) -> str:
 
 def cmd_config(args) -> int:
     """Print the default configuration."""
-    print(yaml.safe_dump(load_config(None), sort_keys=False), end="")
+    print(yaml.safe_dump(Config.load(None).to_dict(), sort_keys=False), end="")
     return EXIT_OK
 
 
@@ -410,13 +410,13 @@ def main(argv: list[str] | None = None) -> int:
     args.snakemake_args = passthrough
     try:
         return args.func(args)
-    except ConfigError as exc:
-        print(f"dascreen: configuration error: {exc}", file=sys.stderr)
-        return EXIT_CONFIG
-    except (FileNotFoundError, ValueError) as exc:
+    except DascreenError as exc:  # refused input or a failed calculation: one message, no traceback
+        kind = "configuration error" if isinstance(exc, ConfigError) else "error"
+        print(f"dascreen: {kind}: {exc}", file=sys.stderr)
+        return exit_code(exc)
+    except FileNotFoundError as exc:  # a named file that does not exist is the user's input, not a bug
         print(f"dascreen: error: {exc}", file=sys.stderr)
-        return EXIT_CONFIG
-
+        return exit_code(InputError(str(exc)))
 
 if __name__ == "__main__":
     sys.exit(main())

@@ -1,7 +1,14 @@
-"""Run configuration: one JSON schema, defaults filled, one clear error.
+"""The run configuration: one :class:`Config` object per process.
 
-The schema ``screen/workflow/schemas/config.schema.yaml`` is the single source
-of every option and its default; the Snakefile validates against the same file.
+Each process boundary builds exactly one :class:`Config` — the ``dascreen``
+command, every ``python -m screen.stages`` job and the workflow's
+``rules/common.smk`` — validated once against
+``screen/workflow/schemas/config.schema.yaml`` (:mod:`screen.schema`), with
+typed sections for the stages (``cfg.structures``, ``cfg.electronic``,
+``cfg.execution``), dict-like access to every section (``cfg["rank"]``) and
+the protocol and its id computed once.  Functions that accept a configuration
+take a :class:`Config`; given a plain dict they build one
+(:meth:`Config.of`), which is a no-op for a :class:`Config`.
 """
 
 from __future__ import annotations
@@ -9,152 +16,225 @@ from __future__ import annotations
 import copy
 import hashlib
 import json
-from functools import lru_cache
+from collections.abc import Callable, Iterator, Mapping
+from functools import cached_property
 from pathlib import Path
 
-import jsonschema
 import yaml
 
-__all__ = ["SCHEMA_PATH", "ConfigError", "load_config", "resolve", "defaults", "section_defaults", "protocol",
-           "protocol_id"]
+from screen.errors import ConfigError
+from screen.options import ElectronicOptions, ExecutionOptions, StructureOptions
+from screen.schema import SCHEMA_PATH, defaults, resolve, section_defaults
 
-SCHEMA_PATH = Path(__file__).parent / "workflow" / "schemas" / "config.schema.yaml"
-
-
-from screen.errors import ConfigError  # noqa: E402  (re-exported: the error lives on the ground floor)
-
-
-@lru_cache(maxsize=1)
-def _schema() -> dict:
-    return yaml.safe_load(SCHEMA_PATH.read_text(encoding="utf-8"))
+__all__ = ["SCHEMA_PATH", "ConfigError", "Config", "load_config", "read_config_file", "merge", "resolve", "defaults", "section_defaults",
+           "protocol", "protocol_id"]
 
 
-def _fill_defaults(node: dict, schema: dict) -> None:
-    for name, sub in schema.get("properties", {}).items():
-        if name not in node and "default" in sub:
-            node[name] = copy.deepcopy(sub["default"])
-        if isinstance(node.get(name), dict) and sub.get("type") == "object":
-            _fill_defaults(node[name], sub)
+class Config(Mapping):
+    """A validated run configuration with every default filled in.
 
-
-def _describe(error: jsonschema.ValidationError) -> str:
-    field = ".".join(str(p) for p in error.absolute_path) or "(top level)"
-    schema = error.schema if isinstance(error.schema, dict) else {}
-    allowed = ""
-    if "enum" in schema:
-        allowed = f"; allowed values: {', '.join(map(str, schema['enum']))}"
-    elif error.validator == "additionalProperties":
-        props = sorted(error.schema.get("properties", {}))
-        allowed = f"; allowed fields: {', '.join(props)}"
-    return f"field {field}: {error.message}{allowed}"
-
-
-def resolve(config: dict | None, source: str = "configuration") -> dict:
-    """Validate ``config`` and return a copy with every default filled in.
+    Build it with :meth:`Config.of` (a mapping), :meth:`Config.load` (a YAML
+    file plus overrides) or :meth:`Config.from_json` (a job's ``--config``).
+    It is read-only by convention: the sections returned by ``cfg[name]`` are
+    the stored dicts, so derive a changed configuration with
+    :meth:`with_overrides` instead of editing them.
 
     Parameters
     ----------
-    config : dict or None
-        Partial configuration.
+    config : mapping or None
+        Partial configuration (validated and completed here).
     source : str
-        Where it came from, for the error message (a file name).
-
-    Raises
-    ------
-    ConfigError
-        Naming ``source``, the field and the allowed values.
+        Where it came from, for error messages (a file name).
 
     Examples
     --------
-    >>> cfg = resolve({"device": {"eqe": 0.5}})
-    >>> cfg["device"]["eqe"], cfg["device"]["ff"]
-    (0.5, 0.65)
-    >>> resolve({"device": {"absorber": "acceptor"}})
-    Traceback (most recent call last):
-    ...
-    screen.errors.ConfigError: configuration: field device.absorber: 'acceptor' is not one of ['donor', 'both']; allowed values: donor, both
+    >>> cfg = Config.of({"structures": {"geometry": "xtb"}})
+    >>> cfg.structures.geometry, cfg["device"]["eqe"]
+    ('xtb', 0.65)
+    >>> cfg.protocol_id.startswith("tblite-gfn2-xtb-")
+    True
+    >>> Config.of(cfg) is cfg
+    True
     """
-    cfg = copy.deepcopy(config or {})
-    schema = _schema()
-    validator = jsonschema.Draft202012Validator(schema)
-    errors = sorted(validator.iter_errors(cfg), key=lambda e: list(e.absolute_path))
-    if errors:
-        raise ConfigError(f"{source}: " + "; ".join(_describe(e) for e in errors))
-    _fill_defaults(cfg, schema)
-    errors = sorted(validator.iter_errors(cfg), key=lambda e: list(e.absolute_path))
-    if errors:  # a default that breaks the schema is a bug here, still say it clearly
-        raise ConfigError(f"{source} (after defaults): " + "; ".join(_describe(e) for e in errors))
-    return cfg
 
+    def __init__(self, config: Mapping | None = None, source: str = "configuration"):
+        self._data = resolve(dict(config or {}), source)
+        self.source = source
 
-def section_defaults(section: str) -> dict:
-    """Defaults of one schema section: the single source of an options dataclass's defaults.
+    @classmethod
+    def of(cls, config: Mapping | None, source: str = "configuration") -> Config:
+        """``config`` itself if it is a :class:`Config`, else a new one built from it."""
+        return config if isinstance(config, Config) else cls(config, source)
 
-    Examples
-    --------
-    >>> section_defaults("prepare")["min_shards"]
-    4
-    """
-    return copy.deepcopy(defaults()[section])
+    @classmethod
+    def from_json(cls, text: str, source: str = "workflow configuration") -> Config:
+        """From JSON text (the ``--config`` argument of a stage job).
 
-
-def defaults() -> dict:
-    """The complete default configuration."""
-    return resolve({})
-
-
-def load_config(path: str | Path | None = None, overrides: dict | None = None) -> dict:
-    """Read a YAML config file, apply ``overrides`` (nested dict), validate.
-
-    Raises
-    ------
-    ConfigError
-        Unreadable file or invalid content (message names the file and field).
-    """
-    cfg: dict = {}
-    source = "configuration"
-    if path is not None:
-        source = str(path)
+        Examples
+        --------
+        >>> Config.from_json('{"levels": {"scale": "gas"}}')["levels"]["scale"]
+        'gas'
+        """
         try:
-            cfg = yaml.safe_load(Path(path).read_text(encoding="utf-8")) or {}
-        except (OSError, yaml.YAMLError) as exc:
-            raise ConfigError(f"{path}: cannot read the config file: {exc}") from exc
-        if not isinstance(cfg, dict):
-            raise ConfigError(f"{path}: the config file must hold a mapping of fields, not {type(cfg).__name__}")
-    _merge(cfg, overrides or {})
-    return resolve(cfg, source)
+            data = json.loads(text)
+        except json.JSONDecodeError as exc:
+            raise ConfigError(f"{source}: not valid JSON: {exc}") from exc
+        return cls(data, source)
+
+    @classmethod
+    def load(cls, path: str | Path | None = None, overrides: Mapping | None = None) -> Config:
+        """Read a YAML config file, apply ``overrides`` (nested mapping), validate.
+
+        Raises
+        ------
+        ConfigError
+            Unreadable file or invalid content (message names the file and field).
+        """
+        cfg = read_config_file(path)
+        merge(cfg, overrides or {})
+        return cls(cfg, "configuration" if path is None else str(path))
+
+    def with_overrides(self, overrides: Mapping, source: str | None = None) -> Config:
+        """A new configuration: this one with ``overrides`` (nested mapping) merged in.
+
+        Examples
+        --------
+        >>> Config.of({}).with_overrides({"rank": {"role": "donor"}})["rank"]["role"]
+        'donor'
+        """
+        data = self.to_dict()
+        merge(data, overrides)
+        return Config(data, source or self.source)
+
+    def with_paths(self, locate: Callable[[str], str | Path]) -> Config:
+        """A copy whose data folders (``calibration.models``, ``calibration.reference``) are ``locate(path)``.
+
+        Only path text changes, so the copy needs no new validation (the
+        ``dascreen`` command makes them absolute before the workflow runs in
+        another directory).
+
+        Examples
+        --------
+        >>> Config.of({}).with_paths(lambda p: "/data/" + p)["calibration"]["models"]
+        '/data/models'
+        """
+        data = self.to_dict()
+        for key in ("models", "reference"):
+            data["calibration"][key] = str(locate(data["calibration"][key]))
+        new = Config.__new__(Config)
+        new._data, new.source = data, self.source
+        return new
+
+    # ------------------------------------------------------------------ mapping protocol
+    def __getitem__(self, name: str):
+        return self._data[name]
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._data)
+
+    def __len__(self) -> int:
+        return len(self._data)
+
+    def __repr__(self) -> str:
+        return f"Config({self.source!r}, protocol {self.protocol_id})"
+
+    def to_dict(self) -> dict:
+        """A deep plain-dict copy (for YAML/JSON dumps)."""
+        return copy.deepcopy(self._data)
+
+    def sections(self, *names: str) -> dict:
+        """A plain-dict copy of some sections (what a workflow job gets as ``--config``)."""
+        return {n: copy.deepcopy(self._data[n]) for n in names}
+
+    # ------------------------------------------------------------------ typed sections
+    @cached_property
+    def structures(self) -> StructureOptions:
+        """The ``structures`` section as :class:`screen.options.StructureOptions`."""
+        return StructureOptions.from_mapping(self._data["structures"])
+
+    @cached_property
+    def electronic(self) -> ElectronicOptions:
+        """The ``electronic`` section as :class:`screen.options.ElectronicOptions`."""
+        return ElectronicOptions.from_mapping(self._data["electronic"])
+
+    @cached_property
+    def execution(self) -> ExecutionOptions:
+        """The ``execution`` section as :class:`screen.options.ExecutionOptions`."""
+        return ExecutionOptions(**self._data["execution"])
+
+    # ------------------------------------------------------------------ protocol
+    @cached_property
+    def protocol(self) -> dict:
+        """The settings that determine the computed numbers (structures + electronic).
+
+        Partner, device and ranking settings are deliberately absent: changing
+        them must never invalidate the quantum chemistry or the calibration.
+        """
+        electronic = {k: v for k, v in self._data["electronic"].items() if k != "threads"}
+        return copy.deepcopy({"structures": self._data["structures"], "electronic": electronic})
+
+    @cached_property
+    def protocol_id(self) -> str:
+        """Short readable id of the protocol, e.g. ``tblite-gfn2-ff-1a2b3c4d``."""
+        proto = self.protocol
+        digest = hashlib.sha256(json.dumps(proto, sort_keys=True).encode()).hexdigest()[:8]
+        el = proto["electronic"]
+        method = el["method"].lower().replace("-xtb", "")
+        solv = f"-{el['solvent']}" if el["solvent"] else ""
+        return f"{el['engine']}-{method}-{proto['structures']['geometry']}{solv}-{digest}"
 
 
-def _merge(base: dict, extra: dict) -> None:
+def merge(base: dict, extra: Mapping) -> None:
+    """Merge the nested mapping ``extra`` into ``base`` in place (``extra`` wins).
+
+    Examples
+    --------
+    >>> base = {"rank": {"role": None, "seed": 1}}
+    >>> merge(base, {"rank": {"role": "donor"}}); base
+    {'rank': {'role': 'donor', 'seed': 1}}
+    """
     for key, value in extra.items():
-        if isinstance(value, dict) and isinstance(base.get(key), dict):
-            _merge(base[key], value)
+        if isinstance(value, Mapping) and isinstance(base.get(key), dict):
+            merge(base[key], value)
         else:
             base[key] = copy.deepcopy(value)
 
 
-def protocol(config: dict) -> dict:
-    """The settings that determine the computed numbers (structures + electronic).
+def read_config_file(path: str | Path | None) -> dict:
+    """The mapping of a YAML config file (not yet validated); ``{}`` for ``None``.
 
-    Partner, device and ranking settings are deliberately absent: changing them
-    must never invalidate the quantum chemistry or the calibration.
+    Raises
+    ------
+    ConfigError
+        Unreadable file, invalid YAML or not a mapping (the message names the file).
     """
-    cfg = resolve(config)
-    electronic = {k: v for k, v in cfg["electronic"].items() if k != "threads"}
-    return {"structures": cfg["structures"], "electronic": electronic}
+    if path is None:
+        return {}
+    try:
+        cfg = yaml.safe_load(Path(path).read_text(encoding="utf-8")) or {}
+    except (OSError, yaml.YAMLError) as exc:
+        raise ConfigError(f"{path}: cannot read the config file: {exc}") from exc
+    if not isinstance(cfg, dict):
+        raise ConfigError(f"{path}: the config file must hold a mapping of fields, not {type(cfg).__name__}")
+    return cfg
 
 
-def protocol_id(config: dict) -> str:
-    """Short readable id of the protocol, e.g. ``tblite-gfn2-ff-1a2b3c4d``.
+def load_config(path: str | Path | None = None, overrides: Mapping | None = None) -> Config:
+    """Read a YAML config file, apply ``overrides``, validate: :meth:`Config.load`."""
+    return Config.load(path, overrides)
+
+
+def protocol(config: Mapping | None) -> dict:
+    """The protocol of a configuration (:attr:`Config.protocol`)."""
+    return Config.of(config).protocol
+
+
+def protocol_id(config: Mapping | None) -> str:
+    """Short readable id of the protocol (:attr:`Config.protocol_id`).
 
     Examples
     --------
     >>> protocol_id({}).startswith("tblite-gfn2-ff-")
     True
     """
-    proto = protocol(config)
-    digest = hashlib.sha256(json.dumps(proto, sort_keys=True).encode()).hexdigest()[:8]
-    el = proto["electronic"]
-    method = el["method"].lower().replace("-xtb", "")
-    solv = f"-{el['solvent']}" if el["solvent"] else ""
-    return f"{el['engine']}-{method}-{proto['structures']['geometry']}{solv}-{digest}"
+    return Config.of(config).protocol_id

@@ -25,7 +25,7 @@ References
 from __future__ import annotations
 
 import time
-from dataclasses import asdict, dataclass
+from dataclasses import asdict
 from pathlib import Path
 
 import numpy as np
@@ -33,9 +33,10 @@ import pandas as pd
 from rdkit import Chem
 
 from screen.constants import BOHR_ANGSTROM, HARTREE_EV
-from screen.engines import Engine, EngineError, make_engine
+from screen.engines import Engine, EngineError
 from screen.io import Journal, Progress, write_csv
 from screen.isolation import IsolatedWorker
+from screen.options import ElectronicOptions
 from screen.structures import STATUS_COLUMNS as STRUCTURE_COLUMNS
 from screen.structures import _plain, read_structures
 
@@ -48,51 +49,6 @@ ELECTRONIC_COLUMNS = (["key", "status", "error"] + RAW_COLUMNS
                       + ["xtb_energy_eh", "xtb_cation_eh", "xtb_anion_eh", "scf_rungs", "n_atoms",
                          "sp_wall_s", "smiles_computed", "truncated_chains", "n_conformers", "forcefield",
                          "geometry", "structure_wall_s"])
-
-
-@dataclass(frozen=True)
-class ElectronicOptions:
-    """Settings of the electronic stage.
-
-    Parameters
-    ----------
-    engine : {"tblite", "xtb"}
-        Backend.
-    method : {"GFN2-xTB", "GFN1-xTB", "IPEA1-xTB"}
-        Hamiltonian.
-    solvent : str or None
-        ALPB solvent for all three states (``None``: isolated molecule).
-    accuracy : float
-        SCF accuracy factor.
-    max_iter : int
-        SCF iteration limit on the first rung of the fallback ladder.
-    electronic_temperature_k : float
-        Fermi smearing temperature [K].
-    threads : int
-        OpenMP threads per job (set by the stage runner before the engine loads).
-    """
-
-    engine: str = "tblite"
-    method: str = "GFN2-xTB"
-    solvent: str | None = None
-    accuracy: float = 1.0
-    max_iter: int = 250
-    electronic_temperature_k: float = 300.0
-    threads: int = 1
-
-    def make_engine(self) -> Engine:
-        """The engine these options describe."""
-        return make_engine(self.engine, self.method, solvent=self.solvent, accuracy=self.accuracy,
-                           max_iter=self.max_iter, electronic_temperature_k=self.electronic_temperature_k)
-
-    @classmethod
-    def from_mapping(cls, mapping: dict | None) -> ElectronicOptions:
-        """Build from a config mapping, rejecting unknown keys."""
-        mapping = dict(mapping or {})
-        unknown = set(mapping) - set(asdict(cls()))
-        if unknown:
-            raise ValueError(f"unknown electronic option(s) {sorted(unknown)}; allowed: {sorted(asdict(cls()))}")
-        return cls(**mapping)
 
 
 def vertical_levels(numbers, positions_bohr, engine: Engine) -> dict:
@@ -120,7 +76,8 @@ def vertical_levels(numbers, positions_bohr, engine: Engine) -> dict:
     >>> from screen.structures import build_structure
     >>> mol, _ = build_structure("c1ccccc1")
     >>> z = [a.GetAtomicNum() for a in mol.GetAtoms()]
-    >>> r = vertical_levels(z, mol.GetConformer().GetPositions() / BOHR_ANGSTROM, make_engine())
+    >>> engine = ElectronicOptions().make_engine()
+    >>> r = vertical_levels(z, mol.GetConformer().GetPositions() / BOHR_ANGSTROM, engine)
     >>> r["xtb_ip_ev"] > r["xtb_ea_ev"], r["xtb_homo_ev"] < r["xtb_lumo_ev"]
     (True, True)
     """

@@ -22,6 +22,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from screen.config import Config
 from screen.device import DeviceModel
 from screen.partners import PartnerError, resolve_partner
 from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, rank_candidates)
@@ -214,12 +215,11 @@ def run_rank(levels_path, partner_spec: str, out_dir, config: dict | None = None
        :doi:`10.1002/adma.200501717`
     """
     from screen import __version__
-    from screen.config import protocol_id, resolve
     from screen.io import write_csv, write_json
     from screen.levels import read_levels
     from screen.partners import partner_kind
 
-    cfg = resolve(config)
+    cfg = Config.of(config)
     levels_path = Path(levels_path)
     out_dir = Path(out_dir)
     levels = read_levels(levels_path)
@@ -227,9 +227,9 @@ def run_rank(levels_path, partner_spec: str, out_dir, config: dict | None = None
     kind = partner_kind(partner_spec)
     if kind == "smiles":
         ran = (meta_in or {}).get("protocol_id")
-        if ran and ran != protocol_id(cfg):
+        if ran and ran != cfg.protocol_id:
             raise PartnerError(
-                f"partner {partner_spec!r} would be computed with protocol {protocol_id(cfg)}, but the levels in "
+                f"partner {partner_spec!r} would be computed with protocol {cfg.protocol_id}, but the levels in "
                 f"{levels_path} were computed with protocol {ran}; pass the run's configuration (e.g. "
                 f"{levels_path.parent / 'config.yaml'}) so that partner and candidates share one protocol")
         if models_dir is None:
@@ -238,8 +238,8 @@ def run_rank(levels_path, partner_spec: str, out_dir, config: dict | None = None
             from screen.calibrate import find_models
 
             models_dir = find_models(cfg)
-        if models_dir is None and (out_dir / "models" / protocol_id(cfg)).is_dir():
-            models_dir = out_dir / "models" / protocol_id(cfg)
+        if models_dir is None and (out_dir / "models" / cfg.protocol_id).is_dir():
+            models_dir = out_dir / "models" / cfg.protocol_id
     partner = resolve_partner(partner_spec, levels=levels, config=cfg,
                               cache_dir=cache_dir if cache_dir is not None else out_dir / "work" / "partners",
                               models_dir=models_dir)

@@ -12,44 +12,21 @@ import argparse
 import json
 import math
 import os
-import platform
 import sys
-from dataclasses import replace
+from dataclasses import fields, replace
 
-__all__ = ["main", "provenance"]
+from screen.config import Config
+from screen.provenance import provenance
 
-
-def provenance(config: dict) -> dict:
-    """Protocol, protocol id and library versions for sidecar files."""
-    from importlib.metadata import PackageNotFoundError, version
-
-    from screen import __version__
-    from screen.config import protocol, protocol_id
-
-    def _v(name):
-        try:
-            return version(name)
-        except PackageNotFoundError:
-            return "absent"
-
-    return {
-        "dascreen": __version__,
-        "protocol_id": protocol_id(config),
-        "protocol": protocol(config),
-        "versions": {"python": platform.python_version(), **{p: _v(p) for p in
-                     ("tblite", "xtb", "rdkit", "numpy", "pandas", "scikit-learn", "ase", "pvlib")}},
-    }
+__all__ = ["main"]
 
 
 def _prepare(args, cfg):
     from screen.prepare import PrepareOptions, prepare
 
-    popts = cfg["prepare"]
-    opts = PrepareOptions(
-        max_heavy_atoms=popts["max_heavy_atoms"], allowed_elements=tuple(popts["allowed_elements"]),
-        allow_charged=popts["allow_charged"], allow_open_shell=popts["allow_open_shell"],
-        keep_isotopes=popts["keep_isotopes"], shard_size=popts["shard_size"], min_shards=popts["min_shards"],
-    )
+    known = {f.name for f in fields(PrepareOptions)}
+    opts = PrepareOptions(**{k: tuple(v) if isinstance(v, list) else v for k, v in cfg["prepare"].items()
+                             if k in known})
     if args.max_shards:
         n_rows = _count_rows(args.input)
         opts = replace(opts, shard_size=max(opts.shard_size, math.ceil(n_rows / args.max_shards)))
@@ -63,20 +40,20 @@ def _count_rows(path) -> int:
 
 
 def _structures(args, cfg):
-    from screen.structures import options_from_mapping, run_structures
+    from screen.structures import run_structures
 
-    ex = cfg["execution"]
-    table = run_structures(args.shard, args.sdf, args.table, options_from_mapping(cfg["structures"]),
-                           isolate=ex["isolate"], timeout_s=ex["molecule_timeout_s"])
+    ex = cfg.execution
+    table = run_structures(args.shard, args.sdf, args.table, cfg.structures, isolate=ex.isolate,
+                           timeout_s=ex.molecule_timeout_s)
     print(table["status"].value_counts().to_dict())
 
 
 def _electronic(args, cfg):
-    from screen.electronic import ElectronicOptions, run_electronic
+    from screen.electronic import run_electronic
 
-    ex = cfg["execution"]
-    table = run_electronic(args.sdf, args.table, args.out, ElectronicOptions.from_mapping(cfg["electronic"]),
-                           isolate=ex["isolate"], timeout_s=ex["molecule_timeout_s"])
+    ex = cfg.execution
+    table = run_electronic(args.sdf, args.table, args.out, cfg.electronic, isolate=ex.isolate,
+                           timeout_s=ex.molecule_timeout_s)
     print(table["status"].value_counts().to_dict())
 
 
@@ -184,10 +161,8 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--cache", default="", help="cache folder of computed partners")
     args = parser.parse_args(argv)
 
-    from screen.config import resolve
-
-    cfg = resolve(json.loads(args.config), "workflow configuration")
-    os.environ["OMP_NUM_THREADS"] = str(cfg["electronic"]["threads"])
+    cfg = Config.from_json(args.config, "workflow configuration")
+    os.environ["OMP_NUM_THREADS"] = str(cfg.electronic.threads)
     handler = {"prepare": _prepare, "structures": _structures, "electronic": _electronic, "levels": _levels,
                "reference-input": _reference_input, "calibrate": _calibrate, "rank": _rank}
     handler[args.stage](args, cfg)

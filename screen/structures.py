@@ -31,7 +31,7 @@ References
 from __future__ import annotations
 
 import time
-from dataclasses import asdict, dataclass
+from dataclasses import asdict
 from pathlib import Path
 
 import numpy as np
@@ -43,6 +43,7 @@ from screen.constants import BOHR_ANGSTROM
 from screen.engines import Engine, EngineError, make_engine
 from screen.io import Journal, Progress, atomic_path, write_csv
 from screen.isolation import IsolatedWorker
+from screen.options import StructureOptions
 
 __all__ = [
     "StructureOptions",
@@ -57,64 +58,6 @@ __all__ = [
 #: columns of the per-shard structures status table
 STATUS_COLUMNS = ["key", "status", "error", "smiles_computed", "truncated_chains", "n_conformers", "embedding",
                   "forcefield", "geometry", "xtb_rank_energy_eh", "opt_converged", "wall_s"]
-
-
-@dataclass(frozen=True)
-class StructureOptions:
-    """Settings of the structures stage (all of them change the numbers).
-
-    Parameters
-    ----------
-    seed : int
-        Random seed for ETKDG.
-    conformers_base, conformers_per_rotor, conformers_max : int
-        Conformer count = min(max, base + per_rotor × rotatable bonds).
-    prune_rms_a : float
-        RMSD threshold [Å] below which ETKDG drops a conformer as a duplicate.
-    forcefield : {"mmff", "uff"}
-        Preferred force field; MMFF falls back to UFF when parameters are missing.
-    ff_max_iters : int
-        Force-field optimisation iterations.
-    geometry : {"ff", "xtb"}
-        ``ff``: keep the force-field geometry of the xTB-lowest conformer;
-        ``xtb``: optimise it further with the engine.
-    xtb_fmax_ev_a : float
-        Force convergence for the xTB optimisation [eV Å⁻¹].
-    xtb_max_steps : int
-        Optimiser step limit.
-    truncate_side_chains : bool
-        Replace pendant alkyl chains of ``truncate_min_carbons`` or more carbons by methyl.
-    truncate_min_carbons : int
-        Shortest chain that is truncated.
-    ranking_method : str
-        xTB method for ranking conformers (GFN2-xTB).
-    rank_max_conformers : int
-        At most this many conformers, the lowest by force-field energy, get an xTB single point.
-    rank_window_kcal_mol : float
-        ... and only those within this force-field energy window of the lowest [kcal/mol].
-    """
-
-    seed: int = 61453
-    conformers_base: int = 4
-    conformers_per_rotor: int = 2
-    conformers_max: int = 24
-    prune_rms_a: float = 0.3
-    forcefield: str = "mmff"
-    ff_max_iters: int = 2000
-    geometry: str = "ff"
-    xtb_fmax_ev_a: float = 0.05
-    xtb_max_steps: int = 300
-    truncate_side_chains: bool = False
-    truncate_min_carbons: int = 3
-    ranking_method: str = "GFN2-xTB"
-    rank_max_conformers: int = 6
-    rank_window_kcal_mol: float = 6.0
-
-    def __post_init__(self):
-        if self.geometry not in ("ff", "xtb"):
-            raise ValueError(f"structures.geometry must be 'ff' or 'xtb', not {self.geometry!r}")
-        if self.forcefield not in ("mmff", "uff"):
-            raise ValueError(f"structures.forcefield must be 'mmff' or 'uff', not {self.forcefield!r}")
 
 
 def conformer_count(mol: Chem.Mol, options: StructureOptions = StructureOptions()) -> int:
@@ -471,13 +414,3 @@ def read_structures(sdf_path) -> dict[str, Chem.Mol]:
     """Molecules of a structures SDF by key (hydrogens kept)."""
     supplier = Chem.SDMolSupplier(str(sdf_path), removeHs=False, sanitize=False)
     return {m.GetProp("_Name"): m for m in supplier if m is not None}
-
-
-def options_from_mapping(mapping: dict | None) -> StructureOptions:
-    """Build :class:`StructureOptions` from a config mapping, rejecting unknown keys."""
-    mapping = dict(mapping or {})
-    known = set(asdict(StructureOptions()))
-    unknown = set(mapping) - known
-    if unknown:
-        raise ValueError(f"unknown structures option(s) {sorted(unknown)}; allowed: {sorted(known)}")
-    return StructureOptions(**mapping)

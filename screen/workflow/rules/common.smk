@@ -4,10 +4,11 @@ import sys
 from pathlib import Path
 
 from screen.calibrate import find_models, reference_files
-from screen.config import protocol_id, resolve
+from screen.config import Config
 
-CFG = resolve(config, "snakemake configuration")
-PROTOCOL = protocol_id(CFG)
+# the one configuration object of the workflow process: validated once, protocol id computed once
+CFG = Config.of(config, "snakemake configuration")
+PROTOCOL = CFG.protocol_id
 PY = sys.executable
 OUT = CFG["out"]
 WORK = f"{OUT}/work"
@@ -35,7 +36,7 @@ if SHIPPED is None:
 
 def sections(*names):
     """JSON text of the config sections a job depends on (its params, so a change reruns it)."""
-    return json.dumps({n: CFG[n] for n in names}, sort_keys=True)
+    return json.dumps(CFG.sections(*names), sort_keys=True)
 
 
 def shard_ids(set_name):

@@ -1,0 +1,197 @@
+"""Typed options of the compute stages, with defaults taken from the schema.
+
+Each dataclass mirrors one section of
+``screen/workflow/schemas/config.schema.yaml``; its field defaults are read
+from :func:`screen.schema.section_defaults`, so the schema stays the single
+source of every default (``tests/test_config.py`` checks that they agree).
+:class:`screen.config.Config` hands them out as ``cfg.structures``,
+``cfg.electronic`` and ``cfg.execution``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, fields
+
+from screen.errors import ConfigError
+from screen.schema import section_defaults
+
+__all__ = ["StructureOptions", "ElectronicOptions", "ExecutionOptions", "options_from_mapping"]
+
+_S = section_defaults("structures")
+_E = section_defaults("electronic")
+_X = section_defaults("execution")
+
+
+def options_from_mapping(cls, mapping, section: str):
+    """Build the options dataclass ``cls`` from a config mapping, rejecting unknown keys.
+
+    Parameters
+    ----------
+    cls : type
+        An options dataclass.
+    mapping : mapping or None
+        The config section (missing keys take the defaults).
+    section : str
+        Section name, for the error message.
+
+    Raises
+    ------
+    ConfigError
+        A key that is not a field of ``cls`` (the message lists the allowed ones).
+
+    Examples
+    --------
+    >>> options_from_mapping(ExecutionOptions, {"isolate": False}, "execution").isolate
+    False
+    >>> options_from_mapping(ExecutionOptions, {"isolated": False}, "execution")
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: unknown execution option(s) ['isolated']; allowed: ['isolate', 'molecule_timeout_s']
+    """
+    mapping = dict(mapping or {})
+    known = sorted(f.name for f in fields(cls))
+    unknown = set(mapping) - set(known)
+    if unknown:
+        raise ConfigError(f"unknown {section} option(s) {sorted(unknown)}; allowed: {known}")
+    return cls(**mapping)
+
+
+@dataclass(frozen=True)
+class StructureOptions:
+    """Settings of the structures stage (all of them change the numbers).
+
+    Parameters
+    ----------
+    seed : int
+        Random seed for ETKDG.
+    conformers_base, conformers_per_rotor, conformers_max : int
+        Conformer count = min(max, base + per_rotor × rotatable bonds).
+    prune_rms_a : float
+        RMSD threshold [Å] below which ETKDG drops a conformer as a duplicate.
+    forcefield : {"mmff", "uff"}
+        Preferred force field; MMFF falls back to UFF when parameters are missing.
+    ff_max_iters : int
+        Force-field optimisation iterations.
+    geometry : {"ff", "xtb"}
+        ``ff``: keep the force-field geometry of the xTB-lowest conformer;
+        ``xtb``: optimise it further with the engine.
+    xtb_fmax_ev_a : float
+        Force convergence for the xTB optimisation [eV Å⁻¹].
+    xtb_max_steps : int
+        Optimiser step limit.
+    truncate_side_chains : bool
+        Replace pendant alkyl chains of ``truncate_min_carbons`` or more carbons by methyl.
+    truncate_min_carbons : int
+        Shortest chain that is truncated.
+    ranking_method : str
+        xTB method for ranking conformers (GFN2-xTB).
+    rank_max_conformers : int
+        At most this many conformers, the lowest by force-field energy, get an xTB single point.
+    rank_window_kcal_mol : float
+        ... and only those within this force-field energy window of the lowest [kcal/mol].
+
+    Examples
+    --------
+    >>> StructureOptions().geometry, StructureOptions(geometry="xtb").geometry
+    ('ff', 'xtb')
+    """
+
+    seed: int = _S["seed"]
+    conformers_base: int = _S["conformers_base"]
+    conformers_per_rotor: int = _S["conformers_per_rotor"]
+    conformers_max: int = _S["conformers_max"]
+    prune_rms_a: float = _S["prune_rms_a"]
+    forcefield: str = _S["forcefield"]
+    ff_max_iters: int = _S["ff_max_iters"]
+    geometry: str = _S["geometry"]
+    xtb_fmax_ev_a: float = _S["xtb_fmax_ev_a"]
+    xtb_max_steps: int = _S["xtb_max_steps"]
+    truncate_side_chains: bool = _S["truncate_side_chains"]
+    truncate_min_carbons: int = _S["truncate_min_carbons"]
+    ranking_method: str = _S["ranking_method"]
+    rank_max_conformers: int = _S["rank_max_conformers"]
+    rank_window_kcal_mol: float = _S["rank_window_kcal_mol"]
+
+    def __post_init__(self):
+        if self.geometry not in ("ff", "xtb"):
+            raise ConfigError(f"structures.geometry must be 'ff' or 'xtb', not {self.geometry!r}")
+        if self.forcefield not in ("mmff", "uff"):
+            raise ConfigError(f"structures.forcefield must be 'mmff' or 'uff', not {self.forcefield!r}")
+
+    @classmethod
+    def from_mapping(cls, mapping: dict | None) -> StructureOptions:
+        """Build from the ``structures`` config section, rejecting unknown keys."""
+        return options_from_mapping(cls, mapping, "structures")
+
+
+@dataclass(frozen=True)
+class ElectronicOptions:
+    """Settings of the electronic stage.
+
+    Parameters
+    ----------
+    engine : {"tblite", "xtb"}
+        Backend.
+    method : {"GFN2-xTB", "GFN1-xTB", "IPEA1-xTB"}
+        Hamiltonian.
+    solvent : str or None
+        ALPB solvent for all three states (``None``: isolated molecule).
+    accuracy : float
+        SCF accuracy factor.
+    max_iter : int
+        SCF iteration limit on the first rung of the fallback ladder.
+    electronic_temperature_k : float
+        Fermi smearing temperature [K].
+    threads : int
+        OpenMP threads per job (set by the stage runner before the engine loads).
+
+    Examples
+    --------
+    >>> ElectronicOptions().method
+    'GFN2-xTB'
+    """
+
+    engine: str = _E["engine"]
+    method: str = _E["method"]
+    solvent: str | None = _E["solvent"]
+    accuracy: float = _E["accuracy"]
+    max_iter: int = _E["max_iter"]
+    electronic_temperature_k: float = _E["electronic_temperature_k"]
+    threads: int = _E["threads"]
+
+    def make_engine(self):
+        """The engine these options describe (:func:`screen.engines.make_engine`).
+
+        The engine module is imported here, not at the top, so that reading a
+        configuration never loads numpy before a job has set its thread count.
+        """
+        from screen.engines import make_engine
+
+        return make_engine(self.engine, self.method, solvent=self.solvent, accuracy=self.accuracy,
+                           max_iter=self.max_iter, electronic_temperature_k=self.electronic_temperature_k)
+
+    @classmethod
+    def from_mapping(cls, mapping: dict | None) -> ElectronicOptions:
+        """Build from the ``electronic`` config section, rejecting unknown keys."""
+        return options_from_mapping(cls, mapping, "electronic")
+
+
+@dataclass(frozen=True)
+class ExecutionOptions:
+    """How molecules are run (changes no number).
+
+    Parameters
+    ----------
+    isolate : bool
+        Each molecule in a child process, so a native crash costs one molecule.
+    molecule_timeout_s : float or None
+        Per-molecule time limit per stage [s] (isolated runs only).
+
+    Examples
+    --------
+    >>> ExecutionOptions().isolate
+    True
+    """
+
+    isolate: bool = _X["isolate"]
+    molecule_timeout_s: float | None = _X["molecule_timeout_s"]

@@ -1,0 +1,117 @@
+"""The configuration schema: validation, defaults and one clear error.
+
+``screen/workflow/schemas/config.schema.yaml`` is the single source of every
+option, its allowed values and its default; the Snakefile validates against
+the same file.  This module only reads the schema: the run's configuration
+object is :class:`screen.config.Config`, and the options dataclasses
+(:mod:`screen.options` and the stage modules) take their defaults from
+:func:`section_defaults`.
+"""
+
+from __future__ import annotations
+
+import copy
+from functools import lru_cache
+from pathlib import Path
+
+import jsonschema
+import yaml
+
+from screen.errors import ConfigError
+
+__all__ = ["SCHEMA_PATH", "ConfigError", "resolve", "defaults", "section_defaults"]
+
+SCHEMA_PATH = Path(__file__).parent / "workflow" / "schemas" / "config.schema.yaml"
+
+
+@lru_cache(maxsize=1)
+def _schema() -> dict:
+    return yaml.safe_load(SCHEMA_PATH.read_text(encoding="utf-8"))
+
+
+def _fill_defaults(node: dict, schema: dict) -> None:
+    for name, sub in schema.get("properties", {}).items():
+        if name not in node and "default" in sub:
+            node[name] = copy.deepcopy(sub["default"])
+        if isinstance(node.get(name), dict) and sub.get("type") == "object":
+            _fill_defaults(node[name], sub)
+
+
+def _describe(error: jsonschema.ValidationError) -> str:
+    field = ".".join(str(p) for p in error.absolute_path) or "(top level)"
+    schema = error.schema if isinstance(error.schema, dict) else {}
+    allowed = ""
+    if "enum" in schema:
+        allowed = f"; allowed values: {', '.join(map(str, schema['enum']))}"
+    elif error.validator == "additionalProperties":
+        props = sorted(error.schema.get("properties", {}))
+        allowed = f"; allowed fields: {', '.join(props)}"
+    return f"field {field}: {error.message}{allowed}"
+
+
+def resolve(config: dict | None, source: str = "configuration") -> dict:
+    """Validate ``config`` and return a plain-dict copy with every default filled in.
+
+    Most code wants :class:`screen.config.Config` (validated once, typed
+    sections, cached protocol id); this is the validation step it runs.
+
+    Parameters
+    ----------
+    config : dict or None
+        Partial configuration.
+    source : str
+        Where it came from, for the error message (a file name).
+
+    Raises
+    ------
+    ConfigError
+        Naming ``source``, the field and the allowed values.
+
+    Examples
+    --------
+    >>> cfg = resolve({"device": {"eqe": 0.5}})
+    >>> cfg["device"]["eqe"], cfg["device"]["ff"]
+    (0.5, 0.65)
+    >>> resolve({"device": {"absorber": "acceptor"}})
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: configuration: field device.absorber: 'acceptor' is not one of ['donor', 'both']; allowed values: donor, both
+    """
+    cfg = copy.deepcopy(dict(config or {}))
+    schema = _schema()
+    validator = jsonschema.Draft202012Validator(schema)
+    errors = sorted(validator.iter_errors(cfg), key=lambda e: list(e.absolute_path))
+    if errors:
+        raise ConfigError(f"{source}: " + "; ".join(_describe(e) for e in errors))
+    _fill_defaults(cfg, schema)
+    errors = sorted(validator.iter_errors(cfg), key=lambda e: list(e.absolute_path))
+    if errors:  # a default that breaks the schema is a bug here, still say it clearly
+        raise ConfigError(f"{source} (after defaults): " + "; ".join(_describe(e) for e in errors))
+    return cfg
+
+
+@lru_cache(maxsize=1)
+def _defaults() -> dict:
+    return resolve({})
+
+
+def defaults() -> dict:
+    """The complete default configuration (a fresh copy).
+
+    Examples
+    --------
+    >>> defaults()["levels"]["scale"]
+    'film'
+    """
+    return copy.deepcopy(_defaults())
+
+
+def section_defaults(section: str) -> dict:
+    """Defaults of one schema section: the single source of an options dataclass's defaults.
+
+    Examples
+    --------
+    >>> section_defaults("prepare")["min_shards"]
+    4
+    """
+    return copy.deepcopy(_defaults()[section])

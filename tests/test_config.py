@@ -1,0 +1,99 @@
+"""Tests of screen.config / screen.schema / screen.options: one validated Config, schema-sourced defaults."""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+
+import pytest
+
+from screen.config import Config, load_config, protocol_id, section_defaults
+from screen.errors import ConfigError
+
+
+def _defaults_of(cls) -> dict:
+    out = {}
+    for f in dataclasses.fields(cls):
+        if f.default is not dataclasses.MISSING:
+            out[f.name] = f.default
+        elif f.default_factory is not dataclasses.MISSING:  # type: ignore[misc]
+            out[f.name] = f.default_factory()  # type: ignore[misc]
+    return out
+
+
+def _comparable(value):
+    return list(value) if isinstance(value, tuple) else value
+
+
+#: every options dataclass and its schema section (module, class, section)
+OPTIONS_CLASSES = [("screen.options", "StructureOptions", "structures"),
+                   ("screen.options", "ElectronicOptions", "electronic"),
+                   ("screen.options", "ExecutionOptions", "execution"),
+                   ("screen.prepare", "PrepareOptions", "prepare"),
+                   ("screen.rank", "RankOptions", "rank"),
+                   ("screen.device", "DeviceModel", "device")]
+
+
+@pytest.mark.parametrize("module,name,section", OPTIONS_CLASSES, ids=[c[1] for c in OPTIONS_CLASSES])
+def test_options_defaults_equal_schema_defaults(module, name, section):
+    """The schema is the single source of defaults: every options dataclass agrees with it."""
+    import importlib
+
+    cls = getattr(importlib.import_module(module), name)
+    schema = section_defaults(section)
+    fields = _defaults_of(cls)
+    shared = set(schema) & set(fields)
+    assert shared, f"{cls.__name__} shares no field with schema section {section}"
+    for key in sorted(shared):
+        assert _comparable(fields[key]) == schema[key], f"{cls.__name__}.{key}"
+    # every schema key is a field (a key the dataclass ignores would be a silent no-op)
+    assert set(schema) <= set(fields), f"{cls.__name__} lacks {sorted(set(schema) - set(fields))}"
+
+
+def test_config_validates_once_and_exposes_typed_sections():
+    cfg = Config.of({"structures": {"geometry": "xtb"}, "electronic": {"threads": 2}})
+    assert cfg.structures.geometry == "xtb" and cfg.electronic.threads == 2 and cfg.execution.isolate is True
+    assert cfg["device"]["eqe"] == section_defaults("device")["eqe"]
+    assert Config.of(cfg) is cfg
+    assert cfg.protocol_id == protocol_id(cfg.to_dict())
+    assert cfg.protocol_id is cfg.protocol_id  # computed once
+    # threads change the speed, not the numbers: same protocol
+    assert cfg.protocol_id == Config.of({"structures": {"geometry": "xtb"}}).protocol_id
+
+
+def test_config_errors_name_source_field_and_allowed_values(tmp_path):
+    with pytest.raises(ConfigError, match=r"myrun.yaml: field levels.scale: .*allowed values: film, gas"):
+        Config.of({"levels": {"scale": "solid"}}, "myrun.yaml")
+    bad = tmp_path / "bad.yaml"
+    bad.write_text("- just\n- a list\n", encoding="utf-8")
+    with pytest.raises(ConfigError, match="must hold a mapping"):
+        load_config(bad)
+    with pytest.raises(ConfigError, match="not valid JSON"):
+        Config.from_json("{nope", "job")
+
+
+def test_overrides_and_paths_make_new_objects():
+    base = Config.of({})
+    changed = base.with_overrides({"rank": {"role": "donor"}})
+    assert changed["rank"]["role"] == "donor" and base["rank"]["role"] is None
+    moved = base.with_paths(lambda p: f"/x/{p}")
+    assert moved["calibration"]["models"] == "/x/models" and base["calibration"]["models"] == "models"
+    assert moved.protocol_id == base.protocol_id
+
+
+def test_sections_are_json_copies():
+    cfg = Config.of({})
+    text = json.dumps(cfg.sections("prepare", "structures"), sort_keys=True)
+    assert set(json.loads(text)) == {"prepare", "structures"}
+    cfg.sections("prepare")["prepare"]["shard_size"] = -1
+    assert cfg["prepare"]["shard_size"] == section_defaults("prepare")["shard_size"]
+
+
+def test_loading_config_does_not_load_numpy():
+    """A stage job sets its thread count after reading the config, before numpy or the engine load."""
+    import subprocess
+    import sys
+
+    code = "import sys, screen.stages, screen.config; print(int('numpy' in sys.modules))"
+    assert subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          check=True).stdout.strip() == "0"
