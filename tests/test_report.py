@@ -417,3 +417,23 @@ def test_meta_as_written_by_the_ranking_stage(tmp_path):
     assert "<code>levels.csv</code> (sha256 abababababab\u2026)" in page and "/somewhere/private" not in page
     assert 'class="flag info" data-code="role_assumed"' in page
     assert not _parse(page).errors
+
+
+def test_package_keeps_public_names_and_one_flag_vocabulary():
+    import screen.report as report
+    from screen import flags
+
+    for name in report.__all__:
+        assert hasattr(report, name), name
+    assert report.describe_flag is flags.describe
+    assert report.FLAG_TEXT == {c: f.text for c, f in flags.FLAGS.items()}
+    assert report.INFO_FLAGS == flags.INFO_FLAGS
+
+
+def test_style_and_script_are_inline(written):
+    from screen.report.page import static_text
+
+    page = written[0].read_text(encoding="utf-8")
+    css, js = static_text("report.css"), static_text("report.js")
+    assert css and js
+    assert f"<style>\n{css}</style>" in page and f"<script>\n{js}</script>" in page

@@ -1,0 +1,523 @@
+"""The report's two Matplotlib figures as inline SVG: level alignment and the gap–offset efficiency map.
+
+References
+----------
+.. [1] M. C. Scharber, D. Mühlbacher, M. Koppe, P. Denk, C. Waldauf,
+   A. J. Heeger, C. J. Brabec, "Design rules for donors in bulk-heterojunction
+   solar cells — towards 10 % energy-conversion efficiency",
+   Adv. Mater. 18 (2006) 789–794. :doi:`10.1002/adma.200501717`
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import re
+
+import numpy as np
+import pandas as pd
+
+from screen.report.format import esc, fmt, get, num, shorten, text
+
+__all__ = ["level_diagram_svg", "design_map_svg", "DIAGRAM_MAX"]
+
+#: Candidates drawn in the level-alignment figure at most.
+DIAGRAM_MAX = 12
+_DECIMAL = re.compile(r"-?\d+\.\d+")
+
+# Palette: deep teal, warm amber, slate, ivory, brick (warnings).
+_TEAL_DARK = "#0b3b45"
+_TEAL = "#137079"
+_AMBER = "#d4882b"
+_AMBER_DARK = "#9a5a12"
+_SLATE = "#3e4c59"
+_SLATE_LIGHT = "#9aa5b1"
+_BRICK = "#a4362b"
+_MAP_COLOURS = ["#f6f1e7", "#dcebe4", "#a9d2c9", "#5fa8a4", "#23797f", "#0f4f5c", "#0a2e38"]
+
+_RC = {
+    "svg.hashsalt": "dascreen-report",
+    "svg.fonttype": "none",
+    "text.parse_math": False,
+    "text.usetex": False,
+    "font.family": "sans-serif",
+    "font.sans-serif": ["DejaVu Sans"],
+    "font.size": 10.0,
+    "axes.unicode_minus": True,
+    "axes.edgecolor": _SLATE,
+    "axes.labelcolor": "#1f2933",
+    "axes.titlesize": 11.0,
+    "xtick.color": _SLATE,
+    "ytick.color": _SLATE,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "hatch.color": _SLATE_LIGHT,
+    "hatch.linewidth": 0.6,
+    "path.simplify": True,
+}
+
+
+# --------------------------------------------------------------------------- #
+# SVG serialisation
+# --------------------------------------------------------------------------- #
+def _round_attribute(match: re.Match) -> str:
+    """Geometry attribute with its numbers rounded to 0.01 (SVG user units are pt)."""
+    def short(number: re.Match) -> str:
+        out = f"{float(number.group(0)):.2f}".rstrip("0").rstrip(".")
+        return "0" if out in ("-0", "") else out
+
+    value = " ".join(_DECIMAL.sub(short, match.group(2)).split())
+    return f' {match.group(1)}="{value}"'
+
+
+def _figure_svg(fig, prefix: str, css_class: str, label: str) -> str:
+    """Serialise a Matplotlib figure as inline SVG for an HTML5 page.
+
+    The XML prolog, DOCTYPE, RDF metadata and Matplotlib's global ``*{…}``
+    style are removed; every ``id`` (and its ``url(#…)``/``href`` references)
+    gets ``prefix`` so that two figures on one page never share an id; width
+    and height are dropped so the drawing scales with the page (``viewBox``
+    kept).
+    """
+    import matplotlib
+
+    buf = io.StringIO()
+    with matplotlib.rc_context(_RC):
+        fig.savefig(buf, format="svg", bbox_inches="tight", pad_inches=0.06,
+                    metadata={"Date": None, "Creator": None, "Format": None, "Type": None})
+    svg = buf.getvalue()
+    svg = svg[svg.find("<svg"):]
+    svg = re.sub(r"<metadata>.*?</metadata>\s*", "", svg, flags=re.S)
+    svg = re.sub(r'<style type="text/css">[^<]*</style>\s*', "", svg)
+    svg = re.sub(r"<defs>\s*</defs>\s*", "", svg)
+    svg = re.sub(r'\bid="([^"]+)"', lambda m: f'id="{prefix}-{m.group(1)}"', svg)
+    svg = re.sub(r"url\(#([^)]+)\)", lambda m: f"url(#{prefix}-{m.group(1)})", svg)
+    svg = re.sub(r'href="#([^"]+)"', lambda m: f'href="#{prefix}-{m.group(1)}"', svg)
+    svg = re.sub(r'\s(d|x|y|transform|points)="([^"]*)"', _round_attribute, svg)
+    head_end = svg.find(">")
+    head = svg[:head_end]
+    width_pt = re.search(r'\swidth="([\d.]+)pt"', head)
+    head = re.sub(r'\s(width|height|version)="[^"]*"', "", head)
+    style = f' style="max-width:{float(width_pt.group(1)) * 4 / 3:.0f}px"' if width_pt else ""
+    head = head.replace("<svg", f'<svg id="{prefix}" class="{css_class}" role="img" aria-label="{esc(label)}"'
+                        f"{style}", 1)
+    return (head + svg[head_end:]).strip()
+
+
+def _partner_value(partner: dict, key: str) -> float:
+    """A numeric field of the partner dict (NaN if absent)."""
+    return num(partner.get(key)) if isinstance(partner, dict) else math.nan
+
+
+def _partner_role(partner: dict) -> str:
+    """The partner's role in lower case ('' if absent)."""
+    return text(partner.get("role")).lower() if isinstance(partner, dict) else ""
+
+
+# --------------------------------------------------------------------------- #
+# Level alignment
+# --------------------------------------------------------------------------- #
+def _tick_label(rank, ident: str) -> str:
+    """``"#3\\nid…"`` for the level-alignment axis."""
+    r = num(rank)
+    head = f"#{int(r)}" if not math.isnan(r) else "#?"
+    return f"{head}\n{shorten(ident, 14)}"
+
+
+def _draw_levels(ax, rows: pd.DataFrame, partner: dict, thr: float, half: float) -> list[float]:
+    """Partner column and guides, candidate bars with σ bands and ΔLUMO arrows; the energies drawn. [eV]"""
+    from matplotlib import patheffects
+
+    p_homo, p_lumo = _partner_value(partner, "homo_ev"), _partner_value(partner, "lumo_ev")
+    p_hs, p_ls = _partner_value(partner, "homo_sigma_ev"), _partner_value(partner, "lumo_sigma_ev")
+    levels_seen = []
+    stroke = [patheffects.withStroke(linewidth=2.4, foreground="white")]
+
+    def bar(x, y, s, colour, lw=2.6):
+        if math.isnan(y):
+            return
+        levels_seen.append(y)
+        if not math.isnan(s) and s > 0:
+            ax.fill_between([x - half, x + half], y - s, y + s, color=colour, alpha=0.16, lw=0)
+            levels_seen.extend([y - s, y + s])
+        ax.plot([x - half, x + half], [y, y], color=colour, lw=lw, solid_capstyle="butt")
+
+    # partner column and guides
+    bar(0, p_lumo, p_ls, _AMBER, 3.0)
+    bar(0, p_homo, p_hs, _AMBER_DARK, 3.0)
+    for y in (p_lumo, p_homo):
+        if not math.isnan(y):
+            ax.axhline(y, color=_AMBER, lw=0.9, ls=(0, (4, 3)), alpha=0.8, zorder=0)
+    for i, row in rows.iterrows():
+        x = i + 1
+        c_homo, c_lumo = num(row.get("homo_ev")), num(row.get("lumo_ev"))
+        bar(x, c_lumo, num(row.get("lumo_sigma_ev")), _TEAL)
+        bar(x, c_homo, num(row.get("homo_sigma_ev")), _SLATE)
+        d = num(row.get("delta_lumo_ev"))
+        if not (math.isnan(c_lumo) or math.isnan(p_lumo)):
+            low = (not math.isnan(thr) and not math.isnan(d) and d < thr - 1e-9)
+            colour = _BRICK if low else _TEAL_DARK
+            xa = x + half + 0.08
+            if abs(c_lumo - p_lumo) > 0.02:
+                ax.annotate("", xy=(xa, c_lumo), xytext=(xa, p_lumo),
+                            arrowprops=dict(arrowstyle="<|-|>", color=colour, lw=1.0,
+                                            shrinkA=0, shrinkB=0, mutation_scale=7))
+            label = fmt(d if not math.isnan(d) else c_lumo - p_lumo, 2)
+            ax.text(xa + 0.04, 0.5 * (c_lumo + p_lumo), label, color=colour, fontsize=8.5,
+                    va="center", ha="left", path_effects=stroke)
+    return levels_seen
+
+
+def _level_axes(ax, rows: pd.DataFrame, pid: str, levels_seen: list[float]) -> None:
+    """Ticks (partner, then ``#rank id``), limits, label and grid of the level diagram."""
+    n = len(rows)
+    ticks = [0] + list(range(1, n + 1))
+    labels = [f"partner\n{shorten(pid, 14)}"] + [
+        _tick_label(r.get("rank"), text(r.get("id"))) for _, r in rows.iterrows()]
+    ax.set_xticks(ticks)
+    ax.set_xticklabels(labels, fontsize=8.5)
+    ax.set_xlim(-0.7, n + 0.85)
+    if levels_seen:
+        lo, hi = min(levels_seen), max(levels_seen)
+        pad = max(0.25, 0.08 * (hi - lo))
+        ax.set_ylim(lo - pad, hi + pad)
+    ax.set_ylabel("Energy vs vacuum [eV]")
+    ax.tick_params(axis="x", length=0)
+    ax.grid(axis="y", color="#e4e7eb", lw=0.6)
+    ax.set_axisbelow(True)
+    if n == 0:
+        ax.text(0.5, 0.5, "no shortlisted candidates", transform=ax.transAxes, ha="center",
+                color=_SLATE)
+
+
+def _level_legend(ax, thr: float) -> None:
+    """Legend below the level diagram."""
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    handles = [
+        Line2D([], [], color=_TEAL, lw=2.6, label="candidate LUMO"),
+        Line2D([], [], color=_SLATE, lw=2.6, label="candidate HOMO"),
+        Line2D([], [], color=_AMBER, lw=3.0, label="partner LUMO / HOMO"),
+        Patch(facecolor=_SLATE, alpha=0.16, label="\u00b11\u03c3 band"),
+        Line2D([], [], color=_TEAL_DARK, lw=1.0, marker=">", markersize=4,
+               label="\u0394LUMO [eV]" + ("" if math.isnan(thr) else
+                                          f" (brick red: below {fmt(thr)} eV)")),
+    ]
+    ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=5, fontsize=8.5,
+              frameon=False, handlelength=1.6, columnspacing=1.2)
+
+
+def level_diagram_svg(shortlist: pd.DataFrame, partner: dict, meta: dict) -> str:
+    """Energy-level diagram of the shortlisted candidates beside the partner.
+
+    Parameters
+    ----------
+    shortlist : pandas.DataFrame
+        Best-first rows with ``rank, id, homo_ev, lumo_ev, delta_lumo_ev`` and
+        optionally ``homo_sigma_ev, lumo_sigma_ev``; at most 12 are drawn.
+    partner : dict
+        Partner levels (``id, homo_ev, lumo_ev``, optional σ).
+    meta : dict
+        Report metadata (offset threshold in ``meta["device"]``).
+
+    Returns
+    -------
+    str
+        Inline SVG (``id="fig-levels"``): short bars for HOMO (slate) and LUMO
+        (teal) of each candidate with ±σ bands, the partner's levels in amber
+        as a column of their own and as dashed guides across the plot, and a
+        double arrow with the value of ΔLUMO at every candidate (brick red when
+        below the threshold).  Vacuum scale, eV.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> rows = pd.DataFrame({"rank": [1], "id": ["demo"], "homo_ev": [-5.4], "lumo_ev": [-3.9],
+    ...                      "delta_lumo_ev": [0.4]})
+    >>> level_diagram_svg(rows, {"id": "ref", "homo_ev": -6.0, "lumo_ev": -4.3}, {})[:21]
+    '<svg id="fig-levels" '
+    """
+    import matplotlib
+    from matplotlib.figure import Figure
+
+    rows = shortlist.head(DIAGRAM_MAX).reset_index(drop=True)
+    n = len(rows)
+    thr = num(get(meta, "device", "min_delta_lumo_ev"))
+    pid = text(partner.get("id")) if isinstance(partner, dict) else ""
+
+    with matplotlib.rc_context(_RC):
+        width = max(8.8, min(11.5, 2.0 + 0.85 * (n + 1)))
+        fig = Figure(figsize=(width, 4.6))
+        ax = fig.add_subplot()
+        levels_seen = _draw_levels(ax, rows, partner, thr, half=0.30)
+        _level_axes(ax, rows, pid, levels_seen)
+        _level_legend(ax, thr)
+        return _figure_svg(fig, "fig-levels", "figure-svg levels-figure",
+                           "Energy levels of the shortlisted candidates and the partner, vacuum scale")
+
+
+# --------------------------------------------------------------------------- #
+# Gap–offset map
+# --------------------------------------------------------------------------- #
+def _device_model(meta: dict):
+    """DeviceModel from ``meta["device"]`` (defaults for anything unusable).
+
+    Returns the model and a note (empty when every recorded value was used).
+    """
+    from screen.device import DeviceModel
+
+    dev = get(meta, "device", default={}) or {}
+    kwargs = {}
+    for key in ("eqe", "ff", "loss_v", "min_delta_lumo_ev", "min_delta_homo_ev"):
+        x = num(dev.get(key))
+        if not math.isnan(x):
+            kwargs[key] = x
+    pin = num(dev.get("pin_w_m2"))
+    if not math.isnan(pin):
+        kwargs["pin_w_m2"] = pin
+    try:
+        return DeviceModel(**kwargs), ""
+    except ValueError as exc:
+        return DeviceModel(), f"recorded device parameters unusable ({exc}); map drawn with defaults"
+
+
+def _map_points(ranking: pd.DataFrame, partner: dict, meta: dict) -> pd.DataFrame:
+    """(absorber gap, ΔLUMO) of every ranked row for the map.
+
+    Donor candidates sit at their own optical gap; acceptor candidates at the
+    partner donor's gap ('donor' absorber policy).  With the 'both' policy the
+    smaller gap of the pair is used.  An ``absorber_gap_ev`` column, when the
+    ranking has one, takes precedence.  Rows with the partner's own role get
+    no position (a donor–donor or acceptor–acceptor pair has no place on the
+    map); column ``same_role`` marks them.
+    """
+    absorber = text(get(meta, "device", "absorber")) or "donor"
+    p_gap = _partner_value(partner, "gap_opt_ev")
+    p_role = _partner_role(partner)
+    default_role = {"acceptor": "donor", "donor": "acceptor"}.get(p_role, "donor")
+    gaps = pd.to_numeric(ranking.get("gap_opt_ev"), errors="coerce") if "gap_opt_ev" in ranking \
+        else pd.Series(np.nan, index=ranking.index)
+    roles = ranking["role"].map(text).str.lower() if "role" in ranking else pd.Series("", index=ranking.index)
+    roles = roles.where(roles.isin(["donor", "acceptor"]), default_role)
+    if absorber == "both":
+        x = np.fmin(gaps, p_gap) if not math.isnan(p_gap) else gaps
+        x = pd.Series(np.where(np.isnan(p_gap) | gaps.isna(), np.nan, x), index=ranking.index)
+    else:
+        x = gaps.where(roles.eq("donor"), p_gap)
+    if "absorber_gap_ev" in ranking:
+        given = pd.to_numeric(ranking["absorber_gap_ev"], errors="coerce")
+        x = given.where(given.notna(), x)
+    y = pd.to_numeric(ranking.get("delta_lumo_ev"), errors="coerce") if "delta_lumo_ev" in ranking \
+        else pd.Series(np.nan, index=ranking.index)
+    same = roles.eq(p_role) if p_role in ("donor", "acceptor") else pd.Series(False, index=ranking.index)
+    x, y = x.astype(float).mask(same), y.astype(float).mask(same)
+    return pd.DataFrame({"x": x, "y": y, "rank": ranking.get("rank"), "role": roles, "same_role": same})
+
+
+def _map_extent(pts: pd.DataFrame, finite: pd.Series) -> tuple[float, float, float, float]:
+    """Gap and offset ranges of the map: at least 1–3 eV × 0–1.5 eV, widened to every point. [eV]"""
+    gx = pts.loc[finite, "x"].to_numpy(float)
+    gy = pts.loc[finite, "y"].to_numpy(float)
+    g_lo = min(1.0, float(np.min(gx)) - 0.1) if gx.size else 1.0
+    g_hi = max(3.0, float(np.max(gx)) + 0.1) if gx.size else 3.0
+    o_lo = min(0.0, float(np.min(gy)) - 0.1) if gy.size else 0.0
+    o_hi = max(1.5, float(np.max(gy)) + 0.1) if gy.size else 1.5
+    g_lo, g_hi = max(g_lo, 0.5), min(g_hi, 4.4)
+    o_lo, o_hi = max(o_lo, -1.5), min(o_hi, 3.0)
+    return g_lo, g_hi, o_lo, o_hi
+
+
+def _map_grid(model, partner: dict, extent) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Gaps, offsets [eV] and the PCE map [%] over them (donor-absorber model, as published)."""
+    from screen.device import DeviceModel, efficiency_map
+
+    map_model = DeviceModel(eqe=model.eqe, ff=model.ff, loss_v=model.loss_v,
+                            min_delta_lumo_ev=model.min_delta_lumo_ev, absorber="donor",
+                            pin_w_m2=model.pin_w_m2)
+    g_lo, g_hi, o_lo, o_hi = extent
+    gaps = np.linspace(g_lo, g_hi, 121)
+    offsets = np.linspace(o_lo, o_hi, 101)
+    acc_lumo = _partner_value(partner, "lumo_ev") if _partner_role(partner) != "donor" else math.nan
+    pce = efficiency_map(gaps, offsets, map_model,
+                         acceptor_lumo_ev=-4.3 if math.isnan(acc_lumo) else acc_lumo)
+    return gaps, offsets, pce
+
+
+def _map_contours(ax, gaps, offsets, pce, target: float):
+    """Filled PCE contours, every other level as a labelled line, the target contour; the filled set."""
+    from matplotlib.colors import LinearSegmentedColormap
+
+    cmap = LinearSegmentedColormap.from_list("dascreen_pce", _MAP_COLOURS)
+    top = max(1.0, float(np.nanmax(pce)))
+    step = 1.0 if top <= 16 else 2.0
+    levels = np.arange(0.0, math.ceil(top / step) * step + step, step)
+    # x = gap, y = offset; contourf(X, Y, Z) wants Z[y, x], the map is Z[gap, offset]
+    filled = ax.contourf(gaps, offsets, pce.T, levels=levels, cmap=cmap)
+    lines = ax.contour(gaps, offsets, pce.T, levels=levels[1::2], colors=[_TEAL_DARK],
+                       linewidths=0.5, alpha=0.55)
+    ax.clabel(lines, fmt=lambda v: f"{v:.0f}", fontsize=7.5, colors=[_TEAL_DARK], inline_spacing=2)
+    if not math.isnan(target) and 0 < target < top:
+        tline = ax.contour(gaps, offsets, pce.T, levels=[target], colors=[_AMBER], linewidths=1.8)
+        ax.clabel(tline, fmt=lambda v: f"target {v:g} %", fontsize=7.5, colors=[_AMBER_DARK])
+    return filled
+
+
+def _map_threshold(ax, extent, thr: float) -> None:
+    """Hatch the offsets below the ΔLUMO threshold, with a dashed line and a note."""
+    from matplotlib import patheffects
+
+    g_lo, g_hi, o_lo, o_hi = extent
+    if o_lo < thr:
+        ax.fill_between([g_lo, g_hi], o_lo, min(thr, o_hi), facecolor="#ffffff", alpha=0.45,
+                        hatch="////", edgecolor=_SLATE_LIGHT, lw=0)
+        ax.axhline(thr, color=_SLATE, lw=0.9, ls=(0, (5, 3)))
+        ax.text(g_hi - 0.03, thr - 0.03, f"\u0394LUMO < {fmt(thr)} eV: charge transfer not assured",
+                ha="right", va="top", fontsize=7.5, color=_SLATE,
+                path_effects=[patheffects.withStroke(linewidth=2.5, foreground="white")])
+
+
+def _label_offsets(ax, labels) -> list[tuple[float, float]]:
+    """Offsets [pt] for rank labels that avoid each other and the markers (greedy).
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        Axes with final limits (data → points conversion).
+    labels : list of (str, float, float)
+        Text and data position of each label, best rank first (placed first).
+
+    Returns
+    -------
+    list of (float, float)
+        Offset of each label's lower-left corner from its point. [pt]
+    """
+    to_pt = 72.0 / ax.figure.dpi
+    anchors = [ax.transData.transform((x, y)) * to_pt for _, x, y in labels]
+    marker = 4.0  # half-size of a diamond [pt]
+    taken = [(ax_ - marker, ay - marker, ax_ + marker, ay + marker) for ax_, ay in anchors]
+    out = []
+    for (label, _x, _y), (px, py) in zip(labels, anchors):
+        w, h = 5.2 * len(label) + 1.0, 8.0
+        choices = [(5, 4), (5, -11), (-5 - w, 4), (-5 - w, -11), (-w / 2, 7), (-w / 2, -15),
+                   (8, -4), (-8 - w, -4), (12, 10), (-12 - w, 10), (12, -17), (-12 - w, -17)]
+
+        def overlap(dx, dy):
+            box = (px + dx, py + dy, px + dx + w, py + dy + h)
+            return sum(max(0.0, min(box[2], t[2]) - max(box[0], t[0]))
+                       * max(0.0, min(box[3], t[3]) - max(box[1], t[1])) for t in taken)
+
+        best = min(choices, key=lambda c: (overlap(*c) > 0, overlap(*c), choices.index(c)))
+        taken.append((px + best[0], py + best[1], px + best[0] + w, py + best[1] + h))
+        out.append((float(best[0]), float(best[1])))
+    return out
+
+
+def _map_candidates(ax, pts: pd.DataFrame, finite: pd.Series, shortlist_index, extent) -> None:
+    """Ranked rows as dots, the shortlist as amber diamonds labelled with their rank; axis limits."""
+    from matplotlib import patheffects
+
+    g_lo, g_hi, o_lo, o_hi = extent
+    short = pts.index.isin(list(shortlist_index))
+    rest = finite & ~short
+    ax.plot(pts.loc[rest, "x"], pts.loc[rest, "y"], ls="none", marker="o", ms=4.0, color=_SLATE,
+            alpha=0.75, mec="white", mew=0.4, label="ranked candidate", zorder=3)
+    sl = finite & short
+    ax.scatter(pts.loc[sl, "x"], pts.loc[sl, "y"], s=46, marker="D", c=_AMBER, edgecolors=_TEAL_DARK,
+               linewidths=0.9, label="shortlisted (label = rank)", zorder=4)
+    ax.set_xlim(g_lo, g_hi)
+    ax.set_ylim(o_lo, o_hi)
+    stroke = [patheffects.withStroke(linewidth=2.2, foreground="white")]
+    labels = [("?" if math.isnan(num(p["rank"])) else f"{int(num(p['rank']))}", p["x"], p["y"])
+              for _, p in pts.loc[sl].iterrows()]
+    for (label, x, y), offset in zip(labels, _label_offsets(ax, labels)):
+        ax.annotate(label, (x, y), xytext=offset, textcoords="offset points", fontsize=8,
+                    color=_TEAL_DARK, fontweight="bold", path_effects=stroke, zorder=5)
+
+
+def _map_note(pts: pd.DataFrame, finite: pd.Series, absorber: str, model_note: str) -> str:
+    """Caption text: how candidates are placed on the map and how many could not be."""
+    n_same = int(pts["same_role"].sum())
+    n_missing = int((~finite).sum()) - n_same
+    parts = []
+    if (pts["role"].eq("acceptor") & ~pts["same_role"]).any() and absorber != "both":
+        parts.append("Acceptor candidates sit at the partner donor's optical gap, at their offset "
+                     "ΔLUMO = LUMO(partner) − LUMO(candidate).")
+    if absorber == "both":
+        parts.append("With both materials absorbing, each point sits at the smaller gap of the pair; "
+                     "the map itself assumes the donor absorbs.")
+    if n_same:
+        parts.append(f"{n_same} ranked row(s) with the partner's own role are not drawn.")
+    if n_missing:
+        parts.append(f"{n_missing} ranked row(s) lack a gap or offset and are not drawn.")
+    if model_note:
+        parts.append(model_note + ".")
+    return " ".join(parts)
+
+
+def design_map_svg(ranking: pd.DataFrame, shortlist_index, partner: dict, meta: dict) -> tuple[str, str]:
+    """Gap–offset map: Scharber-model PCE over optical gap × LUMO offset.
+
+    Parameters
+    ----------
+    ranking : pandas.DataFrame
+        Every ranked row (``rank, gap_opt_ev, delta_lumo_ev, role``).
+    shortlist_index : sequence
+        Index labels of ``ranking`` that are shortlisted (highlighted and
+        labelled with their rank).
+    partner : dict
+        Partner levels (``role, lumo_ev, gap_opt_ev``).
+    meta : dict
+        Report metadata: device parameters and the target efficiency.
+
+    Returns
+    -------
+    svg : str
+        Inline SVG (``id="fig-map"``) with filled contours and contour lines
+        of :func:`screen.device.efficiency_map`, the target efficiency as a
+        bold amber contour, the region below the offset threshold hatched,
+        every ranked candidate as a dot and the shortlist as labelled amber
+        diamonds; colourbar "PCE [%]".
+    note : str
+        Caption text: how candidates are placed and how many could not be.
+
+    Notes
+    -----
+    The map takes the donor HOMO as donor LUMO − optical gap, as in [1]_, so
+    that :math:`V_{oc} = E_g - \\Delta_{LUMO} - V_{loss}` and the map depends on
+    gap and offset only.  A candidate whose own HOMO–LUMO gap differs from its
+    optical gap therefore has an estimated PCE (in the tables) that can differ
+    from the map colour under its marker.
+
+    References
+    ----------
+    .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
+       :doi:`10.1002/adma.200501717`
+    """
+    import matplotlib
+    from matplotlib.figure import Figure
+
+    model, model_note = _device_model(meta)
+    pts = _map_points(ranking, partner, meta)
+    finite = pts["x"].notna() & pts["y"].notna()
+    extent = _map_extent(pts, finite)
+    gaps, offsets, pce = _map_grid(model, partner, extent)
+    target = num(get(meta, "rank", "target_pce_pct"))
+    absorber = text(get(meta, "device", "absorber")) or "donor"
+
+    with matplotlib.rc_context(_RC):
+        fig = Figure(figsize=(9.4, 6.0))
+        ax = fig.add_subplot()
+        filled = _map_contours(ax, gaps, offsets, pce, target)
+        _map_threshold(ax, extent, model.min_delta_lumo_ev)
+        _map_candidates(ax, pts, finite, shortlist_index, extent)
+        ax.set_xlabel("Donor optical gap [eV]" if absorber != "both"
+                      else "Absorber optical gap (smaller gap of the pair) [eV]")
+        ax.set_ylabel("LUMO offset \u0394LUMO = LUMO(donor) \u2212 LUMO(acceptor) [eV]")
+        cbar = fig.colorbar(filled, ax=ax, pad=0.02, fraction=0.045)
+        cbar.set_label("PCE [%]")
+        cbar.outline.set_visible(False)
+        ax.legend(loc="upper right", fontsize=8, framealpha=0.92, edgecolor="#d9dee4")
+        svg = _figure_svg(fig, "fig-map", "figure-svg map-figure",
+                          "Estimated efficiency over optical gap and LUMO offset with the ranked candidates")
+    return svg, _map_note(pts, finite, absorber, model_note)

@@ -1,0 +1,99 @@
+"""Small number and text helpers of the report: numbers with a typographic minus, ± σ, escaping.
+
+Examples
+--------
+>>> fmt(-5.423), fmt(None), fmt(0.1, 1, plus=True)
+('−5.42', '—', '+0.1')
+>>> fmt_pm(-5.4, 0.15), pm_html(-5.4, float("nan"))
+('−5.40 ± 0.15', '−5.40')
+>>> esc('<a href="x">'), shorten("abcdef", 4)
+('&lt;a href=&quot;x&quot;&gt;', 'abc…')
+>>> get({"a": {"b": 1}}, "a", "b"), get({"a": 1}, "a", "b", default="-")
+(1, '-')
+"""
+
+from __future__ import annotations
+
+import html
+import math
+
+from screen.io import cell_text as text
+
+__all__ = ["NOT_RECORDED", "num", "text", "esc", "fmt", "fmt_pm", "pm_html", "data_value", "get", "shorten",
+           "truthy"]
+
+#: Shown for a value the run did not record.
+NOT_RECORDED = "not recorded"
+_MINUS = "\u2212"
+_TRUE_WORDS = ("true", "1", "yes")
+
+
+def num(value) -> float:
+    """Float of ``value``; NaN for anything that is not a finite real number."""
+    if isinstance(value, bool) or value is None:
+        return math.nan
+    try:
+        out = float(value)
+    except (TypeError, ValueError):
+        return math.nan
+    return out if math.isfinite(out) else math.nan
+
+
+def esc(value) -> str:
+    """HTML-escaped text of a cell (quotes escaped too, safe in attributes)."""
+    return html.escape(text(value), quote=True)
+
+
+def fmt(value, digits: int = 2, plus: bool = False) -> str:
+    """Number with a typographic minus; an em dash for a missing value."""
+    x = num(value)
+    if math.isnan(x):
+        return "\u2014"
+    out = f"{x:+.{digits}f}" if plus else f"{x:.{digits}f}"
+    if out.lstrip("+-").strip("0.") == "":  # −0.00 → 0.00
+        out = f"{0.0:.{digits}f}"
+    return out.replace("-", _MINUS)
+
+
+def fmt_pm(value, sigma, digits: int = 2) -> str:
+    """``"−5.42 ± 0.15"``; just the value when σ is missing."""
+    base = fmt(value, digits)
+    s = num(sigma)
+    if math.isnan(num(value)) or math.isnan(s) or s <= 0:
+        return base
+    return f"{base} \u00b1 {fmt(s, digits)}"
+
+
+def pm_html(value, sigma, digits: int = 2) -> str:
+    """:func:`fmt_pm` as HTML, the ``± σ`` part in its own span (own line in tables)."""
+    base = fmt(value, digits)
+    s = num(sigma)
+    if math.isnan(num(value)) or math.isnan(s) or s <= 0:
+        return base
+    return f'{base} <span class="pm">\u00b1 {fmt(s, digits)}</span>'
+
+
+def data_value(value) -> str:
+    """``data-value`` attribute for numeric sorting (empty for missing)."""
+    x = num(value)
+    return "" if math.isnan(x) else format(x, ".6g")
+
+
+def get(mapping, *keys, default=None):
+    """Nested ``mapping[k1][k2]…`` that returns ``default`` on any miss."""
+    node = mapping
+    for key in keys:
+        if not isinstance(node, dict) or key not in node:
+            return default
+        node = node[key]
+    return node
+
+
+def shorten(value: str, limit: int) -> str:
+    """``value`` cut to ``limit`` characters with an ellipsis."""
+    return value if len(value) <= limit else value[: max(1, limit - 1)] + "\u2026"
+
+
+def truthy(value) -> bool:
+    """True for a cell that reads as yes (``True``, ``1``, ``"yes"``; any case)."""
+    return text(value).strip().lower() in _TRUE_WORDS

@@ -1,0 +1,247 @@
+"""The "Run at a glance" part of the report: counts strip and the partner, computation and device cards.
+
+A value the run did not record is shown as "not recorded", never guessed.
+"""
+
+from __future__ import annotations
+
+import math
+from numbers import Real
+from pathlib import Path
+
+import pandas as pd
+
+from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, shorten, text
+
+__all__ = ["partner_card", "protocol_card", "device_card", "counts_strip"]
+
+_GEOMETRY_WORDS = {
+    "ff": "force-field geometry",
+    "xtb": "force-field conformer, then xTB-optimised geometry",
+}
+_CALIBRATION_LABELS = {
+    "ip": "ionisation energy (gas)",
+    "ea": "electron affinity (gas)",
+    "gap_opt": "optical gap (gas/solution)",
+    "homo_film": "HOMO, film shift",
+    "lumo_film": "LUMO, film shift",
+    "gap_opt_film": "optical gap, film shift",
+}
+
+
+def _dl(items) -> str:
+    """Definition list from ``(term, value_html)`` pairs."""
+    return "<dl>" + "".join(f"<dt>{t}</dt><dd>{v}</dd>" for t, v in items) + "</dl>"
+
+
+# --------------------------------------------------------------------------- #
+# Partner
+# --------------------------------------------------------------------------- #
+def partner_card(partner: dict, meta: dict) -> str:
+    """Partner card: id, name, role, levels with σ, scale, source, provenance notes.
+
+    Examples
+    --------
+    >>> "\\u22124.30 \\u00b1 0.10 eV" in partner_card({"id": "ref", "lumo_ev": -4.3, "lumo_sigma_ev": 0.1}, {})
+    True
+    """
+    p = partner if isinstance(partner, dict) else {}
+
+    def lev(key):
+        x = num(p.get(key))
+        if math.isnan(x):
+            return NOT_RECORDED
+        s = num(p.get(key.replace("_ev", "_sigma_ev")))
+        return fmt_pm(x, s) + " eV"
+
+    source = text(p.get("source")).strip()
+    doi = text(p.get("doi")).strip()
+    if doi:
+        source = f"{source} (doi:{doi})" if source else f"doi:{doi}"
+    name = text(p.get("name")).strip()
+    items = [
+        ("Partner", f'<span class="cid">{esc(p.get("id")) or NOT_RECORDED}</span>'
+                    + (f" \u2014 {esc(name)}" if name else "")),
+        ("Role", (esc(p.get("role")) or NOT_RECORDED)
+         + (" (assumed: the complement of the candidates\u2019 role)"
+            if get(meta, "partner_role_assumed") is True else "")),
+        ("HOMO", lev("homo_ev")),
+        ("LUMO", lev("lumo_ev")),
+        ("Optical gap", lev("gap_opt_ev")),
+        ("Energy scale", esc(p.get("scale")) or NOT_RECORDED),
+        ("Source", esc(source) or NOT_RECORDED),
+    ]
+    if p.get("from_memory") is True:
+        items.append(("Provenance", "values recalled from the literature, not read from the source "
+                                    "\u2014 check them before relying on absolute numbers"))
+    notes = text(p.get("notes")).strip()
+    if notes:
+        items.append(("Notes", f'<span class="small">{esc(shorten(notes, 600))}</span>'))
+    return '<section class="card" id="card-partner"><h3>Partner material</h3>' + _dl(items) + "</section>"
+
+
+# --------------------------------------------------------------------------- #
+# Computation and calibration
+# --------------------------------------------------------------------------- #
+def _stat(entry, key):
+    """A statistic of one calibration model, at the top level or nested."""
+    if isinstance(entry, Real) and key == "loo_mae_ev":
+        return num(entry)
+    if not isinstance(entry, dict):
+        return math.nan
+    for node in (entry, entry.get("stats"), entry.get("statistics")):
+        if isinstance(node, dict) and key in node:
+            return num(node[key])
+    return math.nan
+
+
+def _method_words(lm: dict, el: dict) -> str:
+    """Engine, method, ΔSCF and solvent in words (``levels_meta["method"]`` without a protocol)."""
+    method = text(el.get("method"))
+    engine = text(el.get("engine"))
+    if not (method or engine):
+        return text(lm.get("method"))
+    m = " ".join(x for x in (method, f"({engine})" if engine else "") if x)
+    m += " \u0394SCF: vertical ionisation energy and electron affinity at the neutral geometry"
+    solvent = text(el.get("solvent"))
+    return m + (f"; implicit solvent {solvent}" if solvent else "; gas phase")
+
+
+def _geometry_words(lm: dict, st: dict) -> str:
+    """Conformer and geometry route in words (``levels_meta["geometry"]`` without a protocol)."""
+    geometry = text(st.get("geometry"))
+    if not geometry:
+        return text(lm.get("geometry"))
+    ff = text(st.get("forcefield")).upper()
+    words = _GEOMETRY_WORDS.get(geometry, geometry)
+    g = f"RDKit ETKDG conformers, {ff + ' ' if ff else ''}{words}"
+    if text(st.get("ranking_method")):
+        g += f"; conformer chosen by lowest {text(st.get('ranking_method'))} energy"
+    return g
+
+
+def _calibration_table(cal) -> str:
+    """Leave-one-out errors of the calibration models, or a "not recorded" line."""
+    if not (isinstance(cal, dict) and cal):
+        return f'<p class="quiet">Calibration statistics: {NOT_RECORDED}.</p>'
+    rows = []
+    for name, entry in cal.items():
+        n = _stat(entry, "n")
+        mae, rmse = _stat(entry, "loo_mae_ev"), _stat(entry, "loo_rmse_ev")
+        rows.append(
+            f"<tr><td>{esc(_CALIBRATION_LABELS.get(text(name), text(name)))}</td>"
+            f'<td class="num">{"" if math.isnan(n) else int(n)}</td>'
+            f'<td class="num">{fmt(mae, 3) if not math.isnan(mae) else NOT_RECORDED}</td>'
+            f'<td class="num">{fmt(rmse, 3) if not math.isnan(rmse) else NOT_RECORDED}</td></tr>')
+    return ('<table class="mini"><caption>Calibration, leave-one-out errors</caption><thead><tr>'
+            '<th scope="col">Model</th><th scope="col">n</th><th scope="col">MAE [eV]</th>'
+            '<th scope="col">RMSE [eV]</th></tr></thead><tbody>' + "".join(rows) + "</tbody></table>")
+
+
+def protocol_card(meta: dict) -> str:
+    """Computation and calibration card (from ``meta["levels_meta"]`` and ``meta["levels"]``)."""
+    lm = get(meta, "levels_meta", default={}) or {}
+    proto = lm.get("protocol") if isinstance(lm.get("protocol"), dict) else {}
+    el = proto.get("electronic") if isinstance(proto.get("electronic"), dict) else {}
+    st = proto.get("structures") if isinstance(proto.get("structures"), dict) else {}
+    items = [
+        ("Method", esc(_method_words(lm, el)) or NOT_RECORDED),
+        ("Geometry route", esc(_geometry_words(lm, st)) or NOT_RECORDED),
+        ("Protocol id", f"<code>{esc(lm.get('protocol_id'))}</code>" if text(lm.get("protocol_id"))
+         else NOT_RECORDED),
+        ("Calibration models", esc(lm.get("models")) or NOT_RECORDED),
+        ("Levels computed by", f"dascreen {esc(lm.get('dascreen'))}" if text(lm.get("dascreen"))
+         else NOT_RECORDED),
+    ]
+    levels_path = text(get(meta, "levels", "path"))
+    if levels_path:
+        digest = text(get(meta, "levels", "sha256"))[:12]
+        items.append(("Levels file", f"<code>{esc(Path(levels_path).name)}</code>"
+                                     + (f" (sha256 {esc(digest)}\u2026)" if digest else "")))
+    return ('<section class="card" id="card-protocol"><h3>Computation &amp; calibration</h3>'
+            + _dl(items) + _calibration_table(lm.get("calibration")) + "</section>")
+
+
+# --------------------------------------------------------------------------- #
+# Device model and ranking settings
+# --------------------------------------------------------------------------- #
+def _value(d, key, unit="", digits=2) -> str:
+    """A recorded setting: the number with its unit, escaped text, or "not recorded"."""
+    x = num(d.get(key)) if isinstance(d, dict) else math.nan
+    if math.isnan(x):
+        t = text(d.get(key)) if isinstance(d, dict) else ""
+        return esc(t) if t else NOT_RECORDED
+    return f"{fmt(x, digits)}{(' ' + unit) if unit else ''}"
+
+
+def _device_items(dev: dict) -> list[tuple[str, str]]:
+    """Rows of the device-model list."""
+    absorber = text(dev.get("absorber"))
+    absorber_words = {"donor": "donor only (published model)",
+                      "both": "both materials (smaller gap of the pair)"}.get(absorber, absorber)
+    spectrum = text(dev.get("spectrum"))
+    return [
+        ("EQE", _value(dev, "eqe")),
+        ("Fill factor", _value(dev, "ff")),
+        ("Voltage loss", _value(dev, "loss_v", "V")),
+        ("Min. \u0394LUMO", _value(dev, "min_delta_lumo_ev", "eV")),
+        ("Min. \u0394HOMO", _value(dev, "min_delta_homo_ev", "eV")
+         + (" (checked only when both absorb)" if absorber == "donor" else "")),
+        ("Light absorbed by", esc(absorber_words) or NOT_RECORDED),
+        ("Spectrum", (esc(spectrum) + " AM1.5G") if spectrum and "AM1.5" not in spectrum
+         else (esc(spectrum) or NOT_RECORDED)),
+        ("Incident power", _value(dev, "pin_w_m2" if not math.isnan(num(dev.get("pin_w_m2")))
+                                  else "incident_power_w_m2", "W&#8239;m<sup>\u22122</sup>")),
+    ]
+
+
+def _ranking_items(rank: dict) -> list[tuple[str, str]]:
+    """Rows of the ranking-settings list."""
+    items = [
+        ("Target PCE", _value(rank, "target_pce_pct", "%", 1)),
+        ("Shortlist size", esc(rank.get("shortlist_size")) if text(rank.get("shortlist_size"))
+         else NOT_RECORDED),
+        ("Sorted by", f"<code>{esc(rank.get('sort_by'))}</code>" if text(rank.get("sort_by"))
+         else NOT_RECORDED),
+    ]
+    lo, hi = num(rank.get("gap_min_ev")), num(rank.get("gap_max_ev"))
+    if not (math.isnan(lo) or math.isnan(hi)):
+        items.append(("Gap window", f"{fmt(lo)}\u2013{fmt(hi)} eV"))
+    return items
+
+
+def device_card(meta: dict) -> str:
+    """Device-model and ranking-settings card (from ``meta["device"]`` and ``meta["rank"]``)."""
+    dev = get(meta, "device", default={}) or {}
+    rank = get(meta, "rank", default={}) or {}
+    return ('<section class="card" id="card-device"><h3>Device model</h3>'
+            '<p class="quiet">Scharber model: V<sub>oc</sub> = (LUMO<sub>acc</sub> \u2212 HOMO<sub>don</sub>)/e '
+            '\u2212 loss; J<sub>sc</sub> = EQE \u00b7 q \u00b7 photon flux above the gap; '
+            'PCE = V<sub>oc</sub>J<sub>sc</sub>FF/P<sub>in</sub>.</p>'
+            + _dl(_device_items(dev)) + "<h3>Ranking settings</h3>" + _dl(_ranking_items(rank)) + "</section>")
+
+
+# --------------------------------------------------------------------------- #
+# Counts
+# --------------------------------------------------------------------------- #
+def counts_strip(meta: dict, levels: pd.DataFrame, ranking: pd.DataFrame, n_short: int,
+                 n_pass: int | None) -> str:
+    """Counts strip: input rows, computed, ranked, passing, shortlisted, not ranked."""
+    counts = get(meta, "counts", default={}) or {}
+    status = (levels["status"].map(text).str.strip().str.lower()
+              if levels is not None and "status" in levels else None)
+
+    def pick(key, fallback):
+        x = num(counts.get(key)) if isinstance(counts, dict) else math.nan
+        return fallback if math.isnan(x) else int(x)
+
+    rows = pick("rows", len(levels) if levels is not None else None)
+    ok = pick("ok", int(status.eq("ok").sum()) if status is not None else None)
+    rej = pick("rejected", int(status.eq("rejected").sum()) if status is not None else None)
+    fail = pick("failed", int(status.eq("failed").sum()) if status is not None else None)
+    items = [("input rows", rows), ("computed", ok), ("ranked", len(ranking)),
+             ("pass every check", n_pass), ("shortlisted", n_short), ("rejected", rej), ("failed", fail)]
+    cells = "".join(
+        f'<div class="count"><span class="n">{NOT_RECORDED if v is None else v}</span>'
+        f'<span class="what">{t}</span></div>' for t, v in items)
+    return f'<div class="counts" id="counts">{cells}</div>'

@@ -1,0 +1,240 @@
+"""Assembly of the report page: head with the inline style, the five sections, footer and sorting script.
+
+The style sheet and the script live in ``static/report.css`` and
+``static/report.js`` beside this module and are inlined into the page, so the
+page opens offline and fetches nothing.
+"""
+
+from __future__ import annotations
+
+import math
+from datetime import datetime, timezone
+from functools import lru_cache
+from importlib import resources
+
+import pandas as pd
+
+from screen import __version__
+from screen.report.figures import DIAGRAM_MAX, design_map_svg, level_diagram_svg
+from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, text, truthy
+from screen.report.header import counts_strip, device_card, partner_card, protocol_card
+from screen.report.tables import (
+    full_table,
+    not_ranked_table,
+    select_shortlist,
+    shortlist_table,
+    with_level_details,
+)
+
+__all__ = ["render_report", "EXPORTS", "static_text"]
+
+#: Files written next to ``report.html`` by the ranking stage and this package,
+#: with the description shown in the footer.
+EXPORTS = (
+    ("ranking.csv", "the full ranking, best first, one row per ranked candidate"),
+    ("shortlist.sdf", "3-D structures of the shortlisted candidates with their estimates as properties"),
+    ("ranking.safe.csv", "the ranking for spreadsheet programs: text cells that begin with = + - @, "
+                         "tab or carriage return carry a leading apostrophe so they are never run as "
+                         "formulas"),
+)
+
+_CAUTION = (
+    '<p class="caution" id="caution"><strong>Screening estimates.</strong> Every number on this page comes '
+    "from a semi-empirical quantum-chemistry method with an empirical calibration and an idealised device "
+    "model. The numbers are for ranking and for choosing what to discuss; they are not predicted "
+    "measurements, and the \u00b1 values are model uncertainties, not guarantees. Making and handling any "
+    "candidate follows your lab\u2019s chemical-safety rules, the safety data sheets of every reagent and "
+    "local regulations.</p>"
+)
+
+
+@lru_cache(maxsize=None)
+def static_text(name: str) -> str:
+    """Text of one file in ``screen/report/static/`` (UTF-8).
+
+    Examples
+    --------
+    >>> static_text("report.css").startswith(":root{")
+    True
+    """
+    return resources.files("screen.report").joinpath("static", name).read_text(encoding="utf-8")
+
+
+def _candidates_word(partner: dict) -> str:
+    """"donors" against an acceptor partner, "acceptors" against a donor, else "materials"."""
+    role = text(partner.get("role")).strip().lower() if isinstance(partner, dict) else ""
+    return {"acceptor": "donors", "donor": "acceptors"}.get(role, "materials")
+
+
+def _created(meta: dict) -> str:
+    """Report date: ``meta["created"]`` when given (tests), else now in UTC."""
+    given = text(meta.get("created")) if isinstance(meta, dict) else ""
+    if given:
+        return given
+    return datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+
+
+def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass) -> str:
+    """One sentence naming the best candidate."""
+    if not len(ranking):
+        return f"No candidate was ranked against {esc(partner_id) or 'the partner'}."
+    best = ranking.iloc[0]
+    pce = fmt_pm(best.get("pce_pct"), best.get("pce_sigma_pct"), 1)
+    passing = "" if n_pass is None else f"; {n_pass} pass every check"
+    return (f"{len(ranking)} candidate(s) ranked against <strong>{esc(partner_id) or 'the partner'}</strong>"
+            f"{passing}. Best estimate: <strong>{esc(best.get('id'))}</strong> at {pce} % PCE.")
+
+
+def _resolve_partner(partner: dict, meta: dict) -> dict:
+    """The partner dict; ``meta["partner"]`` when none is given, role from ``meta["partner_role"]`` if blank."""
+    if not isinstance(partner, dict) or not partner:
+        partner = get(meta, "partner", default={}) or {}
+    partner = dict(partner)
+    if not text(partner.get("role")).strip() and text(meta.get("partner_role")).strip():
+        partner["role"] = text(meta.get("partner_role")).strip()  # the role the ranking used
+    return partner
+
+
+def _pass_counts(ranking: pd.DataFrame, short: pd.DataFrame) -> tuple[int | None, int]:
+    """Rows that pass every check (None without a ``passes`` column) and rows shortlisted."""
+    n_pass = int(ranking["passes"].map(truthy).sum()) if "passes" in ranking else None
+    n_short = len(short)
+    if "passes" in short and "shortlist" not in short:  # best rows shown although none passes: none listed
+        n_short = int(short["passes"].map(truthy).sum())
+    return n_pass, n_short
+
+
+def _head(partner: dict, meta: dict) -> list[str]:
+    """``<head>`` and the page's top banner."""
+    pid = text(partner.get("id"))
+    title = f"dascreen report \u2014 candidates against {pid}" if pid else "dascreen report"
+    return [
+        "<!DOCTYPE html>",
+        '<html lang="en">',
+        "<head>",
+        '<meta charset="utf-8">',
+        '<meta name="viewport" content="width=device-width, initial-scale=1">',
+        f'<meta name="generator" content="dascreen {esc(__version__)}">',
+        f"<title>{esc(title)}</title>",
+        f"<style>\n{static_text('report.css')}</style>",
+        "</head>",
+        "<body>",
+        '<header class="top">',
+        '<h1><span class="mark">dascreen</span> \u00b7 screening report</h1>',
+        f'<p class="sub">Candidate {_candidates_word(partner)}'
+        f' against partner <strong>{esc(pid) or NOT_RECORDED}</strong>'
+        + (f" ({esc(partner.get('name'))})" if text(partner.get("name")) else "") + "</p>",
+        f'<p class="stamp">Generated {esc(_created(meta))} \u00b7 dascreen {esc(__version__)}</p>',
+        "</header>",
+    ]
+
+
+def _shortlist_section(ranking: pd.DataFrame, short: pd.DataFrame, how: str, pid: str, n_pass,
+                       meta: dict) -> list[str]:
+    """Section 2: summary, shortlist table and the collapsible table of every ranked row."""
+    return [
+        '<h2 id="shortlist"><span class="num">2</span>Shortlist for discussion</h2>',
+        f'<p class="summary">{_summary_sentence(ranking, pid, n_pass)}</p>',
+        f'<p class="quiet">Shown: {esc(how)}. Levels on the vacuum scale, value \u00b1 1\u03c3. '
+        "\u0394LUMO = LUMO(donor) \u2212 LUMO(acceptor), \u0394HOMO = HOMO(donor) \u2212 HOMO(acceptor). "
+        "Click a column header to sort.</p>",
+        f'<div class="tablewrap">{shortlist_table(short, meta)}</div>',
+        '<details id="all-ranked">',
+        f"<summary>Every ranked candidate ({len(ranking)} rows)</summary>",
+        f'<div class="tablewrap">{full_table(ranking, meta)}</div>',
+        "</details>",
+    ]
+
+
+def _figures_section(levels_fig: str, map_fig: str, map_note: str, n_short: int, meta: dict) -> list[str]:
+    """Section 3: the level-alignment figure and the gap–offset map with their captions."""
+    thr = num(get(meta, "device", "min_delta_lumo_ev"))
+    n_diag = min(n_short, DIAGRAM_MAX)
+    return [
+        '<h2 id="figures"><span class="num">3</span>Level alignment and gap\u2013offset map</h2>',
+        '<div class="figs">',
+        f'<figure class="levels" id="figure-levels">{levels_fig}<figcaption><strong>Level alignment.</strong> '
+        f"HOMO and LUMO of the {'first ' + str(n_diag) + ' ' if n_diag else ''}shortlisted candidates "
+        "(numbered by rank) beside the partner, on the vacuum scale; shaded bands are \u00b11\u03c3. "
+        "Arrows give \u0394LUMO in eV"
+        + (f"; brick red marks offsets below {fmt(thr)} eV" if not math.isnan(thr) else "")
+        + ".</figcaption></figure>",
+        f'<figure class="map" id="figure-map">{map_fig}<figcaption><strong>Gap\u2013offset map.</strong> '
+        "Estimated PCE of the Scharber model with this run\u2019s device parameters, taking the donor HOMO "
+        "as donor LUMO \u2212 optical gap, so the map depends on gap and offset only. Grey dots: every ranked "
+        "candidate; amber diamonds: the shortlist, labelled by rank. A candidate\u2019s own estimate (tables) "
+        "uses its computed HOMO and can differ from the colour under its marker. "
+        f"{esc(map_note)}</figcaption></figure>",
+        "</div>",
+    ]
+
+
+def _tail(unranked_html: str, n_unranked: int, meta: dict) -> list[str]:
+    """Section 4 (not ranked), the footer with the exported files, and the sorting script."""
+    lm = get(meta, "levels_meta", default={}) or {}
+    lv = text(lm.get("dascreen")) if isinstance(lm, dict) else ""
+    exports = "".join(f'<li><a href="{esc(f)}">{esc(f)}</a> \u2014 {esc(d)}</li>' for f, d in EXPORTS)
+    return [
+        f'<h2 id="not-ranked"><span class="num">4</span>Not ranked ({n_unranked})</h2>',
+        '<p class="quiet">Input rows that were rejected while reading the input, whose computation '
+        "failed, or that the ranking left out \u2014 listed so that nothing disappears.</p>",
+        f'<div class="tablewrap">{unranked_html}</div>',
+        "</main>",
+        '<footer id="files">',
+        '<h3>Files beside this report</h3>',
+        f"<ul>{exports}</ul>",
+        f"<p>Report written by dascreen {esc(__version__)}"
+        + (f"; levels computed by dascreen {esc(lv)}" if lv else "")
+        + ". The page is self-contained and works offline.</p>",
+        "</footer>",
+        f"<script>\n{static_text('report.js')}</script>",
+        "</body>",
+        "</html>",
+    ]
+
+
+def render_report(ranking: pd.DataFrame, levels: pd.DataFrame, partner: dict, meta: dict) -> str:
+    """The report page as one HTML5 string.
+
+    Parameters
+    ----------
+    ranking, levels, partner, meta
+        As for :func:`screen.report.write_report`.
+
+    Returns
+    -------
+    str
+        Complete, self-contained page.  Apart from the date line (set
+        ``meta["created"]`` to fix it) the output depends only on the inputs.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> page = render_report(pd.DataFrame(), pd.DataFrame(), {"id": "ref"}, {"created": "today"})
+    >>> page.startswith("<!DOCTYPE html>"), "Generated today" in page
+    (True, True)
+    """
+    meta = dict(meta or {})
+    partner = _resolve_partner(partner, meta)
+    ranking = with_level_details(ranking if ranking is not None else pd.DataFrame(), levels)
+    short, how = select_shortlist(ranking, meta)
+    n_pass, n_short = _pass_counts(ranking, short)
+    pid = text(partner.get("id"))
+    levels_fig = level_diagram_svg(short, partner, meta)
+    map_fig, map_note = design_map_svg(ranking, list(short.index), partner, meta)
+    unranked_html, n_unranked = not_ranked_table(levels, ranking)
+    parts = _head(partner, meta) + [
+        "<main>",
+        _CAUTION,
+        counts_strip(meta, levels, ranking, n_short, n_pass),
+        '<h2 id="run"><span class="num">1</span>Run at a glance</h2>',
+        '<div class="cards">',
+        partner_card(partner, meta),
+        protocol_card(meta),
+        device_card(meta),
+        "</div>",
+    ]
+    parts += _shortlist_section(ranking, short, how, pid, n_pass, meta)
+    parts += _figures_section(levels_fig, map_fig, map_note, len(short), meta)
+    parts += _tail(unranked_html, n_unranked, meta)
+    return "\n".join(parts) + "\n"
