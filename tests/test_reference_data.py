@@ -63,14 +63,24 @@ def canonical(smiles: str) -> str:
     return Chem.MolToSmiles(mol)
 
 
-def check_structure(smiles: str, where: str) -> None:
+def check_structure(smiles: str, where: str, allow_repeat_unit: bool = False) -> None:
     mol = Chem.MolFromSmiles(smiles)
     assert mol is not None, f"{where}: invalid SMILES {smiles!r}"
     assert len(Chem.GetMolFrags(mol)) == 1, f"{where}: more than one fragment"
     assert Chem.GetFormalCharge(mol) == 0, f"{where}: net charge is not zero"
     radicals = sum(atom.GetNumRadicalElectrons() for atom in mol.GetAtoms())
     assert radicals == 0, f"{where}: open-shell structure ({radicals} radical electrons)"
-    elements = {atom.GetSymbol() for atom in Chem.AddHs(mol).GetAtoms()}
+    stars = [atom for atom in mol.GetAtoms() if atom.GetAtomicNum() == 0]
+    if stars:
+        # Polymer repeat unit: exactly two [*] attachment points, each on one single bond to a heavy atom.
+        assert allow_repeat_unit, f"{where}: attachment points ([*]) are only allowed in film/partner rows"
+        assert len(stars) == 2, f"{where}: a repeat unit needs exactly two [*] attachment points, found {len(stars)}"
+        for star in stars:
+            bonds = star.GetBonds()
+            assert len(bonds) == 1 and bonds[0].GetBondType() == Chem.BondType.SINGLE, \
+                f"{where}: each [*] must sit on exactly one single bond"
+            assert bonds[0].GetOtherAtom(star).GetAtomicNum() > 1, f"{where}: [*] must bond to a heavy atom"
+    elements = {atom.GetSymbol() for atom in Chem.AddHs(mol).GetAtoms() if atom.GetAtomicNum() != 0}
     assert elements <= ALLOWED_ELEMENTS, f"{where}: unsupported elements {elements - ALLOWED_ELEMENTS}"
 
 
@@ -143,7 +153,7 @@ def test_levels_film() -> None:
     seen: dict[str, str] = {}
     for row in rows:
         where = f"{FILM.name}:{row['name']}"
-        check_structure(row["smiles"], where)
+        check_structure(row["smiles"], where, allow_repeat_unit=True)
         key = canonical(row["smiles"])
         assert key not in seen, f"{where}: duplicate SMILES (also {seen[key]})"
         seen[key] = row["name"]
@@ -180,7 +190,7 @@ def test_partner_library() -> None:
         if row["fc_reference_ev"].strip():
             assert -5.2 <= as_float(row["fc_reference_ev"], where) <= -4.6
         if row["smiles"].strip():
-            check_structure(row["smiles"], where)
+            check_structure(row["smiles"], where, allow_repeat_unit=True)
             assert canonical(row["smiles"]) in film_smiles, f"{where}: SMILES not the levels_film.csv representation"
         assert row["source"].strip(), f"{where}: empty source"
         assert row["from_memory"] in {"true", "false"}, f"{where}: from_memory {row['from_memory']!r}"
