@@ -5,7 +5,7 @@ donor candidate with an acceptor partner and vice versa.  The pair's
 frontier-level offsets, open-circuit voltage, short-circuit current and
 efficiency come from :meth:`screen.device.DeviceModel.evaluate`; the spread of
 the efficiency caused by the level uncertainties (σ columns of the levels and
-of the partner) from :func:`screen.device.sample_pce`.  Everything is
+of the partner) from :func:`screen.sampling.sample_pce`.  Everything is
 vectorised over the candidates.
 
 Sign convention (both > 0 for a working type-II heterojunction):
@@ -17,6 +17,14 @@ Sign convention (both > 0 for a working type-II heterojunction):
 
 Energies are on the vacuum scale [eV]; levels and partner must be on the same
 scale (``film`` or ``gas``, design notes §2) or the ranking stops.
+
+:func:`rank_candidates` runs these steps, one function each: the ranked rows
+(``status`` ok) and their arrays (:func:`_candidates`, σ checked), the partner's
+role and the candidates' roles (:func:`partner_role`, :func:`_roles`), the
+donor/acceptor pair arrays (:func:`_pair`), the device numbers
+(:meth:`screen.device.DeviceModel.evaluate`), the σ spread (:func:`_spread`),
+the flags (:func:`_flag_masks`, codes from :mod:`screen.flags`), the table
+(:func:`_ranking_frame`) and the order (:func:`_sort_ranking`).
 
 Flags (``;``-joined in the ``flags`` column).  All of them make a row fail
 except the informational ``role_assumed`` and ``heavy_atoms_unknown``:
@@ -45,13 +53,19 @@ References
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import asdict, dataclass
 
 import numpy as np
 import pandas as pd
 
-from screen.device import DeviceModel, sample_pce
+from screen.columns import RANKING_COLUMNS, RANKING_EXTRA_COLUMNS, SIGMA_COLUMNS
+from screen.device import DeviceModel, join_flags
+from screen.errors import ConfigError, InputError, ScaleMismatchError
+from screen.flags import FLAG_ORDER, INFO_FLAGS
 from screen.partners import ROLES, Partner, PartnerError, complement
+from screen.sampling import sample_pce
+from screen.schema import resolve, section_defaults
 
 __all__ = [
     "RANKING_COLUMNS",
@@ -66,25 +80,17 @@ __all__ = [
     "device_model",
 ]
 
-#: columns of ranking.csv, in order (design notes §3)
-RANKING_COLUMNS = ["rank", "id", "smiles", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "partner", "delta_lumo_ev",
-                   "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "pce_sigma_pct", "p_above_target",
-                   "passes", "flags"]
-#: columns after the contract ones
-EXTRA_COLUMNS = ["name", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev"]
-#: order of the codes in the ``flags`` string
-FLAG_ORDER = ("same_role_as_partner", "role_invalid", "is_partner", "input_missing", "lumo_offset_low",
-              "homo_offset_low", "voc_nonpositive", "gap_out_of_window", "too_many_heavy_atoms",
-              "heavy_atoms_unknown", "role_assumed")
-#: flags that do not make a row fail
-INFO_FLAGS = frozenset({"role_assumed", "heavy_atoms_unknown"})
-
-_SIGMA_COLUMNS = ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")
+#: columns after the contract ones (:data:`screen.columns.RANKING_EXTRA_COLUMNS`, kept under its old name)
+EXTRA_COLUMNS = RANKING_EXTRA_COLUMNS
+#: schema defaults of the ``rank`` config section (the one source of :class:`RankOptions`' defaults)
+_DEFAULTS = section_defaults("rank")
+#: decimals of the numbers written to the ranking
 _ROUND = 4
-
-
-class ScaleMismatchError(ValueError):
-    """Levels and partner are on different energy scales (design notes §2)."""
+#: columns rounded to :data:`_ROUND` decimals
+_ROUNDED = ("homo_ev", "lumo_ev", "gap_opt_ev", "delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff",
+            "pce_pct", "pce_sigma_pct", "p_above_target", *SIGMA_COLUMNS)
+#: device numbers copied from :meth:`DeviceModel.evaluate` (empty where there is no pair)
+_DEVICE_NUMBERS = ("delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct")
 
 
 @dataclass(frozen=True)
@@ -113,32 +119,53 @@ class RankOptions:
     partner_sigma : bool
         Include the partner's σ in the sampling (True) or treat the partner's
         levels as exact (False).
+
+    Raises
+    ------
+    ConfigError
+        A value outside the allowed set or range (names the ``rank.`` field).
+
+    Notes
+    -----
+    The defaults are the schema defaults of the ``rank`` section
+    (:func:`screen.schema.section_defaults`), so the command line, the config
+    file and Python use the same numbers.
+
+    Examples
+    --------
+    >>> RankOptions().n_samples, RankOptions(role="donor").role
+    (2000, 'donor')
     """
 
-    role: str | None = None
-    sort_by: str = "pce_pct"
-    target_pce_pct: float = 10.0
-    shortlist_size: int = 10
-    n_samples: int = 2000
-    seed: int = 20240601
-    gap_min_ev: float = 1.0
-    gap_max_ev: float = 3.0
-    max_heavy_atoms: int | None = None
-    partner_sigma: bool = True
+    role: str | None = _DEFAULTS["role"]
+    sort_by: str = _DEFAULTS["sort_by"]
+    target_pce_pct: float = _DEFAULTS["target_pce_pct"]
+    shortlist_size: int = _DEFAULTS["shortlist_size"]
+    n_samples: int = _DEFAULTS["n_samples"]
+    seed: int = _DEFAULTS["seed"]
+    gap_min_ev: float = _DEFAULTS["gap_min_ev"]
+    gap_max_ev: float = _DEFAULTS["gap_max_ev"]
+    max_heavy_atoms: int | None = _DEFAULTS["max_heavy_atoms"]
+    partner_sigma: bool = _DEFAULTS["partner_sigma"]
 
     def __post_init__(self):
         if self.role not in ROLES + (None,):
-            raise ValueError(f"rank.role must be 'donor', 'acceptor' or null, not {self.role!r}")
+            raise ConfigError(f"rank.role must be 'donor', 'acceptor' or null, not {self.role!r}")
         if self.sort_by not in ("pce_pct", "p_above_target"):
-            raise ValueError(f"rank.sort_by must be 'pce_pct' or 'p_above_target', not {self.sort_by!r}")
+            raise ConfigError(f"rank.sort_by must be 'pce_pct' or 'p_above_target', not {self.sort_by!r}")
         if self.n_samples < 2:
-            raise ValueError(f"rank.n_samples must be at least 2, not {self.n_samples}")
+            raise ConfigError(f"rank.n_samples must be at least 2, not {self.n_samples}")
         if self.gap_min_ev > self.gap_max_ev:
-            raise ValueError(f"rank.gap_min_ev ({self.gap_min_ev}) is above rank.gap_max_ev ({self.gap_max_ev})")
+            raise ConfigError(f"rank.gap_min_ev ({self.gap_min_ev}) is above rank.gap_max_ev ({self.gap_max_ev})")
 
     @classmethod
     def from_mapping(cls, mapping: dict | None) -> RankOptions:
         """Build from the ``rank`` config section, rejecting unknown keys.
+
+        Raises
+        ------
+        ConfigError
+            An unknown key or a value out of range.
 
         Examples
         --------
@@ -149,17 +176,18 @@ class RankOptions:
         known = set(asdict(cls()))
         unknown = set(mapping) - known
         if unknown:
-            raise ValueError(f"unknown rank option(s) {sorted(unknown)}; allowed: {sorted(known)}")
+            raise ConfigError(f"unknown rank option(s) {sorted(unknown)}; allowed: {sorted(known)}")
         return cls(**mapping)
 
 
-def device_model(config: dict | None) -> DeviceModel:
+def device_model(config: Mapping | None) -> DeviceModel:
     """The device model of a configuration's ``device`` section.
 
     Parameters
     ----------
-    config : dict or None
-        Run configuration (defaults fill what is missing).
+    config : mapping or None
+        Run configuration, a plain dict or a :class:`screen.config.Config`
+        (defaults fill what is missing).
 
     Returns
     -------
@@ -177,19 +205,10 @@ def device_model(config: dict | None) -> DeviceModel:
     >>> device_model({"device": {"eqe": 0.7}}).eqe
     0.7
     """
-    from screen.config import resolve
-
-    return DeviceModel(**resolve(config)["device"])
+    return DeviceModel(**resolve(dict(config or {}))["device"])
 
 
-# --------------------------------------------------------------------------- helpers
-
-def _ranked_mask(levels: pd.DataFrame) -> np.ndarray:
-    """Rows that are ranked: status ok (files without a status column: every row)."""
-    if "status" not in levels:
-        return np.ones(len(levels), dtype=bool)
-    return levels["status"].fillna("").astype(str).str.strip().str.lower().eq("ok").to_numpy()
-
+# --------------------------------------------------------------------------- checks
 
 def check_scales(levels: pd.DataFrame, partner: Partner) -> None:
     """Refuse to combine levels and a partner on different energy scales.
@@ -211,7 +230,7 @@ def check_scales(levels: pd.DataFrame, partner: Partner) -> None:
     >>> check_scales(pd.DataFrame({"scale": ["gas"]}), resolve_partner("c60"))
     Traceback (most recent call last):
     ...
-    screen.rank.ScaleMismatchError: levels are on the 'gas' scale but partner 'c60' is on the 'film' scale; rerun levels with levels.scale=film or give a partner on the gas scale
+    screen.errors.ScaleMismatchError: levels are on the 'gas' scale but partner 'c60' is on the 'film' scale; rerun levels with levels.scale=film or give a partner on the gas scale
     """
     if "scale" not in levels:
         raise ScaleMismatchError("the levels have no 'scale' column; every level must name its scale (film or gas)")
@@ -264,6 +283,25 @@ def partner_role(levels: pd.DataFrame, partner: Partner, options: RankOptions) -
                        "role column")
 
 
+# --------------------------------------------------------------------------- reading the levels
+
+def _ranked_mask(levels: pd.DataFrame) -> np.ndarray:
+    """Rows that are ranked: status ok (files without a status column: every row)."""
+    if "status" not in levels:
+        return np.ones(len(levels), dtype=bool)
+    return levels["status"].fillna("").astype(str).str.strip().str.lower().eq("ok").to_numpy()
+
+
+def _split_ranked(levels_df: pd.DataFrame) -> tuple[pd.DataFrame, dict]:
+    """The ranked rows (index reset) and the counts of the others by status."""
+    ranked = _ranked_mask(levels_df)
+    not_ranked = {}
+    if "status" in levels_df:
+        st = levels_df.loc[~ranked, "status"].fillna("").astype(str)
+        not_ranked = {str(k): int(v) for k, v in st.value_counts().items()}
+    return levels_df[ranked].reset_index(drop=True), not_ranked
+
+
 def _numeric(levels: pd.DataFrame, col: str) -> np.ndarray:
     if col not in levels:
         return np.full(len(levels), np.nan)
@@ -292,14 +330,179 @@ def _heavy_atoms(levels: pd.DataFrame) -> np.ndarray:
     return heavy
 
 
-def _join(masks: dict[str, np.ndarray], n: int) -> np.ndarray:
-    out = np.full(n, "", dtype=object)
-    any_flag = np.zeros(n, dtype=bool)
-    for m in masks.values():
-        any_flag |= m
-    names = [k for k in FLAG_ORDER if k in masks]
-    for i in np.flatnonzero(any_flag):
-        out[i] = ";".join(k for k in names if masks[k][i])
+@dataclass(frozen=True)
+class _Candidates:
+    """The ranked rows as arrays: ids, levels [eV] and σ [eV] (empty σ → 0)."""
+
+    ids: np.ndarray
+    homo: np.ndarray
+    lumo: np.ndarray
+    gap: np.ndarray
+    sigma: dict
+
+
+def _candidates(lv: pd.DataFrame) -> _Candidates:
+    """Read ids, levels and σ columns; refuse a negative or infinite σ (:class:`InputError`)."""
+    ids = _text(lv, "id")
+    homo, lumo, gap = (_numeric(lv, c) for c in ("homo_ev", "lumo_ev", "gap_opt_ev"))
+    sig = {c: _numeric(lv, c) for c in SIGMA_COLUMNS}
+    for c, s in sig.items():
+        bad = np.isfinite(s) & (s < 0) | np.isinf(s)
+        if bad.any():
+            raise InputError(f"levels column {c} has negative or infinite values (e.g. row id "
+                             f"{ids[np.flatnonzero(bad)[0]]!r}); σ must be finite and >= 0, empty = 0")
+        sig[c] = np.where(np.isnan(s), 0.0, s)
+    return _Candidates(ids, homo, lumo, gap, sig)
+
+
+# --------------------------------------------------------------------------- steps of rank_candidates
+
+@dataclass(frozen=True)
+class _Roles:
+    """Role of every row and the role flags."""
+
+    role: np.ndarray          # 'donor' / 'acceptor' (object array)
+    is_donor: np.ndarray
+    same_role: np.ndarray     # same role as the partner: no pair
+    role_invalid: np.ndarray  # the role column holds something else
+    role_assumed: np.ndarray  # no usable role and no default: the partner's complement
+
+
+def _roles(lv: pd.DataFrame, p_role: str, options: RankOptions) -> _Roles:
+    """Roles from the ``role`` column (case and spaces ignored), else ``options.role``, else the complement of
+    the partner's."""
+    raw_role = np.char.lower(np.char.strip(_text(lv, "role").astype(str)))
+    empty = raw_role == ""
+    valid = np.isin(raw_role, ROLES)
+    role_invalid = ~empty & ~valid
+    default = options.role if options.role is not None else complement(p_role)
+    role_assumed = (empty | role_invalid) & (options.role is None)
+    role = np.where(valid, raw_role, default).astype(object)
+    return _Roles(role, role == "donor", role == p_role, role_invalid, role_assumed)
+
+
+@dataclass(frozen=True)
+class _Pair:
+    """Donor and acceptor arrays of every pair, in :data:`screen.device.PAIR_LEVELS` order [eV]."""
+
+    levels: tuple
+    sigmas: tuple
+
+
+def _pair(cand: _Candidates, is_donor: np.ndarray, partner: Partner, partner_sigma: bool) -> _Pair:
+    """Put the candidate on its side of the pair and the partner on the other (σ of the partner × 0 if not
+    sampled)."""
+    def split(cand_value, partner_value):
+        return np.where(is_donor, cand_value, partner_value), np.where(is_donor, partner_value, cand_value)
+
+    d_homo, a_homo = split(cand.homo, partner.homo_ev)
+    d_lumo, a_lumo = split(cand.lumo, partner.lumo_ev)
+    d_gap, a_gap = split(cand.gap, partner.gap_opt_ev)
+    k = 1.0 if partner_sigma else 0.0
+    s_d_homo, s_a_homo = split(cand.sigma["homo_sigma_ev"], k * partner.homo_sigma_ev)
+    s_d_lumo, s_a_lumo = split(cand.sigma["lumo_sigma_ev"], k * partner.lumo_sigma_ev)
+    s_d_gap, s_a_gap = split(cand.sigma["gap_opt_sigma_ev"], k * partner.gap_opt_sigma_ev)
+    return _Pair((d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap),
+                 (s_d_homo, s_d_lumo, s_d_gap, s_a_homo, s_a_lumo, s_a_gap))
+
+
+def _spread(model: DeviceModel, pair: _Pair, pair_ok: np.ndarray, options: RankOptions) -> dict:
+    """``pce_sigma_pct`` [%] and ``p_above_target`` of the rows with a pair (NaN elsewhere)."""
+    n = pair_ok.size
+    mc = {"pce_sigma_pct": np.full(n, np.nan), "p_above_target": np.full(n, np.nan)}
+    idx = np.flatnonzero(pair_ok)
+    if idx.size:
+        levels = [arr[idx] for arr in pair.levels]
+        s_d_homo, s_d_lumo, s_d_gap, s_a_homo, s_a_lumo, s_a_gap = (s[idx] for s in pair.sigmas)
+        s = sample_pce(model, *levels,
+                       donor_homo_sigma_ev=s_d_homo, donor_lumo_sigma_ev=s_d_lumo,
+                       donor_gap_sigma_ev=s_d_gap, acceptor_homo_sigma_ev=s_a_homo,
+                       acceptor_lumo_sigma_ev=s_a_lumo, acceptor_gap_sigma_ev=s_a_gap,
+                       n_samples=options.n_samples, seed=options.seed, target_pct=options.target_pce_pct)
+        mc["pce_sigma_pct"][idx] = s["pce_sigma_pct"]
+        mc["p_above_target"][idx] = s["p_above_target"]
+    return mc
+
+
+def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, partner: Partner,
+                options: RankOptions) -> dict[str, np.ndarray]:
+    """One boolean mask per flag code (:data:`screen.flags.FLAG_ORDER`): device flags of the rows with a
+    pair, the gap window, the heavy-atom limit and the role flags."""
+    n = cand.ids.size
+    pair_ok = ~roles.same_role
+    cand_missing = np.isnan(cand.homo) | np.isnan(cand.lumo) | np.isnan(cand.gap)
+    with np.errstate(invalid="ignore"):
+        gap_out = (cand.gap < options.gap_min_ev) | (cand.gap > options.gap_max_ev)
+    heavy_out = np.zeros(n, dtype=bool)
+    heavy_unknown = np.zeros(n, dtype=bool)
+    if options.max_heavy_atoms is not None:
+        heavy = _heavy_atoms(lv)
+        heavy_unknown = np.isnan(heavy)
+        with np.errstate(invalid="ignore"):
+            heavy_out = heavy > options.max_heavy_atoms
+    is_partner = np.zeros(n, dtype=bool)
+    if partner.kind == "id":
+        is_partner = cand.ids == partner.id
+    return {
+        "same_role_as_partner": roles.same_role,
+        "role_invalid": roles.role_invalid,
+        "is_partner": is_partner,
+        "input_missing": (np.asarray(dev["input_missing"], bool) & pair_ok) | cand_missing,
+        "lumo_offset_low": np.asarray(dev["lumo_offset_low"], bool) & pair_ok,
+        "homo_offset_low": np.asarray(dev["homo_offset_low"], bool) & pair_ok,
+        "voc_nonpositive": np.asarray(dev["voc_nonpositive"], bool) & pair_ok,
+        "gap_out_of_window": gap_out,
+        "too_many_heavy_atoms": heavy_out,
+        "heavy_atoms_unknown": heavy_unknown,
+        "role_assumed": roles.role_assumed,
+    }
+
+
+def _passes(masks: dict[str, np.ndarray]) -> np.ndarray:
+    """True where no failing (non-informational) flag is raised."""
+    failing = np.zeros(next(iter(masks.values())).shape, dtype=bool)
+    for name, m in masks.items():
+        if name not in INFO_FLAGS:
+            failing |= m
+    return ~failing
+
+
+def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: Partner, dev: dict,
+                   spread: dict, masks: dict) -> pd.DataFrame:
+    """The unsorted ranking: contract columns then extras, numbers rounded to :data:`_ROUND` decimals."""
+    n = cand.ids.size
+    pair_ok = ~roles.same_role
+    device = {key: np.where(pair_ok, np.asarray(dev[key], dtype=float), np.nan) for key in _DEVICE_NUMBERS}
+    out = pd.DataFrame({
+        "rank": np.zeros(n, dtype=int),
+        "id": cand.ids,
+        "smiles": _text(lv, "smiles"),
+        "role": roles.role,
+        "homo_ev": cand.homo,
+        "lumo_ev": cand.lumo,
+        "gap_opt_ev": cand.gap,
+        "partner": partner.id,
+        **device,
+        "pce_sigma_pct": spread["pce_sigma_pct"],
+        "p_above_target": spread["p_above_target"],
+        "passes": _passes(masks),
+        "flags": join_flags(masks),
+        "name": _text(lv, "name"),
+        **{c: cand.sigma[c] for c in SIGMA_COLUMNS},
+    })
+    for col in _ROUNDED:
+        out[col] = out[col].round(_ROUND)
+    return out
+
+
+def _sort_ranking(out: pd.DataFrame, sort_by: str) -> pd.DataFrame:
+    """Passing rows first, then ``sort_by`` descending (NaN last; ``pce_pct`` breaks ties of
+    ``p_above_target``), then ``id``, then input order; ``rank`` = 1..n."""
+    keys = ["passes", sort_by] + (["pce_pct"] if sort_by != "pce_pct" else []) + ["id", "_order"]
+    out["_order"] = np.arange(len(out))
+    out = out.sort_values(keys, ascending=[False, False] + [False] * (len(keys) - 4) + [True, True],
+                          na_position="last", kind="stable").drop(columns="_order").reset_index(drop=True)
+    out["rank"] = np.arange(1, len(out) + 1)
     return out
 
 
@@ -346,8 +549,8 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
         A ranked row is on another scale than the partner.
     PartnerError
         The partner's role is unknown and cannot be inferred.
-    ValueError
-        A σ column holds a negative or infinite value.
+    InputError
+        A σ column holds a negative or infinite value (a :class:`ValueError`).
 
     Notes
     -----
@@ -358,7 +561,7 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     ``pce_sigma_pct`` and ``p_above_target`` come from independent normal
     errors on the candidate's and (with ``options.partner_sigma``) the
     partner's levels, sampled with common random numbers (see
-    :func:`screen.device.sample_pce`).
+    :func:`screen.sampling.sample_pce`).
 
     References
     ----------
@@ -376,134 +579,21 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     """
     model = DeviceModel() if model is None else model
     options = RankOptions() if options is None else options
-    ranked = _ranked_mask(levels_df)
-    not_ranked = {}
-    if "status" in levels_df:
-        st = levels_df.loc[~ranked, "status"].fillna("").astype(str)
-        not_ranked = {str(k): int(v) for k, v in st.value_counts().items()}
-    lv = levels_df[ranked].reset_index(drop=True)
-    n = len(lv)
+    lv, not_ranked = _split_ranked(levels_df)
     p_role, p_role_assumed = partner_role(lv, partner, options)
     attrs = {"partner_role": p_role, "partner_role_assumed": p_role_assumed, "not_ranked": not_ranked}
-    if n == 0:
+    if len(lv) == 0:
         out = _empty_ranking()
         out.attrs.update(attrs)
         return out
     check_scales(lv, partner)
 
-    ids = _text(lv, "id")
-    homo, lumo, gap = (_numeric(lv, c) for c in ("homo_ev", "lumo_ev", "gap_opt_ev"))
-    sig = {c: _numeric(lv, c) for c in _SIGMA_COLUMNS}
-    for c, s in sig.items():
-        bad = np.isfinite(s) & (s < 0) | np.isinf(s)
-        if bad.any():
-            raise ValueError(f"levels column {c} has negative or infinite values (e.g. row id "
-                             f"{ids[np.flatnonzero(bad)[0]]!r}); σ must be finite and >= 0, empty = 0")
-        sig[c] = np.where(np.isnan(s), 0.0, s)
-
-    # roles
-    raw_role = np.char.lower(np.char.strip(_text(lv, "role").astype(str)))
-    empty = raw_role == ""
-    valid = np.isin(raw_role, ROLES)
-    role_invalid = ~empty & ~valid
-    default = options.role if options.role is not None else complement(p_role)
-    role_assumed = (empty | role_invalid) & (options.role is None)
-    role = np.where(valid, raw_role, default).astype(object)
-    same_role = role == p_role
-    is_donor = role == "donor"
-
-    # pair arrays: the candidate on its side, the partner on the other
-    def pair(cand, part):
-        return np.where(is_donor, cand, part), np.where(is_donor, part, cand)
-
-    d_homo, a_homo = pair(homo, partner.homo_ev)
-    d_lumo, a_lumo = pair(lumo, partner.lumo_ev)
-    d_gap, a_gap = pair(gap, partner.gap_opt_ev)
-    k = 1.0 if options.partner_sigma else 0.0
-    s_d_homo, s_a_homo = pair(sig["homo_sigma_ev"], k * partner.homo_sigma_ev)
-    s_d_lumo, s_a_lumo = pair(sig["lumo_sigma_ev"], k * partner.lumo_sigma_ev)
-    s_d_gap, s_a_gap = pair(sig["gap_opt_sigma_ev"], k * partner.gap_opt_sigma_ev)
-
-    dev = model.evaluate(d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap)
-    pair_ok = ~same_role
-    mc = {"pce_sigma_pct": np.full(n, np.nan), "p_above_target": np.full(n, np.nan)}
-    idx = np.flatnonzero(pair_ok)
-    if idx.size:
-        s = sample_pce(model, d_homo[idx], d_lumo[idx], d_gap[idx], a_homo[idx], a_lumo[idx], a_gap[idx],
-                       donor_homo_sigma_ev=s_d_homo[idx], donor_lumo_sigma_ev=s_d_lumo[idx],
-                       donor_gap_sigma_ev=s_d_gap[idx], acceptor_homo_sigma_ev=s_a_homo[idx],
-                       acceptor_lumo_sigma_ev=s_a_lumo[idx], acceptor_gap_sigma_ev=s_a_gap[idx],
-                       n_samples=options.n_samples, seed=options.seed, target_pct=options.target_pce_pct)
-        mc["pce_sigma_pct"][idx] = s["pce_sigma_pct"]
-        mc["p_above_target"][idx] = s["p_above_target"]
-
-    def numbers(key):
-        return np.where(pair_ok, np.asarray(dev[key], dtype=float), np.nan)
-
-    # filters
-    cand_missing = np.isnan(homo) | np.isnan(lumo) | np.isnan(gap)
-    with np.errstate(invalid="ignore"):
-        gap_out = (gap < options.gap_min_ev) | (gap > options.gap_max_ev)
-    heavy = np.full(n, np.nan)
-    heavy_out = np.zeros(n, dtype=bool)
-    heavy_unknown = np.zeros(n, dtype=bool)
-    if options.max_heavy_atoms is not None:
-        heavy = _heavy_atoms(lv)
-        heavy_unknown = np.isnan(heavy)
-        with np.errstate(invalid="ignore"):
-            heavy_out = heavy > options.max_heavy_atoms
-    is_partner = np.zeros(n, dtype=bool)
-    if partner.kind == "id":
-        is_partner = ids == partner.id
-    masks = {
-        "same_role_as_partner": same_role,
-        "role_invalid": role_invalid,
-        "is_partner": is_partner,
-        "input_missing": (np.asarray(dev["input_missing"], bool) & pair_ok) | cand_missing,
-        "lumo_offset_low": np.asarray(dev["lumo_offset_low"], bool) & pair_ok,
-        "homo_offset_low": np.asarray(dev["homo_offset_low"], bool) & pair_ok,
-        "voc_nonpositive": np.asarray(dev["voc_nonpositive"], bool) & pair_ok,
-        "gap_out_of_window": gap_out,
-        "too_many_heavy_atoms": heavy_out,
-        "heavy_atoms_unknown": heavy_unknown,
-        "role_assumed": role_assumed,
-    }
-    failing = np.zeros(n, dtype=bool)
-    for name, m in masks.items():
-        if name not in INFO_FLAGS:
-            failing |= m
-
-    out = pd.DataFrame({
-        "rank": np.zeros(n, dtype=int),
-        "id": ids,
-        "smiles": _text(lv, "smiles"),
-        "role": role,
-        "homo_ev": homo,
-        "lumo_ev": lumo,
-        "gap_opt_ev": gap,
-        "partner": partner.id,
-        "delta_lumo_ev": numbers("delta_lumo_ev"),
-        "delta_homo_ev": numbers("delta_homo_ev"),
-        "voc_v": numbers("voc_v"),
-        "jsc_ma_cm2": numbers("jsc_ma_cm2"),
-        "ff": numbers("ff"),
-        "pce_pct": numbers("pce_pct"),
-        "pce_sigma_pct": mc["pce_sigma_pct"],
-        "p_above_target": mc["p_above_target"],
-        "passes": ~failing,
-        "flags": _join(masks, n),
-        "name": _text(lv, "name"),
-        "homo_sigma_ev": sig["homo_sigma_ev"],
-        "lumo_sigma_ev": sig["lumo_sigma_ev"],
-        "gap_opt_sigma_ev": sig["gap_opt_sigma_ev"],
-    })
-    for col in ("homo_ev", "lumo_ev", "gap_opt_ev", "delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2",
-                "ff", "pce_pct", "pce_sigma_pct", "p_above_target", *_SIGMA_COLUMNS):
-        out[col] = out[col].round(_ROUND)
-    keys = ["passes", options.sort_by] + (["pce_pct"] if options.sort_by != "pce_pct" else []) + ["id", "_order"]
-    out["_order"] = np.arange(n)
-    out = out.sort_values(keys, ascending=[False, False] + [False] * (len(keys) - 4) + [True, True],
-                          na_position="last", kind="stable").drop(columns="_order").reset_index(drop=True)
-    out["rank"] = np.arange(1, n + 1)
+    cand = _candidates(lv)
+    roles = _roles(lv, p_role, options)
+    pair = _pair(cand, roles.is_donor, partner, options.partner_sigma)
+    dev = model.evaluate(*pair.levels)
+    spread = _spread(model, pair, ~roles.same_role, options)
+    masks = _flag_masks(lv, cand, roles, dev, partner, options)
+    out = _sort_ranking(_ranking_frame(lv, cand, roles, partner, dev, spread, masks), options.sort_by)
     out.attrs.update(attrs)
     return out

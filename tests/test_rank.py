@@ -2,15 +2,16 @@
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import subprocess
 import sys
-import time
 
 import numpy as np
 import pandas as pd
 import pytest
 
+from screen import errors, flags
 from screen.device import DeviceModel
 from screen.partners import PartnerError, resolve_partner
 from screen.rank import (
@@ -21,6 +22,7 @@ from screen.rank import (
     rank_candidates,
 )
 from screen.rank_io import run_rank
+from screen.schema import section_defaults
 
 REF = "scharber-reference-acceptor"
 #: the ranking.csv contract of shared/design.md §3, written out independently of the module
@@ -215,21 +217,46 @@ def test_partner_without_role_takes_the_complement(tmp_path):
         rank_candidates(lv.drop(columns="role"), p)
 
 
-def test_ten_thousand_rows_are_fast(partner):
-    rng = np.random.default_rng(7)  # synthetic levels, for timing only
+def test_ten_thousand_rows(partner):
+    # the speed target (10 000 rows < 2 s) is timed in benchmarks/rerank.py, not asserted here
+    rng = np.random.default_rng(7)  # synthetic levels
     n = 10_000
     homo = rng.uniform(-5.9, -4.9, n)
     gap = rng.uniform(1.1, 2.6, n)
     lv = _levels({"id": [f"s{i:05d}" for i in range(n)], "homo_ev": homo, "lumo_ev": homo + gap + 0.1,
                   "gap_opt_ev": gap, "homo_sigma_ev": 0.15, "lumo_sigma_ev": 0.2, "gap_opt_sigma_ev": 0.1})
-    rank_candidates(lv.head(10), partner)  # spectrum loaded once, outside the timing
-    best = np.inf
-    for _ in range(2):
-        t = time.perf_counter()
-        r = rank_candidates(lv, partner)
-        best = min(best, time.perf_counter() - t)
+    r = rank_candidates(lv, partner)
     assert len(r) == n and r["pce_sigma_pct"].notna().all()
-    assert best < 2.0, f"ranking 10 000 rows took {best:.2f} s"
+    assert r["rank"].tolist() == list(range(1, n + 1)) and r["passes"].is_monotonic_decreasing
+    # a candidate's numbers do not depend on the other rows (common random numbers, same seed)
+    one = rank_candidates(lv.iloc[[1234]], partner).iloc[0]
+    row = r.set_index("id").loc[one["id"]]
+    for col in ("pce_pct", "pce_sigma_pct", "p_above_target", "flags"):
+        assert row[col] == one[col]
+
+
+def test_rank_options_defaults_are_the_schema_defaults():
+    fields = {f.name: f.default for f in dataclasses.fields(RankOptions)}
+    assert fields == section_defaults("rank")
+    with pytest.raises(errors.ConfigError, match="rank.sort_by"):
+        RankOptions(sort_by="voc_v")
+    with pytest.raises(errors.ConfigError, match="unknown rank option"):
+        RankOptions.from_mapping({"sortby": "pce_pct"})
+
+
+def test_flags_and_errors_come_from_the_ground_floor(partner):
+    from screen import rank
+
+    assert rank.FLAG_ORDER is flags.FLAG_ORDER and rank.INFO_FLAGS is flags.INFO_FLAGS
+    assert ScaleMismatchError is errors.ScaleMismatchError
+    lv = _levels([{"id": "neg", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "lumo_sigma_ev": -0.1}])
+    with pytest.raises(errors.InputError, match="lumo_sigma_ev.*'neg'"):
+        rank_candidates(lv, partner)
+    # every code the ranking writes is a registry code, in registry order
+    rows = [{"id": "x", "homo_ev": -5.2, "lumo_ev": -4.2, "gap_opt_ev": 3.5, "role": "dye"}]
+    codes = rank_candidates(_levels(rows), partner).loc[0, "flags"].split(";")
+    assert codes == ["role_invalid", "lumo_offset_low", "gap_out_of_window", "role_assumed"]
+    assert codes == [c for c in flags.FLAG_ORDER if c in codes]
 
 
 # --------------------------------------------------------------------------- run_rank and outputs
@@ -354,7 +381,7 @@ def test_cli_partners_lists_the_library():
 
 def test_report_is_written_when_the_module_exists(cv_file, tmp_path):
     pytest.importorskip("screen.report", reason="screen.report is written separately")
-    import screen.report as report
+    from screen import report
 
     if not hasattr(report, "write_report"):
         pytest.skip("screen.report has no write_report yet")

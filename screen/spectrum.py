@@ -1,0 +1,314 @@
+"""ASTM G173-03 AM1.5G reference spectrum: photon flux and short-circuit current above a gap.
+
+The spectrum is the hemispherical (global, 37° tilt) table of ASTM G173-03 as
+shipped with pvlib.  From it come the integrated incident power, the photon flux
+with photon energy at or above an optical gap and the Scharber short-circuit
+current density
+
+.. math::
+
+    J_{sc} = \\mathrm{EQE}\\; q \\int_{E \\ge E_g} \\Phi(E)\\, dE .
+
+Everything is vectorised over numpy arrays (broadcasting rules apply); a 0-d
+input gives a numpy scalar.  Internally SI units (:mod:`scipy.constants`); names
+carry the boundary units (``_ev``, ``_nm``, ``_w_m2``, ``_m2_s``, ``_ma_cm2``).
+
+References
+----------
+.. [1] ASTM G173-03, "Standard Tables for Reference Solar Spectral
+   Irradiances: Direct Normal and Hemispherical on 37° Tilted Surface",
+   ASTM International (table as shipped with pvlib).
+.. [2] W. F. Holmgren, C. W. Hansen, M. A. Mikofski, "pvlib python: a python
+   package for modeling solar energy systems", J. Open Source Softw. 3 (2018)
+   884. :doi:`10.21105/joss.00884`
+.. [3] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
+   :doi:`10.1002/adma.200501717`
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+from scipy import constants as _c
+
+__all__ = [
+    "SPECTRUM_STANDARD",
+    "SPECTRUM_COLUMN",
+    "ReferenceSpectrum",
+    "reference_spectrum",
+    "incident_power_w_m2",
+    "gap_to_wavelength_nm",
+    "photon_flux_above_gap_m2_s",
+    "jsc_ma_cm2",
+    "A_M2_TO_MA_CM2",
+    "as_output",
+]
+
+#: Spectrum used by the device model (pvlib key).
+SPECTRUM_STANDARD = "ASTM G173-03"
+#: Column of the pvlib table: hemispherical irradiance on a 37° tilted surface.
+SPECTRUM_COLUMN = "global"
+
+_HC_J_M = _c.h * _c.c  # [J m]
+#: hc/e in eV nm: λ [nm] = _HC_EV_NM / E [eV].
+_HC_EV_NM = _HC_J_M / _c.e * 1e9
+#: A m⁻² → mA cm⁻² (1 A m⁻² = 1000 mA / 10 000 cm² = 0.1 mA cm⁻²).
+A_M2_TO_MA_CM2 = 0.1
+
+
+def as_output(x):
+    """Numpy scalar for a 0-d array, anything else unchanged (scalar in, scalar out).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> type(as_output(np.array(1.5))).__name__, as_output(np.array([1.5])).shape
+    ('float64', (1,))
+    """
+    if isinstance(x, np.ndarray) and x.ndim == 0:
+        return x[()]
+    return x
+
+
+# --------------------------------------------------------------------------- #
+# Reference spectrum
+# --------------------------------------------------------------------------- #
+@dataclass(frozen=True)
+class ReferenceSpectrum:
+    """ASTM G173-03 AM1.5G spectrum with derived photon-flux tables.
+
+    All arrays are read-only and share the wavelength grid of the standard
+    (2002 points, 280–4000 nm; 0.5 nm steps below 400 nm, 1 nm to 1700 nm,
+    5 nm above).
+
+    Attributes
+    ----------
+    wavelength_nm : numpy.ndarray
+        Wavelength grid of the standard. [nm]
+    irradiance_w_m2_nm : numpy.ndarray
+        Spectral irradiance, global tilt 37°. [W m⁻² nm⁻¹]
+    photon_flux_m2_s_nm : numpy.ndarray
+        Spectral photon flux ``irradiance · λ / (h c)``. [m⁻² s⁻¹ nm⁻¹]
+    cumulative_photon_flux_m2_s : numpy.ndarray
+        Trapezoid integral of the photon flux from the first wavelength up to
+        each grid wavelength (first element 0). [m⁻² s⁻¹]
+    incident_power_w_m2 : float
+        Trapezoid integral of the irradiance over the whole table. [W m⁻²]
+    name : str
+        Human-readable name of the spectrum.
+    """
+
+    wavelength_nm: np.ndarray
+    irradiance_w_m2_nm: np.ndarray
+    photon_flux_m2_s_nm: np.ndarray
+    cumulative_photon_flux_m2_s: np.ndarray
+    incident_power_w_m2: float
+    name: str = "ASTM G173-03 AM1.5G (global, 37° tilt)"
+
+
+@lru_cache(maxsize=1)
+def reference_spectrum() -> ReferenceSpectrum:
+    """Load the ASTM G173-03 AM1.5G spectrum from pvlib and derive flux tables.
+
+    The result is cached; its arrays are read-only.
+
+    Returns
+    -------
+    ReferenceSpectrum
+        Wavelength [nm], spectral irradiance [W m⁻² nm⁻¹], spectral photon
+        flux [m⁻² s⁻¹ nm⁻¹], cumulative photon flux [m⁻² s⁻¹] and the
+        integrated incident power [W m⁻²].
+
+    Notes
+    -----
+    The photon flux per unit wavelength is :math:`E_\\lambda \\lambda / (h c)`
+    (λ converted to metres).  The cumulative table is the trapezoid rule on the
+    grid of the standard.
+
+    References
+    ----------
+    .. [1] ASTM G173-03 Standard Tables for Reference Solar Spectral
+       Irradiances, ASTM International.
+    .. [2] W. F. Holmgren et al., J. Open Source Softw. 3 (2018) 884.
+       :doi:`10.21105/joss.00884`
+
+    Examples
+    --------
+    >>> from screen.spectrum import reference_spectrum
+    >>> spec = reference_spectrum()
+    >>> spec.wavelength_nm[[0, -1]]
+    array([ 280., 4000.])
+    >>> round(spec.incident_power_w_m2, 1)
+    1000.4
+    """
+    from pvlib.spectrum import get_reference_spectra
+
+    table = get_reference_spectra(standard=SPECTRUM_STANDARD)[SPECTRUM_COLUMN]
+    lam = np.asarray(table.index, dtype=float)
+    irr = np.asarray(table.to_numpy(), dtype=float)
+    if lam.ndim != 1 or lam.size < 2 or np.any(np.diff(lam) <= 0):
+        raise RuntimeError(
+            f"pvlib reference spectrum {SPECTRUM_STANDARD!r} has no increasing wavelength grid"
+        )
+    flux = irr * (lam * 1e-9) / _HC_J_M  # [W m^-2 nm^-1] * [m] / [J m] = [m^-2 s^-1 nm^-1]
+    cum = np.concatenate(([0.0], np.cumsum(0.5 * (flux[1:] + flux[:-1]) * np.diff(lam))))
+    power = float(np.sum(0.5 * (irr[1:] + irr[:-1]) * np.diff(lam)))
+    for arr in (lam, irr, flux, cum):
+        arr.setflags(write=False)
+    return ReferenceSpectrum(
+        wavelength_nm=lam,
+        irradiance_w_m2_nm=irr,
+        photon_flux_m2_s_nm=flux,
+        cumulative_photon_flux_m2_s=cum,
+        incident_power_w_m2=power,
+    )
+
+
+def incident_power_w_m2() -> float:
+    """Integrated irradiance of the AM1.5G reference spectrum.
+
+    Returns
+    -------
+    float
+        Trapezoid integral of the ASTM G173-03 global-tilt table over
+        280–4000 nm. [W m⁻²]
+
+    Notes
+    -----
+    The standard quotes 1000.4 W m⁻²; the trapezoid rule on pvlib's copy of the
+    table gives 1000.37 W m⁻².  This value is the default :math:`P_{in}` of
+    :class:`screen.device.DeviceModel`, so the efficiency refers to the same spectrum that
+    produced :math:`J_{sc}`.
+
+    References
+    ----------
+    .. [1] ASTM G173-03 Standard Tables for Reference Solar Spectral
+       Irradiances, ASTM International.
+
+    Examples
+    --------
+    >>> from screen.spectrum import incident_power_w_m2
+    >>> round(incident_power_w_m2(), 2)
+    1000.37
+    """
+    return reference_spectrum().incident_power_w_m2
+
+
+def gap_to_wavelength_nm(gap_ev):
+    """Absorption-edge wavelength of an optical gap, λ = hc / E.
+
+    Parameters
+    ----------
+    gap_ev : array_like
+        Optical gap. [eV]
+
+    Returns
+    -------
+    numpy.ndarray
+        Edge wavelength; NaN where the gap is not finite or not positive. [nm]
+
+    Examples
+    --------
+    >>> from screen.spectrum import gap_to_wavelength_nm
+    >>> float(round(gap_to_wavelength_nm(1.5), 1))
+    826.6
+    """
+    gap = np.asarray(gap_ev, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lam = _HC_EV_NM / gap
+    return as_output(np.where(np.isfinite(gap) & (gap > 0), lam, np.nan))
+
+
+def photon_flux_above_gap_m2_s(gap_ev):
+    """AM1.5G photon flux with photon energy at or above a gap.
+
+    Parameters
+    ----------
+    gap_ev : array_like
+        Optical gap. [eV]
+
+    Returns
+    -------
+    numpy.ndarray
+        :math:`\\int_{\\lambda \\le hc/E_g} \\Phi_\\lambda\\, d\\lambda`; NaN for
+        non-finite or non-positive gaps. [m⁻² s⁻¹]
+
+    Notes
+    -----
+    The value is exactly the trapezoid integral of the tabulated photon flux
+    over the grid points below the edge wavelength λ_g plus the partial last
+    interval [λ_i, λ_g], where the irradiance at λ_g is interpolated linearly
+    between the neighbouring grid points and converted to photon flux.  Gaps
+    above hc/280 nm (4.43 eV) give 0; gaps below hc/4000 nm (0.31 eV) give the
+    flux of the whole table.
+
+    References
+    ----------
+    .. [1] ASTM G173-03 Standard Tables for Reference Solar Spectral
+       Irradiances, ASTM International.
+
+    Examples
+    --------
+    >>> from screen.spectrum import photon_flux_above_gap_m2_s
+    >>> flux = photon_flux_above_gap_m2_s([1.1, 1.5, 2.0])
+    >>> bool(flux[0] > flux[1] > flux[2])
+    True
+    """
+    spec = reference_spectrum()
+    lam = spec.wavelength_nm
+    irr = spec.irradiance_w_m2_nm
+    flux = spec.photon_flux_m2_s_nm
+    cum = spec.cumulative_photon_flux_m2_s
+
+    lam_g = np.asarray(gap_to_wavelength_nm(gap_ev), dtype=float)
+    valid = np.isfinite(lam_g)
+    lg = np.clip(np.where(valid, lam_g, lam[0]), lam[0], lam[-1])
+    i = np.clip(np.searchsorted(lam, lg, side="right") - 1, 0, lam.size - 2)
+    frac = (lg - lam[i]) / (lam[i + 1] - lam[i])
+    irr_g = irr[i] + frac * (irr[i + 1] - irr[i])
+    flux_g = irr_g * (lg * 1e-9) / _HC_J_M
+    total = cum[i] + 0.5 * (flux[i] + flux_g) * (lg - lam[i])
+    return as_output(np.where(valid, total, np.nan))
+
+
+def jsc_ma_cm2(gap_ev, eqe=0.65):
+    """Short-circuit current density for absorption above a gap (Scharber model).
+
+    Parameters
+    ----------
+    gap_ev : array_like
+        Optical gap of the absorbing material. [eV]
+    eqe : array_like, default 0.65
+        External quantum efficiency, constant above the gap. [dimensionless]
+
+    Returns
+    -------
+    numpy.ndarray
+        :math:`J_{sc} = \\mathrm{EQE}\\, q \\int_{E \\ge E_g} \\Phi(E)\\, dE`
+        under AM1.5G; NaN for non-finite or non-positive gaps. [mA cm⁻²]
+
+    Notes
+    -----
+    See :func:`photon_flux_above_gap_m2_s` for the integration rule.  With
+    ``eqe=1`` this is the Shockley–Queisser short-circuit current.
+
+    References
+    ----------
+    .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
+       :doi:`10.1002/adma.200501717`
+    .. [2] S. Rühle, "Tabulated values of the Shockley–Queisser limit for
+       single junction solar cells", Sol. Energy 130 (2016) 139.
+       :doi:`10.1016/j.solener.2016.02.015`
+
+    Examples
+    --------
+    >>> from screen.spectrum import jsc_ma_cm2
+    >>> float(round(jsc_ma_cm2(1.34, eqe=1.0), 1))
+    35.0
+    >>> float(round(jsc_ma_cm2(1.5), 2))
+    18.83
+    """
+    flux = photon_flux_above_gap_m2_s(gap_ev)
+    return as_output(np.asarray(eqe, dtype=float) * _c.e * np.asarray(flux) * A_M2_TO_MA_CM2)
