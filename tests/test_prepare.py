@@ -120,10 +120,164 @@ def test_reason_unsupported_element_custom_set() -> None:
 
 
 def test_reason_dummy_atom() -> None:
-    for smiles, shown in (("*c1ccccc1", "*"), ("[*:1]CC", "[*:1]"), ("[R1]CC", "[R1]")):
-        row = _one(smiles)
-        assert (row.status, row.reason) == ("rejected", "dummy_atom"), smiles
-        assert shown in row.error
+    row = _one("[R1]CC")
+    assert (row.status, row.reason) == ("rejected", "dummy_atom")
+    assert row.error == (
+        "R-group placeholder(s) [R1]: a complete molecule is needed (replace the R-group by a "
+        "real substituent, e.g. a methyl); a polymer repeat unit is written with two attachment "
+        "points [*]"
+    )
+    row = _one("CC |$;_AP1$|")
+    assert (row.status, row.reason) == ("rejected", "dummy_atom")
+    assert row.error == (
+        "attachment-point label(s) on real atoms at atom 1 (_AP1): a complete molecule is "
+        "needed (cap open valences, e.g. with hydrogen or methyl); a polymer repeat unit is "
+        "written with two attachment points [*]"
+    )
+
+
+# every attachment-point rejection, with its exact message
+ATTACHMENT_CASES = [
+    ("*c1ccccc1", "attachment_single",
+     "one attachment point (* at atom 0): a polymer repeat unit needs exactly two attachment "
+     "points ([*] at each end of the backbone) and a molecule none (cap the open valence, e.g. "
+     "with hydrogen or methyl)"),
+    ("[*:1]CC", "attachment_single",
+     "one attachment point ([*:1] at atom 0): a polymer repeat unit needs exactly two "
+     "attachment points ([*] at each end of the backbone) and a molecule none (cap the open "
+     "valence, e.g. with hydrogen or methyl)"),
+    ("*c1cc(*)cc(*)c1", "attachment_too_many",
+     "3 attachment points (* at atom 0, * at atom 4, * at atom 7): a polymer repeat unit has "
+     "exactly two ([*] at each end of the backbone); branched units, R-group templates and "
+     "networks are not screened"),
+    ("*=Cc1ccc(C=*)cc1", "attachment_bond",
+     "the attachment point * at atom 0 is joined by a double bond: each attachment point of a "
+     "repeat unit must be joined to the unit by exactly one single bond"),
+    ("c1ccc2c(c1)*c1ccccc1*2", "attachment_bond",
+     "the attachment point * at atom 6 has 2 bonds: each attachment point of a repeat unit "
+     "must be joined to the unit by exactly one single bond"),
+    ("*.CC*", "attachment_bond",
+     "the attachment point * at atom 0 has no bond: each attachment point of a repeat unit "
+     "must be joined to the unit by exactly one single bond"),
+    ("[*H]c1ccc(*)s1", "attachment_partner",
+     "the attachment point * at atom 0 carries a hydrogen: an attachment point must sit on a "
+     "heavy atom of the repeat unit"),
+    ("[H][*:1].C[*:2]", "attachment_partner",
+     "the attachment point [*:1] at atom 1 is bonded to a hydrogen (atom 0): an attachment "
+     "point must sit on a heavy atom of the repeat unit"),
+    ("**", "attachment_partner",
+     "the attachment point * at atom 0 is bonded to another attachment point (* at atom 1): an "
+     "attachment point must sit on a heavy atom of the repeat unit"),
+    ("*[Si](C)(C)*", "attachment_same_atom",
+     "both attachment points (* at atom 0, * at atom 4) are bonded to atom 1 (Si): the two ends "
+     "of a repeat unit must be different atoms (write at least two backbone atoms, e.g. *CC* "
+     "rather than *C*)"),
+]
+
+
+@pytest.mark.parametrize(("smiles", "reason", "message"), ATTACHMENT_CASES)
+def test_attachment_point_rejections(smiles: str, reason: str, message: str) -> None:
+    row = _one(smiles)
+    assert (row.status, row.reason, row.error) == ("rejected", reason, message)
+    assert row.key == "" and row.representation == ""
+
+
+# accepted repeat units: (input, canonical SMILES); every spelling of a unit gives one key
+REPEAT_UNITS = [
+    ("[*]c1ccc([*])s1", "*c1ccc(*)s1"),
+    ("*c1ccc(*)s1", "*c1ccc(*)s1"),
+    ("[*:1]c1ccc([*:2])s1", "*c1ccc(*)s1"),
+    ("[*:2]c1ccc([*:1])s1", "*c1ccc(*)s1"),
+    ("[1*]c1ccc([2*])s1", "*c1ccc(*)s1"),
+    ("*c1ccc(*)s1 |$_R1;;;;;_R2;$|", "*c1ccc(*)s1"),
+    ("*c1ccc(/C=C/*)cc1", "*/C=C/c1ccc(*)cc1"),
+    ("*C1CC1*", "*C1CC1*"),
+    ("*c1ccc(-c2ccc(*)c3nsnc23)s1", "*c1ccc(-c2ccc(*)c3nsnc23)s1"),
+]
+
+
+@pytest.mark.parametrize(("smiles", "canonical"), REPEAT_UNITS)
+def test_repeat_units_accepted_with_stable_canonical_form(smiles: str, canonical: str) -> None:
+    row = _one(smiles)
+    assert (row.status, row.reason, row.representation) == ("ok", "", "polymer")
+    assert row.smiles == canonical and row.note == ""  # attachment labels removed silently
+    assert KEY_RE.match(row.key) and row.key == structure_key(canonical)
+    again = _one(row.smiles)  # the canonical form validates to itself
+    assert (again.smiles, again.key, again.representation) == (row.smiles, row.key, "polymer")
+
+
+def test_repeat_unit_key_differs_from_the_molecule() -> None:
+    out = validate(_frame([("ru", "[*:1]c1ccc([*:2])s1"), ("mol", "c1ccsc1"), ("ru2", "*c1ccc(*)s1")]))
+    assert list(out.representation) == ["polymer", "molecule", "polymer"]
+    assert out.key[0] != out.key[1] and out.key[0] == out.key[2]
+    assert list(out.duplicate_of) == ["", "", "ru"]
+    assert list(out.heavy_atoms) == [5, 5, 5]  # attachment points are not atoms of the unit
+
+
+def test_repeat_unit_goes_through_the_other_checks() -> None:
+    salt = _one("[*:1]c1ccc([*:2])s1.[Na+].[Cl-]")
+    assert (salt.reason, salt.representation) == ("multi_fragment", "polymer")
+    metal = _one("*C[Hg]C*")
+    assert metal.reason == "unsupported_element" and "Hg" in metal.error and "*" not in metal.error
+    assert _one("*C(C)(C)(C)C*").reason == "valence"
+    assert _one("*CC*", PrepareOptions(max_heavy_atoms=1)).reason == "too_many_atoms"
+
+
+# (net-neutral) unphysical charge separation, with the exact message
+CHARGE_SEPARATED = [
+    # a squaraine-type donor with a [C+] left carrying four single bonds (drawing artefact)
+    ("CN(C)c1ccc(cc1)[C+]1(C)C(=O)C(c2ccc(N(C)C)cc2)=C1[O-]",
+     "atom 9 (C, charge +1) is a carbocation with four single bonds (counting hydrogens), i.e. "
+     "on an sp3 carbon: a charged carbon cannot have four bonds, so the charges in this neutral "
+     "structure are a drawing artefact (seen e.g. in squaraine-type dyes drawn from a "
+     "zwitterionic form); draw the uncharged structure, or put the charges on conjugated atoms"),
+    ("C[CH-]CC[NH3+]",
+     "atom 1 (C, charge -1) is a carbanion on an sp3 carbon, not conjugated with a pi system "
+     "and not bonded to a positively charged heteroatom (an ylide): this charge separation in a "
+     "neutral structure is not physical; draw the uncharged structure, or set "
+     "prepare.allow_charge_separation to accept it"),
+    ("[CH2+]CC[O-]",
+     "atom 0 (C, charge +1) is a carbocation with only single bonds and no pi system, lone pair "
+     "or negatively charged heteroatom next to it: this charge separation in a neutral "
+     "structure is not physical; draw the uncharged structure, or set "
+     "prepare.allow_charge_separation to accept it"),
+]
+
+
+@pytest.mark.parametrize(("smiles", "message"), CHARGE_SEPARATED)
+def test_reason_charge_separated_sp3(smiles: str, message: str) -> None:
+    row = _one(smiles)
+    assert (row.status, row.reason, row.error) == ("rejected", "charge_separated_sp3", message)
+
+
+def test_charge_separation_opt_in() -> None:
+    allow = PrepareOptions(allow_charge_separation=True)
+    assert _one("C[CH-]CC[NH3+]", allow).status == "ok"
+    assert _one("[CH2+]CC[O-]", allow).status == "ok"
+    # a carbon with a charge and four bonds is still impossible: RDKit's valence check says so
+    assert _one(CHARGE_SEPARATED[0][0], allow).reason == "valence"
+    # a net charge is the 'charged' check's business, not this one's
+    assert _one("C[CH-]C").reason == "charged"
+
+
+@pytest.mark.parametrize(
+    "smiles",
+    [
+        "c1ccccc1N(=O)=O",  # nitro
+        "C[N+](C)(C)[O-]",  # N-oxide
+        "C[S+](C)[CH2-]",  # sulfonium ylide
+        "C[P+](C)(C)[CH2-]",  # phosphonium ylide
+        "[C-]#[N+]c1ccccc1",  # isocyanide
+        "C[N+](C)(C)CC(=O)[CH-]C",  # carbanion conjugated with a carbonyl (enolate form)
+        "CN(C)c1ccc(cc1)C1=C([O-])C(=C2C=CC(=[N+](C)C)C=C2)C1=O",  # conjugated squaraine zwitterion
+        "CN(C)[CH+]CCC[O-]",  # carbocation next to a lone pair (iminium form)
+        "[NH3+]CC(=O)[O-]",  # amino-acid zwitterion
+    ],
+)
+def test_charge_separation_with_a_resonance_form_is_accepted(smiles: str) -> None:
+    row = _one(smiles)
+    assert (row.status, row.reason) == ("ok", ""), row.error
+    assert row.note.startswith("charge_separated")
 
 
 def test_reason_charged_and_neutral_formal_charges() -> None:
@@ -423,10 +577,18 @@ def test_read_sdf_dummy_and_valence(tmp_path: Path) -> None:
         atoms="".join(atom.format(x=float(i), el="C") for i in range(6)),
         bonds="".join(f"  1  {j}  1  0\n" for j in range(2, 7)),
     )
+    two_r = block.format(
+        title="ru", n=4, m=3,
+        atoms=atom.format(x=0, el="R#") + atom.format(x=1.5, el="C")
+        + atom.format(x=3.0, el="C") + atom.format(x=4.5, el="R#"),
+        bonds="  1  2  1  0\n  2  3  1  0\n  3  4  1  0\n",
+    )
     path = tmp_path / "x.sd"
-    path.write_text(rgroup + penta)
+    path.write_text(rgroup + penta + two_r)
     out = validate(read_candidates(path))
-    assert list(out.reason) == ["dummy_atom", "valence"]
+    assert list(out.reason) == ["attachment_single", "valence", ""]
+    assert list(out.representation) == ["", "molecule", "polymer"]
+    assert out.smiles[2] == "*CC*"
 
 
 # ----------------------------------------------------------------------------------------------
@@ -462,8 +624,34 @@ def test_shards_cover_unique_keys_once_deterministically() -> None:
     ok_keys = list(dict.fromkeys(out[out.status == "ok"].key))
     assert keys == ok_keys  # each unique key once, in first-occurrence order
     assert all(list(p.columns) == list(SHARD_COLUMNS) for p in parts)
+    assert all(set(p.representation) == {"molecule"} for p in parts)
     again = shard(validate(read_candidates(DATA / "hostile.csv")), options)
     assert all(a.equals(b) for a, b in zip(parts, again)) and len(parts) == len(again)
+
+
+def test_polymers_end_to_end_representation_in_manifest_and_shards(tmp_path: Path) -> None:
+    summary = prepare(DATA / "polymers.csv", tmp_path, PrepareOptions(min_shards=2))
+    manifest = read_manifest(tmp_path / "manifest.csv")
+    raw = pd.read_csv(DATA / "polymers.csv", dtype=str, keep_default_na=False)
+    assert list(manifest.columns[: len(MANIFEST_COLUMNS)]) == list(MANIFEST_COLUMNS)
+    assert list(zip(manifest.status, manifest.reason, manifest.representation)) == list(
+        zip(raw.expect_status, raw.expect_reason, raw.expect_representation)
+    )
+    shards = [pd.read_csv(tmp_path / f"shard-{k:03d}.csv", dtype=str, keep_default_na=False)
+              for k in range(summary["shards"])]
+    assert summary["shards"] == 2 and all(list(s.columns) == list(SHARD_COLUMNS) for s in shards)
+    both = pd.concat(shards, ignore_index=True)
+    ok = manifest[(manifest.status == "ok") & (manifest.duplicate_of == "")]
+    assert list(both.key) == list(ok.key)
+    assert list(both.representation) == list(ok.representation)
+    assert set(both.representation) == {"molecule", "polymer"}
+    assert all(("*" in smi) == (kind == "polymer") for smi, kind in zip(both.smiles, both.representation))
+
+
+def test_shard_of_a_frame_without_representation() -> None:
+    frame = validate(_frame([("a", "CC"), ("b", "CCC")])).drop(columns="representation")
+    parts = shard(frame, PrepareOptions(min_shards=1))
+    assert list(parts[0].representation) == ["molecule", "molecule"]
 
 
 def test_shard_rejects_unvalidated_frame() -> None:

@@ -3,7 +3,9 @@
 The package is laid out as :mod:`~screen.prepare.readers` (CSV, SMILES and SDF readers),
 :mod:`~screen.prepare.checks` (chemistry checks and reason codes),
 :mod:`~screen.prepare.validation` (row-level validation), :mod:`~screen.prepare.shards`
-(sharding and the manifest) and :mod:`~screen.prepare.options` (:class:`PrepareOptions`);
+(sharding and the manifest), :mod:`~screen.prepare.attachments` (polymer repeat units),
+:mod:`~screen.prepare.charges` (unphysical charge separation) and
+:mod:`~screen.prepare.options` (:class:`PrepareOptions`);
 canonical SMILES and structure keys live in :mod:`screen.chem`.  Everything a caller needs is
 importable from ``screen.prepare``.
 
@@ -48,8 +50,18 @@ A rejected row carries exactly one reason (the first problem found, in this orde
                         sanitisation failure.  Element symbols unknown to RDKit (``[Xx]``)
                         and R-groups (``[R]``) make the SMILES unparsable for RDKit; they are
                         recognised and reported as ``unsupported_element`` / ``dummy_atom``.
-``dummy_atom``          ``*``, ``[*:1]``, R-groups (``[R]``, SDF ``R#``), CXSMILES
-                        attachment-point labels.
+``dummy_atom``          R-group placeholders written in SMILES (``[R]``, ``[R1]``; RDKit
+                        cannot read them) and CXSMILES attachment-point labels on real atoms
+                        (``_AP1``).  Dummy atoms (``*``) are judged by the attachment-point
+                        rules below.
+``attachment_single``   exactly one attachment point (``*c1ccccc1``, ``[*:1]CC``): neither a
+                        molecule nor a repeat unit.
+``attachment_too_many`` more than two attachment points (branched unit, R-group template).
+``attachment_bond``     an attachment point with no bond, more than one bond, or a bond that
+                        is not single (``*=CC*``).
+``attachment_partner``  an attachment point on a hydrogen (``[H]*``, ``[*H]``) or on another
+                        attachment point (``**``).
+``attachment_same_atom`` both attachment points on the same atom (``*C*``).
 ``multi_fragment``      more than one disconnected fragment (salts, mixtures, solvates); the
                         message lists the fragments.  Checked before the element check, so a
                         metal salt such as ``[Na+].[Cl-]`` is reported as a salt (the message
@@ -57,13 +69,22 @@ A rejected row carries exactly one reason (the first problem found, in this orde
 ``unsupported_element`` elements outside ``PrepareOptions.allowed_elements`` (metals, noble
                         gases, ...) or unknown element symbols; the message lists the
                         offending elements and the allowed set.
+``charge_separated_sp3`` (a) a charged carbon with four single bonds (counting hydrogens)
+                        in a net-neutral structure -- checked before ``valence``, which would
+                        otherwise report it; (b) after the ``charged`` check: in a net-neutral
+                        structure, a carbanion on an sp3 carbon that is not an ylide on a
+                        heteroatom, or a carbocation with no pi system, lone pair or anionic
+                        heteroatom next to it (:mod:`screen.prepare.charges`).  Accepted with
+                        ``PrepareOptions.allow_charge_separation`` (case (a) then falls to
+                        ``valence``).
 ``valence``             impossible valence, e.g. pentavalent carbon (message names the element
                         and the 0-based atom index in the order of ``smiles_input``).
 ``aromaticity``         aromatic system that cannot be kekulised, e.g. pyrrole written
                         ``c1ccnc1`` without ``[nH]``.
 ``charged``             net charge different from zero.  Species that are neutral overall
-                        but carry formal charges (nitro groups, N-oxides, zwitterions) are
-                        accepted, with a ``charge_separated`` note.
+                        but carry formal charges (nitro groups, N-oxides, ylides on
+                        heteroatoms, conjugated zwitterions) are accepted, with a
+                        ``charge_separated`` note.
 ``open_shell``          any atom with radical electrons, or an odd number of electrons.
 ``too_many_atoms``      more heavy atoms than ``PrepareOptions.max_heavy_atoms``.
 ``bad_role``            ``role`` other than ``donor``, ``acceptor`` or empty (case and
@@ -79,8 +100,19 @@ items separated by ``"; "``:
                         assigned (with a ``-2``, ``-3`` ... suffix if that text is already an id
                         in the file).  Auto-assignment is friendlier than rejection.
 ``isotopes_removed``    isotope labels were stripped (unless ``keep_isotopes``).
-``atom_maps_removed``   atom-map numbers on real atoms were stripped.
+``atom_maps_removed``   atom-map numbers on real atoms were stripped (labels of attachment
+                        points are removed silently).
 ``charge_separated``    formal charges present, net charge zero.
+
+Polymer repeat units
+--------------------
+A structure with exactly two valid attachment points -- ``*``, ``[*]``, ``[*:1]``/``[*:2]``,
+``[1*]``/``[2*]``, CXSMILES ``_R1``/``_R2`` labels, or R-group atoms (``R#``) of an SDF record
+-- is a repeat unit: its ``representation`` is ``polymer`` (otherwise ``molecule``; ``''`` when
+the structure could not be classified).  Its canonical SMILES keeps the ends as ``*`` with
+their labels removed (``[*:1]c1ccc([*:2])s1`` -> ``*c1ccc(*)s1``), so every way of writing the
+unit gives one key, and that key never equals a molecule's (no molecule's SMILES contains
+``*``).  ``heavy_atoms`` counts the unit's atoms without the attachment points.
 
 Duplicate structures (different SMILES strings of the same molecule) are **not** rejected:
 every such row is ``ok``, shares the same ``key`` (so the computation is done once) and, from
@@ -91,13 +123,13 @@ Because only the first row with a given id can be ``ok``, ids of ``ok`` rows are
 Output files
 ------------
 ``manifest.csv`` columns, in order: ``row, id, key, smiles_input, smiles, status, reason,
-error, duplicate_of, name, role, heavy_atoms, note`` and then the passthrough columns
-(:data:`MANIFEST_COLUMNS`).  ``note`` is not in the original contract; it sits after
-``heavy_atoms`` so that passthrough columns stay last.  Ids and passthrough text are written
+error, duplicate_of, name, role, heavy_atoms, note, representation`` and then the passthrough
+columns (:data:`MANIFEST_COLUMNS`).  ``note`` and ``representation`` are not in the original
+contract; they sit after ``heavy_atoms`` so that passthrough columns stay last.  Ids and passthrough text are written
 verbatim (CSV-quoted where needed); text that a spreadsheet would treat as a formula
 (``=1+1``) is *not* altered here -- escaping belongs to the report writers.  Read the manifest
 back with :func:`read_manifest` (all text) so that ids like ``NA`` survive.  Each shard
-``shard-NNN.csv`` has columns ``key, smiles, id``; ``manifest.meta.json`` records the input
+``shard-NNN.csv`` has columns ``key, smiles, id, representation``; ``manifest.meta.json`` records the input
 file's SHA-256, the options and the RDKit version.
 
 Keys are ``"m" + sha1(canonical isomeric SMILES)[:16]`` -- 17 characters from ``[a-z0-9]``,

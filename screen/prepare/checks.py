@@ -23,6 +23,12 @@ from dataclasses import dataclass
 from rdkit import Chem, rdBase
 
 from screen.chem import canonical_form
+from screen.prepare.attachments import (
+    ATTACHMENT_REASONS,
+    classify,
+    clear_attachment_labels,
+)
+from screen.prepare.charges import localised_carbon_charge, overbonded_charged_carbon
 from screen.prepare.options import KNOWN_ELEMENTS as _KNOWN_ELEMENTS
 from screen.prepare.options import PrepareOptions
 
@@ -34,11 +40,13 @@ REASON_CODES: tuple[str, ...] = (
     "empty",
     "unparsable",
     "dummy_atom",
+    *ATTACHMENT_REASONS,
     "multi_fragment",
     "unsupported_element",
     "valence",
     "aromaticity",
     "charged",
+    "charge_separated_sp3",
     "open_shell",
     "too_many_atoms",
     "bad_role",
@@ -133,6 +141,7 @@ class _Checked:
     notes: list[str] = dataclasses.field(default_factory=list)
     reason: str = ""
     error: str = ""
+    representation: str = ""
 
 
 # ----------------------------------------------------------------------------------------------
@@ -160,7 +169,8 @@ def _scan_failed_smiles(smiles: str, options: PrepareOptions) -> _Reject | None:
         return _Reject(
             "dummy_atom",
             f"R-group placeholder(s) {', '.join(rgroups)}: a complete molecule is "
-            "needed (replace the R-group by a real substituent, e.g. a methyl)",
+            "needed (replace the R-group by a real substituent, e.g. a methyl); a polymer "
+            "repeat unit is written with two attachment points [*]",
         )
     if unknown:
         return _Reject(
@@ -197,26 +207,28 @@ def _parse_unsanitized(smiles: str, options: PrepareOptions) -> Chem.Mol:
     return mol
 
 
-def _check_dummies(mol: Chem.Mol) -> None:
-    """Reject dummy atoms, R-groups and attachment-point labels."""
-    bad: list[str] = []
+def _check_attachments(mol: Chem.Mol) -> str:
+    """Return ``"molecule"`` or ``"polymer"``; reject bad attachment points and labels.
+
+    Attachment-point labels on real atoms (CXSMILES ``_AP1``, ``_R1``) are rejected as
+    ``dummy_atom``; dummy atoms are judged by :func:`screen.prepare.attachments.classify`.
+    """
+    labelled: list[str] = []
     for atom in mol.GetAtoms():
         label = atom.GetProp("atomLabel") if atom.HasProp("atomLabel") else ""
-        if atom.GetAtomicNum() == 0:
-            text = "*"
-            if atom.GetAtomMapNum():
-                text = f"[*:{atom.GetAtomMapNum()}]"
-            elif label or atom.HasProp("dummyLabel"):
-                text = label or atom.GetProp("dummyLabel")
-            bad.append(f"atom {atom.GetIdx()} ({text})")
-        elif re.fullmatch(r"_(R|AP)\d*", label):
-            bad.append(f"atom {atom.GetIdx()} ({label})")
-    if bad:
+        if atom.GetAtomicNum() != 0 and re.fullmatch(r"_(R|AP)\d*", label):
+            labelled.append(f"atom {atom.GetIdx()} ({label})")
+    if labelled:
         raise _Reject(
             "dummy_atom",
-            f"dummy/attachment atom(s) at {', '.join(bad)}: a complete molecule is needed "
-            "(cap open valences, e.g. with hydrogen or methyl)",
+            f"attachment-point label(s) on real atoms at {', '.join(labelled)}: a complete "
+            "molecule is needed (cap open valences, e.g. with hydrogen or methyl); a polymer "
+            "repeat unit is written with two attachment points [*]",
         )
+    representation, problem = classify(mol)
+    if problem is not None:
+        raise _Reject(*problem)
+    return representation
 
 
 def _disallowed_elements(mol: Chem.Mol, options: PrepareOptions) -> list[str]:
@@ -224,6 +236,8 @@ def _disallowed_elements(mol: Chem.Mol, options: PrepareOptions) -> list[str]:
     allowed = set(options.allowed_elements)
     found: list[str] = []
     for atom in mol.GetAtoms():
+        if atom.GetAtomicNum() == 0:
+            continue  # attachment points of a repeat unit
         symbol = atom.GetSymbol()
         if symbol not in allowed and symbol not in found:
             found.append(symbol)
@@ -348,6 +362,10 @@ def _check_charge(mol: Chem.Mol, options: PrepareOptions, notes: list[str]) -> i
             f"net charge {charge:+d}: only neutral molecules are screened "
             "(formal charges that cancel, as in nitro groups, are fine)",
         )
+    if charge == 0 and not options.allow_charge_separation:
+        message = localised_carbon_charge(mol)
+        if message:
+            raise _Reject("charge_separated_sp3", message)
     if charge == 0:
         note = _formal_charge_note(mol)
         if note:
@@ -379,7 +397,11 @@ def _check_open_shell(mol: Chem.Mol, options: PrepareOptions, charge: int) -> No
 
 
 def _strip_labels(mol: Chem.Mol, options: PrepareOptions, notes: list[str]) -> None:
-    """Remove isotope labels (unless kept) and atom-map numbers, with notes."""
+    """Remove isotope labels (unless kept) and atom-map numbers, with notes.
+
+    Labels of attachment points are removed first, silently: they only mark the ends.
+    """
+    clear_attachment_labels(mol)
     isotopes = [a for a in mol.GetAtoms() if a.GetIsotope()]
     if isotopes and not options.keep_isotopes:
         labels: dict[str, int] = {}
@@ -401,9 +423,13 @@ def _check_structure(smiles: str, options: PrepareOptions) -> _Checked:
     result = _Checked()
     try:
         mol = _parse_unsanitized(smiles, options)
-        _check_dummies(mol)
+        result.representation = _check_attachments(mol)
         _check_fragments(mol, options)
         _check_elements(mol, options)
+        if not options.allow_charge_separation:
+            message = overbonded_charged_carbon(mol)
+            if message:
+                raise _Reject("charge_separated_sp3", message)
         _check_chemistry(mol)
         _sanitize(mol)
         _check_hydrogen_allowed(mol, options)

@@ -60,6 +60,9 @@ class PrepareOptions:
     keep_isotopes : bool
         Keep isotope labels in the canonical SMILES (and so in the key).  By default they are
         removed and a note ``isotopes_removed`` is added.
+    allow_charge_separation : bool
+        Accept net-neutral structures with a charge on a saturated carbon (otherwise reason
+        ``charge_separated_sp3``; see :mod:`screen.prepare.charges`).
 
     Raises
     ------
@@ -75,6 +78,7 @@ class PrepareOptions:
     shard_size: int = _DEFAULTS["shard_size"]
     min_shards: int = _DEFAULTS["min_shards"]
     keep_isotopes: bool = _DEFAULTS["keep_isotopes"]
+    allow_charge_separation: bool = _DEFAULTS.get("allow_charge_separation", False)
 
     def __post_init__(self) -> None:
         if isinstance(self.allowed_elements, str):

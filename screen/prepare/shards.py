@@ -44,10 +44,11 @@ MANIFEST_COLUMNS: tuple[str, ...] = (
     "role",
     "heavy_atoms",
     "note",
+    "representation",
 )
 
 #: Columns of every ``shard-NNN.csv``.
-SHARD_COLUMNS: tuple[str, ...] = ("key", "smiles", "id")
+SHARD_COLUMNS: tuple[str, ...] = ("key", "smiles", "id", "representation")
 
 
 #: Shard file names this stage writes (used to remove stale shards of an earlier run).
@@ -83,7 +84,8 @@ def shard(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) -> li
     Returns
     -------
     list of pandas.DataFrame
-        Each with columns ``key, smiles, id`` (the id of the first ``ok`` row with that key).
+        Each with columns :data:`SHARD_COLUMNS`: ``key, smiles, id`` (the id of the first
+        ``ok`` row with that key) and ``representation`` (``molecule`` or ``polymer``).
         Every unique key of an ``ok`` row appears in exactly one shard, in order of first
         occurrence.  The number of shards is ``max(min_shards, ceil(unique / shard_size))``,
         but never more than ``unique`` (so no shard is empty; no structures, no shards).
@@ -100,11 +102,11 @@ def shard(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) -> li
     if missing:
         raise ValueError(f"shard(): the frame lacks {missing}; pass the output of validate()")
     ok = frame[frame["status"] == "ok"]
+    # a frame from before polymer input was accepted has no representation: all molecules
+    kinds = ok["representation"] if "representation" in ok.columns else ["molecule"] * len(ok)
     seen: dict[str, str] = {}
-    keys: list[str] = []
-    smiles: list[str] = []
-    ids: list[str] = []
-    for key, smi, ident in zip(ok["key"], ok["smiles"], ok["id"]):
+    columns: dict[str, list[str]] = {name: [] for name in SHARD_COLUMNS}
+    for key, smi, ident, kind in zip(ok["key"], ok["smiles"], ok["id"], kinds):
         key, smi, ident = _text(key), _text(smi), _text(ident)
         if key in seen:
             if seen[key] != smi:
@@ -114,21 +116,13 @@ def shard(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) -> li
                 )
             continue
         seen[key] = smi
-        keys.append(key)
-        smiles.append(smi)
-        ids.append(ident)
-    shards: list[pd.DataFrame] = []
-    for start, stop in _shard_bounds(len(keys), options):
-        shards.append(
-            pd.DataFrame(
-                {
-                    "key": pd.Series(keys[start:stop], dtype=object),
-                    "smiles": pd.Series(smiles[start:stop], dtype=object),
-                    "id": pd.Series(ids[start:stop], dtype=object),
-                }
-            )
-        )
-    return shards
+        for name, value in zip(SHARD_COLUMNS, (key, smi, ident, _text(kind))):
+            columns[name].append(value)
+    return [
+        pd.DataFrame({name: pd.Series(values[start:stop], dtype=object)
+                      for name, values in columns.items()})
+        for start, stop in _shard_bounds(len(columns["key"]), options)
+    ]
 
 
 def _write_text(path: Path, text: str) -> None:

@@ -20,7 +20,7 @@ import pandas as pd
 
 from screen.chem import structure_key
 from screen.io import cell_text as _text
-from screen.prepare.checks import REASON_CODES, _Checked, _check_structure
+from screen.prepare.checks import REASON_CODES, _check_structure, _Checked
 from screen.prepare.checks import snippet as _snippet
 from screen.prepare.options import PrepareOptions
 from screen.prepare.readers import assign_missing_ids as _assign_missing_ids
@@ -63,7 +63,9 @@ def validate(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) ->
         canonicalised, also for ``too_many_atoms`` and id/role rejections), ``heavy_atoms``
         (nullable int), ``status`` (``'ok'`` or ``'rejected'``), ``reason`` (see the module
         docstring), ``error`` (specific message, ``''`` if ok), ``duplicate_of`` (id of the
-        first ``ok`` row with the same key, ``''`` otherwise) and ``note``.
+        first ``ok`` row with the same key, ``''`` otherwise), ``note`` and
+        ``representation`` (``'molecule'``, ``'polymer'`` for a repeat unit with two
+        attachment points, ``''`` when the structure could not be classified).
 
     Raises
     ------
@@ -111,13 +113,14 @@ def validate(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) ->
         out["duplicate_of"].append(duplicate_of)
         out["role"].append(role if role in _ROLES else roles_raw[i])
         out["heavy_atoms"].append(checked.heavy_atoms)
+        out["representation"].append(checked.representation)
         out["note"].append(_join_notes(_join_notes(prior_notes[i], [id_notes[i]]), checked.notes))
     return _assemble(frame, smiles_col, rows, ids, smiles_in, column("name"), out)
 
 
 #: Columns :func:`validate` computes row by row.
 _OUTPUT_COLUMNS = ("key", "smiles", "status", "reason", "error", "duplicate_of", "role",
-                   "heavy_atoms", "note")
+                   "heavy_atoms", "note", "representation")
 
 
 def _smiles_column(frame: pd.DataFrame) -> str:
