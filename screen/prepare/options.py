@@ -1,7 +1,7 @@
 """Settings of the prepare stage (:class:`PrepareOptions`).
 
 The defaults come from the ``prepare`` section of the configuration schema
-(:func:`screen.config.section_defaults`), the single source of every option's default.
+(:func:`screen.schema.section_defaults`), the single source of every option's default.
 
 Examples
 --------
@@ -22,7 +22,7 @@ from typing import Any
 
 from rdkit import Chem
 
-from screen.config import section_defaults
+from screen.schema import section_defaults
 from screen.errors import ConfigError
 
 __all__ = ["PrepareOptions", "KNOWN_ELEMENTS"]
