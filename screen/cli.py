@@ -22,7 +22,7 @@ import yaml
 
 from screen import __version__
 from screen.config import Config, merge
-from screen.errors import ConfigError, DascreenError, InputError, exit_code
+from screen.errors import CalculationError, ConfigError, DascreenError, InputError, exit_code
 
 __all__ = ["main", "build_parser"]
 
@@ -117,8 +117,8 @@ def data_path(path: str | Path) -> Path:
 
 
 def _snakemake(cfg: Config, out: Path, cores: int, targets: list[str], extra: list[str] | None = None,
-               dry_run: bool = False, profile: str | None = None) -> int:
-    """Write the resolved config into ``out`` and run the packaged workflow on it."""
+               dry_run: bool = False, profile: str | None = None, cfg_file: Path | None = None) -> int:
+    """Write the resolved config (default ``out/config.yaml``) and run the packaged workflow on it."""
     import fcntl
 
     out.mkdir(parents=True, exist_ok=True)
@@ -129,7 +129,8 @@ def _snakemake(cfg: Config, out: Path, cores: int, targets: list[str], extra: li
         fcntl.flock(lock, fcntl.LOCK_EX | fcntl.LOCK_NB)
     except BlockingIOError:
         raise ConfigError(f"another dascreen run is using {out}; wait for it or choose another --out") from None
-    cfg_file = out / "config.yaml"
+    cfg_file = cfg_file or out / "config.yaml"
+    cfg_file.parent.mkdir(parents=True, exist_ok=True)
     cfg_file.write_text(yaml.safe_dump(cfg.to_dict(), sort_keys=False), encoding="utf-8")
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(WORKFLOW), "--directory", str(out),
            "--configfile", str(cfg_file), "--cores", str(cores), "--rerun-incomplete", "--show-failed-logs"]
@@ -244,22 +245,57 @@ def _print_ranking_of_run(cfg: Config, out: Path) -> None:
         _print_ranking(path)
 
 
+def _compute_partner(cfg: Config, out: Path) -> Path | None:
+    """Run the workflow for a ``smiles:`` partner's batch only (cached); return its levels file."""
+    from screen.calibrate import find_models
+    from screen.partners import PartnerError, partner_kind, partner_levels_path
+
+    spec = cfg["partner"]
+    if partner_kind(spec) != "smiles":
+        return None
+    target = partner_levels_path(spec, out)
+    pid = cfg.protocol_id
+    if cfg["calibration"]["refit"] != "always" and find_models(cfg) is None and not (out / "models" / pid).is_dir():
+        raise PartnerError(
+            f"partner {spec!r} is computed like the candidates and needs the calibration models of protocol "
+            f"{pid}; none found in {cfg['calibration']['models']}/{pid}. Run `dascreen calibrate --install "
+            "models` (or the pipeline) first, or pass the models folder with --models")
+    rc = _snakemake(cfg, out, 1, [str(target)], cfg_file=target.parent / "config.yaml")
+    if rc != 0:
+        raise CalculationError(f"the workflow computing partner {spec!r} stopped with exit code {rc}; see "
+                               f"{out}/logs/{target.parent.name}/")
+    return target
+
+
+def _models_override(models: str | None) -> dict:
+    """``--models DIR`` (a models/<protocol-id> folder) as config overrides."""
+    if not models:
+        return {}
+    folder = Path(models).resolve()
+    if not folder.is_dir():
+        raise InputError(f"--models {models!r}: no such folder (a models/<protocol-id> folder is expected)")
+    return {"calibration": {"models": str(folder.parent), "refit": "never"}}
+
+
 def cmd_rank(args) -> int:
-    """Rank a levels file against a partner (no quantum chemistry unless a new smiles: partner)."""
+    """Rank a levels file against a partner; a new smiles: partner is computed by the workflow first."""
     from screen.rank_io import run_rank
 
     out = Path(args.out).resolve()
     levels = Path(args.levels) if args.levels else out / "levels.csv"
     if not levels.is_file():
-        raise ConfigError(f"levels file {str(levels)!r} does not exist; run `dascreen run` first or pass "
-                          "--levels FILE (columns id,homo_ev,lumo_ev,gap_opt_ev,scale)")
+        raise InputError(f"levels file {str(levels)!r} does not exist; run `dascreen run` first or pass "
+                         "--levels FILE (columns id,homo_ev,lumo_ev,gap_opt_ev,scale)")
     if args.config is None and (out / "config.yaml").is_file():
         args.config = str(out / "config.yaml")  # the run's own settings, so smiles: partners share its protocol
         print(f"dascreen: using the run's configuration {args.config}")
-    cfg = _load(args, {"rank": {"role": args.role, "sort_by": args.sort_by, "target_pce_pct": args.target_pce}})
-    partner = args.partner or cfg["partner"]
+    cfg = _load(args, {"partner": args.partner, **_models_override(args.models),
+                       "rank": {"role": args.role, "sort_by": args.sort_by, "target_pce_pct": args.target_pce}})
+    if args.models and Path(args.models).resolve().name != cfg.protocol_id:
+        raise ConfigError(f"--models {args.models!r} is not a folder of this run's protocol {cfg.protocol_id}")
+    partner_levels = _compute_partner(cfg, out)
     try:
-        path = run_rank(levels, partner, out, cfg, models_dir=args.models)
+        path = run_rank(levels, cfg["partner"], out, cfg, partner_levels=partner_levels)
     except RuntimeError as exc:  # the report failed after the ranking was written
         print(f"dascreen: error: {exc}", file=sys.stderr)
         return EXIT_ERROR
@@ -357,7 +393,8 @@ def build_parser() -> argparse.ArgumentParser:
                        description="Pair every candidate of a levels file with a partner material, estimate "
                                    "Voc/Jsc/PCE with the Scharber model, apply the filters and write "
                                    "OUT/rankings/<partner>/ (ranking.csv, shortlist.sdf, ranking.meta.json, report). "
-                                   "Runs no quantum chemistry, except once for a new smiles: partner.")
+                                   "Runs no quantum chemistry, except that a new smiles: partner is computed once "
+                                   "through the workflow, with the run's protocol and calibration.")
     p.add_argument("--partner", default=None,
                    help="library name (see `dascreen partners`), a one-row levels CSV, smiles:<SMILES> or "
                         "id:<ID> of a levels row (default from config: scharber-reference-acceptor)")
@@ -376,7 +413,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
                    help="override one config field, e.g. --set device.eqe=0.7 (repeatable)")
     p.add_argument("--models", default=None, metavar="DIR",
-                   help="calibration models folder for a smiles: partner (default: the one the levels used)")
+                   help="models/<protocol-id> folder to calibrate a smiles: partner with (default: the run's)")
     p.add_argument("--top", type=int, default=10, help="rows to print (default 10)")
     p.set_defaults(func=cmd_rank)
 

@@ -12,13 +12,14 @@ specification (design notes §3):
     lumo_ev, gap_opt_ev, scale``; optional ``role``, ``name``, σ columns,
     ``smiles``, ``source``).
 ``smiles:<SMILES>``
-    Computed exactly like the candidates: :func:`screen.structures.build_structure`
-    and :func:`screen.electronic.vertical_levels` with the configuration's
-    protocol, then :func:`screen.calibrate.apply_models` with the run's
-    calibration models.  The raw engine values are cached as JSON keyed by
-    structure key and protocol id, so a second call does not touch the engine.
-    Computing the partner with the candidates' protocol and calibration also
-    cancels part of the systematic error of the offsets.
+    Computed exactly like the candidates: the workflow runs the molecule as
+    its own one-row batch ``partner-<structure key>`` through the same
+    prepare, structures, electronic and levels rules, with the run's protocol
+    and calibration, and caches it like any other batch.  Here the partner is
+    read from that batch's levels file (:func:`partner_levels_path`); this
+    module never runs the quantum-chemistry engine.  Computing the partner
+    with the candidates' protocol and calibration also cancels part of the
+    systematic error of the offsets.
 ``id:<ID>``
     A row of the current levels table (e.g. a candidate promoted to partner).
 
@@ -48,6 +49,8 @@ from pathlib import Path
 
 import pandas as pd
 
+from screen.errors import InputError
+
 __all__ = [
     "LIBRARY_PATH",
     "LIBRARY_COLUMNS",
@@ -60,6 +63,9 @@ __all__ = [
     "library_table",
     "partner_slug",
     "partner_kind",
+    "partner_key",
+    "partner_batch",
+    "partner_levels_path",
     "resolve_partner",
     "complement",
 ]
@@ -80,7 +86,7 @@ _ID_PREFIX = "id:"
 _SIGMA = ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")
 
 
-class PartnerError(ValueError):
+class PartnerError(InputError):
     """A partner specification that cannot be resolved (message says why and what is allowed)."""
 
 
@@ -383,27 +389,66 @@ def _safe_stem(text: str, limit: int = 40) -> str:
 
 
 def _canonical_key(smiles: str) -> tuple[str, str]:
-    """Canonical SMILES (same round trip as the prepare stage) and structure key."""
+    """Canonical SMILES (as the prepare stage writes it) and structure key of a partner."""
     from rdkit import Chem, rdBase
 
-    from screen.prepare import structure_key
+    from screen.chem import canonical_form, structure_key
 
     text = smiles.strip()
     with rdBase.BlockLogs():
         mol = Chem.MolFromSmiles(text) if text else None
-        if mol is None:
-            raise PartnerError(f"partner smiles:{text!r} does not parse as SMILES")
-        mol = Chem.RemoveHs(mol)
-        first = Chem.MolToSmiles(mol)
-        again = Chem.MolFromSmiles(first)
-        canonical = Chem.MolToSmiles(again) if again is not None else first
-        charge = Chem.GetFormalCharge(mol)
-        electrons = sum(a.GetAtomicNum() + a.GetTotalNumHs() for a in mol.GetAtoms()) - charge
+    if mol is None:
+        raise PartnerError(f"partner smiles:{text!r} does not parse as SMILES")
+    canonical, _ = canonical_form(mol)
+    charge = Chem.GetFormalCharge(mol)
+    electrons = sum(a.GetAtomicNum() + a.GetTotalNumHs() for a in mol.GetAtoms()) - charge
     if charge != 0:
         raise PartnerError(f"partner smiles:{text!r} has net charge {charge:+d}; partners must be neutral")
     if electrons % 2 or any(a.GetNumRadicalElectrons() for a in mol.GetAtoms()):
         raise PartnerError(f"partner smiles:{text!r} is open-shell; partners must be closed-shell molecules")
     return canonical, structure_key(canonical)
+
+
+def partner_key(spec: str) -> tuple[str, str]:
+    """Canonical SMILES and structure key of a ``smiles:`` partner.
+
+    Raises
+    ------
+    PartnerError
+        Not a ``smiles:`` specification, a SMILES that does not parse, a
+        charged or an open-shell molecule.
+
+    Examples
+    --------
+    >>> partner_key("smiles:C1=CSC=C1")[0]
+    'c1ccsc1'
+    """
+    spec = (spec or "").strip()
+    if not spec.lower().startswith(_SMILES_PREFIX):
+        raise PartnerError(f"partner {spec!r} is not of the form smiles:<SMILES>")
+    return _canonical_key(spec[len(_SMILES_PREFIX):])
+
+
+def partner_batch(spec: str) -> str:
+    """Name of the workflow batch that computes a ``smiles:`` partner: ``partner-<structure key>``.
+
+    Examples
+    --------
+    >>> partner_batch("smiles:c1ccsc1")
+    'partner-mc6b0b0df273c39c6'
+    """
+    return f"partner-{partner_key(spec)[1]}"
+
+
+def partner_levels_path(spec: str, out_dir) -> Path:
+    """The levels file the workflow writes for a ``smiles:`` partner of the run in ``out_dir``.
+
+    Examples
+    --------
+    >>> partner_levels_path("smiles:c1ccsc1", "results").as_posix()
+    'results/work/partner-mc6b0b0df273c39c6/levels.csv'
+    """
+    return Path(out_dir) / "work" / partner_batch(spec) / "levels.csv"
 
 
 def partner_slug(spec: str, library_path: str | Path | None = None) -> str:
@@ -512,73 +557,38 @@ def _from_levels(spec: str, slug: str, levels) -> Partner:
                         source=f"row {ident!r} of the {where}")
 
 
-def _cache_file(cache_dir: Path, key: str, pid: str) -> Path:
-    return Path(cache_dir) / f"{key}__{pid}.json"
+def _from_computed(spec: str, slug: str, partner_levels) -> Partner:
+    """A ``smiles:`` partner from the levels file of its workflow batch."""
+    from screen.io import read_json
+    from screen.levels import read_levels
+
+    canonical, key = partner_key(spec)
+    if partner_levels is None:
+        raise PartnerError(f"partner {spec!r} is computed by the workflow (batch partner-{key}); pass the levels "
+                           "file of that batch (`dascreen rank` and `dascreen run` compute it)")
+    path = Path(partner_levels)
+    if not path.is_file():
+        raise PartnerError(f"partner {spec!r} has not been computed: {path} is missing; `dascreen rank --partner "
+                           f"{spec}` computes it through the workflow with the run's protocol and calibration")
+    frame = read_levels(path)
+    if len(frame) != 1:
+        raise PartnerError(f"{path}: the levels file of partner {spec!r} has {len(frame)} rows, not one")
+    row = frame.iloc[0].to_dict()
+    status = _text(row.get("status")).lower()
+    if status and status != "ok":
+        raise PartnerError(f"partner smiles:{canonical}: the calculation failed: {_text(row.get('error'))}")
+    side = Path(f"{path}.meta.json")
+    meta = read_json(side) if side.is_file() else {}
+    computed = _row_partner(row, kind="smiles", spec=spec, slug=slug, where=f"partner levels file {path}",
+                            source="")
+    return dataclasses.replace(
+        computed, id=f"smiles:{canonical}", name=canonical, role="", smiles=canonical,
+        source=f"computed: protocol {meta.get('protocol_id')}, calibration {meta.get('models')}",
+        notes=f"structure key {key}; raw xTB IP {float(row['xtb_ip_ev']):.3f} eV, "
+              f"EA {float(row['xtb_ea_ev']):.3f} eV")
 
 
-def _raw_levels(canonical: str, key: str, cfg: dict, cache_dir) -> dict:
-    """Raw engine values of a partner structure (cached by structure key + protocol id)."""
-    from screen.config import protocol, protocol_id
-    from screen.io import read_json, write_json
-
-    pid = protocol_id(cfg)
-    cache = _cache_file(cache_dir, key, pid) if cache_dir is not None else None
-    if cache is not None and cache.is_file():
-        rec = read_json(cache)
-        if rec.get("protocol_id") == pid and rec.get("key") == key and rec.get("status") == "ok":
-            return rec
-    # only here does anything touch the quantum-chemistry engine
-    from screen.electronic import ElectronicOptions, molecule_numbers_positions, vertical_levels
-    from screen.engines import EngineError
-    from screen.structures import build_structure, options_from_mapping
-
-    try:
-        mol, info = build_structure(canonical, options_from_mapping(cfg["structures"]))
-        numbers, pos = molecule_numbers_positions(mol)
-        raw = vertical_levels(numbers, pos, ElectronicOptions.from_mapping(cfg["electronic"]).make_engine())
-    except (ValueError, EngineError, RuntimeError) as exc:
-        raise PartnerError(f"partner smiles:{canonical}: the calculation failed: {exc}") from exc
-    rec = {"key": key, "smiles": canonical, "protocol_id": pid, "protocol": protocol(cfg), "status": "ok",
-           "n_atoms": int(len(numbers)), **{k: v for k, v in info.items()}, **raw}
-    if cache is not None:
-        write_json(rec, cache)
-    return rec
-
-
-def _from_smiles(spec: str, slug: str, config, cache_dir, models_dir) -> Partner:
-    from screen.calibrate import CalibrationError, apply_models, find_models, load_models
-    from screen.config import protocol_id, resolve
-
-    cfg = resolve(config)
-    canonical, key = _canonical_key(spec[len(_SMILES_PREFIX):])
-    pid = protocol_id(cfg)
-    folder = Path(models_dir) if models_dir else find_models(cfg)
-    if folder is None:
-        raise PartnerError(
-            f"partner {spec!r} is computed like the candidates and needs the calibration models of protocol "
-            f"{pid}; none found in {cfg['calibration']['models']}/{pid}. Run `dascreen calibrate --install "
-            "models` (or the pipeline) first, or pass the models folder")
-    try:
-        models = load_models(folder, cfg)
-    except CalibrationError as exc:
-        raise PartnerError(f"partner {spec!r}: {exc}") from exc
-    rec = _raw_levels(canonical, key, cfg, cache_dir)
-    frame = pd.DataFrame([{"id": canonical, "status": "ok", **{c: rec[c] for c in
-                           ("xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev")}}])
-    scale = cfg["levels"]["scale"]
-    row = apply_models(frame, models, scale=scale).iloc[0].to_dict()
-    return Partner(
-        id=f"smiles:{canonical}", name=canonical, role="",
-        homo_ev=float(row["homo_ev"]), lumo_ev=float(row["lumo_ev"]), gap_opt_ev=float(row["gap_opt_ev"]),
-        homo_sigma_ev=float(row["homo_sigma_ev"]), lumo_sigma_ev=float(row["lumo_sigma_ev"]),
-        gap_opt_sigma_ev=float(row["gap_opt_sigma_ev"]), scale=scale,
-        source=f"computed: protocol {pid}, calibration {folder}", slug=slug, kind="smiles", spec=spec,
-        smiles=canonical, notes=f"structure key {key}; raw xTB IP {rec['xtb_ip_ev']:.3f} eV, "
-                                f"EA {rec['xtb_ea_ev']:.3f} eV",
-    )
-
-
-def resolve_partner(spec: str, *, levels=None, config: dict | None = None, cache_dir=None, models_dir=None,
+def resolve_partner(spec: str, *, levels=None, partner_levels=None,
                     library_path: str | Path | None = None) -> Partner:
     """Turn a partner specification into a :class:`Partner`.
 
@@ -590,16 +600,10 @@ def resolve_partner(spec: str, *, levels=None, config: dict | None = None, cache
         the same name in the working directory; write ``./name`` for the file.
     levels : pandas.DataFrame or path-like, optional
         The current levels table (needed for ``id:``).
-    config : dict, optional
-        Run configuration (``smiles:`` uses its structures, electronic,
-        calibration and levels sections; defaults fill the rest).
-    cache_dir : path-like, optional
-        Folder for the ``smiles:`` cache (``<structure key>__<protocol id>.json``
-        with the raw engine values).  None: compute without caching.
-    models_dir : path-like, optional
-        ``models/<protocol-id>`` folder for ``smiles:``; default
-        :func:`screen.calibrate.find_models` of ``config``.  Its fingerprint
-        must match the configuration's protocol.
+    partner_levels : path-like, optional
+        For ``smiles:``: the levels file of the partner's workflow batch
+        (:func:`partner_levels_path`), computed with the run's protocol and
+        calibration.
     library_path : path-like, optional
         Library CSV (default :data:`LIBRARY_PATH`).
 
@@ -611,20 +615,13 @@ def resolve_partner(spec: str, *, levels=None, config: dict | None = None, cache
     ------
     PartnerError
         Unknown name (the message lists the library ids), a file with other
-        than one row, a row without scale or levels, missing calibration
-        models, or a failed calculation.
+        than one row, a row without scale or levels, or a ``smiles:`` partner
+        that has not been computed or whose calculation failed.
 
     Notes
     -----
-    Only the ``smiles:`` form can run the quantum-chemistry engine, and only
-    when its raw values are not cached; the calibrated levels are recomputed
-    from the cached raw values on every call (cheap), so a refitted
-    calibration takes effect without recomputing the partner.
-
-    References
-    ----------
-    .. [1] C. Bannwarth, S. Ehlert, S. Grimme, J. Chem. Theory Comput. 15
-       (2019) 1652. :doi:`10.1021/acs.jctc.8b01176`
+    No form runs the quantum-chemistry engine here: a ``smiles:`` partner is
+    computed by the workflow like the candidates and read from its levels file.
 
     Examples
     --------
@@ -642,4 +639,4 @@ def resolve_partner(spec: str, *, levels=None, config: dict | None = None, cache
         return _from_file(spec, slug)
     if kind == "id":
         return _from_levels(spec, slug, levels)
-    return _from_smiles(spec, slug, config, cache_dir, models_dir)
+    return _from_computed(spec, slug, partner_levels)

@@ -13,7 +13,6 @@ References
 
 from __future__ import annotations
 
-import hashlib
 import importlib.util
 import math
 import sys
@@ -24,7 +23,7 @@ import pandas as pd
 
 from screen.config import Config
 from screen.device import DeviceModel
-from screen.partners import PartnerError, resolve_partner
+from screen.partners import Partner, PartnerError, resolve_partner
 from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, rank_candidates)
 
 __all__ = ["write_shortlist", "run_rank"]
@@ -98,14 +97,6 @@ def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int, scale:
     return {"written": written, "skipped": skipped}
 
 
-def _sha256(path: Path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            h.update(block)
-    return h.hexdigest()
-
-
 def _levels_meta(levels_path: Path) -> dict | None:
     from screen.io import read_json
 
@@ -163,93 +154,32 @@ def _write_report(ranking, levels, partner, meta, out_dir) -> str:
     return "written"
 
 
-def run_rank(levels_path, partner_spec: str, out_dir, config: dict | None = None, *, models_dir=None,
-             cache_dir=None, report: bool = True) -> Path:
-    """Rank a levels file against a partner and write the ranking folder.
+def _partner(partner_spec: str, levels: pd.DataFrame, levels_path: Path, meta_in: dict | None, out_dir: Path,
+             partner_levels) -> Partner:
+    """Resolve the partner; a ``smiles:`` partner comes from its batch's levels file (same protocol)."""
+    from screen.io import read_json
+    from screen.partners import partner_kind, partner_levels_path
 
-    Parameters
-    ----------
-    levels_path : path-like
-        ``OUT/levels.csv`` of a run or any levels file (a user's own
-        measurements: ``id, homo_ev, lumo_ev, gap_opt_ev, scale`` at least).
-        Its sidecar ``<levels>.meta.json`` is recorded when present.
-    partner_spec : str
-        See :func:`screen.partners.resolve_partner`.
-    out_dir : path-like
-        Output folder; results go to ``out_dir/rankings/<partner slug>/``.
-    config : dict, optional
-        Run configuration (sections ``device`` and ``rank``; ``smiles:``
-        partners also use the protocol sections).
-    models_dir : path-like, optional
-        Calibration folder for a ``smiles:`` partner; default: the folder
-        recorded in the levels sidecar, else :func:`screen.calibrate.find_models`,
-        else ``out_dir/models/<protocol-id>`` if present.
-    cache_dir : path-like, optional
-        Cache of computed partners (default ``out_dir/work/partners``).
-    report : bool
-        Call ``screen.report.write_report`` if that module is present.
+    if partner_kind(partner_spec) != "smiles":
+        return resolve_partner(partner_spec, levels=levels)
+    path = Path(partner_levels) if partner_levels is not None else partner_levels_path(partner_spec, out_dir)
+    side = Path(f"{path}.meta.json")
+    ran = (meta_in or {}).get("protocol_id")
+    computed = read_json(side).get("protocol_id") if side.is_file() else None
+    if ran and computed and ran != computed:
+        raise PartnerError(
+            f"partner {partner_spec!r} was computed with protocol {computed}, but the levels in {levels_path} were "
+            f"computed with protocol {ran}; rank with the run's configuration (e.g. "
+            f"{levels_path.parent / 'config.yaml'}) so that partner and candidates share one protocol")
+    return resolve_partner(partner_spec, levels=levels, partner_levels=path)
 
-    Returns
-    -------
-    pathlib.Path
-        Path of ``ranking.csv``.  Beside it: ``shortlist.sdf`` (top
-        ``rank.shortlist_size`` passing rows), ``ranking.meta.json`` (partner,
-        device model, filters, levels provenance, counts) and, with the report
-        module, ``report.html`` and ``ranking.safe.csv``.
 
-    Raises
-    ------
-    ScaleMismatchError, PartnerError, ValueError
-        See :func:`rank_candidates` and :func:`screen.partners.resolve_partner`.
-    RuntimeError
-        The report module failed (the ranking files are written).
-
-    Notes
-    -----
-    No quantum-chemistry engine is imported unless the partner is a
-    ``smiles:`` partner that is not cached yet.
-
-    References
-    ----------
-    .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
-       :doi:`10.1002/adma.200501717`
-    """
+def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, model: DeviceModel,
+               options: RankOptions, short: dict) -> dict:
+    """The content of ``ranking.meta.json``."""
     from screen import __version__
-    from screen.io import write_csv, write_json
-    from screen.levels import read_levels
-    from screen.partners import partner_kind
+    from screen.provenance import sha256_file
 
-    cfg = Config.of(config)
-    levels_path = Path(levels_path)
-    out_dir = Path(out_dir)
-    levels = read_levels(levels_path)
-    meta_in = _levels_meta(levels_path)
-    kind = partner_kind(partner_spec)
-    if kind == "smiles":
-        ran = (meta_in or {}).get("protocol_id")
-        if ran and ran != cfg.protocol_id:
-            raise PartnerError(
-                f"partner {partner_spec!r} would be computed with protocol {cfg.protocol_id}, but the levels in "
-                f"{levels_path} were computed with protocol {ran}; pass the run's configuration (e.g. "
-                f"{levels_path.parent / 'config.yaml'}) so that partner and candidates share one protocol")
-        if models_dir is None:
-            models_dir = _models_from_meta(meta_in, levels_path)
-        if models_dir is None:
-            from screen.calibrate import find_models
-
-            models_dir = find_models(cfg)
-        if models_dir is None and (out_dir / "models" / cfg.protocol_id).is_dir():
-            models_dir = out_dir / "models" / cfg.protocol_id
-    partner = resolve_partner(partner_spec, levels=levels, config=cfg,
-                              cache_dir=cache_dir if cache_dir is not None else out_dir / "work" / "partners",
-                              models_dir=models_dir)
-    model = DeviceModel(**cfg["device"])
-    options = RankOptions.from_mapping(cfg["rank"])
-    ranking = rank_candidates(levels, partner, model, options)
-
-    target = out_dir / "rankings" / partner.slug
-    write_csv(ranking, target / "ranking.csv")
-    short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size, partner.scale)
     flags = pd.Series([f for s in ranking["flags"] for f in str(s).split(";") if f]).value_counts()
     status = (levels["status"].fillna("").astype(str).str.strip().str.lower() if "status" in levels
               else pd.Series("ok", index=levels.index))
@@ -258,7 +188,7 @@ def run_rank(levels_path, partner_spec: str, out_dir, config: dict | None = None
         cal = _calibration_stats(_models_from_meta(meta_in, levels_path))
         if cal:
             levels_meta["calibration"] = cal
-    meta = {
+    return {
         "dascreen": __version__,
         "stage": "rank",
         "partner": partner.as_dict(),
@@ -273,7 +203,8 @@ def run_rank(levels_path, partner_spec: str, out_dir, config: dict | None = None
                     "absorber": model.absorber},
         "sign_convention": "delta_lumo_ev = LUMO_donor - LUMO_acceptor; delta_homo_ev = HOMO_donor - "
                            "HOMO_acceptor (both > 0 for a type-II heterojunction)",
-        "levels": {"path": str(levels_path.resolve()), "sha256": _sha256(levels_path), "rows": int(len(levels)),
+        "levels": {"path": str(levels_path.resolve()), "sha256": sha256_file(levels_path),
+                   "rows": int(len(levels)),
                    "sidecar": f"{levels_path.name}.meta.json" if meta_in is not None else None},
         "levels_meta": levels_meta or None,
         "counts": {"rows": int(len(levels)), "ok": int(status.eq("ok").sum()),
@@ -284,6 +215,72 @@ def run_rank(levels_path, partner_spec: str, out_dir, config: dict | None = None
         "columns": RANKING_COLUMNS + EXTRA_COLUMNS,
         "outputs": {"ranking": "ranking.csv", "shortlist": "shortlist.sdf", "meta": "ranking.meta.json"},
     }
+
+
+def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_levels=None,
+             report: bool = True) -> Path:
+    """Rank a levels file against a partner and write the ranking folder.
+
+    Parameters
+    ----------
+    levels_path : path-like
+        ``OUT/levels.csv`` of a run or any levels file (a user's own
+        measurements: ``id, homo_ev, lumo_ev, gap_opt_ev, scale`` at least).
+        Its sidecar ``<levels>.meta.json`` is recorded when present.
+    partner_spec : str
+        See :func:`screen.partners.resolve_partner`.
+    out_dir : path-like
+        Output folder; results go to ``out_dir/rankings/<partner slug>/``.
+    config : screen.config.Config or mapping, optional
+        Run configuration (sections ``device`` and ``rank``).
+    partner_levels : path-like, optional
+        Levels file of a ``smiles:`` partner's workflow batch; default
+        :func:`screen.partners.partner_levels_path` under ``out_dir``.  Its
+        protocol must be that of the levels being ranked.
+    report : bool
+        Call ``screen.report.write_report`` if that module is present.
+
+    Returns
+    -------
+    pathlib.Path
+        Path of ``ranking.csv``.  Beside it: ``shortlist.sdf`` (top
+        ``rank.shortlist_size`` passing rows), ``ranking.meta.json`` (partner,
+        device model, filters, levels provenance, counts) and, with the report
+        module, ``report.html`` and ``ranking.safe.csv``.
+
+    Raises
+    ------
+    ScaleMismatchError, PartnerError, InputError
+        See :func:`rank_candidates` and :func:`screen.partners.resolve_partner`.
+    RuntimeError
+        The report module failed (the ranking files are written).
+
+    Notes
+    -----
+    Only levels files are read: no quantum-chemistry engine is imported.
+
+    References
+    ----------
+    .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
+       :doi:`10.1002/adma.200501717`
+    """
+    from screen.io import write_csv, write_json
+    from screen.levels import read_levels
+
+    cfg = Config.of(config)
+    levels_path = Path(levels_path)
+    out_dir = Path(out_dir)
+    levels = read_levels(levels_path)
+    meta_in = _levels_meta(levels_path)
+    partner = _partner(partner_spec, levels, levels_path, meta_in, out_dir, partner_levels)
+    model = DeviceModel(**cfg["device"])
+    options = RankOptions.from_mapping(cfg["rank"])
+    ranking = rank_candidates(levels, partner, model, options)
+
+    target = out_dir / "rankings" / partner.slug
+    write_csv(ranking, target / "ranking.csv")
+    short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size, partner.scale)
+    meta = _rank_meta(ranking, levels, levels_path, meta_in, partner, model, options, short)
     write_json(meta, target / "ranking.meta.json")
     if report:
         status = _write_report(ranking, levels, partner.as_dict(), meta, target)

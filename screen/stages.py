@@ -68,7 +68,7 @@ def _levels(args, cfg):
         models = load_models(args.models, cfg)
         levels = apply_models(levels, models, scale=cfg["levels"]["scale"])
     write_csv(levels, args.out)
-    meta = {**provenance(cfg), "counts": summarise(levels), "input": cfg.get("candidates", ""),
+    meta = {**provenance(cfg), "counts": summarise(levels), "input": args.input or cfg["candidates"],
             "scale": cfg["levels"]["scale"], "models": args.models or None}
     write_json(meta, f"{args.out}.meta.json" if not args.meta else args.meta)
     print(json.dumps(summarise(levels)))
@@ -116,9 +116,19 @@ def _calibrate(args, cfg):
 def _rank(args, cfg):
     from screen.rank_io import run_rank
 
-    path = run_rank(args.levels, args.partner, args.out, cfg, models_dir=args.models or None,
-                    cache_dir=args.cache or None)
+    path = run_rank(args.levels, args.partner, args.out, cfg, partner_levels=args.partner_levels or None)
     print(f"ranking -> {path}")
+
+
+def _partner_input(args, cfg):
+    import pandas as pd
+
+    from screen.io import write_csv
+    from screen.partners import partner_key
+
+    canonical, key = partner_key(args.partner)
+    write_csv(pd.DataFrame([{"id": f"smiles:{canonical}", "smiles": canonical}]), args.out)
+    print(f"partner {key}: {canonical}")
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -145,6 +155,7 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--models", default="")
     p.add_argument("--out", required=True)
     p.add_argument("--meta", default="")
+    p.add_argument("--input", default="", help="what the batch was made from (default: the candidates file)")
     p = sub.add_parser("reference-input")
     p.add_argument("--reference", required=True)
     p.add_argument("--out", required=True)
@@ -157,14 +168,17 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--levels", required=True)
     p.add_argument("--partner", required=True)
     p.add_argument("--out", required=True, help="output folder; the ranking goes to OUT/rankings/<slug>/")
-    p.add_argument("--models", default="", help="calibration folder (used by smiles: partners only)")
-    p.add_argument("--cache", default="", help="cache folder of computed partners")
+    p.add_argument("--partner-levels", default="", help="levels file of a smiles: partner's batch")
+    p = sub.add_parser("partner-input")
+    p.add_argument("--partner", required=True, help="smiles:<SMILES>")
+    p.add_argument("--out", required=True, help="one-row candidate CSV of the partner's batch")
     args = parser.parse_args(argv)
 
     cfg = Config.from_json(args.config, "workflow configuration")
     os.environ["OMP_NUM_THREADS"] = str(cfg.electronic.threads)
     handler = {"prepare": _prepare, "structures": _structures, "electronic": _electronic, "levels": _levels,
-               "reference-input": _reference_input, "calibrate": _calibrate, "rank": _rank}
+               "reference-input": _reference_input, "calibrate": _calibrate, "rank": _rank,
+               "partner-input": _partner_input}
     handler[args.stage](args, cfg)
     return 0
 

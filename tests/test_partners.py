@@ -1,4 +1,4 @@
-"""Tests of screen.partners: library, the four partner forms, slugs, the smiles: cache."""
+"""Tests of screen.partners: library, the four partner forms, slugs, smiles: partners read from their batch."""
 
 from __future__ import annotations
 
@@ -17,6 +17,8 @@ from screen.partners import (
     library_partners,
     library_table,
     load_library,
+    partner_batch,
+    partner_key,
     partner_kind,
     partner_slug,
     resolve_partner,
@@ -158,89 +160,58 @@ def test_partner_dict_is_json_safe():
 # --------------------------------------------------------------------------- smiles partners
 
 #: hand-made calibration in the format of screen.calibrate.fit_all (numbers invented for the test)
-_MODELS = {
-    "ip": {"property": "ip", "target": "ip_ev", "scale": "gas", "kind": "linear", "n": 10,
-           "model": {"features": ["xtb_ip_ev"], "coef": [0.8], "intercept": 0.2, "residual_sigma_ev": 0.15,
-                     "xtx_inv": [[4.0, -0.4], [-0.4, 0.04]]}},
-    "ea": {"property": "ea", "target": "ea_ev", "scale": "gas", "kind": "linear", "n": 10,
-           "model": {"features": ["xtb_ea_ev"], "coef": [0.9], "intercept": -0.3, "residual_sigma_ev": 0.2,
-                     "xtx_inv": [[1.0, 0.0], [0.0, 0.1]]}},
-    "gap_opt": {"property": "gap_opt", "target": "gap_opt_ev", "scale": "gas", "kind": "linear", "n": 10,
-                "model": {"features": ["xtb_gap_ev"], "coef": [0.7], "intercept": 0.4, "residual_sigma_ev": 0.25,
-                          "xtx_inv": [[1.0, 0.0], [0.0, 0.1]]}},
-    "homo_film": {"property": "homo_film", "target": "homo_ev", "scale": "film", "kind": "shift", "base": "ip",
-                  "shift_ev": 1.1, "sigma_ev": 0.2, "n": 8},
-    "lumo_film": {"property": "lumo_film", "target": "lumo_ev", "scale": "film", "kind": "shift", "base": "ea",
-                  "shift_ev": -1.0, "sigma_ev": 0.25, "n": 8},
-    "gap_opt_film": {"property": "gap_opt_film", "target": "gap_opt_ev", "scale": "film", "kind": "shift",
-                     "base": "gap_opt", "shift_ev": -0.5, "sigma_ev": 0.2, "n": 8},
-}
+def _partner_batch_levels(tmp_path, spec="smiles:C1=CSC=C1", **over):
+    """A levels file as the workflow's partner batch writes it (one row + sidecar)."""
+    from screen.partners import partner_levels_path
+
+    path = partner_levels_path(spec, tmp_path)
+    path.parent.mkdir(parents=True)
+    row = {"id": "smiles:c1ccsc1", "smiles": "c1ccsc1", "status": "ok", "error": "", "ip_ev": 8.9, "ea_ev": -0.3,
+           "gap_fund_ev": 9.2, "homo_ev": -5.8123, "lumo_ev": -2.1456, "gap_opt_ev": 3.4567, "ip_sigma_ev": 0.2,
+           "ea_sigma_ev": 0.3, "homo_sigma_ev": 0.25, "lumo_sigma_ev": 0.35, "gap_opt_sigma_ev": 0.15,
+           "scale": "film", "xtb_ip_ev": 13.86489, "xtb_ea_ev": 3.46310, "role": "", "name": ""}
+    row.update(over)
+    pd.DataFrame([row]).to_csv(path, index=False)
+    meta = {"protocol_id": "tblite-gfn2-ff-00000000", "models": "/m/tblite-gfn2-ff-00000000"}
+    path.with_name("levels.csv.meta.json").write_text(json.dumps(meta))
+    return path
 
 
-@pytest.fixture()
-def smiles_setup(tmp_path):
-    from screen.calibrate import fingerprint, save_models
-    from screen.config import resolve
-
-    ref = tmp_path / "reference"
-    ref.mkdir()
-    cfg = resolve({"calibration": {"reference": str(ref), "models": str(tmp_path / "models")}})
-    folder = save_models(_MODELS, tmp_path / "models", fingerprint(cfg, ref))
-    return cfg, folder, tmp_path / "cache"
-
-
-def test_smiles_partner_computed_like_candidates_and_cached(smiles_setup, monkeypatch):
-    from conftest import raw_levels
-
-    from screen import engines
-
-    cfg, folder, cache = smiles_setup
-    calls = {"n": 0}
-    original = engines.Engine.singlepoint
-
-    def counting(self, *a, **k):
-        calls["n"] += 1
-        return original(self, *a, **k)
-
-    monkeypatch.setattr(engines.Engine, "singlepoint", counting)
+def test_smiles_partner_read_from_its_batch_levels(tmp_path):
     spec = "smiles:C1=CSC=C1"  # thiophene, written non-canonically
-    p = resolve_partner(spec, config=cfg, cache_dir=cache, models_dir=folder)
-    assert calls["n"] > 3  # conformer ranking + neutral, cation, anion
-    assert p.kind == "smiles" and p.id == "smiles:c1ccsc1" and p.scale == "film" and p.role == ""
+    path = _partner_batch_levels(tmp_path, spec)
+    assert path.parent.name == partner_batch(spec) == "partner-" + partner_key(spec)[1]
+    p = resolve_partner(spec, partner_levels=path)
+    assert p.kind == "smiles" and p.id == "smiles:c1ccsc1" and p.name == "c1ccsc1" and p.role == ""
     assert p.slug == partner_slug(spec) and p.slug.startswith("smiles-m")
-    # the raw values are those of the candidates' route (default structures + electronic protocol)
-    files = list(cache.glob("*.json"))
-    assert len(files) == 1
-    rec = json.loads(files[0].read_text())
-    ref = raw_levels("c1ccsc1")
-    for key in ("xtb_ip_ev", "xtb_ea_ev", "xtb_gap_ev"):
-        assert rec[key] == pytest.approx(ref[key], abs=1e-6)
-    # calibration applied: HOMO_film = -(0.8 IP_xtb + 0.2) + 1.1, LUMO_film = -(0.9 EA_xtb - 0.3) - 1.0,
-    # gap_film = 0.7 gap_xtb + 0.4 - 0.5
-    assert p.homo_ev == pytest.approx(round(-(0.8 * rec["xtb_ip_ev"] + 0.2) + 1.1, 4), abs=1e-4)
-    assert p.lumo_ev == pytest.approx(round(-(0.9 * rec["xtb_ea_ev"] - 0.3) - 1.0, 4), abs=1e-4)
-    assert p.gap_opt_ev == pytest.approx(round(0.7 * rec["xtb_gap_ev"] + 0.4 - 0.5, 4), abs=1e-4)
-    assert p.homo_sigma_ev > 0.2 and p.lumo_sigma_ev > 0.25
-
-    # second call: no engine call at all
-    def forbidden(self, *a, **k):
-        raise AssertionError("the engine was called for a cached partner")
-
-    monkeypatch.setattr(engines.Engine, "singlepoint", forbidden)
-    again = resolve_partner("smiles:c1ccsc1", config=cfg, cache_dir=cache, models_dir=folder)
-    assert again.homo_ev == p.homo_ev and again.lumo_ev == p.lumo_ev and again.slug == p.slug
+    assert (p.homo_ev, p.lumo_ev, p.gap_opt_ev, p.scale) == (-5.8123, -2.1456, 3.4567, "film")
+    assert (p.homo_sigma_ev, p.lumo_sigma_ev, p.gap_opt_sigma_ev) == (0.25, 0.35, 0.15)
+    assert p.source == "computed: protocol tblite-gfn2-ff-00000000, calibration /m/tblite-gfn2-ff-00000000"
+    assert p.notes == f"structure key {partner_key(spec)[1]}; raw xTB IP 13.865 eV, EA 3.463 eV"
 
 
-def test_smiles_partner_needs_matching_models(smiles_setup, tmp_path):
-    from screen.config import resolve
+def test_smiles_partner_not_computed_or_failed(tmp_path):
+    from screen.partners import partner_levels_path
 
-    cfg, folder, cache = smiles_setup
-    other = resolve({**cfg, "electronic": {"method": "GFN1-xTB"}})
-    with pytest.raises(PartnerError, match="does not belong"):
-        resolve_partner("smiles:c1ccsc1", config=other, cache_dir=cache, models_dir=folder)
-    empty = resolve({**cfg, "calibration": {**cfg["calibration"], "models": str(tmp_path / "none")}})
-    with pytest.raises(PartnerError, match="needs the calibration models"):
-        resolve_partner("smiles:c1ccsc1", config=empty, cache_dir=cache)
+    with pytest.raises(PartnerError, match="has not been computed"):
+        resolve_partner("smiles:c1ccsc1", partner_levels=partner_levels_path("smiles:c1ccsc1", tmp_path))
+    with pytest.raises(PartnerError, match="computed by the workflow"):
+        resolve_partner("smiles:c1ccsc1")
+    path = _partner_batch_levels(tmp_path, status="failed", error="electronic: SCF did not converge")
+    with pytest.raises(PartnerError, match="calculation failed: electronic: SCF did not converge"):
+        resolve_partner("smiles:c1ccsc1", partner_levels=path)
+
+
+def test_partners_module_never_touches_the_engine():
+    """A smiles: partner is computed by the workflow; partners.py imports no compute module."""
+    import ast
+
+    import screen.partners
+
+    tree = ast.parse(open(screen.partners.__file__, encoding="utf-8").read())
+    imported = {node.module for node in ast.walk(tree) if isinstance(node, ast.ImportFrom)}
+    imported |= {a.name for node in ast.walk(tree) if isinstance(node, ast.Import) for a in node.names}
+    assert not imported & {"screen.engines", "screen.structures", "screen.electronic", "screen.calibrate"}
 
 
 def test_smiles_partner_bad_smiles():
@@ -248,3 +219,18 @@ def test_smiles_partner_bad_smiles():
         partner_slug("smiles:C1CC")
     with pytest.raises(PartnerError, match="charge"):
         partner_slug("smiles:[NH4+]")
+
+
+def test_smiles_partner_must_share_the_candidates_protocol(tmp_path):
+    from screen.rank_io import run_rank
+
+    path = _partner_batch_levels(tmp_path)
+    levels = tmp_path / "levels.csv"
+    pd.DataFrame([{"id": "D1", "homo_ev": -5.2, "lumo_ev": -3.0, "gap_opt_ev": 1.8, "scale": "film",
+                   "role": "donor", "smiles": "c1ccccc1"}]).to_csv(levels, index=False)
+    (tmp_path / "levels.csv.meta.json").write_text(json.dumps({"protocol_id": "tblite-gfn2-xtb-11111111"}))
+    with pytest.raises(PartnerError, match="computed with protocol tblite-gfn2-ff-00000000"):
+        run_rank(levels, "smiles:c1ccsc1", tmp_path, {}, report=False)
+    (tmp_path / "levels.csv.meta.json").write_text(json.dumps({"protocol_id": "tblite-gfn2-ff-00000000"}))
+    ranking = pd.read_csv(run_rank(levels, "smiles:c1ccsc1", tmp_path, {}, partner_levels=path, report=False))
+    assert ranking["partner"].tolist() == ["smiles:c1ccsc1"]

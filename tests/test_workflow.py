@@ -93,3 +93,24 @@ def test_status_counts_molecules_done(five_run):
     out, _ = five_run
     proc = _dascreen("status", "--out", str(out))
     assert proc.returncode == 0 and "5/5 molecules computed (100%)" in proc.stdout, proc.stdout + proc.stderr
+
+
+def test_smiles_partner_is_a_workflow_batch_computed_like_the_candidates(five_run, repo_dir):
+    """`dascreen rank --partner smiles:` runs the partner's own batch through the workflow rules; the
+    partner then has exactly the levels of the same molecule computed as a candidate (KF-T02, thiophene)."""
+    out, _ = five_run
+    spec = "smiles:C1=CSC=C1"
+    proc = _dascreen("rank", "--partner", spec, "--out", str(out), "--role", "donor", cwd=repo_dir)
+    assert proc.returncode == 0, proc.stdout[-3000:] + proc.stderr[-3000:]
+    from screen.partners import partner_levels_path, partner_slug
+
+    batch_levels = partner_levels_path(spec, out)
+    assert batch_levels.is_file() and (batch_levels.parent / "prepared" / "manifest.csv").is_file()
+    levels = pd.read_csv(out / "levels.csv", dtype={"id": str}, keep_default_na=False).set_index("id")
+    meta = json.loads((out / "rankings" / partner_slug(spec) / "ranking.meta.json").read_text())
+    for col in ("homo_ev", "lumo_ev", "gap_opt_ev", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev"):
+        assert meta["partner"][col] == float(levels.loc["KF-T02", col]), col
+    # a second ranking reuses the batch: nothing is recomputed
+    stamp = batch_levels.stat().st_mtime_ns
+    proc = _dascreen("rank", "--partner", "smiles:c1ccsc1", "--out", str(out), "--role", "donor", cwd=repo_dir)
+    assert proc.returncode == 0 and batch_levels.stat().st_mtime_ns == stamp, proc.stderr[-2000:]

@@ -52,6 +52,16 @@ def electronic_tables(set_name):
     return tables
 
 
+def batch_input(wildcards):
+    """Molecule list of a batch: the candidates, the reference set, or a partner's one-row input."""
+    return INPUTS.get(wildcards.batch, f"{WORK}/{wildcards.batch}/input.csv")
+
+
+def batch_electronic_tables(wildcards):
+    """Input function: every electronic shard table of the batch named by the wildcard."""
+    return electronic_tables(wildcards.batch)(wildcards)
+
+
 wildcard_constraints:
     batch=r"[a-z0-9_-]+",
     shard=r"\d\d\d+",

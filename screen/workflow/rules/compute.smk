@@ -4,7 +4,7 @@
 
 checkpoint prepare:
     input:
-        lambda wc: INPUTS[wc.batch],
+        batch_input,
     output:
         outdir=directory(f"{WORK}/{{batch}}/prepared"),
     params:

@@ -1,12 +1,11 @@
 # Ranking against the configured partner: partner offsets, Scharber device model, filters, report.
-# It reads only levels.csv (+ its sidecar), so a new partner or device setting reruns this rule alone.
+# It reads only levels files (levels.csv + its sidecar, and a smiles: partner's own levels file from
+# rules/partner.smk), so a new partner or device setting reruns this rule alone.
 from importlib.util import find_spec
 from pathlib import Path
 
-from screen.partners import partner_kind, partner_slug
+from screen.partners import partner_slug
 
-PARTNER = CFG["partner"]
-PARTNER_KIND = partner_kind(PARTNER)  # cheap: no quantum chemistry at parse time
 PARTNER_SLUG = partner_slug(PARTNER)
 RANKING_DIR = f"{OUT}/rankings/{PARTNER_SLUG}"
 RANKING = f"{RANKING_DIR}/ranking.csv"
@@ -17,16 +16,14 @@ RANK_OUTPUTS = {
     "meta": f"{RANKING_DIR}/ranking.meta.json",
     **({"report": f"{RANKING_DIR}/report.html"} if find_spec("screen.report") else {}),
 }
-# a file partner is an input too, so editing it reruns the ranking
+# a file partner is an input too, so editing it reruns the ranking; a smiles: partner's levels file
+# is made by its own batch
 RANK_INPUTS = {
     "levels": LEVELS,
     "meta": f"{LEVELS}.meta.json",
     **({"partner": PARTNER} if PARTNER_KIND == "file" else {}),
+    **({"partner_levels": PARTNER_LEVELS} if PARTNER_LEVELS else {}),
 }
-# a smiles: partner is computed with the candidates' protocol and calibration
-RANK_SECTIONS = ("partner", "device", "rank") + (
-    ("structures", "electronic", "calibration", "levels") if PARTNER_KIND == "smiles" else ()
-)
 
 
 rule rank:
@@ -36,10 +33,9 @@ rule rank:
         **RANK_OUTPUTS,
     params:
         py=PY,
-        cfg=sections(*RANK_SECTIONS),
+        cfg=sections("partner", "device", "rank"),
         partner=PARTNER,
-        models=MODELS,
-        cache=f"{WORK}/partners",
+        partner_levels=PARTNER_LEVELS or "",
         out=lambda wildcards, output: str(Path(output.ranking).parent.parent.parent),
     log:
         f"{LOGS}/rank/{PARTNER_SLUG}.log",
@@ -47,5 +43,5 @@ rule rank:
         "../envs/dascreen.yaml"
     shell:
         "{params.py} -m screen.stages --config {params.cfg:q} rank --levels {input.levels:q}"
-        " --partner {params.partner:q} --out {params.out:q} --models {params.models:q} --cache {params.cache:q}"
+        " --partner {params.partner:q} --out {params.out:q} --partner-levels={params.partner_levels:q}"
         " > {log:q} 2>&1"
