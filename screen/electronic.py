@@ -32,18 +32,17 @@ import numpy as np
 import pandas as pd
 from rdkit import Chem
 
+from screen.columns import RAW_COLUMNS
 from screen.constants import BOHR_ANGSTROM, HARTREE_EV
 from screen.engines import Engine, EngineError
+from screen.batch import molecule_caller, run_journalled
 from screen.io import Journal, Progress, write_csv
-from screen.isolation import IsolatedWorker
 from screen.options import ElectronicOptions
 from screen.structures import STATUS_COLUMNS as STRUCTURE_COLUMNS
 from screen.structures import _plain, read_structures
 
 __all__ = ["ElectronicOptions", "vertical_levels", "run_electronic", "ELECTRONIC_COLUMNS", "RAW_COLUMNS"]
 
-#: raw engine columns that travel on into levels.csv
-RAW_COLUMNS = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev"]
 #: columns of the per-shard electronic table
 ELECTRONIC_COLUMNS = (["key", "status", "error"] + RAW_COLUMNS
                       + ["xtb_energy_eh", "xtb_cation_eh", "xtb_anion_eh", "scf_rungs", "n_atoms",
@@ -146,19 +145,15 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
     status = pd.read_csv(structures_csv, dtype=str, keep_default_na=False)
     mols = read_structures(structures_sdf)
     journal = Journal(journal_path or f"{out_csv}.journal.jsonl")
-    done = journal.load()
     progress = progress or Progress(f"electronic {Path(out_csv).stem}")
     carried = [c for c in STRUCTURE_COLUMNS if c in ELECTRONIC_COLUMNS and c not in ("key", "status", "error")]
+    local = None
     if engine is not None or not isolate:
         engine = engine or options.make_engine()
-        call = lambda z, pos: vertical_levels(z, pos, engine)  # noqa: E731
-        worker = None
-    else:
-        worker = IsolatedWorker(_electronic_job, timeout_s=timeout_s)
-        call = lambda z, pos: worker(z, pos, asdict(options))  # noqa: E731
-    todo = [row for row in status.to_dict("records") if row["key"] not in done]
-    try:
-        for i, row in enumerate(todo, 1):
+        local = lambda z, pos, _opts: vertical_levels(z, pos, engine)  # noqa: E731
+
+    with molecule_caller(_electronic_job, local, timeout_s) as call:
+        def compute(row: dict) -> dict:
             key = row["key"]
             rec = {"key": key, **{c: row.get(c, "") for c in carried}, "structure_wall_s": row.get("wall_s", "")}
             if row["status"] != "ok":
@@ -169,16 +164,13 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
                 numbers, pos = molecule_numbers_positions(mols[key])
                 start = time.perf_counter()
                 try:
-                    rec.update(call(numbers, pos), status="ok", error="", n_atoms=len(numbers))
+                    rec.update(call(numbers, pos, asdict(options)), status="ok", error="", n_atoms=len(numbers))
                 except (EngineError, RuntimeError) as exc:
                     rec.update(status="failed", error=f"electronic: {_plain(exc)}",
                                sp_wall_s=time.perf_counter() - start)
-            journal.append(rec)
-            done[key] = rec
-            progress.report(i, len(todo), key)
-    finally:
-        if worker is not None:
-            worker.close()
+            return rec
+
+        done = run_journalled(status.to_dict("records"), lambda row: row["key"], compute, journal, progress)
     table = pd.DataFrame([{c: done[k].get(c, "") for c in ELECTRONIC_COLUMNS} for k in status["key"]],
                          columns=ELECTRONIC_COLUMNS)
     write_csv(table, out_csv)

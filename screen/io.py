@@ -24,7 +24,10 @@ from pathlib import Path
 
 import pandas as pd
 
-__all__ = ["cell_text", "atomic_path", "write_csv", "write_json", "read_json", "Journal", "Progress"]
+from screen.errors import InputError
+
+__all__ = ["cell_text", "atomic_path", "write_csv", "write_json", "read_json", "read_csv_checked", "Journal",
+           "Progress"]
 
 
 @contextlib.contextmanager
@@ -102,6 +105,54 @@ def write_json(obj, target: str | os.PathLike) -> None:
 def read_json(path: str | os.PathLike):
     """Read a JSON file."""
     return json.loads(Path(path).read_text(encoding="utf-8"))
+
+
+def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", error=InputError,
+                     **read_kwargs) -> pd.DataFrame:
+    """Read a CSV file and check that it has the ``required`` columns: the one home of that check.
+
+    Parameters
+    ----------
+    path : path-like
+        The CSV file.
+    required : sequence of str
+        Columns that must be present (others are kept).
+    what : str
+        What the file is, for the message (``"a levels file"``, ``"the partner library"``).
+    error : type
+        Exception class raised (a :class:`screen.errors.InputError` subclass).
+    **read_kwargs
+        Passed to :func:`pandas.read_csv` (``dtype``, ``keep_default_na``, ...).
+
+    Raises
+    ------
+    InputError
+        (or ``error``) The file is missing or unreadable as CSV, or lacks a
+        column; the message names the file, the missing and the found columns.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> f = pathlib.Path(tempfile.mkdtemp()) / "t.csv"
+    >>> _ = f.write_text("id,x\\n1,2\\n")
+    >>> list(read_csv_checked(f, ["id"]).columns)
+    ['id', 'x']
+    >>> read_csv_checked(f, ["id", "y"], what="a levels file")  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    screen.errors.InputError: ...t.csv: a levels file needs columns ['id', 'y']; missing ['y']; found ['id', 'x']
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise error(f"{what} {path} is missing")
+    try:
+        frame = pd.read_csv(path, **read_kwargs)
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise error(f"{path}: {what} is not a readable CSV file: {exc}") from None
+    missing = [c for c in required if c not in frame.columns]
+    if missing:
+        raise error(f"{path}: {what} needs columns {list(required)}; missing {missing}; found {list(frame.columns)}")
+    return frame
 
 
 class Journal:

@@ -4,7 +4,7 @@ This module joins the prepare manifest (every input row, in input order) with
 the per-shard electronic tables (one row per unique structure), so duplicate
 structures share one computation and rejected rows keep their reason. When
 calibration models are supplied, :func:`apply_models` adds the calibrated
-columns of the ``levels.csv`` contract (see ``shared/design.md`` §3).
+columns of the ``levels.csv`` contract (see ``docs/contracts.md``).
 
 Energy scales: ``ip_ev``/``ea_ev``/``gap_fund_ev`` are isolated-molecule
 (gas-phase) values; ``homo_ev``/``lumo_ev`` are on the scale named in the
@@ -18,17 +18,14 @@ from collections.abc import Iterable
 import numpy as np
 import pandas as pd
 
+from screen.columns import CALIBRATED_COLUMNS, LEVELS_CONTRACT_COLUMNS, LEVELS_MIN_COLUMNS
 from screen.electronic import ELECTRONIC_COLUMNS, RAW_COLUMNS
+from screen.io import read_csv_checked
+
+#: leading columns of levels.csv, in order (:data:`screen.columns.LEVELS_CONTRACT_COLUMNS`)
+CONTRACT_COLUMNS = LEVELS_CONTRACT_COLUMNS
 
 __all__ = ["CONTRACT_COLUMNS", "CALIBRATED_COLUMNS", "assemble", "summarise", "read_levels", "LEVELS_MIN_COLUMNS"]
-
-#: calibrated columns of the levels.csv contract
-CALIBRATED_COLUMNS = ["ip_ev", "ea_ev", "gap_fund_ev", "homo_ev", "lumo_ev", "gap_opt_ev",
-                      "ip_sigma_ev", "ea_sigma_ev", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev", "scale"]
-#: leading columns of levels.csv, in order
-CONTRACT_COLUMNS = ["id", "smiles", "status", "error"] + CALIBRATED_COLUMNS
-#: what any levels file (a user's own measurements included) must have
-LEVELS_MIN_COLUMNS = ["id", "homo_ev", "lumo_ev", "gap_opt_ev", "scale"]
 
 _EXTRA = ["name", "role", "key", "duplicate_of", "heavy_atoms", "reason"]
 
@@ -101,14 +98,12 @@ def read_levels(path) -> pd.DataFrame:
 
     Raises
     ------
-    ValueError
-        A required column is missing, naming the file and the columns found.
+    InputError
+        The file is missing or unreadable, or a required column is missing
+        (naming the file and the columns found).
     """
-    frame = pd.read_csv(path, dtype={"id": str}, keep_default_na=False, na_values=[""])
-    missing = [c for c in LEVELS_MIN_COLUMNS if c not in frame.columns]
-    if missing:
-        raise ValueError(f"{path}: a levels file needs columns {LEVELS_MIN_COLUMNS}; missing {missing}; "
-                         f"found {list(frame.columns)}")
+    frame = read_csv_checked(path, LEVELS_MIN_COLUMNS, what="a levels file", dtype={"id": str},
+                             keep_default_na=False, na_values=[""])
     frame["id"] = frame["id"].fillna("").astype(str)
     frame["scale"] = frame["scale"].astype(object).where(frame["scale"].notna(), "").astype(str)
     return frame

@@ -231,13 +231,11 @@ def load_library(path: str | Path | None = None) -> pd.DataFrame:
     >>> "scharber-reference-acceptor" in set(lib["id"])
     True
     """
+    from screen.io import read_csv_checked
+
     path = Path(path) if path is not None else LIBRARY_PATH
-    if not path.is_file():
-        raise PartnerError(f"partner library {path} is missing")
-    frame = pd.read_csv(path, dtype=str, keep_default_na=False)
-    missing = [c for c in LIBRARY_COLUMNS if c not in frame.columns]
-    if missing:
-        raise PartnerError(f"{path}: the partner library needs columns {LIBRARY_COLUMNS}; missing {missing}")
+    frame = read_csv_checked(path, LIBRARY_COLUMNS, what="partner library", error=PartnerError, dtype=str,
+                             keep_default_na=False)
     frame["id"] = frame["id"].str.strip()
     dup = frame["id"][frame["id"].str.lower().duplicated()].tolist()
     if dup:

@@ -41,8 +41,8 @@ from rdkit.Chem import AllChem, rdMolDescriptors
 
 from screen.constants import BOHR_ANGSTROM
 from screen.engines import Engine, EngineError, make_engine
+from screen.batch import molecule_caller, run_journalled
 from screen.io import Journal, Progress, atomic_path, write_csv
-from screen.isolation import IsolatedWorker
 from screen.options import StructureOptions
 
 __all__ = [
@@ -367,29 +367,23 @@ def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = Stru
     progress = progress or Progress(f"structures {Path(shard_csv).stem}")
     shard = pd.read_csv(shard_csv, dtype=str, keep_default_na=False)
     journal = Journal(journal_path or f"{out_csv}.journal.jsonl")
-    done = journal.load()
-    todo = [(k, s) for k, s in zip(shard["key"], shard["smiles"]) if k not in done]
+    local = None
     if engine is not None or not isolate:
         engine = engine or make_engine("tblite", options.ranking_method)
-        call = lambda smi: _molblock_and_info(*build_structure(smi, options, engine))  # noqa: E731
-        worker = None
-    else:
-        worker = IsolatedWorker(_structure_job, timeout_s=timeout_s)
-        call = lambda smi: worker(smi, asdict(options))  # noqa: E731
-    try:
-        for i, (key, smiles) in enumerate(todo, 1):
+        local = lambda smi, _opts: _molblock_and_info(*build_structure(smi, options, engine))  # noqa: E731
+
+    with molecule_caller(_structure_job, local, timeout_s) as call:
+        def compute(item) -> dict:
+            key, smiles = item
             rec = {"key": key}
             try:
-                molblock, info = call(smiles)
+                molblock, info = call(smiles, asdict(options))
                 rec.update(status="ok", error="", molblock=molblock, **info)
             except (ValueError, EngineError, RuntimeError) as exc:
                 rec.update(status="failed", error=f"structure: {_plain(exc)}")
-            journal.append(rec)
-            done[key] = rec
-            progress.report(i, len(todo), key)
-    finally:
-        if worker is not None:
-            worker.close()
+            return rec
+
+        done = run_journalled(zip(shard["key"], shard["smiles"]), lambda item: item[0], compute, journal, progress)
     rows = []
     with atomic_path(out_sdf) as tmp:
         writer = Chem.SDWriter(str(tmp))

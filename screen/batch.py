@@ -1,0 +1,95 @@
+"""The per-molecule loop of the compute stages: journal, isolation, progress.
+
+Both expensive stages (:mod:`screen.structures`, :mod:`screen.electronic`)
+work through a shard one molecule at a time.  This module is the one home of
+that loop: finished molecules are appended to a :class:`screen.io.Journal`
+(so a killed job resumes where it stopped), each molecule can run in an
+:class:`screen.isolation.IsolatedWorker` (so a native crash costs one
+molecule), and progress lines go to the job's log.
+"""
+
+from __future__ import annotations
+
+import contextlib
+from collections.abc import Callable, Iterable, Iterator
+
+from screen.io import Journal, Progress
+from screen.isolation import IsolatedWorker
+
+__all__ = ["molecule_caller", "run_journalled"]
+
+
+@contextlib.contextmanager
+def molecule_caller(job: Callable, local: Callable | None, timeout_s: float | None = None) -> Iterator[Callable]:
+    """The function that computes one molecule: ``local`` in this process, else ``job`` in a child process.
+
+    Parameters
+    ----------
+    job : callable
+        Module-level (picklable) function run in an isolated child process.
+    local : callable or None
+        Same signature as ``job``, run in this process; ``None`` selects
+        isolation.
+    timeout_s : float, optional
+        Per-molecule time limit of the isolated child [s].
+
+    Examples
+    --------
+    >>> import math
+    >>> with molecule_caller(math.sqrt, None) as call:
+    ...     call(9.0)
+    3.0
+    >>> with molecule_caller(math.sqrt, lambda x: -x) as call:
+    ...     call(9.0)
+    -9.0
+    """
+    if local is not None:
+        yield local
+        return
+    worker = IsolatedWorker(job, timeout_s=timeout_s)
+    try:
+        yield worker
+    finally:
+        worker.close()
+
+
+def run_journalled(items: Iterable, key: Callable, compute: Callable[[object], dict], journal: Journal,
+                   progress: Progress) -> dict[str, dict]:
+    """Compute every item whose key the journal does not hold yet; return all records by key.
+
+    Parameters
+    ----------
+    items : iterable
+        Work items in shard order.
+    key : callable
+        ``key(item)`` → the item's structure key.
+    compute : callable
+        ``compute(item)`` → the record to journal (a dict with ``"key"``); it
+        must turn a per-molecule failure into a record, not raise.
+    journal : Journal
+        Records of finished items (read first, appended after each item).
+    progress : Progress
+        Reports ``done / to do`` after each item.
+
+    Returns
+    -------
+    dict
+        Records by key: earlier ones from the journal and the new ones.
+
+    Examples
+    --------
+    >>> import io, tempfile, pathlib
+    >>> j = Journal(pathlib.Path(tempfile.mkdtemp()) / "j.jsonl")
+    >>> p = Progress("demo", stream=io.StringIO())
+    >>> done = run_journalled([1, 2], str, lambda i: {"key": str(i), "sq": i * i}, j, p)
+    >>> done["2"]["sq"], sorted(j.load())
+    (4, ['1', '2'])
+    """
+    done = journal.load()
+    todo = [item for item in items if key(item) not in done]
+    for i, item in enumerate(todo, 1):
+        rec = compute(item)
+        journal.append(rec)
+        done[rec["key"]] = rec
+        progress.report(i, len(todo), rec["key"])
+    return done
