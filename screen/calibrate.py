@@ -64,7 +64,8 @@ import pandas as pd
 from rdkit import Chem, RDLogger
 
 from screen.config import Config
-from screen.io import write_json
+from screen.errors import CalculationError, ConfigError
+from screen.io import read_csv_checked, write_json
 from screen.provenance import provenance
 
 __all__ = [
@@ -72,6 +73,7 @@ __all__ = [
     "FC_REFERENCE_EV",
     "MIN_GAIN_EV",
     "CalibrationError",
+    "CalibrationMismatchError",
     "LinearLevelModel",
     "FilmShift",
     "read_reference",
@@ -102,8 +104,22 @@ PROPERTIES: dict[str, dict] = {
 FILM_FILE = "levels_film.csv"
 
 
-class CalibrationError(ValueError):
-    """A model is missing, broken or does not belong to this protocol."""
+class CalibrationError(CalculationError):
+    """A calibration model could not be fitted or read (too few points, a missing or broken file)."""
+
+
+class CalibrationMismatchError(ConfigError, CalibrationError):
+    """Models that belong to another protocol or reference set: a configuration problem (exit code 2).
+
+    Refit with ``dascreen calibrate`` or point ``calibration.models`` at the matching folder.
+
+    Examples
+    --------
+    >>> from screen.errors import exit_code
+    >>> err = CalibrationMismatchError("x")
+    >>> isinstance(err, CalibrationError), exit_code(err)
+    (True, 2)
+    """
 
 
 def _features(frame: pd.DataFrame, names: list[str]) -> np.ndarray:
@@ -136,7 +152,7 @@ class LinearLevelModel:
     >>> import numpy as np
     >>> x = np.array([[1.0], [2.0], [3.0], [4.0]]); y = np.array([2.1, 3.9, 6.1, 7.9])
     >>> m = LinearLevelModel(["x"]).fit(x, y)
-    >>> round(m.coef_[0], 2), round(m.intercept_, 2)
+    >>> round(float(m.coef_[0]), 2), round(float(m.intercept_), 2)
     (1.96, 0.1)
     >>> mean, std = m.predict(np.array([[2.5]]), return_std=True)
     >>> round(float(mean[0]), 2), bool(std[0] > 0)
@@ -220,7 +236,7 @@ def read_reference(reference_dir: str | Path) -> dict[str, pd.DataFrame]:
 
     Raises
     ------
-    CalibrationError
+    InputError
         A file is missing or lacks the needed columns.
     """
     reference_dir = Path(reference_dir)
@@ -233,12 +249,7 @@ def read_reference(reference_dir: str | Path) -> dict[str, pd.DataFrame]:
 
 
 def _read_ref_csv(path: Path, needed: list[str]) -> pd.DataFrame:
-    if not path.is_file():
-        raise CalibrationError(f"reference file {path} is missing")
-    frame = pd.read_csv(path, dtype=str, keep_default_na=False)
-    missing = [c for c in needed if c not in frame.columns]
-    if missing:
-        raise CalibrationError(f"{path}: missing column(s) {missing}; found {list(frame.columns)}")
+    frame = read_csv_checked(path, needed, what="reference file", dtype=str, keep_default_na=False)
     frame = frame[frame["smiles"].str.strip().ne("")].copy()
     if "exclude_reason" not in frame.columns:
         frame["exclude_reason"] = ""
@@ -468,7 +479,7 @@ def load_models(model_dir: str | Path, config=None, reference_dir: str | Path | 
         for name, model in models.items():
             diffs = _compare(model.get("fingerprint", {}), expected)
             if diffs:
-                raise CalibrationError(f"calibration model {model_dir / (name + '.json')} does not belong to "
+                raise CalibrationMismatchError(f"calibration model {model_dir / (name + '.json')} does not belong to "
                                        f"this run's protocol ({'; '.join(diffs)}); refit with `dascreen calibrate`")
     return models
 
@@ -509,7 +520,7 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "fi
         their σ columns and ``scale`` filled for computed rows.
     """
     if scale not in ("film", "gas"):
-        raise CalibrationError(f"levels.scale must be 'film' or 'gas', not {scale!r}")
+        raise ConfigError(f"levels.scale must be 'film' or 'gas', not {scale!r}")
     out = levels.copy()
     ok = out["status"].eq("ok") & out["xtb_ip_ev"].notna()
     sub = out[ok]

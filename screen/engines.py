@@ -44,11 +44,12 @@ import os
 import time
 from abc import ABC, abstractmethod
 from dataclasses import dataclass, field, replace
-from importlib.metadata import PackageNotFoundError, version
 
 import numpy as np
 
 from screen.constants import KB_HARTREE_K
+from screen.errors import CalculationError
+from screen.provenance import package_version
 
 # One OpenMP thread per process unless the user says otherwise: the pipeline parallelises over
 # shards, and OpenMP threads competing for busy cores slow xTB down by 10-30x. Must be set before
@@ -69,7 +70,7 @@ __all__ = [
 ]
 
 
-class EngineError(RuntimeError):
+class EngineError(CalculationError):
     """The engine could not be set up or a calculation failed outright."""
 
 
@@ -152,13 +153,6 @@ class SinglePoint:
         return float(eps[n_occ - 1]), float(eps[n_occ])
 
 
-def _package_version(name: str) -> str:
-    try:
-        return version(name)
-    except PackageNotFoundError:
-        return "absent"
-
-
 class Engine(ABC):
     """A GFN-xTB engine: method, SCF settings and a single-point call.
 
@@ -192,7 +186,7 @@ class Engine(ABC):
     @property
     def version(self) -> str:
         """Version string of the backing library."""
-        return _package_version(self.package)
+        return package_version(self.package)
 
     def describe(self) -> dict:
         """Everything about the engine that changes numbers, for provenance."""

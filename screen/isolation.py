@@ -14,10 +14,12 @@ import multiprocessing as mp
 import signal
 from collections.abc import Callable
 
+from screen.errors import CalculationError
+
 __all__ = ["WorkerCrash", "IsolatedWorker"]
 
 
-class WorkerCrash(RuntimeError):
+class WorkerCrash(CalculationError):
     """The child process died or timed out while working on one item."""
 
 

@@ -45,16 +45,16 @@ def provenance(config) -> dict:
 
     Parameters
     ----------
-    config : screen.config.Config or dict
-        The run configuration (a dict is resolved first).
+    config : screen.config.Config
+        The run configuration (its ``protocol`` and ``protocol_id``; this
+        module imports nothing above the ground floor).
     """
     from screen import __version__
-    from screen.config import protocol, protocol_id
 
     return {
         "dascreen": __version__,
-        "protocol_id": protocol_id(config),
-        "protocol": protocol(config),
+        "protocol_id": config.protocol_id,
+        "protocol": config.protocol,
         "versions": library_versions(),
     }
 

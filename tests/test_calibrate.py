@@ -10,9 +10,10 @@ import pandas as pd
 import pytest
 
 from conftest import ACENES, raw_levels
-from screen.calibrate import (CalibrationError, LinearLevelModel, apply_models, find_models, fit_all,
-                              load_models, read_reference, stats_table)
+from screen.calibrate import (CalibrationError, CalibrationMismatchError, LinearLevelModel, apply_models, find_models,
+                              fit_all, load_models, read_reference, stats_table)
 from screen.config import load_config
+from screen.errors import CalculationError, ConfigError, exit_code
 
 # Published gas-phase values (the rows of models/reference/*.csv, where each has its source):
 # IP benzene 9.24 (ZEKE, Chewter et al., J. Chem. Phys. 86 (1987) 4737), naphthalene 8.14 (NIST WebBook),
@@ -122,8 +123,9 @@ def test_foreign_fingerprint_is_refused(shipped, cfg, tmp_path):
     model = json.loads(path.read_text())
     model["fingerprint"]["protocol_id"] = "tblite-ipea1-xtb-00000000"
     path.write_text(json.dumps(model))
-    with pytest.raises(CalibrationError, match="does not belong to this run's protocol"):
+    with pytest.raises(CalibrationMismatchError, match="does not belong to this run's protocol") as err:
         load_models(foreign, cfg)
+    assert isinstance(err.value, ConfigError) and exit_code(err.value) == 2  # a configuration problem
     # a different method in the run's config is refused by the shipped model too
     other = dict(cfg, electronic={**cfg["electronic"], "method": "GFN1-xTB"})
     with pytest.raises(CalibrationError, match="protocol_id"):
@@ -142,7 +144,7 @@ def test_every_level_row_carries_its_scale(shipped, cfg):
     # film levels lie above (HOMO) and below (LUMO) the gas levels by the polarisation shifts
     assert film.loc[0, "homo_ev"] > gas.loc[0, "homo_ev"] and film.loc[0, "lumo_ev"] < gas.loc[0, "lumo_ev"]
     assert film.loc[0, "homo_sigma_ev"] >= gas.loc[0, "homo_sigma_ev"] > 0
-    with pytest.raises(CalibrationError, match="'film' or 'gas'"):
+    with pytest.raises(ConfigError, match="'film' or 'gas'"):
         apply_models(frame, models, scale="solution")
 
 
@@ -156,5 +158,6 @@ def test_prediction_interval_grows_outside_the_data():
 
 
 def test_too_few_points_is_an_error():
-    with pytest.raises(CalibrationError, match="too few"):
+    with pytest.raises(CalibrationError, match="too few") as err:
         LinearLevelModel(["x"]).fit(np.array([[1.0], [2.0]]), np.array([1.0, 2.0]))
+    assert isinstance(err.value, CalculationError) and exit_code(err.value) == 1
