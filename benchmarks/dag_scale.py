@@ -59,12 +59,10 @@ def main() -> None:
 
     from screen.cli import data_path
 
-    cfg = load_config(None, {"candidates": str(inp), "out": str(out / "run")})
-    for key in ("models", "reference"):
-        cfg["calibration"][key] = str(data_path(cfg["calibration"][key]))
+    cfg = load_config(None, {"candidates": str(inp), "out": str(out / "run")}).with_paths(data_path)
     cfg_file = out / "run" / "config.yaml"
     cfg_file.parent.mkdir(parents=True, exist_ok=True)
-    cfg_file.write_text(yaml.safe_dump(cfg))
+    cfg_file.write_text(yaml.safe_dump(cfg.to_dict()))
     t0 = time.perf_counter()
     stage(["--config", json.dumps({"prepare": cfg["prepare"]}), "prepare", "--input", str(inp), "--outdir",
            str(out / "run" / "work" / "candidates" / "prepared"), "--max-shards", "400"])

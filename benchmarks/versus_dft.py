@@ -78,8 +78,8 @@ sys.path.insert(0, str(REPO))
 from screen.calibrate import apply_models, find_models, fit_all, load_models, read_reference  # noqa: E402
 from screen.config import load_config  # noqa: E402
 from screen.constants import HARTREE_EV  # noqa: E402
-from screen.electronic import ElectronicOptions, molecule_numbers_positions, vertical_levels  # noqa: E402
-from screen.structures import build_structure, options_from_mapping  # noqa: E402
+from screen.electronic import molecule_numbers_positions, vertical_levels  # noqa: E402
+from screen.structures import build_structure  # noqa: E402
 
 #: the benchmark set: names as in models/reference/ip_gas.csv (values are read from there)
 MOLECULES = ("benzene", "naphthalene", "anthracene", "thiophene", "pyrrole", "furan", "toluene", "biphenyl")
@@ -180,8 +180,8 @@ def main(argv: list[str] | None = None) -> int:
           f"refit without the benchmark set: n={refit['ip']['n']}, features {refit['ip']['model']['features']}, "
           f"LOO MAE {refit['ip']['loo_mae_ev']:.3f} eV")
 
-    s_opts = options_from_mapping(cfg["structures"])
-    engine = ElectronicOptions.from_mapping(cfg["electronic"]).make_engine()
+    s_opts = cfg.structures
+    engine = cfg.electronic.make_engine()
     rows = []
     for rec in exp.to_dict("records"):
         start = time.perf_counter()

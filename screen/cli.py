@@ -341,17 +341,8 @@ def cmd_config(args) -> int:
     return EXIT_OK
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """The argument parser (exposed for documentation and tests)."""
-    parser = argparse.ArgumentParser(
-        prog="dascreen",
-        description="Screen organic-photovoltaic donor/acceptor candidates: calibrated xTB frontier levels, "
-                    "offsets to a partner material, Scharber-model Voc/Jsc/PCE and a ranked report. "
-                    "Results are screening estimates, not measurements.",
-    )
-    parser.add_argument("--version", action="version", version=f"dascreen {__version__}")
-    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
-
+def _add_run(sub) -> None:
+    """The ``run`` sub-command."""
     p = sub.add_parser("run", help="whole pipeline: candidates -> levels.csv -> ranking and report",
                        description="Run the whole pipeline through Snakemake: prepare, structures, electronic "
                                    "(xTB), levels (calibrated) and the ranking against the partner.")
@@ -372,6 +363,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=cmd_run)
     p.epilog = "Arguments after a bare `--` are passed to Snakemake unchanged (e.g. -- --keep-going)."
 
+
+def _add_calibrate(sub) -> None:
+    """The ``calibrate`` sub-command."""
     p = sub.add_parser("calibrate", help="fit calibration models on the reference sets and print statistics",
                        description="Compute the reference molecules with this run's protocol (same conformer "
                                    "route, engine and method as the candidates), fit the linear models and print "
@@ -389,6 +383,9 @@ def build_parser() -> argparse.ArgumentParser:
                         "use them without refitting")
     p.set_defaults(func=cmd_calibrate)
 
+
+def _add_rank(sub) -> None:
+    """The ``rank`` sub-command."""
     p = sub.add_parser("rank", help="ranking and report only, from an existing levels file (seconds)",
                        description="Pair every candidate of a levels file with a partner material, estimate "
                                    "Voc/Jsc/PCE with the Scharber model, apply the filters and write "
@@ -417,6 +414,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--top", type=int, default=10, help="rows to print (default 10)")
     p.set_defaults(func=cmd_rank)
 
+
+def _add_small(sub) -> None:
+    """The ``partners``, ``status`` and ``config`` sub-commands."""
     p = sub.add_parser("partners", help="list the built-in partner materials",
                        description="Print the built-in partner library (id, role, HOMO, LUMO, optical gap, scale, "
                                    "source).")
@@ -432,8 +432,21 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("config", help="print the default configuration with every field",
                        description="Print the complete default configuration as YAML.")
     p.set_defaults(func=cmd_config)
-    return parser
 
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser (exposed for documentation and tests)."""
+    parser = argparse.ArgumentParser(
+        prog="dascreen",
+        description="Screen organic-photovoltaic donor/acceptor candidates: calibrated xTB frontier levels, "
+                    "offsets to a partner material, Scharber-model Voc/Jsc/PCE and a ranked report. "
+                    "Results are screening estimates, not measurements.",
+    )
+    parser.add_argument("--version", action="version", version=f"dascreen {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    for add in (_add_run, _add_calibrate, _add_rank, _add_small):
+        add(sub)
+    return parser
 
 def main(argv: list[str] | None = None) -> int:
     """Entry point of the ``dascreen`` console script."""
