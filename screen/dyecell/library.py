@@ -1,0 +1,289 @@
+"""Semiconductor oxides and redox mediators of the dye-cell mode: the sourced library and user one-row files.
+
+The built-in tables are ``screen/data/semiconductors.csv`` (band edges in V vs
+NHE, with type ``n`` or ``p`` and which edge) and ``screen/data/mediators.csv``
+(redox potentials in V vs NHE, optional ``min_drive_reg_ev``: a couple-specific
+regeneration threshold).  Every row records its source, DOI and whether the
+value was recalled (``from_memory``).
+
+A user gives their own oxide or mediator as a path to a one-row CSV file, like
+a partner in the bulk-heterojunction mode:
+
+- oxide: ``id, band_edge_v_nhe`` (optional ``type`` n|p — default n —,
+  ``name``, ``source``, ``doi``, ``notes``); or ``band_edge_v`` with
+  ``reference`` (and ``solvent`` for Fc⁺/Fc); or ``band_edge_ev`` on the vacuum
+  scale, converted with the absolute NHE potential;
+- mediator: ``id, e_redox_v_nhe`` (optional ``min_drive_reg_ev``, ``name``, …);
+  or ``e_redox_v`` with ``reference``; or ``e_redox_ev`` (vacuum scale).
+
+The band edge is a flat-band / conduction-band reference that moves with pH
+and electrolyte (about −59 mV per pH unit, and Li⁺ or bases shift it); the
+library's ``conditions`` and ``notes`` say under which conditions each value
+holds [1]_.  Ids are user text: output folders use :attr:`Material.slug`.
+
+References
+----------
+.. [1] A. Hagfeldt, M. Grätzel, "Light-induced redox reactions in
+   nanocrystalline systems", Chem. Rev. 95 (1995) 49–68. :doi:`10.1021/cr00033a003` (from memory)
+.. [2] S. Trasatti, Pure Appl. Chem. 58 (1986) 955. :doi:`10.1351/pac198658070955`
+
+Examples
+--------
+>>> ox = resolve_oxide("tio2-anatase")
+>>> ox.kind, ox.type, ox.potential_v_nhe
+('library', 'n', -0.5)
+>>> resolve_mediator("Co-BPY3").potential_v_nhe
+0.56
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import re
+from dataclasses import asdict, dataclass
+from functools import lru_cache
+from pathlib import Path
+
+import pandas as pd
+
+from screen.dyecell.scales import nhe_from_vacuum_ev, to_nhe
+from screen.errors import InputError
+
+__all__ = ["Material", "OXIDES_FILE", "MEDIATORS_FILE", "load_oxides", "load_mediators", "resolve_oxide",
+           "resolve_mediator"]
+
+_DATA = Path(__file__).resolve().parent.parent / "data"
+#: built-in semiconductor table
+OXIDES_FILE = _DATA / "semiconductors.csv"
+#: built-in mediator table
+MEDIATORS_FILE = _DATA / "mediators.csv"
+
+
+@dataclass(frozen=True)
+class Material:
+    """An oxide or a mediator, with its one potential in V vs NHE.
+
+    Attributes
+    ----------
+    id, name : str
+        Identifier and name (user text for a file).
+    role : {'oxide', 'mediator'}
+    potential_v_nhe : float
+        Oxide: the band edge that takes the charge (conduction band for ``n``,
+        valence band for ``p``); mediator: the redox potential. [V vs NHE]
+    type : str
+        ``n`` or ``p`` for an oxide; '' for a mediator.
+    min_drive_reg_ev : float
+        Mediator-specific regeneration threshold; NaN = use the configured one. [eV]
+    conversion : str
+        How the potential was brought to V vs NHE ('' when given so).
+    kind : {'library', 'file'}
+    slug : str
+        Path-safe folder-name part.
+    """
+
+    id: str
+    name: str
+    role: str
+    potential_v_nhe: float
+    type: str = ""
+    min_drive_reg_ev: float = math.nan
+    source: str = ""
+    doi: str = ""
+    from_memory: bool = False
+    conditions: str = ""
+    notes: str = ""
+    conversion: str = ""
+    kind: str = "library"
+    slug: str = ""
+
+    def as_dict(self) -> dict:
+        """Fields as a dict (NaN → None), for sidecars."""
+        return {k: (None if isinstance(v, float) and math.isnan(v) else v) for k, v in asdict(self).items()}
+
+
+def _text(value) -> str:
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return ""
+    return str(value).strip()
+
+
+def _bool(value) -> bool:
+    return _text(value).lower() in ("true", "1", "yes")
+
+
+def _float(value) -> float:
+    try:
+        out = float(_text(value))
+    except ValueError:
+        return math.nan
+    return out
+
+
+@lru_cache(maxsize=8)
+def _read(path: str, needed: tuple[str, ...]) -> pd.DataFrame:
+    p = Path(path)
+    if not p.is_file():
+        raise InputError(f"library file {p} is missing")
+    frame = pd.read_csv(p, dtype=str, keep_default_na=False)
+    missing = [c for c in needed if c not in frame.columns]
+    if missing:
+        raise InputError(f"{p}: missing column(s) {missing}; found {list(frame.columns)}")
+    return frame
+
+
+def load_oxides(path: str | Path | None = None) -> pd.DataFrame:
+    """The semiconductor library as text columns (``band_edge_v_nhe`` numeric).
+
+    Examples
+    --------
+    >>> sorted(load_oxides()["id"])[:2]
+    ['nio', 'sno2']
+    """
+    frame = _read(str(path or OXIDES_FILE), ("id", "name", "type", "band_edge_v_nhe", "band_edge")).copy()
+    frame["band_edge_v_nhe"] = pd.to_numeric(frame["band_edge_v_nhe"], errors="coerce")
+    return frame
+
+
+def load_mediators(path: str | Path | None = None) -> pd.DataFrame:
+    """The mediator library (``e_redox_v_nhe`` numeric, ``min_drive_reg_ev`` numeric or NaN).
+
+    Examples
+    --------
+    >>> "iodide-triiodide" in set(load_mediators()["id"])
+    True
+    """
+    frame = _read(str(path or MEDIATORS_FILE), ("id", "name", "e_redox_v_nhe")).copy()
+    frame["e_redox_v_nhe"] = pd.to_numeric(frame["e_redox_v_nhe"], errors="coerce")
+    frame["min_drive_reg_ev"] = pd.to_numeric(frame.get("min_drive_reg_ev", pd.Series("", index=frame.index)),
+                                              errors="coerce")
+    return frame
+
+
+def _short_hash(text: str, n: int = 8) -> str:
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()[:n]
+
+
+def _file_slug(path: Path) -> str:
+    stem = re.sub(r"[^A-Za-z0-9._-]+", "-", path.stem).strip("-.")[:32] or "file"
+    return f"file-{stem}-{_short_hash(str(path.resolve()))}"
+
+
+def _one_row(path: Path, what: str) -> dict:
+    try:
+        frame = pd.read_csv(path, dtype=str, keep_default_na=False)
+    except (OSError, pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise InputError(f"{what} file {path} cannot be read as CSV: {exc}") from exc
+    if len(frame) != 1:
+        raise InputError(f"{what} file {path} must hold exactly one row; it has {len(frame)}")
+    return {k.strip(): v for k, v in frame.iloc[0].to_dict().items()}
+
+
+def _potential_from_row(row: dict, base: str, where: str) -> tuple[float, str]:
+    """``<base>_v_nhe``, or ``<base>_v`` + ``reference`` (+ ``solvent``), or ``<base>_ev`` (vacuum)."""
+    given = [c for c in (f"{base}_v_nhe", f"{base}_v", f"{base}_ev") if _text(row.get(c))]
+    if len(given) != 1:
+        raise InputError(f"{where}: give exactly one of {base}_v_nhe [V vs NHE], {base}_v with a reference "
+                         f"column, or {base}_ev [eV, vacuum scale]; found {given or 'none'}")
+    col = given[0]
+    value = _float(row[col])
+    if not math.isfinite(value):
+        raise InputError(f"{where}: {col} = {row[col]!r} is not a number")
+    if col.endswith("_v_nhe"):
+        return value, ""
+    if col.endswith("_ev"):
+        return float(nhe_from_vacuum_ev(value)), f"{col} = {value} eV (vacuum) → V vs NHE with the absolute " \
+                                                 "NHE potential 4.44 V (Trasatti 1986)"
+    reference = _text(row.get("reference"))
+    if not reference:
+        raise InputError(f"{where}: {col} needs a reference column (NHE, SCE, Ag/AgCl, Fc with a solvent)")
+    solvent = _text(row.get("solvent")) or "acetonitrile"
+    out = float(to_nhe(value, reference, solvent))
+    return out, f"{col} = {value} V vs {reference} ({solvent}) → {out:.3f} V vs NHE"
+
+
+def _lookup(frame: pd.DataFrame, spec: str) -> dict | None:
+    low = spec.strip().lower()
+    hit = frame[frame["id"].str.lower().eq(low)]
+    return None if hit.empty else hit.iloc[0].to_dict()
+
+
+def resolve_oxide(spec: str, library: str | Path | None = None) -> Material:
+    """An oxide from the library (id, any case) or a one-row CSV file.
+
+    Raises
+    ------
+    InputError
+        Unknown id and no such file (the message lists the ids), or a bad file.
+
+    Examples
+    --------
+    >>> resolve_oxide("nio").type, resolve_oxide("nio").potential_v_nhe
+    ('p', 0.5)
+    """
+    spec = _text(spec)
+    table = load_oxides(library)
+    row = _lookup(table, spec) if spec else None
+    if row is not None:
+        return Material(id=row["id"], name=_text(row.get("name")), role="oxide",
+                        potential_v_nhe=float(row["band_edge_v_nhe"]), type=_text(row.get("type")).lower() or "n",
+                        source=_text(row.get("source")), doi=_text(row.get("doi")),
+                        from_memory=_bool(row.get("from_memory")), conditions=_text(row.get("conditions")),
+                        notes=_text(row.get("notes")), kind="library", slug=row["id"])
+    path = Path(spec).expanduser() if spec else None
+    if path is None or not path.is_file():
+        raise InputError(f"unknown oxide {spec!r}: not a library id and not a file. Library ids: "
+                         f"{', '.join(table['id'])}. Or give a one-row CSV: id,band_edge_v_nhe[,type n|p]")
+    row = _one_row(path, "oxide")
+    where = f"oxide file {path}"
+    potential, conversion = _potential_from_row(row, "band_edge", where)
+    typ = _text(row.get("type")).lower() or "n"
+    if typ not in ("n", "p"):
+        raise InputError(f"{where}: type = {typ!r}; allowed: n (conduction band takes electrons) or p "
+                         "(valence band takes holes)")
+    return Material(id=_text(row.get("id")) or path.stem, name=_text(row.get("name")), role="oxide",
+                    potential_v_nhe=potential, type=typ, source=_text(row.get("source")) or str(path),
+                    doi=_text(row.get("doi")), from_memory=_bool(row.get("from_memory")),
+                    conditions=_text(row.get("conditions")), notes=_text(row.get("notes")), conversion=conversion,
+                    kind="file", slug=_file_slug(path))
+
+
+def resolve_mediator(spec: str, library: str | Path | None = None) -> Material:
+    """A mediator from the library (id, any case) or a one-row CSV file.
+
+    Raises
+    ------
+    InputError
+        Unknown id and no such file (the message lists the ids), or a bad file.
+
+    Examples
+    --------
+    >>> m = resolve_mediator("iodide-triiodide")
+    >>> m.role, m.potential_v_nhe
+    ('mediator', 0.35)
+    """
+    spec = _text(spec)
+    table = load_mediators(library)
+    row = _lookup(table, spec) if spec else None
+    if row is not None:
+        return Material(id=row["id"], name=_text(row.get("name")), role="mediator",
+                        potential_v_nhe=float(row["e_redox_v_nhe"]), min_drive_reg_ev=_float(row.get("min_drive_reg_ev")),
+                        source=_text(row.get("source")), doi=_text(row.get("doi")),
+                        from_memory=_bool(row.get("from_memory")), conditions=_text(row.get("solvent")),
+                        notes=_text(row.get("notes")), kind="library", slug=row["id"])
+    path = Path(spec).expanduser() if spec else None
+    if path is None or not path.is_file():
+        raise InputError(f"unknown mediator {spec!r}: not a library id and not a file. Library ids: "
+                         f"{', '.join(table['id'])}. Or give a one-row CSV: id,e_redox_v_nhe[,min_drive_reg_ev]")
+    row = _one_row(path, "mediator")
+    where = f"mediator file {path}"
+    potential, conversion = _potential_from_row(row, "e_redox", where)
+    thr = _float(row.get("min_drive_reg_ev")) if _text(row.get("min_drive_reg_ev")) else math.nan
+    if _text(row.get("min_drive_reg_ev")) and not math.isfinite(thr):
+        raise InputError(f"{where}: min_drive_reg_ev = {row.get('min_drive_reg_ev')!r} is not a number")
+    return Material(id=_text(row.get("id")) or path.stem, name=_text(row.get("name")), role="mediator",
+                    potential_v_nhe=potential, min_drive_reg_ev=thr, source=_text(row.get("source")) or str(path),
+                    doi=_text(row.get("doi")), from_memory=_bool(row.get("from_memory")),
+                    conditions=_text(row.get("solvent")), notes=_text(row.get("notes")), conversion=conversion,
+                    kind="file", slug=_file_slug(path))

@@ -1,0 +1,257 @@
+"""The electrochemical scale of the dye-cell mode: V vs NHE, V vs Fc⁺/Fc and the vacuum scale.
+
+Dye-cell work is done in electrode potentials.  This module holds the one set
+of conversions between
+
+- ``nhe``: potential of a couple vs the normal (standard) hydrogen electrode [V];
+- ``fc`` (with a solvent): potential vs ferrocenium/ferrocene in that solvent [V];
+- reference electrodes (SCE, Ag/AgCl) [V];
+- ``vacuum``: the energy of an electron at the couple's electrochemical potential,
+  relative to an electron at rest in vacuum [eV] (the scale of ``homo_ev``).
+
+The absolute potential of the hydrogen electrode is 4.44 V (IUPAC
+recommendation, Trasatti 1986 [1]_): the vacuum-scale energy of a couple at
+E vs NHE is :math:`-e\\,(E + 4.44\\ \\mathrm{V})`.  Ferrocene's potential vs
+NHE depends on the solvent; the offsets are read from
+``screen/data/electrodes.csv`` (sourced there, e.g. +0.63 V in acetonitrile,
+the dye-cell convention [2]_, [3]_).
+
+The dye-cell tables carry ``scale = "electrochemical"`` (potentials in V vs
+NHE); :func:`require_scale` refuses a table on any other scale
+(:class:`screen.errors.ScaleMismatchError`), as ranking does for ``film`` and
+``gas`` levels (``docs/contracts.md``, energy scales).
+
+References
+----------
+.. [1] S. Trasatti, "The absolute electrode potential: an explanatory note
+   (Recommendations 1986)", Pure Appl. Chem. 58 (1986) 955–966.
+   :doi:`10.1351/pac198658070955`
+.. [2] V. V. Pavlishchuk, A. W. Addison, "Conversion constants for redox
+   potentials measured versus different reference electrodes in acetonitrile
+   solutions at 25 °C", Inorg. Chim. Acta 298 (2000) 97–102.
+   :doi:`10.1016/S0020-1693(99)00407-7`
+.. [3] N. G. Connelly, W. E. Geiger, "Chemical redox agents for organometallic
+   chemistry", Chem. Rev. 96 (1996) 877–910. :doi:`10.1021/cr940053x`
+
+Examples
+--------
+>>> round(float(vacuum_ev_from_nhe(0.0)), 2)
+-4.44
+>>> round(float(nhe_from_vacuum_ev(-5.5)), 2)
+1.06
+>>> round(float(to_nhe(0.40, "fc", "acetonitrile")), 2)
+1.03
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from functools import lru_cache
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from screen.errors import InputError, ScaleMismatchError
+
+__all__ = ["ABSOLUTE_NHE_V", "ELECTROCHEMICAL", "ELECTRODES_FILE", "vacuum_ev_from_nhe", "nhe_from_vacuum_ev",
+           "electrodes", "solvent_key", "fc_vs_nhe_v", "reference_vs_nhe_v", "to_nhe", "from_nhe",
+           "require_scale"]
+
+#: absolute potential of the standard hydrogen electrode (Trasatti 1986, IUPAC) [V]
+ABSOLUTE_NHE_V = 4.44
+#: scale name of every dye-cell potential table (V vs NHE)
+ELECTROCHEMICAL = "electrochemical"
+#: the sourced reference-electrode table
+ELECTRODES_FILE = Path(__file__).resolve().parent.parent / "data" / "electrodes.csv"
+
+#: solvent spellings → the solvent key used in ``electrodes.csv`` ids (``fc-<key>``)
+_SOLVENT_ALIASES = {
+    "mecn": "mecn", "acetonitrile": "mecn", "ch3cn": "mecn", "acn": "mecn",
+    "dmf": "dmf", "n,n-dimethylformamide": "dmf", "dimethylformamide": "dmf",
+    "dcm": "dcm", "ch2cl2": "dcm", "dichloromethane": "dcm", "methylene chloride": "dcm",
+    "thf": "thf", "tetrahydrofuran": "thf",
+}
+#: reference-electrode spellings → ``electrodes.csv`` id
+_REFERENCE_ALIASES = {
+    "nhe": "nhe", "she": "nhe", "v vs nhe": "nhe",
+    "sce": "sce", "ag/agcl": "ag-agcl-sat", "ag/agcl (sat)": "ag-agcl-sat", "ag-agcl-sat": "ag-agcl-sat",
+    "ag/agcl (3 m kcl)": "ag-agcl-3m", "ag-agcl-3m": "ag-agcl-3m",
+}
+
+
+def vacuum_ev_from_nhe(e_v_nhe):
+    """Vacuum-scale energy of a couple at a potential vs NHE: ``−e (E + 4.44 V)``.
+
+    Parameters
+    ----------
+    e_v_nhe : array_like
+        Potential vs NHE. [V]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        Energy relative to the vacuum level (negative for a bound electron). [eV]
+
+    References
+    ----------
+    .. [1] S. Trasatti, Pure Appl. Chem. 58 (1986) 955. :doi:`10.1351/pac198658070955`
+
+    Examples
+    --------
+    >>> vacuum_ev_from_nhe([0.0, 1.0]).round(2).tolist()
+    [-4.44, -5.44]
+    """
+    return -(np.asarray(e_v_nhe, dtype=float) + ABSOLUTE_NHE_V)
+
+
+def nhe_from_vacuum_ev(energy_ev):
+    """Potential vs NHE of a couple whose electrons sit at ``energy_ev`` on the vacuum scale.
+
+    The inverse of :func:`vacuum_ev_from_nhe`: ``E = −energy/e − 4.44 V``. [V]
+
+    Examples
+    --------
+    >>> float(nhe_from_vacuum_ev(-4.44))
+    0.0
+    """
+    return -np.asarray(energy_ev, dtype=float) - ABSOLUTE_NHE_V
+
+
+@lru_cache(maxsize=4)
+def _electrodes(path: str) -> pd.DataFrame:
+    frame = pd.read_csv(path, dtype=str, keep_default_na=False)
+    missing = [c for c in ("id", "e_vs_nhe_v", "solvent") if c not in frame.columns]
+    if missing:
+        raise InputError(f"{path}: missing column(s) {missing}")
+    frame["e_vs_nhe_v"] = pd.to_numeric(frame["e_vs_nhe_v"], errors="coerce")
+    return frame.set_index("id")
+
+
+def electrodes(path: str | Path | None = None) -> pd.DataFrame:
+    """The reference-electrode table (index ``id``; ``e_vs_nhe_v`` [V], ``solvent``, source columns).
+
+    Examples
+    --------
+    >>> float(electrodes().loc["sce", "e_vs_nhe_v"])
+    0.241
+    """
+    return _electrodes(str(path or ELECTRODES_FILE)).copy()
+
+
+def solvent_key(solvent: str) -> str:
+    """Short key of a solvent name (``acetonitrile`` → ``mecn``); '' if unknown.
+
+    Examples
+    --------
+    >>> solvent_key("CH2Cl2"), solvent_key(" Acetonitrile "), solvent_key("water")
+    ('dcm', 'mecn', '')
+    """
+    return _SOLVENT_ALIASES.get(re.sub(r"\s+", " ", str(solvent).strip().lower()), "")
+
+
+def fc_vs_nhe_v(solvent: str = "acetonitrile") -> float:
+    """Potential of Fc⁺/Fc vs NHE in a solvent, from ``electrodes.csv``. [V]
+
+    Raises
+    ------
+    InputError
+        The solvent has no sourced Fc⁺/Fc offset (the message lists those that do).
+
+    Examples
+    --------
+    >>> fc_vs_nhe_v("MeCN"), fc_vs_nhe_v("DMF")
+    (0.63, 0.69)
+    """
+    table = electrodes()
+    key = solvent_key(solvent)
+    ident = f"fc-{key}"
+    if not key or ident not in table.index:
+        known = sorted(i[3:] for i in table.index if i.startswith("fc-"))
+        raise InputError(f"no Fc+/Fc potential vs NHE is recorded for solvent {solvent!r}; known: "
+                         f"{', '.join(known)} (add a sourced row to {ELECTRODES_FILE.name})")
+    return float(table.loc[ident, "e_vs_nhe_v"])
+
+
+def reference_vs_nhe_v(reference: str, solvent: str = "acetonitrile") -> float:
+    """Potential of a reference electrode vs NHE. [V]
+
+    Parameters
+    ----------
+    reference : str
+        ``NHE``/``SHE``, ``SCE``, ``Ag/AgCl``, ``Ag/AgCl (3 M KCl)``, ``Fc`` (ferrocene,
+        needs ``solvent``) or an id of ``electrodes.csv`` (e.g. ``fc-dcm``).
+    solvent : str
+        Solvent of a ferrocene reference.
+
+    Examples
+    --------
+    >>> reference_vs_nhe_v("SCE"), reference_vs_nhe_v("Fc+/Fc", "dichloromethane")
+    (0.241, 0.7)
+    """
+    ref = re.sub(r"\s+", " ", str(reference).strip().lower())
+    if ref in ("fc", "fc+/fc", "fc/fc+", "ferrocene"):
+        return fc_vs_nhe_v(solvent)
+    table = electrodes()
+    ident = _REFERENCE_ALIASES.get(ref, ref)
+    if ident not in table.index or ident == "vacuum" or not math.isfinite(table.loc[ident, "e_vs_nhe_v"]):
+        raise InputError(f"unknown reference electrode {reference!r}; known: NHE, SHE, SCE, Ag/AgCl, Fc (with a "
+                         f"solvent) or an id of {ELECTRODES_FILE.name}")
+    return float(table.loc[ident, "e_vs_nhe_v"])
+
+
+def to_nhe(e_v, reference: str, solvent: str = "acetonitrile"):
+    """A potential measured vs ``reference`` converted to V vs NHE: ``E + E_ref(vs NHE)``.
+
+    Examples
+    --------
+    >>> round(float(to_nhe(0.78, "SCE")), 3)
+    1.021
+    """
+    return np.asarray(e_v, dtype=float) + reference_vs_nhe_v(reference, solvent)
+
+
+def from_nhe(e_v_nhe, reference: str, solvent: str = "acetonitrile"):
+    """A potential vs NHE expressed vs ``reference`` (inverse of :func:`to_nhe`). [V]
+
+    Examples
+    --------
+    >>> round(float(from_nhe(1.03, "Fc", "acetonitrile")), 2)
+    0.4
+    """
+    return np.asarray(e_v_nhe, dtype=float) - reference_vs_nhe_v(reference, solvent)
+
+
+def require_scale(scales, where: str, expected: str = ELECTROCHEMICAL) -> None:
+    """Refuse values on another scale than ``expected``.
+
+    Parameters
+    ----------
+    scales : str or iterable of str
+        Scale labels of the values (one per row, or one for a table).
+    where : str
+        What is being checked (file and column), for the message.
+    expected : str
+        The scale required (default ``electrochemical``: V vs NHE).
+
+    Raises
+    ------
+    ScaleMismatchError
+        Any label differs from ``expected`` (empty labels included).
+
+    Examples
+    --------
+    >>> require_scale(["electrochemical"], "dyes.csv")
+    >>> require_scale(["film"], "levels.csv")
+    Traceback (most recent call last):
+    ...
+    screen.errors.ScaleMismatchError: levels.csv is on the 'film' scale; the dye-cell mode needs 'electrochemical' (potentials in V vs NHE); convert explicitly (screen.dyecell.scales) instead of mixing scales
+    """
+    labels = [scales] if isinstance(scales, str) else list(scales)
+    found = sorted({str(s).strip() for s in labels} - {expected})
+    if found:
+        shown = ", ".join(repr(s) for s in found)
+        raise ScaleMismatchError(
+            f"{where} is on the {shown} scale; the dye-cell mode needs {expected!r} (potentials in V vs NHE); "
+            "convert explicitly (screen.dyecell.scales) instead of mixing scales")
