@@ -1,0 +1,411 @@
+"""Dye-cell physics: driving forces, viability, Jsc, Voc, FF, PCE and its Monte-Carlo spread.
+
+For an n-type cell (dye on a mesoporous n-type oxide such as anatase TiO₂)
+with all potentials in V vs NHE [1]_, [2]_:
+
+.. math::
+
+    E(S^+/S^*) = E(S^+/S) - E_{0-0}/e
+
+    \\Delta_{inj} = e\\,[E_{CB} - E(S^+/S^*)] \\qquad \\Delta_{reg} = e\\,[E(S^+/S) - E_{redox}]
+
+    V_{oc} = E_{redox} - E_{CB} - V_{loss}
+
+    J_{sc} = \\eta\\, q \\int_{E \\ge E_{0-0}} \\Phi_{AM1.5G}(E)\\, dE
+
+    \\mathrm{PCE} = V_{oc} J_{sc}\\, \\mathrm{FF} / P_{in}
+
+Both driving forces are positive when the step is downhill (ΔG = −Δ).  The
+electron quasi-Fermi level of the oxide under illumination is taken at the
+conduction-band edge; ``voc_loss_v`` is how far below it sits at open circuit
+(and any other voltage loss).  η (``photon_to_current``) is the absorbed-
+photon-to-current efficiency times the light harvesting above E₀₋₀: the
+sharp-edge absorption is an optimistic idealisation for dyes with narrow bands.
+
+A p-type cell (dye on NiO) runs the other way: the excited dye takes an
+electron from the valence band (hole injection) and the reduced dye gives it to
+the mediator.  The dye's reduction potential is not calibrated; it is
+estimated as :math:`E(S/S^-) \\approx E(S^+/S) - E_{0-0}/e`, so
+:math:`E(S^*/S^-) \\approx E(S^+/S)`, :math:`\\Delta_{inj} = e[E(S^+/S) - E_{VB}]`,
+:math:`\\Delta_{reg} = e[E_{redox} - E(S/S^-)]` and
+:math:`V_{oc} = E_{VB} - E_{redox} - V_{loss}` (flag ``p_type_estimate``).
+
+Viability (no impossible number): a dye is *viable* when both driving forces
+reach their thresholds, the photovoltage is positive, the inputs are present
+and (with ``require_anchor``) it has an anchoring group.  A dye that is not
+viable gets no Voc, Jsc or PCE, and a reason in plain words.  A viable dye's
+Voc never exceeds the detailed-balance Voc of its E₀₋₀ and its PCE never the
+detailed-balance limit (:func:`screen.spectrum.sq_limit`); a capped value is
+flagged.
+
+Thresholds: 0.2 eV for injection and regeneration are rules of thumb of the
+field (common practice, e.g. discussed in [1]_); the iodide/triiodide couple
+needs ~0.5 eV because the dye is regenerated through the I₂•⁻/I⁻ couple [3]_ —
+the mediator table carries such couple-specific thresholds (``min_drive_reg_ev``).
+
+References
+----------
+.. [1] A. Hagfeldt, G. Boschloo, L. Sun, L. Kloo, H. Pettersson,
+   "Dye-sensitized solar cells", Chem. Rev. 110 (2010) 6595–6663.
+   :doi:`10.1021/cr900356p`
+.. [2] M. Grätzel, "Photoelectrochemical cells", Nature 414 (2001) 338–344.
+   :doi:`10.1038/35104607`
+.. [3] G. Boschloo, A. Hagfeldt, "Characteristics of the iodide/triiodide
+   redox mediator in dye-sensitized solar cells", Acc. Chem. Res. 42 (2009)
+   1819–1826. :doi:`10.1021/ar900138m` (from memory)
+.. [4] W. Shockley, H. J. Queisser, J. Appl. Phys. 32 (1961) 510.
+   :doi:`10.1063/1.1736034`
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+
+from screen.dyecell.flags import join_flags
+from screen.dyecell.library import Material
+from screen.dyecell.options import option_defaults
+from screen.errors import ConfigError
+from screen.spectrum import incident_power_w_m2, jsc_ma_cm2, reference_spectrum, sq_limit
+
+__all__ = ["DyeCellModel", "evaluate", "sample_pce", "TOL_EV"]
+
+#: driving forces within this of a threshold meet it (binary floating point) [eV]
+TOL_EV = 1e-9
+_D = option_defaults()
+
+# Jsc(η = 1) and the detailed-balance limit on one uniform photon-energy grid (sampler only)
+_GRID_MIN_EV, _GRID_MAX_EV, _GRID_STEP_EV = 0.30, 4.50, 1e-3
+#: samples per block of the sampler (cache-sized work arrays)
+_BLOCK_ELEMENTS = 2**17
+
+
+@dataclass(frozen=True)
+class DyeCellModel:
+    """Parameters of the dye-cell model (the ``dyecell`` config section).
+
+    Parameters
+    ----------
+    photon_to_current : float, default 0.65
+        Photon-to-current efficiency above E₀₋₀ (light harvesting × injection ×
+        collection). [dimensionless]
+    ff : float, default 0.70
+        Fill factor. [dimensionless]
+    voc_loss_v : float, default 0.20
+        Distance of the oxide's quasi-Fermi level at open circuit from its band
+        edge, plus other voltage losses. [V]
+    min_drive_inj_ev : float, default 0.20
+        Smallest injection driving force. [eV]
+    min_drive_reg_ev : float, default 0.20
+        Smallest regeneration driving force, unless the mediator sets its own. [eV]
+    require_anchor : bool, default True
+        A dye without an anchoring group is not viable.
+
+    Examples
+    --------
+    >>> m = DyeCellModel()
+    >>> m.ff, m.min_drive_inj_ev
+    (0.7, 0.2)
+    >>> DyeCellModel(ff=1.5)
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: dyecell.ff = 1.5 is not allowed; allowed: 0 < ff <= 1
+    """
+
+    photon_to_current: float = _D["photon_to_current"]
+    ff: float = _D["ff"]
+    voc_loss_v: float = _D["voc_loss_v"]
+    min_drive_inj_ev: float = _D["min_drive_inj_ev"]
+    min_drive_reg_ev: float = _D["min_drive_reg_ev"]
+    require_anchor: bool = _D["require_anchor"]
+
+    def __post_init__(self):
+        for name in ("photon_to_current", "ff", "voc_loss_v", "min_drive_inj_ev", "min_drive_reg_ev"):
+            val = getattr(self, name)
+            if isinstance(val, bool) or not isinstance(val, (int, float, np.floating, np.integer)) \
+                    or not math.isfinite(float(val)):
+                raise ConfigError(f"dyecell.{name} = {val!r} is not allowed; allowed: a finite real number")
+            object.__setattr__(self, name, float(val))
+        for name in ("photon_to_current", "ff"):
+            if not 0.0 < getattr(self, name) <= 1.0:
+                raise ConfigError(f"dyecell.{name} = {getattr(self, name)!r} is not allowed; allowed: 0 < {name} <= 1")
+        if self.voc_loss_v < 0:
+            raise ConfigError(f"dyecell.voc_loss_v = {self.voc_loss_v!r} is not allowed; allowed: >= 0")
+        if not isinstance(self.require_anchor, bool):
+            raise ConfigError(f"dyecell.require_anchor = {self.require_anchor!r}; allowed: true or false")
+
+    @classmethod
+    def from_mapping(cls, section: dict | None) -> DyeCellModel:
+        """The model from a ``dyecell`` config section (other keys ignored)."""
+        names = {f.name for f in dataclasses.fields(cls)}
+        return cls(**{k: v for k, v in (section or {}).items() if k in names})
+
+    def as_dict(self) -> dict:
+        """Parameters, spectrum and incident power, for sidecars."""
+        d = dataclasses.asdict(self)
+        d["spectrum"] = reference_spectrum().name
+        d["incident_power_w_m2"] = incident_power_w_m2()
+        return d
+
+    def pce_factor_pct(self) -> float:
+        """``PCE [%] = Voc [V] · Jsc [mA cm⁻²] · factor`` (includes FF and P_in)."""
+        return self.ff * 10.0 / incident_power_w_m2() * 100.0
+
+    def reg_threshold_ev(self, mediator: Material) -> float:
+        """Regeneration threshold: the mediator's own when it has one, else :attr:`min_drive_reg_ev`. [eV]"""
+        own = mediator.min_drive_reg_ev
+        return float(own) if own is not None and math.isfinite(own) else self.min_drive_reg_ev
+
+
+def _energetics(e_ox, e00, oxide: Material, mediator: Material):
+    """E(S⁺/S*), injection and regeneration driving forces and the raw Voc for the oxide's type."""
+    e_exc = e_ox - e00
+    if oxide.type == "p":
+        drive_inj = e_ox - oxide.potential_v_nhe            # E(S*/S-) ≈ E(S+/S) above the valence band
+        drive_reg = mediator.potential_v_nhe - e_exc        # mediator oxidises S-; E(S/S-) ≈ E(S+/S*)
+        voc_raw = oxide.potential_v_nhe - mediator.potential_v_nhe
+    else:
+        drive_inj = oxide.potential_v_nhe - e_exc
+        drive_reg = e_ox - mediator.potential_v_nhe
+        voc_raw = mediator.potential_v_nhe - oxide.potential_v_nhe
+    return e_exc, drive_inj, drive_reg, voc_raw
+
+
+def _fmt(x: float) -> str:
+    return f"{x:+.2f}".replace("-", "\u2212")
+
+
+def _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, thr_reg) -> str:
+    """Plain-words reason why dye ``i`` is not viable (every failing check, ';'-joined)."""
+    words = []
+    edge = "conduction-band edge" if oxide.type != "p" else "valence-band edge"
+    if masks["input_missing"][i]:
+        return "not viable: E(S\u207a/S) or E\u2080\u208b\u2080 is missing"
+    if masks["no_anchor"][i]:
+        words.append("no anchoring group, so the dye cannot bind to the oxide")
+    if masks["injection_low"][i]:
+        if oxide.type == "p":
+            words.append(f"excited state E(S*/S\u207b) \u2248 {_fmt(e_ox[i])} V vs NHE is only {_fmt(d_inj[i])} eV "
+                         f"above the {edge} of {oxide.id} ({_fmt(oxide.potential_v_nhe)} V); hole injection needs "
+                         f"\u2265 {thr_inj:.2f} eV")
+        elif d_inj[i] < 0:
+            words.append(f"excited state E(S\u207a/S*) = {_fmt(e_exc[i])} V vs NHE lies {abs(d_inj[i]):.2f} eV below "
+                         f"the {edge} of {oxide.id} ({_fmt(oxide.potential_v_nhe)} V), so it cannot inject "
+                         f"(needs \u2265 {thr_inj:.2f} eV above)")
+        else:
+            words.append(f"excited state E(S\u207a/S*) = {_fmt(e_exc[i])} V vs NHE is only {d_inj[i]:.2f} eV above "
+                         f"the {edge} of {oxide.id} ({_fmt(oxide.potential_v_nhe)} V); injection needs "
+                         f"\u2265 {thr_inj:.2f} eV")
+    if masks["regeneration_low"][i]:
+        if oxide.type == "p":
+            words.append(f"reduced dye E(S/S\u207b) \u2248 {_fmt(e_exc[i])} V vs NHE is only {_fmt(d_reg[i])} eV "
+                         f"more negative than {mediator.id} ({_fmt(mediator.potential_v_nhe)} V); regeneration "
+                         f"needs \u2265 {thr_reg:.2f} eV")
+        elif d_reg[i] < 0:
+            words.append(f"ground state E(S\u207a/S) = {_fmt(e_ox[i])} V vs NHE lies {abs(d_reg[i]):.2f} V above "
+                         f"(more negative than) the mediator {mediator.id} ({_fmt(mediator.potential_v_nhe)} V), so "
+                         f"the oxidised dye cannot be regenerated (needs \u2265 {thr_reg:.2f} eV)")
+        else:
+            words.append(f"ground state E(S\u207a/S) = {_fmt(e_ox[i])} V vs NHE is only {d_reg[i]:.2f} V more "
+                         f"positive than the mediator {mediator.id} ({_fmt(mediator.potential_v_nhe)} V); "
+                         f"regeneration needs \u2265 {thr_reg:.2f} eV")
+    if masks["voc_nonpositive"][i]:
+        words.append(f"the mediator ({_fmt(mediator.potential_v_nhe)} V) lies beyond the {edge} "
+                     f"({_fmt(oxide.potential_v_nhe)} V), so the cell has no photovoltage")
+    return "not viable: " + "; ".join(words)
+
+
+def evaluate(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator: Material, anchored=None) -> dict:
+    """Dye-cell estimates for many dyes against one oxide and one mediator (vectorised).
+
+    Parameters
+    ----------
+    model : DyeCellModel
+    e_ox_v_nhe : array_like
+        Ground-state oxidation potential E(S⁺/S). [V vs NHE]
+    e00_ev : array_like
+        Zero-zero excitation energy. [eV]
+    oxide, mediator : Material
+        From :mod:`screen.dyecell.library`.
+    anchored : array_like of bool, optional
+        True where the dye has an anchoring group (default: all True).
+
+    Returns
+    -------
+    dict of numpy.ndarray
+        ``e_ox_excited_v_nhe`` [V vs NHE], ``drive_inj_ev``, ``drive_reg_ev``
+        [eV], ``voc_v`` [V], ``jsc_ma_cm2`` [mA cm⁻²], ``ff``, ``pce_pct`` [%]
+        (NaN when not viable), ``viable`` (bool), ``viability`` (text), one
+        boolean mask per flag code and ``flags`` (``;``-joined).
+
+    Examples
+    --------
+    >>> from screen.dyecell.library import resolve_mediator, resolve_oxide
+    >>> out = evaluate(DyeCellModel(), [1.07, 0.40], [1.96, 1.96], resolve_oxide("tio2-anatase"),
+    ...                resolve_mediator("co-bpy3"))
+    >>> out["drive_inj_ev"].round(2).tolist(), out["drive_reg_ev"].round(2).tolist()
+    ([0.39, 1.06], [0.51, -0.16])
+    >>> out["viable"].tolist(), out["flags"].tolist()
+    ([True, False], ['', 'regeneration_low'])
+    >>> bool(np.isnan(out["pce_pct"][1]))
+    True
+    """
+    e_ox = np.atleast_1d(np.asarray(e_ox_v_nhe, dtype=float))
+    e00 = np.atleast_1d(np.asarray(e00_ev, dtype=float))
+    e_ox, e00 = np.broadcast_arrays(e_ox, e00)
+    n = e_ox.size
+    anchored = np.ones(n, dtype=bool) if anchored is None else np.broadcast_to(np.asarray(anchored, bool), (n,))
+    e_exc, d_inj, d_reg, voc_raw = _energetics(e_ox, e00, oxide, mediator)
+    thr_inj, thr_reg = model.min_drive_inj_ev, model.reg_threshold_ev(mediator)
+    missing = ~(np.isfinite(e_ox) & np.isfinite(e00) & (e00 > 0))
+    with np.errstate(invalid="ignore"):
+        masks = {
+            "input_missing": missing,
+            "no_anchor": ~anchored if model.require_anchor else np.zeros(n, bool),
+            "injection_low": ~missing & (d_inj < thr_inj - TOL_EV),
+            "regeneration_low": ~missing & (d_reg < thr_reg - TOL_EV),
+            "voc_nonpositive": np.full(n, voc_raw - model.voc_loss_v <= 0.0),
+        }
+    viable = ~(masks["input_missing"] | masks["no_anchor"] | masks["injection_low"] | masks["regeneration_low"]
+               | masks["voc_nonpositive"])
+    g = np.where(viable, e00, np.nan)
+    limit = sq_limit(g)
+    voc = np.minimum(np.full(n, voc_raw - model.voc_loss_v), limit["voc_v"])
+    jsc = np.asarray(jsc_ma_cm2(g, model.photon_to_current), dtype=float)
+    pce = voc * jsc * model.pce_factor_pct()
+    with np.errstate(invalid="ignore"):
+        capped = viable & ((voc_raw - model.voc_loss_v > limit["voc_v"]) | (pce > limit["pce_pct"]))
+    pce = np.minimum(pce, limit["pce_pct"])
+    if not viable.all():
+        voc = np.where(viable, voc, np.nan)
+    masks["p_type_estimate"] = np.full(n, oxide.type == "p")
+    masks["detailed_balance_cap"] = capped
+    viability = np.full(n, "viable", dtype=object)
+    for i in np.flatnonzero(~viable):
+        viability[i] = _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, thr_reg)
+    return {
+        "e_ox_excited_v_nhe": e_exc, "drive_inj_ev": d_inj, "drive_reg_ev": d_reg,
+        "voc_v": voc, "jsc_ma_cm2": np.where(viable, jsc, np.nan), "ff": np.where(viable, model.ff, np.nan),
+        "pce_pct": np.where(viable, pce, np.nan), "viable": viable, "viability": viability, **masks,
+        "flags": join_flags(masks),
+    }
+
+
+# --------------------------------------------------------------------------- Monte-Carlo spread
+
+@lru_cache(maxsize=1)
+def _tables():
+    """Jsc(η = 1) [mA cm⁻²] and the detailed-balance PCE [%] on a uniform E₀₋₀ grid."""
+    n = int(round((_GRID_MAX_EV - _GRID_MIN_EV) / _GRID_STEP_EV)) + 1
+    grid = _GRID_MIN_EV + _GRID_STEP_EV * np.arange(n)
+    jsc = np.asarray(jsc_ma_cm2(grid, 1.0), dtype=float)
+    sq = np.asarray(sq_limit(grid)["pce_pct"], dtype=float)
+    for arr in (jsc, sq):
+        arr.setflags(write=False)
+    return jsc, np.diff(jsc), sq, np.diff(sq)
+
+
+def sample_pce(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator: Material, *,
+               e_ox_sigma_v=0.0, e00_sigma_ev=0.0, anchored=None, n_samples: int = 2000, seed: int = 20240601,
+               target_pct: float = 8.0) -> dict:
+    """Monte-Carlo spread of the efficiency from the dyes' E(S⁺/S) and E₀₋₀ uncertainties.
+
+    Every sample re-checks viability (injection and regeneration thresholds)
+    with the sampled levels, so a dye close to a threshold gets a wide spread
+    and a lower probability of beating the target.  Samples that are not viable
+    count as PCE = 0; each sample is capped at the detailed-balance limit of its
+    E₀₋₀.  One table of standard normal deviates (fixed seed) is shared by
+    every dye (common random numbers): a dye's result does not depend on the
+    others, their order or the block size — as in :func:`screen.sampling.sample_pce`.
+
+    Parameters
+    ----------
+    model : DyeCellModel
+    e_ox_v_nhe, e00_ev : array_like
+        Mean values. [V vs NHE], [eV]
+    oxide, mediator : Material
+    e_ox_sigma_v, e00_sigma_ev : array_like
+        One-σ uncertainties (NaN read as 0). [V], [eV]
+    anchored : array_like of bool, optional
+        Dyes without an anchor (with ``require_anchor``) have every sample 0.
+    n_samples : int
+        Samples per dye (≥ 2).
+    seed : int
+        Seed of :func:`numpy.random.default_rng`.
+    target_pct : float
+        Efficiency threshold of ``p_above_target``. [%]
+
+    Returns
+    -------
+    dict of numpy.ndarray
+        ``pce_mean_pct``, ``pce_sigma_pct`` (ddof = 1) [%], ``p_above_target``
+        and ``p_viable`` (fraction of samples that inject and regenerate);
+        NaN where an input is missing.  The oxide and mediator potentials are
+        taken as exact.
+
+    Examples
+    --------
+    >>> from screen.dyecell.library import resolve_mediator, resolve_oxide
+    >>> ox, med = resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3")
+    >>> out = sample_pce(DyeCellModel(), [1.07, 0.78], [1.96, 1.96], ox, med, e_ox_sigma_v=0.1,
+    ...                  e00_sigma_ev=0.1, target_pct=5.0)
+    >>> out["p_viable"].round(2).tolist()
+    [0.9, 0.6]
+    >>> bool(out["p_above_target"][0] > out["p_above_target"][1])
+    True
+    """
+    n_samples = int(n_samples)
+    if n_samples < 2:
+        raise ValueError(f"sample_pce: n_samples = {n_samples}; need at least 2")
+    e_ox = np.atleast_1d(np.asarray(e_ox_v_nhe, dtype=float)).ravel()
+    e00 = np.atleast_1d(np.asarray(e00_ev, dtype=float)).ravel()
+    e_ox, e00 = np.broadcast_arrays(e_ox, e00)
+    n = e_ox.size
+    s_ox = np.broadcast_to(np.nan_to_num(np.asarray(e_ox_sigma_v, dtype=float), nan=0.0), (n,))
+    s_gap = np.broadcast_to(np.nan_to_num(np.asarray(e00_sigma_ev, dtype=float), nan=0.0), (n,))
+    if np.any(s_ox < 0) or np.any(s_gap < 0) or not (np.all(np.isfinite(s_ox)) and np.all(np.isfinite(s_gap))):
+        raise ValueError("sample_pce: σ must be finite and >= 0")
+    anchored = np.ones(n, bool) if anchored is None else np.broadcast_to(np.asarray(anchored, bool), (n,))
+    missing = ~(np.isfinite(e_ox) & np.isfinite(e00))
+    z = np.random.default_rng(seed).standard_normal((2, n_samples))
+    jsc_t, jsc_d, sq_t, sq_d = _tables()
+    k = model.photon_to_current * model.pce_factor_pct()
+    thr_inj, thr_reg = model.min_drive_inj_ev - TOL_EV, model.reg_threshold_ev(mediator) - TOL_EV
+    p_type = oxide.type == "p"
+    e_edge, e_med = oxide.potential_v_nhe, mediator.potential_v_nhe
+    voc = (e_edge - e_med if p_type else e_med - e_edge) - model.voc_loss_v
+    dead = missing | (~anchored if model.require_anchor else np.zeros(n, bool)) | (voc <= 0)
+    eo_m = np.where(missing, 1.0, e_ox)
+    eg_m = np.where(missing, 2.0, e00)
+
+    out_mean, out_sigma = np.full(n, np.nan), np.full(n, np.nan)
+    out_p, out_v = np.full(n, np.nan), np.full(n, np.nan)
+    rows = max(1, _BLOCK_ELEMENTS // n_samples)
+    last = jsc_t.size - 1 - 1e-9
+    for a in range(0, n, rows):
+        b = min(a + rows, n)
+        eo = eo_m[a:b, None] + s_ox[a:b, None] * z[0]
+        eg = eg_m[a:b, None] + s_gap[a:b, None] * z[1]
+        if p_type:
+            ok = (eo - e_edge >= thr_inj) & (e_med - (eo - eg) >= thr_reg)
+        else:
+            ok = (e_edge - (eo - eg) >= thr_inj) & (eo - e_med >= thr_reg)
+        ok &= ~dead[a:b, None]
+        x = (eg - _GRID_MIN_EV) * (1.0 / _GRID_STEP_EV)
+        np.clip(x, 0.0, last, out=x)
+        idx = x.astype(np.intp)
+        x -= idx
+        pce = (jsc_t[idx] + x * jsc_d[idx]) * (k * max(voc, 0.0))
+        np.minimum(pce, sq_t[idx] + x * sq_d[idx], out=pce)
+        pce *= ok
+        out_v[a:b] = ok.mean(axis=1)
+        out_p[a:b] = np.count_nonzero(pce > target_pct, axis=1) / n_samples
+        out_mean[a:b] = pce.mean(axis=1)
+        out_sigma[a:b] = pce.std(axis=1, ddof=1)
+    for arr in (out_mean, out_sigma, out_p, out_v):
+        arr[missing] = np.nan
+    return {"pce_mean_pct": out_mean, "pce_sigma_pct": out_sigma, "p_above_target": out_p, "p_viable": out_v}

@@ -1,0 +1,285 @@
+"""Dye-cell ranking: dye table → oxide + mediator → estimates, viability, Monte-Carlo spread → ranking.
+
+Two steps with different costs:
+
+1. :func:`dye_table` turns a run's ``levels.csv`` (raw xTB values) or a user's
+   own dye file (measured potentials) into one row per dye with E(S⁺/S) [V vs
+   NHE], E₀₋₀ [eV], their σ, the anchoring groups and the element check.  It
+   parses every SMILES once (RDKit) and is cached by the stage.
+2. :func:`rank_dyes` evaluates the cell for one oxide and one mediator —
+   numpy only, no RDKit, no engine — so switching oxide or mediator re-ranks
+   thousands of dyes in well under a second (``benchmarks/dyecell_rerank.py``).
+
+A user dye file holds ``id`` and either ``e_ox_v_nhe`` or ``e_ox_v`` with
+``e_ox_reference`` (NHE, SCE, Ag/AgCl, Fc) and ``solvent``, plus ``e00_ev``;
+optional ``smiles``, ``name``, ``e_ox_sigma_v``, ``e00_sigma_ev``, ``anchor``
+and ``scale`` (which must be ``electrochemical`` when given).
+
+Metal-containing dyes are computed by the shared stages (GFN2-xTB covers the
+elements up to Rn) but the dye calibration covers only the elements of its
+reference dyes: a dye with a metal outside them is not ranked (status
+``rejected`` with the reason); a non-metal outside them is ranked with the
+``element_uncalibrated`` flag.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+
+from screen.dyecell.anchors import find_anchors
+from screen.dyecell.calibrate import apply_models, elements_of
+from screen.dyecell.flags import INFO_FLAGS, join_flags
+from screen.dyecell.library import Material
+from screen.dyecell.model import DyeCellModel, evaluate, sample_pce
+from screen.dyecell.options import RankOptions
+from screen.dyecell.scales import ELECTROCHEMICAL, require_scale, to_nhe
+from screen.errors import InputError, ScaleMismatchError
+from screen.spectrum import gap_to_wavelength_nm
+
+__all__ = ["DYE_COLUMNS", "RANKING_COLUMNS", "EXTRA_COLUMNS", "NONMETALS", "dye_table", "dyes_from_file",
+           "rank_dyes"]
+
+#: columns of the dye table (``OUT/dyecell/dyes.csv``)
+DYE_COLUMNS = ["id", "smiles", "name", "status", "error", "e_ox_v_nhe", "e_ox_sigma_v", "e00_ev", "e00_sigma_ev",
+               "scale", "anchors", "anchored", "anchor_known", "uncalibrated_elements", "outside_calibration",
+               "source"]
+#: columns of ``ranking.csv``, in order
+RANKING_COLUMNS = ["rank", "id", "smiles", "e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "oxide", "mediator",
+                   "band_edge_v_nhe", "e_redox_v_nhe", "drive_inj_ev", "drive_reg_ev", "anchors", "viable",
+                   "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "pce_sigma_pct", "p_above_target", "p_viable",
+                   "passes", "flags", "viability"]
+#: columns after the contract ones
+EXTRA_COLUMNS = ["name", "e_ox_sigma_v", "e00_sigma_ev", "edge_nm"]
+#: atomic numbers counted as non-metals (metalloids B, Si, Ge, As, Te included)
+NONMETALS = frozenset({1, 2, 5, 6, 7, 8, 9, 10, 14, 15, 16, 17, 18, 32, 33, 34, 35, 36, 52, 53, 54, 85, 86})
+_ROUND = 4
+
+
+def _text_col(frame: pd.DataFrame, col: str) -> pd.Series:
+    if col not in frame:
+        return pd.Series([""] * len(frame), index=frame.index, dtype=object)
+    return frame[col].map(lambda v: "" if v is None or (isinstance(v, float) and math.isnan(v)) else str(v))
+
+
+def _num_col(frame: pd.DataFrame, col: str) -> np.ndarray:
+    if col not in frame:
+        return np.full(len(frame), np.nan)
+    return pd.to_numeric(frame[col], errors="coerce").to_numpy(float)
+
+
+def _structure_checks(smiles: pd.Series, covered: set[str]):
+    """Anchors, anchored, element problems per SMILES: (anchors text, anchored, known, uncalibrated, metal)."""
+    from rdkit import Chem
+
+    anchors, anchored, known, uncal, metal = [], [], [], [], []
+    for smi in smiles:
+        found = find_anchors(smi) if smi else None
+        anchors.append("; ".join(found or []))
+        anchored.append(bool(found))
+        known.append(found is not None)
+        els = elements_of(smi) if smi else set()
+        outside = sorted(els - covered) if covered else []
+        uncal.append(" ".join(outside))
+        metal.append([e for e in outside if Chem.GetPeriodicTable().GetAtomicNumber(e) not in NONMETALS])
+    return anchors, anchored, known, uncal, metal
+
+
+def dye_table(levels: pd.DataFrame, models: dict[str, dict]) -> pd.DataFrame:
+    """One dye row per levels row: calibrated E(S⁺/S), E₀₋₀, σ, anchors and the element check.
+
+    Parameters
+    ----------
+    levels : pandas.DataFrame
+        A run's ``levels.csv`` (every input row; ``status``, ``smiles``, raw ``xtb_*``).
+    models : dict
+        Dye models (:func:`screen.dyecell.calibrate.load_models`).
+
+    Returns
+    -------
+    pandas.DataFrame
+        :data:`DYE_COLUMNS`.  Rows that were not computed keep their status
+        and error; a computed dye with a metal outside the calibration becomes
+        ``rejected`` with the reason.
+    """
+    cal = apply_models(levels, models)
+    covered = set(models["e_ox"].get("elements") or [])
+    smiles = _text_col(levels, "smiles")
+    anchors, anchored, known, uncal, metal = _structure_checks(smiles, covered)
+    status = _text_col(levels, "status").where(lambda s: s.ne(""), "ok").to_numpy(object)
+    error = _text_col(levels, "error").to_numpy(object)
+    for i, met in enumerate(metal):
+        if met and status[i] == "ok":
+            status[i] = "rejected"
+            error[i] = (f"contains {', '.join(met)}: metal-containing dyes are outside the dye calibration "
+                        f"(fitted on organic dyes of {', '.join(sorted(covered))}); not ranked")
+    ok = status == "ok"
+    out = pd.DataFrame({
+        "id": _text_col(levels, "id"), "smiles": smiles, "name": _text_col(levels, "name"),
+        "status": status, "error": error,
+        "e_ox_v_nhe": np.where(ok, cal["e_ox_v_nhe"], np.nan), "e_ox_sigma_v": np.where(ok, cal["e_ox_sigma_v"], np.nan),
+        "e00_ev": np.where(ok, cal["e00_ev"], np.nan), "e00_sigma_ev": np.where(ok, cal["e00_sigma_ev"], np.nan),
+        "scale": np.where(ok, cal["scale"], ""), "anchors": anchors, "anchored": anchored, "anchor_known": known,
+        "uncalibrated_elements": uncal, "outside_calibration": cal["outside_calibration"].to_numpy(bool) & ok,
+        "source": "calibrated from xTB (dye models)",
+    })
+    return out[DYE_COLUMNS]
+
+
+def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame:
+    """A user's dye file (measured or otherwise known potentials) as a dye table.
+
+    Raises
+    ------
+    ScaleMismatchError
+        A ``scale`` column other than ``electrochemical``, or a levels file on
+        the vacuum scale (``homo_ev`` …) without dye potentials.
+    InputError
+        Missing columns, or a potential without its reference electrode.
+
+    Examples
+    --------
+    >>> t = dyes_from_file(pd.DataFrame({"id": ["a"], "e_ox_v": [0.40], "e_ox_reference": ["Fc"],
+    ...                                  "solvent": ["acetonitrile"], "e00_ev": [2.0]}))
+    >>> float(t.loc[0, "e_ox_v_nhe"]), t.loc[0, "scale"]
+    (1.03, 'electrochemical')
+    """
+    if "id" not in frame:
+        raise InputError(f"{where}: needs an id column")
+    has_nhe, has_ref = "e_ox_v_nhe" in frame, "e_ox_v" in frame
+    if "e00_ev" not in frame or not (has_nhe or has_ref):
+        if "homo_ev" in frame:
+            scales = sorted(set(_text_col(frame, "scale")) - {""}) or ["(none given)"]
+            raise ScaleMismatchError(
+                f"{where} holds vacuum-scale levels (homo_ev, scale {', '.join(scales)}) without raw xTB values; "
+                "the dye-cell mode needs E(S+/S) in V vs NHE and E00: give e_ox_v_nhe (or e_ox_v with "
+                "e_ox_reference) and e00_ev, or pass a dascreen run's levels.csv")
+        raise InputError(f"{where}: a dye file needs id, e_ox_v_nhe (or e_ox_v + e_ox_reference) and e00_ev; "
+                         f"found {list(frame.columns)}")
+    if "scale" in frame:
+        given = _text_col(frame, "scale").str.strip()
+        require_scale(given[given.ne("")], f"{where} (column scale)")
+    e_ox = _num_col(frame, "e_ox_v_nhe") if has_nhe else np.full(len(frame), np.nan)
+    if has_ref:
+        refs = _text_col(frame, "e_ox_reference").str.strip()
+        solv = _text_col(frame, "solvent").str.strip().where(lambda s: s.ne(""), "acetonitrile")
+        raw = _num_col(frame, "e_ox_v")
+        for i in np.flatnonzero(np.isnan(e_ox) & np.isfinite(raw)):
+            if not refs.iloc[i]:
+                raise InputError(f"{where}, row {i + 1} (id {frame['id'].iloc[i]!r}): e_ox_v needs e_ox_reference")
+            e_ox[i] = float(to_nhe(raw[i], refs.iloc[i], solv.iloc[i]))
+    smiles = _text_col(frame, "smiles")
+    anchors, anchored, known, uncal, _ = _structure_checks(smiles, set())
+    if "anchor" in frame:
+        given = _text_col(frame, "anchor").str.strip()
+        for i in np.flatnonzero(given.ne("").to_numpy()):
+            if not known[i]:
+                anchors[i], anchored[i], known[i] = given.iloc[i], given.iloc[i].lower() not in ("none", "no"), True
+    e00 = _num_col(frame, "e00_ev")
+    ok = np.isfinite(e_ox) & np.isfinite(e00)
+    out = pd.DataFrame({
+        "id": _text_col(frame, "id"), "smiles": smiles, "name": _text_col(frame, "name"),
+        "status": np.where(ok, "ok", "rejected"),
+        "error": np.where(ok, "", "E(S+/S) or E00 missing or not a number"),
+        "e_ox_v_nhe": e_ox, "e_ox_sigma_v": np.nan_to_num(_num_col(frame, "e_ox_sigma_v"), nan=0.0),
+        "e00_ev": e00, "e00_sigma_ev": np.nan_to_num(_num_col(frame, "e00_sigma_ev"), nan=0.0),
+        "scale": np.where(ok, ELECTROCHEMICAL, ""), "anchors": anchors, "anchored": anchored,
+        "anchor_known": known, "uncalibrated_elements": "", "outside_calibration": False,
+        "source": _text_col(frame, "source").where(lambda s: s.ne(""), "user file"),
+    })
+    return out[DYE_COLUMNS]
+
+
+def _bool_col(frame: pd.DataFrame, col: str, default: bool) -> np.ndarray:
+    if col not in frame:
+        return np.full(len(frame), default)
+    return frame[col].map(lambda v: v if isinstance(v, (bool, np.bool_)) else str(v).strip().lower()
+                          in ("true", "1", "yes")).to_numpy(bool)
+
+
+def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: DyeCellModel | None = None,
+              options: RankOptions | None = None) -> pd.DataFrame:
+    """Rank the ``ok`` dyes of a dye table for one oxide and one mediator (vectorised).
+
+    Parameters
+    ----------
+    dyes : pandas.DataFrame
+        :data:`DYE_COLUMNS` (from :func:`dye_table` or :func:`dyes_from_file`).
+    oxide, mediator : Material
+    model : DyeCellModel, optional
+    options : RankOptions, optional
+
+    Returns
+    -------
+    pandas.DataFrame
+        :data:`RANKING_COLUMNS` + :data:`EXTRA_COLUMNS`, best first: passing
+        (viable) dyes first, then ``options.sort_by`` descending, then
+        ``p_above_target``, ``id`` and input order; ``attrs["not_ranked"]``
+        counts the other rows by status.
+
+    Raises
+    ------
+    ScaleMismatchError
+        A ranked row is not on the electrochemical scale.
+
+    Examples
+    --------
+    >>> from screen.dyecell.library import resolve_mediator, resolve_oxide
+    >>> t = dyes_from_file(pd.DataFrame({"id": ["a", "b"], "e_ox_v_nhe": [1.07, 0.5], "e00_ev": [1.96, 2.0],
+    ...                                  "smiles": ["OC(=O)c1ccccc1", "c1ccccc1"]}))
+    >>> r = rank_dyes(t, resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3"))
+    >>> r["id"].tolist(), r["passes"].tolist(), r["flags"].tolist()
+    (['a', 'b'], [True, False], ['', 'no_anchor;regeneration_low'])
+    """
+    model = model or DyeCellModel()
+    options = options or RankOptions()
+    st = _text_col(dyes, "status").str.strip().str.lower()
+    ranked = st.eq("ok").to_numpy()
+    not_ranked = {str(k): int(v) for k, v in st[~ranked].value_counts().items()}
+    d = dyes[ranked].reset_index(drop=True)
+    require_scale(_text_col(d, "scale"), "dye table (column scale)")
+    e_ox, e00 = _num_col(d, "e_ox_v_nhe"), _num_col(d, "e00_ev")
+    s_ox = np.nan_to_num(_num_col(d, "e_ox_sigma_v"), nan=0.0)
+    s_gap = np.nan_to_num(_num_col(d, "e00_sigma_ev"), nan=0.0)
+    anchored = _bool_col(d, "anchored", True)
+    known = _bool_col(d, "anchor_known", True)
+    anchored = anchored | ~known  # an unknown anchor does not fail; it is flagged
+    dev = evaluate(model, e_ox, e00, oxide, mediator, anchored)
+    mc = sample_pce(model, e_ox, e00, oxide, mediator, e_ox_sigma_v=s_ox, e00_sigma_ev=s_gap, anchored=anchored,
+                    n_samples=options.n_samples, seed=options.seed, target_pct=options.target_pce_pct)
+    masks = {k: np.asarray(dev[k], bool) for k in ("input_missing", "no_anchor", "injection_low", "regeneration_low",
+                                                    "voc_nonpositive", "p_type_estimate", "detailed_balance_cap")}
+    masks["anchor_unknown"] = ~known
+    masks["element_uncalibrated"] = _text_col(d, "uncalibrated_elements").str.strip().ne("").to_numpy()
+    masks["outside_calibration"] = _bool_col(d, "outside_calibration", False)
+    failing = np.zeros(len(d), bool)
+    for code, m in masks.items():
+        if code not in INFO_FLAGS:
+            failing |= m
+    viable = np.asarray(dev["viable"], bool)
+    out = pd.DataFrame({
+        "rank": 0, "id": _text_col(d, "id"), "smiles": _text_col(d, "smiles"), "e_ox_v_nhe": e_ox, "e00_ev": e00,
+        "e_ox_excited_v_nhe": dev["e_ox_excited_v_nhe"], "oxide": oxide.id, "mediator": mediator.id,
+        "band_edge_v_nhe": oxide.potential_v_nhe, "e_redox_v_nhe": mediator.potential_v_nhe,
+        "drive_inj_ev": dev["drive_inj_ev"], "drive_reg_ev": dev["drive_reg_ev"], "anchors": _text_col(d, "anchors"),
+        "viable": viable, "voc_v": dev["voc_v"], "jsc_ma_cm2": dev["jsc_ma_cm2"], "ff": dev["ff"],
+        "pce_pct": dev["pce_pct"], "pce_sigma_pct": np.where(viable, mc["pce_sigma_pct"], np.nan),
+        "p_above_target": mc["p_above_target"], "p_viable": mc["p_viable"], "passes": viable & ~failing,
+        "flags": join_flags(masks), "viability": dev["viability"], "name": _text_col(d, "name"),
+        "e_ox_sigma_v": s_ox, "e00_sigma_ev": s_gap, "edge_nm": np.asarray(gap_to_wavelength_nm(e00), float),
+    })
+    num = ["e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "drive_inj_ev", "drive_reg_ev", "voc_v", "jsc_ma_cm2",
+           "pce_pct", "pce_sigma_pct", "p_above_target", "p_viable", "e_ox_sigma_v", "e00_sigma_ev"]
+    out[num] = out[num].round(_ROUND)
+    out["edge_nm"] = out["edge_nm"].round(1)
+    keys = ["passes", options.sort_by] + (["p_above_target"] if options.sort_by != "p_above_target" else
+                                          ["pce_pct"]) + ["id", "_order"]
+    out["_order"] = np.arange(len(out))
+    out = out.sort_values(keys, ascending=[False, False, False, True, True], na_position="last",
+                          kind="stable").drop(columns="_order").reset_index(drop=True)
+    out["rank"] = np.arange(1, len(out) + 1)
+    out = out[RANKING_COLUMNS + EXTRA_COLUMNS]
+    out.attrs["not_ranked"] = not_ranked
+    return out

@@ -1,0 +1,239 @@
+"""Dye-cell stage, files in → files out: levels (or a dye file) + oxide + mediator → ranking folder.
+
+::
+
+    OUT/levels.csv  (a run's, raw xTB values)      or   a dye file (measured potentials)
+       │ dye_table: dye models (models/dyecell/<protocol-id>/) → E(S⁺/S), E₀₋₀, σ; anchors; element check
+       ▼
+    OUT/dyecell/dyes.csv (+ .meta.json)            cached: reused while levels and models are unchanged
+       │ rank_dyes: oxide + mediator → driving forces, viability, Voc, Jsc, PCE, Monte-Carlo spread
+       ▼
+    OUT/dyecell/<oxide>--<mediator>/ranking.csv, ranking.safe.csv, ranking.meta.json, shortlist.sdf, report.html
+
+The expensive stages (structures, electronic) are those of the
+bulk-heterojunction route and depend only on the molecule and the protocol:
+switching oxide or mediator re-runs only the last step.  Folder names are the
+library ids, or ``file-<stem>-<hash>`` for a user's one-row file (ids are user
+text and never used in paths).
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+from dataclasses import asdict
+from pathlib import Path
+
+import pandas as pd
+
+from screen.dyecell.calibrate import MODELS_DIR, load_models
+from screen.dyecell.flags import describe
+from screen.dyecell.library import Material, resolve_mediator, resolve_oxide
+from screen.dyecell.model import DyeCellModel
+from screen.dyecell.options import RankOptions, option_defaults
+from screen.dyecell.rank import DYE_COLUMNS, EXTRA_COLUMNS, RANKING_COLUMNS, dye_table, dyes_from_file, rank_dyes
+from screen.errors import InputError
+from screen.io import read_json, write_csv, write_json
+from screen.provenance import library_versions, sha256_file
+
+__all__ = ["read_input", "build_dye_table", "write_shortlist", "run_dyecell", "ranking_folder"]
+
+_SD_PROPS = ["rank", "id", "name", "oxide", "mediator", "e_ox_v_nhe", "e_ox_sigma_v", "e00_ev", "e00_sigma_ev",
+             "e_ox_excited_v_nhe", "drive_inj_ev", "drive_reg_ev", "anchors", "voc_v", "jsc_ma_cm2", "ff", "pce_pct",
+             "pce_sigma_pct", "p_above_target", "flags", "smiles"]
+
+
+def read_input(path: str | Path) -> tuple[str, pd.DataFrame, dict | None]:
+    """Read a levels file or a dye file: ``("levels" | "dyes", frame, sidecar or None)``.
+
+    A file with raw ``xtb_ip_ev`` values is a run's levels; anything else is a
+    user's dye file (:func:`screen.dyecell.rank.dyes_from_file`).
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise InputError(f"dye-cell input {path} does not exist")
+    try:
+        frame = pd.read_csv(path, dtype={"id": str}, keep_default_na=False, na_values=[""])
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise InputError(f"{path} cannot be read as CSV: {exc}") from exc
+    side = Path(f"{path}.meta.json")
+    meta = read_json(side) if side.is_file() else None
+    kind = "levels" if "xtb_ip_ev" in frame.columns else "dyes"
+    return kind, frame, meta
+
+
+def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str | Path | None = None,
+                    models_root: str | Path | None = None) -> tuple[pd.DataFrame, dict]:
+    """The dye table of an input file, cached as ``out_dir/dyecell/dyes.csv``.
+
+    Returns
+    -------
+    (pandas.DataFrame, dict)
+        The table (:data:`screen.dyecell.rank.DYE_COLUMNS`) and its sidecar
+        content (input hash, models, protocol, calibration statistics).
+    """
+    path = Path(path)
+    kind, frame, meta = read_input(path)
+    target = Path(out_dir) / "dyecell" / "dyes.csv"
+    info = {"input": str(path.resolve()), "input_sha256": sha256_file(path), "kind": kind,
+            "levels_meta": meta, "versions": library_versions()}
+    if kind == "levels":
+        pid = (meta or {}).get("protocol_id")
+        if not pid and models_folder is None:
+            raise InputError(f"{path} has no sidecar with the protocol id ({path}.meta.json); give the dye models "
+                             "folder explicitly so that the calibration matches the computation")
+        models = load_models(pid, models_root or MODELS_DIR, folder=models_folder)
+        folder = Path(models_folder) if models_folder else Path(models_root or MODELS_DIR) / pid
+        info["models"] = {"folder": str(folder), "protocol_id": pid,
+                          **{n: sha256_file(folder / f"{n}.json") for n in models}}
+        info["calibration"] = {n: {"features": m["model"]["features"], "coef": m["model"]["coef"],
+                                   "intercept": m["model"]["intercept"], "n": m["n"], "loo_mae": m["loo_mae"],
+                                   "baseline_loo_mae": m["baseline_loo_mae"], "unit": m["unit"],
+                                   "target_range": m.get("target_range")} for n, m in models.items()}
+        info["calibration"]["elements"] = models["e_ox"].get("elements", [])
+        cached = _cached(target, info)
+        table = cached if cached is not None else dye_table(frame, models)
+    else:
+        cached = _cached(target, info)
+        table = cached if cached is not None else dyes_from_file(frame, str(path))
+    if cached is None:
+        write_csv(table, target)
+        write_json(info, Path(f"{target}.meta.json"))
+    return table, info
+
+
+def _cached(target: Path, info: dict) -> pd.DataFrame | None:
+    """The cached dye table when its sidecar matches the input and models."""
+    side = Path(f"{target}.meta.json")
+    if not (target.is_file() and side.is_file()):
+        return None
+    try:
+        old = read_json(side)
+    except ValueError:
+        return None
+    if old.get("input_sha256") != info["input_sha256"] or old.get("models") != info.get("models"):
+        return None
+    table = pd.read_csv(target, dtype={"id": str}, keep_default_na=False, na_values=[""])
+    return table if list(table.columns) == DYE_COLUMNS else None
+
+
+def ranking_folder(out_dir: str | Path, oxide: Material, mediator: Material) -> Path:
+    """``out_dir/dyecell/<oxide slug>--<mediator slug>``."""
+    return Path(out_dir) / "dyecell" / f"{oxide.slug}--{mediator.slug}"
+
+
+def _sd_text(value) -> str:
+    text = "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)
+    return " ".join(text.replace("\r", "\n").split("\n")).replace("$$$$", "$ $ $ $")
+
+
+def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int) -> dict:
+    """The top passing dyes as an SD file (2-D depictions, estimates as properties).
+
+    Returns
+    -------
+    dict
+        ``written`` and ``skipped`` (ids without a readable SMILES).
+    """
+    from rdkit import Chem, rdBase
+    from rdkit.Chem import rdDepictor
+
+    from screen.io import atomic_path
+
+    top = ranking[ranking["passes"].astype(bool)].head(int(size))
+    written, skipped = 0, []
+    with atomic_path(target) as tmp:
+        writer = Chem.SDWriter(str(tmp))
+        with rdBase.BlockLogs():
+            for row in top.to_dict("records"):
+                mol = Chem.MolFromSmiles(row["smiles"]) if row["smiles"] else None
+                if mol is None:
+                    skipped.append(row["id"])
+                    continue
+                rdDepictor.Compute2DCoords(mol)
+                mol.SetProp("_Name", _sd_text(row["id"])[:80])
+                for prop in _SD_PROPS:
+                    mol.SetProp(prop, _sd_text(row.get(prop)))
+                mol.SetProp("potential_scale", "V vs NHE")
+                writer.write(mol)
+                written += 1
+        writer.close()
+    return {"written": written, "skipped": skipped}
+
+
+def _meta(ranking, table, info, oxide, mediator, model, options, short) -> dict:
+    from screen import __version__
+
+    flags = pd.Series([f for s in ranking["flags"] for f in str(s).split(";") if f]).value_counts()
+    status = table["status"].astype(str)
+    return {
+        "dascreen": __version__, "stage": "dyecell", "scale": "electrochemical (potentials in V vs NHE)",
+        "oxide": oxide.as_dict(), "mediator": mediator.as_dict(), "model": model.as_dict(),
+        "regeneration_threshold_ev": model.reg_threshold_ev(mediator), "rank": asdict(options),
+        "sign_convention": "drive_inj_ev = E_CB - E(S+/S*) (n-type) and drive_reg_ev = E(S+/S) - E_redox, in eV; "
+                           "both > 0 when the step is downhill (dG = -drive)",
+        "dyes": {k: v for k, v in info.items() if k != "levels_meta"}, "levels_meta": info.get("levels_meta"),
+        "calibration": info.get("calibration"),
+        "flag_text": {code: describe(code, {"model": model.as_dict(), "calibration": info.get("calibration") or {}})
+                      for code in flags.index},
+        "counts": {"rows": int(len(table)), "ok": int(status.eq("ok").sum()),
+                   "rejected": int(status.eq("rejected").sum()), "failed": int(status.eq("failed").sum()),
+                   "ranked": int(len(ranking)), "viable": int(ranking["viable"].astype(bool).sum()),
+                   "passing": int(ranking["passes"].astype(bool).sum()),
+                   "not_ranked": ranking.attrs.get("not_ranked", {}),
+                   "flags": {str(k): int(v) for k, v in flags.items()}, "shortlist": short["written"],
+                   "shortlist_skipped_no_smiles": short["skipped"]},
+        "columns": RANKING_COLUMNS + EXTRA_COLUMNS,
+        "outputs": {"ranking": "ranking.csv", "shortlist": "shortlist.sdf", "meta": "ranking.meta.json",
+                    "report": "report.html", "safe": "ranking.safe.csv"},
+    }
+
+
+def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | None = None,
+                mediator: str | None = None, settings: dict | None = None, models_folder: str | Path | None = None,
+                models_root: str | Path | None = None, report: bool = True) -> Path:
+    """Rank dyes for one oxide and one mediator and write the ranking folder.
+
+    Parameters
+    ----------
+    input_path : path-like
+        A run's ``levels.csv`` (its sidecar names the protocol) or a dye file.
+    out_dir : path-like
+        Output folder (``OUT``): writes ``OUT/dyecell/``.
+    oxide, mediator : str, optional
+        Library ids or one-row CSV files (default: ``settings`` or the
+        ``dyecell`` defaults).
+    settings : dict, optional
+        The ``dyecell`` config section (model parameters and ranking options).
+    models_folder, models_root : path-like, optional
+        Dye models (default ``models/dyecell/<protocol-id>``).
+    report : bool
+        Also write ``report.html`` and ``ranking.safe.csv``.
+
+    Returns
+    -------
+    pathlib.Path
+        ``ranking.csv`` of ``OUT/dyecell/<oxide>--<mediator>/``.
+    """
+    section = {**option_defaults(), **(settings or {})}
+    ox = resolve_oxide(oxide or section["oxide"])
+    med = resolve_mediator(mediator or section["mediator"])
+    model = DyeCellModel.from_mapping(section)
+    options = RankOptions.from_mapping(section)
+    table, info = build_dye_table(input_path, out_dir, models_folder=models_folder, models_root=models_root)
+    ranking = rank_dyes(table, ox, med, model, options)
+    target = ranking_folder(out_dir, ox, med)
+    write_csv(ranking, target / "ranking.csv")
+    short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size)
+    meta = _meta(ranking, table, info, ox, med, model, options, short)
+    write_json(meta, target / "ranking.meta.json")
+    if report:
+        from screen.report.dyecell_page import write_dyecell_report
+
+        try:
+            write_dyecell_report(ranking, table, meta, target)
+        except Exception as exc:  # the ranking files are written; say what failed
+            print(f"dascreen dyecell: the ranking is written to {target}, but the report failed: "
+                  f"{type(exc).__name__}: {exc}", file=sys.stderr)
+            raise
+    return target / "ranking.csv"

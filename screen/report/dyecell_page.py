@@ -1,0 +1,290 @@
+"""Self-contained HTML report of a dye-cell ranking (dyes against one oxide and one mediator).
+
+Sections: run at a glance (oxide, mediator, model and calibration cards),
+shortlist with structure drawings and every flag in plain words, the dye-cell
+energy diagram (:mod:`screen.report.dyecell_figure`), every ranked dye with
+its viability in words, and the dyes that were not ranked with the reason.
+Styles and the sorting script are those of the bulk-heterojunction report
+(``static/``); every user text is HTML-escaped; nothing is fetched from the
+network.
+
+References
+----------
+.. [1] A. Hagfeldt, G. Boschloo, L. Sun, L. Kloo, H. Pettersson, Chem. Rev.
+   110 (2010) 6595. :doi:`10.1021/cr900356p`
+"""
+
+from __future__ import annotations
+
+import os
+from datetime import datetime, timezone
+from pathlib import Path
+
+import pandas as pd
+
+from screen import __version__
+from screen.dyecell.flags import INFO_FLAGS, describe
+from screen.flags import codes_of
+from screen.io import atomic_path
+from screen.report.drawings import molecule_svg
+from screen.report.dyecell_figure import DIAGRAM_MAX, dyecell_diagram_svg
+from screen.report.export import safe_csv_frame
+from screen.report.format import NOT_RECORDED, data_value, esc, fmt, get, num, pm_html, shorten, text, truthy
+from screen.report.page import static_text
+
+__all__ = ["render_dyecell_report", "write_dyecell_report", "EXPORTS"]
+
+#: files beside ``report.html``
+EXPORTS = (
+    ("ranking.csv", "the full ranking, best first (potentials in V vs NHE, driving forces in eV)"),
+    ("shortlist.sdf", "2-D structures of the shortlisted dyes with their estimates as properties"),
+    ("ranking.safe.csv", "the ranking for spreadsheet programs (formula-like text cells neutralised)"),
+    ("ranking.meta.json", "oxide, mediator, model parameters, calibration and provenance"),
+)
+_CAUTION = (
+    '<p class="caution" id="caution"><strong>Screening estimates.</strong> Potentials come from a '
+    "semi-empirical quantum-chemistry method with an empirical calibration on a small set of recalled "
+    "literature values, and the cell model is idealised (sharp absorption edge, fixed photon-to-current "
+    "efficiency and fill factor, oxide quasi-Fermi level at the band edge). Use the numbers to rank and to "
+    "choose what to discuss, not as predicted measurements. Band edges move with pH and electrolyte "
+    "additives. Making and handling any dye follows your lab\u2019s chemical-safety rules and the safety data "
+    "sheets of every reagent.</p>")
+
+
+def _dl(items) -> str:
+    return "<dl>" + "".join(f"<dt>{t}</dt><dd>{v}</dd>" for t, v in items) + "</dl>"
+
+
+def _material_card(m: dict, title: str, ident: str, edge_word: str) -> str:
+    m = m if isinstance(m, dict) else {}
+    source = text(m.get("source"))
+    doi = text(m.get("doi"))
+    if doi:
+        source = f"{source} (doi:{doi})" if source else f"doi:{doi}"
+    items = [(title, f'<span class="cid">{esc(m.get("id")) or NOT_RECORDED}</span>'
+              + (f" \u2014 {esc(m.get('name'))}" if text(m.get("name")) else "")),
+             (edge_word, (fmt(m.get("potential_v_nhe")) + " V vs NHE") if text(m.get("potential_v_nhe")) else
+              NOT_RECORDED)]
+    if text(m.get("type")):
+        items.append(("Type", "n-type (electron injection)" if m.get("type") == "n" else "p-type (hole injection)"))
+    if text(m.get("conditions")):
+        items.append(("Conditions", esc(shorten(text(m.get("conditions")), 200))))
+    if text(m.get("conversion")):
+        items.append(("Converted", esc(m.get("conversion"))))
+    items.append(("Source", esc(source) or NOT_RECORDED))
+    if m.get("from_memory") is True:
+        items.append(("Provenance", "value recalled from the literature, not read from the source \u2014 check it "
+                                    "before relying on absolute numbers"))
+    if text(m.get("notes")):
+        items.append(("Notes", f'<span class="small">{esc(shorten(text(m.get("notes")), 500))}</span>'))
+    return f'<section class="card" id="{ident}"><h3>{title}</h3>' + _dl(items) + "</section>"
+
+
+def _model_card(meta: dict) -> str:
+    m = get(meta, "model", default={}) or {}
+    items = [
+        ("Photon-to-current", fmt(m.get("photon_to_current"), 2) + " above E\u2080\u208b\u2080"),
+        ("Fill factor", fmt(m.get("ff"), 2)),
+        ("V<sub>oc</sub> loss", fmt(m.get("voc_loss_v"), 2) + " V below (mediator \u2212 band edge)"),
+        ("Injection threshold", fmt(m.get("min_drive_inj_ev"), 2) + " eV"),
+        ("Regeneration threshold", fmt(meta.get("regeneration_threshold_ev"), 2) + " eV"
+         + (" (this mediator\u2019s own)" if num(get(meta, "mediator", "min_drive_reg_ev")) ==
+            num(meta.get("regeneration_threshold_ev")) else "")),
+        ("Anchor required", "yes" if m.get("require_anchor") else "no"),
+        ("Spectrum", esc(m.get("spectrum")) or NOT_RECORDED),
+        ("Target", fmt(get(meta, "rank", "target_pce_pct"), 1) + " % PCE; "
+         + esc(get(meta, "rank", "n_samples", default="")) + " Monte-Carlo samples"),
+    ]
+    cal = get(meta, "calibration", default=None)
+    if isinstance(cal, dict) and cal:
+        for key, label in (("e_ox", "E(S\u207a/S) model"), ("e00", "E\u2080\u208b\u2080 model")):
+            c = cal.get(key) or {}
+            if c:
+                unit = c.get("unit", "")
+                items.append((label, f"{esc(' + '.join(c.get('features', [])))}; n = {esc(c.get('n'))}; "
+                                     f"LOO MAE {fmt(c.get('loo_mae'), 3)} {esc(unit)} (constant model "
+                                     f"{fmt(c.get('baseline_loo_mae'), 3)} {esc(unit)})"))
+    else:
+        items.append(("Calibration", "measured potentials from the input file (no dye model)"))
+    return '<section class="card" id="card-model"><h3>Cell model and calibration</h3>' + _dl(items) + "</section>"
+
+
+def _flags_html(cell, meta: dict) -> str:
+    codes = codes_of(cell)
+    if not codes:
+        return '<span class="ok-note">no flags</span>'
+    settings = {"model": get(meta, "model", default={}) or {}, "calibration": get(meta, "calibration",
+                                                                                  default={}) or {}}
+    items = "".join(f'<li class="flag{" info" if c in INFO_FLAGS else ""}">{esc(describe(c, settings))}</li>'
+                    for c in codes)
+    return f'<ul class="flags">{items}</ul>'
+
+
+_HEADERS = [
+    ('E(S\u207a/S) <span class="unit">[V vs NHE]</span>', "e_ox_v_nhe"),
+    ('E\u2080\u208b\u2080 <span class="unit">[eV]</span>', "e00_ev"),
+    ('E(S\u207a/S*) <span class="unit">[V vs NHE]</span>', "e_ox_excited_v_nhe"),
+    ('\u0394<sub>inj</sub> <span class="unit">[eV]</span>', "drive_inj_ev"),
+    ('\u0394<sub>reg</sub> <span class="unit">[eV]</span>', "drive_reg_ev"),
+    ('V<sub>oc</sub> <span class="unit">[V]</span>', "voc_v"),
+    ('J<sub>sc</sub> <span class="unit">[mA&#8239;cm<sup>\u22122</sup>]</span>', "jsc_ma_cm2"),
+    ('PCE <span class="unit">[%]</span>', "pce_pct"),
+]
+
+
+def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
+    target = fmt(get(meta, "rank", "target_pce_pct"), 1)
+    head = ['<th class="js-sort num-h" data-type="num">Rank</th>']
+    if drawings:
+        head.append("<th>Structure</th>")
+    head.append('<th class="js-sort">Dye</th>')
+    head += [f'<th class="js-sort num-h" data-type="num">{h}</th>' for h, _ in _HEADERS]
+    head += [f'<th class="js-sort num-h" data-type="num">P(PCE &gt; {target} %)</th>', "<th>Anchor</th>",
+             "<th>Viability and flags</th>"]
+    body = []
+    for _, r in rows.iterrows():
+        cells = [f'<td class="rank" data-value="{data_value(r.get("rank"))}">{esc(r.get("rank"))}</td>']
+        if drawings:
+            svg = molecule_svg(text(r.get("smiles")), text(r.get("id")))
+            cells.append(f'<td class="struct">{svg or "<span class=nostruct>no drawing</span>"}</td>')
+        name = text(r.get("name"))
+        cells.append(f'<td class="cand"><span class="cid">{esc(r.get("id"))}</span>'
+                     + (f'<span class="cname">{esc(name)}</span>' if name else "") + "</td>")
+        sig = {"e_ox_v_nhe": "e_ox_sigma_v", "e00_ev": "e00_sigma_ev", "pce_pct": "pce_sigma_pct"}
+        for _, col in _HEADERS:
+            val = r.get(col)
+            html = pm_html(val, r.get(sig[col]), 1 if col == "pce_pct" else 2) if col in sig else \
+                fmt(val, 1 if col == "jsc_ma_cm2" else 2)
+            cls = ' class="pce"' if col == "pce_pct" else ""
+            cells.append(f'<td{cls} data-value="{data_value(val)}">{html}</td>')
+        cells.append(f'<td data-value="{data_value(r.get("p_above_target"))}">{fmt(r.get("p_above_target"), 2)}</td>')
+        cells.append(f'<td class="extra">{esc(r.get("anchors")) or "none found"}</td>')
+        why = "" if truthy(r.get("viable")) else f'<p class="small">{esc(r.get("viability"))}</p>'
+        cells.append(f"<td>{why}{_flags_html(r.get('flags'), meta)}</td>")
+        body.append("<tr>" + "".join(cells) + "</tr>")
+    if not body:
+        span = len(head)
+        body.append(f'<tr><td class="empty" colspan="{span}">no dye</td></tr>')
+    return (f'<table id="{ident}" class="{"short" if drawings else "full"}"><thead><tr>{"".join(head)}</tr>'
+            f'</thead><tbody>{"".join(body)}</tbody></table>')
+
+
+def _not_ranked(table: pd.DataFrame) -> tuple[str, int]:
+    if table is None or not len(table) or "status" not in table:
+        return '<p class="quiet">Every input row was ranked.</p>', 0
+    rows = table[~table["status"].map(text).str.strip().str.lower().eq("ok")]
+    if not len(rows):
+        return '<p class="quiet">Every input row was ranked.</p>', 0
+    body = "".join(f'<tr><td class="cid">{esc(r.get("id"))}</td><td>{esc(r.get("status"))}</td>'
+                   f'<td class="notes-compact">{esc(r.get("error")) or NOT_RECORDED}</td>'
+                   f'<td><code class="smi">{esc(shorten(text(r.get("smiles")), 120))}</code></td></tr>'
+                   for _, r in rows.iterrows())
+    return ('<table id="not-ranked-table" class="full"><thead><tr><th>Id</th><th>Status</th><th>Reason</th>'
+            f"<th>SMILES</th></tr></thead><tbody>{body}</tbody></table>", len(rows))
+
+
+def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict) -> str:
+    """The dye-cell report page as one HTML5 string.
+
+    Parameters
+    ----------
+    ranking : pandas.DataFrame
+        From :func:`screen.dyecell.rank.rank_dyes` (best first).
+    table : pandas.DataFrame
+        The dye table (every input row, ``status`` and ``error``).
+    meta : dict
+        ``ranking.meta.json`` content; ``meta["created"]`` fixes the date line.
+
+    Examples
+    --------
+    >>> page = render_dyecell_report(pd.DataFrame(), pd.DataFrame(), {"created": "today"})
+    >>> page.startswith("<!DOCTYPE html>"), "Generated today" in page
+    (True, True)
+    """
+    meta = dict(meta or {})
+    ranking = ranking if ranking is not None else pd.DataFrame()
+    ox, med = get(meta, "oxide", default={}) or {}, get(meta, "mediator", default={}) or {}
+    created = text(meta.get("created")) or datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+    size = int(num(get(meta, "rank", "shortlist_size", default=10)) or 10)
+    passing = ranking[ranking["passes"].map(truthy)] if "passes" in ranking else ranking.iloc[0:0]
+    short = passing.head(size)
+    how = f"the {len(short)} best viable dye(s)"
+    if not len(short) and len(ranking):
+        short, how = ranking.head(min(size, DIAGRAM_MAX)), "no dye is viable; the best-ranked rows are shown"
+    n_pass = len(passing)
+    figure = dyecell_diagram_svg(short, meta)
+    unranked, n_unranked = _not_ranked(table)
+    title = f"dye cell: {text(ox.get('id'))} with {text(med.get('id'))}"
+    if len(ranking) and len(passing):
+        best = passing.iloc[0]
+        summary = (f"{len(ranking)} dye(s) ranked; {n_pass} viable. Best estimate: <strong>{esc(best.get('id'))}"
+                   f"</strong> at {pm_html(best.get('pce_pct'), best.get('pce_sigma_pct'), 1)} % PCE.")
+    else:
+        summary = f"{len(ranking)} dye(s) ranked; none is viable with this oxide and mediator."
+    counts = get(meta, "counts", default={}) or {}
+    strip = "".join(f'<div class="count"><span class="n">{esc(v)}</span><span class="what">{w}</span></div>'
+                    for v, w in ((counts.get("rows", len(table) if table is not None else 0), "input rows"),
+                                 (len(ranking), "ranked"), (n_pass, "viable"), (n_unranked, "not ranked")))
+    exports = "".join(f'<li><a href="{esc(f)}">{esc(f)}</a> \u2014 {esc(d)}</li>' for f, d in EXPORTS)
+    parts = [
+        "<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
+        '<meta name="viewport" content="width=device-width, initial-scale=1">',
+        f'<meta name="generator" content="dascreen {esc(__version__)}">', f"<title>dascreen {esc(title)}</title>",
+        f"<style>\n{static_text('report.css')}</style>", "</head>", "<body>", '<header class="top">',
+        '<h1><span class="mark">dascreen</span> \u00b7 dye-cell report</h1>',
+        f'<p class="sub">Sensitiser dyes on <strong>{esc(ox.get("id")) or NOT_RECORDED}</strong> with the mediator '
+        f'<strong>{esc(med.get("id")) or NOT_RECORDED}</strong></p>',
+        f'<p class="stamp">Generated {esc(created)} \u00b7 dascreen {esc(__version__)}</p>', "</header>", "<main>",
+        _CAUTION, f'<div class="counts">{strip}</div>',
+        '<h2 id="run"><span class="num">1</span>Run at a glance</h2>', '<div class="cards">',
+        _material_card(ox, "Oxide", "card-oxide", "Band edge"),
+        _material_card(med, "Mediator", "card-mediator", "Redox potential"), _model_card(meta), "</div>",
+        '<h2 id="shortlist"><span class="num">2</span>Shortlist for discussion</h2>',
+        f'<p class="summary">{summary}</p>',
+        f'<p class="quiet">Shown: {esc(how)}. Potentials in V vs NHE, value \u00b1 1\u03c3. '
+        "\u0394<sub>inj</sub> = E<sub>CB</sub> \u2212 E(S\u207a/S*), \u0394<sub>reg</sub> = E(S\u207a/S) \u2212 "
+        "E<sub>redox</sub> (n-type; both positive when downhill). Click a column header to sort.</p>",
+        f'<div class="tablewrap">{_table(short, meta, True, "shortlist-table")}</div>',
+        '<details id="all-ranked">', f"<summary>Every ranked dye ({len(ranking)} rows)</summary>",
+        f'<div class="tablewrap">{_table(ranking, meta, False, "full-table")}</div>', "</details>",
+        '<h2 id="figures"><span class="num">3</span>Energy diagram</h2>',
+        f'<figure class="levels" id="figure-dyecell">{figure}<figcaption><strong>Dye-cell energy diagram.</strong> '
+        f"Ground-state E(S\u207a/S) and excited-state E(S\u207a/S*) = E(S\u207a/S) \u2212 E\u2080\u208b\u2080/e of the "
+        f"first {min(len(short), DIAGRAM_MAX)} shown dye(s), numbered by rank, against the oxide\u2019s band edge and "
+        "the mediator\u2019s potential. More negative potentials (higher electron energies) are at the top; the right "
+        "axis gives the vacuum scale, \u2212e(E + 4.44 V). Arrows give the injection and regeneration driving forces "
+        "in eV (brick red: below the threshold).</figcaption></figure>",
+        f'<h2 id="not-ranked"><span class="num">4</span>Not ranked ({n_unranked})</h2>',
+        '<p class="quiet">Input rows that were rejected or whose computation failed, with the reason.</p>',
+        f'<div class="tablewrap">{unranked}</div>', "</main>", '<footer id="files">',
+        "<h3>Files beside this report</h3>", f"<ul>{exports}</ul>",
+        f"<p>Report written by dascreen {esc(__version__)}. The page is self-contained and works offline.</p>",
+        "</footer>", f"<script>\n{static_text('report.js')}</script>", "</body>", "</html>",
+    ]
+    return "\n".join(parts) + "\n"
+
+
+def write_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict, out_dir) -> Path:
+    """Write ``report.html`` and ``ranking.safe.csv`` (atomically, mode 0644) into ``out_dir``.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> out = write_dyecell_report(pd.DataFrame({"id": ["x"], "passes": [False]}), pd.DataFrame(),
+    ...                            {"created": "x"}, tempfile.mkdtemp())
+    >>> out.name, (out.parent / "ranking.safe.csv").exists()
+    ('report.html', True)
+    """
+    out_dir = Path(out_dir)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    page = render_dyecell_report(ranking, table, meta)
+    target = out_dir / "report.html"
+    with atomic_path(target) as tmp:
+        with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(page)
+        os.chmod(tmp, 0o644)
+    with atomic_path(out_dir / "ranking.safe.csv") as tmp:
+        safe_csv_frame(ranking if ranking is not None else pd.DataFrame()).to_csv(tmp, index=False,
+                                                                                 lineterminator="\n")
+        os.chmod(tmp, 0o644)
+    return target

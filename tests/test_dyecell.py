@@ -1,0 +1,270 @@
+"""Dye-cell mode: scales, library, anchors, physics, viability, sampling (fast, no engine).
+
+Numeric check values name their source; recalled values are marked ``# from memory``,
+rules of thumb ``# common practice``.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from screen.dyecell import scales
+from screen.dyecell.anchors import find_anchors
+from screen.dyecell.library import Material, resolve_mediator, resolve_oxide
+from screen.dyecell.model import DyeCellModel, evaluate, sample_pce
+from screen.dyecell.rank import dyes_from_file, rank_dyes
+from screen.errors import ConfigError, InputError, ScaleMismatchError
+from screen.spectrum import sq_limit
+
+
+def _oxide(edge, typ="n", ident="test-oxide"):
+    return Material(id=ident, name=ident, role="oxide", potential_v_nhe=edge, type=typ, slug=ident)
+
+
+def _mediator(e, thr=math.nan, ident="test-mediator"):
+    return Material(id=ident, name=ident, role="mediator", potential_v_nhe=e, min_drive_reg_ev=thr, slug=ident)
+
+
+# --------------------------------------------------------------------------- scales
+
+def test_absolute_nhe_potential():
+    # Trasatti, Pure Appl. Chem. 58 (1986) 955, doi 10.1351/pac198658070955: E_abs(NHE) = 4.44 ± 0.02 V
+    assert scales.vacuum_ev_from_nhe(0.0) == pytest.approx(-4.44, abs=1e-12)
+    # round trip and sign: a couple 1 V more positive holds its electrons 1 eV deeper
+    assert scales.nhe_from_vacuum_ev(scales.vacuum_ev_from_nhe(0.83)) == pytest.approx(0.83)
+    assert scales.vacuum_ev_from_nhe(1.0) - scales.vacuum_ev_from_nhe(0.0) == pytest.approx(-1.0)
+
+
+def test_ferrocene_vs_nhe_in_acetonitrile():
+    # Pavlishchuk and Addison, Inorg. Chim. Acta 298 (2000) 97, doi 10.1016/S0020-1693(99)00407-7:
+    # Fc+/Fc = +0.40 V vs aqueous SCE in MeCN  # from memory
+    # SCE = +0.241 V vs NHE (Bard and Faulkner, Electrochemical Methods, 2nd ed., 2001)
+    expected = 0.40 + 0.241
+    assert scales.fc_vs_nhe_v("acetonitrile") == pytest.approx(expected, abs=0.02)
+    # the same couple on the vacuum scale sits near the −5.1 eV of Cardona et al., Adv. Mater. 23 (2011) 2367,
+    # doi 10.1002/adma.201004554  # from memory
+    assert scales.vacuum_ev_from_nhe(scales.fc_vs_nhe_v("MeCN")) == pytest.approx(-5.1, abs=0.05)
+
+
+def test_fc_offset_depends_on_solvent_and_unknown_solvent_refused():
+    # Connelly and Geiger, Chem. Rev. 96 (1996) 877, doi 10.1021/cr940053x: Fc+/Fc vs SCE is 0.40 V in MeCN
+    # and 0.46 V in CH2Cl2  # from memory
+    diff = scales.fc_vs_nhe_v("CH2Cl2") - scales.fc_vs_nhe_v("acetonitrile")
+    assert diff == pytest.approx(0.46 - 0.40, abs=0.02)
+    with pytest.raises(InputError, match="no Fc\\+/Fc potential"):
+        scales.fc_vs_nhe_v("water")
+
+
+def test_reference_electrode_conversion():
+    # SCE = +0.241 V vs SHE at 25 °C (Bard and Faulkner, Electrochemical Methods, 2nd ed., 2001)
+    assert scales.to_nhe(0.78, "SCE") == pytest.approx(0.78 + 0.241)
+    assert scales.from_nhe(scales.to_nhe(0.5, "Fc", "DMF"), "Fc", "DMF") == pytest.approx(0.5)
+    with pytest.raises(InputError, match="unknown reference electrode"):
+        scales.to_nhe(0.1, "Hg/HgO")
+
+
+def test_scales_are_not_mixed():
+    with pytest.raises(ScaleMismatchError, match="'film'"):
+        scales.require_scale(["electrochemical", "film"], "levels.csv")
+    frame = pd.DataFrame({"id": ["d"], "homo_ev": [-5.3], "lumo_ev": [-3.2], "gap_opt_ev": [2.0], "scale": ["film"]})
+    with pytest.raises(ScaleMismatchError, match="vacuum-scale levels"):
+        dyes_from_file(frame)
+    wrong = pd.DataFrame({"id": ["d"], "e_ox_v_nhe": [1.0], "e00_ev": [2.0], "scale": ["gas"]})
+    with pytest.raises(ScaleMismatchError):
+        dyes_from_file(wrong)
+
+
+# --------------------------------------------------------------------------- library
+
+def test_library_and_user_files(tmp_path):
+    assert resolve_oxide("TiO2-Anatase").type == "n"
+    assert resolve_oxide("nio").type == "p"
+    with pytest.raises(InputError, match="Library ids: .*tio2-anatase"):
+        resolve_oxide("no-such-oxide")
+    # a mediator measured vs SCE: 0.30 V vs SCE + 0.241 V (Bard and Faulkner 2001) = 0.541 V vs NHE
+    f = tmp_path / "my couple.csv"
+    f.write_text("id,e_redox_v,reference,min_drive_reg_ev\nmy couple,0.30,SCE,0.15\n")
+    med = resolve_mediator(str(f))
+    assert med.potential_v_nhe == pytest.approx(0.541)
+    assert med.min_drive_reg_ev == 0.15
+    assert med.slug.startswith("file-my-couple-") and " " not in med.slug
+    # an oxide given on the vacuum scale: −4.0 eV → −4.0 = −(E + 4.44) → E = −0.44 V (Trasatti 1986)
+    g = tmp_path / "ox.csv"
+    g.write_text("id,band_edge_ev\nmy-oxide,-4.0\n")
+    assert resolve_oxide(str(g)).potential_v_nhe == pytest.approx(-0.44)
+    bad = tmp_path / "bad.csv"
+    bad.write_text("id,band_edge_v_nhe,band_edge_ev\nx,-0.5,-4.0\n")
+    with pytest.raises(InputError, match="exactly one of"):
+        resolve_oxide(str(bad))
+
+
+# --------------------------------------------------------------------------- anchors
+
+@pytest.mark.parametrize("smiles, expected", [
+    ("OC(=O)C(C#N)=Cc1ccc(N(c2ccccc2)c2ccccc2)cc1", ["cyanoacrylic acid"]),     # L0 type dye
+    ("OC(=O)CN1C(=O)C(=Cc2ccc(C)cc2)SC1=S", ["rhodanine-3-acetic acid"]),
+    ("O=P(O)(O)c1ccccc1", ["phosphonic acid"]),
+    ("Oc1ccccc1O", ["catechol"]),
+    ("O=C(O)c1ccccc1O", ["salicylate"]),
+    ("O=C(NO)c1ccccc1", ["hydroxamic acid"]),
+    ("OC(=O)c1ccc(N(C)C)cc1", ["carboxylic acid"]),
+    ("c1ccc(-c2ccncc2)cc1", ["pyridine"]),
+    ("C[Si](O)(C)c1ccccc1", ["silanol"]),
+])
+def test_anchor_positive(smiles, expected):
+    assert find_anchors(smiles) == expected
+
+
+@pytest.mark.parametrize("smiles", [
+    "N#CC(C#N)=Cc1ccc(N(c2ccccc2)c2ccccc2)cc1",   # dicyanovinyl acceptor, no anchor
+    "CCOC(=O)c1ccccc1",                           # ester
+    "NC(=O)c1ccccc1",                             # amide
+    "c1ccc2nsnc2c1",                              # benzothiadiazole nitrogens are not pyridine
+    "COc1ccccc1OC",                               # veratrole (ethers)
+    "Sc1ccccc1",                                  # thiol
+])
+def test_anchor_negative(smiles):
+    assert find_anchors(smiles) == []
+
+
+def test_dye_without_anchor_is_flagged_and_gets_no_pce():
+    dyes = dyes_from_file(pd.DataFrame({
+        "id": ["anchored", "bare"], "e_ox_v_nhe": [1.05, 1.05], "e00_ev": [2.0, 2.0],
+        "smiles": ["OC(=O)C(C#N)=Cc1ccc(N(c2ccccc2)c2ccccc2)s1", "N#CC(C#N)=Cc1ccc(N(c2ccccc2)c2ccccc2)s1"]}))
+    r = rank_dyes(dyes, resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3")).set_index("id")
+    assert "no_anchor" in r.loc["bare", "flags"].split(";")
+    assert not r.loc["bare", "viable"] and not r.loc["bare", "passes"]
+    assert math.isnan(r.loc["bare", "pce_pct"])
+    assert "no anchoring group" in r.loc["bare", "viability"]
+    assert r.loc["anchored", "passes"] and r.loc["anchored", "flags"] == ""
+    # without the requirement the same dye is viable
+    r2 = rank_dyes(dyes, resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3"),
+                   DyeCellModel(require_anchor=False)).set_index("id")
+    assert r2.loc["bare", "viable"]
+
+
+# --------------------------------------------------------------------------- physics
+
+def test_worked_case_published_dye():
+    # L1 (triphenylamine–thiophene–cyanoacrylic acid): E(S+/S) = 1.10 V vs NHE, E0-0 = 2.49 eV
+    # (Hagberg et al., J. Org. Chem. 72 (2007) 9550, doi 10.1021/jo701592x)  # from memory
+    # anatase conduction band −0.5 V vs NHE (Hagfeldt and Grätzel, Chem. Rev. 95 (1995) 49)  # from memory
+    # I3-/I- 0.35 V vs NHE (Yum et al., Nat. Commun. 3 (2012) 631, doi 10.1038/ncomms1655)
+    out = evaluate(DyeCellModel(), 1.10, 2.49, _oxide(-0.5), _mediator(0.35))
+    assert out["e_ox_excited_v_nhe"][0] == pytest.approx(1.10 - 2.49)          # −1.39 V vs NHE
+    assert out["drive_inj_ev"][0] == pytest.approx(-0.5 - (1.10 - 2.49))       # 0.89 eV downhill
+    assert out["drive_reg_ev"][0] == pytest.approx(1.10 - 0.35)                # 0.75 eV downhill
+    assert out["viable"][0]
+    # Voc = E_redox − E_CB − loss = 0.35 + 0.5 − 0.2 = 0.65 V with the default 0.2 V loss  # common practice
+    assert out["voc_v"][0] == pytest.approx(0.65)
+
+
+def test_iodide_needs_its_own_regeneration_threshold():
+    # Boschloo and Hagfeldt, Acc. Chem. Res. 42 (2009) 1819, doi 10.1021/ar900138m: regeneration by I3-/I- goes
+    # through I2•-/I-, so ~0.5 eV driving force is needed  # from memory
+    strict, loose = _mediator(0.35, thr=0.5), _mediator(0.35)
+    e_ox = 0.35 + 0.3  # 0.3 eV regeneration driving force
+    assert evaluate(DyeCellModel(), e_ox, 2.0, _oxide(-0.5), loose)["viable"][0]
+    out = evaluate(DyeCellModel(), e_ox, 2.0, _oxide(-0.5), strict)
+    assert not out["viable"][0] and out["flags"][0] == "regeneration_low"
+    assert "needs \u2265 0.50 eV" in out["viability"][0]
+
+
+def test_excited_state_below_conduction_band_is_not_viable():
+    # E(S+/S*) = 1.2 − 1.5 = −0.3 V vs NHE lies 0.2 eV below (more positive than) a −0.5 V band edge
+    out = evaluate(DyeCellModel(), 1.2, 1.5, _oxide(-0.5), _mediator(0.56))
+    assert not out["viable"][0]
+    assert out["flags"][0] == "injection_low"
+    assert all(math.isnan(out[k][0]) for k in ("voc_v", "jsc_ma_cm2", "pce_pct"))
+    assert "cannot inject" in out["viability"][0] and "0.20 eV below" in out["viability"][0]
+
+
+def test_ground_state_above_mediator_is_not_viable():
+    # E(S+/S) = 0.45 V vs NHE is more negative than the 0.56 V mediator: the oxidised dye cannot take an electron
+    out = evaluate(DyeCellModel(), 0.45, 2.0, _oxide(-0.5), _mediator(0.56))
+    assert not out["viable"][0] and out["flags"][0] == "regeneration_low"
+    assert math.isnan(out["pce_pct"][0])
+    assert "cannot be regenerated" in out["viability"][0]
+
+
+def test_mediator_beyond_band_edge_gives_no_photovoltage():
+    out = evaluate(DyeCellModel(), 1.5, 3.0, _oxide(0.3), _mediator(0.2))
+    assert not out["viable"][0] and "voc_nonpositive" in out["flags"][0]
+    assert math.isnan(out["voc_v"][0])
+
+
+def test_threshold_met_exactly_passes():
+    # drive_inj = −0.5 − (1.0 − 1.7) = 0.2 eV exactly (binary floating point must not fail it)
+    out = evaluate(DyeCellModel(), 1.0, 1.7, _oxide(-0.5), _mediator(0.8))
+    assert out["viable"][0]
+
+
+def test_never_above_detailed_balance():
+    # viability already keeps E_redox − E_CB below E00 − both thresholds; with zero thresholds, zero loss,
+    # FF = 1 and η = 1 the idealised numbers would exceed the limit: E00 = 1.95 eV, Voc would be 1.95 V
+    ideal = DyeCellModel(photon_to_current=1.0, ff=1.0, voc_loss_v=0.0, min_drive_inj_ev=0.0, min_drive_reg_ev=0.0)
+    out = evaluate(ideal, 0.95, 1.95, _oxide(-1.0), _mediator(0.95))
+    limit = sq_limit(1.95)
+    assert out["viable"][0] and "detailed_balance_cap" in out["flags"][0]
+    assert out["voc_v"][0] == pytest.approx(float(limit["voc_v"]))
+    assert out["pce_pct"][0] == pytest.approx(float(limit["pce_pct"]))
+    mc = sample_pce(ideal, 0.95, 1.95, _oxide(-1.0), _mediator(0.95), e00_sigma_ev=0.0, target_pct=0.0)
+    assert mc["pce_mean_pct"][0] == pytest.approx(float(limit["pce_pct"]), rel=1e-3)
+    # default model: far below the limit, no cap
+    assert "detailed_balance_cap" not in evaluate(DyeCellModel(), 1.1, 1.95, _oxide(-0.5), _mediator(0.56))["flags"][0]
+    # Rühle, Sol. Energy 130 (2016) 139, doi 10.1016/j.solener.2016.02.015: 33.7 % at 1.34 eV  # from memory
+    assert float(sq_limit(1.34)["pce_pct"]) == pytest.approx(33.7, abs=0.2)
+
+
+def test_jsc_from_photon_flux_above_e00():
+    # Jsc = η q Φ(E ≥ E00): with η = 1 it is the detailed-balance current at that gap (same spectrum)
+    out = evaluate(DyeCellModel(photon_to_current=1.0), 1.1, 1.9, _oxide(-0.5), _mediator(0.56))
+    assert out["jsc_ma_cm2"][0] == pytest.approx(float(sq_limit(1.9)["jsc_ma_cm2"]), rel=1e-9)
+    half = evaluate(DyeCellModel(photon_to_current=0.5), 1.1, 1.9, _oxide(-0.5), _mediator(0.56))
+    assert half["jsc_ma_cm2"][0] == pytest.approx(out["jsc_ma_cm2"][0] / 2)
+
+
+def test_p_type_cell():
+    # NiO valence band +0.5 V vs NHE (He et al., J. Phys. Chem. B 103 (1999) 8940)  # from memory
+    # P1 dye: E(S+/S) 1.44 V vs NHE, E0-0 2.26 eV (Qin et al., JACS 130 (2008) 8570, doi 10.1021/ja8001474)
+    # from memory; mediator I3-/I- 0.35 V
+    # NiO/iodide cells give ~0.1 V (common practice), so a 0.05 V loss here
+    out = evaluate(DyeCellModel(voc_loss_v=0.05), 1.44, 2.26, _oxide(0.5, "p"), _mediator(0.35))
+    assert out["drive_inj_ev"][0] == pytest.approx(1.44 - 0.5)                  # E(S*/S-) ≈ E(S+/S)
+    assert out["drive_reg_ev"][0] == pytest.approx(0.35 - (1.44 - 2.26))        # mediator − E(S/S-)
+    assert out["voc_v"][0] == pytest.approx(0.5 - 0.35 - 0.05)
+    assert "p_type_estimate" in out["flags"][0] and out["viable"][0]
+
+
+def test_model_parameters_validated():
+    with pytest.raises(ConfigError, match="photon_to_current"):
+        DyeCellModel(photon_to_current=0.0)
+    with pytest.raises(ConfigError, match="voc_loss_v"):
+        DyeCellModel(voc_loss_v=-0.1)
+
+
+# --------------------------------------------------------------------------- Monte-Carlo
+
+def test_sampling_zero_sigma_matches_deterministic_and_is_independent_of_others():
+    ox, med = _oxide(-0.5), _mediator(0.56)
+    det = evaluate(DyeCellModel(), [1.05, 1.10], [2.0, 2.2], ox, med)
+    mc = sample_pce(DyeCellModel(), [1.05, 1.10], [2.0, 2.2], ox, med, target_pct=5.0)
+    np.testing.assert_allclose(mc["pce_mean_pct"], det["pce_pct"], rtol=1e-4)
+    np.testing.assert_allclose(mc["pce_sigma_pct"], 0.0, atol=1e-9)
+    assert mc["p_above_target"].tolist() == [float(p > 5.0) for p in det["pce_pct"]]
+    one = sample_pce(DyeCellModel(), 1.05, 2.0, ox, med, e_ox_sigma_v=0.1, e00_sigma_ev=0.1)
+    two = sample_pce(DyeCellModel(), [0.7, 1.05], [2.4, 2.0], ox, med, e_ox_sigma_v=[0.05, 0.1], e00_sigma_ev=0.1)
+    assert one["pce_sigma_pct"][0] == two["pce_sigma_pct"][1]
+    assert one["p_above_target"][0] == two["p_above_target"][1]
+
+
+def test_sampling_probability_of_viability_near_threshold():
+    # drive_reg = 0.76 − 0.56 = 0.20 eV exactly at the threshold; with σ = 0.1 V half the samples regenerate
+    mc = sample_pce(DyeCellModel(), 0.76, 2.0, _oxide(-0.5), _mediator(0.56), e_ox_sigma_v=0.1, n_samples=4000)
+    assert mc["p_viable"][0] == pytest.approx(0.5, abs=0.05)
+    with pytest.raises(ValueError, match="σ"):
+        sample_pce(DyeCellModel(), 1.0, 2.0, _oxide(-0.5), _mediator(0.56), e_ox_sigma_v=-0.1)

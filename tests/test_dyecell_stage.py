@@ -1,0 +1,189 @@
+"""Dye-cell calibration, stage files and report (synthetic levels; no engine).
+
+Numeric check values name their source; recalled values are marked ``# from memory``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from screen.dyecell import calibrate as dcal
+from screen.dyecell.rank import RANKING_COLUMNS, dye_table
+from screen.dyecell.stage import build_dye_table, run_dyecell
+from screen.errors import ConfigError
+
+ROOT = Path(__file__).resolve().parents[1]
+PID = "test-protocol-00000000"
+
+
+def _raw(ip, ea, gap, homo=None):
+    return {"xtb_ip_ev": ip, "xtb_ea_ev": ea, "xtb_homo_ev": -ip + 1.8 if homo is None else homo,
+            "xtb_lumo_ev": -ea - 2.5, "xtb_gap_ev": gap}
+
+
+def _synthetic_reference(tmp_path: Path, n: int = 14, noise: float = 0.0):
+    """Reference file and computed levels with e_ox = 0.5·IP − 4.6 and E00 = 0.3·(IP − EA) + 0.9 (+ noise)."""
+    rng = np.random.default_rng(7)
+    rows, comp = [], []
+    for i in range(n):
+        smi = "OC(=O)" + "C" * (i + 1) + "c1ccccc1"
+        ip, ea = 10.8 + 0.1 * i, 5.0 + 0.05 * (i % 5)
+        rows.append({"name": f"ref{i}", "smiles": smi, "e_ox_v_nhe": 0.5 * ip - 4.6 + noise * rng.normal(),
+                     "e00_ev": 0.3 * (ip - ea) + 0.9 + noise * rng.normal(), "exclude_reason": ""})
+        comp.append({"id": f"r{i}", "smiles": smi, "status": "ok", **_raw(ip, ea, 1.0 + 0.03 * i)})
+    rows.append({"name": "excluded", "smiles": "c1ccccc1O", "e_ox_v_nhe": 3.0, "e00_ev": 9.0,
+                 "exclude_reason": "test row"})
+    ref = tmp_path / "dyes_ref.csv"
+    pd.DataFrame(rows).to_csv(ref, index=False)
+    return ref, pd.DataFrame(comp)
+
+
+def _install(tmp_path: Path, noise: float = 0.0) -> Path:
+    ref, comp = _synthetic_reference(tmp_path, noise=noise)
+    models = dcal.fit_models(comp, ref, protocol_id=PID, engine_version="0.8")
+    return dcal.save_models(models, tmp_path / "models")
+
+
+def _levels(tmp_path: Path, rows: list[dict], pid: str = PID) -> Path:
+    path = tmp_path / "levels.csv"
+    pd.DataFrame(rows).to_csv(path, index=False)
+    Path(f"{path}.meta.json").write_text(json.dumps({"protocol_id": pid}))
+    return path
+
+
+def _demo_rows():
+    return [
+        {"id": "good", "name": "anchored", "smiles": "OC(=O)C(C#N)=Cc1ccc(N(c2ccccc2)c2ccccc2)s1", "status": "ok",
+         **_raw(11.2, 5.1, 1.1)},
+        {"id": "bare", "smiles": "N#CC(C#N)=Cc1ccc(N(c2ccccc2)c2ccccc2)s1", "status": "ok", **_raw(11.2, 5.1, 1.1)},
+        {"id": "zinc", "smiles": "OC(=O)c1ccc(cc1)[Zn]c1ccccc1", "status": "ok", **_raw(11.0, 5.0, 1.0)},
+        {"id": "bad", "smiles": "xx", "status": "rejected", "error": "SMILES does not parse",
+         **{k: np.nan for k in _raw(1, 1, 1)}},
+    ]
+
+
+# --------------------------------------------------------------------------- calibration
+
+def test_fit_recovers_linear_relation_and_skips_excluded(tmp_path):
+    ref, comp = _synthetic_reference(tmp_path)
+    models = dcal.fit_models(comp, ref, protocol_id=PID)
+    e_ox, e00 = models["e_ox"], models["e00"]
+    assert e_ox["model"]["features"] == ["xtb_ip_ev"]
+    assert e_ox["model"]["coef"][0] == pytest.approx(0.5, abs=1e-9)
+    assert e_ox["model"]["intercept"] == pytest.approx(-4.6, abs=1e-8)
+    assert e00["model"]["features"] == ["xtb_fund_ev"]           # the set that carries the relation
+    assert e_ox["n"] == 14 and e_ox["loo_mae"] == pytest.approx(0.0, abs=1e-9)
+    assert e_ox["baseline_loo_mae"] > 0.1                        # the constant model is much worse
+    assert "excluded" not in {r["name"] for r in e_ox["residuals"]}
+    assert set(e_ox["elements"]) == {"C", "H", "O"}
+
+
+def test_nested_loo_is_not_better_than_selection_loo(tmp_path):
+    ref, comp = _synthetic_reference(tmp_path, noise=0.05)
+    m = dcal.fit_models(comp, ref, protocol_id=PID)["e00"]
+    assert m["loo_mae"] >= m["selection_loo_mae"] - 1e-12
+    assert sum(m["nested_selection"].values()) == m["n"]
+
+
+def test_models_of_another_protocol_are_refused(tmp_path):
+    root = _install(tmp_path).parent
+    assert set(dcal.load_models(PID, root)) == {"e_ox", "e00"}
+    with pytest.raises(ConfigError, match="missing"):
+        dcal.load_models("other-protocol", root)
+    folder = root / PID
+    with pytest.raises(ConfigError, match="fitted for protocol"):
+        dcal.load_models("other-protocol", folder=folder)
+
+
+def test_apply_models_needs_the_features(tmp_path):
+    models = dcal.load_models(PID, _install(tmp_path).parent)
+    with pytest.raises(ConfigError, match="needs levels column"):
+        dcal.apply_models(pd.DataFrame({"status": ["ok"], "xtb_gap_ev": [1.0]}), models)
+
+
+# --------------------------------------------------------------------------- dye table and stage
+
+def test_dye_table_rejects_metal_and_keeps_failed_rows(tmp_path):
+    models = dcal.load_models(PID, _install(tmp_path).parent)
+    table = dye_table(pd.DataFrame(_demo_rows()), models).set_index("id")
+    assert table.loc["zinc", "status"] == "rejected"
+    assert "contains Zn" in table.loc["zinc", "error"] and "not ranked" in table.loc["zinc", "error"]
+    assert table.loc["bad", "status"] == "rejected" and table.loc["bad", "error"] == "SMILES does not parse"
+    assert table.loc["good", "scale"] == "electrochemical"
+    # E(S+/S) from the synthetic model: 0.5·11.2 − 4.6 = 1.0 V vs NHE
+    assert table.loc["good", "e_ox_v_nhe"] == pytest.approx(1.0, abs=1e-3)
+    assert table.loc["good", "anchors"] == "cyanoacrylic acid" and not table.loc["bare", "anchored"]
+    # sulfur and nitrogen are not in the synthetic calibration set: an informational flag, not a rejection
+    assert table.loc["good", "uncalibrated_elements"] == "N S"
+
+
+def test_stage_writes_ranking_folder_and_reuses_dye_table(tmp_path):
+    folder = _install(tmp_path)
+    levels = _levels(tmp_path, _demo_rows())
+    out = tmp_path / "out"
+    path = run_dyecell(levels, out, oxide="tio2-anatase", mediator="co-bpy3", models_root=folder.parent,
+                       settings={"n_samples": 200})
+    assert path == out / "dyecell" / "tio2-anatase--co-bpy3" / "ranking.csv"
+    ranking = pd.read_csv(path, keep_default_na=False)
+    assert list(ranking.columns[: len(RANKING_COLUMNS)]) == RANKING_COLUMNS
+    assert ranking["id"].tolist() == ["good", "bare"]
+    assert ranking.loc[1, "flags"].split(";")[0] == "no_anchor" and ranking.loc[1, "pce_pct"] == ""
+    meta = json.loads((path.parent / "ranking.meta.json").read_text())
+    assert meta["counts"]["not_ranked"] == {"rejected": 2}
+    assert meta["oxide"]["id"] == "tio2-anatase" and meta["regeneration_threshold_ev"] == 0.2
+    for name in ("shortlist.sdf", "report.html", "ranking.safe.csv"):
+        assert (path.parent / name).is_file()
+    page = (path.parent / "report.html").read_text()
+    assert 'id="fig-dyecell"' in page and "contains Zn" in page and "http://" not in page.replace(
+        "http://www.w3.org", "")
+    stamp = (out / "dyecell" / "dyes.csv").stat().st_mtime_ns
+    run_dyecell(levels, out, oxide="tio2-anatase", mediator="iodide-triiodide", models_root=folder.parent,
+                settings={"n_samples": 200})
+    assert (out / "dyecell" / "dyes.csv").stat().st_mtime_ns == stamp      # cached, not recomputed
+    iodide = json.loads((out / "dyecell" / "tio2-anatase--iodide-triiodide" / "ranking.meta.json").read_text())
+    assert iodide["regeneration_threshold_ev"] == 0.5                       # the couple's own threshold
+
+
+def test_stage_refuses_levels_of_another_protocol(tmp_path):
+    folder = _install(tmp_path)
+    levels = _levels(tmp_path, _demo_rows(), pid="another-protocol-1")
+    with pytest.raises(ConfigError, match="refit"):
+        build_dye_table(levels, tmp_path / "out", models_root=folder.parent)
+
+
+def test_stage_accepts_measured_dye_file_and_escapes_text(tmp_path):
+    f = tmp_path / "measured.csv"
+    pd.DataFrame({"id": ["<b>x</b>", "=cmd"], "e_ox_v": [0.40, 0.45], "e_ox_reference": ["Fc", "Fc"],
+                  "solvent": ["acetonitrile", "DMF"], "e00_ev": [2.0, 2.1], "anchor": ["cyanoacrylic acid", ""],
+                  "smiles": ["", "OC(=O)c1ccccc1"]}).to_csv(f, index=False)
+    path = run_dyecell(f, tmp_path / "o", oxide="tio2-anatase", mediator="co-bpy3", settings={"n_samples": 100})
+    r = pd.read_csv(path, keep_default_na=False).set_index("id")
+    # 0.40 V vs Fc+/Fc in MeCN + 0.63 V (DSSC convention, Pavlishchuk and Addison 2000) = 1.03 V vs NHE
+    assert r.loc["<b>x</b>", "e_ox_v_nhe"] == pytest.approx(1.03)
+    page = (path.parent / "report.html").read_text()
+    assert "<b>x</b>" not in page and "&lt;b&gt;x&lt;/b&gt;" in page
+    safe = pd.read_csv(path.parent / "ranking.safe.csv", keep_default_na=False)
+    assert "'=cmd" in set(safe["id"])
+
+
+# --------------------------------------------------------------------------- shipped models
+
+def _shipped():
+    folders = sorted((ROOT / "models" / "dyecell").glob("*/e_ox.json"))
+    return [p.parent for p in folders]
+
+
+@pytest.mark.parametrize("folder", _shipped(), ids=lambda p: p.name)
+def test_shipped_models_meet_the_issue_targets(folder):
+    # targets of the dye-cell issue: LOO E(S+/S) MAE <= 0.15 V, E0-0 MAE <= 0.15 eV (nested LOO recorded)
+    models = dcal.load_models(None, folder=folder, reference=dcal.REFERENCE_FILE)
+    assert models["e_ox"]["n"] >= 30 and models["e00"]["n"] >= 30
+    assert models["e_ox"]["loo_mae"] <= 0.15
+    assert models["e00"]["loo_mae"] <= 0.15
+    assert not math.isnan(models["e_ox"]["baseline_loo_mae"])
