@@ -46,7 +46,8 @@ __all__ = ["ElectronicOptions", "vertical_levels", "run_electronic", "ELECTRONIC
 #: columns of the per-shard electronic table
 ELECTRONIC_COLUMNS = (["key", "status", "error"] + RAW_COLUMNS
                       + ["xtb_energy_eh", "xtb_cation_eh", "xtb_anion_eh", "scf_rungs", "n_atoms",
-                         "sp_wall_s", "smiles_computed", "truncated_chains", "n_conformers", "forcefield",
+                         "sp_wall_s", "smiles_computed", "truncated_chains", "truncated_groups", "n_conformers",
+                         "forcefield",
                          "geometry", "structure_wall_s"])
 
 

@@ -80,9 +80,11 @@ class StructureOptions:
     xtb_max_steps : int
         Optimiser step limit.
     truncate_side_chains : bool
-        Replace pendant alkyl chains of ``truncate_min_carbons`` or more carbons by methyl.
+        Shorten pendant saturated alkyl groups of ``truncate_min_carbons`` or more carbons to
+        their first branch point, every branch cut to methyl
+        (:func:`screen.structures.truncate_side_chains`); shorter groups stay as written.
     truncate_min_carbons : int
-        Shortest chain that is truncated.
+        Smallest group (carbon count) that is shortened.
     ranking_method : str
         xTB method for ranking conformers (GFN2-xTB).
     rank_max_conformers : int

@@ -2,9 +2,11 @@
 
 Route (every step seeded, so the same input gives the same geometry):
 
-1. optional truncation of long linear or branched alkyl side chains to methyl
-   (a common-practice simplification in screening: the chains barely change the
-   frontier levels of the conjugated core but multiply the conformer space);
+1. truncation of long pendant alkyl groups (on by default; :func:`truncate_side_chains`):
+   hexyl and longer groups keep their atoms up to the first branch point, with
+   every branch cut to methyl, while shorter groups stay as written (a
+   common-practice simplification: the chains barely change the frontier
+   levels of the conjugated core but multiply the conformer space);
 2. RDKit ETKDGv3 embedding of several conformers; the count grows with the
    number of rotatable bonds (:func:`conformer_count`);
 3. MMFF94 optimisation of every conformer (UFF when MMFF lacks parameters,
@@ -56,7 +58,8 @@ __all__ = [
 ]
 
 #: columns of the per-shard structures status table
-STATUS_COLUMNS = ["key", "status", "error", "smiles_computed", "truncated_chains", "n_conformers", "embedding",
+STATUS_COLUMNS = ["key", "status", "error", "smiles_computed", "truncated_chains", "truncated_groups", "n_conformers",
+                  "embedding",
                   "forcefield", "geometry", "xtb_rank_energy_eh", "opt_converged", "wall_s"]
 
 
@@ -75,64 +78,107 @@ def conformer_count(mol: Chem.Mol, options: StructureOptions = StructureOptions(
 
 
 def _alkyl_atom(atom: Chem.Atom) -> bool:
-    # acyclic sp3 carbon with at most one neighbour other than C/H (the attachment point)
+    # acyclic, uncharged sp3 carbon: a candidate member of a saturated alkyl group
     return (atom.GetAtomicNum() == 6 and not atom.IsInRing() and not atom.GetIsAromatic()
-            and atom.GetHybridization() == Chem.HybridizationType.SP3
-            and sum(n.GetAtomicNum() not in (1, 6) for n in atom.GetNeighbors()) <= 1)
+            and atom.GetFormalCharge() == 0 and atom.GetIsotope() == 0
+            and atom.GetHybridization() == Chem.HybridizationType.SP3)
 
 
-def truncate_side_chains(mol: Chem.Mol, min_carbons: int = 3) -> tuple[Chem.Mol, int]:
-    """Replace pendant saturated alkyl chains by methyl groups.
+def _pendant_groups(mol: Chem.Mol) -> list[tuple[int, set[int]]]:
+    """Pendant saturated alkyl groups as (root atom, member atoms).
 
-    A chain is a connected set of acyclic sp3 carbons, each with at most one
-    neighbour other than carbon or hydrogen, attached to the rest of the
-    molecule by exactly one bond. Chains
-    of at least ``min_carbons`` carbons keep only their first carbon.
-
-    Parameters
-    ----------
-    mol : rdkit.Chem.Mol
-        Molecule without explicit hydrogens.
-    min_carbons : int
-        Shortest chain to truncate.
-
-    Returns
-    -------
-    (rdkit.Chem.Mol, int)
-        The truncated molecule and the number of chains truncated.
-
-    Examples
-    --------
-    >>> m, n = truncate_side_chains(Chem.MolFromSmiles("CCCCCCc1ccsc1"))
-    >>> Chem.MolToSmiles(m), n
-    ('Cc1ccsc1', 1)
-    >>> Chem.MolToSmiles(truncate_side_chains(Chem.MolFromSmiles("CCCCC(CC)Cn1c2ccccc2c2ccccc21"))[0])
-    'Cn1c2ccccc2c2ccccc21'
+    A group is a connected set of acyclic sp3 carbons joined to the rest of the
+    molecule by exactly one bond (from its root); hydrogens aside it holds
+    nothing but carbon, so it is a pure alkyl substituent.
     """
     alkyl = {a.GetIdx() for a in mol.GetAtoms() if _alkyl_atom(a)}
     seen: set[int] = set()
-    to_remove: set[int] = set()
-    n_chains = 0
+    groups = []
     for start in sorted(alkyl):
         if start in seen:
             continue
         comp, stack = set(), [start]
         while stack:
             i = stack.pop()
-            if i in comp:
-                continue
-            comp.add(i)
-            stack.extend(n.GetIdx() for n in mol.GetAtomWithIdx(i).GetNeighbors() if n.GetIdx() in alkyl)
+            if i not in comp:
+                comp.add(i)
+                stack.extend(n.GetIdx() for n in mol.GetAtomWithIdx(i).GetNeighbors() if n.GetIdx() in alkyl)
         seen |= comp
-        anchors = [(i, n.GetIdx()) for i in comp for n in mol.GetAtomWithIdx(i).GetNeighbors()
+        anchors = [i for i in comp for n in mol.GetAtomWithIdx(i).GetNeighbors()
                    if n.GetIdx() not in comp and n.GetAtomicNum() > 1]
-        if len(anchors) != 1 or len(comp) < min_carbons:
+        if len(anchors) == 1:
+            groups.append((anchors[0], comp))
+    return groups
+
+
+def _kept_part(mol: Chem.Mol, root: int, comp: set[int]) -> set[int]:
+    """Atoms of a group that truncation keeps: the path to its first branch point plus one carbon per branch."""
+    path, prev, cur = [root], -1, root
+    while True:
+        children = [n.GetIdx() for n in mol.GetAtomWithIdx(cur).GetNeighbors()
+                    if n.GetIdx() in comp and n.GetIdx() != prev]
+        if not children:  # reached the end without a branch: a linear chain becomes methyl
+            return {root}
+        if len(children) > 1:  # first branch point: every branch cut to methyl
+            return set(path) | set(children)
+        prev, cur = cur, children[0]
+        path.append(cur)
+
+
+def _formula(n_c: int) -> str:
+    return f"C{n_c}H{2 * n_c + 1}" if n_c > 1 else "CH3"
+
+
+def truncate_side_chains(mol: Chem.Mol, min_carbons: int = 6) -> tuple[Chem.Mol, list[str]]:
+    """Shorten long pendant saturated alkyl groups without merging distinct short substituents.
+
+    Only a pendant saturated alkyl group (acyclic sp3 carbons, pure hydrocarbon,
+    one bond to the rest of the molecule) of at least ``min_carbons`` carbons is
+    cut: it keeps its atoms up to and including its first branch point, and
+    every branch there is cut to methyl. A linear chain becomes methyl
+    (n-hexyl → methyl), 2-ethylhexyl and 2-octyldodecyl become 2-methylpropyl.
+    Groups shorter than ``min_carbons`` stay as written, so the methyl,
+    isopropyl, tert-butyl and tert-amyl versions of one molecule remain four
+    different structures. Long-chain variants that differ only beyond their
+    first branch point (hexyl/octyl, 2-ethylhexyl/2-butyloctyl) deliberately
+    share one computed structure: that is the saving, and ``smiles_computed``
+    records it.
+
+    Parameters
+    ----------
+    mol : rdkit.Chem.Mol
+        Molecule without explicit hydrogens.
+    min_carbons : int
+        Smallest group (carbon count) that is cut (6 by default: hexyl and longer).
+
+    Returns
+    -------
+    (rdkit.Chem.Mol, list of str)
+        The truncated molecule and one record per cut group, e.g. ``"C8H17->C4H9"``.
+
+    Examples
+    --------
+    >>> m, cuts = truncate_side_chains(Chem.MolFromSmiles("CCCCCCc1ccsc1"))
+    >>> Chem.MolToSmiles(m), cuts
+    ('Cc1ccsc1', ['C6H13->CH3'])
+    >>> m, cuts = truncate_side_chains(Chem.MolFromSmiles("CCCCC(CC)Cn1c2ccccc2c2ccccc21"))
+    >>> Chem.MolToSmiles(m), cuts
+    ('CC(C)Cn1c2ccccc2c2ccccc21', ['C8H17->C4H9'])
+    >>> truncate_side_chains(Chem.MolFromSmiles("CCC(C)(C)c1ccsc1"))[1]
+    []
+    """
+    to_remove: set[int] = set()
+    cuts = []
+    for root, comp in _pendant_groups(mol):
+        if len(comp) < min_carbons:
             continue
-        keep = anchors[0][0]
-        to_remove |= comp - {keep}
-        n_chains += 1
+        keep = _kept_part(mol, root, comp)
+        if keep == comp:
+            continue
+        to_remove |= comp - keep
+        cuts.append(f"{_formula(len(comp))}->{_formula(len(keep))}")
     if not to_remove:
-        return Chem.Mol(mol), 0
+        return Chem.Mol(mol), []
     rw = Chem.RWMol(mol)
     for idx in sorted(to_remove, reverse=True):
         rw.RemoveAtom(idx)
@@ -141,7 +187,8 @@ def truncate_side_chains(mol: Chem.Mol, min_carbons: int = 3) -> tuple[Chem.Mol,
         atom.SetNoImplicit(False)
         atom.SetNumExplicitHs(0)
     Chem.SanitizeMol(out)
-    return out, n_chains
+    Chem.AssignStereochemistry(out, cleanIt=True, force=True)  # a cut branch point is no longer a stereocentre
+    return out, cuts
 
 
 #: cycle rank (independent rings) from which a molecule is embedded as a cage
@@ -247,9 +294,9 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     mol = Chem.MolFromSmiles(smiles)
     if mol is None:
         raise ValueError(f"SMILES does not parse: {smiles!r}")
-    n_trunc = 0
+    cuts: list[str] = []
     if options.truncate_side_chains:
-        mol, n_trunc = truncate_side_chains(mol, options.truncate_min_carbons)
+        mol, cuts = truncate_side_chains(mol, options.truncate_min_carbons)
     smiles_computed = Chem.MolToSmiles(mol)
     mol_h = Chem.AddHs(mol)
     n_conf = conformer_count(mol, options)
@@ -292,7 +339,8 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
             raise EngineError(f"xTB geometry optimisation did not converge in {options.xtb_max_steps} steps")
     info = {
         "smiles_computed": smiles_computed,
-        "truncated_chains": n_trunc,
+        "truncated_chains": len(cuts),
+        "truncated_groups": ";".join(cuts),
         "n_conformers": len(ids),
         "n_ranked": len(ranked),
         "embedding": embedding,
@@ -394,7 +442,8 @@ def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = Stru
                 continue
             mol = Chem.MolFromMolBlock(rec["molblock"], removeHs=False)
             mol.SetProp("_Name", key)
-            for prop in ("smiles_computed", "forcefield", "geometry", "n_conformers", "truncated_chains"):
+            for prop in ("smiles_computed", "forcefield", "geometry", "n_conformers", "truncated_chains",
+                         "truncated_groups"):
                 mol.SetProp(f"dascreen_{prop}", str(rec[prop]))
             writer.write(mol)
         writer.close()

@@ -42,22 +42,42 @@ def test_no_forcefield_falls_back_to_xtb_geometry():
     assert rdMolTransforms.GetBondLength(mol.GetConformer(), se, c) == pytest.approx(1.86, abs=0.08)
 
 
-@pytest.mark.parametrize("smiles,expected,n", [
-    ("CCCCCCc1ccsc1", "Cc1ccsc1", 1),
-    ("CCCCC(CC)Cn1c2ccccc2c2ccccc21", "Cn1c2ccccc2c2ccccc21", 1),
-    ("CCc1ccsc1", "CCc1ccsc1", 0),             # ethyl is shorter than the 3-carbon threshold
-    ("CCOC(=O)c1ccccc1", "CCOC(=O)c1ccccc1", 0),  # ester alkoxy: kept
+@pytest.mark.parametrize("smiles,expected,cuts", [
+    ("CCCCCCc1ccsc1", "Cc1ccsc1", ["C6H13->CH3"]),                        # n-hexyl -> methyl
+    ("CCCCC(CC)Cn1c2ccccc2c2ccccc21", "CC(C)Cn1c2ccccc2c2ccccc21", ["C8H17->C4H9"]),  # 2-ethylhexyl
+    ("CCCCCCCCCCC(CCCCCCCC)Cc1ccsc1", "CC(C)Cc1ccsc1", ["C20H41->C4H9"]),  # 2-octyldodecyl
+    ("CCCCCc1ccsc1", "CCCCCc1ccsc1", []),           # pentyl: shorter than 6 carbons, kept as written
+    ("CCOC(=O)c1ccccc1", "CCOC(=O)c1ccccc1", []),   # ester alkoxy: kept
+    ("CCCCCCCCOc1ccccc1", "COc1ccccc1", ["C8H17->CH3"]),  # octyloxy: the alkyl part is cut
+    ("OCCCCCCCc1ccccc1", "OCCCCCCCc1ccccc1", []),   # not a pure alkyl group (bonded twice): kept
+    ("CCCCCCCC", "CCCCCCCC", []),                   # a whole alkane is not a side chain
 ])
-def test_truncate_side_chains(smiles, expected, n):
-    mol, count = truncate_side_chains(Chem.MolFromSmiles(smiles))
+def test_truncate_side_chains(smiles, expected, cuts):
+    mol, done = truncate_side_chains(Chem.MolFromSmiles(smiles))
     assert Chem.MolToSmiles(mol) == Chem.CanonSmiles(expected)
-    assert count == n
+    assert done == cuts
 
 
-def test_truncation_is_recorded():
-    _, info = build_structure("CCCCCCc1ccc(-c2cccs2)s1", StructureOptions(truncate_side_chains=True))
-    assert info["truncated_chains"] == 1
-    assert info["smiles_computed"] == Chem.CanonSmiles("Cc1ccc(-c2cccs2)s1")
+def test_truncation_never_merges_short_substituents():
+    # methyl, isopropyl, tert-butyl and tert-amyl esters of one fullerene-adduct-type scaffold
+    # (a methanofullerene-like cyclopropane on a phenyl-butanoate; a small core keeps the test fast)
+    scaffold = "O=C(O{R})CCCC1(c2ccccc2)C2C=CC=CC21"
+    variants = {r: scaffold.format(R=r) for r in ("C", "C(C)C", "C(C)(C)C", "C(C)(C)CC")}
+    computed = {Chem.MolToSmiles(truncate_side_chains(Chem.MolFromSmiles(s))[0]) for s in variants.values()}
+    assert len(computed) == 4
+    assert computed == {Chem.CanonSmiles(s) for s in variants.values()}  # nothing cut at all
+
+
+def test_truncation_is_on_by_default_and_recorded():
+    assert StructureOptions().truncate_side_chains and StructureOptions().truncate_min_carbons == 6
+    _, info = build_structure("CCCCC(CC)Cc1ccc(-c2cccs2)s1")
+    assert info["truncated_chains"] == 1 and info["truncated_groups"] == "C8H17->C4H9"
+    assert info["smiles_computed"] == Chem.CanonSmiles("CC(C)Cc1ccc(-c2cccs2)s1")
+
+
+def test_truncation_can_be_switched_off():
+    _, info = build_structure("CCCCCCc1ccsc1", StructureOptions(truncate_side_chains=False))
+    assert info["truncated_chains"] == 0 and info["smiles_computed"] == Chem.CanonSmiles("CCCCCCc1ccsc1")
 
 
 def test_xtb_geometry_route_converges():
