@@ -23,6 +23,12 @@ References
    884. :doi:`10.21105/joss.00884`
 .. [3] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
    :doi:`10.1002/adma.200501717`
+.. [4] W. Shockley, H. J. Queisser, "Detailed balance limit of efficiency of
+   p-n junction solar cells", J. Appl. Phys. 32 (1961) 510.
+   :doi:`10.1063/1.1736034`
+.. [5] S. Rühle, "Tabulated values of the Shockley–Queisser limit for single
+   junction solar cells", Sol. Energy 130 (2016) 139.
+   :doi:`10.1016/j.solener.2016.02.015`
 """
 
 from __future__ import annotations
@@ -32,6 +38,7 @@ from functools import lru_cache
 
 import numpy as np
 from scipy import constants as _c
+from scipy.special import lambertw
 
 __all__ = [
     "SPECTRUM_STANDARD",
@@ -44,6 +51,9 @@ __all__ = [
     "jsc_ma_cm2",
     "A_M2_TO_MA_CM2",
     "as_output",
+    "SQ_TEMPERATURE_K",
+    "sq_limit",
+    "sq_pce_pct",
 ]
 
 #: Spectrum used by the device model (pvlib key).
@@ -312,3 +322,108 @@ def jsc_ma_cm2(gap_ev, eqe=0.65):
     """
     flux = photon_flux_above_gap_m2_s(gap_ev)
     return as_output(np.asarray(eqe, dtype=float) * _c.e * np.asarray(flux) * A_M2_TO_MA_CM2)
+
+
+# --------------------------------------------------------------------------- #
+# Detailed-balance (Shockley–Queisser) limit
+# --------------------------------------------------------------------------- #
+#: Cell temperature of the detailed-balance limit (as in Rühle 2016). [K]
+SQ_TEMPERATURE_K = 300.0
+#: Terms of the series for the black-body photon flux above a gap (x = Eg/kT > 10 in practice).
+_BB_TERMS = 6
+
+
+def _blackbody_j0_a_m2(gap_ev, temperature_k: float) -> np.ndarray:
+    r"""Radiative dark saturation current q·Φ_bb(E ≥ Eg) of a flat cell at ``temperature_k``. [A m⁻²]
+
+    :math:`\Phi_{bb} = \frac{2\pi}{h^3 c^2} \int_{E_g}^{\infty} \frac{E^2\,dE}{e^{E/kT} - 1}`
+    (emission into the front hemisphere), with the integral written as the
+    series :math:`(kT)^3 \sum_k e^{-kx} (x^2/k + 2x/k^2 + 2/k^3)`, x = Eg/kT.
+    """
+    kt = _c.k * float(temperature_k)
+    x = np.asarray(gap_ev, dtype=float) * _c.e / kt
+    series = np.zeros_like(x)
+    for k in range(1, _BB_TERMS + 1):
+        series += np.exp(-k * x) * (x * x / k + 2.0 * x / k**2 + 2.0 / k**3)
+    return _c.e * 2.0 * np.pi / (_c.h**3 * _c.c**2) * kt**3 * series
+
+
+def sq_limit(gap_ev, temperature_k: float = SQ_TEMPERATURE_K) -> dict:
+    r"""Detailed-balance (Shockley–Queisser) limit of a single junction under AM1.5G.
+
+    Parameters
+    ----------
+    gap_ev : array_like
+        Absorber band gap (step absorptance: 1 above, 0 below). [eV]
+    temperature_k : float, default 300
+        Cell temperature. [K]
+
+    Returns
+    -------
+    dict of numpy.ndarray
+        ``jsc_ma_cm2`` [mA cm⁻²], ``voc_v`` [V], ``ff`` [dimensionless] and
+        ``pce_pct`` [%] at the maximum power point; NaN for non-finite or
+        non-positive gaps, 0 current and efficiency above 4.43 eV (no
+        photons in the table).
+
+    Notes
+    -----
+    :math:`J(V) = J_{sc} - J_0 (e^{qV/kT} - 1)` with :math:`J_{sc}` from
+    :func:`jsc_ma_cm2` (EQE = 1) and :math:`J_0 = q\Phi_{bb}` (black-body
+    emission of the cell above the gap into the front hemisphere).  The
+    maximum power point is exact: with :math:`x = qV/kT`,
+    :math:`1 + x_{mp} = W(e\,(1 + J_{sc}/J_0))` (Lambert W).  Incident power
+    is the spectrum's own integral (1000.37 W m⁻²).  This reproduces the
+    tabulated maximum of [2]_, 33.7 % near 1.34 eV.
+
+    References
+    ----------
+    .. [1] W. Shockley, H. J. Queisser, J. Appl. Phys. 32 (1961) 510.
+       :doi:`10.1063/1.1736034`
+    .. [2] S. Rühle, Sol. Energy 130 (2016) 139.
+       :doi:`10.1016/j.solener.2016.02.015`
+
+    Examples
+    --------
+    >>> from screen.spectrum import sq_limit
+    >>> out = sq_limit([1.34, 1.9])
+    >>> out["pce_pct"].round(1).tolist(), out["voc_v"].round(2).tolist()
+    ([33.7, 25.0], [1.08, 1.61])
+    """
+    gap = np.asarray(gap_ev, dtype=float)
+    valid = np.isfinite(gap) & (gap > 0)
+    g = np.where(valid, gap, 1.0)
+    jsc = np.asarray(jsc_ma_cm2(g, 1.0), dtype=float) / A_M2_TO_MA_CM2  # [A m-2]
+    j0 = _blackbody_j0_a_m2(g, temperature_k)
+    vt = _c.k * float(temperature_k) / _c.e
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        ratio = np.where(jsc > 0, jsc / j0, 0.0)
+        voc = vt * np.log1p(ratio)
+        x = np.real(lambertw(np.e * (1.0 + ratio))) - 1.0
+        j_mp = jsc - j0 * np.expm1(x)
+        p_mp = np.where(jsc > 0, x * vt * j_mp, 0.0)
+        ff = np.where(jsc > 0, p_mp / (voc * jsc), np.nan)
+    pce = 100.0 * p_mp / incident_power_w_m2()
+    nan = np.nan
+    return {
+        "jsc_ma_cm2": as_output(np.where(valid, jsc * A_M2_TO_MA_CM2, nan)),
+        "voc_v": as_output(np.where(valid, voc, nan)),
+        "ff": as_output(np.where(valid, ff, nan)),
+        "pce_pct": as_output(np.where(valid, pce, nan)),
+    }
+
+
+def sq_pce_pct(gap_ev, temperature_k: float = SQ_TEMPERATURE_K):
+    """Detailed-balance efficiency limit for a gap (see :func:`sq_limit`). [%]
+
+    References
+    ----------
+    .. [1] S. Rühle, Sol. Energy 130 (2016) 139. :doi:`10.1016/j.solener.2016.02.015`
+
+    Examples
+    --------
+    >>> from screen.spectrum import sq_pce_pct
+    >>> float(round(sq_pce_pct(1.34), 1))
+    33.7
+    """
+    return sq_limit(gap_ev, temperature_k)["pce_pct"]
