@@ -23,5 +23,7 @@ SIGMA_COLUMNS = ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")
 RANKING_COLUMNS = ["rank", "id", "smiles", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "partner", "delta_lumo_ev",
                    "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "pce_sigma_pct", "p_above_target",
                    "passes", "flags"]
-#: columns after the contract ones in ``ranking.csv``
-RANKING_EXTRA_COLUMNS = ["name", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev"]
+#: columns after the contract ones in ``ranking.csv``: name, σ [eV], whether the pair is viable and why not
+#: (plain words), the device model used, the acceptor class that chose its loss, the absorber gap [eV]
+RANKING_EXTRA_COLUMNS = ["name", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev", "viable", "reason", "model",
+                         "acceptor_class", "absorber_gap_ev"]

@@ -1,37 +1,43 @@
-"""Scharber device model for donor/acceptor bulk-heterojunction solar cells.
+"""Device models for donor/acceptor bulk-heterojunction solar cells.
 
 Frontier levels of a donor and an acceptor (vacuum scale, eV) are turned into
 open-circuit voltage, short-circuit current density and power-conversion
-efficiency under the ASTM G173-03 AM1.5G reference spectrum:
+efficiency under the ASTM G173-03 AM1.5G reference spectrum.  Every pair is
+first classified (:mod:`screen.viability`): only a type-II pair whose offsets
+allow charge separation gets numbers; a pair that is not viable gets NaN
+(empty, never 0) and its reasons as flags.  Two models, chosen with
+``device.model``:
+
+``fitted`` (default) — energy loss and quantum efficiency fitted on published
+devices (:mod:`screen.devicefit`, parameters in ``models/device/fitted.json``):
 
 .. math::
 
-    V_{oc} = (E_{LUMO}^{A} - E_{HOMO}^{D})/e - V_{loss}
+    E_{CT} = \\min(E_{LUMO}^{A} - E_{HOMO}^{D},\\; E_g^{min}), \\qquad
+    V_{oc} = (E_{CT} - \\Delta E_{loss}^{class})/q
 
-    J_{sc} = \\mathrm{EQE}\\; q \\int_{E \\ge E_g} \\Phi(E)\\, dE
+    J_{sc} = \\mathrm{EQE}_{max}\\, q \\Big[\\eta_{lo} \\int_{E_g^{lo}}^{E_g^{hi}} \\Phi\\,dE
+             + \\tfrac{\\eta_D + \\eta_A}{2} \\int_{E_g^{hi}}^{\\infty} \\Phi\\,dE\\Big],
+    \\quad \\eta_D = 1 - e^{-\\Delta_{LUMO}/\\Delta_0},\\; \\eta_A = 1 - e^{-\\Delta_{HOMO}/\\Delta_0}
 
-    \\mathrm{PCE} = V_{oc} J_{sc}\\, \\mathrm{FF} / P_{in}
+(photons between the two gaps are absorbed by the lower-gap material only,
+those above both are shared; the charge-generation yield of donor excitons
+falls smoothly as ΔLUMO → 0, that of acceptor excitons as ΔHOMO → 0).
 
-With vacuum-scale levels (HOMO = −IP < 0, LUMO = −EA < 0) the first line is the
-published rule :math:`V_{oc} = (|E_{HOMO}^{D}| - |E_{LUMO}^{A}|)/e - 0.3` V.
+``scharber`` — the published donor-only rule [1]_ with its own parameters:
+:math:`V_{oc} = (E_{LUMO}^{A} - E_{HOMO}^{D})/e - 0.3` V, EQE = FF = 0.65,
+ΔLUMO ≥ 0.3 eV (with ``absorber='both'`` also ΔHOMO ≥ 0.3 eV and the smaller
+gap sets the current).
 
-Everything is vectorised over numpy arrays (numpy broadcasting rules apply), so a
-whole candidate list is evaluated in one call.  Internally SI units are used
-(:mod:`scipy.constants`); names carry the boundary units (``_ev``, ``_v``,
-``_ma_cm2``, ``_pct``, ``_nm``).
+Both: :math:`\\mathrm{PCE} = V_{oc} J_{sc}\\, \\mathrm{FF} / P_{in}`; Voc is
+capped at the smallest optical gap of the pair and PCE at the detailed-balance
+limit for the absorber gap (:func:`screen.spectrum.sq_limit`), each flagged.
 
-The package splits the model in three layers:
-
-- :mod:`screen.spectrum` — the AM1.5G table, photon flux and :math:`J_{sc}` at a
-  gap (re-exported here: ``reference_spectrum``, ``jsc_ma_cm2`` …);
-- this module — :func:`voc_v`, :class:`DeviceModel` (parameters, offset checks,
-  device flags) and the design-rule map :func:`efficiency_map`;
-- :mod:`screen.sampling` — the Monte-Carlo efficiency spread
-  (:func:`screen.sampling.sample_pce`).
-
-The defaults of :class:`DeviceModel` are the schema defaults of the ``device``
-config section (:func:`screen.schema.section_defaults`); a bad value raises
-:class:`screen.errors.ConfigError`.  Flag codes come from :mod:`screen.flags`.
+Everything is vectorised over numpy arrays (broadcasting rules apply).
+:mod:`screen.spectrum` holds the spectrum (names re-exported here),
+:mod:`screen.sampling` the Monte-Carlo spread.  Defaults of :class:`DeviceModel`
+are the schema defaults of the ``device`` section; ``None`` means "the chosen
+model's own value".  Flag codes come from :mod:`screen.flags`.
 
 References
 ----------
@@ -39,12 +45,18 @@ References
    A. J. Heeger, C. J. Brabec, "Design rules for donors in bulk-heterojunction
    solar cells — towards 10 % energy-conversion efficiency",
    Adv. Mater. 18 (2006) 789–794. :doi:`10.1002/adma.200501717`
-.. [2] ASTM G173-03, "Standard Tables for Reference Solar Spectral
-   Irradiances: Direct Normal and Hemispherical on 37° Tilted Surface",
-   ASTM International (table as shipped with pvlib).
-.. [3] W. F. Holmgren, C. W. Hansen, M. A. Mikofski, "pvlib python: a python
-   package for modeling solar energy systems", J. Open Source Softw. 3 (2018)
-   884. :doi:`10.21105/joss.00884`
+.. [2] D. Veldman, S. C. J. Meskers, R. A. J. Janssen, "The energy of
+   charge-transfer states in electron donor–acceptor blends: insight into the
+   energy losses in organic solar cells", Adv. Funct. Mater. 19 (2009) 1939.
+   :doi:`10.1002/adfm.200801834`
+.. [3] K. Vandewal, K. Tvingstedt, A. Gadisa, O. Inganäs, J. V. Manca, "On the
+   origin of the open-circuit voltage of polymer–fullerene solar cells",
+   Nat. Mater. 8 (2009) 904. :doi:`10.1038/nmat2548`
+.. [4] ASTM G173-03, "Standard Tables for Reference Solar Spectral
+   Irradiances", ASTM International (table as shipped with pvlib);
+   W. F. Holmgren et al., J. Open Source Softw. 3 (2018) 884.
+   :doi:`10.21105/joss.00884`
+.. [5] S. Rühle, Sol. Energy 130 (2016) 139. :doi:`10.1016/j.solener.2016.02.015`
 """
 
 from __future__ import annotations
@@ -55,8 +67,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from screen.devicekernel import pair_terms, pce_samples, voc_v
+from screen.devicepars import FittedParameters, load_fitted
 from screen.errors import ConfigError
-from screen.flags import FLAG_ORDER, FLAGS
+from screen.flags import join_flags
 from screen.schema import section_defaults
 from screen.spectrum import (
     A_M2_TO_MA_CM2,
@@ -69,7 +83,9 @@ from screen.spectrum import (
     jsc_ma_cm2,
     photon_flux_above_gap_m2_s,
     reference_spectrum,
+    sq_pce_pct,
 )
+from screen.viability import OFFSET_TOL_EV, classify
 
 __all__ = [
     "DeviceModel",
@@ -78,6 +94,9 @@ __all__ = [
     "join_flags",
     "OFFSET_TOL_EV",
     "PAIR_LEVELS",
+    "MODELS",
+    "ABSORBERS",
+    "SCHARBER_PARAMETERS",
     # re-exported from screen.spectrum
     "SPECTRUM_STANDARD",
     "SPECTRUM_COLUMN",
@@ -89,104 +108,19 @@ __all__ = [
     "jsc_ma_cm2",
 ]
 
-#: Offsets within this of a threshold count as meeting it (−4.0 − (−4.3) is
-#: 0.2999999999999998 in binary floating point). [eV]
-OFFSET_TOL_EV = 1e-9
 #: Schema defaults of the ``device`` config section (the one source of the defaults below).
 _DEFAULTS = section_defaults("device")
 #: Input order of the six pair levels used by :meth:`DeviceModel.pair_arrays`.
 PAIR_LEVELS = ("donor_homo_ev", "donor_lumo_ev", "donor_gap_ev", "acceptor_homo_ev", "acceptor_lumo_ev",
                "acceptor_gap_ev")
-
-
-def voc_v(homo_donor_ev, lumo_acceptor_ev, loss_v=0.3, *, return_mask=False):
-    """Open-circuit voltage from the donor HOMO and acceptor LUMO (Scharber rule).
-
-    Parameters
-    ----------
-    homo_donor_ev : array_like
-        Donor HOMO on the vacuum scale (negative). [eV]
-    lumo_acceptor_ev : array_like
-        Acceptor LUMO on the vacuum scale (negative). [eV]
-    loss_v : float, default 0.3
-        Empirical voltage loss. [V]
-    return_mask : bool, default False
-        Also return the mask of pairs whose unclipped Voc is ≤ 0.
-
-    Returns
-    -------
-    voc : numpy.ndarray
-        :math:`\\max(0, (E_{LUMO}^{A} - E_{HOMO}^{D})/e - V_{loss})`. [V]
-    nonpositive : numpy.ndarray of bool
-        Only with ``return_mask=True``: True where the unclipped value is ≤ 0
-        (NaN inputs give False and NaN Voc).
-
-    Notes
-    -----
-    For bound levels (both negative) :math:`E_{LUMO}^{A} - E_{HOMO}^{D} =
-    |E_{HOMO}^{D}| - |E_{LUMO}^{A}|`, the form given in [1]_.  The signed form
-    is used so that a positive (unbound) LUMO is not silently folded back by an
-    absolute value.  Negative Voc is never returned; callers that need to know
-    use the mask.
-
-    References
-    ----------
-    .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
-       :doi:`10.1002/adma.200501717`
-
-    Examples
-    --------
-    >>> from screen.device import voc_v
-    >>> float(round(voc_v(-5.4, -4.3), 3))
-    0.8
-    >>> voc, bad = voc_v([-5.4, -4.5], -4.3, return_mask=True)
-    >>> voc.round(3).tolist(), bad.tolist()
-    ([0.8, 0.0], [False, True])
-    """
-    raw = (
-        np.asarray(lumo_acceptor_ev, dtype=float)
-        - np.asarray(homo_donor_ev, dtype=float)
-        - float(loss_v)
-    )
-    with np.errstate(invalid="ignore"):
-        nonpositive = raw <= 0.0
-    voc = np.where(nonpositive, 0.0, raw)
-    if return_mask:
-        return as_output(voc), as_output(nonpositive)
-    return as_output(voc)
-
-
-def join_flags(masks: dict) -> np.ndarray:
-    """Per-element ``;``-joined codes of the raised flags.
-
-    Parameters
-    ----------
-    masks : dict of str to array_like of bool
-        One boolean mask per flag code (broadcast against each other).
-
-    Returns
-    -------
-    numpy.ndarray of object
-        ``''`` where no flag is raised; codes in :data:`screen.flags.FLAG_ORDER`
-        order (codes unknown to the registry last, in ``masks`` order).
-
-    Examples
-    --------
-    >>> join_flags({"voc_nonpositive": [True, False], "input_missing": [True, False]}).tolist()
-    ['input_missing;voc_nonpositive', '']
-    """
-    names = [k for k in FLAG_ORDER if k in masks] + [k for k in masks if k not in FLAGS]
-    shape = np.broadcast_shapes(*(np.shape(v) for v in masks.values()))
-    n = int(np.prod(shape, dtype=np.int64))
-    stacked = np.zeros((len(names), n), dtype=bool)
-    for row, name in zip(stacked, names):
-        row[:] = np.ravel(np.broadcast_to(np.asarray(masks[name], dtype=bool), shape))
-    out = np.full(n, "", dtype=object)
-    for j in np.flatnonzero(stacked.any(axis=0)):
-        out[j] = ";".join(name for name, raised in zip(names, stacked[:, j]) if raised)
-    return out.reshape(shape)
-
-
+#: the device models (``device.model``)
+MODELS = ("fitted", "scharber")
+#: who absorbs (``device.absorber``)
+ABSORBERS = ("donor", "both")
+#: parameters of the published model, Scharber et al. (2006): EQE, FF [-], loss [V], offsets [eV]
+SCHARBER_PARAMETERS = {"eqe": 0.65, "ff": 0.65, "loss_v": 0.3, "min_delta_lumo_ev": 0.3, "min_delta_homo_ev": 0.3}
+#: smallest offsets of the fitted model: type II is enough, the yield falls smoothly to 0 at 0 offset [eV]
+FITTED_MIN_OFFSET_EV = 0.0
 # --------------------------------------------------------------------------- #
 # Device model
 # --------------------------------------------------------------------------- #
@@ -196,83 +130,86 @@ def _config_error(field: str, value, allowed: str) -> ConfigError:
 
 @dataclass(frozen=True)
 class DeviceModel:
-    """Parameters of the Scharber bulk-heterojunction device model.
+    """Device model: the fitted energy-loss model or the published Scharber rule.
 
     Parameters
     ----------
-    eqe : float, default 0.65
-        External quantum efficiency above the absorber gap. [dimensionless]
-    ff : float, default 0.65
-        Fill factor. [dimensionless]
-    loss_v : float, default 0.3
-        Empirical Voc loss. [V]
-    min_delta_lumo_ev : float, default 0.3
-        Smallest ΔLUMO = LUMO_D − LUMO_A for electron transfer from the excited
-        donor to the acceptor. [eV]
-    min_delta_homo_ev : float, default 0.3
-        Smallest ΔHOMO = HOMO_D − HOMO_A for hole transfer from the excited
-        acceptor; only checked with ``absorber='both'``. [eV]
-    absorber : {'donor', 'both'}, default 'donor'
-        'donor': the donor optical gap sets Jsc and only ΔLUMO is checked (the
-        published model).  'both': the smaller optical gap of the pair sets Jsc
-        and both ΔLUMO and ΔHOMO must clear their thresholds.
-    pin_w_m2 : float or None, default None
-        Incident power used in the efficiency; None uses the integral of the
-        spectrum that gives Jsc (:func:`incident_power_w_m2`). [W m⁻²]
-        Not a config key.
+    model : {'fitted', 'scharber'}, default 'fitted'
+        'fitted': Voc = (E_CT − ΔE_loss)/q with the loss per acceptor class, an
+        EQE that falls smoothly as an offset approaches 0, and the fill factor
+        fitted on published devices (``models/device/fitted.json``).
+        'scharber': the published donor-only design rule (parameters of [1]_).
+    absorber : {'both', 'donor'}, default 'both'
+        'both': both materials absorb; photons above the smaller optical gap
+        count and both offsets are checked.  'donor': only the donor absorbs
+        (the published model); ΔHOMO must still be > 0 for type II.
+    eqe, ff : float or None
+        Override the model's maximum EQE and fill factor. [dimensionless]
+    loss_v : float or None
+        Override the model's voltage loss (every acceptor class). [V]
+    min_delta_lumo_ev, min_delta_homo_ev : float or None
+        Override the smallest offsets that allow charge separation (Scharber:
+        0.3 eV; fitted: 0, type II, the yield doing the rest). [eV]
+    pin_w_m2 : float or None
+        Incident power; None uses the spectrum's integral. [W m⁻²] Not a config key.
+    parameters : FittedParameters or None
+        Fitted parameters; None reads ``models/device/fitted.json``
+        (only for ``model='fitted'``). Not a config key.
 
     Raises
     ------
     screen.errors.ConfigError
-        A parameter that is not a finite number in its range, or an unknown
-        ``absorber`` (the message names the field and the allowed values).
-
-    Notes
-    -----
-    Every default except ``pin_w_m2`` is the schema default of the ``device``
-    config section (:func:`screen.schema.section_defaults`), which are those of [1]_
-    (EQE = FF = 0.65, 0.3 V loss, 0.3 eV LUMO
-    offset).  The 'both' policy is an extension for blends in which the
-    acceptor also absorbs (e.g. low-gap non-fullerene acceptors): it assumes
-    full absorption above the lower gap with the same EQE, an optimistic bound.
+        A value out of range or an unknown option (names the field and the allowed values).
 
     References
     ----------
-    .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
-       :doi:`10.1002/adma.200501717`
+    .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789. :doi:`10.1002/adma.200501717`
+    .. [2] D. Veldman, S. C. J. Meskers, R. A. J. Janssen, Adv. Funct. Mater. 19 (2009) 1939.
+       :doi:`10.1002/adfm.200801834`
 
     Examples
     --------
     >>> from screen.device import DeviceModel
-    >>> out = DeviceModel().evaluate(-5.4, -3.9, 1.5, -6.0, -4.3, 2.0)
-    >>> float(round(out["voc_v"], 3)), float(round(out["pce_pct"], 2))
-    (0.8, 9.79)
-    >>> str(out["flags"])
-    ''
+    >>> out = DeviceModel(model="scharber", absorber="donor").evaluate(-5.4, -3.9, 1.5, -6.0, -4.3, 2.0)
+    >>> float(round(out["voc_v"], 3)), float(round(out["pce_pct"], 2)), str(out["flags"])
+    (0.8, 9.79, 'donor_only_model')
+    >>> bad = DeviceModel(model="scharber").evaluate(-5.4, -4.5, 0.9, -6.0, -4.3, 2.0)
+    >>> bool(bad["viable"]), bool(np.isnan(bad["pce_pct"])), str(bad["flags"])
+    (False, True, 'lumo_inverted')
     """
 
-    eqe: float = _DEFAULTS["eqe"]
-    ff: float = _DEFAULTS["ff"]
-    loss_v: float = _DEFAULTS["loss_v"]
-    min_delta_lumo_ev: float = _DEFAULTS["min_delta_lumo_ev"]
-    min_delta_homo_ev: float = _DEFAULTS["min_delta_homo_ev"]
+    model: str = _DEFAULTS["model"]
     absorber: str = _DEFAULTS["absorber"]
+    eqe: float | None = _DEFAULTS["eqe"]
+    ff: float | None = _DEFAULTS["ff"]
+    loss_v: float | None = _DEFAULTS["loss_v"]
+    min_delta_lumo_ev: float | None = _DEFAULTS["min_delta_lumo_ev"]
+    min_delta_homo_ev: float | None = _DEFAULTS["min_delta_homo_ev"]
     #: not a config key: the spectrum's own integral unless set from Python
     pin_w_m2: float | None = None
+    #: not a config key: fitted parameters (None: the shipped file)
+    parameters: FittedParameters | None = dataclasses.field(default=None, repr=False, compare=False)
 
     def __post_init__(self):
-        for name in ("eqe", "ff", "loss_v", "min_delta_lumo_ev", "min_delta_homo_ev"):
-            self._set_finite(name)
-        if not 0.0 < self.eqe <= 1.0:
-            raise _config_error("eqe", self.eqe, "0 < eqe <= 1")
-        if not 0.0 < self.ff <= 1.0:
-            raise _config_error("ff", self.ff, "0 < ff <= 1")
-        if self.absorber not in ("donor", "both"):
-            raise _config_error("absorber", self.absorber, "'donor' or 'both'")
-        if self.pin_w_m2 is not None:
-            self._set_finite("pin_w_m2")
-            if self.pin_w_m2 <= 0:
-                raise _config_error("pin_w_m2", self.pin_w_m2, "None or a positive number [W m-2]")
+        if self.model not in MODELS:
+            raise _config_error("model", self.model, " or ".join(repr(m) for m in MODELS))
+        if self.absorber not in ABSORBERS:
+            raise _config_error("absorber", self.absorber, " or ".join(repr(a) for a in ABSORBERS))
+        for name in ("eqe", "ff", "loss_v", "min_delta_lumo_ev", "min_delta_homo_ev", "pin_w_m2"):
+            if getattr(self, name) is not None:
+                self._set_finite(name)
+        for name in ("eqe", "ff"):
+            val = getattr(self, name)
+            if val is not None and not 0.0 < val <= 1.0:
+                raise _config_error(name, val, f"null or 0 < {name} <= 1")
+        for name in ("loss_v", "min_delta_lumo_ev", "min_delta_homo_ev"):
+            val = getattr(self, name)
+            if val is not None and val < 0:
+                raise _config_error(name, val, f"null or {name} >= 0")
+        if self.pin_w_m2 is not None and self.pin_w_m2 <= 0:
+            raise _config_error("pin_w_m2", self.pin_w_m2, "None or a positive number [W m-2]")
+        if self.model == "fitted" and self.parameters is None:
+            object.__setattr__(self, "parameters", load_fitted())
 
     def _set_finite(self, name: str) -> None:
         """Store field ``name`` as a float; refuse bools, text and non-finite numbers."""
@@ -283,26 +220,75 @@ class DeviceModel:
             raise _config_error(name, val, "a finite real number")
         object.__setattr__(self, name, float(val))
 
+    # ------------------------------------------------------------ effective parameters
+    def _own(self, name: str) -> float:
+        """The chosen model's own value of a parameter (before overrides)."""
+        if self.model == "scharber":
+            return SCHARBER_PARAMETERS[name]
+        p = self.parameters
+        return {"eqe": p.eqe_max, "ff": p.ff, "loss_v": float(p.loss_ev["pooled"]),
+                "min_delta_lumo_ev": FITTED_MIN_OFFSET_EV, "min_delta_homo_ev": FITTED_MIN_OFFSET_EV}[name]
+
+    def value(self, name: str) -> float:
+        """Effective value of ``eqe``, ``ff``, ``loss_v``, ``min_delta_lumo_ev`` or ``min_delta_homo_ev``.
+
+        Examples
+        --------
+        >>> DeviceModel(model="scharber").value("loss_v"), DeviceModel(model="scharber", eqe=0.7).value("eqe")
+        (0.3, 0.7)
+        """
+        val = getattr(self, name)
+        return self._own(name) if val is None else float(val)
+
+    @property
+    def offset_scale_ev(self) -> float:
+        """Offset scale Δ0 of the charge-generation yield (0 = step, the Scharber model). [eV]"""
+        return 0.0 if self.model == "scharber" else float(self.parameters.offset_scale_ev)
+
+    @property
+    def check_homo_offset(self) -> bool:
+        """Whether ΔHOMO is held to ``min_delta_homo_ev`` (both absorb); type II is always required."""
+        return self.absorber == "both"
+
+    @property
+    def label(self) -> str:
+        """Plain-words name of the model for reports and provenance.
+
+        Examples
+        --------
+        >>> DeviceModel(model="scharber", absorber="donor").label
+        'Scharber et al. 2006 rule (published donor-only model)'
+        """
+        if self.model == "scharber":
+            who = "published donor-only model" if self.absorber == "donor" else "with an absorbing acceptor"
+            return f"Scharber et al. 2006 rule ({who})"
+        who = "both materials absorb" if self.absorber == "both" else "donor absorbs"
+        return f"fitted energy-loss model ({who})"
+
     @property
     def incident_power_w_m2(self) -> float:
         """Incident power used for the efficiency. [W m⁻²]"""
         return incident_power_w_m2() if self.pin_w_m2 is None else float(self.pin_w_m2)
 
     def as_dict(self) -> dict:
-        """Parameters plus spectrum and incident power, for provenance records.
-
-        Returns
-        -------
-        dict
-            Field values, ``spectrum`` (name) and ``incident_power_w_m2``.
+        """Effective parameters plus model label, spectrum and incident power, for provenance.
 
         Examples
         --------
-        >>> from screen.device import DeviceModel
-        >>> DeviceModel().as_dict()["absorber"]
-        'donor'
+        >>> d = DeviceModel(model="scharber").as_dict()
+        >>> d["model"], d["absorber"], d["loss_v"], d["min_delta_lumo_ev"]
+        ('scharber', 'both', 0.3, 0.3)
         """
-        d = dataclasses.asdict(self)
+        d = {"model": self.model, "absorber": self.absorber, "label": self.label}
+        for name in ("eqe", "ff", "loss_v", "min_delta_lumo_ev", "min_delta_homo_ev"):
+            d[name] = self.value(name)
+            d[f"{name}_set"] = getattr(self, name) is not None
+        d["pin_w_m2"] = self.pin_w_m2
+        d["offset_scale_ev"] = self.offset_scale_ev
+        if self.model == "fitted":
+            d["fitted"] = self.parameters.as_dict()
+            d["fitted"]["cv"] = self.parameters.meta.get("cv")
+            d["fitted"]["devices_sha256"] = self.parameters.meta.get("devices_sha256")
         d["spectrum"] = reference_spectrum().name
         d["incident_power_w_m2"] = self.incident_power_w_m2
         return d
@@ -317,11 +303,23 @@ class DeviceModel:
 
         Examples
         --------
-        >>> round(DeviceModel(pin_w_m2=1000.0).pce_factor_pct(), 6)
+        >>> round(DeviceModel(model="scharber", pin_w_m2=1000.0).pce_factor_pct(), 6)
         0.65
         """
-        # PCE [%] = Voc [V] * Jsc [mA cm-2] * (10 A m-2 per mA cm-2) * FF / Pin * 100
-        return self.ff * (1.0 / A_M2_TO_MA_CM2) / self.incident_power_w_m2 * 100.0
+        return self.value("ff") * (1.0 / A_M2_TO_MA_CM2) / self.incident_power_w_m2 * 100.0
+
+    def loss_ev(self, acceptor_class=None) -> tuple[np.ndarray, np.ndarray]:
+        """Voltage loss per pair [eV] and the mask of pairs that got the pooled (class-free) value.
+
+        Examples
+        --------
+        >>> DeviceModel(model="scharber").loss_ev(["fullerene"])[0].tolist()
+        [0.3]
+        """
+        classes = np.asarray("" if acceptor_class is None else acceptor_class, dtype=object)
+        if self.model == "scharber" or self.loss_v is not None:
+            return np.full(classes.shape, self.value("loss_v")), np.zeros(classes.shape, dtype=bool)
+        return self.parameters.loss_for(classes), self.parameters.pooled_mask(classes)
 
     def absorber_gap_ev(self, donor_gap, acceptor_gap):
         """Gap that sets Jsc: the donor's, or the smaller of the pair for ``absorber='both'``. [eV]"""
@@ -382,26 +380,83 @@ class DeviceModel:
             missing |= np.broadcast_to(np.isnan(arr), shape)
         return missing
 
-    def offset_masks(self, delta_lumo, delta_homo, shape) -> tuple[np.ndarray, np.ndarray]:
-        """``(lumo_offset_low, homo_offset_low)``; ΔHOMO is checked only for ``absorber='both'``."""
-        with np.errstate(invalid="ignore"):
-            lumo_low = delta_lumo < self.min_delta_lumo_ev - OFFSET_TOL_EV
-            if self.absorber == "both":
-                homo_low = delta_homo < self.min_delta_homo_ev - OFFSET_TOL_EV
-            else:
-                homo_low = np.zeros(shape, dtype=bool)
-        return lumo_low, homo_low
+    # ------------------------------------------------------------ the physics
+    def figures(self, levels, loss_ev, *, jsc_unit=None, sq_pct=None, keep_model_values=False) -> dict:
+        """Classification, Voc, Jsc and PCE of pairs from their six levels (the one formula).
 
-    def evaluate(
-        self,
-        donor_homo_ev,
-        donor_lumo_ev,
-        donor_gap_ev,
-        acceptor_homo_ev=None,
-        acceptor_lumo_ev=None,
-        acceptor_gap_ev=None,
-    ) -> dict:
-        """Device figures and offset checks for donor/acceptor pairs.
+        Parameters
+        ----------
+        levels : sequence of numpy.ndarray
+            The six levels in :data:`PAIR_LEVELS` order (broadcastable). [eV]
+        loss_ev : numpy.ndarray
+            Voltage loss per pair (broadcastable), from :meth:`loss_ev`. [eV]
+        jsc_unit, sq_pct : callable or None
+            Jsc at EQE = 1 [mA cm⁻²] and detailed-balance PCE [%] as functions of
+            the gap; None uses the exact :func:`screen.spectrum.jsc_ma_cm2` and
+            :func:`screen.spectrum.sq_pce_pct` (the sampler passes tables).
+
+        Returns
+        -------
+        dict of numpy.ndarray
+            ``delta_lumo_ev``, ``delta_homo_ev``, ``absorber_gap_ev``,
+            ``voc_v``, ``jsc_ma_cm2``, ``pce_pct`` (0 where not viable: callers
+            blank them), the masks of :func:`screen.viability.classify`,
+            ``viable``, ``voc_capped`` and ``pce_capped``; with
+            ``keep_model_values`` also ``voc_model_v`` and ``pce_model_pct``, the
+            formula's values whether viable or not (for validation on devices).
+        """
+        sq_pct = sq_pce_pct if sq_pct is None else sq_pct
+        shape = np.broadcast_shapes(*(np.shape(x) for x in levels), np.shape(loss_ev))
+        t = pair_terms(self, levels, loss_ev, jsc_unit)
+        delta_lumo, delta_homo, g_lo, gap_cap, voc_raw, jsc = (t.delta_lumo, t.delta_homo, t.absorber_gap,
+                                                                 t.gap_cap, t.voc_raw, t.jsc)
+        missing = self.needed_missing(levels, shape)
+        masks = classify(delta_lumo, delta_homo, g_lo, voc_raw, missing, min_lumo=self.value("min_delta_lumo_ev"),
+                         min_homo=self.value("min_delta_homo_ev"), check_homo_offset=self.check_homo_offset)
+        viable = masks["viable"]
+        with np.errstate(invalid="ignore"):
+            safe_lo = np.where(np.isfinite(g_lo) & (g_lo > 0), g_lo, 2.0)  # placeholder keeps NaN out
+        jsc_model = jsc
+        with np.errstate(invalid="ignore"):
+            voc_capped = viable & (voc_raw > gap_cap)
+        voc_model = np.fmin(voc_raw, gap_cap)
+        voc = np.where(viable, voc_model, 0.0)
+        jsc = np.where(viable, jsc, 0.0)
+        pce = voc * jsc * self.pce_factor_pct()
+        limit = sq_pct(safe_lo)
+        pce_capped = viable & (pce > limit)
+        pce = np.where(pce_capped, limit, pce)
+        out = {"delta_lumo_ev": delta_lumo, "delta_homo_ev": delta_homo, "absorber_gap_ev": g_lo,
+               "voc_v": voc, "jsc_ma_cm2": jsc, "pce_pct": pce, **masks, "voc_capped": voc_capped,
+               "pce_capped": pce_capped}
+        if keep_model_values:
+            out["voc_model_v"] = voc_model
+            with np.errstate(invalid="ignore"):
+                out["pce_model_pct"] = np.fmin(np.maximum(voc_model, 0.0) * jsc_model * self.pce_factor_pct(), limit)
+        return {k: np.broadcast_to(v, shape) for k, v in out.items()}
+
+    def pce_from_levels(self, levels, loss_ev, *, jsc_unit=None, sq_pct=None, sq_below_ev=np.inf) -> np.ndarray:
+        """Efficiency of (sampled) pair levels; 0 where a sample is not viable. [%]
+
+        The vectorised kernel of :func:`screen.sampling.sample_pce`: the same
+        formula as :meth:`evaluate` (:func:`screen.devicekernel.pair_terms`),
+        the classification as plain comparisons, no flags.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> m = DeviceModel(model="scharber", absorber="donor")
+        >>> lv = [np.array([-5.4, -5.4]), np.array([-3.9, -4.5]), 1.5, -6.0, -4.3, 2.0]
+        >>> m.pce_from_levels(lv, 0.3).round(2).tolist()
+        [9.79, 0.0]
+        """
+        jsc_unit = (lambda g: jsc_ma_cm2(g, 1.0)) if jsc_unit is None else jsc_unit
+        return pce_samples(self, levels, np.asarray(loss_ev, dtype=float), jsc_unit,
+                           sq_pce_pct if sq_pct is None else sq_pct, sq_below_ev)
+
+    def evaluate(self, donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev=None, acceptor_lumo_ev=None,
+                 acceptor_gap_ev=None, *, acceptor_class=None) -> dict:
+        """Classify donor/acceptor pairs and estimate the viable ones.
 
         Parameters
         ----------
@@ -410,87 +465,76 @@ class DeviceModel:
         donor_gap_ev : array_like
             Donor optical gap. [eV]
         acceptor_homo_ev : array_like or None
-            Acceptor HOMO, vacuum scale; needed for ``absorber='both'``, else
-            only used for ``delta_homo_ev`` (NaN if None). [eV]
+            Acceptor HOMO; needed for ``absorber='both'``, else checked for type
+            II when given. [eV]
         acceptor_lumo_ev : array_like
-            Acceptor LUMO, vacuum scale (required). [eV]
+            Acceptor LUMO (required). [eV]
         acceptor_gap_ev : array_like or None
             Acceptor optical gap; needed for ``absorber='both'``. [eV]
+        acceptor_class : array_like of str or None
+            Acceptor class per pair (``fullerene``, ``nfa-fused`` …) for the
+            fitted loss; None or '' uses the pooled loss.
 
         Returns
         -------
         dict of numpy.ndarray
-            All arrays have the broadcast shape of the inputs:
-
-            - ``delta_lumo_ev`` : LUMO_D − LUMO_A [eV]
-            - ``delta_homo_ev`` : HOMO_D − HOMO_A [eV]
-            - ``voc_v`` : Voc, clipped at 0 [V]
-            - ``jsc_ma_cm2`` : Jsc from the absorber gap [mA cm⁻²]
-            - ``ff`` : fill factor [dimensionless]
-            - ``pce_pct`` : efficiency [%]
-            - ``absorber_gap_ev`` : gap that sets Jsc [eV]
-            - ``input_missing`` : a level needed by the model is NaN
-            - ``lumo_offset_low`` : ΔLUMO < ``min_delta_lumo_ev``
-            - ``homo_offset_low`` : ΔHOMO < ``min_delta_homo_ev`` (always False
-              for ``absorber='donor'``)
-            - ``voc_nonpositive`` : unclipped Voc ≤ 0 (PCE is then 0)
-            - ``device_ok`` : none of the flags above
-            - ``flags`` : ';'-joined names of the raised flags ('' if none)
+            With the broadcast shape of the inputs: ``delta_lumo_ev``,
+            ``delta_homo_ev`` [eV]; ``voc_v`` [V], ``jsc_ma_cm2`` [mA cm⁻²],
+            ``ff``, ``pce_pct`` [%] — NaN where the pair is not viable;
+            ``absorber_gap_ev`` [eV], ``loss_ev`` [eV]; one boolean mask per
+            device flag of :data:`screen.flags.DEVICE_FLAGS`; ``viable`` (and
+            its old name ``device_ok``); ``flags`` (';'-joined codes).
 
         Notes
         -----
-        An offset counts as meeting its threshold if it is at most 1e-9 eV
-        below it (binary rounding of differences such as −4.0 − (−4.3)).
-        Offsets below threshold are flagged but every number is still
-        computed; the ranking decides what fails.  NaN inputs propagate as NaN
-        numbers and raise ``input_missing`` (comparisons with NaN raise no other
-        flag).
+        Voc never exceeds the smallest optical gap of the pair
+        (``voc_capped``) and PCE never exceeds the detailed-balance limit for
+        the absorber gap (``pce_capped``).  An offset counts as meeting its
+        threshold if it is at most 1e-9 eV below it.
 
         References
         ----------
-        .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
-           :doi:`10.1002/adma.200501717`
+        .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789. :doi:`10.1002/adma.200501717`
+        .. [2] D. Veldman et al., Adv. Funct. Mater. 19 (2009) 1939. :doi:`10.1002/adfm.200801834`
 
         Examples
         --------
         >>> import numpy as np
         >>> from screen.device import DeviceModel
-        >>> m = DeviceModel(absorber="both")
+        >>> m = DeviceModel(model="scharber", absorber="both")
         >>> out = m.evaluate(-5.2, np.array([-3.9, -4.1]), 1.6, -5.4, -4.3, 1.4)
         >>> out["absorber_gap_ev"].tolist(), out["flags"].tolist()
         ([1.4, 1.4], ['homo_offset_low', 'lumo_offset_low;homo_offset_low'])
+        >>> bool(np.isnan(out["pce_pct"]).all())
+        True
         """
         levels, shape = self.pair_arrays(donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev,
                                          acceptor_lumo_ev, acceptor_gap_ev, "evaluate()")
-        d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap = levels
-        delta_lumo = np.broadcast_to(d_lumo - a_lumo, shape).astype(float)
-        delta_homo = np.broadcast_to(d_homo - a_homo, shape).astype(float)
-        gap = np.broadcast_to(self.absorber_gap_ev(d_gap, a_gap), shape).astype(float)
-        voc, voc_bad = voc_v(d_homo, a_lumo, self.loss_v, return_mask=True)
-        voc = np.broadcast_to(voc, shape).astype(float)
-        voc_bad = np.broadcast_to(voc_bad, shape).copy()
-        jsc = jsc_ma_cm2(gap, self.eqe)
-        pce = voc * jsc * self.pce_factor_pct()
+        loss, pooled = self.loss_ev(acceptor_class)
+        fig = self.figures(levels, loss)
+        shape = fig["viable"].shape
+        viable = fig["viable"]
 
-        missing = self.needed_missing(levels, shape)
-        lumo_low, homo_low = self.offset_masks(delta_lumo, delta_homo, shape)
-        masks = {
-            "input_missing": missing,
-            "lumo_offset_low": lumo_low,
-            "homo_offset_low": homo_low,
-            "voc_nonpositive": voc_bad,
-        }
-        device_ok = ~(missing | lumo_low | homo_low | voc_bad)
+        def blank(x):
+            return np.where(viable, x, np.nan).astype(float)
+
+        masks = {code: np.array(fig[code], dtype=bool) for code in
+                 ("input_missing", "absorber_gap_invalid", "lumo_inverted", "homo_inverted", "lumo_offset_low",
+                  "homo_offset_low", "voc_nonpositive", "voc_capped", "pce_capped")}
+        masks["loss_class_pooled"] = np.broadcast_to(pooled, shape) & viable
+        masks["donor_only_model"] = np.full(shape, self.model == "scharber" and self.absorber == "donor")
         result = {
-            "delta_lumo_ev": delta_lumo,
-            "delta_homo_ev": delta_homo,
-            "voc_v": voc,
-            "jsc_ma_cm2": np.asarray(jsc, dtype=float),
-            "ff": np.full(shape, self.ff),
-            "pce_pct": np.asarray(pce, dtype=float),
-            "absorber_gap_ev": gap,
+            "delta_lumo_ev": np.array(fig["delta_lumo_ev"], dtype=float),
+            "delta_homo_ev": np.array(fig["delta_homo_ev"], dtype=float),
+            "voc_v": blank(fig["voc_v"]),
+            "jsc_ma_cm2": blank(fig["jsc_ma_cm2"]),
+            "ff": blank(np.full(shape, self.value("ff"))),
+            "pce_pct": blank(fig["pce_pct"]),
+            "absorber_gap_ev": np.array(fig["absorber_gap_ev"], dtype=float),
+            "loss_ev": np.broadcast_to(loss, shape).astype(float),
             **masks,
-            "device_ok": device_ok,
+            "viable": np.array(viable),
+            "device_ok": np.array(viable),
             "flags": join_flags(masks),
         }
         return {key: as_output(val) for key, val in result.items()}
@@ -499,15 +543,8 @@ class DeviceModel:
 # --------------------------------------------------------------------------- #
 # Design-rule map
 # --------------------------------------------------------------------------- #
-def efficiency_map(
-    gaps_ev,
-    offsets_ev,
-    model=None,
-    *,
-    acceptor_lumo_ev=-4.3,
-    acceptor_homo_ev=None,
-    acceptor_gap_ev=None,
-):
+def efficiency_map(gaps_ev, offsets_ev, model=None, *, acceptor_lumo_ev=-4.3, acceptor_homo_ev=None,
+                   acceptor_gap_ev=None, acceptor_class=None):
     """Efficiency over donor optical gap × LUMO offset for a fixed acceptor.
 
     Parameters
@@ -517,20 +554,21 @@ def efficiency_map(
     offsets_ev : array_like, 1-D
         ΔLUMO = LUMO_D − LUMO_A (columns of the map). [eV]
     model : DeviceModel or None
-        Device model (None: defaults).
+        Device model (None: the published Scharber model, donor-only, so that
+        the map of [1]_ is reproduced).
     acceptor_lumo_ev : float, default -4.3
-        Acceptor LUMO; −4.3 eV is the reference acceptor of [1]_
-        ("scharber-reference-acceptor"). [eV]
+        Acceptor LUMO; −4.3 eV is the reference acceptor of [1]_. [eV]
     acceptor_homo_ev, acceptor_gap_ev : float or None
-        Needed only for ``model.absorber == 'both'``. [eV]
+        Acceptor HOMO and optical gap (needed for ``absorber='both'``). [eV]
+    acceptor_class : str or None
+        Acceptor class for the fitted loss.
 
     Returns
     -------
     numpy.ndarray, shape (len(gaps_ev), len(offsets_ev))
-        PCE [%] with donor LUMO = LUMO_A + ΔLUMO and donor HOMO = donor
-        LUMO − gap (optical gap taken as the HOMO–LUMO gap, as in [1]_).
-        Cells below the offset threshold are computed too; mask them with
-        ``offsets_ev < model.min_delta_lumo_ev`` when plotting.
+        PCE [%] with donor LUMO = LUMO_A + ΔLUMO and donor HOMO = donor LUMO −
+        gap (optical gap taken as the HOMO–LUMO gap, as in [1]_); NaN where
+        the pair is not viable (the masked region of the report's map).
 
     References
     ----------
@@ -541,23 +579,15 @@ def efficiency_map(
     --------
     >>> import numpy as np
     >>> from screen.device import efficiency_map
-    >>> pce = efficiency_map([1.4, 1.5, 2.0], [0.3, 0.4])
-    >>> pce.shape
-    (3, 2)
-    >>> float(round(pce[1, 1], 2))
-    9.79
+    >>> pce = efficiency_map([1.4, 1.5, 2.0], [0.2, 0.4])
+    >>> pce.shape, bool(np.isnan(pce[1, 0])), float(round(pce[1, 1], 2))
+    ((3, 2), True, 9.79)
     """
-    model = DeviceModel() if model is None else model
+    model = DeviceModel(model="scharber", absorber="donor") if model is None else model
     gaps = np.asarray(gaps_ev, dtype=float).reshape(-1)
     offsets = np.asarray(offsets_ev, dtype=float).reshape(-1)
     d_lumo = float(acceptor_lumo_ev) + offsets[None, :]
     d_homo = d_lumo - gaps[:, None]
-    out = model.evaluate(
-        d_homo,
-        d_lumo,
-        gaps[:, None],
-        acceptor_homo_ev,
-        acceptor_lumo_ev,
-        acceptor_gap_ev,
-    )
+    out = model.evaluate(d_homo, d_lumo, gaps[:, None], acceptor_homo_ev, acceptor_lumo_ev, acceptor_gap_ev,
+                         acceptor_class=acceptor_class)
     return out["pce_pct"]

@@ -4,7 +4,13 @@ Ranking (``screen.rank``), the device model (``screen.device``), the report and
 the CSV exports all take their flag vocabulary from here, so a flag is defined
 once. A flag's ``severity`` says what it does to a row:
 
-- ``"fail"``: the row does not pass the screen (it is still ranked and shown);
+- ``"not_viable"``: the pair cannot work as a solar cell (no type-II alignment,
+  an offset below the threshold, no positive Voc, a gap outside the window, no
+  partner of the other role …).  The row gets no efficiency (empty, never 0),
+  does not pass and is sorted below every viable row; the flag's text is the
+  reason in plain words;
+- ``"fail"``: the pair is estimated but the row does not pass the screen (it is
+  still ranked and shown);
 - ``"info"``: the row is told something; it may still pass.
 
 ``FLAG_ORDER`` is the order of the codes in a ``flags`` cell (``;``-joined).
@@ -12,9 +18,9 @@ once. A flag's ``severity`` says what it does to a row:
 Examples
 --------
 >>> FLAGS["lumo_offset_low"].severity
-'fail'
->>> is_info("role_assumed")
-True
+'not_viable'
+>>> is_info("role_assumed"), is_not_viable("lumo_inverted")
+(True, True)
 >>> describe("lumo_offset_low", {"device": {"min_delta_lumo_ev": 0.3}})
 'LUMO offset to the partner below 0.30 eV — electron transfer from donor to acceptor is not assured'
 >>> describe("made_up_code")
@@ -26,9 +32,12 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-__all__ = ["Flag", "FLAGS", "FLAG_ORDER", "INFO_FLAGS", "DEVICE_FLAGS", "describe", "is_info", "codes_of"]
+import numpy as np
 
-SEVERITIES = ("fail", "info")
+__all__ = ["Flag", "FLAGS", "FLAG_ORDER", "INFO_FLAGS", "NOT_VIABLE_FLAGS", "DEVICE_FLAGS", "describe", "is_info",
+           "is_not_viable", "codes_of", "reason_of", "join_flags", "SEVERITIES"]
+
+SEVERITIES = ("not_viable", "fail", "info")
 
 
 @dataclass(frozen=True)
@@ -43,7 +52,7 @@ class Flag:
         Plain-words meaning; ``{min_lumo}``, ``{min_homo}``, ``{window}`` and
         ``{limit}`` are filled from the run's settings by :func:`describe`.
     severity : str
-        ``"fail"`` or ``"info"`` (see the module docstring).
+        ``"not_viable"``, ``"fail"`` or ``"info"`` (see the module docstring).
     """
 
     code: str
@@ -51,20 +60,43 @@ class Flag:
     severity: str = "fail"
 
 
+_NV = "not_viable"
+
 _REGISTRY = (
     Flag("same_role_as_partner", "same role as the partner (two donors or two acceptors), so the pair is not "
-                                 "a working blend"),
+                                 "a working blend", _NV),
+    Flag("role_unsupported", "no role given, and against this partner its levels support only the partner's own "
+                             "role, so there is no donor/acceptor pair", _NV),
+    Flag("no_type_ii_role", "no role given, and neither role gives a staggered (type-II) alignment with the "
+                            "partner", _NV),
     Flag("role_invalid", "the role given in the input is neither donor nor acceptor"),
     Flag("is_partner", "this row is the partner material itself"),
-    Flag("input_missing", "a level the device model needs is missing, so no efficiency could be estimated"),
+    Flag("input_missing", "a level the device model needs is missing, so no efficiency could be estimated", _NV),
+    Flag("absorber_gap_invalid", "the absorber's optical gap is not positive or lies beyond the solar spectrum "
+                                 "(above 4.4 eV), so nothing is absorbed", _NV),
+    Flag("lumo_inverted", "inverted alignment: the acceptor's LUMO is not below the donor's, so electrons cannot "
+                          "move from donor to acceptor", _NV),
+    Flag("homo_inverted", "inverted alignment: the donor's HOMO is not above the acceptor's, so holes cannot "
+                          "move from acceptor to donor", _NV),
     Flag("lumo_offset_low", "LUMO offset to the partner below {min_lumo} — electron transfer from donor to "
-                            "acceptor is not assured"),
+                            "acceptor is not assured", _NV),
     Flag("homo_offset_low", "HOMO offset to the partner below {min_homo} — hole transfer from acceptor to "
-                            "donor is not assured"),
-    Flag("voc_nonpositive", "no positive open-circuit voltage with this partner, so the efficiency is zero"),
-    Flag("gap_out_of_window", "optical gap outside the screening window{window}"),
+                            "donor is not assured", _NV),
+    Flag("voc_nonpositive", "no positive open-circuit voltage with this partner (the voltage loss exceeds the "
+                            "interface gap)", _NV),
+    Flag("gap_out_of_window", "optical gap outside the screening window{window}", _NV),
     Flag("too_many_heavy_atoms", "larger than the heavy-atom limit of this screen{limit}"),
+    Flag("voc_capped", "open-circuit voltage limited to the smallest optical gap of the pair (the model's value "
+                       "was above it)", "info"),
+    Flag("pce_capped", "efficiency limited to the detailed-balance (Shockley–Queisser) limit for the absorber "
+                       "gap", "info"),
+    Flag("loss_class_pooled", "acceptor class not known to the fitted model; the pooled voltage loss of all "
+                              "device classes was used", "info"),
+    Flag("donor_only_model", "published donor-only model: only the donor absorbs and only the LUMO offset is "
+                             "checked", "info"),
     Flag("heavy_atoms_unknown", "heavy-atom count unknown, so the size limit could not be checked", "info"),
+    Flag("role_from_levels", "no role given; evaluated in the role its levels support against the partner "
+                             "(type-II alignment)", "info"),
     Flag("role_assumed", "role not given in the input; assumed to complement the partner", "info"),
 )
 
@@ -74,8 +106,17 @@ FLAGS: dict[str, Flag] = {f.code: f for f in _REGISTRY}
 FLAG_ORDER: tuple[str, ...] = tuple(f.code for f in _REGISTRY)
 #: flags that inform without making a row fail
 INFO_FLAGS = frozenset(f.code for f in _REGISTRY if f.severity == "info")
-#: the flags the device model itself raises (the rest come from ranking filters)
-DEVICE_FLAGS = ("input_missing", "lumo_offset_low", "homo_offset_low", "voc_nonpositive")
+#: flags that make a pair not viable: no efficiency, sorted below every viable row
+NOT_VIABLE_FLAGS = frozenset(f.code for f in _REGISTRY if f.severity == _NV)
+#: the flags the device model itself raises (the rest come from ranking filters), in registry order
+DEVICE_FLAGS = ("input_missing", "absorber_gap_invalid", "lumo_inverted", "homo_inverted", "lumo_offset_low",
+                "homo_offset_low", "voc_nonpositive", "voc_capped", "pce_capped", "loss_class_pooled",
+                "donor_only_model")
+
+
+def is_not_viable(code: str) -> bool:
+    """True for a flag that makes a pair not viable (no efficiency)."""
+    return code in NOT_VIABLE_FLAGS
 
 
 def is_info(code: str) -> bool:
@@ -161,3 +202,47 @@ def describe(code: str, settings: dict | None = None) -> str:
         window=window,
         limit="" if math.isnan(limit) else f" ({int(limit)})",
     )
+
+
+def reason_of(cell, settings: dict | None = None) -> str:
+    """Plain-words reason a pair is not viable: the texts of its not-viable flags ('' if viable).
+
+    Examples
+    --------
+    >>> reason_of("lumo_inverted;role_from_levels")
+    "inverted alignment: the acceptor's LUMO is not below the donor's, so electrons cannot move from donor to acceptor"
+    >>> reason_of("role_assumed")
+    ''
+    """
+    return "; ".join(describe(c, settings) for c in codes_of(cell) if is_not_viable(c))
+
+
+def join_flags(masks: dict) -> np.ndarray:
+    """Per-element ``;``-joined codes of the raised flags.
+
+    Parameters
+    ----------
+    masks : dict of str to array_like of bool
+        One boolean mask per flag code (broadcast against each other).
+
+    Returns
+    -------
+    numpy.ndarray of object
+        ``''`` where no flag is raised; codes in :data:`screen.flags.FLAG_ORDER`
+        order (codes unknown to the registry last, in ``masks`` order).
+
+    Examples
+    --------
+    >>> join_flags({"voc_nonpositive": [True, False], "input_missing": [True, False]}).tolist()
+    ['input_missing;voc_nonpositive', '']
+    """
+    names = [k for k in FLAG_ORDER if k in masks] + [k for k in masks if k not in FLAGS]
+    shape = np.broadcast_shapes(*(np.shape(v) for v in masks.values()))
+    n = int(np.prod(shape, dtype=np.int64))
+    stacked = np.zeros((len(names), n), dtype=bool)
+    for row, name in zip(stacked, names):
+        row[:] = np.ravel(np.broadcast_to(np.asarray(masks[name], dtype=bool), shape))
+    out = np.full(n, "", dtype=object)
+    for j in np.flatnonzero(stacked.any(axis=0)):
+        out[j] = ";".join(name for name, raised in zip(names, stacked[:, j]) if raised)
+    return out.reshape(shape)

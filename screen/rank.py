@@ -1,12 +1,18 @@
-"""Ranking stage: partner offsets → Scharber device estimates → filters → ranking.
+"""Ranking stage: partner offsets → viability → device estimates → filters → ranking.
 
 Each candidate row of a levels table is paired with one partner material: a
-donor candidate with an acceptor partner and vice versa.  The pair's
-frontier-level offsets, open-circuit voltage, short-circuit current and
-efficiency come from :meth:`screen.device.DeviceModel.evaluate`; the spread of
-the efficiency caused by the level uncertainties (σ columns of the levels and
-of the partner) from :func:`screen.sampling.sample_pce`.  Everything is
-vectorised over the candidates.
+donor candidate with an acceptor partner and vice versa; a candidate without a
+role takes the role its levels support against the partner
+(:func:`screen.viability.role_from_levels`).  Every pair is classified before
+any efficiency is computed (:mod:`screen.viability`): a pair that is not viable
+(no type-II alignment, an offset below threshold, no positive Voc, a gap
+outside the window, the partner's own role …) gets no efficiency (empty, never
+0), says why in plain words (flags of severity ``not_viable``, column
+``reason``) and is sorted below every viable row.  The viable pairs get Voc, Jsc
+and efficiency from :meth:`screen.device.DeviceModel.evaluate` and the spread
+from the level uncertainties (each row's own σ columns and the partner's) from
+:func:`screen.sampling.sample_pce`.  Everything is vectorised over the
+candidates.
 
 Sign convention (both > 0 for a working type-II heterojunction):
 
@@ -16,39 +22,26 @@ Sign convention (both > 0 for a working type-II heterojunction):
     \\Delta_{HOMO} = E_{HOMO}^{D} - E_{HOMO}^{A}
 
 Energies are on the vacuum scale [eV]; levels and partner must be on the same
-scale (``film`` or ``gas``, design notes §2) or the ranking stops.
+scale (``film`` or ``gas``) or the ranking stops; impossible levels (positive
+HOMO, swapped HOMO/LUMO, a gap in nm …) stop it too
+(:mod:`screen.levels_check`).
 
 :func:`rank_candidates` runs these steps, one function each: the ranked rows
-(``status`` ok) and their arrays (:func:`_candidates`, σ checked), the partner's
-role and the candidates' roles (:func:`partner_role`, :func:`_roles`), the
-donor/acceptor pair arrays (:func:`_pair`), the device numbers
-(:meth:`screen.device.DeviceModel.evaluate`), the σ spread (:func:`_spread`),
-the flags (:func:`_flag_masks`, codes from :mod:`screen.flags`), the table
-(:func:`_ranking_frame`) and the order (:func:`_sort_ranking`).
-
-Flags (``;``-joined in the ``flags`` column).  All of them make a row fail
-except the informational ``role_assumed`` and ``heavy_atoms_unknown``:
-
-========================  ==========================================================
-``same_role_as_partner``  the candidate has the partner's role (no donor/acceptor pair;
-                          device numbers are left empty)
-``role_invalid``          the ``role`` column holds something other than donor/acceptor
-``is_partner``            the row is the partner itself (``id:`` partners)
-``input_missing``         a level the model or a filter needs is missing
-``lumo_offset_low``       ΔLUMO below ``device.min_delta_lumo_ev``
-``homo_offset_low``       ΔHOMO below ``device.min_delta_homo_ev`` (``absorber: both``)
-``voc_nonpositive``       Voc ≤ 0 (PCE is 0)
-``gap_out_of_window``     candidate optical gap outside [``rank.gap_min_ev``, ``rank.gap_max_ev``]
-``too_many_heavy_atoms``  more heavy atoms than ``rank.max_heavy_atoms``
-``heavy_atoms_unknown``   the heavy-atom filter is on but the count is unknown (no SMILES)
-``role_assumed``          no role given and no default: the partner's complement was used
-========================  ==========================================================
+and their arrays (:func:`_candidates`), the partner's role and the candidates'
+roles (:func:`partner_role`, :func:`_roles`), the donor/acceptor pair arrays and
+acceptor classes (:func:`_pair`), the device numbers
+(:meth:`screen.device.DeviceModel.evaluate`), the flags (:func:`_flag_masks`,
+codes and severities from :mod:`screen.flags`), the σ spread of the viable rows
+(:func:`_spread`), the table (:func:`_ranking_frame`) and the order
+(:func:`_sort_ranking`).  The flags and their severities are listed in
+:mod:`screen.flags`.
 
 References
 ----------
 .. [1] M. C. Scharber, D. Mühlbacher, M. Koppe, P. Denk, C. Waldauf,
    A. J. Heeger, C. J. Brabec, Adv. Mater. 18 (2006) 789.
    :doi:`10.1002/adma.200501717`
+.. [2] D. Veldman et al., Adv. Funct. Mater. 19 (2009) 1939. :doi:`10.1002/adfm.200801834`
 """
 
 from __future__ import annotations
@@ -60,12 +53,26 @@ import numpy as np
 import pandas as pd
 
 from screen.columns import RANKING_COLUMNS, RANKING_EXTRA_COLUMNS, SIGMA_COLUMNS
-from screen.device import DeviceModel, join_flags
-from screen.errors import ConfigError, InputError, ScaleMismatchError
-from screen.flags import FLAG_ORDER, INFO_FLAGS
+from screen.device import DeviceModel
+from screen.errors import ConfigError, ScaleMismatchError
+from screen.flags import (
+    DEVICE_FLAGS,
+    FLAG_ORDER,
+    INFO_FLAGS,
+    NOT_VIABLE_FLAGS,
+    join_flags,
+    reason_of,
+)
+from screen.levels_check import check_levels, check_partner
 from screen.partners import ROLES, Partner, PartnerError, complement
+from screen.rank_rows import heavy_atoms as _heavy_atoms
+from screen.rank_rows import numeric as _numeric
+from screen.rank_rows import ranked_mask as _ranked_mask
+from screen.rank_rows import split_ranked as _split_ranked
+from screen.rank_rows import text as _text
 from screen.sampling import sample_pce
 from screen.schema import resolve, section_defaults
+from screen.viability import acceptor_class_of, role_from_levels
 
 __all__ = [
     "RANKING_COLUMNS",
@@ -285,74 +292,31 @@ def partner_role(levels: pd.DataFrame, partner: Partner, options: RankOptions) -
 
 # --------------------------------------------------------------------------- reading the levels
 
-def _ranked_mask(levels: pd.DataFrame) -> np.ndarray:
-    """Rows that are ranked: status ok (files without a status column: every row)."""
-    if "status" not in levels:
-        return np.ones(len(levels), dtype=bool)
-    return levels["status"].fillna("").astype(str).str.strip().str.lower().eq("ok").to_numpy()
-
-
-def _split_ranked(levels_df: pd.DataFrame) -> tuple[pd.DataFrame, dict]:
-    """The ranked rows (index reset) and the counts of the others by status."""
-    ranked = _ranked_mask(levels_df)
-    not_ranked = {}
-    if "status" in levels_df:
-        st = levels_df.loc[~ranked, "status"].fillna("").astype(str)
-        not_ranked = {str(k): int(v) for k, v in st.value_counts().items()}
-    return levels_df[ranked].reset_index(drop=True), not_ranked
-
-
-def _numeric(levels: pd.DataFrame, col: str) -> np.ndarray:
-    if col not in levels:
-        return np.full(len(levels), np.nan)
-    return pd.to_numeric(levels[col], errors="coerce").to_numpy(dtype=float)
-
-
-def _text(levels: pd.DataFrame, col: str) -> np.ndarray:
-    if col not in levels:
-        return np.full(len(levels), "", dtype=object)
-    return levels[col].fillna("").astype(str).to_numpy(dtype=object)
-
-
-def _heavy_atoms(levels: pd.DataFrame) -> np.ndarray:
-    """Heavy-atom counts: the ``heavy_atoms`` column, else counted from SMILES (NaN if unknown)."""
-    heavy = _numeric(levels, "heavy_atoms")
-    todo = np.flatnonzero(np.isnan(heavy))
-    if todo.size:
-        smiles = _text(levels, "smiles")
-        from rdkit import Chem, rdBase
-
-        with rdBase.BlockLogs():
-            for i in todo:
-                mol = Chem.MolFromSmiles(smiles[i]) if smiles[i] else None
-                if mol is not None:
-                    heavy[i] = mol.GetNumHeavyAtoms()
-    return heavy
-
-
 @dataclass(frozen=True)
 class _Candidates:
-    """The ranked rows as arrays: ids, levels [eV] and σ [eV] (empty σ → 0)."""
+    """The ranked rows as arrays: ids, levels [eV], σ [eV] (empty σ → 0) and acceptor classes."""
 
     ids: np.ndarray
     homo: np.ndarray
     lumo: np.ndarray
     gap: np.ndarray
     sigma: dict
+    acceptor_class: np.ndarray
+
+
+def _acceptor_classes(lv: pd.DataFrame) -> np.ndarray:
+    """The ``acceptor_class`` column where given, else the class of the SMILES ('' if unknown)."""
+    given = _text(lv, "acceptor_class")
+    smiles = _text(lv, "smiles")
+    return np.array([g.strip() or acceptor_class_of(smi) for g, smi in zip(given, smiles)], dtype=object)
 
 
 def _candidates(lv: pd.DataFrame) -> _Candidates:
-    """Read ids, levels and σ columns; refuse a negative or infinite σ (:class:`InputError`)."""
+    """Read ids, levels, σ (empty → 0) and acceptor classes (levels already checked)."""
     ids = _text(lv, "id")
     homo, lumo, gap = (_numeric(lv, c) for c in ("homo_ev", "lumo_ev", "gap_opt_ev"))
-    sig = {c: _numeric(lv, c) for c in SIGMA_COLUMNS}
-    for c, s in sig.items():
-        bad = np.isfinite(s) & (s < 0) | np.isinf(s)
-        if bad.any():
-            raise InputError(f"levels column {c} has negative or infinite values (e.g. row id "
-                             f"{ids[np.flatnonzero(bad)[0]]!r}); σ must be finite and >= 0, empty = 0")
-        sig[c] = np.where(np.isnan(s), 0.0, s)
-    return _Candidates(ids, homo, lumo, gap, sig)
+    sig = {c: np.nan_to_num(_numeric(lv, c), nan=0.0) for c in SIGMA_COLUMNS}
+    return _Candidates(ids, homo, lumo, gap, sig, _acceptor_classes(lv))
 
 
 # --------------------------------------------------------------------------- steps of rank_candidates
@@ -361,24 +325,31 @@ def _candidates(lv: pd.DataFrame) -> _Candidates:
 class _Roles:
     """Role of every row and the role flags."""
 
-    role: np.ndarray          # 'donor' / 'acceptor' (object array)
+    role: np.ndarray              # 'donor' / 'acceptor' (object array)
     is_donor: np.ndarray
-    same_role: np.ndarray     # same role as the partner: no pair
-    role_invalid: np.ndarray  # the role column holds something else
-    role_assumed: np.ndarray  # no usable role and no default: the partner's complement
+    same_role: np.ndarray         # same role as the partner: no pair
+    role_invalid: np.ndarray      # the role column holds something else
+    role_assumed: np.ndarray      # invalid role and no default: the partner's complement
+    role_from_levels: np.ndarray  # no role: its levels support the partner's complement
+    role_unsupported: np.ndarray  # no role: its levels support only the partner's own role
+    no_type_ii_role: np.ndarray   # no role: neither role gives type II
 
 
-def _roles(lv: pd.DataFrame, p_role: str, options: RankOptions) -> _Roles:
-    """Roles from the ``role`` column (case and spaces ignored), else ``options.role``, else the complement of
-    the partner's."""
+def _roles(lv: pd.DataFrame, cand: _Candidates, partner: Partner, p_role: str, options: RankOptions) -> _Roles:
+    """Roles from the ``role`` column (case and spaces ignored), else ``options.role``; a row with neither is
+    evaluated as the partner's complement and told whether its levels support that role."""
     raw_role = np.char.lower(np.char.strip(_text(lv, "role").astype(str)))
     empty = raw_role == ""
     valid = np.isin(raw_role, ROLES)
     role_invalid = ~empty & ~valid
     default = options.role if options.role is not None else complement(p_role)
-    role_assumed = (empty | role_invalid) & (options.role is None)
+    no_role = (empty | role_invalid) & (options.role is None)
     role = np.where(valid, raw_role, default).astype(object)
-    return _Roles(role, role == "donor", role == p_role, role_invalid, role_assumed)
+    as_donor, as_acceptor = role_from_levels(cand.homo, cand.lumo, partner.homo_ev, partner.lumo_ev)
+    fits, other = (as_donor, as_acceptor) if default == "donor" else (as_acceptor, as_donor)
+    unsupported = no_role & ~fits & other
+    return _Roles(role, role == "donor", role == p_role, role_invalid, role_invalid & no_role,
+                  empty & no_role & fits, unsupported, no_role & ~fits & ~other)
 
 
 @dataclass(frozen=True)
@@ -387,6 +358,7 @@ class _Pair:
 
     levels: tuple
     sigmas: tuple
+    acceptor_class: np.ndarray
 
 
 def _pair(cand: _Candidates, is_donor: np.ndarray, partner: Partner, partner_sigma: bool) -> _Pair:
@@ -402,12 +374,14 @@ def _pair(cand: _Candidates, is_donor: np.ndarray, partner: Partner, partner_sig
     s_d_homo, s_a_homo = split(cand.sigma["homo_sigma_ev"], k * partner.homo_sigma_ev)
     s_d_lumo, s_a_lumo = split(cand.sigma["lumo_sigma_ev"], k * partner.lumo_sigma_ev)
     s_d_gap, s_a_gap = split(cand.sigma["gap_opt_sigma_ev"], k * partner.gap_opt_sigma_ev)
+    p_class = acceptor_class_of(partner.smiles) if partner.role != "donor" else ""
+    acc_class = np.where(is_donor, p_class, cand.acceptor_class).astype(object)
     return _Pair((d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap),
-                 (s_d_homo, s_d_lumo, s_d_gap, s_a_homo, s_a_lumo, s_a_gap))
+                 (s_d_homo, s_d_lumo, s_d_gap, s_a_homo, s_a_lumo, s_a_gap), acc_class)
 
 
 def _spread(model: DeviceModel, pair: _Pair, pair_ok: np.ndarray, options: RankOptions) -> dict:
-    """``pce_sigma_pct`` [%] and ``p_above_target`` of the rows with a pair (NaN elsewhere)."""
+    """``pce_sigma_pct`` [%] and ``p_above_target`` of the viable rows (NaN elsewhere); each row's own σ."""
     n = pair_ok.size
     mc = {"pce_sigma_pct": np.full(n, np.nan), "p_above_target": np.full(n, np.nan)}
     idx = np.flatnonzero(pair_ok)
@@ -418,7 +392,8 @@ def _spread(model: DeviceModel, pair: _Pair, pair_ok: np.ndarray, options: RankO
                        donor_homo_sigma_ev=s_d_homo, donor_lumo_sigma_ev=s_d_lumo,
                        donor_gap_sigma_ev=s_d_gap, acceptor_homo_sigma_ev=s_a_homo,
                        acceptor_lumo_sigma_ev=s_a_lumo, acceptor_gap_sigma_ev=s_a_gap,
-                       n_samples=options.n_samples, seed=options.seed, target_pct=options.target_pce_pct)
+                       n_samples=options.n_samples, seed=options.seed, target_pct=options.target_pce_pct,
+                       acceptor_class=pair.acceptor_class[idx])
         mc["pce_sigma_pct"][idx] = s["pce_sigma_pct"]
         mc["p_above_target"][idx] = s["p_above_target"]
     return mc
@@ -443,19 +418,30 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
     is_partner = np.zeros(n, dtype=bool)
     if partner.kind == "id":
         is_partner = cand.ids == partner.id
+    device = {code: np.asarray(dev[code], bool) & pair_ok for code in DEVICE_FLAGS}
+    device["input_missing"] = device["input_missing"] | cand_missing
     return {
-        "same_role_as_partner": roles.same_role,
+        "same_role_as_partner": roles.same_role & ~roles.role_unsupported,
+        "role_unsupported": roles.role_unsupported,
+        "no_type_ii_role": roles.no_type_ii_role,
         "role_invalid": roles.role_invalid,
         "is_partner": is_partner,
-        "input_missing": (np.asarray(dev["input_missing"], bool) & pair_ok) | cand_missing,
-        "lumo_offset_low": np.asarray(dev["lumo_offset_low"], bool) & pair_ok,
-        "homo_offset_low": np.asarray(dev["homo_offset_low"], bool) & pair_ok,
-        "voc_nonpositive": np.asarray(dev["voc_nonpositive"], bool) & pair_ok,
+        **device,
         "gap_out_of_window": gap_out,
         "too_many_heavy_atoms": heavy_out,
         "heavy_atoms_unknown": heavy_unknown,
+        "role_from_levels": roles.role_from_levels,
         "role_assumed": roles.role_assumed,
     }
+
+
+def _viable(masks: dict[str, np.ndarray]) -> np.ndarray:
+    """True where no flag of severity ``not_viable`` is raised."""
+    bad = np.zeros(next(iter(masks.values())).shape, dtype=bool)
+    for name, m in masks.items():
+        if name in NOT_VIABLE_FLAGS:
+            bad |= m
+    return ~bad
 
 
 def _passes(masks: dict[str, np.ndarray]) -> np.ndarray:
@@ -468,11 +454,18 @@ def _passes(masks: dict[str, np.ndarray]) -> np.ndarray:
 
 
 def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: Partner, dev: dict,
-                   spread: dict, masks: dict) -> pd.DataFrame:
-    """The unsorted ranking: contract columns then extras, numbers rounded to :data:`_ROUND` decimals."""
+                   spread: dict, masks: dict, model: DeviceModel, options: RankOptions) -> pd.DataFrame:
+    """The unsorted ranking: contract columns then extras, numbers rounded to :data:`_ROUND` decimals.
+
+    Offsets are kept for every row with a pair; Voc, Jsc, FF and PCE only for viable rows (empty otherwise)."""
     n = cand.ids.size
     pair_ok = ~roles.same_role
-    device = {key: np.where(pair_ok, np.asarray(dev[key], dtype=float), np.nan) for key in _DEVICE_NUMBERS}
+    viable = _viable(masks)
+    device = {key: np.where(pair_ok & (viable | key.startswith("delta")), np.asarray(dev[key], dtype=float),
+                            np.nan) for key in _DEVICE_NUMBERS}
+    flags = join_flags(masks)
+    settings = {"device": {k: model.value(k) for k in ("min_delta_lumo_ev", "min_delta_homo_ev")},
+                "rank": {"gap_min_ev": options.gap_min_ev, "gap_max_ev": options.gap_max_ev}}
     out = pd.DataFrame({
         "rank": np.zeros(n, dtype=int),
         "id": cand.ids,
@@ -486,9 +479,14 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
         "pce_sigma_pct": spread["pce_sigma_pct"],
         "p_above_target": spread["p_above_target"],
         "passes": _passes(masks),
-        "flags": join_flags(masks),
+        "flags": flags,
         "name": _text(lv, "name"),
         **{c: cand.sigma[c] for c in SIGMA_COLUMNS},
+        "viable": viable,
+        "reason": [reason_of(f, settings) for f in flags],
+        "model": np.where(pair_ok, model.model, ""),
+        "acceptor_class": np.where(pair_ok, pd.Series(dev["acceptor_class"]).astype(str), ""),
+        "absorber_gap_ev": np.where(pair_ok, np.asarray(dev["absorber_gap_ev"], dtype=float), np.nan),
     })
     for col in _ROUNDED:
         out[col] = out[col].round(_ROUND)
@@ -496,11 +494,11 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
 
 
 def _sort_ranking(out: pd.DataFrame, sort_by: str) -> pd.DataFrame:
-    """Passing rows first, then ``sort_by`` descending (NaN last; ``pce_pct`` breaks ties of
-    ``p_above_target``), then ``id``, then input order; ``rank`` = 1..n."""
-    keys = ["passes", sort_by] + (["pce_pct"] if sort_by != "pce_pct" else []) + ["id", "_order"]
+    """Passing rows first, then viable before not viable, then ``sort_by`` descending (NaN last; ``pce_pct``
+    breaks ties of ``p_above_target``), then ``id``, then input order; ``rank`` = 1..n."""
+    keys = ["passes", "viable", sort_by] + (["pce_pct"] if sort_by != "pce_pct" else []) + ["id", "_order"]
     out["_order"] = np.arange(len(out))
-    out = out.sort_values(keys, ascending=[False, False] + [False] * (len(keys) - 4) + [True, True],
+    out = out.sort_values(keys, ascending=[False, False, False] + [False] * (len(keys) - 5) + [True, True],
                           na_position="last", kind="stable").drop(columns="_order").reset_index(drop=True)
     out["rank"] = np.arange(1, len(out) + 1)
     return out
@@ -554,10 +552,11 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
 
     Notes
     -----
-    With ``model.absorber == 'donor'`` (the published model) the donor's gap
-    sets Jsc, so acceptor candidates ranked against a donor partner all get
-    the partner's Jsc; use ``absorber: both`` for absorbing acceptors.  The
-    reported ``pce_pct`` is the deterministic value at the mean levels;
+    With the default ``absorber: both`` the smaller optical gap of the pair
+    sets Jsc and both offsets are checked; with ``absorber: donor`` (the
+    published model) the donor's gap sets Jsc.  The reported ``pce_pct`` is
+    the deterministic value at the mean levels (empty for pairs that are not
+    viable);
     ``pce_sigma_pct`` and ``p_above_target`` come from independent normal
     errors on the candidate's and (with ``options.partner_sigma``) the
     partner's levels, sampled with common random numbers (see
@@ -573,13 +572,27 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     >>> from screen.partners import resolve_partner
     >>> lv = pd.DataFrame({"id": ["d1"], "homo_ev": [-5.4], "lumo_ev": [-3.9], "gap_opt_ev": [1.5],
     ...                    "scale": ["film"], "role": ["donor"]})
-    >>> r = rank_candidates(lv, resolve_partner("scharber-reference-acceptor"))
+    >>> published = DeviceModel(model="scharber", absorber="donor")
+    >>> r = rank_candidates(lv, resolve_partner("scharber-reference-acceptor"), published)
     >>> float(r.loc[0, "voc_v"]), round(float(r.loc[0, "pce_pct"]), 1), bool(r.loc[0, "passes"])
     (0.8, 9.8, True)
+
+    Against a donor partner, a candidate without a role whose levels lie above
+    the partner's (a donor itself) is not viable: no efficiency, the reason in
+    words, ranked last:
+
+    >>> lv = pd.DataFrame({"id": ["a1", "a2"], "homo_ev": [-5.7, -5.0], "lumo_ev": [-4.0, -3.2],
+    ...                    "gap_opt_ev": [1.5, 1.6], "scale": ["film"] * 2})
+    >>> r = rank_candidates(lv, resolve_partner("pm6"))
+    >>> r["id"].tolist(), r["viable"].tolist(), bool(np.isnan(r.loc[1, "pce_pct"]))
+    (['a1', 'a2'], [True, False], True)
+    >>> r.loc[1, "flags"]
+    'role_unsupported;lumo_inverted;homo_inverted'
     """
     model = DeviceModel() if model is None else model
     options = RankOptions() if options is None else options
     lv, not_ranked = _split_ranked(levels_df)
+    check_levels(levels_df[_ranked_mask(levels_df)], str(levels_df.attrs.get("source", "levels table")))
     p_role, p_role_assumed = partner_role(lv, partner, options)
     attrs = {"partner_role": p_role, "partner_role_assumed": p_role_assumed, "not_ranked": not_ranked}
     if len(lv) == 0:
@@ -587,13 +600,16 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
         out.attrs.update(attrs)
         return out
     check_scales(lv, partner)
+    check_partner(partner)
 
     cand = _candidates(lv)
-    roles = _roles(lv, p_role, options)
+    roles = _roles(lv, cand, partner, p_role, options)
     pair = _pair(cand, roles.is_donor, partner, options.partner_sigma)
-    dev = model.evaluate(*pair.levels)
-    spread = _spread(model, pair, ~roles.same_role, options)
+    dev = model.evaluate(*pair.levels, acceptor_class=pair.acceptor_class)
+    dev["acceptor_class"] = pair.acceptor_class
     masks = _flag_masks(lv, cand, roles, dev, partner, options)
-    out = _sort_ranking(_ranking_frame(lv, cand, roles, partner, dev, spread, masks), options.sort_by)
+    spread = _spread(model, pair, ~roles.same_role & _viable(masks), options)
+    out = _sort_ranking(_ranking_frame(lv, cand, roles, partner, dev, spread, masks, model, options),
+                        options.sort_by)
     out.attrs.update(attrs)
     return out

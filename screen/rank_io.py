@@ -198,9 +198,9 @@ def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, mo
         "device": model.as_dict(),
         "rank": asdict(options),
         "filters": {"gap_min_ev": options.gap_min_ev, "gap_max_ev": options.gap_max_ev,
-                    "max_heavy_atoms": options.max_heavy_atoms, "min_delta_lumo_ev": model.min_delta_lumo_ev,
-                    "min_delta_homo_ev": model.min_delta_homo_ev if model.absorber == "both" else None,
-                    "absorber": model.absorber},
+                    "max_heavy_atoms": options.max_heavy_atoms, "min_delta_lumo_ev": model.value("min_delta_lumo_ev"),
+                    "min_delta_homo_ev": model.value("min_delta_homo_ev") if model.absorber == "both" else None,
+                    "absorber": model.absorber, "model": model.model},
         "sign_convention": "delta_lumo_ev = LUMO_donor - LUMO_acceptor; delta_homo_ev = HOMO_donor - "
                            "HOMO_acceptor (both > 0 for a type-II heterojunction)",
         "levels": {"path": str(levels_path.resolve()), "sha256": sha256_file(levels_path),
@@ -271,6 +271,7 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     levels_path = Path(levels_path)
     out_dir = Path(out_dir)
     levels = read_levels(levels_path)
+    levels.attrs["source"] = str(levels_path)  # named in input errors (screen.levels_check)
     meta_in = _levels_meta(levels_path)
     partner = _partner(partner_spec, levels, levels_path, meta_in, out_dir, partner_levels)
     model = DeviceModel(**cfg["device"])

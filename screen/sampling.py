@@ -8,19 +8,24 @@ deviates (fixed seed) is shared by every pair, so a pair's result does not
 depend on the other pairs, their order or the block size, and differences
 between pairs carry less sampling noise.
 
-The work is cut into the steps of :func:`sample_pce`:
+The efficiency of every sample comes from the device model itself
+(:meth:`screen.device.DeviceModel.pce_from_levels`: classification, Voc and gap
+caps, detailed-balance cap), so the spread is that of the chosen model; a
+sample that is not viable counts as 0 %.  The work is cut into the steps of
+:func:`sample_pce`:
 
 1. :func:`_block_rows` — block size (pairs per block, cache-sized);
-2. :func:`_flat_pair` — flattened levels, σ (validated) and the missing mask;
-3. :func:`_anchors` — exact Jsc at the mean gap, Voc at the mean levels, PCE
-   factor;
-4. :func:`_pce_samples` — the efficiency samples of one block, in place;
+2. :func:`_flat_pair` — flattened levels, σ (validated), losses and the missing mask;
+3. :func:`_anchors` — per pair, the exact efficiency at the mean levels minus the
+   tabulated one (so that σ = 0 reproduces :meth:`DeviceModel.evaluate`);
+4. :func:`_pce_samples` — the efficiency samples of one block;
 5. :func:`_block_moments` — mean, σ and exceedance probability of one block.
 
 References
 ----------
 .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
    :doi:`10.1002/adma.200501717`
+.. [2] D. Veldman et al., Adv. Funct. Mater. 19 (2009) 1939. :doi:`10.1002/adfm.200801834`
 """
 
 from __future__ import annotations
@@ -31,7 +36,7 @@ from functools import lru_cache
 import numpy as np
 
 from screen.device import DeviceModel
-from screen.spectrum import as_output, jsc_ma_cm2
+from screen.spectrum import as_output, jsc_ma_cm2, sq_pce_pct
 
 __all__ = ["sample_pce", "DEFAULT_SEED", "DEFAULT_N_SAMPLES"]
 
@@ -41,7 +46,6 @@ DEFAULT_SEED = 20240601
 DEFAULT_N_SAMPLES = 2000
 #: rows of the normal-deviate table: donor HOMO, donor LUMO, donor gap, acceptor HOMO, acceptor LUMO, acceptor gap
 _Z_ROWS = 6
-_Z_DONOR_HOMO, _Z_DONOR_GAP, _Z_ACCEPTOR_LUMO, _Z_ACCEPTOR_GAP = 0, 2, 4, 5
 
 # Tabulated Jsc(E) used only inside the sampler (uniform grid in photon energy,
 # linear interpolation).  The sampler anchors every candidate on the exact value
@@ -51,10 +55,11 @@ _Z_DONOR_HOMO, _Z_DONOR_GAP, _Z_ACCEPTOR_LUMO, _Z_ACCEPTOR_GAP = 0, 2, 4, 5
 _TABLE_E_MIN_EV = 0.25
 _TABLE_E_MAX_EV = 4.50
 _TABLE_STEP_EV = 2.5e-4
-#: Default block of the sampler in samples (2**17 float64 = 1 MB per working
-#: array): small enough to stay in the CPU cache, which measured ~1.6x faster
-#: than 500-candidate blocks for 10 000 candidates x 2000 samples.
-_AUTO_CHUNK_ELEMENTS = 2**17
+#: Default block of the sampler in samples (2**14 float64 = 128 kB per working
+#: array): the device kernel keeps about ten such arrays alive, which then stay
+#: in the CPU cache; measured faster than 2**15 and 2**16 for 10 000 candidates
+#: x 2000 samples (benchmarks/rerank.py).
+_AUTO_CHUNK_ELEMENTS = 2**14
 #: Hard cap on the samples in one block, also for an explicit chunk_size (8 MB).
 _MAX_CHUNK_ELEMENTS = 1_000_000
 
@@ -63,46 +68,54 @@ _MAX_CHUNK_ELEMENTS = 1_000_000
 # Jsc table
 # --------------------------------------------------------------------------- #
 @lru_cache(maxsize=1)
-def _jsc_table():
-    """Jsc at EQE = 1 on a uniform photon-energy grid (for the sampler)."""
+def _tables():
+    """Jsc at EQE = 1 [mA cm⁻²] and the detailed-balance PCE [%] on a uniform photon-energy grid."""
     n = int(round((_TABLE_E_MAX_EV - _TABLE_E_MIN_EV) / _TABLE_STEP_EV)) + 1
     grid = _TABLE_E_MIN_EV + _TABLE_STEP_EV * np.arange(n)
-    tab = jsc_ma_cm2(grid, eqe=1.0)
-    step = np.diff(tab)
-    tab.setflags(write=False)
-    step.setflags(write=False)
-    return tab, step
+    out = []
+    for tab in (np.asarray(jsc_ma_cm2(grid, eqe=1.0), dtype=float), np.asarray(sq_pce_pct(grid), dtype=float)):
+        step = np.diff(tab)
+        tab.setflags(write=False)
+        step.setflags(write=False)
+        out.append((tab, step))
+    return tuple(out)
+
+
+def _jsc_table():
+    """Jsc at EQE = 1 on the sampler's grid: ``(values, steps)``."""
+    return _tables()[0]
+
+
+def _lookup(table, gap_ev) -> np.ndarray:
+    """Linear interpolation of a ``(values, steps)`` table at ``gap_ev`` (clipped to the grid)."""
+    tab, step = table
+    x = (np.asarray(gap_ev, dtype=float) - _TABLE_E_MIN_EV) * (1.0 / _TABLE_STEP_EV)
+    np.clip(x, 0.0, tab.size - 1 - 1e-9, out=x)
+    i = x.astype(np.intp)
+    x -= i
+    x *= step[i]
+    x += tab[i]
+    return x
 
 
 def _jsc_lookup_unit_eqe(gap_ev: np.ndarray, ibuf=None, tmp=None) -> np.ndarray:
-    """Table interpolation of Jsc(EQE=1) [mA cm⁻²], in place on ``gap_ev``.
+    """Table interpolation of Jsc(EQE=1) [mA cm⁻²] (``ibuf``, ``tmp`` kept for old callers, unused)."""
+    return _lookup(_tables()[0], gap_ev)
 
-    ``ibuf`` (intp) and ``tmp`` (float) are optional work arrays of the same
-    shape, so that repeated calls allocate nothing.
-    """
-    tab, step = _jsc_table()
-    x = gap_ev
-    if ibuf is None:
-        ibuf = np.empty(x.shape, dtype=np.intp)
-    if tmp is None:
-        tmp = np.empty(x.shape, dtype=float)
-    x -= _TABLE_E_MIN_EV
-    x *= 1.0 / _TABLE_STEP_EV
-    np.clip(x, 0.0, tab.size - 1 - 1e-9, out=x)
-    np.copyto(ibuf, x, casting="unsafe")  # truncation = floor for x >= 0
-    x -= ibuf
-    np.take(step, ibuf, out=tmp)
-    x *= tmp
-    np.take(tab, ibuf, out=tmp)
-    x += tmp
-    return x
+
+def _jsc_fast(gap_ev):
+    return _lookup(_tables()[0], gap_ev)
+
+
+def _sq_fast(gap_ev):
+    return _lookup(_tables()[1], gap_ev)
 
 
 # --------------------------------------------------------------------------- #
 # Steps of sample_pce
 # --------------------------------------------------------------------------- #
 def _block_rows(n_samples: int, chunk_size) -> int:
-    """Pairs per block: ~2**17 samples by default, at most 1e6 samples for an explicit ``chunk_size``."""
+    """Pairs per block: ~2**14 samples by default, at most 1e6 samples for an explicit ``chunk_size``."""
     if chunk_size is None:
         return max(1, _AUTO_CHUNK_ELEMENTS // n_samples)
     if int(chunk_size) < 1:
@@ -124,76 +137,66 @@ def _sigma(name, value, shape):
 
 @dataclass(frozen=True)
 class _FlatPair:
-    """Flattened pair levels [eV] and σ [eV] that enter the efficiency, and the rows that cannot be sampled."""
+    """Flattened pair levels and σ [eV] in :data:`screen.device.PAIR_LEVELS` order, losses [eV], missing rows."""
 
-    donor_homo: np.ndarray
-    donor_gap: np.ndarray
-    acceptor_lumo: np.ndarray
-    acceptor_gap: np.ndarray
-    s_donor_homo: np.ndarray
-    s_donor_gap: np.ndarray
-    s_acceptor_lumo: np.ndarray
-    s_acceptor_gap: np.ndarray
+    levels: tuple
+    sigmas: tuple
+    loss: np.ndarray
     missing: np.ndarray
-    both: bool
 
 
-def _flat_pair(model: DeviceModel, levels, shape, sigmas: dict) -> _FlatPair:
-    """Flatten the levels, mark missing rows, put placeholders into missing gaps and validate every σ.
+_SIGMA_NAMES = ("donor_homo_sigma_ev", "donor_lumo_sigma_ev", "donor_gap_sigma_ev", "acceptor_homo_sigma_ev",
+                "acceptor_lumo_sigma_ev", "acceptor_gap_sigma_ev")
 
-    ``sigmas`` maps the six ``*_sigma_ev`` argument names of :func:`sample_pce`
-    to their values.  The donor LUMO and acceptor HOMO do not enter the
-    efficiency; their σ are validated for consistency all the same.
+
+def _flat_pair(model: DeviceModel, levels, shape, sigmas: dict, acceptor_class=None) -> _FlatPair:
+    """Flatten the levels, validate every σ, look up the losses and mark rows with a missing level.
+
+    ``sigmas`` maps the six ``*_sigma_ev`` argument names of :func:`sample_pce` to their values.
     """
-    both = model.absorber == "both"
-    hd, _ld, gd, ha, la, ga = (np.broadcast_to(m, shape).ravel() for m in levels)
-    needed = [hd, gd, la] + ([ha, ga] if both else [])
-    missing = np.zeros(hd.size, dtype=bool)
-    for arr in needed:
-        missing |= np.isnan(arr)
-    # placeholders keep the table look-up finite; these rows are set to NaN at the end
-    gd = np.where(np.isnan(gd), 1.0, gd)
-    ga = np.where(np.isnan(ga), 1.0, ga)
-    checked = {name: _sigma(name, sigmas[name], shape)
-               for name in ("donor_homo_sigma_ev", "donor_gap_sigma_ev", "acceptor_lumo_sigma_ev",
-                            "acceptor_gap_sigma_ev", "donor_lumo_sigma_ev", "acceptor_homo_sigma_ev")}
-    return _FlatPair(hd, gd, la, ga, checked["donor_homo_sigma_ev"], checked["donor_gap_sigma_ev"],
-                     checked["acceptor_lumo_sigma_ev"], checked["acceptor_gap_sigma_ev"], missing, both)
+    flat = tuple(np.ascontiguousarray(np.broadcast_to(m, shape).ravel()) for m in levels)
+    checked = tuple(_sigma(name, sigmas[name], shape) for name in _SIGMA_NAMES)
+    loss, _pooled = model.loss_ev(acceptor_class)
+    loss = np.ascontiguousarray(np.broadcast_to(loss, shape).ravel())
+    missing = model.needed_missing(flat, flat[0].shape)
+    return _FlatPair(flat, checked, loss, missing)
 
 
 def _anchors(model: DeviceModel, pair: _FlatPair):
-    """Per-pair Jsc offset (exact minus table at the mean gap) [mA cm⁻²], mean Voc [V] and PCE factor."""
-    mean_gap = np.minimum(pair.donor_gap, pair.acceptor_gap) if pair.both else pair.donor_gap
-    jsc_anchor = jsc_ma_cm2(mean_gap, 1.0)  # exact Jsc at the mean gap, EQE = 1
-    table_anchor = _jsc_lookup_unit_eqe(np.array(mean_gap, dtype=float))
-    offset = jsc_anchor - table_anchor
-    voc_mean = pair.acceptor_lumo - pair.donor_homo - model.loss_v
-    k = model.eqe * model.pce_factor_pct()
-    return offset, voc_mean, k
+    """Exact-minus-tabulated efficiency at the mean levels [%], the viable rows and the exact efficiency [%]."""
+    exact = model.figures(pair.levels, pair.loss)
+    tab = model.pce_from_levels(pair.levels, pair.loss, jsc_unit=_jsc_fast, sq_pct=_sq_fast)
+    corr = np.where(np.isfinite(exact["pce_pct"]) & np.isfinite(tab), exact["pce_pct"] - tab, 0.0)
+    return np.asarray(corr, dtype=float), np.asarray(exact["viable"], dtype=bool), np.asarray(exact["pce_pct"])
 
 
-def _pce_samples(pair: _FlatPair, a: int, b: int, z, offset, voc_mean, k, work) -> np.ndarray:
-    """Efficiency samples [%] of pairs ``a:b`` (rows) × samples (columns), computed in the work arrays.
+def _sq_below_ev(model: DeviceModel) -> float:
+    """Gap above which the detailed-balance cap cannot bind [eV]: there PCE ≤ E_g · EQE · J_sc(E_g, EQE=1) · factor
+    (Voc ≤ the smallest gap ≤ the absorber gap, Jsc ≤ EQE · Jsc at EQE = 1) is below the limit on the whole table."""
+    (jt, _), (st, _) = _tables()
+    grid = _TABLE_E_MIN_EV + _TABLE_STEP_EV * np.arange(jt.size)
+    bound = grid * model.value("eqe") * jt * model.pce_factor_pct()
+    binds = np.flatnonzero(bound > st * (1 - 1e-9) + 1e-12)
+    return float(grid[binds[-1]] + 2 * _TABLE_STEP_EV) if binds.size else 0.0
 
-    ``work`` holds the float buffers ``(g, v, t)`` and the intp buffer ``ib``,
-    each at least ``b - a`` rows; the result is ``v``'s leading rows.
-    """
-    g, v, t, ib = (buf[: b - a] for buf in work)
-    np.multiply(pair.s_donor_gap[a:b, None], z[_Z_DONOR_GAP], out=g)
-    g += pair.donor_gap[a:b, None]
-    if pair.both:
-        np.multiply(pair.s_acceptor_gap[a:b, None], z[_Z_ACCEPTOR_GAP], out=t)
-        t += pair.acceptor_gap[a:b, None]
-        np.minimum(g, t, out=g)
-    jsc = _jsc_lookup_unit_eqe(g, ib, t)
-    jsc += offset[a:b, None]
-    np.multiply(pair.s_acceptor_lumo[a:b, None], z[_Z_ACCEPTOR_LUMO], out=v)
-    v += voc_mean[a:b, None]
-    np.multiply(pair.s_donor_homo[a:b, None], z[_Z_DONOR_HOMO], out=t)
-    v -= t
+
+def _pce_samples(model: DeviceModel, pair: _FlatPair, a: int, b: int, z, corr, sq_below=np.inf) -> np.ndarray:
+    """Efficiency samples [%] of pairs ``a:b`` (rows) × samples (columns); not viable samples are 0."""
+    sampled = []
+    for level, sigma, zk in zip(pair.levels, pair.sigmas, z):
+        s = sigma[a:b, None]
+        if np.any(s):
+            x = np.multiply(s, zk)
+            x += level[a:b, None]
+            sampled.append(x)
+        else:
+            sampled.append(level[a:b, None])
+    v = np.array(model.pce_from_levels(sampled, pair.loss[a:b, None], jsc_unit=_jsc_fast, sq_pct=_sq_fast,
+                                       sq_below_ev=sq_below), dtype=float)
+    if v.shape[1] != z.shape[1]:
+        v = np.repeat(v, z.shape[1], axis=1)
+    v += np.where(v > 0, corr[a:b, None], 0.0)
     np.maximum(v, 0.0, out=v)
-    v *= jsc
-    v *= k  # v now holds PCE samples [%]
     return v
 
 
@@ -235,6 +238,7 @@ def sample_pce(
     seed=DEFAULT_SEED,
     target_pct=10.0,
     chunk_size=None,
+    acceptor_class=None,
 ) -> dict:
     """Monte-Carlo spread of the efficiency from level uncertainties.
 
@@ -258,10 +262,12 @@ def sample_pce(
     target_pct : float, default 10.0
         Efficiency threshold for ``p_above_target``. [%]
     chunk_size : int or None, default None
-        Candidates processed per block.  None picks about 2**17 samples per
-        block (65 candidates at 2000 samples; ~1 MB per working array).  An
+        Candidates processed per block.  None picks about 2**14 samples per
+        block (8 candidates at 2000 samples; 128 kB per working array).  An
         explicit value is capped so that a block holds at most 1e6 samples.
         Results do not depend on it.
+    acceptor_class : array_like of str or None
+        Acceptor class per pair for the fitted model's loss (None: pooled).
 
     Returns
     -------
@@ -272,15 +278,16 @@ def sample_pce(
         - ``pce_sigma_pct`` : standard deviation of the samples (ddof=1) [%]
         - ``p_above_target`` : fraction of samples with PCE > ``target_pct``
 
-        NaN where an input level the model needs is NaN.
+        NaN where an input level the model needs is NaN or the pair is not
+        viable at its mean levels (no efficiency, so no spread either).
 
     Notes
     -----
     Each input level gets an independent normal error with its σ;
     correlations (e.g. HOMO and LUMO derived from the same calculation, or a
-    gap tied to HOMO−LUMO) are not modelled.  Voc of a sample is clipped at 0
-    like the deterministic value.  Offsets do not enter the efficiency and
-    are not sampled into flags.
+    gap tied to HOMO−LUMO) are not modelled.  Each sample goes through the
+    model's own classification: a sample that is not viable (e.g. an offset
+    sampled below its threshold) has efficiency 0.
 
     One table of standard normal deviates ``z`` (6 × ``n_samples``; rows:
     donor HOMO, donor LUMO, donor gap, acceptor HOMO, acceptor LUMO, acceptor
@@ -288,8 +295,9 @@ def sample_pce(
     uses ``level + σ·z`` (common random numbers).  A candidate's result is
     therefore independent of the other candidates, their order and the chunk
     size, and differences between candidates carry less sampling noise.
-    Sampled Jsc values are ``Jsc_exact(mean gap) + T(sampled gap) − T(mean
-    gap)`` with ``T`` a 0.25 meV-step table, so σ = 0 reproduces
+    Samples use 0.25 meV-step tables of Jsc and of the detailed-balance
+    limit; each pair's samples are shifted by the exact-minus-tabulated
+    efficiency at its mean levels, so σ = 0 reproduces
     :meth:`DeviceModel.evaluate` to rounding error.
 
     References
@@ -301,12 +309,19 @@ def sample_pce(
     --------
     >>> from screen.device import DeviceModel
     >>> from screen.sampling import sample_pce
-    >>> out = sample_pce(DeviceModel(), -5.4, -3.9, 1.5, acceptor_lumo_ev=-4.3,
-    ...                  donor_homo_sigma_ev=0.1, acceptor_lumo_sigma_ev=0.1,
-    ...                  donor_gap_sigma_ev=0.05, n_samples=4000)
-    >>> bool(1.5 < float(out["pce_sigma_pct"]) < 2.5)
-    True
-    >>> bool(0.2 < float(out["p_above_target"]) < 0.6)
+    >>> m = DeviceModel(model="scharber", absorber="donor", min_delta_lumo_ev=0.0)
+    >>> out = sample_pce(m, -5.4, -3.9, 1.5, acceptor_lumo_ev=-4.3, donor_homo_sigma_ev=0.1,
+    ...                  acceptor_lumo_sigma_ev=0.1, donor_gap_sigma_ev=0.05, n_samples=4000)
+    >>> bool(1.5 < float(out["pce_sigma_pct"]) < 2.5), bool(0.2 < float(out["p_above_target"]) < 0.6)
+    (True, True)
+
+    With the published 0.3 eV threshold, samples whose ΔLUMO falls below it
+    are not viable (0 %), which widens the spread:
+
+    >>> m = DeviceModel(model="scharber", absorber="donor")
+    >>> out2 = sample_pce(m, -5.4, -3.9, 1.5, acceptor_lumo_ev=-4.3, donor_homo_sigma_ev=0.1,
+    ...                   acceptor_lumo_sigma_ev=0.1, donor_gap_sigma_ev=0.05, n_samples=4000)
+    >>> bool(out2["pce_sigma_pct"] > out["pce_sigma_pct"])
     True
     """
     model = DeviceModel() if model is None else model
@@ -317,27 +332,28 @@ def sample_pce(
     rows = _block_rows(n_samples, chunk_size)
     levels, shape = model.pair_arrays(donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev,
                                       acceptor_lumo_ev, acceptor_gap_ev, "sample_pce()")
-    pair = _flat_pair(model, levels, shape, {
-        "donor_homo_sigma_ev": donor_homo_sigma_ev, "donor_lumo_sigma_ev": donor_lumo_sigma_ev,
-        "donor_gap_sigma_ev": donor_gap_sigma_ev, "acceptor_homo_sigma_ev": acceptor_homo_sigma_ev,
-        "acceptor_lumo_sigma_ev": acceptor_lumo_sigma_ev, "acceptor_gap_sigma_ev": acceptor_gap_sigma_ev})
+    if acceptor_class is not None:
+        shape = np.broadcast_shapes(shape, np.shape(acceptor_class))
+    pair = _flat_pair(model, levels, shape, dict(zip(_SIGMA_NAMES, (
+        donor_homo_sigma_ev, donor_lumo_sigma_ev, donor_gap_sigma_ev, acceptor_homo_sigma_ev,
+        acceptor_lumo_sigma_ev, acceptor_gap_sigma_ev))), acceptor_class)
     z = np.random.default_rng(seed).standard_normal((_Z_ROWS, n_samples))
-    offset, voc_mean, k = _anchors(model, pair)
+    corr, viable, exact = _anchors(model, pair)
     target = float(target_pct)
 
-    n = pair.donor_homo.size
-    out_mean, out_sigma, out_p = np.empty(n), np.empty(n), np.empty(n)
-    # work arrays reused by every block (no per-block allocation)
-    work = (np.empty((rows, n_samples)), np.empty((rows, n_samples)), np.empty((rows, n_samples)),
-            np.empty((rows, n_samples), dtype=np.intp))
-    for a in range(0, n, rows):
-        b = min(a + rows, n)
-        v = _pce_samples(pair, a, b, z, offset, voc_mean, k, work)
-        out_mean[a:b], out_sigma[a:b], out_p[a:b] = _block_moments(v, target, n_samples)
-
-    missing = pair.missing | ~np.isfinite(offset)  # e.g. a non-positive mean gap
-    for arr in (out_mean, out_sigma, out_p):
-        arr[missing] = np.nan
+    n = pair.loss.size
+    out_mean, out_sigma, out_p = np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan)
+    todo = viable & ~pair.missing
+    fixed = todo & ~np.any(np.vstack(pair.sigmas) > 0, axis=0)  # no uncertainty: nothing to sample
+    out_mean[fixed], out_sigma[fixed], out_p[fixed] = exact[fixed], 0.0, (exact[fixed] > target).astype(float)
+    idx = np.flatnonzero(todo & ~fixed)
+    sq_below = _sq_below_ev(model)
+    for start in range(0, idx.size, rows):
+        sel = idx[start:start + rows]
+        sub = _FlatPair(tuple(x[sel] for x in pair.levels), tuple(x[sel] for x in pair.sigmas), pair.loss[sel],
+                        pair.missing[sel])
+        v = _pce_samples(model, sub, 0, sel.size, z, corr[sel], sq_below)
+        out_mean[sel], out_sigma[sel], out_p[sel] = _block_moments(v, target, n_samples)
     return {
         "pce_mean_pct": as_output(out_mean.reshape(shape)),
         "pce_sigma_pct": as_output(out_sigma.reshape(shape)),

@@ -25,6 +25,10 @@ from screen.sampling import sample_pce
 from screen.schema import section_defaults
 
 
+#: the published donor-only model of Scharber et al., Adv. Mater. 18 (2006) 789, doi:10.1002/adma.200501717
+SCHARBER = DeviceModel(model="scharber", absorber="donor")
+
+
 @pytest.fixture(scope="module")
 def pin():
     return incident_power_w_m2()
@@ -154,14 +158,17 @@ def test_scharber_worked_case(pin):
     # inside the ~10 % contour. Our numbers: Jsc = 0.65 * 28.97 = 18.83 mA cm-2,
     # PCE = 0.8 * 188.3 A m-2 * 0.65 / 1000.37 W m-2 = 9.79 %.
     # Tolerance: +/- 0.5 % absolute, the resolution of reading a contour plot.
-    out = DeviceModel().evaluate(-5.4, -3.9, 1.5, -6.0, -4.3, 2.0)
+    out = SCHARBER.evaluate(-5.4, -3.9, 1.5, -6.0, -4.3, 2.0)
     assert out["voc_v"] == pytest.approx(0.8, abs=1e-12)
     assert out["delta_lumo_ev"] == pytest.approx(0.4)
     assert 9.5 <= out["pce_pct"] <= 10.5
     # assembly of the formula: PCE = Voc Jsc FF / Pin with Jsc in A m-2
     j_a_m2 = 0.65 * C.e * photon_flux_above_gap_m2_s(1.5)
     assert out["pce_pct"] == pytest.approx(100 * 0.8 * j_a_m2 * 0.65 / pin, rel=1e-12)
-    assert out["flags"] == "" and out["device_ok"]
+    assert out["flags"] == "donor_only_model" and out["viable"]
+    # the same pair with an absorbing acceptor (gap 2.0 eV > 1.5 eV, ΔHOMO 0.6 eV): same numbers
+    both = DeviceModel(model="scharber", absorber="both").evaluate(-5.4, -3.9, 1.5, -6.0, -4.3, 2.0)
+    assert both["pce_pct"] == pytest.approx(out["pce_pct"], rel=1e-12) and both["flags"] == ""
 
 
 def test_scharber_ten_percent_lumo_bound():
@@ -176,67 +183,76 @@ def test_scharber_ten_percent_lumo_bound():
     assert lumo_max == pytest.approx(-3.92, abs=0.02)
 
 
-def test_lumo_offset_flag():
-    m = DeviceModel()
+def test_lumo_offset_below_threshold_is_not_viable():
     lumo_d = np.array([-4.2, -4.05, -4.0, -3.9])  # dLUMO = 0.1, 0.25, 0.3, 0.4
-    out = m.evaluate(-5.4, lumo_d, 1.5, -6.0, -4.3, 2.0)
+    out = SCHARBER.evaluate(-5.4, lumo_d, 1.5, -6.0, -4.3, 2.0)
     assert out["lumo_offset_low"].tolist() == [True, True, False, False]
-    assert out["flags"].tolist() == ["lumo_offset_low", "lumo_offset_low", "", ""]
-    assert out["device_ok"].tolist() == [False, False, True, True]
-    # numbers are still computed, not zeroed
-    assert np.all(out["pce_pct"] > 5)
-    assert not out["homo_offset_low"].any()  # donor-only absorber: dHOMO not checked
+    assert out["flags"].tolist() == ["lumo_offset_low;donor_only_model"] * 2 + ["donor_only_model"] * 2
+    assert out["viable"].tolist() == [False, False, True, True]
+    # not viable: no numbers at all (empty, not zero); the offsets are still reported
+    assert np.isnan(out["pce_pct"][:2]).all() and np.isnan(out["voc_v"][:2]).all()
+    assert np.all(out["pce_pct"][2:] > 5) and out["delta_lumo_ev"][0] == pytest.approx(0.1)
+    assert not out["homo_offset_low"].any()  # donor-only absorber: ΔHOMO threshold not checked
     # configurable threshold
-    out2 = DeviceModel(min_delta_lumo_ev=0.1).evaluate(-5.4, lumo_d, 1.5, None, -4.3)
-    assert not out2["lumo_offset_low"].any()
+    out2 = DeviceModel(model="scharber", absorber="donor", min_delta_lumo_ev=0.1).evaluate(-5.4, lumo_d, 1.5, None,
+                                                                                           -4.3)
+    assert out2["viable"].all()
     assert np.all(np.isnan(out2["delta_homo_ev"]))
+
+
+def test_inverted_alignment_is_not_viable_in_both_models():
+    # ΔLUMO < 0 (acceptor LUMO above the donor's) and ΔHOMO < 0 (acceptor HOMO above the donor's)
+    for model in (SCHARBER, DeviceModel()):
+        out = model.evaluate(np.array([-5.4, -5.4]), np.array([-4.5, -3.6]), 1.5, np.array([-6.0, -5.2]), -4.3,
+                             1.4)
+        assert out["lumo_inverted"].tolist() == [True, False]
+        assert out["homo_inverted"].tolist() == [False, True]
+        assert not out["viable"].any() and np.isnan(out["pce_pct"]).all()
 
 
 def test_absorber_both_uses_lower_gap_and_checks_homo_offset():
     donor = dict(donor_homo_ev=-5.4, donor_lumo_ev=-3.7, donor_gap_ev=1.7)
     acc = dict(acceptor_lumo_ev=-4.1, acceptor_gap_ev=1.4)
-    d = DeviceModel(absorber="donor").evaluate(acceptor_homo_ev=-5.5, **donor, **acc)
-    b = DeviceModel(absorber="both").evaluate(acceptor_homo_ev=-5.5, **donor, **acc)
+    d = DeviceModel(model="scharber", absorber="donor").evaluate(acceptor_homo_ev=-5.8, **donor, **acc)
+    b = DeviceModel(model="scharber", absorber="both").evaluate(acceptor_homo_ev=-5.8, **donor, **acc)
     assert d["absorber_gap_ev"] == 1.7 and b["absorber_gap_ev"] == 1.4
-    assert b["jsc_ma_cm2"] == pytest.approx(jsc_ma_cm2(1.4))
+    assert b["jsc_ma_cm2"] == pytest.approx(0.65 * jsc_ma_cm2(1.4, 1.0))
     assert b["jsc_ma_cm2"] > d["jsc_ma_cm2"]
-    assert b["voc_v"] == d["voc_v"]
-    # dHOMO = -5.4 - (-5.5) = 0.1 < 0.3: only flagged under 'both'
+    assert b["voc_v"] == d["voc_v"] and b["viable"] and d["viable"]
+    # dHOMO = -5.4 - (-5.5) = 0.1 < 0.3: not viable under 'both'; type II is enough under 'donor'
+    b = DeviceModel(model="scharber", absorber="both").evaluate(acceptor_homo_ev=-5.5, **donor, **acc)
+    d = DeviceModel(model="scharber", absorber="donor").evaluate(acceptor_homo_ev=-5.5, **donor, **acc)
     assert b["delta_homo_ev"] == pytest.approx(0.1)
-    assert b["homo_offset_low"] and not d["homo_offset_low"]
-    assert b["flags"] == "homo_offset_low"
-    ok = DeviceModel(absorber="both").evaluate(acceptor_homo_ev=-5.8, **donor, **acc)
-    assert not ok["homo_offset_low"] and ok["device_ok"]
+    assert b["homo_offset_low"] and not b["viable"] and np.isnan(b["pce_pct"])
+    assert d["viable"] and not d["homo_offset_low"]
     # the donor gap sets Jsc under 'both' when it is the lower one
-    low_donor = DeviceModel(absorber="both").evaluate(-5.4, -3.7, 1.3, -5.8, -4.1, 1.6)
+    low_donor = DeviceModel(model="scharber", absorber="both").evaluate(-5.4, -3.7, 1.3, -5.8, -4.1, 1.6)
     assert low_donor["absorber_gap_ev"] == 1.3
     with pytest.raises(ValueError, match="absorber='both'"):
         DeviceModel(absorber="both").evaluate(-5.4, -3.7, 1.7, None, -4.1, None)
 
 
-def test_voc_nonpositive_flag_and_missing_inputs():
-    out = DeviceModel().evaluate(
-        np.array([-4.5, np.nan, -5.4]), -3.9, np.array([1.5, 1.5, np.nan]), None, -4.3
-    )
+def test_voc_nonpositive_and_missing_inputs_are_not_viable():
+    out = SCHARBER.evaluate(np.array([-4.5, np.nan, -5.4]), -3.9, np.array([1.5, 1.5, np.nan]), None, -4.3)
     assert out["voc_nonpositive"].tolist() == [True, False, False]
-    assert out["voc_v"][0] == 0.0 and out["pce_pct"][0] == 0.0
+    assert np.isnan(out["voc_v"][0]) and np.isnan(out["pce_pct"][0])
     assert out["input_missing"].tolist() == [False, True, True]
-    assert np.isnan(out["pce_pct"][1]) and np.isnan(out["pce_pct"][2])
-    assert out["flags"].tolist() == ["voc_nonpositive", "input_missing", "input_missing"]
+    assert np.isnan(out["pce_pct"]).all() and not out["viable"].any()
+    assert [f.split(";")[0] for f in out["flags"]] == ["voc_nonpositive", "input_missing", "input_missing"]
 
 
 def test_broadcasting_candidates_against_one_partner():
     homo = np.array([-5.0, -5.2, -5.4])
-    out = DeviceModel().evaluate(homo, homo + 1.5, 1.5, -6.0, -4.3, 2.0)
-    for key in ("voc_v", "jsc_ma_cm2", "pce_pct", "ff", "flags", "device_ok"):
+    out = SCHARBER.evaluate(homo, homo + 1.5, 1.5, -6.0, -4.3, 2.0)
+    for key in ("voc_v", "jsc_ma_cm2", "pce_pct", "ff", "flags", "viable"):
         assert np.shape(out[key]) == (3,)
     assert np.all(np.diff(out["pce_pct"]) > 0)  # deeper HOMO, larger Voc, same Jsc
 
 
 @pytest.mark.parametrize(
     "kwargs",
-    [dict(eqe=0.0), dict(eqe=1.5), dict(ff=-0.1), dict(absorber="acceptor"),
-     dict(loss_v=float("nan")), dict(pin_w_m2=0.0), dict(eqe="0.6")],
+    [dict(eqe=0.0), dict(eqe=1.5), dict(ff=-0.1), dict(absorber="acceptor"), dict(model="published"),
+     dict(loss_v=float("nan")), dict(loss_v=-0.1), dict(pin_w_m2=0.0), dict(eqe="0.6")],
 )
 def test_device_model_rejects_bad_configuration(kwargs):
     with pytest.raises(ConfigError, match="DeviceModel"):
@@ -244,17 +260,19 @@ def test_device_model_rejects_bad_configuration(kwargs):
 
 
 def test_device_model_defaults_are_the_schema_defaults():
-    # the schema's device section is the one source of the defaults; pin_w_m2 is a Python-only field
+    # the schema's device section is the one source of the defaults; pin_w_m2 and parameters are Python-only
     fields = {f.name: f.default for f in dataclasses.fields(DeviceModel)}
     schema = section_defaults("device")
-    assert set(fields) == set(schema) | {"pin_w_m2"} and fields["pin_w_m2"] is None
+    assert set(fields) == set(schema) | {"pin_w_m2", "parameters"} and fields["pin_w_m2"] is None
     assert {k: fields[k] for k in schema} == schema
+    assert schema["model"] == "fitted" and schema["absorber"] == "both"
     # Scharber et al., Adv. Mater. 18 (2006) 789, doi:10.1002/adma.200501717: EQE = FF = 0.65, 0.3 V, 0.3 eV
-    assert (schema["eqe"], schema["ff"], schema["loss_v"], schema["min_delta_lumo_ev"]) == (0.65, 0.65, 0.3, 0.3)
+    assert [SCHARBER.value(k) for k in ("eqe", "ff", "loss_v", "min_delta_lumo_ev")] == [0.65, 0.65, 0.3, 0.3]
 
 
 def test_device_flags_come_from_the_registry():
-    out = DeviceModel(absorber="both").evaluate(np.array([-4.5, np.nan]), -3.9, 1.5, -4.6, -4.3, 2.0)
+    out = DeviceModel(model="scharber", absorber="both").evaluate(np.array([-4.5, np.nan]), -3.9, 1.5, -4.6, -4.3,
+                                                                  2.0)
     assert [k for k in out if k in FLAG_ORDER] == list(DEVICE_FLAGS)
     assert out["flags"].tolist() == ["homo_offset_low;voc_nonpositive", "input_missing"]
     # codes are written in registry order whatever the order of the masks
@@ -270,10 +288,11 @@ def test_spectrum_names_are_re_exported_by_device():
 
 
 def test_pin_override_and_provenance():
-    a = DeviceModel().evaluate(-5.4, -3.9, 1.5, None, -4.3)
-    b = DeviceModel(pin_w_m2=1000.0).evaluate(-5.4, -3.9, 1.5, None, -4.3)
+    a = SCHARBER.evaluate(-5.4, -3.9, 1.5, None, -4.3)
+    b = DeviceModel(model="scharber", absorber="donor", pin_w_m2=1000.0).evaluate(-5.4, -3.9, 1.5, None, -4.3)
     assert b["pce_pct"] == pytest.approx(a["pce_pct"] * incident_power_w_m2() / 1000.0)
     meta = DeviceModel().as_dict()
+    assert meta["model"] == "fitted" and meta["fitted"]["devices_sha256"]
     assert meta["incident_power_w_m2"] == pytest.approx(1000.37, abs=0.01)
     assert "G173" in meta["spectrum"]
 
@@ -289,10 +308,11 @@ def test_efficiency_map_matches_pointwise_evaluation():
     for i, g in enumerate(gaps):
         for j, dl in enumerate(offsets):
             lumo_d = -4.3 + dl
-            ref = DeviceModel().evaluate(lumo_d - g, lumo_d, g, None, -4.3)["pce_pct"]
-            assert pce[i, j] == pytest.approx(ref, rel=1e-12)
+            ref = SCHARBER.evaluate(lumo_d - g, lumo_d, g, None, -4.3)["pce_pct"]
+            assert pce[i, j] == pytest.approx(ref, rel=1e-12, nan_ok=True)
+    assert np.isnan(pce[:, 0]).all()  # ΔLUMO 0.2 eV < 0.3 eV: masked (not viable)
     # a larger offset costs Voc at fixed gap
-    assert np.all(np.diff(pce, axis=1) < 0)
+    assert np.all(np.diff(pce[:, 1:], axis=1) < 0)
     with pytest.raises(ValueError):
         efficiency_map(gaps, offsets, DeviceModel(absorber="both"))
 
@@ -311,7 +331,7 @@ LEVELS = dict(
 
 
 def test_zero_sigma_reproduces_deterministic_model():
-    m = DeviceModel()
+    m = SCHARBER
     det = m.evaluate(*LEVELS.values())
     out = sample_pce(m, **LEVELS, target_pct=9.0, n_samples=500)
     np.testing.assert_array_equal(out["pce_sigma_pct"], 0.0)
@@ -362,7 +382,7 @@ def test_voc_only_uncertainty_against_normal_theory():
     # (Voc < 0 has probability ~1e-15), so sigma_PCE = c * s and
     # P(PCE > t) = 1 - Phi((t/c - 0.8)/s). MC error with 2000 samples: ~1.6 % on
     # sigma, ~0.011 on p (binomial); tolerances are ~3 standard errors.
-    m = DeviceModel()
+    m = DeviceModel(model="scharber", absorber="donor", min_delta_lumo_ev=0.0)  # no threshold inside ±3σ
     det = m.evaluate(-5.4, -3.9, 1.5, None, -4.3)
     c = det["pce_pct"] / 0.8
     s = np.hypot(0.1, 0.05)
@@ -375,7 +395,7 @@ def test_voc_only_uncertainty_against_normal_theory():
 
 
 def test_sampling_both_absorber_and_missing_levels():
-    m = DeviceModel(absorber="both")
+    m = DeviceModel(absorber="both")  # the fitted default
     out = sample_pce(
         m, np.array([-5.4, np.nan]), -3.7, 1.7, -5.8, -4.1, 1.4,
         acceptor_gap_sigma_ev=0.1, donor_gap_sigma_ev=0.1, n_samples=400,
@@ -394,14 +414,16 @@ def test_ranking_scale_run_spans_several_blocks():
     gap = rng.uniform(1.2, 2.4, n)
     lumo = homo + gap + rng.uniform(0, 0.3, n)
     sig = np.full(n, 0.12)
-    m = DeviceModel()
+    m = SCHARBER
     det = m.evaluate(homo, lumo, gap, None, -4.3)
     out = sample_pce(m, homo, lumo, gap, None, -4.3, donor_homo_sigma_ev=sig,
                      donor_lumo_sigma_ev=sig, donor_gap_sigma_ev=sig,
                      acceptor_lumo_sigma_ev=0.05, n_samples=2000)
-    assert out["pce_sigma_pct"].shape == (n,) and np.all(np.isfinite(det["pce_pct"]))
-    assert np.all(np.isfinite(out["pce_sigma_pct"])) and np.all(out["pce_sigma_pct"] > 0)
-    for i in (0, 4321, n - 1):  # first block, a middle block, the last (partial) block
-        one = sample_pce(m, homo[i], lumo[i], gap[i], None, -4.3, donor_homo_sigma_ev=0.12,
+    ok = det["viable"]
+    assert out["pce_sigma_pct"].shape == (n,) and 0.5 * n < ok.sum() < n
+    assert np.all(np.isfinite(det["pce_pct"][ok])) and np.all(np.isnan(out["pce_sigma_pct"][~ok]))
+    assert np.all(np.isfinite(out["pce_sigma_pct"][ok])) and np.all(out["pce_sigma_pct"][ok] > 0)
+    for i in np.flatnonzero(ok)[[0, 4321, -1]]:  # first block, a middle block, the last (partial) block
+        one = sample_pce(m, homo[i], lumo[i], gap[i], None, -4.3, donor_homo_sigma_ev=0.12, donor_lumo_sigma_ev=0.12,
                          donor_gap_sigma_ev=0.12, acceptor_lumo_sigma_ev=0.05, n_samples=2000)
         assert one["pce_sigma_pct"] == pytest.approx(out["pce_sigma_pct"][i], abs=1e-12)

@@ -25,6 +25,10 @@ from screen.rank_io import run_rank
 from screen.schema import section_defaults
 
 REF = "scharber-reference-acceptor"
+#: the published donor-only model (Scharber et al., Adv. Mater. 18 (2006) 789, doi:10.1002/adma.200501717)
+PUBLISHED = DeviceModel(model="scharber", absorber="donor")
+#: the same through a run configuration
+PUBLISHED_CFG = {"device": {"model": "scharber", "absorber": "donor"}}
 #: the ranking.csv contract of shared/design.md §3, written out independently of the module
 CONTRACT = ["rank", "id", "smiles", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "partner", "delta_lumo_ev",
             "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "pce_sigma_pct", "p_above_target", "passes",
@@ -39,8 +43,13 @@ def _levels(rows, **common):
     return frame
 
 
+#: informational flags that only say which model was used
+MODEL_NOTES = {"donor_only_model", "loss_class_pooled"}
+
+
 def _flags(ranking, ident):
-    return set(filter(None, ranking.set_index("id").loc[ident, "flags"].split(";")))
+    """Flag codes of one row, without the model notes."""
+    return set(filter(None, ranking.set_index("id").loc[ident, "flags"].split(";"))) - MODEL_NOTES
 
 
 @pytest.fixture(scope="module")
@@ -56,13 +65,13 @@ def test_scharber_worked_case(partner):
     # (the published rule, exact arithmetic) and close to 10 % efficiency on the paper's map
     # (# from memory); the ASTM G173-03 integral of screen.device gives 9.79 %.
     lv = _levels([{"id": "scharber-donor", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "role": "donor"}])
-    r = rank_candidates(lv, partner, DeviceModel(), RankOptions())
+    r = rank_candidates(lv, partner, PUBLISHED, RankOptions())
     row = r.iloc[0]
     assert row["voc_v"] == pytest.approx(0.80, abs=1e-9)
     assert row["pce_pct"] == pytest.approx(9.8, abs=0.05)
     assert row["delta_lumo_ev"] == pytest.approx(0.4) and row["delta_homo_ev"] == pytest.approx(0.7)
-    assert row["ff"] == 0.65 and bool(row["passes"]) and row["flags"] == ""
-    assert row["partner"] == REF
+    assert row["ff"] == 0.65 and bool(row["passes"]) and row["flags"] == "donor_only_model"
+    assert row["partner"] == REF and row["model"] == "scharber" and row["viable"]
 
 
 def test_sub_threshold_lumo_offset_is_flagged_and_fails(partner):
@@ -70,25 +79,33 @@ def test_sub_threshold_lumo_offset_is_flagged_and_fails(partner):
         {"id": "low", "homo_ev": -5.3, "lumo_ev": -4.1, "gap_opt_ev": 1.2, "role": "donor"},   # ΔLUMO 0.2
         {"id": "edge", "homo_ev": -5.3, "lumo_ev": -4.0, "gap_opt_ev": 1.3, "role": "donor"},  # ΔLUMO 0.3 (fp)
     ])
-    r = rank_candidates(lv, partner)
+    r = rank_candidates(lv, partner, PUBLISHED)
     by = r.set_index("id")
     assert by.loc["low", "delta_lumo_ev"] == pytest.approx(0.2)
     assert _flags(r, "low") == {"lumo_offset_low"} and not by.loc["low", "passes"]
     assert _flags(r, "edge") == set() and by.loc["edge", "passes"]
-    assert list(r["id"]) == ["edge", "low"]  # failing rows after passing ones, whatever their PCE
-    assert by.loc["low", "pce_pct"] > by.loc["edge", "pce_pct"]
+    assert list(r["id"]) == ["edge", "low"]  # not viable after viable, whatever its levels
+    assert np.isnan(by.loc["low", "pce_pct"]) and not by.loc["low", "viable"]
+    assert by.loc["low", "reason"].startswith("LUMO offset to the partner below 0.30 eV")
 
 
 def test_acceptor_candidates_against_a_donor_partner():
     donor = resolve_partner("pm6")
-    lv = _levels([{"id": "nfa", "homo_ev": -5.7, "lumo_ev": -4.05, "gap_opt_ev": 1.4, "role": "acceptor"}])
-    r = rank_candidates(lv, donor, DeviceModel(absorber="both"))
+    lv = _levels([{"id": "nfa", "homo_ev": -5.8, "lumo_ev": -4.05, "gap_opt_ev": 1.4, "role": "acceptor"}])
+    r = rank_candidates(lv, donor, DeviceModel(model="scharber", absorber="both"), RankOptions(partner_sigma=False))
     row = r.iloc[0]
     # sign convention: Δ = donor − acceptor, here the donor is the partner
     assert row["delta_lumo_ev"] == pytest.approx(donor.lumo_ev - (-4.05))
-    assert row["delta_homo_ev"] == pytest.approx(donor.homo_ev - (-5.7))
+    assert row["delta_homo_ev"] == pytest.approx(donor.homo_ev - (-5.8))
     assert row["voc_v"] == pytest.approx(-4.05 - donor.homo_ev - 0.3)
-    assert row["role"] == "acceptor"
+    assert row["role"] == "acceptor" and row["viable"]
+    # the fitted default: Voc = min(LUMO_A − HOMO_D, smaller gap) − loss of the acceptor's class (pooled here)
+    from screen.devicepars import load_fitted
+
+    fit = rank_candidates(lv, donor).iloc[0]
+    loss = load_fitted().loss_ev["pooled"]
+    assert fit["voc_v"] == pytest.approx(min(-4.05 - donor.homo_ev, 1.4) - loss, abs=1e-4)
+    assert fit["model"] == "fitted" and "loss_class_pooled" in fit["flags"]
 
 
 def test_scale_mismatch_is_refused_naming_both_scales():
@@ -136,7 +153,7 @@ def test_sorting_passing_first_then_key_then_id(partner):
         {"id": "worse", "homo_ev": -5.6, "lumo_ev": -3.5, "gap_opt_ev": 2.1},
         {"id": "missing", "homo_ev": np.nan, "lumo_ev": -3.5, "gap_opt_ev": 2.0},
     ]
-    r = rank_candidates(_levels(rows, role="donor"), partner)
+    r = rank_candidates(_levels(rows, role="donor"), partner, PUBLISHED)
     assert r["rank"].tolist() == list(range(1, 7))
     passing = r[r["passes"]]
     assert passing["pce_pct"].is_monotonic_decreasing
@@ -149,7 +166,7 @@ def test_sort_by_probability(partner):
             {"id": "gamble", "homo_ev": -5.45, "lumo_ev": -3.9, "gap_opt_ev": 1.55, "homo_sigma_ev": 0.3}]
     lv = _levels(rows, role="donor")
     opts = RankOptions(sort_by="p_above_target", target_pce_pct=9.0, partner_sigma=False)
-    r = rank_candidates(lv, partner, options=opts)
+    r = rank_candidates(lv, partner, PUBLISHED, options=opts)
     assert r["p_above_target"].is_monotonic_decreasing
     assert r.set_index("id").loc["sure", "p_above_target"] == 1.0
 
@@ -164,28 +181,49 @@ def test_same_role_as_partner_is_flagged(partner):
     assert by.loc["don", "role"] == "donor" and by.loc["don", "passes"]
 
 
-def test_role_assumed_and_default_role(partner):
+def test_role_from_levels_and_default_role(partner):
     lv = _levels([{"id": "x", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "role": ""}])
-    r = rank_candidates(lv, partner)
-    assert r.loc[0, "role"] == "donor" and _flags(r, "x") == {"role_assumed"} and r.loc[0, "passes"]
-    r = rank_candidates(lv, partner, options=RankOptions(role="donor"))
-    assert r.loc[0, "flags"] == ""
-    r = rank_candidates(lv.drop(columns="role"), partner, options=RankOptions(role="acceptor"))
-    assert _flags(r, "x") == {"same_role_as_partner"}
-    r = rank_candidates(lv.assign(role="dye"), partner)
+    r = rank_candidates(lv, partner, PUBLISHED)
+    assert r.loc[0, "role"] == "donor" and _flags(r, "x") == {"role_from_levels"} and r.loc[0, "passes"]
+    r = rank_candidates(lv, partner, PUBLISHED, options=RankOptions(role="donor"))
+    assert _flags(r, "x") == set()
+    r = rank_candidates(lv.drop(columns="role"), partner, PUBLISHED, options=RankOptions(role="acceptor"))
+    assert _flags(r, "x") == {"same_role_as_partner"} and not r.loc[0, "viable"] and np.isnan(r.loc[0, "pce_pct"])
+    r = rank_candidates(lv.assign(role="dye"), partner, PUBLISHED)
     assert _flags(r, "x") == {"role_invalid", "role_assumed"} and not r.loc[0, "passes"]
 
 
+def test_candidate_without_role_takes_the_role_its_levels_support():
+    # the issue's case: a candidate with a shallow LUMO (-2.0 eV) and no role against a polymer donor partner
+    # (PM6, LUMO -3.65 eV): as an acceptor ΔLUMO = -1.65 eV (inverted), so it is not viable, never ranked above
+    # a working acceptor, and has no efficiency at all
+    pm6 = resolve_partner("pm6")
+    lv = _levels([{"id": "shallow", "homo_ev": -5.0, "lumo_ev": -2.0, "gap_opt_ev": 2.9},
+                  {"id": "nfa", "homo_ev": -5.7, "lumo_ev": -4.0, "gap_opt_ev": 1.5},
+                  {"id": "deep", "homo_ev": -5.3, "lumo_ev": -4.2, "gap_opt_ev": 1.1}])
+    for model in (DeviceModel(), PUBLISHED):
+        r = rank_candidates(lv, pm6, model).set_index("id")
+        assert r.index.tolist()[0] == "nfa" and r.loc["nfa", "viable"]
+        assert "role_from_levels" in _flags(r.reset_index(), "nfa")
+        assert {"role_unsupported", "lumo_inverted"} <= _flags(r.reset_index(), "shallow")
+        # HOMO above the donor's, LUMO below: neither role is type II
+        assert "no_type_ii_role" in _flags(r.reset_index(), "deep")
+        for ident in ("shallow", "deep"):
+            assert not r.loc[ident, "viable"] and not r.loc[ident, "passes"]
+            assert np.isnan(r.loc[ident, ["voc_v", "jsc_ma_cm2", "pce_pct", "pce_sigma_pct"]].astype(float)).all()
+            assert r.loc[ident, "reason"]
+
+
 def test_sigma_zero_gives_probability_zero_or_one(partner):
-    gaps = np.linspace(1.1, 2.2, 12)
+    gaps = np.linspace(1.1, 2.1, 12)  # HOMO -5.0 .. -6.0 eV, all above the partner's -6.1 eV (type II)
     lv = _levels({"id": [f"c{i:02d}" for i in range(12)], "homo_ev": -3.9 - gaps, "lumo_ev": -3.9,
                   "gap_opt_ev": gaps})
-    r = rank_candidates(lv, partner, options=RankOptions(partner_sigma=False, target_pce_pct=9.0))
+    r = rank_candidates(lv, partner, PUBLISHED, options=RankOptions(partner_sigma=False, target_pce_pct=9.0))
     assert set(r["p_above_target"]) <= {0.0, 1.0}
     assert (r["pce_sigma_pct"] == 0).all()
     assert ((r["pce_pct"] > 9.0) == (r["p_above_target"] == 1.0)).all()
     # with σ (the partner's, from the library) the probabilities are no longer all 0 or 1
-    r = rank_candidates(lv, partner, options=RankOptions(target_pce_pct=9.0))
+    r = rank_candidates(lv, partner, PUBLISHED, options=RankOptions(target_pce_pct=9.0))
     assert ((r["p_above_target"] > 0) & (r["p_above_target"] < 1)).any() and (r["pce_sigma_pct"] > 0).all()
 
 
@@ -210,7 +248,7 @@ def test_partner_without_role_takes_the_complement(tmp_path):
                  ).to_csv(path, index=False)
     p = resolve_partner(str(path))
     lv = _levels([{"id": "d", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "role": "donor"}])
-    r = rank_candidates(lv, p)
+    r = rank_candidates(lv, p, PUBLISHED)
     assert r.attrs["partner_role"] == "acceptor" and r.attrs["partner_role_assumed"]
     assert r.loc[0, "voc_v"] == pytest.approx(0.8)
     with pytest.raises(PartnerError, match="no role"):
@@ -226,8 +264,11 @@ def test_ten_thousand_rows(partner):
     lv = _levels({"id": [f"s{i:05d}" for i in range(n)], "homo_ev": homo, "lumo_ev": homo + gap + 0.1,
                   "gap_opt_ev": gap, "homo_sigma_ev": 0.15, "lumo_sigma_ev": 0.2, "gap_opt_sigma_ev": 0.1})
     r = rank_candidates(lv, partner)
-    assert len(r) == n and r["pce_sigma_pct"].notna().all()
+    ok = r["viable"].astype(bool)
+    assert len(r) == n and r.loc[ok, "pce_sigma_pct"].notna().all() and r.loc[~ok, "pce_pct"].isna().all()
     assert r["rank"].tolist() == list(range(1, n + 1)) and r["passes"].is_monotonic_decreasing
+    assert r["viable"].is_monotonic_decreasing and 0 < ok.sum() < n
+    # σ per row separates candidates: rows with their own larger σ get a wider spread
     # a candidate's numbers do not depend on the other rows (common random numbers, same seed)
     one = rank_candidates(lv.iloc[[1234]], partner).iloc[0]
     row = r.set_index("id").loc[one["id"]]
@@ -250,12 +291,12 @@ def test_flags_and_errors_come_from_the_ground_floor(partner):
     assert rank.FLAG_ORDER is flags.FLAG_ORDER and rank.INFO_FLAGS is flags.INFO_FLAGS
     assert ScaleMismatchError is errors.ScaleMismatchError
     lv = _levels([{"id": "neg", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "lumo_sigma_ev": -0.1}])
-    with pytest.raises(errors.InputError, match="lumo_sigma_ev.*'neg'"):
+    with pytest.raises(errors.InputError, match="'neg'.*lumo_sigma_ev"):
         rank_candidates(lv, partner)
     # every code the ranking writes is a registry code, in registry order
-    rows = [{"id": "x", "homo_ev": -5.2, "lumo_ev": -4.2, "gap_opt_ev": 3.5, "role": "dye"}]
-    codes = rank_candidates(_levels(rows), partner).loc[0, "flags"].split(";")
-    assert codes == ["role_invalid", "lumo_offset_low", "gap_out_of_window", "role_assumed"]
+    rows = [{"id": "x", "homo_ev": -5.2, "lumo_ev": -4.2, "gap_opt_ev": 0.9, "role": "dye"}]
+    codes = rank_candidates(_levels(rows), partner, PUBLISHED).loc[0, "flags"].split(";")
+    assert codes == ["role_invalid", "lumo_offset_low", "gap_out_of_window", "donor_only_model", "role_assumed"]
     assert codes == [c for c in flags.FLAG_ORDER if c in codes]
 
 
@@ -277,7 +318,7 @@ def test_run_rank_writes_ranking_shortlist_and_meta(cv_file, tmp_path):
     from rdkit import Chem
 
     out = tmp_path / "out"
-    cfg = {"rank": {"role": "donor", "shortlist_size": 5}}
+    cfg = {"rank": {"role": "donor", "shortlist_size": 5}, **PUBLISHED_CFG}
     path = run_rank(cv_file, REF, out, cfg, report=False)
     assert path == out / "rankings" / REF / "ranking.csv"
     table = pd.read_csv(path, dtype={"id": str})
@@ -285,7 +326,8 @@ def test_run_rank_writes_ranking_shortlist_and_meta(cv_file, tmp_path):
     assert table.loc[0, "id"] == "KF-D01" and table.loc[0, "voc_v"] == pytest.approx(0.8)
     assert table.loc[0, "pce_pct"] == pytest.approx(9.8, abs=0.05)
     assert table["rank"].tolist() == [1, 2, 3]
-    assert table.set_index("id").loc["low-offset", "flags"] == "lumo_offset_low"
+    assert table.set_index("id").loc["low-offset", "flags"] == "lumo_offset_low;donor_only_model"
+    assert np.isnan(table.set_index("id").loc["low-offset", "pce_pct"])
 
     mols = [m for m in Chem.SDMolSupplier(str(path.parent / "shortlist.sdf"))]
     assert len(mols) == 2 and all(m is not None for m in mols)  # only the passing rows
@@ -314,7 +356,7 @@ def test_id_partner_and_file_partner_through_run_rank(tmp_path):
              {"id": "D2", "role": "donor", "homo_ev": -5.3, "lumo_ev": -3.7, "gap_opt_ev": 1.6},
              {"id": "A1", "role": "acceptor", "homo_ev": -6.0, "lumo_ev": -4.3, "gap_opt_ev": 1.7}]
             ).to_csv(lv, index=False)
-    path = run_rank(lv, "id:A1", tmp_path, {}, report=False)
+    path = run_rank(lv, "id:A1", tmp_path, PUBLISHED_CFG, report=False)
     table = pd.read_csv(path).set_index("id")
     assert path.parent.name.startswith("id-")
     assert table.loc["D1", "voc_v"] == pytest.approx(0.8) and table.loc["D1", "partner"] == "A1"
@@ -323,7 +365,7 @@ def test_id_partner_and_file_partner_through_run_rank(tmp_path):
 
     one = tmp_path / "acceptor.csv"
     pd.read_csv(lv).iloc[[2]].to_csv(one, index=False)
-    path = run_rank(lv, str(one), tmp_path, {}, report=False)
+    path = run_rank(lv, str(one), tmp_path, PUBLISHED_CFG, report=False)
     assert path.parent.name.startswith("file-acceptor-")
     assert pd.read_csv(path).set_index("id").loc["D1", "voc_v"] == pytest.approx(0.8)
     two = tmp_path / "two.csv"

@@ -1,0 +1,143 @@
+"""Parameters of the fitted device model, as shipped in ``models/device/fitted.json``.
+
+The fitted model (:class:`screen.device.DeviceModel` with ``model='fitted'``)
+takes its energy loss per acceptor class, its maximum external quantum
+efficiency, the offset scale of its charge-generation yield and its fill factor
+from a JSON file written by :mod:`screen.devicefit` from the published device
+set ``models/reference/devices.csv``.  This module only reads that file; it has
+no physics of its own.
+
+Examples
+--------
+>>> p = FittedParameters(loss_ev={"pooled": 0.4, "fullerene": 0.1, "non-fullerene": 0.5, "nfa-fused": 0.52},
+...                      eqe_max=0.7, offset_scale_ev=0.05, ff=0.68)
+>>> p.loss_for(["fullerene", "nfa-fused", "polymer", ""]).tolist()
+[0.1, 0.52, 0.5, 0.4]
+>>> p.pooled_mask(["fullerene", "polymer", ""]).tolist()
+[False, False, True]
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass, field
+from functools import lru_cache
+from pathlib import Path
+
+import numpy as np
+
+from screen.errors import ConfigError
+
+__all__ = ["FittedParameters", "FITTED_PATH", "load_fitted", "POOLED", "NON_FULLERENE", "family_of"]
+
+#: the fitted default device model shipped with the repository
+FITTED_PATH = Path(__file__).resolve().parent.parent / "models" / "device" / "fitted.json"
+#: key of the loss used for acceptor classes the fit has no value for
+POOLED = "pooled"
+#: key of the loss of every non-fullerene class without a value of its own
+NON_FULLERENE = "non-fullerene"
+
+
+@dataclass(frozen=True)
+class FittedParameters:
+    """Fitted device-model parameters.
+
+    Attributes
+    ----------
+    loss_ev : dict of str to float
+        Energy loss ΔE_loss = E_CT − qVoc per acceptor class; key ``'pooled'``
+        is the value for any other class. [eV]
+    eqe_max : float
+        External quantum efficiency at large offsets. [dimensionless]
+    offset_scale_ev : float
+        Offset scale Δ0 of the charge-generation yield 1 − exp(−Δ/Δ0). [eV]
+    ff : float
+        Fill factor. [dimensionless]
+    source : str
+        Path the parameters were read from ('' if built in Python).
+    meta : dict
+        Everything else in the file (cross-validation statistics, data hash …).
+    """
+
+    loss_ev: dict
+    eqe_max: float
+    offset_scale_ev: float
+    ff: float
+    source: str = ""
+    meta: dict = field(default_factory=dict, compare=False)
+
+    def __post_init__(self):
+        if POOLED not in self.loss_ev:
+            raise ConfigError(f"fitted device parameters {self.source or ''}: loss_ev needs a '{POOLED}' entry")
+        for name in ("eqe_max", "ff"):
+            val = float(getattr(self, name))
+            if not 0.0 < val <= 1.0:
+                raise ConfigError(f"fitted device parameters {self.source}: {name} = {val}; need 0 < {name} <= 1")
+        if not (math.isfinite(self.offset_scale_ev) and self.offset_scale_ev >= 0):
+            raise ConfigError(f"fitted device parameters {self.source}: offset_scale_ev must be finite and >= 0")
+        for key, val in self.loss_ev.items():
+            if not (math.isfinite(float(val)) and float(val) >= 0):
+                raise ConfigError(f"fitted device parameters {self.source}: loss_ev[{key!r}] must be >= 0")
+
+    def _classes(self, acceptor_class) -> np.ndarray:
+        if acceptor_class is None:
+            return np.array("", dtype=object)
+        return np.asarray(acceptor_class, dtype=object)
+
+    def loss_for(self, acceptor_class) -> np.ndarray:
+        """Energy loss per element of ``acceptor_class``: its own value, else its family's, else pooled. [eV]"""
+        classes = self._classes(acceptor_class).astype(str)
+        out = np.full(classes.shape, float(self.loss_ev[POOLED]))
+        for fam_key, members in ((NON_FULLERENE, (classes != "") & (classes != "fullerene") & (classes != "nan")),
+                                 ("fullerene", classes == "fullerene")):
+            if fam_key in self.loss_ev:
+                out[members] = float(self.loss_ev[fam_key])
+        for key, val in self.loss_ev.items():
+            if key not in (POOLED, NON_FULLERENE):
+                out[classes == key] = float(val)
+        return out
+
+    def pooled_mask(self, acceptor_class) -> np.ndarray:
+        """True where the pooled loss is used (neither the class nor its family was fitted)."""
+        classes = self._classes(acceptor_class).astype(str)
+        known = np.isin(classes, [k for k in self.loss_ev if k not in (POOLED, NON_FULLERENE)])
+        if NON_FULLERENE in self.loss_ev:
+            known |= (classes != "") & (classes != "fullerene") & (classes != "nan")
+        return ~known
+
+    def as_dict(self) -> dict:
+        """Parameters for provenance records."""
+        return {"loss_ev": dict(self.loss_ev), "eqe_max": self.eqe_max, "offset_scale_ev": self.offset_scale_ev,
+                "ff": self.ff, "source": self.source}
+
+
+def family_of(acceptor_class: str) -> str:
+    """``'fullerene'``, ``'non-fullerene'`` or ``''`` (unknown class)."""
+    cls = str(acceptor_class or "").strip()
+    return "" if cls in ("", "nan") else ("fullerene" if cls == "fullerene" else NON_FULLERENE)
+
+
+@lru_cache(maxsize=8)
+def load_fitted(path: str | None = None) -> FittedParameters:
+    """Read fitted parameters from JSON (default :data:`FITTED_PATH`).
+
+    Raises
+    ------
+    ConfigError
+        The file is missing or lacks a parameter (names the file and the fix).
+    """
+    target = Path(path) if path else FITTED_PATH
+    if not target.is_file():
+        raise ConfigError(f"{target}: fitted device model not found; run `python -m screen.devicefit --write` "
+                          "or choose device.model=scharber")
+    try:
+        data = json.loads(target.read_text(encoding="utf-8"))
+        params = data["parameters"]
+        return FittedParameters(loss_ev={str(k): float(v) for k, v in params["loss_ev"].items()},
+                                eqe_max=float(params["eqe_max"]), offset_scale_ev=float(params["offset_scale_ev"]),
+                                ff=float(params["ff"]), source=str(target),
+                                meta={k: v for k, v in data.items() if k != "parameters"})
+    except (KeyError, TypeError, ValueError) as exc:
+        raise ConfigError(f"{target}: not a fitted device model ({type(exc).__name__}: {exc}); rewrite it with "
+                          "`python -m screen.devicefit --write`") from exc

@@ -1,0 +1,162 @@
+"""Input sanity for levels files and partners, before anything is ranked.
+
+On the vacuum scale a bound material has HOMO < LUMO < 0 (HOMO = −IP,
+LUMO = −EA), a positive optical gap that is not much larger than its
+LUMO − HOMO gap (the optical gap is the transport gap minus the exciton binding
+energy, which is ≥ 0; :data:`GAP_EXCESS_TOL_EV` allows for the spread between
+CV and absorption onsets) and σ ≥ 0.  A violation is almost always a typing or
+convention slip (an ionisation energy written as a positive HOMO, HOMO and LUMO
+swapped, a gap in nm): it stops the ranking with an :class:`InputError` (exit
+code 2) that names the file, the line, the column, the value and the fix.
+
+On the ``gas`` scale a positive LUMO is allowed (an unbound anion, EA < 0).
+
+Examples
+--------
+>>> import pandas as pd
+>>> bad = pd.DataFrame({"id": ["d1"], "homo_ev": [5.3], "lumo_ev": [-3.5], "gap_opt_ev": [1.7], "scale": ["film"]})
+>>> check_levels(bad, "my_cv.csv")
+Traceback (most recent call last):
+...
+screen.errors.InputError: my_cv.csv: line 2 (id 'd1'), column homo_ev = 5.3: HOMO is given as a positive ionisation energy; write it as -5.3 (vacuum scale, HOMO = -IP < 0)
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+
+from screen.errors import InputError
+
+__all__ = ["check_levels", "check_partner", "row_problems", "GAP_EXCESS_TOL_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV"]
+
+#: how much the optical gap may exceed LUMO − HOMO (CV and absorption onsets scatter by ~0.1–0.3 eV;
+#: common practice) [eV]
+GAP_EXCESS_TOL_EV = 0.3
+#: levels deeper than this are taken as a unit slip (meV, kJ/mol) [eV]
+LEVEL_MIN_EV = -15.0
+#: optical gaps above this are taken as a wavelength in nm [eV]
+GAP_MAX_INPUT_EV = 15.0
+#: problems listed in one message at most
+_MAX_LISTED = 5
+_SIGMAS = ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")
+
+
+def _fmt(x: float) -> str:
+    return f"{x:.6g}"
+
+
+def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict | None = None) -> list:
+    """Problems of one material's levels: ``(column, value, message)`` triples ([] if sane).
+
+    NaN values are not problems here (the ranking marks them ``input_missing``).
+
+    Examples
+    --------
+    >>> [p[0] for p in row_problems(-3.9, -5.4, 1.5, "film")]
+    ['homo_ev']
+    >>> row_problems(-5.4, -3.9, 650.0, "film")[0][2]
+    'an optical gap of 650 eV looks like a wavelength in nm; write 1240/650 = 1.91 eV'
+    """
+    out = []
+    film = str(scale).strip().lower() != "gas"
+    if math.isfinite(homo) and homo > 0:
+        out.append(("homo_ev", homo, f"HOMO is given as a positive ionisation energy; write it as {_fmt(-homo)} "
+                                     "(vacuum scale, HOMO = -IP < 0)"))
+    if math.isfinite(lumo) and lumo > 0 and film:
+        out.append(("lumo_ev", lumo, f"LUMO is given as a positive electron affinity; write it as {_fmt(-lumo)} "
+                                     "(vacuum scale, LUMO = -EA < 0 on the film scale)"))
+    for col, val in (("homo_ev", homo), ("lumo_ev", lumo)):
+        if math.isfinite(val) and val < LEVEL_MIN_EV:
+            out.append((col, val, f"{val:g} eV is not a frontier level; levels are in eV (not meV or kJ/mol), "
+                                  "e.g. -5.3"))
+    if math.isfinite(homo) and math.isfinite(lumo) and not out and homo >= lumo:
+        out.append(("homo_ev", homo, f"HOMO ({_fmt(homo)}) is not below LUMO ({_fmt(lumo)}): the two columns look "
+                                     "swapped; write the deeper (more negative) level as HOMO"))
+    if math.isfinite(gap):
+        if gap <= 0:
+            out.append(("gap_opt_ev", gap, "the optical gap must be positive; write the absorption onset energy in "
+                                           "eV, e.g. 1.6"))
+        elif gap > GAP_MAX_INPUT_EV:
+            out.append(("gap_opt_ev", gap, f"an optical gap of {gap:g} eV looks like a wavelength in nm; write "
+                                           f"1240/{gap:g} = {1239.84 / gap:.2f} eV"))
+        elif math.isfinite(homo) and math.isfinite(lumo) and not out and gap > lumo - homo + GAP_EXCESS_TOL_EV:
+            out.append(("gap_opt_ev", gap, f"the optical gap ({_fmt(gap)} eV) exceeds LUMO - HOMO "
+                                           f"({_fmt(lumo - homo)} eV) by more than {GAP_EXCESS_TOL_EV} eV; check the "
+                                           "gap (absorption onset in eV) or the levels"))
+    for col, val in (sigmas or {}).items():
+        if math.isnan(val):
+            continue
+        if not math.isfinite(val) or val < 0:
+            out.append((col, val, "an uncertainty must be a finite number >= 0 (empty = 0)"))
+    return out
+
+
+def _number(frame: pd.DataFrame, col: str, source: str, ids) -> np.ndarray:
+    """A column as floats; text that is not a number is an error naming the first offending line."""
+    if col not in frame:
+        return np.full(len(frame), np.nan)
+    raw = frame[col]
+    num = pd.to_numeric(raw, errors="coerce")
+    bad = num.isna() & raw.notna() & raw.astype(str).str.strip().ne("")
+    if bad.any():
+        i = int(np.flatnonzero(bad.to_numpy())[0])
+        raise InputError(f"{source}: line {_line(frame, i)} (id {ids[i]!r}), column {col} = {raw.iloc[i]!r}: not a "
+                         "number; write the value in eV, e.g. -5.3 (leave the cell empty if unknown)")
+    return num.to_numpy(dtype=float)
+
+
+def _line(frame: pd.DataFrame, i: int) -> int:
+    """File line of row ``i`` (header = line 1), from the frame's index when it is the file's row number."""
+    idx = frame.index[i]
+    return int(idx) + 2 if isinstance(idx, (int, np.integer)) else i + 2
+
+
+def check_levels(frame: pd.DataFrame, source: str = "levels table") -> None:
+    """Refuse a levels table with impossible levels (see the module docstring).
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        The rows to be ranked (their index = row number in the file, as read).
+    source : str
+        File name for the message.
+
+    Raises
+    ------
+    InputError
+        Naming the file, line, id, column, value and the fix; up to five
+        problems in one message.
+    """
+    ids = frame["id"].astype(str).to_numpy() if "id" in frame else np.array([str(i) for i in range(len(frame))])
+    homo, lumo, gap = (_number(frame, c, source, ids) for c in ("homo_ev", "lumo_ev", "gap_opt_ev"))
+    sig = {c: _number(frame, c, source, ids) for c in _SIGMAS if c in frame}
+    scale = frame["scale"].astype(str).to_numpy() if "scale" in frame else np.full(len(frame), "film")
+    problems = []
+    for i in range(len(frame)):
+        for col, val, msg in row_problems(homo[i], lumo[i], gap[i], scale[i], {c: s[i] for c, s in sig.items()}):
+            problems.append(f"line {_line(frame, i)} (id {ids[i]!r}), column {col} = {val:g}: {msg}")
+    if problems:
+        more = f" (and {len(problems) - _MAX_LISTED} more)" if len(problems) > _MAX_LISTED else ""
+        head = problems[0] if len(problems) == 1 else f"{len(problems)} problems{more}:\n  " + "\n  ".join(
+            problems[:_MAX_LISTED])
+        raise InputError(f"{source}: {head}")
+
+
+def check_partner(partner) -> None:
+    """Refuse a partner (:class:`screen.partners.Partner`) with impossible levels, naming its source.
+
+    Raises
+    ------
+    InputError
+        e.g. ``partner 'mine' (file acc.csv), column homo_ev = 5.9: HOMO is given as …``.
+    """
+    sig = {c: float(getattr(partner, c, 0.0) or 0.0) for c in _SIGMAS}
+    problems = row_problems(float(partner.homo_ev), float(partner.lumo_ev), float(partner.gap_opt_ev), partner.scale,
+                            sig)
+    if problems:
+        where = f"{partner.kind} {partner.spec}" if getattr(partner, "spec", "") else partner.kind
+        col, val, msg = problems[0]
+        raise InputError(f"partner {partner.id!r} ({where}), column {col} = {val:g}: {msg}")

@@ -1,0 +1,61 @@
+"""Reading the rows of a levels table for the ranking: which rows are ranked, numbers, text, heavy atoms.
+
+Examples
+--------
+>>> import pandas as pd
+>>> lv = pd.DataFrame({"id": ["a", "b"], "status": ["ok", "failed"], "homo_ev": ["-5.4", ""]})
+>>> ranked_mask(lv).tolist(), numeric(lv, "homo_ev").tolist()[0], text(lv, "missing").tolist()
+([True, False], -5.4, ['', ''])
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+__all__ = ["ranked_mask", "split_ranked", "numeric", "text", "heavy_atoms"]
+
+
+def ranked_mask(levels: pd.DataFrame) -> np.ndarray:
+    """Rows that are ranked: status ok (files without a status column: every row)."""
+    if "status" not in levels:
+        return np.ones(len(levels), dtype=bool)
+    return levels["status"].fillna("").astype(str).str.strip().str.lower().eq("ok").to_numpy()
+
+
+def split_ranked(levels_df: pd.DataFrame) -> tuple[pd.DataFrame, dict]:
+    """The ranked rows (index reset) and the counts of the others by status."""
+    ranked = ranked_mask(levels_df)
+    not_ranked = {}
+    if "status" in levels_df:
+        st = levels_df.loc[~ranked, "status"].fillna("").astype(str)
+        not_ranked = {str(k): int(v) for k, v in st.value_counts().items()}
+    return levels_df[ranked].reset_index(drop=True), not_ranked
+
+
+def numeric(levels: pd.DataFrame, col: str) -> np.ndarray:
+    if col not in levels:
+        return np.full(len(levels), np.nan)
+    return pd.to_numeric(levels[col], errors="coerce").to_numpy(dtype=float)
+
+
+def text(levels: pd.DataFrame, col: str) -> np.ndarray:
+    if col not in levels:
+        return np.full(len(levels), "", dtype=object)
+    return levels[col].fillna("").astype(str).to_numpy(dtype=object)
+
+
+def heavy_atoms(levels: pd.DataFrame) -> np.ndarray:
+    """Heavy-atom counts: the ``heavy_atoms`` column, else counted from SMILES (NaN if unknown)."""
+    heavy = numeric(levels, "heavy_atoms")
+    todo = np.flatnonzero(np.isnan(heavy))
+    if todo.size:
+        smiles = text(levels, "smiles")
+        from rdkit import Chem, rdBase
+
+        with rdBase.BlockLogs():
+            for i in todo:
+                mol = Chem.MolFromSmiles(smiles[i]) if smiles[i] else None
+                if mol is not None:
+                    heavy[i] = mol.GetNumHeavyAtoms()
+    return heavy

@@ -1,0 +1,186 @@
+"""Is a donor/acceptor pair a working solar cell at all?  Classification before any efficiency.
+
+Every pair is classified first: a staggered (type-II) alignment whose offsets
+allow charge separation is *estimated*; anything else is *not viable* and gets
+no efficiency (empty, never 0), with the reason in plain words (the flag texts
+of :mod:`screen.flags`).  Sign convention (both > 0 for type II):
+
+.. math::
+
+    \\Delta_{LUMO} = E_{LUMO}^{D} - E_{LUMO}^{A}, \\qquad
+    \\Delta_{HOMO} = E_{HOMO}^{D} - E_{HOMO}^{A}
+
+Also here: the role a candidate without one takes against a partner
+(:func:`role_from_levels`) and the acceptor class a SMILES belongs to
+(:func:`acceptor_class_of`), which selects the fitted energy loss.
+
+References
+----------
+.. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789. :doi:`10.1002/adma.200501717`
+.. [2] J.-L. Brédas, J. E. Norton, J. Cornil, V. Coropceanu, "Molecular understanding of
+   organic solar cells: the challenges", Acc. Chem. Res. 42 (2009) 1691.
+   :doi:`10.1021/ar900099h`
+
+Examples
+--------
+>>> import numpy as np
+>>> m = classify(np.array([0.4, -0.2, 0.1]), np.array([0.6, 0.5, 0.5]), np.array([1.5, 1.5, 1.5]),
+...              np.array([0.8, 0.8, 0.8]), np.zeros(3, bool), min_lumo=0.3, min_homo=0.3)
+>>> m["viable"].tolist(), m["lumo_inverted"].tolist(), m["lumo_offset_low"].tolist()
+([True, False, False], [False, True, False], [False, False, True])
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["classify", "VIABILITY_MASKS", "role_from_levels", "acceptor_class_of", "GAP_MAX_EV",
+           "OFFSET_TOL_EV"]
+
+#: Offsets within this of a threshold count as meeting it (−4.0 − (−4.3) is 0.2999999999999998). [eV]
+OFFSET_TOL_EV = 1e-9
+#: Largest absorber gap with photons in the ASTM G173-03 table (hc / 280 nm). [eV]
+GAP_MAX_EV = 4.428
+#: masks returned by :func:`classify`, in flag-registry order
+VIABILITY_MASKS = ("input_missing", "absorber_gap_invalid", "lumo_inverted", "homo_inverted", "lumo_offset_low",
+                   "homo_offset_low", "voc_nonpositive")
+
+
+def classify(delta_lumo, delta_homo, absorber_gap, voc_raw, missing, *, min_lumo: float, min_homo: float,
+             check_homo_offset: bool = True) -> dict:
+    """Viability masks of donor/acceptor pairs.
+
+    Parameters
+    ----------
+    delta_lumo, delta_homo : numpy.ndarray
+        ΔLUMO and ΔHOMO; NaN ΔHOMO (acceptor HOMO unknown, donor-only model)
+        is not checked. [eV]
+    absorber_gap : numpy.ndarray
+        Optical gap that sets the current. [eV]
+    voc_raw : numpy.ndarray
+        Open-circuit voltage of the model before any cap. [V]
+    missing : numpy.ndarray of bool
+        A level the model needs is missing.
+    min_lumo, min_homo : float
+        Smallest offsets that allow charge separation. [eV]
+    check_homo_offset : bool
+        Check ΔHOMO against ``min_homo`` (type II is always required).
+
+    Returns
+    -------
+    dict of numpy.ndarray of bool
+        One mask per name of :data:`VIABILITY_MASKS` and ``viable`` (none of
+        them).  A NaN never raises a mask other than ``input_missing``.
+
+    Notes
+    -----
+    Type II needs ΔLUMO > 0 and ΔHOMO > 0 (otherwise one carrier has nowhere to
+    go: *inverted alignment*); a positive offset below its threshold is
+    *offset below threshold*; a model Voc ≤ 0 is *no positive Voc*.
+    """
+    with np.errstate(invalid="ignore"):
+        lumo_inv = delta_lumo <= OFFSET_TOL_EV
+        homo_inv = delta_homo <= OFFSET_TOL_EV
+        lumo_low = ~lumo_inv & (delta_lumo < min_lumo - OFFSET_TOL_EV)
+        homo_low = (~homo_inv & (delta_homo < min_homo - OFFSET_TOL_EV)) if check_homo_offset \
+            else np.zeros(np.shape(homo_inv), dtype=bool)
+        gap_bad = np.isfinite(absorber_gap) & ((absorber_gap <= 0) | (absorber_gap > GAP_MAX_EV))
+        voc_bad = voc_raw <= 0
+    masks = {"input_missing": missing, "absorber_gap_invalid": gap_bad, "lumo_inverted": lumo_inv,
+             "homo_inverted": homo_inv, "lumo_offset_low": lumo_low, "homo_offset_low": homo_low,
+             "voc_nonpositive": voc_bad}
+    shape = np.broadcast_shapes(*(np.shape(m) for m in masks.values()))
+    masks = {k: np.broadcast_to(np.asarray(v, dtype=bool), shape) for k, v in masks.items()}
+    bad = np.zeros(shape, dtype=bool)
+    for m in masks.values():
+        bad = bad | m
+    masks["viable"] = ~bad
+    return masks
+
+
+def role_from_levels(homo, lumo, partner_homo: float, partner_lumo: float) -> tuple[np.ndarray, np.ndarray]:
+    """Which roles a material's levels support against a partner (type-II alignment).
+
+    Parameters
+    ----------
+    homo, lumo : array_like
+        The material's levels, vacuum scale. [eV]
+    partner_homo, partner_lumo : float
+        The partner's levels. [eV]
+
+    Returns
+    -------
+    (numpy.ndarray of bool, numpy.ndarray of bool)
+        ``as_donor`` (both of its levels above the partner's) and
+        ``as_acceptor`` (both below).  Both False: no role gives type II.
+
+    Examples
+    --------
+    >>> d, a = role_from_levels([-5.3, -6.2, -5.3], [-3.5, -4.4, -4.5], -5.7, -4.0)
+    >>> d.tolist(), a.tolist()
+    ([True, False, False], [False, True, False])
+    """
+    homo, lumo = np.asarray(homo, dtype=float), np.asarray(lumo, dtype=float)
+    with np.errstate(invalid="ignore"):
+        as_donor = (homo - partner_homo > OFFSET_TOL_EV) & (lumo - partner_lumo > OFFSET_TOL_EV)
+        as_acceptor = (partner_homo - homo > OFFSET_TOL_EV) & (partner_lumo - lumo > OFFSET_TOL_EV)
+    return as_donor, as_acceptor
+
+
+def acceptor_class_of(smiles) -> str:
+    """Acceptor class of a structure, as used by the device set: fullerene, polymer or nfa-fused.
+
+    Parameters
+    ----------
+    smiles : str
+        SMILES; a repeat unit with ``[*]`` attachment points is a polymer.
+
+    Returns
+    -------
+    str
+        ``'polymer'`` (``*`` atoms), ``'fullerene'`` (at least 60 carbons of
+        which at least 50 % sit in fused five- and six-membered rings only, no
+        hetero atom in rings), ``'nfa-fused'`` (a small molecule with a fused
+        ring system of at least five rings) or ``''`` (unknown: the pooled loss).
+
+    Examples
+    --------
+    >>> acceptor_class_of("[*]c1ccc([*])s1"), acceptor_class_of("c1ccccc1"), acceptor_class_of("")
+    ('polymer', '', '')
+    """
+    text = "" if smiles is None else str(smiles).strip()
+    if not text or text.lower() == "nan":
+        return ""
+    if "*" in text:
+        return "polymer"
+    from rdkit import Chem, rdBase
+
+    with rdBase.BlockLogs():
+        mol = Chem.MolFromSmiles(text)
+    if mol is None:
+        return ""
+    carbons = sum(1 for a in mol.GetAtoms() if a.GetAtomicNum() == 6)
+    ring = mol.GetRingInfo()
+    if carbons >= 60 and ring.NumRings() >= 30:
+        return "fullerene"
+    return "nfa-fused" if _largest_fused_system(ring) >= 5 else ""
+
+
+def _largest_fused_system(ring) -> int:
+    """Rings in the largest system of rings that share a bond."""
+    bonds = [set(r) for r in ring.BondRings()]
+    seen, best = set(), 0
+    for start in range(len(bonds)):
+        if start in seen:
+            continue
+        stack, size = [start], 0
+        seen.add(start)
+        while stack:
+            i = stack.pop()
+            size += 1
+            for j in range(len(bonds)):
+                if j not in seen and bonds[i] & bonds[j]:
+                    seen.add(j)
+                    stack.append(j)
+        best = max(best, size)
+    return best
