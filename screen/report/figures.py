@@ -261,17 +261,20 @@ def level_diagram_svg(shortlist: pd.DataFrame, partner: dict, meta: dict) -> str
 # Gap–offset map
 # --------------------------------------------------------------------------- #
 def _device_model(meta: dict):
-    """DeviceModel from ``meta["device"]`` (defaults for anything unusable).
+    """DeviceModel of the run from ``meta["device"]`` (model, absorber and the parameters the run set).
 
     Returns the model and a note (empty when every recorded value was used).
     """
-    from screen.device import DeviceModel
+    from screen.device import ABSORBERS, MODELS, DeviceModel
 
     dev = get(meta, "device", default={}) or {}
-    kwargs = {}
+    kwargs = {"model": text(dev.get("model")) or "scharber", "absorber": text(dev.get("absorber")) or "donor"}
+    if kwargs["model"] not in MODELS or kwargs["absorber"] not in ABSORBERS:
+        kwargs = {"model": "scharber", "absorber": "donor"}
     for key in ("eqe", "ff", "loss_v", "min_delta_lumo_ev", "min_delta_homo_ev"):
         x = num(dev.get(key))
-        if not math.isnan(x):
+        # a recorded value is an override when the run set it (or, in older records, always)
+        if not math.isnan(x) and dev.get(f"{key}_set", True):
             kwargs[key] = x
     pin = num(dev.get("pin_w_m2"))
     if not math.isnan(pin):
@@ -279,69 +282,75 @@ def _device_model(meta: dict):
     try:
         return DeviceModel(**kwargs), ""
     except ValueError as exc:
-        return DeviceModel(), f"recorded device parameters unusable ({exc}); map drawn with defaults"
+        return (DeviceModel(model="scharber", absorber="donor"),
+                f"recorded device parameters unusable ({exc}); map drawn with the published Scharber model")
 
 
-def _map_points(ranking: pd.DataFrame, partner: dict, meta: dict) -> pd.DataFrame:
-    """(absorber gap, ΔLUMO) of every ranked row for the map.
+def _map_points(ranking: pd.DataFrame, partner: dict) -> pd.DataFrame:
+    """(candidate optical gap, ΔLUMO) of every ranked row, its id, whether it is viable.
 
-    Donor candidates sit at their own optical gap; acceptor candidates at the
-    partner donor's gap ('donor' absorber policy).  With the 'both' policy the
-    smaller gap of the pair is used.  An ``absorber_gap_ev`` column, when the
-    ranking has one, takes precedence.  Rows with the partner's own role get
-    no position (a donor–donor or acceptor–acceptor pair has no place on the
-    map); column ``same_role`` marks them.
+    Rows with the partner's own role (no pair) get no position; column
+    ``same_role`` marks them.
     """
-    absorber = text(get(meta, "device", "absorber")) or "donor"
-    p_gap = _partner_value(partner, "gap_opt_ev")
     p_role = _partner_role(partner)
     default_role = {"acceptor": "donor", "donor": "acceptor"}.get(p_role, "donor")
-    gaps = pd.to_numeric(ranking.get("gap_opt_ev"), errors="coerce") if "gap_opt_ev" in ranking \
-        else pd.Series(np.nan, index=ranking.index)
+
+    def col(name):
+        return pd.to_numeric(ranking[name], errors="coerce") if name in ranking \
+            else pd.Series(np.nan, index=ranking.index)
+
     roles = ranking["role"].map(text).str.lower() if "role" in ranking else pd.Series("", index=ranking.index)
     roles = roles.where(roles.isin(["donor", "acceptor"]), default_role)
-    if absorber == "both":
-        x = np.fmin(gaps, p_gap) if not math.isnan(p_gap) else gaps
-        x = pd.Series(np.where(np.isnan(p_gap) | gaps.isna(), np.nan, x), index=ranking.index)
-    else:
-        x = gaps.where(roles.eq("donor"), p_gap)
-    if "absorber_gap_ev" in ranking:
-        given = pd.to_numeric(ranking["absorber_gap_ev"], errors="coerce")
-        x = given.where(given.notna(), x)
-    y = pd.to_numeric(ranking.get("delta_lumo_ev"), errors="coerce") if "delta_lumo_ev" in ranking \
-        else pd.Series(np.nan, index=ranking.index)
     same = roles.eq(p_role) if p_role in ("donor", "acceptor") else pd.Series(False, index=ranking.index)
-    x, y = x.astype(float).mask(same), y.astype(float).mask(same)
-    return pd.DataFrame({"x": x, "y": y, "rank": ranking.get("rank"), "role": roles, "same_role": same})
+    viable = ranking["viable"].map(lambda v: text(v).strip().lower() in ("true", "1")) if "viable" in ranking \
+        else col("pce_pct").notna()
+    ids = ranking["id"].map(text) if "id" in ranking else pd.Series("", index=ranking.index)
+    return pd.DataFrame({"x": col("gap_opt_ev").mask(same), "y": col("delta_lumo_ev").mask(same),
+                         "rank": ranking.get("rank"), "id": ids, "role": roles, "same_role": same,
+                         "viable": viable.astype(bool)})
 
 
 def _map_extent(pts: pd.DataFrame, finite: pd.Series) -> tuple[float, float, float, float]:
-    """Gap and offset ranges of the map: at least 1–3 eV × 0–1.5 eV, widened to every point. [eV]"""
+    """Gap and offset ranges of the map: at least 1–3 eV × −0.2–1.2 eV, widened to every point. [eV]"""
     gx = pts.loc[finite, "x"].to_numpy(float)
     gy = pts.loc[finite, "y"].to_numpy(float)
     g_lo = min(1.0, float(np.min(gx)) - 0.1) if gx.size else 1.0
     g_hi = max(3.0, float(np.max(gx)) + 0.1) if gx.size else 3.0
-    o_lo = min(0.0, float(np.min(gy)) - 0.1) if gy.size else 0.0
-    o_hi = max(1.5, float(np.max(gy)) + 0.1) if gy.size else 1.5
+    o_lo = min(-0.2, float(np.min(gy)) - 0.1) if gy.size else -0.2
+    o_hi = max(1.2, float(np.max(gy)) + 0.1) if gy.size else 1.2
     g_lo, g_hi = max(g_lo, 0.5), min(g_hi, 4.4)
-    o_lo, o_hi = max(o_lo, -1.5), min(o_hi, 3.0)
+    o_lo, o_hi = max(o_lo, -2.0), min(o_hi, 3.0)
     return g_lo, g_hi, o_lo, o_hi
 
 
 def _map_grid(model, partner: dict, extent) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Gaps, offsets [eV] and the PCE map [%] over them (donor-absorber model, as published)."""
-    from screen.device import DeviceModel, efficiency_map
+    """Candidate gaps, offsets [eV] and the PCE map [%] against the chosen partner (NaN = not viable).
 
-    map_model = DeviceModel(eqe=model.eqe, ff=model.ff, loss_v=model.loss_v,
-                            min_delta_lumo_ev=model.min_delta_lumo_ev, absorber="donor",
-                            pin_w_m2=model.pin_w_m2)
+    The candidate's HOMO is its LUMO − optical gap.  An acceptor partner
+    fixes the acceptor and the candidate is the donor (LUMO = LUMO_A + ΔLUMO);
+    a donor partner fixes the donor and the candidate is the acceptor
+    (LUMO = LUMO_D − ΔLUMO).
+    """
+    from screen.viability import acceptor_class_of
+
     g_lo, g_hi, o_lo, o_hi = extent
-    gaps = np.linspace(g_lo, g_hi, 121)
-    offsets = np.linspace(o_lo, o_hi, 101)
-    acc_lumo = _partner_value(partner, "lumo_ev") if _partner_role(partner) != "donor" else math.nan
-    pce = efficiency_map(gaps, offsets, map_model,
-                         acceptor_lumo_ev=-4.3 if math.isnan(acc_lumo) else acc_lumo)
-    return gaps, offsets, pce
+    gaps = np.linspace(g_lo, g_hi, 121)[:, None]
+    offsets = np.linspace(o_lo, o_hi, 101)[None, :]
+    p = {k: _partner_value(partner, f"{k}_ev") for k in ("homo", "lumo", "gap_opt")}
+    if math.isnan(p["lumo"]):
+        p = {"homo": -6.1, "lumo": -4.3, "gap_opt": 2.0}  # the published model's reference acceptor
+    if math.isnan(p["gap_opt"]):
+        p["gap_opt"] = 2.0
+    if math.isnan(p["homo"]):
+        p["homo"] = p["lumo"] - p["gap_opt"]
+    if _partner_role(partner) == "donor":
+        a_lumo = p["lumo"] - offsets
+        out = model.evaluate(p["homo"], p["lumo"], p["gap_opt"], a_lumo - gaps, a_lumo, gaps)
+    else:
+        d_lumo = p["lumo"] + offsets
+        cls = acceptor_class_of(partner.get("smiles") if isinstance(partner, dict) else "")
+        out = model.evaluate(d_lumo - gaps, d_lumo, gaps, p["homo"], p["lumo"], p["gap_opt"], acceptor_class=cls)
+    return gaps[:, 0], offsets[0], np.asarray(out["pce_pct"], dtype=float)
 
 
 def _map_contours(ax, gaps, offsets, pce, target: float):
@@ -349,7 +358,8 @@ def _map_contours(ax, gaps, offsets, pce, target: float):
     from matplotlib.colors import LinearSegmentedColormap
 
     cmap = LinearSegmentedColormap.from_list("dascreen_pce", _MAP_COLOURS)
-    top = max(1.0, float(np.nanmax(pce)))
+    finite = pce[np.isfinite(pce)]
+    top = max(1.0, float(finite.max())) if finite.size else 1.0
     step = 1.0 if top <= 16 else 2.0
     levels = np.arange(0.0, math.ceil(top / step) * step + step, step)
     # x = gap, y = offset; contourf(X, Y, Z) wants Z[y, x], the map is Z[gap, offset]
@@ -363,18 +373,14 @@ def _map_contours(ax, gaps, offsets, pce, target: float):
     return filled
 
 
-def _map_threshold(ax, extent, thr: float) -> None:
-    """Hatch the offsets below the ΔLUMO threshold, with a dashed line and a note."""
-    from matplotlib import patheffects
+def _map_mask(ax, extent) -> None:
+    """Hatched background: where the filled contours leave a gap (NaN), the pair is not viable."""
+    from matplotlib.patches import Rectangle
 
     g_lo, g_hi, o_lo, o_hi = extent
-    if o_lo < thr:
-        ax.fill_between([g_lo, g_hi], o_lo, min(thr, o_hi), facecolor="#ffffff", alpha=0.45,
-                        hatch="////", edgecolor=_SLATE_LIGHT, lw=0)
-        ax.axhline(thr, color=_SLATE, lw=0.9, ls=(0, (5, 3)))
-        ax.text(g_hi - 0.03, thr - 0.03, f"\u0394LUMO < {fmt(thr)} eV: charge transfer not assured",
-                ha="right", va="top", fontsize=7.5, color=_SLATE,
-                path_effects=[patheffects.withStroke(linewidth=2.5, foreground="white")])
+    ax.add_patch(Rectangle((g_lo, o_lo), g_hi - g_lo, o_hi - o_lo, facecolor="#eef0f2", hatch="////",
+                           edgecolor=_SLATE_LIGHT, lw=0, zorder=0, label="not viable (no efficiency)"))
+    ax.axhline(0.0, color=_SLATE, lw=0.9, ls=(0, (5, 3)), zorder=2)
 
 
 def _label_offsets(ax, labels) -> list[tuple[float, float]]:
@@ -414,38 +420,41 @@ def _label_offsets(ax, labels) -> list[tuple[float, float]]:
 
 
 def _map_candidates(ax, pts: pd.DataFrame, finite: pd.Series, shortlist_index, extent) -> None:
-    """Ranked rows as dots, the shortlist as amber diamonds labelled with their rank; axis limits."""
+    """Viable rows as dots, not viable ones as crosses, the shortlist as amber diamonds labelled by id."""
     from matplotlib import patheffects
 
     g_lo, g_hi, o_lo, o_hi = extent
     short = pts.index.isin(list(shortlist_index))
     rest = finite & ~short
-    ax.plot(pts.loc[rest, "x"], pts.loc[rest, "y"], ls="none", marker="o", ms=4.0, color=_SLATE,
-            alpha=0.75, mec="white", mew=0.4, label="ranked candidate", zorder=3)
+    ax.plot(pts.loc[rest & pts["viable"], "x"], pts.loc[rest & pts["viable"], "y"], ls="none", marker="o", ms=4.0,
+            color=_SLATE, alpha=0.75, mec="white", mew=0.4, label="ranked candidate", zorder=3)
+    if (rest & ~pts["viable"]).any():
+        ax.plot(pts.loc[rest & ~pts["viable"], "x"], pts.loc[rest & ~pts["viable"], "y"], ls="none", marker="x",
+                ms=4.5, color=_BRICK, alpha=0.8, label="candidate, not viable", zorder=3)
     sl = finite & short
     ax.scatter(pts.loc[sl, "x"], pts.loc[sl, "y"], s=46, marker="D", c=_AMBER, edgecolors=_TEAL_DARK,
-               linewidths=0.9, label="shortlisted (label = rank)", zorder=4)
+               linewidths=0.9, label="shortlisted (label = id)", zorder=4)
     ax.set_xlim(g_lo, g_hi)
     ax.set_ylim(o_lo, o_hi)
     stroke = [patheffects.withStroke(linewidth=2.2, foreground="white")]
-    labels = [("?" if math.isnan(num(p["rank"])) else f"{int(num(p['rank']))}", p["x"], p["y"])
-              for _, p in pts.loc[sl].iterrows()]
+    labels = [(shorten(text(p["id"]), 16) or "?", p["x"], p["y"]) for _, p in pts.loc[sl].iterrows()]
     for (label, x, y), offset in zip(labels, _label_offsets(ax, labels)):
         ax.annotate(label, (x, y), xytext=offset, textcoords="offset points", fontsize=8,
                     color=_TEAL_DARK, fontweight="bold", path_effects=stroke, zorder=5)
 
 
-def _map_note(pts: pd.DataFrame, finite: pd.Series, absorber: str, model_note: str) -> str:
-    """Caption text: how candidates are placed on the map and how many could not be."""
+def _map_note(pts: pd.DataFrame, finite: pd.Series, model, partner: dict, model_note: str) -> str:
+    """Caption text: model, partner, how candidates are placed and how many could not be."""
+    pid = text(partner.get("id")) if isinstance(partner, dict) else ""
+    parts = [f"Model: {model.label}; map drawn against the partner {pid or '(unknown)'}, with the candidate\u2019s "
+             "HOMO taken as its LUMO \u2212 optical gap; hatched: not viable (no efficiency). Markers are "
+             "labelled by candidate id and sit at the candidate\u2019s own optical gap and \u0394LUMO."]
     n_same = int(pts["same_role"].sum())
     n_missing = int((~finite).sum()) - n_same
-    parts = []
-    if (pts["role"].eq("acceptor") & ~pts["same_role"]).any() and absorber != "both":
-        parts.append("Acceptor candidates sit at the partner donor's optical gap, at their offset "
-                     "ΔLUMO = LUMO(partner) − LUMO(candidate).")
-    if absorber == "both":
-        parts.append("With both materials absorbing, each point sits at the smaller gap of the pair; "
-                     "the map itself assumes the donor absorbs.")
+    n_bad = int((finite & ~pts["viable"]).sum())
+    if n_bad:
+        parts.append(f"{n_bad} ranked row(s) are not viable (crosses); their reasons are listed with the rows "
+                     "that were not ranked.")
     if n_same:
         parts.append(f"{n_same} ranked row(s) with the partner's own role are not drawn.")
     if n_missing:
@@ -456,68 +465,72 @@ def _map_note(pts: pd.DataFrame, finite: pd.Series, absorber: str, model_note: s
 
 
 def design_map_svg(ranking: pd.DataFrame, shortlist_index, partner: dict, meta: dict) -> tuple[str, str]:
-    """Gap–offset map: Scharber-model PCE over optical gap × LUMO offset.
+    """Gap–offset map: the run's device model against the chosen partner over optical gap × LUMO offset.
 
     Parameters
     ----------
     ranking : pandas.DataFrame
-        Every ranked row (``rank, gap_opt_ev, delta_lumo_ev, role``).
+        Every ranked row (``id, gap_opt_ev, delta_lumo_ev, role``, optional ``viable``).
     shortlist_index : sequence
-        Index labels of ``ranking`` that are shortlisted (highlighted and
-        labelled with their rank).
+        Index labels of ``ranking`` that are shortlisted (highlighted and labelled with their id).
     partner : dict
-        Partner levels (``role, lumo_ev, gap_opt_ev``).
+        Partner levels (``id, role, homo_ev, lumo_ev, gap_opt_ev``, optional ``smiles``).
     meta : dict
-        Report metadata: device parameters and the target efficiency.
+        Report metadata: device model and parameters, target efficiency.
 
     Returns
     -------
     svg : str
-        Inline SVG (``id="fig-map"``) with filled contours and contour lines
-        of :func:`screen.device.efficiency_map`, the target efficiency as a
-        bold amber contour, the region below the offset threshold hatched,
-        every ranked candidate as a dot and the shortlist as labelled amber
-        diamonds; colourbar "PCE [%]".
+        Inline SVG (``id="fig-map"``): filled PCE contours of
+        :meth:`screen.device.DeviceModel.evaluate` for the partner, the
+        not-viable region hatched (no colour: no efficiency), ΔLUMO = 0 dashed,
+        the target efficiency as a bold amber contour, every ranked candidate
+        (crosses when not viable) and the shortlist as amber diamonds labelled
+        with their ids; the title names the model.
     note : str
-        Caption text: how candidates are placed and how many could not be.
-
-    Notes
-    -----
-    The map takes the donor HOMO as donor LUMO − optical gap, as in [1]_, so
-    that :math:`V_{oc} = E_g - \\Delta_{LUMO} - V_{loss}` and the map depends on
-    gap and offset only.  A candidate whose own HOMO–LUMO gap differs from its
-    optical gap therefore has an estimated PCE (in the tables) that can differ
-    from the map colour under its marker.
+        Caption text: model, partner, placement and counts.
 
     References
     ----------
-    .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
-       :doi:`10.1002/adma.200501717`
+    .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789. :doi:`10.1002/adma.200501717`
+    .. [2] D. Veldman et al., Adv. Funct. Mater. 19 (2009) 1939. :doi:`10.1002/adfm.200801834`
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> rows = pd.DataFrame({"rank": [1], "id": ["demo"], "role": ["donor"], "gap_opt_ev": [1.5],
+    ...                      "delta_lumo_ev": [0.4], "viable": [True]})
+    >>> partner = {"id": "y6", "role": "acceptor", "homo_ev": -5.65, "lumo_ev": -4.10, "gap_opt_ev": 1.33}
+    >>> svg, note = design_map_svg(rows, [0], partner, {"device": {"model": "fitted", "absorber": "both"}})
+    >>> svg[:18], note[:40]
+    ('<svg id="fig-map" ', 'Model: fitted energy-loss model (both ma')
     """
     import matplotlib
     from matplotlib.figure import Figure
 
     model, model_note = _device_model(meta)
-    pts = _map_points(ranking, partner, meta)
+    pts = _map_points(ranking, partner)
     finite = pts["x"].notna() & pts["y"].notna()
     extent = _map_extent(pts, finite)
     gaps, offsets, pce = _map_grid(model, partner, extent)
     target = num(get(meta, "rank", "target_pce_pct"))
-    absorber = text(get(meta, "device", "absorber")) or "donor"
+    cand_role = "acceptor" if _partner_role(partner) == "donor" else "donor"
 
     with matplotlib.rc_context(_RC):
         fig = Figure(figsize=(9.4, 6.0))
         ax = fig.add_subplot()
+        _map_mask(ax, extent)
         filled = _map_contours(ax, gaps, offsets, pce, target)
-        _map_threshold(ax, extent, model.min_delta_lumo_ev)
         _map_candidates(ax, pts, finite, shortlist_index, extent)
-        ax.set_xlabel("Donor optical gap [eV]" if absorber != "both"
-                      else "Absorber optical gap (smaller gap of the pair) [eV]")
+        ax.set_title(f"{model.label} \u2014 partner {shorten(text(partner.get('id')), 30)}", fontsize=10,
+                     color=_TEAL_DARK)
+        ax.set_xlabel(f"{cand_role.capitalize()} optical gap [eV]")
         ax.set_ylabel("LUMO offset \u0394LUMO = LUMO(donor) \u2212 LUMO(acceptor) [eV]")
         cbar = fig.colorbar(filled, ax=ax, pad=0.02, fraction=0.045)
         cbar.set_label("PCE [%]")
         cbar.outline.set_visible(False)
         ax.legend(loc="upper right", fontsize=8, framealpha=0.92, edgecolor="#d9dee4")
         svg = _figure_svg(fig, "fig-map", "figure-svg map-figure",
-                          "Estimated efficiency over optical gap and LUMO offset with the ranked candidates")
-    return svg, _map_note(pts, finite, absorber, model_note)
+                          f"Estimated efficiency ({model.label}) over optical gap and LUMO offset against the "
+                          "partner, with the ranked candidates")
+    return svg, _map_note(pts, finite, model, partner, model_note)

@@ -1,4 +1,4 @@
-"""The report's HTML tables: the shortlist with drawings, every ranked row, and the rows not ranked.
+"""The report's HTML tables: the shortlist with drawings, every ranked row, and the rows not ranked or not viable.
 
 Every user text (ids, names, SMILES, pass-through columns, error messages) is
 HTML-escaped here; numbers carry a ``data-value`` for the sorting script.
@@ -21,7 +21,7 @@ _KNOWN_RANKING = {
     "rank", "id", "name", "smiles", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "partner",
     "delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "pce_sigma_pct",
     "p_above_target", "passes", "flags", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev",
-    "shortlist", "absorber_gap_ev", "scale", "key",
+    "shortlist", "absorber_gap_ev", "scale", "key", "viable", "reason", "model", "acceptor_class",
 }
 #: Pass-through columns shown in the full table at most.
 _MAX_EXTRA_COLUMNS = 8
@@ -297,18 +297,60 @@ def _unranked_reason(row) -> tuple[str, str]:
     return st, why
 
 
+def _not_viable_rows(ranking: pd.DataFrame) -> pd.DataFrame:
+    """Ranked rows whose pair is not viable (column ``viable`` false), with their reason."""
+    if ranking is None or "viable" not in ranking or not len(ranking):
+        return ranking.iloc[0:0] if ranking is not None else pd.DataFrame()
+    bad = ~ranking["viable"].map(truthy)
+    return ranking[bad]
+
+
 def not_ranked_table(levels: pd.DataFrame, ranking: pd.DataFrame) -> tuple[str, int]:
-    """Table of input rows that are not in the ranking, with their reasons; and their number."""
-    if levels is None or not len(levels):
+    """Input rows that are not in the ranking, and ranked pairs that are not viable, with their reasons.
+
+    Returns the table and the number of rows listed.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> lv = pd.DataFrame({"id": ["a", "b"], "status": ["ok", "ok"]})
+    >>> rk = pd.DataFrame({"id": ["a", "b"], "viable": [True, False], "reason": ["", "inverted alignment"]})
+    >>> html, n = not_ranked_table(lv, rk)
+    >>> n, "not viable" in html, "inverted alignment" in html
+    (1, True, True)
+    """
+    bad = _not_viable_rows(ranking)
+    if (levels is None or not len(levels)) and not len(bad):
         return '<p class="quiet">No levels table was given, so unranked rows cannot be listed.</p>', 0
-    ranked_ids = set(ranking["id"].map(text)) if "id" in ranking else set()
+    body = []
+    if levels is not None and len(levels):
+        body += _unranked_rows(levels, ranking)
+    for _, row in bad.iterrows():
+        why = text(row.get("reason")).strip() or "; ".join(describe(c) for c in _flag_codes(row.get("flags"))) \
+            or "no reason recorded"
+        smi = text(row.get("smiles"))
+        body.append(
+            f'<tr data-id="{esc(row.get("id"))}"><td class="cid">{esc(row.get("id"))}</td>'
+            f'<td>{esc(text(row.get("name")))}</td><td><span class="status st-other">not viable</span></td>'
+            f'<td class="reason">{esc(why)}</td>'
+            f'<td><code class="smi" title="{esc(smi)}">{esc(shorten(smi, 60))}</code></td></tr>')
+    if not body:
+        return '<p class="quiet">Every input row was ranked.</p>', 0
+    table = ('<table class="unranked" id="not-ranked-table"><thead><tr><th scope="col">Id</th>'
+             '<th scope="col">Name</th><th scope="col">Status</th><th scope="col">Reason</th>'
+             '<th scope="col">SMILES as given</th></tr></thead><tbody>' + "\n".join(body)
+             + "</tbody></table>")
+    return table, len(body)
+
+
+def _unranked_rows(levels: pd.DataFrame, ranking: pd.DataFrame) -> list[str]:
+    """Table rows of the input rows that are not in the ranking."""
+    ranked_ids = set(ranking["id"].map(text)) if ranking is not None and "id" in ranking else set()
     status = (levels["status"].map(text).str.strip().str.lower() if "status" in levels
               else pd.Series("ok", index=levels.index))
     ids = levels["id"].map(text) if "id" in levels else pd.Series("", index=levels.index)
     missing_ok = status.eq("ok") & ~ids.isin(ranked_ids)
     rows = levels[status.ne("ok") | missing_ok]
-    if not len(rows):
-        return '<p class="quiet">Every input row was ranked.</p>', 0
     body = []
     for _, row in rows.iterrows():
         st, why = _unranked_reason(row)
@@ -321,8 +363,4 @@ def not_ranked_table(levels: pd.DataFrame, ranking: pd.DataFrame) -> tuple[str, 
             f'<td class="reason">{esc(why)}</td>'
             f'<td><code class="smi" title="{esc(smi)}">{esc(shorten(smi, 60))}</code></td></tr>'
         )
-    table = ('<table class="unranked" id="not-ranked-table"><thead><tr><th scope="col">Id</th>'
-             '<th scope="col">Name</th><th scope="col">Status</th><th scope="col">Reason</th>'
-             '<th scope="col">SMILES as given</th></tr></thead><tbody>' + "\n".join(body)
-             + "</tbody></table>")
-    return table, len(rows)
+    return body
