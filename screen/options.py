@@ -89,8 +89,15 @@ class StructureOptions:
         xTB method for ranking conformers (GFN2-xTB).
     rank_max_conformers : int
         At most this many conformers, the lowest by force-field energy, get an xTB single point.
-    rank_window_kcal_mol : float
-        ... and only those within this force-field energy window of the lowest [kcal/mol].
+    ff_window_kcal_mol : float
+        ... and only those within this force-field energy window of the lowest [kcal/mol]; the
+        others are dropped before any xTB call.
+    conformer_atom_budget : int
+        Size cap of the conformer count: at most ``conformer_atom_budget / n_atoms`` conformers
+        (at least two) are embedded (:func:`screen.structures.conformer_count`).
+    rank_atom_budget : int
+        Size cap of the xTB ranking: at most ``rank_atom_budget / n_atoms`` conformers (at least
+        one; one means no ranking single point) (:func:`screen.structures.ranked_count`).
 
     Examples
     --------
@@ -112,7 +119,9 @@ class StructureOptions:
     truncate_min_carbons: int = _S["truncate_min_carbons"]
     ranking_method: str = _S["ranking_method"]
     rank_max_conformers: int = _S["rank_max_conformers"]
-    rank_window_kcal_mol: float = _S["rank_window_kcal_mol"]
+    ff_window_kcal_mol: float = _S["ff_window_kcal_mol"]
+    conformer_atom_budget: int = _S["conformer_atom_budget"]
+    rank_atom_budget: int = _S["rank_atom_budget"]
 
     def __post_init__(self):
         if self.geometry not in ("ff", "xtb"):

@@ -8,13 +8,16 @@ Route (every step seeded, so the same input gives the same geometry):
    common-practice simplification: the chains barely change the frontier
    levels of the conjugated core but multiply the conformer space);
 2. RDKit ETKDGv3 embedding of several conformers; the count grows with the
-   number of rotatable bonds (:func:`conformer_count`);
+   number of rotatable bonds and is capped by size (:func:`conformer_count`), so
+   100–250-atom oligomers stay affordable;
 3. MMFF94 optimisation of every conformer (UFF when MMFF lacks parameters,
    e.g. for B; when neither has parameters, e.g. aromatic Se, the chosen
    conformer is optimised with the xTB engine instead, step 5);
-4. GFN2-xTB single points on the lowest few conformers by force-field energy
-   (at most ``rank_max_conformers`` within ``rank_window_kcal_mol``), keeping
-   the lowest by xTB energy;
+4. GFN2-xTB single points on the lowest few conformers by force-field energy,
+   keeping the lowest by xTB energy: conformers more than ``ff_window_kcal_mol``
+   above the lowest force-field energy are dropped before any xTB call, and at
+   most :func:`ranked_count` are ranked (fewer for big molecules; one, and no
+   ranking single point, from ``rank_atom_budget`` atoms on);
 5. optional (``geometry="xtb"``) GFN2-xTB optimisation of that conformer with
    ASE's L-BFGS optimiser and the engine's ASE calculator.
 
@@ -50,6 +53,7 @@ from screen.options import StructureOptions
 __all__ = [
     "StructureOptions",
     "conformer_count",
+    "ranked_count",
     "truncate_side_chains",
     "build_structure",
     "run_structures",
@@ -63,8 +67,21 @@ STATUS_COLUMNS = ["key", "status", "error", "smiles_computed", "truncated_chains
                   "forcefield", "geometry", "xtb_rank_energy_eh", "opt_converged", "wall_s"]
 
 
+def _atom_count(mol: Chem.Mol) -> int:
+    """Atoms including implicit and explicit hydrogens."""
+    return sum(1 + a.GetTotalNumHs() for a in mol.GetAtoms())
+
+
 def conformer_count(mol: Chem.Mol, options: StructureOptions = StructureOptions()) -> int:
     """Number of conformers to embed for ``mol``.
+
+    ``min(conformers_max, conformers_base + conformers_per_rotor × rotatable bonds)``,
+    capped by size: at most ``conformer_atom_budget / n_atoms`` (never fewer than
+    two). Embedding and force-field optimisation cost grows with atoms ×
+    conformers, and a 100–250-atom oligomer is a stiff conjugated backbone
+    whose extra conformers differ in torsions of nearly equal force-field
+    energy (a probe on a 137-atom oligomer: the eight lowest of 24 conformers
+    within 0.6 kcal/mol), so the cap keeps the stage roughly linear in size.
 
     Examples
     --------
@@ -72,9 +89,29 @@ def conformer_count(mol: Chem.Mol, options: StructureOptions = StructureOptions(
     4
     >>> conformer_count(Chem.MolFromSmiles("c1ccc(-c2ccccc2)cc1"))
     6
+    >>> conformer_count(Chem.MolFromSmiles("c1ccc(-c2ccccc2)cc1"), StructureOptions(conformer_atom_budget=44))
+    2
     """
     n_rot = rdMolDescriptors.CalcNumRotatableBonds(mol)
-    return int(min(options.conformers_max, options.conformers_base + options.conformers_per_rotor * n_rot))
+    by_rotors = min(options.conformers_max, options.conformers_base + options.conformers_per_rotor * n_rot)
+    by_size = max(2, options.conformer_atom_budget // max(1, _atom_count(mol)))
+    return int(min(by_rotors, by_size))
+
+
+def ranked_count(n_atoms: int, options: StructureOptions = StructureOptions()) -> int:
+    """How many conformers (the lowest by force-field energy) get an xTB ranking single point.
+
+    ``min(rank_max_conformers, rank_atom_budget // n_atoms)``, at least one. A
+    GFN2-xTB single point costs O(N²)–O(N³) (about 8 s at 137 atoms on one
+    core in a probe), so a 250-atom oligomer gets one conformer and no ranking
+    single point at all (see :func:`build_structure`).
+
+    Examples
+    --------
+    >>> ranked_count(30), ranked_count(137), ranked_count(250)
+    (6, 2, 1)
+    """
+    return int(max(1, min(options.rank_max_conformers, options.rank_atom_budget // max(1, n_atoms))))
 
 
 def _alkyl_atom(atom: Chem.Atom) -> bool:
@@ -234,14 +271,18 @@ def _ff_optimise(mol_h: Chem.Mol, options: StructureOptions) -> tuple[str, list[
     return "none", None
 
 
-def _prefilter(ids: list[int], energies: list[float] | None, options: StructureOptions) -> list[int]:
-    """Conformers worth an xTB single point: the lowest by force-field energy within the window."""
+def _prefilter(ids: list[int], energies: list[float] | None, n_keep: int, options: StructureOptions) -> list[int]:
+    """Conformers worth an xTB single point: the lowest ``n_keep`` by force-field energy within the window.
+
+    Conformers more than ``ff_window_kcal_mol`` above the lowest force-field
+    energy are dropped before any xTB call.
+    """
     if energies is None:
-        return ids
+        return ids[:n_keep]
     order = sorted(range(len(ids)), key=lambda i: (energies[i], ids[i]))
     e_min = energies[order[0]]
-    keep = [ids[i] for i in order if energies[i] - e_min <= options.rank_window_kcal_mol]
-    return keep[: options.rank_max_conformers]
+    keep = [ids[i] for i in order if energies[i] - e_min <= options.ff_window_kcal_mol]
+    return keep[:n_keep]
 
 
 def _xtb_optimise(numbers: np.ndarray, positions_a: np.ndarray, engine: Engine,
@@ -297,29 +338,12 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     cuts: list[str] = []
     if options.truncate_side_chains:
         mol, cuts = truncate_side_chains(mol, options.truncate_min_carbons)
-    smiles_computed = Chem.MolToSmiles(mol)
     mol_h = Chem.AddHs(mol)
-    n_conf = conformer_count(mol, options)
-    ids, embedding = _embed(mol_h, n_conf, options)
-    if not ids:
-        raise ValueError(f"RDKit ETKDG could not embed a 3D structure ({n_conf} attempts, random coordinates too)")
-    ff, ff_energies = _ff_optimise(mol_h, options)
-    ranked = _prefilter(ids, ff_energies, options)
-    if engine is None:
-        engine = make_engine("tblite", options.ranking_method)
     numbers = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
-    best_id, best_e, errors = None, np.inf, []
-    for cid in ranked:
-        pos_bohr = mol_h.GetConformer(cid).GetPositions() / BOHR_ANGSTROM
-        try:
-            e = engine.singlepoint(numbers, pos_bohr).energy_eh
-        except EngineError as exc:
-            errors.append(str(exc))
-            continue
-        if e < best_e - 1e-9:
-            best_id, best_e = cid, e
-    if best_id is None:
-        raise EngineError(f"no conformer gave a converged xTB energy: {errors[0] if errors else 'unknown'}")
+    ids, embedding, ff, ff_energies = _conformers(mol_h, conformer_count(mol, options), options)
+    ranked = _prefilter(ids, ff_energies, ranked_count(len(numbers), options), options)
+    engine = engine or make_engine("tblite", options.ranking_method)
+    best_id, best_e = _rank_by_xtb(mol_h, numbers, ranked, engine)
     conf = Chem.Conformer(mol_h.GetConformer(best_id))
     conf.SetId(0)
     out = Chem.Mol(mol_h)
@@ -338,7 +362,7 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
         if not ok:
             raise EngineError(f"xTB geometry optimisation did not converge in {options.xtb_max_steps} steps")
     info = {
-        "smiles_computed": smiles_computed,
+        "smiles_computed": Chem.MolToSmiles(mol),
         "truncated_chains": len(cuts),
         "truncated_groups": ";".join(cuts),
         "n_conformers": len(ids),
@@ -346,11 +370,43 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
         "embedding": embedding,
         "forcefield": ff,
         "geometry": geometry,
-        "xtb_rank_energy_eh": float(best_e),
+        "xtb_rank_energy_eh": best_e,
         "opt_converged": opt_converged,
         "wall_s": time.perf_counter() - start,
     }
     return out, info
+
+
+def _conformers(mol_h: Chem.Mol, n_conf: int, options: StructureOptions):
+    """Embedded and force-field optimised conformers: (ids, embedding, force field, energies)."""
+    ids, embedding = _embed(mol_h, n_conf, options)
+    if not ids:
+        raise ValueError(f"RDKit ETKDG could not embed a 3D structure ({n_conf} attempts, random coordinates too)")
+    ff, ff_energies = _ff_optimise(mol_h, options)
+    return ids, embedding, ff, ff_energies
+
+
+def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine: Engine) -> tuple[int, float]:
+    """The conformer of lowest xTB energy among ``ranked`` and that energy [Eh].
+
+    A single candidate needs no ranking: it is returned with a NaN energy and
+    no xTB call (the electronic stage computes it anyway).
+    """
+    if len(ranked) == 1:
+        return ranked[0], float("nan")
+    best_id, best_e, errors = None, np.inf, []
+    for cid in ranked:
+        pos_bohr = mol_h.GetConformer(cid).GetPositions() / BOHR_ANGSTROM
+        try:
+            e = engine.singlepoint(numbers, pos_bohr).energy_eh
+        except EngineError as exc:
+            errors.append(str(exc))
+            continue
+        if e < best_e - 1e-9:
+            best_id, best_e = cid, e
+    if best_id is None:
+        raise EngineError(f"no conformer gave a converged xTB energy: {errors[0] if errors else 'unknown'}")
+    return best_id, float(best_e)
 
 
 def _molblock_and_info(mol: Chem.Mol, info: dict) -> tuple[str, dict]:

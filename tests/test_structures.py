@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import numpy as np
 import pandas as pd
 import pytest
 from rdkit import Chem
@@ -101,3 +102,42 @@ def test_run_structures_accounts_for_every_key(tmp_path):
     assert set(mols) == {"ma", "mb"} and mols["ma"].GetNumAtoms() == 9
     assert not list(tmp_path.glob("*.journal.jsonl"))  # journal removed once the output is complete
     assert not list(tmp_path.glob(".*.tmp"))
+
+
+class _CountingEngine:
+    """Wraps the default engine and counts single points."""
+
+    def __init__(self):
+        from screen.engines import make_engine
+
+        self.inner, self.calls = make_engine(), 0
+
+    def singlepoint(self, *args, **kwargs):
+        self.calls += 1
+        return self.inner.singlepoint(*args, **kwargs)
+
+
+def test_conformer_and_ranking_counts_shrink_with_size():
+    from screen.structures import ranked_count
+
+    opts = StructureOptions()
+    mol = Chem.MolFromSmiles("CCOc1ccc(-c2ccc(OCC)cc2)cc1")  # 36 atoms, 5 rotatable bonds
+    assert conformer_count(mol, opts) == min(opts.conformers_max, opts.conformers_base + 5 * opts.conformers_per_rotor)
+    assert conformer_count(mol, StructureOptions(conformer_atom_budget=36 * 3)) == 3
+    assert conformer_count(mol, StructureOptions(conformer_atom_budget=10)) == 2  # never fewer than two
+    assert [ranked_count(n, opts) for n in (40, 100, 180, 250)] == [6, 3, 2, 1]
+
+
+def test_ff_window_prunes_before_any_xtb_call():
+    engine = _CountingEngine()
+    _, wide = build_structure("CCCCc1ccc(-c2ccccc2)s1", StructureOptions(ff_window_kcal_mol=50.0), engine)
+    wide_calls, engine.calls = engine.calls, 0
+    _, narrow = build_structure("CCCCc1ccc(-c2ccccc2)s1", StructureOptions(ff_window_kcal_mol=0.0), engine)
+    assert wide["n_ranked"] == wide_calls > 1
+    assert narrow["n_ranked"] == 1 and engine.calls == 0  # only the force-field minimum: nothing to rank
+
+
+def test_big_molecule_gets_one_conformer_without_ranking_single_point():
+    engine = _CountingEngine()
+    _, info = build_structure("c1ccc(-c2ccc(-c3cccs3)s2)s1", StructureOptions(rank_atom_budget=20), engine)
+    assert info["n_ranked"] == 1 and engine.calls == 0 and np.isnan(info["xtb_rank_energy_eh"])
