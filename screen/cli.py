@@ -236,9 +236,10 @@ def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
 
 def _print_ranking_of_run(cfg: Config, out: Path) -> None:
     from screen.partners import PartnerError, partner_slug
+    from screen.rank_io import ranking_folder
 
     try:
-        path = out / "rankings" / partner_slug(cfg["partner"]) / "ranking.csv"
+        path = out / "rankings" / ranking_folder(partner_slug(cfg["partner"]), cfg) / "ranking.csv"
     except PartnerError:
         return
     if path.is_file():

@@ -44,12 +44,13 @@ import dataclasses
 import hashlib
 import math
 import re
-from dataclasses import dataclass
 from pathlib import Path
 
 import pandas as pd
 
-from screen.errors import InputError
+from screen.partner_library import (LIBRARY_COLUMNS, LIBRARY_PATH, ROLES, SCALES, Partner, PartnerError,
+                                   _float, _sigma_value, _text, complement, library_partners, library_table,
+                                   load_library)
 
 __all__ = [
     "LIBRARY_PATH",
@@ -62,6 +63,10 @@ __all__ = [
     "library_partners",
     "library_table",
     "partner_slug",
+    "slugify",
+    "suggest",
+    "did_you_mean",
+    "split_partners",
     "partner_kind",
     "partner_key",
     "partner_batch",
@@ -70,249 +75,9 @@ __all__ = [
     "complement",
 ]
 
-#: the built-in partner library
-LIBRARY_PATH = Path(__file__).parent / "data" / "partners.csv"
-#: columns of the library file, in order
-LIBRARY_COLUMNS = ["id", "name", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "scale", "homo_sigma_ev",
-                   "lumo_sigma_ev", "gap_opt_sigma_ev", "fc_reference_ev", "smiles", "source", "doi",
-                   "from_memory", "notes"]
-#: allowed roles
-ROLES = ("donor", "acceptor")
-#: allowed energy scales (design notes §2)
-SCALES = ("film", "gas")
-
 _SMILES_PREFIX = "smiles:"
 _ID_PREFIX = "id:"
 _SIGMA = ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")
-
-
-class PartnerError(InputError):
-    """A partner specification that cannot be resolved (message says why and what is allowed)."""
-
-
-@dataclass(frozen=True)
-class Partner:
-    """One partner material: frontier levels, optical gap, scale and role.
-
-    Parameters
-    ----------
-    id : str
-        Identifier written to the ``partner`` column of the ranking (library
-        id, the id of the file/levels row, or ``smiles:<canonical SMILES>``).
-    name : str
-        Human-readable name.
-    role : str
-        ``'donor'``, ``'acceptor'`` or ``''`` (unknown: the ranking then takes
-        the complement of the candidates' role).
-    homo_ev, lumo_ev : float
-        Frontier levels, vacuum scale. [eV]
-    gap_opt_ev : float
-        Optical gap (NaN if unknown). [eV]
-    homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev : float
-        Standard uncertainties; 0 when not given. [eV]
-    scale : str
-        ``'film'`` or ``'gas'`` (design notes §2).
-    source : str
-        Where the numbers come from (citation, file path or protocol).
-    slug : str
-        Path-safe folder name for ``rankings/<slug>/``.
-    kind : str
-        ``'library'``, ``'file'``, ``'smiles'`` or ``'id'``.
-    spec : str
-        The specification as given.
-    smiles : str
-        SMILES if known.
-    doi : str
-        DOI of the source if known.
-    from_memory : bool or None
-        Library entries: the values were recalled rather than read from the
-        source (None when not stated).
-    notes : str
-        Free text (library notes, how a value was obtained).
-    """
-
-    id: str
-    name: str
-    role: str
-    homo_ev: float
-    lumo_ev: float
-    gap_opt_ev: float
-    homo_sigma_ev: float = 0.0
-    lumo_sigma_ev: float = 0.0
-    gap_opt_sigma_ev: float = 0.0
-    scale: str = "film"
-    source: str = ""
-    slug: str = ""
-    kind: str = "library"
-    spec: str = ""
-    smiles: str = ""
-    doi: str = ""
-    from_memory: bool | None = None
-    notes: str = ""
-
-    def as_dict(self) -> dict:
-        """Plain dict (NaN written as None) for JSON sidecars and the report.
-
-        Examples
-        --------
-        >>> p = Partner("x", "X", "acceptor", -6.0, -4.0, float("nan"))
-        >>> p.as_dict()["gap_opt_ev"] is None
-        True
-        """
-        out = dataclasses.asdict(self)
-        for key, value in out.items():
-            if isinstance(value, float) and not math.isfinite(value):
-                out[key] = None
-        return out
-
-
-def complement(role: str) -> str:
-    """The other role of a donor/acceptor pair.
-
-    Examples
-    --------
-    >>> complement("donor"), complement("acceptor")
-    ('acceptor', 'donor')
-    """
-    if role not in ROLES:
-        raise PartnerError(f"role must be 'donor' or 'acceptor', not {role!r}")
-    return "acceptor" if role == "donor" else "donor"
-
-
-# --------------------------------------------------------------------------- library
-
-def _float(value, what: str) -> float:
-    if value is None or (isinstance(value, str) and not value.strip()):
-        return float("nan")
-    try:
-        return float(value)
-    except (TypeError, ValueError):
-        raise PartnerError(f"{what}: {value!r} is not a number") from None
-
-
-def _sigma_value(value, what: str) -> float:
-    s = _float(value, what)
-    if math.isnan(s):
-        return 0.0
-    if s < 0 or not math.isfinite(s):
-        raise PartnerError(f"{what}: σ must be finite and >= 0, not {value!r}")
-    return s
-
-
-def _text(value) -> str:
-    if value is None or (isinstance(value, float) and math.isnan(value)):
-        return ""
-    return str(value).strip()
-
-
-def load_library(path: str | Path | None = None) -> pd.DataFrame:
-    """Read and check the partner library.
-
-    Parameters
-    ----------
-    path : path-like, optional
-        Library CSV (default :data:`LIBRARY_PATH`).
-
-    Returns
-    -------
-    pandas.DataFrame
-        One row per partner with :data:`LIBRARY_COLUMNS`; energies as floats
-        [eV], text columns as str.
-
-    Raises
-    ------
-    PartnerError
-        Missing file or column, duplicate id, role or scale outside the
-        allowed values, or a level that is not a number.
-
-    Examples
-    --------
-    >>> lib = load_library()
-    >>> "scharber-reference-acceptor" in set(lib["id"])
-    True
-    """
-    from screen.io import read_csv_checked
-
-    path = Path(path) if path is not None else LIBRARY_PATH
-    frame = read_csv_checked(path, LIBRARY_COLUMNS, what="partner library", error=PartnerError, dtype=str,
-                             keep_default_na=False)
-    frame["id"] = frame["id"].str.strip()
-    dup = frame["id"][frame["id"].str.lower().duplicated()].tolist()
-    if dup:
-        raise PartnerError(f"{path}: duplicate partner id(s) {dup}")
-    for col in ("role", "scale"):
-        frame[col] = frame[col].str.strip().str.lower()
-    bad_role = frame.loc[~frame["role"].isin(ROLES), "id"].tolist()
-    if bad_role:
-        raise PartnerError(f"{path}: partner(s) {bad_role} have a role other than 'donor' or 'acceptor'")
-    bad_scale = frame.loc[~frame["scale"].isin(SCALES), "id"].tolist()
-    if bad_scale:
-        raise PartnerError(f"{path}: partner(s) {bad_scale} have a scale other than 'film' or 'gas'")
-    for col in ("homo_ev", "lumo_ev", "gap_opt_ev", "fc_reference_ev", *_SIGMA):
-        values = pd.to_numeric(frame[col].replace("", float("nan")), errors="coerce")
-        bad = frame.loc[values.isna() & frame[col].str.strip().ne(""), "id"].tolist()
-        if bad:
-            raise PartnerError(f"{path}: column {col} of partner(s) {bad} is not a number")
-        frame[col] = values
-    return frame
-
-
-def _library_row_partner(row: dict, path: Path) -> Partner:
-    pid = row["id"]
-    for col in ("homo_ev", "lumo_ev"):
-        if not math.isfinite(row[col]):
-            raise PartnerError(f"{path}: partner {pid!r} has no {col}")
-    fm = _text(row.get("from_memory")).lower()
-    return Partner(
-        id=pid, name=_text(row["name"]) or pid, role=row["role"], homo_ev=float(row["homo_ev"]),
-        lumo_ev=float(row["lumo_ev"]), gap_opt_ev=float(row["gap_opt_ev"]),
-        homo_sigma_ev=_sigma_value(row["homo_sigma_ev"], f"{path}: {pid} homo_sigma_ev"),
-        lumo_sigma_ev=_sigma_value(row["lumo_sigma_ev"], f"{path}: {pid} lumo_sigma_ev"),
-        gap_opt_sigma_ev=_sigma_value(row["gap_opt_sigma_ev"], f"{path}: {pid} gap_opt_sigma_ev"),
-        scale=row["scale"], source=_text(row["source"]), slug=pid, kind="library", spec=pid,
-        smiles=_text(row["smiles"]), doi=_text(row["doi"]),
-        from_memory={"true": True, "false": False}.get(fm), notes=_text(row["notes"]),
-    )
-
-
-def library_partners(path: str | Path | None = None) -> dict[str, Partner]:
-    """The library as :class:`Partner` objects by id (file order).
-
-    Examples
-    --------
-    >>> lib = library_partners()
-    >>> lib["scharber-reference-acceptor"].lumo_ev
-    -4.3
-    """
-    path = Path(path) if path is not None else LIBRARY_PATH
-    frame = load_library(path)
-    return {row["id"]: _library_row_partner(row, path) for row in frame.to_dict("records")}
-
-
-def library_table(path: str | Path | None = None, source_width: int = 70) -> pd.DataFrame:
-    """The library as a display table (``dascreen partners``).
-
-    Parameters
-    ----------
-    path : path-like, optional
-        Library CSV (default :data:`LIBRARY_PATH`).
-    source_width : int
-        Sources longer than this are shortened with ``...`` (0: never).
-
-    Returns
-    -------
-    pandas.DataFrame
-        Columns ``id, role, homo_ev, lumo_ev, gap_opt_ev, scale, source``
-        (energies in eV; the source is followed by its DOI when known).
-    """
-    rows = []
-    for p in library_partners(path).values():
-        src = p.source + (f" doi:{p.doi}" if p.doi else "")
-        if source_width and len(src) > source_width:
-            src = src[: source_width - 3] + "..."
-        rows.append({"id": p.id, "role": p.role, "homo_ev": p.homo_ev, "lumo_ev": p.lumo_ev,
-                     "gap_opt_ev": p.gap_opt_ev, "scale": p.scale, "source": src})
-    return pd.DataFrame(rows, columns=["id", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "scale", "source"])
 
 
 # --------------------------------------------------------------------------- specs and slugs
@@ -332,10 +97,59 @@ def _library_lookup(spec: str, path: Path | None = None) -> str | None:
     return None
 
 
+def suggest(word: str, choices, n: int = 3) -> list[str]:
+    """Close matches of ``word`` among ``choices`` (case-insensitive; :func:`difflib.get_close_matches`).
+
+    Examples
+    --------
+    >>> suggest("y7", ["y6", "c60", "it-4f"])
+    ['y6']
+    >>> suggest("C-70", ["c60", "c70"])
+    ['c70', 'c60']
+    """
+    import difflib
+
+    by_low: dict[str, str] = {}
+    for choice in choices:
+        by_low.setdefault(str(choice).lower(), str(choice))
+    hits = difflib.get_close_matches(str(word).strip().lower(), list(by_low), n=n, cutoff=0.5)
+    return [by_low[h] for h in hits]
+
+
+def _library_names(path: Path | None = None) -> dict[str, str]:
+    """Library ids by lower-case id and lower-case name (names find their id)."""
+    try:
+        lib = load_library(path)
+    except PartnerError:
+        return {}
+    out = {pid.lower(): pid for pid in lib["id"]}
+    for pid, name in zip(lib["id"], lib["name"]):
+        out.setdefault(str(name).strip().lower(), pid)
+    return out
+
+
+def did_you_mean(spec: str, path: Path | None = None) -> list[str]:
+    """Library ids close to an unknown partner name (matching ids and names).
+
+    Examples
+    --------
+    >>> did_you_mean("scharber-reference")
+    ['scharber-reference-acceptor']
+    """
+    names = _library_names(path)
+    found: list[str] = []
+    for hit in suggest(spec, names, n=5):
+        if names[hit.lower()] not in found:
+            found.append(names[hit.lower()])
+    return found[:3]
+
+
 def _unknown(spec: str, path: Path | None = None) -> PartnerError:
     ids = _library_ids(path)
+    close = did_you_mean(spec, path) if spec.strip() else []
+    hint = f" Did you mean {' or '.join(close)}?" if close else ""
     return PartnerError(
-        f"unknown partner {spec!r}: not a library id and not an existing file. Library ids: "
+        f"unknown partner {spec!r}: not a library id and not an existing file.{hint} Library ids: "
         f"{', '.join(ids) if ids else '(library unreadable)'}. Other forms: a path to a one-row levels CSV "
         f"(id,homo_ev,lumo_ev,gap_opt_ev,scale[,role]), smiles:<SMILES> or id:<ID of a levels row>"
     )
@@ -384,6 +198,26 @@ def _short_hash(text: str, n: int = 10) -> str:
 def _safe_stem(text: str, limit: int = 40) -> str:
     stem = re.sub(r"[^A-Za-z0-9._-]+", "-", text).strip("-._")[:limit].strip("-._")
     return stem or "partner"
+
+
+def slugify(text: str, limit: int = 40) -> str:
+    """Readable path-safe form of ``text``: runs of other characters than ``[A-Za-z0-9._-]`` become ``-``.
+
+    Examples
+    --------
+    >>> slugify("KF D01 (batch 2)"), slugify("c1ccc(s1)-c1cccs1"), slugify("///")
+    ('KF-D01-batch-2', 'c1ccc-s1-c1cccs1', 'partner')
+    """
+    slug = re.sub(r"-{2,}", "-", re.sub(r"[^A-Za-z0-9._-]+", "-", str(text)))
+    return slug.strip("-._")[:limit].strip("-._") or "partner"
+
+
+def _readable_slug(prefix: str, text: str, always_hash: bool = False) -> str:
+    """``prefix-<slugified text>``, plus a short hash when the slug does not spell ``text`` exactly."""
+    slug = slugify(text, 40)
+    if always_hash or slug != text:
+        slug = f"{slug}-{_short_hash(text, 6)}"
+    return f"{prefix}-{slug}"
 
 
 def _canonical_key(smiles: str) -> tuple[str, str]:
@@ -462,9 +296,10 @@ def partner_slug(spec: str, library_path: str | Path | None = None) -> str:
     Returns
     -------
     str
-        The library id as written in the library; ``smiles-<structure key>``;
-        ``file-<sanitised stem>-<hash of the absolute path>``;
-        ``id-<hash of the id>``.  Only ``[A-Za-z0-9._-]`` characters.
+        Readable, only ``[A-Za-z0-9._-]`` characters: the library id as written in the library;
+        ``smiles-<slugified canonical SMILES>-<6 hex digits of the structure key>``;
+        ``file-<slugified file stem>-<hash of the absolute path>``; ``id-<the id>`` when the id is
+        path-safe (40 characters at most), else ``id-<slugified id>-<hash of the id>``.
 
     Raises
     ------
@@ -475,21 +310,45 @@ def partner_slug(spec: str, library_path: str | Path | None = None) -> str:
     --------
     >>> partner_slug("C60")
     'c60'
-    >>> partner_slug("smiles:c1ccsc1").startswith("smiles-m")
-    True
-    >>> partner_slug("id:KF-D01").startswith("id-")
-    True
+    >>> partner_slug("smiles:C1=CSC=C1")
+    'smiles-c1ccsc1-c6b0b0'
+    >>> partner_slug("id:KF-D01"), partner_slug("id:KF D01")
+    ('id-KF-D01', 'id-KF-D01-ab575c')
     """
     kind = partner_kind(spec, library_path)
     spec = spec.strip()
     if kind == "library":
         return _library_lookup(spec, Path(library_path) if library_path is not None else None)
     if kind == "smiles":
-        return f"smiles-{_canonical_key(spec[len(_SMILES_PREFIX):])[1]}"
+        canonical, key = _canonical_key(spec[len(_SMILES_PREFIX):])
+        return f"smiles-{slugify(canonical, 32)}-{key[1:7]}"
     if kind == "id":
-        return f"id-{_short_hash(spec[len(_ID_PREFIX):])}"
+        return _readable_slug("id", spec[len(_ID_PREFIX):].strip())
     path = Path(spec).expanduser().resolve()
     return f"file-{_safe_stem(path.stem)}-{_short_hash(str(path), 8)}"
+
+
+def split_partners(values) -> list[str]:
+    """Partner specifications from repeated ``--partner`` options, each possibly a comma list.
+
+    A value that names an existing file is kept whole (a path may hold commas);
+    duplicates are dropped, order kept.
+
+    Examples
+    --------
+    >>> split_partners(["y6,c60", " c60 ", "smiles:c1ccsc1"])
+    ['y6', 'c60', 'smiles:c1ccsc1']
+    >>> split_partners([])
+    []
+    """
+    out: list[str] = []
+    for value in values or []:
+        value = str(value).strip()
+        parts = [value] if Path(value).expanduser().is_file() else [p.strip() for p in value.split(",")]
+        for part in parts:
+            if part and part not in out:
+                out.append(part)
+    return out
 
 
 # --------------------------------------------------------------------------- resolving

@@ -13,7 +13,9 @@ References
 
 from __future__ import annotations
 
+import hashlib
 import importlib.util
+import json
 import math
 import sys
 from dataclasses import asdict
@@ -26,7 +28,7 @@ from screen.device import DeviceModel
 from screen.partners import Partner, PartnerError, resolve_partner
 from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, rank_candidates)
 
-__all__ = ["write_shortlist", "run_rank"]
+__all__ = ["write_shortlist", "computed_geometries", "settings_hash", "ranking_folder", "run_rank"]
 
 
 # --------------------------------------------------------------------------- outputs
@@ -43,8 +45,140 @@ _SD_PROPS = ["rank", "id", "name", "role", "partner", "homo_ev", "lumo_ev", "gap
              "pce_pct", "pce_sigma_pct", "p_above_target", "passes", "flags", "smiles"]
 
 
-def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int, scale: str = "") -> dict:
-    """Write the top passing rows as an SD file with 2D coordinates.
+def settings_hash(config) -> str:
+    """Short hash of the settings that shape a ranking: the ``device`` and ``rank`` sections.
+
+    Examples
+    --------
+    >>> a = settings_hash({})
+    >>> len(a), a == settings_hash({"device": {"model": "scharber"}})
+    (8, False)
+    """
+    cfg = Config.of(config)
+    text = json.dumps({"device": cfg["device"], "rank": cfg["rank"]}, sort_keys=True, default=str)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()[:8]
+
+
+def ranking_folder(partner_slug: str, config) -> str:
+    """Name of a ranking folder under ``OUT/rankings/``: ``<partner slug>--<settings hash>``.
+
+    The partner in words (:func:`screen.partners.partner_slug`) and
+    :func:`settings_hash`, so a ranking with other device or ranking settings
+    gets its own folder (``docs/contracts.md`` §5).
+
+    Examples
+    --------
+    >>> ranking_folder("y6", {}) == "y6--" + settings_hash({})
+    True
+    """
+    return f"{partner_slug}--{settings_hash(config)}"
+
+
+def _sdf_records(path: Path, wanted: set[str]) -> dict[str, str]:
+    """Molblocks of the records of an SD file whose title is in ``wanted`` (no full parse)."""
+    out = {}
+    text = path.read_text(encoding="utf-8", errors="replace")
+    for record in text.split("$$$$"):
+        record = record.lstrip("\r\n")
+        title = record.split("\n", 1)[0].strip()
+        if title in wanted and title not in out:
+            out[title] = record
+    return out
+
+
+def computed_geometries(keys, levels_path: Path, meta_in: dict | None = None, config=None) -> dict:
+    """3-D geometries (with hydrogens) of structure keys, as the structures stage computed them.
+
+    Looked up in the run's structures SD files (``work/candidates/structures/``
+    beside the levels file), then in the results store under the structures
+    protocol recorded in the levels sidecar.
+
+    Parameters
+    ----------
+    keys : iterable of str
+        Structure keys.
+    levels_path : path-like
+        The levels file (its folder is the run's output folder).
+    meta_in : dict, optional
+        The levels sidecar (its ``protocol.structures`` selects store rows).
+    config : screen.config.Config or mapping, optional
+        For the store location (``store.path``).
+
+    Returns
+    -------
+    dict
+        ``{key: rdkit.Chem.Mol}`` for the keys found.
+    """
+    from rdkit import Chem, rdBase
+
+    wanted = {k for k in keys if k}
+    blocks: dict[str, str] = {}
+    for sdf in sorted((Path(levels_path).parent / "work" / "candidates" / "structures").glob("shard-*.sdf")):
+        blocks.update(_sdf_records(sdf, wanted - set(blocks)))
+    proto = ((meta_in or {}).get("protocol") or {}).get("structures")
+    if wanted - set(blocks) and isinstance(proto, dict):
+        from screen.store import open_store, stage_protocol_id
+
+        try:
+            store = open_store(Config.of(config))
+            for key in sorted(wanted - set(blocks)) if store else []:
+                rec = store.get("structures", key, stage_protocol_id("structures", proto))
+                if rec and rec.get("molblock"):
+                    blocks[key] = rec["molblock"]
+        except Exception as exc:  # noqa: BLE001 - a store problem costs the 3-D geometry, not the ranking
+            print(f"dascreen rank: results store not read: {exc}", file=sys.stderr)
+    out = {}
+    with rdBase.BlockLogs():
+        for key, block in blocks.items():
+            mol = Chem.MolFromMolBlock(block, removeHs=False)
+            if mol is not None and mol.GetNumConformers():
+                out[key] = mol
+    return out
+
+
+def _embedded(smiles: str):
+    """A 3-D geometry with hydrogens made here (ETKDG + MMFF94) when none was computed; None if impossible."""
+    from rdkit import Chem
+    from rdkit.Chem import AllChem
+
+    mol = Chem.MolFromSmiles(smiles) if smiles else None
+    if mol is None or any(a.GetAtomicNum() == 0 for a in mol.GetAtoms()):
+        return None
+    mol = Chem.AddHs(mol)
+    params = AllChem.ETKDGv3()
+    params.randomSeed = 61453
+    if AllChem.EmbedMolecule(mol, params) != 0:
+        return None
+    if AllChem.MMFFHasAllMoleculeParams(mol):
+        AllChem.MMFFOptimizeMolecule(mol, maxIters=2000)
+    return mol
+
+
+_GEOMETRY_WORDS = {"computed": "computed by the structures stage: the geometry the levels were computed on",
+                   "embedded": "no computed geometry found: embedded here with ETKDG and MMFF94, hydrogens added",
+                   "2d": "2-D depiction: no 3-D geometry could be made"}
+
+
+def _shortlist_mol(row: dict, geometries: dict, keys: dict):
+    """The molecule of one shortlist row and where its coordinates come from."""
+    from rdkit import Chem
+    from rdkit.Chem import rdDepictor
+
+    key = keys.get(row.get("smiles"), "")
+    if key in geometries:
+        return Chem.Mol(geometries[key]), "computed", key
+    mol = _embedded(row["smiles"])
+    if mol is not None:
+        return mol, "embedded", key
+    mol = Chem.MolFromSmiles(row["smiles"]) if row["smiles"] else None
+    if mol is not None:
+        rdDepictor.Compute2DCoords(mol)
+    return mol, "2d", key
+
+
+def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int, scale: str = "",
+                    geometries: dict | None = None, keys: dict | None = None) -> dict:
+    """Write the top passing rows as an SD file with 3-D geometries and hydrogens.
 
     Parameters
     ----------
@@ -56,45 +190,55 @@ def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int, scale:
         Number of passing rows to write.
     scale : str
         Energy scale written as a property.
+    geometries : dict, optional
+        Computed geometries by structure key (:func:`computed_geometries`).
+    keys : dict, optional
+        Structure key by SMILES of the ranked rows.
 
     Returns
     -------
     dict
-        ``written`` (records) and ``skipped`` (ids of shortlisted rows whose
-        SMILES is missing or does not parse).
+        ``written`` (records), ``skipped`` (ids of shortlisted rows whose
+        SMILES is missing or does not parse) and ``geometry`` (records per
+        source: ``computed``, ``embedded``, ``2d``).
 
     Notes
     -----
-    The title line is the id with line breaks replaced by spaces, cut to 80
-    characters (the V2000 title-line width, from memory of the CTfile
-    format); the full id is the ``id`` property.  Coordinates are RDKit 2D depictions, not the computed
-    geometries.
+    Coordinates are the computed geometry of the structure key (the molecule the
+    levels were computed on, side chains as computed), else an ETKDG/MMFF94
+    embedding made here, else a 2-D depiction; the ``geometry_source`` property
+    says which.  Levels, offsets and device estimates are SD properties.  The
+    title line is the id with line breaks replaced by spaces, cut to 80
+    characters (the V2000 title-line width, from memory of the CTfile format);
+    the full id is the ``id`` property.
     """
     from rdkit import Chem, rdBase
-    from rdkit.Chem import rdDepictor
 
     from screen.io import atomic_path
 
+    geometries, keys = geometries or {}, keys or {}
     top = ranking[ranking["passes"].astype(bool)].head(int(size))
-    written, skipped = 0, []
+    written, skipped, sources = 0, [], {"computed": 0, "embedded": 0, "2d": 0}
     with atomic_path(target) as tmp:
         writer = Chem.SDWriter(str(tmp))
         with rdBase.BlockLogs():
             for row in top.to_dict("records"):
-                mol = Chem.MolFromSmiles(row["smiles"]) if row["smiles"] else None
+                mol, source, key = _shortlist_mol(row, geometries, keys)
                 if mol is None:
                     skipped.append(row["id"])
                     continue
-                rdDepictor.Compute2DCoords(mol)
                 mol.SetProp("_Name", _sd_text(row["id"])[:80])
                 for prop in _SD_PROPS:
                     mol.SetProp(prop, _sd_text(row.get(prop)))
                 if scale:
                     mol.SetProp("scale", scale)
+                mol.SetProp("structure_key", key)
+                mol.SetProp("geometry_source", _GEOMETRY_WORDS[source])
                 writer.write(mol)
                 written += 1
+                sources[source] += 1
         writer.close()
-    return {"written": written, "skipped": skipped}
+    return {"written": written, "skipped": skipped, "geometry": sources}
 
 
 def _levels_meta(levels_path: Path) -> dict | None:
@@ -211,10 +355,46 @@ def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, mo
                    "rejected": int(status.eq("rejected").sum()), "failed": int(status.eq("failed").sum()),
                    "ranked": int(len(ranking)), "passing": int(ranking["passes"].astype(bool).sum()),
                    "not_ranked": ranking.attrs["not_ranked"], "flags": {str(k): int(v) for k, v in flags.items()},
-                   "shortlist": short["written"], "shortlist_skipped_no_smiles": short["skipped"]},
+                   "shortlist": short["written"], "shortlist_skipped_no_smiles": short["skipped"],
+                   "shortlist_geometry": short["geometry"]},
         "columns": RANKING_COLUMNS + EXTRA_COLUMNS,
         "outputs": {"ranking": "ranking.csv", "shortlist": "shortlist.sdf", "meta": "ranking.meta.json"},
     }
+
+
+def _structure_keys(levels: pd.DataFrame) -> dict:
+    """Structure key by SMILES of the computed rows of a levels table (empty without a key column)."""
+    if "key" not in levels or "smiles" not in levels:
+        return {}
+    rows = levels[levels["key"].fillna("").astype(str).str.len() > 0]
+    return dict(zip(rows["smiles"].astype(str), rows["key"].astype(str)))
+
+
+def _shortlist_keys(ranking: pd.DataFrame, keys: dict, options: RankOptions) -> list[str]:
+    top = ranking[ranking["passes"].astype(bool)].head(int(options.shortlist_size))
+    return [keys.get(s, "") for s in top["smiles"]]
+
+
+def _check_target(target: Path, partner: Partner, levels_path: Path) -> None:
+    """Refuse a folder that holds another partner's ranking; say so when an older ranking is replaced."""
+    from screen.errors import ConfigError
+    from screen.io import read_json
+
+    meta_path = target / "ranking.meta.json"
+    if not meta_path.is_file():
+        return
+    try:
+        old = read_json(meta_path)
+    except ValueError:
+        old = {}
+    before = (old.get("partner") or {}) if isinstance(old, dict) else {}
+    if (before.get("id"), before.get("kind")) != (partner.id, partner.kind):
+        raise ConfigError(f"{target} holds the ranking against partner {before.get('id')!r}, not {partner.id!r}; "
+                          "move it away or rank into another --out (a ranking is never overwritten by another "
+                          "partner's)")
+    old_levels = (old.get("levels") or {}).get("path")
+    if old_levels and old_levels != str(levels_path.resolve()):
+        print(f"dascreen rank: replacing the ranking in {target} (it ranked {old_levels})", file=sys.stderr)
 
 
 def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_levels=None,
@@ -230,7 +410,8 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     partner_spec : str
         See :func:`screen.partners.resolve_partner`.
     out_dir : path-like
-        Output folder; results go to ``out_dir/rankings/<partner slug>/``.
+        Output folder; results go to ``out_dir/rankings/<partner slug>--<settings hash>/``
+        (:func:`ranking_folder`).
     config : screen.config.Config or mapping, optional
         Run configuration (sections ``device`` and ``rank``).
     partner_levels : path-like, optional
@@ -252,6 +433,8 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     ------
     ScaleMismatchError, PartnerError, InputError
         See :func:`rank_candidates` and :func:`screen.partners.resolve_partner`.
+    ConfigError
+        The ranking folder holds a ranking against another partner (never overwritten).
     RuntimeError
         The report module failed (the ranking files are written).
 
@@ -278,10 +461,15 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     options = RankOptions.from_mapping(cfg["rank"])
     ranking = rank_candidates(levels, partner, model, options)
 
-    target = out_dir / "rankings" / partner.slug
+    target = out_dir / "rankings" / ranking_folder(partner.slug, cfg)
+    _check_target(target, partner, levels_path)
     write_csv(ranking, target / "ranking.csv")
-    short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size, partner.scale)
+    keys = _structure_keys(levels)
+    geometries = computed_geometries(_shortlist_keys(ranking, keys, options), levels_path, meta_in, cfg)
+    short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size, partner.scale, geometries,
+                            keys)
     meta = _rank_meta(ranking, levels, levels_path, meta_in, partner, model, options, short)
+    meta["settings_hash"] = settings_hash(cfg)
     write_json(meta, target / "ranking.meta.json")
     if report:
         status = _write_report(ranking, levels, partner.as_dict(), meta, target)

@@ -66,6 +66,33 @@ def test_unknown_name_lists_library_ids():
     assert "smiles:" in msg and "id:" in msg
 
 
+def test_unknown_name_says_did_you_mean():
+    with pytest.raises(PartnerError, match=r"Did you mean y6\?"):
+        resolve_partner("y7")
+    with pytest.raises(PartnerError, match="Did you mean scharber-reference-acceptor"):
+        partner_kind("scharber-reference")
+    with pytest.raises(PartnerError) as err:
+        partner_kind("zzzzzzzz")
+    assert "Did you mean" not in str(err.value)
+
+
+def test_slugs_are_readable_and_distinct():
+    from screen.partners import slugify
+
+    assert slugify("My acceptor (batch 2)") == "My-acceptor-batch-2"
+    slugs = {partner_slug(s) for s in ("id:KF D01", "id:KF-D01", "id:KF_D01", "smiles:c1ccsc1", "smiles:c1ccoc1")}
+    assert len(slugs) == 5
+    assert all(re.fullmatch(r"[A-Za-z0-9._-]+", s) for s in slugs)
+    assert partner_slug("smiles:c1ccoc1").startswith("smiles-c1ccoc1-")  # furan: the SMILES shows
+
+
+def test_split_partners_from_repeated_and_comma_options(tmp_path):
+    from screen.partners import split_partners
+
+    path = _one_row(tmp_path / "a,b.csv")  # a file name with a comma stays whole
+    assert split_partners(["y6, c60", "c60", str(path)]) == ["y6", "c60", str(path)]
+
+
 def test_library_table_columns():
     table = library_table()
     assert list(table.columns) == ["id", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "scale", "source"]
@@ -143,7 +170,9 @@ def test_id_partner_from_levels():
                            "role": ["donor", "acceptor", ""], "lumo_sigma_ev": [0.2, 0.15, np.nan]})
     p = resolve_partner("id:A 7\nx", levels=levels)
     assert (p.id, p.role, p.lumo_ev, p.lumo_sigma_ev, p.kind) == ("A 7\nx", "acceptor", -4.0, 0.15, "id")
-    assert re.fullmatch(r"id-[0-9a-f]{10}", p.slug)
+    # readable: the id itself when path-safe, else its slug plus a short hash (never the raw text)
+    assert p.slug == "id-A-7-x-" + p.slug.rsplit("-", 1)[1] and re.fullmatch(r"id-A-7-x-[0-9a-f]{6}", p.slug)
+    assert resolve_partner("id:D1", levels=levels).slug == "id-D1"
     with pytest.raises(PartnerError, match="no row with id 'nope'"):
         resolve_partner("id:nope", levels=levels)
     with pytest.raises(PartnerError, match="status 'failed'"):
@@ -183,7 +212,7 @@ def test_smiles_partner_read_from_its_batch_levels(tmp_path):
     assert path.parent.name == partner_batch(spec) == "partner-" + partner_key(spec)[1]
     p = resolve_partner(spec, partner_levels=path)
     assert p.kind == "smiles" and p.id == "smiles:c1ccsc1" and p.name == "c1ccsc1" and p.role == ""
-    assert p.slug == partner_slug(spec) and p.slug.startswith("smiles-m")
+    assert p.slug == partner_slug(spec) == f"smiles-c1ccsc1-{partner_key(spec)[1][1:7]}"
     assert (p.homo_ev, p.lumo_ev, p.gap_opt_ev, p.scale) == (-5.8123, -2.1456, 3.4567, "film")
     assert (p.homo_sigma_ev, p.lumo_sigma_ev, p.gap_opt_sigma_ev) == (0.25, 0.35, 0.15)
     assert p.source == "computed: protocol tblite-gfn2-ff-00000000, calibration /m/tblite-gfn2-ff-00000000"

@@ -21,7 +21,7 @@ from screen.rank import (
     ScaleMismatchError,
     rank_candidates,
 )
-from screen.rank_io import run_rank
+from screen.rank_io import ranking_folder, run_rank
 from screen.schema import section_defaults
 
 REF = "scharber-reference-acceptor"
@@ -320,7 +320,7 @@ def test_run_rank_writes_ranking_shortlist_and_meta(cv_file, tmp_path):
     out = tmp_path / "out"
     cfg = {"rank": {"role": "donor", "shortlist_size": 5}, **PUBLISHED_CFG}
     path = run_rank(cv_file, REF, out, cfg, report=False)
-    assert path == out / "rankings" / REF / "ranking.csv"
+    assert path == out / "rankings" / ranking_folder(REF, cfg) / "ranking.csv"
     table = pd.read_csv(path, dtype={"id": str})
     assert list(table.columns[:18]) == CONTRACT
     assert table.loc[0, "id"] == "KF-D01" and table.loc[0, "voc_v"] == pytest.approx(0.8)
@@ -398,9 +398,10 @@ def test_cli_rank_does_not_import_the_engine(cv_file, tmp_path):
     )
     res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300)
     assert res.returncode == 0, res.stdout + res.stderr
-    assert str(out / "rankings" / REF / "ranking.csv") in res.stdout
+    (folder,) = (out / "rankings").glob(f"{REF}--*")  # the partner and a hash of the settings
+    assert str(folder / "ranking.csv") in res.stdout
     assert "KF-D01" in res.stdout
-    meta = json.loads((out / "rankings" / REF / "ranking.meta.json").read_text())
+    meta = json.loads((folder / "ranking.meta.json").read_text())
     assert meta["rank"]["target_pce_pct"] == 9.0 and meta["rank"]["shortlist_size"] == 1
 
 

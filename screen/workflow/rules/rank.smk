@@ -5,8 +5,10 @@ from importlib.util import find_spec
 from pathlib import Path
 
 from screen.partners import partner_slug
+from screen.rank_io import ranking_folder
 
-PARTNER_SLUG = partner_slug(PARTNER)
+# the partner in words and a hash of the device and ranking settings (docs/contracts.md, section 5)
+PARTNER_SLUG = ranking_folder(partner_slug(PARTNER), CFG)
 RANKING_DIR = f"{OUT}/rankings/{PARTNER_SLUG}"
 RANKING = f"{RANKING_DIR}/ranking.csv"
 # report.html is an output only when the report module is installed
