@@ -1,0 +1,433 @@
+"""The results store: computed molecules kept across runs (SQLite).
+
+A group screens week after week; a molecule computed once with a protocol is
+never computed again.  The store is one SQLite file (default
+``~/.cache/dascreen/store.sqlite``, config ``store.path``; the environment
+variable ``DASCREEN_STORE`` overrides it, empty disables it) holding, per
+structure key and stage protocol,
+
+* ``structures``: the geometry (molblock, with hydrogens) and the route record
+  of :func:`screen.structures.build_structure`;
+* ``electronic``: the raw engine results of :func:`screen.electronic.vertical_levels`,
+  keyed also by a hash of the geometry they were computed on.
+
+The stage protocol id is a hash of that stage's options (the structures
+options; the electronic options without ``threads``), so a change of method or
+route never reuses a row.  Every row carries its payload's SHA-256 and the
+options it was computed with: a row whose checksum, key, stage, geometry or
+protocol does not match what is asked for is ignored (and replaced when the
+molecule is recomputed), never used.  Only ``ok`` results are stored.
+
+Concurrency: WAL journal mode, a busy timeout, and every write one
+``BEGIN IMMEDIATE`` transaction, so several runs (processes) can share one
+store; two runs that compute the same molecule at once both write the same
+record.  The per-shard journal (:class:`screen.io.Journal`) stays the source of
+truth of a running job: a record is journalled first and stored after, so a
+killed job loses nothing.  SQLite's locking needs a local file system (not NFS).
+
+Examples
+--------
+>>> import tempfile, pathlib
+>>> store = ResultStore(pathlib.Path(tempfile.mkdtemp()) / "s.sqlite")
+>>> pid = stage_protocol_id("electronic", {"method": "GFN2-xTB"})
+>>> store.put("electronic", "m0123456789abcdef", {"method": "GFN2-xTB"}, {"status": "ok", "xtb_ip_ev": 9.1})
+>>> store.get("electronic", "m0123456789abcdef", pid)["xtb_ip_ev"]
+9.1
+>>> store.get("electronic", "m0123456789abcdef", stage_protocol_id("electronic", {"method": "GFN1-xTB"})) is None
+True
+"""
+
+from __future__ import annotations
+
+import contextlib
+import hashlib
+import json
+import os
+import sqlite3
+import sys
+import time
+from collections.abc import Callable, Iterator, Mapping
+from dataclasses import asdict, is_dataclass
+from pathlib import Path
+
+from screen.errors import InputError
+
+__all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "stage_protocol", "stage_protocol_id",
+           "geometry_hash", "store_location", "open_store", "resolve_store"]
+
+#: environment variable naming the store file (overrides ``store.path``; empty disables the store)
+STORE_ENV = "DASCREEN_STORE"
+#: version of the row format; part of every protocol id
+FORMAT = 1
+_APPLICATION = "dascreen results store"
+_STAGES = ("structures", "electronic")
+#: options that change no number (left out of the stage protocol)
+_NOT_PROTOCOL = {"electronic": ("threads",), "structures": ()}
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS info (name TEXT PRIMARY KEY, value TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS results (
+    stage TEXT NOT NULL, key TEXT NOT NULL, protocol_id TEXT NOT NULL, geometry TEXT NOT NULL DEFAULT '',
+    payload TEXT NOT NULL, sha256 TEXT NOT NULL, created REAL NOT NULL,
+    PRIMARY KEY (stage, key, protocol_id, geometry));
+"""
+
+
+def stage_protocol(stage: str, options) -> dict:
+    """The options of ``stage`` that determine its numbers, as a plain dict.
+
+    Parameters
+    ----------
+    stage : {"structures", "electronic"}
+    options : dataclass or mapping
+        :class:`screen.options.StructureOptions` / :class:`screen.options.ElectronicOptions` or their mapping.
+
+    Examples
+    --------
+    >>> stage_protocol("electronic", {"method": "GFN2-xTB", "threads": 4})
+    {'method': 'GFN2-xTB'}
+    """
+    if stage not in _STAGES:
+        raise ValueError(f"unknown stage {stage!r}; allowed: {', '.join(_STAGES)}")
+    data = asdict(options) if is_dataclass(options) else dict(options)
+    return {k: v for k, v in sorted(data.items()) if k not in _NOT_PROTOCOL[stage]}
+
+
+def stage_protocol_id(stage: str, options) -> str:
+    """Short id of a stage protocol: ``<stage>-<16 hex digits>`` of its options and :data:`FORMAT`.
+
+    Examples
+    --------
+    >>> a = stage_protocol_id("structures", {"seed": 1})
+    >>> a.startswith("structures-"), a == stage_protocol_id("structures", {"seed": 2})
+    (True, False)
+    """
+    text = json.dumps({"format": FORMAT, "stage": stage, "options": stage_protocol(stage, options)},
+                      sort_keys=True, default=str)
+    return f"{stage}-{hashlib.sha256(text.encode()).hexdigest()[:16]}"
+
+
+def geometry_hash(numbers, positions_a) -> str:
+    """Hash of a geometry: atomic numbers and positions rounded to 10⁻⁴ Å (the SD-file precision).
+
+    Parameters
+    ----------
+    numbers : sequence of int
+    positions_a : array_like, shape (n, 3)
+        Positions [Å].
+
+    Examples
+    --------
+    >>> geometry_hash([1, 1], [[0, 0, 0], [0, 0, 0.74]]) == geometry_hash([1, 1], [[0, 0, 0], [0, 0, 0.740001]])
+    True
+    """
+    text = ";".join(f"{int(z)}:{float(x) + 0.0:.4f},{float(y) + 0.0:.4f},{float(w) + 0.0:.4f}"
+                    for z, (x, y, w) in zip(numbers, positions_a))
+    return hashlib.sha256(text.replace("-0.0000", "0.0000").encode()).hexdigest()[:24]
+
+
+def _digest(text: str) -> str:
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+class ResultStore:
+    """One SQLite results store (see the module notes).
+
+    Parameters
+    ----------
+    path : path-like
+        The database file; created (with its folder) on first use.
+    timeout_s : float
+        How long a writer waits for another process's transaction [s].
+
+    Raises
+    ------
+    InputError
+        The file exists but is not a SQLite database or is another program's database.
+    """
+
+    def __init__(self, path: str | os.PathLike, timeout_s: float = 60.0):
+        self.path = Path(path).expanduser()
+        self.timeout_s = float(timeout_s)
+        self._conn: sqlite3.Connection | None = None
+        self._pid = None
+
+    # ------------------------------------------------------------------ connection
+    def _connect(self) -> sqlite3.Connection:
+        if self._conn is not None and self._pid == os.getpid():
+            return self._conn
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            conn = sqlite3.connect(str(self.path), timeout=self.timeout_s, isolation_level=None)
+            conn.execute(f"PRAGMA busy_timeout = {int(self.timeout_s * 1000)}")
+            conn.execute("PRAGMA journal_mode = WAL")
+            conn.execute("PRAGMA synchronous = NORMAL")
+            with _transaction(conn):
+                for statement in filter(str.strip, _SCHEMA.split(";")):
+                    conn.execute(statement)
+                conn.execute("INSERT OR IGNORE INTO info VALUES ('application', ?)", (_APPLICATION,))
+                conn.execute("INSERT OR IGNORE INTO info VALUES ('format', ?)", (str(FORMAT),))
+                app = conn.execute("SELECT value FROM info WHERE name = 'application'").fetchone()[0]
+        except sqlite3.DatabaseError as exc:
+            raise InputError(f"results store {self.path}: not a usable SQLite database ({exc}); move it away or "
+                             "set store.path to another file") from None
+        if app != _APPLICATION:
+            conn.close()
+            raise InputError(f"results store {self.path}: the database belongs to {app!r}, not dascreen")
+        self._conn, self._pid = conn, os.getpid()
+        return conn
+
+    def close(self) -> None:
+        """Close the connection (it reopens on the next use)."""
+        if self._conn is not None and self._pid == os.getpid():
+            self._conn.close()
+        self._conn = None
+
+    # ------------------------------------------------------------------ rows
+    def put(self, stage: str, key: str, options, record: Mapping, geometry: str = "") -> None:
+        """Store one molecule's ``record`` for ``stage`` computed with ``options`` (replaces an older row).
+
+        Parameters
+        ----------
+        stage : {"structures", "electronic"}
+        key : str
+            Structure key (``m`` + 16 hex digits).
+        options : dataclass or mapping
+            The stage options the record was computed with.
+        record : mapping
+            JSON-serialisable result.
+        geometry : str
+            :func:`geometry_hash` of the input geometry (electronic rows).
+        """
+        protocol = stage_protocol(stage, options)
+        pid = stage_protocol_id(stage, protocol)
+        payload = json.dumps({"stage": stage, "key": key, "protocol_id": pid, "protocol": protocol,
+                              "geometry": geometry, "record": dict(record)}, sort_keys=True, default=_plain)
+        conn = self._connect()
+        with _transaction(conn):
+            conn.execute("INSERT OR REPLACE INTO results VALUES (?, ?, ?, ?, ?, ?, ?)",
+                         (stage, key, pid, geometry, payload, _digest(payload), time.time()))
+
+    def get(self, stage: str, key: str, protocol_id: str, geometry: str = "") -> dict | None:
+        """The stored record of ``key``, or None when there is none or the row does not check out."""
+        row = self._connect().execute(
+            "SELECT payload, sha256 FROM results WHERE stage = ? AND key = ? AND protocol_id = ? AND geometry = ?",
+            (stage, key, protocol_id, geometry)).fetchone()
+        if row is None:
+            return None
+        return _checked(row[0], row[1], stage, key, protocol_id, geometry)
+
+    def rows(self, stage: str | None = None, protocol_id: str | None = None) -> Iterator[dict]:
+        """Every row (optionally of one stage / protocol), checked: ``stage, key, protocol_id, geometry,
+        created, ok, record`` (record None for a row that does not check out)."""
+        sql, args = "SELECT stage, key, protocol_id, geometry, created, payload, sha256 FROM results", []
+        where = [(c, v) for c, v in (("stage", stage), ("protocol_id", protocol_id)) if v]
+        if where:
+            sql += " WHERE " + " AND ".join(f"{c} = ?" for c, _ in where)
+            args = [v for _, v in where]
+        for st, key, pid, geom, created, payload, sha in self._connect().execute(sql + " ORDER BY stage, key", args):
+            record = _checked(payload, sha, st, key, pid, geom)
+            yield {"stage": st, "key": key, "protocol_id": pid, "geometry": geom, "created": created,
+                   "ok": record is not None, "record": record,
+                   "protocol": (_loads(payload) or {}).get("protocol") if record is not None else None}
+
+    def summary(self) -> list[dict]:
+        """Rows per stage and protocol: ``stage, protocol_id, entries, first, last`` (Unix times)."""
+        cur = self._connect().execute(
+            "SELECT stage, protocol_id, COUNT(*), MIN(created), MAX(created) FROM results "
+            "GROUP BY stage, protocol_id ORDER BY stage, MAX(created) DESC")
+        return [{"stage": s, "protocol_id": p, "entries": n, "first": a, "last": b} for s, p, n, a, b in cur]
+
+    def prune(self, *, protocols=(), older_than_s: float | None = None, dry_run: bool = False) -> dict:
+        """Delete rows of some protocols, rows older than ``older_than_s`` and rows that do not check out.
+
+        Returns
+        -------
+        dict
+            ``{'protocol': n, 'old': n, 'corrupt': n}`` rows deleted (or that would be, with ``dry_run``).
+        """
+        now = time.time()
+        doomed: dict[str, list] = {"protocol": [], "old": [], "corrupt": []}
+        for row in self.rows():
+            ident = (row["stage"], row["key"], row["protocol_id"], row["geometry"])
+            if not row["ok"]:
+                doomed["corrupt"].append(ident)
+            elif row["protocol_id"] in protocols:
+                doomed["protocol"].append(ident)
+            elif older_than_s is not None and now - row["created"] > older_than_s:
+                doomed["old"].append(ident)
+        if not dry_run:
+            conn = self._connect()
+            with _transaction(conn):
+                for idents in doomed.values():
+                    conn.executemany("DELETE FROM results WHERE stage = ? AND key = ? AND protocol_id = ? AND "
+                                     "geometry = ?", idents)
+            conn.execute("VACUUM")
+        return {k: len(v) for k, v in doomed.items()}
+
+
+@contextlib.contextmanager
+def _transaction(conn: sqlite3.Connection) -> Iterator[None]:
+    conn.execute("BEGIN IMMEDIATE")
+    try:
+        yield
+    except BaseException:
+        conn.execute("ROLLBACK")
+        raise
+    conn.execute("COMMIT")
+
+
+def _plain(obj):
+    try:
+        import numpy as np
+
+        if isinstance(obj, np.generic):
+            return obj.item()
+    except ImportError:  # pragma: no cover
+        pass
+    raise TypeError(f"not JSON serialisable: {type(obj).__name__}")
+
+
+def _loads(text: str):
+    try:
+        return json.loads(text)
+    except (TypeError, ValueError):
+        return None
+
+
+def _checked(payload: str, sha: str, stage: str, key: str, protocol_id: str, geometry: str) -> dict | None:
+    """The record of a row if its checksum, identity and protocol all match; else None."""
+    if not isinstance(payload, str) or _digest(payload) != sha:
+        return None
+    data = _loads(payload)
+    if not isinstance(data, dict) or not isinstance(data.get("record"), dict):
+        return None
+    if (data.get("stage"), data.get("key"), data.get("protocol_id"), data.get("geometry")) != \
+            (stage, key, protocol_id, geometry):
+        return None
+    if not isinstance(data.get("protocol"), dict) or stage_protocol_id(stage, data["protocol"]) != protocol_id:
+        return None
+    return data["record"]
+
+
+# --------------------------------------------------------------------------- the stages' side
+
+class StoreCache:
+    """What a compute stage's per-molecule loop asks the store (:func:`screen.batch.run_journalled`).
+
+    Parameters
+    ----------
+    store : ResultStore
+    stage : {"structures", "electronic"}
+    options : dataclass or mapping
+        The stage options (the protocol).
+    key : callable
+        ``key(item)`` → structure key.
+    geometry : callable, optional
+        ``geometry(item)`` → :func:`geometry_hash` of the item's input geometry ("" for none).
+    base : callable, optional
+        ``base(item)`` → fields of the journal record that come from the item itself (not stored;
+        merged into a stored record on the way out).
+    valid : callable, optional
+        ``valid(record)`` → False for a stored record that must not be used (e.g. an unreadable molblock).
+
+    Notes
+    -----
+    A store that cannot be read or written never stops a stage: the molecule is
+    computed and a warning goes to the job's log.
+    """
+
+    def __init__(self, store: ResultStore, stage: str, options, key: Callable, geometry: Callable | None = None,
+                 base: Callable | None = None, valid: Callable | None = None):
+        self.store, self.stage, self.options = store, stage, stage_protocol(stage, options)
+        self.protocol_id = stage_protocol_id(stage, self.options)
+        self._key, self._geometry = key, geometry or (lambda item: "")
+        self._base, self._valid = base or (lambda item: {}), valid or (lambda rec: True)
+        self.hits = self.misses = 0
+        self._warned = False
+
+    def lookup(self, item) -> dict | None:
+        """The journal record of ``item`` rebuilt from the store, or None (compute it)."""
+        try:
+            rec = self.store.get(self.stage, self._key(item), self.protocol_id, self._geometry(item))
+        except (sqlite3.Error, InputError, OSError) as exc:
+            self._warn(exc)
+            rec = None
+        if rec is None or rec.get("status") != "ok" or not self._valid(rec):
+            self.misses += 1
+            return None
+        self.hits += 1
+        return {**rec, **self._base(item), "key": self._key(item)}
+
+    def remember(self, item, record: Mapping) -> None:
+        """Store a freshly computed ``ok`` record (without the item's own fields)."""
+        if record.get("status") != "ok":
+            return
+        own = self._base(item)
+        try:
+            self.store.put(self.stage, self._key(item), self.options,
+                           {k: v for k, v in record.items() if k not in own}, self._geometry(item))
+        except (sqlite3.Error, InputError, OSError) as exc:
+            self._warn(exc)
+
+    def _warn(self, exc: Exception) -> None:
+        if not self._warned:
+            print(f"dascreen: results store {self.store.path} not used: {exc}", file=sys.stderr, flush=True)
+            self._warned = True
+
+
+# --------------------------------------------------------------------------- where the store is
+
+def store_location(config=None) -> Path | None:
+    """The store file a run uses: ``$DASCREEN_STORE`` if set (empty: none), else ``store.path``.
+
+    Parameters
+    ----------
+    config : screen.config.Config or mapping, optional
+        With a ``store`` section; without one the environment alone decides.
+
+    Examples
+    --------
+    >>> import os
+    >>> os.environ[STORE_ENV] = ""
+    >>> store_location({"store": {"path": "/tmp/x.sqlite"}}) is None
+    True
+    >>> del os.environ[STORE_ENV]
+    >>> store_location({"store": {"path": "/tmp/x.sqlite"}}).as_posix()
+    '/tmp/x.sqlite'
+    """
+    if STORE_ENV in os.environ:
+        text = os.environ[STORE_ENV].strip()
+    else:
+        text = ((config or {}).get("store") or {}).get("path") or ""
+    return Path(text).expanduser().absolute() if text else None
+
+
+def open_store(config=None) -> ResultStore | None:
+    """The run's :class:`ResultStore` (None when disabled), see :func:`store_location`."""
+    path = store_location(config)
+    if path is None:
+        return None
+    timeout = ((config or {}).get("store") or {}).get("timeout_s", 60.0)
+    return ResultStore(path, timeout_s=timeout)
+
+
+def resolve_store(store) -> ResultStore | None:
+    """A stage's ``store`` argument: a :class:`ResultStore` or path as given, ``None`` → from the
+    environment (:data:`STORE_ENV`, set by ``dascreen run`` for its jobs), ``False`` → no store.
+
+    Examples
+    --------
+    >>> resolve_store(False) is None
+    True
+    >>> resolve_store("/tmp/a.sqlite").path.name
+    'a.sqlite'
+    """
+    if store is False:
+        return None
+    if isinstance(store, ResultStore):
+        return store
+    if store is None:
+        text = os.environ.get(STORE_ENV, "").strip()
+        return ResultStore(text) if text else None
+    return ResultStore(store)
