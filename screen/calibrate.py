@@ -428,6 +428,19 @@ def fit_all(sets: dict[str, pd.DataFrame], computed: pd.DataFrame, exclude=None)
     return models
 
 
+#: columns of ``reference_raw.csv``: what a refit needs without recomputation
+RAW_TABLE_COLUMNS = ["id", "name", "smiles", "status", "error", "representation", "xtb_ip_ev", "xtb_ea_ev",
+                     "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev", "xtb_k_hl_ev", "xtb_j_hl_ev", "xtb_overlap_hl",
+                     "xtb_ip_film_ev", "xtb_ea_film_ev", "chain_n_max", "chain_fit", "chain_fit_quality"]
+
+
+def raw_table(computed: pd.DataFrame) -> pd.DataFrame:
+    """The raw values of the reference batch (polymers at the chain limit) as stored beside the models."""
+    cols = [c for c in RAW_TABLE_COLUMNS if c in computed.columns]
+    cols += [c for c in computed.columns if c.startswith("chain_spread_")]
+    return computed[cols]
+
+
 def save_models(models: dict[str, dict], out_dir: str | Path, fp: dict) -> Path:
     """Write ``<out_dir>/<protocol-id>/<property>.json`` with the fingerprint."""
     target = Path(out_dir) / fp["protocol_id"]

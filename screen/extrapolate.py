@@ -153,7 +153,7 @@ def inverse_fit(n, e, longest: int = 2) -> tuple[float, float]:
     return float(icpt), float(np.sqrt(np.mean((icpt + slope * x - y) ** 2)))
 
 
-def _between(value: float, a: float, b: float, tol: float = 1e-6) -> bool:
+def _between(value: float, a: float, b: float, tol: float = 1e-4) -> bool:
     lo, hi = min(a, b), max(a, b)
     return lo - tol <= value <= hi + tol
 

@@ -9,6 +9,39 @@ columns of the ``levels.csv`` contract (see ``docs/contracts.md``).
 Energy scales: ``ip_ev``/``ea_ev``/``gap_fund_ev`` are isolated-molecule
 (gas-phase) values; ``homo_ev``/``lumo_ev`` are on the scale named in the
 ``scale`` column of the same row (``film`` by default).
+
+Polymers
+--------
+A polymer row (``representation == "polymer"``) was computed as its oligomers
+n = 1 … N (``prepared/oligomers.csv``, :mod:`screen.prepare.polymers`). Each raw
+quantity of :data:`CHAIN_QUANTITIES` is extrapolated to the chain limit with its
+own fit (:func:`screen.extrapolate.extrapolate`, ``per_unit`` = the repeat unit's
+:attr:`~screen.oligomers.RepeatUnit.conjugation_length`), and the polymer row's
+raw columns hold those limits, so the calibration treats a polymer like any
+molecule. Added columns: ``chain_n_max`` (longest oligomer computed),
+``chain_fit`` (method per quantity, e.g. ``ip:kuhn ea:exp …``), ``chain_fit_quality``
+(``good``/``poor``; a poor fit adds a ``chain_fit_poor`` item to ``note``) and
+``chain_spread_<quantity>`` (:attr:`~screen.extrapolate.ChainFit.spread_ev`, which
+the calibration adds to the σ). The per-n values and every fit's details go to
+the sidecar ``levels.oligomers.csv`` (:func:`chain_limits`).
+
+References
+----------
+.. [1] J. Gierschner, J. Cornil, H.-J. Egelhaaf, Adv. Mater. 19 (2007) 173.
+   :doi:`10.1002/adma.200600277`
+
+Examples
+--------
+>>> import pandas as pd
+>>> olig = pd.DataFrame({"polymer_key": ["mp"] * 4, "polymer_id": ["p"] * 4, "n": [1, 2, 3, 4],
+...                      "key": ["m1", "m2", "m3", "m4"], "smiles": ["a", "b", "c", "d"], "per_unit": 2})
+>>> elec = pd.DataFrame({"key": ["m1", "m2", "m3", "m4"], "status": "ok", "error": "",
+...                      "xtb_gap_ev": [4.0, 3.2, 2.9, 2.75]})
+>>> limits, side = chain_limits(elec, olig)
+>>> limits.loc["mp", "chain_fit"], int(limits.loc["mp", "chain_n_max"])
+('gap:kuhn', 4)
+>>> round(float(limits.loc["mp", "xtb_gap_ev"]), 2) < 2.75
+True
 """
 
 from __future__ import annotations
@@ -20,17 +53,113 @@ import pandas as pd
 
 from screen.columns import CALIBRATED_COLUMNS, LEVELS_CONTRACT_COLUMNS, LEVELS_MIN_COLUMNS
 from screen.electronic import ELECTRONIC_COLUMNS, RAW_COLUMNS
+from screen.extrapolate import extrapolate
 from screen.io import read_csv_checked
 
 #: leading columns of levels.csv, in order (:data:`screen.columns.LEVELS_CONTRACT_COLUMNS`)
 CONTRACT_COLUMNS = LEVELS_CONTRACT_COLUMNS
 
-__all__ = ["CONTRACT_COLUMNS", "CALIBRATED_COLUMNS", "assemble", "summarise", "read_levels", "LEVELS_MIN_COLUMNS"]
+__all__ = ["CONTRACT_COLUMNS", "CALIBRATED_COLUMNS", "CHAIN_QUANTITIES", "CHAIN_COLUMNS", "SIDECAR_COLUMNS",
+           "assemble", "chain_limits", "summarise", "read_levels", "LEVELS_MIN_COLUMNS"]
 
 _EXTRA = ["name", "role", "key", "duplicate_of", "heavy_atoms", "reason"]
 
+#: raw quantities extrapolated to the chain limit for polymers (those present in the electronic tables):
+#: ΔSCF IP/EA, orbital energies and gap, HOMO→LUMO exchange/Coulomb integrals and overlap
+#: (:mod:`screen.excitation`), and the ΔSCF IP/EA in a dielectric continuum (film)
+CHAIN_QUANTITIES = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev", "xtb_k_hl_ev",
+                    "xtb_j_hl_ev", "xtb_overlap_hl", "xtb_ip_film_ev", "xtb_ea_film_ev"]
+#: columns added to levels.csv for the chain limit (empty for molecules)
+CHAIN_COLUMNS = ["representation", "chain_n_max", "chain_fit", "chain_fit_quality"]
+#: columns of the sidecar ``levels.oligomers.csv`` (one row per polymer, quantity and n; n = ``inf`` for the limit)
+SIDECAR_COLUMNS = ["polymer_key", "polymer_id", "quantity", "n", "key", "smiles", "status", "value", "method",
+                   "rms", "spread", "quality", "kuhn", "exponential", "inverse", "longest"]
+_SHORT = {"kuhn": "kuhn", "exponential": "exp", "inverse": "inv", "longest": "longest"}
 
-def assemble(manifest: pd.DataFrame, electronic: Iterable[pd.DataFrame]) -> pd.DataFrame:
+
+def _short(quantity: str) -> str:
+    return quantity.removeprefix("xtb_").removesuffix("_ev")
+
+
+def _one_polymer(pkey: str, group: pd.DataFrame, elec: pd.DataFrame, quantities: list[str],
+                 rms_tol_ev: float) -> tuple[dict, list[dict]]:
+    """Chain-limit row and sidecar rows of one polymer (``group``: its oligomer rows, n increasing)."""
+    found = elec.reindex(group["key"])
+    ok = found["status"].eq("ok").to_numpy()
+    pid = str(group["polymer_id"].iloc[0])
+    side = [{"polymer_key": pkey, "polymer_id": pid, "quantity": q, "n": int(n), "key": k, "smiles": smi,
+             "status": st if isinstance(st, str) else "failed", "value": v}
+            for q in quantities
+            for n, k, smi, st, v in zip(group["n"], group["key"], group["smiles"], found["status"], found[q])]
+    failed = [f"n={n}: {e if isinstance(e, str) and e else 'not computed'}"
+              for n, e, good in zip(group["n"], found["error"], ok) if not good]
+    if not ok.any():
+        return {"status": "failed", "error": "every oligomer failed (" + "; ".join(failed) + ")"}, side
+    n = group["n"].to_numpy()[ok]
+    row = {"status": "ok", "error": "", "chain_n_max": int(n.max()), "_failed": failed}
+    methods, poor = [], []
+    for q in quantities:
+        fit = extrapolate(n, pd.to_numeric(found[q], errors="coerce").to_numpy(float)[ok],
+                          per_unit=int(group["per_unit"].iloc[0]), rms_tol_ev=rms_tol_ev)
+        row[q], row[f"chain_spread_{q}"] = fit.limit_ev, fit.spread_ev
+        methods.append(f"{_short(q)}:{_SHORT[fit.method]}")
+        if fit.quality != "good":
+            poor.append(_short(q))
+        side.append({"polymer_key": pkey, "polymer_id": pid, "quantity": q, "n": "inf", "status": "ok",
+                     "value": fit.limit_ev, "method": fit.method, "rms": fit.rms_ev, "spread": fit.spread_ev,
+                     "quality": fit.quality, **{k: fit.candidates.get(k) for k in _SHORT}})
+    row["chain_fit"] = " ".join(methods)
+    row["chain_fit_quality"] = "poor" if poor else "good"
+    row["_poor"] = poor
+    return row, side
+
+
+def chain_limits(electronic: pd.DataFrame, oligomers: pd.DataFrame,
+                 rms_tol_ev: float = 0.05) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Chain-limit raw values of every polymer from its oligomers' electronic results.
+
+    Parameters
+    ----------
+    electronic : pandas.DataFrame
+        Electronic rows (``key, status, error`` and raw columns) of the batch.
+    oligomers : pandas.DataFrame
+        ``prepared/oligomers.csv`` (:data:`screen.prepare.OLIGOMER_COLUMNS`).
+    rms_tol_ev : float
+        Largest RMS residual of an accepted saturating fit [eV] (``polymer.fit_rms_tol_ev``).
+
+    Returns
+    -------
+    limits : pandas.DataFrame
+        Indexed by polymer key: ``status, error``, the chain-limit raw values, ``chain_n_max``,
+        ``chain_fit``, ``chain_fit_quality``, ``chain_spread_<quantity>`` and ``note``.
+    sidecar : pandas.DataFrame
+        :data:`SIDECAR_COLUMNS`: the per-n values (status of each oligomer) and, with
+        ``n = "inf"``, each quantity's chosen fit, RMS, spread, quality and every fit's limit.
+    """
+    elec = electronic.drop_duplicates("key", keep="last").set_index("key")
+    quantities = [q for q in CHAIN_QUANTITIES if q in elec.columns]
+    for q in quantities:
+        elec[q] = pd.to_numeric(elec[q], errors="coerce")
+    rows, side = {}, []
+    for pkey, group in oligomers.groupby("polymer_key", sort=False):
+        row, srows = _one_polymer(pkey, group.sort_values("n"), elec, quantities, rms_tol_ev)
+        notes = []
+        poor = row.pop("_poor", [])
+        if poor:
+            notes.append(f"chain_fit_poor: no saturating fit accepted for {', '.join(poor)} "
+                         f"(value of the longest oligomer, n={row['chain_n_max']}, used)")
+        failed = row.pop("_failed", [])
+        if failed:
+            notes.append("oligomer_failed: " + ", ".join(failed))
+        row["note"] = "; ".join(notes)
+        rows[pkey] = row
+        side.extend(srows)
+    limits = pd.DataFrame.from_dict(rows, orient="index")
+    return limits, pd.DataFrame(side, columns=SIDECAR_COLUMNS)
+
+
+def assemble(manifest: pd.DataFrame, electronic: Iterable[pd.DataFrame],
+             limits: pd.DataFrame | None = None) -> pd.DataFrame:
     """Join the manifest with electronic results: every input row, input order.
 
     Parameters
@@ -40,18 +169,24 @@ def assemble(manifest: pd.DataFrame, electronic: Iterable[pd.DataFrame]) -> pd.D
         key, smiles, status, reason, error, duplicate_of, ...``).
     electronic : iterable of pandas.DataFrame
         Per-shard tables with :data:`screen.electronic.ELECTRONIC_COLUMNS`.
+    limits : pandas.DataFrame, optional
+        Chain-limit rows of the batch's polymers (:func:`chain_limits`), indexed by polymer key.
 
     Returns
     -------
     pandas.DataFrame
         Contract columns first (calibrated ones empty), then raw ``xtb_*``
-        columns, then provenance and pass-through columns. ``status`` is
-        ``rejected`` (prepare), ``failed`` (structures/electronic, or a structure
-        that was never computed) or ``ok``.
+        columns, then :data:`CHAIN_COLUMNS` and ``chain_spread_*``, then
+        provenance and pass-through columns. ``status`` is ``rejected``
+        (prepare), ``failed`` (structures/electronic, or a structure that was
+        never computed) or ``ok``. A polymer row carries its chain-limit values.
     """
     parts = [t for t in electronic if len(t)]
     elec = (pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=ELECTRONIC_COLUMNS))
     elec = elec.drop_duplicates("key", keep="last").set_index("key")
+    if limits is not None and len(limits):
+        elec = pd.concat([elec, limits.drop(columns=["note"], errors="ignore")])
+        elec = elec[~elec.index.duplicated(keep="last")]
     out = manifest.copy()
     ok = out["status"].eq("ok")
     keys = out["key"].where(ok, "")
@@ -67,24 +202,46 @@ def assemble(manifest: pd.DataFrame, electronic: Iterable[pd.DataFrame]) -> pd.D
     status[computed] = sub.loc[computed, "status"].astype(str)
     error[computed] = sub.loc[computed, "error"].fillna("").astype(str)
     out["status"], out["error"] = status, error
-    for col in ELECTRONIC_COLUMNS:
+    extra_raw = [c for c in CHAIN_QUANTITIES if c not in RAW_COLUMNS and c in elec.columns]
+    for col in list(ELECTRONIC_COLUMNS) + extra_raw:
         if col in ("key", "status", "error"):
             continue
         out[col] = sub[col].where(computed) if col in sub else np.nan
-    for col in RAW_COLUMNS:
+    for col in RAW_COLUMNS + extra_raw:
         out[col] = pd.to_numeric(out[col], errors="coerce")
+    _chain_columns(out, sub, limits, computed)
     for col in CALIBRATED_COLUMNS:
         out[col] = np.nan if col != "scale" else ""
     if "smiles" not in out:
         out["smiles"] = ""
     if "smiles_input" in out:  # rows that never got a canonical SMILES show what the user wrote
         out["smiles"] = out["smiles"].fillna("").astype(str).mask(lambda s: s.eq(""), out["smiles_input"])
-    for col in ("n_atoms", "n_conformers", "truncated_chains"):
+    for col in ("n_atoms", "n_conformers", "truncated_chains", "chain_n_max"):
         out[col] = pd.to_numeric(out[col], errors="coerce").astype("Int64")
-    lead = CONTRACT_COLUMNS + RAW_COLUMNS
+    spreads = [c for c in out.columns if c.startswith("chain_spread_")]
+    lead = CONTRACT_COLUMNS + RAW_COLUMNS + extra_raw + CHAIN_COLUMNS + spreads
     rest = [c for c in _EXTRA if c in out and c not in lead]
     tail = [c for c in out.columns if c not in lead and c not in rest and c != "row"]
     return out.sort_values("row", kind="stable")[lead + rest + tail].reset_index(drop=True)
+
+
+def _chain_columns(out: pd.DataFrame, sub: pd.DataFrame, limits: pd.DataFrame | None, computed: pd.Series) -> None:
+    """Fill :data:`CHAIN_COLUMNS`, the spreads and the chain notes in place."""
+    if "representation" not in out:
+        out["representation"] = "molecule"
+    out["representation"] = out["representation"].fillna("").astype(str)
+    polymer = computed & out["representation"].eq("polymer")
+    for col in ("chain_n_max", "chain_fit", "chain_fit_quality"):
+        out[col] = sub[col].where(polymer) if col in sub else np.nan
+    for col in [c for c in sub.columns if c.startswith("chain_spread_")]:
+        out[col] = pd.to_numeric(sub[col].where(polymer), errors="coerce")
+    for col in ("chain_fit", "chain_fit_quality"):
+        out[col] = out[col].where(out[col].notna(), "").astype(str)
+    if limits is None or "note" not in getattr(limits, "columns", []):
+        return
+    chain_note = out["key"].map(limits["note"]).where(polymer, "").fillna("").astype(str)
+    note = out["note"].fillna("").astype(str) if "note" in out else pd.Series("", index=out.index)
+    out["note"] = [("; ".join(p for p in (a, b) if p)) for a, b in zip(note, chain_note)]
 
 
 def summarise(levels: pd.DataFrame) -> dict:

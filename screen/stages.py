@@ -22,7 +22,7 @@ __all__ = ["main"]
 
 
 def _prepare(args, cfg):
-    from screen.prepare import PrepareOptions, prepare
+    from screen.prepare import PolymerOptions, PrepareOptions, prepare
 
     known = {f.name for f in fields(PrepareOptions)}
     opts = PrepareOptions(**{k: tuple(v) if isinstance(v, list) else v for k, v in cfg["prepare"].items()
@@ -30,7 +30,7 @@ def _prepare(args, cfg):
     if args.max_shards:
         n_rows = _count_rows(args.input)
         opts = replace(opts, shard_size=max(opts.shard_size, math.ceil(n_rows / args.max_shards)))
-    summary = prepare(args.input, args.outdir, opts)
+    summary = prepare(args.input, args.outdir, opts, PolymerOptions.from_mapping(cfg["polymer"]))
     print(json.dumps(summary))
 
 
@@ -61,29 +61,53 @@ def _levels(args, cfg):
     from screen.io import write_csv, write_json
     from screen.levels import summarise
 
-    levels = _read_computed(args.manifest, args.electronic)
+    levels, sidecar = _read_computed(args.manifest, args.electronic, cfg)
     if args.models:
         from screen.calibrate import apply_models, load_models
 
         models = load_models(args.models, cfg)
         levels = apply_models(levels, models, scale=cfg["levels"]["scale"])
     write_csv(levels, args.out)
+    side_path = _oligomer_sidecar(args.out)
+    if len(sidecar):
+        write_csv(sidecar, side_path)
+    elif side_path.is_file():
+        side_path.unlink()
     meta = {**provenance(cfg), "counts": summarise(levels), "input": args.input or cfg["candidates"],
-            "scale": cfg["levels"]["scale"], "models": args.models or None}
+            "scale": cfg["levels"]["scale"], "models": args.models or None, "polymer": cfg["polymer"],
+            "oligomers": str(side_path) if len(sidecar) else None}
     write_json(meta, f"{args.out}.meta.json" if not args.meta else args.meta)
     print(json.dumps(summarise(levels)))
 
 
-def _read_computed(manifest_path, electronic_paths):
+def _oligomer_sidecar(levels_path):
+    """``levels.csv`` → ``levels.oligomers.csv`` (per-n values and chain fits of the polymers)."""
+    from pathlib import Path
+
+    path = Path(levels_path)
+    return path.with_name(path.name.removesuffix(".csv") + ".oligomers.csv")
+
+
+def _read_computed(manifest_path, electronic_paths, cfg):
+    """Levels rows of a prepared batch (polymers at the chain limit) and the per-n sidecar table."""
+    from pathlib import Path
+
     import pandas as pd
 
-    from screen.levels import assemble
+    from screen.levels import assemble, chain_limits
+    from screen.prepare import read_oligomers
 
     manifest = pd.read_csv(manifest_path, dtype=str, keep_default_na=False)
     manifest["row"] = manifest["row"].astype(int)
     tables = [pd.read_csv(p, dtype={"key": str, "status": str, "error": str}, keep_default_na=False,
                           na_values=[""]) for p in electronic_paths]
-    return assemble(manifest, tables)
+    oligomers = read_oligomers(Path(manifest_path).with_name("oligomers.csv"))
+    limits, sidecar = None, pd.DataFrame()
+    if len(oligomers):
+        parts = [t for t in tables if len(t)]
+        elec = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=["key", "status", "error"])
+        limits, sidecar = chain_limits(elec, oligomers, cfg["polymer"]["fit_rms_tol_ev"])
+    return assemble(manifest, tables, limits), sidecar
 
 
 def _reference_input(args, cfg):
@@ -96,20 +120,21 @@ def _reference_input(args, cfg):
 
 
 def _calibrate(args, cfg):
-    from screen.calibrate import fingerprint, fit_all, read_reference, save_models, stats_table
+    from screen.calibrate import fingerprint, fit_all, raw_table, read_reference, save_models, stats_table
     from screen.io import write_csv
 
-    computed = _read_computed(args.manifest, args.electronic)
+    computed, sidecar = _read_computed(args.manifest, args.electronic, cfg)
     models = fit_all(read_reference(args.reference), computed)
     target = save_models(models, args.models_root, fingerprint(cfg, args.reference))
     table = stats_table(models)
     write_csv(table, target / "statistics.csv")
     failed = computed[computed["status"] != "ok"]
     write_csv(failed[["id", "smiles", "status", "error"]], target / "reference_failures.csv")
-    # the raw values the models were fitted on: hold-out tests and refits need no recomputation
-    raw_cols = ["id", "name", "smiles", "status", "error", "xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev",
-                "xtb_gap_ev"]
-    write_csv(computed[[c for c in raw_cols if c in computed.columns]], target / "reference_raw.csv")
+    # the raw values the models were fitted on (polymers at the chain limit) and the per-n values of the
+    # reference polymers: hold-out tests and refits (e.g. with monomers only) need no recomputation
+    write_csv(raw_table(computed), target / "reference_raw.csv")
+    if len(sidecar):
+        write_csv(sidecar, target / "reference_oligomers.csv")
     print(table.to_string(index=False))
 
 

@@ -630,7 +630,9 @@ def test_shards_cover_unique_keys_once_deterministically() -> None:
 
 
 def test_polymers_end_to_end_representation_in_manifest_and_shards(tmp_path: Path) -> None:
-    summary = prepare(DATA / "polymers.csv", tmp_path, PrepareOptions(min_shards=2))
+    from screen.prepare import PolymerOptions, read_oligomers
+
+    summary = prepare(DATA / "polymers.csv", tmp_path, PrepareOptions(min_shards=2), PolymerOptions(n_max=3))
     manifest = read_manifest(tmp_path / "manifest.csv")
     raw = pd.read_csv(DATA / "polymers.csv", dtype=str, keep_default_na=False)
     assert list(manifest.columns[: len(MANIFEST_COLUMNS)]) == list(MANIFEST_COLUMNS)
@@ -641,11 +643,21 @@ def test_polymers_end_to_end_representation_in_manifest_and_shards(tmp_path: Pat
               for k in range(summary["shards"])]
     assert summary["shards"] == 2 and all(list(s.columns) == list(SHARD_COLUMNS) for s in shards)
     both = pd.concat(shards, ignore_index=True)
-    ok = manifest[(manifest.status == "ok") & (manifest.duplicate_of == "")]
-    assert list(both.key) == list(ok.key)
-    assert list(both.representation) == list(ok.representation)
-    assert set(both.representation) == {"molecule", "polymer"}
-    assert all(("*" in smi) == (kind == "polymer") for smi, kind in zip(both.smiles, both.representation))
+    # polymers are never computed themselves: their oligomers are, each key once
+    assert not any("*" in smi for smi in both.smiles) and both.key.is_unique
+    oligomers = read_oligomers(tmp_path / "oligomers.csv")
+    ok = manifest[manifest.status == "ok"]
+    polymer_keys = list(dict.fromkeys(ok[ok.representation == "polymer"].key))
+    assert list(dict.fromkeys(oligomers.polymer_key)) == polymer_keys  # 4 distinct units (3 written twice more)
+    assert len(polymer_keys) == 4 and all(list(g.n) == [1, 2, 3] for _, g in oligomers.groupby("polymer_key"))
+    assert set(both.key) == set(oligomers.key) | set(ok[ok.representation == "molecule"].key)
+    # the thiophene monomer is the molecule candidate thiophene: one structure, computed once
+    thiophene = ok[ok.id == "mol-thiophene"].key.iloc[0]
+    unit = ok[ok.id == "ru-thiophene"].key.iloc[0]
+    assert oligomers[(oligomers.polymer_key == unit) & (oligomers.n == 1)].key.iloc[0] == thiophene
+    assert int((both.key == thiophene).sum()) == 1
+    assert set(both.representation) == {"oligomer"}  # the molecule's first occurrence is an oligomer here
+    assert summary["unique"] == len(both)
 
 
 def test_shard_of_a_frame_without_representation() -> None:

@@ -146,6 +146,7 @@ from pathlib import Path
 from screen.chem import structure_key
 from screen.prepare.checks import REASON_CODES
 from screen.prepare.options import PrepareOptions
+from screen.prepare.polymers import OLIGOMER_COLUMNS, PolymerOptions, compute_rows, oligomer_table, read_oligomers
 from screen.prepare.readers import read_candidates
 from screen.prepare.shards import (
     MANIFEST_COLUMNS,
@@ -158,6 +159,9 @@ from screen.prepare.validation import validate
 
 __all__ = [
     "PrepareOptions",
+    "PolymerOptions",
+    "OLIGOMER_COLUMNS",
+    "read_oligomers",
     "MANIFEST_COLUMNS",
     "SHARD_COLUMNS",
     "REASON_CODES",
@@ -174,6 +178,7 @@ def prepare(
     path: str | os.PathLike[str],
     out_dir: str | os.PathLike[str],
     options: PrepareOptions = PrepareOptions(),
+    polymer: PolymerOptions = PolymerOptions(),
 ) -> dict[str, int]:
     """Run the prepare stage: read, validate, shard and write the results.
 
@@ -190,6 +195,11 @@ def prepare(
         earlier run beyond the new shard count are removed.  Every write is atomic.
     options : PrepareOptions
         Validation limits and sharding.
+    polymer : PolymerOptions
+        Oligomer series of polymer rows: each accepted repeat unit is replaced in the shards
+        by its oligomers n = 1 … ``n_max``, and ``oligomers.csv`` (columns
+        :data:`OLIGOMER_COLUMNS`) maps polymer key → (n, oligomer key, SMILES); it is
+        written only when the batch holds a polymer (:mod:`screen.prepare.polymers`).
 
     Returns
     -------
@@ -214,5 +224,6 @@ def prepare(
     path = Path(path)
     frame = read_candidates(path)
     manifest = validate(frame, options)
-    shards = shard(manifest, options)
-    return write_prepared(manifest, shards, path, Path(out_dir), options)
+    oligomers = oligomer_table(manifest, polymer)
+    shards = shard(compute_rows(manifest, oligomers), options)
+    return write_prepared(manifest, shards, path, Path(out_dir), options, oligomers=oligomers, polymer=polymer)

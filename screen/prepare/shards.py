@@ -155,6 +155,8 @@ def write_prepared(
     source: Path,
     out: Path,
     options: PrepareOptions,
+    oligomers: pd.DataFrame | None = None,
+    polymer=None,
 ) -> dict[str, int]:
     """Write the shards, the sidecar and the manifest (last) into ``out``.
 
@@ -172,6 +174,11 @@ def write_prepared(
         that its presence means the stage finished.
     options : PrepareOptions
         Recorded in the sidecar.
+    oligomers : pandas.DataFrame, optional
+        Polymer → oligomer map (:func:`screen.prepare.polymers.oligomer_table`); written as
+        ``oligomers.csv`` when it has rows (a stale one of an earlier run is removed otherwise).
+    polymer : PolymerOptions, optional
+        Recorded in the sidecar.
 
     Returns
     -------
@@ -187,12 +194,18 @@ def write_prepared(
         if _SHARD_FILE.match(entry) and entry not in keep and (out / entry).is_file():
             (out / entry).unlink()
 
+    if oligomers is not None and len(oligomers):
+        _write_text(out / "oligomers.csv", _csv_text(oligomers))
+    elif (out / "oligomers.csv").is_file():
+        (out / "oligomers.csv").unlink()
     summary = _summary(manifest, shards)
     meta = {
         "stage": "prepare",
         "input": {"path": str(source), "sha256": sha256_file(source)},
         "rdkit_version": rdBase.rdkitVersion,
         "options": dataclasses.asdict(options),
+        "polymer": dataclasses.asdict(polymer) if polymer is not None else None,
+        "oligomers": int(len(oligomers)) if oligomers is not None else 0,
         "counts": summary,
         "shards": [{"file": n, "structures": len(s)} for n, s in zip(names, shards)],
         "manifest_columns": list(manifest.columns),

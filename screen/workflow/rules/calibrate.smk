@@ -29,7 +29,7 @@ rule calibrate:
         directory(f"{OUT}/models/{PROTOCOL}"),
     params:
         py=PY,
-        cfg=sections("structures", "electronic", "calibration"),
+        cfg=sections("structures", "electronic", "polymer", "calibration"),
         root=lambda wildcards, output: Path(output[0]).parent,
         reference=lambda wildcards, input: Path(input.reference[0]).parent,
     log:

@@ -9,7 +9,7 @@ checkpoint prepare:
         outdir=directory(f"{WORK}/{{batch}}/prepared"),
     params:
         py=PY,
-        cfg=sections("prepare"),
+        cfg=sections("prepare", "polymer"),
         max_shards=MAX_SHARDS,
     log:
         f"{LOGS}/{{batch}}/prepare.log",

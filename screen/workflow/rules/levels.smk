@@ -11,7 +11,7 @@ rule levels:
         meta=f"{LEVELS}.meta.json",
     params:
         py=PY,
-        cfg=sections("candidates", "structures", "electronic", "levels", "calibration"),
+        cfg=sections("candidates", "structures", "electronic", "polymer", "levels", "calibration"),
     log:
         f"{LOGS}/levels.log",
     conda:

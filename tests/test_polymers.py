@@ -1,0 +1,106 @@
+"""Polymer rows through prepare and levels: oligomer rows, the oligomers map, chain limits, the sidecar.
+
+No quantum chemistry here: the electronic tables are written by hand from a Kuhn-type series (the
+functional form of Gierschner, Cornil, Egelhaaf, Adv. Mater. 19 (2007) 173, doi:10.1002/adma.200600277).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from screen.levels import CHAIN_COLUMNS, SIDECAR_COLUMNS
+from screen.prepare import PolymerOptions, prepare, read_oligomers
+from screen.stages import main as stage_main
+
+
+def _kuhn(n, e0, x, m=2):
+    return e0 * np.sqrt(1 + 2 * x * np.cos(np.pi / (m * np.asarray(n, float) + 1)))
+
+
+def _batch(tmp_path, rows, polymer=PolymerOptions()):
+    src = tmp_path / "c.csv"
+    pd.DataFrame(rows, columns=["id", "smiles"]).to_csv(src, index=False)
+    prepare(src, tmp_path / "prepared", polymer=polymer)
+    return tmp_path / "prepared"
+
+
+def _electronic(prepared, values, fail=()):
+    """One electronic table for every shard row; ``values(smiles, n)`` gives the raw columns."""
+    olig = read_oligomers(prepared / "oligomers.csv")
+    n_of = dict(zip(olig["key"], olig["n"]))
+    shards = pd.concat([pd.read_csv(p, dtype=str, keep_default_na=False) for p in sorted(prepared.glob("shard-*.csv"))])
+    rows = []
+    for key, smi in zip(shards["key"], shards["smiles"]):
+        n = n_of.get(key, 1)
+        bad = key in fail
+        rows.append({"key": key, "status": "failed" if bad else "ok", "error": "electronic: SCF" if bad else "",
+                     **({} if bad else values(smi, n))})
+    path = prepared.parent / "electronic.csv"
+    pd.DataFrame(rows).to_csv(path, index=False)
+    return path
+
+
+def _levels(tmp_path, prepared, electronic):
+    out = tmp_path / "levels.csv"
+    rc = stage_main(["--config", json.dumps({"polymer": {"n_max": 4}}), "levels", "--manifest",
+                     str(prepared / "manifest.csv"), "--electronic", str(electronic), "--out", str(out)])
+    assert rc == 0
+    return pd.read_csv(out, dtype={"id": str}, keep_default_na=False, na_values=[""]), out
+
+
+def _kuhn_values(smiles, n):
+    return {"xtb_ip_ev": float(_kuhn(n, 9.0, -0.2)), "xtb_ea_ev": 3.0 - float(_kuhn(n, 1.5, -0.3)),
+            "xtb_homo_ev": -float(_kuhn(n, 8.0, -0.15)), "xtb_lumo_ev": -3.0, "xtb_gap_ev": float(_kuhn(n, 4.0, -0.45))}
+
+
+def test_polymer_levels_at_the_chain_limit_with_sidecar(tmp_path):
+    prepared = _batch(tmp_path, [("pt", "[*]c1ccc([*])s1"), ("thio", "c1ccsc1"), ("pt2", "[*:1]c1ccc([*:2])s1")])
+    olig = read_oligomers(prepared / "oligomers.csv")
+    assert list(olig["n"]) == [1, 2, 3, 4] and set(olig["per_unit"]) == {2}
+    levels, out = _levels(tmp_path, prepared, _electronic(prepared, _kuhn_values))
+    assert set(CHAIN_COLUMNS) <= set(levels.columns)
+    pt, thio, pt2 = (levels.iloc[i] for i in range(3))
+    assert (pt.status, pt.representation, thio.representation) == ("ok", "polymer", "molecule")
+    assert int(pt.chain_n_max) == 4 and pt.chain_fit_quality == "good"
+    assert pt.chain_fit.startswith("ip:kuhn ea:kuhn") and "gap:kuhn" in pt.chain_fit
+    # Kuhn data are extrapolated exactly: E(inf) = E0 sqrt(1 + 2x)
+    assert pt.xtb_gap_ev == pytest.approx(4.0 * math.sqrt(1 - 0.9), abs=1e-3)
+    assert pt.xtb_ip_ev == pytest.approx(9.0 * math.sqrt(1 - 0.4), abs=1e-3)
+    assert pt.xtb_ea_ev == pytest.approx(3.0 - 1.5 * math.sqrt(1 - 0.6), abs=1e-3)
+    # the molecule thiophene is the n = 1 oligomer: its own values, no chain columns
+    assert thio.xtb_gap_ev == pytest.approx(float(_kuhn(1, 4.0, -0.45)), abs=1e-9) and thio.chain_fit != thio.chain_fit
+    assert pt2.duplicate_of == "pt" and pt2.xtb_gap_ev == pt.xtb_gap_ev
+    side = pd.read_csv(out.with_name("levels.oligomers.csv"), dtype={"n": str}, keep_default_na=False)
+    assert list(side.columns) == SIDECAR_COLUMNS
+    gap = side[side.quantity == "xtb_gap_ev"]
+    assert list(gap.n) == ["1", "2", "3", "4", "inf"] and gap.iloc[-1].method == "kuhn"
+    assert np.all(np.diff(gap.value.iloc[:4].astype(float)) < 0)
+
+
+def test_failed_oligomer_and_poor_fit_are_reported(tmp_path):
+    prepared = _batch(tmp_path, [("pt", "[*]c1ccc([*])s1")])
+    olig = read_oligomers(prepared / "oligomers.csv")
+
+    def wiggly(smiles, n):  # not a saturating series: no fit accepted
+        return {**_kuhn_values(smiles, n), "xtb_gap_ev": [2.0, 3.0, 2.9, 1.5][n - 1]}
+
+    levels, _ = _levels(tmp_path, prepared, _electronic(prepared, wiggly, fail={olig.key.iloc[2]}))
+    row = levels.iloc[0]
+    assert row.status == "ok" and row.chain_fit_quality == "poor" and "gap:longest" in row.chain_fit
+    assert "chain_fit_poor" in row.note and "gap" in row.note and "oligomer_failed: n=3" in row.note
+    assert row.xtb_gap_ev == 1.5  # the longest oligomer computed
+    every = _electronic(prepared, wiggly, fail=set(olig.key))
+    levels, _ = _levels(tmp_path, prepared, every)
+    assert levels.iloc[0].status == "failed" and "every oligomer failed" in levels.iloc[0].error
+
+
+def test_atom_limit_and_methyl_caps(tmp_path):
+    prepared = _batch(tmp_path, [("ppv", "[*]/C=C/c1ccc([*])cc1")], PolymerOptions(n_max=6, max_atoms=40, cap="methyl"))
+    olig = read_oligomers(prepared / "oligomers.csv")
+    assert list(olig.n) == [1, 2] and (olig.n_atoms <= 40).iloc[1:].all()
+    assert olig.smiles.iloc[0] == "C/C=C/c1ccc(C)cc1" and set(olig.per_unit) == {3}
