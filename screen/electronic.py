@@ -35,24 +35,80 @@ from rdkit import Chem
 from screen.columns import RAW_COLUMNS
 from screen.constants import BOHR_ANGSTROM, HARTREE_EV
 from screen.engines import Engine, EngineError
+from screen.excitation import frontier_integrals
 from screen.batch import molecule_caller, run_journalled
 from screen.io import Journal, Progress, write_csv
 from screen.options import ElectronicOptions
 from screen.structures import STATUS_COLUMNS as STRUCTURE_COLUMNS
 from screen.structures import _plain, read_structures
 
-__all__ = ["ElectronicOptions", "vertical_levels", "run_electronic", "ELECTRONIC_COLUMNS", "RAW_COLUMNS"]
+__all__ = ["ElectronicOptions", "vertical_levels", "run_electronic", "ELECTRONIC_COLUMNS", "RAW_COLUMNS",
+           "EXTRA_RAW_COLUMNS"]
+
+#: raw values besides :data:`screen.columns.RAW_COLUMNS`: HOMO→LUMO exchange K and Coulomb J [eV] and
+#: the HOMO/LUMO overlap [0-1] of the neutral (:func:`screen.excitation.frontier_integrals`), and the
+#: ΔSCF IP and EA in a dielectric continuum of ε = ``electronic.film_epsilon`` [eV]
+EXTRA_RAW_COLUMNS = ["xtb_k_hl_ev", "xtb_j_hl_ev", "xtb_overlap_hl", "xtb_ip_film_ev", "xtb_ea_film_ev"]
 
 #: columns of the per-shard electronic table
-ELECTRONIC_COLUMNS = (["key", "status", "error"] + RAW_COLUMNS
-                      + ["xtb_energy_eh", "xtb_cation_eh", "xtb_anion_eh", "scf_rungs", "n_atoms",
-                         "sp_wall_s", "smiles_computed", "truncated_chains", "truncated_groups", "n_conformers",
-                         "forcefield",
-                         "geometry", "structure_wall_s"])
+ELECTRONIC_COLUMNS = (["key", "status", "error"] + RAW_COLUMNS + EXTRA_RAW_COLUMNS
+                      + ["xtb_energy_eh", "xtb_cation_eh", "xtb_anion_eh", "xtb_energy_film_eh",
+                         "xtb_cation_film_eh", "xtb_anion_film_eh", "scf_rungs", "n_atoms", "sp_wall_s",
+                         "electronic_note", "smiles_computed", "truncated_chains", "truncated_groups",
+                         "n_conformers", "forcefield", "geometry", "structure_wall_s"])
+
+#: ions start their SCF from the converged neutral (same state in the film from the gas-phase one);
+#: benchmarks/protocol_cost.py checks that the energies agree within 1e-6 Eh and measures the saving
+RESTART_FROM_NEUTRAL = True
 
 
-def vertical_levels(numbers, positions_bohr, engine: Engine) -> dict:
-    """Raw ΔSCF vertical IP/EA and neutral frontier orbital energies.
+def _delta_scf(numbers, positions_bohr, engine: Engine, epsilon=None, guesses=None, restart=True) -> list:
+    """Neutral (closed shell), cation and anion (doublets) at one geometry, optionally in a continuum."""
+    g = guesses or [None, None, None]
+    orbitals = epsilon is None and engine.offers_orbitals
+    neutral = engine.singlepoint(numbers, positions_bohr, charge=0, uhf=0, epsilon=epsilon,
+                                 guess=g[0] if restart else None, orbitals=orbitals)
+    start = (lambda i: g[i] or neutral) if restart else (lambda i: None)
+    cation = engine.singlepoint(numbers, positions_bohr, charge=1, uhf=1, epsilon=epsilon, guess=start(1))
+    anion = engine.singlepoint(numbers, positions_bohr, charge=-1, uhf=1, epsilon=epsilon, guess=start(2))
+    return [neutral, cation, anion]
+
+
+def _integrals(numbers, positions_bohr, neutral) -> dict:
+    """K, J and overlap of the neutral's HOMO and LUMO, NaN when the engine gives no orbitals."""
+    if neutral.orbitals is None:
+        return {"xtb_k_hl_ev": np.nan, "xtb_j_hl_ev": np.nan, "xtb_overlap_hl": np.nan}
+    o = neutral.orbitals
+    out = frontier_integrals(numbers, positions_bohr, o["coefficients"], o["overlap"], o["ao_atom"],
+                             neutral.occupations, homo=neutral.n_electrons // 2 - 1)
+    return {"xtb_k_hl_ev": out["k_hl_ev"], "xtb_j_hl_ev": out["j_hl_ev"], "xtb_overlap_hl": out["overlap_hl"]}
+
+
+def _film(numbers, positions_bohr, engine: Engine, film_epsilon, gas, restart) -> tuple[dict, list]:
+    """ΔSCF IP/EA in the continuum; NaN when switched off or not offered by the engine."""
+    nan = {"xtb_ip_film_ev": np.nan, "xtb_ea_film_ev": np.nan, "xtb_energy_film_eh": np.nan,
+           "xtb_cation_film_eh": np.nan, "xtb_anion_film_eh": np.nan}
+    if film_epsilon is None or not engine.offers_continuum:
+        return nan, []
+    n, c, a = _delta_scf(numbers, positions_bohr, engine, float(film_epsilon), gas, restart)
+    return {"xtb_ip_film_ev": (c.energy_eh - n.energy_eh) * HARTREE_EV,
+            "xtb_ea_film_ev": (n.energy_eh - a.energy_eh) * HARTREE_EV,
+            "xtb_energy_film_eh": n.energy_eh, "xtb_cation_film_eh": c.energy_eh,
+            "xtb_anion_film_eh": a.energy_eh}, [n, c, a]
+
+
+def _note(engine: Engine, film_epsilon) -> str:
+    notes = []
+    if not engine.offers_orbitals:
+        notes.append(f"engine {engine.name} gives no AO overlap: frontier integrals not computed")
+    if film_epsilon is not None and not engine.offers_continuum:
+        notes.append(f"engine {engine.name} offers no dielectric continuum: film IP/EA not computed")
+    return "; ".join(notes)
+
+
+def vertical_levels(numbers, positions_bohr, engine: Engine, film_epsilon: float | None = None,
+                    restart: bool = RESTART_FROM_NEUTRAL) -> dict:
+    """Raw ΔSCF vertical IP/EA, neutral frontier orbitals and their integrals, film-phase IP/EA.
 
     Parameters
     ----------
@@ -62,14 +118,24 @@ def vertical_levels(numbers, positions_bohr, engine: Engine) -> dict:
         Neutral geometry [bohr].
     engine : Engine
         Engine and method.
+    film_epsilon : float, optional
+        Relative permittivity of the continuum for the film-phase ΔSCF (3.5 by default in the
+        stage: common practice for organic semiconductors); ``None`` leaves those values NaN.
+    restart : bool
+        Start the ions' SCF from the converged neutral (and each film state from its gas-phase
+        one) where the engine allows it; the converged energies do not depend on it.
 
     Returns
     -------
     dict
         ``xtb_ip_ev``, ``xtb_ea_ev`` [eV] (ΔSCF, vertical), ``xtb_homo_ev``,
         ``xtb_lumo_ev``, ``xtb_gap_ev`` [eV] (neutral orbital energies and
-        their difference), total energies [Eh] of the three states, the SCF
-        rung of each state (``"n/c/a"``) and the summed wall time [s].
+        their difference), ``xtb_k_hl_ev``, ``xtb_j_hl_ev`` [eV] and
+        ``xtb_overlap_hl`` (:func:`screen.excitation.frontier_integrals`),
+        ``xtb_ip_film_ev``, ``xtb_ea_film_ev`` [eV], total energies [Eh] of the
+        six states, the SCF rung of each state (``"n/c/a"``, film states after
+        a ``|``), the summed wall time [s] and a note on what the engine could
+        not compute.
 
     Examples
     --------
@@ -77,25 +143,34 @@ def vertical_levels(numbers, positions_bohr, engine: Engine) -> dict:
     >>> mol, _ = build_structure("c1ccccc1")
     >>> z = [a.GetAtomicNum() for a in mol.GetAtoms()]
     >>> engine = ElectronicOptions().make_engine()
-    >>> r = vertical_levels(z, mol.GetConformer().GetPositions() / BOHR_ANGSTROM, engine)
+    >>> r = vertical_levels(z, mol.GetConformer().GetPositions() / BOHR_ANGSTROM, engine, film_epsilon=3.5)
     >>> r["xtb_ip_ev"] > r["xtb_ea_ev"], r["xtb_homo_ev"] < r["xtb_lumo_ev"]
     (True, True)
+    >>> r["xtb_ip_film_ev"] < r["xtb_ip_ev"], r["xtb_ea_film_ev"] > r["xtb_ea_ev"]  # the continuum stabilises ions
+    (True, True)
     """
-    neutral = engine.singlepoint(numbers, positions_bohr, charge=0, uhf=0)
-    cation = engine.singlepoint(numbers, positions_bohr, charge=1, uhf=1)
-    anion = engine.singlepoint(numbers, positions_bohr, charge=-1, uhf=1)
+    numbers = np.asarray(numbers)
+    positions_bohr = np.asarray(positions_bohr, float)
+    neutral, cation, anion = gas = _delta_scf(numbers, positions_bohr, engine, restart=restart)
     homo, lumo = neutral.frontier_eh()
+    film, film_states = _film(numbers, positions_bohr, engine, film_epsilon, gas, restart)
+    rungs = "/".join(str(s.rung) for s in gas)
+    if film_states:
+        rungs += "|" + "/".join(str(s.rung) for s in film_states)
     return {
         "xtb_ip_ev": (cation.energy_eh - neutral.energy_eh) * HARTREE_EV,
         "xtb_ea_ev": (neutral.energy_eh - anion.energy_eh) * HARTREE_EV,
         "xtb_homo_ev": homo * HARTREE_EV,
         "xtb_lumo_ev": lumo * HARTREE_EV,
         "xtb_gap_ev": (lumo - homo) * HARTREE_EV,
+        **_integrals(numbers, positions_bohr, neutral),
+        **film,
         "xtb_energy_eh": neutral.energy_eh,
         "xtb_cation_eh": cation.energy_eh,
         "xtb_anion_eh": anion.energy_eh,
-        "scf_rungs": f"{neutral.rung}/{cation.rung}/{anion.rung}",
-        "sp_wall_s": neutral.wall_s + cation.wall_s + anion.wall_s,
+        "scf_rungs": rungs,
+        "sp_wall_s": sum(s.wall_s for s in gas + film_states),
+        "electronic_note": _note(engine, film_epsilon),
     }
 
 
@@ -109,7 +184,7 @@ def _electronic_job(numbers, positions_bohr, options: dict) -> dict:
     engine = _ENGINE_CACHE.get(key)
     if engine is None:
         engine = _ENGINE_CACHE[key] = opts.make_engine()
-    return vertical_levels(numbers, positions_bohr, engine)
+    return vertical_levels(numbers, positions_bohr, engine, film_epsilon=opts.film_epsilon)
 
 
 def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicOptions = ElectronicOptions(),
@@ -151,7 +226,7 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
     local = None
     if engine is not None or not isolate:
         engine = engine or options.make_engine()
-        local = lambda z, pos, _opts: vertical_levels(z, pos, engine)  # noqa: E731
+        local = lambda z, pos, _opts: vertical_levels(z, pos, engine, film_epsilon=options.film_epsilon)  # noqa: E731
 
     with molecule_caller(_electronic_job, local, timeout_s) as call:
         def compute(row: dict) -> dict:

@@ -3,7 +3,9 @@
 Two backends compute the same GFN-xTB Hamiltonians:
 
 * :class:`TbliteEngine` (default) — the maintained ``tblite`` library
-  (GFN2-xTB, GFN1-xTB, IPEA1-xTB; ALPB/GBSA implicit solvation).
+  (GFN2-xTB, GFN1-xTB, IPEA1-xTB; ALPB implicit solvation by solvent name, a
+  non-empirical generalized-Born continuum of given ε [5]_, MO coefficients and
+  the AO overlap, SCF restart from a previous result).
 * :class:`XtbEngine` — the older ``xtb-python`` bindings (GFN2-xTB,
   GFN1-xTB), an optional extra whose wheels stop at Python 3.11.
 
@@ -36,6 +38,10 @@ References
 .. [4] S. Ehlert, M. Stahn, S. Spicher, S. Grimme, "Robust and efficient
    implicit solvation model for fast semiempirical methods" (ALPB),
    J. Chem. Theory Comput. 17 (2021) 4250. :doi:`10.1021/acs.jctc.1c00471`
+.. [5] A. W. Lange, J. M. Herbert, "Improving generalized Born models by
+   exploiting connections to polarizable continuum models. I. An improved
+   effective Coulomb operator" (the P16 kernel used for a continuum of given ε),
+   J. Chem. Theory Comput. 8 (2012) 1999. :doi:`10.1021/ct300111m`
 """
 
 from __future__ import annotations
@@ -139,6 +145,11 @@ class SinglePoint:
     wall_s: float
     rung: int = 0
     n_electrons: int = field(default=0)
+    #: MO coefficients (AOs × MOs), AO overlap matrix and the atom of each AO, when asked for
+    #: (``orbitals=True``) and offered by the backend; else None
+    orbitals: dict | None = field(default=None, repr=False, compare=False)
+    #: backend result object a later single point can start from (``guess=``); None if not offered
+    handle: object = field(default=None, repr=False, compare=False)
 
     def frontier_eh(self) -> tuple[float, float]:
         """HOMO and LUMO orbital energies [Eh] of a closed-shell result.
@@ -199,13 +210,25 @@ class Engine(ABC):
             "electronic_temperature_k": self.scf.electronic_temperature_k,
         }
 
+    #: whether the backend offers a dielectric continuum of given ε (``epsilon=``)
+    offers_continuum: bool = False
+    #: whether the backend returns MO coefficients and the AO overlap (``orbitals=True``)
+    offers_orbitals: bool = False
+
     @abstractmethod
     def _run(self, numbers: np.ndarray, positions_bohr: np.ndarray, charge: int, uhf: int,
-             scf: ScfSettings) -> tuple[float, np.ndarray, np.ndarray]:
-        """One attempt: return (energy [Eh], orbital energies [Eh], occupations) or raise ScfError."""
+             scf: ScfSettings, *, epsilon: float | None = None, guess: object = None,
+             orbitals: bool = False) -> dict:
+        """One attempt, or raise ScfError.
+
+        Returns a dict with ``energy`` [Eh], ``eps`` (orbital energies [Eh]),
+        ``occ`` (occupations) and optionally ``orbitals`` and ``handle`` (see
+        :class:`SinglePoint`).
+        """
 
     def singlepoint(self, numbers, positions_bohr, *, charge: int = 0, uhf: int = 0,
-                    ladder: tuple[dict, ...] = SCF_LADDER) -> SinglePoint:
+                    ladder: tuple[dict, ...] = SCF_LADDER, epsilon: float | None = None,
+                    guess: SinglePoint | None = None, orbitals: bool = False) -> SinglePoint:
         """Converged single point, walking the SCF fallback ladder.
 
         Parameters
@@ -220,6 +243,14 @@ class Engine(ABC):
             Number of unpaired electrons (0 for closed shell, 1 for a doublet ion).
         ladder : tuple of dict
             Overrides of :attr:`scf` for each rung, tried in order.
+        epsilon : float, optional
+            Embed the molecule in a dielectric continuum of this relative permittivity
+            (backends with :attr:`offers_continuum`; replaces any named solvent).
+        guess : SinglePoint, optional
+            A converged result (e.g. the neutral) whose wavefunction starts the SCF, where the
+            backend allows it; the converged energy does not depend on the start.
+        orbitals : bool
+            Also return MO coefficients and the AO overlap (:attr:`SinglePoint.orbitals`).
 
         Returns
         -------
@@ -237,20 +268,25 @@ class Engine(ABC):
         n_electrons = int(numbers.sum()) - int(charge)  # all-electron count; parity is what matters
         if (n_electrons - uhf) % 2:
             raise EngineError(f"charge {charge} with {uhf} unpaired electrons is impossible for this molecule")
+        if epsilon is not None and not self.offers_continuum:
+            raise EngineError(f"engine {self.name!r} offers no dielectric continuum of given epsilon; use 'tblite'")
         start = time.perf_counter()
         errors = []
+        handle = guess.handle if guess is not None else None
         for rung, override in enumerate(ladder):
             settings = replace(self.scf, **override)
             try:
-                energy, eps, occ = self._run(numbers, positions, int(charge), int(uhf), settings)
+                out = self._run(numbers, positions, int(charge), int(uhf), settings, epsilon=epsilon,
+                                guess=handle, orbitals=orbitals)
             except ScfError as exc:
                 errors.append(f"rung {rung}: {exc}")
                 continue
-            valence_electrons = int(round(float(np.sum(occ))))
+            valence_electrons = int(round(float(np.sum(out["occ"]))))
             return SinglePoint(
-                energy_eh=float(energy), orbital_energies_eh=np.asarray(eps, dtype=float),
-                occupations=np.asarray(occ, dtype=float), charge=int(charge), uhf=int(uhf),
+                energy_eh=float(out["energy"]), orbital_energies_eh=np.asarray(out["eps"], dtype=float),
+                occupations=np.asarray(out["occ"], dtype=float), charge=int(charge), uhf=int(uhf),
                 wall_s=time.perf_counter() - start, rung=rung, n_electrons=valence_electrons,
+                orbitals=out.get("orbitals"), handle=out.get("handle"),
             )
         raise ScfError("SCF did not converge (" + "; ".join(errors) + ")")
 
@@ -278,7 +314,10 @@ class TbliteEngine(Engine):
         except ImportError as exc:  # pragma: no cover - tblite is a hard dependency
             raise EngineError("the tblite engine needs the 'tblite' package (pip install tblite)") from exc
 
-    def _run(self, numbers, positions, charge, uhf, scf):
+    offers_continuum = True
+    offers_orbitals = True
+
+    def _run(self, numbers, positions, charge, uhf, scf, *, epsilon=None, guess=None, orbitals=False):
         from tblite.exceptions import TBLiteRuntimeError, TBLiteValueError
         from tblite.interface import Calculator
 
@@ -289,17 +328,27 @@ class TbliteEngine(Engine):
             calc.set("max-iter", int(scf.max_iter))
             calc.set("mixer-damping", float(scf.mixer_damping))
             calc.set("temperature", float(scf.electronic_temperature_k) * KB_HARTREE_K)
-            if self.solvent:
+            if orbitals:
+                calc.set("save-integrals", 1)
+            if epsilon is not None:  # non-empirical GB with the P16 kernel: ε only, no fitted terms
+                calc.add("gbe-solvation", float(epsilon), "p16")
+            elif self.solvent:
                 calc.add("alpb-solvation", self.solvent)
         except (TBLiteValueError, TBLiteRuntimeError) as exc:
             raise EngineError(f"tblite setup failed: {exc}") from exc
         try:
-            res = calc.singlepoint()
+            res = calc.singlepoint(guess, copy=True) if guess is not None else calc.singlepoint()
         except TBLiteRuntimeError as exc:
             if "converge" in str(exc).lower():
                 raise ScfError(str(exc)) from exc
             raise EngineError(f"tblite failed: {exc}") from exc
-        return res.get("energy"), res.get("orbital-energies"), res.get("orbital-occupations")
+        out = {"energy": res.get("energy"), "eps": res.get("orbital-energies"),
+               "occ": res.get("orbital-occupations"), "handle": res}
+        if orbitals:  # coefficients come as AOs × MOs (CᵀSC = 1 checked in tests/test_engines.py)
+            out["orbitals"] = {"coefficients": np.asarray(res.get("orbital-coefficients")),
+                               "overlap": np.asarray(res.get("overlap-matrix")),
+                               "ao_atom": np.asarray(calc.get("shell-map"))[np.asarray(calc.get("orbital-map"))]}
+        return out
 
     def ase_calculator(self):
         """An ASE calculator for geometry optimisation with the same method and settings."""
@@ -316,7 +365,8 @@ class TbliteEngine(Engine):
 class XtbEngine(Engine):
     """GFN-xTB through ``xtb-python`` (optional second backend, Python ≤ 3.11).
 
-    Implicit solvation is not offered through this backend.
+    Implicit solvation, a dielectric continuum, the AO overlap and SCF restarts
+    are not offered through this backend.
     """
 
     name = "xtb"
@@ -334,7 +384,9 @@ class XtbEngine(Engine):
                 "engine 'xtb' needs the optional xtb-python package: pip install 'dascreen[xtb]' (Python <= 3.11)"
             ) from exc
 
-    def _run(self, numbers, positions, charge, uhf, scf):
+    def _run(self, numbers, positions, charge, uhf, scf, *, epsilon=None, guess=None, orbitals=False):
+        # xtb-python returns MO coefficients but neither the AO overlap nor the AO→atom map, so
+        # ``orbitals`` stays None; ``guess`` is not used (every SCF starts from the superposition guess)
         from xtb.interface import Calculator, Param, XTBException
         from xtb.libxtb import VERBOSITY_MUTED
 
@@ -350,7 +402,8 @@ class XtbEngine(Engine):
             if "converge" in str(exc).lower() or "scf" in str(exc).lower():
                 raise ScfError(str(exc)) from exc
             raise EngineError(f"xtb failed: {exc}") from exc
-        return res.get_energy(), res.get_orbital_eigenvalues(), res.get_orbital_occupations()
+        return {"energy": res.get_energy(), "eps": res.get_orbital_eigenvalues(),
+                "occ": res.get_orbital_occupations()}
 
     def ase_calculator(self):
         """An ASE calculator for geometry optimisation with the same method."""

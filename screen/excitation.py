@@ -47,7 +47,6 @@ Two identical atoms 2 bohr apart with one orbital each (H₂-like minimal basis)
 from __future__ import annotations
 
 import numpy as np
-from scipy.linalg import sqrtm
 
 from screen.constants import HARTREE_EV
 
@@ -60,8 +59,20 @@ _DEFAULT_HARDNESS_EV = 5.0
 
 
 def lowdin_coefficients(coeffs: np.ndarray, overlap: np.ndarray) -> np.ndarray:
-    """Löwdin-orthogonalised MO coefficients C' = S^{1/2} C (AOs × MOs)."""
-    half = np.real(sqrtm(np.asarray(overlap, float)))
+    """Löwdin-orthogonalised MO coefficients C' = S^{1/2} C (AOs × MOs).
+
+    S is symmetric positive definite, so S^{1/2} comes from its eigen-decomposition
+    (faster and real, unlike a general matrix square root).
+
+    Examples
+    --------
+    >>> S = np.array([[1.0, 0.5], [0.5, 1.0]])
+    >>> C = np.linalg.inv(np.sqrt(3.0) * np.eye(2)) @ np.array([[1.0], [1.0]])
+    >>> np.round(lowdin_coefficients(C, S).ravel(), 4).tolist()  # a normalised orbital stays normalised
+    [0.7071, 0.7071]
+    """
+    w, v = np.linalg.eigh(np.asarray(overlap, float))
+    half = (v * np.sqrt(np.clip(w, 0.0, None))) @ v.T
     return half @ np.asarray(coeffs, float)
 
 
@@ -77,7 +88,8 @@ def _gamma(numbers: np.ndarray, positions_bohr: np.ndarray) -> np.ndarray:
     return 1.0 / np.sqrt(r**2 + damp**2)
 
 
-def frontier_integrals(numbers, positions_bohr, coeffs, overlap, ao_atom, occupations) -> dict:
+def frontier_integrals(numbers, positions_bohr, coeffs, overlap, ao_atom, occupations,
+                       homo: int | None = None) -> dict:
     """HOMO→LUMO exchange K, Coulomb J and spatial overlap of a closed-shell molecule.
 
     Parameters
@@ -93,7 +105,9 @@ def frontier_integrals(numbers, positions_bohr, coeffs, overlap, ao_atom, occupa
     ao_atom : array_like of int
         Atom index (0-based) of each AO.
     occupations : array_like
-        Orbital occupations (the HOMO is the highest with occupation > 1).
+        Orbital occupations (the HOMO is the highest with occupation > 1 unless ``homo`` is given).
+    homo : int, optional
+        Index of the HOMO (0-based, ascending orbital energies); the LUMO is the next one.
 
     Returns
     -------
@@ -101,13 +115,21 @@ def frontier_integrals(numbers, positions_bohr, coeffs, overlap, ao_atom, occupa
         ``k_hl_ev`` and ``j_hl_ev`` [eV]; ``overlap_hl`` = Σ_A √(p_A^H p_A^L) [0–1]
         with Löwdin orbital populations p (1 for identical densities, → 0 for
         separated HOMO and LUMO).
+
+    Notes
+    -----
+    With a degenerate HOMO or LUMO (e.g. C60) the values depend on which
+    orbitals of the degenerate set the diagonaliser returns; they are still
+    reported, as the calibration only uses them as descriptors.
     """
     numbers = np.asarray(numbers, int)
     pos = np.asarray(positions_bohr, float)
     occ = np.asarray(occupations, float)
-    occupied = np.flatnonzero(occ > 1.0)
-    homo = int(occupied.max())
+    if homo is None:
+        homo = int(np.flatnonzero(occ > 1.0).max())
     lumo = homo + 1
+    if lumo >= np.shape(coeffs)[1]:
+        raise ValueError(f"no LUMO: orbital {lumo} of {np.shape(coeffs)[1]}")
     cprime = lowdin_coefficients(coeffs, overlap)
     ao_atom = np.asarray(ao_atom, int)
     n = len(numbers)

@@ -155,6 +155,10 @@ class ElectronicOptions:
         Fermi smearing temperature [K].
     threads : int
         OpenMP threads per job (set by the stage runner before the engine loads).
+    film_epsilon : float or None
+        Relative permittivity of the dielectric continuum for the film-phase ΔSCF IP/EA
+        (non-empirical generalized Born, tblite only); 3.5 is common practice for organic
+        semiconductors. ``None`` switches the film single points off (columns NaN).
 
     Examples
     --------
@@ -169,6 +173,7 @@ class ElectronicOptions:
     max_iter: int = _E["max_iter"]
     electronic_temperature_k: float = _E["electronic_temperature_k"]
     threads: int = _E["threads"]
+    film_epsilon: float | None = _E["film_epsilon"]
 
     def make_engine(self):
         """The engine these options describe (:func:`screen.engines.make_engine`).

@@ -84,3 +84,43 @@ def test_ladder_is_documented_and_energy_neutral():
     assert SCF_LADDER[0] == {}
     assert all("electronic_temperature_k" not in rung for rung in SCF_LADDER)
     assert np.all(np.diff([r.get("max_iter", 250) for r in SCF_LADDER]) > 0)
+
+
+def test_tblite_orbitals_are_aos_by_mos_with_an_atom_map():
+    z, pos = _benzene()
+    sp = make_engine().singlepoint(z, pos, orbitals=True)
+    c, s, ao_atom = sp.orbitals["coefficients"], sp.orbitals["overlap"], sp.orbitals["ao_atom"]
+    # orthonormal MOs: CᵀSC = 1 holds only with AOs as rows
+    assert np.allclose(c.T @ s @ c, np.eye(c.shape[1]), atol=1e-8)
+    # GFN2-xTB minimal valence basis: C has s+p (4 AOs), H one s (Bannwarth et al. 2019, doi:10.1021/acs.jctc.8b01176)
+    assert np.bincount(ao_atom).tolist() == [4 if zi == 6 else 1 for zi in z]
+
+
+def test_restart_from_the_neutral_does_not_change_the_ion_energy():
+    z, pos = _benzene()
+    eng = make_engine()
+    neutral = eng.singlepoint(z, pos)
+    cold = eng.singlepoint(z, pos, charge=1, uhf=1)
+    warm = eng.singlepoint(z, pos, charge=1, uhf=1, guess=neutral)
+    assert warm.energy_eh == pytest.approx(cold.energy_eh, abs=1e-6)
+    assert neutral.energy_eh == pytest.approx(eng.singlepoint(z, pos).energy_eh, abs=1e-9)  # guess left untouched
+
+
+def test_continuum_lowers_the_ion_energy_more_than_the_neutral():
+    z, pos = _benzene()
+    eng = make_engine()
+    gas = [eng.singlepoint(z, pos, charge=q, uhf=abs(q)).energy_eh for q in (0, 1)]
+    film = [eng.singlepoint(z, pos, charge=q, uhf=abs(q), epsilon=3.5).energy_eh for q in (0, 1)]
+    p_plus = ((gas[1] - gas[0]) - (film[1] - film[0])) * HARTREE_EV
+    # Born estimate for a singly charged ion of radius ~3 Å in ε = 3.5: e²/(8πε0 a)(1 − 1/ε) ≈ 1.7 eV
+    # (common practice: continuum polarisation energies of small aromatics are ~0.5–2 eV)
+    assert 0.5 < p_plus < 2.0
+
+
+def test_xtb_backend_offers_no_continuum():
+    pytest.importorskip("xtb.interface", reason="xtb-python is an optional backend (Python <= 3.11)")
+    z, pos = _benzene()
+    eng = make_engine("xtb")
+    assert eng.singlepoint(z, pos, orbitals=True).orbitals is None
+    with pytest.raises(EngineError, match="no dielectric continuum"):
+        eng.singlepoint(z, pos, epsilon=3.5)
