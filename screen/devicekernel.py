@@ -62,6 +62,12 @@ class PairTerms:
     jsc: np.ndarray
 
 
+def _positive(gap):
+    """The gap where it is a positive number, NaN elsewhere (an invalid gap never caps Voc at 0)."""
+    with np.errstate(invalid="ignore"):
+        return np.where(gap > 0, gap, np.nan)
+
+
 def _safe_gap(gap):
     """The gap, or 2 eV where it is not a positive number (placeholder that keeps NaN out of tables)."""
     with np.errstate(invalid="ignore"):
@@ -93,7 +99,7 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None) -> PairTerms:
     d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap = levels
     delta_lumo, delta_homo = d_lumo - a_lumo, d_homo - a_homo
     interface = a_lumo - d_homo  # |HOMO_D| - |LUMO_A| [eV]
-    gap_cap = np.fmin(d_gap, a_gap)  # smallest optical gap of the pair
+    gap_cap = np.fmin(_positive(d_gap), _positive(a_gap))  # smallest (valid) optical gap of the pair
     both = model.absorber == "both"
     g_lo = np.minimum(d_gap, a_gap) if both else d_gap
     if model.model == "scharber":
@@ -154,8 +160,8 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
         dh = np.subtract(d_homo, a_homo, out=np.empty(shape))
         with np.errstate(invalid="ignore"):
             ok &= ~(dh < thr_h)
-    cap = np.fmin(d_gap, a_gap, out=np.empty(shape))  # smallest gap of the pair
-    g_lo = cap if both else np.broadcast_to(d_gap, shape)
+    cap = np.fmin(_positive(d_gap), _positive(a_gap), out=np.empty(shape))  # smallest valid gap of the pair
+    g_lo = np.broadcast_to(np.minimum(d_gap, a_gap) if both else d_gap, shape)  # absorber gap (may be invalid)
     voc = np.subtract(a_lumo, d_homo, out=np.empty(shape))  # interface gap
     if model.model != "scharber":
         np.fmin(voc, cap, out=voc)  # E_CT

@@ -81,9 +81,12 @@ class FittedParameters:
                 raise ConfigError(f"fitted device parameters {self.source}: loss_ev[{key!r}] must be >= 0")
 
     def _classes(self, acceptor_class) -> np.ndarray:
+        """Classes as a str array; None and NaN become '' (unknown)."""
         if acceptor_class is None:
             return np.array("", dtype=object)
-        return np.asarray(acceptor_class, dtype=object)
+        classes = np.asarray(acceptor_class, dtype=object)
+        return np.vectorize(lambda c: "" if c is None or str(c) in ("nan", "None") else str(c),
+                            otypes=[object])(classes) if classes.size else classes
 
     def loss_for(self, acceptor_class) -> np.ndarray:
         """Energy loss per element of ``acceptor_class``: its own value, else its family's, else pooled. [eV]"""

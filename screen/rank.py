@@ -294,29 +294,38 @@ def partner_role(levels: pd.DataFrame, partner: Partner, options: RankOptions) -
 
 @dataclass(frozen=True)
 class _Candidates:
-    """The ranked rows as arrays: ids, levels [eV], σ [eV] (empty σ → 0) and acceptor classes."""
+    """The ranked rows as arrays: ids, levels [eV] and σ [eV] (empty σ → 0)."""
 
     ids: np.ndarray
     homo: np.ndarray
     lumo: np.ndarray
     gap: np.ndarray
     sigma: dict
-    acceptor_class: np.ndarray
 
 
-def _acceptor_classes(lv: pd.DataFrame) -> np.ndarray:
-    """The ``acceptor_class`` column where given, else the class of the SMILES ('' if unknown)."""
+def _acceptor_classes(lv: pd.DataFrame, needed: np.ndarray) -> np.ndarray:
+    """The ``acceptor_class`` column where given, else the class of the SMILES ('' if unknown); only for the
+    ``needed`` rows (acceptor candidates), each distinct SMILES classified once."""
     given = _text(lv, "acceptor_class")
     smiles = _text(lv, "smiles")
-    return np.array([g.strip() or acceptor_class_of(smi) for g, smi in zip(given, smiles)], dtype=object)
+    out = np.full(len(lv), "", dtype=object)
+    seen: dict = {}
+    for i in np.flatnonzero(needed):
+        cls = given[i].strip()
+        if not cls:
+            if smiles[i] not in seen:
+                seen[smiles[i]] = acceptor_class_of(smiles[i])
+            cls = seen[smiles[i]]
+        out[i] = cls
+    return out
 
 
 def _candidates(lv: pd.DataFrame) -> _Candidates:
-    """Read ids, levels, σ (empty → 0) and acceptor classes (levels already checked)."""
+    """Read ids, levels and σ (empty → 0); the levels are already checked."""
     ids = _text(lv, "id")
     homo, lumo, gap = (_numeric(lv, c) for c in ("homo_ev", "lumo_ev", "gap_opt_ev"))
     sig = {c: np.nan_to_num(_numeric(lv, c), nan=0.0) for c in SIGMA_COLUMNS}
-    return _Candidates(ids, homo, lumo, gap, sig, _acceptor_classes(lv))
+    return _Candidates(ids, homo, lumo, gap, sig)
 
 
 # --------------------------------------------------------------------------- steps of rank_candidates
@@ -361,7 +370,8 @@ class _Pair:
     acceptor_class: np.ndarray
 
 
-def _pair(cand: _Candidates, is_donor: np.ndarray, partner: Partner, partner_sigma: bool) -> _Pair:
+def _pair(cand: _Candidates, is_donor: np.ndarray, partner: Partner, partner_sigma: bool,
+          cand_class: np.ndarray) -> _Pair:
     """Put the candidate on its side of the pair and the partner on the other (σ of the partner × 0 if not
     sampled)."""
     def split(cand_value, partner_value):
@@ -375,7 +385,7 @@ def _pair(cand: _Candidates, is_donor: np.ndarray, partner: Partner, partner_sig
     s_d_lumo, s_a_lumo = split(cand.sigma["lumo_sigma_ev"], k * partner.lumo_sigma_ev)
     s_d_gap, s_a_gap = split(cand.sigma["gap_opt_sigma_ev"], k * partner.gap_opt_sigma_ev)
     p_class = acceptor_class_of(partner.smiles) if partner.role != "donor" else ""
-    acc_class = np.where(is_donor, p_class, cand.acceptor_class).astype(object)
+    acc_class = np.where(is_donor, p_class, cand_class).astype(object)
     return _Pair((d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap),
                  (s_d_homo, s_d_lumo, s_d_gap, s_a_homo, s_a_lumo, s_a_gap), acc_class)
 
@@ -604,7 +614,7 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
 
     cand = _candidates(lv)
     roles = _roles(lv, cand, partner, p_role, options)
-    pair = _pair(cand, roles.is_donor, partner, options.partner_sigma)
+    pair = _pair(cand, roles.is_donor, partner, options.partner_sigma, _acceptor_classes(lv, ~roles.is_donor))
     dev = model.evaluate(*pair.levels, acceptor_class=pair.acceptor_class)
     dev["acceptor_class"] = pair.acceptor_class
     masks = _flag_masks(lv, cand, roles, dev, partner, options)

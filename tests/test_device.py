@@ -427,3 +427,24 @@ def test_ranking_scale_run_spans_several_blocks():
         one = sample_pce(m, homo[i], lumo[i], gap[i], None, -4.3, donor_homo_sigma_ev=0.12, donor_lumo_sigma_ev=0.12,
                          donor_gap_sigma_ev=0.12, acceptor_lumo_sigma_ev=0.05, n_samples=2000)
         assert one["pce_sigma_pct"] == pytest.approx(out["pce_sigma_pct"][i], abs=1e-12)
+
+
+# --------------------------------------------------------------------------- #
+# Detailed-balance limit
+# --------------------------------------------------------------------------- #
+def test_detailed_balance_limit_against_ruhle():
+    from screen.spectrum import sq_limit
+
+    # Rühle, Sol. Energy 130 (2016) 139, doi:10.1016/j.solener.2016.02.015 (AM1.5G, 300 K): maximum 33.7 %
+    # at 1.34 eV # from memory (widely quoted; the table itself was not read here)
+    gaps = np.arange(0.9, 2.0, 0.005)
+    out = sq_limit(gaps)
+    best = int(np.argmax(out["pce_pct"]))
+    assert out["pce_pct"][best] == pytest.approx(33.7, abs=0.1)
+    assert gaps[best] == pytest.approx(1.34, abs=0.02)
+    # physics: Voc below the gap, FF below 1, Jsc the EQE = 1 integral of screen.spectrum
+    assert np.all(out["voc_v"] < gaps) and np.all((out["ff"] > 0.7) & (out["ff"] < 1))
+    np.testing.assert_allclose(out["jsc_ma_cm2"], jsc_ma_cm2(gaps, 1.0), rtol=1e-12)
+    # no photons above hc/280 nm, nothing for a non-positive gap
+    edge = sq_limit([4.5, 0.0])
+    assert edge["pce_pct"][0] == 0.0 and np.isnan(edge["pce_pct"][1])

@@ -1,0 +1,60 @@
+"""Tests of screen.levels_check: impossible levels are refused before ranking, naming file, line, column, fix."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from screen.errors import InputError
+from screen.levels_check import GAP_EXCESS_TOL_EV, check_levels, check_partner, row_problems
+from screen.partners import library_partners
+
+
+def _frame(**cols):
+    base = {"id": ["a"], "homo_ev": [-5.3], "lumo_ev": [-3.5], "gap_opt_ev": [1.7], "scale": ["film"]}
+    base.update({k: [v] for k, v in cols.items()})
+    return pd.DataFrame(base)
+
+
+@pytest.mark.parametrize("cols, column, fix", [
+    (dict(homo_ev=5.3), "homo_ev", "write it as -5.3"),
+    (dict(lumo_ev=3.5), "lumo_ev", "write it as -3.5"),
+    (dict(homo_ev=-3.5, lumo_ev=-5.3), "homo_ev", "look swapped"),
+    (dict(gap_opt_ev=0.0), "gap_opt_ev", "must be positive"),
+    (dict(gap_opt_ev=-1.2), "gap_opt_ev", "must be positive"),
+    (dict(gap_opt_ev=730.0), "gap_opt_ev", "1240/730 = 1.70 eV"),
+    (dict(gap_opt_ev=1.8 + GAP_EXCESS_TOL_EV + 0.05), "gap_opt_ev", "exceeds LUMO - HOMO"),
+    (dict(homo_sigma_ev=-0.1), "homo_sigma_ev", ">= 0"),
+    (dict(lumo_sigma_ev=np.inf), "lumo_sigma_ev", ">= 0"),
+    (dict(homo_ev="-5.3eV"), "homo_ev", "not a number"),
+])
+def test_each_problem_names_file_line_column_and_fix(cols, column, fix):
+    with pytest.raises(InputError) as err:
+        check_levels(_frame(**cols), "cv.csv")
+    msg = str(err.value)
+    assert msg.startswith("cv.csv: line 2 (id 'a'), column " + column) and fix in msg
+
+
+def test_sane_rows_pass_and_empty_cells_are_left_to_the_ranking():
+    check_levels(_frame(), "cv.csv")
+    check_levels(_frame(homo_ev=np.nan, gap_opt_ev=np.nan), "cv.csv")
+    # optical gap slightly above LUMO - HOMO (CV and absorption onsets differ): accepted
+    check_levels(_frame(gap_opt_ev=1.8 + GAP_EXCESS_TOL_EV - 0.05), "cv.csv")
+    # gas scale: an unbound anion (EA < 0, LUMO > 0) is physical
+    check_levels(_frame(lumo_ev=0.4, gap_opt_ev=4.0, scale="gas"), "gas.csv")
+
+
+def test_several_problems_in_one_message_with_file_lines():
+    frame = pd.DataFrame({"id": ["a", "b", "c"], "homo_ev": [5.3, -5.3, -3.0], "lumo_ev": [-3.5, -3.5, -5.0],
+                          "gap_opt_ev": [1.7, 1.7, 1.7], "scale": "film"}, index=[0, 4, 7])  # file rows 0, 4, 7
+    with pytest.raises(InputError) as err:
+        check_levels(frame, "x.csv")
+    msg = str(err.value)
+    assert msg.startswith("x.csv: 2 problems") and "line 2 (id 'a')" in msg and "line 9 (id 'c')" in msg
+
+
+def test_every_library_partner_is_sane():
+    for pid, partner in library_partners().items():
+        check_partner(partner)  # raises on an impossible library row
+        assert row_problems(partner.homo_ev, partner.lumo_ev, partner.gap_opt_ev, partner.scale) == [], pid
