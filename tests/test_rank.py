@@ -268,7 +268,6 @@ def test_ten_thousand_rows(partner):
     assert len(r) == n and r.loc[ok, "pce_sigma_pct"].notna().all() and r.loc[~ok, "pce_pct"].isna().all()
     assert r["rank"].tolist() == list(range(1, n + 1)) and r["passes"].is_monotonic_decreasing
     assert r["viable"].is_monotonic_decreasing and 0 < ok.sum() < n
-    # σ per row separates candidates: rows with their own larger σ get a wider spread
     # a candidate's numbers do not depend on the other rows (common random numbers, same seed)
     one = rank_candidates(lv.iloc[[1234]], partner).iloc[0]
     row = r.set_index("id").loc[one["id"]]
@@ -430,3 +429,16 @@ def test_report_is_written_when_the_module_exists(cv_file, tmp_path):
         pytest.skip("screen.report has no write_report yet")
     path = run_rank(cv_file, REF, tmp_path, {"rank": {"role": "donor"}})
     assert (path.parent / "report.html").is_file()
+
+
+def test_each_rows_own_sigma_separates_candidates():
+    # identical levels, different σ columns (as the calibration will give per candidate): different spreads,
+    # nothing in the ranking flattens them
+    y6 = resolve_partner("y6")
+    lv = _levels([{"id": f"s{k}", "homo_ev": -5.45, "lumo_ev": -3.65, "gap_opt_ev": 1.8, "role": "donor",
+                   "homo_sigma_ev": sig, "lumo_sigma_ev": sig, "gap_opt_sigma_ev": sig / 2}
+                  for k, sig in enumerate([0.02, 0.1, 0.3])])
+    r = rank_candidates(lv, y6, options=RankOptions(partner_sigma=False)).set_index("id")
+    assert r.loc["s0", "pce_pct"] == r.loc["s2", "pce_pct"]
+    assert r.loc["s0", "pce_sigma_pct"] < r.loc["s1", "pce_sigma_pct"] < r.loc["s2", "pce_sigma_pct"]
+    assert r.loc["s2", "homo_sigma_ev"] == 0.3
