@@ -47,8 +47,8 @@ Examples
 'LUMO offset to the partner below 0.30 eV — electron transfer from donor to acceptor is not assured'
 >>> describe_flag("made_up_code")
 'made_up_code'
->>> sorted(INFO_FLAGS)
-['heavy_atoms_unknown', 'role_assumed']
+>>> "role_assumed" in INFO_FLAGS, "lumo_offset_low" in INFO_FLAGS
+(True, False)
 """
 
 from __future__ import annotations

@@ -210,14 +210,40 @@ def _ranking_items(rank: dict) -> list[tuple[str, str]]:
     return items
 
 
+#: plain-words description of each device model, as shown on the device card
+MODEL_TEXT = {
+    "fitted": ('Fitted energy-loss model (the default): V<sub>oc</sub> = (E<sub>CT</sub> \u2212 '
+               '\u0394E<sub>loss</sub>)/q with E<sub>CT</sub> the smaller of the interface gap '
+               '(LUMO<sub>acc</sub> \u2212 HOMO<sub>don</sub>) and the smaller optical gap; '
+               '\u0394E<sub>loss</sub> per acceptor class and an EQE that falls smoothly as an offset '
+               'approaches zero, both fitted on published devices; V<sub>oc</sub> never above the gap and '
+               'PCE never above the detailed-balance limit.'),
+    "scharber": ('Published Scharber rule (reference model): V<sub>oc</sub> = (LUMO<sub>acc</sub> \u2212 '
+                 'HOMO<sub>don</sub>)/e \u2212 loss; J<sub>sc</sub> = EQE \u00b7 q \u00b7 photon flux above '
+                 'the gap; PCE = V<sub>oc</sub>J<sub>sc</sub>FF/P<sub>in</sub>.'),
+}
+#: what the absorber setting means, as shown on the device card
+ABSORBER_TEXT = {
+    "both": "Both materials absorb: photons above the smaller optical gap count and both offsets are checked.",
+    "donor": "Donor-only absorption (the published model's assumption): only photons above the donor's gap count.",
+}
+
+
+def model_label(meta: dict) -> str:
+    """Plain-words name of the device model recorded in ``meta["device"]`` (HTML)."""
+    dev = get(meta, "device", default={}) or {}
+    model = text(dev.get("model")) or "scharber"
+    return MODEL_TEXT.get(model, esc(model))
+
+
 def device_card(meta: dict) -> str:
     """Device-model and ranking-settings card (from ``meta["device"]`` and ``meta["rank"]``)."""
     dev = get(meta, "device", default={}) or {}
     rank = get(meta, "rank", default={}) or {}
+    absorber = ABSORBER_TEXT.get(text(dev.get("absorber")), "")
     return ('<section class="card" id="card-device"><h3>Device model</h3>'
-            '<p class="quiet">Scharber model: V<sub>oc</sub> = (LUMO<sub>acc</sub> \u2212 HOMO<sub>don</sub>)/e '
-            '\u2212 loss; J<sub>sc</sub> = EQE \u00b7 q \u00b7 photon flux above the gap; '
-            'PCE = V<sub>oc</sub>J<sub>sc</sub>FF/P<sub>in</sub>.</p>'
+            f'<p class="quiet">{model_label(meta)}</p>'
+            + (f'<p class="quiet">{absorber}</p>' if absorber else "")
             + _dl(_device_items(dev)) + "<h3>Ranking settings</h3>" + _dl(_ranking_items(rank)) + "</section>")
 
 

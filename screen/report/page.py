@@ -160,10 +160,11 @@ def _figures_section(levels_fig: str, map_fig: str, map_note: str, n_short: int,
         + (f"; brick red marks offsets below {fmt(thr)} eV" if not math.isnan(thr) else "")
         + ".</figcaption></figure>",
         f'<figure class="map" id="figure-map">{map_fig}<figcaption><strong>Gap\u2013offset map.</strong> '
-        "Estimated PCE of the Scharber model with this run\u2019s device parameters, taking the donor HOMO "
-        "as donor LUMO \u2212 optical gap, so the map depends on gap and offset only. Grey dots: every ranked "
-        "candidate; amber diamonds: the shortlist, labelled by rank. A candidate\u2019s own estimate (tables) "
-        "uses its computed HOMO and can differ from the colour under its marker. "
+        "Estimated PCE of this run\u2019s device model against the chosen partner, as a function of the "
+        "candidate\u2019s optical gap and LUMO offset (its HOMO taken as LUMO \u2212 optical gap); the hatched "
+        "region is not viable (no working alignment) and has no PCE. Dots: ranked candidates, labelled by id. "
+        "A candidate\u2019s own estimate (tables) uses its computed HOMO and can differ from the colour under "
+        "its marker. "
         f"{esc(map_note)}</figcaption></figure>",
         "</div>",
     ]
