@@ -9,7 +9,9 @@ vertical:
 
     IP_v = E(M^{+\\bullet}) - E(M), \\qquad EA_v = E(M) - E(M^{-\\bullet})
 
-Positive EA means the anion is bound. Orbital energies of the neutral
+Positive EA means the anion is bound. A neutral whose orbital gap is below
+:data:`screen.sanity.MIN_GAP_EV` fails the row (a broken or metallic electronic
+structure gives no usable levels). Orbital energies of the neutral
 (HOMO, LUMO) are reported too. All values here are *raw* engine values on the
 isolated-molecule (gas) scale; GFN2-xTB ΔSCF IPs are systematically too large
 by several eV, which is why the calibration stage exists.
@@ -35,6 +37,7 @@ from rdkit import Chem
 from screen.columns import RAW_COLUMNS
 from screen.constants import BOHR_ANGSTROM, HARTREE_EV
 from screen.engines import Engine, EngineError
+from screen import sanity
 from screen.excitation import frontier_integrals
 from screen.batch import molecule_caller, run_journalled
 from screen.io import Journal, Progress, write_csv
@@ -68,6 +71,11 @@ def _delta_scf(numbers, positions_bohr, engine: Engine, epsilon=None, guesses=No
     orbitals = epsilon is None and engine.offers_orbitals
     neutral = engine.singlepoint(numbers, positions_bohr, charge=0, uhf=0, epsilon=epsilon,
                                  guess=g[0] if restart else None, orbitals=orbitals)
+    if epsilon is None:  # never compute levels on a broken electronic structure
+        homo, lumo = neutral.frontier_eh()
+        problem = sanity.gap_problem((lumo - homo) * HARTREE_EV, sanity.MIN_GAP_EV)
+        if problem:
+            raise sanity.BrokenStructureError(problem)
     start = (lambda i: g[i] or neutral) if restart else (lambda i: None)
     cation = engine.singlepoint(numbers, positions_bohr, charge=1, uhf=1, epsilon=epsilon, guess=start(1))
     anion = engine.singlepoint(numbers, positions_bohr, charge=-1, uhf=1, epsilon=epsilon, guess=start(2))

@@ -42,7 +42,14 @@ from __future__ import annotations
 import numpy as np
 from rdkit import Chem
 
-__all__ = ["geometry_problems", "gap_problem", "BOND_FACTOR", "CONTACT_FACTOR", "MIN_GAP_EV"]
+from screen.errors import CalculationError
+
+__all__ = ["geometry_problems", "gap_problem", "BrokenStructureError", "BOND_FACTOR", "CONTACT_FACTOR", "MIN_GAP_EV"]
+
+
+class BrokenStructureError(CalculationError):
+    """A structure or electronic structure that must not be used for levels (the message says why)."""
+
 
 #: a graph bond longer than this × (r_cov,A + r_cov,B) is broken
 BOND_FACTOR = 1.30

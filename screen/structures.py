@@ -21,6 +21,12 @@ Route (every step seeded, so the same input gives the same geometry):
 5. optional (``geometry="xtb"``) GFN2-xTB optimisation of that conformer with
    ASE's L-BFGS optimiser and the engine's ASE calculator.
 
+Between steps 3 and 4 every conformer is checked against the input graph
+(:func:`screen.sanity.geometry_problems`: bond lengths against covalent radii,
+fused atoms, ring count); broken ones never reach xTB, and when all are
+broken the molecule is embedded again with another seed. A structure that
+stays broken (or breaks in step 5) fails the row with the reason in words.
+
 References
 ----------
 .. [1] S. Wang, J. Witek, G. A. Landrum, S. Riniker, "Improving conformer
@@ -36,7 +42,7 @@ References
 from __future__ import annotations
 
 import time
-from dataclasses import asdict
+from dataclasses import asdict, replace
 from pathlib import Path
 
 import numpy as np
@@ -49,6 +55,7 @@ from screen.engines import Engine, EngineError, make_engine
 from screen.batch import molecule_caller, run_journalled
 from screen.io import Journal, Progress, atomic_path, write_csv
 from screen.options import StructureOptions
+from screen.sanity import BrokenStructureError, geometry_problems
 
 __all__ = [
     "StructureOptions",
@@ -340,7 +347,7 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
         mol, cuts = truncate_side_chains(mol, options.truncate_min_carbons)
     mol_h = Chem.AddHs(mol)
     numbers = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
-    ids, embedding, ff, ff_energies = _conformers(mol_h, conformer_count(mol, options), options)
+    ids, embedding, ff, ff_energies = _sane_conformers(mol_h, conformer_count(mol, options), options)
     ranked = _prefilter(ids, ff_energies, ranked_count(len(numbers), options), options)
     engine = engine or make_engine("tblite", options.ranking_method)
     best_id, best_e = _rank_by_xtb(mol_h, numbers, ranked, engine)
@@ -361,6 +368,9 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
         opt_converged = bool(ok)
         if not ok:
             raise EngineError(f"xTB geometry optimisation did not converge in {options.xtb_max_steps} steps")
+        problems = geometry_problems(out)
+        if problems:
+            raise BrokenStructureError(f"broken structure after the xTB optimisation: {'; '.join(problems)}")
     info = {
         "smiles_computed": Chem.MolToSmiles(mol),
         "truncated_chains": len(cuts),
@@ -377,6 +387,10 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     return out, info
 
 
+#: embeddings with other seeds tried when every conformer of the first one is broken
+SANITY_RETRIES = 2
+
+
 def _conformers(mol_h: Chem.Mol, n_conf: int, options: StructureOptions):
     """Embedded and force-field optimised conformers: (ids, embedding, force field, energies)."""
     ids, embedding = _embed(mol_h, n_conf, options)
@@ -384,6 +398,35 @@ def _conformers(mol_h: Chem.Mol, n_conf: int, options: StructureOptions):
         raise ValueError(f"RDKit ETKDG could not embed a 3D structure ({n_conf} attempts, random coordinates too)")
     ff, ff_energies = _ff_optimise(mol_h, options)
     return ids, embedding, ff, ff_energies
+
+
+def _sane_conformers(mol_h: Chem.Mol, n_conf: int, options: StructureOptions):
+    """Conformers whose geometry matches the input graph (:func:`screen.sanity.geometry_problems`).
+
+    Broken conformers (a stretched or lost bond, fused atoms, a lost or gained
+    ring) are dropped before any xTB call; when all of them are broken the
+    molecule is embedded again with another seed, up to :data:`SANITY_RETRIES`
+    times. The first embedding that gives a sane conformer is used, so a
+    molecule that never needs a retry keeps its old geometry.
+
+    Raises
+    ------
+    BrokenStructureError
+        Every conformer of every embedding is broken (the message gives the first problem).
+    """
+    problems: list[str] = []
+    for attempt in range(SANITY_RETRIES + 1):
+        opts = options if attempt == 0 else replace(options, seed=options.seed + 7919 * attempt)
+        mol_h.RemoveAllConformers()
+        ids, embedding, ff, energies = _conformers(mol_h, n_conf, opts)
+        checks = {cid: geometry_problems(mol_h, cid) for cid in ids}
+        sane = [i for i, cid in enumerate(ids) if not checks[cid]]
+        if sane:
+            route = embedding if attempt == 0 else f"{embedding}, seed retry {attempt}"
+            return ([ids[i] for i in sane], route, ff, None if energies is None else [energies[i] for i in sane])
+        problems = problems or next(p for p in checks.values() if p)
+    raise BrokenStructureError(f"broken structure in every conformer of {SANITY_RETRIES + 1} embeddings: "
+                               f"{'; '.join(problems)}")
 
 
 def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine: Engine) -> tuple[int, float]:
@@ -428,7 +471,7 @@ def _structure_job(smiles: str, options: dict) -> tuple[str, dict]:
 def _plain(exc: Exception) -> str:
     """Error text without the exception-type prefix an isolated worker adds."""
     text = str(exc)
-    for prefix in ("ValueError: ", "EngineError: ", "ScfError: "):
+    for prefix in ("ValueError: ", "EngineError: ", "ScfError: ", "BrokenStructureError: ", "CalculationError: "):
         if text.startswith(prefix):
             return text[len(prefix):]
     return text
