@@ -141,3 +141,23 @@ def test_big_molecule_gets_one_conformer_without_ranking_single_point():
     engine = _CountingEngine()
     _, info = build_structure("c1ccc(-c2ccc(-c3cccs3)s2)s1", StructureOptions(rank_atom_budget=20), engine)
     assert info["n_ranked"] == 1 and engine.calls == 0 and np.isnan(info["xtb_rank_energy_eh"])
+
+
+@pytest.mark.parametrize("section,key,value", [
+    ("structures", "truncate_side_chains", False), ("structures", "truncate_min_carbons", 8),
+    ("structures", "ff_window_kcal_mol", 3.0), ("structures", "conformer_atom_budget", 600),
+    ("structures", "rank_atom_budget", 720), ("electronic", "film_epsilon", None),
+    ("electronic", "film_epsilon", 4.0),
+])
+def test_every_number_changing_setting_changes_the_protocol_id(section, key, value):
+    from screen.config import Config, protocol
+
+    base, changed = Config.of({}), Config.of({section: {key: value}})
+    assert changed.protocol_id != base.protocol_id
+    assert protocol(changed)[section][key] == value
+
+
+def test_threads_do_not_change_the_protocol_id():
+    from screen.config import Config
+
+    assert Config.of({"electronic": {"threads": 2}}).protocol_id == Config.of({}).protocol_id
