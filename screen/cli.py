@@ -6,16 +6,19 @@ run         the whole pipeline (Snakemake) from a candidate list to levels and r
 rank        ranking and report only, from an existing levels file (seconds)
 calibrate   fit calibration models on the reference sets and print their statistics
 partners    list the built-in partner materials
-config      print the default configuration (every option, with its default)
+status      molecules done / total of a run folder, finished or with an ETA
+config      every configuration field with its description, unit, default and allowed values
+store       list, export or prune the results store shared by runs
+
+Inputs, options and the output folder are checked before the workflow starts
+(:mod:`screen.preflight`): a refused one exits with code 2 and one message.
 """
 
 from __future__ import annotations
 
 import argparse
 import os
-import subprocess
 import sys
-import threading
 from pathlib import Path
 
 import yaml
@@ -23,27 +26,18 @@ import yaml
 from screen import __version__
 from screen.config import Config, merge
 from screen.errors import CalculationError, ConfigError, DascreenError, InputError, exit_code
+from screen.launch import WORKFLOW, run_workflow
 
-__all__ = ["main", "build_parser"]
-
-WORKFLOW = Path(__file__).parent / "workflow" / "Snakefile"
+__all__ = ["main", "build_parser", "WORKFLOW"]
 
 EXIT_OK, EXIT_ERROR, EXIT_STRICT = 0, 1, 3
 
 
 def _parse_set(items: list[str]) -> dict:
-    """``section.key=value`` pairs (values parsed as YAML) into a nested dict."""
-    out: dict = {}
-    for item in items or []:
-        if "=" not in item:
-            raise ConfigError(f"--set {item!r}: expected section.key=value, e.g. --set device.eqe=0.7")
-        path, raw = item.split("=", 1)
-        node = out
-        parts = path.strip().split(".")
-        for part in parts[:-1]:
-            node = node.setdefault(part, {})
-        node[parts[-1]] = yaml.safe_load(raw)
-    return out
+    """``section.key=value`` pairs (values parsed as YAML), each checked against the schema."""
+    from screen.preflight import check_sets
+
+    return check_sets(items)
 
 
 def _drop_none(extra: dict) -> dict:
@@ -85,17 +79,26 @@ def _print_summary(levels_csv: Path) -> dict:
 
 
 def cmd_run(args) -> int:
-    """Run the workflow through Snakemake in a subprocess."""
+    """Check the inputs, then run the workflow through Snakemake in a subprocess."""
+    from screen.partners import split_partners
+    from screen.preflight import check_candidates, check_out, check_partners
+
     candidates = Path(args.candidates)
-    if not candidates.is_file():
-        raise ConfigError(f"candidates file {str(candidates)!r} does not exist")
+    check_candidates(candidates)
+    partners = split_partners([args.partner] if args.partner else [])
+    if len(partners) > 1:
+        raise ConfigError(f"--partner {args.partner!r}: `dascreen run` ranks against one partner; run with one and "
+                          "then `dascreen rank --partner a,b,...` for the partner matrix")
+    check_partners(partners)
     out = Path(args.out).resolve()
+    check_out(out, candidates, overwrite=args.overwrite)
     cfg = _load(args, {"candidates": str(candidates.resolve()), "out": str(out),
-                       "partner": _partner_arg(args.partner), "strict": True if args.strict else None})
-    rc = _snakemake(cfg, out, args.cores, [], args.snakemake_args, args.dry_run, args.profile)
+                       "partner": _partner_arg(partners[0] if partners else None),
+                       "strict": True if args.strict else None})
+    rc = run_workflow(cfg, out, args.cores, extra=args.snakemake_args, dry_run=args.dry_run, profile=args.profile,
+                      verbose=args.verbose)
     if rc != 0:
-        print(f"dascreen: the workflow stopped with exit code {rc}; see the log above and {out}/logs/",
-              file=sys.stderr)
+        print(f"dascreen: the workflow stopped with exit code {rc}; job logs in {out}/logs/", file=sys.stderr)
         return EXIT_ERROR
     if args.dry_run:
         return EXIT_OK
@@ -116,55 +119,6 @@ def data_path(path: str | Path) -> Path:
     return Path(__file__).resolve().parent.parent / path
 
 
-def _snakemake(cfg: Config, out: Path, cores: int, targets: list[str], extra: list[str] | None = None,
-               dry_run: bool = False, profile: str | None = None, cfg_file: Path | None = None) -> int:
-    """Write the resolved config (default ``out/config.yaml``) and run the packaged workflow on it."""
-    import fcntl
-
-    out.mkdir(parents=True, exist_ok=True)
-    # our own lock: flock is released by the kernel even when a run is killed with SIGKILL, so holding
-    # it proves that any Snakemake lock left in the folder is stale
-    lock = open(out / ".dascreen.lock", "w")  # noqa: SIM115 - held for the whole run
-    try:
-        fcntl.flock(lock, fcntl.LOCK_EX | fcntl.LOCK_NB)
-    except BlockingIOError:
-        raise ConfigError(f"another dascreen run is using {out}; wait for it or choose another --out") from None
-    cfg_file = cfg_file or out / "config.yaml"
-    cfg_file.parent.mkdir(parents=True, exist_ok=True)
-    cfg_file.write_text(yaml.safe_dump(cfg.to_dict(), sort_keys=False), encoding="utf-8")
-    cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(WORKFLOW), "--directory", str(out),
-           "--configfile", str(cfg_file), "--cores", str(cores), "--rerun-incomplete", "--show-failed-logs"]
-    locks = out / ".snakemake" / "locks"
-    if locks.is_dir() and any(locks.iterdir()):
-        subprocess.call(cmd + ["--unlock"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-        print("dascreen: removed the lock left by an interrupted run; resuming", flush=True)
-    if dry_run:
-        cmd.append("--dry-run")
-    if profile:
-        cmd += ["--workflow-profile", str(Path(profile).resolve())]
-    cmd += list(extra or []) + list(targets)
-    print("dascreen: snakemake --cores", cores, "in", out, flush=True)
-    stop = threading.Event()
-    reporter = threading.Thread(target=_report_progress, args=(out, stop), daemon=True)
-    reporter.start()
-    try:
-        return subprocess.call(cmd)
-    finally:
-        stop.set()
-
-
-def _report_progress(out: Path, stop: threading.Event, every_s: float = 60.0) -> None:
-    """Every minute of a long run: molecules done / total and the ETA."""
-    from screen.io import batch_progress
-
-    while not stop.wait(every_s):
-        if (out / "work" / "candidates" / "prepared").is_dir():
-            try:
-                print(_progress_line(batch_progress(out)), flush=True)
-            except OSError:  # a file moved while being counted: try again next time
-                pass
-
-
 def cmd_calibrate(args) -> int:
     """Compute the reference molecules with the run's protocol and fit the models."""
     import shutil
@@ -180,7 +134,7 @@ def cmd_calibrate(args) -> int:
     cfg = _load(args, overrides)
     pid = cfg.protocol_id
     target = out / "models" / pid
-    rc = _snakemake(cfg, out, args.cores, [str(target)])
+    rc = run_workflow(cfg, out, args.cores, [str(target)], verbose=args.verbose, log_name="calibrate-workflow")
     if rc != 0:
         print(f"dascreen: calibration stopped with exit code {rc}; see {out}/logs/", file=sys.stderr)
         return EXIT_ERROR
@@ -222,7 +176,7 @@ def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
     table = pd.read_csv(ranking_csv, dtype={"id": str}, keep_default_na=False, na_values=[""])
     show = table.head(top).copy()
     show["id"] = [str(i).replace("\n", "\\n").replace("\r", "\\r")[:28] for i in show["id"]]
-    show["flags"] = show["flags"].fillna("").astype(str).str.slice(0, 40)
+    show["flags"] = show["flags"].astype(object).fillna("").astype(str).str.slice(0, 40)
     cols = ["rank", "id", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "delta_lumo_ev", "delta_homo_ev", "voc_v",
             "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "passes", "flags"]
     passing = int(table["passes"].astype(str).str.lower().eq("true").sum()) if len(table) else 0
@@ -246,22 +200,25 @@ def _print_ranking_of_run(cfg: Config, out: Path) -> None:
         _print_ranking(path)
 
 
-def _compute_partner(cfg: Config, out: Path) -> Path | None:
+def _compute_partner(cfg: Config, out: Path, spec: str, verbose: bool = False) -> Path | None:
     """Run the workflow for a ``smiles:`` partner's batch only (cached); return its levels file."""
     from screen.calibrate import find_models
-    from screen.partners import PartnerError, partner_kind, partner_levels_path
+    from screen.partners import partner_kind, partner_levels_path
 
-    spec = cfg["partner"]
     if partner_kind(spec) != "smiles":
         return None
+    cfg = cfg.with_overrides({"partner": spec})
     target = partner_levels_path(spec, out)
     pid = cfg.protocol_id
     if cfg["calibration"]["refit"] != "always" and find_models(cfg) is None and not (out / "models" / pid).is_dir():
+        from screen.partners import PartnerError
+
         raise PartnerError(
             f"partner {spec!r} is computed like the candidates and needs the calibration models of protocol "
             f"{pid}; none found in {cfg['calibration']['models']}/{pid}. Run `dascreen calibrate --install "
             "models` (or the pipeline) first, or pass the models folder with --models")
-    rc = _snakemake(cfg, out, 1, [str(target)], cfg_file=target.parent / "config.yaml")
+    rc = run_workflow(cfg, out, 1, [str(target)], cfg_file=target.parent / "config.yaml", verbose=verbose,
+                      log_name=f"{target.parent.name}/workflow", label=f"dascreen partner {spec}")
     if rc != 0:
         raise CalculationError(f"the workflow computing partner {spec!r} stopped with exit code {rc}; see "
                                f"{out}/logs/{target.parent.name}/")
@@ -279,7 +236,10 @@ def _models_override(models: str | None) -> dict:
 
 
 def cmd_rank(args) -> int:
-    """Rank a levels file against a partner; a new smiles: partner is computed by the workflow first."""
+    """Rank a levels file against one or more partners (a partner matrix for several); a new smiles:
+    partner is computed by the workflow first."""
+    from screen.partners import split_partners
+    from screen.preflight import check_partners
     from screen.rank_io import run_rank
 
     out = Path(args.out).resolve()
@@ -290,17 +250,32 @@ def cmd_rank(args) -> int:
     if args.config is None and (out / "config.yaml").is_file():
         args.config = str(out / "config.yaml")  # the run's own settings, so smiles: partners share its protocol
         print(f"dascreen: using the run's configuration {args.config}")
-    cfg = _load(args, {"partner": args.partner, **_models_override(args.models),
+    partners = split_partners(args.partner or [])
+    check_partners(partners, levels)
+    cfg = _load(args, {**_models_override(args.models),
                        "rank": {"role": args.role, "sort_by": args.sort_by, "target_pce_pct": args.target_pce}})
     if args.models and Path(args.models).resolve().name != cfg.protocol_id:
         raise ConfigError(f"--models {args.models!r} is not a folder of this run's protocol {cfg.protocol_id}")
-    partner_levels = _compute_partner(cfg, out)
+    partners = partners or [cfg["partner"]]
+    paths = []
     try:
-        path = run_rank(levels, cfg["partner"], out, cfg, partner_levels=partner_levels)
+        for spec in partners:
+            computed = _compute_partner(cfg, out, spec, args.verbose)
+            paths.append(run_rank(levels, spec, out, cfg.with_overrides({"partner": spec}),
+                                  partner_levels=computed))
     except RuntimeError as exc:  # the report failed after the ranking was written
+        if isinstance(exc, DascreenError):
+            raise
         print(f"dascreen: error: {exc}", file=sys.stderr)
         return EXIT_ERROR
-    _print_ranking(path, args.top)
+    for path in paths:
+        _print_ranking(path, args.top)
+    if len(paths) > 1:
+        from screen.matrix import run_matrix
+
+        folder = run_matrix(paths, out, cfg)
+        print(f"dascreen: partner matrix ({len(paths)} partners) -> {folder / 'matrix.csv'} and "
+              f"{folder / 'overview.html'}")
     return EXIT_OK
 
 
@@ -319,26 +294,73 @@ def cmd_partners(args) -> int:
 
 
 def cmd_status(args) -> int:
-    """Print how far a (running) batch has got."""
-    from screen.io import batch_progress
+    """Print how far a run has got: running with an ETA, stopped, or finished."""
+    from screen.io import run_progress
+    from screen.preflight import run_active
 
     out = Path(args.out)
-    if not (out / "work" / "candidates" / "prepared").is_dir():
+    p = run_progress(out)
+    if not p["prepared"]:
         raise ConfigError(f"{out} holds no prepared batch (is it the --out folder of a dascreen run?)")
-    print(_progress_line(batch_progress(out)))
+    pct = 100.0 * p["done"] / p["total"] if p["total"] else 100.0
+    counts = f"{p['done']}/{p['total']} molecules computed ({pct:.0f}%)"
+    levels = out / "levels.csv"
+    if run_active(out):
+        elapsed = _now() - p["started"]
+        eta = elapsed / p["done"] * (p["total"] - p["done"]) if p["done"] else float("nan")
+        print(f"dascreen: running: {counts}, structures {p['structures']}/{p['total']}, {_minutes(elapsed)} "
+              f"elapsed, ETA {'unknown' if eta != eta else _minutes(eta)}")
+    elif levels.is_file() and p["done"] >= p["total"] and levels.stat().st_mtime >= p["started"]:
+        took = _minutes(levels.stat().st_mtime - p["started"])
+        print(f"dascreen: finished: {counts} in {took}; results in {levels}")
+    else:
+        print(f"dascreen: not running: {counts}; `dascreen run` with the same --out resumes it")
     return EXIT_OK
 
 
-def _progress_line(p: dict) -> str:
-    pct = 100.0 * p["done"] / p["total"] if p["total"] else 100.0
-    eta = "unknown" if p["eta_s"] != p["eta_s"] else f"{p['eta_s'] / 60:.1f} min"
-    return (f"dascreen: {p['done']}/{p['total']} molecules computed ({pct:.0f}%), "
-            f"{p['elapsed_s'] / 60:.1f} min elapsed, ETA {eta}")
+def _now() -> float:
+    import time
+
+    return time.time()
+
+
+def _minutes(seconds: float) -> str:
+    return "an unknown time" if seconds != seconds else f"{seconds / 60:.1f} min"
 
 
 def cmd_config(args) -> int:
-    """Print the default configuration."""
-    print(yaml.safe_dump(Config.load(None).to_dict(), sort_keys=False), end="")
+    """Print every configuration field with its description, unit, default and allowed values."""
+    if args.yaml:
+        print(yaml.safe_dump(Config.load(None).to_dict(), sort_keys=False), end="")
+        return EXIT_OK
+    from screen.preflight import config_text
+
+    print(config_text(), end="")
+    return EXIT_OK
+
+
+def cmd_store(args) -> int:
+    """List, export or prune the results store."""
+    from screen.store import ResultStore, export_store, store_location, store_text
+
+    path = Path(args.store).expanduser() if args.store else store_location(_load(args, {}))
+    if path is None:
+        raise ConfigError("no results store: store.path is null (or DASCREEN_STORE is empty); pass --store FILE")
+    if not path.is_file():
+        raise InputError(f"results store {path} does not exist (a run creates it)")
+    store = ResultStore(path)
+    if args.action == "list":
+        print(store_text(store, keys=args.keys), end="")
+    elif args.action == "export":
+        n = export_store(store, args.to, protocol=args.protocol)
+        print(f"dascreen: {n} records of {path} -> {args.to}")
+    else:
+        days = args.older_than
+        gone = store.prune(protocols=args.protocol or (), dry_run=args.dry_run,
+                           older_than_s=None if days is None else days * 86400.0)
+        verb = "would delete" if args.dry_run else "deleted"
+        print(f"dascreen: {verb} {sum(gone.values())} rows of {path} ({gone['protocol']} of the given protocols, "
+              f"{gone['old']} older than {days} days, {gone['corrupt']} that do not check out)")
     return EXIT_OK
 
 
@@ -361,6 +383,12 @@ def _add_run(sub) -> None:
     p.add_argument("--dry-run", action="store_true", help="show the jobs Snakemake would run, run nothing")
     p.add_argument("--profile", default=None,
                    help="Snakemake workflow profile folder (e.g. profiles/slurm for a cluster)")
+    p.add_argument("--verbose", action="store_true",
+                   help="show the workflow engine's log as it runs (default: a progress display; the log goes to "
+                        "OUT/logs/workflow.log)")
+    p.add_argument("--overwrite", action="store_true",
+                   help="accept an --out folder that holds the run of another candidate file (its results are "
+                        "replaced)")
     p.set_defaults(func=cmd_run)
     p.epilog = "Arguments after a bare `--` are passed to Snakemake unchanged (e.g. -- --keep-going)."
 
@@ -382,6 +410,7 @@ def _add_calibrate(sub) -> None:
     p.add_argument("--install", default=None, metavar="MODELS_DIR",
                    help="also copy the fitted models to MODELS_DIR/<protocol-id>/ (e.g. models) so later runs "
                         "use them without refitting")
+    p.add_argument("--verbose", action="store_true", help="show the workflow engine's log as it runs")
     p.set_defaults(func=cmd_calibrate)
 
 
@@ -390,12 +419,14 @@ def _add_rank(sub) -> None:
     p = sub.add_parser("rank", help="ranking and report only, from an existing levels file (seconds)",
                        description="Pair every candidate of a levels file with a partner material, estimate "
                                    "Voc/Jsc/PCE with the Scharber model, apply the filters and write "
-                                   "OUT/rankings/<partner>/ (ranking.csv, shortlist.sdf, ranking.meta.json, report). "
+                                   "OUT/rankings/<partner>--<settings hash>/ (ranking.csv, shortlist.sdf, ranking.meta.json, "
+                                   "report); with several partners also OUT/rankings/matrix--<hash>/. "
                                    "Runs no quantum chemistry, except that a new smiles: partner is computed once "
                                    "through the workflow, with the run's protocol and calibration.")
-    p.add_argument("--partner", default=None,
+    p.add_argument("--partner", action="append", default=None, metavar="P",
                    help="library name (see `dascreen partners`), a one-row levels CSV, smiles:<SMILES> or "
-                        "id:<ID> of a levels row (default from config: scharber-reference-acceptor)")
+                        "id:<ID> of a levels row (default from config: y6). Repeat it or give a comma list for "
+                        "several partners: one ranking each plus a candidates x partners matrix and overview")
     p.add_argument("--levels", default=None,
                    help="levels file to rank (default OUT/levels.csv); any CSV with id,homo_ev,lumo_ev,gap_opt_ev,"
                         "scale works, e.g. your own cyclic-voltammetry levels")
@@ -413,6 +444,7 @@ def _add_rank(sub) -> None:
     p.add_argument("--models", default=None, metavar="DIR",
                    help="models/<protocol-id> folder to calibrate a smiles: partner with (default: the run's)")
     p.add_argument("--top", type=int, default=10, help="rows to print (default 10)")
+    p.add_argument("--verbose", action="store_true", help="show the workflow engine's log of a smiles: partner")
     p.set_defaults(func=cmd_rank)
 
 
@@ -430,9 +462,33 @@ def _add_small(sub) -> None:
     p.add_argument("--out", default="results", help="the run's output folder")
     p.set_defaults(func=cmd_status)
 
-    p = sub.add_parser("config", help="print the default configuration with every field",
-                       description="Print the complete default configuration as YAML.")
+    p = sub.add_parser("config", help="every configuration field: description, unit, default, allowed values",
+                       description="Print every configuration field with its description, unit, default and "
+                                   "allowed values (--yaml: a complete config file with the defaults).")
+    p.add_argument("--yaml", action="store_true", help="print the default configuration as YAML")
     p.set_defaults(func=cmd_config)
+
+
+def _add_store(sub) -> None:
+    """The ``store`` sub-command."""
+    p = sub.add_parser("store", help="list, export or prune the results store shared by runs",
+                       description="The results store keeps every computed geometry and raw xTB result, so no "
+                                   "molecule is computed twice with one protocol (config store.path, default "
+                                   "~/.cache/dascreen/store.sqlite; DASCREEN_STORE overrides it).")
+    p.add_argument("action", choices=["list", "export", "prune"],
+                   help="list: rows per stage and protocol; export: geometries (.sdf) or all results (.csv); "
+                        "prune: delete rows of some protocols, old rows and rows that do not check out")
+    p.add_argument("--store", default=None, metavar="FILE", help="the store file (default: from the config)")
+    p.add_argument("--config", default=None, help="YAML config file (for store.path)")
+    p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE", help="e.g. --set store.path=F")
+    p.add_argument("--keys", action="store_true", help="list: every row, not only the counts")
+    p.add_argument("--to", default="store-export.sdf", metavar="FILE",
+                   help="export: target file, .sdf (geometries with raw levels) or .csv (default store-export.sdf)")
+    p.add_argument("--protocol", action="append", default=None, metavar="ID",
+                   help="export: only this stage protocol; prune: delete its rows (repeatable)")
+    p.add_argument("--older-than", type=float, default=None, metavar="DAYS", help="prune: rows older than DAYS")
+    p.add_argument("--dry-run", action="store_true", help="prune: count, delete nothing")
+    p.set_defaults(func=cmd_store)
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -445,7 +501,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"dascreen {__version__}")
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
-    for add in (_add_run, _add_calibrate, _add_rank, _add_small):
+    for add in (_add_run, _add_calibrate, _add_rank, _add_small, _add_store):
         add(sub)
     return parser
 

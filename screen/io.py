@@ -221,10 +221,14 @@ def _json_default(obj):
 
 
 class Progress:
-    """Progress lines for a long per-molecule loop: count, rate and ETA.
+    """Progress of a long per-molecule loop: count, rate and ETA, as a bar or as plain lines.
 
-    Lines go to ``stream`` (the job's log under Snakemake) at most every
-    ``every_s`` seconds, and always for the last item.
+    On a terminal (``bar=True``, the default when ``stream`` is a TTY) one line
+    is redrawn in place with a bar; otherwise a plain line is printed at most
+    every ``every_s`` seconds and always for the last item (a job's log under
+    Snakemake, a redirected ``dascreen``).  The rate counts only the items done
+    since the first report (or :meth:`rebase`), so work finished earlier (a
+    resumed run, molecules from the results store) does not inflate it.
 
     Examples
     --------
@@ -234,26 +238,88 @@ class Progress:
     >>> p.report(1, 2, "m1"); p.report(2, 2, "m2")
     >>> buf.getvalue().splitlines()[-1].startswith("electronic shard-000: 2/2 molecules (100%)")
     True
+    >>> bar = Progress("run", stream=io.StringIO(), bar=True)
+    >>> bar.line(5, 20).startswith("run [#####") and "5/20 molecules" in bar.line(5, 20)
+    True
     """
 
-    def __init__(self, label: str, stream=None, every_s: float = 10.0):
+    def __init__(self, label: str, stream=None, every_s: float = 10.0, bar: bool | None = None,
+                 width: int = 24):
         self.label = label
         self.stream = stream or sys.stdout
         self.every_s = every_s
+        self.bar = _isatty(self.stream) if bar is None else bar
+        self.width = width
         self.start = time.monotonic()
+        self.base = 0
         self._last = -float("inf")
+        self._drawn = False
 
-    def report(self, done: int, total: int, key: str = "") -> None:
+    def rebase(self, done: int) -> None:
+        """Count the rate from now and from ``done`` items on (items done before are not this run's work)."""
+        self.start, self.base = time.monotonic(), done
+
+    def _rate_eta(self, done: int, total: int) -> tuple[float, float]:
+        elapsed = time.monotonic() - self.start
+        new = done - self.base
+        per_item = elapsed / new if new > 0 else float("nan")
+        return per_item, per_item * (total - done)
+
+    def line(self, done: int, total: int, key: str = "", note: str = "") -> str:
+        """The progress text of ``done`` of ``total``."""
+        per_item, eta = self._rate_eta(done, total)
+        pct = 100.0 * done / total if total else 100.0
+        rate = "rate unknown" if per_item != per_item else f"{per_item:.2f} s/molecule"
+        eta_text = "ETA unknown" if eta != eta else f"ETA {_duration(eta)}"
+        if self.bar:
+            filled = int(round(self.width * done / total)) if total else self.width
+            return (f"{self.label} [{'#' * filled}{'.' * (self.width - filled)}] {done}/{total} molecules "
+                    f"({pct:.0f}%), {rate}, {eta_text}{'  ' + note if note else ''}")
+        return (f"{self.label}: {done}/{total} molecules ({pct:.0f}%), {rate}, {eta_text}"
+                f"{' (last ' + key + ')' if key else ''}{'; ' + note if note else ''}")
+
+    def report(self, done: int, total: int, key: str = "", note: str = "") -> None:
+        """Show ``done / total`` (a bar redraw, or a line when ``every_s`` has passed or all is done)."""
         now = time.monotonic()
+        if self.bar:
+            self.stream.write("\r\033[K" + self.line(done, total, key, note))
+            self.stream.flush()
+            self._drawn = True
+            return
         if done < total and now - self._last < self.every_s:
             return
         self._last = now
-        elapsed = now - self.start
-        rate = elapsed / done if done else float("nan")
-        eta = rate * (total - done)
-        pct = 100.0 * done / total if total else 100.0
-        print(f"{self.label}: {done}/{total} molecules ({pct:.0f}%), {rate:.2f} s/molecule, "
-              f"ETA {eta:.0f} s{' (last ' + key + ')' if key else ''}", file=self.stream, flush=True)
+        print(self.line(done, total, key, note), file=self.stream, flush=True)
+
+    def message(self, text: str) -> None:
+        """A status text in place of the counts (e.g. while preparing)."""
+        if self.bar:
+            self.stream.write("\r\033[K" + f"{self.label}: {text}")
+            self.stream.flush()
+            self._drawn = True
+
+    def close(self) -> None:
+        """End the bar's line (nothing for plain lines)."""
+        if self.bar and self._drawn:
+            self.stream.write("\n")
+            self.stream.flush()
+            self._drawn = False
+
+
+def _isatty(stream) -> bool:
+    try:
+        return bool(stream.isatty())
+    except (AttributeError, ValueError):
+        return False
+
+
+def _duration(seconds: float) -> str:
+    """``42 s``, ``3.5 min`` or ``2.1 h``."""
+    if seconds < 90:
+        return f"{seconds:.0f} s"
+    if seconds < 5400:
+        return f"{seconds / 60:.1f} min"
+    return f"{seconds / 3600:.1f} h"
 
 
 def batch_progress(out_dir: str | os.PathLike, batch: str = "candidates", stage: str = "electronic") -> dict:
@@ -293,3 +359,37 @@ def batch_progress(out_dir: str | os.PathLike, batch: str = "candidates", stage:
     elapsed = time.time() - first if first else 0.0
     eta = elapsed / done * (total - done) if done else math.nan
     return {"total": total, "done": done, "elapsed_s": elapsed, "eta_s": eta}
+
+
+def run_progress(out_dir: str | os.PathLike) -> dict:
+    """Progress of every batch of a run folder (candidates, reference, partners), counted per stage.
+
+    Returns
+    -------
+    dict
+        ``total`` unique structures of all prepared batches, ``structures`` and
+        ``electronic`` (molecules finished by each stage), ``done`` (=
+        ``electronic``), ``steps`` (structures + electronic, out of ``2 × total``),
+        ``prepared`` (whether any batch is prepared), ``started`` (Unix time of
+        the first prepared shard, NaN without one).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> run_progress(tempfile.mkdtemp())["prepared"]
+    False
+    """
+    work = Path(out_dir) / "work"
+    batches = sorted(p.parent.name for p in work.glob("*/prepared")) if work.is_dir() else []
+    out = {"total": 0, "structures": 0, "electronic": 0, "prepared": bool(batches), "started": float("nan")}
+    for batch in batches:
+        for stage in ("structures", "electronic"):
+            p = batch_progress(out_dir, batch, stage)
+            out[stage] += p["done"]
+        out["total"] += p["total"]
+        shards = list((work / batch / "prepared").glob("shard-*.csv"))
+        if shards:
+            first = min(s.stat().st_mtime for s in shards)
+            out["started"] = first if out["started"] != out["started"] else min(out["started"], first)
+    out["done"], out["steps"] = out["electronic"], out["structures"] + out["electronic"]
+    return out

@@ -97,7 +97,7 @@ def _library_lookup(spec: str, path: Path | None = None) -> str | None:
     return None
 
 
-def suggest(word: str, choices, n: int = 3) -> list[str]:
+def suggest(word: str, choices, n: int = 3, cutoff: float = 0.5) -> list[str]:
     """Close matches of ``word`` among ``choices`` (case-insensitive; :func:`difflib.get_close_matches`).
 
     Examples
@@ -112,7 +112,7 @@ def suggest(word: str, choices, n: int = 3) -> list[str]:
     by_low: dict[str, str] = {}
     for choice in choices:
         by_low.setdefault(str(choice).lower(), str(choice))
-    hits = difflib.get_close_matches(str(word).strip().lower(), list(by_low), n=n, cutoff=0.5)
+    hits = difflib.get_close_matches(str(word).strip().lower(), list(by_low), n=n, cutoff=cutoff)
     return [by_low[h] for h in hits]
 
 

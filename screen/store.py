@@ -53,7 +53,7 @@ from pathlib import Path
 from screen.errors import InputError
 
 __all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "stage_protocol", "stage_protocol_id",
-           "geometry_hash", "store_location", "open_store", "resolve_store"]
+           "geometry_hash", "store_location", "open_store", "resolve_store", "store_text", "export_store"]
 
 #: environment variable naming the store file (overrides ``store.path``; empty disables the store)
 STORE_ENV = "DASCREEN_STORE"
@@ -389,12 +389,13 @@ def store_location(config=None) -> Path | None:
     Examples
     --------
     >>> import os
+    >>> saved = os.environ.pop(STORE_ENV, None)
+    >>> store_location({"store": {"path": "/tmp/x.sqlite"}}).as_posix()
+    '/tmp/x.sqlite'
     >>> os.environ[STORE_ENV] = ""
     >>> store_location({"store": {"path": "/tmp/x.sqlite"}}) is None
     True
-    >>> del os.environ[STORE_ENV]
-    >>> store_location({"store": {"path": "/tmp/x.sqlite"}}).as_posix()
-    '/tmp/x.sqlite'
+    >>> _ = os.environ.pop(STORE_ENV) if saved is None else os.environ.update({STORE_ENV: saved})
     """
     if STORE_ENV in os.environ:
         text = os.environ[STORE_ENV].strip()
@@ -431,3 +432,90 @@ def resolve_store(store) -> ResultStore | None:
         text = os.environ.get(STORE_ENV, "").strip()
         return ResultStore(text) if text else None
     return ResultStore(store)
+
+
+# --------------------------------------------------------------------------- dascreen store list | export
+
+def store_text(store: ResultStore, keys: bool = False) -> str:
+    """``dascreen store list``: rows per stage and protocol (and every row with ``keys``)."""
+    import datetime
+
+    def when(t):
+        return datetime.datetime.fromtimestamp(t).strftime("%Y-%m-%d %H:%M") if t else "-"
+
+    size = store.path.stat().st_size / 1e6 if store.path.is_file() else 0.0
+    lines = [f"results store {store.path} ({size:.1f} MB)"]
+    summary = store.summary()
+    if not summary:
+        return lines[0] + "\n  (empty)\n"
+    lines.append(f"  {'stage':11s} {'protocol id':28s} {'rows':>7s}  {'first':16s}  {'last':16s}")
+    for row in summary:
+        lines.append(f"  {row['stage']:11s} {row['protocol_id']:28s} {row['entries']:7d}  {when(row['first']):16s}  "
+                     f"{when(row['last']):16s}")
+    if keys:
+        lines.append("")
+        for row in store.rows():
+            state = "ok" if row["ok"] else "does not check out (ignored)"
+            lines.append(f"  {row['stage']:11s} {row['key']} {row['protocol_id']} {row['geometry'] or '-'} {state}")
+    return "\n".join(lines) + "\n"
+
+
+def export_store(store: ResultStore, target, protocol=None) -> int:
+    """Write the store's rows to ``target``: ``.sdf`` (geometries with their route and the raw
+    electronic results computed on them) or ``.csv`` (every checked row, one line each).
+
+    Parameters
+    ----------
+    store : ResultStore
+    target : path-like
+    protocol : list of str, optional
+        Only rows of these stage protocol ids.
+
+    Returns
+    -------
+    int
+        Records written.
+    """
+    from screen.io import atomic_path
+
+    target = Path(target)
+    wanted = set(protocol or ())
+    rows = [r for r in store.rows() if r["ok"] and (not wanted or r["protocol_id"] in wanted)]
+    if target.suffix.lower() == ".csv":
+        import pandas as pd
+
+        from screen.io import write_csv
+
+        flat = [{"stage": r["stage"], "key": r["key"], "protocol_id": r["protocol_id"], "geometry": r["geometry"],
+                 "created": r["created"], **{k: v for k, v in r["record"].items() if k != "molblock"}} for r in rows]
+        write_csv(pd.DataFrame(flat), target)
+        return len(flat)
+    from rdkit import Chem
+
+    electronic = {}
+    for r in store.rows(stage="electronic"):
+        if r["ok"]:
+            electronic.setdefault(r["geometry"], []).append(r)
+    written = 0
+    with atomic_path(target) as tmp:
+        writer = Chem.SDWriter(str(tmp))
+        for r in rows:
+            if r["stage"] != "structures":
+                continue
+            mol = Chem.MolFromMolBlock(r["record"].get("molblock", ""), removeHs=False)
+            if mol is None:
+                continue
+            mol.SetProp("_Name", r["key"])
+            mol.SetProp("structures_protocol_id", r["protocol_id"])
+            for k, v in r["record"].items():
+                if k not in ("molblock", "key") and not isinstance(v, (dict, list)):
+                    mol.SetProp(k, str(v))
+            pos = mol.GetConformer().GetPositions()
+            for e in electronic.get(geometry_hash([a.GetAtomicNum() for a in mol.GetAtoms()], pos), []):
+                for k in ("xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev"):
+                    if k in e["record"]:
+                        mol.SetProp(f"{e['protocol_id']}:{k}", str(e["record"][k]))
+            writer.write(mol)
+            written += 1
+        writer.close()
+    return written

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import functools
+import os
 from pathlib import Path
 
 import pytest
@@ -46,3 +47,16 @@ def data_dir() -> Path:
 @pytest.fixture(scope="session")
 def repo_dir() -> Path:
     return REPO
+
+
+@pytest.fixture(scope="session", autouse=True)
+def _no_results_store():
+    """Runs started by the tests use no results store unless a test names one (DASCREEN_STORE): tests stay
+    independent of each other and never touch a user's store."""
+    before = os.environ.get("DASCREEN_STORE")
+    os.environ["DASCREEN_STORE"] = ""
+    yield
+    if before is None:
+        os.environ.pop("DASCREEN_STORE", None)
+    else:
+        os.environ["DASCREEN_STORE"] = before

@@ -1,0 +1,184 @@
+"""Starting the packaged workflow from the ``dascreen`` command: quiet, with one progress display.
+
+:func:`run_workflow` writes the run's resolved configuration, takes the run
+folder's lock, tells the jobs where the results store is (environment variable
+:data:`screen.store.STORE_ENV`) and runs Snakemake in a subprocess.  By
+default the workflow engine's own log goes to ``OUT/logs/<name>.log`` and the
+terminal shows one progress bar (molecules done / total, rate, ETA), or plain
+lines every minute when standard error is not a terminal; ``verbose`` shows
+Snakemake's log as it runs.  When the workflow fails, its error part is
+printed in full, with the path of the whole log.
+"""
+
+from __future__ import annotations
+
+import re
+import subprocess
+import sys
+import threading
+from pathlib import Path
+
+import yaml
+
+from screen.config import Config
+from screen.errors import ConfigError
+
+__all__ = ["WORKFLOW", "run_workflow", "error_excerpt"]
+
+WORKFLOW = Path(__file__).parent / "workflow" / "Snakefile"
+
+_ERROR_START = re.compile(r"^(Error in rule|Error:|WorkflowError|RuleException|MissingInputException|"
+                          r"Traceback|.*Exception( in rule|:))")
+
+
+def error_excerpt(log_text: str, tail: int = 80) -> str:
+    """The part of a Snakemake log that explains a failure: from the first error line to the end.
+
+    Examples
+    --------
+    >>> error_excerpt("Building DAG\\nrule x\\nError in rule x:\\n  boom\\n")
+    'Error in rule x:\\n  boom'
+    >>> error_excerpt("a\\nb\\n", tail=1)
+    'b'
+    """
+    lines = log_text.rstrip("\n").splitlines()
+    for i, line in enumerate(lines):
+        if _ERROR_START.match(line):
+            return "\n".join(lines[i:])
+    return "\n".join(lines[-tail:])
+
+
+def _lock(out: Path):
+    """Take the run folder's lock (flock: released by the kernel even when a run is killed)."""
+    import fcntl
+
+    lock = open(out / ".dascreen.lock", "w")  # noqa: SIM115 - held for the whole run
+    try:
+        fcntl.flock(lock, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except BlockingIOError:
+        lock.close()
+        raise ConfigError(f"another dascreen run is using {out}; wait for it or choose another --out") from None
+    return lock
+
+
+def _command(out: Path, cfg_file: Path, cores: int, targets, extra, dry_run: bool, profile) -> list[str]:
+    cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(WORKFLOW), "--directory", str(out),
+           "--configfile", str(cfg_file), "--cores", str(cores), "--rerun-incomplete", "--show-failed-logs"]
+    if dry_run:
+        cmd.append("--dry-run")
+    if profile:
+        cmd += ["--workflow-profile", str(Path(profile).resolve())]
+    return cmd + list(extra or []) + list(targets)
+
+
+def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, dry_run: bool = False,
+                 profile: str | None = None, cfg_file: Path | None = None, verbose: bool = False,
+                 log_name: str = "workflow", label: str = "dascreen") -> int:
+    """Run the packaged workflow on ``cfg`` in ``out``; return Snakemake's exit code.
+
+    Parameters
+    ----------
+    cfg : Config
+        The run's configuration (written to ``cfg_file``, default ``out/config.yaml``).
+    out : pathlib.Path
+        Run folder (Snakemake's working directory).
+    cores : int
+        ``--cores`` of Snakemake.
+    targets : sequence of str
+        Files to make (default: the workflow's default target).
+    extra : list of str, optional
+        Arguments passed to Snakemake unchanged.
+    dry_run : bool
+        Show the jobs only (always verbose).
+    profile : str, optional
+        Snakemake workflow profile folder.
+    cfg_file : pathlib.Path, optional
+        Where to write the configuration.
+    verbose : bool
+        Show Snakemake's log instead of the progress display.
+    log_name : str
+        The log goes to ``out/logs/<log_name>.log`` when not verbose.
+    label : str
+        Leading word of the progress display.
+
+    Raises
+    ------
+    ConfigError
+        Another ``dascreen`` holds the folder's lock.
+    """
+    import os
+
+    from screen.store import STORE_ENV, store_location
+
+    out.mkdir(parents=True, exist_ok=True)
+    lock = _lock(out)
+    try:
+        cfg_file = cfg_file or out / "config.yaml"
+        cfg_file.parent.mkdir(parents=True, exist_ok=True)
+        cfg_file.write_text(yaml.safe_dump(cfg.to_dict(), sort_keys=False), encoding="utf-8")
+        cmd = _command(out, cfg_file, cores, targets, extra, dry_run, profile)
+        env = {**os.environ, STORE_ENV: str(store_location(cfg) or "")}
+        locks = out / ".snakemake" / "locks"
+        if locks.is_dir() and any(locks.iterdir()):  # we hold our lock, so Snakemake's is stale
+            subprocess.call(cmd + ["--unlock"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env)
+            print("dascreen: removed the lock left by an interrupted run; resuming", flush=True)
+        if verbose or dry_run:
+            print("dascreen: snakemake --cores", cores, "in", out, flush=True)
+            return subprocess.call(cmd, env=env)
+        return _quiet(cmd, env, out, out / "logs" / f"{log_name}.log", label)
+    finally:
+        lock.close()
+
+
+def _quiet(cmd: list[str], env: dict, out: Path, log_path: Path, label: str) -> int:
+    """Snakemake with its log in a file and a progress display; the error part printed on failure."""
+    log_path.parent.mkdir(parents=True, exist_ok=True)
+    stop = threading.Event()
+    with open(log_path, "w", encoding="utf-8") as log:
+        proc = subprocess.Popen(cmd, stdout=log, stderr=subprocess.STDOUT, env=env)
+        watcher = threading.Thread(target=_watch, args=(out, stop, label), daemon=True)
+        watcher.start()
+        try:
+            rc = proc.wait()
+        except KeyboardInterrupt:
+            proc.terminate()
+            rc = proc.wait()
+        finally:
+            stop.set()
+            watcher.join(timeout=5)
+    if rc != 0:
+        text = log_path.read_text(encoding="utf-8", errors="replace")
+        print(error_excerpt(text), file=sys.stderr)
+        print(f"dascreen: the workflow's whole log: {log_path}", file=sys.stderr)
+    return rc
+
+
+def _watch(out: Path, stop: threading.Event, label: str, stream=None, tick: float | None = None) -> None:
+    """Redraw the progress bar every second (a terminal) or print a line every minute (not a terminal)."""
+    from screen.io import Progress, run_progress
+
+    stream = stream or sys.stderr
+    progress = Progress(label, stream=stream, every_s=60.0)
+    tick = tick or (1.0 if progress.bar else 5.0)
+    based = False
+    while not stop.wait(tick):
+        try:
+            p = run_progress(out)
+        except OSError:  # a file moved while being counted: next time
+            continue
+        if not p["prepared"]:
+            progress.message("preparing the candidates ...")
+            continue
+        if not based:
+            progress.rebase(p["done"])
+            based = True
+        note = "levels, ranking and report ..." if p["total"] and p["done"] >= p["total"] else \
+            f"structures {p['structures']}/{p['total']}"
+        progress.report(p["done"], p["total"], note=note)
+    try:
+        p = run_progress(out)
+        if p["prepared"] and progress.bar:
+            progress.report(p["done"], p["total"], note="done")
+    except OSError:
+        pass
+    progress.close()

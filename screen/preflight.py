@@ -1,0 +1,410 @@
+"""Pre-flight checks: everything that can be refused before the workflow starts.
+
+The ``dascreen`` command calls these before it starts Snakemake, so that a bad
+input costs one message and exit code 2 (``docs/contracts.md`` §3 and §7)
+instead of a failed job and a traceback: a missing or empty candidate file,
+missing columns, an unknown partner ("did you mean …"), a ``--set`` key or
+value the schema does not allow (the message blames the ``--set`` and lists
+close field names) and an output folder that would mix two runs.
+
+The schema walk here (:func:`schema_fields`, :func:`allowed_text`,
+:func:`unit_of`) also feeds ``dascreen config``.
+
+Examples
+--------
+>>> check_sets(["device.eqe=0.7"])
+{'device': {'eqe': 0.7}}
+>>> check_sets(["device.eqee=0.7"])
+Traceback (most recent call last):
+...
+screen.errors.ConfigError: --set device.eqee=0.7: no field device.eqee; did you mean device.eqe? (`dascreen config` lists every field)
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+import yaml
+
+from screen.errors import ConfigError, InputError
+
+__all__ = ["SchemaField", "schema_fields", "allowed_text", "unit_of", "check_sets", "check_candidates",
+           "check_partners", "check_out", "config_text"]
+
+
+# --------------------------------------------------------------------------- the schema, field by field
+
+@dataclass(frozen=True)
+class SchemaField:
+    """One leaf field of the configuration schema."""
+
+    path: str
+    schema: dict
+    section: str
+
+    @property
+    def description(self) -> str:
+        return " ".join(str(self.schema.get("description", "")).split())
+
+    @property
+    def default(self):
+        return self.schema.get("default")
+
+
+def _schema() -> dict:
+    from screen.schema import SCHEMA_PATH
+
+    return yaml.safe_load(SCHEMA_PATH.read_text(encoding="utf-8"))
+
+
+def _node(schema: dict, parts: list[str]) -> dict | None:
+    node = schema
+    for part in parts:
+        props = node.get("properties") if isinstance(node, dict) else None
+        if not props or part not in props:
+            return None
+        node = props[part]
+    return node
+
+
+def schema_fields(schema: dict | None = None) -> list[SchemaField]:
+    """Every leaf field of the schema, in schema order (``section.key`` paths).
+
+    Examples
+    --------
+    >>> paths = [f.path for f in schema_fields()]
+    >>> "device.eqe" in paths and "store.path" in paths and "candidates" in paths
+    True
+    """
+    schema = schema or _schema()
+    out: list[SchemaField] = []
+
+    def walk(node: dict, prefix: str, section: str) -> None:
+        for name, sub in node.get("properties", {}).items():
+            path = f"{prefix}.{name}" if prefix else name
+            if sub.get("type") == "object" and "properties" in sub:
+                walk(sub, path, section or name)
+            else:
+                out.append(SchemaField(path, sub, section))
+
+    walk(schema, "", "")
+    return out
+
+
+_SUFFIX_UNITS = (("_kcal_mol", "kcal/mol"), ("_ev_a", "eV/Å"), ("_ma_cm2", "mA/cm²"), ("_ev", "eV"), ("_eh", "Hartree"),
+                 ("_pct", "%"), ("_nm", "nm"), ("_k", "K"), ("_s", "s"), ("_v", "V"), ("_a", "Å"))
+
+
+def unit_of(field: SchemaField) -> str:
+    """The unit of a field: the first ``[…]`` of its description, else from its name's suffix, else ``—``.
+
+    Examples
+    --------
+    >>> f = {x.path: x for x in schema_fields()}
+    >>> unit_of(f["rank.gap_min_ev"]), unit_of(f["structures.seed"])
+    ('eV', '—')
+    """
+    found = re.search(r"\[([^\]]+)\]", field.description)
+    if found:
+        return found.group(1)
+    name = field.path.rsplit(".", 1)[-1]
+    for suffix, unit in _SUFFIX_UNITS:
+        if name.endswith(suffix):
+            return unit
+    return "—"
+
+
+def _bounds(schema: dict) -> str:
+    parts = []
+    for key, sign in (("minimum", ">="), ("exclusiveMinimum", ">"), ("maximum", "<="), ("exclusiveMaximum", "<")):
+        if key in schema:
+            parts.append(f"{sign} {schema[key]}")
+    return " and ".join(parts)
+
+
+def allowed_text(schema: dict) -> str:
+    """The allowed values of a field in words.
+
+    Examples
+    --------
+    >>> allowed_text({"enum": ["ff", "xtb"]})
+    'one of ff, xtb'
+    >>> allowed_text({"type": ["number", "null"], "exclusiveMinimum": 0, "maximum": 1})
+    'number > 0 and <= 1, or null'
+    """
+    if "enum" in schema:
+        return "one of " + ", ".join("null" if v is None else str(v) for v in schema["enum"])
+    types = schema.get("type", [])
+    types = [types] if isinstance(types, str) else list(types)
+    words = {"integer": "integer", "number": "number", "string": "text", "boolean": "true or false",
+             "array": "list", "object": "mapping"}
+    main = [t for t in types if t != "null"]
+    text = " or ".join(words.get(t, t) for t in main) or "any value"
+    if "array" in main and isinstance(schema.get("items"), dict):
+        item = schema["items"]
+        text = f"list of {allowed_text(item)}" + (f" matching {item['pattern']}" if "pattern" in item else "")
+    bounds = _bounds(schema)
+    if bounds:
+        text += " " + bounds
+    if "null" in types:
+        text += ", or null"
+    return text
+
+
+def _show(value) -> str:
+    if value is None:
+        return "null"
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (list, dict)):
+        return yaml.safe_dump(value, default_flow_style=True, width=1000).strip()
+    return str(value)
+
+
+def config_text(width: int = 100) -> str:
+    """``dascreen config``: every field with its description, unit, default and allowed values.
+
+    Examples
+    --------
+    >>> text = config_text()
+    >>> "device.eqe" in text and "default: null" in text and "allowed:" in text
+    True
+    """
+    import textwrap
+
+    schema = _schema()
+    lines = ["dascreen configuration: every field with its default, unit and allowed values.",
+             "Change one with --set SECTION.KEY=VALUE or a --config YAML file (`dascreen config --yaml` prints",
+             "a complete file with the defaults).", ""]
+    current = None
+    for field in schema_fields(schema):
+        if field.section != current:
+            current = field.section
+            if field.section:
+                about = " ".join(str(schema["properties"][field.section].get("description", "")).split())
+                lines += ["", f"[{field.section}]" + (f"  {about}" if about else "")]
+        lines.append(f"  {field.path}")
+        lines += textwrap.wrap(field.description or "(no description)", width - 6, initial_indent="      ",
+                               subsequent_indent="      ", break_on_hyphens=False)
+        lines.append(f"      default: {_show(field.default)} | unit: {unit_of(field)} | "
+                     f"allowed: {allowed_text(field.schema)}")
+    return "\n".join(lines) + "\n"
+
+
+# --------------------------------------------------------------------------- --set
+
+def _close_fields(path: str, fields: list[str]) -> list[str]:
+    from screen.partners import suggest
+
+    hits = suggest(path, fields, n=3, cutoff=0.85) or suggest(path, fields, n=3, cutoff=0.6)
+    leaf = path.rsplit(".", 1)[-1]
+    hits += [f for f in fields if f.rsplit(".", 1)[-1] == leaf and f not in hits]
+    return hits[:3]
+
+
+def check_sets(items) -> dict:
+    """Check ``--set SECTION.KEY=VALUE`` items against the schema; return them as a nested mapping.
+
+    Parameters
+    ----------
+    items : list of str
+        The ``--set`` values (values parsed as YAML).
+
+    Raises
+    ------
+    ConfigError
+        Naming the ``--set`` item: no ``=``, an unknown field (with close field
+        names) or a value the field does not allow (with the allowed values).
+    """
+    import jsonschema
+
+    schema = _schema()
+    fields = [f.path for f in schema_fields(schema)]
+    out: dict = {}
+    for item in items or []:
+        if "=" not in item:
+            raise ConfigError(f"--set {item!r}: expected SECTION.KEY=VALUE, e.g. --set device.eqe=0.7")
+        path, raw = (part.strip() for part in item.split("=", 1))
+        node = _node(schema, path.split(".")) if path else None
+        if node is None:
+            close = _close_fields(path, fields)
+            hint = f"; did you mean {' or '.join(close)}?" if close else ""
+            raise ConfigError(f"--set {item}: no field {path or '(empty)'}{hint} (`dascreen config` lists every field)")
+        try:
+            value = yaml.safe_load(raw) if raw else None
+        except yaml.YAMLError as exc:
+            raise ConfigError(f"--set {item}: the value is not valid YAML ({exc})") from None
+        errors = list(jsonschema.Draft202012Validator(node).iter_errors(value))
+        if errors:
+            raise ConfigError(f"--set {item}: {errors[0].message}; allowed for {path}: {allowed_text(node)}")
+        target = out
+        parts = path.split(".")
+        for part in parts[:-1]:
+            target = target.setdefault(part, {})
+        target[parts[-1]] = value
+    return out
+
+
+# --------------------------------------------------------------------------- inputs
+
+_SDF = (".sdf", ".sd", ".sdf.gz", ".sd.gz")
+
+
+def _near_files(path: Path) -> list[str]:
+    from screen.partners import suggest
+
+    folder = path.parent if path.parent.is_dir() else Path(".")
+    names = [p.name for p in folder.iterdir() if p.is_file()] if folder.is_dir() else []
+    return [str(folder / n) for n in suggest(path.name, names, n=2)]
+
+
+def check_candidates(path) -> int:
+    """Check a candidate file before a run; return its number of records.
+
+    Raises
+    ------
+    InputError
+        Missing file (with close file names), a folder, an empty file or one
+        without records, an unknown file type, a CSV without a ``smiles``
+        column, text that is not UTF-8.
+    """
+    path = Path(path)
+    if not path.exists():
+        near = _near_files(path)
+        hint = f"; did you mean {' or '.join(near)}?" if near else ""
+        raise InputError(f"candidates file {str(path)!r} does not exist{hint}")
+    if path.is_dir():
+        raise InputError(f"candidates {str(path)!r} is a folder; give a .csv, .smi or .sdf file")
+    if path.stat().st_size == 0:
+        raise InputError(f"candidates file {path} is empty: nothing to screen")
+    if path.name.lower().endswith(_SDF):
+        return _check_sdf(path)
+    from screen.prepare.readers import read_candidates
+
+    frame = read_candidates(path)  # file-level problems (type, encoding, no smiles column) raise InputError
+    if len(frame) == 0:
+        what = "a header but no rows" if path.suffix.lower() == ".csv" else "no molecules"
+        raise InputError(f"candidates file {path} holds {what}: nothing to screen")
+    return len(frame)
+
+
+def _check_sdf(path: Path) -> int:
+    import gzip
+
+    opener = gzip.open if path.name.lower().endswith(".gz") else open
+    try:
+        with opener(path, "rt", encoding="utf-8") as fh:
+            records = sum(1 for line in fh if line.startswith("M  END"))
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(f"candidates file {path} cannot be read as UTF-8 SD file: {exc}") from None
+    if not records:
+        raise InputError(f"candidates file {path} holds no SD record (no 'M  END' line): nothing to screen")
+    return records
+
+
+def check_partners(specs, levels_path=None) -> None:
+    """Check partner specifications without computing anything.
+
+    Library names (with "did you mean …"), files (read as one levels row),
+    ``smiles:`` (parses, neutral, closed-shell) and ``id:`` (a row of the
+    levels file when it exists).
+
+    Raises
+    ------
+    screen.partners.PartnerError
+        The first specification that cannot work.
+    """
+    import pandas as pd
+
+    from screen.partners import PartnerError, partner_key, partner_kind, resolve_partner
+
+    for spec in specs:
+        kind = partner_kind(spec)
+        if kind == "smiles":
+            partner_key(spec)
+        elif kind == "file":
+            resolve_partner(spec)
+        elif kind == "id" and levels_path is not None and Path(levels_path).is_file():
+            ident = spec.strip()[3:].strip()
+            ids = pd.read_csv(levels_path, usecols=["id"], dtype=str, keep_default_na=False)["id"]
+            if ident not in set(ids):
+                from screen.partners import suggest
+
+                close = suggest(ident, list(ids), n=3)
+                hint = f"; did you mean {' or '.join('id:' + c for c in close)}?" if close else ""
+                raise PartnerError(f"partner {spec!r}: no row with id {ident!r} in {levels_path}{hint}")
+
+
+# --------------------------------------------------------------------------- the output folder
+
+_RUN_MARKS = ("config.yaml", ".dascreen.lock", "levels.csv", "work", "rankings", "logs", ".snakemake")
+
+
+def check_out(out, candidates=None, overwrite: bool = False) -> None:
+    """Refuse an output folder that would mix two runs or is not a run folder.
+
+    Parameters
+    ----------
+    out : path-like
+        The ``--out`` folder (need not exist).
+    candidates : path-like, optional
+        The run's candidate file; a folder holding the run of another file is refused.
+    overwrite : bool
+        Accept a folder holding the run of another candidate file.
+
+    Raises
+    ------
+    ConfigError
+        ``out`` is a file, not writable, holds files of something other than
+        a dascreen run, is in use by a running ``dascreen``, or holds the run
+        of another candidate file (without ``overwrite``).
+    """
+    out = Path(out)
+    if out.exists() and not out.is_dir():
+        raise ConfigError(f"--out {out} is a file, not a folder")
+    if not out.exists():
+        parent = next((p for p in out.absolute().parents if p.exists()), None)
+        if parent is not None and not _writable(parent):
+            raise ConfigError(f"--out {out}: cannot create it, {parent} is not writable")
+        return
+    if not _writable(out):
+        raise ConfigError(f"--out {out} is not writable")
+    entries = {p.name for p in out.iterdir()}
+    if entries and not entries & set(_RUN_MARKS):
+        raise ConfigError(f"--out {out} is not empty and holds no dascreen run ({len(entries)} other entries); "
+                          "choose a new or empty folder")
+    if run_active(out):
+        raise ConfigError(f"another dascreen run is using {out}; wait for it or choose another --out")
+    if candidates is not None and not overwrite and (out / "config.yaml").is_file():
+        try:
+            before = (yaml.safe_load((out / "config.yaml").read_text(encoding="utf-8")) or {}).get("candidates")
+        except (OSError, yaml.YAMLError):
+            before = None
+        now = str(Path(candidates).resolve())
+        if before and str(before) != now:
+            raise ConfigError(f"--out {out} holds the run of {before}; this run is of {now}. Choose another --out "
+                              "(molecules already computed come from the results store) or pass --overwrite")
+
+
+def _writable(folder: Path) -> bool:
+    import os
+
+    return os.access(folder, os.W_OK | os.X_OK)
+
+
+def run_active(out) -> bool:
+    """True while a ``dascreen`` process holds the run lock of ``out`` (``.dascreen.lock``)."""
+    import fcntl
+
+    lock = Path(out) / ".dascreen.lock"
+    if not lock.is_file():
+        return False
+    with open(lock, "a") as fh:
+        try:
+            fcntl.flock(fh, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            return True
+        fcntl.flock(fh, fcntl.LOCK_UN)
+    return False

@@ -1,0 +1,151 @@
+"""The partner-matrix overview page: candidates × partners as a heatmap, self-contained HTML.
+
+One table: a row per candidate (2-D drawing, id, best partner), a column per
+partner (its levels and a link to its report), each cell the best viable PCE
+estimate coloured on one sequential scale; an empty cell (grey, "—") is a pair
+that is not viable.  Numbers come from ``matrix.csv`` (:mod:`screen.matrix`);
+formatting and drawings are those of the ranking report
+(:mod:`screen.report.format`, :mod:`screen.report.drawings`).
+
+Examples
+--------
+>>> import pandas as pd
+>>> m = pd.DataFrame({"id": ["D1"], "name": [""], "smiles": ["c1ccsc1"], "best_partner": ["y6"],
+...                   "best_pce_pct": [9.0], "viable_partners": [1], "y6": [9.0], "c60": [float("nan")]})
+>>> page = render_overview(m, {"partners": [{"id": "y6"}, {"id": "c60"}]})
+>>> page.startswith("<!DOCTYPE html>") and "9.0" in page and "not viable" in page
+True
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from datetime import datetime, timezone
+from pathlib import Path
+
+import pandas as pd
+
+from screen import __version__
+from screen.io import atomic_path
+from screen.report.drawings import molecule_svg
+from screen.report.format import esc, fmt, num
+
+__all__ = ["render_overview", "write_overview", "heat_colour", "MAX_ROWS"]
+
+#: rows shown on the page (best first); the whole table is matrix.csv
+MAX_ROWS = 200
+#: rows with a structure drawing
+MAX_DRAWINGS = 60
+
+#: a sequential scale, low → high (light yellow to dark blue; readable for common colour-vision deficiencies)
+_SCALE = [(255, 255, 204), (161, 218, 180), (65, 182, 196), (44, 127, 184), (37, 52, 148)]
+
+_STYLE = """
+body{font:14px/1.4 system-ui,-apple-system,"Segoe UI",sans-serif;margin:24px;color:#1b1b1b}
+h1{font-size:20px;margin:0 0 4px}p.sub{color:#555;margin:0 0 16px;max-width:70em}
+table{border-collapse:collapse}th,td{border:1px solid #ddd;padding:4px 6px;text-align:center}
+th.cand,td.cand{text-align:left}td.na{background:#eee;color:#888}
+thead th{background:#f6f6f6;vertical-align:bottom;font-weight:600}
+thead th small{display:block;font-weight:400;color:#555}
+svg.mol{display:block}.legend{display:flex;align-items:center;gap:6px;margin:8px 0 16px}
+.legend span.sw{display:inline-block;width:28px;height:14px}footer{color:#666;margin-top:16px;font-size:12px}
+"""
+
+
+def heat_colour(value: float, low: float, high: float) -> tuple[str, str]:
+    """Background and text colour of a cell on the sequential scale.
+
+    Examples
+    --------
+    >>> heat_colour(0.0, 0.0, 10.0)
+    ('#ffffcc', '#1b1b1b')
+    >>> heat_colour(10.0, 0.0, 10.0)
+    ('#253494', '#ffffff')
+    """
+    t = 0.0 if high <= low else min(1.0, max(0.0, (value - low) / (high - low)))
+    pos = t * (len(_SCALE) - 1)
+    i = min(int(pos), len(_SCALE) - 2)
+    f = pos - i
+    rgb = [round(a + (b - a) * f) for a, b in zip(_SCALE[i], _SCALE[i + 1])]
+    luminance = 0.2126 * rgb[0] + 0.7152 * rgb[1] + 0.0722 * rgb[2]
+    return "#{:02x}{:02x}{:02x}".format(*rgb), ("#ffffff" if luminance < 128 else "#1b1b1b")
+
+
+def _head_cell(p: dict) -> str:
+    levels = f"HOMO {fmt(p.get('homo_ev'))}, LUMO {fmt(p.get('lumo_ev'))} eV"
+    link = p.get("report")
+    name = esc(p.get("id"))
+    title = f'<a href="{esc(link)}">{name}</a>' if link else name
+    role = esc(p.get("role") or "")
+    viable = f"{p['viable']}/{p['ranked']} viable" if "viable" in p and "ranked" in p else ""
+    return f"<th>{title}<small>{role}</small><small>{levels}</small><small>{viable}</small></th>"
+
+
+def _cell(value, low: float, high: float) -> str:
+    x = num(value)
+    if math.isnan(x):
+        return '<td class="na" title="not viable">\u2014</td>'
+    bg, fg = heat_colour(x, low, high)
+    return f'<td style="background:{bg};color:{fg}" data-value="{x:.6g}">{fmt(x, 1)}</td>'
+
+
+def _legend(low: float, high: float) -> str:
+    steps = [low + (high - low) * i / 4 for i in range(5)]
+    swatches = "".join(f'<span class="sw" style="background:{heat_colour(v, low, high)[0]}"></span>' for v in steps)
+    return (f'<div class="legend">PCE estimate {fmt(low, 1)} % {swatches} {fmt(high, 1)} %'
+            f' <span class="sw" style="background:#eee"></span> not viable</div>')
+
+
+def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None) -> str:
+    """The overview page as HTML text.
+
+    Parameters
+    ----------
+    matrix : pandas.DataFrame
+        From :func:`screen.matrix.partner_matrix` (best first).
+    meta : dict
+        ``partners`` (list of dicts: ``id``, and optionally ``role``, levels, ``report`` link,
+        ``viable``/``ranked`` counts); optionally ``device``.
+    created : str, optional
+        Date line (default: now, UTC).
+    """
+    partners = meta.get("partners", [])
+    ids = [p["id"] for p in partners]
+    values = pd.concat([pd.to_numeric(matrix[c], errors="coerce") for c in ids]) if ids else pd.Series(dtype=float)
+    low, high = (float(values.min()), float(values.max())) if values.notna().any() else (0.0, 1.0)
+    shown = matrix.head(MAX_ROWS)
+    rows = []
+    for n, row in enumerate(shown.to_dict("records")):
+        drawing = (molecule_svg(row.get("smiles", ""), str(row["id"]), 120, 80) or "") if n < MAX_DRAWINGS else ""
+        label = esc(row["id"]) + (f"<br><small>{esc(row['name'])}</small>" if row.get("name") else "")
+        cells = "".join(_cell(row.get(p), low, high) for p in ids)
+        rows.append(f'<tr><td class="cand">{drawing}{label}</td>{cells}<td>{esc(row.get("best_partner") or "—")}</td></tr>')
+    more = (f"<p>{len(matrix) - len(shown)} more rows are in matrix.csv.</p>" if len(matrix) > len(shown) else "")
+    model = esc((meta.get("device") or {}).get("model", "not recorded"))
+    when = created or datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+    head = "".join(_head_cell(p) for p in partners)
+    return (
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+        f"<title>Partner matrix: {len(matrix)} candidates x {len(ids)} partners</title>"
+        f"<style>{_STYLE}</style></head><body>\n"
+        f"<h1>Partner matrix: {len(matrix)} candidates \u00d7 {len(ids)} partners</h1>\n"
+        "<p class=\"sub\">Each cell is the candidate's best estimated power-conversion efficiency against that "
+        f"partner (device model: {model}), among its pairs that pass the filters and are viable; a grey cell "
+        "is a pair that is not viable. Estimates for screening, not measurements: follow a partner's link for "
+        "its ranking, uncertainties and flags.</p>\n"
+        f"{_legend(low, high)}"
+        f"<table><thead><tr><th class=\"cand\">candidate</th>{head}<th>best partner</th></tr></thead>\n"
+        f"<tbody>{''.join(rows)}</tbody></table>\n{more}"
+        f"<footer>dascreen {esc(__version__)} \u00b7 {esc(when)} \u00b7 matrix.csv holds every row</footer>"
+        "\n</body></html>\n"
+    )
+
+
+def write_overview(matrix: pd.DataFrame, meta: dict, target) -> Path:
+    """Write :func:`render_overview` to ``target`` atomically (readable by all)."""
+    target = Path(target)
+    with atomic_path(target) as tmp:
+        tmp.write_text(render_overview(matrix, meta), encoding="utf-8")
+    os.chmod(target, 0o644)
+    return target

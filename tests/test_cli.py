@@ -1,0 +1,201 @@
+"""The `dascreen` command: config display, status of a run, quiet workflow with progress, rankings kept apart."""
+
+from __future__ import annotations
+
+import fcntl
+import io
+import json
+import os
+import sys
+import time
+
+import pandas as pd
+import pytest
+import yaml
+
+from screen.cli import main
+from screen.io import Progress
+from screen.launch import _quiet, _watch, error_excerpt
+from screen.preflight import schema_fields
+
+
+def _cli(capsys, *args):
+    rc = main(list(args))
+    captured = capsys.readouterr()
+    return rc, captured.out, captured.err
+
+
+# --------------------------------------------------------------------------- dascreen config
+
+def test_every_schema_field_has_a_description():
+    missing = [f.path for f in schema_fields() if not f.description]
+    assert not missing, missing
+
+
+def test_config_shows_every_field_with_description_unit_default_and_allowed(capsys):
+    rc, out, _ = _cli(capsys, "config")
+    assert rc == 0
+    blocks, current = {}, None
+    for line in out.splitlines():
+        if line.startswith("  ") and not line.startswith("   "):
+            current = blocks.setdefault(line.strip(), [])
+        elif line.startswith("      ") and current is not None:
+            current.append(line.strip())
+    for field in schema_fields():
+        block = "\n".join(blocks.get(field.path, []))
+        assert block, field.path
+        assert "default: " in block and "| unit: " in block and "| allowed: " in block, block
+    assert "default: null | unit: dimensionless | allowed: number > 0 and <= 1, or null" in out  # device.eqe
+    assert "store.path" in out and "~/.cache/dascreen/store.sqlite" in out
+
+
+def test_config_yaml_is_a_complete_config_file(capsys):
+    rc, out, _ = _cli(capsys, "config", "--yaml")
+    assert rc == 0 and {"device", "rank", "store", "structures"} <= set(yaml.safe_load(out))
+
+
+# --------------------------------------------------------------------------- dascreen status
+
+def _fake_run(root, done: int, total: int = 4, levels: bool = False):
+    """A run folder as the workflow leaves it: one prepared shard, ``done`` molecules through electronic."""
+    prepared = root / "work" / "candidates" / "prepared"
+    prepared.mkdir(parents=True)
+    keys = [f"m{i:016x}" for i in range(total)]
+    pd.DataFrame({"key": keys, "smiles": ["C"] * total}).to_csv(prepared / "shard-000.csv", index=False)
+    for stage in ("structures", "electronic"):
+        (root / "work" / "candidates" / stage).mkdir(parents=True)
+        journal = root / "work" / "candidates" / stage / "shard-000.csv.journal.jsonl"
+        journal.write_text("".join(json.dumps({"key": k}) + "\n" for k in keys[:done]))
+    if levels:
+        for stage in ("structures", "electronic"):
+            (root / "work" / "candidates" / stage / "shard-000.csv.journal.jsonl").unlink()
+            pd.DataFrame({"key": keys}).to_csv(root / "work" / "candidates" / stage / "shard-000.csv", index=False)
+        time.sleep(0.01)
+        (root / "levels.csv").write_text("id\n")
+    (root / ".dascreen.lock").write_text("")
+
+
+def test_status_of_a_finished_run_says_finished(tmp_path, capsys):
+    _fake_run(tmp_path, 4, levels=True)
+    rc, out, _ = _cli(capsys, "status", "--out", str(tmp_path))
+    assert rc == 0 and out.startswith("dascreen: finished: 4/4 molecules computed (100%)"), out
+    assert "ETA" not in out
+
+
+def test_status_of_a_running_and_a_stopped_run(tmp_path, capsys):
+    _fake_run(tmp_path, 1)
+    rc, out, _ = _cli(capsys, "status", "--out", str(tmp_path))
+    assert "not running: 1/4 molecules computed (25%)" in out and "resumes" in out
+    with open(tmp_path / ".dascreen.lock", "w") as lock:
+        fcntl.flock(lock, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        rc, out, _ = _cli(capsys, "status", "--out", str(tmp_path))
+    assert rc == 0 and out.startswith("dascreen: running: 1/4 molecules computed (25%)") and "ETA" in out, out
+
+
+# --------------------------------------------------------------------------- quiet workflow, progress
+
+class _Tty(io.StringIO):
+    def isatty(self):
+        return True
+
+
+def test_progress_is_a_redrawn_bar_on_a_terminal_and_lines_otherwise():
+    tty = _Tty()
+    bar = Progress("dascreen", stream=tty)
+    for done in range(1, 4):
+        bar.report(done, 10)
+    bar.close()
+    text = tty.getvalue()
+    assert text.count("\r") == 3 and text.count("\n") == 1 and "3/10 molecules (30%)" in text
+    plain = io.StringIO()
+    lines = Progress("dascreen", stream=plain, every_s=3600)
+    for done in range(1, 11):
+        lines.report(done, 10)
+    assert plain.getvalue().count("\n") == 2 and "\r" not in plain.getvalue()  # the first and the last
+
+
+def test_progress_rate_counts_only_this_runs_work():
+    p = Progress("x", stream=io.StringIO(), bar=False)
+    p.rebase(90)  # 90 molecules came from the results store or an earlier run
+    assert "rate unknown" in p.line(90, 100) and "ETA unknown" in p.line(90, 100)
+
+
+def test_watch_prints_plain_lines_when_not_a_terminal(tmp_path):
+    import threading
+
+    _fake_run(tmp_path, 2)
+    stream, stop = io.StringIO(), threading.Event()
+    watcher = threading.Thread(target=_watch, args=(tmp_path, stop, "dascreen", stream, 0.01))
+    watcher.start()
+    time.sleep(0.3)
+    stop.set()
+    watcher.join()
+    text = stream.getvalue()
+    assert text.startswith("dascreen: 2/4 molecules (50%)") and "structures 2/4" in text, text
+    assert "\r" not in text and text.count("\n") == 1  # one line a minute at most, none redrawn
+
+
+def test_quiet_run_logs_to_a_file_and_prints_the_error_in_full(tmp_path, capsys):
+    script = ("import sys\nprint('Building DAG of jobs...')\nfor i in range(50): print('job', i)\n"
+              "print('Error in rule electronic:')\nprint('    jobid: 7')\nprint('RuntimeError: boom', file=sys.stderr)\n"
+              "sys.exit(1)\n")
+    log = tmp_path / "logs" / "workflow.log"
+    rc = _quiet([sys.executable, "-c", script], dict(os.environ), tmp_path, log, "dascreen")
+    err = capsys.readouterr().err
+    assert rc == 1
+    assert "job 3" in log.read_text() and "job 3" not in err  # the engine's chatter stays in the file
+    assert "Error in rule electronic:" in err and "jobid: 7" in err and "RuntimeError: boom" in err
+    assert str(log) in err
+
+
+def test_quiet_success_prints_nothing_of_the_engine(tmp_path, capsys):
+    rc = _quiet([sys.executable, "-c", "print('Finished job 0.')"], dict(os.environ), tmp_path,
+                tmp_path / "logs" / "workflow.log", "dascreen")
+    captured = capsys.readouterr()
+    assert rc == 0 and "Finished job" not in captured.out + captured.err
+
+
+def test_error_excerpt_without_a_marker_is_the_tail():
+    assert error_excerpt("\n".join(map(str, range(200))), tail=3) == "197\n198\n199"
+
+
+# --------------------------------------------------------------------------- rankings kept apart
+
+@pytest.fixture()
+def levels(tmp_path):
+    path = tmp_path / "lv.csv"
+    path.write_text("id,smiles,homo_ev,lumo_ev,gap_opt_ev,scale,role\n"
+                    "KF-D01,c1ccc(-c2cccs2)s1,-5.55,-3.60,1.95,film,donor\n", encoding="utf-8")
+    return path
+
+
+def test_other_device_settings_rank_into_their_own_folder(levels, tmp_path, capsys):
+    out = tmp_path / "out"
+    assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60")[0] == 0
+    assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60",
+                "--set", "device.model=scharber")[0] == 0
+    folders = sorted(p.name for p in (out / "rankings").iterdir())
+    assert len(folders) == 2 and all(f.startswith("c60--") for f in folders)
+    models = {json.loads((out / "rankings" / f / "ranking.meta.json").read_text())["device"]["model"]
+              for f in folders}
+    assert models == {"fitted", "scharber"}
+
+
+def test_a_folder_of_another_partner_is_never_overwritten(levels, tmp_path, capsys):
+    from screen.rank_io import ranking_folder
+
+    out = tmp_path / "out"
+    assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60")[0] == 0
+    (c60,) = (out / "rankings").iterdir()
+    clash = out / "rankings" / ranking_folder("c70", {})
+    c60.rename(clash)  # e.g. a slug collision: the folder c70 would use holds c60's ranking
+    before = (clash / "ranking.csv").read_bytes()
+    rc, _, err = _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c70")
+    assert rc == 2 and "holds the ranking against partner 'c60'" in err
+    assert (clash / "ranking.csv").read_bytes() == before
+
+
+def test_id_and_smiles_partners_get_readable_folders(levels, tmp_path, capsys):
+    out = tmp_path / "out"
+    assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "id:KF-D01")[0] == 0
+    assert [p.name.split("--")[0] for p in (out / "rankings").iterdir()] == ["id-KF-D01"]

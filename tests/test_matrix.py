@@ -1,0 +1,100 @@
+"""The partner matrix: one ranking per partner, a candidates × partners table of the best viable PCE estimate,
+and the overview page with the heatmap."""
+
+from __future__ import annotations
+
+import json
+import math
+import re
+
+import pandas as pd
+import pytest
+
+from screen.cli import main
+from screen.matrix import MATRIX_LEAD, matrix_folder, partner_matrix
+from screen.report.matrix_page import heat_colour, render_overview
+
+#: invented levels on the film scale (not measurements); KF-D03's LUMO lies below every acceptor's
+LEVELS = ("id,name,smiles,homo_ev,lumo_ev,gap_opt_ev,scale,role\n"
+          "KF-D01,Kestrel one,Cc1ccc(s1)-c1ccc(-c2ccc(C)s2)c2nsnc12,-5.40,-3.90,1.50,film,donor\n"
+          "KF-D02,Kestrel two,c1ccc(-c2cccs2)s1,-5.55,-3.60,1.95,film,donor\n"
+          "KF-D03,Kestrel three,c1ccsc1,-5.20,-4.45,0.75,film,donor\n")
+
+
+def _ranking(rows):
+    return pd.DataFrame(rows, columns=["id", "smiles", "pce_pct", "passes", "viable"])
+
+
+def test_cells_hold_the_best_viable_estimate_and_nothing_when_not_viable():
+    a = _ranking([["D1", "C", 9.0, True, True], ["D1", "C", 11.0, True, True],  # duplicate rows: the best
+                  ["D2", "CC", 12.0, False, True],  # fails a filter: not in the cell
+                  ["D3", "CCC", 5.0, True, False]])  # not viable
+    b = _ranking([["D2", "CC", 7.5, True, True], ["D1", "C", float("nan"), True, True],
+                  ["D3", "CCC", 2.0, True, True]])
+    m = partner_matrix([("acc-a", a), ("acc-b", b)])
+    assert list(m.columns) == MATRIX_LEAD + ["acc-a", "acc-b"]
+    cells = m.set_index("id")
+    assert cells.loc["D1", "acc-a"] == 11.0 and math.isnan(cells.loc["D1", "acc-b"])
+    assert math.isnan(cells.loc["D2", "acc-a"]) and cells.loc["D2", "acc-b"] == 7.5
+    assert math.isnan(cells.loc["D3", "acc-a"]) and cells.loc["D3", "acc-b"] == 2.0
+    assert m["id"].tolist() == ["D1", "D2", "D3"]  # best estimate first
+    assert cells.loc["D1", "best_partner"] == "acc-a" and cells.loc["D2", "best_partner"] == "acc-b"
+    assert cells["viable_partners"].tolist() == [1, 1, 1]
+
+
+def test_a_candidate_viable_with_no_partner_is_last_and_empty():
+    a = _ranking([["D1", "C", float("nan"), False, False], ["D2", "CC", 3.0, True, True]])
+    m = partner_matrix([("p", a)])
+    assert m["id"].tolist() == ["D2", "D1"]
+    assert m.loc[1, "best_partner"] == "" and math.isnan(m.loc[1, "best_pce_pct"])
+
+
+def test_matrix_folder_depends_on_the_rankings_joined():
+    assert matrix_folder(["y6--aaaa", "c60--aaaa"]) != matrix_folder(["y6--bbbb", "c60--aaaa"])
+    assert re.fullmatch(r"matrix--[0-9a-f]{8}", matrix_folder(["y6--aaaa"]))
+
+
+def test_heat_colours_are_ordered_and_text_stays_readable():
+    low, mid, high = (heat_colour(v, 0, 10) for v in (0, 5, 10))
+    assert len({low, mid, high}) == 3
+    assert low[1] == "#1b1b1b" and high[1] == "#ffffff"  # dark text on light cells, light on dark
+
+
+def test_overview_page_marks_not_viable_cells_and_links_reports():
+    m = pd.DataFrame({"id": ["D<1>"], "name": [""], "smiles": ["c1ccsc1"], "best_partner": ["a"],
+                      "best_pce_pct": [9.0], "viable_partners": [1], "a": [9.0], "b": [float("nan")]})
+    page = render_overview(m, {"partners": [{"id": "a", "report": "../a--1/report.html"}, {"id": "b"}]},
+                           created="2024-01-01")
+    assert 'href="../a--1/report.html"' in page
+    assert page.count('title="not viable"') == 1 and "D&lt;1&gt;" in page
+    assert "<svg" in page and "http" not in page.replace("http://www.w3.org", "")  # self-contained
+
+
+def test_rank_with_several_partners_writes_rankings_matrix_and_overview(tmp_path, capsys):
+    levels = tmp_path / "lv.csv"
+    levels.write_text(LEVELS, encoding="utf-8")
+    out = tmp_path / "out"
+    rc = main(["rank", "--levels", str(levels), "--out", str(out), "--partner", "y6,c60", "--partner", "it-4f"])
+    printed = capsys.readouterr().out
+    assert rc == 0
+    folders = sorted(p.name for p in (out / "rankings").iterdir())
+    assert [f.split("--")[0] for f in folders] == ["c60", "it-4f", "matrix", "y6"]
+    (matrix_dir,) = (out / "rankings").glob("matrix--*")
+    assert str(matrix_dir / "matrix.csv") in printed
+    matrix = pd.read_csv(matrix_dir / "matrix.csv")
+    assert list(matrix.columns) == MATRIX_LEAD + ["y6", "c60", "it-4f"]
+    # every cell is the estimate of that partner's own ranking
+    for partner in ("y6", "c60", "it-4f"):
+        (folder,) = (out / "rankings").glob(f"{partner}--*")
+        ranking = pd.read_csv(folder / "ranking.csv").set_index("id")
+        for _, row in matrix.iterrows():
+            r = ranking.loc[row["id"]]
+            if bool(r["passes"]) and bool(r.get("viable", True)):
+                assert row[partner] == pytest.approx(r["pce_pct"])
+            else:
+                assert math.isnan(row[partner])
+    assert math.isnan(matrix.set_index("id").loc["KF-D03", "y6"])  # LUMO below the acceptor's: not viable
+    meta = json.loads((matrix_dir / "matrix.meta.json").read_text())
+    assert [p["id"] for p in meta["partners"]] == ["y6", "c60", "it-4f"]
+    page = (matrix_dir / "overview.html").read_text()
+    assert all(f'href="../{p["folder"]}/report.html"' in page for p in meta["partners"])
