@@ -54,7 +54,7 @@ def molecule_caller(job: Callable, local: Callable | None, timeout_s: float | No
 
 
 def run_journalled(items: Iterable, key: Callable, compute: Callable[[object], dict], journal: Journal,
-                   progress: Progress) -> dict[str, dict]:
+                   progress: Progress, cache=None) -> dict[str, dict]:
     """Compute every item whose key the journal does not hold yet; return all records by key.
 
     Parameters
@@ -70,6 +70,10 @@ def run_journalled(items: Iterable, key: Callable, compute: Callable[[object], d
         Records of finished items (read first, appended after each item).
     progress : Progress
         Reports ``done / to do`` after each item.
+    cache : screen.store.StoreCache, optional
+        The results store: asked before computing an item (a stored record is
+        journalled instead); a freshly computed record goes to it after its
+        journal line, so a killed job loses nothing.
 
     Returns
     -------
@@ -88,8 +92,16 @@ def run_journalled(items: Iterable, key: Callable, compute: Callable[[object], d
     done = journal.load()
     todo = [item for item in items if key(item) not in done]
     for i, item in enumerate(todo, 1):
-        rec = compute(item)
+        rec = cache.lookup(item) if cache is not None else None
+        fresh = rec is None
+        if fresh:
+            rec = compute(item)
         journal.append(rec)
+        if fresh and cache is not None:
+            cache.remember(item, rec)
         done[rec["key"]] = rec
         progress.report(i, len(todo), rec["key"])
+    if cache is not None and todo:
+        print(f"{progress.label}: {cache.hits} of {len(todo)} molecules from the results store", file=progress.stream,
+              flush=True)
     return done

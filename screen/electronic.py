@@ -197,7 +197,7 @@ def _electronic_job(numbers, positions_bohr, options: dict) -> dict:
 
 def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicOptions = ElectronicOptions(),
                    journal_path=None, engine: Engine | None = None, isolate: bool = True,
-                   timeout_s: float | None = None, progress: Progress | None = None) -> pd.DataFrame:
+                   timeout_s: float | None = None, progress: Progress | None = None, store=None) -> pd.DataFrame:
     """Electronic stage for one shard: structures → raw levels table.
 
     Every key of the structures table gets one row: molecules whose structure
@@ -221,11 +221,16 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
         Per-molecule time limit [s] (isolated runs only).
     progress : Progress, optional
         Progress reporter (default: lines on standard output).
+    store : screen.store.ResultStore, path-like or False, optional
+        Results store read before and written after each molecule, keyed also by
+        the geometry (default: the one named by ``DASCREEN_STORE``; False: none).
 
     Returns
     -------
     pandas.DataFrame
     """
+    from screen.store import electronic_cache
+
     status = pd.read_csv(structures_csv, dtype=str, keep_default_na=False)
     mols = read_structures(structures_sdf)
     journal = Journal(journal_path or f"{out_csv}.journal.jsonl")
@@ -254,7 +259,8 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
                                sp_wall_s=time.perf_counter() - start)
             return rec
 
-        done = run_journalled(status.to_dict("records"), lambda row: row["key"], compute, journal, progress)
+        done = run_journalled(status.to_dict("records"), lambda row: row["key"], compute, journal, progress,
+                              electronic_cache(store, options, mols, carried))
     table = pd.DataFrame([{c: done[k].get(c, "") for c in ELECTRONIC_COLUMNS} for k in status["key"]],
                          columns=ELECTRONIC_COLUMNS)
     write_csv(table, out_csv)

@@ -53,7 +53,8 @@ from pathlib import Path
 from screen.errors import InputError
 
 __all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "stage_protocol", "stage_protocol_id",
-           "geometry_hash", "store_location", "open_store", "resolve_store", "store_text", "export_store"]
+           "geometry_hash", "store_location", "open_store", "resolve_store", "store_text", "export_store",
+           "structures_cache", "electronic_cache"]
 
 #: environment variable naming the store file (overrides ``store.path``; empty disables the store)
 STORE_ENV = "DASCREEN_STORE"
@@ -324,7 +325,8 @@ class StoreCache:
     key : callable
         ``key(item)`` → structure key.
     geometry : callable, optional
-        ``geometry(item)`` → :func:`geometry_hash` of the item's input geometry ("" for none).
+        ``geometry(item)`` → :func:`geometry_hash` of the item's input geometry ("" for none; None: the
+        item is not looked up nor stored).
     base : callable, optional
         ``base(item)`` → fields of the journal record that come from the item itself (not stored;
         merged into a stored record on the way out).
@@ -348,8 +350,11 @@ class StoreCache:
 
     def lookup(self, item) -> dict | None:
         """The journal record of ``item`` rebuilt from the store, or None (compute it)."""
+        geometry = self._geometry(item)
+        if geometry is None:  # nothing to look up (e.g. the structure failed)
+            return None
         try:
-            rec = self.store.get(self.stage, self._key(item), self.protocol_id, self._geometry(item))
+            rec = self.store.get(self.stage, self._key(item), self.protocol_id, geometry)
         except (sqlite3.Error, InputError, OSError) as exc:
             self._warn(exc)
             rec = None
@@ -361,12 +366,13 @@ class StoreCache:
 
     def remember(self, item, record: Mapping) -> None:
         """Store a freshly computed ``ok`` record (without the item's own fields)."""
-        if record.get("status") != "ok":
+        geometry = self._geometry(item)
+        if record.get("status") != "ok" or geometry is None:
             return
         own = self._base(item)
         try:
             self.store.put(self.stage, self._key(item), self.options,
-                           {k: v for k, v in record.items() if k not in own}, self._geometry(item))
+                           {k: v for k, v in record.items() if k not in own}, geometry)
         except (sqlite3.Error, InputError, OSError) as exc:
             self._warn(exc)
 
@@ -374,6 +380,48 @@ class StoreCache:
         if not self._warned:
             print(f"dascreen: results store {self.store.path} not used: {exc}", file=sys.stderr, flush=True)
             self._warned = True
+
+
+def _molblock_ok(record: Mapping) -> bool:
+    from rdkit import Chem, rdBase
+
+    with rdBase.BlockLogs():
+        mol = Chem.MolFromMolBlock(str(record.get("molblock", "")), removeHs=False)
+    return mol is not None and mol.GetNumConformers() == 1
+
+
+def structures_cache(store, options) -> StoreCache | None:
+    """The cache of :func:`screen.structures.run_structures` (items are ``(key, smiles)``); None without a store.
+
+    A stored geometry is used only when its molblock reads back as one conformer.
+    """
+    store = resolve_store(store)
+    if store is None:
+        return None
+    return StoreCache(store, "structures", options, key=lambda item: item[0], valid=_molblock_ok)
+
+
+def electronic_cache(store, options, mols: Mapping, carried) -> StoreCache | None:
+    """The cache of :func:`screen.electronic.run_electronic` (items are structure-table rows); None without a store.
+
+    Rows are keyed by the structure key and :func:`geometry_hash` of the geometry in
+    ``mols`` (so results computed on another geometry are never used); the fields the
+    row itself carries (``carried`` and ``structure_wall_s``) are not stored.
+    """
+    store = resolve_store(store)
+    if store is None:
+        return None
+
+    def geometry(row):
+        mol = mols.get(row["key"])
+        if row.get("status") != "ok" or mol is None:
+            return None
+        return geometry_hash([a.GetAtomicNum() for a in mol.GetAtoms()], mol.GetConformer().GetPositions())
+
+    def base(row):
+        return {**{c: row.get(c, "") for c in carried}, "structure_wall_s": row.get("wall_s", "")}
+
+    return StoreCache(store, "electronic", options, key=lambda row: row["key"], geometry=geometry, base=base)
 
 
 # --------------------------------------------------------------------------- where the store is

@@ -479,7 +479,7 @@ def _plain(exc: Exception) -> str:
 
 def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = StructureOptions(),
                    journal_path=None, engine: Engine | None = None, isolate: bool = True,
-                   timeout_s: float | None = None, progress: Progress | None = None) -> pd.DataFrame:
+                   timeout_s: float | None = None, progress: Progress | None = None, store=None) -> pd.DataFrame:
     """Structures stage for one shard: ``shard-NNN.csv`` → SDF + status table.
 
     Every key of the shard gets a row in ``out_csv`` (``status`` ok or failed with
@@ -504,12 +504,17 @@ def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = Stru
         Per-molecule time limit [s] (isolated runs only).
     progress : Progress, optional
         Progress reporter (default: lines on standard output).
+    store : screen.store.ResultStore, path-like or False, optional
+        Results store read before and written after each molecule (default: the
+        one named by ``DASCREEN_STORE``, set by ``dascreen run``; False: none).
 
     Returns
     -------
     pandas.DataFrame
         The status table.
     """
+    from screen.store import structures_cache
+
     RDLogger.DisableLog("rdApp.*")
     progress = progress or Progress(f"structures {Path(shard_csv).stem}")
     shard = pd.read_csv(shard_csv, dtype=str, keep_default_na=False)
@@ -530,7 +535,8 @@ def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = Stru
                 rec.update(status="failed", error=f"structure: {_plain(exc)}")
             return rec
 
-        done = run_journalled(zip(shard["key"], shard["smiles"]), lambda item: item[0], compute, journal, progress)
+        done = run_journalled(zip(shard["key"], shard["smiles"]), lambda item: item[0], compute, journal, progress,
+                              structures_cache(store, options))
     rows = []
     with atomic_path(out_sdf) as tmp:
         writer = Chem.SDWriter(str(tmp))
