@@ -9,6 +9,7 @@ partners    list the built-in partner materials
 status      molecules done / total of a run folder, finished or with an ETA
 config      every configuration field with its description, unit, default and allowed values
 store       list, export or prune the results store shared by runs
+dyecell     dye-cell mode: sensitiser dyes against an oxide and a redox mediator (screen.dyecell.cli)
 
 Inputs, options and the output folder are checked before the workflow starts
 (:mod:`screen.preflight`): a refused one exits with code 2 and one message.
@@ -501,7 +502,9 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"dascreen {__version__}")
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
-    for add in (_add_run, _add_calibrate, _add_rank, _add_small, _add_store):
+    from screen.dyecell.cli import add_dyecell
+
+    for add in (_add_run, _add_calibrate, _add_rank, _add_small, _add_store, add_dyecell):
         add(sub)
     return parser
 

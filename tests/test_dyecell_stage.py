@@ -187,3 +187,23 @@ def test_shipped_models_meet_the_issue_targets(folder):
     assert models["e_ox"]["loo_mae"] <= 0.15
     assert models["e00"]["loo_mae"] <= 0.15
     assert not math.isnan(models["e_ox"]["baseline_loo_mae"])
+
+
+# --------------------------------------------------------------------------- command line
+
+def test_cli_ranks_a_measured_file_and_refuses_film_levels(tmp_path, capsys):
+    from screen.cli import main
+
+    f = tmp_path / "measured.csv"
+    pd.DataFrame({"id": ["a", "b"], "e_ox_v_nhe": [1.07, 0.45], "e00_ev": [1.96, 2.0],
+                  "smiles": ["OC(=O)c1ccccc1", "OC(=O)c1ccccc1"]}).to_csv(f, index=False)
+    assert main(["dyecell", "--levels", str(f), "--out", str(tmp_path / "o"), "--mediator", "co-bpy3",
+                 "--set", "dyecell.n_samples=100"]) == 0
+    text = capsys.readouterr().out
+    assert "2 dyes ranked on tio2-anatase with co-bpy3; 1 viable" in text
+    assert "cannot be regenerated" in text
+    film = tmp_path / "film.csv"
+    film.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale\nx,-5.3,-3.2,2.0,film\n")
+    assert main(["dyecell", "--levels", str(film), "--out", str(tmp_path / "o2")]) == 2
+    assert "vacuum-scale levels" in capsys.readouterr().err
+    assert main(["dyecell", "--levels", str(f), "--out", str(tmp_path / "o3"), "--oxide", "unobtainium"]) == 2

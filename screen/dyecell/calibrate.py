@@ -356,17 +356,17 @@ def load_models(protocol_id: str | None, root: str | Path | None = None, *, fold
     for name in TARGETS:
         path = folder / f"{name}.json"
         if not path.is_file():
-            raise ConfigError(f"dye model {path} is missing: compute the dye reference set "
-                              f"(screen.dyecell.calibrate.reference_input) with this protocol and refit with "
-                              f"`dascreen dyecell --refit REFERENCE_LEVELS`")
+            raise ConfigError(f"dye model {path} is missing: `dascreen dyecell --refit` computes the dye reference "
+                              "set with this protocol and installs the models")
         out[name] = read_json(path)
         fp = out[name].get("fingerprint", {})
         if protocol_id and fp.get("protocol_id") != protocol_id:
             raise ConfigError(f"dye model {path} was fitted for protocol {fp.get('protocol_id')!r}, but the levels "
-                              f"were computed with {protocol_id!r}; refit with `dascreen dyecell --refit "
-                              "REFERENCE_LEVELS`")
+                              f"were computed with {protocol_id!r}; refit with `dascreen dyecell --refit` (computes the dye "
+                              "reference set with this protocol)")
         if reference is not None and fp.get("reference_sha256") != sha256_file(reference):
-            raise ConfigError(f"dye model {path} was fitted on other reference data than {reference}; refit")
+            raise ConfigError(f"dye model {path} was fitted on other reference data than {reference}; refit with "
+                              "`dascreen dyecell --refit`")
     return out
 
 

@@ -1,9 +1,8 @@
 """Options of the dye-cell mode: the ``dyecell`` config section.
 
 The defaults come from the schema (``screen/workflow/schemas/config.schema.yaml``,
-section ``dyecell``) through :func:`screen.schema.section_defaults`, the one
-source of option defaults.  :data:`FALLBACK` holds the same values for a schema
-without the section (and documents where each comes from).
+section ``dyecell``, with the source or "common practice" of each value) through
+:func:`screen.schema.section_defaults`, the one source of option defaults.
 
 Examples
 --------
@@ -19,35 +18,20 @@ from dataclasses import dataclass
 
 from screen.errors import ConfigError
 
-__all__ = ["FALLBACK", "option_defaults", "RankOptions"]
-
-#: defaults of the ``dyecell`` section (mirrors the schema; used only when the schema lacks the section)
-FALLBACK = {
-    "oxide": "tio2-anatase",
-    "mediator": "co-bpy3",
-    "photon_to_current": 0.65,   # common practice: the Scharber EQE, applied to absorbed-photon-to-current
-    "ff": 0.70,                  # common practice for dye cells
-    "voc_loss_v": 0.20,          # common practice: quasi-Fermi level below the band edge at open circuit
-    "min_drive_inj_ev": 0.20,    # common practice (Hagfeldt et al., Chem. Rev. 110 (2010) 6595)
-    "min_drive_reg_ev": 0.20,    # common practice for one-electron outer-sphere mediators
-    "require_anchor": True,
-    "target_pce_pct": 8.0,
-    "n_samples": 2000,
-    "seed": 20240601,
-    "shortlist_size": 10,
-    "sort_by": "pce_pct",
-}
-
+__all__ = ["option_defaults", "RankOptions"]
 
 def option_defaults() -> dict:
-    """Defaults of the ``dyecell`` section: the schema's when it has the section, else :data:`FALLBACK`."""
+    """Defaults of the ``dyecell`` config section, from the schema (the one source of option defaults).
+
+    Examples
+    --------
+    >>> d = option_defaults()
+    >>> d["oxide"], d["min_drive_inj_ev"]
+    ('tio2-anatase', 0.2)
+    """
     from screen.schema import section_defaults
 
-    try:
-        found = section_defaults("dyecell")
-    except KeyError:
-        found = {}
-    return {**FALLBACK, **found}
+    return section_defaults("dyecell")
 
 
 _D = option_defaults()

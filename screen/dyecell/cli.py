@@ -1,0 +1,152 @@
+"""The ``dascreen dyecell`` sub-command: rank sensitiser dyes for an oxide and a mediator.
+
+``dascreen dyecell CANDIDATES --oxide ID --mediator ID`` runs the shared stages
+(prepare, structures, electronic, levels — the same workflow and protocol as
+``dascreen run``) and then the dye-cell ranking; ``--levels FILE`` ranks an
+existing levels file (a run's ``levels.csv`` or a file of measured dye
+potentials) in seconds; ``--list`` prints the oxide and mediator libraries;
+``--refit`` computes the dye reference set with the run's protocol and installs
+the dye models.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+from pathlib import Path
+
+from screen.errors import ConfigError, InputError
+
+__all__ = ["add_dyecell", "cmd_dyecell"]
+
+
+def _print_libraries() -> None:
+    import pandas as pd
+
+    from screen.dyecell.library import MEDIATORS_FILE, OXIDES_FILE, load_mediators, load_oxides
+
+    with pd.option_context("display.width", 200, "display.max_colwidth", 60):
+        ox = load_oxides()[["id", "type", "band_edge", "band_edge_v_nhe", "from_memory", "name"]]
+        print(ox.to_string(index=False))
+        print(f"({OXIDES_FILE}; band edges in V vs NHE, they move about -59 mV per pH unit and with additives)\n")
+        med = load_mediators()[["id", "e_redox_v_nhe", "min_drive_reg_ev", "from_memory", "name"]]
+        print(med.to_string(index=False, na_rep="-"))
+        print(f"({MEDIATORS_FILE}; potentials in V vs NHE; min_drive_reg_ev '-' = the configured threshold)")
+    print("Own values: a one-row CSV (id,band_edge_v_nhe[,type] or id,e_redox_v_nhe) passed as --oxide/--mediator.")
+
+
+def _print_ranking(path: Path, top: int) -> None:
+    import pandas as pd
+
+    table = pd.read_csv(path, dtype={"id": str}, keep_default_na=False, na_values=[""])
+    show = table.head(top).copy()
+    show["id"] = [str(i).replace("\n", "\\n")[:24] for i in show["id"]]
+    show["flags"] = show["flags"].fillna("").astype(str).str.slice(0, 36)
+    cols = ["rank", "id", "e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "drive_inj_ev", "drive_reg_ev", "voc_v",
+            "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "passes", "flags"]
+    viable = int(table["viable"].astype(str).str.lower().eq("true").sum()) if len(table) else 0
+    ox = table["oxide"].iloc[0] if len(table) else "?"
+    med = table["mediator"].iloc[0] if len(table) else "?"
+    print(f"dascreen: {len(table)} dyes ranked on {ox} with {med}; {viable} viable; top {min(top, len(table))} "
+          "(potentials in V vs NHE, driving forces in eV):")
+    if len(show):
+        with pd.option_context("display.width", 250, "display.max_columns", 30):
+            print(show[cols].to_string(index=False, na_rep="-", float_format=lambda x: f"{x:.3g}"))
+    for _, row in table[~table["viable"].astype(str).str.lower().eq("true")].head(top).iterrows():
+        print(f"  {str(row['id'])[:24]}: {row['viability']}")
+    print(f"dascreen: ranking -> {path}")
+
+
+def _refit(args, cfg, out: Path) -> Path:
+    """Compute the dye reference set with this protocol (workflow batch of its own) and install the models."""
+    from screen.dyecell.calibrate import MODELS_DIR, reference_input, refit
+    from screen.io import write_csv
+    from screen.launch import run_workflow
+
+    work = out / "dyecell" / "reference"
+    inp = work / "input.csv"
+    write_csv(reference_input(), inp)
+    ref_cfg = cfg.with_overrides({"candidates": str(inp), "out": str(work)})
+    rc = run_workflow(ref_cfg, work, args.cores, [str(work / "levels.csv")], verbose=args.verbose,
+                      log_name="dyecell-reference-workflow")
+    if rc != 0:
+        raise ConfigError(f"computing the dye reference set stopped with exit code {rc}; see {work}/logs/")
+    folder = refit(work / "levels.csv", root=args.models or MODELS_DIR)
+    print(f"dascreen: dye models installed in {folder}")
+    return folder
+
+
+def cmd_dyecell(args) -> int:
+    """Run the shared stages if needed, then rank the dyes for one oxide and one mediator."""
+    from screen.cli import EXIT_ERROR, EXIT_OK, _load, _print_summary
+    from screen.dyecell.stage import run_dyecell
+    from screen.launch import run_workflow
+    from screen.preflight import check_candidates, check_out
+
+    if args.list:
+        _print_libraries()
+        return EXIT_OK
+    out = Path(args.out).resolve()
+    extra = {"dyecell": {"oxide": args.oxide, "mediator": args.mediator, "target_pce_pct": args.target_pce}}
+    if args.candidates:
+        candidates = Path(args.candidates)
+        check_candidates(candidates)
+        check_out(out, candidates, overwrite=args.overwrite)
+        extra.update({"candidates": str(candidates.resolve()), "out": str(out)})
+    cfg = _load(args, extra)
+    if args.refit:
+        _refit(args, cfg, out)
+    if args.candidates:
+        rc = run_workflow(cfg, out, args.cores, [str(out / "levels.csv")], verbose=args.verbose)
+        if rc != 0:
+            print(f"dascreen: the workflow stopped with exit code {rc}; see the log above and {out}/logs/",
+                  file=sys.stderr)
+            return EXIT_ERROR
+        _print_summary(out / "levels.csv")
+    levels = Path(args.levels) if args.levels else out / "levels.csv"
+    if not levels.is_file():
+        if args.refit and not args.candidates:
+            return EXIT_OK
+        raise InputError(f"levels file {str(levels)!r} does not exist; give CANDIDATES to compute it, or "
+                         "--levels FILE (a run's levels.csv, or id,e_ox_v_nhe,e00_ev[,smiles] measured values)")
+    models_root = args.models or (cfg["calibration"]["models"] and Path(cfg["calibration"]["models"]) / "dyecell")
+    path = run_dyecell(levels, out, settings=cfg["dyecell"], models_root=models_root)
+    _print_ranking(path, args.top)
+    return EXIT_OK
+
+
+def add_dyecell(sub) -> None:
+    """The ``dyecell`` sub-command (added to the ``dascreen`` parser)."""
+    p = sub.add_parser("dyecell", help="dye-cell mode: rank sensitiser dyes for an oxide and a redox mediator",
+                       description="Rank organic sensitiser dyes for a dye-sensitised cell: E(S+/S) and E0-0 from "
+                                   "the calibrated xTB levels (or your measured values), injection into the oxide, "
+                                   "regeneration by the mediator, Voc/Jsc/PCE with a Monte-Carlo spread. Writes "
+                                   "OUT/dyecell/<oxide>--<mediator>/ (ranking.csv, shortlist.sdf, report.html). "
+                                   "Switching oxide or mediator re-ranks in seconds.")
+    p.add_argument("candidates", nargs="?", default=None,
+                   help="dye list (.csv id,smiles[,name]; .smi; .sdf): runs the shared stages first")
+    p.add_argument("--levels", default=None,
+                   help="rank this file instead (default OUT/levels.csv): a run's levels.csv or your own "
+                        "id,e_ox_v_nhe (or e_ox_v + e_ox_reference + solvent),e00_ev[,smiles] file")
+    p.add_argument("--oxide", default=None,
+                   help="semiconductor: library id (see --list) or a one-row CSV (default tio2-anatase)")
+    p.add_argument("--mediator", default=None,
+                   help="redox mediator: library id (see --list) or a one-row CSV (default co-bpy3)")
+    p.add_argument("--out", default="results", help="output folder (default: ./results)")
+    p.add_argument("--cores", type=int, default=os.cpu_count() or 1, help="CPU cores to use (default: all)")
+    p.add_argument("--target-pce", type=float, default=None, metavar="PCT",
+                   help="efficiency threshold for p_above_target, in %% (default 8)")
+    p.add_argument("--config", default=None, help="YAML config file (see `dascreen config`, section dyecell)")
+    p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
+                   help="override one config field, e.g. --set dyecell.voc_loss_v=0.25 (repeatable)")
+    p.add_argument("--models", default=None, metavar="DIR",
+                   help="root of the dye models (DIR/<protocol-id>/e_ox.json, e00.json; default models/dyecell)")
+    p.add_argument("--refit", action="store_true",
+                   help="compute the dye reference set (models/reference/dyes.csv) with this protocol and install "
+                        "the fitted dye models first")
+    p.add_argument("--list", action="store_true", help="print the oxide and mediator libraries and stop")
+    p.add_argument("--overwrite", action="store_true",
+                   help="accept an output folder that holds the run of another candidate file")
+    p.add_argument("--verbose", action="store_true", help="show Snakemake's log instead of the progress display")
+    p.add_argument("--top", type=int, default=10, help="rows to print (default 10)")
+    p.set_defaults(func=cmd_dyecell)
