@@ -71,7 +71,7 @@ def test_rerun_is_a_no_op_and_strict_fails_on_bad_rows(five_run, data_dir, repo_
     before = (out / "levels.csv").read_bytes()
     proc = _dascreen("run", str(data_dir / "five.csv"), "--out", str(out), "--cores", "1", "--strict", cwd=repo_dir)
     assert proc.returncode == 3, proc.stderr[-2000:]
-    assert "Nothing to be done" in proc.stdout + proc.stderr
+    assert "Nothing to be done" in (out / "logs" / "workflow.log").read_text()  # the engine's log is in a file
     assert (out / "levels.csv").read_bytes() == before
 
 
@@ -115,3 +115,60 @@ def test_smiles_partner_is_a_workflow_batch_computed_like_the_candidates(five_ru
     stamp = batch_levels.stat().st_mtime_ns
     proc = _dascreen("rank", "--partner", "smiles:c1ccsc1", "--out", str(out), "--role", "donor", cwd=repo_dir)
     assert proc.returncode == 0 and batch_levels.stat().st_mtime_ns == stamp, proc.stderr[-2000:]
+
+
+# --------------------------------------------------------------------------- everyday use (issue 13)
+
+def test_run_is_quiet_and_keeps_the_engine_log_in_a_file(five_run):
+    out, proc = five_run
+    log = out / "logs" / "workflow.log"
+    assert log.is_file() and "Finished job" in log.read_text()
+    assert "Finished job" not in proc.stdout + proc.stderr and "Building DAG" not in proc.stdout + proc.stderr
+    assert "6 rows: 5 ok" in proc.stdout  # the summary stays on stdout
+
+
+def test_status_of_the_finished_run_says_finished(five_run):
+    out, _ = five_run
+    proc = _dascreen("status", "--out", str(out))
+    assert proc.stdout.startswith("dascreen: finished: 5/5 molecules computed (100%)"), proc.stdout
+    assert "ETA" not in proc.stdout
+
+
+def test_shortlist_holds_the_computed_3d_structures(five_run):
+    from rdkit import Chem
+
+    from screen.structures import read_structures
+
+    out, _ = five_run
+    (folder,) = [p for p in (out / "rankings").iterdir() if not p.name.startswith("matrix")]
+    computed = {}
+    for sdf in (out / "work" / "candidates" / "structures").glob("shard-*.sdf"):
+        computed.update(read_structures(sdf))
+    mols = [m for m in Chem.SDMolSupplier(str(folder / "shortlist.sdf"), removeHs=False)]
+    meta = json.loads((folder / "ranking.meta.json").read_text())
+    assert len(mols) == meta["counts"]["shortlist"]
+    for mol in mols:
+        ref = computed[mol.GetProp("structure_key")]
+        assert mol.GetNumAtoms() == ref.GetNumAtoms() and any(a.GetAtomicNum() == 1 for a in mol.GetAtoms())
+        diff = mol.GetConformer().GetPositions() - ref.GetConformer().GetPositions()
+        assert abs(diff).max() < 1e-3 and mol.GetConformer().Is3D()
+
+
+def test_two_runs_at_once_on_one_store_then_a_rerun_from_the_store(tmp_path, data_dir, repo_dir):
+    env = {**os.environ, "PYTHONUNBUFFERED": "1", "DASCREEN_STORE": str(tmp_path / "store.sqlite")}
+    cmd = [sys.executable, "-m", "screen.cli", "run", str(data_dir / "five.csv"), "--cores", "1", "--out"]
+    procs = [subprocess.Popen(["nice", *cmd, str(tmp_path / name)], cwd=repo_dir, env=env, text=True,
+                              stdout=subprocess.PIPE, stderr=subprocess.PIPE) for name in ("a", "b")]
+    outs = [p.communicate(timeout=1800) for p in procs]
+    assert [p.returncode for p in procs] == [0, 0], [o[1][-2000:] for o in outs]
+    rerun = subprocess.run(["nice", *cmd, str(tmp_path / "c")], cwd=repo_dir, env=env, text=True,
+                           capture_output=True, timeout=1800)
+    assert rerun.returncode == 0, rerun.stderr[-2000:]
+    tables = [pd.read_csv(tmp_path / n / "levels.csv", dtype=str, keep_default_na=False) for n in "abc"]
+    timing = [c for c in tables[0].columns if c.endswith("_wall_s")]
+    for other in tables[1:]:
+        pd.testing.assert_frame_equal(tables[0].drop(columns=timing), other.drop(columns=timing))
+    logs = "".join(p.read_text() for p in (tmp_path / "c" / "logs" / "candidates").rglob("shard-*.log"))
+    reused = sum(int(line.split(": ")[1].split(" of ")[0]) for line in logs.splitlines()
+                 if "from the results store" in line and "electronic" in line)
+    assert reused == 5  # the rerun computed nothing: every molecule came from the store
