@@ -72,7 +72,7 @@ def test_cluster_run_succeeds_through_the_scheduler(runs):
     assert runs["local_proc"].returncode == 0, runs["local_proc"].stderr[-3000:]
     assert proc.returncode == 0, proc.stdout[-3000:] + proc.stderr[-3000:]
     assert "6 rows: 5 ok, 1 rejected, 0 failed" in proc.stdout
-    log = proc.stdout + proc.stderr
+    log = proc.stdout + proc.stderr + (runs["generic"] / "logs" / "workflow.log").read_text()  # the engine's log
     assert "with external jobid 'fake-" in log
     spooled = sorted(runs["state"].glob("fake-*.sh"))
     assert len(spooled) == _n_jobs(runs["generic"]), [p.name for p in spooled]
