@@ -372,7 +372,8 @@ def check_out(out, candidates=None, overwrite: bool = False) -> None:
     if not _writable(out):
         raise ConfigError(f"--out {out} is not writable")
     entries = {p.name for p in out.iterdir()}
-    if entries and not entries & set(_RUN_MARKS):
+    nested = all(p.is_dir() and {q.name for q in p.iterdir()} & set(_RUN_MARKS) for p in out.iterdir())
+    if entries and not entries & set(_RUN_MARKS) and not nested:  # e.g. results/ holding results/calibration
         raise ConfigError(f"--out {out} is not empty and holds no dascreen run ({len(entries)} other entries); "
                           "choose a new or empty folder")
     if run_active(out):

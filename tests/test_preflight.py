@@ -120,6 +120,10 @@ def test_out_holds_something_else(capsys, tmp_path, good):
     (other / "thesis.tex").write_text("x")
     _refused(capsys, "run", str(good), "--out", str(other), message="holds no dascreen run")
     assert sorted(p.name for p in other.iterdir()) == ["thesis.tex"]
+    runs = tmp_path / "results"  # a folder of earlier run folders (e.g. results/calibration) is fine
+    (runs / "calibration").mkdir(parents=True)
+    (runs / "calibration" / "config.yaml").write_text("{}")
+    check_out(runs, good)
 
 
 def test_out_holds_the_run_of_another_list(capsys, tmp_path, good):
