@@ -49,8 +49,8 @@ class Config(Mapping):
     Examples
     --------
     >>> cfg = Config.of({"structures": {"geometry": "xtb"}})
-    >>> cfg.structures.geometry, cfg["device"]["eqe"]
-    ('xtb', 0.65)
+    >>> cfg.structures.geometry, cfg["device"]["model"]
+    ('xtb', 'fitted')
     >>> cfg.protocol_id.startswith("tblite-gfn2-xtb-")
     True
     >>> Config.of(cfg) is cfg

@@ -70,8 +70,8 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     Examples
     --------
     >>> cfg = resolve({"device": {"eqe": 0.5}})
-    >>> cfg["device"]["eqe"], cfg["device"]["ff"]
-    (0.5, 0.65)
+    >>> cfg["device"]["eqe"], cfg["device"]["model"]
+    (0.5, 'fitted')
     >>> resolve({"device": {"absorber": "acceptor"}})
     Traceback (most recent call last):
     ...
