@@ -1,32 +1,80 @@
 """Fit and validate the device model on published devices (``models/reference/devices.csv``).
 
-The fitted model of :mod:`screen.device` has four kinds of parameter, all
-fitted here on measured devices with their published levels:
+Levels on one scale
+-------------------
+The model is applied at ranking time to levels on the film calibration's scale
+(``models/reference/levels_film.csv``: film/CV values with ferrocene at
+−4.8 eV below vacuum), so it is fitted on levels on that same scale.  The
+device table quotes each paper's own levels in mixed conventions (the
+vacuum-deposited fullerene cells use energy-diagram values, C60 LUMO −4.5 eV,
+where the CV scale has −3.82 eV).  :func:`resolve_levels` therefore takes, for
+every donor and acceptor separately:
 
-- the energy loss ΔE_loss = E_CT − qVoc, with
+1. ``film`` — the film-set row of the same material, matched by name (the
+   name or one of its bracketed aliases, punctuation ignored), else
+   ``film-structure`` — the film-set row with the same canonical SMILES
+   (materials drawn identically after side-chain shortening, e.g. BTP-4Cl and
+   BTP-eC9, get the levels the calibration would give that structure);
+2. ``paper-cv`` (flagged) — otherwise the paper's CV values moved to the
+   −4.8 eV ferrocene scale: a level written with ferrocene at ``fc`` eV is
+   ``fc − E``, so on the −4.8 eV scale it is ``level + (−4.8 − fc)``
+   (−5.1 → −4.8 eV: +0.3 eV); optical gaps are not shifted;
+3. ``paper-shifted`` (flagged) — paper values with no ferrocene reference
+   (energy-diagram, UPS or unreferenced CV values): moved by the median
+   film − paper difference of the materials *of the same role* that appear
+   both with such values in the device table and in the film set (at least
+   :data:`MIN_SHARED_MATERIALS` distinct materials, else the row is dropped);
+4. a donor LUMO that is still missing becomes HOMO + optical gap (the film
+   set's own convention for several polymers; flagged);
+5. a row whose six levels are still incomplete is dropped with its reason.
+
+:func:`level_table` returns all 82 rows with the resolved levels, their
+sources and the reason of every dropped row (written to
+``models/device/device_levels.csv`` by ``--write``).  Neither reference file
+is edited.
+
+Parameters
+----------
+The fitted model of :mod:`screen.device` has four kinds of parameter:
+
+- the energy loss ΔE_loss = E_CT − qVoc with
   E_CT = min(|HOMO_D| − |LUMO_A|, smaller optical gap) (Veldman et al. [1]_):
-  the mean over the training devices, per acceptor class (a class needs at
-  least :data:`MIN_CLASS_ROWS` devices, else its family — fullerene or
-  non-fullerene — is used, else the pooled value) when that lowers the
-  held-out error, and pooled otherwise;
+  the *median* over the training devices with a Voc (robust to recalled
+  outliers; the constant with the least absolute error), either pooled, per
+  family (fullerene / non-fullerene) or per acceptor class (a class needs
+  :data:`MIN_CLASS_ROWS` devices, else its family, else pooled); and either
+  constant (Veldman) or growing with E_CT, loss = loss_class +
+  loss_slope·(E_CT − mean E_CT), loss_slope by least squares — the shrinkage
+  that recalled reference levels with ~0.1 eV errors call for (Voc then rises
+  by 1 − loss_slope per eV of E_CT).  Which of the six variants
+  (:data:`LOSS_VARIANTS`) is chosen *inside each training fold* by an inner
+  grouped cross-validation of the training devices only, so that the
+  held-out devices never choose it;
 - the maximum EQE and the offset scale Δ0 of the charge-generation yield
-  1 − exp(−Δ/Δ0): least squares on the measured Jsc (EQE closed form for each
-  Δ0 on a grid);
-- the fill factor: the median measured FF.
+  1 − exp(−Δ/Δ0): least squares on the measured Jsc of every training device
+  with a Jsc (whether or not its Voc is known);
+- the fill factor: the median measured FF of every training device with an FF.
 
-Validation is grouped cross-validation: leave one *acceptor structure* out
-(every device with that acceptor is held out together, so a material never
-helps predict itself).  The same held-out devices are predicted by Scharber's
-rule (fixed parameters, donor-only: nothing to fit) for comparison.  Metrics:
-Voc MAE and mean signed error [V], Spearman rank correlation of Voc and of PCE,
-and how many working devices each model classifies as not viable.  The
-comparison uses each model's formula values (Voc capped at the gap, PCE capped
-at the detailed-balance limit) for every device, viable or not, so that a model
-cannot improve its error by declaring hard devices not viable.
+Validation
+----------
+Grouped cross-validation, two groupings: leave one *acceptor structure* out
+and leave one *donor structure* out (all devices sharing the held-out
+structure leave together; the parameters, and the loss split, are refitted on
+the rest).  Held out are Voc MAE and mean signed error [V], Spearman rank
+correlation of Voc (devices with a Voc) and of PCE (every device with levels
+and a PCE — the rows without a Voc count here), the same by acceptor class,
+and two naive references: the training mean Voc, and the training mean Voc of
+the device's acceptor class.  Scharber's rule [2]_ (fixed parameters,
+donor-only, nothing to fit) predicts the same devices on the same levels; for
+context it is also shown on the papers' own levels (its published convention).
+Both models use their formula values (Voc capped at the gap, PCE at the
+detailed-balance limit) whether they call a device viable or not, so a model
+cannot lower its error by declaring hard devices not viable.
 
 Run ``python -m screen.devicefit`` to print the table, ``--write`` to (re)write
-``models/device/fitted.json`` with the parameters fitted on every device, the
-cross-validation statistics and the SHA-256 of the device file.
+``models/device/fitted.json`` (parameters fitted on every device, both
+cross-validations, the rows used and how their levels were sourced, the
+SHA-256 of both reference files) and ``models/device/device_levels.csv``.
 
 References
 ----------
@@ -34,13 +82,17 @@ References
    :doi:`10.1002/adfm.200801834`
 .. [2] M. C. Scharber et al., Adv. Mater. 18 (2006) 789. :doi:`10.1002/adma.200501717`
 .. [3] K. Vandewal et al., Nat. Mater. 8 (2009) 904. :doi:`10.1038/nmat2548`
+.. [4] C. M. Cardona, W. Li, A. E. Kaifer, D. Stockdale, G. C. Bazan, Adv. Mater. 23 (2011) 2367
+   (ferrocene reference values in CV level estimates). :doi:`10.1002/adma.201004554`
 """
 
 from __future__ import annotations
 
 import argparse
 import json
+import re
 import sys
+from functools import lru_cache
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -48,47 +100,216 @@ import numpy as np
 import pandas as pd
 from scipy.stats import spearmanr
 
+from screen.chem import canonical_smiles
 from screen.device import DeviceModel
-from screen.devicepars import FITTED_PATH, POOLED, FittedParameters, family_of
+from screen.devicepars import FITTED_PATH, NON_FULLERENE, POOLED, FittedParameters, family_of
 from screen.errors import InputError
 from screen.spectrum import jsc_ma_cm2
 
-__all__ = ["DEVICES_PATH", "read_devices", "fit", "cross_validate", "predict", "write_fitted", "main",
-           "MIN_CLASS_ROWS", "OFFSET_SCALE_GRID_EV"]
+__all__ = ["DEVICES_PATH", "FILM_PATH", "LEVELS_TABLE_PATH", "read_devices", "level_table", "resolve_levels",
+           "fit", "cross_validate", "predict", "write_fitted", "main", "MIN_CLASS_ROWS", "OFFSET_SCALE_GRID_EV",
+           "FC_SCALE_EV", "MIN_SHARED_MATERIALS", "LOSS_SPLITS", "LOSS_VARIANTS", "GROUPINGS", "choose_split"]
 
-DEVICES_PATH = Path(__file__).resolve().parent.parent / "models" / "reference" / "devices.csv"
+_REPO = Path(__file__).resolve().parent.parent
+DEVICES_PATH = _REPO / "models" / "reference" / "devices.csv"
+#: the film/CV reference set that defines the calibration's level scale
+FILM_PATH = _REPO / "models" / "reference" / "levels_film.csv"
+#: resolved levels of every device row (written by ``--write``)
+LEVELS_TABLE_PATH = _REPO / "models" / "device" / "device_levels.csv"
+#: ferrocene level of the film scale [eV]
+FC_SCALE_EV = -4.8
+#: distinct shared materials needed to estimate the shift of values without a ferrocene reference
+MIN_SHARED_MATERIALS = 3
 #: devices a class needs in the training set for a loss of its own
 MIN_CLASS_ROWS = 5
+#: how the loss may be split, chosen per training fold by inner grouped CV
+LOSS_SPLITS = ("pooled", "family", "class")
+#: loss variants tried inside each training fold: split, with a constant or an E_CT-dependent loss
+LOSS_VARIANTS = tuple(_s + _f for _f in ("", "+slope") for _s in LOSS_SPLITS)
+#: grouping name -> column of the group key
+GROUPINGS = {"acceptor": "group", "donor": "donor_group"}
 #: offset scales Δ0 tried for the charge-generation yield [eV]
 OFFSET_SCALE_GRID_EV = np.round(np.arange(0.01, 0.401, 0.01), 3)
-_NEEDED = ["device_id", "acceptor", "acceptor_smiles", "acceptor_class", "donor_homo_ev", "donor_lumo_ev",
-           "donor_gap_opt_ev", "acceptor_homo_ev", "acceptor_lumo_ev", "acceptor_gap_opt_ev", "voc_v", "jsc_ma_cm2",
-           "ff", "pce_pct"]
+_NEEDED = ["device_id", "donor", "donor_smiles", "acceptor", "acceptor_smiles", "acceptor_class", "donor_homo_ev",
+           "donor_lumo_ev", "donor_gap_opt_ev", "acceptor_homo_ev", "acceptor_lumo_ev", "acceptor_gap_opt_ev",
+           "level_method", "fc_reference_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct"]
 _LEVELS = ["donor_homo_ev", "donor_lumo_ev", "donor_gap_opt_ev", "acceptor_homo_ev", "acceptor_lumo_ev",
            "acceptor_gap_opt_ev"]
+_KINDS = ("homo", "lumo", "gap_opt")
+_METRICS = ["voc_v", "jsc_ma_cm2", "ff", "pce_pct"]
 
 
-def read_devices(path=DEVICES_PATH) -> pd.DataFrame:
-    """The device table with the rows usable for the Voc fit (all six levels and Voc known).
+# --------------------------------------------------------------------------- levels on one scale
+def _name_keys(name) -> set[str]:
+    """Match keys of a material name: the whole name, the part outside brackets and each bracketed alias,
+    lower case without punctuation, at least 3 characters."""
+    text = str(name).lower()
+    parts = [text, re.sub(r"\(.*?\)", " ", text)] + re.findall(r"\((.*?)\)", text)
+    keys = {re.sub(r"[^a-z0-9]", "", p) for p in parts}
+    return {k for k in keys if len(k) >= 3}
+
+
+@lru_cache(maxsize=4096)
+def _canon(smiles) -> str:
+    try:
+        return canonical_smiles(str(smiles)) if isinstance(smiles, str) and smiles.strip() else ""
+    except InputError:
+        return ""
+
+
+def _film_index(film: pd.DataFrame):
+    film = film[film.get("exclude_reason", pd.Series(np.nan, index=film.index)).isna()] \
+        if "exclude_reason" in film else film
+    by_key: dict[str, set[int]] = {}
+    by_smiles: dict[str, set[int]] = {}
+    for i, row in film.iterrows():
+        for key in _name_keys(row["name"]):
+            by_key.setdefault(key, set()).add(i)
+        can = _canon(row["smiles"])
+        if can:
+            by_smiles.setdefault(can, set()).add(i)
+    return film, by_key, by_smiles
+
+
+def _film_match(name, smiles, index) -> tuple[int | None, str]:
+    """Index of the film-set row of a material and how it was matched ('film' by name, 'film-structure')."""
+    film, by_key, by_smiles = index
+    hits = set().union(*(by_key.get(k, set()) for k in _name_keys(name))) if _name_keys(name) else set()
+    if len(hits) == 1:
+        return next(iter(hits)), "film"
+    hits = by_smiles.get(_canon(smiles), set())
+    if len(hits) == 1:
+        return next(iter(hits)), "film-structure"
+    return None, ""
+
+
+def _film_levels(film, i) -> np.ndarray:
+    return np.array([pd.to_numeric(film.at[i, c], errors="coerce") for c in ("homo_ev", "lumo_ev", "gap_opt_ev")],
+                    dtype=float)
+
+
+def level_table(devices=DEVICES_PATH, film=FILM_PATH) -> pd.DataFrame:
+    """Every device row with its six levels on the film (Fc −4.8 eV) scale and where each came from.
+
+    Columns added to the device table: the six level columns replaced by the
+    resolved values (the papers' values kept as ``paper_<column>``),
+    ``donor_level_source`` / ``acceptor_level_source`` (``film:<name>``,
+    ``film-structure:<name>``, ``paper-cv:+x.xx``, ``paper-shifted:…``; ``+lumo=homo+gap``
+    when a donor LUMO was completed), ``levels_converted`` (True unless both
+    came from the film set), ``drop_reason`` ('' for a usable row), and the
+    group keys ``group`` (acceptor) and ``donor_group``.
 
     Raises
     ------
     InputError
         A needed column is missing (names the file and the columns).
     """
-    frame = pd.read_csv(path)
+    frame = pd.read_csv(devices)
     missing = [c for c in _NEEDED if c not in frame]
     if missing:
-        raise InputError(f"{path}: device table lacks columns {missing}")
-    for col in _LEVELS + ["voc_v", "jsc_ma_cm2", "ff", "pce_pct"]:
+        raise InputError(f"{devices}: device table lacks columns {missing}")
+    for col in _LEVELS + _METRICS + ["fc_reference_ev"]:
         frame[col] = pd.to_numeric(frame[col], errors="coerce")
-    usable = frame[_LEVELS + ["voc_v"]].notna().all(axis=1)
-    out = frame[usable].reset_index(drop=True)
-    out["acceptor_class"] = out["acceptor_class"].fillna("").astype(str)
-    out["group"] = out["acceptor_smiles"].fillna(out["acceptor"]).astype(str)
+    index = _film_index(pd.read_csv(film))
+    film_rows = index[0]
+    frame["acceptor_class"] = frame["acceptor_class"].fillna("").astype(str)
+    out = frame.copy()
+    for col in _LEVELS:
+        out[f"paper_{col}"] = frame[col]
+    sources = {role: [""] * len(frame) for role in ("donor", "acceptor")}
+    resolved = {role: np.full((len(frame), 3), np.nan) for role in ("donor", "acceptor")}
+    # pass 1: film-set matches
+    matches = {}
+    for role in ("donor", "acceptor"):
+        for k, (name, smi) in enumerate(zip(frame[role], frame[f"{role}_smiles"])):
+            i, how = _film_match(name, smi, index)
+            matches[role, k] = (i, how)
+            if i is not None:
+                resolved[role][k] = _film_levels(film_rows, i)
+                sources[role][k] = f"{how}:{film_rows.at[i, 'name']}"
+    # shifts for values without a ferrocene reference, per role, from shared materials
+    shifts, shift_notes = {}, {}
+    for role in ("donor", "acceptor"):
+        diffs = {}
+        for k in range(len(frame)):
+            i, _how = matches[role, k]
+            if i is None or np.isfinite(frame.at[k, "fc_reference_ev"]):
+                continue
+            paper = frame.loc[k, [f"{role}_{x}_ev" for x in _KINDS]].to_numpy(float)
+            diffs.setdefault(i, resolved[role][k] - paper)
+        arr = np.array(list(diffs.values())) if diffs else np.empty((0, 3))
+        ok = [int(np.isfinite(arr[:, j]).sum()) >= MIN_SHARED_MATERIALS for j in range(2)] if len(arr) else [False] * 2
+        shifts[role] = np.array([np.nanmedian(arr[:, j]) if ok[j] else np.nan for j in range(2)] + [0.0])
+        shift_notes[role] = {"materials": sorted(str(film_rows.at[i, "name"]) for i in diffs),
+                             "median_shift_ev": {kind: (round(float(shifts[role][j]), 3) if ok[j] else None)
+                                                 for j, kind in enumerate(_KINDS[:2])},
+                             "spread_mad_ev": {kind: (round(float(np.nanmedian(np.abs(arr[:, j] - shifts[role][j]))), 3)
+                                                      if ok[j] else None) for j, kind in enumerate(_KINDS[:2])}}
+    # pass 2: paper values where there is no film row
+    for role in ("donor", "acceptor"):
+        for k in range(len(frame)):
+            if sources[role][k]:
+                continue
+            paper = frame.loc[k, [f"{role}_{x}_ev" for x in _KINDS]].to_numpy(float)
+            fc = frame.at[k, "fc_reference_ev"]
+            if np.isfinite(fc):
+                shift = FC_SCALE_EV - fc
+                resolved[role][k] = paper + np.array([shift, shift, 0.0])
+                sources[role][k] = f"paper-cv:{shift:+.2f}"
+            else:
+                resolved[role][k] = paper + shifts[role]
+                s = shifts[role]
+                sources[role][k] = (f"paper-shifted:homo{s[0]:+.2f},lumo{s[1]:+.2f}" if np.isfinite(s[:2]).all()
+                                    else "paper-unreferenced")
+    # a missing donor LUMO: HOMO + optical gap
+    d = resolved["donor"]
+    fill = np.isnan(d[:, 1]) & np.isfinite(d[:, 0]) & np.isfinite(d[:, 2])
+    d[fill, 1] = d[fill, 0] + d[fill, 2]
+    for k in np.flatnonzero(fill):
+        sources["donor"][k] += "+lumo=homo+gap"
+    for role in ("donor", "acceptor"):
+        for j, kind in enumerate(_KINDS):
+            out[f"{role}_{kind}_ev"] = resolved[role][:, j]
+        out[f"{role}_level_source"] = sources[role]
+    reasons = []
+    for k in range(len(frame)):
+        why = []
+        for role in ("donor", "acceptor"):
+            lack = [kind for j, kind in enumerate(_KINDS) if not np.isfinite(resolved[role][k, j])]
+            if lack and sources[role][k] == "paper-unreferenced":
+                why.append(f"{role} levels have no ferrocene reference and too few shared materials to convert")
+            elif lack:
+                why.append(f"{role} {'/'.join(lack)} not known (no film-set row, not given in the paper)")
+        reasons.append("; ".join(why))
+    out["drop_reason"] = reasons
+    out["levels_converted"] = ~(out["donor_level_source"].str.startswith("film")
+                                & out["acceptor_level_source"].str.startswith("film")
+                                & ~out["donor_level_source"].str.contains("+", regex=False))
+    out["group"] = [_canon(s) or str(n) for s, n in zip(frame["acceptor_smiles"], frame["acceptor"])]
+    out["donor_group"] = [_canon(s) or str(n) for s, n in zip(frame["donor_smiles"], frame["donor"])]
+    out.attrs["shifts"] = shift_notes
     return out
 
 
+def resolve_levels(devices=DEVICES_PATH, film=FILM_PATH) -> pd.DataFrame:
+    """:func:`level_table` without the dropped rows (index reset)."""
+    table = level_table(devices, film)
+    kept = table[table["drop_reason"].eq("")].reset_index(drop=True)
+    kept.attrs = table.attrs | {"dropped": table.loc[table["drop_reason"].ne(""), ["device_id", "drop_reason"]]
+                                .to_dict("records")}
+    return kept
+
+
+def read_devices(path=DEVICES_PATH, film=FILM_PATH) -> pd.DataFrame:
+    """Device rows whose six levels are on the film scale (see :func:`level_table`).
+
+    Voc may be missing: such rows inform the EQE (Jsc), FF and PCE parts only.
+    ``attrs['dropped']`` lists the rows left out and why.
+    """
+    return resolve_levels(path, film)
+
+
+# --------------------------------------------------------------------------- fit
 def _levels(d: pd.DataFrame) -> list[np.ndarray]:
     return [d[c].to_numpy(float) for c in _LEVELS]
 
@@ -99,18 +320,82 @@ def _e_ct(d: pd.DataFrame) -> np.ndarray:
     return np.fmin(interface, np.fmin(d["donor_gap_opt_ev"].to_numpy(float), d["acceptor_gap_opt_ev"].to_numpy(float)))
 
 
-def _fit_losses(d: pd.DataFrame, per_class: bool) -> dict:
-    """Mean E_CT − qVoc: pooled, and (optionally) per family (fullerene / non-fullerene) and per class with at
-    least :data:`MIN_CLASS_ROWS` training devices. [eV]"""
-    loss = _e_ct(d) - d["voc_v"].to_numpy(float)
-    out = {POOLED: float(np.mean(loss))}
-    if per_class:
-        classes = d["acceptor_class"].astype(str)
-        for key, idx in list(classes.map(family_of).groupby(classes.map(family_of)).indices.items()) \
-                + list(classes.groupby(classes).indices.items()):
-            if key and key not in out and len(idx) >= MIN_CLASS_ROWS:
-                out[str(key)] = float(np.mean(loss[idx]))
-    return {k: max(0.0, v) for k, v in out.items()}
+def _split_flags(split) -> tuple[bool, bool]:
+    """(families, classes) of a loss split; ``True`` means 'class' (older callers), ``False`` 'pooled'."""
+    split = {True: "class", False: "pooled"}.get(split, split)
+    if split not in LOSS_SPLITS:
+        raise ValueError(f"loss split {split!r}; choose one of {LOSS_SPLITS}")
+    return split in ("family", "class"), split == "class"
+
+
+def _variant(choice) -> tuple[str, bool]:
+    """``(split, free_slope)`` from a variant name like ``'family+slope'``, a split name or a bool."""
+    if isinstance(choice, tuple):
+        return choice
+    choice = {True: "class", False: "pooled"}.get(choice, choice)
+    split, _, slope = str(choice).partition("+")
+    return split, slope == "slope"
+
+
+def _variant_name(split: str, free_slope: bool) -> str:
+    return split + ("+slope" if free_slope else "")
+
+
+def _loss_labels(classes: np.ndarray, families: np.ndarray, keys) -> np.ndarray:
+    """The loss key each device gets (its class, else its family, else pooled), as
+    :meth:`FittedParameters.loss_for` does."""
+    label = np.full(len(classes), POOLED, dtype=object)
+    for fam in ("fullerene", NON_FULLERENE):
+        if fam in keys:
+            label[families == fam] = fam
+    for key in keys:
+        if key not in (POOLED, NON_FULLERENE):
+            label[classes == key] = key
+    return label
+
+
+def _loss_core(e_ct, voc, classes, families, split, free_slope) -> tuple[dict, float, float]:
+    """:func:`_fit_losses` on arrays (devices with a Voc only)."""
+    fam_ok, cls_ok = _split_flags(split)
+    keys = [POOLED]
+    for ok, values in ((fam_ok, families), (cls_ok, classes)):
+        if ok:
+            names, counts = np.unique(values.astype(str), return_counts=True)
+            keys += [k for k, c in zip(names, counts) if k and k != "nan" and k not in keys and c >= MIN_CLASS_ROWS]
+    label = _loss_labels(classes, families, keys)
+    ref = float(np.mean(e_ct))
+    slope = 0.0
+    if free_slope and len(voc) > len(keys) + 1:
+        used = np.unique(label.astype(str))
+        design = np.column_stack([e_ct - ref] + [(label == k).astype(float) for k in used])
+        coef = np.linalg.lstsq(design, voc, rcond=None)[0]
+        slope = float(np.clip(1.0 - coef[0], 0.0, 0.95))
+    adjusted = e_ct - voc - slope * (e_ct - ref)
+    out = {}
+    for key in keys:  # pooled: every device; non-fullerene: the family; else the class ('fullerene' is both)
+        members = (np.ones(len(voc), bool) if key == POOLED
+                   else (families == key) if key == NON_FULLERENE else (classes == key))
+        out[str(key)] = max(0.0, float(np.median(adjusted[members])))
+    return out, slope, ref
+
+
+def _loss_arrays(d: pd.DataFrame):
+    d = d[d["voc_v"].notna()]
+    classes = d["acceptor_class"].astype(str).to_numpy(object)
+    families = np.array([family_of(c) for c in classes], dtype=object)
+    return _e_ct(d), d["voc_v"].to_numpy(float), classes, families
+
+
+def _fit_losses(d: pd.DataFrame, split="class", free_slope: bool = False) -> tuple[dict, float, float]:
+    """Energy losses of the devices with a Voc: ``(loss_ev, loss_slope, ect_ref_ev)``.
+
+    ``loss_ev`` has the median of E_CT − qVoc (less ``loss_slope · (E_CT − ect_ref_ev)``) pooled, and per
+    family / per class (at least :data:`MIN_CLASS_ROWS` training devices) as ``split`` allows. With
+    ``free_slope`` the slope of Voc on E_CT is fitted by least squares with one intercept per loss key
+    (``loss_slope`` = 1 − that slope, kept in [0, 0.95]); else ``loss_slope`` = 0 (Veldman's constant
+    loss). [eV]
+    """
+    return _loss_core(*_loss_arrays(d), split, free_slope)
 
 
 def _fit_eqe(d: pd.DataFrame) -> tuple[float, float]:
@@ -136,8 +421,44 @@ def _fit_eqe(d: pd.DataFrame) -> tuple[float, float]:
     return best[1], best[2]
 
 
-def fit(d: pd.DataFrame, per_class: bool = True) -> FittedParameters:
+def _voc_core(e_ct, cap, classes, families, losses) -> np.ndarray:
+    loss_ev, slope, ref = losses
+    label = _loss_labels(classes, families, loss_ev)
+    loss = np.array([loss_ev[k] for k in label], dtype=float)
+    if slope:
+        loss = np.maximum(loss + slope * (e_ct - ref), 0.0)
+    return np.fmin(e_ct - loss, cap)
+
+
+def choose_split(d: pd.DataFrame, key: str = "group") -> tuple[str, dict]:
+    """The loss variant (split × constant/fitted slope, :data:`LOSS_VARIANTS`) with the least grouped-CV Voc
+    MAE on ``d`` (ties: the simpler), and each variant's MAE.  Only ``d`` is used: called on a training fold,
+    the held-out devices never choose."""
+    d = d[d["voc_v"].notna()]
+    e_ct, voc, classes, families = _loss_arrays(d)
+    cap = np.fmin(d["donor_gap_opt_ev"].to_numpy(float), d["acceptor_gap_opt_ev"].to_numpy(float))
+    folds = [idx for idx in d.groupby(key).indices.values() if len(idx) < len(d)]
+    scores = {}
+    for variant in LOSS_VARIANTS:
+        split, free = _variant(variant)
+        pred = np.full(len(d), np.nan)
+        for idx in folds:
+            keep = np.ones(len(d), bool)
+            keep[idx] = False
+            losses = _loss_core(e_ct[keep], voc[keep], classes[keep], families[keep], split, free)
+            pred[idx] = _voc_core(e_ct[idx], cap[idx], classes[idx], families[idx], losses)
+        ok = np.isfinite(pred)
+        scores[variant] = float(np.mean(np.abs(pred[ok] - voc[ok]))) if ok.any() else np.inf
+    best = min(LOSS_VARIANTS, key=lambda s: (round(scores[s], 6), LOSS_VARIANTS.index(s)))
+    return best, scores
+
+
+def fit(d: pd.DataFrame, per_class="class") -> FittedParameters:
     """Fitted parameters from a device table (see the module docstring).
+
+    ``per_class`` is the loss variant: a split (``'pooled'``, ``'family'``,
+    ``'class'``; ``True``/``False`` mean class/pooled), optionally with
+    ``'+slope'`` for a loss that grows with E_CT.
 
     Examples
     --------
@@ -147,8 +468,10 @@ def fit(d: pd.DataFrame, per_class: bool = True) -> FittedParameters:
     """
     eqe, scale = _fit_eqe(d)
     ff = d["ff"].dropna()
-    return FittedParameters(loss_ev=_fit_losses(d, per_class), eqe_max=eqe, offset_scale_ev=scale,
-                            ff=float(ff.median()) if len(ff) else 0.65)
+    split, free = _variant(per_class)
+    loss, slope, ref = _fit_losses(d, split, free)
+    return FittedParameters(loss_ev=loss, eqe_max=eqe, offset_scale_ev=scale,
+                            ff=float(ff.median()) if len(ff) else 0.65, loss_slope=slope, ect_ref_ev=ref)
 
 
 def predict(model: DeviceModel, d: pd.DataFrame) -> pd.DataFrame:
@@ -160,14 +483,46 @@ def predict(model: DeviceModel, d: pd.DataFrame) -> pd.DataFrame:
                         index=d.index)
 
 
+# --------------------------------------------------------------------------- validation
+def _rho(a, b) -> float:
+    a, b = np.asarray(a, float), np.asarray(b, float)
+    ok = np.isfinite(a) & np.isfinite(b)
+    if ok.sum() < 3 or np.ptp(a[ok]) == 0 or np.ptp(b[ok]) == 0:
+        return float("nan")
+    return float(spearmanr(a[ok], b[ok]).statistic)
+
+
 def _metrics(d: pd.DataFrame, pred: pd.DataFrame) -> dict:
-    err = pred["voc_v"] - d["voc_v"]
+    has_voc = d["voc_v"].notna()
+    err = (pred["voc_v"] - d["voc_v"])[has_voc]
     has_pce = d["pce_pct"].notna() & pred["pce_pct"].notna()
-    return {"n": int(len(d)), "voc_mae_v": float(err.abs().mean()), "voc_mse_v": float(err.mean()),
-            "spearman_voc": float(spearmanr(pred["voc_v"], d["voc_v"]).statistic),
-            "n_pce": int(has_pce.sum()),
-            "spearman_pce": float(spearmanr(pred.loc[has_pce, "pce_pct"], d.loc[has_pce, "pce_pct"]).statistic),
-            "not_viable": int((~pred["viable"].astype(bool)).sum())}
+    return {"n": int(has_voc.sum()), "voc_mae_v": float(err.abs().mean()), "voc_mse_v": float(err.mean()),
+            "spearman_voc": _rho(pred.loc[has_voc, "voc_v"], d.loc[has_voc, "voc_v"]),
+            "n_pce": int(has_pce.sum()), "n_pce_without_voc": int((has_pce & ~has_voc).sum()),
+            "spearman_pce": _rho(pred.loc[has_pce, "pce_pct"], d.loc[has_pce, "pce_pct"]),
+            "not_viable": int((~pred.loc[has_voc, "viable"].astype(bool)).sum())}
+
+
+def _by_class(d, fitted, scharber, baseline, class_baseline) -> dict:
+    out = {}
+    has_voc = d["voc_v"].notna()
+    for cls in sorted(d["acceptor_class"].unique()):
+        m = has_voc & d["acceptor_class"].eq(cls)
+        if not m.any():
+            continue
+        meas = d.loc[m, "voc_v"]
+        has_pce = d["acceptor_class"].eq(cls) & d["pce_pct"].notna()
+        out[cls] = {"n": int(m.sum()),
+                    "fitted_voc_mae_v": float((fitted.loc[m, "voc_v"] - meas).abs().mean()),
+                    "fitted_voc_mse_v": float((fitted.loc[m, "voc_v"] - meas).mean()),
+                    "fitted_spearman_voc": _rho(fitted.loc[m, "voc_v"], meas),
+                    "fitted_spearman_pce": _rho(fitted.loc[has_pce, "pce_pct"], d.loc[has_pce, "pce_pct"]),
+                    "n_pce": int(has_pce.sum()),
+                    "scharber_voc_mae_v": float((scharber.loc[m, "voc_v"] - meas).abs().mean()),
+                    "scharber_voc_mse_v": float((scharber.loc[m, "voc_v"] - meas).mean()),
+                    "mean_voc_baseline_mae_v": float((baseline[m] - meas).abs().mean()),
+                    "class_mean_voc_baseline_mae_v": float((class_baseline[m] - meas).abs().mean())}
+    return out
 
 
 @dataclass(frozen=True)
@@ -179,88 +534,188 @@ class CrossValidation:
     metrics: dict
 
 
-def cross_validate(d: pd.DataFrame, per_class: bool = True) -> CrossValidation:
-    """Leave-one-acceptor-out predictions of the fitted model and of Scharber's rule.
+def _paper_levels(d: pd.DataFrame) -> pd.DataFrame:
+    p = d.copy()
+    for col in _LEVELS:
+        if f"paper_{col}" in d:
+            p[col] = d[f"paper_{col}"]
+    return p
+
+
+def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor") -> CrossValidation:
+    """Grouped cross-validation of the fitted model beside Scharber's rule.
+
+    Parameters
+    ----------
+    d : pandas.DataFrame
+        From :func:`read_devices`.
+    per_class : str, bool or None
+        The loss split; None (default) chooses it inside each training fold by
+        an inner grouped CV of the training devices (:func:`choose_split`).
+    by : {'acceptor', 'donor'}
+        Leave one acceptor structure out, or one donor structure out.
 
     Returns
     -------
     CrossValidation
-        ``metrics`` has ``fitted``, ``scharber`` and ``mean_voc_baseline`` (MAE
-        of predicting the training mean Voc) plus the grouping.
+        ``metrics`` has ``fitted``, ``scharber`` (same levels), ``scharber_paper_levels``
+        (papers' own levels, where known), ``mean_voc_baseline`` (training mean Voc),
+        ``class_mean_voc_baseline``, ``by_class``, the splits chosen per fold and the grouping.
     """
+    key = GROUPINGS[by]
     fitted = pd.DataFrame(index=d.index, columns=["voc_v", "pce_pct", "viable"], dtype=object)
     baseline = pd.Series(np.nan, index=d.index)
-    for _group, idx in d.groupby("group").indices.items():
+    class_baseline = pd.Series(np.nan, index=d.index)
+    chosen: dict[str, int] = {}
+    for _group, idx in d.groupby(key).indices.items():
         train = d.drop(index=d.index[idx])
-        model = DeviceModel(model="fitted", absorber="both", parameters=fit(train, per_class))
+        split = _variant_name(*_variant(per_class if per_class is not None else choose_split(train, key)[0]))
+        chosen[split] = chosen.get(split, 0) + 1
+        model = DeviceModel(model="fitted", absorber="both", parameters=fit(train, split))
         fitted.iloc[idx] = predict(model, d.iloc[idx]).to_numpy(object)
         baseline.iloc[idx] = train["voc_v"].mean()
+        cls_mean = train.groupby("acceptor_class")["voc_v"].mean()
+        class_baseline.iloc[idx] = d["acceptor_class"].iloc[idx].map(cls_mean).fillna(train["voc_v"].mean()).to_numpy()
     fitted = fitted.astype({"voc_v": float, "pce_pct": float, "viable": bool})
-    scharber = predict(DeviceModel(model="scharber", absorber="donor"), d)
-    metrics = {"grouping": "leave one acceptor structure out", "n_groups": int(d["group"].nunique()),
+    scharber_model = DeviceModel(model="scharber", absorber="donor")
+    scharber = predict(scharber_model, d)
+    paper = _paper_levels(d)
+    known = paper[_LEVELS].notna().all(axis=1)
+    has_voc = d["voc_v"].notna()
+    err = lambda s: (s - d["voc_v"])[has_voc]  # noqa: E731
+    metrics = {"grouping": f"leave one {by} structure out", "by": by, "n_groups": int(d[key].nunique()),
+               "loss_split_per_fold": chosen,
                "fitted": _metrics(d, fitted), "scharber": _metrics(d, scharber),
-               "mean_voc_baseline_mae_v": float((baseline - d["voc_v"]).abs().mean())}
+               "scharber_paper_levels": _metrics(d[known], predict(scharber_model, paper[known])),
+               "mean_voc_baseline": {"voc_mae_v": float(err(baseline).abs().mean()),
+                                     "voc_mse_v": float(err(baseline).mean())},
+               "class_mean_voc_baseline": {"voc_mae_v": float(err(class_baseline).abs().mean()),
+                                           "voc_mse_v": float(err(class_baseline).mean())},
+               "by_class": _by_class(d, fitted, scharber, baseline, class_baseline)}
+    metrics["mean_voc_baseline_mae_v"] = metrics["mean_voc_baseline"]["voc_mae_v"]
     return CrossValidation(fitted, scharber, metrics)
 
 
-def write_fitted(path=FITTED_PATH, devices=DEVICES_PATH) -> dict:
-    """Fit on every device, cross-validate, choose per-class losses if they help, write JSON.
+# --------------------------------------------------------------------------- write
+def _rows_used(d: pd.DataFrame) -> list[dict]:
+    rows = []
+    for _, r in d.iterrows():
+        used = [part for part, col in (("voc", "voc_v"), ("jsc", "jsc_ma_cm2"), ("ff", "ff"), ("pce", "pce_pct"))
+                if pd.notna(r[col])]
+        rows.append({"device_id": r["device_id"], "used_for": used, "donor_levels": r["donor_level_source"],
+                     "acceptor_levels": r["acceptor_level_source"], "converted": bool(r["levels_converted"])})
+    return rows
+
+
+def write_fitted(path=FITTED_PATH, devices=DEVICES_PATH, film=FILM_PATH, levels_path=LEVELS_TABLE_PATH) -> dict:
+    """Resolve levels, cross-validate both ways, fit on every device, write the JSON and the level table.
 
     Returns
     -------
     dict
-        What was written.
+        What was written to ``path``.
     """
     from screen.io import write_json
     from screen.provenance import sha256_file
 
-    d = read_devices(devices)
-    cv_class, cv_pooled = cross_validate(d, True), cross_validate(d, False)
-    per_class = cv_class.metrics["fitted"]["voc_mae_v"] < cv_pooled.metrics["fitted"]["voc_mae_v"]
-    cv = cv_class if per_class else cv_pooled
-    params = fit(d, per_class)
+    table = level_table(devices, film)
+    d = resolve_levels(devices, film)
+    cvs = {by: cross_validate(d, None, by) for by in GROUPINGS}
+    split, split_scores = choose_split(d, "group")
+    params = fit(d, split)
+    beats = all(cv.metrics["fitted"]["voc_mae_v"] < cv.metrics["scharber"]["voc_mae_v"] for cv in cvs.values())
+    cols = ["device_id", "donor", "acceptor", "acceptor_class", *_LEVELS, "donor_level_source",
+            "acceptor_level_source", "levels_converted", "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "drop_reason",
+            *[f"paper_{c}" for c in _LEVELS]]
+    Path(levels_path).parent.mkdir(parents=True, exist_ok=True)
+    table[cols].to_csv(levels_path, index=False, float_format="%.4g", lineterminator="\n")
     data = {
         "model": "fitted energy-loss model (Voc = E_CT - loss; EQE with a smooth offset yield)",
         "parameters": params.as_dict() | {"source": None},
-        "per_class_loss": bool(per_class),
-        "cv": cv.metrics,
-        "cv_other_choice": (cv_pooled if per_class else cv_class).metrics["fitted"],
-        "beats_scharber": bool(cv.metrics["fitted"]["voc_mae_v"] < cv.metrics["scharber"]["voc_mae_v"]),
+        "loss_variant": split,
+        "loss_variant_cv_mae_v": split_scores,
+        "per_class_loss": not split.startswith("pooled"),
+        "cv": cvs["acceptor"].metrics,
+        "cv_leave_donor_out": cvs["donor"].metrics,
+        "beats_scharber": bool(beats),
+        "level_scale": (f"film/CV scale of {Path(film).name} (ferrocene {FC_SCALE_EV} eV); see screen.devicefit "
+                        "for the rules"),
+        "level_shifts_without_ferrocene": table.attrs["shifts"],
+        "level_sources": {"film": int((d["donor_level_source"].str.startswith("film")).sum()
+                                      + (d["acceptor_level_source"].str.startswith("film")).sum()),
+                          "converted_or_completed": int((~d["donor_level_source"].str.match(r"film[^+]*$")).sum()
+                                                        + (~d["acceptor_level_source"].str.match(r"film[^+]*$")).sum()),
+                          "rows_all_levels_from_film_set": int((~d["levels_converted"]).sum())},
+        "rows_used": _rows_used(d),
+        "rows_dropped": d.attrs["dropped"],
+        "levels_table": str(Path(levels_path).relative_to(_REPO)) if Path(levels_path).is_relative_to(_REPO)
+        else str(levels_path),
         "devices": str(Path(devices).name),
         "devices_sha256": sha256_file(devices),
+        "levels_film": str(Path(film).name),
+        "levels_film_sha256": sha256_file(film),
         "devices_rows_used": int(len(d)),
+        "devices_rows_with_voc": int(d["voc_v"].notna().sum()),
         "references": ["Veldman et al., Adv. Funct. Mater. 19 (2009) 1939, doi:10.1002/adfm.200801834",
-                       "Scharber et al., Adv. Mater. 18 (2006) 789, doi:10.1002/adma.200501717"],
+                       "Scharber et al., Adv. Mater. 18 (2006) 789, doi:10.1002/adma.200501717",
+                       "Cardona et al., Adv. Mater. 23 (2011) 2367, doi:10.1002/adma.201004554 (ferrocene scale)"],
     }
     write_json(data, path)
     return data
 
 
-def _table(metrics: dict) -> str:
-    rows = [("model", "n", "Voc MAE [V]", "Voc MSE [V]", "Spearman Voc", "Spearman PCE", "not viable")]
-    for name in ("fitted", "scharber"):
+def _fmt(x, spec) -> str:
+    return "n/a" if x is None or not np.isfinite(x) else format(x, spec)
+
+
+def table(metrics: dict) -> str:
+    """The held-out table of one grouping as text."""
+    rows = [("model", "n", "Voc MAE [V]", "signed [V]", "Spearman Voc", "Spearman PCE", "not viable")]
+    for name, label in (("fitted", "fitted"), ("scharber", "scharber"),
+                        ("scharber_paper_levels", "scharber (papers' levels)")):
         m = metrics[name]
-        rows.append((name, str(m["n"]), f"{m['voc_mae_v']:.3f}", f"{m['voc_mse_v']:+.3f}",
-                     f"{m['spearman_voc']:.2f}", f"{m['spearman_pce']:.2f} (n={m['n_pce']})", str(m["not_viable"])))
+        rows.append((label, str(m["n"]), _fmt(m["voc_mae_v"], ".3f"), _fmt(m["voc_mse_v"], "+.3f"),
+                     _fmt(m["spearman_voc"], ".2f"), f"{_fmt(m['spearman_pce'], '.2f')} (n={m['n_pce']})",
+                     str(m["not_viable"])))
+    for name, label in (("mean_voc_baseline", "training mean Voc"),
+                        ("class_mean_voc_baseline", "training class-mean Voc")):
+        m = metrics[name]
+        rows.append((label, str(metrics["fitted"]["n"]), _fmt(m["voc_mae_v"], ".3f"), _fmt(m["voc_mse_v"], "+.3f"),
+                     "-", "-", "-"))
     widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
-    return "\n".join("  ".join(c.ljust(w) for c, w in zip(r, widths)) for r in rows)
+    text = "\n".join("  ".join(c.ljust(w) for c, w in zip(r, widths)) for r in rows)
+    cls_rows = [("acceptor class", "n", "fitted MAE", "signed", "rho Voc", "rho PCE", "scharber MAE",
+                 "mean-Voc MAE", "class-mean MAE")]
+    for cls, m in metrics["by_class"].items():
+        cls_rows.append((cls, str(m["n"]), _fmt(m["fitted_voc_mae_v"], ".3f"), _fmt(m["fitted_voc_mse_v"], "+.3f"),
+                         _fmt(m["fitted_spearman_voc"], ".2f"), f"{_fmt(m['fitted_spearman_pce'], '.2f')}",
+                         _fmt(m["scharber_voc_mae_v"], ".3f"), _fmt(m["mean_voc_baseline_mae_v"], ".3f"),
+                         _fmt(m["class_mean_voc_baseline_mae_v"], ".3f")))
+    widths = [max(len(r[i]) for r in cls_rows) for i in range(len(cls_rows[0]))]
+    return text + "\n" + "\n".join("  ".join(c.ljust(w) for c, w in zip(r, widths)) for r in cls_rows)
+
+
+_table = table
 
 
 def main(argv=None) -> int:
-    """Print the cross-validation table; ``--write`` also writes the fitted model."""
+    """Print both cross-validation tables; ``--write`` also writes the fitted model and the level table."""
     parser = argparse.ArgumentParser(prog="python -m screen.devicefit", description=__doc__.split("\n")[0])
     parser.add_argument("--devices", default=str(DEVICES_PATH))
-    parser.add_argument("--write", action="store_true", help=f"write {FITTED_PATH}")
+    parser.add_argument("--film", default=str(FILM_PATH))
+    parser.add_argument("--write", action="store_true", help=f"write {FITTED_PATH} and {LEVELS_TABLE_PATH}")
     args = parser.parse_args(argv)
     if args.write:
-        data = write_fitted(FITTED_PATH, args.devices)
-        metrics = data["cv"]
+        data = write_fitted(FITTED_PATH, args.devices, args.film)
+        all_metrics = [data["cv"], data["cv_leave_donor_out"]]
         print(f"wrote {FITTED_PATH}: {json.dumps(data['parameters'])}")
     else:
-        metrics = cross_validate(read_devices(args.devices)).metrics
-    print(f"held-out ({metrics['grouping']}, {metrics['n_groups']} groups):")
-    print(_table(metrics))
-    print(f"predicting the training mean Voc: MAE {metrics['mean_voc_baseline_mae_v']:.3f} V")
+        d = read_devices(args.devices, args.film)
+        all_metrics = [cross_validate(d, None, by).metrics for by in GROUPINGS]
+    for metrics in all_metrics:
+        print(f"held-out ({metrics['grouping']}, {metrics['n_groups']} groups; loss split per fold "
+              f"{metrics['loss_split_per_fold']}):")
+        print(table(metrics))
     return 0
 
 

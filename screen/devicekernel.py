@@ -62,6 +62,13 @@ class PairTerms:
     jsc: np.ndarray
 
 
+def _slope(model) -> tuple[float, float]:
+    """``(loss_slope, ect_ref_ev)`` of the fitted model (0, 0 for Scharber's rule or a fixed ``loss_v``)."""
+    if model.model == "scharber" or getattr(model, "loss_v", None) is not None or model.parameters is None:
+        return 0.0, 0.0
+    return float(getattr(model.parameters, "loss_slope", 0.0)), float(getattr(model.parameters, "ect_ref_ev", 0.0))
+
+
 def _positive(gap):
     """The gap where it is a positive number, NaN elsewhere (an invalid gap never caps Voc at 0)."""
     with np.errstate(invalid="ignore"):
@@ -105,7 +112,11 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None) -> PairTerms:
     if model.model == "scharber":
         voc_raw = interface - loss_ev
     else:
-        voc_raw = np.fmin(interface, gap_cap) - loss_ev  # E_CT - loss (Veldman et al. 2009)
+        e_ct = np.fmin(interface, gap_cap)
+        slope, ref = _slope(model)
+        if slope:  # loss grows with E_CT (fitted shrinkage), never below 0
+            loss_ev = np.maximum(loss_ev + slope * (e_ct - ref), 0.0)
+        voc_raw = e_ct - loss_ev  # E_CT - loss (Veldman et al. 2009)
     scale = model.offset_scale_ev
     eqe = model.value("eqe")
     eta_d = generation_yield(delta_lumo, scale)
@@ -163,9 +174,18 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     cap = np.fmin(_positive(d_gap), _positive(a_gap), out=np.empty(shape))  # smallest valid gap of the pair
     g_lo = np.broadcast_to(np.minimum(d_gap, a_gap) if both else d_gap, shape)  # absorber gap (may be invalid)
     voc = np.subtract(a_lumo, d_homo, out=np.empty(shape))  # interface gap
+    slope, ref = (0.0, 0.0)
     if model.model != "scharber":
         np.fmin(voc, cap, out=voc)  # E_CT
-    voc -= loss_ev
+        slope, ref = _slope(model)
+    if slope:  # E_CT - max(loss + slope (E_CT - ref), 0) = min((1 - slope) E_CT + slope ref - loss, E_CT)
+        lowered = np.multiply(voc, 1.0 - slope)
+        lowered += slope * ref
+        lowered -= loss_ev
+        np.fmin(lowered, voc, out=voc)
+        del lowered
+    else:
+        voc -= loss_ev
     np.fmin(voc, cap, out=voc)
     ok &= voc > 0
     with np.errstate(invalid="ignore"):

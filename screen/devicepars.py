@@ -54,6 +54,14 @@ class FittedParameters:
         Offset scale Δ0 of the charge-generation yield 1 − exp(−Δ/Δ0). [eV]
     ff : float
         Fill factor. [dimensionless]
+    loss_slope : float
+        How fast the loss grows with E_CT: the loss of a pair is
+        ``loss_ev[class] + loss_slope · (E_CT − ect_ref_ev)`` (never below 0);
+        0 = the constant loss of Veldman et al.  A fitted value above 0 is the
+        shrinkage that noisy reference levels call for (Voc rises by
+        ``1 − loss_slope`` per eV of E_CT). [dimensionless, 0 ≤ loss_slope < 1]
+    ect_ref_ev : float
+        E_CT at which ``loss_ev`` applies (mean E_CT of the fitted devices). [eV]
     source : str
         Path the parameters were read from ('' if built in Python).
     meta : dict
@@ -64,6 +72,8 @@ class FittedParameters:
     eqe_max: float
     offset_scale_ev: float
     ff: float
+    loss_slope: float = 0.0
+    ect_ref_ev: float = 0.0
     source: str = ""
     meta: dict = field(default_factory=dict, compare=False)
 
@@ -76,6 +86,10 @@ class FittedParameters:
                 raise ConfigError(f"fitted device parameters {self.source}: {name} = {val}; need 0 < {name} <= 1")
         if not (math.isfinite(self.offset_scale_ev) and self.offset_scale_ev >= 0):
             raise ConfigError(f"fitted device parameters {self.source}: offset_scale_ev must be finite and >= 0")
+        if not (math.isfinite(float(self.loss_slope)) and 0.0 <= float(self.loss_slope) < 1.0
+                and math.isfinite(float(self.ect_ref_ev))):
+            raise ConfigError(f"fitted device parameters {self.source}: loss_slope must be in [0, 1) and "
+                              "ect_ref_ev finite")
         for key, val in self.loss_ev.items():
             if not (math.isfinite(float(val)) and float(val) >= 0):
                 raise ConfigError(f"fitted device parameters {self.source}: loss_ev[{key!r}] must be >= 0")
@@ -96,6 +110,10 @@ class FittedParameters:
                                  ("fullerene", classes == "fullerene")):
             if fam_key in self.loss_ev:
                 out[members] = float(self.loss_ev[fam_key])
+        if not (math.isfinite(float(self.loss_slope)) and 0.0 <= float(self.loss_slope) < 1.0
+                and math.isfinite(float(self.ect_ref_ev))):
+            raise ConfigError(f"fitted device parameters {self.source}: loss_slope must be in [0, 1) and "
+                              "ect_ref_ev finite")
         for key, val in self.loss_ev.items():
             if key not in (POOLED, NON_FULLERENE):
                 out[classes == key] = float(val)
@@ -109,10 +127,24 @@ class FittedParameters:
             known |= (classes != "") & (classes != "fullerene") & (classes != "nan")
         return ~known
 
+    def loss_at(self, loss_ev, e_ct_ev):
+        """Loss of pairs with class loss ``loss_ev`` and CT energy ``e_ct_ev`` (≥ 0). [eV]
+
+        Examples
+        --------
+        >>> p = FittedParameters(loss_ev={"pooled": 0.5}, eqe_max=0.7, offset_scale_ev=0.05, ff=0.7,
+        ...                      loss_slope=0.4, ect_ref_ev=1.4)
+        >>> p.loss_at(np.array([0.5, 0.5]), np.array([1.4, 1.6])).round(3).tolist()
+        [0.5, 0.58]
+        """
+        if not self.loss_slope:
+            return loss_ev
+        return np.maximum(loss_ev + self.loss_slope * (e_ct_ev - self.ect_ref_ev), 0.0)
+
     def as_dict(self) -> dict:
         """Parameters for provenance records."""
         return {"loss_ev": dict(self.loss_ev), "eqe_max": self.eqe_max, "offset_scale_ev": self.offset_scale_ev,
-                "ff": self.ff, "source": self.source}
+                "ff": self.ff, "loss_slope": self.loss_slope, "ect_ref_ev": self.ect_ref_ev, "source": self.source}
 
 
 def family_of(acceptor_class: str) -> str:
@@ -139,7 +171,8 @@ def load_fitted(path: str | None = None) -> FittedParameters:
         params = data["parameters"]
         return FittedParameters(loss_ev={str(k): float(v) for k, v in params["loss_ev"].items()},
                                 eqe_max=float(params["eqe_max"]), offset_scale_ev=float(params["offset_scale_ev"]),
-                                ff=float(params["ff"]), source=str(target),
+                                ff=float(params["ff"]), loss_slope=float(params.get("loss_slope", 0.0)),
+                                ect_ref_ev=float(params.get("ect_ref_ev", 0.0)), source=str(target),
                                 meta={k: v for k, v in data.items() if k != "parameters"})
     except (KeyError, TypeError, ValueError) as exc:
         raise ConfigError(f"{target}: not a fitted device model ({type(exc).__name__}: {exc}); rewrite it with "
