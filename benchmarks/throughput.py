@@ -17,7 +17,9 @@ The whole pipeline then runs once, as a user would run it::
 (the shipped calibration matches the default protocol, so no reference
 molecules are computed). Afterwards ``OUT/levels.csv`` gives the per-molecule
 compute times: ``structure_wall_s`` (ETKDG conformers, MMFF, GFN2-xTB ranking
-single points) + ``sp_wall_s`` (the three ΔSCF single points), here called
+single points) + ``sp_wall_s`` (the ΔSCF single points: neutral, cation and anion,
+in the gas phase and, with the default ``electronic.film_epsilon``, again in the
+film continuum; per-step costs are in ``benchmarks/protocol_cost.py``), here called
 "xTB time" because the tight-binding calls dominate both.
 
 Printed: molecules per hour (ok rows / wall time), the summed xTB time, the
