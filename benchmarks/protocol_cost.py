@@ -48,12 +48,12 @@ import time
 
 os.environ.setdefault("OMP_NUM_THREADS", "1")
 
-import numpy as np  # noqa: E402
+import numpy as np
 
-from screen.electronic import molecule_numbers_positions, vertical_levels  # noqa: E402
-from screen.engines import make_engine  # noqa: E402
-from screen.options import StructureOptions  # noqa: E402
-from screen.structures import build_structure  # noqa: E402
+from screen.electronic import molecule_numbers_positions, vertical_levels
+from screen.engines import make_engine
+from screen.options import StructureOptions
+from screen.structures import build_structure
 
 _EH = "CC(CC)CCCC"  # 2-ethylhexyl, written from its attachment carbon
 
@@ -132,7 +132,7 @@ def main(argv=None) -> None:
 
 
 def _format(r: dict) -> str:
-    ratio = lambda a, b: r.get(a, np.nan) / r.get(b, np.nan)  # noqa: E731
+    ratio = lambda a, b: r.get(a, np.nan) / r.get(b, np.nan)
     return (f"{r['name']:22s} atoms computed {r['atoms_new']:4d} | structures old {r.get('struct_old_s', np.nan):7.1f} s "
             f"(conf/ranked {r.get('conf_old', '-')}) new {r['struct_new_s']:7.1f} s ({r['conf_new']}) "
             f"ratio {ratio('struct_new_s', 'struct_old_s'):.2f} | gas dSCF cold {r['gas_cold_s']:6.2f} s "

@@ -34,12 +34,12 @@ import numpy as np
 import pandas as pd
 from rdkit import Chem
 
+from screen import sanity
+from screen.batch import molecule_caller, run_journalled
 from screen.columns import RAW_COLUMNS
 from screen.constants import BOHR_ANGSTROM, HARTREE_EV
 from screen.engines import Engine, EngineError
-from screen import sanity
 from screen.excitation import frontier_integrals
-from screen.batch import molecule_caller, run_journalled
 from screen.io import Journal, Progress, write_csv
 from screen.options import ElectronicOptions
 from screen.structures import STATUS_COLUMNS as STRUCTURE_COLUMNS
@@ -239,7 +239,7 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
     local = None
     if engine is not None or not isolate:
         engine = engine or options.make_engine()
-        local = lambda z, pos, _opts: vertical_levels(z, pos, engine, film_epsilon=options.film_epsilon)  # noqa: E731
+        local = lambda z, pos, _opts: vertical_levels(z, pos, engine, film_epsilon=options.film_epsilon)
 
     with molecule_caller(_electronic_job, local, timeout_s) as call:
         def compute(row: dict) -> dict:

@@ -50,9 +50,9 @@ import pandas as pd
 from rdkit import Chem, RDLogger
 from rdkit.Chem import AllChem, rdMolDescriptors
 
+from screen.batch import molecule_caller, run_journalled
 from screen.constants import BOHR_ANGSTROM
 from screen.engines import Engine, EngineError, make_engine
-from screen.batch import molecule_caller, run_journalled
 from screen.io import Journal, Progress, atomic_path, write_csv
 from screen.options import StructureOptions
 from screen.sanity import BrokenStructureError, geometry_problems
@@ -522,7 +522,7 @@ def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = Stru
     local = None
     if engine is not None or not isolate:
         engine = engine or make_engine("tblite", options.ranking_method)
-        local = lambda smi, _opts: _molblock_and_info(*build_structure(smi, options, engine))  # noqa: E731
+        local = lambda smi, _opts: _molblock_and_info(*build_structure(smi, options, engine))
 
     with molecule_caller(_structure_job, local, timeout_s) as call:
         def compute(item) -> dict:

@@ -5,7 +5,6 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-
 from conftest import ACENES, raw_levels
 
 # Gas-phase ionisation energies [eV]: benzene 9.24 (ZEKE, Chewter et al., J. Chem. Phys. 86 (1987) 4737),
@@ -58,6 +57,7 @@ def test_sign_conventions(acene_levels):
 def test_ions_are_doublets_at_the_neutral_geometry():
     # E(cation) − E(neutral) must equal the reported IP: same geometry, uhf = 1 for the ion
     from conftest import structure
+
     from screen.constants import HARTREE_EV
     from screen.electronic import molecule_numbers_positions
     from screen.engines import make_engine
@@ -83,6 +83,7 @@ DONOR_ACCEPTOR = {"dmabmn": "CN(C)c1ccc(C=C(C#N)C#N)cc1",
 @pytest.fixture(scope="module")
 def film_levels():
     from conftest import structure
+
     from screen.electronic import molecule_numbers_positions, vertical_levels
     from screen.engines import make_engine
 

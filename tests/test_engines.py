@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from conftest import structure
+
 from screen.constants import BOHR_ANGSTROM, HARTREE_EV
 from screen.electronic import molecule_numbers_positions
 from screen.engines import SCF_LADDER, EngineError, ScfError, make_engine

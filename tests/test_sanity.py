@@ -10,17 +10,16 @@ import pytest
 from rdkit import Chem
 from rdkit.Chem import AllChem
 
-import screen.structures as structures
-from screen import sanity
+from screen import sanity, structures
 from screen.sanity import BrokenStructureError, gap_problem, geometry_problems
-from screen.structures import StructureOptions, build_structure, run_structures
+from screen.structures import build_structure, run_structures
 
 # C60 (icosahedral buckminsterfullerene): 60 atoms, 90 bonds, 32 rings (12 pentagons, 20 hexagons)
 C60 = ("c12c3c4c5c1c1c6c7c2c2c8c3c3c9c4c4c%10c5c5c1c1c6c6c%11c7c2c2c7c8c3c3c8c9c4c4c9c%10c5c5c1c1c6c6"
        "c%11c2c2c7c3c3c8c4c4c9c5c1c1c6c2c3c41")
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _methanofullerene_ester(alkyl: str = "C") -> str:
     """A [6,6]-methanofullerene adduct: phenyl and an alkyl butanoate chain on a cyclopropane fused to C60."""
     mol = Chem.MolFromSmiles(C60)
@@ -68,7 +67,7 @@ def test_fused_atoms_and_lost_rings_are_caught():
     mol = Chem.AddHs(Chem.MolFromSmiles("c1ccc2ccccc2c1"))
     AllChem.EmbedMolecule(mol, randomSeed=3)
     conf = mol.GetConformer()
-    p1, p5 = conf.GetAtomPosition(1), conf.GetAtomPosition(5)
+    p5 = conf.GetAtomPosition(5)
     conf.SetAtomPosition(1, (p5.x + 0.3, p5.y, p5.z))  # atom 2 on top of atom 6
     assert any("are" in p and "apart but not bonded" in p for p in geometry_problems(mol))
 
@@ -119,6 +118,7 @@ def test_a_structure_that_stays_broken_fails_the_row_in_plain_words(monkeypatch,
 
 def test_near_zero_orbital_gap_fails_the_row(monkeypatch):
     from conftest import structure
+
     from screen.electronic import molecule_numbers_positions, vertical_levels
     from screen.engines import make_engine
 

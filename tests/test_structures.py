@@ -7,8 +7,14 @@ import pandas as pd
 import pytest
 from rdkit import Chem
 
-from screen.structures import (StructureOptions, build_structure, conformer_count, read_structures,
-                               run_structures, truncate_side_chains)
+from screen.structures import (
+    StructureOptions,
+    build_structure,
+    conformer_count,
+    read_structures,
+    run_structures,
+    truncate_side_chains,
+)
 
 
 def test_conformer_count_grows_with_rotors():
