@@ -76,7 +76,7 @@ ANCHORS: tuple[Anchor, ...] = (
            f"[#6]1(=[#6])[#16][#6](=[#16])[#7]([CH2][CX3](=O){_ACID_O})[#6]1=O",
            "rhodanine-3-acetic acid: anchor of the indoline dye family"),
     Anchor("salicylate", f"[OX2H1,OX1-]c:c[CX3](=O){_ACID_O}", "salicylic acid: chelating anchor"),
-    Anchor("hydroxamic acid", f"[CX3](=O)[NX3][OX2H1,OX1-]", "hydroxamic acid: water-stable chelating anchor"),
+    Anchor("hydroxamic acid", "[CX3](=O)[NX3][OX2H1,OX1-]", "hydroxamic acid: water-stable chelating anchor"),
     Anchor("phosphonic acid", f"[PX4](=O)({_ACID_O})[OX2]", "phosphonic acid: strong, water-stable anchor"),
     Anchor("sulfonic acid", f"[SX4](=O)(=O){_ACID_O}", "sulfonic acid: weak anchor to oxides"),
     Anchor("boronic acid", f"[BX3]({_ACID_O}){_ACID_O}", "boronic acid"),

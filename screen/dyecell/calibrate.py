@@ -5,15 +5,17 @@ Two linear models are fitted on the dye reference set
 organic sensitisers, converted to V vs NHE, and their E₀₋₀), computed with
 *exactly* the candidates' protocol:
 
-* ``e_ox``: E(S⁺/S) [V vs NHE] ← ΔSCF IP (optionally + HOMO energy).  Fitting
+* ``e_ox``: E(S⁺/S) [V vs NHE] ← ΔSCF IP, the ΔSCF IP in a dielectric
+  continuum (``xtb_ip_film_ev``, when the levels carry it) or IP + HOMO energy.  Fitting
   directly on potentials vs NHE absorbs in the intercept the absolute NHE
   potential (4.44 V, Trasatti [1]_), the solvation of the cation and the
   reference-electrode conventions of the sources; the fitted intercept is
   recorded.  The potentials are solution values (DMF, CH₂Cl₂, MeCN) as the
   sources report them; a dye adsorbed on TiO₂ is typically within ~0.1 V.
-* ``e00``: E₀₋₀ [eV] ← orbital gap, ΔSCF fundamental gap, or both (and, when
-  the levels carry it, the singlet–triplet descriptor ``xtb_k_hl_ev`` of
-  :mod:`screen.excitation`).  E₀₋₀ is a *solution-phase* optical gap (mostly
+* ``e00``: E₀₋₀ [eV] ← orbital gap, ΔSCF fundamental gap, or both; when the
+  levels carry the HOMO→LUMO exchange integral ``xtb_k_hl_ev``
+  (:mod:`screen.excitation`) also the single-configuration singlet estimate
+  gap + 2K and gap with K as two features.  E₀₋₀ is a *solution-phase* optical gap (mostly
   the intersection of normalised absorption and emission, some absorption
   onsets; ``e00_method`` in the reference file).  Film effects (aggregation,
   deprotonation on the oxide) are not modelled: their spread is part of the
@@ -53,7 +55,7 @@ from screen.errors import CalculationError, ConfigError
 from screen.io import read_json, write_json
 from screen.provenance import library_versions, sha256_file
 
-__all__ = ["REFERENCE_FILE", "MODELS_DIR", "TARGETS", "MIN_GAIN", "reference_table", "reference_input",
+__all__ = ["REFERENCE_FILE", "MODELS_DIR", "TARGETS", "DERIVED", "MIN_GAIN", "needed_columns", "reference_table", "reference_input",
            "join_computed", "feature_matrix", "fit_target", "fit_models", "save_models", "load_models",
            "model_folder", "apply_models", "elements_of"]
 
@@ -67,13 +69,39 @@ MIN_GAIN = 0.01
 #: the two models: target column, unit and candidate feature sets (simplest first)
 TARGETS: dict[str, dict] = {
     "e_ox": {"target": "e_ox_v_nhe", "unit": "V", "column": "e_ox_v_nhe", "sigma": "e_ox_sigma_v",
-             "features": [["xtb_ip_ev"], ["xtb_ip_ev", "xtb_homo_ev"]]},
+             "features": [["xtb_ip_ev"], ["xtb_ip_film_ev"], ["xtb_ip_ev", "xtb_homo_ev"]]},
     "e00": {"target": "e00_ev", "unit": "eV", "column": "e00_ev", "sigma": "e00_sigma_ev",
-            "features": [["xtb_gap_ev"], ["xtb_fund_ev"], ["xtb_gap_ev", "xtb_fund_ev"],
+            "features": [["xtb_gap_ev"], ["xtb_fund_ev"], ["xtb_s1_ev"], ["xtb_gap_ev", "xtb_fund_ev"],
                          ["xtb_gap_ev", "xtb_k_hl_ev"]]},
 }
+#: derived features: name → (columns it needs, function of the frame)
+DERIVED = {
+    "xtb_fund_ev": (["xtb_ip_ev", "xtb_ea_ev"], lambda f: _num(f, "xtb_ip_ev") - _num(f, "xtb_ea_ev")),
+    # single-configuration singlet estimate Δε + 2K (Grimme, J. Chem. Phys. 138 (2013) 244104)
+    "xtb_s1_ev": (["xtb_gap_ev", "xtb_k_hl_ev"], lambda f: _num(f, "xtb_gap_ev") + 2.0 * _num(f, "xtb_k_hl_ev")),
+}
 _RAW = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev"]
-_OPTIONAL_RAW = ["xtb_k_hl_ev"]
+_OPTIONAL_RAW = ["xtb_k_hl_ev", "xtb_j_hl_ev", "xtb_ip_film_ev", "xtb_ea_film_ev"]
+
+
+def _num(frame: pd.DataFrame, col: str) -> np.ndarray:
+    return pd.to_numeric(frame[col], errors="coerce").to_numpy(float)
+
+
+def needed_columns(features: list[str]) -> list[str]:
+    """Levels columns a feature list needs (derived features expanded).
+
+    Examples
+    --------
+    >>> needed_columns(["xtb_fund_ev", "xtb_homo_ev"])
+    ['xtb_ip_ev', 'xtb_ea_ev', 'xtb_homo_ev']
+    """
+    out: list[str] = []
+    for f in features:
+        for c in (DERIVED[f][0] if f in DERIVED else [f]):
+            if c not in out:
+                out.append(c)
+    return out
 
 
 # --------------------------------------------------------------------------- reference data
@@ -159,25 +187,15 @@ def join_computed(ref: pd.DataFrame, computed: pd.DataFrame) -> pd.DataFrame:
 
 
 def feature_matrix(frame: pd.DataFrame, names: list[str]) -> np.ndarray:
-    """Feature columns; ``xtb_fund_ev`` = xtb_ip_ev − xtb_ea_ev is derived. [eV]"""
-    cols = []
-    for name in names:
-        if name == "xtb_fund_ev":
-            cols.append(pd.to_numeric(frame["xtb_ip_ev"], errors="coerce").to_numpy(float)
-                        - pd.to_numeric(frame["xtb_ea_ev"], errors="coerce").to_numpy(float))
-        else:
-            cols.append(pd.to_numeric(frame[name], errors="coerce").to_numpy(float))
+    """Feature columns [eV]; derived ones (:data:`DERIVED`: ``xtb_fund_ev`` = IP − EA, ``xtb_s1_ev`` = gap + 2K)
+    are computed."""
+    cols = [DERIVED[name][1](frame) if name in DERIVED else _num(frame, name) for name in names]
     return np.column_stack(cols) if cols else np.zeros((len(frame), 0))
 
 
 def _available(frame: pd.DataFrame, feats: list[str]) -> bool:
-    for f in feats:
-        if f == "xtb_fund_ev":
-            if not {"xtb_ip_ev", "xtb_ea_ev"} <= set(frame.columns):
-                return False
-        elif f not in frame or pd.to_numeric(frame[f], errors="coerce").isna().any():
-            return False
-    return True
+    cols = needed_columns(feats)
+    return all(c in frame for c in cols) and bool(np.all(np.isfinite(feature_matrix(frame, feats))))
 
 
 # --------------------------------------------------------------------------- fitting
@@ -402,8 +420,7 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict]) -> pd.DataFrame:
     for name, spec in TARGETS.items():
         m = models[name]
         model = LinearLevelModel.from_dict(m["model"])
-        need = [c for f in model.features for c in (["xtb_ip_ev", "xtb_ea_ev"] if f == "xtb_fund_ev" else [f])]
-        missing = [c for c in need if c not in levels]
+        missing = [c for c in needed_columns(model.features) if c not in levels]
         if missing:
             raise ConfigError(f"the dye model {name} needs levels column(s) {missing}; the levels file lacks them "
                               "(computed with another protocol or not a run's levels.csv)")

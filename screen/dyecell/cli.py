@@ -1,8 +1,9 @@
 """The ``dascreen dyecell`` sub-command: rank sensitiser dyes for an oxide and a mediator.
 
 ``dascreen dyecell CANDIDATES --oxide ID --mediator ID`` runs the shared stages
-(prepare, structures, electronic, levels — the same workflow and protocol as
-``dascreen run``) and then the dye-cell ranking; ``--levels FILE`` ranks an
+(prepare, structures, electronic — the same workflow, protocol and results
+store as ``dascreen run``), joins the raw values into
+``OUT/dyecell/levels_raw.csv`` and ranks; ``--levels FILE`` ranks an
 existing levels file (a run's ``levels.csv`` or a file of measured dye
 potentials) in seconds; ``--list`` prints the oxide and mediator libraries;
 ``--refit`` computes the dye reference set with the run's protocol and installs
@@ -23,7 +24,12 @@ __all__ = ["add_dyecell", "cmd_dyecell"]
 def _print_libraries() -> None:
     import pandas as pd
 
-    from screen.dyecell.library import MEDIATORS_FILE, OXIDES_FILE, load_mediators, load_oxides
+    from screen.dyecell.library import (
+        MEDIATORS_FILE,
+        OXIDES_FILE,
+        load_mediators,
+        load_oxides,
+    )
 
     with pd.option_context("display.width", 200, "display.max_colwidth", 60):
         ox = load_oxides()[["id", "type", "band_edge", "band_edge_v_nhe", "from_memory", "name"]]
@@ -76,11 +82,38 @@ def _refit(args, cfg, out: Path) -> Path:
     return folder
 
 
+def _default_levels(out: Path) -> Path:
+    """``OUT/dyecell/levels_raw.csv`` of an earlier ``dascreen dyecell`` run, else ``OUT/levels.csv``."""
+    raw = out / "dyecell" / "levels_raw.csv"
+    return raw if raw.is_file() else out / "levels.csv"
+
+
+def _compute(args, cfg, out: Path) -> Path | None:
+    """The shared stages for the candidates (prepare, structures, electronic) and their raw levels file.
+
+    Only the molecules' ΔSCF values are needed, so the bulk-heterojunction
+    calibration of the protocol is not run; the results store and the journals
+    make a repeated run free.
+    """
+    from screen.dyecell.stage import raw_levels
+    from screen.launch import run_workflow
+
+    prepared = out / "work" / "candidates" / "prepared"
+    rc = run_workflow(cfg, out, args.cores, [str(prepared)], verbose=args.verbose)
+    if rc == 0:
+        shards = sorted(prepared.glob("shard-*.csv"))
+        targets = [str(out / "work" / "candidates" / "electronic" / s.name) for s in shards]
+        rc = run_workflow(cfg, out, args.cores, targets, verbose=args.verbose) if targets else 0
+    if rc != 0:
+        print(f"dascreen: the workflow stopped with exit code {rc}; job logs in {out}/logs/", file=sys.stderr)
+        return None
+    return raw_levels(out, cfg)
+
+
 def cmd_dyecell(args) -> int:
     """Run the shared stages if needed, then rank the dyes for one oxide and one mediator."""
     from screen.cli import EXIT_ERROR, EXIT_OK, _load, _print_summary
     from screen.dyecell.stage import run_dyecell
-    from screen.launch import run_workflow
     from screen.preflight import check_candidates, check_out
 
     if args.list:
@@ -96,14 +129,13 @@ def cmd_dyecell(args) -> int:
     cfg = _load(args, extra)
     if args.refit:
         _refit(args, cfg, out)
+    computed = None
     if args.candidates:
-        rc = run_workflow(cfg, out, args.cores, [str(out / "levels.csv")], verbose=args.verbose)
-        if rc != 0:
-            print(f"dascreen: the workflow stopped with exit code {rc}; see the log above and {out}/logs/",
-                  file=sys.stderr)
+        computed = _compute(args, cfg, out)
+        if computed is None:
             return EXIT_ERROR
-        _print_summary(out / "levels.csv")
-    levels = Path(args.levels) if args.levels else out / "levels.csv"
+        _print_summary(computed)
+    levels = Path(args.levels) if args.levels else computed or _default_levels(out)
     if not levels.is_file():
         if args.refit and not args.candidates:
             return EXIT_OK

@@ -193,8 +193,8 @@ def _potential_from_row(row: dict, base: str, where: str) -> tuple[float, str]:
     if col.endswith("_v_nhe"):
         return value, ""
     if col.endswith("_ev"):
-        return float(nhe_from_vacuum_ev(value)), f"{col} = {value} eV (vacuum) → V vs NHE with the absolute " \
-                                                 "NHE potential 4.44 V (Trasatti 1986)"
+        note = f"{col} = {value} eV (vacuum) → V vs NHE with the absolute NHE potential 4.44 V (Trasatti 1986)"
+        return float(nhe_from_vacuum_ev(value)), note
     reference = _text(row.get("reference"))
     if not reference:
         raise InputError(f"{where}: {col} needs a reference column (NHE, SCE, Ag/AgCl, Fc with a solvent)")

@@ -70,7 +70,12 @@ from screen.dyecell.flags import join_flags
 from screen.dyecell.library import Material
 from screen.dyecell.options import option_defaults
 from screen.errors import ConfigError
-from screen.spectrum import incident_power_w_m2, jsc_ma_cm2, reference_spectrum, sq_limit
+from screen.spectrum import (
+    incident_power_w_m2,
+    jsc_ma_cm2,
+    reference_spectrum,
+    sq_limit,
+)
 
 __all__ = ["DyeCellModel", "evaluate", "sample_pce", "TOL_EV"]
 

@@ -171,7 +171,7 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
                 raise InputError(f"{where}, row {i + 1} (id {frame['id'].iloc[i]!r}): e_ox_v needs e_ox_reference")
             e_ox[i] = float(to_nhe(raw[i], refs.iloc[i], solv.iloc[i]))
     smiles = _text_col(frame, "smiles")
-    anchors, anchored, known, uncal, _ = _structure_checks(smiles, set())
+    anchors, anchored, known, _, _ = _structure_checks(smiles, set())
     if "anchor" in frame:
         given = _text_col(frame, "anchor").str.strip()
         for i in np.flatnonzero(given.ne("").to_numpy()):

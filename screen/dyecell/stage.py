@@ -31,16 +31,63 @@ from screen.dyecell.flags import describe
 from screen.dyecell.library import Material, resolve_mediator, resolve_oxide
 from screen.dyecell.model import DyeCellModel
 from screen.dyecell.options import RankOptions, option_defaults
-from screen.dyecell.rank import DYE_COLUMNS, EXTRA_COLUMNS, RANKING_COLUMNS, dye_table, dyes_from_file, rank_dyes
+from screen.dyecell.rank import (
+    DYE_COLUMNS,
+    EXTRA_COLUMNS,
+    RANKING_COLUMNS,
+    dye_table,
+    dyes_from_file,
+    rank_dyes,
+)
 from screen.errors import InputError
 from screen.io import read_json, write_csv, write_json
 from screen.provenance import library_versions, sha256_file
 
-__all__ = ["read_input", "build_dye_table", "write_shortlist", "run_dyecell", "ranking_folder"]
+__all__ = ["read_input", "build_dye_table", "write_shortlist", "run_dyecell", "ranking_folder", "raw_levels"]
 
 _SD_PROPS = ["rank", "id", "name", "oxide", "mediator", "e_ox_v_nhe", "e_ox_sigma_v", "e00_ev", "e00_sigma_ev",
              "e_ox_excited_v_nhe", "drive_inj_ev", "drive_reg_ev", "anchors", "voc_v", "jsc_ma_cm2", "ff", "pce_pct",
              "pce_sigma_pct", "p_above_target", "flags", "smiles"]
+
+
+def raw_levels(out_dir: str | Path, config, batch: str = "candidates") -> Path:
+    """``OUT/dyecell/levels_raw.csv``: a batch's rows joined with their raw xTB values, without calibration.
+
+    The dye models need only the raw ``xtb_*`` columns, so the dye-cell mode
+    does not wait for the bulk-heterojunction calibration of the protocol: the
+    workflow's prepare, structures and electronic stages are run for the batch
+    and this function performs the join of the levels stage
+    (:func:`screen.levels.assemble`, polymers at their chain limit).
+
+    Parameters
+    ----------
+    out_dir : path-like
+        The run folder (``OUT/work/<batch>/prepared`` and ``electronic`` exist).
+    config : screen.config.Config
+        The run's configuration (its protocol id goes into the sidecar).
+
+    Returns
+    -------
+    pathlib.Path
+        The levels file; its sidecar records the protocol and library versions.
+    """
+    from screen.config import Config
+    from screen.provenance import provenance
+    from screen.stages import _read_computed
+
+    cfg = Config.of(config)
+    work = Path(out_dir) / "work" / batch
+    shards = sorted((work / "prepared").glob("shard-*.csv"))
+    missing = [str(work / "electronic" / s.name) for s in shards if not (work / "electronic" / s.name).is_file()]
+    if missing:
+        raise InputError(f"the batch {batch} in {out_dir} is not computed yet (missing {missing[0]})")
+    levels, _ = _read_computed(work / "prepared" / "manifest.csv", [work / "electronic" / s.name for s in shards],
+                               cfg)
+    target = Path(out_dir) / "dyecell" / "levels_raw.csv"
+    write_csv(levels, target)
+    write_json({**provenance(cfg), "batch": batch, "scale": "none (raw xTB values; dye models calibrate them)",
+                "input": cfg["candidates"]}, Path(f"{target}.meta.json"))
+    return target
 
 
 def read_input(path: str | Path) -> tuple[str, pd.DataFrame, dict | None]:

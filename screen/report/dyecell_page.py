@@ -29,7 +29,18 @@ from screen.io import atomic_path
 from screen.report.drawings import molecule_svg
 from screen.report.dyecell_figure import DIAGRAM_MAX, dyecell_diagram_svg
 from screen.report.export import safe_csv_frame
-from screen.report.format import NOT_RECORDED, data_value, esc, fmt, get, num, pm_html, shorten, text, truthy
+from screen.report.format import (
+    NOT_RECORDED,
+    data_value,
+    esc,
+    fmt,
+    get,
+    num,
+    pm_html,
+    shorten,
+    text,
+    truthy,
+)
 from screen.report.page import static_text
 
 __all__ = ["render_dyecell_report", "write_dyecell_report", "EXPORTS"]
