@@ -103,8 +103,10 @@ def test_acceptor_candidates_against_a_donor_partner():
     from screen.devicepars import load_fitted
 
     fit = rank_candidates(lv, donor).iloc[0]
-    loss = load_fitted().loss_ev["pooled"]
-    assert fit["voc_v"] == pytest.approx(min(-4.05 - donor.homo_ev, 1.4) - loss, abs=1e-4)
+    pars = load_fitted()
+    e_ct = min(-4.05 - donor.homo_ev, 1.4)
+    loss = float(pars.loss_at(pars.loss_ev["pooled"], e_ct))  # the fitted loss at this pair's E_CT
+    assert fit["voc_v"] == pytest.approx(e_ct - loss, abs=1e-4)
     assert fit["model"] == "fitted" and "loss_class_pooled" in fit["flags"]
 
 
