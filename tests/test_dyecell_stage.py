@@ -207,3 +207,16 @@ def test_cli_ranks_a_measured_file_and_refuses_film_levels(tmp_path, capsys):
     assert main(["dyecell", "--levels", str(film), "--out", str(tmp_path / "o2")]) == 2
     assert "vacuum-scale levels" in capsys.readouterr().err
     assert main(["dyecell", "--levels", str(f), "--out", str(tmp_path / "o3"), "--oxide", "unobtainium"]) == 2
+
+
+def test_dye_candidates_keep_role_as_input_role(tmp_path):
+    from screen.dyecell.cli import _dye_candidates
+
+    src = tmp_path / "dyes.csv"
+    src.write_text("id,smiles,role\nd1,OC(=O)c1ccccc1,dye\n")
+    out = _dye_candidates(src, tmp_path / "o")
+    frame = pd.read_csv(out, dtype=str)
+    assert list(frame.columns) == ["id", "smiles", "input_role"] and frame.loc[0, "input_role"] == "dye"
+    plain = tmp_path / "plain.csv"
+    plain.write_text("id,smiles\nd1,OC(=O)c1ccccc1\n")
+    assert _dye_candidates(plain, tmp_path / "o2") == plain

@@ -110,6 +110,30 @@ def _compute(args, cfg, out: Path) -> Path | None:
     return raw_levels(out, cfg)
 
 
+def _dye_candidates(candidates: Path, out: Path, write: bool = True) -> Path:
+    """The candidate list for the shared stages: a CSV's ``role`` column is kept as ``input_role``.
+
+    Roles (donor/acceptor) mean nothing in a dye cell, and the prepare stage
+    rejects any other value (e.g. ``dye``); the copy keeps every row and column.
+    Other files are used as they are.
+    """
+    import pandas as pd
+
+    from screen.io import write_csv
+
+    if candidates.suffix.lower() != ".csv":
+        return candidates
+    frame = pd.read_csv(candidates, dtype=str, keep_default_na=False)
+    if "role" not in frame.columns:
+        return candidates
+    target = out / "dyecell" / "candidates.csv"
+    if not write:
+        return target
+    write_csv(frame.rename(columns={"role": "input_role"}), target)
+    print(f"dascreen: the dye-cell mode ignores the role column; kept as input_role in {target}")
+    return target
+
+
 def cmd_dyecell(args) -> int:
     """Run the shared stages if needed, then rank the dyes for one oxide and one mediator."""
     from screen.cli import EXIT_ERROR, EXIT_OK, _load, _print_summary
@@ -122,9 +146,10 @@ def cmd_dyecell(args) -> int:
     out = Path(args.out).resolve()
     extra = {"dyecell": {"oxide": args.oxide, "mediator": args.mediator, "target_pce_pct": args.target_pce}}
     if args.candidates:
-        candidates = Path(args.candidates)
-        check_candidates(candidates)
-        check_out(out, candidates, overwrite=args.overwrite)
+        given = Path(args.candidates).resolve()
+        check_candidates(given)
+        check_out(out, _dye_candidates(given, out, write=False), overwrite=args.overwrite)
+        candidates = _dye_candidates(given, out)
         extra.update({"candidates": str(candidates.resolve()), "out": str(out)})
     cfg = _load(args, extra)
     if args.refit:
