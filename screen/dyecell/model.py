@@ -314,6 +314,34 @@ def _tables():
     return jsc, np.diff(jsc), sq, np.diff(sq)
 
 
+def _block_samples(model: DyeCellModel, eo: np.ndarray, eg: np.ndarray, oxide: Material, mediator: Material,
+                   dead: np.ndarray):
+    """PCE samples [%] and the viable-sample mask of one block (rows: dyes, columns: samples).
+
+    ``eo`` and ``eg`` hold the sampled E(S⁺/S) [V vs NHE] and E₀₋₀ [eV]; ``dead``
+    marks dyes whose every sample is 0 (missing input or no anchor).  Jsc and the
+    detailed-balance cap come from one uniform E₀₋₀ table (shared index).
+    """
+    jsc_t, jsc_d, sq_t, sq_d = _tables()
+    thr_inj, thr_reg = model.min_drive_inj_ev - TOL_EV, model.reg_threshold_ev(mediator) - TOL_EV
+    e_edge, e_med = oxide.potential_v_nhe, mediator.potential_v_nhe
+    if oxide.type == "p":
+        ok = (eo - e_edge >= thr_inj) & (e_med - (eo - eg) >= thr_reg)
+        voc = e_edge - e_med - model.voc_loss_v
+    else:
+        ok = (e_edge - (eo - eg) >= thr_inj) & (eo - e_med >= thr_reg)
+        voc = e_med - e_edge - model.voc_loss_v
+    ok &= ~dead[:, None] & (voc > 0)
+    x = (eg - _GRID_MIN_EV) * (1.0 / _GRID_STEP_EV)
+    np.clip(x, 0.0, jsc_t.size - 1 - 1e-9, out=x)
+    idx = x.astype(np.intp)
+    x -= idx
+    pce = (jsc_t[idx] + x * jsc_d[idx]) * (model.photon_to_current * model.pce_factor_pct() * max(voc, 0.0))
+    np.minimum(pce, sq_t[idx] + x * sq_d[idx], out=pce)
+    pce *= ok
+    return pce, ok
+
+
 def sample_pce(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator: Material, *,
                e_ox_sigma_v=0.0, e00_sigma_ev=0.0, anchored=None, n_samples: int = 2000, seed: int = 20240601,
                target_pct: float = 8.0) -> dict:
@@ -377,36 +405,15 @@ def sample_pce(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediato
     anchored = np.ones(n, bool) if anchored is None else np.broadcast_to(np.asarray(anchored, bool), (n,))
     missing = ~(np.isfinite(e_ox) & np.isfinite(e00))
     z = np.random.default_rng(seed).standard_normal((2, n_samples))
-    jsc_t, jsc_d, sq_t, sq_d = _tables()
-    k = model.photon_to_current * model.pce_factor_pct()
-    thr_inj, thr_reg = model.min_drive_inj_ev - TOL_EV, model.reg_threshold_ev(mediator) - TOL_EV
-    p_type = oxide.type == "p"
-    e_edge, e_med = oxide.potential_v_nhe, mediator.potential_v_nhe
-    voc = (e_edge - e_med if p_type else e_med - e_edge) - model.voc_loss_v
-    dead = missing | (~anchored if model.require_anchor else np.zeros(n, bool)) | (voc <= 0)
-    eo_m = np.where(missing, 1.0, e_ox)
-    eg_m = np.where(missing, 2.0, e00)
-
+    dead = missing | (~anchored if model.require_anchor else np.zeros(n, bool))
     out_mean, out_sigma = np.full(n, np.nan), np.full(n, np.nan)
     out_p, out_v = np.full(n, np.nan), np.full(n, np.nan)
     rows = max(1, _BLOCK_ELEMENTS // n_samples)
-    last = jsc_t.size - 1 - 1e-9
     for a in range(0, n, rows):
         b = min(a + rows, n)
-        eo = eo_m[a:b, None] + s_ox[a:b, None] * z[0]
-        eg = eg_m[a:b, None] + s_gap[a:b, None] * z[1]
-        if p_type:
-            ok = (eo - e_edge >= thr_inj) & (e_med - (eo - eg) >= thr_reg)
-        else:
-            ok = (e_edge - (eo - eg) >= thr_inj) & (eo - e_med >= thr_reg)
-        ok &= ~dead[a:b, None]
-        x = (eg - _GRID_MIN_EV) * (1.0 / _GRID_STEP_EV)
-        np.clip(x, 0.0, last, out=x)
-        idx = x.astype(np.intp)
-        x -= idx
-        pce = (jsc_t[idx] + x * jsc_d[idx]) * (k * max(voc, 0.0))
-        np.minimum(pce, sq_t[idx] + x * sq_d[idx], out=pce)
-        pce *= ok
+        eo = np.where(missing[a:b], 1.0, e_ox[a:b])[:, None] + s_ox[a:b, None] * z[0]
+        eg = np.where(missing[a:b], 2.0, e00[a:b])[:, None] + s_gap[a:b, None] * z[1]
+        pce, ok = _block_samples(model, eo, eg, oxide, mediator, dead[a:b])
         out_v[a:b] = ok.mean(axis=1)
         out_p[a:b] = np.count_nonzero(pce > target_pct, axis=1) / n_samples
         out_mean[a:b] = pce.mean(axis=1)

@@ -199,6 +199,16 @@ def _bool_col(frame: pd.DataFrame, col: str, default: bool) -> np.ndarray:
                           in ("true", "1", "yes")).to_numpy(bool)
 
 
+def _flag_masks(d: pd.DataFrame, dev: dict, known: np.ndarray) -> dict[str, np.ndarray]:
+    """One boolean mask per flag code: the model's, the anchor check's and the calibration's."""
+    masks = {k: np.asarray(dev[k], bool) for k in ("input_missing", "no_anchor", "injection_low", "regeneration_low",
+                                                    "voc_nonpositive", "p_type_estimate", "detailed_balance_cap")}
+    masks["anchor_unknown"] = ~known
+    masks["element_uncalibrated"] = _text_col(d, "uncalibrated_elements").str.strip().ne("").to_numpy()
+    masks["outside_calibration"] = _bool_col(d, "outside_calibration", False)
+    return masks
+
+
 def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: DyeCellModel | None = None,
               options: RankOptions | None = None) -> pd.DataFrame:
     """Rank the ``ok`` dyes of a dye table for one oxide and one mediator (vectorised).
@@ -249,11 +259,7 @@ def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: Dy
     dev = evaluate(model, e_ox, e00, oxide, mediator, anchored)
     mc = sample_pce(model, e_ox, e00, oxide, mediator, e_ox_sigma_v=s_ox, e00_sigma_ev=s_gap, anchored=anchored,
                     n_samples=options.n_samples, seed=options.seed, target_pct=options.target_pce_pct)
-    masks = {k: np.asarray(dev[k], bool) for k in ("input_missing", "no_anchor", "injection_low", "regeneration_low",
-                                                    "voc_nonpositive", "p_type_estimate", "detailed_balance_cap")}
-    masks["anchor_unknown"] = ~known
-    masks["element_uncalibrated"] = _text_col(d, "uncalibrated_elements").str.strip().ne("").to_numpy()
-    masks["outside_calibration"] = _bool_col(d, "outside_calibration", False)
+    masks = _flag_masks(d, dev, known)
     failing = np.zeros(len(d), bool)
     for code, m in masks.items():
         if code not in INFO_FLAGS:
