@@ -47,8 +47,8 @@ _REGISTRY = (
                              "regeneration of the oxidised dye by the mediator is not assured"),
     Flag("voc_nonpositive", "the mediator potential lies beyond the oxide band edge: no photovoltage"),
     Flag("anchor_unknown", "no structure given, so the anchoring group could not be checked", "info"),
-    Flag("element_uncalibrated", "contains elements absent from the dye calibration set{elements}: E(S⁺/S) and "
-                                 "E₀₋₀ are extrapolations", "info"),
+    Flag("element_uncalibrated", "contains an element that no dye of the calibration set has{elements}: E(S⁺/S) "
+                                 "and E₀₋₀ are extrapolations", "info"),
     Flag("outside_calibration", "E(S⁺/S) or E₀₋₀ more than 0.1 V / 0.1 eV outside the range of the calibration "
                                 "dyes: an extrapolation", "info"),
     Flag("p_type_estimate", "p-type cell: the dye's reduction potential is estimated as E(S⁺/S) − E₀₋₀ (exciton "
@@ -103,7 +103,7 @@ def describe(code: str, settings: dict | None = None) -> str:
     return FLAGS[code].text.format(
         min_inj="the required minimum" if math.isnan(inj) else f"{inj:.2f} eV",
         min_reg="the required minimum" if math.isnan(reg) else f"{reg:.2f} eV",
-        elements=f" ({', '.join(elements)})" if elements else "",
+        elements=f" (the set covers {', '.join(elements)})" if elements else "",
     )
 
 

@@ -52,7 +52,7 @@ RANKING_COLUMNS = ["rank", "id", "smiles", "e_ox_v_nhe", "e00_ev", "e_ox_excited
                    "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "pce_sigma_pct", "p_above_target", "p_viable",
                    "passes", "flags", "viability"]
 #: columns after the contract ones
-EXTRA_COLUMNS = ["name", "e_ox_sigma_v", "e00_sigma_ev", "edge_nm"]
+EXTRA_COLUMNS = ["name", "e_ox_sigma_v", "e00_sigma_ev", "edge_nm", "uncalibrated_elements"]
 #: atomic numbers counted as non-metals (metalloids B, Si, Ge, As, Te included)
 NONMETALS = frozenset({1, 2, 5, 6, 7, 8, 9, 10, 14, 15, 16, 17, 18, 32, 33, 34, 35, 36, 52, 53, 54, 85, 86})
 _ROUND = 4
@@ -275,6 +275,7 @@ def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: Dy
         "p_above_target": mc["p_above_target"], "p_viable": mc["p_viable"], "passes": viable & ~failing,
         "flags": join_flags(masks), "viability": dev["viability"], "name": _text_col(d, "name"),
         "e_ox_sigma_v": s_ox, "e00_sigma_ev": s_gap, "edge_nm": np.asarray(gap_to_wavelength_nm(e00), float),
+        "uncalibrated_elements": _text_col(d, "uncalibrated_elements"),
     })
     num = ["e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "drive_inj_ev", "drive_reg_ev", "voc_v", "jsc_ma_cm2",
            "pce_pct", "pce_sigma_pct", "p_above_target", "p_viable", "e_ox_sigma_v", "e00_sigma_ev"]

@@ -113,21 +113,23 @@ def _model_card(meta: dict) -> str:
             if c:
                 unit = c.get("unit", "")
                 items.append((label, f"{esc(' + '.join(c.get('features', [])))}; n = {esc(c.get('n'))}; "
-                                     f"LOO MAE {fmt(c.get('loo_mae'), 3)} {esc(unit)} (constant model "
+                                     f"nested leave-one-out MAE {fmt(c.get('loo_mae'), 3)} {esc(unit)} (constant model "
                                      f"{fmt(c.get('baseline_loo_mae'), 3)} {esc(unit)})"))
     else:
         items.append(("Calibration", "measured potentials from the input file (no dye model)"))
     return '<section class="card" id="card-model"><h3>Cell model and calibration</h3>' + _dl(items) + "</section>"
 
 
-def _flags_html(cell, meta: dict) -> str:
+def _flags_html(cell, meta: dict, extra: dict | None = None) -> str:
+    """The flags of one row in plain words; ``extra`` adds row-specific text per code."""
     codes = codes_of(cell)
     if not codes:
         return '<span class="ok-note">no flags</span>'
     settings = {"model": get(meta, "model", default={}) or {}, "calibration": get(meta, "calibration",
                                                                                   default={}) or {}}
-    items = "".join(f'<li class="flag{" info" if c in INFO_FLAGS else ""}">{esc(describe(c, settings))}</li>'
-                    for c in codes)
+    extra = extra or {}
+    items = "".join(f'<li class="flag{" info" if c in INFO_FLAGS else ""}">{esc(describe(c, settings))}'
+                    f'{esc(extra.get(c, ""))}</li>' for c in codes)
     return f'<ul class="flags">{items}</ul>'
 
 
@@ -171,7 +173,9 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
         cells.append(f'<td data-value="{data_value(r.get("p_above_target"))}">{fmt(r.get("p_above_target"), 2)}</td>')
         cells.append(f'<td class="extra">{esc(r.get("anchors")) or "none found"}</td>')
         why = "" if truthy(r.get("viable")) else f'<p class="small">{esc(r.get("viability"))}</p>'
-        cells.append(f"<td>{why}{_flags_html(r.get('flags'), meta)}</td>")
+        own = text(r.get("uncalibrated_elements")).strip()
+        extra = {"element_uncalibrated": f"; this dye: {', '.join(own.split())}"} if own else {}
+        cells.append(f"<td>{why}{_flags_html(r.get('flags'), meta, extra)}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
     if not body:
         span = len(head)
