@@ -8,5 +8,12 @@ The second device family of dascreen.  It reuses every stage up to
 - :mod:`~screen.dyecell.anchors` — anchoring-group recognition (RDKit SMARTS);
 - :mod:`~screen.dyecell.calibrate` — E(S⁺/S) vs NHE and E₀₋₀ fitted on the dye reference set;
 - :mod:`~screen.dyecell.model` — driving forces, viability, Jsc, Voc, FF, PCE and its Monte-Carlo spread;
-- :mod:`~screen.dyecell.rank` — vectorised ranking; :mod:`~screen.dyecell.stage` — files in → files out.
+- :mod:`~screen.dyecell.rank` — vectorised ranking; :mod:`~screen.dyecell.stage` — files in → files out;
+- :mod:`~screen.dyecell.flags` (the flag registry), :mod:`~screen.dyecell.options` (the ``dyecell`` config
+  section), :mod:`~screen.dyecell.cli` (``dascreen dyecell``).
+
+The report page is :mod:`screen.report.dyecell_page` with the energy diagram of
+:mod:`screen.report.dyecell_figure`.  Files: ``OUT/dyecell/dyes.csv`` (the dye table, cached) and
+``OUT/dyecell/<oxide>--<mediator>/`` (``ranking.csv``, ``ranking.safe.csv``, ``ranking.meta.json``,
+``shortlist.sdf``, ``report.html``).
 """
