@@ -220,3 +220,22 @@ def test_dye_candidates_keep_role_as_input_role(tmp_path):
     plain = tmp_path / "plain.csv"
     plain.write_text("id,smiles\nd1,OC(=O)c1ccccc1\n")
     assert _dye_candidates(plain, tmp_path / "o2") == plain
+
+
+@pytest.mark.slow
+def test_cli_end_to_end_with_the_engine(tmp_path, capsys):
+    """Two small dyes through prepare, structures, electronic (xTB) and the dye-cell ranking."""
+    from screen.cli import main
+
+    src = tmp_path / "two.csv"
+    src.write_text("id,smiles,role\n"
+                   "anchored,OC(=O)C(C#N)=Cc1ccc(N(C)C)cc1,dye\n"
+                   "bare,N#CC(C#N)=Cc1ccc(N(C)C)cc1,dye\n")
+    out = tmp_path / "run"
+    assert main(["dyecell", str(src), "--out", str(out), "--cores", "1", "--set", "dyecell.n_samples=100"]) == 0
+    ranking = pd.read_csv(out / "dyecell" / "tio2-anatase--co-bpy3" / "ranking.csv", keep_default_na=False)
+    assert set(ranking["id"]) == {"anchored", "bare"}
+    row = ranking.set_index("id").loc["bare"]
+    assert "no_anchor" in row["flags"] and row["pce_pct"] == ""
+    meta = json.loads((out / "dyecell" / "levels_raw.csv.meta.json").read_text())
+    assert meta["protocol_id"] in {p.name for p in _shipped()}
