@@ -69,7 +69,8 @@ _REGISTRY = (
                              "role, so there is no donor/acceptor pair", _NV),
     Flag("no_type_ii_role", "no role given, and neither role gives a staggered (type-II) alignment with the "
                             "partner", _NV),
-    Flag("role_invalid", "the role given in the input is neither donor nor acceptor"),
+    Flag("role_invalid", "the role given in the input is neither donor nor acceptor (a sensitiser dye, role "
+                         "\"dye\", is screened with `dascreen dyecell`)"),
     Flag("is_partner", "this row is the partner material itself"),
     Flag("input_missing", "a level the device model needs is missing, so no efficiency could be estimated", _NV),
     Flag("absorber_gap_invalid", "the absorber's optical gap is not positive or lies beyond the solar spectrum "

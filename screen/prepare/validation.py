@@ -28,7 +28,7 @@ from screen.prepare.shards import MANIFEST_COLUMNS
 
 __all__ = ["validate"]
 
-_ROLES: frozenset[str] = frozenset({"donor", "acceptor", ""})
+_ROLES: frozenset[str] = frozenset({"donor", "acceptor", "dye", ""})
 
 
 def _join_notes(*parts: Iterable[str] | str) -> str:
@@ -169,7 +169,7 @@ def _check_row(
             reason, error = checked.reason, checked.error
         if not reason and role_raw.strip().lower() not in _ROLES:
             reason = "bad_role"
-            error = f"role {_snippet(role_raw)} is not one of 'donor', 'acceptor' or empty"
+            error = f"role {_snippet(role_raw)} is not one of 'donor', 'acceptor', 'dye' or empty"
         if not reason and ident in first_row_of_id:
             first = first_row_of_id[ident]
             reason = "duplicate_id"
