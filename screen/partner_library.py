@@ -27,7 +27,7 @@ LIBRARY_COLUMNS = ["id", "name", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "sc
                    "from_memory", "notes"]
 #: allowed roles
 ROLES = ("donor", "acceptor")
-#: allowed energy scales (design notes §2)
+#: allowed energy scales (docs/contracts.md §6)
 SCALES = ("film", "gas")
 
 _SIGMA = ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")
@@ -58,7 +58,7 @@ class Partner:
     homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev : float
         Standard uncertainties; 0 when not given. [eV]
     scale : str
-        ``'film'`` or ``'gas'`` (design notes §2).
+        ``'film'`` or ``'gas'`` (docs/contracts.md §6).
     source : str
         Where the numbers come from (citation, file path or protocol).
     slug : str

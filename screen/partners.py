@@ -2,7 +2,7 @@
 
 A partner is one levels row (HOMO, LUMO, optical gap, their σ, the energy
 scale and a role).  :func:`resolve_partner` accepts four kinds of
-specification (design notes §3):
+specification (docs/contracts.md §5):
 
 ``<library id>``
     A row of the built-in library ``screen/data/partners.csv`` (see

@@ -29,7 +29,7 @@ REF = "scharber-reference-acceptor"
 PUBLISHED = DeviceModel(model="scharber", absorber="donor")
 #: the same through a run configuration
 PUBLISHED_CFG = {"device": {"model": "scharber", "absorber": "donor"}}
-#: the ranking.csv contract of shared/design.md §3, written out independently of the module
+#: the ranking.csv contract of docs/contracts.md §5, written out independently of the module
 CONTRACT = ["rank", "id", "smiles", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "partner", "delta_lumo_ev",
             "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "pce_sigma_pct", "p_above_target", "passes",
             "flags"]

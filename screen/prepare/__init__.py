@@ -9,7 +9,7 @@ The package is laid out as :mod:`~screen.prepare.readers` (CSV, SMILES and SDF r
 canonical SMILES and structure keys live in :mod:`screen.chem`.  Everything a caller needs is
 importable from ``screen.prepare``.
 
-The prepare stage is the entry point of the pipeline (see ``design.md``, section 1).  It turns
+The prepare stage is the entry point of the pipeline (see ``docs/contracts.md``, §2).  It turns
 a user's candidate list into
 
 * ``manifest.csv`` -- one row for **every** input row, in input order, with a status
