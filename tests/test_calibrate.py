@@ -1,4 +1,4 @@
-"""Calibration: reference-set fits, held-out acene trend, fingerprints, energy scales."""
+"""Calibration: reference-set fits, held-out acenes and polymers, chain limit vs monomer, fingerprints, scales."""
 
 from __future__ import annotations
 
@@ -8,29 +8,42 @@ import shutil
 import numpy as np
 import pandas as pd
 import pytest
+from rdkit import Chem
 
 from conftest import ACENES, raw_levels
-from screen.calibrate import (CalibrationError, CalibrationMismatchError, LinearLevelModel, apply_models, find_models,
-                              fit_all, load_models, read_reference, stats_table)
+from screen.calibrate import (MODEL_NAMES, CalibrationError, CalibrationMismatchError, LinearLevelModel, apply_models,
+                              find_models, fit_all, load_models, read_reference, stats_table)
+from screen.calibration.optical import RED_SHIFT_RANGE_EV
+from screen.calibration.validation import raw_at_n
 from screen.config import load_config
 from screen.errors import CalculationError, ConfigError, exit_code
 
 # Published gas-phase values (the rows of models/reference/*.csv, where each has its source):
 # IP benzene 9.24 (ZEKE, Chewter et al., J. Chem. Phys. 86 (1987) 4737), naphthalene 8.14 (NIST WebBook),
-# anthracene 7.44 and pentacene 6.61 (NIST WebBook, from memory), tetracene 6.93 (ZEKE, Zhang, Pei, Kong,
-# doi:10.1063/1.2837467); EA benzene −1.12 (electron transmission, from memory), naphthalene −0.19 (ETS,
-# NIST WebBook), anthracene 0.53, tetracene 1.07 (from memory), pentacene 1.39 (from memory; 1.43 in a
-# newer measurement). Fundamental gap = IP − EA.
-FUND_GAP_EV = {"benzene": 10.36, "naphthalene": 8.33, "anthracene": 6.91, "tetracene": 5.86, "pentacene": 5.22}
-# Optical gaps, S1 0–0 in the gas phase (jet/vapour spectra, from memory; the same values as
-# models/reference/gap_optical.csv): 4.72, 3.97, 3.43, 2.78, 2.31 eV.
-OPT_GAP_EV = {"benzene": 4.72, "naphthalene": 3.97, "anthracene": 3.43, "tetracene": 2.78, "pentacene": 2.31}
+# anthracene 7.42 (Cockett, Kimura, doi:10.1063/1.466386), tetracene 6.93 (ZEKE, Zhang, Pei, Kong,
+# doi:10.1063/1.2837467), pentacene 6.61 (from memory); EA benzene −1.12 (electron transmission, from memory),
+# naphthalene −0.19 (ETS, NIST WebBook), anthracene 0.53 (J. Chem. Phys. 148 (2018) 234306), tetracene 1.06
+# (doi:10.1002/rcm.8021), pentacene 1.43 (from memory). Fundamental gap = IP − EA.
+FUND_GAP_EV = {"benzene": 10.36, "naphthalene": 8.33, "anthracene": 6.89, "tetracene": 5.87, "pentacene": 5.18}
+# Stated tolerance of the held-out fundamental gaps [eV] (about twice the models' LOO RMSE).
+FUND_TOL_EV = 0.4
 
-# Stated tolerances of the held-out predictions [eV] (about twice the models' LOO RMSE). Benzene's S1 is the
-# weak, symmetry-forbidden Lb band well below the strong absorption, which an orbital-gap model cannot see:
-# its optical tolerance is wider.
-FUND_TOL_EV = {"benzene": 0.4, "naphthalene": 0.4, "anthracene": 0.4, "tetracene": 0.4, "pentacene": 0.4}
-OPT_TOL_EV = {"benzene": 0.8, "naphthalene": 0.4, "anthracene": 0.4, "tetracene": 0.4, "pentacene": 0.4}
+# Film/solution absorption onsets of the acenes as quoted in issue 12 (from memory; ranges → midpoints):
+# benzene ≈ 4.7, naphthalene ≈ 3.9, anthracene 3.1–3.3, tetracene 2.4–2.6, pentacene 1.8–2.1 eV. The acenes are
+# held out of the fit and their film optical gaps must stay within 0.3 eV of these. Benzene's lowest singlet is
+# the weak, symmetry-forbidden Lb band far below the strong absorption: its tolerance is wider.
+FILM_ONSET_EV = {"benzene": 4.7, "naphthalene": 3.9, "anthracene": 3.2, "tetracene": 2.5, "pentacene": 1.95}
+FILM_ONSET_TOL_EV = {"benzene": 0.5, "naphthalene": 0.3, "anthracene": 0.3, "tetracene": 0.3, "pentacene": 0.3}
+
+# Published polymer film onsets (rows of models/reference/gap_series.csv, each with its source there):
+# polythiophene 1.95 eV (Vu et al., React. Funct. Polym. 65 (2005) 69, abstract read); PPV ≈ 2.2 eV for long
+# chains (Comoretto et al., Synth. Met. 119 (2001) 643, abstract read; 2.2–2.5 eV for ordinary films);
+# polyfluorene 2.95 eV (as quoted in J. Appl. Phys. 97 (2005) 103513, abstract read).
+POLYMER_ONSET_EV = {"[*]c1ccc([*])s1": 1.95, "[*]/C=C/c1ccc([*])cc1": 2.2,
+                    "[*]c1ccc2c(c1)C(C)(C)c1cc([*])ccc1-2": 2.95}
+# Stated tolerance of a held-out polymer's chain-limit film optical gap [eV]: about twice the film LOO RMSE of
+# the optical-gap model plus the extrapolation uncertainty of an n ≤ 4 series.
+POLYMER_TOL_EV = 0.4
 
 # Leave-one-out MAE ceilings [eV], set a little above the statistics of the shipped default-protocol models
 # (see README accuracy table) so that a regression in the protocol or the data fails the suite.
@@ -59,6 +72,11 @@ def reference_raw(shipped):
 
 
 @pytest.fixture(scope="module")
+def reference_oligomers(shipped):
+    return pd.read_csv(shipped / "reference_oligomers.csv", dtype={"n": str}, keep_default_na=False, na_values=[""])
+
+
+@pytest.fixture(scope="module")
 def sets(cfg):
     return read_reference(cfg["calibration"]["reference"])
 
@@ -70,24 +88,25 @@ def test_shipped_models_meet_loo_ceilings(shipped, cfg):
     # issue floor: never looser than 0.25 eV (IP) and 0.30 eV (EA)
     assert models["ip"]["loo_mae_ev"] < 0.25 and models["ea"]["loo_mae_ev"] < 0.30
     table = stats_table(models)
-    assert list(table["model"]) == ["ip", "ea", "gap_opt", "homo_film", "lumo_film", "gap_opt_film"]
+    assert list(table["model"]) == list(MODEL_NAMES)
+    # every model is also validated by leaving one material family out, and polymers are in the film set
+    assert all(np.isfinite(models[n]["grouped_mae_ev"]) and models[n]["by_family"] for n in MODEL_NAMES)
+    assert models["homo_film"]["loo_by_representation"]["polymer"]["n"] >= 15
 
 
 def test_refit_from_stored_raw_values_reproduces_shipped_models(shipped, sets, reference_raw, cfg):
     refit = fit_all(sets, reference_raw)
     models = load_models(shipped, cfg)
-    for name in ("ip", "ea", "gap_opt"):
-        assert refit[name]["model"]["coef"] == pytest.approx(models[name]["model"]["coef"], abs=1e-9)
-        assert refit[name]["loo_mae_ev"] == pytest.approx(models[name]["loo_mae_ev"], abs=1e-9)
-    assert refit["homo_film"]["shift_ev"] == pytest.approx(models["homo_film"]["shift_ev"], abs=1e-9)
+    for name in MODEL_NAMES:
+        assert refit[name]["kind"] == models[name]["kind"]
+        assert refit[name]["loo_mae_ev"] == pytest.approx(models[name]["loo_mae_ev"], abs=1e-9), name
+        if "model" in models[name]:
+            assert refit[name]["model"]["coef"] == pytest.approx(models[name]["model"]["coef"], abs=1e-9)
 
 
 def test_protocol_has_not_drifted_from_the_shipped_raw_values(reference_raw):
     # recompute the acenes now with the current code and libraries: same raw numbers as when fitted
-    stored = reference_raw.set_index(reference_raw["smiles"].map(lambda s: s))
-    from rdkit import Chem
-
-    by_can = {Chem.CanonSmiles(s): row for s, row in stored.iterrows()}
+    by_can = {Chem.CanonSmiles(s): row for s, row in zip(reference_raw["smiles"], reference_raw.to_dict("records"))}
     for smi in ACENES.values():
         row = by_can[Chem.CanonSmiles(smi)]
         now = raw_levels(smi)
@@ -96,24 +115,58 @@ def test_protocol_has_not_drifted_from_the_shipped_raw_values(reference_raw):
 
 
 def _is_acene(name, smiles):
-    from rdkit import Chem
-
     return Chem.CanonSmiles(smiles) in {Chem.CanonSmiles(s) for s in ACENES.values()}
 
 
-def test_acene_trend_with_acenes_held_out(sets, reference_raw):
+def test_acenes_held_out_keep_film_gaps_near_published_onsets(sets, reference_raw):
     models = fit_all(sets, reference_raw, exclude=_is_acene)
-    for prop in ("ip", "ea", "gap_opt"):
-        assert all(not _is_acene(r["name"], r["smiles"]) for r in models[prop]["residuals"])
-    frame = pd.DataFrame([{"id": n, "status": "ok", **raw_levels(s)} for n, s in ACENES.items()])
-    levels = apply_models(frame, models, scale="gas")  # the published optical gaps are gas-phase S1 values
-    fund = levels["gap_fund_ev"].to_numpy()
-    opt = levels["gap_opt_ev"].to_numpy()
+    for name in MODEL_NAMES:
+        assert all(not _is_acene(r["name"], r["smiles"]) for r in models[name]["residuals"]), name
+    by_can = {Chem.CanonSmiles(s): row for s, row in zip(reference_raw["smiles"], reference_raw.to_dict("records"))}
+    frame = pd.DataFrame([{**by_can[Chem.CanonSmiles(s)], "id": n} for n, s in ACENES.items()])
+    film = apply_models(frame, models, scale="film")
+    gas = apply_models(frame, models, scale="gas")
+    fund = gas["gap_fund_ev"].to_numpy()
     assert np.all(np.diff(fund) < 0), fund
-    assert np.all(np.diff(opt) < 0), opt
+    assert np.all(np.diff(film["gap_opt_ev"].to_numpy()) < 0)
     for i, name in enumerate(ACENES):
-        assert abs(fund[i] - FUND_GAP_EV[name]) < FUND_TOL_EV[name], (name, fund[i])
-        assert abs(opt[i] - OPT_GAP_EV[name]) < OPT_TOL_EV[name], (name, opt[i])
+        assert abs(fund[i] - FUND_GAP_EV[name]) < FUND_TOL_EV, (name, fund[i])
+        assert abs(film["gap_opt_ev"].iloc[i] - FILM_ONSET_EV[name]) < FILM_ONSET_TOL_EV[name], (name, film.iloc[i])
+    # a small molecule is never shifted by more than the documented film red shift
+    shift = (gas["gap_opt_ev"] - film["gap_opt_ev"]).to_numpy()
+    assert np.allclose(shift, models["gap_opt_film"]["red_shift_ev"], atol=2e-4)
+    assert RED_SHIFT_RANGE_EV[0] <= shift.max() <= RED_SHIFT_RANGE_EV[1]
+
+
+def test_shipped_red_shift_is_physically_sensible(shipped, cfg):
+    gap = load_models(shipped, cfg)["gap_opt_film"]
+    # a film/solution red shift is ≈ 0.1–0.3 eV (common practice); the fit must land there by itself
+    assert gap["red_shift_in_range"] and RED_SHIFT_RANGE_EV[0] <= gap["red_shift_ev"] <= RED_SHIFT_RANGE_EV[1]
+    assert gap["red_shift_se_ev"] < 0.1
+
+
+def _film_loo_sum(models):
+    return sum(models[k]["loo_mae_ev"] for k in ("homo_film", "lumo_film", "gap_opt_film"))
+
+
+def test_chain_limit_beats_monomers_in_the_film_fit(sets, reference_raw, reference_oligomers):
+    chain = fit_all(sets, reference_raw)
+    monomer = fit_all(sets, raw_at_n(reference_raw, reference_oligomers, 1))
+    assert chain["homo_film"]["n"] == monomer["homo_film"]["n"]
+    assert _film_loo_sum(chain) < _film_loo_sum(monomer), (_film_loo_sum(chain), _film_loo_sum(monomer))
+
+
+@pytest.mark.parametrize("unit", list(POLYMER_ONSET_EV))
+def test_held_out_polymer_series_falls_with_n_to_the_published_onset(unit, sets, reference_raw, reference_oligomers):
+    can = Chem.CanonSmiles(unit)
+    models = fit_all(sets, reference_raw, exclude=lambda name, smiles: Chem.CanonSmiles(smiles) == can)
+    row = reference_raw[[Chem.CanonSmiles(s) == can for s in reference_raw["smiles"]]].iloc[0]
+    per_n = [raw_at_n(pd.DataFrame([row]), reference_oligomers, n) for n in range(1, int(row["chain_n_max"]) + 1)]
+    gaps = [apply_models(f, models, scale="film")["gap_opt_ev"].iloc[0] for f in per_n]
+    assert np.all(np.diff(gaps) < 0), gaps
+    limit = apply_models(pd.DataFrame([row]), models, scale="film")
+    assert limit["gap_opt_ev"].iloc[0] <= gaps[-1] + 1e-6
+    assert abs(limit["gap_opt_ev"].iloc[0] - POLYMER_ONSET_EV[unit]) < POLYMER_TOL_EV, (gaps, limit["gap_opt_ev"])
 
 
 def test_foreign_fingerprint_is_refused(shipped, cfg, tmp_path):
@@ -126,24 +179,28 @@ def test_foreign_fingerprint_is_refused(shipped, cfg, tmp_path):
     with pytest.raises(CalibrationMismatchError, match="does not belong to this run's protocol") as err:
         load_models(foreign, cfg)
     assert isinstance(err.value, ConfigError) and exit_code(err.value) == 2  # a configuration problem
-    # a different method in the run's config is refused by the shipped model too
+    # a different method, or other oligomer settings, in the run's config are refused by the shipped model too
     other = dict(cfg, electronic={**cfg["electronic"], "method": "GFN1-xTB"})
     with pytest.raises(CalibrationError, match="protocol_id"):
         load_models(shipped, other)
+    with pytest.raises(CalibrationError, match="polymer"):
+        load_models(shipped, dict(cfg, polymer={**cfg["polymer"], "n_max": 3}))
 
 
-def test_every_level_row_carries_its_scale(shipped, cfg):
+def test_every_level_row_carries_its_scale(shipped, cfg, reference_raw):
     models = load_models(shipped, cfg)
-    frame = pd.DataFrame([{"id": "a", "status": "ok", **raw_levels(ACENES["anthracene"])},
-                          {"id": "b", "status": "rejected", **{k: np.nan for k in raw_levels(ACENES["anthracene"])}}])
+    row = reference_raw[[Chem.CanonSmiles(s) == Chem.CanonSmiles(ACENES["anthracene"])
+                         for s in reference_raw["smiles"]]].iloc[0].to_dict()
+    frame = pd.DataFrame([{**row, "id": "a", "status": "ok"},
+                          {**{k: np.nan for k in row}, "id": "b", "status": "rejected"}])
     film = apply_models(frame, models, scale="film")
     gas = apply_models(frame, models, scale="gas")
     assert list(film["scale"]) == ["film", ""] and list(gas["scale"]) == ["gas", ""]
     assert gas.loc[0, "homo_ev"] == pytest.approx(-gas.loc[0, "ip_ev"], abs=1e-9)
     assert gas.loc[0, "lumo_ev"] == pytest.approx(-gas.loc[0, "ea_ev"], abs=1e-9)
-    # film levels lie above (HOMO) and below (LUMO) the gas levels by the polarisation shifts
+    # film levels lie above (HOMO) and below (LUMO) the gas levels: solid-state polarisation
     assert film.loc[0, "homo_ev"] > gas.loc[0, "homo_ev"] and film.loc[0, "lumo_ev"] < gas.loc[0, "lumo_ev"]
-    assert film.loc[0, "homo_sigma_ev"] >= gas.loc[0, "homo_sigma_ev"] > 0
+    assert film.loc[0, "homo_sigma_ev"] > 0 and gas.loc[0, "homo_sigma_ev"] > 0
     with pytest.raises(ConfigError, match="'film' or 'gas'"):
         apply_models(frame, models, scale="solution")
 

@@ -1,0 +1,174 @@
+"""Linear models with prediction intervals, constant shifts, leave-one-out and grouped statistics.
+
+Examples
+--------
+>>> import numpy as np
+>>> x = np.array([[1.0], [2.0], [3.0], [4.0]]); y = np.array([2.1, 3.9, 6.1, 7.9])
+>>> m = LinearLevelModel(["x"]).fit(x, y)
+>>> round(float(m.coef_[0]), 2), round(float(m.intercept_), 2)
+(1.96, 0.1)
+>>> mean, std = m.predict(np.array([[2.5]]), return_std=True)
+>>> round(float(mean[0]), 2), bool(std[0] > 0)
+(5.0, True)
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from screen.errors import CalculationError
+
+__all__ = ["CalibrationError", "LinearLevelModel", "FilmShift", "DERIVED", "feature_matrix", "loo_predictions",
+           "grouped_predictions", "stats", "MIN_GAIN_EV"]
+
+#: a more complex feature set must lower the LOO MAE by more than this [eV]
+MIN_GAIN_EV = 0.01
+
+
+class CalibrationError(CalculationError):
+    """A calibration model could not be fitted or read (too few points, a missing or broken file)."""
+
+
+def _col(frame: pd.DataFrame, name: str) -> np.ndarray:
+    if name not in frame:
+        raise CalibrationError(f"feature {name!r} is not in the computed values (columns: "
+                               f"{', '.join(c for c in frame.columns if c.startswith('xtb_'))})")
+    return pd.to_numeric(frame[name], errors="coerce").to_numpy(float)
+
+
+#: derived features: name → (function of the frame, the raw columns it uses with their coefficients)
+DERIVED = {
+    "xtb_fund_ev": (lambda f: _col(f, "xtb_ip_ev") - _col(f, "xtb_ea_ev"), {"xtb_ip_ev": 1.0, "xtb_ea_ev": -1.0}),
+    # one HOMO→LUMO configuration: singlet ≈ Δε − J + 2K, triplet ≈ Δε − J (screen.excitation)
+    "xtb_s1_ev": (lambda f: _col(f, "xtb_gap_ev") + 2.0 * _col(f, "xtb_k_hl_ev"),
+                  {"xtb_gap_ev": 1.0, "xtb_k_hl_ev": 2.0}),
+    "xtb_s1j_ev": (lambda f: _col(f, "xtb_gap_ev") - _col(f, "xtb_j_hl_ev") + 2.0 * _col(f, "xtb_k_hl_ev"),
+                   {"xtb_gap_ev": 1.0, "xtb_j_hl_ev": -1.0, "xtb_k_hl_ev": 2.0}),
+}
+
+
+def feature_matrix(frame: pd.DataFrame, names: list[str]) -> np.ndarray:
+    """Columns of ``frame`` (or :data:`DERIVED` features) as a float matrix, one column per name."""
+    return np.column_stack([DERIVED[n][0](frame) if n in DERIVED else _col(frame, n) for n in names])
+
+
+def raw_weights(names: list[str], coef) -> dict[str, float]:
+    """d(prediction)/d(raw column) of a linear model: how a raw column's uncertainty propagates."""
+    out: dict[str, float] = {}
+    for name, c in zip(names, coef):
+        for raw, w in (DERIVED[name][1] if name in DERIVED else {name: 1.0}).items():
+            out[raw] = out.get(raw, 0.0) + float(c) * w
+    return out
+
+
+@dataclass
+class LinearLevelModel:
+    """Ordinary least squares ``y = X·coef + intercept`` with prediction intervals.
+
+    The prediction standard deviation of a new point x₀ is
+    ``s·sqrt(1 + x̃₀ᵀ (X̃ᵀX̃)⁻¹ x̃₀)`` with X̃ = [1, X] and s the residual
+    standard error (n − p − 1 degrees of freedom), so σ grows with the leverage
+    of a candidate, i.e. its distance from the reference data.
+
+    Parameters
+    ----------
+    features : list of str
+        Column names of the features (``xtb_*`` columns, :data:`DERIVED` names or indicators).
+    """
+
+    features: list[str]
+    coef_: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    intercept_: float = 0.0
+    sigma_: float = 0.0
+    xtx_inv_: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
+
+    def fit(self, X: np.ndarray, y: np.ndarray) -> LinearLevelModel:
+        X = np.asarray(X, float)
+        y = np.asarray(y, float)
+        n, p = X.shape
+        if n < p + 2:
+            raise CalibrationError(f"{n} reference points are too few for {p} feature(s)")
+        Xt = np.column_stack([np.ones(n), X])
+        beta, *_ = np.linalg.lstsq(Xt, y, rcond=None)
+        self.intercept_, self.coef_ = float(beta[0]), beta[1:].astype(float)
+        resid = y - Xt @ beta
+        self.sigma_ = float(np.sqrt(np.sum(resid**2) / (n - p - 1)))
+        self.xtx_inv_ = np.linalg.pinv(Xt.T @ Xt)
+        return self
+
+    def predict(self, X: np.ndarray, return_std: bool = False):
+        X = np.asarray(X, float)
+        mean = X @ self.coef_ + self.intercept_
+        if not return_std:
+            return mean
+        Xt = np.column_stack([np.ones(len(X)), X])
+        lev = np.einsum("ij,jk,ik->i", Xt, self.xtx_inv_, Xt)
+        return mean, self.sigma_ * np.sqrt(1.0 + lev)
+
+    def to_dict(self) -> dict:
+        return {"features": self.features, "coef": self.coef_.tolist(), "intercept": self.intercept_,
+                "residual_sigma_ev": self.sigma_, "xtx_inv": self.xtx_inv_.tolist()}
+
+    @classmethod
+    def from_dict(cls, d: dict) -> LinearLevelModel:
+        return cls(list(d["features"]), np.asarray(d["coef"], float), float(d["intercept"]),
+                   float(d["residual_sigma_ev"]), np.asarray(d["xtx_inv"], float))
+
+
+@dataclass
+class FilmShift:
+    """A constant shift fitted as the mean of (film − base) differences; σ is the LOO scatter.
+
+    Examples
+    --------
+    >>> f = FilmShift("homo").fit(np.array([-7.0, -6.5, -6.2]), np.array([-5.8, -5.4, -5.0]))
+    >>> round(f.shift_ev, 3)
+    1.167
+    """
+
+    level: str
+    shift_ev: float = 0.0
+    sigma_ev: float = 0.0
+
+    def fit(self, base_ev: np.ndarray, film_ev: np.ndarray) -> FilmShift:
+        d = np.asarray(film_ev, float) - np.asarray(base_ev, float)
+        self.shift_ev = float(np.mean(d))
+        n = len(d)
+        loo = (self.shift_ev * n - d) / (n - 1) if n > 1 else np.full(n, self.shift_ev)
+        self.sigma_ev = float(np.sqrt(np.mean((d - loo) ** 2)))
+        return self
+
+    def predict(self, base_ev):
+        return np.asarray(base_ev, float) + self.shift_ev
+
+
+def loo_predictions(X: np.ndarray, y: np.ndarray, features: list[str]) -> np.ndarray:
+    """Leave-one-out predictions of a linear model (each point predicted by a fit without it)."""
+    return grouped_predictions(X, y, features, np.arange(len(y)))
+
+
+def grouped_predictions(X: np.ndarray, y: np.ndarray, features: list[str], groups) -> np.ndarray:
+    """Hold-out predictions: every group predicted by a fit on all other groups (NaN if too few left)."""
+    groups = np.asarray(groups)
+    pred = np.full(len(y), np.nan)
+    for g in pd.unique(groups):
+        test = groups == g
+        try:
+            pred[test] = LinearLevelModel(features).fit(X[~test], y[~test]).predict(X[test])
+        except CalibrationError:
+            pass
+    return pred
+
+
+def stats(y: np.ndarray, fit: np.ndarray, loo: np.ndarray) -> dict:
+    """n, R², LOO MAE / RMSE and largest LOO error [eV]."""
+    y, fit, loo = (np.asarray(a, float) for a in (y, fit, loo))
+    ss_res = float(np.sum((y - fit) ** 2))
+    ss_tot = float(np.sum((y - y.mean()) ** 2))
+    err = loo - y
+    return {"n": int(len(y)), "r2": 1.0 - ss_res / ss_tot if ss_tot > 0 else float("nan"),
+            "loo_mae_ev": float(np.mean(np.abs(err))), "loo_rmse_ev": float(np.sqrt(np.mean(err**2))),
+            "max_abs_error_ev": float(np.max(np.abs(err)))}
