@@ -30,6 +30,9 @@ def _describe(m: dict) -> str:
         return f"{m['base'].upper()} gas model {m['shift_ev']:+.3f} eV"
     d = m["model"]
     text = " ".join(f"{c:+.3f}·{f}" for c, f in zip(d["coef"], d["features"])) + f" {d['intercept']:+.3f}"
+    if m["kind"] == "joint" and "phase_film" not in d["features"]:
+        text += (f" −{m['red_shift_ev']:.2f}·[film] (red shift fixed in the common-practice range; "
+                 f"free fit {m['red_shift_free_ev']:.2f} eV)")
     return text.replace("phase_film", "[film]").replace("kind_maximum", "[max]")
 
 
