@@ -72,6 +72,8 @@ _REGISTRY = (
     Flag("role_invalid", "the role given in the input is neither donor nor acceptor (a sensitiser dye, role "
                          "\"dye\", is screened with `dascreen dyecell`)"),
     Flag("is_partner", "this row is the partner material itself"),
+    Flag("levels_inconsistent", "the computed levels are inconsistent (e.g. an optical gap above the transport "
+                                "gap): the molecule lies outside what the calibration covers", _NV),
     Flag("input_missing", "a level the device model needs is missing, so no efficiency could be estimated", _NV),
     Flag("absorber_gap_invalid", "the absorber's optical gap is not positive or lies beyond the solar spectrum "
                                  "(above 4.4 eV), so nothing is absorbed", _NV),

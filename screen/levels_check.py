@@ -30,7 +30,7 @@ import pandas as pd
 
 from screen.errors import InputError
 
-__all__ = ["check_levels", "check_partner", "row_problems", "GAP_EXCESS_TOL_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV"]
+__all__ = ["check_levels", "check_partner", "row_problems", "inconsistent_rows", "GAP_EXCESS_TOL_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV"]
 
 #: how much the optical gap may exceed LUMO − HOMO (CV and absorption onsets scatter by ~0.1–0.3 eV;
 #: common practice) [eV]
@@ -143,6 +143,28 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table") -> None:
         head = problems[0] if len(problems) == 1 else f"{len(problems)} problems{more}:\n  " + "\n  ".join(
             problems[:_MAX_LISTED])
         raise InputError(f"{source}: {head}")
+
+
+def inconsistent_rows(frame: pd.DataFrame) -> np.ndarray:
+    """Rows of a levels table computed by dascreen whose levels fail :func:`row_problems`.
+
+    The run's own levels are never refused as a file: a molecule outside what the
+    calibration covers (e.g. a tiny molecule whose calibrated optical gap exceeds its
+    film transport gap) is marked not viable by the ranking instead
+    (flag ``levels_inconsistent``).
+
+    Examples
+    --------
+    >>> lv = pd.DataFrame({"homo_ev": [-5.4, -6.0], "lumo_ev": [-3.6, -2.0], "gap_opt_ev": [1.6, 4.8],
+    ...                    "scale": ["film", "film"]})
+    >>> inconsistent_rows(lv).tolist()
+    [False, True]
+    """
+    num = {c: (pd.to_numeric(frame[c], errors="coerce").to_numpy(dtype=float) if c in frame
+               else np.full(len(frame), np.nan)) for c in ("homo_ev", "lumo_ev", "gap_opt_ev")}
+    scale = frame["scale"].astype(str).to_numpy() if "scale" in frame else np.full(len(frame), "film")
+    return np.array([bool(row_problems(num["homo_ev"][i], num["lumo_ev"][i], num["gap_opt_ev"][i], scale[i]))
+                     for i in range(len(frame))], dtype=bool)
 
 
 def check_partner(partner) -> None:

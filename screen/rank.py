@@ -63,7 +63,7 @@ from screen.flags import (
     join_flags,
     reason_of,
 )
-from screen.levels_check import check_levels, check_partner
+from screen.levels_check import check_levels, check_partner, inconsistent_rows
 from screen.partners import ROLES, Partner, PartnerError, complement
 from screen.rank_rows import heavy_atoms as _heavy_atoms
 from screen.rank_rows import numeric as _numeric
@@ -436,6 +436,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "no_type_ii_role": roles.no_type_ii_role,
         "role_invalid": roles.role_invalid,
         "is_partner": is_partner,
+        "levels_inconsistent": (inconsistent_rows(lv) if _computed_by_dascreen(lv) else np.zeros(n, dtype=bool)),
         **device,
         "gap_out_of_window": gap_out,
         "too_many_heavy_atoms": heavy_out,
@@ -443,6 +444,11 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "role_from_levels": roles.role_from_levels,
         "role_assumed": roles.role_assumed,
     }
+
+
+def _computed_by_dascreen(levels: pd.DataFrame) -> bool:
+    """A run's own levels.csv (raw engine columns present): problems are row flags, not file errors."""
+    return "xtb_ip_ev" in levels.columns
 
 
 def _viable(masks: dict[str, np.ndarray]) -> np.ndarray:
@@ -602,7 +608,8 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     model = DeviceModel() if model is None else model
     options = RankOptions() if options is None else options
     lv, not_ranked = _split_ranked(levels_df)
-    check_levels(levels_df[_ranked_mask(levels_df)], str(levels_df.attrs.get("source", "levels table")))
+    if not _computed_by_dascreen(levels_df):  # a user's own file: refuse impossible levels (exit 2)
+        check_levels(levels_df[_ranked_mask(levels_df)], str(levels_df.attrs.get("source", "levels table")))
     p_role, p_role_assumed = partner_role(lv, partner, options)
     attrs = {"partner_role": p_role, "partner_role_assumed": p_role_assumed, "not_ranked": not_ranked}
     if len(lv) == 0:

@@ -444,3 +444,17 @@ def test_each_rows_own_sigma_separates_candidates():
     assert r.loc["s0", "pce_pct"] == r.loc["s2", "pce_pct"]
     assert r.loc["s0", "pce_sigma_pct"] < r.loc["s1", "pce_sigma_pct"] < r.loc["s2", "pce_sigma_pct"]
     assert r.loc["s2", "homo_sigma_ev"] == 0.3
+
+
+def test_inconsistent_computed_levels_are_not_viable_rows_not_a_file_error():
+    # a run's own levels.csv (raw engine columns present): a tiny molecule whose calibrated optical gap
+    # exceeds its film transport gap is marked not viable instead of stopping the ranking; the same row in
+    # a user's own file (no engine columns) is refused with exit-code-2 InputError
+    rows = [{"id": "ok", "homo_ev": -5.4, "lumo_ev": -3.6, "gap_opt_ev": 1.6, "role": "donor", "xtb_ip_ev": 9.9},
+            {"id": "tiny", "homo_ev": -6.2, "lumo_ev": -1.8, "gap_opt_ev": 4.9, "role": "donor", "xtb_ip_ev": 12.0}]
+    r = rank_candidates(_levels(rows), resolve_partner("y6")).set_index("id")
+    assert bool(r.loc["ok", "viable"]) and not bool(r.loc["tiny", "viable"])
+    assert "levels_inconsistent" in r.loc["tiny", "flags"] and np.isnan(r.loc["tiny", "pce_pct"])
+    with pytest.raises(errors.InputError, match="optical gap"):
+        rank_candidates(_levels([{k: v for k, v in row.items() if k != "xtb_ip_ev"} for row in rows]),
+                        resolve_partner("y6"))
