@@ -168,7 +168,7 @@ def fit_all(sets: dict[str, pd.DataFrame], computed: pd.DataFrame, exclude=None)
     models = {prop: fit_property(prop, sets[prop], computed, exclude) for prop in PROPERTIES}
     models["gap_opt"], models["gap_opt_film"] = fit_gap(sets, computed, exclude)
     for level, gas in (("homo", "ip"), ("lumo", "ea")):
-        models[f"{level}_film"] = fit_film_level(level, sets["film"], computed, models[gas], exclude)
+        models[f"{level}_film"] = fit_film_level(level, sets["film"], computed, models[gas], exclude, sets[gas])
     return {name: models[name] for name in MODEL_NAMES}
 
 
@@ -280,7 +280,8 @@ def _predict(frame: pd.DataFrame, record: dict, **indicators) -> tuple[np.ndarra
 def _film_level(frame: pd.DataFrame, record: dict, gas: tuple[np.ndarray, np.ndarray]) -> tuple:
     if record["kind"] == "shift":  # gas model + constant: level = −gas + shift
         return -gas[0] + record["shift_ev"], np.hypot(gas[1], record["sigma_ev"])
-    mean, std = _predict(frame, record)
+    film = {"phase_film": 1} if "phase_film" in record["model"]["features"] else {}
+    mean, std = _predict(frame, record, **film)
     return record.get("sign", -1.0) * mean, std
 
 

@@ -55,7 +55,7 @@ POLYMER_TOL_EV = {"[*]c1ccc([*])s1": 0.3, "[*]/C=C/c1ccc([*])cc1": 0.6, "[*]c1cc
 
 # Leave-one-out MAE ceilings [eV], set a little above the statistics of the shipped default-protocol models
 # (see README accuracy table) so that a regression in the protocol or the data fails the suite.
-LOO_MAE_MAX_EV = {"ip": 0.15, "ea": 0.26, "gap_opt": 0.20, "homo_film": 0.17, "lumo_film": 0.23,
+LOO_MAE_MAX_EV = {"ip": 0.15, "ea": 0.26, "gap_opt": 0.20, "homo_film": 0.19, "lumo_film": 0.23,
                   "gap_opt_film": 0.19}
 
 
