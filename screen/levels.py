@@ -20,7 +20,8 @@ own fit (:func:`screen.extrapolate.extrapolate`, ``per_unit`` = the repeat unit'
 raw columns hold those limits, so the calibration treats a polymer like any
 molecule. Added columns: ``chain_n_max`` (longest oligomer computed),
 ``chain_fit`` (method per quantity, e.g. ``ip:kuhn ea:exp …``), ``chain_fit_quality``
-(``good``/``poor``; a poor fit adds a ``chain_fit_poor`` item to ``note``) and
+(``good``/``poor`` over :data:`QUALITY_QUANTITIES`; a poor fit adds a ``chain_fit_poor``
+item to ``note``) and
 ``chain_spread_<quantity>`` (:attr:`~screen.extrapolate.ChainFit.spread_ev`, which
 the calibration adds to the σ). The per-n values and every fit's details go to
 the sidecar ``levels.oligomers.csv`` (:func:`chain_limits`).
@@ -69,6 +70,10 @@ _EXTRA = ["name", "role", "key", "duplicate_of", "heavy_atoms", "reason"]
 #: (:mod:`screen.excitation`), and the ΔSCF IP/EA in a dielectric continuum (film)
 CHAIN_QUANTITIES = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev", "xtb_k_hl_ev",
                     "xtb_j_hl_ev", "xtb_overlap_hl", "xtb_ip_film_ev", "xtb_ea_film_ev"]
+#: quantities whose fit decides ``chain_fit_quality`` (the levels and gaps; the exchange/Coulomb/overlap
+#: descriptors are extrapolated and recorded but a poor fit of theirs alone does not flag the row)
+QUALITY_QUANTITIES = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev", "xtb_ip_film_ev",
+                      "xtb_ea_film_ev"]
 #: columns added to levels.csv for the chain limit (empty for molecules)
 CHAIN_COLUMNS = ["representation", "chain_n_max", "chain_fit", "chain_fit_quality"]
 #: columns of the sidecar ``levels.oligomers.csv`` (one row per polymer, quantity and n; n = ``inf`` for the limit)
@@ -103,7 +108,7 @@ def _one_polymer(pkey: str, group: pd.DataFrame, elec: pd.DataFrame, quantities:
                           per_unit=int(group["per_unit"].iloc[0]), rms_tol_ev=rms_tol_ev)
         row[q], row[f"chain_spread_{q}"] = fit.limit_ev, fit.spread_ev
         methods.append(f"{_short(q)}:{_SHORT[fit.method]}")
-        if fit.quality != "good":
+        if fit.quality != "good" and q in QUALITY_QUANTITIES:
             poor.append(_short(q))
         side.append({"polymer_key": pkey, "polymer_id": pid, "quantity": q, "n": "inf", "status": "ok",
                      "value": fit.limit_ev, "method": fit.method, "rms": fit.rms_ev, "spread": fit.spread_ev,
