@@ -57,7 +57,7 @@ def main() -> None:
     from screen.config import load_config
     from screen.stages import main as stage
 
-    from screen.cli import data_path
+    from screen.cli_shared import data_path
 
     cfg = load_config(None, {"candidates": str(inp), "out": str(out / "run")}).with_paths(data_path)
     cfg_file = out / "run" / "config.yaml"

@@ -25,59 +25,12 @@ from pathlib import Path
 import yaml
 
 from screen import __version__
-from screen.config import Config, merge
+from screen.config import Config
 from screen.errors import CalculationError, ConfigError, DascreenError, InputError, exit_code
+from screen.cli_shared import EXIT_ERROR, EXIT_OK, EXIT_STRICT, _load, _print_summary, data_path  # noqa: F401
 from screen.launch import WORKFLOW, run_workflow
 
 __all__ = ["main", "build_parser", "WORKFLOW"]
-
-EXIT_OK, EXIT_ERROR, EXIT_STRICT = 0, 1, 3
-
-
-def _parse_set(items: list[str]) -> dict:
-    """``section.key=value`` pairs (values parsed as YAML), each checked against the schema."""
-    from screen.preflight import check_sets
-
-    return check_sets(items)
-
-
-def _drop_none(extra: dict) -> dict:
-    out = {}
-    for key, value in extra.items():
-        if isinstance(value, dict):
-            value = _drop_none(value)
-        if value is not None:
-            out[key] = value
-    return out
-
-
-def _load(args, extra: dict) -> Config:
-    """The process's one :class:`Config`: config file, then ``--set``, then ``extra`` (None values skipped).
-
-    The data folders become absolute paths (the workflow runs in the output folder).
-    """
-    overrides = _parse_set(getattr(args, "set", []))
-    merge(overrides, _drop_none(extra))
-    return Config.load(getattr(args, "config", None), overrides).with_paths(data_path)
-
-
-def _print_summary(levels_csv: Path) -> dict:
-    import pandas as pd
-
-    from screen.levels import summarise
-
-    levels = pd.read_csv(levels_csv, dtype=str, keep_default_na=False)
-    counts = summarise(levels)
-    print(f"dascreen: {counts['rows']} rows: {counts['ok']} ok, {counts['rejected']} rejected, "
-          f"{counts['failed']} failed -> {levels_csv}")
-    bad = levels[levels["status"] != "ok"]
-    for _, row in bad.head(20).iterrows():
-        ident = row["id"].replace("\n", "\\n")[:60]
-        print(f"  {row['status']:8s} {ident}: {row['error'][:160]}")
-    if len(bad) > 20:
-        print(f"  ... and {len(bad) - 20} more (see levels.csv)")
-    return counts
-
 
 def cmd_run(args) -> int:
     """Check the inputs, then run the workflow through Snakemake in a subprocess."""
@@ -109,15 +62,6 @@ def cmd_run(args) -> int:
         print("dascreen: --strict: some rows were rejected or failed", file=sys.stderr)
         return EXIT_STRICT
     return EXIT_OK
-
-
-def data_path(path: str | Path) -> Path:
-    """Absolute path of a data folder: as given if absolute or present under the
-    working directory, else the copy shipped beside the package (``models/``)."""
-    path = Path(path)
-    if path.is_absolute() or path.exists():
-        return path.resolve()
-    return Path(__file__).resolve().parent.parent / path
 
 
 def cmd_calibrate(args) -> int:

@@ -136,7 +136,7 @@ def _dye_candidates(candidates: Path, out: Path, write: bool = True) -> Path:
 
 def cmd_dyecell(args) -> int:
     """Run the shared stages if needed, then rank the dyes for one oxide and one mediator."""
-    from screen.cli import EXIT_ERROR, EXIT_OK, _load, _print_summary
+    from screen.cli_shared import EXIT_ERROR, EXIT_OK, _load, _print_summary
     from screen.dyecell.stage import run_dyecell
     from screen.preflight import check_candidates, check_out
 
