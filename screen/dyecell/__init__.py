@@ -12,8 +12,8 @@ The second device family of dascreen.  It reuses every stage up to
 - :mod:`~screen.dyecell.flags` (the flag registry), :mod:`~screen.dyecell.options` (the ``dyecell`` config
   section), :mod:`~screen.dyecell.cli` (``dascreen dyecell``).
 
-The report page is :mod:`screen.report.dyecell_page` with the energy diagram of
-:mod:`screen.report.dyecell_figure`.  Files: ``OUT/dyecell/dyes.csv`` (the dye table, cached) and
+The report page is :mod:`screen.dyecell.page` with the energy diagram of
+:mod:`screen.dyecell.figure`.  Files: ``OUT/dyecell/dyes.csv`` (the dye table, cached) and
 ``OUT/dyecell/<oxide>--<mediator>/`` (``ranking.csv``, ``ranking.safe.csv``, ``ranking.meta.json``,
 ``shortlist.sdf``, ``report.html``).
 """

@@ -275,7 +275,7 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
     meta = _meta(ranking, table, info, ox, med, model, options, short)
     write_json(meta, target / "ranking.meta.json")
     if report:
-        from screen.report.dyecell_page import write_dyecell_report
+        from screen.dyecell.page import write_dyecell_report
 
         try:
             write_dyecell_report(ranking, table, meta, target)

@@ -2,7 +2,7 @@
 
 Sections: run at a glance (oxide, mediator, model and calibration cards),
 shortlist with structure drawings and every flag in plain words, the dye-cell
-energy diagram (:mod:`screen.report.dyecell_figure`), every ranked dye with
+energy diagram (:mod:`screen.dyecell.figure`), every ranked dye with
 its viability in words, and the dyes that were not ranked with the reason.
 Styles and the sorting script are those of the bulk-heterojunction report
 (``static/``); every user text is HTML-escaped; nothing is fetched from the
@@ -27,7 +27,7 @@ from screen.dyecell.flags import INFO_FLAGS, describe
 from screen.flags import codes_of
 from screen.io import atomic_path
 from screen.report.drawings import molecule_svg
-from screen.report.dyecell_figure import DIAGRAM_MAX, dyecell_diagram_svg
+from screen.dyecell.figure import DIAGRAM_MAX, dyecell_diagram_svg
 from screen.report.export import safe_csv_frame
 from screen.report.format import (
     NOT_RECORDED,
