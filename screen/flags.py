@@ -93,8 +93,8 @@ _REGISTRY = (
                        "was above it)", "info"),
     Flag("pce_capped", "efficiency limited to the detailed-balance (Shockley–Queisser) limit for the absorber "
                        "gap", "info"),
-    Flag("loss_class_pooled", "acceptor class not known to the fitted model; the pooled voltage loss of all "
-                              "device classes was used", "info"),
+    Flag("loss_class_pooled", "voltage loss: the fitted model's pooled value for all acceptor classes (the "
+                              "fit keeps no separate value for this pair's class)", "info"),
     Flag("donor_only_model", "published donor-only model: only the donor absorbs and only the LUMO offset is "
                              "checked", "info"),
     Flag("heavy_atoms_unknown", "heavy-atom count unknown, so the size limit could not be checked", "info"),

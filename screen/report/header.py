@@ -23,9 +23,9 @@ _CALIBRATION_LABELS = {
     "ip": "ionisation energy (gas)",
     "ea": "electron affinity (gas)",
     "gap_opt": "optical gap (gas/solution)",
-    "homo_film": "HOMO, film shift",
-    "lumo_film": "LUMO, film shift",
-    "gap_opt_film": "optical gap, film shift",
+    "homo_film": "HOMO, film",
+    "lumo_film": "LUMO, film",
+    "gap_opt_film": "optical gap, film",
 }
 
 
