@@ -34,6 +34,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from screen.io import cell_number
+
 __all__ = ["Flag", "FLAGS", "FLAG_ORDER", "INFO_FLAGS", "NOT_VIABLE_FLAGS", "DEVICE_FLAGS", "describe", "is_info",
            "is_not_viable", "codes_of", "reason_of", "join_flags", "SEVERITIES"]
 
@@ -142,16 +144,6 @@ def codes_of(cell) -> list[str]:
     return [c.strip() for c in str(cell).split(";") if c.strip()]
 
 
-def _num(value) -> float:
-    if isinstance(value, bool) or value is None:
-        return math.nan
-    try:
-        out = float(value)
-    except (TypeError, ValueError):
-        return math.nan
-    return out if math.isfinite(out) else math.nan
-
-
 def _get(mapping, *keys):
     node = mapping
     for key in keys:
@@ -169,8 +161,8 @@ def _fmt(x: float) -> str:
 
 
 def _setting(settings: dict, key: str) -> float:
-    x = _num(_get(settings, "rank", key))
-    return _num(_get(settings, "filters", key)) if math.isnan(x) else x
+    x = cell_number(_get(settings, "rank", key))
+    return cell_number(_get(settings, "filters", key)) if math.isnan(x) else x
 
 
 def describe(code: str, settings: dict | None = None) -> str:
@@ -194,8 +186,8 @@ def describe(code: str, settings: dict | None = None) -> str:
     if code not in FLAGS:
         return code
     settings = settings or {}
-    min_lumo = _num(_get(settings, "device", "min_delta_lumo_ev"))
-    min_homo = _num(_get(settings, "device", "min_delta_homo_ev"))
+    min_lumo = cell_number(_get(settings, "device", "min_delta_lumo_ev"))
+    min_homo = cell_number(_get(settings, "device", "min_delta_homo_ev"))
     g_lo, g_hi = _setting(settings, "gap_min_ev"), _setting(settings, "gap_max_ev")
     limit = _setting(settings, "max_heavy_atoms")
     window = "" if math.isnan(g_lo) or math.isnan(g_hi) else f" ({_fmt(g_lo)}\u2013{_fmt(g_hi)} eV)"

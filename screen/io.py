@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import contextlib
 import json
+import math
 import os
 import sys
 import tempfile
@@ -82,6 +83,23 @@ def cell_text(value) -> str:
     except (TypeError, ValueError):
         pass
     return str(value)
+
+
+def cell_number(value) -> float:
+    """A table cell or setting as a float: NaN for anything that is not a finite real number (bools too).
+
+    Examples
+    --------
+    >>> cell_number("1.5"), cell_number(True), cell_number("x"), cell_number(float("inf"))
+    (1.5, nan, nan, nan)
+    """
+    if isinstance(value, bool) or value is None:
+        return math.nan
+    try:
+        out = float(value)
+    except (TypeError, ValueError):
+        return math.nan
+    return out if math.isfinite(out) else math.nan
 
 
 def _umask() -> int:

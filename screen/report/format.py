@@ -17,6 +17,7 @@ from __future__ import annotations
 import html
 import math
 
+from screen.io import cell_number as num
 from screen.io import cell_text as text
 
 __all__ = ["NOT_RECORDED", "num", "text", "esc", "fmt", "fmt_pm", "pm_html", "data_value", "get", "shorten",
@@ -26,17 +27,6 @@ __all__ = ["NOT_RECORDED", "num", "text", "esc", "fmt", "fmt_pm", "pm_html", "da
 NOT_RECORDED = "not recorded"
 _MINUS = "\u2212"
 _TRUE_WORDS = ("true", "1", "yes")
-
-
-def num(value) -> float:
-    """Float of ``value``; NaN for anything that is not a finite real number."""
-    if isinstance(value, bool) or value is None:
-        return math.nan
-    try:
-        out = float(value)
-    except (TypeError, ValueError):
-        return math.nan
-    return out if math.isfinite(out) else math.nan
 
 
 def esc(value) -> str:
