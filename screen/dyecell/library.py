@@ -209,6 +209,28 @@ def _lookup(frame: pd.DataFrame, spec: str) -> dict | None:
     return None if hit.empty else hit.iloc[0].to_dict()
 
 
+def _library_or_file(spec: str, table: pd.DataFrame, what: str, columns: str) -> tuple[dict | None, Path | None]:
+    """``(library row, None)`` for a library id (any case), ``(None, path)`` for an existing file.
+
+    Raises :class:`InputError` listing the ids when ``spec`` is neither.
+    """
+    row = _lookup(table, spec) if spec else None
+    if row is not None:
+        return row, None
+    path = Path(spec).expanduser() if spec else None
+    if path is None or not path.is_file():
+        raise InputError(f"unknown {what} {spec!r}: not a library id and not a file. Library ids: "
+                         f"{', '.join(table['id'])}. Or give a one-row CSV: {columns}")
+    return None, path
+
+
+def _described(row: dict, conditions_column: str, default_source: str = "") -> dict:
+    """The descriptive fields of a :class:`Material` (name, source, doi, recall flag, conditions, notes)."""
+    return {"name": _text(row.get("name")), "source": _text(row.get("source")) or default_source,
+            "doi": _text(row.get("doi")), "from_memory": _bool(row.get("from_memory")),
+            "conditions": _text(row.get(conditions_column)), "notes": _text(row.get("notes"))}
+
+
 def resolve_oxide(spec: str, library: str | Path | None = None) -> Material:
     """An oxide from the library (id, any case) or a one-row CSV file.
 
@@ -223,18 +245,11 @@ def resolve_oxide(spec: str, library: str | Path | None = None) -> Material:
     ('p', 0.5)
     """
     spec = _text(spec)
-    table = load_oxides(library)
-    row = _lookup(table, spec) if spec else None
-    if row is not None:
-        return Material(id=row["id"], name=_text(row.get("name")), role="oxide",
-                        potential_v_nhe=float(row["band_edge_v_nhe"]), type=_text(row.get("type")).lower() or "n",
-                        source=_text(row.get("source")), doi=_text(row.get("doi")),
-                        from_memory=_bool(row.get("from_memory")), conditions=_text(row.get("conditions")),
-                        notes=_text(row.get("notes")), kind="library", slug=row["id"])
-    path = Path(spec).expanduser() if spec else None
-    if path is None or not path.is_file():
-        raise InputError(f"unknown oxide {spec!r}: not a library id and not a file. Library ids: "
-                         f"{', '.join(table['id'])}. Or give a one-row CSV: id,band_edge_v_nhe[,type n|p]")
+    row, path = _library_or_file(spec, load_oxides(library), "oxide", "id,band_edge_v_nhe[,type n|p]")
+    if path is None:
+        return Material(id=row["id"], role="oxide", potential_v_nhe=float(row["band_edge_v_nhe"]),
+                        type=_text(row.get("type")).lower() or "n", kind="library", slug=row["id"],
+                        **_described(row, "conditions"))
     row = _one_row(path, "oxide")
     where = f"oxide file {path}"
     potential, conversion = _potential_from_row(row, "band_edge", where)
@@ -242,11 +257,9 @@ def resolve_oxide(spec: str, library: str | Path | None = None) -> Material:
     if typ not in ("n", "p"):
         raise InputError(f"{where}: type = {typ!r}; allowed: n (conduction band takes electrons) or p "
                          "(valence band takes holes)")
-    return Material(id=_text(row.get("id")) or path.stem, name=_text(row.get("name")), role="oxide",
-                    potential_v_nhe=potential, type=typ, source=_text(row.get("source")) or str(path),
-                    doi=_text(row.get("doi")), from_memory=_bool(row.get("from_memory")),
-                    conditions=_text(row.get("conditions")), notes=_text(row.get("notes")), conversion=conversion,
-                    kind="file", slug=_file_slug(path))
+    return Material(id=_text(row.get("id")) or path.stem, role="oxide", potential_v_nhe=potential, type=typ,
+                    conversion=conversion, kind="file", slug=_file_slug(path),
+                    **_described(row, "conditions", str(path)))
 
 
 def resolve_mediator(spec: str, library: str | Path | None = None) -> Material:
@@ -264,26 +277,17 @@ def resolve_mediator(spec: str, library: str | Path | None = None) -> Material:
     ('mediator', 0.35)
     """
     spec = _text(spec)
-    table = load_mediators(library)
-    row = _lookup(table, spec) if spec else None
-    if row is not None:
-        return Material(id=row["id"], name=_text(row.get("name")), role="mediator",
-                        potential_v_nhe=float(row["e_redox_v_nhe"]), min_drive_reg_ev=_float(row.get("min_drive_reg_ev")),
-                        source=_text(row.get("source")), doi=_text(row.get("doi")),
-                        from_memory=_bool(row.get("from_memory")), conditions=_text(row.get("solvent")),
-                        notes=_text(row.get("notes")), kind="library", slug=row["id"])
-    path = Path(spec).expanduser() if spec else None
-    if path is None or not path.is_file():
-        raise InputError(f"unknown mediator {spec!r}: not a library id and not a file. Library ids: "
-                         f"{', '.join(table['id'])}. Or give a one-row CSV: id,e_redox_v_nhe[,min_drive_reg_ev]")
+    row, path = _library_or_file(spec, load_mediators(library), "mediator", "id,e_redox_v_nhe[,min_drive_reg_ev]")
+    if path is None:
+        return Material(id=row["id"], role="mediator", potential_v_nhe=float(row["e_redox_v_nhe"]),
+                        min_drive_reg_ev=_float(row.get("min_drive_reg_ev")), kind="library", slug=row["id"],
+                        **_described(row, "solvent"))
     row = _one_row(path, "mediator")
     where = f"mediator file {path}"
     potential, conversion = _potential_from_row(row, "e_redox", where)
     thr = _float(row.get("min_drive_reg_ev")) if _text(row.get("min_drive_reg_ev")) else math.nan
     if _text(row.get("min_drive_reg_ev")) and not math.isfinite(thr):
         raise InputError(f"{where}: min_drive_reg_ev = {row.get('min_drive_reg_ev')!r} is not a number")
-    return Material(id=_text(row.get("id")) or path.stem, name=_text(row.get("name")), role="mediator",
-                    potential_v_nhe=potential, min_drive_reg_ev=thr, source=_text(row.get("source")) or str(path),
-                    doi=_text(row.get("doi")), from_memory=_bool(row.get("from_memory")),
-                    conditions=_text(row.get("solvent")), notes=_text(row.get("notes")), conversion=conversion,
-                    kind="file", slug=_file_slug(path))
+    return Material(id=_text(row.get("id")) or path.stem, role="mediator", potential_v_nhe=potential,
+                    min_drive_reg_ev=thr, conversion=conversion, kind="file", slug=_file_slug(path),
+                    **_described(row, "solvent", str(path)))
