@@ -72,7 +72,7 @@ def test_ions_are_doublets_at_the_neutral_geometry():
 
 
 # Lowest singlet excitation energies S1 of the acenes in solution/gas [eV], from memory
-# (anthracene 3.31 and pentacene ≈ 2.1 as quoted in the project's issue 12; tetracene 2.6).
+# (anthracene 3.31, tetracene 2.6, pentacene ≈ 2.1; solution absorption origins).
 MEASURED_S1_EV = {"anthracene": 3.31, "tetracene": 2.6, "pentacene": 2.1}
 # Donor–acceptor (charge-transfer) molecules: 4-(dimethylamino)benzylidenemalononitrile and a
 # triphenylamine–dicyanovinyl dyad
