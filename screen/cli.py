@@ -79,10 +79,15 @@ def cmd_calibrate(args) -> int:
     cfg = _load(args, overrides)
     pid = cfg.protocol_id
     target = out / "models" / pid
-    rc = run_workflow(cfg, out, args.cores, [str(target)], verbose=args.verbose, log_name="calibrate-workflow")
-    if rc != 0:
-        print(f"dascreen: calibration stopped with exit code {rc}; see {out}/logs/", file=sys.stderr)
-        return EXIT_ERROR
+    if args.from_raw:
+        from screen.refit import refit_from_raw
+
+        refit_from_raw(cfg, [Path(s).resolve() for s in args.from_raw], out / "models")
+    else:
+        rc = run_workflow(cfg, out, args.cores, [str(target)], verbose=args.verbose, log_name="calibrate-workflow")
+        if rc != 0:
+            print(f"dascreen: calibration stopped with exit code {rc}; see {out}/logs/", file=sys.stderr)
+            return EXIT_ERROR
     models = load_models(target, cfg)
     pd.set_option("display.width", 200)
     print(f"\ncalibration models for protocol {pid} (reference: {cfg['calibration']['reference']})")
@@ -355,6 +360,11 @@ def _add_calibrate(sub) -> None:
     p.add_argument("--install", default=None, metavar="MODELS_DIR",
                    help="also copy the fitted models to MODELS_DIR/<protocol-id>/ (e.g. models) so later runs "
                         "use them without refitting")
+    p.add_argument("--from-raw", action="append", default=[], metavar="FOLDER",
+                   help="refit from stored raw values instead of computing: a model folder (models/<protocol-id>, "
+                        "its reference_raw.csv) or a run folder whose levels.csv holds new reference structures "
+                        "(repeatable; same protocol required). Seconds instead of hours after a reference value "
+                        "changed")
     p.add_argument("--verbose", action="store_true", help="show the workflow engine's log as it runs")
     p.set_defaults(func=cmd_calibrate)
 

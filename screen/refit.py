@@ -1,0 +1,163 @@
+"""Refit the calibration from stored raw values, without recomputing anything.
+
+A calibration run (``dascreen calibrate``) stores beside its models the raw
+GFN2-xTB values it was fitted on (``reference_raw.csv``, polymers at the chain
+limit, and ``reference_oligomers.csv``, the per-n values). When only reference
+*values* change — a recalled number replaced by one read in a paper, a row
+excluded — those raw values are still valid and a refit takes seconds. New
+reference structures need raw values too: compute them as ordinary candidates
+(``dascreen run new.csv --out DIR``, same protocol) and pass ``DIR`` as a second
+source; :func:`refit_from_raw` lists any structure still missing and writes it to
+``missing_reference.csv`` ready for such a run.
+
+Every source must prove that it was computed with the run's protocol: a model
+folder by the fingerprint of its model files, a run folder by
+``levels.csv.meta.json``. A source of another protocol is refused (its raw
+values would calibrate the wrong numbers).
+
+Examples
+--------
+>>> from screen.config import Config
+>>> cfg = Config.of({})
+>>> folder = f"models/{cfg.protocol_id}"
+>>> raw, sidecar = read_raw_source(folder, cfg.protocol_id)
+>>> bool(len(raw) > 100), set(raw["status"]) <= {"ok", "failed", "rejected"}
+(True, True)
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pandas as pd
+
+from screen.calibrate import fingerprint, fit_all, raw_table, read_reference, save_models, stats_table
+from screen.calibration.reference import canonical, reference_inputs
+from screen.config import Config
+from screen.errors import ConfigError
+from screen.io import read_csv_checked, write_csv
+
+__all__ = ["read_raw_source", "missing_structures", "refit_from_raw"]
+
+_RAW_NEEDED = ["smiles", "status", "xtb_ip_ev", "xtb_ea_ev"]
+
+
+def _source_protocol(folder: Path) -> str | None:
+    """Protocol id a raw-value folder was computed with (model folder or run folder), or ``None``."""
+    meta = folder / "levels.csv.meta.json"
+    if meta.is_file():
+        return json.loads(meta.read_text(encoding="utf-8")).get("protocol_id")
+    model = folder / "ip.json"
+    if model.is_file():
+        return json.loads(model.read_text(encoding="utf-8")).get("fingerprint", {}).get("protocol_id")
+    return None
+
+
+def read_raw_source(source: str | Path, protocol_id: str) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Raw values and per-n oligomer values of one source folder.
+
+    Parameters
+    ----------
+    source : path-like
+        A model folder (``models/<protocol-id>``, holding ``reference_raw.csv``)
+        or a run folder (holding ``levels.csv`` and its ``.meta.json``).
+    protocol_id : str
+        The protocol the refit is for; the source must have been computed with it.
+
+    Returns
+    -------
+    raw, oligomers : pandas.DataFrame
+        One row per computed structure; the per-n table (empty when none).
+
+    Raises
+    ------
+    ConfigError
+        The folder holds no raw values, or they belong to another protocol.
+    """
+    folder = Path(source)
+    table = folder / "reference_raw.csv"
+    if not table.is_file():
+        table = folder / "levels.csv"
+    if not table.is_file():
+        raise ConfigError(f"--from-raw {source}: no reference_raw.csv (model folder) or levels.csv (run folder) "
+                          "there")
+    found = _source_protocol(folder)
+    if found != protocol_id:
+        raise ConfigError(f"--from-raw {source}: its raw values were computed with protocol {found or 'unknown'}, "
+                          f"this refit is for {protocol_id}; give a source of the same protocol")
+    raw = read_csv_checked(table, _RAW_NEEDED, what="raw-value table", error=ConfigError, keep_default_na=False,
+                           na_values=[""])
+    if "chain_n_max" in raw.columns:  # an oligomer count: keep it an integer beside the empty cells
+        raw["chain_n_max"] = pd.to_numeric(raw["chain_n_max"], errors="coerce").astype("Int64")
+    side = next((p for p in (folder / "reference_oligomers.csv", folder / "levels.oligomers.csv") if p.is_file()),
+                None)
+    oligomers = pd.read_csv(side, dtype=str, keep_default_na=False) if side else pd.DataFrame()  # copied as text
+    return raw, oligomers
+
+
+def missing_structures(sets: dict[str, pd.DataFrame], raw: pd.DataFrame) -> pd.DataFrame:
+    """Reference structures without a raw value (``id, smiles, name``), in reference order."""
+    have = {canonical(s) for s in raw["smiles"].astype(str)}
+    wanted = reference_inputs(sets)
+    keep = [canonical(s) not in have for s in wanted["smiles"]]
+    return wanted[keep].reset_index(drop=True)
+
+
+def refit_from_raw(config, sources, out_root: str | Path) -> tuple[Path, pd.DataFrame]:
+    """Fit every calibration model on the reference data and stored raw values.
+
+    Parameters
+    ----------
+    config : Config or mapping
+        The run configuration (protocol, ``calibration.reference``).
+    sources : sequence of path-like
+        Raw-value folders (see :func:`read_raw_source`); for a structure in
+        several sources the first one wins.
+    out_root : path-like
+        Models go to ``<out_root>/<protocol-id>/`` with ``statistics.csv``,
+        ``reference_raw.csv``, ``reference_oligomers.csv`` and
+        ``reference_failures.csv``, as after a computing calibration run.
+
+    Returns
+    -------
+    folder : pathlib.Path
+        The model folder written.
+    statistics : pandas.DataFrame
+        :func:`screen.calibrate.stats_table` of the new models.
+
+    Raises
+    ------
+    ConfigError
+        No source, a source of another protocol, or reference structures
+        without raw values (listed, and written to
+        ``<out_root>/missing_reference.csv`` for a ``dascreen run``).
+    """
+    cfg = Config.of(config)
+    if not sources:
+        raise ConfigError("--from-raw needs at least one model or run folder")
+    reference = cfg["calibration"]["reference"]
+    sets = read_reference(reference)
+    raws, sides = zip(*(read_raw_source(s, cfg.protocol_id) for s in sources))
+    computed = pd.concat(raws, ignore_index=True)
+    computed["_can"] = [canonical(s) for s in computed["smiles"].astype(str)]
+    computed = computed.drop_duplicates("_can").drop(columns="_can").reset_index(drop=True)
+    missing = missing_structures(sets, computed)
+    if len(missing):
+        Path(out_root).mkdir(parents=True, exist_ok=True)
+        listing = Path(out_root) / "missing_reference.csv"
+        write_csv(missing, listing)
+        names = ", ".join(missing["name"].head(8)) + (" …" if len(missing) > 8 else "")
+        raise ConfigError(f"--from-raw: {len(missing)} reference structure(s) have no raw values ({names}); "
+                          f"compute them with `dascreen run {listing} --out DIR` and add `--from-raw DIR`")
+    models = fit_all(sets, computed)
+    target = save_models(models, out_root, fingerprint(cfg, reference))
+    table = stats_table(models)
+    write_csv(table, target / "statistics.csv")
+    failed = computed[computed["status"] != "ok"]
+    write_csv(failed.reindex(columns=["id", "smiles", "status", "error"]), target / "reference_failures.csv")
+    write_csv(raw_table(computed), target / "reference_raw.csv")
+    parts = [s for s in sides if len(s)]
+    if parts:
+        write_csv(pd.concat(parts, ignore_index=True).drop_duplicates(), target / "reference_oligomers.csv")
+    return target, table
