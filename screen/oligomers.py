@@ -184,10 +184,12 @@ def oligomer_smiles(unit: RepeatUnit | str, n: int, cap: str = "H") -> str:
 
 
 def oligomer_series(unit: RepeatUnit | str, n_max: int = 4, max_atoms: int = 250,
-                    cap: str = "H") -> list[tuple[int, str]]:
+                    cap: str = "H", count=None) -> list[tuple[int, str]]:
     """Oligomers n = 1 … n_max that stay within ``max_atoms`` (hydrogens included).
 
     The series always holds at least the monomer. Returns ``[(n, smiles), …]``.
+    ``count`` (SMILES → atoms) says how many atoms an oligomer will have when it is
+    computed, e.g. after side-chain truncation; by default all atoms with hydrogens.
 
     Examples
     --------
@@ -199,7 +201,7 @@ def oligomer_series(unit: RepeatUnit | str, n_max: int = 4, max_atoms: int = 250
     out = []
     for n in range(1, max(1, n_max) + 1):
         smiles = oligomer_smiles(unit, n, cap)
-        atoms = Chem.AddHs(Chem.MolFromSmiles(smiles)).GetNumAtoms()
+        atoms = count(smiles) if count else Chem.AddHs(Chem.MolFromSmiles(smiles)).GetNumAtoms()
         if n > 1 and atoms > max_atoms:
             break
         out.append((n, smiles))

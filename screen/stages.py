@@ -30,7 +30,9 @@ def _prepare(args, cfg):
     if args.max_shards:
         n_rows = _count_rows(args.input)
         opts = replace(opts, shard_size=max(opts.shard_size, math.ceil(n_rows / args.max_shards)))
-    summary = prepare(args.input, args.outdir, opts, PolymerOptions.from_mapping(cfg["polymer"]))
+    st = cfg["structures"]
+    summary = prepare(args.input, args.outdir, opts, PolymerOptions.from_mapping(cfg["polymer"]),
+                      st["truncate_min_carbons"] if st["truncate_side_chains"] else None)
     print(json.dumps(summary))
 
 

@@ -104,3 +104,20 @@ def test_atom_limit_and_methyl_caps(tmp_path):
     olig = read_oligomers(prepared / "oligomers.csv")
     assert list(olig.n) == [1, 2] and (olig.n_atoms <= 40).iloc[1:].all()
     assert olig.smiles.iloc[0] == "C/C=C/c1ccc(C)cc1" and set(olig.per_unit) == {3}
+
+
+def test_atom_limit_counts_the_truncated_oligomer(tmp_path):
+    """A dodecyl side chain is cut before computing, so the atom limit counts the cut oligomer.
+
+    Hand count: the 2-methylthiophene-diyl unit computed has 5 C, 1 S and 5 H after the cut
+    (C12H25 → CH3); a 4-mer with H caps has 4·11 + 2 = 46 atoms, within 100, while the
+    uncut 2-mer already has 88 atoms and the uncut 3-mer 131.
+    """
+    rows = [("p12", "[*]c1sc([*])cc1CCCCCCCCCCCC")]
+    src = tmp_path / "c.csv"
+    pd.DataFrame(rows, columns=["id", "smiles"]).to_csv(src, index=False)
+    polymer = PolymerOptions(n_max=4, max_atoms=100)
+    prepare(src, tmp_path / "uncut", polymer=polymer)
+    prepare(src, tmp_path / "cut", polymer=polymer, truncate_min_carbons=6)
+    assert list(read_oligomers(tmp_path / "uncut" / "oligomers.csv").n) == [1, 2]
+    assert list(read_oligomers(tmp_path / "cut" / "oligomers.csv").n) == [1, 2, 3, 4]

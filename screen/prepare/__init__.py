@@ -179,6 +179,7 @@ def prepare(
     out_dir: str | os.PathLike[str],
     options: PrepareOptions = PrepareOptions(),
     polymer: PolymerOptions = PolymerOptions(),
+    truncate_min_carbons: int | None = None,
 ) -> dict[str, int]:
     """Run the prepare stage: read, validate, shard and write the results.
 
@@ -200,6 +201,9 @@ def prepare(
         by its oligomers n = 1 … ``n_max``, and ``oligomers.csv`` (columns
         :data:`OLIGOMER_COLUMNS`) maps polymer key → (n, oligomer key, SMILES); it is
         written only when the batch holds a polymer (:mod:`screen.prepare.polymers`).
+    truncate_min_carbons : int, optional
+        The structures stage's side-chain truncation, if on: the oligomer atom limit
+        counts the atoms that will be computed.
 
     Returns
     -------
@@ -224,6 +228,6 @@ def prepare(
     path = Path(path)
     frame = read_candidates(path)
     manifest = validate(frame, options)
-    oligomers = oligomer_table(manifest, polymer)
+    oligomers = oligomer_table(manifest, polymer, truncate_min_carbons)
     shards = shard(compute_rows(manifest, oligomers), options)
     return write_prepared(manifest, shards, path, Path(out_dir), options, oligomers=oligomers, polymer=polymer)

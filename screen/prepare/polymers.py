@@ -88,7 +88,19 @@ def _atoms_with_h(smiles: str) -> int:
     return Chem.AddHs(Chem.MolFromSmiles(smiles)).GetNumAtoms()
 
 
-def oligomer_table(manifest: pd.DataFrame, options: PolymerOptions = PolymerOptions()) -> pd.DataFrame:
+def _computed_atoms(min_carbons: int):
+    """SMILES → atoms with hydrogens after side-chain truncation (what the structures stage computes)."""
+    from screen.structures import truncate_side_chains
+
+    def count(smiles: str) -> int:
+        mol, _ = truncate_side_chains(Chem.MolFromSmiles(smiles), min_carbons)
+        return Chem.AddHs(mol).GetNumAtoms()
+
+    return count
+
+
+def oligomer_table(manifest: pd.DataFrame, options: PolymerOptions = PolymerOptions(),
+                   truncate_min_carbons: int | None = None) -> pd.DataFrame:
     """One row per (polymer, n): the oligomers of every accepted polymer row.
 
     Parameters
@@ -96,6 +108,9 @@ def oligomer_table(manifest: pd.DataFrame, options: PolymerOptions = PolymerOpti
     manifest : pandas.DataFrame
         Validated rows (``id, key, smiles, status, representation``).
     options : PolymerOptions
+    truncate_min_carbons : int, optional
+        When the structures stage truncates side chains (``structures.truncate_min_carbons``),
+        ``max_atoms`` counts the atoms of the truncated oligomer, the one computed.
 
     Returns
     -------
@@ -114,7 +129,8 @@ def oligomer_table(manifest: pd.DataFrame, options: PolymerOptions = PolymerOpti
             continue
         seen.add(pkey)
         unit = RepeatUnit.from_smiles(smi)
-        for n, osmi in oligomer_series(unit, options.n_max, options.max_atoms, options.cap):
+        count = _computed_atoms(truncate_min_carbons) if truncate_min_carbons else None
+        for n, osmi in oligomer_series(unit, options.n_max, options.max_atoms, options.cap, count):
             osmi = canonical_smiles(osmi)  # the prepare stage's form: equal molecules share a key
             rows.append({"polymer_key": pkey, "polymer_id": pid, "n": n, "key": structure_key(osmi),
                          "smiles": osmi, "n_atoms": _atoms_with_h(osmi), "per_unit": unit.conjugation_length})
