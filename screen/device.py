@@ -401,7 +401,7 @@ class DeviceModel:
             ``delta_lumo_ev``, ``delta_homo_ev``, ``absorber_gap_ev``,
             ``voc_v``, ``jsc_ma_cm2``, ``pce_pct`` (0 where not viable: callers
             blank them), the masks of :func:`screen.viability.classify`,
-            ``viable``, ``voc_capped`` and ``pce_capped``; with
+            ``viable``, ``voc_capped``, ``pce_capped`` and ``loss_ev`` (the loss applied [eV]); with
             ``keep_model_values`` also ``voc_model_v`` and ``pce_model_pct``, the
             formula's values whether viable or not (for validation on devices).
         """
@@ -428,7 +428,7 @@ class DeviceModel:
         pce = np.where(pce_capped, limit, pce)
         out = {"delta_lumo_ev": delta_lumo, "delta_homo_ev": delta_homo, "absorber_gap_ev": g_lo,
                "voc_v": voc, "jsc_ma_cm2": jsc, "pce_pct": pce, **masks, "voc_capped": voc_capped,
-               "pce_capped": pce_capped}
+               "pce_capped": pce_capped, "loss_ev": t.loss}
         if keep_model_values:
             out["voc_model_v"] = voc_model
             with np.errstate(invalid="ignore"):
@@ -481,7 +481,8 @@ class DeviceModel:
             With the broadcast shape of the inputs: ``delta_lumo_ev``,
             ``delta_homo_ev`` [eV]; ``voc_v`` [V], ``jsc_ma_cm2`` [mA cm⁻²],
             ``ff``, ``pce_pct`` [%] — NaN where the pair is not viable;
-            ``absorber_gap_ev`` [eV], ``loss_ev`` [eV]; one boolean mask per
+            ``absorber_gap_ev`` [eV], ``loss_ev`` (the loss applied: the class loss, grown with
+            E_CT when the fitted model has a loss slope) [eV]; one boolean mask per
             device flag of :data:`screen.flags.DEVICE_FLAGS`; ``viable`` (and
             its old name ``device_ok``); ``flags`` (';'-joined codes).
 
@@ -531,7 +532,7 @@ class DeviceModel:
             "ff": blank(np.full(shape, self.value("ff"))),
             "pce_pct": blank(fig["pce_pct"]),
             "absorber_gap_ev": np.array(fig["absorber_gap_ev"], dtype=float),
-            "loss_ev": np.broadcast_to(loss, shape).astype(float),
+            "loss_ev": np.array(fig["loss_ev"], dtype=float),
             **masks,
             "viable": np.array(viable),
             "device_ok": np.array(viable),

@@ -52,7 +52,8 @@ def generation_yield(delta, scale: float):
 
 @dataclass(frozen=True)
 class PairTerms:
-    """Offsets, gaps [eV], Voc before caps [V] and Jsc [mA cm⁻²] of pairs (see :func:`pair_terms`)."""
+    """Offsets, gaps [eV], Voc before caps [V], Jsc [mA cm⁻²] and the voltage loss applied [eV] of pairs
+    (see :func:`pair_terms`)."""
 
     delta_lumo: np.ndarray
     delta_homo: np.ndarray
@@ -60,6 +61,7 @@ class PairTerms:
     gap_cap: np.ndarray
     voc_raw: np.ndarray
     jsc: np.ndarray
+    loss: np.ndarray | float = 0.0
 
 
 def _slope(model) -> tuple[float, float]:
@@ -100,7 +102,8 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None) -> PairTerms:
         ``voc_raw`` is :math:`E_{LUMO}^A - E_{HOMO}^D - V_{loss}` (scharber) or
         :math:`\\min(E_{LUMO}^A - E_{HOMO}^D, E_g^{min}) - \\Delta E_{loss}`
         (fitted); ``jsc`` is the model's current whether the pair is viable or
-        not (callers apply the classification).
+        not (callers apply the classification); ``loss`` is the loss actually applied (the class loss,
+        grown with E_CT when the fitted model has a loss slope).
     """
     jsc_unit = (lambda g: jsc_ma_cm2(g, 1.0)) if jsc_unit is None else jsc_unit
     d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap = levels
@@ -130,7 +133,7 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None) -> PairTerms:
             jsc = eqe * ((j_lo - j_hi) * eta_lo + j_hi * 0.5 * (eta_d + eta_a))
     else:
         jsc = eqe * jsc_unit(_safe_gap(g_lo)) * eta_d
-    return PairTerms(delta_lumo, delta_homo, g_lo, gap_cap, voc_raw, jsc)
+    return PairTerms(delta_lumo, delta_homo, g_lo, gap_cap, voc_raw, jsc, loss_ev)
 
 
 def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = np.inf) -> np.ndarray:
