@@ -1,37 +1,8 @@
 """Fit and validate the device model on published devices (``models/reference/devices.csv``).
 
-Levels on one scale
--------------------
-The model is applied at ranking time to levels on the film calibration's scale
-(``models/reference/levels_film.csv``: film/CV values with ferrocene at
-−4.8 eV below vacuum), so it is fitted on levels on that same scale.  The
-device table quotes each paper's own levels in mixed conventions (the
-vacuum-deposited fullerene cells use energy-diagram values, C60 LUMO −4.5 eV,
-where the CV scale has −3.82 eV).  :func:`resolve_levels` therefore takes, for
-every donor and acceptor separately:
-
-1. ``film`` — the film-set row of the same material, matched by name (the
-   name or one of its bracketed aliases, punctuation ignored), else
-   ``film-structure`` — the film-set row with the same canonical SMILES
-   (materials drawn identically after side-chain shortening, e.g. BTP-4Cl and
-   BTP-eC9, get the levels the calibration would give that structure);
-2. ``paper-cv`` (flagged) — otherwise the paper's CV values moved to the
-   −4.8 eV ferrocene scale: a level written with ferrocene at ``fc`` eV is
-   ``fc − E``, so on the −4.8 eV scale it is ``level + (−4.8 − fc)``
-   (−5.1 → −4.8 eV: +0.3 eV); optical gaps are not shifted;
-3. ``paper-shifted`` (flagged) — paper values with no ferrocene reference
-   (energy-diagram, UPS or unreferenced CV values): moved by the median
-   film − paper difference of the materials *of the same role* that appear
-   both with such values in the device table and in the film set (at least
-   :data:`MIN_SHARED_MATERIALS` distinct materials, else the row is dropped);
-4. a donor LUMO that is still missing becomes HOMO + optical gap (the film
-   set's own convention for several polymers; flagged);
-5. a row whose six levels are still incomplete is dropped with its reason.
-
-:func:`level_table` returns all 82 rows with the resolved levels, their
-sources and the reason of every dropped row (written to
-``models/device/device_levels.csv`` by ``--write``).  Neither reference file
-is edited.
+Device levels are put on the film calibration's scale first (:mod:`screen.devicelevels`:
+the film-set row of the same material, else the paper's values converted to ferrocene −4.8 eV
+and flagged; rows that cannot be converted are dropped with their reason).
 
 Parameters
 ----------
@@ -90,9 +61,7 @@ from __future__ import annotations
 
 import argparse
 import json
-import re
 import sys
-from functools import lru_cache
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -100,213 +69,34 @@ import numpy as np
 import pandas as pd
 from scipy.stats import spearmanr
 
-from screen.chem import canonical_smiles
 from screen.device import DeviceModel
+from screen.devicelevels import (DEVICES_PATH, FC_SCALE_EV, FILM_PATH, LEVELS, MIN_SHARED_MATERIALS, level_table,
+                                 read_devices, resolve_levels)
 from screen.devicepars import FITTED_PATH, NON_FULLERENE, POOLED, FittedParameters, family_of
 from screen.errors import InputError
 from screen.spectrum import jsc_ma_cm2
 
 __all__ = ["DEVICES_PATH", "FILM_PATH", "LEVELS_TABLE_PATH", "read_devices", "level_table", "resolve_levels",
            "fit", "cross_validate", "predict", "write_fitted", "main", "MIN_CLASS_ROWS", "OFFSET_SCALE_GRID_EV",
-           "FC_SCALE_EV", "MIN_SHARED_MATERIALS", "LOSS_SPLITS", "LOSS_VARIANTS", "GROUPINGS", "choose_split"]
+           "FC_SCALE_EV", "MIN_SHARED_MATERIALS", "LOSS_SPLITS", "LOSS_VARIANTS", "GROUPINGS", "choose_split",
+           "fold_model", "CONSTANT_VARIANTS"]
 
 _REPO = Path(__file__).resolve().parent.parent
-DEVICES_PATH = _REPO / "models" / "reference" / "devices.csv"
-#: the film/CV reference set that defines the calibration's level scale
-FILM_PATH = _REPO / "models" / "reference" / "levels_film.csv"
 #: resolved levels of every device row (written by ``--write``)
 LEVELS_TABLE_PATH = _REPO / "models" / "device" / "device_levels.csv"
-#: ferrocene level of the film scale [eV]
-FC_SCALE_EV = -4.8
-#: distinct shared materials needed to estimate the shift of values without a ferrocene reference
-MIN_SHARED_MATERIALS = 3
 #: devices a class needs in the training set for a loss of its own
 MIN_CLASS_ROWS = 5
 #: how the loss may be split, chosen per training fold by inner grouped CV
 LOSS_SPLITS = ("pooled", "family", "class")
 #: loss variants tried inside each training fold: split, with a constant or an E_CT-dependent loss
 LOSS_VARIANTS = tuple(_s + _f for _f in ("", "+slope") for _s in LOSS_SPLITS)
+#: the constant-loss variants alone (Veldman's constant loss per split)
+CONSTANT_VARIANTS = tuple(v for v in LOSS_VARIANTS if "+slope" not in v)
 #: grouping name -> column of the group key
 GROUPINGS = {"acceptor": "group", "donor": "donor_group"}
 #: offset scales Δ0 tried for the charge-generation yield [eV]
 OFFSET_SCALE_GRID_EV = np.round(np.arange(0.01, 0.401, 0.01), 3)
-_NEEDED = ["device_id", "donor", "donor_smiles", "acceptor", "acceptor_smiles", "acceptor_class", "donor_homo_ev",
-           "donor_lumo_ev", "donor_gap_opt_ev", "acceptor_homo_ev", "acceptor_lumo_ev", "acceptor_gap_opt_ev",
-           "level_method", "fc_reference_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct"]
-_LEVELS = ["donor_homo_ev", "donor_lumo_ev", "donor_gap_opt_ev", "acceptor_homo_ev", "acceptor_lumo_ev",
-           "acceptor_gap_opt_ev"]
-_KINDS = ("homo", "lumo", "gap_opt")
-_METRICS = ["voc_v", "jsc_ma_cm2", "ff", "pce_pct"]
-
-
-# --------------------------------------------------------------------------- levels on one scale
-def _name_keys(name) -> set[str]:
-    """Match keys of a material name: the whole name, the part outside brackets and each bracketed alias,
-    lower case without punctuation, at least 3 characters."""
-    text = str(name).lower()
-    parts = [text, re.sub(r"\(.*?\)", " ", text)] + re.findall(r"\((.*?)\)", text)
-    keys = {re.sub(r"[^a-z0-9]", "", p) for p in parts}
-    return {k for k in keys if len(k) >= 3}
-
-
-@lru_cache(maxsize=4096)
-def _canon(smiles) -> str:
-    try:
-        return canonical_smiles(str(smiles)) if isinstance(smiles, str) and smiles.strip() else ""
-    except InputError:
-        return ""
-
-
-def _film_index(film: pd.DataFrame):
-    film = film[film.get("exclude_reason", pd.Series(np.nan, index=film.index)).isna()] \
-        if "exclude_reason" in film else film
-    by_key: dict[str, set[int]] = {}
-    by_smiles: dict[str, set[int]] = {}
-    for i, row in film.iterrows():
-        for key in _name_keys(row["name"]):
-            by_key.setdefault(key, set()).add(i)
-        can = _canon(row["smiles"])
-        if can:
-            by_smiles.setdefault(can, set()).add(i)
-    return film, by_key, by_smiles
-
-
-def _film_match(name, smiles, index) -> tuple[int | None, str]:
-    """Index of the film-set row of a material and how it was matched ('film' by name, 'film-structure')."""
-    film, by_key, by_smiles = index
-    hits = set().union(*(by_key.get(k, set()) for k in _name_keys(name))) if _name_keys(name) else set()
-    if len(hits) == 1:
-        return next(iter(hits)), "film"
-    hits = by_smiles.get(_canon(smiles), set())
-    if len(hits) == 1:
-        return next(iter(hits)), "film-structure"
-    return None, ""
-
-
-def _film_levels(film, i) -> np.ndarray:
-    return np.array([pd.to_numeric(film.at[i, c], errors="coerce") for c in ("homo_ev", "lumo_ev", "gap_opt_ev")],
-                    dtype=float)
-
-
-def level_table(devices=DEVICES_PATH, film=FILM_PATH) -> pd.DataFrame:
-    """Every device row with its six levels on the film (Fc −4.8 eV) scale and where each came from.
-
-    Columns added to the device table: the six level columns replaced by the
-    resolved values (the papers' values kept as ``paper_<column>``),
-    ``donor_level_source`` / ``acceptor_level_source`` (``film:<name>``,
-    ``film-structure:<name>``, ``paper-cv:+x.xx``, ``paper-shifted:…``; ``+lumo=homo+gap``
-    when a donor LUMO was completed), ``levels_converted`` (True unless both
-    came from the film set), ``drop_reason`` ('' for a usable row), and the
-    group keys ``group`` (acceptor) and ``donor_group``.
-
-    Raises
-    ------
-    InputError
-        A needed column is missing (names the file and the columns).
-    """
-    frame = pd.read_csv(devices)
-    missing = [c for c in _NEEDED if c not in frame]
-    if missing:
-        raise InputError(f"{devices}: device table lacks columns {missing}")
-    for col in _LEVELS + _METRICS + ["fc_reference_ev"]:
-        frame[col] = pd.to_numeric(frame[col], errors="coerce")
-    index = _film_index(pd.read_csv(film))
-    film_rows = index[0]
-    frame["acceptor_class"] = frame["acceptor_class"].fillna("").astype(str)
-    out = frame.copy()
-    for col in _LEVELS:
-        out[f"paper_{col}"] = frame[col]
-    sources = {role: [""] * len(frame) for role in ("donor", "acceptor")}
-    resolved = {role: np.full((len(frame), 3), np.nan) for role in ("donor", "acceptor")}
-    # pass 1: film-set matches
-    matches = {}
-    for role in ("donor", "acceptor"):
-        for k, (name, smi) in enumerate(zip(frame[role], frame[f"{role}_smiles"])):
-            i, how = _film_match(name, smi, index)
-            matches[role, k] = (i, how)
-            if i is not None:
-                resolved[role][k] = _film_levels(film_rows, i)
-                sources[role][k] = f"{how}:{film_rows.at[i, 'name']}"
-    # shifts for values without a ferrocene reference, per role, from shared materials
-    shifts, shift_notes = {}, {}
-    for role in ("donor", "acceptor"):
-        diffs = {}
-        for k in range(len(frame)):
-            i, _how = matches[role, k]
-            if i is None or np.isfinite(frame.at[k, "fc_reference_ev"]):
-                continue
-            paper = frame.loc[k, [f"{role}_{x}_ev" for x in _KINDS]].to_numpy(float)
-            diffs.setdefault(i, resolved[role][k] - paper)
-        arr = np.array(list(diffs.values())) if diffs else np.empty((0, 3))
-        ok = [int(np.isfinite(arr[:, j]).sum()) >= MIN_SHARED_MATERIALS for j in range(2)] if len(arr) else [False] * 2
-        shifts[role] = np.array([np.nanmedian(arr[:, j]) if ok[j] else np.nan for j in range(2)] + [0.0])
-        shift_notes[role] = {"materials": sorted(str(film_rows.at[i, "name"]) for i in diffs),
-                             "median_shift_ev": {kind: (round(float(shifts[role][j]), 3) if ok[j] else None)
-                                                 for j, kind in enumerate(_KINDS[:2])},
-                             "spread_mad_ev": {kind: (round(float(np.nanmedian(np.abs(arr[:, j] - shifts[role][j]))), 3)
-                                                      if ok[j] else None) for j, kind in enumerate(_KINDS[:2])}}
-    # pass 2: paper values where there is no film row
-    for role in ("donor", "acceptor"):
-        for k in range(len(frame)):
-            if sources[role][k]:
-                continue
-            paper = frame.loc[k, [f"{role}_{x}_ev" for x in _KINDS]].to_numpy(float)
-            fc = frame.at[k, "fc_reference_ev"]
-            if np.isfinite(fc):
-                shift = FC_SCALE_EV - fc
-                resolved[role][k] = paper + np.array([shift, shift, 0.0])
-                sources[role][k] = f"paper-cv:{shift:+.2f}"
-            else:
-                resolved[role][k] = paper + shifts[role]
-                s = shifts[role]
-                sources[role][k] = (f"paper-shifted:homo{s[0]:+.2f},lumo{s[1]:+.2f}" if np.isfinite(s[:2]).all()
-                                    else "paper-unreferenced")
-    # a missing donor LUMO: HOMO + optical gap
-    d = resolved["donor"]
-    fill = np.isnan(d[:, 1]) & np.isfinite(d[:, 0]) & np.isfinite(d[:, 2])
-    d[fill, 1] = d[fill, 0] + d[fill, 2]
-    for k in np.flatnonzero(fill):
-        sources["donor"][k] += "+lumo=homo+gap"
-    for role in ("donor", "acceptor"):
-        for j, kind in enumerate(_KINDS):
-            out[f"{role}_{kind}_ev"] = resolved[role][:, j]
-        out[f"{role}_level_source"] = sources[role]
-    reasons = []
-    for k in range(len(frame)):
-        why = []
-        for role in ("donor", "acceptor"):
-            lack = [kind for j, kind in enumerate(_KINDS) if not np.isfinite(resolved[role][k, j])]
-            if lack and sources[role][k] == "paper-unreferenced":
-                why.append(f"{role} levels have no ferrocene reference and too few shared materials to convert")
-            elif lack:
-                why.append(f"{role} {'/'.join(lack)} not known (no film-set row, not given in the paper)")
-        reasons.append("; ".join(why))
-    out["drop_reason"] = reasons
-    out["levels_converted"] = ~(out["donor_level_source"].str.startswith("film")
-                                & out["acceptor_level_source"].str.startswith("film")
-                                & ~out["donor_level_source"].str.contains("+", regex=False))
-    out["group"] = [_canon(s) or str(n) for s, n in zip(frame["acceptor_smiles"], frame["acceptor"])]
-    out["donor_group"] = [_canon(s) or str(n) for s, n in zip(frame["donor_smiles"], frame["donor"])]
-    out.attrs["shifts"] = shift_notes
-    return out
-
-
-def resolve_levels(devices=DEVICES_PATH, film=FILM_PATH) -> pd.DataFrame:
-    """:func:`level_table` without the dropped rows (index reset)."""
-    table = level_table(devices, film)
-    kept = table[table["drop_reason"].eq("")].reset_index(drop=True)
-    kept.attrs = table.attrs | {"dropped": table.loc[table["drop_reason"].ne(""), ["device_id", "drop_reason"]]
-                                .to_dict("records")}
-    return kept
-
-
-def read_devices(path=DEVICES_PATH, film=FILM_PATH) -> pd.DataFrame:
-    """Device rows whose six levels are on the film scale (see :func:`level_table`).
-
-    Voc may be missing: such rows inform the EQE (Jsc), FF and PCE parts only.
-    ``attrs['dropped']`` lists the rows left out and why.
-    """
-    return resolve_levels(path, film)
+_LEVELS = LEVELS
 
 
 # --------------------------------------------------------------------------- fit
@@ -430,7 +220,7 @@ def _voc_core(e_ct, cap, classes, families, losses) -> np.ndarray:
     return np.fmin(e_ct - loss, cap)
 
 
-def choose_split(d: pd.DataFrame, key: str = "group") -> tuple[str, dict]:
+def choose_split(d: pd.DataFrame, key: str = "group", variants: tuple = LOSS_VARIANTS) -> tuple[str, dict]:
     """The loss variant (split × constant/fitted slope, :data:`LOSS_VARIANTS`) with the least grouped-CV Voc
     MAE on ``d`` (ties: the simpler), and each variant's MAE.  Only ``d`` is used: called on a training fold,
     the held-out devices never choose."""
@@ -439,7 +229,7 @@ def choose_split(d: pd.DataFrame, key: str = "group") -> tuple[str, dict]:
     cap = np.fmin(d["donor_gap_opt_ev"].to_numpy(float), d["acceptor_gap_opt_ev"].to_numpy(float))
     folds = [idx for idx in d.groupby(key).indices.values() if len(idx) < len(d)]
     scores = {}
-    for variant in LOSS_VARIANTS:
+    for variant in variants:
         split, free = _variant(variant)
         pred = np.full(len(d), np.nan)
         for idx in folds:
@@ -449,8 +239,16 @@ def choose_split(d: pd.DataFrame, key: str = "group") -> tuple[str, dict]:
             pred[idx] = _voc_core(e_ct[idx], cap[idx], classes[idx], families[idx], losses)
         ok = np.isfinite(pred)
         scores[variant] = float(np.mean(np.abs(pred[ok] - voc[ok]))) if ok.any() else np.inf
-    best = min(LOSS_VARIANTS, key=lambda s: (round(scores[s], 6), LOSS_VARIANTS.index(s)))
+    best = min(variants, key=lambda s: (round(scores[s], 6), variants.index(s)))
     return best, scores
+
+
+def fold_model(train: pd.DataFrame, key: str, per_class=None, variants: tuple = LOSS_VARIANTS):
+    """``(DeviceModel, variant)`` fitted on one training fold; with ``per_class`` None the loss variant is chosen
+    by :func:`choose_split` on ``train`` alone (grouped by ``key``), so held-out devices never choose it."""
+    choice = per_class if per_class is not None else choose_split(train, key, tuple(variants))[0]
+    split = _variant_name(*_variant(choice))
+    return DeviceModel(model="fitted", absorber="both", parameters=fit(train, split)), split
 
 
 def fit(d: pd.DataFrame, per_class="class") -> FittedParameters:
@@ -542,7 +340,8 @@ def _paper_levels(d: pd.DataFrame) -> pd.DataFrame:
     return p
 
 
-def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor") -> CrossValidation:
+def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor",
+                   variants: tuple = LOSS_VARIANTS) -> CrossValidation:
     """Grouped cross-validation of the fitted model beside Scharber's rule.
 
     Parameters
@@ -554,6 +353,9 @@ def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor") -> Cro
         an inner grouped CV of the training devices (:func:`choose_split`).
     by : {'acceptor', 'donor'}
         Leave one acceptor structure out, or one donor structure out.
+    variants : tuple of str
+        The loss variants the inner CV may choose from (default all of :data:`LOSS_VARIANTS`; the
+        constant-loss ones alone show what the E_CT-dependent option adds, chosen the same nested way).
 
     Returns
     -------
@@ -569,9 +371,8 @@ def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor") -> Cro
     chosen: dict[str, int] = {}
     for _group, idx in d.groupby(key).indices.items():
         train = d.drop(index=d.index[idx])
-        split = _variant_name(*_variant(per_class if per_class is not None else choose_split(train, key)[0]))
+        model, split = fold_model(train, key, per_class, variants)
         chosen[split] = chosen.get(split, 0) + 1
-        model = DeviceModel(model="fitted", absorber="both", parameters=fit(train, split))
         fitted.iloc[idx] = predict(model, d.iloc[idx]).to_numpy(object)
         baseline.iloc[idx] = train["voc_v"].mean()
         cls_mean = train.groupby("acceptor_class")["voc_v"].mean()

@@ -172,3 +172,31 @@ def test_sampler_kernel_agrees_with_the_formula_for_a_sloped_loss():
                                m.figures(levels, 0.55, keep_model_values=True)["voc_model_v"],
                                np.fmin(e_ct - np.maximum(0.55 + 0.5 * (e_ct - 1.4), 0),
                                        np.fmin(frame["donor_gap_opt_ev"], frame["acceptor_gap_opt_ev"])), atol=1e-12)
+
+
+def test_evaluate_reports_the_loss_applied():
+    # evaluate() returns the loss the Voc was computed with: the class loss grown by loss_slope·(E_CT − ect_ref_ev)
+    # (Voc = E_CT − loss, Veldman et al., Adv. Funct. Mater. 19 (2009) 1939, doi:10.1002/adfm.200801834), not the
+    # constant class value
+    p = FittedParameters(loss_ev={"pooled": 0.55}, eqe_max=0.7, offset_scale_ev=0.05, ff=0.7, loss_slope=0.5,
+                         ect_ref_ev=1.4)
+    frame = _synthetic(seed=9)
+    levels = [frame[c].to_numpy(float) for c in devicefit._LEVELS]
+    e_ct = devicefit._e_ct(frame)
+    out = DeviceModel(parameters=p, absorber="both").evaluate(*levels)
+    applied = np.maximum(0.55 + 0.5 * (e_ct - 1.4), 0.0)
+    np.testing.assert_allclose(out["loss_ev"], applied, atol=1e-12)
+    assert np.ptp(out["loss_ev"]) > 0.05
+    ok = out["viable"] & ~out["voc_capped"]
+    assert ok.sum() > 5
+    np.testing.assert_allclose(out["voc_v"][ok], (e_ct - out["loss_ev"])[ok], atol=1e-12)
+    flat = DeviceModel(parameters=FittedParameters(loss_ev={"pooled": 0.55}, eqe_max=0.7, offset_scale_ev=0.05,
+                                                   ff=0.7), absorber="both").evaluate(*levels)
+    np.testing.assert_allclose(flat["loss_ev"], 0.55)
+
+
+def test_constant_variants_alone_choose_no_slope(devices):
+    # the nested CV offered only Veldman's constant loss (per split) never picks an E_CT-dependent loss
+    cv = devicefit.cross_validate(devices, None, "acceptor", devicefit.CONSTANT_VARIANTS)
+    assert cv.metrics["loss_split_per_fold"] and not any("+slope" in k for k in cv.metrics["loss_split_per_fold"])
+    assert set(devicefit.CONSTANT_VARIANTS) == {"pooled", "family", "class"}
