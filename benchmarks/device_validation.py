@@ -15,7 +15,20 @@ a PCE, also those without a Voc), how many working devices each model calls not
 viable, Scharber's rule on the papers' own levels for context, two naive
 references (training mean Voc; training mean Voc of the acceptor class), the
 same by acceptor class, and the targets (Voc MAE ≤ 0.10 V, Spearman(Voc) ≥ 0.7,
-Spearman(PCE) ≥ 0.4) with met / not met.  Nothing is asserted here.
+Spearman(PCE) ≥ 0.4) with met / not met.  Beside each, the same nested CV offering
+only the constant-loss variants (what the E_CT-dependent loss option adds, chosen
+the same nested way).
+
+Then what limits Spearman(Voc) (:func:`screen.devicevalidation.rank_limits`:
+spread of measured Voc within a blend, E_CT alone per class, held-out figures on
+film-set levels against converted levels), and the device model on COMPUTED
+levels (:func:`screen.devicevalidation.computed_validation`): every device whose
+donor and acceptor are calibration reference structures with stored raw
+GFN2-xTB values, levels from the calibration refitted without that structure,
+device model from the fold that holds the device's acceptor (donor) out, beside
+Scharber's rule on the same levels, the same models on the published levels and
+the training-mean Voc.  The computed-level part refits the calibration once per
+material (a few minutes); ``--skip-computed`` leaves it out.
 
 Usage::
 
@@ -25,21 +38,115 @@ Usage::
 from __future__ import annotations
 
 import argparse
+import math
 import sys
 from pathlib import Path
 
 REPO = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(REPO))
 
-from screen.devicefit import DEVICES_PATH, FILM_PATH, GROUPINGS, cross_validate, read_devices, table  # noqa: E402
+from screen.devicefit import (CONSTANT_VARIANTS, DEVICES_PATH, FILM_PATH, GROUPINGS, cross_validate,  # noqa: E402
+                              level_table, read_devices, table)
+from screen.devicevalidation import (RAW_PATH, computed_validation, coverage, levels_for, rank_limits,  # noqa: E402
+                                     read_raw)
 
 TARGETS = {"voc_mae_v": ("<=", 0.10), "spearman_voc": (">=", 0.7), "spearman_pce": (">=", 0.4)}
+
+
+def _f(x, spec=".3f") -> str:
+    return "n/a" if x is None or not math.isfinite(x) else format(x, spec)
+
+
+def _targets(m: dict, by: str) -> None:
+    verdicts = []
+    for key, (op, target) in TARGETS.items():
+        val = m["fitted"][key]
+        met = val <= target if op == "<=" else val >= target
+        verdicts.append(f"{key}={val:.3f} (target {op} {target}: {'met' if met else 'NOT met'})")
+    print(f"fitted model, {by} held out: " + "; ".join(verdicts))
+    beat = m["fitted"]["voc_mae_v"] < m["mean_voc_baseline"]["voc_mae_v"]
+    print(f"fitted Voc MAE {'below' if beat else 'NOT below'} the training-mean baseline "
+          f"({m['fitted']['voc_mae_v']:.3f} vs {m['mean_voc_baseline']['voc_mae_v']:.3f} V)")
+
+
+def held_out(d, by: str):
+    """Print one grouping's held-out table, targets and the constant-loss-only comparison; return the CV."""
+    cv = cross_validate(d, None, by)
+    m = cv.metrics
+    print(f"\nheld out: {m['grouping']} ({m['n_groups']} groups; loss variant chosen per training fold: "
+          f"{m['loss_split_per_fold']})")
+    print(table(m))
+    _targets(m, by)
+    const = cross_validate(d, None, by, CONSTANT_VARIANTS).metrics
+    print(f"nested CV with constant-loss variants only: Voc MAE {const['fitted']['voc_mae_v']:.3f} V, "
+          f"Spearman Voc {const['fitted']['spearman_voc']:.2f}, Spearman PCE {const['fitted']['spearman_pce']:.2f} "
+          f"(chosen {const['loss_split_per_fold']})")
+    print(" ".join(f"{by}_{model}_{k}={m[model][k]:.4f}" for model in ("fitted", "scharber")
+                   for k in ("voc_mae_v", "spearman_voc", "spearman_pce"))
+          + f" {by}_constant_only_voc_mae_v={const['fitted']['voc_mae_v']:.4f}"
+          f" {by}_constant_only_spearman_voc={const['fitted']['spearman_voc']:.4f}")
+    return cv
+
+
+def limits(d, cv) -> None:
+    """Print what limits Spearman(Voc) (acceptor-held-out predictions)."""
+    lim = rank_limits(d, cv.fitted)
+    b = lim["blends"]
+    print(f"\nwhat limits Spearman(Voc) ({b['n']} devices with Voc, {b['blends']} blends):")
+    print(f"  measured Voc spread: SD {b['voc_sd_v']:.3f} V over all devices; within the {b['repeated_blends']} "
+          f"repeated blends ({b['devices_in_repeated']} devices) rms {_f(b['within_blend_rms_v'])} V; ceiling "
+          f"Spearman (blend-mean Voc) {_f(b['ceiling_spearman'], '.2f')}")
+    cls = ", ".join(f"{c} {_f(v['spearman'], '.2f')} (n={v['n']})" for c, v in lim["e_ct_spearman"]["by_class"].items())
+    print(f"  Spearman(E_CT, Voc) on published levels: pooled {_f(lim['e_ct_spearman']['pooled'], '.2f')}; {cls}")
+    for name, label in (("film_set", "levels all from the film set"), ("converted", "converted/completed levels")):
+        s = lim["by_level_source"][name]
+        print(f"  held out, {label}: n={s['n']} Spearman Voc {_f(s['spearman_voc'], '.2f')}, "
+              f"Voc MAE {_f(s['voc_mae_v'])} V")
+    print(f"limit_ceiling_spearman={b['ceiling_spearman']:.4f} limit_within_blend_rms_v={b['within_blend_rms_v']:.4f} "
+          f"limit_e_ct_spearman={lim['e_ct_spearman']['pooled']:.4f} "
+          + " ".join(f"limit_{n}_spearman_voc={s['spearman_voc']:.4f}" for n, s in lim["by_level_source"].items()))
+
+
+def computed(d, devices, film, raw_path) -> None:
+    """Print the device model on computed (calibrated GFN2-xTB) levels, both groupings."""
+    raw = read_raw(raw_path)
+    every = level_table(devices, film)
+    cov = coverage(every, raw)
+    print(f"\ncomputed levels ({Path(raw_path).parent.name}/{Path(raw_path).name}; calibration refitted without "
+          f"each material): {int(cov.sum())} of {len(every)} device rows have donor and acceptor computed")
+    levels = levels_for(d, raw)
+    for by in GROUPINGS:
+        r = computed_validation(d, levels, raw, by)
+        c = r["coverage"]
+        print(f"held out ({r['grouping']}; loss variants {r['loss_split_per_fold']}): {c['computed']} usable devices "
+              f"computed, {c['with_voc']} with Voc, {c['with_pce']} with PCE")
+        rows = [("model", "levels", "n", "Voc MAE [V]", "signed [V]", "Spearman Voc", "Spearman PCE")]
+        for key, label, lv in (("fitted", "fitted", "computed"), ("scharber", "scharber", "computed"),
+                               ("fitted_published_levels", "fitted", "published")):
+            m = r[key]
+            rows.append((label, lv, str(m["n"]), _f(m["voc_mae_v"]), _f(m["voc_mse_v"], "+.3f"),
+                         _f(m["spearman_voc"], ".2f"), f"{_f(m['spearman_pce'], '.2f')} (n={m['n_pce']})"))
+        base = r["mean_voc_baseline"]
+        rows.append(("training mean Voc", "-", str(r["fitted"]["n"]), _f(base["voc_mae_v"]),
+                     _f(base["voc_mse_v"], "+.3f"), "-", "-"))
+        widths = [max(len(x[i]) for x in rows) for i in range(len(rows[0]))]
+        print("\n".join("  ".join(x.ljust(w) for x, w in zip(row, widths)) for row in rows))
+        err = r["level_errors"]
+        print("  computed - published levels (mean signed / MAE, eV): " + "; ".join(
+            f"{k.replace('_ev', '')} {v['mse_ev']:+.2f}/{v['mae_ev']:.2f}" for k, v in err.items()))
+        print(f"computed_{by}_n={r['fitted']['n']} computed_{by}_coverable_rows={int(cov.sum())} "
+              + " ".join(f"computed_{by}_{model}_{k}={r[model][k]:.4f}"
+                         for model in ("fitted", "scharber", "fitted_published_levels")
+                         for k in ("voc_mae_v", "voc_mse_v", "spearman_voc", "spearman_pce"))
+              + f" computed_{by}_mean_voc_baseline_mae_v={base['voc_mae_v']:.4f}")
 
 
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--devices", default=str(DEVICES_PATH))
     parser.add_argument("--film", default=str(FILM_PATH))
+    parser.add_argument("--raw", default=str(RAW_PATH), help="reference_raw.csv of the calibration to validate on")
+    parser.add_argument("--skip-computed", action="store_true", help="leave out the computed-level validation")
     args = parser.parse_args(argv)
     d = read_devices(args.devices, args.film)
     converted = int(d["levels_converted"].sum())
@@ -48,22 +155,10 @@ def main(argv=None) -> int:
           f"{len(d) - converted} entirely from {Path(args.film).name})")
     for row in d.attrs["dropped"]:
         print(f"  dropped {row['device_id']}: {row['drop_reason']}")
-    for by in GROUPINGS:
-        m = cross_validate(d, None, by).metrics
-        print(f"\nheld out: {m['grouping']} ({m['n_groups']} groups; loss variant chosen per training fold: "
-              f"{m['loss_split_per_fold']})")
-        print(table(m))
-        verdicts = []
-        for key, (op, target) in TARGETS.items():
-            val = m["fitted"][key]
-            met = val <= target if op == "<=" else val >= target
-            verdicts.append(f"{key}={val:.3f} (target {op} {target}: {'met' if met else 'NOT met'})")
-        print(f"fitted model, {by} held out: " + "; ".join(verdicts))
-        beat = m["fitted"]["voc_mae_v"] < m["mean_voc_baseline"]["voc_mae_v"]
-        print(f"fitted Voc MAE {'below' if beat else 'NOT below'} the training-mean baseline "
-              f"({m['fitted']['voc_mae_v']:.3f} vs {m['mean_voc_baseline']['voc_mae_v']:.3f} V)")
-        print(" ".join(f"{by}_{model}_{k}={m[model][k]:.4f}" for model in ("fitted", "scharber")
-                       for k in ("voc_mae_v", "spearman_voc", "spearman_pce")))
+    cvs = {by: held_out(d, by) for by in GROUPINGS}
+    limits(d, cvs["acceptor"])
+    if not args.skip_computed:
+        computed(d, args.devices, args.film, args.raw)
     return 0
 
 
