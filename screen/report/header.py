@@ -174,6 +174,25 @@ def _value(d, key, unit="", digits=2) -> str:
     return f"{fmt(x, digits)}{(' ' + unit) if unit else ''}"
 
 
+def _loss_words(dev: dict) -> str:
+    """The voltage loss as applied: with the fitted E_CT slope it is a line, not one number.
+
+    Examples
+    --------
+    >>> _loss_words({"loss_v": 0.3})
+    '0.30 V'
+    >>> _loss_words({"loss_v": 0.57, "loss_v_set": False, "fitted": {"loss_slope": 0.42, "ect_ref_ev": 1.46}})
+    '0.57 V at E<sub>CT</sub> = 1.46 eV, +0.42 V per eV of E<sub>CT</sub> above it (less below)'
+    """
+    base = _value(dev, "loss_v", "V")
+    fitted = dev.get("fitted") if isinstance(dev.get("fitted"), dict) else {}
+    slope, ref = num(fitted.get("loss_slope")), num(fitted.get("ect_ref_ev"))
+    if dev.get("loss_v_set") or math.isnan(slope) or math.isnan(ref) or slope <= 0:
+        return base
+    return (f"{base} at E<sub>CT</sub> = {fmt(ref)} eV, {fmt(slope, plus=True)} V per eV of E<sub>CT</sub> "
+            "above it (less below)")
+
+
 def _device_items(dev: dict) -> list[tuple[str, str]]:
     """Rows of the device-model list."""
     absorber = text(dev.get("absorber"))
@@ -183,7 +202,7 @@ def _device_items(dev: dict) -> list[tuple[str, str]]:
     return [
         ("EQE", _value(dev, "eqe")),
         ("Fill factor", _value(dev, "ff")),
-        ("Voltage loss", _value(dev, "loss_v", "V")),
+        ("Voltage loss", _loss_words(dev)),
         ("Min. \u0394LUMO", _value(dev, "min_delta_lumo_ev", "eV")),
         ("Min. \u0394HOMO", _value(dev, "min_delta_homo_ev", "eV")
          + (" (checked only when both absorb)" if absorber == "donor" else "")),
