@@ -260,7 +260,7 @@ def full_table(ranking: pd.DataFrame, meta: dict) -> str:
                       ("Passes", "num", "descending", "passes"), ("Notes", "", "", "flags")]
                    + [(esc(c), "text", "", "") for c in extra])
     body = []
-    for _, row in ranking.iterrows():
+    for row in ranking.to_dict("records"):  # plain dicts: fast .get on 10 000 rows
         ident = text(row.get("id"))
         codes = _flag_codes(row.get("flags"))
         notes = "; ".join(esc(describe(c, meta)) for c in codes) or "\u2014"
@@ -325,7 +325,7 @@ def not_ranked_table(levels: pd.DataFrame, ranking: pd.DataFrame) -> tuple[str, 
     body = []
     if levels is not None and len(levels):
         body += _unranked_rows(levels, ranking)
-    for _, row in bad.iterrows():
+    for row in bad.to_dict("records"):
         why = text(row.get("reason")).strip() or "; ".join(describe(c) for c in _flag_codes(row.get("flags"))) \
             or "no reason recorded"
         smi = text(row.get("smiles"))
