@@ -39,6 +39,13 @@ def _col(frame: pd.DataFrame, name: str) -> np.ndarray:
     return pd.to_numeric(frame[name], errors="coerce").to_numpy(float)
 
 
+def _polymer(frame: pd.DataFrame) -> np.ndarray:
+    """1.0 for a polymer row (``representation == "polymer"``, chain-limit values), else 0.0."""
+    if "representation" not in frame:
+        return np.zeros(len(frame))
+    return frame["representation"].astype(str).str.strip().eq("polymer").to_numpy(float)
+
+
 #: derived features: name → (function of the frame, the raw columns it uses with their coefficients)
 DERIVED = {
     "xtb_fund_ev": (lambda f: _col(f, "xtb_ip_ev") - _col(f, "xtb_ea_ev"), {"xtb_ip_ev": 1.0, "xtb_ea_ev": -1.0}),
@@ -47,6 +54,9 @@ DERIVED = {
                   {"xtb_gap_ev": 1.0, "xtb_k_hl_ev": 2.0}),
     "xtb_s1j_ev": (lambda f: _col(f, "xtb_gap_ev") - _col(f, "xtb_j_hl_ev") + 2.0 * _col(f, "xtb_k_hl_ev"),
                    {"xtb_gap_ev": 1.0, "xtb_j_hl_ev": -1.0, "xtb_k_hl_ev": 2.0}),
+    # polymer at the chain limit: the ideal, planar infinite chain overestimates the conjugation of a real film
+    # (finite effective conjugation length, torsional disorder); no raw column, so no chain-spread propagation
+    "polymer": (_polymer, {}),
 }
 
 

@@ -59,7 +59,7 @@ _DYE_COLUMNS = ["name", "smiles", "e00_ev", "exclude_reason"]
 #: benzene … pentacene (canonical SMILES)
 ACENES = {"c1ccccc1", "c1ccc2ccccc2c1", "c1ccc2cc3ccccc3cc2c1", "c1ccc2cc3cc4ccccc4cc3cc2c1",
           "c1ccc2cc3cc4cc5ccccc5cc4cc3cc2c1"}
-_FULLERENE = re.compile(r"C60|C70|fullere|ICBA|ICMA|IC70", re.I)
+_FULLERENE = re.compile(r"C60|C70|fuller[eo]|ICBA|ICMA|IC70", re.I)
 _NFA = re.compile(r"ITIC|^IT-|Y6|IDTBR|IDIC|IEICO|L8-BO|BTP|FBR|IO-4Cl|PTCDI|PDI")
 _BDT = Chem.MolFromSmarts("c1cc2cc3ccsc3cc2s1")
 _THIOPHENE_ONLY = re.compile(r"thiophene", re.I)
