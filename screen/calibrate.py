@@ -14,7 +14,10 @@ engine, method; polymers as oligomers extrapolated to the chain limit):
   absorption-maximum offset; features chosen by leave-one-family-out MAE;
 * ``homo_film``/``lumo_film``: film levels (:mod:`screen.calibration.film`) from the
   ΔSCF IP/EA in a dielectric continuum (ε = 3.5) with one linear calibration on
-  top, or the gas model plus a constant, whichever cross-validates better.
+  top, or the gas model plus a constant, whichever cross-validates better; the
+  feature sets offered include a polymer indicator (a real polymer film ionises
+  harder than its ideal, fully conjugated chain limit), kept only where it wins
+  the cross-validation (today: the film HOMO).
 
 Every model is validated by LOO and by a grouped hold-out that leaves out one
 material family at a time (:mod:`screen.calibration.validation`); both are stored
