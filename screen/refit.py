@@ -17,9 +17,10 @@ values would calibrate the wrong numbers).
 
 Examples
 --------
+>>> import screen
 >>> from screen.config import Config
 >>> cfg = Config.of({})
->>> folder = f"models/{cfg.protocol_id}"
+>>> folder = Path(screen.__file__).resolve().parents[1] / "models" / cfg.protocol_id  # the shipped models
 >>> raw, sidecar = read_raw_source(folder, cfg.protocol_id)
 >>> bool(len(raw) > 100), set(raw["status"]) <= {"ok", "failed", "rejected"}
 (True, True)
