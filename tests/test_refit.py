@@ -49,14 +49,14 @@ def test_a_new_reference_structure_without_raw_values_is_listed(tmp_path):
     shutil.copytree(REPO / "models" / "reference", ref)
     ip = pd.read_csv(ref / "ip_gas.csv", dtype=str, keep_default_na=False)
     extra = {c: "" for c in ip.columns}
-    extra.update(name="azulene", smiles="c1ccc2cccc2cc1", value_ev="7.42", kind="adiabatic", phase="gas",
-                 source="test row", from_memory="true")
+    extra.update(name="biphenylene", smiles="c1ccc2c(c1)-c1ccccc1-2", value_ev="7.56", kind="adiabatic", phase="gas",
+                 source="test row: a structure the raw table lacks (value not used)", from_memory="true")
     pd.concat([ip, pd.DataFrame([extra])]).to_csv(ref / "ip_gas.csv", index=False)
     cfg = Config.of({"calibration": {"reference": str(ref)}})
-    with pytest.raises(ConfigError, match=r"1 reference structure\(s\) have no raw values \(azulene\)"):
+    with pytest.raises(ConfigError, match=r"1 reference structure\(s\) have no raw values \(biphenylene\)"):
         refit_from_raw(cfg, [SHIPPED], tmp_path / "out")
     listed = pd.read_csv(tmp_path / "out" / "missing_reference.csv")
-    assert listed["smiles"].tolist() == ["c1ccc2cccc2cc1"]
+    assert listed["smiles"].tolist() == ["c1ccc2c(c1)-c1ccccc1-2"]
 
 
 def test_every_shipped_reference_structure_has_raw_values():
