@@ -68,14 +68,15 @@ for IEICO-4F and LEG4 (RDKit only) showed the default conformers are a subset of
 no-pruning ones and the six lowest of the no-pruning set lie within 4.6 and 3.4 kcal/mol
 of the lowest, so the window would not have removed the winner either: the change
 comes from the size caps (fewer conformers embedded and ranked). Where the window
-did act (DIB-SQ: 5 conformers, 2 ranked) nothing changed.
+did act (DIB-SQ: 5 conformers, 2 ranked) nothing changed. Molecules under ~60 atoms
+are untouched (the caps do not apply). The restarts are covered by ``protocol_cost.py``
+(≤ 1e-7 Eh).
 
 The stored raw values the shipped models were fitted on are not all reproduced by
 today's default route: the raw ΔSCF IP differs by up to 0.120 eV (NKX-2311, 57 atoms;
 also WS-2 0.050, D205 0.062, C219/BTP-eC9 0.027, and 0.003-0.015 eV for about ten
-more of 48-90 atoms; ≤ 0.0002 eV below 48 atoms), so part of that table predates the
-current structures route. Molecules under ~60 atoms are untouched (caps do not apply). The
-restarts are covered by ``protocol_cost.py`` (≤ 1e-7 Eh).
+more of 48-90 atoms; ≤ 0.0002 eV below 48 atoms): part of that table comes from another
+structures route or version (not investigated here).
 
 Usage::
 
