@@ -419,6 +419,10 @@ def _label_offsets(ax, labels) -> list[tuple[float, float]]:
     return out
 
 
+#: above this many plain markers the map draws them as one embedded raster image (shortlist and axes stay vector)
+RASTER_ABOVE = 2000
+
+
 def _map_candidates(ax, pts: pd.DataFrame, finite: pd.Series, shortlist_index, extent) -> None:
     """Viable rows as dots, not viable ones as crosses, the shortlist as amber diamonds labelled by id."""
     from matplotlib import patheffects
@@ -426,11 +430,12 @@ def _map_candidates(ax, pts: pd.DataFrame, finite: pd.Series, shortlist_index, e
     g_lo, g_hi, o_lo, o_hi = extent
     short = pts.index.isin(list(shortlist_index))
     rest = finite & ~short
+    many = int(rest.sum()) > RASTER_ABOVE  # thousands of markers: one embedded image, not one SVG node each
     ax.plot(pts.loc[rest & pts["viable"], "x"], pts.loc[rest & pts["viable"], "y"], ls="none", marker="o", ms=4.0,
-            color=_SLATE, alpha=0.75, mec="white", mew=0.4, label="ranked candidate", zorder=3)
+            color=_SLATE, alpha=0.75, mec="white", mew=0.4, label="ranked candidate", zorder=3, rasterized=many)
     if (rest & ~pts["viable"]).any():
         ax.plot(pts.loc[rest & ~pts["viable"], "x"], pts.loc[rest & ~pts["viable"], "y"], ls="none", marker="x",
-                ms=4.5, color=_BRICK, alpha=0.8, label="candidate, not viable", zorder=3)
+                ms=4.5, color=_BRICK, alpha=0.8, label="candidate, not viable", zorder=3, rasterized=many)
     sl = finite & short
     ax.scatter(pts.loc[sl, "x"], pts.loc[sl, "y"], s=46, marker="D", c=_AMBER, edgecolors=_TEAL_DARK,
                linewidths=0.9, label="shortlisted (label = id)", zorder=4)

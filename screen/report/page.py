@@ -140,10 +140,30 @@ def _shortlist_section(ranking: pd.DataFrame, short: pd.DataFrame, how: str, pid
         "Click a column header to sort.</p>",
         f'<div class="tablewrap">{shortlist_table(short, meta)}</div>',
         '<details id="all-ranked">',
-        f"<summary>Every ranked candidate ({len(ranking)} rows)</summary>",
-        f'<div class="tablewrap">{full_table(ranking, meta)}</div>',
+        _all_ranked_summary(len(ranking)),
+        f'<div class="tablewrap">{full_table(ranking.head(FULL_TABLE_MAX_ROWS), meta)}</div>',
         "</details>",
     ]
+
+
+#: rows of the collapsible "every ranked candidate" table; the ranking CSV always holds all of them
+FULL_TABLE_MAX_ROWS = 2000
+
+
+def _all_ranked_summary(n: int) -> str:
+    """Caption of the collapsible table: every row, or the first :data:`FULL_TABLE_MAX_ROWS` of a long ranking.
+
+    Examples
+    --------
+    >>> _all_ranked_summary(30)
+    '<summary>Every ranked candidate (30 rows)</summary>'
+    >>> _all_ranked_summary(10000)  # doctest: +ELLIPSIS
+    '<summary>The first 2000 of 10000 ranked candidates (all of them are in ranking.csv)</summary>'
+    """
+    if n <= FULL_TABLE_MAX_ROWS:
+        return f"<summary>Every ranked candidate ({n} rows)</summary>"
+    return (f"<summary>The first {FULL_TABLE_MAX_ROWS} of {n} ranked candidates "
+            "(all of them are in ranking.csv)</summary>")
 
 
 def _figures_section(levels_fig: str, map_fig: str, map_note: str, n_short: int, meta: dict) -> list[str]:
