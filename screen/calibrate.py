@@ -62,7 +62,7 @@ from screen.calibration.reference import (FC_REFERENCE_EV, family, joined, read_
 from screen.calibration.validation import select
 from screen.config import Config
 from screen.errors import ConfigError
-from screen.io import write_json
+from screen.io import write_csv, write_json
 from screen.provenance import provenance
 
 __all__ = [
@@ -83,6 +83,7 @@ __all__ = [
     "fit_all",
     "raw_table",
     "save_models",
+    "save_calibration",
     "load_models",
     "find_models",
     "apply_models",
@@ -194,6 +195,26 @@ def save_models(models: dict[str, dict], out_dir: str | Path, fp: dict) -> Path:
     for prop, model in models.items():
         write_json({**model, "fingerprint": fp}, target / f"{prop}.json")
     return target
+
+
+def save_calibration(models: dict[str, dict], computed: pd.DataFrame, oligomers: pd.DataFrame, out_dir: str | Path,
+                     fp: dict) -> tuple[Path, pd.DataFrame]:
+    """The model files plus what a later refit or hold-out test needs, in ``<out_dir>/<protocol-id>/``.
+
+    Besides the models (:func:`save_models`): ``statistics.csv``, ``reference_failures.csv``,
+    ``reference_raw.csv`` (the raw values fitted on, polymers at the chain limit) and, when there
+    are polymers, ``reference_oligomers.csv`` (their per-n values). Returns the folder and the
+    statistics table.
+    """
+    target = save_models(models, out_dir, fp)
+    table = stats_table(models)
+    write_csv(table, target / "statistics.csv")
+    failed = computed[computed["status"] != "ok"]
+    write_csv(failed.reindex(columns=["id", "smiles", "status", "error"]), target / "reference_failures.csv")
+    write_csv(raw_table(computed), target / "reference_raw.csv")
+    if len(oligomers):
+        write_csv(oligomers, target / "reference_oligomers.csv")
+    return target, table
 
 
 # --------------------------------------------------------------------------- using models

@@ -28,16 +28,15 @@ Examples
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import pandas as pd
 
-from screen.calibrate import fingerprint, fit_all, raw_table, read_reference, save_models, stats_table
+from screen.calibrate import fingerprint, fit_all, read_reference, save_calibration
 from screen.calibration.reference import canonical, reference_inputs
 from screen.config import Config
 from screen.errors import ConfigError
-from screen.io import read_csv_checked, write_csv
+from screen.io import read_csv_checked, read_json, write_csv
 
 __all__ = ["read_raw_source", "missing_structures", "refit_from_raw"]
 
@@ -48,10 +47,10 @@ def _source_protocol(folder: Path) -> str | None:
     """Protocol id a raw-value folder was computed with (model folder or run folder), or ``None``."""
     meta = folder / "levels.csv.meta.json"
     if meta.is_file():
-        return json.loads(meta.read_text(encoding="utf-8")).get("protocol_id")
+        return read_json(meta).get("protocol_id")
     model = folder / "ip.json"
     if model.is_file():
-        return json.loads(model.read_text(encoding="utf-8")).get("fingerprint", {}).get("protocol_id")
+        return read_json(model).get("fingerprint", {}).get("protocol_id")
     return None
 
 
@@ -151,14 +150,6 @@ def refit_from_raw(config, sources, out_root: str | Path) -> tuple[Path, pd.Data
         names = ", ".join(missing["name"].head(8)) + (" …" if len(missing) > 8 else "")
         raise ConfigError(f"--from-raw: {len(missing)} reference structure(s) have no raw values ({names}); "
                           f"compute them with `dascreen run {listing} --out DIR` and add `--from-raw DIR`")
-    models = fit_all(sets, computed)
-    target = save_models(models, out_root, fingerprint(cfg, reference))
-    table = stats_table(models)
-    write_csv(table, target / "statistics.csv")
-    failed = computed[computed["status"] != "ok"]
-    write_csv(failed.reindex(columns=["id", "smiles", "status", "error"]), target / "reference_failures.csv")
-    write_csv(raw_table(computed), target / "reference_raw.csv")
     parts = [s for s in sides if len(s)]
-    if parts:
-        write_csv(pd.concat(parts, ignore_index=True).drop_duplicates(), target / "reference_oligomers.csv")
-    return target, table
+    oligomers = pd.concat(parts, ignore_index=True).drop_duplicates() if parts else pd.DataFrame()
+    return save_calibration(fit_all(sets, computed), computed, oligomers, out_root, fingerprint(cfg, reference))

@@ -122,21 +122,13 @@ def _reference_input(args, cfg):
 
 
 def _calibrate(args, cfg):
-    from screen.calibrate import fingerprint, fit_all, raw_table, read_reference, save_models, stats_table
-    from screen.io import write_csv
+    from screen.calibrate import fingerprint, fit_all, read_reference, save_calibration
 
     computed, sidecar = _read_computed(args.manifest, args.electronic, cfg)
     models = fit_all(read_reference(args.reference), computed)
-    target = save_models(models, args.models_root, fingerprint(cfg, args.reference))
-    table = stats_table(models)
-    write_csv(table, target / "statistics.csv")
-    failed = computed[computed["status"] != "ok"]
-    write_csv(failed[["id", "smiles", "status", "error"]], target / "reference_failures.csv")
-    # the raw values the models were fitted on (polymers at the chain limit) and the per-n values of the
-    # reference polymers: hold-out tests and refits (e.g. with monomers only) need no recomputation
-    write_csv(raw_table(computed), target / "reference_raw.csv")
-    if len(sidecar):
-        write_csv(sidecar, target / "reference_oligomers.csv")
+    # with the raw values fitted on and the per-n values of the reference polymers: hold-out tests and
+    # refits (`dascreen calibrate --from-raw`) need no recomputation
+    _, table = save_calibration(models, computed, sidecar, args.models_root, fingerprint(cfg, args.reference))
     print(table.to_string(index=False))
 
 
