@@ -373,7 +373,9 @@ def _add_rank(sub) -> None:
     """The ``rank`` sub-command."""
     p = sub.add_parser("rank", help="ranking and report only, from an existing levels file (seconds)",
                        description="Pair every candidate of a levels file with a partner material, estimate "
-                                   "Voc/Jsc/PCE with the Scharber model, apply the filters and write "
+                                   "Voc/Jsc/PCE with the device model (default: the fitted energy-loss model; "
+                                   "--set device.model=scharber for the published Scharber rule), apply the filters "
+                                   "and write "
                                    "OUT/rankings/<partner>--<settings hash>/ (ranking.csv, shortlist.sdf, ranking.meta.json, "
                                    "report); with several partners also OUT/rankings/matrix--<hash>/. "
                                    "Runs no quantum chemistry, except that a new smiles: partner is computed once "
