@@ -124,12 +124,12 @@ def oligomer_table(manifest: pd.DataFrame, options: PolymerOptions = PolymerOpti
         return pd.DataFrame(columns=list(OLIGOMER_COLUMNS))
     poly = manifest[manifest["status"].eq("ok") & manifest["representation"].eq("polymer")]
     seen: set[str] = set()
+    count = _computed_atoms(truncate_min_carbons) if truncate_min_carbons else None
     for pkey, pid, smi in zip(poly["key"], poly["id"], poly["smiles"]):
         if pkey in seen:
             continue
         seen.add(pkey)
         unit = RepeatUnit.from_smiles(smi)
-        count = _computed_atoms(truncate_min_carbons) if truncate_min_carbons else None
         for n, osmi in oligomer_series(unit, options.n_max, options.max_atoms, options.cap, count):
             osmi = canonical_smiles(osmi)  # the prepare stage's form: equal molecules share a key
             rows.append({"polymer_key": pkey, "polymer_id": pid, "n": n, "key": structure_key(osmi),
