@@ -24,9 +24,13 @@ every donor and acceptor separately:
    :data:`MIN_SHARED_MATERIALS` distinct materials, else the row is dropped);
 4. a donor LUMO that is still missing becomes HOMO + optical gap (the film
    set's own convention for several polymers; flagged);
-5. a row whose six levels are still incomplete is dropped with its reason.
+5. a row whose six levels are still incomplete is dropped with its reason;
+6. a row whose ``architecture`` is a planar bilayer (:data:`NOT_BLEND`) is
+   dropped too: the model estimates bulk-heterojunction blends, and a
+   bilayer's donor/acceptor interface, and with it its losses and current, is
+   of another kind (an empty ``architecture`` means a bulk heterojunction).
 
-:func:`level_table` returns all 82 rows with the resolved levels, their
+:func:`level_table` returns every row with the resolved levels, their
 sources and the reason of every dropped row (written to
 ``models/device/device_levels.csv`` by ``--write``).  Neither reference file
 is edited.
@@ -55,8 +59,11 @@ import pandas as pd
 from screen.chem import canonical_smiles
 from screen.errors import InputError
 
-__all__ = ["DEVICES_PATH", "FILM_PATH", "FC_SCALE_EV", "MIN_SHARED_MATERIALS", "LEVELS", "level_table",
+__all__ = ["DEVICES_PATH", "FILM_PATH", "FC_SCALE_EV", "MIN_SHARED_MATERIALS", "LEVELS", "NOT_BLEND", "level_table",
            "resolve_levels", "read_devices"]
+
+#: ``architecture`` values of devices that are not bulk-heterojunction blends (dropped with their reason)
+NOT_BLEND = ("planar bilayer",)
 
 _REPO = Path(__file__).resolve().parent.parent
 DEVICES_PATH = _REPO / "models" / "reference" / "devices.csv"
@@ -217,6 +224,8 @@ def level_table(devices=DEVICES_PATH, film=FILM_PATH) -> pd.DataFrame:
                 why.append(f"{role} levels have no ferrocene reference and too few shared materials to convert")
             elif lack:
                 why.append(f"{role} {'/'.join(lack)} not known (no film-set row, not given in the paper)")
+        if _architecture(frame, k) in NOT_BLEND:
+            why.append(f"{_architecture(frame, k)}, not a bulk-heterojunction blend (the model estimates blends)")
         reasons.append("; ".join(why))
     out["drop_reason"] = reasons
     out["levels_converted"] = ~(out["donor_level_source"].str.startswith("film")
@@ -226,6 +235,14 @@ def level_table(devices=DEVICES_PATH, film=FILM_PATH) -> pd.DataFrame:
     out["donor_group"] = [_canon(s) or str(n) for s, n in zip(frame["donor_smiles"], frame["donor"])]
     out.attrs["shifts"] = shift_notes
     return out
+
+
+def _architecture(frame: pd.DataFrame, k: int) -> str:
+    """The row's ``architecture`` in lower case ('' when the column is absent or empty: a blend)."""
+    if "architecture" not in frame:
+        return ""
+    value = frame.at[k, "architecture"]
+    return str(value).strip().lower() if isinstance(value, str) else ""
 
 
 def resolve_levels(devices=DEVICES_PATH, film=FILM_PATH) -> pd.DataFrame:

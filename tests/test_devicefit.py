@@ -200,3 +200,17 @@ def test_constant_variants_alone_choose_no_slope(devices):
     cv = devicefit.cross_validate(devices, None, "acceptor", devicefit.CONSTANT_VARIANTS)
     assert cv.metrics["loss_split_per_fold"] and not any("+slope" in k for k in cv.metrics["loss_split_per_fold"])
     assert set(devicefit.CONSTANT_VARIANTS) == {"pooled", "family", "class"}
+
+
+def test_planar_bilayers_are_not_blends(tmp_path):
+    # the model estimates bulk-heterojunction blends; a planar bilayer row is dropped with its reason,
+    # an empty architecture means a blend
+    src = pd.read_csv(devicefit.DEVICES_PATH)
+    rows = src[src["device_id"].isin(["pbdbt-y1-2019", "pentacene-c60-2004"])].copy()
+    rows["architecture"] = ["planar bilayer" if d == "pentacene-c60-2004" else "" for d in rows["device_id"]]
+    path = tmp_path / "devices.csv"
+    rows.to_csv(path, index=False)
+    table = devicefit.level_table(path).set_index("device_id")
+    assert "planar bilayer, not a bulk-heterojunction blend" in table.at["pentacene-c60-2004", "drop_reason"]
+    assert "architecture" not in table.at["pbdbt-y1-2019", "drop_reason"]
+    assert "pentacene-c60-2004" not in set(devicefit.read_devices(path)["device_id"])
