@@ -5,7 +5,30 @@ the numbers are random draws in a plausible range, not predictions for the
 SMILES they carry), times :func:`screen.rank_io.run_rank` against a library
 partner (best of ``--repeats``), and compares that with the time the full
 pipeline would need for the same number of molecules, estimated from the
-measured seconds per molecule of the structures + electronic stages:
+measured seconds per molecule of the structures + electronic stages.
+
+The synthetic rows are ranked the way a real re-rank finds them: each row has
+a structure ``key`` (synthetic, one per row) and the run folder beside the
+levels file holds the structures stage's output, ``work/candidates/structures/
+shard-NNN.sdf`` with 25 records per shard (the default ``prepare.shard_size``),
+one record per key, titled by the key.  The coordinates are one ETKDG
+embedding per distinct SMILES of the pool (no force-field step: only reading
+them is timed), so the shortlist export reads stored geometries, as it does
+after a real run, instead of embedding molecules that have none
+(``--no-structures`` times that case: levels files without computed
+structures, e.g. a user's own measurements).  :func:`run_rank` reports the
+seconds of its phases; the benchmark prints the best of each:
+
+* ``rank_s``: :func:`screen.rank.rank_candidates` inside ``run_rank``;
+* ``export_s``: ``ranking.csv``, reading the shortlist's stored geometries,
+  ``shortlist.sdf`` and ``ranking.meta.json``;
+* ``report_s``: ``report.html`` and ``ranking.safe.csv``.
+
+The first ``run_rank`` of the process is printed apart (``first_rerank_s``): it
+also pays the one-off imports (Matplotlib, RDKit drawing) that a fresh
+``dascreen rank`` process pays once.
+
+The pipeline estimate comes from:
 
 * by default, ``--n-demo`` molecules of ``candidates/demo.csv`` are run through
   :func:`screen.structures.build_structure` and
@@ -22,16 +45,19 @@ plus :func:`screen.sampling.sample_pce` for N pairs × 2000 samples (target for
 not in the tests.
 
 The last line holds ``key=value`` pairs, e.g.
-``rerank_s=1.9 rank_only_s=0.8 full_estimate_s=12000 ratio=0.00016 ... sampler_s=0.4``.
+``rerank_s=1.9 rank_only_s=0.8 report_s=0.7 export_s=0.2 ... full_estimate_s=12000 ratio=0.00016 ...
+sampler_s=0.4 load_before=0.5 load_after=0.9``.
 
 Usage::
 
-    .venv/bin/python benchmarks/rerank.py [--n 10000] [--levels results/demo/levels.csv]
+    .venv/bin/python benchmarks/rerank.py [--n 10000] [--levels results/demo/levels.csv] [--no-structures]
 """
 
 from __future__ import annotations
 
 import argparse
+import hashlib
+import os
 import shutil
 import sys
 import tempfile
@@ -65,7 +91,8 @@ def synthetic_levels(n: int, seed: int, smiles_pool: list[str]) -> pd.DataFrame:
     pandas.DataFrame
         ``levels.csv``-like table: HOMO uniform in [−5.9, −4.9] eV, optical gap
         in [1.1, 2.6] eV, LUMO = HOMO + gap + U(0, 0.4) eV, σ 0.1–0.25 eV,
-        roles mostly donor, a few acceptors and empty.
+        roles mostly donor, a few acceptors and empty; ``key`` is a synthetic
+        structure key per row (``m`` + 16 hex digits of the SHA-1 of the id).
     """
     rng = np.random.default_rng(seed)
     homo = rng.uniform(-5.9, -4.9, n)
@@ -80,7 +107,58 @@ def synthetic_levels(n: int, seed: int, smiles_pool: list[str]) -> pd.DataFrame:
         "homo_sigma_ev": rng.uniform(0.1, 0.25, n).round(4), "lumo_sigma_ev": rng.uniform(0.1, 0.25, n).round(4),
         "gap_opt_sigma_ev": rng.uniform(0.1, 0.2, n).round(4), "scale": "film", "role": role,
         "source": "synthetic benchmark row (random numbers)",
+        "key": [_synthetic_key(i) for i in range(n)],
     })
+
+
+def _synthetic_key(i: int) -> str:
+    """Structure key of synthetic row i (the form of :func:`screen.chem.structure_key`)."""
+    return "m" + hashlib.sha1(f"synthetic-{i:05d}".encode("utf-8")).hexdigest()[:16]
+
+
+def write_structures(levels: pd.DataFrame, run_dir: Path, shard_size: int = 25, seed: int = 61453) -> int:
+    """Write the structures stage's output for the synthetic rows: one SD record per key, 25 per shard.
+
+    Parameters
+    ----------
+    levels : pandas.DataFrame
+        From :func:`synthetic_levels` (``key``, ``smiles``).
+    run_dir : pathlib.Path
+        Folder of the levels file; records go to ``work/candidates/structures/shard-NNN.sdf``.
+    shard_size : int
+        Records per shard (the default ``prepare.shard_size``).
+    seed : int
+        ETKDG seed.
+
+    Returns
+    -------
+    int
+        Records written (rows whose SMILES could not be embedded have none, like a failed structure).
+    """
+    from rdkit import Chem, rdBase
+    from rdkit.Chem import AllChem
+
+    blocks = {}
+    with rdBase.BlockLogs():
+        for smi in dict.fromkeys(levels["smiles"]):
+            mol = Chem.MolFromSmiles(smi)
+            if mol is None:
+                continue
+            mol = Chem.AddHs(mol)
+            params = AllChem.ETKDGv3()
+            params.randomSeed = seed
+            if AllChem.EmbedMolecule(mol, params) == 0:
+                block = Chem.MolToMolBlock(mol)
+                blocks[smi] = block[block.index("\n"):]  # everything after the title line
+    folder = run_dir / "work" / "candidates" / "structures"
+    folder.mkdir(parents=True, exist_ok=True)
+    written = 0
+    rows = list(zip(levels["key"], levels["smiles"]))
+    for shard, start in enumerate(range(0, len(rows), shard_size)):
+        records = [f"{key}{blocks[smi]}$$$$\n" for key, smi in rows[start:start + shard_size] if smi in blocks]
+        (folder / f"shard-{shard:03d}.sdf").write_text("".join(records), encoding="utf-8")
+        written += len(records)
+    return written
 
 
 def time_device_kernel(n: int, seed: int, repeats: int, n_samples: int = 2000) -> float:
@@ -166,14 +244,21 @@ def main(argv=None) -> int:
     parser.add_argument("--demo", default=str(REPO / "candidates" / "demo.csv"))
     parser.add_argument("--n-demo", type=int, default=10)
     parser.add_argument("--no-report", action="store_true", help="time run_rank without the HTML report")
+    parser.add_argument("--no-structures", action="store_true",
+                        help="no stored structures beside the levels file (the shortlist is embedded by run_rank)")
     args = parser.parse_args(argv)
 
+    load_before = os.getloadavg()[0]
+    print(f"{os.cpu_count()} CPUs; load average {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     pool = pd.read_csv(args.demo, dtype=str, keep_default_na=False)["smiles"].tolist()
     work = Path(tempfile.mkdtemp(prefix="dascreen-rerank-"))
     try:
         levels = synthetic_levels(args.n, args.seed, pool)
+        if args.no_structures:
+            levels = levels.drop(columns="key")
         levels_csv = work / "levels.csv"
         levels.to_csv(levels_csv, index=False)
+        stored = 0 if args.no_structures else write_structures(levels, work)
 
         from screen.partners import resolve_partner
         from screen.spectrum import reference_spectrum
@@ -185,15 +270,23 @@ def main(argv=None) -> int:
             t = time.perf_counter()
             rank_candidates(levels, partner, None, RankOptions())
             rank_only.append(time.perf_counter() - t)
-        full = []
+        full, phases = [], {}
+        t = time.perf_counter()
+        run_rank(levels_csv, args.partner, work / "out", {}, report=not args.no_report)
+        first = time.perf_counter() - t  # pays the one-off imports of the report (Matplotlib, RDKit drawing)
         for _ in range(args.repeats):
+            timings = {}
             t = time.perf_counter()
-            path = run_rank(levels_csv, args.partner, work / "out", {}, report=not args.no_report)
+            path = run_rank(levels_csv, args.partner, work / "out", {}, report=not args.no_report, timings=timings)
             full.append(time.perf_counter() - t)
+            for key, value in timings.items():
+                phases[key] = min(phases.get(key, np.inf), value)
         outputs = sorted(p.name for p in path.parent.iterdir())
-        print(f"run_rank, {args.n} synthetic rows vs {args.partner}: best of {args.repeats} = {min(full):.2f} s "
-              f"(all: {', '.join(f'{x:.2f}' for x in full)}); rank_candidates alone {min(rank_only):.2f} s; "
-              f"outputs {outputs}")
+        print(f"run_rank, {args.n} synthetic rows vs {args.partner} "
+              f"({stored} stored structures beside the levels file): best of {args.repeats} = {min(full):.2f} s "
+              f"(all: {', '.join(f'{x:.2f}' for x in full)}; first run of the process {first:.2f} s); "
+              f"rank_candidates alone {min(rank_only):.2f} s; outputs {outputs}")
+        print("  phases, best of each: " + ", ".join(f"{k} {v:.2f} s" for k, v in phases.items()))
 
         if args.levels:
             per_mol, n_mol = per_molecule_from_levels(Path(args.levels))
@@ -208,12 +301,19 @@ def main(argv=None) -> int:
               f"~ {estimate:.0f} s = {estimate / 3600:.1f} h on one core; re-rank / full = {ratio:.2e}")
         target = "met" if min(full) < 10.0 else "MISSED"
         print(f"target re-rank of {args.n} < 10 s: {target}")
+        if args.n == 10_000 and not args.no_report:
+            print(f"target run_rank with report of 10 000 < 2 s: {'met' if min(full) < 2.0 else 'MISSED'} "
+                  f"({min(full):.2f} s)")
         sampler = time_device_kernel(args.n, args.seed, args.repeats)
         print(f"device model + Monte-Carlo spread, {args.n} pairs x 2000 samples: best {sampler:.2f} s "
               f"(target for 10 000 pairs < 1 s); rank_candidates {min(rank_only):.2f} s (target < 2 s)")
-        print(f"rerank_s={min(full):.3f} rank_only_s={min(rank_only):.3f} full_estimate_s={estimate:.1f} "
+        print(f"rerank_s={min(full):.3f} rank_only_s={min(rank_only):.3f} "
+              f"report_s={phases.get('report_s', np.nan):.3f} export_s={phases.get('export_s', np.nan):.3f} "
+              f"rank_s={phases.get('rank_s', np.nan):.3f} read_s={phases.get('read_s', np.nan):.3f} "
+              f"first_rerank_s={first:.3f} stored_structures={stored} full_estimate_s={estimate:.1f} "
               f"ratio={ratio:.3e} per_molecule_s={per_mol:.3f} n={args.n} n_timed_molecules={n_mol} "
-              f"source={source} report={not args.no_report} sampler_s={sampler:.3f}")
+              f"source={source} report={not args.no_report} sampler_s={sampler:.3f} "
+              f"load_before={load_before:.2f} load_after={os.getloadavg()[0]:.2f}")
     finally:
         shutil.rmtree(work, ignore_errors=True)
     return 0

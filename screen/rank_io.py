@@ -18,6 +18,7 @@ import importlib.util
 import json
 import math
 import sys
+import time
 from dataclasses import asdict
 from pathlib import Path
 
@@ -398,7 +399,7 @@ def _check_target(target: Path, partner: Partner, levels_path: Path) -> None:
 
 
 def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_levels=None,
-             report: bool = True) -> Path:
+             report: bool = True, timings: dict | None = None) -> Path:
     """Rank a levels file against a partner and write the ranking folder.
 
     Parameters
@@ -420,6 +421,12 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
         protocol must be that of the levels being ranked.
     report : bool
         Call ``screen.report.write_report`` if that module is present.
+    timings : dict, optional
+        Filled with the wall seconds of each phase (for ``benchmarks/rerank.py``):
+        ``read_s`` (levels file, checks, partner), ``rank_s``
+        (:func:`rank_candidates`), ``export_s`` (``ranking.csv``, geometries,
+        ``shortlist.sdf``, ``ranking.meta.json``) and ``report_s`` (0 without
+        the report).
 
     Returns
     -------
@@ -450,6 +457,14 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     from screen.io import write_csv, write_json
     from screen.levels import read_levels
 
+    clock = [time.perf_counter()]
+
+    def lap(name: str) -> None:
+        now = time.perf_counter()
+        if timings is not None:
+            timings[name] = now - clock[0]
+        clock[0] = now
+
     cfg = Config.of(config)
     levels_path = Path(levels_path)
     out_dir = Path(out_dir)
@@ -459,7 +474,9 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     partner = _partner(partner_spec, levels, levels_path, meta_in, out_dir, partner_levels)
     model = DeviceModel(**cfg["device"])
     options = RankOptions.from_mapping(cfg["rank"])
+    lap("read_s")
     ranking = rank_candidates(levels, partner, model, options)
+    lap("rank_s")
 
     target = out_dir / "rankings" / ranking_folder(partner.slug, cfg)
     _check_target(target, partner, levels_path)
@@ -471,8 +488,10 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     meta = _rank_meta(ranking, levels, levels_path, meta_in, partner, model, options, short)
     meta["settings_hash"] = settings_hash(cfg)
     write_json(meta, target / "ranking.meta.json")
+    lap("export_s")
     if report:
         status = _write_report(ranking, levels, partner.as_dict(), meta, target)
         if status != "written":
             print(f"dascreen rank: report {status}", file=sys.stderr)
+    lap("report_s")
     return target / "ranking.csv"
