@@ -17,6 +17,7 @@ import hashlib
 import importlib.util
 import json
 import math
+import os
 import sys
 import time
 from dataclasses import asdict
@@ -76,14 +77,34 @@ def ranking_folder(partner_slug: str, config) -> str:
 
 
 def _sdf_records(path: Path, wanted: set[str]) -> dict[str, str]:
-    """Molblocks of the records of an SD file whose title is in ``wanted`` (no full parse)."""
+    """Molblocks of the records of an SD file whose title is in ``wanted`` (no full parse).
+
+    A record is the text between ``$$$$`` lines with its leading line breaks
+    removed; its title is its first line, stripped; the first record of a
+    title wins.  Only the title lines and the wanted records are copied out of
+    the file's text (a run of 10 000 molecules has ~50 MB of them).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> sdf = Path(tempfile.mkdtemp()) / "shard-000.sdf"
+    >>> _ = sdf.write_text("ma\\nA1\\n$$$$\\n mb \\nB1\\n$$$$\\nmb\\nB2\\n$$$$\\n")
+    >>> _sdf_records(sdf, {"mb", "mc"})
+    {'mb': ' mb \\nB1\\n'}
+    """
     out = {}
     text = path.read_text(encoding="utf-8", errors="replace")
-    for record in text.split("$$$$"):
-        record = record.lstrip("\r\n")
-        title = record.split("\n", 1)[0].strip()
+    start, size = 0, len(text)
+    while start <= size:
+        end = text.find("$$$$", start)
+        end = size if end < 0 else end
+        while start < end and text[start] in "\r\n":
+            start += 1
+        line_end = text.find("\n", start, end)
+        title = text[start:end if line_end < 0 else line_end].strip()
         if title in wanted and title not in out:
-            out[title] = record
+            out[title] = text[start:end]
+        start = end + 4
     return out
 
 
@@ -115,6 +136,8 @@ def computed_geometries(keys, levels_path: Path, meta_in: dict | None = None, co
     wanted = {k for k in keys if k}
     blocks: dict[str, str] = {}
     for sdf in sorted((Path(levels_path).parent / "work" / "candidates" / "structures").glob("shard-*.sdf")):
+        if not wanted - set(blocks):
+            break  # every geometry found: the first record of a key wins, later shards change nothing
         blocks.update(_sdf_records(sdf, wanted - set(blocks)))
     proto = ((meta_in or {}).get("protocol") or {}).get("structures")
     if wanted - set(blocks) and isinstance(proto, dict):
@@ -283,7 +306,7 @@ def _calibration_stats(folder: Path | None) -> dict:
     return out
 
 
-def _write_report(ranking, levels, partner, meta, out_dir) -> str:
+def _write_report(ranking, levels, partner, meta, out_dir, ranking_csv: str | None = None) -> str:
     """Call ``screen.report.write_report`` when that module exists; return what happened."""
     if importlib.util.find_spec("screen.report") is None:
         return "skipped: screen.report is not installed"
@@ -292,7 +315,8 @@ def _write_report(ranking, levels, partner, meta, out_dir) -> str:
     if not hasattr(report, "write_report"):
         return "skipped: screen.report has no write_report"
     try:
-        report.write_report(ranking=ranking, levels=levels, partner=partner, meta=meta, out_dir=out_dir)
+        report.write_report(ranking=ranking, levels=levels, partner=partner, meta=meta, out_dir=out_dir,
+                            ranking_csv=ranking_csv)
     except Exception as exc:
         raise RuntimeError(f"the ranking is written to {out_dir}, but the report failed: "
                            f"{type(exc).__name__}: {exc}") from exc
@@ -361,6 +385,22 @@ def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, mo
         "columns": RANKING_COLUMNS + EXTRA_COLUMNS,
         "outputs": {"ranking": "ranking.csv", "shortlist": "shortlist.sdf", "meta": "ranking.meta.json"},
     }
+
+
+def _write_ranking_csv(ranking: pd.DataFrame, target: Path) -> str | None:
+    """Write ``ranking.csv`` atomically, as :func:`screen.io.write_csv` does; return its text with ``\\n`` line ends.
+
+    The text is what the report's spreadsheet-safe copy starts from
+    (:func:`screen.report.export.safe_csv_text`), so the numbers are formatted
+    once; None where the platform's line end is not ``\\n``.
+    """
+    from screen.io import atomic_path
+
+    text = ranking.to_csv(index=False)  # line ends os.linesep, like DataFrame.to_csv(path)
+    with atomic_path(target) as tmp:
+        with open(tmp, "w", encoding="utf-8", newline="") as fh:
+            fh.write(text)
+    return text if os.linesep == "\n" else None
 
 
 def _structure_keys(levels: pd.DataFrame) -> dict:
@@ -454,7 +494,7 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
        :doi:`10.1002/adma.200501717`
     """
-    from screen.io import write_csv, write_json
+    from screen.io import write_json
     from screen.levels import read_levels
 
     clock = [time.perf_counter()]
@@ -480,7 +520,7 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
 
     target = out_dir / "rankings" / ranking_folder(partner.slug, cfg)
     _check_target(target, partner, levels_path)
-    write_csv(ranking, target / "ranking.csv")
+    csv_text = _write_ranking_csv(ranking, target / "ranking.csv")
     keys = _structure_keys(levels)
     geometries = computed_geometries(_shortlist_keys(ranking, keys, options), levels_path, meta_in, cfg)
     short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size, partner.scale, geometries,
@@ -490,7 +530,7 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     write_json(meta, target / "ranking.meta.json")
     lap("export_s")
     if report:
-        status = _write_report(ranking, levels, partner.as_dict(), meta, target)
+        status = _write_report(ranking, levels, partner.as_dict(), meta, target, csv_text)
         if status != "written":
             print(f"dascreen rank: report {status}", file=sys.stderr)
     lap("report_s")

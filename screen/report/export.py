@@ -10,21 +10,39 @@ from __future__ import annotations
 
 import re
 
+import numpy as np
 import pandas as pd
 
-__all__ = ["safe_csv_frame"]
+__all__ = ["safe_csv_frame", "safe_csv_text"]
 
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 _PLAIN_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
 
 
-def _neutralise(value):
-    """Prefix an apostrophe to a text cell that a spreadsheet would run."""
-    if not isinstance(value, str) or not value.startswith(_FORMULA_START):
-        return value
-    if _PLAIN_NUMBER.fullmatch(value):  # "-5.4" is a number to a spreadsheet, not a formula
-        return value
-    return "'" + value
+def _text_columns(frame: pd.DataFrame) -> list:
+    """Columns that may hold text cells (neither numeric nor boolean)."""
+    return [c for c, dtype in frame.dtypes.items()
+            if not (pd.api.types.is_numeric_dtype(dtype) or pd.api.types.is_bool_dtype(dtype))]
+
+
+def _formula_cells(values: np.ndarray) -> np.ndarray:
+    """Boolean mask of the text cells of an object array that a spreadsheet would run as a formula.
+
+    A cell is one when it is a string that begins with one of
+    :data:`_FORMULA_START` and is not a plain number ("-5.4" is a number to a
+    spreadsheet, not a formula).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> _formula_cells(np.array(["=1+1", "-5.4", "ok", None, 3.0, "@x"], dtype=object)).tolist()
+    [True, False, False, False, False, True]
+    """
+    starts = np.fromiter((isinstance(v, str) and v.startswith(_FORMULA_START) for v in values), dtype=bool,
+                         count=len(values))
+    for i in np.flatnonzero(starts):
+        starts[i] = not _PLAIN_NUMBER.fullmatch(values[i])
+    return starts
 
 
 def safe_csv_frame(ranking: pd.DataFrame) -> pd.DataFrame:
@@ -56,9 +74,42 @@ def safe_csv_frame(ranking: pd.DataFrame) -> pd.DataFrame:
     (["'=1+1", 'ok', "'-cmd"], [-5.4, -5.1, -5.0])
     """
     out = ranking.copy()
-    for col in out.columns:
-        series = out[col]
-        if pd.api.types.is_numeric_dtype(series) or pd.api.types.is_bool_dtype(series):
-            continue
-        out[col] = series.map(_neutralise).astype(series.dtype if series.dtype == object else object)
+    for col in _text_columns(out):
+        values = out[col].to_numpy(dtype=object, copy=True)
+        mask = _formula_cells(values)
+        values[mask] = ["'" + v for v in values[mask]]
+        out[col] = pd.Series(values, index=out.index, dtype=object)
     return out
+
+
+def safe_csv_text(ranking: pd.DataFrame, csv_text: str | None = None) -> str:
+    """The spreadsheet-safe CSV of a table: ``safe_csv_frame(ranking).to_csv(index=False, lineterminator="\\n")``.
+
+    Parameters
+    ----------
+    ranking : pandas.DataFrame
+        Any table (typically the ranking).
+    csv_text : str, optional
+        ``ranking.to_csv(index=False, lineterminator="\\n")`` when the caller
+        has made it already (the ranking stage writes it as ``ranking.csv``):
+        returned as it is when no cell needs neutralising, which saves
+        formatting every number a second time.
+
+    Returns
+    -------
+    str
+        CSV text, ``\\n`` line ends.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> t = pd.DataFrame({"id": ["=1+1", "ok"], "homo_ev": [-5.4, -5.1]})
+    >>> safe_csv_text(t)
+    "id,homo_ev\\n'=1+1,-5.4\\nok,-5.1\\n"
+    >>> safe_csv_text(t.iloc[1:], "given\\n")
+    'given\\n'
+    """
+    if csv_text is not None and not any(_formula_cells(ranking[c].to_numpy(dtype=object)).any()
+                                        for c in _text_columns(ranking)):
+        return csv_text
+    return safe_csv_frame(ranking).to_csv(index=False, lineterminator="\n")

@@ -8,7 +8,7 @@ from pathlib import Path
 import pandas as pd
 
 from screen.io import atomic_path
-from screen.report.export import safe_csv_frame
+from screen.report.export import safe_csv_text
 from screen.report.page import render_report
 
 __all__ = ["write_report"]
@@ -18,7 +18,7 @@ _FILE_MODE = 0o644
 
 
 def write_report(ranking: pd.DataFrame, levels: pd.DataFrame, partner: dict, meta: dict,
-                 out_dir: Path) -> Path:
+                 out_dir: Path, *, ranking_csv: str | None = None) -> Path:
     """Write ``report.html`` and ``ranking.safe.csv`` for one ranking.
 
     Parameters
@@ -46,6 +46,11 @@ def write_report(ranking: pd.DataFrame, levels: pd.DataFrame, partner: dict, met
         dict it writes to ``ranking.meta.json``.
     out_dir : path-like
         Folder for the two files (created if missing).
+    ranking_csv : str, optional
+        ``ranking.to_csv(index=False, lineterminator="\\n")`` when the caller
+        has made it (:func:`screen.rank_io.run_rank` writes it as
+        ``ranking.csv``): ``ranking.safe.csv`` is that text when no cell needs
+        neutralising (:func:`screen.report.export.safe_csv_text`).
 
     Returns
     -------
@@ -83,6 +88,7 @@ def write_report(ranking: pd.DataFrame, levels: pd.DataFrame, partner: dict, met
         os.chmod(tmp, _FILE_MODE)
     with atomic_path(out_dir / "ranking.safe.csv") as tmp:
         source = ranking if ranking is not None else pd.DataFrame()
-        safe_csv_frame(source).to_csv(tmp, index=False, lineterminator="\n")
+        with open(tmp, "w", encoding="utf-8", newline="") as fh:
+            fh.write(safe_csv_text(source, ranking_csv))
         os.chmod(tmp, _FILE_MODE)
     return target
