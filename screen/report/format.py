@@ -17,11 +17,14 @@ from __future__ import annotations
 import html
 import math
 
+import numpy as np
+import pandas as pd
+
 from screen.io import cell_number as num
 from screen.io import cell_text as text
 
 __all__ = ["NOT_RECORDED", "num", "text", "esc", "fmt", "fmt_pm", "pm_html", "data_value", "get", "shorten",
-           "truthy"]
+           "truthy", "texts", "truthies"]
 
 #: Shown for a value the run did not record.
 NOT_RECORDED = "not recorded"
@@ -87,3 +90,31 @@ def shorten(value: str, limit: int) -> str:
 def truthy(value) -> bool:
     """True for a cell that reads as yes (``True``, ``1``, ``"yes"``; any case)."""
     return text(value).strip().lower() in _TRUE_WORDS
+
+
+def texts(series: pd.Series) -> pd.Series:
+    """``series.map(text)``, one vectorised step for a string column (``''`` for a missing cell).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> texts(pd.Series(["a", None], dtype="str")).tolist(), texts(pd.Series([1.5, None])).tolist()
+    (['a', ''], ['1.5', ''])
+    """
+    if isinstance(series.dtype, pd.StringDtype):
+        return series.fillna("")
+    return series.map(text)
+
+
+def truthies(series: pd.Series) -> pd.Series:
+    """``series.map(truthy)``, one vectorised step for a boolean column.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> truthies(pd.Series([True, False])).tolist(), truthies(pd.Series(["yes", None])).tolist()
+    ([True, False], [True, False])
+    """
+    if series.dtype == np.bool_:
+        return series.copy()
+    return series.map(truthy)

@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, shorten, text
+from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, shorten, text, texts
 
 __all__ = ["partner_card", "protocol_card", "device_card", "counts_strip"]
 
@@ -273,7 +273,7 @@ def counts_strip(meta: dict, levels: pd.DataFrame, ranking: pd.DataFrame, n_shor
                  n_pass: int | None) -> str:
     """Counts strip: input rows, computed, ranked, passing, shortlisted, not ranked."""
     counts = get(meta, "counts", default={}) or {}
-    status = (levels["status"].map(text).str.strip().str.lower()
+    status = (texts(levels["status"]).str.strip().str.lower()
               if levels is not None and "status" in levels else None)
 
     def pick(key, fallback):

@@ -16,7 +16,7 @@ import pandas as pd
 
 from screen import __version__
 from screen.report.figures import DIAGRAM_MAX, design_map_svg, level_diagram_svg
-from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, text, truthy
+from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, text, truthies
 from screen.report.header import counts_strip, device_card, partner_card, protocol_card
 from screen.report.tables import (
     full_table,
@@ -97,10 +97,10 @@ def _resolve_partner(partner: dict, meta: dict) -> dict:
 
 def _pass_counts(ranking: pd.DataFrame, short: pd.DataFrame) -> tuple[int | None, int]:
     """Rows that pass every check (None without a ``passes`` column) and rows shortlisted."""
-    n_pass = int(ranking["passes"].map(truthy).sum()) if "passes" in ranking else None
+    n_pass = int(truthies(ranking["passes"]).sum()) if "passes" in ranking else None
     n_short = len(short)
     if "passes" in short and "shortlist" not in short:  # best rows shown although none passes: none listed
-        n_short = int(short["passes"].map(truthy).sum())
+        n_short = int(truthies(short["passes"]).sum())
     return n_pass, n_short
 
 

@@ -12,7 +12,7 @@ import pandas as pd
 
 from screen.flags import FLAGS, INFO_FLAGS, codes_of, describe
 from screen.report.drawings import molecule_svg
-from screen.report.format import data_value, esc, fmt, get, num, pm_html, shorten, text, truthy
+from screen.report.format import data_value, esc, fmt, get, num, pm_html, shorten, text, texts, truthies
 
 __all__ = ["with_level_details", "select_shortlist", "shortlist_table", "full_table", "not_ranked_table",
            "target_label"]
@@ -49,16 +49,16 @@ def with_level_details(ranking: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFr
         return out
     ok = levels
     if "status" in levels:
-        ok = levels[levels["status"].map(text).str.strip().str.lower().eq("ok")]
+        ok = levels[texts(levels["status"]).str.strip().str.lower().eq("ok")]
     ok = ok.drop_duplicates("id", keep="first")
-    ok = ok.set_index(ok["id"].map(text))
-    ids = out["id"].map(text)
+    ok = ok.set_index(texts(ok["id"]))
+    ids = texts(out["id"])
     for col in ("name", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev"):
         if col not in ok:
             continue
         filled = ids.map(ok[col])
         if col in out:
-            have = out[col].map(text).ne("")
+            have = texts(out[col]).ne("")
             out[col] = out[col].where(have, filled)
         else:
             out[col] = filled
@@ -82,10 +82,10 @@ def select_shortlist(ranking: pd.DataFrame, meta: dict) -> tuple[pd.DataFrame, s
     size = num(get(meta, "rank", "shortlist_size"))
     size = 10 if math.isnan(size) or size < 0 else int(size)
     if "shortlist" in ranking:
-        mask = ranking["shortlist"].map(truthy)
+        mask = truthies(ranking["shortlist"])
         return ranking[mask], "rows marked for the shortlist by the ranking"
     if "passes" in ranking:
-        passes = ranking["passes"].map(truthy)
+        passes = truthies(ranking["passes"])
         if passes.any():
             return ranking[passes].head(size), (f"the best {size} candidates that pass every check"
                                                 if passes.sum() >= size else
@@ -301,7 +301,7 @@ def _not_viable_rows(ranking: pd.DataFrame) -> pd.DataFrame:
     """Ranked rows whose pair is not viable (column ``viable`` false), with their reason."""
     if ranking is None or "viable" not in ranking or not len(ranking):
         return ranking.iloc[0:0] if ranking is not None else pd.DataFrame()
-    bad = ~ranking["viable"].map(truthy)
+    bad = ~truthies(ranking["viable"])
     return ranking[bad]
 
 
@@ -345,10 +345,10 @@ def not_ranked_table(levels: pd.DataFrame, ranking: pd.DataFrame) -> tuple[str, 
 
 def _unranked_rows(levels: pd.DataFrame, ranking: pd.DataFrame) -> list[str]:
     """Table rows of the input rows that are not in the ranking."""
-    ranked_ids = set(ranking["id"].map(text)) if ranking is not None and "id" in ranking else set()
-    status = (levels["status"].map(text).str.strip().str.lower() if "status" in levels
+    ranked_ids = set(texts(ranking["id"])) if ranking is not None and "id" in ranking else set()
+    status = (texts(levels["status"]).str.strip().str.lower() if "status" in levels
               else pd.Series("ok", index=levels.index))
-    ids = levels["id"].map(text) if "id" in levels else pd.Series("", index=levels.index)
+    ids = texts(levels["id"]) if "id" in levels else pd.Series("", index=levels.index)
     missing_ok = status.eq("ok") & ~ids.isin(ranked_ids)
     rows = levels[status.ne("ok") | missing_ok]
     body = []
