@@ -24,7 +24,7 @@ from screen.io import cell_number as num
 from screen.io import cell_text as text
 
 __all__ = ["NOT_RECORDED", "num", "text", "esc", "fmt", "fmt_pm", "pm_html", "data_value", "get", "shorten",
-           "truthy", "texts", "truthies"]
+           "truthy", "texts", "truthies", "has_text"]
 
 #: Shown for a value the run did not record.
 NOT_RECORDED = "not recorded"
@@ -37,9 +37,16 @@ def esc(value) -> str:
     return html.escape(text(value), quote=True)
 
 
+def _number(value) -> float:
+    """:func:`num` with a shortcut for a plain float (the cells of a table's float columns)."""
+    if type(value) is float:
+        return value if math.isfinite(value) else math.nan
+    return num(value)
+
+
 def fmt(value, digits: int = 2, plus: bool = False) -> str:
     """Number with a typographic minus; an em dash for a missing value."""
-    x = num(value)
+    x = _number(value)
     if math.isnan(x):
         return "\u2014"
     out = f"{x:+.{digits}f}" if plus else f"{x:.{digits}f}"
@@ -50,25 +57,25 @@ def fmt(value, digits: int = 2, plus: bool = False) -> str:
 
 def fmt_pm(value, sigma, digits: int = 2) -> str:
     """``"−5.42 ± 0.15"``; just the value when σ is missing."""
-    base = fmt(value, digits)
-    s = num(sigma)
-    if math.isnan(num(value)) or math.isnan(s) or s <= 0:
+    x, s = _number(value), _number(sigma)
+    base = fmt(x, digits)
+    if math.isnan(x) or math.isnan(s) or s <= 0:
         return base
     return f"{base} \u00b1 {fmt(s, digits)}"
 
 
 def pm_html(value, sigma, digits: int = 2) -> str:
     """:func:`fmt_pm` as HTML, the ``± σ`` part in its own span (own line in tables)."""
-    base = fmt(value, digits)
-    s = num(sigma)
-    if math.isnan(num(value)) or math.isnan(s) or s <= 0:
+    x, s = _number(value), _number(sigma)
+    base = fmt(x, digits)
+    if math.isnan(x) or math.isnan(s) or s <= 0:
         return base
     return f'{base} <span class="pm">\u00b1 {fmt(s, digits)}</span>'
 
 
 def data_value(value) -> str:
     """``data-value`` attribute for numeric sorting (empty for missing)."""
-    x = num(value)
+    x = _number(value)
     return "" if math.isnan(x) else format(x, ".6g")
 
 
@@ -118,3 +125,17 @@ def truthies(series: pd.Series) -> pd.Series:
     if series.dtype == np.bool_:
         return series.copy()
     return series.map(truthy)
+
+
+def has_text(series: pd.Series) -> pd.Series:
+    """``texts(series).ne("")``: True where a cell is not empty; one step for numeric columns.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> has_text(pd.Series([1.5, None, float("inf")])).tolist(), has_text(pd.Series(["", "a", None])).tolist()
+    ([True, False, True], [False, True, False])
+    """
+    if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(series.dtype):
+        return series.notna()
+    return texts(series).ne("")

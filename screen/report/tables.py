@@ -12,7 +12,8 @@ import pandas as pd
 
 from screen.flags import FLAGS, INFO_FLAGS, codes_of, describe
 from screen.report.drawings import molecule_svg
-from screen.report.format import data_value, esc, fmt, get, num, pm_html, shorten, text, texts, truthies
+from screen.report.format import (data_value, esc, fmt, get, has_text, num, pm_html, shorten, text, texts,
+                                  truthies)
 
 __all__ = ["with_level_details", "select_shortlist", "shortlist_table", "full_table", "not_ranked_table",
            "target_label"]
@@ -58,7 +59,7 @@ def with_level_details(ranking: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFr
             continue
         filled = ids.map(ok[col])
         if col in out:
-            have = texts(out[col]).ne("")
+            have = has_text(out[col])
             out[col] = out[col].where(have, filled)
         else:
             out[col] = filled
@@ -260,10 +261,13 @@ def full_table(ranking: pd.DataFrame, meta: dict) -> str:
                       ("Passes", "num", "descending", "passes"), ("Notes", "", "", "flags")]
                    + [(esc(c), "text", "", "") for c in extra])
     body = []
+    notes_of: dict[str, str] = {}  # a few distinct flag sets among thousands of rows
     for row in ranking.to_dict("records"):  # plain dicts: fast .get on 10 000 rows
         ident = text(row.get("id"))
-        codes = _flag_codes(row.get("flags"))
-        notes = "; ".join(esc(describe(c, meta)) for c in codes) or "\u2014"
+        flags = text(row.get("flags"))
+        notes = notes_of.get(flags)
+        if notes is None:
+            notes = notes_of[flags] = "; ".join(esc(describe(c, meta)) for c in _flag_codes(flags)) or "\u2014"
         extras = "".join(f'<td class="extra">{esc(shorten(text(row.get(c)), 120))}</td>' for c in extra)
         body.append(
             f'<tr data-id="{esc(ident)}">'
@@ -325,7 +329,7 @@ def not_ranked_table(levels: pd.DataFrame, ranking: pd.DataFrame) -> tuple[str, 
     body = []
     if levels is not None and len(levels):
         body += _unranked_rows(levels, ranking)
-    for row in bad.to_dict("records"):
+    for row in bad[[c for c in ("id", "name", "reason", "flags", "smiles") if c in bad]].to_dict("records"):
         why = text(row.get("reason")).strip() or "; ".join(describe(c) for c in _flag_codes(row.get("flags"))) \
             or "no reason recorded"
         smi = text(row.get("smiles"))
