@@ -18,6 +18,8 @@ import pytest
 from screen.device import DeviceModel
 from screen.flags import INFO_FLAGS
 from screen.report import describe_flag, render_report, safe_csv_frame, write_report
+from screen.report.export import safe_csv_text
+from screen.report.format import has_text, text, texts, truthies, truthy
 
 XSS_ID = "<script>alert(1)</script>"
 CREATED = "2000-01-01 00:00 UTC (test)"
@@ -349,6 +351,59 @@ def test_safe_csv_frame_cells():
     assert out["b"].tolist() == t["b"].tolist() and out["b"].dtype == t["b"].dtype
     assert out["c"].tolist() == [-1, "'=mixed", 2.5, "'@x", "x", "", "+1"]
     assert t["a"][0] == "=x"  # input untouched
+
+
+def test_safe_csv_text_reuses_the_given_text_only_when_nothing_is_neutralised():
+    ranking, *_ = synthetic_inputs()
+    expected = safe_csv_frame(ranking).to_csv(index=False, lineterminator="\n")
+    assert safe_csv_text(ranking) == expected
+    assert safe_csv_text(ranking, "stale text") == expected  # formula-like ids: the given text is not used
+    clean = ranking[~ranking["id"].str.startswith(("=", "+", "-", "@"))]
+    plain = clean.to_csv(index=False, lineterminator="\n")
+    assert safe_csv_frame(clean).to_csv(index=False, lineterminator="\n") == plain  # what makes the reuse exact
+    assert safe_csv_text(clean, plain) == plain
+
+
+@pytest.mark.parametrize("values, dtype", [
+    (["a", None, " ok ", ""], "str"),
+    (["yes", 1, None, float("nan"), True, "=x"], object),
+    ([True, False, True], bool),
+    ([1.5, float("nan"), float("inf"), -0.0], float),
+    ([1, 0, 3], "int64"),
+])
+def test_column_helpers_equal_the_cell_helpers(values, dtype):
+    series = pd.Series(values, dtype=dtype)
+    assert texts(series).tolist() == series.map(text).tolist()
+    assert truthies(series).tolist() == series.map(truthy).tolist()
+    assert has_text(series).tolist() == series.map(text).ne("").tolist()
+
+
+def test_svg_geometry_rounding_equals_rounding_each_number():
+    """The rounding of Matplotlib's SVG numbers, against a per-number substitution written out here."""
+    import io
+
+    from matplotlib.figure import Figure
+
+    from screen.report.figures import _round_geometry
+
+    fig = Figure(figsize=(3, 2))
+    ax = fig.add_subplot()
+    ax.plot(np.linspace(0, 1, 40), np.sin(np.linspace(0, 7, 40)) - 0.001, marker="o")
+    ax.text(0.3, -0.5, "label")
+    buf = io.StringIO()
+    fig.savefig(buf, format="svg")
+    svg = buf.getvalue()
+
+    def one(number):
+        out = f"{float(number.group(0)):.2f}".rstrip("0").rstrip(".")
+        return "0" if out in ("-0", "") else out
+
+    def attribute(match):
+        value = " ".join(re.sub(r"-?\d+\.\d+", one, match.group(2)).split())
+        return f' {match.group(1)}="{value}"'
+
+    expected = re.sub(r'\s(d|x|y|transform|points)="([^"]*)"', attribute, svg)
+    assert expected != svg and _round_geometry(svg) == expected
 
 
 def test_deterministic_output(tmp_path):

@@ -1,0 +1,83 @@
+"""Tests of screen.rank_io's file handling: the ranking CSV and its spreadsheet-safe copy, stored geometries, timings.
+
+Every id, SMILES and level below is made up for the test; the molecules are small
+well-known aromatics used only as structures.
+"""
+
+from __future__ import annotations
+
+import os
+
+import pandas as pd
+import pytest
+
+from screen.rank_io import _sdf_records, computed_geometries, run_rank
+
+#: the published donor-only model (Scharber et al., Adv. Mater. 18 (2006) 789, doi:10.1002/adma.200501717)
+PUBLISHED_CFG = {"device": {"model": "scharber", "absorber": "donor"}, "rank": {"role": "donor"}}
+REF = "scharber-reference-acceptor"
+
+
+def _levels_file(path, ids):
+    rows = [{"id": ident, "smiles": smi, "homo_ev": homo, "lumo_ev": homo + 1.6, "gap_opt_ev": 1.5, "scale": "film"}
+            for ident, smi, homo in zip(ids, ["c1ccsc1", "c1ccc(-c2cccs2)s1", "c1ccc2ccccc2c1"], [-5.4, -5.5, -5.3])]
+    pd.DataFrame(rows).to_csv(path, index=False)
+    return path
+
+
+@pytest.mark.skipif(os.linesep != "\n", reason="the shared text is used where line ends are \\n")
+def test_safe_copy_is_the_ranking_csv_when_no_cell_needs_neutralising(tmp_path):
+    levels = _levels_file(tmp_path / "levels.csv", ["syn-a", "syn-b", "syn-c"])
+    path = run_rank(levels, REF, tmp_path / "out", PUBLISHED_CFG)
+    assert (path.parent / "ranking.safe.csv").read_bytes() == path.read_bytes()
+    # the CSV written from the shared text is the one DataFrame.to_csv writes
+    assert path.read_text(encoding="utf-8") == pd.read_csv(path).to_csv(index=False)
+
+
+def test_safe_copy_neutralises_formula_like_ids(tmp_path):
+    levels = _levels_file(tmp_path / "levels.csv", ["=1+1", "@SUM(A1)", "syn-c"])
+    path = run_rank(levels, REF, tmp_path / "out", PUBLISHED_CFG)
+    plain = pd.read_csv(path, dtype={"id": str})["id"].tolist()
+    safe = pd.read_csv(path.parent / "ranking.safe.csv", dtype={"id": str})["id"].tolist()
+    assert sorted(plain) == ["=1+1", "@SUM(A1)", "syn-c"]
+    assert safe == ["'" + i if i[0] in "=@" else i for i in plain]
+
+
+def test_timings_name_every_phase(tmp_path):
+    levels = _levels_file(tmp_path / "levels.csv", ["syn-a", "syn-b", "syn-c"])
+    timings = {}
+    run_rank(levels, REF, tmp_path / "out", PUBLISHED_CFG, report=False, timings=timings)
+    assert set(timings) == {"read_s", "rank_s", "export_s", "report_s"}
+    assert all(v >= 0 for v in timings.values())
+
+
+def _record(title, x):
+    """A one-atom SD record (methane carbon at x Å) titled ``title``."""
+    return (f"{title}\n     synthetic\n\n  1  0  0  0  0  0  0  0  0  0999 V2000\n"
+            f"{x:10.4f}    0.0000    0.0000 C   0  0  0  0  0  0  0  0  0  0  0  0\nM  END\n$$$$\n")
+
+
+def test_stored_geometries_first_record_of_a_key_wins(tmp_path):
+    folder = tmp_path / "work" / "candidates" / "structures"
+    folder.mkdir(parents=True)
+    (folder / "shard-000.sdf").write_text(_record("mkeya", 1.0) + _record("mkeyb", 2.0) + _record("mkeya", 9.0))
+    (folder / "shard-001.sdf").write_text(_record("mkeyb", 8.0) + _record("  mkeyc  ", 3.0))
+    found = computed_geometries(["mkeya", "mkeyb", "mkeyc", "mmissing", ""], tmp_path / "levels.csv")
+    assert sorted(found) == ["mkeya", "mkeyb", "mkeyc"]
+    x = {k: m.GetConformer().GetAtomPosition(0).x for k, m in found.items()}
+    assert x == {"mkeya": pytest.approx(1.0), "mkeyb": pytest.approx(2.0), "mkeyc": pytest.approx(3.0)}
+
+
+def test_sd_records_match_a_plain_split(tmp_path):
+    """The record reader gives what splitting the file at ``$$$$`` gives (titles stripped, first one wins)."""
+    text = "\n\nma\nA1\n$$$$\r\n mb \nB1\n$$$$mc\nC1\n$$$$\nmb\nB2\n$$$$\n\nmd"
+    path = tmp_path / "x.sdf"
+    path.write_text(text, encoding="utf-8")
+    expected = {}
+    for record in path.read_text(encoding="utf-8").split("$$$$"):
+        record = record.lstrip("\r\n")
+        title = record.split("\n", 1)[0].strip()
+        expected.setdefault(title, record)
+    wanted = {"ma", "mb", "mc", "md", "mz"}
+    assert _sdf_records(path, wanted) == {k: v for k, v in expected.items() if k in wanted}
+    assert set(_sdf_records(path, wanted)) == {"ma", "mb", "mc", "md"}
