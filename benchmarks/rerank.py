@@ -11,7 +11,8 @@ The synthetic rows are ranked the way a real re-rank finds them: each row has
 a structure ``key`` (synthetic, one per row) and the run folder beside the
 levels file holds the structures stage's output, ``work/candidates/structures/
 shard-NNN.sdf`` with 25 records per shard (the default ``prepare.shard_size``),
-one record per key, titled by the key.  The coordinates are one ETKDG
+one record per key, titled by the key, and the shard's status table
+``shard-NNN.csv`` beside it.  The coordinates are one ETKDG
 embedding per distinct SMILES of the pool (no force-field step: only reading
 them is timed), so the shortlist export reads stored geometries, as it does
 after a real run, instead of embedding molecules that have none
@@ -119,6 +120,8 @@ def _synthetic_key(i: int) -> str:
 def write_structures(levels: pd.DataFrame, run_dir: Path, shard_size: int = 25, seed: int = 61453) -> int:
     """Write the structures stage's output for the synthetic rows: one SD record per key, 25 per shard.
 
+    Each ``shard-NNN.sdf`` gets its status table ``shard-NNN.csv`` beside it, as the stage writes them.
+
     Parameters
     ----------
     levels : pandas.DataFrame
@@ -155,8 +158,12 @@ def write_structures(levels: pd.DataFrame, run_dir: Path, shard_size: int = 25, 
     written = 0
     rows = list(zip(levels["key"], levels["smiles"]))
     for shard, start in enumerate(range(0, len(rows), shard_size)):
-        records = [f"{key}{blocks[smi]}$$$$\n" for key, smi in rows[start:start + shard_size] if smi in blocks]
+        part = rows[start:start + shard_size]
+        records = [f"{key}{blocks[smi]}$$$$\n" for key, smi in part if smi in blocks]
         (folder / f"shard-{shard:03d}.sdf").write_text("".join(records), encoding="utf-8")
+        # the stage's status table of the shard, written after its SD file (key, status; the other columns left out)
+        table = "".join(f"{key},{'ok' if smi in blocks else 'failed'}\n" for key, smi in part)
+        (folder / f"shard-{shard:03d}.csv").write_text("key,status\n" + table, encoding="utf-8")
         written += len(records)
     return written
 

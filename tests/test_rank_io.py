@@ -81,3 +81,16 @@ def test_sd_records_match_a_plain_split(tmp_path):
     wanted = {"ma", "mb", "mc", "md", "mz"}
     assert _sdf_records(path, wanted) == {k: v for k, v in expected.items() if k in wanted}
     assert set(_sdf_records(path, wanted)) == {"ma", "mb", "mc", "md"}
+
+
+def test_status_tables_spare_reading_shards_that_hold_none_of_the_keys(tmp_path):
+    folder = tmp_path / "work" / "candidates" / "structures"
+    folder.mkdir(parents=True)
+    (folder / "shard-000.sdf").write_text(_record("mkeya", 1.0))
+    (folder / "shard-000.csv").write_text("key,status\nmkeya,ok\n")
+    (folder / "shard-001.sdf").write_text(_record("mkeyb", 2.0))
+    (folder / "shard-001.csv").write_text("key,status\nmother,ok\n")  # rules the shard out: its record is not read
+    assert sorted(computed_geometries(["mkeya", "mkeyb"], tmp_path / "levels.csv")) == ["mkeya"]
+    # a table older than its SD file rules out nothing (written before a crash, or copied in another order)
+    os.utime(folder / "shard-001.csv", ns=(1, 1))
+    assert sorted(computed_geometries(["mkeya", "mkeyb"], tmp_path / "levels.csv")) == ["mkeya", "mkeyb"]
