@@ -115,7 +115,7 @@ def _note(engine: Engine, film_epsilon) -> str:
 
 
 def vertical_levels(numbers, positions_bohr, engine: Engine, film_epsilon: float | None = None,
-                    restart: bool = RESTART_FROM_NEUTRAL) -> dict:
+                    restart: bool = RESTART_FROM_NEUTRAL, neutral_guess=None) -> dict:
     """Raw ΔSCF vertical IP/EA, neutral frontier orbitals and their integrals, film-phase IP/EA.
 
     Parameters
@@ -132,6 +132,11 @@ def vertical_levels(numbers, positions_bohr, engine: Engine, film_epsilon: float
     restart : bool
         Start the ions' SCF from the converged neutral (and each film state from its gas-phase
         one) where the engine allows it; the converged energies do not depend on it.
+    neutral_guess : screen.engines.SinglePoint, optional
+        A converged closed-shell result of the same atoms to start the gas-phase neutral's SCF
+        from (with ``restart``), e.g. the chosen conformer's ranking single point
+        (:func:`screen.structures.build_structure` with ``return_singlepoint=True``) when the
+        structure was made in the same process; the converged energies do not depend on it.
 
     Returns
     -------
@@ -159,7 +164,8 @@ def vertical_levels(numbers, positions_bohr, engine: Engine, film_epsilon: float
     """
     numbers = np.asarray(numbers)
     positions_bohr = np.asarray(positions_bohr, float)
-    neutral, cation, anion = gas = _delta_scf(numbers, positions_bohr, engine, restart=restart)
+    guesses = None if neutral_guess is None else [neutral_guess, None, None]
+    neutral, cation, anion = gas = _delta_scf(numbers, positions_bohr, engine, restart=restart, guesses=guesses)
     homo, lumo = neutral.frontier_eh()
     film, film_states = _film(numbers, positions_bohr, engine, film_epsilon, gas, restart)
     rungs = "/".join(str(s.rung) for s in gas)

@@ -98,6 +98,23 @@ class StructureOptions:
     rank_atom_budget : int
         Size cap of the xTB ranking: at most ``rank_atom_budget / n_atoms`` conformers (at least
         one; one means no ranking single point) (:func:`screen.structures.ranked_count`).
+    size_caps_min_atoms : int
+        The two size caps act only on molecules of at least this many atoms (hydrogens
+        included); smaller molecules embed and rank as many conformers as without caps. 0 (the
+        default, and the shipped protocol) applies them to every molecule. Not in the schema's
+        defaults, so the shipped protocol id does not depend on it.
+    rank_warm_start : bool
+        Start each conformer's ranking SCF from the previous conformer's converged result (same
+        atoms, another geometry); the converged energies do not depend on it (≤ 1e-6 Eh).
+        False (default, shipped protocol): every ranking SCF from scratch.
+    rank_scf_accuracy : float or None
+        Rank with a looser SCF (this tblite accuracy factor, at most 30) first; every conformer
+        within :data:`screen.structures.RECHECK_WINDOW_EH` of the lowest loose energy is then
+        converged at the engine's own accuracy from its loose result, and the lowest of those wins,
+        so the choice is the one of a tight ranking. None (default, shipped protocol): tight only.
+
+    The last three are opt-in (measured by ``benchmarks/pruning_levels.py``, route ``exact``);
+    at their defaults the route is exactly today's.
 
     Examples
     --------
@@ -122,12 +139,19 @@ class StructureOptions:
     ff_window_kcal_mol: float = _S["ff_window_kcal_mol"]
     conformer_atom_budget: int = _S["conformer_atom_budget"]
     rank_atom_budget: int = _S["rank_atom_budget"]
+    # opt-in, deliberately without a schema default (absent = today's route, same protocol id)
+    size_caps_min_atoms: int = 0
+    rank_warm_start: bool = False
+    rank_scf_accuracy: float | None = None
 
     def __post_init__(self):
         if self.geometry not in ("ff", "xtb"):
             raise ConfigError(f"structures.geometry must be 'ff' or 'xtb', not {self.geometry!r}")
         if self.forcefield not in ("mmff", "uff"):
             raise ConfigError(f"structures.forcefield must be 'mmff' or 'uff', not {self.forcefield!r}")
+        if self.rank_scf_accuracy is not None and not 1.0 <= float(self.rank_scf_accuracy) <= 30.0:
+            raise ConfigError(f"structures.rank_scf_accuracy must be between 1 and 30 (or null), "
+                              f"not {self.rank_scf_accuracy!r}")
 
     @classmethod
     def from_mapping(cls, mapping: dict | None) -> StructureOptions:

@@ -17,7 +17,11 @@ Route (every step seeded, so the same input gives the same geometry):
    keeping the lowest by xTB energy: conformers more than ``ff_window_kcal_mol``
    above the lowest force-field energy are dropped before any xTB call, and at
    most :func:`ranked_count` are ranked (fewer for big molecules; one, and no
-   ranking single point, from ``rank_atom_budget`` atoms on);
+   ranking single point, from ``rank_atom_budget`` atoms on); opt-in, the size
+   caps act only from ``size_caps_min_atoms`` atoms, and the ranking runs at a
+   looser SCF accuracy with the near-lowest conformers converged again
+   (``rank_scf_accuracy``), each SCF started from the previous conformer's
+   (``rank_warm_start``): same choice, less xTB time;
 5. optional (``geometry="xtb"``) GFN2-xTB optimisation of that conformer with
    ASE's L-BFGS optimiser and the engine's ASE calculator.
 
@@ -52,7 +56,7 @@ from rdkit.Chem import AllChem, rdMolDescriptors
 
 from screen.batch import molecule_caller, run_journalled
 from screen.constants import BOHR_ANGSTROM
-from screen.engines import Engine, EngineError, make_engine
+from screen.engines import SCF_LADDER, Engine, EngineError, make_engine
 from screen.io import Journal, Progress, atomic_path, write_csv
 from screen.options import StructureOptions
 from screen.sanity import BrokenStructureError, geometry_problems
@@ -84,11 +88,12 @@ def conformer_count(mol: Chem.Mol, options: StructureOptions = StructureOptions(
 
     ``min(conformers_max, conformers_base + conformers_per_rotor × rotatable bonds)``,
     capped by size: at most ``conformer_atom_budget / n_atoms`` (never fewer than
-    two). Embedding and force-field optimisation cost grows with atoms ×
-    conformers, and a 100–250-atom oligomer is a stiff conjugated backbone
-    whose extra conformers differ in torsions of nearly equal force-field
-    energy (a probe on a 137-atom oligomer: the eight lowest of 24 conformers
-    within 0.6 kcal/mol), so the cap keeps the stage roughly linear in size.
+    two) for molecules of at least ``size_caps_min_atoms`` atoms (0: all).
+    Embedding and force-field optimisation cost grows with atoms × conformers,
+    and a 100–250-atom oligomer is a stiff conjugated backbone whose extra
+    conformers differ in torsions of nearly equal force-field energy (a probe
+    on a 137-atom oligomer: the eight lowest of 24 conformers within 0.6
+    kcal/mol), so the cap keeps the stage roughly linear in size.
 
     Examples
     --------
@@ -98,17 +103,24 @@ def conformer_count(mol: Chem.Mol, options: StructureOptions = StructureOptions(
     6
     >>> conformer_count(Chem.MolFromSmiles("c1ccc(-c2ccccc2)cc1"), StructureOptions(conformer_atom_budget=44))
     2
+    >>> conformer_count(Chem.MolFromSmiles("c1ccc(-c2ccccc2)cc1"),
+    ...                 StructureOptions(conformer_atom_budget=44, size_caps_min_atoms=23))  # cap from 23 atoms
+    6
     """
     n_rot = rdMolDescriptors.CalcNumRotatableBonds(mol)
     by_rotors = min(options.conformers_max, options.conformers_base + options.conformers_per_rotor * n_rot)
-    by_size = max(2, options.conformer_atom_budget // max(1, _atom_count(mol)))
+    n_atoms = _atom_count(mol)
+    if n_atoms < options.size_caps_min_atoms:
+        return int(by_rotors)
+    by_size = max(2, options.conformer_atom_budget // max(1, n_atoms))
     return int(min(by_rotors, by_size))
 
 
 def ranked_count(n_atoms: int, options: StructureOptions = StructureOptions()) -> int:
     """How many conformers (the lowest by force-field energy) get an xTB ranking single point.
 
-    ``min(rank_max_conformers, rank_atom_budget // n_atoms)``, at least one. A
+    ``min(rank_max_conformers, rank_atom_budget // n_atoms)``, at least one; below
+    ``size_caps_min_atoms`` atoms the size cap does not act. A
     GFN2-xTB single point costs O(N²)–O(N³) (about 8 s at 137 atoms on one
     core in a probe), so a 250-atom oligomer gets one conformer and no ranking
     single point at all (see :func:`build_structure`).
@@ -117,7 +129,11 @@ def ranked_count(n_atoms: int, options: StructureOptions = StructureOptions()) -
     --------
     >>> ranked_count(30), ranked_count(137), ranked_count(250)
     (6, 2, 1)
+    >>> [ranked_count(n, StructureOptions(size_caps_min_atoms=150)) for n in (137, 250)]
+    [6, 1]
     """
+    if n_atoms < options.size_caps_min_atoms:
+        return int(max(1, options.rank_max_conformers))
     return int(max(1, min(options.rank_max_conformers, options.rank_atom_budget // max(1, n_atoms))))
 
 
@@ -305,7 +321,7 @@ def _xtb_optimise(numbers: np.ndarray, positions_a: np.ndarray, engine: Engine,
 
 
 def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
-                    engine: Engine | None = None) -> tuple[Chem.Mol, dict]:
+                    engine: Engine | None = None, *, return_singlepoint: bool = False):
     """Make the screening geometry of one molecule.
 
     Parameters
@@ -317,10 +333,16 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     engine : Engine, optional
         Engine for conformer ranking and optional optimisation; by default
         tblite with :attr:`StructureOptions.ranking_method`.
+    return_singlepoint : bool
+        Also return the chosen conformer's converged ranking single point
+        (:class:`screen.engines.SinglePoint`; None when nothing was ranked or the
+        geometry was optimised afterwards): a start for the neutral's SCF in
+        :func:`screen.electronic.vertical_levels` (``neutral_guess``) when both run
+        in one process.
 
     Returns
     -------
-    (rdkit.Chem.Mol, dict)
+    (rdkit.Chem.Mol, dict) or (rdkit.Chem.Mol, dict, SinglePoint or None)
         Molecule with hydrogens and exactly one conformer [Å], and a record of
         the route (conformer count, force field, xTB ranking energy [Eh], ...).
 
@@ -350,7 +372,8 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     ids, embedding, ff, ff_energies = _sane_conformers(mol_h, conformer_count(mol, options), options)
     ranked = _prefilter(ids, ff_energies, ranked_count(len(numbers), options), options)
     engine = engine or make_engine("tblite", options.ranking_method)
-    best_id, best_e = _rank_by_xtb(mol_h, numbers, ranked, engine)
+    best_id, best_e, best_sp = _rank_by_xtb(mol_h, numbers, ranked, engine, warm_start=options.rank_warm_start,
+                                            screen_accuracy=options.rank_scf_accuracy)
     conf = Chem.Conformer(mol_h.GetConformer(best_id))
     conf.SetId(0)
     out = Chem.Mol(mol_h)
@@ -384,6 +407,8 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
         "opt_converged": opt_converged,
         "wall_s": time.perf_counter() - start,
     }
+    if return_singlepoint:
+        return out, info, (best_sp if geometry == "ff" else None)
     return out, info
 
 
@@ -429,27 +454,71 @@ def _sane_conformers(mol_h: Chem.Mol, n_conf: int, options: StructureOptions):
                                f"{'; '.join(problems)}")
 
 
-def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine: Engine) -> tuple[int, float]:
-    """The conformer of lowest xTB energy among ``ranked`` and that energy [Eh].
+#: loose-then-tight ranking (``rank_scf_accuracy``): every conformer whose loose energy lies within this of the
+#: lowest loose energy is converged again at the engine's accuracy [Eh]. Loose and tight energies differed by at
+#: most 8e-6 Eh at accuracy 10-30 (probe on D35 and IT-4F, 121 and 126 atoms; 7e-4 Eh at accuracy 100, hence
+#: the schema's maximum of 30), so a conformer outside the window cannot be the tight minimum.
+RECHECK_WINDOW_EH = 1e-4
 
-    A single candidate needs no ranking: it is returned with a NaN energy and
-    no xTB call (the electronic stage computes it anyway).
+
+def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine: Engine, *,
+                 warm_start: bool = False, screen_accuracy: float | None = None):
+    """The conformer of lowest xTB energy among ``ranked``, that energy [Eh] and its single point.
+
+    A single candidate needs no ranking: it is returned with a NaN energy, no
+    single point and no xTB call (the electronic stage computes it anyway).
+
+    ``warm_start`` starts each SCF from the previous conformer's converged result
+    (same atoms): same converged energies, sometimes fewer SCF cycles (little
+    saved in practice: ``benchmarks/pruning_levels.py``). ``screen_accuracy``
+    ranks with that looser SCF accuracy factor first and converges at the engine's
+    own accuracy only the conformers within :data:`RECHECK_WINDOW_EH` of the lowest
+    loose energy (each from its loose result); winner and energy are those of the
+    tight single points. Ties go to the earlier conformer of ``ranked`` (lower
+    force-field energy) in every mode.
+
+    Examples
+    --------
+    >>> from screen.engines import make_engine
+    >>> mol_h = Chem.AddHs(Chem.MolFromSmiles("CCCCO"))
+    >>> ids = list(AllChem.EmbedMultipleConfs(mol_h, 4, randomSeed=7))
+    >>> z = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
+    >>> eng = make_engine("tblite", "GFN2-xTB")
+    >>> cold = _rank_by_xtb(mol_h, z, ids, eng)
+    >>> fast = _rank_by_xtb(mol_h, z, ids, eng, warm_start=True, screen_accuracy=10.0)
+    >>> fast[0] == cold[0], abs(fast[1] - cold[1]) < 1e-6
+    (True, True)
     """
     if len(ranked) == 1:
-        return ranked[0], float("nan")
-    best_id, best_e, errors = None, np.inf, []
+        return ranked[0], float("nan"), None
+    ladder = SCF_LADDER
+    if screen_accuracy is not None:
+        ladder = tuple({**rung, "accuracy": float(screen_accuracy)} for rung in SCF_LADDER)
+    results, errors, previous = {}, [], None
     for cid in ranked:
         pos_bohr = mol_h.GetConformer(cid).GetPositions() / BOHR_ANGSTROM
         try:
-            e = engine.singlepoint(numbers, pos_bohr).energy_eh
+            results[cid] = previous = engine.singlepoint(numbers, pos_bohr, ladder=ladder,
+                                                         guess=previous if warm_start else None)
         except EngineError as exc:
             errors.append(str(exc))
-            continue
-        if e < best_e - 1e-9:
-            best_id, best_e = cid, e
+    if screen_accuracy is not None and results:
+        lowest = min(sp.energy_eh for sp in results.values())
+        loose, results = results, {}
+        for cid in ranked:
+            if cid in loose and loose[cid].energy_eh - lowest <= RECHECK_WINDOW_EH:
+                pos_bohr = mol_h.GetConformer(cid).GetPositions() / BOHR_ANGSTROM
+                try:
+                    results[cid] = engine.singlepoint(numbers, pos_bohr, guess=loose[cid])
+                except EngineError as exc:
+                    errors.append(str(exc))
+    best_id, best_e = None, np.inf
+    for cid in ranked:
+        if cid in results and results[cid].energy_eh < best_e - 1e-9:
+            best_id, best_e = cid, results[cid].energy_eh
     if best_id is None:
         raise EngineError(f"no conformer gave a converged xTB energy: {errors[0] if errors else 'unknown'}")
-    return best_id, float(best_e)
+    return best_id, float(best_e), results[best_id]
 
 
 def _molblock_and_info(mol: Chem.Mol, info: dict) -> tuple[str, dict]:

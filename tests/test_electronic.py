@@ -140,3 +140,21 @@ def test_film_off_gives_nan_and_the_columns_reach_levels(tmp_path):
                              "status": ["ok", "ok"], "error": ["", ""], "reason": ["", ""]})
     levels = assemble(manifest, [pd.read_csv(tmp_path / "e.csv", dtype={"error": str}, keep_default_na=False, na_values=[""])])
     assert levels[EXTRA_RAW_COLUMNS].notna().all().all()
+
+
+def test_neutral_started_from_the_ranking_single_point_gives_the_same_levels():
+    from screen.electronic import molecule_numbers_positions, vertical_levels
+    from screen.options import ElectronicOptions, StructureOptions
+    from screen.structures import build_structure
+
+    mol, info, sp = build_structure("CCCCc1ccc(-c2ccccc2)s1", StructureOptions(ff_window_kcal_mol=50.0),
+                                    return_singlepoint=True)
+    assert info["n_ranked"] > 1 and sp is not None
+    z, pos = molecule_numbers_positions(mol)
+    engine = ElectronicOptions().make_engine()
+    cold = vertical_levels(z, pos, engine, film_epsilon=3.5)
+    warm = vertical_levels(z, pos, engine, film_epsilon=3.5, neutral_guess=sp)
+    # the ranking single point is the same method at the same geometry: the same neutral energy
+    assert sp.energy_eh == pytest.approx(cold["xtb_energy_eh"], abs=1e-6)  # SCF energy threshold (tblite default)
+    for col in ("xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_ip_film_ev", "xtb_ea_film_ev"):
+        assert warm[col] == pytest.approx(cold[col], abs=1e-4), col  # 1e-6 Eh per state, in eV with margin

@@ -152,7 +152,9 @@ def test_big_molecule_gets_one_conformer_without_ranking_single_point():
 @pytest.mark.parametrize("section,key,value", [
     ("structures", "truncate_side_chains", False), ("structures", "truncate_min_carbons", 8),
     ("structures", "ff_window_kcal_mol", 3.0), ("structures", "conformer_atom_budget", 600),
-    ("structures", "rank_atom_budget", 720), ("electronic", "film_epsilon", None),
+    ("structures", "rank_atom_budget", 720), ("structures", "size_caps_min_atoms", 150),
+    ("structures", "rank_warm_start", True), ("structures", "rank_scf_accuracy", 10.0),
+    ("electronic", "film_epsilon", None),
     ("electronic", "film_epsilon", 4.0),
 ])
 def test_every_number_changing_setting_changes_the_protocol_id(section, key, value):
@@ -167,3 +169,90 @@ def test_threads_do_not_change_the_protocol_id():
     from screen.config import Config
 
     assert Config.of({"electronic": {"threads": 2}}).protocol_id == Config.of({}).protocol_id
+
+
+# ---------------------------------------------------------------- issue 13: opt-in pruning that keeps the choice
+
+#: opt-in keys without a schema default: absent, the route (and the shipped protocol id) is today's
+OPT_IN = {"size_caps_min_atoms": 0, "rank_warm_start": False, "rank_scf_accuracy": None}
+
+
+def test_opt_in_keys_stay_out_of_the_default_protocol():
+    from screen.config import Config
+    from screen.schema import section_defaults
+
+    assert not set(OPT_IN) & set(section_defaults("structures"))
+    assert not set(OPT_IN) & set(Config.of({}).protocol["structures"])
+    assert {k: getattr(StructureOptions(), k) for k in OPT_IN} == OPT_IN
+
+
+def test_loose_ranking_accuracy_is_bounded():
+    from screen.config import Config
+    from screen.errors import ConfigError
+
+    with pytest.raises(ConfigError, match="rank_scf_accuracy"):
+        StructureOptions(rank_scf_accuracy=100.0)  # loose energies off by 7e-4 Eh there: beyond the recheck window
+    with pytest.raises(ConfigError):
+        Config.of({"structures": {"rank_scf_accuracy": 31}})
+
+
+def test_size_caps_act_only_from_size_caps_min_atoms():
+    from screen.structures import ranked_count
+
+    mol = Chem.MolFromSmiles("CCOc1ccc(-c2ccc(OCC)cc2)cc1")  # 36 atoms, 5 rotatable bonds
+    capped = StructureOptions(conformer_atom_budget=36 * 3, rank_atom_budget=36 * 2)
+    assert conformer_count(mol, capped) == 3 and ranked_count(36, capped) == 2
+    above = StructureOptions(conformer_atom_budget=36 * 3, rank_atom_budget=36 * 2, size_caps_min_atoms=37)
+    assert conformer_count(mol, above) == conformer_count(mol, StructureOptions())  # 36 < 37: no cap
+    assert ranked_count(36, above) == StructureOptions().rank_max_conformers
+    at = StructureOptions(conformer_atom_budget=36 * 3, rank_atom_budget=36 * 2, size_caps_min_atoms=36)
+    assert conformer_count(mol, at) == 3 and ranked_count(36, at) == 2
+
+
+class _RecordingEngine(_CountingEngine):
+    """Counts single points and records their energies, guesses and SCF accuracy."""
+
+    def __init__(self):
+        super().__init__()
+        self.log = []
+
+    def singlepoint(self, numbers, positions_bohr, **kwargs):
+        sp = super().singlepoint(numbers, positions_bohr, **kwargs)
+        ladder = kwargs.get("ladder")
+        accuracy = ladder[0].get("accuracy", self.inner.scf.accuracy) if ladder else self.inner.scf.accuracy
+        self.log.append({"positions": np.array(positions_bohr), "energy": sp.energy_eh,
+                         "warm": kwargs.get("guess") is not None, "accuracy": accuracy})
+        return sp
+
+
+FLEXIBLE = "CCCCc1ccc(-c2ccc(OCC)cc2)s1"  # 35 atoms, 7 rotatable bonds: several conformers within the window
+
+
+def test_warm_and_loose_ranking_keep_the_cold_choice_and_energies():
+    cold_engine, fast_engine = _RecordingEngine(), _RecordingEngine()
+    cold_mol, cold = build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0), cold_engine)
+    fast_mol, fast, sp = build_structure(
+        FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, rank_warm_start=True, rank_scf_accuracy=10.0),
+        fast_engine, return_singlepoint=True)
+    n = cold["n_ranked"]
+    assert n == fast["n_ranked"] >= 3 and cold_engine.calls == n
+    # same conformer, same energy: the SCF energy threshold at accuracy 1 is 1e-6 Eh (tblite default)
+    assert np.array_equal(cold_mol.GetConformer().GetPositions(), fast_mol.GetConformer().GetPositions())
+    assert fast["xtb_rank_energy_eh"] == pytest.approx(cold["xtb_rank_energy_eh"], abs=1e-6)
+    assert sp.energy_eh == fast["xtb_rank_energy_eh"]
+    loose, tight = fast_engine.log[:n], fast_engine.log[n:]
+    assert [x["warm"] for x in loose] == [False] + [True] * (n - 1)  # each from the previous conformer
+    assert all(x["accuracy"] == 10.0 for x in loose) and all(x["accuracy"] == 1.0 and x["warm"] for x in tight)
+    assert 1 <= len(tight) < n  # only conformers within the recheck window get a tight single point
+    for a, b in zip(cold_engine.log, loose):  # every conformer: loose warm energy vs cold tight energy
+        assert np.array_equal(a["positions"], b["positions"])
+        assert b["energy"] == pytest.approx(a["energy"], abs=1e-4)  # RECHECK_WINDOW_EH
+
+
+def test_warm_started_ranking_gives_cold_energies():
+    cold_engine, warm_engine = _RecordingEngine(), _RecordingEngine()
+    build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0), cold_engine)
+    build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, rank_warm_start=True), warm_engine)
+    assert len(cold_engine.log) == len(warm_engine.log) >= 3
+    for a, b in zip(cold_engine.log, warm_engine.log):
+        assert b["energy"] == pytest.approx(a["energy"], abs=1e-6)  # SCF energy threshold (tblite default)
