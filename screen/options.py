@@ -15,7 +15,7 @@ from dataclasses import dataclass, fields
 from screen.errors import ConfigError
 from screen.schema import section_defaults
 
-__all__ = ["StructureOptions", "ElectronicOptions", "ExecutionOptions", "options_from_mapping"]
+__all__ = ["StructureOptions", "ElectronicOptions", "ExecutionOptions", "OPT_IN_DEFAULTS", "options_from_mapping"]
 
 _S = section_defaults("structures")
 _E = section_defaults("electronic")
@@ -54,6 +54,13 @@ def options_from_mapping(cls, mapping, section: str):
     if unknown:
         raise ConfigError(f"unknown {section} option(s) {sorted(unknown)}; allowed: {known}")
     return cls(**mapping)
+
+
+#: opt-in option fields per stage and the values at which they leave the route exactly as before they
+#: existed; at these values they are left out of protocol ids (results store, fingerprints), so adding
+#: them did not make earlier results look foreign
+OPT_IN_DEFAULTS = {"structures": {"size_caps_min_atoms": 0, "rank_warm_start": False, "rank_scf_accuracy": None},
+                   "electronic": {}}
 
 
 @dataclass(frozen=True)
@@ -140,9 +147,9 @@ class StructureOptions:
     conformer_atom_budget: int = _S["conformer_atom_budget"]
     rank_atom_budget: int = _S["rank_atom_budget"]
     # opt-in, deliberately without a schema default (absent = today's route, same protocol id)
-    size_caps_min_atoms: int = 0
-    rank_warm_start: bool = False
-    rank_scf_accuracy: float | None = None
+    size_caps_min_atoms: int = OPT_IN_DEFAULTS["structures"]["size_caps_min_atoms"]
+    rank_warm_start: bool = OPT_IN_DEFAULTS["structures"]["rank_warm_start"]
+    rank_scf_accuracy: float | None = OPT_IN_DEFAULTS["structures"]["rank_scf_accuracy"]
 
     def __post_init__(self):
         if self.geometry not in ("ff", "xtb"):

@@ -308,3 +308,17 @@ def _write_one(folder: Path, key: str, smiles: str) -> Path:
     path = folder / "shard-000.csv"
     pd.DataFrame({"key": [key], "smiles": [smiles]}).to_csv(path, index=False)
     return path
+
+
+def test_opt_in_options_at_their_defaults_keep_the_stage_ids():
+    # options added later as opt-in leave the ids of existing stores unchanged at their default values,
+    # and change them when set
+    from dataclasses import asdict
+
+    from screen.options import OPT_IN_DEFAULTS, StructureOptions
+    from screen.store import stage_protocol_id
+
+    plain = {k: v for k, v in asdict(StructureOptions()).items() if k not in OPT_IN_DEFAULTS["structures"]}
+    assert stage_protocol_id("structures", StructureOptions()) == stage_protocol_id("structures", plain)
+    assert stage_protocol_id("structures", StructureOptions(rank_warm_start=True)) != \
+        stage_protocol_id("structures", plain)
