@@ -454,6 +454,29 @@ class DeviceModel:
         return pce_samples(self, levels, np.asarray(loss_ev, dtype=float), jsc_unit,
                            sq_pce_pct if sq_pct is None else sq_pct, sq_below_ev)
 
+    def pce_pct(self, donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev=None, acceptor_lumo_ev=None,
+                acceptor_gap_ev=None, *, acceptor_class=None, caller: str = "pce_pct()") -> np.ndarray:
+        """``evaluate(...)["pce_pct"]`` without the flags: PCE [%], NaN where the pair is not viable.
+
+        The same classification and formula (:meth:`figures`); leaving out the
+        per-pair flag strings makes a map grid of 10⁴ pairs about 20 times cheaper.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> m = DeviceModel()
+        >>> gaps, d_lumo = np.linspace(1.2, 2.4, 5)[:, None], np.linspace(-4.2, -3.0, 4)[None, :]
+        >>> levels = (d_lumo - gaps, d_lumo, gaps, -5.65, -4.10, 1.33)
+        >>> ref = m.evaluate(*levels, acceptor_class="nfa-fused")["pce_pct"]
+        >>> bool(np.array_equal(m.pce_pct(*levels, acceptor_class="nfa-fused"), ref, equal_nan=True))
+        True
+        """
+        levels, _ = self.pair_arrays(donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev,
+                                     acceptor_lumo_ev, acceptor_gap_ev, caller)
+        loss, _ = self.loss_ev(acceptor_class)
+        fig = self.figures(levels, loss)
+        return np.where(fig["viable"], fig["pce_pct"], np.nan).astype(float)
+
     def evaluate(self, donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev=None, acceptor_lumo_ev=None,
                  acceptor_gap_ev=None, *, acceptor_class=None) -> dict:
         """Classify donor/acceptor pairs and estimate the viable ones.
@@ -589,6 +612,5 @@ def efficiency_map(gaps_ev, offsets_ev, model=None, *, acceptor_lumo_ev=-4.3, ac
     offsets = np.asarray(offsets_ev, dtype=float).reshape(-1)
     d_lumo = float(acceptor_lumo_ev) + offsets[None, :]
     d_homo = d_lumo - gaps[:, None]
-    out = model.evaluate(d_homo, d_lumo, gaps[:, None], acceptor_homo_ev, acceptor_lumo_ev, acceptor_gap_ev,
-                         acceptor_class=acceptor_class)
-    return out["pce_pct"]
+    return model.pce_pct(d_homo, d_lumo, gaps[:, None], acceptor_homo_ev, acceptor_lumo_ev, acceptor_gap_ev,
+                         acceptor_class=acceptor_class, caller="efficiency_map()")

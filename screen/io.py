@@ -108,10 +108,13 @@ def _umask() -> int:
     return mask
 
 
-def write_csv(frame: pd.DataFrame, target: str | os.PathLike) -> None:
-    """Write ``frame`` as CSV (no index) atomically."""
+def write_csv(frame: pd.DataFrame, target: str | os.PathLike) -> str:
+    """Write ``frame`` as CSV (no index, UTF-8, line ends ``os.linesep``) atomically; return the text written."""
+    text = frame.to_csv(index=False)  # line ends os.linesep, as DataFrame.to_csv(path) writes them
     with atomic_path(target) as tmp:
-        frame.to_csv(tmp, index=False)
+        with open(tmp, "w", encoding="utf-8", newline="") as fh:
+            fh.write(text)
+    return text
 
 
 def write_json(obj, target: str | os.PathLike) -> None:

@@ -418,22 +418,6 @@ def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, mo
     }
 
 
-def _write_ranking_csv(ranking: pd.DataFrame, target: Path) -> str | None:
-    """Write ``ranking.csv`` atomically, as :func:`screen.io.write_csv` does; return its text with ``\\n`` line ends.
-
-    The text is what the report's spreadsheet-safe copy starts from
-    (:func:`screen.report.export.safe_csv_text`), so the numbers are formatted
-    once; None where the platform's line end is not ``\\n``.
-    """
-    from screen.io import atomic_path
-
-    text = ranking.to_csv(index=False)  # line ends os.linesep, like DataFrame.to_csv(path)
-    with atomic_path(target) as tmp:
-        with open(tmp, "w", encoding="utf-8", newline="") as fh:
-            fh.write(text)
-    return text if os.linesep == "\n" else None
-
-
 def _structure_keys(levels: pd.DataFrame) -> dict:
     """Structure key by SMILES of the computed rows of a levels table (empty without a key column)."""
     if "key" not in levels or "smiles" not in levels:
@@ -525,7 +509,7 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
        :doi:`10.1002/adma.200501717`
     """
-    from screen.io import write_json
+    from screen.io import write_csv, write_json
     from screen.levels import read_levels
 
     clock = [time.perf_counter()]
@@ -551,7 +535,8 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
 
     target = out_dir / "rankings" / ranking_folder(partner.slug, cfg)
     _check_target(target, partner, levels_path)
-    csv_text = _write_ranking_csv(ranking, target / "ranking.csv")
+    csv_text = write_csv(ranking, target / "ranking.csv")
+    csv_text = csv_text if os.linesep == "\n" else None  # the safe copy's text has "\n" line ends
     keys = _structure_keys(levels)
     geometries = computed_geometries(_shortlist_keys(ranking, keys, options), levels_path, meta_in, cfg)
     short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size, partner.scale, geometries,

@@ -494,11 +494,11 @@ def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine
     ladder = SCF_LADDER
     if screen_accuracy is not None:
         ladder = tuple({**rung, "accuracy": float(screen_accuracy)} for rung in SCF_LADDER)
+    positions = {cid: mol_h.GetConformer(cid).GetPositions() / BOHR_ANGSTROM for cid in ranked}  # [bohr]
     results, errors, previous = {}, [], None
     for cid in ranked:
-        pos_bohr = mol_h.GetConformer(cid).GetPositions() / BOHR_ANGSTROM
         try:
-            results[cid] = previous = engine.singlepoint(numbers, pos_bohr, ladder=ladder,
+            results[cid] = previous = engine.singlepoint(numbers, positions[cid], ladder=ladder,
                                                          guess=previous if warm_start else None)
         except EngineError as exc:
             errors.append(str(exc))
@@ -507,9 +507,8 @@ def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine
         loose, results = results, {}
         for cid in ranked:
             if cid in loose and loose[cid].energy_eh - lowest <= RECHECK_WINDOW_EH:
-                pos_bohr = mol_h.GetConformer(cid).GetPositions() / BOHR_ANGSTROM
                 try:
-                    results[cid] = engine.singlepoint(numbers, pos_bohr, guess=loose[cid])
+                    results[cid] = engine.singlepoint(numbers, positions[cid], guess=loose[cid])
                 except EngineError as exc:
                     errors.append(str(exc))
     best_id, best_e = None, np.inf

@@ -375,36 +375,13 @@ def _map_grid(model, partner: dict, extent) -> tuple[np.ndarray, np.ndarray, np.
         p["homo"] = p["lumo"] - p["gap_opt"]
     if _partner_role(partner) == "donor":
         a_lumo = p["lumo"] - offsets
-        pce = _pce_pct(model, p["homo"], p["lumo"], p["gap_opt"], a_lumo - gaps, a_lumo, gaps)
+        pce = model.pce_pct(p["homo"], p["lumo"], p["gap_opt"], a_lumo - gaps, a_lumo, gaps, caller="the report's map")
     else:
         d_lumo = p["lumo"] + offsets
         cls = acceptor_class_of(partner.get("smiles") if isinstance(partner, dict) else "")
-        pce = _pce_pct(model, d_lumo - gaps, d_lumo, gaps, p["homo"], p["lumo"], p["gap_opt"], acceptor_class=cls)
+        pce = model.pce_pct(d_lumo - gaps, d_lumo, gaps, p["homo"], p["lumo"], p["gap_opt"], acceptor_class=cls,
+                            caller="the report's map")
     return gaps[:, 0], offsets[0], pce
-
-
-def _pce_pct(model, *pair_levels, acceptor_class=None) -> np.ndarray:
-    """``model.evaluate(*pair_levels, acceptor_class=…)["pce_pct"]`` without the flags the map does not use. [%]
-
-    The same :meth:`~screen.device.DeviceModel.figures`, NaN where the pair is
-    not viable; leaving out the per-pair flag strings makes the 121 × 101 grid
-    about 20 times cheaper.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> from screen.device import DeviceModel
-    >>> m = DeviceModel()
-    >>> gaps, d_lumo = np.linspace(1.2, 2.4, 5)[:, None], np.linspace(-4.2, -3.0, 4)[None, :]
-    >>> levels = (d_lumo - gaps, d_lumo, gaps, -5.65, -4.10, 1.33)
-    >>> ref = m.evaluate(*levels, acceptor_class="nfa-fused")["pce_pct"]
-    >>> bool(np.array_equal(_pce_pct(m, *levels, acceptor_class="nfa-fused"), ref, equal_nan=True))
-    True
-    """
-    levels, _ = model.pair_arrays(*pair_levels, caller="the report's map")
-    loss, _ = model.loss_ev(acceptor_class)
-    out = model.figures(levels, loss)
-    return np.where(out["viable"], out["pce_pct"], np.nan).astype(float)
 
 
 def _map_contours(ax, gaps, offsets, pce, target: float):
