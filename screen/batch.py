@@ -16,7 +16,7 @@ from collections.abc import Callable, Iterable, Iterator
 from screen.io import Journal, Progress
 from screen.isolation import IsolatedWorker
 
-__all__ = ["molecule_caller", "run_journalled"]
+__all__ = ["molecule_caller", "run_journalled", "journalled", "report_store_hits"]
 
 
 @contextlib.contextmanager
@@ -92,16 +92,59 @@ def run_journalled(items: Iterable, key: Callable, compute: Callable[[object], d
     done = journal.load()
     todo = [item for item in items if key(item) not in done]
     for i, item in enumerate(todo, 1):
-        rec = cache.lookup(item) if cache is not None else None
-        fresh = rec is None
-        if fresh:
-            rec = compute(item)
-        journal.append(rec)
-        if fresh and cache is not None:
-            cache.remember(item, rec)
-        done[rec["key"]] = rec
+        rec = journalled(item, key, compute, journal, done, cache)
         progress.report(i, len(todo), rec["key"])
-    if cache is not None and todo:
-        print(f"{progress.label}: {cache.hits} of {len(todo)} molecules from the results store", file=progress.stream,
-              flush=True)
+    if todo:
+        report_store_hits(progress, cache, len(todo))
     return done
+
+
+def journalled(item, key: Callable, compute: Callable[[object], dict], journal: Journal, done: dict,
+               cache=None) -> dict:
+    """The record of one item: from ``done`` (the journal), else from the results store, else computed.
+
+    A record not in ``done`` is appended to ``journal`` and added to ``done``; a
+    freshly computed one goes to ``cache`` after its journal line, so a killed job
+    loses nothing (see :func:`run_journalled` for the arguments).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> j = Journal(pathlib.Path(tempfile.mkdtemp()) / "j.jsonl")
+    >>> done = {}
+    >>> journalled(3, str, lambda i: {"key": str(i), "sq": i * i}, j, done)["sq"], list(j.load())
+    (9, ['3'])
+    >>> journalled(3, str, lambda i: {"key": str(i), "sq": -1}, j, done)["sq"]  # journalled: not computed again
+    9
+    """
+    if key(item) in done:
+        return done[key(item)]
+    rec = cache.lookup(item) if cache is not None else None
+    fresh = rec is None
+    if fresh:
+        rec = compute(item)
+    journal.append(rec)
+    if fresh and cache is not None:
+        cache.remember(item, rec)
+    done[rec["key"]] = rec
+    return rec
+
+
+def report_store_hits(progress: Progress, cache, n_items: int, what: str = "") -> None:
+    """Log line ``<label>: <hits> of <n> molecules from the results store[ (<what>)]`` (nothing without a store).
+
+    Examples
+    --------
+    >>> import io
+    >>> class Cache:
+    ...     hits = 2
+    >>> p = Progress("electronic shard-000", stream=io.StringIO())
+    >>> report_store_hits(p, Cache(), 5, "electronic")
+    >>> print(p.stream.getvalue(), end="")
+    electronic shard-000: 2 of 5 molecules from the results store (electronic)
+    """
+    if cache is None:
+        return
+    suffix = f" ({what})" if what else ""
+    print(f"{progress.label}: {cache.hits} of {n_items} molecules from the results store{suffix}",
+          file=progress.stream, flush=True)

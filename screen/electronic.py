@@ -27,6 +27,7 @@ References
 from __future__ import annotations
 
 import time
+from collections.abc import Callable
 from dataclasses import asdict
 from pathlib import Path
 
@@ -45,8 +46,9 @@ from screen.options import ElectronicOptions
 from screen.structures import STATUS_COLUMNS as STRUCTURE_COLUMNS
 from screen.structures import _plain, read_structures
 
-__all__ = ["ElectronicOptions", "vertical_levels", "run_electronic", "ELECTRONIC_COLUMNS", "RAW_COLUMNS",
-           "EXTRA_RAW_COLUMNS"]
+__all__ = ["ElectronicOptions", "vertical_levels", "run_electronic", "electronic_engine", "electronic_record",
+           "write_electronic", "molecule_numbers_positions", "ELECTRONIC_COLUMNS", "RAW_COLUMNS",
+           "EXTRA_RAW_COLUMNS", "CARRIED_COLUMNS"]
 
 #: raw values besides :data:`screen.columns.RAW_COLUMNS`: HOMO→LUMO exchange K and Coulomb J [eV] and
 #: the HOMO/LUMO overlap [0-1] of the neutral (:func:`screen.excitation.frontier_integrals`), and the
@@ -191,14 +193,70 @@ def vertical_levels(numbers, positions_bohr, engine: Engine, film_epsilon: float
 _ENGINE_CACHE: dict[tuple, Engine] = {}
 
 
-def _electronic_job(numbers, positions_bohr, options: dict) -> dict:
-    """Worker-process entry: raw levels of one geometry."""
-    opts = ElectronicOptions(**options)
+def electronic_engine(options: dict) -> Engine:
+    """The ΔSCF engine of this process for the ``electronic`` options (as a mapping), made once per options."""
     key = tuple(sorted(options.items()))
     engine = _ENGINE_CACHE.get(key)
     if engine is None:
-        engine = _ENGINE_CACHE[key] = opts.make_engine()
-    return vertical_levels(numbers, positions_bohr, engine, film_epsilon=opts.film_epsilon)
+        engine = _ENGINE_CACHE[key] = ElectronicOptions(**options).make_engine()
+    return engine
+
+
+def _electronic_job(numbers, positions_bohr, options: dict) -> dict:
+    """Worker-process entry: raw levels of one geometry."""
+    return vertical_levels(numbers, positions_bohr, electronic_engine(options), film_epsilon=options["film_epsilon"])
+
+
+#: structure-route columns an electronic row carries over from the structures status table (besides
+#: ``structure_wall_s``, the table's ``wall_s``)
+CARRIED_COLUMNS = [c for c in STRUCTURE_COLUMNS if c in ELECTRONIC_COLUMNS and c not in ("key", "status", "error")]
+
+
+def electronic_record(row: dict, mol: Chem.Mol | None, levels: Callable) -> dict:
+    """The journal record of one molecule's raw levels.
+
+    Parameters
+    ----------
+    row : dict
+        The molecule's row of the structures status table.
+    mol : rdkit.Chem.Mol or None
+        Its geometry (None: missing from the structures file).
+    levels : callable
+        ``levels(numbers, positions_bohr)`` → the raw values (:func:`vertical_levels`).
+
+    Returns
+    -------
+    dict
+        ``status`` ok with the values, or failed with the structure's reason, a missing geometry or
+        ``"electronic: <engine message>"``; the route columns of ``row`` carried over.
+
+    Examples
+    --------
+    >>> electronic_record({"key": "m1", "status": "failed", "error": "structure: no embedding"}, None, None)["error"]
+    'structure: no embedding'
+    """
+    key = row["key"]
+    rec = {"key": key, **{c: row.get(c, "") for c in CARRIED_COLUMNS}, "structure_wall_s": row.get("wall_s", "")}
+    if row["status"] != "ok":
+        rec.update(status="failed", error=row["error"])
+    elif mol is None:
+        rec.update(status="failed", error="structure: geometry missing from the structures file")
+    else:
+        numbers, pos = molecule_numbers_positions(mol)
+        start = time.perf_counter()
+        try:
+            rec.update(levels(numbers, pos), status="ok", error="", n_atoms=len(numbers))
+        except (EngineError, RuntimeError) as exc:
+            rec.update(status="failed", error=f"electronic: {_plain(exc)}", sp_wall_s=time.perf_counter() - start)
+    return rec
+
+
+def write_electronic(keys, done: dict, out_csv) -> pd.DataFrame:
+    """Write a shard's electronic table (columns :data:`ELECTRONIC_COLUMNS`, rows in ``keys`` order) atomically."""
+    table = pd.DataFrame([{c: done[k].get(c, "") for c in ELECTRONIC_COLUMNS} for k in keys],
+                         columns=ELECTRONIC_COLUMNS)
+    write_csv(table, out_csv)
+    return table
 
 
 def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicOptions = ElectronicOptions(),
@@ -241,7 +299,6 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
     mols = read_structures(structures_sdf)
     journal = Journal(journal_path or f"{out_csv}.journal.jsonl")
     progress = progress or Progress(f"electronic {Path(out_csv).stem}")
-    carried = [c for c in STRUCTURE_COLUMNS if c in ELECTRONIC_COLUMNS and c not in ("key", "status", "error")]
     local = None
     if engine is not None or not isolate:
         engine = engine or options.make_engine()
@@ -249,27 +306,11 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
 
     with molecule_caller(_electronic_job, local, timeout_s) as call:
         def compute(row: dict) -> dict:
-            key = row["key"]
-            rec = {"key": key, **{c: row.get(c, "") for c in carried}, "structure_wall_s": row.get("wall_s", "")}
-            if row["status"] != "ok":
-                rec.update(status="failed", error=row["error"])
-            elif key not in mols:
-                rec.update(status="failed", error="structure: geometry missing from the structures file")
-            else:
-                numbers, pos = molecule_numbers_positions(mols[key])
-                start = time.perf_counter()
-                try:
-                    rec.update(call(numbers, pos, asdict(options)), status="ok", error="", n_atoms=len(numbers))
-                except (EngineError, RuntimeError) as exc:
-                    rec.update(status="failed", error=f"electronic: {_plain(exc)}",
-                               sp_wall_s=time.perf_counter() - start)
-            return rec
+            return electronic_record(row, mols.get(row["key"]), lambda z, pos: call(z, pos, asdict(options)))
 
         done = run_journalled(status.to_dict("records"), lambda row: row["key"], compute, journal, progress,
-                              electronic_cache(store, options, mols, carried))
-    table = pd.DataFrame([{c: done[k].get(c, "") for c in ELECTRONIC_COLUMNS} for k in status["key"]],
-                         columns=ELECTRONIC_COLUMNS)
-    write_csv(table, out_csv)
+                              electronic_cache(store, options, mols, CARRIED_COLUMNS))
+    table = write_electronic(status["key"], done, out_csv)
     journal.remove()
     return table
 

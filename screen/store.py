@@ -55,7 +55,7 @@ from screen.options import OPT_IN_DEFAULTS
 
 __all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "stage_protocol", "stage_protocol_id",
            "geometry_hash", "store_location", "open_store", "resolve_store", "store_text", "export_store",
-           "structures_cache", "electronic_cache"]
+           "structures_cache", "electronic_cache", "store_row"]
 
 #: environment variable naming the store file (overrides ``store.path``; empty disables the store)
 STORE_ENV = "DASCREEN_STORE"
@@ -203,14 +203,13 @@ class ResultStore:
         geometry : str
             :func:`geometry_hash` of the input geometry (electronic rows).
         """
-        protocol = stage_protocol(stage, options)
-        pid = stage_protocol_id(stage, protocol)
-        payload = json.dumps({"stage": stage, "key": key, "protocol_id": pid, "protocol": protocol,
-                              "geometry": geometry, "record": dict(record)}, sort_keys=True, default=_plain)
+        self.put_rows([store_row(stage, key, options, record, geometry)])
+
+    def put_rows(self, rows) -> None:
+        """Store several rows (:func:`store_row`) in one transaction: another run sees all of them or none."""
         conn = self._connect()
         with _transaction(conn):
-            conn.execute("INSERT OR REPLACE INTO results VALUES (?, ?, ?, ?, ?, ?, ?)",
-                         (stage, key, pid, geometry, payload, _digest(payload), time.time()))
+            conn.executemany("INSERT OR REPLACE INTO results VALUES (?, ?, ?, ?, ?, ?, ?)", rows)
 
     def get(self, stage: str, key: str, protocol_id: str, geometry: str = "") -> dict | None:
         """The stored record of ``key``, or None when there is none or the row does not check out."""
@@ -268,6 +267,16 @@ class ResultStore:
                                      "geometry = ?", idents)
             conn.execute("VACUUM")
         return {k: len(v) for k, v in doomed.items()}
+
+
+def store_row(stage: str, key: str, options, record: Mapping, geometry: str = "") -> tuple:
+    """The table row of one record (arguments as :meth:`ResultStore.put`): stage, key, protocol id,
+    geometry, payload, its SHA-256 and the time."""
+    protocol = stage_protocol(stage, options)
+    pid = stage_protocol_id(stage, protocol)
+    payload = json.dumps({"stage": stage, "key": key, "protocol_id": pid, "protocol": protocol,
+                          "geometry": geometry, "record": dict(record)}, sort_keys=True, default=_plain)
+    return stage, key, pid, geometry, payload, _digest(payload), time.time()
 
 
 @contextlib.contextmanager
@@ -369,13 +378,25 @@ class StoreCache:
 
     def remember(self, item, record: Mapping) -> None:
         """Store a freshly computed ``ok`` record (without the item's own fields)."""
+        self.write([self.row(item, record)])
+
+    def row(self, item, record: Mapping) -> tuple | None:
+        """The store row of a freshly computed record (:func:`store_row`); None when it is not stored
+        (not ``ok``, or an item without geometry)."""
         geometry = self._geometry(item)
         if record.get("status") != "ok" or geometry is None:
-            return
+            return None
         own = self._base(item)
+        return store_row(self.stage, self._key(item), self.options,
+                         {k: v for k, v in record.items() if k not in own}, geometry)
+
+    def write(self, rows) -> None:
+        """Store rows of :meth:`row` (of this or another stage's cache; Nones skipped) in one transaction."""
+        rows = [r for r in rows if r is not None]
+        if not rows:
+            return
         try:
-            self.store.put(self.stage, self._key(item), self.options,
-                           {k: v for k, v in record.items() if k not in own}, geometry)
+            self.store.put_rows(rows)
         except (sqlite3.Error, InputError, OSError) as exc:
             self._warn(exc)
 

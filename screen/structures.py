@@ -46,6 +46,7 @@ References
 from __future__ import annotations
 
 import time
+from collections.abc import Callable
 from dataclasses import asdict, replace
 from pathlib import Path
 
@@ -69,6 +70,10 @@ __all__ = [
     "build_structure",
     "run_structures",
     "read_structures",
+    "ranking_engine",
+    "structure_record",
+    "status_row",
+    "write_structures",
     "STATUS_COLUMNS",
 ]
 
@@ -527,13 +532,18 @@ def _molblock_and_info(mol: Chem.Mol, info: dict) -> tuple[str, dict]:
 _ENGINES: dict[str, Engine] = {}
 
 
+def ranking_engine(method: str) -> Engine:
+    """The conformer-ranking engine of this process (tblite with ``method``, made once per method)."""
+    engine = _ENGINES.get(method)
+    if engine is None:
+        engine = _ENGINES[method] = make_engine("tblite", method)
+    return engine
+
+
 def _structure_job(smiles: str, options: dict) -> tuple[str, dict]:
     """Worker-process entry: one molecule's structure as (molblock, info)."""
     opts = StructureOptions(**options)
-    engine = _ENGINES.get(opts.ranking_method)
-    if engine is None:
-        engine = _ENGINES[opts.ranking_method] = make_engine("tblite", opts.ranking_method)
-    return _molblock_and_info(*build_structure(smiles, opts, engine))
+    return _molblock_and_info(*build_structure(smiles, opts, ranking_engine(opts.ranking_method)))
 
 
 def _plain(exc: Exception) -> str:
@@ -543,6 +553,73 @@ def _plain(exc: Exception) -> str:
         if text.startswith(prefix):
             return text[len(prefix):]
     return text
+
+
+def structure_record(key: str, make: Callable[[], tuple[str, dict]]) -> dict:
+    """The journal record of one molecule's structure: ``make()`` → (molblock, info), or the failure.
+
+    A structure error (bad SMILES, no embedding, broken geometry, no converged
+    xTB energy, a crashed or timed-out worker) becomes ``status = failed`` with
+    ``error = "structure: <reason>"``.
+
+    Examples
+    --------
+    >>> structure_record("m1", lambda: ("<molblock>", {"n_conformers": 4}))["n_conformers"]
+    4
+    >>> def bad():
+    ...     raise ValueError("SMILES does not parse: 'x'")
+    >>> structure_record("m2", bad)["error"]
+    "structure: SMILES does not parse: 'x'"
+    """
+    rec = {"key": key}
+    try:
+        molblock, info = make()
+        rec.update(status="ok", error="", molblock=molblock, **info)
+    except (ValueError, EngineError, RuntimeError) as exc:
+        rec.update(status="failed", error=f"structure: {_plain(exc)}")
+    return rec
+
+
+def status_row(rec: dict) -> dict:
+    """A structure record as its row of the status table (:data:`STATUS_COLUMNS`, "" where it has none)."""
+    return {c: rec.get(c, "") for c in STATUS_COLUMNS}
+
+
+def write_structures(keys, done: dict, out_sdf, out_csv) -> pd.DataFrame:
+    """Write a shard's SD file (ok molecules, title = key) and status table, both atomically, in ``keys`` order.
+
+    Parameters
+    ----------
+    keys : sequence of str
+        Structure keys of the shard, in shard order.
+    done : dict
+        Structure records by key (:func:`structure_record`).
+    out_sdf, out_csv : path-like
+        Outputs; the SD records carry the route as ``dascreen_*`` properties.
+
+    Returns
+    -------
+    pandas.DataFrame
+        The status table.
+    """
+    rows = []
+    with atomic_path(out_sdf) as tmp:
+        writer = Chem.SDWriter(str(tmp))
+        for key in keys:
+            rec = done[key]
+            rows.append(status_row(rec))
+            if rec["status"] != "ok":
+                continue
+            mol = Chem.MolFromMolBlock(rec["molblock"], removeHs=False)
+            mol.SetProp("_Name", key)
+            for prop in ("smiles_computed", "forcefield", "geometry", "n_conformers", "truncated_chains",
+                         "truncated_groups"):
+                mol.SetProp(f"dascreen_{prop}", str(rec[prop]))
+            writer.write(mol)
+        writer.close()
+    table = pd.DataFrame(rows, columns=STATUS_COLUMNS)
+    write_csv(table, out_csv)
+    return table
 
 
 def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = StructureOptions(),
@@ -595,33 +672,11 @@ def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = Stru
     with molecule_caller(_structure_job, local, timeout_s) as call:
         def compute(item) -> dict:
             key, smiles = item
-            rec = {"key": key}
-            try:
-                molblock, info = call(smiles, asdict(options))
-                rec.update(status="ok", error="", molblock=molblock, **info)
-            except (ValueError, EngineError, RuntimeError) as exc:
-                rec.update(status="failed", error=f"structure: {_plain(exc)}")
-            return rec
+            return structure_record(key, lambda: call(smiles, asdict(options)))
 
         done = run_journalled(zip(shard["key"], shard["smiles"]), lambda item: item[0], compute, journal, progress,
                               structures_cache(store, options))
-    rows = []
-    with atomic_path(out_sdf) as tmp:
-        writer = Chem.SDWriter(str(tmp))
-        for key in shard["key"]:
-            rec = done[key]
-            rows.append({c: rec.get(c, "") for c in STATUS_COLUMNS})
-            if rec["status"] != "ok":
-                continue
-            mol = Chem.MolFromMolBlock(rec["molblock"], removeHs=False)
-            mol.SetProp("_Name", key)
-            for prop in ("smiles_computed", "forcefield", "geometry", "n_conformers", "truncated_chains",
-                         "truncated_groups"):
-                mol.SetProp(f"dascreen_{prop}", str(rec[prop]))
-            writer.write(mol)
-        writer.close()
-    table = pd.DataFrame(rows, columns=STATUS_COLUMNS)
-    write_csv(table, out_csv)
+    table = write_structures(shard["key"], done, out_sdf, out_csv)
     journal.remove()
     return table
 
