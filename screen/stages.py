@@ -59,6 +59,16 @@ def _electronic(args, cfg):
     print(table["status"].value_counts().to_dict())
 
 
+def _compute(args, cfg):
+    from screen.compute import run_compute
+
+    ex = cfg.execution
+    structures, electronic = run_compute(args.shard, args.sdf, args.table, args.out, cfg.structures, cfg.electronic,
+                                         isolate=ex.isolate, timeout_s=ex.molecule_timeout_s)
+    print({"structures": structures["status"].value_counts().to_dict(),
+           "electronic": electronic["status"].value_counts().to_dict()})
+
+
 def _levels(args, cfg):
     from screen.io import write_csv, write_json
     from screen.levels import summarise
@@ -168,6 +178,11 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--sdf", required=True)
     p.add_argument("--table", required=True)
     p.add_argument("--out", required=True)
+    p = sub.add_parser("compute", help="structures and electronic stages of one shard in one job")
+    p.add_argument("--shard", required=True)
+    p.add_argument("--sdf", required=True, help="structures SD file")
+    p.add_argument("--table", required=True, help="structures status table")
+    p.add_argument("--out", required=True, help="electronic table")
     p = sub.add_parser("levels")
     p.add_argument("--manifest", required=True)
     p.add_argument("--electronic", nargs="*", default=[])
@@ -195,8 +210,8 @@ def main(argv: list[str] | None = None) -> int:
 
     cfg = Config.from_json(args.config, "workflow configuration")
     os.environ["OMP_NUM_THREADS"] = str(cfg.electronic.threads)
-    handler = {"prepare": _prepare, "structures": _structures, "electronic": _electronic, "levels": _levels,
-               "reference-input": _reference_input, "calibrate": _calibrate, "rank": _rank,
+    handler = {"prepare": _prepare, "structures": _structures, "electronic": _electronic, "compute": _compute,
+               "levels": _levels, "reference-input": _reference_input, "calibrate": _calibrate, "rank": _rank,
                "partner-input": _partner_input}
     handler[args.stage](args, cfg)
     return 0
