@@ -58,9 +58,9 @@ def runs(tmp_path_factory, data_dir, repo_dir):
 
 
 def _n_jobs(run: Path) -> int:
-    """Jobs the scheduler must have seen: prepare, structures + electronic per shard, levels, rank."""
+    """Jobs the scheduler must have seen: prepare, one compute job per shard, levels, rank."""
     shards = len(list((run / "work" / "candidates" / "prepared").glob("shard-*.csv")))
-    return 3 + 2 * shards
+    return 3 + shards
 
 
 def _table(path: Path) -> pd.DataFrame:

@@ -20,45 +20,28 @@ checkpoint prepare:
         " --max-shards {params.max_shards} > {log:q} 2>&1"
 
 
-rule structures:
+# One job per shard builds each molecule's structure and computes its raw levels right after, in the same
+# worker process (the gas neutral starts from the chosen conformer's ranking single point): the structures
+# files and the electronic table of the shard (screen.compute.run_compute).
+rule compute:
     input:
         shard=f"{WORK}/{{batch}}/prepared/shard-{{shard}}.csv",
     output:
         sdf=f"{WORK}/{{batch}}/structures/shard-{{shard}}.sdf",
         table=f"{WORK}/{{batch}}/structures/shard-{{shard}}.csv",
+        electronic=f"{WORK}/{{batch}}/electronic/shard-{{shard}}.csv",
     params:
         py=PY,
-        cfg=sections("structures", "execution"),
+        cfg=sections("structures", "electronic", "execution"),
     threads: 1
     resources:
         mem_mb=1000,
-        runtime=120,
+        runtime=240,
     log:
-        f"{LOGS}/{{batch}}/structures/shard-{{shard}}.log",
+        f"{LOGS}/{{batch}}/compute/shard-{{shard}}.log",
     conda:
         "../envs/dascreen.yaml"
     shell:
-        "OMP_NUM_THREADS={threads} {params.py} -m screen.stages --config {params.cfg:q} structures"
-        " --shard {input.shard:q} --sdf {output.sdf:q} --table {output.table:q} > {log:q} 2>&1"
-
-
-rule electronic:
-    input:
-        sdf=f"{WORK}/{{batch}}/structures/shard-{{shard}}.sdf",
-        table=f"{WORK}/{{batch}}/structures/shard-{{shard}}.csv",
-    output:
-        f"{WORK}/{{batch}}/electronic/shard-{{shard}}.csv",
-    params:
-        py=PY,
-        cfg=sections("electronic", "execution"),
-    threads: 1
-    resources:
-        mem_mb=1000,
-        runtime=120,
-    log:
-        f"{LOGS}/{{batch}}/electronic/shard-{{shard}}.log",
-    conda:
-        "../envs/dascreen.yaml"
-    shell:
-        "OMP_NUM_THREADS={threads} {params.py} -m screen.stages --config {params.cfg:q} electronic"
-        " --sdf {input.sdf:q} --table {input.table:q} --out {output:q} > {log:q} 2>&1"
+        "OMP_NUM_THREADS={threads} {params.py} -m screen.stages --config {params.cfg:q} compute"
+        " --shard {input.shard:q} --sdf {output.sdf:q} --table {output.table:q} --out {output.electronic:q}"
+        " > {log:q} 2>&1"
