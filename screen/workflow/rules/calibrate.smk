@@ -1,5 +1,5 @@
 # Calibration models for this protocol, fitted on the reference sets when no shipped model matches.
-# The reference molecules go through the very same prepare/structures/electronic rules (batch "reference").
+# The reference molecules go through the very same prepare and compute rules (batch "reference").
 
 
 rule reference_input:

@@ -1,6 +1,6 @@
 # A partner given as smiles:<SMILES> is computed exactly like the candidates: it is its own one-row
-# batch "partner-<structure key>" that runs through the same prepare, structures and electronic rules
-# (rules/compute.smk) and gets calibrated levels with the same models, cached like any other batch.
+# batch "partner-<structure key>" that runs through the same prepare and compute rules (structures and
+# electronic stages, rules/compute.smk) and gets calibrated levels with the same models, cached like any other batch.
 # The rank rule then reads only its levels file.
 from screen.partners import partner_key, partner_kind
 
