@@ -28,6 +28,15 @@ the chain limit, CV values brought to Fc at −4.8 eV):
     (benzene, thiophene) so deep that their transport gap falls below their optical gap,
     so it is not used.
 
+Each level model is fitted on the rows whose level was **measured**: a level that a reference
+row derived from its other level and the optical gap (``derived_level`` of ``levels_film.csv``,
+"LUMO = HOMO + Eg(opt)", "EA = IP − Eg(opt)", "HOMO = LUMO − Eg(opt)") is an optical level, not the
+oxidation/reduction level a CV measurement gives, which is what the model predicts and what the device
+model's E_CT = |HOMO_D| − |LUMO_A| uses; for polymers the two can differ by 0.3–0.6 eV (PBDB-T: CV
+reduction onset −2.92 eV, HOMO + Eg(opt) −3.53 eV). Such a row is left out of that level's fit only
+(:func:`screen.calibration.reference.measured_film`); it stays in the other level's fit and in the
+optical-gap model.
+
 The route with the lowest film-row LOO MAE wins (a route with more parameters must gain
 more than :data:`screen.calibration.linear.MIN_GAIN_EV` per parameter). LOO and
 leave-one-family-out errors over the film rows are recorded.
@@ -49,7 +58,7 @@ import pandas as pd
 
 from screen.calibration.linear import (DERIVED, MIN_GAIN_EV, CalibrationError, FilmShift, LinearLevelModel,
                                        feature_matrix, stats)
-from screen.calibration.reference import FC_REFERENCE_EV, family, joined, normalised_film
+from screen.calibration.reference import FC_REFERENCE_EV, family, joined, measured_film, normalised_film
 from screen.calibration.validation import breakdown, select
 
 __all__ = ["LEVELS", "film_dataset", "fit_film_level"]
@@ -66,8 +75,8 @@ LEVELS = {
 
 
 def film_dataset(film: pd.DataFrame, computed: pd.DataFrame, exclude=None) -> pd.DataFrame:
-    """Film rows (ferrocene-normalised) with their computed values and family."""
-    data = joined(normalised_film(film), computed)
+    """Film rows (ferrocene-normalised, derived levels blanked) with their computed values and family."""
+    data = joined(measured_film(normalised_film(film)), computed)
     if exclude is not None:
         data = data[[not exclude(n, s) for n, s in zip(data["name"], data["smiles"])]]
     data = data.copy()
@@ -129,6 +138,7 @@ def fit_film_level(level: str, film: pd.DataFrame, computed: pd.DataFrame, gas_m
     """Fit the film model of ``level`` (``homo`` or ``lumo``); return its model record.
 
     The target is the film IP (−HOMO) or EA (−LUMO); HOMO = −prediction, LUMO = −prediction.
+    Rows whose ``level`` was derived rather than measured (``derived_level``) are not targets.
     ``gas_ref`` is the gas-phase reference set of the level (``ip_gas.csv``/``ea_gas.csv``)
     for the joint continuum route; without it only the shift route is fitted.
     """

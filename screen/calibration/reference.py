@@ -11,6 +11,9 @@ Files of ``models/reference/`` used here (all energies in eV on the vacuum scale
     oligofluorenes, acenes; polymers as ``[*]`` repeat units; ``kind``, ``phase``);
 ``levels_film.csv``
     film / electrochemical HOMO, LUMO and optical gap (``fc_reference_ev``);
+    ``derived_level`` (optional column: ``homo``, ``lumo`` or empty) names a level
+    that was not measured but computed from the other one and the optical gap
+    ("LUMO = HOMO + Eg(opt)"); :func:`measured_film` blanks it for the level fits;
 ``dyes.csv``
     E0-0 of organic dyes in solution (``e00_ev``; the file belongs to the dye-cell
     mode, only its ``name, smiles, e00_ev, exclude_reason`` columns are used here and
@@ -20,6 +23,9 @@ A row with a non-empty ``exclude_reason`` stays in its file but is not fitted.
 
 Examples
 --------
+>>> film = pd.DataFrame({"homo_ev": [-5.3, -5.4], "lumo_ev": [-3.5, -3.6], "derived_level": ["lumo", ""]})
+>>> measured_film(film)["lumo_ev"].tolist(), measured_film(film)["homo_ev"].tolist()
+([nan, -3.6], [-5.3, -5.4])
 >>> family("PM6", "[*]c1cc2c(C)c3cc([*])sc3c(C)c2s1", "polymer", "film")
 'polymers: BDT copolymers'
 >>> family("ITIC", "C", "molecule", "film"), family("anthracene", "c1ccc2cc3ccccc3cc2c1", "molecule", "gap")
@@ -36,10 +42,11 @@ import numpy as np
 import pandas as pd
 from rdkit import Chem, RDLogger
 
+from screen.errors import InputError
 from screen.io import read_csv_checked
 
 __all__ = ["FILES", "FC_REFERENCE_EV", "read_reference", "reference_inputs", "reference_files", "reference_hash",
-           "canonical", "joined", "normalised_film", "family", "ACENES"]
+           "canonical", "joined", "normalised_film", "measured_film", "DERIVED_LEVELS", "family", "ACENES"]
 
 #: reference file of each set
 FILES = {"ip": "ip_gas.csv", "ea": "ea_gas.csv", "gap_opt": "gap_optical.csv", "film": "levels_film.csv",
@@ -53,6 +60,8 @@ _NEEDED = {"ip": ["name", "smiles", "value_ev", "source"], "ea": ["name", "smile
 _REQUIRED = ("ip", "ea", "gap_opt", "film")
 #: ferrocene/ferrocenium level assumed when normalising electrochemical data [eV]
 FC_REFERENCE_EV = -4.8
+#: values of the film set's ``derived_level`` column besides empty (both levels measured)
+DERIVED_LEVELS = ("homo", "lumo")
 #: the dye columns this calibration uses (and hashes)
 _DYE_COLUMNS = ["name", "smiles", "e00_ev", "exclude_reason"]
 
@@ -73,7 +82,8 @@ def read_reference(reference_dir: str | Path) -> dict[str, pd.DataFrame]:
     Raises
     ------
     InputError
-        A required file is missing, or a file lacks the needed columns.
+        A required file is missing, a file lacks the needed columns, or a film row's
+        ``derived_level`` is not ``homo``, ``lumo`` or empty.
     """
     reference_dir = Path(reference_dir)
     sets = {}
@@ -86,8 +96,23 @@ def read_reference(reference_dir: str | Path) -> dict[str, pd.DataFrame]:
         frame = frame[frame["smiles"].str.strip().ne("")].copy()
         if "exclude_reason" not in frame.columns:
             frame["exclude_reason"] = ""
+        if name == "film":
+            _check_derived(frame, path)
         sets[name] = frame
     return sets
+
+
+def _check_derived(film: pd.DataFrame, path: Path) -> None:
+    """Add an empty ``derived_level`` column when absent (every level measured); refuse other values."""
+    if "derived_level" not in film.columns:
+        film["derived_level"] = ""
+    film["derived_level"] = film["derived_level"].str.strip()
+    bad = film[~film["derived_level"].isin(("",) + DERIVED_LEVELS)]
+    if len(bad):
+        row = bad.iloc[0]
+        raise InputError(f"reference file {path}, row {row['name']!r}, column derived_level: {row['derived_level']!r} "
+                         f"is not one of {', '.join(DERIVED_LEVELS)} or empty (the level computed from the other one "
+                         "and the optical gap; empty when both were measured)")
 
 
 def canonical(smiles: str) -> str:
@@ -154,6 +179,22 @@ def normalised_film(film: pd.DataFrame) -> pd.DataFrame:
     for col in ("homo_ev", "lumo_ev"):
         film[col] = pd.to_numeric(film[col], errors="coerce") + shift
     film["gap_opt_ev"] = pd.to_numeric(film.get("gap_opt_ev"), errors="coerce")
+    return film
+
+
+def measured_film(film: pd.DataFrame) -> pd.DataFrame:
+    """Film rows with every derived level blanked (NaN): only measured levels are targets of a level model.
+
+    A level computed from the other one and the optical gap (``derived_level``: "LUMO = HOMO + Eg(opt)",
+    "HOMO = LUMO - Eg(opt)") is an optical level, not the oxidation/reduction (transport) level the film
+    models predict: the transport gap exceeds the optical gap by the exciton binding energy (J.-L. Brédas,
+    Mater. Horiz. 1 (2014) 17, :doi:`10.1039/c3mh00098b`); in this set PBDB-T's CV reduction onset lies
+    0.6 eV above its HOMO + Eg(opt). The row keeps its other level and its optical gap.
+    """
+    film = film.copy()
+    kind = film["derived_level"] if "derived_level" in film else pd.Series("", index=film.index)
+    for level in DERIVED_LEVELS:
+        film[f"{level}_ev"] = pd.to_numeric(film[f"{level}_ev"], errors="coerce").mask(kind.eq(level).to_numpy())
     return film
 
 
