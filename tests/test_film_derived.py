@@ -13,9 +13,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from screen.calibrate import read_reference
+from screen.calibrate import fit_all, read_reference
 from screen.calibration.film import fit_film_level
 from screen.calibration.linear import LinearLevelModel
+from screen.calibration.reference import canonical
+from screen.config import Config
 from screen.errors import InputError
 
 # synthetic set: raw values are invented numbers; the film levels are exact linear functions of them
@@ -74,6 +76,28 @@ def test_without_the_column_every_level_is_a_target():
         homo = fit_film_level("homo", film, computed, gas["ip"])
         assert lumo["n"] == homo["n"] == len(SMILES)
         assert lumo["loo_mae_ev"] > 0.1 and homo["loo_mae_ev"] > 0.08
+
+
+@pytest.fixture(scope="module")
+def shipped_fit(repo_dir):
+    # stored raw values of the default protocol (read directly: this test does not need the shipped models to match)
+    folder = repo_dir / "models" / Config.of({}).protocol_id
+    raw = pd.read_csv(folder / "reference_raw.csv", keep_default_na=False, na_values=[""])
+    sets = read_reference(repo_dir / "models" / "reference")
+    return sets, fit_all(sets, raw)
+
+
+def test_shipped_film_set_fits_each_level_on_measured_rows_only(shipped_fit):
+    sets, models = shipped_fit
+    film = sets["film"]
+    fitted = {name: {canonical(r["smiles"]) for r in models[name]["residuals"]
+                     if r.get("phase_film", 1) == 1} for name in ("homo_film", "lumo_film", "gap_opt_film")}
+    for level, other in (("lumo", "homo"), ("homo", "lumo")):
+        rows = film[film["derived_level"].eq(level) & film["exclude_reason"].str.strip().eq("")]
+        assert len(rows) >= 2, level  # the set marks derived LUMOs (PBDB-T, ...) and HOMOs (N2200, PTCDI-C8)
+        keys = {canonical(s) for s in rows["smiles"]}
+        assert not keys & fitted[f"{level}_film"], level
+        assert keys <= fitted[f"{other}_film"] and keys <= fitted["gap_opt_film"], level
 
 
 def test_reference_reader_fills_and_checks_the_derived_level_column(repo_dir, tmp_path):

@@ -29,7 +29,7 @@ README = REF / "README.md"
 
 GAS_COLUMNS = ["name", "smiles", "value_ev", "kind", "phase", "method", "source", "doi", "from_memory", "notes",
                "exclude_reason"]
-FILM_COLUMNS = ["name", "smiles", "representation", "homo_ev", "lumo_ev", "gap_opt_ev", "method",
+FILM_COLUMNS = ["name", "smiles", "representation", "homo_ev", "lumo_ev", "gap_opt_ev", "method", "derived_level",
                 "fc_reference_ev", "source", "doi", "from_memory", "notes", "exclude_reason"]
 PARTNER_COLUMNS = ["id", "name", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "scale", "homo_sigma_ev",
                    "lumo_sigma_ev", "gap_opt_sigma_ev", "fc_reference_ev", "smiles", "source", "doi",
@@ -146,6 +146,23 @@ def check_levels(homo: float, lumo: float, where: str) -> None:
     assert lumo > homo, f"{where}: LUMO {lumo} not above HOMO {homo}"
 
 
+# how the method text names a level computed from the other one and the optical gap
+DERIVED_TEXT = {"lumo": re.compile(r"LUMO = HOMO \+ Eg|EA = IP - Eg"), "homo": re.compile(r"HOMO = LUMO - Eg")}
+
+
+def check_derived_level(row: dict[str, str], where: str) -> None:
+    """``derived_level`` agrees with the method text and the numbers (derived = other level ± optical gap)."""
+    level = row["derived_level"]
+    assert level in {"", "homo", "lumo"}, f"{where}: derived_level {level!r}"
+    for name, text in DERIVED_TEXT.items():
+        assert bool(text.search(row["method"])) == (level == name), \
+            f"{where}: derived_level {level!r} but method {row['method']!r}"
+    if level:
+        homo, lumo, gap = (float(row[c]) for c in ("homo_ev", "lumo_ev", "gap_opt_ev"))
+        # one rounding step of the source (FBR: IP 5.70, Eg 2.14 -> EA 3.57 eV)
+        assert abs(lumo - homo - gap) <= 0.011, f"{where}: derived {level} is not the other level ± the optical gap"
+
+
 def test_levels_film() -> None:
     columns, rows = read_rows(FILM)
     assert columns == FILM_COLUMNS
@@ -162,6 +179,7 @@ def test_levels_film() -> None:
         gap = as_float(row["gap_opt_ev"], where)
         assert 1.0 <= gap <= 6.0, f"{where}: optical gap {gap}"
         assert row["method"].strip(), f"{where}: empty method"
+        check_derived_level(row, where)
         if row["fc_reference_ev"].strip():
             fc = as_float(row["fc_reference_ev"], where)
             assert -5.2 <= fc <= -4.6, f"{where}: ferrocene level {fc}"
