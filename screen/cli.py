@@ -152,11 +152,12 @@ def _print_ranking_of_run(cfg: Config, out: Path) -> None:
 
 def _compute_partner(cfg: Config, out: Path, spec: str, verbose: bool = False) -> Path | None:
     """Run the workflow for a ``smiles:`` partner's batch only (cached); return its levels file."""
-    from screen.calibrate import find_models
     from screen.partners import partner_kind, partner_levels_path
 
     if partner_kind(spec) != "smiles":
         return None
+    from screen.calibrate import find_models  # only here: the calibration modules are not needed otherwise
+
     cfg = cfg.with_overrides({"partner": spec})
     target = partner_levels_path(spec, out)
     pid = cfg.protocol_id
