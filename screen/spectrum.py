@@ -33,8 +33,11 @@ References
 
 from __future__ import annotations
 
+import hashlib
+import os
 from dataclasses import dataclass
 from functools import lru_cache
+from pathlib import Path
 
 import numpy as np
 from scipy import constants as _c
@@ -45,6 +48,7 @@ __all__ = [
     "SPECTRUM_COLUMN",
     "ReferenceSpectrum",
     "reference_spectrum",
+    "spectrum_cache_path",
     "incident_power_w_m2",
     "gap_to_wavelength_nm",
     "photon_flux_above_gap_m2_s",
@@ -60,6 +64,8 @@ __all__ = [
 SPECTRUM_STANDARD = "ASTM G173-03"
 #: Column of the pvlib table: hemispherical irradiance on a 37° tilted surface.
 SPECTRUM_COLUMN = "global"
+#: Layout of the cached table (:func:`spectrum_cache_path`); a new layout gets a new file name.
+_CACHE_FORMAT = 1
 
 _HC_J_M = _c.h * _c.c  # [J m]
 #: hc/e in eV nm: λ [nm] = _HC_EV_NM / E [eV].
@@ -118,9 +124,88 @@ class ReferenceSpectrum:
     name: str = "ASTM G173-03 AM1.5G (global, 37° tilt)"
 
 
+def spectrum_cache_path(pvlib_version: str | None = None) -> Path | None:
+    """File of the cached AM1.5G table for a pvlib version, or None when there is no cache.
+
+    The folder is ``$DASCREEN_CACHE/spectrum`` (an empty value turns the cache
+    off), by default ``~/.cache/dascreen/spectrum`` (beside the results store).
+    The file name is a hash of the standard, the column, the pvlib version and
+    the file layout, so another pvlib gets its own file.
+
+    Parameters
+    ----------
+    pvlib_version : str, optional
+        Default: the installed version (read from the package metadata; pvlib is
+        not imported).  ``"absent"`` (pvlib not installed) gives None.
+
+    Examples
+    --------
+    >>> path = spectrum_cache_path("0.13.1")
+    >>> path is None or (path.parent.name, path.suffix) == ("spectrum", ".npy")
+    True
+    >>> path is None or path != spectrum_cache_path("0.14.0")
+    True
+    """
+    if pvlib_version is None:
+        from screen.provenance import package_version
+
+        pvlib_version = package_version("pvlib")
+    root = os.environ.get("DASCREEN_CACHE", "~/.cache/dascreen")
+    if not root or pvlib_version == "absent":
+        return None
+    key = f"{SPECTRUM_STANDARD}|{SPECTRUM_COLUMN}|pvlib {pvlib_version}|format {_CACHE_FORMAT}"
+    digest = hashlib.sha256(key.encode("utf-8")).hexdigest()[:16]
+    return Path(root).expanduser() / "spectrum" / f"am15g-{digest}.npy"
+
+
+def _table_from_pvlib() -> tuple[np.ndarray, np.ndarray]:
+    """Wavelength [nm] and global-tilt irradiance [W m⁻² nm⁻¹] of ASTM G173-03, read by pvlib."""
+    from pvlib.spectrum import get_reference_spectra
+
+    table = get_reference_spectra(standard=SPECTRUM_STANDARD)[SPECTRUM_COLUMN]
+    return np.asarray(table.index, dtype=float), np.asarray(table.to_numpy(), dtype=float)
+
+
+def _cached_table(path: Path | None) -> tuple[np.ndarray, np.ndarray] | None:
+    """The table stored in ``path``, a (2, n) float64 array (wavelength, irradiance); None if unusable."""
+    if path is None:
+        return None
+    try:
+        with open(path, "rb") as fh:
+            both = np.load(fh, allow_pickle=False)
+    except (OSError, ValueError, EOFError):
+        return None
+    if both.dtype != np.float64 or both.ndim != 2 or both.shape[0] != 2:
+        return None
+    return both[0], both[1]
+
+
+def _store_table(path: Path | None, lam: np.ndarray, irr: np.ndarray) -> None:
+    """Write the table to ``path`` (atomically); a cache that cannot be written is left out."""
+    if path is None:
+        return
+    from screen.io import atomic_path
+
+    try:
+        with atomic_path(path) as tmp, open(tmp, "wb") as fh:
+            np.save(fh, np.stack([lam, irr]), allow_pickle=False)
+    except OSError:
+        pass
+
+
+def _spectrum_table() -> tuple[np.ndarray, np.ndarray]:
+    """Wavelength grid [nm] and irradiance [W m⁻² nm⁻¹]: from the cache file, else from pvlib (then cached)."""
+    path = spectrum_cache_path()
+    table = _cached_table(path)
+    if table is None:
+        table = _table_from_pvlib()
+        _store_table(path, *table)
+    return table
+
+
 @lru_cache(maxsize=1)
 def reference_spectrum() -> ReferenceSpectrum:
-    """Load the ASTM G173-03 AM1.5G spectrum from pvlib and derive flux tables.
+    """Load the ASTM G173-03 AM1.5G spectrum (pvlib's table) and derive flux tables.
 
     The result is cached; its arrays are read-only.
 
@@ -136,6 +221,13 @@ def reference_spectrum() -> ReferenceSpectrum:
     The photon flux per unit wavelength is :math:`E_\\lambda \\lambda / (h c)`
     (λ converted to metres).  The cumulative table is the trapezoid rule on the
     grid of the standard.
+
+    The table (wavelength grid and irradiance) is read from pvlib once and kept
+    in a small file of the user's cache (:func:`spectrum_cache_path`, one file
+    per pvlib version); later processes read that file and do not import pvlib.
+    Only pvlib's table is stored: the flux tables are derived here every time
+    (microseconds), so they cannot disagree with this code.  A missing or
+    unreadable file falls back to pvlib.
 
     References
     ----------
@@ -153,11 +245,7 @@ def reference_spectrum() -> ReferenceSpectrum:
     >>> round(spec.incident_power_w_m2, 1)
     1000.4
     """
-    from pvlib.spectrum import get_reference_spectra
-
-    table = get_reference_spectra(standard=SPECTRUM_STANDARD)[SPECTRUM_COLUMN]
-    lam = np.asarray(table.index, dtype=float)
-    irr = np.asarray(table.to_numpy(), dtype=float)
+    lam, irr = _spectrum_table()
     if lam.ndim != 1 or lam.size < 2 or np.any(np.diff(lam) <= 0):
         raise RuntimeError(
             f"pvlib reference spectrum {SPECTRUM_STANDARD!r} has no increasing wavelength grid"
