@@ -482,6 +482,7 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
     flags = join_flags(masks)
     settings = {"device": {k: model.value(k) for k in ("min_delta_lumo_ev", "min_delta_homo_ev")},
                 "rank": {"gap_min_ev": options.gap_min_ev, "gap_max_ev": options.gap_max_ev}}
+    reason = {f: reason_of(f, settings) for f in set(flags)}  # thousands of rows share a few flag sets
     out = pd.DataFrame({
         "rank": np.zeros(n, dtype=int),
         "id": cand.ids,
@@ -499,7 +500,7 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
         "name": _text(lv, "name"),
         **{c: cand.sigma[c] for c in SIGMA_COLUMNS},
         "viable": viable,
-        "reason": [reason_of(f, settings) for f in flags],
+        "reason": [reason[f] for f in flags],
         "model": np.where(pair_ok, model.model, ""),
         "acceptor_class": np.where(pair_ok, pd.Series(dev["acceptor_class"]).astype(str), ""),
         "absorber_gap_ev": np.where(pair_ok, np.asarray(dev["absorber_gap_ev"], dtype=float), np.nan),
