@@ -10,6 +10,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 from pathlib import Path
 
 import pandas as pd
@@ -172,15 +173,35 @@ def load_library(path: str | Path | None = None) -> pd.DataFrame:
         Missing file or column, duplicate id, role or scale outside the
         allowed values, or a level that is not a number.
 
+    Notes
+    -----
+    A process reads and checks each version of a file once (a ranking looks the
+    library up about seven times); every call returns its own copy.
+
     Examples
     --------
     >>> lib = load_library()
     >>> "scharber-reference-acceptor" in set(lib["id"])
     True
     """
+    path = Path(path) if path is not None else LIBRARY_PATH
+    try:
+        stat = path.stat()
+    except OSError:
+        return _read_library(path)  # says that the file is missing
+    return _read_library_version(path, path.resolve(), stat.st_mtime_ns, stat.st_size).copy()
+
+
+@lru_cache(maxsize=8)
+def _read_library_version(path: Path, resolved: Path, mtime_ns: int, size: int) -> pd.DataFrame:
+    """:func:`_read_library` once per file version (path as given, file, modification time and size)."""
+    return _read_library(path)
+
+
+def _read_library(path: Path) -> pd.DataFrame:
+    """Read and check a library file (see :func:`load_library`)."""
     from screen.io import read_csv_checked
 
-    path = Path(path) if path is not None else LIBRARY_PATH
     frame = read_csv_checked(path, LIBRARY_COLUMNS, what="partner library", error=PartnerError, dtype=str,
                              keep_default_na=False)
     frame["id"] = frame["id"].str.strip()

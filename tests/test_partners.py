@@ -116,6 +116,22 @@ def test_library_from_a_tmp_file(tmp_path):
         load_library(path)
 
 
+def test_library_is_read_once_per_file_version_and_each_call_gets_a_copy(tmp_path, monkeypatch):
+    import screen.partner_library as lib
+
+    path = tmp_path / "lib.csv"
+    path.write_bytes(LIBRARY_PATH.read_bytes())
+    shipped = load_library(LIBRARY_PATH)
+    reads = []
+    read = lib._read_library
+    monkeypatch.setattr(lib, "_read_library", lambda p: reads.append(p) or read(p))
+    first = load_library(path)
+    first.loc[0, "id"] = "changed by the caller"
+    assert load_library(path).loc[0, "id"] != "changed by the caller" and len(reads) == 1
+    path.write_text(path.read_text(encoding="utf-8") + "\n", encoding="utf-8")  # a new version of the file
+    assert load_library(path).equals(shipped) and len(reads) == 2
+
+
 def test_real_library_file_is_the_default():
     assert LIBRARY_PATH.name == "partners.csv" and LIBRARY_PATH.parent.name == "data"
 
