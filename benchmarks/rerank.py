@@ -29,6 +29,19 @@ The first ``run_rank`` of the process is printed apart (``first_rerank_s``): it
 also pays the one-off imports (Matplotlib, RDKit drawing) that a fresh
 ``dascreen rank`` process pays once.
 
+The whole command is timed too, as a user runs it: ``dascreen rank --levels
+LEVELS --out DIR --partner P`` in a fresh Python process each time (what the
+console script runs; start-up, imports and exit included), ``--command-repeats``
+times after one warm-up run that is not counted (it also fills the user's cache
+of the AM1.5G table, :func:`screen.spectrum.spectrum_cache_path`).  Printed are
+the median wall and CPU (user + system, from the operating system's accounting
+of the finished child) with min and max, and ``command_s / rerank_s``.  With
+``--baseline DIR`` (another checkout of dascreen, e.g. ``git worktree add
+/tmp/before <commit>``) the same command of that checkout runs in turn with this
+one (this, baseline, this, baseline, ...) and the ratios this / baseline are taken
+pair by pair (median printed), which keeps them meaningful on a machine whose
+load drifts.
+
 The pipeline estimate comes from:
 
 * by default, ``--n-demo`` molecules of ``candidates/demo.csv`` are run through
@@ -47,11 +60,13 @@ not in the tests.
 
 The last line holds ``key=value`` pairs, e.g.
 ``rerank_s=1.9 rank_only_s=0.8 report_s=0.7 export_s=0.2 ... full_estimate_s=12000 ratio=0.00016 ...
-sampler_s=0.4 load_before=0.5 load_after=0.9``.
+sampler_s=0.4 command_s=2.6 command_cpu_s=2.4 command_over_rerank=1.4 [baseline_command_s=... command_ratio=...
+command_cpu_ratio=...] load_before=0.5 load_after=0.9``.
 
 Usage::
 
     .venv/bin/python benchmarks/rerank.py [--n 10000] [--levels results/demo/levels.csv] [--no-structures]
+        [--command-repeats 5] [--baseline /tmp/before]
 """
 
 from __future__ import annotations
@@ -59,7 +74,9 @@ from __future__ import annotations
 import argparse
 import hashlib
 import os
+import resource
 import shutil
+import subprocess
 import sys
 import tempfile
 import time
@@ -204,6 +221,75 @@ def time_device_kernel(n: int, seed: int, repeats: int, n_samples: int = 2000) -
     return best
 
 
+def _command_run(checkout: Path, levels_csv: Path, out: Path, partner: str) -> tuple[float, float]:
+    """Wall and CPU seconds (user + system) of one ``dascreen rank`` in a fresh process of ``checkout``."""
+    code = "import sys; from screen.cli import main; sys.exit(main())"  # what the dascreen console script runs
+    argv = [sys.executable, "-c", code, "rank", "--levels", str(levels_csv), "--out", str(out), "--partner", partner]
+    env = dict(os.environ, PYTHONPATH=str(checkout))  # this checkout's package before any installed one
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
+    start = time.perf_counter()
+    run = subprocess.run(argv, env=env, cwd=out.parent, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+    wall = time.perf_counter() - start
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    if run.returncode != 0:
+        raise SystemExit(f"dascreen rank of {checkout} failed (exit {run.returncode}):\n{run.stderr[-2000:]}")
+    return wall, (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
+
+
+def time_command(levels_csv: Path, work: Path, partner: str, repeats: int,
+                 baseline: Path | None = None) -> dict[str, np.ndarray]:
+    """Wall and CPU seconds of the whole ``dascreen rank`` command, fresh process per run (start-up included).
+
+    Parameters
+    ----------
+    levels_csv : pathlib.Path
+        The levels file to rank (``--levels``).
+    work : pathlib.Path
+        Folder for the output folders (one per checkout).
+    partner : str
+        ``--partner``.
+    repeats : int
+        Counted runs of each command, after one warm-up run each.
+    baseline : pathlib.Path, optional
+        Another checkout of dascreen: its command runs in turn with this one's.
+
+    Returns
+    -------
+    dict of numpy.ndarray
+        ``wall``, ``cpu`` (this checkout) and, with a baseline, ``baseline_wall``, ``baseline_cpu``.
+    """
+    sides = {"": REPO} | ({"baseline_": Path(baseline).resolve()} if baseline else {})
+    out = {prefix: work / f"command-{prefix or 'this'}" for prefix in sides}
+    for prefix, checkout in sides.items():  # warm-up: file caches, the AM1.5G table cache, Matplotlib's font cache
+        _command_run(checkout, levels_csv, out[prefix], partner)
+    times: dict[str, list] = {f"{p}{k}": [] for p in sides for k in ("wall", "cpu")}
+    for _ in range(repeats):
+        for prefix, checkout in sides.items():
+            wall, cpu = _command_run(checkout, levels_csv, out[prefix], partner)
+            times[f"{prefix}wall"].append(wall)
+            times[f"{prefix}cpu"].append(cpu)
+    return {k: np.asarray(v) for k, v in times.items()}
+
+
+def _spread(values: np.ndarray) -> str:
+    """``median s (min–max)``."""
+    return f"{np.median(values):.2f} s ({values.min():.2f}\u2013{values.max():.2f})"
+
+
+def _command_pairs(command: dict, rerank_s: float) -> str:
+    """``key=value`` pairs of the command timings for the last line ('' when the command was not timed)."""
+    if not command:
+        return ""
+    text = (f"command_s={np.median(command['wall']):.3f} command_cpu_s={np.median(command['cpu']):.3f} "
+            f"command_over_rerank={np.median(command['wall']) / rerank_s:.2f} ")
+    if "baseline_wall" in command:
+        text += (f"baseline_command_s={np.median(command['baseline_wall']):.3f} "
+                 f"baseline_command_cpu_s={np.median(command['baseline_cpu']):.3f} "
+                 f"command_ratio={np.median(command['wall'] / command['baseline_wall']):.3f} "
+                 f"command_cpu_ratio={np.median(command['cpu'] / command['baseline_cpu']):.3f} ")
+    return text
+
+
 def per_molecule_from_levels(path: Path) -> tuple[float, int]:
     """Mean structures + electronic wall time per ok molecule of a levels.csv [s]."""
     frame = pd.read_csv(path)
@@ -253,6 +339,10 @@ def main(argv=None) -> int:
     parser.add_argument("--no-report", action="store_true", help="time run_rank without the HTML report")
     parser.add_argument("--no-structures", action="store_true",
                         help="no stored structures beside the levels file (the shortlist is embedded by run_rank)")
+    parser.add_argument("--command-repeats", type=int, default=5,
+                        help="counted runs of the whole `dascreen rank` command, fresh process each (0: none)")
+    parser.add_argument("--baseline", default=None, metavar="DIR",
+                        help="another dascreen checkout whose command runs in turn with this one (ratios this/baseline)")
     args = parser.parse_args(argv)
 
     load_before = os.getloadavg()[0]
@@ -294,6 +384,17 @@ def main(argv=None) -> int:
               f"(all: {', '.join(f'{x:.2f}' for x in full)}; first run of the process {first:.2f} s); "
               f"rank_candidates alone {min(rank_only):.2f} s; outputs {outputs}")
         print("  phases, best of each: " + ", ".join(f"{k} {v:.2f} s" for k, v in phases.items()))
+        command = {}
+        if args.command_repeats > 0 and not args.no_report:  # the command always writes the report
+            command = time_command(levels_csv, work, args.partner, args.command_repeats, args.baseline)
+            print(f"whole `dascreen rank` command, fresh process, median of {args.command_repeats} (min\u2013max): "
+                  f"wall {_spread(command['wall'])}, CPU {_spread(command['cpu'])}; "
+                  f"command / best run_rank = {np.median(command['wall']) / min(full):.2f}")
+            if args.baseline:
+                print(f"  baseline {args.baseline}: wall {_spread(command['baseline_wall'])}, "
+                      f"CPU {_spread(command['baseline_cpu'])}; this / baseline, pair by pair (median): "
+                      f"wall {np.median(command['wall'] / command['baseline_wall']):.2f}, "
+                      f"CPU {np.median(command['cpu'] / command['baseline_cpu']):.2f}")
 
         if args.levels:
             per_mol, n_mol = per_molecule_from_levels(Path(args.levels))
@@ -320,7 +421,8 @@ def main(argv=None) -> int:
               f"first_rerank_s={first:.3f} stored_structures={stored} full_estimate_s={estimate:.1f} "
               f"ratio={ratio:.3e} per_molecule_s={per_mol:.3f} n={args.n} n_timed_molecules={n_mol} "
               f"source={source} report={not args.no_report} sampler_s={sampler:.3f} "
-              f"load_before={load_before:.2f} load_after={os.getloadavg()[0]:.2f}")
+              + _command_pairs(command, min(full))
+              + f"load_before={load_before:.2f} load_after={os.getloadavg()[0]:.2f}")
     finally:
         shutil.rmtree(work, ignore_errors=True)
     return 0
