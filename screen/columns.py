@@ -5,11 +5,22 @@ See ``docs/contracts.md`` for what each column means, its unit and its scale.
 
 from __future__ import annotations
 
-__all__ = ["RAW_COLUMNS", "CALIBRATED_COLUMNS", "LEVELS_CONTRACT_COLUMNS", "LEVELS_MIN_COLUMNS",
+__all__ = ["RAW_COLUMNS", "EXTRA_RAW_COLUMNS", "ELECTRONIC_COLUMNS", "CALIBRATED_COLUMNS", "LEVELS_CONTRACT_COLUMNS", "LEVELS_MIN_COLUMNS",
            "SIGMA_COLUMNS", "RANKING_COLUMNS", "RANKING_EXTRA_COLUMNS"]
 
 #: raw engine values of ``levels.csv`` (ΔSCF IP/EA and orbital energies of the neutral) [eV]
 RAW_COLUMNS = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev"]
+#: raw values besides :data:`RAW_COLUMNS`: HOMO→LUMO exchange K and Coulomb J [eV] and
+#: the HOMO/LUMO overlap [0-1] of the neutral (:func:`screen.excitation.frontier_integrals`), and the
+#: ΔSCF IP and EA in a dielectric continuum of ε = ``electronic.film_epsilon`` [eV]
+EXTRA_RAW_COLUMNS = ["xtb_k_hl_ev", "xtb_j_hl_ev", "xtb_overlap_hl", "xtb_ip_film_ev", "xtb_ea_film_ev"]
+
+#: columns of the per-shard electronic table (``work/<batch>/electronic/shard-NNN.csv``)
+ELECTRONIC_COLUMNS = (["key", "status", "error"] + RAW_COLUMNS + EXTRA_RAW_COLUMNS
+                      + ["xtb_energy_eh", "xtb_cation_eh", "xtb_anion_eh", "xtb_energy_film_eh",
+                         "xtb_cation_film_eh", "xtb_anion_film_eh", "scf_rungs", "n_atoms", "sp_wall_s",
+                         "electronic_note", "smiles_computed", "truncated_chains", "truncated_groups",
+                         "n_conformers", "forcefield", "geometry", "structure_wall_s"])
 #: calibrated values of ``levels.csv`` [eV], with their σ and the scale of homo/lumo/gap_opt
 CALIBRATED_COLUMNS = ["ip_ev", "ea_ev", "gap_fund_ev", "homo_ev", "lumo_ev", "gap_opt_ev",
                       "ip_sigma_ev", "ea_sigma_ev", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev", "scale"]

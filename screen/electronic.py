@@ -37,7 +37,7 @@ from rdkit import Chem
 
 from screen import sanity
 from screen.batch import molecule_caller, run_journalled
-from screen.columns import RAW_COLUMNS
+from screen.columns import ELECTRONIC_COLUMNS, EXTRA_RAW_COLUMNS, RAW_COLUMNS
 from screen.constants import BOHR_ANGSTROM, HARTREE_EV
 from screen.engines import Engine, EngineError
 from screen.excitation import frontier_integrals
@@ -49,18 +49,6 @@ from screen.structures import _plain, read_structures
 __all__ = ["ElectronicOptions", "vertical_levels", "run_electronic", "electronic_engine", "electronic_record",
            "write_electronic", "molecule_numbers_positions", "ELECTRONIC_COLUMNS", "RAW_COLUMNS",
            "EXTRA_RAW_COLUMNS", "CARRIED_COLUMNS"]
-
-#: raw values besides :data:`screen.columns.RAW_COLUMNS`: HOMO→LUMO exchange K and Coulomb J [eV] and
-#: the HOMO/LUMO overlap [0-1] of the neutral (:func:`screen.excitation.frontier_integrals`), and the
-#: ΔSCF IP and EA in a dielectric continuum of ε = ``electronic.film_epsilon`` [eV]
-EXTRA_RAW_COLUMNS = ["xtb_k_hl_ev", "xtb_j_hl_ev", "xtb_overlap_hl", "xtb_ip_film_ev", "xtb_ea_film_ev"]
-
-#: columns of the per-shard electronic table
-ELECTRONIC_COLUMNS = (["key", "status", "error"] + RAW_COLUMNS + EXTRA_RAW_COLUMNS
-                      + ["xtb_energy_eh", "xtb_cation_eh", "xtb_anion_eh", "xtb_energy_film_eh",
-                         "xtb_cation_film_eh", "xtb_anion_film_eh", "scf_rungs", "n_atoms", "sp_wall_s",
-                         "electronic_note", "smiles_computed", "truncated_chains", "truncated_groups",
-                         "n_conformers", "forcefield", "geometry", "structure_wall_s"])
 
 #: ions start their SCF from the converged neutral (same state in the film from the gas-phase one);
 #: benchmarks/protocol_cost.py checks that the energies agree within 1e-6 Eh and measures the saving

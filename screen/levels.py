@@ -52,9 +52,8 @@ from collections.abc import Iterable
 import numpy as np
 import pandas as pd
 
-from screen.columns import CALIBRATED_COLUMNS, LEVELS_CONTRACT_COLUMNS, LEVELS_MIN_COLUMNS
-from screen.electronic import ELECTRONIC_COLUMNS, RAW_COLUMNS
-from screen.extrapolate import extrapolate
+from screen.columns import (CALIBRATED_COLUMNS, ELECTRONIC_COLUMNS, LEVELS_CONTRACT_COLUMNS, LEVELS_MIN_COLUMNS,
+                            RAW_COLUMNS)
 from screen.io import read_csv_checked
 
 #: leading columns of levels.csv, in order (:data:`screen.columns.LEVELS_CONTRACT_COLUMNS`)
@@ -102,6 +101,8 @@ def _one_polymer(pkey: str, group: pd.DataFrame, elec: pd.DataFrame, quantities:
         return {"status": "failed", "error": "every oligomer failed (" + "; ".join(failed) + ")"}, side
     n = group["n"].to_numpy()[ok]
     row = {"status": "ok", "error": "", "chain_n_max": int(n.max()), "_failed": failed}
+    from screen.extrapolate import extrapolate  # scipy: loaded only where chains are fitted, not to read levels
+
     methods, poor = [], []
     for q in quantities:
         fit = extrapolate(n, pd.to_numeric(found[q], errors="coerce").to_numpy(float)[ok],
