@@ -56,9 +56,10 @@ def options_from_mapping(cls, mapping, section: str):
     return cls(**mapping)
 
 
-#: opt-in option fields per stage and the values at which they leave the route exactly as before they
-#: existed; at these values they are left out of protocol ids (results store, fingerprints), so adding
-#: them did not make earlier results look foreign
+#: option fields added after the results store existed, per stage, and the values at which they leave the
+#: route exactly as before they existed; at these values they are left out of the store's stage protocol
+#: ids, so adding them did not make earlier results look foreign (their defaults have since changed: see
+#: the schema)
 OPT_IN_DEFAULTS = {"structures": {"size_caps_min_atoms": 0, "rank_warm_start": False, "rank_scf_accuracy": None},
                    "electronic": {}}
 
@@ -107,21 +108,22 @@ class StructureOptions:
         one; one means no ranking single point) (:func:`screen.structures.ranked_count`).
     size_caps_min_atoms : int
         The two size caps act only on molecules of at least this many atoms (hydrogens
-        included); smaller molecules embed and rank as many conformers as without caps. 0 (the
-        default, and the shipped protocol) applies them to every molecule. Not in the schema's
-        defaults, so the shipped protocol id does not depend on it.
+        included); smaller molecules embed and rank as many conformers as without caps. Default
+        150 (polymer oligomers); 0 applies them to every molecule (the route before the default
+        changed).
     rank_warm_start : bool
         Start each conformer's ranking SCF from the previous conformer's converged result (same
         atoms, another geometry); the converged energies do not depend on it (≤ 1e-6 Eh).
-        False (default, shipped protocol): every ranking SCF from scratch.
+        Default true; false: every ranking SCF from scratch.
     rank_scf_accuracy : float or None
         Rank with a looser SCF (this tblite accuracy factor, at most 30) first; every conformer
         within :data:`screen.structures.RECHECK_WINDOW_EH` of the lowest loose energy is then
         converged at the engine's own accuracy from its loose result, and the lowest of those wins,
-        so the choice is the one of a tight ranking. None (default, shipped protocol): tight only.
+        so the choice is the one of a tight ranking. Default 10; None: tight only.
 
-    The last three are opt-in (measured by ``benchmarks/pruning_levels.py``, route ``exact``);
-    at their defaults the route is exactly today's.
+    The last three save xTB time without changing the chosen conformer (``benchmarks/pruning_levels.py``:
+    the no-pruning choice on all 58 flexible reference molecules measured); 0, False and None give the
+    route shipped before they became the defaults.
 
     Examples
     --------
@@ -146,10 +148,9 @@ class StructureOptions:
     ff_window_kcal_mol: float = _S["ff_window_kcal_mol"]
     conformer_atom_budget: int = _S["conformer_atom_budget"]
     rank_atom_budget: int = _S["rank_atom_budget"]
-    # opt-in, deliberately without a schema default (absent = today's route, same protocol id)
-    size_caps_min_atoms: int = OPT_IN_DEFAULTS["structures"]["size_caps_min_atoms"]
-    rank_warm_start: bool = OPT_IN_DEFAULTS["structures"]["rank_warm_start"]
-    rank_scf_accuracy: float | None = OPT_IN_DEFAULTS["structures"]["rank_scf_accuracy"]
+    size_caps_min_atoms: int = _S["size_caps_min_atoms"]
+    rank_warm_start: bool = _S["rank_warm_start"]
+    rank_scf_accuracy: float | None = _S["rank_scf_accuracy"]
 
     def __post_init__(self):
         if self.geometry not in ("ff", "xtb"):
@@ -179,7 +180,8 @@ class ElectronicOptions:
     solvent : str or None
         ALPB solvent for all three states (``None``: isolated molecule).
     accuracy : float
-        SCF accuracy factor.
+        SCF accuracy factor (default 10: energies converged to ≈ 1e-5 Eh, ΔSCF levels within
+        0.001 eV of accuracy 1, about a fifth less SCF work).
     max_iter : int
         SCF iteration limit on the first rung of the fallback ladder.
     electronic_temperature_k : float

@@ -17,11 +17,11 @@ Route (every step seeded, so the same input gives the same geometry):
    keeping the lowest by xTB energy: conformers more than ``ff_window_kcal_mol``
    above the lowest force-field energy are dropped before any xTB call, and at
    most :func:`ranked_count` are ranked (fewer for big molecules; one, and no
-   ranking single point, from ``rank_atom_budget`` atoms on); opt-in, the size
-   caps act only from ``size_caps_min_atoms`` atoms, and the ranking runs at a
-   looser SCF accuracy with the near-lowest conformers converged again
-   (``rank_scf_accuracy``), each SCF started from the previous conformer's
-   (``rank_warm_start``): same choice, less xTB time;
+   ranking single point, from ``rank_atom_budget`` atoms on); the size caps act
+   only from ``size_caps_min_atoms`` atoms (150 by default: polymer oligomers),
+   and the ranking runs at a looser SCF accuracy with the near-lowest conformers
+   converged again (``rank_scf_accuracy``), each SCF started from the previous
+   conformer's (``rank_warm_start``): same choice, less xTB time;
 5. optional (``geometry="xtb"``) GFN2-xTB optimisation of that conformer with
    ASE's L-BFGS optimiser and the engine's ASE calculator.
 
@@ -107,10 +107,10 @@ def conformer_count(mol: Chem.Mol, options: StructureOptions = StructureOptions(
     >>> conformer_count(Chem.MolFromSmiles("c1ccc(-c2ccccc2)cc1"))
     6
     >>> conformer_count(Chem.MolFromSmiles("c1ccc(-c2ccccc2)cc1"), StructureOptions(conformer_atom_budget=44))
-    2
-    >>> conformer_count(Chem.MolFromSmiles("c1ccc(-c2ccccc2)cc1"),
-    ...                 StructureOptions(conformer_atom_budget=44, size_caps_min_atoms=23))  # cap from 23 atoms
     6
+    >>> conformer_count(Chem.MolFromSmiles("c1ccc(-c2ccccc2)cc1"),
+    ...                 StructureOptions(conformer_atom_budget=44, size_caps_min_atoms=0))  # cap on every molecule
+    2
     """
     n_rot = rdMolDescriptors.CalcNumRotatableBonds(mol)
     by_rotors = min(options.conformers_max, options.conformers_base + options.conformers_per_rotor * n_rot)
@@ -132,10 +132,10 @@ def ranked_count(n_atoms: int, options: StructureOptions = StructureOptions()) -
 
     Examples
     --------
-    >>> ranked_count(30), ranked_count(137), ranked_count(250)
-    (6, 2, 1)
-    >>> [ranked_count(n, StructureOptions(size_caps_min_atoms=150)) for n in (137, 250)]
-    [6, 1]
+    >>> ranked_count(30), ranked_count(137), ranked_count(250)  # caps from 150 atoms by default
+    (6, 6, 1)
+    >>> [ranked_count(n, StructureOptions(size_caps_min_atoms=0)) for n in (137, 250)]  # caps on every molecule
+    [2, 1]
     """
     if n_atoms < options.size_caps_min_atoms:
         return int(max(1, options.rank_max_conformers))

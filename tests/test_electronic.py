@@ -142,7 +142,8 @@ def test_film_off_gives_nan_and_the_columns_reach_levels(tmp_path):
     assert levels[EXTRA_RAW_COLUMNS].notna().all().all()
 
 
-def test_neutral_started_from_the_ranking_single_point_gives_the_same_levels():
+@pytest.mark.parametrize("accuracy", [1.0, 10.0])  # 10 is the default ΔSCF accuracy
+def test_neutral_started_from_the_ranking_single_point_gives_the_same_levels(accuracy):
     from screen.electronic import molecule_numbers_positions, vertical_levels
     from screen.options import ElectronicOptions, StructureOptions
     from screen.structures import build_structure
@@ -151,10 +152,13 @@ def test_neutral_started_from_the_ranking_single_point_gives_the_same_levels():
                                     return_singlepoint=True)
     assert info["n_ranked"] > 1 and sp is not None
     z, pos = molecule_numbers_positions(mol)
-    engine = ElectronicOptions().make_engine()
+    engine = ElectronicOptions(accuracy=accuracy).make_engine()
     cold = vertical_levels(z, pos, engine, film_epsilon=3.5)
     warm = vertical_levels(z, pos, engine, film_epsilon=3.5, neutral_guess=sp)
-    # the ranking single point is the same method at the same geometry: the same neutral energy
-    assert sp.energy_eh == pytest.approx(cold["xtb_energy_eh"], abs=1e-6)  # SCF energy threshold (tblite default)
-    for col in ("xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_ip_film_ev", "xtb_ea_film_ev"):
-        assert warm[col] == pytest.approx(cold[col], abs=1e-4), col  # 1e-6 Eh per state, in eV with margin
+    # tblite's SCF thresholds scale with the accuracy factor (energy 1e-6 Eh at 1, from memory); orbital
+    # energies converge only to the density threshold (7e-4 eV apart at accuracy 10, measured)
+    assert sp.energy_eh == pytest.approx(cold["xtb_energy_eh"], abs=1e-6 * accuracy)  # same method and geometry
+    for col in ("xtb_ip_ev", "xtb_ea_ev", "xtb_ip_film_ev", "xtb_ea_film_ev"):
+        assert warm[col] == pytest.approx(cold[col], abs=1e-4 * accuracy), col  # per-state threshold, in eV
+    for col in ("xtb_homo_ev", "xtb_lumo_ev"):
+        assert warm[col] == pytest.approx(cold[col], abs=1e-4 * max(1.0, 2 * accuracy)), col

@@ -310,15 +310,19 @@ def _write_one(folder: Path, key: str, smiles: str) -> Path:
     return path
 
 
-def test_opt_in_options_at_their_defaults_keep_the_stage_ids():
-    # options added later as opt-in leave the ids of existing stores unchanged at their default values,
-    # and change them when set
+def test_later_options_at_their_earlier_values_keep_the_stage_ids():
+    # options added after the store existed leave the ids of results computed before them unchanged at the
+    # values that give the earlier route (OPT_IN_DEFAULTS), and change them at any other value (the defaults
+    # since the switch included)
     from dataclasses import asdict
 
     from screen.options import OPT_IN_DEFAULTS, StructureOptions
     from screen.store import stage_protocol_id
 
-    plain = {k: v for k, v in asdict(StructureOptions()).items() if k not in OPT_IN_DEFAULTS["structures"]}
-    assert stage_protocol_id("structures", StructureOptions()) == stage_protocol_id("structures", plain)
-    assert stage_protocol_id("structures", StructureOptions(rank_warm_start=True)) != \
+    earlier = StructureOptions(**OPT_IN_DEFAULTS["structures"])
+    plain = {k: v for k, v in asdict(earlier).items() if k not in OPT_IN_DEFAULTS["structures"]}
+    assert stage_protocol_id("structures", earlier) == stage_protocol_id("structures", plain)
+    assert stage_protocol_id("structures", StructureOptions()) != stage_protocol_id("structures", plain)
+    assert stage_protocol_id("structures", StructureOptions(**{**OPT_IN_DEFAULTS["structures"],
+                                                                "rank_warm_start": True})) != \
         stage_protocol_id("structures", plain)

@@ -126,17 +126,18 @@ class _CountingEngine:
 def test_conformer_and_ranking_counts_shrink_with_size():
     from screen.structures import ranked_count
 
-    opts = StructureOptions()
+    opts = StructureOptions(size_caps_min_atoms=0)  # caps on every molecule (the default starts them at 150 atoms)
     mol = Chem.MolFromSmiles("CCOc1ccc(-c2ccc(OCC)cc2)cc1")  # 36 atoms, 5 rotatable bonds
     assert conformer_count(mol, opts) == min(opts.conformers_max, opts.conformers_base + 5 * opts.conformers_per_rotor)
-    assert conformer_count(mol, StructureOptions(conformer_atom_budget=36 * 3)) == 3
-    assert conformer_count(mol, StructureOptions(conformer_atom_budget=10)) == 2  # never fewer than two
+    assert conformer_count(mol, StructureOptions(conformer_atom_budget=36 * 3, size_caps_min_atoms=0)) == 3
+    assert conformer_count(mol, StructureOptions(conformer_atom_budget=10, size_caps_min_atoms=0)) == 2  # at least 2
     assert [ranked_count(n, opts) for n in (40, 100, 180, 250)] == [6, 3, 2, 1]
+    assert [ranked_count(n) for n in (40, 100, 180, 250)] == [6, 6, 2, 1]  # default: caps from 150 atoms
 
 
 def test_ff_window_prunes_before_any_xtb_call():
     engine = _CountingEngine()
-    _, wide = build_structure("CCCCc1ccc(-c2ccccc2)s1", StructureOptions(ff_window_kcal_mol=50.0), engine)
+    _, wide = build_structure("CCCCc1ccc(-c2ccccc2)s1", StructureOptions(ff_window_kcal_mol=50.0, **TIGHT), engine)
     wide_calls, engine.calls = engine.calls, 0
     _, narrow = build_structure("CCCCc1ccc(-c2ccccc2)s1", StructureOptions(ff_window_kcal_mol=0.0), engine)
     assert wide["n_ranked"] == wide_calls > 1
@@ -145,16 +146,17 @@ def test_ff_window_prunes_before_any_xtb_call():
 
 def test_big_molecule_gets_one_conformer_without_ranking_single_point():
     engine = _CountingEngine()
-    _, info = build_structure("c1ccc(-c2ccc(-c3cccs3)s2)s1", StructureOptions(rank_atom_budget=20), engine)
+    _, info = build_structure("c1ccc(-c2ccc(-c3cccs3)s2)s1", StructureOptions(rank_atom_budget=20, size_caps_min_atoms=0),
+                              engine)
     assert info["n_ranked"] == 1 and engine.calls == 0 and np.isnan(info["xtb_rank_energy_eh"])
 
 
 @pytest.mark.parametrize("section,key,value", [
     ("structures", "truncate_side_chains", False), ("structures", "truncate_min_carbons", 8),
     ("structures", "ff_window_kcal_mol", 3.0), ("structures", "conformer_atom_budget", 600),
-    ("structures", "rank_atom_budget", 720), ("structures", "size_caps_min_atoms", 150),
-    ("structures", "rank_warm_start", True), ("structures", "rank_scf_accuracy", 10.0),
-    ("electronic", "film_epsilon", None),
+    ("structures", "rank_atom_budget", 720), ("structures", "size_caps_min_atoms", 0),
+    ("structures", "rank_warm_start", False), ("structures", "rank_scf_accuracy", None),
+    ("electronic", "accuracy", 1.0), ("electronic", "film_epsilon", None),
     ("electronic", "film_epsilon", 4.0),
 ])
 def test_every_number_changing_setting_changes_the_protocol_id(section, key, value):
@@ -171,19 +173,27 @@ def test_threads_do_not_change_the_protocol_id():
     assert Config.of({"electronic": {"threads": 2}}).protocol_id == Config.of({}).protocol_id
 
 
-# ---------------------------------------------------------------- issue 13: opt-in pruning that keeps the choice
+# ---------------------------------------------------------------- issue 13: pruning that keeps the choice
 
-#: opt-in keys without a schema default: absent, the route (and the shipped protocol id) is today's
-OPT_IN = {"size_caps_min_atoms": 0, "rank_warm_start": False, "rank_scf_accuracy": None}
+#: the values of the three ranking keys that give the route shipped before they became defaults
+EARLIER = {"size_caps_min_atoms": 0, "rank_warm_start": False, "rank_scf_accuracy": None}
+#: tight ranking only, every SCF from scratch (a ranking single point per conformer, nothing else)
+TIGHT = {"rank_warm_start": False, "rank_scf_accuracy": None}
 
 
-def test_opt_in_keys_stay_out_of_the_default_protocol():
+def test_pruning_defaults_and_the_earlier_route():
     from screen.config import Config
+    from screen.options import OPT_IN_DEFAULTS
     from screen.schema import section_defaults
 
-    assert not set(OPT_IN) & set(section_defaults("structures"))
-    assert not set(OPT_IN) & set(Config.of({}).protocol["structures"])
-    assert {k: getattr(StructureOptions(), k) for k in OPT_IN} == OPT_IN
+    assert OPT_IN_DEFAULTS["structures"] == EARLIER  # the store leaves exactly these values out of its ids
+    defaults = {k: section_defaults("structures")[k] for k in EARLIER}
+    assert defaults == {"size_caps_min_atoms": 150, "rank_warm_start": True, "rank_scf_accuracy": 10}
+    assert {k: Config.of({}).protocol["structures"][k] for k in EARLIER} == defaults
+    assert {k: getattr(StructureOptions(), k) for k in EARLIER} == defaults
+    assert section_defaults("electronic")["accuracy"] == 10
+    earlier = Config.of({"structures": EARLIER, "electronic": {"accuracy": 1.0}})
+    assert earlier.protocol_id != Config.of({}).protocol_id
 
 
 def test_loose_ranking_accuracy_is_bounded():
@@ -200,7 +210,7 @@ def test_size_caps_act_only_from_size_caps_min_atoms():
     from screen.structures import ranked_count
 
     mol = Chem.MolFromSmiles("CCOc1ccc(-c2ccc(OCC)cc2)cc1")  # 36 atoms, 5 rotatable bonds
-    capped = StructureOptions(conformer_atom_budget=36 * 3, rank_atom_budget=36 * 2)
+    capped = StructureOptions(conformer_atom_budget=36 * 3, rank_atom_budget=36 * 2, size_caps_min_atoms=0)
     assert conformer_count(mol, capped) == 3 and ranked_count(36, capped) == 2
     above = StructureOptions(conformer_atom_budget=36 * 3, rank_atom_budget=36 * 2, size_caps_min_atoms=37)
     assert conformer_count(mol, above) == conformer_count(mol, StructureOptions())  # 36 < 37: no cap
@@ -230,7 +240,7 @@ FLEXIBLE = "CCCCc1ccc(-c2ccc(OCC)cc2)s1"  # 35 atoms, 7 rotatable bonds: several
 
 def test_warm_and_loose_ranking_keep_the_cold_choice_and_energies():
     cold_engine, fast_engine = _RecordingEngine(), _RecordingEngine()
-    cold_mol, cold = build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0), cold_engine)
+    cold_mol, cold = build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, **TIGHT), cold_engine)
     fast_mol, fast, sp = build_structure(
         FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, rank_warm_start=True, rank_scf_accuracy=10.0),
         fast_engine, return_singlepoint=True)
@@ -251,8 +261,9 @@ def test_warm_and_loose_ranking_keep_the_cold_choice_and_energies():
 
 def test_warm_started_ranking_gives_cold_energies():
     cold_engine, warm_engine = _RecordingEngine(), _RecordingEngine()
-    build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0), cold_engine)
-    build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, rank_warm_start=True), warm_engine)
+    build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, **TIGHT), cold_engine)
+    build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, rank_warm_start=True, rank_scf_accuracy=None),
+                    warm_engine)
     assert len(cold_engine.log) == len(warm_engine.log) >= 3
     for a, b in zip(cold_engine.log, warm_engine.log):
         assert b["energy"] == pytest.approx(a["energy"], abs=1e-6)  # SCF energy threshold (tblite default)
