@@ -190,9 +190,11 @@ class _Shard:
     """
 
     def __init__(self, out_csv, out_electronic, structures: StructureOptions, electronic: ElectronicOptions, store):
-        from screen.store import electronic_cache, structures_cache
+        from screen.store import electronic_cache, stage_protocol_id, structures_cache
 
-        self.journals = (Journal(f"{out_csv}.journal.jsonl"), Journal(f"{out_electronic}.journal.jsonl"))
+        # each line tagged with its stage protocol: a job killed under other options is not resumed
+        self.journals = (Journal(f"{out_csv}.journal.jsonl", tag=stage_protocol_id("structures", structures)),
+                         Journal(f"{out_electronic}.journal.jsonl", tag=stage_protocol_id("electronic", electronic)))
         loaded = [j.load() for j in self.journals]
         both = loaded[0].keys() & loaded[1].keys()
         self.done = tuple({k: rec for k, rec in d.items() if k in both} for d in loaded)

@@ -281,11 +281,11 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
     -------
     pandas.DataFrame
     """
-    from screen.store import electronic_cache
+    from screen.store import electronic_cache, stage_protocol_id
 
     status = pd.read_csv(structures_csv, dtype=str, keep_default_na=False)
     mols = read_structures(structures_sdf)
-    journal = Journal(journal_path or f"{out_csv}.journal.jsonl")
+    journal = Journal(journal_path or f"{out_csv}.journal.jsonl", tag=stage_protocol_id("electronic", options))
     progress = progress or Progress(f"electronic {Path(out_csv).stem}")
     local = None
     if engine is not None or not isolate:

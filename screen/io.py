@@ -183,6 +183,10 @@ class Journal:
     ----------
     path : path-like
         The ``.jsonl`` file. Created on first :meth:`append`.
+    tag : str, optional
+        What the records were computed with (a stage protocol id): written with each line, and
+        :meth:`load` skips lines with another or no tag, so a job killed under one protocol is never
+        resumed under another. None: lines are neither tagged nor checked.
 
     Examples
     --------
@@ -191,10 +195,19 @@ class Journal:
     >>> j.append({"key": "m1", "value": 1.0})
     >>> j.load()
     {'m1': {'key': 'm1', 'value': 1.0}}
+    >>> Journal(j.path, tag="p2").load()  # untagged (or another protocol's) lines are not resumed
+    {}
+    >>> Journal(j.path, tag="p2").append({"key": "m1", "value": 2.0})
+    >>> Journal(j.path, tag="p2").load(), Journal(j.path).load()["m1"]["value"]
+    ({'m1': {'key': 'm1', 'value': 2.0}}, 2.0)
     """
 
-    def __init__(self, path: str | os.PathLike):
+    #: field of a journal line holding its tag (removed on :meth:`load`)
+    TAG_FIELD = "_journal_tag"
+
+    def __init__(self, path: str | os.PathLike, tag: str | None = None):
         self.path = Path(path)
+        self.tag = tag
 
     def load(self) -> dict[str, dict]:
         """Records by ``key``; the last record of a key wins, torn lines are skipped."""
@@ -210,12 +223,16 @@ class Journal:
                 except json.JSONDecodeError:
                     continue
                 if isinstance(rec, dict) and "key" in rec:
-                    done[rec["key"]] = rec
+                    tag = rec.pop(self.TAG_FIELD, None)
+                    if self.tag is None or tag == self.tag:
+                        done[rec["key"]] = rec
         return done
 
     def append(self, record: dict) -> None:
         """Append one record durably (flush + fsync)."""
         self.path.parent.mkdir(parents=True, exist_ok=True)
+        if self.tag is not None:
+            record = {**record, self.TAG_FIELD: self.tag}
         line = json.dumps(record, sort_keys=True, default=_json_default) + "\n"
         with open(self.path, "a", encoding="utf-8") as fh:
             fh.write(line)

@@ -167,7 +167,9 @@ def _table_from_pvlib() -> tuple[np.ndarray, np.ndarray]:
 
 
 def _cached_table(path: Path | None) -> tuple[np.ndarray, np.ndarray] | None:
-    """The table stored in ``path``, a (2, n) float64 array (wavelength, irradiance); None if unusable."""
+    """The table stored in ``path``, a (2, n) float64 array (wavelength, irradiance); None if unusable
+    (unreadable, another layout, or no spectrum: fewer than two points, a grid that does not increase, a
+    value that is not finite)."""
     if path is None:
         return None
     try:
@@ -175,7 +177,9 @@ def _cached_table(path: Path | None) -> tuple[np.ndarray, np.ndarray] | None:
             both = np.load(fh, allow_pickle=False)
     except (OSError, ValueError, EOFError):
         return None
-    if both.dtype != np.float64 or both.ndim != 2 or both.shape[0] != 2:
+    if both.dtype != np.float64 or both.ndim != 2 or both.shape[0] != 2 or both.shape[1] < 2:
+        return None
+    if not np.all(np.isfinite(both)) or np.any(np.diff(both[0]) <= 0):
         return None
     return both[0], both[1]
 

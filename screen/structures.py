@@ -658,12 +658,12 @@ def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = Stru
     pandas.DataFrame
         The status table.
     """
-    from screen.store import structures_cache
+    from screen.store import stage_protocol_id, structures_cache
 
     RDLogger.DisableLog("rdApp.*")
     progress = progress or Progress(f"structures {Path(shard_csv).stem}")
     shard = pd.read_csv(shard_csv, dtype=str, keep_default_na=False)
-    journal = Journal(journal_path or f"{out_csv}.journal.jsonl")
+    journal = Journal(journal_path or f"{out_csv}.journal.jsonl", tag=stage_protocol_id("structures", options))
     local = None
     if engine is not None or not isolate:
         engine = engine or make_engine("tblite", options.ranking_method)

@@ -48,9 +48,9 @@ def _shard(folder: Path, mols=MOLS) -> Path:
 
 
 def _merged(folder: Path, store=False, structures=StructureOptions(), electronic=ElectronicOptions(),
-            isolate=False, progress=None):
+            isolate=False, progress=None, mols=MOLS):
     """One pass over the shard; the structures table and the electronic table."""
-    return run_compute(_shard(folder), folder / "s.sdf", folder / "s.csv", folder / "e.csv", structures, electronic,
+    return run_compute(_shard(folder, mols), folder / "s.sdf", folder / "s.csv", folder / "e.csv", structures, electronic,
                        isolate=isolate, store=store, progress=progress or _quiet())
 
 
@@ -230,3 +230,28 @@ def test_killed_job_resumes_from_its_journals_to_the_same_numbers(tmp_path, monk
         out.rename(tmp_path / "run" / name)
     _same_files(tmp_path / "ref", tmp_path / "run")
     assert not list(tmp_path.rglob("*.journal.jsonl"))
+
+
+def test_journals_of_a_killed_job_with_other_options_are_not_resumed(tmp_path, monkeypatch):
+    # a job killed under one protocol, rerun under another (a changed config, or an upgrade that changed the
+    # defaults): the journal lines of the first protocol must not enter the second run's outputs
+    mols = {"m1": "CCO", "m2": "c1ccsc1"}
+    shard, outs = _shard(tmp_path / "run", mols), (tmp_path / "s.sdf", tmp_path / "s.csv", tmp_path / "e.csv")
+    original = screen.compute.electronic_record
+
+    def killed_at_the_second(row, *args):
+        if row["key"] == "m2":
+            raise Killed
+        return original(row, *args)
+
+    monkeypatch.setattr(screen.compute, "electronic_record", killed_at_the_second)
+    with pytest.raises(Killed):
+        run_compute(shard, *outs, electronic=ElectronicOptions(method="GFN1-xTB"), isolate=False, store=False,
+                    progress=_quiet())
+    monkeypatch.setattr(screen.compute, "electronic_record", original)
+    screen.compute._KEPT.clear()
+    run_compute(shard, *outs, isolate=False, store=False, progress=_quiet())
+    _merged(tmp_path / "ref", mols=mols)
+    for name, out in zip(("s.sdf", "s.csv", "e.csv"), outs):
+        out.rename(tmp_path / "run" / name)
+    _same_files(tmp_path / "ref", tmp_path / "run")

@@ -52,19 +52,26 @@ def test_cache_hit_gives_the_pvlib_numbers_without_importing_pvlib(cache, monkey
     assert round(second.incident_power_w_m2, 1) == 1000.4
 
 
-@pytest.mark.parametrize("content", [b"", b"not a numpy file", None])
+#: (2, n) float64 tables of the right layout whose numbers are no spectrum: one point, a grid that does not
+#: increase, a missing value
+_BAD_TABLES = [np.array([[300.0], [1.0]]), np.array([[300.0, 300.0, 310.0], [1.0, 1.0, 1.0]]),
+               np.array([[300.0, 310.0, 320.0], [1.0, np.nan, 1.0]])]
+
+
+@pytest.mark.parametrize("content", [b"", b"not a numpy file", None, *_BAD_TABLES])
 def test_unusable_cache_file_falls_back_to_pvlib_and_is_rewritten(cache, content):
     path = spectrum_cache_path()
     path.parent.mkdir(parents=True)
-    if content is None:  # a valid file of the wrong shape
+    if content is None or isinstance(content, np.ndarray):  # a valid file of the wrong shape, or no spectrum
         with open(path, "wb") as fh:
-            np.save(fh, np.zeros((3, 4)))
+            np.save(fh, np.zeros((3, 4)) if content is None else content)
     else:
         path.write_bytes(content)
     spec = reference_spectrum()
     reference_spectrum.cache_clear()
     lam, irr = spectrum._cached_table(path)  # rewritten with pvlib's table
     assert lam.tobytes() == spec.wavelength_nm.tobytes() and irr.tobytes() == spec.irradiance_w_m2_nm.tobytes()
+    assert irr.tobytes() == spectrum._table_from_pvlib()[1].tobytes()
 
 
 def test_empty_dascreen_cache_turns_the_cache_off(cache, monkeypatch):
