@@ -37,6 +37,31 @@ def _fill_defaults(node: dict, schema: dict) -> None:
             _fill_defaults(node[name], sub)
 
 
+def _number(value, default):
+    """``value`` written like the schema's ``default`` when both are numbers of equal value (10.0 → 10 where
+    the default is an integer, 6 → 6.0 where it is a float); anything else unchanged."""
+    numbers = (int, float)
+    if isinstance(value, bool) or isinstance(default, bool) or not isinstance(value, numbers):
+        return value
+    if isinstance(default, int) and isinstance(value, float) and value.is_integer():
+        return int(value)
+    if isinstance(default, float) and isinstance(value, int):
+        return float(value)
+    return value
+
+
+def _like_defaults(node: dict, schema: dict) -> None:
+    """Write every number as its schema default is written, so that equal settings give equal protocol ids
+    (the ids hash the JSON text, where 10 and 10.0 differ)."""
+    for name, sub in schema.get("properties", {}).items():
+        if name not in node:
+            continue
+        if "default" in sub:
+            node[name] = _number(node[name], sub["default"])
+        if isinstance(node[name], dict) and sub.get("type") == "object":
+            _like_defaults(node[name], sub)
+
+
 def _describe(error: jsonschema.ValidationError) -> str:
     field = ".".join(str(p) for p in error.absolute_path) or "(top level)"
     schema = error.schema if isinstance(error.schema, dict) else {}
@@ -72,6 +97,8 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     >>> cfg = resolve({"device": {"eqe": 0.5}})
     >>> cfg["device"]["eqe"], cfg["device"]["model"]
     (0.5, 'fitted')
+    >>> resolve({"electronic": {"accuracy": 10.0}})["electronic"]["accuracy"]  # written as the default is
+    10
     >>> resolve({"device": {"absorber": "acceptor"}})
     Traceback (most recent call last):
     ...
@@ -84,6 +111,7 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     if errors:
         raise ConfigError(f"{source}: " + "; ".join(_describe(e) for e in errors))
     _fill_defaults(cfg, schema)
+    _like_defaults(cfg, schema)
     errors = sorted(validator.iter_errors(cfg), key=lambda e: list(e.absolute_path))
     if errors:  # a default that breaks the schema is a bug here, still say it clearly
         raise ConfigError(f"{source} (after defaults): " + "; ".join(_describe(e) for e in errors))

@@ -167,6 +167,17 @@ def test_every_number_changing_setting_changes_the_protocol_id(section, key, val
     assert protocol(changed)[section][key] == value
 
 
+def test_a_number_written_with_or_without_decimals_gives_one_protocol_id():
+    # the id hashes JSON text, where 10 and 10.0 differ: a config writing accuracy: 10.0 must still find the
+    # shipped models of the default protocol (else a full reference refit would run)
+    from screen.config import Config
+
+    default = Config.of({}).protocol_id
+    assert Config.of({"electronic": {"accuracy": 10.0}}).protocol_id == default
+    assert Config.of({"structures": {"rank_scf_accuracy": 10.0, "ff_window_kcal_mol": 6}}).protocol_id == default
+    assert Config.of({"electronic": {"accuracy": 10.5}}).protocol_id != default
+
+
 def test_threads_do_not_change_the_protocol_id():
     from screen.config import Config
 
