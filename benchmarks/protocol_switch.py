@@ -56,12 +56,12 @@ import pandas as pd  # noqa: E402
 from screen.compute import run_compute  # noqa: E402
 from screen.electronic import run_electronic  # noqa: E402
 from screen.io import Progress  # noqa: E402
-from screen.options import OPT_IN_DEFAULTS, ElectronicOptions, StructureOptions  # noqa: E402
+from screen.options import EARLIER_ROUTE_VALUES, ElectronicOptions, StructureOptions  # noqa: E402
 from screen.prepare import PolymerOptions, PrepareOptions, prepare  # noqa: E402
 from screen.structures import run_structures  # noqa: E402
 
 #: the route shipped before the switch
-PREVIOUS = (StructureOptions(**OPT_IN_DEFAULTS["structures"]), ElectronicOptions(accuracy=1.0))
+PREVIOUS = (StructureOptions(**EARLIER_ROUTE_VALUES["structures"]), ElectronicOptions(accuracy=1.0))
 
 
 def _quiet() -> Progress:

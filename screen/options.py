@@ -15,7 +15,7 @@ from dataclasses import dataclass, fields
 from screen.errors import ConfigError
 from screen.schema import section_defaults
 
-__all__ = ["StructureOptions", "ElectronicOptions", "ExecutionOptions", "OPT_IN_DEFAULTS", "options_from_mapping"]
+__all__ = ["StructureOptions", "ElectronicOptions", "ExecutionOptions", "EARLIER_ROUTE_VALUES", "options_from_mapping"]
 
 _S = section_defaults("structures")
 _E = section_defaults("electronic")
@@ -60,8 +60,8 @@ def options_from_mapping(cls, mapping, section: str):
 #: route exactly as before they existed; at these values they are left out of the store's stage protocol
 #: ids, so adding them did not make earlier results look foreign (their defaults have since changed: see
 #: the schema)
-OPT_IN_DEFAULTS = {"structures": {"size_caps_min_atoms": 0, "rank_warm_start": False, "rank_scf_accuracy": None},
-                   "electronic": {}}
+EARLIER_ROUTE_VALUES = {"structures": {"size_caps_min_atoms": 0, "rank_warm_start": False, "rank_scf_accuracy": None},
+                        "electronic": {}}
 
 
 @dataclass(frozen=True)

@@ -312,17 +312,17 @@ def _write_one(folder: Path, key: str, smiles: str) -> Path:
 
 def test_later_options_at_their_earlier_values_keep_the_stage_ids():
     # options added after the store existed leave the ids of results computed before them unchanged at the
-    # values that give the earlier route (OPT_IN_DEFAULTS), and change them at any other value (the defaults
+    # values that give the earlier route (EARLIER_ROUTE_VALUES), and change them at any other value (the defaults
     # since the switch included)
     from dataclasses import asdict
 
-    from screen.options import OPT_IN_DEFAULTS, StructureOptions
+    from screen.options import EARLIER_ROUTE_VALUES, StructureOptions
     from screen.store import stage_protocol_id
 
-    earlier = StructureOptions(**OPT_IN_DEFAULTS["structures"])
-    plain = {k: v for k, v in asdict(earlier).items() if k not in OPT_IN_DEFAULTS["structures"]}
+    earlier = StructureOptions(**EARLIER_ROUTE_VALUES["structures"])
+    plain = {k: v for k, v in asdict(earlier).items() if k not in EARLIER_ROUTE_VALUES["structures"]}
     assert stage_protocol_id("structures", earlier) == stage_protocol_id("structures", plain)
     assert stage_protocol_id("structures", StructureOptions()) != stage_protocol_id("structures", plain)
-    assert stage_protocol_id("structures", StructureOptions(**{**OPT_IN_DEFAULTS["structures"],
+    assert stage_protocol_id("structures", StructureOptions(**{**EARLIER_ROUTE_VALUES["structures"],
                                                                 "rank_warm_start": True})) != \
         stage_protocol_id("structures", plain)

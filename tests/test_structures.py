@@ -194,10 +194,10 @@ TIGHT = {"rank_warm_start": False, "rank_scf_accuracy": None}
 
 def test_pruning_defaults_and_the_earlier_route():
     from screen.config import Config
-    from screen.options import OPT_IN_DEFAULTS
+    from screen.options import EARLIER_ROUTE_VALUES
     from screen.schema import section_defaults
 
-    assert OPT_IN_DEFAULTS["structures"] == EARLIER  # the store leaves exactly these values out of its ids
+    assert EARLIER_ROUTE_VALUES["structures"] == EARLIER  # the store leaves exactly these values out of its ids
     defaults = {k: section_defaults("structures")[k] for k in EARLIER}
     assert defaults == {"size_caps_min_atoms": 150, "rank_warm_start": True, "rank_scf_accuracy": 10}
     assert {k: Config.of({}).protocol["structures"][k] for k in EARLIER} == defaults
