@@ -467,6 +467,7 @@ def build_parser() -> argparse.ArgumentParser:
         add(sub)
     return parser
 
+
 def _freeze_at_exit() -> None:
     """Leave the process's objects out of the garbage collections Python runs while it shuts down.
 

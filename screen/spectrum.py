@@ -166,6 +166,13 @@ def _table_from_pvlib() -> tuple[np.ndarray, np.ndarray]:
     return np.asarray(table.index, dtype=float), np.asarray(table.to_numpy(), dtype=float)
 
 
+def _is_spectrum(lam: np.ndarray, irr: np.ndarray) -> bool:
+    """Whether (wavelength, irradiance) is a usable table: one-dimensional, at least two points, a strictly
+    increasing grid and finite values."""
+    return (lam.ndim == 1 and lam.shape == irr.shape and lam.size >= 2 and bool(np.all(np.diff(lam) > 0))
+            and bool(np.all(np.isfinite(lam))) and bool(np.all(np.isfinite(irr))))
+
+
 def _cached_table(path: Path | None) -> tuple[np.ndarray, np.ndarray] | None:
     """The table stored in ``path``, a (2, n) float64 array (wavelength, irradiance); None if unusable
     (unreadable, another layout, or no spectrum: fewer than two points, a grid that does not increase, a
@@ -177,9 +184,7 @@ def _cached_table(path: Path | None) -> tuple[np.ndarray, np.ndarray] | None:
             both = np.load(fh, allow_pickle=False)
     except (OSError, ValueError, EOFError):
         return None
-    if both.dtype != np.float64 or both.ndim != 2 or both.shape[0] != 2 or both.shape[1] < 2:
-        return None
-    if not np.all(np.isfinite(both)) or np.any(np.diff(both[0]) <= 0):
+    if both.dtype != np.float64 or both.ndim != 2 or both.shape[0] != 2 or not _is_spectrum(both[0], both[1]):
         return None
     return both[0], both[1]
 
@@ -250,7 +255,7 @@ def reference_spectrum() -> ReferenceSpectrum:
     1000.4
     """
     lam, irr = _spectrum_table()
-    if lam.ndim != 1 or lam.size < 2 or np.any(np.diff(lam) <= 0):
+    if not _is_spectrum(lam, irr):
         raise RuntimeError(
             f"pvlib reference spectrum {SPECTRUM_STANDARD!r} has no increasing wavelength grid"
         )
