@@ -73,7 +73,8 @@ def run_journalled(items: Iterable, key: Callable, compute: Callable[[object], d
     cache : screen.store.StoreCache, optional
         The results store: asked before computing an item (a stored record is
         journalled instead); a freshly computed record goes to it after its
-        journal line, so a killed job loses nothing.
+        journal line, so a killed job loses nothing (on resume, the journal's last
+        record is stored if the store lacks it: the job may have died in between).
 
     Returns
     -------
@@ -90,6 +91,12 @@ def run_journalled(items: Iterable, key: Callable, compute: Callable[[object], d
     (4, ['1', '2'])
     """
     done = journal.load()
+    items = list(items)
+    if cache is not None and done:  # a kill after the last journal line, before its store write
+        last = next(reversed(done))
+        for item in items:
+            if key(item) == last:
+                cache.keep(item, done[last])
     todo = [item for item in items if key(item) not in done]
     for i, item in enumerate(todo, 1):
         rec = journalled(item, key, compute, journal, done, cache)

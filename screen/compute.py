@@ -202,6 +202,17 @@ class _Shard:
         caches = (structures_cache(store, structures), electronic_cache(store, electronic, self.mols, CARRIED_COLUMNS))
         self.caches = tuple(None if c is None else _Later(c) for c in caches)
 
+    def recover(self, smiles: dict) -> None:
+        """Store the last resumed molecule if a kill between its journal lines and the store write lost it."""
+        if self.caches[0] is None or not self.done[1]:
+            return
+        key = next(reversed(self.done[1]))
+        built = self.done[0][key]
+        if built.get("status") == "ok":
+            self.mols[key] = Chem.MolFromMolBlock(built["molblock"], removeHs=False)
+        self.caches[0].cache.keep((key, smiles.get(key, "")), built)
+        self.caches[1].cache.keep(status_row(built), self.done[1][key])
+
     def todo(self, keys) -> list[str]:
         return [k for k in keys if k not in self.done[1]]
 
@@ -272,6 +283,7 @@ def run_compute(shard_csv, out_sdf, out_csv, out_electronic, structures: Structu
     smiles = dict(zip(shard["key"], shard["smiles"]))
     progress = progress or Progress(f"compute {Path(shard_csv).stem}")
     state = _Shard(out_csv, out_electronic, structures, electronic, store)
+    state.recover(smiles)
     keep = neutral_guess_allowed(structures, electronic)
     local = None
     if rank_engine is not None or dscf_engine is not None or not isolate:

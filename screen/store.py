@@ -390,6 +390,21 @@ class StoreCache:
         return store_row(self.stage, self._key(item), self.options,
                          {k: v for k, v in record.items() if k not in own}, geometry)
 
+    def keep(self, item, record: Mapping) -> None:
+        """Store ``record`` of ``item`` unless the store holds it already.
+
+        For the last record of a resumed journal: a job killed between that journal
+        line and its store write left the molecule journalled but not stored.
+        """
+        row = self.row(item, record)
+        if row is None:
+            return
+        try:
+            if self.store.get(self.stage, self._key(item), self.protocol_id, self._geometry(item)) is None:
+                self.store.put_rows([row])
+        except (sqlite3.Error, InputError, OSError) as exc:
+            self._warn(exc)
+
     def write(self, rows) -> None:
         """Store rows of :meth:`row` (of this or another stage's cache; Nones skipped) in one transaction."""
         rows = [r for r in rows if r is not None]

@@ -255,3 +255,56 @@ def test_journals_of_a_killed_job_with_other_options_are_not_resumed(tmp_path, m
     for name, out in zip(("s.sdf", "s.csv", "e.csv"), outs):
         out.rename(tmp_path / "run" / name)
     _same_files(tmp_path / "ref", tmp_path / "run")
+
+
+def test_a_molecule_killed_before_its_store_write_is_stored_on_resume(tmp_path, monkeypatch):
+    # the store write comes after both journal lines: a kill in between leaves the molecule journalled (not
+    # computed again on resume) but not stored; the resumed job stores it, so a later run in another folder
+    # takes every molecule from the store and computes nothing
+    mols = {"m1": "CCO", "m2": "c1ccsc1"}
+    store = ResultStore(tmp_path / "store.sqlite")
+    shard, outs = _shard(tmp_path / "run", mols), (tmp_path / "s.sdf", tmp_path / "s.csv", tmp_path / "e.csv")
+    original, calls = screen.compute._Shard.store, []
+
+    def killed_at_the_second_write(self):
+        calls.append(1)
+        if len(calls) == 2:
+            raise Killed
+        original(self)
+
+    monkeypatch.setattr(screen.compute._Shard, "store", killed_at_the_second_write)
+    with pytest.raises(Killed):
+        run_compute(shard, *outs, isolate=False, store=store, progress=_quiet())
+    monkeypatch.setattr(screen.compute._Shard, "store", original)
+    assert {r["key"] for r in store.rows()} == {"m1"}  # m2 journalled, not stored
+    run_compute(shard, *outs, isolate=False, store=store, progress=_quiet())
+    assert sorted((r["stage"], r["key"]) for r in store.rows()) == [
+        ("electronic", "m1"), ("electronic", "m2"), ("structures", "m1"), ("structures", "m2")]
+    with mock.patch.object(screen.compute, "electronic_record", side_effect=AssertionError("computed")):
+        _merged(tmp_path / "again", store=store, mols=mols)
+    for name, out in zip(("s.sdf", "s.csv", "e.csv"), outs):
+        out.rename(tmp_path / "run" / name)
+    _same_files(tmp_path / "run", tmp_path / "again")
+
+
+def test_two_stage_api_stores_the_last_journalled_record_on_resume(tmp_path):
+    from screen.batch import run_journalled
+    from screen.io import Journal
+
+    journal, kept = Journal(tmp_path / "j.jsonl"), []
+    journal.append({"key": "m1", "status": "ok"})  # a job killed after this line, before its store write
+
+    class Cache:
+        hits = 0
+
+        def lookup(self, item):
+            return None
+
+        def keep(self, item, rec):
+            kept.append((item, rec["key"]))
+
+        def remember(self, item, rec):
+            pass
+
+    done = run_journalled(["m1", "m2"], str, lambda k: {"key": k, "status": "ok"}, journal, _quiet(), Cache())
+    assert kept == [("m1", "m1")] and sorted(done) == ["m1", "m2"]
