@@ -60,7 +60,8 @@ def options_from_mapping(cls, mapping, section: str):
 #: route exactly as before they existed; at these values they are left out of the store's stage protocol
 #: ids, so adding them did not make earlier results look foreign (their defaults have since changed: see
 #: the schema)
-EARLIER_ROUTE_VALUES = {"structures": {"size_caps_min_atoms": 0, "rank_warm_start": False, "rank_scf_accuracy": None},
+EARLIER_ROUTE_VALUES = {"structures": {"size_caps_min_atoms": 0, "rank_warm_start": False, "rank_scf_accuracy": None,
+                                       "cage_geometry": "ff"},
                         "electronic": {}}
 
 
@@ -83,6 +84,10 @@ class StructureOptions:
     geometry : {"ff", "xtb"}
         ``ff``: keep the force-field geometry of the xTB-lowest conformer;
         ``xtb``: optimise it further with the engine.
+    cage_geometry : {"xtb", "ff"}
+        Route of a closed carbon cage (:func:`screen.cage.closed_cage`): ``xtb`` optimises it with
+        the engine whatever ``geometry`` says (MMFF94 gives a fullerene no bond alternation);
+        ``ff``: as every other molecule (the route before the option existed).
     xtb_fmax_ev_a : float
         Force convergence for the xTB optimisation [eV Å⁻¹].
     xtb_max_steps : int
@@ -139,6 +144,7 @@ class StructureOptions:
     forcefield: str = _S["forcefield"]
     ff_max_iters: int = _S["ff_max_iters"]
     geometry: str = _S["geometry"]
+    cage_geometry: str = _S["cage_geometry"]
     xtb_fmax_ev_a: float = _S["xtb_fmax_ev_a"]
     xtb_max_steps: int = _S["xtb_max_steps"]
     truncate_side_chains: bool = _S["truncate_side_chains"]
@@ -155,6 +161,8 @@ class StructureOptions:
     def __post_init__(self):
         if self.geometry not in ("ff", "xtb"):
             raise ConfigError(f"structures.geometry must be 'ff' or 'xtb', not {self.geometry!r}")
+        if self.cage_geometry not in ("ff", "xtb"):
+            raise ConfigError(f"structures.cage_geometry must be 'xtb' or 'ff', not {self.cage_geometry!r}")
         if self.forcefield not in ("mmff", "uff"):
             raise ConfigError(f"structures.forcefield must be 'mmff' or 'uff', not {self.forcefield!r}")
         if self.rank_scf_accuracy is not None and not 1.0 <= float(self.rank_scf_accuracy) <= 30.0:

@@ -24,6 +24,9 @@ Route (every step seeded, so the same input gives the same geometry):
    conformer's (``rank_warm_start``): same choice, less xTB time;
 5. optional (``geometry="xtb"``) GFN2-xTB optimisation of that conformer with
    ASE's L-BFGS optimiser and the engine's ASE calculator.
+   A closed carbon cage (a fullerene or its adduct, :mod:`screen.cage`) is always
+   optimised so (``cage_geometry="xtb"``, the default): MMFF94 leaves it without bond
+   alternation.
 
 Between steps 3 and 4 every conformer is checked against the input graph
 (:func:`screen.sanity.geometry_problems`: bond lengths against covalent radii,
@@ -56,6 +59,7 @@ from rdkit import Chem, RDLogger
 from rdkit.Chem import AllChem, rdMolDescriptors
 
 from screen.batch import molecule_caller, run_journalled
+from screen.cage import closed_cage
 from screen.constants import BOHR_ANGSTROM
 from screen.engines import SCF_LADDER, Engine, EngineError, make_engine
 from screen.io import Journal, Progress, atomic_path, write_csv
@@ -385,9 +389,10 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     out.RemoveAllConformers()
     out.AddConformer(conf, assignId=False)
     opt_converged = ""
-    # without force-field parameters (e.g. aromatic Se in UFF) ETKDG geometries are too crude:
-    # optimise with the engine instead, whatever the route
-    geometry = "xtb" if ff == "none" else options.geometry
+    # without force-field parameters (e.g. aromatic Se in UFF) ETKDG geometries are too crude, and MMFF94
+    # leaves a fullerene cage without its bond alternation (screen.cage): optimise with the engine instead
+    cage = options.cage_geometry == "xtb" and closed_cage(mol_h)
+    geometry = "xtb" if ff == "none" or cage else options.geometry
     if geometry == "xtb":
         pos, ok = _xtb_optimise(numbers, out.GetConformer().GetPositions(), engine, options)
         c = out.GetConformer()

@@ -197,7 +197,8 @@ def test_pruning_defaults_and_the_earlier_route():
     from screen.options import EARLIER_ROUTE_VALUES
     from screen.schema import section_defaults
 
-    assert EARLIER_ROUTE_VALUES["structures"] == EARLIER  # the store leaves exactly these values out of its ids
+    # the store leaves exactly these values out of its ids (the three ranking keys and the cage route)
+    assert EARLIER_ROUTE_VALUES["structures"] == {**EARLIER, "cage_geometry": "ff"}
     defaults = {k: section_defaults("structures")[k] for k in EARLIER}
     assert defaults == {"size_caps_min_atoms": 150, "rank_warm_start": True, "rank_scf_accuracy": 10}
     assert {k: Config.of({}).protocol["structures"][k] for k in EARLIER} == defaults
