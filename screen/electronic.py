@@ -43,6 +43,7 @@ from screen.engines import Engine, EngineError
 from screen.excitation import frontier_integrals
 from screen.io import Journal, Progress, write_csv
 from screen.options import ElectronicOptions
+from screen.provenance import sha256_file
 from screen.structures import STATUS_COLUMNS as STRUCTURE_COLUMNS
 from screen.structures import _plain, read_structures
 
@@ -254,7 +255,9 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
 
     Every key of the structures table gets one row: molecules whose structure
     failed stay ``failed`` with that reason; an engine failure makes the row
-    ``failed`` with the engine's message. Finished molecules are journalled.
+    ``failed`` with the engine's message. Finished molecules are journalled; a
+    journal line is resumed only with the options and the SD file it was computed
+    with (its tag holds the stage protocol id and the file's digest).
 
     Parameters
     ----------
@@ -285,7 +288,10 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
 
     status = pd.read_csv(structures_csv, dtype=str, keep_default_na=False)
     mols = read_structures(structures_sdf)
-    journal = Journal(journal_path or f"{out_csv}.journal.jsonl", tag=stage_protocol_id("electronic", options))
+    # tagged with the protocol and the SD file's digest: after a rerun of the structures stage (other options,
+    # other geometries) a killed job's lines are not resumed onto geometries they were not computed on
+    tag = f"{stage_protocol_id('electronic', options)}+{sha256_file(structures_sdf)[:16]}"
+    journal = Journal(journal_path or f"{out_csv}.journal.jsonl", tag=tag)
     progress = progress or Progress(f"electronic {Path(out_csv).stem}")
     local = None
     if engine is not None or not isolate:

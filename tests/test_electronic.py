@@ -162,3 +162,38 @@ def test_neutral_started_from_the_ranking_single_point_gives_the_same_levels(acc
         assert warm[col] == pytest.approx(cold[col], abs=1e-4 * accuracy), col  # per-state threshold, in eV
     for col in ("xtb_homo_ev", "xtb_lumo_ev"):
         assert warm[col] == pytest.approx(cold[col], abs=1e-4 * max(1.0, 2 * accuracy)), col
+
+
+def test_a_killed_job_is_not_resumed_onto_other_geometries(tmp_path, monkeypatch):
+    # two-stage API: an electronic job killed after its first molecule, then the structures stage rerun with
+    # other options (new geometries in the SD file): the journal line of the old geometry must not be resumed
+    import screen.electronic
+    from screen.electronic import run_electronic
+    from screen.options import StructureOptions
+    from screen.structures import run_structures
+
+    shard = pd.DataFrame({"key": ["ma", "mb"], "smiles": ["CCCO", "C=O"]})
+    shard.to_csv(tmp_path / "shard-000.csv", index=False)
+    sdf, status = tmp_path / "s.sdf", tmp_path / "s.csv"
+    run_structures(tmp_path / "shard-000.csv", sdf, status, isolate=False, store=False)
+    original, seen = screen.electronic.electronic_record, []
+
+    class Killed(BaseException):
+        pass
+
+    def killed_at_the_second(row, *args):
+        seen.append(row["key"])
+        if len(seen) == 2:
+            raise Killed
+        return original(row, *args)
+
+    monkeypatch.setattr(screen.electronic, "electronic_record", killed_at_the_second)
+    with pytest.raises(Killed):
+        run_electronic(sdf, status, tmp_path / "e.csv", isolate=False, store=False)
+    monkeypatch.setattr(screen.electronic, "electronic_record", original)
+    run_structures(tmp_path / "shard-000.csv", sdf, status, StructureOptions(geometry="xtb"), isolate=False,
+                   store=False)
+    resumed = run_electronic(sdf, status, tmp_path / "e.csv", isolate=False, store=False)
+    fresh = run_electronic(sdf, status, tmp_path / "fresh.csv", isolate=False, store=False)
+    cols = ["xtb_ip_ev", "xtb_ea_ev"]
+    pd.testing.assert_frame_equal(resumed[cols].astype(float), fresh[cols].astype(float), atol=1e-6)
