@@ -65,8 +65,9 @@ __all__ = ["LEVELS", "film_dataset", "fit_film_level"]
 
 #: per film level: the gas model it may shift, the continuum features (simplest first). The HOMO may add a
 #: polymer term (:data:`screen.calibration.linear.DERIVED` ``polymer``): chosen by nested cross-validation
-#: (outer LOO over the film rows, the route and features selected inside: 0.175 → 0.151 eV); for the LUMO
-#: it lost in nested CV (0.212 → 0.220 eV), so it is not offered there.
+#: when it was added (outer LOO over the film rows, the route and features selected inside; on the reference set
+#: and protocol of then: 0.175 → 0.151 eV); for the LUMO it lost in nested CV (0.212 → 0.220 eV), so it is not
+#: offered there. Class terms (``cage``) are added to every set by :func:`screen.calibration.validation.select`.
 LEVELS = {
     "homo": {"gas": "ip", "gas_raw": "xtb_ip_ev",
              "features": [["xtb_ip_film_ev"], ["xtb_ip_film_ev", "xtb_homo_ev"], ["xtb_ip_film_ev", "polymer"]]},
@@ -114,7 +115,8 @@ def _joint_route(spec: dict, data: pd.DataFrame, y: np.ndarray, gas_ref: pd.Data
     g = pd.DataFrame({c: pd.to_numeric(gas[c if c != film_col else spec["gas_raw"]], errors="coerce") for c in cols})
     g["phase_film"], g["y"], g["representation"] = 0.0, gas["value_ev"].astype(float).to_numpy(), "molecule"
     g["family"] = [family(n, s, "molecule", spec["gas"]) for n, s in zip(gas["name"], gas["smiles"])]
-    f = data[cols + ["family", "representation"]].copy()
+    g["smiles"] = gas["smiles"].to_numpy()
+    f = data[cols + ["family", "representation", "smiles"]].copy()
     f["phase_film"], f["y"] = 1.0, y
     both = pd.concat([g.reset_index(drop=True), f.reset_index(drop=True)], ignore_index=True)
     rows = both["phase_film"].to_numpy() == 1

@@ -23,7 +23,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from screen.calibration.linear import (MIN_GAIN_EV, CalibrationError, LinearLevelModel, feature_matrix,
+from screen.calibration.linear import (MIN_GAIN_EV, CalibrationError, LinearLevelModel, class_terms, feature_matrix,
                                        grouped_predictions, loo_predictions, stats)
 
 __all__ = ["select", "breakdown"]
@@ -63,7 +63,9 @@ def select(frame: pd.DataFrame, y, feature_sets: list[list[str]], groups, kinds=
     y : array_like
         Targets [eV].
     feature_sets : list of list of str
-        Candidates, simplest first; sets whose columns are missing or not finite are skipped.
+        Candidates, simplest first; sets whose columns are missing or not finite are skipped. Each
+        set also gets the class terms of :func:`screen.calibration.linear.class_terms` (e.g.
+        ``cage`` when the rows hold two fullerenes or more).
     groups : array_like
         Family of each row (grouped hold-out).
     kinds : array_like, optional
@@ -78,6 +80,8 @@ def select(frame: pd.DataFrame, y, feature_sets: list[list[str]], groups, kinds=
     """
     y = np.asarray(y, float)
     kinds = np.asarray(kinds if kinds is not None else ["molecule"] * len(y))
+    terms = class_terms(frame)  # a class with its own method error (fullerene cages) gets its term in every set
+    feature_sets = [list(f) + [t for t in terms if t not in f] for f in feature_sets]
     best, tried = None, []
     for feats in feature_sets:
         try:
