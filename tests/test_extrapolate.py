@@ -63,3 +63,18 @@ def test_short_or_broken_series_are_poor():
     assert extrapolate([], []).quality == "poor"
     zigzag = extrapolate([1, 2, 3, 4], [2.0, 3.0, 1.8, 2.6])
     assert zigzag.method == "longest" and zigzag.quality == "poor" and zigzag.limit_ev == 2.6
+
+
+def test_a_limit_just_outside_the_interval_is_clipped_not_dropped():
+    # the PffBT4T-2OD orbital-gap series of two reference runs (raw GFN2-xTB values, n = 1-4, the dimers differing
+    # by 0.0004 eV, within the SCF tolerance): the exponential limit lay 0.010 eV inside and then 0.004 eV beyond
+    # the 1/n limit, and the chosen limit jumped from 0.58 eV (exponential) to 0.79 eV (the tetramer's own value,
+    # "poor"). Now a saturating limit within its fit's RMS of the interval is moved onto it: both runs agree
+    n = [1, 2, 3, 4]
+    fits = [extrapolate(n, [0.9325315462118775, dimer, 0.8604152122810323, 0.7870719501718059], per_unit=4)
+            for dimer in (0.8567569577206304, 0.8571582672001503)]
+    assert [f.method for f in fits] == [fits[0].method] * 2 and fits[0].quality == "good"
+    assert abs(fits[0].limit_ev - fits[1].limit_ev) < 0.005
+    for f in fits:  # never outside [longest oligomer, 1/n limit]
+        lo, hi = sorted((f.candidates["longest"], f.candidates["inverse"]))
+        assert lo <= f.limit_ev <= hi
