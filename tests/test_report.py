@@ -494,3 +494,12 @@ def test_style_and_script_are_inline(written):
     css, js = static_text("report.css"), static_text("report.js")
     assert css and js
     assert f"<style>\n{css}</style>" in page and f"<script>\n{js}</script>" in page
+
+
+def test_geometry_route_names_the_fullerene_cage_route():
+    from screen.report.header import _geometry_words
+
+    st = {"geometry": "ff", "forcefield": "mmff", "ranking_method": "GFN2-xTB", "cage_geometry": "xtb"}
+    assert _geometry_words({}, st).endswith("; fullerene cages xTB-optimised")
+    assert "fullerene" not in _geometry_words({}, {**st, "cage_geometry": "ff"})
+    assert "fullerene" not in _geometry_words({}, {**st, "geometry": "xtb"})  # every molecule optimised anyway

@@ -117,6 +117,8 @@ def _geometry_words(lm: dict, st: dict) -> str:
     g = f"RDKit ETKDG conformers, {ff + ' ' if ff else ''}{words}"
     if text(st.get("ranking_method")):
         g += f"; conformer chosen by lowest {text(st.get('ranking_method'))} energy"
+    if geometry == "ff" and text(st.get("cage_geometry")) == "xtb":
+        g += "; fullerene cages xTB-optimised"
     return g
 
 
