@@ -66,7 +66,7 @@ DERIVED = {
     # (finite effective conjugation length, torsional disorder); no raw column, so no chain-spread propagation
     "polymer": (_polymer, {}),
     # closed carbon cage: GFN2-xTB's error for a fullerene is a class of its own (on xTB geometries every
-    # fullerene of the film set sits 0.3-0.5 eV off the planar-π line in LUMO, all alike), fitted as a term
+    # fullerene of the film set sits 0.4-0.6 eV off the planar-π line in LUMO, all alike), fitted as a term
     "cage": (_cage, {}),
 }
 
