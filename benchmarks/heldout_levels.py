@@ -1,0 +1,49 @@
+"""Benchmark: film levels of well-known materials, each predicted by a calibration fitted without it.
+
+For every named material of ``models/reference/levels_film.csv`` the whole
+calibration is refitted on the shipped raw values with that structure left out of
+every reference set (:func:`screen.devicevalidation.out_of_sample_levels`), and its
+film HOMO, LUMO and optical gap are printed beside the reference values. These are
+the README's "held-out checks on materials we know well".
+
+Usage::
+
+    .venv/bin/python benchmarks/heldout_levels.py ["PM6 (PBDB-T-2F)" "C60" ...]
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+REPO = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(REPO))
+
+from screen.calibration.reference import canonical, read_reference  # noqa: E402
+from screen.devicevalidation import RAW_PATH, out_of_sample_levels, read_raw  # noqa: E402
+
+#: default materials: polymer donors, fused-ring and fullerene acceptors
+NAMES = ["PM6 (PBDB-T-2F)", "PTB7-Th (PBDTT-FTTE)", "ITIC", "Y6 (BTP-4F)", "C60", "C70",
+         "ICBA (indene-C60 bisadduct)", "ICMA (indene-C60 monoadduct)", "N-methylfulleropyrrolidine"]
+
+
+def main(argv=None) -> int:
+    names = list(argv if argv is not None else sys.argv[1:]) or NAMES
+    raw = read_raw(RAW_PATH)
+    film = read_reference(REPO / "models" / "reference")["film"].set_index("name")
+    missing = [n for n in names if n not in film.index]
+    if missing:
+        print(f"not in levels_film.csv: {', '.join(missing)}", file=sys.stderr)
+        return 2
+    structures = [canonical(film.loc[n, "smiles"]) for n in names]
+    levels = out_of_sample_levels(structures, raw, read_reference(REPO / "models" / "reference"))
+    print(f"held-out film levels [eV] ({RAW_PATH.parent.name}): predicted HOMO / LUMO / gap  |  reference")
+    for name, can in zip(names, structures):
+        p, ref = levels.loc[can], film.loc[name]
+        print(f"  {name[:30]:30s} {p['homo_ev']:6.2f} {p['lumo_ev']:6.2f} {p['gap_opt_ev']:5.2f}  |  "
+              f"{float(ref['homo_ev']):6.2f} {float(ref['lumo_ev']):6.2f} {float(ref['gap_opt_ev']):5.2f}")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
