@@ -30,13 +30,14 @@ NAMES = ["PM6 (PBDB-T-2F)", "PTB7-Th (PBDTT-FTTE)", "ITIC", "Y6 (BTP-4F)", "C60"
 def main(argv=None) -> int:
     names = list(argv if argv is not None else sys.argv[1:]) or NAMES
     raw = read_raw(RAW_PATH)
-    film = read_reference(REPO / "models" / "reference")["film"].set_index("name")
+    sets = read_reference(REPO / "models" / "reference")
+    film = sets["film"].set_index("name")
     missing = [n for n in names if n not in film.index]
     if missing:
         print(f"not in levels_film.csv: {', '.join(missing)}", file=sys.stderr)
         return 2
     structures = [canonical(film.loc[n, "smiles"]) for n in names]
-    levels = out_of_sample_levels(structures, raw, read_reference(REPO / "models" / "reference"))
+    levels = out_of_sample_levels(structures, raw, sets)
     print(f"held-out film levels [eV] ({RAW_PATH.parent.name}): predicted HOMO / LUMO / gap  |  reference")
     for name, can in zip(names, structures):
         p, ref = levels.loc[can], film.loc[name]

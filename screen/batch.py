@@ -94,9 +94,9 @@ def run_journalled(items: Iterable, key: Callable, compute: Callable[[object], d
     items = list(items)
     if cache is not None and done:  # a kill after the last journal line, before its store write
         last = next(reversed(done))
-        for item in items:
-            if key(item) == last:
-                cache.keep(item, done[last])
+        item = next((it for it in items if key(it) == last), None)
+        if item is not None:
+            cache.keep(item, done[last])
     todo = [item for item in items if key(item) not in done]
     for i, item in enumerate(todo, 1):
         rec = journalled(item, key, compute, journal, done, cache)

@@ -48,15 +48,17 @@ def _fused_systems(rings: list[set[int]]) -> list[list[set[int]]]:
     return systems
 
 
-def euler_characteristic(mol: Chem.Mol) -> int:
+def euler_characteristic(mol: Chem.Mol, rings=None) -> int:
     """V − E + F of the molecule's largest fused ring system (symmetrised SSSR; 0 without rings).
+
+    ``rings``: the molecule's symmetrised SSSR when the caller has it already.
 
     Examples
     --------
     >>> euler_characteristic(Chem.MolFromSmiles("c1ccc2ccccc2c1"))  # 10 atoms, 11 bonds, 2 rings
     1
     """
-    rings = [set(r) for r in Chem.GetSymmSSSR(mol)]
+    rings = [set(r) for r in (Chem.GetSymmSSSR(mol) if rings is None else rings)]
     best: tuple[int, int] | None = None
     for system in _fused_systems(rings):
         atoms = set().union(*system)
@@ -76,9 +78,9 @@ def closed_cage(mol: Chem.Mol) -> bool:
     """
     if mol is None or mol.GetNumAtoms() < 20:
         return False
-    pentagons = sum(1 for r in Chem.GetSymmSSSR(mol)
-                    if len(r) == 5 and all(mol.GetAtomWithIdx(i).GetAtomicNum() == 6 for i in r))
-    return pentagons >= 12 and euler_characteristic(mol) == 2
+    rings = [tuple(r) for r in Chem.GetSymmSSSR(mol)]
+    pentagons = sum(1 for r in rings if len(r) == 5 and all(mol.GetAtomWithIdx(i).GetAtomicNum() == 6 for i in r))
+    return pentagons >= 12 and euler_characteristic(mol, rings) == 2
 
 
 @lru_cache(maxsize=65536)
