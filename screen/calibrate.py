@@ -22,9 +22,10 @@ engine, method; polymers as oligomers extrapolated to the chain limit):
 Every model is validated by LOO and by a grouped hold-out that leaves out one
 material family at a time (:mod:`screen.calibration.validation`); both are stored
 in the model files and in ``statistics.csv``. σ of a prediction is the model's
-prediction interval (it grows with the distance from the reference data) and, for
-a polymer, the spread of its chain-limit extrapolation propagated through the
-model's coefficients. Electrochemical values are brought to one ferrocene
+prediction interval (it grows with the distance from the reference data), for
+a polymer the spread of its chain-limit extrapolation, and the molecule's conformer
+spread (:mod:`screen.conformer_spread`), both propagated through the model's
+coefficients. Electrochemical values are brought to one ferrocene
 convention (Fc at −4.8 eV) first. A reference row with a non-empty
 ``exclude_reason`` stays in its file but is not fitted.
 
@@ -54,6 +55,7 @@ import numpy as np
 import pandas as pd
 
 from screen.calibration.film import fit_film_level
+from screen.conformer_spread import conformer_sigma
 from screen.calibration.linear import (MIN_GAIN_EV, CalibrationError, FilmShift, LinearLevelModel, feature_matrix,
                                        raw_weights)
 from screen.calibration.optical import fit_gap
@@ -294,11 +296,13 @@ def _chain_sigma(frame: pd.DataFrame, features: list[str], coef) -> np.ndarray:
 
 
 def _predict(frame: pd.DataFrame, record: dict, **indicators) -> tuple[np.ndarray, np.ndarray]:
-    """Mean and σ of a linear/joint model record: prediction interval ⊕ chain-limit spread."""
+    """Mean and σ of a linear/joint model record: prediction interval ⊕ chain-limit spread ⊕ conformer spread."""
     model = LinearLevelModel.from_dict(record["model"])
     data = frame.assign(**{k: float(v) for k, v in indicators.items()})
     mean, std = model.predict(feature_matrix(data, model.features), return_std=True)
-    return mean, np.hypot(std, _chain_sigma(frame, model.features, model.coef_))
+    own = np.hypot(_chain_sigma(frame, model.features, model.coef_),
+                   conformer_sigma(frame, raw_weights(model.features, model.coef_)))
+    return mean, np.hypot(std, own)
 
 
 def _film_level(frame: pd.DataFrame, record: dict, gas: tuple[np.ndarray, np.ndarray]) -> tuple:

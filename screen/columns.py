@@ -5,7 +5,7 @@ See ``docs/contracts.md`` for what each column means, its unit and its scale.
 
 from __future__ import annotations
 
-__all__ = ["RAW_COLUMNS", "EXTRA_RAW_COLUMNS", "ELECTRONIC_COLUMNS", "CALIBRATED_COLUMNS", "LEVELS_CONTRACT_COLUMNS",
+__all__ = ["RAW_COLUMNS", "EXTRA_RAW_COLUMNS", "CONFORMER_SPREAD_COLUMNS", "ELECTRONIC_COLUMNS", "CALIBRATED_COLUMNS", "LEVELS_CONTRACT_COLUMNS",
            "LEVELS_MIN_COLUMNS", "SIGMA_COLUMNS", "RANKING_COLUMNS", "RANKING_EXTRA_COLUMNS"]
 
 #: raw engine values of ``levels.csv`` (ΔSCF IP/EA and orbital energies of the neutral) [eV]
@@ -15,12 +15,16 @@ RAW_COLUMNS = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_
 #: ΔSCF IP and EA in a dielectric continuum of ε = ``electronic.film_epsilon`` [eV]
 EXTRA_RAW_COLUMNS = ["xtb_k_hl_ev", "xtb_j_hl_ev", "xtb_overlap_hl", "xtb_ip_film_ev", "xtb_ea_film_ev"]
 
+#: conformer spread of the neutral's frontier orbital energies over the ranked conformers [eV] and the number of
+#: conformers behind it (:mod:`screen.conformer_spread`; NaN/1 = a single conformer, nothing to compare)
+CONFORMER_SPREAD_COLUMNS = ["conf_spread_homo_ev", "conf_spread_lumo_ev", "conf_spread_gap_ev", "conf_spread_n"]
+
 #: columns of the per-shard electronic table (``work/<batch>/electronic/shard-NNN.csv``)
 ELECTRONIC_COLUMNS = (["key", "status", "error"] + RAW_COLUMNS + EXTRA_RAW_COLUMNS
                       + ["xtb_energy_eh", "xtb_cation_eh", "xtb_anion_eh", "xtb_energy_film_eh",
                          "xtb_cation_film_eh", "xtb_anion_film_eh", "scf_rungs", "n_atoms", "sp_wall_s",
                          "electronic_note", "smiles_computed", "truncated_chains", "truncated_groups",
-                         "n_conformers", "forcefield", "geometry", "structure_wall_s"])
+                         "n_conformers", *CONFORMER_SPREAD_COLUMNS, "forcefield", "geometry", "structure_wall_s"])
 #: calibrated values of ``levels.csv`` [eV], with their σ and the scale of homo/lumo/gap_opt
 CALIBRATED_COLUMNS = ["ip_ev", "ea_ev", "gap_fund_ev", "homo_ev", "lumo_ev", "gap_opt_ev",
                       "ip_sigma_ev", "ea_sigma_ev", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev", "scale"]

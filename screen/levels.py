@@ -23,7 +23,8 @@ molecule. Added columns: ``chain_n_max`` (longest oligomer computed),
 (``good``/``poor`` over :data:`QUALITY_QUANTITIES`; a poor fit adds a ``chain_fit_poor``
 item to ``note``) and
 ``chain_spread_<quantity>`` (:attr:`~screen.extrapolate.ChainFit.spread_ev`, which
-the calibration adds to the σ). The per-n values and every fit's details go to
+the calibration adds to the σ); the conformer-spread columns are those of the
+longest oligomer that has one (:mod:`screen.conformer_spread`). The per-n values and every fit's details go to
 the sidecar ``levels.oligomers.csv`` (:func:`chain_limits`).
 
 References
@@ -52,8 +53,8 @@ from collections.abc import Iterable
 import numpy as np
 import pandas as pd
 
-from screen.columns import (CALIBRATED_COLUMNS, ELECTRONIC_COLUMNS, LEVELS_CONTRACT_COLUMNS, LEVELS_MIN_COLUMNS,
-                            RAW_COLUMNS)
+from screen.columns import (CALIBRATED_COLUMNS, CONFORMER_SPREAD_COLUMNS, ELECTRONIC_COLUMNS, LEVELS_CONTRACT_COLUMNS,
+                            LEVELS_MIN_COLUMNS, RAW_COLUMNS)
 from screen.io import read_csv_checked
 
 #: leading columns of levels.csv, in order (:data:`screen.columns.LEVELS_CONTRACT_COLUMNS`)
@@ -114,10 +115,23 @@ def _one_polymer(pkey: str, group: pd.DataFrame, elec: pd.DataFrame, quantities:
         side.append({"polymer_key": pkey, "polymer_id": pid, "quantity": q, "n": "inf", "status": "ok",
                      "value": fit.limit_ev, "method": fit.method, "rms": fit.rms_ev, "spread": fit.spread_ev,
                      "quality": fit.quality, **{k: fit.candidates.get(k) for k in _SHORT}})
+    row.update(_longest_spread(found[ok], n))
     row["chain_fit"] = " ".join(methods)
     row["chain_fit_quality"] = "poor" if poor else "good"
     row["_poor"] = poor
     return row, side
+
+
+def _longest_spread(found: pd.DataFrame, n: np.ndarray) -> dict:
+    """The conformer spread of the longest oligomer that has one (:mod:`screen.conformer_spread`); NaN if none."""
+    cols = CONFORMER_SPREAD_COLUMNS
+    if cols[0] not in found:
+        return {}
+    spread = found[cols].apply(pd.to_numeric, errors="coerce").to_numpy(float)
+    for i in np.argsort(-n, kind="stable"):
+        if np.isfinite(spread[i, 0]):
+            return dict(zip(cols, spread[i].tolist()))
+    return {c: np.nan for c in cols}
 
 
 def chain_limits(electronic: pd.DataFrame, oligomers: pd.DataFrame,

@@ -60,6 +60,7 @@ from rdkit.Chem import AllChem, rdMolDescriptors
 
 from screen.batch import molecule_caller, run_journalled
 from screen.cage import closed_cage
+from screen.conformer_spread import SPREAD_COLUMNS, SPREAD_COUNT_COLUMN, spread_record
 from screen.constants import BOHR_ANGSTROM
 from screen.engines import SCF_LADDER, Engine, EngineError, make_engine
 from screen.io import Journal, Progress, atomic_path, write_csv
@@ -84,7 +85,8 @@ __all__ = [
 #: columns of the per-shard structures status table
 STATUS_COLUMNS = ["key", "status", "error", "smiles_computed", "truncated_chains", "truncated_groups", "n_conformers",
                   "embedding",
-                  "forcefield", "geometry", "xtb_rank_energy_eh", "opt_converged", "wall_s"]
+                  "forcefield", "geometry", "xtb_rank_energy_eh", *SPREAD_COLUMNS.values(), SPREAD_COUNT_COLUMN,
+                  "opt_converged", "wall_s"]
 
 
 def _atom_count(mol: Chem.Mol) -> int:
@@ -381,8 +383,9 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     ids, embedding, ff, ff_energies = _sane_conformers(mol_h, conformer_count(mol, options), options)
     ranked = _prefilter(ids, ff_energies, ranked_count(len(numbers), options), options)
     engine = engine or make_engine("tblite", options.ranking_method)
-    best_id, best_e, best_sp = _rank_by_xtb(mol_h, numbers, ranked, engine, warm_start=options.rank_warm_start,
-                                            screen_accuracy=options.rank_scf_accuracy)
+    best_id, best_e, best_sp, spread = _rank_by_xtb(mol_h, numbers, ranked, engine,
+                                                    warm_start=options.rank_warm_start,
+                                                    screen_accuracy=options.rank_scf_accuracy)
     conf = Chem.Conformer(mol_h.GetConformer(best_id))
     conf.SetId(0)
     out = Chem.Mol(mol_h)
@@ -414,6 +417,7 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
         "forcefield": ff,
         "geometry": geometry,
         "xtb_rank_energy_eh": best_e,
+        **spread,
         "opt_converged": opt_converged,
         "wall_s": time.perf_counter() - start,
     }
@@ -473,10 +477,13 @@ RECHECK_WINDOW_EH = 1e-4
 
 def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine: Engine, *,
                  warm_start: bool = False, screen_accuracy: float | None = None):
-    """The conformer of lowest xTB energy among ``ranked``, that energy [Eh] and its single point.
+    """The conformer of lowest xTB energy among ``ranked``, that energy [Eh], its single point, the spread.
 
     A single candidate needs no ranking: it is returned with a NaN energy, no
-    single point and no xTB call (the electronic stage computes it anyway).
+    single point, no spread and no xTB call (the electronic stage computes it anyway).
+    The spread (:func:`screen.conformer_spread.spread_record`) is taken over every
+    converged conformer at one SCF accuracy (the loose one when ``screen_accuracy``
+    is given).
 
     ``warm_start`` starts each SCF from the previous conformer's converged result
     (same atoms): same converged energies, sometimes fewer SCF cycles (little
@@ -500,7 +507,7 @@ def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine
     (True, True)
     """
     if len(ranked) == 1:
-        return ranked[0], float("nan"), None
+        return ranked[0], float("nan"), None, {**spread_record([]), SPREAD_COUNT_COLUMN: 1}
     ladder = SCF_LADDER
     if screen_accuracy is not None:
         ladder = tuple({**rung, "accuracy": float(screen_accuracy)} for rung in SCF_LADDER)
@@ -512,6 +519,7 @@ def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine
                                                          guess=previous if warm_start else None)
         except EngineError as exc:
             errors.append(str(exc))
+    spread = spread_record(results[cid] for cid in ranked if cid in results)
     if screen_accuracy is not None and results:
         lowest = min(sp.energy_eh for sp in results.values())
         loose, results = results, {}
@@ -527,7 +535,7 @@ def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine
             best_id, best_e = cid, results[cid].energy_eh
     if best_id is None:
         raise EngineError(f"no conformer gave a converged xTB energy: {errors[0] if errors else 'unknown'}")
-    return best_id, float(best_e), results[best_id]
+    return best_id, float(best_e), results[best_id], spread
 
 
 def _molblock_and_info(mol: Chem.Mol, info: dict) -> tuple[str, dict]:

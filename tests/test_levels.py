@@ -89,3 +89,20 @@ def test_fixed_red_shift_record_subtracts_delta_on_the_film_scale(models):
     gas = apply_models(frame, both, scale="gas")
     assert np.allclose(gas.gap_opt_ev - film.gap_opt_ev, 0.2, atol=2e-4)
     assert np.allclose(gas.gap_opt_sigma_ev, film.gap_opt_sigma_ev)
+
+
+def test_conformer_spread_widens_sigma_through_the_orbital_proxy(models):
+    # the ΔSCF IP (gas and film) is lent the spread of −ε_HOMO, the EA that of −ε_LUMO (screen.conformer_spread)
+    frame = _rows(rows=[{}, {"id": "floppy", "conf_spread_homo_ev": 0.1, "conf_spread_lumo_ev": 0.2,
+                             "conf_spread_gap_ev": 0.05}, {"id": "old record", "conf_spread_homo_ev": np.nan}])
+    out = apply_models(frame, models, scale="film")
+    rigid, floppy, unknown = out.iloc[0], out.iloc[1], out.iloc[2]
+    w_ip = models["ip"]["model"]["coef"][0]
+    assert floppy.ip_sigma_ev == pytest.approx(np.hypot(rigid.ip_sigma_ev, w_ip * 0.1), abs=2e-4)
+    w_ea = models["ea"]["model"]["coef"][0]
+    assert floppy.ea_sigma_ev == pytest.approx(np.hypot(rigid.ea_sigma_ev, w_ea * 0.2), abs=2e-4)
+    w_film = models["homo_film"]["model"]["coef"][0]
+    assert floppy.homo_sigma_ev == pytest.approx(np.hypot(rigid.homo_sigma_ev, w_film * 0.1), abs=2e-4)
+    w_gap = models["gap_opt_film"]["model"]["coef"][0]
+    assert floppy.gap_opt_sigma_ev == pytest.approx(np.hypot(rigid.gap_opt_sigma_ev, w_gap * 0.05), abs=2e-4)
+    assert unknown.homo_sigma_ev == rigid.homo_sigma_ev and floppy.homo_ev == rigid.homo_ev  # NaN adds nothing
