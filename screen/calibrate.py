@@ -54,6 +54,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from screen.calibration.domain import domain_variance, fit_domain, nearest_similarity, reference_similarity
 from screen.calibration.film import fit_film_level
 from screen.conformer_spread import conformer_sigma
 from screen.calibration.linear import (MIN_GAIN_EV, CalibrationError, FilmShift, LinearLevelModel, feature_matrix,
@@ -175,7 +176,17 @@ def fit_all(sets: dict[str, pd.DataFrame], computed: pd.DataFrame, exclude=None)
     models["gap_opt"], models["gap_opt_film"] = fit_gap(sets, computed, exclude)
     for level, gas in (("homo", "ip"), ("lumo", "ea")):
         models[f"{level}_film"] = fit_film_level(level, sets["film"], computed, models[gas], exclude, sets[gas])
+    for record in models.values():
+        if "model" in record and record.get("residuals"):
+            record["domain"] = _domain(record["residuals"])
     return {name: models[name] for name in MODEL_NAMES}
+
+
+def _domain(residuals: list[dict]) -> dict:
+    """The applicability-domain variance model of one record (:func:`screen.calibration.domain.fit_domain`)."""
+    smiles = [r["smiles"] for r in residuals]
+    loo = np.array([r["loo_ev"] - r["measured_ev"] for r in residuals], float)
+    return fit_domain(reference_similarity(smiles), loo)
 
 
 #: columns of ``reference_raw.csv``: what a refit needs without recomputation
@@ -300,6 +311,11 @@ def _predict(frame: pd.DataFrame, record: dict, **indicators) -> tuple[np.ndarra
     model = LinearLevelModel.from_dict(record["model"])
     data = frame.assign(**{k: float(v) for k, v in indicators.items()})
     mean, std = model.predict(feature_matrix(data, model.features), return_std=True)
+    domain = record.get("domain", {})
+    if domain.get("kind") == "similarity" and "smiles" in frame:  # σ_d(s)² + σ_res²·leverage
+        leverage = (std / model.sigma_) ** 2 - 1.0
+        similarity = nearest_similarity(list(frame["smiles"]), [r["smiles"] for r in record["residuals"]])
+        std = np.sqrt(domain_variance(domain, similarity) + model.sigma_**2 * leverage)
     own = np.hypot(_chain_sigma(frame, model.features, model.coef_),
                    conformer_sigma(frame, raw_weights(model.features, model.coef_)))
     return mean, np.hypot(std, own)

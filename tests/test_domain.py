@@ -1,0 +1,73 @@
+"""Applicability-domain σ (screen.calibration.domain) on synthetic residuals and on the shipped models.
+
+Check values: the one-σ coverage of a normal distribution is 68.3 % (standard normal table, common practice);
+Sheridan et al., J. Chem. Inf. Comput. Sci. 44 (2004) 1912 (abstract read) found prediction errors grow as
+similarity to the training set falls — the property the shipped EA and film-LUMO models are checked for.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from screen.calibrate import apply_models, find_models, load_models
+from screen.calibration.domain import domain_variance, fit_domain, nearest_similarity, reference_similarity
+from screen.config import load_config
+
+
+@pytest.fixture(scope="module")
+def cfg(repo_dir):
+    return load_config(repo_dir / "config" / "config.yaml",
+                       {"calibration": {"models": str(repo_dir / "models"),
+                                        "reference": str(repo_dir / "models" / "reference")}})
+
+
+@pytest.fixture(scope="module")
+def models(cfg):
+    return load_models(find_models(cfg), cfg)
+
+
+def test_variance_model_recovers_a_similarity_trend_and_refuses_noise():
+    rng = np.random.default_rng(11)
+    s = rng.uniform(0.2, 1.0, 300)
+    sd = np.sqrt(np.exp(-4.0 + 3.0 * (1 - s)))
+    trend = fit_domain(s, rng.normal(0.0, sd))
+    assert trend["kind"] == "similarity" and trend["beta"] == pytest.approx(3.0, abs=0.8)
+    assert trend["alpha"] == pytest.approx(-4.0, abs=0.4)
+    flat = fit_domain(s, rng.normal(0.0, 0.2, 300))
+    assert flat["kind"] == "constant" and flat["beta"] == 0.0
+    assert np.sqrt(domain_variance(flat, [0.1, 0.9])) == pytest.approx([0.2, 0.2], abs=0.02)
+
+
+def test_similarity_ignores_alkyl_chain_length_and_attachment_points():
+    sims = nearest_similarity(["CCCCCCCCc1ccc(-c2cccs2)s1", "[*]c1ccc([*])s1", "c1ccc2ccccc2c1"],
+                              ["Cc1ccc(-c2cccs2)s1", "c1ccsc1"])
+    assert sims[0] == 1.0 and sims[1] == 1.0 and sims[2] < 0.2
+    # a reference row is compared with the rows of other structures only (its own gas/film twin is not a neighbour)
+    assert list(reference_similarity(["c1ccsc1", "c1ccsc1"])) == [0.0, 0.0]
+
+
+@pytest.mark.parametrize("name", ["ea", "lumo_film"])
+def test_shipped_models_widen_sigma_away_from_the_reference_data(models, name):
+    dom = models[name]["domain"]
+    assert dom["kind"] == "similarity" and dom["beta"] > 1.0
+    assert dom["loo_nlpd_similarity"] < dom["loo_nlpd_constant"]
+    far, near = np.sqrt(domain_variance(dom, [0.2, 0.9]))
+    assert far > 2 * near
+
+
+def test_shipped_domain_sigma_covers_about_one_sigma_of_loo_residuals(models):
+    for name, m in models.items():
+        if "domain" in m:
+            assert 0.55 <= m["domain"]["within_one_sigma"] <= 0.85, name  # 68 % for a normal distribution
+
+
+def test_candidate_sigma_depends_on_its_structure_not_only_its_raw_values(models, repo_dir, cfg):
+    raw = pd.read_csv(find_models(cfg) / "reference_raw.csv", keep_default_na=False, na_values=[""])
+    row = raw[raw["name"].eq("ITIC")].iloc[:1].assign(status="ok", representation="molecule")
+    # same raw values, a structure unlike anything in the reference sets (a boron-nitrogen heterocycle)
+    exotic = row.assign(name="exotic", smiles="B1(c2ccccc2)N(c2ccccc2)B(c2ccccc2)N1c1ccccc1")
+    out = apply_models(pd.concat([row, exotic], ignore_index=True), models)
+    assert out.loc[1, "lumo_sigma_ev"] > out.loc[0, "lumo_sigma_ev"] + 0.1
+    assert out.loc[1, "lumo_ev"] == out.loc[0, "lumo_ev"]  # σ only: the values do not depend on similarity
