@@ -49,6 +49,16 @@ def repo_dir() -> Path:
     return REPO
 
 
+@pytest.fixture(scope="module")
+def cfg(repo_dir):
+    """The default configuration with the repository's shipped models and reference sets."""
+    from screen.config import load_config
+
+    return load_config(repo_dir / "config" / "config.yaml",
+                       {"calibration": {"models": str(repo_dir / "models"),
+                                        "reference": str(repo_dir / "models" / "reference")}})
+
+
 @pytest.fixture(scope="session", autouse=True)
 def _no_results_store():
     """Runs started by the tests use no results store unless a test names one (DASCREEN_STORE): tests stay

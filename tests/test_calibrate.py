@@ -63,13 +63,6 @@ LOO_MAE_MAX_EV = {"ip": 0.19, "ea": 0.26, "gap_opt": 0.20, "homo_film": 0.19, "l
 
 
 @pytest.fixture(scope="module")
-def cfg(repo_dir):
-    return load_config(repo_dir / "config" / "config.yaml",
-                       {"calibration": {"models": str(repo_dir / "models"),
-                                        "reference": str(repo_dir / "models" / "reference")}})
-
-
-@pytest.fixture(scope="module")
 def shipped(cfg):
     folder = find_models(cfg)
     if folder is None:

@@ -13,14 +13,6 @@ import pytest
 
 from screen.calibrate import apply_models, find_models, load_models
 from screen.calibration.domain import domain_variance, fit_domain, nearest_similarity, reference_similarity
-from screen.config import load_config
-
-
-@pytest.fixture(scope="module")
-def cfg(repo_dir):
-    return load_config(repo_dir / "config" / "config.yaml",
-                       {"calibration": {"models": str(repo_dir / "models"),
-                                        "reference": str(repo_dir / "models" / "reference")}})
 
 
 @pytest.fixture(scope="module")
