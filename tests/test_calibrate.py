@@ -15,7 +15,6 @@ from screen.calibrate import (MODEL_NAMES, CalibrationError, CalibrationMismatch
                               find_models, fit_all, load_models, read_reference, stats_table)
 from screen.calibration.optical import RED_SHIFT_RANGE_EV
 from screen.calibration.validation import raw_at_n
-from screen.config import load_config
 from screen.errors import CalculationError, ConfigError, exit_code
 
 # Published gas-phase values (the rows of models/reference/*.csv, where each has its source):
