@@ -346,7 +346,9 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "fi
     -------
     pandas.DataFrame
         Copy with ``ip_ev, ea_ev, gap_fund_ev, homo_ev, lumo_ev, gap_opt_ev``,
-        their σ columns and ``scale`` filled for computed rows.
+        their σ columns and ``scale`` filled for computed rows, and
+        ``reference_similarity``: the nearest-neighbour fingerprint similarity to
+        any reference row of the models (:func:`screen.calibration.domain.nearest_similarity`).
     """
     if scale not in ("film", "gas"):
         raise ConfigError(f"levels.scale must be 'film' or 'gas', not {scale!r}")
@@ -370,6 +372,10 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "fi
         out.loc[ok, col] = np.round(arr, 4)
     out["scale"] = ""
     out.loc[ok, "scale"] = scale
+    out["reference_similarity"] = np.nan
+    if "smiles" in out:
+        refs = sorted({r["smiles"] for m in models.values() for r in m.get("residuals", [])})
+        out.loc[ok, "reference_similarity"] = np.round(nearest_similarity(list(sub["smiles"]), refs), 3)
     return out
 
 

@@ -37,9 +37,14 @@ import numpy as np
 from screen.io import cell_number
 
 __all__ = ["Flag", "FLAGS", "FLAG_ORDER", "INFO_FLAGS", "NOT_VIABLE_FLAGS", "DEVICE_FLAGS", "describe", "is_info",
-           "is_not_viable", "codes_of", "reason_of", "join_flags", "SEVERITIES"]
+           "is_not_viable", "codes_of", "reason_of", "join_flags", "SEVERITIES",
+           "FAR_FROM_REFERENCE_SIMILARITY"]
 
 SEVERITIES = ("not_viable", "fail", "info")
+#: ``far_from_reference`` below this nearest-neighbour similarity to the calibration's reference rows
+#: (``reference_similarity`` of levels.csv): there the film-LUMO and EA models' leave-one-out errors are
+#: ≈ 0.5 eV RMS against ≈ 0.2 eV above 0.6 (benchmarks/sigma_domain.py)
+FAR_FROM_REFERENCE_SIMILARITY = 0.30
 
 
 @dataclass(frozen=True)
@@ -100,6 +105,8 @@ _REGISTRY = (
     Flag("donor_only_model", "published donor-only model: only the donor absorbs and only the LUMO offset is "
                              "checked", "info"),
     Flag("heavy_atoms_unknown", "heavy-atom count unknown, so the size limit could not be checked", "info"),
+    Flag("far_from_reference", "unlike every reference material of the calibration (fingerprint similarity "
+                               "below 0.30): its levels are extrapolated and carry a wide σ", "info"),
     Flag("role_from_levels", "no role given; evaluated in the role its levels support against the partner "
                              "(type-II alignment)", "info"),
     Flag("role_assumed", "role not given in the input; assumed to complement the partner", "info"),

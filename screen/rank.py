@@ -57,6 +57,7 @@ from screen.device import DeviceModel
 from screen.errors import ConfigError, ScaleMismatchError
 from screen.flags import (
     DEVICE_FLAGS,
+    FAR_FROM_REFERENCE_SIMILARITY,
     FLAG_ORDER,
     INFO_FLAGS,
     NOT_VIABLE_FLAGS,
@@ -441,9 +442,17 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "gap_out_of_window": gap_out,
         "too_many_heavy_atoms": heavy_out,
         "heavy_atoms_unknown": heavy_unknown,
+        "far_from_reference": _far_from_reference(lv),
         "role_from_levels": roles.role_from_levels,
         "role_assumed": roles.role_assumed,
     }
+
+
+def _far_from_reference(levels: pd.DataFrame) -> np.ndarray:
+    """Rows whose ``reference_similarity`` (a run's own levels) is below :data:`FAR_FROM_REFERENCE_SIMILARITY`."""
+    sim = _numeric(levels, "reference_similarity")
+    with np.errstate(invalid="ignore"):
+        return sim < FAR_FROM_REFERENCE_SIMILARITY
 
 
 def _computed_by_dascreen(levels: pd.DataFrame) -> bool:

@@ -63,3 +63,4 @@ def test_candidate_sigma_depends_on_its_structure_not_only_its_raw_values(models
     out = apply_models(pd.concat([row, exotic], ignore_index=True), models)
     assert out.loc[1, "lumo_sigma_ev"] > out.loc[0, "lumo_sigma_ev"] + 0.1
     assert out.loc[1, "lumo_ev"] == out.loc[0, "lumo_ev"]  # σ only: the values do not depend on similarity
+    assert out.loc[0, "reference_similarity"] == 1.0 and out.loc[1, "reference_similarity"] < 0.3

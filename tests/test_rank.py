@@ -244,6 +244,19 @@ def test_gap_window_and_heavy_atom_filters(partner):
     assert _flags(r, "nosmiles") == set()
 
 
+def test_far_from_reference_is_an_info_flag_from_the_similarity_column(partner):
+    rows = [{"id": "far", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "reference_similarity": 0.21},
+            {"id": "near", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "reference_similarity": 0.74},
+            {"id": "unknown", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "reference_similarity": None}]
+    r = rank_candidates(_levels(rows, role="donor"), partner).set_index("id")
+    assert "far_from_reference" in r.loc["far", "flags"] and r.loc["far", "passes"]
+    assert "far_from_reference" not in r.loc["near", "flags"] + r.loc["unknown", "flags"]
+    # a user's own levels file without the column: no flag
+    r = rank_candidates(_levels([{k: v for k, v in rows[0].items() if k != "reference_similarity"}], role="donor"),
+                        partner)
+    assert "far_from_reference" not in r.loc[0, "flags"]
+
+
 def test_partner_without_role_takes_the_complement(tmp_path):
     path = tmp_path / "acc.csv"
     pd.DataFrame([{"id": "mine", "homo_ev": -6.0, "lumo_ev": -4.3, "gap_opt_ev": 1.7, "scale": "film"}]
