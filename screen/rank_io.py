@@ -334,7 +334,25 @@ def _calibration_stats(folder: Path | None) -> dict:
             continue
         if isinstance(model, dict) and "loo_mae_ev" in model:
             out[path.stem] = {k: model.get(k) for k in ("n", "loo_mae_ev", "loo_rmse_ev", "scale")}
+            out[path.stem].update(_sigma_range(model))
     return out
+
+
+#: nearest-neighbour similarities at which the report quotes a model's σ: a close analogue and an outsider
+SIGMA_SIMILARITIES = {"sigma_near_ev": 0.9, "sigma_far_ev": 0.2}
+
+
+def _sigma_range(model: dict) -> dict:
+    """σ [eV] of a model at :data:`SIGMA_SIMILARITIES` (the same twice for a constant variance); {} if unknown."""
+    domain = model.get("domain") if isinstance(model.get("domain"), dict) else {}
+    try:
+        if domain.get("kind") == "similarity":
+            return {k: math.sqrt(math.exp(domain["alpha"] + domain["beta"] * (1.0 - s)))
+                    for k, s in SIGMA_SIMILARITIES.items()}
+        sigma = float(model["model"]["residual_sigma_ev"]) if "model" in model else float(model["sigma_ev"])
+    except (KeyError, TypeError, ValueError):
+        return {}
+    return dict.fromkeys(SIGMA_SIMILARITIES, sigma)
 
 
 def _write_report(ranking, levels, partner, meta, out_dir, ranking_csv: str | None = None) -> str:

@@ -130,14 +130,19 @@ def _calibration_table(cal) -> str:
     for name, entry in cal.items():
         n = _stat(entry, "n")
         mae, rmse = _stat(entry, "loo_mae_ev"), _stat(entry, "loo_rmse_ev")
+        near, far = _stat(entry, "sigma_near_ev"), _stat(entry, "sigma_far_ev")
         rows.append(
             f"<tr><td>{esc(_CALIBRATION_LABELS.get(text(name), text(name)))}</td>"
             f'<td class="num">{"" if math.isnan(n) else int(n)}</td>'
             f'<td class="num">{fmt(mae, 3) if not math.isnan(mae) else NOT_RECORDED}</td>'
-            f'<td class="num">{fmt(rmse, 3) if not math.isnan(rmse) else NOT_RECORDED}</td></tr>')
-    return ('<table class="mini"><caption>Calibration, leave-one-out errors</caption><thead><tr>'
+            f'<td class="num">{fmt(rmse, 3) if not math.isnan(rmse) else NOT_RECORDED}</td>'
+            f'<td class="num">{fmt(near, 2) if not math.isnan(near) else NOT_RECORDED}</td>'
+            f'<td class="num">{fmt(far, 2) if not math.isnan(far) else NOT_RECORDED}</td></tr>')
+    return ('<table class="mini"><caption>Calibration, leave-one-out errors, and σ for a close analogue of the '
+            'reference materials (similarity 0.9) and an outsider (0.2)</caption><thead><tr>'
             '<th scope="col">Model</th><th scope="col">n</th><th scope="col">MAE [eV]</th>'
-            '<th scope="col">RMSE [eV]</th></tr></thead><tbody>' + "".join(rows) + "</tbody></table>")
+            '<th scope="col">RMSE [eV]</th><th scope="col">σ near [eV]</th><th scope="col">σ far [eV]</th>'
+            '</tr></thead><tbody>' + "".join(rows) + "</tbody></table>")
 
 
 def protocol_card(meta: dict) -> str:
