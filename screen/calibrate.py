@@ -54,7 +54,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from screen.calibration.domain import domain_variance, fit_domain, nearest_similarity, reference_similarity
+from screen.calibration.domain import domain_std, fit_domain, nearest_similarity, reference_similarity
 from screen.calibration.film import fit_film_level
 from screen.conformer_spread import conformer_sigma
 from screen.calibration.linear import (MIN_GAIN_EV, CalibrationError, FilmShift, LinearLevelModel, feature_matrix,
@@ -311,11 +311,9 @@ def _predict(frame: pd.DataFrame, record: dict, **indicators) -> tuple[np.ndarra
     model = LinearLevelModel.from_dict(record["model"])
     data = frame.assign(**{k: float(v) for k, v in indicators.items()})
     mean, std = model.predict(feature_matrix(data, model.features), return_std=True)
-    domain = record.get("domain", {})
-    if domain.get("kind") == "similarity" and "smiles" in frame:  # σ_d(s)² + σ_res²·leverage
-        leverage = (std / model.sigma_) ** 2 - 1.0
-        similarity = nearest_similarity(list(frame["smiles"]), [r["smiles"] for r in record["residuals"]])
-        std = np.sqrt(domain_variance(domain, similarity) + model.sigma_**2 * leverage)
+    if "smiles" in frame:
+        std = domain_std(record.get("domain"), model.sigma_, std, frame["smiles"],
+                         [r["smiles"] for r in record["residuals"]])
     own = np.hypot(_chain_sigma(frame, model.features, model.coef_),
                    conformer_sigma(frame, raw_weights(model.features, model.coef_)))
     return mean, np.hypot(std, own)

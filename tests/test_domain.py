@@ -64,3 +64,17 @@ def test_candidate_sigma_depends_on_its_structure_not_only_its_raw_values(models
     assert out.loc[1, "lumo_sigma_ev"] > out.loc[0, "lumo_sigma_ev"] + 0.1
     assert out.loc[1, "lumo_ev"] == out.loc[0, "lumo_ev"]  # σ only: the values do not depend on similarity
     assert out.loc[0, "reference_similarity"] == 1.0 and out.loc[1, "reference_similarity"] < 0.3
+
+
+def test_dye_oxidation_potential_sigma_grows_for_a_dye_unlike_the_reference_dyes(cfg):
+    from screen.dyecell.calibrate import apply_models as dye_apply
+    from screen.dyecell.calibrate import load_models as dye_load
+
+    dye = dye_load(cfg.protocol_id)
+    raw = pd.read_csv(find_models(cfg) / "reference_raw.csv", keep_default_na=False, na_values=[""])
+    row = raw[raw["name"].eq("L1")].iloc[:1].assign(status="ok")
+    exotic = row.assign(smiles="B1(c2ccccc2)N(c2ccccc2)B(c2ccccc2)N1c1ccccc1")
+    out = dye_apply(pd.concat([row, exotic], ignore_index=True), dye)
+    assert dye["e_ox"]["domain"]["kind"] == "similarity"
+    assert out.loc[1, "e_ox_sigma_v"] > out.loc[0, "e_ox_sigma_v"] and out.loc[1, "e_ox_v_nhe"] == out.loc[0, "e_ox_v_nhe"]
+    assert out.loc[1, "e00_sigma_ev"] == out.loc[0, "e00_sigma_ev"]  # E0-0 keeps a constant variance

@@ -51,7 +51,7 @@ from functools import lru_cache
 import numpy as np
 
 __all__ = ["MIN_NLPD_GAIN", "fingerprint", "nearest_similarity", "reference_similarity", "fit_domain",
-           "domain_variance"]
+           "domain_variance", "domain_std"]
 
 #: least LOO improvement of the mean negative log predictive density [nats per residual] for the similarity term
 MIN_NLPD_GAIN = 0.01
@@ -224,3 +224,31 @@ def domain_variance(domain: dict, similarity) -> np.ndarray:
     """σ_d² [eV²] at the given nearest-neighbour similarities."""
     s = np.asarray(similarity, float)
     return np.exp(domain["alpha"] + domain["beta"] * (1.0 - s))
+
+
+def domain_std(domain: dict | None, residual_sigma: float, std: np.ndarray, query_smiles,
+               reference_smiles) -> np.ndarray:
+    """A linear model's σ with the applicability-domain variance in place of its constant residual variance.
+
+    Parameters
+    ----------
+    domain : dict or None
+        The model's ``domain`` entry (:func:`fit_domain`); without one, or of kind
+        ``constant``, ``std`` is returned unchanged.
+    residual_sigma : float
+        The model's residual σ [eV or V].
+    std : numpy.ndarray
+        Its prediction-interval σ, ``residual_sigma·sqrt(1 + h)`` with h the leverage.
+    query_smiles, reference_smiles : sequence of str
+        The predicted rows' structures and the model's reference rows.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``sqrt(σ_d(s)² + residual_sigma²·h)`` with s the nearest-neighbour similarity.
+    """
+    if not domain or domain.get("kind") != "similarity":
+        return std
+    leverage = (np.asarray(std, float) / residual_sigma) ** 2 - 1.0
+    similarity = nearest_similarity(list(query_smiles), list(reference_smiles))
+    return np.sqrt(domain_variance(domain, similarity) + residual_sigma**2 * leverage)

@@ -51,6 +51,7 @@ import numpy as np
 import pandas as pd
 
 from screen.calibrate import LinearLevelModel
+from screen.calibration.domain import domain_std, fit_domain, reference_similarity
 from screen.errors import CalculationError, ConfigError
 from screen.io import read_json, write_json
 from screen.provenance import library_versions, sha256_file
@@ -297,6 +298,7 @@ def fit_target(name: str, data: pd.DataFrame, feature_sets: list[list[str]] | No
         "alternatives": tried, "target_range": [float(y.min()), float(y.max())],
         "residuals": [{"name": nm, "smiles": s, "measured": float(m), "fitted": float(f), "loo": float(lo)}
                       for nm, s, m, f, lo in zip(data["name"], data["smiles"], y, fitted, nested)],
+        "domain": fit_domain(reference_similarity(data["smiles"]), nested - y),
     }
 
 
@@ -430,6 +432,9 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict]) -> pd.DataFrame:
         std = np.full(len(levels), np.nan)
         if good.any():
             mu, sd = model.predict(X[good], return_std=True)
+            if "smiles" in levels:  # wider for dyes unlike the reference dyes (screen.calibration.domain)
+                sd = domain_std(m.get("domain"), model.sigma_, sd, levels["smiles"].to_numpy()[good],
+                                [r["smiles"] for r in m["residuals"]])
             mean[good], std[good] = mu, sd
         lo, hi = m.get("target_range", [-np.inf, np.inf])
         with np.errstate(invalid="ignore"):
