@@ -60,7 +60,7 @@ from rdkit.Chem import AllChem, rdMolDescriptors
 
 from screen.batch import molecule_caller, run_journalled
 from screen.cage import closed_cage
-from screen.conformer_spread import SPREAD_COLUMNS, SPREAD_COUNT_COLUMN, spread_record
+from screen.conformer_spread import RANKING_KEY, SPREAD_COLUMNS, SPREAD_COUNT_COLUMN, ranking_of, spread_columns
 from screen.constants import BOHR_ANGSTROM
 from screen.engines import SCF_LADDER, Engine, EngineError, make_engine
 from screen.io import Journal, Progress, atomic_path, write_csv
@@ -383,7 +383,7 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     ids, embedding, ff, ff_energies = _sane_conformers(mol_h, conformer_count(mol, options), options)
     ranked = _prefilter(ids, ff_energies, ranked_count(len(numbers), options), options)
     engine = engine or make_engine("tblite", options.ranking_method)
-    best_id, best_e, best_sp, spread = _rank_by_xtb(mol_h, numbers, ranked, engine,
+    best_id, best_e, best_sp, ranking = _rank_by_xtb(mol_h, numbers, ranked, engine,
                                                     warm_start=options.rank_warm_start,
                                                     screen_accuracy=options.rank_scf_accuracy)
     conf = Chem.Conformer(mol_h.GetConformer(best_id))
@@ -417,7 +417,7 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
         "forcefield": ff,
         "geometry": geometry,
         "xtb_rank_energy_eh": best_e,
-        **spread,
+        RANKING_KEY: ranking,
         "opt_converged": opt_converged,
         "wall_s": time.perf_counter() - start,
     }
@@ -477,13 +477,13 @@ RECHECK_WINDOW_EH = 1e-4
 
 def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine: Engine, *,
                  warm_start: bool = False, screen_accuracy: float | None = None):
-    """The conformer of lowest xTB energy among ``ranked``, that energy [Eh], its single point, the spread.
+    """The conformer of lowest xTB energy among ``ranked``, that energy [Eh], its single point, the ranking.
 
     A single candidate needs no ranking: it is returned with a NaN energy, no
-    single point, no spread and no xTB call (the electronic stage computes it anyway).
-    The spread (:func:`screen.conformer_spread.spread_record`) is taken over every
-    converged conformer at one SCF accuracy (the loose one when ``screen_accuracy``
-    is given).
+    single point, an empty ranking and no xTB call (the electronic stage computes it anyway).
+    The ranking (:func:`screen.conformer_spread.ranking_of`: energy and frontier orbital
+    energies of every converged conformer, for the conformer spread) is taken at one SCF
+    accuracy (the loose one when ``screen_accuracy`` is given).
 
     ``warm_start`` starts each SCF from the previous conformer's converged result
     (same atoms): same converged energies, sometimes fewer SCF cycles (little
@@ -507,7 +507,7 @@ def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine
     (True, True)
     """
     if len(ranked) == 1:
-        return ranked[0], float("nan"), None, {**spread_record([]), SPREAD_COUNT_COLUMN: 1}
+        return ranked[0], float("nan"), None, []
     ladder = SCF_LADDER
     if screen_accuracy is not None:
         ladder = tuple({**rung, "accuracy": float(screen_accuracy)} for rung in SCF_LADDER)
@@ -519,7 +519,7 @@ def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine
                                                          guess=previous if warm_start else None)
         except EngineError as exc:
             errors.append(str(exc))
-    spread = spread_record(results[cid] for cid in ranked if cid in results)
+    ranking = ranking_of(results[cid] for cid in ranked if cid in results)
     if screen_accuracy is not None and results:
         lowest = min(sp.energy_eh for sp in results.values())
         loose, results = results, {}
@@ -535,7 +535,7 @@ def _rank_by_xtb(mol_h: Chem.Mol, numbers: np.ndarray, ranked: list[int], engine
             best_id, best_e = cid, results[cid].energy_eh
     if best_id is None:
         raise EngineError(f"no conformer gave a converged xTB energy: {errors[0] if errors else 'unknown'}")
-    return best_id, float(best_e), results[best_id], spread
+    return best_id, float(best_e), results[best_id], ranking
 
 
 def _molblock_and_info(mol: Chem.Mol, info: dict) -> tuple[str, dict]:
@@ -594,8 +594,18 @@ def structure_record(key: str, make: Callable[[], tuple[str, dict]]) -> dict:
 
 
 def status_row(rec: dict) -> dict:
-    """A structure record as its row of the status table (:data:`STATUS_COLUMNS`, "" where it has none)."""
-    return {c: rec.get(c, "") for c in STATUS_COLUMNS}
+    """A structure record as its row of the status table (:data:`STATUS_COLUMNS`, "" where it has none).
+
+    The conformer-spread columns are computed here from the record's ranking
+    (:func:`screen.conformer_spread.spread_columns`), so a stored record gives the
+    spread of the current definition; a record without a ranking (stored before it
+    was kept) gives none.
+    """
+    row = {c: rec.get(c, "") for c in STATUS_COLUMNS}
+    row.update(dict.fromkeys([*SPREAD_COLUMNS.values(), SPREAD_COUNT_COLUMN], ""))
+    if rec.get("status") == "ok" and RANKING_KEY in rec:
+        row.update(spread_columns(rec[RANKING_KEY], rec.get("n_ranked", 1)))
+    return row
 
 
 def write_structures(keys, done: dict, out_sdf, out_csv) -> pd.DataFrame:

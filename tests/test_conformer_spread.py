@@ -13,11 +13,12 @@ import pandas as pd
 import pytest
 
 from screen.columns import CONFORMER_SPREAD_COLUMNS, ELECTRONIC_COLUMNS
-from screen.conformer_spread import (SPREAD_TEMPERATURE_K, boltzmann_rms, conformer_sigma, spread_record)
+from screen.conformer_spread import (RANKING_KEY, SPREAD_TEMPERATURE_K, boltzmann_rms, conformer_sigma, ranking_of,
+                                     spread_columns)
 from screen.constants import HARTREE_EV, KB_HARTREE_K
 from screen.engines import SinglePoint
 from screen.levels import chain_limits
-from screen.structures import STATUS_COLUMNS, build_structure
+from screen.structures import STATUS_COLUMNS, build_structure, status_row
 
 KT = KB_HARTREE_K * SPREAD_TEMPERATURE_K  # [Eh]
 
@@ -35,12 +36,23 @@ def _sp(energy, homo_ev, lumo_ev):
                        charge=0, uhf=0, wall_s=0.0, n_electrons=4)
 
 
-def test_spread_record_from_single_points():
-    rec = spread_record([_sp(-10.0, -5.0, -3.0), _sp(-10.0, -5.2, -3.0)])
-    homo, lumo, gap, n = (rec[c] for c in CONFORMER_SPREAD_COLUMNS)
+def test_spread_columns_from_the_ranking_single_points():
+    ranking = ranking_of([_sp(-10.0, -5.0, -3.0), _sp(-10.0, -5.2, -3.0)])
+    assert ranking == [[-10.0, pytest.approx(-5.0), pytest.approx(-3.0)], [-10.0, pytest.approx(-5.2),
+                                                                            pytest.approx(-3.0)]]
+    homo, lumo, gap, n = (spread_columns(ranking)[c] for c in CONFORMER_SPREAD_COLUMNS)
     assert homo == pytest.approx(0.2 / math.sqrt(2)) and lumo == pytest.approx(0.0, abs=1e-12)
     assert gap == pytest.approx(0.2 / math.sqrt(2)) and n == 2
-    assert math.isnan(spread_record([_sp(-10.0, -5.0, -3.0)])[CONFORMER_SPREAD_COLUMNS[0]])
+    single = spread_columns([], n_ranked=1)
+    assert math.isnan(single[CONFORMER_SPREAD_COLUMNS[0]]) and single["conf_spread_n"] == 1
+
+
+def test_status_row_computes_the_spread_from_the_stored_ranking_only():
+    rec = {"key": "m1", "status": "ok", "n_ranked": 2, RANKING_KEY: [[-10.0, -5.0, -3.0], [-10.0, -5.2, -3.0]]}
+    assert status_row(rec)["conf_spread_homo_ev"] == pytest.approx(0.2 / math.sqrt(2))
+    # a record stored before the ranking was kept has no spread (not a stale one)
+    old = {"key": "m1", "status": "ok", "conf_spread_homo_ev": 0.5}
+    assert status_row(old)["conf_spread_homo_ev"] == ""
 
 
 def test_conformer_sigma_sums_same_source_weights_with_their_signs():
@@ -56,11 +68,13 @@ def test_spread_columns_travel_from_structures_to_the_electronic_table():
 
 
 def test_a_flexible_molecule_has_a_spread_and_a_rigid_one_has_none():
-    _, floppy = build_structure("c1csc(-c2ccc(-c3cccs3)s2)c1")  # terthiophene: ring flips are ranked
+    _, info = build_structure("c1csc(-c2ccc(-c3cccs3)s2)c1")  # terthiophene: ring flips are ranked
+    floppy = status_row({"status": "ok", **info})
     assert floppy["conf_spread_n"] >= 2
-    # benchmarks/conformer_spread.py: a few meV for oligothiophenes on force-field conformers at 298 K
+    # benchmarks/conformer_spread.py: at most a few hundredths of an eV for oligothiophenes on force-field conformers
     assert 0.0 <= floppy["conf_spread_homo_ev"] < 0.05 and np.isfinite(floppy["conf_spread_gap_ev"])
-    _, rigid = build_structure("c1ccc2cc3ccccc3cc2c1")  # anthracene: one conformer, nothing to compare
+    _, info = build_structure("c1ccc2cc3ccccc3cc2c1")  # anthracene: one conformer, nothing to compare
+    rigid = status_row({"status": "ok", **info})
     assert rigid["conf_spread_n"] == 1 and math.isnan(rigid["conf_spread_homo_ev"])
 
 
