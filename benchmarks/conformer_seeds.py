@@ -18,7 +18,10 @@ orbital energies. Printed:
 * for temperatures T from 298 K up, the mean predicted variance of that difference,
   s₀² + s₁² (each seed's Boltzmann-weighted spread at T, :func:`boltzmann_rms`),
   against the observed mean square, and the T at which they match for the gap —
-  the value :data:`screen.conformer_spread.SPREAD_TEMPERATURE_K` is set from.
+  the value :data:`screen.conformer_spread.SPREAD_TEMPERATURE_K` is set from;
+* the molecules whose kept conformer would change if both seeds' conformers were
+  ranked together (a measure of how far the default conformer search is from
+  converged).
 
 Usage::
 
@@ -162,7 +165,23 @@ def main(argv=None) -> int:
     for t, p in a["predicted_ms"].items():
         print(f"  T = {t:6.0f} K: " + " / ".join(f"{x:.4f}" for x in p))
     print(f"\ntemperature at which the predicted gap variance reaches the observed one: {a['t_match_gap']:.0f} K")
+    moved = _pooled(results)
+    print(f"\npooling both seeds (keep the lower of the two kept conformers) would move the default's gap by > 0.02 eV "
+          f"for {len(moved)}: " + "; ".join(f"{n} {d:+.3f} eV ({e:+.1f} kcal/mol)" for n, d, e in moved))
     return 0
+
+
+def _pooled(results: list[dict]) -> list[tuple[str, float, float]]:
+    """Molecules whose kept gap would move by > 0.02 eV if both seeds' conformers were ranked together."""
+    out = []
+    for r in results:
+        if "error" in r or len(r["seeds"]) != 2:
+            continue
+        a, b = (np.asarray(s, float) for s in r["seeds"])
+        ka, kb = a[np.argmin(a[:, 0])], b[np.argmin(b[:, 0])]
+        if kb[0] < ka[0] - 1e-9 and abs((kb[2] - kb[1]) - (ka[2] - ka[1])) > 0.02:
+            out.append((r["name"], float((kb[2] - kb[1]) - (ka[2] - ka[1])), float((kb[0] - ka[0]) * 627.5095)))
+    return out
 
 
 if __name__ == "__main__":
