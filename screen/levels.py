@@ -236,7 +236,7 @@ def assemble(manifest: pd.DataFrame, electronic: Iterable[pd.DataFrame],
         out["smiles"] = ""
     if "smiles_input" in out:  # rows that never got a canonical SMILES show what the user wrote
         out["smiles"] = out["smiles"].fillna("").astype(str).mask(lambda s: s.eq(""), out["smiles_input"])
-    for col in ("n_atoms", "n_conformers", "truncated_chains", "chain_n_max"):
+    for col in ("n_atoms", "n_conformers", "conf_spread_n", "truncated_chains", "chain_n_max"):
         out[col] = pd.to_numeric(out[col], errors="coerce").astype("Int64")
     spreads = [c for c in out.columns if c.startswith("chain_spread_")]
     lead = CONTRACT_COLUMNS + RAW_COLUMNS + extra_raw + CHAIN_COLUMNS + spreads
