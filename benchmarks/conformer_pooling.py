@@ -25,11 +25,8 @@ Usage::
 
 from __future__ import annotations
 
-import argparse
-import json
 import sys
 import time
-from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
 import numpy as np
@@ -38,7 +35,7 @@ REPO = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(REPO))
 sys.path.insert(0, str(REPO / "benchmarks"))
 
-from conformer_seeds import _molecules  # noqa: E402
+from conformer_seeds import collect  # noqa: E402
 
 SEEDS = (61453, 20261202, 7, 1234577)  # A (the default), B, C, D
 
@@ -123,21 +120,7 @@ def _one(item):
 
 
 def main(argv=None) -> int:
-    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--jobs", type=int, default=2)
-    ap.add_argument("--limit", type=int, default=None)
-    ap.add_argument("--save", type=Path)
-    ap.add_argument("--load", type=Path)
-    args = ap.parse_args(argv)
-    if args.load:
-        results = json.loads(args.load.read_text())
-    else:
-        start = time.perf_counter()
-        with ProcessPoolExecutor(args.jobs) as pool:
-            results = list(pool.map(_one, _molecules(args.limit)))
-        print(f"{len(results)} molecules, {time.perf_counter() - start:.0f} s wall on {args.jobs} jobs")
-        if args.save:
-            args.save.write_text(json.dumps(results))
+    results = collect(argv, _one, __doc__.split("\n")[0])
     good = [r for r in results if "error" not in r]
 
     def diff(a, b):

@@ -132,22 +132,27 @@ def analyse(results: list[dict]) -> dict:
             "observed_ms": observed, "predicted_ms": predicted, "t_match_gap": above[0] if above else float("nan")}
 
 
-def main(argv=None) -> int:
-    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+def collect(argv, work, description: str) -> list[dict]:
+    """Parse ``--jobs/--limit/--save/--load``; the per-molecule results of ``work`` (computed or loaded)."""
+    ap = argparse.ArgumentParser(description=description)
     ap.add_argument("--jobs", type=int, default=2)
     ap.add_argument("--limit", type=int, default=None)
     ap.add_argument("--save", type=Path)
     ap.add_argument("--load", type=Path)
     args = ap.parse_args(argv)
     if args.load:
-        results = json.loads(args.load.read_text())
-    else:
-        start = time.perf_counter()
-        with ProcessPoolExecutor(args.jobs) as pool:
-            results = list(pool.map(_ranked, _molecules(args.limit)))
-        print(f"{len(results)} molecules, {time.perf_counter() - start:.0f} s wall on {args.jobs} jobs")
-        if args.save:
-            args.save.write_text(json.dumps(results))
+        return json.loads(args.load.read_text())
+    start = time.perf_counter()
+    with ProcessPoolExecutor(args.jobs) as pool:
+        results = list(pool.map(work, _molecules(args.limit)))
+    print(f"{len(results)} molecules, {time.perf_counter() - start:.0f} s wall on {args.jobs} jobs")
+    if args.save:
+        args.save.write_text(json.dumps(results))
+    return results
+
+
+def main(argv=None) -> int:
+    results = collect(argv, _ranked, __doc__.split("\n")[0])
     a = analyse(results)
     rms = np.sqrt(a["observed_ms"])
     print(f"\n{a['n']} molecules; kept conformer, seed {SEEDS[1]} vs the default seed: RMS difference "

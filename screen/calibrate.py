@@ -56,7 +56,6 @@ import pandas as pd
 
 from screen.calibration.domain import domain_std, fit_domain, nearest_similarity, reference_similarity
 from screen.calibration.film import fit_film_level
-from screen.conformer_spread import conformer_sigma
 from screen.calibration.linear import (MIN_GAIN_EV, CalibrationError, FilmShift, LinearLevelModel, feature_matrix,
                                        raw_weights)
 from screen.calibration.optical import fit_gap
@@ -64,6 +63,7 @@ from screen.calibration.reference import (FC_REFERENCE_EV, family, joined, read_
                                           reference_hash, reference_inputs)
 from screen.calibration.validation import select
 from screen.config import Config
+from screen.conformer_spread import conformer_sigma
 from screen.errors import ConfigError
 from screen.io import write_csv, write_json
 from screen.provenance import provenance

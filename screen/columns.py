@@ -5,8 +5,8 @@ See ``docs/contracts.md`` for what each column means, its unit and its scale.
 
 from __future__ import annotations
 
-__all__ = ["RAW_COLUMNS", "EXTRA_RAW_COLUMNS", "CONFORMER_SPREAD_COLUMNS", "ELECTRONIC_COLUMNS", "CALIBRATED_COLUMNS", "LEVELS_CONTRACT_COLUMNS",
-           "LEVELS_MIN_COLUMNS", "SIGMA_COLUMNS", "RANKING_COLUMNS", "RANKING_EXTRA_COLUMNS"]
+__all__ = ["RAW_COLUMNS", "EXTRA_RAW_COLUMNS", "CONFORMER_SPREAD_COLUMNS", "ELECTRONIC_COLUMNS", "CALIBRATED_COLUMNS",
+           "LEVELS_CONTRACT_COLUMNS", "LEVELS_MIN_COLUMNS", "SIGMA_COLUMNS", "RANKING_COLUMNS", "RANKING_EXTRA_COLUMNS"]
 
 #: raw engine values of ``levels.csv`` (ΔSCF IP/EA and orbital energies of the neutral) [eV]
 RAW_COLUMNS = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev"]

@@ -344,11 +344,12 @@ SIGMA_SIMILARITIES = {"sigma_near_ev": 0.9, "sigma_far_ev": 0.2}
 
 def _sigma_range(model: dict) -> dict:
     """σ [eV] of a model at :data:`SIGMA_SIMILARITIES` (the same twice for a constant variance); {} if unknown."""
+    from screen.calibration.domain import domain_variance
+
     domain = model.get("domain") if isinstance(model.get("domain"), dict) else {}
     try:
         if domain.get("kind") == "similarity":
-            return {k: math.sqrt(math.exp(domain["alpha"] + domain["beta"] * (1.0 - s)))
-                    for k, s in SIGMA_SIMILARITIES.items()}
+            return {k: math.sqrt(float(domain_variance(domain, s))) for k, s in SIGMA_SIMILARITIES.items()}
         sigma = float(model["model"]["residual_sigma_ev"]) if "model" in model else float(model["sigma_ev"])
     except (KeyError, TypeError, ValueError):
         return {}

@@ -60,7 +60,8 @@ from rdkit.Chem import AllChem, rdMolDescriptors
 
 from screen.batch import molecule_caller, run_journalled
 from screen.cage import closed_cage
-from screen.conformer_spread import RANKING_KEY, SPREAD_COLUMNS, SPREAD_COUNT_COLUMN, ranking_of, spread_columns
+from screen.columns import CONFORMER_SPREAD_COLUMNS
+from screen.conformer_spread import RANKING_KEY, ranking_of, spread_columns
 from screen.constants import BOHR_ANGSTROM
 from screen.engines import SCF_LADDER, Engine, EngineError, make_engine
 from screen.io import Journal, Progress, atomic_path, write_csv
@@ -85,7 +86,7 @@ __all__ = [
 #: columns of the per-shard structures status table
 STATUS_COLUMNS = ["key", "status", "error", "smiles_computed", "truncated_chains", "truncated_groups", "n_conformers",
                   "embedding",
-                  "forcefield", "geometry", "xtb_rank_energy_eh", *SPREAD_COLUMNS.values(), SPREAD_COUNT_COLUMN,
+                  "forcefield", "geometry", "xtb_rank_energy_eh", *CONFORMER_SPREAD_COLUMNS,
                   "opt_converged", "wall_s"]
 
 
@@ -602,7 +603,7 @@ def status_row(rec: dict) -> dict:
     was kept) gives none.
     """
     row = {c: rec.get(c, "") for c in STATUS_COLUMNS}
-    row.update(dict.fromkeys([*SPREAD_COLUMNS.values(), SPREAD_COUNT_COLUMN], ""))
+    row.update(dict.fromkeys(CONFORMER_SPREAD_COLUMNS, ""))
     if rec.get("status") == "ok" and RANKING_KEY in rec:
         row.update(spread_columns(rec[RANKING_KEY], rec.get("n_ranked", 1)))
     return row

@@ -104,10 +104,13 @@ def _generator():
 
 
 def _canonical(smiles: str) -> str:
+    """Canonical SMILES (:func:`screen.chem.canonical_form`), or the text itself when it does not parse."""
     from rdkit import Chem
 
+    from screen.chem import canonical_form
+
     mol = Chem.MolFromSmiles(str(smiles))
-    return Chem.MolToSmiles(mol) if mol is not None else str(smiles)
+    return canonical_form(mol)[0] if mol is not None else str(smiles)
 
 
 def nearest_similarity(query, reference) -> np.ndarray:
