@@ -131,12 +131,15 @@ def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
     show["flags"] = show["flags"].astype(object).fillna("").astype(str).str.slice(0, 40)
     cols = ["rank", "id", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "delta_lumo_ev", "delta_homo_ev", "voc_v",
             "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "passes", "flags"]
-    passing = int(table["passes"].astype(str).str.lower().eq("true").sum()) if len(table) else 0
-    partner = table["partner"].iloc[0] if len(table) else "?"
+    if not len(table):
+        print(f"dascreen: no candidate to rank (every row was rejected or failed; the reasons are in levels.csv); "
+              f"empty ranking -> {ranking_csv}")
+        return
+    passing = int(table["passes"].astype(str).str.lower().eq("true").sum())
+    partner = table["partner"].iloc[0]
     print(f"dascreen: {len(table)} ranked against {partner}, {passing} pass the filters; top {min(top, len(table))}:")
-    if len(show):
-        with pd.option_context("display.width", 250, "display.max_columns", 30):
-            print(show[cols].to_string(index=False, na_rep="-", float_format=lambda x: f"{x:.3g}"))
+    with pd.option_context("display.width", 250, "display.max_columns", 30):
+        print(show[cols].to_string(index=False, na_rep="-", float_format=lambda x: f"{x:.3g}"))
     print(f"dascreen: ranking -> {ranking_csv}")
 
 

@@ -199,3 +199,14 @@ def test_id_and_smiles_partners_get_readable_folders(levels, tmp_path, capsys):
     out = tmp_path / "out"
     assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "id:KF-D01")[0] == 0
     assert [p.name.split("--")[0] for p in (out / "rankings").iterdir()] == ["id-KF-D01"]
+
+
+def test_an_empty_ranking_says_why_instead_of_naming_no_partner(tmp_path, capsys):
+    from screen.cli import _print_ranking
+
+    path = tmp_path / "ranking.csv"
+    path.write_text("rank,id,partner,passes,flags\n")
+    _print_ranking(path)
+    out = capsys.readouterr().out
+    assert "no candidate to rank" in out and "levels.csv" in out
+    assert "?" not in out
