@@ -8,11 +8,14 @@ the README's "held-out checks on materials we know well".
 
 Usage::
 
-    .venv/bin/python benchmarks/heldout_levels.py ["PM6 (PBDB-T-2F)" "C60" ...]
+    .venv/bin/python benchmarks/heldout_levels.py [--raw models/<protocol-id>/reference_raw.csv] ["PM6 (PBDB-T-2F)" ...]
+
+``--raw`` validates another shipped protocol (default: the default protocol's raw values).
 """
 
 from __future__ import annotations
 
+import argparse
 import sys
 from pathlib import Path
 
@@ -28,8 +31,12 @@ NAMES = ["PM6 (PBDB-T-2F)", "PTB7-Th (PBDTT-FTTE)", "ITIC", "Y6 (BTP-4F)", "C60"
 
 
 def main(argv=None) -> int:
-    names = list(argv if argv is not None else sys.argv[1:]) or NAMES
-    raw = read_raw(RAW_PATH)
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("names", nargs="*", help="film-set names (default: a fixed list of well-known materials)")
+    parser.add_argument("--raw", type=Path, default=RAW_PATH, help="reference_raw.csv of the protocol to validate")
+    args = parser.parse_args(argv)
+    names = args.names or NAMES
+    raw = read_raw(args.raw)
     sets = read_reference(REPO / "models" / "reference")
     film = sets["film"].set_index("name")
     missing = [n for n in names if n not in film.index]
@@ -38,7 +45,7 @@ def main(argv=None) -> int:
         return 2
     structures = [canonical(film.loc[n, "smiles"]) for n in names]
     levels = out_of_sample_levels(structures, raw, sets)
-    print(f"held-out film levels [eV] ({RAW_PATH.parent.name}): predicted HOMO / LUMO / gap  |  reference")
+    print(f"held-out film levels [eV] ({args.raw.parent.name}): predicted HOMO / LUMO / gap  |  reference")
     for name, can in zip(names, structures):
         p, ref = levels.loc[can], film.loc[name]
         print(f"  {name[:30]:30s} {p['homo_ev']:6.2f} {p['lumo_ev']:6.2f} {p['gap_opt_ev']:5.2f}  |  "
