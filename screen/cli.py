@@ -51,6 +51,9 @@ def cmd_run(args) -> int:
     cfg = _load(args, {"candidates": str(candidates.resolve()), "out": str(out),
                        "partner": _partner_arg(partners[0] if partners else None),
                        "strict": True if args.strict else None})
+    notice = calibration_notice(cfg, out)
+    if notice:
+        print(notice, file=sys.stderr)
     rc = run_workflow(cfg, out, args.cores, extra=args.snakemake_args, dry_run=args.dry_run, profile=args.profile,
                       verbose=args.verbose)
     if rc != 0:
@@ -119,6 +122,30 @@ def _partner_arg(spec: str | None) -> str | None:
     except PartnerError:
         pass  # reported with the library ids when the partner is resolved
     return spec
+
+
+def calibration_notice(cfg: Config, out: Path) -> str | None:
+    """What a run must compute first when no calibration matches its protocol (``None`` when one does).
+
+    A protocol without shipped models (another ``structures`` or ``electronic``
+    setting) makes the run compute every reference material with that protocol
+    before any level can be calibrated: said before the run starts, with the
+    count and the protocols that are shipped, because it takes hours.
+    """
+    from screen.calibrate import find_models  # only here: the calibration modules are not needed otherwise
+    from screen.calibration.reference import canonical, read_reference
+
+    pid = cfg.protocol_id
+    if cfg["calibration"]["refit"] == "always" or find_models(cfg) is not None or (out / "models" / pid).is_dir():
+        return None
+    models = Path(cfg["calibration"]["models"])
+    shipped = sorted(p.name for p in models.iterdir() if (p / "ip.json").is_file()) if models.is_dir() else []
+    sets = read_reference(cfg["calibration"]["reference"])
+    smiles = {canonical(s) for frame in sets.values() if "smiles" in frame for s in frame["smiles"].dropna()}
+    return (f"dascreen: no calibration in {models} matches protocol {pid}; this run first computes the "
+            f"{len(smiles)} reference materials with it (polymers as oligomer series) and fits the models into "
+            f"{out}/models/{pid} — hours on a few cores, once per protocol (`dascreen calibrate --install "
+            f"models` keeps them). Protocols with calibrations: {', '.join(shipped) or 'none'}")
 
 
 def _print_ranking(ranking_csv: Path, top: int = 10) -> None:

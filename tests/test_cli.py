@@ -210,3 +210,16 @@ def test_an_empty_ranking_says_why_instead_of_naming_no_partner(tmp_path, capsys
     out = capsys.readouterr().out
     assert "no candidate to rank" in out and "levels.csv" in out
     assert "?" not in out
+
+
+def test_a_protocol_without_calibration_is_announced_before_the_run(tmp_path):
+    from screen.cli import calibration_notice
+    from screen.config import Config
+
+    assert calibration_notice(Config.of({}), tmp_path) is None  # the default protocol is shipped
+    other = Config.of({"electronic": {"method": "IPEA1-xTB"}})
+    text = calibration_notice(other, tmp_path)
+    assert other.protocol_id in text and "reference materials" in text and "hours" in text
+    assert Config.of({}).protocol_id in text  # what is shipped instead
+    (tmp_path / "models" / other.protocol_id).mkdir(parents=True)  # fitted by an earlier run into this folder
+    assert calibration_notice(other, tmp_path) is None
