@@ -2,7 +2,7 @@
 
 Usage (from the repository root)::
 
-    .venv/bin/python benchmarks/polymer_cost.py [--smiles '[*]…[*]'] [--n-max 4]
+    .venv/bin/python benchmarks/polymer_cost.py [--smiles '[*]…[*]'] [--n-max 4] [--geometry xtb]
 
 The default repeat unit is a benzodithiophene–benzothiadiazole donor–acceptor copolymer written with
 hexyl side chains (truncated to methyl by the structures stage, as in a run). Every oligomer goes through
@@ -26,9 +26,11 @@ os.environ.setdefault("OMP_NUM_THREADS", "1")
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
 
+import pandas as pd  # noqa: E402
+
 from screen.config import Config  # noqa: E402
 from screen.electronic import molecule_numbers_positions, vertical_levels  # noqa: E402
-from screen.oligomers import oligomer_series  # noqa: E402
+from screen.prepare.polymers import PolymerOptions, oligomer_table  # noqa: E402
 
 DEFAULT = "[*]c1cc2c(OCCCCCC)c3cc(-c4ccc([*])c5nsnc45)sc3c(OCCCCCC)c2s1"
 TARGET_S = 600.0
@@ -38,15 +40,26 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--smiles", default=DEFAULT)
     parser.add_argument("--n-max", type=int, default=4)
+    parser.add_argument("--geometry", choices=["ff", "xtb"], default=None,
+                        help="structures.geometry of the protocol (default: the default protocol's)")
     args = parser.parse_args()
     from screen.structures import build_structure
 
-    cfg = Config.of({"polymer": {"n_max": args.n_max}})
+    overrides = {"polymer": {"n_max": args.n_max}}
+    if args.geometry:
+        overrides["structures"] = {"geometry": args.geometry}
+    cfg = Config.of(overrides)
     engine = cfg.electronic.make_engine()
     eps = cfg.electronic.film_epsilon
     print(f"cpus={os.cpu_count()} load={os.getloadavg()} protocol={cfg.protocol_id}")
     total, parts = 0.0, []
-    series = oligomer_series(args.smiles, args.n_max, cfg["polymer"]["max_atoms"], cfg["polymer"]["cap"])
+    # the series a run builds: the atom limit counts the oligomer after side-chain truncation
+    st = cfg["structures"]
+    manifest = pd.DataFrame({"id": ["p"], "key": ["p"], "smiles": [args.smiles], "status": ["ok"],
+                             "representation": ["polymer"]})
+    table = oligomer_table(manifest, PolymerOptions.from_mapping(cfg["polymer"]),
+                           st["truncate_min_carbons"] if st["truncate_side_chains"] else None)
+    series = list(zip(table["n"], table["smiles"]))
     for n, smi in series:
         t0 = time.perf_counter()
         mol, info = build_structure(smi, cfg.structures)
