@@ -15,6 +15,7 @@ from screen.calibrate import (MODEL_NAMES, CalibrationError, CalibrationMismatch
                               find_models, fit_all, load_models, read_reference, stats_table)
 from screen.calibration.optical import RED_SHIFT_RANGE_EV
 from screen.calibration.validation import raw_at_n
+from screen.config import Config
 from screen.errors import CalculationError, ConfigError, exit_code
 
 # Published gas-phase values (the rows of models/reference/*.csv, where each has its source):
@@ -170,6 +171,26 @@ def test_held_out_polymer_series_falls_with_n_to_the_published_onset(unit, sets,
     limit = apply_models(pd.DataFrame([row]), models, scale="film")
     assert limit["gap_opt_ev"].iloc[0] <= gaps[-1] + 1e-6
     assert abs(limit["gap_opt_ev"].iloc[0] - POLYMER_ONSET_EV[unit]) < POLYMER_TOL_EV[unit], (gaps, limit["gap_opt_ev"])
+
+
+def _shipped_protocols(repo_dir):
+    return sorted(p for p in (repo_dir / "models").iterdir() if (p / "ip.json").is_file())
+
+
+def test_every_shipped_protocol_matches_the_reference_data(cfg, repo_dir):
+    """A second calibrated protocol (xTB geometries) ships beside the default one; a reference-data change must
+    refit both, or runs with that protocol would recompute the whole reference set for hours."""
+    folders = _shipped_protocols(repo_dir)
+    assert len(folders) >= 2 and repo_dir / "models" / cfg.protocol_id in folders
+    for folder in folders:
+        fp = json.loads((folder / "ip.json").read_text())["fingerprint"]
+        protocol = dict(cfg, structures=fp["protocol"]["structures"], electronic=fp["protocol"]["electronic"],
+                        polymer=fp["polymer"])
+        assert Config.of(protocol).protocol_id == folder.name
+        assert find_models(protocol) == folder, (
+            f"{folder.name} no longer matches the reference data or engine: refit it with `dascreen calibrate "
+            f"--from-raw models/{folder.name} --out /tmp/x --install models` and its dye models")
+        assert (repo_dir / "models" / "dyecell" / folder.name / "e_ox.json").is_file()
 
 
 def test_foreign_fingerprint_is_refused(shipped, cfg, tmp_path):
