@@ -266,7 +266,10 @@ class Progress:
     every ``every_s`` seconds and always for the last item (a job's log under
     Snakemake, a redirected ``dascreen``).  The rate counts only the items done
     since the first report (or :meth:`rebase`), so work finished earlier (a
-    resumed run, molecules from the results store) does not inflate it.
+    resumed run, molecules from the results store) does not inflate it.  When
+    no molecule has finished for ``stall_s`` seconds, the line says for how long
+    (one 200-atom oligomer on xTB geometries can take most of an hour), so a
+    busy run is not mistaken for a hung one.
 
     Examples
     --------
@@ -279,10 +282,13 @@ class Progress:
     >>> bar = Progress("run", stream=io.StringIO(), bar=True)
     >>> bar.line(5, 20).startswith("run [#####") and "5/20 molecules" in bar.line(5, 20)
     True
+    >>> slow = Progress("run", stream=io.StringIO(), stall_s=0)
+    >>> slow.report(3, 10); slow.line(3, 10).endswith("s, still computing)")
+    True
     """
 
     def __init__(self, label: str, stream=None, every_s: float = 10.0, bar: bool | None = None,
-                 width: int = 24):
+                 width: int = 24, stall_s: float = 300.0):
         self.label = label
         self.stream = stream or sys.stdout
         self.every_s = every_s
@@ -292,6 +298,9 @@ class Progress:
         self.base = 0
         self._last = -float("inf")
         self._drawn = False
+        self.stall_s = stall_s
+        self._seen: int | None = None     # the count at the last report
+        self._seen_t = self.start         # when that count was first reported
 
     def rebase(self, done: int) -> None:
         """Count the rate from now and from ``done`` items on (items done before are not this run's work)."""
@@ -309,6 +318,9 @@ class Progress:
         pct = 100.0 * done / total if total else 100.0
         rate = "rate unknown" if per_item != per_item else f"{per_item:.2f} s/molecule"
         eta_text = "ETA unknown" if eta != eta else f"ETA {_duration(eta)}"
+        stalled = time.monotonic() - self._seen_t
+        if self._seen == done and done < total and stalled >= self.stall_s:
+            eta_text += f" (no molecule finished for {_duration(stalled)}, still computing)"
         if self.bar:
             filled = int(round(self.width * done / total)) if total else self.width
             return (f"{self.label} [{'#' * filled}{'.' * (self.width - filled)}] {done}/{total} molecules "
@@ -319,6 +331,8 @@ class Progress:
     def report(self, done: int, total: int, key: str = "", note: str = "") -> None:
         """Show ``done / total`` (a bar redraw, or a line when ``every_s`` has passed or all is done)."""
         now = time.monotonic()
+        if done != self._seen:
+            self._seen, self._seen_t = done, now
         if self.bar:
             self.stream.write("\r\033[K" + self.line(done, total, key, note))
             self.stream.flush()

@@ -120,6 +120,25 @@ def test_progress_rate_counts_only_this_runs_work():
     assert "rate unknown" in p.line(90, 100) and "ETA unknown" in p.line(90, 100)
 
 
+def test_progress_says_when_no_molecule_has_finished_for_a_while(monkeypatch):
+    import screen.io as sio
+
+    clock = [1000.0]
+    monkeypatch.setattr(sio.time, "monotonic", lambda: clock[0])
+    p = Progress("x", stream=io.StringIO(), bar=False)  # stall_s default 300 s
+    p.rebase(273)
+    p.report(273, 281)
+    clock[0] += 299
+    assert "no molecule finished" not in p.line(273, 281)
+    clock[0] += 2761  # 51 min since the count last moved
+    assert p.line(273, 281).endswith("ETA unknown (no molecule finished for 51.0 min, still computing)")
+    p.report(274, 281)  # one finished: the count moved, the note goes
+    assert "no molecule finished" not in p.line(274, 281)
+    p.report(281, 281)
+    clock[0] += 4000
+    assert "no molecule finished" not in p.line(281, 281)  # all done: nothing to wait for
+
+
 def test_watch_prints_plain_lines_when_not_a_terminal(tmp_path):
     import threading
 
