@@ -11,6 +11,8 @@ Reads the shipped models of the default protocol (or ``--models``), their stored
 
 * per model: LOO MAE (all rows, small molecules, polymers), leave-one-family-out MAE and the target;
 * the family hold-out table of the film models;
+* the mean signed LOO error (predicted − measured) of each family with ≥ 3 rows in the film models: a bias
+  that one shared term (``polymer``, ``cage``) leaves between families;
 * the film red shift δ of the optical-gap model with its standard error and the sensible range;
 * the film LOO MAE refitted with polymers represented by their monomer, dimer, … instead of the chain
   limit (the reason the chain-limit feature exists);
@@ -111,6 +113,19 @@ def nested_cv(sets: dict, raw: pd.DataFrame, folds: int = 10, seed: int = 0) -> 
     return {name: float(np.mean(e)) for name, e in errors.items()}
 
 
+def family_bias(model: dict) -> dict[str, tuple[float, int]]:
+    """Mean signed LOO error [eV] and row count per family of one model's stored residuals.
+
+    >>> family_bias({"residuals": [{"family": "a", "loo_ev": -5.4, "measured_ev": -5.3},
+    ...                            {"family": "a", "loo_ev": -5.1, "measured_ev": -5.3}]})
+    {'a': (0.05, 2)}
+    """
+    out: dict[str, list[float]] = {}
+    for row in model.get("residuals", []):
+        out.setdefault(row["family"], []).append(row["loo_ev"] - row["measured_ev"])
+    return {fam: (round(sum(v) / len(v), 6), len(v)) for fam, v in out.items()}
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--models", default=None, help="model folder (default: the shipped default-protocol one)")
@@ -133,6 +148,11 @@ def main() -> None:
     for name in FILM + ("gap_opt",):
         cells = ", ".join(f"{k} {v['mae_ev']:.2f} ({v['n']})" for k, v in sorted(models[name].get("by_family", {}).items()))
         print(f"  {name}: {cells}")
+    print("\nmean signed LOO error [eV] (predicted − measured) by family, families with ≥ 3 rows (n):")
+    for name in FILM:
+        for fam, (bias, n) in sorted(family_bias(models[name]).items()):
+            if n >= 3:
+                print(f"  {name:13s} {fam:32s} {bias:+.3f} ({n})")
     g = models["gap_opt_film"]
     print(f"\nfilm red shift δ = {g['red_shift_ev']:.3f} ± {g['red_shift_se_ev']:.3f} eV "
           f"(sensible range {g['red_shift_range_ev'][0]}–{g['red_shift_range_ev'][1]} eV: "
