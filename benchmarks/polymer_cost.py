@@ -30,7 +30,7 @@ import pandas as pd  # noqa: E402
 
 from screen.config import Config  # noqa: E402
 from screen.electronic import molecule_numbers_positions, vertical_levels  # noqa: E402
-from screen.prepare.polymers import PolymerOptions, oligomer_table  # noqa: E402
+from screen.prepare.polymers import PolymerOptions, oligomer_table, truncation_min_carbons  # noqa: E402
 
 DEFAULT = "[*]c1cc2c(OCCCCCC)c3cc(-c4ccc([*])c5nsnc45)sc3c(OCCCCCC)c2s1"
 TARGET_S = 600.0
@@ -54,11 +54,10 @@ def main() -> None:
     print(f"cpus={os.cpu_count()} load={os.getloadavg()} protocol={cfg.protocol_id}")
     total, parts = 0.0, []
     # the series a run builds: the atom limit counts the oligomer after side-chain truncation
-    st = cfg["structures"]
     manifest = pd.DataFrame({"id": ["p"], "key": ["p"], "smiles": [args.smiles], "status": ["ok"],
                              "representation": ["polymer"]})
     table = oligomer_table(manifest, PolymerOptions.from_mapping(cfg["polymer"]),
-                           st["truncate_min_carbons"] if st["truncate_side_chains"] else None)
+                           truncation_min_carbons(cfg["structures"]))
     series = list(zip(table["n"], table["smiles"]))
     for n, smi in series:
         t0 = time.perf_counter()

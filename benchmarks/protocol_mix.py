@@ -28,13 +28,13 @@ sys.path.insert(0, str(REPO))
 
 import pandas as pd  # noqa: E402
 
-from screen.calibrate import fit_all  # noqa: E402
+from screen.calibrate import MODEL_NAMES, fit_all  # noqa: E402
 from screen.calibration.reference import read_reference  # noqa: E402
+from screen.config import protocol_id  # noqa: E402
+from screen.devicevalidation import RAW_PATH as A_RAW  # noqa: E402  (the default protocol's)
 from screen.devicevalidation import read_raw  # noqa: E402
 
-A_RAW = REPO / "models" / "tblite-gfn2-ff-e9d48633" / "reference_raw.csv"
-B_RAW = REPO / "models" / "tblite-gfn2-xtb-cc95e425" / "reference_raw.csv"
-MODELS = ["ip", "ea", "gap_opt", "homo_film", "lumo_film", "gap_opt_film"]
+B_RAW = REPO / "models" / protocol_id({"structures": {"geometry": "xtb"}}) / "reference_raw.csv"
 
 
 def mix(molecules: pd.DataFrame, polymers: pd.DataFrame) -> pd.DataFrame:
@@ -46,7 +46,7 @@ def mix(molecules: pd.DataFrame, polymers: pd.DataFrame) -> pd.DataFrame:
 def loo_maes(sets: dict, raw: pd.DataFrame) -> dict[str, float]:
     """Leave-one-out MAE [eV] of every calibration model fitted on ``raw``."""
     models = fit_all(sets, raw)
-    return {name: float(models[name]["loo_mae_ev"]) for name in MODELS}
+    return {name: float(models[name]["loo_mae_ev"]) for name in MODEL_NAMES}
 
 
 def main(argv=None) -> int:
@@ -60,10 +60,10 @@ def main(argv=None) -> int:
     combos = {"A molecules + A polymers": a, "B molecules + B polymers": b,
               "B molecules + A polymers": mix(b, a), "A molecules + B polymers": mix(a, b)}
     print(f"A = {args.a.parent.name}, B = {args.b.parent.name}; LOO MAE [eV]")
-    print(f"{'combination':28s}" + "".join(f"{m:>13s}" for m in MODELS) + f"{'sum':>8s}")
+    print(f"{'combination':28s}" + "".join(f"{m:>13s}" for m in MODEL_NAMES) + f"{'sum':>8s}")
     for name, raw in combos.items():
         maes = loo_maes(sets, raw)
-        print(f"{name:28s}" + "".join(f"{maes[m]:13.3f}" for m in MODELS) + f"{sum(maes.values()):8.3f}")
+        print(f"{name:28s}" + "".join(f"{maes[m]:13.3f}" for m in MODEL_NAMES) + f"{sum(maes.values()):8.3f}")
     if args.write_mix:
         args.write_mix.mkdir(parents=True, exist_ok=True)
         mix(b, a).to_csv(args.write_mix / "b_molecules_a_polymers_raw.csv", index=False)

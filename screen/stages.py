@@ -23,6 +23,7 @@ __all__ = ["main"]
 
 def _prepare(args, cfg):
     from screen.prepare import PolymerOptions, PrepareOptions, prepare
+    from screen.prepare.polymers import truncation_min_carbons
 
     known = {f.name for f in fields(PrepareOptions)}
     opts = PrepareOptions(**{k: tuple(v) if isinstance(v, list) else v for k, v in cfg["prepare"].items()
@@ -30,9 +31,8 @@ def _prepare(args, cfg):
     if args.max_shards:
         n_rows = _count_rows(args.input)
         opts = replace(opts, shard_size=max(opts.shard_size, math.ceil(n_rows / args.max_shards)))
-    st = cfg["structures"]
     summary = prepare(args.input, args.outdir, opts, PolymerOptions.from_mapping(cfg["polymer"]),
-                      st["truncate_min_carbons"] if st["truncate_side_chains"] else None)
+                      truncation_min_carbons(cfg["structures"]))
     print(json.dumps(summary))
 
 

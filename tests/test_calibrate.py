@@ -173,14 +173,10 @@ def test_held_out_polymer_series_falls_with_n_to_the_published_onset(unit, sets,
     assert abs(limit["gap_opt_ev"].iloc[0] - POLYMER_ONSET_EV[unit]) < POLYMER_TOL_EV[unit], (gaps, limit["gap_opt_ev"])
 
 
-def _shipped_protocols(repo_dir):
-    return sorted(p for p in (repo_dir / "models").iterdir() if (p / "ip.json").is_file())
-
-
 def test_every_shipped_protocol_matches_the_reference_data(cfg, repo_dir):
     """A second calibrated protocol (xTB geometries) ships beside the default one; a reference-data change must
     refit both, or runs with that protocol would recompute the whole reference set for hours."""
-    folders = _shipped_protocols(repo_dir)
+    folders = sorted(p for p in (repo_dir / "models").iterdir() if (p / "ip.json").is_file())
     assert len(folders) >= 2 and repo_dir / "models" / cfg.protocol_id in folders
     for folder in folders:
         fp = json.loads((folder / "ip.json").read_text())["fingerprint"]

@@ -39,7 +39,8 @@ from screen.errors import ConfigError
 from screen.oligomers import CAPS, RepeatUnit, oligomer_series
 from screen.schema import section_defaults
 
-__all__ = ["PolymerOptions", "OLIGOMER_COLUMNS", "oligomer_table", "compute_rows", "read_oligomers"]
+__all__ = ["PolymerOptions", "OLIGOMER_COLUMNS", "oligomer_table", "compute_rows", "read_oligomers",
+           "truncation_min_carbons"]
 
 _DEFAULTS: dict[str, Any] = section_defaults("polymer")
 
@@ -86,6 +87,18 @@ class PolymerOptions:
 
 def _atoms_with_h(smiles: str) -> int:
     return Chem.AddHs(Chem.MolFromSmiles(smiles)).GetNumAtoms()
+
+
+def truncation_min_carbons(structures: Mapping) -> int | None:
+    """The side-chain truncation the structures stage applies (``structures`` config section), as
+    :func:`oligomer_table` takes it: the minimum chain length in carbons, or ``None`` when off.
+
+    >>> truncation_min_carbons({"truncate_side_chains": True, "truncate_min_carbons": 6})
+    6
+    >>> truncation_min_carbons({"truncate_side_chains": False, "truncate_min_carbons": 6}) is None
+    True
+    """
+    return structures["truncate_min_carbons"] if structures["truncate_side_chains"] else None
 
 
 def _computed_atoms(min_carbons: int):
