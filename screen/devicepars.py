@@ -120,8 +120,20 @@ class FittedParameters:
         return out
 
     def pooled_mask(self, acceptor_class) -> np.ndarray:
-        """True where the pooled loss is used (neither the class nor its family was fitted)."""
+        """True where the pooled loss stands in for a class value (neither the class nor its family was fitted).
+
+        A fit that chose one pooled loss for every class (its cross-validation kept no class value) marks no
+        pair: the pooled value is then the model itself, not a fallback, and the report says so once.
+
+        Examples
+        --------
+        >>> FittedParameters(loss_ev={"pooled": 0.5}, eqe_max=0.7, offset_scale_ev=0.05,
+        ...                  ff=0.7).pooled_mask(["fullerene", ""]).tolist()
+        [False, False]
+        """
         classes = self._classes(acceptor_class).astype(str)
+        if set(self.loss_ev) == {POOLED}:
+            return np.zeros(classes.shape, dtype=bool)
         known = np.isin(classes, [k for k in self.loss_ev if k not in (POOLED, NON_FULLERENE)])
         if NON_FULLERENE in self.loss_ev:
             known |= (classes != "") & (classes != "fullerene") & (classes != "nan")

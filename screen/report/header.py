@@ -190,14 +190,19 @@ def _loss_words(dev: dict) -> str:
     '0.30 V'
     >>> _loss_words({"loss_v": 0.57, "loss_v_set": False, "fitted": {"loss_slope": 0.42, "ect_ref_ev": 1.46}})
     '0.57 V at E<sub>CT</sub> = 1.46 eV, +0.42 V per eV of E<sub>CT</sub> above it (less below)'
+    >>> _loss_words({"loss_v": 0.54, "loss_v_set": False, "fitted": {"loss_ev": {"pooled": 0.54}}})
+    '0.54 V (one value for every acceptor class: the cross-validation kept no class value)'
     """
     base = _value(dev, "loss_v", "V")
     fitted = dev.get("fitted") if isinstance(dev.get("fitted"), dict) else {}
     slope, ref = num(fitted.get("loss_slope")), num(fitted.get("ect_ref_ev"))
+    classes = fitted.get("loss_ev") if isinstance(fitted.get("loss_ev"), dict) else {}
+    pooled = ("" if dev.get("loss_v_set") or set(classes) != {"pooled"}
+              else " (one value for every acceptor class: the cross-validation kept no class value)")
     if dev.get("loss_v_set") or math.isnan(slope) or math.isnan(ref) or slope <= 0:
-        return base
+        return base + pooled
     return (f"{base} at E<sub>CT</sub> = {fmt(ref)} eV, {fmt(slope, plus=True)} V per eV of E<sub>CT</sub> "
-            "above it (less below)")
+            f"above it (less below){pooled}")
 
 
 def _device_items(dev: dict) -> list[tuple[str, str]]:
