@@ -30,14 +30,22 @@ Scharber's rule on the same levels, the same models on the published levels and
 the training-mean Voc.  The computed-level part refits the calibration once per
 material (a few minutes); ``--skip-computed`` leaves it out.
 
+``--write`` stores the computed-level figures of the protocol (the folder name of
+``--raw``) in ``models/device/computed_validation.json``, where the report reads
+them for its device card ("Tested on published devices"); rerun it for every
+shipped protocol after a change of the calibration, the device set or the device
+model (``tests/test_devicefit.py`` checks the hashes).
+
 Usage::
 
-    .venv/bin/python benchmarks/device_validation.py [--devices models/reference/devices.csv]
+    .venv/bin/python benchmarks/device_validation.py [--devices models/reference/devices.csv] [--write]
+    .venv/bin/python benchmarks/device_validation.py --raw models/tblite-gfn2-xtb-cc95e425/reference_raw.csv --write
 """
 
 from __future__ import annotations
 
 import argparse
+import json
 import math
 import sys
 from pathlib import Path
@@ -49,6 +57,9 @@ from screen.devicefit import (CONSTANT_VARIANTS, DEVICES_PATH, FILM_PATH, GROUPI
                               level_table, read_devices, table)
 from screen.devicevalidation import (RAW_PATH, computed_validation, coverage, levels_for, rank_limits,  # noqa: E402
                                      read_raw)
+from screen.devicepars import FITTED_PATH, VALIDATION_PATH  # noqa: E402
+from screen.io import write_json  # noqa: E402
+from screen.provenance import sha256_file  # noqa: E402
 
 TARGETS = {"voc_mae_v": ("<=", 0.10), "spearman_voc": (">=", 0.7), "spearman_pce": (">=", 0.4)}
 
@@ -107,16 +118,23 @@ def limits(d, cv) -> None:
           + " ".join(f"limit_{n}_spearman_voc={s['spearman_voc']:.4f}" for n, s in lim["by_level_source"].items()))
 
 
-def computed(d, devices, film, raw_path) -> None:
-    """Print the device model on computed (calibrated GFN2-xTB) levels, both groupings."""
+def computed(d, devices, film, raw_path) -> dict:
+    """Print the device model on computed (calibrated GFN2-xTB) levels, both groupings; return the figures."""
     raw = read_raw(raw_path)
     every = level_table(devices, film)
     cov = coverage(every, raw)
     print(f"\ncomputed levels ({Path(raw_path).parent.name}/{Path(raw_path).name}; calibration refitted without "
           f"each material): {int(cov.sum())} of {len(every)} device rows have donor and acceptor computed")
     levels = levels_for(d, raw)
+    folder = Path(raw_path).parent
+    record = {"written_by": "benchmarks/device_validation.py --write", "devices_sha256": sha256_file(devices),
+              "levels_film_sha256": sha256_file(film),
+              "calibration_statistics_sha256": sha256_file(folder / "statistics.csv"),
+              "raw_sha256": sha256_file(raw_path), "fitted_sha256": sha256_file(FITTED_PATH)}
     for by in GROUPINGS:
         r = computed_validation(d, levels, raw, by)
+        record[by] = {k: r[k] for k in ("grouping", "coverage", "fitted", "scharber", "fitted_published_levels",
+                                        "mean_voc_baseline", "level_errors")}
         c = r["coverage"]
         print(f"held out ({r['grouping']}; loss variants {r['loss_split_per_fold']}): {c['computed']} usable devices "
               f"computed, {c['with_voc']} with Voc, {c['with_pce']} with PCE")
@@ -139,6 +157,15 @@ def computed(d, devices, film, raw_path) -> None:
                          for model in ("fitted", "scharber", "fitted_published_levels")
                          for k in ("voc_mae_v", "voc_mse_v", "spearman_voc", "spearman_pce"))
               + f" computed_{by}_mean_voc_baseline_mae_v={base['voc_mae_v']:.4f}")
+    return record
+
+
+def write_record(record: dict, protocol: str, path=VALIDATION_PATH) -> None:
+    """Put one protocol's computed-level figures into ``models/device/computed_validation.json`` (the report's)."""
+    data = json.loads(Path(path).read_text(encoding="utf-8")) if Path(path).is_file() else {}
+    data[protocol] = record
+    write_json(dict(sorted(data.items())), path)
+    print(f"computed-level figures of {protocol} -> {path}")
 
 
 def main(argv=None) -> int:
@@ -147,6 +174,9 @@ def main(argv=None) -> int:
     parser.add_argument("--film", default=str(FILM_PATH))
     parser.add_argument("--raw", default=str(RAW_PATH), help="reference_raw.csv of the calibration to validate on")
     parser.add_argument("--skip-computed", action="store_true", help="leave out the computed-level validation")
+    parser.add_argument("--write", action="store_true",
+                        help="store the computed-level figures for the report (models/device/computed_validation.json, "
+                             "keyed by the protocol id, the name of the --raw file's folder)")
     args = parser.parse_args(argv)
     d = read_devices(args.devices, args.film)
     converted = int(d["levels_converted"].sum())
@@ -157,8 +187,12 @@ def main(argv=None) -> int:
         print(f"  dropped {row['device_id']}: {row['drop_reason']}")
     cvs = {by: held_out(d, by) for by in GROUPINGS}
     limits(d, cvs["acceptor"])
+    if args.write and args.skip_computed:
+        parser.error("--write needs the computed-level validation (drop --skip-computed)")
     if not args.skip_computed:
-        computed(d, args.devices, args.film, args.raw)
+        record = computed(d, args.devices, args.film, args.raw)
+        if args.write:
+            write_record(record, Path(args.raw).parent.name)
     return 0
 
 

@@ -29,7 +29,8 @@ import numpy as np
 
 from screen.errors import ConfigError
 
-__all__ = ["FittedParameters", "FITTED_PATH", "load_fitted", "POOLED", "NON_FULLERENE", "family_of"]
+__all__ = ["FittedParameters", "FITTED_PATH", "VALIDATION_PATH", "load_fitted", "device_tests", "POOLED", "NON_FULLERENE",
+           "family_of"]
 
 #: the fitted default device model shipped with the repository
 FITTED_PATH = Path(__file__).resolve().parent.parent / "models" / "device" / "fitted.json"
@@ -189,3 +190,61 @@ def load_fitted(path: str | None = None) -> FittedParameters:
     except (KeyError, TypeError, ValueError) as exc:
         raise ConfigError(f"{target}: not a fitted device model ({type(exc).__name__}: {exc}); rewrite it with "
                           "`python -m screen.devicefit --write`") from exc
+
+
+#: held-out figures of the device models on levels computed with each shipped calibration protocol, written by
+#: ``benchmarks/device_validation.py --write`` (keyed by protocol id)
+VALIDATION_PATH = FITTED_PATH.parent / "computed_validation.json"
+#: the metrics a test record carries
+_TEST_KEYS = ("n", "n_pce", "voc_mae_v", "voc_mse_v", "spearman_voc", "spearman_pce")
+
+
+def _pick(metrics, grouping: str) -> dict | None:
+    if not isinstance(metrics, dict):
+        return None
+    out = {k: metrics[k] for k in _TEST_KEYS if k in metrics}
+    return {**out, "grouping": grouping} if "voc_mae_v" in out else None
+
+
+def device_tests(model: str, protocol: str | None = None, fitted_path: str | None = None,
+                 validation_path: str | Path | None = None) -> dict:
+    """How well the device ``model`` did on the published device set, held out, for the report.
+
+    Two records, each ``None`` when there is nothing to show: ``film_levels``, the
+    cross-validation on the device set's film-scale (measured) levels, leaving one
+    acceptor structure out (from ``models/device/fitted.json``); ``computed_levels``,
+    the same devices on levels computed with ``protocol`` and its calibration refitted
+    without each material (from :data:`VALIDATION_PATH`; only for a protocol that file
+    has, and only while it was written on the device set the fitted model was).
+
+    Parameters
+    ----------
+    model : {'fitted', 'scharber'}
+        The device model of the ranking.
+    protocol : str, optional
+        Protocol id of the levels ranked; ``None`` for levels given by the user.
+
+    Examples
+    --------
+    >>> t = device_tests("fitted", "no-such-protocol")
+    >>> sorted(t), t["computed_levels"] is None, 0.0 < t["film_levels"]["voc_mae_v"] < 0.2
+    (['computed_levels', 'film_levels'], True, True)
+    """
+    key = "fitted" if model == "fitted" else "scharber"
+    try:
+        meta = load_fitted(fitted_path).meta
+    except ConfigError:
+        return {"film_levels": None, "computed_levels": None}
+    film = _pick((meta.get("cv") or {}).get(key), "leave one acceptor structure out")
+    computed = None
+    path = Path(validation_path) if validation_path else VALIDATION_PATH
+    if protocol and path.is_file():
+        try:
+            rec = json.loads(path.read_text(encoding="utf-8")).get(protocol)
+        except (OSError, ValueError):
+            rec = None
+        if isinstance(rec, dict) and rec.get("devices_sha256") == meta.get("devices_sha256"):
+            computed = _pick((rec.get("acceptor") or {}).get(key), "leave one acceptor structure out")
+            if computed is not None:
+                computed["protocol_id"] = protocol
+    return {"film_levels": film, "computed_levels": computed}

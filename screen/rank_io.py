@@ -27,6 +27,7 @@ import pandas as pd
 
 from screen.config import Config
 from screen.device import DeviceModel
+from screen.devicepars import device_tests
 from screen.partners import Partner, PartnerError, resolve_partner
 from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, rank_candidates)
 
@@ -415,6 +416,7 @@ def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, mo
         "partner_role_assumed": ranking.attrs["partner_role_assumed"],
         "scale": partner.scale,
         "device": model.as_dict(),
+        "device_tests": device_tests(model.model, levels_meta.get("protocol_id")),
         "rank": asdict(options),
         "filters": {"gap_min_ev": options.gap_min_ev, "gap_max_ev": options.gap_max_ev,
                     "max_heavy_atoms": options.max_heavy_atoms, "min_delta_lumo_ev": model.value("min_delta_lumo_ev"),

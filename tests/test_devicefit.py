@@ -111,6 +111,32 @@ def test_shipped_model_is_fitted_on_the_current_device_set():
     assert 0 < p.eqe_max <= 1 and 0 < p.offset_scale_ev < 0.4
 
 
+def test_report_figures_on_computed_levels_are_current_for_every_shipped_protocol():
+    # the report's "Tested on published devices" reads models/device/computed_validation.json: it must have been
+    # written on the current device set, device model and each shipped protocol's calibration
+    from screen.devicepars import VALIDATION_PATH, device_tests
+
+    data = json.loads(VALIDATION_PATH.read_text())
+    folders = sorted(p for p in FITTED_PATH.parent.parent.iterdir() if (p / "statistics.csv").is_file())
+    assert folders, "no shipped protocol folder"
+    fix = "rerun: python benchmarks/device_validation.py --raw models/{}/reference_raw.csv --write"
+    for folder in folders:
+        rec = data.get(folder.name)
+        assert rec is not None, fix.format(folder.name)
+        assert rec["devices_sha256"] == sha256_file(devicefit.DEVICES_PATH), fix.format(folder.name)
+        assert rec["levels_film_sha256"] == sha256_file(devicefit.FILM_PATH), fix.format(folder.name)
+        assert rec["fitted_sha256"] == sha256_file(FITTED_PATH), fix.format(folder.name)
+        assert rec["calibration_statistics_sha256"] == sha256_file(folder / "statistics.csv"), fix.format(folder.name)
+        assert rec["raw_sha256"] == sha256_file(folder / "reference_raw.csv"), fix.format(folder.name)
+        tests = device_tests("fitted", folder.name)
+        comp = tests["computed_levels"]
+        assert comp["protocol_id"] == folder.name and comp["n"] == rec["acceptor"]["fitted"]["n"] > 0
+        assert device_tests("scharber", folder.name)["computed_levels"]["voc_mae_v"] == pytest.approx(
+            rec["acceptor"]["scharber"]["voc_mae_v"])
+    # levels the user measured have no protocol: only the film-scale figures apply
+    assert device_tests("fitted", None)["computed_levels"] is None
+
+
 def _synthetic(n=40, seed=3):
     rng = np.random.default_rng(seed)
     d_homo = rng.uniform(-5.6, -5.1, n)

@@ -310,6 +310,27 @@ def test_header_contents(written):
     assert "\u22125.45 \u00b1 0.15" in "".join(_parse(page).text)
 
 
+def test_device_tests_shown_with_a_caution_when_the_pce_has_not_ranked_devices(tmp_path):
+    # figures as written by benchmarks/device_validation.py --write (models/device/computed_validation.json)
+    ranking, levels, partner, meta = synthetic_inputs()
+    comp = {"voc_mae_v": 0.055, "spearman_voc": 0.50, "spearman_pce": -0.17, "n": 45, "n_pce": 49,
+            "protocol_id": "tblite-gfn2-ff-0000test"}
+    film = {"voc_mae_v": 0.048, "spearman_voc": 0.69, "spearman_pce": 0.39, "n": 91, "n_pce": 98}
+    page = write_report(ranking, levels, partner, {**meta, "device_tests": {"film_levels": film,
+                                                                             "computed_levels": comp}},
+                        tmp_path / "a").read_text(encoding="utf-8")
+    text = " ".join(_parse(page).text)
+    assert "Tested on published devices" in text and "0.055 V" in text and "0.048 V" in text
+    assert "has not ranked published devices (rank correlation \u22120.17)" in text
+    # a PCE that did rank them (or no figures at all): no caution
+    good = {**comp, "spearman_pce": 0.45}
+    for tests in ({"film_levels": film, "computed_levels": good}, None):
+        page = write_report(ranking, levels, partner, {**meta, "device_tests": tests},
+                            tmp_path / f"b{tests is None}").read_text(encoding="utf-8")
+        assert "has not ranked" not in page
+    assert "Tested on published devices" not in page
+
+
 def test_missing_meta_is_tolerated(tmp_path):
     ranking, levels, partner, _ = synthetic_inputs()
     path = write_report(ranking.drop(columns=["homo_sigma_ev"]), levels, {}, {}, tmp_path)

@@ -211,8 +211,15 @@ def _device_items(dev: dict) -> list[tuple[str, str]]:
     absorber_words = {"donor": "donor only (published model)",
                       "both": "both materials (smaller gap of the pair)"}.get(absorber, absorber)
     spectrum = text(dev.get("spectrum"))
+    fitted = dev.get("fitted") if isinstance(dev.get("fitted"), dict) else {}
+    scale = num(dev.get("offset_scale_ev"))
+    scale = num(fitted.get("offset_scale_ev")) if math.isnan(scale) else scale
+    yield_row = ([("EQE offset scale \u0394<sub>0</sub>",
+                   f"{fmt(scale)} eV (charge-generation yield 1 \u2212 exp(\u2212\u0394/\u0394<sub>0</sub>))")]
+                 if text(dev.get("model")) == "fitted" and not math.isnan(scale) else [])
     return [
         ("EQE", _value(dev, "eqe")),
+        *yield_row,
         ("Fill factor", _value(dev, "ff")),
         ("Voltage loss", _loss_words(dev)),
         ("Min. \u0394LUMO", _value(dev, "min_delta_lumo_ev", "eV")),
@@ -246,8 +253,8 @@ MODEL_TEXT = {
     "fitted": ('Fitted energy-loss model (the default): V<sub>oc</sub> = (E<sub>CT</sub> \u2212 '
                '\u0394E<sub>loss</sub>)/q with E<sub>CT</sub> the smaller of the interface gap '
                '(LUMO<sub>acc</sub> \u2212 HOMO<sub>don</sub>) and the smaller optical gap; '
-               '\u0394E<sub>loss</sub> per acceptor class and an EQE that falls smoothly as an offset '
-               'approaches zero, both fitted on published devices; V<sub>oc</sub> never above the gap and '
+               '\u0394E<sub>loss</sub> (per acceptor class where the cross-validation keeps one) and an EQE '
+               'that falls as an offset approaches zero, both fitted on published devices; V<sub>oc</sub> never above the gap and '
                'PCE never above the detailed-balance limit.'),
     "scharber": ('Published Scharber rule (reference model): V<sub>oc</sub> = (LUMO<sub>acc</sub> \u2212 '
                  'HOMO<sub>don</sub>)/e \u2212 loss; J<sub>sc</sub> = EQE \u00b7 q \u00b7 photon flux above '
@@ -267,15 +274,70 @@ def model_label(meta: dict) -> str:
     return MODEL_TEXT.get(model, esc(model))
 
 
+#: below this held-out rank correlation of PCE on computed levels the card says the PCE does not order good pairs
+PCE_RANK_SKILL = 0.3
+
+
+def _test_words(rec, levels: str) -> str:
+    """One held-out record of the device model on published devices, in words (HTML); empty without one.
+
+    Examples
+    --------
+    >>> _test_words({"voc_mae_v": 0.055, "spearman_voc": 0.5, "spearman_pce": -0.17, "n": 45, "n_pce": 49},
+    ...             "computed levels")
+    'computed levels: V<sub>oc</sub> MAE 0.055 V, rank correlation of V<sub>oc</sub> 0.50 (45 devices), of PCE −0.17 (49)'
+    """
+    if not isinstance(rec, dict) or math.isnan(num(rec.get("voc_mae_v"))):
+        return ""
+    n, n_pce = esc(rec.get("n", "?")), esc(rec.get("n_pce", "?"))
+    return (f"{levels}: V<sub>oc</sub> MAE {fmt(rec.get('voc_mae_v'), 3)} V, rank correlation of V<sub>oc</sub> "
+            f"{fmt(rec.get('spearman_voc'))} ({n} devices), of PCE {fmt(rec.get('spearman_pce'))} ({n_pce})")
+
+
+def device_tests_html(tests) -> tuple[str, str]:
+    """The card's "Tested on published devices" value and, when the PCE has not ranked them, a caution (HTML).
+
+    ``tests`` is ``meta["device_tests"]`` (:func:`screen.devicepars.device_tests`).
+
+    Examples
+    --------
+    >>> row, caution = device_tests_html({"film_levels": None, "computed_levels": {
+    ...     "voc_mae_v": 0.055, "spearman_voc": 0.5, "spearman_pce": -0.17, "n": 45, "n_pce": 49,
+    ...     "protocol_id": "p"}})
+    >>> row.startswith("held out (one acceptor at a time); levels computed with <code>p</code>"), "not as an order" in caution
+    (True, True)
+    """
+    tests = tests if isinstance(tests, dict) else {}
+    film, comp = tests.get("film_levels"), tests.get("computed_levels")
+    parts = [_test_words(film, "measured film-scale levels")]
+    if isinstance(comp, dict):
+        parts.append(_test_words(comp, f"levels computed with <code>{esc(comp.get('protocol_id'))}</code> "
+                                       "(each material left out of the calibration)"))
+    parts = [p for p in parts if p]
+    if not parts:
+        return "", ""
+    row = "held out (one acceptor at a time); " + "; ".join(parts)
+    judged = comp if isinstance(comp, dict) else film
+    rho = num(judged.get("spearman_pce")) if isinstance(judged, dict) else math.nan
+    caution = ""
+    if not math.isnan(rho) and rho < PCE_RANK_SKILL:
+        caution = (f"On {'computed' if judged is comp else 'measured'} levels the estimated PCE has not ranked "
+                   f"published devices (rank correlation {fmt(rho)}): read it to set aside impossible and weak "
+                   "pairs, not as an order of the good ones.")
+    return row, caution
+
+
 def device_card(meta: dict) -> str:
-    """Device-model and ranking-settings card (from ``meta["device"]`` and ``meta["rank"]``)."""
+    """Device-model and ranking-settings card (from ``meta["device"]``, ``meta["device_tests"]``, ``meta["rank"]``)."""
     dev = get(meta, "device", default={}) or {}
     rank = get(meta, "rank", default={}) or {}
     absorber = ABSORBER_TEXT.get(text(dev.get("absorber")), "")
+    tested, _ = device_tests_html(get(meta, "device_tests", default={}))
+    items = _device_items(dev) + ([("Tested on published devices", tested)] if tested else [])
     return ('<section class="card" id="card-device"><h3>Device model</h3>'
             f'<p class="quiet">{model_label(meta)}</p>'
             + (f'<p class="quiet">{absorber}</p>' if absorber else "")
-            + _dl(_device_items(dev)) + "<h3>Ranking settings</h3>" + _dl(_ranking_items(rank)) + "</section>")
+            + _dl(items) + "<h3>Ranking settings</h3>" + _dl(_ranking_items(rank)) + "</section>")
 
 
 # --------------------------------------------------------------------------- #

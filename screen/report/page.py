@@ -17,7 +17,7 @@ import pandas as pd
 from screen import __version__
 from screen.report.figures import DIAGRAM_MAX, design_map_svg, level_diagram_svg
 from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, text, truthies
-from screen.report.header import counts_strip, device_card, partner_card, protocol_card
+from screen.report.header import counts_strip, device_card, device_tests_html, partner_card, protocol_card
 from screen.report.tables import (
     full_table,
     not_ranked_table,
@@ -135,6 +135,8 @@ def _shortlist_section(ranking: pd.DataFrame, short: pd.DataFrame, how: str, pid
     return [
         '<h2 id="shortlist"><span class="num">2</span>Shortlist for discussion</h2>',
         f'<p class="summary">{_summary_sentence(ranking, pid, n_pass)}</p>',
+        *([f'<p class="caution">{caution}</p>'] if (caution := device_tests_html(meta.get("device_tests"))[1])
+          else []),
         f'<p class="quiet">Shown: {esc(how)}. Levels on the vacuum scale, value \u00b1 1\u03c3. '
         "\u0394LUMO = LUMO(donor) \u2212 LUMO(acceptor), \u0394HOMO = HOMO(donor) \u2212 HOMO(acceptor). "
         "Click a column header to sort.</p>",
