@@ -126,9 +126,10 @@ def run_matrix(ranking_paths, out_dir, config=None) -> Path:
     from screen.report.matrix_page import write_overview
 
     cfg = Config.of(config)
-    rankings, partners = [], []
+    rankings, partners, tests = [], [], None
     for path in map(Path, ranking_paths):
         meta = read_json(path.parent / "ranking.meta.json")
+        tests = tests or meta.get("device_tests")  # same levels and device model for every partner
         partner = meta["partner"]
         table = pd.read_csv(path, dtype={"id": str, "smiles": str, "name": str}, keep_default_na=False,
                             na_values=[""])
@@ -145,7 +146,7 @@ def run_matrix(ranking_paths, out_dir, config=None) -> Path:
     write_csv(matrix, folder / "matrix.csv")
     meta = {"dascreen": __version__, "stage": "partner matrix", "partners": partners,
             "cell": "best PCE estimate [%] of the candidate's viable rows against the partner; empty = not viable",
-            "device": cfg["device"], "rank": cfg["rank"], "rows": int(len(matrix)),
+            "device": cfg["device"], "device_tests": tests, "rank": cfg["rank"], "rows": int(len(matrix)),
             "outputs": {"matrix": "matrix.csv", "overview": "overview.html", "meta": "matrix.meta.json"}}
     write_json(meta, folder / "matrix.meta.json")
     write_overview(matrix, meta, folder / "overview.html")

@@ -68,6 +68,14 @@ def test_overview_page_marks_not_viable_cells_and_links_reports():
     assert 'href="../a--1/report.html"' in page
     assert page.count('title="not viable"') == 1 and "D&lt;1&gt;" in page
     assert "<svg" in page and "http" not in page.replace("http://www.w3.org", "")  # self-contained
+    assert 'class="caution"' not in page  # no device figures given: nothing to caution about
+    # held-out figures on computed levels whose PCE did not rank published devices: the "best partner" by PCE is
+    # cautioned on the page (figures as in models/device/computed_validation.json)
+    comp = {"voc_mae_v": 0.055, "spearman_voc": 0.50, "spearman_pce": -0.17, "n": 45, "n_pce": 49,
+            "protocol_id": "p"}
+    page = render_overview(m, {"partners": [{"id": "a"}, {"id": "b"}],
+                               "device_tests": {"film_levels": None, "computed_levels": comp}}, created="2024-01-01")
+    assert 'class="caution"' in page and "\u22120.17" in page
 
 
 def test_rank_with_several_partners_writes_rankings_matrix_and_overview(tmp_path, capsys):
@@ -96,5 +104,7 @@ def test_rank_with_several_partners_writes_rankings_matrix_and_overview(tmp_path
     assert math.isnan(matrix.set_index("id").loc["KF-D03", "y6"])  # LUMO below the acceptor's: not viable
     meta = json.loads((matrix_dir / "matrix.meta.json").read_text())
     assert [p["id"] for p in meta["partners"]] == ["y6", "c60", "it-4f"]
+    # the user's own levels (no protocol): only the film-scale figures of the device model apply
+    assert meta["device_tests"]["computed_levels"] is None and meta["device_tests"]["film_levels"]["n"] > 0
     page = (matrix_dir / "overview.html").read_text()
     assert all(f'href="../{p["folder"]}/report.html"' in page for p in meta["partners"])

@@ -30,6 +30,7 @@ from screen import __version__
 from screen.io import atomic_path
 from screen.report.drawings import molecule_svg
 from screen.report.format import esc, fmt, num
+from screen.report.header import device_tests_html
 
 __all__ = ["render_overview", "write_overview", "heat_colour", "MAX_ROWS"]
 
@@ -44,6 +45,7 @@ _SCALE = [(255, 255, 204), (161, 218, 180), (65, 182, 196), (44, 127, 184), (37,
 _STYLE = """
 body{font:14px/1.4 system-ui,-apple-system,"Segoe UI",sans-serif;margin:24px;color:#1b1b1b}
 h1{font-size:20px;margin:0 0 4px}p.sub{color:#555;margin:0 0 16px;max-width:70em}
+p.caution{background:#fff4e0;border-left:5px solid #d9822b;padding:8px 14px;margin:0 0 16px;max-width:70em}
 table{border-collapse:collapse}th,td{border:1px solid #ddd;padding:4px 6px;text-align:center}
 th.cand,td.cand{text-align:left}td.na{background:#eee;color:#888}
 thead th{background:#f6f6f6;vertical-align:bottom;font-weight:600}
@@ -106,7 +108,8 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
         From :func:`screen.matrix.partner_matrix` (best first).
     meta : dict
         ``partners`` (list of dicts: ``id``, and optionally ``role``, levels, ``report`` link,
-        ``viable``/``ranked`` counts); optionally ``device``.
+        ``viable``/``ranked`` counts); optionally ``device`` and ``device_tests``
+        (:func:`screen.devicepars.device_tests`: a caution when the PCE did not rank published devices).
     created : str, optional
         Date line (default: now, UTC).
     """
@@ -125,6 +128,7 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
     model = esc((meta.get("device") or {}).get("model", "not recorded"))
     when = created or datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
     head = "".join(_head_cell(p) for p in partners)
+    caution = device_tests_html(meta.get("device_tests"))[1]
     return (
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
         f"<title>Partner matrix: {len(matrix)} candidates x {len(ids)} partners</title>"
@@ -134,7 +138,8 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
         f"partner (device model: {model}), among its pairs that pass the filters and are viable; a grey cell "
         "is a pair that is not viable. Estimates for screening, not measurements: follow a partner's link for "
         "its ranking, uncertainties and flags.</p>\n"
-        f"{_legend(low, high)}"
+        + (f'<p class="caution">{caution}</p>\n' if caution else "")
+        + f"{_legend(low, high)}"
         f"<table><thead><tr><th class=\"cand\">candidate</th>{head}<th>best partner</th></tr></thead>\n"
         f"<tbody>{''.join(rows)}</tbody></table>\n{more}"
         f"<footer>dascreen {esc(__version__)} \u00b7 {esc(when)} \u00b7 matrix.csv holds every row</footer>"
