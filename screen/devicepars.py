@@ -29,8 +29,8 @@ import numpy as np
 
 from screen.errors import ConfigError
 
-__all__ = ["FittedParameters", "FITTED_PATH", "VALIDATION_PATH", "load_fitted", "device_tests", "POOLED", "NON_FULLERENE",
-           "family_of"]
+__all__ = ["FittedParameters", "FITTED_PATH", "VALIDATION_PATH", "load_fitted", "device_tests", "POOLED",
+           "NON_FULLERENE", "family_of"]
 
 #: the fitted default device model shipped with the repository
 FITTED_PATH = Path(__file__).resolve().parent.parent / "models" / "device" / "fitted.json"

@@ -49,6 +49,18 @@ def repo_dir() -> Path:
     return REPO
 
 
+@pytest.fixture(scope="session")
+def reference_rows(repo_dir) -> list[dict]:
+    """Every row of the calibration reference sets (``models/reference/*.csv``) as dicts of strings."""
+    import csv
+
+    rows = []
+    for name in ("ip_gas", "ea_gas", "gap_optical", "gap_series", "levels_film", "dyes"):
+        with open(repo_dir / "models" / "reference" / f"{name}.csv", newline="") as fh:
+            rows.extend(csv.DictReader(fh))
+    return rows
+
+
 @pytest.fixture(scope="module")
 def cfg(repo_dir):
     """The default configuration with the repository's shipped models and reference sets."""

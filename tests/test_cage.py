@@ -3,9 +3,6 @@ the gas-phase electron-diffraction bond lengths of C60)."""
 
 from __future__ import annotations
 
-import csv
-from pathlib import Path
-
 import numpy as np
 import pytest
 from rdkit import Chem
@@ -14,7 +11,6 @@ from screen.cage import cage_smiles, closed_cage, euler_characteristic
 from screen.options import StructureOptions
 from screen.structures import build_structure
 
-REFERENCE = Path(__file__).resolve().parent.parent / "models" / "reference"
 #: C60 bond lengths r_g [Å] and their difference, gas-phase electron diffraction: Hedberg, Hedberg, Bethune,
 #: Brown, Dorn, Johnson, de Vries, Science 254 (1991) 410, doi:10.1126/science.254.5030.410 (abstract read):
 #: 6:6 bond 1.401(10), 6:5 bond 1.458(6), difference 0.057(6) (2σ in parentheses)
@@ -25,14 +21,8 @@ FULLERENES = {"C60", "C70", "ICBA (indene-C60 bisadduct)", "ICMA (indene-C60 mon
               "diethyl methano[60]fullerene-61,61-dicarboxylate (Bingel adduct)"}
 
 
-def _reference_rows():
-    for name in ("ip_gas", "ea_gas", "gap_optical", "gap_series", "levels_film", "dyes"):
-        with open(REFERENCE / f"{name}.csv", newline="") as fh:
-            yield from csv.DictReader(fh)
-
-
-def test_exactly_the_fullerenes_of_the_reference_sets_are_cages():
-    found = {row["name"] for row in _reference_rows() if cage_smiles(row["smiles"])}
+def test_exactly_the_fullerenes_of_the_reference_sets_are_cages(reference_rows):
+    found = {row["name"] for row in reference_rows if cage_smiles(row["smiles"])}
     assert found == FULLERENES
 
 

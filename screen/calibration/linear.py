@@ -20,6 +20,7 @@ import numpy as np
 import pandas as pd
 
 from screen.cage import cage_smiles
+from screen.endgroup import ic_end_smiles
 from screen.errors import CalculationError
 
 __all__ = ["CalibrationError", "LinearLevelModel", "FilmShift", "DERIVED", "CLASS_TERMS", "class_terms",
@@ -47,6 +48,13 @@ def _polymer(frame: pd.DataFrame) -> np.ndarray:
     return frame["representation"].astype(str).str.strip().eq("polymer").to_numpy(float)
 
 
+def _ic_end(frame: pd.DataFrame) -> np.ndarray:
+    """1.0 for a structure with a dicyanomethylene-indanone end group (:func:`screen.endgroup.ic_end_smiles`)."""
+    if "smiles" not in frame:
+        raise CalibrationError("feature 'ic_end' needs the rows' SMILES (column 'smiles')")
+    return np.array([float(ic_end_smiles(s)) for s in frame["smiles"].astype(str)])
+
+
 def _cage(frame: pd.DataFrame) -> np.ndarray:
     """1.0 for a closed carbon cage (a fullerene or adduct, :func:`screen.cage.closed_cage`), else 0.0."""
     if "smiles" not in frame:
@@ -68,14 +76,20 @@ DERIVED = {
     # closed carbon cage: GFN2-xTB's error for a fullerene is a class of its own (on xTB geometries every
     # fullerene of the film set sits 0.4-0.6 eV off the planar-π line in LUMO, all alike), fitted as a term
     "cage": (_cage, {}),
+    # dicyanomethylene-indanone end groups of A-D-A acceptors: an optical-gap error of their own (screen.endgroup);
+    # a class term of the optical-gap model only (screen.calibration.optical.CLASS_TERMS)
+    "ic_end": (_ic_end, {}),
 }
 
 #: class terms added to every feature set of a fit whose rows hold at least this many members of the class
 CLASS_TERMS = {"cage": 2}
 
 
-def class_terms(frame: pd.DataFrame) -> list[str]:
-    """The :data:`CLASS_TERMS` a fit on ``frame`` carries: those with enough member rows to be estimated.
+def class_terms(frame: pd.DataFrame, terms: dict[str, int] | None = None) -> list[str]:
+    """The class terms a fit on ``frame`` carries: those with enough member rows to be estimated.
+
+    ``terms`` maps a :data:`DERIVED` class indicator to its minimum member count (default
+    :data:`CLASS_TERMS`, the terms of every model).
 
     Examples
     --------
@@ -84,7 +98,7 @@ def class_terms(frame: pd.DataFrame) -> list[str]:
     """
     if "smiles" not in frame:
         return []
-    return [t for t, n in CLASS_TERMS.items() if DERIVED[t][0](frame).sum() >= n]
+    return [t for t, n in (CLASS_TERMS if terms is None else terms).items() if DERIVED[t][0](frame).sum() >= n]
 
 
 def feature_matrix(frame: pd.DataFrame, names: list[str]) -> np.ndarray:

@@ -254,7 +254,8 @@ MODEL_TEXT = {
                '\u0394E<sub>loss</sub>)/q with E<sub>CT</sub> the smaller of the interface gap '
                '(LUMO<sub>acc</sub> \u2212 HOMO<sub>don</sub>) and the smaller optical gap; '
                '\u0394E<sub>loss</sub> (per acceptor class where the cross-validation keeps one) and an EQE '
-               'that falls as an offset approaches zero, both fitted on published devices; V<sub>oc</sub> never above the gap and '
+               'that falls as an offset approaches zero, both fitted on published devices; V<sub>oc</sub> '
+               'never above the gap and '
                'PCE never above the detailed-balance limit.'),
     "scharber": ('Published Scharber rule (reference model): V<sub>oc</sub> = (LUMO<sub>acc</sub> \u2212 '
                  'HOMO<sub>don</sub>)/e \u2212 loss; J<sub>sc</sub> = EQE \u00b7 q \u00b7 photon flux above '
@@ -283,9 +284,10 @@ def _test_words(rec, levels: str) -> str:
 
     Examples
     --------
-    >>> _test_words({"voc_mae_v": 0.055, "spearman_voc": 0.5, "spearman_pce": -0.17, "n": 45, "n_pce": 49},
-    ...             "computed levels")
-    'computed levels: V<sub>oc</sub> MAE 0.055 V, rank correlation of V<sub>oc</sub> 0.50 (45 devices), of PCE −0.17 (49)'
+    >>> words = _test_words({"voc_mae_v": 0.055, "spearman_voc": 0.5, "spearman_pce": -0.17, "n": 45,
+    ...                      "n_pce": 49}, "computed levels")
+    >>> words.split(", of ")
+    ['computed levels: V<sub>oc</sub> MAE 0.055 V, rank correlation of V<sub>oc</sub> 0.50 (45 devices)', 'PCE −0.17 (49)']
     """
     if not isinstance(rec, dict) or math.isnan(num(rec.get("voc_mae_v"))):
         return ""
@@ -304,8 +306,10 @@ def device_tests_html(tests) -> tuple[str, str]:
     >>> row, caution = device_tests_html({"film_levels": None, "computed_levels": {
     ...     "voc_mae_v": 0.055, "spearman_voc": 0.5, "spearman_pce": -0.17, "n": 45, "n_pce": 49,
     ...     "protocol_id": "p"}})
-    >>> row.startswith("held out (one acceptor at a time); levels computed with <code>p</code>"), "not as an order" in caution
-    (True, True)
+    >>> row.startswith("held out (one acceptor at a time); levels computed with <code>p</code>")
+    True
+    >>> "not as an order" in caution
+    True
     """
     tests = tests if isinstance(tests, dict) else {}
     film, comp = tests.get("film_levels"), tests.get("computed_levels")
