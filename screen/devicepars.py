@@ -199,11 +199,12 @@ VALIDATION_PATH = FITTED_PATH.parent / "computed_validation.json"
 _TEST_KEYS = ("n", "n_pce", "voc_mae_v", "voc_mse_v", "spearman_voc", "spearman_pce")
 
 
-def _pick(metrics, grouping: str) -> dict | None:
-    if not isinstance(metrics, dict):
+def _pick(record, key: str) -> dict | None:
+    """The :data:`_TEST_KEYS` of ``record[key]`` with the record's grouping; None without a Voc MAE."""
+    metrics = record.get(key) if isinstance(record, dict) else None
+    if not isinstance(metrics, dict) or "voc_mae_v" not in metrics:
         return None
-    out = {k: metrics[k] for k in _TEST_KEYS if k in metrics}
-    return {**out, "grouping": grouping} if "voc_mae_v" in out else None
+    return {**{k: metrics[k] for k in _TEST_KEYS if k in metrics}, "grouping": record.get("grouping")}
 
 
 def device_tests(model: str, protocol: str | None = None, fitted_path: str | None = None,
@@ -235,7 +236,7 @@ def device_tests(model: str, protocol: str | None = None, fitted_path: str | Non
         meta = load_fitted(fitted_path).meta
     except ConfigError:
         return {"film_levels": None, "computed_levels": None}
-    film = _pick((meta.get("cv") or {}).get(key), "leave one acceptor structure out")
+    film = _pick(meta.get("cv"), key)
     computed = None
     path = Path(validation_path) if validation_path else VALIDATION_PATH
     if protocol and path.is_file():
@@ -244,7 +245,7 @@ def device_tests(model: str, protocol: str | None = None, fitted_path: str | Non
         except (OSError, ValueError):
             rec = None
         if isinstance(rec, dict) and rec.get("devices_sha256") == meta.get("devices_sha256"):
-            computed = _pick((rec.get("acceptor") or {}).get(key), "leave one acceptor structure out")
+            computed = _pick(rec.get("acceptor"), key)
             if computed is not None:
                 computed["protocol_id"] = protocol
     return {"film_levels": film, "computed_levels": computed}

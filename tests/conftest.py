@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import csv
 import functools
 import os
 from pathlib import Path
@@ -52,8 +53,6 @@ def repo_dir() -> Path:
 @pytest.fixture(scope="session")
 def reference_rows(repo_dir) -> list[dict]:
     """Every row of the calibration reference sets (``models/reference/*.csv``) as dicts of strings."""
-    import csv
-
     rows = []
     for name in ("ip_gas", "ea_gas", "gap_optical", "gap_series", "levels_film", "dyes"):
         with open(repo_dir / "models" / "reference" / f"{name}.csv", newline="") as fh:

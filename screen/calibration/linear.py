@@ -48,18 +48,19 @@ def _polymer(frame: pd.DataFrame) -> np.ndarray:
     return frame["representation"].astype(str).str.strip().eq("polymer").to_numpy(float)
 
 
-def _ic_end(frame: pd.DataFrame) -> np.ndarray:
-    """1.0 for a structure with a dicyanomethylene-indanone end group (:func:`screen.endgroup.ic_end_smiles`)."""
-    if "smiles" not in frame:
-        raise CalibrationError("feature 'ic_end' needs the rows' SMILES (column 'smiles')")
-    return np.array([float(ic_end_smiles(s)) for s in frame["smiles"].astype(str)])
+def _structure_class(name: str, member):
+    """Indicator feature ``name``: 1.0 for a row whose SMILES ``member(smiles)`` accepts, else 0.0."""
+    def indicator(frame: pd.DataFrame) -> np.ndarray:
+        if "smiles" not in frame:
+            raise CalibrationError(f"feature {name!r} needs the rows' SMILES (column 'smiles')")
+        return np.array([float(member(s)) for s in frame["smiles"].astype(str)])
+    return indicator
 
 
-def _cage(frame: pd.DataFrame) -> np.ndarray:
-    """1.0 for a closed carbon cage (a fullerene or adduct, :func:`screen.cage.closed_cage`), else 0.0."""
-    if "smiles" not in frame:
-        raise CalibrationError("feature 'cage' needs the rows' SMILES (column 'smiles')")
-    return np.array([float(cage_smiles(s)) for s in frame["smiles"].astype(str)])
+#: closed carbon cages (fullerenes and adducts, :func:`screen.cage.closed_cage`)
+_cage = _structure_class("cage", cage_smiles)
+#: dicyanomethylene-indanone end groups (:func:`screen.endgroup.ic_end_smiles`)
+_ic_end = _structure_class("ic_end", ic_end_smiles)
 
 
 #: derived features: name → (function of the frame, the raw columns it uses with their coefficients)
