@@ -35,7 +35,8 @@ def test_exactly_the_ic_acceptors_of_the_reference_sets_are_recognised(reference
 def test_shipped_optical_model_carries_a_narrowing_ic_term(protocol):
     model = json.loads((REPO / "models" / protocol / "gap_opt_film.json").read_text())
     coef = dict(zip(model["model"]["features"], model["model"]["coef"]))
-    # film gaps of the IC acceptors are narrower than the other materials' at the same computed features
+    # film gaps of the IC acceptors are narrower than the other materials' at the same computed features; the bound
+    # is a plausibility window, not a published value (common practice: film red shifts stay within a few 0.1 eV)
     assert -0.4 < coef["ic_end"] < 0.0
     # held out one at a time, Y6 and BTP-eC9 within 0.2 eV of their film absorption onsets in levels_film.csv:
     # Y6 1.36 eV (Yuan et al., Joule 3 (2019) 1140, doi:10.1016/j.joule.2019.01.004, read in the OPV2D open data
