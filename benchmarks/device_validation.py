@@ -39,7 +39,7 @@ model (``tests/test_devicefit.py`` checks the hashes).
 Usage::
 
     .venv/bin/python benchmarks/device_validation.py [--devices models/reference/devices.csv] [--write]
-    .venv/bin/python benchmarks/device_validation.py --raw models/tblite-gfn2-xtb-cc95e425/reference_raw.csv --write
+    .venv/bin/python benchmarks/device_validation.py --raw models/tblite-gfn2-xtb-3ce6def9/reference_raw.csv --write
 """
 
 from __future__ import annotations

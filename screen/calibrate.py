@@ -192,7 +192,8 @@ def _domain(residuals: list[dict]) -> dict:
 #: columns of ``reference_raw.csv``: what a refit needs without recomputation
 RAW_TABLE_COLUMNS = ["id", "key", "name", "smiles", "status", "error", "representation", "xtb_ip_ev", "xtb_ea_ev",
                      "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev", "xtb_k_hl_ev", "xtb_j_hl_ev", "xtb_overlap_hl",
-                     "xtb_ip_film_ev", "xtb_ea_film_ev", "chain_n_max", "chain_fit", "chain_fit_quality"]
+                     "xtb_ip_film_ev", "xtb_ea_film_ev", "xtb_lone_pair_shift_ev", "chain_n_max", "chain_fit",
+                     "chain_fit_quality"]
 
 
 def raw_table(computed: pd.DataFrame) -> pd.DataFrame:

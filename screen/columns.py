@@ -22,7 +22,7 @@ CONFORMER_SPREAD_COLUMNS = ["conf_spread_homo_ev", "conf_spread_lumo_ev", "conf_
 #: columns of the per-shard electronic table (``work/<batch>/electronic/shard-NNN.csv``)
 ELECTRONIC_COLUMNS = (["key", "status", "error"] + RAW_COLUMNS + EXTRA_RAW_COLUMNS
                       + ["xtb_energy_eh", "xtb_cation_eh", "xtb_anion_eh", "xtb_energy_film_eh",
-                         "xtb_cation_film_eh", "xtb_anion_film_eh", "scf_rungs", "n_atoms", "sp_wall_s",
+                         "xtb_cation_film_eh", "xtb_anion_film_eh", "xtb_lone_pair_shift_ev", "scf_rungs", "n_atoms", "sp_wall_s",
                          "electronic_note", "smiles_computed", "truncated_chains", "truncated_groups",
                          "n_conformers", *CONFORMER_SPREAD_COLUMNS, "forcefield", "geometry", "structure_wall_s"])
 #: calibrated values of ``levels.csv`` [eV], with their σ and the scale of homo/lumo/gap_opt

@@ -136,7 +136,8 @@ def levels_step(numbers, positions_bohr, options: ElectronicOptions, engine: Eng
         As :func:`screen.electronic.vertical_levels`.
     """
     guess = _kept_guess(np.asarray(numbers), np.asarray(positions_bohr, float))
-    return vertical_levels(numbers, positions_bohr, engine, film_epsilon=options.film_epsilon, neutral_guess=guess)
+    return vertical_levels(numbers, positions_bohr, engine, film_epsilon=options.film_epsilon, neutral_guess=guess,
+                           lone_pair_homo=options.lone_pair_homo)
 
 
 def _job(step: str, *args):

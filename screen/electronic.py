@@ -41,6 +41,7 @@ from screen.columns import ELECTRONIC_COLUMNS, EXTRA_RAW_COLUMNS, RAW_COLUMNS
 from screen.constants import BOHR_ANGSTROM, HARTREE_EV
 from screen.engines import Engine, EngineError
 from screen.excitation import frontier_integrals
+from screen.lonepair import pi_homo
 from screen.io import Journal, Progress, write_csv
 from screen.options import ElectronicOptions
 from screen.provenance import sha256_file
@@ -73,14 +74,24 @@ def _delta_scf(numbers, positions_bohr, engine: Engine, epsilon=None, guesses=No
     return [neutral, cation, anion]
 
 
-def _integrals(numbers, positions_bohr, neutral) -> dict:
-    """K, J and overlap of the neutral's HOMO and LUMO, NaN when the engine gives no orbitals."""
+def _integrals(numbers, positions_bohr, neutral, homo: int) -> dict:
+    """K, J and overlap of orbital ``homo`` and the neutral's LUMO, NaN when the engine gives no orbitals."""
     if neutral.orbitals is None:
         return {"xtb_k_hl_ev": np.nan, "xtb_j_hl_ev": np.nan, "xtb_overlap_hl": np.nan}
     o = neutral.orbitals
     out = frontier_integrals(numbers, positions_bohr, o["coefficients"], o["overlap"], o["ao_atom"],
-                             neutral.occupations, homo=neutral.n_electrons // 2 - 1)
+                             neutral.occupations, homo=homo, lumo=neutral.n_electrons // 2)
     return {"xtb_k_hl_ev": out["k_hl_ev"], "xtb_j_hl_ev": out["j_hl_ev"], "xtb_overlap_hl": out["overlap_hl"]}
+
+
+def _hole(numbers, positions_bohr, neutral, rule: str) -> int:
+    """The occupied orbital the levels are taken for: the HOMO, or with ``rule="pi"`` the highest π-type
+    orbital when the HOMO is a nitrogen lone pair (:mod:`screen.lonepair`)."""
+    homo = neutral.n_electrons // 2 - 1
+    o = neutral.orbitals
+    if rule != "pi" or o is None or "ao_l" not in o:
+        return homo
+    return pi_homo(numbers, positions_bohr, o["coefficients"], o["overlap"], o["ao_atom"], o["ao_l"], homo)
 
 
 def _film(numbers, positions_bohr, engine: Engine, film_epsilon, gas, restart) -> tuple[dict, list]:
@@ -96,17 +107,21 @@ def _film(numbers, positions_bohr, engine: Engine, film_epsilon, gas, restart) -
             "xtb_anion_film_eh": a.energy_eh}, [n, c, a]
 
 
-def _note(engine: Engine, film_epsilon) -> str:
+def _note(engine: Engine, film_epsilon, lone_pair_shift_ev: float = 0.0) -> str:
     notes = []
     if not engine.offers_orbitals:
-        notes.append(f"engine {engine.name} gives no AO overlap: frontier integrals not computed")
+        notes.append(f"engine {engine.name} gives no AO overlap: frontier integrals not computed, nitrogen "
+                     "lone-pair HOMO not checked")
+    if lone_pair_shift_ev > 0:
+        notes.append(f"lone_pair_homo: the HOMO is a nitrogen lone pair {lone_pair_shift_ev:.2f} eV above the "
+                     "highest π orbital; IP, HOMO, gap and integrals taken for the π orbital (screen.lonepair)")
     if film_epsilon is not None and not engine.offers_continuum:
         notes.append(f"engine {engine.name} offers no dielectric continuum: film IP/EA not computed")
     return "; ".join(notes)
 
 
 def vertical_levels(numbers, positions_bohr, engine: Engine, film_epsilon: float | None = None,
-                    restart: bool = RESTART_FROM_NEUTRAL, neutral_guess=None) -> dict:
+                    restart: bool = RESTART_FROM_NEUTRAL, neutral_guess=None, lone_pair_homo: str = "pi") -> dict:
     """Raw ΔSCF vertical IP/EA, neutral frontier orbitals and their integrals, film-phase IP/EA.
 
     Parameters
@@ -128,6 +143,11 @@ def vertical_levels(numbers, positions_bohr, engine: Engine, film_epsilon: float
         from (with ``restart``), e.g. the chosen conformer's ranking single point
         (:func:`screen.structures.build_structure` with ``return_singlepoint=True``) when the
         structure was made in the same process; the converged energies do not depend on it.
+    lone_pair_homo : {"pi", "aufbau"}
+        When the neutral's HOMO is the σ lone pair of a two-coordinate nitrogen (GFN2-xTB places
+        these too high, :mod:`screen.lonepair`): ``"pi"`` takes the HOMO, the gap, the
+        integrals and the IPs (shifted by ε_HOMO − ε_π) for the highest π-type orbital, and
+        reports the shift in ``xtb_lone_pair_shift_ev``; ``"aufbau"`` keeps the HOMO as it is.
 
     Returns
     -------
@@ -136,7 +156,8 @@ def vertical_levels(numbers, positions_bohr, engine: Engine, film_epsilon: float
         ``xtb_lumo_ev``, ``xtb_gap_ev`` [eV] (neutral orbital energies and
         their difference), ``xtb_k_hl_ev``, ``xtb_j_hl_ev`` [eV] and
         ``xtb_overlap_hl`` (:func:`screen.excitation.frontier_integrals`),
-        ``xtb_ip_film_ev``, ``xtb_ea_film_ev`` [eV], total energies [Eh] of the
+        ``xtb_ip_film_ev``, ``xtb_ea_film_ev`` [eV], ``xtb_lone_pair_shift_ev`` [eV] (0 unless
+        the HOMO is a nitrogen lone pair, NaN when not checked), total energies [Eh] of the
         six states, the SCF rung of each state (``"n/c/a"``, film states after
         a ``|``), the summed wall time [s] and a note on what the engine could
         not compute.
@@ -162,20 +183,27 @@ def vertical_levels(numbers, positions_bohr, engine: Engine, film_epsilon: float
     rungs = "/".join(str(s.rung) for s in gas)
     if film_states:
         rungs += "|" + "/".join(str(s.rung) for s in film_states)
+    hole = _hole(numbers, positions_bohr, neutral, lone_pair_homo)
+    checked = lone_pair_homo == "pi" and neutral.orbitals is not None and "ao_l" in neutral.orbitals
+    shift = (homo - float(neutral.orbital_energies_eh[hole])) * HARTREE_EV  # ≥ 0; 0 when the HOMO is π
+    if shift > 0:
+        homo -= shift / HARTREE_EV
+        film["xtb_ip_film_ev"] = film["xtb_ip_film_ev"] + shift
     return {
-        "xtb_ip_ev": (cation.energy_eh - neutral.energy_eh) * HARTREE_EV,
+        "xtb_ip_ev": (cation.energy_eh - neutral.energy_eh) * HARTREE_EV + shift,
         "xtb_ea_ev": (neutral.energy_eh - anion.energy_eh) * HARTREE_EV,
         "xtb_homo_ev": homo * HARTREE_EV,
         "xtb_lumo_ev": lumo * HARTREE_EV,
         "xtb_gap_ev": (lumo - homo) * HARTREE_EV,
-        **_integrals(numbers, positions_bohr, neutral),
+        **_integrals(numbers, positions_bohr, neutral, hole),
         **film,
+        "xtb_lone_pair_shift_ev": shift if checked else np.nan,
         "xtb_energy_eh": neutral.energy_eh,
         "xtb_cation_eh": cation.energy_eh,
         "xtb_anion_eh": anion.energy_eh,
         "scf_rungs": rungs,
         "sp_wall_s": sum(s.wall_s for s in gas + film_states),
-        "electronic_note": _note(engine, film_epsilon),
+        "electronic_note": _note(engine, film_epsilon, shift),
     }
 
 
@@ -193,7 +221,8 @@ def electronic_engine(options: dict) -> Engine:
 
 def _electronic_job(numbers, positions_bohr, options: dict) -> dict:
     """Worker-process entry: raw levels of one geometry."""
-    return vertical_levels(numbers, positions_bohr, electronic_engine(options), film_epsilon=options["film_epsilon"])
+    return vertical_levels(numbers, positions_bohr, electronic_engine(options), film_epsilon=options["film_epsilon"],
+                           lone_pair_homo=options["lone_pair_homo"])
 
 
 #: structure-route columns an electronic row carries over from the structures status table (besides
@@ -296,7 +325,8 @@ def run_electronic(structures_sdf, structures_csv, out_csv, options: ElectronicO
     local = None
     if engine is not None or not isolate:
         engine = engine or options.make_engine()
-        local = lambda z, pos, _opts: vertical_levels(z, pos, engine, film_epsilon=options.film_epsilon)
+        local = lambda z, pos, _opts: vertical_levels(z, pos, engine, film_epsilon=options.film_epsilon,
+                                                      lone_pair_homo=options.lone_pair_homo)
 
     with molecule_caller(_electronic_job, local, timeout_s) as call:
         def compute(row: dict) -> dict:

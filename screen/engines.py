@@ -145,8 +145,9 @@ class SinglePoint:
     wall_s: float
     rung: int = 0
     n_electrons: int = field(default=0)
-    #: MO coefficients (AOs × MOs), AO overlap matrix and the atom of each AO, when asked for
-    #: (``orbitals=True``) and offered by the backend; else None
+    #: MO coefficients (AOs × MOs), AO overlap matrix, the atom and the angular momentum of each AO
+    #: (``coefficients``, ``overlap``, ``ao_atom``, ``ao_l``), when asked for (``orbitals=True``) and offered
+    #: by the backend; else None
     orbitals: dict | None = field(default=None, repr=False, compare=False)
     #: backend result object a later single point can start from (``guess=``); None if not offered
     handle: object = field(default=None, repr=False, compare=False)
@@ -345,9 +346,11 @@ class TbliteEngine(Engine):
         out = {"energy": res.get("energy"), "eps": res.get("orbital-energies"),
                "occ": res.get("orbital-occupations"), "handle": res}
         if orbitals:  # coefficients come as AOs × MOs (CᵀSC = 1 checked in tests/test_engines.py)
+            shell = np.asarray(calc.get("orbital-map"))
             out["orbitals"] = {"coefficients": np.asarray(res.get("orbital-coefficients")),
                                "overlap": np.asarray(res.get("overlap-matrix")),
-                               "ao_atom": np.asarray(calc.get("shell-map"))[np.asarray(calc.get("orbital-map"))]}
+                               "ao_atom": np.asarray(calc.get("shell-map"))[shell],
+                               "ao_l": np.asarray(calc.get("angular-momenta"))[shell]}
         return out
 
     def ase_calculator(self):

@@ -89,7 +89,7 @@ def _gamma(numbers: np.ndarray, positions_bohr: np.ndarray) -> np.ndarray:
 
 
 def frontier_integrals(numbers, positions_bohr, coeffs, overlap, ao_atom, occupations,
-                       homo: int | None = None) -> dict:
+                       homo: int | None = None, lumo: int | None = None) -> dict:
     """HOMO→LUMO exchange K, Coulomb J and spatial overlap of a closed-shell molecule.
 
     Parameters
@@ -107,7 +107,9 @@ def frontier_integrals(numbers, positions_bohr, coeffs, overlap, ao_atom, occupa
     occupations : array_like
         Orbital occupations (the HOMO is the highest with occupation > 1 unless ``homo`` is given).
     homo : int, optional
-        Index of the HOMO (0-based, ascending orbital energies); the LUMO is the next one.
+        Index of the HOMO (0-based, ascending orbital energies).
+    lumo : int, optional
+        Index of the LUMO (default: the orbital after ``homo``).
 
     Returns
     -------
@@ -127,7 +129,8 @@ def frontier_integrals(numbers, positions_bohr, coeffs, overlap, ao_atom, occupa
     occ = np.asarray(occupations, float)
     if homo is None:
         homo = int(np.flatnonzero(occ > 1.0).max())
-    lumo = homo + 1
+    if lumo is None:
+        lumo = homo + 1
     if lumo >= np.shape(coeffs)[1]:
         raise ValueError(f"no LUMO: orbital {lumo} of {np.shape(coeffs)[1]}")
     cprime = lowdin_coefficients(coeffs, overlap)

@@ -107,6 +107,9 @@ _REGISTRY = (
     Flag("heavy_atoms_unknown", "heavy-atom count unknown, so the size limit could not be checked", "info"),
     Flag("far_from_reference", "unlike every reference material of the calibration (fingerprint similarity "
                                "below 0.30): its levels are extrapolated and carry a wide σ", "info"),
+    Flag("lone_pair_homo", "the tight-binding HOMO was a nitrogen lone pair placed above the π orbitals; IP, "
+                           "HOMO and gap are those of the highest π orbital (IP shifted by the orbital-energy "
+                           "difference)", "info"),
     Flag("role_from_levels", "no role given; evaluated in the role its levels support against the partner "
                              "(type-II alignment)", "info"),
     Flag("role_assumed", "role not given in the input; assumed to complement the partner", "info"),

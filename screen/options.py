@@ -200,6 +200,9 @@ class ElectronicOptions:
         Relative permittivity of the dielectric continuum for the film-phase ΔSCF IP/EA
         (non-empirical generalized Born, tblite only); 3.5 is common practice for organic
         semiconductors. ``None`` switches the film single points off (columns NaN).
+    lone_pair_homo : {"pi", "aufbau"}
+        What to do when the neutral's HOMO is a nitrogen σ lone pair (:mod:`screen.lonepair`):
+        ``"pi"`` takes the levels for the highest π-type orbital, ``"aufbau"`` keeps the HOMO.
 
     Examples
     --------
@@ -215,6 +218,7 @@ class ElectronicOptions:
     electronic_temperature_k: float = _E["electronic_temperature_k"]
     threads: int = _E["threads"]
     film_epsilon: float | None = _E["film_epsilon"]
+    lone_pair_homo: str = _E["lone_pair_homo"]
 
     def make_engine(self):
         """The engine these options describe (:func:`screen.engines.make_engine`).

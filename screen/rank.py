@@ -443,6 +443,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "too_many_heavy_atoms": heavy_out,
         "heavy_atoms_unknown": heavy_unknown,
         "far_from_reference": _far_from_reference(lv),
+        "lone_pair_homo": _lone_pair_homo(lv),
         "role_from_levels": roles.role_from_levels,
         "role_assumed": roles.role_assumed,
     }
@@ -453,6 +454,13 @@ def _far_from_reference(levels: pd.DataFrame) -> np.ndarray:
     sim = _numeric(levels, "reference_similarity")
     with np.errstate(invalid="ignore"):
         return sim < FAR_FROM_REFERENCE_SIMILARITY
+
+
+def _lone_pair_homo(levels: pd.DataFrame) -> np.ndarray:
+    """Rows whose tight-binding HOMO was a nitrogen lone pair (``xtb_lone_pair_shift_ev`` > 0, screen.lonepair)."""
+    shift = _numeric(levels, "xtb_lone_pair_shift_ev")
+    with np.errstate(invalid="ignore"):
+        return shift > 0
 
 
 def _computed_by_dascreen(levels: pd.DataFrame) -> bool:

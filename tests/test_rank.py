@@ -259,6 +259,15 @@ def test_far_from_reference_is_an_info_flag_from_the_similarity_column(partner):
     assert "far_from_reference" not in r.loc[0, "flags"]
 
 
+def test_lone_pair_homo_is_an_info_flag_from_the_shift_column(partner):
+    rows = [{"id": "lp", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "xtb_lone_pair_shift_ev": 0.66},
+            {"id": "pi", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "xtb_lone_pair_shift_ev": 0.0},
+            {"id": "unchecked", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "xtb_lone_pair_shift_ev": None}]
+    r = rank_candidates(_levels(rows, role="donor"), partner).set_index("id")
+    assert "lone_pair_homo" in r.loc["lp", "flags"] and r.loc["lp", "passes"]
+    assert "lone_pair_homo" not in r.loc["pi", "flags"] + r.loc["unchecked", "flags"]
+
+
 def test_partner_without_role_takes_the_complement(tmp_path):
     path = tmp_path / "acc.csv"
     pd.DataFrame([{"id": "mine", "homo_ev": -6.0, "lumo_ev": -4.3, "gap_opt_ev": 1.7, "scale": "film"}]

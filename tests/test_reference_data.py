@@ -159,7 +159,7 @@ def check_derived_level(row: dict[str, str], where: str) -> None:
             f"{where}: derived_level {level!r} but method {row['method']!r}"
     if level:
         homo, lumo, gap = (float(row[c]) for c in ("homo_ev", "lumo_ev", "gap_opt_ev"))
-        # one rounding step of the source (FBR: IP 5.70, Eg 2.14 -> EA 3.57 eV)
+        # one rounding step of the source (levels and gap rounded separately to 0.01 eV)
         assert abs(lumo - homo - gap) <= 0.011, f"{where}: derived {level} is not the other level ± the optical gap"
 
 
