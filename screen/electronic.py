@@ -40,7 +40,7 @@ from screen.batch import molecule_caller, run_journalled
 from screen.columns import ELECTRONIC_COLUMNS, EXTRA_RAW_COLUMNS, RAW_COLUMNS
 from screen.constants import BOHR_ANGSTROM, HARTREE_EV
 from screen.engines import Engine, EngineError
-from screen.excitation import frontier_integrals
+from screen.excitation import frontier_integrals, lowdin_coefficients
 from screen.lonepair import pi_homo
 from screen.io import Journal, Progress, write_csv
 from screen.options import ElectronicOptions
@@ -74,24 +74,24 @@ def _delta_scf(numbers, positions_bohr, engine: Engine, epsilon=None, guesses=No
     return [neutral, cation, anion]
 
 
-def _integrals(numbers, positions_bohr, neutral, homo: int) -> dict:
-    """K, J and overlap of orbital ``homo`` and the neutral's LUMO, NaN when the engine gives no orbitals."""
-    if neutral.orbitals is None:
-        return {"xtb_k_hl_ev": np.nan, "xtb_j_hl_ev": np.nan, "xtb_overlap_hl": np.nan}
-    o = neutral.orbitals
-    out = frontier_integrals(numbers, positions_bohr, o["coefficients"], o["overlap"], o["ao_atom"],
-                             neutral.occupations, homo=homo, lumo=neutral.n_electrons // 2)
-    return {"xtb_k_hl_ev": out["k_hl_ev"], "xtb_j_hl_ev": out["j_hl_ev"], "xtb_overlap_hl": out["overlap_hl"]}
+def _frontier(numbers, positions_bohr, neutral, rule: str) -> tuple[int, bool, dict]:
+    """The occupied orbital the levels are taken for, whether the lone-pair check ran, and the K, J and
+    overlap of that orbital and the LUMO (NaN when the engine gives no orbitals).
 
-
-def _hole(numbers, positions_bohr, neutral, rule: str) -> int:
-    """The occupied orbital the levels are taken for: the HOMO, or with ``rule="pi"`` the highest π-type
-    orbital when the HOMO is a nitrogen lone pair (:mod:`screen.lonepair`)."""
+    The orbital is the HOMO, or with ``rule="pi"`` the highest π-type orbital when the HOMO is a nitrogen
+    lone pair (:mod:`screen.lonepair`); the Löwdin coefficients are computed once for both.
+    """
     homo = neutral.n_electrons // 2 - 1
     o = neutral.orbitals
-    if rule != "pi" or o is None or "ao_l" not in o:
-        return homo
-    return pi_homo(numbers, positions_bohr, o["coefficients"], o["overlap"], o["ao_atom"], o["ao_l"], homo)
+    if o is None:
+        return homo, False, {"xtb_k_hl_ev": np.nan, "xtb_j_hl_ev": np.nan, "xtb_overlap_hl": np.nan}
+    cprime = lowdin_coefficients(o["coefficients"], o["overlap"])
+    checked = rule == "pi" and "ao_l" in o
+    hole = pi_homo(numbers, positions_bohr, cprime, o["ao_atom"], o["ao_l"], homo) if checked else homo
+    out = frontier_integrals(numbers, positions_bohr, o["coefficients"], o["overlap"], o["ao_atom"],
+                             neutral.occupations, homo=hole, lumo=homo + 1, cprime=cprime)
+    return hole, checked, {"xtb_k_hl_ev": out["k_hl_ev"], "xtb_j_hl_ev": out["j_hl_ev"],
+                           "xtb_overlap_hl": out["overlap_hl"]}
 
 
 def _film(numbers, positions_bohr, engine: Engine, film_epsilon, gas, restart) -> tuple[dict, list]:
@@ -183,8 +183,7 @@ def vertical_levels(numbers, positions_bohr, engine: Engine, film_epsilon: float
     rungs = "/".join(str(s.rung) for s in gas)
     if film_states:
         rungs += "|" + "/".join(str(s.rung) for s in film_states)
-    hole = _hole(numbers, positions_bohr, neutral, lone_pair_homo)
-    checked = lone_pair_homo == "pi" and neutral.orbitals is not None and "ao_l" in neutral.orbitals
+    hole, checked, integrals = _frontier(numbers, positions_bohr, neutral, lone_pair_homo)
     shift = (homo - float(neutral.orbital_energies_eh[hole])) * HARTREE_EV  # ≥ 0; 0 when the HOMO is π
     if shift > 0:
         homo -= shift / HARTREE_EV
@@ -195,7 +194,7 @@ def vertical_levels(numbers, positions_bohr, engine: Engine, film_epsilon: float
         "xtb_homo_ev": homo * HARTREE_EV,
         "xtb_lumo_ev": lumo * HARTREE_EV,
         "xtb_gap_ev": (lumo - homo) * HARTREE_EV,
-        **_integrals(numbers, positions_bohr, neutral, hole),
+        **integrals,
         **film,
         "xtb_lone_pair_shift_ev": shift if checked else np.nan,
         "xtb_energy_eh": neutral.energy_eh,

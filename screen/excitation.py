@@ -89,7 +89,7 @@ def _gamma(numbers: np.ndarray, positions_bohr: np.ndarray) -> np.ndarray:
 
 
 def frontier_integrals(numbers, positions_bohr, coeffs, overlap, ao_atom, occupations,
-                       homo: int | None = None, lumo: int | None = None) -> dict:
+                       homo: int | None = None, lumo: int | None = None, cprime=None) -> dict:
     """HOMO→LUMO exchange K, Coulomb J and spatial overlap of a closed-shell molecule.
 
     Parameters
@@ -110,6 +110,9 @@ def frontier_integrals(numbers, positions_bohr, coeffs, overlap, ao_atom, occupa
         Index of the HOMO (0-based, ascending orbital energies).
     lumo : int, optional
         Index of the LUMO (default: the orbital after ``homo``).
+    cprime : array_like, optional
+        The Löwdin coefficients :func:`lowdin_coefficients` gives for ``coeffs`` and ``overlap``,
+        when the caller has them already.
 
     Returns
     -------
@@ -133,7 +136,7 @@ def frontier_integrals(numbers, positions_bohr, coeffs, overlap, ao_atom, occupa
         lumo = homo + 1
     if lumo >= np.shape(coeffs)[1]:
         raise ValueError(f"no LUMO: orbital {lumo} of {np.shape(coeffs)[1]}")
-    cprime = lowdin_coefficients(coeffs, overlap)
+    cprime = lowdin_coefficients(coeffs, overlap) if cprime is None else np.asarray(cprime, float)
     ao_atom = np.asarray(ao_atom, int)
     n = len(numbers)
     q_hl = _atom_charges(cprime, ao_atom, n, homo, lumo)

@@ -41,8 +41,6 @@ from __future__ import annotations
 import numpy as np
 from rdkit import Chem
 
-from screen.excitation import lowdin_coefficients
-
 __all__ = ["LONE_PAIR_WEIGHT", "two_coordinate_nitrogen", "lone_pair_weights", "pi_homo"]
 
 #: an occupied orbital with more than this share of its population in nitrogen σ lone pairs is not the π HOMO
@@ -64,23 +62,25 @@ def _neighbours(numbers: np.ndarray, positions_bohr: np.ndarray) -> list[np.ndar
     return [np.flatnonzero(row) for row in bonded]
 
 
-def two_coordinate_nitrogen(numbers, positions_bohr) -> np.ndarray:
-    """Boolean mask of the nitrogen atoms with exactly two bonded neighbours (pyridine-, imine-, azo-type)."""
-    numbers = np.asarray(numbers, int)
-    positions_bohr = np.asarray(positions_bohr, float)
-    nbrs = _neighbours(numbers, positions_bohr)
+def _two_coordinate(numbers: np.ndarray, nbrs: list[np.ndarray]) -> np.ndarray:
     return np.array([int(z) == 7 and len(nb) == 2 for z, nb in zip(numbers, nbrs)], dtype=bool)
 
 
-def lone_pair_weights(numbers, positions_bohr, coeffs, overlap, ao_atom, ao_l, orbitals) -> np.ndarray:
+def two_coordinate_nitrogen(numbers, positions_bohr) -> np.ndarray:
+    """Boolean mask of the nitrogen atoms with exactly two bonded neighbours (pyridine-, imine-, azo-type)."""
+    numbers = np.asarray(numbers, int)
+    return _two_coordinate(numbers, _neighbours(numbers, np.asarray(positions_bohr, float)))
+
+
+def lone_pair_weights(numbers, positions_bohr, cprime, ao_atom, ao_l, orbitals) -> np.ndarray:
     """Share of each orbital's Löwdin population in the σ part of two-coordinate nitrogen atoms [0–1].
 
     Parameters
     ----------
     numbers, positions_bohr : array_like
         Atomic numbers and positions [bohr].
-    coeffs, overlap : array_like
-        MO coefficients (AOs × MOs) and AO overlap.
+    cprime : array_like
+        Löwdin-orthogonalised MO coefficients, AOs × MOs (:func:`screen.excitation.lowdin_coefficients`).
     ao_atom, ao_l : array_like of int
         Atom index and angular momentum of each AO (p functions of a shell consecutive, ordered as
         :data:`P_AXES`).
@@ -91,12 +91,12 @@ def lone_pair_weights(numbers, positions_bohr, coeffs, overlap, ao_atom, ao_l, o
     pos = np.asarray(positions_bohr, float)
     ao_atom, ao_l = np.asarray(ao_atom, int), np.asarray(ao_l, int)
     orbitals = list(orbitals)
-    mask = two_coordinate_nitrogen(numbers, pos)
+    nbrs = _neighbours(numbers, pos)
+    mask = _two_coordinate(numbers, nbrs)
     weights = np.zeros(len(orbitals))
     if not mask.any():
         return weights
-    cprime = lowdin_coefficients(coeffs, overlap)[:, orbitals]
-    nbrs = _neighbours(numbers, pos)
+    cprime = np.asarray(cprime, float)[:, orbitals]
     for atom in np.flatnonzero(mask):
         a, b = pos[nbrs[atom]] - pos[atom]
         normal = np.cross(a, b)
@@ -115,13 +115,14 @@ def lone_pair_weights(numbers, positions_bohr, coeffs, overlap, ao_atom, ao_l, o
     return weights
 
 
-def pi_homo(numbers, positions_bohr, coeffs, overlap, ao_atom, ao_l, homo: int, depth: int = 6) -> int:
+def pi_homo(numbers, positions_bohr, cprime, ao_atom, ao_l, homo: int, depth: int = 6) -> int:
     """Index of the highest occupied orbital that is not a nitrogen lone pair (``homo`` when the HOMO is π).
 
-    Only the ``depth`` highest occupied orbitals are examined; if all of them are lone pairs the HOMO is kept.
+    ``cprime`` are the Löwdin-orthogonalised MO coefficients (see :func:`lone_pair_weights`). Only the
+    ``depth`` highest occupied orbitals are examined; if all of them are lone pairs the HOMO is kept.
     """
     candidates = list(range(homo, max(homo - depth, -1), -1))
-    weights = lone_pair_weights(numbers, positions_bohr, coeffs, overlap, ao_atom, ao_l, candidates)
+    weights = lone_pair_weights(numbers, positions_bohr, cprime, ao_atom, ao_l, candidates)
     for k, w in zip(candidates, weights):
         if w <= LONE_PAIR_WEIGHT:
             return k

@@ -37,7 +37,9 @@ def test_two_coordinate_nitrogen_counts_pyridine_imine_and_azo_but_not_pyrrole_o
 def test_quinoxaline_lone_pair_homo_is_replaced_by_the_pi_orbital():
     pi, aufbau = _levels(AZA["quinoxaline"], "pi"), _levels(AZA["quinoxaline"], "aufbau")
     shift = pi["xtb_lone_pair_shift_ev"]
-    assert 0.8 < shift < 1.6  # GFN2-xTB: lone-pair combination 1.2 eV above the highest π orbital
+    # a window around this project's own GFN2-xTB finding (lone-pair combination 1.21 eV above the highest π
+    # orbital, screen/lonepair.py), not a published value
+    assert 0.8 < shift < 1.6
     assert pi["xtb_homo_ev"] == pytest.approx(aufbau["xtb_homo_ev"] - shift)
     assert pi["xtb_ip_ev"] == pytest.approx(aufbau["xtb_ip_ev"] + shift)
     assert pi["xtb_ip_film_ev"] == pytest.approx(aufbau["xtb_ip_film_ev"] + shift)
