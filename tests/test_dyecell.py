@@ -268,3 +268,131 @@ def test_sampling_probability_of_viability_near_threshold():
     assert mc["p_viable"][0] == pytest.approx(0.5, abs=0.05)
     with pytest.raises(ValueError, match="σ"):
         sample_pce(DyeCellModel(), 1.0, 2.0, _oxide(-0.5), _mediator(0.56), e_ox_sigma_v=-0.1)
+
+
+# --------------------------------------------------------------------------- input checks (dye, oxide, mediator files)
+
+def _dyes(**cols):
+    return pd.DataFrame({"id": ["d1"], "e_ox_v_nhe": [1.1], "e00_ev": [2.1], **cols})
+
+
+# bounds of screen/dyecell/checks.py: E(S+/S) of organic dyes roughly -0.5...+2.5 V vs NHE, accepted -1...+3 V;
+# E00 of sensitisers typically 1.2-3.5 eV, accepted 1.0-4.0 eV  # common practice
+@pytest.mark.parametrize("col, value, ok", [
+    ("e00_ev", 0.99, False), ("e00_ev", 1.0, True), ("e00_ev", 4.0, True), ("e00_ev", 4.01, False),
+    ("e_ox_v_nhe", -1.01, False), ("e_ox_v_nhe", -1.0, True), ("e_ox_v_nhe", 3.0, True),
+    ("e_ox_v_nhe", 3.01, False),
+])
+def test_dye_file_bounds_both_sides(col, value, ok):
+    frame = _dyes(**{col: [value]})
+    if ok:
+        assert dyes_from_file(frame).loc[0, "status"] == "ok"
+    else:
+        with pytest.raises(InputError, match=f"my.csv: line 2 \\(id 'd1'\\), column {col} = "):
+            dyes_from_file(frame, "my.csv")
+
+
+@pytest.mark.parametrize("col, value, hint", [
+    ("e00_ev", 590.0, "wavelength in nm: write 1239.84/590 = 2.1 eV"),   # 1239.84 eV nm / 590 nm = 2.10 eV
+    ("e00_ev", 9.0, "must be in eV"),
+    ("e00_ev", -2.1, "positive excitation energy in eV .*write 2.1"),
+    # Trasatti 1986 (doi 10.1351/pac198658070955): E_NHE = -E_vac - 4.44 V; -5.5 eV -> 1.06 V
+    ("e_ox_v_nhe", -5.5, "vacuum-scale energy .* = 1.06 V"),
+    ("e_ox_v_nhe", 1100.0, "millivolts: write 1.1 V"),
+])
+def test_dye_file_unit_and_sign_slips_get_the_fix(col, value, hint):
+    with pytest.raises(InputError, match=hint):
+        dyes_from_file(_dyes(**{col: [value]}), "my.csv")
+
+
+@pytest.mark.parametrize("rows, expected", [
+    ({"id": ["d1"], "e_ox_v_nhe": [1.1], "e00_ev": ["abc"]},
+     "line 2 \\(id 'd1'\\), column e00_ev = 'abc': not a number"),
+    ({"id": ["d1"], "e_ox_v_nhe": [1.1], "e00_ev": [math.inf]}, "column e00_ev = 'inf': not a finite number"),
+    ({"id": ["d1", "d2"], "e_ox_v_nhe": [1.1, np.nan], "e00_ev": [2.1, 1.9]},
+     "line 3 \\(id 'd2'\\): e_ox_v_nhe is empty"),
+    ({"id": ["A", "A"], "e_ox_v_nhe": [1.1, 0.9], "e00_ev": [2.1, 1.9]}, "id 'A' is on lines 2, 3: ids must be unique"),
+    ({"id": ["d1", np.nan], "e_ox_v_nhe": [1.1, 0.9], "e00_ev": [2.1, 1.9]}, "line 3: column id is empty"),
+    ({"id": [], "e_ox_v_nhe": [], "e00_ev": []}, "no rows"),
+    ({"id": ["d1"], "e_ox_v_nhe": [1.1], "e00_ev": [2.1], "e00_sigma_ev": [-0.1]}, "uncertainty must be >= 0"),
+])
+def test_dye_file_refuses_bad_rows_naming_line_and_column(rows, expected):
+    with pytest.raises(InputError, match=expected):
+        dyes_from_file(pd.DataFrame(rows), "my.csv")
+
+
+def test_dye_file_ferrocene_reference_needs_its_solvent():
+    frame = pd.DataFrame({"id": ["d1"], "e_ox_v": [0.40], "e_ox_reference": ["Fc"], "e00_ev": [2.0]})
+    with pytest.raises(InputError, match="line 2 .*ferrocene reference needs the solvent"):
+        dyes_from_file(frame, "my.csv")
+    # Pavlishchuk and Addison 2000 (DSSC convention): Fc+/Fc = +0.63 V vs NHE in MeCN -> 1.03 V
+    assert dyes_from_file(frame.assign(solvent=["MeCN"])).loc[0, "e_ox_v_nhe"] == pytest.approx(1.03)
+
+
+def _one_row_file(tmp_path, text):
+    path = tmp_path / "mine.csv"
+    path.write_text(text)
+    return str(path)
+
+
+# accepted: potentials of oxides and mediators roughly -1.5...+2 V vs NHE (-2.94...-6.44 eV on the vacuum
+# scale, Trasatti 1986); driving-force thresholds >= 0  # common practice
+@pytest.mark.parametrize("kind, text, hint", [
+    ("oxide", "id,band_edge_v_nhe\nx,-4.0\n", "vacuum-scale energy .*-0.44 V"),
+    ("oxide", "id,band_edge_v_nhe\nx,-500\n", "millivolts: write -0.5 V"),
+    ("oxide", "id,band_edge_v_nhe\nx,-1.51\n", "roughly in -1.5...\\+2 V vs NHE"),
+    ("oxide", "id,band_edge_ev\nx,4.0\n", "vacuum-scale energies are negative .*band_edge_ev = -4"),
+    ("oxide", "id,band_edge_ev\nx,-7.0\n", "outside"),
+    ("mediator", "id,e_redox_v_nhe\nx,-4.9\n", "vacuum-scale energy .*0.46 V"),
+    ("mediator", "id,e_redox_v_nhe\nx,600\n", "millivolts: write 0.6 V"),
+    ("mediator", "id,e_redox_v_nhe\nx,5.0\n", "without its minus sign .*0.56 V"),
+    ("mediator", "id,e_redox_v_nhe\nx,2.01\n", "roughly in -1.5...\\+2 V vs NHE"),
+    ("mediator", "id,e_redox_ev\nx,5.0\n", "vacuum-scale energies are negative .*e_redox_ev = -5"),
+    ("mediator", "id,e_redox_v_nhe,min_drive_reg_ev\nx,0.6,-0.2\n", "min_drive_reg_ev = -0.2: .*>= 0 eV"),
+    ("mediator", "id,e_redox_v_nhe\nx,inf\n", "not a finite number"),
+])
+def test_oxide_and_mediator_files_refuse_unit_and_sign_slips(tmp_path, kind, text, hint):
+    resolve = resolve_oxide if kind == "oxide" else resolve_mediator
+    with pytest.raises(InputError, match=f"{kind} file .*mine.csv.*{hint}"):
+        resolve(_one_row_file(tmp_path, text))
+
+
+@pytest.mark.parametrize("kind, text, expected", [
+    ("oxide", "id,band_edge_v_nhe\nx,-1.5\n", -1.5), ("oxide", "id,band_edge_v_nhe\nx,2.0\n", 2.0),
+    ("oxide", "id,band_edge_ev\nx,-4.0\n", -0.44),             # Trasatti 1986: -4.0 eV -> -0.44 V vs NHE
+    ("mediator", "id,e_redox_v_nhe\nx,-1.5\n", -1.5), ("mediator", "id,e_redox_v_nhe\nx,2.0\n", 2.0),
+    ("mediator", "id,e_redox_v_nhe,min_drive_reg_ev\nx,0.6,0\n", 0.6),
+])
+def test_oxide_and_mediator_files_accept_the_edges(tmp_path, kind, text, expected):
+    resolve = resolve_oxide if kind == "oxide" else resolve_mediator
+    material = resolve(_one_row_file(tmp_path, text))
+    assert material.potential_v_nhe == pytest.approx(expected) and material.id == "x"
+
+
+def test_reference_column_is_named_and_ferrocene_needs_a_solvent(tmp_path):
+    with pytest.raises(InputError, match="a column named 'reference'"):
+        resolve_mediator(_one_row_file(tmp_path, "id,e_redox_v\nx,0.30\n"))
+    # 0.30 V vs SCE + 0.241 V (Bard and Faulkner 2001) = 0.541 V vs NHE; e_redox_reference is accepted too
+    assert resolve_mediator(_one_row_file(tmp_path, "id,e_redox_v,e_redox_reference\nx,0.30,SCE\n")
+                            ).potential_v_nhe == pytest.approx(0.541)
+    with pytest.raises(InputError, match="needs a column named 'solvent'"):
+        resolve_mediator(_one_row_file(tmp_path, "id,e_redox_v,reference\nx,0.10,Fc\n"))
+    # with the solvent: 0.10 V vs Fc+/Fc in MeCN + 0.63 V (Pavlishchuk and Addison 2000) = 0.73 V vs NHE
+    med = resolve_mediator(_one_row_file(tmp_path, "id,e_redox_v,reference,solvent\nx,0.10,Fc,acetonitrile\n"))
+    assert med.potential_v_nhe == pytest.approx(0.73)
+
+
+def test_not_viable_dye_gets_no_probability():
+    dyes = dyes_from_file(pd.DataFrame({"id": ["a", "b"], "e_ox_v_nhe": [1.07, 0.5], "e00_ev": [1.96, 2.0],
+                                        "smiles": ["OC(=O)c1ccccc1", "OC(=O)c1ccccc1"]}))
+    r = rank_dyes(dyes, resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3"),
+                  options=None).set_index("id")
+    assert not r.loc["b", "viable"]
+    assert math.isnan(r.loc["b", "p_above_target"]) and math.isnan(r.loc["b", "pce_pct"])
+    assert 0.0 <= r.loc["a", "p_above_target"] <= 1.0
+
+
+def test_reason_of_a_non_positive_e00_is_not_missing():
+    out = evaluate(DyeCellModel(), 1.1, -2.1, _oxide(-0.5), _mediator(0.56))
+    assert not out["viable"][0] and "is missing" not in out["viability"][0]
+    assert "not a positive excitation energy" in out["viability"][0]

@@ -123,6 +123,16 @@ def test_dye_table_rejects_metal_and_keeps_failed_rows(tmp_path):
     assert table.loc["good", "uncalibrated_elements"] == "N S"
 
 
+def test_dye_table_rejects_a_polymer_of_a_levels_file_as_not_a_dye(tmp_path):
+    models = dcal.load_models(PID, _install(tmp_path).parent)
+    rows = [{"id": "poly", "smiles": "*c1ccc(*)s1", "status": "ok", "representation": "polymer",
+             **_raw(11.0, 5.0, 1.0)}, {**_demo_rows()[0], "representation": "molecule"}]
+    table = dye_table(pd.DataFrame(rows), models).set_index("id")
+    assert table.loc["poly", "status"] == "rejected" and table.loc["good", "status"] == "ok"
+    assert table.loc["poly", "error"].startswith("a polymer repeat unit is not a sensitiser dye; dye mode takes "
+                                                 "molecules")
+
+
 def test_stage_writes_ranking_folder_and_reuses_dye_table(tmp_path):
     folder = _install(tmp_path)
     levels = _levels(tmp_path, _demo_rows())
@@ -239,3 +249,106 @@ def test_cli_end_to_end_with_the_engine(tmp_path, capsys):
     assert "no_anchor" in row["flags"] and row["pce_pct"] == ""
     meta = json.loads((out / "dyecell" / "levels_raw.csv.meta.json").read_text())
     assert meta["protocol_id"] in {p.name for p in _shipped()}
+
+
+# --------------------------------------------------------------------------- refused inputs (command line)
+
+@pytest.mark.parametrize("text, expected", [
+    ("id,e_ox_v_nhe,e00_ev\nD1,1.1,abc\n", "line 2 (id 'D1'), column e00_ev = 'abc': not a number"),
+    ("id,e_ox_v_nhe,e00_ev\nD1,1.1,inf\n", "line 2 (id 'D1'), column e00_ev = 'inf': not a finite number"),
+    ("id,e_ox_v_nhe,e00_ev\n", "no rows"),
+    ("id,e_ox_v_nhe,e00_ev\nD1,1.1,2.1\nD2,,1.9\n", "line 3 (id 'D2'): e_ox_v_nhe is empty"),
+    ("id,e_ox_v_nhe,e00_ev\nD1,1.1,590\n", "1239.84/590 = 2.1 eV"),
+    ("id,e_ox_v_nhe,e00_ev\nD1,-5.5,2.1\n", "vacuum-scale energy"),
+    ("id,e_ox_v_nhe,e00_ev\nA,1.1,2.1\nA,0.9,1.9\n", "id 'A' is on lines 2, 3"),
+    ("id,e_ox_v_nhe,e00_ev\nD1,1.1,2.1\n,0.9,1.9\n", "line 3: column id is empty"),
+])
+def test_cli_refuses_a_bad_dye_file_before_ranking(tmp_path, capsys, text, expected):
+    from screen.cli import main
+
+    f = tmp_path / "dyes.csv"
+    f.write_text(text)
+    assert main(["dyecell", "--levels", str(f), "--out", str(tmp_path / "o")]) == 2
+    captured = capsys.readouterr()
+    assert f"{f}: " in captured.err and expected in captured.err and "Traceback" not in captured.err
+    assert captured.out == "" and not (tmp_path / "o" / "dyecell" / "tio2-anatase--co-bpy3").exists()
+
+
+def test_cli_out_that_is_a_file_is_refused(tmp_path, capsys):
+    from screen.cli import main
+
+    f = tmp_path / "measured.csv"
+    f.write_text("id,e_ox_v_nhe,e00_ev\nD1,1.1,2.1\n")
+    afile = tmp_path / "afile"
+    afile.write_text("x\n")
+    assert main(["dyecell", "--levels", str(f), "--out", str(afile)]) == 2
+    assert "is a file, not a folder" in capsys.readouterr().err
+    assert main(["dyecell", "--levels", str(f), "--out", str(afile / "sub")]) == 2
+    assert "is a file, not a folder" in capsys.readouterr().err
+
+
+def test_cli_lists_rows_that_are_not_ranked(tmp_path, capsys):
+    from screen.cli import main
+
+    folder = _install(tmp_path)
+    levels = _levels(tmp_path, _demo_rows())
+    assert main(["dyecell", "--levels", str(levels), "--out", str(tmp_path / "o"), "--models", str(folder.parent),
+                 "--set", "dyecell.n_samples=100"]) == 0
+    text = capsys.readouterr().out
+    assert "2 dyes ranked on tio2-anatase with co-bpy3; 1 viable; 2 row(s) not ranked" in text
+    assert "rejected zinc: contains Zn" in text and "rejected bad: SMILES does not parse" in text
+
+
+def test_cli_polymer_repeat_unit_is_rejected_before_computing(tmp_path, capsys, monkeypatch):
+    """A repeat unit never reaches the shared stages; it comes back as a rejected row and the counts agree."""
+    import screen.launch
+    import screen.stages
+    from screen.cli import main
+    from screen.config import Config
+    from screen.prepare import prepare, read_manifest
+
+    pid = Config.load(None, {}).protocol_id
+    ref, comp = _synthetic_reference(tmp_path)
+    root = dcal.save_models(dcal.fit_models(comp, ref, protocol_id=pid), tmp_path / "models").parent
+    given = []
+
+    def fake_workflow(cfg, out, cores, targets, **kwargs):  # the prepare stage only; nothing is computed
+        given.append(Path(cfg["candidates"]).read_text())
+        work = Path(out) / "work" / "candidates"
+        if not (work / "prepared" / "manifest.csv").is_file():
+            prepare(cfg["candidates"], work / "prepared")
+            (work / "electronic").mkdir(parents=True)
+            for shard in (work / "prepared").glob("shard-*.csv"):
+                (work / "electronic" / shard.name).write_text("")
+        return 0
+
+    def fake_computed(manifest_path, electronic_paths, cfg):
+        manifest = read_manifest(manifest_path)
+        rows = [{"id": r["id"], "smiles": r["smiles"], "status": r["status"], "error": r["error"],
+                 "representation": r["representation"],
+                 **(_raw(11.2, 5.1, 1.1) if r["status"] == "ok" else {})} for _, r in manifest.iterrows()]
+        return pd.DataFrame(rows), pd.DataFrame()
+
+    monkeypatch.setattr(screen.launch, "run_workflow", fake_workflow)
+    monkeypatch.setattr(screen.stages, "_read_computed", fake_computed)
+    src = tmp_path / "dyes.csv"
+    src.write_text("id,smiles\n"
+                   "D1,OC(=O)C(C#N)=Cc1ccc(N(C)C)cc1\n"
+                   "POLY,[*]c1ccc([*])s1\n"
+                   "D2,OC(=O)C(C#N)=Cc1ccc(N(CC)CC)cc1\n")
+    out = tmp_path / "run"
+    assert main(["dyecell", str(src), "--out", str(out), "--models", str(root), "--cores", "1",
+                 "--set", "dyecell.n_samples=100"]) == 0
+    assert given and all("*" not in text and "POLY" not in text for text in given)   # never computed
+    assert not (out / "work" / "candidates" / "prepared" / "oligomers.csv").exists()
+    levels = pd.read_csv(out / "dyecell" / "levels_raw.csv", dtype=str, keep_default_na=False)
+    assert levels["id"].tolist() == ["D1", "POLY", "D2"]                                # input order kept
+    poly = levels.set_index("id").loc["POLY"]
+    assert poly["status"] == "rejected" and poly["representation"] == "polymer"
+    assert "a polymer repeat unit is not a sensitiser dye; dye mode takes molecules" in poly["error"]
+    text = capsys.readouterr().out
+    assert "3 rows: 2 ok, 1 rejected" in text and "2 dyes ranked on tio2-anatase with co-bpy3" in text
+    assert "metal-containing" not in text
+    assert text.count("not a sensitiser dye") == 2        # when set aside, then in the levels summary; not repeated
+    ranking = pd.read_csv(out / "dyecell" / "tio2-anatase--co-bpy3" / "ranking.csv", keep_default_na=False)
+    assert sorted(ranking["id"]) == ["D1", "D2"]

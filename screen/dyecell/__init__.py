@@ -8,6 +8,7 @@ The second device family of dascreen.  It reuses every stage up to
 - :mod:`~screen.dyecell.anchors` — anchoring-group recognition (RDKit SMARTS);
 - :mod:`~screen.dyecell.calibrate` — E(S⁺/S) vs NHE and E₀₋₀ fitted on the dye reference set;
 - :mod:`~screen.dyecell.model` — driving forces, viability, Jsc, Voc, FF, PCE and its Monte-Carlo spread;
+- :mod:`~screen.dyecell.checks` — sanity of dye, oxide and mediator files (units, signs, ids), before ranking;
 - :mod:`~screen.dyecell.rank` — vectorised ranking; :mod:`~screen.dyecell.stage` — files in → files out;
 - :mod:`~screen.dyecell.flags` (the flag registry), :mod:`~screen.dyecell.options` (the ``dyecell`` config
   section), :mod:`~screen.dyecell.cli` (``dascreen dyecell``).

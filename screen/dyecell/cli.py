@@ -38,29 +38,56 @@ def _print_libraries() -> None:
         med = load_mediators()[["id", "e_redox_v_nhe", "min_drive_reg_ev", "from_memory", "name"]]
         print(med.to_string(index=False, na_rep="-"))
         print(f"({MEDIATORS_FILE}; potentials in V vs NHE; min_drive_reg_ev '-' = the configured threshold)")
-    print("Own values: a one-row CSV (id,band_edge_v_nhe[,type] or id,e_redox_v_nhe) passed as --oxide/--mediator.")
+    print("Own values: a one-row CSV (id,band_edge_v_nhe[,type] or id,e_redox_v_nhe; or band_edge_v/e_redox_v with a "
+          "column reference, and solvent for Fc) passed as --oxide/--mediator.")
 
 
-def _print_ranking(path: Path, top: int) -> None:
+def _print_ranking(path: Path, top: int, listed: frozenset = frozenset()) -> None:
+    """The top of ``ranking.csv``, the reasons of the not-viable dyes and the rows that were not ranked.
+
+    ``listed``: ``(id, error)`` of rows printed already (the levels summary of a computing run).
+    """
+    import json
+
     import pandas as pd
 
     table = pd.read_csv(path, dtype={"id": str}, keep_default_na=False, na_values=[""])
+    meta = json.loads((path.parent / "ranking.meta.json").read_text(encoding="utf-8"))
     show = table.head(top).copy()
     show["id"] = [str(i).replace("\n", "\\n")[:24] for i in show["id"]]
     show["flags"] = show["flags"].fillna("").astype(str).str.slice(0, 36)
     cols = ["rank", "id", "e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "drive_inj_ev", "drive_reg_ev", "voc_v",
             "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "passes", "flags"]
     viable = int(table["viable"].astype(str).str.lower().eq("true").sum()) if len(table) else 0
-    ox = table["oxide"].iloc[0] if len(table) else "?"
-    med = table["mediator"].iloc[0] if len(table) else "?"
-    print(f"dascreen: {len(table)} dyes ranked on {ox} with {med}; {viable} viable; top {min(top, len(table))} "
+    ox, med = meta["oxide"]["id"], meta["mediator"]["id"]
+    not_ranked = meta["counts"]["rows"] - len(table)
+    rest = f"; {not_ranked} row(s) not ranked (rejected or failed)" if not_ranked else ""
+    print(f"dascreen: {len(table)} dyes ranked on {ox} with {med}; {viable} viable{rest}; top {min(top, len(table))} "
           "(potentials in V vs NHE, driving forces in eV):")
     if len(show):
         with pd.option_context("display.width", 250, "display.max_columns", 30):
             print(show[cols].to_string(index=False, na_rep="-", float_format=lambda x: f"{x:.3g}"))
     for _, row in table[~table["viable"].astype(str).str.lower().eq("true")].head(top).iterrows():
         print(f"  {str(row['id'])[:24]}: {row['viability']}")
+    if not_ranked:
+        dyes = pd.read_csv(path.parent.parent / "dyes.csv", dtype=str, keep_default_na=False)
+        new = pd.Series([(i, e) not in listed for i, e in zip(dyes["id"], dyes["error"])], index=dyes.index)
+        bad = dyes[dyes["status"].ne("ok") & new]
+        for _, row in bad.head(20).iterrows():
+            ident = row["id"].replace("\n", "\\n")[:60]
+            print(f"  {row['status']:8s} {ident}: {row['error'][:160]}")
+        if len(bad) > 20:
+            print(f"  ... and {len(bad) - 20} more (see report.html)")
     print(f"dascreen: ranking -> {path}")
+
+
+def _not_ok(levels_csv: Path) -> frozenset:
+    """``(id, error)`` of the rows of a levels file that are not ``ok`` (printed by its summary)."""
+    import pandas as pd
+
+    done = pd.read_csv(levels_csv, dtype=str, keep_default_na=False, usecols=["id", "status", "error"])
+    bad = done[done["status"].ne("ok")]
+    return frozenset(zip(bad["id"], bad["error"]))
 
 
 def _refit(args, cfg, out: Path) -> Path:
@@ -88,12 +115,13 @@ def _default_levels(out: Path) -> Path:
     return raw if raw.is_file() else out / "levels.csv"
 
 
-def _compute(args, cfg, out: Path) -> Path | None:
+def _compute(args, cfg, out: Path, aside=None) -> Path | None:
     """The shared stages for the candidates (prepare, structures, electronic) and their raw levels file.
 
     Only the molecules' ΔSCF values are needed, so the bulk-heterojunction
     calibration of the protocol is not run; the results store and the journals
-    make a repeated run free.
+    make a repeated run free.  ``aside``: rows left out of the computation
+    (:func:`_set_aside`), put back into the levels file as rejected rows.
     """
     from screen.dyecell.stage import raw_levels
     from screen.launch import run_workflow
@@ -107,31 +135,112 @@ def _compute(args, cfg, out: Path) -> Path | None:
     if rc != 0:
         print(f"dascreen: the workflow stopped with exit code {rc}; job logs in {out}/logs/", file=sys.stderr)
         return None
-    return raw_levels(out, cfg)
+    return raw_levels(out, cfg, set_aside=aside)
 
 
-def _dye_candidates(candidates: Path, out: Path, write: bool = True) -> Path:
-    """The candidate list for the shared stages: a CSV's ``role`` column is kept as ``input_role``.
+#: columns of :func:`screen.prepare.read_candidates` that are not passthrough columns
+_READ_COLUMNS = ("row", "id", "smiles_input", "name", "role", "note", "read_error")
 
-    Roles (donor/acceptor) mean nothing in a dye cell, and the prepare stage
-    rejects any other value (e.g. ``dye``); the copy keeps every row and column.
-    Other files are used as they are.
+
+def _set_aside(candidates: Path):
+    """The rows of a candidate file that the dye mode does not compute: polymer repeat units.
+
+    The file is read and classified by the prepare stage's own reader and checks
+    (:func:`screen.prepare.read_candidates`, :func:`screen.prepare.validate`:
+    ``representation == "polymer"``); only rows whose SMILES holds an attachment
+    point are checked, so this costs nothing for a file without one.  When a
+    polymer is found, rows that could not be read (an SDF record) are set aside
+    too, with the prepare stage's reason, because the copy given to the shared
+    stages is a CSV.
+
+    Returns
+    -------
+    (pandas.DataFrame or None, pandas.DataFrame)
+        The file as read (None when it holds no ``*`` or ``R#`` at all) and the
+        rows set aside: ``row`` (0-based input position), ``id``, ``smiles``,
+        ``smiles_input``, ``name``, ``status``, ``reason``, ``error``, ``representation``.
     """
     import pandas as pd
 
+    from screen.dyecell.rank import NOT_A_DYE
+    from screen.prepare import PrepareOptions, read_candidates, validate
+
+    aside = pd.DataFrame(columns=["row", "id", "smiles", "smiles_input", "name", "status", "reason", "error",
+                                  "representation"])
+    if candidates.suffix.lower() != ".gz":
+        data = candidates.read_bytes()
+        if b"*" not in data and b"R#" not in data:
+            return None, aside
+    frame = read_candidates(candidates)
+    maybe = frame["smiles_input"].str.contains("*", regex=False) | frame["read_error"].ne("")
+    if not maybe.any():
+        return frame, aside
+    checked = validate(frame[maybe].reset_index(drop=True), PrepareOptions())
+    poly = checked["representation"].eq("polymer")
+    if not poly.any():
+        return frame, aside
+    unread = checked["row"].isin(frame.loc[frame["read_error"].ne(""), "row"])
+    rows = checked[poly | unread].copy()
+    rows.loc[poly, "status"] = "rejected"
+    rows.loc[poly, "reason"] = "not_a_dye"
+    rows.loc[poly, "error"] = NOT_A_DYE
+    return frame, rows[list(aside.columns)].reset_index(drop=True)
+
+
+def _dye_candidates(candidates: Path, out: Path, write: bool = True, read=None) -> Path:
+    """The candidate list for the shared stages: without polymer repeat units; ``role`` kept as ``input_role``.
+
+    Roles (donor/acceptor) mean nothing in a dye cell, and the prepare stage
+    rejects any other value (e.g. ``dye``); the copy keeps every other row and
+    column.  A polymer repeat unit is not a dye: it is left out of the copy
+    (nothing is computed for it) and returned to the levels file as a rejected
+    row (:func:`_set_aside`, :func:`screen.dyecell.stage.raw_levels`).  A file
+    without either is used as it is.
+    """
+    import pandas as pd
+
+    from screen.dyecell.rank import NOT_A_DYE
     from screen.io import write_csv
 
+    frame, aside = _set_aside(candidates) if read is None else read
+    target = out / "dyecell" / "candidates.csv"
+    if len(aside):
+        kept = frame[~frame["row"].isin(aside["row"])]
+        if kept.empty:
+            raise InputError(f"{candidates}: no molecule to compute: every row is a polymer repeat unit or "
+                             f"unreadable ({', '.join(map(repr, aside['id'][:5]))}); {NOT_A_DYE}")
+        if not write:
+            return target
+        copy = pd.DataFrame({"id": kept["id"], "smiles": kept["smiles_input"]})
+        if kept["name"].ne("").any():
+            copy["name"] = kept["name"]
+        if kept["role"].ne("").any():
+            copy["input_role"] = kept["role"]
+        for col in (c for c in frame.columns if c not in _READ_COLUMNS and c not in copy.columns):
+            copy[col] = kept[col]
+        write_csv(copy, target)
+        for row in aside.itertuples():
+            print(f"dascreen: {row.status} {str(row.id)[:60]}: {row.error}")
+        print(f"dascreen: {len(aside)} row(s) set aside before computing; the other {len(copy)} in {target}")
+        return target
     if candidates.suffix.lower() != ".csv":
         return candidates
     frame = pd.read_csv(candidates, dtype=str, keep_default_na=False)
     if "role" not in frame.columns:
         return candidates
-    target = out / "dyecell" / "candidates.csv"
     if not write:
         return target
     write_csv(frame.rename(columns={"role": "input_role"}), target)
     print(f"dascreen: the dye-cell mode ignores the role column; kept as input_role in {target}")
     return target
+
+
+def _check_out_folder(out: Path, given: str) -> None:
+    """Refuse an ``--out`` that is a file (or lies under one) before anything is written."""
+    for path in (out, *out.parents):
+        if path.exists() and not path.is_dir():
+            where = "" if path == out else f" ({path} is a file)"
+            raise ConfigError(f"--out {given} is a file, not a folder{where}; choose a folder")
 
 
 def cmd_dyecell(args) -> int:
@@ -144,22 +253,27 @@ def cmd_dyecell(args) -> int:
         _print_libraries()
         return EXIT_OK
     out = Path(args.out).resolve()
+    _check_out_folder(out, args.out)
     extra = {"dyecell": {"oxide": args.oxide, "mediator": args.mediator, "target_pce_pct": args.target_pce}}
+    aside = None
     if args.candidates:
         given = Path(args.candidates).resolve()
         check_candidates(given)
-        check_out(out, _dye_candidates(given, out, write=False), overwrite=args.overwrite)
-        candidates = _dye_candidates(given, out)
+        read = _set_aside(given)
+        aside = read[1]
+        check_out(out, _dye_candidates(given, out, write=False, read=read), overwrite=args.overwrite)
+        candidates = _dye_candidates(given, out, read=read)
         extra.update({"candidates": str(candidates.resolve()), "out": str(out)})
     cfg = _load(args, extra)
     if args.refit:
         _refit(args, cfg, out)
-    computed = None
+    computed, listed = None, frozenset()
     if args.candidates:
-        computed = _compute(args, cfg, out)
+        computed = _compute(args, cfg, out, aside)
         if computed is None:
             return EXIT_ERROR
         _print_summary(computed)
+        listed = _not_ok(computed)
     levels = Path(args.levels) if args.levels else computed or _default_levels(out)
     if not levels.is_file():
         if args.refit and not args.candidates:
@@ -168,7 +282,7 @@ def cmd_dyecell(args) -> int:
                          "--levels FILE (a run's levels.csv, or id,e_ox_v_nhe,e00_ev[,smiles] measured values)")
     models_root = args.models or (cfg["calibration"]["models"] and Path(cfg["calibration"]["models"]) / "dyecell")
     path = run_dyecell(levels, out, settings=cfg["dyecell"], models_root=models_root)
-    _print_ranking(path, args.top)
+    _print_ranking(path, args.top, listed=listed)
     return EXIT_OK
 
 

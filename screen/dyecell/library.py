@@ -10,11 +10,18 @@ A user gives their own oxide or mediator as a path to a one-row CSV file, like
 a partner in the bulk-heterojunction mode:
 
 - oxide: ``id, band_edge_v_nhe`` (optional ``type`` n|p — default n —,
-  ``name``, ``source``, ``doi``, ``notes``); or ``band_edge_v`` with
-  ``reference`` (and ``solvent`` for Fc⁺/Fc); or ``band_edge_ev`` on the vacuum
-  scale, converted with the absolute NHE potential;
-- mediator: ``id, e_redox_v_nhe`` (optional ``min_drive_reg_ev``, ``name``, …);
-  or ``e_redox_v`` with ``reference``; or ``e_redox_ev`` (vacuum scale).
+  ``name``, ``source``, ``doi``, ``notes``); or ``band_edge_v`` with a column
+  ``reference`` (or ``band_edge_reference``: NHE, SCE, Ag/AgCl, Fc) and, for
+  Fc⁺/Fc, ``solvent`` (required: Fc⁺/Fc vs NHE depends on it, no solvent is
+  assumed); or ``band_edge_ev`` on the vacuum scale, converted with the absolute
+  NHE potential;
+- mediator: ``id, e_redox_v_nhe`` (optional ``min_drive_reg_ev`` ≥ 0, ``name``, …);
+  or ``e_redox_v`` with ``reference`` (or ``e_redox_reference``; ``solvent`` for
+  Fc⁺/Fc); or ``e_redox_ev`` (vacuum scale).
+
+Values are checked (:mod:`screen.dyecell.checks`): a potential outside
+−1.5…+2 V vs NHE, a positive vacuum-scale energy or a negative threshold is
+refused with the likely slip (vacuum-scale eV, mV, a dropped sign) and the fix.
 
 The band edge is a flat-band / conduction-band reference that moves with pH
 and electrolyte (about −59 mV per pH unit, and Li⁺ or bases shift it); the
@@ -47,7 +54,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from screen.dyecell.scales import nhe_from_vacuum_ev, to_nhe
+from screen.dyecell.checks import potential_problem, threshold_problem, vacuum_problem
+from screen.dyecell.scales import needs_solvent, nhe_from_vacuum_ev, to_nhe
 from screen.errors import InputError
 
 __all__ = ["Material", "OXIDES_FILE", "MEDIATORS_FILE", "load_oxides", "load_mediators", "resolve_oxide",
@@ -181,26 +189,47 @@ def _one_row(path: Path, what: str) -> dict:
 
 
 def _potential_from_row(row: dict, base: str, where: str) -> tuple[float, str]:
-    """``<base>_v_nhe``, or ``<base>_v`` + ``reference`` (+ ``solvent``), or ``<base>_ev`` (vacuum)."""
+    """``<base>_v_nhe``, or ``<base>_v`` + ``reference`` (+ ``solvent``), or ``<base>_ev`` (vacuum).
+
+    The value must be plausible for an oxide or a mediator
+    (:data:`screen.dyecell.checks.POTENTIAL_RANGE_V_NHE`); a slip of units or
+    sign is refused with the fix.
+    """
     given = [c for c in (f"{base}_v_nhe", f"{base}_v", f"{base}_ev") if _text(row.get(c))]
     if len(given) != 1:
-        raise InputError(f"{where}: give exactly one of {base}_v_nhe [V vs NHE], {base}_v with a reference "
-                         f"column, or {base}_ev [eV, vacuum scale]; found {given or 'none'}")
+        raise InputError(f"{where}: give exactly one of {base}_v_nhe [V vs NHE], {base}_v with a column named "
+                         f"'reference' (NHE, SCE, Ag/AgCl, or Fc with a column named 'solvent'), or {base}_ev "
+                         f"[eV, vacuum scale]; found {given or 'none'}")
     col = given[0]
     value = _float(row[col])
     if not math.isfinite(value):
-        raise InputError(f"{where}: {col} = {row[col]!r} is not a number")
+        unit = "eV on the vacuum scale, e.g. -4.0" if col.endswith("_ev") else "V, e.g. 0.5"
+        raise InputError(f"{where}: {col} = {row[col]!r} is not a finite number; write it in {unit}")
     if col.endswith("_v_nhe"):
+        problem = potential_problem(value, col, f"{base}_ev")
+        if problem:
+            raise InputError(f"{where}, column {col} = {value:g}: {problem}")
         return value, ""
     if col.endswith("_ev"):
+        problem = vacuum_problem(value, col)
+        if problem:
+            raise InputError(f"{where}, column {col} = {value:g}: {problem}")
         note = f"{col} = {value} eV (vacuum) → V vs NHE with the absolute NHE potential 4.44 V (Trasatti 1986)"
         return float(nhe_from_vacuum_ev(value)), note
-    reference = _text(row.get("reference"))
-    if not reference:
-        raise InputError(f"{where}: {col} needs a reference column (NHE, SCE, Ag/AgCl, Fc with a solvent)")
-    solvent = _text(row.get("solvent")) or "acetonitrile"
+    ref_col = next((c for c in ("reference", f"{base}_reference") if _text(row.get(c))), "")
+    if not ref_col:
+        raise InputError(f"{where}: {col} needs the reference electrode in a column named 'reference' "
+                         f"(or {base}_reference): NHE, SCE, Ag/AgCl, or Fc with a column named 'solvent'")
+    reference, solvent = _text(row[ref_col]), _text(row.get("solvent"))
+    if needs_solvent(reference) and not solvent:
+        raise InputError(f"{where}: {ref_col} = {reference!r} needs a column named 'solvent': Fc+/Fc vs NHE "
+                         "depends on it (acetonitrile +0.63 V, dichloromethane +0.70 V; see dascreen dyecell "
+                         "--list and screen/data/electrodes.csv)")
     out = float(to_nhe(value, reference, solvent))
-    return out, f"{col} = {value} V vs {reference} ({solvent}) → {out:.3f} V vs NHE"
+    problem = potential_problem(out, f"{base}_v_nhe", f"{base}_ev")
+    if problem:
+        raise InputError(f"{where}, column {col} = {value:g} V vs {reference} (= {out:.2f} V vs NHE): {problem}")
+    return out, f"{col} = {value} V vs {reference}{f' ({solvent})' if solvent else ''} → {out:.3f} V vs NHE"
 
 
 def _lookup(frame: pd.DataFrame, spec: str) -> dict | None:
@@ -288,6 +317,9 @@ def resolve_mediator(spec: str, library: str | Path | None = None) -> Material:
     thr = _float(row.get("min_drive_reg_ev")) if _text(row.get("min_drive_reg_ev")) else math.nan
     if _text(row.get("min_drive_reg_ev")) and not math.isfinite(thr):
         raise InputError(f"{where}: min_drive_reg_ev = {row.get('min_drive_reg_ev')!r} is not a number")
+    problem = threshold_problem(thr) if math.isfinite(thr) else None
+    if problem:
+        raise InputError(f"{where}, column min_drive_reg_ev = {thr:g}: {problem}")
     return Material(id=_text(row.get("id")) or path.stem, role="mediator", potential_v_nhe=potential,
                     min_drive_reg_ev=thr, conversion=conversion, kind="file", slug=_file_slug(path),
                     **_described(row, "solvent", str(path)))

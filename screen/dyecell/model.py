@@ -189,6 +189,8 @@ def _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, 
     words = []
     edge = "conduction-band edge" if oxide.type != "p" else "valence-band edge"
     if masks["input_missing"][i]:
+        if np.isfinite(e_ox[i]) and np.isfinite(e00[i]):  # present, but not a positive excitation energy
+            return (f"not viable: E\u2080\u208b\u2080 = {_fmt(e00[i])} eV is not a positive excitation energy")
         return "not viable: E(S\u207a/S) or E\u2080\u208b\u2080 is missing"
     if masks["no_anchor"][i]:
         words.append("no anchoring group, so the dye cannot bind to the oxide")

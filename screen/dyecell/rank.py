@@ -11,9 +11,12 @@ Two steps with different costs:
    thousands of dyes in well under a second (``benchmarks/dyecell_rerank.py``).
 
 A user dye file holds ``id`` and either ``e_ox_v_nhe`` or ``e_ox_v`` with
-``e_ox_reference`` (NHE, SCE, Ag/AgCl, Fc) and ``solvent``, plus ``e00_ev``;
-optional ``smiles``, ``name``, ``e_ox_sigma_v``, ``e00_sigma_ev``, ``anchor``
-and ``scale`` (which must be ``electrochemical`` when given).
+``e_ox_reference`` (NHE, SCE, Ag/AgCl, Fc) and ``solvent`` (required with Fc:
+Fc⁺/Fc vs NHE depends on it), plus ``e00_ev``; optional ``smiles``, ``name``,
+``e_ox_sigma_v``, ``e00_sigma_ev``, ``anchor`` and ``scale`` (which must be
+``electrochemical`` when given).  Every row must have a unique id and plausible
+values (:mod:`screen.dyecell.checks`); otherwise the file is refused, naming
+the line, the column and the fix.
 
 Metal-containing dyes are computed by the shared stages (GFN2-xTB covers the
 elements up to Rn) but the dye calibration covers only the elements of its
@@ -31,16 +34,17 @@ import pandas as pd
 
 from screen.dyecell.anchors import find_anchors
 from screen.dyecell.calibrate import apply_models, elements_of
+from screen.dyecell.checks import check_dye_file
 from screen.dyecell.flags import INFO_FLAGS, join_flags
 from screen.dyecell.library import Material
 from screen.dyecell.model import DyeCellModel, evaluate, sample_pce
 from screen.dyecell.options import RankOptions
-from screen.dyecell.scales import ELECTROCHEMICAL, require_scale, to_nhe
+from screen.dyecell.scales import ELECTROCHEMICAL, require_scale
 from screen.errors import InputError, ScaleMismatchError
 from screen.spectrum import gap_to_wavelength_nm
 
-__all__ = ["DYE_COLUMNS", "RANKING_COLUMNS", "EXTRA_COLUMNS", "NONMETALS", "dye_table", "dyes_from_file",
-           "rank_dyes"]
+__all__ = ["DYE_COLUMNS", "RANKING_COLUMNS", "EXTRA_COLUMNS", "NONMETALS", "NOT_A_DYE", "dye_table",
+           "dyes_from_file", "rank_dyes"]
 
 #: columns of the dye table (``OUT/dyecell/dyes.csv``)
 DYE_COLUMNS = ["id", "smiles", "name", "status", "error", "e_ox_v_nhe", "e_ox_sigma_v", "e00_ev", "e00_sigma_ev",
@@ -53,6 +57,9 @@ RANKING_COLUMNS = ["rank", "id", "smiles", "e_ox_v_nhe", "e00_ev", "e_ox_excited
                    "passes", "flags", "viability"]
 #: columns after the contract ones
 EXTRA_COLUMNS = ["name", "e_ox_sigma_v", "e00_sigma_ev", "edge_nm", "uncalibrated_elements"]
+#: reason of a polymer repeat unit in the dye-cell mode (status ``rejected``)
+NOT_A_DYE = ("a polymer repeat unit is not a sensitiser dye; dye mode takes molecules (give the dye itself, "
+             "without attachment points *)")
 #: atomic numbers counted as non-metals (metalloids B, Si, Ge, As, Te included)
 NONMETALS = frozenset({1, 2, 5, 6, 7, 8, 9, 10, 14, 15, 16, 17, 18, 32, 33, 34, 35, 36, 52, 53, 54, 85, 86})
 _ROUND = 4
@@ -101,15 +108,19 @@ def dye_table(levels: pd.DataFrame, models: dict[str, dict]) -> pd.DataFrame:
     -------
     pandas.DataFrame
         :data:`DYE_COLUMNS`.  Rows that were not computed keep their status
-        and error; a computed dye with a metal outside the calibration becomes
-        ``rejected`` with the reason.
+        and error; a polymer repeat unit (``representation = polymer``) and a
+        computed dye with a metal outside the calibration become ``rejected``
+        with the reason.
     """
     cal = apply_models(levels, models)
     covered = set(models["e_ox"].get("elements") or [])
     smiles = _text_col(levels, "smiles")
     anchors, anchored, known, uncal, metal = _structure_checks(smiles, covered)
-    status = _text_col(levels, "status").where(lambda s: s.ne(""), "ok").to_numpy(object)
-    error = _text_col(levels, "error").to_numpy(object)
+    status = _text_col(levels, "status").where(lambda s: s.ne(""), "ok").to_numpy(object, copy=True)
+    error = _text_col(levels, "error").to_numpy(object, copy=True)
+    polymer = _text_col(levels, "representation").eq("polymer").to_numpy() | smiles.str.contains("*", regex=False)
+    for i in np.flatnonzero(polymer & (status == "ok")):
+        status[i], error[i] = "rejected", NOT_A_DYE
     for i, met in enumerate(metal):
         if met and status[i] == "ok":
             status[i] = "rejected"
@@ -137,7 +148,8 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
         A ``scale`` column other than ``electrochemical``, or a levels file on
         the vacuum scale (``homo_ev`` …) without dye potentials.
     InputError
-        Missing columns, or a potential without its reference electrode.
+        Missing columns, no rows, or a row with an empty, repeated or impossible value
+        (:func:`screen.dyecell.checks.check_dye_file`: file, line, column and the fix).
 
     Examples
     --------
@@ -161,15 +173,7 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
     if "scale" in frame:
         given = _text_col(frame, "scale").str.strip()
         require_scale(given[given.ne("")], f"{where} (column scale)")
-    e_ox = _num_col(frame, "e_ox_v_nhe") if has_nhe else np.full(len(frame), np.nan)
-    if has_ref:
-        refs = _text_col(frame, "e_ox_reference").str.strip()
-        solv = _text_col(frame, "solvent").str.strip().where(lambda s: s.ne(""), "acetonitrile")
-        raw = _num_col(frame, "e_ox_v")
-        for i in np.flatnonzero(np.isnan(e_ox) & np.isfinite(raw)):
-            if not refs.iloc[i]:
-                raise InputError(f"{where}, row {i + 1} (id {frame['id'].iloc[i]!r}): e_ox_v needs e_ox_reference")
-            e_ox[i] = float(to_nhe(raw[i], refs.iloc[i], solv.iloc[i]))
+    e_ox = check_dye_file(frame, where)
     smiles = _text_col(frame, "smiles")
     anchors, anchored, known, _, _ = _structure_checks(smiles, set())
     if "anchor" in frame:
@@ -272,7 +276,7 @@ def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: Dy
         "drive_inj_ev": dev["drive_inj_ev"], "drive_reg_ev": dev["drive_reg_ev"], "anchors": _text_col(d, "anchors"),
         "viable": viable, "voc_v": dev["voc_v"], "jsc_ma_cm2": dev["jsc_ma_cm2"], "ff": dev["ff"],
         "pce_pct": dev["pce_pct"], "pce_sigma_pct": np.where(viable, mc["pce_sigma_pct"], np.nan),
-        "p_above_target": mc["p_above_target"], "p_viable": mc["p_viable"], "passes": viable & ~failing,
+        "p_above_target": np.where(viable, mc["p_above_target"], np.nan), "p_viable": mc["p_viable"], "passes": viable & ~failing,
         "flags": join_flags(masks), "viability": dev["viability"], "name": _text_col(d, "name"),
         "e_ox_sigma_v": s_ox, "e00_sigma_ev": s_gap, "edge_nm": np.asarray(gap_to_wavelength_nm(e00), float),
         "uncalibrated_elements": _text_col(d, "uncalibrated_elements"),

@@ -56,7 +56,7 @@ import pandas as pd
 from screen.errors import InputError, ScaleMismatchError
 
 __all__ = ["ABSOLUTE_NHE_V", "ELECTROCHEMICAL", "ELECTRODES_FILE", "vacuum_ev_from_nhe", "nhe_from_vacuum_ev",
-           "electrodes", "solvent_key", "fc_vs_nhe_v", "reference_vs_nhe_v", "to_nhe", "from_nhe",
+           "electrodes", "solvent_key", "needs_solvent", "fc_vs_nhe_v", "reference_vs_nhe_v", "to_nhe", "from_nhe",
            "require_scale"]
 
 #: absolute potential of the standard hydrogen electrode (Trasatti 1986, IUPAC) [V]
@@ -73,6 +73,8 @@ _SOLVENT_ALIASES = {
     "dcm": "dcm", "ch2cl2": "dcm", "dichloromethane": "dcm", "methylene chloride": "dcm",
     "thf": "thf", "tetrahydrofuran": "thf",
 }
+#: spellings of a ferrocene reference whose solvent is given separately
+_FERROCENE = ("fc", "fc+/fc", "fc/fc+", "ferrocene")
 #: reference-electrode spellings → ``electrodes.csv`` id
 _REFERENCE_ALIASES = {
     "nhe": "nhe", "she": "nhe", "v vs nhe": "nhe",
@@ -174,6 +176,21 @@ def fc_vs_nhe_v(solvent: str = "acetonitrile") -> float:
     return float(table.loc[ident, "e_vs_nhe_v"])
 
 
+def needs_solvent(reference: str) -> bool:
+    """True for a ferrocene reference given without its solvent (``Fc``, ``Fc+/Fc``, ``ferrocene``).
+
+    Fc⁺/Fc vs NHE depends on the solvent (+0.63 V in acetonitrile, +0.70 V in
+    dichloromethane, ``electrodes.csv``), so user files must name it; an id such
+    as ``fc-dcm`` carries its solvent.
+
+    Examples
+    --------
+    >>> needs_solvent("Fc+/Fc"), needs_solvent("fc-dcm"), needs_solvent("SCE")
+    (True, False, False)
+    """
+    return re.sub(r"\s+", " ", str(reference).strip().lower()) in _FERROCENE
+
+
 def reference_vs_nhe_v(reference: str, solvent: str = "acetonitrile") -> float:
     """Potential of a reference electrode vs NHE. [V]
 
@@ -191,7 +208,7 @@ def reference_vs_nhe_v(reference: str, solvent: str = "acetonitrile") -> float:
     (0.241, 0.7)
     """
     ref = re.sub(r"\s+", " ", str(reference).strip().lower())
-    if ref in ("fc", "fc+/fc", "fc/fc+", "ferrocene"):
+    if ref in _FERROCENE:
         return fc_vs_nhe_v(solvent)
     table = electrodes()
     ident = _REFERENCE_ALIASES.get(ref, ref)

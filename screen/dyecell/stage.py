@@ -50,7 +50,7 @@ _SD_PROPS = ["rank", "id", "name", "oxide", "mediator", "e_ox_v_nhe", "e_ox_sigm
              "pce_sigma_pct", "p_above_target", "flags", "smiles"]
 
 
-def raw_levels(out_dir: str | Path, config, batch: str = "candidates") -> Path:
+def raw_levels(out_dir: str | Path, config, batch: str = "candidates", set_aside: pd.DataFrame | None = None) -> Path:
     """``OUT/dyecell/levels_raw.csv``: a batch's rows joined with their raw xTB values, without calibration.
 
     The dye models need only the raw ``xtb_*`` columns, so the dye-cell mode
@@ -65,6 +65,11 @@ def raw_levels(out_dir: str | Path, config, batch: str = "candidates") -> Path:
         The run folder (``OUT/work/<batch>/prepared`` and ``electronic`` exist).
     config : screen.config.Config
         The run's configuration (its protocol id goes into the sidecar).
+    set_aside : pandas.DataFrame, optional
+        Rows of the user's file that were left out of the computation (polymer
+        repeat units, :func:`screen.dyecell.cli._set_aside`), with their 0-based
+        input position in ``row``: put back at their place as rejected rows, so
+        the levels file holds one row per input row.
 
     Returns
     -------
@@ -83,11 +88,34 @@ def raw_levels(out_dir: str | Path, config, batch: str = "candidates") -> Path:
         raise InputError(f"the batch {batch} in {out_dir} is not computed yet (missing {missing[0]})")
     levels, _ = _read_computed(work / "prepared" / "manifest.csv", [work / "electronic" / s.name for s in shards],
                                cfg)
+    if set_aside is not None and len(set_aside):
+        levels = _put_back(levels, set_aside)
     target = Path(out_dir) / "dyecell" / "levels_raw.csv"
     write_csv(levels, target)
     write_json({**provenance(cfg), "batch": batch, "scale": "none (raw xTB values; dye models calibrate them)",
                 "input": cfg["candidates"]}, Path(f"{target}.meta.json"))
     return target
+
+
+def _put_back(levels: pd.DataFrame, aside: pd.DataFrame) -> pd.DataFrame:
+    """``levels`` (rows of the computed copy, in order) with the set-aside rows back at their input positions.
+
+    Examples
+    --------
+    >>> lv = pd.DataFrame({"id": ["a", "c"], "status": ["ok", "ok"], "xtb_ip_ev": [11.0, 10.5]})
+    >>> back = pd.DataFrame({"row": [1], "id": ["b"], "status": ["rejected"], "error": ["not a dye"]})
+    >>> _put_back(lv, back)[["id", "status"]].values.tolist()
+    [['a', 'ok'], ['b', 'rejected'], ['c', 'ok']]
+    """
+    aside = aside.reset_index(drop=True)
+    total = len(levels) + len(aside)
+    taken = set(int(r) for r in aside["row"])
+    kept = [r for r in range(total) if r not in taken]
+    if len(kept) != len(levels):  # positions do not fit: keep every row, the set-aside ones last
+        kept = list(range(len(levels)))
+        aside = aside.assign(row=range(len(levels), total))
+    both = pd.concat([levels.assign(_pos=kept), aside.rename(columns={"row": "_pos"})], ignore_index=True)
+    return both.sort_values("_pos", kind="stable").drop(columns="_pos").reset_index(drop=True)
 
 
 def read_input(path: str | Path) -> tuple[str, pd.DataFrame, dict | None]:
@@ -103,6 +131,9 @@ def read_input(path: str | Path) -> tuple[str, pd.DataFrame, dict | None]:
         frame = pd.read_csv(path, dtype={"id": str}, keep_default_na=False, na_values=[""])
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise InputError(f"{path} cannot be read as CSV: {exc}") from exc
+    if frame.empty:
+        raise InputError(f"{path}: no rows (only a header); give one dye per line: id,e_ox_v_nhe,e00_ev "
+                         "(or a dascreen run's levels.csv)")
     side = Path(f"{path}.meta.json")
     meta = read_json(side) if side.is_file() else None
     kind = "levels" if "xtb_ip_ev" in frame.columns else "dyes"

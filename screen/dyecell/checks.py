@@ -1,0 +1,317 @@
+"""Input sanity of the dye-cell mode: a user's dye file, oxide and mediator files, before anything is ranked.
+
+A value outside what a dye, an oxide or a mediator can have is almost always a
+unit or convention slip (a wavelength in nm for E₀₋₀, a vacuum-scale energy in
+eV for a potential vs NHE, millivolts for volts, a dropped minus sign).  It
+stops the run with an :class:`~screen.errors.InputError` (exit code 2) that
+names the file, the line, the column, the value and the fix, in the style of
+:mod:`screen.levels_check`.  The bounds are wide on purpose (common practice,
+see the constants): they refuse slips, not unusual dyes, which the model marks
+*not viable* with the reason.
+
+Vacuum scale: :math:`E_{vac} = -e\\,(E_{NHE} + 4.44\\ \\mathrm{V})` (Trasatti 1986,
+:mod:`screen.dyecell.scales`).
+
+Examples
+--------
+>>> import pandas as pd
+>>> bad = pd.DataFrame({"id": ["d1"], "e_ox_v_nhe": [1.1], "e00_ev": [590.0]})
+>>> check_dye_file(bad, "my_dyes.csv")
+Traceback (most recent call last):
+...
+screen.errors.InputError: my_dyes.csv: line 2 (id 'd1'), column e00_ev = 590: E00 must be in eV; 590 looks like a wavelength in nm: write 1239.84/590 = 2.1 eV
+>>> potential_problem(-4.0, "band_edge_v_nhe", "band_edge_ev")
+'band edges of oxides and redox potentials of mediators lie roughly in -1.5...+2 V vs NHE; -4 looks like a vacuum-scale energy in eV, not a potential vs NHE: write band_edge_v_nhe = -(-4) - 4.44 = -0.44 V (or give the value as band_edge_ev = -4)'
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+
+from screen.dyecell.scales import ABSOLUTE_NHE_V, needs_solvent, to_nhe
+from screen.errors import InputError
+
+__all__ = ["E_OX_RANGE_V_NHE", "E00_RANGE_EV", "POTENTIAL_RANGE_V_NHE", "THRESHOLD_RANGE_EV", "e_ox_problem",
+           "e00_problem", "potential_problem", "vacuum_problem", "threshold_problem", "check_dye_file"]
+
+#: accepted E(S⁺/S) of a dye [V vs NHE]: organic sensitisers lie roughly in −0.5…+2.5 V (common practice);
+#: 0.5 V of margin each side so that an unusual dye is ranked (and marked not viable) rather than refused
+E_OX_RANGE_V_NHE = (-1.0, 3.0)
+#: accepted E₀₋₀ of a dye [eV]: sensitisers absorb in the visible and near infrared, typically 1.2–3.5 eV
+#: (common practice); 1.0 eV = 1240 nm, 4.0 eV = 310 nm (the AM1.5G spectrum ends near 280 nm)
+E00_RANGE_EV = (1.0, 4.0)
+#: accepted band edge of an oxide or redox potential of a mediator [V vs NHE]: they lie roughly in −1.5…+2 V
+#: (common practice; anatase TiO₂ CB ≈ −0.5 V, NiO VB ≈ +0.5 V, cobalt and copper complexes +0.4…+1.1 V)
+POTENTIAL_RANGE_V_NHE = (-1.5, 2.0)
+#: accepted driving-force threshold [eV]: ≥ 0 by definition; above 2 eV no dye of E00_RANGE_EV could meet it
+THRESHOLD_RANGE_EV = (0.0, 2.0)
+#: problems listed in one message at most
+_MAX_LISTED = 5
+
+
+def _g(x: float) -> str:
+    return f"{x:.6g}"
+
+
+def _vacuum_hint(value: float, column: str, ev_column: str = "") -> str | None:
+    """A hint when a potential vs NHE looks like a vacuum-scale energy (−3…−8 eV) or one without its sign."""
+    if -8.0 <= value <= -3.0:
+        alt = f" (or give the value as {ev_column} = {_g(value)})" if ev_column else ""
+        return (f"{_g(value)} looks like a vacuum-scale energy in eV, not a potential vs NHE: write "
+                f"{column} = -({_g(value)}) - 4.44 = {-value - ABSOLUTE_NHE_V:.2f} V{alt}")
+    if 3.0 <= value <= 8.0:
+        return (f"{_g(value)} looks like a vacuum-scale energy written without its minus sign (E_vac = "
+                f"{_g(-value)} eV): write {column} = -E_vac - 4.44 = {value - ABSOLUTE_NHE_V:.2f} V")
+    return None
+
+
+def _mv_hint(value: float, unit: str = "V") -> str | None:
+    if abs(value) >= 100.0:
+        name = "millivolts" if unit == "V" else "millielectronvolts"
+        return f"{_g(value)} looks like {name}: write {value / 1000:.3g} {unit}"
+    return None
+
+
+def e_ox_problem(value: float, column: str = "e_ox_v_nhe") -> str | None:
+    """What is wrong with a dye's E(S⁺/S) [V vs NHE] (None if it is plausible; NaN is not checked here).
+
+    Examples
+    --------
+    >>> e_ox_problem(1.07) is None
+    True
+    >>> e_ox_problem(-5.5)
+    'E(S+/S) must be a potential in V vs NHE (organic dyes lie roughly in -0.5...+2.5 V; accepted -1...+3 V); -5.5 looks like a vacuum-scale energy in eV, not a potential vs NHE: write e_ox_v_nhe = -(-5.5) - 4.44 = 1.06 V'
+
+    """
+    lo, hi = E_OX_RANGE_V_NHE
+    if not math.isfinite(value) or lo <= value <= hi:
+        return None
+    hint = _mv_hint(value) or _vacuum_hint(value, column) or (
+        "check the sign, the units (V) and the reference electrode")
+    return (f"E(S+/S) must be a potential in V vs NHE (organic dyes lie roughly in -0.5...+2.5 V; accepted "
+            f"{lo:+g}...{hi:+g} V); {hint}")
+
+
+def e00_problem(value: float) -> str | None:
+    """What is wrong with a dye's E₀₋₀ [eV] (None if it is plausible; NaN is not checked here).
+
+    Examples
+    --------
+    >>> e00_problem(2.1) is None, e00_problem(-2.1)
+    (True, 'E00 is a positive excitation energy in eV (typically 1.2-3.5 eV for a sensitiser); write 2.1')
+    """
+    lo, hi = E00_RANGE_EV
+    if not math.isfinite(value) or lo <= value <= hi:
+        return None
+    if value <= 0 and lo <= -value <= hi:
+        return f"E00 is a positive excitation energy in eV (typically 1.2-3.5 eV for a sensitiser); write {_g(-value)}"
+    if value >= 100.0:
+        return (f"E00 must be in eV; {_g(value)} looks like a wavelength in nm: write 1239.84/{_g(value)} = "
+                f"{1239.84 / value:.3g} eV")
+    return (f"E00 must be in eV and lie in {lo:g}-{hi:g} eV (typically 1.2-3.5 eV for a sensitiser, "
+            f"E00 = 1239.84/lambda[nm]); check the units")
+
+
+def potential_problem(value: float, column: str, ev_column: str = "") -> str | None:
+    """What is wrong with an oxide band edge or a mediator's redox potential [V vs NHE] (None if plausible).
+
+    Parameters
+    ----------
+    value : float
+        The potential. [V vs NHE]
+    column : str
+        Column it was given in (for the fix).
+    ev_column : str
+        The file's vacuum-scale column (``band_edge_ev``, ``e_redox_ev``), offered as the alternative.
+    """
+    lo, hi = POTENTIAL_RANGE_V_NHE
+    if lo <= value <= hi:
+        return None
+    hint = (_mv_hint(value) or _vacuum_hint(value, column, ev_column) or
+            "check the sign, the units (V) and the reference electrode")
+    return (f"band edges of oxides and redox potentials of mediators lie roughly in {lo:+g}...{hi:+g} V vs NHE; "
+            f"{hint}")
+
+
+def vacuum_problem(value: float, column: str) -> str | None:
+    """What is wrong with an oxide or mediator energy on the vacuum scale [eV] (None if plausible).
+
+    Examples
+    --------
+    >>> vacuum_problem(4.0, "band_edge_ev")
+    'vacuum-scale energies are negative (about -3 to -6 eV for oxides and mediators): write band_edge_ev = -4 (= -0.44 V vs NHE)'
+    >>> vacuum_problem(-4.0, "band_edge_ev") is None
+    True
+    """
+    lo, hi = (-(POTENTIAL_RANGE_V_NHE[1] + ABSOLUTE_NHE_V), -(POTENTIAL_RANGE_V_NHE[0] + ABSOLUTE_NHE_V))
+    if lo <= value <= hi:
+        return None
+    if value > 0 and lo <= -value <= hi:
+        return (f"vacuum-scale energies are negative (about -3 to -6 eV for oxides and mediators): write "
+                f"{column} = {_g(-value)} (= {value - ABSOLUTE_NHE_V:.2f} V vs NHE)")
+    return (_mv_hint(value, "eV") or
+            f"{_g(value)} eV is outside {lo:.2f}...{hi:.2f} eV (vacuum scale; {POTENTIAL_RANGE_V_NHE[0]:+g}..."
+            f"{POTENTIAL_RANGE_V_NHE[1]:+g} V vs NHE), where oxides and mediators lie; check the sign and units")
+
+
+def threshold_problem(value: float) -> str | None:
+    """What is wrong with a driving-force threshold [eV] (None if plausible).
+
+    Examples
+    --------
+    >>> threshold_problem(-0.2)
+    'a driving-force threshold is >= 0 eV (the smallest downhill step that counts, e.g. 0.2); write 0.2'
+    """
+    lo, hi = THRESHOLD_RANGE_EV
+    if lo <= value <= hi:
+        return None
+    if value < lo:
+        return (f"a driving-force threshold is >= 0 eV (the smallest downhill step that counts, e.g. 0.2)"
+                + (f"; write {_g(-value)}" if -value <= hi else ""))
+    return _mv_hint(value, "eV") or f"{_g(value)} eV is above {hi:g} eV: no dye could meet it; give it in eV, e.g. 0.2"
+
+
+def _line(frame: pd.DataFrame, i: int) -> int:
+    """File line of row ``i`` (header = line 1) when the index is the file's row number."""
+    idx = frame.index[i]
+    return int(idx) + 2 if isinstance(idx, (int, np.integer)) else i + 2
+
+
+def _raise(where: str, problems: list[str]) -> None:
+    if not problems:
+        return
+    more = f" (and {len(problems) - _MAX_LISTED} more)" if len(problems) > _MAX_LISTED else ""
+    head = problems[0] if len(problems) == 1 else f"{len(problems)} problems{more}:\n  " + "\n  ".join(
+        problems[:_MAX_LISTED])
+    raise InputError(f"{where}: {head}")
+
+
+def _cell(value) -> str:
+    return "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value).strip()
+
+
+def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
+    """Refuse a user's dye file with a missing, duplicated or impossible value; E(S⁺/S) of every row.
+
+    Checks every row: an id that is present and unique; ``e_ox_v_nhe`` (or
+    ``e_ox_v`` with ``e_ox_reference``, and ``solvent`` for a ferrocene
+    reference) and ``e00_ev`` present, numbers, finite and within
+    :data:`E_OX_RANGE_V_NHE` and :data:`E00_RANGE_EV`; σ columns empty or ≥ 0.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        The file as read (index = row number in the file), with ``id`` and the
+        potential columns (checked by the caller).
+    where : str
+        File name for the message.
+
+    Returns
+    -------
+    numpy.ndarray
+        E(S⁺/S) of every row. [V vs NHE]
+
+    Raises
+    ------
+    InputError
+        Naming the file, line, id, column, value and the fix (up to five problems in one message);
+        ``no rows`` for a file with a header only.
+    """
+    if len(frame) == 0:
+        raise InputError(f"{where}: no rows (only a header); give one dye per line: id,e_ox_v_nhe,e00_ev")
+    ids = [_cell(v) for v in (frame["id"] if "id" in frame else [""] * len(frame))]
+    problems: list[str] = []
+    bad: set[tuple[int, str]] = set()  # cells already reported
+    empty = [_line(frame, i) for i, v in enumerate(ids) if not v]
+    if empty:
+        problems.append(f"line{'s' if len(empty) > 1 else ''} {', '.join(map(str, empty))}: column id is empty; "
+                        "give every dye an id")
+    seen: dict[str, list[int]] = {}
+    for i, v in enumerate(ids):
+        if v:
+            seen.setdefault(v, []).append(_line(frame, i))
+    for v, lines in seen.items():
+        if len(lines) > 1:
+            problems.append(f"id {v!r} is on lines {', '.join(map(str, lines))}: ids must be unique; rename or "
+                            "remove the repeated rows")
+
+    def at(i: int, col: str, value) -> str:
+        shown = _g(value) if isinstance(value, float) else repr(value)
+        return f"line {_line(frame, i)} (id {ids[i]!r}), column {col} = {shown}"
+
+    def number(col: str, unit: str, example: str) -> np.ndarray:
+        if col not in frame:
+            return np.full(len(frame), np.nan)
+        out = np.full(len(frame), np.nan)
+        for i, raw in enumerate(frame[col]):
+            text = _cell(raw)
+            if not text:
+                continue
+            try:
+                out[i] = float(text)
+            except ValueError:
+                problems.append(f"{at(i, col, text)}: not a number; write the value in {unit}, e.g. {example}")
+                bad.add((i, col))
+                continue
+            if not math.isfinite(out[i]):
+                problems.append(f"{at(i, col, text)}: not a finite number; write the value in {unit}, e.g. "
+                                f"{example}")
+                bad.add((i, col))
+                out[i] = np.nan
+        return out
+
+    e_ox = number("e_ox_v_nhe", "V vs NHE", "1.1")
+    raw = number("e_ox_v", "V vs the reference electrode in e_ox_reference", "0.4")
+    e00 = number("e00_ev", "eV", "2.1")
+    sigmas = {c: number(c, u, "0.1") for c, u in (("e_ox_sigma_v", "V"), ("e00_sigma_ev", "eV"))}
+    refs = [_cell(v) for v in (frame["e_ox_reference"] if "e_ox_reference" in frame else [""] * len(frame))]
+    solv = [_cell(v) for v in (frame["solvent"] if "solvent" in frame else [""] * len(frame))]
+    def convert(i: int) -> str | None:
+        """E(S+/S) of row ``i`` from ``e_ox_v`` and its reference into ``e_ox``; the problem, if any."""
+        if not refs[i]:
+            return f"{at(i, 'e_ox_v', raw[i])}: e_ox_v needs the reference electrode in column e_ox_reference " \
+                   "(NHE, SCE, Ag/AgCl or Fc with a solvent)"
+        if needs_solvent(refs[i]) and not solv[i]:
+            return f"{at(i, 'e_ox_reference', refs[i])}: a ferrocene reference needs the solvent in column " \
+                   "solvent (Fc+/Fc vs NHE depends on it: acetonitrile, dichloromethane, DMF or THF)"
+        try:
+            e_ox[i] = float(to_nhe(raw[i], refs[i], solv[i]))
+        except InputError as exc:
+            return f"{at(i, 'e_ox_reference', refs[i])}: {exc}"
+        return None
+
+    for i in range(len(frame)):
+        col = "e_ox_v_nhe"
+        if math.isnan(e_ox[i]) and math.isfinite(raw[i]):
+            col = "e_ox_v"
+            msg = convert(i)
+            if msg:
+                problems.append(msg)
+                bad.add((i, col))
+        if math.isnan(e_ox[i]):
+            if not {(i, "e_ox_v_nhe"), (i, "e_ox_v")} & bad:
+                given = "e_ox_v_nhe" + (" and e_ox_v are" if "e_ox_v" in frame else " is")
+                problems.append(f"line {_line(frame, i)} (id {ids[i]!r}): {given} empty; give E(S+/S) in V vs NHE "
+                                "(or leave the dye out)")
+        else:
+            msg = e_ox_problem(float(e_ox[i]), "e_ox_v_nhe")
+            if msg:
+                shown = raw[i] if col == "e_ox_v" else e_ox[i]
+                conv = f" (= {e_ox[i]:.2f} V vs NHE with {refs[i]})" if col == "e_ox_v" else ""
+                problems.append(f"{at(i, col, float(shown))}{conv}: {msg}")
+        if math.isnan(e00[i]):
+            if (i, "e00_ev") not in bad:
+                problems.append(f"line {_line(frame, i)} (id {ids[i]!r}): e00_ev is empty; give E00 in eV "
+                                "(or leave the dye out)")
+        else:
+            msg = e00_problem(float(e00[i]))
+            if msg:
+                problems.append(f"{at(i, 'e00_ev', float(e00[i]))}: {msg}")
+        for c, s in sigmas.items():
+            if math.isfinite(s[i]) and s[i] < 0:
+                problems.append(f"{at(i, c, float(s[i]))}: an uncertainty must be >= 0 (empty = 0)")
+    _raise(where, problems)
+    return e_ox
