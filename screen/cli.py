@@ -47,6 +47,7 @@ def cmd_run(args) -> int:
                           "then `dascreen rank --partner a,b,...` for the partner matrix")
     check_partners(partners)
     out = Path(args.out).resolve()
+    _check_out_folder(out, args.out)
     check_out(out, candidates, overwrite=args.overwrite)
     cfg = _load(args, {"candidates": str(candidates.resolve()), "out": str(out),
                        "partner": _partner_arg(partners[0] if partners else None),
@@ -78,6 +79,7 @@ def cmd_calibrate(args) -> int:
     from screen.calibrate import load_models, stats_table
 
     out = Path(args.out).resolve()
+    _check_out_folder(out, args.out)
     overrides = {"out": str(out), "calibration": {"refit": "always"}}
     if args.reference:
         overrides["calibration"]["reference"] = str(Path(args.reference).resolve())
@@ -108,6 +110,37 @@ def cmd_calibrate(args) -> int:
         print(f"dascreen: models copied to {dest}")
     print(f"dascreen: models in {target}")
     return EXIT_OK
+
+
+def _check_out_folder(out: Path, given: str) -> None:
+    """Refuse an ``--out`` that is a file or lies inside a file (one message, exit code 2)."""
+    if out.exists() and not out.is_dir():
+        raise ConfigError(f"--out {given} is a file, not a folder; choose a folder (a new one is created)")
+    parent = next((p for p in out.parents if p.exists()), None)
+    if parent is not None and not parent.is_dir():
+        raise ConfigError(f"--out {given}: {parent} is a file, not a folder; choose an --out folder outside it")
+
+
+def _at_least_one(text: str) -> int:
+    """argparse type of ``--cores`` and ``--top``: a whole number >= 1."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; give 1 or more") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"{value} is not allowed; give 1 or more")
+    return value
+
+
+def _percent(text: str) -> float:
+    """argparse type of ``--target-pce``: a finite efficiency from 0 to 100 %."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number; give an efficiency in %, e.g. 10") from None
+    if not 0.0 <= value <= 100.0:  # NaN fails too
+        raise argparse.ArgumentTypeError(f"{text} is not allowed; give an efficiency from 0 to 100 (in %), e.g. 10")
+    return value
 
 
 def _partner_arg(spec: str | None) -> str | None:
@@ -221,12 +254,16 @@ def _models_override(models: str | None) -> dict:
 def cmd_rank(args) -> int:
     """Rank a levels file against one or more partners (a partner matrix for several); a new smiles:
     partner is computed by the workflow first."""
-    from screen.partners import split_partners
+    from screen.partners import partner_kind, split_partners
     from screen.preflight import check_partners
-    from screen.rank_io import run_rank
+    from screen.rank_io import check_before_computing, run_rank
 
     out = Path(args.out).resolve()
+    _check_out_folder(out, args.out)
     levels = Path(args.levels) if args.levels else out / "levels.csv"
+    if levels.is_dir():
+        raise InputError(f"levels file {str(levels)!r} is a folder; give a levels file with --levels FILE (a CSV "
+                         "with columns id,homo_ev,lumo_ev,gap_opt_ev,scale, e.g. OUT/levels.csv of a run)")
     if not levels.is_file():
         raise InputError(f"levels file {str(levels)!r} does not exist; run `dascreen run` first or pass "
                          "--levels FILE (columns id,homo_ev,lumo_ev,gap_opt_ev,scale)")
@@ -235,11 +272,14 @@ def cmd_rank(args) -> int:
         print(f"dascreen: using the run's configuration {args.config}")
     partners = split_partners(args.partner or [])
     check_partners(partners, levels)
-    cfg = _load(args, {**_models_override(args.models),
+    # out: a smiles: partner is computed into this folder (not the one a copied run's config.yaml names)
+    cfg = _load(args, {**_models_override(args.models), "out": str(out),
                        "rank": {"role": args.role, "sort_by": args.sort_by, "target_pce_pct": args.target_pce}})
     if args.models and Path(args.models).resolve().name != cfg.protocol_id:
         raise ConfigError(f"--models {args.models!r} is not a folder of this run's protocol {cfg.protocol_id}")
     partners = partners or [cfg["partner"]]
+    if any(partner_kind(spec) == "smiles" for spec in partners):  # refused now, not after computing the partner
+        check_before_computing(levels, partners, cfg)
     paths = []
     try:
         for spec in partners:
@@ -357,7 +397,8 @@ def _add_run(sub) -> None:
                    help="partner material: library name (see `dascreen partners`), a one-row levels CSV, "
                         "smiles:<SMILES> or id:<ID> (default from config: scharber-reference-acceptor)")
     p.add_argument("--out", default="results", help="output folder (default: ./results)")
-    p.add_argument("--cores", type=int, default=os.cpu_count() or 1, help="CPU cores to use (default: all)")
+    p.add_argument("--cores", type=_at_least_one, default=os.cpu_count() or 1,
+                   help="CPU cores to use, 1 or more (default: all)")
     p.add_argument("--config", default=None, help="YAML config file (see `dascreen config` for every field)")
     p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
                    help="override one config field, e.g. --set structures.geometry=xtb (repeatable)")
@@ -389,7 +430,7 @@ def _add_calibrate(sub) -> None:
                    help="reference folder with ip_gas.csv, ea_gas.csv, gap_optical.csv, levels_film.csv "
                         "(default: the shipped models/reference); e.g. a copy with your own measured film levels")
     p.add_argument("--out", default="results/calibration", help="work and output folder")
-    p.add_argument("--cores", type=int, default=os.cpu_count() or 1, help="CPU cores to use")
+    p.add_argument("--cores", type=_at_least_one, default=os.cpu_count() or 1, help="CPU cores to use, 1 or more")
     p.add_argument("--install", default=None, metavar="MODELS_DIR",
                    help="also copy the fitted models to MODELS_DIR/<protocol-id>/ (e.g. models) so later runs "
                         "use them without refitting")
@@ -425,15 +466,15 @@ def _add_rank(sub) -> None:
                    help="role of rows without a role column value (default: the partner's complement)")
     p.add_argument("--sort-by", choices=["pce_pct", "p_above_target"], default=None,
                    help="ranking key after the pass/fail split (default pce_pct)")
-    p.add_argument("--target-pce", type=float, default=None, metavar="PCT",
-                   help="efficiency threshold for p_above_target, in %% (default 10)")
+    p.add_argument("--target-pce", type=_percent, default=None, metavar="PCT",
+                   help="efficiency threshold for p_above_target, in %%, from 0 to 100 (default 10)")
     p.add_argument("--config", default=None,
                    help="YAML config file (default: OUT/config.yaml if present, else the defaults)")
     p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
                    help="override one config field, e.g. --set device.eqe=0.7 (repeatable)")
     p.add_argument("--models", default=None, metavar="DIR",
                    help="models/<protocol-id> folder to calibrate a smiles: partner with (default: the run's)")
-    p.add_argument("--top", type=int, default=10, help="rows to print (default 10)")
+    p.add_argument("--top", type=_at_least_one, default=10, help="rows to print, 1 or more (default 10)")
     p.add_argument("--verbose", action="store_true", help="show the workflow engine's log of a smiles: partner")
     p.set_defaults(func=cmd_rank)
 

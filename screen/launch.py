@@ -8,11 +8,18 @@ terminal shows one progress bar (molecules done / total, rate, ETA), or plain
 lines every minute when standard error is not a terminal; ``verbose`` shows
 Snakemake's log as it runs.  When the workflow fails, its error part is
 printed in full, with the path of the whole log.
+
+Snakemake runs in a process group of its own: Ctrl-C, SIGTERM (``kill``,
+``timeout``, a batch system) or SIGHUP to ``dascreen`` passes the signal to that whole
+group (Snakemake and its jobs; SIGKILL after :data:`STOP_GRACE_S`) and
+``dascreen`` exits with 128 + the signal number (130, 143).
 """
 
 from __future__ import annotations
 
+import os
 import re
+import signal
 import subprocess
 import sys
 import threading
@@ -23,9 +30,11 @@ import yaml
 from screen.config import Config
 from screen.errors import ConfigError
 
-__all__ = ["WORKFLOW", "run_workflow", "error_excerpt"]
+__all__ = ["WORKFLOW", "STOP_GRACE_S", "run_workflow", "error_excerpt"]
 
 WORKFLOW = Path(__file__).parent / "workflow" / "Snakefile"
+#: seconds the workflow's process group has to stop after the signal before it is killed [s]
+STOP_GRACE_S = 30.0
 
 _ERROR_START = re.compile(r"^(Error in rule|Error:|WorkflowError|RuleException|MissingInputException|"
                           r"Traceback|.*Exception( in rule|:))")
@@ -46,6 +55,92 @@ def error_excerpt(log_text: str, tail: int = 80) -> str:
         if _ERROR_START.match(line):
             return "\n".join(lines[i:])
     return "\n".join(lines[-tail:])
+
+
+#: signals that stop a running workflow like Ctrl-C does (SIGHUP: the terminal was closed)
+_STOP_SIGNALS = (signal.SIGTERM, signal.SIGHUP)
+
+
+class _Signalled(Exception):
+    """SIGTERM or SIGHUP arrived while the workflow ran (raised by the handler in the main thread)."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum
+
+
+def _raise_signalled(signum, frame) -> None:
+    raise _Signalled(signum)
+
+
+def _start(cmd: list[str], env: dict, **popen) -> subprocess.Popen:
+    """Start the workflow engine in a process group of its own (stopped as a whole by :func:`_wait`)."""
+    group = {"process_group": 0} if sys.version_info >= (3, 11) else {"preexec_fn": os.setpgrp}
+    return subprocess.Popen(cmd, env=env, **group, **popen)
+
+
+def _group_alive(pgid: int) -> bool:
+    """True while a process of group ``pgid`` runs (zombies, which only wait to be reaped, do not count)."""
+    proc_fs = Path("/proc")
+    if not proc_fs.is_dir():  # not Linux: ask the kernel (zombies count there)
+        try:
+            os.killpg(pgid, 0)
+        except ProcessLookupError:
+            return False
+        return True
+    for stat in proc_fs.glob("[0-9]*/stat"):
+        try:
+            fields = stat.read_text().rsplit(")", 1)[1].split()  # after "pid (comm)": state ppid pgrp ...
+        except (OSError, IndexError):
+            continue
+        if len(fields) > 2 and fields[2] == str(pgid) and fields[0] != "Z":
+            return True
+    return False
+
+
+def _stop_group(proc: subprocess.Popen, signum: int) -> None:
+    """Send ``signum`` to the workflow's process group (Snakemake and its jobs) and wait until the whole group is
+    gone; SIGKILL what is left after :data:`STOP_GRACE_S`."""
+    import time
+
+    deadline = time.monotonic() + STOP_GRACE_S
+    try:
+        os.killpg(proc.pid, signum)
+    except ProcessLookupError:  # already gone
+        pass
+    while (proc.poll() is None or _group_alive(proc.pid)) and time.monotonic() < deadline:
+        time.sleep(0.1)
+    if proc.poll() is None or _group_alive(proc.pid):
+        try:
+            os.killpg(proc.pid, signal.SIGKILL)
+        except ProcessLookupError:
+            pass
+    proc.wait()
+
+
+def _wait(proc: subprocess.Popen) -> int:
+    """Wait for the workflow engine; on Ctrl-C or SIGTERM stop its whole process group and exit with 128 + signal.
+
+    Raises
+    ------
+    SystemExit
+        130 after Ctrl-C (SIGINT), 143 after SIGTERM (129 after SIGHUP), once the workflow has stopped.
+    """
+    main_thread = threading.current_thread() is threading.main_thread()
+    previous = {sig: signal.signal(sig, _raise_signalled) for sig in _STOP_SIGNALS} if main_thread else {}
+    try:
+        return proc.wait()
+    except (KeyboardInterrupt, _Signalled) as exc:
+        signum = exc.signum if isinstance(exc, _Signalled) else signal.SIGINT
+        for sig in previous:  # a second signal must not cut the clean-up short
+            signal.signal(sig, signal.SIG_IGN)
+        _stop_group(proc, signum)
+        print(f"dascreen: stopped by {signal.Signals(signum).name}; the workflow was stopped too (the same command "
+              "resumes it)", file=sys.stderr, flush=True)
+        raise SystemExit(128 + signum) from None
+    finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, handler if handler is not None else signal.SIG_DFL)
 
 
 def _lock(out: Path):
@@ -106,8 +201,6 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
     ConfigError
         Another ``dascreen`` holds the folder's lock.
     """
-    import os
-
     from screen.store import STORE_ENV, store_location
 
     out.mkdir(parents=True, exist_ok=True)
@@ -124,7 +217,7 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
             print("dascreen: removed the lock left by an interrupted run; resuming", flush=True)
         if verbose or dry_run:
             print("dascreen: snakemake --cores", cores, "in", out, flush=True)
-            return subprocess.call(cmd, env=env)
+            return _wait(_start(cmd, env))
         return _quiet(cmd, env, out, out / "logs" / f"{log_name}.log", label)
     finally:
         lock.close()
@@ -135,14 +228,11 @@ def _quiet(cmd: list[str], env: dict, out: Path, log_path: Path, label: str) -> 
     log_path.parent.mkdir(parents=True, exist_ok=True)
     stop = threading.Event()
     with open(log_path, "w", encoding="utf-8") as log:
-        proc = subprocess.Popen(cmd, stdout=log, stderr=subprocess.STDOUT, env=env)
+        proc = _start(cmd, env, stdout=log, stderr=subprocess.STDOUT)
         watcher = threading.Thread(target=_watch, args=(out, stop, label), daemon=True)
         watcher.start()
         try:
-            rc = proc.wait()
-        except KeyboardInterrupt:
-            proc.terminate()
-            rc = proc.wait()
+            rc = _wait(proc)
         finally:
             stop.set()
             watcher.join(timeout=5)

@@ -4,10 +4,14 @@ On the vacuum scale a bound material has HOMO < LUMO < 0 (HOMO = −IP,
 LUMO = −EA), a positive optical gap that is not much larger than its
 LUMO − HOMO gap (the optical gap is the transport gap minus the exciton binding
 energy, which is ≥ 0; :data:`GAP_EXCESS_TOL_EV` allows for the spread between
-CV and absorption onsets) and σ ≥ 0.  A violation is almost always a typing or
+CV and absorption onsets), on the film scale not far below it either
+(:data:`GAP_DEFICIT_MAX_EV`), and σ ≥ 0.  A violation is almost always a typing or
 convention slip (an ionisation energy written as a positive HOMO, HOMO and LUMO
 swapped, a gap in nm): it stops the ranking with an :class:`InputError` (exit
 code 2) that names the file, the line, the column, the value and the fix.
+A levels file is also refused for a number that is not finite (``inf``), an
+empty or repeated id, a scale other than ``film`` or ``gas`` and a role other
+than ``donor``, ``acceptor`` or empty.
 
 On the ``gas`` scale a positive LUMO is allowed (an unbound anion, EA < 0).
 
@@ -30,11 +34,21 @@ import pandas as pd
 
 from screen.errors import InputError
 
-__all__ = ["check_levels", "check_partner", "row_problems", "inconsistent_rows", "GAP_EXCESS_TOL_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV"]
+__all__ = ["check_levels", "check_partner", "row_problems", "inconsistent_rows", "GAP_EXCESS_TOL_EV",
+           "GAP_DEFICIT_MAX_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV"]
 
 #: how much the optical gap may exceed LUMO − HOMO (CV and absorption onsets scatter by ~0.1–0.3 eV;
 #: common practice) [eV]
 GAP_EXCESS_TOL_EV = 0.3
+#: how far the optical gap may lie below LUMO − HOMO on the film scale: the exciton binding energy plus the
+#: scatter of CV and absorption onsets, a few tenths of an eV in organic films (common practice) [eV]
+GAP_DEFICIT_MAX_EV = 1.0
+#: rounding allowance of the gap comparisons (−3.0 − (−5.3) + 0.3 is 2.5999999999999996) [eV]
+_ROUND_EV = 1e-9
+#: the scales a levels row may name (docs/contracts.md §6)
+_SCALES = ("film", "gas")
+#: the roles of the OPV ranking (empty: the ranking chooses)
+_ROLES = ("donor", "acceptor", "")
 #: levels deeper than this are taken as a unit slip (meV, kJ/mol) [eV]
 LEVEL_MIN_EV = -15.0
 #: optical gaps above this are taken as a wavelength in nm [eV]
@@ -48,10 +62,12 @@ def _fmt(x: float) -> str:
     return f"{x:.6g}"
 
 
-def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict | None = None) -> list:
+def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict | None = None,
+                 deficit: bool = True) -> list:
     """Problems of one material's levels: ``(column, value, message)`` triples ([] if sane).
 
     NaN values are not problems here (the ranking marks them ``input_missing``).
+    ``deficit=False`` skips the film-scale check of an optical gap far below LUMO − HOMO.
 
     Examples
     --------
@@ -82,10 +98,16 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
         elif gap > GAP_MAX_INPUT_EV:
             out.append(("gap_opt_ev", gap, f"an optical gap of {gap:g} eV looks like a wavelength in nm; write "
                                            f"1240/{gap:g} = {1239.84 / gap:.2f} eV"))
-        elif math.isfinite(homo) and math.isfinite(lumo) and not out and gap > lumo - homo + GAP_EXCESS_TOL_EV:
-            out.append(("gap_opt_ev", gap, f"the optical gap ({_fmt(gap)} eV) exceeds LUMO - HOMO "
-                                           f"({_fmt(lumo - homo)} eV) by more than {GAP_EXCESS_TOL_EV} eV; check the "
-                                           "gap (absorption onset in eV) or the levels"))
+        elif math.isfinite(homo) and math.isfinite(lumo) and not out:
+            if gap > lumo - homo + GAP_EXCESS_TOL_EV + _ROUND_EV:
+                out.append(("gap_opt_ev", gap, f"the optical gap ({_fmt(gap)} eV) exceeds LUMO - HOMO "
+                                               f"({_fmt(lumo - homo)} eV) by more than {GAP_EXCESS_TOL_EV} eV; check "
+                                               "the gap (absorption onset in eV) or the levels"))
+            elif deficit and film and gap < lumo - homo - GAP_DEFICIT_MAX_EV - _ROUND_EV:
+                out.append(("gap_opt_ev", gap, f"the optical gap ({_fmt(gap)} eV) is more than "
+                                               f"{GAP_DEFICIT_MAX_EV} eV below LUMO - HOMO ({_fmt(lumo - homo)} eV), "
+                                               "more than an exciton binding energy in a film; check the gap "
+                                               "(absorption onset in eV) or the levels"))
     for col, val in (sigmas or {}).items():
         if math.isnan(val):
             continue
@@ -94,18 +116,51 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
     return out
 
 
-def _number(frame: pd.DataFrame, col: str, source: str, ids) -> np.ndarray:
-    """A column as floats; text that is not a number is an error naming the first offending line."""
+def _number(frame: pd.DataFrame, col: str, source: str, ids, finite: bool = False) -> np.ndarray:
+    """A column as floats; text that is not a number (with ``finite``: also ``inf``) is an error naming the
+    first offending line."""
     if col not in frame:
         return np.full(len(frame), np.nan)
     raw = frame[col]
     num = pd.to_numeric(raw, errors="coerce")
-    bad = num.isna() & raw.notna() & raw.astype(str).str.strip().ne("")
+    text = (num.isna() & raw.notna() & raw.astype(str).str.strip().ne("")).to_numpy()
+    bad = text | (np.isinf(num.to_numpy(dtype=float)) if finite else False)
     if bad.any():
-        i = int(np.flatnonzero(bad.to_numpy())[0])
-        raise InputError(f"{source}: line {_line(frame, i)} (id {ids[i]!r}), column {col} = {raw.iloc[i]!r}: not a "
-                         "number; write the value in eV, e.g. -5.3 (leave the cell empty if unknown)")
+        i = int(np.flatnonzero(bad)[0])
+        what = "not a number" if text[i] else "not a finite number"
+        shown = repr(raw.iloc[i]) if text[i] else f"{float(num.iloc[i]):g}"
+        raise InputError(f"{source}: line {_line(frame, i)} (id {ids[i]!r}), column {col} = {shown}: {what}; "
+                         "write the value in eV, e.g. -5.3 (leave the cell empty if unknown)")
     return num.to_numpy(dtype=float)
+
+
+def _text_problems(frame: pd.DataFrame, ids) -> list:
+    """``(row, column, value, message)`` of the text columns: empty or repeated ids, scales, roles."""
+    out = []
+    first: dict[str, int] = {}
+    for i, ident in enumerate(ids if "id" in frame else []):
+        key = ident.strip()
+        if not key:
+            out.append((i, "id", ident, "empty; give every row its own id (it names the row in the ranking)"))
+        elif key in first:
+            out.append((i, "id", ident, f"the same id as line {_line(frame, first[key])}; give every row its own "
+                                        "id (it names the row in the ranking)"))
+        else:
+            first[key] = i
+    if "scale" in frame:
+        for i, value in enumerate(frame["scale"].fillna("").astype(str)):
+            if value.strip().lower() not in _SCALES:
+                out.append((i, "scale", value, "allowed: film or gas (CV levels are film)"))
+    if "role" in frame:
+        for i, value in enumerate(frame["role"].fillna("").astype(str)):
+            role = value.strip().lower()
+            if role == "dye":
+                out.append((i, "role", value, "a sensitiser dye is screened with `dascreen dyecell`; the "
+                                              "donor/acceptor ranking takes donor, acceptor or an empty role"))
+            elif role not in _ROLES:
+                out.append((i, "role", value, "allowed: donor, acceptor or empty (empty: the role the levels "
+                                              "support against the partner)"))
+    return sorted(out, key=lambda p: p[0])
 
 
 def _line(frame: pd.DataFrame, i: int) -> int:
@@ -130,14 +185,17 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table") -> None:
         Naming the file, line, id, column, value and the fix; up to five
         problems in one message.
     """
-    ids = frame["id"].astype(str).to_numpy() if "id" in frame else np.array([str(i) for i in range(len(frame))])
-    homo, lumo, gap = (_number(frame, c, source, ids) for c in ("homo_ev", "lumo_ev", "gap_opt_ev"))
+    ids = (frame["id"].fillna("").astype(str).to_numpy() if "id" in frame
+           else np.array([str(i) for i in range(len(frame))]))
+    homo, lumo, gap = (_number(frame, c, source, ids, finite=True) for c in ("homo_ev", "lumo_ev", "gap_opt_ev"))
     sig = {c: _number(frame, c, source, ids) for c in _SIGMAS if c in frame}
     scale = frame["scale"].astype(str).to_numpy() if "scale" in frame else np.full(len(frame), "film")
-    problems = []
+    found = [(i, f"line {_line(frame, i)}" + (f" (id {ids[i]!r})" if col != "id" else "") + f", column {col} = "
+                 f"{value!r}: {msg}") for i, col, value, msg in _text_problems(frame, ids)]
     for i in range(len(frame)):
         for col, val, msg in row_problems(homo[i], lumo[i], gap[i], scale[i], {c: s[i] for c, s in sig.items()}):
-            problems.append(f"line {_line(frame, i)} (id {ids[i]!r}), column {col} = {val:g}: {msg}")
+            found.append((i, f"line {_line(frame, i)} (id {ids[i]!r}), column {col} = {val:g}: {msg}"))
+    problems = [text for _, text in sorted(found, key=lambda p: p[0])]
     if problems:
         more = f" (and {len(problems) - _MAX_LISTED} more)" if len(problems) > _MAX_LISTED else ""
         head = problems[0] if len(problems) == 1 else f"{len(problems)} problems{more}:\n  " + "\n  ".join(
@@ -163,8 +221,8 @@ def inconsistent_rows(frame: pd.DataFrame) -> np.ndarray:
     num = {c: (pd.to_numeric(frame[c], errors="coerce").to_numpy(dtype=float) if c in frame
                else np.full(len(frame), np.nan)) for c in ("homo_ev", "lumo_ev", "gap_opt_ev")}
     scale = frame["scale"].astype(str).to_numpy() if "scale" in frame else np.full(len(frame), "film")
-    return np.array([bool(row_problems(num["homo_ev"][i], num["lumo_ev"][i], num["gap_opt_ev"][i], scale[i]))
-                     for i in range(len(frame))], dtype=bool)
+    return np.array([bool(row_problems(num["homo_ev"][i], num["lumo_ev"][i], num["gap_opt_ev"][i], scale[i],
+                                       deficit=False)) for i in range(len(frame))], dtype=bool)
 
 
 def check_partner(partner) -> None:

@@ -44,10 +44,13 @@ import dataclasses
 import hashlib
 import math
 import re
+from functools import lru_cache
 from pathlib import Path
 
 import pandas as pd
 
+from screen.errors import InputError
+from screen.levels_check import check_levels
 from screen.partner_library import (LIBRARY_COLUMNS, LIBRARY_PATH, ROLES, SCALES, Partner, PartnerError,
                                    _float, _sigma_value, _text, complement, library_partners, library_table,
                                    load_library)
@@ -231,6 +234,10 @@ def _canonical_key(smiles: str) -> tuple[str, str]:
         mol = Chem.MolFromSmiles(text) if text else None
     if mol is None:
         raise PartnerError(f"partner smiles:{text!r} does not parse as SMILES")
+    problem = _prepare_problem(text)
+    if problem:
+        raise PartnerError(f"partner smiles:{text!r} cannot be computed: {problem}; a smiles: partner is one neutral, "
+                           "closed-shell molecule (or a polymer repeat unit with two attachment points [*])")
     canonical, _ = canonical_form(mol)
     charge = Chem.GetFormalCharge(mol)
     electrons = sum(a.GetAtomicNum() + a.GetTotalNumHs() for a in mol.GetAtoms()) - charge
@@ -239,6 +246,24 @@ def _canonical_key(smiles: str) -> tuple[str, str]:
     if electrons % 2 or any(a.GetNumRadicalElectrons() for a in mol.GetAtoms()):
         raise PartnerError(f"partner smiles:{text!r} is open-shell; partners must be closed-shell molecules")
     return canonical, structure_key(canonical)
+
+
+@lru_cache(maxsize=64)
+def _prepare_problem(smiles: str) -> str:
+    """Why the prepare stage would reject a structure (``'<message> (reason <code>)'``), or ``''``.
+
+    The checks of the candidates (:func:`screen.prepare.validate` with the default options): attachment
+    points, salts and mixtures, elements, valence, charge, open shell, size.
+
+    Examples
+    --------
+    >>> _prepare_problem("c1ccsc1"), _prepare_problem("[*]c1ccsc1").endswith("(reason attachment_single)")
+    ('', True)
+    """
+    from screen.prepare import validate
+
+    row = validate(pd.DataFrame({"id": ["partner"], "smiles": [smiles]})).iloc[0]
+    return "" if row["status"] == "ok" else f"{row['error']} (reason {row['reason']})"
 
 
 def partner_key(spec: str) -> tuple[str, str]:
@@ -359,10 +384,17 @@ def _row_partner(row: dict, *, kind: str, spec: str, slug: str, where: str, sour
     if status and status != "ok":
         raise PartnerError(f"{where}: row {pid!r} has status {status!r} ({_text(row.get('error'))}); "
                            "a partner needs computed levels")
+    if not pid:
+        raise PartnerError(f"{where}: the partner's id is empty; write its name in the id column (it names the "
+                           "partner in the ranking)")
     vals = {c: _float(row.get(c), f"{where}: {c} of {pid!r}") for c in ("homo_ev", "lumo_ev", "gap_opt_ev")}
-    for c in ("homo_ev", "lumo_ev"):
+    for c in ("homo_ev", "lumo_ev", "gap_opt_ev"):
+        if math.isinf(vals[c]):
+            raise PartnerError(f"{where}: row {pid!r}, column {c} = {vals[c]}: not a finite number; write the value "
+                               "in eV, e.g. -5.3")
         if not math.isfinite(vals[c]):
-            raise PartnerError(f"{where}: row {pid!r} has no {c}; a partner needs HOMO and LUMO")
+            raise PartnerError(f"{where}: row {pid!r} has no {c}; a partner needs HOMO, LUMO and optical gap "
+                               "(gap_opt_ev: absorption onset in eV, e.g. 1.4)")
     scale = _text(row.get("scale")).lower()
     if scale not in SCALES:
         raise PartnerError(f"{where}: row {pid!r} has scale {scale!r}; every partner must declare "
@@ -385,8 +417,12 @@ def _from_file(spec: str, slug: str) -> Partner:
         raise PartnerError(f"partner file {path} has {len(frame)} rows; a partner file holds exactly one levels "
                            "row (columns id, homo_ev, lumo_ev, gap_opt_ev, scale; optional role and σ columns). "
                            "To use one row of a larger levels file, rank that file with --partner id:<ID>")
-    return _row_partner(frame.iloc[0].to_dict(), kind="file", spec=spec, slug=slug, where=f"partner file {path}",
-                        source=f"file {path}")
+    try:  # the checks of a levels file: numbers, id, scale, role, impossible levels (naming line and column)
+        check_levels(frame, f"partner file {path}")
+    except InputError as exc:
+        raise PartnerError(str(exc)) from None
+    return _row_partner(frame.iloc[0].to_dict(), kind="file", spec=spec, slug=slug,
+                        where=f"partner file {path}, line 2", source=f"file {path}")
 
 
 def _from_levels(spec: str, slug: str, levels) -> Partner:

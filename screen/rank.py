@@ -286,6 +286,13 @@ def partner_role(levels: pd.DataFrame, partner: Partner, options: RankOptions) -
         given = set(levels["role"].fillna("").astype(str).str.strip().str.lower()) & set(ROLES)
         if len(given) == 1:
             return complement(given.pop()), True
+    if partner.kind == "smiles":
+        raise PartnerError(f"partner {partner.id!r} is computed from its SMILES and has no role of its own, and the "
+                           "candidates do not imply one (no role column, or both roles in it); set the candidates' "
+                           "role with --role donor|acceptor (config rank.role; the partner takes the other role) or "
+                           "fill the role column of the levels file. A smiles: partner cannot carry a role of its "
+                           "own; for a fixed role, copy its computed levels (OUT/work/partner-<key>/levels.csv, made "
+                           "by a ranking with --role) to a one-row partner file with a role column")
     raise PartnerError(f"partner {partner.id!r} has no role and the candidates do not imply one; set the "
                        "candidates' role with --role donor|acceptor (config rank.role) or give the partner a "
                        "role column")
@@ -357,9 +364,11 @@ def _roles(lv: pd.DataFrame, cand: _Candidates, partner: Partner, p_role: str, o
     role = np.where(valid, raw_role, default).astype(object)
     as_donor, as_acceptor = role_from_levels(cand.homo, cand.lumo, partner.homo_ev, partner.lumo_ev)
     fits, other = (as_donor, as_acceptor) if default == "donor" else (as_acceptor, as_donor)
-    unsupported = no_role & ~fits & other
-    return _Roles(role, role == "donor", role == p_role, role_invalid, role_invalid & no_role,
-                  empty & no_role & fits, unsupported, no_role & ~fits & ~other)
+    # without both levels the levels say nothing about the role: assumed, and the row is input_missing
+    known = ~(np.isnan(cand.homo) | np.isnan(cand.lumo))
+    unsupported = no_role & known & ~fits & other
+    return _Roles(role, role == "donor", role == p_role, role_invalid, (role_invalid | (empty & ~known)) & no_role,
+                  empty & no_role & known & fits, unsupported, no_role & known & ~fits & ~other)
 
 
 @dataclass(frozen=True)
@@ -500,6 +509,11 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
     settings = {"device": {k: model.value(k) for k in ("min_delta_lumo_ev", "min_delta_homo_ev")},
                 "rank": {"gap_min_ev": options.gap_min_ev, "gap_max_ev": options.gap_max_ev}}
     reason = {f: reason_of(f, settings) for f in set(flags)}  # thousands of rows share a few flag sets
+    reasons = [reason[f] for f in flags]
+    for i in np.flatnonzero(masks["input_missing"] & (np.isnan(cand.homo) | np.isnan(cand.lumo) | np.isnan(cand.gap))):
+        empty = [name for name, arr in (("HOMO (homo_ev)", cand.homo), ("LUMO (lumo_ev)", cand.lumo),
+                                        ("optical gap (gap_opt_ev)", cand.gap)) if np.isnan(arr[i])]
+        reasons[i] = f"the {' and '.join(empty)} of this row {'is' if len(empty) == 1 else 'are'} empty; {reasons[i]}"
     out = pd.DataFrame({
         "rank": np.zeros(n, dtype=int),
         "id": cand.ids,
@@ -517,7 +531,7 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
         "name": _text(lv, "name"),
         **{c: cand.sigma[c] for c in SIGMA_COLUMNS},
         "viable": viable,
-        "reason": [reason[f] for f in flags],
+        "reason": reasons,
         "model": np.where(pair_ok, model.model, ""),
         "acceptor_class": np.where(pair_ok, pd.Series(dev["acceptor_class"]).astype(str), ""),
         "absorber_gap_ev": np.where(pair_ok, np.asarray(dev["absorber_gap_ev"], dtype=float), np.nan),

@@ -29,9 +29,10 @@ from screen.config import Config
 from screen.device import DeviceModel
 from screen.devicepars import device_tests
 from screen.partners import Partner, PartnerError, resolve_partner
-from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, rank_candidates)
+from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, partner_role, rank_candidates)
 
-__all__ = ["write_shortlist", "computed_geometries", "settings_hash", "ranking_folder", "run_rank"]
+__all__ = ["write_shortlist", "computed_geometries", "settings_hash", "ranking_folder", "read_ranked_levels",
+           "check_before_computing", "run_rank"]
 
 
 # --------------------------------------------------------------------------- outputs
@@ -474,6 +475,63 @@ def _check_target(target: Path, partner: Partner, levels_path: Path) -> None:
         print(f"dascreen rank: replacing the ranking in {target} (it ranked {old_levels})", file=sys.stderr)
 
 
+def read_ranked_levels(levels_path) -> pd.DataFrame:
+    """Read a levels file to rank (its path kept in ``attrs['source']`` for the messages).
+
+    Raises
+    ------
+    InputError
+        The file is missing, lacks a column (:func:`screen.levels.read_levels`) or holds no row.
+    """
+    from screen.errors import InputError
+    from screen.levels import read_levels
+
+    levels = read_levels(levels_path)
+    levels.attrs["source"] = str(levels_path)  # named in input errors (screen.levels_check)
+    if not len(levels):
+        raise InputError(f"levels file {levels_path} has a header but no rows: nothing to rank; add one row per "
+                         "candidate (id,homo_ev,lumo_ev,gap_opt_ev,scale)")
+    return levels
+
+
+def check_before_computing(levels_path, partner_specs, config=None) -> None:
+    """Refuse what the ranking would refuse, before a ``smiles:`` partner is computed for it.
+
+    The levels file (no rows; a user's own file with impossible levels, ids, scales or roles:
+    :func:`screen.levels_check.check_levels`) and, for every ``smiles:`` partner, whether the
+    candidates' roles or ``rank.role`` give it a role (it has none of its own) and whether ``config``'s
+    protocol is the one the levels were computed with (their sidecar).
+
+    Raises
+    ------
+    InputError, PartnerError
+        As :func:`run_rank` would after the partner was computed.
+    """
+    from screen.levels_check import check_levels
+    from screen.partners import partner_kind
+    from screen.rank import _computed_by_dascreen
+    from screen.rank_rows import ranked_mask, split_ranked
+
+    levels = read_ranked_levels(levels_path)
+    if not _computed_by_dascreen(levels):  # a user's own file: the checks of rank_candidates
+        check_levels(levels[ranked_mask(levels)], levels.attrs["source"])
+    cfg = Config.of(config)
+    options = RankOptions.from_mapping(cfg["rank"])
+    ranked, _ = split_ranked(levels)
+    ran = (_levels_meta(Path(levels_path)) or {}).get("protocol_id")
+    for spec in partner_specs:
+        if partner_kind(spec) != "smiles":
+            continue
+        nan = float("nan")
+        partner_role(ranked, Partner(id=spec.strip(), name=spec.strip(), role="", homo_ev=nan, lumo_ev=nan,
+                                     gap_opt_ev=nan, kind="smiles", spec=spec), options)
+        if ran and ran != cfg.protocol_id:
+            raise PartnerError(
+                f"partner {spec!r} would be computed with protocol {cfg.protocol_id}, but the levels in {levels_path} "
+                f"were computed with protocol {ran}; rank with the run's configuration (e.g. "
+                f"{Path(levels_path).parent / 'config.yaml'}) so that partner and candidates share one protocol")
+
+
 def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_levels=None,
              report: bool = True, timings: dict | None = None) -> Path:
     """Rank a levels file against a partner and write the ranking folder.
@@ -515,7 +573,8 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     Raises
     ------
     ScaleMismatchError, PartnerError, InputError
-        See :func:`rank_candidates` and :func:`screen.partners.resolve_partner`.
+        See :func:`rank_candidates` and :func:`screen.partners.resolve_partner`; a levels file without
+        rows (:func:`read_ranked_levels`).
     ConfigError
         The ranking folder holds a ranking against another partner (never overwritten).
     RuntimeError
@@ -531,7 +590,6 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
        :doi:`10.1002/adma.200501717`
     """
     from screen.io import write_csv, write_json
-    from screen.levels import read_levels
 
     clock = [time.perf_counter()]
 
@@ -544,8 +602,7 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     cfg = Config.of(config)
     levels_path = Path(levels_path)
     out_dir = Path(out_dir)
-    levels = read_levels(levels_path)
-    levels.attrs["source"] = str(levels_path)  # named in input errors (screen.levels_check)
+    levels = read_ranked_levels(levels_path)
     meta_in = _levels_meta(levels_path)
     partner = _partner(partner_spec, levels, levels_path, meta_in, out_dir, partner_levels)
     model = DeviceModel(**cfg["device"])

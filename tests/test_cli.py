@@ -242,3 +242,125 @@ def test_a_protocol_without_calibration_is_announced_before_the_run(tmp_path):
     assert Config.of({}).protocol_id in text  # what is shipped instead
     (tmp_path / "models" / other.protocol_id).mkdir(parents=True)  # fitted by an earlier run into this folder
     assert calibration_notice(other, tmp_path) is None
+
+
+# --------------------------------------------------------------------------- refused before any work (exit 2)
+
+def test_out_that_is_a_file_or_inside_one_is_refused(levels, tmp_path, capsys):
+    afile = tmp_path / "afile"
+    afile.write_text("x")
+    rc, _, err = _cli(capsys, "rank", "--levels", str(levels), "--out", str(afile))
+    assert rc == 2 and f"--out {afile} is a file, not a folder" in err and "Traceback" not in err
+    rc, _, err = _cli(capsys, "run", str(levels), "--out", str(afile / "sub"))
+    assert rc == 2 and f"{afile} is a file, not a folder" in err and "not writable" not in err
+
+
+def test_levels_that_is_a_folder_or_has_no_rows_is_refused(tmp_path, capsys):
+    rc, _, err = _cli(capsys, "rank", "--levels", str(tmp_path), "--out", str(tmp_path / "o"))
+    assert rc == 2 and "is a folder; give a levels file" in err
+    header = tmp_path / "header.csv"
+    header.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale\n")
+    rc, out, err = _cli(capsys, "rank", "--levels", str(header), "--out", str(tmp_path / "o"))
+    assert rc == 2 and "has a header but no rows: nothing to rank" in err and not (tmp_path / "o").exists()
+
+
+def test_a_levels_file_with_repeated_ids_is_refused(tmp_path, capsys):
+    path = tmp_path / "dup.csv"
+    path.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale\nA,-5.3,-3.4,1.8,film\nA,-5.5,-3.5,1.9,film\n")
+    rc, _, err = _cli(capsys, "rank", "--levels", str(path), "--out", str(tmp_path / "o"))
+    assert rc == 2 and "line 3, column id = 'A': the same id as line 2" in err
+
+
+@pytest.mark.parametrize("args, option", [
+    (["run", "x.csv", "--cores", "0"], "--cores"),
+    (["run", "x.csv", "--cores", "-1"], "--cores"),
+    (["rank", "--top", "0"], "--top"),
+    (["rank", "--top", "-3"], "--top"),
+    (["rank", "--target-pce", "-5"], "--target-pce"),
+    (["rank", "--target-pce", "nan"], "--target-pce"),
+])
+def test_numeric_options_are_refused_at_parse_time_naming_the_option(args, option, capsys):
+    with pytest.raises(SystemExit) as stop:
+        main(args)
+    err = capsys.readouterr().err
+    assert stop.value.code == 2 and f"argument {option}:" in err and "config.yaml" not in err
+
+
+def test_a_smiles_partner_is_computed_into_the_given_out_folder(levels, tmp_path, capsys, monkeypatch):
+    """A copied run folder: its config.yaml names the original folder, the partner goes to the copy."""
+    import shutil
+
+    import screen.cli
+
+    calls = []
+
+    def workflow(cfg, out, cores, targets=(), **kwargs):
+        calls.append((cfg["out"], str(out), list(targets)))
+        return 1  # stop here: nothing is computed in a test
+
+    monkeypatch.setattr(screen.cli, "run_workflow", workflow)
+    run = tmp_path / "copy"
+    run.mkdir()
+    shutil.copy(levels, run / "levels.csv")
+    (run / "config.yaml").write_text(yaml.safe_dump({"out": str(tmp_path / "original")}))
+    rc, _, err = _cli(capsys, "rank", "--out", str(run), "--partner", "smiles:c1ccsc1",
+                      "--set", "calibration.refit=always")
+    assert rc == 1 and "computing partner" in err
+    (cfg_out, out, targets), = calls
+    assert cfg_out == out == str(run) and targets[0].startswith(str(run / "work" / "partner-"))
+
+
+def test_a_smiles_partner_without_role_is_refused_before_it_is_computed(tmp_path, capsys, monkeypatch):
+    import screen.cli
+
+    monkeypatch.setattr(screen.cli, "run_workflow", lambda *a, **k: pytest.fail("the partner was computed"))
+    path = tmp_path / "lv.csv"
+    path.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale\nA,-5.3,-3.4,1.8,film\n")
+    rc, _, err = _cli(capsys, "rank", "--levels", str(path), "--out", str(tmp_path / "o"), "--partner",
+                      "smiles:c1ccsc1", "--set", "calibration.refit=always")
+    assert rc == 2 and "--role donor|acceptor" in err and "cannot carry a role" in err
+
+
+# --------------------------------------------------------------------------- signals
+
+def _running(pid: int) -> bool:
+    """True while ``pid`` is a process that is not a zombie."""
+    try:
+        with open(f"/proc/{pid}/stat", encoding="utf-8") as fh:
+            return fh.read().rsplit(")", 1)[1].split()[0] != "Z"
+    except (FileNotFoundError, ProcessLookupError):
+        return False
+
+
+@pytest.mark.skipif(not os.path.isdir("/proc"), reason="reads /proc")
+def test_sigterm_stops_the_workflow_and_its_jobs_like_ctrl_c(tmp_path):
+    import signal
+    import subprocess
+
+    pids = tmp_path / "pids"
+    engine = tmp_path / "engine.py"  # stands for Snakemake: starts a job, then waits
+    engine.write_text("import os, subprocess, sys, time\n"
+                      "job = subprocess.Popen([sys.executable, '-c', 'import time; time.sleep(600)'])\n"
+                      f"open({str(pids) + '.tmp'!r}, 'w').write(f'{{os.getpid()}} {{job.pid}}')\n"
+                      f"os.replace({str(pids) + '.tmp'!r}, {str(pids)!r})\n"
+                      "time.sleep(600)\n")
+    launcher = tmp_path / "launcher.py"  # stands for dascreen
+    launcher.write_text("import os, sys\nfrom pathlib import Path\nfrom screen.launch import _quiet\n"
+                        f"sys.exit(_quiet([sys.executable, {str(engine)!r}], dict(os.environ), Path({str(tmp_path)!r}),"
+                        f" Path({str(tmp_path / 'workflow.log')!r}), 'dascreen'))\n")
+    proc = subprocess.Popen([sys.executable, str(launcher)], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    deadline = time.monotonic() + 120
+    while not pids.is_file():
+        assert proc.poll() is None and time.monotonic() < deadline, proc.communicate()
+        time.sleep(0.1)
+    engine_pid, job_pid = map(int, pids.read_text().split())
+    try:
+        proc.send_signal(signal.SIGTERM)  # as `kill` or `timeout` send it: to dascreen only
+        _, err = proc.communicate(timeout=120)
+        assert proc.returncode == 128 + signal.SIGTERM, err
+        assert "stopped by SIGTERM" in err and "Traceback" not in err
+        assert not _running(engine_pid) and not _running(job_pid)
+    finally:  # leave nothing behind when the test fails
+        for pid in (proc.pid, engine_pid, job_pid):
+            if _running(pid):
+                os.kill(pid, signal.SIGKILL)

@@ -129,7 +129,7 @@ def test_bad_partner_file_exits_2(tmp_path, capsys):
                        encoding="utf-8")
     rc = cli_main(["rank", "--levels", str(good), "--partner", str(partner), "--out", str(tmp_path / "out")])
     err = capsys.readouterr().err
-    assert rc == 2 and "partner 'mine'" in err and "write it as -5.9" in err
+    assert rc == 2 and "partner file" in err and "(id 'mine')" in err and "write it as -5.9" in err
 
 
 def test_installed_command_refuses_a_positive_homo(tmp_path):

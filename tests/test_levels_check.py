@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 
 from screen.errors import InputError
-from screen.levels_check import GAP_EXCESS_TOL_EV, check_levels, check_partner, row_problems
+from screen.levels_check import GAP_DEFICIT_MAX_EV, GAP_EXCESS_TOL_EV, check_levels, check_partner, row_problems
 from screen.partners import library_partners
 
 
@@ -28,6 +28,13 @@ def _frame(**cols):
     (dict(homo_sigma_ev=-0.1), "homo_sigma_ev", ">= 0"),
     (dict(lumo_sigma_ev=np.inf), "lumo_sigma_ev", ">= 0"),
     (dict(homo_ev="-5.3eV"), "homo_ev", "not a number"),
+    (dict(gap_opt_ev=np.inf), "gap_opt_ev", "= inf: not a finite number"),
+    (dict(homo_ev=-np.inf), "homo_ev", "= -inf: not a finite number"),
+    (dict(gap_opt_ev=1.8 - GAP_DEFICIT_MAX_EV - 0.1), "gap_opt_ev", "below LUMO - HOMO"),
+    (dict(scale="cv"), "scale", "= 'cv': allowed: film or gas (CV levels are film)"),
+    (dict(scale=""), "scale", "= '': allowed: film or gas"),
+    (dict(role="dye"), "role", "`dascreen dyecell`"),
+    (dict(role="sensitiser"), "role", "allowed: donor, acceptor or empty"),
 ])
 def test_each_problem_names_file_line_column_and_fix(cols, column, fix):
     with pytest.raises(InputError) as err:
@@ -43,6 +50,24 @@ def test_sane_rows_pass_and_empty_cells_are_left_to_the_ranking():
     check_levels(_frame(gap_opt_ev=1.8 + GAP_EXCESS_TOL_EV - 0.05), "cv.csv")
     # gas scale: an unbound anion (EA < 0, LUMO > 0) is physical
     check_levels(_frame(lumo_ev=0.4, gap_opt_ev=4.0, scale="gas"), "gas.csv")
+
+
+def test_gap_rules_hold_at_their_boundaries_despite_rounding():
+    # LUMO - HOMO = 2.3 eV and a gap 0.3 eV above it: exactly the allowance (-3.0 - (-5.3) is 2.2999999999999998)
+    check_levels(_frame(homo_ev=-5.3, lumo_ev=-3.0, gap_opt_ev=2.6), "cv.csv")
+    check_levels(_frame(homo_ev=-5.3, lumo_ev=-3.0, gap_opt_ev=2.3 - GAP_DEFICIT_MAX_EV), "cv.csv")
+    # a gas-scale transport gap exceeds the optical gap by far more than an exciton binding energy in a film
+    check_levels(_frame(homo_ev=-7.5, lumo_ev=-1.0, gap_opt_ev=2.0, scale="gas"), "gas.csv")
+
+
+def test_empty_and_repeated_ids_are_refused_with_their_lines():
+    frame = pd.DataFrame({"id": ["A", "", "A"], "homo_ev": -5.3, "lumo_ev": -3.5, "gap_opt_ev": 1.7,
+                          "scale": "film"})
+    with pytest.raises(InputError) as err:
+        check_levels(frame, "x.csv")
+    msg = str(err.value)
+    assert msg.startswith("x.csv: 2 problems")
+    assert "line 3, column id = '': empty" in msg and "line 4, column id = 'A': the same id as line 2" in msg
 
 
 def test_several_problems_in_one_message_with_file_lines():

@@ -178,6 +178,32 @@ def test_file_partner_needs_scale_and_levels(tmp_path):
         resolve_partner(str(_one_row(tmp_path / "c.csv", role="sensitiser")))
 
 
+@pytest.mark.parametrize("over, message", [
+    (dict(gap_opt_ev="inf"), r"line 2 \(id 'my-acceptor'\), column gap_opt_ev = inf: not a finite number"),
+    (dict(gap_opt_ev=""), r"line 2: row 'my-acceptor' has no gap_opt_ev; a partner needs HOMO, LUMO and optical gap"),
+    (dict(gap_opt_ev=0.3), r"column gap_opt_ev = 0.3: the optical gap \(0.3 eV\) is more than 1.0 eV below"),
+    (dict(id=""), r"line 2, column id = '': empty"),
+    (dict(scale="cv"), r"column scale = 'cv': allowed: film or gas"),
+])
+def test_file_partner_gets_the_checks_of_a_levels_file(tmp_path, over, message):
+    with pytest.raises(PartnerError, match=message):
+        resolve_partner(str(_one_row(tmp_path / "acc.csv", **over)))
+
+
+@pytest.mark.parametrize("smiles, reason", [
+    ("[*]c1cc([*])cc([*])c1", "attachment_too_many"),
+    ("[*]c1ccsc1", "attachment_single"),
+    ("[Na+].[Cl-]", "multi_fragment"),
+    ("c1ccccc1.CCO", "multi_fragment"),
+    ("[U]", "unsupported_element"),
+])
+def test_smiles_partner_gets_the_reasons_of_the_prepare_stage(smiles, reason):
+    with pytest.raises(PartnerError, match=rf"cannot be computed: .*\(reason {reason}\)") as err:
+        partner_key("smiles:" + smiles)
+    assert "open-shell" not in str(err.value)
+    assert partner_key("smiles:[*]c1ccc([*])s1")[0] == "*c1ccc(*)s1"  # a repeat unit with two ends is fine
+
+
 def test_id_partner_from_levels():
     levels = pd.DataFrame({"id": ["D1", "A 7\nx", "bad"], "status": ["ok", "ok", "failed"],
                            "error": ["", "", "electronic: no SCF"],

@@ -13,12 +13,13 @@ import pytest
 
 from screen import errors, flags
 from screen.device import DeviceModel
-from screen.partners import PartnerError, resolve_partner
+from screen.partners import Partner, PartnerError, resolve_partner
 from screen.rank import (
     EXTRA_COLUMNS,
     RANKING_COLUMNS,
     RankOptions,
     ScaleMismatchError,
+    partner_role,
     rank_candidates,
 )
 from screen.rank_io import ranking_folder, run_rank
@@ -193,7 +194,11 @@ def test_role_from_levels_and_default_role(partner):
     assert _flags(r, "x") == set()
     r = rank_candidates(lv.drop(columns="role"), partner, PUBLISHED, options=RankOptions(role="acceptor"))
     assert _flags(r, "x") == {"same_role_as_partner"} and not r.loc[0, "viable"] and np.isnan(r.loc[0, "pce_pct"])
-    r = rank_candidates(lv.assign(role="dye"), partner, PUBLISHED)
+    # a user's levels file: a dye is refused with the line and a pointer to the dye-cell mode
+    with pytest.raises(errors.InputError, match=r"line 2 \(id 'x'\), column role = 'dye'.*dascreen dyecell"):
+        rank_candidates(lv.assign(role="dye"), partner, PUBLISHED)
+    # a run's own levels (raw engine columns): the row is ranked and flagged, the batch goes on
+    r = rank_candidates(lv.assign(role="dye", xtb_ip_ev=7.0), partner, PUBLISHED)
     assert _flags(r, "x") == {"role_invalid", "role_assumed"} and not r.loc[0, "passes"]
 
 
@@ -281,6 +286,28 @@ def test_partner_without_role_takes_the_complement(tmp_path):
         rank_candidates(lv.drop(columns="role"), p)
 
 
+def test_a_smiles_partner_without_role_says_how_to_give_one():
+    smiles = Partner(id="smiles:c1ccsc1", name="c1ccsc1", role="", homo_ev=-6.0, lumo_ev=-2.5, gap_opt_ev=3.5,
+                     kind="smiles", spec="smiles:c1ccsc1")
+    lv = _levels([{"id": "d", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5}])
+    with pytest.raises(PartnerError) as err:
+        partner_role(lv, smiles, RankOptions())
+    msg = str(err.value)
+    assert "--role donor|acceptor" in msg and "cannot carry a role" in msg
+    assert "give the partner a role column" not in msg  # a smiles: partner has no column
+
+
+def test_a_missing_level_is_named_in_the_reason_not_the_role(partner):
+    lv = _levels([{"id": "h", "homo_ev": np.nan, "lumo_ev": -3.9, "gap_opt_ev": 1.5},
+                   {"id": "ok", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5}])
+    ranking = rank_candidates(lv, partner, PUBLISHED)
+    r = ranking.set_index("id")
+    assert _flags(ranking, "h") == {"input_missing", "role_assumed"} and not r.loc["h", "viable"]
+    assert r.loc["h", "reason"].startswith("the HOMO (homo_ev) of this row is empty; a level the device model needs")
+    assert "no role given" not in r.loc["h", "reason"]
+    assert r.loc["ok", "viable"]
+
+
 def test_ten_thousand_rows(partner):
     # the speed target (10 000 rows < 2 s) is timed in benchmarks/rerank.py, not asserted here
     rng = np.random.default_rng(7)  # synthetic levels
@@ -319,7 +346,7 @@ def test_flags_and_errors_come_from_the_ground_floor(partner):
     with pytest.raises(errors.InputError, match="'neg'.*lumo_sigma_ev"):
         rank_candidates(lv, partner)
     # every code the ranking writes is a registry code, in registry order
-    rows = [{"id": "x", "homo_ev": -5.2, "lumo_ev": -4.2, "gap_opt_ev": 0.9, "role": "dye"}]
+    rows = [{"id": "x", "homo_ev": -5.2, "lumo_ev": -4.2, "gap_opt_ev": 0.9, "role": "dye", "xtb_ip_ev": 7.0}]
     codes = rank_candidates(_levels(rows), partner, PUBLISHED).loc[0, "flags"].split(";")
     assert codes == ["role_invalid", "lumo_offset_low", "gap_out_of_window", "donor_only_model", "role_assumed"]
     assert codes == [c for c in flags.FLAG_ORDER if c in codes]
