@@ -24,7 +24,8 @@ ELECTRONIC_COLUMNS = (["key", "status", "error"] + RAW_COLUMNS + EXTRA_RAW_COLUM
                       + ["xtb_energy_eh", "xtb_cation_eh", "xtb_anion_eh", "xtb_energy_film_eh",
                          "xtb_cation_film_eh", "xtb_anion_film_eh", "xtb_lone_pair_shift_ev", "scf_rungs", "n_atoms", "sp_wall_s",
                          "electronic_note", "smiles_computed", "truncated_chains", "truncated_groups",
-                         "n_conformers", *CONFORMER_SPREAD_COLUMNS, "forcefield", "geometry", "structure_wall_s"])
+                         "n_conformers", *CONFORMER_SPREAD_COLUMNS, "forcefield", "geometry", "planar_variant",
+                         "structure_wall_s"])
 #: calibrated values of ``levels.csv`` [eV], with their σ and the scale of homo/lumo/gap_opt
 CALIBRATED_COLUMNS = ["ip_ev", "ea_ev", "gap_fund_ev", "homo_ev", "lumo_ev", "gap_opt_ev",
                       "ip_sigma_ev", "ea_sigma_ev", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev", "scale"]

@@ -23,7 +23,7 @@ from pathlib import Path
 import yaml
 
 from screen.errors import ConfigError
-from screen.options import ElectronicOptions, ExecutionOptions, StructureOptions
+from screen.options import ElectronicOptions, ExecutionOptions, StructureOptions, route_structures
 from screen.schema import SCHEMA_PATH, defaults, resolve, section_defaults
 
 __all__ = ["SCHEMA_PATH", "ConfigError", "Config", "load_config", "read_config_file", "merge", "resolve", "defaults", "section_defaults",
@@ -169,9 +169,11 @@ class Config(Mapping):
 
         Partner, device and ranking settings are deliberately absent: changing
         them must never invalidate the quantum chemistry or the calibration.
+        Structures options without effect on the chosen ``geometry`` route are left out
+        (:func:`screen.options.route_structures`), so that route keeps its id.
         """
         electronic = {k: v for k, v in self._data["electronic"].items() if k != "threads"}
-        return copy.deepcopy({"structures": self._data["structures"], "electronic": electronic})
+        return copy.deepcopy({"structures": route_structures(self._data["structures"]), "electronic": electronic})
 
     @cached_property
     def protocol_id(self) -> str:

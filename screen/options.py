@@ -15,7 +15,8 @@ from dataclasses import dataclass, fields
 from screen.errors import ConfigError
 from screen.schema import section_defaults
 
-__all__ = ["StructureOptions", "ElectronicOptions", "ExecutionOptions", "EARLIER_ROUTE_VALUES", "options_from_mapping"]
+__all__ = ["StructureOptions", "ElectronicOptions", "ExecutionOptions", "EARLIER_ROUTE_VALUES", "IDLE_WHEN",
+           "options_from_mapping", "route_structures"]
 
 _S = section_defaults("structures")
 _E = section_defaults("electronic")
@@ -61,8 +62,28 @@ def options_from_mapping(cls, mapping, section: str):
 #: ids, so adding them did not make earlier results look foreign (their defaults have since changed: see
 #: the schema)
 EARLIER_ROUTE_VALUES = {"structures": {"size_caps_min_atoms": 0, "rank_warm_start": False, "rank_scf_accuracy": None,
-                                       "cage_geometry": "ff"},
+                                       "cage_geometry": "ff", "planar_variants": False},
                         "electronic": {}}
+
+#: structures options that are idle on some routes: option → test of the ``structures`` section that is true when the
+#: option has no effect there; :func:`route_structures` leaves it out of the protocol then, so that adding an opt-in
+#: step (off by default) or one a route skips does not change the protocol and store ids of the shipped routes
+IDLE_WHEN = {"planar_variants": lambda s: s.get("geometry") == "xtb" or not s.get("planar_variants")}
+
+
+def route_structures(structures: dict) -> dict:
+    """The ``structures`` options without those that have no effect on this route (:data:`IDLE_WHEN`).
+
+    Examples
+    --------
+    >>> route_structures({"geometry": "xtb", "planar_variants": True, "seed": 1})
+    {'geometry': 'xtb', 'seed': 1}
+    >>> route_structures({"geometry": "ff", "planar_variants": False})
+    {'geometry': 'ff'}
+    >>> route_structures({"geometry": "ff", "planar_variants": True})
+    {'geometry': 'ff', 'planar_variants': True}
+    """
+    return {k: v for k, v in structures.items() if not (k in IDLE_WHEN and IDLE_WHEN[k](structures))}
 
 
 @dataclass(frozen=True)
@@ -125,8 +146,17 @@ class StructureOptions:
         within :data:`screen.structures.RECHECK_WINDOW_EH` of the lowest loose energy is then
         converged at the engine's own accuracy from its loose result, and the lowest of those wins,
         so the choice is the one of a tight ranking. Default 10; None: tight only.
+    planar_variants : bool
+        Force-field route only: besides the conformer chosen by xTB energy, rank copies of it whose
+        conjugated single bonds are held near planar by a restrained MMFF94 optimisation
+        (:func:`screen.structures.planar_variants`); MMFF94 twists aryl–vinyl and heteroaryl–aryl
+        bonds by 30–70° where GFN2-xTB optimisations keep most of them within 1–20°. Default false
+        (opt-in: measured on the reference set it improves the optical-gap model but not the
+        devices, ``benchmarks/planar_variants.py``). No effect with ``geometry="xtb"`` (the xTB
+        optimisation sets the torsions itself).
 
-    The last three save xTB time without changing the chosen conformer (``benchmarks/pruning_levels.py``:
+    ``size_caps_min_atoms``, ``rank_warm_start`` and ``rank_scf_accuracy`` save xTB time without changing the
+    chosen conformer (``benchmarks/pruning_levels.py``:
     the no-pruning choice on all 58 flexible reference molecules measured); 0, False and None give the
     route shipped before they became the defaults.
 
@@ -157,6 +187,7 @@ class StructureOptions:
     size_caps_min_atoms: int = _S["size_caps_min_atoms"]
     rank_warm_start: bool = _S["rank_warm_start"]
     rank_scf_accuracy: float | None = _S["rank_scf_accuracy"]
+    planar_variants: bool = _S["planar_variants"]
 
     def __post_init__(self):
         if self.geometry not in ("ff", "xtb"):

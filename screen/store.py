@@ -51,7 +51,7 @@ from dataclasses import asdict, is_dataclass
 from pathlib import Path
 
 from screen.errors import InputError
-from screen.options import EARLIER_ROUTE_VALUES
+from screen.options import EARLIER_ROUTE_VALUES, route_structures
 
 __all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "stage_protocol", "stage_protocol_id",
            "geometry_hash", "store_location", "open_store", "resolve_store", "store_text", "export_store",
@@ -92,6 +92,8 @@ def stage_protocol(stage: str, options) -> dict:
     if stage not in _STAGES:
         raise ValueError(f"unknown stage {stage!r}; allowed: {', '.join(_STAGES)}")
     data = asdict(options) if is_dataclass(options) else dict(options)
+    if stage == "structures":
+        data = route_structures(data)
     earlier = EARLIER_ROUTE_VALUES[stage]
     return {k: v for k, v in sorted(data.items())
             if k not in _NOT_PROTOCOL[stage] and not (k in earlier and v == earlier[k])}

@@ -12,7 +12,7 @@ Route (every step seeded, so the same input gives the same geometry):
    100–250-atom oligomers stay affordable;
 3. MMFF94 optimisation of every conformer (UFF when MMFF lacks parameters,
    e.g. for B; when neither has parameters, e.g. aromatic Se, the chosen
-   conformer is optimised with the xTB engine instead, step 5);
+   conformer is optimised with the xTB engine instead, step 6);
 4. GFN2-xTB single points on the lowest few conformers by force-field energy,
    keeping the lowest by xTB energy: conformers more than ``ff_window_kcal_mol``
    above the lowest force-field energy are dropped before any xTB call, and at
@@ -22,7 +22,18 @@ Route (every step seeded, so the same input gives the same geometry):
    and the ranking runs at a looser SCF accuracy with the near-lowest conformers
    converged again (``rank_scf_accuracy``), each SCF started from the previous
    conformer's (``rank_warm_start``): same choice, less xTB time;
-5. optional (``geometry="xtb"``) GFN2-xTB optimisation of that conformer with
+5. planar variants (``planar_variants``, opt-in; force-field route only): MMFF94
+   twists conjugated single bonds between an aromatic ring and a vinyl group by 35–40°
+   (styrene, stilbene: planar in the gas phase) and heteroaryl–aryl bonds of
+   donor–acceptor chromophores by 40–60°, where GFN2-xTB optimisations keep them within
+   1–20° (reference set, :func:`planar_variants`). Copies of the chosen conformer with those
+   bonds held within :data:`PLANAR_TOLERANCE_DEG` of planar by a restrained MMFF94
+   optimisation are ranked beside it, and the lowest by xTB energy is kept: the force
+   field supplies geometries, xTB chooses, as in step 4. Off by default: on the reference
+   set it improves the optical-gap model but not the devices, and for the end groups of
+   fused-ring acceptors GFN2-xTB prefers 15–35° to planar (``benchmarks/planar_variants.py``);
+   a protocol with it needs its own reference calibration;
+6. optional (``geometry="xtb"``) GFN2-xTB optimisation of that conformer with
    ASE's L-BFGS optimiser and the engine's ASE calculator.
    A closed carbon cage (a fullerene or its adduct, :mod:`screen.cage`) is always
    optimised so (``cage_geometry="xtb"``, the default): MMFF94 leaves it without bond
@@ -56,7 +67,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 from rdkit import Chem, RDLogger
-from rdkit.Chem import AllChem, rdMolDescriptors
+from rdkit.Chem import AllChem, rdMolDescriptors, rdMolTransforms
 
 from screen.batch import molecule_caller, run_journalled
 from screen.cage import closed_cage
@@ -74,6 +85,7 @@ __all__ = [
     "ranked_count",
     "truncate_side_chains",
     "build_structure",
+    "planar_variants",
     "run_structures",
     "read_structures",
     "ranking_engine",
@@ -86,7 +98,7 @@ __all__ = [
 #: columns of the per-shard structures status table
 STATUS_COLUMNS = ["key", "status", "error", "smiles_computed", "truncated_chains", "truncated_groups", "n_conformers",
                   "embedding",
-                  "forcefield", "geometry", "xtb_rank_energy_eh", *CONFORMER_SPREAD_COLUMNS,
+                  "forcefield", "geometry", "planar_variant", "xtb_rank_energy_eh", *CONFORMER_SPREAD_COLUMNS,
                   "opt_converged", "wall_s"]
 
 
@@ -387,16 +399,21 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     best_id, best_e, best_sp, ranking = _rank_by_xtb(mol_h, numbers, ranked, engine,
                                                     warm_start=options.rank_warm_start,
                                                     screen_accuracy=options.rank_scf_accuracy)
+    # without force-field parameters (e.g. aromatic Se in UFF) ETKDG geometries are too crude, and MMFF94
+    # leaves a fullerene cage without its bond alternation (screen.cage): optimise with the engine instead
+    cage = options.cage_geometry == "xtb" and closed_cage(mol_h)
+    geometry = "xtb" if ff == "none" or cage else options.geometry
+    variant = ""
+    if options.planar_variants and geometry == "ff" and ff == "MMFF94":
+        best_id, best_sp, variant = planar_variants(mol_h, numbers, best_id, best_sp, engine)
+        if variant:
+            best_e = best_sp.energy_eh
     conf = Chem.Conformer(mol_h.GetConformer(best_id))
     conf.SetId(0)
     out = Chem.Mol(mol_h)
     out.RemoveAllConformers()
     out.AddConformer(conf, assignId=False)
     opt_converged = ""
-    # without force-field parameters (e.g. aromatic Se in UFF) ETKDG geometries are too crude, and MMFF94
-    # leaves a fullerene cage without its bond alternation (screen.cage): optimise with the engine instead
-    cage = options.cage_geometry == "xtb" and closed_cage(mol_h)
-    geometry = "xtb" if ff == "none" or cage else options.geometry
     if geometry == "xtb":
         pos, ok = _xtb_optimise(numbers, out.GetConformer().GetPositions(), engine, options)
         c = out.GetConformer()
@@ -417,6 +434,7 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
         "embedding": embedding,
         "forcefield": ff,
         "geometry": geometry,
+        "planar_variant": variant,
         "xtb_rank_energy_eh": best_e,
         RANKING_KEY: ranking,
         "opt_converged": opt_converged,
@@ -425,6 +443,127 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     if return_singlepoint:
         return out, info, (best_sp if geometry == "ff" else None)
     return out, info
+
+
+#: the planar variants, in order: a name and the SMARTS of the conjugated single bonds (atoms 0 and 1) held near
+#: planar; each set contains the one before, a variant is built only when it restrains a bond the one before did not
+PLANAR_BOND_SETS = (("aryl-vinyl", ("[a]-!@[CX3]=[CX3]",)),
+                    ("aryl-vinyl, five-ring biaryl", ("[a]-!@[CX3]=[CX3]", "[a;r5]-!@[a]")))
+#: flat-bottom half-width of the torsion restraints, and the smallest twist [degrees] that makes a variant worth
+#: building. GFN2-xTB single points on restrained MMFF94 geometries fall monotonically from 30° to 5° on the
+#: molecules probed (1,4-distyrylbenzene, a five-ring oligo(phenylene vinylene), a cyanoacrylic dye, a
+#: dicyanovinyl oligothiophene; project's own finding, see benchmarks/README.md)
+PLANAR_TOLERANCE_DEG = 5.0
+#: force constant of the torsion restraints (RDKit MMFF units) [kcal mol⁻¹ rad⁻²]
+PLANAR_FORCE_CONSTANT = 100.0
+
+
+def _conjugated_torsions(mol_h: Chem.Mol, smarts: tuple[str, ...]) -> dict[tuple[int, int], tuple[int, ...]]:
+    """Bond (sorted atom pair) → one heavy-atom torsion (i, j, k, l) about it, for the bonds matching ``smarts``."""
+    out: dict[tuple[int, int], tuple[int, ...]] = {}
+    for pattern in smarts:
+        for match in mol_h.GetSubstructMatches(Chem.MolFromSmarts(pattern)):
+            j, k = match[0], match[1]
+            bond = (min(j, k), max(j, k))
+            if bond in out:
+                continue
+            ends = [[n.GetIdx() for n in mol_h.GetAtomWithIdx(a).GetNeighbors()
+                     if n.GetIdx() != b and n.GetAtomicNum() > 1] for a, b in ((j, k), (k, j))]
+            if ends[0] and ends[1]:
+                out[bond] = (ends[0][0], j, k, ends[1][0])
+    return out
+
+
+def _twist_deg(conf: Chem.Conformer, torsion: tuple[int, ...]) -> float:
+    """Deviation of a torsion from the nearer planar value (0° or 180°) [degrees]."""
+    x = abs(rdMolTransforms.GetDihedralDeg(conf, *torsion))
+    return min(x, 180.0 - x)
+
+
+def _restrained_copy(mol_h: Chem.Mol, conf_id: int, torsions, props) -> int:
+    """A copy of conformer ``conf_id`` optimised by MMFF94 with ``torsions`` held near planar; its id."""
+    new_id = mol_h.AddConformer(Chem.Conformer(mol_h.GetConformer(conf_id)), assignId=True)
+    ff = AllChem.MMFFGetMoleculeForceField(mol_h, props, confId=new_id)
+    conf = mol_h.GetConformer(new_id)
+    for t in torsions:
+        d = rdMolTransforms.GetDihedralDeg(conf, *t)
+        target = 0.0 if abs(d) < 90.0 else (180.0 if d > 0 else -180.0)
+        ff.MMFFAddTorsionConstraint(*t, False, target - PLANAR_TOLERANCE_DEG, target + PLANAR_TOLERANCE_DEG,
+                                    PLANAR_FORCE_CONSTANT)
+    ff.Minimize(maxIts=2000)
+    return new_id
+
+
+def planar_variants(mol_h: Chem.Mol, numbers: np.ndarray, conf_id: int, sp, engine: Engine):
+    """The conformer ``conf_id`` or a copy with its conjugated single bonds near planar, whichever xTB puts lowest.
+
+    For each bond set of :data:`PLANAR_BOND_SETS` whose bonds are twisted by more than
+    :data:`PLANAR_TOLERANCE_DEG` in ``conf_id`` (and that adds a bond to the set before), a copy of
+    the conformer is optimised with MMFF94 while flat-bottom torsion restraints hold those bonds
+    within the tolerance of the nearer planar value; copies that fail the structure check
+    (:func:`screen.sanity.geometry_problems`) are dropped. The copies and the conformer get an xTB
+    single point (the conformer's ranking single point ``sp`` is reused when there is one) and the
+    lowest energy wins; ties keep the conformer.
+
+    Parameters
+    ----------
+    mol_h : rdkit.Chem.Mol
+        Molecule with hydrogens and MMFF94-optimised conformers; the copies are added to it.
+    numbers : numpy.ndarray
+        Atomic numbers.
+    conf_id : int
+        The conformer chosen by the xTB ranking.
+    sp : screen.engines.SinglePoint or None
+        Its converged single point, when the ranking computed one at the engine's accuracy.
+    engine : Engine
+        The ranking engine.
+
+    Returns
+    -------
+    (int, SinglePoint or None, str)
+        The conformer id kept, its single point (``sp`` when no copy was ranked) and the name of the
+        winning bond set ("" when the conformer itself stays).
+
+    Examples
+    --------
+    >>> from screen.engines import make_engine
+    >>> mol_h = Chem.AddHs(Chem.MolFromSmiles("c1ccc(/C=C/c2ccc(/C=C/c3ccccc3)cc2)cc1"))
+    >>> cid = AllChem.EmbedMolecule(mol_h, randomSeed=7)
+    >>> _ = AllChem.MMFFOptimizeMolecule(mol_h)   # MMFF94 twists the four ring-vinyl bonds by 37-40°
+    >>> z = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
+    >>> kept, sp, name = planar_variants(mol_h, z, cid, None, make_engine("tblite", "GFN2-xTB"))
+    >>> name, kept != cid
+    ('aryl-vinyl', True)
+    """
+    conf = mol_h.GetConformer(conf_id)
+    props = None
+    copies, restrained = [], set()
+    for name, smarts in PLANAR_BOND_SETS:
+        torsions = _conjugated_torsions(mol_h, smarts)
+        twisted = {b for b, t in torsions.items() if _twist_deg(conf, t) > PLANAR_TOLERANCE_DEG}
+        if not twisted or twisted <= restrained:
+            continue
+        restrained |= twisted
+        props = props or AllChem.MMFFGetMoleculeProperties(mol_h, mmffVariant="MMFF94")
+        new_id = _restrained_copy(mol_h, conf_id, list(torsions.values()), props)
+        if geometry_problems(mol_h, new_id):
+            mol_h.RemoveConformer(new_id)
+            continue
+        copies.append((name, new_id))
+    if not copies:
+        return conf_id, sp, ""
+    bohr = 1.0 / BOHR_ANGSTROM
+    if sp is None:
+        sp = engine.singlepoint(numbers, conf.GetPositions() * bohr)
+    best = (sp.energy_eh, conf_id, sp, "")
+    for name, cid in copies:
+        try:
+            other = engine.singlepoint(numbers, mol_h.GetConformer(cid).GetPositions() * bohr, guess=sp)
+        except EngineError:  # a copy whose SCF fails is not a candidate
+            continue
+        if other.energy_eh < best[0] - 1e-9:
+            best = (other.energy_eh, cid, other, name)
+    return best[1], best[2], best[3]
 
 
 #: embeddings with other seeds tried when every conformer of the first one is broken

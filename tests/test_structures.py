@@ -8,6 +8,7 @@ import pytest
 from rdkit import Chem
 
 from screen.structures import (
+    PLANAR_TOLERANCE_DEG,
     StructureOptions,
     build_structure,
     conformer_count,
@@ -136,10 +137,11 @@ def test_conformer_and_ranking_counts_shrink_with_size():
 
 
 def test_ff_window_prunes_before_any_xtb_call():
-    engine = _CountingEngine()
+    engine = _CountingEngine()  # ranking calls only: the planar variants (their own tests) add single points
     _, wide = build_structure("CCCCc1ccc(-c2ccccc2)s1", StructureOptions(ff_window_kcal_mol=50.0, **TIGHT), engine)
     wide_calls, engine.calls = engine.calls, 0
-    _, narrow = build_structure("CCCCc1ccc(-c2ccccc2)s1", StructureOptions(ff_window_kcal_mol=0.0), engine)
+    _, narrow = build_structure("CCCCc1ccc(-c2ccccc2)s1", StructureOptions(ff_window_kcal_mol=0.0,
+                                                                         planar_variants=False), engine)
     assert wide["n_ranked"] == wide_calls > 1
     assert narrow["n_ranked"] == 1 and engine.calls == 0  # only the force-field minimum: nothing to rank
 
@@ -189,7 +191,7 @@ def test_threads_do_not_change_the_protocol_id():
 #: the values of the three ranking keys that give the route shipped before they became defaults
 EARLIER = {"size_caps_min_atoms": 0, "rank_warm_start": False, "rank_scf_accuracy": None}
 #: tight ranking only, every SCF from scratch (a ranking single point per conformer, nothing else)
-TIGHT = {"rank_warm_start": False, "rank_scf_accuracy": None}
+TIGHT = {"rank_warm_start": False, "rank_scf_accuracy": None, "planar_variants": False}
 
 
 def test_pruning_defaults_and_the_earlier_route():
@@ -198,7 +200,7 @@ def test_pruning_defaults_and_the_earlier_route():
     from screen.schema import section_defaults
 
     # the store leaves exactly these values out of its ids (the three ranking keys and the cage route)
-    assert EARLIER_ROUTE_VALUES["structures"] == {**EARLIER, "cage_geometry": "ff"}
+    assert EARLIER_ROUTE_VALUES["structures"] == {**EARLIER, "cage_geometry": "ff", "planar_variants": False}
     defaults = {k: section_defaults("structures")[k] for k in EARLIER}
     assert defaults == {"size_caps_min_atoms": 150, "rank_warm_start": True, "rank_scf_accuracy": 10}
     assert {k: Config.of({}).protocol["structures"][k] for k in EARLIER} == defaults
@@ -254,7 +256,8 @@ def test_warm_and_loose_ranking_keep_the_cold_choice_and_energies():
     cold_engine, fast_engine = _RecordingEngine(), _RecordingEngine()
     cold_mol, cold = build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, **TIGHT), cold_engine)
     fast_mol, fast, sp = build_structure(
-        FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, rank_warm_start=True, rank_scf_accuracy=10.0),
+        FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, rank_warm_start=True, rank_scf_accuracy=10.0,
+                                   planar_variants=False),
         fast_engine, return_singlepoint=True)
     n = cold["n_ranked"]
     assert n == fast["n_ranked"] >= 3 and cold_engine.calls == n
@@ -274,8 +277,83 @@ def test_warm_and_loose_ranking_keep_the_cold_choice_and_energies():
 def test_warm_started_ranking_gives_cold_energies():
     cold_engine, warm_engine = _RecordingEngine(), _RecordingEngine()
     build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, **TIGHT), cold_engine)
-    build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, rank_warm_start=True, rank_scf_accuracy=None),
-                    warm_engine)
+    build_structure(FLEXIBLE, StructureOptions(ff_window_kcal_mol=50.0, rank_warm_start=True, rank_scf_accuracy=None,
+                                               planar_variants=False), warm_engine)
     assert len(cold_engine.log) == len(warm_engine.log) >= 3
     for a, b in zip(cold_engine.log, warm_engine.log):
         assert b["energy"] == pytest.approx(a["energy"], abs=1e-6)  # SCF energy threshold (tblite default)
+
+
+# ---------------------------------------------------------------- planar variants of conjugated single bonds
+
+def _max_twist(mol, smarts: str) -> float:
+    from rdkit.Chem import rdMolTransforms
+
+    conf, twists = mol.GetConformer(), []
+    for i, j, k, l in mol.GetSubstructMatches(Chem.MolFromSmarts(smarts)):
+        x = abs(rdMolTransforms.GetDihedralDeg(conf, i, j, k, l))
+        twists.append(min(x, 180.0 - x))
+    return max(twists)
+
+
+#: ring–vinyl torsions: aromatic C–C(aromatic), the bond, the vinyl C=C
+RING_VINYL = "c:c-!@[CX3]=[CX3]"
+#: the opt-in route with planar variants
+PLANAR = StructureOptions(planar_variants=True)
+
+
+def test_planar_variant_keeps_phenylene_vinylene_chains_planar():
+    # trans-stilbene and the oligo(p-phenylene vinylene)s are planar, or within a few degrees of it, in the gas
+    # phase and in their crystals (from memory: jet spectroscopy of stilbene, crystal structures of the
+    # distyrylbenzenes); MMFF94 twists every ring–vinyl bond of 1,4-distyrylbenzene by 37–40°
+    smiles = "c1ccc(/C=C/c2ccc(/C=C/c3ccccc3)cc2)cc1"
+    old, old_info = build_structure(smiles)  # the default route: no variants (opt-in)
+    new, info = build_structure(smiles, PLANAR)
+    assert _max_twist(old, RING_VINYL) > 30.0 and old_info["planar_variant"] == ""
+    assert _max_twist(new, RING_VINYL) <= PLANAR_TOLERANCE_DEG + 2.0  # any of the four atom choices per bond
+    assert info["planar_variant"] == "aryl-vinyl"
+    assert info["xtb_rank_energy_eh"] < old_info["xtb_rank_energy_eh"]  # xTB chose it: lower energy
+
+
+def test_planar_variant_leaves_biphenyl_twisted():
+    # biphenyl is twisted by about 44° in the gas phase (electron diffraction; from memory): no bond of the two
+    # sets (ring–vinyl, biaryl to a five-membered ring), so the route is the one before the variants
+    mol, info = build_structure("c1ccc(-c2ccccc2)cc1", PLANAR)
+    assert info["planar_variant"] == "" and _max_twist(mol, "c:c-!@c:c") > 30.0
+
+
+def test_planar_variant_is_chosen_by_xtb_not_imposed():
+    # a copy that xTB puts higher is not kept: with the ring–vinyl set already planar (stilbene from its embedding),
+    # 2,2'-bithiophene (planar anti in MMFF94 too) builds no copy at all
+    for smiles in ("c1ccc(/C=C/c2ccccc2)cc1", "c1csc(-c2cccs2)c1"):
+        mol, info = build_structure(smiles, PLANAR)
+        assert info["planar_variant"] == ""
+
+
+def test_planar_variants_are_opt_in_and_leave_the_shipped_ids_alone():
+    from screen.config import Config
+    from screen.store import stage_protocol_id
+
+    on, xtb = {"planar_variants": True}, {"geometry": "xtb"}
+    assert StructureOptions().planar_variants is False
+    # off (the default) or on the xTB-geometry route (skipped there): the ids of the route without the key
+    assert Config.of({"structures": {"planar_variants": False}}).protocol_id == Config.of({}).protocol_id
+    assert Config.of({"structures": {**xtb, **on}}).protocol_id == Config.of({"structures": xtb}).protocol_id
+    assert stage_protocol_id("structures", StructureOptions(geometry="xtb", planar_variants=True)) == \
+        stage_protocol_id("structures", StructureOptions(geometry="xtb"))
+    # on the force-field route it is a protocol of its own
+    assert Config.of({"structures": on}).protocol_id != Config.of({}).protocol_id
+    assert stage_protocol_id("structures", StructureOptions(planar_variants=True)) != \
+        stage_protocol_id("structures", StructureOptions())
+
+
+def test_the_xtb_geometry_route_skips_the_planar_variants(monkeypatch):
+    import screen.structures as structures
+
+    calls = []
+    real = structures.planar_variants
+    monkeypatch.setattr(structures, "planar_variants", lambda *a: calls.append(1) or real(*a))
+    structures.build_structure("C=Cc1ccccc1", StructureOptions(planar_variants=True))  # styrene: MMFF94 twists it
+    assert calls == [1]
+    _, info = structures.build_structure("C=Cc1ccccc1", StructureOptions(planar_variants=True, geometry="xtb"))
+    assert calls == [1] and info["planar_variant"] == "" and info["geometry"] == "xtb"
