@@ -29,7 +29,8 @@ import yaml
 from screen import __version__
 from screen.config import Config
 from screen.errors import CalculationError, ConfigError, DascreenError, InputError, exit_code
-from screen.cli_shared import EXIT_ERROR, EXIT_OK, EXIT_STRICT, _load, _print_summary, data_path  # noqa: F401
+from screen.cli_shared import (EXIT_ERROR, EXIT_OK, EXIT_STRICT, _at_least_one, _load, _percent,  # noqa: F401
+                               _print_summary, data_path)
 from screen.launch import WORKFLOW, run_workflow
 
 __all__ = ["main", "build_parser", "WORKFLOW"]
@@ -119,28 +120,6 @@ def _check_out_folder(out: Path, given: str) -> None:
     parent = next((p for p in out.parents if p.exists()), None)
     if parent is not None and not parent.is_dir():
         raise ConfigError(f"--out {given}: {parent} is a file, not a folder; choose an --out folder outside it")
-
-
-def _at_least_one(text: str) -> int:
-    """argparse type of ``--cores`` and ``--top``: a whole number >= 1."""
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; give 1 or more") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"{value} is not allowed; give 1 or more")
-    return value
-
-
-def _percent(text: str) -> float:
-    """argparse type of ``--target-pce``: a finite efficiency from 0 to 100 %."""
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number; give an efficiency in %, e.g. 10") from None
-    if not 0.0 <= value <= 100.0:  # NaN fails too
-        raise argparse.ArgumentTypeError(f"{text} is not allowed; give an efficiency from 0 to 100 (in %), e.g. 10")
-    return value
 
 
 def _partner_arg(spec: str | None) -> str | None:

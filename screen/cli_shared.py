@@ -6,11 +6,12 @@ summary through these functions, so the two command modules never import each ot
 
 from __future__ import annotations
 
+import argparse
 from pathlib import Path
 
 from screen.config import Config, merge
 
-__all__ = ["EXIT_OK", "EXIT_ERROR", "EXIT_STRICT", "data_path", "_load", "_print_summary", "_parse_set"]
+__all__ = ["EXIT_OK", "EXIT_ERROR", "EXIT_STRICT", "data_path", "_load", "_print_summary", "_parse_set", "_at_least_one", "_percent"]
 
 EXIT_OK, EXIT_ERROR, EXIT_STRICT = 0, 1, 3
 
@@ -69,3 +70,25 @@ def data_path(path: str | Path) -> Path:
     if path.is_absolute() or path.exists():
         return path.resolve()
     return Path(__file__).resolve().parent.parent / path
+
+
+def _at_least_one(text: str) -> int:
+    """argparse type of ``--cores`` and ``--top``: a whole number >= 1."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; give 1 or more") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"{value} is not allowed; give 1 or more")
+    return value
+
+
+def _percent(text: str) -> float:
+    """argparse type of ``--target-pce``: a finite efficiency from 0 to 100 %."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number; give an efficiency in %, e.g. 10") from None
+    if not 0.0 <= value <= 100.0:  # NaN fails too
+        raise argparse.ArgumentTypeError(f"{text} is not allowed; give an efficiency from 0 to 100 (in %), e.g. 10")
+    return value

@@ -287,6 +287,19 @@ def test_cli_out_that_is_a_file_is_refused(tmp_path, capsys):
     assert "is a file, not a folder" in capsys.readouterr().err
 
 
+@pytest.mark.parametrize("option,value,words", [("--cores", "0", "give 1 or more"), ("--top", "-3", "give 1 or more"),
+                                                 ("--target-pce", "150", "from 0 to 100")])
+def test_cli_refuses_out_of_range_options(tmp_path, capsys, option, value, words):
+    from screen.cli import main
+
+    f = tmp_path / "measured.csv"
+    f.write_text("id,e_ox_v_nhe,e00_ev\nD1,1.1,2.1\n")
+    with pytest.raises(SystemExit) as exc:  # argparse: exit 2 with the usage line, before any work
+        main(["dyecell", "--levels", str(f), "--out", str(tmp_path / "o"), option, value])
+    assert exc.value.code == 2 and words in capsys.readouterr().err
+    assert not (tmp_path / "o").exists()
+
+
 def test_cli_lists_rows_that_are_not_ranked(tmp_path, capsys):
     from screen.cli import main
 

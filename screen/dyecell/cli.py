@@ -16,6 +16,7 @@ import os
 import sys
 from pathlib import Path
 
+from screen.cli_shared import _at_least_one, _percent
 from screen.errors import ConfigError, InputError
 
 __all__ = ["add_dyecell", "cmd_dyecell"]
@@ -304,8 +305,9 @@ def add_dyecell(sub) -> None:
     p.add_argument("--mediator", default=None,
                    help="redox mediator: library id (see --list) or a one-row CSV (default co-bpy3)")
     p.add_argument("--out", default="results", help="output folder (default: ./results)")
-    p.add_argument("--cores", type=int, default=os.cpu_count() or 1, help="CPU cores to use (default: all)")
-    p.add_argument("--target-pce", type=float, default=None, metavar="PCT",
+    p.add_argument("--cores", type=_at_least_one, default=os.cpu_count() or 1,
+                   help="CPU cores to use, 1 or more (default: all)")
+    p.add_argument("--target-pce", type=_percent, default=None, metavar="PCT",
                    help="efficiency threshold for p_above_target, in %% (default 8)")
     p.add_argument("--config", default=None, help="YAML config file (see `dascreen config`, section dyecell)")
     p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
@@ -319,5 +321,5 @@ def add_dyecell(sub) -> None:
     p.add_argument("--overwrite", action="store_true",
                    help="accept an output folder that holds the run of another candidate file")
     p.add_argument("--verbose", action="store_true", help="show Snakemake's log instead of the progress display")
-    p.add_argument("--top", type=int, default=10, help="rows to print (default 10)")
+    p.add_argument("--top", type=_at_least_one, default=10, help="rows to print, 1 or more (default 10)")
     p.set_defaults(func=cmd_dyecell)
