@@ -68,7 +68,11 @@ EARLIER_ROUTE_VALUES = {"structures": {"size_caps_min_atoms": 0, "rank_warm_star
 #: structures options that are idle on some routes: option → test of the ``structures`` section that is true when the
 #: option has no effect there; :func:`route_structures` leaves it out of the protocol then, so that adding an opt-in
 #: step (off by default) or one a route skips does not change the protocol and store ids of the shipped routes
-IDLE_WHEN = {"planar_variants": lambda s: s.get("geometry") == "xtb" or not s.get("planar_variants")}
+def _no_planar_variants(structures: dict) -> bool:
+    return structures.get("geometry") == "xtb" or not structures.get("planar_variants")
+
+
+IDLE_WHEN = {"planar_variants": _no_planar_variants, "planar_tolerances_deg": _no_planar_variants}
 
 
 def route_structures(structures: dict) -> dict:
@@ -151,9 +155,13 @@ class StructureOptions:
         conjugated single bonds are held near planar by a restrained MMFF94 optimisation
         (:func:`screen.structures.planar_variants`); MMFF94 twists aryl–vinyl and heteroaryl–aryl
         bonds by 30–70° where GFN2-xTB optimisations keep most of them within 1–20°. Default false
-        (opt-in: measured on the reference set it improves the optical-gap model but not the
-        devices, ``benchmarks/planar_variants.py``). No effect with ``geometry="xtb"`` (the xTB
+        (opt-in: recomputed on the reference set it lowers every film LOO error but not the device
+        errors, ``benchmarks/planar_variants.py``). No effect with ``geometry="xtb"`` (the xTB
         optimisation sets the torsions itself).
+    planar_tolerances_deg : tuple of float
+        Half-widths of the flat-bottom torsion restraints of the planar variants [degrees]; one copy
+        per width and bond set (default 5° and 25°: GFN2-xTB prefers the end groups of fused-ring
+        acceptors 15–35° out of plane, most other bonds within 5°).
 
     ``size_caps_min_atoms``, ``rank_warm_start`` and ``rank_scf_accuracy`` save xTB time without changing the
     chosen conformer (``benchmarks/pruning_levels.py``:
@@ -188,6 +196,7 @@ class StructureOptions:
     rank_warm_start: bool = _S["rank_warm_start"]
     rank_scf_accuracy: float | None = _S["rank_scf_accuracy"]
     planar_variants: bool = _S["planar_variants"]
+    planar_tolerances_deg: tuple[float, ...] = tuple(_S["planar_tolerances_deg"])
 
     def __post_init__(self):
         if self.geometry not in ("ff", "xtb"):
@@ -196,6 +205,10 @@ class StructureOptions:
             raise ConfigError(f"structures.cage_geometry must be 'xtb' or 'ff', not {self.cage_geometry!r}")
         if self.forcefield not in ("mmff", "uff"):
             raise ConfigError(f"structures.forcefield must be 'mmff' or 'uff', not {self.forcefield!r}")
+        if not self.planar_tolerances_deg or not all(0.0 < float(t) <= 45.0 for t in self.planar_tolerances_deg):
+            raise ConfigError(f"structures.planar_tolerances_deg must be one or more widths in (0, 45] degrees, "
+                              f"not {self.planar_tolerances_deg!r}")
+        object.__setattr__(self, "planar_tolerances_deg", tuple(float(t) for t in self.planar_tolerances_deg))
         if self.rank_scf_accuracy is not None and not 1.0 <= float(self.rank_scf_accuracy) <= 30.0:
             raise ConfigError(f"structures.rank_scf_accuracy must be between 1 and 30 (or null), "
                               f"not {self.rank_scf_accuracy!r}")

@@ -27,12 +27,13 @@ Route (every step seeded, so the same input gives the same geometry):
    (styrene, stilbene: planar in the gas phase) and heteroaryl–aryl bonds of
    donor–acceptor chromophores by 40–60°, where GFN2-xTB optimisations keep them within
    1–20° (reference set, :func:`planar_variants`). Copies of the chosen conformer with those
-   bonds held within :data:`PLANAR_TOLERANCE_DEG` of planar by a restrained MMFF94
+   bonds held within ``planar_tolerances_deg`` of planar by a restrained MMFF94
    optimisation are ranked beside it, and the lowest by xTB energy is kept: the force
-   field supplies geometries, xTB chooses, as in step 4. Off by default: on the reference
-   set it improves the optical-gap model but not the devices, and for the end groups of
-   fused-ring acceptors GFN2-xTB prefers 15–35° to planar (``benchmarks/planar_variants.py``);
-   a protocol with it needs its own reference calibration;
+   field supplies geometries, xTB chooses, as in step 4 (two restraint widths, 5° and 25°:
+   for the end groups of fused-ring acceptors GFN2-xTB prefers 15–35° to planar). Off by
+   default: recomputed on the reference set it lowers every film LOO error but not the
+   device errors on computed levels (``benchmarks/planar_variants.py``); a protocol with it
+   needs its own reference calibration;
 6. optional (``geometry="xtb"``) GFN2-xTB optimisation of that conformer with
    ASE's L-BFGS optimiser and the engine's ASE calculator.
    A closed carbon cage (a fullerene or its adduct, :mod:`screen.cage`) is always
@@ -405,7 +406,8 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     geometry = "xtb" if ff == "none" or cage else options.geometry
     variant = ""
     if options.planar_variants and geometry == "ff" and ff == "MMFF94":
-        best_id, best_sp, variant = planar_variants(mol_h, numbers, best_id, best_sp, engine)
+        best_id, best_sp, variant = planar_variants(mol_h, numbers, best_id, best_sp, engine,
+                                                    tuple(options.planar_tolerances_deg))
         if variant:
             best_e = best_sp.energy_eh
     conf = Chem.Conformer(mol_h.GetConformer(best_id))
@@ -449,10 +451,11 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
 #: planar; each set contains the one before, a variant is built only when it restrains a bond the one before did not
 PLANAR_BOND_SETS = (("aryl-vinyl", ("[a]-!@[CX3]=[CX3]",)),
                     ("aryl-vinyl, five-ring biaryl", ("[a]-!@[CX3]=[CX3]", "[a;r5]-!@[a]")))
-#: flat-bottom half-width of the torsion restraints, and the smallest twist [degrees] that makes a variant worth
-#: building. GFN2-xTB single points on restrained MMFF94 geometries fall monotonically from 30° to 5° on the
-#: molecules probed (1,4-distyrylbenzene, a five-ring oligo(phenylene vinylene), a cyanoacrylic dye, a
-#: dicyanovinyl oligothiophene; project's own finding, see benchmarks/README.md)
+#: flat-bottom half-widths of the torsion restraints tried by default (``structures.planar_tolerances_deg``)
+#: [degrees]; a copy is built for a width only when a bond of its set is twisted by more. GFN2-xTB single points on
+#: restrained MMFF94 geometries fall monotonically from 30° to 5° for phenylene-vinylene chains and cyanoacrylic
+#: and dicyanovinyl dyes, but for the end groups of fused-ring acceptors they are lowest at 15–35° (Y6-type 25–35°,
+#: like its xTB-optimised geometry); project's own finding, benchmarks/README.md
 PLANAR_TOLERANCE_DEG = 5.0
 #: force constant of the torsion restraints (RDKit MMFF units) [kcal mol⁻¹ rad⁻²]
 PLANAR_FORCE_CONSTANT = 100.0
@@ -480,27 +483,29 @@ def _twist_deg(conf: Chem.Conformer, torsion: tuple[int, ...]) -> float:
     return min(x, 180.0 - x)
 
 
-def _restrained_copy(mol_h: Chem.Mol, conf_id: int, torsions, props) -> int:
-    """A copy of conformer ``conf_id`` optimised by MMFF94 with ``torsions`` held near planar; its id."""
+def _restrained_copy(mol_h: Chem.Mol, conf_id: int, torsions, props, tolerance: float = PLANAR_TOLERANCE_DEG) -> int:
+    """A copy of conformer ``conf_id`` optimised by MMFF94 with ``torsions`` held within ``tolerance`` [degrees] of
+    planar; its id."""
     new_id = mol_h.AddConformer(Chem.Conformer(mol_h.GetConformer(conf_id)), assignId=True)
     ff = AllChem.MMFFGetMoleculeForceField(mol_h, props, confId=new_id)
     conf = mol_h.GetConformer(new_id)
     for t in torsions:
         d = rdMolTransforms.GetDihedralDeg(conf, *t)
         target = 0.0 if abs(d) < 90.0 else (180.0 if d > 0 else -180.0)
-        ff.MMFFAddTorsionConstraint(*t, False, target - PLANAR_TOLERANCE_DEG, target + PLANAR_TOLERANCE_DEG,
-                                    PLANAR_FORCE_CONSTANT)
+        ff.MMFFAddTorsionConstraint(*t, False, target - tolerance, target + tolerance, PLANAR_FORCE_CONSTANT)
     ff.Minimize(maxIts=2000)
     return new_id
 
 
-def planar_variants(mol_h: Chem.Mol, numbers: np.ndarray, conf_id: int, sp, engine: Engine):
+def planar_variants(mol_h: Chem.Mol, numbers: np.ndarray, conf_id: int, sp, engine: Engine,
+                    tolerances: tuple[float, ...] = (PLANAR_TOLERANCE_DEG,)):
     """The conformer ``conf_id`` or a copy with its conjugated single bonds near planar, whichever xTB puts lowest.
 
-    For each bond set of :data:`PLANAR_BOND_SETS` whose bonds are twisted by more than
-    :data:`PLANAR_TOLERANCE_DEG` in ``conf_id`` (and that adds a bond to the set before), a copy of
-    the conformer is optimised with MMFF94 while flat-bottom torsion restraints hold those bonds
-    within the tolerance of the nearer planar value; copies that fail the structure check
+    For each bond set of :data:`PLANAR_BOND_SETS` and each restraint half-width of ``tolerances``
+    [degrees] for which a bond of the set is twisted by more than that width in ``conf_id`` (and the
+    set adds such a bond to the set before), a copy of the conformer is optimised with MMFF94 while
+    flat-bottom torsion restraints hold those bonds within the width of the nearer planar value;
+    copies that fail the structure check
     (:func:`screen.sanity.geometry_problems`) are dropped. The copies and the conformer get an xTB
     single point (the conformer's ranking single point ``sp`` is reused when there is one) and the
     lowest energy wins; ties keep the conformer.
@@ -517,12 +522,14 @@ def planar_variants(mol_h: Chem.Mol, numbers: np.ndarray, conf_id: int, sp, engi
         Its converged single point, when the ranking computed one at the engine's accuracy.
     engine : Engine
         The ranking engine.
+    tolerances : tuple of float
+        Restraint half-widths tried [degrees].
 
     Returns
     -------
     (int, SinglePoint or None, str)
         The conformer id kept, its single point (``sp`` when no copy was ranked) and the name of the
-        winning bond set ("" when the conformer itself stays).
+        winning bond set with its width, e.g. ``"aryl-vinyl ±5°"`` ("" when the conformer itself stays).
 
     Examples
     --------
@@ -533,23 +540,25 @@ def planar_variants(mol_h: Chem.Mol, numbers: np.ndarray, conf_id: int, sp, engi
     >>> z = np.array([a.GetAtomicNum() for a in mol_h.GetAtoms()])
     >>> kept, sp, name = planar_variants(mol_h, z, cid, None, make_engine("tblite", "GFN2-xTB"))
     >>> name, kept != cid
-    ('aryl-vinyl', True)
+    ('aryl-vinyl ±5°', True)
     """
     conf = mol_h.GetConformer(conf_id)
     props = None
-    copies, restrained = [], set()
-    for name, smarts in PLANAR_BOND_SETS:
-        torsions = _conjugated_torsions(mol_h, smarts)
-        twisted = {b for b, t in torsions.items() if _twist_deg(conf, t) > PLANAR_TOLERANCE_DEG}
-        if not twisted or twisted <= restrained:
-            continue
-        restrained |= twisted
-        props = props or AllChem.MMFFGetMoleculeProperties(mol_h, mmffVariant="MMFF94")
-        new_id = _restrained_copy(mol_h, conf_id, list(torsions.values()), props)
-        if geometry_problems(mol_h, new_id):
-            mol_h.RemoveConformer(new_id)
-            continue
-        copies.append((name, new_id))
+    copies = []
+    for tolerance in tolerances:
+        restrained: set = set()
+        for name, smarts in PLANAR_BOND_SETS:
+            torsions = _conjugated_torsions(mol_h, smarts)
+            twisted = {b for b, t in torsions.items() if _twist_deg(conf, t) > tolerance}
+            if not twisted or twisted <= restrained:
+                continue
+            restrained |= twisted
+            props = props or AllChem.MMFFGetMoleculeProperties(mol_h, mmffVariant="MMFF94")
+            new_id = _restrained_copy(mol_h, conf_id, list(torsions.values()), props, float(tolerance))
+            if geometry_problems(mol_h, new_id):
+                mol_h.RemoveConformer(new_id)
+                continue
+            copies.append((f"{name} ±{float(tolerance):g}°", new_id))
     if not copies:
         return conf_id, sp, ""
     bohr = 1.0 / BOHR_ANGSTROM
