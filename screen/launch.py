@@ -9,10 +9,12 @@ lines every minute when standard error is not a terminal; ``verbose`` shows
 Snakemake's log as it runs.  When the workflow fails, its error part is
 printed in full, with the path of the whole log.
 
-Snakemake runs in a process group of its own: Ctrl-C, SIGTERM (``kill``,
-``timeout``, a batch system) or SIGHUP to ``dascreen`` passes the signal to that whole
-group (Snakemake and its jobs; SIGKILL after :data:`STOP_GRACE_S`) and
-``dascreen`` exits with 128 + the signal number (130, 143).
+Snakemake runs in ``dascreen``'s own process group, so a signal to the group (Ctrl-C in
+a terminal, ``kill -- -PGID``, SIGKILL of the whole group) reaches every process at once.
+A signal to ``dascreen`` alone (SIGTERM from ``kill PID`` or ``timeout``, SIGHUP when the
+terminal closes, or Ctrl-C) is passed on to Snakemake and every process below it
+(SIGKILL for what is left after :data:`STOP_GRACE_S`), and ``dascreen`` exits with
+128 + the signal number (130, 143).
 """
 
 from __future__ import annotations
@@ -74,52 +76,79 @@ def _raise_signalled(signum, frame) -> None:
 
 
 def _start(cmd: list[str], env: dict, **popen) -> subprocess.Popen:
-    """Start the workflow engine in a process group of its own (stopped as a whole by :func:`_wait`)."""
-    group = {"process_group": 0} if sys.version_info >= (3, 11) else {"preexec_fn": os.setpgrp}
-    return subprocess.Popen(cmd, env=env, **group, **popen)
+    """Start the workflow engine in ``dascreen``'s process group (a group signal reaches it and its jobs too)."""
+    return subprocess.Popen(cmd, env=env, **popen)
 
 
-def _group_alive(pgid: int) -> bool:
-    """True while a process of group ``pgid`` runs (zombies, which only wait to be reaped, do not count)."""
+def _process_table() -> dict[int, tuple[int, str]] | None:
+    """pid → (parent pid, state) of every process, from /proc (None where there is no /proc)."""
     proc_fs = Path("/proc")
-    if not proc_fs.is_dir():  # not Linux: ask the kernel (zombies count there)
-        try:
-            os.killpg(pgid, 0)
-        except ProcessLookupError:
-            return False
-        return True
+    if not proc_fs.is_dir():
+        return None
+    table = {}
     for stat in proc_fs.glob("[0-9]*/stat"):
         try:
-            fields = stat.read_text().rsplit(")", 1)[1].split()  # after "pid (comm)": state ppid pgrp ...
-        except (OSError, IndexError):
+            fields = stat.read_text().rsplit(")", 1)[1].split()  # after "pid (comm)": state ppid ...
+            table[int(stat.parent.name)] = (int(fields[1]), fields[0])
+        except (OSError, IndexError, ValueError):
             continue
-        if len(fields) > 2 and fields[2] == str(pgid) and fields[0] != "Z":
-            return True
-    return False
+    return table
+
+
+def _tree(root: int, table: dict[int, tuple[int, str]]) -> set[int]:
+    """``root`` and every process below it."""
+    children: dict[int, list[int]] = {}
+    for pid, (ppid, _) in table.items():
+        children.setdefault(ppid, []).append(pid)
+    out, todo = {root}, [root]
+    while todo:
+        for child in children.get(todo.pop(), []):
+            if child not in out:
+                out.add(child)
+                todo.append(child)
+    return out
+
+
+def _signal_all(pids, signum: int) -> None:
+    for pid in pids:
+        try:
+            os.kill(pid, signum)
+        except (ProcessLookupError, PermissionError):
+            pass
 
 
 def _stop_group(proc: subprocess.Popen, signum: int) -> None:
-    """Send ``signum`` to the workflow's process group (Snakemake and its jobs) and wait until the whole group is
-    gone; SIGKILL what is left after :data:`STOP_GRACE_S`."""
+    """Send ``signum`` to the workflow engine and every process below it (its jobs) and wait until all are gone;
+    SIGKILL what is left after :data:`STOP_GRACE_S`. The tree is read before the signal, so jobs whose parent
+    exits first are still found."""
     import time
 
     deadline = time.monotonic() + STOP_GRACE_S
-    try:
-        os.killpg(proc.pid, signum)
-    except ProcessLookupError:  # already gone
-        pass
-    while (proc.poll() is None or _group_alive(proc.pid)) and time.monotonic() < deadline:
-        time.sleep(0.1)
-    if proc.poll() is None or _group_alive(proc.pid):
+    table = _process_table()
+    if table is None:  # not Linux: the engine only
+        proc.send_signal(signum)
         try:
-            os.killpg(proc.pid, signal.SIGKILL)
-        except ProcessLookupError:
-            pass
+            proc.wait(timeout=STOP_GRACE_S)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+        proc.wait()
+        return
+    tree = _tree(proc.pid, table)
+    _signal_all(tree, signum)
+    while time.monotonic() < deadline:
+        proc.poll()  # reap the engine, so that it does not count as running
+        table = _process_table() or {}
+        tree |= _tree(proc.pid, table) if proc.returncode is None else set()
+        if not any(pid in table and table[pid][1] != "Z" for pid in tree):
+            break
+        time.sleep(0.1)
+    else:
+        _signal_all(tree, signal.SIGKILL)
     proc.wait()
 
 
 def _wait(proc: subprocess.Popen) -> int:
-    """Wait for the workflow engine; on Ctrl-C or SIGTERM stop its whole process group and exit with 128 + signal.
+    """Wait for the workflow engine; on Ctrl-C, SIGTERM or SIGHUP stop it and its jobs and exit with 128 + signal.
 
     Raises
     ------
