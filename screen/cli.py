@@ -48,7 +48,6 @@ def cmd_run(args) -> int:
                           "then `dascreen rank --partner a,b,...` for the partner matrix")
     check_partners(partners)
     out = Path(args.out).resolve()
-    _check_out_folder(out, args.out)
     check_out(out, candidates, overwrite=args.overwrite)
     cfg = _load(args, {"candidates": str(candidates.resolve()), "out": str(out),
                        "partner": _partner_arg(partners[0] if partners else None),
@@ -78,9 +77,10 @@ def cmd_calibrate(args) -> int:
     import pandas as pd
 
     from screen.calibrate import load_models, stats_table
+    from screen.preflight import check_out_folder
 
     out = Path(args.out).resolve()
-    _check_out_folder(out, args.out)
+    check_out_folder(out, args.out)
     overrides = {"out": str(out), "calibration": {"refit": "always"}}
     if args.reference:
         overrides["calibration"]["reference"] = str(Path(args.reference).resolve())
@@ -111,15 +111,6 @@ def cmd_calibrate(args) -> int:
         print(f"dascreen: models copied to {dest}")
     print(f"dascreen: models in {target}")
     return EXIT_OK
-
-
-def _check_out_folder(out: Path, given: str) -> None:
-    """Refuse an ``--out`` that is a file or lies inside a file (one message, exit code 2)."""
-    if out.exists() and not out.is_dir():
-        raise ConfigError(f"--out {given} is a file, not a folder; choose a folder (a new one is created)")
-    parent = next((p for p in out.parents if p.exists()), None)
-    if parent is not None and not parent.is_dir():
-        raise ConfigError(f"--out {given}: {parent} is a file, not a folder; choose an --out folder outside it")
 
 
 def _partner_arg(spec: str | None) -> str | None:
@@ -234,11 +225,11 @@ def cmd_rank(args) -> int:
     """Rank a levels file against one or more partners (a partner matrix for several); a new smiles:
     partner is computed by the workflow first."""
     from screen.partners import partner_kind, split_partners
-    from screen.preflight import check_partners
+    from screen.preflight import check_out_folder, check_partners
     from screen.rank_io import check_before_computing, run_rank
 
     out = Path(args.out).resolve()
-    _check_out_folder(out, args.out)
+    check_out_folder(out, args.out)
     levels = Path(args.levels) if args.levels else out / "levels.csv"
     if levels.is_dir():
         raise InputError(f"levels file {str(levels)!r} is a folder; give a levels file with --levels FILE (a CSV "

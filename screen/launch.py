@@ -117,7 +117,7 @@ def _signal_all(pids, signum: int) -> None:
             pass
 
 
-def _stop_group(proc: subprocess.Popen, signum: int) -> None:
+def _stop_tree(proc: subprocess.Popen, signum: int) -> None:
     """Send ``signum`` to the workflow engine and every process below it (its jobs) and wait until all are gone;
     SIGKILL what is left after :data:`STOP_GRACE_S`. The tree is read before the signal, so jobs whose parent
     exits first are still found."""
@@ -163,7 +163,7 @@ def _wait(proc: subprocess.Popen) -> int:
         signum = exc.signum if isinstance(exc, _Signalled) else signal.SIGINT
         for sig in previous:  # a second signal must not cut the clean-up short
             signal.signal(sig, signal.SIG_IGN)
-        _stop_group(proc, signum)
+        _stop_tree(proc, signum)
         print(f"dascreen: stopped by {signal.Signals(signum).name}; the workflow was stopped too (the same command "
               "resumes it)", file=sys.stderr, flush=True)
         raise SystemExit(128 + signum) from None

@@ -31,6 +31,7 @@ import yaml
 from screen.errors import ConfigError, InputError
 
 __all__ = ["SchemaField", "schema_fields", "allowed_text", "unit_of", "check_sets", "check_candidates",
+           "check_out_folder",
            "check_partners", "check_out", "config_text"]
 
 
@@ -342,6 +343,29 @@ def check_partners(specs, levels_path=None) -> None:
 _RUN_MARKS = ("config.yaml", ".dascreen.lock", "levels.csv", "work", "rankings", "logs", ".snakemake")
 
 
+def check_out_folder(out, given: str | None = None) -> None:
+    """Refuse an ``--out`` that is a file or lies inside a file (one message, exit code 2).
+
+    ``given`` is the path as the user wrote it (default: ``out``).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> f = Path(tempfile.mkdtemp()) / "afile"; _ = f.write_text("x")
+    >>> check_out_folder(f / "sub", "afile/sub")
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: --out afile/sub: ... is a file, not a folder; choose an --out folder outside it
+    """
+    out = Path(out)
+    given = str(out) if given is None else given
+    if out.exists() and not out.is_dir():
+        raise ConfigError(f"--out {given} is a file, not a folder; choose a folder (a new one is created)")
+    parent = next((p for p in out.absolute().parents if p.exists()), None)
+    if parent is not None and not parent.is_dir():
+        raise ConfigError(f"--out {given}: {parent} is a file, not a folder; choose an --out folder outside it")
+
+
 def check_out(out, candidates=None, overwrite: bool = False) -> None:
     """Refuse an output folder that would mix two runs or is not a run folder.
 
@@ -362,8 +386,7 @@ def check_out(out, candidates=None, overwrite: bool = False) -> None:
         of another candidate file (without ``overwrite``).
     """
     out = Path(out)
-    if out.exists() and not out.is_dir():
-        raise ConfigError(f"--out {out} is a file, not a folder")
+    check_out_folder(out)
     if not out.exists():
         parent = next((p for p in out.absolute().parents if p.exists()), None)
         if parent is not None and not _writable(parent):

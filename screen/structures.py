@@ -545,11 +545,12 @@ def planar_variants(mol_h: Chem.Mol, numbers: np.ndarray, conf_id: int, sp, engi
     conf = mol_h.GetConformer(conf_id)
     props = None
     copies = []
+    sets = [(name, _conjugated_torsions(mol_h, smarts)) for name, smarts in PLANAR_BOND_SETS]
+    twist = {b: _twist_deg(conf, t) for _, torsions in sets for b, t in torsions.items()}
     for tolerance in tolerances:
         restrained: set = set()
-        for name, smarts in PLANAR_BOND_SETS:
-            torsions = _conjugated_torsions(mol_h, smarts)
-            twisted = {b for b, t in torsions.items() if _twist_deg(conf, t) > tolerance}
+        for name, torsions in sets:
+            twisted = {b for b in torsions if twist[b] > tolerance}
             if not twisted or twisted <= restrained:
                 continue
             restrained |= twisted

@@ -236,25 +236,17 @@ def _dye_candidates(candidates: Path, out: Path, write: bool = True, read=None) 
     return target
 
 
-def _check_out_folder(out: Path, given: str) -> None:
-    """Refuse an ``--out`` that is a file (or lies under one) before anything is written."""
-    for path in (out, *out.parents):
-        if path.exists() and not path.is_dir():
-            where = "" if path == out else f" ({path} is a file)"
-            raise ConfigError(f"--out {given} is a file, not a folder{where}; choose a folder")
-
-
 def cmd_dyecell(args) -> int:
     """Run the shared stages if needed, then rank the dyes for one oxide and one mediator."""
     from screen.cli_shared import EXIT_ERROR, EXIT_OK, _load, _print_summary
     from screen.dyecell.stage import run_dyecell
-    from screen.preflight import check_candidates, check_out
+    from screen.preflight import check_candidates, check_out, check_out_folder
 
     if args.list:
         _print_libraries()
         return EXIT_OK
     out = Path(args.out).resolve()
-    _check_out_folder(out, args.out)
+    check_out_folder(out, args.out)
     extra = {"dyecell": {"oxide": args.oxide, "mediator": args.mediator, "target_pce_pct": args.target_pce}}
     aside = None
     if args.candidates:
