@@ -6,9 +6,9 @@ once. A flag's ``severity`` says what it does to a row:
 
 - ``"not_viable"``: the pair cannot work as a solar cell (no type-II alignment,
   an offset below the threshold, no positive Voc, a gap outside the window, no
-  partner of the other role …).  The row gets no efficiency (empty, never 0),
-  does not pass and is sorted below every viable row; the flag's text is the
-  reason in plain words;
+  partner of the other role, a sensitiser dye …).  The row gets no efficiency
+  (empty, never 0), does not pass and is sorted below every viable row; the
+  flag's text is the reason in plain words;
 - ``"fail"``: the pair is estimated but the row does not pass the screen (it is
   still ranked and shown);
 - ``"info"``: the row is told something; it may still pass.
@@ -70,14 +70,15 @@ class Flag:
 _NV = "not_viable"
 
 _REGISTRY = (
+    Flag("role_dye", "role 'dye': dye-cell candidates are ranked with `dascreen dyecell`, not paired with a "
+                     "donor or acceptor partner", _NV),
     Flag("same_role_as_partner", "same role as the partner (two donors or two acceptors), so the pair is not "
                                  "a working blend", _NV),
     Flag("role_unsupported", "no role given, and against this partner its levels support only the partner's own "
                              "role, so there is no donor/acceptor pair", _NV),
     Flag("no_type_ii_role", "no role given, and neither role gives a staggered (type-II) alignment with the "
                             "partner", _NV),
-    Flag("role_invalid", "the role given in the input is neither donor nor acceptor (a sensitiser dye, role "
-                         "\"dye\", is screened with `dascreen dyecell`)"),
+    Flag("role_invalid", "the role given in the input is neither donor nor acceptor"),
     Flag("is_partner", "this row is the partner material itself"),
     Flag("levels_inconsistent", "the computed levels are inconsistent (e.g. an optical gap above the transport "
                                 "gap): the molecule lies outside what the calibration covers", _NV),

@@ -6,11 +6,12 @@ role takes the role its levels support against the partner
 (:func:`screen.viability.role_from_levels`).  Every pair is classified before
 any efficiency is computed (:mod:`screen.viability`): a pair that is not viable
 (no type-II alignment, an offset below threshold, no positive Voc, a gap
-outside the window, the partner's own role …) gets no efficiency (empty, never
-0), says why in plain words (flags of severity ``not_viable``, column
-``reason``) and is sorted below every viable row.  The viable pairs get Voc, Jsc
-and efficiency from :meth:`screen.device.DeviceModel.evaluate` and the spread
-from the level uncertainties (each row's own σ columns and the partner's) from
+outside the window, the partner's own role, a sensitiser dye …) gets no
+efficiency (empty, never 0), says why in plain words (flags of severity
+``not_viable``, column ``reason``) and is sorted below every viable row.  The
+viable pairs get Voc, Jsc and efficiency from
+:meth:`screen.device.DeviceModel.evaluate` and the spread from the level
+uncertainties (each row's own σ columns and the partner's) from
 :func:`screen.sampling.sample_pce`.  Everything is vectorised over the
 candidates.
 
@@ -342,33 +343,42 @@ def _candidates(lv: pd.DataFrame) -> _Candidates:
 class _Roles:
     """Role of every row and the role flags."""
 
-    role: np.ndarray              # 'donor' / 'acceptor' (object array)
+    role: np.ndarray              # 'donor' / 'acceptor' / 'dye' (object array)
     is_donor: np.ndarray
     same_role: np.ndarray         # same role as the partner: no pair
+    dye: np.ndarray               # a sensitiser dye (a run's own levels): no pair, ranked by `dascreen dyecell`
     role_invalid: np.ndarray      # the role column holds something else
     role_assumed: np.ndarray      # invalid role and no default: the partner's complement
     role_from_levels: np.ndarray  # no role: its levels support the partner's complement
     role_unsupported: np.ndarray  # no role: its levels support only the partner's own role
     no_type_ii_role: np.ndarray   # no role: neither role gives type II
 
+    @property
+    def paired(self) -> np.ndarray:
+        """Rows paired with the partner (neither the partner's own role nor a dye)."""
+        return ~(self.same_role | self.dye)
+
 
 def _roles(lv: pd.DataFrame, cand: _Candidates, partner: Partner, p_role: str, options: RankOptions) -> _Roles:
     """Roles from the ``role`` column (case and spaces ignored), else ``options.role``; a row with neither is
-    evaluated as the partner's complement and told whether its levels support that role."""
+    evaluated as the partner's complement and told whether its levels support that role.  A dye (a run's own
+    levels.csv may hold one; a user's file with one is refused before) keeps its role and gets no pair."""
     raw_role = np.char.lower(np.char.strip(_text(lv, "role").astype(str)))
     empty = raw_role == ""
     valid = np.isin(raw_role, ROLES)
-    role_invalid = ~empty & ~valid
+    dye = raw_role == "dye"
+    role_invalid = ~empty & ~valid & ~dye
     default = options.role if options.role is not None else complement(p_role)
     no_role = (empty | role_invalid) & (options.role is None)
-    role = np.where(valid, raw_role, default).astype(object)
+    role = np.where(valid | dye, raw_role, default).astype(object)
     as_donor, as_acceptor = role_from_levels(cand.homo, cand.lumo, partner.homo_ev, partner.lumo_ev)
     fits, other = (as_donor, as_acceptor) if default == "donor" else (as_acceptor, as_donor)
     # without both levels the levels say nothing about the role: assumed, and the row is input_missing
     known = ~(np.isnan(cand.homo) | np.isnan(cand.lumo))
     unsupported = no_role & known & ~fits & other
-    return _Roles(role, role == "donor", role == p_role, role_invalid, (role_invalid | (empty & ~known)) & no_role,
-                  empty & no_role & known & fits, unsupported, no_role & known & ~fits & ~other)
+    return _Roles(role, role == "donor", role == p_role, dye, role_invalid,
+                  (role_invalid | (empty & ~known)) & no_role, empty & no_role & known & fits, unsupported,
+                  no_role & known & ~fits & ~other)
 
 
 @dataclass(frozen=True)
@@ -424,7 +434,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
     """One boolean mask per flag code (:data:`screen.flags.FLAG_ORDER`): device flags of the rows with a
     pair, the gap window, the heavy-atom limit and the role flags."""
     n = cand.ids.size
-    pair_ok = ~roles.same_role
+    pair_ok = roles.paired
     cand_missing = np.isnan(cand.homo) | np.isnan(cand.lumo) | np.isnan(cand.gap)
     with np.errstate(invalid="ignore"):
         gap_out = (cand.gap < options.gap_min_ev) | (cand.gap > options.gap_max_ev)
@@ -441,6 +451,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
     device = {code: np.asarray(dev[code], bool) & pair_ok for code in DEVICE_FLAGS}
     device["input_missing"] = device["input_missing"] | cand_missing
     return {
+        "role_dye": roles.dye,
         "same_role_as_partner": roles.same_role & ~roles.role_unsupported,
         "role_unsupported": roles.role_unsupported,
         "no_type_ii_role": roles.no_type_ii_role,
@@ -501,7 +512,7 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
 
     Offsets are kept for every row with a pair; Voc, Jsc, FF and PCE only for viable rows (empty otherwise)."""
     n = cand.ids.size
-    pair_ok = ~roles.same_role
+    pair_ok = roles.paired
     viable = _viable(masks)
     device = {key: np.where(pair_ok & (viable | key.startswith("delta")), np.asarray(dev[key], dtype=float),
                             np.nan) for key in _DEVICE_NUMBERS}
@@ -653,11 +664,12 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
 
     cand = _candidates(lv)
     roles = _roles(lv, cand, partner, p_role, options)
-    pair = _pair(cand, roles.is_donor, partner, options.partner_sigma, _acceptor_classes(lv, ~roles.is_donor))
+    pair = _pair(cand, roles.is_donor, partner, options.partner_sigma,
+                 _acceptor_classes(lv, ~roles.is_donor & roles.paired))
     dev = model.evaluate(*pair.levels, acceptor_class=pair.acceptor_class)
     dev["acceptor_class"] = pair.acceptor_class
     masks = _flag_masks(lv, cand, roles, dev, partner, options)
-    spread = _spread(model, pair, ~roles.same_role & _viable(masks), options)
+    spread = _spread(model, pair, roles.paired & _viable(masks), options)
     out = _sort_ranking(_ranking_frame(lv, cand, roles, partner, dev, spread, masks, model, options),
                         options.sort_by)
     out.attrs.update(attrs)

@@ -7,6 +7,7 @@ rules of thumb ``# common practice``.
 from __future__ import annotations
 
 import math
+import re
 
 import numpy as np
 import pandas as pd
@@ -390,6 +391,27 @@ def test_not_viable_dye_gets_no_probability():
     assert not r.loc["b", "viable"]
     assert math.isnan(r.loc["b", "p_above_target"]) and math.isnan(r.loc["b", "pce_pct"])
     assert 0.0 <= r.loc["a", "p_above_target"] <= 1.0
+
+
+@pytest.mark.parametrize("smiles, why", [
+    ("OC(=O)c1ccccc1(", r"SMILES syntax error: syntax error around position 15"),
+    ("OC(=O)C1CC", r"SMILES syntax error: unclosed ring"),
+    ("OC(=O)C(C)(C)(C)C", r"atom 3 \(C\) has valence 5"),
+    ("OC(=O)c1cccc1", r"cannot kekulise the aromatic atoms"),
+    ("OC(=O)[Xx]", r"unknown element symbol\(s\) Xx\)"),
+])
+def test_unparsable_smiles_in_a_dye_file_rejects_that_row_only(smiles, why):
+    # the wording of the prepare stage (screen.prepare.validate), with the line and id of the row
+    dyes = dyes_from_file(pd.DataFrame({"id": ["a", "bad", "c"], "e_ox_v_nhe": [1.07, 1.1, 1.05],
+                                        "e00_ev": [1.96, 2.0, 2.0],
+                                        "smiles": ["OC(=O)c1ccccc1", smiles, ""]})).set_index("id")
+    assert dyes["status"].tolist() == ["ok", "rejected", "ok"]
+    assert re.match(r"line 3 \(id 'bad'\): the SMILES cannot be parsed \(" + why,
+                    dyes.loc["bad", "error"])
+    r = rank_dyes(dyes.reset_index(), resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3"))
+    assert r["id"].tolist() == ["a", "c"] and r.attrs["not_ranked"] == {"rejected": 1}
+    # an empty SMILES is no error: the dye is ranked, its anchor unchecked
+    assert r.set_index("id").loc["c", "flags"] == "anchor_unknown"
 
 
 def test_reason_of_a_non_positive_e00_is_not_missing():

@@ -205,13 +205,16 @@ def test_cli_ranks_a_measured_file_and_refuses_film_levels(tmp_path, capsys):
     from screen.cli import main
 
     f = tmp_path / "measured.csv"
-    pd.DataFrame({"id": ["a", "b"], "e_ox_v_nhe": [1.07, 0.45], "e00_ev": [1.96, 2.0],
-                  "smiles": ["OC(=O)c1ccccc1", "OC(=O)c1ccccc1"]}).to_csv(f, index=False)
+    pd.DataFrame({"id": ["a", "b", "typo"], "e_ox_v_nhe": [1.07, 0.45, 1.1], "e00_ev": [1.96, 2.0, 2.0],
+                  "smiles": ["OC(=O)c1ccccc1", "OC(=O)c1ccccc1", "OC(=O)c1ccccc1("]}).to_csv(f, index=False)
     assert main(["dyecell", "--levels", str(f), "--out", str(tmp_path / "o"), "--mediator", "co-bpy3",
                  "--set", "dyecell.n_samples=100"]) == 0
     text = capsys.readouterr().out
-    assert "2 dyes ranked on tio2-anatase with co-bpy3; 1 viable" in text
+    assert "2 dyes ranked on tio2-anatase with co-bpy3; 1 viable; 1 row(s) not ranked" in text
     assert "cannot be regenerated" in text
+    # a SMILES RDKit cannot read: that row is listed with the reason, the others are ranked
+    assert ("rejected typo: line 4 (id 'typo'): the SMILES cannot be parsed (SMILES syntax error: syntax error "
+            "around position 15 (near '1ccccc1(')); correct it") in text
     film = tmp_path / "film.csv"
     film.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale\nx,-5.3,-3.2,2.0,film\n")
     assert main(["dyecell", "--levels", str(film), "--out", str(tmp_path / "o2")]) == 2

@@ -197,9 +197,9 @@ def test_role_from_levels_and_default_role(partner):
     # a user's levels file: a dye is refused with the line and a pointer to the dye-cell mode
     with pytest.raises(errors.InputError, match=r"line 2 \(id 'x'\), column role = 'dye'.*dascreen dyecell"):
         rank_candidates(lv.assign(role="dye"), partner, PUBLISHED)
-    # a run's own levels (raw engine columns): the row is ranked and flagged, the batch goes on
+    # a run's own levels (raw engine columns): the dye is listed as not viable, the batch goes on
     r = rank_candidates(lv.assign(role="dye", xtb_ip_ev=7.0), partner, PUBLISHED)
-    assert _flags(r, "x") == {"role_invalid", "role_assumed"} and not r.loc[0, "passes"]
+    assert _flags(r, "x") == {"role_dye"} and not r.loc[0, "passes"] and not r.loc[0, "viable"]
 
 
 def test_candidate_without_role_takes_the_role_its_levels_support():
@@ -346,7 +346,7 @@ def test_flags_and_errors_come_from_the_ground_floor(partner):
     with pytest.raises(errors.InputError, match="'neg'.*lumo_sigma_ev"):
         rank_candidates(lv, partner)
     # every code the ranking writes is a registry code, in registry order
-    rows = [{"id": "x", "homo_ev": -5.2, "lumo_ev": -4.2, "gap_opt_ev": 0.9, "role": "dye", "xtb_ip_ev": 7.0}]
+    rows = [{"id": "x", "homo_ev": -5.2, "lumo_ev": -4.2, "gap_opt_ev": 0.9, "role": "solvent", "xtb_ip_ev": 7.0}]
     codes = rank_candidates(_levels(rows), partner, PUBLISHED).loc[0, "flags"].split(";")
     assert codes == ["role_invalid", "lumo_offset_low", "gap_out_of_window", "donor_only_model", "role_assumed"]
     assert codes == [c for c in flags.FLAG_ORDER if c in codes]
@@ -393,6 +393,24 @@ def test_run_rank_writes_ranking_shortlist_and_meta(cv_file, tmp_path):
     assert meta["counts"]["ranked"] == 3 and meta["counts"]["passing"] == 2 and meta["counts"]["shortlist"] == 2
     assert meta["rank"]["shortlist_size"] == 5 and meta["filters"]["min_delta_lumo_ev"] == 0.3
     assert meta["levels"]["path"] == str(cv_file.resolve()) and meta["levels_meta"] is None
+
+
+def test_dye_row_of_a_runs_levels_is_not_viable_with_a_reason(tmp_path):
+    # a run's own levels.csv (raw engine columns) of a mixed batch: the dye gets no pair, no efficiency and a
+    # plain-words reason, also with a default role; the donor next to it is ranked as usual
+    lv = tmp_path / "levels.csv"
+    _levels([{"id": "dye-1", "smiles": "N#CC(=Cc1ccc(N(C)C)cc1)C(=O)O", "status": "ok", "role": "dye",
+              "homo_ev": -5.3, "lumo_ev": -3.2, "gap_opt_ev": 1.9, "xtb_ip_ev": 7.1},
+             {"id": "D1", "smiles": "c1ccsc1", "status": "ok", "role": "donor", "homo_ev": -5.4,
+              "lumo_ev": -3.9, "gap_opt_ev": 1.5, "xtb_ip_ev": 7.0}]).to_csv(lv, index=False)
+    for cfg in (PUBLISHED_CFG, {"rank": {"role": "donor"}, **PUBLISHED_CFG}):
+        table = pd.read_csv(run_rank(lv, REF, tmp_path / "out", cfg, report=False), dtype={"id": str})
+        assert table["id"].tolist() == ["D1", "dye-1"]
+        dye = table.set_index("id").loc["dye-1"]
+        assert dye["role"] == "dye" and dye["flags"] == "role_dye" and not dye["viable"] and not dye["passes"]
+        assert dye[["delta_lumo_ev", "voc_v", "jsc_ma_cm2", "pce_pct", "pce_sigma_pct"]].isna().all()
+        assert dye["reason"].startswith("role 'dye': dye-cell candidates are ranked with `dascreen dyecell`")
+        assert table.set_index("id").loc["D1", "pce_pct"] == pytest.approx(9.8, abs=0.05)
 
 
 def test_run_rank_records_levels_provenance(cv_file, tmp_path):

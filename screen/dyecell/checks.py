@@ -35,7 +35,8 @@ from screen.dyecell.scales import ABSOLUTE_NHE_V, needs_solvent, to_nhe
 from screen.errors import InputError
 
 __all__ = ["E_OX_RANGE_V_NHE", "E00_RANGE_EV", "POTENTIAL_RANGE_V_NHE", "THRESHOLD_RANGE_EV", "e_ox_problem",
-           "e00_problem", "potential_problem", "vacuum_problem", "threshold_problem", "check_dye_file"]
+           "e00_problem", "potential_problem", "vacuum_problem", "threshold_problem", "check_dye_file",
+           "smiles_problem", "unreadable_smiles"]
 
 #: accepted E(S⁺/S) of a dye [V vs NHE]: organic sensitisers lie roughly in −0.5…+2.5 V (common practice);
 #: 0.5 V of margin each side so that an unusual dye is ranked (and marked not viable) rather than refused
@@ -315,3 +316,60 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
                 problems.append(f"{at(i, c, float(s[i]))}: an uncertainty must be >= 0 (empty = 0)")
     _raise(where, problems)
     return e_ox
+
+
+def smiles_problem(smiles: str) -> str | None:
+    """Why RDKit cannot read a SMILES, in the words of the prepare stage (None if it reads, or is empty).
+
+    The message is the one :func:`screen.prepare.validate` writes for the row
+    (``SMILES syntax error: …``, a valence or aromaticity problem, an unknown
+    element symbol); the dye mode sets no element, charge or size limit, so
+    only the reasons RDKit cannot read it are left.
+
+    Examples
+    --------
+    >>> smiles_problem("OC(=O)c1ccccc1") is None, smiles_problem("") is None
+    (True, True)
+    >>> smiles_problem("OC(=O)C1CC")
+    'SMILES syntax error: unclosed ring'
+    """
+    from rdkit import Chem, rdBase
+
+    if not smiles.strip():
+        return None
+    with rdBase.BlockLogs():
+        if Chem.MolFromSmiles(smiles) is not None:
+            return None
+    from screen.prepare import PrepareOptions, validate
+    from screen.prepare.options import KNOWN_ELEMENTS
+
+    lenient = PrepareOptions(max_heavy_atoms=10**6, allowed_elements=tuple(sorted(KNOWN_ELEMENTS)),
+                             allow_charged=True, allow_open_shell=True, allow_charge_separation=True)
+    error = str(validate(pd.DataFrame({"id": ["dye"], "smiles_input": [smiles]}), lenient).loc[0, "error"])
+    # the prepare stage lists its allowed elements after an unknown symbol; here every element is allowed
+    return error.split("; allowed elements:")[0] or "RDKit cannot read it"
+
+
+def unreadable_smiles(frame: pd.DataFrame) -> dict[int, str]:
+    """Rows of a user's dye file whose SMILES RDKit cannot read: row position → the reason, naming line and id.
+
+    Such a row is not ranked (status ``rejected``, as the prepare stage rejects an
+    unparsable SMILES); the other dyes are ranked as usual.
+
+    Examples
+    --------
+    >>> f = pd.DataFrame({"id": ["a", "b", "c"], "smiles": ["OC(=O)c1ccccc1", "OC(=O)C1CC", None]})
+    >>> unreadable_smiles(f)
+    {1: "line 3 (id 'b'): the SMILES cannot be parsed (SMILES syntax error: unclosed ring); correct it, or leave it empty to skip the anchor check"}
+    """
+    if "smiles" not in frame:
+        return {}
+    ids = [_cell(v) for v in (frame["id"] if "id" in frame else [""] * len(frame))]
+    out = {}
+    for i, raw in enumerate(frame["smiles"]):
+        smiles = _cell(raw)
+        why = smiles_problem(smiles)
+        if why:
+            out[i] = (f"line {_line(frame, i)} (id {ids[i]!r}): the SMILES cannot be parsed ({why}); correct it, "
+                      "or leave it empty to skip the anchor check")
+    return out

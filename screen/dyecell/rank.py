@@ -16,7 +16,9 @@ Fc⁺/Fc vs NHE depends on it), plus ``e00_ev``; optional ``smiles``, ``name``,
 ``e_ox_sigma_v``, ``e00_sigma_ev``, ``anchor`` and ``scale`` (which must be
 ``electrochemical`` when given).  Every row must have a unique id and plausible
 values (:mod:`screen.dyecell.checks`); otherwise the file is refused, naming
-the line, the column and the fix.
+the line, the column and the fix.  A row whose SMILES RDKit cannot read is not
+ranked (status ``rejected``, the reason naming its line and id); the other dyes
+are.
 
 Metal-containing dyes are computed by the shared stages (GFN2-xTB covers the
 elements up to Rn) but the dye calibration covers only the elements of its
@@ -34,7 +36,7 @@ import pandas as pd
 
 from screen.dyecell.anchors import find_anchors
 from screen.dyecell.calibrate import apply_models, elements_of
-from screen.dyecell.checks import check_dye_file
+from screen.dyecell.checks import check_dye_file, unreadable_smiles
 from screen.dyecell.flags import INFO_FLAGS, join_flags
 from screen.dyecell.library import Material
 from screen.dyecell.model import DyeCellModel, evaluate, sample_pce
@@ -151,6 +153,11 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
         Missing columns, no rows, or a row with an empty, repeated or impossible value
         (:func:`screen.dyecell.checks.check_dye_file`: file, line, column and the fix).
 
+    Notes
+    -----
+    A SMILES that RDKit cannot read does not stop the file: that row becomes
+    ``rejected`` with the reason (:func:`screen.dyecell.checks.unreadable_smiles`).
+
     Examples
     --------
     >>> t = dyes_from_file(pd.DataFrame({"id": ["a"], "e_ox_v": [0.40], "e_ox_reference": ["Fc"],
@@ -183,10 +190,12 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
                 anchors[i], anchored[i], known[i] = given.iloc[i], given.iloc[i].lower() not in ("none", "no"), True
     e00 = _num_col(frame, "e00_ev")
     ok = np.isfinite(e_ox) & np.isfinite(e00)
+    error = np.where(ok, "", "E(S+/S) or E00 missing or not a number").astype(object)
+    for i, why in unreadable_smiles(frame).items():
+        ok[i], error[i] = False, why
     out = pd.DataFrame({
         "id": _text_col(frame, "id"), "smiles": smiles, "name": _text_col(frame, "name"),
-        "status": np.where(ok, "ok", "rejected"),
-        "error": np.where(ok, "", "E(S+/S) or E00 missing or not a number"),
+        "status": np.where(ok, "ok", "rejected"), "error": error,
         "e_ox_v_nhe": e_ox, "e_ox_sigma_v": np.nan_to_num(_num_col(frame, "e_ox_sigma_v"), nan=0.0),
         "e00_ev": e00, "e00_sigma_ev": np.nan_to_num(_num_col(frame, "e00_sigma_ev"), nan=0.0),
         "scale": np.where(ok, ELECTROCHEMICAL, ""), "anchors": anchors, "anchored": anchored,
