@@ -20,8 +20,8 @@ own fit (:func:`screen.extrapolate.extrapolate`, ``per_unit`` = the repeat unit'
 raw columns hold those limits, so the calibration treats a polymer like any
 molecule. Added columns: ``chain_n_max`` (longest oligomer computed),
 ``chain_fit`` (method per quantity, e.g. ``ip:kuhn ea:exp …``), ``chain_fit_quality``
-(``good``/``poor`` over :data:`QUALITY_QUANTITIES`; a poor fit adds a ``chain_fit_poor``
-item to ``note``) and
+(``good``/``poor`` over :data:`QUALITY_QUANTITIES`: no saturating fit accepted, or a fit on a series that
+has not started to saturate; a poor fit adds a ``chain_fit_poor`` item to ``note``) and
 ``chain_spread_<quantity>`` (:attr:`~screen.extrapolate.ChainFit.spread_ev`, which
 the calibration adds to the σ); the conformer-spread columns are those of the
 longest oligomer that has one (:mod:`screen.conformer_spread`). The per-n values and every fit's details go to
@@ -111,7 +111,7 @@ def _one_polymer(pkey: str, group: pd.DataFrame, elec: pd.DataFrame, quantities:
         row[q], row[f"chain_spread_{q}"] = fit.limit_ev, fit.spread_ev
         methods.append(f"{_short(q)}:{_SHORT[fit.method]}")
         if fit.quality != "good" and q in QUALITY_QUANTITIES:
-            poor.append(_short(q))
+            poor.append((_short(q), fit.method))
         side.append({"polymer_key": pkey, "polymer_id": pid, "quantity": q, "n": "inf", "status": "ok",
                      "value": fit.limit_ev, "method": fit.method, "rms": fit.rms_ev, "spread": fit.spread_ev,
                      "quality": fit.quality, **{k: fit.candidates.get(k) for k in _SHORT}})
@@ -165,9 +165,15 @@ def chain_limits(electronic: pd.DataFrame, oligomers: pd.DataFrame,
         row, srows = _one_polymer(pkey, group.sort_values("n"), elec, quantities, rms_tol_ev)
         notes = []
         poor = row.pop("_poor", [])
-        if poor:
-            notes.append(f"chain_fit_poor: no saturating fit accepted for {', '.join(poor)} "
+        longest = [q for q, method in poor if method == "longest"]
+        unsaturated = [f"{q} ({method})" for q, method in poor if method != "longest"]
+        if longest:
+            notes.append(f"chain_fit_poor: no saturating fit accepted for {', '.join(longest)} "
                          f"(value of the longest oligomer, n={row['chain_n_max']}, used)")
+        if unsaturated:
+            notes.append(f"chain_fit_poor: the oligomers up to n={row['chain_n_max']} have not started to saturate "
+                         f"for {', '.join(unsaturated)}; the fit's limit is used but is set by its form "
+                         "(screen.extrapolate.saturation_reason)")
         failed = row.pop("_failed", [])
         if failed:
             notes.append("oligomer_failed: " + ", ".join(failed))

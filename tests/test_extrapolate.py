@@ -12,7 +12,7 @@ import math
 import numpy as np
 import pytest
 
-from screen.extrapolate import exponential_fit, extrapolate, inverse_fit, kuhn_fit
+from screen.extrapolate import exponential_fit, extrapolate, inverse_fit, kuhn_fit, saturation_reason
 
 
 def test_kuhn_series_is_recovered_and_chosen():
@@ -78,3 +78,47 @@ def test_a_limit_just_outside_the_interval_is_clipped_not_dropped():
     for f in fits:  # never outside [longest oligomer, 1/n limit]
         lo, hi = sorted((f.candidates["longest"], f.candidates["inverse"]))
         assert lo <= f.limit_ev <= hi
+
+
+# the GFN2-xTB orbital gap [eV] of MEH-PPV oligomers n = 1-4 (repeat unit [*]C=Cc1cc(OC)c([*])cc1OC, 3 coupled double
+# bonds per unit), the project's own computed values: models/tblite-gfn2-xtb-3ce6def9/reference_oligomers.csv
+# (xTB-optimised geometries; 3.23, 2.53, 2.09, 1.71 eV) and models/tblite-gfn2-ff-cf90d5d7/reference_oligomers.csv
+# (force-field geometries), polymer ref-112
+MEH_PPV_GAP_XTB_GEOMETRY = [3.2259460071820265, 2.5343860462759453, 2.0862453670761743, 1.705863600718895]
+MEH_PPV_GAP_FF_GEOMETRY = [3.185805647241676, 2.5890532278587286, 2.4586978359383047, 2.450983825836332]
+
+
+def test_a_series_that_has_not_started_to_saturate_is_poor_and_keeps_its_value():
+    # still falling almost linearly (last step 0.85 of the one before): the exponential limit, 0.81 eV, lies 0.90 eV
+    # beyond the tetramer, placed there by the fit's form; it stays the chosen value (the label changes, not the
+    # number, nor the spread that feeds the σ) and is marked poor with the reason
+    fit = extrapolate([1, 2, 3, 4], MEH_PPV_GAP_XTB_GEOMETRY, per_unit=3)
+    assert fit.method == "exponential" and fit.limit_ev == pytest.approx(0.8091, abs=1e-3)
+    assert fit.spread_ev == pytest.approx(0.8968, abs=1e-3)  # the value shipped with the "good" label
+    assert fit.quality == "poor" and fit.reason.startswith("not saturated") and "0.85 of the one before" in fit.reason
+
+
+def test_a_saturating_series_stays_good():
+    # the same polymer on force-field geometries: steps 0.60, 0.13, 0.008 eV, saturated by the tetramer
+    fit = extrapolate([1, 2, 3, 4], MEH_PPV_GAP_FF_GEOMETRY, per_unit=3)
+    assert (fit.method, fit.quality, fit.reason) == ("exponential", "good", "")
+    assert fit.limit_ev == pytest.approx(2.4387, abs=1e-3)
+    # and Kuhn-model data (saturating by construction: Gierschner et al., doi:10.1002/adma.200600277)
+    n = np.arange(1, 5)
+    kuhn = extrapolate(n, 3.9 * np.sqrt(1 - 2 * 0.42 * np.cos(np.pi / (3 * n + 1))), per_unit=3)
+    assert (kuhn.quality, kuhn.reason) == ("good", "")
+
+
+@pytest.mark.parametrize("ratio, saturated", [(0.70, True), (0.74, True), (0.76, False), (1.10, False)])
+def test_the_saturation_threshold_is_where_geometric_steps_reach_the_inverse_limit(ratio, saturated):
+    # tetramers: the 1/n limit through n = 3, 4 lies 3 last steps beyond the tetramer, and geometric steps of ratio r
+    # add last·r/(1 − r) more, which reaches it at r = 1 − 1/4 = 0.75 (the rule in screen/extrapolate.py)
+    last = -0.3 * ratio
+    e = [3.0, 2.6, 2.3, 2.3 + last]
+    inverse, _ = inverse_fit([1, 2, 3, 4], e)
+    assert inverse == pytest.approx(e[-1] + 3 * last)
+    limit = e[-1] + 1.5 * last  # 1.5 last steps beyond the tetramer, inside the 1/n bound
+    assert (saturation_reason(e, limit, inverse) == "") is saturated
+    # a limit within one last step of the tetramer, or last two steps of opposite sign, are not judged
+    assert saturation_reason(e, e[-1] + 0.9 * last, inverse) == ""
+    assert saturation_reason([3.0, 2.6, 2.7, 2.3], 2.0, 1.1) == ""
