@@ -85,13 +85,13 @@ def held_out(d, by: str):
     cv = cross_validate(d, None, by)
     m = cv.metrics
     print(f"\nheld out: {m['grouping']} ({m['n_groups']} groups; loss variant chosen per training fold: "
-          f"{m['loss_split_per_fold']})")
+          f"{m['variants_per_fold']})")
     print(table(m))
     _targets(m, by)
     const = cross_validate(d, None, by, CONSTANT_VARIANTS).metrics
     print(f"nested CV with constant-loss variants only: Voc MAE {const['fitted']['voc_mae_v']:.3f} V, "
           f"Spearman Voc {const['fitted']['spearman_voc']:.2f}, Spearman PCE {const['fitted']['spearman_pce']:.2f} "
-          f"(chosen {const['loss_split_per_fold']})")
+          f"(chosen {const['variants_per_fold']})")
     print(" ".join(f"{by}_{model}_{k}={m[model][k]:.4f}" for model in ("fitted", "scharber")
                    for k in ("voc_mae_v", "spearman_voc", "spearman_pce"))
           + f" {by}_constant_only_voc_mae_v={const['fitted']['voc_mae_v']:.4f}"
@@ -136,7 +136,7 @@ def computed(d, devices, film, raw_path) -> dict:
         record[by] = {k: r[k] for k in ("grouping", "coverage", "fitted", "scharber", "fitted_published_levels",
                                         "mean_voc_baseline", "level_errors")}
         c = r["coverage"]
-        print(f"held out ({r['grouping']}; loss variants {r['loss_split_per_fold']}): {c['computed']} usable devices "
+        print(f"held out ({r['grouping']}; loss variants {r['variants_per_fold']}): {c['computed']} usable devices "
               f"computed, {c['with_voc']} with Voc, {c['with_pce']} with PCE")
         rows = [("model", "levels", "n", "Voc MAE [V]", "signed [V]", "Spearman Voc", "Spearman PCE")]
         for key, label, lv in (("fitted", "fitted", "computed"), ("scharber", "scharber", "computed"),

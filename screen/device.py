@@ -293,12 +293,17 @@ class DeviceModel:
         d["incident_power_w_m2"] = self.incident_power_w_m2
         return d
 
-    def pce_factor_pct(self) -> float:
+    def pce_factor_pct(self, ff=None):
         """PCE per unit Voc·Jsc: ``PCE [%] = Voc [V] · Jsc [mA cm⁻²] · factor``.
+
+        Parameters
+        ----------
+        ff : float, numpy.ndarray or None
+            Fill factor per pair (from :meth:`ff_of`); None uses ``value('ff')``. [dimensionless]
 
         Returns
         -------
-        float
+        float or numpy.ndarray
             ``FF · 10 / P_in · 100`` (10 A m⁻² per mA cm⁻²). [% V⁻¹ mA⁻¹ cm²]
 
         Examples
@@ -306,7 +311,29 @@ class DeviceModel:
         >>> round(DeviceModel(model="scharber", pin_w_m2=1000.0).pce_factor_pct(), 6)
         0.65
         """
-        return self.value("ff") * (1.0 / A_M2_TO_MA_CM2) / self.incident_power_w_m2 * 100.0
+        ff = self.value("ff") if ff is None else ff
+        return ff * (1.0 / A_M2_TO_MA_CM2) / self.incident_power_w_m2 * 100.0
+
+    def ff_of(self, acceptor_class=None) -> np.ndarray:
+        """Fill factor per pair: the fitted value of the acceptor's class (else its family's, else pooled);
+        the override ``ff`` or Scharber's 0.65 for every pair when set or chosen. [dimensionless]
+
+        Examples
+        --------
+        >>> DeviceModel(model="scharber").ff_of(["fullerene", ""]).tolist()
+        [0.65, 0.65]
+        """
+        classes = np.asarray("" if acceptor_class is None else acceptor_class, dtype=object)
+        if self.model == "scharber" or self.ff is not None:
+            return np.full(classes.shape, self.value("ff"))
+        return self.parameters.ff_for(classes)
+
+    @property
+    def ff_max(self) -> float:
+        """Largest fill factor any pair can get (a bound for the sampler). [dimensionless]"""
+        if self.model == "scharber" or self.ff is not None:
+            return self.value("ff")
+        return self.parameters.ff_max
 
     def loss_ev(self, acceptor_class=None) -> tuple[np.ndarray, np.ndarray]:
         """Voltage loss per pair [eV] and the mask of pairs that got the pooled (class-free) value.
@@ -381,7 +408,7 @@ class DeviceModel:
         return missing
 
     # ------------------------------------------------------------ the physics
-    def figures(self, levels, loss_ev, *, jsc_unit=None, sq_pct=None, keep_model_values=False) -> dict:
+    def figures(self, levels, loss_ev, *, ff=None, jsc_unit=None, sq_pct=None, keep_model_values=False) -> dict:
         """Classification, Voc, Jsc and PCE of pairs from their six levels (the one formula).
 
         Parameters
@@ -390,6 +417,8 @@ class DeviceModel:
             The six levels in :data:`PAIR_LEVELS` order (broadcastable). [eV]
         loss_ev : numpy.ndarray
             Voltage loss per pair (broadcastable), from :meth:`loss_ev`. [eV]
+        ff : numpy.ndarray or None
+            Fill factor per pair (broadcastable), from :meth:`ff_of`; None uses ``value('ff')``.
         jsc_unit, sq_pct : callable or None
             Jsc at EQE = 1 [mA cm⁻²] and detailed-balance PCE [%] as functions of
             the gap; None uses the exact :func:`screen.spectrum.jsc_ma_cm2` and
@@ -422,7 +451,8 @@ class DeviceModel:
         voc_model = np.fmin(voc_raw, gap_cap)
         voc = np.where(viable, voc_model, 0.0)
         jsc = np.where(viable, jsc, 0.0)
-        pce = voc * jsc * self.pce_factor_pct()
+        factor = self.pce_factor_pct(ff)
+        pce = voc * jsc * factor
         limit = sq_pct(safe_lo)
         pce_capped = viable & (pce > limit)
         pce = np.where(pce_capped, limit, pce)
@@ -432,10 +462,11 @@ class DeviceModel:
         if keep_model_values:
             out["voc_model_v"] = voc_model
             with np.errstate(invalid="ignore"):
-                out["pce_model_pct"] = np.fmin(np.maximum(voc_model, 0.0) * jsc_model * self.pce_factor_pct(), limit)
+                out["pce_model_pct"] = np.fmin(np.maximum(voc_model, 0.0) * jsc_model * factor, limit)
         return {k: np.broadcast_to(v, shape) for k, v in out.items()}
 
-    def pce_from_levels(self, levels, loss_ev, *, jsc_unit=None, sq_pct=None, sq_below_ev=np.inf) -> np.ndarray:
+    def pce_from_levels(self, levels, loss_ev, *, ff=None, jsc_unit=None, sq_pct=None,
+                        sq_below_ev=np.inf) -> np.ndarray:
         """Efficiency of (sampled) pair levels; 0 where a sample is not viable. [%]
 
         The vectorised kernel of :func:`screen.sampling.sample_pce`: the same
@@ -452,7 +483,7 @@ class DeviceModel:
         """
         jsc_unit = (lambda g: jsc_ma_cm2(g, 1.0)) if jsc_unit is None else jsc_unit
         return pce_samples(self, levels, np.asarray(loss_ev, dtype=float), jsc_unit,
-                           sq_pce_pct if sq_pct is None else sq_pct, sq_below_ev)
+                           sq_pce_pct if sq_pct is None else sq_pct, sq_below_ev, ff=ff)
 
     def pce_pct(self, donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev=None, acceptor_lumo_ev=None,
                 acceptor_gap_ev=None, *, acceptor_class=None, caller: str = "pce_pct()") -> np.ndarray:
@@ -474,7 +505,7 @@ class DeviceModel:
         levels, _ = self.pair_arrays(donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev,
                                      acceptor_lumo_ev, acceptor_gap_ev, caller)
         loss, _ = self.loss_ev(acceptor_class)
-        fig = self.figures(levels, loss)
+        fig = self.figures(levels, loss, ff=self.ff_of(acceptor_class))
         return np.where(fig["viable"], fig["pce_pct"], np.nan).astype(float)
 
     def evaluate(self, donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev=None, acceptor_lumo_ev=None,
@@ -535,7 +566,8 @@ class DeviceModel:
         levels, shape = self.pair_arrays(donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev,
                                          acceptor_lumo_ev, acceptor_gap_ev, "evaluate()")
         loss, pooled = self.loss_ev(acceptor_class)
-        fig = self.figures(levels, loss)
+        ff = self.ff_of(acceptor_class)
+        fig = self.figures(levels, loss, ff=ff)
         shape = fig["viable"].shape
         viable = fig["viable"]
 
@@ -552,7 +584,7 @@ class DeviceModel:
             "delta_homo_ev": np.array(fig["delta_homo_ev"], dtype=float),
             "voc_v": blank(fig["voc_v"]),
             "jsc_ma_cm2": blank(fig["jsc_ma_cm2"]),
-            "ff": blank(np.full(shape, self.value("ff"))),
+            "ff": blank(np.broadcast_to(ff, shape)),
             "pce_pct": blank(fig["pce_pct"]),
             "absorber_gap_ev": np.array(fig["absorber_gap_ev"], dtype=float),
             "loss_ev": np.array(fig["loss_ev"], dtype=float),

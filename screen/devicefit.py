@@ -24,7 +24,14 @@ The fitted model of :mod:`screen.device` has four kinds of parameter:
 - the maximum EQE and the offset scale Δ0 of the charge-generation yield
   1 − exp(−Δ/Δ0): least squares on the measured Jsc of every training device
   with a Jsc (whether or not its Voc is known);
-- the fill factor: the median measured FF of every training device with an FF.
+- the fill factor: the median measured FF of the training devices with an FF,
+  pooled, per family or per acceptor class (a class or family needs
+  :data:`MIN_CLASS_ROWS` devices with an FF, else the next coarser value) — the
+  split again chosen inside each training fold by an inner grouped
+  cross-validation of the FF (:func:`choose_ff_split`).  Blends of fused-ring
+  non-fullerene acceptors and of fullerenes with small-molecule donors differ
+  in FF by ≈ 0.1 in the device set (medians 0.70 and 0.58); one pooled FF
+  gives every class the same.
 
 Validation
 ----------
@@ -79,7 +86,7 @@ from screen.spectrum import jsc_ma_cm2
 __all__ = ["DEVICES_PATH", "FILM_PATH", "LEVELS_TABLE_PATH", "read_devices", "level_table", "resolve_levels",
            "fit", "cross_validate", "predict", "write_fitted", "main", "MIN_CLASS_ROWS", "OFFSET_SCALE_GRID_EV",
            "FC_SCALE_EV", "MIN_SHARED_MATERIALS", "LOSS_SPLITS", "LOSS_VARIANTS", "GROUPINGS", "choose_split",
-           "fold_model", "CONSTANT_VARIANTS"]
+           "fold_model", "CONSTANT_VARIANTS", "FF_SPLITS", "choose_ff_split"]
 
 _REPO = Path(__file__).resolve().parent.parent
 #: resolved levels of every device row (written by ``--write``)
@@ -90,6 +97,8 @@ MIN_CLASS_ROWS = 5
 LOSS_SPLITS = ("pooled", "family", "class")
 #: loss variants tried inside each training fold: split, with a constant or an E_CT-dependent loss
 LOSS_VARIANTS = tuple(_s + _f for _f in ("", "+slope") for _s in LOSS_SPLITS)
+#: how the fill factor may be split, chosen per training fold by inner grouped CV (simplest first)
+FF_SPLITS = LOSS_SPLITS
 #: the constant-loss variants alone (Veldman's constant loss per split)
 CONSTANT_VARIANTS = tuple(v for v in LOSS_VARIANTS if "+slope" not in v)
 #: grouping name -> column of the group key
@@ -211,6 +220,58 @@ def _fit_eqe(d: pd.DataFrame) -> tuple[float, float]:
     return best[1], best[2]
 
 
+def _ff_arrays(d: pd.DataFrame):
+    d = d[d["ff"].notna()]
+    classes = d["acceptor_class"].astype(str).to_numpy(object)
+    return d["ff"].to_numpy(float), classes, np.array([family_of(c) for c in classes], dtype=object)
+
+
+def _ff_core(ff, classes, families, split) -> tuple[float, dict]:
+    """``(pooled FF, FF per family/class)``: medians; a family or class needs :data:`MIN_CLASS_ROWS` devices."""
+    fam_ok, cls_ok = _split_flags(split)
+    by_class = {}
+    for ok, values in ((fam_ok, families), (cls_ok, classes)):
+        if not ok:
+            continue
+        names, counts = np.unique(values.astype(str), return_counts=True)
+        for key, count in zip(names, counts):
+            if key and key != "nan" and count >= MIN_CLASS_ROWS:
+                by_class[str(key)] = float(np.median(ff[values == key]))
+    return float(np.median(ff)), by_class
+
+
+def _ff_predict(pooled: float, by_class: dict, classes) -> np.ndarray:
+    return FittedParameters(loss_ev={POOLED: 0.0}, eqe_max=1.0, offset_scale_ev=0.0, ff=pooled,
+                            ff_by_class=by_class).ff_for(classes)
+
+
+def choose_ff_split(d: pd.DataFrame, key: str = "group", splits: tuple = FF_SPLITS) -> tuple[str, dict]:
+    """The fill-factor split (:data:`FF_SPLITS`) with the least grouped-CV FF MAE on ``d`` (ties: the simpler),
+    and each split's MAE.  Only ``d`` is used: called on a training fold, held-out devices never choose it.
+
+    Examples
+    --------
+    >>> best, scores = choose_ff_split(resolve_levels())
+    >>> best in FF_SPLITS and set(scores) == set(FF_SPLITS)
+    True
+    """
+    ff, classes, families = _ff_arrays(d)
+    groups = d.loc[d["ff"].notna(), key].to_numpy(object)
+    scores = {}
+    for split in splits:
+        pred = np.full(len(ff), np.nan)
+        for g in pd.unique(groups):
+            test = groups == g
+            if test.all():
+                continue
+            pooled, by_class = _ff_core(ff[~test], classes[~test], families[~test], split)
+            pred[test] = _ff_predict(pooled, by_class, classes[test])
+        ok = np.isfinite(pred)
+        scores[split] = float(np.mean(np.abs(pred[ok] - ff[ok]))) if ok.any() else np.inf
+    best = min(splits, key=lambda s: (round(scores[s], 6), splits.index(s)))
+    return best, scores
+
+
 def _voc_core(e_ct, cap, classes, families, losses) -> np.ndarray:
     loss_ev, slope, ref = losses
     label = _loss_labels(classes, families, loss_ev)
@@ -243,20 +304,24 @@ def choose_split(d: pd.DataFrame, key: str = "group", variants: tuple = LOSS_VAR
     return best, scores
 
 
-def fold_model(train: pd.DataFrame, key: str, per_class=None, variants: tuple = LOSS_VARIANTS):
-    """``(DeviceModel, variant)`` fitted on one training fold; with ``per_class`` None the loss variant is chosen
-    by :func:`choose_split` on ``train`` alone (grouped by ``key``), so held-out devices never choose it."""
+def fold_model(train: pd.DataFrame, key: str, per_class=None, variants: tuple = LOSS_VARIANTS, ff_split=None):
+    """``(DeviceModel, variant)`` fitted on one training fold; with ``per_class`` (``ff_split``) None the loss
+    variant (the fill-factor split) is chosen by :func:`choose_split` (:func:`choose_ff_split`) on ``train`` alone,
+    grouped by ``key``, so held-out devices never choose it.  ``variant`` reads e.g. ``'pooled+slope, ff class'``."""
     choice = per_class if per_class is not None else choose_split(train, key, tuple(variants))[0]
+    ff_choice = ff_split if ff_split is not None else choose_ff_split(train, key)[0]
     split = _variant_name(*_variant(choice))
-    return DeviceModel(model="fitted", absorber="both", parameters=fit(train, split)), split
+    model = DeviceModel(model="fitted", absorber="both", parameters=fit(train, split, ff_choice))
+    return model, f"{split}, ff {ff_choice}"
 
 
-def fit(d: pd.DataFrame, per_class="class") -> FittedParameters:
+def fit(d: pd.DataFrame, per_class="class", ff_split="pooled") -> FittedParameters:
     """Fitted parameters from a device table (see the module docstring).
 
     ``per_class`` is the loss variant: a split (``'pooled'``, ``'family'``,
     ``'class'``; ``True``/``False`` mean class/pooled), optionally with
-    ``'+slope'`` for a loss that grows with E_CT.
+    ``'+slope'`` for a loss that grows with E_CT.  ``ff_split`` is the
+    fill-factor split (:data:`FF_SPLITS`).
 
     Examples
     --------
@@ -265,18 +330,18 @@ def fit(d: pd.DataFrame, per_class="class") -> FittedParameters:
     True
     """
     eqe, scale = _fit_eqe(d)
-    ff = d["ff"].dropna()
     split, free = _variant(per_class)
     loss, slope, ref = _fit_losses(d, split, free)
-    return FittedParameters(loss_ev=loss, eqe_max=eqe, offset_scale_ev=scale,
-                            ff=float(ff.median()) if len(ff) else 0.65, loss_slope=slope, ect_ref_ev=ref)
+    ff, by_class = _ff_core(*_ff_arrays(d), ff_split) if d["ff"].notna().any() else (0.65, {})
+    return FittedParameters(loss_ev=loss, eqe_max=eqe, offset_scale_ev=scale, ff=ff, ff_by_class=by_class,
+                            loss_slope=slope, ect_ref_ev=ref)
 
 
 def predict(model: DeviceModel, d: pd.DataFrame) -> pd.DataFrame:
     """Formula Voc [V] and PCE [%] of every device (viable or not) and whether the model calls it viable."""
     classes = d["acceptor_class"].to_numpy(object)
     loss, _ = model.loss_ev(classes)
-    fig = model.figures(_levels(d), loss, keep_model_values=True)
+    fig = model.figures(_levels(d), loss, ff=model.ff_of(classes), keep_model_values=True)
     return pd.DataFrame({"voc_v": fig["voc_model_v"], "pce_pct": fig["pce_model_pct"], "viable": fig["viable"]},
                         index=d.index)
 
@@ -341,7 +406,7 @@ def _paper_levels(d: pd.DataFrame) -> pd.DataFrame:
 
 
 def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor",
-                   variants: tuple = LOSS_VARIANTS) -> CrossValidation:
+                   variants: tuple = LOSS_VARIANTS, ff_split=None) -> CrossValidation:
     """Grouped cross-validation of the fitted model beside Scharber's rule.
 
     Parameters
@@ -356,6 +421,9 @@ def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor",
     variants : tuple of str
         The loss variants the inner CV may choose from (default all of :data:`LOSS_VARIANTS`; the
         constant-loss ones alone show what the E_CT-dependent option adds, chosen the same nested way).
+    ff_split : str or None
+        The fill-factor split (:data:`FF_SPLITS`); None (default) chooses it inside each training fold
+        (:func:`choose_ff_split`).
 
     Returns
     -------
@@ -371,7 +439,7 @@ def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor",
     chosen: dict[str, int] = {}
     for _group, idx in d.groupby(key).indices.items():
         train = d.drop(index=d.index[idx])
-        model, split = fold_model(train, key, per_class, variants)
+        model, split = fold_model(train, key, per_class, variants, ff_split)
         chosen[split] = chosen.get(split, 0) + 1
         fitted.iloc[idx] = predict(model, d.iloc[idx]).to_numpy(object)
         baseline.iloc[idx] = train["voc_v"].mean()
@@ -385,7 +453,7 @@ def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor",
     has_voc = d["voc_v"].notna()
     err = lambda s: (s - d["voc_v"])[has_voc]  # noqa: E731
     metrics = {"grouping": f"leave one {by} structure out", "by": by, "n_groups": int(d[key].nunique()),
-               "loss_split_per_fold": chosen,
+               "variants_per_fold": chosen,
                "fitted": _metrics(d, fitted), "scharber": _metrics(d, scharber),
                "scharber_paper_levels": _metrics(d[known], predict(scharber_model, paper[known])),
                "mean_voc_baseline": {"voc_mae_v": float(err(baseline).abs().mean()),
@@ -423,7 +491,8 @@ def write_fitted(path=FITTED_PATH, devices=DEVICES_PATH, film=FILM_PATH, levels_
     d = resolve_levels(devices, film)
     cvs = {by: cross_validate(d, None, by) for by in GROUPINGS}
     split, split_scores = choose_split(d, "group")
-    params = fit(d, split)
+    ff_split, ff_scores = choose_ff_split(d, "group")
+    params = fit(d, split, ff_split)
     beats = all(cv.metrics["fitted"]["voc_mae_v"] < cv.metrics["scharber"]["voc_mae_v"] for cv in cvs.values())
     cols = ["device_id", "donor", "acceptor", "acceptor_class", *_LEVELS, "donor_level_source",
             "acceptor_level_source", "levels_converted", "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "drop_reason",
@@ -435,6 +504,8 @@ def write_fitted(path=FITTED_PATH, devices=DEVICES_PATH, film=FILM_PATH, levels_
         "parameters": params.as_dict() | {"source": None},
         "loss_variant": split,
         "loss_variant_cv_mae_v": split_scores,
+        "ff_split": ff_split,
+        "ff_split_cv_mae": ff_scores,
         "per_class_loss": not split.startswith("pooled"),
         "cv": cvs["acceptor"].metrics,
         "cv_leave_donor_out": cvs["donor"].metrics,
@@ -514,8 +585,8 @@ def main(argv=None) -> int:
         d = read_devices(args.devices, args.film)
         all_metrics = [cross_validate(d, None, by).metrics for by in GROUPINGS]
     for metrics in all_metrics:
-        print(f"held-out ({metrics['grouping']}, {metrics['n_groups']} groups; loss split per fold "
-              f"{metrics['loss_split_per_fold']}):")
+        print(f"held-out ({metrics['grouping']}, {metrics['n_groups']} groups; loss and FF split per fold "
+              f"{metrics['variants_per_fold']}):")
         print(table(metrics))
     return 0
 

@@ -136,7 +136,7 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None) -> PairTerms:
     return PairTerms(delta_lumo, delta_homo, g_lo, gap_cap, voc_raw, jsc, loss_ev)
 
 
-def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = np.inf) -> np.ndarray:
+def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = np.inf, *, ff=None) -> np.ndarray:
     """Efficiency [%] of (sampled) pair levels, 0 where a sample is not viable (no flags).
 
     Parameters
@@ -151,6 +151,8 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     sq_below_ev : float
         Apply the detailed-balance cap only to absorber gaps below this (the
         caller has shown that it cannot bind above); ``inf`` = everywhere. [eV]
+    ff : numpy.ndarray or None
+        Fill factor per pair (broadcastable); None uses ``model.value('ff')``.
 
     Notes
     -----
@@ -215,7 +217,7 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
         jsc *= dl
         jsc *= -1.0
     voc *= jsc
-    voc *= model.value("eqe") * model.pce_factor_pct()
+    voc *= model.value("eqe") * model.pce_factor_pct(ff)
     if np.isfinite(sq_below_ev):
         low = ok & (safe_lo < sq_below_ev)
         if low.any():

@@ -54,7 +54,7 @@ class FittedParameters:
     offset_scale_ev : float
         Offset scale Δ0 of the charge-generation yield 1 − exp(−Δ/Δ0). [eV]
     ff : float
-        Fill factor. [dimensionless]
+        Fill factor of any acceptor class without a value of its own (pooled). [dimensionless]
     loss_slope : float
         How fast the loss grows with E_CT: the loss of a pair is
         ``loss_ev[class] + loss_slope · (E_CT − ect_ref_ev)`` (never below 0);
@@ -63,6 +63,9 @@ class FittedParameters:
         ``1 − loss_slope`` per eV of E_CT). [dimensionless, 0 ≤ loss_slope < 1]
     ect_ref_ev : float
         E_CT at which ``loss_ev`` applies (mean E_CT of the fitted devices). [eV]
+    ff_by_class : dict of str to float
+        Fill factor per acceptor class or family (keys as in ``loss_ev``, without
+        ``'pooled'``); empty when the fit chose one pooled value. [dimensionless]
     source : str
         Path the parameters were read from ('' if built in Python).
     meta : dict
@@ -75,6 +78,7 @@ class FittedParameters:
     ff: float
     loss_slope: float = 0.0
     ect_ref_ev: float = 0.0
+    ff_by_class: dict = field(default_factory=dict)
     source: str = ""
     meta: dict = field(default_factory=dict, compare=False)
 
@@ -94,6 +98,10 @@ class FittedParameters:
         for key, val in self.loss_ev.items():
             if not (math.isfinite(float(val)) and float(val) >= 0):
                 raise ConfigError(f"fitted device parameters {self.source}: loss_ev[{key!r}] must be >= 0")
+        for key, val in self.ff_by_class.items():
+            if not (math.isfinite(float(val)) and 0.0 < float(val) <= 1.0):
+                raise ConfigError(f"fitted device parameters {self.source}: ff_by_class[{key!r}] = {val}; "
+                                  "need 0 < ff <= 1")
 
     def _classes(self, acceptor_class) -> np.ndarray:
         """Classes as a str array; None and NaN become '' (unknown)."""
@@ -103,22 +111,39 @@ class FittedParameters:
         return np.vectorize(lambda c: "" if c is None or str(c) in ("nan", "None") else str(c),
                             otypes=[object])(classes) if classes.size else classes
 
-    def loss_for(self, acceptor_class) -> np.ndarray:
-        """Energy loss per element of ``acceptor_class``: its own value, else its family's, else pooled. [eV]"""
+    def _lookup(self, values: dict, pooled: float, acceptor_class) -> np.ndarray:
+        """Per element of ``acceptor_class``: its class's entry of ``values``, else its family's, else ``pooled``."""
         classes = self._classes(acceptor_class).astype(str)
-        out = np.full(classes.shape, float(self.loss_ev[POOLED]))
+        out = np.full(classes.shape, float(pooled))
         for fam_key, members in ((NON_FULLERENE, (classes != "") & (classes != "fullerene") & (classes != "nan")),
                                  ("fullerene", classes == "fullerene")):
-            if fam_key in self.loss_ev:
-                out[members] = float(self.loss_ev[fam_key])
-        if not (math.isfinite(float(self.loss_slope)) and 0.0 <= float(self.loss_slope) < 1.0
-                and math.isfinite(float(self.ect_ref_ev))):
-            raise ConfigError(f"fitted device parameters {self.source}: loss_slope must be in [0, 1) and "
-                              "ect_ref_ev finite")
-        for key, val in self.loss_ev.items():
+            if fam_key in values:
+                out[members] = float(values[fam_key])
+        for key, val in values.items():
             if key not in (POOLED, NON_FULLERENE):
                 out[classes == key] = float(val)
         return out
+
+    def loss_for(self, acceptor_class) -> np.ndarray:
+        """Energy loss per element of ``acceptor_class``: its own value, else its family's, else pooled. [eV]"""
+        return self._lookup(self.loss_ev, self.loss_ev[POOLED], acceptor_class)
+
+    def ff_for(self, acceptor_class) -> np.ndarray:
+        """Fill factor per element of ``acceptor_class``: its own value, else its family's, else pooled.
+
+        Examples
+        --------
+        >>> p = FittedParameters(loss_ev={"pooled": 0.5}, eqe_max=0.7, offset_scale_ev=0.05, ff=0.66,
+        ...                      ff_by_class={"fullerene": 0.58, "nfa-fused": 0.70})
+        >>> p.ff_for(["fullerene", "nfa-fused", "polymer", ""]).tolist()
+        [0.58, 0.7, 0.66, 0.66]
+        """
+        return self._lookup(self.ff_by_class, self.ff, acceptor_class)
+
+    @property
+    def ff_max(self) -> float:
+        """Largest fill factor of any class (an upper bound for every pair). [dimensionless]"""
+        return max([float(self.ff), *map(float, self.ff_by_class.values())])
 
     def pooled_mask(self, acceptor_class) -> np.ndarray:
         """True where the pooled loss stands in for a class value (neither the class nor its family was fitted).
@@ -157,7 +182,8 @@ class FittedParameters:
     def as_dict(self) -> dict:
         """Parameters for provenance records."""
         return {"loss_ev": dict(self.loss_ev), "eqe_max": self.eqe_max, "offset_scale_ev": self.offset_scale_ev,
-                "ff": self.ff, "loss_slope": self.loss_slope, "ect_ref_ev": self.ect_ref_ev, "source": self.source}
+                "ff": self.ff, "ff_by_class": dict(self.ff_by_class), "loss_slope": self.loss_slope,
+                "ect_ref_ev": self.ect_ref_ev, "source": self.source}
 
 
 def family_of(acceptor_class: str) -> str:
@@ -185,7 +211,9 @@ def load_fitted(path: str | None = None) -> FittedParameters:
         return FittedParameters(loss_ev={str(k): float(v) for k, v in params["loss_ev"].items()},
                                 eqe_max=float(params["eqe_max"]), offset_scale_ev=float(params["offset_scale_ev"]),
                                 ff=float(params["ff"]), loss_slope=float(params.get("loss_slope", 0.0)),
-                                ect_ref_ev=float(params.get("ect_ref_ev", 0.0)), source=str(target),
+                                ect_ref_ev=float(params.get("ect_ref_ev", 0.0)),
+                                ff_by_class={str(k): float(v) for k, v in params.get("ff_by_class", {}).items()},
+                                source=str(target),
                                 meta={k: v for k, v in data.items() if k != "parameters"})
     except (KeyError, TypeError, ValueError) as exc:
         raise ConfigError(f"{target}: not a fitted device model ({type(exc).__name__}: {exc}); rewrite it with "

@@ -183,7 +183,7 @@ def computed_validation(d: pd.DataFrame, levels: pd.DataFrame, raw: pd.DataFrame
     preds, baseline, chosen = _fold_predictions(d, rows, {"computed": comp, "published": rows}, by)
     has_voc = rows["voc_v"].notna()
     err = (baseline - rows["voc_v"])[has_voc]
-    return {"grouping": f"leave one {by} structure out", "by": by, "loss_split_per_fold": chosen,
+    return {"grouping": f"leave one {by} structure out", "by": by, "variants_per_fold": chosen,
             "coverage": {"devices": int(len(d)), "computed": int(covered.sum()), "with_voc": int(has_voc.sum()),
                          "with_pce": int(rows["pce_pct"].notna().sum())},
             "fitted": _metrics(comp, preds["computed"]),

@@ -137,11 +137,13 @@ def _sigma(name, value, shape):
 
 @dataclass(frozen=True)
 class _FlatPair:
-    """Flattened pair levels and σ [eV] in :data:`screen.device.PAIR_LEVELS` order, losses [eV], missing rows."""
+    """Flattened pair levels and σ [eV] in :data:`screen.device.PAIR_LEVELS` order, losses [eV], fill factors,
+    missing rows."""
 
     levels: tuple
     sigmas: tuple
     loss: np.ndarray
+    ff: np.ndarray
     missing: np.ndarray
 
 
@@ -158,14 +160,15 @@ def _flat_pair(model: DeviceModel, levels, shape, sigmas: dict, acceptor_class=N
     checked = tuple(_sigma(name, sigmas[name], shape) for name in _SIGMA_NAMES)
     loss, _pooled = model.loss_ev(acceptor_class)
     loss = np.ascontiguousarray(np.broadcast_to(loss, shape).ravel())
+    ff = np.ascontiguousarray(np.broadcast_to(model.ff_of(acceptor_class), shape).ravel())
     missing = model.needed_missing(flat, flat[0].shape)
-    return _FlatPair(flat, checked, loss, missing)
+    return _FlatPair(flat, checked, loss, ff, missing)
 
 
 def _anchors(model: DeviceModel, pair: _FlatPair):
     """Exact-minus-tabulated efficiency at the mean levels [%], the viable rows and the exact efficiency [%]."""
-    exact = model.figures(pair.levels, pair.loss)
-    tab = model.pce_from_levels(pair.levels, pair.loss, jsc_unit=_jsc_fast, sq_pct=_sq_fast)
+    exact = model.figures(pair.levels, pair.loss, ff=pair.ff)
+    tab = model.pce_from_levels(pair.levels, pair.loss, ff=pair.ff, jsc_unit=_jsc_fast, sq_pct=_sq_fast)
     corr = np.where(np.isfinite(exact["pce_pct"]) & np.isfinite(tab), exact["pce_pct"] - tab, 0.0)
     return np.asarray(corr, dtype=float), np.asarray(exact["viable"], dtype=bool), np.asarray(exact["pce_pct"])
 
@@ -175,7 +178,7 @@ def _sq_below_ev(model: DeviceModel) -> float:
     (Voc ≤ the smallest gap ≤ the absorber gap, Jsc ≤ EQE · Jsc at EQE = 1) is below the limit on the whole table."""
     (jt, _), (st, _) = _tables()
     grid = _TABLE_E_MIN_EV + _TABLE_STEP_EV * np.arange(jt.size)
-    bound = grid * model.value("eqe") * jt * model.pce_factor_pct()
+    bound = grid * model.value("eqe") * jt * model.pce_factor_pct(model.ff_max)
     binds = np.flatnonzero(bound > st * (1 - 1e-9) + 1e-12)
     return float(grid[binds[-1]] + 2 * _TABLE_STEP_EV) if binds.size else 0.0
 
@@ -191,8 +194,8 @@ def _pce_samples(model: DeviceModel, pair: _FlatPair, a: int, b: int, z, corr, s
             sampled.append(x)
         else:
             sampled.append(level[a:b, None])
-    v = np.array(model.pce_from_levels(sampled, pair.loss[a:b, None], jsc_unit=_jsc_fast, sq_pct=_sq_fast,
-                                       sq_below_ev=sq_below), dtype=float)
+    v = np.array(model.pce_from_levels(sampled, pair.loss[a:b, None], ff=pair.ff[a:b, None], jsc_unit=_jsc_fast,
+                                       sq_pct=_sq_fast, sq_below_ev=sq_below), dtype=float)
     if v.shape[1] != z.shape[1]:
         v = np.repeat(v, z.shape[1], axis=1)
     v += np.where(v > 0, corr[a:b, None], 0.0)
@@ -351,7 +354,7 @@ def sample_pce(
     for start in range(0, idx.size, rows):
         sel = idx[start:start + rows]
         sub = _FlatPair(tuple(x[sel] for x in pair.levels), tuple(x[sel] for x in pair.sigmas), pair.loss[sel],
-                        pair.missing[sel])
+                        pair.ff[sel], pair.missing[sel])
         v = _pce_samples(model, sub, 0, sel.size, z, corr[sel], sq_below)
         out_mean[sel], out_sigma[sel], out_p[sel] = _block_moments(v, target, n_samples)
     return {

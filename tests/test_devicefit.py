@@ -224,7 +224,7 @@ def test_evaluate_reports_the_loss_applied():
 def test_constant_variants_alone_choose_no_slope(devices):
     # the nested CV offered only Veldman's constant loss (per split) never picks an E_CT-dependent loss
     cv = devicefit.cross_validate(devices, None, "acceptor", devicefit.CONSTANT_VARIANTS)
-    assert cv.metrics["loss_split_per_fold"] and not any("+slope" in k for k in cv.metrics["loss_split_per_fold"])
+    assert cv.metrics["variants_per_fold"] and not any("+slope" in k for k in cv.metrics["variants_per_fold"])
     assert set(devicefit.CONSTANT_VARIANTS) == {"pooled", "family", "class"}
 
 
@@ -240,3 +240,58 @@ def test_planar_bilayers_are_not_blends(tmp_path):
     assert "planar bilayer, not a bulk-heterojunction blend" in table.at["pentacene-c60-2004", "drop_reason"]
     assert "architecture" not in table.at["pbdbt-y1-2019", "drop_reason"]
     assert "pentacene-c60-2004" not in set(devicefit.read_devices(path)["device_id"])
+
+
+def test_fill_factor_per_acceptor_class_ranks_held_out_devices_better(devices, cvs):
+    # models/reference/devices.csv (published devices): the median FF of fullerene blends (small-molecule
+    # donors) is ≈ 0.58 and of fused-ring non-fullerene blends ≈ 0.70. The FF split chosen inside each
+    # training fold must rank held-out PCE at least as well as one pooled FF, in both groupings, and reach the
+    # issue-11 target Spearman(PCE) ≥ 0.4 (project's own target).
+    for by, cv in cvs.items():
+        pooled = devicefit.cross_validate(devices, None, by, ff_split="pooled").metrics["fitted"]
+        nested = cv.metrics["fitted"]
+        assert nested["spearman_pce"] >= pooled["spearman_pce"], by
+        assert nested["spearman_pce"] >= 0.4, by
+        # the FF does not touch Voc
+        assert nested["voc_mae_v"] == pytest.approx(pooled["voc_mae_v"], abs=1e-12)
+        assert any(", ff class" in k or ", ff family" in k for k in cv.metrics["variants_per_fold"])
+
+
+def test_fill_factor_split_recovers_class_values():
+    # synthetic devices: FF 0.55 for fullerene and 0.72 for fused-ring acceptors (invented), small noise;
+    # the class split wins the inner CV and the fit returns both medians
+    frame = _synthetic(seed=3)
+    cls = np.where(np.arange(len(frame)) % 2 == 0, "fullerene", "nfa-fused")
+    frame = frame.assign(acceptor_class=cls,
+                         ff=np.where(cls == "fullerene", 0.55, 0.72) + np.random.default_rng(4).normal(0, 0.01,
+                                                                                                      len(frame)))
+    best, scores = devicefit.choose_ff_split(frame)
+    assert best in ("family", "class") and scores["pooled"] > scores[best] + 0.05
+    pooled, by_class = devicefit._ff_core(*devicefit._ff_arrays(frame), best)
+    p = FittedParameters(loss_ev={"pooled": 0.5}, eqe_max=0.7, offset_scale_ev=0.05, ff=pooled, ff_by_class=by_class)
+    assert p.ff_for(["fullerene"])[0] == pytest.approx(0.55, abs=0.01)
+    assert p.ff_for(["nfa-fused"])[0] == pytest.approx(0.72, abs=0.01)
+    assert p.ff_for([""])[0] == pytest.approx(np.median(frame["ff"]), abs=1e-12)
+
+
+def test_fill_factor_per_class_reaches_every_path():
+    # evaluate, the sampler and the report header use the class FF; an explicit device.ff overrides it
+    p = FittedParameters(loss_ev={"pooled": 0.55}, eqe_max=0.7, offset_scale_ev=0.05, ff=0.65,
+                         ff_by_class={"fullerene": 0.52, "nfa-fused": 0.71})
+    m = DeviceModel(parameters=p, absorber="both")
+    levels = (-5.4, -3.4, 1.9, -5.7, -3.9, 1.5)
+    classes = np.array(["fullerene", "nfa-fused", "polymer"])
+    out = m.evaluate(*levels, acceptor_class=classes)
+    assert out["ff"].tolist() == [0.52, 0.71, 0.65]
+    assert out["pce_pct"][1] / out["pce_pct"][0] == pytest.approx(0.71 / 0.52, rel=1e-12)
+    from screen.sampling import sample_pce
+    s = sample_pce(m, *(np.full(3, x) for x in levels), acceptor_class=classes, n_samples=64)
+    np.testing.assert_allclose(s["pce_mean_pct"], out["pce_pct"], rtol=1e-9)
+    fixed = DeviceModel(parameters=p, absorber="both", ff=0.6).evaluate(*levels, acceptor_class=classes)
+    assert fixed["ff"].tolist() == [0.6, 0.6, 0.6]
+    with pytest.raises(Exception, match="ff_by_class"):
+        FittedParameters(loss_ev={"pooled": 0.5}, eqe_max=0.7, offset_scale_ev=0.05, ff=0.65,
+                         ff_by_class={"fullerene": 1.4})
+    from screen.report.header import _device_items
+    words = dict(_device_items(m.as_dict()))["Fill factor"]
+    assert "fullerene 0.52" in words and "nfa-fused 0.71" in words

@@ -205,6 +205,23 @@ def _loss_words(dev: dict) -> str:
             f"above it (less below){pooled}")
 
 
+def _ff_words(dev: dict) -> str:
+    """Fill factor: the value, and for a fitted model with class values each class's.
+
+    Examples
+    --------
+    >>> _ff_words({"ff": 0.6755, "ff_set": False, "fitted": {"ff_by_class": {"fullerene": 0.58, "nfa-fused": 0.698}}})
+    '0.68 for other acceptors; per acceptor class: fullerene 0.58, nfa-fused 0.70'
+    """
+    base = _value(dev, "ff")
+    fitted = dev.get("fitted") if isinstance(dev.get("fitted"), dict) else {}
+    classes = fitted.get("ff_by_class") if isinstance(fitted.get("ff_by_class"), dict) else {}
+    if dev.get("ff_set") or not classes:
+        return base
+    parts = ", ".join(f"{esc(k)} {fmt(num(v))}" for k, v in sorted(classes.items()))
+    return f"{base} for other acceptors; per acceptor class: {parts}"
+
+
 def _device_items(dev: dict) -> list[tuple[str, str]]:
     """Rows of the device-model list."""
     absorber = text(dev.get("absorber"))
@@ -220,7 +237,7 @@ def _device_items(dev: dict) -> list[tuple[str, str]]:
     return [
         ("EQE", _value(dev, "eqe")),
         *yield_row,
-        ("Fill factor", _value(dev, "ff")),
+        ("Fill factor", _ff_words(dev)),
         ("Voltage loss", _loss_words(dev)),
         ("Min. \u0394LUMO", _value(dev, "min_delta_lumo_ev", "eV")),
         ("Min. \u0394HOMO", _value(dev, "min_delta_homo_ev", "eV")
