@@ -156,6 +156,12 @@ def test_stage_writes_ranking_folder_and_reuses_dye_table(tmp_path):
     run_dyecell(levels, out, oxide="tio2-anatase", mediator="iodide-triiodide", models_root=folder.parent,
                 settings={"n_samples": 200})
     assert (out / "dyecell" / "dyes.csv").stat().st_mtime_ns == stamp      # cached, not recomputed
+    side = out / "dyecell" / "dyes.csv.meta.json"
+    info = json.loads(side.read_text())
+    info["dascreen"] = "0.0.1-older"                                        # written by another version
+    side.write_text(json.dumps(info))
+    build_dye_table(levels, out, models_root=folder.parent)
+    assert json.loads(side.read_text())["dascreen"] != "0.0.1-older"        # rebuilt, not reused
     iodide = json.loads((out / "dyecell" / "tio2-anatase--iodide-triiodide" / "ranking.meta.json").read_text())
     assert iodide["regeneration_threshold_ev"] == 0.5                       # the couple's own threshold
 

@@ -5,7 +5,7 @@
     OUT/levels.csv  (a run's, raw xTB values)      or   a dye file (measured potentials)
        │ dye_table: dye models (models/dyecell/<protocol-id>/) → E(S⁺/S), E₀₋₀, σ; anchors; element check
        ▼
-    OUT/dyecell/dyes.csv (+ .meta.json)            cached: reused while levels and models are unchanged
+    OUT/dyecell/dyes.csv (+ .meta.json)            cached: reused while levels, models and version are unchanged
        │ rank_dyes: oxide + mediator → driving forces, viability, Voc, Jsc, PCE, Monte-Carlo spread
        ▼
     OUT/dyecell/<oxide>--<mediator>/ranking.csv, ranking.safe.csv, ranking.meta.json, shortlist.sdf, report.html
@@ -26,6 +26,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from screen import __version__
 from screen.dyecell.calibrate import MODELS_DIR, load_models
 from screen.dyecell.flags import describe
 from screen.dyecell.library import Material, resolve_mediator, resolve_oxide
@@ -154,7 +155,7 @@ def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str
     kind, frame, meta = read_input(path)
     target = Path(out_dir) / "dyecell" / "dyes.csv"
     info = {"input": str(path.resolve()), "input_sha256": sha256_file(path), "kind": kind,
-            "levels_meta": meta, "versions": library_versions()}
+            "levels_meta": meta, "dascreen": __version__, "versions": library_versions()}
     if kind == "levels":
         pid = (meta or {}).get("protocol_id")
         if not pid and models_folder is None:
@@ -181,7 +182,8 @@ def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str
 
 
 def _cached(target: Path, info: dict) -> pd.DataFrame | None:
-    """The cached dye table when its sidecar matches the input and models."""
+    """The cached dye table when its sidecar matches the input, the models, and the dascreen and library
+    versions (another version may read or check the input differently)."""
     side = Path(f"{target}.meta.json")
     if not (target.is_file() and side.is_file()):
         return None
@@ -190,6 +192,8 @@ def _cached(target: Path, info: dict) -> pd.DataFrame | None:
     except ValueError:
         return None
     if old.get("input_sha256") != info["input_sha256"] or old.get("models") != info.get("models"):
+        return None
+    if old.get("dascreen") != info["dascreen"] or old.get("versions") != info["versions"]:
         return None
     table = pd.read_csv(target, dtype={"id": str}, keep_default_na=False, na_values=[""])
     return table if list(table.columns) == DYE_COLUMNS else None
