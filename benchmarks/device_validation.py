@@ -134,7 +134,7 @@ def computed(d, devices, film, raw_path) -> dict:
     for by in GROUPINGS:
         r = computed_validation(d, levels, raw, by)
         record[by] = {k: r[k] for k in ("grouping", "coverage", "fitted", "scharber", "fitted_published_levels",
-                                        "mean_voc_baseline", "level_errors")}
+                                        "mean_voc_baseline", "level_errors", "published_one_at_a_time")}
         c = r["coverage"]
         print(f"held out ({r['grouping']}; loss variants {r['variants_per_fold']}): {c['computed']} usable devices "
               f"computed, {c['with_voc']} with Voc, {c['with_pce']} with PCE")
@@ -152,6 +152,11 @@ def computed(d, devices, film, raw_path) -> dict:
         err = r["level_errors"]
         print("  computed - published levels (mean signed / MAE, eV): " + "; ".join(
             f"{k.replace('_ev', '')} {v['mse_ev']:+.2f}/{v['mae_ev']:.2f}" for k, v in err.items()))
+        print("  what the computed levels cost: the fitted model with one level (or one material's three) put back "
+              "to its published value:")
+        for name, m in r["published_one_at_a_time"].items():
+            print(f"    {name:22s} Voc MAE {_f(m['voc_mae_v'])} V  Spearman Voc {_f(m['spearman_voc'], '+.2f')}  "
+                  f"Spearman PCE {_f(m['spearman_pce'], '+.2f')}")
         print(f"computed_{by}_n={r['fitted']['n']} computed_{by}_coverable_rows={int(cov.sum())} "
               + " ".join(f"computed_{by}_{model}_{k}={r[model][k]:.4f}"
                          for model in ("fitted", "scharber", "fitted_published_levels")

@@ -23,7 +23,10 @@ have raw values there:
 3. Voc and PCE are predicted on the computed levels and compared with the
    measured ones, beside Scharber's rule on the same computed levels, the same
    fitted models on the published levels of the same devices, and the
-   training-mean Voc.
+   training-mean Voc;
+4. which computed level costs the most: the same predictions with one of the
+   six levels (or one material's three) put back to its published value
+   (:data:`SUBSTITUTIONS`).
 
 Limits of the Voc ranking
 -------------------------
@@ -62,7 +65,7 @@ from screen.devicefit import GROUPINGS, _e_ct, _metrics, _rho, fold_model, predi
 from screen.devicelevels import LEVELS
 
 __all__ = ["RAW_PATH", "REFERENCE_DIR", "read_raw", "coverage", "out_of_sample_levels", "computed_levels",
-           "computed_validation", "rank_limits", "levels_for"]
+           "computed_validation", "rank_limits", "levels_for", "SUBSTITUTIONS"]
 
 _REPO = Path(__file__).resolve().parent.parent
 #: raw GFN2-xTB values of the reference structures of the default protocol (polymers at the chain limit)
@@ -116,6 +119,12 @@ def out_of_sample_levels(structures, raw: pd.DataFrame, sets: dict, fit=fit_all)
         out = apply_models(raw[raw["_can"].eq(can)], models, "film")
         rows[can] = out[list(_KINDS)].iloc[0].astype(float)
     return pd.DataFrame.from_dict(rows, orient="index", columns=list(_KINDS))
+
+
+#: level sets put back to their published values one at a time (name → columns), step 4 of the module docstring
+SUBSTITUTIONS = {**{col: [col] for col in LEVELS},
+                 "donor levels": [c for c in LEVELS if c.startswith("donor_")],
+                 "acceptor levels": [c for c in LEVELS if c.startswith("acceptor_")]}
 
 
 def computed_levels(d: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFrame:
@@ -175,12 +184,17 @@ def computed_validation(d: pd.DataFrame, levels: pd.DataFrame, raw: pd.DataFrame
         ``coverage`` (devices usable / with both materials computed / with Voc / with PCE),
         ``fitted``, ``fitted_published_levels``, ``scharber`` (metrics as in
         :func:`screen.devicefit.cross_validate`), ``mean_voc_baseline``,
-        ``level_errors`` (computed − published) and the loss variants chosen.
+        ``level_errors`` (computed − published), ``published_one_at_a_time``
+        (the fitted model's metrics with each :data:`SUBSTITUTIONS` entry put back
+        to the published values) and the loss variants chosen.
     """
     covered = coverage(d, raw)
     rows = d[covered]
     comp = computed_levels(rows, levels)
-    preds, baseline, chosen = _fold_predictions(d, rows, {"computed": comp, "published": rows}, by)
+    views = {"computed": comp, "published": rows}
+    for name, cols in SUBSTITUTIONS.items():
+        views[f"put back: {name}"] = comp.assign(**{c: rows[c] for c in cols})
+    preds, baseline, chosen = _fold_predictions(d, rows, views, by)
     has_voc = rows["voc_v"].notna()
     err = (baseline - rows["voc_v"])[has_voc]
     return {"grouping": f"leave one {by} structure out", "by": by, "variants_per_fold": chosen,
@@ -190,7 +204,9 @@ def computed_validation(d: pd.DataFrame, levels: pd.DataFrame, raw: pd.DataFrame
             "fitted_published_levels": _metrics(rows, preds["published"]),
             "scharber": _metrics(comp, predict(DeviceModel(model="scharber", absorber="donor"), comp)),
             "mean_voc_baseline": {"voc_mae_v": float(err.abs().mean()), "voc_mse_v": float(err.mean())},
-            "level_errors": _level_errors(rows, comp)}
+            "level_errors": _level_errors(rows, comp),
+            "published_one_at_a_time": {name: _metrics(views[f"put back: {name}"], preds[f"put back: {name}"])
+                                        for name in SUBSTITUTIONS}}
 
 
 def rank_limits(d: pd.DataFrame, held_out: pd.DataFrame) -> dict:

@@ -79,3 +79,21 @@ def test_rank_limits_on_a_small_table():
     # E_CT 1.2, 1.2, 1.3, 1.1, 1.1 eV: ranks (3.5, 3.5, 5, 1.5, 1.5) against (3, 4, 5, 1, 2) → 9/√90
     assert lim["e_ct_spearman"]["pooled"] == pytest.approx(9 / np.sqrt(90), abs=1e-9)
     assert lim["by_level_source"]["film_set"]["n"] == 2 and lim["by_level_source"]["converted"]["voc_mae_v"] == 0.0
+
+
+def test_published_levels_put_back_one_set_at_a_time(devices, raw):
+    # step 4 of the computed-level check: each substitution replaces exactly its columns by the published values
+    rows = devices[devicevalidation.coverage(devices, raw)]
+    keys = {canonical(s) for s in pd.concat([rows["donor_smiles"], rows["acceptor_smiles"]])}
+    levels = pd.DataFrame({"homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5}, index=sorted(keys))  # one material
+    r = devicevalidation.computed_validation(devices, levels, raw, "acceptor")
+    subs = r["published_one_at_a_time"]
+    assert set(subs) == set(devicevalidation.SUBSTITUTIONS)
+    assert np.isnan(r["fitted"]["spearman_pce"])  # every pair the same: nothing to rank
+    comp = devicevalidation.computed_levels(rows, levels)
+    cols = devicevalidation.SUBSTITUTIONS["acceptor levels"]
+    assert cols == ["acceptor_homo_ev", "acceptor_lumo_ev", "acceptor_gap_opt_ev"]
+    view = comp.assign(**{c: rows[c] for c in cols})
+    preds, _, _ = devicevalidation._fold_predictions(devices, rows, {"v": view}, "acceptor")
+    assert subs["acceptor levels"] == devicefit._metrics(view, preds["v"])
+    assert np.isfinite(subs["acceptor levels"]["spearman_pce"])
