@@ -14,21 +14,25 @@ that:
 from __future__ import annotations
 
 import contextlib
+import csv
+import io
 import json
 import math
 import os
+import re
 import sys
 import tempfile
 import time
 from collections.abc import Iterator
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from screen.errors import InputError
 
-__all__ = ["cell_text", "atomic_path", "write_csv", "write_json", "read_json", "read_csv_checked", "Journal",
-           "Progress"]
+__all__ = ["cell_text", "atomic_path", "csv_text", "write_csv", "write_json", "read_json", "read_csv_checked",
+           "Journal", "Progress"]
 
 
 @contextlib.contextmanager
@@ -108,9 +112,107 @@ def _umask() -> int:
     return mask
 
 
+def _csv_field(value: str, lineterminator: str) -> str:
+    """One text field as :mod:`csv` writes it in a row (quoted when it holds a delimiter, quote or line end).
+
+    Examples
+    --------
+    >>> print(_csv_field('a,b"c', "\\n"), _csv_field("plain", "\\n"))
+    "a,b""c" plain
+    """
+    buf = io.StringIO()
+    csv.writer(buf, lineterminator=lineterminator).writerow([value, ""])  # two fields: no lone-field rule
+    return buf.getvalue()[:-1 - len(lineterminator)]
+
+
+def _csv_texts(values: list[str], lineterminator: str) -> list[str]:
+    """Text fields as :mod:`csv` writes them: only those holding a special character are passed to it.
+
+    The special characters (``,`` ``"`` CR LF NUL and those of the line
+    terminator) are a superset of what makes :mod:`csv` quote a field, and a
+    field without any is written as it is; one search over the joined column
+    rules them out in the usual case; each distinct field that needs it is
+    quoted once.
+    """
+    special = re.compile("[" + re.escape(',"\r\n\0' + lineterminator) + "]")
+    if not special.search("".join(values)):
+        return values
+    quoted = {v: _csv_field(v, lineterminator) for v in set(values) if special.search(v)}
+    return [quoted.get(v, v) for v in values]
+
+
+def _csv_column(series: pd.Series, lineterminator: str) -> list[str] | None:
+    """Fields of one column as ``DataFrame.to_csv`` writes them; None for a dtype left to pandas.
+
+    Float columns are ``values.astype(str)`` (what pandas does), integers and
+    booleans ``str`` of the Python value, text columns (pandas strings, or
+    objects that are all ``str`` or missing) the text itself, quoted where
+    :mod:`csv` quotes it (:func:`_csv_texts`); a missing cell is ``''``.  Every
+    other dtype (dates, categories, nullable numbers, mixed objects) gives None.
+    """
+    dtype = series.dtype
+    if isinstance(dtype, np.dtype) and dtype.kind == "f":
+        values = series.to_numpy()
+        out = values.astype(str)
+        out[np.isnan(values)] = ""
+        return out.tolist()
+    if isinstance(dtype, np.dtype) and dtype.kind in "iub":
+        return list(map(str, series.to_numpy().tolist()))
+    if isinstance(dtype, pd.StringDtype) or dtype == object:
+        values = series.to_numpy(dtype=object, copy=True)
+        values[pd.isna(values)] = ""
+        out = values.tolist()
+        return _csv_texts(out, lineterminator) if all(type(v) is str for v in out) else None
+    return None
+
+
+def csv_text(frame: pd.DataFrame, lineterminator: str = os.linesep) -> str:
+    """``frame.to_csv(index=False, lineterminator=lineterminator)``, the same text made column by column.
+
+    pandas hands every cell to :mod:`csv`; here each column is converted
+    once (:func:`_csv_column`), only the text fields that need quoting go
+    through :mod:`csv`, and the rows are joined with ``","``.  A frame with a
+    column of another dtype, a column label that is not a string, or fewer
+    than two columns is written by pandas itself.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        The table.
+    lineterminator : str
+        Line end (pandas' default is ``os.linesep``).
+
+    Returns
+    -------
+    str
+        The CSV text, header first.
+
+    Examples
+    --------
+    >>> t = pd.DataFrame({"id": ["a,b", None], "x": [1.5, float("nan")], "ok": [True, False]})
+    >>> csv_text(t, "\\n")
+    'id,x,ok\\n"a,b",1.5,True\\n,,False\\n'
+    >>> csv_text(t, "\\n") == t.to_csv(index=False, lineterminator="\\n")
+    True
+    """
+    names = list(frame.columns)
+    columns = [None]
+    if len(names) > 1 and all(type(c) is str for c in names):
+        columns = [_csv_column(frame.iloc[:, i], lineterminator) for i in range(len(names))]
+    if any(c is None for c in columns):
+        return frame.to_csv(index=False, lineterminator=lineterminator)
+    lines = [",".join(_csv_texts(names, lineterminator))]
+    lines += map(",".join, zip(*columns))
+    return lineterminator.join(lines) + lineterminator
+
+
 def write_csv(frame: pd.DataFrame, target: str | os.PathLike) -> str:
-    """Write ``frame`` as CSV (no index, UTF-8, line ends ``os.linesep``) atomically; return the text written."""
-    text = frame.to_csv(index=False)  # line ends os.linesep, as DataFrame.to_csv(path) writes them
+    """Write ``frame`` as CSV (no index, UTF-8, line ends ``os.linesep``) atomically; return the text written.
+
+    The text is ``frame.to_csv(index=False)`` (:func:`csv_text`), line ends ``os.linesep`` as
+    ``DataFrame.to_csv(path)`` writes them.
+    """
+    text = csv_text(frame)
     with atomic_path(target) as tmp:
         with open(tmp, "w", encoding="utf-8", newline="") as fh:
             fh.write(text)

@@ -8,9 +8,11 @@ from __future__ import annotations
 
 import os
 
+import numpy as np
 import pandas as pd
 import pytest
 
+from screen.io import csv_text
 from screen.rank_io import _sdf_records, computed_geometries, run_rank
 
 #: the published donor-only model (Scharber et al., Adv. Mater. 18 (2006) 789, doi:10.1002/adma.200501717)
@@ -32,6 +34,52 @@ def test_safe_copy_is_the_ranking_csv_when_no_cell_needs_neutralising(tmp_path):
     assert (path.parent / "ranking.safe.csv").read_bytes() == path.read_bytes()
     # the CSV written from the shared text is the one DataFrame.to_csv writes
     assert path.read_text(encoding="utf-8") == pd.read_csv(path).to_csv(index=False)
+
+
+#: text cells that the csv module quotes (delimiter, quote, line ends) or leaves alone (spaces, tabs, NUL, Unicode)
+_TRICKY_TEXT = ["", "a", "a,b", 'q"', '"', "line\nbreak", "cr\rx", "crlf\r\n", " lead", "trail ", "\ttab", "=1+1",
+                "-5.4", "\u00fcn\u00ef \u2713", "nul\0x", "'", ";", "x\x0by", "a\u2028b"]
+
+
+def _tricky_frame(n: int = 120) -> pd.DataFrame:
+    """Every column kind the fast CSV writer handles: pandas strings (NaN and NA missing), objects, numbers."""
+    rng = np.random.default_rng(7)
+    text = [_TRICKY_TEXT[i % len(_TRICKY_TEXT)] for i in range(n)]
+    special = [np.nan, np.inf, -np.inf, -0.0, 0.0, 1e16, 1e-5, 1e-4, 9.999999999999999e-05, 5e-324, 0.1 + 0.2]
+    size = n - len(special)
+    floats = np.concatenate([special, rng.standard_normal(size) * 10.0 ** rng.integers(-20, 20, size)])
+    return pd.DataFrame({
+        "str": pd.Series(text, dtype="str"),
+        "object": pd.Series([None if i % 7 == 0 else t for i, t in enumerate(text)], dtype=object),
+        "string": pd.Series([pd.NA if i % 5 == 0 else t for i, t in enumerate(text)], dtype="string"),
+        "float": floats, "float32": rng.standard_normal(n).astype(np.float32),
+        "int": rng.integers(-10**12, 10**12, n), "uint8": rng.integers(0, 255, n).astype(np.uint8),
+        "bool": rng.random(n) > 0.5, 'label,"quoted"': 1.0,
+    })
+
+
+@pytest.mark.parametrize("lineterminator", ["\n", "\r\n"])
+@pytest.mark.parametrize("columns", [None, ["str", "float"], ["float", "int"], ["object", "string"]])
+def test_csv_text_is_what_pandas_writes(lineterminator, columns):
+    from screen.io import _csv_column
+
+    frame = _tricky_frame()
+    frame = frame if columns is None else frame[columns]
+    assert all(_csv_column(frame[c], lineterminator) is not None for c in frame)  # made here, not by pandas
+    for part in (frame, frame.iloc[:0], frame.iloc[::-1]):
+        assert csv_text(part, lineterminator) == part.to_csv(index=False, lineterminator=lineterminator)
+
+
+@pytest.mark.parametrize("frame", [
+    pd.DataFrame({"mixed": [1, "x"], "x": [1.0, 2.0]}),  # an object column that is not all text
+    pd.DataFrame({"only": ["", "x"]}),  # one column: csv quotes a lone empty field
+    pd.DataFrame({"when": pd.to_datetime(["2020-01-01", None]), "x": [1, 2]}),
+    pd.DataFrame({"n": pd.array([1, None], dtype="Int64"), "x": ["a", "b"]}),
+    pd.DataFrame({0: ["a"], 1: ["b"]}),  # labels that are not strings
+    pd.DataFrame(),
+])
+def test_csv_text_leaves_other_tables_to_pandas(frame):
+    assert csv_text(frame) == frame.to_csv(index=False)
 
 
 def test_safe_copy_neutralises_formula_like_ids(tmp_path):

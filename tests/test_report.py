@@ -19,7 +19,8 @@ from screen.device import DeviceModel
 from screen.flags import INFO_FLAGS
 from screen.report import describe_flag, render_report, safe_csv_frame, write_report
 from screen.report.export import safe_csv_text
-from screen.report.format import has_text, text, texts, truthies, truthy
+from screen.report.format import (data_value, data_values, fmt, fmts, has_text, num, numbers, pm_html, pm_htmls, text,
+                                  texts, truthies, truthy)
 
 XSS_ID = "<script>alert(1)</script>"
 CREATED = "2000-01-01 00:00 UTC (test)"
@@ -385,6 +386,13 @@ def test_safe_csv_text_reuses_the_given_text_only_when_nothing_is_neutralised():
     assert safe_csv_text(clean, plain) == plain
 
 
+def test_safe_csv_text_reuses_the_text_when_a_formula_character_only_follows_a_nul_inside_a_cell():
+    table = pd.DataFrame({"id": ["a\0=x", "b\0@", 3.5], "homo_ev": [-5.4, -5.1, -5.0]})
+    plain = table.to_csv(index=False, lineterminator="\n")
+    assert safe_csv_text(table, plain) == plain
+    assert safe_csv_text(table.assign(id=["a", "=x", 3.5]), plain) != plain
+
+
 @pytest.mark.parametrize("values, dtype", [
     (["a", None, " ok ", ""], "str"),
     (["yes", 1, None, float("nan"), True, "=x"], object),
@@ -397,6 +405,52 @@ def test_column_helpers_equal_the_cell_helpers(values, dtype):
     assert texts(series).tolist() == series.map(text).tolist()
     assert truthies(series).tolist() == series.map(truthy).tolist()
     assert has_text(series).tolist() == series.map(text).ne("").tolist()
+
+
+#: cells a number column of the report may hold: rounding edges, signed zeros, ±inf, NaN, text, bools, None
+_NUMBER_CELLS = [-5.423, 5.425, -0.004, -0.0, 0.0, 0.005, -0.05, 1e300, -1e-300, float("inf"), float("-inf"),
+                 float("nan"), None, "2.5", "x", True, 3, np.float64(-1.005), np.float32(0.1), pd.NA]
+
+
+@pytest.mark.parametrize("digits, plus", [(2, False), (1, False), (0, False), (2, True), (4, True)])
+def test_number_column_helpers_equal_the_cell_helpers(digits, plus):
+    values = _NUMBER_CELLS
+    sigmas = values[3:] + values[:3]
+    assert numbers(values) == pytest.approx([num(v) for v in values], nan_ok=True)
+    assert fmts(values, digits, plus) == [fmt(v, digits, plus) for v in values]
+    assert pm_htmls(values, sigmas, digits) == [pm_html(v, s, digits) for v, s in zip(values, sigmas)]
+    assert data_values(values) == [data_value(v) for v in values]
+
+
+def test_table_cells_are_the_values_of_the_records():
+    """The column reader of the tables gives, row by row, what ``to_dict("records")`` gives."""
+    from screen.report.tables import _cells
+
+    frame = pd.DataFrame({"f": [1.5, np.nan, 2.0], "i": [1, 2, 3], "b": [True, False, True],
+                          "s": pd.Series(["a", None, "c"], dtype="str"),
+                          "na": pd.Series(["a", pd.NA, "c"], dtype="string"),
+                          "o": pd.Series([np.float32(0.1), None, "x"], dtype=object),
+                          "n": pd.array([1, None, 3], dtype="Int64")})
+    records = frame.to_dict("records")
+    for col in [*frame.columns, "absent"]:
+        cells = _cells(frame, col)
+        expected = [row.get(col) for row in records]
+        assert [type(c) for c in cells] == [type(e) for e in expected], col
+        assert [text(c) for c in cells] == [text(e) for e in expected], col
+
+
+def test_svg_ids_are_prefixed_where_a_word_boundary_precedes_id():
+    """The id prefixing of the figures, against the regular expression with ``\\b`` on made-up SVG-like text."""
+    import random
+
+    from screen.report.figures import _prefixed_ids
+
+    pieces = ["i", "d", "=", '"', "g", " ", "x", ":", "\u00e9", "_", "1", "-", "\n", 'id="', 'gid="', "<g ", ">"]
+    rng = random.Random(5)
+    for _ in range(3000):
+        svg = "".join(rng.choice(pieces) for _ in range(rng.randint(0, 30)))
+        expected = re.sub(r'\bid="([^"]+)"', lambda m: f'id="p-{m.group(1)}"', svg)
+        assert _prefixed_ids(svg, "p") == expected, svg
 
 
 def test_svg_geometry_rounding_equals_rounding_each_number():

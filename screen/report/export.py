@@ -13,10 +13,14 @@ import re
 import numpy as np
 import pandas as pd
 
+from screen.io import csv_text as _csv_text
+
 __all__ = ["safe_csv_frame", "safe_csv_text"]
 
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 _PLAIN_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
+#: a text cell that begins with a formula character, in the cells joined after NUL characters
+_FORMULA_AFTER_NUL = re.compile("\0[" + re.escape("".join(_FORMULA_START)) + "]")
 
 
 def _text_columns(frame: pd.DataFrame) -> list:
@@ -43,6 +47,31 @@ def _formula_cells(values: np.ndarray) -> np.ndarray:
     for i in np.flatnonzero(starts):
         starts[i] = not _PLAIN_NUMBER.fullmatch(values[i])
     return starts
+
+
+def _may_hold_formulas(values: np.ndarray) -> bool:
+    """False when no text cell of an object array begins with a formula character (one search).
+
+    The text cells are joined, each after a NUL character; a NUL inside a cell
+    can only add a false alarm, which :func:`_formula_cells` then settles.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> _may_hold_formulas(np.array(["ok", None, 3.0], dtype=object)), _may_hold_formulas(np.array(["a", "-1"]))
+    (False, True)
+    """
+    texts = [v for v in values.tolist() if isinstance(v, str)]
+    return _FORMULA_AFTER_NUL.search("\0" + "\0".join(texts)) is not None
+
+
+def _needs_neutralising(frame: pd.DataFrame) -> bool:
+    """True when a text cell of ``frame`` would be neutralised by :func:`safe_csv_frame`."""
+    for col in _text_columns(frame):
+        values = frame[col].to_numpy(dtype=object)
+        if _may_hold_formulas(values) and _formula_cells(values).any():
+            return True
+    return False
 
 
 def safe_csv_frame(ranking: pd.DataFrame) -> pd.DataFrame:
@@ -85,6 +114,8 @@ def safe_csv_frame(ranking: pd.DataFrame) -> pd.DataFrame:
 def safe_csv_text(ranking: pd.DataFrame, csv_text: str | None = None) -> str:
     """The spreadsheet-safe CSV of a table: ``safe_csv_frame(ranking).to_csv(index=False, lineterminator="\\n")``.
 
+    The text is made by :func:`screen.io.csv_text` (the same text as pandas').
+
     Parameters
     ----------
     ranking : pandas.DataFrame
@@ -109,7 +140,6 @@ def safe_csv_text(ranking: pd.DataFrame, csv_text: str | None = None) -> str:
     >>> safe_csv_text(t.iloc[1:], "given\\n")
     'given\\n'
     """
-    if csv_text is not None and not any(_formula_cells(ranking[c].to_numpy(dtype=object)).any()
-                                        for c in _text_columns(ranking)):
+    if csv_text is not None and not _needs_neutralising(ranking):
         return csv_text
-    return safe_csv_frame(ranking).to_csv(index=False, lineterminator="\n")
+    return _csv_text(safe_csv_frame(ranking), "\n")

@@ -24,7 +24,7 @@ from screen.io import cell_number as num
 from screen.io import cell_text as text
 
 __all__ = ["NOT_RECORDED", "num", "text", "esc", "fmt", "fmt_pm", "pm_html", "data_value", "get", "shorten",
-           "truthy", "texts", "truthies", "has_text"]
+           "truthy", "texts", "truthies", "has_text", "numbers", "fmts", "pm_htmls", "data_values"]
 
 #: Shown for a value the run did not record.
 NOT_RECORDED = "not recorded"
@@ -77,6 +77,61 @@ def data_value(value) -> str:
     """``data-value`` attribute for numeric sorting (empty for missing)."""
     x = _number(value)
     return "" if math.isnan(x) else format(x, ".6g")
+
+
+def numbers(values) -> list[float]:
+    """``[num(v) for v in values]``: cells as floats, NaN for anything that is not a finite real number.
+
+    Examples
+    --------
+    >>> numbers([1.5, float("inf"), None, "2", True])
+    [1.5, nan, nan, 2.0, nan]
+    """
+    return [v if type(v) is float and v - v == 0.0 else num(v) for v in values]  # v - v is NaN for ±inf and NaN
+
+
+def fmts(values, digits: int = 2, plus: bool = False) -> list[str]:
+    """``[fmt(v, digits, plus) for v in values]`` in one pass (the cells of a table column).
+
+    Examples
+    --------
+    >>> fmts([-5.423, None, -0.001, 0.1], 2, plus=True)
+    ['−5.42', '—', '0.00', '+0.10']
+    """
+    spec = f"+.{digits}f" if plus else f".{digits}f"
+    zero = f"{0.0:.{digits}f}"
+    out = []
+    for x in numbers(values):
+        if x != x:
+            out.append("\u2014")
+            continue
+        shown = format(x, spec)
+        out.append(zero if shown.lstrip("+-") == zero else shown.replace("-", _MINUS))  # −0.00 → 0.00
+    return out
+
+
+def pm_htmls(values, sigmas, digits: int = 2) -> list[str]:
+    """``[pm_html(v, s, digits) for v, s in zip(values, sigmas)]`` in one pass.
+
+    Examples
+    --------
+    >>> pm_htmls([-5.4, -5.4, None], [0.15, 0.0, 0.1])
+    ['−5.40 <span class="pm">± 0.15</span>', '−5.40', '—']
+    """
+    xs, ss = numbers(values), numbers(sigmas)
+    return [base if x != x or s != s or s <= 0 else f'{base} <span class="pm">\u00b1 {shown}</span>'
+            for base, shown, x, s in zip(fmts(xs, digits), fmts(ss, digits), xs, ss)]
+
+
+def data_values(values) -> list[str]:
+    """``[data_value(v) for v in values]`` in one pass.
+
+    Examples
+    --------
+    >>> data_values([-5.4231234, None, 3])
+    ['-5.42312', '', '3']
+    """
+    return ["" if x != x else format(x, ".6g") for x in numbers(values)]
 
 
 def get(mapping, *keys, default=None):

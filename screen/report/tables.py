@@ -8,11 +8,12 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 import pandas as pd
 
 from screen.flags import FLAGS, INFO_FLAGS, codes_of, describe
 from screen.report.drawings import molecule_svg
-from screen.report.format import (data_value, esc, fmt, get, has_text, num, pm_html, shorten, text, texts,
+from screen.report.format import (data_values, esc, fmts, get, has_text, num, pm_htmls, shorten, text, texts,
                                   truthies)
 
 __all__ = ["with_level_details", "select_shortlist", "shortlist_table", "full_table", "not_ranked_table",
@@ -147,16 +148,40 @@ def _prob(value) -> str:
     return f"{pct:.0f} %"
 
 
-def _num_cell(value, shown: str, extra_class: str = "") -> str:
-    """``<td data-value=…>shown</td>`` (``shown`` is already HTML; right-aligned by the CSS)."""
+def _cells(frame: pd.DataFrame, col: str) -> list:
+    """The values of one column as ``frame.to_dict("records")`` gives them row by row (None when absent).
+
+    Numeric and boolean columns are their Python numbers, pandas string columns
+    with NaN for a missing cell their strings and NaN; any other column is boxed
+    by pandas itself (``to_dict("list")``).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> t = pd.DataFrame({"x": [1.5, None], "id": ["a", None]})
+    >>> _cells(t, "x"), _cells(t, "id"), _cells(t, "name")
+    ([1.5, nan], ['a', nan], [None, None])
+    """
+    if col not in frame:
+        return [None] * len(frame)
+    series = frame[col]
+    dtype = series.dtype
+    if (isinstance(dtype, np.dtype) and dtype.kind in "fiub"
+            or isinstance(dtype, pd.StringDtype) and dtype.na_value is np.nan):
+        return series.tolist()
+    return frame[[col]].to_dict("list")[col]
+
+
+def _num_cells(values: list, shown: list[str], extra_class: str = "") -> list[str]:
+    """``<td data-value=…>shown</td>`` per row (``shown`` is already HTML; right-aligned by the CSS)."""
     cls = f' class="{extra_class}"' if extra_class else ""
-    return f'<td{cls} data-value="{data_value(value)}">{shown}</td>'
+    return [f'<td{cls} data-value="{value}">{html}</td>' for value, html in zip(data_values(values), shown)]
 
 
-def _rank_cell(row) -> str:
-    """The rank, bold and centred."""
-    rank = num(row.get("rank"))
-    return _num_cell(rank, "" if math.isnan(rank) else f"{int(rank)}", "rank")
+def _rank_cells(frame: pd.DataFrame) -> list[str]:
+    """The rank of each row, bold and centred."""
+    ranks = [num(r) for r in _cells(frame, "rank")]
+    return _num_cells(ranks, ["" if math.isnan(r) else f"{int(r)}" for r in ranks], "rank")
 
 
 def _header(cells) -> str:
@@ -176,40 +201,53 @@ def _header(cells) -> str:
     return "<thead><tr>" + "".join(out) + "</tr></thead>"
 
 
-def _candidate_cell(row, with_smiles: bool) -> str:
-    """Id (bold), name and role badge; optionally the SMILES, shortened."""
-    ident, name = text(row.get("id")), text(row.get("name"))
+def _candidate_cell(ident: str, name, role, smiles=None) -> str:
+    """Id (bold), name and role badge; the SMILES, shortened, when given (not None)."""
+    name = text(name)
     parts = [f'<span class="cid">{esc(ident)}</span>']
     if name and name != ident:
         parts.append(f'<span class="cname">{esc(name)}</span>')
-    badge = _role_badge(row.get("role"))
+    badge = _role_badge(role)
     if badge:
         parts.append(badge)
-    if with_smiles:
-        smi = text(row.get("smiles"))
+    if smiles is not None:
+        smi = text(smiles)
         if smi:
             parts.append(f'<code class="smi" title="{esc(smi)}">{esc(shorten(smi, 48))}</code>')
     return f'<td class="cand" data-value="{esc(ident)}">' + "".join(parts) + "</td>"
 
 
-def _level_cells(row) -> list[str]:
-    """HOMO, LUMO, optical gap (each ± σ), ΔLUMO, ΔHOMO, Voc, Jsc cells."""
-    return [
-        _num_cell(row.get("homo_ev"), pm_html(row.get("homo_ev"), row.get("homo_sigma_ev"))),
-        _num_cell(row.get("lumo_ev"), pm_html(row.get("lumo_ev"), row.get("lumo_sigma_ev"))),
-        _num_cell(row.get("gap_opt_ev"), pm_html(row.get("gap_opt_ev"), row.get("gap_opt_sigma_ev"))),
-        _num_cell(row.get("delta_lumo_ev"), fmt(row.get("delta_lumo_ev"))),
-        _num_cell(row.get("delta_homo_ev"), fmt(row.get("delta_homo_ev"))),
-        _num_cell(row.get("voc_v"), fmt(row.get("voc_v"))),
-        _num_cell(row.get("jsc_ma_cm2"), fmt(row.get("jsc_ma_cm2"), 1)),
-    ]
+def _candidate_cells(frame: pd.DataFrame, ids: list[str], with_smiles: bool) -> list[str]:
+    """:func:`_candidate_cell` of each row."""
+    smiles = _cells(frame, "smiles") if with_smiles else [None] * len(frame)
+    return [_candidate_cell(i, n, r, s)
+            for i, n, r, s in zip(ids, _cells(frame, "name"), _cells(frame, "role"), smiles)]
 
 
-def _pce_cell(row) -> str:
-    """PCE ± σ, emphasised."""
-    value = fmt(row.get("pce_pct"), 1)
-    rest = pm_html(row.get("pce_pct"), row.get("pce_sigma_pct"), 1)[len(value):]
-    return _num_cell(row.get("pce_pct"), f"<strong>{value}</strong>{rest}", "pce")
+def _level_columns(frame: pd.DataFrame) -> list[list[str]]:
+    """HOMO, LUMO, optical gap (each ± σ), ΔLUMO, ΔHOMO, Voc, Jsc cells, one list per column."""
+    out = []
+    for col in ("homo_ev", "lumo_ev", "gap_opt_ev"):
+        values = _cells(frame, col)
+        out.append(_num_cells(values, pm_htmls(values, _cells(frame, col.replace("_ev", "_sigma_ev")))))
+    for col, digits in (("delta_lumo_ev", 2), ("delta_homo_ev", 2), ("voc_v", 2), ("jsc_ma_cm2", 1)):
+        values = _cells(frame, col)
+        out.append(_num_cells(values, fmts(values, digits)))
+    return out
+
+
+def _pce_cells(frame: pd.DataFrame) -> list[str]:
+    """PCE ± σ of each row, emphasised."""
+    values = _cells(frame, "pce_pct")
+    shown = [f"<strong>{value}</strong>{pm[len(value):]}"
+             for value, pm in zip(fmts(values, 1), pm_htmls(values, _cells(frame, "pce_sigma_pct"), 1))]
+    return _num_cells(values, shown, "pce")
+
+
+def _prob_cells(frame: pd.DataFrame) -> list[str]:
+    """The probability of beating the target of each row."""
+    values = _cells(frame, "p_above_target")
+    return _num_cells(values, [_prob(v) for v in values])
 
 
 def _passes_cell(value) -> str:
@@ -222,6 +260,11 @@ def _passes_cell(value) -> str:
     return f'<td data-value="">{esc(value)}</td>'
 
 
+def _table_rows(ids: list[str], columns: list[list[str]]) -> list[str]:
+    """``<tr data-id=…>`` rows from the cells of each column."""
+    return [f'<tr data-id="{esc(ident)}">' + "".join(cells) + "</tr>" for ident, cells in zip(ids, zip(*columns))]
+
+
 # --------------------------------------------------------------------------- #
 # Tables
 # --------------------------------------------------------------------------- #
@@ -231,26 +274,32 @@ def shortlist_table(rows: pd.DataFrame, meta: dict) -> str:
                     ("Candidate", "text", "", "id")] + _LEVEL_HEADERS
                    + [(target_label(meta), "num", "descending", "p_above_target"),
                       ("Notes", "", "", "flags")])
-    body = []
-    for _, row in rows.iterrows():
-        ident = text(row.get("id"))
-        svg = molecule_svg(text(row.get("smiles")), f"structure of {ident}")
+    ids = [text(i) for i in _cells(rows, "id")]
+    drawings = []
+    for ident, smiles in zip(ids, _cells(rows, "smiles")):
+        svg = molecule_svg(text(smiles), f"structure of {ident}")
         drawing = svg if svg is not None else '<span class="nostruct">no structure available</span>'
-        body.append(
-            f'<tr data-id="{esc(ident)}">'
-            + _rank_cell(row)
-            + f'<td class="struct">{drawing}</td>'
-            + _candidate_cell(row, with_smiles=True)
-            + "".join(_level_cells(row))
-            + _pce_cell(row)
-            + _num_cell(row.get("p_above_target"), _prob(row.get("p_above_target")))
-            + f'<td class="notes">{_flags_html(row.get("flags"), meta)}</td>'
-            + "</tr>"
-        )
+        drawings.append(f'<td class="struct">{drawing}</td>')
+    notes = [f'<td class="notes">{_flags_html(flags, meta)}</td>' for flags in _cells(rows, "flags")]
+    body = _table_rows(ids, [_rank_cells(rows), drawings, _candidate_cells(rows, ids, with_smiles=True),
+                             *_level_columns(rows), _pce_cells(rows), _prob_cells(rows), notes])
     if not body:
         body.append('<tr><td colspan="13" class="empty">no candidates to show</td></tr>')
     return (f'<table class="sortable shortlist" id="shortlist-table">{head}<tbody>'
             + "\n".join(body) + "</tbody></table>")
+
+
+def _compact_notes(flag_cells: list, meta: dict) -> list[str]:
+    """The plain-words flags of each row, ``;``-joined (each distinct flag set described once)."""
+    notes_of: dict[str, str] = {}  # a few distinct flag sets among thousands of rows
+    out = []
+    for cell in flag_cells:
+        flags = text(cell)
+        notes = notes_of.get(flags)
+        if notes is None:
+            notes = notes_of[flags] = "; ".join(esc(describe(c, meta)) for c in _flag_codes(flags)) or "\u2014"
+        out.append(f'<td class="notes-compact">{notes}</td>')
+    return out
 
 
 def full_table(ranking: pd.DataFrame, meta: dict) -> str:
@@ -260,38 +309,23 @@ def full_table(ranking: pd.DataFrame, meta: dict) -> str:
                    + [(target_label(meta), "num", "descending", "p_above_target"),
                       ("Passes", "num", "descending", "passes"), ("Notes", "", "", "flags")]
                    + [(esc(c), "text", "", "") for c in extra])
-    body = []
-    notes_of: dict[str, str] = {}  # a few distinct flag sets among thousands of rows
-    for row in ranking.to_dict("records"):  # plain dicts: fast .get on 10 000 rows
-        ident = text(row.get("id"))
-        flags = text(row.get("flags"))
-        notes = notes_of.get(flags)
-        if notes is None:
-            notes = notes_of[flags] = "; ".join(esc(describe(c, meta)) for c in _flag_codes(flags)) or "\u2014"
-        extras = "".join(f'<td class="extra">{esc(shorten(text(row.get(c)), 120))}</td>' for c in extra)
-        body.append(
-            f'<tr data-id="{esc(ident)}">'
-            + _rank_cell(row)
-            + _candidate_cell(row, with_smiles=False)
-            + "".join(_level_cells(row))
-            + _pce_cell(row)
-            + _num_cell(row.get("p_above_target"), _prob(row.get("p_above_target")))
-            + _passes_cell(row.get("passes"))
-            + f'<td class="notes-compact">{notes}</td>'
-            + extras
-            + "</tr>"
-        )
+    ids = [text(i) for i in _cells(ranking, "id")]
+    extras = [[f'<td class="extra">{esc(shorten(text(v), 120))}</td>' for v in _cells(ranking, c)] for c in extra]
+    body = _table_rows(ids, [_rank_cells(ranking), _candidate_cells(ranking, ids, with_smiles=False),
+                             *_level_columns(ranking), _pce_cells(ranking), _prob_cells(ranking),
+                             [_passes_cell(v) for v in _cells(ranking, "passes")],
+                             _compact_notes(_cells(ranking, "flags"), meta), *extras])
     if not body:
         body.append('<tr><td colspan="14" class="empty">the ranking is empty</td></tr>')
     return (f'<table class="sortable full" id="full-table">{head}<tbody>'
             + "\n".join(body) + "</tbody></table>")
 
 
-def _unranked_reason(row) -> tuple[str, str]:
-    """Status (lower case, ``ok`` when blank) and the reason a levels row is not ranked."""
-    st = text(row.get("status")).strip().lower() or "ok"
-    err = text(row.get("error")).strip()
-    reason = text(row.get("reason")).strip()
+def _unranked_reason(status, error, reason) -> tuple[str, str]:
+    """Status (lower case, ``ok`` when blank) and the reason a levels row is not ranked, from its cells."""
+    st = text(status).strip().lower() or "ok"
+    err = text(error).strip()
+    reason = text(reason).strip()
     if st == "ok":
         why = "computed, but absent from the ranking (removed by the ranking settings)"
     elif err and reason and reason not in err:
@@ -329,15 +363,7 @@ def not_ranked_table(levels: pd.DataFrame, ranking: pd.DataFrame) -> tuple[str, 
     body = []
     if levels is not None and len(levels):
         body += _unranked_rows(levels, ranking)
-    for row in bad[[c for c in ("id", "name", "reason", "flags", "smiles") if c in bad]].to_dict("records"):
-        why = text(row.get("reason")).strip() or "; ".join(describe(c) for c in _flag_codes(row.get("flags"))) \
-            or "no reason recorded"
-        smi = text(row.get("smiles"))
-        body.append(
-            f'<tr data-id="{esc(row.get("id"))}"><td class="cid">{esc(row.get("id"))}</td>'
-            f'<td>{esc(text(row.get("name")))}</td><td><span class="status st-other">not viable</span></td>'
-            f'<td class="reason">{esc(why)}</td>'
-            f'<td><code class="smi" title="{esc(smi)}">{esc(shorten(smi, 60))}</code></td></tr>')
+    body += _not_viable_body(bad)
     if not body:
         return '<p class="quiet">Every input row was ranked.</p>', 0
     table = ('<table class="unranked" id="not-ranked-table"><thead><tr><th scope="col">Id</th>'
@@ -345,6 +371,41 @@ def not_ranked_table(levels: pd.DataFrame, ranking: pd.DataFrame) -> tuple[str, 
              '<th scope="col">SMILES as given</th></tr></thead><tbody>' + "\n".join(body)
              + "</tbody></table>")
     return table, len(body)
+
+
+def _smiles_cells(values: list) -> list[str]:
+    """The "SMILES as given" cell of each row (each distinct SMILES escaped once)."""
+    done: dict[str, str] = {}
+    out = []
+    for value in values:
+        smi = text(value)
+        cell = done.get(smi)
+        if cell is None:
+            cell = done[smi] = f'<td><code class="smi" title="{esc(smi)}">{esc(shorten(smi, 60))}</code></td>'
+        out.append(cell)
+    return out
+
+
+def _unranked_row(ident, name, status_html: str, why_html: str, smiles_cell: str) -> str:
+    """One row of the not-ranked table: id, name, status badge, reason and SMILES cells."""
+    shown = esc(ident)
+    return (f'<tr data-id="{shown}"><td class="cid">{shown}</td><td>{esc(text(name))}</td>'
+            f'<td>{status_html}</td><td class="reason">{why_html}</td>{smiles_cell}</tr>')
+
+
+def _not_viable_body(bad: pd.DataFrame) -> list[str]:
+    """Table rows of the ranked pairs that are not viable: the ranking's reason, else their flags in words."""
+    whys: dict[tuple[str, str], str] = {}  # a few distinct reasons among thousands of rows
+    body = []
+    for ident, name, reason, flags, cell in zip(_cells(bad, "id"), _cells(bad, "name"), _cells(bad, "reason"),
+                                                 _cells(bad, "flags"), _smiles_cells(_cells(bad, "smiles"))):
+        key = (text(reason).strip(), text(flags))
+        why = whys.get(key)
+        if why is None:
+            why = whys[key] = esc(key[0] or "; ".join(describe(c) for c in _flag_codes(key[1]))
+                                  or "no reason recorded")
+        body.append(_unranked_row(ident, name, '<span class="status st-other">not viable</span>', why, cell))
+    return body
 
 
 def _unranked_rows(levels: pd.DataFrame, ranking: pd.DataFrame) -> list[str]:
@@ -356,15 +417,10 @@ def _unranked_rows(levels: pd.DataFrame, ranking: pd.DataFrame) -> list[str]:
     missing_ok = status.eq("ok") & ~ids.isin(ranked_ids)
     rows = levels[status.ne("ok") | missing_ok]
     body = []
-    for _, row in rows.iterrows():
-        st, why = _unranked_reason(row)
+    for ident, name, state, error, reason, cell in zip(
+            _cells(rows, "id"), _cells(rows, "name"), _cells(rows, "status"), _cells(rows, "error"),
+            _cells(rows, "reason"), _smiles_cells(_cells(rows, "smiles"))):
+        st, why = _unranked_reason(state, error, reason)
         cls = {"rejected": "st-rejected", "failed": "st-failed"}.get(st, "st-other")
-        smi = text(row.get("smiles"))
-        name = text(row.get("name"))
-        body.append(
-            f'<tr data-id="{esc(row.get("id"))}"><td class="cid">{esc(row.get("id"))}</td>'
-            f'<td>{esc(name)}</td><td><span class="status {cls}">{esc(st)}</span></td>'
-            f'<td class="reason">{esc(why)}</td>'
-            f'<td><code class="smi" title="{esc(smi)}">{esc(shorten(smi, 60))}</code></td></tr>'
-        )
+        body.append(_unranked_row(ident, name, f'<span class="status {cls}">{esc(st)}</span>', esc(why), cell))
     return body
