@@ -270,8 +270,10 @@ MODEL_TEXT = {
     "fitted": ('Fitted energy-loss model (the default): V<sub>oc</sub> = (E<sub>CT</sub> \u2212 '
                '\u0394E<sub>loss</sub>)/q with E<sub>CT</sub> the smaller of the interface gap '
                '(LUMO<sub>acc</sub> \u2212 HOMO<sub>don</sub>) and the smaller optical gap; '
-               '\u0394E<sub>loss</sub> (per acceptor class where the cross-validation keeps one) and an EQE '
-               'that falls as an offset approaches zero, both fitted on published devices; V<sub>oc</sub> '
+               '\u0394E<sub>loss</sub> (per acceptor class where the cross-validation keeps one), an EQE '
+               'whose charge-generation yield falls as an offset approaches zero (over the offset scale '
+               '\u0394<sub>0</sub> below) and a fill factor per acceptor class, all fitted on published '
+               'devices; V<sub>oc</sub> '
                'never above the gap and '
                'PCE never above the detailed-balance limit.'),
     "scharber": ('Published Scharber rule (reference model): V<sub>oc</sub> = (LUMO<sub>acc</sub> \u2212 '
