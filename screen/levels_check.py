@@ -182,8 +182,8 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table") -> None:
     Raises
     ------
     InputError
-        Naming the file, line, id, column, value and the fix; up to five
-        problems in one message.
+        Naming the file, line, id, column, value and the fix; the number of
+        problems and the first five of them in one message.
     """
     ids = (frame["id"].fillna("").astype(str).to_numpy() if "id" in frame
            else np.array([str(i) for i in range(len(frame))]))
@@ -197,7 +197,7 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table") -> None:
             found.append((i, f"line {_line(frame, i)} (id {ids[i]!r}), column {col} = {val:g}: {msg}"))
     problems = [text for _, text in sorted(found, key=lambda p: p[0])]
     if problems:
-        more = f" (and {len(problems) - _MAX_LISTED} more)" if len(problems) > _MAX_LISTED else ""
+        more = f" (first {_MAX_LISTED} shown)" if len(problems) > _MAX_LISTED else ""
         head = problems[0] if len(problems) == 1 else f"{len(problems)} problems{more}:\n  " + "\n  ".join(
             problems[:_MAX_LISTED])
         raise InputError(f"{source}: {head}")

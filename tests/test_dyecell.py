@@ -418,3 +418,82 @@ def test_reason_of_a_non_positive_e00_is_not_missing():
     out = evaluate(DyeCellModel(), 1.1, -2.1, _oxide(-0.5), _mediator(0.56))
     assert not out["viable"][0] and "is missing" not in out["viability"][0]
     assert "not a positive excitation energy" in out["viability"][0]
+
+
+# --------------------------------------------------------------------------- audit: problem count wording
+
+def test_dye_file_problem_count_says_how_many_are_shown():
+    rows = {"id": [f"d{i}" for i in range(7)], "e_ox_v_nhe": [1.1] * 7, "e00_ev": [590.0] * 7}  # 7 nm slips
+    with pytest.raises(InputError) as err:
+        dyes_from_file(pd.DataFrame(rows), "misc.csv")
+    msg = str(err.value)
+    assert msg.startswith("misc.csv: 7 problems (first 5 shown):") and "more)" not in msg
+    assert msg.count("\n  ") == 5
+
+
+# --------------------------------------------------------------------------- p-type Voc loss, reasons, digits
+# (audit fixes: separate p-type loss; "no photovoltage" names the loss or the edge; driving forces in eV with
+# the decimals that show them below the threshold)
+
+def test_p_type_nio_iodide_is_viable_with_the_p_type_loss():
+    # NiO valence band +0.50 V, I3-/I- +0.35 V (library): ideal Voc 0.15 V. NiO/iodide cells with organic
+    # push-pull dyes measure Voc ≈ 0.08-0.12 V (P1: Qin et al., JACS 130 (2008) 8570)  # from memory
+    # so the p-type loss is 0.05 V, not the n-type 0.20 V that left no photovoltage
+    model = DyeCellModel()
+    assert model.voc_loss_p_v == pytest.approx(0.05) and model.voc_loss_v == pytest.approx(0.20)
+    nio, iodide = resolve_oxide("nio"), resolve_mediator("iodide-triiodide")
+    out = evaluate(model, 1.44, 2.26, nio, iodide)  # P1: E(S+/S) 1.44 V, E0-0 2.26 eV  # from memory
+    assert out["viable"][0] and out["voc_v"][0] == pytest.approx(0.50 - 0.35 - 0.05)
+    # the n-type loss does not act on a p-type oxide, and vice versa
+    assert evaluate(DyeCellModel(voc_loss_v=0.5), 1.44, 2.26, nio, iodide)["voc_v"][0] == pytest.approx(0.10)
+    assert evaluate(DyeCellModel(voc_loss_p_v=0.5), 1.10, 2.49, _oxide(-0.5), iodide)["voc_v"][0] == \
+        pytest.approx(0.65)
+    # the sampler uses the same loss: every sample of a far-from-threshold dye is viable
+    mc = sample_pce(model, 1.44, 2.26, nio, iodide, e_ox_sigma_v=0.05, e00_sigma_ev=0.05, n_samples=200)
+    assert mc["p_viable"][0] == pytest.approx(1.0) and mc["pce_mean_pct"][0] > 0
+    with pytest.raises(ConfigError, match="voc_loss_p_v"):
+        DyeCellModel(voc_loss_p_v=-0.01)
+
+
+def test_p_type_with_a_larger_loss_names_the_loss_not_the_edge():
+    out = evaluate(DyeCellModel(voc_loss_p_v=0.20), 1.44, 2.26, resolve_oxide("nio"),
+                   resolve_mediator("iodide-triiodide"))
+    why = out["viability"][0]
+    assert not out["viable"][0] and "voc_nonpositive" in out["flags"][0]
+    assert "beyond" not in why and "not more negative" not in why
+    assert "E_VB \u2212 E_redox = +0.50 \u2212 (+0.35) = +0.15 V" in why
+    assert "used up by the assumed Voc loss of 0.20 V (voc_loss_p_v)" in why and "\u22120.05 V" in why
+
+
+def test_no_photovoltage_reason_tells_loss_from_edge_n_type():
+    # SnO2 conduction band 0.00 V, a mediator at +0.15 V: the mediator is on the right side of the edge; the
+    # 0.15 V ideal voltage is used up by the 0.20 V loss
+    loss = evaluate(DyeCellModel(), 1.5, 3.0, resolve_oxide("sno2"), _mediator(0.15))["viability"][0]
+    assert "beyond" not in loss and "not more positive" not in loss
+    assert "E_redox \u2212 E_CB = +0.15 \u2212 (+0.00) = +0.15 V" in loss
+    assert "used up by the assumed Voc loss of 0.20 V (voc_loss_v)" in loss
+    # mediator really on the wrong side of the edge: +0.2 V mediator, +0.3 V conduction band
+    edge = evaluate(DyeCellModel(), 1.5, 3.0, _oxide(0.3), _mediator(0.2))["viability"][0]
+    assert "is not more positive than the conduction-band edge" in edge and "= \u22120.10 V" in edge
+    assert "Voc loss" not in edge
+    # p-type, mediator more positive than the valence band: NiO +0.50 V with [Co(bpy)3] +0.56 V
+    p_edge = evaluate(DyeCellModel(), 1.44, 2.26, resolve_oxide("nio"), resolve_mediator("co-bpy3"))["viability"][0]
+    assert "is not more negative than the valence-band edge" in p_edge and "= \u22120.06 V" in p_edge
+
+
+def test_reason_shows_the_decimals_that_put_a_drive_below_its_threshold():
+    # LD-01 with [Cu(tmby)2] (+0.87 V): E(S+/S) = 1.068 V, regeneration drive 0.198 eV < 0.20 eV
+    out = evaluate(DyeCellModel(), 1.068, 2.0, resolve_oxide("tio2-anatase"), resolve_mediator("cu-tmby2"))
+    why = out["viability"][0]
+    assert out["flags"][0] == "regeneration_low"
+    assert "driving force 0.198 eV; regeneration needs \u2265 0.20 eV" in why
+    assert "+1.068 V vs NHE" in why and "(+0.870 V)" in why
+    assert "0.20 V more positive" not in why
+    # a drive clearly below keeps two decimals; driving forces are in eV, never V
+    out = evaluate(DyeCellModel(), 1.02, 2.0, resolve_oxide("tio2-anatase"), resolve_mediator("cu-tmby2"))
+    assert "driving force 0.15 eV;" in out["viability"][0]
+    assert not re.search(r"\d V more positive", out["viability"][0])
+    # p-type injection: E(S*/S-) ≈ E(S+/S) 0.68 V is 0.18 eV above a 0.50 V valence band
+    out = evaluate(DyeCellModel(), 0.68, 2.0, resolve_oxide("nio"), resolve_mediator("iodide-triiodide"))
+    assert "injection_low" in out["flags"][0]
+    assert "driving force 0.18 eV; hole injection needs \u2265 0.20 eV" in out["viability"][0]

@@ -57,6 +57,14 @@ def _levels(tmp_path: Path, rows: list[dict], pid: str = PID) -> Path:
     return path
 
 
+def _rfolder(out: Path, mediator: str, settings: dict | None = None, oxide: str = "tio2-anatase") -> Path:
+    """The ranking folder of a library oxide and mediator (``OUT/dyecell/<oxide>--<mediator>--<settings hash>``)."""
+    from screen.dyecell.library import resolve_mediator, resolve_oxide
+    from screen.dyecell.stage import ranking_folder
+
+    return ranking_folder(out, resolve_oxide(oxide), resolve_mediator(mediator), settings)
+
+
 def _demo_rows():
     return [
         {"id": "good", "name": "anchored", "smiles": "OC(=O)C(C#N)=Cc1ccc(N(c2ccccc2)c2ccccc2)s1", "status": "ok",
@@ -139,7 +147,8 @@ def test_stage_writes_ranking_folder_and_reuses_dye_table(tmp_path):
     out = tmp_path / "out"
     path = run_dyecell(levels, out, oxide="tio2-anatase", mediator="co-bpy3", models_root=folder.parent,
                        settings={"n_samples": 200})
-    assert path == out / "dyecell" / "tio2-anatase--co-bpy3" / "ranking.csv"
+    assert path == _rfolder(out, "co-bpy3", {"n_samples": 200}) / "ranking.csv"
+    assert path.parent.name.startswith("tio2-anatase--co-bpy3--")
     ranking = pd.read_csv(path, keep_default_na=False)
     assert list(ranking.columns[: len(RANKING_COLUMNS)]) == RANKING_COLUMNS
     assert ranking["id"].tolist() == ["good", "bare"]
@@ -162,7 +171,7 @@ def test_stage_writes_ranking_folder_and_reuses_dye_table(tmp_path):
     side.write_text(json.dumps(info))
     build_dye_table(levels, out, models_root=folder.parent)
     assert json.loads(side.read_text())["dascreen"] != "0.0.1-older"        # rebuilt, not reused
-    iodide = json.loads((out / "dyecell" / "tio2-anatase--iodide-triiodide" / "ranking.meta.json").read_text())
+    iodide = json.loads((_rfolder(out, "iodide-triiodide", {"n_samples": 200}) / "ranking.meta.json").read_text())
     assert iodide["regeneration_threshold_ev"] == 0.5                       # the couple's own threshold
 
 
@@ -252,7 +261,7 @@ def test_cli_end_to_end_with_the_engine(tmp_path, capsys):
                    "bare,N#CC(C#N)=Cc1ccc(N(C)C)cc1,dye\n")
     out = tmp_path / "run"
     assert main(["dyecell", str(src), "--out", str(out), "--cores", "1", "--set", "dyecell.n_samples=100"]) == 0
-    ranking = pd.read_csv(out / "dyecell" / "tio2-anatase--co-bpy3" / "ranking.csv", keep_default_na=False)
+    ranking = pd.read_csv(_rfolder(out, "co-bpy3", {"n_samples": 100}) / "ranking.csv", keep_default_na=False)
     assert set(ranking["id"]) == {"anchored", "bare"}
     row = ranking.set_index("id").loc["bare"]
     assert "no_anchor" in row["flags"] and row["pce_pct"] == ""
@@ -280,7 +289,7 @@ def test_cli_refuses_a_bad_dye_file_before_ranking(tmp_path, capsys, text, expec
     assert main(["dyecell", "--levels", str(f), "--out", str(tmp_path / "o")]) == 2
     captured = capsys.readouterr()
     assert f"{f}: " in captured.err and expected in captured.err and "Traceback" not in captured.err
-    assert captured.out == "" and not (tmp_path / "o" / "dyecell" / "tio2-anatase--co-bpy3").exists()
+    assert captured.out == "" and not list((tmp_path / "o").glob("dyecell/tio2-anatase--co-bpy3*"))
 
 
 def test_cli_out_that_is_a_file_is_refused(tmp_path, capsys):
@@ -321,21 +330,24 @@ def test_cli_lists_rows_that_are_not_ranked(tmp_path, capsys):
     assert "rejected zinc: contains Zn" in text and "rejected bad: SMILES does not parse" in text
 
 
-def test_cli_polymer_repeat_unit_is_rejected_before_computing(tmp_path, capsys, monkeypatch):
-    """A repeat unit never reaches the shared stages; it comes back as a rejected row and the counts agree."""
+# --------------------------------------------------------------------------- shared stages faked (no engine): the
+# polymer set-aside, and the audit of a new user (protocol, inputs, ranking folders, candidate guard, default
+# re-rank input, typos; one test per finding)
+
+def _fake_stages(tmp_path: Path, monkeypatch) -> tuple[Path, list]:
+    """Dye models for the default protocol and shared stages that only prepare (no engine); (models root, calls)."""
     import screen.launch
     import screen.stages
-    from screen.cli import main
     from screen.config import Config
     from screen.prepare import prepare, read_manifest
 
     pid = Config.load(None, {}).protocol_id
     ref, comp = _synthetic_reference(tmp_path)
     root = dcal.save_models(dcal.fit_models(comp, ref, protocol_id=pid), tmp_path / "models").parent
-    given = []
+    calls = []
 
-    def fake_workflow(cfg, out, cores, targets, **kwargs):  # the prepare stage only; nothing is computed
-        given.append(Path(cfg["candidates"]).read_text())
+    def fake_workflow(cfg, out, cores, targets, **kwargs):
+        calls.append(cfg["candidates"])
         work = Path(out) / "work" / "candidates"
         if not (work / "prepared" / "manifest.csv").is_file():
             prepare(cfg["candidates"], work / "prepared")
@@ -347,12 +359,19 @@ def test_cli_polymer_repeat_unit_is_rejected_before_computing(tmp_path, capsys, 
     def fake_computed(manifest_path, electronic_paths, cfg):
         manifest = read_manifest(manifest_path)
         rows = [{"id": r["id"], "smiles": r["smiles"], "status": r["status"], "error": r["error"],
-                 "representation": r["representation"],
-                 **(_raw(11.2, 5.1, 1.1) if r["status"] == "ok" else {})} for _, r in manifest.iterrows()]
+                 "representation": r["representation"], **(_raw(11.2, 5.1, 1.1) if r["status"] == "ok" else {})} for _, r in manifest.iterrows()]
         return pd.DataFrame(rows), pd.DataFrame()
 
     monkeypatch.setattr(screen.launch, "run_workflow", fake_workflow)
     monkeypatch.setattr(screen.stages, "_read_computed", fake_computed)
+    return root, calls
+
+
+def test_cli_polymer_repeat_unit_is_rejected_before_computing(tmp_path, capsys, monkeypatch):
+    """A repeat unit never reaches the shared stages; it comes back as a rejected row and the counts agree."""
+    from screen.cli import main
+
+    root, calls = _fake_stages(tmp_path, monkeypatch)
     src = tmp_path / "dyes.csv"
     src.write_text("id,smiles\n"
                    "D1,OC(=O)C(C#N)=Cc1ccc(N(C)C)cc1\n"
@@ -361,6 +380,7 @@ def test_cli_polymer_repeat_unit_is_rejected_before_computing(tmp_path, capsys, 
     out = tmp_path / "run"
     assert main(["dyecell", str(src), "--out", str(out), "--models", str(root), "--cores", "1",
                  "--set", "dyecell.n_samples=100"]) == 0
+    given = [Path(c).read_text() for c in calls]
     assert given and all("*" not in text and "POLY" not in text for text in given)   # never computed
     assert not (out / "work" / "candidates" / "prepared" / "oligomers.csv").exists()
     levels = pd.read_csv(out / "dyecell" / "levels_raw.csv", dtype=str, keep_default_na=False)
@@ -372,5 +392,203 @@ def test_cli_polymer_repeat_unit_is_rejected_before_computing(tmp_path, capsys, 
     assert "3 rows: 2 ok, 1 rejected" in text and "2 dyes ranked on tio2-anatase with co-bpy3" in text
     assert "metal-containing" not in text
     assert text.count("not a sensitiser dye") == 2        # when set aside, then in the levels summary; not repeated
-    ranking = pd.read_csv(out / "dyecell" / "tio2-anatase--co-bpy3" / "ranking.csv", keep_default_na=False)
+    ranking = pd.read_csv(_rfolder(out, "co-bpy3", {"n_samples": 100}) / "ranking.csv", keep_default_na=False)
     assert sorted(ranking["id"]) == ["D1", "D2"]
+
+
+def test_levels_of_a_protocol_without_dye_models_name_both_protocols_and_the_cheap_fix(tmp_path, capsys):
+    from screen.cli import main
+    from screen.dyecell.stage import record_inputs
+
+    folder = _install(tmp_path)
+    old = "tblite-gfn2-ff-e9d48633"                            # a protocol id whose dye models are not shipped
+    levels = _levels(tmp_path, _demo_rows(), pid=old)
+    out = tmp_path / "o"
+    record_inputs(out, candidates={"path": "/data/my_dyes.csv", "sha256": "0" * 64})
+    assert main(["dyecell", "--levels", str(levels), "--out", str(out), "--models", str(folder.parent)]) == 2
+    err = capsys.readouterr().err
+    assert f"was computed with protocol {old}" in err and f"are for protocol {PID}" in err
+    assert f"`dascreen dyecell /data/my_dyes.csv --out {out}`" in err and "results store" in err
+    assert "--refit" in err.split("dascreen dyecell /data/my_dyes.csv")[1]      # refit named after the cheap fix
+    assert "is missing" not in err and "Traceback" not in err and err.count("error") == 1
+    # the current protocol itself has no models: then --refit is the fix
+    with pytest.raises(ConfigError, match=f"computed with protocol {old}, the current protocol.*--refit"):
+        build_dye_table(levels, out, models_root=folder.parent, current_protocol=old)
+
+
+def test_cli_refuses_candidates_and_levels_together_before_any_work(tmp_path, capsys, monkeypatch):
+    from screen.cli import main
+
+    _, calls = _fake_stages(tmp_path, monkeypatch)
+    src = tmp_path / "dyes.csv"
+    src.write_text("id,smiles\nD1,OC(=O)C(C#N)=Cc1ccc(N(C)C)cc1\n")
+    f = tmp_path / "measured.csv"
+    f.write_text("id,e_ox_v_nhe,e00_ev\nD1,1.1,2.1\n")
+    assert main(["dyecell", str(src), "--levels", str(f), "--out", str(tmp_path / "o")]) == 2
+    captured = capsys.readouterr()
+    assert "give either CANDIDATES or --levels, not both" in captured.err
+    assert calls == [] and not (tmp_path / "o").exists() and captured.out == ""
+
+
+def test_ranking_folder_carries_a_settings_hash(tmp_path, capsys):
+    from screen.cli import main
+    from screen.dyecell.stage import settings_hash
+
+    f = tmp_path / "measured.csv"
+    f.write_text("id,e_ox_v_nhe,e00_ev,smiles\nD1,1.1,2.1,OC(=O)c1ccccc1\n")
+    out = tmp_path / "o"
+    base = ["dyecell", "--levels", str(f), "--out", str(out), "--set", "dyecell.n_samples=100"]
+    assert main(base) == 0
+    assert main(base + ["--set", "dyecell.min_drive_inj_ev=0.6"]) == 0
+    text = capsys.readouterr().out
+    first, second = _rfolder(out, "co-bpy3", {"n_samples": 100}), _rfolder(
+        out, "co-bpy3", {"n_samples": 100, "min_drive_inj_ev": 0.6})
+    assert first != second and (first / "ranking.csv").is_file() and (second / "ranking.csv").is_file()
+    assert first.name == f"tio2-anatase--co-bpy3--{settings_hash({'n_samples': 100})}"
+    assert json.loads((second / "ranking.meta.json").read_text())["settings_hash"] == second.name.split("--")[-1]
+    assert f"ranking -> {second / 'ranking.csv'}" in text
+    # the oxide and mediator are in the name already; a number given as an integer is the same setting
+    assert settings_hash({"oxide": "nio", "mediator": "tempo", "target_pce_pct": 8}) == settings_hash({})
+
+
+def test_candidate_guard_compares_the_users_files_not_the_internal_copy(tmp_path, capsys, monkeypatch):
+    from screen.cli import main
+
+    root, calls = _fake_stages(tmp_path, monkeypatch)
+    first, second = tmp_path / "first.csv", tmp_path / "second.csv"
+    first.write_text("id,smiles,role\nD1,OC(=O)C(C#N)=Cc1ccc(N(C)C)cc1,dye\n")         # role column: copied
+    second.write_text("id,smiles,role\nD2,OC(=O)C(C#N)=Cc1ccc(N(CC)CC)cc1,dye\n")
+    out = tmp_path / "o"
+    args = ["--out", str(out), "--models", str(root), "--cores", "1", "--set", "dyecell.n_samples=100"]
+    assert main(["dyecell", str(first)] + args) == 0
+    capsys.readouterr()
+    n = len(calls)
+    assert main(["dyecell", str(second)] + args) == 2
+    err = capsys.readouterr().err
+    assert f"holds the run of {first}" in err and f"this run is of {second}" in err and "--overwrite" in err
+    assert "dyecell/candidates.csv" not in err and len(calls) == n                       # nothing computed
+    same = tmp_path / "copy_of_first.csv"
+    same.write_text(first.read_text())
+    assert main(["dyecell", str(same)] + args) == 0                                      # same content: same run
+    assert main(["dyecell", str(first)] + args) == 0
+    assert main(["dyecell", str(second)] + args + ["--overwrite"]) == 0
+
+
+def test_rerank_without_levels_uses_the_last_levels_input(tmp_path, capsys):
+    from screen.cli import main
+
+    f = tmp_path / "measured.csv"
+    f.write_text("id,e_ox_v_nhe,e00_ev,smiles\nD1,1.1,2.1,OC(=O)c1ccccc1\n")
+    out = tmp_path / "o"
+    assert main(["dyecell", "--levels", str(f), "--out", str(out), "--set", "dyecell.n_samples=100"]) == 0
+    capsys.readouterr()
+    assert main(["dyecell", "--out", str(out), "--mediator", "iodide-triiodide", "--set",
+                 "dyecell.n_samples=100"]) == 0
+    text = capsys.readouterr().out
+    assert f"re-ranking {f}" in text and "1 dyes ranked on tio2-anatase with iodide-triiodide" in text
+    assert (_rfolder(out, "iodide-triiodide", {"n_samples": 100}) / "ranking.csv").is_file()
+    # an empty folder: the message names the file the dye mode re-ranks from, not only OUT/levels.csv
+    assert main(["dyecell", "--out", str(tmp_path / "empty")]) == 2
+    err = capsys.readouterr().err
+    assert "dyecell/levels_raw.csv" in err and "--levels FILE" in err
+    with pytest.raises(SystemExit):
+        main(["dyecell", "--help"])
+    help_text = " ".join(capsys.readouterr().out.split())
+    assert "(default OUT/levels.csv)" not in help_text and "OUT/dyecell/levels_raw.csv" in help_text
+    assert "<oxide>--<mediator>--<settings hash>" in help_text
+
+
+@pytest.mark.parametrize("option, typo, meant", [("--oxide", "tio2-anatse", "tio2-anatase"),
+                                                 ("--mediator", "iodide", "iodide-triiodide")])
+def test_library_typo_gets_a_did_you_mean_before_any_work(tmp_path, capsys, monkeypatch, option, typo, meant):
+    from screen.cli import main
+
+    _, calls = _fake_stages(tmp_path, monkeypatch)
+    src = tmp_path / "dyes.csv"
+    src.write_text("id,smiles\nD1,OC(=O)C(C#N)=Cc1ccc(N(C)C)cc1\n")
+    assert main(["dyecell", str(src), "--out", str(tmp_path / "o"), option, typo]) == 2
+    err = capsys.readouterr().err
+    assert f"Did you mean {meant}" in err and "Library ids:" in err
+    assert calls == []                                                                    # refused before computing
+
+
+# --------------------------------------------------------------------------- report: p-type labels, diagram
+# (audit fixes: the p-type report uses p-type formulas and labels; the diagram draws the nearest not-viable
+# dyes that miss a driving-force threshold and explains the ±1σ boxes)
+
+def _measured(tmp_path: Path, rows: list[tuple]) -> Path:
+    """A measured-dye file; the last field of a row is its SMILES (benzoic acid: anchored, benzene: no anchor)."""
+    f = tmp_path / "measured.csv"
+    pd.DataFrame(rows, columns=["id", "e_ox_v_nhe", "e00_ev", "smiles"]).to_csv(f, index=False)
+    return f
+
+
+def test_p_type_report_uses_p_type_formulas_and_labels(tmp_path):
+    f = _measured(tmp_path, [("PD1", 1.55, 2.30, "OC(=O)c1ccccc1"), ("PD2", 1.20, 2.00, "OC(=O)c1ccccc1")])
+    path = run_dyecell(f, tmp_path / "o", oxide="nio", mediator="iodide-triiodide", settings={"n_samples": 100})
+    r = pd.read_csv(path, keep_default_na=False)
+    assert r["passes"].map(str).eq("True").all()              # NiO/iodide works with the p-type loss
+    assert r["voc_v"].astype(float).round(3).eq(0.10).all()    # 0.50 − 0.35 − 0.05 V
+    page = (path.parent / "report.html").read_text()
+    head = page[:page.index('<h2 id="not-ranked"')]
+    assert "E<sub>CB</sub> \u2212 E(S\u207a/S*)" not in head and "(n-type" not in head
+    assert "E<sub>redox</sub> \u2212 E(S/S\u207b)" in head and "E(S\u207a/S) \u2212 E<sub>VB</sub>" in head
+    assert 'E(S\u207a/S*) <span class="unit">' not in head                     # column header
+    assert 'E(S/S\u207b) \u2248 E(S\u207a/S) \u2212 E\u2080\u208b\u2080 <span class="unit">' in head
+    assert "E(S\u207a/S*), excited state" not in head                              # diagram legend
+    assert "reduced dye (estimate)" in head
+    assert "voc_loss_p_v" in head and "(mediator \u2212 band edge)" not in head   # model card
+    assert "0.05 V below the ideal E<sub>VB</sub> \u2212 E<sub>redox</sub>" in head
+    meta = json.loads((path.parent / "ranking.meta.json").read_text())
+    assert meta["sign_convention"].startswith("drive_inj_ev = E(S+/S) - E_VB and drive_reg_ev = E_redox - E(S/S-)")
+
+
+def test_n_type_report_keeps_n_type_labels(tmp_path):
+    f = _measured(tmp_path, [("M1", 1.10, 2.10, "OC(=O)c1ccccc1")])
+    path = run_dyecell(f, tmp_path / "o", oxide="tio2-anatase", mediator="co-bpy3", settings={"n_samples": 100})
+    page = (path.parent / "report.html").read_text()
+    assert "E<sub>CB</sub> \u2212 E(S\u207a/S*)" in page and 'E(S\u207a/S*) <span class="unit">' in page
+    assert "E(S/S\u207b)" not in page and "voc_loss_v" in page and "voc_loss_p_v" not in page
+
+
+def test_diagram_draws_the_nearest_not_viable_dyes_and_explains_the_boxes(tmp_path):
+    # TiO2 with [Cu(tmby)2] (+0.87 V): G1 passes; N1 misses regeneration by 0.002 eV (0.198 eV), N2 by 0.10 eV,
+    # N3 has no anchor (not a driving-force miss: not drawn)
+    f = _measured(tmp_path, [("G1", 1.20, 2.00, "OC(=O)c1ccccc1"), ("N1", 1.068, 2.00, "OC(=O)c1ccccc1"),
+                             ("N2", 0.97, 2.00, "OC(=O)c1ccccc1"), ("N3", 1.30, 2.00, "c1ccccc1")])
+    path = run_dyecell(f, tmp_path / "o", oxide="tio2-anatase", mediator="cu-tmby2", settings={"n_samples": 100})
+    page = (path.parent / "report.html").read_text()
+    svg = page[page.index('<svg id="fig-dyecell"'):page.index("</svg>", page.index('<svg id="fig-dyecell"'))]
+    assert ">N1<" in svg and ">N2<" in svg and ">G1<" in svg and ">N3<" not in svg
+    assert ">not viable<" in svg and ">not-viable dye<" in svg and ">below threshold<" in svg
+    # the arrow label shows the miss (0.198, not 0.20); labels are drawn as outlined paths, so read the figure
+    import json
+
+    import matplotlib
+
+    from screen.dyecell.figure import diagram_rows, dyecell_figure
+    from screen.report.figures import _RC
+
+    r = pd.read_csv(path, keep_default_na=False)
+    meta = json.loads((path.parent / "ranking.meta.json").read_text())
+    with matplotlib.rc_context(_RC):
+        fig = dyecell_figure(diagram_rows(r, r[r["passes"].map(str).eq("True")], meta), meta)
+    labels = {t.get_text() for t in fig.axes[0].texts}
+    assert "0.198" in labels and "0.20" not in labels
+    caption = page[page.index("<figcaption>"):page.index("</figcaption>")]
+    assert "the 2 not-viable dye(s) that come closest to a driving-force threshold" in caption
+    assert "Shaded boxes" in caption and "\u00b11\u03c3" in caption
+
+
+def test_diagram_rows_picks_the_nearest_misses_first():
+    from screen.dyecell.figure import DIAGRAM_MAX, diagram_rows
+
+    n = 14
+    r = pd.DataFrame({"rank": range(1, n + 1), "id": [f"d{i}" for i in range(n)],
+                      "viable": [True] * 10 + [False] * 4, "drive_inj_ev": [0.5] * n,
+                      "drive_reg_ev": [0.5] * 10 + [0.05, 0.19, np.nan, 0.5],
+                      "flags": [""] * 10 + ["regeneration_low", "regeneration_low", "input_missing", "no_anchor"]})
+    meta = {"model": {"min_drive_inj_ev": 0.2}, "regeneration_threshold_ev": 0.2}
+    rows = diagram_rows(r, r.head(10), meta)
+    assert len(rows) <= DIAGRAM_MAX and rows["id"].tolist()[-2:] == ["d11", "d10"]
+    assert rows["id"].tolist()[:8] == [f"d{i}" for i in range(8)]

@@ -83,3 +83,13 @@ def test_every_library_partner_is_sane():
     for pid, partner in library_partners().items():
         check_partner(partner)  # raises on an impossible library row
         assert row_problems(partner.homo_ev, partner.lumo_ev, partner.gap_opt_ev, partner.scale) == [], pid
+
+
+def test_problem_count_says_how_many_are_shown():
+    frame = pd.DataFrame({"id": [f"m{i}" for i in range(7)], "homo_ev": 5.3, "lumo_ev": -3.5, "gap_opt_ev": 1.7,
+                          "scale": "film"})                                  # 7 rows with a HOMO > 0
+    with pytest.raises(InputError) as err:
+        check_levels(frame, "misc.csv")
+    msg = str(err.value)
+    assert msg.startswith("misc.csv: 7 problems (first 5 shown):") and "more)" not in msg
+    assert msg.count("\n  ") == 5

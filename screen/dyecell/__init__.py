@@ -15,6 +15,6 @@ The second device family of dascreen.  It reuses every stage up to
 
 The report page is :mod:`screen.dyecell.page` with the energy diagram of
 :mod:`screen.dyecell.figure`.  Files: ``OUT/dyecell/dyes.csv`` (the dye table, cached) and
-``OUT/dyecell/<oxide>--<mediator>/`` (``ranking.csv``, ``ranking.safe.csv``, ``ranking.meta.json``,
+``OUT/dyecell/<oxide>--<mediator>--<settings hash>/`` (``ranking.csv``, ``ranking.safe.csv``, ``ranking.meta.json``,
 ``shortlist.sdf``, ``report.html``).
 """

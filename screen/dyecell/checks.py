@@ -184,7 +184,7 @@ def _line(frame: pd.DataFrame, i: int) -> int:
 def _raise(where: str, problems: list[str]) -> None:
     if not problems:
         return
-    more = f" (and {len(problems) - _MAX_LISTED} more)" if len(problems) > _MAX_LISTED else ""
+    more = f" (first {_MAX_LISTED} shown)" if len(problems) > _MAX_LISTED else ""
     head = problems[0] if len(problems) == 1 else f"{len(problems)} problems{more}:\n  " + "\n  ".join(
         problems[:_MAX_LISTED])
     raise InputError(f"{where}: {head}")
@@ -218,7 +218,7 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
     Raises
     ------
     InputError
-        Naming the file, line, id, column, value and the fix (up to five problems in one message);
+        Naming the file, line, id, column, value and the fix (the number of problems, the first five listed);
         ``no rows`` for a file with a header only.
     """
     if len(frame) == 0:

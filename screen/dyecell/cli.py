@@ -3,11 +3,13 @@
 ``dascreen dyecell CANDIDATES --oxide ID --mediator ID`` runs the shared stages
 (prepare, structures, electronic — the same workflow, protocol and results
 store as ``dascreen run``), joins the raw values into
-``OUT/dyecell/levels_raw.csv`` and ranks; ``--levels FILE`` ranks an
+``OUT/dyecell/levels_raw.csv`` and ranks into
+``OUT/dyecell/<oxide>--<mediator>--<settings hash>/``; ``--levels FILE`` ranks an
 existing levels file (a run's ``levels.csv`` or a file of measured dye
-potentials) in seconds; ``--list`` prints the oxide and mediator libraries;
-``--refit`` computes the dye reference set with the run's protocol and installs
-the dye models.
+potentials) in seconds (not both); without either it re-ranks the input ranked
+last in ``OUT`` (recorded in ``OUT/dyecell/inputs.json``); ``--list`` prints the
+oxide and mediator libraries; ``--refit`` computes the dye reference set with
+the run's protocol and installs the dye models.
 """
 
 from __future__ import annotations
@@ -56,7 +58,7 @@ def _print_ranking(path: Path, top: int, listed: frozenset = frozenset()) -> Non
     meta = json.loads((path.parent / "ranking.meta.json").read_text(encoding="utf-8"))
     show = table.head(top).copy()
     show["id"] = [str(i).replace("\n", "\\n")[:24] for i in show["id"]]
-    show["flags"] = show["flags"].fillna("").astype(str).str.slice(0, 36)
+    show["flags"] = show["flags"].map(lambda v: "" if pd.isna(v) else str(v)[:36])
     cols = ["rank", "id", "e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "drive_inj_ev", "drive_reg_ev", "voc_v",
             "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "passes", "flags"]
     viable = int(table["viable"].astype(str).str.lower().eq("true").sum()) if len(table) else 0
@@ -110,10 +112,81 @@ def _refit(args, cfg, out: Path) -> Path:
     return folder
 
 
-def _default_levels(out: Path) -> Path:
-    """``OUT/dyecell/levels_raw.csv`` of an earlier ``dascreen dyecell`` run, else ``OUT/levels.csv``."""
-    raw = out / "dyecell" / "levels_raw.csv"
-    return raw if raw.is_file() else out / "levels.csv"
+def _default_levels(out: Path, out_text: str) -> Path:
+    """The input a re-rank without ``--levels`` ranks: the one ranked last in ``OUT``.
+
+    That is the file recorded in ``OUT/dyecell/inputs.json`` (the
+    ``levels_raw.csv`` of a computing run, or the ``--levels`` file of the last
+    ranking); in a folder without the record, ``OUT/dyecell/levels_raw.csv``,
+    else ``OUT/levels.csv`` (a ``dascreen run`` folder).
+
+    Raises
+    ------
+    InputError
+        Nothing to rank: says which files were looked for and what to pass.
+    """
+    from screen.dyecell.stage import read_inputs
+
+    last = read_inputs(out).get("levels")
+    if last:
+        if Path(last).is_file():
+            print(f"dascreen: re-ranking {last} (the input ranked last in {out_text}; --levels FILE ranks another)")
+            return Path(last)
+        raise InputError(f"the input ranked last in --out {out_text}, {last}, no longer exists; give --levels FILE "
+                         "or the candidates again (dascreen dyecell CANDIDATES --out ...)")
+    for path in (out / "dyecell" / "levels_raw.csv", out / "levels.csv"):
+        if path.is_file():
+            return path
+    raise InputError(f"nothing to re-rank in --out {out_text}: it holds neither {out_text}/dyecell/levels_raw.csv "
+                     f"(written by `dascreen dyecell CANDIDATES --out {out_text}`) nor {out_text}/levels.csv (of "
+                     "`dascreen run`), and no earlier --levels input; give CANDIDATES to compute the levels, or "
+                     "--levels FILE (a run's levels.csv, or id,e_ox_v_nhe,e00_ev[,smiles] measured values)")
+
+
+def _check_same_candidates(out: Path, given: Path, overwrite: bool) -> dict:
+    """Refuse a candidate file other than the one this ``--out`` holds the run of; the record of ``given``.
+
+    What the user gave is compared, not the copy the shared stages read
+    (``OUT/dyecell/candidates.csv`` for every file with a ``role`` column or a
+    polymer row): the path and sha256 recorded in ``OUT/dyecell/inputs.json``,
+    or, in a folder without the record, the candidate file in its ``config.yaml``
+    (a ``dascreen run`` folder).  The same path, or a file of the same content
+    elsewhere, is the same run.
+
+    Returns
+    -------
+    dict
+        ``{"path", "sha256"}`` of ``given`` (recorded once the run starts).
+
+    Raises
+    ------
+    ConfigError
+        Another file (without ``overwrite``), naming both of the user's files.
+    """
+    import yaml
+
+    from screen.dyecell.stage import read_inputs
+    from screen.provenance import sha256_file
+
+    now = {"path": str(given), "sha256": sha256_file(given)}
+    before = read_inputs(out).get("candidates") or {}
+    if not before and (out / "config.yaml").is_file():
+        try:
+            named = (yaml.safe_load((out / "config.yaml").read_text(encoding="utf-8")) or {}).get("candidates")
+        except (OSError, yaml.YAMLError):
+            named = None
+        internal = (out / "dyecell" / "candidates.csv").resolve()
+        if named and Path(str(named)).resolve() != internal:  # the copy: the original is not known
+            before = {"path": str(Path(str(named)).resolve())}
+            if Path(before["path"]).is_file():
+                before["sha256"] = sha256_file(before["path"])
+    if overwrite or not before.get("path") or before["path"] == now["path"]:
+        return now
+    if before.get("sha256") and before["sha256"] == now["sha256"]:
+        return now
+    raise ConfigError(f"--out {out} holds the run of {before['path']}; this run is of {now['path']} (another "
+                      "file). Choose another --out (molecules already computed come from the results store) or "
+                      "pass --overwrite")
 
 
 def _compute(args, cfg, out: Path, aside=None) -> Path | None:
@@ -239,25 +312,35 @@ def _dye_candidates(candidates: Path, out: Path, write: bool = True, read=None) 
 def cmd_dyecell(args) -> int:
     """Run the shared stages if needed, then rank the dyes for one oxide and one mediator."""
     from screen.cli_shared import EXIT_ERROR, EXIT_OK, _load, _print_summary
-    from screen.dyecell.stage import run_dyecell
+    from screen.dyecell.stage import record_inputs, resolve_material, run_dyecell
     from screen.preflight import check_candidates, check_out, check_out_folder
 
     if args.list:
         _print_libraries()
         return EXIT_OK
+    if args.candidates and args.levels:
+        raise ConfigError(f"give either CANDIDATES or --levels, not both (got {args.candidates} and --levels "
+                          f"{args.levels}): CANDIDATES computes the levels and ranks them, --levels FILE ranks an "
+                          "existing levels or dye file")
     out = Path(args.out).resolve()
     check_out_folder(out, args.out)
     extra = {"dyecell": {"oxide": args.oxide, "mediator": args.mediator, "target_pce_pct": args.target_pce}}
-    aside = None
+    aside, source = None, None
     if args.candidates:
         given = Path(args.candidates).resolve()
         check_candidates(given)
         read = _set_aside(given)
         aside = read[1]
-        check_out(out, _dye_candidates(given, out, write=False, read=read), overwrite=args.overwrite)
-        candidates = _dye_candidates(given, out, read=read)
+        check_out(out, None, overwrite=args.overwrite)
+        source = _check_same_candidates(out, given, args.overwrite)
+        candidates = _dye_candidates(given, out, write=False, read=read)  # refuses a file with nothing to compute
         extra.update({"candidates": str(candidates.resolve()), "out": str(out)})
     cfg = _load(args, extra)
+    for role in ("oxide", "mediator"):  # a typo stops the command before anything is computed or written
+        resolve_material(role, cfg["dyecell"][role])
+    if args.candidates:
+        record_inputs(out, candidates=source)
+        _dye_candidates(given, out, read=read)
     if args.refit:
         _refit(args, cfg, out)
     computed, listed = None, frozenset()
@@ -267,14 +350,22 @@ def cmd_dyecell(args) -> int:
             return EXIT_ERROR
         _print_summary(computed)
         listed = _not_ok(computed)
-    levels = Path(args.levels) if args.levels else computed or _default_levels(out)
-    if not levels.is_file():
-        if args.refit and not args.candidates:
-            return EXIT_OK
-        raise InputError(f"levels file {str(levels)!r} does not exist; give CANDIDATES to compute it, or "
-                         "--levels FILE (a run's levels.csv, or id,e_ox_v_nhe,e00_ev[,smiles] measured values)")
+    if args.levels:
+        levels = Path(args.levels)
+        if not levels.is_file():
+            raise InputError(f"--levels {str(levels)!r} does not exist; give a run's levels.csv "
+                             f"(or {args.out}/dyecell/levels_raw.csv of a dye run), or id,e_ox_v_nhe,e00_ev[,smiles] "
+                             "measured values")
+    elif computed is not None:
+        levels = computed
+    elif args.refit and not (out / "dyecell" / "levels_raw.csv").is_file() and not (out / "levels.csv").is_file():
+        return EXIT_OK
+    else:
+        levels = _default_levels(out, args.out)
     models_root = args.models or (cfg["calibration"]["models"] and Path(cfg["calibration"]["models"]) / "dyecell")
-    path = run_dyecell(levels, out, settings=cfg["dyecell"], models_root=models_root)
+    path = run_dyecell(levels, out, settings=cfg["dyecell"], models_root=models_root,
+                       current_protocol=cfg.protocol_id)
+    record_inputs(out, levels=str(levels.resolve()))
     _print_ranking(path, args.top, listed=listed)
     return EXIT_OK
 
@@ -285,13 +376,18 @@ def add_dyecell(sub) -> None:
                        description="Rank organic sensitiser dyes for a dye-sensitised cell: E(S+/S) and E0-0 from "
                                    "the calibrated xTB levels (or your measured values), injection into the oxide, "
                                    "regeneration by the mediator, Voc/Jsc/PCE with a Monte-Carlo spread. Writes "
-                                   "OUT/dyecell/<oxide>--<mediator>/ (ranking.csv, shortlist.sdf, report.html). "
-                                   "Switching oxide or mediator re-ranks in seconds.")
+                                   "OUT/dyecell/<oxide>--<mediator>--<settings hash>/ (ranking.csv, shortlist.sdf, "
+                                   "report.html; the hash changes with the other dyecell settings, so a ranking "
+                                   "with another threshold or loss gets its own folder). Without CANDIDATES or "
+                                   "--levels it re-ranks the input ranked last in OUT: switching oxide or mediator "
+                                   "takes seconds.")
     p.add_argument("candidates", nargs="?", default=None,
                    help="dye list (.csv id,smiles[,name]; .smi; .sdf): runs the shared stages first")
     p.add_argument("--levels", default=None,
-                   help="rank this file instead (default OUT/levels.csv): a run's levels.csv or your own "
-                        "id,e_ox_v_nhe (or e_ox_v + e_ox_reference + solvent),e00_ev[,smiles] file")
+                   help="rank this file instead of computing (not with CANDIDATES): a run's levels.csv or your own "
+                        "id,e_ox_v_nhe (or e_ox_v + e_ox_reference + solvent),e00_ev[,smiles] file. Without "
+                        "CANDIDATES and --levels: the input ranked last in OUT (OUT/dyecell/levels_raw.csv of a "
+                        "computing run, or the last --levels file), else OUT/levels.csv")
     p.add_argument("--oxide", default=None,
                    help="semiconductor: library id (see --list) or a one-row CSV (default tio2-anatase)")
     p.add_argument("--mediator", default=None,
@@ -311,7 +407,8 @@ def add_dyecell(sub) -> None:
                         "the fitted dye models first")
     p.add_argument("--list", action="store_true", help="print the oxide and mediator libraries and stop")
     p.add_argument("--overwrite", action="store_true",
-                   help="accept an output folder that holds the run of another candidate file")
+                   help="accept an output folder that holds the run of another candidate file (compared by "
+                        "path and content of the file you give)")
     p.add_argument("--verbose", action="store_true", help="show Snakemake's log instead of the progress display")
     p.add_argument("--top", type=_at_least_one, default=10, help="rows to print, 1 or more (default 10)")
     p.set_defaults(func=cmd_dyecell)

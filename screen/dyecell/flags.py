@@ -7,8 +7,10 @@ vocabulary from here.  ``severity``:
 - ``"fail"``: the dye is not viable in this cell (no PCE, does not pass);
 - ``"info"``: the row is told something; it may still pass.
 
-Text fields ``{min_inj}``, ``{min_reg}`` and ``{elements}`` are filled by
-:func:`describe` from the ranking's settings.
+Text fields ``{min_inj}``, ``{min_reg}``, ``{elements}``, ``{excited}``,
+``{regenerated}`` and ``{ideal}`` are filled by :func:`describe` from the
+ranking's settings (``settings["oxide"]["type"] == "p"`` gives the p-type
+wording: E(S*/S⁻) for the injecting state, E(S/S⁻) for the reduced dye).
 
 Examples
 --------
@@ -41,11 +43,12 @@ _REGISTRY = (
     Flag("input_missing", "E(S⁺/S) or E₀₋₀ is missing, so nothing could be estimated"),
     Flag("no_anchor", "no anchoring group (carboxylic, cyanoacrylic or phosphonic acid, pyridine, catechol, …): "
                       "the dye cannot bind to the oxide"),
-    Flag("injection_low", "excited-state potential E(S⁺/S*) less than {min_inj} beyond the oxide band edge: "
+    Flag("injection_low", "excited-state potential {excited} less than {min_inj} beyond the oxide band edge: "
                           "charge injection is not assured"),
-    Flag("regeneration_low", "ground-state potential less than {min_reg} beyond the mediator potential: "
-                             "regeneration of the oxidised dye by the mediator is not assured"),
-    Flag("voc_nonpositive", "the mediator potential lies beyond the oxide band edge: no photovoltage"),
+    Flag("regeneration_low", "{regenerated} less than {min_reg} beyond the mediator potential: "
+                             "regeneration of the {dye_state} dye by the mediator is not assured"),
+    Flag("voc_nonpositive", "no photovoltage: the ideal voltage {ideal} is not larger than the assumed Voc loss "
+                            "(or the mediator lies at or beyond the oxide band edge)"),
     Flag("anchor_unknown", "no structure given, so the anchoring group could not be checked", "info"),
     Flag("element_uncalibrated", "contains an element that no dye of the calibration set has{elements}: E(S⁺/S) "
                                  "and E₀₋₀ are extrapolations", "info"),
@@ -87,12 +90,15 @@ def describe(code: str, settings: dict | None = None) -> str:
         Flag code.
     settings : dict, optional
         ``settings["model"]`` with ``min_drive_inj_ev`` and ``min_drive_reg_ev``
-        (as in ``ranking.meta.json``), ``settings["calibration"]["elements"]``.
+        (as in ``ranking.meta.json``), ``settings["calibration"]["elements"]``,
+        ``settings["oxide"]["type"]`` (``"p"``: p-type wording).
 
     Examples
     --------
     >>> describe("made_up")
     'made_up'
+    >>> describe("injection_low", {"oxide": {"type": "p"}})[:54]
+    'excited-state potential E(S*/S⁻) ≈ E(S⁺/S) less than t'
     """
     code = code.strip()
     if code not in FLAGS:
@@ -100,7 +106,13 @@ def describe(code: str, settings: dict | None = None) -> str:
     model = (settings or {}).get("model") or {}
     inj, reg = _num(model.get("min_drive_inj_ev")), _num(model.get("min_drive_reg_ev"))
     elements = ((settings or {}).get("calibration") or {}).get("elements") or []
+    p_type = str(((settings or {}).get("oxide") or {}).get("type") or "").strip().lower() == "p"
     return FLAGS[code].text.format(
+        excited="E(S*/S\u207b) \u2248 E(S\u207a/S)" if p_type else "E(S\u207a/S*)",
+        regenerated=("reduced-dye potential E(S/S\u207b) \u2248 E(S\u207a/S) \u2212 E\u2080\u208b\u2080/e"
+                     if p_type else "ground-state potential E(S\u207a/S)"),
+        dye_state="reduced" if p_type else "oxidised",
+        ideal="E_VB \u2212 E_redox" if p_type else "E_redox \u2212 E_CB",
         min_inj="the required minimum" if math.isnan(inj) else f"{inj:.2f} eV",
         min_reg="the required minimum" if math.isnan(reg) else f"{reg:.2f} eV",
         elements=f" (the set covers {', '.join(elements)})" if elements else "",

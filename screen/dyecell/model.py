@@ -28,7 +28,13 @@ the mediator.  The dye's reduction potential is not calibrated; it is
 estimated as :math:`E(S/S^-) \\approx E(S^+/S) - E_{0-0}/e`, so
 :math:`E(S^*/S^-) \\approx E(S^+/S)`, :math:`\\Delta_{inj} = e[E(S^+/S) - E_{VB}]`,
 :math:`\\Delta_{reg} = e[E_{redox} - E(S/S^-)]` and
-:math:`V_{oc} = E_{VB} - E_{redox} - V_{loss}` (flag ``p_type_estimate``).
+:math:`V_{oc} = E_{VB} - E_{redox} - V_{loss,p}` (flag ``p_type_estimate``).
+
+The p-type loss ``voc_loss_p_v`` (default 0.05 V) is separate from the n-type
+``voc_loss_v`` (0.20 V): the NiO valence band (+0.50 V) lies only 0.15 V below
+iodide/triiodide (+0.35 V), so the n-type loss would leave no photovoltage for
+the standard p-type cell, which measures V_oc ≈ 0.08–0.12 V with organic
+push-pull dyes (e.g. P1; from memory, [5]_); 0.15 − 0.05 = 0.10 V.
 
 Viability (no impossible number): a dye is *viable* when both driving forces
 reach their thresholds, the photovoltage is positive, the inputs are present
@@ -55,6 +61,11 @@ References
    1819–1826. :doi:`10.1021/ar900138m` (from memory)
 .. [4] W. Shockley, H. J. Queisser, J. Appl. Phys. 32 (1961) 510.
    :doi:`10.1063/1.1736034`
+.. [5] P. Qin, H. Zhu, T. Edvinsson, G. Boschloo, A. Hagfeldt, L. Sun, "Design
+   of an organic chromophore for p-type dye-sensitized solar cells",
+   J. Am. Chem. Soc. 130 (2008) 8570. :doi:`10.1021/ja8001474` (from memory:
+   P1 on NiO with iodide/triiodide, V_oc ≈ 0.08–0.10 V); E. A. Gibson et al.
+   and F. Odobel et al., p-type DSSC reviews (from memory).
 """
 
 from __future__ import annotations
@@ -101,8 +112,12 @@ class DyeCellModel:
     ff : float, default 0.70
         Fill factor. [dimensionless]
     voc_loss_v : float, default 0.20
-        Distance of the oxide's quasi-Fermi level at open circuit from its band
-        edge, plus other voltage losses. [V]
+        n-type oxides: distance of the oxide's electron quasi-Fermi level at
+        open circuit below its conduction-band edge, plus other voltage losses. [V]
+    voc_loss_p_v : float, default 0.05
+        p-type oxides: the same loss for the hole quasi-Fermi level and the
+        valence-band edge (from memory: NiO/iodide cells reach ~0.1 V of the
+        ideal 0.15 V). [V]
     min_drive_inj_ev : float, default 0.20
         Smallest injection driving force. [eV]
     min_drive_reg_ev : float, default 0.20
@@ -127,9 +142,11 @@ class DyeCellModel:
     min_drive_inj_ev: float = _D["min_drive_inj_ev"]
     min_drive_reg_ev: float = _D["min_drive_reg_ev"]
     require_anchor: bool = _D["require_anchor"]
+    voc_loss_p_v: float = _D["voc_loss_p_v"]
 
     def __post_init__(self):
-        for name in ("photon_to_current", "ff", "voc_loss_v", "min_drive_inj_ev", "min_drive_reg_ev"):
+        for name in ("photon_to_current", "ff", "voc_loss_v", "voc_loss_p_v", "min_drive_inj_ev",
+                     "min_drive_reg_ev"):
             val = getattr(self, name)
             if isinstance(val, bool) or not isinstance(val, (int, float, np.floating, np.integer)) \
                     or not math.isfinite(float(val)):
@@ -138,8 +155,9 @@ class DyeCellModel:
         for name in ("photon_to_current", "ff"):
             if not 0.0 < getattr(self, name) <= 1.0:
                 raise ConfigError(f"dyecell.{name} = {getattr(self, name)!r} is not allowed; allowed: 0 < {name} <= 1")
-        if self.voc_loss_v < 0:
-            raise ConfigError(f"dyecell.voc_loss_v = {self.voc_loss_v!r} is not allowed; allowed: >= 0")
+        for name in ("voc_loss_v", "voc_loss_p_v"):
+            if getattr(self, name) < 0:
+                raise ConfigError(f"dyecell.{name} = {getattr(self, name)!r} is not allowed; allowed: >= 0")
         if not isinstance(self.require_anchor, bool):
             raise ConfigError(f"dyecell.require_anchor = {self.require_anchor!r}; allowed: true or false")
 
@@ -159,6 +177,22 @@ class DyeCellModel:
     def pce_factor_pct(self) -> float:
         """``PCE [%] = Voc [V] · Jsc [mA cm⁻²] · factor`` (includes FF and P_in)."""
         return self.ff * 10.0 / incident_power_w_m2() * 100.0
+
+    def voc_loss_name(self, oxide: Material) -> str:
+        """The option that holds the Voc loss for this oxide's type (``voc_loss_p_v`` or ``voc_loss_v``)."""
+        return "voc_loss_p_v" if oxide.type == "p" else "voc_loss_v"
+
+    def voc_loss_for(self, oxide: Material) -> float:
+        """Voc loss for this oxide: :attr:`voc_loss_p_v` for a p-type oxide, else :attr:`voc_loss_v`. [V]
+
+        Examples
+        --------
+        >>> from screen.dyecell.library import resolve_oxide
+        >>> m = DyeCellModel()
+        >>> m.voc_loss_for(resolve_oxide("tio2-anatase")), m.voc_loss_for(resolve_oxide("nio"))
+        (0.2, 0.05)
+        """
+        return float(getattr(self, self.voc_loss_name(oxide)))
 
     def reg_threshold_ev(self, mediator: Material) -> float:
         """Regeneration threshold: the mediator's own when it has one, else :attr:`min_drive_reg_ev`. [eV]"""
@@ -180,49 +214,89 @@ def _energetics(e_ox, e00, oxide: Material, mediator: Material):
     return e_exc, drive_inj, drive_reg, voc_raw
 
 
-def _fmt(x: float) -> str:
-    return f"{x:+.2f}".replace("-", "\u2212")
+def _fmt(x: float, digits: int = 2) -> str:
+    return f"{x:+.{digits}f}".replace("-", "\u2212")
 
 
-def _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, thr_reg) -> str:
-    """Plain-words reason why dye ``i`` is not viable (every failing check, ';'-joined)."""
+def _thr_txt(thr: float) -> str:
+    """A threshold with 2 decimals, or as many (up to 4) as it has."""
+    for d in (2, 3, 4):
+        if abs(round(thr, d) - thr) < 1e-12:
+            return f"{thr:.{d}f}"
+    return f"{thr:.4f}"
+
+
+def _digits(value: float, thr: float) -> int:
+    """Decimals (2–4) that show ``value`` below ``thr`` (0.198 against 0.20 rather than 0.20 against 0.20)."""
+    for d in (2, 3, 4):
+        if round(value, d) < float(_thr_txt(thr)):
+            return d
+    return 4
+
+
+def _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, thr_reg, voc_raw, loss,
+            loss_name) -> str:
+    """Plain-words reason why dye ``i`` is not viable (every failing check, ';'-joined).
+
+    Potentials are given in V vs NHE, driving forces in eV; a driving force is
+    written with the decimals that show it below its threshold.
+    """
     words = []
-    edge = "conduction-band edge" if oxide.type != "p" else "valence-band edge"
+    p_type = oxide.type == "p"
+    edge = "valence-band edge" if p_type else "conduction-band edge"
     if masks["input_missing"][i]:
         if np.isfinite(e_ox[i]) and np.isfinite(e00[i]):  # present, but not a positive excitation energy
             return (f"not viable: E\u2080\u208b\u2080 = {_fmt(e00[i])} eV is not a positive excitation energy")
         return "not viable: E(S\u207a/S) or E\u2080\u208b\u2080 is missing"
     if masks["no_anchor"][i]:
         words.append("no anchoring group, so the dye cannot bind to the oxide")
+
+    def ox_txt(d=2):
+        return f"the {edge} of {oxide.id} ({_fmt(oxide.potential_v_nhe, d)} V)"
+
+    def med_txt(d=2):
+        return f"the mediator {mediator.id} ({_fmt(mediator.potential_v_nhe, d)} V)"
+
     if masks["injection_low"][i]:
-        if oxide.type == "p":
-            words.append(f"excited state E(S*/S\u207b) \u2248 {_fmt(e_ox[i])} V vs NHE is only {_fmt(d_inj[i])} eV "
-                         f"above the {edge} of {oxide.id} ({_fmt(oxide.potential_v_nhe)} V); hole injection needs "
-                         f"\u2265 {thr_inj:.2f} eV")
+        d = _digits(d_inj[i], thr_inj)
+        need = (f"driving force {d_inj[i]:.{d}f} eV; {'hole ' if p_type else ''}injection needs "
+                f"\u2265 {_thr_txt(thr_inj)} eV")
+        if p_type:
+            where = ("lies below (more negative than)" if d_inj[i] < 0 else "is only slightly more positive than")
+            words.append(f"excited state E(S*/S\u207b) \u2248 E(S\u207a/S) = {_fmt(e_ox[i], d)} V vs NHE {where} "
+                         f"{ox_txt(d)}, so hole injection is not assured ({need})")
         elif d_inj[i] < 0:
-            words.append(f"excited state E(S\u207a/S*) = {_fmt(e_exc[i])} V vs NHE lies {abs(d_inj[i]):.2f} eV below "
-                         f"the {edge} of {oxide.id} ({_fmt(oxide.potential_v_nhe)} V), so it cannot inject "
-                         f"(needs \u2265 {thr_inj:.2f} eV above)")
+            words.append(f"excited state E(S\u207a/S*) = {_fmt(e_exc[i], d)} V vs NHE lies {abs(d_inj[i]):.{d}f} eV "
+                         f"below (more positive than) {ox_txt(d)}, so it cannot inject ({need})")
         else:
-            words.append(f"excited state E(S\u207a/S*) = {_fmt(e_exc[i])} V vs NHE is only {d_inj[i]:.2f} eV above "
-                         f"the {edge} of {oxide.id} ({_fmt(oxide.potential_v_nhe)} V); injection needs "
-                         f"\u2265 {thr_inj:.2f} eV")
+            words.append(f"excited state E(S\u207a/S*) = {_fmt(e_exc[i], d)} V vs NHE is only slightly more "
+                         f"negative than {ox_txt(d)} ({need})")
     if masks["regeneration_low"][i]:
-        if oxide.type == "p":
-            words.append(f"reduced dye E(S/S\u207b) \u2248 {_fmt(e_exc[i])} V vs NHE is only {_fmt(d_reg[i])} eV "
-                         f"more negative than {mediator.id} ({_fmt(mediator.potential_v_nhe)} V); regeneration "
-                         f"needs \u2265 {thr_reg:.2f} eV")
+        d = _digits(d_reg[i], thr_reg)
+        need = f"driving force {d_reg[i]:.{d}f} eV; regeneration needs \u2265 {_thr_txt(thr_reg)} eV"
+        if p_type:
+            where = ("lies above (more positive than)" if d_reg[i] < 0 else "is only slightly more negative than")
+            words.append(f"reduced dye E(S/S\u207b) \u2248 E(S\u207a/S) \u2212 E\u2080\u208b\u2080/e = "
+                         f"{_fmt(e_exc[i], d)} V vs NHE {where} {med_txt(d)}, so the reduced dye cannot be "
+                         f"regenerated reliably ({need})")
         elif d_reg[i] < 0:
-            words.append(f"ground state E(S\u207a/S) = {_fmt(e_ox[i])} V vs NHE lies {abs(d_reg[i]):.2f} V above "
-                         f"(more negative than) the mediator {mediator.id} ({_fmt(mediator.potential_v_nhe)} V), so "
-                         f"the oxidised dye cannot be regenerated (needs \u2265 {thr_reg:.2f} eV)")
+            words.append(f"ground state E(S\u207a/S) = {_fmt(e_ox[i], d)} V vs NHE lies above (more negative "
+                         f"than) {med_txt(d)}, so the oxidised dye cannot be regenerated ({need})")
         else:
-            words.append(f"ground state E(S\u207a/S) = {_fmt(e_ox[i])} V vs NHE is only {d_reg[i]:.2f} V more "
-                         f"positive than the mediator {mediator.id} ({_fmt(mediator.potential_v_nhe)} V); "
-                         f"regeneration needs \u2265 {thr_reg:.2f} eV")
+            words.append(f"ground state E(S\u207a/S) = {_fmt(e_ox[i], d)} V vs NHE is only slightly more "
+                         f"positive than {med_txt(d)} ({need})")
     if masks["voc_nonpositive"][i]:
-        words.append(f"the mediator ({_fmt(mediator.potential_v_nhe)} V) lies beyond the {edge} "
-                     f"({_fmt(oxide.potential_v_nhe)} V), so the cell has no photovoltage")
+        ideal = (f"E_VB \u2212 E_redox = {_fmt(oxide.potential_v_nhe)} \u2212 ({_fmt(mediator.potential_v_nhe)})"
+                 if p_type else
+                 f"E_redox \u2212 E_CB = {_fmt(mediator.potential_v_nhe)} \u2212 ({_fmt(oxide.potential_v_nhe)})")
+        ideal = f"{ideal} = {_fmt(voc_raw)} V"
+        if voc_raw <= 0:
+            side = "more negative" if p_type else "more positive"
+            words.append(f"{med_txt()} is not {side} than {ox_txt()}: the ideal photovoltage {ideal} is not "
+                         "positive, so the cell has no photovoltage")
+        else:
+            words.append(f"the ideal photovoltage {ideal} is used up by the assumed Voc loss of {loss:.2f} V "
+                         f"({loss_name}), so Voc = {_fmt(voc_raw - loss)} V and the cell has no photovoltage")
     return "not viable: " + "; ".join(words)
 
 
@@ -268,6 +342,7 @@ def evaluate(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator:
     anchored = np.ones(n, dtype=bool) if anchored is None else np.broadcast_to(np.asarray(anchored, bool), (n,))
     e_exc, d_inj, d_reg, voc_raw = _energetics(e_ox, e00, oxide, mediator)
     thr_inj, thr_reg = model.min_drive_inj_ev, model.reg_threshold_ev(mediator)
+    loss = model.voc_loss_for(oxide)
     missing = ~(np.isfinite(e_ox) & np.isfinite(e00) & (e00 > 0))
     with np.errstate(invalid="ignore"):
         masks = {
@@ -275,17 +350,17 @@ def evaluate(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator:
             "no_anchor": ~anchored if model.require_anchor else np.zeros(n, bool),
             "injection_low": ~missing & (d_inj < thr_inj - TOL_EV),
             "regeneration_low": ~missing & (d_reg < thr_reg - TOL_EV),
-            "voc_nonpositive": np.full(n, voc_raw - model.voc_loss_v <= 0.0),
+            "voc_nonpositive": np.full(n, voc_raw - loss <= 0.0),
         }
     viable = ~(masks["input_missing"] | masks["no_anchor"] | masks["injection_low"] | masks["regeneration_low"]
                | masks["voc_nonpositive"])
     g = np.where(viable, e00, np.nan)
     limit = sq_limit(g)
-    voc = np.minimum(np.full(n, voc_raw - model.voc_loss_v), limit["voc_v"])
+    voc = np.minimum(np.full(n, voc_raw - loss), limit["voc_v"])
     jsc = np.asarray(jsc_ma_cm2(g, model.photon_to_current), dtype=float)
     pce = voc * jsc * model.pce_factor_pct()
     with np.errstate(invalid="ignore"):
-        capped = viable & ((voc_raw - model.voc_loss_v > limit["voc_v"]) | (pce > limit["pce_pct"]))
+        capped = viable & ((voc_raw - loss > limit["voc_v"]) | (pce > limit["pce_pct"]))
     pce = np.minimum(pce, limit["pce_pct"])
     if not viable.all():
         voc = np.where(viable, voc, np.nan)
@@ -293,7 +368,8 @@ def evaluate(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator:
     masks["detailed_balance_cap"] = capped
     viability = np.full(n, "viable", dtype=object)
     for i in np.flatnonzero(~viable):
-        viability[i] = _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, thr_reg)
+        viability[i] = _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, thr_reg,
+                               voc_raw, loss, model.voc_loss_name(oxide))
     return {
         "e_ox_excited_v_nhe": e_exc, "drive_inj_ev": d_inj, "drive_reg_ev": d_reg,
         "voc_v": voc, "jsc_ma_cm2": np.where(viable, jsc, np.nan), "ff": np.where(viable, model.ff, np.nan),
@@ -329,10 +405,10 @@ def _block_samples(model: DyeCellModel, eo: np.ndarray, eg: np.ndarray, oxide: M
     e_edge, e_med = oxide.potential_v_nhe, mediator.potential_v_nhe
     if oxide.type == "p":
         ok = (eo - e_edge >= thr_inj) & (e_med - (eo - eg) >= thr_reg)
-        voc = e_edge - e_med - model.voc_loss_v
+        voc = e_edge - e_med - model.voc_loss_for(oxide)
     else:
         ok = (e_edge - (eo - eg) >= thr_inj) & (eo - e_med >= thr_reg)
-        voc = e_med - e_edge - model.voc_loss_v
+        voc = e_med - e_edge - model.voc_loss_for(oxide)
     ok &= ~dead[:, None] & (voc > 0)
     x = (eg - _GRID_MIN_EV) * (1.0 / _GRID_STEP_EV)
     np.clip(x, 0.0, jsc_t.size - 1 - 1e-9, out=x)

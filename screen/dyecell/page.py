@@ -27,7 +27,7 @@ from screen.dyecell.flags import INFO_FLAGS, describe
 from screen.flags import codes_of
 from screen.io import atomic_path
 from screen.report.drawings import molecule_svg
-from screen.dyecell.figure import DIAGRAM_MAX, dyecell_diagram_svg
+from screen.dyecell.figure import DIAGRAM_MAX, diagram_rows, dyecell_diagram_svg
 from screen.report.export import safe_csv_frame
 from screen.report.format import (
     NOT_RECORDED,
@@ -91,12 +91,28 @@ def _material_card(m: dict, title: str, ident: str, edge_word: str) -> str:
     return f'<section class="card" id="{ident}"><h3>{title}</h3>' + _dl(items) + "</section>"
 
 
+def _p_type(meta: dict) -> bool:
+    """True when the run's oxide is p-type (hole injection into the valence band)."""
+    return text(get(meta, "oxide", "type", default="")).strip().lower() == "p"
+
+
+def _voc_loss_html(m: dict, p_type: bool) -> str:
+    """The Voc-loss line of the model card for the oxide's type."""
+    if p_type:
+        loss = m.get("voc_loss_p_v")
+        return ((fmt(loss, 2) + " V" if text(loss) else NOT_RECORDED)
+                + " below the ideal E<sub>VB</sub> \u2212 E<sub>redox</sub>: V<sub>oc</sub> = E<sub>VB</sub> \u2212 "
+                "E<sub>redox</sub> \u2212 loss (<code>voc_loss_p_v</code>, p-type)")
+    return (fmt(m.get("voc_loss_v"), 2) + " V below the ideal E<sub>redox</sub> \u2212 E<sub>CB</sub>: "
+            "V<sub>oc</sub> = E<sub>redox</sub> \u2212 E<sub>CB</sub> \u2212 loss (<code>voc_loss_v</code>, n-type)")
+
+
 def _model_card(meta: dict) -> str:
     m = get(meta, "model", default={}) or {}
     items = [
         ("Photon-to-current", fmt(m.get("photon_to_current"), 2) + " above E\u2080\u208b\u2080"),
         ("Fill factor", fmt(m.get("ff"), 2)),
-        ("V<sub>oc</sub> loss", fmt(m.get("voc_loss_v"), 2) + " V below (mediator \u2212 band edge)"),
+        ("V<sub>oc</sub> loss", _voc_loss_html(m, _p_type(meta))),
         ("Injection threshold", fmt(m.get("min_drive_inj_ev"), 2) + " eV"),
         ("Regeneration threshold", fmt(meta.get("regeneration_threshold_ev"), 2) + " eV"
          + (" (this mediator\u2019s own)" if num(get(meta, "mediator", "min_drive_reg_ev")) ==
@@ -125,8 +141,9 @@ def _flags_html(cell, meta: dict, extra: dict | None = None) -> str:
     codes = codes_of(cell)
     if not codes:
         return '<span class="ok-note">no flags</span>'
-    settings = {"model": get(meta, "model", default={}) or {}, "calibration": get(meta, "calibration",
-                                                                                  default={}) or {}}
+    settings = {"model": get(meta, "model", default={}) or {},
+                "calibration": get(meta, "calibration", default={}) or {},
+                "oxide": get(meta, "oxide", default={}) or {}}
     extra = extra or {}
     items = "".join(f'<li class="flag{" info" if c in INFO_FLAGS else ""}">{esc(describe(c, settings))}'
                     f'{esc(extra.get(c, ""))}</li>' for c in codes)
@@ -143,6 +160,27 @@ _HEADERS = [
     ('J<sub>sc</sub> <span class="unit">[mA&#8239;cm<sup>\u22122</sup>]</span>', "jsc_ma_cm2"),
     ('PCE <span class="unit">[%]</span>', "pce_pct"),
 ]
+#: p-type header of ``e_ox_excited_v_nhe``: the estimated reduction potential of the dye
+_P_EXCITED_HEADER = 'E(S/S\u207b) \u2248 E(S\u207a/S) \u2212 E\u2080\u208b\u2080 <span class="unit">[V vs NHE]</span>'
+
+
+def _headers(meta: dict) -> list[tuple[str, str]]:
+    """Column headers for the oxide's type (p-type: the estimated E(S/S⁻) instead of E(S⁺/S*))."""
+    if not _p_type(meta):
+        return list(_HEADERS)
+    return [(_P_EXCITED_HEADER if col == "e_ox_excited_v_nhe" else h, col) for h, col in _HEADERS]
+
+
+def _definitions(meta: dict) -> str:
+    """The driving-force definitions for the oxide's type (HTML)."""
+    if _p_type(meta):
+        return ("\u0394<sub>inj</sub> = E(S*/S\u207b) \u2212 E<sub>VB</sub> \u2248 E(S\u207a/S) \u2212 "
+                "E<sub>VB</sub> (hole injection), \u0394<sub>reg</sub> = E<sub>redox</sub> \u2212 E(S/S\u207b) "
+                "with E(S/S\u207b) \u2248 E(S\u207a/S) \u2212 E\u2080\u208b\u2080/e (p-type, estimated; both "
+                "positive when downhill); V<sub>oc</sub> = E<sub>VB</sub> \u2212 E<sub>redox</sub> \u2212 loss")
+    return ("\u0394<sub>inj</sub> = E<sub>CB</sub> \u2212 E(S\u207a/S*), \u0394<sub>reg</sub> = E(S\u207a/S) "
+            "\u2212 E<sub>redox</sub> (n-type; both positive when downhill); V<sub>oc</sub> = E<sub>redox</sub> "
+            "\u2212 E<sub>CB</sub> \u2212 loss")
 
 
 def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
@@ -151,7 +189,8 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
     if drawings:
         head.append("<th>Structure</th>")
     head.append('<th class="js-sort">Dye</th>')
-    head += [f'<th class="js-sort num-h" data-type="num">{h}</th>' for h, _ in _HEADERS]
+    headers = _headers(meta)
+    head += [f'<th class="js-sort num-h" data-type="num">{h}</th>' for h, _ in headers]
     head += [f'<th class="js-sort num-h" data-type="num">P(PCE &gt; {target} %)</th>', "<th>Anchor</th>",
              "<th>Viability and flags</th>"]
     body = []
@@ -164,7 +203,7 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
         cells.append(f'<td class="cand"><span class="cid">{esc(r.get("id"))}</span>'
                      + (f'<span class="cname">{esc(name)}</span>' if name else "") + "</td>")
         sig = {"e_ox_v_nhe": "e_ox_sigma_v", "e00_ev": "e00_sigma_ev", "pce_pct": "pce_sigma_pct"}
-        for _, col in _HEADERS:
+        for _, col in headers:
             val = r.get(col)
             html = pm_html(val, r.get(sig[col]), 1 if col == "pce_pct" else 2) if col in sig else \
                 fmt(val, 1 if col == "jsc_ma_cm2" else 2)
@@ -198,6 +237,37 @@ def _not_ranked(table: pd.DataFrame) -> tuple[str, int]:
             f"<th>SMILES</th></tr></thead><tbody>{body}</tbody></table>", len(rows))
 
 
+def _figure_caption(meta: dict, n_drawn: int, n_failing: int, any_viable: bool = True) -> str:
+    """Caption of the energy diagram for the oxide's type, the drawn dyes and the ±1σ boxes (HTML)."""
+    if _p_type(meta):
+        levels = ("Ground-state E(S\u207a/S) and the estimated reduced-dye potential E(S/S\u207b) \u2248 "
+                  "E(S\u207a/S) \u2212 E\u2080\u208b\u2080/e (p-type: hole injection from the excited dye, "
+                  "E(S*/S\u207b) \u2248 E(S\u207a/S), into the valence band)")
+        arrows = ("Arrows give the hole-injection driving force E(S\u207a/S) \u2212 E<sub>VB</sub> (valence band "
+                  "\u2192 E(S\u207a/S)) and the regeneration driving force E<sub>redox</sub> \u2212 E(S/S\u207b) "
+                  "(E(S/S\u207b) \u2192 mediator)")
+        sigma = "E(S/S\u207b)"
+    else:
+        levels = "Ground-state E(S\u207a/S) and excited-state E(S\u207a/S*) = E(S\u207a/S) \u2212 E\u2080\u208b\u2080/e"
+        arrows = ("Arrows give the injection driving force E<sub>CB</sub> \u2212 E(S\u207a/S*) (E(S\u207a/S*) \u2192 "
+                  "conduction band) and the regeneration driving force E(S\u207a/S) \u2212 E<sub>redox</sub> "
+                  "(mediator \u2192 E(S\u207a/S))")
+        sigma = "E(S\u207a/S*)"
+    n_shown = n_drawn - n_failing
+    who = f"{n_shown} shown dye(s)" + ("" if any_viable or not n_shown else " (none viable: drawn dashed)")
+    if n_failing:
+        who += (f" and, dashed and marked \u201cnot viable\u201d, the {n_failing} not-viable dye(s) that come "
+                "closest to a driving-force threshold they miss")
+    return ("<strong>Dye-cell energy diagram.</strong> "
+            f"{levels} of the {who}, numbered by rank, against the oxide\u2019s band edge and the mediator\u2019s "
+            "potential. More negative potentials (higher electron energies) are at the top; the right axis gives "
+            "the vacuum scale, \u2212e(E + 4.44 V). "
+            f"{arrows}, in eV (brick red: below the threshold). Shaded boxes, where the levels carry an "
+            "uncertainty, span \u00b11\u03c3: of E(S\u207a/S) for the ground state and, for "
+            f"{sigma}, the σ of E(S\u207a/S) and of E\u2080\u208b\u2080 combined in quadrature; measured "
+            "values without \u03c3 have no box.")
+
+
 def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict) -> str:
     """The dye-cell report page as one HTML5 string.
 
@@ -227,7 +297,9 @@ def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict
     if not len(short) and len(ranking):
         short, how = ranking.head(min(size, DIAGRAM_MAX)), "no dye is viable; the best-ranked rows are shown"
     n_pass = len(passing)
-    figure = dyecell_diagram_svg(short, meta)
+    drawn = diagram_rows(ranking, short, meta)
+    n_extra = int((~drawn.index.isin(short.index)).sum()) if len(drawn) else 0
+    figure = dyecell_diagram_svg(drawn, meta)
     unranked, n_unranked = _not_ranked(table)
     title = f"dye cell: {text(ox.get('id'))} with {text(med.get('id'))}"
     if len(ranking) and len(passing):
@@ -256,19 +328,14 @@ def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict
         _material_card(med, "Mediator", "card-mediator", "Redox potential"), _model_card(meta), "</div>",
         '<h2 id="shortlist"><span class="num">2</span>Shortlist for discussion</h2>',
         f'<p class="summary">{summary}</p>',
-        f'<p class="quiet">Shown: {esc(how)}. Potentials in V vs NHE, value \u00b1 1\u03c3. '
-        "\u0394<sub>inj</sub> = E<sub>CB</sub> \u2212 E(S\u207a/S*), \u0394<sub>reg</sub> = E(S\u207a/S) \u2212 "
-        "E<sub>redox</sub> (n-type; both positive when downhill). Click a column header to sort.</p>",
+        f'<p class="quiet">Shown: {esc(how)}. Potentials in V vs NHE, value \u00b1 1\u03c3; driving forces in '
+        f"eV. {_definitions(meta)}. Click a column header to sort.</p>",
         f'<div class="tablewrap">{_table(short, meta, True, "shortlist-table")}</div>',
         '<details id="all-ranked">', f"<summary>Every ranked dye ({len(ranking)} rows)</summary>",
         f'<div class="tablewrap">{_table(ranking, meta, False, "full-table")}</div>', "</details>",
         '<h2 id="figures"><span class="num">3</span>Energy diagram</h2>',
-        f'<figure class="levels" id="figure-dyecell">{figure}<figcaption><strong>Dye-cell energy diagram.</strong> '
-        f"Ground-state E(S\u207a/S) and excited-state E(S\u207a/S*) = E(S\u207a/S) \u2212 E\u2080\u208b\u2080/e of the "
-        f"first {min(len(short), DIAGRAM_MAX)} shown dye(s), numbered by rank, against the oxide\u2019s band edge and "
-        "the mediator\u2019s potential. More negative potentials (higher electron energies) are at the top; the right "
-        "axis gives the vacuum scale, \u2212e(E + 4.44 V). Arrows give the injection and regeneration driving forces "
-        "in eV (brick red: below the threshold).</figcaption></figure>",
+        f'<figure class="levels" id="figure-dyecell">{figure}<figcaption>'
+        f"{_figure_caption(meta, len(drawn), n_extra, n_pass > 0)}</figcaption></figure>",
         f'<h2 id="not-ranked"><span class="num">4</span>Not ranked ({n_unranked})</h2>',
         '<p class="quiet">Input rows that were rejected or whose computation failed, with the reason.</p>',
         f'<div class="tablewrap">{unranked}</div>', "</main>", '<footer id="files">',

@@ -8,13 +8,16 @@
     OUT/dyecell/dyes.csv (+ .meta.json)            cached: reused while levels, models and version are unchanged
        │ rank_dyes: oxide + mediator → driving forces, viability, Voc, Jsc, PCE, Monte-Carlo spread
        ▼
-    OUT/dyecell/<oxide>--<mediator>/ranking.csv, ranking.safe.csv, ranking.meta.json, shortlist.sdf, report.html
+    OUT/dyecell/<oxide>--<mediator>--<settings hash>/ranking.csv, ranking.safe.csv, ranking.meta.json,
+                                                    shortlist.sdf, report.html
 
 The expensive stages (structures, electronic) are those of the
 bulk-heterojunction route and depend only on the molecule and the protocol:
 switching oxide or mediator re-runs only the last step.  Folder names are the
 library ids, or ``file-<stem>-<hash>`` for a user's one-row file (ids are user
-text and never used in paths).
+text and never used in paths), and :func:`settings_hash` of the other
+``dyecell`` settings, so a ranking with another threshold or loss gets its own
+folder (as ``OUT/rankings/<partner>--<settings hash>`` of ``dascreen rank``).
 """
 
 from __future__ import annotations
@@ -40,11 +43,18 @@ from screen.dyecell.rank import (
     dyes_from_file,
     rank_dyes,
 )
-from screen.errors import InputError
+from screen.errors import ConfigError, InputError
 from screen.io import read_json, write_csv, write_json
 from screen.provenance import library_versions, sha256_file
 
-__all__ = ["read_input", "build_dye_table", "write_shortlist", "run_dyecell", "ranking_folder", "raw_levels"]
+__all__ = ["read_input", "build_dye_table", "write_shortlist", "run_dyecell", "ranking_folder", "raw_levels",
+           "settings_hash", "resolve_material", "shipped_protocols", "INPUTS_FILE", "read_inputs", "record_inputs"]
+
+#: the record of what was given in a run folder: ``OUT/dyecell/inputs.json`` (the user's candidate file: path and
+#: sha256; the input ranked last), read for the default re-rank input and the guard against mixing candidate files
+INPUTS_FILE = Path("dyecell") / "inputs.json"
+#: settings of the ``dyecell`` section that are in the folder name already (or only pick the library entry)
+_NAMED_SETTINGS = ("oxide", "mediator")
 
 _SD_PROPS = ["rank", "id", "name", "oxide", "mediator", "e_ox_v_nhe", "e_ox_sigma_v", "e00_ev", "e00_sigma_ev",
              "e_ox_excited_v_nhe", "drive_inj_ev", "drive_reg_ev", "anchors", "voc_v", "jsc_ma_cm2", "ff", "pce_pct",
@@ -141,15 +151,72 @@ def read_input(path: str | Path) -> tuple[str, pd.DataFrame, dict | None]:
     return kind, frame, meta
 
 
+def shipped_protocols(root: str | Path | None = None) -> list[str]:
+    """Protocol ids that have dye models under ``root`` (default ``models/dyecell``).
+
+    Examples
+    --------
+    >>> len(shipped_protocols()) >= 1
+    True
+    """
+    folder = Path(root or MODELS_DIR)
+    return sorted(p.parent.name for p in folder.glob("*/e_ox.json") if (p.parent / "e00.json").is_file())
+
+
+def read_inputs(out_dir: str | Path) -> dict:
+    """``OUT/dyecell/inputs.json`` (:data:`INPUTS_FILE`): what was given in this folder (``{}`` if none)."""
+    side = Path(out_dir) / INPUTS_FILE
+    try:
+        return read_json(side) if side.is_file() else {}
+    except ValueError:
+        return {}
+
+
+def record_inputs(out_dir: str | Path, **entries) -> None:
+    """Add ``entries`` (``candidates={"path", "sha256"}``, ``levels=path``) to ``OUT/dyecell/inputs.json``."""
+    write_json({**read_inputs(out_dir), **entries}, Path(out_dir) / INPUTS_FILE)
+
+
+def _no_models_error(path: Path, pid: str, root: Path, out_dir: str | Path, meta: dict | None,
+                     current_protocol: str | None) -> ConfigError:
+    """The message for levels computed with a protocol that has no dye models in ``root``."""
+    shipped = shipped_protocols(root)
+    have = (f"the dye models in {root} are for protocol{'s' if len(shipped) > 1 else ''} {', '.join(shipped)}"
+            if shipped else f"{root} holds no dye models")
+    given = (read_inputs(out_dir).get("candidates") or {}).get("path") or (meta or {}).get("input") or ""
+    internal = str((Path(out_dir) / "dyecell" / "candidates.csv").resolve())
+    cands = given if given and given != internal else "CANDIDATES"
+    refit = ("`dascreen dyecell --refit` computes the dye reference set with the current protocol and installs "
+             "its models (use it only for a protocol you chose on purpose)")
+    if current_protocol and current_protocol == pid:
+        return ConfigError(f"{path} was computed with protocol {pid}, the current protocol, but {have}. {refit}; "
+                           "or go back to a protocol with shipped models (undo the --set/--config changes of the "
+                           "structures and electronic sections) and re-run the candidates")
+    return ConfigError(
+        f"{path} was computed with protocol {pid}, but {have}. Re-run the candidates with the current protocol: "
+        f"`dascreen dyecell {cands} --out {out_dir}` (only the candidates are computed; molecules already in the "
+        f"results store are not computed again). {refit[0].upper() + refit[1:]}")
+
+
 def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str | Path | None = None,
-                    models_root: str | Path | None = None) -> tuple[pd.DataFrame, dict]:
+                    models_root: str | Path | None = None,
+                    current_protocol: str | None = None) -> tuple[pd.DataFrame, dict]:
     """The dye table of an input file, cached as ``out_dir/dyecell/dyes.csv``.
+
+    ``current_protocol``: the protocol id of the command's configuration, for
+    the message when the levels' protocol has no dye models.
 
     Returns
     -------
     (pandas.DataFrame, dict)
         The table (:data:`screen.dyecell.rank.DYE_COLUMNS`) and its sidecar
         content (input hash, models, protocol, calibration statistics).
+
+    Raises
+    ------
+    ConfigError
+        No dye models for the levels' protocol: names the protocol of the
+        levels, those with models, and the fix (re-run the candidates, or refit).
     """
     path = Path(path)
     kind, frame, meta = read_input(path)
@@ -161,6 +228,9 @@ def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str
         if not pid and models_folder is None:
             raise InputError(f"{path} has no sidecar with the protocol id ({path}.meta.json); give the dye models "
                              "folder explicitly so that the calibration matches the computation")
+        if models_folder is None and not all((Path(models_root or MODELS_DIR) / pid / f"{n}.json").is_file()
+                                             for n in ("e_ox", "e00")):
+            raise _no_models_error(path, pid, Path(models_root or MODELS_DIR), out_dir, meta, current_protocol)
         models = load_models(pid, models_root or MODELS_DIR, folder=models_folder)
         folder = Path(models_folder) if models_folder else Path(models_root or MODELS_DIR) / pid
         info["models"] = {"folder": str(folder), "protocol_id": pid,
@@ -199,9 +269,89 @@ def _cached(target: Path, info: dict) -> pd.DataFrame | None:
     return table if list(table.columns) == DYE_COLUMNS else None
 
 
-def ranking_folder(out_dir: str | Path, oxide: Material, mediator: Material) -> Path:
-    """``out_dir/dyecell/<oxide slug>--<mediator slug>``."""
-    return Path(out_dir) / "dyecell" / f"{oxide.slug}--{mediator.slug}"
+def settings_hash(settings: dict | None = None) -> str:
+    """Short hash of the ``dyecell`` settings that shape a ranking (all but the oxide and the mediator).
+
+    The defaults fill the missing keys and numbers are compared as numbers, so
+    ``--set dyecell.target_pce_pct=8`` and the default 8.0 give the same hash
+    (like :func:`screen.rank_io.settings_hash` of ``dascreen rank``).
+
+    Examples
+    --------
+    >>> a = settings_hash({})
+    >>> len(a), a == settings_hash({"oxide": "nio", "target_pce_pct": 8}), a == settings_hash({"voc_loss_v": 0.3})
+    (8, True, False)
+    """
+    import hashlib
+    import json
+
+    section = {**option_defaults(), **(settings or {})}
+    shaping = {k: (float(v) if isinstance(v, (int, float)) and not isinstance(v, bool) else v)
+               for k, v in section.items() if k not in _NAMED_SETTINGS}
+    text = json.dumps(shaping, sort_keys=True, default=str)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()[:8]
+
+
+def ranking_folder(out_dir: str | Path, oxide: Material, mediator: Material, settings: dict | None = None) -> Path:
+    """``out_dir/dyecell/<oxide slug>--<mediator slug>--<settings hash>`` (:func:`settings_hash`)."""
+    return Path(out_dir) / "dyecell" / f"{oxide.slug}--{mediator.slug}--{settings_hash(settings)}"
+
+
+def resolve_material(role: str, spec: str) -> Material:
+    """:func:`~screen.dyecell.library.resolve_oxide` or ``resolve_mediator``, with a "did you mean" for a typo.
+
+    Raises
+    ------
+    InputError
+        An unknown id that is not a file: the library's message with the close
+        library ids (:func:`screen.partners.suggest`, by id or name), or a bad file.
+
+    Examples
+    --------
+    >>> try:
+    ...     resolve_material("oxide", "tio2-anatse")
+    ... except InputError as exc:
+    ...     print(str(exc).split(" Library ids")[0])
+    unknown oxide 'tio2-anatse': not a library id and not a file. Did you mean tio2-anatase or tio2-rutile?
+    """
+    from screen.dyecell.library import load_mediators, load_oxides
+
+    resolve, load = (resolve_oxide, load_oxides) if role == "oxide" else (resolve_mediator, load_mediators)
+    try:
+        return resolve(spec)
+    except InputError as exc:
+        text = str(exc)
+        if not text.startswith(f"unknown {role} ") or not str(spec or "").strip():
+            raise
+        close = _close_ids(str(spec), load())
+        if not close:
+            raise
+        hint = f" Did you mean {' or '.join(close)}?"
+        marker = "not a file."
+        text = text.replace(marker, marker + hint, 1) if marker in text else text + hint
+        raise InputError(text) from None
+
+
+def _close_ids(word: str, table: pd.DataFrame) -> list[str]:
+    """Library ids close to ``word``: ids that contain it, then close ids or names (difflib), at most three.
+
+    Examples
+    --------
+    >>> t = pd.DataFrame({"id": ["iodide-triiodide", "co-bpy3"], "name": ["iodide/triiodide", "cobalt bipyridine"]})
+    >>> _close_ids("iodide", t), _close_ids("co-bpy", t), _close_ids("zzz", t)
+    (['iodide-triiodide'], ['co-bpy3'], [])
+    """
+    from screen.partners import suggest
+
+    ids = [str(i) for i in table["id"]]
+    names = {str(n).lower(): str(i) for i, n in zip(table["id"], table.get("name", table["id"])) if str(n).strip()}
+    low = word.strip().lower()
+    found = [i for i in ids if len(low) >= 3 and low in i.lower()]
+    for hit in suggest(low, ids + list(names), n=5):
+        ident = names.get(hit.lower(), hit) if hit not in ids else hit
+        if ident not in found:
+            found.append(ident)
+    return found[:3]
 
 
 def _sd_text(value) -> str:
@@ -252,11 +402,14 @@ def _meta(ranking, table, info, oxide, mediator, model, options, short) -> dict:
         "dascreen": __version__, "stage": "dyecell", "scale": "electrochemical (potentials in V vs NHE)",
         "oxide": oxide.as_dict(), "mediator": mediator.as_dict(), "model": model.as_dict(),
         "regeneration_threshold_ev": model.reg_threshold_ev(mediator), "rank": asdict(options),
-        "sign_convention": "drive_inj_ev = E_CB - E(S+/S*) (n-type) and drive_reg_ev = E(S+/S) - E_redox, in eV; "
-                           "both > 0 when the step is downhill (dG = -drive)",
+        "sign_convention": ("drive_inj_ev = E(S+/S) - E_VB and drive_reg_ev = E_redox - E(S/S-) (p-type), in eV; "
+                            if oxide.type == "p" else
+                            "drive_inj_ev = E_CB - E(S+/S*) and drive_reg_ev = E(S+/S) - E_redox (n-type), in eV; ")
+                           + "both > 0 when the step is downhill (dG = -drive)",
         "dyes": {k: v for k, v in info.items() if k != "levels_meta"}, "levels_meta": info.get("levels_meta"),
         "calibration": info.get("calibration"),
-        "flag_text": {code: describe(code, {"model": model.as_dict(), "calibration": info.get("calibration") or {}})
+        "flag_text": {code: describe(code, {"model": model.as_dict(), "calibration": info.get("calibration") or {},
+                                            "oxide": oxide.as_dict()})
                       for code in flags.index},
         "counts": {"rows": int(len(table)), "ok": int(status.eq("ok").sum()),
                    "rejected": int(status.eq("rejected").sum()), "failed": int(status.eq("failed").sum()),
@@ -273,7 +426,8 @@ def _meta(ranking, table, info, oxide, mediator, model, options, short) -> dict:
 
 def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | None = None,
                 mediator: str | None = None, settings: dict | None = None, models_folder: str | Path | None = None,
-                models_root: str | Path | None = None, report: bool = True) -> Path:
+                models_root: str | Path | None = None, report: bool = True,
+                current_protocol: str | None = None) -> Path:
     """Rank dyes for one oxide and one mediator and write the ranking folder.
 
     Parameters
@@ -291,23 +445,27 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
         Dye models (default ``models/dyecell/<protocol-id>``).
     report : bool
         Also write ``report.html`` and ``ranking.safe.csv``.
+    current_protocol : str, optional
+        Protocol id of the command's configuration (for the message when there are no dye models).
 
     Returns
     -------
     pathlib.Path
-        ``ranking.csv`` of ``OUT/dyecell/<oxide>--<mediator>/``.
+        ``ranking.csv`` of ``OUT/dyecell/<oxide>--<mediator>--<settings hash>/`` (:func:`ranking_folder`).
     """
     section = {**option_defaults(), **(settings or {})}
-    ox = resolve_oxide(oxide or section["oxide"])
-    med = resolve_mediator(mediator or section["mediator"])
+    ox = resolve_material("oxide", oxide or section["oxide"])
+    med = resolve_material("mediator", mediator or section["mediator"])
     model = DyeCellModel.from_mapping(section)
     options = RankOptions.from_mapping(section)
-    table, info = build_dye_table(input_path, out_dir, models_folder=models_folder, models_root=models_root)
+    table, info = build_dye_table(input_path, out_dir, models_folder=models_folder, models_root=models_root,
+                                  current_protocol=current_protocol)
     ranking = rank_dyes(table, ox, med, model, options)
-    target = ranking_folder(out_dir, ox, med)
+    target = ranking_folder(out_dir, ox, med, section)
     write_csv(ranking, target / "ranking.csv")
     short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size)
     meta = _meta(ranking, table, info, ox, med, model, options, short)
+    meta["settings_hash"] = settings_hash(section)
     write_json(meta, target / "ranking.meta.json")
     if report:
         from screen.dyecell.page import write_dyecell_report
