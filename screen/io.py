@@ -32,6 +32,7 @@ import pandas as pd
 from screen.errors import InputError
 
 __all__ = ["cell_text", "atomic_path", "csv_text", "write_csv", "write_json", "read_json", "read_csv_checked",
+           "separator_problem",
            "Journal", "Progress"]
 
 
@@ -230,6 +231,46 @@ def read_json(path: str | os.PathLike):
     return json.loads(Path(path).read_text(encoding="utf-8"))
 
 
+_SEPARATORS = ((";", "';'"), ("\t", "tabs"))
+
+
+def separator_problem(header) -> str | None:
+    """Why a CSV file is not comma-separated, from its header (None when it is, or cannot tell).
+
+    A spreadsheet in a European locale saves "CSV" with ``;`` between fields (and
+    decimal commas); a copy from a table may hold tabs. Read with commas, such a
+    header is one field, and every column looks missing.
+
+    Parameters
+    ----------
+    header : str or sequence of str
+        The header line of the file, or the column names it was read into with commas.
+
+    Examples
+    --------
+    >>> separator_problem("id;e_ox_v_nhe;e00_ev")
+    "the file seems to be separated by ';' (header 'id;e_ox_v_nhe;e00_ev'), not by commas: save it as comma-separated CSV, with a point as the decimal mark (1.1, not 1,1)"
+    >>> separator_problem(["id\\tsmiles"])[:42]
+    'the file seems to be separated by tabs (he'
+    >>> separator_problem("id,smiles;x") is None, separator_problem(["id", "a;b"]) is None
+    (True, True)
+    """
+    if not isinstance(header, str):
+        names = [str(c) for c in header]
+        if len(names) != 1:
+            return None
+        header = names[0]
+    header = header.strip("\r\n")
+    if "," in header:
+        return None
+    for sep, name in _SEPARATORS:
+        if sep in header:
+            shown = header if len(header) <= 80 else header[:77] + "..."
+            return (f"the file seems to be separated by {name} (header {shown!r}), not by commas: save it as "
+                    "comma-separated CSV, with a point as the decimal mark (1.1, not 1,1)")
+    return None
+
+
 def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", error=InputError,
                      **read_kwargs) -> pd.DataFrame:
     """Read a CSV file and check that it has the ``required`` columns: the one home of that check.
@@ -273,6 +314,9 @@ def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", 
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise error(f"{path}: {what} is not a readable CSV file: {exc}") from None
     missing = [c for c in required if c not in frame.columns]
+    problem = separator_problem(frame.columns) if missing else None
+    if problem:
+        raise error(f"{path}: {problem}")
     if missing:
         raise error(f"{path}: {what} needs columns {list(required)}; missing {missing}; found {list(frame.columns)}")
     return frame

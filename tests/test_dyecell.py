@@ -497,3 +497,72 @@ def test_reason_shows_the_decimals_that_put_a_drive_below_its_threshold():
     out = evaluate(DyeCellModel(), 0.68, 2.0, resolve_oxide("nio"), resolve_mediator("iodide-triiodide"))
     assert "injection_low" in out["flags"][0]
     assert "driving force 0.18 eV; hole injection needs \u2265 0.20 eV" in out["viability"][0]
+
+
+# --------------------------------------------------------------------------- input handling (new-user audit)
+
+def test_dye_file_accepts_reference_as_alias_of_e_ox_reference():
+    # 0.40 V vs Fc+/Fc in acetonitrile + 0.63 V = 1.03 V vs NHE, with the column named as in a mediator file
+    t = dyes_from_file(pd.DataFrame({"id": ["a"], "e_ox_v": [0.40], "reference": ["Fc"],
+                                     "solvent": ["acetonitrile"], "e00_ev": [2.0]}))
+    assert float(t.loc[0, "e_ox_v_nhe"]) == pytest.approx(1.03)
+    # both columns, same electrode: accepted
+    t = dyes_from_file(pd.DataFrame({"id": ["a"], "e_ox_v": [0.30], "reference": ["sce"], "e_ox_reference": ["SCE"],
+                                     "e00_ev": [2.0]}))
+    assert float(t.loc[0, "e_ox_v_nhe"]) == pytest.approx(0.541)
+    # both columns, different electrodes: refused, naming the line, the id and both values
+    with pytest.raises(InputError, match=r"line 2 \(id 'a'\): columns reference = 'SCE' and e_ox_reference = 'Fc' "
+                                         "disagree"):
+        dyes_from_file(pd.DataFrame({"id": ["a"], "e_ox_v": [0.30], "reference": ["SCE"], "e_ox_reference": ["Fc"],
+                                     "solvent": ["acetonitrile"], "e00_ev": [2.0]}), "d.csv")
+
+
+def test_material_file_with_two_disagreeing_reference_columns_is_refused(tmp_path):
+    f = tmp_path / "med.csv"
+    f.write_text("id,e_redox_v,reference,e_redox_reference\nm,0.30,SCE,SCE\n")
+    assert resolve_mediator(str(f)).potential_v_nhe == pytest.approx(0.541)
+    f.write_text("id,e_redox_v,reference,e_redox_reference\nm,0.30,SCE,NHE\n")
+    with pytest.raises(InputError, match="reference = 'SCE' and e_redox_reference = 'NHE' disagree"):
+        resolve_mediator(str(f))
+    g = tmp_path / "ox.csv"
+    g.write_text("id,band_edge_v,reference,band_edge_reference\nx,-0.7,SCE,Ag/AgCl\n")
+    with pytest.raises(InputError, match="disagree"):
+        resolve_oxide(str(g))
+
+
+def test_film_scale_refusal_gives_the_conversion_not_a_module_name():
+    frame = pd.DataFrame({"id": ["d"], "e_ox_v_nhe": [1.0], "e00_ev": [2.0], "scale": ["film"]})
+    with pytest.raises(ScaleMismatchError) as err:
+        dyes_from_file(frame, "dyes.csv")
+    text = str(err.value)
+    assert "screen.dyecell" not in text and "convert explicitly" not in text
+    # the project's constants: absolute NHE potential 4.44 V (Trasatti 1986), Fc+/Fc +0.63 V in acetonitrile
+    assert "E vs NHE [V] = -E_vacuum [eV] - 4.44" in text and "Trasatti 1986" in text
+    assert "e.g. a HOMO of -5.30 eV gives 0.86 V" in text
+    assert "give the measured oxidation potential instead" in text and "+0.63 V in acetonitrile" in text
+    # a vacuum-scale levels file gets the same instruction
+    levels = pd.DataFrame({"id": ["d"], "homo_ev": [-5.3], "lumo_ev": [-3.2], "gap_opt_ev": [2.0], "scale": ["film"]})
+    with pytest.raises(ScaleMismatchError, match=r"E vs NHE \[V\] = -E_vacuum \[eV\] - 4\.44"):
+        dyes_from_file(levels)
+
+
+def test_anchor_check_switched_off_keeps_an_info_flag():
+    from screen.dyecell.flags import INFO_FLAGS, describe
+
+    dyes = dyes_from_file(pd.DataFrame({
+        "id": ["anchored", "bare"], "e_ox_v_nhe": [1.05, 1.05], "e00_ev": [2.0, 2.0],
+        "smiles": ["OC(=O)C(C#N)=Cc1ccc(N(c2ccccc2)c2ccccc2)s1", "N#CC(C#N)=Cc1ccc(N(c2ccccc2)c2ccccc2)s1"]}))
+    r = rank_dyes(dyes, resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3"),
+                  DyeCellModel(require_anchor=False)).set_index("id")
+    assert r.loc["bare", "flags"].split(";") == ["anchor_missing_allowed"]
+    assert r.loc["bare", "viable"] and r.loc["bare", "passes"] and r.loc["bare", "viability"] == "viable"
+    assert r.loc["anchored", "flags"] == ""
+    assert "anchor_missing_allowed" in INFO_FLAGS
+    assert "dyecell.require_anchor = false" in describe("anchor_missing_allowed")
+    # with the check on (default), the fail flag alone
+    on = rank_dyes(dyes, resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3")).set_index("id")
+    assert on.loc["bare", "flags"].split(";") == ["no_anchor"]
+    # a dye without a structure keeps anchor_unknown, not anchor_missing_allowed
+    plain = dyes_from_file(pd.DataFrame({"id": ["x"], "e_ox_v_nhe": [1.05], "e00_ev": [2.0]}))
+    p = rank_dyes(plain, resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3"), DyeCellModel(require_anchor=False))
+    assert p.loc[0, "flags"] == "anchor_unknown"

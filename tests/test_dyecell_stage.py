@@ -592,3 +592,42 @@ def test_diagram_rows_picks_the_nearest_misses_first():
     rows = diagram_rows(r, r.head(10), meta)
     assert len(rows) <= DIAGRAM_MAX and rows["id"].tolist()[-2:] == ["d11", "d10"]
     assert rows["id"].tolist()[:8] == [f"d{i}" for i in range(8)]
+
+
+def test_cli_names_a_semicolon_or_tab_separated_dye_file(tmp_path, capsys):
+    from screen.cli import main
+
+    # a spreadsheet export in a European locale: ';' between fields, decimal commas
+    semi = tmp_path / "semi.csv"
+    semi.write_text("id;e_ox_v_nhe;e00_ev\nd1;1,1;2,1\n")
+    assert main(["dyecell", "--levels", str(semi), "--out", str(tmp_path / "o")]) == 2
+    err = capsys.readouterr().err
+    assert "the file seems to be separated by ';'" in err and "save it as comma-separated CSV" in err
+    assert "needs an id column" not in err
+    tab = tmp_path / "tab.csv"
+    tab.write_text("id\te_ox_v_nhe\te00_ev\nd1\t1.1\t2.1\n")
+    assert main(["dyecell", "--levels", str(tab), "--out", str(tmp_path / "o2")]) == 2
+    assert "the file seems to be separated by tabs" in capsys.readouterr().err
+    # a one-row mediator file saved the same way
+    med = tmp_path / "med.csv"
+    med.write_text("id;e_redox_v_nhe\nm;0,5\n")
+    ok = tmp_path / "ok.csv"
+    ok.write_text("id,e_ox_v_nhe,e00_ev\nd1,1.1,2.1\n")
+    assert main(["dyecell", "--levels", str(ok), "--out", str(tmp_path / "o3"), "--mediator", str(med)]) == 2
+    assert "mediator file" in (e := capsys.readouterr().err) and "separated by ';'" in e
+
+
+def test_cli_without_anchor_requirement_shows_the_info_flag(tmp_path, capsys):
+    from screen.cli import main
+
+    f = tmp_path / "measured.csv"
+    f.write_text("id,e_ox_v_nhe,e00_ev,smiles\nbare,1.05,2.0,N#CC(C#N)=Cc1ccc(N(c2ccccc2)c2ccccc2)s1\n")
+    out = tmp_path / "o"
+    assert main(["dyecell", "--levels", str(f), "--out", str(out), "--mediator", "co-bpy3", "--set",
+                 "dyecell.n_samples=100", "--set", "dyecell.require_anchor=false"]) == 0
+    assert "anchor_missing_allowed" in capsys.readouterr().out
+    (ranking,) = list((out / "dyecell").glob("*/ranking.csv"))
+    table = pd.read_csv(ranking, keep_default_na=False)
+    assert table.loc[0, "flags"] == "anchor_missing_allowed" and str(table.loc[0, "passes"]) == "True"
+    page = (ranking.parent / "report.html").read_text()
+    assert "anchor check is switched off" in page

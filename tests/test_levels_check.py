@@ -93,3 +93,12 @@ def test_problem_count_says_how_many_are_shown():
     msg = str(err.value)
     assert msg.startswith("misc.csv: 7 problems (first 5 shown):") and "more)" not in msg
     assert msg.count("\n  ") == 5
+
+
+def test_semicolon_separated_levels_file_is_named(tmp_path):
+    from screen.levels import read_levels
+
+    f = tmp_path / "levels.csv"
+    f.write_text("id;homo_ev;lumo_ev;scale\nm1;-5,3;-3,2;film\n")
+    with pytest.raises(InputError, match=r"levels\.csv: the file seems to be separated by ';'.*comma-separated CSV"):
+        read_levels(f)

@@ -814,3 +814,37 @@ def test_five_is_small() -> None:
     out = validate(read_candidates(DATA / "five.csv"))
     assert len(out) == 6 and (out.status == "ok").sum() == 5
     assert out.heavy_atoms.dropna().max() <= 14
+
+
+def test_semicolon_separated_candidate_csv_is_named(tmp_path):
+    f = tmp_path / "cands.csv"
+    f.write_text("id;smiles\nm1;c1ccccc1\n")
+    with pytest.raises(InputError, match=r"seems to be separated by ';'.*save it as comma-separated CSV"):
+        read_candidates(f)
+    g = tmp_path / "tabs.csv"
+    g.write_text("id\tsmiles\nm1\tc1ccccc1\n")
+    with pytest.raises(InputError, match="seems to be separated by tabs"):
+        read_candidates(g)
+    # a comma-separated file without a smiles column keeps the old message
+    h = tmp_path / "nosmiles.csv"
+    h.write_text("id,structure;x\nm1,c1ccccc1\n")
+    with pytest.raises(InputError, match="no 'smiles' column"):
+        read_candidates(h)
+
+
+def test_metal_complex_as_dot_separated_fragments_is_reported_by_its_metal() -> None:
+    # a Zn(II) ion with two carboxylate ligands, and Fe(II) with two cyclopentadienides, written as fragments
+    zn = _one("[Zn+2].[O-]C(=O)c1ccccc1.[O-]C(=O)c1ccccc1")
+    assert (zn.status, zn.reason) == ("rejected", "unsupported_element")
+    assert zn.error.startswith("contains Zn: metal complexes") and "outside the calibration" in zn.error
+    assert "disconnected" not in zn.error and "element(s) not allowed: Zn" in zn.error
+    fe = _one("[Fe+2].c1cc[cH-]c1.c1cc[cH-]c1")
+    assert fe.reason == "unsupported_element" and fe.error.startswith("contains Fe:")
+    # a single-fragment organometallic gets the same wording
+    assert _one("C[Hg]C").error.startswith("contains Hg: metal complexes")
+    # a salt of an alkali counter-ion stays a salt, naming the ion
+    salt = _one("CC(=O)[O-].[Na+]")
+    assert salt.reason == "multi_fragment" and "also contains elements not allowed: Na" in salt.error
+    # a non-metal outside the allowed set is reported first too, without the metal wording
+    te = _one("CC.[Te]", PrepareOptions(allowed_elements=("H", "C")))
+    assert te.reason == "unsupported_element" and te.error.startswith("element(s) not allowed: Te")

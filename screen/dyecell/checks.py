@@ -36,7 +36,7 @@ from screen.errors import InputError
 
 __all__ = ["E_OX_RANGE_V_NHE", "E00_RANGE_EV", "POTENTIAL_RANGE_V_NHE", "THRESHOLD_RANGE_EV", "e_ox_problem",
            "e00_problem", "potential_problem", "vacuum_problem", "threshold_problem", "check_dye_file",
-           "smiles_problem", "unreadable_smiles"]
+           "smiles_problem", "unreadable_smiles", "reference_conflict", "merge_reference_alias"]
 
 #: accepted E(S⁺/S) of a dye [V vs NHE]: organic sensitisers lie roughly in −0.5…+2.5 V (common practice);
 #: 0.5 V of margin each side so that an unusual dye is ranked (and marked not viable) rather than refused
@@ -194,6 +194,52 @@ def _cell(value) -> str:
     return "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value).strip()
 
 
+def reference_conflict(values: dict[str, str]) -> str | None:
+    """Two reference-electrode columns of one row that disagree (None if at most one distinct value is given).
+
+    Examples
+    --------
+    >>> reference_conflict({"reference": "SCE", "e_ox_reference": " sce "}) is None
+    True
+    >>> reference_conflict({"reference": "SCE", "e_ox_reference": "Fc"})
+    "columns reference = 'SCE' and e_ox_reference = 'Fc' disagree; keep one of the two columns"
+    """
+    given = {c: _cell(v) for c, v in values.items() if _cell(v)}
+    if len({v.lower() for v in given.values()}) <= 1:
+        return None
+    shown = " and ".join(f"{c} = {v!r}" for c, v in given.items())
+    return f"columns {shown} disagree; keep one of the two columns"
+
+
+def merge_reference_alias(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame:
+    """A dye file with the alias column ``reference`` folded into ``e_ox_reference`` (the frame itself if absent).
+
+    Both columns may be present when they agree on every row where both are
+    filled; a row where they disagree is refused.
+
+    Examples
+    --------
+    >>> f = merge_reference_alias(pd.DataFrame({"id": ["a"], "e_ox_v": [0.4], "reference": ["SCE"]}))
+    >>> f["e_ox_reference"].tolist(), "reference" in f
+    (['SCE'], False)
+    >>> merge_reference_alias(pd.DataFrame({"id": ["a"], "reference": ["SCE"], "e_ox_reference": ["Fc"]}), "d.csv")
+    Traceback (most recent call last):
+    ...
+    screen.errors.InputError: d.csv: line 2 (id 'a'): columns reference = 'SCE' and e_ox_reference = 'Fc' disagree; keep one of the two columns
+    """
+    if "reference" not in frame:
+        return frame
+    alias = [_cell(v) for v in frame["reference"]]
+    main = [_cell(v) for v in frame["e_ox_reference"]] if "e_ox_reference" in frame else [""] * len(frame)
+    ids = [_cell(v) for v in frame["id"]] if "id" in frame else [""] * len(frame)
+    problems = [f"line {_line(frame, i)} (id {ids[i]!r}): {why}" for i in range(len(frame))
+                if (why := reference_conflict({"reference": alias[i], "e_ox_reference": main[i]}))]
+    _raise(where, problems)
+    out = frame.drop(columns="reference")
+    out["e_ox_reference"] = [m or a for m, a in zip(main, alias)]
+    return out
+
+
 def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
     """Refuse a user's dye file with a missing, duplicated or impossible value; E(S⁺/S) of every row.
 
@@ -274,7 +320,7 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
         """E(S+/S) of row ``i`` from ``e_ox_v`` and its reference into ``e_ox``; the problem, if any."""
         if not refs[i]:
             return f"{at(i, 'e_ox_v', raw[i])}: e_ox_v needs the reference electrode in column e_ox_reference " \
-                   "(NHE, SCE, Ag/AgCl or Fc with a solvent)"
+                   "(or reference): NHE, SCE, Ag/AgCl or Fc with a solvent"
         if needs_solvent(refs[i]) and not solv[i]:
             return f"{at(i, 'e_ox_reference', refs[i])}: a ferrocene reference needs the solvent in column " \
                    "solvent (Fc+/Fc vs NHE depends on it: acetonitrile, dichloromethane, DMF or THF)"

@@ -385,7 +385,7 @@ def add_dyecell(sub) -> None:
                    help="dye list (.csv id,smiles[,name]; .smi; .sdf): runs the shared stages first")
     p.add_argument("--levels", default=None,
                    help="rank this file instead of computing (not with CANDIDATES): a run's levels.csv or your own "
-                        "id,e_ox_v_nhe (or e_ox_v + e_ox_reference + solvent),e00_ev[,smiles] file. Without "
+                        "id,e_ox_v_nhe (or e_ox_v + e_ox_reference (or reference) + solvent),e00_ev[,smiles] file. Without "
                         "CANDIDATES and --levels: the input ranked last in OUT (OUT/dyecell/levels_raw.csv of a "
                         "computing run, or the last --levels file), else OUT/levels.csv")
     p.add_argument("--oxide", default=None,

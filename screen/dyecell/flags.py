@@ -50,6 +50,9 @@ _REGISTRY = (
     Flag("voc_nonpositive", "no photovoltage: the ideal voltage {ideal} is not larger than the assumed Voc loss "
                             "(or the mediator lies at or beyond the oxide band edge)"),
     Flag("anchor_unknown", "no structure given, so the anchoring group could not be checked", "info"),
+    Flag("anchor_missing_allowed", "no anchoring group found, but the anchor check is switched off "
+                                   "(dyecell.require_anchor = false): ranked as if the dye binds to the oxide",
+         "info"),
     Flag("element_uncalibrated", "contains an element that no dye of the calibration set has{elements}: E(S⁺/S) "
                                  "and E₀₋₀ are extrapolations", "info"),
     Flag("outside_calibration", "E(S⁺/S) or E₀₋₀ more than 0.1 V / 0.1 eV outside the range of the calibration "

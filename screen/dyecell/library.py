@@ -54,9 +54,10 @@ from pathlib import Path
 
 import pandas as pd
 
-from screen.dyecell.checks import potential_problem, threshold_problem, vacuum_problem
+from screen.dyecell.checks import potential_problem, reference_conflict, threshold_problem, vacuum_problem
 from screen.dyecell.scales import needs_solvent, nhe_from_vacuum_ev, to_nhe
 from screen.errors import InputError
+from screen.io import separator_problem
 
 __all__ = ["Material", "OXIDES_FILE", "MEDIATORS_FILE", "load_oxides", "load_mediators", "resolve_oxide",
            "resolve_mediator"]
@@ -183,6 +184,9 @@ def _one_row(path: Path, what: str) -> dict:
         frame = pd.read_csv(path, dtype=str, keep_default_na=False)
     except (OSError, pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise InputError(f"{what} file {path} cannot be read as CSV: {exc}") from exc
+    problem = separator_problem(frame.columns)
+    if problem:
+        raise InputError(f"{what} file {path}: {problem}")
     if len(frame) != 1:
         raise InputError(f"{what} file {path} must hold exactly one row; it has {len(frame)}")
     return {k.strip(): v for k, v in frame.iloc[0].to_dict().items()}
@@ -216,6 +220,9 @@ def _potential_from_row(row: dict, base: str, where: str) -> tuple[float, str]:
             raise InputError(f"{where}, column {col} = {value:g}: {problem}")
         note = f"{col} = {value} eV (vacuum) → V vs NHE with the absolute NHE potential 4.44 V (Trasatti 1986)"
         return float(nhe_from_vacuum_ev(value)), note
+    clash = reference_conflict({c: _text(row.get(c)) for c in ("reference", f"{base}_reference")})
+    if clash:
+        raise InputError(f"{where}: {clash}")
     ref_col = next((c for c in ("reference", f"{base}_reference") if _text(row.get(c))), "")
     if not ref_col:
         raise InputError(f"{where}: {col} needs the reference electrode in a column named 'reference' "

@@ -123,7 +123,8 @@ class DyeCellModel:
     min_drive_reg_ev : float, default 0.20
         Smallest regeneration driving force, unless the mediator sets its own. [eV]
     require_anchor : bool, default True
-        A dye without an anchoring group is not viable.
+        A dye without an anchoring group is not viable. False: it stays viable
+        and keeps the information flag ``anchor_missing_allowed``.
 
     Examples
     --------
@@ -348,6 +349,7 @@ def evaluate(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator:
         masks = {
             "input_missing": missing,
             "no_anchor": ~anchored if model.require_anchor else np.zeros(n, bool),
+            "anchor_missing_allowed": np.zeros(n, bool) if model.require_anchor else ~anchored,
             "injection_low": ~missing & (d_inj < thr_inj - TOL_EV),
             "regeneration_low": ~missing & (d_reg < thr_reg - TOL_EV),
             "voc_nonpositive": np.full(n, voc_raw - loss <= 0.0),

@@ -36,13 +36,15 @@ import pandas as pd
 
 from screen.dyecell.anchors import find_anchors
 from screen.dyecell.calibrate import apply_models, elements_of
-from screen.dyecell.checks import check_dye_file, unreadable_smiles
+from screen.dyecell.checks import check_dye_file, merge_reference_alias, unreadable_smiles
 from screen.dyecell.flags import INFO_FLAGS, join_flags
 from screen.dyecell.library import Material
 from screen.dyecell.model import DyeCellModel, evaluate, sample_pce
 from screen.dyecell.options import RankOptions
-from screen.dyecell.scales import ELECTROCHEMICAL, require_scale
+from screen.dyecell.scales import ELECTROCHEMICAL, conversion_hint, require_scale
 from screen.errors import InputError, ScaleMismatchError
+from screen.io import separator_problem
+from screen.prepare.checks import NONMETALS
 from screen.spectrum import gap_to_wavelength_nm
 
 __all__ = ["DYE_COLUMNS", "RANKING_COLUMNS", "EXTRA_COLUMNS", "NONMETALS", "NOT_A_DYE", "dye_table",
@@ -62,8 +64,6 @@ EXTRA_COLUMNS = ["name", "e_ox_sigma_v", "e00_sigma_ev", "edge_nm", "uncalibrate
 #: reason of a polymer repeat unit in the dye-cell mode (status ``rejected``)
 NOT_A_DYE = ("a polymer repeat unit is not a sensitiser dye; dye mode takes molecules (give the dye itself, "
              "without attachment points *)")
-#: atomic numbers counted as non-metals (metalloids B, Si, Ge, As, Te included)
-NONMETALS = frozenset({1, 2, 5, 6, 7, 8, 9, 10, 14, 15, 16, 17, 18, 32, 33, 34, 35, 36, 52, 53, 54, 85, 86})
 _ROUND = 4
 
 
@@ -166,7 +166,9 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
     (1.03, 'electrochemical')
     """
     if "id" not in frame:
-        raise InputError(f"{where}: needs an id column")
+        problem = separator_problem(frame.columns)
+        raise InputError(f"{where}: {problem}" if problem else f"{where}: needs an id column")
+    frame = merge_reference_alias(frame, where)
     has_nhe, has_ref = "e_ox_v_nhe" in frame, "e_ox_v" in frame
     if "e00_ev" not in frame or not (has_nhe or has_ref):
         if "homo_ev" in frame:
@@ -174,8 +176,8 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
             raise ScaleMismatchError(
                 f"{where} holds vacuum-scale levels (homo_ev, scale {', '.join(scales)}) without raw xTB values; "
                 "the dye-cell mode needs E(S+/S) in V vs NHE and E00: give e_ox_v_nhe (or e_ox_v with "
-                "e_ox_reference) and e00_ev, or pass a dascreen run's levels.csv")
-        raise InputError(f"{where}: a dye file needs id, e_ox_v_nhe (or e_ox_v + e_ox_reference) and e00_ev; "
+                f"e_ox_reference) and e00_ev, or pass a dascreen run's levels.csv. {conversion_hint()}")
+        raise InputError(f"{where}: a dye file needs id, e_ox_v_nhe (or e_ox_v + e_ox_reference, also named reference) and e00_ev; "
                          f"found {list(frame.columns)}")
     if "scale" in frame:
         given = _text_col(frame, "scale").str.strip()
@@ -215,7 +217,8 @@ def _bool_col(frame: pd.DataFrame, col: str, default: bool) -> np.ndarray:
 def _flag_masks(d: pd.DataFrame, dev: dict, known: np.ndarray) -> dict[str, np.ndarray]:
     """One boolean mask per flag code: the model's, the anchor check's and the calibration's."""
     masks = {k: np.asarray(dev[k], bool) for k in ("input_missing", "no_anchor", "injection_low", "regeneration_low",
-                                                    "voc_nonpositive", "p_type_estimate", "detailed_balance_cap")}
+                                                    "voc_nonpositive", "p_type_estimate", "detailed_balance_cap",
+                                                    "anchor_missing_allowed")}
     masks["anchor_unknown"] = ~known
     masks["element_uncalibrated"] = _text_col(d, "uncalibrated_elements").str.strip().ne("").to_numpy()
     masks["outside_calibration"] = _bool_col(d, "outside_calibration", False)

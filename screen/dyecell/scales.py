@@ -57,7 +57,7 @@ from screen.errors import InputError, ScaleMismatchError
 
 __all__ = ["ABSOLUTE_NHE_V", "ELECTROCHEMICAL", "ELECTRODES_FILE", "vacuum_ev_from_nhe", "nhe_from_vacuum_ev",
            "electrodes", "solvent_key", "needs_solvent", "fc_vs_nhe_v", "reference_vs_nhe_v", "to_nhe", "from_nhe",
-           "require_scale"]
+           "require_scale", "conversion_hint"]
 
 #: absolute potential of the standard hydrogen electrode (Trasatti 1986, IUPAC) [V]
 ABSOLUTE_NHE_V = 4.44
@@ -260,15 +260,44 @@ def require_scale(scales, where: str, expected: str = ELECTROCHEMICAL) -> None:
     Examples
     --------
     >>> require_scale(["electrochemical"], "dyes.csv")
-    >>> require_scale(["film"], "levels.csv")
+    >>> require_scale(["film"], "levels.csv")  # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...
-    screen.errors.ScaleMismatchError: levels.csv is on the 'film' scale; the dye-cell mode needs 'electrochemical' (potentials in V vs NHE); convert explicitly (screen.dyecell.scales) instead of mixing scales
+    screen.errors.ScaleMismatchError: levels.csv is on the 'film' scale; the dye-cell mode needs 'electrochemical' (potentials in V vs NHE). Give each dye's oxidation potential as e_ox_v_nhe [V vs NHE] ...
     """
     labels = [scales] if isinstance(scales, str) else list(scales)
     found = sorted({str(s).strip() for s in labels} - {expected})
     if found:
         shown = ", ".join(repr(s) for s in found)
         raise ScaleMismatchError(
-            f"{where} is on the {shown} scale; the dye-cell mode needs {expected!r} (potentials in V vs NHE); "
-            "convert explicitly (screen.dyecell.scales) instead of mixing scales")
+            f"{where} is on the {shown} scale; the dye-cell mode needs {expected!r} (potentials in V vs NHE). "
+            f"{conversion_hint()}")
+
+
+def conversion_hint() -> str:
+    """How a chemist turns a vacuum-scale level or a CV measurement into the dye file's ``e_ox_v_nhe``.
+
+    The constants are the module's: :data:`ABSOLUTE_NHE_V` (Trasatti 1986) and
+    the Fc⁺/Fc offsets of ``electrodes.csv``.
+
+    Examples
+    --------
+    >>> print(conversion_hint())  # doctest: +ELLIPSIS
+    Give each dye's oxidation potential as e_ox_v_nhe [V vs NHE] (and scale = electrochemical, or no scale column): from an energy on the vacuum scale, E vs NHE [V] = -E_vacuum [eV] - 4.44 (absolute potential of the hydrogen electrode, Trasatti 1986), e.g. a HOMO of -5.30 eV gives 0.86 V; for a HOMO derived from cyclic voltammetry vs Fc+/Fc, give the measured oxidation potential instead, as e_ox_v with e_ox_reference = Fc and the solvent in column solvent (Fc+/Fc vs NHE: +0.63 V in acetonitrile, +0.70 V in dichloromethane, +0.69 V in DMF, +0.80 V in THF), not the HOMO...
+    """
+    offsets = []
+    for solvent, shown in (("acetonitrile", "acetonitrile"), ("dichloromethane", "dichloromethane"),
+                           ("dmf", "DMF"), ("thf", "THF")):
+        try:
+            offsets.append(f"{fc_vs_nhe_v(solvent):+.2f} V in {shown}")
+        except InputError:  # a table without that solvent: leave it out of the hint
+            continue
+    fc = f" (Fc+/Fc vs NHE: {', '.join(offsets)})" if offsets else ""
+    example = -5.30
+    return (f"Give each dye's oxidation potential as e_ox_v_nhe [V vs NHE] (and scale = {ELECTROCHEMICAL}, or no "
+            f"scale column): from an energy on the vacuum scale, E vs NHE [V] = -E_vacuum [eV] - {ABSOLUTE_NHE_V:g} "
+            f"(absolute potential of the hydrogen electrode, Trasatti 1986), e.g. a HOMO of {example:.2f} eV gives "
+            f"{float(nhe_from_vacuum_ev(example)):.2f} V; for a HOMO derived from cyclic voltammetry vs Fc+/Fc, give "
+            f"the measured oxidation potential instead, as e_ox_v with e_ox_reference = Fc and the solvent in column "
+            f"solvent{fc}, not the HOMO: that HOMO already holds a vacuum level of ferrocene assumed by the paper, "
+            "and papers assume different ones")

@@ -63,12 +63,17 @@ A rejected row carries exactly one reason (the first problem found, in this orde
                         attachment point (``**``).
 ``attachment_same_atom`` both attachment points on the same atom (``*C*``).
 ``multi_fragment``      more than one disconnected fragment (salts, mixtures, solvates); the
-                        message lists the fragments.  Checked before the element check, so a
-                        metal salt such as ``[Na+].[Cl-]`` is reported as a salt (the message
-                        also names the disallowed elements).
+                        message lists the fragments.  A structure whose only disallowed
+                        elements are alkali or alkaline-earth counter-ions, such as
+                        ``CC(=O)[O-].[Na+]``, is reported as a salt (the message also names
+                        those elements).
 ``unsupported_element`` elements outside ``PrepareOptions.allowed_elements`` (metals, noble
                         gases, ...) or unknown element symbols; the message lists the
-                        offending elements and the allowed set.
+                        offending elements and the allowed set, and starts with
+                        ``contains <element>: metal complexes ... are outside the calibration``
+                        for a metal.  Checked before ``multi_fragment`` for any other
+                        disallowed element, so a metal complex written as dot-separated
+                        fragments (metal ion and ligands) is reported by its metal.
 ``charge_separated_sp3`` (a) a charged carbon with four single bonds (counting hydrogens)
                         in a net-neutral structure -- checked before ``valence``, which would
                         otherwise report it; (b) after the ``charged`` check: in a net-neutral

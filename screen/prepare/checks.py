@@ -32,7 +32,7 @@ from screen.prepare.charges import localised_carbon_charge, overbonded_charged_c
 from screen.prepare.options import KNOWN_ELEMENTS as _KNOWN_ELEMENTS
 from screen.prepare.options import PrepareOptions
 
-__all__ = ["REASON_CODES", "snippet"]
+__all__ = ["REASON_CODES", "NONMETALS", "snippet"]
 
 #: Every reason code :func:`screen.prepare.validate` can emit (``''`` for ``ok`` rows).
 REASON_CODES: tuple[str, ...] = (
@@ -65,6 +65,11 @@ _CXSMILES = re.compile(r"^\S+ \|[^|]*\|$")
 _LOG_PREFIX = re.compile(r"^\[\d\d:\d\d:\d\d\]\s?")
 
 _MAX_FRAGMENTS_SHOWN = 5
+#: atomic numbers of the non-metals (metalloids B, Si, Ge, As, Te included): any other element is a metal
+NONMETALS = frozenset({1, 2, 5, 6, 7, 8, 9, 10, 14, 15, 16, 17, 18, 32, 33, 34, 35, 36, 52, 53, 54, 85, 86})
+#: alkali and alkaline-earth metals: in a structure of several fragments they are counter-ions, so such a
+#: structure is reported as a salt (``multi_fragment``); any other disallowed element is reported first
+_COUNTER_IONS = frozenset({"Li", "Na", "K", "Rb", "Cs", "Be", "Mg", "Ca", "Sr", "Ba"})
 _MAX_SNIPPET = 40
 
 
@@ -269,14 +274,34 @@ def _check_fragments(mol: Chem.Mol, options: PrepareOptions) -> None:
 
 
 def _check_elements(mol: Chem.Mol, options: PrepareOptions) -> None:
-    """Reject atoms of elements outside ``options.allowed_elements``."""
+    """Reject atoms of elements outside ``options.allowed_elements``; a metal is named as such."""
     bad = _disallowed_elements(mol, options)
     if bad:
+        table = Chem.GetPeriodicTable()
+        metals = [e for e in bad if table.GetAtomicNumber(e) not in NONMETALS]
+        head = (f"contains {', '.join(metals)}: metal complexes (and other metal-containing molecules) are "
+                "outside the calibration; " if metals else "")
         raise _Reject(
             "unsupported_element",
-            f"element(s) not allowed: {', '.join(bad)}; "
+            f"{head}element(s) not allowed: {', '.join(bad)}; "
             f"allowed elements: {', '.join(options.allowed_elements)}",
         )
+
+
+def _check_elements_and_fragments(mol: Chem.Mol, options: PrepareOptions) -> None:
+    """The element check, then the fragment check; a salt of alkali or alkaline-earth ions stays a salt.
+
+    A metal complex written as dot-separated fragments (the metal ion and its
+    ligands) is reported by its metal (``unsupported_element``), not as a
+    mixture; a salt whose only disallowed elements are alkali or alkaline-earth
+    counter-ions (``CC(=O)[O-].[Na+]``) is reported as ``multi_fragment`` (the
+    neutral molecule is what is wanted), naming those elements.
+    """
+    bad = _disallowed_elements(mol, options)
+    if bad and not set(bad) <= _COUNTER_IONS:
+        _check_elements(mol, options)
+    _check_fragments(mol, options)
+    _check_elements(mol, options)
 
 
 def _symbol(atom: Chem.Atom) -> str:
@@ -424,8 +449,7 @@ def _check_structure(smiles: str, options: PrepareOptions) -> _Checked:
     try:
         mol = _parse_unsanitized(smiles, options)
         result.representation = _check_attachments(mol)
-        _check_fragments(mol, options)
-        _check_elements(mol, options)
+        _check_elements_and_fragments(mol, options)
         if not options.allow_charge_separation:
             message = overbonded_charged_carbon(mol)
             if message:

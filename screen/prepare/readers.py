@@ -30,6 +30,7 @@ import pandas as pd
 from rdkit import Chem, rdBase
 
 from screen.errors import InputError
+from screen.io import separator_problem
 from screen.prepare.checks import snippet as _snippet
 from screen.prepare.shards import MANIFEST_COLUMNS
 
@@ -93,6 +94,9 @@ def _read_csv(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
                 header = [f.strip() for f in fields]
                 lowered = [h.lower() for h in header]
                 if "smiles" not in lowered:
+                    problem = separator_problem(header)
+                    if problem:
+                        raise InputError(f"{path}: {problem}")
                     raise InputError(
                         f"{path}: no 'smiles' column; columns found: {header}. "
                         "A candidate CSV needs a header with at least 'smiles' (and usually 'id')"
