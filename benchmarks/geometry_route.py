@@ -70,6 +70,18 @@ def molecule_errors(models: dict, name: str, skip: set[str]) -> dict:
             if r.get("representation", "molecule") != "polymer" and r["name"] not in skip}
 
 
+def computed_records(work, molecules: pd.DataFrame, jobs: int, save=None, load=None) -> list[dict]:
+    """``work((name, smiles))`` of every molecule in ``jobs`` processes, or the records saved by an earlier run
+    (``load``); written as JSON lines to ``save`` when given. Shared with ``ipea_method.py``."""
+    if load:
+        return [json.loads(line) for line in open(load)]
+    with ProcessPoolExecutor(jobs) as pool:
+        records = list(pool.map(work, zip(molecules["name"], molecules["smiles"])))
+    if save:
+        Path(save).write_text("".join(json.dumps(r) + "\n" for r in records))
+    return records
+
+
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--jobs", type=int, default=2)
@@ -80,13 +92,7 @@ def main(argv=None) -> int:
     sets = read_reference(cfg["calibration"]["reference"])
     raw = pd.read_csv(REPO / "models" / cfg.protocol_id / "reference_raw.csv", keep_default_na=False, na_values=[""])
     molecules = raw[(raw["representation"] != "polymer") & raw["status"].eq("ok")]
-    if args.load:
-        records = [json.loads(line) for line in open(args.load)]
-    else:
-        with ProcessPoolExecutor(args.jobs) as pool:
-            records = list(pool.map(xtb_route, zip(molecules["name"], molecules["smiles"])))
-        if args.save:
-            Path(args.save).write_text("".join(json.dumps(r) + "\n" for r in records))
+    records = computed_records(xtb_route, molecules, args.jobs, args.save, args.load)
     table, failed = raw.copy(), {r["name"] for r in records if "error" in r}
     for rec in records:
         rows = table.index[table["smiles"] == rec["smiles"]]

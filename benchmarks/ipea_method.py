@@ -33,10 +33,8 @@ Usage::
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 import time
-from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
 import numpy as np
@@ -45,6 +43,7 @@ import pandas as pd
 REPO = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(REPO))
 
+from geometry_route import computed_records  # noqa: E402
 from screen.calibrate import fit_all, read_reference  # noqa: E402
 from screen.config import Config  # noqa: E402
 from screen.constants import BOHR_ANGSTROM  # noqa: E402
@@ -99,13 +98,7 @@ def main(argv=None) -> int:
     raw = pd.read_csv(REPO / "models" / cfg.protocol_id / "reference_raw.csv", keep_default_na=False, na_values=[""])
     names = set(sets["ip"]["name"]) | set(sets["ea"]["name"])
     molecules = raw[raw["name"].isin(names) & raw["status"].eq("ok") & raw["representation"].ne("polymer")]
-    if args.load:
-        records = [json.loads(line) for line in open(args.load)]
-    else:
-        with ProcessPoolExecutor(args.jobs) as pool:
-            records = list(pool.map(both_methods, zip(molecules["name"], molecules["smiles"])))
-        if args.save:
-            Path(args.save).write_text("".join(json.dumps(r) + "\n" for r in records))
+    records = computed_records(both_methods, molecules, args.jobs, args.save, args.load)
     failed = sorted(r["name"] for r in records if "error" in r)
     wall = sum(r.get("wall_s", 0.0) for r in records)
     print(f"{len(records)} gas-phase reference molecules, protocol {cfg.protocol_id} structures; failed: "

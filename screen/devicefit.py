@@ -79,7 +79,7 @@ from scipy.stats import spearmanr
 from screen.device import DeviceModel
 from screen.devicelevels import (DEVICES_PATH, FC_SCALE_EV, FILM_PATH, LEVELS, MIN_SHARED_MATERIALS, level_table,
                                  read_devices, resolve_levels)
-from screen.devicepars import FITTED_PATH, NON_FULLERENE, POOLED, FittedParameters, family_of
+from screen.devicepars import FITTED_PATH, NON_FULLERENE, POOLED, FittedParameters, class_values, family_of
 from screen.errors import InputError
 from screen.spectrum import jsc_ma_cm2
 
@@ -153,14 +153,25 @@ def _loss_labels(classes: np.ndarray, families: np.ndarray, keys) -> np.ndarray:
     return label
 
 
+def _split_groups(split, classes, families) -> dict[str, np.ndarray]:
+    """Key → member mask of the families and/or classes a split gives a value of their own (each needs
+    :data:`MIN_CLASS_ROWS` devices; ``'fullerene'`` is a family and a class, counted once; pooled not included)."""
+    fam_ok, cls_ok = _split_flags(split)
+    groups: dict[str, np.ndarray] = {}
+    for ok, values in ((fam_ok, families), (cls_ok, classes)):
+        if not ok:
+            continue
+        names, counts = np.unique(values.astype(str), return_counts=True)
+        for key, count in zip(names, counts):
+            if key and key != "nan" and key not in groups and count >= MIN_CLASS_ROWS:
+                groups[str(key)] = values == key
+    return groups
+
+
 def _loss_core(e_ct, voc, classes, families, split, free_slope) -> tuple[dict, float, float]:
     """:func:`_fit_losses` on arrays (devices with a Voc only)."""
-    fam_ok, cls_ok = _split_flags(split)
-    keys = [POOLED]
-    for ok, values in ((fam_ok, families), (cls_ok, classes)):
-        if ok:
-            names, counts = np.unique(values.astype(str), return_counts=True)
-            keys += [k for k, c in zip(names, counts) if k and k != "nan" and k not in keys and c >= MIN_CLASS_ROWS]
+    groups = _split_groups(split, classes, families)
+    keys = [POOLED, *groups]
     label = _loss_labels(classes, families, keys)
     ref = float(np.mean(e_ct))
     slope = 0.0
@@ -171,9 +182,8 @@ def _loss_core(e_ct, voc, classes, families, split, free_slope) -> tuple[dict, f
         slope = float(np.clip(1.0 - coef[0], 0.0, 0.95))
     adjusted = e_ct - voc - slope * (e_ct - ref)
     out = {}
-    for key in keys:  # pooled: every device; non-fullerene: the family; else the class ('fullerene' is both)
-        members = (np.ones(len(voc), bool) if key == POOLED
-                   else (families == key) if key == NON_FULLERENE else (classes == key))
+    for key in keys:
+        members = groups.get(key, np.ones(len(voc), bool))  # pooled: every device
         out[str(key)] = max(0.0, float(np.median(adjusted[members])))
     return out, slope, ref
 
@@ -228,21 +238,8 @@ def _ff_arrays(d: pd.DataFrame):
 
 def _ff_core(ff, classes, families, split) -> tuple[float, dict]:
     """``(pooled FF, FF per family/class)``: medians; a family or class needs :data:`MIN_CLASS_ROWS` devices."""
-    fam_ok, cls_ok = _split_flags(split)
-    by_class = {}
-    for ok, values in ((fam_ok, families), (cls_ok, classes)):
-        if not ok:
-            continue
-        names, counts = np.unique(values.astype(str), return_counts=True)
-        for key, count in zip(names, counts):
-            if key and key != "nan" and count >= MIN_CLASS_ROWS:
-                by_class[str(key)] = float(np.median(ff[values == key]))
+    by_class = {key: float(np.median(ff[members])) for key, members in _split_groups(split, classes, families).items()}
     return float(np.median(ff)), by_class
-
-
-def _ff_predict(pooled: float, by_class: dict, classes) -> np.ndarray:
-    return FittedParameters(loss_ev={POOLED: 0.0}, eqe_max=1.0, offset_scale_ev=0.0, ff=pooled,
-                            ff_by_class=by_class).ff_for(classes)
 
 
 def choose_ff_split(d: pd.DataFrame, key: str = "group", splits: tuple = FF_SPLITS) -> tuple[str, dict]:
@@ -265,7 +262,7 @@ def choose_ff_split(d: pd.DataFrame, key: str = "group", splits: tuple = FF_SPLI
             if test.all():
                 continue
             pooled, by_class = _ff_core(ff[~test], classes[~test], families[~test], split)
-            pred[test] = _ff_predict(pooled, by_class, classes[test])
+            pred[test] = class_values(by_class, pooled, classes[test])
         ok = np.isfinite(pred)
         scores[split] = float(np.mean(np.abs(pred[ok] - ff[ok]))) if ok.any() else np.inf
     best = min(splits, key=lambda s: (round(scores[s], 6), splits.index(s)))

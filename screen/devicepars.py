@@ -30,7 +30,7 @@ import numpy as np
 from screen.errors import ConfigError
 
 __all__ = ["FittedParameters", "FITTED_PATH", "VALIDATION_PATH", "load_fitted", "device_tests", "POOLED",
-           "NON_FULLERENE", "family_of"]
+           "NON_FULLERENE", "family_of", "class_values"]
 
 #: the fitted default device model shipped with the repository
 FITTED_PATH = Path(__file__).resolve().parent.parent / "models" / "device" / "fitted.json"
@@ -111,22 +111,9 @@ class FittedParameters:
         return np.vectorize(lambda c: "" if c is None or str(c) in ("nan", "None") else str(c),
                             otypes=[object])(classes) if classes.size else classes
 
-    def _lookup(self, values: dict, pooled: float, acceptor_class) -> np.ndarray:
-        """Per element of ``acceptor_class``: its class's entry of ``values``, else its family's, else ``pooled``."""
-        classes = self._classes(acceptor_class).astype(str)
-        out = np.full(classes.shape, float(pooled))
-        for fam_key, members in ((NON_FULLERENE, (classes != "") & (classes != "fullerene") & (classes != "nan")),
-                                 ("fullerene", classes == "fullerene")):
-            if fam_key in values:
-                out[members] = float(values[fam_key])
-        for key, val in values.items():
-            if key not in (POOLED, NON_FULLERENE):
-                out[classes == key] = float(val)
-        return out
-
     def loss_for(self, acceptor_class) -> np.ndarray:
         """Energy loss per element of ``acceptor_class``: its own value, else its family's, else pooled. [eV]"""
-        return self._lookup(self.loss_ev, self.loss_ev[POOLED], acceptor_class)
+        return class_values(self.loss_ev, self.loss_ev[POOLED], self._classes(acceptor_class))
 
     def ff_for(self, acceptor_class) -> np.ndarray:
         """Fill factor per element of ``acceptor_class``: its own value, else its family's, else pooled.
@@ -138,7 +125,7 @@ class FittedParameters:
         >>> p.ff_for(["fullerene", "nfa-fused", "polymer", ""]).tolist()
         [0.58, 0.7, 0.66, 0.66]
         """
-        return self._lookup(self.ff_by_class, self.ff, acceptor_class)
+        return class_values(self.ff_by_class, self.ff, self._classes(acceptor_class))
 
     @property
     def ff_max(self) -> float:
@@ -184,6 +171,28 @@ class FittedParameters:
         return {"loss_ev": dict(self.loss_ev), "eqe_max": self.eqe_max, "offset_scale_ev": self.offset_scale_ev,
                 "ff": self.ff, "ff_by_class": dict(self.ff_by_class), "loss_slope": self.loss_slope,
                 "ect_ref_ev": self.ect_ref_ev, "source": self.source}
+
+
+def class_values(values: dict, pooled: float, classes) -> np.ndarray:
+    """Per element of ``classes``: its class's entry of ``values``, else its family's (``'fullerene'``,
+    ``'non-fullerene'``), else ``pooled``.
+
+    Examples
+    --------
+    >>> class_values({"fullerene": 0.58, "non-fullerene": 0.69, "nfa-fused": 0.70}, 0.68,
+    ...              ["fullerene", "nfa-fused", "polymer", ""]).tolist()
+    [0.58, 0.7, 0.69, 0.68]
+    """
+    classes = np.asarray(classes, dtype=object).astype(str)
+    out = np.full(classes.shape, float(pooled))
+    for fam_key, members in ((NON_FULLERENE, (classes != "") & (classes != "fullerene") & (classes != "nan")),
+                             ("fullerene", classes == "fullerene")):
+        if fam_key in values:
+            out[members] = float(values[fam_key])
+    for key, val in values.items():
+        if key not in (POOLED, NON_FULLERENE):
+            out[classes == key] = float(val)
+    return out
 
 
 def family_of(acceptor_class: str) -> str:

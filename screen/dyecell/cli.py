@@ -312,7 +312,8 @@ def _dye_candidates(candidates: Path, out: Path, write: bool = True, read=None) 
 def cmd_dyecell(args) -> int:
     """Run the shared stages if needed, then rank the dyes for one oxide and one mediator."""
     from screen.cli_shared import EXIT_ERROR, EXIT_OK, _load, _print_summary
-    from screen.dyecell.stage import record_inputs, resolve_material, run_dyecell
+    from screen.dyecell.library import resolve_material
+    from screen.dyecell.stage import record_inputs, run_dyecell
     from screen.preflight import check_candidates, check_out, check_out_folder
 
     if args.list:

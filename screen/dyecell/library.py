@@ -60,7 +60,7 @@ from screen.errors import InputError
 from screen.io import separator_problem
 
 __all__ = ["Material", "OXIDES_FILE", "MEDIATORS_FILE", "load_oxides", "load_mediators", "resolve_oxide",
-           "resolve_mediator"]
+           "resolve_mediator", "resolve_material", "close_ids"]
 
 _DATA = Path(__file__).resolve().parent.parent / "data"
 #: built-in semiconductor table
@@ -255,9 +255,47 @@ def _library_or_file(spec: str, table: pd.DataFrame, what: str, columns: str) ->
         return row, None
     path = Path(spec).expanduser() if spec else None
     if path is None or not path.is_file():
-        raise InputError(f"unknown {what} {spec!r}: not a library id and not a file. Library ids: "
+        close = close_ids(spec, table) if spec else []
+        hint = f" Did you mean {' or '.join(close)}?" if close else ""
+        raise InputError(f"unknown {what} {spec!r}: not a library id and not a file.{hint} Library ids: "
                          f"{', '.join(table['id'])}. Or give a one-row CSV: {columns}")
     return None, path
+
+
+def close_ids(word: str, table: pd.DataFrame) -> list[str]:
+    """Library ids close to ``word``: ids that contain it, then close ids or names (difflib), at most three.
+
+    Examples
+    --------
+    >>> t = pd.DataFrame({"id": ["iodide-triiodide", "co-bpy3"], "name": ["iodide/triiodide", "cobalt bipyridine"]})
+    >>> close_ids("iodide", t), close_ids("co-bpy", t), close_ids("zzz", t)
+    (['iodide-triiodide'], ['co-bpy3'], [])
+    """
+    from screen.partners import suggest
+
+    ids = [str(i) for i in table["id"]]
+    names = {str(n).lower(): str(i) for i, n in zip(table["id"], table.get("name", table["id"])) if str(n).strip()}
+    low = word.strip().lower()
+    found = [i for i in ids if len(low) >= 3 and low in i.lower()]
+    for hit in suggest(low, ids + list(names), n=5):
+        ident = names.get(hit.lower(), hit) if hit not in ids else hit
+        if ident not in found:
+            found.append(ident)
+    return found[:3]
+
+
+def resolve_material(role: str, spec: str) -> Material:
+    """:func:`resolve_oxide` (``role='oxide'``) or :func:`resolve_mediator` of ``spec``.
+
+    Examples
+    --------
+    >>> try:
+    ...     resolve_material("oxide", "tio2-anatse")
+    ... except InputError as exc:
+    ...     print(str(exc).split(" Library ids")[0])
+    unknown oxide 'tio2-anatse': not a library id and not a file. Did you mean tio2-anatase or tio2-rutile?
+    """
+    return (resolve_oxide if role == "oxide" else resolve_mediator)(spec)
 
 
 def _described(row: dict, conditions_column: str, default_source: str = "") -> dict:

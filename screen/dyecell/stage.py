@@ -32,7 +32,7 @@ import pandas as pd
 from screen import __version__
 from screen.dyecell.calibrate import MODELS_DIR, load_models
 from screen.dyecell.flags import describe
-from screen.dyecell.library import Material, resolve_mediator, resolve_oxide
+from screen.dyecell.library import Material, resolve_material
 from screen.dyecell.model import DyeCellModel
 from screen.dyecell.options import RankOptions, option_defaults
 from screen.dyecell.rank import (
@@ -48,7 +48,7 @@ from screen.io import read_json, write_csv, write_json
 from screen.provenance import library_versions, sha256_file
 
 __all__ = ["read_input", "build_dye_table", "write_shortlist", "run_dyecell", "ranking_folder", "raw_levels",
-           "settings_hash", "resolve_material", "shipped_protocols", "INPUTS_FILE", "read_inputs", "record_inputs"]
+           "settings_hash", "shipped_protocols", "INPUTS_FILE", "read_inputs", "record_inputs"]
 
 #: the record of what was given in a run folder: ``OUT/dyecell/inputs.json`` (the user's candidate file: path and
 #: sha256; the input ranked last), read for the default re-rank input and the guard against mixing candidate files
@@ -295,63 +295,6 @@ def settings_hash(settings: dict | None = None) -> str:
 def ranking_folder(out_dir: str | Path, oxide: Material, mediator: Material, settings: dict | None = None) -> Path:
     """``out_dir/dyecell/<oxide slug>--<mediator slug>--<settings hash>`` (:func:`settings_hash`)."""
     return Path(out_dir) / "dyecell" / f"{oxide.slug}--{mediator.slug}--{settings_hash(settings)}"
-
-
-def resolve_material(role: str, spec: str) -> Material:
-    """:func:`~screen.dyecell.library.resolve_oxide` or ``resolve_mediator``, with a "did you mean" for a typo.
-
-    Raises
-    ------
-    InputError
-        An unknown id that is not a file: the library's message with the close
-        library ids (:func:`screen.partners.suggest`, by id or name), or a bad file.
-
-    Examples
-    --------
-    >>> try:
-    ...     resolve_material("oxide", "tio2-anatse")
-    ... except InputError as exc:
-    ...     print(str(exc).split(" Library ids")[0])
-    unknown oxide 'tio2-anatse': not a library id and not a file. Did you mean tio2-anatase or tio2-rutile?
-    """
-    from screen.dyecell.library import load_mediators, load_oxides
-
-    resolve, load = (resolve_oxide, load_oxides) if role == "oxide" else (resolve_mediator, load_mediators)
-    try:
-        return resolve(spec)
-    except InputError as exc:
-        text = str(exc)
-        if not text.startswith(f"unknown {role} ") or not str(spec or "").strip():
-            raise
-        close = _close_ids(str(spec), load())
-        if not close:
-            raise
-        hint = f" Did you mean {' or '.join(close)}?"
-        marker = "not a file."
-        text = text.replace(marker, marker + hint, 1) if marker in text else text + hint
-        raise InputError(text) from None
-
-
-def _close_ids(word: str, table: pd.DataFrame) -> list[str]:
-    """Library ids close to ``word``: ids that contain it, then close ids or names (difflib), at most three.
-
-    Examples
-    --------
-    >>> t = pd.DataFrame({"id": ["iodide-triiodide", "co-bpy3"], "name": ["iodide/triiodide", "cobalt bipyridine"]})
-    >>> _close_ids("iodide", t), _close_ids("co-bpy", t), _close_ids("zzz", t)
-    (['iodide-triiodide'], ['co-bpy3'], [])
-    """
-    from screen.partners import suggest
-
-    ids = [str(i) for i in table["id"]]
-    names = {str(n).lower(): str(i) for i, n in zip(table["id"], table.get("name", table["id"])) if str(n).strip()}
-    low = word.strip().lower()
-    found = [i for i in ids if len(low) >= 3 and low in i.lower()]
-    for hit in suggest(low, ids + list(names), n=5):
-        ident = names.get(hit.lower(), hit) if hit not in ids else hit
-        if ident not in found:
-            found.append(ident)
-    return found[:3]
 
 
 def _sd_text(value) -> str:
