@@ -142,16 +142,16 @@ def computed(d, devices, film, raw_path) -> dict:
         for key, label, lv in (("fitted", "fitted", "computed"), ("scharber", "scharber", "computed"),
                                ("fitted_published_levels", "fitted", "published")):
             m = r[key]
-            rows.append((label, lv, str(m["n"]), _f(m["voc_mae_v"]), _f(m["voc_mse_v"], "+.3f"),
+            rows.append((label, lv, str(m["n"]), _f(m["voc_mae_v"]), _f(m["voc_bias_v"], "+.3f"),
                          _f(m["spearman_voc"], ".2f"), f"{_f(m['spearman_pce'], '.2f')} (n={m['n_pce']})"))
         base = r["mean_voc_baseline"]
         rows.append(("training mean Voc", "-", str(r["fitted"]["n"]), _f(base["voc_mae_v"]),
-                     _f(base["voc_mse_v"], "+.3f"), "-", "-"))
+                     _f(base["voc_bias_v"], "+.3f"), "-", "-"))
         widths = [max(len(x[i]) for x in rows) for i in range(len(rows[0]))]
         print("\n".join("  ".join(x.ljust(w) for x, w in zip(row, widths)) for row in rows))
         err = r["level_errors"]
         print("  computed - published levels (mean signed / MAE, eV): " + "; ".join(
-            f"{k.replace('_ev', '')} {v['mse_ev']:+.2f}/{v['mae_ev']:.2f}" for k, v in err.items()))
+            f"{k.replace('_ev', '')} {v['bias_ev']:+.2f}/{v['mae_ev']:.2f}" for k, v in err.items()))
         print("  what the computed levels cost: the fitted model with one level (or one material's three) put back "
               "to its published value:")
         for name, m in r["published_one_at_a_time"].items():
@@ -160,7 +160,7 @@ def computed(d, devices, film, raw_path) -> dict:
         print(f"computed_{by}_n={r['fitted']['n']} computed_{by}_coverable_rows={int(cov.sum())} "
               + " ".join(f"computed_{by}_{model}_{k}={r[model][k]:.4f}"
                          for model in ("fitted", "scharber", "fitted_published_levels")
-                         for k in ("voc_mae_v", "voc_mse_v", "spearman_voc", "spearman_pce"))
+                         for k in ("voc_mae_v", "voc_bias_v", "spearman_voc", "spearman_pce"))
               + f" computed_{by}_mean_voc_baseline_mae_v={base['voc_mae_v']:.4f}")
     return record
 

@@ -14,15 +14,19 @@ devices (:mod:`screen.devicefit`, parameters in ``models/device/fitted.json``):
 .. math::
 
     E_{CT} = \\min(E_{LUMO}^{A} - E_{HOMO}^{D},\\; E_g^{min}), \\qquad
-    V_{oc} = (E_{CT} - \\Delta E_{loss}^{class})/q
+    V_{oc} = (E_{CT} - \\Delta E_{loss})/q, \\quad
+    \\Delta E_{loss} = \\Delta E_{loss}^{class} + s\\,(\\mathrm{clip}(E_{CT}) - \\bar E_{CT})
 
     J_{sc} = \\mathrm{EQE}_{max}\\, q \\Big[\\eta_{lo} \\int_{E_g^{lo}}^{E_g^{hi}} \\Phi\\,dE
              + \\tfrac{\\eta_D + \\eta_A}{2} \\int_{E_g^{hi}}^{\\infty} \\Phi\\,dE\\Big],
     \\quad \\eta_D = 1 - e^{-\\Delta_{LUMO}/\\Delta_0},\\; \\eta_A = 1 - e^{-\\Delta_{HOMO}/\\Delta_0}
 
-(photons between the two gaps are absorbed by the lower-gap material only,
-those above both are shared; the charge-generation yield of donor excitons
-falls smoothly as ΔLUMO → 0, that of acceptor excitons as ΔHOMO → 0).
+(the loss per acceptor class where the fit keeps one, with the fitted slope s
+of the loss on E_CT; E_CT clipped to the range of the fitted devices, so the
+slope is never extrapolated; photons between the two gaps are absorbed by the
+lower-gap material only, those above both are shared; the charge-generation
+yield of donor excitons falls as ΔLUMO → 0, that of acceptor excitons as
+ΔHOMO → 0 — with the shipped Δ0 = 0.01 eV in effect a step at zero offset).
 
 ``scharber`` — the published donor-only rule [1]_ with its own parameters:
 :math:`V_{oc} = (E_{LUMO}^{A} - E_{HOMO}^{D})/e - 0.3` V, EQE = FF = 0.65,
@@ -30,8 +34,9 @@ falls smoothly as ΔLUMO → 0, that of acceptor excitons as ΔHOMO → 0).
 gap sets the current).
 
 Both: :math:`\\mathrm{PCE} = V_{oc} J_{sc}\\, \\mathrm{FF} / P_{in}`; Voc is
-capped at the smallest optical gap of the pair and PCE at the detailed-balance
-limit for the absorber gap (:func:`screen.spectrum.sq_limit`), each flagged.
+capped at the detailed-balance Voc of the smallest optical gap of the pair
+(below that gap) and PCE at the detailed-balance limit for the absorber gap
+(:func:`screen.spectrum.sq_limit`), each flagged.
 
 Everything is vectorised over numpy arrays (broadcasting rules apply).
 :mod:`screen.spectrum` holds the spectrum (names re-exported here),
@@ -270,6 +275,18 @@ class DeviceModel:
         """Incident power used for the efficiency. [W m⁻²]"""
         return incident_power_w_m2() if self.pin_w_m2 is None else float(self.pin_w_m2)
 
+    @property
+    def sq_scale(self) -> float:
+        """Factor from the detailed-balance efficiency on the spectrum's own power to one on ``pin_w_m2`` (1 by
+        default): the cap is the same maximum power, divided by the incident power the efficiency uses."""
+        return 1.0 if self.pin_w_m2 is None else incident_power_w_m2() / float(self.pin_w_m2)
+
+    def _sq_pct(self, sq_pct=None):
+        """The detailed-balance efficiency [%] of a gap on this model's incident power."""
+        base = sq_pce_pct if sq_pct is None else sq_pct
+        scale = self.sq_scale
+        return base if scale == 1.0 else (lambda g: base(g) * scale)
+
     def as_dict(self) -> dict:
         """Effective parameters plus model label, spectrum and incident power, for provenance.
 
@@ -408,7 +425,8 @@ class DeviceModel:
         return missing
 
     # ------------------------------------------------------------ the physics
-    def figures(self, levels, loss_ev, *, ff=None, jsc_unit=None, sq_pct=None, keep_model_values=False) -> dict:
+    def figures(self, levels, loss_ev, *, ff=None, jsc_unit=None, sq_pct=None, sq_voc=None,
+                keep_model_values=False) -> dict:
         """Classification, Voc, Jsc and PCE of pairs from their six levels (the one formula).
 
         Parameters
@@ -423,6 +441,8 @@ class DeviceModel:
             Jsc at EQE = 1 [mA cm⁻²] and detailed-balance PCE [%] as functions of
             the gap; None uses the exact :func:`screen.spectrum.jsc_ma_cm2` and
             :func:`screen.spectrum.sq_pce_pct` (the sampler passes tables).
+        sq_voc : callable or None
+            Detailed-balance Voc [V] of a gap; None uses :func:`screen.spectrum.sq_voc_v`.
 
         Returns
         -------
@@ -434,11 +454,10 @@ class DeviceModel:
             ``keep_model_values`` also ``voc_model_v`` and ``pce_model_pct``, the
             formula's values whether viable or not (for validation on devices).
         """
-        sq_pct = sq_pce_pct if sq_pct is None else sq_pct
+        sq_pct = self._sq_pct(sq_pct)
         shape = np.broadcast_shapes(*(np.shape(x) for x in levels), np.shape(loss_ev))
-        t = pair_terms(self, levels, loss_ev, jsc_unit)
-        delta_lumo, delta_homo, g_lo, gap_cap, voc_raw, jsc = (t.delta_lumo, t.delta_homo, t.absorber_gap,
-                                                                 t.gap_cap, t.voc_raw, t.jsc)
+        t = pair_terms(self, levels, loss_ev, jsc_unit, sq_voc)
+        delta_lumo, delta_homo, g_lo, voc_raw, jsc = t.delta_lumo, t.delta_homo, t.absorber_gap, t.voc_raw, t.jsc
         missing = self.needed_missing(levels, shape)
         masks = classify(delta_lumo, delta_homo, g_lo, voc_raw, missing, min_lumo=self.value("min_delta_lumo_ev"),
                          min_homo=self.value("min_delta_homo_ev"), check_homo_offset=self.check_homo_offset)
@@ -447,8 +466,8 @@ class DeviceModel:
             safe_lo = np.where(np.isfinite(g_lo) & (g_lo > 0), g_lo, 2.0)  # placeholder keeps NaN out
         jsc_model = jsc
         with np.errstate(invalid="ignore"):
-            voc_capped = viable & (voc_raw > gap_cap)
-        voc_model = np.fmin(voc_raw, gap_cap)
+            voc_capped = viable & (voc_raw > t.voc_cap)
+        voc_model = np.fmin(voc_raw, t.voc_cap)
         voc = np.where(viable, voc_model, 0.0)
         jsc = np.where(viable, jsc, 0.0)
         factor = self.pce_factor_pct(ff)
@@ -465,7 +484,7 @@ class DeviceModel:
                 out["pce_model_pct"] = np.fmin(np.maximum(voc_model, 0.0) * jsc_model * factor, limit)
         return {k: np.broadcast_to(v, shape) for k, v in out.items()}
 
-    def pce_from_levels(self, levels, loss_ev, *, ff=None, jsc_unit=None, sq_pct=None,
+    def pce_from_levels(self, levels, loss_ev, *, ff=None, jsc_unit=None, sq_pct=None, sq_voc=None,
                         sq_below_ev=np.inf) -> np.ndarray:
         """Efficiency of (sampled) pair levels; 0 where a sample is not viable. [%]
 
@@ -483,7 +502,7 @@ class DeviceModel:
         """
         jsc_unit = (lambda g: jsc_ma_cm2(g, 1.0)) if jsc_unit is None else jsc_unit
         return pce_samples(self, levels, np.asarray(loss_ev, dtype=float), jsc_unit,
-                           sq_pce_pct if sq_pct is None else sq_pct, sq_below_ev, ff=ff)
+                           self._sq_pct(sq_pct), sq_below_ev, ff=ff, sq_voc=sq_voc)
 
     def pce_pct(self, donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev=None, acceptor_lumo_ev=None,
                 acceptor_gap_ev=None, *, acceptor_class=None, caller: str = "pce_pct()") -> np.ndarray:
@@ -542,8 +561,8 @@ class DeviceModel:
 
         Notes
         -----
-        Voc never exceeds the smallest optical gap of the pair
-        (``voc_capped``) and PCE never exceeds the detailed-balance limit for
+        Voc never exceeds the detailed-balance Voc of the smallest optical gap of
+        the pair (``voc_capped``) and PCE never exceeds the detailed-balance limit for
         the absorber gap (``pce_capped``).  An offset counts as meeting its
         threshold if it is at most 1e-9 eV below it.
 

@@ -79,7 +79,9 @@ from scipy.stats import spearmanr
 from screen.device import DeviceModel
 from screen.devicelevels import (DEVICES_PATH, FC_SCALE_EV, FILM_PATH, LEVELS, MIN_SHARED_MATERIALS, level_table,
                                  read_devices, resolve_levels)
-from screen.devicepars import FITTED_PATH, NON_FULLERENE, POOLED, FittedParameters, class_values, family_of
+from screen.devicekernel import voc_limit
+from screen.devicepars import (FITTED_PATH, NON_FULLERENE, POOLED, FittedParameters, class_values, family_of,
+                               slope_loss)
 from screen.errors import InputError
 from screen.spectrum import jsc_ma_cm2
 
@@ -168,7 +170,7 @@ def _split_groups(split, classes, families) -> dict[str, np.ndarray]:
     return groups
 
 
-def _loss_core(e_ct, voc, classes, families, split, free_slope) -> tuple[dict, float, float]:
+def _loss_core(e_ct, voc, classes, families, split, free_slope) -> tuple[dict, float, float, tuple]:
     """:func:`_fit_losses` on arrays (devices with a Voc only)."""
     groups = _split_groups(split, classes, families)
     keys = [POOLED, *groups]
@@ -185,7 +187,7 @@ def _loss_core(e_ct, voc, classes, families, split, free_slope) -> tuple[dict, f
     for key in keys:
         members = groups.get(key, np.ones(len(voc), bool))  # pooled: every device
         out[str(key)] = max(0.0, float(np.median(adjusted[members])))
-    return out, slope, ref
+    return out, slope, ref, (float(np.min(e_ct)), float(np.max(e_ct)))
 
 
 def _loss_arrays(d: pd.DataFrame):
@@ -195,14 +197,14 @@ def _loss_arrays(d: pd.DataFrame):
     return _e_ct(d), d["voc_v"].to_numpy(float), classes, families
 
 
-def _fit_losses(d: pd.DataFrame, split="class", free_slope: bool = False) -> tuple[dict, float, float]:
-    """Energy losses of the devices with a Voc: ``(loss_ev, loss_slope, ect_ref_ev)``.
+def _fit_losses(d: pd.DataFrame, split="class", free_slope: bool = False) -> tuple[dict, float, float, tuple]:
+    """Energy losses of the devices with a Voc: ``(loss_ev, loss_slope, ect_ref_ev, (ect_min_ev, ect_max_ev))``.
 
     ``loss_ev`` has the median of E_CT − qVoc (less ``loss_slope · (E_CT − ect_ref_ev)``) pooled, and per
     family / per class (at least :data:`MIN_CLASS_ROWS` training devices) as ``split`` allows. With
     ``free_slope`` the slope of Voc on E_CT is fitted by least squares with one intercept per loss key
     (``loss_slope`` = 1 − that slope, kept in [0, 0.95]); else ``loss_slope`` = 0 (Veldman's constant
-    loss). [eV]
+    loss); the range of E_CT over these devices bounds where the slope applies. [eV]
     """
     return _loss_core(*_loss_arrays(d), split, free_slope)
 
@@ -270,12 +272,12 @@ def choose_ff_split(d: pd.DataFrame, key: str = "group", splits: tuple = FF_SPLI
 
 
 def _voc_core(e_ct, cap, classes, families, losses) -> np.ndarray:
-    loss_ev, slope, ref = losses
+    """Voc of devices [V]: E_CT less the loss (:func:`screen.devicepars.slope_loss`), at most ``cap`` (the
+    detailed-balance Voc of the smallest gap, :func:`screen.devicekernel.voc_limit`)."""
+    loss_ev, slope, ref, (lo, hi) = losses
     label = _loss_labels(classes, families, loss_ev)
     loss = np.array([loss_ev[k] for k in label], dtype=float)
-    if slope:
-        loss = np.maximum(loss + slope * (e_ct - ref), 0.0)
-    return np.fmin(e_ct - loss, cap)
+    return np.fmin(e_ct - slope_loss(loss, e_ct, slope, ref, lo, hi), cap)
 
 
 def choose_split(d: pd.DataFrame, key: str = "group", variants: tuple = LOSS_VARIANTS) -> tuple[str, dict]:
@@ -284,7 +286,7 @@ def choose_split(d: pd.DataFrame, key: str = "group", variants: tuple = LOSS_VAR
     the held-out devices never choose."""
     d = d[d["voc_v"].notna()]
     e_ct, voc, classes, families = _loss_arrays(d)
-    cap = np.fmin(d["donor_gap_opt_ev"].to_numpy(float), d["acceptor_gap_opt_ev"].to_numpy(float))
+    cap = voc_limit(np.fmin(d["donor_gap_opt_ev"].to_numpy(float), d["acceptor_gap_opt_ev"].to_numpy(float)))
     folds = [idx for idx in d.groupby(key).indices.values() if len(idx) < len(d)]
     scores = {}
     for variant in variants:
@@ -328,10 +330,10 @@ def fit(d: pd.DataFrame, per_class="class", ff_split="pooled") -> FittedParamete
     """
     eqe, scale = _fit_eqe(d)
     split, free = _variant(per_class)
-    loss, slope, ref = _fit_losses(d, split, free)
+    loss, slope, ref, (lo, hi) = _fit_losses(d, split, free)
     ff, by_class = _ff_core(*_ff_arrays(d), ff_split) if d["ff"].notna().any() else (0.65, {})
     return FittedParameters(loss_ev=loss, eqe_max=eqe, offset_scale_ev=scale, ff=ff, ff_by_class=by_class,
-                            loss_slope=slope, ect_ref_ev=ref)
+                            loss_slope=slope, ect_ref_ev=ref, ect_min_ev=lo, ect_max_ev=hi)
 
 
 def predict(model: DeviceModel, d: pd.DataFrame) -> pd.DataFrame:
@@ -356,7 +358,7 @@ def _metrics(d: pd.DataFrame, pred: pd.DataFrame) -> dict:
     has_voc = d["voc_v"].notna()
     err = (pred["voc_v"] - d["voc_v"])[has_voc]
     has_pce = d["pce_pct"].notna() & pred["pce_pct"].notna()
-    return {"n": int(has_voc.sum()), "voc_mae_v": float(err.abs().mean()), "voc_mse_v": float(err.mean()),
+    return {"n": int(has_voc.sum()), "voc_mae_v": float(err.abs().mean()), "voc_bias_v": float(err.mean()),
             "spearman_voc": _rho(pred.loc[has_voc, "voc_v"], d.loc[has_voc, "voc_v"]),
             "n_pce": int(has_pce.sum()), "n_pce_without_voc": int((has_pce & ~has_voc).sum()),
             "spearman_pce": _rho(pred.loc[has_pce, "pce_pct"], d.loc[has_pce, "pce_pct"]),
@@ -374,12 +376,12 @@ def _by_class(d, fitted, scharber, baseline, class_baseline) -> dict:
         has_pce = d["acceptor_class"].eq(cls) & d["pce_pct"].notna()
         out[cls] = {"n": int(m.sum()),
                     "fitted_voc_mae_v": float((fitted.loc[m, "voc_v"] - meas).abs().mean()),
-                    "fitted_voc_mse_v": float((fitted.loc[m, "voc_v"] - meas).mean()),
+                    "fitted_voc_bias_v": float((fitted.loc[m, "voc_v"] - meas).mean()),
                     "fitted_spearman_voc": _rho(fitted.loc[m, "voc_v"], meas),
                     "fitted_spearman_pce": _rho(fitted.loc[has_pce, "pce_pct"], d.loc[has_pce, "pce_pct"]),
                     "n_pce": int(has_pce.sum()),
                     "scharber_voc_mae_v": float((scharber.loc[m, "voc_v"] - meas).abs().mean()),
-                    "scharber_voc_mse_v": float((scharber.loc[m, "voc_v"] - meas).mean()),
+                    "scharber_voc_bias_v": float((scharber.loc[m, "voc_v"] - meas).mean()),
                     "mean_voc_baseline_mae_v": float((baseline[m] - meas).abs().mean()),
                     "class_mean_voc_baseline_mae_v": float((class_baseline[m] - meas).abs().mean())}
     return out
@@ -454,9 +456,9 @@ def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor",
                "fitted": _metrics(d, fitted), "scharber": _metrics(d, scharber),
                "scharber_paper_levels": _metrics(d[known], predict(scharber_model, paper[known])),
                "mean_voc_baseline": {"voc_mae_v": float(err(baseline).abs().mean()),
-                                     "voc_mse_v": float(err(baseline).mean())},
+                                     "voc_bias_v": float(err(baseline).mean())},
                "class_mean_voc_baseline": {"voc_mae_v": float(err(class_baseline).abs().mean()),
-                                           "voc_mse_v": float(err(class_baseline).mean())},
+                                           "voc_bias_v": float(err(class_baseline).mean())},
                "by_class": _by_class(d, fitted, scharber, baseline, class_baseline)}
     metrics["mean_voc_baseline_mae_v"] = metrics["mean_voc_baseline"]["voc_mae_v"]
     return CrossValidation(fitted, scharber, metrics)
@@ -543,20 +545,20 @@ def table(metrics: dict) -> str:
     for name, label in (("fitted", "fitted"), ("scharber", "scharber"),
                         ("scharber_paper_levels", "scharber (papers' levels)")):
         m = metrics[name]
-        rows.append((label, str(m["n"]), _fmt(m["voc_mae_v"], ".3f"), _fmt(m["voc_mse_v"], "+.3f"),
+        rows.append((label, str(m["n"]), _fmt(m["voc_mae_v"], ".3f"), _fmt(m["voc_bias_v"], "+.3f"),
                      _fmt(m["spearman_voc"], ".2f"), f"{_fmt(m['spearman_pce'], '.2f')} (n={m['n_pce']})",
                      str(m["not_viable"])))
     for name, label in (("mean_voc_baseline", "training mean Voc"),
                         ("class_mean_voc_baseline", "training class-mean Voc")):
         m = metrics[name]
-        rows.append((label, str(metrics["fitted"]["n"]), _fmt(m["voc_mae_v"], ".3f"), _fmt(m["voc_mse_v"], "+.3f"),
+        rows.append((label, str(metrics["fitted"]["n"]), _fmt(m["voc_mae_v"], ".3f"), _fmt(m["voc_bias_v"], "+.3f"),
                      "-", "-", "-"))
     widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
     text = "\n".join("  ".join(c.ljust(w) for c, w in zip(r, widths)) for r in rows)
     cls_rows = [("acceptor class", "n", "fitted MAE", "signed", "rho Voc", "rho PCE", "scharber MAE",
                  "mean-Voc MAE", "class-mean MAE")]
     for cls, m in metrics["by_class"].items():
-        cls_rows.append((cls, str(m["n"]), _fmt(m["fitted_voc_mae_v"], ".3f"), _fmt(m["fitted_voc_mse_v"], "+.3f"),
+        cls_rows.append((cls, str(m["n"]), _fmt(m["fitted_voc_mae_v"], ".3f"), _fmt(m["fitted_voc_bias_v"], "+.3f"),
                          _fmt(m["fitted_spearman_voc"], ".2f"), f"{_fmt(m['fitted_spearman_pce'], '.2f')}",
                          _fmt(m["scharber_voc_mae_v"], ".3f"), _fmt(m["mean_voc_baseline_mae_v"], ".3f"),
                          _fmt(m["class_mean_voc_baseline_mae_v"], ".3f")))

@@ -30,7 +30,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from screen.spectrum import as_output, jsc_ma_cm2
+from screen.devicepars import slope_loss
+from screen.spectrum import as_output, jsc_ma_cm2, sq_voc_v
 from screen.viability import GAP_MAX_EV, OFFSET_TOL_EV
 
 __all__ = ["PairTerms", "pair_terms", "pce_samples", "generation_yield", "voc_v"]
@@ -62,13 +63,36 @@ class PairTerms:
     voc_raw: np.ndarray
     jsc: np.ndarray
     loss: np.ndarray | float = 0.0
+    voc_cap: np.ndarray | float = np.nan
 
 
-def _slope(model) -> tuple[float, float]:
-    """``(loss_slope, ect_ref_ev)`` of the fitted model (0, 0 for Scharber's rule or a fixed ``loss_v``)."""
-    if model.model == "scharber" or getattr(model, "loss_v", None) is not None or model.parameters is None:
-        return 0.0, 0.0
-    return float(getattr(model.parameters, "loss_slope", 0.0)), float(getattr(model.parameters, "ect_ref_ev", 0.0))
+def _slope(model) -> tuple[float, float, float, float]:
+    """``(loss_slope, ect_ref_ev, ect_min_ev, ect_max_ev)`` of the fitted model (slope 0 for Scharber's rule or a
+    fixed ``loss_v``)."""
+    p = model.parameters
+    if model.model == "scharber" or getattr(model, "loss_v", None) is not None or p is None:
+        return 0.0, 0.0, -np.inf, np.inf
+    return (float(getattr(p, "loss_slope", 0.0)), float(getattr(p, "ect_ref_ev", 0.0)),
+            float(getattr(p, "ect_min_ev", -np.inf)), float(getattr(p, "ect_max_ev", np.inf)))
+
+
+def voc_limit(gap_cap, sq_voc=None):
+    """The largest Voc a pair may get: the detailed-balance Voc of its smallest optical gap (never above the gap;
+    Rühle 2016). [V]
+
+    Examples
+    --------
+    >>> voc_limit(np.array([1.34, 2.0])).round(2).tolist()
+    [1.08, 1.7]
+    """
+    sq_voc = sq_voc_v if sq_voc is None else sq_voc
+    return np.fmin(gap_cap, sq_voc(gap_cap))
+
+
+#: gap − detailed-balance Voc is below this for gaps up to :data:`_SQ_VOC_MARGIN_GAP_EV` (0.17 eV at 0.3 eV, 0.38 eV
+#: at 3 eV, 0.55 eV at 4 eV; :func:`screen.spectrum.sq_voc_v`) [eV]
+_SQ_VOC_MARGIN_EV = 0.6
+_SQ_VOC_MARGIN_GAP_EV = 4.0
 
 
 def _positive(gap):
@@ -83,7 +107,7 @@ def _safe_gap(gap):
         return np.where(np.isfinite(gap) & (gap > 0), gap, 2.0)
 
 
-def pair_terms(model, levels, loss_ev, jsc_unit=None) -> PairTerms:
+def pair_terms(model, levels, loss_ev, jsc_unit=None, sq_voc=None) -> PairTerms:
     """Offsets, absorber gap, uncapped Voc and Jsc of pairs for ``model`` (a :class:`~screen.device.DeviceModel`).
 
     Parameters
@@ -95,6 +119,8 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None) -> PairTerms:
         Voltage loss per pair. [eV]
     jsc_unit : callable or None
         Jsc at EQE = 1 as a function of the gap [mA cm⁻²]; None: exact.
+    sq_voc : callable or None
+        Detailed-balance Voc of a gap [V]; None: exact (:func:`screen.spectrum.sq_voc_v`).
 
     Returns
     -------
@@ -103,7 +129,8 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None) -> PairTerms:
         :math:`\\min(E_{LUMO}^A - E_{HOMO}^D, E_g^{min}) - \\Delta E_{loss}`
         (fitted); ``jsc`` is the model's current whether the pair is viable or
         not (callers apply the classification); ``loss`` is the loss actually applied (the class loss,
-        grown with E_CT when the fitted model has a loss slope).
+        grown with E_CT when the fitted model has a loss slope); ``voc_cap`` is :func:`voc_limit` of the
+        smallest optical gap of the pair.
     """
     jsc_unit = (lambda g: jsc_ma_cm2(g, 1.0)) if jsc_unit is None else jsc_unit
     d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap = levels
@@ -115,10 +142,9 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None) -> PairTerms:
     if model.model == "scharber":
         voc_raw = interface - loss_ev
     else:
-        e_ct = np.fmin(interface, gap_cap)
-        slope, ref = _slope(model)
-        if slope:  # loss grows with E_CT (fitted shrinkage), never below 0
-            loss_ev = np.maximum(loss_ev + slope * (e_ct - ref), 0.0)
+        e_ct = np.where(np.isnan(interface), np.nan, np.fmin(interface, gap_cap))
+        slope, ref, lo, hi = _slope(model)
+        loss_ev = slope_loss(loss_ev, e_ct, slope, ref, lo, hi)  # grows with E_CT in the fitted range, ≥ 0
         voc_raw = e_ct - loss_ev  # E_CT - loss (Veldman et al. 2009)
     scale = model.offset_scale_ev
     eqe = model.value("eqe")
@@ -133,10 +159,11 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None) -> PairTerms:
             jsc = eqe * ((j_lo - j_hi) * eta_lo + j_hi * 0.5 * (eta_d + eta_a))
     else:
         jsc = eqe * jsc_unit(_safe_gap(g_lo)) * eta_d
-    return PairTerms(delta_lumo, delta_homo, g_lo, gap_cap, voc_raw, jsc, loss_ev)
+    return PairTerms(delta_lumo, delta_homo, g_lo, gap_cap, voc_raw, jsc, loss_ev, voc_limit(gap_cap, sq_voc))
 
 
-def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = np.inf, *, ff=None) -> np.ndarray:
+def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = np.inf, *, ff=None,
+                sq_voc=None) -> np.ndarray:
     """Efficiency [%] of (sampled) pair levels, 0 where a sample is not viable (no flags).
 
     Parameters
@@ -153,15 +180,20 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
         caller has shown that it cannot bind above); ``inf`` = everywhere. [eV]
     ff : numpy.ndarray or None
         Fill factor per pair (broadcastable); None uses ``model.value('ff')``.
+    sq_voc : callable or None
+        Detailed-balance Voc of a gap [V]; None: exact (:func:`screen.spectrum.sq_voc_v`).
 
     Notes
     -----
     Same formula as :func:`pair_terms` and the same rules as
     :func:`screen.viability.classify` (type II with ΔHOMO unchecked when NaN,
     offsets at their thresholds, a gap inside the spectrum, Voc > 0), written
-    with in-place operations for the sampler.  Voc is capped at the smallest
-    gap of the pair.
+    with in-place operations for the sampler.  Voc is capped at the
+    detailed-balance Voc of the smallest gap of the pair (:func:`voc_limit`);
+    a sample whose efficiency is not a number (a level the model needs is
+    missing) is not viable.
     """
+    sq_voc = sq_voc_v if sq_voc is None else sq_voc
     d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap = (np.asarray(x, dtype=float) for x in levels)
     shape = np.broadcast_shapes(*(x.shape for x in (d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap)),
                                 np.shape(loss_ev))
@@ -179,22 +211,26 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     cap = np.fmin(_positive(d_gap), _positive(a_gap), out=np.empty(shape))  # smallest valid gap of the pair
     g_lo = np.broadcast_to(np.minimum(d_gap, a_gap) if both else d_gap, shape)  # absorber gap (may be invalid)
     voc = np.subtract(a_lumo, d_homo, out=np.empty(shape))  # interface gap
-    slope, ref = (0.0, 0.0)
+    slope, ref, lo, hi = (0.0, 0.0, -np.inf, np.inf)
     if model.model != "scharber":
-        np.fmin(voc, cap, out=voc)  # E_CT
-        slope, ref = _slope(model)
-    if slope:  # E_CT - max(loss + slope (E_CT - ref), 0) = min((1 - slope) E_CT + slope ref - loss, E_CT)
-        lowered = np.multiply(voc, 1.0 - slope)
-        lowered += slope * ref
+        np.minimum(voc, np.where(np.isnan(cap), voc, cap), out=voc)  # E_CT (NaN interface stays NaN)
+        slope, ref, lo, hi = _slope(model)
+    if slope:  # E_CT - max(loss + slope (clip(E_CT) - ref), 0) = min(E_CT - loss - slope (clip(E_CT) - ref), E_CT)
+        lowered = np.clip(voc, lo, hi)
+        lowered -= ref
+        lowered *= -slope
+        lowered += voc
         lowered -= loss_ev
         np.fmin(lowered, voc, out=voc)
         del lowered
     else:
         voc -= loss_ev
     np.fmin(voc, cap, out=voc)
+    with np.errstate(invalid="ignore"):  # only there can the detailed-balance Voc bind (it is ≥ gap − margin)
+        near = (voc > cap - _SQ_VOC_MARGIN_EV) | (cap > _SQ_VOC_MARGIN_GAP_EV)
+    if near.any():
+        voc[near] = np.fmin(voc[near], sq_voc(cap[near]))
     ok &= voc > 0
-    with np.errstate(invalid="ignore"):
-        ok &= (g_lo > 0) & (g_lo <= GAP_MAX_EV)
     scale = model.offset_scale_ev
     if scale > 0:  # dl, dh become the negated yields -(1 - exp(-Δ/Δ0)) = expm1(-Δ/Δ0)
         for arr in (dl,) + ((dh,) if both else ()):
@@ -224,7 +260,9 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
             voc[low] = np.fmin(voc[low], sq_pct(safe_lo[low]))
     else:
         np.fmin(voc, sq_pct(safe_lo), out=voc)
+    ok &= np.isfinite(voc)
     voc *= ok
+    np.nan_to_num(voc, copy=False, nan=0.0)
     return voc
 
 

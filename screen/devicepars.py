@@ -29,7 +29,7 @@ import numpy as np
 
 from screen.errors import ConfigError
 
-__all__ = ["FittedParameters", "FITTED_PATH", "VALIDATION_PATH", "load_fitted", "device_tests", "POOLED",
+__all__ = ["FittedParameters", "slope_loss", "FITTED_PATH", "VALIDATION_PATH", "load_fitted", "device_tests", "POOLED",
            "NON_FULLERENE", "family_of", "class_values"]
 
 #: the fitted default device model shipped with the repository
@@ -63,6 +63,11 @@ class FittedParameters:
         ``1 − loss_slope`` per eV of E_CT). [dimensionless, 0 ≤ loss_slope < 1]
     ect_ref_ev : float
         E_CT at which ``loss_ev`` applies (mean E_CT of the fitted devices). [eV]
+    ect_min_ev, ect_max_ev : float
+        Range of E_CT over the fitted devices.  The slope term uses E_CT clipped to
+        it, so a fitted slope is never extrapolated (a pair at an E_CT below every
+        fitted device keeps the loss of the lowest one, instead of a loss that falls
+        towards 0); ±inf (no clipping) when not given. [eV]
     ff_by_class : dict of str to float
         Fill factor per acceptor class or family (keys as in ``loss_ev``, without
         ``'pooled'``); empty when the fit chose one pooled value. [dimensionless]
@@ -79,6 +84,8 @@ class FittedParameters:
     loss_slope: float = 0.0
     ect_ref_ev: float = 0.0
     ff_by_class: dict = field(default_factory=dict)
+    ect_min_ev: float = -math.inf
+    ect_max_ev: float = math.inf
     source: str = ""
     meta: dict = field(default_factory=dict, compare=False)
 
@@ -95,6 +102,8 @@ class FittedParameters:
                 and math.isfinite(float(self.ect_ref_ev))):
             raise ConfigError(f"fitted device parameters {self.source}: loss_slope must be in [0, 1) and "
                               "ect_ref_ev finite")
+        if not float(self.ect_min_ev) <= float(self.ect_max_ev):
+            raise ConfigError(f"fitted device parameters {self.source}: ect_min_ev must not exceed ect_max_ev")
         for key, val in self.loss_ev.items():
             if not (math.isfinite(float(val)) and float(val) >= 0):
                 raise ConfigError(f"fitted device parameters {self.source}: loss_ev[{key!r}] must be >= 0")
@@ -153,24 +162,42 @@ class FittedParameters:
         return ~known
 
     def loss_at(self, loss_ev, e_ct_ev):
-        """Loss of pairs with class loss ``loss_ev`` and CT energy ``e_ct_ev`` (≥ 0). [eV]
+        """Loss of pairs with class loss ``loss_ev`` and CT energy ``e_ct_ev`` (see :func:`slope_loss`). [eV]
 
         Examples
         --------
         >>> p = FittedParameters(loss_ev={"pooled": 0.5}, eqe_max=0.7, offset_scale_ev=0.05, ff=0.7,
-        ...                      loss_slope=0.4, ect_ref_ev=1.4)
-        >>> p.loss_at(np.array([0.5, 0.5]), np.array([1.4, 1.6])).round(3).tolist()
-        [0.5, 0.58]
+        ...                      loss_slope=0.4, ect_ref_ev=1.4, ect_min_ev=1.2, ect_max_ev=1.8)
+        >>> p.loss_at(np.array([0.5, 0.5, 0.5]), np.array([1.4, 1.6, 0.6])).round(3).tolist()
+        [0.5, 0.58, 0.42]
         """
-        if not self.loss_slope:
-            return loss_ev
-        return np.maximum(loss_ev + self.loss_slope * (e_ct_ev - self.ect_ref_ev), 0.0)
+        return slope_loss(loss_ev, e_ct_ev, self.loss_slope, self.ect_ref_ev, self.ect_min_ev, self.ect_max_ev)
 
     def as_dict(self) -> dict:
         """Parameters for provenance records."""
         return {"loss_ev": dict(self.loss_ev), "eqe_max": self.eqe_max, "offset_scale_ev": self.offset_scale_ev,
                 "ff": self.ff, "ff_by_class": dict(self.ff_by_class), "loss_slope": self.loss_slope,
-                "ect_ref_ev": self.ect_ref_ev, "source": self.source}
+                "ect_ref_ev": self.ect_ref_ev, "ect_min_ev": self.ect_min_ev, "ect_max_ev": self.ect_max_ev,
+                "source": self.source}
+
+
+def slope_loss(loss_ev, e_ct_ev, slope: float, ref_ev: float, lo_ev: float = -math.inf, hi_ev: float = math.inf):
+    """Energy loss of pairs: ``max(loss_ev + slope · (clip(E_CT, lo, hi) − ref), 0)``. [eV]
+
+    The one formula of the fitted loss (the model, its sampler and the fit's inner
+    cross-validation use it); ``slope`` 0 returns ``loss_ev`` (Veldman's constant
+    loss).  E_CT is clipped to the fitted devices' range [``lo_ev``, ``hi_ev``]:
+    the slope is a fitted shrinkage, not physics to extrapolate.
+
+    Examples
+    --------
+    >>> slope_loss(np.array([0.5, 0.5]), np.array([1.6, 0.5]), 0.6, 1.4, 1.0, 1.8).round(3).tolist()
+    [0.62, 0.26]
+    """
+    if not slope:
+        return loss_ev
+    e_ct = np.clip(e_ct_ev, lo_ev, hi_ev)
+    return np.maximum(loss_ev + slope * (e_ct - ref_ev), 0.0)
 
 
 def class_values(values: dict, pooled: float, classes) -> np.ndarray:
@@ -221,6 +248,8 @@ def load_fitted(path: str | None = None) -> FittedParameters:
                                 eqe_max=float(params["eqe_max"]), offset_scale_ev=float(params["offset_scale_ev"]),
                                 ff=float(params["ff"]), loss_slope=float(params.get("loss_slope", 0.0)),
                                 ect_ref_ev=float(params.get("ect_ref_ev", 0.0)),
+                                ect_min_ev=float(params.get("ect_min_ev", -math.inf)),
+                                ect_max_ev=float(params.get("ect_max_ev", math.inf)),
                                 ff_by_class={str(k): float(v) for k, v in params.get("ff_by_class", {}).items()},
                                 source=str(target),
                                 meta={k: v for k, v in data.items() if k != "parameters"})
@@ -233,7 +262,7 @@ def load_fitted(path: str | None = None) -> FittedParameters:
 #: ``benchmarks/device_validation.py --write`` (keyed by protocol id)
 VALIDATION_PATH = FITTED_PATH.parent / "computed_validation.json"
 #: the metrics a test record carries
-_TEST_KEYS = ("n", "n_pce", "voc_mae_v", "voc_mse_v", "spearman_voc", "spearman_pce")
+_TEST_KEYS = ("n", "n_pce", "voc_mae_v", "voc_bias_v", "spearman_voc", "spearman_pce")
 
 
 def _pick(record, key: str) -> dict | None:

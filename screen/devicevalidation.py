@@ -160,7 +160,7 @@ def _level_errors(lit: pd.DataFrame, comp: pd.DataFrame) -> dict:
     out = {}
     for name, a, b in [(c, comp[c], lit[c]) for c in LEVELS] + [("e_ct_ev", _e_ct(comp), _e_ct(lit))]:
         diff = np.asarray(a, float) - np.asarray(b, float)
-        out[name] = {"mse_ev": float(np.nanmean(diff)), "mae_ev": float(np.nanmean(np.abs(diff)))}
+        out[name] = {"bias_ev": float(np.nanmean(diff)), "mae_ev": float(np.nanmean(np.abs(diff)))}
     return out
 
 
@@ -203,7 +203,7 @@ def computed_validation(d: pd.DataFrame, levels: pd.DataFrame, raw: pd.DataFrame
             "fitted": _metrics(comp, preds["computed"]),
             "fitted_published_levels": _metrics(rows, preds["published"]),
             "scharber": _metrics(comp, predict(DeviceModel(model="scharber", absorber="donor"), comp)),
-            "mean_voc_baseline": {"voc_mae_v": float(err.abs().mean()), "voc_mse_v": float(err.mean())},
+            "mean_voc_baseline": {"voc_mae_v": float(err.abs().mean()), "voc_bias_v": float(err.mean())},
             "level_errors": _level_errors(rows, comp),
             "published_one_at_a_time": {name: _metrics(views[f"put back: {name}"], preds[f"put back: {name}"])
                                         for name in SUBSTITUTIONS}}

@@ -97,8 +97,8 @@ _REGISTRY = (
                             "interface gap)", _NV),
     Flag("gap_out_of_window", "optical gap outside the screening window{window}", _NV),
     Flag("too_many_heavy_atoms", "larger than the heavy-atom limit of this screen{limit}"),
-    Flag("voc_capped", "open-circuit voltage limited to the smallest optical gap of the pair (the model's value "
-                       "was above it)", "info"),
+    Flag("voc_capped", "open-circuit voltage limited to the detailed-balance voltage of the pair's smallest "
+                       "optical gap (the model's value was above it)", "info"),
     Flag("pce_capped", "efficiency limited to the detailed-balance (Shockley–Queisser) limit for the absorber "
                        "gap", "info"),
     Flag("loss_class_pooled", "voltage loss: the fitted model's pooled value for all acceptor classes (the "

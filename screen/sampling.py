@@ -36,7 +36,7 @@ from functools import lru_cache
 import numpy as np
 
 from screen.device import DeviceModel
-from screen.spectrum import as_output, jsc_ma_cm2, sq_pce_pct
+from screen.spectrum import as_output, jsc_ma_cm2, sq_limit
 
 __all__ = ["sample_pce", "DEFAULT_SEED", "DEFAULT_N_SAMPLES"]
 
@@ -69,11 +69,13 @@ _MAX_CHUNK_ELEMENTS = 1_000_000
 # --------------------------------------------------------------------------- #
 @lru_cache(maxsize=1)
 def _tables():
-    """Jsc at EQE = 1 [mA cm⁻²] and the detailed-balance PCE [%] on a uniform photon-energy grid."""
+    """Jsc at EQE = 1 [mA cm⁻²], the detailed-balance PCE [%] and Voc [V] on a uniform photon-energy grid."""
     n = int(round((_TABLE_E_MAX_EV - _TABLE_E_MIN_EV) / _TABLE_STEP_EV)) + 1
     grid = _TABLE_E_MIN_EV + _TABLE_STEP_EV * np.arange(n)
     out = []
-    for tab in (np.asarray(jsc_ma_cm2(grid, eqe=1.0), dtype=float), np.asarray(sq_pce_pct(grid), dtype=float)):
+    limit = sq_limit(grid)
+    for tab in (np.asarray(jsc_ma_cm2(grid, eqe=1.0), dtype=float), np.asarray(limit["pce_pct"], dtype=float),
+                np.asarray(limit["voc_v"], dtype=float)):
         step = np.diff(tab)
         tab.setflags(write=False)
         step.setflags(write=False)
@@ -109,6 +111,10 @@ def _jsc_fast(gap_ev):
 
 def _sq_fast(gap_ev):
     return _lookup(_tables()[1], gap_ev)
+
+
+def _voc_fast(gap_ev):
+    return _lookup(_tables()[2], gap_ev)
 
 
 # --------------------------------------------------------------------------- #
@@ -168,7 +174,8 @@ def _flat_pair(model: DeviceModel, levels, shape, sigmas: dict, acceptor_class=N
 def _anchors(model: DeviceModel, pair: _FlatPair):
     """Exact-minus-tabulated efficiency at the mean levels [%], the viable rows and the exact efficiency [%]."""
     exact = model.figures(pair.levels, pair.loss, ff=pair.ff)
-    tab = model.pce_from_levels(pair.levels, pair.loss, ff=pair.ff, jsc_unit=_jsc_fast, sq_pct=_sq_fast)
+    tab = model.pce_from_levels(pair.levels, pair.loss, ff=pair.ff, jsc_unit=_jsc_fast, sq_pct=_sq_fast,
+                                sq_voc=_voc_fast)
     corr = np.where(np.isfinite(exact["pce_pct"]) & np.isfinite(tab), exact["pce_pct"] - tab, 0.0)
     return np.asarray(corr, dtype=float), np.asarray(exact["viable"], dtype=bool), np.asarray(exact["pce_pct"])
 
@@ -176,10 +183,10 @@ def _anchors(model: DeviceModel, pair: _FlatPair):
 def _sq_below_ev(model: DeviceModel) -> float:
     """Gap above which the detailed-balance cap cannot bind [eV]: there PCE ≤ E_g · EQE · J_sc(E_g, EQE=1) · factor
     (Voc ≤ the smallest gap ≤ the absorber gap, Jsc ≤ EQE · Jsc at EQE = 1) is below the limit on the whole table."""
-    (jt, _), (st, _) = _tables()
+    (jt, _), (st, _), _ = _tables()
     grid = _TABLE_E_MIN_EV + _TABLE_STEP_EV * np.arange(jt.size)
     bound = grid * model.value("eqe") * jt * model.pce_factor_pct(model.ff_max)
-    binds = np.flatnonzero(bound > st * (1 - 1e-9) + 1e-12)
+    binds = np.flatnonzero(bound > st * model.sq_scale * (1 - 1e-9) + 1e-12)
     return float(grid[binds[-1]] + 2 * _TABLE_STEP_EV) if binds.size else 0.0
 
 
@@ -195,7 +202,7 @@ def _pce_samples(model: DeviceModel, pair: _FlatPair, a: int, b: int, z, corr, s
         else:
             sampled.append(level[a:b, None])
     v = np.array(model.pce_from_levels(sampled, pair.loss[a:b, None], ff=pair.ff[a:b, None], jsc_unit=_jsc_fast,
-                                       sq_pct=_sq_fast, sq_below_ev=sq_below), dtype=float)
+                                       sq_pct=_sq_fast, sq_voc=_voc_fast, sq_below_ev=sq_below), dtype=float)
     if v.shape[1] != z.shape[1]:
         v = np.repeat(v, z.shape[1], axis=1)
     v += np.where(v > 0, corr[a:b, None], 0.0)

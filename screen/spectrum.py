@@ -58,6 +58,7 @@ __all__ = [
     "SQ_TEMPERATURE_K",
     "sq_limit",
     "sq_pce_pct",
+    "sq_voc_v",
 ]
 
 #: Spectrum used by the device model (pvlib key).
@@ -524,3 +525,20 @@ def sq_pce_pct(gap_ev, temperature_k: float = SQ_TEMPERATURE_K):
     33.7
     """
     return sq_limit(gap_ev, temperature_k)["pce_pct"]
+
+
+def sq_voc_v(gap_ev, temperature_k: float = SQ_TEMPERATURE_K):
+    """Detailed-balance open-circuit voltage for a gap (see :func:`sq_limit`): the largest Voc a cell of
+    that gap can reach under AM1.5G. [V]
+
+    References
+    ----------
+    .. [1] S. Rühle, Sol. Energy 130 (2016) 139. :doi:`10.1016/j.solener.2016.02.015`
+
+    Examples
+    --------
+    >>> from screen.spectrum import sq_voc_v
+    >>> float(round(sq_voc_v(1.34), 2))
+    1.08
+    """
+    return sq_limit(gap_ev, temperature_k)["voc_v"]

@@ -138,9 +138,8 @@ def acceptor_class_of(smiles) -> str:
     Returns
     -------
     str
-        ``'polymer'`` (``*`` atoms), ``'fullerene'`` (at least 60 carbons of
-        which at least 50 % sit in fused five- and six-membered rings only, no
-        hetero atom in rings), ``'nfa-fused'`` (a small molecule with a fused
+        ``'polymer'`` (``*`` atoms), ``'fullerene'`` (at least 60 carbons and
+        at least 30 rings: a closed carbon cage, bare or with adducts), ``'nfa-fused'`` (a small molecule with a fused
         ring system of at least five rings) or ``''`` (unknown: the pooled loss).
 
     Examples

@@ -291,6 +291,16 @@ def test_pin_override_and_provenance():
     a = SCHARBER.evaluate(-5.4, -3.9, 1.5, None, -4.3)
     b = DeviceModel(model="scharber", absorber="donor", pin_w_m2=1000.0).evaluate(-5.4, -3.9, 1.5, None, -4.3)
     assert b["pce_pct"] == pytest.approx(a["pce_pct"] * incident_power_w_m2() / 1000.0)
+    # the detailed-balance cap is the same maximum power on the same incident power: an ideal cell on 1000 W/m²
+    # is capped at 33.7 % × 1000.37/1000 (Rühle 2016 on ASTM G173-03), not at the 1000.37 W/m² value
+    ideal = dict(model="scharber", absorber="donor", eqe=1.0, ff=1.0, loss_v=0.0, min_delta_lumo_ev=0.0)
+    c = DeviceModel(**ideal, pin_w_m2=1000.0).evaluate(-5.6, -4.2, 1.34, None, -4.25)
+    d = DeviceModel(**ideal).evaluate(-5.6, -4.2, 1.34, None, -4.25)
+    assert c["pce_capped"] and d["pce_capped"]
+    assert c["pce_pct"] == pytest.approx(d["pce_pct"] * incident_power_w_m2() / 1000.0)
+    lv = [np.array([-5.6]), np.array([-4.2]), 1.34, np.nan, -4.25, np.nan]
+    fast = DeviceModel(**ideal, pin_w_m2=1000.0).pce_from_levels(lv, 0.0)
+    assert fast[0] == pytest.approx(float(c["pce_pct"]))
     meta = DeviceModel().as_dict()
     assert meta["model"] == "fitted" and meta["fitted"]["devices_sha256"]
     assert meta["incident_power_w_m2"] == pytest.approx(1000.37, abs=0.01)

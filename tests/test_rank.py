@@ -24,6 +24,7 @@ from screen.rank import (
 )
 from screen.rank_io import ranking_folder, run_rank
 from screen.schema import section_defaults
+from screen.spectrum import sq_voc_v
 
 REF = "scharber-reference-acceptor"
 #: the published donor-only model (Scharber et al., Adv. Mater. 18 (2006) 789, doi:10.1002/adma.200501717)
@@ -90,9 +91,21 @@ def test_sub_threshold_lumo_offset_is_flagged_and_fails(partner):
     assert by.loc["low", "reason"].startswith("LUMO offset to the partner below 0.30 eV")
 
 
-def test_acceptor_candidates_against_a_donor_partner():
+def test_voc_never_above_the_detailed_balance_voc_of_the_pair():
+    # Scharber's rule gives 1.14 V for this pair, above the 1.138 V a 1.40 eV absorber can reach at all
+    # (detailed balance, Rühle, Sol. Energy 130 (2016) 139; our sq_limit): capped and flagged
     donor = resolve_partner("pm6")
     lv = _levels([{"id": "nfa", "homo_ev": -5.8, "lumo_ev": -4.05, "gap_opt_ev": 1.4, "role": "acceptor"}])
+    row = rank_candidates(lv, donor, DeviceModel(model="scharber", absorber="both"),
+                          RankOptions(partner_sigma=False)).iloc[0]
+    assert -4.05 - donor.homo_ev - 0.3 > float(sq_voc_v(1.4))
+    assert row["voc_v"] == pytest.approx(float(sq_voc_v(1.4)), abs=1e-4)
+    assert "voc_capped" in row["flags"] and row["viable"]
+
+
+def test_acceptor_candidates_against_a_donor_partner():
+    donor = resolve_partner("pm6")
+    lv = _levels([{"id": "nfa", "homo_ev": -5.8, "lumo_ev": -4.05, "gap_opt_ev": 1.6, "role": "acceptor"}])
     r = rank_candidates(lv, donor, DeviceModel(model="scharber", absorber="both"), RankOptions(partner_sigma=False))
     row = r.iloc[0]
     # sign convention: Δ = donor − acceptor, here the donor is the partner
@@ -105,7 +118,7 @@ def test_acceptor_candidates_against_a_donor_partner():
 
     fit = rank_candidates(lv, donor).iloc[0]
     pars = load_fitted()
-    e_ct = min(-4.05 - donor.homo_ev, 1.4)
+    e_ct = min(-4.05 - donor.homo_ev, 1.6)
     loss = float(pars.loss_at(pars.loss_ev["pooled"], e_ct))  # the fitted loss at this pair's E_CT
     assert fit["voc_v"] == pytest.approx(e_ct - loss, abs=1e-4)
     assert fit["model"] == "fitted"

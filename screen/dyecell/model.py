@@ -384,14 +384,15 @@ def evaluate(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator:
 
 @lru_cache(maxsize=1)
 def _tables():
-    """Jsc(η = 1) [mA cm⁻²] and the detailed-balance PCE [%] on a uniform E₀₋₀ grid."""
+    """Jsc(η = 1) [mA cm⁻²], the detailed-balance PCE [%] and Voc [V] on a uniform E₀₋₀ grid (values, steps)."""
     n = int(round((_GRID_MAX_EV - _GRID_MIN_EV) / _GRID_STEP_EV)) + 1
     grid = _GRID_MIN_EV + _GRID_STEP_EV * np.arange(n)
+    limit = sq_limit(grid)
     jsc = np.asarray(jsc_ma_cm2(grid, 1.0), dtype=float)
-    sq = np.asarray(sq_limit(grid)["pce_pct"], dtype=float)
-    for arr in (jsc, sq):
+    sq, sq_voc = np.asarray(limit["pce_pct"], dtype=float), np.asarray(limit["voc_v"], dtype=float)
+    for arr in (jsc, sq, sq_voc):
         arr.setflags(write=False)
-    return jsc, np.diff(jsc), sq, np.diff(sq)
+    return jsc, np.diff(jsc), sq, np.diff(sq), sq_voc, np.diff(sq_voc)
 
 
 def _block_samples(model: DyeCellModel, eo: np.ndarray, eg: np.ndarray, oxide: Material, mediator: Material,
@@ -402,7 +403,7 @@ def _block_samples(model: DyeCellModel, eo: np.ndarray, eg: np.ndarray, oxide: M
     marks dyes whose every sample is 0 (missing input or no anchor).  Jsc and the
     detailed-balance cap come from one uniform E₀₋₀ table (shared index).
     """
-    jsc_t, jsc_d, sq_t, sq_d = _tables()
+    jsc_t, jsc_d, sq_t, sq_d, voc_t, voc_d = _tables()
     thr_inj, thr_reg = model.min_drive_inj_ev - TOL_EV, model.reg_threshold_ev(mediator) - TOL_EV
     e_edge, e_med = oxide.potential_v_nhe, mediator.potential_v_nhe
     if oxide.type == "p":
@@ -411,12 +412,14 @@ def _block_samples(model: DyeCellModel, eo: np.ndarray, eg: np.ndarray, oxide: M
     else:
         ok = (e_edge - (eo - eg) >= thr_inj) & (eo - e_med >= thr_reg)
         voc = e_med - e_edge - model.voc_loss_for(oxide)
-    ok &= ~dead[:, None] & (voc > 0)
+    ok &= ~dead[:, None] & (voc > 0) & (eg > 0)
     x = (eg - _GRID_MIN_EV) * (1.0 / _GRID_STEP_EV)
     np.clip(x, 0.0, jsc_t.size - 1 - 1e-9, out=x)
     idx = x.astype(np.intp)
     x -= idx
-    pce = (jsc_t[idx] + x * jsc_d[idx]) * (model.photon_to_current * model.pce_factor_pct() * max(voc, 0.0))
+    voc_s = np.minimum(voc_t[idx] + x * voc_d[idx], max(voc, 0.0))  # Voc at most the detailed-balance Voc of E₀₋₀
+    pce = (jsc_t[idx] + x * jsc_d[idx]) * (model.photon_to_current * model.pce_factor_pct())
+    pce *= voc_s
     np.minimum(pce, sq_t[idx] + x * sq_d[idx], out=pce)
     pce *= ok
     return pce, ok
@@ -483,7 +486,7 @@ def sample_pce(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediato
     if np.any(s_ox < 0) or np.any(s_gap < 0) or not (np.all(np.isfinite(s_ox)) and np.all(np.isfinite(s_gap))):
         raise ValueError("sample_pce: σ must be finite and >= 0")
     anchored = np.ones(n, bool) if anchored is None else np.broadcast_to(np.asarray(anchored, bool), (n,))
-    missing = ~(np.isfinite(e_ox) & np.isfinite(e00))
+    missing = ~(np.isfinite(e_ox) & np.isfinite(e00) & (e00 > 0))  # as evaluate: no E₀₋₀ > 0, no estimate
     z = np.random.default_rng(seed).standard_normal((2, n_samples))
     dead = missing | (~anchored if model.require_anchor else np.zeros(n, bool))
     out_mean, out_sigma = np.full(n, np.nan), np.full(n, np.nan)
