@@ -1,6 +1,6 @@
 """Chain-limit extrapolation of oligomer-series values E(n) → E(∞).
 
-Three fits, each on its own quantity (ΔSCF IP and EA move by ≈ 1 eV along a
+Four fits, each on its own quantity (ΔSCF IP and EA move by ≈ 1 eV along a
 series while the orbital gap moves much less, so every quantity gets its own fit):
 
 ``kuhn``
@@ -8,15 +8,29 @@ series while the orbital gap moves much less, so every quantity gets its own fit
     Gierschner, Cornil and Egelhaaf [1]_:
     E(N) = E₀ √(1 + 2 (k'/k₀) cos(π/(N+1))), N = m·n coupled double bonds
     (m per repeat unit, :attr:`screen.oligomers.RepeatUnit.conjugation_length`),
-    E(∞) = E₀ √(1 + 2 k'/k₀). Saturating; two parameters.
+    E(∞) = E₀ √(1 + 2 k'/k₀). Saturating; two parameters.  For excitation-type
+    quantities (``form='gap'``: the orbital gap, positive descriptors) only: the
+    square root needs the quantity's own zero, so it is fitted on positive
+    values as they are, and a series that is not positive gets no Kuhn fit.
+``cosine``
+    The tight-binding (Hückel) form of a frontier level of N coupled units [3]_:
+    E(N) = a + b cos(π/(N+1)), E(∞) = a + b; linear least squares, two
+    parameters.  For levels on an arbitrary zero (``form='level'``: ΔSCF IP and
+    EA, orbital energies), where Kuhn's square root would depend on where zero
+    is put: the earlier route fitted a rising series (EA) on −E moved by an
+    arbitrary 1 eV above zero, and the limits of the shipped reference polymers'
+    EAs moved by 0.18 eV on average (up to 0.37 eV) when that constant was 0.5 or
+    3 eV instead; this form gives the same limit whatever constant is added.
 ``exponential``
-    Meier's saturating fit [2]_: E(n) = E∞ + (E₁ − E∞) exp(−a (n − 1)); three
-    parameters, needs ≥ 4 points to be judged.
+    Meier's saturating fit [2]_: E(n) = E∞ + (E₁ − E∞) exp(−a (n − 1)), with E₁
+    the shortest oligomer's own value (so two fitted parameters, E∞ and a); needs
+    ≥ 4 points to be judged.
 ``inverse``
     Linear in 1/n over the longest oligomers: E(n) = E∞ + b/n. Known to overshoot
     the polymer value for conjugated chains [1]_; kept as a bound.
 
-Choice rule (:func:`extrapolate`): the Kuhn fit when it converges with an RMS
+Choice rule (:func:`extrapolate`): the form's saturating fit (Kuhn for gaps,
+cosine for levels) when it converges with an RMS
 residual ≤ ``rms_tol_ev`` and its limit lies between the longest oligomer's value
 and the 1/n limit (a saturating fit must not overshoot the non-saturating one);
 else the exponential fit under the same two conditions; else the longest
@@ -51,6 +65,8 @@ References
    :doi:`10.1002/adma.200600277`
 .. [2] H. Meier, U. Stalmach, H. Kolshorn, Acta Polym. 48 (1997) 379.
    :doi:`10.1002/actp.1997.010480905`
+.. [3] E. Hückel, Z. Phys. 70 (1931) 204 (levels of a chain of N coupled π centres,
+   α + 2β cos(kπ/(N+1))). :doi:`10.1007/BF01339530`
 
 Examples
 --------
@@ -72,7 +88,11 @@ from dataclasses import asdict, dataclass, field
 import numpy as np
 from scipy.optimize import curve_fit
 
-__all__ = ["ChainFit", "kuhn_fit", "exponential_fit", "inverse_fit", "saturation_reason", "extrapolate"]
+__all__ = ["ChainFit", "kuhn_fit", "cosine_fit", "exponential_fit", "inverse_fit", "saturation_reason", "extrapolate",
+           "FORMS"]
+
+#: the saturating fit tried first for each kind of quantity (module docstring)
+FORMS = {"gap": "kuhn", "level": "cosine"}
 
 
 @dataclass(frozen=True)
@@ -82,7 +102,7 @@ class ChainFit:
     Attributes
     ----------
     method : str
-        ``kuhn``, ``exponential``, ``inverse`` or ``longest`` (no fit usable).
+        ``kuhn``, ``cosine``, ``exponential`` or ``longest`` (no fit usable).
     limit_ev : float
         Extrapolated value E(∞) [eV].
     rms_ev : float
@@ -127,27 +147,63 @@ def kuhn_fit(n, e, per_unit: int = 1) -> tuple[float, float]:
     n : array_like
         Repeat units of each oligomer.
     e : array_like
-        Values E(n) [eV]; the model describes values that fall with n (gaps, IPs);
-        a rising series (EA) is fitted on −E.
+        Values E(n) [eV]: positive and measured from their own zero (gaps), falling
+        with n.  A series that is not positive, or rises, gets NaNs (no Kuhn fit; the
+        levels on an arbitrary zero take :func:`cosine_fit`).
     per_unit : int
         Coupled double bonds per repeat unit (m).
+
+    Examples
+    --------
+    >>> n = np.arange(1, 5)
+    >>> limit, rms = kuhn_fit(n, 4.0 * np.sqrt(1 - 2 * 0.45 * np.cos(np.pi / (2 * n + 1))), per_unit=2)
+    >>> round(limit, 3), round(float(4.0 * np.sqrt(0.1)), 3), rms < 1e-6
+    (1.265, 1.265, True)
+    >>> kuhn_fit(n, -np.array([5.0, 4.6, 4.4, 4.3]))  # not positive: no fit
+    (nan, nan)
+    """
+    n, e = np.asarray(n, float), np.asarray(e, float)
+    if len(n) < 3 or not np.all(e > 0) or e[-1] > e[0]:
+        return math.nan, math.nan
+    m = float(max(1, per_unit))
+    try:
+        popt, _ = curve_fit(lambda nn, e0, x: _kuhn(nn, e0, x, m), n, e, p0=(e[0] * 1.2, -0.3),
+                            bounds=([0.0, -0.5], [np.inf, 0.0]), maxfev=5000)
+    except (RuntimeError, ValueError):
+        return math.nan, math.nan
+    rms = float(np.sqrt(np.mean((_kuhn(n, *popt, m) - e) ** 2)))
+    return float(popt[0] * math.sqrt(max(1.0 + 2.0 * popt[1], 0.0))), rms
+
+
+def cosine_fit(n, e, per_unit: int = 1) -> tuple[float, float]:
+    """Tight-binding (Hückel) fit E(N) = a + b cos(π/(N+1)), N = m·n; returns ``(E(∞) = a + b, rms)`` [eV].
+
+    Linear least squares on ≥ 3 points (NaNs with fewer); adding a constant to every
+    value adds it to the limit (levels on an arbitrary zero: ΔSCF IP/EA, orbital energies).
+
+    Parameters
+    ----------
+    n : array_like
+        Repeat units of each oligomer.
+    e : array_like
+        Values E(n) [eV], rising or falling.
+    per_unit : int
+        Coupled double bonds per repeat unit (m).
+
+    Examples
+    --------
+    >>> n = np.arange(1, 5)
+    >>> ea = 2.0 + 0.8 * np.cos(np.pi / (2 * n + 1))
+    >>> limit, rms = cosine_fit(n, ea, per_unit=2)
+    >>> round(limit, 6), rms < 1e-9, round(cosine_fit(n, ea + 3.0, per_unit=2)[0] - limit, 9)
+    (2.8, True, 3.0)
     """
     n, e = np.asarray(n, float), np.asarray(e, float)
     if len(n) < 3:
         return math.nan, math.nan
-    sign = 1.0 if e[-1] <= e[0] else -1.0
-    y = sign * e
-    shift = 0.0 if y.min() > 0 else 1.0 - y.min()  # the model needs positive values
-    y = y + shift
-    m = float(max(1, per_unit))
-    try:
-        popt, _ = curve_fit(lambda nn, e0, x: _kuhn(nn, e0, x, m), n, y, p0=(y[0] * 1.2, -0.3),
-                            bounds=([0.0, -0.5], [np.inf, 0.0]), maxfev=5000)
-    except (RuntimeError, ValueError):
-        return math.nan, math.nan
-    rms = float(np.sqrt(np.mean((_kuhn(n, *popt, m) - y) ** 2)))
-    limit = popt[0] * math.sqrt(max(1.0 + 2.0 * popt[1], 0.0))
-    return float(sign * (limit - shift)), rms
+    design = np.column_stack([np.ones_like(n), np.cos(np.pi / (max(1, per_unit) * n + 1.0))])
+    coef, *_ = np.linalg.lstsq(design, e, rcond=None)
+    return float(coef[0] + coef[1]), float(np.sqrt(np.mean((design @ coef - e) ** 2)))
 
 
 def exponential_fit(n, e) -> tuple[float, float]:
@@ -230,7 +286,7 @@ def saturation_reason(e, limit: float, inverse: float) -> str:
             f"{beyond:.3f} eV beyond the longest oligomer is set by the fit's form, not by the data")
 
 
-def extrapolate(n, e, per_unit: int = 1, rms_tol_ev: float = 0.05) -> ChainFit:
+def extrapolate(n, e, per_unit: int = 1, rms_tol_ev: float = 0.05, form: str = "gap") -> ChainFit:
     """Chain-limit value of one quantity by the documented choice rule (module docstring).
 
     Parameters
@@ -240,10 +296,16 @@ def extrapolate(n, e, per_unit: int = 1, rms_tol_ev: float = 0.05) -> ChainFit:
     e : array_like of float
         Values [eV] (NaNs are dropped with their n).
     per_unit : int
-        Coupled double bonds per repeat unit for the Kuhn fit.
+        Coupled double bonds per repeat unit for the Kuhn and cosine fits.
     rms_tol_ev : float
         Largest acceptable RMS residual of a saturating fit [eV].
+    form : {'gap', 'level'}
+        ``'gap'``: an excitation-type quantity on its own zero (Kuhn fit first);
+        ``'level'``: a level on an arbitrary zero (cosine fit first; :data:`FORMS`).
     """
+    if form not in FORMS:
+        raise ValueError(f"extrapolate: form must be one of {sorted(FORMS)}, not {form!r}")
+    first = FORMS[form]
     n, e = np.asarray(n, float), np.asarray(e, float)
     keep = np.isfinite(e)
     n, e = n[keep], e[keep]
@@ -252,12 +314,12 @@ def extrapolate(n, e, per_unit: int = 1, rms_tol_ev: float = 0.05) -> ChainFit:
     order = np.argsort(n)
     n, e = n[order], e[order]
     inv, _ = inverse_fit(n, e)
-    kuhn, kuhn_rms = kuhn_fit(n, e, per_unit)
+    sat, sat_rms = (kuhn_fit if first == "kuhn" else cosine_fit)(n, e, per_unit)
     expo, expo_rms = exponential_fit(n, e)
-    candidates = {"kuhn": kuhn, "exponential": expo, "inverse": inv, "longest": float(e[-1])}
+    candidates = {first: sat, "exponential": expo, "inverse": inv, "longest": float(e[-1])}
     bound = inv if math.isfinite(inv) else e[-1]
     usable = {}
-    for name, value, rms in (("kuhn", kuhn, kuhn_rms), ("exponential", expo, expo_rms)):
+    for name, value, rms in ((first, sat, sat_rms), ("exponential", expo, expo_rms)):
         if math.isfinite(value) and rms <= rms_tol_ev and _between(value, e[-1], bound, max(1e-4, rms)):
             usable[name] = (_clipped(value, e[-1], bound), rms)
     if not usable:
@@ -265,7 +327,7 @@ def extrapolate(n, e, per_unit: int = 1, rms_tol_ev: float = 0.05) -> ChainFit:
         return ChainFit("longest", float(e[-1]), math.nan, float(spread), "poor", len(n), candidates,
                         f"no saturating fit within {rms_tol_ev:g} eV RMS and between the longest oligomer and "
                         "the 1/n limit: the longest oligomer's value is used")
-    method = "kuhn" if "kuhn" in usable else "exponential"
+    method = first if first in usable else "exponential"
     value, rms = usable[method]
     others = [v for k, (v, _) in usable.items() if k != method]
     spread = abs(value - others[0]) if others else abs(value - e[-1])

@@ -16,10 +16,11 @@ A polymer row (``representation == "polymer"``) was computed as its oligomers
 n = 1 … N (``prepared/oligomers.csv``, :mod:`screen.prepare.polymers`). Each raw
 quantity of :data:`CHAIN_QUANTITIES` is extrapolated to the chain limit with its
 own fit (:func:`screen.extrapolate.extrapolate`, ``per_unit`` = the repeat unit's
-:attr:`~screen.oligomers.RepeatUnit.conjugation_length`), and the polymer row's
+:attr:`~screen.oligomers.RepeatUnit.conjugation_length`; the levels of :data:`LEVEL_QUANTITIES`
+with the cosine form first, the gap and descriptors with Kuhn's), and the polymer row's
 raw columns hold those limits, so the calibration treats a polymer like any
 molecule. Added columns: ``chain_n_max`` (longest oligomer computed),
-``chain_fit`` (method per quantity, e.g. ``ip:kuhn ea:exp …``), ``chain_fit_quality``
+``chain_fit`` (method per quantity, e.g. ``ip:cos ea:exp … gap:kuhn``), ``chain_fit_quality``
 (``good``/``poor`` over :data:`QUALITY_QUANTITIES`: no saturating fit accepted, or a fit on a series that
 has not started to saturate; a poor fit adds a ``chain_fit_poor`` item to ``note``) and
 ``chain_spread_<quantity>`` (:attr:`~screen.extrapolate.ChainFit.spread_ev`, which
@@ -78,8 +79,11 @@ QUALITY_QUANTITIES = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "x
 CHAIN_COLUMNS = ["representation", "chain_n_max", "chain_fit", "chain_fit_quality"]
 #: columns of the sidecar ``levels.oligomers.csv`` (one row per polymer, quantity and n; n = ``inf`` for the limit)
 SIDECAR_COLUMNS = ["polymer_key", "polymer_id", "quantity", "n", "key", "smiles", "status", "value", "method",
-                   "rms", "spread", "quality", "kuhn", "exponential", "inverse", "longest"]
-_SHORT = {"kuhn": "kuhn", "exponential": "exp", "inverse": "inv", "longest": "longest"}
+                   "rms", "spread", "quality", "kuhn", "cosine", "exponential", "inverse", "longest"]
+_SHORT = {"kuhn": "kuhn", "cosine": "cos", "exponential": "exp", "inverse": "inv", "longest": "longest"}
+#: quantities on an arbitrary zero (levels): extrapolated with the cosine (tight-binding) form first, the others
+#: (the orbital gap and the positive exchange/Coulomb/overlap descriptors) with Kuhn's (screen.extrapolate.FORMS)
+LEVEL_QUANTITIES = ("xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_ip_film_ev", "xtb_ea_film_ev")
 
 
 def _short(quantity: str) -> str:
@@ -107,7 +111,8 @@ def _one_polymer(pkey: str, group: pd.DataFrame, elec: pd.DataFrame, quantities:
     methods, poor = [], []
     for q in quantities:
         fit = extrapolate(n, pd.to_numeric(found[q], errors="coerce").to_numpy(float)[ok],
-                          per_unit=int(group["per_unit"].iloc[0]), rms_tol_ev=rms_tol_ev)
+                          per_unit=int(group["per_unit"].iloc[0]), rms_tol_ev=rms_tol_ev,
+                          form="level" if q in LEVEL_QUANTITIES else "gap")
         row[q], row[f"chain_spread_{q}"] = fit.limit_ev, fit.spread_ev
         methods.append(f"{_short(q)}:{_SHORT[fit.method]}")
         if fit.quality != "good" and q in QUALITY_QUANTITIES:

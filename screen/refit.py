@@ -10,6 +10,11 @@ reference structures need raw values too: compute them as ordinary candidates
 source; :func:`refit_from_raw` lists any structure still missing and writes it to
 ``missing_reference.csv`` ready for such a run.
 
+A polymer's raw values are its chain limits.  Where the per-n values are stored,
+:func:`rechain` extrapolates them again with the code's own rule
+(:func:`screen.levels.chain_limits`), so a refit after a change of the
+extrapolation rule gives what a computing run would give.
+
 Every source must prove that it was computed with the run's protocol: a model
 folder by the fingerprint of its model files, a run folder by
 ``levels.csv.meta.json``. A source of another protocol is refused (its raw
@@ -30,6 +35,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from screen.calibrate import fingerprint, fit_all, read_reference, save_calibration
@@ -38,7 +44,7 @@ from screen.config import Config
 from screen.errors import ConfigError
 from screen.io import read_csv_checked, read_json, write_csv
 
-__all__ = ["read_raw_source", "missing_structures", "refit_from_raw"]
+__all__ = ["read_raw_source", "missing_structures", "refit_from_raw", "rechain"]
 
 _RAW_NEEDED = ["smiles", "status", "xtb_ip_ev", "xtb_ea_ev"]
 
@@ -94,6 +100,59 @@ def read_raw_source(source: str | Path, protocol_id: str) -> tuple[pd.DataFrame,
                 None)
     oligomers = pd.read_csv(side, dtype=str, keep_default_na=False) if side else pd.DataFrame()  # copied as text
     return raw, oligomers
+
+
+def rechain(raw: pd.DataFrame, oligomers: pd.DataFrame, rms_tol_ev: float = 0.05) -> tuple[pd.DataFrame,
+                                                                                            pd.DataFrame]:
+    """Polymer rows of ``raw`` with their chain limits extrapolated again from the stored per-n values.
+
+    Parameters
+    ----------
+    raw : pandas.DataFrame
+        Raw values (``key``, ``smiles``, the ``xtb_*`` columns; polymers at the chain limit).
+    oligomers : pandas.DataFrame
+        The per-n sidecar (:data:`screen.levels.SIDECAR_COLUMNS`, as text or numbers); empty: nothing to do.
+    rms_tol_ev : float
+        ``polymer.fit_rms_tol_ev`` [eV].
+
+    Returns
+    -------
+    raw, oligomers : pandas.DataFrame
+        ``raw`` with every polymer that has per-n values refitted (chain-limit values, ``chain_fit``,
+        ``chain_fit_quality``, ``chain_n_max``, ``chain_spread_*``); the sidecar rebuilt from the same values.
+    """
+    from screen.levels import chain_limits
+    from screen.oligomers import RepeatUnit
+
+    if not len(oligomers) or "polymer_key" not in oligomers:
+        return raw, oligomers
+    n = pd.to_numeric(oligomers["n"], errors="coerce")
+    per = oligomers[np.isfinite(n)].copy()  # the per-n rows ("inf" holds the old fit)
+    per["n"] = n[np.isfinite(n)].astype(int)
+    smiles = dict(zip(raw["key"].astype(str), raw["smiles"].astype(str)))
+    per = per[per["polymer_key"].isin(smiles)]
+    if not len(per):
+        return raw, oligomers
+    status = per.groupby("key")["status"].first()
+    elec = per.pivot_table(index="key", columns="quantity", values="value", aggfunc="first")
+    elec = elec.apply(pd.to_numeric, errors="coerce").reset_index()
+    elec["status"] = elec["key"].map(status).fillna("failed")
+    elec["error"] = np.where(elec["status"].eq("ok"), "", "not computed")
+    olig = per[["polymer_key", "polymer_id", "n", "key", "smiles"]].drop_duplicates(["polymer_key", "n"])
+    olig["per_unit"] = [RepeatUnit.from_smiles(smiles[k]).conjugation_length for k in olig["polymer_key"]]
+    limits, side = chain_limits(elec, olig.sort_values(["polymer_key", "n"]), rms_tol_ev)
+    out = raw.copy()
+    ok = limits[limits["status"].eq("ok")]
+    cols = [c for c in ok.columns if c in out.columns and (c.startswith(("xtb_", "chain_")))]
+    for c in cols:
+        if c.startswith("chain_") and out[c].dtype != object and ok[c].dtype == object:
+            out[c] = out[c].astype(object)
+    rows = out["key"].astype(str).isin(ok.index)
+    for c in cols:
+        out.loc[rows, c] = out.loc[rows, "key"].astype(str).map(ok[c]).to_numpy()
+    kept = oligomers[~oligomers["polymer_key"].isin(set(ok.index))]
+    side = side[side["polymer_key"].isin(set(ok.index))]
+    return out, pd.concat([kept, side.astype(str).replace("nan", "")], ignore_index=True)
 
 
 def missing_structures(sets: dict[str, pd.DataFrame], raw: pd.DataFrame) -> pd.DataFrame:
@@ -152,4 +211,5 @@ def refit_from_raw(config, sources, out_root: str | Path) -> tuple[Path, pd.Data
                           f"compute them with `dascreen run {listing} --out DIR` and add `--from-raw DIR`")
     parts = [s for s in sides if len(s)]
     oligomers = pd.concat(parts, ignore_index=True).drop_duplicates() if parts else pd.DataFrame()
+    computed, oligomers = rechain(computed, oligomers, cfg["polymer"]["fit_rms_tol_ev"])
     return save_calibration(fit_all(sets, computed), computed, oligomers, out_root, fingerprint(cfg, reference))

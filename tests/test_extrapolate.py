@@ -12,7 +12,7 @@ import math
 import numpy as np
 import pytest
 
-from screen.extrapolate import exponential_fit, extrapolate, inverse_fit, kuhn_fit, saturation_reason
+from screen.extrapolate import cosine_fit, exponential_fit, extrapolate, inverse_fit, kuhn_fit, saturation_reason
 
 
 def test_kuhn_series_is_recovered_and_chosen():
@@ -24,14 +24,22 @@ def test_kuhn_series_is_recovered_and_chosen():
     assert fit.limit_ev < e[-1] and fit.n_points == 4 and fit.spread_ev >= 0
 
 
-def test_rising_series_is_fitted_on_its_mirror_image():
+def test_levels_take_the_shift_invariant_tight_binding_form():
+    # a level on an arbitrary zero (a ΔSCF EA, rising along the series): the limit of the cosine form
+    # a + b cos(π/(N+1)) (Hückel, Z. Phys. 70 (1931) 204) moves with any constant added to the data, exactly;
+    # Kuhn's square root needs the quantity's own zero and refuses such a series
     n = np.arange(1, 5)
-    ea = 4.0 - 2.0 * np.sqrt(1 - 2 * 0.3 * np.cos(np.pi / (2 * n + 1)))
-    limit, rms = kuhn_fit(n, ea, per_unit=2)
-    # the mirrored series is moved to positive values before the fit, which is not exactly Kuhn's form:
-    # a few meV off, far below the method's own error
-    assert limit == pytest.approx(4.0 - 2.0 * math.sqrt(0.4), abs=0.01) and rms < 0.005
-    assert limit > ea[-1]
+    ea = 2.0 + 0.8 * np.cos(np.pi / (2 * n + 1))
+    for offset in (-8.0, 0.0, 3.0):
+        fit = extrapolate(n, ea + offset, per_unit=2, form="level")
+        assert fit.method == "cosine" and fit.quality == "good"
+        assert fit.limit_ev == pytest.approx(2.8 + offset, abs=1e-9)
+    assert all(math.isnan(x) for x in kuhn_fit(n, ea, per_unit=2))  # rising: no Kuhn fit
+    assert all(math.isnan(x) for x in kuhn_fit(n, -(4.0 - ea), per_unit=2))  # not positive: no Kuhn fit
+    limit, rms = cosine_fit(n, ea, per_unit=2)
+    assert limit == pytest.approx(2.8, abs=1e-9) and rms < 1e-9
+    with pytest.raises(ValueError, match="form"):
+        extrapolate(n, ea, form="orbital")
 
 
 def test_exponential_series_takes_the_exponential_fit():

@@ -53,9 +53,15 @@ def _levels(tmp_path, prepared, electronic):
     return pd.read_csv(out, dtype={"id": str}, keep_default_na=False, na_values=[""]), out
 
 
+def _cos(n, a, b, m=2):
+    """Tight-binding (Hückel) level of a chain of N = m n coupled units: a + b cos(π/(N+1)); limit a + b."""
+    return a + b * np.cos(np.pi / (m * np.asarray(n, float) + 1))
+
+
 def _kuhn_values(smiles, n):
-    return {"xtb_ip_ev": float(_kuhn(n, 9.0, -0.2)), "xtb_ea_ev": 3.0 - float(_kuhn(n, 1.5, -0.3)),
-            "xtb_homo_ev": -float(_kuhn(n, 8.0, -0.15)), "xtb_lumo_ev": -3.0, "xtb_gap_ev": float(_kuhn(n, 4.0, -0.45))}
+    """Levels in the tight-binding form, the gap in Kuhn's (the forms each kind of quantity is fitted with)."""
+    return {"xtb_ip_ev": float(_cos(n, 7.0, -1.2)), "xtb_ea_ev": float(_cos(n, 1.0, 1.0)),
+            "xtb_homo_ev": float(_cos(n, -6.0, 0.9)), "xtb_lumo_ev": -3.0, "xtb_gap_ev": float(_kuhn(n, 4.0, -0.45))}
 
 
 def test_polymer_levels_at_the_chain_limit_with_sidecar(tmp_path):
@@ -67,11 +73,12 @@ def test_polymer_levels_at_the_chain_limit_with_sidecar(tmp_path):
     pt, thio, pt2 = (levels.iloc[i] for i in range(3))
     assert (pt.status, pt.representation, thio.representation) == ("ok", "polymer", "molecule")
     assert int(pt.chain_n_max) == 4 and pt.chain_fit_quality == "good"
-    assert pt.chain_fit.startswith("ip:kuhn ea:kuhn") and "gap:kuhn" in pt.chain_fit
-    # Kuhn data are extrapolated exactly: E(inf) = E0 sqrt(1 + 2x)
+    assert pt.chain_fit.startswith("ip:cos ea:cos homo:cos") and "gap:kuhn" in pt.chain_fit
+    # Kuhn data are extrapolated exactly: E(inf) = E0 sqrt(1 + 2x); tight-binding levels: a + b
     assert pt.xtb_gap_ev == pytest.approx(4.0 * math.sqrt(1 - 0.9), abs=1e-3)
-    assert pt.xtb_ip_ev == pytest.approx(9.0 * math.sqrt(1 - 0.4), abs=1e-3)
-    assert pt.xtb_ea_ev == pytest.approx(3.0 - 1.5 * math.sqrt(1 - 0.6), abs=1e-3)
+    assert pt.xtb_ip_ev == pytest.approx(7.0 - 1.2, abs=1e-6)
+    assert pt.xtb_ea_ev == pytest.approx(1.0 + 1.0, abs=1e-6)
+    assert pt.xtb_homo_ev == pytest.approx(-6.0 + 0.9, abs=1e-6)
     # the molecule thiophene is the n = 1 oligomer: its own values, no chain columns
     assert thio.xtb_gap_ev == pytest.approx(float(_kuhn(1, 4.0, -0.45)), abs=1e-9) and thio.chain_fit != thio.chain_fit
     assert pt2.duplicate_of == "pt" and pt2.xtb_gap_ev == pt.xtb_gap_ev
