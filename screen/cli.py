@@ -21,6 +21,7 @@ import argparse
 import atexit
 import gc
 import os
+import re
 import sys
 from pathlib import Path
 
@@ -33,12 +34,17 @@ from screen.cli_shared import (EXIT_ERROR, EXIT_OK, EXIT_STRICT, _at_least_one, 
                                _print_summary, data_path)
 from screen.launch import WORKFLOW, run_workflow
 
-__all__ = ["main", "build_parser", "WORKFLOW"]
+__all__ = ["main", "build_parser", "WORKFLOW", "DEFAULT_OUT"]
+
+#: the output folder of ``run``, ``rank`` and ``status`` without --out (the schema's ``out`` default serves a
+#: snakemake run started without this command)
+DEFAULT_OUT = "results"
 
 def cmd_run(args) -> int:
     """Check the inputs, then run the workflow through Snakemake in a subprocess."""
     from screen.partners import split_partners
-    from screen.preflight import check_candidates, check_out, check_partners
+    from screen.preflight import (check_calibration, check_candidates, check_out, check_partner_scales,
+                                  check_partners)
 
     candidates = Path(args.candidates)
     check_candidates(candidates)
@@ -52,6 +58,10 @@ def cmd_run(args) -> int:
     cfg = _load(args, {"candidates": str(candidates.resolve()), "out": str(out),
                        "partner": _partner_arg(partners[0] if partners else None),
                        "strict": True if args.strict else None})
+    if not partners:  # the partner of the config (file or default): checked like a --partner
+        check_partners([cfg["partner"]])
+    check_partner_scales(partners or [cfg["partner"]], cfg["levels"]["scale"])
+    check_calibration(cfg, out, args.config)  # hours of reference computation only when asked for
     notice = calibration_notice(cfg, out)
     if notice:
         print(notice, file=sys.stderr)
@@ -128,27 +138,28 @@ def _partner_arg(spec: str | None) -> str | None:
 
 
 def calibration_notice(cfg: Config, out: Path) -> str | None:
-    """What a run must compute first when no calibration matches its protocol (``None`` when one does).
+    """What a run must compute first when it calibrates (``None`` when it uses a calibration as it is).
 
-    A protocol without shipped models (another ``structures`` or ``electronic``
-    setting) makes the run compute every reference material with that protocol
-    before any level can be calibrated: said before the run starts, with the
-    count and the protocols that are shipped, because it takes hours.
+    A run without a calibration of its settings (protocol, polymer settings,
+    engine version, reference data) computes every reference material before any
+    level can be calibrated: said before the run starts, with the count and the
+    settings that differ from the shipped calibration, because it takes hours.
+    ``dascreen run`` gets here only when the run opted in
+    (:func:`screen.preflight.check_calibration` refuses the others).
     """
-    from screen.calibrate import find_models  # only here: the calibration modules are not needed otherwise
-    from screen.calibration.reference import canonical, read_reference
+    from screen.preflight import calibration_text, fitted_in, reference_count
 
-    pid = cfg.protocol_id
-    if cfg["calibration"]["refit"] == "always" or find_models(cfg) is not None or (out / "models" / pid).is_dir():
+    target = out / "models" / cfg.protocol_id
+    if fitted_in(out, cfg):
         return None
-    models = Path(cfg["calibration"]["models"])
-    shipped = sorted(p.name for p in models.iterdir() if (p / "ip.json").is_file()) if models.is_dir() else []
-    sets = read_reference(cfg["calibration"]["reference"])
-    smiles = {canonical(s) for frame in sets.values() if "smiles" in frame for s in frame["smiles"].dropna()}
-    return (f"dascreen: no calibration in {models} matches protocol {pid}; this run first computes the "
-            f"{len(smiles)} reference materials with it (polymers as oligomer series) and fits the models into "
-            f"{out}/models/{pid} — hours on a few cores, once per protocol (`dascreen calibrate --install "
-            f"models` keeps them). Protocols with calibrations: {', '.join(shipped) or 'none'}")
+    text = calibration_text(cfg)
+    if text is None:
+        if cfg["calibration"]["refit"] != "always":
+            return None
+        text = (f"calibration.refit=always: this run fits the calibration anew; that computes the "
+                f"{reference_count(cfg)} reference materials first — hours on a few cores")
+    return (f"dascreen: {text}. This run does that first and fits the models into {target} "
+            f"(`dascreen calibrate ... --install {cfg['calibration']['models']}` keeps a calibration for later runs)")
 
 
 def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
@@ -191,18 +202,18 @@ def _compute_partner(cfg: Config, out: Path, spec: str, verbose: bool = False) -
 
     if partner_kind(spec) != "smiles":
         return None
-    from screen.calibrate import find_models  # only here: the calibration modules are not needed otherwise
+    from screen.preflight import calibration_text  # only here: the calibration modules are not needed otherwise
 
     cfg = cfg.with_overrides({"partner": spec})
     target = partner_levels_path(spec, out)
-    pid = cfg.protocol_id
-    if cfg["calibration"]["refit"] != "always" and find_models(cfg) is None and not (out / "models" / pid).is_dir():
+    missing = None if cfg["calibration"]["refit"] == "always" else calibration_text(cfg, out)
+    if missing:
         from screen.partners import PartnerError
 
         raise PartnerError(
-            f"partner {spec!r} is computed like the candidates and needs the calibration models of protocol "
-            f"{pid}; none found in {cfg['calibration']['models']}/{pid}. Run `dascreen calibrate --install "
-            "models` (or the pipeline) first, or pass the models folder with --models")
+            f"partner {spec!r} is computed like the candidates and needs a calibration of the run's settings: "
+            f"{missing}. Run `dascreen calibrate --install {cfg['calibration']['models']}` with those settings "
+            "first, pass a models folder with --models, or add --set calibration.refit=always to calibrate now")
     rc = run_workflow(cfg, out, 1, [str(target)], cfg_file=target.parent / "config.yaml", verbose=verbose,
                       log_name=f"{target.parent.name}/workflow", label=f"dascreen partner {spec}")
     if rc != 0:
@@ -250,12 +261,12 @@ def cmd_rank(args) -> int:
     partners = partners or [cfg["partner"]]
     if any(partner_kind(spec) == "smiles" for spec in partners):  # refused now, not after computing the partner
         check_before_computing(levels, partners, cfg)
-    paths = []
+    paths, replaced = [], []
     try:
         for spec in partners:
             computed = _compute_partner(cfg, out, spec, args.verbose)
             paths.append(run_rank(levels, spec, out, cfg.with_overrides({"partner": spec}),
-                                  partner_levels=computed))
+                                  partner_levels=computed, replaced=replaced if len(partners) > 1 else None))
     except RuntimeError as exc:  # the report failed after the ranking was written
         if isinstance(exc, DascreenError):
             raise
@@ -269,6 +280,11 @@ def cmd_rank(args) -> int:
         folder = run_matrix(paths, out, cfg)
         print(f"dascreen: partner matrix ({len(paths)} partners) -> {folder / 'matrix.csv'} and "
               f"{folder / 'overview.html'}")
+    if replaced:  # other matrices that join a re-ranked folder: rebuilt once, now that every partner is ranked
+        from screen.matrix import refresh_matrices
+
+        for name in dict.fromkeys(replaced):
+            refresh_matrices(out, name, skip=(folder,) if len(paths) > 1 else ())
     return EXIT_OK
 
 
@@ -292,9 +308,14 @@ def cmd_status(args) -> int:
     from screen.preflight import run_active
 
     out = Path(args.out)
+    if not out.exists():
+        raise InputError(f"--out {args.out}: no such folder; give the --out folder of a dascreen run")
+    if not out.is_dir():
+        raise InputError(f"--out {args.out} is a file, not a folder; give the --out folder of a dascreen run")
     p = run_progress(out)
     if not p["prepared"]:
-        raise ConfigError(f"{out} holds no prepared batch (is it the --out folder of a dascreen run?)")
+        raise InputError(f"--out {args.out} holds no prepared batch: it is not the --out folder of a dascreen run, "
+                         "or its run has not got past the prepare stage yet")
     pct = 100.0 * p["done"] / p["total"] if p["total"] else 100.0
     counts = f"{p['done']}/{p['total']} molecules computed ({pct:.0f}%)"
     levels = out / "levels.csv"
@@ -324,12 +345,21 @@ def _minutes(seconds: float) -> str:
 def cmd_config(args) -> int:
     """Print every configuration field with its description, unit, default and allowed values."""
     if args.yaml:
+        print(f"# candidates and out serve a snakemake run started without the dascreen command; `dascreen run` "
+              f"takes them\n# from its CANDIDATES argument and --out (default ./{DEFAULT_OUT})")
         print(yaml.safe_dump(Config.load(None).to_dict(), sort_keys=False), end="")
         return EXIT_OK
     from screen.preflight import config_text
 
-    print(config_text(), end="")
+    print(config_text(cli_defaults=_CLI_DEFAULTS), end="")
     return EXIT_OK
+
+
+#: fields the dascreen command sets itself, whatever the schema's default (shown by `dascreen config`)
+_CLI_DEFAULTS = {
+    "candidates": "none (the CANDIDATES argument of dascreen run)",
+    "out": f"./{DEFAULT_OUT} (--out)",
+}
 
 
 def cmd_store(args) -> int:
@@ -365,8 +395,8 @@ def _add_run(sub) -> None:
     p.add_argument("candidates", help="candidate list: .csv (id,smiles[,name,role,...]), .smi or .sdf")
     p.add_argument("--partner", default=None,
                    help="partner material: library name (see `dascreen partners`), a one-row levels CSV, "
-                        "smiles:<SMILES> or id:<ID> (default from config: scharber-reference-acceptor)")
-    p.add_argument("--out", default="results", help="output folder (default: ./results)")
+                        "smiles:<SMILES> or id:<ID> (default: the config's partner, {default:partner})")
+    p.add_argument("--out", default=DEFAULT_OUT, help="output folder (default: ./%(default)s)")
     p.add_argument("--cores", type=_at_least_one, default=os.cpu_count() or 1,
                    help="CPU cores to use, 1 or more (default: all)")
     p.add_argument("--config", default=None, help="YAML config file (see `dascreen config` for every field)")
@@ -417,8 +447,7 @@ def _add_rank(sub) -> None:
     """The ``rank`` sub-command."""
     p = sub.add_parser("rank", help="ranking and report only, from an existing levels file (seconds)",
                        description="Pair every candidate of a levels file with a partner material, estimate "
-                                   "Voc/Jsc/PCE with the device model (default: the fitted energy-loss model; "
-                                   "--set device.model=scharber for the published Scharber rule), apply the filters "
+                                   f"Voc/Jsc/PCE with the device model ({_DEVICE_MODELS}), apply the filters "
                                    "and write "
                                    "OUT/rankings/<partner>--<settings hash>/ (ranking.csv, shortlist.sdf, ranking.meta.json, "
                                    "report); with several partners also OUT/rankings/matrix--<hash>/. "
@@ -426,18 +455,20 @@ def _add_rank(sub) -> None:
                                    "through the workflow, with the run's protocol and calibration.")
     p.add_argument("--partner", action="append", default=None, metavar="P",
                    help="library name (see `dascreen partners`), a one-row levels CSV, smiles:<SMILES> or "
-                        "id:<ID> of a levels row (default from config: y6). Repeat it or give a comma list for "
+                        "id:<ID> of a levels row (default: the partner of OUT/config.yaml or --config, else "
+                        "{default:partner}). Repeat it or give a comma list for "
                         "several partners: one ranking each plus a candidates x partners matrix and overview")
     p.add_argument("--levels", default=None,
                    help="levels file to rank (default OUT/levels.csv); any CSV with id,homo_ev,lumo_ev,gap_opt_ev,"
                         "scale works, e.g. your own cyclic-voltammetry levels")
-    p.add_argument("--out", default="results", help="output folder (default: ./results)")
+    p.add_argument("--out", default=DEFAULT_OUT, help="output folder (default: ./%(default)s)")
     p.add_argument("--role", choices=["donor", "acceptor"], default=None,
                    help="role of rows without a role column value (default: the partner's complement)")
     p.add_argument("--sort-by", choices=["pce_pct", "p_above_target"], default=None,
-                   help="ranking key after the pass/fail split (default pce_pct)")
+                   help="ranking key after the pass/fail split (default {default:rank.sort_by})")
     p.add_argument("--target-pce", type=_percent, default=None, metavar="PCT",
-                   help="efficiency threshold for p_above_target, in %%, from 0 to 100 (default 10)")
+                   help="efficiency threshold for p_above_target, in %%, from 0 to 100 (default "
+                        "{default:rank.target_pce_pct})")
     p.add_argument("--config", default=None,
                    help="YAML config file (default: OUT/config.yaml if present, else the defaults)")
     p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
@@ -460,7 +491,7 @@ def _add_small(sub) -> None:
     p = sub.add_parser("status", help="molecules done / total of a run folder, with an ETA",
                        description="Count the molecules a (running) batch has finished, from its shard outputs "
                                    "and journals, and estimate the time left.")
-    p.add_argument("--out", default="results", help="the run's output folder")
+    p.add_argument("--out", default=DEFAULT_OUT, help="the run's output folder (default: ./%(default)s)")
     p.set_defaults(func=cmd_status)
 
     p = sub.add_parser("config", help="every configuration field: description, unit, default, allowed values",
@@ -492,13 +523,70 @@ def _add_store(sub) -> None:
     p.set_defaults(func=cmd_store)
 
 
+#: the device models in words, for help texts ({default:...} is filled in when the help is printed)
+_DEVICE_MODELS = ("device.model, default {default:device.model}: fitted = an energy-loss model fitted on published "
+                  "devices, scharber = the published Scharber rule")
+
+
+def _schema_default(path: str) -> str:
+    """The schema's default of a config field in words (``partner`` → ``y6``)."""
+    from screen.schema import defaults
+
+    value = defaults()
+    for part in path.split("."):
+        value = value[part]
+    if value is None:
+        return "null"
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    return f"{value:g}" if isinstance(value, float) else str(value)
+
+
+class _HelpFormatter(argparse.HelpFormatter):
+    """Fills ``{default:FIELD}`` of help texts with the schema's default when the help is printed.
+
+    The defaults stay in the schema alone (the single source of every default), and a command that
+    prints no help never reads it.
+    """
+
+    _FIELD = re.compile(r"\{default:([\w.]+)\}")
+
+    def _fill(self, text: str) -> str:
+        return self._FIELD.sub(lambda m: _schema_default(m.group(1)), text) if text and "{default:" in text else text
+
+    def _format_text(self, text: str) -> str:
+        return super()._format_text(self._fill(text))
+
+    def _get_help_string(self, action) -> str:
+        return self._fill(super()._get_help_string(action))
+
+
+class _Parser(argparse.ArgumentParser):
+    """An argument parser with :class:`_HelpFormatter` (its sub-command parsers are of this class too)."""
+
+    def __init__(self, *args, **kwargs):
+        kwargs.setdefault("formatter_class", _HelpFormatter)
+        super().__init__(*args, **kwargs)
+
+
+def _parser_of(parser: argparse.ArgumentParser, args) -> argparse.ArgumentParser:
+    """The sub-command parser a command line ended in (``dascreen rank …`` → rank's), for its usage."""
+    current = parser
+    while True:
+        sub = next((a for a in current._actions if isinstance(a, argparse._SubParsersAction)), None)
+        name = getattr(args, sub.dest, None) if sub is not None and sub.dest else None
+        if name not in (sub.choices if sub is not None else {}):
+            return current
+        current = sub.choices[name]
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (exposed for documentation and tests)."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="dascreen",
         description="Screen organic-photovoltaic donor/acceptor candidates: calibrated xTB frontier levels, "
-                    "offsets to a partner material, Scharber-model Voc/Jsc/PCE and a ranked report. "
-                    "Results are screening estimates, not measurements.",
+                    f"offsets to a partner material, Voc/Jsc/PCE estimates from a device model ({_DEVICE_MODELS}) "
+                    "and a ranked report. Results are screening estimates, not measurements.",
     )
     parser.add_argument("--version", action="version", version=f"dascreen {__version__}")
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
@@ -533,7 +621,12 @@ def main(argv: list[str] | None = None) -> int:
     if "--" in argv:  # everything after a bare -- goes to Snakemake unchanged (run only)
         cut = argv.index("--")
         argv, passthrough = argv[:cut], argv[cut + 1:]
-    args = parser.parse_args(argv)
+    args, unknown = parser.parse_known_args(argv)
+    if unknown:  # an unknown option after the sub-command gets the sub-command's usage, not the top level's
+        command = argv.index(args.command) if args.command in argv else len(argv)
+        first = argv.index(unknown[0]) if unknown[0] in argv else len(argv)
+        (_parser_of(parser, args) if first > command else parser).error(
+            f"unrecognized arguments: {' '.join(unknown)}")
     args.snakemake_args = passthrough
     try:
         return args.func(args)

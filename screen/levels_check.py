@@ -7,7 +7,7 @@ energy, which is ≥ 0; :data:`GAP_EXCESS_TOL_EV` allows for the spread between
 CV and absorption onsets), on the film scale not far below it either
 (:data:`GAP_DEFICIT_MAX_EV`), and σ ≥ 0.  A violation is almost always a typing or
 convention slip (an ionisation energy written as a positive HOMO, HOMO and LUMO
-swapped, a gap in nm): it stops the ranking with an :class:`InputError` (exit
+swapped or equal, a gap in nm): it stops the ranking with an :class:`InputError` (exit
 code 2) that names the file, the line, the column, the value and the fix.
 A levels file is also refused for a number that is not finite (``inf``), an
 empty or repeated id, a scale other than ``film`` or ``gas`` and a role other
@@ -75,6 +75,8 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
     ['homo_ev']
     >>> row_problems(-5.4, -3.9, 650.0, "film")[0][2]
     'an optical gap of 650 eV looks like a wavelength in nm; write 1240/650 = 1.91 eV'
+    >>> row_problems(-5.0, -5.0, 1.5, "film")[0][2][:39]
+    'HOMO and LUMO are equal (-5): that is a'
     """
     out = []
     film = str(scale).strip().lower() != "gas"
@@ -88,8 +90,13 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
         if math.isfinite(val) and val < LEVEL_MIN_EV:
             out.append((col, val, f"{val:g} eV is not a frontier level; levels are in eV (not meV or kJ/mol), "
                                   "e.g. -5.3"))
-    if math.isfinite(homo) and math.isfinite(lumo) and not out and homo >= lumo:
-        out.append(("homo_ev", homo, f"HOMO ({_fmt(homo)}) is not below LUMO ({_fmt(lumo)}): the two columns look "
+    if math.isfinite(homo) and math.isfinite(lumo) and not out and abs(homo - lumo) <= _ROUND_EV:
+        out.append(("homo_ev", homo, f"HOMO and LUMO are equal ({_fmt(homo)}): that is a zero transport gap, which "
+                                     "no organic semiconductor has, so one value was probably copied into both "
+                                     "columns; write HOMO = -IP and LUMO = -EA, the LUMO above the HOMO (e.g. "
+                                     "-5.3 and -3.6)"))
+    elif math.isfinite(homo) and math.isfinite(lumo) and not out and homo > lumo:
+        out.append(("homo_ev", homo, f"HOMO ({_fmt(homo)}) is above LUMO ({_fmt(lumo)}): the two columns look "
                                      "swapped; write the deeper (more negative) level as HOMO"))
     if math.isfinite(gap):
         if gap <= 0:

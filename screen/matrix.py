@@ -24,12 +24,14 @@ from __future__ import annotations
 
 import hashlib
 import json
+import sys
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-__all__ = ["MATRIX_LEAD", "partner_matrix", "matrix_folder", "run_matrix"]
+__all__ = ["MATRIX_LEAD", "partner_matrix", "matrix_folder", "run_matrix", "refresh_matrices",
+           "matrices_joining", "stale_columns"]
 
 #: the leading columns of ``matrix.csv``; one column per partner follows, named by the partner id
 MATRIX_LEAD = ["id", "name", "smiles", "best_partner", "best_pce_pct", "viable_partners"]
@@ -119,15 +121,33 @@ def run_matrix(ranking_paths, out_dir, config=None) -> Path:
     Returns
     -------
     pathlib.Path
+
+    Notes
+    -----
+    When the rankings were made from levels of different content (a member
+    re-ranked alone after its levels file changed: :func:`refresh_matrices`),
+    ``matrix.meta.json`` gets a ``stale`` entry, the overview a banner and
+    stderr one line, naming the columns ranked from other levels than the
+    newest ranking and the command that brings them up to date.
     """
-    from screen import __version__
     from screen.config import Config
+
+    cfg = Config.of(config)
+    folder, meta = _write_matrix(ranking_paths, out_dir, cfg["device"], cfg["rank"])
+    if meta["stale"]:
+        print(f"dascreen: partner matrix {folder}: {meta['stale']['summary']}", file=sys.stderr)
+    return folder
+
+
+def _write_matrix(ranking_paths, out_dir, device: dict, rank: dict) -> tuple[Path, dict]:
+    """:func:`run_matrix` with the recorded ``device`` and ``rank`` sections; the folder and its meta."""
+    from screen import __version__
     from screen.io import read_json, write_csv, write_json
     from screen.report.matrix_page import write_overview
 
-    cfg = Config.of(config)
+    paths = [Path(p) for p in ranking_paths]
     rankings, partners, tests = [], [], None
-    for path in map(Path, ranking_paths):
+    for path in paths:
         meta = read_json(path.parent / "ranking.meta.json")
         tests = tests or meta.get("device_tests")  # same levels and device model for every partner
         partner = meta["partner"]
@@ -137,17 +157,149 @@ def run_matrix(ranking_paths, out_dir, config=None) -> Path:
             f"{partner['id']} ({path.parent.name})"  # two partners of one id (e.g. two files) stay apart
         rankings.append((label, table))
         partners.append({"id": label, "name": partner.get("name"), "role": partner.get("role"),
+                         "spec": partner.get("spec") or partner["id"],
                          "homo_ev": partner.get("homo_ev"), "lumo_ev": partner.get("lumo_ev"),
                          "gap_opt_ev": partner.get("gap_opt_ev"), "scale": partner.get("scale"),
                          "folder": path.parent.name, "report": f"../{path.parent.name}/report.html",
+                         "levels": {k: (meta.get("levels") or {}).get(k) for k in ("path", "sha256")},
                          "viable": int(_viable(table).sum()), "ranked": int(len(table))})
     matrix = partner_matrix(rankings)
-    folder = Path(out_dir) / "rankings" / matrix_folder([Path(p).parent for p in ranking_paths])
+    folder = Path(out_dir) / "rankings" / matrix_folder([p.parent for p in paths])
     write_csv(matrix, folder / "matrix.csv")
     meta = {"dascreen": __version__, "stage": "partner matrix", "partners": partners,
             "cell": "best PCE estimate [%] of the candidate's viable rows against the partner; empty = not viable",
-            "device": cfg["device"], "device_tests": tests, "rank": cfg["rank"], "rows": int(len(matrix)),
+            "device": device, "device_tests": tests, "rank": rank, "rows": int(len(matrix)),
+            "stale": stale_columns(partners, [p.parent / "ranking.meta.json" for p in paths], Path(out_dir)),
             "outputs": {"matrix": "matrix.csv", "overview": "overview.html", "meta": "matrix.meta.json"}}
     write_json(meta, folder / "matrix.meta.json")
     write_overview(matrix, meta, folder / "overview.html")
-    return folder
+    return folder, meta
+
+
+def _newest(meta_paths) -> int:
+    """Index of the most recently written ranking (its ``ranking.meta.json``)."""
+    times = [Path(p).stat().st_mtime_ns if Path(p).is_file() else -1 for p in meta_paths]
+    return max(range(len(times)), key=lambda i: (times[i], i))
+
+
+def stale_columns(partners: list[dict], meta_paths, out_dir: Path) -> dict | None:
+    """Which matrix columns were ranked from other levels than the newest ranking; None when none were.
+
+    Parameters
+    ----------
+    partners : list of dict
+        The ``partners`` entries of ``matrix.meta.json`` (``id``, ``spec``,
+        ``levels``: ``path`` and ``sha256`` of the levels each ranking read).
+    meta_paths : sequence of path-like
+        The members' ``ranking.meta.json`` files (their times say which is newest).
+    out_dir : pathlib.Path
+        The output folder (for the command that refreshes the matrix).
+
+    Returns
+    -------
+    dict or None
+        ``partners`` (the out-of-date column labels), ``current`` (the newest
+        ranking's label and levels), ``refresh`` (a command that re-ranks every
+        partner together) and ``summary`` (one sentence).
+    """
+    import shlex
+
+    if len(partners) < 2:
+        return None
+    newest = partners[_newest(meta_paths)]
+    current = newest.get("levels") or {}
+    old = [p for p in partners if (p.get("levels") or {}).get("sha256") != current.get("sha256")]
+    if not old:
+        return None
+    levels = current.get("path") or "LEVELS"
+    command = " ".join(["dascreen", "rank", "--levels", shlex.quote(str(levels))]
+                       + [f"--partner {shlex.quote(str(p['spec']))}" for p in partners]
+                       + ["--out", shlex.quote(str(out_dir))])
+    same_file = all((p.get("levels") or {}).get("path") == levels for p in old)
+    source = (f"an earlier version of {levels} than the {newest['id']} column (ranked last)" if same_file
+              else f"other levels than the {newest['id']} column (ranked last, from {levels})")
+    ids = ", ".join(p["id"] for p in old)
+    summary = (f"the {ids} column{'s were' if len(old) > 1 else ' was'} ranked from {source}: marked stale in "
+               f"overview.html and matrix.meta.json; bring every column up to date with: {command}")
+    return {"partners": [p["id"] for p in old], "current": {"partner": newest["id"], "levels": current},
+            "refresh": command, "summary": summary}
+
+
+def matrices_joining(out_dir, folder: str) -> list[Path]:
+    """The partner-matrix folders under ``OUT/rankings/`` whose ``matrix.meta.json`` joins ranking ``folder``."""
+    from screen.io import read_json
+
+    found = []
+    for meta_path in sorted((Path(out_dir) / "rankings").glob("matrix--*/matrix.meta.json")):
+        try:
+            partners = read_json(meta_path).get("partners") or []
+        except (OSError, ValueError, AttributeError):
+            continue
+        if any(isinstance(p, dict) and p.get("folder") == folder for p in partners):
+            found.append(meta_path.parent)
+    return found
+
+
+def refresh_matrices(out_dir, folder: str, skip=()) -> list[Path]:
+    """Rebuild every partner matrix that joins ranking ``folder`` (re-ranked from changed levels).
+
+    Each matrix is rebuilt from its members' current rankings with the device
+    and rank settings it recorded, so every cell is again the number of the
+    report it links to; columns whose ranking read other levels than the
+    newest one are marked stale (:func:`stale_columns`).  A matrix whose
+    member ranking is gone cannot be rebuilt: it is marked stale as it is.
+    Every matrix touched gets one line on stderr.
+
+    Parameters
+    ----------
+    out_dir : path-like
+        The output folder (``OUT``).
+    folder : str
+        Name of the ranking folder that was replaced (``<partner slug>--<settings hash>``).
+    skip : sequence of path-like
+        Matrix folders just written by the caller (left as they are).
+
+    Returns
+    -------
+    list of pathlib.Path
+        The matrix folders rebuilt.
+    """
+    from screen.io import read_json
+
+    rebuilt = []
+    skipped = {Path(p).resolve() for p in skip}
+    for matrix_dir in matrices_joining(out_dir, folder):
+        if matrix_dir.resolve() in skipped:
+            continue
+        meta = read_json(matrix_dir / "matrix.meta.json")
+        paths = [Path(out_dir) / "rankings" / p["folder"] / "ranking.csv" for p in meta["partners"]]
+        gone = [p.parent.name for p in paths if not (p.is_file() and (p.parent / "ranking.meta.json").is_file())]
+        try:
+            if gone:
+                raise FileNotFoundError(f"{', '.join(gone)} {'are' if len(gone) > 1 else 'is'} gone")
+            _, now = _write_matrix(paths, out_dir, meta.get("device") or {}, meta.get("rank") or {})
+        except (OSError, ValueError, KeyError) as exc:
+            _mark_stale(matrix_dir, meta, f"the ranking {folder} was replaced, but the matrix could not be rebuilt "
+                                          f"({exc}): its numbers are those of the earlier rankings")
+            continue
+        done = f"dascreen: partner matrix {matrix_dir} rebuilt with the new ranking {folder}"
+        if now["stale"]:
+            print(f"{done}, but {now['stale']['summary']}", file=sys.stderr)
+        else:
+            print(done + ("; every column is now ranked from the same levels" if meta.get("stale") else ""),
+                  file=sys.stderr)
+        rebuilt.append(matrix_dir)
+    return rebuilt
+
+
+def _mark_stale(matrix_dir: Path, meta: dict, why: str) -> None:
+    """Record ``why`` as the matrix's ``stale`` entry, redraw its overview with the banner and say so."""
+    from screen.io import write_json
+    from screen.report.matrix_page import write_overview
+
+    meta = {**meta, "stale": {"partners": [p["id"] for p in meta.get("partners", [])], "summary": why}}
+    write_json(meta, matrix_dir / "matrix.meta.json")
+    matrix = pd.read_csv(matrix_dir / "matrix.csv", dtype={"id": str, "smiles": str, "name": str},
+                         keep_default_na=False, na_values=[""])
+    write_overview(matrix, meta, matrix_dir / "overview.html")
+    print(f"dascreen: partner matrix {matrix_dir}: {why}", file=sys.stderr)

@@ -5,7 +5,12 @@ input costs one message and exit code 2 (``docs/contracts.md`` §3 and §7)
 instead of a failed job and a traceback: a missing or empty candidate file,
 missing columns, an unknown partner ("did you mean …"), a ``--set`` key or
 value the schema does not allow (the message blames the ``--set`` and lists
-close field names) and an output folder that would mix two runs.
+close field names), an output folder that would mix two runs, a partner on
+another energy scale than the run's levels (:func:`check_partner_scales`) and
+settings that no calibration serves, which would start hours of reference
+computation unless the run opted in with ``calibration.refit=always``
+(:func:`check_calibration`; the message names each setting that differs from
+the shipped calibration).
 
 The schema walk here (:func:`schema_fields`, :func:`allowed_text`,
 :func:`unit_of`) also feeds ``dascreen config``.
@@ -31,8 +36,9 @@ import yaml
 from screen.errors import ConfigError, InputError
 
 __all__ = ["SchemaField", "schema_fields", "allowed_text", "unit_of", "check_sets", "check_candidates",
-           "check_out_folder",
-           "check_partners", "check_out", "config_text"]
+           "check_out_folder", "check_partners", "check_partner_scales", "check_out", "config_text",
+           "CalibrationDifference", "calibration_differences", "calibration_text", "check_calibration", "fitted_in",
+           "reference_count"]
 
 
 # --------------------------------------------------------------------------- the schema, field by field
@@ -164,13 +170,24 @@ def _show(value) -> str:
     return str(value)
 
 
-def config_text(width: int = 100) -> str:
+def config_text(width: int = 100, cli_defaults: dict | None = None) -> str:
     """``dascreen config``: every field with its description, unit, default and allowed values.
+
+    Parameters
+    ----------
+    width : int
+        Line width of the descriptions.
+    cli_defaults : dict, optional
+        ``{field: text}`` for fields the ``dascreen`` command sets itself (``out`` from ``--out``):
+        shown as the default, the schema's default named as the one of a snakemake run started
+        without the command.
 
     Examples
     --------
     >>> text = config_text()
     >>> "device.eqe" in text and "default: null" in text and "allowed:" in text
+    True
+    >>> "default: ./results (--out)" in config_text(cli_defaults={"out": "./results (--out)"})
     True
     """
     import textwrap
@@ -189,8 +206,10 @@ def config_text(width: int = 100) -> str:
         lines.append(f"  {field.path}")
         lines += textwrap.wrap(field.description or "(no description)", width - 6, initial_indent="      ",
                                subsequent_indent="      ", break_on_hyphens=False)
-        lines.append(f"      default: {_show(field.default)} | unit: {unit_of(field)} | "
-                     f"allowed: {allowed_text(field.schema)}")
+        default = _show(field.default)
+        if field.path in (cli_defaults or {}):
+            default = f"{cli_defaults[field.path]}; snakemake without the dascreen command: {default}"
+        lines.append(f"      default: {default} | unit: {unit_of(field)} | allowed: {allowed_text(field.schema)}")
     return "\n".join(lines) + "\n"
 
 
@@ -433,3 +452,260 @@ def run_active(out) -> bool:
             return True
         fcntl.flock(fh, fcntl.LOCK_UN)
     return False
+
+
+# --------------------------------------------------------------------------- energy scales of the partners
+
+def check_partner_scales(specs, scale: str) -> None:
+    """Refuse a run whose levels scale differs from a partner's, before anything is computed.
+
+    The ranking refuses to combine levels and a partner on different energy
+    scales (``docs/contracts.md`` §6); a run would find that out only after it
+    computed every level. ``smiles:`` and ``id:`` partners are computed with the
+    run's own settings, so they are on its scale and pass.
+
+    Parameters
+    ----------
+    specs : list of str
+        Every partner the run ranks against.
+    scale : str
+        The run's ``levels.scale`` (``film`` or ``gas``).
+
+    Raises
+    ------
+    ScaleMismatchError
+        Naming the partner, both scales and the fixes (exit code 2).
+
+    Examples
+    --------
+    >>> check_partner_scales(["y6"], "film")
+    >>> try:
+    ...     check_partner_scales(["y6"], "gas")
+    ... except InputError as exc:
+    ...     print(str(exc)[:61])
+    partner 'y6' (built-in library) is on the 'film' scale, as is
+    """
+    from screen.errors import ScaleMismatchError
+    from screen.partners import partner_kind, resolve_partner
+
+    for spec in specs:
+        if partner_kind(spec) not in ("library", "file"):
+            continue
+        partner = resolve_partner(spec)
+        if partner.scale == scale:
+            continue
+        where = "built-in library" if partner.kind == "library" else f"file {partner.spec}"
+        library = ", as is every built-in partner" if partner.kind == "library" else ""
+        raise ScaleMismatchError(
+            f"partner {partner.id!r} ({where}) is on the {partner.scale!r} scale{library}, but this run's levels "
+            f"are on the {scale!r} scale (levels.scale={scale}); the ranking never mixes scales, so nothing was "
+            f"computed. Either drop levels.scale={scale} (levels.scale={partner.scale} is the "
+            f"{'device model' if partner.scale == 'film' else 'partner'}'s scale), or give a partner on the "
+            f"{scale!r} scale: a one-row levels CSV with scale {scale}, or smiles:<SMILES> (computed with this "
+            "run's settings, on its scale)")
+
+
+# --------------------------------------------------------------------------- calibration
+
+def _flat(node, prefix: str = "") -> dict:
+    """Nested mappings as ``{"a.b": value}``."""
+    out = {}
+    for key, value in (node or {}).items():
+        path = f"{prefix}.{key}" if prefix else str(key)
+        if isinstance(value, dict):
+            out.update(_flat(value, path))
+        else:
+            out[path] = value
+    return out
+
+
+def _fingerprint_settings(fp: dict) -> dict:
+    """The settings of a calibration fingerprint as ``{"section.key": value}`` (config field names)."""
+    return {**_flat(fp.get("protocol", {})), **_flat({"polymer": fp.get("polymer", {})})}
+
+
+@dataclass(frozen=True)
+class CalibrationDifference:
+    """One way a run's settings differ from a shipped calibration's."""
+
+    field: str  #: a config field (``polymer.n_max``), ``engine_version`` or ``calibration.reference``
+    here: object
+    shipped: object
+
+    @property
+    def is_setting(self) -> bool:
+        """True for a config field the user can set back (not the engine version or the reference data)."""
+        return self.field not in ("engine_version", "calibration.reference")
+
+    def text(self, engine: str = "engine") -> str:
+        """The difference in words, e.g. ``polymer.n_max: 2 here, 4 in the shipped calibration``."""
+        if self.field == "engine_version":
+            return f"{engine} version {self.here} here, {self.shipped} in the shipped calibration"
+        if self.field == "calibration.reference":
+            return (f"calibration.reference: the reference data in {self.here} are not the ones the shipped "
+                    "calibration was fitted on")
+        return f"{self.field}: {_show(self.here)} here, {_show(self.shipped)} in the shipped calibration"
+
+
+def calibration_differences(cfg) -> tuple[Path | None, list[CalibrationDifference]]:
+    """The shipped calibration closest to a run's settings, and how the run differs from it.
+
+    A calibration (``models/<protocol-id>/``) records a fingerprint: the
+    ``structures`` and ``electronic`` settings (the protocol), the ``polymer``
+    settings, the engine version and a hash of the reference data
+    (:func:`screen.calibrate.fingerprint`). The folder of the run's protocol id
+    is compared when there is one, else the folder with the fewest differences.
+
+    Returns
+    -------
+    folder : Path or None
+        The closest calibration folder in ``calibration.models`` (``None``: it holds none).
+    differences : list of CalibrationDifference
+        Empty when the folder matches.
+
+    Examples
+    --------
+    >>> from screen.config import Config
+    >>> from screen.cli_shared import data_path
+    >>> folder, diffs = calibration_differences(Config.of({"polymer": {"n_max": 2}}).with_paths(data_path))
+    >>> folder.name == Config.of({}).protocol_id, [d.text() for d in diffs]
+    (True, ['polymer.n_max: 2 here, 4 in the shipped calibration'])
+    """
+    import json
+
+    from screen.calibrate import fingerprint
+    from screen.schema import defaults
+
+    expected = fingerprint(cfg, cfg["calibration"]["reference"])
+    here = _fingerprint_settings(expected)
+    fallback = _flat({k: v for k, v in defaults().items() if k in ("structures", "electronic", "polymer")})
+    models = Path(cfg["calibration"]["models"])
+    best: tuple | None = None
+    for folder in sorted(models.iterdir()) if models.is_dir() else []:
+        try:
+            found = json.loads((folder / "ip.json").read_text(encoding="utf-8")).get("fingerprint") or {}
+        except (OSError, ValueError):
+            continue
+        if not found:
+            continue
+        shipped = _fingerprint_settings(found)
+        diffs = [CalibrationDifference(key, here.get(key, fallback.get(key)), shipped.get(key, fallback.get(key)))
+                 for key in sorted(set(here) | set(shipped))
+                 if here.get(key, fallback.get(key)) != shipped.get(key, fallback.get(key))]
+        if found.get("engine_version") != expected["engine_version"]:
+            diffs.append(CalibrationDifference("engine_version", expected["engine_version"],
+                                               found.get("engine_version")))
+        if found.get("reference_sha256") != expected["reference_sha256"]:
+            diffs.append(CalibrationDifference("calibration.reference", cfg["calibration"]["reference"], None))
+        rank = (found.get("protocol_id") != expected["protocol_id"], len(diffs))
+        if best is None or rank < best[0]:
+            best = (rank, folder, diffs)
+    return (None, []) if best is None else (best[1], best[2])
+
+
+def reference_count(cfg) -> int:
+    """Distinct reference materials a calibration computes."""
+    from screen.calibration.reference import canonical, read_reference
+
+    sets = read_reference(cfg["calibration"]["reference"])
+    return len({canonical(s) for frame in sets.values() if "smiles" in frame for s in frame["smiles"].dropna()})
+
+
+def fitted_in(out, cfg) -> bool:
+    """True when ``out`` already holds a calibration of this run's settings (fitted by an earlier run there)."""
+    from screen.calibrate import CalibrationError, load_models
+
+    folder = Path(out) / "models" / cfg.protocol_id
+    if not folder.is_dir():
+        return False
+    try:
+        load_models(folder, cfg)
+    except CalibrationError:
+        return False
+    return True
+
+
+def calibration_text(cfg, out=None) -> str | None:
+    """Why no calibration serves a run and what calibrating costs (``None`` when one matches).
+
+    Names every setting that differs from the closest shipped calibration, e.g.
+    ``polymer.n_max: 2 here, 4 in the shipped calibration``.
+    """
+    from screen.calibrate import find_models
+
+    if find_models(cfg) is not None or (out is not None and fitted_in(out, cfg)):
+        return None
+    models = Path(cfg["calibration"]["models"])
+    pid = cfg.protocol_id
+    folder, diffs = calibration_differences(cfg)
+    listed = "; ".join(d.text(cfg["electronic"]["engine"]) for d in diffs)
+    if folder is None:
+        why = f"{models} holds no calibration"
+    elif not diffs:
+        why = f"{folder} has this run's settings but its model files are incomplete or unreadable"
+    elif folder.name == pid:
+        why = f"the shipped calibration of protocol {pid} was fitted with other settings: {listed}"
+    else:
+        why = f"protocol {pid} has no shipped calibration; the closest, {folder.name}, differs: {listed}"
+    return (f"no calibration in {models} matches this run's settings ({why}). Calibrating them computes the "
+            f"{reference_count(cfg)} reference materials first (polymers as oligomer series) — hours on a few "
+            "cores, once per set of settings")
+
+
+def _calibrate_command(cfg, diffs, config_file=None) -> str:
+    """The ``dascreen calibrate`` command line that fits a calibration of the run's settings."""
+    import shlex
+
+    words = ["dascreen calibrate"]
+    if config_file:
+        words.append(f"--config {shlex.quote(str(config_file))}")
+    words += [f"--set {shlex.quote(f'{d.field}={_show(d.here)}')}" for d in diffs if d.is_setting]
+    if any(d.field == "calibration.reference" for d in diffs):
+        words.append(f"--reference {shlex.quote(str(cfg['calibration']['reference']))}")
+    words.append(f"--install {shlex.quote(str(cfg['calibration']['models']))}")
+    return " ".join(words)
+
+
+def check_calibration(cfg, out, config_file=None) -> None:
+    """Refuse a ``dascreen run`` whose settings no calibration serves, unless it opted in to calibrate.
+
+    A run needs calibration models fitted with its very settings (the protocol,
+    the polymer settings, the engine version, the reference data). Without one,
+    the workflow would first compute every reference material (hours) as a side
+    effect of an option; ``dascreen run`` refuses that unless the run opted in
+    with ``calibration.refit=always`` (or the run folder already holds a
+    matching calibration). The message names the settings that differ from the
+    shipped calibration and the three ways on.
+
+    Raises
+    ------
+    ConfigError
+        No calibration matches and ``calibration.refit`` is ``auto`` or ``never`` (exit code 2).
+    """
+    import shlex
+
+    refit = cfg["calibration"]["refit"]
+    if refit == "always":
+        return
+    text = calibration_text(cfg, out if refit == "auto" else None)
+    if text is None:
+        return
+    folder, diffs = calibration_differences(cfg)
+    settings = [d for d in diffs if d.is_setting]
+    ways = []
+    if settings:
+        back = " ".join(f"--set {shlex.quote(f'{d.field}={_show(d.shipped)}')}" for d in settings)
+        ways.append(f"use the shipped calibration: drop {', '.join(d.field for d in settings)} (or {back})")
+    if any(d.field == "engine_version" for d in diffs):
+        shipped = next(d.shipped for d in diffs if d.field == "engine_version")
+        ways.append(f"use the shipped calibration: install {cfg['electronic']['engine']} {shipped}.x")
+    if folder is not None and folder.name == cfg.protocol_id and not settings and \
+            any(d.field == "calibration.reference" for d in diffs):
+        ways.append(f"refit from the stored raw values in seconds: dascreen calibrate --from-raw "
+                    f"{shlex.quote(str(folder))} --reference {shlex.quote(str(cfg['calibration']['reference']))} "
+                    f"--install {shlex.quote(str(cfg['calibration']['models']))}")
+    ways.append(f"calibrate these settings once, then run again: {_calibrate_command(cfg, diffs, config_file)}")
+    ways.append("calibrate within this run: add --set calibration.refit=always")
+    stop = "calibration.refit is 'never'" if refit == "never" else "nothing was computed"
+    raise ConfigError(f"{text}; {stop}. Either\n" + "\n".join(f"  - {w}" for w in ways))
+

@@ -23,6 +23,7 @@ import time
 from dataclasses import asdict
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from screen.config import Config
@@ -31,8 +32,8 @@ from screen.devicepars import device_tests
 from screen.partners import Partner, PartnerError, resolve_partner
 from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, partner_role, rank_candidates)
 
-__all__ = ["write_shortlist", "computed_geometries", "settings_hash", "ranking_folder", "read_ranked_levels",
-           "check_before_computing", "run_rank"]
+__all__ = ["write_shortlist", "shortlist_notice", "longest_oligomers", "computed_geometries", "settings_hash",
+           "ranking_folder", "read_ranked_levels", "check_before_computing", "run_rank"]
 
 
 # --------------------------------------------------------------------------- outputs
@@ -212,29 +213,64 @@ def _embedded(smiles: str):
 
 
 _GEOMETRY_WORDS = {"computed": "computed by the structures stage: the geometry the levels were computed on",
+                   "oligomer": "polymer repeat unit: computed 3-D geometry of its longest oligomer (n = {n}, "
+                               "structure key {key}), the longest chain its chain-limit levels were extrapolated "
+                               "from",
                    "embedded": "no computed geometry found: embedded here with ETKDG and MMFF94, hydrogens added",
-                   "2d": "2-D depiction: no 3-D geometry could be made"}
+                   "2d": "2-D depiction: no 3-D geometry could be made",
+                   "2d_polymer": "polymer repeat unit: 2-D drawing with * at its attachment points (no computed "
+                                 "oligomer geometry was found beside the levels file or in the results store)"}
 
 
-def _shortlist_mol(row: dict, geometries: dict, keys: dict):
-    """The molecule of one shortlist row and where its coordinates come from."""
+def _is_repeat_unit(mol) -> bool:
+    """True for a molecule with attachment points (``*`` atoms): a polymer repeat unit."""
+    return mol is not None and any(a.GetAtomicNum() == 0 for a in mol.GetAtoms())
+
+
+def _shortlist_mol(row: dict, geometries: dict, keys: dict, oligomers: dict):
+    """The molecule of one shortlist row, where its coordinates come from, its key and its oligomer.
+
+    Returns
+    -------
+    tuple
+        ``(mol or None, source, structure key, (n, oligomer key) or None)``;
+        ``source`` is a key of :data:`_GEOMETRY_WORDS`.
+    """
     from rdkit import Chem
     from rdkit.Chem import rdDepictor
 
     key = keys.get(row.get("smiles"), "")
     if key in geometries:
-        return Chem.Mol(geometries[key]), "computed", key
+        return Chem.Mol(geometries[key]), "computed", key, None
+    oligomer = oligomers.get(key)
+    if oligomer is not None and oligomer[1] in geometries:
+        return Chem.Mol(geometries[oligomer[1]]), "oligomer", key, oligomer
     mol = _embedded(row["smiles"])
     if mol is not None:
-        return mol, "embedded", key
+        return mol, "embedded", key, None
     mol = Chem.MolFromSmiles(row["smiles"]) if row["smiles"] else None
     if mol is not None:
         rdDepictor.Compute2DCoords(mol)
-    return mol, "2d", key
+    return mol, "2d_polymer" if _is_repeat_unit(mol) else "2d", key, None
+
+
+def _set_sd_props(mol, row: dict, scale: str, key: str, source: str, oligomer) -> None:
+    """The SD properties of one shortlist record (title: the id cut to 80 characters)."""
+    mol.SetProp("_Name", _sd_text(row["id"])[:80])
+    for prop in _SD_PROPS:
+        mol.SetProp(prop, _sd_text(row.get(prop)))
+    if scale:
+        mol.SetProp("scale", scale)
+    mol.SetProp("structure_key", key)
+    n, okey = oligomer if oligomer is not None else ("", "")
+    mol.SetProp("geometry_source", _GEOMETRY_WORDS[source].format(n=n, key=okey))
+    if oligomer is not None:
+        mol.SetProp("oligomer_n", str(n))
+        mol.SetProp("oligomer_key", okey)
 
 
 def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int, scale: str = "",
-                    geometries: dict | None = None, keys: dict | None = None) -> dict:
+                    geometries: dict | None = None, keys: dict | None = None, oligomers: dict | None = None) -> dict:
     """Write the top passing rows as an SD file with 3-D geometries and hydrogens.
 
     Parameters
@@ -242,7 +278,9 @@ def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int, scale:
     ranking : pandas.DataFrame
         From :func:`rank_candidates` (best first).
     target : path-like
-        SD file, written atomically (also when empty).
+        SD file, written atomically; not written when no record would be in
+        it (no passing row, or none with a SMILES), and an earlier file at
+        ``target`` is then removed (it belonged to another ranking).
     size : int
         Number of passing rows to write.
     scale : str
@@ -251,51 +289,130 @@ def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int, scale:
         Computed geometries by structure key (:func:`computed_geometries`).
     keys : dict, optional
         Structure key by SMILES of the ranked rows.
+    oligomers : dict, optional
+        ``(n, structure key)`` of the longest computed oligomer by the
+        structure key of a polymer repeat unit (:func:`longest_oligomers`).
 
     Returns
     -------
     dict
         ``written`` (records), ``skipped`` (ids of shortlisted rows whose
-        SMILES is missing or does not parse) and ``geometry`` (records per
-        source: ``computed``, ``embedded``, ``2d``).
+        SMILES is missing or does not parse), ``shortlisted`` (passing rows
+        considered) and ``geometry`` (records per source: ``computed``,
+        ``oligomer``, ``embedded``, ``2d``).
 
     Notes
     -----
     Coordinates are the computed geometry of the structure key (the molecule the
-    levels were computed on, side chains as computed), else an ETKDG/MMFF94
-    embedding made here, else a 2-D depiction; the ``geometry_source`` property
-    says which.  Levels, offsets and device estimates are SD properties.  The
-    title line is the id with line breaks replaced by spaces, cut to 80
-    characters (the V2000 title-line width, from memory of the CTfile format);
-    the full id is the ``id`` property.
+    levels were computed on, side chains as computed); for a polymer repeat unit
+    the computed geometry of its longest oligomer (SD properties ``oligomer_n``,
+    ``oligomer_key``); else an ETKDG/MMFF94 embedding made here, else a 2-D
+    depiction (a repeat unit's with ``*`` atoms); the ``geometry_source``
+    property says which.  Levels, offsets and device estimates are SD
+    properties.  The title line is the id with line breaks replaced by spaces,
+    cut to 80 characters (the V2000 title-line width, from memory of the CTfile
+    format); the full id is the ``id`` property.
     """
     from rdkit import Chem, rdBase
 
     from screen.io import atomic_path
 
-    geometries, keys = geometries or {}, keys or {}
+    geometries, keys, oligomers = geometries or {}, keys or {}, oligomers or {}
     top = ranking[ranking["passes"].astype(bool)].head(int(size))
-    written, skipped, sources = 0, [], {"computed": 0, "embedded": 0, "2d": 0}
-    with atomic_path(target) as tmp:
-        writer = Chem.SDWriter(str(tmp))
-        with rdBase.BlockLogs():
-            for row in top.to_dict("records"):
-                mol, source, key = _shortlist_mol(row, geometries, keys)
-                if mol is None:
-                    skipped.append(row["id"])
-                    continue
-                mol.SetProp("_Name", _sd_text(row["id"])[:80])
-                for prop in _SD_PROPS:
-                    mol.SetProp(prop, _sd_text(row.get(prop)))
-                if scale:
-                    mol.SetProp("scale", scale)
-                mol.SetProp("structure_key", key)
-                mol.SetProp("geometry_source", _GEOMETRY_WORDS[source])
+    skipped, sources, records = [], {"computed": 0, "oligomer": 0, "embedded": 0, "2d": 0}, []
+    with rdBase.BlockLogs():
+        for row in top.to_dict("records"):
+            mol, source, key, oligomer = _shortlist_mol(row, geometries, keys, oligomers)
+            if mol is None:
+                skipped.append(row["id"])
+                continue
+            _set_sd_props(mol, row, scale, key, source, oligomer)
+            records.append(mol)
+            sources[source.removesuffix("_polymer")] += 1
+    if records:
+        with atomic_path(target) as tmp:
+            writer = Chem.SDWriter(str(tmp))
+            for mol in records:
                 writer.write(mol)
-                written += 1
-                sources[source] += 1
-        writer.close()
-    return {"written": written, "skipped": skipped, "geometry": sources}
+            writer.close()
+    else:
+        Path(target).unlink(missing_ok=True)
+    return {"written": len(records), "skipped": skipped, "shortlisted": int(len(top)), "geometry": sources}
+
+
+def shortlist_notice(short: dict, levels_path) -> str:
+    """Why no ``shortlist.sdf`` was written ("" when it was).
+
+    Examples
+    --------
+    >>> shortlist_notice({"written": 0, "shortlisted": 0, "skipped": []}, "L.csv")
+    'no shortlist.sdf written: no candidate passes every check'
+    >>> shortlist_notice({"written": 0, "shortlisted": 2, "skipped": ["a", "b"]}, "L.csv")  # doctest: +ELLIPSIS
+    'no shortlist.sdf written: none of the 2 shortlisted rows (a, b) has a readable SMILES in L.csv; ...'
+    >>> shortlist_notice({"written": 0, "shortlisted": 1, "skipped": ["a"]}, "L.csv")  # doctest: +ELLIPSIS
+    'no shortlist.sdf written: the shortlisted row (a) has no readable SMILES in L.csv; ...'
+    """
+    if short["written"]:
+        return ""
+    if not short["shortlisted"]:
+        return "no shortlist.sdf written: no candidate passes every check"
+    ids = ", ".join(map(str, short["skipped"][:5])) + (", …" if len(short["skipped"]) > 5 else "")
+    rows = (f"none of the {short['shortlisted']} shortlisted rows ({ids}) has a" if short["shortlisted"] > 1
+            else f"the shortlisted row ({ids}) has no")
+    return (f"no shortlist.sdf written: {rows} readable SMILES in {levels_path}; add a smiles column to get "
+            "the structures")
+
+
+def _oligomer_table(levels_path: Path, meta_in: dict | None) -> Path | None:
+    """The per-n table of the polymers (``<levels>.oligomers.csv``): beside the levels file, else as recorded."""
+    beside = levels_path.with_name(levels_path.name.removesuffix(".csv") + ".oligomers.csv")
+    recorded = (meta_in or {}).get("oligomers")
+    for cand in [beside] + ([Path(recorded), levels_path.parent / recorded] if recorded else []):
+        if cand.is_file():
+            return cand
+    return None
+
+
+def longest_oligomers(levels: pd.DataFrame, levels_path, meta_in: dict | None = None) -> dict:
+    """The longest computed oligomer of each polymer row: ``{polymer key: (n, oligomer structure key)}``.
+
+    Read from the levels file's per-n table (``levels.oligomers.csv``,
+    ``docs/contracts.md`` §4): the largest finite n whose rows are all ``ok``.
+
+    Parameters
+    ----------
+    levels : pandas.DataFrame
+        The levels being ranked (``representation`` and ``key`` select the polymers).
+    levels_path : path-like
+        The levels file (the table is beside it, or where its sidecar says).
+    meta_in : dict, optional
+        The levels sidecar (its ``oligomers`` entry).
+
+    Returns
+    -------
+    dict
+        Empty without polymers or without the table.
+    """
+    if "representation" not in levels or "key" not in levels:
+        return {}
+    wanted = set(levels.loc[levels["representation"].astype(str).eq("polymer"), "key"].dropna().astype(str))
+    path = _oligomer_table(Path(levels_path), meta_in) if wanted else None
+    if path is None:
+        return {}
+    try:
+        table = pd.read_csv(path, dtype={"polymer_key": str, "key": str, "status": str}, keep_default_na=False,
+                            na_values=[""])
+        n = pd.to_numeric(table["n"], errors="coerce")
+        table = table[table["polymer_key"].isin(wanted) & np.isfinite(n) & table["key"].notna()].assign(n=n)
+        done = table.groupby(["polymer_key", "n", "key"])["status"].agg(lambda s: bool(s.eq("ok").all()))
+    except (OSError, ValueError, KeyError, pd.errors.ParserError) as exc:
+        print(f"dascreen rank: {path} not read ({exc}); polymers get no oligomer geometry", file=sys.stderr)
+        return {}
+    out = {}
+    for (polymer, n, key), ok in sorted(done.items()):
+        if ok:
+            out[polymer] = (int(n), key)  # sorted by n: the longest computed one stays
+    return out
 
 
 def _levels_meta(levels_path: Path) -> dict | None:
@@ -396,10 +513,9 @@ def _partner(partner_spec: str, levels: pd.DataFrame, levels_path: Path, meta_in
 
 
 def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, model: DeviceModel,
-               options: RankOptions, short: dict) -> dict:
-    """The content of ``ranking.meta.json``."""
+               options: RankOptions, short: dict, levels_sha: str) -> dict:
+    """The content of ``ranking.meta.json`` (``levels_sha``: the levels file's SHA-256)."""
     from screen import __version__
-    from screen.provenance import sha256_file
 
     flags = pd.Series([f for s in ranking["flags"] for f in str(s).split(";") if f]).value_counts()
     status = (levels["status"].fillna("").astype(str).str.strip().str.lower() if "status" in levels
@@ -425,7 +541,7 @@ def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, mo
                     "absorber": model.absorber, "model": model.model},
         "sign_convention": "delta_lumo_ev = LUMO_donor - LUMO_acceptor; delta_homo_ev = HOMO_donor - "
                            "HOMO_acceptor (both > 0 for a type-II heterojunction)",
-        "levels": {"path": str(levels_path.resolve()), "sha256": sha256_file(levels_path),
+        "levels": {"path": str(levels_path.resolve()), "sha256": levels_sha,
                    "rows": int(len(levels)),
                    "sidecar": f"{levels_path.name}.meta.json" if meta_in is not None else None},
         "levels_meta": levels_meta or None,
@@ -436,7 +552,9 @@ def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, mo
                    "shortlist": short["written"], "shortlist_skipped_no_smiles": short["skipped"],
                    "shortlist_geometry": short["geometry"]},
         "columns": RANKING_COLUMNS + EXTRA_COLUMNS,
-        "outputs": {"ranking": "ranking.csv", "shortlist": "shortlist.sdf", "meta": "ranking.meta.json"},
+        "outputs": {"ranking": "ranking.csv", "shortlist": "shortlist.sdf" if short["written"] else None,
+                    "meta": "ranking.meta.json"},
+        "shortlist_note": shortlist_notice(short, levels_path.name) or None,
     }
 
 
@@ -448,31 +566,94 @@ def _structure_keys(levels: pd.DataFrame) -> dict:
     return dict(zip(rows["smiles"].astype(str), rows["key"].astype(str)))
 
 
-def _shortlist_keys(ranking: pd.DataFrame, keys: dict, options: RankOptions) -> list[str]:
+def _shortlist_keys(ranking: pd.DataFrame, keys: dict, options: RankOptions, oligomers: dict) -> list[str]:
+    """Structure keys of the shortlisted rows, and of the longest oligomer of each polymer among them."""
     top = ranking[ranking["passes"].astype(bool)].head(int(options.shortlist_size))
-    return [keys.get(s, "") for s in top["smiles"]]
+    own = [keys.get(s, "") for s in top["smiles"]]
+    return own + [oligomers[k][1] for k in own if k in oligomers]
 
 
-def _check_target(target: Path, partner: Partner, levels_path: Path) -> None:
-    """Refuse a folder that holds another partner's ranking; say so when an older ranking is replaced."""
+def _check_target(target: Path, partner: Partner, levels_path: Path, levels_sha: str) -> bool:
+    """Refuse a folder that holds another partner's ranking; say so when a ranking of other levels is replaced.
+
+    Parameters
+    ----------
+    target : pathlib.Path
+        The ranking folder.
+    partner : screen.partners.Partner
+        The partner about to be ranked.
+    levels_path : pathlib.Path
+        The levels file about to be ranked.
+    levels_sha : str
+        Its SHA-256 (hex), compared with the one the folder's ``ranking.meta.json`` recorded.
+
+    Returns
+    -------
+    bool
+        True when the folder held a ranking whose levels had other content
+        (another file's, or this file before it was edited; unknown counts as
+        other): its numbers change, so a partner matrix that joins it must be
+        refreshed.  False for a new folder or the same content.
+
+    Raises
+    ------
+    ConfigError
+        The folder holds the ranking against another partner (never overwritten).
+    """
     from screen.errors import ConfigError
     from screen.io import read_json
 
     meta_path = target / "ranking.meta.json"
     if not meta_path.is_file():
-        return
+        return False
     try:
         old = read_json(meta_path)
     except ValueError:
         old = {}
-    before = (old.get("partner") or {}) if isinstance(old, dict) else {}
+    old = old if isinstance(old, dict) else {}
+    before = old.get("partner") or {}
     if (before.get("id"), before.get("kind")) != (partner.id, partner.kind):
         raise ConfigError(f"{target} holds the ranking against partner {before.get('id')!r}, not {partner.id!r}; "
                           "move it away or rank into another --out (a ranking is never overwritten by another "
                           "partner's)")
-    old_levels = (old.get("levels") or {}).get("path")
-    if old_levels and old_levels != str(levels_path.resolve()):
-        print(f"dascreen rank: replacing the ranking in {target} (it ranked {old_levels})", file=sys.stderr)
+    message, changed = _levels_change(old.get("levels") or {}, str(levels_path.resolve()), levels_sha)
+    if message:
+        print(f"dascreen rank: replacing the ranking in {target}: {message}", file=sys.stderr)
+    return changed
+
+
+def _levels_change(old: dict, path: str, sha: str) -> tuple[str, bool]:
+    """How the levels of a folder's earlier ranking differ from those about to be ranked.
+
+    Parameters
+    ----------
+    old : dict
+        ``levels`` of the earlier ``ranking.meta.json`` (``path``, ``sha256``).
+    path, sha : str
+        Resolved path and SHA-256 of the levels file about to be ranked.
+
+    Returns
+    -------
+    tuple of (str, bool)
+        The notice ("" when path and content are the same) and whether the
+        content differs (so the numbers may change).
+
+    Examples
+    --------
+    >>> _levels_change({"path": "/r/L.csv", "sha256": "ab" * 32}, "/r/L.csv", "ab" * 32)
+    ('', False)
+    >>> _levels_change({"path": "/r/L.csv", "sha256": "ab" * 32}, "/r/L.csv", "cd" * 32)
+    ('/r/L.csv changed since it was ranked (sha256 abababab… → cdcdcdcd…)', True)
+    >>> _levels_change({"path": "/r/old.csv", "sha256": "ab" * 32}, "/r/L.csv", "ab" * 32)
+    ('it ranked /r/old.csv (same content)', False)
+    """
+    old_path, old_sha = old.get("path"), old.get("sha256")
+    if old_sha == sha:
+        return ("" if old_path == path else f"it ranked {old_path} (same content)"), False
+    if old_path == path:
+        was = f"sha256 {old_sha[:8]}… → {sha[:8]}…" if old_sha else f"now sha256 {sha[:8]}…"
+        return f"{path} changed since it was ranked ({was})", True
+    return f"it ranked {old_path or 'a levels file not recorded'}, whose content differs from {path}", True
 
 
 def read_ranked_levels(levels_path) -> pd.DataFrame:
@@ -533,7 +714,7 @@ def check_before_computing(levels_path, partner_specs, config=None) -> None:
 
 
 def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_levels=None,
-             report: bool = True, timings: dict | None = None) -> Path:
+             report: bool = True, timings: dict | None = None, replaced: list | None = None) -> Path:
     """Rank a levels file against a partner and write the ranking folder.
 
     Parameters
@@ -561,12 +742,17 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
         (:func:`rank_candidates`), ``export_s`` (``ranking.csv``, geometries,
         ``shortlist.sdf``, ``ranking.meta.json``) and ``report_s`` (0 without
         the report).
+    replaced : list, optional
+        When the folder's ranking of other levels is replaced, its name is appended here and the partner
+        matrices that join it are left to the caller (``dascreen rank`` with several partners refreshes them
+        once, after ranking every partner); None refreshes them at once.
 
     Returns
     -------
     pathlib.Path
         Path of ``ranking.csv``.  Beside it: ``shortlist.sdf`` (top
-        ``rank.shortlist_size`` passing rows), ``ranking.meta.json`` (partner,
+        ``rank.shortlist_size`` passing rows; not written, with a notice on
+        stderr, when none of them has a SMILES or none passes), ``ranking.meta.json`` (partner,
         device model, filters, levels provenance, counts) and, with the report
         module, ``report.html`` and ``ranking.safe.csv``.
 
@@ -584,12 +770,19 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     -----
     Only levels files are read: no quantum-chemistry engine is imported.
 
+    A folder that holds this partner's ranking of other levels (another
+    file, or this file before an edit: compared by SHA-256) is replaced with a
+    notice on stderr, and every partner matrix that joins it is rebuilt
+    (:func:`screen.matrix.refresh_matrices`; columns still ranked from the
+    earlier levels are marked stale there).
+
     References
     ----------
     .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789.
        :doi:`10.1002/adma.200501717`
     """
     from screen.io import write_csv, write_json
+    from screen.provenance import sha256_file
 
     clock = [time.perf_counter()]
 
@@ -612,14 +805,18 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     lap("rank_s")
 
     target = out_dir / "rankings" / ranking_folder(partner.slug, cfg)
-    _check_target(target, partner, levels_path)
+    levels_sha = sha256_file(levels_path)
+    was_replaced = _check_target(target, partner, levels_path, levels_sha)
     csv_text = write_csv(ranking, target / "ranking.csv")
     csv_text = csv_text if os.linesep == "\n" else None  # the safe copy's text has "\n" line ends
     keys = _structure_keys(levels)
-    geometries = computed_geometries(_shortlist_keys(ranking, keys, options), levels_path, meta_in, cfg)
+    oligomers = longest_oligomers(levels, levels_path, meta_in)
+    geometries = computed_geometries(_shortlist_keys(ranking, keys, options, oligomers), levels_path, meta_in, cfg)
     short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size, partner.scale, geometries,
-                            keys)
-    meta = _rank_meta(ranking, levels, levels_path, meta_in, partner, model, options, short)
+                            keys, oligomers)
+    if not short["written"]:
+        print(f"dascreen rank: {shortlist_notice(short, levels_path)}", file=sys.stderr)
+    meta = _rank_meta(ranking, levels, levels_path, meta_in, partner, model, options, short, levels_sha)
     meta["settings_hash"] = settings_hash(cfg)
     write_json(meta, target / "ranking.meta.json")
     lap("export_s")
@@ -628,4 +825,15 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
         if status != "written":
             print(f"dascreen rank: report {status}", file=sys.stderr)
     lap("report_s")
+    if was_replaced and replaced is not None:  # the caller refreshes the matrices once all partners are ranked
+        replaced.append(target.name)
+    elif was_replaced:
+        _refresh_matrices(out_dir, target.name)
     return target / "ranking.csv"
+
+
+def _refresh_matrices(out_dir: Path, folder: str) -> None:
+    """Rebuild the partner matrices that join a ranking folder whose levels changed (:mod:`screen.matrix`)."""
+    from screen.matrix import refresh_matrices
+
+    refresh_matrices(out_dir, folder)

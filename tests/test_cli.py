@@ -92,6 +92,59 @@ def test_status_of_a_running_and_a_stopped_run(tmp_path, capsys):
     assert rc == 0 and out.startswith("dascreen: running: 1/4 molecules computed (25%)") and "ETA" in out, out
 
 
+def test_status_of_a_folder_that_does_not_exist_says_so(tmp_path, capsys):
+    rc, _, err = _cli(capsys, "status", "--out", str(tmp_path / "nonexistent"))
+    assert rc == 2 and f"--out {tmp_path / 'nonexistent'}: no such folder" in err
+    assert "configuration error" not in err and "prepared batch" not in err
+    rc, _, err = _cli(capsys, "status", "--out", str(tmp_path))
+    assert rc == 2 and "holds no prepared batch" in err
+
+
+# --------------------------------------------------------------------------- help texts and arguments
+
+def _help(capsys, *args):
+    with pytest.raises(SystemExit) as stop:
+        main([*args, "--help"])
+    assert stop.value.code == 0
+    return " ".join(capsys.readouterr().out.split())
+
+
+def test_help_texts_name_the_defaults_the_commands_use(capsys, monkeypatch):
+    from screen.schema import defaults
+
+    top = _help(capsys)
+    assert "Scharber-model" not in top and f"default {defaults()['device']['model']}" in top
+    run = _help(capsys, "run")
+    assert f"the config's partner, {defaults()['partner']})" in run and "scharber-reference-acceptor" not in run
+    assert "output folder (default: ./results)" in run
+    rank = _help(capsys, "rank")
+    assert f"else {defaults()['partner']})" in rank and "(default 10)" in rank
+    # the defaults come from the schema when the help is printed, not from text in the CLI
+    changed = defaults()
+    changed["partner"] = "c70"
+    monkeypatch.setattr("screen.schema.defaults", lambda: changed)
+    assert "the config's partner, c70)" in _help(capsys, "run")
+
+
+def test_an_unknown_option_gets_the_sub_commands_usage(capsys):
+    with pytest.raises(SystemExit) as stop:
+        main(["rank", "--bogus"])
+    err = capsys.readouterr().err
+    assert stop.value.code == 2 and err.startswith("usage: dascreen rank") and "unrecognized arguments: --bogus" in err
+    with pytest.raises(SystemExit):
+        main(["--bogus", "rank"])
+    assert capsys.readouterr().err.startswith("usage: dascreen [-h]")
+
+
+def test_config_lists_the_output_folder_the_command_writes_to(capsys):
+    rc, out, _ = _cli(capsys, "config")
+    block = out.split("\n  out\n", 1)[1].split("\n  partner\n", 1)[0]
+    assert rc == 0 and "default: ./results (--out); snakemake without the dascreen command: results/demo" in block
+    assert "default: none (the CANDIDATES argument of dascreen run)" in out
+    rc, out, _ = _cli(capsys, "config", "--yaml")
+    assert out.startswith("# candidates and out serve a snakemake run") and "--out (default ./results)" in out
+
+
 # --------------------------------------------------------------------------- quiet workflow, progress
 
 class _Tty(io.StringIO):
@@ -232,16 +285,28 @@ def test_an_empty_ranking_says_why_instead_of_naming_no_partner(tmp_path, capsys
 
 
 def test_a_protocol_without_calibration_is_announced_before_the_run(tmp_path):
+    from screen.calibrate import fingerprint
     from screen.cli import calibration_notice
+    from screen.cli_shared import data_path
     from screen.config import Config
 
-    assert calibration_notice(Config.of({}), tmp_path) is None  # the default protocol is shipped
-    other = Config.of({"electronic": {"method": "IPEA1-xTB"}})
+    default = Config.of({}).with_paths(data_path)
+    assert calibration_notice(default, tmp_path) is None  # the default protocol is shipped
+    other = Config.of({"electronic": {"method": "IPEA1-xTB"}}).with_paths(data_path)
     text = calibration_notice(other, tmp_path)
     assert other.protocol_id in text and "reference materials" in text and "hours" in text
-    assert Config.of({}).protocol_id in text  # what is shipped instead
-    (tmp_path / "models" / other.protocol_id).mkdir(parents=True)  # fitted by an earlier run into this folder
+    assert default.protocol_id in text  # the closest shipped calibration
+    assert "electronic.method: IPEA1-xTB here, GFN2-xTB in the shipped calibration" in text
+    # fitted by an earlier run into this folder: model files whose fingerprint is this run's
+    fitted = tmp_path / "models" / other.protocol_id
+    fitted.mkdir(parents=True)
+    fp = fingerprint(other, other["calibration"]["reference"])
+    for model in (data_path("models") / default.protocol_id).glob("*.json"):
+        (fitted / model.name).write_text(json.dumps({**json.loads(model.read_text()), "fingerprint": fp}))
     assert calibration_notice(other, tmp_path) is None
+    # an earlier run's calibration of other polymer settings is no calibration of this run's
+    assert "polymer.n_max: 2 here, 4 in the shipped calibration" in calibration_notice(
+        other.with_overrides({"polymer": {"n_max": 2}}), tmp_path)
 
 
 # --------------------------------------------------------------------------- refused before any work (exit 2)

@@ -102,3 +102,11 @@ def test_semicolon_separated_levels_file_is_named(tmp_path):
     f.write_text("id;homo_ev;lumo_ev;scale\nm1;-5,3;-3,2;film\n")
     with pytest.raises(InputError, match=r"levels\.csv: the file seems to be separated by ';'.*comma-separated CSV"):
         read_levels(f)
+
+
+def test_equal_homo_and_lumo_are_called_equal_not_swapped():
+    with pytest.raises(InputError) as err:
+        check_levels(_frame(homo_ev=-5.0, lumo_ev=-5.0), "cv.csv")
+    msg = str(err.value)
+    assert "column homo_ev = -5: HOMO and LUMO are equal (-5)" in msg and "zero transport gap" in msg
+    assert "swapped" not in msg

@@ -108,3 +108,78 @@ def test_rank_with_several_partners_writes_rankings_matrix_and_overview(tmp_path
     assert meta["device_tests"]["computed_levels"] is None and meta["device_tests"]["film_levels"]["n"] > 0
     page = (matrix_dir / "overview.html").read_text()
     assert all(f'href="../{p["folder"]}/report.html"' in page for p in meta["partners"])
+
+
+def _matrix_cells(out, partner):
+    """The matrix cells of one partner by id, and that partner's own viable estimates."""
+    (matrix_dir,) = (out / "rankings").glob("matrix--*")
+    cells = pd.read_csv(matrix_dir / "matrix.csv").set_index("id")[partner]
+    (folder,) = (out / "rankings").glob(f"{partner}--*")
+    ranking = pd.read_csv(folder / "ranking.csv").set_index("id")
+    own = ranking["pce_pct"].where(ranking["passes"].astype(bool) & ranking["viable"].astype(bool))
+    return matrix_dir, cells, own.reindex(cells.index)
+
+
+def test_re_ranking_one_partner_of_changed_levels_rebuilds_the_matrix_and_marks_the_rest_stale(tmp_path, capsys):
+    levels = tmp_path / "lv.csv"
+    levels.write_text(LEVELS, encoding="utf-8")
+    out = tmp_path / "out"
+    assert main(["rank", "--levels", str(levels), "--out", str(out), "--partner", "y6,c60"]) == 0
+    _, before, _ = _matrix_cells(out, "y6")
+    levels.write_text(LEVELS.replace("-5.40,-3.90", "-5.80,-3.90"), encoding="utf-8")  # KF-D01: HOMO below y6's
+    capsys.readouterr()
+    assert main(["rank", "--levels", str(levels), "--out", str(out), "--partner", "y6"]) == 0
+    err = capsys.readouterr().err
+    matrix_dir, cells, own = _matrix_cells(out, "y6")
+    assert not math.isnan(before["KF-D01"]) and math.isnan(cells["KF-D01"])  # the new ranking, not the old one
+    pd.testing.assert_series_equal(cells, own, check_names=False)
+    assert f"{levels.resolve()} changed since it was ranked" in err  # docs/contracts.md §5: said on stderr
+    assert f"partner matrix {matrix_dir} rebuilt" in err and "the c60 column was ranked from an earlier version of" in err
+    meta = json.loads((matrix_dir / "matrix.meta.json").read_text())
+    assert meta["stale"]["partners"] == ["c60"] and meta["stale"]["current"]["partner"] == "y6"
+    assert "--partner y6 --partner c60" in meta["stale"]["refresh"]
+    page = (matrix_dir / "overview.html").read_text()
+    assert 'id="stale"' in page and page.count("stale: earlier levels") == 1
+    # ranking every partner again from the same levels brings the whole matrix up to date
+    assert main(["rank", "--levels", str(levels), "--out", str(out), "--partner", "y6,c60"]) == 0
+    err = capsys.readouterr().err  # the matrix of this very set is written once, after both partners: no stale line
+    assert "changed since it was ranked" in err and "stale" not in err
+    meta = json.loads((matrix_dir / "matrix.meta.json").read_text())
+    assert meta["stale"] is None and 'id="stale"' not in (matrix_dir / "overview.html").read_text()
+
+
+def _y6_c60_matrix(tmp_path):
+    """Levels file, output folder and matrix folder of a y6 + c60 ranking of :data:`LEVELS`."""
+    levels = tmp_path / "lv.csv"
+    levels.write_text(LEVELS, encoding="utf-8")
+    out = tmp_path / "out"
+    assert main(["rank", "--levels", str(levels), "--out", str(out), "--partner", "y6,c60"]) == 0
+    (matrix_dir,) = (out / "rankings").glob("matrix--*")
+    return levels, out, matrix_dir
+
+
+def test_re_ranking_the_same_levels_leaves_the_matrix_alone(tmp_path, capsys):
+    levels, out, matrix_dir = _y6_c60_matrix(tmp_path)
+    written = (matrix_dir / "matrix.meta.json").stat().st_mtime_ns
+    capsys.readouterr()
+    assert main(["rank", "--levels", str(levels), "--out", str(out), "--partner", "c60"]) == 0
+    err = capsys.readouterr().err
+    assert "replacing" not in err and "partner matrix" not in err
+    assert (matrix_dir / "matrix.meta.json").stat().st_mtime_ns == written
+
+
+def test_a_matrix_whose_other_ranking_is_gone_is_marked_stale_not_rebuilt(tmp_path, capsys):
+    import shutil
+
+    levels, out, matrix_dir = _y6_c60_matrix(tmp_path)
+    before = (matrix_dir / "matrix.csv").read_bytes()
+    (c60,) = (out / "rankings").glob("c60--*")
+    shutil.rmtree(c60)
+    levels.write_text(LEVELS.replace("-5.40,-3.90", "-5.80,-3.90"), encoding="utf-8")
+    capsys.readouterr()
+    assert main(["rank", "--levels", str(levels), "--out", str(out), "--partner", "y6"]) == 0
+    err = capsys.readouterr().err
+    assert f"{c60.name} is gone" in err and "could not be rebuilt" in err
+    assert (matrix_dir / "matrix.csv").read_bytes() == before  # nothing to rebuild it from: kept, and said so
+    meta = json.loads((matrix_dir / "matrix.meta.json").read_text())
+    assert meta["stale"]["partners"] == ["y6", "c60"] and 'id="stale"' in (matrix_dir / "overview.html").read_text()

@@ -161,3 +161,66 @@ def test_a_real_process_prints_one_line_and_no_traceback(tmp_path):
                           capture_output=True, text=True, timeout=300)
     assert proc.returncode == 2 and proc.stderr.strip().count("\n") == 0, proc.stderr
     assert "Traceback" not in proc.stderr
+
+
+# --------------------------------------------------------------------------- energy scales and calibration
+
+@pytest.fixture()
+def no_workflow(monkeypatch):
+    """A refusal must come before the workflow starts: starting it fails the test."""
+    import screen.cli
+
+    monkeypatch.setattr(screen.cli, "run_workflow", lambda *a, **k: pytest.fail("the workflow was started"))
+
+
+def test_gas_levels_against_a_film_partner_are_refused_before_any_work(capsys, tmp_path, good, no_workflow):
+    # every built-in partner is on the film scale (screen/data/partners.csv); y6 is the default partner
+    err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--set", "levels.scale=gas",
+                   message="partner 'y6' (built-in library) is on the 'film' scale")
+    assert "'gas' scale (levels.scale=gas)" in err and "drop levels.scale=gas" in err and "smiles:" in err
+    _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--set", "levels.scale=gas",
+             "--partner", "c60", message="partner 'c60' (built-in library) is on the 'film' scale")
+    film = tmp_path / "film.csv"
+    film.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale,role\nmine,-6.0,-4.0,1.8,film,acceptor\n")
+    _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--set", "levels.scale=gas",
+             "--partner", str(film), message=f"partner 'mine' (file {film}) is on the 'film' scale")
+    assert not (tmp_path / "o").exists()
+
+
+def test_partners_on_the_runs_scale_pass_the_scale_check(tmp_path):
+    from screen.preflight import check_partner_scales
+
+    gas = tmp_path / "gas.csv"
+    gas.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale,role\nmine,-7.6,-2.7,2.2,gas,acceptor\n")
+    check_partner_scales([str(gas), "smiles:c1ccsc1", "id:A"], "gas")  # smiles:/id: are computed on the run's scale
+    check_partner_scales(["y6", "c60"], "film")
+
+
+def test_polymer_settings_without_calibration_are_refused_naming_the_difference(capsys, tmp_path, good,
+                                                                                no_workflow):
+    """The shipped calibration was fitted with polymer.n_max 4 (its fingerprint); 2 would start hours of
+    reference computation as a side effect, so the run stops and says which setting differs and the ways on."""
+    err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--set", "polymer.n_max=2",
+                   message="polymer.n_max: 2 here, 4 in the shipped calibration")
+    assert "nothing was computed" in err and "reference materials" in err
+    assert "--set polymer.n_max=4" in err  # back to the shipped calibration
+    assert "dascreen calibrate --set polymer.n_max=2 --install" in err  # calibrate once
+    assert "--set calibration.refit=always" in err  # or within this run
+    assert not (tmp_path / "o").exists()
+    err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--set", "electronic.method=IPEA1-xTB",
+                   message="has no shipped calibration; the closest")
+    assert "electronic.method: IPEA1-xTB here, GFN2-xTB in the shipped calibration" in err
+    _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--set", "polymer.n_max=2",
+             "--set", "calibration.refit=never", message="calibration.refit is 'never'")
+
+
+def test_opting_in_calibrates_within_the_run_and_says_what_it_costs(capsys, tmp_path, good, monkeypatch):
+    import screen.cli
+
+    calls = []
+    monkeypatch.setattr(screen.cli, "run_workflow", lambda cfg, out, *a, **k: calls.append(cfg) or 0)
+    rc, _, err = _run(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--set", "polymer.n_max=2",
+                      "--set", "calibration.refit=always", "--dry-run")
+    assert rc == 0 and len(calls) == 1 and calls[0]["polymer"]["n_max"] == 2
+    assert "polymer.n_max: 2 here, 4 in the shipped calibration" in err and "hours" in err
+    assert "This run does that first" in err

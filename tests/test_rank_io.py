@@ -6,6 +6,7 @@ well-known aromatics used only as structures.
 
 from __future__ import annotations
 
+import json
 import os
 
 import numpy as np
@@ -142,3 +143,100 @@ def test_status_tables_spare_reading_shards_that_hold_none_of_the_keys(tmp_path)
     # a table older than its SD file rules out nothing (written before a crash, or copied in another order)
     os.utime(folder / "shard-001.csv", ns=(1, 1))
     assert sorted(computed_geometries(["mkeya", "mkeyb"], tmp_path / "levels.csv")) == ["mkeya", "mkeyb"]
+
+
+def test_re_ranking_a_changed_levels_file_says_so(tmp_path, capsys):
+    levels = _levels_file(tmp_path / "levels.csv", ["syn-a", "syn-b", "syn-c"])
+    path = run_rank(levels, REF, tmp_path / "out", PUBLISHED_CFG, report=False)
+    run_rank(levels, REF, tmp_path / "out", PUBLISHED_CFG, report=False)  # same file, same content: nothing to say
+    assert "replacing" not in capsys.readouterr().err
+    first = json.loads((path.parent / "ranking.meta.json").read_text())["levels"]["sha256"]
+    frame = pd.read_csv(levels)
+    frame.loc[0, "homo_ev"] = -5.6  # the same path, other content
+    frame.to_csv(levels, index=False)
+    run_rank(levels, REF, tmp_path / "out", PUBLISHED_CFG, report=False)
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and f"replacing the ranking in {path.parent}" in err
+    assert f"{levels.resolve()} changed since it was ranked (sha256 {first[:8]}" in err
+    assert json.loads((path.parent / "ranking.meta.json").read_text())["levels"]["sha256"] != first
+
+
+def test_levels_without_smiles_give_no_empty_shortlist_file(tmp_path, capsys):
+    levels = _levels_file(tmp_path / "levels.csv", ["syn-a", "syn-b", "syn-c"])
+    path = run_rank(levels, REF, tmp_path / "out", PUBLISHED_CFG)
+    assert (path.parent / "shortlist.sdf").is_file()  # written while the rows had SMILES
+    pd.read_csv(levels).drop(columns="smiles").to_csv(levels, index=False)
+    capsys.readouterr()
+    run_rank(levels, REF, tmp_path / "out", PUBLISHED_CFG)
+    err = capsys.readouterr().err
+    assert not (path.parent / "shortlist.sdf").exists()  # neither empty nor the earlier ranking's
+    notice = [line for line in err.splitlines() if "shortlist.sdf" in line]
+    assert len(notice) == 1 and "none of the 3 shortlisted rows (" in notice[0] and "has a readable SMILES" in notice[0]
+    meta = json.loads((path.parent / "ranking.meta.json").read_text())
+    assert meta["counts"]["shortlist"] == 0 and meta["outputs"]["shortlist"] is None
+    assert sorted(meta["counts"]["shortlist_skipped_no_smiles"]) == ["syn-a", "syn-b", "syn-c"]
+    page = (path.parent / "report.html").read_text(encoding="utf-8")
+    assert 'href="shortlist.sdf"' not in page and "no shortlist.sdf written" in page  # no link to a missing file
+
+
+#: a bithiophene-diyl repeat unit and its capped oligomers (n = 1, 2, 3); made-up keys
+_POLYMER = "*c1ccc(-c2ccc(*)s2)s1"
+_OLIGOMERS = [(1, "moligo1", "c1csc(-c2cccs2)c1"), (2, "moligo2", "c1csc(-c2ccc(-c3ccc(-c4cccs4)s3)s2)c1"),
+              (3, "moligo3", "c1csc(-c2ccc(-c3ccc(-c4ccc(-c5ccc(-c6cccs6)s5)s4)s3)s2)c1")]
+
+
+def _polymer_run(folder):
+    """A run folder with one polymer row: levels.csv, levels.oligomers.csv and the oligomers' geometries."""
+    from rdkit import Chem
+    from rdkit.Chem import AllChem
+
+    folder.mkdir(parents=True, exist_ok=True)
+    pd.DataFrame([{"id": "syn-poly", "smiles": _POLYMER, "homo_ev": -5.4, "lumo_ev": -3.8, "gap_opt_ev": 1.5,
+                   "scale": "film", "status": "ok", "representation": "polymer", "key": "mpolymer",
+                   "chain_n_max": 2}]).to_csv(folder / "levels.csv", index=False)
+    rows = []
+    for n, key, smi in _OLIGOMERS:  # n = 3 failed for one quantity: n = 2 is the longest computed oligomer
+        rows += [{"polymer_key": "mpolymer", "polymer_id": "syn-poly", "quantity": q, "n": n, "key": key,
+                  "smiles": smi, "status": "failed" if (n, q) == (3, "xtb_ea_ev") else "ok", "value": 1.0}
+                 for q in ("xtb_ip_ev", "xtb_ea_ev")]
+    rows.append({"polymer_key": "mpolymer", "polymer_id": "syn-poly", "quantity": "xtb_ip_ev", "n": float("inf"),
+                 "key": "", "smiles": "", "status": "ok", "value": 1.0})
+    pd.DataFrame(rows).to_csv(folder / "levels.oligomers.csv", index=False)
+    structures = folder / "work" / "candidates" / "structures"
+    structures.mkdir(parents=True)
+    writer = Chem.SDWriter(str(structures / "shard-000.sdf"))
+    for n, key, smi in _OLIGOMERS:
+        mol = Chem.AddHs(Chem.MolFromSmiles(smi))
+        AllChem.EmbedMolecule(mol, randomSeed=7)
+        mol.SetProp("_Name", key)
+        writer.write(mol)
+    writer.close()
+    return folder / "levels.csv"
+
+
+def test_shortlisted_polymer_gets_its_longest_computed_oligomer(tmp_path):
+    from rdkit import Chem
+
+    levels = _polymer_run(tmp_path / "run")
+    path = run_rank(levels, REF, tmp_path / "run", PUBLISHED_CFG, report=False)
+    (mol,) = Chem.SDMolSupplier(str(path.parent / "shortlist.sdf"), removeHs=False)
+    assert mol.GetConformer().Is3D() and all(a.GetAtomicNum() > 0 for a in mol.GetAtoms())
+    assert mol.GetNumAtoms() == Chem.AddHs(Chem.MolFromSmiles(_OLIGOMERS[1][2])).GetNumAtoms()  # n = 2
+    assert mol.GetProp("oligomer_n") == "2" and mol.GetProp("oligomer_key") == "moligo2"
+    assert mol.GetProp("structure_key") == "mpolymer" and mol.GetProp("smiles") == _POLYMER
+    assert "longest oligomer (n = 2" in mol.GetProp("geometry_source")
+    meta = json.loads((path.parent / "ranking.meta.json").read_text())
+    assert meta["counts"]["shortlist_geometry"]["oligomer"] == 1
+
+
+def test_shortlisted_polymer_without_its_run_folder_says_it_is_a_drawing(tmp_path):
+    from rdkit import Chem
+
+    levels = tmp_path / "copy" / "levels.csv"  # the levels file alone: no oligomer table, no geometries
+    levels.parent.mkdir()
+    levels.write_bytes(_polymer_run(tmp_path / "run").read_bytes())
+    path = run_rank(levels, REF, tmp_path / "copy", PUBLISHED_CFG, report=False)
+    (mol,) = Chem.SDMolSupplier(str(path.parent / "shortlist.sdf"), removeHs=False)
+    words = mol.GetProp("geometry_source")
+    assert words.startswith("polymer repeat unit: 2-D drawing") and "no 3-D geometry could be made" not in words
+    assert not mol.HasProp("oligomer_n")

@@ -275,6 +275,66 @@ def test_not_ranked_section_lists_rejected_and_failed(written):
     assert "Not ranked (2)" in page
 
 
+def _with_viability(ranking, meta):
+    """The synthetic ranking with the ranking stage's ``viable`` and ``reason`` columns (from its flags)."""
+    from screen.flags import reason_of
+
+    out = ranking.copy()
+    out["reason"] = [reason_of(f, meta) for f in out["flags"]]
+    out["viable"] = out["reason"].eq("")
+    return out
+
+
+def test_not_viable_rows_are_listed_as_not_viable_not_as_not_ranked(tmp_path):
+    ranking, levels, partner, meta = synthetic_inputs()
+    ranking = _with_viability(ranking, meta)
+    bad = ranking[~ranking["viable"]]
+    assert 0 < len(bad) < len(ranking)  # the synthetic screen has both
+    page = render_report(ranking, levels, partner, meta)
+    doc = _parse(page)
+    assert not doc.errors and not doc.stack
+    # the section title agrees with its rows and with the counts: not-viable rows are ranked, with a rank
+    unranked = page[page.index('id="not-ranked"'):page.index('id="not-viable"')]
+    assert "Not ranked (2)" in unranked and not any(f'data-id="{i}"' in unranked for i in bad["id"])
+    section = page[page.index('id="not-viable"'):page.index("</table>", page.index('id="not-viable"'))]
+    assert f"Not viable ({len(bad)})" in section
+    ranks = bad["rank"].astype(int)
+    assert f"ranks {ranks.min()}\u2013{ranks.max()}" in section or f"rank {ranks.min()}" in section
+    for rank, ident in zip(ranks, bad["id"]):
+        row = section[section.index(f'<tr data-id="{_esc(ident)}">'):]
+        assert row.startswith(f'<tr data-id="{_esc(ident)}"><td class="rank" data-value="{rank}">{rank}</td>')
+    assert "LUMO offset to the partner below 0.30 eV" in section
+    counts = page[page.index('id="counts"'):page.index("</div></div>", page.index('id="counts"'))]
+    assert f'{len(ranking)}</span><span class="what">ranked' in counts
+    assert f'{len(bad)}</span><span class="what">of them not viable' in counts
+
+
+def _esc(text):
+    import html
+
+    return html.escape(text, quote=True)
+
+
+def test_a_capped_pce_is_marked_and_explained(tmp_path):
+    from screen.flags import describe
+
+    ranking, levels, partner, meta = synthetic_inputs()
+    page = render_report(ranking, levels, partner, meta)
+    assert 'id="pce-capped-note"' not in page and 'class="capped-mark"' not in page  # nothing capped: nothing said
+    # the detailed-balance cap (screen.device): the PCE shown is the limit, below Voc × Jsc × FF of the row
+    capped = ranking["id"] == "synth-D1"
+    ranking.loc[capped, "flags"] = "pce_capped"
+    voc, jsc, ff = (float(ranking.loc[capped, c].iloc[0]) for c in ("voc_v", "jsc_ma_cm2", "ff"))
+    product = voc * jsc * ff * 10.0 / meta["device"]["pin_w_m2"] * 100.0  # % of the incident power
+    page = render_report(ranking, levels, partner, meta)
+    words = describe("pce_capped", meta)
+    note = page[page.index('id="pce-capped-note"'):]
+    assert note.startswith(f'id="pce-capped-note">\u2020 PCE capped (1 row): {_esc(words)}.')
+    cells = re.findall(r'<td class="pce capped" title="([^"]*)"[^>]*><strong>[^<]*</strong><sup', page)
+    assert len(cells) == 2  # shortlist and full table
+    assert cells[0] == _esc(f"{words}; Voc \u00d7 Jsc \u00d7 FF would give {product:.1f} %")
+
+
 def test_user_text_is_escaped(written):
     path, *_ = written
     page = path.read_text(encoding="utf-8")

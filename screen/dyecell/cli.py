@@ -314,7 +314,7 @@ def cmd_dyecell(args) -> int:
     from screen.cli_shared import EXIT_ERROR, EXIT_OK, _load, _print_summary
     from screen.dyecell.library import resolve_material
     from screen.dyecell.stage import record_inputs, run_dyecell
-    from screen.preflight import check_candidates, check_out, check_out_folder
+    from screen.preflight import check_calibration, check_candidates, check_out, check_out_folder
 
     if args.list:
         _print_libraries()
@@ -339,6 +339,8 @@ def cmd_dyecell(args) -> int:
     cfg = _load(args, extra)
     for role in ("oxide", "mediator"):  # a typo stops the command before anything is computed or written
         resolve_material(role, cfg["dyecell"][role])
+    if args.candidates or args.refit:  # both compute levels: hours of reference computation only when asked for
+        check_calibration(cfg, out, args.config)
     if args.candidates:
         record_inputs(out, candidates=source)
         _dye_candidates(given, out, read=read)

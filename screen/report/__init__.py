@@ -15,10 +15,12 @@ The page has five parts:
    with σ, offsets, Voc, Jsc, PCE with σ, the probability of beating the target
    and every flag in plain words; sortable by clicking a column header (a small
    inline script; without it the table stays in rank order).  Every ranked row
-   follows in a collapsible table.
+   follows in a collapsible table.  A PCE capped at the detailed-balance limit
+   (flag ``pce_capped``) is marked † and explained below the tables.
 3. *Level alignment* and *Gap–offset map*: two Matplotlib figures as inline SVG.
-4. *Not ranked*: every input row that was rejected or failed, with its reason,
-   so nothing disappears silently.
+4. *Not ranked and not viable*: every input row that was rejected or failed,
+   with its reason, so nothing disappears silently; then the ranked pairs that
+   are not viable (they keep their rank but get no efficiency), with theirs.
 5. *Files beside this report*: relative links to the exports.
 
 All user text (ids, names, SMILES, pass-through columns, error messages) is

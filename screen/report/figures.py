@@ -527,8 +527,8 @@ def _map_note(pts: pd.DataFrame, finite: pd.Series, model, partner: dict, model_
     n_missing = int((~finite).sum()) - n_same
     n_bad = int((finite & ~pts["viable"]).sum())
     if n_bad:
-        parts.append(f"{n_bad} ranked row(s) are not viable (crosses); their reasons are listed with the rows "
-                     "that were not ranked.")
+        parts.append(f"{n_bad} ranked row(s) are not viable (crosses); their reasons are listed under "
+                     "\u201cNot viable\u201d (section 4).")
     if n_same:
         parts.append(f"{n_same} ranked row(s) with the partner's own role are not drawn.")
     if n_missing:

@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, shorten, text, texts
+from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, shorten, text, texts, truthies
 
 __all__ = ["partner_card", "protocol_card", "device_card", "counts_strip"]
 
@@ -368,7 +368,7 @@ def device_card(meta: dict) -> str:
 # --------------------------------------------------------------------------- #
 def counts_strip(meta: dict, levels: pd.DataFrame, ranking: pd.DataFrame, n_short: int,
                  n_pass: int | None) -> str:
-    """Counts strip: input rows, computed, ranked, passing, shortlisted, not ranked."""
+    """Counts strip: input rows, computed, ranked (of them not viable), passing, shortlisted, not ranked."""
     counts = get(meta, "counts", default={}) or {}
     status = (texts(levels["status"]).str.strip().str.lower()
               if levels is not None and "status" in levels else None)
@@ -381,8 +381,10 @@ def counts_strip(meta: dict, levels: pd.DataFrame, ranking: pd.DataFrame, n_shor
     ok = pick("ok", int(status.eq("ok").sum()) if status is not None else None)
     rej = pick("rejected", int(status.eq("rejected").sum()) if status is not None else None)
     fail = pick("failed", int(status.eq("failed").sum()) if status is not None else None)
-    items = [("input rows", rows), ("computed", ok), ("ranked", len(ranking)),
-             ("pass every check", n_pass), ("shortlisted", n_short), ("rejected", rej), ("failed", fail)]
+    items = [("input rows", rows), ("computed", ok), ("ranked", len(ranking))]
+    if ranking is not None and "viable" in ranking:
+        items.append(("of them not viable", int((~truthies(ranking["viable"])).sum())))
+    items += [("pass every check", n_pass), ("shortlisted", n_short), ("rejected", rej), ("failed", fail)]
     cells = "".join(
         f'<div class="count"><span class="n">{NOT_RECORDED if v is None else v}</span>'
         f'<span class="what">{t}</span></div>' for t, v in items)

@@ -52,6 +52,8 @@ thead th{background:#f6f6f6;vertical-align:bottom;font-weight:600}
 thead th small{display:block;font-weight:400;color:#555}
 svg.mol{display:block}.legend{display:flex;align-items:center;gap:6px;margin:8px 0 16px}
 .legend span.sw{display:inline-block;width:28px;height:14px}footer{color:#666;margin-top:16px;font-size:12px}
+p.stale{background:#fde8e4;border-left:5px solid #b03a2e;padding:8px 14px;margin:0 0 16px;max-width:70em}
+p.stale code{word-break:break-all}th small.stale{color:#b03a2e;font-weight:600}td.stale{font-style:italic;opacity:.75}
 """
 
 
@@ -74,22 +76,37 @@ def heat_colour(value: float, low: float, high: float) -> tuple[str, str]:
     return "#{:02x}{:02x}{:02x}".format(*rgb), ("#ffffff" if luminance < 128 else "#1b1b1b")
 
 
-def _head_cell(p: dict) -> str:
+#: title of a cell whose partner's ranking read other levels than the newest ranking of the matrix
+_STALE_TITLE = "ranked from other levels than the newest ranking of this matrix: may be out of date"
+
+
+def _head_cell(p: dict, stale: bool = False) -> str:
     levels = f"HOMO {fmt(p.get('homo_ev'))}, LUMO {fmt(p.get('lumo_ev'))} eV"
     link = p.get("report")
     name = esc(p.get("id"))
     title = f'<a href="{esc(link)}">{name}</a>' if link else name
     role = esc(p.get("role") or "")
     viable = f"{p['viable']}/{p['ranked']} viable" if "viable" in p and "ranked" in p else ""
-    return f"<th>{title}<small>{role}</small><small>{levels}</small><small>{viable}</small></th>"
+    mark = '<small class="stale">stale: earlier levels</small>' if stale else ""
+    return f"<th>{title}<small>{role}</small><small>{levels}</small><small>{viable}</small>{mark}</th>"
 
 
-def _cell(value, low: float, high: float) -> str:
+def _cell(value, low: float, high: float, stale: bool = False) -> str:
     x = num(value)
     if math.isnan(x):
-        return '<td class="na" title="not viable">\u2014</td>'
+        title = "not viable" + (f"; {_STALE_TITLE}" if stale else "")
+        return f'<td class="na{" stale" if stale else ""}" title="{title}">\u2014</td>'
     bg, fg = heat_colour(x, low, high)
-    return f'<td style="background:{bg};color:{fg}" data-value="{x:.6g}">{fmt(x, 1)}</td>'
+    extra = f' class="stale" title="{_STALE_TITLE}"' if stale else ""
+    return f'<td style="background:{bg};color:{fg}"{extra} data-value="{x:.6g}">{fmt(x, 1)}</td>'
+
+
+def _stale_banner(stale) -> str:
+    """The banner of a matrix whose columns were not all ranked from the same levels ("" when they were)."""
+    if not isinstance(stale, dict) or not stale.get("summary"):
+        return ""
+    summary = str(stale["summary"])
+    return f'<p class="stale" id="stale"><strong>Out of date.</strong> {esc(summary[:1].upper() + summary[1:])}</p>\n'
 
 
 def _legend(low: float, high: float) -> str:
@@ -109,12 +126,14 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
     meta : dict
         ``partners`` (list of dicts: ``id``, and optionally ``role``, levels, ``report`` link,
         ``viable``/``ranked`` counts); optionally ``device`` and ``device_tests``
-        (:func:`screen.devicepars.device_tests`: a caution when the PCE did not rank published devices).
+        (:func:`screen.devicepars.device_tests`: a caution when the PCE did not rank published devices) and
+        ``stale`` (:func:`screen.matrix.stale_columns`: a banner, and its ``partners`` columns marked).
     created : str, optional
         Date line (default: now, UTC).
     """
     partners = meta.get("partners", [])
     ids = [p["id"] for p in partners]
+    stale = set((meta.get("stale") or {}).get("partners") or [])
     values = pd.concat([pd.to_numeric(matrix[c], errors="coerce") for c in ids]) if ids else pd.Series(dtype=float)
     low, high = (float(values.min()), float(values.max())) if values.notna().any() else (0.0, 1.0)
     shown = matrix.head(MAX_ROWS)
@@ -122,12 +141,12 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
     for n, row in enumerate(shown.to_dict("records")):
         drawing = (molecule_svg(row.get("smiles", ""), str(row["id"]), 120, 80) or "") if n < MAX_DRAWINGS else ""
         label = esc(row["id"]) + (f"<br><small>{esc(row['name'])}</small>" if row.get("name") else "")
-        cells = "".join(_cell(row.get(p), low, high) for p in ids)
+        cells = "".join(_cell(row.get(p), low, high, p in stale) for p in ids)
         rows.append(f'<tr><td class="cand">{drawing}{label}</td>{cells}<td>{esc(row.get("best_partner") or "—")}</td></tr>')
     more = (f"<p>{len(matrix) - len(shown)} more rows are in matrix.csv.</p>" if len(matrix) > len(shown) else "")
     model = esc((meta.get("device") or {}).get("model", "not recorded"))
     when = created or datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
-    head = "".join(_head_cell(p) for p in partners)
+    head = "".join(_head_cell(p, p["id"] in stale) for p in partners)
     caution = device_tests_html(meta.get("device_tests"))[1]
     return (
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
@@ -138,6 +157,7 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
         f"partner (device model: {model}), among its pairs that pass the filters and are viable; a grey cell "
         "is a pair that is not viable. Estimates for screening, not measurements: follow a partner's link for "
         "its ranking, uncertainties and flags.</p>\n"
+        + _stale_banner(meta.get("stale"))
         + (f'<p class="caution">{caution}</p>\n' if caution else "")
         + f"{_legend(low, high)}"
         f"<table><thead><tr><th class=\"cand\">candidate</th>{head}<th>best partner</th></tr></thead>\n"

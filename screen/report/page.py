@@ -19,8 +19,10 @@ from screen.report.figures import DIAGRAM_MAX, design_map_svg, level_diagram_svg
 from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, text, truthies
 from screen.report.header import counts_strip, device_card, device_tests_html, partner_card, protocol_card
 from screen.report.tables import (
+    capped_note,
     full_table,
     not_ranked_table,
+    not_viable_table,
     select_shortlist,
     shortlist_table,
     with_level_details,
@@ -145,6 +147,7 @@ def _shortlist_section(ranking: pd.DataFrame, short: pd.DataFrame, how: str, pid
         _all_ranked_summary(len(ranking)),
         f'<div class="tablewrap">{full_table(ranking.head(FULL_TABLE_MAX_ROWS), meta)}</div>',
         "</details>",
+        *([f'<p class="quiet" id="pce-capped-note">{note}</p>'] if (note := capped_note(ranking, meta)) else []),
     ]
 
 
@@ -192,16 +195,44 @@ def _figures_section(levels_fig: str, map_fig: str, map_note: str, n_short: int,
     ]
 
 
-def _tail(unranked_html: str, n_unranked: int, meta: dict) -> list[str]:
-    """Section 4 (not ranked), the footer with the exported files, and the sorting script."""
+def _set_aside_section(levels: pd.DataFrame, ranking: pd.DataFrame, meta: dict) -> list[str]:
+    """Section 4: the input rows that were not ranked, then the ranked pairs that are not viable."""
+    unranked_html, n_unranked = not_ranked_table(levels, ranking)
+    bad_html, n_bad, ranks = not_viable_table(ranking, meta)
+    where = f" ({ranks}, below every viable pair)" if ranks else ""
+    return [
+        '<h2 id="set-aside"><span class="num">4</span>Not ranked and not viable</h2>',
+        f'<h3 id="not-ranked">Not ranked ({n_unranked})</h3>',
+        '<p class="quiet">Input rows that were rejected while reading the input, whose computation '
+        "failed, or that the ranking settings left out \u2014 listed so that nothing disappears.</p>",
+        f'<div class="tablewrap">{unranked_html}</div>',
+        f'<h3 id="not-viable">Not viable ({n_bad})</h3>',
+        '<p class="quiet">Ranked pairs without a working alignment with the partner: they are counted among the '
+        f"ranked rows and keep their rank{where}, but get no efficiency. The reason for each:</p>",
+        f'<div class="tablewrap">{bad_html}</div>',
+    ]
+
+
+def _export_items(meta: dict) -> str:
+    """The footer's list of files: a link to each one written, a plain note for a file that was not."""
+    outputs = get(meta, "outputs", default={}) or {}
+    items = []
+    for name, what in EXPORTS:
+        if name == "shortlist.sdf" and isinstance(outputs, dict) and "shortlist" in outputs \
+                and not outputs["shortlist"]:
+            note = text(meta.get("shortlist_note")) or "no shortlist.sdf written"
+            items.append(f"<li>{esc(note)}</li>")
+        else:
+            items.append(f'<li><a href="{esc(name)}">{esc(name)}</a> \u2014 {esc(what)}</li>')
+    return "".join(items)
+
+
+def _tail(meta: dict) -> list[str]:
+    """The footer with the exported files, and the sorting script."""
     lm = get(meta, "levels_meta", default={}) or {}
     lv = text(lm.get("dascreen")) if isinstance(lm, dict) else ""
-    exports = "".join(f'<li><a href="{esc(f)}">{esc(f)}</a> \u2014 {esc(d)}</li>' for f, d in EXPORTS)
+    exports = _export_items(meta)
     return [
-        f'<h2 id="not-ranked"><span class="num">4</span>Not ranked ({n_unranked})</h2>',
-        '<p class="quiet">Input rows that were rejected while reading the input, whose computation '
-        "failed, or that the ranking left out \u2014 listed so that nothing disappears.</p>",
-        f'<div class="tablewrap">{unranked_html}</div>',
         "</main>",
         '<footer id="files">',
         '<h3>Files beside this report</h3>',
@@ -245,7 +276,6 @@ def render_report(ranking: pd.DataFrame, levels: pd.DataFrame, partner: dict, me
     pid = text(partner.get("id"))
     levels_fig = level_diagram_svg(short, partner, meta)
     map_fig, map_note = design_map_svg(ranking, list(short.index), partner, meta)
-    unranked_html, n_unranked = not_ranked_table(levels, ranking)
     parts = _head(partner, meta) + [
         "<main>",
         _CAUTION,
@@ -259,5 +289,6 @@ def render_report(ranking: pd.DataFrame, levels: pd.DataFrame, partner: dict, me
     ]
     parts += _shortlist_section(ranking, short, how, pid, n_pass, meta)
     parts += _figures_section(levels_fig, map_fig, map_note, len(short), meta)
-    parts += _tail(unranked_html, n_unranked, meta)
+    parts += _set_aside_section(levels, ranking, meta)
+    parts += _tail(meta)
     return "\n".join(parts) + "\n"

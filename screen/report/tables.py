@@ -1,4 +1,4 @@
-"""The report's HTML tables: the shortlist with drawings, every ranked row, and the rows not ranked or not viable.
+"""The report's HTML tables: the shortlist with drawings, every ranked row, the rows not ranked, the pairs not viable.
 
 Every user text (ids, names, SMILES, pass-through columns, error messages) is
 HTML-escaped here; numbers carry a ``data-value`` for the sorting script.
@@ -17,7 +17,7 @@ from screen.report.format import (data_values, esc, fmts, get, has_text, num, pm
                                   truthies)
 
 __all__ = ["with_level_details", "select_shortlist", "shortlist_table", "full_table", "not_ranked_table",
-           "target_label"]
+           "not_viable_table", "capped_note", "target_label", "CAPPED_MARK"]
 
 _KNOWN_RANKING = {
     "rank", "id", "name", "smiles", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "partner",
@@ -236,12 +236,74 @@ def _level_columns(frame: pd.DataFrame) -> list[list[str]]:
     return out
 
 
-def _pce_cells(frame: pd.DataFrame) -> list[str]:
-    """PCE ± σ of each row, emphasised."""
+#: marks a PCE capped at the detailed-balance limit (flag ``pce_capped``); explained by :func:`capped_note`
+CAPPED_MARK = "\u2020"
+
+
+def _capped(frame: pd.DataFrame) -> list[bool]:
+    """Whether each row's PCE was capped at the detailed-balance limit (flag ``pce_capped``)."""
+    return ["pce_capped" in _flag_codes(f) for f in _cells(frame, "flags")]
+
+
+def _product_pct(voc, jsc, ff, meta: dict) -> float:
+    """Voc × Jsc × FF as a percentage of the incident power (NaN when a factor is missing).
+
+    The incident power is the run's (``device.incident_power_w_m2``, else
+    ``pin_w_m2``), else 1000 W m⁻² (the AM1.5G standard's nominal value).
+
+    Examples
+    --------
+    >>> round(_product_pct(0.9, 20.0, 0.7, {"device": {"incident_power_w_m2": 1000.0}}), 2)
+    12.6
+    """
+    p_in = num(get(meta, "device", "incident_power_w_m2"))
+    p_in = num(get(meta, "device", "pin_w_m2")) if math.isnan(p_in) else p_in
+    p_in = 1000.0 if math.isnan(p_in) or p_in <= 0 else p_in
+    # V × mA cm⁻² = 10 W m⁻²; as % of P_in
+    return num(voc) * num(jsc) * num(ff) * 10.0 / p_in * 100.0
+
+
+def _capped_title(voc, jsc, ff, meta: dict) -> str:
+    """Tooltip of a capped PCE: the flag's text and the product it replaced."""
+    product = _product_pct(voc, jsc, ff, meta)
+    more = "" if math.isnan(product) else f"; Voc \u00d7 Jsc \u00d7 FF would give {product:.1f} %"
+    return describe("pce_capped", meta) + more
+
+
+def _pce_cells(frame: pd.DataFrame, meta: dict | None = None) -> list[str]:
+    """PCE ± σ of each row, emphasised; a capped PCE is marked and explained in its title."""
     values = _cells(frame, "pce_pct")
     shown = [f"<strong>{value}</strong>{pm[len(value):]}"
              for value, pm in zip(fmts(values, 1), pm_htmls(values, _cells(frame, "pce_sigma_pct"), 1))]
-    return _num_cells(values, shown, "pce")
+    out = []
+    for value, html, capped, voc, jsc, ff in zip(data_values(values), shown, _capped(frame), _cells(frame, "voc_v"),
+                                                 _cells(frame, "jsc_ma_cm2"), _cells(frame, "ff")):
+        if capped:
+            title = esc(_capped_title(voc, jsc, ff, meta or {}))
+            marked = html.replace("</strong>", f'</strong><sup class="capped-mark">{CAPPED_MARK}</sup>', 1)
+            out.append(f'<td class="pce capped" title="{title}" data-value="{value}">{marked}</td>')
+        else:
+            out.append(f'<td class="pce" data-value="{value}">{html}</td>')
+    return out
+
+
+def capped_note(ranking: pd.DataFrame, meta: dict | None = None) -> str:
+    """Footnote for the PCE values capped at the detailed-balance limit ("" when none is).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> capped_note(pd.DataFrame({"flags": ["", "role_assumed"]}))
+    ''
+    >>> "Shockley" in capped_note(pd.DataFrame({"flags": ["pce_capped"]}))
+    True
+    """
+    n = sum(_capped(ranking)) if ranking is not None and len(ranking) else 0
+    if not n:
+        return ""
+    return (f"{CAPPED_MARK} PCE capped ({n} row{'s' if n > 1 else ''}): {esc(describe('pce_capped', meta))}. "
+            "The PCE shown is that limit, so it is smaller than V<sub>oc</sub> \u00d7 J<sub>sc</sub> \u00d7 FF of "
+            "the same row; the product is in the cell's tooltip.")
 
 
 def _prob_cells(frame: pd.DataFrame) -> list[str]:
@@ -282,7 +344,7 @@ def shortlist_table(rows: pd.DataFrame, meta: dict) -> str:
         drawings.append(f'<td class="struct">{drawing}</td>')
     notes = [f'<td class="notes">{_flags_html(flags, meta)}</td>' for flags in _cells(rows, "flags")]
     body = _table_rows(ids, [_rank_cells(rows), drawings, _candidate_cells(rows, ids, with_smiles=True),
-                             *_level_columns(rows), _pce_cells(rows), _prob_cells(rows), notes])
+                             *_level_columns(rows), _pce_cells(rows, meta), _prob_cells(rows), notes])
     if not body:
         body.append('<tr><td colspan="13" class="empty">no candidates to show</td></tr>')
     return (f'<table class="sortable shortlist" id="shortlist-table">{head}<tbody>'
@@ -312,7 +374,7 @@ def full_table(ranking: pd.DataFrame, meta: dict) -> str:
     ids = [text(i) for i in _cells(ranking, "id")]
     extras = [[f'<td class="extra">{esc(shorten(text(v), 120))}</td>' for v in _cells(ranking, c)] for c in extra]
     body = _table_rows(ids, [_rank_cells(ranking), _candidate_cells(ranking, ids, with_smiles=False),
-                             *_level_columns(ranking), _pce_cells(ranking), _prob_cells(ranking),
+                             *_level_columns(ranking), _pce_cells(ranking, meta), _prob_cells(ranking),
                              [_passes_cell(v) for v in _cells(ranking, "passes")],
                              _compact_notes(_cells(ranking, "flags"), meta), *extras])
     if not body:
@@ -344,26 +406,22 @@ def _not_viable_rows(ranking: pd.DataFrame) -> pd.DataFrame:
 
 
 def not_ranked_table(levels: pd.DataFrame, ranking: pd.DataFrame) -> tuple[str, int]:
-    """Input rows that are not in the ranking, and ranked pairs that are not viable, with their reasons.
+    """Input rows that are not in the ranking (rejected, failed, or left out by the settings), with their reasons.
 
     Returns the table and the number of rows listed.
 
     Examples
     --------
     >>> import pandas as pd
-    >>> lv = pd.DataFrame({"id": ["a", "b"], "status": ["ok", "ok"]})
+    >>> lv = pd.DataFrame({"id": ["a", "b", "c"], "status": ["ok", "ok", "rejected"], "error": ["", "", "bad SMILES"]})
     >>> rk = pd.DataFrame({"id": ["a", "b"], "viable": [True, False], "reason": ["", "inverted alignment"]})
     >>> html, n = not_ranked_table(lv, rk)
-    >>> n, "not viable" in html, "inverted alignment" in html
-    (1, True, True)
+    >>> n, "bad SMILES" in html, "inverted alignment" in html
+    (1, True, False)
     """
-    bad = _not_viable_rows(ranking)
-    if (levels is None or not len(levels)) and not len(bad):
+    if levels is None or not len(levels):
         return '<p class="quiet">No levels table was given, so unranked rows cannot be listed.</p>', 0
-    body = []
-    if levels is not None and len(levels):
-        body += _unranked_rows(levels, ranking)
-    body += _not_viable_body(bad)
+    body = _unranked_rows(levels, ranking)
     if not body:
         return '<p class="quiet">Every input row was ranked.</p>', 0
     table = ('<table class="unranked" id="not-ranked-table"><thead><tr><th scope="col">Id</th>'
@@ -371,6 +429,37 @@ def not_ranked_table(levels: pd.DataFrame, ranking: pd.DataFrame) -> tuple[str, 
              '<th scope="col">SMILES as given</th></tr></thead><tbody>' + "\n".join(body)
              + "</tbody></table>")
     return table, len(body)
+
+
+def not_viable_table(ranking: pd.DataFrame, meta: dict | None = None) -> tuple[str, int, str]:
+    """Ranked pairs that are not viable, with their rank and reason.
+
+    Returns
+    -------
+    tuple of (str, int, str)
+        The table, the number of rows listed and their ranks in words
+        (``"ranks 3–4"``; "" without rows).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> rk = pd.DataFrame({"rank": [1, 2, 3], "id": ["a", "b", "c"], "viable": [True, False, False],
+    ...                    "reason": ["", "inverted alignment", ""], "flags": ["", "", "lumo_offset_low"]})
+    >>> html, n, ranks = not_viable_table(rk, {"device": {"min_delta_lumo_ev": 0.3}})
+    >>> n, ranks, "inverted alignment" in html, "below 0.30 eV" in html
+    (2, 'ranks 2\u20133', True, True)
+    """
+    bad = _not_viable_rows(ranking)
+    if not len(bad):
+        return '<p class="quiet">Every ranked pair is viable.</p>', 0, ""
+    ranks = [int(r) for r in (num(x) for x in _cells(bad, "rank")) if not math.isnan(r)]
+    words = "" if not ranks else (f"rank {ranks[0]}" if min(ranks) == max(ranks)
+                                  else f"ranks {min(ranks)}\u2013{max(ranks)}")
+    table = ('<table class="unranked" id="not-viable-table"><thead><tr><th scope="col">Rank</th>'
+             '<th scope="col">Id</th><th scope="col">Name</th><th scope="col">Reason</th>'
+             '<th scope="col">SMILES as given</th></tr></thead><tbody>' + "\n".join(_not_viable_body(bad, meta))
+             + "</tbody></table>")
+    return table, len(bad), words
 
 
 def _smiles_cells(values: list) -> list[str]:
@@ -393,18 +482,22 @@ def _unranked_row(ident, name, status_html: str, why_html: str, smiles_cell: str
             f'<td>{status_html}</td><td class="reason">{why_html}</td>{smiles_cell}</tr>')
 
 
-def _not_viable_body(bad: pd.DataFrame) -> list[str]:
-    """Table rows of the ranked pairs that are not viable: the ranking's reason, else their flags in words."""
+def _not_viable_body(bad: pd.DataFrame, meta: dict | None = None) -> list[str]:
+    """Table rows of the ranked pairs that are not viable: rank, id, name, the ranking's reason (else their
+    flags in words) and SMILES."""
     whys: dict[tuple[str, str], str] = {}  # a few distinct reasons among thousands of rows
     body = []
-    for ident, name, reason, flags, cell in zip(_cells(bad, "id"), _cells(bad, "name"), _cells(bad, "reason"),
-                                                 _cells(bad, "flags"), _smiles_cells(_cells(bad, "smiles"))):
+    for rank, ident, name, reason, flags, cell in zip(
+            _rank_cells(bad), _cells(bad, "id"), _cells(bad, "name"), _cells(bad, "reason"), _cells(bad, "flags"),
+            _smiles_cells(_cells(bad, "smiles"))):
         key = (text(reason).strip(), text(flags))
         why = whys.get(key)
         if why is None:
-            why = whys[key] = esc(key[0] or "; ".join(describe(c) for c in _flag_codes(key[1]))
+            why = whys[key] = esc(key[0] or "; ".join(describe(c, meta) for c in _flag_codes(key[1]))
                                   or "no reason recorded")
-        body.append(_unranked_row(ident, name, '<span class="status st-other">not viable</span>', why, cell))
+        shown = esc(ident)
+        body.append(f'<tr data-id="{shown}">{rank}<td class="cid">{shown}</td><td>{esc(text(name))}</td>'
+                    f'<td class="reason">{why}</td>{cell}</tr>')
     return body
 
 

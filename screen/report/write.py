@@ -31,8 +31,8 @@ def write_report(ranking: pd.DataFrame, levels: pd.DataFrame, partner: dict, met
         by id when absent) and a boolean ``shortlist``.
     levels : pandas.DataFrame
         The full levels table (every input row, ``status`` and ``error``);
-        rows that are not ok, or not ranked, appear in the "Not ranked"
-        section.
+        rows that are not ok, or not ranked, appear under "Not ranked"
+        (ranked pairs that are not viable under "Not viable").
     partner : dict
         Partner levels: ``id, name, role, homo_ev, lumo_ev, gap_opt_ev,
         scale, source`` and σ keys; an empty dict falls back to
@@ -40,8 +40,10 @@ def write_report(ranking: pd.DataFrame, levels: pd.DataFrame, partner: dict, met
     meta : dict
         ``device`` (model parameters), ``rank`` (target, shortlist size,
         sort key, gap window), ``levels_meta`` (version, protocol id,
-        protocol, models, calibration statistics), ``counts`` and, for
-        reproducible output, ``created`` (the date line).  Missing keys are
+        protocol, models, calibration statistics), ``counts``, ``outputs``
+        and ``shortlist_note`` (a ``shortlist`` output of None: the footer
+        gives the note instead of a link) and, for reproducible output,
+        ``created`` (the date line).  Missing keys are
         shown as "not recorded".  :func:`screen.rank_io.run_rank` passes the
         dict it writes to ``ranking.meta.json``.
     out_dir : path-like

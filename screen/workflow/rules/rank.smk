@@ -1,4 +1,4 @@
-# Ranking against the configured partner: partner offsets, Scharber device model, filters, report.
+# Ranking against the configured partner: partner offsets, device model, filters, report.
 # It reads only levels files (levels.csv + its sidecar, and a smiles: partner's own levels file from
 # rules/partner.smk), so a new partner or device setting reruns this rule alone.
 from importlib.util import find_spec
@@ -11,10 +11,10 @@ from screen.rank_io import ranking_folder
 PARTNER_SLUG = ranking_folder(partner_slug(PARTNER), CFG)
 RANKING_DIR = f"{OUT}/rankings/{PARTNER_SLUG}"
 RANKING = f"{RANKING_DIR}/ranking.csv"
-# report.html is an output only when the report module is installed
+# report.html is an output only when the report module is installed; shortlist.sdf is not a declared output:
+# it is written only when a shortlisted row has a structure (ranking.meta.json says why when it is not)
 RANK_OUTPUTS = {
     "ranking": RANKING,
-    "shortlist": f"{RANKING_DIR}/shortlist.sdf",
     "meta": f"{RANKING_DIR}/ranking.meta.json",
     **({"report": f"{RANKING_DIR}/report.html"} if find_spec("screen.report") else {}),
 }
