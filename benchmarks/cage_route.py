@@ -27,6 +27,7 @@ Usage::
 
 from __future__ import annotations
 
+import argparse
 import sys
 from pathlib import Path
 
@@ -90,7 +91,8 @@ def fit(sets: dict, raw: pd.DataFrame, class_term: bool) -> dict:
         linear.CLASS_TERMS.update(saved)
 
 
-def main() -> int:
+def main(argv=None) -> int:
+    argparse.ArgumentParser(description=__doc__.splitlines()[0]).parse_args(argv)
     cfg = Config.of({})
     sets = read_reference(cfg["calibration"]["reference"])
     raw, _ = read_raw_source(REPO / "models" / cfg.protocol_id, cfg.protocol_id)

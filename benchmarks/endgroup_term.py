@@ -24,6 +24,7 @@ Usage::
 
 from __future__ import annotations
 
+import argparse
 import sys
 from pathlib import Path
 
@@ -65,7 +66,8 @@ def _gap_rows(model: dict) -> pd.DataFrame:
     return d
 
 
-def main() -> int:
+def main(argv=None) -> int:
+    argparse.ArgumentParser(description=__doc__.splitlines()[0]).parse_args(argv)
     sets = read_reference(REPO / "models" / "reference")
     folders = sorted(p for p in (REPO / "models").iterdir() if (p / "reference_raw.csv").is_file())
     for folder in folders:

@@ -20,6 +20,7 @@ Usage::
 
 from __future__ import annotations
 
+import argparse
 import sys
 from pathlib import Path
 
@@ -36,7 +37,8 @@ from screen.config import Config  # noqa: E402
 BINS = [0.0, 0.3, 0.45, 0.6, 0.8, 1.01]
 
 
-def main() -> int:
+def main(argv=None) -> int:
+    argparse.ArgumentParser(description=__doc__.splitlines()[0]).parse_args(argv)
     cfg = Config.of({})
     models = load_models(REPO / "models" / cfg.protocol_id, cfg)
     print(f"protocol {cfg.protocol_id}; similarity = nearest-neighbour Tanimoto (Morgan r=2, alkyl as methyl)")
