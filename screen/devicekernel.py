@@ -89,10 +89,8 @@ def voc_limit(gap_cap, sq_voc=None):
     return np.fmin(gap_cap, sq_voc(gap_cap))
 
 
-#: gap − detailed-balance Voc is below this for gaps up to :data:`_SQ_VOC_MARGIN_GAP_EV` (0.17 eV at 0.3 eV, 0.38 eV
-#: at 3 eV, 0.55 eV at 4 eV; :func:`screen.spectrum.sq_voc_v`) [eV]
-_SQ_VOC_MARGIN_EV = 0.6
-_SQ_VOC_MARGIN_GAP_EV = 4.0
+#: slack on the margin within which the detailed-balance Voc may bind (covers table interpolation) [eV]
+_SQ_VOC_SLACK_EV = 0.005
 
 
 def _positive(gap):
@@ -212,22 +210,27 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     g_lo = np.broadcast_to(np.minimum(d_gap, a_gap) if both else d_gap, shape)  # absorber gap (may be invalid)
     voc = np.subtract(a_lumo, d_homo, out=np.empty(shape))  # interface gap
     slope, ref, lo, hi = (0.0, 0.0, -np.inf, np.inf)
+    if np.isnan(voc).any():  # a missing HOMO_D or LUMO_A: not viable (fmin below would hide it)
+        ok &= ~np.isnan(voc)
     if model.model != "scharber":
-        np.minimum(voc, np.where(np.isnan(cap), voc, cap), out=voc)  # E_CT (NaN interface stays NaN)
+        np.fmin(voc, cap, out=voc)  # E_CT
         slope, ref, lo, hi = _slope(model)
-    if slope:  # E_CT - max(loss + slope (clip(E_CT) - ref), 0) = min(E_CT - loss - slope (clip(E_CT) - ref), E_CT)
+    if slope:  # E_CT - max(loss + slope (clip(E_CT) - ref), 0) = min(E_CT - slope clip(E_CT) + (slope ref - loss), E_CT)
         lowered = np.clip(voc, lo, hi)
-        lowered -= ref
         lowered *= -slope
         lowered += voc
-        lowered -= loss_ev
+        lowered += slope * ref - np.asarray(loss_ev, dtype=float)
         np.fmin(lowered, voc, out=voc)
         del lowered
     else:
         voc -= loss_ev
     np.fmin(voc, cap, out=voc)
-    with np.errstate(invalid="ignore"):  # only there can the detailed-balance Voc bind (it is ≥ gap − margin)
-        near = (voc > cap - _SQ_VOC_MARGIN_EV) | (cap > _SQ_VOC_MARGIN_GAP_EV)
+    # gap − detailed-balance Voc grows with the gap (checked on a 0.5 meV grid, 0.05–4.43 eV), so the cap can bind
+    # only where cap − voc is below that difference at the largest gap of the block
+    top = float(np.nanmax(cap)) if cap.size and not np.all(np.isnan(cap)) else np.nan
+    margin = top - float(sq_voc(np.array([top]))[0]) + _SQ_VOC_SLACK_EV if np.isfinite(top) else -np.inf
+    with np.errstate(invalid="ignore"):
+        near = np.subtract(cap, voc) < margin
     if near.any():
         voc[near] = np.fmin(voc[near], sq_voc(cap[near]))
     ok &= voc > 0
@@ -260,9 +263,10 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
             voc[low] = np.fmin(voc[low], sq_pct(safe_lo[low]))
     else:
         np.fmin(voc, sq_pct(safe_lo), out=voc)
-    ok &= np.isfinite(voc)
+    if not np.isfinite(voc).all():  # a level the model needs is missing (e.g. HOMO_A with both absorbing)
+        ok &= np.isfinite(voc)
+        np.nan_to_num(voc, copy=False, nan=0.0)
     voc *= ok
-    np.nan_to_num(voc, copy=False, nan=0.0)
     return voc
 
 
