@@ -53,8 +53,11 @@ consecutive oligomers 1 … N the 1/n limit lies (N − 1) |ΔE_N| beyond the lo
 one, so this is r ≥ 1 − 1/N: 0.75 for tetramers), the data have not started to
 saturate and a chosen limit more than one last step beyond the longest oligomer is
 marked ``poor`` with the reason in :attr:`ChainFit.reason`. Not judged: series
-of fewer than three points and series whose last two steps differ in sign (noise
-of the size of a step). The GFN2-xTB orbital gap of MEH-PPV oligomers on
+of fewer than three points and series whose last two steps differ in sign; such a
+series (it turns back, e.g. a planar dimer and twisted trimer and tetramer) gets at
+least the size of the turn (the smaller of the two steps) as ``spread_ev``, and is
+marked ``poor`` when the turn exceeds ``rms_tol_ev`` (an accepted fit could otherwise be clipped onto the longest
+oligomer with a spread of 0 and the label ``good``). The GFN2-xTB orbital gap of MEH-PPV oligomers on
 xTB-optimised geometries (3.23, 2.53, 2.09, 1.71 eV, n = 1-4, the project's own
 values) has r = 0.85; its exponential limit, 0.81 eV, lay 0.90 eV beyond the
 tetramer and was labelled ``good``.
@@ -331,6 +334,27 @@ def extrapolate(n, e, per_unit: int = 1, rms_tol_ev: float = 0.05, form: str = "
     value, rms = usable[method]
     others = [v for k, (v, _) in usable.items() if k != method]
     spread = abs(value - others[0]) if others else abs(value - e[-1])
+    wiggle = _reversal(e)
+    spread = max(spread, wiggle)  # a series that turns back is known no better than the size of the turn
     reason = saturation_reason(e, value, inv)
+    if not reason and wiggle > rms_tol_ev:
+        reason = (f"not monotonic: the last two steps, {e[-2] - e[-3]:+.3f} and {e[-1] - e[-2]:+.3f} eV, turn back "
+                  f"by more than {rms_tol_ev:g} eV (conformations may differ between the oligomers); the limit is "
+                  "no better than that")
     return ChainFit(method, float(value), float(rms), float(spread), "poor" if reason else "good", len(n),
                     candidates, reason)
+
+
+def _reversal(e: np.ndarray) -> float:
+    """Size of the turn [eV] when the last two steps of the series differ in sign: the smaller of the two steps
+    (a step of the size of the SCF noise next to a real one is a small turn); 0 for a monotonic end.
+
+    Examples
+    --------
+    >>> _reversal(np.array([1.733, 1.320, 1.350, 1.316])), _reversal(np.array([3.0, 2.6, 2.4]))
+    (0.03, 0.0)
+    """
+    if len(e) < 3:
+        return 0.0
+    last, prev = float(e[-1] - e[-2]), float(e[-2] - e[-3])
+    return round(min(abs(last), abs(prev)), 12) if last * prev < 0.0 else 0.0

@@ -108,6 +108,9 @@ _REGISTRY = (
     Flag("heavy_atoms_unknown", "heavy-atom count unknown, so the size limit could not be checked", "info"),
     Flag("far_from_reference", "unlike every reference material of the calibration (fingerprint similarity "
                                "below 0.30): its levels are extrapolated and carry a wide σ", "info"),
+    Flag("chain_fit_poor", "polymer: the chain-limit extrapolation of its oligomers is poor for a level or the gap "
+                           "(no saturating fit accepted, or a series that has not started to saturate; levels.csv "
+                           "note says which); its σ carries the extrapolation spread", "info"),
     Flag("lone_pair_homo", "the tight-binding HOMO was a nitrogen lone pair placed above the π orbitals; IP, "
                            "HOMO and gap are those of the highest π orbital (IP shifted by the orbital-energy "
                            "difference)", "info"),

@@ -463,6 +463,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "too_many_heavy_atoms": heavy_out,
         "heavy_atoms_unknown": heavy_unknown,
         "far_from_reference": _far_from_reference(lv),
+        "chain_fit_poor": _text(lv, "chain_fit_quality") == "poor",
         "lone_pair_homo": _lone_pair_homo(lv),
         "role_from_levels": roles.role_from_levels,
         "role_assumed": roles.role_assumed,
@@ -474,6 +475,21 @@ def _far_from_reference(levels: pd.DataFrame) -> np.ndarray:
     sim = _numeric(levels, "reference_similarity")
     with np.errstate(invalid="ignore"):
         return sim < FAR_FROM_REFERENCE_SIMILARITY
+
+
+def _representation(levels: pd.DataFrame) -> np.ndarray:
+    """``molecule`` or ``polymer`` per row: the levels file's column, else from the SMILES (attachment points make a
+    repeat unit), '' without either.
+
+    Examples
+    --------
+    >>> _representation(pd.DataFrame({"smiles": ["[*]c1ccc([*])s1", "c1ccsc1", ""]})).tolist()
+    ['polymer', 'molecule', '']
+    """
+    given = _text(levels, "representation")
+    smiles = _text(levels, "smiles")
+    guess = np.where(np.char.find(smiles.astype(str), "*") >= 0, "polymer", np.where(smiles != "", "molecule", ""))
+    return np.where(given != "", given, guess).astype(object)
 
 
 def _lone_pair_homo(levels: pd.DataFrame) -> np.ndarray:
@@ -546,6 +562,7 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
         "model": np.where(pair_ok, model.model, ""),
         "acceptor_class": np.where(pair_ok, pd.Series(dev["acceptor_class"]).astype(str), ""),
         "absorber_gap_ev": np.where(pair_ok, np.asarray(dev["absorber_gap_ev"], dtype=float), np.nan),
+        "representation": _representation(lv),
     })
     for col in _ROUNDED:
         out[col] = out[col].round(_ROUND)

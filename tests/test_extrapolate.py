@@ -130,3 +130,14 @@ def test_the_saturation_threshold_is_where_geometric_steps_reach_the_inverse_lim
     # a limit within one last step of the tetramer, or last two steps of opposite sign, are not judged
     assert saturation_reason(e, e[-1] + 0.9 * last, inverse) == ""
     assert saturation_reason([3.0, 2.6, 2.7, 2.3], 2.0, 1.1) == ""
+
+
+def test_a_series_that_turns_back_gets_the_turn_as_its_spread():
+    # a thiophene–benzothiadiazole repeat unit on force-field geometries (a new user's run, raw GFN2-xTB gaps,
+    # n = 1-4): the dimer planar, trimer and tetramer twisted; the chosen limit was clipped onto the tetramer with
+    # a spread of 0 and the label good. The turn (0.030 eV) is now its spread; a turn above rms_tol_ev is poor
+    n = [1, 2, 3, 4]
+    fit = extrapolate(n, [1.733, 1.320, 1.350, 1.316], per_unit=3)
+    assert fit.spread_ev == pytest.approx(0.030, abs=1e-9) and fit.quality == "good"
+    big = extrapolate(n, [1.733, 1.320, 1.420, 1.316], per_unit=3)
+    assert big.quality == "poor" and big.reason.startswith("not monotonic") and big.spread_ev == pytest.approx(0.100)

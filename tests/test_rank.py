@@ -540,3 +540,22 @@ def test_inconsistent_computed_levels_are_not_viable_rows_not_a_file_error():
     with pytest.raises(errors.InputError, match="optical gap"):
         rank_candidates(_levels([{k: v for k, v in row.items() if k != "xtb_ip_ev"} for row in rows]),
                         resolve_partner("y6"))
+
+
+def test_polymer_rows_carry_their_representation_and_a_poor_chain_fit_flag():
+    # issue 12: `representation` travels from levels.csv to the ranking; a poor chain-limit fit is said there too
+    lv = _levels([
+        {"id": "pt", "smiles": "[*]c1ccc([*])s1", "homo_ev": -5.3, "lumo_ev": -3.3, "gap_opt_ev": 1.9,
+         "role": "donor", "representation": "polymer", "chain_fit_quality": "poor"},
+        {"id": "pf", "smiles": "[*]c1ccc2c(c1)Cc1cc([*])ccc1-2", "homo_ev": -5.4, "lumo_ev": -3.2, "gap_opt_ev": 2.0,
+         "role": "donor", "representation": "polymer", "chain_fit_quality": "good"},
+        {"id": "m", "smiles": "c1ccsc1", "homo_ev": -5.5, "lumo_ev": -3.3, "gap_opt_ev": 2.0, "role": "donor",
+         "representation": "molecule", "chain_fit_quality": ""},
+    ])
+    r = rank_candidates(lv, resolve_partner("y6")).set_index("id")
+    assert r.loc["pt", "representation"] == "polymer" and r.loc["m", "representation"] == "molecule"
+    assert "chain_fit_poor" in r.loc["pt", "flags"] and "chain_fit_poor" not in r.loc["pf", "flags"]
+    assert r.loc["pt", "passes"]  # informational: the pair is still estimated
+    # a user's levels file without the column: the SMILES decides
+    bare = rank_candidates(lv.drop(columns=["representation", "chain_fit_quality"]), resolve_partner("y6"))
+    assert bare.set_index("id")["representation"].to_dict() == {"pt": "polymer", "pf": "polymer", "m": "molecule"}

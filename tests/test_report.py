@@ -652,3 +652,11 @@ def test_calibration_table_quotes_sigma_near_and_far_from_the_shipped_models(rep
     html = _calibration_table(stats)
     assert "σ far [eV]" in html and html.count("<tr>") == 1 + len(stats)
     assert "not recorded" in _calibration_table({"ip": {"n": 3, "loo_mae_ev": 0.1, "loo_rmse_ev": 0.1}})
+
+
+def test_a_polymer_candidate_is_marked_in_the_tables():
+    from screen.report.tables import _candidate_cell
+
+    cell = _candidate_cell("pt", "a polymer", "donor", None, "polymer")
+    assert ">polymer<" in cell and "chain limit" in cell
+    assert ">polymer<" not in _candidate_cell("m", "a molecule", "donor", None, "molecule")

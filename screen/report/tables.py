@@ -201,8 +201,9 @@ def _header(cells) -> str:
     return "<thead><tr>" + "".join(out) + "</tr></thead>"
 
 
-def _candidate_cell(ident: str, name, role, smiles=None) -> str:
-    """Id (bold), name and role badge; the SMILES, shortened, when given (not None)."""
+def _candidate_cell(ident: str, name, role, smiles=None, representation="") -> str:
+    """Id (bold), name, role badge and, for a polymer repeat unit, a 'polymer (chain limit)' badge; the SMILES,
+    shortened, when given (not None)."""
     name = text(name)
     parts = [f'<span class="cid">{esc(ident)}</span>']
     if name and name != ident:
@@ -210,6 +211,9 @@ def _candidate_cell(ident: str, name, role, smiles=None) -> str:
     badge = _role_badge(role)
     if badge:
         parts.append(badge)
+    if text(representation).strip().lower() == "polymer":
+        parts.append('<span class="role role-other" title="polymer repeat unit: levels at the chain limit of its '
+                     'oligomers">polymer</span>')
     if smiles is not None:
         smi = text(smiles)
         if smi:
@@ -220,8 +224,9 @@ def _candidate_cell(ident: str, name, role, smiles=None) -> str:
 def _candidate_cells(frame: pd.DataFrame, ids: list[str], with_smiles: bool) -> list[str]:
     """:func:`_candidate_cell` of each row."""
     smiles = _cells(frame, "smiles") if with_smiles else [None] * len(frame)
-    return [_candidate_cell(i, n, r, s)
-            for i, n, r, s in zip(ids, _cells(frame, "name"), _cells(frame, "role"), smiles)]
+    return [_candidate_cell(i, n, r, s, p)
+            for i, n, r, s, p in zip(ids, _cells(frame, "name"), _cells(frame, "role"), smiles,
+                                     _cells(frame, "representation"))]
 
 
 def _level_columns(frame: pd.DataFrame) -> list[list[str]]:
