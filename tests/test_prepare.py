@@ -200,7 +200,8 @@ REPEAT_UNITS = [
 def test_repeat_units_accepted_with_stable_canonical_form(smiles: str, canonical: str) -> None:
     row = _one(smiles)
     assert (row.status, row.reason, row.representation) == ("ok", "", "polymer")
-    assert row.smiles == canonical and row.note == ""  # attachment labels removed silently
+    assert row.smiles == canonical  # attachment labels removed silently; a cis/trans mark on the bond to * is noted
+    assert row.note.startswith("attachment_stereo:") if "/" in smiles else row.note == ""
     assert KEY_RE.match(row.key) and row.key == structure_key(canonical)
     again = _one(row.smiles)  # the canonical form validates to itself
     assert (again.smiles, again.key, again.representation) == (row.smiles, row.key, "polymer")
@@ -848,3 +849,14 @@ def test_metal_complex_as_dot_separated_fragments_is_reported_by_its_metal() -> 
     # a non-metal outside the allowed set is reported first too, without the metal wording
     te = _one("CC.[Te]", PrepareOptions(allowed_elements=("H", "C")))
     assert te.reason == "unsupported_element" and te.error.startswith("element(s) not allowed: Te")
+
+
+def test_a_cis_trans_mark_on_the_attachment_bond_is_noted_not_lost_silently() -> None:
+    # a new user's PPV-type units: the mark on the bond to * cannot reach the oligomers (they replace *), and the
+    # cis and trans units were computed alike without a word; now the row says so and how to keep the mark
+    cis = _one("[*]/C=C\\c1ccc([*])cc1")
+    assert cis["status"] == "ok" and cis["representation"] == "polymer"
+    assert "attachment_stereo:" in cis["note"] and "[*]c1ccc(/C=C/c2ccc([*])cc2)cc1" in cis["note"]
+    inside = _one("[*]c1ccc(/C=C/c2ccc([*])cc2)cc1")
+    assert inside["status"] == "ok" and "attachment_stereo" not in inside["note"]
+    assert "attachment_stereo" not in _one("C/C=C/C")["note"]  # molecules: marks are kept, nothing to say

@@ -26,7 +26,7 @@ from __future__ import annotations
 
 from rdkit import Chem
 
-__all__ = ["ATTACHMENT_REASONS", "classify", "clear_attachment_labels", "describe"]
+__all__ = ["ATTACHMENT_REASONS", "classify", "clear_attachment_labels", "describe", "attachment_stereo_note"]
 
 #: Reason codes of :func:`classify`, in the order they are checked.
 ATTACHMENT_REASONS: tuple[str, ...] = (
@@ -177,3 +177,28 @@ def clear_attachment_labels(mol: Chem.Mol) -> None:
             for prop in ("atomLabel", "dummyLabel", "_MolFileRLabel"):
                 if atom.HasProp(prop):
                     atom.ClearProp(prop)
+
+
+def attachment_stereo_note(mol: Chem.Mol) -> str:
+    """A note when a double bond's cis/trans mark is written on the bond to an attachment point ('' otherwise).
+
+    The oligomers replace the attachment points by the bond to the next unit or a cap, and the mark written on
+    the bond to ``*`` does not survive that: the oligomers get an unspecified double bond and the conformer
+    search decides (trans, in practice). Written inside the unit, the mark is kept.
+
+    Examples
+    --------
+    >>> attachment_stereo_note(Chem.MolFromSmiles("[*]/C=C\\c1ccc([*])cc1"))[:19]
+    'attachment_stereo: '
+    >>> attachment_stereo_note(Chem.MolFromSmiles("[*]c1ccc(/C=C/c2ccc([*])cc2)cc1"))
+    ''
+    """
+    directional = (Chem.BondDir.ENDUPRIGHT, Chem.BondDir.ENDDOWNRIGHT)  # '/' and '\\' as parsed
+    marked = [b.GetIdx() for b in mol.GetBonds()
+              if b.GetBondDir() in directional
+              and 0 in (b.GetBeginAtom().GetAtomicNum(), b.GetEndAtom().GetAtomicNum())]
+    if not marked:
+        return ""
+    return (f"attachment_stereo: a cis/trans mark is written on the bond to an attachment point ({len(marked)}), which the oligomers replace; they are computed without it (the conformer search "
+            "decides, in practice trans). To keep it, write the repeat unit so that the double bond lies inside, "
+            "e.g. [*]c1ccc(/C=C/c2ccc([*])cc2)cc1")

@@ -25,6 +25,7 @@ from rdkit import Chem, rdBase
 from screen.chem import canonical_form
 from screen.prepare.attachments import (
     ATTACHMENT_REASONS,
+    attachment_stereo_note,
     classify,
     clear_attachment_labels,
 )
@@ -460,6 +461,10 @@ def _check_structure(smiles: str, options: PrepareOptions) -> _Checked:
         charge = _check_charge(mol, options, result.notes)
         _check_open_shell(mol, options, charge)
         _strip_labels(mol, options, result.notes)
+        if result.representation == "polymer":
+            note = attachment_stereo_note(mol)
+            if note:
+                result.notes.append(note)
         # canonical_form round-trips through SMILES so that the canonical form is exactly what
         # RDKit's default parser makes of it (stereo flags made meaningless by isotope
         # stripping are dropped, and re-validating the canonical SMILES gives the same key).
