@@ -327,9 +327,10 @@ def extrapolate(n, e, per_unit: int = 1, rms_tol_ev: float = 0.05, form: str = "
             usable[name] = (_clipped(value, e[-1], bound), rms)
     if not usable:
         spread = abs(bound - e[-1]) if math.isfinite(bound) else math.nan
+        why = (f"only {len(n)} oligomer(s): a saturating fit needs at least three" if len(n) < 3 else
+               f"no saturating fit within {rms_tol_ev:g} eV RMS and between the longest oligomer and the 1/n limit")
         return ChainFit("longest", float(e[-1]), math.nan, float(spread), "poor", len(n), candidates,
-                        f"no saturating fit within {rms_tol_ev:g} eV RMS and between the longest oligomer and "
-                        "the 1/n limit: the longest oligomer's value is used")
+                        f"{why}: the longest oligomer's value is used")
     method = first if first in usable else "exponential"
     value, rms = usable[method]
     others = [v for k, (v, _) in usable.items() if k != method]

@@ -153,6 +153,9 @@ ATTACHMENT_CASES = [
     ("*=Cc1ccc(C=*)cc1", "attachment_bond",
      "the attachment point * at atom 0 is joined by a double bond: each attachment point of a "
      "repeat unit must be joined to the unit by exactly one single bond"),
+    ("*:c1ccc(*)cc1", "attachment_bond",
+     "the attachment point * at atom 0 is joined by an aromatic bond: each attachment point of a "
+     "repeat unit must be joined to the unit by exactly one single bond"),
     ("c1ccc2c(c1)*c1ccccc1*2", "attachment_bond",
      "the attachment point * at atom 6 has 2 bonds: each attachment point of a repeat unit "
      "must be joined to the unit by exactly one single bond"),

@@ -73,7 +73,7 @@ def _bond_problem(atom: Chem.Atom) -> str | None:
     if kind != Chem.BondType.SINGLE:
         name = {Chem.BondType.DOUBLE: "double", Chem.BondType.TRIPLE: "triple",
                 Chem.BondType.AROMATIC: "aromatic"}.get(kind, str(kind).lower())
-        return f"is joined by a {name} bond"
+        return f"is joined by {'an' if name[:1] in 'aeiou' else 'a'} {name} bond"
     return None
 
 
