@@ -121,10 +121,31 @@ def _one_polymer(pkey: str, group: pd.DataFrame, elec: pd.DataFrame, quantities:
                      "value": fit.limit_ev, "method": fit.method, "rms": fit.rms_ev, "spread": fit.spread_ev,
                      "quality": fit.quality, **{k: fit.candidates.get(k) for k in _SHORT}})
     row.update(_longest_spread(found[ok], n))
+    row.update(_longest_structure(found[ok], n))
     row["chain_fit"] = " ".join(methods)
     row["chain_fit_quality"] = "poor" if poor else "good"
     row["_poor"] = poor
     return row, side
+
+
+#: structure columns a polymer row takes from its longest computed oligomer (what was computed, side chains cut)
+LONGEST_OLIGOMER_COLUMNS = ("smiles_computed", "n_atoms", "truncated_chains", "truncated_groups")
+
+
+def _longest_structure(found: pd.DataFrame, n: np.ndarray) -> dict:
+    """:data:`LONGEST_OLIGOMER_COLUMNS` of the longest computed oligomer (those the electronic table has).
+
+    Examples
+    --------
+    >>> f = pd.DataFrame({"smiles_computed": ["Cc1cccs1", "Cc1ccc(-c2cccs2)s1"], "n_atoms": [12, 19]})
+    >>> _longest_structure(f, np.array([1, 2]))
+    {'smiles_computed': 'Cc1ccc(-c2cccs2)s1', 'n_atoms': 19}
+    """
+    if not len(found):
+        return {}
+    last = found.iloc[int(np.argmax(n))]
+    return {c: (last[c].item() if hasattr(last[c], "item") else last[c]) for c in LONGEST_OLIGOMER_COLUMNS
+            if c in found.columns}
 
 
 def _longest_spread(found: pd.DataFrame, n: np.ndarray) -> dict:
