@@ -180,7 +180,7 @@ def clear_attachment_labels(mol: Chem.Mol) -> None:
 
 
 def attachment_stereo_note(mol: Chem.Mol) -> str:
-    """A note when a double bond's cis/trans mark is written on the bond to an attachment point ('' otherwise).
+    r"""A note when a double bond's cis/trans mark is written on the bond to an attachment point ('' otherwise).
 
     The oligomers replace the attachment points by the bond to the next unit or a cap, and the mark written on
     the bond to ``*`` does not survive that: the oligomers get an unspecified double bond and the conformer
