@@ -662,8 +662,37 @@ def _calibrate_command(cfg, diffs, config_file=None) -> str:
     words += [f"--set {shlex.quote(f'{d.field}={_show(d.here)}')}" for d in diffs if d.is_setting]
     if any(d.field == "calibration.reference" for d in diffs):
         words.append(f"--reference {shlex.quote(str(cfg['calibration']['reference']))}")
-    words.append(f"--install {shlex.quote(str(cfg['calibration']['models']))}")
+    words.append(f"--install {shlex.quote(str(_install_folder(cfg)))}")
     return " ".join(words)
+
+
+def _install_folder(cfg) -> Path:
+    """Where a calibration of the run's own settings should go: ``calibration.models`` when that holds no
+    calibration of this protocol id yet, else a sibling folder (``<models>-custom``), so that installing it
+    never replaces the shipped calibration of the same protocol id (polymer settings and reference data are
+    not part of the id).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> from screen.config import Config
+    >>> empty = Config.of({"calibration": {"models": tempfile.mkdtemp()}})
+    >>> _install_folder(empty) == Path(empty["calibration"]["models"])  # no calibration of this protocol there yet
+    True
+    """
+    models = Path(str(cfg["calibration"]["models"]))
+    return models.with_name(f"{models.name}-custom") if (models / cfg.protocol_id).is_dir() else models
+
+
+def _run_with(cfg) -> str:
+    """What the run then needs to find a calibration installed by :func:`_install_folder` ('' when it is the default)."""
+    import shlex
+
+    target = _install_folder(cfg)
+    if target == Path(str(cfg["calibration"]["models"])):
+        return ""
+    return (f", and add --set calibration.models={shlex.quote(str(target))} to the run (a folder of its own: "
+            "the shipped calibration of this protocol stays as it is)")
 
 
 def check_calibration(cfg, out, config_file=None) -> None:
@@ -703,8 +732,9 @@ def check_calibration(cfg, out, config_file=None) -> None:
             any(d.field == "calibration.reference" for d in diffs):
         ways.append(f"refit from the stored raw values in seconds: dascreen calibrate --from-raw "
                     f"{shlex.quote(str(folder))} --reference {shlex.quote(str(cfg['calibration']['reference']))} "
-                    f"--install {shlex.quote(str(cfg['calibration']['models']))}")
-    ways.append(f"calibrate these settings once, then run again: {_calibrate_command(cfg, diffs, config_file)}")
+                    f"--install {shlex.quote(str(_install_folder(cfg)))}{_run_with(cfg)}")
+    ways.append(f"calibrate these settings once, then run again: {_calibrate_command(cfg, diffs, config_file)}"
+                f"{_run_with(cfg)}")
     ways.append("calibrate within this run: add --set calibration.refit=always")
     stop = "calibration.refit is 'never'" if refit == "never" else "nothing was computed"
     raise ConfigError(f"{text}; {stop}. Either\n" + "\n".join(f"  - {w}" for w in ways))

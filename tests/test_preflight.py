@@ -224,3 +224,23 @@ def test_opting_in_calibrates_within_the_run_and_says_what_it_costs(capsys, tmp_
     assert rc == 0 and len(calls) == 1 and calls[0]["polymer"]["n_max"] == 2
     assert "polymer.n_max: 2 here, 4 in the shipped calibration" in err and "hours" in err
     assert "This run does that first" in err
+
+
+def test_a_calibration_of_other_settings_is_never_suggested_into_the_shipped_folder(tmp_path):
+    # polymer settings and reference data are not part of the protocol id: installing their calibration into the
+    # folder of the shipped one would replace it, so the refusal suggests a folder of its own and how to use it
+    from pathlib import Path
+
+    import screen
+    from screen.config import Config
+    from screen.errors import ConfigError
+    from screen.preflight import check_calibration
+
+    models = Path(screen.__file__).resolve().parents[1] / "models"
+    cfg = Config.of({"polymer": {"n_max": 2}, "calibration": {"models": str(models)}})
+    with pytest.raises(ConfigError) as err:
+        check_calibration(cfg, tmp_path / "out")
+    text = str(err.value)
+    assert f"--install {models.with_name('models-custom')}" in text
+    assert f"--set calibration.models={models.with_name('models-custom')}" in text
+    assert f"--install {models} " not in text + " "
