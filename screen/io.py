@@ -559,6 +559,15 @@ def batch_progress(out_dir: str | os.PathLike, batch: str = "candidates", stage:
     return {"total": total, "done": done, "elapsed_s": elapsed, "eta_s": eta}
 
 
+def _oligomer_count(path: Path) -> tuple[int, int]:
+    """``(oligomer rows, distinct polymers)`` of a prepared ``oligomers.csv``; ``(0, 0)`` without one."""
+    if not path.is_file():
+        return 0, 0
+    with path.open(encoding="utf-8", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    return len({r.get("key") for r in rows}), len({r.get("polymer_key") for r in rows})
+
+
 def run_progress(out_dir: str | os.PathLike) -> dict:
     """Progress of every batch of a run folder (candidates, reference, partners), counted per stage.
 
@@ -569,7 +578,9 @@ def run_progress(out_dir: str | os.PathLike) -> dict:
         ``electronic`` (molecules finished by each stage), ``done`` (=
         ``electronic``), ``steps`` (structures + electronic, out of ``2 × total``),
         ``prepared`` (whether any batch is prepared), ``started`` (Unix time of
-        the first prepared shard, NaN without one).
+        the first prepared shard, NaN without one), ``oligomers`` and ``polymers``
+        (oligomer structures among ``total`` and the polymers they belong to, from
+        each batch's ``prepared/oligomers.csv``).
 
     Examples
     --------
@@ -579,8 +590,12 @@ def run_progress(out_dir: str | os.PathLike) -> dict:
     """
     work = Path(out_dir) / "work"
     batches = sorted(p.parent.name for p in work.glob("*/prepared")) if work.is_dir() else []
-    out = {"total": 0, "structures": 0, "electronic": 0, "prepared": bool(batches), "started": float("nan")}
+    out = {"total": 0, "structures": 0, "electronic": 0, "prepared": bool(batches), "started": float("nan"),
+           "oligomers": 0, "polymers": 0}
     for batch in batches:
+        olig, poly = _oligomer_count(work / batch / "prepared" / "oligomers.csv")
+        out["oligomers"] += olig
+        out["polymers"] += poly
         for stage in ("structures", "electronic"):
             p = batch_progress(out_dir, batch, stage)
             out[stage] += p["done"]

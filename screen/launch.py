@@ -293,6 +293,8 @@ def _watch(out: Path, stop: threading.Event, label: str, stream=None, tick: floa
             based = True
         note = "levels, ranking and report ..." if p["total"] and p["done"] >= p["total"] else \
             f"structures {p['structures']}/{p['total']}"
+        if p.get("polymers"):  # the count is of structures: a polymer is several oligomers
+            note += f"; {p['oligomers']} of them oligomers of {p['polymers']} polymer(s)"
         progress.report(p["done"], p["total"], note=note)
     try:
         p = run_progress(out)

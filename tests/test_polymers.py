@@ -128,3 +128,16 @@ def test_atom_limit_counts_the_truncated_oligomer(tmp_path):
     prepare(src, tmp_path / "cut", polymer=polymer, truncate_min_carbons=6)
     assert list(read_oligomers(tmp_path / "uncut" / "oligomers.csv").n) == [1, 2]
     assert list(read_oligomers(tmp_path / "cut" / "oligomers.csv").n) == [1, 2, 3, 4]
+
+
+def test_progress_says_how_many_structures_are_oligomers(tmp_path):
+    # a polymer is several structures: the progress count is of structures, and says how many are oligomers
+    from screen.io import run_progress
+
+    batch = tmp_path / "out" / "work" / "candidates"
+    batch.mkdir(parents=True)
+    prepared = _batch(batch, [("pt", "[*]c1ccc([*])s1"), ("thio", "c1ccsc1")])
+    p = run_progress(tmp_path / "out")
+    assert p["prepared"] and (p["oligomers"], p["polymers"]) == (4, 1)
+    assert p["total"] >= 4  # thiophene itself is the n = 1 oligomer: one structure for both rows
+    assert (prepared / "oligomers.csv").is_file()
