@@ -232,7 +232,7 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     with np.errstate(invalid="ignore"):
         near = np.subtract(cap, voc) < margin
     if near.any():
-        voc[near] = np.fmin(voc[near], sq_voc(cap[near]))
+        voc[near] = np.fmin(voc[near], voc_limit(cap[near], sq_voc))
     ok &= voc > 0
     scale = model.offset_scale_ev
     if scale > 0:  # dl, dh become the negated yields -(1 - exp(-Δ/Δ0)) = expm1(-Δ/Δ0)

@@ -631,6 +631,13 @@ def calibration_text(cfg, out=None) -> str | None:
     Names every setting that differs from the closest shipped calibration, e.g.
     ``polymer.n_max: 2 here, 4 in the shipped calibration``.
     """
+    gap = _calibration_gap(cfg, out)
+    return None if gap is None else gap[0]
+
+
+def _calibration_gap(cfg, out=None) -> tuple[str, Path | None, list[CalibrationDifference]] | None:
+    """:func:`calibration_text` with the closest folder and the differences it was written from (``None`` when a
+    calibration matches)."""
     from screen.calibrate import find_models
 
     if find_models(cfg) is not None or (out is not None and fitted_in(out, cfg)):
@@ -649,7 +656,7 @@ def calibration_text(cfg, out=None) -> str | None:
         why = f"protocol {pid} has no shipped calibration; the closest, {folder.name}, differs: {listed}"
     return (f"no calibration in {models} matches this run's settings ({why}). Calibrating them computes the "
             f"{reference_count(cfg)} reference materials first (polymers as oligomer series) — hours on a few "
-            "cores, once per set of settings")
+            "cores, once per set of settings"), folder, diffs
 
 
 def _calibrate_command(cfg, diffs, config_file=None) -> str:
@@ -716,10 +723,10 @@ def check_calibration(cfg, out, config_file=None) -> None:
     refit = cfg["calibration"]["refit"]
     if refit == "always":
         return
-    text = calibration_text(cfg, out if refit == "auto" else None)
-    if text is None:
+    gap = _calibration_gap(cfg, out if refit == "auto" else None)
+    if gap is None:
         return
-    folder, diffs = calibration_differences(cfg)
+    text, folder, diffs = gap
     settings = [d for d in diffs if d.is_setting]
     ways = []
     if settings:
