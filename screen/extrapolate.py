@@ -34,7 +34,13 @@ cosine for levels) when it converges with an RMS
 residual ≤ ``rms_tol_ev`` and its limit lies between the longest oligomer's value
 and the 1/n limit (a saturating fit must not overshoot the non-saturating one);
 else the exponential fit under the same two conditions; else the longest
-oligomer's own value, flagged ``poor``. A limit outside that interval by no more
+oligomer's own value, flagged ``poor`` -- unless the series has stopped moving (each of
+its last two steps within half of ``rms_tol_ev``, 0.025 eV by default): then the
+longest oligomer's value *is* the chain limit within that tolerance, the method is
+``converged`` and the quality ``good`` (no saturating form can be fitted to a flat
+series of SCF-noise steps such as −9.909, −9.905, −9.903, −9.904 eV, the orbital
+HOMO of a benzodithiophene–benzothiadiazole oligomer series, and such a series used
+to be flagged ``poor``). A limit outside that interval by no more
 than its fit's own RMS residual is consistent with it and is moved onto its nearer
 end, so the choice does not jump when the data move by less than the fit resolves
 (a series whose exponential limit lay 0.004 eV beyond the 1/n limit, RMS 0.018 eV,
@@ -105,7 +111,8 @@ class ChainFit:
     Attributes
     ----------
     method : str
-        ``kuhn``, ``cosine``, ``exponential`` or ``longest`` (no fit usable).
+        ``kuhn``, ``cosine``, ``exponential``, ``converged`` (no fit usable, but the last two steps are
+        within half of the RMS tolerance: the longest oligomer's value) or ``longest`` (no fit usable).
     limit_ev : float
         Extrapolated value E(∞) [eV].
     rms_ev : float
@@ -114,7 +121,8 @@ class ChainFit:
         |difference| to the other saturating fit, or to the longest oligomer when
         only one fit converged [eV].
     quality : str
-        ``good``, or ``poor``: no saturating fit accepted (``method`` is ``longest``), or an
+        ``good``, or ``poor``: no saturating fit accepted on a series still moving (``method`` is
+        ``longest``), or an
         accepted fit on a series that has not started to saturate (module docstring).
     n_points : int
         Oligomers in the series.
@@ -327,6 +335,8 @@ def extrapolate(n, e, per_unit: int = 1, rms_tol_ev: float = 0.05, form: str = "
             usable[name] = (_clipped(value, e[-1], bound), rms)
     if not usable:
         spread = abs(bound - e[-1]) if math.isfinite(bound) else math.nan
+        if _converged(e, rms_tol_ev / 2.0):  # same value and spread as 'longest'; only the label differs
+            return ChainFit("converged", float(e[-1]), math.nan, spread, "good", len(n), candidates)
         why = (f"only {len(n)} oligomer(s): a saturating fit needs at least three" if len(n) < 3 else
                f"no saturating fit within {rms_tol_ev:g} eV RMS and between the longest oligomer and the 1/n limit")
         return ChainFit("longest", float(e[-1]), math.nan, float(spread), "poor", len(n), candidates,
@@ -344,6 +354,17 @@ def extrapolate(n, e, per_unit: int = 1, rms_tol_ev: float = 0.05, form: str = "
                   "no better than that")
     return ChainFit(method, float(value), float(rms), float(spread), "poor" if reason else "good", len(n),
                     candidates, reason)
+
+
+def _converged(e: np.ndarray, tol_ev: float) -> bool:
+    """True when the series has at least three points and each of its last two steps is within ``tol_ev``.
+
+    Examples
+    --------
+    >>> _converged(np.array([-9.909, -9.905, -9.903, -9.904]), 0.025), _converged(np.array([3.0, 2.6, 2.4]), 0.025)
+    (True, False)
+    """
+    return len(e) >= 3 and bool(np.all(np.abs(np.diff(e[-3:])) <= tol_ev))
 
 
 def _reversal(e: np.ndarray) -> float:

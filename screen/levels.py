@@ -20,8 +20,10 @@ own fit (:func:`screen.extrapolate.extrapolate`, ``per_unit`` = the repeat unit'
 with the cosine form first, the gap and descriptors with Kuhn's), and the polymer row's
 raw columns hold those limits, so the calibration treats a polymer like any
 molecule. Added columns: ``chain_n_max`` (longest oligomer computed),
-``chain_fit`` (method per quantity, e.g. ``ip:cos ea:exp … gap:kuhn``), ``chain_fit_quality``
-(``good``/``poor`` over :data:`QUALITY_QUANTITIES`: no saturating fit accepted, or a fit on a series that
+``chain_fit`` (method per quantity, e.g. ``ip:cos ea:exp … gap:kuhn``; ``conv`` for a series that has
+stopped moving, :func:`screen.extrapolate.extrapolate`), ``chain_fit_quality``
+(``good``/``poor`` over :data:`QUALITY_QUANTITIES`: no saturating fit accepted on a series still moving, or a
+fit on a series that
 has not started to saturate; a poor fit adds a ``chain_fit_poor`` item to ``note``) and
 ``chain_spread_<quantity>`` (:attr:`~screen.extrapolate.ChainFit.spread_ev`, which
 the calibration adds to the σ); the conformer-spread columns are those of the
@@ -81,6 +83,8 @@ CHAIN_COLUMNS = ["representation", "chain_n_max", "chain_fit", "chain_fit_qualit
 SIDECAR_COLUMNS = ["polymer_key", "polymer_id", "quantity", "n", "key", "smiles", "status", "value", "method",
                    "rms", "spread", "quality", "kuhn", "cosine", "exponential", "inverse", "longest"]
 _SHORT = {"kuhn": "kuhn", "cosine": "cos", "exponential": "exp", "inverse": "inv", "longest": "longest"}
+#: short method names in ``chain_fit`` (a fit's candidates are the keys of _SHORT; ``converged`` is a method only)
+_METHOD_SHORT = {**_SHORT, "converged": "conv"}
 #: quantities on an arbitrary zero (levels): extrapolated with the cosine (tight-binding) form first, the others
 #: (the orbital gap and the positive exchange/Coulomb/overlap descriptors) with Kuhn's (screen.extrapolate.FORMS)
 LEVEL_QUANTITIES = ("xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_ip_film_ev", "xtb_ea_film_ev")
@@ -114,7 +118,7 @@ def _one_polymer(pkey: str, group: pd.DataFrame, elec: pd.DataFrame, quantities:
                           per_unit=int(group["per_unit"].iloc[0]), rms_tol_ev=rms_tol_ev,
                           form="level" if q in LEVEL_QUANTITIES else "gap")
         row[q], row[f"chain_spread_{q}"] = fit.limit_ev, fit.spread_ev
-        methods.append(f"{_short(q)}:{_SHORT[fit.method]}")
+        methods.append(f"{_short(q)}:{_METHOD_SHORT[fit.method]}")
         if fit.quality != "good" and q in QUALITY_QUANTITIES:
             poor.append((_short(q), fit.method))
         side.append({"polymer_key": pkey, "polymer_id": pid, "quantity": q, "n": "inf", "status": "ok",

@@ -141,3 +141,19 @@ def test_a_series_that_turns_back_gets_the_turn_as_its_spread():
     assert fit.spread_ev == pytest.approx(0.030, abs=1e-9) and fit.quality == "good"
     big = extrapolate(n, [1.733, 1.320, 1.420, 1.316], per_unit=3)
     assert big.quality == "poor" and big.reason.startswith("not monotonic") and big.spread_ev == pytest.approx(0.100)
+
+
+def test_a_series_that_has_stopped_moving_is_converged_not_poor():
+    # the orbital HOMO and gap of the demo polymer KF-P01 (dimethoxy benzodithiophene / benzothiadiazole, n = 1-4,
+    # the project's own GFN2-xTB values on force-field geometries): steps of SCF-noise size that no saturating form
+    # fits; the tetramer's value is the chain limit within the tolerance, and the fit is not flagged
+    homo = extrapolate([1, 2, 3, 4], [-9.909026, -9.904856, -9.902685, -9.904189], form="level")
+    assert (homo.method, homo.quality, homo.reason) == ("converged", "good", "")
+    assert homo.limit_ev == pytest.approx(-9.904189) and homo.spread_ev < 0.025
+    gap = extrapolate([1, 2, 3, 4], [1.224852, 1.122635, 1.105095, 1.106154], per_unit=3)
+    assert gap.quality == "good" and gap.limit_ev == pytest.approx(1.106154, abs=0.02)
+    # the same turn with a last step above half the tolerance still moves: the longest value, flagged poor
+    moving = extrapolate([1, 2, 3, 4], [1.724207, 1.506942, 1.463695, 1.551651], per_unit=3)
+    assert (moving.method, moving.quality) == ("longest", "poor")
+    # two points are never called converged
+    assert extrapolate([1, 2], [1.0, 1.001]).method == "longest"
