@@ -309,7 +309,7 @@ def per_molecule_from_demo(path: Path, n: int) -> tuple[float, int]:
     from screen.electronic import ElectronicOptions, molecule_numbers_positions, vertical_levels
     from screen.structures import StructureOptions, build_structure
 
-    smiles = pd.read_csv(path, dtype=str, keep_default_na=False)["smiles"].head(n).tolist()
+    smiles = [s for s in pd.read_csv(path, dtype=str, keep_default_na=False)["smiles"] if "*" not in s][:n]
     engine = ElectronicOptions().make_engine()
     times = []
     for smi in smiles:
@@ -347,7 +347,7 @@ def main(argv=None) -> int:
 
     load_before = os.getloadavg()[0]
     print(f"{os.cpu_count()} CPUs; load average {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
-    pool = pd.read_csv(args.demo, dtype=str, keep_default_na=False)["smiles"].tolist()
+    pool = [s for s in pd.read_csv(args.demo, dtype=str, keep_default_na=False)["smiles"] if "*" not in s]
     work = Path(tempfile.mkdtemp(prefix="dascreen-rerank-"))
     try:
         levels = synthetic_levels(args.n, args.seed, pool)

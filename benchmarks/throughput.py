@@ -1,6 +1,6 @@
 """Benchmark: pipeline throughput of ``dascreen run`` on N molecules.
 
-The candidate list is the 30 rows of ``candidates/demo.csv``, extended for
+The candidate list is the 30 molecule rows of ``candidates/demo.csv`` (not its polymer rows), extended for
 N > 30 by deterministic substituent variants of those molecules: a methyl,
 fluoro or methoxy group replaces the hydrogen of one aromatic C–H (two of
 them once the single swaps run out). Positions and groups are drawn with a
@@ -116,6 +116,7 @@ def candidate_table(n: int, seed: int = SEED) -> pd.DataFrame:
     """
     RDLogger.DisableLog("rdApp.*")
     demo = pd.read_csv(DEMO, dtype=str, keep_default_na=False)
+    demo = demo[~demo["smiles"].str.contains("*", regex=False)]  # the 30 molecules; the polymer rows are series
     rows, seen = [], set()
     parents = []
     for rec in demo.to_dict("records"):

@@ -805,12 +805,14 @@ def test_atomic_write_cleans_up_on_failure(tmp_path: Path, monkeypatch: pytest.M
 def test_demo_candidates_all_valid() -> None:
     frame = read_candidates(ROOT / "candidates" / "demo.csv")
     out = validate(frame)
-    assert len(out) == 30
-    assert list(out.status) == ["ok"] * 30, out[out.status != "ok"][["id", "error"]]
+    assert len(out) == 32
+    assert list(out.status) == ["ok"] * 32, out[out.status != "ok"][["id", "error"]]
     assert out.id.is_unique and out.key.is_unique
     assert out.heavy_atoms.between(20, 70).all()
     roles = out.role.value_counts().to_dict()
-    assert roles["donor"] == 18 and roles["acceptor"] == 12
+    assert roles["donor"] == 20 and roles["acceptor"] == 12
+    # two polymer donors, written as repeat units, so the demo runs the oligomer / chain-limit route end to end
+    assert out.loc[out.representation == "polymer", "id"].tolist() == ["KF-P01", "KF-P02"]
     assert "notes" in out.columns
 
 
