@@ -7,8 +7,9 @@ this script refits the whole calibration on its stored raw values
 (``models/<protocol-id>/reference_raw.csv``, seconds) three ways,
 
 * ``none``: no IC term;
-* ``optical``: the term in the optical-gap model only (what ships,
-  :data:`screen.calibration.optical.CLASS_TERMS`);
+* ``optical``: the term in the optical-gap model only;
+* ``optical + Y``: that and a second term for the Y6/BTP family among the IC acceptors
+  (:func:`screen.endgroup.y_core_smiles`; what ships, :data:`screen.calibration.optical.CLASS_TERMS`);
 * ``every model``: the term in every calibration model, as the fullerenes' ``cage`` term,
 
 and prints the LOO MAE of the film HOMO, LUMO and optical gap over all film
@@ -40,7 +41,8 @@ from screen.calibrate import fit_all  # noqa: E402
 from screen.calibration.reference import read_reference  # noqa: E402
 from screen.endgroup import ic_end_smiles  # noqa: E402
 
-VARIANTS = {"none": ({}, {}), "optical": ({}, {"ic_end": 2}), "every model": ({"ic_end": 2}, {})}
+VARIANTS = {"none": ({}, {}), "optical": ({}, {"ic_end": 2}), "optical + Y": ({}, {"ic_end": 2, "y_core": 2}),
+            "every model": ({"ic_end": 2}, {})}
 
 
 def refit(raw: pd.DataFrame, sets: dict, variant: str) -> dict:
@@ -79,12 +81,13 @@ def main(argv=None) -> int:
             d = _gap_rows(g)
             nfa = d["family"].str.startswith("non-fullerene")
             ic, other = d[d["ic"]], d[nfa & ~d["ic"]]
-            coef = dict(zip(g["model"]["features"], g["model"]["coef"])).get("ic_end", np.nan)
+            coefs = dict(zip(g["model"]["features"], g["model"]["coef"]))
+            coef, y_coef = coefs.get("ic_end", np.nan), coefs.get("y_core", np.nan)
             print(f"  {variant:12s} HOMO {m['homo_film']['loo_mae_ev']:.3f}  LUMO {m['lumo_film']['loo_mae_ev']:.3f}  "
                   f"gap {g['loo_mae_ev']:.3f} | IC acceptors {ic['err'].abs().mean():.3f} / {ic['err'].mean():+.3f} "
                   f"({len(ic)}), other NFAs {other['err'].abs().mean():.3f} / {other['err'].mean():+.3f} "
-                  f"({len(other)}) | term {coef:+.3f} eV, red shift {g['red_shift_ev']:.2f} eV")
-            if variant == "optical":
+                  f"({len(other)}) | term {coef:+.3f} eV (Y6/BTP {y_coef:+.3f}), red shift {g['red_shift_ev']:.2f} eV")
+            if variant.startswith("optical"):
                 print("    IC acceptors, film optical gap LOO − measured [eV]: " + ", ".join(
                     f"{n.split(' (')[0]} {e:+.2f}" for n, e in zip(ic["name"], ic["err"])))
     return 0

@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 
 from screen.cage import cage_smiles
-from screen.endgroup import ic_end_smiles
+from screen.endgroup import ic_end_smiles, y_core_smiles
 from screen.errors import CalculationError
 
 __all__ = ["CalibrationError", "LinearLevelModel", "FilmShift", "DERIVED", "CLASS_TERMS", "class_terms",
@@ -61,6 +61,8 @@ def _structure_class(name: str, member):
 _cage = _structure_class("cage", cage_smiles)
 #: dicyanomethylene-indanone end groups (:func:`screen.endgroup.ic_end_smiles`)
 _ic_end = _structure_class("ic_end", ic_end_smiles)
+#: IC-ended acceptors with a fused benzothiadiazole core, the Y6/BTP family (:func:`screen.endgroup.y_core_smiles`)
+_y_core = _structure_class("y_core", y_core_smiles)
 
 
 #: derived features: name → (function of the frame, the raw columns it uses with their coefficients)
@@ -80,6 +82,8 @@ DERIVED = {
     # dicyanomethylene-indanone end groups of A-D-A acceptors: an optical-gap error of their own (screen.endgroup);
     # a class term of the optical-gap model only (screen.calibration.optical.CLASS_TERMS)
     "ic_end": (_ic_end, {}),
+    # the Y6/BTP family among them: a film red shift larger still (screen.endgroup); optical-gap model only
+    "y_core": (_y_core, {}),
 }
 
 #: class terms added to every feature set of a fit whose rows hold at least this many members of the class
