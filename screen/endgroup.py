@@ -55,7 +55,7 @@ from functools import lru_cache
 
 from rdkit import Chem, RDLogger
 
-__all__ = ["IC_END_SMARTS", "ic_end_smiles", "Y_CORE_SMARTS", "y_core_smiles"]
+__all__ = ["IC_END_SMARTS", "ic_end_smiles", "Y_CORE_SMARTS", "y_core_smiles", "smiles_has"]
 
 #: the end group: malononitrile-ylidene and carbonyl on the five-membered ring of an indanone (any benzo substituents)
 IC_END_SMARTS = "N#CC(C#N)=C1C(=[#6])C(=O)c2ccccc12"
@@ -65,19 +65,21 @@ Y_CORE_SMARTS = "[#6;R2]1:[#6;R2]:[#6;R2]2:[#7]:[#16]:[#7]:[#6;R2]:2:[#6;R2]:[#6
 _Y_CORE = Chem.MolFromSmarts(Y_CORE_SMARTS)
 
 
+def smiles_has(smiles: str, pattern: Chem.Mol) -> bool:
+    """True when ``smiles`` parses and contains the substructure ``pattern`` (RDKit's parse warnings silenced)."""
+    RDLogger.DisableLog("rdApp.*")
+    mol = Chem.MolFromSmiles(str(smiles))
+    return bool(mol is not None and mol.HasSubstructMatch(pattern))
+
+
 @lru_cache(maxsize=65536)
 def ic_end_smiles(smiles: str) -> bool:
     """True when the structure carries at least one IC end group (False when the SMILES does not parse); cached."""
-    RDLogger.DisableLog("rdApp.*")
-    mol = Chem.MolFromSmiles(str(smiles))
-    return bool(mol is not None and mol.HasSubstructMatch(_PATTERN))
+    return smiles_has(smiles, _PATTERN)
 
 
 @lru_cache(maxsize=65536)
 def y_core_smiles(smiles: str) -> bool:
     """True for an IC-ended acceptor with a fully fused benzothiadiazole in its core (the Y6/BTP family; module
     docstring); False otherwise and when the SMILES does not parse. Cached."""
-    if not ic_end_smiles(smiles):
-        return False
-    mol = Chem.MolFromSmiles(str(smiles))
-    return bool(mol is not None and mol.HasSubstructMatch(_Y_CORE))
+    return ic_end_smiles(smiles) and smiles_has(smiles, _Y_CORE)

@@ -21,6 +21,7 @@ import pandas as pd
 
 from screen.cage import cage_smiles
 from screen.endgroup import ic_end_smiles, y_core_smiles
+from screen.quinoidal import tt_unit_smiles
 from screen.errors import CalculationError
 
 __all__ = ["CalibrationError", "LinearLevelModel", "FilmShift", "DERIVED", "CLASS_TERMS", "class_terms",
@@ -63,6 +64,12 @@ _cage = _structure_class("cage", cage_smiles)
 _ic_end = _structure_class("ic_end", ic_end_smiles)
 #: IC-ended acceptors with a fused benzothiadiazole core, the Y6/BTP family (:func:`screen.endgroup.y_core_smiles`)
 _y_core = _structure_class("y_core", y_core_smiles)
+_tt_unit = _structure_class("tt_polymer", tt_unit_smiles)
+
+
+def _tt_polymer(frame: pd.DataFrame) -> np.ndarray:
+    """1.0 for a polymer row with a thieno[3,4-b]thiophene unit (:mod:`screen.quinoidal`), else 0.0."""
+    return _polymer(frame) * _tt_unit(frame)
 
 
 #: derived features: name → (function of the frame, the raw columns it uses with their coefficients)
@@ -84,6 +91,10 @@ DERIVED = {
     "ic_end": (_ic_end, {}),
     # the Y6/BTP family among them: a film red shift larger still (screen.endgroup); optical-gap model only
     "y_core": (_y_core, {}),
+    # thieno[3,4-b]thiophene polymers (PTB7 family): quinoidal backbones more delocalised in the film than the
+    # extrapolated one-chain oligomers; a candidate term of the film HOMO model and a class term of the optical-gap
+    # model (screen.quinoidal)
+    "tt_polymer": (_tt_polymer, {}),
 }
 
 #: class terms added to every feature set of a fit whose rows hold at least this many members of the class
