@@ -33,7 +33,7 @@ from rdkit import Chem, rdBase
 
 from screen.errors import InputError
 
-__all__ = ["canonical_form", "canonical_smiles", "structure_key", "KEY_RECIPE"]
+__all__ = ["canonical_form", "canonical_smiles", "structure_key", "smiles_has", "KEY_RECIPE"]
 
 #: How :func:`structure_key` is computed (recorded in sidecar files).
 KEY_RECIPE = "m + sha1(canonical isomeric SMILES, UTF-8)[:16]"
@@ -127,3 +127,16 @@ def structure_key(canonical_smiles: str) -> str:
     'm8448043181b9a6b0'
     """
     return "m" + hashlib.sha1(canonical_smiles.encode("utf-8")).hexdigest()[:16]
+
+
+def smiles_has(smiles: str, pattern: Chem.Mol) -> bool:
+    """True when ``smiles`` parses and contains the substructure ``pattern`` (RDKit's parse messages silenced).
+
+    Examples
+    --------
+    >>> smiles_has("c1ccsc1", Chem.MolFromSmarts("[#16]")), smiles_has("not a smiles", Chem.MolFromSmarts("[#16]"))
+    (True, False)
+    """
+    with rdBase.BlockLogs():
+        mol = Chem.MolFromSmiles(str(smiles))
+    return bool(mol is not None and mol.HasSubstructMatch(pattern))

@@ -53,9 +53,11 @@ from __future__ import annotations
 
 from functools import lru_cache
 
-from rdkit import Chem, RDLogger
+from rdkit import Chem
 
-__all__ = ["IC_END_SMARTS", "ic_end_smiles", "Y_CORE_SMARTS", "y_core_smiles", "smiles_has"]
+from screen.chem import smiles_has
+
+__all__ = ["IC_END_SMARTS", "ic_end_smiles", "Y_CORE_SMARTS", "y_core_smiles"]
 
 #: the end group: malononitrile-ylidene and carbonyl on the five-membered ring of an indanone (any benzo substituents)
 IC_END_SMARTS = "N#CC(C#N)=C1C(=[#6])C(=O)c2ccccc12"
@@ -63,13 +65,6 @@ _PATTERN = Chem.MolFromSmarts(IC_END_SMARTS)
 #: a 2,1,3-benzothiadiazole whose six benzo carbons are each in two rings (fused into a ladder core)
 Y_CORE_SMARTS = "[#6;R2]1:[#6;R2]:[#6;R2]2:[#7]:[#16]:[#7]:[#6;R2]:2:[#6;R2]:[#6;R2]:1"
 _Y_CORE = Chem.MolFromSmarts(Y_CORE_SMARTS)
-
-
-def smiles_has(smiles: str, pattern: Chem.Mol) -> bool:
-    """True when ``smiles`` parses and contains the substructure ``pattern`` (RDKit's parse warnings silenced)."""
-    RDLogger.DisableLog("rdApp.*")
-    mol = Chem.MolFromSmiles(str(smiles))
-    return bool(mol is not None and mol.HasSubstructMatch(pattern))
 
 
 @lru_cache(maxsize=65536)

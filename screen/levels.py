@@ -52,6 +52,7 @@ True
 from __future__ import annotations
 
 from collections.abc import Iterable
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -64,6 +65,7 @@ from screen.io import read_csv_checked
 CONTRACT_COLUMNS = LEVELS_CONTRACT_COLUMNS
 
 __all__ = ["CONTRACT_COLUMNS", "CALIBRATED_COLUMNS", "CHAIN_QUANTITIES", "CHAIN_COLUMNS", "SIDECAR_COLUMNS",
+           "sidecar_path",
            "assemble", "chain_limits", "summarise", "read_levels", "LEVELS_MIN_COLUMNS"]
 
 _EXTRA = ["name", "role", "key", "duplicate_of", "heavy_atoms", "reason"]
@@ -82,6 +84,20 @@ CHAIN_COLUMNS = ["representation", "chain_n_max", "chain_fit", "chain_fit_qualit
 #: columns of the sidecar ``levels.oligomers.csv`` (one row per polymer, quantity and n; n = ``inf`` for the limit)
 SIDECAR_COLUMNS = ["polymer_key", "polymer_id", "quantity", "n", "key", "smiles", "status", "value", "method",
                    "rms", "spread", "quality", "kuhn", "cosine", "exponential", "inverse", "longest"]
+
+
+def sidecar_path(levels_path) -> Path:
+    """``levels.csv`` → ``levels.oligomers.csv``: where the per-n table of a levels file's polymers is written.
+
+    Examples
+    --------
+    >>> sidecar_path("out/levels.csv").name
+    'levels.oligomers.csv'
+    """
+    path = Path(levels_path)
+    return path.with_name(path.name.removesuffix(".csv") + ".oligomers.csv")
+
+
 _SHORT = {"kuhn": "kuhn", "cosine": "cos", "exponential": "exp", "inverse": "inv", "longest": "longest"}
 #: short method names in ``chain_fit`` (a fit's candidates are the keys of _SHORT; ``converged`` is a method only)
 _METHOD_SHORT = {**_SHORT, "converged": "conv"}

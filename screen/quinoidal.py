@@ -35,7 +35,7 @@ from functools import lru_cache
 
 from rdkit import Chem
 
-from screen.endgroup import smiles_has
+from screen.chem import smiles_has
 
 __all__ = ["TT_SMARTS", "tt_unit_smiles"]
 

@@ -222,11 +222,6 @@ _GEOMETRY_WORDS = {"computed": "computed by the structures stage: the geometry t
                                  "oligomer geometry was found beside the levels file or in the results store)"}
 
 
-def _is_repeat_unit(mol) -> bool:
-    """True for a molecule with attachment points (``*`` atoms): a polymer repeat unit."""
-    return mol is not None and any(a.GetAtomicNum() == 0 for a in mol.GetAtoms())
-
-
 def _shortlist_mol(row: dict, geometries: dict, keys: dict, oligomers: dict):
     """The molecule of one shortlist row, where its coordinates come from, its key and its oligomer.
 
@@ -238,6 +233,8 @@ def _shortlist_mol(row: dict, geometries: dict, keys: dict, oligomers: dict):
     """
     from rdkit import Chem
     from rdkit.Chem import rdDepictor
+
+    from screen.oligomers import count_attachments
 
     key = keys.get(row.get("smiles"), "")
     if key in geometries:
@@ -251,7 +248,7 @@ def _shortlist_mol(row: dict, geometries: dict, keys: dict, oligomers: dict):
     mol = Chem.MolFromSmiles(row["smiles"]) if row["smiles"] else None
     if mol is not None:
         rdDepictor.Compute2DCoords(mol)
-    return mol, "2d_polymer" if _is_repeat_unit(mol) else "2d", key, None
+    return mol, "2d_polymer" if mol is not None and count_attachments(mol) else "2d", key, None
 
 
 def _set_sd_props(mol, row: dict, scale: str, key: str, source: str, oligomer) -> None:
@@ -365,7 +362,9 @@ def shortlist_notice(short: dict, levels_path) -> str:
 
 def _oligomer_table(levels_path: Path, meta_in: dict | None) -> Path | None:
     """The per-n table of the polymers (``<levels>.oligomers.csv``): beside the levels file, else as recorded."""
-    beside = levels_path.with_name(levels_path.name.removesuffix(".csv") + ".oligomers.csv")
+    from screen.levels import sidecar_path
+
+    beside = sidecar_path(levels_path)
     recorded = (meta_in or {}).get("oligomers")
     for cand in [beside] + ([Path(recorded), levels_path.parent / recorded] if recorded else []):
         if cand.is_file():

@@ -71,7 +71,7 @@ def _compute(args, cfg):
 
 def _levels(args, cfg):
     from screen.io import write_csv, write_json
-    from screen.levels import summarise
+    from screen.levels import sidecar_path, summarise
 
     levels, sidecar = _read_computed(args.manifest, args.electronic, cfg)
     if args.models:
@@ -80,7 +80,7 @@ def _levels(args, cfg):
         models = load_models(args.models, cfg)
         levels = apply_models(levels, models, scale=cfg["levels"]["scale"])
     write_csv(levels, args.out)
-    side_path = _oligomer_sidecar(args.out)
+    side_path = sidecar_path(args.out)
     if len(sidecar):
         write_csv(sidecar, side_path)
     elif side_path.is_file():
@@ -90,14 +90,6 @@ def _levels(args, cfg):
             "oligomers": str(side_path) if len(sidecar) else None}
     write_json(meta, f"{args.out}.meta.json" if not args.meta else args.meta)
     print(json.dumps(summarise(levels)))
-
-
-def _oligomer_sidecar(levels_path):
-    """``levels.csv`` → ``levels.oligomers.csv`` (per-n values and chain fits of the polymers)."""
-    from pathlib import Path
-
-    path = Path(levels_path)
-    return path.with_name(path.name.removesuffix(".csv") + ".oligomers.csv")
 
 
 def _read_computed(manifest_path, electronic_paths, cfg):
