@@ -127,8 +127,25 @@ def role_from_levels(homo, lumo, partner_homo: float, partner_lumo: float) -> tu
     return as_donor, as_acceptor
 
 
+#: the end group of the fused-ring acceptors: a dicyanomethylene on a five-membered ketone ring fused to an aromatic
+#: ring (the indanone "IC" of ITIC and Y6, halogenated ones, and its thiophene analogue in ITCC)
+IC_TYPE_END_SMARTS = "N#CC(C#N)=C1C(=[#6])C(=O)[a]:[a]1"
+_IC_TYPE_END = None
+
+
 def acceptor_class_of(smiles) -> str:
-    """Acceptor class of a structure, as used by the device set: fullerene, polymer or nfa-fused.
+    """Acceptor class of a structure, by the rule the device set's classes were labelled with.
+
+    The classes of ``models/reference/devices.csv`` (``devices.md``) select the fitted energy
+    loss and fill factor, so a candidate is classed by the same definition:
+
+    * ``'polymer'``: a repeat unit (``*`` atoms);
+    * ``'fullerene'``: at least 60 carbons and 30 rings (a closed carbon cage, bare or with adducts);
+    * ``'nfa-fused'``: an A–D–A / A–DA′D–A acceptor of the ITIC / Y-series type — dicyanomethylene-indanone-type
+      end groups (:data:`IC_TYPE_END_SMARTS`) on a fused ring system of at least five rings;
+    * ``'nfa-other'``: any other small molecule (rylene diimides, IDTBR-type rhodanine acceptors, IC-ended
+      acceptors with a non-fused core, ...);
+    * ``''``: no structure (the pooled loss).
 
     Parameters
     ----------
@@ -138,14 +155,12 @@ def acceptor_class_of(smiles) -> str:
     Returns
     -------
     str
-        ``'polymer'`` (``*`` atoms), ``'fullerene'`` (at least 60 carbons and
-        at least 30 rings: a closed carbon cage, bare or with adducts), ``'nfa-fused'`` (a small molecule with a fused
-        ring system of at least five rings) or ``''`` (unknown: the pooled loss).
+        The class, as above.
 
     Examples
     --------
     >>> acceptor_class_of("[*]c1ccc([*])s1"), acceptor_class_of("c1ccccc1"), acceptor_class_of("")
-    ('polymer', '', '')
+    ('polymer', 'nfa-other', '')
     """
     text = "" if smiles is None else str(smiles).strip()
     if not text or text.lower() == "nan":
@@ -158,11 +173,15 @@ def acceptor_class_of(smiles) -> str:
         mol = Chem.MolFromSmiles(text)
     if mol is None:
         return ""
+    global _IC_TYPE_END
     carbons = sum(1 for a in mol.GetAtoms() if a.GetAtomicNum() == 6)
     ring = mol.GetRingInfo()
     if carbons >= 60 and ring.NumRings() >= 30:
         return "fullerene"
-    return "nfa-fused" if _largest_fused_system(ring) >= 5 else ""
+    if _IC_TYPE_END is None:
+        _IC_TYPE_END = Chem.MolFromSmarts(IC_TYPE_END_SMARTS)
+    fused_core = _largest_fused_system(ring) >= 5
+    return "nfa-fused" if fused_core and mol.HasSubstructMatch(_IC_TYPE_END) else "nfa-other"
 
 
 def _largest_fused_system(ring) -> int:
