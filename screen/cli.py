@@ -236,11 +236,14 @@ def cmd_rank(args) -> int:
     """Rank a levels file against one or more partners (a partner matrix for several); a new smiles:
     partner is computed by the workflow first."""
     from screen.partners import partner_kind, split_partners
-    from screen.preflight import check_out_folder, check_partners
+    from screen.preflight import check_out_folder, check_partners, check_rank_sets
     from screen.rank_io import check_before_computing, run_rank
 
     out = Path(args.out).resolve()
     check_out_folder(out, args.out)
+    partners = split_partners(args.partner or [])
+    if not any(partner_kind(spec) == "smiles" for spec in partners):  # a smiles: partner is computed: they apply
+        check_rank_sets(args.set, "rank")
     levels = Path(args.levels) if args.levels else out / "levels.csv"
     if levels.is_dir():
         raise InputError(f"levels file {str(levels)!r} is a folder; give a levels file with --levels FILE (a CSV "
@@ -248,10 +251,10 @@ def cmd_rank(args) -> int:
     if not levels.is_file():
         raise InputError(f"levels file {str(levels)!r} does not exist; run `dascreen run` first or pass "
                          "--levels FILE (columns id,homo_ev,lumo_ev,gap_opt_ev,scale)")
+    note = None
     if args.config is None and (out / "config.yaml").is_file():
         args.config = str(out / "config.yaml")  # the run's own settings, so smiles: partners share its protocol
-        print(f"dascreen: using the run's configuration {args.config}")
-    partners = split_partners(args.partner or [])
+        note = f"dascreen: using the run's configuration {args.config}"  # said once the checks have passed
     check_partners(partners, levels)
     # out: a smiles: partner is computed into this folder (not the one a copied run's config.yaml names)
     cfg = _load(args, {**_models_override(args.models), "out": str(out),
@@ -261,6 +264,8 @@ def cmd_rank(args) -> int:
     partners = partners or [cfg["partner"]]
     if any(partner_kind(spec) == "smiles" for spec in partners):  # refused now, not after computing the partner
         check_before_computing(levels, partners, cfg)
+    if note:
+        print(note)
     paths, replaced = [], []
     try:
         for spec in partners:
@@ -463,7 +468,8 @@ def _add_rank(sub) -> None:
                         "scale works, e.g. your own cyclic-voltammetry levels")
     p.add_argument("--out", default=DEFAULT_OUT, help="output folder (default: ./%(default)s)")
     p.add_argument("--role", choices=["donor", "acceptor"], default=None,
-                   help="role of rows without a role column value (default: the partner's complement)")
+                   help="role of rows without a role column value (default: the partner's complement; such a row is "
+                        "flagged role_from_levels or role_unsupported by what its levels support)")
     p.add_argument("--sort-by", choices=["pce_pct", "p_above_target"], default=None,
                    help="ranking key after the pass/fail split (default {default:rank.sort_by})")
     p.add_argument("--target-pce", type=_percent, default=None, metavar="PCT",

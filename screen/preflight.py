@@ -35,7 +35,7 @@ import yaml
 
 from screen.errors import ConfigError, InputError
 
-__all__ = ["SchemaField", "schema_fields", "allowed_text", "unit_of", "check_sets", "check_candidates",
+__all__ = ["SchemaField", "schema_fields", "allowed_text", "unit_of", "check_sets", "check_rank_sets", "check_candidates",
            "check_out_folder", "check_partners", "check_partner_scales", "check_out", "config_text",
            "CalibrationDifference", "calibration_differences", "calibration_text", "check_calibration", "fitted_in",
            "reference_count"]
@@ -268,6 +268,44 @@ def check_sets(items) -> dict:
 
 
 # --------------------------------------------------------------------------- inputs
+
+#: the config sections a re-ranking of computed levels applies, per command; every other section sets how levels
+#: are computed (or belongs to the other mode) and would be ignored
+RANK_SECTIONS = {"rank": ("device", "rank", "partner", "store", "strict"), "dyecell": ("dyecell", "store", "strict")}
+
+
+def check_rank_sets(items, command: str) -> None:
+    """Refuse ``--set`` items that a re-ranking of computed levels cannot apply.
+
+    ``dascreen rank`` (and ``dascreen dyecell --levels``) rank levels that are already computed: a
+    setting of how levels are computed (``structures``, ``electronic``, ``levels.scale``, …) or of
+    the other mode would be silently ignored, and the user would believe it was applied.
+
+    Examples
+    --------
+    >>> check_rank_sets(["device.eqe=0.7", "rank.seed=3"], "rank")
+    >>> check_rank_sets(["structures.geometry=xtb"], "rank")
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: --set structures.geometry=xtb: `dascreen rank` ranks levels that are already computed and cannot apply it (structures.* sets how levels are computed); compute new levels with `dascreen run CANDIDATES --out NEW_FOLDER --set structures.geometry=xtb` and rank those; here --set takes device.*, rank.*, partner, store.*, strict
+    """
+    allowed = RANK_SECTIONS[command]
+    ignored = [item for item in items or [] if item.split("=", 1)[0].strip().split(".")[0] not in allowed]
+    if not ignored:
+        return
+    sections = sorted({item.split("=", 1)[0].strip().split(".")[0] for item in ignored})
+    what = ", ".join(f"{s}.*" for s in sections)
+    other = "dyecell" if command == "rank" else "rank"
+    if set(sections) <= set(RANK_SECTIONS[other]) - {"store", "strict"}:
+        why = f"{what} belongs to `dascreen {other}`"
+    else:
+        why = f"{what} sets how levels are computed"
+    fix = (f"compute new levels with `dascreen run CANDIDATES --out NEW_FOLDER {' '.join('--set ' + i for i in ignored)}` "
+           "and rank those" if "computed" in why else f"use `dascreen {other}` for it")
+    takes = ", ".join(f"{s}.*" if s not in ("partner", "strict") else s for s in allowed)
+    raise ConfigError(f"--set {', '.join(ignored)}: `dascreen {command}` ranks levels that are already computed and "
+                      f"cannot apply it ({why}); {fix}; here --set takes {takes}")
+
 
 _SDF = (".sdf", ".sd", ".sdf.gz", ".sd.gz")
 

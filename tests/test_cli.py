@@ -429,3 +429,29 @@ def test_sigterm_stops_the_workflow_and_its_jobs_like_ctrl_c(tmp_path):
         for pid in (proc.pid, engine_pid, job_pid):
             if _running(pid):
                 os.kill(pid, signal.SIGKILL)
+
+
+# --------------------------------------------------------------------------- settings a re-ranking cannot apply
+
+@pytest.mark.parametrize("item, said", [
+    ("structures.geometry=xtb", "structures.* sets how levels are computed"),
+    ("levels.scale=gas", "levels.* sets how levels are computed"),
+    ("dyecell.mediator=iodide", "dyecell.* belongs to `dascreen dyecell`"),
+])
+def test_rank_refuses_a_setting_it_cannot_apply(levels, tmp_path, capsys, item, said):
+    # before, `dascreen rank --set levels.scale=gas` exited 0 with film-scale numbers in the same folder
+    out = tmp_path / "out"
+    rc, stdout, err = _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60",
+                           "--set", "device.eqe=0.7", "--set", item)
+    assert rc == 2 and said in err and f"--set {item}" in err and "device.eqe" not in err.split(":")[1]
+    assert len(err.strip().splitlines()) == 1 and not stdout and not (out / "rankings").exists()
+
+
+def test_dyecell_rerank_refuses_a_device_setting(tmp_path, capsys):
+    dyes = tmp_path / "dyes.csv"
+    dyes.write_text("id,e_ox_v_nhe,e00_ev\nLD-X,1.10,2.10\n", encoding="utf-8")
+    rc, stdout, err = _cli(capsys, "dyecell", "--levels", str(dyes), "--out", str(tmp_path / "out"),
+                           "--set", "device.eqe=0.7")
+    assert rc == 2 and "device.* belongs to `dascreen rank`" in err and len(err.strip().splitlines()) == 1
+    assert _cli(capsys, "dyecell", "--levels", str(dyes), "--out", str(tmp_path / "out"),
+                "--set", "dyecell.ff=0.65")[0] == 0

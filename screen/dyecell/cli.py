@@ -314,7 +314,7 @@ def cmd_dyecell(args) -> int:
     from screen.cli_shared import EXIT_ERROR, EXIT_OK, _load, _print_summary
     from screen.dyecell.library import resolve_material
     from screen.dyecell.stage import record_inputs, run_dyecell
-    from screen.preflight import check_calibration, check_candidates, check_out, check_out_folder
+    from screen.preflight import check_calibration, check_candidates, check_out, check_out_folder, check_rank_sets
 
     if args.list:
         _print_libraries()
@@ -325,6 +325,8 @@ def cmd_dyecell(args) -> int:
                           "existing levels or dye file")
     out = Path(args.out).resolve()
     check_out_folder(out, args.out)
+    if not (args.candidates or args.refit):  # a re-ranking: settings of how levels are computed cannot apply
+        check_rank_sets(args.set, "dyecell")
     extra = {"dyecell": {"oxide": args.oxide, "mediator": args.mediator, "target_pce_pct": args.target_pce}}
     aside, source = None, None
     if args.candidates:
