@@ -279,6 +279,12 @@ MODEL_TEXT = {
     "scharber": ('Published Scharber rule (reference model): V<sub>oc</sub> = (LUMO<sub>acc</sub> \u2212 '
                  'HOMO<sub>don</sub>)/e \u2212 loss; J<sub>sc</sub> = EQE \u00b7 q \u00b7 photon flux above '
                  'the gap; PCE = V<sub>oc</sub>J<sub>sc</sub>FF/P<sub>in</sub>.'),
+    # the Voc rule with photons above the smaller gap of the pair: not what the paper did
+    "scharber-both": ('Scharber V<sub>oc</sub> rule with both materials absorbing (not the published model, which counts '
+                      'the donor\u2019s absorption only: add <code>--set device.absorber=donor</code> for it): '
+                      'V<sub>oc</sub> = (LUMO<sub>acc</sub> \u2212 HOMO<sub>don</sub>)/e \u2212 loss; J<sub>sc</sub> = '
+                      'EQE \u00b7 q \u00b7 photon flux above the smaller optical gap; '
+                      'PCE = V<sub>oc</sub>J<sub>sc</sub>FF/P<sub>in</sub>.'),
 }
 #: what the absorber setting means, as shown on the device card
 ABSORBER_TEXT = {
@@ -288,9 +294,21 @@ ABSORBER_TEXT = {
 
 
 def model_label(meta: dict) -> str:
-    """Plain-words name of the device model recorded in ``meta["device"]`` (HTML)."""
+    """Plain-words name of the device model recorded in ``meta["device"]`` (HTML).
+
+    The Scharber rule is called the published model only with donor-only absorption, its own assumption.
+
+    Examples
+    --------
+    >>> model_label({"device": {"model": "scharber", "absorber": "donor"}})[:31]
+    'Published Scharber rule (refere'
+    >>> model_label({"device": {"model": "scharber", "absorber": "both"}})[:63]
+    'Scharber V<sub>oc</sub> rule with both materials absorbing (not'
+    """
     dev = get(meta, "device", default={}) or {}
     model = text(dev.get("model")) or "scharber"
+    if model == "scharber" and text(dev.get("absorber")) == "both":
+        model = "scharber-both"
     return MODEL_TEXT.get(model, esc(model))
 
 
