@@ -57,7 +57,10 @@ def _print_summary(levels_csv: Path) -> dict:
     bad = levels[levels["status"] != "ok"]
     for _, row in bad.head(20).iterrows():
         ident = row["id"].replace("\n", "\\n")[:60]
-        print(f"  {row['status']:8s} {ident}: {row['error'][:160]}")
+        reason = row["error"]
+        if len(reason) > 160:  # cut at a word, and say where the whole reason is
+            reason = reason[:150].rsplit(" ", 1)[0] + " … (whole reason in levels.csv)"
+        print(f"  {row['status']:8s} {ident}: {reason}")
     if len(bad) > 20:
         print(f"  ... and {len(bad) - 20} more (see levels.csv)")
     return counts

@@ -77,6 +77,7 @@ from screen.schema import resolve, section_defaults
 from screen.viability import acceptor_class_of, role_from_levels
 
 __all__ = [
+    "p_aligned", "ALIGNMENT_UNCERTAIN",
     "RANKING_COLUMNS",
     "EXTRA_COLUMNS",
     "FLAG_ORDER",
@@ -97,7 +98,7 @@ _DEFAULTS = section_defaults("rank")
 _ROUND = 4
 #: columns rounded to :data:`_ROUND` decimals
 _ROUNDED = ("homo_ev", "lumo_ev", "gap_opt_ev", "delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff",
-            "pce_pct", "pce_sigma_pct", "p_above_target", *SIGMA_COLUMNS)
+            "pce_pct", "pce_sigma_pct", "p_above_target", "p_aligned", *SIGMA_COLUMNS)
 #: device numbers copied from :meth:`DeviceModel.evaluate` (empty where there is no pair)
 _DEVICE_NUMBERS = ("delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct")
 
@@ -429,8 +430,55 @@ def _spread(model: DeviceModel, pair: _Pair, pair_ok: np.ndarray, options: RankO
     return mc
 
 
+#: ``p_aligned`` strictly between these: the verdict on the alignment has a one-in-four chance or more of being the
+#: other way, flag ``alignment_uncertain`` (a band of ±1σ, 0.16–0.84, flagged most pairs against a non-fullerene
+#: acceptor at today's level σ of 0.2–0.3 eV, and the flag told nothing apart)
+ALIGNMENT_UNCERTAIN = (0.25, 0.75)
+
+
+def p_aligned(pair_levels, pair_sigmas, min_lumo: float, min_homo: float, check_homo: bool) -> np.ndarray:
+    """Probability that both offsets clear their thresholds, for normal, independent level errors.
+
+    ΔLUMO = LUMO_D − LUMO_A must exceed ``min_lumo`` and ΔHOMO = HOMO_D − HOMO_A must exceed ``min_homo`` when
+    the model checks it, else 0 (type II is always required); each offset's σ is the root sum of squares of its
+    two levels' σ. With σ = 0 the probability is 1 or 0. NaN where a level is missing.
+
+    Parameters
+    ----------
+    pair_levels, pair_sigmas : tuple of array_like
+        Donor HOMO, LUMO, gap, acceptor HOMO, LUMO, gap and their σ [eV] (:data:`screen.device.PAIR_LEVELS`).
+    min_lumo, min_homo : float
+        Offset thresholds [eV].
+    check_homo : bool
+        Whether ΔHOMO is held to ``min_homo``.
+
+    Examples
+    --------
+    >>> lv = ([-5.3], [-3.5], [1.8], [-5.6], [-4.0], [1.4])
+    >>> p_aligned(lv, ([0.0] * 6), 0.0, 0.0, True).tolist()
+    [1.0]
+    >>> s = ([0.2], [0.2], [0.1], [0.2], [0.2], [0.1])  # ΔHOMO 0.3, ΔLUMO 0.5 eV, each σ 0.28 eV: 0.855 × 0.961
+    >>> round(float(p_aligned(lv, s, 0.0, 0.0, True)[0]), 2)
+    0.82
+    """
+    from scipy.special import ndtr
+
+    d_homo, d_lumo, _, a_homo, a_lumo, _ = (np.asarray(v, dtype=float) for v in pair_levels)
+    s_d_homo, s_d_lumo, _, s_a_homo, s_a_lumo, _ = (np.nan_to_num(np.asarray(v, dtype=float)) for v in pair_sigmas)
+
+    def prob(delta, threshold, sigma):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z = np.where(sigma > 0, (delta - threshold) / np.where(sigma > 0, sigma, 1.0),
+                         np.where(delta > threshold, np.inf, -np.inf))
+        return np.where(np.isnan(delta), np.nan, ndtr(z))
+
+    p_lumo = prob(d_lumo - a_lumo, min_lumo, np.hypot(s_d_lumo, s_a_lumo))
+    p_homo = prob(d_homo - a_homo, min_homo if check_homo else 0.0, np.hypot(s_d_homo, s_a_homo))
+    return p_lumo * p_homo
+
+
 def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, partner: Partner,
-                options: RankOptions) -> dict[str, np.ndarray]:
+                options: RankOptions, aligned: np.ndarray) -> dict[str, np.ndarray]:
     """One boolean mask per flag code (:data:`screen.flags.FLAG_ORDER`): device flags of the rows with a
     pair, the gap window, the heavy-atom limit and the role flags."""
     n = cand.ids.size
@@ -462,6 +510,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "gap_out_of_window": gap_out,
         "too_many_heavy_atoms": heavy_out,
         "heavy_atoms_unknown": heavy_unknown,
+        "alignment_uncertain": pair_ok & (aligned > ALIGNMENT_UNCERTAIN[0]) & (aligned < ALIGNMENT_UNCERTAIN[1]),
         "far_from_reference": _far_from_reference(lv),
         "chain_fit_poor": _text(lv, "chain_fit_quality") == "poor",
         "lone_pair_homo": _lone_pair_homo(lv),
@@ -563,6 +612,7 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
         "acceptor_class": np.where(pair_ok, pd.Series(dev["acceptor_class"]).astype(str), ""),
         "absorber_gap_ev": np.where(pair_ok, np.asarray(dev["absorber_gap_ev"], dtype=float), np.nan),
         "representation": _representation(lv),
+        "p_aligned": dev["p_aligned"],
     })
     for col in _ROUNDED:
         out[col] = out[col].round(_ROUND)
@@ -685,7 +735,10 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
                  _acceptor_classes(lv, ~roles.is_donor & roles.paired))
     dev = model.evaluate(*pair.levels, acceptor_class=pair.acceptor_class)
     dev["acceptor_class"] = pair.acceptor_class
-    masks = _flag_masks(lv, cand, roles, dev, partner, options)
+    dev["p_aligned"] = np.where(roles.paired, p_aligned(pair.levels, pair.sigmas, model.value("min_delta_lumo_ev"),
+                                                         model.value("min_delta_homo_ev"), model.check_homo_offset),
+                                np.nan)
+    masks = _flag_masks(lv, cand, roles, dev, partner, options, dev["p_aligned"])
     spread = _spread(model, pair, roles.paired & _viable(masks), options)
     out = _sort_ranking(_ranking_frame(lv, cand, roles, partner, dev, spread, masks, model, options),
                         options.sort_by)

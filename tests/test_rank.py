@@ -85,7 +85,9 @@ def test_sub_threshold_lumo_offset_is_flagged_and_fails(partner):
     by = r.set_index("id")
     assert by.loc["low", "delta_lumo_ev"] == pytest.approx(0.2)
     assert _flags(r, "low") == {"lumo_offset_low"} and not by.loc["low", "passes"]
-    assert _flags(r, "edge") == set() and by.loc["edge", "passes"]
+    # exactly at the threshold: it passes, and with the partner's σ the alignment is a coin toss (information)
+    assert _flags(r, "edge") == {"alignment_uncertain"} and by.loc["edge", "passes"]
+    assert by.loc["edge", "p_aligned"] == pytest.approx(0.5, abs=0.01)
     assert list(r["id"]) == ["edge", "low"]  # not viable after viable, whatever its levels
     assert np.isnan(by.loc["low", "pce_pct"]) and not by.loc["low", "viable"]
     assert by.loc["low", "reason"].startswith("LUMO offset to the partner below 0.30 eV")
@@ -249,6 +251,25 @@ def test_sigma_zero_gives_probability_zero_or_one(partner):
     assert ((r["p_above_target"] > 0) & (r["p_above_target"] < 1)).any() and (r["pce_sigma_pct"] > 0).all()
 
 
+def test_alignment_probability_and_its_flag(partner):
+    # ΔHOMO 0.30 / 0.02 / -0.02 eV against Y6 (HOMO -5.65 eV, Y6's own σ from the library) with a candidate σ of
+    # 0.20 eV: far above the threshold it is likely aligned and unflagged, near it uncertain either way
+    y6 = resolve_partner("y6")
+    lv = _levels([{"id": f"d{i}", "homo_ev": y6.homo_ev + dh, "lumo_ev": -3.5, "gap_opt_ev": 1.8, "role": "donor",
+                   "homo_sigma_ev": 0.2, "lumo_sigma_ev": 0.2, "gap_opt_sigma_ev": 0.1}
+                  for i, dh in enumerate([0.6, 0.02, -0.02])])
+    by = rank_candidates(lv, y6).set_index("id")
+    assert by.loc["d0", "p_aligned"] > 0.75 and "alignment_uncertain" not in by.loc["d0", "flags"]
+    for ident in ("d1", "d2"):
+        assert 0.25 < by.loc[ident, "p_aligned"] < 0.75 and "alignment_uncertain" in by.loc[ident, "flags"]
+    assert by.loc["d1", "viable"] and not by.loc["d2", "viable"]  # the verdict itself still follows the levels
+    assert by.loc["d1", "p_aligned"] > by.loc["d2", "p_aligned"]
+    # without any σ the probability is 0 or 1 and nothing is flagged
+    bare = rank_candidates(lv.drop(columns=["homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev"]), y6,
+                           options=RankOptions(partner_sigma=False)).set_index("id")
+    assert set(bare["p_aligned"]) == {0.0, 1.0} and not bare["flags"].str.contains("alignment_uncertain").any()
+
+
 def test_gap_window_and_heavy_atom_filters(partner):
     lv = _levels([
         {"id": "wide", "smiles": "c1ccccc1", "homo_ev": -6.0, "lumo_ev": -2.5, "gap_opt_ev": 3.5},
@@ -256,7 +277,7 @@ def test_gap_window_and_heavy_atom_filters(partner):
         {"id": "nosmiles", "smiles": "", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5},
     ], role="donor")
     r = rank_candidates(lv, partner, options=RankOptions(max_heavy_atoms=10))
-    assert _flags(r, "wide") == {"gap_out_of_window"}
+    assert _flags(r, "wide") == {"gap_out_of_window", "alignment_uncertain"}  # ΔHOMO 0.1 eV against its σ
     assert _flags(r, "big") == {"too_many_heavy_atoms"}
     assert _flags(r, "nosmiles") == {"heavy_atoms_unknown"} and r.set_index("id").loc["nosmiles", "passes"]
     lv["heavy_atoms"] = [6, 14, 5]

@@ -191,8 +191,10 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
     head.append('<th class="js-sort">Dye</th>')
     headers = _headers(meta)
     head += [f'<th class="js-sort num-h" data-type="num">{h}</th>' for h, _ in headers]
-    head += [f'<th class="js-sort num-h" data-type="num">P(PCE &gt; {target} %)</th>', "<th>Anchor</th>",
-             "<th>Viability and flags</th>"]
+    head += [f'<th class="js-sort num-h" data-type="num">P(PCE &gt; {target} %)</th>',
+             '<th class="js-sort num-h" data-type="num" title="fraction of samples of E(S\u207a/S) and '
+             'E\u2080\u208b\u2080 within their \u03c3 that inject and regenerate">P(viable)</th>',
+             "<th>Anchor</th>", "<th>Viability and flags</th>"]
     body = []
     for _, r in rows.iterrows():
         cells = [f'<td class="rank" data-value="{data_value(r.get("rank"))}">{esc(r.get("rank"))}</td>']
@@ -210,6 +212,7 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
             cls = ' class="pce"' if col == "pce_pct" else ""
             cells.append(f'<td{cls} data-value="{data_value(val)}">{html}</td>')
         cells.append(f'<td data-value="{data_value(r.get("p_above_target"))}">{fmt(r.get("p_above_target"), 2)}</td>')
+        cells.append(f'<td data-value="{data_value(r.get("p_viable"))}">{fmt(r.get("p_viable"), 2)}</td>')
         cells.append(f'<td class="extra">{esc(r.get("anchors")) or "none found"}</td>')
         why = "" if truthy(r.get("viable")) else f'<p class="small">{esc(r.get("viability"))}</p>'
         own = text(r.get("uncalibrated_elements")).strip()

@@ -139,8 +139,10 @@ def _shortlist_section(ranking: pd.DataFrame, short: pd.DataFrame, how: str, pid
         f'<p class="summary">{_summary_sentence(ranking, pid, n_pass)}</p>',
         *([f'<p class="caution">{caution}</p>'] if (caution := device_tests_html(meta.get("device_tests"))[1])
           else []),
-        f'<p class="quiet">Shown: {esc(how)}. Levels on the vacuum scale, value \u00b1 1\u03c3. '
+        f'<p class="quiet">Shown: {esc(how)}. Levels in eV relative to the vacuum level (HOMO = \u2212IP), on the energy scale of the header (film: solid-state / CV levels), value \u00b1 1\u03c3. '
         "\u0394LUMO = LUMO(donor) \u2212 LUMO(acceptor), \u0394HOMO = HOMO(donor) \u2212 HOMO(acceptor). "
+        "P(aligned), in the table of every row, is the probability at the levels\u2019 \u03c3 that both offsets "
+        "clear their thresholds; rows with equal estimates keep the order of their ids. "
         "Click a column header to sort.</p>",
         f'<div class="tablewrap">{shortlist_table(short, meta)}</div>',
         '<details id="all-ranked">',

@@ -23,7 +23,7 @@ _KNOWN_RANKING = {
     "rank", "id", "name", "smiles", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "partner",
     "delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "pce_sigma_pct",
     "p_above_target", "passes", "flags", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev",
-    "shortlist", "absorber_gap_ev", "scale", "key", "viable", "reason", "model", "acceptor_class",
+    "shortlist", "absorber_gap_ev", "scale", "key", "viable", "reason", "model", "acceptor_class", "p_aligned",
 }
 #: Pass-through columns shown in the full table at most.
 _MAX_EXTRA_COLUMNS = 8
@@ -311,9 +311,9 @@ def capped_note(ranking: pd.DataFrame, meta: dict | None = None) -> str:
             "the same row; the product is in the cell's tooltip.")
 
 
-def _prob_cells(frame: pd.DataFrame) -> list[str]:
-    """The probability of beating the target of each row."""
-    values = _cells(frame, "p_above_target")
+def _prob_cells(frame: pd.DataFrame, column: str = "p_above_target") -> list[str]:
+    """A probability column of each row (by default that of beating the target)."""
+    values = _cells(frame, column)
     return _num_cells(values, [_prob(v) for v in values])
 
 
@@ -374,16 +374,17 @@ def full_table(ranking: pd.DataFrame, meta: dict) -> str:
     extra = [c for c in ranking.columns if c not in _KNOWN_RANKING][:_MAX_EXTRA_COLUMNS]
     head = _header([("Rank", "num", "", "rank"), ("Candidate", "text", "", "id")] + _LEVEL_HEADERS
                    + [(target_label(meta), "num", "descending", "p_above_target"),
+                      ("P(aligned)", "num", "descending", "p_aligned"),
                       ("Passes", "num", "descending", "passes"), ("Notes", "", "", "flags")]
                    + [(esc(c), "text", "", "") for c in extra])
     ids = [text(i) for i in _cells(ranking, "id")]
     extras = [[f'<td class="extra">{esc(shorten(text(v), 120))}</td>' for v in _cells(ranking, c)] for c in extra]
     body = _table_rows(ids, [_rank_cells(ranking), _candidate_cells(ranking, ids, with_smiles=False),
                              *_level_columns(ranking), _pce_cells(ranking, meta), _prob_cells(ranking),
-                             [_passes_cell(v) for v in _cells(ranking, "passes")],
+                             _prob_cells(ranking, "p_aligned"), [_passes_cell(v) for v in _cells(ranking, "passes")],
                              _compact_notes(_cells(ranking, "flags"), meta), *extras])
     if not body:
-        body.append('<tr><td colspan="14" class="empty">the ranking is empty</td></tr>')
+        body.append('<tr><td colspan="15" class="empty">the ranking is empty</td></tr>')
     return (f'<table class="sortable full" id="full-table">{head}<tbody>'
             + "\n".join(body) + "</tbody></table>")
 
