@@ -10,15 +10,17 @@ name                       pattern (most specific first)
 cyanoacrylic acid          C=C(C#N)–COOH (the usual acceptor/anchor of D–π–A dyes)
 rhodanine-3-acetic acid    2-thioxothiazolidin-4-one with an N–CH₂–COOH arm
 salicylate                 COOH ortho to a phenolic OH on an aromatic ring
-hydroxamic acid            C(=O)–N–OH
+hydroxamic acid            C–C(=O)–N–OH (not an N-hydroxyimide)
 phosphonic acid            P(=O)(OH)₂ (mono-esters: one OH, still counted)
-sulfonic acid              S(=O)₂–OH
+sulfonic acid              C–S(=O)₂–OH (not a sulfate half-ester)
 boronic acid               B(OH)₂
 silanol / alkoxysilane     Si–OH or Si(OR)₃
 catechol                   two OH on neighbouring aromatic carbons
-carboxylic acid            any other C(=O)OH
-pyridine                   aromatic six-ring N with two aromatic carbon neighbours
-                           (4-pyridyl binds to Lewis-acid sites of TiO₂ [3]_)
+carboxylic acid            any other C–C(=O)OH (not a carbonate or carbamate half-ester)
+pyridine                   the N of a pyridine ring (one N, five C, not fused) with at least one
+                           free ortho C–H (4-pyridyl binds to Lewis-acid sites of TiO₂ [3]_);
+                           diazines, triazines, quinoxalines, quinolines and 2,6-disubstituted
+                           pyridines are π-spacers or acceptors, not anchors
 =========================  ============================================================
 
 A specific group claims its atoms: the carboxylic acid inside a cyanoacrylic
@@ -76,15 +78,17 @@ ANCHORS: tuple[Anchor, ...] = (
            f"[#6]1(=[#6])[#16][#6](=[#16])[#7]([CH2][CX3](=O){_ACID_O})[#6]1=O",
            "rhodanine-3-acetic acid: anchor of the indoline dye family"),
     Anchor("salicylate", f"[OX2H1,OX1-]c:c[CX3](=O){_ACID_O}", "salicylic acid: chelating anchor"),
-    Anchor("hydroxamic acid", "[CX3](=O)[NX3][OX2H1,OX1-]", "hydroxamic acid: water-stable chelating anchor"),
+    Anchor("hydroxamic acid", "[#6][CX3](=O)[NX3;!$(N([CX3]=O)[CX3]=O)][OX2H1,OX1-]",
+           "hydroxamic acid: water-stable chelating anchor"),
     Anchor("phosphonic acid", f"[PX4](=O)({_ACID_O})[OX2]", "phosphonic acid: strong, water-stable anchor"),
-    Anchor("sulfonic acid", f"[SX4](=O)(=O){_ACID_O}", "sulfonic acid: weak anchor to oxides"),
+    Anchor("sulfonic acid", f"[#6][SX4](=O)(=O){_ACID_O}", "sulfonic acid: weak anchor to oxides"),
     Anchor("boronic acid", f"[BX3]({_ACID_O}){_ACID_O}", "boronic acid"),
     Anchor("silanol", f"[Si]{_ACID_O}", "silanol: condenses with surface OH"),
     Anchor("alkoxysilane", "[Si]([OX2][#6])([OX2][#6])[OX2][#6]", "trialkoxysilane: condenses with surface OH"),
     Anchor("catechol", "[OX2H1,OX1-]c:c[OX2H1,OX1-]", "catechol: binds TiO₂ directly (charge-transfer complex)"),
-    Anchor("carboxylic acid", f"[CX3](=O){_ACID_O}", "carboxylic acid: the common anchor"),
-    Anchor("pyridine", "[nX2;r6;$(n(:c):c)]", "pyridine nitrogen: binds Lewis-acid surface sites"),
+    Anchor("carboxylic acid", f"[#6][CX3](=O){_ACID_O}", "carboxylic acid: the common anchor"),
+    Anchor("pyridine", "[nX2;R1;$(n1:[c;R1]:[c;R1]:[c;R1]:[c;R1]:[c;R1]:1);$(n:[cH1])]",
+           "pyridine nitrogen: binds Lewis-acid surface sites"),
 )
 
 
