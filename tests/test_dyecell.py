@@ -114,6 +114,8 @@ def test_library_and_user_files(tmp_path):
     ("O=C(NO)c1ccccc1", ["hydroxamic acid"]),
     ("OC(=O)c1ccc(N(C)C)cc1", ["carboxylic acid"]),
     ("c1ccc(-c2ccncc2)cc1", ["pyridine"]),
+    ("c1ccc(-c2cccnc2)cc1", ["pyridine"]),                                     # 3-pyridyl
+    ("OS(=O)(=O)c1ccccc1", ["sulfonic acid"]),
     ("C[Si](O)(C)c1ccccc1", ["silanol"]),
 ])
 def test_anchor_positive(smiles, expected):
@@ -127,6 +129,17 @@ def test_anchor_positive(smiles, expected):
     "c1ccc2nsnc2c1",                              # benzothiadiazole nitrogens are not pyridine
     "COc1ccccc1OC",                               # veratrole (ethers)
     "Sc1ccccc1",                                  # thiol
+    # ring nitrogens that are π-spacers or acceptors, not anchors (a new referee's audit found quinoxaline- and
+    # pyrimidine-bridged dicyanovinyl dyes ranked as anchored through 'pyridine'; Zhang & Cole 2015, the
+    # module's reference, lists pyridyl anchors, not diazines)
+    "N#CC(C#N)=Cc1ccc(-c2ccc3nccnc3c2)s1",        # quinoxaline
+    "c1ccc(-c2cncnc2)cc1",                        # pyrimidine
+    "c1ncncn1",                                   # 1,3,5-triazine
+    "CC(C)(C)c1cccc(C(C)(C)C)n1",                 # 2,6-di-tert-butylpyridine: no free ortho C-H
+    "c1ccc2ncccc2c1",                             # quinoline (fused)
+    "O=C1CCC(=O)N1O",                             # N-hydroxysuccinimide is no hydroxamic acid
+    "COC(=O)O",                                   # carbonate half-ester is no carboxylic acid
+    "COS(=O)(=O)O",                               # sulfate half-ester is no sulfonic acid
 ])
 def test_anchor_negative(smiles):
     assert find_anchors(smiles) == []
@@ -482,15 +495,18 @@ def test_no_photovoltage_reason_tells_loss_from_edge_n_type():
 
 
 def test_reason_shows_the_decimals_that_put_a_drive_below_its_threshold():
-    # LD-01 with [Cu(tmby)2] (+0.87 V): E(S+/S) = 1.068 V, regeneration drive 0.198 eV < 0.20 eV
-    out = evaluate(DyeCellModel(), 1.068, 2.0, resolve_oxide("tio2-anatase"), resolve_mediator("cu-tmby2"))
+    # LD-01 with [Cu(tmby)2] (+0.87 V): E(S+/S) = 1.068 V, regeneration drive 0.198 eV < 0.20 eV, the threshold set
+    # for every mediator (the couple's own is 0.1 eV)
+    out = evaluate(DyeCellModel(min_drive_reg_ev=0.2), 1.068, 2.0, resolve_oxide("tio2-anatase"),
+                   resolve_mediator("cu-tmby2"))
     why = out["viability"][0]
     assert out["flags"][0] == "regeneration_low"
     assert "driving force 0.198 eV; regeneration needs \u2265 0.20 eV" in why
     assert "+1.068 V vs NHE" in why and "(+0.870 V)" in why
     assert "0.20 V more positive" not in why
     # a drive clearly below keeps two decimals; driving forces are in eV, never V
-    out = evaluate(DyeCellModel(), 1.02, 2.0, resolve_oxide("tio2-anatase"), resolve_mediator("cu-tmby2"))
+    out = evaluate(DyeCellModel(min_drive_reg_ev=0.2), 1.02, 2.0, resolve_oxide("tio2-anatase"),
+                   resolve_mediator("cu-tmby2"))
     assert "driving force 0.15 eV;" in out["viability"][0]
     assert not re.search(r"\d V more positive", out["viability"][0])
     # p-type injection: E(S*/S-) ≈ E(S+/S) 0.68 V is 0.18 eV above a 0.50 V valence band
@@ -566,3 +582,37 @@ def test_anchor_check_switched_off_keeps_an_info_flag():
     plain = dyes_from_file(pd.DataFrame({"id": ["x"], "e_ox_v_nhe": [1.05], "e00_ev": [2.0]}))
     p = rank_dyes(plain, resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3"), DyeCellModel(require_anchor=False))
     assert p.loc[0, "flags"] == "anchor_unknown"
+
+
+def test_a_regeneration_threshold_set_by_the_user_applies_to_every_mediator():
+    # before, --set dyecell.min_drive_reg_ev=0.7 was silently replaced by iodide/triiodide's own 0.5 eV; a dye
+    # with a 0.677 eV regeneration drive (LD-05 of the demo: E(S+/S) 1.027 V against 0.35 V) stayed viable
+    iodide = resolve_mediator("iodide-triiodide")
+    tio2 = resolve_oxide("tio2-anatase")
+    assert evaluate(DyeCellModel(), 1.027, 2.05, tio2, iodide)["viable"][0]
+    strict = evaluate(DyeCellModel(min_drive_reg_ev=0.7), 1.027, 2.05, tio2, iodide)
+    assert not strict["viable"][0] and strict["flags"][0] == "regeneration_low"
+    # unset: the couple's own (iodide 0.5 eV, the copper bipyridyl couples 0.1 eV), else 0.2 eV (common practice)
+    assert DyeCellModel().reg_threshold_ev(iodide) == 0.5
+    assert DyeCellModel().reg_threshold_ev(resolve_mediator("cu-dmby2")) == 0.1
+    assert DyeCellModel().reg_threshold_ev(resolve_mediator("co-bpy3")) == 0.2
+
+
+def test_copper_couples_regenerate_a_dye_at_the_driving_force_reported_for_them():
+    # Y123-type dye, E(S+/S) 1.07 V (from memory) with [Cu(dmby)2]2+/+ (+0.97 V): 0.10 eV drive; a regeneration driving
+    # force of 0.11 eV was reported to work for this couple (Li et al., RSC Adv. 7 (2017), read: mediators.csv notes)
+    out = evaluate(DyeCellModel(), 1.08, 1.96, resolve_oxide("tio2-anatase"), resolve_mediator("cu-dmby2"))
+    assert out["drive_reg_ev"][0] == pytest.approx(0.11) and out["viable"][0]
+
+
+def test_a_dye_row_with_two_disagreeing_potentials_is_refused(tmp_path):
+    # 0.10 V vs Fc+/Fc in acetonitrile is 0.73 V vs NHE (+0.63 V, the library's conversion); the row also says 1.10 V
+    from screen.dyecell.rank import dyes_from_file
+    from screen.errors import InputError
+
+    frame = pd.DataFrame({"id": ["a", "b"], "e_ox_v_nhe": [1.10, 0.74], "e_ox_v": [0.10, 0.10],
+                          "e_ox_reference": ["Fc", "Fc"], "solvent": ["acetonitrile"] * 2, "e00_ev": [2.0, 2.0]})
+    with pytest.raises(InputError, match=r"\(id .a.\).*disagree; give one of them"):
+        dyes_from_file(frame, "dyes.csv")
+    same = dyes_from_file(frame.iloc[1:].reset_index(drop=True), "dyes.csv")  # 0.74 against 0.73: rounding
+    assert same.loc[0, "e_ox_v_nhe"] == pytest.approx(0.74)

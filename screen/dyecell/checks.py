@@ -240,6 +240,10 @@ def merge_reference_alias(frame: pd.DataFrame, where: str = "dye file") -> pd.Da
     return out
 
 
+#: e_ox_v_nhe and a converted e_ox_v of one row may differ by this much (rounding of the conversion) [V]
+SAME_POTENTIAL_TOL_V = 0.02
+
+
 def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
     """Refuse a user's dye file with a missing, duplicated or impossible value; E(S⁺/S) of every row.
 
@@ -332,6 +336,18 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
 
     for i in range(len(frame)):
         col = "e_ox_v_nhe"
+        if math.isfinite(e_ox[i]) and math.isfinite(raw[i]) and refs[i] \
+                and not (needs_solvent(refs[i]) and not solv[i]):  # both given: they must say the same
+            try:
+                other = float(to_nhe(raw[i], refs[i], solv[i]))
+            except InputError:
+                other = math.nan
+            if math.isfinite(other) and abs(other - e_ox[i]) > SAME_POTENTIAL_TOL_V:
+                problems.append(f"{at(i, 'e_ox_v_nhe', float(e_ox[i]))} and e_ox_v = {raw[i]:g} V vs {refs[i]}"
+                                f"{' in ' + solv[i] if solv[i] else ''} (= {other:.2f} V vs NHE) disagree; give one "
+                                "of them")
+                bad.add((i, col))
+                continue
         if math.isnan(e_ox[i]) and math.isfinite(raw[i]):
             col = "e_ox_v"
             msg = convert(i)

@@ -93,6 +93,9 @@ __all__ = ["DyeCellModel", "evaluate", "sample_pce", "TOL_EV"]
 #: driving forces within this of a threshold meet it (binary floating point) [eV]
 TOL_EV = 1e-9
 _D = option_defaults()
+#: regeneration threshold of a mediator without its own, unless ``dyecell.min_drive_reg_ev`` is set [eV]
+#: (common practice for one-electron couples: Hagfeldt et al., Chem. Rev. 110 (2010) 6595)
+DEFAULT_REG_THRESHOLD_EV = 0.2
 
 # Jsc(η = 1) and the detailed-balance limit on one uniform photon-energy grid (sampler only)
 _GRID_MIN_EV, _GRID_MAX_EV, _GRID_STEP_EV = 0.30, 4.50, 1e-3
@@ -120,8 +123,10 @@ class DyeCellModel:
         ideal 0.15 V). [V]
     min_drive_inj_ev : float, default 0.20
         Smallest injection driving force. [eV]
-    min_drive_reg_ev : float, default 0.20
-        Smallest regeneration driving force, unless the mediator sets its own. [eV]
+    min_drive_reg_ev : float or None, default None
+        Smallest regeneration driving force for every mediator; None: the
+        mediator's own threshold when it has one, else
+        :data:`DEFAULT_REG_THRESHOLD_EV`. [eV]
     require_anchor : bool, default True
         A dye without an anchoring group is not viable. False: it stays viable
         and keeps the information flag ``anchor_missing_allowed``.
@@ -141,7 +146,7 @@ class DyeCellModel:
     ff: float = _D["ff"]
     voc_loss_v: float = _D["voc_loss_v"]
     min_drive_inj_ev: float = _D["min_drive_inj_ev"]
-    min_drive_reg_ev: float = _D["min_drive_reg_ev"]
+    min_drive_reg_ev: float | None = _D["min_drive_reg_ev"]
     require_anchor: bool = _D["require_anchor"]
     voc_loss_p_v: float = _D["voc_loss_p_v"]
 
@@ -149,6 +154,8 @@ class DyeCellModel:
         for name in ("photon_to_current", "ff", "voc_loss_v", "voc_loss_p_v", "min_drive_inj_ev",
                      "min_drive_reg_ev"):
             val = getattr(self, name)
+            if name == "min_drive_reg_ev" and val is None:  # the mediator's own, else the default
+                continue
             if isinstance(val, bool) or not isinstance(val, (int, float, np.floating, np.integer)) \
                     or not math.isfinite(float(val)):
                 raise ConfigError(f"dyecell.{name} = {val!r} is not allowed; allowed: a finite real number")
@@ -196,9 +203,20 @@ class DyeCellModel:
         return float(getattr(self, self.voc_loss_name(oxide)))
 
     def reg_threshold_ev(self, mediator: Material) -> float:
-        """Regeneration threshold: the mediator's own when it has one, else :attr:`min_drive_reg_ev`. [eV]"""
+        """Regeneration threshold [eV]: :attr:`min_drive_reg_ev` when set (it applies to every mediator), else the
+        mediator's own when it has one, else :data:`DEFAULT_REG_THRESHOLD_EV`.
+
+        Examples
+        --------
+        >>> from screen.dyecell.library import resolve_mediator
+        >>> iodide = resolve_mediator("iodide-triiodide")
+        >>> DyeCellModel().reg_threshold_ev(iodide), DyeCellModel(min_drive_reg_ev=0.7).reg_threshold_ev(iodide)
+        (0.5, 0.7)
+        """
+        if self.min_drive_reg_ev is not None:
+            return float(self.min_drive_reg_ev)
         own = mediator.min_drive_reg_ev
-        return float(own) if own is not None and math.isfinite(own) else self.min_drive_reg_ev
+        return float(own) if own is not None and math.isfinite(own) else DEFAULT_REG_THRESHOLD_EV
 
 
 def _energetics(e_ox, e00, oxide: Material, mediator: Material):

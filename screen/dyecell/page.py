@@ -52,14 +52,45 @@ EXPORTS = (
     ("ranking.safe.csv", "the ranking for spreadsheet programs (formula-like text cells neutralised)"),
     ("ranking.meta.json", "oxide, mediator, model parameters, calibration and provenance"),
 )
-_CAUTION = (
-    '<p class="caution" id="caution"><strong>Screening estimates.</strong> Potentials come from a '
-    "semi-empirical quantum-chemistry method with an empirical calibration on a small set of recalled "
-    "literature values, and the cell model is idealised (sharp absorption edge, fixed photon-to-current "
-    "efficiency and fill factor, oxide quasi-Fermi level at the band edge). Use the numbers to rank and to "
-    "choose what to discuss, not as predicted measurements. Band edges move with pH and electrolyte "
-    "additives. Making and handling any dye follows your lab\u2019s chemical-safety rules and the safety data "
-    "sheets of every reagent.</p>")
+_CAUTION_SOURCE = {
+    "computed": ("Potentials come from a semi-empirical quantum-chemistry method with an empirical calibration on a "
+                 "small set of recalled literature values"),
+    "measured": "Potentials are the measured values of the input file",
+}
+_CAUTION_REST = (
+    ", and the cell model is idealised (sharp absorption edge, fixed photon-to-current efficiency, fill factor "
+    "and V<sub>oc</sub> loss below the ideal E<sub>redox</sub> \u2212 E<sub>CB</sub>, the same for every dye). "
+    "Use the numbers to rank and to choose what to discuss, not as predicted measurements. Band edges move with "
+    "pH and electrolyte additives. Making and handling any dye follows your lab\u2019s chemical-safety rules and "
+    "the safety data sheets of every reagent.")
+#: the E(S+/S) model is called weak when its nested LOO MAE is above this fraction of a constant model's
+WEAK_MODEL_RATIO = 0.8
+
+
+def _caution(meta: dict) -> str:
+    """The page's caution: where the potentials come from, the idealised cell, and a weak E(S⁺/S) model (HTML).
+
+    Examples
+    --------
+    >>> "measured values" in _caution({})
+    True
+    >>> weak = {"calibration": {"e_ox": {"loo_mae": 0.072, "baseline_loo_mae": 0.077, "unit": "V"}}}
+    >>> "barely tells dyes apart" in _caution(weak)
+    True
+    """
+    cal = get(meta, "calibration", default=None)
+    source = "computed" if isinstance(cal, dict) and cal else "measured"
+    out = ('<p class="caution" id="caution"><strong>Screening estimates.</strong> ' + _CAUTION_SOURCE[source]
+           + _CAUTION_REST + "</p>")
+    e_ox = (cal or {}).get("e_ox") if source == "computed" else None
+    mae, base = num((e_ox or {}).get("loo_mae")), num((e_ox or {}).get("baseline_loo_mae"))
+    if e_ox and base > 0 and mae > WEAK_MODEL_RATIO * base:
+        out += ('<p class="caution" id="caution-e-ox">The E(S\u207a/S) model barely tells dyes apart: nested '
+                f"leave-one-out MAE {fmt(mae, 3)} V against {fmt(base, 3)} V for one constant for every dye of its "
+                "reference set. A dye\u2019s computed potential says little more than that it is an organic dye, so "
+                "a regeneration verdict within about 0.1 V of its threshold is a coin toss (P(viable) in the table "
+                "says how close), and a dye unlike the reference set can be off by several tenths of a volt.</p>")
+    return out
 
 
 def _dl(items) -> str:
@@ -141,7 +172,9 @@ def _flags_html(cell, meta: dict, extra: dict | None = None) -> str:
     codes = codes_of(cell)
     if not codes:
         return '<span class="ok-note">no flags</span>'
-    settings = {"model": get(meta, "model", default={}) or {},
+    settings = {"model": {**(get(meta, "model", default={}) or {}),  # the threshold that applied to this mediator
+                          **({"min_drive_reg_ev": meta["regeneration_threshold_ev"]}
+                             if meta.get("regeneration_threshold_ev") is not None else {})},
                 "calibration": get(meta, "calibration", default={}) or {},
                 "oxide": get(meta, "oxide", default={}) or {}}
     extra = extra or {}
@@ -325,14 +358,17 @@ def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict
         f'<p class="sub">Sensitiser dyes on <strong>{esc(ox.get("id")) or NOT_RECORDED}</strong> with the mediator '
         f'<strong>{esc(med.get("id")) or NOT_RECORDED}</strong></p>',
         f'<p class="stamp">Generated {esc(created)} \u00b7 dascreen {esc(__version__)}</p>', "</header>", "<main>",
-        _CAUTION, f'<div class="counts">{strip}</div>',
+        _caution(meta), f'<div class="counts">{strip}</div>',
         '<h2 id="run"><span class="num">1</span>Run at a glance</h2>', '<div class="cards">',
         _material_card(ox, "Oxide", "card-oxide", "Band edge"),
         _material_card(med, "Mediator", "card-mediator", "Redox potential"), _model_card(meta), "</div>",
         '<h2 id="shortlist"><span class="num">2</span>Shortlist for discussion</h2>',
         f'<p class="summary">{summary}</p>',
         f'<p class="quiet">Shown: {esc(how)}. Potentials in V vs NHE, value \u00b1 1\u03c3; driving forces in '
-        f"eV. {_definitions(meta)}. Click a column header to sort.</p>",
+        f"eV. {_definitions(meta)}. Viable dyes are ordered by estimated PCE; with one oxide, one mediator and the "
+        "same photon-to-current efficiency, fill factor and V<sub>oc</sub> loss for every dye, that is in effect the "
+        "order of E\u2080\u208b\u2080 (smallest first): E(S\u207a/S) enters only through the injection and "
+        "regeneration checks. Not-viable dyes follow, by id. Click a column header to sort.</p>",
         f'<div class="tablewrap">{_table(short, meta, True, "shortlist-table")}</div>',
         '<details id="all-ranked">', f"<summary>Every ranked dye ({len(ranking)} rows)</summary>",
         f'<div class="tablewrap">{_table(ranking, meta, False, "full-table")}</div>', "</details>",
