@@ -64,11 +64,20 @@ def _compute_run(inp: Path, out: Path, cores: int, store: Path) -> float:
 
 
 def _reused(out: Path) -> tuple[int, int]:
-    """Molecules the electronic jobs took from the store, and how many they had to do."""
+    """Molecules the ΔSCF step took from the store, and how many it had to do.
+
+    The compute job of each shard (structures and ΔSCF in one process) logs one line per step,
+    ``… N of M molecules from the results store (electronic)``, in ``logs/<batch>/compute/``
+    (earlier the electronic stage had its own ``electronic/`` logs, which this read and now no
+    longer exist: it reported 0 of 0 reused, a new user's audit).
+    """
     hits = total = 0
-    for log in (out / "logs" / "candidates" / "electronic").glob("shard-*.log"):
-        for m in re.finditer(r"(\d+) of (\d+) molecules from the results store", log.read_text()):
-            hits, total = hits + int(m.group(1)), total + int(m.group(2))
+    logs = sorted((out / "logs" / "candidates").glob("*/shard-*.log"))
+    for log in logs:
+        for m in re.finditer(r"(\d+) of (\d+) molecules from the results store \(electronic\)|"
+                             r"(\d+) of (\d+) molecules from the results store$", log.read_text(), re.M):
+            h, t = (m.group(1), m.group(2)) if m.group(1) else (m.group(3), m.group(4))
+            hits, total = hits + int(h), total + int(t)
     return hits, total
 
 

@@ -189,9 +189,24 @@ def partner_kind(spec: str, library_path: str | Path | None = None) -> str:
     lib = Path(library_path) if library_path is not None else None
     if _library_lookup(spec, lib) is not None:
         return "library"
-    if Path(spec).expanduser().is_file():
+    if _is_file(spec):
         return "file"
     raise _unknown(spec, lib)
+
+
+def _is_file(text: str) -> bool:
+    """Whether ``text`` names an existing file; False for a text no file name can be (a SMILES longer than the
+    system's name limit raised ``OSError: File name too long`` with a traceback, a new user's audit).
+
+    Examples
+    --------
+    >>> _is_file("smiles:" + "C" * 400)
+    False
+    """
+    try:
+        return Path(text).expanduser().is_file()
+    except (OSError, ValueError):
+        return False
 
 
 def _short_hash(text: str, n: int = 10) -> str:
@@ -369,7 +384,7 @@ def split_partners(values) -> list[str]:
     out: list[str] = []
     for value in values or []:
         value = str(value).strip()
-        parts = [value] if Path(value).expanduser().is_file() else [p.strip() for p in value.split(",")]
+        parts = [value] if _is_file(value) else [p.strip() for p in value.split(",")]
         for part in parts:
             if part and part not in out:
                 out.append(part)

@@ -289,6 +289,7 @@ def check_rank_sets(items, command: str) -> None:
     ...
     screen.errors.ConfigError: --set structures.geometry=xtb: `dascreen rank` ranks levels that are already computed and cannot apply it (structures.* sets how levels are computed); compute new levels with `dascreen run CANDIDATES --out NEW_FOLDER --set structures.geometry=xtb` and rank those; here --set takes device.*, rank.*, partner, store.*, strict
     """
+    check_sets(items)  # an unknown field or value first: its message names the near field (a typo is no section)
     allowed = RANK_SECTIONS[command]
     ignored = [item for item in items or [] if item.split("=", 1)[0].strip().split(".")[0] not in allowed]
     if not ignored:
