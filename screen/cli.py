@@ -65,6 +65,11 @@ def cmd_run(args) -> int:
     notice = calibration_notice(cfg, out)
     if notice:
         print(notice, file=sys.stderr)
+    if not args.dry_run:
+        from screen.launch import forget_other_input
+
+        for note in forget_other_input(out, candidates):
+            print(note, file=sys.stderr)
     rc = run_workflow(cfg, out, args.cores, extra=args.snakemake_args, dry_run=args.dry_run, profile=args.profile,
                       verbose=args.verbose)
     if rc != 0:
@@ -74,6 +79,7 @@ def cmd_run(args) -> int:
         return EXIT_OK
     counts = _print_summary(out / "levels.csv")
     _print_ranking_of_run(cfg, out)
+    _refresh_matrices_of_run(cfg, out)
     if cfg["strict"] and (counts["rejected"] or counts["failed"]):
         print("dascreen: --strict: some rows were rejected or failed", file=sys.stderr)
         return EXIT_STRICT
@@ -97,6 +103,8 @@ def cmd_calibrate(args) -> int:
     cfg = _load(args, overrides)
     pid = cfg.protocol_id
     target = out / "models" / pid
+    if args.install and not args.replace_installed:  # refused before anything is computed
+        _check_install(Path(args.install).resolve() / pid, cfg, args.install)
     if args.from_raw:
         from screen.refit import refit_from_raw
 
@@ -121,6 +129,30 @@ def cmd_calibrate(args) -> int:
         print(f"dascreen: models copied to {dest}")
     print(f"dascreen: models in {target}")
     return EXIT_OK
+
+
+def _check_install(dest: Path, cfg: Config, given: str) -> None:
+    """Refuse to install over a calibration of this protocol fitted on other reference data.
+
+    Installing into the shipped ``models`` folder with your own reference data replaced the shipped calibration,
+    and every default run was then refused with a message about the reference data (a new user's audit).
+    """
+    import json
+
+    from screen.calibration.reference import reference_hash
+
+    try:
+        found = (json.loads((dest / "ip.json").read_text(encoding="utf-8")).get("fingerprint") or {})
+    except (OSError, ValueError, AttributeError):
+        return  # nothing installed there yet
+    ref = Path(cfg["calibration"]["reference"])
+    if found.get("reference_sha256") in (None, reference_hash(ref)):
+        return
+    raise ConfigError(
+        f"--install {given}: {dest} holds this protocol's calibration fitted on other reference data; installing "
+        f"the one fitted on {ref} would replace it, and runs that expect it would be refused. Install into a folder "
+        f"of its own (e.g. --install {Path(given).name}-mine, then run with --set calibration.models=<that folder> "
+        f"--set calibration.reference={ref}) or pass --replace-installed")
 
 
 def _partner_arg(spec: str | None) -> str | None:
@@ -194,6 +226,18 @@ def _print_ranking_of_run(cfg: Config, out: Path) -> None:
         return
     if path.is_file():
         _print_ranking(path)
+
+
+def _refresh_matrices_of_run(cfg: Config, out: Path) -> None:
+    """Rebuild the partner matrices that join the run's own ranking when its levels changed."""
+    from screen.matrix import refresh_after_run
+    from screen.partners import PartnerError, partner_slug
+    from screen.rank_io import ranking_folder
+
+    try:
+        refresh_after_run(out, ranking_folder(partner_slug(cfg["partner"]), cfg))
+    except PartnerError:
+        return
 
 
 def _compute_partner(cfg: Config, out: Path, spec: str, verbose: bool = False) -> Path | None:
@@ -438,7 +482,10 @@ def _add_calibrate(sub) -> None:
     p.add_argument("--cores", type=_at_least_one, default=os.cpu_count() or 1, help="CPU cores to use, 1 or more")
     p.add_argument("--install", default=None, metavar="MODELS_DIR",
                    help="also copy the fitted models to MODELS_DIR/<protocol-id>/ (e.g. models) so later runs "
-                        "use them without refitting")
+                        "use them without refitting; refused when that folder holds this protocol's calibration "
+                        "fitted on other reference data (see --replace-installed)")
+    p.add_argument("--replace-installed", action="store_true",
+                   help="with --install: replace a calibration of this protocol fitted on other reference data")
     p.add_argument("--from-raw", action="append", default=[], metavar="FOLDER",
                    help="refit from stored raw values instead of computing: a model folder (models/<protocol-id>, "
                         "its reference_raw.csv) or a run folder whose levels.csv holds new reference structures "

@@ -185,6 +185,49 @@ def _lock(out: Path):
     return lock
 
 
+def forget_other_input(out: Path, candidates: Path) -> list[str]:
+    """Make a run follow its candidate file's content, not its timestamp; return the notes to print.
+
+    The workflow engine decides what to redo by modification times, so a candidate file replaced by one with an
+    older time (``cp -p``, ``rsync -a``, an unpacked archive) or a moved run folder looked up to date, and the run
+    reported the old list (a new user's audit). The prepare stage records its input's path and SHA-256
+    (``work/candidates/prepared/manifest.meta.json``); when they differ from the file given now, the prepared batch
+    is removed (the workflow rebuilds it; molecules already computed come from the results store) and so are the
+    rankings of the old list (``OUT/rankings/``), which no longer match the levels.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> forget_other_input(Path(tempfile.mkdtemp()), Path("any.csv"))  # nothing prepared yet
+    []
+    """
+    import shutil
+
+    from screen.provenance import sha256_file
+
+    prepared = out / "work" / "candidates" / "prepared"
+    meta_path = prepared / "manifest.meta.json"
+    try:
+        recorded = (yaml.safe_load(meta_path.read_text(encoding="utf-8")) or {}).get("input") or {}
+    except (OSError, yaml.YAMLError, AttributeError):
+        return []
+    now = Path(candidates).resolve()
+    if recorded.get("path") == str(now) and recorded.get("sha256") == sha256_file(now):
+        return []
+    was = recorded.get("path") or "another file"
+    notes = [f"dascreen: {now} is not the candidate list prepared in {out} ({was}, SHA-256 "
+             f"{str(recorded.get('sha256'))[:12]}…): its prepared batch is rebuilt"]
+    shutil.rmtree(prepared)
+    rankings = out / "rankings"
+    old = sorted(p.name for p in rankings.iterdir()) if rankings.is_dir() else []
+    if old:
+        shutil.rmtree(rankings)
+        notes.append(f"dascreen: removed {len(old)} ranking folder(s) of the earlier list from {rankings} "
+                     f"({', '.join(old[:4])}{', …' if len(old) > 4 else ''}); `dascreen rank --out {out} --partner …` "
+                     "makes them again for the new list")
+    return notes
+
+
 def _command(out: Path, cfg_file: Path, cores: int, targets, extra, dry_run: bool, profile) -> list[str]:
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(WORKFLOW), "--directory", str(out),
            "--configfile", str(cfg_file), "--cores", str(cores), "--rerun-incomplete", "--show-failed-logs"]
@@ -244,20 +287,26 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
         if locks.is_dir() and any(locks.iterdir()):  # we hold our lock, so Snakemake's is stale
             subprocess.call(cmd + ["--unlock"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env)
             print("dascreen: removed the lock left by an interrupted run; resuming", flush=True)
+        # the workflow engine inherits the lock's file descriptor: the folder stays locked while it runs, even if
+        # this process is killed on its own (before, `kill -9` of dascreen left Snakemake running while
+        # `dascreen status` said "not running" and a second run started in the same folder)
+        hold = (lock.fileno(),)
         if verbose or dry_run:
             print("dascreen: snakemake --cores", cores, "in", out, flush=True)
-            return _wait(_start(cmd, env))
-        return _quiet(cmd, env, out, out / "logs" / f"{log_name}.log", label)
+            return _wait(_start(cmd, env, pass_fds=hold))
+        return _quiet(cmd, env, out, out / "logs" / f"{log_name}.log", label, hold)
     finally:
         lock.close()
 
 
-def _quiet(cmd: list[str], env: dict, out: Path, log_path: Path, label: str) -> int:
-    """Snakemake with its log in a file and a progress display; the error part printed on failure."""
+def _quiet(cmd: list[str], env: dict, out: Path, log_path: Path, label: str, hold=()) -> int:
+    """Snakemake with its log in a file and a progress display; the error part printed on failure.
+
+    ``hold``: file descriptors the engine inherits (the run folder's lock)."""
     log_path.parent.mkdir(parents=True, exist_ok=True)
     stop = threading.Event()
     with open(log_path, "w", encoding="utf-8") as log:
-        proc = _start(cmd, env, stdout=log, stderr=subprocess.STDOUT)
+        proc = _start(cmd, env, stdout=log, stderr=subprocess.STDOUT, pass_fds=tuple(hold))
         watcher = threading.Thread(target=_watch, args=(out, stop, label), daemon=True)
         watcher.start()
         try:

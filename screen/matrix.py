@@ -30,7 +30,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-__all__ = ["MATRIX_LEAD", "partner_matrix", "matrix_folder", "run_matrix", "refresh_matrices",
+__all__ = ["MATRIX_LEAD", "partner_matrix", "matrix_folder", "run_matrix", "refresh_matrices", "refresh_after_run",
            "matrices_joining", "stale_columns"]
 
 #: the leading columns of ``matrix.csv``; one column per partner follows, named by the partner id
@@ -223,6 +223,31 @@ def stale_columns(partners: list[dict], meta_paths, out_dir: Path) -> dict | Non
                f"overview.html and matrix.meta.json; bring every column up to date with: {command}")
     return {"partners": [p["id"] for p in old], "current": {"partner": newest["id"], "levels": current},
             "refresh": command, "summary": summary}
+
+
+def refresh_after_run(out_dir, folder: str) -> list[Path]:
+    """After ``dascreen run`` re-ranked ranking ``folder``: rebuild the matrices that joined it with other levels.
+
+    The workflow removes a rule's outputs before it runs it again, so the ranking stage cannot see that it replaces
+    a ranking of other levels (``dascreen rank`` can, and refreshes the matrices itself); a matrix built before the
+    levels changed kept its old numbers unmarked (a new user's audit). Here every matrix joining ``folder`` whose
+    record of that member's levels (SHA-256) differs from the new ranking's is rebuilt by :func:`refresh_matrices`
+    (columns of other partners still ranked from the earlier levels are marked stale).
+    """
+    from screen.io import read_json
+
+    try:
+        now = (read_json(Path(out_dir) / "rankings" / folder / "ranking.meta.json").get("levels") or {}).get("sha256")
+    except (OSError, ValueError, AttributeError):
+        return []
+    for matrix_dir in matrices_joining(out_dir, folder):
+        try:
+            partners = read_json(matrix_dir / "matrix.meta.json").get("partners") or []
+        except (OSError, ValueError, AttributeError):
+            continue
+        if any(p.get("folder") == folder and (p.get("levels") or {}).get("sha256") != now for p in partners):
+            return refresh_matrices(out_dir, folder)
+    return []
 
 
 def matrices_joining(out_dir, folder: str) -> list[Path]:

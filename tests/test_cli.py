@@ -455,3 +455,71 @@ def test_dyecell_rerank_refuses_a_device_setting(tmp_path, capsys):
     assert rc == 2 and "device.* belongs to `dascreen rank`" in err and len(err.strip().splitlines()) == 1
     assert _cli(capsys, "dyecell", "--levels", str(dyes), "--out", str(tmp_path / "out"),
                 "--set", "dyecell.ff=0.65")[0] == 0
+
+
+def test_the_workflow_engine_keeps_the_run_lock_when_dascreen_dies(tmp_path):
+    # a new user's audit: `kill -9` of the dascreen process alone left Snakemake running, `dascreen status` said
+    # "not running" and a rerun started a second workflow in the same folder; the engine now inherits the lock
+    import os
+
+    from screen.launch import _lock, _start
+    from screen.preflight import run_active
+
+    lock = _lock(tmp_path)
+    engine = _start([sys.executable, "-c", "import time; time.sleep(60)"], dict(os.environ), pass_fds=(lock.fileno(),))
+    lock.close()  # dascreen is gone; only the engine holds the descriptor
+    try:
+        assert run_active(tmp_path)
+    finally:
+        engine.kill()
+        engine.wait()
+    assert not run_active(tmp_path)
+
+
+def test_a_changed_candidate_list_is_prepared_again_whatever_its_timestamp(tmp_path):
+    # a new user's audit: a list replaced by another with an older modification time (cp -p, rsync -a) made the
+    # rerun report the old molecules, and --overwrite kept the old list's rankings
+    import json
+    import os
+
+    from screen.launch import forget_other_input
+    from screen.provenance import sha256_file
+
+    cand = tmp_path / "list.csv"
+    cand.write_text("id,smiles\nT3,c1ccsc1\n", encoding="utf-8")
+    out = tmp_path / "out"
+    prepared = out / "work" / "candidates" / "prepared"
+    prepared.mkdir(parents=True)
+    (prepared / "manifest.meta.json").write_text(json.dumps(
+        {"input": {"path": str(cand.resolve()), "sha256": sha256_file(cand)}}), encoding="utf-8")
+    (out / "rankings" / "itic--0000").mkdir(parents=True)
+    assert forget_other_input(out, cand) == [] and prepared.is_dir() and (out / "rankings").is_dir()
+    old = cand.stat().st_mtime
+    cand.write_text("id,smiles\nANT,c1ccc2cc3ccccc3cc2c1\n", encoding="utf-8")
+    os.utime(cand, (old - 86400, old - 86400))  # the new content, yesterday's time
+    notes = forget_other_input(out, cand)
+    assert len(notes) == 2 and "prepared batch is rebuilt" in notes[0] and "itic--0000" in notes[1]
+    assert not prepared.exists() and not (out / "rankings").exists()
+
+
+def test_calibrate_refuses_to_install_over_a_calibration_of_other_reference_data(tmp_path, capsys):
+    # a new user's audit: `calibrate --reference MINE --install models` replaced the shipped calibration, and every
+    # default run was refused afterwards; now refused before anything is computed, --replace-installed to insist
+    import shutil
+    from pathlib import Path
+
+    from screen.config import Config
+
+    pid = Config().protocol_id
+    repo = Path(__file__).resolve().parent.parent
+    installed = tmp_path / "models"
+    shutil.copytree(repo / "models" / pid, installed / pid)
+    mine = tmp_path / "reference"
+    shutil.copytree(repo / "models" / "reference", mine)
+    film = mine / "levels_film.csv"
+    film.write_text(film.read_text(encoding="utf-8").replace("-5.49,-3.64,1.80", "-5.40,-3.64,1.80", 1),
+                    encoding="utf-8")
+    rc, _, err = _cli(capsys, "calibrate", "--from-raw", str(repo / "models" / pid), "--reference", str(mine),
+                      "--out", str(tmp_path / "cal"), "--install", str(installed))
+    assert rc == 2 and "fitted on other reference data" in err and "--replace-installed" in err
+    assert not (tmp_path / "cal").exists()  # nothing computed or written

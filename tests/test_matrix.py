@@ -183,3 +183,25 @@ def test_a_matrix_whose_other_ranking_is_gone_is_marked_stale_not_rebuilt(tmp_pa
     assert (matrix_dir / "matrix.csv").read_bytes() == before  # nothing to rebuild it from: kept, and said so
     meta = json.loads((matrix_dir / "matrix.meta.json").read_text())
     assert meta["stale"]["partners"] == ["y6", "c60"] and 'id="stale"' in (matrix_dir / "overview.html").read_text()
+
+
+def test_a_run_that_re_ranks_its_partner_from_changed_levels_refreshes_the_matrix(tmp_path, capsys):
+    # `dascreen run` re-ranks its partner inside the workflow, which removes the old ranking folder first, so the
+    # ranking cannot see what it replaces; before, a matrix joining it kept the old numbers unmarked (audit)
+    import shutil
+
+    from screen.matrix import refresh_after_run
+
+    levels, out, matrix_dir = _y6_c60_matrix(tmp_path)
+    (y6,) = [p for p in (out / "rankings").iterdir() if p.name.startswith("y6--")]
+    assert refresh_after_run(out, y6.name) == []  # same levels: nothing to do
+    levels.write_text(LEVELS.replace("-5.40,-3.90", "-5.80,-3.90"), encoding="utf-8")
+    shutil.rmtree(y6)  # what the workflow does before it runs the ranking rule again
+    assert main(["rank", "--levels", str(levels), "--out", str(out), "--partner", "y6"]) == 0
+    assert json.loads((matrix_dir / "matrix.meta.json").read_text())["stale"] is None  # unseen by the ranking
+    capsys.readouterr()
+    assert refresh_after_run(out, y6.name) == [matrix_dir]
+    _, cells, own = _matrix_cells(out, "y6")
+    pd.testing.assert_series_equal(cells, own, check_names=False)
+    assert json.loads((matrix_dir / "matrix.meta.json").read_text())["stale"]["partners"] == ["c60"]
+    assert f"partner matrix {matrix_dir} rebuilt" in capsys.readouterr().err
