@@ -511,6 +511,17 @@ def test_read_csv_keeps_text_and_passthrough(tmp_path: Path) -> None:
     assert list(frame.input_status) == ["x", "y"]  # clashes with a manifest column: renamed
 
 
+def test_input_columns_named_like_outputs_are_kept_under_input_names(tmp_path: Path) -> None:
+    # a batch user's audit: a measured homo_ev in the input was overwritten by the computed one in levels.csv and
+    # lost without a word; every name the tool writes (levels and ranking columns) is passed through as input_<name>
+    path = _write_csv(tmp_path / "c.csv", ["id", "smiles", "homo_ev", "flags", "rank", "xtb_gap_ev", "batch"],
+                      [["T3", "c1ccsc1", "-5.1", "mine", "1", "2.0", "b7"]])
+    frame = read_candidates(path)
+    for col in ("homo_ev", "flags", "rank", "xtb_gap_ev"):
+        assert col not in frame.columns and frame.loc[0, f"input_{col}"]
+    assert frame.loc[0, "input_homo_ev"] == "-5.1" and frame.loc[0, "batch"] == "b7"
+
+
 def test_read_csv_gz_and_bom(tmp_path: Path) -> None:
     text = "\ufeffid,smiles\nq1,c1ccsc1\n"
     path = tmp_path / "c.csv.gz"

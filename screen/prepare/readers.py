@@ -29,6 +29,8 @@ from typing import Any
 import pandas as pd
 from rdkit import Chem, rdBase
 
+from screen.columns import (CALIBRATED_COLUMNS, ELECTRONIC_COLUMNS, LEVELS_CONTRACT_COLUMNS, RANKING_COLUMNS,
+                            RANKING_EXTRA_COLUMNS)
 from screen.errors import InputError
 from screen.io import separator_problem
 from screen.prepare.checks import snippet as _snippet
@@ -37,7 +39,14 @@ from screen.prepare.shards import MANIFEST_COLUMNS
 __all__ = ["read_candidates", "assign_missing_ids"]
 
 #: Names a passthrough column may not take (it would clash with a column this stage writes).
-_RESERVED: frozenset[str] = frozenset(MANIFEST_COLUMNS) | {"read_error"}
+#: names the tool writes into levels.csv or ranking.csv: an input column of such a name is passed through as
+#: ``input_<name>`` (before, a measured ``homo_ev`` of the input was overwritten and lost without a word)
+_WRITTEN: frozenset[str] = frozenset(ELECTRONIC_COLUMNS + CALIBRATED_COLUMNS + LEVELS_CONTRACT_COLUMNS + RANKING_COLUMNS
+                                     + RANKING_EXTRA_COLUMNS + ["chain_n_max", "chain_fit", "chain_fit_quality",
+                                                                "reference_similarity"])
+#: prefixes of written column families (raw engine values, chain-limit and conformer spreads)
+_WRITTEN_PREFIXES = ("xtb_", "chain_spread_", "conf_spread_")
+_RESERVED: frozenset[str] = frozenset(MANIFEST_COLUMNS) | {"read_error"} | _WRITTEN
 
 _CSV_SUFFIXES = (".csv",)
 _SMI_SUFFIXES = (".smi", ".smiles", ".txt")
@@ -72,9 +81,15 @@ def _read_text(path: Path, gz: bool) -> str:
 
 
 def _unique_column(name: str, taken: set[str]) -> str:
-    """Return ``name``, prefixed with ``input_`` if it clashes with a column we write."""
+    """Return ``name``, prefixed with ``input_`` if it clashes with a column we write.
+
+    Examples
+    --------
+    >>> _unique_column("homo_ev", set()), _unique_column("batch", set()), _unique_column("xtb_gap_ev", set())
+    ('input_homo_ev', 'batch', 'input_xtb_gap_ev')
+    """
     out = name
-    while out in _RESERVED or out in taken:
+    while out in _RESERVED or out in taken or out.startswith(_WRITTEN_PREFIXES):
         out = "input_" + out
     return out
 
