@@ -30,7 +30,7 @@ import yaml
 from screen import __version__
 from screen.config import Config
 from screen.errors import CalculationError, ConfigError, DascreenError, InputError, exit_code
-from screen.cli_shared import (EXIT_ERROR, EXIT_OK, EXIT_STRICT, _at_least_one, _load, _percent,  # noqa: F401
+from screen.cli_shared import (EXIT_ERROR, EXIT_OK, EXIT_STRICT, _at_least_one, _days, _load, _percent,  # noqa: F401
                                _print_summary, data_path)
 from screen.launch import WORKFLOW, run_workflow
 
@@ -431,8 +431,9 @@ def cmd_store(args) -> int:
         gone = store.prune(protocols=args.protocol or (), dry_run=args.dry_run,
                            older_than_s=None if days is None else days * 86400.0)
         verb = "would delete" if args.dry_run else "deleted"
+        age = f"{gone['old']} older than {days:g} days" if days is not None else "no age limit given"
         print(f"dascreen: {verb} {sum(gone.values())} rows of {path} ({gone['protocol']} of the given protocols, "
-              f"{gone['old']} older than {days} days, {gone['corrupt']} that do not check out)")
+              f"{age}, {gone['corrupt']} that do not check out)")
     return EXIT_OK
 
 
@@ -571,7 +572,7 @@ def _add_store(sub) -> None:
                    help="export: target file, .sdf (geometries with raw levels) or .csv (default store-export.sdf)")
     p.add_argument("--protocol", action="append", default=None, metavar="ID",
                    help="export: only this stage protocol; prune: delete its rows (repeatable)")
-    p.add_argument("--older-than", type=float, default=None, metavar="DAYS", help="prune: rows older than DAYS")
+    p.add_argument("--older-than", type=_days, default=None, metavar="DAYS", help="prune: rows older than DAYS (>= 0)")
     p.add_argument("--dry-run", action="store_true", help="prune: count, delete nothing")
     p.set_defaults(func=cmd_store)
 

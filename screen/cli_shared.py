@@ -86,6 +86,23 @@ def _at_least_one(text: str) -> int:
     return value
 
 
+def _days(text: str) -> float:
+    """argparse type of ``store prune --older-than``: a finite age of at least 0 days.
+
+    Examples
+    --------
+    >>> _days("30")
+    30.0
+    """
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number; give an age in days, e.g. 30") from None
+    if not 0.0 <= value < float("inf"):  # NaN fails too; a negative age would select every row
+        raise argparse.ArgumentTypeError(f"{text} is not allowed; give an age of 0 days or more, e.g. 30")
+    return value
+
+
 def _percent(text: str) -> float:
     """argparse type of ``--target-pce``: a finite efficiency from 0 to 100 %."""
     try:

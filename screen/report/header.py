@@ -212,10 +212,18 @@ def _ff_words(dev: dict) -> str:
     --------
     >>> _ff_words({"ff": 0.6755, "ff_set": False, "fitted": {"ff_by_class": {"fullerene": 0.58, "nfa-fused": 0.698}}})
     '0.68 for other acceptors; per acceptor class: fullerene 0.58, nfa-fused 0.70'
+
+    A family value that no candidate can receive (``non-fullerene`` beside both of its classes) is not listed:
+
+    >>> _ff_words({"ff": 0.6755, "ff_set": False, "fitted": {"ff_by_class": {"nfa-fused": 0.698, "nfa-other": 0.61,
+    ...                                                                   "non-fullerene": 0.6885}}})
+    '0.68 for other acceptors; per acceptor class: nfa-fused 0.70, nfa-other 0.61'
     """
     base = _value(dev, "ff")
     fitted = dev.get("fitted") if isinstance(dev.get("fitted"), dict) else {}
-    classes = fitted.get("ff_by_class") if isinstance(fitted.get("ff_by_class"), dict) else {}
+    classes = dict(fitted.get("ff_by_class")) if isinstance(fitted.get("ff_by_class"), dict) else {}
+    if {"nfa-fused", "nfa-other"} <= set(classes):  # every non-fullerene candidate gets one of the two
+        classes.pop("non-fullerene", None)
     if dev.get("ff_set") or not classes:
         return base
     parts = ", ".join(f"{esc(k)} {fmt(num(v))}" for k, v in sorted(classes.items()))
