@@ -271,6 +271,21 @@ def separator_problem(header) -> str | None:
     return None
 
 
+def _field_count_problem(path: Path) -> str | None:
+    """The first line whose field count differs from the header's, in words (None when all agree)."""
+    import csv
+
+    with open(path, newline="", encoding="utf-8", errors="replace") as handle:
+        rows = csv.reader(handle)
+        header = next(rows, None)
+        if header is None:
+            return None
+        for fields in rows:
+            if fields and len(fields) != len(header):
+                return f"line {rows.line_num} has {len(fields)} fields but the header has {len(header)}"
+    return None
+
+
 def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", error=InputError,
                      **read_kwargs) -> pd.DataFrame:
     """Read a CSV file and check that it has the ``required`` columns: the one home of that check.
@@ -313,6 +328,12 @@ def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", 
         frame = pd.read_csv(path, **read_kwargs)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise error(f"{path}: {what} is not a readable CSV file: {exc}") from None
+    if "index_col" not in read_kwargs and not isinstance(frame.index, pd.RangeIndex):
+        # every data row has more fields than the header: pandas took the first column as the index and shifted
+        # every value one column to the right (a decimal comma, an unquoted comma), which later checks misread
+        raise error(f"{path}: {_field_count_problem(path) or 'the data rows have more fields than the header'}; "
+                    "a decimal comma or an unquoted comma inside a field? Write decimals with a point and quote "
+                    "fields that hold commas")
     missing = [c for c in required if c not in frame.columns]
     problem = separator_problem(frame.columns) if missing else None
     if problem:

@@ -523,3 +523,12 @@ def test_calibrate_refuses_to_install_over_a_calibration_of_other_reference_data
                       "--out", str(tmp_path / "cal"), "--install", str(installed))
     assert rc == 2 and "fitted on other reference data" in err and "--replace-installed" in err
     assert not (tmp_path / "cal").exists()  # nothing computed or written
+
+
+def test_a_levels_row_with_more_fields_than_the_header_is_named_as_such(tmp_path, capsys):
+    # a batch user's audit: 'A,-5,3,-3.5,1.7,film,0.1' (a decimal comma in HOMO) was read with the first column as
+    # the index, every value one column to the right, and refused as "id '-5' ... HOMO is given as a positive ..."
+    bad = tmp_path / "lv.csv"
+    bad.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale,homo_sigma_ev\nA,-5,3,-3.5,1.7,film,0.1\n", encoding="utf-8")
+    rc, _, err = _cli(capsys, "rank", "--levels", str(bad), "--out", str(tmp_path / "o"), "--partner", "y6")
+    assert rc == 2 and "line 2 has 7 fields but the header has 6" in err and "decimal comma" in err
