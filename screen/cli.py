@@ -292,6 +292,12 @@ def cmd_rank(args) -> int:
     if levels.is_dir():
         raise InputError(f"levels file {str(levels)!r} is a folder; give a levels file with --levels FILE (a CSV "
                          "with columns id,homo_ev,lumo_ev,gap_opt_ev,scale, e.g. OUT/levels.csv of a run)")
+    if not levels.is_file() and not args.levels:
+        from screen.preflight import run_active
+
+        if run_active(out):  # the run is still computing: its levels.csv comes at the end
+            raise InputError(f"{out} holds a run that is still computing (no levels.csv yet); wait for it "
+                             f"(`dascreen status --out {args.out}`) or pass --levels FILE")
     if not levels.is_file():
         raise InputError(f"levels file {str(levels)!r} does not exist; run `dascreen run` first or pass "
                          "--levels FILE (columns id,homo_ev,lumo_ev,gap_opt_ev,scale)")

@@ -278,7 +278,9 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
     out.mkdir(parents=True, exist_ok=True)
     lock = _lock(out)
     try:
-        cfg_file = cfg_file or out / "config.yaml"
+        # a dry run writes its configuration aside: out/config.yaml names the run the folder holds (a dry run of
+        # another file made the real run of it refused as 'holds the run of ...', a batch user's audit)
+        cfg_file = cfg_file or out / ("config.dry-run.yaml" if dry_run else "config.yaml")
         cfg_file.parent.mkdir(parents=True, exist_ok=True)
         cfg_file.write_text(yaml.safe_dump(cfg.to_dict(), sort_keys=False), encoding="utf-8")
         cmd = _command(out, cfg_file, cores, targets, extra, dry_run, profile)

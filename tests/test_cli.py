@@ -532,3 +532,19 @@ def test_a_levels_row_with_more_fields_than_the_header_is_named_as_such(tmp_path
     bad.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale,homo_sigma_ev\nA,-5,3,-3.5,1.7,film,0.1\n", encoding="utf-8")
     rc, _, err = _cli(capsys, "rank", "--levels", str(bad), "--out", str(tmp_path / "o"), "--partner", "y6")
     assert rc == 2 and "line 2 has 7 fields but the header has 6" in err and "decimal comma" in err
+
+
+def test_a_dry_run_writes_its_configuration_aside(tmp_path, monkeypatch):
+    # a batch user's audit: `run A --dry-run` wrote OUT/config.yaml, so the real run of another file B into that
+    # folder was refused as "holds the run of A"
+    import subprocess
+
+    import screen.launch
+    from screen.config import Config
+    from screen.launch import run_workflow
+
+    monkeypatch.setattr(screen.launch, "_wait", lambda proc: 0)
+    monkeypatch.setattr(screen.launch, "_start", lambda cmd, env, **kw: subprocess.Popen(["true"]))
+    out = tmp_path / "o"
+    assert run_workflow(Config(), out, 1, dry_run=True) == 0
+    assert (out / "config.dry-run.yaml").is_file() and not (out / "config.yaml").exists()
