@@ -330,7 +330,11 @@ def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", 
         raise error(f"{path}: {what} is not a readable CSV file: {exc}") from None
     if "index_col" not in read_kwargs and not isinstance(frame.index, pd.RangeIndex):
         # every data row has more fields than the header: pandas took the first column as the index and shifted
-        # every value one column to the right (a decimal comma, an unquoted comma), which later checks misread
+        # every value one column to the right (a decimal comma, an unquoted comma), which later checks misread;
+        # a file separated by ';' or tabs looks the same and gets its own message
+        problem = separator_problem(frame.columns)
+        if problem:
+            raise error(f"{path}: {problem}")
         raise error(f"{path}: {_field_count_problem(path) or 'the data rows have more fields than the header'}; "
                     "a decimal comma or an unquoted comma inside a field? Write decimals with a point and quote "
                     "fields that hold commas")
