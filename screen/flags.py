@@ -104,6 +104,8 @@ _REGISTRY = (
     Flag("alignment_uncertain", "an offset to the partner lies so close to its threshold, for the levels' σ, that the "
                                 "verdict on the alignment has a one-in-four chance or more of being the other "
                                 "way (p_aligned between 0.25 and 0.75)", "info"),
+    Flag("same_structure", "the same structure, in the same role, as an earlier row of the list (duplicate_of in "
+                           "levels.csv names it): ranked like it, and kept out of the shortlist", "info"),
     Flag("loss_class_pooled", "voltage loss: the fitted model's pooled value for all acceptor classes (the "
                               "fit keeps no separate value for this pair's class)", "info"),
     Flag("donor_only_model", "published donor-only model: only the donor absorbs and only the LUMO offset is "

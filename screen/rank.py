@@ -511,12 +511,29 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "too_many_heavy_atoms": heavy_out,
         "heavy_atoms_unknown": heavy_unknown,
         "alignment_uncertain": pair_ok & (aligned > ALIGNMENT_UNCERTAIN[0]) & (aligned < ALIGNMENT_UNCERTAIN[1]),
+        "same_structure": _same_structure(lv, cand, roles),
         "far_from_reference": _far_from_reference(lv),
         "chain_fit_poor": _text(lv, "chain_fit_quality") == "poor",
         "lone_pair_homo": _lone_pair_homo(lv),
         "role_from_levels": roles.role_from_levels,
         "role_assumed": roles.role_assumed,
     }
+
+
+def _same_structure(levels: pd.DataFrame, cand: _Candidates, roles: _Roles) -> np.ndarray:
+    """Rows whose ``duplicate_of`` (a run's levels.csv) names a ranked row of the same role: the same pair again.
+
+    Examples
+    --------
+    >>> lv = pd.DataFrame({"duplicate_of": ["", "a", "a"]})
+    >>> c = _Candidates(np.array(["a", "b", "c"]), *(np.zeros(3),) * 3, {})
+    >>> r = _Roles(np.array(["donor", "donor", "acceptor"], dtype=object), *(np.zeros(3, bool),) * 8)
+    >>> _same_structure(lv, c, r).tolist()
+    [False, True, False]
+    """
+    dup = _text(levels, "duplicate_of")
+    role_of = dict(zip(cand.ids, roles.role))
+    return np.array([bool(d) and role_of.get(d) == r for d, r in zip(dup, roles.role)], dtype=bool)
 
 
 def _far_from_reference(levels: pd.DataFrame) -> np.ndarray:

@@ -31,6 +31,7 @@ from screen.device import DeviceModel
 from screen.devicepars import device_tests
 from screen.partners import Partner, PartnerError, resolve_partner
 from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, partner_role, rank_candidates)
+from screen.rank_rows import shortlist_mask
 
 __all__ = ["write_shortlist", "shortlist_notice", "longest_oligomers", "computed_geometries", "settings_hash",
            "ranking_folder", "read_ranked_levels", "check_before_computing", "run_rank"]
@@ -315,7 +316,7 @@ def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int, scale:
     from screen.io import atomic_path
 
     geometries, keys, oligomers = geometries or {}, keys or {}, oligomers or {}
-    top = ranking[ranking["passes"].astype(bool)].head(int(size))
+    top = ranking[shortlist_mask(ranking)].head(int(size))
     skipped, sources, records = [], {"computed": 0, "oligomer": 0, "embedded": 0, "2d": 0}, []
     with rdBase.BlockLogs():
         for row in top.to_dict("records"):
@@ -567,7 +568,7 @@ def _structure_keys(levels: pd.DataFrame) -> dict:
 
 def _shortlist_keys(ranking: pd.DataFrame, keys: dict, options: RankOptions, oligomers: dict) -> list[str]:
     """Structure keys of the shortlisted rows, and of the longest oligomer of each polymer among them."""
-    top = ranking[ranking["passes"].astype(bool)].head(int(options.shortlist_size))
+    top = ranking[shortlist_mask(ranking)].head(int(options.shortlist_size))
     own = [keys.get(s, "") for s in top["smiles"]]
     return own + [oligomers[k][1] for k in own if k in oligomers]
 

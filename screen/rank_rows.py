@@ -13,7 +13,26 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-__all__ = ["ranked_mask", "split_ranked", "numeric", "text", "heavy_atoms"]
+__all__ = ["ranked_mask", "split_ranked", "numeric", "text", "heavy_atoms", "shortlist_mask"]
+
+
+def shortlist_mask(ranking: pd.DataFrame) -> np.ndarray:
+    """Rows that may enter the shortlist: they pass every check and do not repeat an earlier row's structure in the
+    same role (flag ``same_structure``; before, two ids of one structure took two shortlist places).
+
+    Examples
+    --------
+    >>> r = pd.DataFrame({"passes": [True, "True", False, True], "flags": ["", "same_structure", "", "role_assumed"]})
+    >>> shortlist_mask(r).tolist()
+    [True, False, False, True]
+    """
+    if "passes" not in ranking:
+        return np.ones(len(ranking), dtype=bool)
+    passes = ranking["passes"].map(lambda v: str(v).strip().lower() in ("true", "1", "yes")).to_numpy(bool)
+    if "flags" not in ranking:
+        return passes
+    flags = ranking["flags"].fillna("").astype(str).str.split(";")
+    return passes & ~flags.map(lambda codes: "same_structure" in codes).to_numpy(bool)
 
 
 def ranked_mask(levels: pd.DataFrame) -> np.ndarray:

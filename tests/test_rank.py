@@ -580,3 +580,23 @@ def test_polymer_rows_carry_their_representation_and_a_poor_chain_fit_flag():
     # a user's levels file without the column: the SMILES decides
     bare = rank_candidates(lv.drop(columns=["representation", "chain_fit_quality"]), resolve_partner("y6"))
     assert bare.set_index("id")["representation"].to_dict() == {"pt": "polymer", "pf": "polymer", "m": "molecule"}
+
+
+def test_a_second_id_of_one_structure_is_flagged_and_kept_out_of_the_shortlist(tmp_path):
+    # a batch user's audit: the same structure under two ids (ANT-a, ANT-b) took two shortlist places; a run's
+    # levels.csv names the first in duplicate_of. Both stay ranked; the second is flagged and not shortlisted
+    from screen.rank_rows import shortlist_mask
+
+    y6 = resolve_partner("y6")
+    lv = _levels([{"id": "ANT-a", "homo_ev": -5.3, "lumo_ev": -3.5, "gap_opt_ev": 1.8, "role": "donor",
+                   "duplicate_of": ""},
+                  {"id": "ANT-b", "homo_ev": -5.3, "lumo_ev": -3.5, "gap_opt_ev": 1.8, "role": "donor",
+                   "duplicate_of": "ANT-a"},
+                  {"id": "OTHER", "homo_ev": -5.4, "lumo_ev": -3.6, "gap_opt_ev": 1.7, "role": "donor",
+                   "duplicate_of": ""}])
+    r = rank_candidates(lv, y6, options=RankOptions(partner_sigma=False))
+    by = r.set_index("id")
+    assert "same_structure" in by.loc["ANT-b", "flags"] and by.loc["ANT-b", "passes"]
+    assert "same_structure" not in by.loc["ANT-a", "flags"]
+    assert by.loc["ANT-a", "pce_pct"] == by.loc["ANT-b", "pce_pct"]
+    assert set(r[shortlist_mask(r)]["id"]) == {"ANT-a", "OTHER"}

@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from screen.flags import FLAGS, INFO_FLAGS, codes_of, describe
+from screen.rank_rows import shortlist_mask
 from screen.report.drawings import molecule_svg
 from screen.report.format import (data_values, esc, fmts, get, has_text, num, pm_htmls, shorten, text, texts,
                                   truthies)
@@ -87,7 +88,7 @@ def select_shortlist(ranking: pd.DataFrame, meta: dict) -> tuple[pd.DataFrame, s
         mask = truthies(ranking["shortlist"])
         return ranking[mask], "rows marked for the shortlist by the ranking"
     if "passes" in ranking:
-        passes = truthies(ranking["passes"])
+        passes = shortlist_mask(ranking)  # passing, and not a second id of one structure
         if passes.any():
             return ranking[passes].head(size), (f"the best {size} candidates that pass every check"
                                                 if passes.sum() >= size else
