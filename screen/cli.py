@@ -137,12 +137,11 @@ def _check_install(dest: Path, cfg: Config, given: str) -> None:
     Installing into the shipped ``models`` folder with your own reference data replaced the shipped calibration,
     and every default run was then refused with a message about the reference data (a new user's audit).
     """
-    import json
-
     from screen.calibration.reference import reference_hash
+    from screen.io import read_json
 
     try:
-        found = (json.loads((dest / "ip.json").read_text(encoding="utf-8")).get("fingerprint") or {})
+        found = read_json(dest / "ip.json").get("fingerprint") or {}
     except (OSError, ValueError, AttributeError):
         return  # nothing installed there yet
     ref = Path(cfg["calibration"]["reference"])

@@ -203,13 +203,13 @@ def forget_other_input(out: Path, candidates: Path) -> list[str]:
     """
     import shutil
 
+    from screen.io import read_json
     from screen.provenance import sha256_file
 
     prepared = out / "work" / "candidates" / "prepared"
-    meta_path = prepared / "manifest.meta.json"
     try:
-        recorded = (yaml.safe_load(meta_path.read_text(encoding="utf-8")) or {}).get("input") or {}
-    except (OSError, yaml.YAMLError, AttributeError):
+        recorded = read_json(prepared / "manifest.meta.json").get("input") or {}
+    except (OSError, ValueError, AttributeError):
         return []
     now = Path(candidates).resolve()
     if recorded.get("path") == str(now) and recorded.get("sha256") == sha256_file(now):

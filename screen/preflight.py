@@ -289,20 +289,20 @@ def check_rank_sets(items, command: str) -> None:
     ...
     screen.errors.ConfigError: --set structures.geometry=xtb: `dascreen rank` ranks levels that are already computed and cannot apply it (structures.* sets how levels are computed); compute new levels with `dascreen run CANDIDATES --out NEW_FOLDER --set structures.geometry=xtb` and rank those; here --set takes device.*, rank.*, partner, store.*, strict
     """
-    check_sets(items)  # an unknown field or value first: its message names the near field (a typo is no section)
     allowed = RANK_SECTIONS[command]
-    ignored = [item for item in items or [] if item.split("=", 1)[0].strip().split(".")[0] not in allowed]
-    if not ignored:
+    # an unknown field or value first: its message names the near field (a typo is no section)
+    sections = sorted(set(check_sets(items)) - set(allowed))
+    if not sections:
         return
-    sections = sorted({item.split("=", 1)[0].strip().split(".")[0] for item in ignored})
+    ignored = [item for item in items if item.split("=", 1)[0].strip().split(".")[0] in sections]
     what = ", ".join(f"{s}.*" for s in sections)
     other = "dyecell" if command == "rank" else "rank"
-    if set(sections) <= set(RANK_SECTIONS[other]) - {"store", "strict"}:
-        why = f"{what} belongs to `dascreen {other}`"
+    if set(sections) <= set(RANK_SECTIONS[other]) - {"store", "strict"}:  # the other mode's own settings
+        why, fix = f"{what} belongs to `dascreen {other}`", f"use `dascreen {other}` for it"
     else:
         why = f"{what} sets how levels are computed"
-    fix = (f"compute new levels with `dascreen run CANDIDATES --out NEW_FOLDER {' '.join('--set ' + i for i in ignored)}` "
-           "and rank those" if "computed" in why else f"use `dascreen {other}` for it")
+        fix = (f"compute new levels with `dascreen run CANDIDATES --out NEW_FOLDER "
+               f"{' '.join('--set ' + i for i in ignored)}` and rank those")
     takes = ", ".join(f"{s}.*" if s not in ("partner", "strict") else s for s in allowed)
     raise ConfigError(f"--set {', '.join(ignored)}: `dascreen {command}` ranks levels that are already computed and "
                       f"cannot apply it ({why}); {fix}; here --set takes {takes}")

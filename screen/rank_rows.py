@@ -13,6 +13,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from screen.flags import codes_of
+
 __all__ = ["ranked_mask", "split_ranked", "numeric", "text", "heavy_atoms", "shortlist_mask"]
 
 
@@ -31,8 +33,7 @@ def shortlist_mask(ranking: pd.DataFrame) -> np.ndarray:
     passes = ranking["passes"].map(lambda v: str(v).strip().lower() in ("true", "1", "yes")).to_numpy(bool)
     if "flags" not in ranking:
         return passes
-    flags = ranking["flags"].fillna("").astype(str).str.split(";")
-    return passes & ~flags.map(lambda codes: "same_structure" in codes).to_numpy(bool)
+    return passes & ~ranking["flags"].map(lambda cell: "same_structure" in codes_of(cell)).to_numpy(bool)
 
 
 def ranked_mask(levels: pd.DataFrame) -> np.ndarray:

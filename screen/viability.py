@@ -32,6 +32,8 @@ Examples
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 
 __all__ = ["classify", "VIABILITY_MASKS", "role_from_levels", "acceptor_class_of", "GAP_MAX_EV",
@@ -130,7 +132,13 @@ def role_from_levels(homo, lumo, partner_homo: float, partner_lumo: float) -> tu
 #: the end group of the fused-ring acceptors: a dicyanomethylene on a five-membered ketone ring fused to an aromatic
 #: ring (the indanone "IC" of ITIC and Y6, halogenated ones, and its thiophene analogue in ITCC)
 IC_TYPE_END_SMARTS = "N#CC(C#N)=C1C(=[#6])C(=O)[a]:[a]1"
-_IC_TYPE_END = None
+
+
+@lru_cache(maxsize=1)
+def _ic_type_end():
+    from rdkit import Chem
+
+    return Chem.MolFromSmarts(IC_TYPE_END_SMARTS)
 
 
 def acceptor_class_of(smiles) -> str:
@@ -173,15 +181,12 @@ def acceptor_class_of(smiles) -> str:
         mol = Chem.MolFromSmiles(text)
     if mol is None:
         return ""
-    global _IC_TYPE_END
     carbons = sum(1 for a in mol.GetAtoms() if a.GetAtomicNum() == 6)
     ring = mol.GetRingInfo()
     if carbons >= 60 and ring.NumRings() >= 30:
         return "fullerene"
-    if _IC_TYPE_END is None:
-        _IC_TYPE_END = Chem.MolFromSmarts(IC_TYPE_END_SMARTS)
     fused_core = _largest_fused_system(ring) >= 5
-    return "nfa-fused" if fused_core and mol.HasSubstructMatch(_IC_TYPE_END) else "nfa-other"
+    return "nfa-fused" if fused_core and mol.HasSubstructMatch(_ic_type_end()) else "nfa-other"
 
 
 def _largest_fused_system(ring) -> int:

@@ -93,7 +93,8 @@ def describe(code: str, settings: dict | None = None) -> str:
         Flag code.
     settings : dict, optional
         ``settings["model"]`` with ``min_drive_inj_ev`` and ``min_drive_reg_ev``
-        (as in ``ranking.meta.json``), ``settings["calibration"]["elements"]``,
+        (as in ``ranking.meta.json``), ``settings["regeneration_threshold_ev"]`` (the threshold that applied
+        to the mediator; else the model's), ``settings["calibration"]["elements"]``,
         ``settings["oxide"]["type"]`` (``"p"``: p-type wording).
 
     Examples
@@ -107,7 +108,8 @@ def describe(code: str, settings: dict | None = None) -> str:
     if code not in FLAGS:
         return code
     model = (settings or {}).get("model") or {}
-    inj, reg = _num(model.get("min_drive_inj_ev")), _num(model.get("min_drive_reg_ev"))
+    inj = _num(model.get("min_drive_inj_ev"))
+    reg = _num((settings or {}).get("regeneration_threshold_ev", model.get("min_drive_reg_ev")))
     elements = ((settings or {}).get("calibration") or {}).get("elements") or []
     p_type = str(((settings or {}).get("oxide") or {}).get("type") or "").strip().lower() == "p"
     return FLAGS[code].text.format(

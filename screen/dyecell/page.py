@@ -172,9 +172,8 @@ def _flags_html(cell, meta: dict, extra: dict | None = None) -> str:
     codes = codes_of(cell)
     if not codes:
         return '<span class="ok-note">no flags</span>'
-    settings = {"model": {**(get(meta, "model", default={}) or {}),  # the threshold that applied to this mediator
-                          **({"min_drive_reg_ev": meta["regeneration_threshold_ev"]}
-                             if meta.get("regeneration_threshold_ev") is not None else {})},
+    settings = {"model": get(meta, "model", default={}) or {},
+                "regeneration_threshold_ev": meta.get("regeneration_threshold_ev"),
                 "calibration": get(meta, "calibration", default={}) or {},
                 "oxide": get(meta, "oxide", default={}) or {}}
     extra = extra or {}

@@ -351,8 +351,8 @@ def _meta(ranking, table, info, oxide, mediator, model, options, short) -> dict:
                            + "both > 0 when the step is downhill (dG = -drive)",
         "dyes": {k: v for k, v in info.items() if k != "levels_meta"}, "levels_meta": info.get("levels_meta"),
         "calibration": info.get("calibration"),
-        "flag_text": {code: describe(code, {"model": {**model.as_dict(),
-                                                      "min_drive_reg_ev": model.reg_threshold_ev(mediator)},
+        "flag_text": {code: describe(code, {"model": model.as_dict(),
+                                            "regeneration_threshold_ev": model.reg_threshold_ev(mediator),
                                             "calibration": info.get("calibration") or {},
                                             "oxide": oxide.as_dict()})
                       for code in flags.index},
