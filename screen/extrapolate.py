@@ -63,7 +63,10 @@ of fewer than three points and series whose last two steps differ in sign; such 
 series (it turns back, e.g. a planar dimer and twisted trimer and tetramer) gets at
 least the size of the turn (the smaller of the two steps) as ``spread_ev``, and is
 marked ``poor`` when the turn exceeds ``rms_tol_ev`` (an accepted fit could otherwise be clipped onto the longest
-oligomer with a spread of 0 and the label ``good``). The GFN2-xTB orbital gap of MEH-PPV oligomers on
+oligomer with a spread of 0 and the label ``good``). The same holds for a series that does not turn back but
+whose steps do not shrink either (r ≥ 1 − 1/N) while the fit's limit sits within one step of the longest
+oligomer (:func:`undiminished_reason`): ``poor``, and a spread of at least 1/√3 of the distance to the 1/n
+limit (the RMS distance of a limit anywhere between the longest oligomer and the 1/n limit). The GFN2-xTB orbital gap of MEH-PPV oligomers on
 xTB-optimised geometries (3.23, 2.53, 2.09, 1.71 eV, n = 1-4, the project's own
 values) has r = 0.85; its exponential limit, 0.81 eV, lay 0.90 eV beyond the
 tetramer and was labelled ``good``.
@@ -297,6 +300,40 @@ def saturation_reason(e, limit: float, inverse: float) -> str:
             f"{beyond:.3f} eV beyond the longest oligomer is set by the fit's form, not by the data")
 
 
+def undiminished_reason(e, limit: float, inverse: float) -> tuple[str, float]:
+    """Why a limit placed on (or within one step of) the longest oligomer of a series that has not started to
+    saturate is no chain limit, and how far the limit may lie beyond it [eV] (``('', 0.0)`` when it is fine).
+
+    :func:`saturation_reason` judges a limit placed *beyond* the longest oligomer; a series whose steps do not
+    shrink (ratio of the last two steps r ≥ 1 − 1/N, or growing) can also get a saturating fit whose limit lands
+    on the wrong side of the last point and is moved onto it (a polymer audit: orbital gaps 0.925, 0.898, 0.852 eV
+    got the limit 0.852 eV, spread 0 and the label good, with the 1/n limit at 0.760 eV). Such a limit is
+    marked ``poor``; the second value is the distance to the 1/n limit, and :func:`extrapolate` takes as spread
+    at least the RMS distance from the longest oligomer of a chain limit anywhere in that interval (1/√3 of it;
+    the 1/n limit overshoots, so the limit lies somewhere between).
+
+    Examples
+    --------
+    >>> round(undiminished_reason([0.925, 0.898, 0.852], 0.852, 0.760)[1], 3)
+    0.092
+    >>> undiminished_reason([3.0, 2.6, 2.4, 2.3], 2.3, 2.0)  # the steps halve: saturating
+    ('', 0.0)
+    """
+    e = np.asarray(e, float)
+    if len(e) < 3 or not (math.isfinite(limit) and math.isfinite(inverse)):
+        return "", 0.0
+    last, prev = float(e[-1] - e[-2]), float(e[-2] - e[-3])
+    beyond, to_inverse = abs(limit - e[-1]), abs(inverse - e[-1])
+    if last * prev <= 0.0 or beyond > abs(last) or to_inverse <= abs(last):
+        return "", 0.0
+    ratio = last / prev
+    if ratio < 1.0 - 1.0 / len(e):
+        return "", 0.0
+    return (f"not saturated: the last step, {last:+.3f} eV, is {ratio:.2f} of the one before, yet the fitted limit "
+            f"lies {beyond:.3f} eV from the longest oligomer; the chain limit may lie up to {to_inverse:.3f} eV "
+            "further (the 1/n limit)"), round(float(to_inverse), 6)
+
+
 def extrapolate(n, e, per_unit: int = 1, rms_tol_ev: float = 0.05, form: str = "gap") -> ChainFit:
     """Chain-limit value of one quantity by the documented choice rule (module docstring).
 
@@ -348,6 +385,9 @@ def extrapolate(n, e, per_unit: int = 1, rms_tol_ev: float = 0.05, form: str = "
     wiggle = _reversal(e)
     spread = max(spread, wiggle)  # a series that turns back is known no better than the size of the turn
     reason = saturation_reason(e, value, inv)
+    if not reason:
+        reason, reach = undiminished_reason(e, value, inv)
+        spread = max(spread, reach / math.sqrt(3.0))  # RMS distance of a limit anywhere up to the 1/n limit
     if not reason and wiggle > rms_tol_ev:
         reason = (f"not monotonic: the last two steps, {e[-2] - e[-3]:+.3f} and {e[-1] - e[-2]:+.3f} eV, turn back "
                   f"by more than {rms_tol_ev:g} eV (conformations may differ between the oligomers); the limit is "

@@ -157,3 +157,16 @@ def test_a_series_that_has_stopped_moving_is_converged_not_poor():
     assert (moving.method, moving.quality) == ("longest", "poor")
     # two points are never called converged
     assert extrapolate([1, 2], [1.0, 1.001]).method == "longest"
+
+
+def test_a_series_whose_steps_grow_is_no_converged_chain_limit():
+    # a polymer audit: the GFN2 orbital gaps of a PffBT4T-2OD oligomer series (n = 1-3, the tool's own values,
+    # 0.925, 0.898, 0.852 eV) got a Kuhn limit on the wrong side of the trimer, moved onto it: limit 0.852 eV,
+    # spread 0 and the label good, while the 1/n limit is 0.760 eV (Gierschner, Cornil, Egelhaaf, Adv. Mater. 19
+    # (2007) 173: a saturating fit is only as good as the saturation the oligomers show)
+    fit = extrapolate([1, 2, 3], [0.925, 0.898, 0.852], per_unit=3, form="gap")
+    assert fit.quality == "poor" and "not saturated" in fit.reason
+    assert fit.spread_ev == pytest.approx(0.092 / 3 ** 0.5, abs=1e-6) and fit.limit_ev == pytest.approx(0.852)
+    # a series whose steps halve keeps its fit and label
+    good = extrapolate([1, 2, 3, 4], [3.0, 2.6, 2.4, 2.3], per_unit=2, form="gap")
+    assert good.quality == "good"
