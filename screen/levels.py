@@ -142,6 +142,10 @@ def _one_polymer(pkey: str, group: pd.DataFrame, elec: pd.DataFrame, quantities:
                      "quality": fit.quality, **{k: fit.candidates.get(k) for k in _SHORT}})
     row.update(_longest_spread(found[ok], n))
     row.update(_longest_structure(found[ok], n))
+    cut = str(group["side_chains_cut"].iloc[0]) if "side_chains_cut" in group else ""
+    if cut and cut != "nan":  # the repeat unit's side chains, cut to methyl before the oligomers were built
+        row["truncated_groups"] = "per repeat unit: " + cut
+        row["truncated_chains"] = len(cut.split(";"))
     row["chain_fit"] = " ".join(methods)
     row["chain_fit_quality"] = "poor" if poor else "good"
     row["_poor"] = poor

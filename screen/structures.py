@@ -190,7 +190,7 @@ def _pendant_groups(mol: Chem.Mol) -> list[tuple[int, set[int]]]:
                 stack.extend(n.GetIdx() for n in mol.GetAtomWithIdx(i).GetNeighbors() if n.GetIdx() in alkyl)
         seen |= comp
         anchors = [i for i in comp for n in mol.GetAtomWithIdx(i).GetNeighbors()
-                   if n.GetIdx() not in comp and n.GetAtomicNum() > 1]
+                   if n.GetIdx() not in comp and n.GetAtomicNum() != 1]  # an attachment point (0) counts
         if len(anchors) == 1:
             groups.append((anchors[0], comp))
     return groups
@@ -214,7 +214,7 @@ def _formula(n_c: int) -> str:
     return f"C{n_c}H{2 * n_c + 1}" if n_c > 1 else "CH3"
 
 
-def truncate_side_chains(mol: Chem.Mol, min_carbons: int = 6) -> tuple[Chem.Mol, list[str]]:
+def truncate_side_chains(mol: Chem.Mol, min_carbons: int = 6, to_methyl: bool = False) -> tuple[Chem.Mol, list[str]]:
     """Shorten long pendant saturated alkyl groups without merging distinct short substituents.
 
     Only a pendant saturated alkyl group (acyclic sp3 carbons, pure hydrocarbon,
@@ -235,6 +235,10 @@ def truncate_side_chains(mol: Chem.Mol, min_carbons: int = 6) -> tuple[Chem.Mol,
         Molecule without explicit hydrogens.
     min_carbons : int
         Smallest group (carbon count) that is cut (6 by default: hexyl and longer).
+    to_methyl : bool
+        Cut every such group to methyl, branched ones too (2-ethylhexyl → methyl): the rule of
+        polymer repeat units, whose reference polymers are written with methyl stubs
+        (:func:`screen.prepare.polymers.methyl_side_chains`).
 
     Returns
     -------
@@ -251,13 +255,16 @@ def truncate_side_chains(mol: Chem.Mol, min_carbons: int = 6) -> tuple[Chem.Mol,
     ('CC(C)Cn1c2ccccc2c2ccccc21', ['C8H17->C4H9'])
     >>> truncate_side_chains(Chem.MolFromSmiles("CCC(C)(C)c1ccsc1"))[1]
     []
+    >>> Chem.MolToSmiles(truncate_side_chains(Chem.MolFromSmiles("CCCCC(CC)Cc1cc(*)sc1*"), to_methyl=True)[0])
+    '*c1cc(C)c(*)s1'
+
     """
     to_remove: set[int] = set()
     cuts = []
     for root, comp in _pendant_groups(mol):
         if len(comp) < min_carbons:
             continue
-        keep = _kept_part(mol, root, comp)
+        keep = {root} if to_methyl else _kept_part(mol, root, comp)
         if keep == comp:
             continue
         to_remove |= comp - keep

@@ -62,6 +62,11 @@ A rejected row carries exactly one reason (the first problem found, in this orde
 ``attachment_partner``  an attachment point on a hydrogen (``[H]*``, ``[*H]``) or on another
                         attachment point (``**``).
 ``attachment_same_atom`` both attachment points on the same atom (``*C*``).
+``attachment_no_hydrogen`` an attachment point on an aromatic atom with no hydrogen to replace
+                        (a ring-fusion carbon, a pyridine-type nitrogen).
+``attachment_not_conjugated`` the two attachment points joined through an acyclic saturated carbon
+                        or silicon (a side chain, an alkylene linker, ``*CC*``): the units would
+                        not be conjugated; ring atoms (a fluorene's C9) are allowed.
 ``multi_fragment``      more than one disconnected fragment (salts, mixtures, solvates); the
                         message lists the fragments.  A structure whose only disallowed
                         elements are alkali or alkaline-earth counter-ions, such as

@@ -35,6 +35,8 @@ ATTACHMENT_REASONS: tuple[str, ...] = (
     "attachment_bond",
     "attachment_partner",
     "attachment_same_atom",
+    "attachment_no_hydrogen",
+    "attachment_not_conjugated",
 )
 
 _MAX_SHOWN = 6
@@ -156,7 +158,71 @@ def classify(mol: Chem.Mol) -> tuple[str, tuple[str, str] | None]:
             f"to atom {first.GetIdx()} ({first.GetSymbol()}): the two ends of a repeat unit must "
             "be different atoms (write at least two backbone atoms, e.g. *CC* rather than *C*)",
         )
+    for atom in dummies:
+        why = _no_hydrogen(atom)
+        if why:
+            return "", ("attachment_no_hydrogen", f"the attachment point {describe(atom)} {why}")
+    why = _saturated_backbone(mol, first.GetIdx(), second.GetIdx())
+    if why:
+        return "", ("attachment_not_conjugated", why)
     return "polymer", None
+
+
+def _no_hydrogen(atom: Chem.Atom) -> str:
+    """Why a dummy atom sits on an aromatic atom that has no hydrogen to replace ('' when it does not).
+
+    A polymer audit: ``[*]`` on a ring-fusion carbon or a pyridine-type nitrogen failed kekulisation and was
+    blamed on the aromatic notation ("a pyrrole-type nitrogen needs [nH]"), which sent the chemist the wrong way.
+
+    Examples
+    --------
+    >>> mol = Chem.MolFromSmiles("[*]c12sc(-c3ccc([*])s3)cc1scc2", sanitize=False)
+    >>> _no_hydrogen(mol.GetAtomWithIdx(0))[:46]
+    'sits on atom 1 (c), which has no hydrogen to r'
+    >>> _no_hydrogen(Chem.MolFromSmiles("[*]c1ccc([*])s1", sanitize=False).GetAtomWithIdx(0))
+    ''
+    """
+    other = atom.GetNeighbors()[0]
+    if not other.GetIsAromatic() or other.GetNumExplicitHs() or other.GetFormalCharge():
+        return ""
+    full = {6: 3, 7: 3 if other.IsInRingSize(5) else 2}.get(other.GetAtomicNum())
+    if full is None or other.GetDegree() <= full:
+        return ""
+    what = "a ring-fusion carbon" if other.GetAtomicNum() == 6 else "a pyridine-type ring nitrogen"
+    return (f"sits on atom {other.GetIdx()} ({other.GetSymbol().lower()}), which has no hydrogen to replace "
+            f"({what}): put the attachment point on a ring atom that carries a hydrogen in the monomer")
+
+
+def _saturated_backbone(mol: Chem.Mol, a: int, b: int) -> str:
+    """Why the backbone between two attachment atoms is not conjugated ('' when it is).
+
+    The shortest path between the atoms the attachment points sit on must not pass through an acyclic
+    saturated carbon or silicon (a CH₂ of a side chain or of an alkylene linker); atoms of a ring (the bridging
+    sp³ carbon of a fluorene or cyclopenta-dithiophene, the silicon of a dithienosilole) are allowed. A polymer
+    audit: a unit written through the O–CH₂ of a methoxy side chain was computed and ranked as passing.
+
+    Examples
+    --------
+    >>> m = Chem.MolFromSmiles("[*]c1cc2c(OC[*])c3ccsc3c(OC)c2s1", sanitize=False)
+    >>> _saturated_backbone(m, 1, 7)[:60]
+    'the two attachment points are joined through acyclic saturat'
+    >>> m = Chem.MolFromSmiles("[*]c1ccc2c(c1)C(C)(C)c1cc([*])ccc1-2", sanitize=False)
+    >>> _saturated_backbone(m, 1, 14)
+    ''
+    """
+    Chem.FastFindRings(mol)
+    path = Chem.GetShortestPath(mol, a, b)
+    bad = [i for i in path
+           if mol.GetAtomWithIdx(i).GetAtomicNum() in (6, 14) and not mol.GetAtomWithIdx(i).GetIsAromatic()
+           and not mol.GetRingInfo().NumAtomRings(i)
+           and all(bond.GetBondType() == Chem.BondType.SINGLE for bond in mol.GetAtomWithIdx(i).GetBonds())]
+    if not bad:
+        return ""
+    atoms = ", ".join(f"{i} ({mol.GetAtomWithIdx(i).GetSymbol()})" for i in bad[:_MAX_SHOWN])
+    return (f"the two attachment points are joined through acyclic saturated atom(s) {atoms}: the repeat unit "
+            "of a conjugated polymer runs along its π backbone, and an attachment point on a side chain or a "
+            "saturated (alkylene) linker breaks the conjugation between units; put the attachment points on the "
+            "backbone atoms that bond to the next unit (0-based atom indices in the order of smiles_input)")
 
 
 def clear_attachment_labels(mol: Chem.Mol) -> None:

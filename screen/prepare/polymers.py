@@ -45,7 +45,7 @@ __all__ = ["PolymerOptions", "OLIGOMER_COLUMNS", "oligomer_table", "compute_rows
 _DEFAULTS: dict[str, Any] = section_defaults("polymer")
 
 #: columns of ``prepared/oligomers.csv``: the polymer's key and id, then one row per oligomer
-OLIGOMER_COLUMNS = ("polymer_key", "polymer_id", "n", "key", "smiles", "n_atoms", "per_unit")
+OLIGOMER_COLUMNS = ("polymer_key", "polymer_id", "n", "key", "smiles", "n_atoms", "per_unit", "side_chains_cut")
 
 
 @dataclass(frozen=True)
@@ -101,6 +101,29 @@ def truncation_min_carbons(structures: Mapping) -> int | None:
     return structures["truncate_min_carbons"] if structures["truncate_side_chains"] else None
 
 
+def methyl_side_chains(smiles: str, min_carbons: int) -> tuple[str, list[str]]:
+    """A repeat unit with its long pendant alkyl groups cut to methyl, and one record per cut group.
+
+    The reference polymers of the calibration are written with methyl stubs (2-ethylhexyl, 2-octyldodecyl,
+    hexyl → methyl; ``models/reference/README.md``), so a candidate polymer is computed the same way. The
+    molecules' rule (:func:`screen.structures.truncate_side_chains`) keeps a branch point (2-ethylhexyl →
+    2-methylpropyl); on polymers that made another structure than the calibration saw: a polymer audit found
+    the raw film IP of PffBT4T-2OD oligomers 0.16-0.18 eV off the reference polymer's, and PM6 with its
+    2-ethylhexyl chains reached only the dimer within ``polymer.max_atoms``.
+
+    Examples
+    --------
+    >>> methyl_side_chains("*c1sc(*)c(CC(CC)CCCC)c1F", 6)
+    ('*c1sc(*)c(F)c1C', ['C8H17->CH3'])
+    >>> methyl_side_chains("*c1ccc(*)s1", 6)
+    ('*c1ccc(*)s1', [])
+    """
+    from screen.structures import truncate_side_chains
+
+    mol, cuts = truncate_side_chains(Chem.MolFromSmiles(smiles), min_carbons, to_methyl=True)
+    return (Chem.MolToSmiles(mol), cuts) if cuts else (smiles, [])
+
+
 def _computed_atoms(min_carbons: int):
     """SMILES → atoms with hydrogens after side-chain truncation (what the structures stage computes)."""
     from screen.structures import truncate_side_chains
@@ -142,11 +165,13 @@ def oligomer_table(manifest: pd.DataFrame, options: PolymerOptions = PolymerOpti
         if pkey in seen:
             continue
         seen.add(pkey)
-        unit = RepeatUnit.from_smiles(smi)
+        cut_smi, cuts = methyl_side_chains(smi, truncate_min_carbons) if truncate_min_carbons else (smi, [])
+        unit = RepeatUnit.from_smiles(cut_smi)
         for n, osmi in oligomer_series(unit, options.n_max, options.max_atoms, options.cap, count):
             osmi = canonical_smiles(osmi)  # the prepare stage's form: equal molecules share a key
             rows.append({"polymer_key": pkey, "polymer_id": pid, "n": n, "key": structure_key(osmi),
-                         "smiles": osmi, "n_atoms": _atoms_with_h(osmi), "per_unit": unit.conjugation_length})
+                         "smiles": osmi, "n_atoms": _atoms_with_h(osmi), "per_unit": unit.conjugation_length,
+                         "side_chains_cut": ";".join(cuts)})
     return pd.DataFrame(rows, columns=list(OLIGOMER_COLUMNS))
 
 
@@ -180,8 +205,10 @@ def read_oligomers(path) -> pd.DataFrame:
     path = Path(path)
     if not path.is_file():
         return pd.DataFrame(columns=list(OLIGOMER_COLUMNS))
-    frame = pd.read_csv(path, dtype={"polymer_key": str, "polymer_id": str, "key": str, "smiles": str},
-                        keep_default_na=False)
+    frame = pd.read_csv(path, dtype={"polymer_key": str, "polymer_id": str, "key": str, "smiles": str,
+                                     "side_chains_cut": str}, keep_default_na=False)
+    if "side_chains_cut" not in frame:  # written before polymer side chains were cut to methyl
+        frame["side_chains_cut"] = ""
     for col in ("n", "n_atoms", "per_unit"):
         frame[col] = pd.to_numeric(frame[col]).astype(int)
     return frame

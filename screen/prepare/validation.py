@@ -174,8 +174,9 @@ def _check_row(
             first = first_row_of_id[ident]
             reason = "duplicate_id"
             error = (
-                f"id {_snippet(ident)} is already used by row {first} (0-based, as in the "
-                "'row' column); ids must be unique, so this row is not screened"
+                f"id {_snippet(ident)} is already used by row {first} (0-based, as in the 'row' column of "
+                f"levels.csv: line {first + 2} of a CSV file with its header, record {first + 1} of an SDF); ids "
+                "must be unique, so this row is not screened"
             )
     except Exception as exc:  # the batch goes on whatever happens to one row
         reason = "internal_error"
