@@ -48,6 +48,9 @@ def cmd_run(args) -> int:
 
     candidates = Path(args.candidates)
     check_candidates(candidates)
+    if args.partner is not None and not args.partner.strip(","+" "):
+        raise ConfigError(f"--partner {args.partner!r} names no partner; give a library name (`dascreen partners`), "
+                          "a one-row levels CSV, smiles:<SMILES> or id:<ID>, or leave --partner out for the default")
     partners = split_partners([args.partner] if args.partner else [])
     if len(partners) > 1:
         raise ConfigError(f"--partner {args.partner!r}: `dascreen run` ranks against one partner; run with one and "
@@ -70,6 +73,7 @@ def cmd_run(args) -> int:
 
         for note in forget_other_input(out, candidates):
             print(note, file=sys.stderr)
+        _set_aside_foreign_ranking(cfg, out)
     rc = run_workflow(cfg, out, args.cores, extra=args.snakemake_args, dry_run=args.dry_run, profile=args.profile,
                       verbose=args.verbose)
     if rc != 0:
@@ -193,6 +197,27 @@ def calibration_notice(cfg: Config, out: Path) -> str | None:
             f"(`dascreen calibrate ... --install {cfg['calibration']['models']}` keeps a calibration for later runs)")
 
 
+def _ranked_with(ranking_csv: Path) -> str:
+    """`` with the <model> device model, P above <target> %`` from the ranking's sidecar ('' without one).
+
+    A meeting-day audit: the console named neither the device model nor the target of a re-ranking.
+    """
+    import json
+
+    try:
+        meta = json.loads((Path(ranking_csv).parent / "ranking.meta.json").read_text(encoding="utf-8"))
+        device, rank = meta.get("device") or {}, meta.get("rank") or {}
+    except (OSError, ValueError, AttributeError):
+        return ""
+    words = []
+    if device.get("model"):
+        words.append(f"{device['model']} device model" + (f", absorber {device['absorber']}"
+                                                          if device.get("absorber") else ""))
+    if rank.get("target_pce_pct") is not None:
+        words.append(f"target {rank['target_pce_pct']:g} % PCE")
+    return f" ({'; '.join(words)})" if words else ""
+
+
 def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
     """Print the best ``top`` rows of a ranking.csv and its path."""
     import pandas as pd
@@ -209,7 +234,8 @@ def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
         return
     passing = int(table["passes"].astype(str).str.lower().eq("true").sum())
     partner = table["partner"].iloc[0]
-    print(f"dascreen: {len(table)} ranked against {partner}, {passing} pass the filters; top {min(top, len(table))}:")
+    print(f"dascreen: {len(table)} ranked against {partner}{_ranked_with(ranking_csv)}, {passing} pass the "
+          f"filters; top {min(top, len(table))}:")
     with pd.option_context("display.width", 250, "display.max_columns", 30):
         print(show[cols].to_string(index=False, na_rep="-", float_format=lambda x: f"{x:.3g}"))
     print(f"dascreen: ranking -> {ranking_csv}")
@@ -225,6 +251,21 @@ def _print_ranking_of_run(cfg: Config, out: Path) -> None:
         return
     if path.is_file():
         _print_ranking(path)
+
+
+def _set_aside_foreign_ranking(cfg: Config, out: Path) -> None:
+    """Move the ranking of another levels file out of the run's own ranking folder (before the workflow)."""
+    from screen.partners import PartnerError, partner_slug
+    from screen.rank_io import ranking_folder, set_aside_foreign
+
+    try:
+        folder = ranking_folder(partner_slug(cfg["partner"]), cfg)
+    except PartnerError:
+        return
+    moved = set_aside_foreign(out, folder)
+    if moved:
+        print(f"dascreen: rankings/{folder} held the ranking of another levels file; moved to rankings/{moved}, "
+              "and this run's levels are ranked again", file=sys.stderr)
 
 
 def _refresh_matrices_of_run(cfg: Config, out: Path) -> None:
@@ -279,11 +320,15 @@ def cmd_rank(args) -> int:
     """Rank a levels file against one or more partners (a partner matrix for several); a new smiles:
     partner is computed by the workflow first."""
     from screen.partners import partner_kind, split_partners
-    from screen.preflight import check_out_folder, check_partners, check_rank_sets
+    from screen.preflight import check_out_folder, check_partners, check_rank_config, check_rank_sets
     from screen.rank_io import check_before_computing, run_rank
 
     out = Path(args.out).resolve()
     check_out_folder(out, args.out)
+    if args.partner is not None and not split_partners(args.partner):
+        raise ConfigError(f"--partner {' '.join(repr(p) for p in args.partner)} names no partner; give a library name "
+                          "(`dascreen partners`), a one-row levels CSV, smiles:<SMILES> or id:<ID>, or leave "
+                          "--partner out for the run's partner")
     partners = split_partners(args.partner or [])
     if not any(partner_kind(spec) == "smiles" for spec in partners):  # a smiles: partner is computed: they apply
         check_rank_sets(args.set, "rank")
@@ -305,6 +350,7 @@ def cmd_rank(args) -> int:
         args.config = str(out / "config.yaml")  # the run's own settings, so smiles: partners share its protocol
         note = f"dascreen: using the run's configuration {args.config}"  # said once the checks have passed
     check_partners(partners, levels)
+    check_rank_config(args.config, levels, "rank")
     # out: a smiles: partner is computed into this folder (not the one a copied run's config.yaml names)
     cfg = _load(args, {**_models_override(args.models), "out": str(out),
                        "rank": {"role": args.role, "sort_by": args.sort_by, "target_pce_pct": args.target_pce}})

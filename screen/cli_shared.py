@@ -10,6 +10,7 @@ import argparse
 from pathlib import Path
 
 from screen.config import Config, merge
+from screen.errors import ConfigError
 
 __all__ = ["EXIT_OK", "EXIT_ERROR", "EXIT_STRICT", "data_path", "_load", "_print_summary", "_parse_set", "_at_least_one", "_percent"]
 
@@ -35,13 +36,46 @@ def _drop_none(extra: dict) -> dict:
     return out
 
 
+#: the command-line options that set a config field (named in a clash with ``--set``)
+_OPTION_OF = {"rank.target_pce_pct": "--target-pce", "dyecell.target_pce_pct": "--target-pce", "rank.role": "--role",
+              "rank.sort_by": "--sort-by", "dyecell.oxide": "--oxide", "dyecell.mediator": "--mediator",
+              "partner": "--partner", "out": "--out", "strict": "--strict"}
+
+
+def _refuse_clashes(sets: dict, given: dict, prefix: str = "") -> None:
+    """Refuse a ``--set`` field that a command-line option of the same command sets to another value.
+
+    Before, ``--target-pce 8 --set rank.target_pce_pct=12`` silently used 8.
+
+    Examples
+    --------
+    >>> _refuse_clashes({"rank": {"target_pce_pct": 8}}, {"rank": {"target_pce_pct": 8.0}})
+    >>> _refuse_clashes({"rank": {"target_pce_pct": 12}}, {"rank": {"target_pce_pct": 8.0}})
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: --target-pce 8.0 and --set rank.target_pce_pct=12 give rank.target_pce_pct two values; give one of them
+    """
+    for key, value in given.items():
+        if key not in sets:
+            continue
+        path = f"{prefix}{key}"
+        if isinstance(value, dict) and isinstance(sets[key], dict):
+            _refuse_clashes(sets[key], value, path + ".")
+        elif sets[key] != value:
+            option = _OPTION_OF.get(path, f"the command's own option for {path}")
+            raise ConfigError(f"{option} {value} and --set {path}={sets[key]} give {path} two values; give one "
+                              "of them")
+
+
 def _load(args, extra: dict) -> Config:
     """The process's one :class:`Config`: config file, then ``--set``, then ``extra`` (None values skipped).
 
     The data folders become absolute paths (the workflow runs in the output folder).
     """
     overrides = _parse_set(getattr(args, "set", []))
-    merge(overrides, _drop_none(extra))
+    given = _drop_none(extra)
+    _refuse_clashes(overrides, given)
+    merge(overrides, given)
     return Config.load(getattr(args, "config", None), overrides).with_paths(data_path)
 
 

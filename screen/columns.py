@@ -44,4 +44,5 @@ RANKING_COLUMNS = ["rank", "id", "smiles", "role", "homo_ev", "lumo_ev", "gap_op
 #: candidate's representation (``molecule`` or ``polymer``: a repeat unit computed at the chain limit) and the
 #: probability that both offsets clear their thresholds given the levels' σ (``p_aligned``)
 RANKING_EXTRA_COLUMNS = ["name", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev", "viable", "reason", "model",
-                         "acceptor_class", "absorber_gap_ev", "representation", "p_aligned"]
+                         "acceptor_class", "absorber_gap_ev", "representation", "p_aligned", "chain_n_max",
+                         "chain_fit_quality", "truncated_groups"]

@@ -106,6 +106,9 @@ _REGISTRY = (
                                 "way (p_aligned between 0.25 and 0.75)", "info"),
     Flag("same_structure", "the same structure, in the same role, as an earlier row of the list (duplicate_of in "
                            "levels.csv names it): ranked like it, and kept out of the shortlist", "info"),
+    Flag("same_computed_structure", "computed as the same structure as another row of the same role once long side "
+                                    "chains were cut (smiles_computed): the same numbers, which do not resolve "
+                                    "the side chains beyond their first branch point", "info"),
     Flag("loss_class_pooled", "voltage loss: the fitted model's pooled value for all acceptor classes (the "
                               "fit keeps no separate value for this pair's class)", "info"),
     Flag("donor_only_model", "published donor-only model: only the donor absorbs and only the LUMO offset is "

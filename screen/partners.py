@@ -338,7 +338,8 @@ def partner_slug(spec: str, library_path: str | Path | None = None) -> str:
     str
         Readable, only ``[A-Za-z0-9._-]`` characters: the library id as written in the library;
         ``smiles-<slugified canonical SMILES>-<6 hex digits of the structure key>``;
-        ``file-<slugified file stem>-<hash of the absolute path>``; ``id-<the id>`` when the id is
+        ``file-<slugified file stem>-<hash of the absolute path and the file's content>`` (an edited
+        partner file ranks into a folder of its own; the earlier ranking stays); ``id-<the id>`` when the id is
         path-safe (40 characters at most), else ``id-<slugified id>-<hash of the id>``.
 
     Raises
@@ -365,18 +366,23 @@ def partner_slug(spec: str, library_path: str | Path | None = None) -> str:
     if kind == "id":
         return _readable_slug("id", spec[len(_ID_PREFIX):].strip())
     path = Path(spec).expanduser().resolve()
-    return f"file-{_safe_stem(path.stem)}-{_short_hash(str(path), 8)}"
+    try:
+        content = hashlib.sha256(path.read_bytes()).hexdigest()
+    except OSError:  # not readable (yet): the path alone
+        content = ""
+    return f"file-{_safe_stem(path.stem)}-{_short_hash(str(path) + content, 8)}"
 
 
 def split_partners(values) -> list[str]:
     """Partner specifications from repeated ``--partner`` options, each possibly a comma list.
 
     A value that names an existing file is kept whole (a path may hold commas);
-    duplicates are dropped, order kept.
+    duplicates are dropped, order kept (library names, which are read
+    case-insensitively, also when they differ only in case).
 
     Examples
     --------
-    >>> split_partners(["y6,c60", " c60 ", "smiles:c1ccsc1"])
+    >>> split_partners(["y6,c60", " c60 ", "smiles:c1ccsc1", "Y6"])
     ['y6', 'c60', 'smiles:c1ccsc1']
     >>> split_partners([])
     []
@@ -386,9 +392,17 @@ def split_partners(values) -> list[str]:
         value = str(value).strip()
         parts = [value] if _is_file(value) else [p.strip() for p in value.split(",")]
         for part in parts:
-            if part and part not in out:
+            if part and _same_key(part) not in {_same_key(o) for o in out}:
                 out.append(part)
     return out
+
+
+def _same_key(spec: str) -> str:
+    """What makes two partner specifications the same: a library name in any case, else the text."""
+    try:
+        return spec.lower() if partner_kind(spec) == "library" else spec
+    except PartnerError:
+        return spec
 
 
 # --------------------------------------------------------------------------- resolving

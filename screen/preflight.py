@@ -35,7 +35,8 @@ import yaml
 
 from screen.errors import ConfigError, InputError
 
-__all__ = ["SchemaField", "schema_fields", "allowed_text", "unit_of", "check_sets", "check_rank_sets", "check_candidates",
+__all__ = ["SchemaField", "schema_fields", "allowed_text", "unit_of", "check_sets", "check_rank_sets", "check_rank_config",
+           "check_candidates",
            "check_out_folder", "check_partners", "check_partner_scales", "check_out", "config_text",
            "CalibrationDifference", "calibration_differences", "calibration_text", "check_calibration", "fitted_in",
            "reference_count"]
@@ -301,11 +302,57 @@ def check_rank_sets(items, command: str) -> None:
         why, fix = f"{what} belongs to `dascreen {other}`", f"use `dascreen {other}` for it"
     else:
         why = f"{what} sets how levels are computed"
-        fix = (f"compute new levels with `dascreen run CANDIDATES --out NEW_FOLDER "
+        fix = (f"compute new levels with `dascreen {'run' if command == 'rank' else 'dyecell'} CANDIDATES --out NEW_FOLDER "
                f"{' '.join('--set ' + i for i in ignored)}` and rank those")
     takes = ", ".join(f"{s}.*" if s not in ("partner", "strict") else s for s in allowed)
     raise ConfigError(f"--set {', '.join(ignored)}: `dascreen {command}` ranks levels that are already computed and "
                       f"cannot apply it ({why}); {fix}; here --set takes {takes}")
+
+
+def check_rank_config(path, levels_path, command: str) -> None:
+    """Refuse a ``--config`` file whose settings of how levels are computed differ from the levels'.
+
+    A re-ranking cannot recompute levels, so a config file whose ``structures`` or
+    ``electronic`` sections give another protocol than the one recorded beside the
+    levels (``LEVELS.meta.json``), or whose ``levels.scale`` differs from theirs,
+    would be silently ignored — the same case :func:`check_rank_sets` refuses for
+    ``--set``. A run's own ``config.yaml`` always agrees with its levels; a levels
+    file without a sidecar is not checked.
+
+    Raises
+    ------
+    ConfigError
+        The message names the file, what differs and what to do.
+    """
+    if path is None:
+        return
+    from screen.config import Config, read_config_file
+
+    side = Path(f"{levels_path}.meta.json")
+    try:
+        meta = yaml.safe_load(side.read_text(encoding="utf-8")) if side.is_file() else None
+    except (OSError, yaml.YAMLError):
+        meta = None
+    if not isinstance(meta, dict):
+        return
+    raw = read_config_file(path)
+    differs = []
+    sections = [s for s in ("structures", "electronic") if raw.get(s)]
+    ran = meta.get("protocol_id")
+    if sections and ran:
+        mine = Config.load(path).protocol_id
+        if mine != ran:
+            differs.append(f"its {' and '.join(sections)} settings give protocol {mine}, the levels were computed "
+                           f"with {ran}")
+    scale = (raw.get("levels") or {}).get("scale") if isinstance(raw.get("levels"), dict) else None
+    if scale and meta.get("scale") and scale != meta["scale"]:
+        differs.append(f"its levels.scale is {scale}, the levels are on the {meta['scale']} scale")
+    if differs:
+        compute = "run" if command == "rank" else "dyecell"
+        raise ConfigError(f"--config {path}: `dascreen {command}` ranks levels that are already computed and cannot "
+                          f"apply how this file computes levels ({'; '.join(differs)}); rank with the run's own "
+                          f"config.yaml or remove those settings from the file, or compute new levels with "
+                          f"`dascreen {compute} CANDIDATES --out NEW_FOLDER --config {path}`")
 
 
 _SDF = (".sdf", ".sd", ".sdf.gz", ".sd.gz")

@@ -512,6 +512,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "heavy_atoms_unknown": heavy_unknown,
         "alignment_uncertain": pair_ok & (aligned > ALIGNMENT_UNCERTAIN[0]) & (aligned < ALIGNMENT_UNCERTAIN[1]),
         "same_structure": _same_structure(lv, cand, roles),
+        "same_computed_structure": _same_computed(lv, roles) & ~_same_structure(lv, cand, roles),
         "far_from_reference": _far_from_reference(lv),
         "chain_fit_poor": _text(lv, "chain_fit_quality") == "poor",
         "lone_pair_homo": _lone_pair_homo(lv),
@@ -534,6 +535,33 @@ def _same_structure(levels: pd.DataFrame, cand: _Candidates, roles: _Roles) -> n
     dup = _text(levels, "duplicate_of")
     role_of = dict(zip(cand.ids, roles.role))
     return np.array([bool(d) and role_of.get(d) == r for d, r in zip(dup, roles.role)], dtype=bool)
+
+
+def _same_computed(levels: pd.DataFrame, roles: _Roles) -> np.ndarray:
+    """Rows of the same role whose ``smiles_computed`` (a run's levels: after side chains were cut) equals
+    another row's while their input SMILES differ (a meeting-day audit: N-methyl and N-hexyl rylene imides got
+    identical numbers and were both shortlisted, with no word).
+
+    Examples
+    --------
+    >>> lv = pd.DataFrame({"smiles": ["CCCCCCc1ccsc1", "CCCCCCCCc1ccsc1", "Cc1ccsc1"],
+    ...                    "smiles_computed": ["Cc1ccsc1", "Cc1ccsc1", "Cc1ccsc1"]})
+    >>> r = _Roles(np.array(["donor", "donor", "acceptor"], dtype=object), *(np.zeros(3, bool),) * 8)
+    >>> _same_computed(lv, r).tolist()
+    [True, True, False]
+    """
+    computed, given = _text(levels, "smiles_computed"), _text(levels, "smiles")
+    out = np.zeros(len(levels), dtype=bool)
+    if not computed.any():
+        return out
+    groups: dict = {}
+    for i, (c, r) in enumerate(zip(computed, roles.role)):
+        if c:
+            groups.setdefault((c, r), []).append(i)
+    for rows in groups.values():
+        if len({given[i] for i in rows}) > 1:
+            out[rows] = True
+    return out
 
 
 def _far_from_reference(levels: pd.DataFrame) -> np.ndarray:
@@ -630,6 +658,11 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
         "absorber_gap_ev": np.where(pair_ok, np.asarray(dev["absorber_gap_ev"], dtype=float), np.nan),
         "representation": _representation(lv),
         "p_aligned": dev["p_aligned"],
+        # what a polymer's levels rest on (a polymer audit: the ranking did not say that PM6 rested on two
+        # oligomers, nor that side chains were cut); empty for molecules of files without these columns
+        "chain_n_max": _text(lv, "chain_n_max"),
+        "chain_fit_quality": _text(lv, "chain_fit_quality"),
+        "truncated_groups": _text(lv, "truncated_groups"),
     })
     for col in _ROUNDED:
         out[col] = out[col].round(_ROUND)
@@ -638,11 +671,13 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
 
 def _sort_ranking(out: pd.DataFrame, sort_by: str) -> pd.DataFrame:
     """Passing rows first, then viable before not viable, then ``sort_by`` descending (NaN last; ``pce_pct``
-    breaks ties of ``p_above_target``), then ``id``, then input order; ``rank`` = 1..n."""
-    keys = ["passes", "viable", sort_by] + (["pce_pct"] if sort_by != "pce_pct" else []) + ["id", "_order"]
+    breaks ties of ``p_above_target``), then a row that repeats an earlier row's structure after it
+    (``same_structure``), then ``id``, then input order; ``rank`` = 1..n."""
+    keys = ["passes", "viable", sort_by] + (["pce_pct"] if sort_by != "pce_pct" else []) + ["_dup", "id", "_order"]
     out["_order"] = np.arange(len(out))
-    out = out.sort_values(keys, ascending=[False, False, False] + [False] * (len(keys) - 5) + [True, True],
-                          na_position="last", kind="stable").drop(columns="_order").reset_index(drop=True)
+    out["_dup"] = out["flags"].astype(str).str.contains("same_structure", regex=False) if "flags" in out else False
+    out = out.sort_values(keys, ascending=[False, False, False] + [False] * (len(keys) - 6) + [True, True, True],
+                          na_position="last", kind="stable").drop(columns=["_order", "_dup"]).reset_index(drop=True)
     out["rank"] = np.arange(1, len(out) + 1)
     return out
 

@@ -34,10 +34,14 @@ from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, partner_ro
 from screen.rank_rows import shortlist_mask
 
 __all__ = ["write_shortlist", "shortlist_notice", "longest_oligomers", "computed_geometries", "settings_hash",
-           "ranking_folder", "read_ranked_levels", "check_before_computing", "run_rank"]
+           "ranking_folder", "levels_suffix", "set_aside_foreign", "read_ranked_levels", "check_before_computing", "run_rank"]
 
 
 # --------------------------------------------------------------------------- outputs
+
+#: the σ fields of a partner
+SIGMA_PARTNER = ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")
+
 
 def _sd_text(value) -> str:
     """SD property/title text: one line, no record separators."""
@@ -48,7 +52,8 @@ def _sd_text(value) -> str:
 
 _SD_PROPS = ["rank", "id", "name", "role", "partner", "homo_ev", "lumo_ev", "gap_opt_ev", "homo_sigma_ev",
              "lumo_sigma_ev", "gap_opt_sigma_ev", "delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff",
-             "pce_pct", "pce_sigma_pct", "p_above_target", "passes", "flags", "smiles"]
+             "pce_pct", "pce_sigma_pct", "p_above_target", "p_aligned", "passes", "flags", "representation",
+             "chain_n_max", "chain_fit_quality", "truncated_groups", "smiles"]
 
 
 def settings_hash(config) -> str:
@@ -78,6 +83,64 @@ def ranking_folder(partner_slug: str, config) -> str:
     True
     """
     return f"{partner_slug}--{settings_hash(config)}"
+
+
+def levels_suffix(levels_path, out_dir) -> str:
+    """Folder-name suffix of a ranking of another levels file than the run's own ``OUT/levels.csv``.
+
+    A run folder's rankings belong to its levels: the workflow treats
+    ``rankings/<partner>--<settings>/`` as the ranking of ``OUT/levels.csv``, so a
+    ranking of another file (measured CV levels, an older run) written there would
+    later be shown by ``dascreen run`` as the run's result.  Such a ranking gets
+    ``--levels-<file stem>-<6 hex of the file's absolute path>``; a folder without a
+    run's ``levels.csv`` keeps the plain names.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> run = Path(tempfile.mkdtemp()); _ = (run / "levels.csv").write_text("id")
+    >>> levels_suffix(run / "levels.csv", run)
+    ''
+    >>> levels_suffix("/data/my cv.csv", run)[:15]
+    '--levels-my-cv-'
+    >>> levels_suffix("/data/my cv.csv", run / "empty")
+    ''
+    """
+    from screen.partners import slugify
+
+    own = Path(out_dir) / "levels.csv"
+    path = Path(levels_path).resolve()
+    if not own.is_file() or path == own.resolve():
+        return ""
+    return f"--levels-{slugify(path.stem, 24)}-{hashlib.sha256(str(path).encode()).hexdigest()[:6]}"
+
+
+def set_aside_foreign(out_dir, folder: str) -> str | None:
+    """Move a run's ranking folder that holds the ranking of another levels file to its own name.
+
+    Rankings written before :func:`levels_suffix` existed sit under the run's own
+    folder name; ``dascreen run`` calls this first, so that its workflow ranks the
+    run's levels again instead of presenting the other file's ranking as its own.
+    Returns the new folder name, or None when nothing was moved.
+    """
+    out_dir = Path(out_dir)
+    target = out_dir / "rankings" / folder
+    meta = target / "ranking.meta.json"
+    if not meta.is_file() or not (out_dir / "levels.csv").is_file():
+        return None
+    try:
+        ranked = (json.loads(meta.read_text(encoding="utf-8")).get("levels") or {}).get("path")
+    except (OSError, ValueError, AttributeError):
+        return None
+    if not ranked or Path(ranked).resolve() == (out_dir / "levels.csv").resolve():
+        return None
+    new = target.with_name(folder + levels_suffix(ranked, out_dir))
+    if new.exists():  # a later ranking of that file already has the name: keep both
+        new = new.with_name(new.name + "-earlier")
+    if new.exists():
+        return None
+    target.rename(new)
+    return new.name
 
 
 def _sdf_records(path: Path, wanted: set[str]) -> dict[str, str]:
@@ -804,7 +867,19 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     ranking = rank_candidates(levels, partner, model, options)
     lap("rank_s")
 
-    target = out_dir / "rankings" / ranking_folder(partner.slug, cfg)
+    if partner.kind == "file" and not any(getattr(partner, c) > 0 for c in SIGMA_PARTNER):
+        print(f"dascreen rank: partner file {partner.spec} gives no σ: its levels are taken as exact (the built-in "
+              "partners carry ±0.1–0.3 eV); add homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev to include it",
+              file=sys.stderr)
+    if (partner.kind == "library" and partner.notes.startswith("NOT a measured material")
+            and model.model != "scharber"):  # reproducing the published model with its own reference is fine
+        print(f"dascreen rank: partner {partner.id}: {'; '.join(partner.notes.split('; ')[:2]).rstrip('.')}",
+              file=sys.stderr)  # the published model's reference level, on its own convention
+    suffix = levels_suffix(levels_path, out_dir)
+    target = out_dir / "rankings" / (ranking_folder(partner.slug, cfg) + suffix)
+    if suffix and not target.exists():
+        print(f"dascreen rank: {levels_path} is not this run's levels.csv: its ranking goes to "
+              f"{target.relative_to(out_dir)} (the run's own rankings are untouched)", file=sys.stderr)
     levels_sha = sha256_file(levels_path)
     was_replaced = _check_target(target, partner, levels_path, levels_sha)
     csv_text = write_csv(ranking, target / "ranking.csv")

@@ -8,6 +8,7 @@ import json
 import os
 import sys
 import time
+from pathlib import Path
 
 import pandas as pd
 import pytest
@@ -267,6 +268,90 @@ def test_a_folder_of_another_partner_is_never_overwritten(levels, tmp_path, caps
     assert (clash / "ranking.csv").read_bytes() == before
 
 
+def test_another_levels_file_ranked_in_a_run_folder_gets_a_folder_of_its_own(levels, tmp_path, capsys):
+    # a meeting-day audit: `rank --levels my_cv.csv --out RUN` wrote into the run's own ranking folder, and the next
+    # `dascreen run` found "nothing to be done" and printed the two CV rows as the 32-candidate run's ranking
+    from screen.rank_io import ranking_folder, set_aside_foreign
+
+    run = tmp_path / "run"
+    run.mkdir()
+    (run / "levels.csv").write_bytes(levels.read_bytes())
+    assert _cli(capsys, "rank", "--levels", str(run / "levels.csv"), "--out", str(run), "--partner", "c60")[0] == 0
+    own = run / "rankings" / ranking_folder("c60", {})
+    before = (own / "ranking.csv").read_bytes()
+    cv = tmp_path / "my cv.csv"
+    cv.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale,role\nCV-1,-5.30,-3.40,1.85,film,donor\n", encoding="utf-8")
+    rc, _, err = _cli(capsys, "rank", "--levels", str(cv), "--out", str(run), "--partner", "c60")
+    assert rc == 0 and "is not this run's levels.csv" in err and "untouched" in err
+    assert (own / "ranking.csv").read_bytes() == before
+    (theirs,) = [p for p in (run / "rankings").iterdir() if p != own]
+    assert theirs.name.startswith(own.name + "--levels-my-cv-")
+    assert "CV-1" in (theirs / "ranking.csv").read_text()
+    # a folder written the old way (the CV ranking under the run's own name) is moved aside before a run
+    theirs.rename(own.with_name("old"))
+    own.rename(own.with_name("own"))
+    own.with_name("old").rename(own)
+    assert set_aside_foreign(run, own.name) == theirs.name and (theirs / "ranking.csv").is_file()
+    assert not own.exists()
+    assert set_aside_foreign(run, own.name) is None
+
+
+def test_an_edited_partner_file_ranks_into_a_new_folder_and_keeps_the_earlier_one(levels, tmp_path, capsys):
+    # a meeting-day audit: "what if accX's LUMO were -3.70" replaced the -4.00 ranking (the folder name came from
+    # the file's path only), and a partner matrix kept showing the old values next to the new ranking
+    acc = tmp_path / "accX.csv"
+    acc.write_text("id,role,homo_ev,lumo_ev,gap_opt_ev,scale\naccX,acceptor,-5.75,-4.00,1.45,film\n", encoding="utf-8")
+    out = tmp_path / "out"
+    assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", str(acc))[0] == 0
+    acc.write_text(acc.read_text(encoding="utf-8").replace("-4.00", "-3.70"), encoding="utf-8")
+    assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", str(acc))[0] == 0
+    metas = [json.loads((p / "ranking.meta.json").read_text()) for p in sorted((out / "rankings").iterdir())]
+    assert sorted(m["partner"]["lumo_ev"] for m in metas) == [-4.0, -3.7]
+
+
+def test_a_partner_file_without_sigma_is_said_to_be_taken_as_exact(levels, tmp_path, capsys):
+    # a meeting-day audit: without σ columns P(PCE > target) came out 0.875 against 0.741 with σ 0.10, unsaid
+    acc = tmp_path / "accS0.csv"
+    acc.write_text("id,role,homo_ev,lumo_ev,gap_opt_ev,scale\naccS0,acceptor,-5.75,-4.00,1.45,film\n", encoding="utf-8")
+    out = tmp_path / "out"
+    rc, _, err = _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", str(acc))
+    assert rc == 0 and "gives no σ: its levels are taken as exact" in err
+    (folder,) = (out / "rankings").iterdir()
+    assert "no σ given for the partner" in (folder / "report.html").read_text(encoding="utf-8")
+    with_sigma = tmp_path / "accS1.csv"
+    with_sigma.write_text("id,role,homo_ev,lumo_ev,gap_opt_ev,scale,homo_sigma_ev,lumo_sigma_ev,gap_opt_sigma_ev\n"
+                          "accS1,acceptor,-5.75,-4.00,1.45,film,0.1,0.1,0.1\n", encoding="utf-8")
+    rc, _, err = _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", str(with_sigma))
+    assert rc == 0 and "gives no σ" not in err
+
+
+@pytest.mark.parametrize("extra, said", [
+    (["--partner", ""], "--partner '' names no partner"),
+    (["--partner", " , "], "names no partner"),
+    (["--target-pce", "8", "--set", "rank.target_pce_pct=12"],
+     "--target-pce 8.0 and --set rank.target_pce_pct=12 give rank.target_pce_pct two values"),
+    (["--role", "donor", "--set", "rank.role=acceptor"], "--role donor and --set rank.role=acceptor"),
+])
+def test_rank_refuses_an_empty_partner_and_options_that_disagree_with_set(levels, tmp_path, capsys, extra, said):
+    # a meeting-day audit: `--partner ''` silently meant the default partner, and `--target-pce 8 --set
+    # rank.target_pce_pct=12` silently used 8
+    out = tmp_path / "out"
+    rc, stdout, err = _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), *extra)
+    assert rc == 2 and said in err and len(err.strip().splitlines()) == 1 and not (out / "rankings").exists()
+
+
+def test_the_published_models_reference_partner_is_named_as_no_measured_material(levels, tmp_path, capsys):
+    rc, _, err = _cli(capsys, "rank", "--levels", str(levels), "--out", str(tmp_path / "out"),
+                      "--partner", "scharber-reference-acceptor")
+    assert rc == 0 and "NOT a measured material" in err and "never to rank candidates against real partners" in err
+
+
+def test_a_partner_named_twice_in_other_case_is_ranked_once(levels, tmp_path, capsys):
+    out = tmp_path / "out"
+    assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60,C60")[0] == 0
+    assert len(list((out / "rankings").iterdir())) == 1
+
+
 def test_id_and_smiles_partners_get_readable_folders(levels, tmp_path, capsys):
     out = tmp_path / "out"
     assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "id:KF-D01")[0] == 0
@@ -445,6 +530,27 @@ def test_rank_refuses_a_setting_it_cannot_apply(levels, tmp_path, capsys, item, 
                            "--set", "device.eqe=0.7", "--set", item)
     assert rc == 2 and said in err and f"--set {item}" in err and "device.eqe" not in err.split(":")[1]
     assert len(err.strip().splitlines()) == 1 and not stdout and not (out / "rankings").exists()
+
+
+@pytest.mark.parametrize("text, said", [
+    ("structures:\n  geometry: xtb\n", "its structures settings give protocol tblite-gfn2-xtb-"),
+    ("levels:\n  scale: gas\n", "its levels.scale is gas, the levels are on the film scale"),
+])
+def test_rank_refuses_a_config_file_that_computes_levels_otherwise(levels, tmp_path, capsys, text, said):
+    # `--set structures.geometry=xtb` was refused, but the same setting in a --config file exited 0 with the
+    # levels of the other protocol; the levels' sidecar records how they were computed
+    Path(f"{levels}.meta.json").write_text('{"protocol_id": "tblite-gfn2-ff-cf90d5d7", "scale": "film"}',
+                                           encoding="utf-8")
+    cfg = tmp_path / "mine.yaml"
+    cfg.write_text("device:\n  eqe: 0.7\n" + text, encoding="utf-8")
+    out = tmp_path / "out"
+    rc, stdout, err = _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60",
+                           "--config", str(cfg))
+    assert rc == 2 and said in err and f"--config {cfg}" in err and "dascreen run CANDIDATES" in err
+    assert len(err.strip().splitlines()) == 1 and not stdout and not (out / "rankings").exists()
+    cfg.write_text("device:\n  eqe: 0.7\nstructures:\n  geometry: ff\n", encoding="utf-8")  # the levels' own
+    assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60",
+                "--config", str(cfg))[0] == 0
 
 
 def test_dyecell_rerank_refuses_a_device_setting(tmp_path, capsys):

@@ -600,3 +600,8 @@ def test_a_second_id_of_one_structure_is_flagged_and_kept_out_of_the_shortlist(t
     assert "same_structure" not in by.loc["ANT-a", "flags"]
     assert by.loc["ANT-a", "pce_pct"] == by.loc["ANT-b", "pce_pct"]
     assert set(r[shortlist_mask(r)]["id"]) == {"ANT-a", "OTHER"}
+    # a meeting-day audit: a repeat whose id sorts first ("BAD-3" < "KF-D01") ranked above its original and the
+    # report's headline named it; it now sorts right after the structure it repeats
+    renamed = lv.assign(id=["Z-first", "A-repeat", "OTHER"], duplicate_of=["", "Z-first", ""])
+    order = rank_candidates(renamed, y6, options=RankOptions(partner_sigma=False))["id"].tolist()
+    assert order.index("Z-first") < order.index("A-repeat")

@@ -666,3 +666,15 @@ def test_a_polymer_candidate_is_marked_in_the_tables():
     cell = _candidate_cell("pt", "a polymer", "donor", None, "polymer")
     assert ">polymer<" in cell and "chain limit" in cell
     assert ">polymer<" not in _candidate_cell("m", "a molecule", "donor", None, "molecule")
+
+
+def test_the_counts_say_how_many_not_viable_rows_were_never_paired():
+    # a meeting-day audit: in a mixed batch against an acceptor partner, "15 not viable" were 3 chemistry verdicts
+    # and 12 acceptors that were never paired with it
+    from screen.report.header import counts_strip
+
+    ranking = pd.DataFrame({"viable": [True, False, False, False],
+                            "flags": ["", "homo_inverted", "same_role_as_partner", "same_role_as_partner"]})
+    strip = counts_strip({}, None, ranking, 1, 1)
+    assert '3</span><span class="what">of them not viable' in strip
+    assert '2</span><span class="what">of those, not paired: same role as the partner' in strip

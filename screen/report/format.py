@@ -24,7 +24,7 @@ from screen.io import cell_number as num
 from screen.io import cell_text as text
 
 __all__ = ["NOT_RECORDED", "num", "text", "esc", "fmt", "fmt_pm", "pm_html", "data_value", "get", "shorten",
-           "truthy", "texts", "truthies", "has_text", "numbers", "fmts", "pm_htmls", "data_values"]
+           "truthy", "texts", "truthies", "has_text", "numbers", "fmts", "pm_htmls", "data_values", "percent"]
 
 #: Shown for a value the run did not record.
 NOT_RECORDED = "not recorded"
@@ -194,3 +194,22 @@ def has_text(series: pd.Series) -> pd.Series:
     if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(series.dtype):
         return series.notna()
     return texts(series).ne("")
+
+
+def percent(value) -> str:
+    """A probability [0–1] as a percentage for a table cell (``"71 %"``; ``<1 %`` and ``>99 %`` near the ends).
+
+    Examples
+    --------
+    >>> percent(0.71), percent(0.0), percent(0.004), percent(0.996), percent(1.0), percent(None)
+    ('71 %', '0 %', '&lt;1 %', '&gt;99 %', '100 %', '—')
+    """
+    x = num(value)
+    if math.isnan(x):
+        return "\u2014"
+    pct = 100.0 * x
+    if 0 < pct < 1:
+        return "&lt;1 %"
+    if 99 < pct < 100:
+        return "&gt;99 %"
+    return f"{pct:.0f} %"

@@ -71,6 +71,12 @@ def partner_card(partner: dict, meta: dict) -> str:
         ("Energy scale", esc(p.get("scale")) or NOT_RECORDED),
         ("Source", esc(source) or NOT_RECORDED),
     ]
+    sigmas = [num(p.get(k)) for k in ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")]
+    if not any(s > 0 for s in sigmas):  # NaN > 0 is False: none given
+        items.append(("Uncertainty", "no \u03c3 given for the partner: its levels are taken as exact, so "
+                                     "P(aligned) and P(PCE &gt; target) carry only the candidates\u2019 \u03c3 "
+                                     "(the built-in partners carry \u00b10.1\u20130.3 eV); add homo_sigma_ev, lumo_sigma_ev "
+                                     "and gap_opt_sigma_ev columns to the partner file to include it"))
     if p.get("from_memory") is True:
         items.append(("Provenance", "values recalled from the literature, not read from the source "
                                     "\u2014 check them before relying on absolute numbers"))
@@ -104,7 +110,13 @@ def _method_words(lm: dict, el: dict) -> str:
     m = " ".join(x for x in (method, f"({engine})" if engine else "") if x)
     m += " \u0394SCF: vertical ionisation energy and electron affinity at the neutral geometry"
     solvent = text(el.get("solvent"))
-    return m + (f"; implicit solvent {solvent}" if solvent else "; gas phase")
+    if solvent:
+        return m + f"; implicit solvent {solvent}"
+    eps = num(el.get("film_epsilon"))
+    if not math.isnan(eps):  # film levels come from ions and neutral in a continuum of the solid's ε
+        return m + (f", in the gas phase and in a dielectric continuum of \u03b5 = {eps:g} (the solid film; the "
+                    "film levels are calibrated on the latter)")
+    return m + "; gas phase"
 
 
 def _geometry_words(lm: dict, st: dict) -> str:
@@ -189,7 +201,7 @@ def _loss_words(dev: dict) -> str:
     >>> _loss_words({"loss_v": 0.3})
     '0.30 V'
     >>> _loss_words({"loss_v": 0.57, "loss_v_set": False, "fitted": {"loss_slope": 0.42, "ect_ref_ev": 1.46}})
-    '0.57 V at E<sub>CT</sub> = 1.46 eV, +0.42 V per eV of E<sub>CT</sub> above it (less below)'
+    '0.57 V at E<sub>CT</sub> = 1.46 eV, changing by +0.42 V per eV of E<sub>CT</sub> (smaller at lower E<sub>CT</sub>, larger at higher) within the fitted E<sub>CT</sub> range'
     >>> _loss_words({"loss_v": 0.54, "loss_v_set": False, "fitted": {"loss_ev": {"pooled": 0.54}}})
     '0.54 V (one value for every acceptor class: the cross-validation kept no class value)'
     """
@@ -201,8 +213,9 @@ def _loss_words(dev: dict) -> str:
               else " (one value for every acceptor class: the cross-validation kept no class value)")
     if dev.get("loss_v_set") or math.isnan(slope) or math.isnan(ref) or slope <= 0:
         return base + pooled
-    return (f"{base} at E<sub>CT</sub> = {fmt(ref)} eV, {fmt(slope, plus=True)} V per eV of E<sub>CT</sub> "
-            f"above it (less below){pooled}")
+    return (f"{base} at E<sub>CT</sub> = {fmt(ref)} eV, changing by {fmt(slope, plus=True)} V per eV of "
+            f"E<sub>CT</sub> (smaller at lower E<sub>CT</sub>, larger at higher) within the fitted E<sub>CT</sub> "
+            f"range{pooled}")
 
 
 def _ff_words(dev: dict) -> str:
@@ -410,7 +423,12 @@ def counts_strip(meta: dict, levels: pd.DataFrame, ranking: pd.DataFrame, n_shor
     fail = pick("failed", int(status.eq("failed").sum()) if status is not None else None)
     items = [("input rows", rows), ("computed", ok), ("ranked", len(ranking))]
     if ranking is not None and "viable" in ranking:
-        items.append(("of them not viable", int((~truthies(ranking["viable"])).sum())))
+        not_viable = ~truthies(ranking["viable"])
+        same = (texts(ranking["flags"]).str.contains("same_role_as_partner", regex=False) & not_viable
+                if "flags" in ranking else pd.Series(False, index=ranking.index))
+        items.append(("of them not viable", int(not_viable.sum())))
+        if same.any():  # a meeting-day audit: never-paired rows read as chemistry verdicts in "not viable"
+            items.append(("of those, not paired: same role as the partner", int(same.sum())))
     items += [("pass every check", n_pass), ("shortlisted", n_short), ("rejected", rej), ("failed", fail)]
     cells = "".join(
         f'<div class="count"><span class="n">{NOT_RECORDED if v is None else v}</span>'

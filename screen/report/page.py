@@ -17,6 +17,7 @@ import pandas as pd
 from screen import __version__
 from screen.report.figures import DIAGRAM_MAX, design_map_svg, level_diagram_svg
 from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, text, truthies
+from screen.rank_rows import shortlist_mask
 from screen.report.header import counts_strip, device_card, device_tests_html, partner_card, protocol_card
 from screen.report.tables import (
     capped_note,
@@ -44,7 +45,10 @@ _CAUTION = (
     '<p class="caution" id="caution"><strong>Screening estimates.</strong> Every number on this page comes '
     "from a semi-empirical quantum-chemistry method with an empirical calibration and an idealised device "
     "model. The numbers are for ranking and for choosing what to discuss; they are not predicted "
-    "measurements, and the \u00b1 values are model uncertainties, not guarantees. Making and handling any "
+    "measurements. The \u00b1 values (1\u03c3) carry the calibrated levels\u2019 uncertainty through the device "
+    "model, not the device model\u2019s own error (the device card gives its held-out figures), so the "
+    "true spread is wider; an estimate above the target with P(PCE &gt; target) below one half comes from "
+    "samples in which the pair is not viable (counted as 0 %). Making and handling any "
     "candidate follows your lab\u2019s chemical-safety rules, the safety data sheets of every reagent and "
     "local regulations.</p>"
 )
@@ -77,14 +81,42 @@ def _created(meta: dict) -> str:
 
 
 def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass) -> str:
-    """One sentence naming the best candidate."""
+    """One sentence naming the best candidate: the highest PCE estimate among the rows the shortlist may take.
+
+    A row that repeats an earlier row's structure (``same_structure``) is never named, and when the
+    ranking is sorted by another column the first row by that order is named beside it.
+
+    Examples
+    --------
+    >>> r = pd.DataFrame({"id": ["B", "A", "C"], "pce_pct": [12.5, 13.4, 13.4], "pce_sigma_pct": [2.7, 5.2, 5.2],
+    ...                   "p_above_target": [0.83, 0.71, 0.71], "passes": [True, True, True],
+    ...                   "flags": ["", "", "same_structure"]})
+    >>> print(_summary_sentence(r, "y6", 3))  # doctest: +NORMALIZE_WHITESPACE
+    3 candidate(s) ranked against <strong>y6</strong>; 3 pass every check (1 of them repeats an earlier row's
+    structure and stays out of the shortlist). Best estimate: <strong>A</strong> at 13.4 ± 5.2 % PCE; first in the
+    ranking's order: <strong>B</strong> (12.5 % PCE, P(PCE &gt; target) 83 %).
+    """
     if not len(ranking):
         return f"No candidate was ranked against {esc(partner_id) or 'the partner'}."
-    best = ranking.iloc[0]
-    pce = fmt_pm(best.get("pce_pct"), best.get("pce_sigma_pct"), 1)
+    eligible = ranking[shortlist_mask(ranking)]
+    pool = eligible if len(eligible) else ranking
+    pce = pd.to_numeric(pool.get("pce_pct", pd.Series(index=pool.index, dtype=float)), errors="coerce")
+    best = pool.loc[pce.idxmax()] if pce.notna().any() else pool.iloc[0]
     passing = "" if n_pass is None else f"; {n_pass} pass every check"
-    return (f"{len(ranking)} candidate(s) ranked against <strong>{esc(partner_id) or 'the partner'}</strong>"
-            f"{passing}. Best estimate: <strong>{esc(best.get('id'))}</strong> at {pce} % PCE.")
+    repeats = int((truthies(ranking["passes"]) & ~shortlist_mask(ranking)).sum()) if "passes" in ranking else 0
+    if passing and repeats:
+        passing += (f" ({repeats} of them {'repeats' if repeats == 1 else 'repeat'} an earlier row's structure and "
+                    f"{'stays' if repeats == 1 else 'stay'} out of the shortlist)")
+    sentence = (f"{len(ranking)} candidate(s) ranked against <strong>{esc(partner_id) or 'the partner'}</strong>"
+                f"{passing}. Best estimate: <strong>{esc(best.get('id'))}</strong> at "
+                f"{fmt_pm(best.get('pce_pct'), best.get('pce_sigma_pct'), 1)} % PCE")
+    first = pool.iloc[0]
+    if first.get("id") != best.get("id") and num(first.get("pce_pct")) != num(best.get("pce_pct")):
+        prob = num(first.get("p_above_target"))
+        said = "" if math.isnan(prob) else f", P(PCE &gt; target) {prob * 100:.0f} %"
+        sentence += (f"; first in the ranking's order: <strong>{esc(first.get('id'))}</strong> "
+                     f"({fmt(first.get('pce_pct'), 1)} % PCE{said})")
+    return sentence + "."
 
 
 def _resolve_partner(partner: dict, meta: dict) -> dict:

@@ -14,8 +14,8 @@ import pandas as pd
 from screen.flags import FLAGS, INFO_FLAGS, codes_of, describe
 from screen.rank_rows import shortlist_mask
 from screen.report.drawings import molecule_svg
-from screen.report.format import (data_values, esc, fmts, get, has_text, num, pm_htmls, shorten, text, texts,
-                                  truthies)
+from screen.report.format import (data_values, esc, fmts, get, has_text, num, percent, pm_htmls, shorten, text,
+                                  texts, truthies)
 
 __all__ = ["with_level_details", "select_shortlist", "shortlist_table", "full_table", "not_ranked_table",
            "not_viable_table", "capped_note", "target_label", "CAPPED_MARK"]
@@ -136,17 +136,7 @@ def target_label(meta: dict) -> str:
             else "P(PCE &gt; target)")
 
 
-def _prob(value) -> str:
-    """Probability as a percentage (``"43 %"``)."""
-    x = num(value)
-    if math.isnan(x):
-        return "\u2014"
-    pct = 100.0 * x
-    if 0 < pct < 1:
-        return "&lt;1 %"
-    if 99 < pct < 100:
-        return "&gt;99 %"
-    return f"{pct:.0f} %"
+_prob = percent  # a probability cell ("43 %")
 
 
 def _cells(frame: pd.DataFrame, col: str) -> list:
@@ -202,9 +192,17 @@ def _header(cells) -> str:
     return "<thead><tr>" + "".join(out) + "</tr></thead>"
 
 
-def _candidate_cell(ident: str, name, role, smiles=None, representation="") -> str:
-    """Id (bold), name, role badge and, for a polymer repeat unit, a 'polymer (chain limit)' badge; the SMILES,
-    shortened, when given (not None)."""
+def _candidate_cell(ident: str, name, role, smiles=None, representation="", chain=("", "", "")) -> str:
+    """Id (bold), name, role badge and, for a polymer repeat unit, a 'polymer' badge saying how many oligomers its
+    chain limit rests on, whether the fit is poor and which side chains were cut (``chain``: ``chain_n_max``,
+    ``chain_fit_quality``, ``truncated_groups``); the SMILES, shortened, when given (not None).
+
+    Examples
+    --------
+    >>> cell = _candidate_cell("P1", "", "donor", None, "polymer", ("2", "poor", "per repeat unit: C8H17->CH3"))
+    >>> "polymer n\u22642 \u00b7 fit poor" in cell, "side chains cut to methyl: C8H17-&gt;CH3" in cell
+    (True, True)
+    """
     name = text(name)
     parts = [f'<span class="cid">{esc(ident)}</span>']
     if name and name != ident:
@@ -213,8 +211,14 @@ def _candidate_cell(ident: str, name, role, smiles=None, representation="") -> s
     if badge:
         parts.append(badge)
     if text(representation).strip().lower() == "polymer":
-        parts.append('<span class="role role-other" title="polymer repeat unit: levels at the chain limit of its '
-                     'oligomers">polymer</span>')
+        n_max, quality, cut = (text(c).strip() for c in chain)
+        n_max = n_max.split(".")[0] if n_max else ""
+        title = "polymer repeat unit: levels at the chain limit of its oligomers" + (
+            f" n = 1\u2013{n_max}" if n_max else "") + (f", chain fit {quality}" if quality else "")
+        if cut:
+            title += "; side chains cut to methyl: " + cut.removeprefix("per repeat unit: ") + " per repeat unit"
+        label = "polymer" + (f" n\u2264{n_max}" if n_max else "") + (" \u00b7 fit poor" if quality == "poor" else "")
+        parts.append(f'<span class="role role-other" title="{esc(title)}">{esc(label)}</span>')
     if smiles is not None:
         smi = text(smiles)
         if smi:
@@ -225,9 +229,10 @@ def _candidate_cell(ident: str, name, role, smiles=None, representation="") -> s
 def _candidate_cells(frame: pd.DataFrame, ids: list[str], with_smiles: bool) -> list[str]:
     """:func:`_candidate_cell` of each row."""
     smiles = _cells(frame, "smiles") if with_smiles else [None] * len(frame)
-    return [_candidate_cell(i, n, r, s, p)
-            for i, n, r, s, p in zip(ids, _cells(frame, "name"), _cells(frame, "role"), smiles,
-                                     _cells(frame, "representation"))]
+    chains = zip(_cells(frame, "chain_n_max"), _cells(frame, "chain_fit_quality"), _cells(frame, "truncated_groups"))
+    return [_candidate_cell(i, n, r, s, p, c)
+            for i, n, r, s, p, c in zip(ids, _cells(frame, "name"), _cells(frame, "role"), smiles,
+                                        _cells(frame, "representation"), chains)]
 
 
 def _level_columns(frame: pd.DataFrame) -> list[list[str]]:
