@@ -117,6 +117,14 @@ def test_library_and_user_files(tmp_path):
     ("c1ccc(-c2cccnc2)cc1", ["pyridine"]),                                     # 3-pyridyl
     ("OS(=O)(=O)c1ccccc1", ["sulfonic acid"]),
     ("C[Si](O)(C)c1ccccc1", ["silanol"]),
+    # alternatives to carboxylic acids in Zhang & Cole, ACS Appl. Mater. Interfaces 7 (2015) 3427 (from memory)
+    ("c1ccc(-c2nn[nH]n2)cc1", ["tetrazole"]),                                 # 2H-tautomer
+    ("c1ccc(-c2nnn[nH]2)cc1", ["tetrazole"]),                                 # 1H-tautomer
+    ("c1ccc(-c2nn[n-]n2)cc1", ["tetrazole"]),                                 # tetrazolate
+    ("Oc1cccc2ccc(C=Cc3ccc(N(C)C)cc3)nc12", ["8-hydroxyquinoline"]),
+    ("CC(=O)CC(=O)c1ccc(N(C)C)cc1", ["β-diketone (acac)"]),
+    ("CC(=O)C(C)C(=O)c1ccccc1", ["β-diketone (acac)"]),
+    ("CC(O)=CC(=O)c1ccc(N(C)C)cc1", ["β-diketone (acac)"]),                    # enol form
 ])
 def test_anchor_positive(smiles, expected):
     assert find_anchors(smiles) == expected
@@ -140,6 +148,12 @@ def test_anchor_positive(smiles, expected):
     "O=C1CCC(=O)N1O",                             # N-hydroxysuccinimide is no hydroxamic acid
     "COC(=O)O",                                   # carbonate half-ester is no carboxylic acid
     "COS(=O)(=O)O",                               # sulfate half-ester is no sulfonic acid
+    "Cn1nnnc1-c1ccccc1",                          # 1-methyltetrazole: no acidic N-H
+    "Cn1nnc(-c2ccccc2)n1",                        # 2-methyltetrazole
+    "O=C1C(=Cc2ccc(N(C)C)cc2)C(=O)c2ccccc21",     # 2-ylidene-indan-1,3-dione: an acceptor, not an anchor
+    "CC(=O)c1ccccc1",                             # a single ketone
+    "COc1cccc2cccnc12",                           # 8-methoxyquinoline
+    "CN1C(=CC2=C([O-])C(=CC3=[N+](C)c4ccccc4C3(C)C)C2=O)C(C)(C)c2ccccc21",  # squaraine core: no acac
 ])
 def test_anchor_negative(smiles):
     assert find_anchors(smiles) == []
@@ -616,3 +630,28 @@ def test_a_dye_row_with_two_disagreeing_potentials_is_refused(tmp_path):
         dyes_from_file(frame, "dyes.csv")
     same = dyes_from_file(frame.iloc[1:].reset_index(drop=True), "dyes.csv")  # 0.74 against 0.73: rounding
     assert same.loc[0, "e_ox_v_nhe"] == pytest.approx(0.74)
+
+
+def test_viability_within_part_of_the_level_uncertainty_gets_an_info_flag():
+    # co-bpy3 at +0.56 V vs NHE (screen/data/mediators.csv), TiO2 anatase edge -0.50 V, regeneration threshold
+    # 0.2 eV (common practice): E(S+/S) 0.78 V clears it by 0.02 eV, 0.74 V misses it by 0.02 eV; with σ 0.1 V/eV
+    # the sampled drives clear it only part of the time (the band of alignment_uncertain: 0.25-0.75)
+    from screen.dyecell.flags import FLAGS, INFO_FLAGS, VIABILITY_UNCERTAIN, describe
+
+    dyes = dyes_from_file(pd.DataFrame({
+        "id": ["close", "sure", "sharp", "below"], "e_ox_v_nhe": [0.78, 1.07, 0.78, 0.74], "e00_ev": [1.96] * 4,
+        "e_ox_sigma_v": [0.1, 0.1, 0.0, 0.1], "e00_sigma_ev": [0.1, 0.1, 0.0, 0.1],
+        "smiles": ["OC(=O)C(C#N)=Cc1ccc(N(C)C)cc1"] * 4}))
+    r = rank_dyes(dyes, resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3")).set_index("id")
+    assert VIABILITY_UNCERTAIN == (0.25, 0.75)
+    assert 0.25 < r.loc["close", "p_viable"] < 0.75 and r.loc["close", "viable"]
+    assert r.loc["close", "flags"] == "viability_uncertain"
+    assert r.loc["close", "passes"] and r.loc["close", "viability"] == "viable"   # information: the row still passes
+    assert r.loc["sure", "p_viable"] >= 0.75 and r.loc["sure", "flags"] == ""
+    assert r.loc["sharp", "p_viable"] == 1.0 and r.loc["sharp", "flags"] == ""      # no σ: no doubt
+    # a near miss on the other side is told too, beside the failing flag
+    assert 0.25 < r.loc["below", "p_viable"] < 0.75
+    assert r.loc["below", "flags"] == "regeneration_low;viability_uncertain" and not r.loc["below", "passes"]
+    assert "viability_uncertain" in INFO_FLAGS and FLAGS["viability_uncertain"].severity == "info"
+    assert describe("viability_uncertain") == ("P(viable) between 0.25 and 0.75: the driving forces clear their "
+                                               "thresholds in only part of the level uncertainty")

@@ -632,3 +632,143 @@ def test_cli_without_anchor_requirement_shows_the_info_flag(tmp_path, capsys):
     assert table.loc[0, "flags"] == "anchor_missing_allowed" and str(table.loc[0, "passes"]) == "True"
     page = (ranking.parent / "report.html").read_text()
     assert "anchor check is switched off" in page
+
+
+# --------------------------------------------------------------------------- a group leader's audit (re-ranking live
+# in a meeting): another levels file into a run folder, the uncertain verdict, the report's reasons and percentages
+
+
+def _computed_run(tmp_path: Path, monkeypatch) -> tuple[Path, list[str]]:
+    """A computing dye run of three dyes (shared stages faked) into ``tmp_path/run``; (run folder, common args)."""
+    from screen.cli import main
+
+    root, _ = _fake_stages(tmp_path, monkeypatch)
+    src = tmp_path / "dyes.csv"
+    src.write_text("id,smiles\n"
+                   "D1,OC(=O)C(C#N)=Cc1ccc(N(C)C)cc1\n"
+                   "D2,OC(=O)C(C#N)=Cc1ccc(N(CC)CC)cc1\n"
+                   "D3,OC(=O)C(C#N)=Cc1ccc(N(CCC)CCC)cc1\n")
+    out = tmp_path / "run"
+    args = ["--models", str(root), "--set", "dyecell.n_samples=100"]
+    assert main(["dyecell", str(src), "--out", str(out), "--cores", "1"] + args) == 0
+    return out, args
+
+
+def test_another_levels_file_into_a_run_folder_gets_a_folder_of_its_own(tmp_path, capsys, monkeypatch):
+    import hashlib
+
+    from screen.cli import main
+
+    out, args = _computed_run(tmp_path, monkeypatch)
+    own = _rfolder(out, "co-bpy3", {"n_samples": 100})
+    raw = (out / "dyecell" / "levels_raw.csv").resolve()
+    before = {name: (own / name).read_bytes() for name in ("ranking.csv", "ranking.meta.json", "report.html")}
+    table = (out / "dyecell" / "dyes.csv").read_bytes()
+    assert json.loads((out / "dyecell" / "inputs.json").read_text())["levels"] == str(raw)
+    capsys.readouterr()
+    measured = tmp_path / "my dyes.csv"
+    measured.write_text("id,e_ox_v_nhe,e00_ev\nM1,1.05,2.1\nM2,0.95,2.2\n")
+    assert main(["dyecell", "--levels", str(measured), "--out", str(out)] + args) == 0
+    captured = capsys.readouterr()
+    tag = f"levels-my-dyes-{hashlib.sha256(str(measured.resolve()).encode()).hexdigest()[:6]}"
+    aside = own.with_name(f"{own.name}--{tag}")
+    assert f"ranking -> {aside / 'ranking.csv'}" in captured.out
+    assert pd.read_csv(aside / "ranking.csv")["id"].tolist() == ["M1", "M2"]
+    # the run's own ranking, report and dye table are untouched; its levels stay the default input
+    assert {name: (own / name).read_bytes() for name in before} == before
+    assert (out / "dyecell" / "dyes.csv").read_bytes() == table
+    assert json.loads((out / "dyecell" / "inputs.json").read_text())["levels"] == str(raw)
+    line = [t for t in captured.err.splitlines() if "is not this run's own levels" in t]
+    assert len(line) == 1 and str(aside) in line[0] and f"own ranking ({own}) is untouched" in line[0]
+    # the next plain re-rank (another mediator) ranks the run's three dyes, not the two measured ones
+    assert main(["dyecell", "--out", str(out), "--mediator", "cu-tmby2"] + args) == 0
+    text = capsys.readouterr().out
+    assert f"re-ranking {raw}" in text and "3 dyes ranked on tio2-anatase with cu-tmby2" in text
+    # the same file with other content: the same folder of its own, replaced with the notice
+    measured.write_text("id,e_ox_v_nhe,e00_ev\nM1,1.05,2.1\nM2,0.90,2.2\n")
+    assert main(["dyecell", "--levels", str(measured), "--out", str(out)] + args) == 0
+    err = capsys.readouterr().err
+    assert f"replacing the ranking in {aside}: {measured.resolve()} changed since it was ranked" in err
+    assert pd.read_csv(aside / "ranking.csv").set_index("id").loc["M2", "e_ox_v_nhe"] == pytest.approx(0.90)
+    assert {name: (own / name).read_bytes() for name in before} == before
+    # the run's own levels given with --levels: its own folder, no suffix and no notice
+    assert main(["dyecell", "--levels", str(raw), "--out", str(out)] + args) == 0
+    captured = capsys.readouterr()
+    assert f"ranking -> {own / 'ranking.csv'}" in captured.out and "own levels" not in captured.err
+    # a folder without a run keeps today's names and defaults
+    fresh = tmp_path / "fresh"
+    assert main(["dyecell", "--levels", str(measured), "--out", str(fresh)] + args) == 0
+    assert (_rfolder(fresh, "co-bpy3", {"n_samples": 100}) / "ranking.csv").is_file()
+    assert json.loads((fresh / "dyecell" / "inputs.json").read_text())["levels"] == str(measured.resolve())
+    assert "own levels" not in capsys.readouterr().err
+
+
+def test_a_run_folder_whose_record_names_another_file_re_ranks_its_own_levels(tmp_path, capsys, monkeypatch):
+    # a folder left by a version that recorded the other file as the default input
+    from screen.cli import main
+
+    out, args = _computed_run(tmp_path, monkeypatch)
+    measured = tmp_path / "mine.csv"
+    measured.write_text("id,e_ox_v_nhe,e00_ev\nM1,1.05,2.1\n")
+    record = out / "dyecell" / "inputs.json"
+    record.write_text(json.dumps({**json.loads(record.read_text()), "levels": str(measured)}))
+    capsys.readouterr()
+    assert main(["dyecell", "--out", str(out), "--mediator", "cu-tmby2"] + args) == 0
+    text = capsys.readouterr().out
+    raw = (out / "dyecell" / "levels_raw.csv").resolve()
+    assert f"re-ranking {raw}, this run's own levels ({measured}" in text
+    assert "3 dyes ranked on tio2-anatase with cu-tmby2" in text
+    assert json.loads(record.read_text())["levels"] == str(raw)
+
+
+def _uncertain_and_failing(tmp_path: Path) -> Path:
+    """A measured file: a sure dye, one close to the regeneration threshold, one without anchor (co-bpy3, TiO2)."""
+    f = tmp_path / "measured.csv"
+    pd.DataFrame({"id": ["sure", "close", "bare"], "e_ox_v_nhe": [1.07, 0.78, 1.07], "e00_ev": [1.96] * 3,
+                  "e_ox_sigma_v": [0.0, 0.1, 0.0], "e00_sigma_ev": [0.0, 0.1, 0.0],
+                  "smiles": ["OC(=O)C(C#N)=Cc1ccc(N(C)C)cc1"] * 2 + ["N#CC(C#N)=Cc1ccc(N(C)C)cc1"]}
+                 ).to_csv(f, index=False)
+    return f
+
+
+def test_report_lists_the_not_viable_dyes_and_gives_probabilities_in_percent(tmp_path):
+    import re
+
+    from screen.dyecell.flags import describe
+
+    path = run_dyecell(_uncertain_and_failing(tmp_path), tmp_path / "o", oxide="tio2-anatase", mediator="co-bpy3",
+                       settings={"n_samples": 200})
+    ranking = pd.read_csv(path, keep_default_na=False).set_index("id")
+    page = (path.parent / "report.html").read_text()
+    # the not-viable list, visible (not in the collapsed table) and after the main table
+    listed = re.search(r'<ul class="not-viable" id="not-viable-list">(.*?)</ul>', page)
+    assert listed and "Not viable (1)" in page
+    assert listed.group(1) == ('<li><span class="cid">bare</span>: no anchoring group, so the dye cannot bind to '
+                               "the oxide</li>")
+    assert page.index('id="shortlist-table"') < page.index("not-viable-list") < page.index('id="all-ranked"')
+    # percentages in the tables, fractions in the CSV
+    p_close = float(ranking.loc["close", "p_viable"])
+    assert 0.25 < p_close < 0.75 and ranking.loc["close", "flags"] == "viability_uncertain"
+    cell = f'<td data-value="{p_close:.6g}">{100 * p_close:.0f} %</td>'
+    assert cell in page and f">{p_close:.2f}<" not in page
+    assert '<td data-value="1">100 %</td>' in page                        # p_viable of the sure dye
+    assert float(ranking.loc["sure", "p_above_target"]) == 0.0 and '<td data-value="0">0 %</td>' in page
+    # the info flag in words, like the other dye flags
+    assert describe("viability_uncertain") in page
+    # every dye viable: no list
+    f = tmp_path / "all.csv"
+    f.write_text("id,e_ox_v_nhe,e00_ev,smiles\nsure,1.07,1.96,OC(=O)C(C#N)=Cc1ccc(N(C)C)cc1\n")
+    page = (run_dyecell(f, tmp_path / "o2", settings={"n_samples": 100}).parent / "report.html").read_text()
+    assert "not-viable-list" not in page and "Not viable (" not in page
+
+
+def test_shortlist_sdf_carries_p_viable(tmp_path):
+    from rdkit import Chem
+
+    path = run_dyecell(_uncertain_and_failing(tmp_path), tmp_path / "o", oxide="tio2-anatase", mediator="co-bpy3",
+                       settings={"n_samples": 200})
+    ranking = pd.read_csv(path, keep_default_na=False).set_index("id")
+    mols = [m for m in Chem.SDMolSupplier(str(path.parent / "shortlist.sdf")) if m is not None]
+    assert sorted(m.GetProp("id") for m in mols) == ["close", "sure"]            # the passing dyes
+    for m in mols:
+        assert float(m.GetProp("p_viable")) == pytest.approx(float(ranking.loc[m.GetProp("id"), "p_viable"]))

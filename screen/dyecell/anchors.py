@@ -12,6 +12,12 @@ rhodanine-3-acetic acid    2-thioxothiazolidin-4-one with an N–CH₂–COOH ar
 salicylate                 COOH ortho to a phenolic OH on an aromatic ring
 hydroxamic acid            C–C(=O)–N–OH (not an N-hydroxyimide)
 phosphonic acid            P(=O)(OH)₂ (mono-esters: one OH, still counted)
+tetrazole                  5-substituted 1H- or 2H-tetrazole with its N–H (or anion): the acidic
+                           isostere of a carboxylic acid; 1- or 2-alkylated tetrazoles do not count
+8-hydroxyquinoline         chelating N,O anchor (the one fused pyridine that counts)
+β-diketone (acac)          C–C(=O)–CH(R)–C(=O)–C or its enol (acetylacetonate-type chelate); a
+                           Knoevenagel 2-ylidene-1,3-dione (no C–H, no enol) is an acceptor and a
+                           squaraine's four-ring C–O core a chromophore, not anchors
 sulfonic acid              C–S(=O)₂–OH (not a sulfate half-ester)
 boronic acid               B(OH)₂
 silanol / alkoxysilane     Si–OH or Si(OR)₃
@@ -25,7 +31,8 @@ pyridine                   the N of a pyridine ring (one N, five C, not fused) w
 
 A specific group claims its atoms: the carboxylic acid inside a cyanoacrylic
 acid is not counted twice.  Not recognised (reported as no anchor): esters,
-amides, nitriles, ethers, thiols, ketones and dicyanovinyl groups.
+amides, nitriles, ethers, thiols, single ketones and dicyanovinyl groups.  Tetrazole, 8-hydroxyquinoline
+and β-diketone anchors are among the alternatives to carboxylic acids reviewed in [1]_ (from memory).
 
 References
 ----------
@@ -81,6 +88,12 @@ ANCHORS: tuple[Anchor, ...] = (
     Anchor("hydroxamic acid", "[#6][CX3](=O)[NX3;!$(N([CX3]=O)[CX3]=O)][OX2H1,OX1-]",
            "hydroxamic acid: water-stable chelating anchor"),
     Anchor("phosphonic acid", f"[PX4](=O)({_ACID_O})[OX2]", "phosphonic acid: strong, water-stable anchor"),
+    Anchor("tetrazole", "[#6]-[c;$(c1:n:n:[nH1,n-]:n:1),$(c1:[nH1,n-]:n:n:n:1)]",
+           "tetrazole N–H: acidic carboxylic-acid isostere"),
+    Anchor("8-hydroxyquinoline", "[OX2H1,OX1-]c1cccc2cccnc12", "8-hydroxyquinoline: N,O-chelating anchor"),
+    Anchor("β-diketone (acac)",
+           "[#6][CX3;!r4](=O)[$([CX4;H1,H2;!r4][CX3](=O)[#6]),$([CX3;!r4]=[CX3]([OX2H1,OX1-])[#6])]",
+           "1,3-diketone / acetylacetonate-type chelating anchor"),
     Anchor("sulfonic acid", f"[#6][SX4](=O)(=O){_ACID_O}", "sulfonic acid: weak anchor to oxides"),
     Anchor("boronic acid", f"[BX3]({_ACID_O}){_ACID_O}", "boronic acid"),
     Anchor("silanol", f"[Si]{_ACID_O}", "silanol: condenses with surface OH"),

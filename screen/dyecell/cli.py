@@ -6,7 +6,10 @@ store as ``dascreen run``), joins the raw values into
 ``OUT/dyecell/levels_raw.csv`` and ranks into
 ``OUT/dyecell/<oxide>--<mediator>--<settings hash>/``; ``--levels FILE`` ranks an
 existing levels file (a run's ``levels.csv`` or a file of measured dye
-potentials) in seconds (not both); without either it re-ranks the input ranked
+potentials) in seconds (not both) — in an ``OUT`` that holds a run, a file that
+is not the run's own levels goes to a folder of its own
+(``…--levels-<file>-<hash>``, :func:`screen.dyecell.stage.levels_tag`) and does
+not become the default input; without either it re-ranks the input ranked
 last in ``OUT`` (recorded in ``OUT/dyecell/inputs.json``); ``--list`` prints the
 oxide and mediator libraries; ``--refit`` computes the dye reference set with
 the run's protocol and installs the dye models.
@@ -56,6 +59,7 @@ def _print_ranking(path: Path, top: int, listed: frozenset = frozenset()) -> Non
 
     table = pd.read_csv(path, dtype={"id": str}, keep_default_na=False, na_values=[""])
     meta = json.loads((path.parent / "ranking.meta.json").read_text(encoding="utf-8"))
+    dye_table = Path(meta.get("dye_table") or path.parent.parent / "dyes.csv")
     show = table.head(top).copy()
     show["id"] = [str(i).replace("\n", "\\n")[:24] for i in show["id"]]
     show["flags"] = show["flags"].map(lambda v: "" if pd.isna(v) else str(v)[:36])
@@ -73,7 +77,7 @@ def _print_ranking(path: Path, top: int, listed: frozenset = frozenset()) -> Non
     for _, row in table[~table["viable"].astype(str).str.lower().eq("true")].head(top).iterrows():
         print(f"  {str(row['id'])[:24]}: {row['viability']}")
     if not_ranked:
-        dyes = pd.read_csv(path.parent.parent / "dyes.csv", dtype=str, keep_default_na=False)
+        dyes = pd.read_csv(dye_table, dtype=str, keep_default_na=False)
         new = pd.Series([(i, e) not in listed for i, e in zip(dyes["id"], dyes["error"])], index=dyes.index)
         bad = dyes[dyes["status"].ne("ok") & new]
         for _, row in bad.head(20).iterrows():
@@ -118,16 +122,24 @@ def _default_levels(out: Path, out_text: str) -> Path:
     That is the file recorded in ``OUT/dyecell/inputs.json`` (the
     ``levels_raw.csv`` of a computing run, or the ``--levels`` file of the last
     ranking); in a folder without the record, ``OUT/dyecell/levels_raw.csv``,
-    else ``OUT/levels.csv`` (a ``dascreen run`` folder).
+    else ``OUT/levels.csv`` (a ``dascreen run`` folder).  In a folder that holds
+    a run, only the run's own levels are a default: a record of another file
+    (written by a version before another file got its own ranking folder) is
+    passed over, with a note.
 
     Raises
     ------
     InputError
         Nothing to rank: says which files were looked for and what to pass.
     """
-    from screen.dyecell.stage import read_inputs
+    from screen.dyecell.stage import levels_tag, own_levels, read_inputs
 
     last = read_inputs(out).get("levels")
+    own = own_levels(out)
+    if last and own and levels_tag(last, out):
+        print(f"dascreen: re-ranking {own[0]}, this run's own levels ({last}, recorded as the last input, is "
+              f"another file: --levels {last} ranks it into a folder of its own)")
+        return own[0]
     if last:
         if Path(last).is_file():
             print(f"dascreen: re-ranking {last} (the input ranked last in {out_text}; --levels FILE ranks another)")
@@ -313,8 +325,9 @@ def cmd_dyecell(args) -> int:
     """Run the shared stages if needed, then rank the dyes for one oxide and one mediator."""
     from screen.cli_shared import EXIT_ERROR, EXIT_OK, _load, _print_summary
     from screen.dyecell.library import resolve_material
-    from screen.dyecell.stage import record_inputs, run_dyecell
-    from screen.preflight import check_calibration, check_candidates, check_out, check_out_folder, check_rank_sets
+    from screen.dyecell.stage import levels_tag, own_levels, record_inputs, run_dyecell
+    from screen.preflight import (check_calibration, check_candidates, check_out, check_out_folder,
+                                  check_rank_config, check_rank_sets)
 
     if args.list:
         _print_libraries()
@@ -367,10 +380,20 @@ def cmd_dyecell(args) -> int:
         return EXIT_OK
     else:
         levels = _default_levels(out, args.out)
+    if not (args.candidates or args.refit):
+        check_rank_config(args.config, levels, "dyecell")
     models_root = args.models or (cfg["calibration"]["models"] and Path(cfg["calibration"]["models"]) / "dyecell")
     path = run_dyecell(levels, out, settings=cfg["dyecell"], models_root=models_root,
                        current_protocol=cfg.protocol_id)
-    record_inputs(out, levels=str(levels.resolve()))
+    tag = levels_tag(levels, out)
+    if tag:  # another file than the run's own levels: ranked aside, never the default
+        own_folder = path.parent.with_name(path.parent.name[: -len(tag) - 2])  # the same name without --<tag>
+        where = f" ({own_folder})" if (own_folder / "ranking.csv").is_file() else ""
+        print(f"dascreen: {levels} is not this run's own levels ({own_levels(out)[0]}): its ranking went to "
+              f"{path.parent}; the run's own ranking{where} is untouched, and its levels stay what `dascreen "
+              f"dyecell --out {args.out}` re-ranks", file=sys.stderr)
+    else:
+        record_inputs(out, levels=str(levels.resolve()))
     _print_ranking(path, args.top, listed=listed)
     return EXIT_OK
 
@@ -390,9 +413,11 @@ def add_dyecell(sub) -> None:
                    help="dye list (.csv id,smiles[,name]; .smi; .sdf): runs the shared stages first")
     p.add_argument("--levels", default=None,
                    help="rank this file instead of computing (not with CANDIDATES): a run's levels.csv or your own "
-                        "id,e_ox_v_nhe (or e_ox_v + e_ox_reference (or reference) + solvent),e00_ev[,smiles] file. Without "
-                        "CANDIDATES and --levels: the input ranked last in OUT (OUT/dyecell/levels_raw.csv of a "
-                        "computing run, or the last --levels file), else OUT/levels.csv")
+                        "id,e_ox_v_nhe (or e_ox_v + e_ox_reference (or reference) + solvent),e00_ev[,smiles] file. In "
+                        "an OUT that holds a run, another file than the run's own levels is ranked into "
+                        "<oxide>--<mediator>--<settings hash>--levels-<file>-<hash>/ and the run's ranking stays. "
+                        "Without CANDIDATES and --levels: the input ranked last in OUT (OUT/dyecell/levels_raw.csv of "
+                        "a computing run, or the last --levels file), else OUT/levels.csv")
     p.add_argument("--oxide", default=None,
                    help="semiconductor: library id (see --list) or a one-row CSV (default tio2-anatase)")
     p.add_argument("--mediator", default=None,

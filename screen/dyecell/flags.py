@@ -7,6 +7,11 @@ vocabulary from here.  ``severity``:
 - ``"fail"``: the dye is not viable in this cell (no PCE, does not pass);
 - ``"info"``: the row is told something; it may still pass.
 
+``viability_uncertain`` is the dye analogue of the bulk-heterojunction
+``alignment_uncertain`` (:mod:`screen.flags`): ``p_viable`` strictly inside
+:data:`VIABILITY_UNCERTAIN`, so the verdict on viability has a one-in-four
+chance or more of being the other way for the σ of E(S⁺/S) and E₀₋₀.
+
 Text fields ``{min_inj}``, ``{min_reg}``, ``{elements}``, ``{excited}``,
 ``{regenerated}`` and ``{ideal}`` are filled by :func:`describe` from the
 ranking's settings (``settings["oxide"]["type"] == "p"`` gives the p-type
@@ -14,8 +19,8 @@ wording: E(S*/S⁻) for the injecting state, E(S/S⁻) for the reduced dye).
 
 Examples
 --------
->>> FLAGS["no_anchor"].severity, is_info("outside_calibration")
-('fail', True)
+>>> FLAGS["no_anchor"].severity, is_info("outside_calibration"), is_info("viability_uncertain")
+('fail', True, True)
 >>> describe("injection_low", {"model": {"min_drive_inj_ev": 0.2}})
 'excited-state potential E(S⁺/S*) less than 0.20 eV beyond the oxide band edge: charge injection is not assured'
 """
@@ -25,9 +30,17 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numpy as np
+
 from screen.device import join_flags as _join_flags_any
 
-__all__ = ["Flag", "FLAGS", "FLAG_ORDER", "INFO_FLAGS", "describe", "is_info", "join_flags"]
+__all__ = ["Flag", "FLAGS", "FLAG_ORDER", "INFO_FLAGS", "VIABILITY_UNCERTAIN", "describe", "is_info", "join_flags",
+           "viability_uncertain"]
+
+#: ``p_viable`` strictly between these: the driving forces clear their thresholds in only part of the level
+#: uncertainty, flag ``viability_uncertain`` (the band of ``alignment_uncertain``,
+#: :data:`screen.rank.ALIGNMENT_UNCERTAIN`)
+VIABILITY_UNCERTAIN = (0.25, 0.75)
 
 
 @dataclass(frozen=True)
@@ -49,6 +62,9 @@ _REGISTRY = (
                              "regeneration of the {dye_state} dye by the mediator is not assured"),
     Flag("voc_nonpositive", "no photovoltage: the ideal voltage {ideal} is not larger than the assumed Voc loss "
                             "(or the mediator lies at or beyond the oxide band edge)"),
+    Flag("viability_uncertain", f"P(viable) between {VIABILITY_UNCERTAIN[0]:.2f} and {VIABILITY_UNCERTAIN[1]:.2f}: "
+                                "the driving forces clear their thresholds in only part of the level uncertainty",
+         "info"),
     Flag("anchor_unknown", "no structure given, so the anchoring group could not be checked", "info"),
     Flag("anchor_missing_allowed", "no anchoring group found, but the anchor check is switched off "
                                    "(dyecell.require_anchor = false): ranked as if the dye binds to the oxide",
@@ -122,6 +138,28 @@ def describe(code: str, settings: dict | None = None) -> str:
         min_reg="the required minimum" if math.isnan(reg) else f"{reg:.2f} eV",
         elements=f" (the set covers {', '.join(elements)})" if elements else "",
     )
+
+
+def viability_uncertain(p_viable):
+    """Rows whose ``p_viable`` lies strictly inside :data:`VIABILITY_UNCERTAIN` (NaN: not flagged).
+
+    Parameters
+    ----------
+    p_viable : array_like
+        Fraction of Monte-Carlo samples that inject and regenerate [0–1].
+
+    Returns
+    -------
+    numpy.ndarray of bool
+
+    Examples
+    --------
+    >>> viability_uncertain([0.2, 0.25, 0.5, 0.75, 0.9, float("nan")]).tolist()
+    [False, False, True, False, False, False]
+    """
+    p = np.asarray(p_viable, dtype=float)
+    with np.errstate(invalid="ignore"):
+        return (p > VIABILITY_UNCERTAIN[0]) & (p < VIABILITY_UNCERTAIN[1])
 
 
 def join_flags(masks: dict):

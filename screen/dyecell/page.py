@@ -1,9 +1,11 @@
 """Self-contained HTML report of a dye-cell ranking (dyes against one oxide and one mediator).
 
 Sections: run at a glance (oxide, mediator, model and calibration cards),
-shortlist with structure drawings and every flag in plain words, the dye-cell
+shortlist with structure drawings and every flag in plain words, the
+not-viable dyes with their reasons (when there are any), the dye-cell
 energy diagram (:mod:`screen.dyecell.figure`), every ranked dye with
 its viability in words, and the dyes that were not ranked with the reason.
+Probabilities are shown in percent (``ranking.csv`` keeps fractions 0–1).
 Styles and the sorting script are those of the bulk-heterojunction report
 (``static/``); every user text is HTML-escaped; nothing is fetched from the
 network.
@@ -16,6 +18,7 @@ References
 
 from __future__ import annotations
 
+import math
 import os
 from datetime import datetime, timezone
 from pathlib import Path
@@ -36,6 +39,7 @@ from screen.report.format import (
     fmt,
     get,
     num,
+    percent,
     pm_html,
     shorten,
     text,
@@ -63,6 +67,8 @@ _CAUTION_REST = (
     "Use the numbers to rank and to choose what to discuss, not as predicted measurements. Band edges move with "
     "pH and electrolyte additives. Making and handling any dye follows your lab\u2019s chemical-safety rules and "
     "the safety data sheets of every reagent.")
+#: not-viable dyes listed by name under the shortlist (the rest are in the table of every ranked dye)
+NOT_VIABLE_SHOWN = 20
 #: the E(S+/S) model is called weak when its nested LOO MAE is above this fraction of a constant model's
 WEAK_MODEL_RATIO = 0.8
 
@@ -215,6 +221,57 @@ def _definitions(meta: dict) -> str:
             "\u2212 E<sub>CB</sub> \u2212 loss")
 
 
+_percent = percent  # P(PCE > target), P(viable) as in the donor/acceptor report
+
+
+def _reason_words(viability) -> str:
+    """The reason of a not-viable dye without its ``not viable:`` lead (the list's heading says it).
+
+    Examples
+    --------
+    >>> _reason_words("not viable: no anchoring group, so the dye cannot bind to the oxide")
+    'no anchoring group, so the dye cannot bind to the oxide'
+    >>> _reason_words(float("nan"))
+    'not recorded'
+    """
+    words = text(viability).strip()
+    lead = "not viable:"
+    if words.lower().startswith(lead):
+        words = words[len(lead):].strip()
+    return words or NOT_RECORDED
+
+
+def _not_viable(ranking: pd.DataFrame) -> str:
+    """The ranked dyes that are not viable, id and reason in plain words (HTML); ``""`` when every dye is viable.
+
+    At most :data:`NOT_VIABLE_SHOWN` are listed, in ranking order; the rest are
+    counted and left to the table of every ranked dye.
+
+    Examples
+    --------
+    >>> r = pd.DataFrame({"id": ["a", "<b>"], "viable": [True, False],
+    ...                   "viability": ["viable", "not viable: no anchoring group"]})
+    >>> html = _not_viable(r)
+    >>> "Not viable (1)" in html, "&lt;b&gt;" in html, ">a<" in html, "no anchoring group" in html
+    (True, True, False, True)
+    >>> _not_viable(r.iloc[:1])
+    ''
+    """
+    if ranking is None or not len(ranking) or "viable" not in ranking:
+        return ""
+    rows = ranking[~ranking["viable"].map(truthy)]
+    if not len(rows):
+        return ""
+    items = "".join(f'<li><span class="cid">{esc(r.get("id"))}</span>: {esc(_reason_words(r.get("viability")))}'
+                    "</li>" for _, r in rows.head(NOT_VIABLE_SHOWN).iterrows())
+    more = len(rows) - NOT_VIABLE_SHOWN
+    rest = (f'<p class="quiet">\u2026 and {more} more in the table of every ranked dye below.</p>'
+            if more > 0 else "")
+    return (f'<h3 id="not-viable">Not viable ({len(rows)})</h3>'
+            '<p class="quiet">Ranked dyes that cannot work in this cell (no PCE), with the reason.</p>'
+            f'<ul class="not-viable" id="not-viable-list">{items}</ul>{rest}')
+
+
 def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
     target = fmt(get(meta, "rank", "target_pce_pct"), 1)
     head = ['<th class="js-sort num-h" data-type="num">Rank</th>']
@@ -243,8 +300,8 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
                 fmt(val, 1 if col == "jsc_ma_cm2" else 2)
             cls = ' class="pce"' if col == "pce_pct" else ""
             cells.append(f'<td{cls} data-value="{data_value(val)}">{html}</td>')
-        cells.append(f'<td data-value="{data_value(r.get("p_above_target"))}">{fmt(r.get("p_above_target"), 2)}</td>')
-        cells.append(f'<td data-value="{data_value(r.get("p_viable"))}">{fmt(r.get("p_viable"), 2)}</td>')
+        cells.append(f'<td data-value="{data_value(r.get("p_above_target"))}">{_percent(r.get("p_above_target"))}</td>')
+        cells.append(f'<td data-value="{data_value(r.get("p_viable"))}">{_percent(r.get("p_viable"))}</td>')
         cells.append(f'<td class="extra">{esc(r.get("anchors")) or "none found"}</td>')
         why = "" if truthy(r.get("viable")) else f'<p class="small">{esc(r.get("viability"))}</p>'
         own = text(r.get("uncalibrated_elements")).strip()
@@ -368,7 +425,7 @@ def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict
         "same photon-to-current efficiency, fill factor and V<sub>oc</sub> loss for every dye, that is in effect the "
         "order of E\u2080\u208b\u2080 (smallest first): E(S\u207a/S) enters only through the injection and "
         "regeneration checks. Not-viable dyes follow, by id. Click a column header to sort.</p>",
-        f'<div class="tablewrap">{_table(short, meta, True, "shortlist-table")}</div>',
+        f'<div class="tablewrap">{_table(short, meta, True, "shortlist-table")}</div>', _not_viable(ranking),
         '<details id="all-ranked">', f"<summary>Every ranked dye ({len(ranking)} rows)</summary>",
         f'<div class="tablewrap">{_table(ranking, meta, False, "full-table")}</div>', "</details>",
         '<h2 id="figures"><span class="num">3</span>Energy diagram</h2>',

@@ -37,7 +37,7 @@ import pandas as pd
 from screen.dyecell.anchors import find_anchors
 from screen.dyecell.calibrate import apply_models, elements_of
 from screen.dyecell.checks import check_dye_file, merge_reference_alias, unreadable_smiles
-from screen.dyecell.flags import INFO_FLAGS, join_flags
+from screen.dyecell.flags import INFO_FLAGS, join_flags, viability_uncertain
 from screen.dyecell.library import Material
 from screen.dyecell.model import DyeCellModel, evaluate, sample_pce
 from screen.dyecell.options import RankOptions
@@ -214,11 +214,13 @@ def _bool_col(frame: pd.DataFrame, col: str, default: bool) -> np.ndarray:
                           in ("true", "1", "yes")).to_numpy(bool)
 
 
-def _flag_masks(d: pd.DataFrame, dev: dict, known: np.ndarray) -> dict[str, np.ndarray]:
-    """One boolean mask per flag code: the model's, the anchor check's and the calibration's."""
+def _flag_masks(d: pd.DataFrame, dev: dict, known: np.ndarray, p_viable: np.ndarray) -> dict[str, np.ndarray]:
+    """One boolean mask per flag code: the model's, the Monte-Carlo spread's (``viability_uncertain``, from
+    ``p_viable``), the anchor check's and the calibration's."""
     masks = {k: np.asarray(dev[k], bool) for k in ("input_missing", "no_anchor", "injection_low", "regeneration_low",
                                                     "voc_nonpositive", "p_type_estimate", "detailed_balance_cap",
                                                     "anchor_missing_allowed")}
+    masks["viability_uncertain"] = viability_uncertain(p_viable)
     masks["anchor_unknown"] = ~known
     masks["element_uncalibrated"] = _text_col(d, "uncalibrated_elements").str.strip().ne("").to_numpy()
     masks["outside_calibration"] = _bool_col(d, "outside_calibration", False)
@@ -275,7 +277,7 @@ def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: Dy
     dev = evaluate(model, e_ox, e00, oxide, mediator, anchored)
     mc = sample_pce(model, e_ox, e00, oxide, mediator, e_ox_sigma_v=s_ox, e00_sigma_ev=s_gap, anchored=anchored,
                     n_samples=options.n_samples, seed=options.seed, target_pct=options.target_pce_pct)
-    masks = _flag_masks(d, dev, known)
+    masks = _flag_masks(d, dev, known, mc["p_viable"])
     failing = np.zeros(len(d), bool)
     for code, m in masks.items():
         if code not in INFO_FLAGS:

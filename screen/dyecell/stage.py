@@ -18,10 +18,18 @@ library ids, or ``file-<stem>-<hash>`` for a user's one-row file (ids are user
 text and never used in paths), and :func:`settings_hash` of the other
 ``dyecell`` settings, so a ranking with another threshold or loss gets its own
 folder (as ``OUT/rankings/<partner>--<settings hash>`` of ``dascreen rank``).
+
+A folder that holds a run keeps that run's ranking: a levels file that is not
+the run's own (:func:`own_levels`: ``OUT/dyecell/levels_raw.csv``,
+``OUT/levels.csv``), e.g. a file of measured potentials, is ranked into
+``<oxide>--<mediator>--<settings hash>--levels-<file stem>-<hash of its path>``
+(:func:`levels_tag`) with its dye table in ``OUT/dyecell/dyes--<tag>.csv``, so
+the run's own ranking and dye table are never replaced by another input's.
 """
 
 from __future__ import annotations
 
+import hashlib
 import math
 import sys
 from dataclasses import asdict
@@ -45,20 +53,25 @@ from screen.dyecell.rank import (
 )
 from screen.errors import ConfigError, InputError
 from screen.io import read_json, write_csv, write_json
+from screen.partners import slugify
 from screen.provenance import library_versions, sha256_file
 
 __all__ = ["read_input", "build_dye_table", "write_shortlist", "run_dyecell", "ranking_folder", "raw_levels",
-           "settings_hash", "shipped_protocols", "INPUTS_FILE", "read_inputs", "record_inputs"]
+           "settings_hash", "shipped_protocols", "INPUTS_FILE", "read_inputs", "record_inputs", "OWN_LEVELS",
+           "own_levels", "levels_tag", "replacing_notice"]
 
 #: the record of what was given in a run folder: ``OUT/dyecell/inputs.json`` (the user's candidate file: path and
 #: sha256; the input ranked last), read for the default re-rank input and the guard against mixing candidate files
 INPUTS_FILE = Path("dyecell") / "inputs.json"
+#: the levels files a run writes into its own folder, in the order a re-rank takes them: a computing dye run's raw
+#: values, then a ``dascreen run``'s levels (relative to ``OUT``)
+OWN_LEVELS = (Path("dyecell") / "levels_raw.csv", Path("levels.csv"))
 #: settings of the ``dyecell`` section that are in the folder name already (or only pick the library entry)
 _NAMED_SETTINGS = ("oxide", "mediator")
 
 _SD_PROPS = ["rank", "id", "name", "oxide", "mediator", "e_ox_v_nhe", "e_ox_sigma_v", "e00_ev", "e00_sigma_ev",
              "e_ox_excited_v_nhe", "drive_inj_ev", "drive_reg_ev", "anchors", "voc_v", "jsc_ma_cm2", "ff", "pce_pct",
-             "pce_sigma_pct", "p_above_target", "flags", "smiles"]
+             "pce_sigma_pct", "p_above_target", "p_viable", "flags", "smiles"]
 
 
 def raw_levels(out_dir: str | Path, config, batch: str = "candidates", set_aside: pd.DataFrame | None = None) -> Path:
@@ -177,6 +190,95 @@ def record_inputs(out_dir: str | Path, **entries) -> None:
     write_json({**read_inputs(out_dir), **entries}, Path(out_dir) / INPUTS_FILE)
 
 
+def own_levels(out_dir: str | Path) -> list[Path]:
+    """The run's own levels files in ``out_dir`` (:data:`OWN_LEVELS` that exist, resolved); empty: no run here.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> out = Path(tempfile.mkdtemp())
+    >>> own_levels(out)
+    []
+    >>> _ = (out / "levels.csv").write_text("id")
+    >>> [p.name for p in own_levels(out)]
+    ['levels.csv']
+    """
+    out = Path(out_dir)
+    return [(out / rel).resolve() for rel in OWN_LEVELS if (out / rel).is_file()]
+
+
+def levels_tag(input_path: str | Path, out_dir: str | Path) -> str:
+    """Folder-name suffix of an input that is not the run's own levels, in a folder that holds a run; else ``""``.
+
+    ``levels-<slugified file stem>-<first 6 hex digits of the sha256 of its
+    resolved absolute path>``: the same file always ranks into the same
+    folder, two files of one name in different places into two.  A folder
+    without a run's levels (:func:`own_levels`) keeps the plain names, and so
+    does the run's own levels file given with ``--levels``.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> out = Path(tempfile.mkdtemp())
+    >>> levels_tag(out / "my dyes.csv", out)                    # no run here: plain names
+    ''
+    >>> _ = (out / "levels.csv").write_text("id")
+    >>> levels_tag(out / "levels.csv", out)                     # the run's own levels
+    ''
+    >>> tag = levels_tag(out / "my dyes.csv", out)
+    >>> tag[:15], len(tag.rsplit("-", 1)[1])
+    ('levels-my-dyes-', 6)
+    """
+    own = own_levels(out_dir)
+    path = Path(input_path).resolve()
+    if not own or path in own:
+        return ""
+    return f"levels-{slugify(path.stem)}-{hashlib.sha256(str(path).encode('utf-8')).hexdigest()[:6]}"
+
+
+def replacing_notice(old: dict, path: str, sha: str) -> str:
+    """What changed since a ranking folder's earlier ranking: ``""`` when its input had this path and content.
+
+    Parameters
+    ----------
+    old : dict
+        ``dyes`` of the earlier ``ranking.meta.json`` (``input``, ``input_sha256``).
+    path, sha : str
+        Resolved path and sha256 of the input about to be ranked.
+
+    Examples
+    --------
+    >>> replacing_notice({"input": "/r/d.csv", "input_sha256": "ab" * 32}, "/r/d.csv", "ab" * 32)
+    ''
+    >>> replacing_notice({"input": "/r/d.csv", "input_sha256": "ab" * 32}, "/r/d.csv", "cd" * 32)
+    '/r/d.csv changed since it was ranked (sha256 abababab… → cdcdcdcd…)'
+    >>> replacing_notice({"input": "/r/old.csv", "input_sha256": "ab" * 32}, "/r/d.csv", "cd" * 32)
+    'it ranked /r/old.csv, whose content differs from /r/d.csv'
+    """
+    old_path, old_sha = old.get("input"), old.get("input_sha256")
+    if old_sha == sha:
+        return "" if old_path == path else f"it ranked {old_path} (same content)"
+    if old_path == path:
+        was = f"sha256 {old_sha[:8]}\u2026 \u2192 {sha[:8]}\u2026" if old_sha else f"now sha256 {sha[:8]}\u2026"
+        return f"{path} changed since it was ranked ({was})"
+    return f"it ranked {old_path or 'an input not recorded'}, whose content differs from {path}"
+
+
+def _tell_replacing(target: Path, info: dict) -> None:
+    """Say on stderr when the ranking folder ``target`` held a ranking of another input or other content."""
+    side = target / "ranking.meta.json"
+    if not side.is_file():
+        return
+    try:
+        old = read_json(side)
+    except ValueError:
+        old = {}
+    old = (old.get("dyes") if isinstance(old, dict) else None) or {}
+    message = replacing_notice(old if isinstance(old, dict) else {}, info["input"], info["input_sha256"])
+    if message:
+        print(f"dascreen dyecell: replacing the ranking in {target}: {message}", file=sys.stderr)
+
+
 def _no_models_error(path: Path, pid: str, root: Path, out_dir: str | Path, meta: dict | None,
                      current_protocol: str | None) -> ConfigError:
     """The message for levels computed with a protocol that has no dye models in ``root``."""
@@ -199,12 +301,14 @@ def _no_models_error(path: Path, pid: str, root: Path, out_dir: str | Path, meta
 
 
 def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str | Path | None = None,
-                    models_root: str | Path | None = None,
-                    current_protocol: str | None = None) -> tuple[pd.DataFrame, dict]:
-    """The dye table of an input file, cached as ``out_dir/dyecell/dyes.csv``.
+                    models_root: str | Path | None = None, current_protocol: str | None = None,
+                    cache: str | Path | None = None) -> tuple[pd.DataFrame, dict]:
+    """The dye table of an input file, cached as ``out_dir/dyecell/dyes.csv`` (or ``cache``).
 
     ``current_protocol``: the protocol id of the command's configuration, for
-    the message when the levels' protocol has no dye models.
+    the message when the levels' protocol has no dye models.  ``cache``: the
+    table file instead of ``out_dir/dyecell/dyes.csv`` (:func:`run_dyecell`
+    keeps another input's table out of the run's own).
 
     Returns
     -------
@@ -220,7 +324,7 @@ def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str
     """
     path = Path(path)
     kind, frame, meta = read_input(path)
-    target = Path(out_dir) / "dyecell" / "dyes.csv"
+    target = Path(cache) if cache else Path(out_dir) / "dyecell" / "dyes.csv"
     info = {"input": str(path.resolve()), "input_sha256": sha256_file(path), "kind": kind,
             "levels_meta": meta, "dascreen": __version__, "versions": library_versions()}
     if kind == "levels":
@@ -292,9 +396,12 @@ def settings_hash(settings: dict | None = None) -> str:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()[:8]
 
 
-def ranking_folder(out_dir: str | Path, oxide: Material, mediator: Material, settings: dict | None = None) -> Path:
-    """``out_dir/dyecell/<oxide slug>--<mediator slug>--<settings hash>`` (:func:`settings_hash`)."""
-    return Path(out_dir) / "dyecell" / f"{oxide.slug}--{mediator.slug}--{settings_hash(settings)}"
+def ranking_folder(out_dir: str | Path, oxide: Material, mediator: Material, settings: dict | None = None,
+                   tag: str = "") -> Path:
+    """``out_dir/dyecell/<oxide slug>--<mediator slug>--<settings hash>`` (:func:`settings_hash`), ``--<tag>`` added
+    for an input that is not the run's own levels (:func:`levels_tag`)."""
+    name = f"{oxide.slug}--{mediator.slug}--{settings_hash(settings)}"
+    return Path(out_dir) / "dyecell" / (f"{name}--{tag}" if tag else name)
 
 
 def _sd_text(value) -> str:
@@ -396,21 +503,33 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
     Returns
     -------
     pathlib.Path
-        ``ranking.csv`` of ``OUT/dyecell/<oxide>--<mediator>--<settings hash>/`` (:func:`ranking_folder`).
+        ``ranking.csv`` of ``OUT/dyecell/<oxide>--<mediator>--<settings hash>/`` (:func:`ranking_folder`);
+        ``…--levels-<file>-<hash>/`` when ``OUT`` holds a run and ``input_path`` is not its own levels
+        (:func:`levels_tag`: the run's ranking and dye table stay as they are).
+
+    Notes
+    -----
+    A ranking folder that held a ranking of another input, or of this file
+    before its content changed, is replaced with a notice on stderr.
     """
     section = {**option_defaults(), **(settings or {})}
     ox = resolve_material("oxide", oxide or section["oxide"])
     med = resolve_material("mediator", mediator or section["mediator"])
     model = DyeCellModel.from_mapping(section)
     options = RankOptions.from_mapping(section)
+    tag = levels_tag(input_path, out_dir)
+    cache = Path(out_dir) / "dyecell" / (f"dyes--{tag}.csv" if tag else "dyes.csv")
     table, info = build_dye_table(input_path, out_dir, models_folder=models_folder, models_root=models_root,
-                                  current_protocol=current_protocol)
+                                  current_protocol=current_protocol, cache=cache)
     ranking = rank_dyes(table, ox, med, model, options)
-    target = ranking_folder(out_dir, ox, med, section)
+    target = ranking_folder(out_dir, ox, med, section, tag)
+    _tell_replacing(target, info)
     write_csv(ranking, target / "ranking.csv")
     short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size)
     meta = _meta(ranking, table, info, ox, med, model, options, short)
     meta["settings_hash"] = settings_hash(section)
+    meta["levels_tag"] = tag or None
+    meta["dye_table"] = str(cache.resolve())
     write_json(meta, target / "ranking.meta.json")
     if report:
         from screen.dyecell.page import write_dyecell_report
