@@ -429,7 +429,29 @@ def cmd_status(args) -> int:
         print(f"dascreen: finished: {counts} in {took}; results in {levels}")
     else:
         print(f"dascreen: not running: {counts}; `dascreen run` with the same --out resumes it")
+    _print_rankings(out)
     return EXIT_OK
+
+
+def _print_rankings(out: Path, limit: int = 12) -> None:
+    """The folder's rankings, most recent first (:mod:`screen.rank_index`; a meeting-day audit found eight
+    ``y6--<hash>`` folders and nothing that said what set them apart)."""
+    from screen.rank_index import ranking_index
+
+    index = ranking_index(out)
+    if not len(index):
+        return
+    print(f"dascreen: {len(index)} ranking(s) in {out / 'rankings'}, most recent first:")
+    for r in index.head(limit).itertuples():
+        levels = "" if Path(str(r.levels)).resolve() == (out / "levels.csv").resolve() else f", levels {r.levels}"
+        target = "" if pd_isna(r.target_pce_pct) else f", target {r.target_pce_pct:g} %"
+        print(f"  {r.written_utc}  {r.folder}: against {r.partner}, {r.model} model{target}, sorted by {r.sort_by}"
+              f"{levels}; {r.passing} of {r.ranked} pass")
+
+
+def pd_isna(value) -> bool:
+    """True for a missing number (None or NaN)."""
+    return value is None or value != value
 
 
 def _now() -> float:

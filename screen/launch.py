@@ -222,6 +222,7 @@ def forget_other_input(out: Path, candidates: Path) -> list[str]:
     old = sorted(p.name for p in rankings.iterdir()) if rankings.is_dir() else []
     if old:
         shutil.rmtree(rankings)
+        (out / "rankings-index.csv").unlink(missing_ok=True)  # it listed them
         notes.append(f"dascreen: removed {len(old)} ranking folder(s) of the earlier list from {rankings} "
                      f"({', '.join(old[:4])}{', …' if len(old) > 4 else ''}); `dascreen rank --out {out} --partner …` "
                      "makes them again for the new list")

@@ -904,6 +904,12 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
         replaced.append(target.name)
     elif was_replaced:
         _refresh_matrices(out_dir, target.name)
+    from screen.rank_index import write_ranking_index
+
+    try:  # OUT/rankings-index.csv: what each ranking folder holds (never fails the ranking)
+        write_ranking_index(out_dir)
+    except (OSError, ValueError) as exc:
+        print(f"dascreen rank: rankings-index.csv not written: {exc}", file=sys.stderr)
     return target / "ranking.csv"
 
 

@@ -346,6 +346,18 @@ def test_the_published_models_reference_partner_is_named_as_no_measured_material
     assert rc == 0 and "NOT a measured material" in err and "never to rank candidates against real partners" in err
 
 
+def test_every_ranking_is_listed_in_an_index(levels, tmp_path, capsys):
+    # a meeting-day audit: after twenty minutes a run folder held eight y6--<hash> folders and nothing said what set
+    # them apart
+    out = tmp_path / "out"
+    assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60")[0] == 0
+    assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60",
+                "--target-pce", "12")[0] == 0
+    index = pd.read_csv(out / "rankings-index.csv")
+    assert sorted(index["target_pce_pct"]) == [10.0, 12.0] and set(index["partner"]) == {"c60"}
+    assert set(index["folder"]) == {p.name for p in (out / "rankings").iterdir() if p.is_dir()}
+
+
 def test_a_partner_named_twice_in_other_case_is_ranked_once(levels, tmp_path, capsys):
     out = tmp_path / "out"
     assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60,C60")[0] == 0

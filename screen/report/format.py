@@ -45,13 +45,24 @@ def _number(value) -> float:
 
 
 def fmt(value, digits: int = 2, plus: bool = False) -> str:
-    """Number with a typographic minus; an em dash for a missing value."""
+    """Number with a typographic minus; an em dash for a missing value.
+
+    A value that rounds to zero keeps its sign unless it is numerical noise (a meeting-day audit: an inverted
+    alignment, ΔHOMO −0.0047 eV, was shown as "0.00" beside the reason "the donor's HOMO is not above the
+    acceptor's").
+
+    Examples
+    --------
+    >>> fmt(-0.0047), fmt(0.0047, plus=True), fmt(-1e-12), fmt(-5.4321), fmt(None)
+    ('\u22120.00', '+0.00', '0.00', '\u22125.43', '\u2014')
+    """
     x = _number(value)
     if math.isnan(x):
         return "\u2014"
     out = f"{x:+.{digits}f}" if plus else f"{x:.{digits}f}"
-    if out.lstrip("+-").strip("0.") == "":  # −0.00 → 0.00
-        out = f"{0.0:.{digits}f}"
+    if out.lstrip("+-").strip("0.") == "":  # rounds to zero: the sign of a real value, none for noise
+        sign = "" if abs(x) < 1e-9 else "-" if x < 0 else "+" if plus else ""
+        out = sign + f"{0.0:.{digits}f}"
     return out.replace("-", _MINUS)
 
 
@@ -95,8 +106,8 @@ def fmts(values, digits: int = 2, plus: bool = False) -> list[str]:
 
     Examples
     --------
-    >>> fmts([-5.423, None, -0.001, 0.1], 2, plus=True)
-    ['−5.42', '—', '0.00', '+0.10']
+    >>> fmts([-5.423, None, -0.001, 0.1, -1e-12], 2, plus=True)
+    ['−5.42', '—', '−0.00', '+0.10', '0.00']
     """
     spec = f"+.{digits}f" if plus else f".{digits}f"
     zero = f"{0.0:.{digits}f}"
@@ -106,7 +117,9 @@ def fmts(values, digits: int = 2, plus: bool = False) -> list[str]:
             out.append("\u2014")
             continue
         shown = format(x, spec)
-        out.append(zero if shown.lstrip("+-") == zero else shown.replace("-", _MINUS))  # −0.00 → 0.00
+        if shown.lstrip("+-") == zero and abs(x) < 1e-9:  # numerical noise: no sign (as fmt)
+            shown = zero
+        out.append(shown.replace("-", _MINUS))
     return out
 
 

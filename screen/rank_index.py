@@ -1,0 +1,80 @@
+"""An index of the rankings in a run folder: ``OUT/rankings-index.csv``.
+
+After a meeting of live re-ranking a run folder holds many ``<partner>--<settings hash>``
+folders whose names do not say what sets them apart (a meeting-day audit counted eight
+``y6--…`` folders after twenty minutes). :func:`write_ranking_index` rebuilds one table
+from every folder's ``ranking.meta.json`` — partner, device model, absorber, target,
+sort order, the levels file ranked, counts and when — after each ranking, and
+``dascreen status`` prints it.
+
+Examples
+--------
+>>> import json, tempfile
+>>> out = Path(tempfile.mkdtemp())
+>>> folder = out / "rankings" / "y6--0123abcd"
+>>> folder.mkdir(parents=True)
+>>> meta = {"partner": {"id": "y6"}, "device": {"model": "fitted", "absorber": "both"},
+...         "rank": {"target_pce_pct": 10.0, "sort_by": "pce_pct"}, "levels": {"path": "/r/levels.csv"},
+...         "counts": {"ranked": 32, "passing": 17, "shortlist": 10}}
+>>> _ = (folder / "ranking.meta.json").write_text(json.dumps(meta))
+>>> _ = (folder / "ranking.csv").write_text("rank,id\\n")
+>>> index = ranking_index(out)
+>>> [str(v) for v in index.loc[0, ["folder", "partner", "model", "target_pce_pct", "ranked", "passing"]]]
+['y6--0123abcd', 'y6', 'fitted', '10.0', '32', '17']
+"""
+
+from __future__ import annotations
+
+import json
+from datetime import datetime, timezone
+from pathlib import Path
+
+import pandas as pd
+
+__all__ = ["INDEX_COLUMNS", "ranking_index", "write_ranking_index"]
+
+#: columns of ``OUT/rankings-index.csv``
+INDEX_COLUMNS = ["folder", "partner", "model", "absorber", "target_pce_pct", "sort_by", "levels", "ranked",
+                 "passing", "shortlisted", "written_utc"]
+
+
+def _row(folder: Path) -> dict | None:
+    try:
+        meta = json.loads((folder / "ranking.meta.json").read_text(encoding="utf-8"))
+        written = (folder / "ranking.csv").stat().st_mtime
+    except (OSError, ValueError):
+        return None
+    if not isinstance(meta, dict):
+        return None
+
+    def part(key) -> dict:
+        value = meta.get(key)
+        return value if isinstance(value, dict) else {}
+
+    counts = part("counts")
+    return {"folder": folder.name, "partner": part("partner").get("id", ""), "model": part("device").get("model", ""),
+            "absorber": part("device").get("absorber", ""), "target_pce_pct": part("rank").get("target_pce_pct"),
+            "sort_by": part("rank").get("sort_by", ""), "levels": part("levels").get("path", ""),
+            "ranked": counts.get("ranked"), "passing": counts.get("passing"), "shortlisted": counts.get("shortlist"),
+            "written_utc": datetime.fromtimestamp(written, timezone.utc).strftime("%Y-%m-%d %H:%M")}
+
+
+def ranking_index(out_dir) -> pd.DataFrame:
+    """One row per ranking folder of ``OUT/rankings`` (partner matrices and unreadable folders left out),
+    the most recently written first."""
+    root = Path(out_dir) / "rankings"
+    rows = [r for f in sorted(root.iterdir()) if f.is_dir() and (r := _row(f))] if root.is_dir() else []
+    frame = pd.DataFrame(rows, columns=INDEX_COLUMNS)
+    return frame.sort_values(["written_utc", "folder"], ascending=[False, True], kind="stable").reset_index(drop=True)
+
+
+def write_ranking_index(out_dir) -> Path | None:
+    """Rebuild ``OUT/rankings-index.csv``; None when there is no ranking."""
+    from screen.io import write_csv
+
+    index = ranking_index(out_dir)
+    if not len(index):
+        return None
+    path = Path(out_dir) / "rankings-index.csv"
+    write_csv(index, path)
+    return path
