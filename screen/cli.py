@@ -299,7 +299,8 @@ def _compute_partner(cfg: Config, out: Path, spec: str, verbose: bool = False) -
             f"{missing}. Run `dascreen calibrate --install {cfg['calibration']['models']}` with those settings "
             "first, pass a models folder with --models, or add --set calibration.refit=always to calibrate now")
     rc = run_workflow(cfg, out, 1, [str(target)], cfg_file=target.parent / "config.yaml", verbose=verbose,
-                      log_name=f"{target.parent.name}/workflow", label=f"dascreen partner {spec}")
+                      log_name=f"{target.parent.name}/workflow", label=f"dascreen partner {spec}",
+                      batch=target.parent.name)
     if rc != 0:
         raise CalculationError(f"the workflow computing partner {spec!r} stopped with exit code {rc}; see "
                                f"{out}/logs/{target.parent.name}/")

@@ -477,7 +477,7 @@ class DeviceModel:
         pce = np.where(pce_capped, limit, pce)
         out = {"delta_lumo_ev": delta_lumo, "delta_homo_ev": delta_homo, "absorber_gap_ev": g_lo,
                "voc_v": voc, "jsc_ma_cm2": jsc, "pce_pct": pce, **masks, "voc_capped": voc_capped,
-               "pce_capped": pce_capped, "loss_ev": t.loss}
+               "pce_capped": pce_capped, "loss_ev": t.loss, "loss_floor": viable & t.floored & ~voc_capped}
         if keep_model_values:
             out["voc_model_v"] = voc_model
             with np.errstate(invalid="ignore"):
@@ -562,8 +562,9 @@ class DeviceModel:
         Notes
         -----
         Voc never exceeds the detailed-balance Voc of the smallest optical gap of
-        the pair (``voc_capped``) and PCE never exceeds the detailed-balance limit for
-        the absorber gap (``pce_capped``).  An offset counts as meeting its
+        the pair (``voc_capped``), nor, in the fitted model, that gap less the smallest
+        total loss E_g − qVoc of the fitted devices (``loss_floor``), and PCE never
+        exceeds the detailed-balance limit for the absorber gap (``pce_capped``).  An offset counts as meeting its
         threshold if it is at most 1e-9 eV below it.
 
         References
@@ -595,7 +596,7 @@ class DeviceModel:
 
         masks = {code: np.array(fig[code], dtype=bool) for code in
                  ("input_missing", "absorber_gap_invalid", "lumo_inverted", "homo_inverted", "lumo_offset_low",
-                  "homo_offset_low", "voc_nonpositive", "voc_capped", "pce_capped")}
+                  "homo_offset_low", "voc_nonpositive", "voc_capped", "loss_floor", "pce_capped")}
         masks["loss_class_pooled"] = np.broadcast_to(pooled, shape) & viable
         masks["donor_only_model"] = np.full(shape, self.model == "scharber" and self.absorber == "donor")
         result = {

@@ -333,7 +333,18 @@ def fit(d: pd.DataFrame, per_class="class", ff_split="pooled") -> FittedParamete
     loss, slope, ref, (lo, hi) = _fit_losses(d, split, free)
     ff, by_class = _ff_core(*_ff_arrays(d), ff_split) if d["ff"].notna().any() else (0.65, {})
     return FittedParameters(loss_ev=loss, eqe_max=eqe, offset_scale_ev=scale, ff=ff, ff_by_class=by_class,
-                            loss_slope=slope, ect_ref_ev=ref, ect_min_ev=lo, ect_max_ev=hi)
+                            loss_slope=slope, ect_ref_ev=ref, ect_min_ev=lo, ect_max_ev=hi,
+                            gap_loss_min_ev=_gap_loss_min(d))
+
+
+def _gap_loss_min(d: pd.DataFrame) -> float:
+    """The smallest E_g − qVoc [eV] of the devices with a Voc (E_g: the smaller optical gap of the pair); 0
+    without any. The floor of the fitted model's total loss (:class:`FittedParameters`)."""
+    rows = d[d["voc_v"].notna()]
+    gap = np.fmin(rows["donor_gap_opt_ev"].to_numpy(float), rows["acceptor_gap_opt_ev"].to_numpy(float))
+    loss = gap - rows["voc_v"].to_numpy(float)
+    loss = loss[np.isfinite(loss)]
+    return float(max(loss.min(), 0.0)) if loss.size else 0.0
 
 
 def predict(model: DeviceModel, d: pd.DataFrame) -> pd.DataFrame:

@@ -64,6 +64,7 @@ class PairTerms:
     jsc: np.ndarray
     loss: np.ndarray | float = 0.0
     voc_cap: np.ndarray | float = np.nan
+    floored: np.ndarray | bool = False
 
 
 def _slope(model) -> tuple[float, float, float, float]:
@@ -74,6 +75,15 @@ def _slope(model) -> tuple[float, float, float, float]:
         return 0.0, 0.0, -np.inf, np.inf
     return (float(getattr(p, "loss_slope", 0.0)), float(getattr(p, "ect_ref_ev", 0.0)),
             float(getattr(p, "ect_min_ev", -np.inf)), float(getattr(p, "ect_max_ev", np.inf)))
+
+
+def _gap_floor(model) -> float:
+    """The fitted model's floor on E_g − qVoc [eV] (:attr:`FittedParameters.gap_loss_min_ev`); 0 for Scharber's rule
+    or a fixed ``loss_v``."""
+    p = model.parameters
+    if model.model == "scharber" or getattr(model, "loss_v", None) is not None or p is None:
+        return 0.0
+    return float(getattr(p, "gap_loss_min_ev", 0.0))
 
 
 def voc_limit(gap_cap, sq_voc=None):
@@ -137,6 +147,7 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None, sq_voc=None) -> PairTerms:
     gap_cap = np.fmin(_positive(d_gap), _positive(a_gap))  # smallest (valid) optical gap of the pair
     both = model.absorber == "both"
     g_lo = np.minimum(d_gap, a_gap) if both else d_gap
+    floored = False
     if model.model == "scharber":
         voc_raw = interface - loss_ev
     else:
@@ -144,6 +155,11 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None, sq_voc=None) -> PairTerms:
         slope, ref, lo, hi = _slope(model)
         loss_ev = slope_loss(loss_ev, e_ct, slope, ref, lo, hi)  # grows with E_CT in the fitted range, ≥ 0
         voc_raw = e_ct - loss_ev  # E_CT - loss (Veldman et al. 2009)
+        floor = _gap_floor(model)
+        if floor > 0:  # never less total loss against the gap than any fitted device
+            with np.errstate(invalid="ignore"):
+                floored = voc_raw > gap_cap - floor
+            voc_raw = np.where(floored, gap_cap - floor, voc_raw)
     scale = model.offset_scale_ev
     eqe = model.value("eqe")
     eta_d = generation_yield(delta_lumo, scale)
@@ -157,7 +173,7 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None, sq_voc=None) -> PairTerms:
             jsc = eqe * ((j_lo - j_hi) * eta_lo + j_hi * 0.5 * (eta_d + eta_a))
     else:
         jsc = eqe * jsc_unit(_safe_gap(g_lo)) * eta_d
-    return PairTerms(delta_lumo, delta_homo, g_lo, gap_cap, voc_raw, jsc, loss_ev, voc_limit(gap_cap, sq_voc))
+    return PairTerms(delta_lumo, delta_homo, g_lo, gap_cap, voc_raw, jsc, loss_ev, voc_limit(gap_cap, sq_voc), floored)
 
 
 def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = np.inf, *, ff=None,
@@ -224,6 +240,9 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
         del lowered
     else:
         voc -= loss_ev
+    floor = _gap_floor(model)
+    if floor > 0:
+        np.fmin(voc, cap - floor, out=voc)
     np.fmin(voc, cap, out=voc)
     # gap − detailed-balance Voc grows with the gap (checked on a 0.5 meV grid, 0.05–4.43 eV), so the cap can bind
     # only where cap − voc is below that difference at the largest gap of the block

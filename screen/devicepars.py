@@ -71,6 +71,13 @@ class FittedParameters:
     ff_by_class : dict of str to float
         Fill factor per acceptor class or family (keys as in ``loss_ev``, without
         ``'pooled'``); empty when the fit chose one pooled value. [dimensionless]
+    gap_loss_min_ev : float
+        The smallest total loss E_g − qVoc (E_g the smaller optical gap of the pair) among
+        the fitted devices: Voc never exceeds ``E_g − gap_loss_min_ev``. Where the optical
+        gap sets E_CT, the E_CT slope alone let a narrow-gap pair lose less than any
+        measured blend (a device-physics audit: 0.29 eV at a 1.0 eV gap, within 0.05 V of
+        the detailed-balance Voc, while every fitted device loses at least 0.45 eV);
+        0 = no floor. [eV]
     source : str
         Path the parameters were read from ('' if built in Python).
     meta : dict
@@ -86,6 +93,7 @@ class FittedParameters:
     ff_by_class: dict = field(default_factory=dict)
     ect_min_ev: float = -math.inf
     ect_max_ev: float = math.inf
+    gap_loss_min_ev: float = 0.0
     source: str = ""
     meta: dict = field(default_factory=dict, compare=False)
 
@@ -102,6 +110,8 @@ class FittedParameters:
                 and math.isfinite(float(self.ect_ref_ev))):
             raise ConfigError(f"fitted device parameters {self.source}: loss_slope must be in [0, 1) and "
                               "ect_ref_ev finite")
+        if not (math.isfinite(float(self.gap_loss_min_ev)) and float(self.gap_loss_min_ev) >= 0.0):
+            raise ConfigError(f"fitted device parameters {self.source}: gap_loss_min_ev must be finite and >= 0")
         if not float(self.ect_min_ev) <= float(self.ect_max_ev):
             raise ConfigError(f"fitted device parameters {self.source}: ect_min_ev must not exceed ect_max_ev")
         for key, val in self.loss_ev.items():
@@ -178,7 +188,7 @@ class FittedParameters:
         return {"loss_ev": dict(self.loss_ev), "eqe_max": self.eqe_max, "offset_scale_ev": self.offset_scale_ev,
                 "ff": self.ff, "ff_by_class": dict(self.ff_by_class), "loss_slope": self.loss_slope,
                 "ect_ref_ev": self.ect_ref_ev, "ect_min_ev": self.ect_min_ev, "ect_max_ev": self.ect_max_ev,
-                "source": self.source}
+                "gap_loss_min_ev": self.gap_loss_min_ev, "source": self.source}
 
 
 def slope_loss(loss_ev, e_ct_ev, slope: float, ref_ev: float, lo_ev: float = -math.inf, hi_ev: float = math.inf):
@@ -250,6 +260,7 @@ def load_fitted(path: str | None = None) -> FittedParameters:
                                 ect_ref_ev=float(params.get("ect_ref_ev", 0.0)),
                                 ect_min_ev=float(params.get("ect_min_ev", -math.inf)),
                                 ect_max_ev=float(params.get("ect_max_ev", math.inf)),
+                                gap_loss_min_ev=float(params.get("gap_loss_min_ev", 0.0)),
                                 ff_by_class={str(k): float(v) for k, v in params.get("ff_by_class", {}).items()},
                                 source=str(target),
                                 meta={k: v for k, v in data.items() if k != "parameters"})
@@ -270,7 +281,9 @@ def _pick(record, key: str) -> dict | None:
     metrics = record.get(key) if isinstance(record, dict) else None
     if not isinstance(metrics, dict) or "voc_mae_v" not in metrics:
         return None
-    return {**{k: metrics[k] for k in _TEST_KEYS if k in metrics}, "grouping": record.get("grouping")}
+    base = record.get("mean_voc_baseline") if isinstance(record.get("mean_voc_baseline"), dict) else {}
+    return {**{k: metrics[k] for k in _TEST_KEYS if k in metrics}, "grouping": record.get("grouping"),
+            "baseline_voc_mae_v": base.get("voc_mae_v")}
 
 
 def device_tests(model: str, protocol: str | None = None, fitted_path: str | None = None,

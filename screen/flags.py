@@ -99,6 +99,9 @@ _REGISTRY = (
     Flag("too_many_heavy_atoms", "larger than the heavy-atom limit of this screen{limit}"),
     Flag("voc_capped", "open-circuit voltage limited to the detailed-balance voltage of the pair's smallest "
                        "optical gap (the model's value was above it)", "info"),
+    Flag("loss_floor", "open-circuit voltage limited to the smaller optical gap minus the smallest energy loss "
+                       "E_g − qVoc of the published devices the model was fitted on: below it the fitted loss would "
+                       "extrapolate beyond any measured blend (typically a narrow-gap pair)", "info"),
     Flag("pce_capped", "efficiency limited to the detailed-balance (Shockley–Queisser) limit for the absorber "
                        "gap", "info"),
     Flag("alignment_uncertain", "an offset to the partner lies so close to its threshold, for the levels' σ, that the "
@@ -137,7 +140,7 @@ INFO_FLAGS = frozenset(f.code for f in _REGISTRY if f.severity == "info")
 NOT_VIABLE_FLAGS = frozenset(f.code for f in _REGISTRY if f.severity == _NV)
 #: the flags the device model itself raises (the rest come from ranking filters), in registry order
 DEVICE_FLAGS = ("input_missing", "absorber_gap_invalid", "lumo_inverted", "homo_inverted", "lumo_offset_low",
-                "homo_offset_low", "voc_nonpositive", "voc_capped", "pce_capped", "loss_class_pooled",
+                "homo_offset_low", "voc_nonpositive", "voc_capped", "loss_floor", "pce_capped", "loss_class_pooled",
                 "donor_only_model")
 
 

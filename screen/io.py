@@ -593,8 +593,9 @@ def _oligomer_count(path: Path) -> tuple[int, int]:
     return len({r.get("key") for r in rows}), len({r.get("polymer_key") for r in rows})
 
 
-def run_progress(out_dir: str | os.PathLike) -> dict:
-    """Progress of every batch of a run folder (candidates, reference, partners), counted per stage.
+def run_progress(out_dir: str | os.PathLike, batch: str | None = None) -> dict:
+    """Progress of every batch of a run folder (candidates, reference, partners), counted per stage;
+    of ``batch`` alone when given (a ``smiles:`` partner's computation).
 
     Returns
     -------
@@ -615,6 +616,8 @@ def run_progress(out_dir: str | os.PathLike) -> dict:
     """
     work = Path(out_dir) / "work"
     batches = sorted(p.parent.name for p in work.glob("*/prepared")) if work.is_dir() else []
+    if batch is not None:
+        batches = [b for b in batches if b == batch]
     out = {"total": 0, "structures": 0, "electronic": 0, "prepared": bool(batches), "started": float("nan"),
            "oligomers": 0, "polymers": 0}
     for batch in batches:

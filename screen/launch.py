@@ -241,7 +241,7 @@ def _command(out: Path, cfg_file: Path, cores: int, targets, extra, dry_run: boo
 
 def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, dry_run: bool = False,
                  profile: str | None = None, cfg_file: Path | None = None, verbose: bool = False,
-                 log_name: str = "workflow", label: str = "dascreen") -> int:
+                 log_name: str = "workflow", label: str = "dascreen", batch: str | None = None) -> int:
     """Run the packaged workflow on ``cfg`` in ``out``; return Snakemake's exit code.
 
     Parameters
@@ -268,6 +268,9 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
         The log goes to ``out/logs/<log_name>.log`` when not verbose.
     label : str
         Leading word of the progress display.
+    batch : str, optional
+        Count only this batch (``OUT/work/<batch>``) in the progress display: a ``smiles:`` partner's
+        computation is one molecule, not the whole run folder.
 
     Raises
     ------
@@ -297,12 +300,12 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
         if verbose or dry_run:
             print("dascreen: snakemake --cores", cores, "in", out, flush=True)
             return _wait(_start(cmd, env, pass_fds=hold))
-        return _quiet(cmd, env, out, out / "logs" / f"{log_name}.log", label, hold)
+        return _quiet(cmd, env, out, out / "logs" / f"{log_name}.log", label, hold, batch)
     finally:
         lock.close()
 
 
-def _quiet(cmd: list[str], env: dict, out: Path, log_path: Path, label: str, hold=()) -> int:
+def _quiet(cmd: list[str], env: dict, out: Path, log_path: Path, label: str, hold=(), batch: str | None = None) -> int:
     """Snakemake with its log in a file and a progress display; the error part printed on failure.
 
     ``hold``: file descriptors the engine inherits (the run folder's lock)."""
@@ -310,7 +313,7 @@ def _quiet(cmd: list[str], env: dict, out: Path, log_path: Path, label: str, hol
     stop = threading.Event()
     with open(log_path, "w", encoding="utf-8") as log:
         proc = _start(cmd, env, stdout=log, stderr=subprocess.STDOUT, pass_fds=tuple(hold))
-        watcher = threading.Thread(target=_watch, args=(out, stop, label), daemon=True)
+        watcher = threading.Thread(target=_watch, args=(out, stop, label), kwargs={"batch": batch}, daemon=True)
         watcher.start()
         try:
             rc = _wait(proc)
@@ -324,7 +327,8 @@ def _quiet(cmd: list[str], env: dict, out: Path, log_path: Path, label: str, hol
     return rc
 
 
-def _watch(out: Path, stop: threading.Event, label: str, stream=None, tick: float | None = None) -> None:
+def _watch(out: Path, stop: threading.Event, label: str, stream=None, tick: float | None = None,
+           batch: str | None = None) -> None:
     """Redraw the progress bar every second (a terminal) or print a line every minute (not a terminal)."""
     from screen.io import Progress, run_progress
 
@@ -334,7 +338,7 @@ def _watch(out: Path, stop: threading.Event, label: str, stream=None, tick: floa
     based = False
     while not stop.wait(tick):
         try:
-            p = run_progress(out)
+            p = run_progress(out, batch)
         except OSError:  # a file moved while being counted: next time
             continue
         if not p["prepared"]:
@@ -349,7 +353,7 @@ def _watch(out: Path, stop: threading.Event, label: str, stream=None, tick: floa
             note += f"; {p['oligomers']} of them oligomers of {p['polymers']} polymer(s)"
         progress.report(p["done"], p["total"], note=note)
     try:
-        p = run_progress(out)
+        p = run_progress(out, batch)
         if p["prepared"] and progress.bar:
             progress.report(p["done"], p["total"], note="done")
     except OSError:

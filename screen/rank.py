@@ -671,12 +671,15 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
 
 def _sort_ranking(out: pd.DataFrame, sort_by: str) -> pd.DataFrame:
     """Passing rows first, then viable before not viable, then ``sort_by`` descending (NaN last; ``pce_pct``
-    breaks ties of ``p_above_target``), then a row that repeats an earlier row's structure after it
-    (``same_structure``), then ``id``, then input order; ``rank`` = 1..n."""
-    keys = ["passes", "viable", sort_by] + (["pce_pct"] if sort_by != "pce_pct" else []) + ["_dup", "id", "_order"]
+    breaks ties of ``p_above_target``), then ``p_aligned`` descending (it orders the not-viable rows, which have
+    no estimate: a near miss before a clear misalignment, and it breaks exact ties of viable rows), then a row
+    that repeats an earlier row's structure after it (``same_structure``), then ``id``, then input order;
+    ``rank`` = 1..n."""
+    keys = (["passes", "viable", sort_by] + (["pce_pct"] if sort_by != "pce_pct" else [])
+            + ["p_aligned", "_dup", "id", "_order"])
     out["_order"] = np.arange(len(out))
     out["_dup"] = out["flags"].astype(str).str.contains("same_structure", regex=False) if "flags" in out else False
-    out = out.sort_values(keys, ascending=[False, False, False] + [False] * (len(keys) - 6) + [True, True, True],
+    out = out.sort_values(keys, ascending=[False] * (len(keys) - 3) + [True, True, True],
                           na_position="last", kind="stable").drop(columns=["_order", "_dup"]).reset_index(drop=True)
     out["rank"] = np.arange(1, len(out) + 1)
     return out

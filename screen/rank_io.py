@@ -867,6 +867,10 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     ranking = rank_candidates(levels, partner, model, options)
     lap("rank_s")
 
+    given = [c for c in SIGMA_PARTNER if c in levels.columns]
+    if len(levels) and not any((pd.to_numeric(levels[c], errors="coerce") > 0).any() for c in given):
+        print(f"dascreen rank: {levels_path} gives no σ (homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev): its levels "
+              "are taken as exact, so the ± and P(PCE > target) carry only the partner's σ", file=sys.stderr)
     if partner.kind == "file" and not any(getattr(partner, c) > 0 for c in SIGMA_PARTNER):
         print(f"dascreen rank: partner file {partner.spec} gives no σ: its levels are taken as exact (the built-in "
               "partners carry ±0.1–0.3 eV); add homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev to include it",

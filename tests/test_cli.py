@@ -208,6 +208,19 @@ def test_watch_prints_plain_lines_when_not_a_terminal(tmp_path):
     assert "\r" not in text and text.count("\n") == 1  # one line a minute at most, none redrawn
 
 
+def test_a_partners_progress_counts_its_own_batch(tmp_path):
+    # the progress line of a smiles: partner said "39/39 molecules ...; 8 of them oligomers of 2 polymer(s)": the
+    # whole run folder, not the one partner being computed
+    from screen.io import run_progress
+
+    _fake_run(tmp_path, 2)
+    partner = tmp_path / "work" / "partner-m0123" / "prepared"
+    partner.mkdir(parents=True)
+    pd.DataFrame({"key": ["mfffffffffffffff0"], "smiles": ["C"]}).to_csv(partner / "shard-000.csv", index=False)
+    assert run_progress(tmp_path)["total"] == 5
+    assert run_progress(tmp_path, "partner-m0123")["total"] == 1
+
+
 def test_quiet_run_logs_to_a_file_and_prints_the_error_in_full(tmp_path, capsys):
     script = ("import sys\nprint('Building DAG of jobs...')\nfor i in range(50): print('job', i)\n"
               "print('Error in rule electronic:')\nprint('    jobid: 7')\nprint('RuntimeError: boom', file=sys.stderr)\n"
@@ -322,7 +335,8 @@ def test_a_partner_file_without_sigma_is_said_to_be_taken_as_exact(levels, tmp_p
     with_sigma.write_text("id,role,homo_ev,lumo_ev,gap_opt_ev,scale,homo_sigma_ev,lumo_sigma_ev,gap_opt_sigma_ev\n"
                           "accS1,acceptor,-5.75,-4.00,1.45,film,0.1,0.1,0.1\n", encoding="utf-8")
     rc, _, err = _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", str(with_sigma))
-    assert rc == 0 and "gives no σ" not in err
+    assert rc == 0 and "partner file" not in err and "gives no σ: its levels are taken as exact" not in err
+    assert f"{levels} gives no σ" in err  # the candidates' own levels file has no σ columns either
 
 
 @pytest.mark.parametrize("extra, said", [

@@ -605,3 +605,15 @@ def test_a_second_id_of_one_structure_is_flagged_and_kept_out_of_the_shortlist(t
     renamed = lv.assign(id=["Z-first", "A-repeat", "OTHER"], duplicate_of=["", "Z-first", ""])
     order = rank_candidates(renamed, y6, options=RankOptions(partner_sigma=False))["id"].tolist()
     assert order.index("Z-first") < order.index("A-repeat")
+
+
+def test_not_viable_rows_are_ordered_by_their_chance_of_alignment():
+    # a device-physics audit: PM6:ITIC (a working blend, about 10 %: from memory) at dHOMO -0.01 eV, P(aligned) 0.45,
+    # sorted among clearly misaligned pairs by id; a near miss now comes first among the not viable
+    y6 = resolve_partner("y6")
+    lv = _levels([{"id": "A-far", "homo_ev": -6.2, "lumo_ev": -3.5, "gap_opt_ev": 1.8, "role": "donor"},
+                  {"id": "B-near", "homo_ev": -5.66, "lumo_ev": -3.5, "gap_opt_ev": 1.8, "role": "donor"},
+                  {"id": "C-good", "homo_ev": -5.3, "lumo_ev": -3.5, "gap_opt_ev": 1.8, "role": "donor"}])
+    r = rank_candidates(lv, y6)
+    assert r["id"].tolist() == ["C-good", "B-near", "A-far"]
+    assert not r.set_index("id").loc["B-near", "viable"] and r.set_index("id").loc["B-near", "p_aligned"] > 0.3

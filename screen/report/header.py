@@ -211,11 +211,15 @@ def _loss_words(dev: dict) -> str:
     classes = fitted.get("loss_ev") if isinstance(fitted.get("loss_ev"), dict) else {}
     pooled = ("" if dev.get("loss_v_set") or set(classes) != {"pooled"}
               else " (one value for every acceptor class: the cross-validation kept no class value)")
+    floor = num(fitted.get("gap_loss_min_ev"))
+    floor_words = ("" if dev.get("loss_v_set") or math.isnan(floor) or floor <= 0 else
+                   f"; never less than {fmt(floor)} eV against the smaller optical gap (E<sub>g</sub> \u2212 "
+                   "qV<sub>oc</sub>, the smallest of the fitted devices; flag <code>loss_floor</code>)")
     if dev.get("loss_v_set") or math.isnan(slope) or math.isnan(ref) or slope <= 0:
-        return base + pooled
+        return base + pooled + floor_words
     return (f"{base} at E<sub>CT</sub> = {fmt(ref)} eV, changing by {fmt(slope, plus=True)} V per eV of "
             f"E<sub>CT</sub> (smaller at lower E<sub>CT</sub>, larger at higher) within the fitted E<sub>CT</sub> "
-            f"range{pooled}")
+            f"range{pooled}{floor_words}")
 
 
 def _ff_words(dev: dict) -> str:
@@ -346,13 +350,16 @@ def _test_words(rec, levels: str) -> str:
     >>> words = _test_words({"voc_mae_v": 0.055, "spearman_voc": 0.5, "spearman_pce": -0.17, "n": 45,
     ...                      "n_pce": 49}, "computed levels")
     >>> words.split(", of ")
-    ['computed levels: V<sub>oc</sub> MAE 0.055 V, rank correlation of V<sub>oc</sub> 0.50 (45 devices)', 'PCE −0.17 (49)']
+    ['computed levels: V<sub>oc</sub> MAE 0.055 V, rank correlation of V<sub>oc</sub> 0.50 (45 devices)', 'PCE −0.17 (49, pooled over acceptor classes)']
     """
     if not isinstance(rec, dict) or math.isnan(num(rec.get("voc_mae_v"))):
         return ""
     n, n_pce = esc(rec.get("n", "?")), esc(rec.get("n_pce", "?"))
-    return (f"{levels}: V<sub>oc</sub> MAE {fmt(rec.get('voc_mae_v'), 3)} V, rank correlation of V<sub>oc</sub> "
-            f"{fmt(rec.get('spearman_voc'))} ({n} devices), of PCE {fmt(rec.get('spearman_pce'))} ({n_pce})")
+    base = num(rec.get("baseline_voc_mae_v"))
+    said = "" if math.isnan(base) else f" (predicting the mean V<sub>oc</sub>: {fmt(base, 3)} V)"
+    return (f"{levels}: V<sub>oc</sub> MAE {fmt(rec.get('voc_mae_v'), 3)} V{said}, rank correlation of V<sub>oc</sub> "
+            f"{fmt(rec.get('spearman_voc'))} ({n} devices), of PCE {fmt(rec.get('spearman_pce'))} ({n_pce}, pooled "
+            "over acceptor classes)")
 
 
 def device_tests_html(tests) -> tuple[str, str]:

@@ -110,6 +110,12 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass) -> str:
     sentence = (f"{len(ranking)} candidate(s) ranked against <strong>{esc(partner_id) or 'the partner'}</strong>"
                 f"{passing}. Best estimate: <strong>{esc(best.get('id'))}</strong> at "
                 f"{fmt_pm(best.get('pce_pct'), best.get('pce_sigma_pct'), 1)} % PCE")
+    ties = int((pce.round(1) == round(num(best.get("pce_pct")), 1)).sum()) - 1 if pce.notna().any() else 0
+    if ties > 0:  # a device-physics audit: against a narrow-gap partner most donors tie and the order is by id
+        sentence += (f", tied with {ties} other{'s' if ties > 1 else ''} at that estimate (when the partner's "
+                     "optical gap is the pair's smaller one it sets E<sub>CT</sub>, V<sub>oc</sub> and "
+                     "J<sub>sc</sub> for every candidate whose offsets clear their thresholds; ties are ordered by "
+                     "P(aligned), then id)")
     first = pool.iloc[0]
     if first.get("id") != best.get("id") and num(first.get("pce_pct")) != num(best.get("pce_pct")):
         prob = num(first.get("p_above_target"))
@@ -174,7 +180,8 @@ def _shortlist_section(ranking: pd.DataFrame, short: pd.DataFrame, how: str, pid
         f'<p class="quiet">Shown: {esc(how)}. Levels in eV relative to the vacuum level (HOMO = \u2212IP), on the energy scale of the header (film: solid-state / CV levels), value \u00b1 1\u03c3. '
         "\u0394LUMO = LUMO(donor) \u2212 LUMO(acceptor), \u0394HOMO = HOMO(donor) \u2212 HOMO(acceptor). "
         "P(aligned), in the table of every row, is the probability at the levels\u2019 \u03c3 that both offsets "
-        "clear their thresholds; rows with equal estimates keep the order of their ids. "
+        "clear their thresholds; rows with equal estimates, and the not-viable rows, are ordered by P(aligned), "
+        "then id. "
         "Click a column header to sort.</p>",
         f'<div class="tablewrap">{shortlist_table(short, meta)}</div>',
         '<details id="all-ranked">',
