@@ -112,6 +112,9 @@ _REGISTRY = (
     Flag("same_computed_structure", "computed as the same structure as another row of the same role once long side "
                                     "chains were cut (smiles_computed): the same numbers, which do not resolve "
                                     "the side chains beyond their first branch point", "info"),
+    Flag("acceptor_class_unknown", "the acceptor's class (fullerene, fused-ring or other non-fullerene, polymer) "
+                                   "could not be told without its SMILES: the pooled fill factor of all classes "
+                                   "is used, which moves the PCE by up to about a fifth", "info"),
     Flag("loss_class_pooled", "voltage loss: the fitted model's pooled value for all acceptor classes (the "
                               "fit keeps no separate value for this pair's class)", "info"),
     Flag("donor_only_model", "published donor-only model: only the donor absorbs and only the LUMO offset is "

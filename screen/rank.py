@@ -511,6 +511,8 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "too_many_heavy_atoms": heavy_out,
         "heavy_atoms_unknown": heavy_unknown,
         "alignment_uncertain": pair_ok & (aligned > ALIGNMENT_UNCERTAIN[0]) & (aligned < ALIGNMENT_UNCERTAIN[1]),
+        "acceptor_class_unknown": (pair_ok & np.asarray(dev["viable"], bool) & bool(dev.get("class_free_ff"))
+                                   & (np.asarray(dev["acceptor_class"], dtype=object).astype(str) == "")),
         "same_structure": _same_structure(lv, cand, roles),
         "same_computed_structure": _same_computed(lv, roles) & ~_same_structure(lv, cand, roles),
         "far_from_reference": _far_from_reference(lv),
@@ -793,6 +795,7 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     dev["p_aligned"] = np.where(roles.paired, p_aligned(pair.levels, pair.sigmas, model.value("min_delta_lumo_ev"),
                                                          model.value("min_delta_homo_ev"), model.check_homo_offset),
                                 np.nan)
+    dev["class_free_ff"] = model.model != "scharber" and model.ff is None and bool(model.parameters.ff_by_class)
     masks = _flag_masks(lv, cand, roles, dev, partner, options, dev["p_aligned"])
     spread = _spread(model, pair, roles.paired & _viable(masks), options)
     out = _sort_ranking(_ranking_frame(lv, cand, roles, partner, dev, spread, masks, model, options),
