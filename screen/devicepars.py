@@ -316,6 +316,11 @@ def device_tests(model: str, protocol: str | None = None, fitted_path: str | Non
     except ConfigError:
         return {"film_levels": None, "computed_levels": None}
     film = _pick(meta.get("cv"), key)
+    by_class = (meta.get("cv") or {}).get("by_class") if isinstance(meta.get("cv"), dict) else None
+    if film is not None and key == "fitted" and isinstance(by_class, dict):  # a device-physics audit: the pooled
+        film["by_class"] = {c: {"n": v.get("n"), "voc_mae_v": v.get("fitted_voc_mae_v"),  # MAE hid a -0.12 V class
+                                "baseline_voc_mae_v": v.get("mean_voc_baseline_mae_v")}
+                            for c, v in sorted(by_class.items()) if isinstance(v, dict)}
     computed = None
     path = Path(validation_path) if validation_path else VALIDATION_PATH
     if protocol and path.is_file():

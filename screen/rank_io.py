@@ -34,7 +34,8 @@ from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, partner_ro
 from screen.rank_rows import shortlist_mask
 
 __all__ = ["write_shortlist", "shortlist_notice", "longest_oligomers", "computed_geometries", "settings_hash",
-           "ranking_folder", "levels_suffix", "set_aside_foreign", "read_ranked_levels", "check_before_computing", "run_rank"]
+           "ranking_folder", "levels_suffix", "set_aside_foreign", "read_ranked_levels", "check_before_computing",
+           "run_rank"]
 
 
 # --------------------------------------------------------------------------- outputs

@@ -75,7 +75,8 @@ def partner_card(partner: dict, meta: dict) -> str:
     if not any(s > 0 for s in sigmas):  # NaN > 0 is False: none given
         items.append(("Uncertainty", "no \u03c3 given for the partner: its levels are taken as exact, so "
                                      "P(aligned) and P(PCE &gt; target) carry only the candidates\u2019 \u03c3 "
-                                     "(the built-in partners carry \u00b10.1\u20130.3 eV); add homo_sigma_ev, lumo_sigma_ev "
+                                     "(the built-in partners carry \u00b10.1\u20130.3 eV); add homo_sigma_ev, "
+                                     "lumo_sigma_ev "
                                      "and gap_opt_sigma_ev columns to the partner file to include it"))
     if p.get("from_memory") is True:
         items.append(("Provenance", "values recalled from the literature, not read from the source "
@@ -362,6 +363,28 @@ def _test_words(rec, levels: str) -> str:
             "over acceptor classes)")
 
 
+def _class_words(film) -> str:
+    """The film-level held-out Voc MAE per acceptor class, with the mean-Voc baseline where the class is no better.
+
+    Examples
+    --------
+    >>> _class_words({"by_class": {"nfa-fused": {"n": 66, "voc_mae_v": 0.037, "baseline_voc_mae_v": 0.066},
+    ...                            "nfa-other": {"n": 7, "voc_mae_v": 0.134, "baseline_voc_mae_v": 0.152}}})
+    '; on measured levels, V<sub>oc</sub> MAE by acceptor class: nfa-fused 0.037 V (66), nfa-other 0.134 V (7; predicting the mean: 0.152 V)'
+    """
+    classes = film.get("by_class") if isinstance(film, dict) else None
+    if not isinstance(classes, dict) or not classes:
+        return ""
+    words = []
+    for name, rec in classes.items():
+        mae, base = num(rec.get("voc_mae_v")), num(rec.get("baseline_voc_mae_v"))
+        if math.isnan(mae):
+            continue
+        close = "" if math.isnan(base) or mae < 0.8 * base else f"; predicting the mean: {fmt(base, 3)} V"
+        words.append(f"{esc(name)} {fmt(mae, 3)} V ({esc(rec.get('n', '?'))}{close})")
+    return "; on measured levels, V<sub>oc</sub> MAE by acceptor class: " + ", ".join(words) if words else ""
+
+
 def device_tests_html(tests) -> tuple[str, str]:
     """The card's "Tested on published devices" value and, when the PCE has not ranked them, a caution (HTML).
 
@@ -386,7 +409,7 @@ def device_tests_html(tests) -> tuple[str, str]:
     parts = [p for p in parts if p]
     if not parts:
         return "", ""
-    row = "held out (one acceptor at a time); " + "; ".join(parts)
+    row = "held out (one acceptor at a time); " + "; ".join(parts) + _class_words(film)
     judged = comp if isinstance(comp, dict) else film
     rho = num(judged.get("spearman_pce")) if isinstance(judged, dict) else math.nan
     caution = ""
