@@ -316,11 +316,13 @@ def _shortlist_mol(row: dict, geometries: dict, keys: dict, oligomers: dict):
     return mol, "2d_polymer" if mol is not None and count_attachments(mol) else "2d", key, None
 
 
-def _set_sd_props(mol, row: dict, scale: str, key: str, source: str, oligomer) -> None:
+def _set_sd_props(mol, row: dict, scale: str, key: str, source: str, oligomer, context=None) -> None:
     """The SD properties of one shortlist record (title: the id cut to 80 characters)."""
     mol.SetProp("_Name", _sd_text(row["id"])[:80])
     for prop in _SD_PROPS:
         mol.SetProp(prop, _sd_text(row.get(prop)))
+    for prop, value in (context or {}).items():  # what the ranking was made with (p_above_target: above what)
+        mol.SetProp(prop, _sd_text(value))
     if scale:
         mol.SetProp("scale", scale)
     mol.SetProp("structure_key", key)
@@ -332,7 +334,8 @@ def _set_sd_props(mol, row: dict, scale: str, key: str, source: str, oligomer) -
 
 
 def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int, scale: str = "",
-                    geometries: dict | None = None, keys: dict | None = None, oligomers: dict | None = None) -> dict:
+                    geometries: dict | None = None, keys: dict | None = None, oligomers: dict | None = None,
+                    context: dict | None = None) -> dict:
     """Write the top passing rows as an SD file with 3-D geometries and hydrogens.
 
     Parameters
@@ -354,6 +357,9 @@ def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int, scale:
     oligomers : dict, optional
         ``(n, structure key)`` of the longest computed oligomer by the
         structure key of a polymer repeat unit (:func:`longest_oligomers`).
+    context : dict, optional
+        Properties every record carries: what the ranking was made with (target PCE,
+        device model), so that an SDF opened later says what ``p_above_target`` is above.
 
     Returns
     -------
@@ -388,7 +394,7 @@ def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int, scale:
             if mol is None:
                 skipped.append(row["id"])
                 continue
-            _set_sd_props(mol, row, scale, key, source, oligomer)
+            _set_sd_props(mol, row, scale, key, source, oligomer, context)
             records.append(mol)
             sources[source.removesuffix("_polymer")] += 1
     if records:
@@ -892,8 +898,9 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     keys = _structure_keys(levels)
     oligomers = longest_oligomers(levels, levels_path, meta_in)
     geometries = computed_geometries(_shortlist_keys(ranking, keys, options, oligomers), levels_path, meta_in, cfg)
+    context = {"target_pce_pct": options.target_pce_pct, "device_model": model.model, "absorber": model.absorber}
     short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size, partner.scale, geometries,
-                            keys, oligomers)
+                            keys, oligomers, context)
     if not short["written"]:
         print(f"dascreen rank: {shortlist_notice(short, levels_path)}", file=sys.stderr)
     meta = _rank_meta(ranking, levels, levels_path, meta_in, partner, model, options, short, levels_sha)

@@ -240,3 +240,15 @@ def test_shortlisted_polymer_without_its_run_folder_says_it_is_a_drawing(tmp_pat
     words = mol.GetProp("geometry_source")
     assert words.startswith("polymer repeat unit: 2-D drawing") and "no 3-D geometry could be made" not in words
     assert not mol.HasProp("oligomer_n")
+
+
+def test_shortlist_records_say_what_the_ranking_was_made_with(tmp_path):
+    # a meeting-day audit: an SDF opened later showed "p_above_target 0.7135" with no "above what"
+    from rdkit import Chem
+
+    levels = _levels_file(tmp_path / "levels.csv", ["syn-a", "syn-b", "syn-c"])
+    cfg = {**PUBLISHED_CFG, "rank": {"role": "donor", "target_pce_pct": 7.5}}
+    path = run_rank(levels, REF, tmp_path / "out", cfg, report=False)
+    mols = list(Chem.SDMolSupplier(str(path.parent / "shortlist.sdf"), removeHs=False))
+    assert mols and all(m.GetProp("target_pce_pct") == "7.5" and m.GetProp("device_model") == "scharber"
+                        and m.GetProp("absorber") == "donor" and m.HasProp("p_aligned") for m in mols)
