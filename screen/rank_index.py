@@ -55,7 +55,8 @@ def _row(folder: Path) -> dict | None:
     return {"folder": folder.name, "partner": part("partner").get("id", ""), "model": part("device").get("model", ""),
             "absorber": part("device").get("absorber", ""), "target_pce_pct": part("rank").get("target_pce_pct"),
             "sort_by": part("rank").get("sort_by", ""), "levels": part("levels").get("path", ""),
-            "ranked": counts.get("ranked"), "passing": counts.get("passing"), "shortlisted": counts.get("shortlist"),
+            "ranked": counts.get("ranked"), "passing": counts.get("passing"),
+            "shortlisted": counts.get("shortlisted_rows", counts.get("shortlist")),  # rows, with or without an SDF
             "written_utc": datetime.fromtimestamp(written, timezone.utc).strftime("%Y-%m-%d %H:%M")}
 
 
