@@ -678,3 +678,15 @@ def test_the_counts_say_how_many_not_viable_rows_were_never_paired():
     strip = counts_strip({}, None, ranking, 1, 1)
     assert '3</span><span class="what">of them not viable' in strip
     assert '2</span><span class="what">of those, not paired: same role as the partner' in strip
+
+
+def test_a_polymer_badge_says_why_its_chain_fit_is_poor():
+    # a polymer audit: chain_fit_poor read the same for a dimer-only series and for one unfitted gap; the badge's
+    # tooltip now carries the levels note
+    from screen.report.tables import _candidate_cell
+
+    note = ("lone_pair_homo: x; chain_fit_poor: no saturating fit accepted for ip, ea (value of the longest "
+            "oligomer, n=2, used)")
+    cell = _candidate_cell("P", "", "donor", None, "polymer", ("2", "poor", "", note))
+    assert "polymer n\u22642 \u00b7 fit poor" in cell and "no saturating fit accepted for ip, ea" in cell
+    assert "lone_pair_homo" not in cell

@@ -46,7 +46,8 @@ _LEVEL_HEADERS = [
 # Rows
 # --------------------------------------------------------------------------- #
 def with_level_details(ranking: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFrame:
-    """Ranking with ``name`` and σ columns filled from ``levels`` where missing."""
+    """Ranking with ``name`` and σ columns filled from ``levels`` where missing, and the levels' ``note`` as
+    ``levels_note`` (it says why a polymer's chain fit is poor)."""
     out = ranking.reset_index(drop=True).copy()
     if levels is None or not len(levels) or "id" not in levels or "id" not in out:
         return out
@@ -56,6 +57,8 @@ def with_level_details(ranking: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFr
     ok = ok.drop_duplicates("id", keep="first")
     ok = ok.set_index(texts(ok["id"]))
     ids = texts(out["id"])
+    if "note" in ok and "levels_note" not in out:
+        out["levels_note"] = ids.map(ok["note"])
     for col in ("name", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev"):
         if col not in ok:
             continue
@@ -211,12 +214,15 @@ def _candidate_cell(ident: str, name, role, smiles=None, representation="", chai
     if badge:
         parts.append(badge)
     if text(representation).strip().lower() == "polymer":
-        n_max, quality, cut = (text(c).strip() for c in chain)
+        n_max, quality, cut, note = (text(c).strip() for c in (*chain, "")[:4])
         n_max = n_max.split(".")[0] if n_max else ""
         title = "polymer repeat unit: levels at the chain limit of its oligomers" + (
             f" n = 1\u2013{n_max}" if n_max else "") + (f", chain fit {quality}" if quality else "")
         if cut:
             title += "; side chains cut to methyl: " + cut.removeprefix("per repeat unit: ") + " per repeat unit"
+        why = [part.strip() for part in note.split("; ") if part.strip().startswith("chain_fit_poor:")]
+        if why:  # a polymer audit: the flag's text was the same for a dimer-only series and one unfitted gap
+            title += "; " + "; ".join(w.removeprefix("chain_fit_poor: ") for w in why)
         label = "polymer" + (f" n\u2264{n_max}" if n_max else "") + (" \u00b7 fit poor" if quality == "poor" else "")
         parts.append(f'<span class="role role-other" title="{esc(title)}">{esc(label)}</span>')
     if smiles is not None:
@@ -229,7 +235,8 @@ def _candidate_cell(ident: str, name, role, smiles=None, representation="", chai
 def _candidate_cells(frame: pd.DataFrame, ids: list[str], with_smiles: bool) -> list[str]:
     """:func:`_candidate_cell` of each row."""
     smiles = _cells(frame, "smiles") if with_smiles else [None] * len(frame)
-    chains = zip(_cells(frame, "chain_n_max"), _cells(frame, "chain_fit_quality"), _cells(frame, "truncated_groups"))
+    chains = zip(_cells(frame, "chain_n_max"), _cells(frame, "chain_fit_quality"), _cells(frame, "truncated_groups"),
+                 _cells(frame, "levels_note"))
     return [_candidate_cell(i, n, r, s, p, c)
             for i, n, r, s, p, c in zip(ids, _cells(frame, "name"), _cells(frame, "role"), smiles,
                                         _cells(frame, "representation"), chains)]
