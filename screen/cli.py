@@ -445,14 +445,11 @@ def _print_rankings(out: Path, limit: int = 12) -> None:
     print(f"dascreen: {len(index)} ranking(s) in {out / 'rankings'}, most recent first:")
     for r in index.head(limit).itertuples():
         levels = "" if Path(str(r.levels)).resolve() == (out / "levels.csv").resolve() else f", levels {r.levels}"
-        target = "" if pd_isna(r.target_pce_pct) else f", target {r.target_pce_pct:g} %"
+        missing = r.target_pce_pct is None or r.target_pce_pct != r.target_pce_pct  # None or NaN
+        target = "" if missing else f", target {r.target_pce_pct:g} %"
         print(f"  {r.written_utc}  {r.folder}: against {r.partner}, {r.model} model{target}, sorted by {r.sort_by}"
               f"{levels}; {r.passing} of {r.ranked} pass")
 
-
-def pd_isna(value) -> bool:
-    """True for a missing number (None or NaN)."""
-    return value is None or value != value
 
 
 def _now() -> float:

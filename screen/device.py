@@ -341,14 +341,30 @@ class DeviceModel:
         [0.65, 0.65]
         """
         classes = np.asarray("" if acceptor_class is None else acceptor_class, dtype=object)
-        if self.model == "scharber" or self.ff is not None:
+        if not self._fitted_ff:
             return np.full(classes.shape, self.value("ff"))
         return self.parameters.ff_for(classes)
 
     @property
+    def _fitted_ff(self) -> bool:
+        """Whether the fill factor comes from the fitted parameters (no override, not Scharber's rule)."""
+        return self.model != "scharber" and self.ff is None
+
+    @property
+    def ff_follows_class(self) -> bool:
+        """Whether the fill factor depends on the acceptor class (fitted values per class are in use).
+
+        Examples
+        --------
+        >>> DeviceModel(model="scharber").ff_follows_class, DeviceModel(ff=0.7).ff_follows_class
+        (False, False)
+        """
+        return self._fitted_ff and bool(self.parameters.ff_by_class)
+
+    @property
     def ff_max(self) -> float:
         """Largest fill factor any pair can get (a bound for the sampler). [dimensionless]"""
-        if self.model == "scharber" or self.ff is not None:
+        if not self._fitted_ff:
             return self.value("ff")
         return self.parameters.ff_max
 

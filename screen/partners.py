@@ -67,6 +67,7 @@ __all__ = [
     "library_table",
     "partner_slug",
     "slugify",
+    "file_tag",
     "suggest",
     "did_you_mean",
     "split_partners",
@@ -228,6 +229,21 @@ def slugify(text: str, limit: int = 40) -> str:
     """
     slug = re.sub(r"-{2,}", "-", re.sub(r"[^A-Za-z0-9._-]+", "-", str(text)))
     return slug.strip("-._")[:limit].strip("-._") or "partner"
+
+
+def file_tag(path, prefix: str = "levels", limit: int = 40) -> str:
+    """``<prefix>-<slugified file stem>-<6 hex of the SHA-256 of the resolved absolute path>``.
+
+    The folder-name tag of a ranking of another levels file than the run's own (``dascreen rank`` and
+    ``dascreen dyecell``): the same file always gets the same tag, two files of one name in different places two.
+
+    Examples
+    --------
+    >>> file_tag("/data/my cv.csv")[:13], len(file_tag("/data/my cv.csv").rsplit("-", 1)[1])
+    ('levels-my-cv-', 6)
+    """
+    path = Path(path).resolve()
+    return f"{prefix}-{slugify(path.stem, limit)}-{hashlib.sha256(str(path).encode('utf-8')).hexdigest()[:6]}"
 
 
 def _readable_slug(prefix: str, text: str, always_hash: bool = False) -> str:

@@ -328,10 +328,12 @@ def check_rank_config(path, levels_path, command: str) -> None:
         return
     from screen.config import Config, read_config_file
 
+    from screen.io import read_json
+
     side = Path(f"{levels_path}.meta.json")
     try:
-        meta = yaml.safe_load(side.read_text(encoding="utf-8")) if side.is_file() else None
-    except (OSError, yaml.YAMLError):
+        meta = read_json(side) if side.is_file() else None
+    except (OSError, ValueError):
         meta = None
     if not isinstance(meta, dict):
         return

@@ -12,7 +12,7 @@ import platform
 from functools import lru_cache
 from pathlib import Path
 
-__all__ = ["provenance", "package_version", "library_versions", "sha256_file"]
+__all__ = ["provenance", "package_version", "library_versions", "sha256_file", "change_notice"]
 
 #: libraries whose versions are recorded
 LIBRARIES = ("tblite", "xtb", "rdkit", "numpy", "pandas", "scikit-learn", "ase", "pvlib")
@@ -76,3 +76,37 @@ def sha256_file(path: str | Path, chunk: int = 1 << 20) -> str:
         for block in iter(lambda: handle.read(chunk), b""):
             digest.update(block)
     return digest.hexdigest()
+
+
+def change_notice(old_path, old_sha, path: str, sha: str, unknown: str = "a file not recorded") -> tuple[str, bool]:
+    """How the input of an earlier result differs from the one about to replace it.
+
+    Parameters
+    ----------
+    old_path, old_sha : str or None
+        Resolved path and SHA-256 of the earlier input, as recorded.
+    path, sha : str
+        Resolved path and SHA-256 of the input now.
+    unknown : str
+        Words for an earlier input whose path was not recorded.
+
+    Returns
+    -------
+    tuple of (str, bool)
+        The notice ("" when path and content are the same) and whether the content differs.
+
+    Examples
+    --------
+    >>> change_notice("/r/L.csv", "ab" * 32, "/r/L.csv", "ab" * 32)
+    ('', False)
+    >>> change_notice("/r/L.csv", "ab" * 32, "/r/L.csv", "cd" * 32)
+    ('/r/L.csv changed since it was ranked (sha256 abababab… → cdcdcdcd…)', True)
+    >>> change_notice("/r/old.csv", "ab" * 32, "/r/L.csv", "ab" * 32)
+    ('it ranked /r/old.csv (same content)', False)
+    """
+    if old_sha == sha:
+        return ("" if old_path == path else f"it ranked {old_path} (same content)"), False
+    if old_path == path:
+        was = f"sha256 {old_sha[:8]}\u2026 \u2192 {sha[:8]}\u2026" if old_sha else f"now sha256 {sha[:8]}\u2026"
+        return f"{path} changed since it was ranked ({was})", True
+    return f"it ranked {old_path or unknown}, whose content differs from {path}", True

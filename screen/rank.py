@@ -478,9 +478,10 @@ def p_aligned(pair_levels, pair_sigmas, min_lumo: float, min_homo: float, check_
 
 
 def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, partner: Partner,
-                options: RankOptions, aligned: np.ndarray) -> dict[str, np.ndarray]:
+                options: RankOptions, ff_follows_class: bool) -> dict[str, np.ndarray]:
     """One boolean mask per flag code (:data:`screen.flags.FLAG_ORDER`): device flags of the rows with a
-    pair, the gap window, the heavy-atom limit and the role flags."""
+    pair, the gap window, the heavy-atom limit and the role flags (``dev`` with ``p_aligned`` and
+    ``acceptor_class``)."""
     n = cand.ids.size
     pair_ok = roles.paired
     cand_missing = np.isnan(cand.homo) | np.isnan(cand.lumo) | np.isnan(cand.gap)
@@ -496,6 +497,8 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
     is_partner = np.zeros(n, dtype=bool)
     if partner.kind == "id":
         is_partner = cand.ids == partner.id
+    aligned = dev["p_aligned"]
+    same = _same_structure(lv, cand, roles)
     device = {code: np.asarray(dev[code], bool) & pair_ok for code in DEVICE_FLAGS}
     device["input_missing"] = device["input_missing"] | cand_missing
     return {
@@ -511,10 +514,10 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "too_many_heavy_atoms": heavy_out,
         "heavy_atoms_unknown": heavy_unknown,
         "alignment_uncertain": pair_ok & (aligned > ALIGNMENT_UNCERTAIN[0]) & (aligned < ALIGNMENT_UNCERTAIN[1]),
-        "acceptor_class_unknown": (pair_ok & np.asarray(dev["viable"], bool) & bool(dev.get("class_free_ff"))
+        "acceptor_class_unknown": (pair_ok & np.asarray(dev["viable"], bool) & ff_follows_class
                                    & (np.asarray(dev["acceptor_class"], dtype=object).astype(str) == "")),
-        "same_structure": _same_structure(lv, cand, roles),
-        "same_computed_structure": _same_computed(lv, roles) & ~_same_structure(lv, cand, roles),
+        "same_structure": same,
+        "same_computed_structure": _same_computed(lv, roles) & ~same,
         "far_from_reference": _far_from_reference(lv),
         "chain_fit_poor": _text(lv, "chain_fit_quality") == "poor",
         "lone_pair_homo": _lone_pair_homo(lv),
@@ -795,8 +798,7 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     dev["p_aligned"] = np.where(roles.paired, p_aligned(pair.levels, pair.sigmas, model.value("min_delta_lumo_ev"),
                                                          model.value("min_delta_homo_ev"), model.check_homo_offset),
                                 np.nan)
-    dev["class_free_ff"] = model.model != "scharber" and model.ff is None and bool(model.parameters.ff_by_class)
-    masks = _flag_masks(lv, cand, roles, dev, partner, options, dev["p_aligned"])
+    masks = _flag_masks(lv, cand, roles, dev, partner, options, model.ff_follows_class)
     spread = _spread(model, pair, roles.paired & _viable(masks), options)
     out = _sort_ranking(_ranking_frame(lv, cand, roles, partner, dev, spread, masks, model, options),
                         options.sort_by)

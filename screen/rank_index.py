@@ -25,7 +25,6 @@ Examples
 
 from __future__ import annotations
 
-import json
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -39,8 +38,10 @@ INDEX_COLUMNS = ["folder", "partner", "model", "absorber", "target_pce_pct", "so
 
 
 def _row(folder: Path) -> dict | None:
+    from screen.io import read_json
+
     try:
-        meta = json.loads((folder / "ranking.meta.json").read_text(encoding="utf-8"))
+        meta = read_json(folder / "ranking.meta.json")
         written = (folder / "ranking.csv").stat().st_mtime
     except (OSError, ValueError):
         return None

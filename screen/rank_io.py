@@ -26,6 +26,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from screen.columns import SIGMA_COLUMNS
 from screen.config import Config
 from screen.device import DeviceModel
 from screen.devicepars import device_tests
@@ -39,10 +40,6 @@ __all__ = ["write_shortlist", "shortlist_notice", "longest_oligomers", "computed
 
 
 # --------------------------------------------------------------------------- outputs
-
-#: the σ fields of a partner
-SIGMA_PARTNER = ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")
-
 
 def _sd_text(value) -> str:
     """SD property/title text: one line, no record separators."""
@@ -107,13 +104,12 @@ def levels_suffix(levels_path, out_dir) -> str:
     >>> levels_suffix("/data/my cv.csv", run / "empty")
     ''
     """
-    from screen.partners import slugify
+    from screen.partners import file_tag
 
     own = Path(out_dir) / "levels.csv"
-    path = Path(levels_path).resolve()
-    if not own.is_file() or path == own.resolve():
+    if not own.is_file() or Path(levels_path).resolve() == own.resolve():
         return ""
-    return f"--levels-{slugify(path.stem, 24)}-{hashlib.sha256(str(path).encode()).hexdigest()[:6]}"
+    return "--" + file_tag(levels_path, limit=24)
 
 
 def set_aside_foreign(out_dir, folder: str) -> str | None:
@@ -129,8 +125,10 @@ def set_aside_foreign(out_dir, folder: str) -> str | None:
     meta = target / "ranking.meta.json"
     if not meta.is_file() or not (out_dir / "levels.csv").is_file():
         return None
+    from screen.io import read_json
+
     try:
-        ranked = (json.loads(meta.read_text(encoding="utf-8")).get("levels") or {}).get("path")
+        ranked = (read_json(meta).get("levels") or {}).get("path")
     except (OSError, ValueError, AttributeError):
         return None
     if not ranked or Path(ranked).resolve() == (out_dir / "levels.csv").resolve():
@@ -718,13 +716,9 @@ def _levels_change(old: dict, path: str, sha: str) -> tuple[str, bool]:
     >>> _levels_change({"path": "/r/old.csv", "sha256": "ab" * 32}, "/r/L.csv", "ab" * 32)
     ('it ranked /r/old.csv (same content)', False)
     """
-    old_path, old_sha = old.get("path"), old.get("sha256")
-    if old_sha == sha:
-        return ("" if old_path == path else f"it ranked {old_path} (same content)"), False
-    if old_path == path:
-        was = f"sha256 {old_sha[:8]}… → {sha[:8]}…" if old_sha else f"now sha256 {sha[:8]}…"
-        return f"{path} changed since it was ranked ({was})", True
-    return f"it ranked {old_path or 'a levels file not recorded'}, whose content differs from {path}", True
+    from screen.provenance import change_notice
+
+    return change_notice(old.get("path"), old.get("sha256"), path, sha, "a levels file not recorded")
 
 
 def read_ranked_levels(levels_path) -> pd.DataFrame:
@@ -875,18 +869,7 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     ranking = rank_candidates(levels, partner, model, options)
     lap("rank_s")
 
-    given = [c for c in SIGMA_PARTNER if c in levels.columns]
-    if len(levels) and not any((pd.to_numeric(levels[c], errors="coerce") > 0).any() for c in given):
-        print(f"dascreen rank: {levels_path} gives no σ (homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev): its levels "
-              "are taken as exact, so the ± and P(PCE > target) carry only the partner's σ", file=sys.stderr)
-    if partner.kind == "file" and not any(getattr(partner, c) > 0 for c in SIGMA_PARTNER):
-        print(f"dascreen rank: partner file {partner.spec} gives no σ: its levels are taken as exact (the built-in "
-              "partners carry ±0.1–0.3 eV); add homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev to include it",
-              file=sys.stderr)
-    if (partner.kind == "library" and partner.notes.startswith("NOT a measured material")
-            and model.model != "scharber"):  # reproducing the published model with its own reference is fine
-        print(f"dascreen rank: partner {partner.id}: {'; '.join(partner.notes.split('; ')[:2]).rstrip('.')}",
-              file=sys.stderr)  # the published model's reference level, on its own convention
+    _say_assumptions(levels, levels_path, partner, model)
     suffix = levels_suffix(levels_path, out_dir)
     target = out_dir / "rankings" / (ranking_folder(partner.slug, cfg) + suffix)
     if suffix and not target.exists():
@@ -924,6 +907,22 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     except (OSError, ValueError) as exc:
         print(f"dascreen rank: rankings-index.csv not written: {exc}", file=sys.stderr)
     return target / "ranking.csv"
+
+
+def _say_assumptions(levels: pd.DataFrame, levels_path: Path, partner: Partner, model: DeviceModel) -> None:
+    """On stderr: inputs taken as exact for want of σ, and a partner that is no measured material."""
+    given = [c for c in SIGMA_COLUMNS if c in levels.columns]
+    if len(levels) and not any((pd.to_numeric(levels[c], errors="coerce") > 0).any() for c in given):
+        print(f"dascreen rank: {levels_path} gives no σ (homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev): its levels "
+              "are taken as exact, so the ± and P(PCE > target) carry only the partner's σ", file=sys.stderr)
+    if partner.kind == "file" and not any(getattr(partner, c) > 0 for c in SIGMA_COLUMNS):
+        print(f"dascreen rank: partner file {partner.spec} gives no σ: its levels are taken as exact (the built-in "
+              "partners carry ±0.1–0.3 eV); add homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev to include it",
+              file=sys.stderr)
+    if (partner.kind == "library" and partner.notes.startswith("NOT a measured material")
+            and model.model != "scharber"):  # reproducing the published model with its own reference is fine
+        print(f"dascreen rank: partner {partner.id}: {'; '.join(partner.notes.split('; ')[:2]).rstrip('.')}",
+              file=sys.stderr)  # the published model's reference level, on its own convention
 
 
 def _refresh_matrices(out_dir: Path, folder: str) -> None:

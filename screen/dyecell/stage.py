@@ -29,7 +29,6 @@ the run's own ranking and dye table are never replaced by another input's.
 
 from __future__ import annotations
 
-import hashlib
 import math
 import sys
 from dataclasses import asdict
@@ -53,8 +52,8 @@ from screen.dyecell.rank import (
 )
 from screen.errors import ConfigError, InputError
 from screen.io import read_json, write_csv, write_json
-from screen.partners import slugify
-from screen.provenance import library_versions, sha256_file
+from screen.partners import file_tag
+from screen.provenance import change_notice, library_versions, sha256_file
 
 __all__ = ["read_input", "build_dye_table", "write_shortlist", "run_dyecell", "ranking_folder", "raw_levels",
            "settings_hash", "shipped_protocols", "INPUTS_FILE", "read_inputs", "record_inputs", "OWN_LEVELS",
@@ -230,10 +229,9 @@ def levels_tag(input_path: str | Path, out_dir: str | Path) -> str:
     ('levels-my-dyes-', 6)
     """
     own = own_levels(out_dir)
-    path = Path(input_path).resolve()
-    if not own or path in own:
+    if not own or Path(input_path).resolve() in own:
         return ""
-    return f"levels-{slugify(path.stem)}-{hashlib.sha256(str(path).encode('utf-8')).hexdigest()[:6]}"
+    return file_tag(input_path)
 
 
 def replacing_notice(old: dict, path: str, sha: str) -> str:
@@ -255,13 +253,7 @@ def replacing_notice(old: dict, path: str, sha: str) -> str:
     >>> replacing_notice({"input": "/r/old.csv", "input_sha256": "ab" * 32}, "/r/d.csv", "cd" * 32)
     'it ranked /r/old.csv, whose content differs from /r/d.csv'
     """
-    old_path, old_sha = old.get("input"), old.get("input_sha256")
-    if old_sha == sha:
-        return "" if old_path == path else f"it ranked {old_path} (same content)"
-    if old_path == path:
-        was = f"sha256 {old_sha[:8]}\u2026 \u2192 {sha[:8]}\u2026" if old_sha else f"now sha256 {sha[:8]}\u2026"
-        return f"{path} changed since it was ranked ({was})"
-    return f"it ranked {old_path or 'an input not recorded'}, whose content differs from {path}"
+    return change_notice(old.get("input"), old.get("input_sha256"), path, sha, "an input not recorded")[0]
 
 
 def _tell_replacing(target: Path, info: dict) -> None:

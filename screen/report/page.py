@@ -98,12 +98,13 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass) -> str:
     """
     if not len(ranking):
         return f"No candidate was ranked against {esc(partner_id) or 'the partner'}."
-    eligible = ranking[shortlist_mask(ranking)]
+    may_enter = shortlist_mask(ranking)
+    eligible = ranking[may_enter]
     pool = eligible if len(eligible) else ranking
     pce = pd.to_numeric(pool.get("pce_pct", pd.Series(index=pool.index, dtype=float)), errors="coerce")
     best = pool.loc[pce.idxmax()] if pce.notna().any() else pool.iloc[0]
     passing = "" if n_pass is None else f"; {n_pass} pass every check"
-    repeats = int((truthies(ranking["passes"]) & ~shortlist_mask(ranking)).sum()) if "passes" in ranking else 0
+    repeats = int((truthies(ranking["passes"]) & ~may_enter).sum()) if "passes" in ranking else 0
     if passing and repeats:
         passing += (f" ({repeats} of them {'repeats' if repeats == 1 else 'repeat'} an earlier row's structure and "
                     f"{'stays' if repeats == 1 else 'stay'} out of the shortlist)")
