@@ -222,8 +222,8 @@ def chain_limits(electronic: pd.DataFrame, oligomers: pd.DataFrame,
                          f"(value of the longest oligomer, n={row['chain_n_max']}, used)")
         if unsaturated:
             notes.append(f"chain_fit_poor: the oligomers up to n={row['chain_n_max']} have not started to saturate "
-                         f"for {', '.join(unsaturated)}; the fit's limit is used but is set by its form "
-                         "(screen.extrapolate.saturation_reason)")
+                         f"for {', '.join(unsaturated)}; the fit's limit is used, the chain limit may lie further towards the "
+                         "1/n limit and σ carries that spread (screen.extrapolate)")
         failed = row.pop("_failed", [])
         if failed:
             notes.append("oligomer_failed: " + ", ".join(failed))

@@ -170,3 +170,25 @@ def test_a_series_whose_steps_grow_is_no_converged_chain_limit():
     # a series whose steps halve keeps its fit and label
     good = extrapolate([1, 2, 3, 4], [3.0, 2.6, 2.4, 2.3], per_unit=2, form="gap")
     assert good.quality == "good"
+
+
+def test_a_limit_that_stops_short_of_the_series_own_steps_is_poor():
+    # a referee's audit: E(n) = 2.0 + 1.5/n (a 1/n series, limit 2.0 eV by construction) with 10 meV noise, n = 1-6;
+    # the exponential fit put the limit 0.019 eV on the wrong side of the hexamer and it was moved onto it with
+    # spread 0 and the label good, 0.25 eV from the true limit
+    e = [3.520, 2.724, 2.504, 2.369, 2.295, 2.248]
+    fit = extrapolate(np.arange(1, 7), e)
+    assert fit.quality == "poor" and "wrong side of the longest oligomer" in fit.reason
+    assert fit.limit_ev == pytest.approx(2.248)  # the value does not jump; the label and the spread change
+    assert fit.spread_ev >= (2.248 - 2.013) / math.sqrt(3.0) - 1e-6  # 1/n limit from the last two points: 2.013
+    # noise-free 1/n series of four: whatever fit is chosen, the spread reaches towards the true limit
+    n = np.arange(1, 5)
+    clean = extrapolate(n, 2.0 + 1.5 / n)
+    assert abs(clean.limit_ev - 2.0) <= max(clean.spread_ev, 0.05) + 1e-9
+
+
+@pytest.mark.parametrize("series", [[3.0, 2.6, 2.45, 2.42], [4.0, 3.5, 3.3, 3.25, 3.24]])
+def test_a_series_whose_steps_collapse_is_not_called_short(series):
+    # the steps shrink four- to five-fold per oligomer: their geometric continuation adds < 0.025 eV
+    fit = extrapolate(np.arange(1, len(series) + 1), series)
+    assert "continued geometrically the steps go" not in fit.reason
