@@ -6,15 +6,19 @@ is mapped by a linear model fitted on published measurements of reference
 molecules computed with *exactly* the candidates' protocol (same conformer route,
 engine, method; polymers as oligomers extrapolated to the chain limit):
 
-* ``ip``/``ea``: gas-phase vertical IP/EA ← ΔSCF IP/EA (optionally + the orbital
-  energy); the feature set is chosen by leave-one-out (LOO) MAE;
+* ``ip``/``ea``: gas-phase IP/EA ← vertical ΔSCF IP/EA (optionally + the orbital
+  energy); the feature set is chosen by leave-one-out (LOO) MAE. The reference values are mostly adiabatic
+  (``kind`` in ``ip_gas.csv``/``ea_gas.csv``), so the calibrated values are too; each molecule's relaxation
+  energy (about 0.05–0.3 eV, from memory) is left in the scatter;
 * ``gap_opt``/``gap_opt_film``: one joint optical-gap model for molecules and
   polymers, gas/solution and film (:mod:`screen.calibration.optical`): orbital gap
   plus a singlet–triplet descriptor (HOMO→LUMO exchange K), a film red shift δ and an
   absorption-maximum offset; features chosen by leave-one-family-out MAE;
 * ``homo_film``/``lumo_film``: film levels (:mod:`screen.calibration.film`) from the
-  ΔSCF IP/EA in a dielectric continuum (ε = 3.5) with one linear calibration on
-  top, or the gas model plus a constant, whichever cross-validates better; the
+  ΔSCF IP/EA in a dielectric continuum (ε = 3.5; an equilibrium solvation model, whereas a vertical
+  ionisation sees mainly the electronic response, ε∞ ≈ n² ≈ 3: the Born factor 1 − 1/ε is 0.71 instead of 0.67,
+  about 0.1 eV of a 1.4 eV polarisation energy, which the linear calibration's slope absorbs) with one linear
+  calibration on top, or the gas model plus a constant, whichever cross-validates better; the
   feature sets offered include a polymer indicator (a real polymer film ionises
   harder than its ideal, fully conjugated chain limit), kept only where it wins
   the cross-validation (today: the film HOMO).

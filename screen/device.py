@@ -124,7 +124,8 @@ MODELS = ("fitted", "scharber")
 ABSORBERS = ("donor", "both")
 #: parameters of the published model, Scharber et al. (2006): EQE, FF [-], loss [V], offsets [eV]
 SCHARBER_PARAMETERS = {"eqe": 0.65, "ff": 0.65, "loss_v": 0.3, "min_delta_lumo_ev": 0.3, "min_delta_homo_ev": 0.3}
-#: smallest offsets of the fitted model: type II is enough, the yield falls smoothly to 0 at 0 offset [eV]
+#: smallest offsets of the fitted model: type II is enough, the yield 1 − exp(−Δ/Δ0) does the rest (with the
+#: shipped fit, Δ0 = 0.01 eV, in effect a step at zero offset) [eV]
 FITTED_MIN_OFFSET_EV = 0.0
 # --------------------------------------------------------------------------- #
 # Device model
@@ -141,7 +142,8 @@ class DeviceModel:
     ----------
     model : {'fitted', 'scharber'}, default 'fitted'
         'fitted': Voc = (E_CT − ΔE_loss)/q with the loss per acceptor class, an
-        EQE that falls smoothly as an offset approaches 0, and the fill factor
+        EQE times a yield 1 − exp(−Δ/Δ0) of each offset (the shipped Δ0, 0.01 eV,
+        makes it in effect a step at zero offset), and the fill factor
         fitted on published devices (``models/device/fitted.json``).
         'scharber': the published donor-only design rule (parameters of [1]_).
     absorber : {'both', 'donor'}, default 'both'

@@ -919,10 +919,27 @@ def _say_assumptions(levels: pd.DataFrame, levels_path: Path, partner: Partner, 
         print(f"dascreen rank: partner file {partner.spec} gives no σ: its levels are taken as exact (the built-in "
               "partners carry ±0.1–0.3 eV); add homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev to include it",
               file=sys.stderr)
+    if model.model == "scharber" and not partner.notes.startswith("NOT a measured material"):
+        print(f"dascreen rank: device.model=scharber against {partner.id}: the published rule's 0.3 V loss goes "
+              "with its reference acceptor's LUMO at -4.3 eV, about 0.4 eV deeper than the film/CV scale of real "
+              f"partners, so its Voc runs high ({_scharber_bias()} on average over the project's published "
+              "devices, models/device/fitted.json); compare candidates with it, do not read its Voc as a device's",
+              file=sys.stderr)
     if (partner.kind == "library" and partner.notes.startswith("NOT a measured material")
             and model.model != "scharber"):  # reproducing the published model with its own reference is fine
         print(f"dascreen rank: partner {partner.id}: {'; '.join(partner.notes.split('; ')[:2]).rstrip('.')}",
               file=sys.stderr)  # the published model's reference level, on its own convention
+
+
+def _scharber_bias() -> str:
+    """The published rule's mean signed Voc error on the device set, as text (grouped CV, ``fitted.json``)."""
+    from screen.devicepars import FITTED_PATH
+    from screen.io import read_json
+
+    try:
+        return f"{float(read_json(FITTED_PATH)['cv']['scharber']['voc_bias_v']):+.2f} V"
+    except (OSError, ValueError, KeyError, TypeError):
+        return "by about 0.2 V"
 
 
 def _refresh_matrices(out_dir: Path, folder: str) -> None:

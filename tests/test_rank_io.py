@@ -252,3 +252,22 @@ def test_shortlist_records_say_what_the_ranking_was_made_with(tmp_path):
     mols = list(Chem.SDMolSupplier(str(path.parent / "shortlist.sdf"), removeHs=False))
     assert mols and all(m.GetProp("target_pce_pct") == "7.5" and m.GetProp("device_model") == "scharber"
                         and m.GetProp("absorber") == "donor" and m.HasProp("p_aligned") for m in mols)
+
+
+def test_the_published_rule_against_a_real_partner_says_its_voc_runs_high(tmp_path, capsys):
+    # the published rule's 0.3 V loss goes with its reference acceptor's LUMO at -4.3 eV (Scharber et al. 2006); the
+    # figure quoted on stderr is the rule's mean signed Voc error on the project's device set (fitted.json, grouped CV)
+    levels = _levels_file(tmp_path / "levels.csv", ["syn-a", "syn-b", "syn-c"])
+    run_rank(levels, REF, tmp_path / "out", PUBLISHED_CFG, report=False)
+    assert "runs high" not in capsys.readouterr().err  # with its own reference acceptor: nothing to say
+    run_rank(levels, "c60", tmp_path / "out", PUBLISHED_CFG, report=False)
+    err = capsys.readouterr().err
+    assert "device.model=scharber against c60" in err and "runs high (+0.24 V" in err
+    from screen.io import read_json
+    from screen.devicepars import FITTED_PATH
+
+    bias = read_json(FITTED_PATH)["cv"]["scharber"]["voc_bias_v"]
+    assert f"+{bias:.2f} V" in err
+    from screen.report.header import MODEL_TEXT
+
+    assert f"(+{bias:.2f} V on average" in MODEL_TEXT["scharber"] and f"(+{bias:.2f} V" in MODEL_TEXT["scharber-both"]

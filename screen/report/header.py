@@ -297,20 +297,23 @@ MODEL_TEXT = {
                '\u0394E<sub>loss</sub>)/q with E<sub>CT</sub> the smaller of the interface gap '
                '(LUMO<sub>acc</sub> \u2212 HOMO<sub>don</sub>) and the smaller optical gap; '
                '\u0394E<sub>loss</sub> (per acceptor class where the cross-validation keeps one), an EQE '
-               'whose charge-generation yield falls as an offset approaches zero (over the offset scale '
-               '\u0394<sub>0</sub> below) and a fill factor per acceptor class, all fitted on published '
+               'times a charge-generation yield 1 \u2212 exp(\u2212\u0394/\u0394<sub>0</sub>) of each offset '
+               '(\u0394<sub>0</sub> below; fitted at the smallest value tried, so in effect a step at zero offset: '
+               'the devices show no loss of current at small offsets) and a fill factor per acceptor class, all fitted on published '
                'devices; V<sub>oc</sub> '
                'never above the gap and '
                'PCE never above the detailed-balance limit.'),
     "scharber": ('Published Scharber rule (reference model): V<sub>oc</sub> = (LUMO<sub>acc</sub> \u2212 '
                  'HOMO<sub>don</sub>)/e \u2212 loss; J<sub>sc</sub> = EQE \u00b7 q \u00b7 photon flux above '
-                 'the gap; PCE = V<sub>oc</sub>J<sub>sc</sub>FF/P<sub>in</sub>.'),
+                 'the gap; PCE = V<sub>oc</sub>J<sub>sc</sub>FF/P<sub>in</sub>.'
+                 ' Its 0.3 V loss goes with the reference acceptor\u2019s LUMO at \u22124.3 eV, a convention \u22480.4 eV deeper than the film/CV levels of real partners, so against them its V<sub>oc</sub> runs high (+0.24 V on average over the project\u2019s published devices).'),
     # the Voc rule with photons above the smaller gap of the pair: not what the paper did
     "scharber-both": ('Scharber V<sub>oc</sub> rule with both materials absorbing (not the published model, which counts '
                       'the donor\u2019s absorption only: add <code>--set device.absorber=donor</code> for it): '
                       'V<sub>oc</sub> = (LUMO<sub>acc</sub> \u2212 HOMO<sub>don</sub>)/e \u2212 loss; J<sub>sc</sub> = '
                       'EQE \u00b7 q \u00b7 photon flux above the smaller optical gap; '
-                      'PCE = V<sub>oc</sub>J<sub>sc</sub>FF/P<sub>in</sub>.'),
+                      'PCE = V<sub>oc</sub>J<sub>sc</sub>FF/P<sub>in</sub>.'
+                      ' Its 0.3 V loss goes with the reference acceptor\u2019s LUMO at \u22124.3 eV, a convention \u22480.4 eV deeper than the film/CV levels of real partners, so against them its V<sub>oc</sub> runs high (+0.24 V on average over the project\u2019s published devices).'),
 }
 #: what the absorber setting means, as shown on the device card
 ABSORBER_TEXT = {

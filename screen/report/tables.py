@@ -38,7 +38,9 @@ _LEVEL_HEADERS = [
     ('V<sub>oc</sub> <span class="unit">[V]</span>', "num", "descending", "voc_v"),
     ('J<sub>sc</sub> <span class="unit">[mA&#8239;cm<sup>\u22122</sup>]</span>', "num", "descending",
      "jsc_ma_cm2"),
-    ('PCE <span class="unit">[%]</span>', "num", "descending", "pce_pct"),
+    ('<span title="estimate at the central levels \u00b1 the spread of the Monte-Carlo samples that stay viable; '
+     'how likely the pair stays viable is P(aligned)">PCE</span> <span class="unit">[%]</span>', "num", "descending",
+     "pce_pct"),
 ]
 
 
