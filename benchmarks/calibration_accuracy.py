@@ -13,6 +13,8 @@ Reads the shipped models of the default protocol (or ``--models``), their stored
 * the family hold-out table of the film models;
 * the mean signed LOO error (predicted − measured) of each family with ≥ 3 rows in the film models: a bias
   that one shared term (``polymer``, ``cage``) leaves between families;
+* the film HOMO/LUMO LOO MAE by how the reference level was measured (CV with its ferrocene level recorded,
+  CV/other without one, photoemission): where the error comes from;
 * the film red shift δ of the optical-gap model with its standard error and the sensible range;
 * the film LOO MAE refitted with polymers represented by their monomer, dimer, … instead of the chain
   limit (the reason the chain-limit feature exists);
@@ -126,6 +128,31 @@ def family_bias(model: dict) -> dict[str, tuple[float, int]]:
     return {fam: (round(sum(v) / len(v), 6), len(v)) for fam, v in out.items()}
 
 
+def method_of(row: pd.Series) -> str:
+    """How a film reference row was measured, for the error split: photoemission, CV with its ferrocene level
+    recorded, or CV/other with no ferrocene level recorded.
+
+    >>> method_of(pd.Series({"method": "UPS (film)", "fc_reference_ev": float("nan")}))
+    'photoemission (UPS/IPES)'
+    >>> method_of(pd.Series({"method": "CV (film, onset)", "fc_reference_ev": -4.8}))
+    'CV, ferrocene level recorded'
+    """
+    text = str(row.get("method", "")).lower()
+    if any(k in text for k in ("ups", "ipes", "photoem", "photoelectron", "pesa")):
+        return "photoemission (UPS/IPES)"
+    return "CV, ferrocene level recorded" if pd.notna(row.get("fc_reference_ev")) else "CV/other, no ferrocene level"
+
+
+def error_by_method(model: dict, film: pd.DataFrame) -> dict[str, tuple[float, int]]:
+    """LOO MAE [eV] and row count of a film model's residuals by :func:`method_of` of their reference rows."""
+    kinds = {name: method_of(row) for name, row in film.iterrows()}
+    out: dict[str, list[float]] = {}
+    for row in model.get("residuals", []):
+        if row["name"] in kinds:
+            out.setdefault(kinds[row["name"]], []).append(abs(row["loo_ev"] - row["measured_ev"]))
+    return {k: (round(sum(v) / len(v), 3), len(v)) for k, v in sorted(out.items())}
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--models", default=None, help="model folder (default: the shipped default-protocol one)")
@@ -153,6 +180,14 @@ def main() -> None:
         for fam, (bias, n) in sorted(family_bias(models[name]).items()):
             if n >= 3:
                 print(f"  {name:13s} {fam:32s} {bias:+.3f} ({n})")
+    film = pd.read_csv(REPO / "models" / "reference" / "levels_film.csv").set_index("name")
+    print("\nfilm LOO MAE [eV] by how the reference level was measured (n):")
+    for name in ("homo_film", "lumo_film"):
+        cells = ", ".join(f"{k} {mae:.3f} ({n})" for k, (mae, n) in error_by_method(models[name], film).items())
+        print(f"  {name:13s} {cells}")
+        for k, (mae, _) in error_by_method(models[name], film).items():
+            if k.startswith("CV, "):
+                summary[f"{name}_loo_cv_fc_recorded"] = mae
     g = models["gap_opt_film"]
     free, red, lo, hi = (g.get("red_shift_free_ev", g["red_shift_ev"]), g["red_shift_ev"], *g["red_shift_range_ev"])
     how = (f"fitted freely, inside the accepted {lo}–{hi} eV" if abs(free - red) < 1e-9 else
