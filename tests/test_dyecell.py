@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 import re
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -125,6 +126,18 @@ def test_library_and_user_files(tmp_path):
     ("CC(=O)CC(=O)c1ccc(N(C)C)cc1", ["β-diketone (acac)"]),
     ("CC(=O)C(C)C(=O)c1ccccc1", ["β-diketone (acac)"]),
     ("CC(O)=CC(=O)c1ccc(N(C)C)cc1", ["β-diketone (acac)"]),                    # enol form
+    # chemist's audit: the acid-bearing ring of D149 and D205 is a 2-ylidene thiazolidin-4-one with N-CH2COOH
+    # (SMILES and anchor name as in models/reference/dyes.csv; Ito et al., Adv. Mater. 18 (2006) 1202  # from memory)
+    ("CCN1C(=O)C(=C2SC(=Cc3ccc4c(c3)C3CCCC3N4c3ccc(C=C(c4ccccc4)c4ccccc4)cc3)C(=O)N2CC(=O)O)SC1=S",
+     ["rhodanine-3-acetic acid"]),                                                  # D149
+    ("CCCCCCCCN1C(=O)C(=C2SC(=Cc3ccc4c(c3)C3CCCC3N4c3ccc(C=C(c4ccccc4)c4ccccc4)cc3)C(=O)N2CC(=O)O)SC1=S",
+     ["rhodanine-3-acetic acid"]),                                                  # D205
+    ("OC(=O)CCN1C(=O)C(=Cc2ccccc2)SC1=S", ["carboxylic acid"]),              # rhodanine-3-propanoic: plain acid
+    ("CCOP(=O)(O)c1ccccc1", ["phosphonic acid"]),                             # phosphonic mono-ester, P-C bond
+    ("O=P(O)(c1ccccc1)c1ccccc1", ["phosphinic acid"]),                        # R2P(=O)OH
+    ("Oc1cc2ccccc2cc1O", ["catechol"]),                                       # 2,3-dihydroxynaphthalene: six-ring
+    ("c1cc(-c2ccncc2)ccn1", ["pyridine"]),                                    # 4,4'-bipyridine: terminal 4-pyridyls
+    ("N#CC(C#N)=Cc1ccc(-c2ccncc2)s1", ["pyridine"]),                          # 4-pyridyl end group (Ooyama 2011)
 ])
 def test_anchor_positive(smiles, expected):
     assert find_anchors(smiles) == expected
@@ -154,6 +167,16 @@ def test_anchor_positive(smiles, expected):
     "CC(=O)c1ccccc1",                             # a single ketone
     "COc1cccc2cccnc12",                           # 8-methoxyquinoline
     "CN1C(=CC2=C([O-])C(=CC3=[N+](C)c4ccccc4C3(C)C)C2=O)C(C)(C)c2ccccc21",  # squaraine core: no acac
+    # chemist's audit of the SMARTS
+    "CCOP(=O)(O)OCC",                             # phosphate diester: no P-C bond, not a phosphonic acid
+    "COP(=O)(O)O",                                # phosphate monoester: no P-C bond
+    "O=c1c(O)c(O)c1=O",                           # squaric acid: its four-ring is aromatic to RDKit, no catechol
+    "c1ccc(-c2ccccn2)cc1",                        # 2-phenylpyridine: a 2-pyridyl is no terminal anchor
+    "c1ccc(-c2ccccn2)nc1",                        # 2,2'-bipyridine: a chelating ligand
+    "Cc1cc(-c2ccccc2)ccn1",                       # 4-aryl-2-methylpyridine: not a plain terminal pyridyl
+    "c1ccc(-c2ccc(-c3ccccc3)nc2)cc1",             # 2,5-diarylpyridine: a pyridine inside the π-bridge
+    "CCN1C(=O)C(=Cc2ccccc2)SC1=S",                # N-ethyl rhodanine: no acid
+    "CCOC(=O)CN1C(=O)C(=Cc2ccccc2)SC1=S",         # rhodanine-3-acetic ester
 ])
 def test_anchor_negative(smiles):
     assert find_anchors(smiles) == []
@@ -655,3 +678,212 @@ def test_viability_within_part_of_the_level_uncertainty_gets_an_info_flag():
     assert "viability_uncertain" in INFO_FLAGS and FLAGS["viability_uncertain"].severity == "info"
     assert describe("viability_uncertain") == ("P(viable) between 0.25 and 0.75: the driving forces clear their "
                                                "thresholds in only part of the level uncertainty")
+
+
+# --------------------------------------------------------------------------- dye-cell chemist's audit (this round)
+
+def test_a_transparent_molecule_absorbs_no_sunlight_and_is_not_viable():
+    from screen.dyecell.model import JSC_MIN_MA_CM2, sunlight_edge_ev
+
+    # ASTM G173-03 AM1.5G starts at 280 nm; hc = 1239.84 eV nm (CODATA): the edge is 1239.84/280 = 4.428 eV
+    assert sunlight_edge_ev() == pytest.approx(1239.84 / 280, abs=1e-3)
+    tio2, cobalt = resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3")
+    # acetic acid as the computing route gave it: E(S+/S) 1.85 V vs NHE, E0-0 4.91 eV (audit); before, it passed
+    # with PCE 0 and detailed_balance_cap
+    out = evaluate(DyeCellModel(), [1.85, 1.85], [4.91, 4.40], tio2, cobalt)
+    assert out["viable"].tolist() == [False, False]
+    assert out["flags"].tolist() == ["no_sunlight", "no_sunlight"]      # no second "no photovoltage" reason
+    assert all(math.isnan(out[k][i]) for k in ("voc_v", "jsc_ma_cm2", "pce_pct") for i in (0, 1))
+    assert out["viability"][0] == ("not viable: absorbs no sunlight (E\u2080\u208b\u2080 4.91 eV is above 4.43 eV = "
+                                   "hc/280 nm, where the AM1.5G spectrum ends), so there is no photocurrent")
+    # just below the edge the photon flux is a trace (Jsc ~1e-21 mA cm-2), written 0 in ranking.csv: the same
+    assert "absorbs no sunlight (E\u2080\u208b\u2080 4.40 eV is above all but a trace" in out["viability"][1]
+    assert JSC_MIN_MA_CM2 == 5e-5                                     # half the last digit ranking.csv writes
+    # a UV-absorbing but real absorber (E0-0 3.9 eV: Jsc > 0.0001 mA cm-2) stays viable
+    assert evaluate(DyeCellModel(), 1.85, 3.9, tio2, cobalt)["viable"][0]
+    # the sampler applies the same rule: no sample of a transparent molecule works
+    mc = sample_pce(DyeCellModel(), [1.85, 1.85], [4.91, 4.6], tio2, cobalt, e00_sigma_ev=0.0, n_samples=50)
+    assert mc["p_viable"].tolist() == [0.0, 0.0] and mc["pce_mean_pct"].tolist() == [0.0, 0.0]
+    # a ranked dye table (a computed row) gets the flag and no PCE
+    dyes = dyes_from_file(pd.DataFrame({"id": ["acetic"], "e_ox_v_nhe": [1.85], "e00_ev": [3.0],
+                                        "smiles": ["CC(=O)O"]}))
+    dyes.loc[0, "e00_ev"] = 4.91  # as the calibration gave it (a user file is refused above 4.0 eV)
+    r = rank_dyes(dyes, tio2, cobalt)
+    assert not r.loc[0, "passes"] and r.loc[0, "flags"] == "no_sunlight" and math.isnan(r.loc[0, "pce_pct"])
+
+
+def test_no_photovoltage_is_judged_on_the_capped_voc(monkeypatch):
+    import screen.dyecell.model as dm
+
+    # a detailed-balance Voc of 0 V for E0-0 = 2.0 eV (patched) leaves no photovoltage although E_redox − E_CB −
+    # loss = 0.56 + 0.50 − 0.20 = 0.86 V: the capped Voc decides
+    real = dm.sq_limit
+
+    def capped_to_zero(gap, *args, **kwargs):
+        out = real(gap, *args, **kwargs)
+        out["voc_v"] = np.where(np.isclose(np.asarray(gap, float), 2.0), 0.0, out["voc_v"])
+        return out
+
+    monkeypatch.setattr(dm, "sq_limit", capped_to_zero)
+    out = dm.evaluate(DyeCellModel(), [1.1, 1.1], [2.0, 2.1], resolve_oxide("tio2-anatase"),
+                      resolve_mediator("co-bpy3"))
+    assert out["viable"].tolist() == [False, True]
+    assert out["flags"][0] == "voc_nonpositive"
+    assert "the detailed-balance Voc of E\u2080\u208b\u2080 = +2.00 eV is +0.000 V" in out["viability"][0]
+
+
+def test_pce_sigma_is_the_spread_of_the_samples_that_stay_viable():
+    # co-bpy3 +0.56 V, threshold 0.2 eV (common practice): E(S+/S) 0.76 V sits on the threshold, so with σ 0.1 V
+    # about half the samples regenerate. Only E0-0 sets Jsc and the PCE (the Voc is the mediator's), and E0-0 has
+    # no σ here, so every viable sample has the same PCE: the spread if the dye works is 0
+    tio2, cobalt = resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3")
+    det = evaluate(DyeCellModel(), 0.80, 2.0, tio2, cobalt)
+    mc = sample_pce(DyeCellModel(), 0.76, 2.0, tio2, cobalt, e_ox_sigma_v=0.1, n_samples=4000, target_pct=1.0)
+    assert mc["p_viable"][0] == pytest.approx(0.5, abs=0.05)
+    assert mc["pce_sigma_pct"][0] == pytest.approx(0.0, abs=1e-9)                 # before: ~PCE/2 (0 % or PCE)
+    assert mc["pce_mean_pct"][0] == pytest.approx(mc["p_viable"][0] * det["pce_pct"][0], rel=1e-4)
+    assert mc["p_above_target"][0] == pytest.approx(mc["p_viable"][0])            # failed samples: not above
+    # with an E0-0 σ the spread is that of the viable samples' PCE, the same as for a dye far from the threshold
+    # (common random numbers: the same E0-0 deviates)
+    near = sample_pce(DyeCellModel(), 0.76, 2.0, tio2, cobalt, e_ox_sigma_v=0.05, e00_sigma_ev=0.1, n_samples=4000)
+    far = sample_pce(DyeCellModel(), 1.00, 2.0, tio2, cobalt, e_ox_sigma_v=0.05, e00_sigma_ev=0.1, n_samples=4000)
+    assert far["p_viable"][0] > 0.99 and near["p_viable"][0] < 0.6
+    assert near["pce_sigma_pct"][0] == pytest.approx(far["pce_sigma_pct"][0], rel=0.15)
+    # no or one viable sample: 0 (as the donor/acceptor sampler); a missing input: NaN
+    none = sample_pce(DyeCellModel(), 0.30, 2.0, tio2, cobalt, e_ox_sigma_v=0.01, n_samples=100)
+    assert none["p_viable"][0] == 0.0 and none["pce_sigma_pct"][0] == 0.0
+    assert math.isnan(sample_pce(DyeCellModel(), math.nan, 2.0, tio2, cobalt)["pce_sigma_pct"][0])
+
+
+def test_copper_phenanthroline_carries_the_copper_regeneration_threshold():
+    # Saygili et al., ACS Appl. Energy Mater. (2018), doi 10.1021/acsaem.8b00957 (abstract read): [Cu(dmp)2] with
+    # the copper bipyridyl couples; four-coordinate Cu(I), λ 0.31-0.34 eV, regenerates dyes down to ~0.1 eV
+    for couple in ("cu-dmp2", "cu-tmby2", "cu-dmby2"):
+        assert DyeCellModel().reg_threshold_ev(resolve_mediator(couple)) == 0.1
+    # a dye 0.15 eV above [Cu(dmp)2] (+0.93 V vs NHE, mediators.csv, from memory) is regenerated
+    assert evaluate(DyeCellModel(), 1.08, 2.0, resolve_oxide("tio2-anatase"), resolve_mediator("cu-dmp2"))["viable"][0]
+
+
+def test_p_type_reasons_use_the_diagrams_above_and_below():
+    # in this tool "above" is more negative (higher electron energy), as in the energy diagram and the n-type text
+    nio, iodide = resolve_oxide("nio"), resolve_mediator("iodide-triiodide")
+    # E(S*/S-) ≈ E(S+/S) = 0.40 V is more negative than the NiO valence band (+0.50 V, library): above it
+    inj = evaluate(DyeCellModel(), 0.40, 2.0, nio, iodide)["viability"][0]
+    assert "E(S\u207a/S) = +0.40 V vs NHE lies above (more negative than) the valence-band edge of nio" in inj
+    assert "below (more negative" not in inj
+    # E(S/S-) ≈ 1.50 − 1.00 = +0.50 V is more positive than iodide/triiodide (+0.35 V): below it
+    reg = evaluate(DyeCellModel(), 1.50, 1.00, nio, iodide)["viability"][0]
+    assert "= +0.50 V vs NHE lies below (more positive than) the mediator iodide-triiodide" in reg
+    assert "above (more positive" not in reg
+    # n-type wording unchanged
+    n = evaluate(DyeCellModel(), 1.2, 1.5, _oxide(-0.5), _mediator(0.56))["viability"][0]
+    assert "below (more positive than) the conduction-band edge" in n
+
+
+def test_an_oxide_file_without_type_is_taken_as_n_type_and_says_so(tmp_path):
+    f = tmp_path / "ox.csv"
+    f.write_text("id,band_edge_v_nhe\nmy-ox,-0.5\n")
+    ox = resolve_oxide(str(f))
+    assert ox.type == "n" and ox.type_assumed
+    assert ox.as_dict()["type_assumed"] is True
+    why = evaluate(DyeCellModel(), 1.2, 1.5, ox, _mediator(0.56))["viability"][0]
+    assert "the conduction-band edge of my-ox (\u22120.50 V; type n assumed)" in why
+    f.write_text("id,band_edge_v_nhe,type\nmy-ox,-0.5,\n")            # an empty cell is no type either
+    assert resolve_oxide(str(f)).type_assumed
+    f.write_text("id,band_edge_v_nhe,type\nmy-ox,-0.5,n\n")
+    ox = resolve_oxide(str(f))
+    assert not ox.type_assumed
+    assert "assumed" not in evaluate(DyeCellModel(), 1.2, 1.5, ox, _mediator(0.56))["viability"][0]
+    assert not resolve_oxide("tio2-anatase").type_assumed
+
+
+@pytest.mark.parametrize("cell", ["none", "No", "FALSE", "0", "-"])
+def test_anchor_column_words_for_no_anchor(cell):
+    t = dyes_from_file(pd.DataFrame({"id": ["a"], "e_ox_v_nhe": [1.07], "e00_ev": [1.96], "anchor": [cell]}))
+    assert not t.loc[0, "anchored"] and t.loc[0, "anchor_known"] and t.loc[0, "anchors"] == ""
+
+
+def test_anchor_column_takes_a_closed_vocabulary(capsys):
+    t = dyes_from_file(pd.DataFrame({"id": ["a", "b", "c"], "e_ox_v_nhe": [1.07] * 3, "e00_ev": [1.96] * 3,
+                                     "anchor": ["Cyanoacrylic acid", "carboxylic acid; pyridine", ""]}))
+    assert t["anchored"].tolist() == [True, True, False] and t["anchor_known"].tolist() == [True, True, False]
+    assert t.loc[1, "anchors"] == "carboxylic acid; pyridine"
+    for bad in ("no anchor", "yes", "COOH"):
+        with pytest.raises(InputError) as err:
+            dyes_from_file(pd.DataFrame({"id": ["a", "b"], "e_ox_v_nhe": [1.07] * 2, "e00_ev": [1.96] * 2,
+                                         "anchor": ["none", bad]}), "mine.csv")
+        msg = str(err.value)
+        assert msg.startswith(f"mine.csv: line 3 (id 'b'), column anchor = {bad!r}: not an anchoring group")
+        assert "allowed: cyanoacrylic acid, rhodanine-3-acetic acid" in msg and "none/no/false/0/-" in msg
+
+
+def test_anchor_column_and_smiles_disagree_the_smiles_wins_and_says_so(capsys):
+    t = dyes_from_file(pd.DataFrame({
+        "id": ["acid", "bare", "same"], "e_ox_v_nhe": [1.07] * 3, "e00_ev": [1.96] * 3,
+        "smiles": ["OC(=O)C(C#N)=Cc1ccc(N(C)C)cc1", "N#CC(C#N)=Cc1ccc(N(C)C)cc1", "OC(=O)c1ccccc1"],
+        "anchor": ["none", "carboxylic acid", "carboxylic acid"]}), "mine.csv")
+    assert t["anchored"].tolist() == [True, False, True]                    # the structure decides
+    err = capsys.readouterr().err
+    assert "mine.csv: the anchor column disagrees with the SMILES in 2 row(s)" in err
+    assert "the anchoring groups found in the SMILES are used" in err
+    assert "line 2 (id 'acid'): column anchor says no anchoring group, but the SMILES has cyanoacrylic acid" in err
+    assert "line 3 (id 'bare'): column anchor says carboxylic acid, but the SMILES has no anchoring group" in err
+    assert "'same'" not in err
+
+
+def test_threshold_options_have_the_bounds_of_a_mediator_file():
+    # THRESHOLD_RANGE_EV of screen/dyecell/checks.py: 0-2 eV (above 2 eV no dye of E0-0 <= 4 eV could meet it)
+    for name in ("min_drive_reg_ev", "min_drive_inj_ev"):
+        with pytest.raises(ConfigError, match=f"dyecell.{name} = 5.0 is not allowed: 5 eV is above 2 eV"):
+            DyeCellModel(**{name: 5})
+        with pytest.raises(ConfigError, match=f"dyecell.{name} = -0.1 is not allowed"):
+            DyeCellModel(**{name: -0.1})
+        assert getattr(DyeCellModel(**{name: 2.0}), name) == 2.0
+
+
+@pytest.mark.parametrize("col, value, hint", [
+    ("e00_sigma_ev", 5.0, "an uncertainty must lie in 0-1 eV"),
+    ("e_ox_sigma_v", 100.0, "an uncertainty must lie in 0-1 V .*; 100 looks like millivolts: write 0.1 V"),
+])
+def test_dye_file_refuses_an_impossible_sigma(col, value, hint):
+    # measured potentials carry ~0.01-0.1 V, calibrated ones ~0.1-0.2 V; 1 V spans every dye  # common practice
+    with pytest.raises(InputError, match=f"line 2 \\(id 'd1'\\), column {col} = {value:g}: {hint}"):
+        dyes_from_file(_dyes(**{col: [value]}), "my.csv")
+    assert dyes_from_file(_dyes(**{col: [1.0]})).loc[0, "status"] == "ok"
+
+
+def test_converted_potentials_are_rounded_in_the_outputs(tmp_path):
+    # 0.32 V vs SCE + 0.241 V (Bard and Faulkner 2001) = 0.561 V vs NHE, which binary floating point makes
+    # 0.5609999999999999
+    f = tmp_path / "med.csv"
+    f.write_text("id,e_redox_v,reference\nm,0.32,SCE\n")
+    med = resolve_mediator(str(f))
+    assert med.as_dict()["potential_v_nhe"] == 0.561
+    dyes = dyes_from_file(pd.DataFrame({"id": ["a"], "e_ox_v": [0.84], "e_ox_reference": ["SCE"],
+                                        "e00_ev": [2.0], "smiles": ["OC(=O)c1ccccc1"]}))
+    assert repr(float(dyes.loc[0, "e_ox_v_nhe"])) == "1.081"
+    r = rank_dyes(dyes, resolve_oxide("tio2-anatase"), med)
+    assert repr(float(r.loc[0, "e_redox_v_nhe"])) == "0.561" and repr(float(r.loc[0, "e_ox_v_nhe"])) == "1.081"
+    assert repr(float(r.loc[0, "drive_reg_ev"])) == "0.52"
+
+
+@pytest.mark.parametrize("text, line", [
+    ("id,e_redox_v_nhe\nm,0.5,extra\n", "line 2 has 3 fields but the header has 2"),
+    ("id,e_redox_v_nhe\nm,0,5\n", "line 2 has 3 fields but the header has 2"),             # a decimal comma
+])
+def test_one_row_file_with_a_field_too_many_is_refused_with_its_line(tmp_path, text, line):
+    f = tmp_path / "med.csv"
+    f.write_text(text)
+    with pytest.raises(InputError, match=f"mediator file {re.escape(str(f))}: {line} \\(id, e_redox_v_nhe\\); "
+                                         "an unquoted comma"):
+        resolve_mediator(str(f))
+
+
+def test_reference_dyes_anchor_names_are_found_in_their_smiles():
+    # models/reference/dyes.csv names each dye's anchor; the SMARTS must find it (P1's "benzoic acid" is a
+    # carboxylic acid). D149 and D205 carry the acid on a 2-ylidene thiazolidin-4-one (audit: was "carboxylic acid")
+    ref = pd.read_csv(Path(__file__).resolve().parents[1] / "models" / "reference" / "dyes.csv",
+                      keep_default_na=False)
+    alias = {"benzoic acid": "carboxylic acid"}
+    for _, row in ref.iterrows():
+        assert alias.get(row["anchor"], row["anchor"]) in find_anchors(row["smiles"]), row["name"]

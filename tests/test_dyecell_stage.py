@@ -772,3 +772,119 @@ def test_shortlist_sdf_carries_p_viable(tmp_path):
     assert sorted(m.GetProp("id") for m in mols) == ["close", "sure"]            # the passing dyes
     for m in mols:
         assert float(m.GetProp("p_viable")) == pytest.approx(float(ranking.loc[m.GetProp("id"), "p_viable"]))
+
+
+# --------------------------------------------------------------------------- dye-cell chemist's audit (this round)
+
+def test_report_caution_follows_the_oxide_type_and_warns_that_p_type_pces_are_optimistic(tmp_path):
+    f = _measured(tmp_path, [("PD1", 1.55, 2.30, "OC(=O)c1ccccc1")])
+    p_page = (run_dyecell(f, tmp_path / "p", oxide="nio", mediator="iodide-triiodide",
+                          settings={"n_samples": 100}).parent / "report.html").read_text()
+    caution = p_page[p_page.index('id="caution"'):p_page.index('<div class="counts">')]
+    assert "V<sub>oc</sub> loss below the ideal E<sub>VB</sub> \u2212 E<sub>redox</sub>" in caution
+    assert "E<sub>CB</sub>" not in caution
+    # README (Dye-cell mode, Limits): η and FF are n-type values, measured NiO cells ~0.1-0.2 %  # from memory
+    assert 'id="caution-p-type"' in caution and "PCEs here are optimistic" in caution
+    assert "0.1\u20130.2 %" in caution
+    n_page = (run_dyecell(f, tmp_path / "n", oxide="tio2-anatase", mediator="co-bpy3",
+                          settings={"n_samples": 100}).parent / "report.html").read_text()
+    caution = n_page[n_page.index('id="caution"'):n_page.index('<div class="counts">')]
+    assert "V<sub>oc</sub> loss below the ideal E<sub>redox</sub> \u2212 E<sub>CB</sub>" in caution
+    assert "caution-p-type" not in n_page and "optimistic" not in caution
+
+
+def test_report_shows_p_viable_beside_the_pce_and_sigma_of_the_viable_samples(tmp_path):
+    path = run_dyecell(_uncertain_and_failing(tmp_path), tmp_path / "o", oxide="tio2-anatase", mediator="co-bpy3",
+                       settings={"n_samples": 400})
+    r = pd.read_csv(path, keep_default_na=False).set_index("id")
+    page = (path.parent / "report.html").read_text()
+    p_close = float(r.loc["close", "p_viable"])
+    assert 0.25 < p_close < 0.75
+    # the sure dye has no σ (measured, σ 0) and works in every sample
+    assert ('<span class="pm works">works in 100 % of samples</span>' in page)
+    assert f'<span class="pm works">works in {100 * p_close:.0f} % of samples</span>' in page
+    best = r.index[0]
+    sigma = float(r.loc[best, "pce_sigma_pct"])
+    shown = f"{float(r.loc[best, 'pce_pct']):.1f}" + (f" \u00b1 {sigma:.1f}" if sigma > 0 else "")
+    assert (f"Best estimate: <strong>{best}</strong> at {shown} % PCE \u00b7 works in "
+            f"{100 * float(r.loc[best, 'p_viable']):.0f} % of samples.") in page
+    assert "PCE \u00b1 1\u03c3 of the Monte-Carlo samples that stay viable" in page
+    # E0-0 has σ 0.1 eV for 'close': its PCE spread is that of its viable samples, not widened by the failed ones
+    # (before: the failed samples counted as 0 % gave σ ≈ PCE/2)
+    assert float(r.loc["close", "pce_sigma_pct"]) < 0.35 * float(r.loc["close", "pce_pct"])
+
+
+def test_an_oxide_file_without_type_is_named_on_stderr_and_in_the_report(tmp_path, capsys):
+    ox = tmp_path / "my oxide.csv"
+    ox.write_text("id,band_edge_v_nhe\nmy-ox,-0.5\n")
+    # C: E(S+/S*) = 1.40 − 1.70 = −0.30 V lies below (more positive than) the −0.50 V edge: a reason naming it
+    f = _measured(tmp_path, [("A", 1.20, 2.0, "OC(=O)c1ccccc1"), ("C", 1.40, 1.70, "OC(=O)c1ccccc1")])
+    path = run_dyecell(f, tmp_path / "o", oxide=str(ox), mediator="co-bpy3", settings={"n_samples": 100})
+    err = capsys.readouterr().err
+    assert "oxide my-ox has no type (column type missing or empty): taken as n-type" in err
+    assert "add a column type with n or p" in err
+    r = pd.read_csv(path, keep_default_na=False).set_index("id")
+    assert "the conduction-band edge of my-ox (\u22120.50 V; type n assumed)" in r.loc["C", "viability"]
+    page = (path.parent / "report.html").read_text()
+    assert "assumed: the oxide file has no type column" in page
+    meta = json.loads((path.parent / "ranking.meta.json").read_text())
+    assert meta["oxide"]["type_assumed"] is True
+    ox.write_text("id,band_edge_v_nhe,type\nmy-ox,-0.5,n\n")
+    run_dyecell(f, tmp_path / "o2", oxide=str(ox), mediator="co-bpy3", settings={"n_samples": 100})
+    assert "has no type" not in capsys.readouterr().err
+
+
+def test_cli_levels_that_is_a_directory_is_named_as_such(tmp_path, capsys):
+    from screen.cli import main
+
+    folder = tmp_path / "run"
+    (folder / "dyecell").mkdir(parents=True)
+    (folder / "dyecell" / "levels_raw.csv").write_text("id\n")
+    assert main(["dyecell", "--levels", str(folder), "--out", str(tmp_path / "o")]) == 2
+    err = capsys.readouterr().err
+    assert f"--levels '{folder}' is a directory, not a file (it holds {folder}/dyecell/levels_raw.csv)" in err
+    assert "does not exist" not in err and "Traceback" not in err
+
+
+@pytest.mark.parametrize("setting", ["dyecell.min_drive_reg_ev=5", "dyecell.min_drive_inj_ev=2.5"])
+def test_cli_refuses_a_threshold_option_no_dye_could_meet(tmp_path, capsys, setting):
+    from screen.cli import main
+
+    f = tmp_path / "measured.csv"
+    f.write_text("id,e_ox_v_nhe,e00_ev\nD1,1.1,2.1\n")
+    # THRESHOLD_RANGE_EV (screen/dyecell/checks.py): 0-2 eV, as for a mediator file's min_drive_reg_ev
+    assert main(["dyecell", "--levels", str(f), "--out", str(tmp_path / "o"), "--set", setting]) == 2
+    err = capsys.readouterr().err
+    assert "greater than the maximum of 2" in err and "Traceback" not in err
+    assert not (tmp_path / "o" / "dyecell").exists()
+
+
+@pytest.mark.parametrize("text, expected", [
+    ("id,e_ox_v_nhe,e00_ev\nD1,1.1,2.1,OC(=O)c1ccccc1\nD2,1.0,2.0\n",
+     "line 2 has 4 fields but the header has 3 (id, e_ox_v_nhe, e00_ev)"),             # first row: pandas shifted
+    ("id,e_ox_v_nhe,e00_ev\nD1,1.1,2.1\nD2,1,0,2.0\nD3,1,1,2,0\n",
+     "2 lines (3, 4) have more fields than the header's 3"),                            # decimal commas
+])
+def test_cli_refuses_a_dye_file_row_with_a_field_too_many(tmp_path, capsys, text, expected):
+    from screen.cli import main
+
+    f = tmp_path / "dyes.csv"
+    f.write_text(text)
+    assert main(["dyecell", "--levels", str(f), "--out", str(tmp_path / "o")]) == 2
+    err = capsys.readouterr().err
+    assert f"dye-cell input {f}: {expected}" in err and "unquoted comma" in err and "Traceback" not in err
+
+
+def test_cached_dye_table_is_rebuilt_when_the_anchor_rules_change(tmp_path, monkeypatch):
+    import screen.dyecell.stage as st
+
+    f = _measured(tmp_path, [("A", 1.20, 2.0, "OC(=O)c1ccccc1")])
+    run_dyecell(f, tmp_path / "o", settings={"n_samples": 100})
+    side = json.loads((tmp_path / "o" / "dyecell" / "dyes.csv.meta.json").read_text())
+    assert side["table_rules"] == st.table_rules_hash()
+    monkeypatch.setattr(st, "_TABLE_RULES", "test-changed")
+    calls = []
+    real = st.dyes_from_file
+    monkeypatch.setattr(st, "dyes_from_file", lambda *a, **k: calls.append(1) or real(*a, **k))
+    run_dyecell(f, tmp_path / "o", settings={"n_samples": 100})
+    assert calls == [1]

@@ -8,10 +8,14 @@ and NiO in the dye-cell literature [1]_, [2]_ (the acids also as their anions):
 name                       pattern (most specific first)
 =========================  ============================================================
 cyanoacrylic acid          C=C(C#N)–COOH (the usual acceptor/anchor of D–π–A dyes)
-rhodanine-3-acetic acid    2-thioxothiazolidin-4-one with an N–CH₂–COOH arm
+rhodanine-3-acetic acid    5-ylidene thiazolidin-4-one with an N–CH₂–COOH arm and, at C2,
+                           a thioxo group (rhodanine, as in D102) or an exocyclic C=C (the
+                           2-ylidene ring that carries the acid in D149 and D205)
 salicylate                 COOH ortho to a phenolic OH on an aromatic ring
 hydroxamic acid            C–C(=O)–N–OH (not an N-hydroxyimide)
-phosphonic acid            P(=O)(OH)₂ (mono-esters: one OH, still counted)
+phosphonic acid            C–P(=O)(OH)₂ with its P–C bond (mono-esters: one OH, still
+                           counted); phosphate esters (no P–C bond) are not anchors here
+phosphinic acid            C₂P(=O)OH: two P–C bonds, one acidic OH
 tetrazole                  5-substituted 1H- or 2H-tetrazole with its N–H (or anion): the acidic
                            isostere of a carboxylic acid; 1- or 2-alkylated tetrazoles do not count
 8-hydroxyquinoline         chelating N,O anchor (the one fused pyridine that counts)
@@ -21,18 +25,24 @@ tetrazole                  5-substituted 1H- or 2H-tetrazole with its N–H (or 
 sulfonic acid              C–S(=O)₂–OH (not a sulfate half-ester)
 boronic acid               B(OH)₂
 silanol / alkoxysilane     Si–OH or Si(OR)₃
-catechol                   two OH on neighbouring aromatic carbons
+catechol                   two OH on neighbouring carbons of a six-membered aromatic ring
+                           (squaric acid's four-ring, aromatic to RDKit, is not a catechol)
 carboxylic acid            any other C–C(=O)OH (not a carbonate or carbamate half-ester)
-pyridine                   the N of a pyridine ring (one N, five C, not fused) with at least one
-                           free ortho C–H (4-pyridyl binds to Lewis-acid sites of TiO₂ [3]_);
-                           diazines, triazines, quinoxalines, quinolines and 2,6-disubstituted
-                           pyridines are π-spacers or acceptors, not anchors
+pyridine                   a terminal pyridyl: a pyridine ring (one N, five C, not fused) bonded
+                           to the rest of the dye at C4 or C3 only, its other four positions
+                           C–H (4-pyridyl binds to Lewis-acid sites of TiO₂ [3]_); a 2-pyridyl
+                           (2-phenylpyridine, 2,2'-bipyridine: a chelating ligand, not an
+                           anchor), a pyridine inside the π-bridge (two or more substituents),
+                           diazines, triazines, quinoxalines and quinolines do not count
 =========================  ============================================================
 
 A specific group claims its atoms: the carboxylic acid inside a cyanoacrylic
 acid is not counted twice.  Not recognised (reported as no anchor): esters,
-amides, nitriles, ethers, thiols, single ketones and dicyanovinyl groups.  Tetrazole, 8-hydroxyquinoline
-and β-diketone anchors are among the alternatives to carboxylic acids reviewed in [1]_ (from memory).
+amides, nitriles, ethers, thiols, single ketones, dicyanovinyl groups, phosphate esters and
+squaric acid.  Tetrazole, 8-hydroxyquinoline and β-diketone anchors are among the alternatives to
+carboxylic acids reviewed in [1]_ (from memory); the phosphinic acid is recognised by analogy with
+the phosphonic acid (an acidic P–OH on a carbon-bonded phosphorus; from memory, also used to bind
+dyes to TiO₂).
 
 References
 ----------
@@ -56,6 +66,8 @@ Examples
 []
 >>> find_anchors("c1ccc(-c2ccncc2)cc1"), find_anchors("Oc1ccccc1O")
 (['pyridine'], ['catechol'])
+>>> find_anchors("c1ccc(-c2ccccn2)cc1"), find_anchors("CCOP(=O)(O)OCC"), find_anchors("O=c1c(O)c(O)c1=O")
+([], [], [])
 """
 
 from __future__ import annotations
@@ -82,12 +94,13 @@ ANCHORS: tuple[Anchor, ...] = (
     Anchor("cyanoacrylic acid", f"[CX3](=[CX3])(C#N)[CX3](=O){_ACID_O}",
            "α-cyanoacrylic acid: acceptor and anchor of most D–π–A dyes"),
     Anchor("rhodanine-3-acetic acid",
-           f"[#6]1(=[#6])[#16][#6](=[#16])[#7]([CH2][CX3](=O){_ACID_O})[#6]1=O",
-           "rhodanine-3-acetic acid: anchor of the indoline dye family"),
+           f"[#6]1(=[#6])[#16][#6](=[#16,#6])[#7]([CH2][CX3](=O){_ACID_O})[#6]1=O",
+           "rhodanine-3-acetic acid (or its 2-ylidene thiazolidin-4-one form): anchor of the indoline dye family"),
     Anchor("salicylate", f"[OX2H1,OX1-]c:c[CX3](=O){_ACID_O}", "salicylic acid: chelating anchor"),
     Anchor("hydroxamic acid", "[#6][CX3](=O)[NX3;!$(N([CX3]=O)[CX3]=O)][OX2H1,OX1-]",
            "hydroxamic acid: water-stable chelating anchor"),
-    Anchor("phosphonic acid", f"[PX4](=O)({_ACID_O})[OX2]", "phosphonic acid: strong, water-stable anchor"),
+    Anchor("phosphonic acid", f"[PX4;$(P-[#6])](=O)({_ACID_O})[OX2]", "phosphonic acid: strong, water-stable anchor"),
+    Anchor("phosphinic acid", f"[PX4](-[#6])(-[#6])(=O){_ACID_O}", "phosphinic acid: one acidic P–OH"),
     Anchor("tetrazole", "[#6]-[c;$(c1:n:n:[nH1,n-]:n:1),$(c1:[nH1,n-]:n:n:n:1)]",
            "tetrazole N–H: acidic carboxylic-acid isostere"),
     Anchor("8-hydroxyquinoline", "[OX2H1,OX1-]c1cccc2cccnc12", "8-hydroxyquinoline: N,O-chelating anchor"),
@@ -98,10 +111,11 @@ ANCHORS: tuple[Anchor, ...] = (
     Anchor("boronic acid", f"[BX3]({_ACID_O}){_ACID_O}", "boronic acid"),
     Anchor("silanol", f"[Si]{_ACID_O}", "silanol: condenses with surface OH"),
     Anchor("alkoxysilane", "[Si]([OX2][#6])([OX2][#6])[OX2][#6]", "trialkoxysilane: condenses with surface OH"),
-    Anchor("catechol", "[OX2H1,OX1-]c:c[OX2H1,OX1-]", "catechol: binds TiO₂ directly (charge-transfer complex)"),
+    Anchor("catechol", "[OX2H1,OX1-][c;r6]:[c;r6][OX2H1,OX1-]",
+           "catechol: binds TiO₂ directly (charge-transfer complex)"),
     Anchor("carboxylic acid", f"[#6][CX3](=O){_ACID_O}", "carboxylic acid: the common anchor"),
-    Anchor("pyridine", "[nX2;R1;$(n1:[c;R1]:[c;R1]:[c;R1]:[c;R1]:[c;R1]:1);$(n:[cH1])]",
-           "pyridine nitrogen: binds Lewis-acid surface sites"),
+    Anchor("pyridine", "[nX2;R1;$(n1:[cH1]:[cH1]:[c;H0;R1]:[cH1]:[cH1]:1),$(n1:[cH1]:[c;H0;R1]:[cH1]:[cH1]:[cH1]:1)]",
+           "terminal 4- or 3-pyridyl nitrogen: binds Lewis-acid surface sites"),
 )
 
 

@@ -34,9 +34,10 @@ import pandas as pd
 from screen.dyecell.scales import ABSOLUTE_NHE_V, needs_solvent, to_nhe
 from screen.errors import InputError
 
-__all__ = ["E_OX_RANGE_V_NHE", "E00_RANGE_EV", "POTENTIAL_RANGE_V_NHE", "THRESHOLD_RANGE_EV", "e_ox_problem",
-           "e00_problem", "potential_problem", "vacuum_problem", "threshold_problem", "check_dye_file",
-           "smiles_problem", "unreadable_smiles", "reference_conflict", "merge_reference_alias"]
+__all__ = ["E_OX_RANGE_V_NHE", "E00_RANGE_EV", "POTENTIAL_RANGE_V_NHE", "THRESHOLD_RANGE_EV", "SIGMA_MAX",
+           "NO_ANCHOR_WORDS", "e_ox_problem", "e00_problem", "potential_problem", "vacuum_problem",
+           "threshold_problem", "check_dye_file", "smiles_problem", "unreadable_smiles", "reference_conflict",
+           "merge_reference_alias", "extra_fields_problem", "check_field_counts", "anchor_column"]
 
 #: accepted E(S⁺/S) of a dye [V vs NHE]: organic sensitisers lie roughly in −0.5…+2.5 V (common practice);
 #: 0.5 V of margin each side so that an unusual dye is ranked (and marked not viable) rather than refused
@@ -47,8 +48,17 @@ E00_RANGE_EV = (1.0, 4.0)
 #: accepted band edge of an oxide or redox potential of a mediator [V vs NHE]: they lie roughly in −1.5…+2 V
 #: (common practice; anatase TiO₂ CB ≈ −0.5 V, NiO VB ≈ +0.5 V, cobalt and copper complexes +0.4…+1.1 V)
 POTENTIAL_RANGE_V_NHE = (-1.5, 2.0)
-#: accepted driving-force threshold [eV]: ≥ 0 by definition; above 2 eV no dye of E00_RANGE_EV could meet it
+#: accepted driving-force threshold [eV]: ≥ 0 by definition; above 2 eV no dye of E00_RANGE_EV could meet it.
+#: The same bounds hold for a mediator file's ``min_drive_reg_ev`` and for the options ``dyecell.min_drive_inj_ev``
+#: and ``dyecell.min_drive_reg_ev`` (:class:`screen.dyecell.model.DyeCellModel`, the config schema)
 THRESHOLD_RANGE_EV = (0.0, 2.0)
+#: largest accepted one-σ uncertainty of a dye's E(S⁺/S) [V] or E₀₋₀ [eV] (``e_ox_sigma_v``, ``e00_sigma_ev``):
+#: measured values carry ~0.01–0.1 V and calibrated ones ~0.1–0.2 V (common practice); a σ of 1 V already spans
+#: every organic dye, so a larger one is a unit slip (mV, meV)
+SIGMA_MAX = 1.0
+#: cells of a dye file's ``anchor`` column that mean "no anchoring group" (case-insensitive); an empty cell
+#: means "not stated"
+NO_ANCHOR_WORDS = ("none", "no", "false", "0", "-")
 #: problems listed in one message at most
 _MAX_LISTED = 5
 
@@ -376,6 +386,11 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
         for c, s in sigmas.items():
             if math.isfinite(s[i]) and s[i] < 0:
                 problems.append(f"{at(i, c, float(s[i]))}: an uncertainty must be >= 0 (empty = 0)")
+            elif math.isfinite(s[i]) and s[i] > SIGMA_MAX:
+                unit = "V" if c.endswith("_v") else "eV"
+                hint = _mv_hint(float(s[i]), unit) or f"give the one-sigma uncertainty in {unit}, e.g. 0.1"
+                problems.append(f"{at(i, c, float(s[i]))}: an uncertainty must lie in 0-{SIGMA_MAX:g} {unit} "
+                                f"(measured values carry about 0.01-0.1 {unit}); {hint}")
     _raise(where, problems)
     return e_ox
 
@@ -434,4 +449,118 @@ def unreadable_smiles(frame: pd.DataFrame) -> dict[int, str]:
         if why:
             out[i] = (f"line {_line(frame, i)} (id {ids[i]!r}): the SMILES cannot be parsed ({why}); correct it, "
                       "or leave it empty to skip the anchor check")
+    return out
+
+
+def extra_fields_problem(path) -> str | None:
+    """The lines of a CSV file with more fields than its header, in words (None when there is none).
+
+    Read by pandas, such a row silently shifts its values one column to the right (when it is the first data
+    row, the first column becomes the index) and a later check names the wrong column; a row with fewer fields
+    is read with empty cells and checked as usual.  Lines are counted as in the file (header = line 1).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> f = pathlib.Path(tempfile.mkdtemp()) / "d.csv"
+    >>> _ = f.write_text("id,e_ox_v_nhe,e00_ev\\nd1,1.1,2.0,x\\nd2,1.0,2.1\\n")
+    >>> extra_fields_problem(f)
+    'line 2 has 4 fields but the header has 3 (id, e_ox_v_nhe, e00_ev)'
+    """
+    import csv
+
+    lines: list[tuple[int, int]] = []
+    with open(path, newline="", encoding="utf-8", errors="replace") as handle:
+        rows = csv.reader(handle)
+        header = next(rows, None)
+        if not header:
+            return None
+        for fields in rows:
+            if len(fields) > len(header):  # empty extra fields too: a trailing comma shifts the columns as well
+                lines.append((rows.line_num, len(fields)))
+    if not lines:
+        return None
+    names = ", ".join(h.strip() for h in header)
+    if len(lines) == 1:
+        return f"line {lines[0][0]} has {lines[0][1]} fields but the header has {len(header)} ({names})"
+    shown = ", ".join(str(n) for n, _ in lines[:_MAX_LISTED]) + (", ..." if len(lines) > _MAX_LISTED else "")
+    return f"{len(lines)} lines ({shown}) have more fields than the header's {len(header)} ({names})"
+
+
+def check_field_counts(path, what: str) -> None:
+    """Refuse a CSV file with a row that has more fields than its header (:func:`extra_fields_problem`).
+
+    Raises
+    ------
+    InputError
+        Naming the file, the line(s) and the likely slip (an unquoted comma or a decimal comma).
+    """
+    problem = extra_fields_problem(path)
+    if problem:
+        import csv
+
+        from screen.io import separator_problem
+
+        with open(path, newline="", encoding="utf-8", errors="replace") as handle:
+            header = next(csv.reader(handle), [])
+        other = separator_problem(header)  # a ';'- or tab-separated export: that is the fix to give
+        if other:
+            raise InputError(f"{what} {path}: {other}")
+        raise InputError(f"{what} {path}: {problem}; an unquoted comma inside a field (a name, a SMILES) or a "
+                         "decimal comma? Quote fields that hold commas and write decimals with a point (1.1, not "
+                         "1,1)")
+
+
+def _allowed_anchor_text() -> str:
+    from screen.dyecell.anchors import anchor_names
+
+    return (f"{', '.join(anchor_names())} (several joined with ';'), or {'/'.join(NO_ANCHOR_WORDS)} for no "
+            "anchoring group, or empty for not stated")
+
+
+def anchor_column(frame: pd.DataFrame, where: str = "dye file") -> list[list[str] | None]:
+    """The ``anchor`` column of a dye file, read against a closed vocabulary: per row the anchor names.
+
+    A cell holds anchor names of :mod:`screen.dyecell.anchors` (any case; several joined with ``;``), one of
+    :data:`NO_ANCHOR_WORDS` (no anchoring group: ``[]``) or nothing (not stated: ``None``).
+
+    Raises
+    ------
+    InputError
+        Any other value, naming the file, the line, the id, the value and the allowed values.
+
+    Examples
+    --------
+    >>> anchor_column(pd.DataFrame({"id": ["a", "b", "c"], "anchor": ["Carboxylic acid", "-", ""]}))
+    [['carboxylic acid'], [], None]
+    >>> anchor_column(pd.DataFrame({"id": ["a"], "anchor": ["no anchor"]}), "d.csv")  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    screen.errors.InputError: d.csv: line 2 (id 'a'), column anchor = 'no anchor': not an anchoring group the ...
+    """
+    from screen.dyecell.anchors import anchor_names
+
+    if "anchor" not in frame:
+        return [None] * len(frame)
+    known = {n.lower(): n for n in anchor_names()}
+    ids = [_cell(v) for v in (frame["id"] if "id" in frame else [""] * len(frame))]
+    out: list[list[str] | None] = []
+    problems = []
+    for i, raw in enumerate(frame["anchor"]):
+        text = _cell(raw)
+        if not text:
+            out.append(None)
+            continue
+        if text.lower() in NO_ANCHOR_WORDS:
+            out.append([])
+            continue
+        parts = [p.strip() for p in text.split(";") if p.strip()]
+        bad = [p for p in parts if p.lower() not in known]
+        if bad or not parts:
+            problems.append(f"line {_line(frame, i)} (id {ids[i]!r}), column anchor = {text!r}: not an anchoring "
+                            f"group the dye-cell mode knows; allowed: {_allowed_anchor_text()}")
+            out.append(None)
+            continue
+        out.append(list(dict.fromkeys(known[p.lower()] for p in parts)))
+    _raise(where, problems)
     return out

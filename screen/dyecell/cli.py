@@ -64,7 +64,7 @@ def _print_ranking(path: Path, top: int, listed: frozenset = frozenset()) -> Non
     show["id"] = [str(i).replace("\n", "\\n")[:24] for i in show["id"]]
     show["flags"] = show["flags"].map(lambda v: "" if pd.isna(v) else str(v)[:36])
     cols = ["rank", "id", "e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "drive_inj_ev", "drive_reg_ev", "voc_v",
-            "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "passes", "flags"]
+            "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_viable", "p_above_target", "passes", "flags"]
     viable = int(table["viable"].astype(str).str.lower().eq("true").sum()) if len(table) else 0
     ox, med = meta["oxide"]["id"], meta["mediator"]["id"]
     not_ranked = meta["counts"]["rows"] - len(table)
@@ -370,6 +370,13 @@ def cmd_dyecell(args) -> int:
         listed = _not_ok(computed)
     if args.levels:
         levels = Path(args.levels)
+        if levels.is_dir():
+            inside = [str(p) for p in (levels / "dyecell" / "levels_raw.csv", levels / "levels.csv") if p.is_file()]
+            hint = f" (it holds {' and '.join(inside)})" if inside else ""
+            raise InputError(f"--levels {str(levels)!r} is a directory, not a file{hint}; give the file itself: a "
+                             f"run's levels.csv (or OUT/dyecell/levels_raw.csv of a dye run), or "
+                             "id,e_ox_v_nhe,e00_ev[,smiles] measured values; to re-rank a run folder, give it as "
+                             "--out without --levels")
         if not levels.is_file():
             raise InputError(f"--levels {str(levels)!r} does not exist; give a run's levels.csv "
                              f"(or {args.out}/dyecell/levels_raw.csv of a dye run), or id,e_ox_v_nhe,e00_ev[,smiles] "

@@ -56,12 +56,16 @@ _REGISTRY = (
     Flag("input_missing", "E(S⁺/S) or E₀₋₀ is missing, so nothing could be estimated"),
     Flag("no_anchor", "no anchoring group (carboxylic, cyanoacrylic or phosphonic acid, pyridine, catechol, …): "
                       "the dye cannot bind to the oxide"),
+    Flag("no_sunlight", "absorbs no sunlight: E₀₋₀ lies above the short-wavelength end of the AM1.5G "
+                        "spectrum (280 nm = 4.43 eV) or so close to it that Jsc rounds to 0 (< 0.0001 mA cm⁻²), so "
+                        "the dye gives no photocurrent"),
     Flag("injection_low", "excited-state potential {excited} less than {min_inj} beyond the oxide band edge: "
                           "charge injection is not assured"),
     Flag("regeneration_low", "{regenerated} less than {min_reg} beyond the mediator potential: "
                              "regeneration of the {dye_state} dye by the mediator is not assured"),
     Flag("voc_nonpositive", "no photovoltage: the ideal voltage {ideal} is not larger than the assumed Voc loss "
-                            "(or the mediator lies at or beyond the oxide band edge)"),
+                            "(or the mediator lies at or beyond the oxide band edge); judged on the Voc after the "
+                            "detailed-balance cap of E₀₋₀"),
     Flag("viability_uncertain", f"P(viable) between {VIABILITY_UNCERTAIN[0]:.2f} and {VIABILITY_UNCERTAIN[1]:.2f}: "
                                 "the driving forces clear their thresholds in only part of the level uncertainty",
          "info"),

@@ -9,8 +9,8 @@ value was recalled (``from_memory``).
 A user gives their own oxide or mediator as a path to a one-row CSV file, like
 a partner in the bulk-heterojunction mode:
 
-- oxide: ``id, band_edge_v_nhe`` (optional ``type`` n|p — default n —,
-  ``name``, ``source``, ``doi``, ``notes``); or ``band_edge_v`` with a column
+- oxide: ``id, band_edge_v_nhe`` (``type`` n|p; ``name``, ``source``, ``doi``,
+  ``notes``); or ``band_edge_v`` with a column
   ``reference`` (or ``band_edge_reference``: NHE, SCE, Ag/AgCl, Fc) and, for
   Fc⁺/Fc, ``solvent`` (required: Fc⁺/Fc vs NHE depends on it, no solvent is
   assumed); or ``band_edge_ev`` on the vacuum scale, converted with the absolute
@@ -18,6 +18,12 @@ a partner in the bulk-heterojunction mode:
 - mediator: ``id, e_redox_v_nhe`` (optional ``min_drive_reg_ev`` ≥ 0, ``name``, …);
   or ``e_redox_v`` with ``reference`` (or ``e_redox_reference``; ``solvent`` for
   Fc⁺/Fc); or ``e_redox_ev`` (vacuum scale).
+
+The ``type`` column stays optional (as it always was), but a file without it,
+or with it empty, is no longer silently n-type: the oxide is taken as n-type,
+:attr:`Material.type_assumed` is set, the ranking says so on stderr and every
+reason that names the band edge adds "type n assumed".  A row with more fields
+than the header is refused with its line (:func:`screen.dyecell.checks.check_field_counts`).
 
 Values are checked (:mod:`screen.dyecell.checks`): a potential outside
 −1.5…+2 V vs NHE, a positive vacuum-scale energy or a negative threshold is
@@ -54,13 +60,19 @@ from pathlib import Path
 
 import pandas as pd
 
-from screen.dyecell.checks import potential_problem, reference_conflict, threshold_problem, vacuum_problem
+from screen.dyecell.checks import (
+    check_field_counts,
+    potential_problem,
+    reference_conflict,
+    threshold_problem,
+    vacuum_problem,
+)
 from screen.dyecell.scales import needs_solvent, nhe_from_vacuum_ev, to_nhe
 from screen.errors import InputError
 from screen.io import separator_problem
 
 __all__ = ["Material", "OXIDES_FILE", "MEDIATORS_FILE", "load_oxides", "load_mediators", "resolve_oxide",
-           "resolve_mediator", "resolve_material", "close_ids"]
+           "resolve_mediator", "resolve_material", "close_ids", "type_assumed_notice"]
 
 _DATA = Path(__file__).resolve().parent.parent / "data"
 #: built-in semiconductor table
@@ -90,6 +102,8 @@ class Material:
     kind : {'library', 'file'}
     slug : str
         Path-safe folder-name part.
+    type_assumed : bool
+        True for an oxide file without a ``type`` (or with it empty): taken as ``n``, and said so.
     """
 
     id: str
@@ -106,10 +120,20 @@ class Material:
     conversion: str = ""
     kind: str = "library"
     slug: str = ""
+    type_assumed: bool = False
 
     def as_dict(self) -> dict:
-        """Fields as a dict (NaN → None), for sidecars."""
-        return {k: (None if isinstance(v, float) and math.isnan(v) else v) for k, v in asdict(self).items()}
+        """Fields as a dict (NaN → None; the potential rounded to 4 decimals, as in ``ranking.csv``), for sidecars.
+
+        Examples
+        --------
+        >>> Material("m", "m", "mediator", 0.32 + 0.241).as_dict()["potential_v_nhe"]
+        0.561
+        """
+        out = {k: (None if isinstance(v, float) and math.isnan(v) else v) for k, v in asdict(self).items()}
+        if isinstance(out.get("potential_v_nhe"), float):
+            out["potential_v_nhe"] = round(out["potential_v_nhe"], 4)
+        return out
 
 
 def _text(value) -> str:
@@ -135,6 +159,7 @@ def _read(path: str, needed: tuple[str, ...]) -> pd.DataFrame:
     p = Path(path)
     if not p.is_file():
         raise InputError(f"library file {p} is missing")
+    check_field_counts(p, "library file")
     frame = pd.read_csv(p, dtype=str, keep_default_na=False)
     missing = [c for c in needed if c not in frame.columns]
     if missing:
@@ -181,6 +206,7 @@ def _file_slug(path: Path) -> str:
 
 def _one_row(path: Path, what: str) -> dict:
     try:
+        check_field_counts(path, f"{what} file")
         frame = pd.read_csv(path, dtype=str, keep_default_na=False)
     except (OSError, pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise InputError(f"{what} file {path} cannot be read as CSV: {exc}") from exc
@@ -327,13 +353,29 @@ def resolve_oxide(spec: str, library: str | Path | None = None) -> Material:
     row = _one_row(path, "oxide")
     where = f"oxide file {path}"
     potential, conversion = _potential_from_row(row, "band_edge", where)
-    typ = _text(row.get("type")).lower() or "n"
+    given = _text(row.get("type")).lower()
+    typ = given or "n"  # optional column: n assumed, and said so (Material.type_assumed)
     if typ not in ("n", "p"):
         raise InputError(f"{where}: type = {typ!r}; allowed: n (conduction band takes electrons) or p "
                          "(valence band takes holes)")
     return Material(id=_text(row.get("id")) or path.stem, role="oxide", potential_v_nhe=potential, type=typ,
-                    conversion=conversion, kind="file", slug=_file_slug(path),
+                    conversion=conversion, kind="file", slug=_file_slug(path), type_assumed=not given,
                     **_described(row, "conditions", str(path)))
+
+
+def type_assumed_notice(oxide: Material) -> str:
+    """The stderr line for an oxide file without a ``type`` (``""`` for any other oxide).
+
+    Examples
+    --------
+    >>> type_assumed_notice(Material("x", "x", "oxide", -0.5, "n", type_assumed=True))[:60]
+    'oxide x has no type (column type missing or empty): taken as'
+    """
+    if not oxide.type_assumed:
+        return ""
+    return (f"oxide {oxide.id} has no type (column type missing or empty): taken as n-type (its band edge "
+            f"{oxide.potential_v_nhe:+.2f} V vs NHE takes electrons from the excited dye); add a column type with n "
+            "or p to the file to say so, e.g. type = p for NiO")
 
 
 def resolve_mediator(spec: str, library: str | Path | None = None) -> Material:

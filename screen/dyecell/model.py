@@ -37,12 +37,21 @@ the standard p-type cell, which measures V_oc ≈ 0.08–0.12 V with organic
 push-pull dyes (e.g. P1; from memory, [5]_); 0.15 − 0.05 = 0.10 V.
 
 Viability (no impossible number): a dye is *viable* when both driving forces
-reach their thresholds, the photovoltage is positive, the inputs are present
-and (with ``require_anchor``) it has an anchoring group.  A dye that is not
-viable gets no Voc, Jsc or PCE, and a reason in plain words.  A viable dye's
-Voc never exceeds the detailed-balance Voc of its E₀₋₀ and its PCE never the
-detailed-balance limit (:func:`screen.spectrum.sq_limit`); a capped value is
-flagged.
+reach their thresholds, it absorbs sunlight, the photovoltage is positive, the
+inputs are present and (with ``require_anchor``) it has an anchoring group.  A
+dye that is not viable gets no Voc, Jsc or PCE, and a reason in plain words.  A
+viable dye's Voc never exceeds the detailed-balance Voc of its E₀₋₀ and its PCE
+never the detailed-balance limit (:func:`screen.spectrum.sq_limit`); a capped
+value is flagged.
+
+Absorbing sunlight: the AM1.5G table ends at 280 nm, so a dye whose E₀₋₀ lies
+at or above hc/280 nm = 4.43 eV (:func:`sunlight_edge_ev`) absorbs none of it
+and Jsc = 0; a dye just below the edge gets a Jsc that ``ranking.csv`` would
+write as 0 (below :data:`JSC_MIN_MA_CM2`).  Both are not viable (flag
+``no_sunlight``, reason "absorbs no sunlight (E₀₋₀ … eV is above …)"): a
+transparent molecule such as acetic acid is no dye.  "No photovoltage"
+(``voc_nonpositive``) is judged on the Voc after the detailed-balance cap of
+E₀₋₀, not on E_redox − E_CB − loss alone.
 
 Thresholds: 0.2 eV for injection and regeneration are rules of thumb of the
 field (common practice, e.g. discussed in [1]_); the iodide/triiodide couple
@@ -77,25 +86,41 @@ from functools import lru_cache
 
 import numpy as np
 
+from screen.dyecell.checks import threshold_problem
 from screen.dyecell.flags import join_flags
 from screen.dyecell.library import Material
 from screen.dyecell.options import option_defaults
 from screen.errors import ConfigError
 from screen.spectrum import (
+    gap_to_wavelength_nm,
     incident_power_w_m2,
     jsc_ma_cm2,
     reference_spectrum,
     sq_limit,
 )
 
-__all__ = ["DyeCellModel", "evaluate", "sample_pce", "TOL_EV"]
+__all__ = ["DyeCellModel", "evaluate", "sample_pce", "TOL_EV", "JSC_MIN_MA_CM2", "sunlight_edge_ev"]
 
 #: driving forces within this of a threshold meet it (binary floating point) [eV]
 TOL_EV = 1e-9
 _D = option_defaults()
+#: a Jsc below this is written as 0 in ``ranking.csv`` (4 decimals): such a dye absorbs no sunlight, and is not
+#: viable (flag ``no_sunlight``) [mA cm⁻²]
+JSC_MIN_MA_CM2 = 5e-5
 #: regeneration threshold of a mediator without its own, unless ``dyecell.min_drive_reg_ev`` is set [eV]
 #: (common practice for one-electron couples: Hagfeldt et al., Chem. Rev. 110 (2010) 6595)
 DEFAULT_REG_THRESHOLD_EV = 0.2
+
+def sunlight_edge_ev() -> float:
+    """Photon energy of the shortest wavelength of the AM1.5G table, hc/280 nm: no sunlight above it. [eV]
+
+    Examples
+    --------
+    >>> round(sunlight_edge_ev(), 3)
+    4.428
+    """
+    return float(gap_to_wavelength_nm(1.0)) / float(reference_spectrum().wavelength_nm[0])
+
 
 # Jsc(η = 1) and the detailed-balance limit on one uniform photon-energy grid (sampler only)
 _GRID_MIN_EV, _GRID_MAX_EV, _GRID_STEP_EV = 0.30, 4.50, 1e-3
@@ -122,9 +147,10 @@ class DyeCellModel:
         valence-band edge (from memory: NiO/iodide cells reach ~0.1 V of the
         ideal 0.15 V). [V]
     min_drive_inj_ev : float, default 0.20
-        Smallest injection driving force. [eV]
+        Smallest injection driving force, 0–2 eV (the bounds of a mediator
+        file's threshold, :data:`screen.dyecell.checks.THRESHOLD_RANGE_EV`). [eV]
     min_drive_reg_ev : float or None, default None
-        Smallest regeneration driving force for every mediator; None: the
+        Smallest regeneration driving force for every mediator (0–2 eV); None: the
         mediator's own threshold when it has one, else
         :data:`DEFAULT_REG_THRESHOLD_EV`. [eV]
     require_anchor : bool, default True
@@ -140,6 +166,10 @@ class DyeCellModel:
     Traceback (most recent call last):
     ...
     screen.errors.ConfigError: dyecell.ff = 1.5 is not allowed; allowed: 0 < ff <= 1
+    >>> DyeCellModel(min_drive_reg_ev=5)
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: dyecell.min_drive_reg_ev = 5.0 is not allowed: 5 eV is above 2 eV: no dye could meet it; give it in eV, e.g. 0.2
     """
 
     photon_to_current: float = _D["photon_to_current"]
@@ -166,6 +196,11 @@ class DyeCellModel:
         for name in ("voc_loss_v", "voc_loss_p_v"):
             if getattr(self, name) < 0:
                 raise ConfigError(f"dyecell.{name} = {getattr(self, name)!r} is not allowed; allowed: >= 0")
+        for name in ("min_drive_inj_ev", "min_drive_reg_ev"):  # the bounds of a mediator file's threshold
+            val = getattr(self, name)
+            problem = None if val is None else threshold_problem(val)
+            if problem:
+                raise ConfigError(f"dyecell.{name} = {val!r} is not allowed: {problem}")
         if not isinstance(self.require_anchor, bool):
             raise ConfigError(f"dyecell.require_anchor = {self.require_anchor!r}; allowed: true or false")
 
@@ -253,25 +288,50 @@ def _digits(value: float, thr: float) -> int:
     return 4
 
 
+def _no_light_words(e00: float) -> str:
+    """Why a dye of this E₀₋₀ absorbs no sunlight (flag ``no_sunlight``).
+
+    Examples
+    --------
+    >>> _no_light_words(4.91)
+    'absorbs no sunlight (E₀₋₀ 4.91 eV is above 4.43 eV = hc/280 nm, where the AM1.5G spectrum ends), so there is no photocurrent'
+    """
+    edge = sunlight_edge_ev()
+    lam = float(reference_spectrum().wavelength_nm[0])
+    if e00 >= edge:
+        return (f"absorbs no sunlight (E\u2080\u208b\u2080 {e00:.2f} eV is above {edge:.2f} eV = hc/{lam:.0f} nm, where "
+                "the AM1.5G spectrum ends), so there is no photocurrent")
+    return (f"absorbs no sunlight (E\u2080\u208b\u2080 {e00:.2f} eV is above all but a trace of the AM1.5G spectrum, "
+            f"which ends at {edge:.2f} eV = hc/{lam:.0f} nm: Jsc < 0.0001 mA cm\u207b\u00b2), so there is no "
+            "photocurrent")
+
+
 def _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, thr_reg, voc_raw, loss,
-            loss_name) -> str:
+            loss_name, voc_cap=math.nan) -> str:
     """Plain-words reason why dye ``i`` is not viable (every failing check, ';'-joined).
 
     Potentials are given in V vs NHE, driving forces in eV; a driving force is
-    written with the decimals that show it below its threshold.
+    written with the decimals that show it below its threshold.  "Above" and
+    "below" are those of the energy diagram: more negative potentials (higher
+    electron energies) are above.  ``voc_cap``: the detailed-balance Voc of the
+    dye's E₀₋₀ [V].  An oxide file without a ``type`` adds "type n assumed"
+    wherever the band edge is named.
     """
     words = []
     p_type = oxide.type == "p"
     edge = "valence-band edge" if p_type else "conduction-band edge"
+    assumed = "; type n assumed" if getattr(oxide, "type_assumed", False) else ""
     if masks["input_missing"][i]:
         if np.isfinite(e_ox[i]) and np.isfinite(e00[i]):  # present, but not a positive excitation energy
             return (f"not viable: E\u2080\u208b\u2080 = {_fmt(e00[i])} eV is not a positive excitation energy")
         return "not viable: E(S\u207a/S) or E\u2080\u208b\u2080 is missing"
     if masks["no_anchor"][i]:
         words.append("no anchoring group, so the dye cannot bind to the oxide")
+    if masks["no_sunlight"][i]:
+        words.append(_no_light_words(float(e00[i])))
 
     def ox_txt(d=2):
-        return f"the {edge} of {oxide.id} ({_fmt(oxide.potential_v_nhe, d)} V)"
+        return f"the {edge} of {oxide.id} ({_fmt(oxide.potential_v_nhe, d)} V{assumed})"
 
     def med_txt(d=2):
         return f"the mediator {mediator.id} ({_fmt(mediator.potential_v_nhe, d)} V)"
@@ -281,7 +341,7 @@ def _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, 
         need = (f"driving force {d_inj[i]:.{d}f} eV; {'hole ' if p_type else ''}injection needs "
                 f"\u2265 {_thr_txt(thr_inj)} eV")
         if p_type:
-            where = ("lies below (more negative than)" if d_inj[i] < 0 else "is only slightly more positive than")
+            where = ("lies above (more negative than)" if d_inj[i] < 0 else "is only slightly more positive than")
             words.append(f"excited state E(S*/S\u207b) \u2248 E(S\u207a/S) = {_fmt(e_ox[i], d)} V vs NHE {where} "
                          f"{ox_txt(d)}, so hole injection is not assured ({need})")
         elif d_inj[i] < 0:
@@ -294,7 +354,7 @@ def _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, 
         d = _digits(d_reg[i], thr_reg)
         need = f"driving force {d_reg[i]:.{d}f} eV; regeneration needs \u2265 {_thr_txt(thr_reg)} eV"
         if p_type:
-            where = ("lies above (more positive than)" if d_reg[i] < 0 else "is only slightly more negative than")
+            where = ("lies below (more positive than)" if d_reg[i] < 0 else "is only slightly more negative than")
             words.append(f"reduced dye E(S/S\u207b) \u2248 E(S\u207a/S) \u2212 E\u2080\u208b\u2080/e = "
                          f"{_fmt(e_exc[i], d)} V vs NHE {where} {med_txt(d)}, so the reduced dye cannot be "
                          f"regenerated reliably ({need})")
@@ -313,9 +373,13 @@ def _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, 
             side = "more negative" if p_type else "more positive"
             words.append(f"{med_txt()} is not {side} than {ox_txt()}: the ideal photovoltage {ideal} is not "
                          "positive, so the cell has no photovoltage")
-        else:
+        elif voc_raw - loss <= 0:
             words.append(f"the ideal photovoltage {ideal} is used up by the assumed Voc loss of {loss:.2f} V "
-                         f"({loss_name}), so Voc = {_fmt(voc_raw - loss)} V and the cell has no photovoltage")
+                         f"({loss_name}{assumed}), so Voc = {_fmt(voc_raw - loss)} V and the cell has no "
+                         "photovoltage")
+        else:  # only the detailed-balance cap of E₀₋₀ leaves no photovoltage
+            words.append(f"the detailed-balance Voc of E\u2080\u208b\u2080 = {_fmt(e00[i])} eV is "
+                         f"{_fmt(voc_cap, 3)} V, so the capped Voc is not positive and the cell has no photovoltage")
     return "not viable: " + "; ".join(words)
 
 
@@ -340,7 +404,9 @@ def evaluate(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator:
         ``e_ox_excited_v_nhe`` [V vs NHE], ``drive_inj_ev``, ``drive_reg_ev``
         [eV], ``voc_v`` [V], ``jsc_ma_cm2`` [mA cm⁻²], ``ff``, ``pce_pct`` [%]
         (NaN when not viable), ``viable`` (bool), ``viability`` (text), one
-        boolean mask per flag code and ``flags`` (``;``-joined).
+        boolean mask per flag code and ``flags`` (``;``-joined).  A dye that
+        absorbs no sunlight (E₀₋₀ ≥ :func:`sunlight_edge_ev`, or Jsc below
+        :data:`JSC_MIN_MA_CM2`) is not viable (``no_sunlight``).
 
     Examples
     --------
@@ -353,6 +419,9 @@ def evaluate(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator:
     ([True, False], ['', 'regeneration_low'])
     >>> bool(np.isnan(out["pce_pct"][1]))
     True
+    >>> clear = evaluate(DyeCellModel(), 2.5, 4.91, resolve_oxide("tio2-anatase"), resolve_mediator("co-bpy3"))
+    >>> clear["viable"].tolist(), clear["flags"].tolist()
+    ([False], ['no_sunlight'])
     """
     e_ox = np.atleast_1d(np.asarray(e_ox_v_nhe, dtype=float))
     e00 = np.atleast_1d(np.asarray(e00_ev, dtype=float))
@@ -363,21 +432,28 @@ def evaluate(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator:
     thr_inj, thr_reg = model.min_drive_inj_ev, model.reg_threshold_ev(mediator)
     loss = model.voc_loss_for(oxide)
     missing = ~(np.isfinite(e_ox) & np.isfinite(e00) & (e00 > 0))
+    g_all = np.where(missing, np.nan, e00)
+    limit_all = sq_limit(g_all)
+    jsc_all = np.asarray(jsc_ma_cm2(g_all, model.photon_to_current), dtype=float)
+    voc_cap = np.asarray(limit_all["voc_v"], dtype=float)
     with np.errstate(invalid="ignore"):
+        dark = ~missing & ~(jsc_all >= JSC_MIN_MA_CM2)          # absorbs no sunlight: Jsc 0 (as written)
+        voc_capped = np.minimum(np.full(n, voc_raw - loss), voc_cap)
         masks = {
             "input_missing": missing,
             "no_anchor": ~anchored if model.require_anchor else np.zeros(n, bool),
+            "no_sunlight": dark,
             "anchor_missing_allowed": np.zeros(n, bool) if model.require_anchor else ~anchored,
             "injection_low": ~missing & (d_inj < thr_inj - TOL_EV),
             "regeneration_low": ~missing & (d_reg < thr_reg - TOL_EV),
-            "voc_nonpositive": np.full(n, voc_raw - loss <= 0.0),
+            # judged on the capped Voc; a dye without light has its own reason (its capped Voc is 0 too)
+            "voc_nonpositive": np.full(n, voc_raw - loss <= 0.0) | (~missing & ~dark & ~(voc_capped > 0.0)),
         }
-    viable = ~(masks["input_missing"] | masks["no_anchor"] | masks["injection_low"] | masks["regeneration_low"]
-               | masks["voc_nonpositive"])
-    g = np.where(viable, e00, np.nan)
-    limit = sq_limit(g)
-    voc = np.minimum(np.full(n, voc_raw - loss), limit["voc_v"])
-    jsc = np.asarray(jsc_ma_cm2(g, model.photon_to_current), dtype=float)
+    viable = ~(masks["input_missing"] | masks["no_anchor"] | masks["no_sunlight"] | masks["injection_low"]
+               | masks["regeneration_low"] | masks["voc_nonpositive"])
+    voc = np.where(viable, voc_capped, np.nan)
+    jsc = np.where(viable, jsc_all, np.nan)
+    limit = {k: np.where(viable, np.asarray(v, dtype=float), np.nan) for k, v in limit_all.items()}
     pce = voc * jsc * model.pce_factor_pct()
     with np.errstate(invalid="ignore"):
         capped = viable & ((voc_raw - loss > limit["voc_v"]) | (pce > limit["pce_pct"]))
@@ -389,7 +465,7 @@ def evaluate(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator:
     viability = np.full(n, "viable", dtype=object)
     for i in np.flatnonzero(~viable):
         viability[i] = _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, thr_reg,
-                               voc_raw, loss, model.voc_loss_name(oxide))
+                               voc_raw, loss, model.voc_loss_name(oxide), float(voc_cap[i]))
     return {
         "e_ox_excited_v_nhe": e_exc, "drive_inj_ev": d_inj, "drive_reg_ev": d_reg,
         "voc_v": voc, "jsc_ma_cm2": np.where(viable, jsc, np.nan), "ff": np.where(viable, model.ff, np.nan),
@@ -419,7 +495,9 @@ def _block_samples(model: DyeCellModel, eo: np.ndarray, eg: np.ndarray, oxide: M
 
     ``eo`` and ``eg`` hold the sampled E(S⁺/S) [V vs NHE] and E₀₋₀ [eV]; ``dead``
     marks dyes whose every sample is 0 (missing input or no anchor).  Jsc and the
-    detailed-balance cap come from one uniform E₀₋₀ table (shared index).
+    detailed-balance cap come from one uniform E₀₋₀ table (shared index).  A
+    sample is viable as in :func:`evaluate`: both thresholds met, sunlight
+    absorbed (Jsc ≥ :data:`JSC_MIN_MA_CM2`) and a positive capped Voc.
     """
     jsc_t, jsc_d, sq_t, sq_d, voc_t, voc_d = _tables()
     thr_inj, thr_reg = model.min_drive_inj_ev - TOL_EV, model.reg_threshold_ev(mediator) - TOL_EV
@@ -436,7 +514,9 @@ def _block_samples(model: DyeCellModel, eo: np.ndarray, eg: np.ndarray, oxide: M
     idx = x.astype(np.intp)
     x -= idx
     voc_s = np.minimum(voc_t[idx] + x * voc_d[idx], max(voc, 0.0))  # Voc at most the detailed-balance Voc of E₀₋₀
-    pce = (jsc_t[idx] + x * jsc_d[idx]) * (model.photon_to_current * model.pce_factor_pct())
+    jsc_s = (jsc_t[idx] + x * jsc_d[idx]) * model.photon_to_current
+    ok &= (jsc_s >= JSC_MIN_MA_CM2) & (eg < _GRID_MAX_EV) & (voc_s > 0)  # absorbs sunlight, capped Voc > 0
+    pce = jsc_s * model.pce_factor_pct()
     pce *= voc_s
     np.minimum(pce, sq_t[idx] + x * sq_d[idx], out=pce)
     pce *= ok
@@ -448,11 +528,14 @@ def sample_pce(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediato
                target_pct: float = 8.0) -> dict:
     """Monte-Carlo spread of the efficiency from the dyes' E(S⁺/S) and E₀₋₀ uncertainties.
 
-    Every sample re-checks viability (injection and regeneration thresholds)
-    with the sampled levels, so a dye close to a threshold gets a wide spread
-    and a lower probability of beating the target.  Samples that are not viable
-    count as PCE = 0; each sample is capped at the detailed-balance limit of its
-    E₀₋₀.  One table of standard normal deviates (fixed seed) is shared by
+    Every sample re-checks viability (injection and regeneration thresholds,
+    absorbed sunlight, positive capped Voc) with the sampled levels, so a dye
+    close to a threshold gets a lower probability of working (``p_viable``) and
+    of beating the target.  ``pce_sigma_pct`` is the spread of the samples that
+    stay viable — the spread of the estimate if the dye works — while the mean
+    and ``p_above_target`` count a sample that is not viable as PCE = 0 (the
+    same rule as the donor/acceptor ranking, :func:`screen.sampling.sample_pce`);
+    each sample is capped at the detailed-balance limit of its E₀₋₀.  One table of standard normal deviates (fixed seed) is shared by
     every dye (common random numbers): a dye's result does not depend on the
     others, their order or the block size — as in :func:`screen.sampling.sample_pce`.
 
@@ -476,10 +559,12 @@ def sample_pce(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediato
     Returns
     -------
     dict of numpy.ndarray
-        ``pce_mean_pct``, ``pce_sigma_pct`` (ddof = 1) [%], ``p_above_target``
-        and ``p_viable`` (fraction of samples that inject and regenerate);
-        NaN where an input is missing.  The oxide and mediator potentials are
-        taken as exact.
+        ``pce_mean_pct`` (over all samples, a sample that is not viable
+        counting 0) [%], ``pce_sigma_pct`` (standard deviation, ddof = 1, of
+        the viable samples only; 0 when fewer than two are viable) [%],
+        ``p_above_target`` (fraction of all samples above the target) and
+        ``p_viable`` (fraction of samples that are viable); NaN where an input
+        is missing.  The oxide and mediator potentials are taken as exact.
 
     Examples
     --------
@@ -490,6 +575,8 @@ def sample_pce(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediato
     >>> out["p_viable"].round(2).tolist()
     [0.9, 0.6]
     >>> bool(out["p_above_target"][0] > out["p_above_target"][1])
+    True
+    >>> bool(out["pce_sigma_pct"][1] < 2 * out["pce_sigma_pct"][0])   # failed samples do not widen the spread
     True
     """
     n_samples = int(n_samples)
@@ -515,10 +602,15 @@ def sample_pce(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediato
         eo = np.where(missing[a:b], 1.0, e_ox[a:b])[:, None] + s_ox[a:b, None] * z[0]
         eg = np.where(missing[a:b], 2.0, e00[a:b])[:, None] + s_gap[a:b, None] * z[1]
         pce, ok = _block_samples(model, eo, eg, oxide, mediator, dead[a:b])
-        out_v[a:b] = ok.mean(axis=1)
+        count = np.count_nonzero(ok, axis=1)
+        out_v[a:b] = count / n_samples
         out_p[a:b] = np.count_nonzero(pce > target_pct, axis=1) / n_samples
         out_mean[a:b] = pce.mean(axis=1)
-        out_sigma[a:b] = pce.std(axis=1, ddof=1)
+        centre = pce.sum(axis=1) / np.maximum(count, 1)                 # mean of the viable samples
+        pce -= centre[:, None]
+        pce *= ok
+        s2 = np.einsum("ij,ij->i", pce, pce)
+        out_sigma[a:b] = np.where(count >= 2, np.sqrt(s2 / np.maximum(count - 1, 1)), 0.0)
     for arr in (out_mean, out_sigma, out_p, out_v):
         arr[missing] = np.nan
     return {"pce_mean_pct": out_mean, "pce_sigma_pct": out_sigma, "p_above_target": out_p, "p_viable": out_v}

@@ -5,7 +5,12 @@ shortlist with structure drawings and every flag in plain words, the
 not-viable dyes with their reasons (when there are any), the dye-cell
 energy diagram (:mod:`screen.dyecell.figure`), every ranked dye with
 its viability in words, and the dyes that were not ranked with the reason.
-Probabilities are shown in percent (``ranking.csv`` keeps fractions 0–1).
+Probabilities are shown in percent (``ranking.csv`` keeps fractions 0–1).  A
+PCE is shown as value ± σ, σ being the spread of the Monte-Carlo samples that
+stay viable, with ``p_viable`` beside it ("7.2 ± 1.4 % · works in 67 % of
+samples").  The caution at the top follows the oxide's type (the ideal voltage
+E_redox − E_CB or E_VB − E_redox) and, for a p-type oxide, says that its PCEs
+are optimistic.
 Styles and the sorting script are those of the bulk-heterojunction report
 (``static/``); every user text is HTML-escaped; nothing is fetched from the
 network.
@@ -63,10 +68,19 @@ _CAUTION_SOURCE = {
 }
 _CAUTION_REST = (
     ", and the cell model is idealised (sharp absorption edge, fixed photon-to-current efficiency, fill factor "
-    "and V<sub>oc</sub> loss below the ideal E<sub>redox</sub> \u2212 E<sub>CB</sub>, the same for every dye). "
+    "and V<sub>oc</sub> loss below the ideal {ideal}, the same for every dye). "
     "Use the numbers to rank and to choose what to discuss, not as predicted measurements. Band edges move with "
     "pH and electrolyte additives. Making and handling any dye follows your lab\u2019s chemical-safety rules and "
     "the safety data sheets of every reagent.")
+#: the ideal photovoltage the Voc loss is taken from, by oxide type (HTML)
+_IDEAL_VOLTAGE = {"n": "E<sub>redox</sub> \u2212 E<sub>CB</sub>", "p": "E<sub>VB</sub> \u2212 E<sub>redox</sub>"}
+#: the p-type caveat (README, *Dye-cell mode*, Limits): n-type η and FF, an estimated reduction potential
+_CAUTION_P_TYPE = (
+    '<p class="caution" id="caution-p-type"><strong>p-type cell: optimistic PCEs.</strong> On a p-type oxide such '
+    "as NiO the photon-to-current efficiency and fill factor of the model are n-type values, and the dye\u2019s "
+    "reduction potential is estimated as E(S\u207a/S) \u2212 E\u2080\u208b\u2080/e (exciton binding neglected), "
+    "so the PCEs here are optimistic: measured NiO cells reach about 0.1\u20130.2 % (recalled from the "
+    "literature). Compare p-type dyes with each other, not with n-type cells.</p>")
 #: not-viable dyes listed by name under the shortlist (the rest are in the table of every ranked dye)
 NOT_VIABLE_SHOWN = 20
 #: the E(S+/S) model is called weak when its nested LOO MAE is above this fraction of a constant model's
@@ -74,20 +88,29 @@ WEAK_MODEL_RATIO = 0.8
 
 
 def _caution(meta: dict) -> str:
-    """The page's caution: where the potentials come from, the idealised cell, and a weak E(S⁺/S) model (HTML).
+    """The page's caution: where the potentials come from, the idealised cell for the oxide's type, the p-type
+    caveat, and a weak E(S⁺/S) model (HTML).
 
     Examples
     --------
     >>> "measured values" in _caution({})
     True
+    >>> "E<sub>redox</sub> \u2212 E<sub>CB</sub>" in _caution({}), "optimistic" in _caution({})
+    (True, False)
+    >>> p = _caution({"oxide": {"type": "p"}})
+    >>> "E<sub>VB</sub> \u2212 E<sub>redox</sub>" in p, "E<sub>CB</sub>" in p, "optimistic" in p
+    (True, False, True)
     >>> weak = {"calibration": {"e_ox": {"loo_mae": 0.072, "baseline_loo_mae": 0.077, "unit": "V"}}}
     >>> "barely tells dyes apart" in _caution(weak)
     True
     """
     cal = get(meta, "calibration", default=None)
     source = "computed" if isinstance(cal, dict) and cal else "measured"
+    p_type = _p_type(meta)
     out = ('<p class="caution" id="caution"><strong>Screening estimates.</strong> ' + _CAUTION_SOURCE[source]
-           + _CAUTION_REST + "</p>")
+           + _CAUTION_REST.format(ideal=_IDEAL_VOLTAGE["p" if p_type else "n"]) + "</p>")
+    if p_type:
+        out += _CAUTION_P_TYPE
     e_ox = (cal or {}).get("e_ox") if source == "computed" else None
     mae, base = num((e_ox or {}).get("loo_mae")), num((e_ox or {}).get("baseline_loo_mae"))
     if e_ox and base > 0 and mae > WEAK_MODEL_RATIO * base:
@@ -114,7 +137,10 @@ def _material_card(m: dict, title: str, ident: str, edge_word: str) -> str:
              (edge_word, (fmt(m.get("potential_v_nhe")) + " V vs NHE") if text(m.get("potential_v_nhe")) else
               NOT_RECORDED)]
     if text(m.get("type")):
-        items.append(("Type", "n-type (electron injection)" if m.get("type") == "n" else "p-type (hole injection)"))
+        kind = "n-type (electron injection)" if m.get("type") == "n" else "p-type (hole injection)"
+        if m.get("type_assumed") is True:
+            kind += " \u2014 assumed: the oxide file has no type column (add type = n or p)"
+        items.append(("Type", kind))
     if text(m.get("conditions")):
         items.append(("Conditions", esc(shorten(text(m.get("conditions")), 200))))
     if text(m.get("conversion")):
@@ -224,6 +250,28 @@ def _definitions(meta: dict) -> str:
 _percent = percent  # P(PCE > target), P(viable) as in the donor/acceptor report
 
 
+def _pce_html(pce, sigma, p_viable, inline: bool = False) -> str:
+    """PCE ± σ (σ of the viable samples) with ``p_viable`` beside it, as HTML.
+
+    Examples
+    --------
+    >>> _pce_html(7.23, 1.41, 0.67, inline=True)
+    '7.2 ± 1.4 % · works in 67 % of samples'
+    >>> _pce_html(5.3, 1.5, 1.0)
+    '5.3 <span class="pm">± 1.5</span><span class="pm works">works in 100 % of samples</span>'
+    >>> _pce_html(float("nan"), float("nan"), 0.3)
+    '—'
+    """
+    x, s = num(pce), num(sigma)
+    works = f"works in {_percent(p_viable)} of samples" if not math.isnan(num(p_viable)) else ""
+    if math.isnan(x):
+        return fmt(x, 1)
+    if inline:
+        base = fmt(x, 1) + (f" \u00b1 {fmt(s, 1)}" if not math.isnan(s) and s > 0 else "") + " %"
+        return base + (f" \u00b7 {works}" if works else "")
+    return pm_html(x, s, 1) + (f'<span class="pm works">{works}</span>' if works else "")
+
+
 def _reason_words(viability) -> str:
     """The reason of a not-viable dye without its ``not viable:`` lead (the list's heading says it).
 
@@ -296,8 +344,12 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
         sig = {"e_ox_v_nhe": "e_ox_sigma_v", "e00_ev": "e00_sigma_ev", "pce_pct": "pce_sigma_pct"}
         for _, col in headers:
             val = r.get(col)
-            html = pm_html(val, r.get(sig[col]), 1 if col == "pce_pct" else 2) if col in sig else \
-                fmt(val, 1 if col == "jsc_ma_cm2" else 2)
+            if col == "pce_pct":
+                html = _pce_html(val, r.get("pce_sigma_pct"), r.get("p_viable"))
+            elif col in sig:
+                html = pm_html(val, r.get(sig[col]), 2)
+            else:
+                html = fmt(val, 1 if col == "jsc_ma_cm2" else 2)
             cls = ' class="pce"' if col == "pce_pct" else ""
             cells.append(f'<td{cls} data-value="{data_value(val)}">{html}</td>')
         cells.append(f'<td data-value="{data_value(r.get("p_above_target"))}">{_percent(r.get("p_above_target"))}</td>')
@@ -397,7 +449,9 @@ def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict
     if len(ranking) and len(passing):
         best = passing.iloc[0]
         summary = (f"{len(ranking)} dye(s) ranked; {n_pass} viable. Best estimate: <strong>{esc(best.get('id'))}"
-                   f"</strong> at {pm_html(best.get('pce_pct'), best.get('pce_sigma_pct'), 1)} % PCE.")
+                   f"</strong> at {_pce_html(best.get('pce_pct'), best.get('pce_sigma_pct'), math.nan, True)} PCE"
+                   + (f" \u00b7 works in {_percent(best.get('p_viable'))} of samples"
+                      if not math.isnan(num(best.get("p_viable"))) else "") + ".")
     else:
         summary = f"{len(ranking)} dye(s) ranked; none is viable with this oxide and mediator."
     counts = get(meta, "counts", default={}) or {}
@@ -421,7 +475,9 @@ def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict
         '<h2 id="shortlist"><span class="num">2</span>Shortlist for discussion</h2>',
         f'<p class="summary">{summary}</p>',
         f'<p class="quiet">Shown: {esc(how)}. Potentials in V vs NHE, value \u00b1 1\u03c3; driving forces in '
-        f"eV. {_definitions(meta)}. Viable dyes are ordered by estimated PCE; with one oxide, one mediator and the "
+        "eV; PCE \u00b1 1\u03c3 of the Monte-Carlo samples that stay viable (the spread if the dye works), with "
+        "\u201cworks in \u2026 % of samples\u201d, P(viable), beside it. "
+        f"{_definitions(meta)}. Viable dyes are ordered by estimated PCE; with one oxide, one mediator and the "
         "same photon-to-current efficiency, fill factor and V<sub>oc</sub> loss for every dye, that is in effect the "
         "order of E\u2080\u208b\u2080 (smallest first): E(S\u207a/S) enters only through the injection and "
         "regeneration checks. Not-viable dyes follow, by id. Click a column header to sort.</p>",

@@ -16,7 +16,15 @@ Fc⁺/Fc vs NHE depends on it), plus ``e00_ev``; optional ``smiles``, ``name``,
 ``e_ox_sigma_v``, ``e00_sigma_ev``, ``anchor`` and ``scale`` (which must be
 ``electrochemical`` when given).  Every row must have a unique id and plausible
 values (:mod:`screen.dyecell.checks`); otherwise the file is refused, naming
-the line, the column and the fix.  A row whose SMILES RDKit cannot read is not
+the line, the column and the fix.
+
+The ``anchor`` column takes a closed vocabulary
+(:func:`screen.dyecell.checks.anchor_column`): anchor names of
+:mod:`screen.dyecell.anchors` (several joined with ``;``), ``none``, ``no``,
+``false``, ``0`` or ``-`` for no anchoring group, or empty (not stated); any
+other value is refused.  It counts only for a row without a readable SMILES:
+where the SMILES can be read, the anchoring groups found in it win, and a
+column that disagrees with them is named on stderr.  A row whose SMILES RDKit cannot read is not
 ranked (status ``rejected``, the reason naming its line and id); the other dyes
 are.
 
@@ -30,13 +38,14 @@ reference dyes: a dye with a metal outside them is not ranked (status
 from __future__ import annotations
 
 import math
+import sys
 
 import numpy as np
 import pandas as pd
 
 from screen.dyecell.anchors import find_anchors
 from screen.dyecell.calibrate import apply_models, elements_of
-from screen.dyecell.checks import check_dye_file, merge_reference_alias, unreadable_smiles
+from screen.dyecell.checks import _line, anchor_column, check_dye_file, merge_reference_alias, unreadable_smiles
 from screen.dyecell.flags import INFO_FLAGS, join_flags, viability_uncertain
 from screen.dyecell.library import Material
 from screen.dyecell.model import DyeCellModel, evaluate, sample_pce
@@ -183,13 +192,11 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
         given = _text_col(frame, "scale").str.strip()
         require_scale(given[given.ne("")], f"{where} (column scale)")
     e_ox = check_dye_file(frame, where)
+    stated = anchor_column(frame, where)
     smiles = _text_col(frame, "smiles")
     anchors, anchored, known, _, _ = _structure_checks(smiles, set())
-    if "anchor" in frame:
-        given = _text_col(frame, "anchor").str.strip()
-        for i in np.flatnonzero(given.ne("").to_numpy()):
-            if not known[i]:
-                anchors[i], anchored[i], known[i] = given.iloc[i], given.iloc[i].lower() not in ("none", "no"), True
+    _apply_anchor_column(frame, stated, anchors, anchored, known, where)
+    e_ox = np.round(e_ox, _ROUND)  # converted potentials: no binary noise (0.5609999999999999) in the outputs
     e00 = _num_col(frame, "e00_ev")
     ok = np.isfinite(e_ox) & np.isfinite(e00)
     error = np.where(ok, "", "E(S+/S) or E00 missing or not a number").astype(object)
@@ -207,6 +214,34 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
     return out[DYE_COLUMNS]
 
 
+def _apply_anchor_column(frame: pd.DataFrame, stated: list, anchors: list, anchored: list, known: list,
+                         where: str) -> None:
+    """Use the ``anchor`` column where the SMILES cannot tell; say on stderr where it disagrees with the SMILES.
+
+    ``stated``: per row the names of :func:`screen.dyecell.checks.anchor_column` (``[]`` = none, None = not
+    stated).  A row whose SMILES RDKit reads keeps the groups found in it (the structure wins); the column
+    fills in rows without a readable SMILES.  ``anchors``, ``anchored`` and ``known`` are updated in place.
+    """
+    ids = _text_col(frame, "id").tolist()
+    clashes = []
+    for i, names in enumerate(stated):
+        if names is None:
+            continue
+        if not known[i]:  # no structure: the column is all there is
+            anchors[i], anchored[i], known[i] = "; ".join(names), bool(names), True
+            continue
+        found = [a for a in anchors[i].split("; ") if a]
+        if bool(names) != bool(found) or not set(names) <= set(found):
+            said = "; ".join(names) if names else "no anchoring group"
+            has = ("has " + "; ".join(found)) if found else "has no anchoring group"
+            clashes.append(f"line {_line(frame, i)} (id {ids[i]!r}): column anchor says {said}, but the SMILES {has}")
+    if clashes:
+        more = f"\n  ... and {len(clashes) - 5} more" if len(clashes) > 5 else ""
+        print(f"dascreen dyecell: {where}: the anchor column disagrees with the SMILES in {len(clashes)} row(s); the "
+              "anchoring groups found in the SMILES are used (the column counts only for rows without a readable "
+              "SMILES; correct the SMILES or the column):\n  " + "\n  ".join(clashes[:5]) + more, file=sys.stderr)
+
+
 def _bool_col(frame: pd.DataFrame, col: str, default: bool) -> np.ndarray:
     if col not in frame:
         return np.full(len(frame), default)
@@ -217,9 +252,9 @@ def _bool_col(frame: pd.DataFrame, col: str, default: bool) -> np.ndarray:
 def _flag_masks(d: pd.DataFrame, dev: dict, known: np.ndarray, p_viable: np.ndarray) -> dict[str, np.ndarray]:
     """One boolean mask per flag code: the model's, the Monte-Carlo spread's (``viability_uncertain``, from
     ``p_viable``), the anchor check's and the calibration's."""
-    masks = {k: np.asarray(dev[k], bool) for k in ("input_missing", "no_anchor", "injection_low", "regeneration_low",
-                                                    "voc_nonpositive", "p_type_estimate", "detailed_balance_cap",
-                                                    "anchor_missing_allowed")}
+    masks = {k: np.asarray(dev[k], bool) for k in ("input_missing", "no_anchor", "no_sunlight", "injection_low",
+                                                    "regeneration_low", "voc_nonpositive", "p_type_estimate",
+                                                    "detailed_balance_cap", "anchor_missing_allowed")}
     masks["viability_uncertain"] = viability_uncertain(p_viable)
     masks["anchor_unknown"] = ~known
     masks["element_uncalibrated"] = _text_col(d, "uncalibrated_elements").str.strip().ne("").to_numpy()
@@ -295,8 +330,9 @@ def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: Dy
         "e_ox_sigma_v": s_ox, "e00_sigma_ev": s_gap, "edge_nm": np.asarray(gap_to_wavelength_nm(e00), float),
         "uncalibrated_elements": _text_col(d, "uncalibrated_elements"),
     })
-    num = ["e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "drive_inj_ev", "drive_reg_ev", "voc_v", "jsc_ma_cm2",
-           "pce_pct", "pce_sigma_pct", "p_above_target", "p_viable", "e_ox_sigma_v", "e00_sigma_ev"]
+    num = ["e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "band_edge_v_nhe", "e_redox_v_nhe", "drive_inj_ev",
+           "drive_reg_ev", "voc_v", "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "p_viable",
+           "e_ox_sigma_v", "e00_sigma_ev"]
     out[num] = out[num].round(_ROUND)
     out["edge_nm"] = out["edge_nm"].round(1)
     keys = ["passes", options.sort_by] + (["p_above_target"] if options.sort_by != "p_above_target" else

@@ -39,7 +39,7 @@ import pandas as pd
 from screen import __version__
 from screen.dyecell.calibrate import MODELS_DIR, load_models
 from screen.dyecell.flags import describe
-from screen.dyecell.library import Material, resolve_material
+from screen.dyecell.library import Material, resolve_material, type_assumed_notice
 from screen.dyecell.model import DyeCellModel
 from screen.dyecell.options import RankOptions, option_defaults
 from screen.dyecell.rank import (
@@ -145,11 +145,18 @@ def read_input(path: str | Path) -> tuple[str, pd.DataFrame, dict | None]:
     """Read a levels file or a dye file: ``("levels" | "dyes", frame, sidecar or None)``.
 
     A file with raw ``xtb_ip_ev`` values is a run's levels; anything else is a
-    user's dye file (:func:`screen.dyecell.rank.dyes_from_file`).
+    user's dye file (:func:`screen.dyecell.rank.dyes_from_file`).  A row with
+    more fields than the header is refused with its line
+    (:func:`screen.dyecell.checks.check_field_counts`).
     """
+    from screen.dyecell.checks import check_field_counts
+
     path = Path(path)
+    if path.is_dir():
+        raise InputError(f"dye-cell input {path} is a directory, not a file; give the levels or dye file in it")
     if not path.is_file():
         raise InputError(f"dye-cell input {path} does not exist")
+    check_field_counts(path, "dye-cell input")
     try:
         frame = pd.read_csv(path, dtype={"id": str}, keep_default_na=False, na_values=[""])
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
@@ -318,7 +325,8 @@ def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str
     kind, frame, meta = read_input(path)
     target = Path(cache) if cache else Path(out_dir) / "dyecell" / "dyes.csv"
     info = {"input": str(path.resolve()), "input_sha256": sha256_file(path), "kind": kind,
-            "levels_meta": meta, "dascreen": __version__, "versions": library_versions()}
+            "levels_meta": meta, "dascreen": __version__, "versions": library_versions(),
+            "table_rules": table_rules_hash()}
     if kind == "levels":
         pid = (meta or {}).get("protocol_id")
         if not pid and models_folder is None:
@@ -347,9 +355,31 @@ def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str
     return table, info
 
 
+#: version of the rules that build a dye table other than the anchor patterns (rounding, the anchor column's
+#: vocabulary): a change here or in :data:`screen.dyecell.anchors.ANCHORS` rebuilds a cached ``dyes.csv``
+_TABLE_RULES = "2"
+
+
+def table_rules_hash() -> str:
+    """Short hash of the anchor patterns and :data:`_TABLE_RULES` (the cached dye table's rule key).
+
+    Examples
+    --------
+    >>> len(table_rules_hash())
+    12
+    """
+    import hashlib
+
+    from screen.dyecell.anchors import ANCHORS
+
+    text = _TABLE_RULES + "\n" + "\n".join(f"{a.name}\t{a.smarts}" for a in ANCHORS)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()[:12]
+
+
 def _cached(target: Path, info: dict) -> pd.DataFrame | None:
-    """The cached dye table when its sidecar matches the input, the models, and the dascreen and library
-    versions (another version may read or check the input differently)."""
+    """The cached dye table when its sidecar matches the input, the models, the rules (anchor patterns,
+    :func:`table_rules_hash`), and the dascreen and library versions (another version may read or check the
+    input differently)."""
     side = Path(f"{target}.meta.json")
     if not (target.is_file() and side.is_file()):
         return None
@@ -360,6 +390,8 @@ def _cached(target: Path, info: dict) -> pd.DataFrame | None:
     if old.get("input_sha256") != info["input_sha256"] or old.get("models") != info.get("models"):
         return None
     if old.get("dascreen") != info["dascreen"] or old.get("versions") != info["versions"]:
+        return None
+    if old.get("table_rules") != info.get("table_rules"):
         return None
     table = pd.read_csv(target, dtype={"id": str}, keep_default_na=False, na_values=[""])
     return table if list(table.columns) == DYE_COLUMNS else None
@@ -507,6 +539,8 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
     section = {**option_defaults(), **(settings or {})}
     ox = resolve_material("oxide", oxide or section["oxide"])
     med = resolve_material("mediator", mediator or section["mediator"])
+    if ox.type_assumed:  # an oxide file without a type: said once per ranking, and in every reason naming the edge
+        print(f"dascreen dyecell: {type_assumed_notice(ox)}", file=sys.stderr)
     model = DyeCellModel.from_mapping(section)
     options = RankOptions.from_mapping(section)
     tag = levels_tag(input_path, out_dir)
