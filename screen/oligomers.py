@@ -24,6 +24,11 @@ Examples
 'Cc1ccc(-c2ccc(C)s2)s1'
 >>> unit.conjugation_length
 2
+
+A unit attached through an aromatic nitrogen (an N-linked carbazole) gets the N–H back at the H-capped end:
+
+>>> oligomer_smiles("[*]n1c2ccccc2c2cc([*])ccc21", 2)
+'c1ccc2c(c1)[nH]c1ccc(-n3c4ccccc4c4ccccc43)cc12'
 """
 
 from __future__ import annotations
@@ -163,8 +168,8 @@ def oligomer_smiles(unit: RepeatUnit | str, n: int, cap: str = "H") -> str:
     for k in range(n - 1):
         rw.AddBond(k * size + unit.tail_anchor, (k + 1) * size + unit.head_anchor, Chem.BondType.SINGLE)
     remove = [k * size + unit.tail for k in range(n - 1)] + [(k + 1) * size + unit.head for k in range(n - 1)]
-    ends = (unit.head, (n - 1) * size + unit.tail)
-    for idx in ends:
+    ends = ((unit.head, unit.head_anchor), ((n - 1) * size + unit.tail, (n - 1) * size + unit.tail_anchor))
+    for idx, anchor in ends:
         atom = rw.GetAtomWithIdx(idx)
         atom.SetAtomMapNum(0)
         atom.SetIsotope(0)
@@ -172,6 +177,11 @@ def oligomer_smiles(unit: RepeatUnit | str, n: int, cap: str = "H") -> str:
             atom.SetAtomicNum(6)
             atom.SetNoImplicit(False)
         else:
+            # the hydrogen takes the attachment point's place on its anchor: written explicitly, since an
+            # aromatic heteroatom gets no implicit hydrogen (an N-linked carbazole, pyrrole or imidazole
+            # needs its [nH] back, else the ring cannot be kekulised)
+            end = rw.GetAtomWithIdx(anchor)
+            end.SetNumExplicitHs(end.GetNumExplicitHs() + 1)
             remove.append(idx)
     for idx in sorted(remove, reverse=True):
         rw.RemoveAtom(idx)

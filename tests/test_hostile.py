@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import gzip
 import os
 import subprocess
 import sys
@@ -57,3 +58,38 @@ def test_nothing_is_written_outside_the_output_folder(hostile_run, repo_dir):
     created = _tree(repo_dir) - repo_before
     assert not created, sorted(created)[:10]
     assert not any(name in str(p) for p in out.rglob("*") for name in ("passwd", "<script", "SUM(A1)"))
+
+
+# a new-user robustness audit: files and options the run must refuse before any work (exit 2, one message,
+# no traceback, nothing written)
+_REFUSED = {
+    "truncated.csv.gz": (gzip.compress(b"id,smiles\nB1,c1ccccc1\n")[:20], "not a readable gzip file"),
+    "table.smi": (b"id,smiles\nB1,c1ccccc1\n", "looks like comma-separated CSV"),
+    "twice.csv": (b"id,smiles,SMILES\nB1,c1ccccc1,CC\n", "column 'smiles' appears twice (columns 2 and 3)"),
+}
+
+
+@pytest.mark.parametrize("name", sorted(_REFUSED))
+def test_unusable_candidate_file_is_refused_before_any_work(tmp_path, capsys, name):
+    from screen.cli import main
+
+    content, message = _REFUSED[name]
+    src = tmp_path / name
+    src.write_bytes(content)
+    rc = main(["run", str(src), "--out", str(tmp_path / "out")])
+    err = capsys.readouterr().err
+    assert rc == 2, err
+    assert message in err and name in err and "Traceback" not in err
+    assert len(err.strip().splitlines()) == 1, err
+    assert not (tmp_path / "out").exists()
+
+
+def test_an_empty_element_list_is_refused_before_any_work(tmp_path, capsys):
+    from screen.cli import main
+
+    src = tmp_path / "c.csv"
+    src.write_text("id,smiles\nB1,c1ccccc1\n", encoding="utf-8")
+    rc = main(["run", str(src), "--out", str(tmp_path / "out"), "--set", "prepare.allowed_elements=[]"])
+    err = capsys.readouterr().err
+    assert rc == 2 and "prepare.allowed_elements" in err and "Traceback" not in err
+    assert not (tmp_path / "out").exists()

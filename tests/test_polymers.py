@@ -165,3 +165,87 @@ def test_a_polymer_with_its_real_side_chains_gets_the_reference_polymers_oligome
     assert list(mine["key"]) == list(theirs["key"]) and len(mine) >= 3
     assert mine["side_chains_cut"].iloc[0].split(";") == ["C8H17->CH3"] * 4
     assert theirs["side_chains_cut"].iloc[0] == ""
+
+
+# a new-user robustness audit: a repeat unit attached through an aromatic nitrogen (N-linked carbazole, pyrrole,
+# imidazole) crashed the whole batch with RDKit's KekulizeException: the H cap left the ring nitrogen without its H
+N_LINKED = ["[*]n1c2ccccc2c2cc([*])ccc21", "[*]n1cccc1[*]", "[*]c1cccn1[*]", "[*]n1ccnc1[*]"]
+
+
+@pytest.mark.parametrize("unit", N_LINKED)
+@pytest.mark.parametrize("cap", ["H", "methyl"])
+def test_n_linked_repeat_units_give_sanitizable_oligomers(unit, cap):
+    from rdkit import Chem
+
+    from screen.oligomers import oligomer_series
+
+    series = oligomer_series(unit, n_max=3, max_atoms=1000, cap=cap)
+    assert [n for n, _ in series] == [1, 2, 3]
+    atoms = []
+    for n, smiles in series:
+        mol = Chem.MolFromSmiles(smiles)  # sanitizes: kekulisable, valences right
+        assert mol is not None, (unit, n, smiles)
+        assert not [a for a in mol.GetAtoms() if a.GetNumRadicalElectrons()], smiles
+        nh = sum(1 for a in mol.GetAtoms() if a.GetSymbol() == "N" and a.GetIsAromatic() and a.GetTotalNumHs())
+        # the H cap on a ring nitrogen gives back its N-H (at most one per chain end); a methyl cap leaves none
+        assert nh <= 2 and (cap == "H" or nh == 0), smiles
+        atoms.append(Chem.AddHs(mol).GetNumAtoms())
+    # every repeat adds the same atoms: one unit minus the two H the new bond replaces
+    assert atoms[2] - atoms[1] == atoms[1] - atoms[0] > 0
+
+
+def test_n_linked_carbazole_oligomers_have_the_formula_counted_by_hand():
+    from rdkit import Chem
+    from rdkit.Chem.rdMolDescriptors import CalcMolFormula
+
+    from screen.oligomers import oligomer_smiles
+
+    unit = "[*]n1c2ccccc2c2cc([*])ccc21"
+    # hand count: carbazole is C12H9N (8 C-H, 1 N-H); the N(9)-C(3') bond of a dimer replaces one H of each
+    # carbazole: C24H16N2 with H caps, the N-H kept at the head; methyl caps replace the two end H: C26H20N2
+    assert CalcMolFormula(Chem.MolFromSmiles(oligomer_smiles(unit, 1))) == "C12H9N"
+    dimer = Chem.MolFromSmiles(oligomer_smiles(unit, 2))
+    assert CalcMolFormula(dimer) == "C24H16N2"
+    assert dimer.HasSubstructMatch(Chem.MolFromSmarts("[nH]")) and dimer.HasSubstructMatch(Chem.MolFromSmarts("n-c"))
+    assert CalcMolFormula(Chem.MolFromSmiles(oligomer_smiles(unit, 2, cap="methyl"))) == "C26H20N2"
+    assert CalcMolFormula(Chem.MolFromSmiles(oligomer_smiles(unit, 3))) == "C36H23N3"
+
+
+def test_n_linked_carbazole_polymer_goes_through_prepare_beside_other_rows(tmp_path):
+    rows = [("cz", "[*]n1c2ccccc2c2cc([*])ccc21"), ("pt", "[*]c1ccc([*])s1"), ("npyr", "[*]n1cccc1[*]"),
+            ("benz", "c1ccccc1")]
+    prepared = _batch(tmp_path, rows, PolymerOptions(n_max=3))
+    manifest = pd.read_csv(prepared / "manifest.csv", dtype=str, keep_default_na=False)
+    assert list(manifest.status) == ["ok"] * 4
+    olig = read_oligomers(prepared / "oligomers.csv")
+    assert list(olig[olig.polymer_id == "cz"].n) == [1, 2, 3]
+    assert olig[olig.polymer_id == "cz"].smiles.iloc[0] == "c1ccc2c(c1)[nH]c1ccccc12"  # carbazole itself
+
+
+def test_a_repeat_unit_whose_oligomers_cannot_be_built_rejects_its_row_only(tmp_path, monkeypatch):
+    from rdkit import Chem
+
+    import screen.oligomers as oligomers
+
+    real = oligomers.oligomer_series
+
+    def unbuildable(unit, *args, **kwargs):  # RDKit's own exception, as the N-linked units raised it
+        if "s" in unit.smiles:
+            Chem.SanitizeMol(Chem.MolFromSmiles("c1ccnc1", sanitize=False))
+        return real(unit, *args, **kwargs)
+
+    monkeypatch.setattr(oligomers, "oligomer_series", unbuildable)
+    rows = [("pt", "[*]c1ccc([*])s1"), ("cz", "[*]n1c2ccccc2c2cc([*])ccc21"), ("benz", "c1ccccc1"),
+            ("pt-again", "[*:1]c1ccc([*:2])s1")]
+    prepared = _batch(tmp_path, rows, PolymerOptions(n_max=2))
+    manifest = pd.read_csv(prepared / "manifest.csv", dtype=str, keep_default_na=False)
+    assert list(manifest.status) == ["rejected", "ok", "ok", "rejected"]
+    assert list(manifest.reason) == ["oligomer_build_failed", "", "", "oligomer_build_failed"]
+    assert "could not be built" in manifest.error[0] and "kekulize" in manifest.error[0]
+    assert manifest.key[0] == "" and manifest.duplicate_of[3] == ""
+    olig = read_oligomers(prepared / "oligomers.csv")
+    assert set(olig.polymer_id) == {"cz"}
+    shards = pd.concat([pd.read_csv(p, dtype=str, keep_default_na=False) for p in prepared.glob("shard-*.csv")])
+    assert not shards["id"].str.startswith("pt").any() and "benz" in set(shards["id"])
+    meta = json.loads((prepared / "manifest.meta.json").read_text())
+    assert meta["counts"]["rejected"] == 2 and meta["counts"]["ok"] == 2

@@ -894,3 +894,79 @@ def test_a_cis_trans_mark_on_the_attachment_bond_is_noted_not_lost_silently() ->
     inside = _one("[*]c1ccc(/C=C/c2ccc([*])cc2)cc1")
     assert inside["status"] == "ok" and "attachment_stereo" not in inside["note"]
     assert "attachment_stereo" not in _one("C/C=C/C")["note"]  # molecules: marks are kept, nothing to say
+
+
+# ----------------------------------------------------------------------------------------------
+# a new-user robustness audit of the input handling: refused files, trimmed ids
+# ----------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("damage", ["truncated", "not_gzip", "corrupt"])
+def test_unreadable_gzip_file_is_refused_naming_the_file(tmp_path: Path, damage: str) -> None:
+    data = gzip.compress(b"id,smiles\nq1,c1ccsc1\nq2,c1ccccc1\n")
+    bad = {"truncated": data[: len(data) // 2], "not_gzip": b"id,smiles\nq1,c1ccsc1\n",
+           "corrupt": data[:-8] + bytes(8)}[damage]  # corrupt: CRC and length zeroed
+    path = tmp_path / "c.csv.gz"
+    path.write_bytes(bad)
+    with pytest.raises(InputError, match="not a readable gzip file") as err:
+        read_candidates(path)
+    assert str(path) in str(err.value)
+
+
+def test_csv_saved_as_smi_is_refused(tmp_path: Path) -> None:
+    path = tmp_path / "c.smi"
+    path.write_text("id,smiles\nB1,c1ccccc1\n", encoding="utf-8")
+    with pytest.raises(InputError, match=r"looks like comma-separated CSV .*rename it to \.csv"):
+        read_candidates(path)
+    path.write_text("# exported\nB1,c1ccccc1\n", encoding="utf-8")  # no header: a comma is still no SMILES
+    with pytest.raises(InputError, match="no SMILES contains one"):
+        read_candidates(path)
+    path.write_text("SMILES, ID\nc1ccccc1, B1\n", encoding="utf-8")
+    with pytest.raises(InputError, match="is a CSV header"):
+        read_candidates(path)
+
+
+def test_smi_file_with_commas_in_the_names_is_still_read(tmp_path: Path) -> None:
+    path = tmp_path / "c.smi"
+    path.write_text("c1ccccc1 benzene, dry\nc1ccsc1 thiophene\n", encoding="utf-8")
+    frame = read_candidates(path)
+    assert list(frame.id) == ["benzene, dry", "thiophene"] and list(frame.smiles_input) == ["c1ccccc1", "c1ccsc1"]
+
+
+def test_ids_differing_only_by_surrounding_blanks_are_one_id(tmp_path: Path) -> None:
+    path = tmp_path / "c.csv"
+    path.write_text('id,smiles\ndup,CCO\n" dup ",CCC\n  x\t,CCCC\n', encoding="utf-8")
+    out = validate(read_candidates(path))
+    assert list(out.id) == ["dup", "dup", "x"]
+    assert list(out.status) == ["ok", "rejected", "ok"]
+    assert out.reason[1] == "duplicate_id" and "line 2 of a CSV file" in out.error[1]
+
+
+@pytest.mark.parametrize(("header", "name", "columns"), [
+    (["id", "smiles", "name", "SMILES"], "smiles", "2 and 4"),
+    (["smiles", "id", " ID "], "id", "2 and 3"),
+    (["id", "smiles", "Role", "role"], "role", "3 and 4"),
+    (["id", "smiles", "batch", "batch"], "batch", "3 and 4"),
+])
+def test_csv_naming_a_column_twice_is_refused(tmp_path: Path, header: list[str], name: str, columns: str) -> None:
+    path = _write_csv(tmp_path / "c.csv", header, [["a"] * len(header)])
+    with pytest.raises(InputError) as err:
+        read_candidates(path)
+    assert f"column '{name}' appears twice (columns {columns}); keep one" in str(err.value)
+
+
+def test_csv_with_blank_trailing_header_cells_is_still_read(tmp_path: Path) -> None:
+    path = tmp_path / "c.csv"
+    path.write_text("id,smiles,,\na,CCO,,\n", encoding="utf-8")
+    frame = read_candidates(path)
+    assert list(frame.id) == ["a"] and list(frame.smiles_input) == ["CCO"]
+
+
+def test_empty_allowed_elements_is_refused() -> None:
+    from screen.errors import ConfigError
+    from screen.schema import resolve
+
+    with pytest.raises(ConfigError, match="allowed_elements is empty"):
+        PrepareOptions(allowed_elements=())
+    with pytest.raises(ConfigError, match="allowed_elements"):
+        resolve({"prepare": {"allowed_elements": []}})

@@ -20,12 +20,15 @@ a user's candidate list into
 
 Input formats
 -------------
-The format is chosen from the file extension (a trailing ``.gz`` is accepted for every format):
+The format is chosen from the file extension (a trailing ``.gz`` is accepted for every format; a
+``.gz`` file that is not whole, readable gzip data is refused with ``not a readable gzip file``):
 
 ``.csv``
     Header row with at least a ``smiles`` column; ``id``, ``name`` and ``role`` are recognised
     (header matching ignores case and surrounding blanks); every other column is passed
-    through verbatim.  All fields are read as text, so ids such as ``007`` or ``NA`` survive
+    through verbatim.  A header that names a column twice (``smiles`` and ``SMILES``, two ``id``
+    columns, or any other name exactly repeated) is refused: which one is meant cannot be
+    guessed.  All fields are read as text, so ids such as ``007`` or ``NA`` survive
     unchanged (the equivalent of ``pandas.read_csv(dtype=str, keep_default_na=False)``; the
     :mod:`csv` module is used so that a malformed line becomes a rejected row in its place
     instead of aborting the read or being dropped).  Lines that are empty, or whose fields are
@@ -33,7 +36,8 @@ The format is chosen from the file extension (a trailing ``.gz`` is accepted for
 ``.smi``, ``.smiles``, ``.txt``
     ``SMILES<whitespace>id`` per line; the id is the rest of the line (it may contain blanks).
     Blank lines and lines starting with ``#`` are skipped, as is a first line whose first token
-    is literally ``smiles`` (a header).
+    is literally ``smiles`` (a header).  A first line with a comma in its first token (no SMILES
+    contains one: a CSV saved as ``.smi``) refuses the file with a hint to rename it ``.csv``.
 ``.sdf``, ``.sd``
     The title line of each record is the id; the data items ``name`` and ``role`` (any case)
     fill those columns, other data items are passed through.  A record that RDKit cannot read
@@ -100,7 +104,12 @@ A rejected row carries exactly one reason (the first problem found, in this orde
 ``bad_role``            ``role`` other than ``donor``, ``acceptor`` or empty (case and
                         surrounding blanks are ignored; the value is stored in lower case).
 ``duplicate_id``        second and later rows whose id was already used by an earlier row
-                        (whatever that row's status); the message names the first row.
+                        (whatever that row's status); the message names the first row.  Ids are
+                        compared (and stored) without surrounding blanks: ``" dup "`` repeats ``dup``.
+``oligomer_build_failed`` a polymer repeat unit that passed every check but whose oligomer series
+                        could not be built (any exception of :mod:`screen.oligomers`); the message
+                        gives the exception's text.  Only this row is rejected
+                        (:func:`screen.prepare.polymers.build_oligomers`).
 ``internal_error``      an unexpected exception while checking this row (the batch goes on).
 
 Rows that are accepted may carry informative notes in the ``note`` column, as ``code: text``
@@ -156,7 +165,7 @@ from pathlib import Path
 from screen.chem import structure_key
 from screen.prepare.checks import REASON_CODES
 from screen.prepare.options import PrepareOptions
-from screen.prepare.polymers import OLIGOMER_COLUMNS, PolymerOptions, compute_rows, oligomer_table, read_oligomers
+from screen.prepare.polymers import OLIGOMER_COLUMNS, PolymerOptions, build_oligomers, compute_rows, read_oligomers
 from screen.prepare.readers import read_candidates
 from screen.prepare.shards import (
     MANIFEST_COLUMNS,
@@ -238,6 +247,6 @@ def prepare(
     path = Path(path)
     frame = read_candidates(path)
     manifest = validate(frame, options)
-    oligomers = oligomer_table(manifest, polymer, truncate_min_carbons)
+    manifest, oligomers = build_oligomers(manifest, polymer, truncate_min_carbons)  # unbuildable: that row rejected
     shards = shard(compute_rows(manifest, oligomers), options)
     return write_prepared(manifest, shards, path, Path(out_dir), options, oligomers=oligomers, polymer=polymer)

@@ -35,7 +35,8 @@ from screen.prepare.options import PrepareOptions
 
 __all__ = ["REASON_CODES", "NONMETALS", "snippet"]
 
-#: Every reason code :func:`screen.prepare.validate` can emit (``''`` for ``ok`` rows).
+#: Every reason code a manifest row can carry (``''`` for ``ok`` rows): those of :func:`screen.prepare.validate`,
+#: and ``oligomer_build_failed`` of :func:`screen.prepare.polymers.build_oligomers`.
 REASON_CODES: tuple[str, ...] = (
     "malformed_row",
     "empty",
@@ -52,6 +53,7 @@ REASON_CODES: tuple[str, ...] = (
     "too_many_atoms",
     "bad_role",
     "duplicate_id",
+    "oligomer_build_failed",
     "internal_error",
 )
 

@@ -67,8 +67,8 @@ class PrepareOptions:
     Raises
     ------
     screen.errors.ConfigError
-        If a numeric setting is out of range or an element symbol is unknown; the message
-        names the field and the allowed values.  (``ConfigError`` is a ``ValueError``.)
+        If a numeric setting is out of range, an element symbol is unknown or no element is
+        allowed; the message names the field and the allowed values.  (``ConfigError`` is a ``ValueError``.)
     """
 
     max_heavy_atoms: int = _DEFAULTS["max_heavy_atoms"]
@@ -87,6 +87,11 @@ class PrepareOptions:
                 f"not the string {self.allowed_elements!r}"
             )
         object.__setattr__(self, "allowed_elements", tuple(self.allowed_elements))
+        if not self.allowed_elements:
+            raise ConfigError(
+                "PrepareOptions.allowed_elements is empty: every candidate would be rejected; list the "
+                "element symbols a candidate may contain, e.g. ['H', 'C', 'N', 'O', 'S']"
+            )
         unknown = [s for s in self.allowed_elements if s not in KNOWN_ELEMENTS]
         if unknown:
             raise ConfigError(

@@ -23,6 +23,14 @@ Examples
 ([1, 2, 3], ['c1ccsc1', 'c1csc(-c2cccs2)c1', 'c1csc(-c2ccc(-c3cccs3)s2)c1'])
 >>> list(compute_rows(manifest, table)["representation"])
 ['oligomer', 'oligomer', 'oligomer', 'molecule']
+
+A repeat unit whose oligomers cannot be built rejects its own row only (:func:`build_oligomers`):
+
+>>> def broken(*args):
+...     raise ValueError("Can't kekulize mol.")
+>>> checked, table = build_oligomers(manifest, PolymerOptions(n_max=2), oligomer_series=broken)
+>>> list(checked["status"]), checked["reason"][0], len(table)
+(['rejected', 'ok'], 'oligomer_build_failed', 0)
 """
 
 from __future__ import annotations
@@ -32,20 +40,25 @@ from dataclasses import dataclass, fields
 from typing import Any
 
 import pandas as pd
-from rdkit import Chem
+from rdkit import Chem, rdBase
 
+from screen import oligomers as _oligomers
 from screen.chem import canonical_smiles, structure_key
 from screen.errors import ConfigError
-from screen.oligomers import CAPS, RepeatUnit, oligomer_series
+from screen.oligomers import CAPS, RepeatUnit
 from screen.schema import section_defaults
 
-__all__ = ["PolymerOptions", "OLIGOMER_COLUMNS", "oligomer_table", "compute_rows", "read_oligomers",
-           "truncation_min_carbons"]
+__all__ = ["PolymerOptions", "OLIGOMER_COLUMNS", "BUILD_FAILED", "oligomer_table", "build_oligomers",
+           "compute_rows", "read_oligomers", "truncation_min_carbons"]
 
 _DEFAULTS: dict[str, Any] = section_defaults("polymer")
 
 #: columns of ``prepared/oligomers.csv``: the polymer's key and id, then one row per oligomer
 OLIGOMER_COLUMNS = ("polymer_key", "polymer_id", "n", "key", "smiles", "n_atoms", "per_unit", "side_chains_cut")
+
+#: reason code of a polymer row whose oligomer series could not be built (one of
+#: :data:`screen.prepare.checks.REASON_CODES`)
+BUILD_FAILED = "oligomer_build_failed"
 
 
 @dataclass(frozen=True)
@@ -136,7 +149,8 @@ def _computed_atoms(min_carbons: int):
 
 
 def oligomer_table(manifest: pd.DataFrame, options: PolymerOptions = PolymerOptions(),
-                   truncate_min_carbons: int | None = None) -> pd.DataFrame:
+                   truncate_min_carbons: int | None = None, failures: dict[str, str] | None = None,
+                   oligomer_series=None) -> pd.DataFrame:
     """One row per (polymer, n): the oligomers of every accepted polymer row.
 
     Parameters
@@ -147,6 +161,12 @@ def oligomer_table(manifest: pd.DataFrame, options: PolymerOptions = PolymerOpti
     truncate_min_carbons : int, optional
         When the structures stage truncates side chains (``structures.truncate_min_carbons``),
         ``max_atoms`` counts the atoms of the truncated oligomer, the one computed.
+    failures : dict, optional
+        When given, a polymer whose series cannot be built (any exception, e.g. RDKit's
+        ``KekulizeException``) gets no rows and ``failures[polymer key]`` says why in words;
+        without it the exception propagates.
+    oligomer_series : callable, optional
+        The series builder (default :func:`screen.oligomers.oligomer_series`; tests replace it).
 
     Returns
     -------
@@ -161,18 +181,82 @@ def oligomer_table(manifest: pd.DataFrame, options: PolymerOptions = PolymerOpti
     poly = manifest[manifest["status"].eq("ok") & manifest["representation"].eq("polymer")]
     seen: set[str] = set()
     count = _computed_atoms(truncate_min_carbons) if truncate_min_carbons else None
+    series = oligomer_series or _oligomers.oligomer_series
     for pkey, pid, smi in zip(poly["key"], poly["id"], poly["smiles"]):
         if pkey in seen:
             continue
         seen.add(pkey)
-        cut_smi, cuts = methyl_side_chains(smi, truncate_min_carbons) if truncate_min_carbons else (smi, [])
-        unit = RepeatUnit.from_smiles(cut_smi)
-        for n, osmi in oligomer_series(unit, options.n_max, options.max_atoms, options.cap, count):
-            osmi = canonical_smiles(osmi)  # the prepare stage's form: equal molecules share a key
-            rows.append({"polymer_key": pkey, "polymer_id": pid, "n": n, "key": structure_key(osmi),
-                         "smiles": osmi, "n_atoms": _atoms_with_h(osmi), "per_unit": unit.conjugation_length,
-                         "side_chains_cut": ";".join(cuts)})
+        try:
+            with rdBase.BlockLogs():  # RDKit's own log lines would reach the terminal; the message says it
+                rows.extend(_series_rows(pkey, pid, smi, options, truncate_min_carbons, count, series))
+        except Exception as exc:  # one row's problem never stops the batch
+            if failures is None:
+                raise
+            failures[pkey] = _build_failure(exc, options)
     return pd.DataFrame(rows, columns=list(OLIGOMER_COLUMNS))
+
+
+def _series_rows(pkey: str, pid: str, smi: str, options: PolymerOptions, truncate_min_carbons: int | None,
+                 count, series) -> list[dict]:
+    """The rows of :func:`oligomer_table` for one polymer (raises whatever building them raises)."""
+    cut_smi, cuts = methyl_side_chains(smi, truncate_min_carbons) if truncate_min_carbons else (smi, [])
+    unit = RepeatUnit.from_smiles(cut_smi)
+    rows = []
+    for n, osmi in series(unit, options.n_max, options.max_atoms, options.cap, count):
+        osmi = canonical_smiles(osmi)  # the prepare stage's form: equal molecules share a key
+        rows.append({"polymer_key": pkey, "polymer_id": pid, "n": n, "key": structure_key(osmi),
+                     "smiles": osmi, "n_atoms": _atoms_with_h(osmi), "per_unit": unit.conjugation_length,
+                     "side_chains_cut": ";".join(cuts)})
+    return rows
+
+
+def _build_failure(exc: BaseException, options: PolymerOptions) -> str:
+    """The plain-words message of a polymer row whose oligomers could not be built.
+
+    >>> _build_failure(ValueError("Can't kekulize mol."), PolymerOptions(n_max=3)).split("screened: ")
+    ['the oligomers of this repeat unit (n = 1 … 3, ends capped with H) could not be built, so it is not ', \
+"ValueError: Can't kekulize mol.; check the two attachment points [*] and the rings they sit on, or write the unit \
+another way"]
+    """
+    lines = str(exc).strip().splitlines()
+    detail = f"{type(exc).__name__}: {lines[0].strip()}" if lines else type(exc).__name__
+    return (f"the oligomers of this repeat unit (n = 1 … {options.n_max}, ends capped with {options.cap}) could not be "
+            f"built, so it is not screened: {detail}; check the two attachment points [*] and the rings they sit on, "
+            "or write the unit another way")
+
+
+def build_oligomers(manifest: pd.DataFrame, options: PolymerOptions = PolymerOptions(),
+                    truncate_min_carbons: int | None = None,
+                    oligomer_series=None) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The oligomer table of a validated manifest, and the manifest with unbuildable polymers rejected.
+
+    Every accepted polymer row whose series cannot be built (:func:`oligomer_table` with ``failures``)
+    becomes ``status = rejected``, reason :data:`BUILD_FAILED`, with the message in ``error`` (the
+    exception's own text included); its ``key`` and ``duplicate_of`` are cleared, as for any rejected row.
+    The other rows and their oligomers are untouched: the batch goes on.
+
+    Returns
+    -------
+    tuple of pandas.DataFrame
+        ``(manifest, oligomers)``; the manifest is a copy when a row was rejected.
+    """
+    failures: dict[str, str] = {}
+    table = oligomer_table(manifest, options, truncate_min_carbons, failures=failures, oligomer_series=oligomer_series)
+    if not failures:
+        return manifest, table
+    out = manifest.copy()
+    for col in ("reason", "error", "duplicate_of"):
+        if col not in out.columns:
+            out[col] = ""
+    hit = out["status"].eq("ok") & out["key"].isin(list(failures))
+    if "representation" in out.columns:
+        hit &= out["representation"].eq("polymer")
+    out["error"] = out["error"].where(~hit, out["key"].map(failures))
+    out.loc[hit, "status"] = "rejected"
+    out.loc[hit, "reason"] = BUILD_FAILED
+    out.loc[hit, "key"] = ""
+    out.loc[hit, "duplicate_of"] = ""
+    return out, table
 
 
 def compute_rows(manifest: pd.DataFrame, oligomers: pd.DataFrame) -> pd.DataFrame:

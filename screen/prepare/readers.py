@@ -4,7 +4,8 @@
 input record in input order.  A record that cannot be read (a CSV line with too many fields,
 an SDF record RDKit rejects) becomes a row with a ``read_error`` instead of stopping the read;
 :func:`screen.prepare.validate` turns it into a rejection.  A problem with the file as a whole
-(unknown extension, not UTF-8, no ``smiles`` column) raises :class:`screen.errors.InputError`.
+(unknown extension, not readable gzip, not UTF-8, no ``smiles`` column or one named twice, CSV text in a
+SMILES file) raises :class:`screen.errors.InputError`.
 
 Examples
 --------
@@ -23,6 +24,7 @@ import gzip
 import io
 import os
 import re
+import zlib
 from pathlib import Path
 from typing import Any
 
@@ -69,8 +71,27 @@ def _format_of(path: Path) -> tuple[str, bool]:
 
 
 def _read_text(path: Path, gz: bool) -> str:
-    """Read the whole file as UTF-8 text (a byte-order mark is ignored)."""
-    raw = gzip.decompress(path.read_bytes()) if gz else path.read_bytes()
+    """Read the whole file as UTF-8 text (a byte-order mark is ignored).
+
+    A ``.gz`` file that is not gzip data, or is truncated or corrupt, raises :class:`InputError`:
+
+    >>> import pathlib, tempfile
+    >>> bad = pathlib.Path(tempfile.mkdtemp()) / "c.csv.gz"
+    >>> _ = bad.write_bytes(gzip.compress(b"id,smiles\\na,CCO\\n")[:15])
+    >>> _read_text(bad, True)  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    screen.errors.InputError: not a readable gzip file: ...c.csv.gz (...); ...
+    """
+    raw = path.read_bytes()
+    if gz:
+        try:
+            raw = gzip.decompress(raw)
+        except (OSError, EOFError, zlib.error) as exc:  # gzip.BadGzipFile is an OSError
+            raise InputError(
+                f"not a readable gzip file: {path} ({exc}); check that it was copied whole, or give the "
+                "uncompressed file"
+            ) from None
     try:
         return raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
@@ -92,6 +113,34 @@ def _unique_column(name: str, taken: set[str]) -> str:
     while out in _RESERVED or out in taken or out.startswith(_WRITTEN_PREFIXES):
         out = "input_" + out
     return out
+
+
+#: CSV columns the reader interprets (matched ignoring case and surrounding blanks)
+_INTERPRETED = ("id", "smiles", "name", "role")
+
+
+def _check_repeated_columns(path: Path, header: list[str]) -> None:
+    """Refuse a header that names a column twice: which of the two is meant cannot be guessed.
+
+    The interpreted columns (:data:`_INTERPRETED`) are compared ignoring case (``SMILES`` and
+    ``smiles`` are one column), any other by its exact name; blank names (empty cells after the last
+    column of a spreadsheet export) are not compared.
+
+    >>> _check_repeated_columns(Path("c.csv"), ["id", "smiles", "note", "Note", "SMILES"])
+    Traceback (most recent call last):
+    ...
+    screen.errors.InputError: c.csv: column 'smiles' appears twice (columns 2 and 5); keep one
+    >>> _check_repeated_columns(Path("c.csv"), ["id", "smiles", "", ""])
+    """
+    first: dict[str, int] = {}
+    for i, name in enumerate(header, start=1):
+        name = name.strip()
+        if not name:
+            continue
+        same = name.lower() if name.lower() in _INTERPRETED else name
+        if same in first:
+            raise InputError(f"{path}: column {same!r} appears twice (columns {first[same]} and {i}); keep one")
+        first[same] = i
 
 
 def _read_csv(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
@@ -116,11 +165,10 @@ def _read_csv(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
                         f"{path}: no 'smiles' column; columns found: {header}. "
                         "A candidate CSV needs a header with at least 'smiles' (and usually 'id')"
                     )
+                _check_repeated_columns(path, header)
                 taken: set[str] = set()
-                standard: set[str] = set()
                 for i, (h, low) in enumerate(zip(header, lowered)):
-                    if low in ("id", "smiles", "name", "role") and low not in standard:
-                        standard.add(low)
+                    if low in _INTERPRETED:
                         mapping[i] = "smiles_input" if low == "smiles" else low
                     else:
                         out = _unique_column(h or f"column_{i + 1}", taken)
@@ -146,6 +194,26 @@ def _read_csv(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
     return records, passthrough
 
 
+def _refuse_csv_as_smi(path: Path, line: str) -> None:
+    """Refuse a SMILES file whose first line holds a comma in its SMILES token: no SMILES has one.
+
+    A ``.smi`` line is ``SMILES<whitespace>id``; a comma in the first token means comma-separated
+    text, typically a CSV saved under a SMILES extension (every row would be rejected as a syntax error
+    and its header screened as a molecule).
+
+    >>> _refuse_csv_as_smi(Path("c.smi"), "id,smiles")
+    Traceback (most recent call last):
+    ...
+    screen.errors.InputError: c.smi looks like comma-separated CSV (its first line 'id,smiles' is a CSV header, \
+not SMILES<whitespace>id); rename it to .csv
+    """
+    header = "smiles" in [f.strip().lower() for f in line.split(",")]
+    what = ("is a CSV header, not SMILES<whitespace>id" if header
+            else "has a comma in its first field, and no SMILES contains one")
+    hint = "rename it to .csv" if header else "rename it to .csv and give it a header line with a 'smiles' column"
+    raise InputError(f"{path} looks like comma-separated CSV (its first line {_snippet(line)} {what}); {hint}")
+
+
 def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
     """Parse a SMILES file (``SMILES<whitespace>id`` per line)."""
     records: list[dict[str, str]] = []
@@ -155,6 +223,8 @@ def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
         if not stripped or stripped.startswith("#"):
             continue
         parts = stripped.split(None, 1)
+        if first_data and "," in parts[0]:
+            _refuse_csv_as_smi(path, stripped)
         if first_data and parts[0].lower() == "smiles":
             first_data = False
             continue
@@ -366,8 +436,10 @@ def read_candidates(path: str | os.PathLike[str]) -> pd.DataFrame:
     Raises
     ------
     screen.errors.InputError
-        Unknown extension, text that is not UTF-8, a CSV without a ``smiles`` column (the
-        message names the file and the columns found) or an unrecoverable CSV syntax error.
+        Unknown extension, a ``.gz`` file that is not readable gzip data, text that is not UTF-8,
+        a CSV without a ``smiles`` column (the message names the file and the columns found) or
+        with a column named twice, a SMILES file that is comma-separated text, or an
+        unrecoverable CSV syntax error.
     FileNotFoundError
         If ``path`` does not exist.
     """

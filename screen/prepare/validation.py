@@ -83,7 +83,8 @@ def validate(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) ->
         return [_text(v) for v in frame[name]] if name in frame.columns else [""] * n
 
     smiles_in = column(smiles_col)
-    ids, id_notes = _assign_missing_ids(column("id"), rows)
+    # ids without surrounding blanks (as roles): " dup " is the id dup, so a repeat of it is a duplicate_id
+    ids, id_notes = _assign_missing_ids([ident.strip() for ident in column("id")], rows)
     prior_notes = column("note")
     roles_raw = column("role")
     read_errors = column("read_error")
