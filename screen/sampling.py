@@ -219,11 +219,11 @@ def _block_moments(v: np.ndarray, target: float, n_samples: int):
     a constant row gives exactly 0.
     """
     p_above = np.count_nonzero(v > target, axis=1) / n_samples
-    mean = v.mean(axis=1)
     ok = v > 0.0
     count = np.count_nonzero(ok, axis=1)
-    centre = np.where(ok, v, 0.0).sum(axis=1) / np.maximum(count, 1)
-    v -= centre[:, None]
+    total = v.sum(axis=1)  # a sample that is not viable is exactly 0
+    mean = total / n_samples
+    v -= (total / np.maximum(count, 1))[:, None]
     v *= ok
     s2 = np.einsum("ij,ij->i", v, v)
     sigma = np.where(count >= 2, np.sqrt(s2 / np.maximum(count - 1, 1)), 0.0)
