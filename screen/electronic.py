@@ -14,7 +14,11 @@ Positive EA means the anion is bound. A neutral whose orbital gap is below
 structure gives no usable levels). Orbital energies of the neutral
 (HOMO, LUMO) are reported too. All values here are *raw* engine values on the
 isolated-molecule (gas) scale; GFN2-xTB ΔSCF IPs are systematically too large
-by several eV, which is why the calibration stage exists.
+by several eV, which is why the calibration stage exists. Every single point is
+spin-restricted (the doublet ions have one orbital set for both spins); tblite's spin
+polarisation would shift the IPs by about −0.06 eV and the EAs by +0.06–0.08 eV, almost
+uniformly (thiophene, naphthalene; an engine audit's figures), which the linear
+calibration absorbs.
 
 References
 ----------

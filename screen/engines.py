@@ -262,7 +262,8 @@ class Engine(ABC):
         ScfError
             No rung converged.
         EngineError
-            Invalid input (for example an electron count incompatible with ``uhf``).
+            Invalid input (for example an electron count incompatible with ``uhf``), or a backend result with
+            a non-finite energy, orbital energy or occupation.
         """
         numbers = np.ascontiguousarray(numbers, dtype=np.int32)
         positions = np.ascontiguousarray(positions_bohr, dtype=np.float64)
@@ -282,6 +283,10 @@ class Engine(ABC):
             except ScfError as exc:
                 errors.append(f"rung {rung}: {exc}")
                 continue
+            if not (np.isfinite(out["energy"]) and np.all(np.isfinite(out["eps"]))
+                    and np.all(np.isfinite(out["occ"]))):  # never pass a NaN on as a number
+                raise EngineError(f"{self.name} returned a non-finite energy or orbital energy (charge {charge}, "
+                                  f"{uhf} unpaired electrons): the calculation is broken")
             valence_electrons = int(round(float(np.sum(out["occ"]))))
             return SinglePoint(
                 energy_eh=float(out["energy"]), orbital_energies_eh=np.asarray(out["eps"], dtype=float),
@@ -369,7 +374,8 @@ class XtbEngine(Engine):
     """GFN-xTB through ``xtb-python`` (optional second backend, Python ≤ 3.11).
 
     Implicit solvation, a dielectric continuum, the AO overlap and SCF restarts
-    are not offered through this backend.
+    are not offered through this backend, nor is the mixer damping of :data:`SCF_LADDER`
+    (its rungs only raise the iteration limit here).
     """
 
     name = "xtb"

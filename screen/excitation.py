@@ -21,7 +21,14 @@ with U_A = 2η_A from absolute hardnesses η (Pearson [4]_; values from memory):
     K_HL = Σ_AB q_A^{HL} q_B^{HL} γ_AB,   J_HL = Σ_AB q_A^{HH} q_B^{LL} γ_AB.
 
 They are descriptors for the optical-gap calibration (``screen.calibrate``), not
-excitation energies on their own.
+excitation energies on their own. Unlike sTDA, one unscreened kernel serves both
+integrals: sTDA damps the Coulomb kernel of J more strongly and scales exchange with
+the hybrid functional's Fock fraction a_x ([1]_: γ^J = (R^β + (a_x η̄)^−β)^−1/β,
+γ^K = (R^α + η̄^−α)^−1/α), so K here is within about 10–15 % of sTDA's (naphthalene
+0.70 eV here, 0.75–0.77 eV with sTDA kernels at a_x = 0.5–0.25, an engine audit's
+figures) but J is the bare Coulomb attraction (naphthalene 5.4 eV against 1.4–3.0 eV),
+and Δε − J + 2K built from it (the optical-gap feature ``xtb_s1j_ev`` the selection
+may try) is no singlet energy. The shipped optical-gap models chose neither K nor J.
 
 References
 ----------

@@ -41,6 +41,8 @@ from __future__ import annotations
 import numpy as np
 from rdkit import Chem
 
+from screen.constants import BOHR_ANGSTROM
+
 __all__ = ["LONE_PAIR_WEIGHT", "two_coordinate_nitrogen", "lone_pair_weights", "pi_homo"]
 
 #: an occupied orbital with more than this share of its population in nitrogen σ lone pairs is not the π HOMO
@@ -51,11 +53,10 @@ BOND_FACTOR = 1.25
 P_AXES = (1, 2, 0)
 
 _PT = Chem.GetPeriodicTable()
-_BOHR_ANGSTROM = 0.529177210903
 
 
 def _neighbours(numbers: np.ndarray, positions_bohr: np.ndarray) -> list[np.ndarray]:
-    radii = np.array([_PT.GetRcovalent(int(z)) for z in numbers]) / _BOHR_ANGSTROM
+    radii = np.array([_PT.GetRcovalent(int(z)) for z in numbers]) / BOHR_ANGSTROM
     dist = np.linalg.norm(positions_bohr[:, None, :] - positions_bohr[None, :, :], axis=-1)
     bonded = dist < BOND_FACTOR * (radii[:, None] + radii[None, :])
     np.fill_diagonal(bonded, False)

@@ -65,6 +65,22 @@ def test_unconverged_energy_is_never_returned():
         eng.singlepoint(z, pos, ladder=({"max_iter": 1}, {"max_iter": 2}))
 
 
+def test_a_non_finite_result_is_never_returned(monkeypatch):
+    # an engine audit injected a NaN film-anion energy and the row came back ok with a NaN EA
+    z, pos = _benzene()
+    eng = make_engine()
+    real = type(eng)._run
+
+    def nan_energy(self, *args, **kwargs):
+        out = dict(real(self, *args, **kwargs))
+        out["energy"] = float("nan")
+        return out
+
+    monkeypatch.setattr(type(eng), "_run", nan_energy)
+    with pytest.raises(EngineError, match="non-finite"):
+        eng.singlepoint(z, pos)
+
+
 def test_unknown_engine_and_method_messages():
     with pytest.raises(EngineError, match="unknown engine 'orca'"):
         make_engine("orca")

@@ -127,3 +127,20 @@ def test_near_zero_orbital_gap_fails_the_row(monkeypatch):
     monkeypatch.setattr(sanity, "MIN_GAP_EV", 50.0)  # every molecule's gap is now "too small"
     with pytest.raises(BrokenStructureError, match=r"orbital gap \d+\.\d\d eV is below 50\.00 eV"):
         vertical_levels(z, pos, make_engine())
+
+
+def test_a_stretched_bond_to_a_heavy_atom_is_caught():
+    # a referee's audit: thiophene with its C-S bond at 2.2 A (normal 1.71-1.72 A, CRC Handbook bond lengths, from
+    # memory) passed the 1.3 x sum-of-radii limit (2.35 A for C-S, Cordero et al. 2008 radii 0.76 + 1.05 A) and got
+    # an EA 1.0 eV too high; the limit is now the sum of radii + 0.35 A where that is tighter
+    mol = Chem.AddHs(Chem.MolFromSmiles("c1ccsc1"))
+    AllChem.EmbedMolecule(mol, randomSeed=7)
+    AllChem.MMFFOptimizeMolecule(mol)
+    assert geometry_problems(mol) == []
+    s = next(a.GetIdx() for a in mol.GetAtoms() if a.GetSymbol() == "S")
+    c = next(n.GetIdx() for n in mol.GetAtomWithIdx(s).GetNeighbors())
+    conf = mol.GetConformer()
+    ps, pc = np.array(conf.GetAtomPosition(s)), np.array(conf.GetAtomPosition(c))
+    conf.SetAtomPosition(c, (ps + (pc - ps) / np.linalg.norm(pc - ps) * 2.2).tolist())
+    problems = geometry_problems(mol)
+    assert problems and problems[0].startswith("bond ") and "2.20 Å (limit 2.16 Å)" in problems[0]
