@@ -44,10 +44,11 @@ def cmd_run(args) -> int:
     """Check the inputs, then run the workflow through Snakemake in a subprocess."""
     from screen.partners import split_partners
     from screen.preflight import (check_calibration, check_candidates, check_out, check_partner_scales,
-                                  check_partners)
+                                  check_partners, check_profile, check_run_partners)
 
     candidates = Path(args.candidates)
     check_candidates(candidates)
+    check_profile(args.profile)  # a missing folder was ignored, a broken one stopped the engine with its usage text
     if args.partner is not None and not args.partner.strip(","+" "):
         raise ConfigError(f"--partner {args.partner!r} names no partner; give a library name (`dascreen partners`), "
                           "a one-row levels CSV, smiles:<SMILES> or id:<ID>, or leave --partner out for the default")
@@ -55,15 +56,18 @@ def cmd_run(args) -> int:
     if len(partners) > 1:
         raise ConfigError(f"--partner {args.partner!r}: `dascreen run` ranks against one partner; run with one and "
                           "then `dascreen rank --partner a,b,...` for the partner matrix")
-    check_partners(partners)
+    check_partners(partners, role=args.role, roles_of=candidates)
     out = Path(args.out).resolve()
-    check_out(out, candidates, overwrite=args.overwrite)
+    check_out(out, candidates, overwrite=args.overwrite, given=args.out)
     cfg = _load(args, {"candidates": str(candidates.resolve()), "out": str(out),
                        "partner": _partner_arg(partners[0] if partners else None),
-                       "strict": True if args.strict else None})
+                       "strict": True if args.strict else None, "rank": {"role": args.role}})
     if not partners:  # the partner of the config (file or default): checked like a --partner
-        check_partners([cfg["partner"]])
+        check_partners([cfg["partner"]], role=cfg["rank"]["role"], roles_of=candidates)
     check_partner_scales(partners or [cfg["partner"]], cfg["levels"]["scale"])
+    # an id: partner that is no candidate, or a partner without a role among candidates of both roles, was found
+    # by the ranking job after every level was computed (exit 1 and a traceback)
+    check_run_partners(partners or [cfg["partner"]], candidates, cfg["rank"])
     check_calibration(cfg, out, args.config)  # hours of reference computation only when asked for
     notice = calibration_notice(cfg, out)
     if notice:
@@ -97,7 +101,7 @@ def cmd_calibrate(args) -> int:
     import pandas as pd
 
     from screen.calibrate import load_models, stats_table
-    from screen.preflight import check_out_folder
+    from screen.preflight import check_out_folder, make_out_folder
 
     out = Path(args.out).resolve()
     check_out_folder(out, args.out)
@@ -109,10 +113,16 @@ def cmd_calibrate(args) -> int:
     target = out / "models" / pid
     if args.install and not args.replace_installed:  # refused before anything is computed
         _check_install(Path(args.install).resolve() / pid, cfg, args.install)
+    new = next((p for p in [*reversed(out.parents), out] if not p.exists()), None)  # the first folder made here
+    make_out_folder(out, args.out)  # --out /sys/x gave a traceback
     if args.from_raw:
         from screen.refit import refit_from_raw
 
-        refit_from_raw(cfg, [Path(s).resolve() for s in args.from_raw], out / "models")
+        try:
+            refit_from_raw(cfg, [Path(s).resolve() for s in args.from_raw], out / "models")
+        except DascreenError:  # a refused source: leave no empty folder behind
+            _remove_empty(out, new)
+            raise
     else:
         rc = run_workflow(cfg, out, args.cores, [str(target)], verbose=args.verbose, log_name="calibrate-workflow")
         if rc != 0:
@@ -321,7 +331,8 @@ def cmd_rank(args) -> int:
     """Rank a levels file against one or more partners (a partner matrix for several); a new smiles:
     partner is computed by the workflow first."""
     from screen.partners import partner_kind, split_partners
-    from screen.preflight import check_out_folder, check_partners, check_rank_config, check_rank_sets
+    from screen.preflight import (check_out_folder, check_partners, check_rank_config, check_rank_sets,
+                                  make_out_folder)
     from screen.rank_io import check_before_computing, run_rank
 
     out = Path(args.out).resolve()
@@ -331,7 +342,7 @@ def cmd_rank(args) -> int:
                           "(`dascreen partners`), a one-row levels CSV, smiles:<SMILES> or id:<ID>, or leave "
                           "--partner out for the run's partner")
     partners = split_partners(args.partner or [])
-    if not any(partner_kind(spec) == "smiles" for spec in partners):  # a smiles: partner is computed: they apply
+    if not any(spec.strip().lower().startswith("smiles:") for spec in partners):  # computed: they apply
         check_rank_sets(args.set, "rank")
     levels = Path(args.levels) if args.levels else out / "levels.csv"
     if levels.is_dir():
@@ -350,24 +361,32 @@ def cmd_rank(args) -> int:
     if args.config is None and (out / "config.yaml").is_file():
         args.config = str(out / "config.yaml")  # the run's own settings, so smiles: partners share its protocol
         note = f"dascreen: using the run's configuration {args.config}"  # said once the checks have passed
-    check_partners(partners, levels)
-    check_rank_config(args.config, levels, "rank")
+    check_partners(partners, levels, role=args.role)
+    check_rank_config(args.config, levels, "rank", implied=note is not None)
     # out: a smiles: partner is computed into this folder (not the one a copied run's config.yaml names)
     cfg = _load(args, {**_models_override(args.models), "out": str(out),
                        "rank": {"role": args.role, "sort_by": args.sort_by, "target_pce_pct": args.target_pce}})
     if args.models and Path(args.models).resolve().name != cfg.protocol_id:
         raise ConfigError(f"--models {args.models!r} is not a folder of this run's protocol {cfg.protocol_id}")
     partners = partners or [cfg["partner"]]
-    if any(partner_kind(spec) == "smiles" for spec in partners):  # refused now, not after computing the partner
-        check_before_computing(levels, partners, cfg)
+    smiles = any(partner_kind(spec) == "smiles" for spec in partners)
+    if smiles or len(partners) > 1:  # refused now, not after computing a partner or ranking the ones before it
+        check_before_computing(levels, partners, cfg, out_dir=out)
     if note:
         print(note)
+    computed = {spec: _compute_partner(cfg, out, spec, args.verbose) for spec in partners}  # smiles: ones only
+    if smiles and len(partners) > 1:  # the computed partners' own levels, before any ranking is written
+        check_before_computing(levels, partners, cfg, out_dir=out, partner_levels=computed)
+    new = next((p for p in [*reversed(out.parents), out] if not p.exists()), None)  # the first folder made here
+    make_out_folder(out, args.out)  # before any ranking: --out /sys/x gave a traceback
     paths, replaced = [], []
     try:
         for spec in partners:
-            computed = _compute_partner(cfg, out, spec, args.verbose)
             paths.append(run_rank(levels, spec, out, cfg.with_overrides({"partner": spec}),
-                                  partner_levels=computed, replaced=replaced if len(partners) > 1 else None))
+                                  partner_levels=computed[spec], replaced=replaced if len(partners) > 1 else None))
+    except DascreenError:  # refused before anything was written: leave no empty folder behind
+        _remove_empty(out, new)
+        raise
     except RuntimeError as exc:  # the report failed after the ranking was written
         if isinstance(exc, DascreenError):
             raise
@@ -387,6 +406,19 @@ def cmd_rank(args) -> int:
         for name in dict.fromkeys(replaced):
             refresh_matrices(out, name, skip=(folder,) if len(paths) > 1 else ())
     return EXIT_OK
+
+
+def _remove_empty(out: Path, top: Path | None) -> None:
+    """Remove ``out`` and its parents up to ``top`` (the first folder a command created) while they are empty."""
+    if top is None:
+        return
+    for folder in [out, *out.parents]:
+        try:
+            folder.rmdir()  # only an empty folder
+        except OSError:
+            return
+        if folder == top:
+            return
 
 
 def cmd_partners(args) -> int:
@@ -409,6 +441,8 @@ def cmd_status(args) -> int:
     from screen.preflight import run_active
 
     out = Path(args.out)
+    if not args.out.strip():
+        raise InputError("--out '' names no folder; give the --out folder of a dascreen run")
     if not out.exists():
         raise InputError(f"--out {args.out}: no such folder; give the --out folder of a dascreen run")
     if not out.is_dir():
@@ -484,28 +518,66 @@ _CLI_DEFAULTS = {
 
 def cmd_store(args) -> int:
     """List, export or prune the results store."""
+    from screen.preflight import read_problem
     from screen.store import ResultStore, export_store, store_location, store_text
 
+    if args.action == "export":  # --to x.xyz wrote SD records under another name
+        _check_export_target(args.to)
     path = Path(args.store).expanduser() if args.store else store_location(_load(args, {}))
     if path is None:
         raise ConfigError("no results store: store.path is null (or DASCREEN_STORE is empty); pass --store FILE")
+    if path.is_dir():
+        raise InputError(f"results store {path} is a folder; give the store file (store.path, default "
+                         "~/.cache/dascreen/store.sqlite)")
     if not path.is_file():
         raise InputError(f"results store {path} does not exist (a run creates it)")
-    store = ResultStore(path)
-    if args.action == "list":
-        print(store_text(store, keys=args.keys), end="")
-    elif args.action == "export":
-        n = export_store(store, args.to, protocol=args.protocol)
-        print(f"dascreen: {n} records of {path} -> {args.to}")
-    else:
-        days = args.older_than
-        gone = store.prune(protocols=args.protocol or (), dry_run=args.dry_run,
-                           older_than_s=None if days is None else days * 86400.0)
-        verb = "would delete" if args.dry_run else "deleted"
-        age = f"{gone['old']} older than {days:g} days" if days is not None else "no age limit given"
-        print(f"dascreen: {verb} {sum(gone.values())} rows of {path} ({gone['protocol']} of the given protocols, "
-              f"{age}, {gone['corrupt']} that do not check out)")
+    # checked without changing it (list and export only read): a file that is not a store is refused, never made
+    # into one; prune opens it for writing once it checked out
+    store = ResultStore(path, read_only=True)
+    try:  # closed at the end: the process exits without collecting it, which left the -wal and -shm files
+        store.check()
+        if args.protocol:  # an unknown protocol wrote an empty export and pruned nothing, both with exit 0
+            held = store.protocols()
+            unknown = [p for p in dict.fromkeys(args.protocol) if p not in held]
+            if unknown:
+                raise InputError(f"unknown protocol {', '.join(unknown)}; the store {path} holds: "
+                                 f"{', '.join(held) if held else 'no rows'} (`dascreen store list`)")
+        if args.action == "list":
+            print(store_text(store, keys=args.keys), end="")
+        elif args.action == "export":
+            try:
+                n = export_store(store, args.to, protocol=args.protocol)
+            except OSError as exc:  # /sys/x.sdf gave a traceback
+                raise InputError(f"--to {args.to}: cannot write {Path(args.to).absolute()}: {read_problem(exc)}; "
+                                 "choose a file in a folder you can write to") from None
+            print(f"dascreen: {n} records of {path} -> {args.to}")
+        else:
+            if not args.dry_run:  # checked read-only above; now opened to delete
+                store.close()
+                store = ResultStore(path)
+            days = args.older_than
+            gone = store.prune(protocols=args.protocol or (), dry_run=args.dry_run,
+                               older_than_s=None if days is None else days * 86400.0)
+            verb = "would delete" if args.dry_run else "deleted"
+            age = f"{gone['old']} older than {days:g} days" if days is not None else "no age limit given"
+            print(f"dascreen: {verb} {sum(gone.values())} rows of {path} ({gone['protocol']} of the given "
+                  f"protocols, {age}, {gone['corrupt']} that do not check out)")
+    finally:
+        store.close()
     return EXIT_OK
+
+
+def _check_export_target(to: str) -> None:
+    """Refuse an export file of another type than ``.sdf`` or ``.csv`` or in a folder that does not exist."""
+    target = Path(to).expanduser()
+    if target.suffix.lower() not in (".sdf", ".csv"):
+        raise InputError(f"--to {to}: the export is written as .sdf (geometries with their raw levels) or .csv (every "
+                         f"row); give a file name ending in one of them, e.g. --to {target.stem or 'store-export'}.sdf")
+    if target.is_dir():
+        raise InputError(f"--to {to} is a folder; give a file name, e.g. --to {Path(to) / 'store-export.sdf'}")
+    parent = target.absolute().parent
+    if not parent.is_dir():
+        raise InputError(f"--to {to}: the folder {parent} does not exist; create it first or choose another file")
 
 
 def _add_run(sub) -> None:
@@ -517,6 +589,9 @@ def _add_run(sub) -> None:
     p.add_argument("--partner", default=None,
                    help="partner material: library name (see `dascreen partners`), a one-row levels CSV, "
                         "smiles:<SMILES> or id:<ID> (default: the config's partner, {default:partner})")
+    p.add_argument("--role", choices=["donor", "acceptor"], default=None,
+                   help="role of candidates without a role column value; a smiles: or id: partner takes the other "
+                        "role (config rank.role; needed when such a partner meets candidates of both roles)")
     p.add_argument("--out", default=DEFAULT_OUT, help="output folder (default: ./%(default)s)")
     p.add_argument("--cores", type=_at_least_one, default=os.cpu_count() or 1,
                    help="CPU cores to use, 1 or more (default: all)")
@@ -525,9 +600,12 @@ def _add_run(sub) -> None:
                    help="override one config field, e.g. --set structures.geometry=xtb (repeatable)")
     p.add_argument("--strict", action="store_true",
                    help="exit with code 3 if any row is rejected or fails (default: report them, exit 0)")
-    p.add_argument("--dry-run", action="store_true", help="show the jobs Snakemake would run, run nothing")
+    p.add_argument("--dry-run", action="store_true",
+                   help="show the jobs Snakemake would run and compute nothing; writes only OUT/config.dry-run.yaml "
+                        "(the configuration it would run with) and the engine's OUT/.snakemake folder")
     p.add_argument("--profile", default=None,
-                   help="Snakemake workflow profile folder (e.g. profiles/slurm for a cluster)")
+                   help="Snakemake workflow profile: a folder holding config.yaml with the engine's options (e.g. "
+                        "profiles/slurm for a cluster); checked before the run starts")
     p.add_argument("--verbose", action="store_true",
                    help="show the workflow engine's log as it runs (default: a progress display; the log goes to "
                         "OUT/logs/workflow.log)")
@@ -761,6 +839,12 @@ def main(argv: list[str] | None = None) -> int:
         return exit_code(exc)
     except FileNotFoundError as exc:  # a named file that does not exist is the user's input, not a bug
         print(f"dascreen: error: {exc}", file=sys.stderr)
+        return exit_code(InputError(str(exc)))
+    except PermissionError as exc:  # a path the user may not write or read (the commands check theirs first)
+        print(f"dascreen: error: {exc.filename}: {exc.strerror}; choose a path you can write to", file=sys.stderr)
+        return exit_code(InputError(str(exc)))
+    except UnicodeDecodeError as exc:  # a file read as text that is not UTF-8 (the readers name theirs first)
+        print(f"dascreen: error: a file given is not UTF-8 text ({exc}); save it as UTF-8", file=sys.stderr)
         return exit_code(InputError(str(exc)))
 
 if __name__ == "__main__":

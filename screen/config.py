@@ -26,7 +26,8 @@ from screen.errors import ConfigError
 from screen.options import ElectronicOptions, ExecutionOptions, StructureOptions, route_structures
 from screen.schema import SCHEMA_PATH, defaults, resolve, section_defaults
 
-__all__ = ["SCHEMA_PATH", "ConfigError", "Config", "load_config", "read_config_file", "merge", "resolve", "defaults", "section_defaults",
+__all__ = ["SCHEMA_PATH", "ConfigError", "Config", "load_config", "read_config_file", "read_problem", "merge",
+           "resolve", "defaults", "section_defaults",
            "protocol", "protocol_id"]
 
 
@@ -202,20 +203,59 @@ def merge(base: dict, extra: Mapping) -> None:
             base[key] = copy.deepcopy(value)
 
 
+def read_problem(exc: Exception) -> str:
+    """Why a text file could not be read, in one line: not UTF-8, not YAML (where), or the system's reason.
+
+    Examples
+    --------
+    >>> read_problem(UnicodeDecodeError("utf-8", b"a\\xff", 1, 2, "invalid start byte"))
+    'not UTF-8 text (byte 0xff at position 1)'
+    >>> try:
+    ...     yaml.safe_load("a: [1\\n")
+    ... except yaml.YAMLError as exc:
+    ...     read_problem(exc)
+    "not valid YAML at line 2, column 1: expected ',' or ']', but got '<stream end>'"
+    """
+    if isinstance(exc, UnicodeDecodeError):
+        return f"not UTF-8 text (byte 0x{exc.object[exc.start]:02x} at position {exc.start})"
+    if isinstance(exc, yaml.YAMLError):
+        mark = getattr(exc, "problem_mark", None)
+        where = f" at line {mark.line + 1}, column {mark.column + 1}" if mark is not None else ""
+        problem = getattr(exc, "problem", None) or " ".join(str(exc).split())
+        return f"not valid YAML{where}: {problem}"
+    if isinstance(exc, OSError):
+        return exc.strerror or str(exc)
+    return " ".join(str(exc).split())
+
+
 def read_config_file(path: str | Path | None) -> dict:
     """The mapping of a YAML config file (not yet validated); ``{}`` for ``None``.
 
     Raises
     ------
     ConfigError
-        Unreadable file, invalid YAML or not a mapping (the message names the file).
+        Unreadable file, text that is not UTF-8, invalid YAML or not a mapping (the message names the file).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> binary = Path(tempfile.mkdtemp()) / "bin.yaml"; _ = binary.write_bytes(b"rank:\\n  seed: \\xff\\n")
+    >>> try:
+    ...     read_config_file(binary)
+    ... except ConfigError as exc:
+    ...     print(str(exc).split(": ", 1)[1])
+    the config file is not UTF-8 text (byte 0xff at position 14); save it as UTF-8 (a YAML file of fields, see `dascreen config --yaml`)
     """
     if path is None:
         return {}
     try:
         cfg = yaml.safe_load(Path(path).read_text(encoding="utf-8")) or {}
-    except (OSError, yaml.YAMLError) as exc:
-        raise ConfigError(f"{path}: cannot read the config file: {exc}") from exc
+    except UnicodeDecodeError as exc:  # a binary or Latin-1 file gave a traceback (a new user's audit)
+        raise ConfigError(f"{path}: the config file is not UTF-8 text (byte 0x{exc.object[exc.start]:02x} at position "
+                          f"{exc.start}); save it as UTF-8 (a YAML file of fields, see `dascreen config --yaml`)"
+                          ) from None
+    except (OSError, yaml.YAMLError) as exc:  # one line: a YAML error's own text spans six
+        raise ConfigError(f"{path}: cannot read the config file: {read_problem(exc)}") from None
     if not isinstance(cfg, dict):
         raise ConfigError(f"{path}: the config file must hold a mapping of fields, not {type(cfg).__name__}")
     return cfg

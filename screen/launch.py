@@ -257,7 +257,8 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
     extra : list of str, optional
         Arguments passed to Snakemake unchanged.
     dry_run : bool
-        Show the jobs only (always verbose).
+        Show the jobs only (always verbose); computes nothing, but creates ``out`` with the configuration it
+        would run with (``out/config.dry-run.yaml``) and the workflow engine's ``.snakemake`` folder.
     profile : str, optional
         Snakemake workflow profile folder.
     cfg_file : pathlib.Path, optional
@@ -275,11 +276,13 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
     Raises
     ------
     ConfigError
-        Another ``dascreen`` holds the folder's lock.
+        Another ``dascreen`` holds the folder's lock, or ``out`` cannot be created (the path and the system's
+        reason; before, a traceback).
     """
+    from screen.preflight import make_out_folder
     from screen.store import STORE_ENV, store_location
 
-    out.mkdir(parents=True, exist_ok=True)
+    make_out_folder(out)
     lock = _lock(out)
     try:
         # a dry run writes its configuration aside: out/config.yaml names the run the folder holds (a dry run of

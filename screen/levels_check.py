@@ -34,8 +34,8 @@ import pandas as pd
 
 from screen.errors import InputError
 
-__all__ = ["check_levels", "check_partner", "row_problems", "inconsistent_rows", "GAP_EXCESS_TOL_EV",
-           "GAP_DEFICIT_MAX_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV"]
+__all__ = ["check_levels", "check_partner", "row_problems", "inconsistent_rows", "quoted", "GAP_EXCESS_TOL_EV",
+           "GAP_DEFICIT_MAX_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV", "QUOTE_MAX"]
 
 #: how much the optical gap may exceed LUMO − HOMO (CV and absorption onsets scatter by ~0.1–0.3 eV;
 #: common practice) [eV]
@@ -58,8 +58,28 @@ _MAX_LISTED = 5
 _SIGMAS = ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")
 
 
+#: characters of a user's value quoted in a message at most (a 5 MB cell gave a 5 MB message, a new user's audit)
+QUOTE_MAX = 60
+
+
 def _fmt(x: float) -> str:
     return f"{x:.6g}"
+
+
+def quoted(value, limit: int = QUOTE_MAX) -> str:
+    """``repr`` of a user's value for a message, cut to ``limit`` characters with its length said.
+
+    Examples
+    --------
+    >>> quoted("film")
+    "'film'"
+    >>> quoted("x" * 5000)
+    "'xxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxx'… (5000 characters)"
+    """
+    text = value if isinstance(value, str) else str(value)
+    if len(text) <= limit:
+        return repr(value)
+    return f"{text[:limit]!r}… ({len(text)} characters)"
 
 
 def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict | None = None,
@@ -135,8 +155,8 @@ def _number(frame: pd.DataFrame, col: str, source: str, ids, finite: bool = Fals
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
         what = "not a number" if text[i] else "not a finite number"
-        shown = repr(raw.iloc[i]) if text[i] else f"{float(num.iloc[i]):g}"
-        raise InputError(f"{source}: line {_line(frame, i)} (id {ids[i]!r}), column {col} = {shown}: {what}; "
+        shown = quoted(raw.iloc[i]) if text[i] else f"{float(num.iloc[i]):g}"
+        raise InputError(f"{source}: line {_line(frame, i)} (id {quoted(ids[i])}), column {col} = {shown}: {what}; "
                          "write the value in eV, e.g. -5.3 (leave the cell empty if unknown)")
     return num.to_numpy(dtype=float)
 
@@ -197,11 +217,11 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table") -> None:
     homo, lumo, gap = (_number(frame, c, source, ids, finite=True) for c in ("homo_ev", "lumo_ev", "gap_opt_ev"))
     sig = {c: _number(frame, c, source, ids) for c in _SIGMAS if c in frame}
     scale = frame["scale"].astype(str).to_numpy() if "scale" in frame else np.full(len(frame), "film")
-    found = [(i, f"line {_line(frame, i)}" + (f" (id {ids[i]!r})" if col != "id" else "") + f", column {col} = "
-                 f"{value!r}: {msg}") for i, col, value, msg in _text_problems(frame, ids)]
+    found = [(i, f"line {_line(frame, i)}" + (f" (id {quoted(ids[i])})" if col != "id" else "") + f", column {col} "
+                 f"= {quoted(value)}: {msg}") for i, col, value, msg in _text_problems(frame, ids)]
     for i in range(len(frame)):
         for col, val, msg in row_problems(homo[i], lumo[i], gap[i], scale[i], {c: s[i] for c, s in sig.items()}):
-            found.append((i, f"line {_line(frame, i)} (id {ids[i]!r}), column {col} = {val:g}: {msg}"))
+            found.append((i, f"line {_line(frame, i)} (id {quoted(ids[i])}), column {col} = {val:g}: {msg}"))
     problems = [text for _, text in sorted(found, key=lambda p: p[0])]
     if problems:
         more = f" (first {_MAX_LISTED} shown)" if len(problems) > _MAX_LISTED else ""
@@ -246,4 +266,4 @@ def check_partner(partner) -> None:
     if problems:
         where = f"{partner.kind} {partner.spec}" if getattr(partner, "spec", "") else partner.kind
         col, val, msg = problems[0]
-        raise InputError(f"partner {partner.id!r} ({where}), column {col} = {val:g}: {msg}")
+        raise InputError(f"partner {quoted(partner.id)} ({where}), column {col} = {val:g}: {msg}")

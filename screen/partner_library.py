@@ -16,6 +16,7 @@ from pathlib import Path
 import pandas as pd
 
 from screen.errors import InputError
+from screen.levels_check import quoted
 
 __all__ = ["LIBRARY_PATH", "LIBRARY_COLUMNS", "ROLES", "SCALES", "Partner", "PartnerError", "complement",
            "load_library", "library_partners", "library_table"]
@@ -135,7 +136,7 @@ def _float(value, what: str) -> float:
     try:
         return float(value)
     except (TypeError, ValueError):
-        raise PartnerError(f"{what}: {value!r} is not a number") from None
+        raise PartnerError(f"{what}: {quoted(value)} is not a number") from None
 
 
 def _sigma_value(value, what: str) -> float:
@@ -143,7 +144,7 @@ def _sigma_value(value, what: str) -> float:
     if math.isnan(s):
         return 0.0
     if s < 0 or not math.isfinite(s):
-        raise PartnerError(f"{what}: σ must be finite and >= 0, not {value!r}")
+        raise PartnerError(f"{what}: σ must be finite and >= 0, not {quoted(value)}")
     return s
 
 

@@ -47,10 +47,11 @@ import re
 from functools import lru_cache
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from screen.errors import InputError
-from screen.levels_check import check_levels
+from screen.levels_check import check_levels, quoted
 from screen.partner_library import (LIBRARY_COLUMNS, LIBRARY_PATH, ROLES, SCALES, Partner, PartnerError,
                                    _float, _sigma_value, _text, complement, library_partners, library_table,
                                    load_library)
@@ -70,6 +71,7 @@ __all__ = [
     "file_tag",
     "suggest",
     "did_you_mean",
+    "unknown_partner",
     "split_partners",
     "partner_kind",
     "partner_key",
@@ -132,15 +134,30 @@ def _library_names(path: Path | None = None) -> dict[str, str]:
     return out
 
 
-def did_you_mean(spec: str, path: Path | None = None) -> list[str]:
-    """Library ids close to an unknown partner name (matching ids and names).
+def _library_roles(path: Path | None = None) -> dict[str, str]:
+    """The role of every library id."""
+    try:
+        lib = load_library(path)
+    except PartnerError:
+        return {}
+    return dict(zip(lib["id"], lib["role"]))
+
+
+def did_you_mean(spec: str, path: Path | None = None, role: str | None = None) -> list[str]:
+    """Library ids close to an unknown partner name (matching ids and names); with ``role``, only partners of
+    that role.
 
     Examples
     --------
     >>> did_you_mean("scharber-reference")
     ['scharber-reference-acceptor']
+    >>> did_you_mean("ptb8"), did_you_mean("ptb8", role="acceptor")
+    (['pcdtbt', 'ptb7-th'], [])
     """
     names = _library_names(path)
+    if role is not None:
+        roles = _library_roles(path)
+        names = {k: v for k, v in names.items() if roles.get(v) == role}
     found: list[str] = []
     for hit in suggest(spec, names, n=5):
         if names[hit.lower()] not in found:
@@ -148,15 +165,39 @@ def did_you_mean(spec: str, path: Path | None = None) -> list[str]:
     return found[:3]
 
 
-def _unknown(spec: str, path: Path | None = None) -> PartnerError:
+def unknown_partner(spec: str, path: Path | None = None, role: str | None = None) -> PartnerError:
+    """The error of a partner that is neither a library id nor a file, with "did you mean …".
+
+    ``role``: the role the partner must have (the complement of the candidates'); the suggestions are then
+    library partners of that role only; without it each suggestion says its role (before, an acceptor
+    abbreviation missing from the library got "did you mean" a donor polymer).
+
+    Examples
+    --------
+    >>> "Did you mean pcdtbt (donor) or ptb7-th (donor)? Library ids:" in str(unknown_partner("ptb8"))
+    True
+    >>> "Did you mean idtbr? (only acceptors are named: the candidates are donors)" in str(
+    ...     unknown_partner("pcdtbx", role="acceptor"))
+    True
+    """
     ids = _library_ids(path)
-    close = did_you_mean(spec, path) if spec.strip() else []
-    hint = f" Did you mean {' or '.join(close)}?" if close else ""
+    close = did_you_mean(spec, path, role) if spec.strip() else []
+    if close and role is not None:
+        hint = f" Did you mean {' or '.join(close)}? (only {role}s are named: the candidates are {complement(role)}s)"
+    elif close:
+        roles = _library_roles(path)
+        hint = " Did you mean " + " or ".join(f"{c} ({roles.get(c, 'role unknown')})" for c in close) + "?"
+    else:
+        hint = ""
     return PartnerError(
-        f"unknown partner {spec!r}: not a library id and not an existing file.{hint} Library ids: "
+        f"unknown partner {quoted(spec)}: not a library id and not an existing file.{hint} Library ids: "
         f"{', '.join(ids) if ids else '(library unreadable)'}. Other forms: a path to a one-row levels CSV "
         f"(id,homo_ev,lumo_ev,gap_opt_ev,scale[,role]), smiles:<SMILES> or id:<ID of a levels row>"
     )
+
+
+def _unknown(spec: str, path: Path | None = None) -> PartnerError:
+    return unknown_partner(spec, path)
 
 
 def partner_kind(spec: str, library_path: str | Path | None = None) -> str:
@@ -427,27 +468,27 @@ def _row_partner(row: dict, *, kind: str, spec: str, slug: str, where: str, sour
     pid = _text(row.get("id"))
     status = _text(row.get("status")).lower()
     if status and status != "ok":
-        raise PartnerError(f"{where}: row {pid!r} has status {status!r} ({_text(row.get('error'))}); "
+        raise PartnerError(f"{where}: row {quoted(pid)} has status {quoted(status)} ({_text(row.get('error'))[:200]}); "
                            "a partner needs computed levels")
     if not pid:
         raise PartnerError(f"{where}: the partner's id is empty; write its name in the id column (it names the "
                            "partner in the ranking)")
-    vals = {c: _float(row.get(c), f"{where}: {c} of {pid!r}") for c in ("homo_ev", "lumo_ev", "gap_opt_ev")}
+    vals = {c: _float(row.get(c), f"{where}: {c} of {quoted(pid)}") for c in ("homo_ev", "lumo_ev", "gap_opt_ev")}
     for c in ("homo_ev", "lumo_ev", "gap_opt_ev"):
         if math.isinf(vals[c]):
-            raise PartnerError(f"{where}: row {pid!r}, column {c} = {vals[c]}: not a finite number; write the value "
-                               "in eV, e.g. -5.3")
+            raise PartnerError(f"{where}: row {quoted(pid)}, column {c} = {vals[c]}: not a finite number; write the "
+                               "value in eV, e.g. -5.3")
         if not math.isfinite(vals[c]):
-            raise PartnerError(f"{where}: row {pid!r} has no {c}; a partner needs HOMO, LUMO and optical gap "
+            raise PartnerError(f"{where}: row {quoted(pid)} has no {c}; a partner needs HOMO, LUMO and optical gap "
                                "(gap_opt_ev: absorption onset in eV, e.g. 1.4)")
     scale = _text(row.get("scale")).lower()
     if scale not in SCALES:
-        raise PartnerError(f"{where}: row {pid!r} has scale {scale!r}; every partner must declare "
+        raise PartnerError(f"{where}: row {quoted(pid)} has scale {quoted(scale)}; every partner must declare "
                            "its scale, 'film' or 'gas'")
     role = _text(row.get("role")).lower()
     if role not in ROLES + ("",):
-        raise PartnerError(f"{where}: row {pid!r} has role {role!r}; allowed: donor, acceptor or empty")
-    sig = {c: _sigma_value(row.get(c), f"{where}: {c} of {pid!r}") for c in _SIGMA}
+        raise PartnerError(f"{where}: row {quoted(pid)} has role {quoted(role)}; allowed: donor, acceptor or empty")
+    sig = {c: _sigma_value(row.get(c), f"{where}: {c} of {quoted(pid)}") for c in _SIGMA}
     return Partner(id=pid, name=_text(row.get("name")) or pid, role=role, **vals, **sig, scale=scale,
                    source=_text(row.get("source")) or source, slug=slug, kind=kind, spec=spec,
                    smiles=_text(row.get("smiles")), notes=_text(row.get("notes")))
@@ -466,8 +507,31 @@ def _from_file(spec: str, slug: str) -> Partner:
         check_levels(frame, f"partner file {path}")
     except InputError as exc:
         raise PartnerError(str(exc)) from None
+    _check_file_smiles(frame, path)
     return _row_partner(frame.iloc[0].to_dict(), kind="file", spec=spec, slug=slug,
                         where=f"partner file {path}, line 2", source=f"file {path}")
+
+
+def _check_file_smiles(frame: pd.DataFrame, path: Path) -> None:
+    """Refuse a partner file whose ``smiles`` cell a ``smiles:`` partner would be refused for.
+
+    The structure classes the acceptor (fullerene, fused-ring …) and draws the partner; ``CC[Fe]`` was accepted
+    and classed ``nfa-other`` (a new user's audit). Checked as the candidates are (parses; allowed elements;
+    valence; neutral, closed-shell, one molecule), its size aside: the levels are given, not computed.
+    """
+    if "smiles" not in frame:
+        return
+    text = _text(frame["smiles"].iloc[0])
+    if not text:
+        return
+    problem = _prepare_problem(text)
+    if not problem or problem.endswith("(reason too_many_atoms)"):
+        return
+    idx = frame.index[0]
+    line = int(idx) + 2 if isinstance(idx, (int, np.integer)) else 2
+    raise PartnerError(f"partner file {path}: line {line}, column smiles = {quoted(text)}: {problem}; the smiles "
+                       "column holds the partner's structure (one neutral, closed-shell molecule, or a polymer repeat "
+                       "unit with two attachment points [*]) or stays empty")
 
 
 def _from_levels(spec: str, slug: str, levels) -> Partner:
@@ -481,8 +545,9 @@ def _from_levels(spec: str, slug: str, levels) -> Partner:
     ids = frame["id"].fillna("").astype(str)
     rows = frame[ids.eq(ident)]
     if rows.empty:
-        sample = ", ".join(repr(i) for i in ids.head(8))
-        raise PartnerError(f"partner {spec!r}: no row with id {ident!r} in the {where} (ids start {sample})")
+        sample = ", ".join(quoted(i) for i in ids.head(8))
+        raise PartnerError(f"partner {quoted(spec)}: no row with id {quoted(ident)} in the {where} (ids start "
+                           f"{sample})")
     if len(rows) > 1 and "status" in rows:
         ok = rows[rows["status"].astype(str).str.lower().eq("ok")]
         rows = ok if len(ok) else rows.iloc[:1]

@@ -38,6 +38,7 @@ from screen.errors import ConfigError, InputError
 __all__ = ["SchemaField", "schema_fields", "allowed_text", "unit_of", "check_sets", "check_rank_sets", "check_rank_config",
            "check_candidates",
            "check_out_folder", "check_partners", "check_partner_scales", "check_out", "config_text",
+           "check_profile", "check_run_partners", "make_out_folder", "read_problem",
            "CalibrationDifference", "calibration_differences", "calibration_text", "check_calibration", "fitted_in",
            "reference_count"]
 
@@ -241,6 +242,8 @@ def check_sets(items) -> dict:
     """
     import jsonschema
 
+    from screen.schema import non_finite, non_finite_text
+
     schema = _schema()
     fields = [f.path for f in schema_fields(schema)]
     out: dict = {}
@@ -260,6 +263,9 @@ def check_sets(items) -> dict:
         errors = list(jsonschema.Draft202012Validator(node).iter_errors(value))
         if errors:
             raise ConfigError(f"--set {item}: {errors[0].message}; allowed for {path}: {allowed_text(node)}")
+        bad = non_finite(value, path)
+        if bad:  # the schema's bounds let NaN through: --set rank.target_pce_pct=.nan ranked with "target nan %"
+            raise ConfigError(f"--set {item}: {non_finite_text(bad[0][1])}; allowed for {path}: {allowed_text(node)}")
         target = out
         parts = path.split(".")
         for part in parts[:-1]:
@@ -309,7 +315,7 @@ def check_rank_sets(items, command: str) -> None:
                       f"cannot apply it ({why}); {fix}; here --set takes {takes}")
 
 
-def check_rank_config(path, levels_path, command: str) -> None:
+def check_rank_config(path, levels_path, command: str, implied: bool = False) -> None:
     """Refuse a ``--config`` file whose settings of how levels are computed differ from the levels'.
 
     A re-ranking cannot recompute levels, so a config file whose ``structures`` or
@@ -318,6 +324,10 @@ def check_rank_config(path, levels_path, command: str) -> None:
     would be silently ignored — the same case :func:`check_rank_sets` refuses for
     ``--set``. A run's own ``config.yaml`` always agrees with its levels; a levels
     file without a sidecar is not checked.
+
+    ``implied``: ``path`` is the ``config.yaml`` of the ``--out`` folder's run, used because no ``--config`` was
+    given; the message then says that the levels and the folder's run are of different protocols (before, it
+    blamed a ``--config`` the user never gave).
 
     Raises
     ------
@@ -349,6 +359,18 @@ def check_rank_config(path, levels_path, command: str) -> None:
     scale = (raw.get("levels") or {}).get("scale") if isinstance(raw.get("levels"), dict) else None
     if scale and meta.get("scale") and scale != meta["scale"]:
         differs.append(f"its levels.scale is {scale}, the levels are on the {meta['scale']} scale")
+    if differs and implied:
+        folder = Path(path).parent
+        own = Path(levels_path).resolve().parent / "config.yaml"
+        match = f" (e.g. --config {own})" if own.is_file() and own != Path(path).resolve() else ""
+        what = []
+        if sections and ran and mine != ran:
+            what.append(f"the levels in {levels_path} are of protocol {ran}, the run in {folder} is of protocol {mine}")
+        if scale and meta.get("scale") and scale != meta["scale"]:
+            what.append(f"the levels are on the {meta['scale']} scale, the run in {folder} on the {scale} scale")
+        raise ConfigError(f"--out {folder}: {'; '.join(what)} (its config.yaml, used since no --config was given); "
+                          f"`dascreen {command}` cannot recompute levels, so rank them into another --out, or give a "
+                          f"--config of their protocol{match}")
     if differs:
         compute = "run" if command == "rank" else "dyecell"
         raise ConfigError(f"--config {path}: `dascreen {command}` ranks levels that are already computed and cannot "
@@ -412,12 +434,54 @@ def _check_sdf(path: Path) -> int:
     return records
 
 
-def check_partners(specs, levels_path=None) -> None:
+def _role_column(path) -> list[str]:
+    """The ``role`` values of a levels CSV or a candidate file (``[]`` without a role column or when unreadable)."""
+    import pandas as pd
+
+    path = Path(path)
+    try:
+        if path.name.lower().endswith((".csv", ".csv.gz")):  # a role column in any case, as the readers take it
+            frame = pd.read_csv(path, dtype=str, keep_default_na=False,
+                                usecols=lambda c: str(c).strip().lower() == "role")
+        else:
+            from screen.prepare.readers import read_candidates
+
+            frame = read_candidates(path)[["role"]]
+    except (OSError, ValueError, KeyError, InputError):
+        return []
+    return [str(r).strip().lower() for r in frame.iloc[:, 0]] if frame.shape[1] else []
+
+
+def _partner_role_wanted(role=None, roles_of=None) -> str | None:
+    """The role a partner must have: the complement of the candidates' role (``--role``, else the one role the
+    candidates' role column names); ``None`` when that is not known."""
+    from screen.partners import complement
+
+    if role in ("donor", "acceptor"):
+        return complement(role)
+    given = set(_role_column(roles_of)) & {"donor", "acceptor"} if roles_of is not None else set()
+    return complement(given.pop()) if len(given) == 1 else None
+
+
+def check_partners(specs, levels_path=None, role=None, roles_of=None) -> None:
     """Check partner specifications without computing anything.
 
     Library names (with "did you mean …"), files (read as one levels row),
     ``smiles:`` (parses, neutral, closed-shell) and ``id:`` (a row of the
     levels file when it exists).
+
+    Parameters
+    ----------
+    specs : list of str
+        The partner specifications.
+    levels_path : path-like, optional
+        The levels file the ``id:`` partners are rows of.
+    role : str, optional
+        The candidates' role (``--role``, config ``rank.role``).
+    roles_of : path-like, optional
+        A levels or candidate file whose ``role`` column gives the candidates' role (default ``levels_path``).
+        With a role known, "did you mean" names only library partners of the other role; otherwise each
+        suggestion shows its role (before, an unknown acceptor got "did you mean" a donor polymer).
 
     Raises
     ------
@@ -426,10 +490,16 @@ def check_partners(specs, levels_path=None) -> None:
     """
     import pandas as pd
 
-    from screen.partners import PartnerError, partner_key, partner_kind, resolve_partner
+    from screen.partners import PartnerError, partner_key, partner_kind, resolve_partner, unknown_partner
 
     for spec in specs:
-        kind = partner_kind(spec)
+        try:
+            kind = partner_kind(spec)
+        except PartnerError:
+            if not str(spec or "").strip():
+                raise
+            wanted = _partner_role_wanted(role, roles_of if roles_of is not None else levels_path)
+            raise unknown_partner(spec, role=wanted) from None
         if kind == "smiles":
             partner_key(spec)
         elif kind == "file":
@@ -438,11 +508,79 @@ def check_partners(specs, levels_path=None) -> None:
             ident = spec.strip()[3:].strip()
             ids = pd.read_csv(levels_path, usecols=["id"], dtype=str, keep_default_na=False)["id"]
             if ident not in set(ids):
+                from screen.levels_check import quoted
                 from screen.partners import suggest
 
                 close = suggest(ident, list(ids), n=3)
                 hint = f"; did you mean {' or '.join('id:' + c for c in close)}?" if close else ""
-                raise PartnerError(f"partner {spec!r}: no row with id {ident!r} in {levels_path}{hint}")
+                raise PartnerError(f"partner {quoted(spec.strip())}: no row with id {quoted(ident)} in {levels_path}"
+                                   f"{hint}")
+
+
+def check_run_partners(specs, candidates, rank_options) -> None:
+    """Refuse, before a run computes anything, the partners its ranking would refuse at the end.
+
+    ``id:<ID>`` must be a candidate of the run's file; a partner without a role of its own (``smiles:``, an
+    ``id:`` row without a role, a partner file without a role column) needs the candidates' role, from
+    ``rank.role`` (``--role``) or the one role the candidates' ``role`` column names. Before, both were found
+    by the ranking job after every level was computed (exit 1 and a traceback).
+
+    Parameters
+    ----------
+    specs : list of str
+        The run's partners.
+    candidates : path-like
+        The candidate file (checked by :func:`check_candidates`).
+    rank_options : mapping
+        The ``rank`` section of the run's configuration.
+
+    Raises
+    ------
+    screen.partners.PartnerError
+        Naming the partner, the file and the ways on (exit code 2).
+    """
+    import pandas as pd
+
+    from screen.partners import PartnerError, partner_kind, resolve_partner
+    from screen.partner_library import Partner
+
+    kinds = {spec: partner_kind(spec) for spec in specs}
+    roleless = [s for s, k in kinds.items() if k in ("smiles", "id") or (k == "file" and not resolve_partner(s).role)]
+    if not roleless:
+        return
+    from screen.levels_check import quoted
+    from screen.prepare.readers import read_candidates
+    from screen.rank import RankOptions, partner_role
+
+    frame = read_candidates(candidates)
+    roles = frame["role"].fillna("").astype(str).str.strip().str.lower()
+    options = RankOptions.from_mapping(rank_options)
+    nan = float("nan")
+    for spec in roleless:
+        role = ""
+        if kinds[spec] == "id":
+            ident = spec.strip()[3:].strip()
+            rows = frame.index[frame["id"].astype(str).eq(ident)]
+            if not len(rows):
+                from screen.partners import suggest
+
+                close = suggest(ident, list(frame["id"].astype(str)), n=3)
+                hint = f"; did you mean {' or '.join('id:' + c for c in close)}?" if close else ""
+                raise PartnerError(f"partner {quoted(spec.strip())}: no candidate with id {quoted(ident)} in "
+                                   f"{candidates}{hint} (an id: partner is a row of the run's own candidates)")
+            role = roles[rows[0]] if roles[rows[0]] in ("donor", "acceptor") else ""
+        partner = Partner(id=spec.strip(), name=spec.strip(), role=role, homo_ev=nan, lumo_ev=nan, gap_opt_ev=nan,
+                          kind=kinds[spec], spec=spec)
+        try:
+            partner_role(pd.DataFrame({"role": roles}), partner, options)
+        except PartnerError as exc:
+            if kinds[spec] != "id":  # the ranking's message, about the run's own file
+                raise PartnerError(str(exc).replace("the role column of the levels file",
+                                                    f"the role column of {candidates}")) from None
+            raise PartnerError(f"partner {quoted(spec.strip())}: its row in {candidates} has no role, and the "
+                               "candidates do not imply one (no role column, or both roles in it); set the "
+                               "candidates' role with --role donor|acceptor (config rank.role; the partner takes "
+                               "the other role) or fill the role column of the candidate file") from None
 
 
 # --------------------------------------------------------------------------- the output folder
@@ -465,6 +603,8 @@ def check_out_folder(out, given: str | None = None) -> None:
     ...     print(str(exc).endswith("afile is a file, not a folder; choose an --out folder outside it"))
     True
     """
+    if given is not None and not str(given).strip():  # `--out ''` was the current folder (dascreen rank wrote there)
+        raise ConfigError("--out '' names no folder; give a folder, e.g. --out results (a new one is created)")
     out = Path(out)
     given = str(out) if given is None else given
     if out.exists() and not out.is_dir():
@@ -474,7 +614,38 @@ def check_out_folder(out, given: str | None = None) -> None:
         raise ConfigError(f"--out {given}: {parent} is a file, not a folder; choose an --out folder outside it")
 
 
-def check_out(out, candidates=None, overwrite: bool = False) -> None:
+def read_problem(exc: Exception) -> str:
+    """Why a text file could not be read, in one line (:func:`screen.config.read_problem`)."""
+    from screen.config import read_problem as problem
+
+    return problem(exc)
+
+
+def make_out_folder(out, given: str | None = None) -> None:
+    """Create the ``--out`` folder (the first thing a command writes), or refuse it in one message.
+
+    A folder that cannot be created (``/sys/x``: not permitted; ``/proc/x``: no such file or directory) gave a
+    traceback or a bare ``[Errno 2]``; the message names the path and the system's reason (exit code 2).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> afile = Path(tempfile.mkdtemp()) / "f"; _ = afile.write_text("x")
+    >>> try:
+    ...     make_out_folder(afile / "sub", "f/sub")
+    ... except ConfigError as exc:
+    ...     print(str(exc)[:36])
+    --out f/sub: cannot create the folde
+    """
+    out = Path(out)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise ConfigError(f"--out {out if given is None else given}: cannot create the folder {out.absolute()}: "
+                          f"{read_problem(exc)}; choose a folder you can write to") from None
+
+
+def check_out(out, candidates=None, overwrite: bool = False, given: str | None = None) -> None:
     """Refuse an output folder that would mix two runs or is not a run folder.
 
     Parameters
@@ -484,17 +655,20 @@ def check_out(out, candidates=None, overwrite: bool = False) -> None:
     candidates : path-like, optional
         The run's candidate file; a folder holding the run of another file is refused.
     overwrite : bool
-        Accept a folder holding the run of another candidate file.
+        Accept a folder holding the run of another candidate file (or whose ``config.yaml`` cannot be read).
+    given : str, optional
+        ``--out`` as the user wrote it (an empty one is refused).
 
     Raises
     ------
     ConfigError
-        ``out`` is a file, not writable, holds files of something other than
-        a dascreen run, is in use by a running ``dascreen``, or holds the run
-        of another candidate file (without ``overwrite``).
+        ``out`` is empty text, a file, not writable, holds files of something other than
+        a dascreen run, is in use by a running ``dascreen``, holds the run
+        of another candidate file, or a ``config.yaml`` that cannot be read (not UTF-8, not YAML)
+        (the last two without ``overwrite``).
     """
     out = Path(out)
-    check_out_folder(out)
+    check_out_folder(out, given)
     if not out.exists():
         parent = next((p for p in out.absolute().parents if p.exists()), None)
         if parent is not None and not _writable(parent):
@@ -509,15 +683,120 @@ def check_out(out, candidates=None, overwrite: bool = False) -> None:
                           "choose a new or empty folder")
     if run_active(out):
         raise ConfigError(f"another dascreen run is using {out}; wait for it or choose another --out")
-    if candidates is not None and not overwrite and (out / "config.yaml").is_file():
+    if not overwrite and (out / "config.yaml").is_file():
         try:
-            before = (yaml.safe_load((out / "config.yaml").read_text(encoding="utf-8")) or {}).get("candidates")
-        except (OSError, yaml.YAMLError):
-            before = None
-        now = str(Path(candidates).resolve())
-        if before and str(before) != now:
+            recorded = yaml.safe_load((out / "config.yaml").read_text(encoding="utf-8")) or {}
+        except (OSError, UnicodeDecodeError, yaml.YAMLError) as exc:  # a binary file gave a traceback
+            raise ConfigError(f"--out {out}: its config.yaml, the record of the folder's run, cannot be read "
+                              f"({read_problem(exc)}: {out / 'config.yaml'}); choose another --out, or pass "
+                              "--overwrite to replace the record") from None
+        before = recorded.get("candidates") if isinstance(recorded, dict) else None
+        now = str(Path(candidates).resolve()) if candidates is not None else None
+        if now and before and str(before) != now:
             raise ConfigError(f"--out {out} holds the run of {before}; this run is of {now}. Choose another --out "
                               "(molecules already computed come from the results store) or pass --overwrite")
+
+
+_PROFILE_FILE = re.compile(r"(?P<name>profile|config)(?:\.v(?P<major>\d+)\+)?\.yaml")
+
+
+def _profile_files(folder: Path) -> list[Path]:
+    """The settings files of a Snakemake profile folder the installed Snakemake reads (``config.yaml``,
+    ``profile.yaml`` or a version's ``config.v9+.yaml``), the one it picks first."""
+    try:
+        import snakemake
+
+        major = int(str(snakemake.__version__).split(".")[0].split("+")[0])
+    except (ImportError, ValueError):
+        major = 10 ** 6
+    found = []
+    for path in sorted(folder.iterdir()):
+        match = _PROFILE_FILE.fullmatch(path.name)
+        if match and path.is_file() and int(match.group("major") or 0) <= major:
+            found.append((int(match.group("major") or 0), path))
+    return [p for _, p in sorted(found, key=lambda f: -f[0])]
+
+
+def _engine_options() -> tuple[set[str], list[str]] | None:
+    """The option names the workflow engine takes in a profile (``cores``, ``executor`` …; those of the installed
+    executor plugins included) and the executors installed; None if not known."""
+    try:
+        from snakemake.cli import get_argument_parser
+
+        parser = get_argument_parser()
+        names = {s.lstrip("-") for action in parser._actions for s in action.option_strings}
+        executor = next(a for a in parser._actions if "--executor" in a.option_strings)
+        return names, [str(c) for c in (executor.choices or [])]
+    except Exception:  # noqa: BLE001 - an engine without this API: the engine itself checks the names
+        return None
+
+
+def check_profile(profile) -> None:
+    """Refuse a ``--profile`` that is not a Snakemake profile folder, before anything is computed.
+
+    A missing folder was ignored (the run went on locally, exit 0) and a broken ``config.yaml`` stopped the
+    workflow engine with exit 1 and its 80-line usage text (a new user's audit). Checked: the folder exists and
+    holds a readable ``config.yaml`` (or ``profile.yaml``) of UTF-8 YAML with a mapping of the workflow
+    engine's options.
+
+    Raises
+    ------
+    ConfigError
+        Naming ``--profile``, the file and what is wrong (exit code 2).
+
+    Examples
+    --------
+    >>> try:
+    ...     check_profile("no/such/profile")
+    ... except ConfigError as exc:
+    ...     print(str(exc)[:47])
+    --profile no/such/profile: no such folder; a Sn
+    """
+    if profile is None:
+        return
+    given = str(profile)
+    if not given.strip():
+        raise ConfigError("--profile '' names no folder; give a Snakemake profile folder (e.g. profiles/slurm) or "
+                          "leave --profile out to run on this machine")
+    folder = Path(given).expanduser()
+    about = ("a Snakemake profile is a folder holding config.yaml with the workflow engine's options (e.g. "
+             "profiles/slurm)")
+    if not folder.exists():
+        near = _near_files(folder) if folder.parent.is_dir() else []
+        hint = f"; did you mean {' or '.join(near)}?" if near else ""
+        raise ConfigError(f"--profile {given}: no such folder{hint}; {about}")
+    if not folder.is_dir():
+        raise ConfigError(f"--profile {given} is a file, not a folder; {about}: give the folder that holds it")
+    files = _profile_files(folder)
+    if not files:
+        raise ConfigError(f"--profile {given}: the folder holds no config.yaml; {about}")
+    path = files[0]
+    try:
+        data = yaml.safe_load(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, yaml.YAMLError) as exc:
+        raise ConfigError(f"--profile {given}: {path} cannot be read: {read_problem(exc)}") from None
+    if not isinstance(data, dict) or not data:
+        what = "is empty" if data is None else f"holds {type(data).__name__}, not a mapping"
+        raise ConfigError(f"--profile {given}: {path} {what}; write the workflow engine's options as `name: value` "
+                          "lines, e.g. `executor: slurm`")
+    engine = _engine_options()
+    if engine is None:
+        return
+    known, executors = engine
+    executor = data.get("executor")
+    if executor is not None and executors and str(executor) not in executors:
+        raise ConfigError(f"--profile {given}: {path} asks for executor {str(executor)!r}, which is not installed "
+                          f"(installed: {', '.join(executors)}); install its plugin (for SLURM: pip install -e "
+                          "'.[cluster]') or choose an installed one")
+    unknown = [str(k) for k in data if str(k) not in known]
+    if unknown:
+        from screen.partners import suggest
+
+        close = suggest(unknown[0], sorted(known), n=2, cutoff=0.75)
+        hint = f" (did you mean {' or '.join(close)}?)" if close else ""
+        raise ConfigError(f"--profile {given}: {path} sets {', '.join(repr(k) for k in unknown[:5])}, not an option "
+                          f"of the workflow engine{hint}; its names are the engine's command-line options without "
+                          "the leading dashes (`snakemake --help`), e.g. cores, executor, default-resources")
 
 
 def _writable(folder: Path) -> bool:
@@ -734,7 +1013,9 @@ def _calibration_gap(cfg, out=None) -> tuple[str, Path | None, list[CalibrationD
     pid = cfg.protocol_id
     folder, diffs = calibration_differences(cfg)
     listed = "; ".join(d.text(cfg["electronic"]["engine"]) for d in diffs)
-    if folder is None:
+    if not models.is_dir():
+        why = f"{models} does not exist" if not models.exists() else f"{models} is a file, not a folder"
+    elif folder is None:
         why = f"{models} holds no calibration"
     elif not diffs:
         why = f"{folder} has this run's settings but its model files are incomplete or unreadable"
@@ -811,6 +1092,12 @@ def check_calibration(cfg, out, config_file=None) -> None:
     refit = cfg["calibration"]["refit"]
     if refit == "always":
         return
+    models = Path(str(cfg["calibration"]["models"]))
+    if not models.is_dir():  # before, "no calibration ... calibrate these settings once (hours)" for a typo
+        what = "is a file, not a folder" if models.exists() else "does not exist"
+        raise ConfigError(f"calibration.models {models} {what}; give the folder that holds the calibrations "
+                          "(models/<protocol-id>/ folders, e.g. the shipped models), or leave calibration.models "
+                          "out for the shipped one; nothing was computed")
     gap = _calibration_gap(cfg, out if refit == "auto" else None)
     if gap is None:
         return

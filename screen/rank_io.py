@@ -669,26 +669,46 @@ def _check_target(target: Path, partner: Partner, levels_path: Path, levels_sha:
     ConfigError
         The folder holds the ranking against another partner (never overwritten).
     """
-    from screen.errors import ConfigError
-    from screen.io import read_json
-
     meta_path = target / "ranking.meta.json"
     if not meta_path.is_file():
         return False
+    old = _folder_meta(target)
+    _refuse_other_partner(target, partner, old)
+    message, changed = _levels_change(old.get("levels") or {}, str(levels_path.resolve()), levels_sha)
+    if message:
+        print(f"dascreen rank: replacing the ranking in {target}: {message}", file=sys.stderr)
+    return changed
+
+
+def _folder_meta(target: Path) -> dict:
+    """The ``ranking.meta.json`` of a ranking folder (``{}`` when missing or unreadable)."""
+    from screen.io import read_json
+
     try:
-        old = read_json(meta_path)
-    except ValueError:
-        old = {}
-    old = old if isinstance(old, dict) else {}
+        old = read_json(target / "ranking.meta.json")
+    except (OSError, ValueError):
+        return {}
+    return old if isinstance(old, dict) else {}
+
+
+def _refuse_other_partner(target: Path, partner: Partner, old: dict | None = None) -> None:
+    """Refuse a ranking folder that holds the ranking against another partner (never overwritten).
+
+    Raises
+    ------
+    ConfigError
+        Naming the folder and both partners.
+    """
+    from screen.errors import ConfigError
+
+    old = _folder_meta(target) if old is None else old
+    if not old:
+        return
     before = old.get("partner") or {}
     if (before.get("id"), before.get("kind")) != (partner.id, partner.kind):
         raise ConfigError(f"{target} holds the ranking against partner {before.get('id')!r}, not {partner.id!r}; "
                           "move it away or rank into another --out (a ranking is never overwritten by another "
                           "partner's)")
-    message, changed = _levels_change(old.get("levels") or {}, str(levels_path.resolve()), levels_sha)
-    if message:
-        print(f"dascreen rank: replacing the ranking in {target}: {message}", file=sys.stderr)
-    return changed
 
 
 def _levels_change(old: dict, path: str, sha: str) -> tuple[str, bool]:
@@ -740,22 +760,29 @@ def read_ranked_levels(levels_path) -> pd.DataFrame:
     return levels
 
 
-def check_before_computing(levels_path, partner_specs, config=None) -> None:
-    """Refuse what the ranking would refuse, before a ``smiles:`` partner is computed for it.
+def check_before_computing(levels_path, partner_specs, config=None, *, out_dir=None,
+                           partner_levels: dict | None = None) -> None:
+    """Refuse what the ranking would refuse, before a ``smiles:`` partner is computed or any ranking is written.
 
     The levels file (no rows; a user's own file with impossible levels, ids, scales or roles:
-    :func:`screen.levels_check.check_levels`) and, for every ``smiles:`` partner, whether the
+    :func:`screen.levels_check.check_levels`); for every ``smiles:`` partner not yet computed, whether the
     candidates' roles or ``rank.role`` give it a role (it has none of its own) and whether ``config``'s
-    protocol is the one the levels were computed with (their sidecar).
+    protocol is the one the levels were computed with (their sidecar); every other partner (and a ``smiles:``
+    partner whose levels file ``partner_levels`` names) is resolved and checked as :func:`run_rank` would:
+    its role, its scale against the levels', its levels (:func:`screen.levels_check.check_partner`) and, with
+    ``out_dir``, that its ranking folder holds no other partner's ranking. ``dascreen rank`` with several
+    partners calls it before the first ranking, so a partner that cannot be ranked no longer leaves the
+    rankings of the partners before it written (a new user's audit: ``--partner y6,c60,p_norole.csv`` wrote two
+    rankings, then exited 2).
 
     Raises
     ------
-    InputError, PartnerError
-        As :func:`run_rank` would after the partner was computed.
+    InputError, PartnerError, ScaleMismatchError, ConfigError
+        As :func:`run_rank` would.
     """
-    from screen.levels_check import check_levels
+    from screen.levels_check import check_levels, check_partner
     from screen.partners import partner_kind
-    from screen.rank import _computed_by_dascreen
+    from screen.rank import _computed_by_dascreen, check_scales
     from screen.rank_rows import ranked_mask, split_ranked
 
     levels = read_ranked_levels(levels_path)
@@ -764,9 +791,20 @@ def check_before_computing(levels_path, partner_specs, config=None) -> None:
     cfg = Config.of(config)
     options = RankOptions.from_mapping(cfg["rank"])
     ranked, _ = split_ranked(levels)
-    ran = (_levels_meta(Path(levels_path)) or {}).get("protocol_id")
+    meta_in = _levels_meta(Path(levels_path))
+    ran = (meta_in or {}).get("protocol_id")
+    suffix = levels_suffix(levels_path, out_dir) if out_dir is not None else ""
     for spec in partner_specs:
-        if partner_kind(spec) != "smiles":
+        computed = (partner_levels or {}).get(spec)
+        if partner_kind(spec) != "smiles" or computed is not None:
+            partner = _partner(spec, levels, Path(levels_path), meta_in, Path(out_dir or "."), computed)
+            partner_role(ranked, partner, options)
+            if len(ranked):
+                check_scales(ranked, partner)
+                check_partner(partner)
+            if out_dir is not None:
+                _refuse_other_partner(Path(out_dir) / "rankings" / (ranking_folder(partner.slug, cfg) + suffix),
+                                      partner)
             continue
         nan = float("nan")
         partner_role(ranked, Partner(id=spec.strip(), name=spec.strip(), role="", homo_ev=nan, lumo_ev=nan,

@@ -19,7 +19,7 @@ import yaml
 
 from screen.errors import ConfigError
 
-__all__ = ["SCHEMA_PATH", "ConfigError", "resolve", "defaults", "section_defaults"]
+__all__ = ["SCHEMA_PATH", "ConfigError", "resolve", "defaults", "section_defaults", "non_finite", "non_finite_text"]
 
 SCHEMA_PATH = Path(__file__).parent / "workflow" / "schemas" / "config.schema.yaml"
 
@@ -74,6 +74,37 @@ def _describe(error: jsonschema.ValidationError) -> str:
     return f"field {field}: {error.message}{allowed}"
 
 
+def non_finite(node, prefix: str = "") -> list[tuple[str, float]]:
+    """``(field, value)`` of every number of a configuration that is NaN or infinite.
+
+    JSON Schema bounds let NaN through (every comparison with NaN is false), and YAML reads ``.nan`` and
+    ``.inf`` as numbers: ``rank.target_pce_pct: .nan`` gave P(PCE > target) = 0 for every row and
+    ``rank.gap_min_ev: .nan`` switched the gap window off (a new user's audit).
+
+    Examples
+    --------
+    >>> non_finite({"rank": {"target_pce_pct": float("nan"), "seed": 1}, "x": [1.0, float("inf")]})
+    [('rank.target_pce_pct', nan), ('x[1]', inf)]
+    """
+    import math
+
+    out: list[tuple[str, float]] = []
+    if isinstance(node, dict):
+        for key, value in node.items():
+            out += non_finite(value, f"{prefix}.{key}" if prefix else str(key))
+    elif isinstance(node, (list, tuple)):
+        for i, value in enumerate(node):
+            out += non_finite(value, f"{prefix}[{i}]")
+    elif isinstance(node, float) and not math.isfinite(node):
+        out.append((prefix, node))
+    return out
+
+
+def non_finite_text(value: float) -> str:
+    """Why a NaN or infinite setting is refused, in words (one home for the config file and ``--set``)."""
+    return f"{value} is not a finite number; give a number (NaN and infinity are not allowed)"
+
+
 def resolve(config: dict | None, source: str = "configuration") -> dict:
     """Validate ``config`` and return a plain-dict copy with every default filled in.
 
@@ -103,6 +134,10 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     Traceback (most recent call last):
     ...
     screen.errors.ConfigError: configuration: field device.absorber: 'acceptor' is not one of ['donor', 'both']; allowed values: donor, both
+    >>> resolve({"rank": {"target_pce_pct": float("nan")}})
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: configuration: field rank.target_pce_pct: nan is not a finite number; give a number (NaN and infinity are not allowed)
     """
     cfg = copy.deepcopy(dict(config or {}))
     schema = _schema()
@@ -110,6 +145,9 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     errors = sorted(validator.iter_errors(cfg), key=lambda e: list(e.absolute_path))
     if errors:
         raise ConfigError(f"{source}: " + "; ".join(_describe(e) for e in errors))
+    bad = non_finite(cfg)
+    if bad:  # after the schema: an unknown field is named as such first
+        raise ConfigError(f"{source}: " + "; ".join(f"field {field}: {non_finite_text(value)}" for field, value in bad))
     _fill_defaults(cfg, schema)
     _like_defaults(cfg, schema)
     errors = sorted(validator.iter_errors(cfg), key=lambda e: list(e.absolute_path))

@@ -145,22 +145,69 @@ class ResultStore:
         The database file; created (with its folder) on first use.
     timeout_s : float
         How long a writer waits for another process's transaction [s].
+    read_only : bool
+        Open an existing store without changing it (``dascreen store list|export``): nothing is created, no
+        table is added, and a file that is not a dascreen store (an empty file, another program's database) is
+        refused instead of being turned into one (a new user's audit: ``store list --store afile`` made an SQLite
+        database of ``afile``).
 
     Raises
     ------
     InputError
-        The file exists but is not a SQLite database or is another program's database.
+        The file exists but is not a SQLite database or is another program's database; read-only: it does not
+        exist or holds no dascreen store.
     """
 
-    def __init__(self, path: str | os.PathLike, timeout_s: float = 60.0):
+    def __init__(self, path: str | os.PathLike, timeout_s: float = 60.0, read_only: bool = False):
         self.path = Path(path).expanduser()
         self.timeout_s = float(timeout_s)
+        self.read_only = bool(read_only)
         self._conn: sqlite3.Connection | None = None
         self._pid = None
 
     # ------------------------------------------------------------------ connection
+    def _connect_read_only(self) -> sqlite3.Connection:
+        """A connection that never writes the file; refuses a file that is not a dascreen store."""
+        from urllib.parse import quote
+
+        def refuse(why: str) -> InputError:
+            return InputError(f"results store {self.path}: {why}; give the store file of a run (store.path, default "
+                              "~/.cache/dascreen/store.sqlite); the file was not changed")
+
+        try:
+            with open(self.path, "rb") as fh:
+                head = fh.read(16)
+        except OSError as exc:
+            raise refuse(f"cannot be read ({exc.strerror or exc})") from None
+        if not head:
+            raise refuse("an empty file, not a results store")
+        if head != b"SQLite format 3\x00":
+            raise refuse("not a results store (not an SQLite database)")
+        uri = f"file:{quote(str(self.path.absolute()))}"
+        try:
+            try:  # opened for writing but told never to write: a connection that closes last then removes the
+                # -wal and -shm side files, which a connection of mode=ro leaves behind
+                conn = sqlite3.connect(f"{uri}?mode=rw", uri=True, timeout=self.timeout_s, isolation_level=None)
+            except sqlite3.OperationalError:  # a store the user may only read
+                conn = sqlite3.connect(f"{uri}?mode=ro", uri=True, timeout=self.timeout_s, isolation_level=None)
+            conn.execute("PRAGMA query_only = ON")
+            conn.execute(f"PRAGMA busy_timeout = {int(self.timeout_s * 1000)}")
+            tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+            app = (conn.execute("SELECT value FROM info WHERE name = 'application'").fetchone() or [None])[0] \
+                if "info" in tables else None
+        except sqlite3.DatabaseError as exc:
+            raise refuse(f"not a usable SQLite database ({exc})") from None
+        if app != _APPLICATION or "results" not in tables:
+            conn.close()
+            owner = f"belongs to {app!r}" if app else "holds no dascreen results (an SQLite database of another kind)"
+            raise refuse(f"the database {owner}, not a dascreen results store")
+        return conn
+
     def _connect(self) -> sqlite3.Connection:
         if self._conn is not None and self._pid == os.getpid():
+            return self._conn
+        if self.read_only:
+            self._conn, self._pid = self._connect_read_only(), os.getpid()
             return self._conn
         self.path.parent.mkdir(parents=True, exist_ok=True)
         try:
@@ -235,6 +282,15 @@ class ResultStore:
             yield {"stage": st, "key": key, "protocol_id": pid, "geometry": geom, "created": created,
                    "ok": record is not None, "record": record,
                    "protocol": (_loads(payload) or {}).get("protocol") if record is not None else None}
+
+    def check(self) -> ResultStore:
+        """Open the store now (a file that is not a store is refused here, before any work); return it."""
+        self._connect()
+        return self
+
+    def protocols(self) -> list[str]:
+        """The stage protocol ids the store holds rows of, sorted."""
+        return sorted({row["protocol_id"] for row in self.summary()})
 
     def summary(self) -> list[dict]:
         """Rows per stage and protocol: ``stage, protocol_id, entries, first, last`` (Unix times)."""

@@ -680,3 +680,86 @@ def test_a_dry_run_writes_its_configuration_aside(tmp_path, monkeypatch):
     out = tmp_path / "o"
     assert run_workflow(Config(), out, 1, dry_run=True) == 0
     assert (out / "config.dry-run.yaml").is_file() and not (out / "config.yaml").exists()
+
+
+# --------------------------------------------------------------------------- a new user's robustness audit
+
+def test_several_partners_are_all_checked_before_any_ranking_is_written(levels, tmp_path, capsys):
+    # `--partner y6,p_gas.csv` wrote rankings/y6--…/ before refusing the gas-scale file, and
+    # `--partner y6,c60,p_norole.csv` wrote two rankings, then exited 2
+    gas = tmp_path / "p_gas.csv"
+    gas.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale,role\nPG,-7.0,-2.5,3.5,gas,acceptor\n", encoding="utf-8")
+    norole = tmp_path / "p_norole.csv"
+    norole.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale\nPN,-5.6,-4.0,1.5,film\n", encoding="utf-8")
+    both = tmp_path / "both.csv"
+    both.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale,role\nD1,-5.3,-3.4,1.8,film,donor\n"
+                    "A1,-5.7,-4.0,1.5,film,acceptor\n", encoding="utf-8")
+    out = tmp_path / "out"
+    for lv, partners, said in ((levels, f"y6,{gas}", "on the 'gas' scale"),
+                               (both, f"y6,c60,{norole}", "partner 'PN' has no role")):
+        rc, stdout, err = _cli(capsys, "rank", "--levels", str(lv), "--out", str(out), "--partner", partners)
+        assert rc == 2 and said in err and len(err.strip().splitlines()) == 1, err
+        assert not stdout and not out.exists()
+    # a later partner's folder holding another partner's ranking: refused before the first partner is ranked
+    from screen.rank_io import ranking_folder
+
+    assert _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60")[0] == 0
+    (c60,) = (out / "rankings").iterdir()
+    c60.rename(out / "rankings" / ranking_folder("c70", {}))
+    rc, _, err = _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "y6,c70")
+    assert rc == 2 and "holds the ranking against partner 'c60'" in err
+    assert [p.name for p in (out / "rankings").iterdir()] == [ranking_folder("c70", {})]
+
+
+def test_levels_of_another_protocol_ranked_into_a_run_folder_say_so(levels, tmp_path, capsys):
+    # said "--config …/runB/config.yaml: … rank with the run's own config.yaml" although no --config was given
+    from screen.config import Config
+
+    run_a, run_b = tmp_path / "runA", tmp_path / "runB"
+    run_a.mkdir()
+    run_b.mkdir()
+    (run_a / "levels.csv").write_bytes(levels.read_bytes())
+    ff = Config().protocol_id
+    (run_a / "levels.csv.meta.json").write_text(json.dumps({"protocol_id": ff, "scale": "film"}), encoding="utf-8")
+    (run_a / "config.yaml").write_text(yaml.safe_dump(Config().to_dict()), encoding="utf-8")
+    xtb = Config.of({"structures": {"geometry": "xtb"}})
+    (run_b / "config.yaml").write_text(yaml.safe_dump(xtb.to_dict()), encoding="utf-8")
+    rc, stdout, err = _cli(capsys, "rank", "--levels", str(run_a / "levels.csv"), "--out", str(run_b), "--partner",
+                           "y6")
+    assert rc == 2 and len(err.strip().splitlines()) == 1
+    assert f"are of protocol {ff}, the run in {run_b} is of protocol {xtb.protocol_id}" in err
+    assert "--config" in err and f"--config {run_a / 'config.yaml'}" in err and "another --out" in err
+    assert f"--config {run_b / 'config.yaml'}:" not in err  # no --config was given
+    assert sorted(p.name for p in run_b.iterdir()) == ["config.yaml"]
+
+
+def test_ids_the_figure_font_lacks_draw_no_boxes_and_no_warnings(tmp_path, capsys):
+    # CJK ids printed a Matplotlib "Glyph … missing from font" warning for every character on every ranking
+    import warnings
+
+    path = tmp_path / "cjk.csv"
+    path.write_text("id,smiles,homo_ev,lumo_ev,gap_opt_ev,scale,role\n"
+                    "\u5316\u5408\u7269,c1ccc(-c2cccs2)s1,-5.55,-3.60,1.95,film,donor\n"
+                    "\u5316\u5408\u72697,c1ccc(-c2cccs2)s1,-5.45,-3.50,1.90,film,donor\n", encoding="utf-8")
+    with warnings.catch_warnings(record=True) as seen:
+        warnings.simplefilter("always")
+        rc, _, err = _cli(capsys, "rank", "--levels", str(path), "--out", str(tmp_path / "o"), "--partner", "y6")
+    assert rc == 0 and "Glyph" not in err
+    assert not [w for w in seen if "missing from font" in str(w.message)]
+    (report,) = (tmp_path / "o" / "rankings").glob("*/report.html")
+    html = report.read_text(encoding="utf-8")
+    figures = html[html.index('<svg id="fig-levels"'):]
+    assert "\u5316" not in figures.split("</svg>")[0]  # the level diagram: ranks instead of boxes
+    assert "\u2026" + "7" in html  # the readable part of an id is kept
+
+
+def test_the_command_table_lists_every_option_of_run():
+    # the run row of docs/contracts.md §7 omitted --config, --strict, --dry-run and --profile
+    from screen.cli import build_parser
+
+    doc = (Path(__file__).resolve().parent.parent / "docs" / "contracts.md").read_text(encoding="utf-8")
+    row = next(line for line in doc.splitlines() if line.startswith("| `dascreen run "))
+    parser = build_parser()
+    run = next(a for a in parser._actions if a.dest == "command").choices["run"]
+    options = [s for a in run._actions for s in a.option_strings if s.startswith("--") and s != "--help"]
+    assert options and all(f"[{o}" in row for o in options), [o for o in options if f"[{o}" not in row]

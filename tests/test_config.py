@@ -97,3 +97,37 @@ def test_loading_config_does_not_load_numpy():
     code = "import sys, screen.stages, screen.config; print(int('numpy' in sys.modules))"
     assert subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                           check=True).stdout.strip() == "0"
+
+
+@pytest.mark.parametrize("text, field", [
+    ("rank:\n  target_pce_pct: .nan\n", "rank.target_pce_pct"),
+    ("rank:\n  gap_min_ev: .nan\n", "rank.gap_min_ev"),
+    ("dyecell:\n  target_pce_pct: .nan\n", "dyecell.target_pce_pct"),
+    ("device:\n  eqe: .nan\n", "device.eqe"),
+    ("rank:\n  gap_max_ev: .inf\n", "rank.gap_max_ev"),
+])
+def test_numbers_that_are_not_finite_are_refused_naming_the_field(tmp_path, text, field):
+    # NaN passes every minimum/maximum of the schema: target nan % gave P(PCE > target) = 0 for every row
+    path = tmp_path / "nan.yaml"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(ConfigError, match=f"{path}: field {field}: .* is not a finite number"):
+        load_config(path)
+    section, key = field.split(".")
+    with pytest.raises(ConfigError, match=f"field {field}: (nan|-?inf) is not a finite number"):
+        Config.of({section: {key: float("nan") if "nan" in text else float("inf")}})
+    with pytest.raises(ConfigError, match="not a finite number"):  # a job's JSON configuration too
+        Config.from_json(json.dumps({section: {key: float("nan")}}))
+
+
+def test_a_config_file_that_is_not_utf8_or_not_yaml_is_one_line_naming_it(tmp_path):
+    binary = tmp_path / "bin.yaml"
+    binary.write_bytes(b"rank:\n  seed: 1\n\xff\xfe\n")
+    with pytest.raises(ConfigError) as err:
+        load_config(binary)
+    assert str(err.value) == (f"{binary}: the config file is not UTF-8 text (byte 0xff at position 16); save it as "
+                              "UTF-8 (a YAML file of fields, see `dascreen config --yaml`)")
+    broken = tmp_path / "broken.yaml"
+    broken.write_text("rank: [1\n", encoding="utf-8")
+    with pytest.raises(ConfigError) as err:
+        load_config(broken)
+    assert "\n" not in str(err.value) and "not valid YAML at line 2" in str(err.value)

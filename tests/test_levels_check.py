@@ -110,3 +110,19 @@ def test_equal_homo_and_lumo_are_called_equal_not_swapped():
     msg = str(err.value)
     assert "column homo_ev = -5: HOMO and LUMO are equal (-5)" in msg and "zero transport gap" in msg
     assert "swapped" not in msg
+
+
+@pytest.mark.parametrize("column", ["scale", "homo_ev", "role", "id"])
+def test_a_huge_cell_is_quoted_shortened_in_the_message(column):
+    # a 5 MB scale cell gave a 5 MB message
+    from screen.levels_check import QUOTE_MAX, quoted
+
+    huge = "x" * 5_000_000
+    frame = _frame(**{column: huge}) if column != "id" else pd.concat([_frame(id=huge), _frame(id=huge)])
+    frame = frame.reset_index(drop=True)
+    with pytest.raises(InputError) as err:
+        check_levels(frame, "big.csv")
+    text = str(err.value)
+    assert len(text) < 1000 and "… (5000000 characters)" in text
+    assert quoted(huge) == repr("x" * QUOTE_MAX) + "… (5000000 characters)"
+    assert quoted("film") == "'film'"

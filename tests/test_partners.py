@@ -67,7 +67,7 @@ def test_unknown_name_lists_library_ids():
 
 
 def test_unknown_name_says_did_you_mean():
-    with pytest.raises(PartnerError, match=r"Did you mean y6\?"):
+    with pytest.raises(PartnerError, match=r"Did you mean y6 \(acceptor\)\?"):  # no candidates: roles shown
         resolve_partner("y7")
     with pytest.raises(PartnerError, match="Did you mean scharber-reference-acceptor"):
         partner_kind("scharber-reference")
@@ -305,3 +305,51 @@ def test_smiles_partner_must_share_the_candidates_protocol(tmp_path):
     (tmp_path / "levels.csv.meta.json").write_text(json.dumps({"protocol_id": "tblite-gfn2-ff-00000000"}))
     ranking = pd.read_csv(run_rank(levels, "smiles:c1ccsc1", tmp_path, {}, partner_levels=path, report=False))
     assert ranking["partner"].tolist() == ["smiles:c1ccsc1"]
+
+
+@pytest.mark.parametrize("smiles, said", [
+    ("CC[Fe]", "element(s) not allowed: Fe"),
+    ("C1=CC", "(reason unparsable)"),
+    ("C[N+](C)(C)C", "(reason charged)"),
+])
+def test_the_smiles_of_a_partner_file_is_checked_like_a_smiles_partner(tmp_path, smiles, said):
+    # `smiles = CC[Fe]` was accepted and the partner classed nfa-other
+    path = tmp_path / "mine.csv"
+    path.write_text(f"id,homo_ev,lumo_ev,gap_opt_ev,scale,role,smiles\nP1,-5.6,-3.9,1.5,film,acceptor,{smiles}\n",
+                    encoding="utf-8")
+    with pytest.raises(PartnerError) as err:
+        resolve_partner(str(path))
+    text = str(err.value)
+    assert f"partner file {path}: line 2, column smiles = {smiles!r}: " in text and said in text
+    path.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale,role,smiles\nP1,-5.6,-3.9,1.5,film,acceptor,c1ccsc1\n",
+                    encoding="utf-8")
+    assert resolve_partner(str(path)).smiles == "c1ccsc1"
+
+
+def test_the_partner_file_smiles_is_refused_by_the_command_before_ranking(tmp_path, capsys):
+    from screen.cli import main
+
+    levels = _one_row(tmp_path / "lv.csv")
+    bad = tmp_path / "p.csv"
+    bad.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale,role,smiles\nP1,-5.6,-3.9,1.5,film,acceptor,CC[Fe]\n",
+                   encoding="utf-8")
+    assert main(["rank", "--levels", str(levels), "--out", str(tmp_path / "o"), "--partner", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert "column smiles = 'CC[Fe]'" in err and len(err.strip().splitlines()) == 1
+    assert not (tmp_path / "o").exists()
+
+
+def test_did_you_mean_keeps_to_a_role_or_names_each_role():
+    from screen.partners import did_you_mean, unknown_partner
+
+    assert did_you_mean("pcdtbx") == ["pcdtbt", "idtbr"]
+    assert did_you_mean("pcdtbx", role="acceptor") == ["idtbr"]
+    assert "Did you mean pcdtbt (donor) or idtbr (acceptor)?" in str(unknown_partner("pcdtbx"))
+    text = str(unknown_partner("pcdtbx", role="acceptor"))
+    assert "Did you mean idtbr? (only acceptors are named: the candidates are donors)" in text
+
+
+def test_a_huge_partner_name_is_not_echoed_in_full():
+    with pytest.raises(PartnerError) as err:
+        partner_kind("z" * 100_000)
+    assert len(str(err.value)) < 1500 and "(100000 characters)" in str(err.value)

@@ -4,6 +4,7 @@ and nothing is computed (the output folder is not even created)."""
 from __future__ import annotations
 
 import fcntl
+import os
 import subprocess
 import sys
 
@@ -77,7 +78,7 @@ def test_unknown_file_type(capsys, tmp_path):
 def test_unknown_partner_says_did_you_mean(capsys, tmp_path, good):
     err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--partner", "y7",
                    message="unknown partner 'y7'")
-    assert "Did you mean y6?" in err
+    assert "Did you mean y6 (acceptor)?" in err  # candidates without roles: each suggestion says its role
 
 
 def test_unknown_partner_in_a_rank_list(capsys, tmp_path):
@@ -244,3 +245,204 @@ def test_a_calibration_of_other_settings_is_never_suggested_into_the_shipped_fol
     assert f"--install {models.with_name('models-custom')}" in text
     assert f"--set calibration.models={models.with_name('models-custom')}" in text
     assert f"--install {models} " not in text + " "
+
+
+# --------------------------------------------------------------------------- a new user's robustness audit
+
+@pytest.mark.parametrize("make, said", [
+    (lambda p: None, "no such folder"),
+    (lambda p: p.write_text("cores: 1\n"), "is a file, not a folder"),
+    (lambda p: p.mkdir(), "the folder holds no config.yaml"),
+    (lambda p: (p.mkdir(), (p / "config.yaml").write_text("cores: [1\n")), "not valid YAML at line 2"),
+    (lambda p: (p.mkdir(), (p / "config.yaml").write_bytes(b"cores: 1\n\xff\n")), "not UTF-8 text"),
+    (lambda p: (p.mkdir(), (p / "config.yaml").write_text("- cores\n")), "holds list, not a mapping"),
+    (lambda p: (p.mkdir(), (p / "config.yaml").write_text("coress: 2\n")), "'coress', not an option of the workflow"),
+    (lambda p: (p.mkdir(), (p / "config.yaml").write_text("executor: nosuchexecutor\n")), "is not installed"),
+])
+def test_a_profile_that_is_no_profile_folder_is_refused_before_the_run(capsys, tmp_path, good, no_workflow, make,
+                                                                      said):
+    # a missing --profile was ignored (the run went on locally, exit 0); a broken config.yaml stopped the workflow
+    # engine with exit 1 and its 80-line usage text
+    profile = tmp_path / "prof"
+    make(profile)
+    err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--profile", str(profile),
+                   message=f"--profile {profile}")
+    assert said in err and "usage:" not in err
+    assert not (tmp_path / "o").exists()
+
+
+def test_the_shipped_local_profile_passes_the_profile_check():
+    from pathlib import Path
+
+    from screen.preflight import check_profile
+
+    check_profile(Path(__file__).resolve().parent.parent / "profiles" / "local-generic")
+
+
+@pytest.fixture()
+def dry(monkeypatch):
+    """The workflow is not started; the configuration it would get is recorded."""
+    import screen.cli
+
+    calls = []
+    monkeypatch.setattr(screen.cli, "run_workflow", lambda cfg, out, *a, **k: calls.append(cfg) or 0)
+    return calls
+
+
+def test_run_refuses_an_id_partner_that_is_no_candidate_before_any_work(capsys, tmp_path, good, no_workflow):
+    # found by the ranking job after every level was computed: exit 1, 47 lines and a traceback
+    err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--partner", "id:NOPE",
+                   message="partner 'id:NOPE': no candidate with id 'NOPE' in")
+    assert "Traceback" not in err
+    err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--partner", "id:a",
+                   message="no candidate with id 'a'")
+    assert "did you mean id:A?" in err
+    assert not (tmp_path / "o").exists()
+
+
+def test_run_asks_for_the_role_of_a_roleless_partner_and_takes_role(capsys, tmp_path, dry):
+    both = tmp_path / "both.csv"
+    both.write_text("id,smiles,role\nD1,c1ccsc1,donor\nA1,c1ccoc1,acceptor\nN1,c1ccncc1,\n", encoding="utf-8")
+    for partner, said in (("smiles:c1ccccc1", "has no role of its own"), ("id:N1", "its row in")):
+        err = _refused(capsys, "run", str(both), "--out", str(tmp_path / "o"), "--partner", partner,
+                       message="--role donor|acceptor")
+        assert said in err and "the candidates do not imply one" in err
+    err = _refused(capsys, "run", str(both), "--out", str(tmp_path / "o"), "--partner", "smiles:c1ccccc1",
+                   message="has no role of its own")
+    assert f"the role column of {both}" in err  # the run's own file, not "the levels file"
+    assert not dry and not (tmp_path / "o").exists()
+    # `dascreen run` has --role now (the message told users to pass it); it is rank.role
+    rc, _, err = _run(capsys, "run", str(both), "--out", str(tmp_path / "o"), "--partner", "smiles:c1ccccc1",
+                      "--role", "donor", "--dry-run")
+    assert rc == 0 and len(dry) == 1 and dry[0]["rank"]["role"] == "donor", err
+    _refused(capsys, "run", str(both), "--out", str(tmp_path / "o"), "--role", "donor", "--set", "rank.role=acceptor",
+             message="--role donor and --set rank.role=acceptor give rank.role two values")
+
+
+@pytest.mark.parametrize("item, field", [
+    ("rank.target_pce_pct=.nan", "rank.target_pce_pct"),
+    ("rank.gap_min_ev=.nan", "rank.gap_min_ev"),
+    ("dyecell.target_pce_pct=.nan", "dyecell.target_pce_pct"),
+    ("device.eqe=.nan", "device.eqe"),
+    ("rank.gap_max_ev=.inf", "rank.gap_max_ev"),
+])
+def test_a_setting_that_is_not_a_finite_number_is_refused(capsys, tmp_path, good, no_workflow, item, field):
+    # `--set rank.target_pce_pct=.nan` ranked with "target nan % PCE" and P(PCE > target) = 0 for every row;
+    # `rank.gap_min_ev=.nan` switched the gap window off (NaN passes every min/max comparison)
+    err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--set", item,
+                   message=f"--set {item}: ")
+    assert "not a finite number" in err and field in err
+    section, key = field.split(".")
+    value = ".inf" if "inf" in item else ".nan"
+    cfg = tmp_path / "mine.yaml"
+    cfg.write_text(f"{section}:\n  {key}: {value}\n", encoding="utf-8")
+    err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--config", str(cfg),
+                   message=f"field {field}: ")
+    assert "not a finite number" in err
+    assert not (tmp_path / "o").exists()
+
+
+def test_calibration_models_that_do_not_exist_are_named_as_such(capsys, tmp_path, good, no_workflow):
+    # said "no calibration ... calibrate these settings once (hours)"
+    missing = tmp_path / "nonexist"
+    err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--set", f"calibration.models={missing}",
+                   message=f"calibration.models {missing} does not exist")
+    assert "hours" not in err and "dascreen calibrate" not in err
+    assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.parametrize("command", ["run", "rank", "dyecell", "store", "calibrate"])
+def test_a_config_file_that_is_not_utf8_is_refused_naming_it(capsys, tmp_path, good, no_workflow, command):
+    binary = tmp_path / "bin.yaml"
+    binary.write_bytes(b"rank:\n  seed: 1\n\xff\xfe\n")
+    out = tmp_path / "o"
+    args = {"run": ["run", str(good), "--out", str(out)],
+            "rank": ["rank", "--levels", str(_levels(tmp_path)), "--out", str(out)],
+            "dyecell": ["dyecell", str(good), "--out", str(out)],
+            "store": ["store", "list"],
+            "calibrate": ["calibrate", "--out", str(out)]}[command]
+    err = _refused(capsys, *args, "--config", str(binary), message=f"{binary}: the config file is not UTF-8 text")
+    assert "UnicodeDecodeError" not in err
+    assert not out.exists()
+
+
+def _levels(tmp_path):
+    path = tmp_path / "lv.csv"
+    path.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale,role\nKF-D01,-5.4,-3.9,1.5,film,donor\n", encoding="utf-8")
+    return path
+
+
+def test_a_run_folder_whose_config_yaml_is_not_utf8_is_refused(capsys, tmp_path, good, no_workflow):
+    out = tmp_path / "o"
+    out.mkdir()
+    (out / "config.yaml").write_bytes(b"candidates: x\n\xff\n")
+    (out / "levels.csv").write_text(_levels(tmp_path).read_text())
+    err = _refused(capsys, "run", str(good), "--out", str(out), message=f"{out / 'config.yaml'}")
+    assert "not UTF-8 text" in err and "--overwrite" in err
+    _refused(capsys, "rank", "--out", str(out), "--partner", "y6",
+             message=f"{out / 'config.yaml'}: the config file is not UTF-8 text")
+    assert sorted(p.name for p in out.iterdir()) == ["config.yaml", "levels.csv"]
+
+
+@pytest.mark.skipif(not os.path.isdir("/proc/self"), reason="needs /proc (a folder no one can create in)")
+def test_an_out_folder_that_cannot_be_created_is_refused_naming_path_and_reason(capsys, tmp_path, good):
+    # /sys/x and /proc/x gave a PermissionError traceback or a bare "[Errno 2] ..."
+    from pathlib import Path
+
+    import screen.launch
+    from screen.config import Config
+
+    started = []
+    monkey = pytest.MonkeyPatch()
+    monkey.setattr(screen.launch, "_start", lambda *a, **k: started.append(a) or pytest.fail("engine started"))
+    try:
+        err = _refused(capsys, "run", str(good), "--out", "/proc/dascreen-x", "--dry-run",
+                       message="--out /proc/dascreen-x: cannot create the folder /proc/dascreen-x: ")
+        err = _refused(capsys, "rank", "--levels", str(_levels(tmp_path)), "--out", "/proc/dascreen-x",
+                       "--partner", "y6", message="--out /proc/dascreen-x: cannot create the folder")
+        assert "Errno" not in err and "dascreen rank:" not in err  # refused before the ranking says anything
+        raw = Path(__file__).resolve().parent.parent / "models" / Config().protocol_id
+        _refused(capsys, "calibrate", "--from-raw", str(raw), "--out", "/proc/dascreen-x",
+                 message="--out /proc/dascreen-x: cannot create the folder")
+    finally:
+        monkey.undo()
+    assert not started
+
+
+def test_an_empty_out_is_refused_by_rank_and_run(capsys, tmp_path, good, no_workflow, monkeypatch):
+    # `dascreen rank --out ''` wrote into the current folder
+    monkeypatch.chdir(tmp_path)
+    before = sorted(p.name for p in tmp_path.iterdir())
+    for args in (["rank", "--levels", str(_levels(tmp_path)), "--partner", "y6"], ["run", str(good)]):
+        _refused(capsys, *args, "--out", "", message="--out '' names no folder")
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(before + ["lv.csv"])
+
+
+def test_partner_suggestions_keep_to_the_role_the_candidates_need(capsys, tmp_path):
+    # an acceptor abbreviation missing from the library got "Did you mean pcdtbt?" (a donor polymer)
+    donors = _levels(tmp_path)
+    err = _refused(capsys, "rank", "--levels", str(donors), "--out", str(tmp_path / "o"), "--partner", "pcdtbx",
+                   message="unknown partner 'pcdtbx'")
+    assert "Did you mean idtbr? (only acceptors are named: the candidates are donors)" in err
+    assert "Did you mean pcdtbt" not in err
+    err = _refused(capsys, "rank", "--levels", str(donors), "--out", str(tmp_path / "o"), "--partner", "ptb8",
+                   "--role", "acceptor", message="unknown partner 'ptb8'")
+    assert "Did you mean pcdtbt or ptb7-th? (only donors are named" in err
+    plain = tmp_path / "plain.csv"
+    plain.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale\nX1,-5.4,-3.9,1.5,film\n", encoding="utf-8")
+    err = _refused(capsys, "rank", "--levels", str(plain), "--out", str(tmp_path / "o"), "--partner", "pcdtbx",
+                   message="unknown partner 'pcdtbx'")
+    assert "Did you mean pcdtbt (donor) or idtbr (acceptor)?" in err  # no role known: each with its role
+    both = tmp_path / "cands.csv"
+    both.write_text("id,smiles,role\nD1,c1ccsc1,donor\n", encoding="utf-8")
+    err = _refused(capsys, "run", str(both), "--out", str(tmp_path / "o"), "--partner", "pcdtbx",
+                   message="unknown partner 'pcdtbx'")
+    assert "Did you mean idtbr? (only acceptors" in err
+    assert not (tmp_path / "o").exists()
+
+
+def test_run_help_says_what_a_dry_run_writes(capsys):
+    with pytest.raises(SystemExit):
+        main(["run", "--help"])
+    text = " ".join(capsys.readouterr().out.split())
+    assert "run nothing" not in text and "OUT/config.dry-run.yaml" in text and "--role {donor,acceptor}" in text

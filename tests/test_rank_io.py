@@ -271,3 +271,33 @@ def test_the_published_rule_against_a_real_partner_says_its_voc_runs_high(tmp_pa
     from screen.report.header import MODEL_TEXT
 
     assert f"(+{bias:.2f} V on average" in MODEL_TEXT["scharber"] and f"(+{bias:.2f} V" in MODEL_TEXT["scharber-both"]
+
+
+def test_every_partner_is_checked_before_the_first_ranking(tmp_path):
+    # `dascreen rank --partner y6,c60,p_norole.csv` wrote two rankings, then refused the third partner
+    from screen.errors import InputError
+    from screen.rank_io import check_before_computing, ranking_folder
+
+    levels = tmp_path / "levels.csv"
+    pd.DataFrame({"id": ["syn-d", "syn-a"], "homo_ev": [-5.3, -5.7], "lumo_ev": [-3.4, -4.0],
+                  "gap_opt_ev": [1.8, 1.5], "scale": ["film", "film"], "role": ["donor", "acceptor"]}).to_csv(
+        levels, index=False)
+    norole = tmp_path / "p_norole.csv"
+    norole.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale\nsyn-p,-5.6,-4.0,1.5,film\n", encoding="utf-8")
+    gas = tmp_path / "p_gas.csv"
+    gas.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale,role\nsyn-g,-7.0,-2.5,3.5,gas,acceptor\n", encoding="utf-8")
+    swapped = tmp_path / "p_swapped.csv"  # HOMO above LUMO: refused by the levels check of a partner
+    swapped.write_text("id,homo_ev,lumo_ev,gap_opt_ev,scale,role\nsyn-s,-4.0,-5.6,1.5,film,acceptor\n",
+                       encoding="utf-8")
+    out = tmp_path / "out"
+    for partner, said in ((norole, "has no role"), (gas, "'gas' scale"), (swapped, "look swapped"),
+                          ("id:syn-x", "no row with id 'syn-x'")):
+        with pytest.raises(InputError, match=said):
+            check_before_computing(levels, ["y6", "c60", str(partner)], {}, out_dir=out)
+    check_before_computing(levels, ["y6", "c60", "id:syn-a"], {}, out_dir=out)
+    clash = out / "rankings" / ranking_folder("c60", {})
+    clash.mkdir(parents=True)
+    (clash / "ranking.meta.json").write_text(json.dumps({"partner": {"id": "y6", "kind": "library"}}))
+    with pytest.raises(Exception, match="holds the ranking against partner 'y6', not 'c60'"):
+        check_before_computing(levels, ["y6", "c60"], {}, out_dir=out)
+    assert sorted(p.name for p in out.rglob("*")) == sorted([clash.name, "rankings", "ranking.meta.json"])

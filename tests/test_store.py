@@ -326,3 +326,82 @@ def test_later_options_at_their_earlier_values_keep_the_stage_ids():
     assert stage_protocol_id("structures", StructureOptions(**{**EARLIER_ROUTE_VALUES["structures"],
                                                                 "rank_warm_start": True})) != \
         stage_protocol_id("structures", plain)
+
+
+# --------------------------------------------------------------------------- `dascreen store` refuses, changes nothing
+
+def _store_cli(capsys, *args):
+    from screen.cli import main
+
+    rc = main(["store", *args])
+    return rc, capsys.readouterr()
+
+
+def _one_row_store(path: Path) -> ResultStore:
+    store = ResultStore(path)
+    store.put("electronic", "m0123456789abcdef", {"method": "GFN2-xTB"}, {"status": "ok", "xtb_ip_ev": 9.1})
+    store.close()
+    return store
+
+
+@pytest.mark.parametrize("content, said", [
+    (b"", "an empty file, not a results store"),
+    (b"hello\n", "not a results store (not an SQLite database)"),
+    (None, "holds no dascreen results"),
+])
+@pytest.mark.parametrize("action", [["list"], ["export", "--to", "x.csv"], ["prune"], ["prune", "--dry-run"]])
+def test_a_file_that_is_no_store_is_refused_and_left_as_it_was(tmp_path, capsys, monkeypatch, content, said, action):
+    # `dascreen store list --store afile` turned an empty or text file into an SQLite database
+    monkeypatch.chdir(tmp_path)
+    path = tmp_path / "afile"
+    if content is None:  # another program's SQLite database
+        with sqlite3.connect(path) as db:
+            db.execute("CREATE TABLE t (x)")
+        db.close()
+    else:
+        path.write_bytes(content)
+    before = path.read_bytes()
+    rc, captured = _store_cli(capsys, *action, "--store", str(path))
+    assert rc == 2 and said in captured.err and "the file was not changed" in captured.err
+    assert len(captured.err.strip().splitlines()) == 1 and "Traceback" not in captured.err
+    assert path.read_bytes() == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["afile"]  # no export, no -wal or -shm
+
+
+def test_list_and_export_leave_a_store_unchanged(tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    path = tmp_path / "s.sqlite"
+    _one_row_store(path)
+    before = path.read_bytes()
+    for action in (["list", "--keys"], ["export", "--to", "x.csv"], ["prune", "--dry-run"]):
+        assert _store_cli(capsys, *action, "--store", str(path))[0] == 0
+    assert path.read_bytes() == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["s.sqlite", "x.csv"]  # the -wal and -shm are gone too
+
+
+def test_an_unknown_protocol_or_export_type_is_refused(tmp_path, capsys, monkeypatch):
+    # `export --protocol nope` wrote an empty file with exit 0, `prune --protocol nope` pruned nothing silently, and
+    # `--to x.xyz` wrote SD records under another name
+    monkeypatch.chdir(tmp_path)
+    path = tmp_path / "s.sqlite"
+    _one_row_store(path)
+    held = stage_protocol_id("electronic", {"method": "GFN2-xTB"})
+    for action in (["export", "--to", "x.sdf"], ["prune"], ["prune", "--dry-run"]):
+        rc, captured = _store_cli(capsys, *action, "--store", str(path), "--protocol", "nope")
+        assert rc == 2 and f"unknown protocol nope; the store {path} holds: {held}" in captured.err
+    rc, captured = _store_cli(capsys, "export", "--store", str(path), "--to", "x.xyz")
+    assert rc == 2 and "--to x.xyz: the export is written as .sdf" in captured.err and "--to x.sdf" in captured.err
+    rc, captured = _store_cli(capsys, "export", "--store", str(path), "--to", str(tmp_path / "no" / "x.csv"))
+    assert rc == 2 and "does not exist" in captured.err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["s.sqlite"]
+    assert [r["protocol_id"] for r in ResultStore(path).rows()] == [held]
+
+
+@pytest.mark.skipif(not Path("/proc/self").is_dir(), reason="needs /proc (a folder no file can be made in)")
+def test_an_export_that_cannot_be_written_is_one_message(tmp_path, capsys):
+    # `store export --to /sys/x.sdf` gave a traceback
+    path = tmp_path / "s.sqlite"
+    _one_row_store(path)
+    rc, captured = _store_cli(capsys, "export", "--store", str(path), "--to", "/proc/dascreen-x.sdf")
+    assert rc == 2 and captured.err.startswith("dascreen: error: --to /proc/dascreen-x.sdf: cannot write")
+    assert "Traceback" not in captured.err and len(captured.err.strip().splitlines()) == 1

@@ -10,9 +10,12 @@ References
 
 from __future__ import annotations
 
+import contextlib
 import io
 import math
 import re
+import warnings
+from functools import lru_cache
 
 import numpy as np
 import pandas as pd
@@ -146,7 +149,7 @@ def _figure_svg(fig, prefix: str, css_class: str, label: str) -> str:
     import matplotlib
 
     buf = io.StringIO()
-    with matplotlib.rc_context(_RC):
+    with matplotlib.rc_context(_RC), _no_glyph_warnings():
         fig.savefig(buf, format="svg", bbox_inches="tight", pad_inches=0.06,
                     metadata={"Date": None, "Creator": None, "Format": None, "Type": None})
     svg = buf.getvalue()
@@ -168,6 +171,46 @@ def _figure_svg(fig, prefix: str, css_class: str, label: str) -> str:
     return (head + svg[head_end:]).strip()
 
 
+@lru_cache(maxsize=1)
+def _font_codepoints() -> frozenset | None:
+    """Code points the figures' font (``font.sans-serif`` of :data:`_RC`) can draw (None when not known)."""
+    try:
+        from matplotlib import font_manager
+        from matplotlib.ft2font import FT2Font
+
+        path = font_manager.findfont(font_manager.FontProperties(family=_RC["font.sans-serif"]))
+        return frozenset(FT2Font(path).get_charmap())
+    except Exception:  # noqa: BLE001 - no font information: labels are drawn as given
+        return None
+
+
+def _drawable(label: str, fallback: str = "") -> str:
+    """``label`` with every run of characters the font lacks written as ``…``; ``fallback`` when nothing
+    readable (no letter or digit) is left.
+
+    Ids in CJK or other scripts the font lacks were drawn as boxes, with a Matplotlib warning per glyph on
+    every ranking (a new user's audit); the rank beside them still names the row.
+
+    Examples
+    --------
+    >>> _drawable("KF-D01"), _drawable("\u5316\u5408\u72697", "#2"), _drawable("\u5316\u5408\u7269", "#2")
+    ('KF-D01', '\u20267', '#2')
+    """
+    known = _font_codepoints()
+    if known is None or all(ord(c) in known or c in "\n\t " for c in label):
+        return label
+    out = re.sub(r"\u2026+", "\u2026", "".join(c if ord(c) in known or c in "\n\t " else "\u2026" for c in label))
+    return out if any(c.isalnum() for c in out) else fallback
+
+
+@contextlib.contextmanager
+def _no_glyph_warnings():
+    """Silence Matplotlib's "Glyph … missing from font(s)" warnings (the labels are made drawable first)."""
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=r"Glyph \d+ .*missing from font", category=UserWarning)
+        yield
+
+
 def _partner_value(partner: dict, key: str) -> float:
     """A numeric field of the partner dict (NaN if absent)."""
     return num(partner.get(key)) if isinstance(partner, dict) else math.nan
@@ -182,10 +225,11 @@ def _partner_role(partner: dict) -> str:
 # Level alignment
 # --------------------------------------------------------------------------- #
 def _tick_label(rank, ident: str) -> str:
-    """``"#3\\nid…"`` for the level-alignment axis."""
+    """``"#3\\nid…"`` for the level-alignment axis (``"#3"`` alone for an id the font cannot draw)."""
     r = num(rank)
     head = f"#{int(r)}" if not math.isnan(r) else "#?"
-    return f"{head}\n{shorten(ident, 14)}"
+    ident = _drawable(shorten(ident, 14))
+    return f"{head}\n{ident}" if ident else head
 
 
 def _draw_levels(ax, rows: pd.DataFrame, partner: dict, thr: float, half: float) -> list[float]:
@@ -236,7 +280,7 @@ def _level_axes(ax, rows: pd.DataFrame, pid: str, levels_seen: list[float]) -> N
     """Ticks (partner, then ``#rank id``), limits, label and grid of the level diagram."""
     n = len(rows)
     ticks = [0] + list(range(1, n + 1))
-    labels = [f"partner\n{shorten(pid, 14)}"] + [
+    labels = [f"partner\n{_drawable(shorten(pid, 14))}".rstrip()] + [
         _tick_label(r.get("rank"), text(r.get("id"))) for _, r in rows.iterrows()]
     ax.set_xticks(ticks)
     ax.set_xticklabels(labels, fontsize=8.5)
@@ -310,7 +354,7 @@ def level_diagram_svg(shortlist: pd.DataFrame, partner: dict, meta: dict) -> str
     thr = num(get(meta, "device", "min_delta_lumo_ev"))
     pid = text(partner.get("id")) if isinstance(partner, dict) else ""
 
-    with matplotlib.rc_context(_RC):
+    with matplotlib.rc_context(_RC), _no_glyph_warnings():
         width = max(8.8, min(11.5, 2.0 + 0.85 * (n + 1)))
         fig = Figure(figsize=(width, 4.6))
         ax = fig.add_subplot()
@@ -511,10 +555,17 @@ def _map_candidates(ax, pts: pd.DataFrame, finite: pd.Series, shortlist_index, e
     ax.set_xlim(g_lo, g_hi)
     ax.set_ylim(o_lo, o_hi)
     stroke = [patheffects.withStroke(linewidth=2.2, foreground="white")]
-    labels = [(shorten(text(p["id"]), 16) or "?", p["x"], p["y"]) for _, p in pts.loc[sl].iterrows()]
+    labels = [(_drawable(shorten(text(p["id"]), 16), _rank_label(p.get("rank"))) or "?", p["x"], p["y"])
+              for _, p in pts.loc[sl].iterrows()]
     for (label, x, y), offset in zip(labels, _label_offsets(ax, labels)):
         ax.annotate(label, (x, y), xytext=offset, textcoords="offset points", fontsize=8,
                     color=_TEAL_DARK, fontweight="bold", path_effects=stroke, zorder=5)
+
+
+def _rank_label(rank) -> str:
+    """``#3`` for a rank, '' without one."""
+    r = num(rank)
+    return "" if math.isnan(r) else f"#{int(r)}"
 
 
 def _map_note(pts: pd.DataFrame, finite: pd.Series, model, partner: dict, model_note: str) -> str:
@@ -590,14 +641,14 @@ def design_map_svg(ranking: pd.DataFrame, shortlist_index, partner: dict, meta: 
     target = num(get(meta, "rank", "target_pce_pct"))
     cand_role = "acceptor" if _partner_role(partner) == "donor" else "donor"
 
-    with matplotlib.rc_context(_RC):
+    with matplotlib.rc_context(_RC), _no_glyph_warnings():
         fig = Figure(figsize=(9.4, 6.0))
         ax = fig.add_subplot()
         _map_mask(ax, extent)
         filled = _map_contours(ax, gaps, offsets, pce, target)
         _map_candidates(ax, pts, finite, shortlist_index, extent)
-        ax.set_title(f"{model.label} \u2014 partner {shorten(text(partner.get('id')), 30)}", fontsize=10,
-                     color=_TEAL_DARK)
+        ax.set_title(f"{model.label} \u2014 partner {_drawable(shorten(text(partner.get('id')), 30))}".rstrip(),
+                     fontsize=10, color=_TEAL_DARK)
         ax.set_xlabel(f"{cand_role.capitalize()} optical gap [eV]")
         ax.set_ylabel("LUMO offset \u0394LUMO = LUMO(donor) \u2212 LUMO(acceptor) [eV]")
         cbar = fig.colorbar(filled, ax=ax, pad=0.02, fraction=0.045)
