@@ -427,7 +427,7 @@ def _check_sdf(path: Path) -> int:
     try:
         with opener(path, "rt", encoding="utf-8") as fh:
             records = sum(1 for line in fh if line.startswith("M  END"))
-    except (OSError, UnicodeDecodeError) as exc:
+    except (OSError, EOFError, UnicodeDecodeError) as exc:  # EOFError: a truncated .sdf.gz
         raise InputError(f"candidates file {path} cannot be read as UTF-8 SD file: {exc}") from None
     if not records:
         raise InputError(f"candidates file {path} holds no SD record (no 'M  END' line): nothing to screen")
@@ -959,7 +959,9 @@ def calibration_differences(cfg) -> tuple[Path | None, list[CalibrationDifferenc
         diffs = [CalibrationDifference(key, here.get(key, fallback.get(key)), shipped.get(key, fallback.get(key)))
                  for key in sorted(set(here) | set(shipped))
                  if here.get(key, fallback.get(key)) != shipped.get(key, fallback.get(key))]
-        if found.get("engine_version") != expected["engine_version"]:
+        same_engine = here.get("electronic.engine", fallback.get("electronic.engine")) == shipped.get(
+            "electronic.engine", fallback.get("electronic.engine"))  # versions of two engines do not compare
+        if same_engine and found.get("engine_version") != expected["engine_version"]:
             diffs.append(CalibrationDifference("engine_version", expected["engine_version"],
                                                found.get("engine_version")))
         if found.get("reference_sha256") != expected["reference_sha256"]:

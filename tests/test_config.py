@@ -131,3 +131,28 @@ def test_a_config_file_that_is_not_utf8_or_not_yaml_is_one_line_naming_it(tmp_pa
     with pytest.raises(ConfigError) as err:
         load_config(broken)
     assert "\n" not in str(err.value) and "not valid YAML at line 2" in str(err.value)
+
+
+def test_the_xtb_python_engine_is_refused_with_settings_it_cannot_do():
+    # an engine audit: with the defaults, engine xtb returned NaN film IP/EA on rows marked ok and skipped the
+    # nitrogen lone-pair rule (pyridine's raw IP 13.71 against 15.01 eV with tblite on the same geometry)
+    from screen.options import ElectronicOptions
+
+    with pytest.raises(ConfigError, match="film_epsilon=null.*lone_pair_homo=aufbau"):
+        ElectronicOptions(engine="xtb")
+    with pytest.raises(ConfigError, match="solvent=null"):
+        ElectronicOptions(engine="xtb", film_epsilon=None, lone_pair_homo="aufbau", solvent="water")
+    ok = ElectronicOptions(engine="xtb", film_epsilon=None, lone_pair_homo="aufbau")
+    assert ok.engine == "xtb"
+    with pytest.raises(ConfigError, match="electronic.engine=xtb"):
+        Config.of({"electronic": {"engine": "xtb"}}).electronic
+
+
+def test_a_calibration_of_another_engine_is_not_compared_by_version():
+    # the message told a user of engine xtb (xtb-python 22.1) to "install xtb 0.8.x", tblite's version
+    from screen.preflight import calibration_differences
+
+    cfg = Config.of({"electronic": {"engine": "xtb", "film_epsilon": None, "lone_pair_homo": "aufbau"}})
+    _, diffs = calibration_differences(cfg)
+    keys = [d.field for d in diffs]
+    assert "electronic.engine" in keys and "engine_version" not in keys

@@ -446,3 +446,17 @@ def test_run_help_says_what_a_dry_run_writes(capsys):
         main(["run", "--help"])
     text = " ".join(capsys.readouterr().out.split())
     assert "run nothing" not in text and "OUT/config.dry-run.yaml" in text and "--role {donor,acceptor}" in text
+
+
+def test_a_truncated_gzipped_sd_file_is_refused_in_one_line(tmp_path):
+    # a robustness audit: a truncated .sdf.gz gave an EOFError traceback from the preflight record count
+    import gzip
+
+    from screen.errors import InputError
+    from screen.preflight import check_candidates
+
+    whole = gzip.compress(b"\n  x\n\n  0  0  0  0  0  0  0  0  0  0999 V2000\nM  END\n$$$$\n" * 50)
+    path = tmp_path / "cut.sdf.gz"
+    path.write_bytes(whole[: len(whole) // 2])
+    with pytest.raises(InputError, match="cannot be read as UTF-8 SD file"):
+        check_candidates(path)

@@ -185,7 +185,7 @@ def _check_same_candidates(out: Path, given: Path, overwrite: bool) -> dict:
     if not before and (out / "config.yaml").is_file():
         try:
             named = (yaml.safe_load((out / "config.yaml").read_text(encoding="utf-8")) or {}).get("candidates")
-        except (OSError, yaml.YAMLError):
+        except (OSError, UnicodeDecodeError, yaml.YAMLError):
             named = None
         internal = (out / "dyecell" / "candidates.csv").resolve()
         if named and Path(str(named)).resolve() != internal:  # the copy: the original is not known
@@ -327,7 +327,7 @@ def cmd_dyecell(args) -> int:
     from screen.dyecell.library import resolve_material
     from screen.dyecell.stage import levels_tag, own_levels, record_inputs, run_dyecell
     from screen.preflight import (check_calibration, check_candidates, check_out, check_out_folder,
-                                  check_rank_config, check_rank_sets)
+                                  check_rank_config, check_rank_sets, make_out_folder)
 
     if args.list:
         _print_libraries()
@@ -356,6 +356,7 @@ def cmd_dyecell(args) -> int:
         resolve_material(role, cfg["dyecell"][role])
     if args.candidates or args.refit:  # both compute levels: hours of reference computation only when asked for
         check_calibration(cfg, out, args.config)
+    make_out_folder(out, args.out)  # the first write: --out /proc/x gave a bare "[Errno 2]" line
     if args.candidates:
         record_inputs(out, candidates=source)
         _dye_candidates(given, out, read=read)
