@@ -52,6 +52,7 @@ from pathlib import Path
 
 from screen.errors import InputError
 from screen.options import EARLIER_ROUTE_VALUES, route_structures
+from screen.provenance import package_version
 
 __all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "stage_protocol", "stage_protocol_id",
            "geometry_hash", "store_location", "open_store", "resolve_store", "store_text", "export_store",
@@ -65,6 +66,13 @@ _APPLICATION = "dascreen results store"
 _STAGES = ("structures", "electronic")
 #: options that change no number (left out of the stage protocol)
 _NOT_PROTOCOL = {"electronic": ("threads",), "structures": ()}
+#: libraries whose version changes a stage's numbers (conformer embedding, force field, xTB), keyed in the stage
+#: protocol by major.minor version; the electronic stage takes its engine's package
+STAGE_LIBRARIES = {"structures": ("rdkit", "tblite"), "electronic": ()}
+#: the versions the store's ids were written with before versions were part of them: at these the version is left
+#: out of the id (filled stores stay valid); any other version keys rows of its own, so an upgrade never reuses
+#: numbers of the old version (an engine audit: a recalibration after an upgrade silently took stored values)
+BASE_LIBRARY_VERSIONS = {"rdkit": "2026.9", "tblite": "0.8"}
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS info (name TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -84,10 +92,15 @@ def stage_protocol(stage: str, options) -> dict:
     options : dataclass or mapping
         :class:`screen.options.StructureOptions` / :class:`screen.options.ElectronicOptions` or their mapping.
 
+    The versions (major.minor) of the libraries that change the stage's numbers are part of it as
+    ``<library>_version`` (:data:`STAGE_LIBRARIES`, the electronic stage's engine package), except at
+    :data:`BASE_LIBRARY_VERSIONS`.
+
     Examples
     --------
-    >>> stage_protocol("electronic", {"method": "GFN2-xTB", "threads": 4})
-    {'method': 'GFN2-xTB'}
+    >>> p = stage_protocol("electronic", {"method": "GFN2-xTB", "threads": 4})
+    >>> p["method"], "threads" in p
+    ('GFN2-xTB', False)
     """
     if stage not in _STAGES:
         raise ValueError(f"unknown stage {stage!r}; allowed: {', '.join(_STAGES)}")
@@ -95,8 +108,14 @@ def stage_protocol(stage: str, options) -> dict:
     if stage == "structures":
         data = route_structures(data)
     earlier = EARLIER_ROUTE_VALUES[stage]
-    return {k: v for k, v in sorted(data.items())
-            if k not in _NOT_PROTOCOL[stage] and not (k in earlier and v == earlier[k])}
+    out = {k: v for k, v in sorted(data.items())
+           if k not in _NOT_PROTOCOL[stage] and not (k in earlier and v == earlier[k])}
+    libraries = STAGE_LIBRARIES[stage] + ((str(data.get("engine") or "tblite"),) if stage == "electronic" else ())
+    for lib in libraries:
+        version = ".".join(package_version(lib).split(".")[:2])
+        if BASE_LIBRARY_VERSIONS.get(lib) != version:
+            out[f"{lib}_version"] = version
+    return out
 
 
 def stage_protocol_id(stage: str, options) -> str:

@@ -405,3 +405,23 @@ def test_an_export_that_cannot_be_written_is_one_message(tmp_path, capsys):
     rc, captured = _store_cli(capsys, "export", "--store", str(path), "--to", "/proc/dascreen-x.sdf")
     assert rc == 2 and captured.err.startswith("dascreen: error: --to /proc/dascreen-x.sdf: cannot write")
     assert "Traceback" not in captured.err and len(captured.err.strip().splitlines()) == 1
+
+
+def test_a_library_upgrade_keys_rows_of_its_own(monkeypatch):
+    # an engine audit: the store key left out the tblite and RDKit versions, so a recalibration after an upgrade
+    # silently reused numbers of the old version; at today's versions the ids stay those filled stores were written with
+    from screen import store
+    from screen.config import Config
+
+    cfg = Config.of({})
+    before = (store.stage_protocol_id("structures", cfg.structures), store.stage_protocol_id("electronic", cfg.electronic))
+    real = store.package_version
+    monkeypatch.setattr(store, "package_version", lambda name: "0.9.1" if name == "tblite" else real(name))
+    after = (store.stage_protocol_id("structures", cfg.structures), store.stage_protocol_id("electronic", cfg.electronic))
+    assert before[0] != after[0] and before[1] != after[1]
+    assert store.stage_protocol("electronic", cfg.electronic)["tblite_version"] == "0.9"
+    ids = []
+    for patch in ("0.8.0", "0.8.7"):  # a patch release keys no new rows
+        monkeypatch.setattr(store, "package_version", lambda name, v=patch: v if name == "tblite" else real(name))
+        ids.append(store.stage_protocol_id("electronic", cfg.electronic))
+    assert ids[0] == ids[1]
