@@ -19,7 +19,7 @@ demo: $(BIN)/dascreen   ## run the demo screen end to end into results/demo
 test: $(BIN)/dascreen   ## the default test suite (what CI runs)
 	$(BIN)/python -m pytest
 
-test-all: $(BIN)/dascreen   ## also the slow tests (full demo, refit of the calibration)
+test-all: $(BIN)/dascreen   ## also the slow tests (today: two dyes end to end through the engine)
 	$(BIN)/python -m pytest -m ''
 
 lint: $(BIN)/dascreen
