@@ -258,7 +258,8 @@ def computed_geometries(keys, levels_path: Path, meta_in: dict | None = None, co
 
 
 def _embedded(smiles: str):
-    """A 3-D geometry with hydrogens made here (ETKDG + MMFF94) when none was computed; None if impossible."""
+    """A 3-D geometry with hydrogens made here (ETKDG + MMFF94) when none was computed; None if impossible or if
+    the embedding fails :func:`screen.sanity.geometry_problems` (the shortlist then gets a 2-D depiction)."""
     from rdkit import Chem
     from rdkit.Chem import AllChem
 
@@ -272,6 +273,10 @@ def _embedded(smiles: str):
         return None
     if AllChem.MMFFHasAllMoleculeParams(mol):
         AllChem.MMFFOptimizeMolecule(mol, maxIters=2000)
+    from screen.sanity import geometry_problems
+
+    if geometry_problems(mol):  # a broken embedding (a fullerene adduct's C-C at 2.5 A was exported): 2-D instead
+        return None
     return mol
 
 

@@ -301,3 +301,12 @@ def test_every_partner_is_checked_before_the_first_ranking(tmp_path):
     with pytest.raises(Exception, match="holds the ranking against partner 'y6', not 'c60'"):
         check_before_computing(levels, ["y6", "c60"], {}, out_dir=out)
     assert sorted(p.name for p in out.rglob("*")) == sorted([clash.name, "rankings", "ranking.meta.json"])
+
+
+def test_a_broken_embedding_is_never_exported_as_3d(monkeypatch):
+    # a stretched C-C bond (2.48 A) of a fullerene adduct's export-time embedding reached shortlist.sdf as 3-D
+    from screen import rank_io, sanity
+
+    assert rank_io._embedded("c1ccsc1") is not None
+    monkeypatch.setattr(sanity, "geometry_problems", lambda mol, *a, **k: ["bond C1-C2 is 2.48 Å (limit 1.87 Å)"])
+    assert rank_io._embedded("c1ccsc1") is None  # the shortlist then carries a 2-D depiction, said so in its record
