@@ -18,3 +18,23 @@ def test_polymer_term_is_an_indicator_without_raw_columns():
 def test_fulleropyrrolidine_counts_as_a_fullerene():
     assert family("N-methylfulleropyrrolidine", "C", "molecule", "film") == "fullerenes"
     assert family("ICBA (indene-C60 bisadduct)", "C", "molecule", "film") == "fullerenes"
+
+
+def test_a_film_file_without_optical_gaps_is_named(tmp_path, capsys):
+    # a docs fact-check: a user's film file with name,smiles,homo_ev,lumo_ev,fc_reference_ev,source calibrated
+    # without a word, its optical-gap model fitted on 3 film rows instead of 76
+    import shutil
+    from pathlib import Path
+
+    from screen.calibration.reference import read_reference
+
+    src = Path(__file__).resolve().parents[1] / "models" / "reference"
+    ref = tmp_path / "ref"
+    shutil.copytree(src, ref)
+    film = pd.read_csv(ref / "levels_film.csv")
+    film[["name", "smiles", "homo_ev", "lumo_ev", "fc_reference_ev", "source"]].to_csv(ref / "levels_film.csv",
+                                                                                       index=False)
+    read_reference(ref)
+    assert "has no gap_opt_ev column" in capsys.readouterr().err
+    read_reference(src)
+    assert "gap_opt_ev" not in capsys.readouterr().err

@@ -36,6 +36,7 @@ from __future__ import annotations
 
 import hashlib
 import re
+import sys
 from pathlib import Path
 
 import numpy as np
@@ -98,6 +99,10 @@ def read_reference(reference_dir: str | Path) -> dict[str, pd.DataFrame]:
             frame["exclude_reason"] = ""
         if name == "film":
             _check_derived(frame, path)
+            if "gap_opt_ev" not in frame.columns:  # a fact-check: calibrated silently with 3 film gaps instead of 76
+                print(f"dascreen: reference file {path} has no gap_opt_ev column (film absorption onsets): the film "
+                      "optical-gap model is fitted without these rows and the film LUMO model may fall back to the "
+                      "gas EA plus a constant; add the onsets to use them", file=sys.stderr)
         sets[name] = frame
     return sets
 
