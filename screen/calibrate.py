@@ -332,6 +332,10 @@ def _film_level(frame: pd.DataFrame, record: dict, gas: tuple[np.ndarray, np.nda
     return record.get("sign", -1.0) * mean, std
 
 
+#: the models whose reference rows ``reference_similarity`` is measured against, per scale of the levels
+SCALE_MODELS = {"film": ("homo_film", "lumo_film", "gap_opt_film"), "gas": ("ip", "ea", "gap_opt")}
+
+
 def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "film") -> pd.DataFrame:
     """Add calibrated columns with σ to a levels table.
 
@@ -351,7 +355,8 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "fi
         Copy with ``ip_ev, ea_ev, gap_fund_ev, homo_ev, lumo_ev, gap_opt_ev``,
         their σ columns and ``scale`` filled for computed rows, and
         ``reference_similarity``: the nearest-neighbour fingerprint similarity to
-        any reference row of the models (:func:`screen.calibration.domain.nearest_similarity`).
+        any reference row of the models of ``scale`` (:data:`SCALE_MODELS`;
+        :func:`screen.calibration.domain.nearest_similarity`).
     """
     if scale not in ("film", "gas"):
         raise ConfigError(f"levels.scale must be 'film' or 'gas', not {scale!r}")
@@ -376,8 +381,10 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "fi
     out["scale"] = ""
     out.loc[ok, "scale"] = scale
     out["reference_similarity"] = np.nan
-    if "smiles" in out:
-        refs = sorted({r["smiles"] for m in models.values() for r in m.get("residuals", [])})
+    if "smiles" in out:  # the rows of the models whose levels this table gives (film: the film models; a materials
+        # check found a triarylamine 0.27 like the film set but 0.41 like a gas-phase IP row, and so unflagged)
+        names = SCALE_MODELS[scale]
+        refs = sorted({r["smiles"] for name, m in models.items() if name in names for r in m.get("residuals", [])})
         out.loc[ok, "reference_similarity"] = np.round(nearest_similarity(list(sub["smiles"]), refs), 3)
     return out
 
