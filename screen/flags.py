@@ -85,10 +85,10 @@ _REGISTRY = (
     Flag("input_missing", "a level the device model needs is missing, so no efficiency could be estimated", _NV),
     Flag("absorber_gap_invalid", "the absorber's optical gap is not positive or lies beyond the solar spectrum "
                                  "(above 4.4 eV), so nothing is absorbed", _NV),
-    Flag("lumo_inverted", "inverted alignment: the acceptor's LUMO is not below the donor's, so electrons cannot "
-                          "move from donor to acceptor", _NV),
-    Flag("homo_inverted", "inverted alignment: the donor's HOMO is not above the acceptor's, so holes cannot "
-                          "move from acceptor to donor", _NV),
+    Flag("lumo_inverted", "inverted alignment at the estimated levels: the acceptor's LUMO is not below the "
+                          "donor's, so electrons would not move from donor to acceptor", _NV),
+    Flag("homo_inverted", "inverted alignment at the estimated levels: the donor's HOMO is not above the "
+                          "acceptor's, so holes would not move from acceptor to donor", _NV),
     Flag("lumo_offset_low", "LUMO offset to the partner below {min_lumo} — electron transfer from donor to "
                             "acceptor is not assured", _NV),
     Flag("homo_offset_low", "HOMO offset to the partner below {min_homo} — hole transfer from acceptor to "
@@ -233,7 +233,7 @@ def reason_of(cell, settings: dict | None = None) -> str:
     Examples
     --------
     >>> reason_of("lumo_inverted;role_from_levels")
-    "inverted alignment: the acceptor's LUMO is not below the donor's, so electrons cannot move from donor to acceptor"
+    "inverted alignment at the estimated levels: the acceptor's LUMO is not below the donor's, so electrons would not move from donor to acceptor"
     >>> reason_of("role_assumed")
     ''
     """

@@ -569,6 +569,30 @@ def _same_computed(levels: pd.DataFrame, roles: _Roles) -> np.ndarray:
     return out
 
 
+#: not-viable reasons of the alignment that get the chance it holds within the levels' σ appended
+_ALIGNMENT_CODES = ("lumo_inverted", "homo_inverted", "lumo_offset_low", "homo_offset_low")
+
+
+def _add_alignment_odds(reasons: list, flags, p_aligned) -> None:
+    """Append to a misalignment reason how likely the alignment holds within the levels' σ, when that is 5 % or
+    more: the verdict is on the estimated levels, and a pair 0.08 eV on the wrong side of a 0.2 eV σ is a near miss
+    (a materials check: PM6 with an IT-DM acceptor was told "holes cannot move" at P(aligned) 0.22).
+
+    Examples
+    --------
+    >>> r = ["inverted alignment", "inverted alignment", ""]
+    >>> _add_alignment_odds(r, np.array(["homo_inverted", "homo_inverted", ""]), np.array([0.22, 0.01, np.nan]))
+    >>> print(r[0]); print(r[1])
+    inverted alignment (within the levels' σ the alignment holds in 22 % of cases)
+    inverted alignment
+    """
+    p = np.asarray(p_aligned, dtype=float)
+    for i, cell in enumerate(flags):
+        if reasons[i] and np.isfinite(p[i]) and p[i] >= 0.05 and any(c in str(cell).split(";") for c in
+                                                                    _ALIGNMENT_CODES):
+            reasons[i] += f" (within the levels' σ the alignment holds in {p[i]:.0%} of cases)".replace("%", " %", 1)
+
+
 def _far_from_reference(levels: pd.DataFrame) -> np.ndarray:
     """Rows whose ``reference_similarity`` (a run's own levels) is below :data:`FAR_FROM_REFERENCE_SIMILARITY`."""
     sim = _numeric(levels, "reference_similarity")
@@ -640,6 +664,7 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
         empty = [name for name, arr in (("HOMO (homo_ev)", cand.homo), ("LUMO (lumo_ev)", cand.lumo),
                                         ("optical gap (gap_opt_ev)", cand.gap)) if np.isnan(arr[i])]
         reasons[i] = f"the {' and '.join(empty)} of this row {'is' if len(empty) == 1 else 'are'} empty; {reasons[i]}"
+    _add_alignment_odds(reasons, flags, dev["p_aligned"])
     out = pd.DataFrame({
         "rank": np.zeros(n, dtype=int),
         "id": cand.ids,
