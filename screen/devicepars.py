@@ -30,6 +30,7 @@ import numpy as np
 from screen.errors import ConfigError
 
 __all__ = ["FittedParameters", "slope_loss", "FITTED_PATH", "VALIDATION_PATH", "load_fitted", "device_tests", "POOLED",
+           "voc_unranked_classes", "UNRANKED_SPEARMAN",
            "NON_FULLERENE", "family_of", "class_values"]
 
 #: the fitted default device model shipped with the repository
@@ -284,6 +285,33 @@ def _pick(record, key: str) -> dict | None:
     base = record.get("mean_voc_baseline") if isinstance(record.get("mean_voc_baseline"), dict) else {}
     return {**{k: metrics[k] for k in _TEST_KEYS if k in metrics}, "grouping": record.get("grouping"),
             "baseline_voc_mae_v": base.get("voc_mae_v")}
+
+
+#: an acceptor class whose held-out Spearman(Voc) on the device set is below this has no ranking skill there
+UNRANKED_SPEARMAN = 0.3
+
+
+@lru_cache(maxsize=4)
+def voc_unranked_classes(path: str | None = None) -> frozenset:
+    """Acceptor classes in which the fitted Voc did not rank the published devices held out (leave one acceptor
+    structure out; Spearman below :data:`UNRANKED_SPEARMAN`, at least 3 devices), from ``fitted.json``.
+
+    Examples
+    --------
+    >>> sorted(voc_unranked_classes())
+    ['nfa-other']
+    """
+    try:
+        data = json.loads(Path(path or FITTED_PATH).read_text(encoding="utf-8"))
+        by_class = data["cv"]["by_class"]
+    except (OSError, ValueError, KeyError, TypeError):
+        return frozenset()
+    out = set()
+    for name, rec in by_class.items():
+        rho, n = rec.get("fitted_spearman_voc"), rec.get("n", 0)
+        if isinstance(rho, (int, float)) and math.isfinite(rho) and n >= 3 and rho < UNRANKED_SPEARMAN:
+            out.add(name)
+    return frozenset(out)
 
 
 def device_tests(model: str, protocol: str | None = None, fitted_path: str | None = None,

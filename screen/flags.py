@@ -115,6 +115,11 @@ _REGISTRY = (
     Flag("acceptor_class_unknown", "the acceptor's class (fullerene, fused-ring or other non-fullerene, polymer) "
                                    "could not be told without its SMILES: the pooled fill factor of all classes "
                                    "is used, which moves the PCE by up to about a fifth", "info"),
+    Flag("class_voc_unranked", "device model: in this pair's acceptor class the fitted Voc did not rank the "
+                               "published devices held out (Spearman below 0.3 in models/device/fitted.json; "
+                               "today the other non-fullerene acceptors: rylene diimides, rhodanine-ended and "
+                               "non-fused ones), so read its Voc and PCE as that class's average, not as an order "
+                               "within it", "info"),
     Flag("loss_class_pooled", "voltage loss: the fitted model's pooled value for all acceptor classes (the "
                               "fit keeps no separate value for this pair's class)", "info"),
     Flag("donor_only_model", "published donor-only model: only the donor absorbs and only the LUMO offset is "

@@ -55,6 +55,7 @@ import pandas as pd
 
 from screen.columns import RANKING_COLUMNS, RANKING_EXTRA_COLUMNS, SIGMA_COLUMNS
 from screen.device import DeviceModel
+from screen.devicepars import voc_unranked_classes
 from screen.errors import ConfigError, ScaleMismatchError
 from screen.flags import (
     DEVICE_FLAGS,
@@ -478,10 +479,10 @@ def p_aligned(pair_levels, pair_sigmas, min_lumo: float, min_homo: float, check_
 
 
 def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, partner: Partner,
-                options: RankOptions, ff_follows_class: bool) -> dict[str, np.ndarray]:
+                options: RankOptions, ff_follows_class: bool, unranked=frozenset()) -> dict[str, np.ndarray]:
     """One boolean mask per flag code (:data:`screen.flags.FLAG_ORDER`): device flags of the rows with a
     pair, the gap window, the heavy-atom limit and the role flags (``dev`` with ``p_aligned`` and
-    ``acceptor_class``)."""
+    ``acceptor_class``); ``unranked``: acceptor classes without held-out Voc ranking skill."""
     n = cand.ids.size
     pair_ok = roles.paired
     cand_missing = np.isnan(cand.homo) | np.isnan(cand.lumo) | np.isnan(cand.gap)
@@ -516,6 +517,8 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "alignment_uncertain": pair_ok & (aligned > ALIGNMENT_UNCERTAIN[0]) & (aligned < ALIGNMENT_UNCERTAIN[1]),
         "acceptor_class_unknown": (pair_ok & np.asarray(dev["viable"], bool) & ff_follows_class
                                    & (np.asarray(dev["acceptor_class"], dtype=object).astype(str) == "")),
+        "class_voc_unranked": (pair_ok & np.asarray(dev["viable"], bool)
+                               & np.isin(np.asarray(dev["acceptor_class"], dtype=object).astype(str), list(unranked))),
         "same_structure": same,
         "same_computed_structure": _same_computed(lv, roles) & ~same,
         "far_from_reference": _far_from_reference(lv),
@@ -823,7 +826,8 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     dev["p_aligned"] = np.where(roles.paired, p_aligned(pair.levels, pair.sigmas, model.value("min_delta_lumo_ev"),
                                                          model.value("min_delta_homo_ev"), model.check_homo_offset),
                                 np.nan)
-    masks = _flag_masks(lv, cand, roles, dev, partner, options, model.ff_follows_class)
+    unranked = voc_unranked_classes() if model.model == "fitted" else frozenset()
+    masks = _flag_masks(lv, cand, roles, dev, partner, options, model.ff_follows_class, unranked)
     spread = _spread(model, pair, roles.paired & _viable(masks), options)
     out = _sort_ranking(_ranking_frame(lv, cand, roles, partner, dev, spread, masks, model, options),
                         options.sort_by)

@@ -93,8 +93,9 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass) -> str:
     ...                   "flags": ["", "", "same_structure"]})
     >>> print(_summary_sentence(r, "y6", 3))  # doctest: +NORMALIZE_WHITESPACE
     3 candidate(s) ranked against <strong>y6</strong>; 3 pass every check (1 of them repeats an earlier row's
-    structure and stays out of the shortlist). Best estimate: <strong>A</strong> at 13.4 ± 5.2 % PCE; first in the
-    ranking's order: <strong>B</strong> (12.5 % PCE, P(PCE &gt; target) 83 %).
+    structure and stays out of the shortlist). Best estimate: <strong>A</strong> at 13.4 ± 5.2 % PCE (± from the
+    levels' σ alone, not the device model's own error); first in the ranking's order: <strong>B</strong> (12.5 % PCE,
+    P(PCE &gt; target) 83 %).
     """
     if not len(ranking):
         return f"No candidate was ranked against {esc(partner_id) or 'the partner'}."
@@ -110,7 +111,9 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass) -> str:
                     f"{'stays' if repeats == 1 else 'stay'} out of the shortlist)")
     sentence = (f"{len(ranking)} candidate(s) ranked against <strong>{esc(partner_id) or 'the partner'}</strong>"
                 f"{passing}. Best estimate: <strong>{esc(best.get('id'))}</strong> at "
-                f"{fmt_pm(best.get('pce_pct'), best.get('pce_sigma_pct'), 1)} % PCE")
+                f"{fmt_pm(best.get('pce_pct'), best.get('pce_sigma_pct'), 1)} % PCE"
+                + (" (± from the levels' σ alone, not the device model's own error)"
+                   if not math.isnan(num(best.get("pce_sigma_pct"))) else ""))
     ties = int((pce.round(1) == round(num(best.get("pce_pct")), 1)).sum()) - 1 if pce.notna().any() else 0
     if ties > 0:  # a device-physics audit: against a narrow-gap partner most donors tie and the order is by id
         sentence += (f", tied with {ties} other{'s' if ties > 1 else ''} at that estimate (when the partner's "
