@@ -47,8 +47,11 @@ _CAUTION = (
     "model. The numbers are for ranking and for choosing what to discuss; they are not predicted "
     "measurements. The \u00b1 values (1\u03c3) carry the calibrated levels\u2019 uncertainty through the device "
     "model, not the device model\u2019s own error (the device card gives its held-out figures), so the "
-    "true spread is wider; an estimate above the target with P(PCE &gt; target) below one half comes from "
-    "samples in which the pair is not viable (counted as 0 %). Making and handling any "
+    "true spread is wider. The estimate is the PCE at the central levels; the \u00b1 is the spread of the "
+    "samples that stay viable, and P(aligned) how likely the pair stays viable. An estimate above the target "
+    "with P(PCE &gt; target) below one half comes from samples that are not viable (counted as 0 %) or from "
+    "viable samples lying mostly below the estimate (the model saturates: the smaller gap caps E<sub>CT</sub> "
+    "and the charge-generation yield cannot exceed one, so samples lose more than they gain). Making and handling any "
     "candidate follows your lab\u2019s chemical-safety rules, the safety data sheets of every reagent and "
     "local regulations.</p>"
 )
@@ -80,7 +83,7 @@ def _created(meta: dict) -> str:
     return datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
 
 
-def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass) -> str:
+def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass, sort_by: str = "pce_pct") -> str:
     """One sentence naming the best candidate: the highest PCE estimate among the rows the shortlist may take.
 
     A row that repeats an earlier row's structure (``same_structure``) is never named, and when the
@@ -88,14 +91,14 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass) -> str:
 
     Examples
     --------
-    >>> r = pd.DataFrame({"id": ["B", "A", "C"], "pce_pct": [12.5, 13.4, 13.4], "pce_sigma_pct": [2.7, 5.2, 5.2],
-    ...                   "p_above_target": [0.83, 0.71, 0.71], "passes": [True, True, True],
-    ...                   "flags": ["", "", "same_structure"]})
+    >>> r = pd.DataFrame({"id": ["B", "A", "C"], "pce_pct": [12.5, 13.4, 13.4], "pce_sigma_pct": [2.7, 1.7, 1.7],
+    ...                   "p_above_target": [0.83, 0.71, 0.71], "p_aligned": [0.99, 0.79, 0.79],
+    ...                   "passes": [True, True, True], "flags": ["", "", "same_structure"]})
     >>> print(_summary_sentence(r, "y6", 3))  # doctest: +NORMALIZE_WHITESPACE
     3 candidate(s) ranked against <strong>y6</strong>; 3 pass every check (1 of them repeats an earlier row's
-    structure and stays out of the shortlist). Best estimate: <strong>A</strong> at 13.4 ± 5.2 % PCE (± from the
-    levels' σ alone, not the device model's own error); first in the ranking's order: <strong>B</strong> (12.5 % PCE,
-    P(PCE &gt; target) 83 %).
+    structure and stays out of the shortlist). Best estimate: <strong>A</strong> at 13.4 ± 1.7 % PCE (± from the
+    levels' σ alone, not the device model's own error), viable in 79 % of samples; first in the ranking's order:
+    <strong>B</strong> (12.5 % PCE, P(PCE &gt; target) 83 %).
     """
     if not len(ranking):
         return f"No candidate was ranked against {esc(partner_id) or 'the partner'}."
@@ -113,13 +116,16 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass) -> str:
                 f"{passing}. Best estimate: <strong>{esc(best.get('id'))}</strong> at "
                 f"{fmt_pm(best.get('pce_pct'), best.get('pce_sigma_pct'), 1)} % PCE"
                 + (" (± from the levels' σ alone, not the device model's own error)"
-                   if not math.isnan(num(best.get("pce_sigma_pct"))) else ""))
+                   if not math.isnan(num(best.get("pce_sigma_pct"))) else "")
+                + (f", viable in {num(best.get('p_aligned')) * 100:.0f} % of samples"
+                   if not math.isnan(num(best.get("p_aligned"))) else ""))
     ties = int((pce.round(1) == round(num(best.get("pce_pct")), 1)).sum()) - 1 if pce.notna().any() else 0
     if ties > 0:  # a device-physics audit: against a narrow-gap partner most donors tie and the order is by id
-        sentence += (f", tied with {ties} other{'s' if ties > 1 else ''} at that estimate (when the partner's "
-                     "optical gap is the pair's smaller one it sets E<sub>CT</sub>, V<sub>oc</sub> and "
-                     "J<sub>sc</sub> for every candidate whose offsets clear their thresholds; ties are ordered by "
-                     "P(aligned), then id)")
+        order = ("; ties are ordered by P(aligned), then id" if sort_by == "pce_pct" else "")
+        sentence += (f", tied with {ties} other{'s' if ties > 1 else ''} at that estimate (the same V<sub>oc</sub>, "
+                     "J<sub>sc</sub> and FF: when the partner's optical gap is the pair's smaller one, it caps "
+                     "E<sub>CT</sub> and sets J<sub>sc</sub> for the candidates whose interface gap exceeds it and "
+                     f"whose offsets clear their thresholds{order})")
     first = pool.iloc[0]
     if first.get("id") != best.get("id") and num(first.get("pce_pct")) != num(best.get("pce_pct")):
         prob = num(first.get("p_above_target"))
@@ -127,6 +133,12 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass) -> str:
         sentence += (f"; first in the ranking's order: <strong>{esc(first.get('id'))}</strong> "
                      f"({fmt(first.get('pce_pct'), 1)} % PCE{said})")
     return sentence + "."
+
+
+def _sort_by(meta: dict) -> str:
+    """The ranking's sort key from ``meta["rank"]["sort_by"]`` (``pce_pct`` when not recorded)."""
+    rank = meta.get("rank") if isinstance(meta, dict) and isinstance(meta.get("rank"), dict) else {}
+    return text(rank.get("sort_by")) or "pce_pct"
 
 
 def _resolve_partner(partner: dict, meta: dict) -> dict:
@@ -178,7 +190,7 @@ def _shortlist_section(ranking: pd.DataFrame, short: pd.DataFrame, how: str, pid
     """Section 2: summary, shortlist table and the collapsible table of every ranked row."""
     return [
         '<h2 id="shortlist"><span class="num">2</span>Shortlist for discussion</h2>',
-        f'<p class="summary">{_summary_sentence(ranking, pid, n_pass)}</p>',
+        f'<p class="summary">{_summary_sentence(ranking, pid, n_pass, _sort_by(meta))}</p>',
         *([f'<p class="caution">{caution}</p>'] if (caution := device_tests_html(meta.get("device_tests"))[1])
           else []),
         f'<p class="quiet">Shown: {esc(how)}. Levels in eV relative to the vacuum level (HOMO = \u2212IP), on the energy scale of the header (film: solid-state / CV levels), value \u00b1 1\u03c3. '
