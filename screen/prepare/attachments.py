@@ -196,33 +196,52 @@ def _no_hydrogen(atom: Chem.Atom) -> str:
 def _saturated_backbone(mol: Chem.Mol, a: int, b: int) -> str:
     """Why the backbone between two attachment atoms is not conjugated ('' when it is).
 
-    The shortest path between the atoms the attachment points sit on must not pass through an acyclic
-    saturated carbon or silicon (a CH₂ of a side chain or of an alkylene linker); atoms of a ring (the bridging
-    sp³ carbon of a fluorene or cyclopenta-dithiophene, the silicon of a dithienosilole) are allowed. A polymer
-    audit: a unit written through the O–CH₂ of a methoxy side chain was computed and ranked as passing.
+    Some path between the atoms the attachment points sit on must avoid every saturated carbon or silicon (an
+    atom with single bonds only, in a ring or not): the bridging sp³ carbon of a fluorene or
+    cyclopenta-dithiophene and the silicon of a dithienosilole hang beside a conjugated path, but a CH₂ of a side
+    chain or an alkylene linker, a cyclohexylene, a bisphenol-type quaternary carbon or an attachment on a
+    fluorene's C9 lie across every path. Audits: a unit written through the O–CH₂ of a methoxy side chain was
+    computed and ranked as passing; so were units joined through a cyclohexylene or a cyclopropylene, the
+    backbone of a bisphenol-Z-type polymer, or a fluorene's C9 (the shortest-path test let saturated ring atoms
+    through).
 
     Examples
     --------
     >>> m = Chem.MolFromSmiles("[*]c1cc2c(OC[*])c3ccsc3c(OC)c2s1", sanitize=False)
     >>> _saturated_backbone(m, 1, 7)[:60]
-    'the two attachment points are joined through acyclic saturat'
+    'every path between the two attachment points passes a satura'
     >>> m = Chem.MolFromSmiles("[*]c1ccc2c(c1)C(C)(C)c1cc([*])ccc1-2", sanitize=False)
     >>> _saturated_backbone(m, 1, 14)
     ''
+    >>> m = Chem.MolFromSmiles("[*]C1CCC(c2ccc([*])s2)CC1", sanitize=False)  # a cyclohexylene
+    >>> _saturated_backbone(m, 1, 11) != ""
+    True
     """
     Chem.FastFindRings(mol)
-    path = Chem.GetShortestPath(mol, a, b)
-    bad = [i for i in path
-           if mol.GetAtomWithIdx(i).GetAtomicNum() in (6, 14) and not mol.GetAtomWithIdx(i).GetIsAromatic()
-           and not mol.GetRingInfo().NumAtomRings(i)
-           and all(bond.GetBondType() == Chem.BondType.SINGLE for bond in mol.GetAtomWithIdx(i).GetBonds())]
-    if not bad:
-        return ""
+
+    def saturated(i: int) -> bool:
+        atom = mol.GetAtomWithIdx(i)
+        return (atom.GetAtomicNum() in (6, 14) and not atom.GetIsAromatic()
+                and all(bond.GetBondType() == Chem.BondType.SINGLE for bond in atom.GetBonds()))
+
+    if not (saturated(a) or saturated(b)):
+        seen, todo = {a}, [a]
+        while todo:  # breadth-first over the atoms that are not saturated C or Si
+            i = todo.pop()
+            if i == b:
+                return ""
+            for nb in mol.GetAtomWithIdx(i).GetNeighbors():
+                j = nb.GetIdx()
+                if j not in seen and nb.GetAtomicNum() != 0 and not saturated(j):
+                    seen.add(j)
+                    todo.append(j)
+    bad = [i for i in Chem.GetShortestPath(mol, a, b) if saturated(i)]
     atoms = ", ".join(f"{i} ({mol.GetAtomWithIdx(i).GetSymbol()})" for i in bad[:_MAX_SHOWN])
-    return (f"the two attachment points are joined through acyclic saturated atom(s) {atoms}: the repeat unit "
-            "of a conjugated polymer runs along its π backbone, and an attachment point on a side chain or a "
-            "saturated (alkylene) linker breaks the conjugation between units; put the attachment points on the "
-            "backbone atoms that bond to the next unit (0-based atom indices in the order of smiles_input)")
+    return (f"every path between the two attachment points passes a saturated atom (e.g. {atoms}): the repeat "
+            "unit of a conjugated polymer runs along its π backbone, and an attachment point on a side chain, a "
+            "saturated (alkylene or cycloalkylene) linker or an sp³ ring carbon breaks the conjugation between "
+            "units; put the attachment points on the backbone atoms that bond to the next unit (0-based atom "
+            "indices in the order of smiles_input)")
 
 
 def clear_attachment_labels(mol: Chem.Mol) -> None:
