@@ -125,6 +125,13 @@ def _one_polymer(pkey: str, group: pd.DataFrame, elec: pd.DataFrame, quantities:
     if not ok.any():
         return {"status": "failed", "error": "every oligomer failed (" + "; ".join(failed) + ")"}, side
     n = group["n"].to_numpy()[ok]
+    if n.size < 2:  # a polymer audit: a monomer-only "series" came out with its monomer values and spread 0
+        why = ("the only oligomer built within polymer.max_atoms" if len(group) == 1
+               else "the only oligomer computed (" + "; ".join(failed) + ")")
+        return {"status": "failed",
+                "error": f"no chain limit: n={int(n[0])} is {why}, and a chain limit needs at least two oligomers; "
+                         "raise polymer.max_atoms (each oligomer is a molecule of the run) or write a smaller "
+                         "repeat unit"}, side
     row = {"status": "ok", "error": "", "chain_n_max": int(n.max()), "_failed": failed}
     from screen.extrapolate import extrapolate  # scipy: loaded only where chains are fitted, not to read levels
 

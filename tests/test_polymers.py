@@ -104,6 +104,9 @@ def test_failed_oligomer_and_poor_fit_are_reported(tmp_path):
     every = _electronic(prepared, wiggly, fail=set(olig.key))
     levels, _ = _levels(tmp_path, prepared, every)
     assert levels.iloc[0].status == "failed" and "every oligomer failed" in levels.iloc[0].error
+    # only the monomer computed: no chain limit (it came out with the monomer's values and spread 0 before)
+    levels, _ = _levels(tmp_path, prepared, _electronic(prepared, wiggly, fail=set(olig.key[olig.n > 1])))
+    assert levels.iloc[0].status == "failed" and levels.iloc[0].error.startswith("no chain limit: n=1 is the only")
 
 
 def test_atom_limit_and_methyl_caps(tmp_path):
