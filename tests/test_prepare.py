@@ -182,6 +182,12 @@ ATTACHMENT_CASES = [
     ("[*]c1ccc(-c2cc[n]([*])cc2)s1", "attachment_no_hydrogen",
      "the attachment point * at atom 9 sits on atom 8 (n), which has no hydrogen to replace (a pyridine-type "
      "ring nitrogen): put the attachment point on a ring atom that carries a hydrogen in the monomer"),
+    # a second polymer audit: five-ring pyridine-type N, a ring S and a written [cH] were blamed on the notation
+    ("[*]n1snc2c(-c3ccc([*])s3)cccc12", "attachment_no_hydrogen", None),  # benzothiadiazole N
+    ("[*]n1csc(-c2ccc([*])s2)c1", "attachment_no_hydrogen", None),  # thiazole N
+    ("[*]n1c[nH]c(-c2ccc([*])s2)c1", "attachment_no_hydrogen", None),  # imidazole N3
+    ("[*]s1ccc([*])c1", "attachment_no_hydrogen", None),  # thiophene S
+    ("[*][cH]1ccc([*])s1", "attachment_no_hydrogen", None),  # the hydrogen the attachment replaces, written
     # ... and these were computed and ranked as passing (12.4 % PCE for the first)
     ("[*]c1cc2c(OC[*])c3ccsc3c(OC)c2s1", "attachment_not_conjugated",
      "every path between the two attachment points passes a saturated atom (e.g. 6 (C)): the repeat unit of a "
@@ -204,7 +210,8 @@ ATTACHMENT_CASES = [
 def test_attachment_point_rejections(smiles: str, reason: str, message: str | None) -> None:
     row = _one(smiles)
     assert (row.status, row.reason) == ("rejected", reason)
-    assert row.error == message if message is not None else row.error.startswith("every path between the two attachment points")
+    prefix = "the attachment point" if reason == "attachment_no_hydrogen" else "every path between the two attachment"
+    assert row.error == message if message is not None else row.error.startswith(prefix)
     assert row.key == "" and row.representation == ""
 
 

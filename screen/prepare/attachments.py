@@ -183,14 +183,44 @@ def _no_hydrogen(atom: Chem.Atom) -> str:
     ''
     """
     other = atom.GetNeighbors()[0]
-    if not other.GetIsAromatic() or other.GetNumExplicitHs() or other.GetFormalCharge():
+    if not other.GetIsAromatic() or other.GetFormalCharge():
         return ""
-    full = {6: 3, 7: 3 if other.IsInRingSize(5) else 2}.get(other.GetAtomicNum())
-    if full is None or other.GetDegree() <= full:
+    z = other.GetAtomicNum()
+    if other.GetNumExplicitHs():  # [*][cH]1...: the attachment replaces that hydrogen, it cannot sit beside it
+        if z in (6, 7) and other.GetDegree() + other.GetNumExplicitHs() > (3 if z == 6 else 2) + (z == 7):
+            return (f"sits on atom {other.GetIdx()} ({other.GetSymbol().lower()}), which is written with its "
+                    f"hydrogen ([{other.GetSymbol().lower()}H]): the attachment point replaces that hydrogen, so "
+                    "write the atom without it")
         return ""
-    what = "a ring-fusion carbon" if other.GetAtomicNum() == 6 else "a pyridine-type ring nitrogen"
+    if z in (16, 8, 34) and other.GetDegree() > 2:
+        what = "an aromatic ring sulfur, oxygen or selenium"
+    elif z == 7 and other.IsInRingSize(5) and other.GetDegree() > 2 and _has_other_donor(other):
+        what = "a pyridine-type nitrogen of a five-membered ring that already has its one lone-pair donor"
+    else:
+        full = {6: 3, 7: 3 if other.IsInRingSize(5) else 2}.get(z)
+        if full is None or other.GetDegree() <= full:
+            return ""
+        what = "a ring-fusion carbon" if z == 6 else "a pyridine-type ring nitrogen"
     return (f"sits on atom {other.GetIdx()} ({other.GetSymbol().lower()}), which has no hydrogen to replace "
             f"({what}): put the attachment point on a ring atom that carries a hydrogen in the monomer")
+
+
+def _has_other_donor(atom: Chem.Atom) -> bool:
+    """True when a five-membered aromatic ring of ``atom`` holds another lone-pair donor (S, O, Se, an N-H or a
+    three-connected N): an aromatic five-ring has one, so ``atom`` is then pyridine-type (thiazole, imidazole N3,
+    benzothiadiazole)."""
+    mol = atom.GetOwningMol()
+    for ring in mol.GetRingInfo().AtomRings():
+        if len(ring) != 5 or atom.GetIdx() not in ring:
+            continue
+        for i in ring:
+            a = mol.GetAtomWithIdx(i)
+            if i == atom.GetIdx() or not a.GetIsAromatic():
+                continue
+            if a.GetAtomicNum() in (8, 16, 34) or (a.GetAtomicNum() == 7 and (a.GetNumExplicitHs()
+                                                                               or a.GetDegree() == 3)):
+                return True
+    return False
 
 
 def _saturated_backbone(mol: Chem.Mol, a: int, b: int) -> str:
