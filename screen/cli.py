@@ -31,6 +31,7 @@ from screen import __version__
 from screen.config import Config
 from screen.errors import CalculationError, ConfigError, DascreenError, InputError, exit_code
 from screen.cli_shared import (EXIT_ERROR, EXIT_OK, EXIT_STRICT, _at_least_one, _days, _load, _percent,  # noqa: F401
+                               cut_cell, fixed_decimals,
                                _print_summary, data_path)
 from screen.launch import WORKFLOW, run_workflow
 
@@ -207,12 +208,26 @@ def calibration_notice(cfg: Config, out: Path) -> str | None:
             f"(`dascreen calibrate ... --install {cfg['calibration']['models']}` keeps a calibration for later runs)")
 
 
-def _ranked_with(ranking_csv: Path) -> str:
-    """`` with the <model> device model, P above <target> %`` from the ranking's sidecar ('' without one).
+#: the ranking keys in words (``rank.sort_by``), said in the console header when not the default
+SORT_WORDS = {"pce_pct": "PCE estimate", "p_above_target": "P(PCE > target)"}
 
-    A meeting-day audit: the console named neither the device model nor the target of a re-ranking.
+#: fixed decimals of the console tables per column (a meeting-day audit: ``.3g`` printed LUMO "-3" for -3.0014, Voc
+#: "1" for 1.0004 and PCE "13" where the report shows 13.0): levels and offsets 2, Voc 3, Jsc 1, PCE and σ 1,
+#: probabilities 2
+CONSOLE_DECIMALS = {"homo_ev": 2, "lumo_ev": 2, "gap_opt_ev": 2, "delta_lumo_ev": 2, "delta_homo_ev": 2, "voc_v": 3,
+                    "jsc_ma_cm2": 1, "pce_pct": 1, "pce_sigma_pct": 1, "p_above_target": 2, "p_aligned": 2}
+
+
+def _ranked_with(ranking_csv: Path) -> str:
+    """``<model> device model, absorber ...; target <t> % PCE; sorted by ...; set ...`` from the ranking's
+    sidecar ('' without one).
+
+    A meeting-day audit: the console named neither the device model nor the target of a re-ranking; a later one:
+    a ``--set device.min_delta_homo_ev=0.1`` or ``--sort-by`` re-ranking printed the header of the default run.
     """
     import json
+
+    from screen.rank_index import non_default_settings
 
     try:
         meta = json.loads((Path(ranking_csv).parent / "ranking.meta.json").read_text(encoding="utf-8"))
@@ -225,7 +240,31 @@ def _ranked_with(ranking_csv: Path) -> str:
                                                           if device.get("absorber") else ""))
     if rank.get("target_pce_pct") is not None:
         words.append(f"target {rank['target_pce_pct']:g} % PCE")
-    return f" ({'; '.join(words)})" if words else ""
+    sort_by = rank.get("sort_by")
+    if sort_by and sort_by != "pce_pct":
+        words.append(f"sorted by {SORT_WORDS.get(sort_by, sort_by)} ({sort_by})")
+    try:
+        changed = non_default_settings(meta, skip=("device.model", "device.absorber", "rank.target_pce_pct",
+                                                   "rank.sort_by"))
+    except Exception:  # noqa: BLE001 - an unreadable schema must not stop the console table
+        changed = []
+    if changed:
+        words.append(f"set {', '.join(changed)}")
+    return "; ".join(words)
+
+
+def _ranked_count(table) -> tuple[str, str]:
+    """``20 donors ranked against`` … ``(12 not paired: same role as the partner)`` of a ranking table: rows of the
+    partner's own role cannot pair and are not counted as ranked (a meeting-day audit read "32 ranked against y6"
+    of 20 donors and 12 acceptors)."""
+    flags = table["flags"].astype(object).fillna("").astype(str) if "flags" in table else None
+    same = flags.str.split(";").map(lambda f: "same_role_as_partner" in f) if flags is not None else None
+    n_same = int(same.sum()) if same is not None else 0
+    paired = table[~same] if same is not None else table
+    roles = set(paired["role"].astype(str)) if "role" in paired else set()
+    noun = {"donor": "donors", "acceptor": "acceptors"}.get(roles.pop(), "candidates") if len(roles) == 1 else \
+        "candidates"
+    return f"{len(paired)} {noun}", (f" ({n_same} not paired: same role as the partner)" if n_same else "")
 
 
 def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
@@ -234,20 +273,26 @@ def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
 
     table = pd.read_csv(ranking_csv, dtype={"id": str}, keep_default_na=False, na_values=[""])
     show = table.head(top).copy()
-    show["id"] = [str(i).replace("\n", "\\n").replace("\r", "\\r")[:28] for i in show["id"]]
-    show["flags"] = show["flags"].astype(object).fillna("").astype(str).str.slice(0, 40)
+    show["id"] = [cut_cell(str(i).replace("\n", "\\n").replace("\r", "\\r"), 28) for i in show["id"]]
+    show["flags"] = [cut_cell(v, 40) for v in show["flags"].astype(object).fillna("").astype(str)]
     cols = ["rank", "id", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "delta_lumo_ev", "delta_homo_ev", "voc_v",
-            "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "passes", "flags"]
+            "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "p_aligned", "passes", "flags"]
     if not len(table):
         print(f"dascreen: no candidate to rank (every row was rejected or failed; the reasons are in levels.csv); "
               f"empty ranking -> {ranking_csv}")
         return
+    cols = [c for c in cols if c in show]
+    for col, decimals in CONSOLE_DECIMALS.items():
+        if col in show:
+            show[col] = [fixed_decimals(v, decimals) for v in show[col]]
     passing = int(table["passes"].astype(str).str.lower().eq("true").sum())
     partner = table["partner"].iloc[0]
-    print(f"dascreen: {len(table)} ranked against {partner}{_ranked_with(ranking_csv)}, {passing} pass the "
-          f"filters; top {min(top, len(table))}:")
+    ranked, not_paired = _ranked_count(table)
+    settings = _ranked_with(ranking_csv)
+    print(f"dascreen: {ranked} ranked against {partner}{not_paired}{'; ' + settings if settings else ''}; {passing} "
+          f"pass the filters; top {min(top, len(table))}:")
     with pd.option_context("display.width", 250, "display.max_columns", 30):
-        print(show[cols].to_string(index=False, na_rep="-", float_format=lambda x: f"{x:.3g}"))
+        print(show[cols].to_string(index=False, na_rep="-"))
     print(f"dascreen: ranking -> {ranking_csv}")
 
 
@@ -481,8 +526,10 @@ def _print_rankings(out: Path, limit: int = 12) -> None:
         levels = "" if Path(str(r.levels)).resolve() == (out / "levels.csv").resolve() else f", levels {r.levels}"
         missing = r.target_pce_pct is None or r.target_pce_pct != r.target_pce_pct  # None or NaN
         target = "" if missing else f", target {r.target_pce_pct:g} %"
+        settings = r.settings if isinstance(r.settings, str) and r.settings else ""
+        settings = f"; set {settings}" if settings else ""
         print(f"  {r.written_utc}  {r.folder}: against {r.partner}, {r.model} model{target}, sorted by {r.sort_by}"
-              f"{levels}; {r.passing} of {r.ranked} pass")
+              f"{settings}{levels}; {r.passing} of {r.ranked} pass")
 
 
 

@@ -146,3 +146,31 @@ def _percent(text: str) -> float:
     if not 0.0 <= value <= 100.0:  # NaN fails too
         raise argparse.ArgumentTypeError(f"{text} is not allowed; give an efficiency from 0 to 100 (in %), e.g. 10")
     return value
+
+
+def cut_cell(value, width: int) -> str:
+    """``value`` as text of at most ``width`` characters; a cut one ends with "…".
+
+    >>> cut_cell("same_computed_structure;class_voc_unranked", 40)
+    'same_computed_structure;class_voc_unran…'
+    >>> cut_cell("chain_fit_poor", 40)
+    'chain_fit_poor'
+    """
+    text = str(value)
+    return text if len(text) <= width else text[:width - 1] + "…"
+
+
+def fixed_decimals(value, decimals: int) -> str:
+    """A number with fixed decimals ("-" when missing; no "-0.00").
+
+    >>> fixed_decimals(-3.0014, 2), fixed_decimals(1.0004, 3), fixed_decimals(13.0, 1), fixed_decimals(-0.001, 2)
+    ('-3.00', '1.000', '13.0', '0.00')
+    """
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return "-"
+    if number != number:
+        return "-"
+    text = f"{number:.{decimals}f}"
+    return text[1:] if text.startswith("-") and not text.strip("-0.") else text

@@ -5,7 +5,8 @@ ranking per partner (:func:`screen.rank_io.run_rank`) and then, here, one
 table over all of them: a row per candidate, a column per partner, in each
 cell the candidate's best PCE estimate against that partner among its rows
 that pass (and, when the ranking says so, are viable); an empty cell means
-not viable.  The folder ``OUT/rankings/matrix--<hash>/`` (hash of the
+not viable, or not paired: a candidate of the partner's own role, listed in
+that partner's ``not_paired`` in ``matrix.meta.json`` (:func:`cell_notes`).  The folder ``OUT/rankings/matrix--<hash>/`` (hash of the
 rankings it joins) holds ``matrix.csv``, ``matrix.meta.json`` and
 ``overview.html``, a small page with the table as a heatmap that links to
 each partner's report (:mod:`screen.report.matrix_page`).
@@ -30,7 +31,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-__all__ = ["MATRIX_LEAD", "partner_matrix", "matrix_folder", "run_matrix", "refresh_matrices", "refresh_after_run",
+__all__ = ["MATRIX_LEAD", "cell_notes", "partner_matrix", "matrix_folder", "run_matrix", "refresh_matrices", "refresh_after_run",
            "matrices_joining", "stale_columns"]
 
 #: the leading columns of ``matrix.csv``; one column per partner follows, named by the partner id
@@ -43,6 +44,35 @@ def _viable(ranking: pd.DataFrame) -> pd.Series:
     if "viable" in ranking:
         ok &= ranking["viable"].astype(str).str.lower().isin(["true", "1"])
     return ok & pd.to_numeric(ranking["pce_pct"], errors="coerce").notna()
+
+
+def _has_flag(ranking: pd.DataFrame, code: str) -> pd.Series:
+    """Rows whose ``flags`` (``;``-separated codes) hold ``code`` (all False without a flags column)."""
+    if "flags" not in ranking:
+        return pd.Series(False, index=ranking.index)
+    return ranking["flags"].astype(object).fillna("").astype(str).str.split(";").map(lambda f: code in f)
+
+
+def cell_notes(ranking: pd.DataFrame) -> dict:
+    """What the matrix's cells of one partner cannot say by a number: ``paired`` (rows that can pair: not of the
+    partner's own role), ``not_paired`` (ids of the partner's own role: an empty cell that is no verdict on the
+    pair) and ``alignment_uncertain`` (ids of paired rows with the info flag ``alignment_uncertain``: P(aligned)
+    between 0.25 and 0.75).
+
+    A meeting-day audit: same-role cells looked exactly like not-viable ones, and the column head "17/32 viable"
+    counted candidates that cannot pair.
+
+    Examples
+    --------
+    >>> r = pd.DataFrame({"id": ["D1", "D2", "A1"], "flags": ["alignment_uncertain", "", "same_role_as_partner"]})
+    >>> cell_notes(r)
+    {'paired': 2, 'not_paired': ['A1'], 'alignment_uncertain': ['D1']}
+    """
+    same = _has_flag(ranking, "same_role_as_partner")
+    uncertain = _has_flag(ranking, "alignment_uncertain") & ~same
+    ids = ranking["id"].astype(str)
+    return {"paired": int((~same).sum()), "not_paired": list(dict.fromkeys(ids[same])),
+            "alignment_uncertain": list(dict.fromkeys(ids[uncertain]))}
 
 
 def partner_matrix(rankings) -> pd.DataFrame:
@@ -162,12 +192,14 @@ def _write_matrix(ranking_paths, out_dir, device: dict, rank: dict) -> tuple[Pat
                          "gap_opt_ev": partner.get("gap_opt_ev"), "scale": partner.get("scale"),
                          "folder": path.parent.name, "report": f"../{path.parent.name}/report.html",
                          "levels": {k: (meta.get("levels") or {}).get(k) for k in ("path", "sha256")},
-                         "viable": int(_viable(table).sum()), "ranked": int(len(table))})
+                         "viable": int(_viable(table).sum()), "ranked": int(len(table)), **cell_notes(table)})
     matrix = partner_matrix(rankings)
     folder = Path(out_dir) / "rankings" / matrix_folder([p.parent for p in paths])
     write_csv(matrix, folder / "matrix.csv")
     meta = {"dascreen": __version__, "stage": "partner matrix", "partners": partners,
-            "cell": "best PCE estimate [%] of the candidate's viable rows against the partner; empty = not viable",
+            "cell": "best PCE estimate [%] of the candidate's viable rows against the partner; empty = not viable, or "
+                    "not paired when the candidate is listed in the partner's not_paired (same role as the partner); "
+                    "a partner's alignment_uncertain lists the candidates whose P(aligned) is between 0.25 and 0.75",
             "device": device, "device_tests": tests, "rank": rank, "rows": int(len(matrix)),
             "stale": stale_columns(partners, [p.parent / "ranking.meta.json" for p in paths], Path(out_dir)),
             "outputs": {"matrix": "matrix.csv", "overview": "overview.html", "meta": "matrix.meta.json"}}

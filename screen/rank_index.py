@@ -4,8 +4,10 @@ After a meeting of live re-ranking a run folder holds many ``<partner>--<setting
 folders whose names do not say what sets them apart (a meeting-day audit counted eight
 ``y6--…`` folders after twenty minutes). :func:`write_ranking_index` rebuilds one table
 from every folder's ``ranking.meta.json`` — partner, device model, absorber, target,
-sort order, the levels file ranked, counts and when — after each ranking, and
-``dascreen status`` prints it.
+sort order, the settings changed from the defaults (``settings``, e.g.
+``device.min_delta_homo_ev=0.1``: two folders that differed only in their counts
+were the audit of a later meeting), the levels file ranked, counts and when — after
+each ranking, and ``dascreen status`` prints it.
 
 Examples
 --------
@@ -21,6 +23,9 @@ Examples
 >>> index = ranking_index(out)
 >>> [str(v) for v in index.loc[0, ["folder", "partner", "model", "target_pce_pct", "ranked", "passing"]]]
 ['y6--0123abcd', 'y6', 'fitted', '10.0', '32', '17']
+>>> non_default_settings({"device": {"min_delta_homo_ev": 0.1, "min_delta_homo_ev_set": True},
+...                       "rank": {"sort_by": "p_above_target", "target_pce_pct": 10.0}})
+['device.min_delta_homo_ev=0.1', 'rank.sort_by=p_above_target']
 """
 
 from __future__ import annotations
@@ -30,11 +35,55 @@ from pathlib import Path
 
 import pandas as pd
 
-__all__ = ["INDEX_COLUMNS", "ranking_index", "write_ranking_index"]
+__all__ = ["INDEX_COLUMNS", "ranking_index", "write_ranking_index", "non_default_settings", "settings_text"]
 
 #: columns of ``OUT/rankings-index.csv``
-INDEX_COLUMNS = ["folder", "partner", "model", "absorber", "target_pce_pct", "sort_by", "levels", "ranked",
+INDEX_COLUMNS = ["folder", "partner", "model", "absorber", "target_pce_pct", "sort_by", "settings", "levels", "ranked",
                  "passing", "shortlisted", "written_utc"]
+
+#: device settings whose default (None) means "the fitted value"; the sidecar says with ``<key>_set`` whether one
+#: was given
+_FITTED_UNLESS_SET = ("eqe", "ff", "loss_v", "min_delta_lumo_ev", "min_delta_homo_ev")
+
+
+def _value_text(value) -> str:
+    if isinstance(value, bool) or value is None:
+        return str(value).lower() if value is not None else "none"
+    if isinstance(value, float):
+        return f"{value:g}"
+    return str(value)
+
+
+def non_default_settings(meta: dict, skip=()) -> list[str]:
+    """``section.key=value`` of every ``device`` and ``rank`` setting of a ranking's sidecar that is not the
+    schema default (``skip``: keys such as ``"rank.sort_by"`` said elsewhere).
+
+    A ``--set device.min_delta_homo_ev=0.1`` re-ranking was visible only on the report's device card (a
+    meeting-day audit): the console header, ``rankings-index.csv`` and the report header list these.
+    """
+    from screen.schema import section_defaults
+
+    found = []
+    for section in ("device", "rank"):
+        given = meta.get(section) if isinstance(meta, dict) else None
+        if not isinstance(given, dict):
+            continue
+        for key, default in section_defaults(section).items():
+            name = f"{section}.{key}"
+            if name in skip or key not in given:
+                continue
+            value = given[key]
+            if section == "device" and key in _FITTED_UNLESS_SET:
+                if given.get(f"{key}_set"):
+                    found.append(f"{name}={_value_text(value)}")
+            elif value != default and not (value is None and default is None):
+                found.append(f"{name}={_value_text(value)}")
+    return found
+
+
+def settings_text(meta: dict, skip=()) -> str:
+    """:func:`non_default_settings` joined with ``"; "`` (``""`` when every setting is the default)."""
+    return "; ".join(non_default_settings(meta, skip))
 
 
 def _row(folder: Path) -> dict | None:
@@ -55,7 +104,7 @@ def _row(folder: Path) -> dict | None:
     counts = part("counts")
     return {"folder": folder.name, "partner": part("partner").get("id", ""), "model": part("device").get("model", ""),
             "absorber": part("device").get("absorber", ""), "target_pce_pct": part("rank").get("target_pce_pct"),
-            "sort_by": part("rank").get("sort_by", ""), "levels": part("levels").get("path", ""),
+            "sort_by": part("rank").get("sort_by", ""), "settings": settings_text(meta), "levels": part("levels").get("path", ""),
             "ranked": counts.get("ranked"), "passing": counts.get("passing"),
             "shortlisted": counts.get("shortlisted_rows", counts.get("shortlist")),  # rows, with or without an SDF
             "written_utc": datetime.fromtimestamp(written, timezone.utc).strftime("%Y-%m-%d %H:%M")}

@@ -763,3 +763,71 @@ def test_the_command_table_lists_every_option_of_run():
     run = next(a for a in parser._actions if a.dest == "command").choices["run"]
     options = [s for a in run._actions for s in a.option_strings if s.startswith("--") and s != "--help"]
     assert options and all(f"[{o}" in row for o in options), [o for o in options if f"[{o}" not in row]
+
+
+# --------------------------------------------------------------------------- console table (meeting-17 audit)
+def _two_role_levels(tmp_path):
+    path = tmp_path / "two.csv"
+    path.write_text("id,smiles,homo_ev,lumo_ev,gap_opt_ev,scale,role\n"
+                    "KF-D01,c1ccc(-c2cccs2)s1,-5.4574,-3.0014,1.95,film,donor\n"
+                    "KF-D02,c1ccc(-c2ccco2)s1,-5.30,-3.20,1.90,film,donor\n"
+                    "KF-A01,c1ccc(-c2ccccn2)s1,-5.90,-3.90,1.80,film,acceptor\n", encoding="utf-8")
+    return path
+
+
+def test_the_console_table_has_fixed_decimals_per_column_and_p_aligned(tmp_path, capsys):
+    # the meeting-17 audit: `.3g` printed LUMO "-3" for -3.0014 and PCE "13" where the report shows 13.0
+    out = tmp_path / "out"
+    rc, text, _ = _cli(capsys, "rank", "--levels", str(_two_role_levels(tmp_path)), "--out", str(out),
+                       "--partner", "y6")
+    assert rc == 0
+    lines = text.splitlines()
+    head = next(i for i, line in enumerate(lines) if line.split()[:2] == ["rank", "id"])
+    assert "p_aligned" in lines[head].split()
+    row = next(line for line in lines[head + 1:] if " KF-D01 " in line).split()
+    cols = lines[head].split()
+    value = dict(zip(cols, row))
+    assert value["lumo_ev"] == "-3.00" and value["homo_ev"] == "-5.46"
+    for col, decimals in {"voc_v": 3, "jsc_ma_cm2": 1, "pce_pct": 1, "pce_sigma_pct": 1, "p_above_target": 2,
+                          "p_aligned": 2, "delta_homo_ev": 2, "delta_lumo_ev": 2}.items():
+        assert len(value[col].split(".")[1]) == decimals, (col, value[col])
+
+
+def test_the_console_header_counts_only_the_candidates_that_pair(tmp_path, capsys):
+    # the meeting-17 audit: "32 ranked against y6" counted the acceptors, which cannot pair with an acceptor
+    out = tmp_path / "out"
+    rc, text, _ = _cli(capsys, "rank", "--levels", str(_two_role_levels(tmp_path)), "--out", str(out),
+                       "--partner", "y6")
+    assert rc == 0
+    assert "dascreen: 2 donors ranked against y6 (1 not paired: same role as the partner);" in text
+
+
+def test_a_cut_console_cell_ends_with_an_ellipsis():
+    from screen.cli import cut_cell, fixed_decimals
+
+    assert cut_cell("same_computed_structure;class_voc_unranked", 40) == "same_computed_structure;class_voc_unran…"
+    assert cut_cell("class_voc_unranked", 40) == "class_voc_unranked"
+    # the audit's values: LUMO -3.0014, Voc 1.0004, PCE 13.0
+    assert (fixed_decimals(-3.0014, 2), fixed_decimals(1.0004, 3), fixed_decimals(13.0, 1)) == ("-3.00", "1.000", "13.0")
+
+
+def test_a_set_and_a_sort_order_are_named_in_the_header_the_index_and_status(levels, tmp_path, capsys):
+    # the meeting-17 audit: `--set device.min_delta_homo_ev=0.1` printed the default run's header, and the index showed
+    # two folders that differed only in counts
+    out = tmp_path / "out"
+    rc, text, _ = _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60",
+                       "--set", "device.min_delta_homo_ev=0.1")
+    assert rc == 0 and "set device.min_delta_homo_ev=0.1" in text and "sorted by" not in text
+    rc, text, _ = _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60",
+                       "--sort-by", "p_above_target")
+    assert rc == 0 and "sorted by P(PCE > target) (p_above_target)" in text and "set device" not in text
+    rc, text, _ = _cli(capsys, "rank", "--levels", str(levels), "--out", str(out), "--partner", "c60")
+    assert rc == 0 and "sorted by" not in text and "; set " not in text
+    index = pd.read_csv(out / "rankings-index.csv", keep_default_na=False)
+    assert sorted(index["settings"]) == ["", "device.min_delta_homo_ev=0.1", "rank.sort_by=p_above_target"]
+    from screen.cli import _print_rankings  # the index as `dascreen status` prints it
+
+    _print_rankings(out)
+    listed = capsys.readouterr().out
+    assert "sorted by pce_pct; set device.min_delta_homo_ev=0.1, levels " in listed
+    assert "sorted by p_above_target; set rank.sort_by=p_above_target" in listed

@@ -888,3 +888,21 @@ def test_cached_dye_table_is_rebuilt_when_the_anchor_rules_change(tmp_path, monk
     monkeypatch.setattr(st, "dyes_from_file", lambda *a, **k: calls.append(1) or real(*a, **k))
     run_dyecell(f, tmp_path / "o", settings={"n_samples": 100})
     assert calls == [1]
+
+
+def test_the_dye_console_table_has_fixed_decimals_per_column(tmp_path, capsys):
+    # the meeting-17 audit: `.3g` printed Voc "0.86" and PCE "13" where the report shows 13.0
+    from screen.cli import main
+
+    f = tmp_path / "measured.csv"
+    pd.DataFrame({"id": ["a"], "e_ox_v_nhe": [1.07], "e00_ev": [1.96],
+                  "smiles": ["OC(=O)c1ccccc1"]}).to_csv(f, index=False)
+    assert main(["dyecell", "--levels", str(f), "--out", str(tmp_path / "o"), "--mediator", "co-bpy3",
+                 "--set", "dyecell.n_samples=100"]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    head = next(i for i, line in enumerate(lines) if line.split()[:2] == ["rank", "id"])
+    value = dict(zip(lines[head].split(), lines[head + 1].split()))
+    assert value["e_ox_v_nhe"] == "1.07" and value["e00_ev"] == "1.96"
+    for col, decimals in {"drive_inj_ev": 2, "drive_reg_ev": 2, "voc_v": 3, "jsc_ma_cm2": 1, "pce_pct": 1,
+                          "pce_sigma_pct": 1, "p_viable": 2, "p_above_target": 2}.items():
+        assert len(value[col].split(".")[1]) == decimals, (col, value[col])

@@ -205,3 +205,45 @@ def test_a_run_that_re_ranks_its_partner_from_changed_levels_refreshes_the_matri
     pd.testing.assert_series_equal(cells, own, check_names=False)
     assert json.loads((matrix_dir / "matrix.meta.json").read_text())["stale"]["partners"] == ["c60"]
     assert f"partner matrix {matrix_dir} rebuilt" in capsys.readouterr().err
+
+
+# --------------------------------------------------------------------------- meeting-17 audit
+def test_same_role_cells_have_their_own_style_and_heads_count_only_candidates_that_pair(tmp_path, capsys):
+    # the meeting-17 audit: same-role cells were a grey "—" titled "not viable", and "17/32 viable" counted the
+    # candidates of the partner's own role
+    levels = tmp_path / "lv.csv"
+    levels.write_text(LEVELS + "KF-A01,Kestrel acceptor,c1ccc(-c2ccccn2)s1,-5.90,-3.95,1.80,film,acceptor\n",
+                      encoding="utf-8")
+    out = tmp_path / "out"
+    assert main(["rank", "--levels", str(levels), "--out", str(out), "--partner", "y6,c60"]) == 0
+    capsys.readouterr()
+    (matrix_dir,) = (out / "rankings").glob("matrix--*")
+    matrix = pd.read_csv(matrix_dir / "matrix.csv").set_index("id")
+    assert math.isnan(matrix.loc["KF-A01", "y6"])  # the cell stays empty in matrix.csv ...
+    meta = json.loads((matrix_dir / "matrix.meta.json").read_text())
+    y6 = meta["partners"][0]
+    assert y6["not_paired"] == ["KF-A01"] and y6["paired"] == 3 and y6["ranked"] == 4  # ... and is listed here
+    assert "not paired" in meta["cell"]
+    page = (matrix_dir / "overview.html").read_text()
+    assert f"<small>{y6['viable']}/3 viable</small>" in page and "/4 viable" not in page
+    row = next(line for line in page.split("<tr>") if "KF-A01" in line)
+    assert row.count('class="np" title="not paired (same role)') == 2 and 'title="not viable"' not in row
+    assert "not paired (same role)" in page.split("<table>")[0]  # in the legend
+
+
+def test_alignment_uncertain_cells_carry_a_marker_and_a_tooltip():
+    from screen.matrix import cell_notes
+    from screen.report.matrix_page import UNCERTAIN_TITLE
+
+    ranking = pd.DataFrame({"id": ["D1", "D2", "A1"], "smiles": ["C", "CC", "CCC"], "pce_pct": [9.0, 8.0, None],
+                            "passes": [True, True, False], "viable": [True, True, False],
+                            "flags": ["alignment_uncertain;chain_fit_poor", "", "same_role_as_partner"]})
+    notes = cell_notes(ranking)
+    assert notes == {"paired": 2, "not_paired": ["A1"], "alignment_uncertain": ["D1"]}
+    m = partner_matrix([("y6", ranking)])
+    page = render_overview(m, {"partners": [{"id": "y6", "viable": 2, "ranked": 3, **notes}]}, created="2024-01-01")
+    d1 = next(line for line in page.split("<tr>") if "D1</td>" in line)
+    assert 'class="unc"' in d1 and f'title="{UNCERTAIN_TITLE}"' in d1 and '<sup class="unc">?</sup>' in d1
+    d2 = next(line for line in page.split("<tr>") if "D2</td>" in line)
+    assert "unc" not in d2
+    assert "P(aligned) between 0.25 and 0.75" in UNCERTAIN_TITLE and "2/2 viable" in page

@@ -690,3 +690,47 @@ def test_a_polymer_badge_says_why_its_chain_fit_is_poor():
     cell = _candidate_cell("P", "", "donor", None, "polymer", ("2", "poor", "", note))
     assert "polymer n\u22642 \u00b7 fit poor" in cell and "no saturating fit accepted for ip, ea" in cell
     assert "lone_pair_homo" not in cell
+
+
+# --------------------------------------------------------------------------- meeting-17 audit
+def test_a_setting_changed_by_set_is_named_at_the_top_of_the_report():
+    # the meeting-17 audit: `--set device.min_delta_homo_ev=0.1` was visible only on the device card
+    from screen.schema import section_defaults
+
+    ranking, levels, partner, meta = synthetic_inputs()
+    meta["device"] = {**meta["device"], "model": "fitted", "absorber": "both", "min_delta_homo_ev": 0.0,
+                      "min_delta_homo_ev_set": False, "min_delta_lumo_ev_set": False}
+    meta["rank"] = section_defaults("rank")
+    page = render_report(ranking, levels, partner, meta)
+    assert 'id="settings-changed"' not in page  # every setting the default: no line
+    meta["device"] = {**meta["device"], "min_delta_homo_ev": 0.1, "min_delta_homo_ev_set": True}
+    meta["rank"] = {**meta["rank"], "sort_by": "p_above_target"}
+    page = render_report(ranking, levels, partner, meta)
+    line = page[page.index('id="settings-changed"'):]
+    line = line[:line.index("</p>")]
+    assert ("Settings changed from the defaults: <code>device.min_delta_homo_ev=0.1</code>, "
+            "<code>rank.sort_by=p_above_target</code>") in line
+    assert page.index('id="settings-changed"') < page.index('id="card-device"')
+
+
+def test_the_device_card_says_pooled_class_names_in_words_and_the_sort_key():
+    from screen.report.header import device_card
+
+    meta = {"device": {"model": "fitted", "ff": 0.6755, "ff_set": False,
+                       "fitted": {"ff_by_class": {"fullerene": 0.58, "nfa-fused": 0.698, "nfa-other": 0.61,
+                                                  "polymer": 0.69}}},
+            "rank": {"sort_by": "pce_pct"}}
+    card = device_card(meta)
+    # the audit: "0.68 for other acceptors; ... nfa-other 0.61" and "Sorted by pce_pct"
+    assert "0.68 pooled (pairs whose acceptor class cannot be told); per acceptor class: fullerene 0.58, " \
+           "nfa-fused 0.70 (fused-ring non-fullerene), nfa-other 0.61 (other non-fullerene), polymer 0.69" in card
+    assert "for other acceptors" not in card
+    assert "<dt>Sorted by</dt><dd>PCE estimate (<code>pce_pct</code>)</dd>" in card
+
+
+def test_chain_n_max_is_shown_as_an_integer():
+    ranking, levels, partner, meta = synthetic_inputs()
+    ranking["chain_n_max"] = [4.0] + [float("nan")] * (len(ranking) - 1)  # read back from CSV as a float
+    page = render_report(ranking, levels, partner, meta)
+    cells = re.findall(r'<td class="extra">([^<]*)</td>', page)
+    assert "4" in cells and "4.0" not in cells

@@ -21,7 +21,7 @@ import os
 import sys
 from pathlib import Path
 
-from screen.cli_shared import _at_least_one, _percent
+from screen.cli_shared import _at_least_one, _percent, cut_cell, fixed_decimals
 from screen.errors import ConfigError, InputError
 
 __all__ = ["add_dyecell", "cmd_dyecell"]
@@ -48,6 +48,12 @@ def _print_libraries() -> None:
           "column reference, and solvent for Fc) passed as --oxide/--mediator.")
 
 
+#: fixed decimals of the console table per column (``.3g`` printed Voc "0.86" beside PCE "5.31" and "13" for 13.0):
+#: potentials and driving forces 2, Voc 3, Jsc 1, PCE and σ 1, probabilities 2
+CONSOLE_DECIMALS = {"e_ox_v_nhe": 2, "e00_ev": 2, "e_ox_excited_v_nhe": 2, "drive_inj_ev": 2, "drive_reg_ev": 2,
+                    "voc_v": 3, "jsc_ma_cm2": 1, "pce_pct": 1, "pce_sigma_pct": 1, "p_viable": 2, "p_above_target": 2}
+
+
 def _print_ranking(path: Path, top: int, listed: frozenset = frozenset()) -> None:
     """The top of ``ranking.csv``, the reasons of the not-viable dyes and the rows that were not ranked.
 
@@ -61,8 +67,11 @@ def _print_ranking(path: Path, top: int, listed: frozenset = frozenset()) -> Non
     meta = json.loads((path.parent / "ranking.meta.json").read_text(encoding="utf-8"))
     dye_table = Path(meta.get("dye_table") or path.parent.parent / "dyes.csv")
     show = table.head(top).copy()
-    show["id"] = [str(i).replace("\n", "\\n")[:24] for i in show["id"]]
-    show["flags"] = show["flags"].map(lambda v: "" if pd.isna(v) else str(v)[:36])
+    show["id"] = [cut_cell(str(i).replace("\n", "\\n"), 24) for i in show["id"]]
+    show["flags"] = show["flags"].map(lambda v: "" if pd.isna(v) else cut_cell(v, 36))
+    for col, decimals in CONSOLE_DECIMALS.items():
+        if col in show:
+            show[col] = [fixed_decimals(v, decimals) for v in show[col]]
     cols = ["rank", "id", "e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "drive_inj_ev", "drive_reg_ev", "voc_v",
             "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_viable", "p_above_target", "passes", "flags"]
     viable = int(table["viable"].astype(str).str.lower().eq("true").sum()) if len(table) else 0
@@ -73,7 +82,7 @@ def _print_ranking(path: Path, top: int, listed: frozenset = frozenset()) -> Non
           "(potentials in V vs NHE, driving forces in eV):")
     if len(show):
         with pd.option_context("display.width", 250, "display.max_columns", 30):
-            print(show[cols].to_string(index=False, na_rep="-", float_format=lambda x: f"{x:.3g}"))
+            print(show[cols].to_string(index=False, na_rep="-"))
     for _, row in table[~table["viable"].astype(str).str.lower().eq("true")].head(top).iterrows():
         print(f"  {str(row['id'])[:24]}: {row['viability']}")
     if not_ranked:

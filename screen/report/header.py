@@ -13,7 +13,7 @@ import pandas as pd
 
 from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, shorten, text, texts, truthies
 
-__all__ = ["partner_card", "protocol_card", "device_card", "counts_strip"]
+__all__ = ["partner_card", "protocol_card", "device_card", "counts_strip", "settings_line"]
 
 _GEOMETRY_WORDS = {
     "ff": "force-field geometry",
@@ -223,19 +223,30 @@ def _loss_words(dev: dict) -> str:
             f"range{pooled}{floor_words}")
 
 
+#: the acceptor classes in words (codes of ``viability.acceptor_class_of``); a code that is a word needs none
+CLASS_NAMES = {"nfa-fused": "fused-ring non-fullerene", "nfa-other": "other non-fullerene",
+               "non-fullerene": "non-fullerene", "fullerene": "fullerene", "polymer": "polymer"}
+
+
+def _class_name(code) -> str:
+    """`` (<class in words>)`` beside a class code where the code is not a word itself ('' otherwise)."""
+    words = CLASS_NAMES.get(text(code), "")
+    return f" ({esc(words)})" if words and words != text(code) else ""
+
+
 def _ff_words(dev: dict) -> str:
     """Fill factor: the value, and for a fitted model with class values each class's.
 
     Examples
     --------
     >>> _ff_words({"ff": 0.6755, "ff_set": False, "fitted": {"ff_by_class": {"fullerene": 0.58, "nfa-fused": 0.698}}})
-    '0.68 for other acceptors; per acceptor class: fullerene 0.58, nfa-fused 0.70'
+    '0.68 pooled (pairs whose acceptor class cannot be told); per acceptor class: fullerene 0.58, nfa-fused 0.70 (fused-ring non-fullerene)'
 
     A family value that no candidate can receive (``non-fullerene`` beside both of its classes) is not listed:
 
     >>> _ff_words({"ff": 0.6755, "ff_set": False, "fitted": {"ff_by_class": {"nfa-fused": 0.698, "nfa-other": 0.61,
     ...                                                                   "non-fullerene": 0.6885}}})
-    '0.68 for other acceptors; per acceptor class: nfa-fused 0.70, nfa-other 0.61'
+    '0.68 pooled (pairs whose acceptor class cannot be told); per acceptor class: nfa-fused 0.70 (fused-ring non-fullerene), nfa-other 0.61 (other non-fullerene)'
     """
     base = _value(dev, "ff")
     fitted = dev.get("fitted") if isinstance(dev.get("fitted"), dict) else {}
@@ -244,8 +255,9 @@ def _ff_words(dev: dict) -> str:
         classes.pop("non-fullerene", None)
     if dev.get("ff_set") or not classes:
         return base
-    parts = ", ".join(f"{esc(k)} {fmt(num(v))}" for k, v in sorted(classes.items()))
-    return f"{base} for other acceptors; per acceptor class: {parts}"
+    parts = ", ".join(f"{esc(k)} {fmt(num(v))}{_class_name(k)}" for k, v in sorted(classes.items()))
+    # a meeting-day audit read "0.68 for other acceptors" beside "nfa-other 0.61"
+    return f"{base} pooled (pairs whose acceptor class cannot be told); per acceptor class: {parts}"
 
 
 def _device_items(dev: dict) -> list[tuple[str, str]]:
@@ -276,14 +288,25 @@ def _device_items(dev: dict) -> list[tuple[str, str]]:
     ]
 
 
+#: the ranking keys in words (``rank.sort_by``; a meeting-day audit read "Sorted by pce_pct")
+_SORT_WORDS = {"pce_pct": "PCE estimate", "p_above_target": "P(PCE above the target)"}
+
+
 def _ranking_items(rank: dict) -> list[tuple[str, str]]:
-    """Rows of the ranking-settings list."""
+    """Rows of the ranking-settings list.
+
+    Examples
+    --------
+    >>> dict(_ranking_items({"sort_by": "pce_pct"}))["Sorted by"]
+    'PCE estimate (<code>pce_pct</code>)'
+    """
     items = [
         ("Target PCE", _value(rank, "target_pce_pct", "%", 1)),
         ("Shortlist size", esc(rank.get("shortlist_size")) if text(rank.get("shortlist_size"))
          else NOT_RECORDED),
-        ("Sorted by", f"<code>{esc(rank.get('sort_by'))}</code>" if text(rank.get("sort_by"))
-         else NOT_RECORDED),
+        ("Sorted by", f"{_SORT_WORDS[text(rank.get('sort_by'))]} (<code>{esc(rank.get('sort_by'))}</code>)"
+         if text(rank.get("sort_by")) in _SORT_WORDS
+         else f"<code>{esc(rank.get('sort_by'))}</code>" if text(rank.get("sort_by")) else NOT_RECORDED),
     ]
     lo, hi = num(rank.get("gap_min_ev")), num(rank.get("gap_max_ev"))
     if not (math.isnan(lo) or math.isnan(hi)):
@@ -373,7 +396,7 @@ def _class_words(film) -> str:
     --------
     >>> _class_words({"by_class": {"nfa-fused": {"n": 66, "voc_mae_v": 0.037, "baseline_voc_mae_v": 0.066},
     ...                            "nfa-other": {"n": 7, "voc_mae_v": 0.134, "baseline_voc_mae_v": 0.152}}})
-    '; on measured levels, V<sub>oc</sub> MAE by acceptor class: nfa-fused 0.037 V (66), nfa-other 0.134 V (7; predicting the mean: 0.152 V)'
+    '; on measured levels, V<sub>oc</sub> MAE by acceptor class: nfa-fused 0.037 V (fused-ring non-fullerene; 66), nfa-other 0.134 V (other non-fullerene; 7; predicting the mean: 0.152 V)'
     """
     classes = film.get("by_class") if isinstance(film, dict) else None
     if not isinstance(classes, dict) or not classes:
@@ -384,7 +407,8 @@ def _class_words(film) -> str:
         if math.isnan(mae):
             continue
         close = "" if math.isnan(base) or mae < 0.8 * base else f"; predicting the mean: {fmt(base, 3)} V"
-        words.append(f"{esc(name)} {fmt(mae, 3)} V ({esc(rec.get('n', '?'))}{close})")
+        named = _class_name(name)[2:-1]
+        words.append(f"{esc(name)} {fmt(mae, 3)} V ({named + '; ' if named else ''}{esc(rec.get('n', '?'))}{close})")
     return "; on measured levels, V<sub>oc</sub> MAE by acceptor class: " + ", ".join(words) if words else ""
 
 
@@ -439,6 +463,31 @@ def device_card(meta: dict) -> str:
 # --------------------------------------------------------------------------- #
 # Counts
 # --------------------------------------------------------------------------- #
+def settings_line(meta: dict) -> str:
+    """One line naming the device and ranking settings changed from the defaults ("" when none is).
+
+    A ``--set device.min_delta_homo_ev=0.1`` re-ranking was visible only on the device card (a meeting-day audit).
+
+    Examples
+    --------
+    >>> settings_line({"device": {"min_delta_homo_ev": 0.1, "min_delta_homo_ev_set": True}, "rank": {}})
+    '<p class="quiet" id="settings-changed">Settings changed from the defaults: <code>device.min_delta_homo_ev=0.1</code> (see the device card)</p>'
+    >>> settings_line({"device": {"model": "fitted"}, "rank": {"sort_by": "pce_pct"}})
+    ''
+    """
+    from screen.rank_index import non_default_settings
+
+    try:
+        changed = non_default_settings(meta if isinstance(meta, dict) else {})
+    except Exception:  # noqa: BLE001 - an unreadable schema must not stop the report
+        return ""
+    if not changed:
+        return ""
+    codes = ", ".join(f"<code>{esc(c)}</code>" for c in changed)
+    return (f'<p class="quiet" id="settings-changed">Settings changed from the defaults: {codes} '
+            "(see the device card)</p>")
+
+
 def counts_strip(meta: dict, levels: pd.DataFrame, ranking: pd.DataFrame, n_short: int,
                  n_pass: int | None) -> str:
     """Counts strip: input rows, computed, ranked (of them not viable), passing, shortlisted, not ranked."""
@@ -466,4 +515,4 @@ def counts_strip(meta: dict, levels: pd.DataFrame, ranking: pd.DataFrame, n_shor
     cells = "".join(
         f'<div class="count"><span class="n">{NOT_RECORDED if v is None else v}</span>'
         f'<span class="what">{t}</span></div>' for t, v in items)
-    return f'<div class="counts" id="counts">{cells}</div>'
+    return f'<div class="counts" id="counts">{cells}</div>' + settings_line(meta)

@@ -3,7 +3,9 @@
 One table: a row per candidate (2-D drawing, id, best partner), a column per
 partner (its levels and a link to its report), each cell the best viable PCE
 estimate coloured on one sequential scale; an empty cell (grey, "—") is a pair
-that is not viable.  Numbers come from ``matrix.csv`` (:mod:`screen.matrix`);
+that is not viable, a hatched "same role" cell a candidate of the partner's own
+role (not paired), and a dashed-outlined cell with "?" a pair whose alignment is
+uncertain (P(aligned) between 0.25 and 0.75).  Numbers come from ``matrix.csv`` (:mod:`screen.matrix`);
 formatting and drawings are those of the ranking report
 (:mod:`screen.report.format`, :mod:`screen.report.drawings`).
 
@@ -14,6 +16,10 @@ Examples
 ...                   "best_pce_pct": [9.0], "viable_partners": [1], "y6": [9.0], "c60": [float("nan")]})
 >>> page = render_overview(m, {"partners": [{"id": "y6"}, {"id": "c60"}]})
 >>> page.startswith("<!DOCTYPE html>") and "9.0" in page and "not viable" in page
+True
+>>> page = render_overview(m, {"partners": [{"id": "y6", "alignment_uncertain": ["D1"]},
+...                                         {"id": "c60", "not_paired": ["D1"]}]})
+>>> NOT_PAIRED_TITLE in page and UNCERTAIN_TITLE in page
 True
 """
 
@@ -32,7 +38,13 @@ from screen.report.drawings import molecule_svg
 from screen.report.format import esc, fmt, num
 from screen.report.header import device_tests_html
 
-__all__ = ["render_overview", "write_overview", "heat_colour", "MAX_ROWS"]
+__all__ = ["render_overview", "write_overview", "heat_colour", "MAX_ROWS", "NOT_PAIRED_TITLE", "UNCERTAIN_TITLE"]
+
+#: tooltip of a cell whose candidate has the partner's own role (a meeting-day audit: it looked like "not viable")
+NOT_PAIRED_TITLE = "not paired (same role): the candidate has the partner's own role, so the pair is no device"
+#: tooltip of a cell whose pair's alignment is uncertain (info flag ``alignment_uncertain``)
+UNCERTAIN_TITLE = ("alignment uncertain: P(aligned) between 0.25 and 0.75, the offsets lie within the levels' "
+                   "uncertainty of their thresholds")
 
 #: rows shown on the page (best first); the whole table is matrix.csv
 MAX_ROWS = 200
@@ -48,6 +60,10 @@ h1{font-size:20px;margin:0 0 4px}p.sub{color:#555;margin:0 0 16px;max-width:70em
 p.caution{background:#fff4e0;border-left:5px solid #d9822b;padding:8px 14px;margin:0 0 16px;max-width:70em}
 table{border-collapse:collapse}th,td{border:1px solid #ddd;padding:4px 6px;text-align:center}
 th.cand,td.cand{text-align:left}td.na{background:#eee;color:#888}
+td.np{background:repeating-linear-gradient(45deg,#fff 0 4px,#e4e4e4 4px 8px);color:#666;font-size:11px;font-style:italic}
+td.unc{outline:2px dashed #d9822b;outline-offset:-3px}td sup.unc{font-weight:700;margin-left:1px}
+.legend span.np{background:repeating-linear-gradient(45deg,#fff 0 4px,#e4e4e4 4px 8px)}
+.legend span.unc{outline:2px dashed #d9822b;outline-offset:-3px;background:#fff}
 thead th{background:#f6f6f6;vertical-align:bottom;font-weight:600}
 thead th small{display:block;font-weight:400;color:#555}
 svg.mol{display:block}.legend{display:flex;align-items:center;gap:6px;margin:8px 0 16px}
@@ -86,19 +102,39 @@ def _head_cell(p: dict, stale: bool = False) -> str:
     name = esc(p.get("id"))
     title = f'<a href="{esc(link)}">{name}</a>' if link else name
     role = esc(p.get("role") or "")
-    viable = f"{p['viable']}/{p['ranked']} viable" if "viable" in p and "ranked" in p else ""
+    paired = p.get("paired", p.get("ranked"))  # candidates of the partner's own role do not count
+    viable = f"{p['viable']}/{paired} viable" if "viable" in p and paired is not None else ""
     mark = '<small class="stale">stale: earlier levels</small>' if stale else ""
     return f"<th>{title}<small>{role}</small><small>{levels}</small><small>{viable}</small>{mark}</th>"
 
 
-def _cell(value, low: float, high: float, stale: bool = False) -> str:
+def _cell(value, low: float, high: float, stale: bool = False, note: str = "") -> str:
+    """One cell; ``note``: ``"not_paired"`` (same role as the partner), ``"uncertain"`` (alignment uncertain) or ""."""
     x = num(value)
+    stale_title = f"; {_STALE_TITLE}" if stale else ""
+    if note == "not_paired":
+        return f'<td class="np{" stale" if stale else ""}" title="{NOT_PAIRED_TITLE}{stale_title}">same role</td>'
+    uncertain = note == "uncertain"
+    mark = '<sup class="unc">?</sup>' if uncertain else ""
     if math.isnan(x):
-        title = "not viable" + (f"; {_STALE_TITLE}" if stale else "")
-        return f'<td class="na{" stale" if stale else ""}" title="{title}">\u2014</td>'
+        title = "not viable" + (f"; {UNCERTAIN_TITLE}" if uncertain else "") + stale_title
+        classes = " ".join(c for c in ("na", "unc" if uncertain else "", "stale" if stale else "") if c)
+        return f'<td class="{classes}" title="{title}">\u2014{mark}</td>'
     bg, fg = heat_colour(x, low, high)
-    extra = f' class="stale" title="{_STALE_TITLE}"' if stale else ""
-    return f'<td style="background:{bg};color:{fg}"{extra} data-value="{x:.6g}">{fmt(x, 1)}</td>'
+    classes = " ".join(c for c in ("unc" if uncertain else "", "stale" if stale else "") if c)
+    titles = "; ".join(t for t in (UNCERTAIN_TITLE if uncertain else "", _STALE_TITLE if stale else "") if t)
+    extra = (f' class="{classes}"' if classes else "") + (f' title="{titles}"' if titles else "")
+    return f'<td style="background:{bg};color:{fg}"{extra} data-value="{x:.6g}">{fmt(x, 1)}{mark}</td>'
+
+
+def _notes(partners: list[dict]) -> dict:
+    """``{partner id: {candidate id: note}}`` from the partners' ``not_paired`` and ``alignment_uncertain`` lists."""
+    notes = {}
+    for p in partners:
+        cell = {str(i): "uncertain" for i in p.get("alignment_uncertain") or []}
+        cell.update({str(i): "not_paired" for i in p.get("not_paired") or []})
+        notes[p["id"]] = cell
+    return notes
 
 
 def _stale_banner(stale) -> str:
@@ -113,7 +149,9 @@ def _legend(low: float, high: float) -> str:
     steps = [low + (high - low) * i / 4 for i in range(5)]
     swatches = "".join(f'<span class="sw" style="background:{heat_colour(v, low, high)[0]}"></span>' for v in steps)
     return (f'<div class="legend">PCE estimate {fmt(low, 1)} % {swatches} {fmt(high, 1)} %'
-            f' <span class="sw" style="background:#eee"></span> not viable</div>')
+            f' <span class="sw" style="background:#eee"></span> not viable'
+            f' <span class="sw np"></span> not paired (same role)'
+            f' <span class="sw unc"></span><sup>?</sup> alignment uncertain</div>')
 
 
 def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None) -> str:
@@ -137,11 +175,13 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
     values = pd.concat([pd.to_numeric(matrix[c], errors="coerce") for c in ids]) if ids else pd.Series(dtype=float)
     low, high = (float(values.min()), float(values.max())) if values.notna().any() else (0.0, 1.0)
     shown = matrix.head(MAX_ROWS)
+    notes = _notes(partners)
     rows = []
     for n, row in enumerate(shown.to_dict("records")):
         drawing = (molecule_svg(row.get("smiles", ""), str(row["id"]), 120, 80) or "") if n < MAX_DRAWINGS else ""
         label = esc(row["id"]) + (f"<br><small>{esc(row['name'])}</small>" if row.get("name") else "")
-        cells = "".join(_cell(row.get(p), low, high, p in stale) for p in ids)
+        cells = "".join(_cell(row.get(p), low, high, p in stale, notes.get(p, {}).get(str(row["id"]), ""))
+                        for p in ids)
         rows.append(f'<tr><td class="cand">{drawing}{label}</td>{cells}<td>{esc(row.get("best_partner") or "—")}</td></tr>')
     more = (f"<p>{len(matrix) - len(shown)} more rows are in matrix.csv.</p>" if len(matrix) > len(shown) else "")
     model = esc((meta.get("device") or {}).get("model", "not recorded"))
@@ -155,7 +195,9 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
         f"<h1>Partner matrix: {len(matrix)} candidates \u00d7 {len(ids)} partners</h1>\n"
         "<p class=\"sub\">Each cell is the candidate's best estimated power-conversion efficiency against that "
         f"partner (device model: {model}), among its pairs that pass the filters and are viable; a grey cell "
-        "is a pair that is not viable. Estimates for screening, not measurements: follow a partner's link for "
+        "is a pair that is not viable, a hatched \u201csame role\u201d cell a candidate of the partner's own role "
+        "(not paired), and a cell marked ? a pair whose alignment is uncertain (P(aligned) between 0.25 and 0.75). "
+        "A column head counts the viable pairs among the candidates that pair with that partner. Estimates for screening, not measurements: follow a partner's link for "
         "its ranking, uncertainties and flags.</p>\n"
         + _stale_banner(meta.get("stale"))
         + (f'<p class="caution">{caution}</p>\n' if caution else "")

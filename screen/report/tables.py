@@ -168,6 +168,25 @@ def _cells(frame: pd.DataFrame, col: str) -> list:
     return frame[[col]].to_dict("list")[col]
 
 
+#: pass-through columns that count things: shown as integers (a meeting-day audit read chain_n_max "4.0")
+_INTEGER_EXTRAS = {"chain_n_max"}
+
+
+def _extra_text(value, column: str) -> str:
+    """A pass-through cell as text; a count column's whole number without ".0".
+
+    Examples
+    --------
+    >>> _extra_text(4.0, "chain_n_max"), _extra_text("", "chain_n_max"), _extra_text(0.5, "other")
+    ('4', '', '0.5')
+    """
+    if column in _INTEGER_EXTRAS:
+        x = num(value)
+        if not math.isnan(x) and float(x).is_integer():
+            return str(int(x))
+    return text(value)
+
+
 def _num_cells(values: list, shown: list[str], extra_class: str = "") -> list[str]:
     """``<td data-value=…>shown</td>`` per row (``shown`` is already HTML; right-aligned by the CSS)."""
     cls = f' class="{extra_class}"' if extra_class else ""
@@ -393,7 +412,8 @@ def full_table(ranking: pd.DataFrame, meta: dict) -> str:
                       ("Passes", "num", "descending", "passes"), ("Notes", "", "", "flags")]
                    + [(esc(c), "text", "", "") for c in extra])
     ids = [text(i) for i in _cells(ranking, "id")]
-    extras = [[f'<td class="extra">{esc(shorten(text(v), 120))}</td>' for v in _cells(ranking, c)] for c in extra]
+    extras = [[f'<td class="extra">{esc(shorten(_extra_text(v, c), 120))}</td>' for v in _cells(ranking, c)]
+              for c in extra]
     body = _table_rows(ids, [_rank_cells(ranking), _candidate_cells(ranking, ids, with_smiles=False),
                              *_level_columns(ranking), _pce_cells(ranking, meta), _prob_cells(ranking),
                              _prob_cells(ranking, "p_aligned"), [_passes_cell(v) for v in _cells(ranking, "passes")],
