@@ -906,3 +906,15 @@ def test_the_dye_console_table_has_fixed_decimals_per_column(tmp_path, capsys):
     for col, decimals in {"drive_inj_ev": 2, "drive_reg_ev": 2, "voc_v": 3, "jsc_ma_cm2": 1, "pce_pct": 1,
                           "pce_sigma_pct": 1, "p_viable": 2, "p_above_target": 2}.items():
         assert len(value[col].split(".")[1]) == decimals, (col, value[col])
+
+
+def test_a_not_viable_dyes_reason_is_said_once_and_mediator_comparisons_are_cautioned():
+    # a meeting audit: LD-12's missing anchor appeared as its viability text and again as its flag text; the page did
+    # not say that the one fixed Voc loss favours high-potential mediators (README, dye-cell limits)
+    from screen.dyecell.page import _caution, _flags_html
+
+    assert "no anchoring group" in _flags_html("no_anchor", {})
+    assert _flags_html("no_anchor", {}, said=True) == ""
+    both = _flags_html("no_anchor;outside_calibration", {}, said=True)
+    assert both.count("<li") == 1 and "no anchoring group" not in both
+    assert "favour them" in _caution({})

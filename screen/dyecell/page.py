@@ -68,7 +68,9 @@ _CAUTION_SOURCE = {
 }
 _CAUTION_REST = (
     ", and the cell model is idealised (sharp absorption edge, fixed photon-to-current efficiency, fill factor "
-    "and V<sub>oc</sub> loss below the ideal {ideal}, the same for every dye). "
+    "and V<sub>oc</sub> loss below the ideal {ideal}, the same for every dye and every mediator: real cells lose "
+    "more with high-potential couples, so comparisons across mediators favour them, e.g. [Cu(dmby)<sub>2</sub>] "
+    "1.27 V estimated against about 1.07 V measured, from memory). "
     "Use the numbers to rank and to choose what to discuss, not as predicted measurements. Band edges move with "
     "pH and electrolyte additives. Making and handling any dye follows your lab\u2019s chemical-safety rules and "
     "the safety data sheets of every reagent.")
@@ -199,9 +201,15 @@ def _model_card(meta: dict) -> str:
     return '<section class="card" id="card-model"><h3>Cell model and calibration</h3>' + _dl(items) + "</section>"
 
 
-def _flags_html(cell, meta: dict, extra: dict | None = None) -> str:
-    """The flags of one row in plain words; ``extra`` adds row-specific text per code."""
+def _flags_html(cell, meta: dict, extra: dict | None = None, said: bool = False) -> str:
+    """The flags of one row in plain words; ``extra`` adds row-specific text per code; ``said``: the row's
+    not-viable reason is already shown, so flags of that severity are left out (a meeting audit: LD-12's missing
+    anchor was said twice)."""
     codes = codes_of(cell)
+    if said:
+        codes = [c for c in codes if c in INFO_FLAGS]  # the others are what the shown reason says
+        if not codes:
+            return ""
     if not codes:
         return '<span class="ok-note">no flags</span>'
     settings = {"model": get(meta, "model", default={}) or {},
@@ -358,7 +366,7 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
         why = "" if truthy(r.get("viable")) else f'<p class="small">{esc(r.get("viability"))}</p>'
         own = text(r.get("uncalibrated_elements")).strip()
         extra = {"element_uncalibrated": f"; this dye: {', '.join(own.split())}"} if own else {}
-        cells.append(f"<td>{why}{_flags_html(r.get('flags'), meta, extra)}</td>")
+        cells.append(f"<td>{why}{_flags_html(r.get('flags'), meta, extra, said=bool(why))}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
     if not body:
         span = len(head)
