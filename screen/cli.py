@@ -499,6 +499,9 @@ def cmd_status(args) -> int:
     pct = 100.0 * p["done"] / p["total"] if p["total"] else 100.0
     counts = f"{p['done']}/{p['total']} molecules computed ({pct:.0f}%)"
     levels = out / "levels.csv"
+    dye = out / "dyecell" / "levels_raw.csv"
+    if not levels.is_file() and dye.is_file():  # a dye-cell run writes its levels there (a meeting audit)
+        levels = dye
     if run_active(out):
         elapsed = _now() - p["started"]
         eta = elapsed / p["done"] * (p["total"] - p["done"]) if p["done"] else float("nan")
@@ -508,8 +511,10 @@ def cmd_status(args) -> int:
         took = _minutes(levels.stat().st_mtime - p["started"])
         print(f"dascreen: finished: {counts} in {took}; results in {levels}")
     else:
-        print(f"dascreen: not running: {counts}; `dascreen run` with the same --out resumes it")
+        again = "`dascreen dyecell` with the same candidates and --out" if levels == dye else "`dascreen run` with the same --out"
+        print(f"dascreen: not running: {counts}; {again} resumes it")
     _print_rankings(out)
+    _print_dye_rankings(out)
     return EXIT_OK
 
 
@@ -531,6 +536,26 @@ def _print_rankings(out: Path, limit: int = 12) -> None:
         print(f"  {r.written_utc}  {r.folder}: against {r.partner}, {r.model} model{target}, sorted by {r.sort_by}"
               f"{settings}{levels}; {r.passing} of {r.ranked} pass")
 
+
+
+def _print_dye_rankings(out: Path, limit: int = 12) -> None:
+    """The dye-cell rankings of a run folder (``OUT/dyecell/<oxide>--<mediator>--<hash>/``), most recent first."""
+    from screen.io import read_json
+
+    found = sorted((out / "dyecell").glob("*/ranking.meta.json"), key=lambda p: p.stat().st_mtime, reverse=True)
+    if not found:
+        return
+    print(f"dascreen: {len(found)} dye-cell ranking(s) in {out / 'dyecell'}, most recent first (re-rank against "
+          f"another oxide or mediator with `dascreen dyecell --out {out} --mediator M`):")
+    for path in found[:limit]:
+        try:
+            meta = read_json(path)
+        except (OSError, ValueError):
+            continue
+        counts = meta.get("counts") or {}
+        oxide, mediator = ((meta.get(part) or {}).get("id") or "?" for part in ("oxide", "mediator"))
+        print(f"  {path.parent.name}: {oxide} with {mediator}; {counts.get('viable', '?')} of "
+              f"{counts.get('ranked', '?')} viable, {counts.get('passing', '?')} pass")
 
 
 def _now() -> float:

@@ -93,6 +93,20 @@ def test_status_of_a_running_and_a_stopped_run(tmp_path, capsys):
     assert rc == 0 and out.startswith("dascreen: running: 1/4 molecules computed (25%)") and "ETA" in out, out
 
 
+def test_status_of_a_finished_dye_run_lists_its_dye_rankings(tmp_path, capsys):
+    # a meeting audit: a finished dye run was "not running ... `dascreen run` with the same --out resumes it"
+    _fake_run(tmp_path, 4, levels=True)
+    (tmp_path / "levels.csv").rename(tmp_path / "moved.csv")
+    folder = tmp_path / "dyecell" / "tio2-anatase--co-bpy3--e52b5c2d"
+    folder.mkdir(parents=True)
+    (tmp_path / "dyecell" / "levels_raw.csv").write_text("id\n")
+    (folder / "ranking.meta.json").write_text(json.dumps({"oxide": {"id": "tio2-anatase"}, "mediator": {"id": "co-bpy3"},
+                                                          "counts": {"viable": 11, "ranked": 12, "passing": 11}}))
+    rc, out, _ = _cli(capsys, "status", "--out", str(tmp_path))
+    assert rc == 0 and out.startswith("dascreen: finished: 4/4 molecules computed"), out
+    assert "tio2-anatase--co-bpy3--e52b5c2d: tio2-anatase with co-bpy3; 11 of 12 viable, 11 pass" in out
+
+
 def test_status_of_a_folder_that_does_not_exist_says_so(tmp_path, capsys):
     rc, _, err = _cli(capsys, "status", "--out", str(tmp_path / "nonexistent"))
     assert rc == 2 and f"--out {tmp_path / 'nonexistent'}: no such folder" in err
