@@ -734,3 +734,19 @@ def test_chain_n_max_is_shown_as_an_integer():
     page = render_report(ranking, levels, partner, meta)
     cells = re.findall(r'<td class="extra">([^<]*)</td>', page)
     assert "4" in cells and "4.0" not in cells
+
+
+def test_the_level_diagram_draws_both_offsets():
+    # a meeting audit: only the LUMO offset was drawn, though the HOMO offset (0.02 eV for one donor against y6)
+    # often decides viability; both are drawn, each brick red below its threshold (0 eV: type II)
+    from matplotlib.figure import Figure
+
+    from screen.report.figures import _BRICK, _draw_levels
+
+    rows = pd.DataFrame({"rank": [1, 2], "id": ["d1", "d2"], "homo_ev": [-5.40, -5.70], "lumo_ev": [-3.50, -3.60],
+                         "delta_lumo_ev": [0.59, 0.49], "delta_homo_ev": [0.25, -0.05]})
+    ax = Figure().add_subplot()
+    _draw_levels(ax, rows, {"id": "acc", "homo_ev": -5.65, "lumo_ev": -4.09}, 0.0, 0.3, thr_homo=0.0)
+    labels = {t.get_text(): t.get_color() for t in ax.texts if t.get_text()}
+    assert set(labels) == {"0.59", "0.49", "0.25", "\u22120.05"}
+    assert labels["\u22120.05"] == _BRICK and labels["0.25"] != _BRICK and labels["0.59"] != _BRICK

@@ -232,8 +232,25 @@ def _tick_label(rank, ident: str) -> str:
     return f"{head}\n{ident}" if ident else head
 
 
-def _draw_levels(ax, rows: pd.DataFrame, partner: dict, thr: float, half: float) -> list[float]:
-    """Partner column and guides, candidate bars with σ bands and ΔLUMO arrows; the energies drawn. [eV]"""
+def _offset_arrow(ax, x: float, y: float, y_partner: float, value: float, low: bool, colour: str, right: bool,
+                  stroke) -> None:
+    """A double arrow between a candidate's level and the partner's at ``x`` with its value beside it."""
+    if math.isnan(y) or math.isnan(y_partner):
+        return
+    colour = _BRICK if low else colour
+    if abs(y - y_partner) > 0.02:
+        ax.annotate("", xy=(x, y), xytext=(x, y_partner),
+                    arrowprops=dict(arrowstyle="<|-|>", color=colour, lw=1.0, shrinkA=0, shrinkB=0,
+                                    mutation_scale=7))
+    ax.text(x + (0.04 if right else -0.04), 0.5 * (y + y_partner), fmt(value, 2), color=colour, fontsize=8.5,
+            va="center", ha="left" if right else "right", path_effects=stroke)
+
+
+def _draw_levels(ax, rows: pd.DataFrame, partner: dict, thr: float, half: float,
+                 thr_homo: float = math.nan) -> list[float]:
+    """Partner column and guides, candidate bars with σ bands, ΔLUMO arrows on the right and ΔHOMO arrows on
+    the left of each candidate (brick red below their thresholds; a meeting audit: ΔHOMO, which often decides
+    viability, was not drawn); the energies drawn. [eV]"""
     from matplotlib import patheffects
 
     p_homo, p_lumo = _partner_value(partner, "homo_ev"), _partner_value(partner, "lumo_ev")
@@ -262,17 +279,13 @@ def _draw_levels(ax, rows: pd.DataFrame, partner: dict, thr: float, half: float)
         bar(x, c_lumo, num(row.get("lumo_sigma_ev")), _TEAL)
         bar(x, c_homo, num(row.get("homo_sigma_ev")), _SLATE)
         d = num(row.get("delta_lumo_ev"))
-        if not (math.isnan(c_lumo) or math.isnan(p_lumo)):
-            low = (not math.isnan(thr) and not math.isnan(d) and d < thr - 1e-9)
-            colour = _BRICK if low else _TEAL_DARK
-            xa = x + half + 0.08
-            if abs(c_lumo - p_lumo) > 0.02:
-                ax.annotate("", xy=(xa, c_lumo), xytext=(xa, p_lumo),
-                            arrowprops=dict(arrowstyle="<|-|>", color=colour, lw=1.0,
-                                            shrinkA=0, shrinkB=0, mutation_scale=7))
-            label = fmt(d if not math.isnan(d) else c_lumo - p_lumo, 2)
-            ax.text(xa + 0.04, 0.5 * (c_lumo + p_lumo), label, color=colour, fontsize=8.5,
-                    va="center", ha="left", path_effects=stroke)
+        d = d if not math.isnan(d) else abs(c_lumo - p_lumo)
+        _offset_arrow(ax, x + half + 0.08, c_lumo, p_lumo, d,
+                      not math.isnan(thr) and d < thr - 1e-9, _TEAL_DARK, True, stroke)
+        h = num(row.get("delta_homo_ev"))
+        if not math.isnan(h):  # the offset is signed by roles; drawn where the table gives it
+            floor = thr_homo if not math.isnan(thr_homo) else 0.0
+            _offset_arrow(ax, x - half - 0.08, c_homo, p_homo, h, h < max(floor, 0.0) + 1e-9, _SLATE, False, stroke)
     return levels_seen
 
 
@@ -298,7 +311,7 @@ def _level_axes(ax, rows: pd.DataFrame, pid: str, levels_seen: list[float]) -> N
                 color=_SLATE)
 
 
-def _level_legend(ax, thr: float) -> None:
+def _level_legend(ax, thr: float, thr_homo: float = math.nan) -> None:
     """Legend below the level diagram."""
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
@@ -309,10 +322,13 @@ def _level_legend(ax, thr: float) -> None:
         Line2D([], [], color=_AMBER, lw=3.0, label="partner LUMO / HOMO"),
         Patch(facecolor=_SLATE, alpha=0.16, label="\u00b11\u03c3 band"),
         Line2D([], [], color=_TEAL_DARK, lw=1.0, marker=">", markersize=4,
-               label="\u0394LUMO [eV]" + ("" if math.isnan(thr) else
-                                          f" (brick red: below {fmt(thr)} eV)")),
+               label="\u0394LUMO [eV], right" + ("" if math.isnan(thr) else
+                                                 f" (brick red: below {fmt(thr)} eV)")),
+        Line2D([], [], color=_SLATE, lw=1.0, marker="<", markersize=4,
+               label="\u0394HOMO [eV], left" + ("" if math.isnan(thr_homo) else
+                                                f" (brick red: below {fmt(max(thr_homo, 0.0))} eV)")),
     ]
-    ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=5, fontsize=8.5,
+    ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=3, fontsize=8.5,
               frameon=False, handlelength=1.6, columnspacing=1.2)
 
 
@@ -335,8 +351,8 @@ def level_diagram_svg(shortlist: pd.DataFrame, partner: dict, meta: dict) -> str
         Inline SVG (``id="fig-levels"``): short bars for HOMO (slate) and LUMO
         (teal) of each candidate with ±σ bands, the partner's levels in amber
         as a column of their own and as dashed guides across the plot, and a
-        double arrow with the value of ΔLUMO at every candidate (brick red when
-        below the threshold).  Vacuum scale, eV.
+        double arrow with the value of ΔLUMO right of every candidate and of ΔHOMO
+        left of it (brick red when below the threshold).  Vacuum scale, eV.
 
     Examples
     --------
@@ -352,15 +368,16 @@ def level_diagram_svg(shortlist: pd.DataFrame, partner: dict, meta: dict) -> str
     rows = shortlist.head(DIAGRAM_MAX).reset_index(drop=True)
     n = len(rows)
     thr = num(get(meta, "device", "min_delta_lumo_ev"))
+    thr_homo = num(get(meta, "device", "min_delta_homo_ev"))
     pid = text(partner.get("id")) if isinstance(partner, dict) else ""
 
     with matplotlib.rc_context(_RC), _no_glyph_warnings():
         width = max(8.8, min(11.5, 2.0 + 0.85 * (n + 1)))
         fig = Figure(figsize=(width, 4.6))
         ax = fig.add_subplot()
-        levels_seen = _draw_levels(ax, rows, partner, thr, half=0.30)
+        levels_seen = _draw_levels(ax, rows, partner, thr, half=0.30, thr_homo=thr_homo)
         _level_axes(ax, rows, pid, levels_seen)
-        _level_legend(ax, thr)
+        _level_legend(ax, thr, thr_homo)
         return _figure_svg(fig, "fig-levels", "figure-svg levels-figure",
                            "Energy levels of the shortlisted candidates and the partner, vacuum scale")
 
@@ -654,7 +671,8 @@ def design_map_svg(ranking: pd.DataFrame, shortlist_index, partner: dict, meta: 
         cbar = fig.colorbar(filled, ax=ax, pad=0.02, fraction=0.045)
         cbar.set_label("PCE [%]")
         cbar.outline.set_visible(False)
-        ax.legend(loc="upper right", fontsize=8, framealpha=0.92, edgecolor="#d9dee4")
+        # below the plot: inside it the legend box hid a candidate's marker (a meeting audit)
+        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.11), ncol=3, fontsize=8, frameon=False)
         svg = _figure_svg(fig, "fig-map", "figure-svg map-figure",
                           f"Estimated efficiency ({model.label}) over optical gap and LUMO offset against the "
                           "partner, with the ranked candidates")
