@@ -984,3 +984,39 @@ def test_empty_allowed_elements_is_refused() -> None:
         PrepareOptions(allowed_elements=())
     with pytest.raises(ConfigError, match="allowed_elements"):
         resolve({"prepare": {"allowed_elements": []}})
+
+
+def test_a_cxsmiles_extension_in_a_smiles_file_stays_with_its_smiles(tmp_path):
+    # a polymer audit: "*c1ccc(*)s1 |$_R1;;;;;_R2;$| cx_smi" in a .smi file got the id "|$_R1;;;;;_R2;$| cx_smi"
+    from screen.prepare.readers import read_candidates
+
+    path = tmp_path / "units.smi"
+    path.write_text("*c1ccc(*)s1 |$_R1;;;;;_R2;$| cx_smi\nc1ccccc1 benz\nc1ccsc1\n")
+    frame = read_candidates(path)
+    assert frame["id"].tolist()[:2] == ["cx_smi", "benz"]
+    assert frame["smiles_input"].tolist()[:2] == ["*c1ccc(*)s1 |$_R1;;;;;_R2;$|", "c1ccccc1"]
+    assert _one("*c1ccc(*)s1 |$_R1;;;;;_R2;$|").smiles == "*c1ccc(*)s1"
+
+
+def test_sd_templates_and_query_atoms_are_not_repeat_units(tmp_path: Path) -> None:
+    # a polymer audit: two R# atoms both labelled R1 (a symmetric substituent template) and "any atom" queries (A)
+    # were read as the two ends of a polymer repeat unit
+    block = (
+        "{title}\n     test\n\n"
+        "  {n}  {m}  0  0  0  0  0  0  0  0999 V2000\n{atoms}{bonds}{extra}M  END\n$$$$\n"
+    )
+    atom = "    {x:.4f}    0.0000    0.0000 {el:<3} 0  0  0  0  0  0  0  0  0  0  0  0\n"
+    bonds = "  1  2  1  0\n  2  3  2  0\n  3  4  1  0\n"
+
+    def chain(title, ends, extra=""):
+        return block.format(title=title, n=4, m=3, bonds=bonds, extra=extra,
+                            atoms=atom.format(x=0, el=ends) + atom.format(x=1.5, el="C")
+                            + atom.format(x=3.0, el="C") + atom.format(x=4.5, el=ends))
+
+    path = tmp_path / "t.sdf"
+    path.write_text(chain("r1r2", "R#", "M  RGP  2   1   1   4   2\n") + chain("r1r1", "R#", "M  RGP  2   1   1   4   1\n")
+                    + chain("any", "A"))
+    out = validate(read_candidates(path))
+    assert list(out.status) == ["ok", "rejected", "rejected"]
+    assert "R-group label R1 appears on more than one atom" in out.error[1]
+    assert "query atom A (any atom)" in out.error[2]

@@ -229,10 +229,14 @@ def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
             first_data = False
             continue
         first_data = False
+        smiles, rest = parts[0], (parts[1].strip() if len(parts) > 1 else "")
+        if rest.startswith("|") and "|" in rest[1:]:  # a CXSMILES extension (|$_R1;;_R2$|) belongs to the SMILES
+            end = rest.index("|", 1) + 1
+            smiles, rest = f"{smiles} {rest[:end]}", rest[end:].strip()
         records.append(
             {
-                "id": parts[1].strip() if len(parts) > 1 else "",
-                "smiles_input": parts[0],
+                "id": rest,
+                "smiles_input": smiles,
                 "name": "",
                 "role": "",
                 "read_error": "",
@@ -337,6 +341,9 @@ def _molblock_to_smiles(molblock: str) -> tuple[str | None, str]:
             try:
                 mol = Chem.MolFromMolBlock(molblock, sanitize=True, removeHs=False)
                 if mol is not None:
+                    repeated = _repeated_r_labels(mol)
+                    if repeated:
+                        return None, repeated
                     return Chem.MolToSmiles(Chem.RemoveHs(mol)), ""
                 mol = Chem.MolFromMolBlock(molblock, sanitize=False, removeHs=False)
                 if mol is None:
@@ -346,6 +353,23 @@ def _molblock_to_smiles(molblock: str) -> tuple[str | None, str]:
             except Exception as exc:  # RDKit raises several exception types on bad blocks
                 text = str(exc).strip()
                 return None, text.splitlines()[0] if text else type(exc).__name__
+
+
+def _repeated_r_labels(mol) -> str:
+    """Why an SD record's dummy atoms are no repeat-unit ends ('' otherwise): an "any atom" query (A, Q) is a
+    search pattern, and R-group atoms with one label twice mark a symmetric substituent template (a polymer audit
+    found both computed as polymers)."""
+    queries = sorted({a.GetQueryType() for a in mol.GetAtoms()
+                      if a.GetAtomicNum() == 0 and a.HasQuery() and a.GetQueryType() in ("A", "Q", "AH", "QH")})
+    if queries:  # an "any atom" query is a search pattern, not an attachment point (a polymer audit)
+        return (f"query atom {', '.join(queries)} (any atom) is a search pattern, not an attachment point; mark the "
+                "two ends of a polymer repeat unit with R1 and R2 (R#) or *")
+    labels = [a.GetIntProp("_MolFileRLabel") for a in mol.GetAtoms() if a.HasProp("_MolFileRLabel")]
+    twice = sorted({f"R{x}" for x in labels if labels.count(x) > 1})
+    if not twice:
+        return ""
+    return (f"R-group label {', '.join(twice)} appears on more than one atom: that is a substituent template, not "
+            "a polymer repeat unit; mark the two ends of a repeat unit R1 and R2")
 
 
 def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
