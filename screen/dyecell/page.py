@@ -172,6 +172,22 @@ def _voc_loss_html(m: dict, p_type: bool) -> str:
             "V<sub>oc</sub> = E<sub>redox</sub> \u2212 E<sub>CB</sub> \u2212 loss (<code>voc_loss_v</code>, n-type)")
 
 
+def _own_threshold(meta: dict) -> str:
+    """Whose regeneration threshold applies: the mediator's own, or a set value beside the mediator's own.
+
+    Examples
+    --------
+    >>> _own_threshold({"regeneration_threshold_ev": 0.1, "mediator": {"min_drive_reg_ev": 0.1}})
+    ' (this mediator’s own)'
+    >>> _own_threshold({"regeneration_threshold_ev": 0.2, "mediator": {"min_drive_reg_ev": 0.1}})
+    ' (set; this mediator’s own 0.10 eV)'
+    """
+    own, used = num(get(meta, "mediator", "min_drive_reg_ev")), num(meta.get("regeneration_threshold_ev"))
+    if math.isnan(own):
+        return ""
+    return " (this mediator\u2019s own)" if own == used else f" (set; this mediator\u2019s own {fmt(own, 2)} eV)"
+
+
 def _model_card(meta: dict) -> str:
     m = get(meta, "model", default={}) or {}
     items = [
@@ -179,9 +195,7 @@ def _model_card(meta: dict) -> str:
         ("Fill factor", fmt(m.get("ff"), 2)),
         ("V<sub>oc</sub> loss", _voc_loss_html(m, _p_type(meta))),
         ("Injection threshold", fmt(m.get("min_drive_inj_ev"), 2) + " eV"),
-        ("Regeneration threshold", fmt(meta.get("regeneration_threshold_ev"), 2) + " eV"
-         + (" (this mediator\u2019s own)" if num(get(meta, "mediator", "min_drive_reg_ev")) ==
-            num(meta.get("regeneration_threshold_ev")) else "")),
+        ("Regeneration threshold", fmt(meta.get("regeneration_threshold_ev"), 2) + " eV" + _own_threshold(meta)),
         ("Anchor required", "yes" if m.get("require_anchor") else "no"),
         ("Spectrum", esc(m.get("spectrum")) or NOT_RECORDED),
         ("Target", fmt(get(meta, "rank", "target_pce_pct"), 1) + " % PCE; "
@@ -328,6 +342,21 @@ def _not_viable(ranking: pd.DataFrame) -> str:
             f'<ul class="not-viable" id="not-viable-list">{items}</ul>{rest}')
 
 
+def _decimals(col: str, value, thresholds: dict) -> int:
+    """Decimals of a table cell: 3 for a driving force within 0.01 eV of its threshold (a meeting audit: 0.198 and
+    0.204 eV both showed as "0.20" beside a 0.20 eV threshold, one dye viable, the other not), else 1 for Jsc, 2.
+
+    Examples
+    --------
+    >>> _decimals("drive_reg_ev", 0.198, {"drive_reg_ev": 0.2}), _decimals("drive_reg_ev", 0.35, {"drive_reg_ev": 0.2})
+    (3, 2)
+    """
+    if col == "jsc_ma_cm2":
+        return 1
+    limit, v = thresholds.get(col, math.nan), num(value)
+    return 3 if not (math.isnan(limit) or math.isnan(v)) and abs(v - limit) < 0.01 else 2
+
+
 def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
     target = fmt(get(meta, "rank", "target_pce_pct"), 1)
     head = ['<th class="js-sort num-h" data-type="num">Rank</th>']
@@ -350,6 +379,8 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
         cells.append(f'<td class="cand"><span class="cid">{esc(r.get("id"))}</span>'
                      + (f'<span class="cname">{esc(name)}</span>' if name else "") + "</td>")
         sig = {"e_ox_v_nhe": "e_ox_sigma_v", "e00_ev": "e00_sigma_ev", "pce_pct": "pce_sigma_pct"}
+        thresholds = {"drive_inj_ev": num(get(meta, "model", "min_drive_inj_ev")),
+                      "drive_reg_ev": num(meta.get("regeneration_threshold_ev"))}
         for _, col in headers:
             val = r.get(col)
             if col == "pce_pct":
@@ -357,7 +388,7 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
             elif col in sig:
                 html = pm_html(val, r.get(sig[col]), 2)
             else:
-                html = fmt(val, 1 if col == "jsc_ma_cm2" else 2)
+                html = fmt(val, _decimals(col, val, thresholds))
             cls = ' class="pce"' if col == "pce_pct" else ""
             cells.append(f'<td{cls} data-value="{data_value(val)}">{html}</td>')
         cells.append(f'<td data-value="{data_value(r.get("p_above_target"))}">{_percent(r.get("p_above_target"))}</td>')
