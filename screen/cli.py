@@ -102,7 +102,7 @@ def cmd_calibrate(args) -> int:
     import pandas as pd
 
     from screen.calibrate import load_models, stats_table
-    from screen.preflight import check_out_folder, make_out_folder
+    from screen.preflight import check_out_folder
 
     out = Path(args.out).resolve()
     check_out_folder(out, args.out)
@@ -114,8 +114,7 @@ def cmd_calibrate(args) -> int:
     target = out / "models" / pid
     if args.install and not args.replace_installed:  # refused before anything is computed
         _check_install(Path(args.install).resolve() / pid, cfg, args.install)
-    new = next((p for p in [*reversed(out.parents), out] if not p.exists()), None)  # the first folder made here
-    make_out_folder(out, args.out)  # --out /sys/x gave a traceback
+    new = _made_out_folder(out, args.out)  # --out /sys/x gave a traceback
     if args.from_raw:
         from screen.refit import refit_from_raw
 
@@ -376,8 +375,7 @@ def cmd_rank(args) -> int:
     """Rank a levels file against one or more partners (a partner matrix for several); a new smiles:
     partner is computed by the workflow first."""
     from screen.partners import partner_kind, split_partners
-    from screen.preflight import (check_out_folder, check_partners, check_rank_config, check_rank_sets,
-                                  make_out_folder)
+    from screen.preflight import check_out_folder, check_partners, check_rank_config, check_rank_sets
     from screen.rank_io import check_before_computing, run_rank
 
     out = Path(args.out).resolve()
@@ -422,8 +420,7 @@ def cmd_rank(args) -> int:
     computed = {spec: _compute_partner(cfg, out, spec, args.verbose) for spec in partners}  # smiles: ones only
     if smiles and len(partners) > 1:  # the computed partners' own levels, before any ranking is written
         check_before_computing(levels, partners, cfg, out_dir=out, partner_levels=computed)
-    new = next((p for p in [*reversed(out.parents), out] if not p.exists()), None)  # the first folder made here
-    make_out_folder(out, args.out)  # before any ranking: --out /sys/x gave a traceback
+    new = _made_out_folder(out, args.out)  # before any ranking: --out /sys/x gave a traceback
     paths, replaced = [], []
     try:
         for spec in partners:
@@ -451,6 +448,16 @@ def cmd_rank(args) -> int:
         for name in dict.fromkeys(replaced):
             refresh_matrices(out, name, skip=(folder,) if len(paths) > 1 else ())
     return EXIT_OK
+
+
+def _made_out_folder(out: Path, given: str) -> Path | None:
+    """Create ``--out`` (:func:`screen.preflight.make_out_folder`); the first folder made here, for
+    :func:`_remove_empty` (None when ``out`` existed)."""
+    from screen.preflight import make_out_folder
+
+    new = next((p for p in [*reversed(out.parents), out] if not p.exists()), None)
+    make_out_folder(out, given)
+    return new
 
 
 def _remove_empty(out: Path, top: Path | None) -> None:
@@ -537,7 +544,6 @@ def _print_rankings(out: Path, limit: int = 12) -> None:
               f"{settings}{levels}; {r.passing} of {r.ranked} pass")
 
 
-
 def _print_dye_rankings(out: Path, limit: int = 12) -> None:
     """The dye-cell rankings of a run folder (``OUT/dyecell/<oxide>--<mediator>--<hash>/``), most recent first."""
     from screen.io import read_json
@@ -590,7 +596,7 @@ _CLI_DEFAULTS = {
 
 def cmd_store(args) -> int:
     """List, export or prune the results store."""
-    from screen.preflight import read_problem
+    from screen.config import read_problem
     from screen.store import ResultStore, export_store, store_location, store_text
 
     if args.action == "export":  # --to x.xyz wrote SD records under another name

@@ -251,9 +251,8 @@ def read_config_file(path: str | Path | None) -> dict:
     try:
         cfg = yaml.safe_load(Path(path).read_text(encoding="utf-8")) or {}
     except UnicodeDecodeError as exc:  # a binary or Latin-1 file gave a traceback (a new user's audit)
-        raise ConfigError(f"{path}: the config file is not UTF-8 text (byte 0x{exc.object[exc.start]:02x} at position "
-                          f"{exc.start}); save it as UTF-8 (a YAML file of fields, see `dascreen config --yaml`)"
-                          ) from None
+        raise ConfigError(f"{path}: the config file is {read_problem(exc)}; save it as UTF-8 (a YAML file of fields, "
+                          "see `dascreen config --yaml`)") from None
     except (OSError, yaml.YAMLError) as exc:  # one line: a YAML error's own text spans six
         raise ConfigError(f"{path}: cannot read the config file: {read_problem(exc)}") from None
     if not isinstance(cfg, dict):

@@ -31,7 +31,7 @@ import pandas as pd
 
 from screen.errors import InputError
 
-__all__ = ["cell_text", "atomic_path", "csv_text", "write_csv", "write_json", "read_json", "read_csv_checked",
+__all__ = ["cell_text", "field_count_lines", "atomic_path", "csv_text", "write_csv", "write_json", "read_json", "read_csv_checked",
            "separator_problem",
            "Journal", "Progress"]
 
@@ -271,19 +271,36 @@ def separator_problem(header) -> str | None:
     return None
 
 
-def _field_count_problem(path: Path) -> str | None:
-    """The first line whose field count differs from the header's, in words (None when all agree)."""
+def field_count_lines(path, longer_only: bool = False, first_only: bool = False) -> tuple[list[str], list]:
+    """The header of a CSV file and ``(line, fields)`` of its lines whose field count differs from the header's
+    (``longer_only``: only lines with more fields; ``first_only``: stop at the first); lines counted as in the
+    file, header = line 1.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> f = Path(tempfile.mkdtemp()) / "t.csv"; _ = f.write_text("a,b\\n1,2,3\\n4\\n")
+    >>> field_count_lines(f), field_count_lines(f, longer_only=True)
+    ((['a', 'b'], [(2, 3), (3, 1)]), (['a', 'b'], [(2, 3)]))
+    """
     import csv
 
+    lines = []
     with open(path, newline="", encoding="utf-8", errors="replace") as handle:
         rows = csv.reader(handle)
-        header = next(rows, None)
-        if header is None:
-            return None
-        for fields in rows:
-            if fields and len(fields) != len(header):
-                return f"line {rows.line_num} has {len(fields)} fields but the header has {len(header)}"
-    return None
+        header = next(rows, None) or []
+        for fields in rows if header else ():
+            if fields and (len(fields) > len(header) if longer_only else len(fields) != len(header)):
+                lines.append((rows.line_num, len(fields)))
+                if first_only:
+                    break
+    return header, lines
+
+
+def _field_count_problem(path: Path) -> str | None:
+    """The first line whose field count differs from the header's, in words (None when all agree)."""
+    header, lines = field_count_lines(path, first_only=True)
+    return f"line {lines[0][0]} has {lines[0][1]} fields but the header has {len(header)}" if lines else None
 
 
 def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", error=InputError,

@@ -33,12 +33,13 @@ from pathlib import Path
 
 import yaml
 
+from screen.config import read_problem
 from screen.errors import ConfigError, InputError
 
 __all__ = ["SchemaField", "schema_fields", "allowed_text", "unit_of", "check_sets", "check_rank_sets", "check_rank_config",
            "check_candidates",
            "check_out_folder", "check_partners", "check_partner_scales", "check_out", "config_text",
-           "check_profile", "check_run_partners", "make_out_folder", "read_problem",
+           "check_profile", "check_run_partners", "make_out_folder",
            "CalibrationDifference", "calibration_differences", "calibration_text", "check_calibration", "fitted_in",
            "reference_count"]
 
@@ -508,13 +509,18 @@ def check_partners(specs, levels_path=None, role=None, roles_of=None) -> None:
             ident = spec.strip()[3:].strip()
             ids = pd.read_csv(levels_path, usecols=["id"], dtype=str, keep_default_na=False)["id"]
             if ident not in set(ids):
-                from screen.levels_check import quoted
-                from screen.partners import suggest
+                raise _unknown_id(spec, ident, ids, "row", levels_path)
 
-                close = suggest(ident, list(ids), n=3)
-                hint = f"; did you mean {' or '.join('id:' + c for c in close)}?" if close else ""
-                raise PartnerError(f"partner {quoted(spec.strip())}: no row with id {quoted(ident)} in {levels_path}"
-                                   f"{hint}")
+
+def _unknown_id(spec: str, ident: str, ids, noun: str, where, note: str = ""):
+    """The PartnerError of an ``id:`` partner whose id is not among the ``ids`` of ``where``, with "did you mean"
+    the closest ids."""
+    from screen.levels_check import quoted
+    from screen.partners import PartnerError, suggest
+
+    close = suggest(ident, list(ids), n=3)
+    hint = f"; did you mean {' or '.join('id:' + c for c in close)}?" if close else ""
+    return PartnerError(f"partner {quoted(spec.strip())}: no {noun} with id {quoted(ident)} in {where}{hint}{note}")
 
 
 def check_run_partners(specs, candidates, rank_options) -> None:
@@ -562,12 +568,8 @@ def check_run_partners(specs, candidates, rank_options) -> None:
             ident = spec.strip()[3:].strip()
             rows = frame.index[frame["id"].astype(str).eq(ident)]
             if not len(rows):
-                from screen.partners import suggest
-
-                close = suggest(ident, list(frame["id"].astype(str)), n=3)
-                hint = f"; did you mean {' or '.join('id:' + c for c in close)}?" if close else ""
-                raise PartnerError(f"partner {quoted(spec.strip())}: no candidate with id {quoted(ident)} in "
-                                   f"{candidates}{hint} (an id: partner is a row of the run's own candidates)")
+                raise _unknown_id(spec, ident, frame["id"].astype(str), "candidate", candidates,
+                                  " (an id: partner is a row of the run's own candidates)")
             role = roles[rows[0]] if roles[rows[0]] in ("donor", "acceptor") else ""
         partner = Partner(id=spec.strip(), name=spec.strip(), role=role, homo_ev=nan, lumo_ev=nan, gap_opt_ev=nan,
                           kind=kinds[spec], spec=spec)
@@ -612,13 +614,6 @@ def check_out_folder(out, given: str | None = None) -> None:
     parent = next((p for p in out.absolute().parents if p.exists()), None)
     if parent is not None and not parent.is_dir():
         raise ConfigError(f"--out {given}: {parent} is a file, not a folder; choose an --out folder outside it")
-
-
-def read_problem(exc: Exception) -> str:
-    """Why a text file could not be read, in one line (:func:`screen.config.read_problem`)."""
-    from screen.config import read_problem as problem
-
-    return problem(exc)
 
 
 def make_out_folder(out, given: str | None = None) -> None:

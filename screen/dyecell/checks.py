@@ -467,17 +467,10 @@ def extra_fields_problem(path) -> str | None:
     >>> extra_fields_problem(f)
     'line 2 has 4 fields but the header has 3 (id, e_ox_v_nhe, e00_ev)'
     """
-    import csv
+    from screen.io import field_count_lines
 
-    lines: list[tuple[int, int]] = []
-    with open(path, newline="", encoding="utf-8", errors="replace") as handle:
-        rows = csv.reader(handle)
-        header = next(rows, None)
-        if not header:
-            return None
-        for fields in rows:
-            if len(fields) > len(header):  # empty extra fields too: a trailing comma shifts the columns as well
-                lines.append((rows.line_num, len(fields)))
+    # empty extra fields count too: a trailing comma shifts the columns as well
+    header, lines = field_count_lines(path, longer_only=True)
     if not lines:
         return None
     names = ", ".join(h.strip() for h in header)
