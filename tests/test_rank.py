@@ -389,6 +389,32 @@ def test_flags_and_errors_come_from_the_ground_floor(partner):
     assert codes == [c for c in flags.FLAG_ORDER if c in codes]
 
 
+def test_every_flag_the_ranking_can_set_is_registered(partner, monkeypatch):
+    # a code in rank._flag_masks but not in screen.flags would have no text, no severity and no place in FLAG_ORDER:
+    # _passes counts it as failing, so every row it is raised on would fail silently
+    from screen import rank
+
+    built = []
+
+    def spy(*args, **kwargs):
+        masks = original(*args, **kwargs)
+        built.append(set(masks))
+        return masks
+
+    original = rank._flag_masks
+    monkeypatch.setattr(rank, "_flag_masks", spy)
+    rows = [{"id": "d", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5, "role": "donor"}]
+    for model in (PUBLISHED, DeviceModel()):
+        rank_candidates(_levels(rows), partner, model)
+    assert len(built) == 2
+    registered = {f.code for f in flags._REGISTRY}
+    assert set(flags.FLAGS) == registered and set(flags.DEVICE_FLAGS) <= registered
+    for codes in built:
+        assert codes >= set(flags.DEVICE_FLAGS)
+        assert not codes - registered, f"flag code(s) set by screen.rank but not registered in screen.flags: " \
+                                       f"{sorted(codes - registered)}"
+
+
 # --------------------------------------------------------------------------- run_rank and outputs
 
 @pytest.fixture()
