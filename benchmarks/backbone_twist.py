@@ -30,7 +30,7 @@ same range.
 
 Usage::
 
-    .venv/bin/python benchmarks/backbone_twist.py [--protocol tblite-gfn2-ff-cf90d5d7] [--jobs 2] [--limit N]
+    .venv/bin/python benchmarks/backbone_twist.py [--protocol <protocol-id>] [--jobs 2] [--limit N]
 """
 
 from __future__ import annotations
@@ -52,6 +52,7 @@ from rdkit import Chem  # noqa: E402
 from rdkit.Chem import rdMolTransforms  # noqa: E402
 from scipy.stats import spearmanr  # noqa: E402
 
+from screen.config import Config  # noqa: E402
 from screen.options import StructureOptions  # noqa: E402
 from screen.structures import build_structure  # noqa: E402
 
@@ -143,7 +144,7 @@ def residuals(protocol: str) -> pd.DataFrame:
 
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    parser.add_argument("--protocol", default="tblite-gfn2-ff-cf90d5d7")
+    parser.add_argument("--protocol", default=Config.of({}).protocol_id)
     parser.add_argument("--jobs", type=int, default=2)
     parser.add_argument("--limit", type=int, default=0, help="first N polymers only (0: all)")
     parser.add_argument("--threshold", type=float, default=35.0, help="twist threshold for the split [degrees]")

@@ -86,7 +86,7 @@ def main(argv=None) -> int:
     parser.add_argument("--raw", help="reference_raw.csv listing the molecules (default: the default protocol's)")
     args = parser.parse_args(argv)
     cfg = Config.of({})
-    xtb_id = Config.of({"structures": {"geometry": "xtb"}}).protocol_id
+    xtb_id = Config.of({"structures": {"geometry": "xtb", "rigid_embedding": "cycle_rank"}}).protocol_id
     raw = pd.read_csv(args.raw or REPO / "models" / cfg.protocol_id / "reference_raw.csv", keep_default_na=False,
                       na_values=[""])
     xraw = pd.read_csv(REPO / "models" / xtb_id / "reference_raw.csv", keep_default_na=False, na_values=[""])

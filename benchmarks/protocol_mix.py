@@ -34,7 +34,8 @@ from screen.config import protocol_id  # noqa: E402
 from screen.devicevalidation import RAW_PATH as A_RAW  # noqa: E402  (the default protocol's)
 from screen.devicevalidation import read_raw  # noqa: E402
 
-B_RAW = REPO / "models" / protocol_id({"structures": {"geometry": "xtb"}}) / "reference_raw.csv"
+B_RAW = REPO / "models" / protocol_id({"structures": {"geometry": "xtb", "rigid_embedding": "cycle_rank"}}) \
+    / "reference_raw.csv"
 
 
 def mix(molecules: pd.DataFrame, polymers: pd.DataFrame) -> pd.DataFrame:

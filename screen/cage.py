@@ -35,7 +35,14 @@ from functools import lru_cache
 
 from rdkit import Chem, RDLogger
 
-__all__ = ["closed_cage", "cage_smiles", "euler_characteristic"]
+from screen.options import RIGID_RULES
+
+__all__ = ["closed_cage", "cage_smiles", "euler_characteristic", "cycle_rank", "largest_fused_rank",
+           "RIGID_CYCLE_RANK", "RIGID_RULES", "rigid_embedding", "rigid_rules_agree"]
+
+#: cycle rank from which a molecule (rule ``cycle_rank``) or its largest fused ring system (rule ``fused_system``)
+#: is embedded once from random coordinates instead of by a conformer search (:func:`rigid_embedding`)
+RIGID_CYCLE_RANK = 20
 
 
 def _fused_systems(rings: list[set[int]]) -> list[list[set[int]]]:
@@ -88,3 +95,101 @@ def cage_smiles(smiles: str) -> bool:
     """:func:`closed_cage` of a SMILES (False when it does not parse); cached."""
     RDLogger.DisableLog("rdApp.*")
     return closed_cage(Chem.MolFromSmiles(str(smiles)))
+
+
+def cycle_rank(mol: Chem.Mol) -> int:
+    """Number of independent rings of the molecular graph (bonds − atoms + components).
+
+    Examples
+    --------
+    >>> cycle_rank(Chem.MolFromSmiles("c1ccc2ccccc2c1")), cycle_rank(Chem.MolFromSmiles("c1ccccc1-c1ccccc1"))
+    (2, 2)
+    """
+    return mol.GetNumBonds() - mol.GetNumAtoms() + len(Chem.GetMolFrags(mol))
+
+
+def largest_fused_rank(mol: Chem.Mol) -> int:
+    """Cycle rank of the molecule's largest fused ring system (0 without rings).
+
+    Rings sharing a bond belong to one system; its rank is bonds − atoms + 1 over the
+    system's atoms and the bonds between them (C60: 90 − 60 + 1 = 31; an oligomer of
+    thiophenes joined by single bonds: 1).
+
+    Examples
+    --------
+    >>> largest_fused_rank(Chem.MolFromSmiles("c1ccc2cc3ccccc3cc2c1"))  # anthracene
+    3
+    >>> largest_fused_rank(Chem.MolFromSmiles("c1ccc(-c2ccc(-c3cccs3)s2)s1"))  # terthiophene
+    1
+    """
+    rings = [set(r) for r in Chem.GetSymmSSSR(mol)]
+    best = 0
+    for system in _fused_systems(rings):
+        atoms = set().union(*system)
+        bonds = sum(1 for b in mol.GetBonds() if b.GetBeginAtomIdx() in atoms and b.GetEndAtomIdx() in atoms)
+        best = max(best, bonds - len(atoms) + 1)
+    return best
+
+
+def rigid_embedding(mol: Chem.Mol, rule: str = "fused_system") -> bool:
+    """Whether the structures stage embeds ``mol`` once from random coordinates (no conformer search).
+
+    ETKDG's torsion terms stall for minutes on a fullerene cage and then fail, while plain
+    distance geometry from random coordinates embeds it in under a second; a large fused
+    system has no conformers of its own to search.
+
+    Parameters
+    ----------
+    mol : rdkit.Chem.Mol
+    rule : {"fused_system", "cycle_rank"}
+        ``fused_system``: the largest fused ring system has cycle rank ≥ :data:`RIGID_CYCLE_RANK`
+        (fullerenes and their adducts, large nanographenes); ``cycle_rank``: the whole molecule
+        has (the rule before ``structures.rigid_embedding`` existed: it also caught oligomers of
+        20 or more rings, which then got one rough embedding instead of a conformer search).
+
+    Returns
+    -------
+    bool
+
+    Examples
+    --------
+    >>> c60 = Chem.MolFromSmiles("c12c3c4c5c1c1c6c7c2c2c8c3c3c9c4c4c%10c5c5c1c1c6c6c%11c7c2c2c7c8c3c3c8c9c4c4"
+    ...                          "c9c%10c5c5c1c1c6c6c%11c2c2c7c3c3c8c4c4c9c5c1c1c6c2c3c41")
+    >>> rigid_embedding(c60), rigid_embedding(c60, "cycle_rank")
+    (True, True)
+    >>> oligomer = Chem.MolFromSmiles("C" + "c1cc2sc(cc2s1)" * 11 + "C")  # thienothiophene 11-mer: 22 rings
+    >>> rigid_embedding(oligomer), rigid_embedding(oligomer, "cycle_rank")
+    (False, True)
+    """
+    if rule not in RIGID_RULES:
+        raise ValueError(f"unknown rigid-embedding rule {rule!r}; allowed: {', '.join(RIGID_RULES)}")
+    if rule == "cycle_rank":
+        return cycle_rank(mol) >= RIGID_CYCLE_RANK
+    return cycle_rank(mol) >= RIGID_CYCLE_RANK and largest_fused_rank(mol) >= RIGID_CYCLE_RANK
+
+
+@lru_cache(maxsize=65536)
+def rigid_rules_agree(smiles: str) -> bool:
+    """True when both rules of :func:`rigid_embedding` route this SMILES alike (True when it does not parse).
+
+    The results store leaves ``structures.rigid_embedding`` out of such a molecule's protocol id,
+    so the option's new default recomputes only the molecules it changes.
+
+    Parameters
+    ----------
+    smiles : str
+        The molecule as given to the structures stage (side-chain truncation removes only acyclic
+        atoms, so it routes the molecule as the truncated one).
+
+    Returns
+    -------
+    bool
+
+    Examples
+    --------
+    >>> rigid_rules_agree("c1ccsc1"), rigid_rules_agree("C" + "c1cc2sc(cc2s1)" * 11 + "C")
+    (True, False)
+    """
+    RDLogger.DisableLog("rdApp.*")
+    mol = Chem.MolFromSmiles(str(smiles))
+    return mol is None or rigid_embedding(mol, "fused_system") == rigid_embedding(mol, "cycle_rank")

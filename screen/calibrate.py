@@ -230,8 +230,8 @@ def save_calibration(models: dict[str, dict], computed: pd.DataFrame, oligomers:
     failed = computed[computed["status"] != "ok"]
     write_csv(failed.reindex(columns=["id", "smiles", "status", "error"]), target / "reference_failures.csv")
     write_csv(raw_table(computed), target / "reference_raw.csv")
-    if len(oligomers):
-        write_csv(oligomers, target / "reference_oligomers.csv")
+    if len(oligomers):  # in polymer-key order, as a refit from these files writes them (same bytes either way)
+        write_csv(oligomers.sort_values("polymer_key", kind="mergesort"), target / "reference_oligomers.csv")
     return target, table
 
 

@@ -621,7 +621,7 @@ def cmd_store(args) -> int:
                 raise InputError(f"unknown protocol {', '.join(unknown)}; the store {path} holds: "
                                  f"{', '.join(held) if held else 'no rows'} (`dascreen store list`)")
         if args.action == "list":
-            print(store_text(store, keys=args.keys), end="")
+            print(store_text(store, keys=args.keys, used=_store_ids_in_use(_load(args, {}))), end="")
         elif args.action == "export":
             try:
                 n = export_store(store, args.to, protocol=args.protocol)
@@ -643,6 +643,17 @@ def cmd_store(args) -> int:
     finally:
         store.close()
     return EXIT_OK
+
+
+def _store_ids_in_use(cfg) -> dict[str, str]:
+    """The stage protocol ids a run with these settings reads, each with a note (``dascreen store list``)."""
+    from screen.store import earlier_structures_id, stage_protocol_id
+
+    structures, earlier = stage_protocol_id("structures", cfg.structures), earlier_structures_id(cfg.structures)
+    used = {structures: "yes", stage_protocol_id("electronic", cfg.electronic): "yes"}
+    if earlier != structures:
+        used[earlier] = "yes, molecules that newer structures options leave unchanged"
+    return used
 
 
 def _check_export_target(to: str) -> None:

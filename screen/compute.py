@@ -50,7 +50,7 @@ from screen.electronic import (CARRIED_COLUMNS, electronic_engine, electronic_re
 from screen.engines import Engine, SinglePoint
 from screen.io import Journal, Progress
 from screen.options import ElectronicOptions, StructureOptions
-from screen.structures import (build_structure, ranking_engine, status_row, structure_record,
+from screen.structures import (build_structure, idle_options, ranking_engine, status_row, structure_record,
                                write_structures)
 
 __all__ = ["neutral_guess_allowed", "structure_step", "levels_step", "run_compute"]
@@ -200,7 +200,8 @@ class _Shard:
         both = loaded[0].keys() & loaded[1].keys()
         self.done = tuple({k: rec for k, rec in d.items() if k in both} for d in loaded)
         self.mols: dict[str, Chem.Mol | None] = {}  # geometries of ok structures, for the electronic store key
-        caches = (structures_cache(store, structures), electronic_cache(store, electronic, self.mols, CARRIED_COLUMNS))
+        caches = (structures_cache(store, structures, idle_options),
+                  electronic_cache(store, electronic, self.mols, CARRIED_COLUMNS))
         self.caches = tuple(None if c is None else _Later(c) for c in caches)
 
     def recover(self, smiles: dict) -> None:

@@ -23,7 +23,8 @@ from pathlib import Path
 import yaml
 
 from screen.errors import ConfigError
-from screen.options import ElectronicOptions, ExecutionOptions, StructureOptions, route_structures
+from screen.options import (EARLIER_PROTOCOL_VALUES, ElectronicOptions, ExecutionOptions, StructureOptions,
+                            route_structures)
 from screen.schema import SCHEMA_PATH, defaults, resolve, section_defaults
 
 __all__ = ["SCHEMA_PATH", "ConfigError", "Config", "load_config", "read_config_file", "read_problem", "merge",
@@ -171,10 +172,15 @@ class Config(Mapping):
         Partner, device and ranking settings are deliberately absent: changing
         them must never invalidate the quantum chemistry or the calibration.
         Structures options without effect on the chosen ``geometry`` route are left out
-        (:func:`screen.options.route_structures`), so that route keeps its id.
+        (:func:`screen.options.route_structures`), so that route keeps its id, and so are newer options at the
+        value that reproduces the route from before they existed (:data:`screen.options.EARLIER_PROTOCOL_VALUES`),
+        so a protocol that sets it keeps its earlier id.
         """
         electronic = {k: v for k, v in self._data["electronic"].items() if k != "threads"}
-        return copy.deepcopy({"structures": route_structures(self._data["structures"]), "electronic": electronic})
+        earlier = EARLIER_PROTOCOL_VALUES["structures"]
+        structures = {k: v for k, v in route_structures(self._data["structures"]).items()
+                      if not (k in earlier and v == earlier[k])}
+        return copy.deepcopy({"structures": structures, "electronic": electronic})
 
     @cached_property
     def protocol_id(self) -> str:

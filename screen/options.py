@@ -18,6 +18,9 @@ from screen.schema import section_defaults
 __all__ = ["StructureOptions", "ElectronicOptions", "ExecutionOptions", "EARLIER_ROUTE_VALUES", "IDLE_WHEN",
            "options_from_mapping", "route_structures"]
 
+#: the rules of ``structures.rigid_embedding`` (:func:`screen.cage.rigid_embedding`)
+RIGID_RULES = ("fused_system", "cycle_rank")
+
 _S = section_defaults("structures")
 _E = section_defaults("electronic")
 _X = section_defaults("execution")
@@ -62,8 +65,14 @@ def options_from_mapping(cls, mapping, section: str):
 #: ids, so adding them did not make earlier results look foreign (their defaults have since changed: see
 #: the schema)
 EARLIER_ROUTE_VALUES = {"structures": {"size_caps_min_atoms": 0, "rank_warm_start": False, "rank_scf_accuracy": None,
-                                       "cage_geometry": "ff", "planar_variants": False},
+                                       "cage_geometry": "ff", "planar_variants": False,
+                                       "rigid_embedding": "cycle_rank"},
                         "electronic": {}}
+#: the options among them added since the protocol id (:attr:`screen.config.Config.protocol`) too leaves out the
+#: earlier value (so a protocol that sets it keeps its id: the shipped xTB-geometry calibration), and that a
+#: molecule both of whose values route alike is stored under (:func:`screen.structures.idle_options`); the older
+#: ones stay in the protocol id as they always were, so no installed calibration changes its id
+EARLIER_PROTOCOL_VALUES = {"structures": {"rigid_embedding": "cycle_rank"}}
 
 #: structures options that are idle on some routes: option → test of the ``structures`` section that is true when the
 #: option has no effect there; :func:`route_structures` leaves it out of the protocol then, so that adding an opt-in
@@ -113,6 +122,11 @@ class StructureOptions:
         Route of a closed carbon cage (:func:`screen.cage.closed_cage`): ``xtb`` optimises it with
         the engine whatever ``geometry`` says (MMFF94 gives a fullerene no bond alternation);
         ``ff``: as every other molecule (the route before the option existed).
+    rigid_embedding : {"fused_system", "cycle_rank"}
+        Which molecules are embedded once from random coordinates instead of by a conformer
+        search (:func:`screen.cage.rigid_embedding`): ``fused_system``, a fused ring system of
+        20 or more rings; ``cycle_rank``, any molecule of 20 or more rings (the rule before the
+        option existed, which also caught long oligomers).
     xtb_fmax_ev_a : float
         Force convergence for the xTB optimisation [eV Å⁻¹].
     xtb_max_steps : int
@@ -183,6 +197,7 @@ class StructureOptions:
     ff_max_iters: int = _S["ff_max_iters"]
     geometry: str = _S["geometry"]
     cage_geometry: str = _S["cage_geometry"]
+    rigid_embedding: str = _S["rigid_embedding"]
     xtb_fmax_ev_a: float = _S["xtb_fmax_ev_a"]
     xtb_max_steps: int = _S["xtb_max_steps"]
     truncate_side_chains: bool = _S["truncate_side_chains"]
@@ -203,6 +218,9 @@ class StructureOptions:
             raise ConfigError(f"structures.geometry must be 'ff' or 'xtb', not {self.geometry!r}")
         if self.cage_geometry not in ("ff", "xtb"):
             raise ConfigError(f"structures.cage_geometry must be 'xtb' or 'ff', not {self.cage_geometry!r}")
+        if self.rigid_embedding not in RIGID_RULES:
+            raise ConfigError(f"structures.rigid_embedding must be one of {', '.join(RIGID_RULES)}, "
+                              f"not {self.rigid_embedding!r}")
         if self.forcefield not in ("mmff", "uff"):
             raise ConfigError(f"structures.forcefield must be 'mmff' or 'uff', not {self.forcefield!r}")
         if not self.planar_tolerances_deg or not all(0.0 < float(t) <= 45.0 for t in self.planar_tolerances_deg):

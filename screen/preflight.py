@@ -936,11 +936,16 @@ def calibration_differences(cfg) -> tuple[Path | None, list[CalibrationDifferenc
     import json
 
     from screen.calibrate import fingerprint
+    from screen.options import EARLIER_ROUTE_VALUES
     from screen.schema import defaults
 
     expected = fingerprint(cfg, cfg["calibration"]["reference"])
     here = _fingerprint_settings(expected)
-    fallback = _flat({k: v for k, v in defaults().items() if k in ("structures", "electronic", "polymer")})
+    # a setting missing from a fingerprint is at its default, or, for a structures option that a protocol leaves
+    # out at the value reproducing the route from before it existed, at that value
+    fallback = {k: v for k, v in defaults().items() if k in ("structures", "electronic", "polymer")}
+    fallback = _flat({**fallback, "structures": {**fallback["structures"], **EARLIER_ROUTE_VALUES["structures"]}})
+    default = _flat(defaults())
     models = Path(cfg["calibration"]["models"])
     best: tuple | None = None
     for folder in sorted(models.iterdir()) if models.is_dir() else []:
@@ -961,7 +966,10 @@ def calibration_differences(cfg) -> tuple[Path | None, list[CalibrationDifferenc
                                                found.get("engine_version")))
         if found.get("reference_sha256") != expected["reference_sha256"]:
             diffs.append(CalibrationDifference("calibration.reference", cfg["calibration"]["reference"], None))
-        rank = (found.get("protocol_id") != expected["protocol_id"], len(diffs))
+        # closest: fewest differences in settings the run chose (not at their defaults), then fewest in all: with
+        # `--set structures.geometry=xtb` the xTB-geometry calibration (one default differs), not the default one
+        chosen = sum(1 for d in diffs if d.is_setting and d.here != default.get(d.field))
+        rank = (found.get("protocol_id") != expected["protocol_id"], chosen, len(diffs))
         if best is None or rank < best[0]:
             best = (rank, folder, diffs)
     return (None, []) if best is None else (best[1], best[2])
@@ -1026,13 +1034,20 @@ def _calibration_gap(cfg, out=None) -> tuple[str, Path | None, list[CalibrationD
 
 
 def _calibrate_command(cfg, diffs, config_file=None) -> str:
-    """The ``dascreen calibrate`` command line that fits a calibration of the run's settings."""
+    """The ``dascreen calibrate`` command line that fits a calibration of the run's settings: every setting of the
+    protocol and polymer sections that differs from its default (not only those that differ from the closest
+    calibration: with `--set structures.geometry=xtb` that one is the xTB-geometry calibration)."""
     import shlex
+
+    from screen.schema import defaults
 
     words = ["dascreen calibrate"]
     if config_file:
         words.append(f"--config {shlex.quote(str(config_file))}")
-    words += [f"--set {shlex.quote(f'{d.field}={_show(d.here)}')}" for d in diffs if d.is_setting]
+    default = _flat(defaults())
+    run = _flat({k: cfg[k] for k in ("structures", "electronic", "polymer")})
+    words += [f"--set {shlex.quote(f'{field}={_show(value)}')}" for field, value in run.items()
+              if field != "electronic.threads" and value != default.get(field)]
     if any(d.field == "calibration.reference" for d in diffs):
         words.append(f"--reference {shlex.quote(str(cfg['calibration']['reference']))}")
     words.append(f"--install {shlex.quote(str(_install_folder(cfg)))}")
@@ -1102,8 +1117,13 @@ def check_calibration(cfg, out, config_file=None) -> None:
     settings = [d for d in diffs if d.is_setting]
     ways = []
     if settings:
+        from screen.schema import defaults
+
         back = " ".join(f"--set {shlex.quote(f'{d.field}={_show(d.shipped)}')}" for d in settings)
-        ways.append(f"use the shipped calibration: drop {', '.join(d.field for d in settings)} (or {back})")
+        default = _flat(defaults())
+        given = [d.field for d in settings if d.here != default.get(d.field)]  # a default the user did not set
+        ways.append(f"use the shipped calibration: drop {', '.join(given)} (or {back})" if given
+                    else f"use the shipped calibration: {back}")
     if any(d.field == "engine_version" for d in diffs):
         shipped = next(d.shipped for d in diffs if d.field == "engine_version")
         ways.append(f"use the shipped calibration: install {cfg['electronic']['engine']} {shipped}.x")

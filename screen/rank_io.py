@@ -238,12 +238,18 @@ def computed_geometries(keys, levels_path: Path, meta_in: dict | None = None, co
             blocks.update(_sdf_records(sdf, wanted - set(blocks)))
     proto = ((meta_in or {}).get("protocol") or {}).get("structures")
     if wanted - set(blocks) and isinstance(proto, dict):
-        from screen.store import open_store, stage_protocol_id
+        from screen.store import earlier_structures_id, open_store, stage_protocol_id
+        from screen.structures import idle_options
 
+        pid, earlier = stage_protocol_id("structures", proto), earlier_structures_id(proto)
         try:
             store = open_store(Config.of(config))
             for key in sorted(wanted - set(blocks)) if store else []:
-                rec = store.get("structures", key, stage_protocol_id("structures", proto))
+                rec = store.get("structures", key, pid)
+                if rec is None and earlier != pid:  # stored under the earlier values of options idle for it
+                    rec = store.get("structures", key, earlier)
+                    computed = (rec or {}).get("smiles_computed")  # a record without it cannot be checked: unused
+                    rec = rec if computed and idle_options((key, str(computed))) else None
                 if rec and rec.get("molblock"):
                     blocks[key] = rec["molblock"]
         except Exception as exc:  # noqa: BLE001 - a store problem costs the 3-D geometry, not the ranking

@@ -51,11 +51,11 @@ from dataclasses import asdict, is_dataclass
 from pathlib import Path
 
 from screen.errors import InputError
-from screen.options import EARLIER_ROUTE_VALUES, route_structures
+from screen.options import EARLIER_PROTOCOL_VALUES, EARLIER_ROUTE_VALUES, route_structures
 from screen.provenance import package_version
 
 __all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "stage_protocol", "stage_protocol_id",
-           "geometry_hash", "store_location", "open_store", "resolve_store", "store_text", "export_store",
+           "geometry_hash", "earlier_structures_id", "store_location", "open_store", "resolve_store", "store_text", "export_store",
            "structures_cache", "electronic_cache", "store_row"]
 
 #: environment variable naming the store file (overrides ``store.path``; empty disables the store)
@@ -116,6 +116,19 @@ def stage_protocol(stage: str, options) -> dict:
         if BASE_LIBRARY_VERSIONS.get(lib) != version:
             out[f"{lib}_version"] = version
     return out
+
+
+def earlier_structures_id(options) -> str:
+    """The structures stage id of ``options`` with the newer options at their earlier values
+    (:data:`screen.options.EARLIER_PROTOCOL_VALUES`): where molecules those options leave unchanged are stored.
+
+    Examples
+    --------
+    >>> earlier_structures_id({"rigid_embedding": "fused_system"}) == stage_protocol_id("structures", {})
+    True
+    """
+    data = asdict(options) if is_dataclass(options) else dict(options)
+    return stage_protocol_id("structures", {**data, **EARLIER_PROTOCOL_VALUES["structures"]})
 
 
 def stage_protocol_id(stage: str, options) -> str:
@@ -421,6 +434,10 @@ class StoreCache:
         merged into a stored record on the way out).
     valid : callable, optional
         ``valid(record)`` → False for a stored record that must not be used (e.g. an unreadable molblock).
+    idle : callable, optional
+        ``idle(item)`` → option values that give this item the same numbers as ``options`` (e.g. the
+        earlier value of an option that changes nothing for this molecule); its protocol id is that of
+        ``options`` with them, so a new default recomputes only the molecules it changes.
 
     Notes
     -----
@@ -429,9 +446,11 @@ class StoreCache:
     """
 
     def __init__(self, store: ResultStore, stage: str, options, key: Callable, geometry: Callable | None = None,
-                 base: Callable | None = None, valid: Callable | None = None):
+                 base: Callable | None = None, valid: Callable | None = None, idle: Callable | None = None):
         self.store, self.stage, self.options = store, stage, stage_protocol(stage, options)
         self.protocol_id = stage_protocol_id(stage, self.options)
+        self._data = asdict(options) if is_dataclass(options) else dict(options)
+        self._idle, self._protocols = idle or (lambda item: {}), {}
         self._key, self._geometry = key, geometry or (lambda item: "")
         self._base, self._valid = base or (lambda item: {}), valid or (lambda rec: True)
         self.hits = self.misses = 0
@@ -443,7 +462,7 @@ class StoreCache:
         if geometry is None:  # nothing to look up (e.g. the structure failed)
             return None
         try:
-            rec = self.store.get(self.stage, self._key(item), self.protocol_id, geometry)
+            rec = self.store.get(self.stage, self._key(item), self.protocol_of(item)[1], geometry)
         except (sqlite3.Error, InputError, OSError) as exc:
             self._warn(exc)
             rec = None
@@ -452,6 +471,17 @@ class StoreCache:
             return None
         self.hits += 1
         return {**rec, **self._base(item), "key": self._key(item)}
+
+    def protocol_of(self, item) -> tuple[dict, str]:
+        """The stage protocol of ``item`` and its id (:attr:`options` unless ``idle(item)`` names values)."""
+        same = self._idle(item)
+        if not same:
+            return self.options, self.protocol_id
+        marker = tuple(sorted(same.items()))
+        if marker not in self._protocols:
+            options = stage_protocol(self.stage, {**self._data, **same})
+            self._protocols[marker] = (options, stage_protocol_id(self.stage, options))
+        return self._protocols[marker]
 
     def remember(self, item, record: Mapping) -> None:
         """Store a freshly computed ``ok`` record (without the item's own fields)."""
@@ -464,7 +494,7 @@ class StoreCache:
         if record.get("status") != "ok" or geometry is None:
             return None
         own = self._base(item)
-        return store_row(self.stage, self._key(item), self.options,
+        return store_row(self.stage, self._key(item), self.protocol_of(item)[0],
                          {k: v for k, v in record.items() if k not in own}, geometry)
 
     def keep(self, item, record: Mapping) -> None:
@@ -477,7 +507,7 @@ class StoreCache:
         if row is None:
             return
         try:
-            if self.store.get(self.stage, self._key(item), self.protocol_id, self._geometry(item)) is None:
+            if self.store.get(self.stage, self._key(item), self.protocol_of(item)[1], self._geometry(item)) is None:
                 self.store.put_rows([row])
         except (sqlite3.Error, InputError, OSError) as exc:
             self._warn(exc)
@@ -506,15 +536,16 @@ def _molblock_ok(record: Mapping) -> bool:
     return mol is not None and mol.GetNumConformers() == 1
 
 
-def structures_cache(store, options) -> StoreCache | None:
+def structures_cache(store, options, idle: Callable | None = None) -> StoreCache | None:
     """The cache of :func:`screen.structures.run_structures` (items are ``(key, smiles)``); None without a store.
 
-    A stored geometry is used only when its molblock reads back as one conformer.
+    A stored geometry is used only when its molblock reads back as one conformer. ``idle``: as in
+    :class:`StoreCache` (:func:`screen.structures.idle_options`).
     """
     store = resolve_store(store)
     if store is None:
         return None
-    return StoreCache(store, "structures", options, key=lambda item: item[0], valid=_molblock_ok)
+    return StoreCache(store, "structures", options, key=lambda item: item[0], valid=_molblock_ok, idle=idle)
 
 
 def electronic_cache(store, options, mols: Mapping, carried) -> StoreCache | None:
@@ -600,8 +631,9 @@ def resolve_store(store) -> ResultStore | None:
 
 # --------------------------------------------------------------------------- dascreen store list | export
 
-def store_text(store: ResultStore, keys: bool = False) -> str:
-    """``dascreen store list``: rows per stage and protocol (and every row with ``keys``)."""
+def store_text(store: ResultStore, keys: bool = False, used: Mapping[str, str] | None = None) -> str:
+    """``dascreen store list``: rows per stage and protocol (and every row with ``keys``); ``used``: a note per
+    protocol id that the current settings read (the others are what a prune may remove)."""
     import datetime
 
     def when(t):
@@ -612,10 +644,12 @@ def store_text(store: ResultStore, keys: bool = False) -> str:
     summary = store.summary()
     if not summary:
         return lines[0] + "\n  (empty)\n"
-    lines.append(f"  {'stage':11s} {'protocol id':28s} {'rows':>7s}  {'first':16s}  {'last':16s}")
+    used = used or {}
+    lines.append(f"  {'stage':11s} {'protocol id':28s} {'rows':>7s}  {'first':16s}  {'last':16s}"
+                 + ("  read by these settings" if used else ""))
     for row in summary:
-        lines.append(f"  {row['stage']:11s} {row['protocol_id']:28s} {row['entries']:7d}  {when(row['first']):16s}  "
-                     f"{when(row['last']):16s}")
+        lines.append((f"  {row['stage']:11s} {row['protocol_id']:28s} {row['entries']:7d}  {when(row['first']):16s}  "
+                      f"{when(row['last']):16s}  {used.get(row['protocol_id'], '')}").rstrip())
     if keys:
         lines.append("")
         for row in store.rows():

@@ -9,7 +9,9 @@ Route (every step seeded, so the same input gives the same geometry):
    levels of the conjugated core but multiply the conformer space);
 2. RDKit ETKDGv3 embedding of several conformers; the count grows with the
    number of rotatable bonds and is capped by size (:func:`conformer_count`), so
-   100–250-atom oligomers stay affordable;
+   100–250-atom oligomers stay affordable; a molecule with a fused ring system of 20 or
+   more rings (a fullerene cage, :func:`screen.cage.rigid_embedding`) is instead
+   embedded once from random coordinates, where ETKDG stalls (``rigid_embedding``);
 3. MMFF94 optimisation of every conformer (UFF when MMFF lacks parameters,
    e.g. for B; when neither has parameters, e.g. aromatic Se, the chosen
    conformer is optimised with the xTB engine instead, step 6);
@@ -71,13 +73,13 @@ from rdkit import Chem, RDLogger
 from rdkit.Chem import AllChem, rdMolDescriptors, rdMolTransforms
 
 from screen.batch import molecule_caller, run_journalled
-from screen.cage import closed_cage
+from screen.cage import closed_cage, rigid_embedding, rigid_rules_agree
 from screen.columns import CONFORMER_SPREAD_COLUMNS
 from screen.conformer_spread import RANKING_KEY, ranking_of, spread_columns
 from screen.constants import BOHR_ANGSTROM
 from screen.engines import SCF_LADDER, Engine, EngineError, make_engine
 from screen.io import Journal, Progress, atomic_path, write_csv
-from screen.options import StructureOptions
+from screen.options import EARLIER_PROTOCOL_VALUES, StructureOptions
 from screen.sanity import BrokenStructureError, geometry_problems
 
 __all__ = [
@@ -283,20 +285,11 @@ def truncate_side_chains(mol: Chem.Mol, min_carbons: int = 6, to_methyl: bool = 
     return out, cuts
 
 
-#: cycle rank (independent rings) from which a molecule is embedded as a cage
-CAGE_CYCLE_RANK = 20
-
-
-def _cycle_rank(mol: Chem.Mol) -> int:
-    return mol.GetNumBonds() - mol.GetNumAtoms() + len(Chem.GetMolFrags(mol))
-
-
 def _embed(mol_h: Chem.Mol, n_conf: int, options: StructureOptions) -> tuple[list[int], str]:
     """Embed conformers; returns their ids and the embedding route used."""
-    heavy = Chem.RemoveHs(mol_h)
-    if _cycle_rank(heavy) >= CAGE_CYCLE_RANK:
-        # fullerenes and other cages: ETKDG's torsion terms stall for minutes and fail; plain
-        # distance geometry from random coordinates embeds them in well under a second
+    if rigid_embedding(Chem.RemoveHs(mol_h), options.rigid_embedding):
+        # fullerenes and other large fused systems: ETKDG's torsion terms stall for minutes on a cage and
+        # fail; plain distance geometry from random coordinates embeds them in well under a second
         params = AllChem.ETDG()
         params.randomSeed = int(options.seed)
         params.useRandomCoords = True
@@ -725,6 +718,24 @@ def _plain(exc: Exception) -> str:
     return text
 
 
+def idle_options(item) -> dict:
+    """Structures options that change nothing for a ``(key, smiles)`` item, at their earlier values.
+
+    The results store gives the item the protocol id of those values
+    (:class:`screen.store.StoreCache`), so a new default of such an option recomputes
+    only the molecules it changes: ``rigid_embedding`` for every molecule that both
+    rules route alike (:func:`screen.cage.rigid_rules_agree`).
+
+    Examples
+    --------
+    >>> idle_options(("m1", "c1ccsc1"))
+    {'rigid_embedding': 'cycle_rank'}
+    >>> idle_options(("m2", "C" + "c1cc2sc(cc2s1)" * 11 + "C"))
+    {}
+    """
+    return dict(EARLIER_PROTOCOL_VALUES["structures"]) if rigid_rules_agree(item[1]) else {}
+
+
 def structure_record(key: str, make: Callable[[], tuple[str, dict]]) -> dict:
     """The journal record of one molecule's structure: ``make()`` → (molblock, info), or the failure.
 
@@ -855,7 +866,7 @@ def run_structures(shard_csv, out_sdf, out_csv, options: StructureOptions = Stru
             return structure_record(key, lambda: call(smiles, asdict(options)))
 
         done = run_journalled(zip(shard["key"], shard["smiles"]), lambda item: item[0], compute, journal, progress,
-                              structures_cache(store, options))
+                              structures_cache(store, options, idle_options))
     table = write_structures(shard["key"], done, out_sdf, out_csv)
     journal.remove()
     return table

@@ -77,3 +77,48 @@ def test_a_molecule_without_a_cage_keeps_the_force_field_route():
     b, info_b = build_structure("c1ccc2cc3ccccc3cc2c1", StructureOptions(cage_geometry="ff"))
     assert info_a["geometry"] == info_b["geometry"] == "ff"
     assert np.array_equal(a.GetConformer().GetPositions(), b.GetConformer().GetPositions())
+
+
+# --------------------------------------------------------------------------- which molecules are embedded once
+
+#: a thieno[3,2-b]thiophene 11-mer: 22 rings, fused systems of two (cycle ranks by construction)
+OLIGOMER = "C" + "c1cc2sc(cc2s1)" * 11 + "C"
+
+
+def test_only_cages_are_embedded_once(reference_rows):
+    from screen.cage import RIGID_CYCLE_RANK, cycle_rank, largest_fused_rank, rigid_embedding, rigid_rules_agree
+
+    rigid = {row["name"] for row in reference_rows if rigid_embedding(Chem.MolFromSmiles(row["smiles"]))}
+    assert rigid == FULLERENES  # the default rule: only the cages (fused rank 31 or more) are embedded once
+    # the earlier rule also embedded the 21-ring heptafluorene once (and long oligomers of repeat units)
+    assert {row["name"] for row in reference_rows if not rigid_rules_agree(row["smiles"])} == \
+        {"heptafluorene (9,9-dimethyl)"}
+    mol = Chem.MolFromSmiles(OLIGOMER)
+    assert (cycle_rank(mol), largest_fused_rank(mol)) == (22, 2) and RIGID_CYCLE_RANK == 20
+    assert not rigid_embedding(mol) and rigid_embedding(mol, "cycle_rank") and not rigid_rules_agree(OLIGOMER)
+
+
+def test_a_long_oligomer_gets_a_conformer_search_and_the_earlier_rule_one_random_embedding():
+    from screen.structures import _embed
+
+    mol_h = Chem.AddHs(Chem.MolFromSmiles(OLIGOMER))
+    ids, route = _embed(mol_h, 3, StructureOptions())
+    assert route == "ETKDGv3" and len(ids) >= 2
+    ids, route = _embed(mol_h, 3, StructureOptions(rigid_embedding="cycle_rank"))
+    assert route == "ETDG-random (cage)" and len(ids) == 1
+
+
+def test_the_store_recomputes_only_the_molecules_the_new_rule_changes(tmp_path):
+    from screen.store import ResultStore, stage_protocol_id, structures_cache
+    from screen.structures import idle_options
+
+    cache = structures_cache(ResultStore(tmp_path / "s.sqlite"), StructureOptions(), idle_options)
+    earlier = stage_protocol_id("structures", StructureOptions(rigid_embedding="cycle_rank"))
+    assert stage_protocol_id("structures", StructureOptions()) != earlier
+    assert cache.protocol_of(("m1", "c1ccsc1"))[1] == earlier  # thiophene: routed alike, keeps its stored rows
+    assert cache.protocol_of(("m2", OLIGOMER))[1] == cache.protocol_id != earlier  # routed otherwise: recomputed
+    # a store filled under the earlier rule: the molecule it leaves alone is read, the oligomer it changes is not
+    old = structures_cache(cache.store, StructureOptions(rigid_embedding="cycle_rank"), idle_options)
+    record = {"status": "ok", "molblock": Chem.MolToMolBlock(Chem.AddHs(Chem.MolFromSmiles("C")))}
+    old.write([old.row(("m1", "c1ccsc1"), record), old.row(("m2", OLIGOMER), record)])
+    assert cache.lookup(("m1", "c1ccsc1")) is not None and cache.lookup(("m2", OLIGOMER)) is None

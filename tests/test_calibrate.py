@@ -17,6 +17,7 @@ from screen.calibration.optical import RED_SHIFT_RANGE_EV
 from screen.calibration.validation import raw_at_n
 from screen.config import Config
 from screen.errors import CalculationError, ConfigError, exit_code
+from screen.options import EARLIER_ROUTE_VALUES
 
 # Published gas-phase values (the rows of models/reference/*.csv, where each has its source):
 # IP benzene 9.24 (ZEKE, Chewter et al., J. Chem. Phys. 86 (1987) 4737), naphthalene 8.14 (NIST WebBook),
@@ -49,9 +50,10 @@ POLYMER_ONSET_EV = {"[*]c1ccc([*])s1": 1.95, "[*]/C=C/c1ccc([*])cc1": 2.2,
 # the optical-gap model (0.3 eV) for polythiophene. Wider where the shipped protocol is known to miss: the PPV
 # oligomers' orbital gaps are not monotonic in n (2.63, 2.77, 2.66 eV for n = 2–4: twisted force-field
 # geometries), so the fit falls back to the tetramer and lands 0.55 eV above the long-chain onset (0.3 eV above
-# ordinary films); polyfluorene lands 0.4 eV low (its conjugation saturates early, which an n ≤ 4 series with
-# a steadily falling fundamental gap does not see).
-POLYMER_TOL_EV = {"[*]c1ccc([*])s1": 0.3, "[*]/C=C/c1ccc([*])cc1": 0.6, "[*]c1ccc2c(c1)C(C)(C)c1cc([*])ccc1-2": 0.5}
+# ordinary films; 0.60 eV since the structures.rigid_embedding recalibration, which left PPV's oligomers as they were
+# but raised the optical-gap model's orbital-gap slope 0.420 -> 0.444, hence 0.65); polyfluorene lands 0.4 eV low
+# (its conjugation saturates early, which an n ≤ 4 series with a steadily falling fundamental gap does not see).
+POLYMER_TOL_EV = {"[*]c1ccc([*])s1": 0.3, "[*]/C=C/c1ccc([*])cc1": 0.65, "[*]c1ccc2c(c1)C(C)(C)c1cc([*])ccc1-2": 0.5}
 
 # Leave-one-out MAE ceilings [eV], set a little above the statistics of the shipped default-protocol models
 # (see README accuracy table) so that a regression in the protocol or the data fails the suite. IP and film
@@ -180,12 +182,14 @@ def test_every_shipped_protocol_matches_the_reference_data(cfg, repo_dir):
     assert len(folders) >= 2 and repo_dir / "models" / cfg.protocol_id in folders
     for folder in folders:
         fp = json.loads((folder / "ip.json").read_text())["fingerprint"]
-        protocol = dict(cfg, structures=fp["protocol"]["structures"], electronic=fp["protocol"]["electronic"],
-                        polymer=fp["polymer"])
+        # a protocol leaves out a structures option at the value of the route from before it existed
+        structures = {**EARLIER_ROUTE_VALUES["structures"], **fp["protocol"]["structures"]}
+        protocol = dict(cfg, structures=structures, electronic=fp["protocol"]["electronic"], polymer=fp["polymer"])
         assert Config.of(protocol).protocol_id == folder.name
         assert find_models(protocol) == folder, (
             f"{folder.name} no longer matches the reference data or engine: refit it with `dascreen calibrate "
-            f"--from-raw models/{folder.name} --out /tmp/x --install models` and its dye models")
+            f"--from-raw models/{folder.name} --out /tmp/x --install models --replace-installed` and its dye models "
+            "(DEVELOPERS.md, 'Shipped calibrations and refits')")
         assert (repo_dir / "models" / "dyecell" / folder.name / "e_ox.json").is_file()
 
 

@@ -579,7 +579,9 @@ def test_rank_refuses_a_setting_it_cannot_apply(levels, tmp_path, capsys, item, 
 def test_rank_refuses_a_config_file_that_computes_levels_otherwise(levels, tmp_path, capsys, text, said):
     # `--set structures.geometry=xtb` was refused, but the same setting in a --config file exited 0 with the
     # levels of the other protocol; the levels' sidecar records how they were computed
-    Path(f"{levels}.meta.json").write_text('{"protocol_id": "tblite-gfn2-ff-cf90d5d7", "scale": "film"}',
+    from screen.config import Config
+
+    Path(f"{levels}.meta.json").write_text(json.dumps({"protocol_id": Config().protocol_id, "scale": "film"}),
                                            encoding="utf-8")
     cfg = tmp_path / "mine.yaml"
     cfg.write_text("device:\n  eqe: 0.7\n" + text, encoding="utf-8")

@@ -90,7 +90,7 @@ def test_a_limit_just_outside_the_interval_is_clipped_not_dropped():
 
 # the GFN2-xTB orbital gap [eV] of MEH-PPV oligomers n = 1-4 (repeat unit [*]C=Cc1cc(OC)c([*])cc1OC, 3 coupled double
 # bonds per unit), the project's own computed values: models/tblite-gfn2-xtb-3ce6def9/reference_oligomers.csv
-# (xTB-optimised geometries; 3.23, 2.53, 2.09, 1.71 eV) and models/tblite-gfn2-ff-cf90d5d7/reference_oligomers.csv
+# (xTB-optimised geometries; 3.23, 2.53, 2.09, 1.71 eV) and models/tblite-gfn2-ff-eaf1c554/reference_oligomers.csv
 # (force-field geometries), polymer ref-112
 MEH_PPV_GAP_XTB_GEOMETRY = [3.2259460071820265, 2.5343860462759453, 2.0862453670761743, 1.705863600718895]
 MEH_PPV_GAP_FF_GEOMETRY = [3.185805647241676, 2.5890532278587286, 2.4586978359383047, 2.450983825836332]

@@ -215,6 +215,17 @@ def test_polymer_settings_without_calibration_are_refused_naming_the_difference(
              "--set", "calibration.refit=never", message="calibration.refit is 'never'")
 
 
+def test_the_xtb_geometry_protocol_is_found_with_its_earlier_embedding_rule(capsys, tmp_path, good, no_workflow):
+    """The xTB-geometry calibration was computed before structures.rigid_embedding existed (rule cycle_rank, left
+    out of its fingerprint): with the new default the run is refused with the one setting that finds it."""
+    err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--set", "structures.geometry=xtb",
+                   message="structures.rigid_embedding: fused_system here, cycle_rank in the shipped calibration")
+    assert "use the shipped calibration: --set structures.rigid_embedding=cycle_rank\n" in err  # not "drop ..."
+    assert "tblite-gfn2-xtb-3ce6def9" in err and not (tmp_path / "o").exists()
+    # calibrating fits the run's own settings, not only those that differ from the closest calibration
+    assert "dascreen calibrate --set structures.geometry=xtb --install" in err
+
+
 def test_opting_in_calibrates_within_the_run_and_says_what_it_costs(capsys, tmp_path, good, monkeypatch):
     import screen.cli
 

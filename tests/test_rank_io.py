@@ -310,3 +310,22 @@ def test_a_broken_embedding_is_never_exported_as_3d(monkeypatch):
     assert rank_io._embedded("c1ccsc1") is not None
     monkeypatch.setattr(sanity, "geometry_problems", lambda mol, *a, **k: ["bond C1-C2 is 2.48 Å (limit 1.87 Å)"])
     assert rank_io._embedded("c1ccsc1") is None  # the shortlist then carries a 2-D depiction, said so in its record
+
+
+def test_stored_geometries_of_molecules_the_new_embedding_rule_leaves_alone_are_found(tmp_path, monkeypatch):
+    """A molecule both embedding rules route alike is stored under the earlier rule's structures id (so a store
+    filled before ``structures.rigid_embedding`` existed stays valid); an oligomer the new rule changes is not."""
+    from screen.options import StructureOptions
+    from screen.store import STORE_ENV, ResultStore, stage_protocol, store_row
+
+    store = ResultStore(tmp_path / "s.sqlite")
+    monkeypatch.setenv(STORE_ENV, str(store.path))
+    oligomer = "C" + "c1cc2sc(cc2s1)" * 11 + "C"  # 22 rings, none fused beyond two: routed otherwise
+    earlier = StructureOptions(rigid_embedding="cycle_rank")
+    rows = [store_row("structures", key, earlier, {"status": "ok", "smiles_computed": smi,
+                                                   "molblock": _record(key, 1.5)})
+            for key, smi in (("mthiophene", "c1ccsc1"), ("moligomer", oligomer))]
+    store.put_rows(rows)
+    meta = {"protocol": {"structures": stage_protocol("structures", StructureOptions())}}
+    found = computed_geometries(["mthiophene", "moligomer"], tmp_path / "levels.csv", meta)
+    assert sorted(found) == ["mthiophene"]

@@ -227,6 +227,14 @@ def test_store_command_lists_exports_and_prunes(tmp_path, capsys):
     assert main(["store", "list", "--store", str(store.path)]) == 0
     listed = capsys.readouterr().out
     assert "structures-" in listed and "electronic-" in listed
+    # the rows these settings read are marked: the small molecules here are stored under the structures id of the
+    # earlier embedding rule (structures.rigid_embedding changes nothing for them), which a prune must spare
+    from screen.options import StructureOptions
+
+    earlier = stage_protocol_id("structures", StructureOptions(rigid_embedding="cycle_rank"))
+    line = next(x for x in listed.splitlines() if earlier in x)
+    assert line.endswith("yes, molecules that newer structures options leave unchanged")
+    assert next(x for x in listed.splitlines() if "electronic-" in x).endswith("yes")
     assert main(["store", "export", "--store", str(store.path), "--to", str(tmp_path / "x.sdf")]) == 0
     mols = list(Chem.SDMolSupplier(str(tmp_path / "x.sdf"), removeHs=False))
     assert len(mols) == 2 and all(any(p.endswith(":xtb_ip_ev") for p in m.GetPropNames()) for m in mols)

@@ -159,14 +159,18 @@ def test_big_molecule_gets_one_conformer_without_ranking_single_point():
     ("structures", "rank_atom_budget", 720), ("structures", "size_caps_min_atoms", 0),
     ("structures", "rank_warm_start", False), ("structures", "rank_scf_accuracy", None),
     ("electronic", "accuracy", 1.0), ("electronic", "film_epsilon", None),
-    ("electronic", "film_epsilon", 4.0),
+    ("electronic", "film_epsilon", 4.0), ("structures", "rigid_embedding", "cycle_rank"),
 ])
 def test_every_number_changing_setting_changes_the_protocol_id(section, key, value):
     from screen.config import Config, protocol
+    from screen.options import EARLIER_PROTOCOL_VALUES
 
     base, changed = Config.of({}), Config.of({section: {key: value}})
     assert changed.protocol_id != base.protocol_id
-    assert protocol(changed)[section][key] == value
+    if EARLIER_PROTOCOL_VALUES.get(section, {}).get(key, object()) == value:  # the route before the key existed
+        assert key not in protocol(changed)[section] and key in protocol(base)[section]
+    else:
+        assert protocol(changed)[section][key] == value
 
 
 def test_a_number_written_with_or_without_decimals_gives_one_protocol_id():
@@ -200,7 +204,8 @@ def test_pruning_defaults_and_the_earlier_route():
     from screen.schema import section_defaults
 
     # the store leaves exactly these values out of its ids (the three ranking keys and the cage route)
-    assert EARLIER_ROUTE_VALUES["structures"] == {**EARLIER, "cage_geometry": "ff", "planar_variants": False}
+    assert EARLIER_ROUTE_VALUES["structures"] == {**EARLIER, "cage_geometry": "ff", "planar_variants": False,
+                                                  "rigid_embedding": "cycle_rank"}
     defaults = {k: section_defaults("structures")[k] for k in EARLIER}
     assert defaults == {"size_caps_min_atoms": 150, "rank_warm_start": True, "rank_scf_accuracy": 10}
     assert {k: Config.of({}).protocol["structures"][k] for k in EARLIER} == defaults
@@ -208,6 +213,18 @@ def test_pruning_defaults_and_the_earlier_route():
     assert section_defaults("electronic")["accuracy"] == 10
     earlier = Config.of({"structures": EARLIER, "electronic": {"accuracy": 1.0}})
     assert earlier.protocol_id != Config.of({}).protocol_id
+
+
+def test_protocol_ids_of_settings_from_before_the_embedding_rule_are_kept():
+    from screen.config import Config
+
+    # ids of the previous release (before structures.rigid_embedding): the xTB-geometry protocol, the default
+    # and the default with the force-field cage route; each is reached again with the earlier embedding rule
+    earlier = {"rigid_embedding": "cycle_rank"}
+    assert Config.of({"structures": {"geometry": "xtb", **earlier}}).protocol_id == "tblite-gfn2-xtb-3ce6def9"
+    assert Config.of({"structures": earlier}).protocol_id == "tblite-gfn2-ff-cf90d5d7"
+    assert Config.of({"structures": {"cage_geometry": "ff", **earlier}}).protocol_id == "tblite-gfn2-ff-80414bed"
+    assert Config.of({}).protocol_id not in {"tblite-gfn2-ff-cf90d5d7", "tblite-gfn2-ff-80414bed"}
 
 
 def test_loose_ranking_accuracy_is_bounded():
