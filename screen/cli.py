@@ -73,6 +73,11 @@ def cmd_run(args) -> int:
     notice = calibration_notice(cfg, out)
     if notice:
         print(notice, file=sys.stderr)
+    earlier = _protocol_of_folder(out)
+    if earlier and earlier != cfg.protocol_id:  # an upgrade audit: a new default protocol replaced a run silently
+        print(f"dascreen: note: {out} holds a run of protocol {earlier}; these settings give {cfg.protocol_id}, so "
+              "its levels and rankings are computed again (the results store serves every molecule both protocols "
+              "compute alike)", file=sys.stderr)
     if not args.dry_run:
         from screen.launch import forget_other_input
 
@@ -93,6 +98,16 @@ def cmd_run(args) -> int:
         print("dascreen: --strict: some rows were rejected or failed", file=sys.stderr)
         return EXIT_STRICT
     return EXIT_OK
+
+
+def _protocol_of_folder(out: Path) -> str | None:
+    """The protocol id of the run recorded in ``out/config.yaml`` (None without a readable one)."""
+    from screen.config import Config
+
+    try:
+        return Config.load(out / "config.yaml").protocol_id if (out / "config.yaml").is_file() else None
+    except DascreenError:
+        return None
 
 
 def cmd_calibrate(args) -> int:
@@ -634,6 +649,12 @@ def cmd_store(args) -> int:
                 store.close()
                 store = ResultStore(path)
             days = args.older_than
+            read = _store_ids_in_use(_load(args, {}))
+            for pid in dict.fromkeys(args.protocol or ()):
+                if pid in read:  # an upgrade audit: the earlier rule's structures id was pruned without a word
+                    which = read[pid].removeprefix("yes").removeprefix(", ")
+                    print(f"dascreen: note: {pid} is read by the current settings{' ' + which if which else ''}; "
+                          "its molecules will be computed again when a run needs them", file=sys.stderr)
             gone = store.prune(protocols=args.protocol or (), dry_run=args.dry_run,
                                older_than_s=None if days is None else days * 86400.0)
             verb = "would delete" if args.dry_run else "deleted"
@@ -652,7 +673,7 @@ def _store_ids_in_use(cfg) -> dict[str, str]:
     structures, earlier = stage_protocol_id("structures", cfg.structures), earlier_structures_id(cfg.structures)
     used = {structures: "yes", stage_protocol_id("electronic", cfg.electronic): "yes"}
     if earlier != structures:
-        used[earlier] = "yes, molecules that newer structures options leave unchanged"
+        used[earlier] = "yes, for molecules that newer structures options leave unchanged"
     return used
 
 

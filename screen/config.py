@@ -263,6 +263,32 @@ def read_config_file(path: str | Path | None) -> dict:
         raise ConfigError(f"{path}: cannot read the config file: {read_problem(exc)}") from None
     if not isinstance(cfg, dict):
         raise ConfigError(f"{path}: the config file must hold a mapping of fields, not {type(cfg).__name__}")
+    return _recorded_before_newer_options(cfg)
+
+
+def _recorded_before_newer_options(cfg: dict) -> dict:
+    """A config written out in full by an earlier dascreen (a run folder's ``config.yaml``) keeps its route.
+
+    Its ``structures`` section holds every key of today's schema but the newer options of
+    :data:`screen.options.EARLIER_PROTOCOL_VALUES`, which did not exist when it was written: those are
+    filled with the value that reproduces that route, so the run keeps its protocol id (a re-ranking of
+    an earlier run folder in place was refused as "of another protocol"). A hand-written file that
+    leaves keys out is not a full record and takes the defaults.
+
+    Examples
+    --------
+    >>> full = {k: v for k, v in section_defaults("structures").items() if k != "rigid_embedding"}
+    >>> _recorded_before_newer_options({"structures": full})["structures"]["rigid_embedding"]
+    'cycle_rank'
+    >>> _recorded_before_newer_options({"structures": {"geometry": "xtb"}})
+    {'structures': {'geometry': 'xtb'}}
+    """
+    structures = cfg.get("structures")
+    newer = EARLIER_PROTOCOL_VALUES["structures"]
+    if not isinstance(structures, dict) or any(k in structures for k in newer):
+        return cfg
+    if set(section_defaults("structures")) - set(newer) <= set(structures):
+        cfg["structures"] = {**structures, **newer}
     return cfg
 
 

@@ -906,7 +906,10 @@ class CalibrationDifference:
         if self.field == "calibration.reference":
             return (f"calibration.reference: the reference data in {self.here} are not the ones the shipped "
                     "calibration was fitted on")
-        return f"{self.field}: {_show(self.here)} here, {_show(self.shipped)} in the shipped calibration"
+        from screen.schema import defaults
+
+        default = " (the default)" if _flat(defaults()).get(self.field, object()) == self.here else ""
+        return f"{self.field}: {_show(self.here)}{default} here, {_show(self.shipped)} in the shipped calibration"
 
 
 def calibration_differences(cfg) -> tuple[Path | None, list[CalibrationDifference]]:
@@ -1122,8 +1125,10 @@ def check_calibration(cfg, out, config_file=None) -> None:
         back = " ".join(f"--set {shlex.quote(f'{d.field}={_show(d.shipped)}')}" for d in settings)
         default = _flat(defaults())
         given = [d.field for d in settings if d.here != default.get(d.field)]  # a default the user did not set
-        ways.append(f"use the shipped calibration: drop {', '.join(given)} (or {back})" if given
-                    else f"use the shipped calibration: {back}")
+        cost = " (xTB-optimised geometries: several times the cost per molecule)" if any(
+            d.field == "structures.geometry" and d.shipped == "xtb" for d in settings) else ""
+        ways.append(f"use the shipped calibration: drop {', '.join(given)} (or {back}){cost}" if given
+                    else f"use the shipped calibration: add {back}{cost}")
     if any(d.field == "engine_version" for d in diffs):
         shipped = next(d.shipped for d in diffs if d.field == "engine_version")
         ways.append(f"use the shipped calibration: install {cfg['electronic']['engine']} {shipped}.x")

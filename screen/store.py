@@ -55,8 +55,8 @@ from screen.options import EARLIER_PROTOCOL_VALUES, EARLIER_ROUTE_VALUES, route_
 from screen.provenance import package_version
 
 __all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "stage_protocol", "stage_protocol_id",
-           "geometry_hash", "earlier_structures_id", "store_location", "open_store", "resolve_store", "store_text", "export_store",
-           "structures_cache", "electronic_cache", "store_row"]
+           "geometry_hash", "earlier_structures_id", "store_location", "open_store", "resolve_store", "store_text",
+           "export_store", "structures_cache", "electronic_cache", "store_row"]
 
 #: environment variable naming the store file (overrides ``store.path``; empty disables the store)
 STORE_ENV = "DASCREEN_STORE"

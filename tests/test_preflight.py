@@ -219,11 +219,30 @@ def test_the_xtb_geometry_protocol_is_found_with_its_earlier_embedding_rule(caps
     """The xTB-geometry calibration was computed before structures.rigid_embedding existed (rule cycle_rank, left
     out of its fingerprint): with the new default the run is refused with the one setting that finds it."""
     err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--set", "structures.geometry=xtb",
-                   message="structures.rigid_embedding: fused_system here, cycle_rank in the shipped calibration")
-    assert "use the shipped calibration: --set structures.rigid_embedding=cycle_rank\n" in err  # not "drop ..."
+                   message="structures.rigid_embedding: fused_system (the default) here, cycle_rank in the shipped "
+                           "calibration")
+    assert "use the shipped calibration: add --set structures.rigid_embedding=cycle_rank\n" in err  # not "drop"
     assert "tblite-gfn2-xtb-3ce6def9" in err and not (tmp_path / "o").exists()
     # calibrating fits the run's own settings, not only those that differ from the closest calibration
     assert "dascreen calibrate --set structures.geometry=xtb --install" in err
+
+
+def test_a_rerun_into_a_folder_of_another_protocol_says_so(capsys, tmp_path, good, monkeypatch):
+    # an upgrade audit: a new default protocol recomputed an earlier run's levels and rankings without a word
+    import yaml
+
+    import screen.cli
+    from screen.config import Config
+
+    monkeypatch.setattr(screen.cli, "run_workflow", lambda *a, **k: 0)
+    out = tmp_path / "o"
+    out.mkdir()
+    old = Config.of({"candidates": str(good.resolve()), "out": str(out)}).to_dict()
+    del old["structures"]["rigid_embedding"]  # as written before the option existed
+    (out / "config.yaml").write_text(yaml.safe_dump(old), encoding="utf-8")
+    rc, _, err = _run(capsys, "run", str(good), "--out", str(out), "--dry-run")
+    assert rc == 0 and f"holds a run of protocol tblite-gfn2-ff-cf90d5d7; these settings give {Config().protocol_id}" \
+        in err
 
 
 def test_opting_in_calibrates_within_the_run_and_says_what_it_costs(capsys, tmp_path, good, monkeypatch):

@@ -233,8 +233,10 @@ def test_store_command_lists_exports_and_prunes(tmp_path, capsys):
 
     earlier = stage_protocol_id("structures", StructureOptions(rigid_embedding="cycle_rank"))
     line = next(x for x in listed.splitlines() if earlier in x)
-    assert line.endswith("yes, molecules that newer structures options leave unchanged")
+    assert line.endswith("yes, for molecules that newer structures options leave unchanged")
     assert next(x for x in listed.splitlines() if "electronic-" in x).endswith("yes")
+    assert main(["store", "prune", "--store", str(store.path), "--protocol", earlier, "--dry-run"]) == 0
+    assert f"note: {earlier} is read by the current settings for molecules that newer" in capsys.readouterr().err
     assert main(["store", "export", "--store", str(store.path), "--to", str(tmp_path / "x.sdf")]) == 0
     mols = list(Chem.SDMolSupplier(str(tmp_path / "x.sdf"), removeHs=False))
     assert len(mols) == 2 and all(any(p.endswith(":xtb_ip_ev") for p in m.GetPropNames()) for m in mols)

@@ -227,6 +227,22 @@ def test_protocol_ids_of_settings_from_before_the_embedding_rule_are_kept():
     assert Config.of({}).protocol_id not in {"tblite-gfn2-ff-cf90d5d7", "tblite-gfn2-ff-80414bed"}
 
 
+def test_a_run_record_written_before_the_embedding_rule_keeps_its_protocol(tmp_path):
+    # an upgrade audit: `dascreen rank --out OLD_RUN` read the old run's config.yaml (every structures key but
+    # rigid_embedding) with the new default and refused its own levels as "of another protocol"
+    import yaml
+
+    from screen.config import Config
+
+    old = Config.of({}).to_dict()
+    del old["structures"]["rigid_embedding"]
+    path = tmp_path / "config.yaml"
+    path.write_text(yaml.safe_dump(old), encoding="utf-8")
+    assert Config.load(path).protocol_id == "tblite-gfn2-ff-cf90d5d7"
+    path.write_text(yaml.safe_dump({"structures": {"seed": old["structures"]["seed"]}}), encoding="utf-8")
+    assert Config.load(path).protocol_id == Config.of({}).protocol_id  # a hand-written file takes the defaults
+
+
 def test_loose_ranking_accuracy_is_bounded():
     from screen.config import Config
     from screen.errors import ConfigError
