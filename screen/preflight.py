@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass
+from functools import lru_cache
 from pathlib import Path
 
 import yaml
@@ -881,6 +882,14 @@ def _flat(node, prefix: str = "") -> dict:
     return out
 
 
+@lru_cache(maxsize=1)
+def _flat_defaults() -> dict:
+    """Every setting's default as ``{"section.key": value}`` (the schema's; not to be changed by callers)."""
+    from screen.schema import defaults
+
+    return _flat(defaults())
+
+
 def _fingerprint_settings(fp: dict) -> dict:
     """The settings of a calibration fingerprint as ``{"section.key": value}`` (config field names)."""
     return {**_flat(fp.get("protocol", {})), **_flat({"polymer": fp.get("polymer", {})})}
@@ -899,6 +908,11 @@ class CalibrationDifference:
         """True for a config field the user can set back (not the engine version or the reference data)."""
         return self.field not in ("engine_version", "calibration.reference")
 
+    @property
+    def chosen(self) -> bool:
+        """True for a setting the run gives a value other than its default (one the user chose)."""
+        return self.is_setting and self.here != _flat_defaults().get(self.field, object())
+
     def text(self, engine: str = "engine") -> str:
         """The difference in words, e.g. ``polymer.n_max: 2 here, 4 in the shipped calibration``."""
         if self.field == "engine_version":
@@ -906,9 +920,7 @@ class CalibrationDifference:
         if self.field == "calibration.reference":
             return (f"calibration.reference: the reference data in {self.here} are not the ones the shipped "
                     "calibration was fitted on")
-        from screen.schema import defaults
-
-        default = " (the default)" if _flat(defaults()).get(self.field, object()) == self.here else ""
+        default = "" if self.chosen else " (the default)"
         return f"{self.field}: {_show(self.here)}{default} here, {_show(self.shipped)} in the shipped calibration"
 
 
@@ -948,7 +960,6 @@ def calibration_differences(cfg) -> tuple[Path | None, list[CalibrationDifferenc
     # out at the value reproducing the route from before it existed, at that value
     fallback = {k: v for k, v in defaults().items() if k in ("structures", "electronic", "polymer")}
     fallback = _flat({**fallback, "structures": {**fallback["structures"], **EARLIER_ROUTE_VALUES["structures"]}})
-    default = _flat(defaults())
     models = Path(cfg["calibration"]["models"])
     best: tuple | None = None
     for folder in sorted(models.iterdir()) if models.is_dir() else []:
@@ -971,8 +982,7 @@ def calibration_differences(cfg) -> tuple[Path | None, list[CalibrationDifferenc
             diffs.append(CalibrationDifference("calibration.reference", cfg["calibration"]["reference"], None))
         # closest: fewest differences in settings the run chose (not at their defaults), then fewest in all: with
         # `--set structures.geometry=xtb` the xTB-geometry calibration (one default differs), not the default one
-        chosen = sum(1 for d in diffs if d.is_setting and d.here != default.get(d.field))
-        rank = (found.get("protocol_id") != expected["protocol_id"], chosen, len(diffs))
+        rank = (found.get("protocol_id") != expected["protocol_id"], sum(d.chosen for d in diffs), len(diffs))
         if best is None or rank < best[0]:
             best = (rank, folder, diffs)
     return (None, []) if best is None else (best[1], best[2])
@@ -1042,15 +1052,12 @@ def _calibrate_command(cfg, diffs, config_file=None) -> str:
     calibration: with `--set structures.geometry=xtb` that one is the xTB-geometry calibration)."""
     import shlex
 
-    from screen.schema import defaults
-
     words = ["dascreen calibrate"]
     if config_file:
         words.append(f"--config {shlex.quote(str(config_file))}")
-    default = _flat(defaults())
     run = _flat({k: cfg[k] for k in ("structures", "electronic", "polymer")})
     words += [f"--set {shlex.quote(f'{field}={_show(value)}')}" for field, value in run.items()
-              if field != "electronic.threads" and value != default.get(field)]
+              if field != "electronic.threads" and value != _flat_defaults().get(field)]
     if any(d.field == "calibration.reference" for d in diffs):
         words.append(f"--reference {shlex.quote(str(cfg['calibration']['reference']))}")
     words.append(f"--install {shlex.quote(str(_install_folder(cfg)))}")
@@ -1120,11 +1127,8 @@ def check_calibration(cfg, out, config_file=None) -> None:
     settings = [d for d in diffs if d.is_setting]
     ways = []
     if settings:
-        from screen.schema import defaults
-
         back = " ".join(f"--set {shlex.quote(f'{d.field}={_show(d.shipped)}')}" for d in settings)
-        default = _flat(defaults())
-        given = [d.field for d in settings if d.here != default.get(d.field)]  # a default the user did not set
+        given = [d.field for d in settings if d.chosen]  # not a default the user did not set
         cost = " (xTB-optimised geometries: several times the cost per molecule)" if any(
             d.field == "structures.geometry" and d.shipped == "xtb" for d in settings) else ""
         ways.append(f"use the shipped calibration: drop {', '.join(given)} (or {back}){cost}" if given
