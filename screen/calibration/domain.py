@@ -61,13 +61,34 @@ FINGERPRINT = "morgan r=2, 2048 bits, alkyl groups cut to methyl"
 
 @lru_cache(maxsize=100_000)
 def fingerprint(smiles: str):
-    """Morgan fingerprint of ``smiles`` (attachment points as H, alkyl groups as methyl); None if unparsable."""
+    """Morgan fingerprint of ``smiles`` (attachment points as H, alkyl groups as methyl); None if unparsable.
+
+    Every attachment point counts as a hydrogen however it is written: ``[*]``, ``[*:1]`` (the reference
+    files) or a bare ``*`` (the canonical SMILES of levels.csv; a polymer audit found a candidate identical to
+    a reference polymer at similarity 0.61, its dummy atoms fingerprinted as atoms, and its σ widened by it).
+
+    Examples
+    --------
+    >>> fingerprint("*c1ccc(*)s1") == fingerprint("[*]c1ccc([*])s1") == fingerprint("[*:1]c1ccc([*:2])s1")
+    True
+    """
     from rdkit import Chem, RDLogger
 
     RDLogger.DisableLog("rdApp.*")
-    mol = Chem.MolFromSmiles(str(smiles).replace("[*:1]", "[H]").replace("[*:2]", "[H]").replace("[*]", "[H]"))
+    mol = Chem.MolFromSmiles(str(smiles))
     if mol is None:
         return None
+    if any(a.GetAtomicNum() == 0 for a in mol.GetAtoms()):
+        rw = Chem.RWMol(mol)
+        for atom in rw.GetAtoms():
+            if atom.GetAtomicNum() == 0:
+                atom.SetAtomicNum(1)
+                atom.SetIsotope(0)
+                atom.SetAtomMapNum(0)
+        try:
+            mol = Chem.RemoveHs(rw.GetMol())
+        except Exception:  # noqa: BLE001 - an attachment point RDKit cannot make a hydrogen: fingerprint as written
+            pass
     return _generator().GetFingerprint(_alkyl_to_methyl(mol))
 
 
