@@ -70,6 +70,7 @@ from screen.config import Config
 from screen.conformer_spread import conformer_sigma
 from screen.errors import ConfigError
 from screen.io import write_csv, write_json
+from screen.knownbias import known_bias
 from screen.provenance import provenance
 
 __all__ = [
@@ -386,6 +387,9 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "fi
         names = SCALE_MODELS[scale]
         refs = sorted({r["smiles"] for name, m in models.items() if name in names for r in m.get("residuals", [])})
         out.loc[ok, "reference_similarity"] = np.round(nearest_similarity(list(sub["smiles"]), refs), 3)
+    out["known_bias"] = ""
+    if "smiles" in out:  # a family whose levels are known to be off held out (screen.knownbias): flagged in ranking
+        out.loc[ok, "known_bias"] = [known_bias(s) for s in sub["smiles"].astype(str)]
     return out
 
 

@@ -522,6 +522,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "same_structure": same,
         "same_computed_structure": _same_computed(lv, roles) & ~same,
         "far_from_reference": _far_from_reference(lv),
+        "known_family_bias": _text(lv, "known_bias") == "dpp",
         "chain_fit_poor": _text(lv, "chain_fit_quality") == "poor",
         "lone_pair_homo": _lone_pair_homo(lv),
         "role_from_levels": roles.role_from_levels,

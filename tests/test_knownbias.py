@@ -1,0 +1,54 @@
+"""Families with a known held-out bias (screen.knownbias): which rows they are, that the flag's figures hold on
+every shipped calibration, and that the ranking says so (an info flag: nothing is corrected)."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from screen.calibrate import apply_models, find_models, load_models
+from screen.config import Config
+from screen.knownbias import known_bias
+
+#: the DPP materials of the film set (models/reference/levels_film.csv, sources there)
+DPP_ROWS = {"PDPP3T", "PBDTT-DPP", "DPP(TBFu)2"}
+#: the flag's text (screen/flags.py): film gaps 0.15-0.54 eV too wide, HOMOs up to 0.34 eV too deep, held out
+GAP_RANGE_EV, HOMO_DEEPEST_EV = (0.15, 0.54), -0.34
+
+
+def test_exactly_the_dpp_rows_of_the_reference_sets_are_flagged(reference_rows):
+    assert {r["name"] for r in reference_rows if known_bias(r["smiles"])} == DPP_ROWS
+    assert known_bias("O=C1Nc2ccccc2C1=C1C(=O)Nc2ccccc21") == ""  # isoindigo, another lactam acceptor unit
+    assert known_bias("not a smiles") == ""
+
+
+@pytest.mark.parametrize("extra", [{}, {"structures": {"geometry": "xtb", "rigid_embedding": "cycle_rank"}}])
+def test_the_flag_states_what_every_shipped_calibration_does_to_them(extra):
+    folder = find_models(Config.of(extra))
+    errors = {}
+    for model in ("gap_opt_film", "homo_film"):
+        for r in json.loads((folder / f"{model}.json").read_text())["residuals"]:
+            if r["name"] in DPP_ROWS and r.get("phase_film", 1) == 1:
+                errors[(model, r["name"])] = r["loo_ev"] - r["measured_ev"]
+    gaps = [v for (m, _), v in errors.items() if m == "gap_opt_film"]
+    homos = [v for (m, _), v in errors.items() if m == "homo_film"]
+    assert len(gaps) == len(homos) == 3
+    assert all(GAP_RANGE_EV[0] <= round(v, 2) <= GAP_RANGE_EV[1] for v in gaps), gaps
+    assert all(HOMO_DEEPEST_EV <= round(v, 2) < 0 for v in homos), homos
+
+
+def test_levels_carry_the_family_and_the_ranking_flags_it(cfg):
+    import pandas as pd
+
+    from screen.partners import resolve_partner
+    from screen.rank import rank_candidates
+
+    folder = find_models(cfg)
+    raw = pd.read_csv(folder / "reference_raw.csv", keep_default_na=False, na_values=[""])
+    rows = raw[raw["name"].isin(["PDPP3T", "PM6 (PBDB-T-2F)"])].assign(status="ok").reset_index(drop=True)
+    out = apply_models(rows, load_models(folder, cfg))
+    assert dict(zip(out["name"], out["known_bias"])) == {"PDPP3T": "dpp", "PM6 (PBDB-T-2F)": ""}
+    ranked = rank_candidates(out.assign(role="donor"), resolve_partner("y6")).set_index("name")
+    assert "known_family_bias" in ranked.loc["PDPP3T", "flags"]
+    assert "known_family_bias" not in ranked.loc["PM6 (PBDB-T-2F)", "flags"]
