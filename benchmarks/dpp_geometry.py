@@ -11,7 +11,7 @@ geometry (twisted DPP–thiophene bonds), not from the method.
 
 Recorded (this round, 2 processes, default protocol ``tblite-gfn2-ff-eaf1c554``): DPP(TBFu)₂ orbital gap 1.636 →
 1.350 (aryl-vinyl ±5°) → 1.215 eV; film IP 10.812 → 10.719 → 10.697 eV; film EA 7.532 → 7.727 → 7.752 eV.
-PDPP3T monomer: orbital gap 1.704 → 1.437 → 1.224 eV; film IP 10.878 → 10.740 → 10.667 eV; film EA 7.269 →
+Methyl-capped PDPP3T repeat unit: orbital gap 1.704 → 1.437 → 1.224 eV; film IP 10.878 → 10.740 → 10.667 eV; film EA 7.269 →
 7.437 → 7.564 eV.
 
 Usage::
@@ -30,10 +30,10 @@ from pathlib import Path
 REPO = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(REPO))
 
-#: DPP molecules: the film set's small-molecule donor and the monomer of its DPP terthiophene polymer (methyl stubs)
+#: DPP molecules: the film set's small-molecule donor and its DPP terthiophene polymer's repeat unit capped with methyl
 MOLECULES = {
     "DPP(TBFu)2": "CN1C(=O)C2=C(c3ccc(-c4cc5ccccc5o4)s3)N(C)C(=O)C2=C1c1ccc(-c2cc3ccccc3o2)s1",
-    "PDPP3T n=1": "Cc1ccc(C2=C3C(=O)N(C)C(c4ccc(-c5ccc(C)s5)s4)=C3C(=O)N2C)s1",
+    "PDPP3T unit": "Cc1ccc(C2=C3C(=O)N(C)C(c4ccc(-c5ccc(C)s5)s4)=C3C(=O)N2C)s1",
 }
 ROUTES = ("default", "planar variants", "xtb geometry")
 QUANTITIES = ("xtb_gap_ev", "xtb_ip_film_ev", "xtb_ea_film_ev")

@@ -41,13 +41,15 @@ def main() -> None:
     parser.add_argument("--smiles", default=DEFAULT)
     parser.add_argument("--n-max", type=int, default=4)
     parser.add_argument("--geometry", choices=["ff", "xtb"], default=None,
-                        help="structures.geometry of the protocol (default: the default protocol's)")
+                        help="structures.geometry of the protocol (default: the default protocol's; xtb: the shipped "
+                             "xTB-geometry protocol, tblite-gfn2-xtb-3ce6def9)")
     args = parser.parse_args()
     from screen.structures import build_structure
 
     overrides = {"polymer": {"n_max": args.n_max}}
-    if args.geometry:
-        overrides["structures"] = {"geometry": args.geometry}
+    if args.geometry:  # xtb: the shipped xTB-geometry protocol, which keeps the earlier embedding rule
+        overrides["structures"] = {"geometry": args.geometry,
+                                   **({"rigid_embedding": "cycle_rank"} if args.geometry == "xtb" else {})}
     cfg = Config.of(overrides)
     engine = cfg.electronic.make_engine()
     eps = cfg.electronic.film_epsilon
