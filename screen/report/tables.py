@@ -223,9 +223,11 @@ def _candidate_cell(ident: str, name, role, smiles=None, representation="", chai
 
     Examples
     --------
-    >>> cell = _candidate_cell("P1", "", "donor", None, "polymer", ("2", "poor", "per repeat unit: C8H17->CH3"))
-    >>> "polymer n\u22642 \u00b7 fit poor" in cell, "side chains cut to methyl: C8H17-&gt;CH3" in cell
+    >>> cell = _candidate_cell("P1", "", "donor", None, "polymer", ("3", "poor", "per repeat unit: C8H17->CH3"))
+    >>> "polymer n\u22643 \u00b7 fit poor" in cell, "side chains cut to methyl: C8H17-&gt;CH3" in cell
     (True, True)
+    >>> "polymer n\u22642 \u00b7 no chain limit" in _candidate_cell("P2", "", "donor", None, "polymer", ("2", "poor", ""))
+    True
     """
     name = text(name)
     parts = [f'<span class="cid">{esc(ident)}</span>']
@@ -244,7 +246,11 @@ def _candidate_cell(ident: str, name, role, smiles=None, representation="", chai
         why = [part.strip() for part in note.split("; ") if part.strip().startswith("chain_fit_poor:")]
         if why:  # a polymer audit: the flag's text was the same for a dimer-only series and one unfitted gap
             title += "; " + "; ".join(w.removeprefix("chain_fit_poor: ") for w in why)
-        label = "polymer" + (f" n\u2264{n_max}" if n_max else "") + (" \u00b7 fit poor" if quality == "poor" else "")
+        short = n_max in ("1", "2")  # a polymer audit: "fit poor" read as "less precise" where nothing was fitted
+        if short:
+            title += f"; no chain limit: the atom limit left {n_max} oligomer(s), so the levels are those of n = {n_max}"
+        label = "polymer" + (f" n\u2264{n_max}" if n_max else "") + (
+            " \u00b7 no chain limit" if short else " \u00b7 fit poor" if quality == "poor" else "")
         parts.append(f'<span class="role role-other" title="{esc(title)}">{esc(label)}</span>')
     if smiles is not None:
         smi = text(smiles)
