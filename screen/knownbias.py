@@ -18,7 +18,9 @@ from __future__ import annotations
 
 from functools import lru_cache
 
-from rdkit import Chem, RDLogger
+from rdkit import Chem
+
+from screen.chem import smiles_has
 
 __all__ = ["DPP_SMARTS", "known_bias"]
 
@@ -40,6 +42,4 @@ def known_bias(smiles: str) -> str:
     -------
     str
     """
-    RDLogger.DisableLog("rdApp.*")
-    mol = Chem.MolFromSmiles(str(smiles))
-    return "dpp" if mol is not None and mol.HasSubstructMatch(_DPP) else ""
+    return "dpp" if smiles_has(smiles, _DPP) else ""

@@ -952,14 +952,12 @@ def calibration_differences(cfg) -> tuple[Path | None, list[CalibrationDifferenc
 
     from screen.calibrate import fingerprint
     from screen.options import EARLIER_ROUTE_VALUES
-    from screen.schema import defaults
 
     expected = fingerprint(cfg, cfg["calibration"]["reference"])
     here = _fingerprint_settings(expected)
     # a setting missing from a fingerprint is at its default, or, for a structures option that a protocol leaves
     # out at the value reproducing the route from before it existed, at that value
-    fallback = {k: v for k, v in defaults().items() if k in ("structures", "electronic", "polymer")}
-    fallback = _flat({**fallback, "structures": {**fallback["structures"], **EARLIER_ROUTE_VALUES["structures"]}})
+    fallback = {**_flat_defaults(), **_flat({"structures": EARLIER_ROUTE_VALUES["structures"]})}
     models = Path(cfg["calibration"]["models"])
     best: tuple | None = None
     for folder in sorted(models.iterdir()) if models.is_dir() else []:

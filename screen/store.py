@@ -104,7 +104,7 @@ def stage_protocol(stage: str, options) -> dict:
     """
     if stage not in _STAGES:
         raise ValueError(f"unknown stage {stage!r}; allowed: {', '.join(_STAGES)}")
-    data = asdict(options) if is_dataclass(options) else dict(options)
+    data = _options_dict(options)
     if stage == "structures":
         data = route_structures(data)
     earlier = EARLIER_ROUTE_VALUES[stage]
@@ -118,6 +118,11 @@ def stage_protocol(stage: str, options) -> dict:
     return out
 
 
+def _options_dict(options) -> dict:
+    """Stage options as a plain dict (from an options dataclass or a mapping)."""
+    return asdict(options) if is_dataclass(options) else dict(options)
+
+
 def earlier_structures_id(options) -> str:
     """The structures stage id of ``options`` with the newer options at their earlier values
     (:data:`screen.options.EARLIER_PROTOCOL_VALUES`): where molecules those options leave unchanged are stored.
@@ -127,7 +132,7 @@ def earlier_structures_id(options) -> str:
     >>> earlier_structures_id({"rigid_embedding": "fused_system"}) == stage_protocol_id("structures", {})
     True
     """
-    data = asdict(options) if is_dataclass(options) else dict(options)
+    data = _options_dict(options)
     return stage_protocol_id("structures", {**data, **EARLIER_PROTOCOL_VALUES["structures"]})
 
 
@@ -449,7 +454,7 @@ class StoreCache:
                  base: Callable | None = None, valid: Callable | None = None, idle: Callable | None = None):
         self.store, self.stage, self.options = store, stage, stage_protocol(stage, options)
         self.protocol_id = stage_protocol_id(stage, self.options)
-        self._data = asdict(options) if is_dataclass(options) else dict(options)
+        self._data = _options_dict(options)
         self._idle, self._protocols = idle or (lambda item: {}), {}
         self._key, self._geometry = key, geometry or (lambda item: "")
         self._base, self._valid = base or (lambda item: {}), valid or (lambda rec: True)
