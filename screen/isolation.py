@@ -90,7 +90,7 @@ class IsolatedWorker:
             raise WorkerCrash(f"worker process {reason} while starting") from None
 
     def _discard(self) -> None:
-        if self._proc is not None:
+        if self._proc is not None and self._proc.pid is not None:  # pid is None if start() failed
             if self._proc.is_alive():
                 self._proc.kill()
             self._proc.join(5)

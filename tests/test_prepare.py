@@ -12,6 +12,7 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
+from rdkit import Chem
 
 from screen import chem
 from screen.config import section_defaults
@@ -351,6 +352,26 @@ def test_reason_too_many_atoms_gives_count_and_limit() -> None:
     assert (row.status, row.reason) == ("rejected", "too_many_atoms")
     assert "12" in row.error and "10" in row.error
     assert row.smiles == "C" * 12 and row.heavy_atoms == 12 and row.key == ""
+
+
+def _nanohoop(rings: int) -> str:
+    """[n]cycloparaphenylene: n para-phenylenes closed into one macrocycle of 4n atoms."""
+    return "c1cc2ccc1" + "-c1ccc(cc1)" * (rings - 2) + "-c1ccc-2cc1"
+
+
+def test_macrocycle_whose_ring_perception_would_stall_the_batch_is_skipped(monkeypatch) -> None:
+    # RDKit's aromaticity perception of a [16]cycloparaphenylene took 22 s on the development
+    # machine and grows about tenfold per two rings ([20] did not finish in hours); the row
+    # is refused after the time limit and the next row goes on.
+    from screen.prepare import checks
+
+    assert checks.macrocyclic_ring_system(Chem.MolFromSmiles(_nanohoop(16), sanitize=False)) == (17, 64)
+    assert checks.macrocyclic_ring_system(Chem.MolFromSmiles("c1ccc2c(c1)sc1ccccc12", sanitize=False)) is None
+    monkeypatch.setattr(checks, "RING_PERCEPTION_LIMIT_S", 2.0)
+    out = validate(_frame([("hoop16", _nanohoop(16)), ("hoop8", _nanohoop(8)), ("next", "c1ccsc1")]))
+    assert list(out.status) == ["rejected", "ok", "ok"]
+    assert out.reason[0] == "ring_perception_time"
+    assert "17 rings fused to a 64-atom macrocycle" in out.error[0] and "within 2 s" in out.error[0]
 
 
 def test_reason_bad_role_and_role_normalisation() -> None:

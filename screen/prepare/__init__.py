@@ -101,6 +101,11 @@ A rejected row carries exactly one reason (the first problem found, in this orde
                         ``charge_separated`` note.
 ``open_shell``          any atom with radical electrons, or an odd number of electrons.
 ``too_many_atoms``      more heavy atoms than ``PrepareOptions.max_heavy_atoms``.
+``ring_perception_time`` a ring system of many rings fused to a macrocycle (a large
+                        cycloparaphenylene nanohoop) whose RDKit aromaticity perception did not
+                        finish within ``checks.RING_PERCEPTION_LIMIT_S`` (10 s) in an isolated
+                        worker; its cost grows exponentially with the ring count, so the row is
+                        skipped rather than stall the batch.
 ``bad_role``            ``role`` other than ``donor``, ``acceptor`` or empty (case and
                         surrounding blanks are ignored; the value is stored in lower case).
 ``duplicate_id``        second and later rows whose id was already used by an earlier row

@@ -51,6 +51,7 @@ REASON_CODES: tuple[str, ...] = (
     "charge_separated_sp3",
     "open_shell",
     "too_many_atoms",
+    "ring_perception_time",
     "bad_role",
     "duplicate_id",
     "oligomer_build_failed",
@@ -360,6 +361,83 @@ def _formal_charge_note(mol: Chem.Mol) -> str | None:
     return f"charge_separated: formal charges on {shown}, net charge 0"
 
 
+#: longest time RDKit's sanitisation may take on one structure of many rings fused to a macrocycle [s]
+#: (:func:`_sanitize_in_time`); ordinary structures take milliseconds and are not timed
+RING_PERCEPTION_LIMIT_S = 10.0
+#: a ring system of at least this many rings (smallest set of smallest rings, rings sharing two or more
+#: atoms joined) that contains a ring of more than _MACROCYCLE_ATOMS atoms is timed
+_MACROCYCLE_SYSTEM_RINGS = 8
+_MACROCYCLE_ATOMS = 12
+
+
+def macrocyclic_ring_system(mol: Chem.Mol) -> tuple[int, int] | None:
+    """Return (rings, largest ring size) of a ring system fused to a macrocycle, or None.
+
+    RDKit's aromaticity perception enumerates combinations of the rings of a ring
+    system; when many aromatic rings share atoms with one macrocycle, as in a
+    cycloparaphenylene nanohoop, that grows exponentially (RDKit 2024–2025 on this
+    project's machine: [12]CPP 0.1 s, [14] 2.3 s, [16] 22 s, [20] did not finish in
+    hours). Works on an unsanitised molecule (the rings are a graph property).
+
+    Examples
+    --------
+    >>> from rdkit import Chem
+    >>> nanohoop = "c1cc2ccc1" + "-c1ccc(cc1)" * 8 + "-c1ccc-2cc1"   # [10]cycloparaphenylene
+    >>> macrocyclic_ring_system(Chem.MolFromSmiles(nanohoop, sanitize=False))[0] >= 11
+    True
+    >>> macrocyclic_ring_system(Chem.MolFromSmiles("c1ccc2cc3ccccc3cc2c1", sanitize=False)) is None
+    True
+    """
+    rings = [set(ring) for ring in Chem.GetSSSR(mol)]  # not the symmetrised set: 2^n macrocycles of a nanohoop
+    systems: list[list[set[int]]] = []
+    for ring in rings:
+        joined = [system for system in systems if any(len(ring & other) >= 2 for other in system)]
+        for system in joined:
+            systems.remove(system)
+        systems.append([r for system in joined for r in system] + [ring])
+    for system in systems:
+        largest = max(len(ring) for ring in system)
+        if len(system) >= _MACROCYCLE_SYSTEM_RINGS and largest > _MACROCYCLE_ATOMS:
+            return len(system), largest
+    return None
+
+
+def _sanitize_copy(block: bytes) -> None:  # runs in an isolated worker process
+    """Sanitise a copy of a molecule given as RDKit binary; errors are left to :func:`_sanitize`."""
+    mol = Chem.Mol(block)
+    with rdBase.BlockLogs():
+        try:
+            Chem.SanitizeMol(mol)
+        except Exception:  # noqa: BLE001 - the parent sanitises again and reports the problem
+            pass
+
+
+def _sanitize_in_time(mol: Chem.Mol) -> None:
+    """Refuse a macrocyclic ring system whose sanitisation would stall the batch.
+
+    Only a structure :func:`macrocyclic_ring_system` picks is timed: a copy is
+    sanitised in an isolated worker process (about a second to start) and killed
+    after :data:`RING_PERCEPTION_LIMIT_S`, so one such row cannot hold up the rest
+    of the batch; one that finishes in time goes on as usual.
+    """
+    found = macrocyclic_ring_system(mol)
+    if found is None:
+        return
+    from screen.isolation import IsolatedWorker, WorkerCrash
+
+    try:
+        with IsolatedWorker(_sanitize_copy, timeout_s=RING_PERCEPTION_LIMIT_S) as worker:
+            worker(mol.ToBinary())
+    except WorkerCrash:
+        rings, largest = found
+        raise _Reject(
+            "ring_perception_time",
+            f"RDKit's aromaticity perception did not finish within {RING_PERCEPTION_LIMIT_S:g} s for a ring "
+            f"system of {rings} rings fused to a {largest}-atom macrocycle (large nanohoop-type macrocycles "
+            "grow exponentially in cost); the row is skipped so that the batch goes on",
+        ) from None
+
+
 def _sanitize(mol: Chem.Mol) -> None:
     """Sanitise ``mol`` in place; an RDKit failure becomes an ``unparsable`` rejection."""
     with rdBase.BlockLogs():
@@ -458,6 +536,7 @@ def _check_structure(smiles: str, options: PrepareOptions) -> _Checked:
             if message:
                 raise _Reject("charge_separated_sp3", message)
         _check_chemistry(mol)
+        _sanitize_in_time(mol)
         _sanitize(mol)
         _check_hydrogen_allowed(mol, options)
         charge = _check_charge(mol, options, result.notes)
