@@ -311,3 +311,35 @@ def protocol_id(config: Mapping | None) -> str:
     True
     """
     return Config.of(config).protocol_id
+
+
+def flat_settings(node, prefix: str = "") -> dict:
+    """Nested mappings as ``{"a.b": value}``."""
+    out = {}
+    for key, value in (node or {}).items():
+        path = f"{prefix}.{key}" if prefix else str(key)
+        if isinstance(value, dict):
+            out.update(flat_settings(value, path))
+        else:
+            out[path] = value
+    return out
+
+
+def changed_calibration_settings(config: Mapping | None) -> dict:
+    """The settings a calibration is made for that differ from their defaults, as ``{"section.key": value}``.
+
+    Every field of the structures, electronic and polymer sections except ``electronic.threads`` (the
+    protocol and the polymer settings a calibration records): what a ``dascreen calibrate`` or ``dascreen run``
+    command needs as ``--set`` to compute with the same settings.
+
+    Examples
+    --------
+    >>> changed_calibration_settings({"structures": {"geometry": "xtb"}, "electronic": {"threads": 4}})
+    {'structures.geometry': 'xtb'}
+    """
+    cfg = Config.of(config)
+    default = flat_settings({k: v for k, v in defaults().items() if k in ("structures", "electronic", "polymer")})
+    run = flat_settings({k: cfg[k] for k in ("structures", "electronic", "polymer")})
+    return {field: value for field, value in run.items()
+            if field != "electronic.threads" and value != default.get(field)}
+

@@ -34,7 +34,8 @@ from pathlib import Path
 
 import yaml
 
-from screen.config import read_problem
+from screen.config import changed_calibration_settings, read_problem
+from screen.config import flat_settings as _flat
 from screen.errors import ConfigError, InputError
 
 __all__ = ["SchemaField", "schema_fields", "allowed_text", "unit_of", "check_sets", "check_rank_sets", "check_rank_config",
@@ -870,18 +871,6 @@ def check_partner_scales(specs, scale: str) -> None:
 
 # --------------------------------------------------------------------------- calibration
 
-def _flat(node, prefix: str = "") -> dict:
-    """Nested mappings as ``{"a.b": value}``."""
-    out = {}
-    for key, value in (node or {}).items():
-        path = f"{prefix}.{key}" if prefix else str(key)
-        if isinstance(value, dict):
-            out.update(_flat(value, path))
-        else:
-            out[path] = value
-    return out
-
-
 @lru_cache(maxsize=1)
 def _flat_defaults() -> dict:
     """Every setting's default as ``{"section.key": value}`` (the schema's; not to be changed by callers)."""
@@ -1053,9 +1042,7 @@ def _calibrate_command(cfg, diffs, config_file=None) -> str:
     words = ["dascreen calibrate"]
     if config_file:
         words.append(f"--config {shlex.quote(str(config_file))}")
-    run = _flat({k: cfg[k] for k in ("structures", "electronic", "polymer")})
-    words += [f"--set {shlex.quote(f'{field}={_show(value)}')}" for field, value in run.items()
-              if field != "electronic.threads" and value != _flat_defaults().get(field)]
+    words += [f"--set {shlex.quote(f'{field}={_show(value)}')}" for field, value in changed_calibration_settings(cfg).items()]
     if any(d.field == "calibration.reference" for d in diffs):
         words.append(f"--reference {shlex.quote(str(cfg['calibration']['reference']))}")
     words.append(f"--install {shlex.quote(str(_install_folder(cfg)))}")

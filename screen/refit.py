@@ -23,7 +23,7 @@ values would calibrate the wrong numbers).
 Examples
 --------
 >>> import screen
->>> from screen.config import Config
+>>> from screen.config import Config, changed_calibration_settings
 >>> cfg = Config.of({})
 >>> folder = Path(screen.__file__).resolve().parents[1] / "models" / cfg.protocol_id  # the shipped models
 >>> raw, sidecar = read_raw_source(folder, cfg.protocol_id)
@@ -33,6 +33,7 @@ Examples
 
 from __future__ import annotations
 
+import shlex
 from pathlib import Path
 
 import numpy as np
@@ -40,7 +41,7 @@ import pandas as pd
 
 from screen.calibrate import fingerprint, fit_all, read_reference, save_calibration
 from screen.calibration.reference import canonical, reference_inputs
-from screen.config import Config
+from screen.config import Config, changed_calibration_settings
 from screen.errors import ConfigError
 from screen.io import read_csv_checked, read_json, write_csv
 
@@ -207,8 +208,12 @@ def refit_from_raw(config, sources, out_root: str | Path) -> tuple[Path, pd.Data
         listing = Path(out_root) / "missing_reference.csv"
         write_csv(missing, listing)
         names = ", ".join(missing["name"].head(8)) + (" …" if len(missing) > 8 else "")
+        settings = "".join(f" --set {shlex.quote(f'{k}={v}')}" for k, v in changed_calibration_settings(cfg).items())
         raise ConfigError(f"--from-raw: {len(missing)} reference structure(s) have no raw values ({names}); "
-                          f"compute them with `dascreen run {listing} --out DIR` and add `--from-raw DIR`")
+                          f"compute them with `dascreen run {listing} --out DIR{settings}` and add `--from-raw DIR` "
+                          "(that run needs a calibration of these settings fitted on its reference data: when the "
+                          "reference files changed since, give it `--set calibration.reference=FOLDER` with the files "
+                          "the calibration was fitted on, e.g. a copy from version control)")
     parts = [s for s in sides if len(s)]
     oligomers = pd.concat(parts, ignore_index=True).drop_duplicates() if parts else pd.DataFrame()
     computed, oligomers = rechain(computed, oligomers, cfg["polymer"]["fit_rms_tol_ev"])
