@@ -9,7 +9,7 @@ and prints the raw GFN2-xTB orbital gap, film-phase ΔSCF IP and EA [eV] and the
 the gap falls by tenths of an eV from the first route to the others, the bias comes from the force-field
 geometry (twisted DPP–thiophene bonds), not from the method.
 
-Recorded (this round, 2 processes, default protocol ``tblite-gfn2-ff-eaf1c554``): DPP(TBFu)₂ orbital gap 1.636 →
+Recorded (2026-12-04, 2 processes, default protocol ``tblite-gfn2-ff-eaf1c554``): DPP(TBFu)₂ orbital gap 1.636 →
 1.350 (aryl-vinyl ±5°) → 1.215 eV; film IP 10.812 → 10.719 → 10.697 eV; film EA 7.532 → 7.727 → 7.752 eV.
 Methyl-capped PDPP3T repeat unit: orbital gap 1.704 → 1.437 → 1.224 eV; film IP 10.878 → 10.740 → 10.667 eV; film EA 7.269 →
 7.437 → 7.564 eV.

@@ -274,7 +274,8 @@ def load_fitted(path: str | None = None) -> FittedParameters:
 #: ``benchmarks/device_validation.py --write`` (keyed by protocol id)
 VALIDATION_PATH = FITTED_PATH.parent / "computed_validation.json"
 #: the metrics a test record carries
-_TEST_KEYS = ("n", "n_pce", "voc_mae_v", "voc_bias_v", "spearman_voc", "spearman_pce")
+_TEST_KEYS = ("n", "n_pce", "voc_mae_v", "voc_bias_v", "spearman_voc", "spearman_pce", "spearman_voc_ci95",
+              "spearman_pce_ci95")
 
 
 def _pick(record, key: str) -> dict | None:

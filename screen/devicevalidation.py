@@ -61,7 +61,7 @@ from screen.calibrate import apply_models, fit_all
 from screen.calibration.reference import canonical, read_reference
 from screen.config import protocol_id
 from screen.device import DeviceModel
-from screen.devicefit import GROUPINGS, _e_ct, _metrics, _rho, fold_model, predict
+from screen.devicefit import GROUPINGS, _e_ct, _metrics, _rho, fold_model, predict, rank_intervals
 from screen.devicelevels import LEVELS
 
 __all__ = ["RAW_PATH", "REFERENCE_DIR", "read_raw", "coverage", "out_of_sample_levels", "computed_levels",
@@ -200,7 +200,7 @@ def computed_validation(d: pd.DataFrame, levels: pd.DataFrame, raw: pd.DataFrame
     return {"grouping": f"leave one {by} structure out", "by": by, "variants_per_fold": chosen,
             "coverage": {"devices": int(len(d)), "computed": int(covered.sum()), "with_voc": int(has_voc.sum()),
                          "with_pce": int(rows["pce_pct"].notna().sum())},
-            "fitted": _metrics(comp, preds["computed"]),
+            "fitted": {**_metrics(comp, preds["computed"]), **rank_intervals(comp, preds["computed"])},
             "fitted_published_levels": _metrics(rows, preds["published"]),
             "scharber": _metrics(comp, predict(DeviceModel(model="scharber", absorber="donor"), comp)),
             "mean_voc_baseline": {"voc_mae_v": float(err.abs().mean()), "voc_bias_v": float(err.mean())},

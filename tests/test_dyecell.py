@@ -680,7 +680,7 @@ def test_viability_within_part_of_the_level_uncertainty_gets_an_info_flag():
                                                "thresholds in only part of the level uncertainty")
 
 
-# --------------------------------------------------------------------------- dye-cell chemist's audit (this round)
+# --------------------------------------------------------------------------- dye-cell chemist's audit (an earlier round)
 
 def test_a_transparent_molecule_absorbs_no_sunlight_and_is_not_viable():
     from screen.dyecell.model import JSC_MIN_MA_CM2, sunlight_edge_ev

@@ -774,7 +774,7 @@ def test_shortlist_sdf_carries_p_viable(tmp_path):
         assert float(m.GetProp("p_viable")) == pytest.approx(float(ranking.loc[m.GetProp("id"), "p_viable"]))
 
 
-# --------------------------------------------------------------------------- dye-cell chemist's audit (this round)
+# --------------------------------------------------------------------------- dye-cell chemist's audit (an earlier round)
 
 def test_report_caution_follows_the_oxide_type_and_warns_that_p_type_pces_are_optimistic(tmp_path):
     f = _measured(tmp_path, [("PD1", 1.55, 2.30, "OC(=O)c1ccccc1")])

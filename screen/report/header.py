@@ -385,8 +385,22 @@ def _test_words(rec, levels: str) -> str:
     base = num(rec.get("baseline_voc_mae_v"))
     said = "" if math.isnan(base) else f" (predicting the mean V<sub>oc</sub>: {fmt(base, 3)} V)"
     return (f"{levels}: V<sub>oc</sub> MAE {fmt(rec.get('voc_mae_v'), 3)} V{said}, rank correlation of V<sub>oc</sub> "
-            f"{fmt(rec.get('spearman_voc'))} ({n} devices), of PCE {fmt(rec.get('spearman_pce'))} ({n_pce}, pooled "
+            f"{fmt(rec.get('spearman_voc'))}{_interval(rec.get('spearman_voc_ci95'))} ({n} devices), of PCE "
+            f"{fmt(rec.get('spearman_pce'))}{_interval(rec.get('spearman_pce_ci95'))} ({n_pce}, pooled "
             "over acceptor classes)")
+
+
+def _interval(ci) -> str:
+    """`` [lo to hi]`` of a 95 % acceptor-group bootstrap interval, or '' without one.
+
+    Examples
+    --------
+    >>> _interval([-0.17, 0.67])
+    ' [95 % interval −0.17 to 0.67]'
+    """
+    if not isinstance(ci, (list, tuple)) or len(ci) != 2 or any(math.isnan(num(x)) for x in ci):
+        return ""
+    return f" [95 % interval {fmt(ci[0])} to {fmt(ci[1])}]"
 
 
 def _class_words(film) -> str:
