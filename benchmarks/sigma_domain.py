@@ -41,15 +41,16 @@ def main(argv=None) -> int:
     argparse.ArgumentParser(description=__doc__.splitlines()[0]).parse_args(argv)
     cfg = Config.of({})
     models = load_models(REPO / "models" / cfg.protocol_id, cfg)
-    print(f"protocol {cfg.protocol_id}; similarity = nearest-neighbour Tanimoto (Morgan r=2, alkyl as methyl)")
+    print(f"protocol {cfg.protocol_id}; similarity = nearest-neighbour Tanimoto (Morgan r=2, alkyl as methyl; the"
+          " fingerprint each model's σ was fitted on, counts since 2026-12-05)")
     for name in MODEL_NAMES:
         m = models[name]
         if "domain" not in m:
             continue
         res = pd.DataFrame(m["residuals"])
         err = (res["loo_ev"] - res["measured_ev"]).to_numpy(float)
-        sim = reference_similarity(res["smiles"])
         dom = m["domain"]
+        sim = reference_similarity(res["smiles"], dom.get("similarity", "bit"))
         sigma_new = np.sqrt(domain_variance(dom, sim)) if dom["kind"] == "similarity" else np.full(
             len(sim), m["model"]["residual_sigma_ev"])
         sigma_old = np.full(len(sim), m["model"]["residual_sigma_ev"])

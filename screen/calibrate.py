@@ -191,7 +191,7 @@ def _domain(residuals: list[dict]) -> dict:
     """The applicability-domain variance model of one record (:func:`screen.calibration.domain.fit_domain`)."""
     smiles = [r["smiles"] for r in residuals]
     loo = np.array([r["loo_ev"] - r["measured_ev"] for r in residuals], float)
-    return fit_domain(reference_similarity(smiles), loo)
+    return fit_domain(reference_similarity(smiles, "count"), loo, fingerprint_kind="count")
 
 
 #: columns of ``reference_raw.csv``: what a refit needs without recomputation
