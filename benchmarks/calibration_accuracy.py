@@ -97,6 +97,22 @@ def same_rows_loo(model: dict, rows: pd.DataFrame) -> float:
     return float(np.mean(errors)) if errors else float("nan")
 
 
+def structure_folds(targets: dict[str, pd.DataFrame], folds: int, seed: int = 0):
+    """Deal the distinct reference structures (canonical SMILES) of ``targets`` into ``folds`` after a seeded
+    shuffle; return ``(fold_of, fold)``: the fold of each canonical SMILES, and of any SMILES (-1 if none)."""
+    structures = sorted({c for t in targets.values() for c in t["_can"]})
+    order = np.random.default_rng(seed).permutation(len(structures))
+    fold_of = {structures[i]: k % folds for k, i in enumerate(order)}
+    cache: dict[str, str] = {}
+
+    def fold(smiles: str) -> int:
+        if smiles not in cache:
+            cache[smiles] = canonical(smiles)
+        return fold_of.get(cache[smiles], -1)
+
+    return fold_of, fold
+
+
 def nested_cv(sets: dict, raw: pd.DataFrame, folds: int = 10, seed: int = 0) -> dict[str, float]:
     """Outer K-fold MAE [eV] of the whole calibration procedure (:func:`fit_all`, selection inside).
 
@@ -119,15 +135,7 @@ def nested_cv(sets: dict, raw: pd.DataFrame, folds: int = 10, seed: int = 0) -> 
         ferrocene scale of :func:`screen.calibration.reference.normalised_film`).
     """
     targets = nested_targets(sets, raw)
-    structures = sorted({c for t in targets.values() for c in t["_can"]})
-    order = np.random.default_rng(seed).permutation(len(structures))
-    fold_of = {structures[i]: k % folds for k, i in enumerate(order)}
-    cache: dict[str, str] = {}
-
-    def fold(smiles: str) -> int:
-        if smiles not in cache:
-            cache[smiles] = canonical(smiles)
-        return fold_of.get(cache[smiles], -1)
+    fold_of, fold = structure_folds(targets, folds, seed)
 
     errors: dict[str, list[float]] = {name: [] for name in NESTED}
     for k in range(folds):

@@ -52,7 +52,7 @@ from scipy.stats import spearmanr
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
 
-from calibration_accuracy import NESTED, nested_targets  # noqa: E402
+from calibration_accuracy import NESTED, nested_targets, structure_folds  # noqa: E402
 
 from screen.calibrate import apply_models, find_models, fit_all, read_reference  # noqa: E402
 from screen.calibration.domain import domain_variance, fit_domain, nearest_similarity, reference_similarity  # noqa: E402
@@ -112,15 +112,7 @@ def out_of_fold(sets: dict, raw: pd.DataFrame, folds: int, seed: int = 0) -> tup
     Folds as :func:`calibration_accuracy.nested_cv` deals them (distinct canonical structures, seeded shuffle).
     """
     targets = nested_targets(sets, raw)
-    structures = sorted({c for t in targets.values() for c in t["_can"]})
-    order = np.random.default_rng(seed).permutation(len(structures))
-    fold_of = {structures[i]: k % folds for k, i in enumerate(order)}
-    cache: dict[str, str] = {}
-
-    def fold(smiles: str) -> int:
-        if smiles not in cache:
-            cache[smiles] = canonical(smiles)
-        return fold_of.get(cache[smiles], -1)
+    fold_of, fold = structure_folds(targets, folds, seed)
 
     rows, kept = [], {(name, v): 0 for name in NESTED for v in VARIANTS}
     for k in range(folds):
