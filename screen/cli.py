@@ -84,10 +84,13 @@ def cmd_run(args) -> int:
         for note in forget_other_input(out, candidates):
             print(note, file=sys.stderr)
         _set_aside_foreign_ranking(cfg, out)
+    # pinned to the calibration checked above: the workflow never fits one this command did not announce, and its
+    # levels job stops with one message if the calibration changes during the run (screen.launch.calibration_pin)
     rc = run_workflow(cfg, out, args.cores, extra=args.snakemake_args, dry_run=args.dry_run, profile=args.profile,
                       verbose=args.verbose)
     if rc != 0:
-        print(f"dascreen: the workflow stopped with exit code {rc}; job logs in {out}/logs/", file=sys.stderr)
+        print(f"dascreen: the workflow stopped with exit code {rc}{_why_stopped(out, args)}; job logs in {out}/logs/",
+              file=sys.stderr)
         return EXIT_ERROR
     if args.dry_run:
         return EXIT_OK
@@ -98,6 +101,22 @@ def cmd_run(args) -> int:
         print("dascreen: --strict: some rows were rejected or failed", file=sys.stderr)
         return EXIT_STRICT
     return EXIT_OK
+
+
+def _why_stopped(out: Path, args) -> str:
+    """``": <cause>"`` for the one-line message of a failed run (a full disk, a job's own message), else ``""``.
+
+    A full disk was said only in a job log while the console said "Please ensure write permissions" (an
+    overnight operator's report): :func:`screen.launch.failure_cause` reads the engine's log."""
+    from screen.launch import failure_cause
+
+    if args.verbose or args.dry_run:  # the engine's log went to the terminal
+        return ""
+    try:
+        cause = failure_cause((out / "logs" / "workflow.log").read_text(encoding="utf-8", errors="replace"))
+    except OSError:
+        return ""
+    return f": {cause}" if cause else ""
 
 
 def _protocol_of_folder(out: Path) -> str | None:
@@ -549,7 +568,8 @@ def _print_rankings(out: Path, limit: int = 12) -> None:
     if not len(index):
         return
     print(f"dascreen: {len(index)} ranking(s) in {out / 'rankings'}, most recent first:")
-    for r in index.head(limit).itertuples():
+    rows = list(index.head(limit).itertuples())
+    for r in rows:
         levels = "" if Path(str(r.levels)).resolve() == (out / "levels.csv").resolve() else f", levels {r.levels}"
         missing = r.target_pce_pct is None or r.target_pce_pct != r.target_pce_pct  # None or NaN
         target = "" if missing else f", target {r.target_pce_pct:g} %"
@@ -557,6 +577,7 @@ def _print_rankings(out: Path, limit: int = 12) -> None:
         settings = f"; set {settings}" if settings else ""
         print(f"  {r.written_utc}  {r.folder}: against {r.partner}, {r.model} model{target}, sorted by {r.sort_by}"
               f"{settings}{levels}; {r.passing} of {r.ranked} pass")
+    _more(len(index) - len(rows), out / "rankings-index.csv", out / "rankings")
 
 
 def _print_dye_rankings(out: Path, limit: int = 12) -> None:
@@ -568,6 +589,7 @@ def _print_dye_rankings(out: Path, limit: int = 12) -> None:
         return
     print(f"dascreen: {len(found)} dye-cell ranking(s) in {out / 'dyecell'}, most recent first (re-rank against "
           f"another oxide or mediator with `dascreen dyecell --out {out} --mediator M`):")
+    shown = 0
     for path in found[:limit]:
         try:
             meta = read_json(path)
@@ -577,6 +599,17 @@ def _print_dye_rankings(out: Path, limit: int = 12) -> None:
         oxide, mediator = ((meta.get(part) or {}).get("id") or "?" for part in ("oxide", "mediator"))
         print(f"  {path.parent.name}: {oxide} with {mediator}; {counts.get('viable', '?')} of "
               f"{counts.get('ranked', '?')} viable, {counts.get('passing', '?')} pass")
+        shown += 1
+    _more(len(found) - shown, None, out / "dyecell")
+
+
+def _more(hidden: int, index: Path | None, folder: Path) -> None:
+    """The line after a cut list of rankings: how many are not shown and where they all are (before, ``status``
+    listed 12 of 13 rankings without a word, an overnight operator's report)."""
+    if hidden <= 0:
+        return
+    where = f"{index} lists every one" if index is not None and index.is_file() else f"every one is in {folder}"
+    print(f"  ... and {hidden} more not shown ({where})")
 
 
 def _now() -> float:

@@ -15,10 +15,19 @@ A signal to ``dascreen`` alone (SIGTERM from ``kill PID`` or ``timeout``, SIGHUP
 terminal closes, or Ctrl-C) is passed on to Snakemake and every process below it
 (SIGKILL for what is left after :data:`STOP_GRACE_S`), and ``dascreen`` exits with
 128 + the signal number (130, 143).
+
+The run is pinned to the calibration the ``dascreen`` command found (:func:`calibration_pin`, handed to the
+workflow in the environment variable :data:`PIN_ENV`): the workflow uses that folder and never decides on
+its own to fit one (an overnight operator's report: a ``git pull`` of the installation during a run made
+the workflow compute 389 reference molecules for 2.3 h, said only in its log), and the levels jobs stop
+with one message when the calibration is no longer the one of the start. Only ``calibration.refit:
+always``, announced before the run, fits one. A bare ``snakemake`` run decides by itself, as documented.
 """
 
 from __future__ import annotations
 
+import errno
+import json
 import os
 import re
 import signal
@@ -32,9 +41,13 @@ import yaml
 from screen.config import Config
 from screen.errors import ConfigError
 
-__all__ = ["WORKFLOW", "STOP_GRACE_S", "run_workflow", "error_excerpt"]
+__all__ = ["WORKFLOW", "STOP_GRACE_S", "PIN_ENV", "run_workflow", "error_excerpt", "calibration_pin", "pinned_calibration",
+           "failure_cause"]
 
 WORKFLOW = Path(__file__).parent / "workflow" / "Snakefile"
+#: environment variable that hands the workflow the calibration the ``dascreen`` command pinned (JSON of
+#: :func:`calibration_pin`); unset in a bare snakemake run
+PIN_ENV = "DASCREEN_CALIBRATION_PIN"
 #: seconds the workflow's process group has to stop after the signal before it is killed [s]
 STOP_GRACE_S = 30.0
 
@@ -57,6 +70,90 @@ def error_excerpt(log_text: str, tail: int = 80) -> str:
         if _ERROR_START.match(line):
             return "\n".join(lines[i:])
     return "\n".join(lines[-tail:])
+
+
+_ERRNO = re.compile(r"\[Errno (\d+)\] ([A-Za-z][^:\]\)\n'\"]*)")
+_STAGE_ERROR = re.compile(r"^dascreen: error: (.+)$", re.M)
+
+
+def failure_cause(log_text: str) -> str | None:
+    """Why a workflow stopped, in words for the one-line console message (``None`` when the log does not say).
+
+    A full disk first (the system's text, e.g. ``No space left on device``: the engine's own line about it said
+    "Please ensure write permissions", an overnight operator's report), then a job's own ``dascreen: error:``
+    message (a calibration that changed during the run), then any other system error.
+
+    Examples
+    --------
+    >>> failure_cause("WorkflowError:\\nError recording metadata for finished job ([Errno 28] No space left on device). "
+    ...               "Please ensure write permissions for the directory /r/.snakemake")  # doctest: +ELLIPSIS
+    'No space left on device (errno 28, ENOSPC): the disk ... is full; free space ... and run the same command again ...'
+    >>> failure_cause("Traceback ...\\nPermissionError: [Errno 13] Permission denied: '/r/x'")
+    'Permission denied (errno 13, EACCES)'
+    >>> failure_cause("Error in rule x:\\n  boom") is None
+    True
+    """
+    found: dict[int, str] = {}
+    for match in _ERRNO.finditer(log_text):
+        found.setdefault(int(match.group(1)), match.group(2).strip().rstrip("."))
+    for number in (errno.ENOSPC, errno.EDQUOT):
+        if number in found:
+            return (f"{found[number]} (errno {number}, {errno.errorcode[number]}): the disk (or quota) of the run "
+                    "folder or the results store is full; free space there and run the same command again (it "
+                    "resumes)")
+    stage = _STAGE_ERROR.search(log_text)
+    if stage:
+        return stage.group(1).strip()
+    for number, text in found.items():
+        return f"{text} (errno {number}, {errno.errorcode.get(number, '?')})"
+    return None
+
+
+def calibration_pin(cfg: Config, out: Path) -> dict | None:
+    """The calibration a run started by the ``dascreen`` command is pinned to (``None``: not pinned).
+
+    ``calibration.refit: always`` is not pinned: the run fits its own calibration, as the command announced.
+    Otherwise the shipped calibration that matches the run's settings (:func:`screen.calibrate.find_models`),
+    else the one an earlier run fitted in ``out`` (:func:`screen.preflight.fitted_in`): the pre-flight check
+    (:func:`screen.preflight.check_calibration`) let the run start because of it. The pin is its
+    :func:`screen.provenance.calibration_record` (folder, fingerprint, SHA-256 of the model files);
+    ``{"folder": None}`` when none matches any more, which makes the workflow stop instead of fitting one.
+    """
+    if cfg["calibration"]["refit"] == "always":
+        return None
+    from screen.calibrate import find_models
+    from screen.preflight import fitted_in
+    from screen.provenance import calibration_record
+
+    try:
+        folder = find_models(cfg)
+        if folder is None and fitted_in(out, cfg):
+            folder = Path(out) / "models" / cfg.protocol_id
+    except (OSError, ValueError, ConfigError):
+        folder = None
+    return {"folder": None} if folder is None else calibration_record(folder)
+
+
+def pinned_calibration(environ=None) -> dict | None:
+    """The calibration pin the ``dascreen`` command handed to the workflow (``None`` in a bare snakemake run).
+
+    Examples
+    --------
+    >>> pinned_calibration({})
+    >>> pinned_calibration({PIN_ENV: '{"folder": "/m/p"}'})
+    {'folder': '/m/p'}
+    """
+    text = (os.environ if environ is None else environ).get(PIN_ENV, "")
+    if not text.strip():
+        return None
+    try:
+        pin = json.loads(text)
+    except ValueError:
+        raise ConfigError(f"the environment variable {PIN_ENV} is not the JSON the dascreen command writes: "
+                          f"{text[:80]!r}; unset it") from None
+    if not isinstance(pin, dict) or "folder" not in pin:
+        raise ConfigError(f"the environment variable {PIN_ENV} names no calibration folder: {text[:80]!r}; unset it")
+    return pin
 
 
 #: signals that stop a running workflow like Ctrl-C does (SIGHUP: the terminal was closed)
@@ -241,8 +338,12 @@ def _command(out: Path, cfg_file: Path, cores: int, targets, extra, dry_run: boo
 
 def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, dry_run: bool = False,
                  profile: str | None = None, cfg_file: Path | None = None, verbose: bool = False,
-                 log_name: str = "workflow", label: str = "dascreen", batch: str | None = None) -> int:
+                 log_name: str = "workflow", label: str = "dascreen", batch: str | None = None,
+                 pin: bool = True) -> int:
     """Run the packaged workflow on ``cfg`` in ``out``; return Snakemake's exit code.
+
+    The workflow is pinned to the calibration found now (:func:`calibration_pin`; ``pin=False``: the
+    workflow decides by itself, as a bare snakemake run does).
 
     Parameters
     ----------
@@ -292,6 +393,10 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
         cfg_file.write_text(yaml.safe_dump(cfg.to_dict(), sort_keys=False), encoding="utf-8")
         cmd = _command(out, cfg_file, cores, targets, extra, dry_run, profile)
         env = {**os.environ, STORE_ENV: str(store_location(cfg) or "")}
+        env.pop(PIN_ENV, None)
+        pinned = calibration_pin(cfg, out) if pin else None
+        if pinned is not None:  # the workflow uses this calibration and never fits one by itself
+            env[PIN_ENV] = json.dumps(pinned, sort_keys=True)
         locks = out / ".snakemake" / "locks"
         if locks.is_dir() and any(locks.iterdir()):  # we hold our lock, so Snakemake's is stale
             subprocess.call(cmd + ["--unlock"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env)

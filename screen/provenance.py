@@ -12,7 +12,8 @@ import platform
 from functools import lru_cache
 from pathlib import Path
 
-__all__ = ["provenance", "package_version", "library_versions", "sha256_file", "change_notice"]
+__all__ = ["provenance", "package_version", "library_versions", "sha256_file", "change_notice", "CALIBRATION_FILES",
+           "calibration_record"]
 
 #: libraries whose versions are recorded
 LIBRARIES = ("tblite", "xtb", "rdkit", "numpy", "pandas", "scikit-learn", "ase", "pvlib")
@@ -76,6 +77,67 @@ def sha256_file(path: str | Path, chunk: int = 1 << 20) -> str:
         for block in iter(lambda: handle.read(chunk), b""):
             digest.update(block)
     return digest.hexdigest()
+
+
+#: the model files of a calibration folder, in the order :func:`calibration_record` hashes them (the models of
+#: :data:`screen.calibrate.MODEL_NAMES`, named here: this module imports nothing above the ground floor)
+CALIBRATION_FILES = ("ip.json", "ea.json", "gap_opt.json", "homo_film.json", "lumo_film.json", "gap_opt_film.json")
+
+
+def calibration_record(folder: str | Path) -> dict:
+    """Which calibration a levels file was scored with, for its sidecar (``calibration``).
+
+    Two runs scored with different calibrations had identical ``levels.csv.meta.json`` files (only the models'
+    path; an overnight operator's report). The record tells them apart:
+
+    ``folder``
+        the calibration folder (resolved);
+    ``protocol_id``, ``engine_version``, ``reference_sha256``
+        from the models' fingerprint: the protocol, engine version and reference data the models were fitted on;
+    ``models_sha256``
+        SHA-256 of the model files :data:`CALIBRATION_FILES` read one after the other in that order
+        (``cat ip.json ea.json gap_opt.json homo_film.json lumo_film.json gap_opt_film.json | sha256sum`` in the
+        folder); ``null`` when one of them is missing;
+    ``statistics_sha256``
+        SHA-256 of ``statistics.csv`` (``null`` without one).
+
+    Parameters
+    ----------
+    folder : path-like
+        A ``models/<protocol-id>`` folder.
+
+    Examples
+    --------
+    >>> import json, tempfile
+    >>> folder = Path(tempfile.mkdtemp())
+    >>> for name in CALIBRATION_FILES:
+    ...     _ = (folder / name).write_text(json.dumps({"fingerprint": {"protocol_id": "p-1", "reference_sha256": "ab"}}))
+    >>> record = calibration_record(folder)
+    >>> record["protocol_id"], record["reference_sha256"], len(record["models_sha256"]), record["statistics_sha256"]
+    ('p-1', 'ab', 64, None)
+    >>> (folder / "ip.json").unlink()
+    >>> calibration_record(folder)["models_sha256"] is None
+    True
+    """
+    import json
+
+    folder = Path(folder).resolve()
+    digest = hashlib.sha256()
+    complete = True
+    for name in CALIBRATION_FILES:
+        try:
+            digest.update((folder / name).read_bytes())
+        except OSError:
+            complete = False
+    try:
+        fp = json.loads((folder / "ip.json").read_text(encoding="utf-8")).get("fingerprint") or {}
+    except (OSError, ValueError, AttributeError):
+        fp = {}
+    fp = fp if isinstance(fp, dict) else {}
+    stats = folder / "statistics.csv"
+    return {"folder": str(folder), "protocol_id": fp.get("protocol_id"), "engine_version": fp.get("engine_version"),
+            "reference_sha256": fp.get("reference_sha256"), "models_sha256": digest.hexdigest() if complete else None,
+            "statistics_sha256": sha256_file(stats) if stats.is_file() else None}
 
 
 def change_notice(old_path, old_sha, path: str, sha: str, unknown: str = "a file not recorded") -> tuple[str, bool]:

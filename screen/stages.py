@@ -69,15 +69,90 @@ def _compute(args, cfg):
            "electronic": electronic["status"].value_counts().to_dict()})
 
 
+class CalibrationChanged(Exception):
+    """The calibration a levels job is to use is not the one the run was started with, or no longer matches the
+    run's settings: the job stops with this message (no traceback, no level calibrated)."""
+
+
+def _calibration_fix(folder) -> str:
+    return (f"Run the same `dascreen run` command again: it checks the installed calibration anew and reuses every "
+            f"molecule computed so far; if it then finds no calibration of this run's settings (reference data "
+            f"edited, models not yet refitted), it names the command that refits one from the stored raw values in "
+            f"seconds (`dascreen calibrate --from-raw {folder} ...`)")
+
+
+def _fingerprint_changes(models: dict, cfg, folder) -> list[str]:
+    """How the models' fingerprint differs from the run's (the keys :func:`screen.calibrate.load_models` checks)."""
+    from screen.calibrate import fingerprint
+
+    ref = cfg["calibration"]["reference"]
+    expected = fingerprint(cfg, ref)
+    out = []
+    for key in ("protocol_id", "engine_version", "polymer", "reference_sha256"):
+        found = {json.dumps(m.get("fingerprint", {}).get(key), sort_keys=True) for m in models.values()}
+        if found == {json.dumps(expected[key], sort_keys=True)}:
+            continue
+        if key == "reference_sha256":
+            fitted = ", ".join(f"{json.loads(f) or '?'}"[:12] + "\u2026" for f in sorted(found))
+            out.append(f"the reference data in {ref} are not those the models in {folder} were fitted on (SHA-256 "
+                       f"{expected[key][:12]}\u2026 now; fitted on {fitted})")
+        else:
+            out.append(f"{key}: the models in {folder} have {', '.join(sorted(found))}, this run "
+                       f"{json.dumps(expected[key])}")
+    return out
+
+
+def _pinned_models(folder, cfg, pinned: str):
+    """The models of ``folder`` and their :func:`screen.provenance.calibration_record`, checked.
+
+    ``pinned``: the record of the calibration the ``dascreen`` command found when it started the workflow (JSON
+    text, :data:`screen.launch.PIN_ENV`; ``""`` for a bare snakemake run). The model files must still be those
+    (same SHA-256) and still match the run's settings and reference data; otherwise :class:`CalibrationChanged`
+    says what changed and the fix.
+    """
+    from screen.calibrate import CalibrationError, load_models
+    from screen.provenance import calibration_record
+
+    record = calibration_record(folder)
+    pin = json.loads(pinned) if pinned else None
+    changed = []
+    if pin and pin.get("models_sha256") != record["models_sha256"]:
+        now = (f"{record['models_sha256'][:12]}\u2026 now" if record["models_sha256"] else
+               "now a model file is missing")
+        changed.append(f"{record['folder']} holds other model files than at the start (SHA-256 {str(pin.get('models_sha256'))[:12]}"
+                       f"\u2026 when the run was started, {now})")
+    try:
+        models = load_models(folder, cfg, check=False)
+    except CalibrationError as exc:  # a model file missing or unreadable
+        models = None
+        if not changed:
+            changed.append(str(exc).split("; run `dascreen calibrate`")[0])
+    changed += _fingerprint_changes(models, cfg, record["folder"]) if models else []
+    if not changed:
+        return models, record
+    if pin:
+        raise CalibrationChanged(
+            f"the calibration changed during this run: {'; '.join(changed)}; no level was calibrated with it. "
+            f"{_calibration_fix(record['folder'])}")
+    # a bare snakemake run: the models it chose at the start no longer match
+    raise CalibrationChanged(
+        f"the calibration in {record['folder']} no longer matches this run: {'; '.join(changed)}. It may have "
+        "changed since the workflow started: start the workflow again (with calibration.refit: auto it then fits a "
+        f"calibration of its own, hours), or install a matching one (`dascreen calibrate --from-raw "
+        f"{record['folder']} ...`)")
+
+
 def _levels(args, cfg):
     from screen.io import write_csv, write_json
     from screen.levels import sidecar_path, summarise
 
+    models = calibration = None
+    if args.models:  # checked before anything is read: a changed calibration stops the job at once
+        models, calibration = _pinned_models(args.models, cfg, args.pinned)
     levels, sidecar = _read_computed(args.manifest, args.electronic, cfg)
-    if args.models:
-        from screen.calibrate import apply_models, load_models
+    if models is not None:
+        from screen.calibrate import apply_models
 
-        models = load_models(args.models, cfg)
         levels = apply_models(levels, models, scale=cfg["levels"]["scale"])
     write_csv(levels, args.out)
     side_path = sidecar_path(args.out)
@@ -86,7 +161,8 @@ def _levels(args, cfg):
     elif side_path.is_file():
         side_path.unlink()
     meta = {**provenance(cfg), "counts": summarise(levels), "input": args.input or cfg["candidates"],
-            "scale": cfg["levels"]["scale"], "models": args.models or None, "polymer": cfg["polymer"],
+            "scale": cfg["levels"]["scale"], "models": args.models or None, "calibration": calibration,
+            "polymer": cfg["polymer"],
             "oligomers": str(side_path) if len(sidecar) else None}
     write_json(meta, f"{args.out}.meta.json" if not args.meta else args.meta)
     print(json.dumps(summarise(levels)))
@@ -182,6 +258,9 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--out", required=True)
     p.add_argument("--meta", default="")
     p.add_argument("--input", default="", help="what the batch was made from (default: the candidates file)")
+    p.add_argument("--pinned", default="",
+                   help="JSON record of the calibration the dascreen command started the run with (it must still be "
+                        "the one in --models)")
     p = sub.add_parser("reference-input")
     p.add_argument("--reference", required=True)
     p.add_argument("--out", required=True)
@@ -205,7 +284,11 @@ def main(argv: list[str] | None = None) -> int:
     handler = {"prepare": _prepare, "structures": _structures, "electronic": _electronic, "compute": _compute,
                "levels": _levels, "reference-input": _reference_input, "calibrate": _calibrate, "rank": _rank,
                "partner-input": _partner_input}
-    handler[args.stage](args, cfg)
+    try:
+        handler[args.stage](args, cfg)
+    except CalibrationChanged as exc:  # one message in the job's log, no traceback (the dascreen command repeats it)
+        print(f"dascreen: error: {exc}", file=sys.stderr)
+        return 2
     return 0
 
 

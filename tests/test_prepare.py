@@ -974,7 +974,7 @@ def test_ids_differing_only_by_surrounding_blanks_are_one_id(tmp_path: Path) -> 
     out = validate(read_candidates(path))
     assert list(out.id) == ["dup", "dup", "x"]
     assert list(out.status) == ["ok", "rejected", "ok"]
-    assert out.reason[1] == "duplicate_id" and "line 2 of a CSV file" in out.error[1]
+    assert out.reason[1] == "duplicate_id" and "line 2 of c.csv" in out.error[1]
 
 
 @pytest.mark.parametrize(("header", "name", "columns"), [

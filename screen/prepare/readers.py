@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import csv
 import gzip
+from array import array
 import io
 import os
 import re
@@ -38,7 +39,29 @@ from screen.io import separator_problem
 from screen.prepare.checks import snippet as _snippet
 from screen.prepare.shards import MANIFEST_COLUMNS
 
-__all__ = ["read_candidates", "assign_missing_ids"]
+__all__ = ["read_candidates", "assign_missing_ids", "INPUT_LINES", "input_line"]
+
+#: key of ``frame.attrs`` where :func:`read_candidates` records each row's place in the file: ``{"file": name,
+#: "format": "csv"|"smi"|"sdf", "lines": array of the first file line of row 0, of row 1, ...}`` (1-based, counting
+#: the header, blank and comment lines; an SD record's title line)
+INPUT_LINES = "dascreen_input_lines"
+
+
+def input_line(frame: pd.DataFrame, row: int) -> int | None:
+    """The file line (1-based) of the input row ``row`` (0-based, the ``row`` column) of a frame read by
+    :func:`read_candidates`; ``None`` when the frame does not record it.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "c.csv"
+    >>> _ = path.write_text("id,smiles\\n\\nA,c1ccsc1\\n\\n\\nB,c1ccoc1\\n", encoding="utf-8")
+    >>> frame = read_candidates(path)
+    >>> input_line(frame, 0), input_line(frame, 1), input_line(pd.DataFrame(), 0)
+    (3, 6, None)
+    """
+    lines = (frame.attrs.get(INPUT_LINES) or {}).get("lines") or []
+    return lines[row] if 0 <= row < len(lines) else None
 
 #: Names a passthrough column may not take (it would clash with a column this stage writes).
 #: names the tool writes into levels.csv or ranking.csv: an input column of such a name is passed through as
@@ -143,15 +166,18 @@ def _check_repeated_columns(path: Path, header: list[str]) -> None:
         first[same] = i
 
 
-def _read_csv(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
-    """Parse candidate CSV text into row dicts and the passthrough column names."""
+def _read_csv(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], list[int]]:
+    """Parse candidate CSV text into row dicts, the passthrough column names and each row's first file line."""
     reader = csv.reader(io.StringIO(text, newline=""))
     header: list[str] | None = None
     records: list[dict[str, str]] = []
     mapping: dict[int, str] = {}
     passthrough: list[str] = []
+    lines: list[int] = []
     try:
+        before = 0  # lines read before this record: it starts on the next one
         for fields in reader:
+            start, before = before + 1, reader.line_num
             if header is None:
                 if not fields or all(not f.strip() for f in fields):
                     continue
@@ -189,9 +215,10 @@ def _read_csv(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
                     "the row is not trusted"
                 )
             records.append(record)
+            lines.append(start)
     except csv.Error as exc:
         raise InputError(f"{path}: CSV error near line {reader.line_num}: {exc}") from None
-    return records, passthrough
+    return records, passthrough, lines
 
 
 def _refuse_csv_as_smi(path: Path, line: str) -> None:
@@ -214,11 +241,12 @@ not SMILES<whitespace>id); rename it to .csv
     raise InputError(f"{path} looks like comma-separated CSV (its first line {_snippet(line)} {what}); {hint}")
 
 
-def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
-    """Parse a SMILES file (``SMILES<whitespace>id`` per line)."""
+def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], list[int]]:
+    """Parse a SMILES file (``SMILES<whitespace>id`` per line); also each record's file line."""
     records: list[dict[str, str]] = []
+    lines: list[int] = []
     first_data = True
-    for line in text.splitlines():
+    for number, line in enumerate(text.splitlines(), start=1):
         stripped = line.strip()
         if not stripped or stripped.startswith("#"):
             continue
@@ -242,7 +270,8 @@ def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
                 "read_error": "",
             }
         )
-    return records, []
+        lines.append(number)
+    return records, [], lines
 
 
 def _sdf_records(text: str) -> list[str]:
@@ -372,8 +401,22 @@ def _repeated_r_labels(mol) -> str:
             "a polymer repeat unit; mark the two ends of a repeat unit R1 and R2")
 
 
-def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
-    """Parse an SD file; unreadable records become rows with a read error."""
+def _sdf_starts(text: str) -> list[int]:
+    """The file line (1-based) on which each record of :func:`_sdf_records` starts."""
+    starts, start, filled = [], 1, False
+    for number, line in enumerate(text.splitlines(), start=1):
+        if line.strip() == "$$$$":
+            starts.append(start)
+            start, filled = number + 1, False
+        else:
+            filled = filled or bool(line.strip())
+    if filled:
+        starts.append(start)
+    return starts
+
+
+def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], list[int]]:
+    """Parse an SD file; unreadable records become rows with a read error. Also each record's first file line."""
     records: list[dict[str, str]] = []
     passthrough: list[str] = []
     column_of: dict[str, str] = {}
@@ -413,7 +456,7 @@ def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str]]:
     for record in records:
         for col in passthrough:
             record.setdefault(col, "")
-    return records, passthrough
+    return records, passthrough, _sdf_starts(text)
 
 
 def assign_missing_ids(ids: list[str], rows: list[int]) -> tuple[list[str], list[str]]:
@@ -471,11 +514,11 @@ def read_candidates(path: str | os.PathLike[str]) -> pd.DataFrame:
     fmt, gz = _format_of(path)
     text = _read_text(path, gz)
     if fmt == "csv":
-        records, passthrough = _read_csv(path, text)
+        records, passthrough, lines = _read_csv(path, text)
     elif fmt == "smi":
-        records, passthrough = _read_smi(path, text)
+        records, passthrough, lines = _read_smi(path, text)
     else:
-        records, passthrough = _read_sdf(path, text)
+        records, passthrough, lines = _read_sdf(path, text)
     rows = list(range(len(records)))
     ids, notes = assign_missing_ids([r["id"] for r in records], rows)
     columns: dict[str, list[Any]] = {
@@ -494,5 +537,9 @@ def read_candidates(path: str | os.PathLike[str]) -> pd.DataFrame:
     for col in frame.columns:
         if col != "row":
             frame[col] = frame[col].astype(object)
+    # where each row is in the file, for messages that point at it (:func:`screen.prepare.validate`)
+    # (an array: pandas deep-copies attrs with every operation, and a list of 100 000 numbers costs 20 ms each time)
+    frame.attrs[INPUT_LINES] = {"file": path.name, "format": fmt,
+                                "lines": array("q", lines if len(lines) == len(records) else [])}
     return frame
 

@@ -23,6 +23,7 @@ from screen.io import cell_text as _text
 from screen.prepare.checks import REASON_CODES, _check_structure, _Checked
 from screen.prepare.checks import snippet as _snippet
 from screen.prepare.options import PrepareOptions
+from screen.prepare.readers import INPUT_LINES
 from screen.prepare.readers import assign_missing_ids as _assign_missing_ids
 from screen.prepare.shards import MANIFEST_COLUMNS
 
@@ -82,6 +83,7 @@ def validate(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) ->
     def column(name: str) -> list[str]:
         return [_text(v) for v in frame[name]] if name in frame.columns else [""] * n
 
+    where = _places(frame, rows)
     smiles_in = column(smiles_col)
     # ids without surrounding blanks (as roles): " dup " is the id dup, so a repeat of it is a duplicate_id
     ids, id_notes = _assign_missing_ids([ident.strip() for ident in column("id")], rows)
@@ -89,15 +91,15 @@ def validate(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) ->
     roles_raw = column("role")
     read_errors = column("read_error")
     out: dict[str, list] = {name: [] for name in _OUTPUT_COLUMNS}
-    first_row_of_id: dict[str, int] = {}
+    first_place_of_id: dict[str, tuple[str, str]] = {}
     first_id_of_key: dict[str, str] = {}
     for i in range(n):
         ident = ids[i]
         role = roles_raw[i].strip().lower()
         checked, reason, error = _check_row(
-            smiles_in[i], read_errors[i], roles_raw[i], ident, first_row_of_id, options
+            smiles_in[i], read_errors[i], roles_raw[i], ident, first_place_of_id, options, where[i]
         )
-        first_row_of_id.setdefault(ident, rows[i])
+        first_place_of_id.setdefault(ident, where[i])
         key = ""
         duplicate_of = ""
         if not reason:
@@ -124,6 +126,37 @@ _OUTPUT_COLUMNS = ("key", "smiles", "status", "reason", "error", "duplicate_of",
                    "heavy_atoms", "note", "representation")
 
 
+def _places(frame: pd.DataFrame, rows: list[int]) -> list[tuple[str, str]]:
+    """Where each row is, in words a user can look up (long, and short for the row itself): the line of the
+    candidate file when the frame was read by :func:`screen.prepare.read_candidates` (1-based, counting the header
+    and blank lines), else its 0-based position (a frame built in code) and where that is in a plain file.
+
+    Examples
+    --------
+    >>> _places(pd.DataFrame({"id": ["a"]}), [0])[0][0]
+    'row 0 (0-based; line 2 of a CSV file with its header and no blank line, SD record 1)'
+    >>> frame = pd.DataFrame({"id": ["a", "b"]})
+    >>> frame.attrs[INPUT_LINES] = {"file": "c.sdf", "format": "sdf", "lines": [1, 40]}
+    >>> _places(frame, [0, 1])[1]
+    ('SD record 2 (line 40) of c.sdf', 'SD record 2, line 40')
+    >>> frame.attrs[INPUT_LINES] = {"file": "c.csv", "format": "csv", "lines": [3, 6]}
+    >>> _places(frame, [0, 1])[1]
+    ('the row on line 6 of c.csv', 'line 6')
+    """
+    found = frame.attrs.get(INPUT_LINES) or {}
+    lines, name = found.get("lines") or [], found.get("file") or "the candidate file"
+    out = []
+    for row in rows:
+        if not 0 <= row < len(lines):  # a frame built in code: where the row would be in a file
+            out.append((f"row {row} (0-based; line {row + 2} of a CSV file with its header and no blank line, "
+                        f"SD record {row + 1})", f"row {row}"))
+        elif found.get("format") == "sdf":
+            out.append((f"SD record {row + 1} (line {lines[row]}) of {name}", f"SD record {row + 1}, line {lines[row]}"))
+        else:
+            out.append((f"the row on line {lines[row]} of {name}", f"line {lines[row]}"))
+    return out
+
+
 def _smiles_column(frame: pd.DataFrame) -> str:
     """Name of the column holding the input SMILES; check that the frame has an id column."""
     if "smiles_input" in frame.columns:
@@ -147,10 +180,11 @@ def _check_row(
     read_error: str,
     role_raw: str,
     ident: str,
-    first_row_of_id: dict[str, int],
+    first_place_of_id: dict[str, tuple[str, str]],
     options: PrepareOptions,
+    here: tuple[str, str] = ("", ""),
 ) -> tuple[_Checked, str, str]:
-    """Check one row: read error, structure, role, repeated id.
+    """Check one row: read error, structure, role, repeated id (``here``: where the row is, :func:`_places`).
 
     Returns the structure check result and the row's reason code and message (``''`` if ok).
     Any unexpected exception becomes ``internal_error``: the batch goes on.
@@ -171,13 +205,14 @@ def _check_row(
         if not reason and role_raw.strip().lower() not in _ROLES:
             reason = "bad_role"
             error = f"role {_snippet(role_raw)} is not one of 'donor', 'acceptor', 'dye' or empty"
-        if not reason and ident in first_row_of_id:
-            first = first_row_of_id[ident]
+        if not reason and ident in first_place_of_id:
+            # before: "row 0 (0-based, as in the 'row' column of levels.csv: line 2 ...)", a column levels.csv does
+            # not have and a line that missed the blank lines (an overnight operator's report)
             reason = "duplicate_id"
+            this = f" ({here[1]})" if here[1] else ""
             error = (
-                f"id {_snippet(ident)} is already used by row {first} (0-based, as in the 'row' column of "
-                f"levels.csv: line {first + 2} of a CSV file with its header, record {first + 1} of an SDF); ids "
-                "must be unique, so this row is not screened"
+                f"id {_snippet(ident)} is already used by {first_place_of_id[ident][0]}; ids must be unique, so "
+                f"this row{this} is not screened (the first one keeps the id in levels.csv); give it another id"
             )
     except Exception as exc:  # the batch goes on whatever happens to one row
         reason = "internal_error"
@@ -201,6 +236,7 @@ def _assemble(
     for name, values in out.items():
         data[name] = pd.Series(values, dtype="Int64" if name == "heavy_atoms" else object)
     result = pd.DataFrame({name: data[name] for name in MANIFEST_COLUMNS})
+    result.attrs.update(frame.attrs)  # where the rows are in the file: validating the output again says the same
     own = set(MANIFEST_COLUMNS) | {"read_error", smiles_col}
     for col in frame.columns:
         if col not in own:

@@ -5,6 +5,7 @@ from pathlib import Path
 
 from screen.calibrate import find_models, reference_files
 from screen.config import Config
+from screen.launch import pinned_calibration
 
 # the one configuration object of the workflow process: validated once, protocol id computed once
 CFG = Config.of(config, "snakemake configuration")
@@ -19,8 +20,23 @@ REFERENCE_FILES = reference_files(REFERENCE)
 INPUTS = {"candidates": CFG["candidates"], "reference": f"{WORK}/reference/input.csv"}
 MAX_SHARDS = 400
 
-# Calibration: use a shipped model whose fingerprint matches this protocol, else fit one here.
-SHIPPED = None if CFG["calibration"]["refit"] == "always" else find_models(CFG)
+# Calibration. A run started by the dascreen command is pinned to the calibration its pre-flight check found
+# (screen.launch.calibration_pin, environment variable DASCREEN_CALIBRATION_PIN): that folder is used and no
+# calibration is ever fitted here (the rules of rules/calibrate.smk are left out); the levels jobs stop with one
+# message if it is no longer the same (screen.stages, --pinned). A bare snakemake run decides here: a shipped model
+# whose fingerprint matches this protocol, else (calibration.refit: auto or always) one fitted here.
+PIN = pinned_calibration()
+PIN_TEXT = json.dumps(PIN, sort_keys=True) if PIN else ""
+if PIN is not None and not PIN["folder"]:
+    raise WorkflowError(
+        f"dascreen found no calibration in {CFG['calibration']['models']} that matches this run's settings when it "
+        "started the workflow (it may have changed since its check), and a run started by dascreen never fits one "
+        "it did not announce; run the same dascreen command again (it says what differs and how to calibrate)"
+    )
+if PIN is not None:
+    SHIPPED = Path(PIN["folder"])
+else:
+    SHIPPED = None if CFG["calibration"]["refit"] == "always" else find_models(CFG)
 if SHIPPED is None and CFG["calibration"]["refit"] == "never":
     raise WorkflowError(
         f"no calibration model in {CFG['calibration']['models']}/{PROTOCOL} matches this protocol and "

@@ -43,6 +43,7 @@ rule partner_levels:
     params:
         py=PY,
         cfg=sections("structures", "electronic", "levels", "calibration"),
+        pinned=PIN_TEXT,
         made_from=lambda wildcards: f"{WORK}/{wildcards.batch}/input.csv",
     log:
         f"{LOGS}/{{batch}}/levels.log",
@@ -51,4 +52,4 @@ rule partner_levels:
     shell:
         "{params.py} -m screen.stages --config {params.cfg:q} levels --manifest {input.outdir:q}/manifest.csv"
         " --electronic {input.electronic:q} --models {input.models:q} --out {output.levels:q}"
-        " --meta {output.meta:q} --input {params.made_from:q} > {log:q} 2>&1"
+        " --meta {output.meta:q} --pinned={params.pinned:q} --input {params.made_from:q} > {log:q} 2>&1"
