@@ -81,6 +81,11 @@ def run_journalled(items: Iterable, key: Callable, compute: Callable[[object], d
     dict
         Records by key: earlier ones from the journal and the new ones.
 
+    Notes
+    -----
+    The job's log ends with how many molecules were resumed from the journal (an interrupted attempt finished
+    them), came from the results store and were computed (:func:`report_store_hits`).
+
     Examples
     --------
     >>> import io, tempfile, pathlib
@@ -101,8 +106,9 @@ def run_journalled(items: Iterable, key: Callable, compute: Callable[[object], d
     for i, item in enumerate(todo, 1):
         rec = journalled(item, key, compute, journal, done, cache)
         progress.report(i, len(todo), rec["key"])
-    if todo:
-        report_store_hits(progress, cache, len(todo))
+    resumed = len(items) - len(todo)
+    if todo or resumed:
+        report_store_hits(progress, cache, len(todo), resumed=resumed)
     return done
 
 
@@ -137,8 +143,14 @@ def journalled(item, key: Callable, compute: Callable[[object], dict], journal: 
     return rec
 
 
-def report_store_hits(progress: Progress, cache, n_items: int, what: str = "") -> None:
-    """Log line ``<label>: <hits> of <n> molecules from the results store[ (<what>)]`` (nothing without a store).
+def report_store_hits(progress: Progress, cache, n_items: int, what: str = "", resumed: int = 0) -> None:
+    """Log line ``<label>: <hits> of <n> molecules from the results store, <n - hits> computed[; <r> resumed from
+    the journal ...][ (<what>)]`` for the ``n_items`` molecules a job had to do (nothing without a store, unless
+    ``resumed``).
+
+    ``resumed``: molecules of the shard an earlier, interrupted attempt finished (read from the journal, not
+    counted in ``n_items``): an overnight operator could not tell from the logs what the night's interruptions
+    cost.
 
     Examples
     --------
@@ -147,11 +159,16 @@ def report_store_hits(progress: Progress, cache, n_items: int, what: str = "") -
     ...     hits = 2
     >>> p = Progress("electronic shard-000", stream=io.StringIO())
     >>> report_store_hits(p, Cache(), 5, "electronic")
+    >>> report_store_hits(p, None, 3, resumed=7)
     >>> print(p.stream.getvalue(), end="")
-    electronic shard-000: 2 of 5 molecules from the results store (electronic)
+    electronic shard-000: 2 of 5 molecules from the results store, 3 computed (electronic)
+    electronic shard-000: 3 molecules computed; 7 more resumed from the journal (an interrupted attempt finished them)
     """
-    if cache is None:
+    if cache is None and not resumed:
         return
     suffix = f" ({what})" if what else ""
-    print(f"{progress.label}: {cache.hits} of {n_items} molecules from the results store{suffix}",
-          file=progress.stream, flush=True)
+    counts = (f"{cache.hits} of {n_items} molecules from the results store, {n_items - cache.hits} computed"
+              if cache is not None else f"{n_items} molecules computed")
+    if resumed:
+        counts += f"; {resumed} more resumed from the journal (an interrupted attempt finished them)"
+    print(f"{progress.label}: {counts}{suffix}", file=progress.stream, flush=True)

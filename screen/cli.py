@@ -87,10 +87,11 @@ def cmd_run(args) -> int:
     # pinned to the calibration checked above: the workflow never fits one this command did not announce, and its
     # levels job stops with one message if the calibration changes during the run (screen.launch.calibration_pin)
     rc = run_workflow(cfg, out, args.cores, extra=args.snakemake_args, dry_run=args.dry_run, profile=args.profile,
-                      verbose=args.verbose)
+                      verbose=args.verbose, explain=False)  # the one line below says why
     if rc != 0:
-        print(f"dascreen: the workflow stopped with exit code {rc}{_why_stopped(out, args)}; job logs in {out}/logs/",
-              file=sys.stderr)
+        whole = "" if args.verbose or args.dry_run else f"; the engine's whole log: {out / 'logs' / 'workflow.log'}"
+        print(f"dascreen: the workflow stopped with exit code {rc}{_why_stopped(out, args)}; job logs in {out}/logs/"
+              f"{whole}", file=sys.stderr)
         return EXIT_ERROR
     if args.dry_run:
         return EXIT_OK
@@ -107,7 +108,8 @@ def _why_stopped(out: Path, args) -> str:
     """``": <cause>"`` for the one-line message of a failed run (a full disk, a job's own message), else ``""``.
 
     A full disk was said only in a job log while the console said "Please ensure write permissions" (an
-    overnight operator's report): :func:`screen.launch.failure_cause` reads the engine's log."""
+    overnight operator's report): :func:`screen.launch.failure_cause` reads the engine's log. This line is all the
+    console gets of a failure: the engine's error text (each failed job's command line twice) stays in the log."""
     from screen.launch import failure_cause
 
     if args.verbose or args.dry_run:  # the engine's log went to the terminal
@@ -977,7 +979,9 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return args.func(args)
     except DascreenError as exc:  # refused input or a failed calculation: one message, no traceback
-        kind = "configuration error" if isinstance(exc, ConfigError) else "error"
+        # a class may name itself (errors.FolderInUse: "folder in use", not a configuration problem)
+        kind = getattr(exc, "console_kind", None) or ("configuration error" if isinstance(exc, ConfigError)
+                                                       else "error")
         print(f"dascreen: {kind}: {exc}", file=sys.stderr)
         return exit_code(exc)
     except FileNotFoundError as exc:  # a named file that does not exist is the user's input, not a bug

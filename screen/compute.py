@@ -303,9 +303,12 @@ def run_compute(shard_csv, out_sdf, out_csv, out_electronic, structures: Structu
             state.levels(status_row(state.structure((key, smiles[key]), build)), levels)
             state.store()
             progress.report(i, len(todo), key)
+    resumed = len(shard) - len(todo)  # finished by an earlier, interrupted attempt (journal)
     if todo:
         for cache, what in zip(state.caches, ("structures", "electronic")):
-            report_store_hits(progress, cache, len(todo), what)
+            report_store_hits(progress, cache, len(todo), what, resumed=resumed)
+    elif resumed:
+        report_store_hits(progress, None, 0, resumed=resumed)
     tables = (write_structures(shard["key"], state.done[0], out_sdf, out_csv),
               write_electronic(shard["key"], state.done[1], out_electronic))
     for journal in state.journals:

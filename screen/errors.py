@@ -7,6 +7,7 @@ caller (the CLI above all) chooses what to do by class, never by parsing text:
 class                 meaning                                    CLI exit
 ====================  =========================================  =========
 ``ConfigError``       a bad option, config file or schema value  2
+``FolderInUse``       another run holds the run folder's lock    2
 ``InputError``        a bad input file, levels file or partner   2
 ``ScaleMismatchError`` levels on different energy scales         2
 ``CalculationError``  a quantum-chemistry or fitting step failed 1
@@ -25,7 +26,7 @@ Examples
 
 from __future__ import annotations
 
-__all__ = ["DascreenError", "ConfigError", "InputError", "ScaleMismatchError", "CalculationError",
+__all__ = ["DascreenError", "ConfigError", "FolderInUse", "InputError", "ScaleMismatchError", "CalculationError",
            "exit_code", "EXIT_USAGE", "EXIT_FAILURE"]
 
 #: exit code of a refused file or option (nothing was computed)
@@ -44,6 +45,13 @@ class ConfigError(DascreenError, ValueError):
     """A configuration problem: names the file (or ``--set``), the field and what is allowed."""
 
     exit_code = EXIT_USAGE
+
+
+class FolderInUse(ConfigError):
+    """Another ``dascreen`` run holds the run folder's lock: not a configuration problem, but refused like one
+    (exit code 2, nothing computed); the command line says ``dascreen: folder in use: ...``."""
+
+    console_kind = "folder in use"
 
 
 class InputError(DascreenError, ValueError):

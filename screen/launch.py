@@ -6,8 +6,12 @@ folder's lock, tells the jobs where the results store is (environment variable
 default the workflow engine's own log goes to ``OUT/logs/<name>.log`` and the
 terminal shows one progress bar (molecules done / total, rate, ETA), or plain
 lines every minute when standard error is not a terminal; ``verbose`` shows
-Snakemake's log as it runs.  When the workflow fails, its error part is
-printed in full, with the path of the whole log.
+Snakemake's log as it runs.  When the workflow fails, the console gets one line: the cause
+(:func:`failure_cause`) and the path of the whole log; the engine's text (its error part repeats each
+failed job's command line, 2 kB of JSON twice, an overnight operator's report) stays in the log.  A new
+attempt in the same folder keeps the logs of the earlier ones (``workflow.1.log`` the last one, up to
+:data:`KEEP_LOGS`), each log opened and closed by a dated ``# dascreen:`` line that says how the attempt
+ended (an exit code, or the signal that stopped it).
 
 Snakemake runs in ``dascreen``'s own process group, so a signal to the group (Ctrl-C in
 a terminal, ``kill -- -PGID``, SIGKILL of the whole group) reaches every process at once.
@@ -39,10 +43,10 @@ from pathlib import Path
 import yaml
 
 from screen.config import Config
-from screen.errors import ConfigError
+from screen.errors import ConfigError, FolderInUse
 
-__all__ = ["WORKFLOW", "STOP_GRACE_S", "PIN_ENV", "run_workflow", "error_excerpt", "calibration_pin", "pinned_calibration",
-           "failure_cause"]
+__all__ = ["WORKFLOW", "STOP_GRACE_S", "PIN_ENV", "KEEP_LOGS", "run_workflow", "error_excerpt",
+           "calibration_pin", "pinned_calibration", "failure_cause", "rotate_log"]
 
 WORKFLOW = Path(__file__).parent / "workflow" / "Snakefile"
 #: environment variable that hands the workflow the calibration the ``dascreen`` command pinned (JSON of
@@ -50,6 +54,10 @@ WORKFLOW = Path(__file__).parent / "workflow" / "Snakefile"
 PIN_ENV = "DASCREEN_CALIBRATION_PIN"
 #: seconds the workflow's process group has to stop after the signal before it is killed [s]
 STOP_GRACE_S = 30.0
+#: logs of earlier attempts kept next to the workflow log (``workflow.1.log`` the last one ... ``workflow.9.log``)
+KEEP_LOGS = 9
+
+
 
 _ERROR_START = re.compile(r"^(Error in rule|Error:|WorkflowError|RuleException|MissingInputException|"
                           r"Traceback|.*Exception( in rule|:))")
@@ -74,6 +82,15 @@ def error_excerpt(log_text: str, tail: int = 80) -> str:
 
 _ERRNO = re.compile(r"\[Errno (\d+)\] ([A-Za-z][^:\]\)\n'\"]*)")
 _STAGE_ERROR = re.compile(r"^dascreen: error: (.+)$", re.M)
+#: a Python exception's last line in a job log the engine quotes (``module.SomeError: text``)
+_EXCEPTION = re.compile(r"^(?:[A-Za-z_][\w]*\.)*([A-Za-z_]\w*(?:Error|Exception)): (\S.*)$", re.M)
+#: the engine's own wrappers, which say nothing about the cause
+_ENGINE_EXCEPTIONS = {"WorkflowError", "RuleException", "CalledProcessError", "MissingInputException",
+                      "MissingOutputException", "IncompleteFilesException", "LockException"}
+_FAILED_RULE = re.compile(r"^Error in rule (\S+?):\s*$", re.M)
+_RULE_LOG = re.compile(r"^\s+log: (\S+)", re.M)
+#: longest cause on the console line [characters]
+_CAUSE_MAX = 400
 
 
 def failure_cause(log_text: str) -> str | None:
@@ -81,7 +98,8 @@ def failure_cause(log_text: str) -> str | None:
 
     A full disk first (the system's text, e.g. ``No space left on device``: the engine's own line about it said
     "Please ensure write permissions", an overnight operator's report), then a job's own ``dascreen: error:``
-    message (a calibration that changed during the run), then any other system error.
+    message (a calibration that changed during the run), then any other system error, then the last Python
+    exception a job log ends with (``CalibrationMismatchError: ...``), then the failed job and its log.
 
     Examples
     --------
@@ -90,6 +108,11 @@ def failure_cause(log_text: str) -> str | None:
     'No space left on device (errno 28, ENOSPC): the disk ... is full; free space ... and run the same command again ...'
     >>> failure_cause("Traceback ...\\nPermissionError: [Errno 13] Permission denied: '/r/x'")
     'Permission denied (errno 13, EACCES)'
+    >>> failure_cause("Error in rule levels:\\n  jobid: 1\\nTraceback (most recent call last):\\n"
+    ...               "screen.calibrate.CalibrationMismatchError: model x does not belong to this run")
+    'CalibrationMismatchError: model x does not belong to this run (job levels)'
+    >>> failure_cause("Error in rule x:\\n    log: /r/logs/x.log (check log file(s) for error details)\\n")
+    'job x failed; its log: /r/logs/x.log'
     >>> failure_cause("Error in rule x:\\n  boom") is None
     True
     """
@@ -106,6 +129,15 @@ def failure_cause(log_text: str) -> str | None:
         return stage.group(1).strip()
     for number, text in found.items():
         return f"{text} (errno {number}, {errno.errorcode.get(number, '?')})"
+    rules = list(dict.fromkeys(_FAILED_RULE.findall(log_text)))
+    jobs = f" (job{'s' if len(rules) > 1 else ''} {', '.join(rules)})" if rules else ""
+    raised = [m for m in _EXCEPTION.finditer(log_text) if m.group(1) not in _ENGINE_EXCEPTIONS]
+    if raised:
+        text = f"{raised[-1].group(1)}: {raised[-1].group(2).strip()}"
+        return (text if len(text) <= _CAUSE_MAX else text[:_CAUSE_MAX - 1] + "…") + jobs
+    logs = _RULE_LOG.findall(log_text)
+    if rules and logs:
+        return f"job{'s' if len(rules) > 1 else ''} {', '.join(rules)} failed; its log: {logs[0]}"
     return None
 
 
@@ -278,7 +310,8 @@ def _lock(out: Path):
         fcntl.flock(lock, fcntl.LOCK_EX | fcntl.LOCK_NB)
     except BlockingIOError:
         lock.close()
-        raise ConfigError(f"another dascreen run is using {out}; wait for it or choose another --out") from None
+        raise FolderInUse(f"another dascreen run is using {out}; wait for it to finish (`dascreen status --out "
+                          f"{out}`) or choose another --out") from None
     return lock
 
 
@@ -339,7 +372,7 @@ def _command(out: Path, cfg_file: Path, cores: int, targets, extra, dry_run: boo
 def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, dry_run: bool = False,
                  profile: str | None = None, cfg_file: Path | None = None, verbose: bool = False,
                  log_name: str = "workflow", label: str = "dascreen", batch: str | None = None,
-                 pin: bool = True) -> int:
+                 pin: bool = True, explain: bool = True) -> int:
     """Run the packaged workflow on ``cfg`` in ``out``; return Snakemake's exit code.
 
     The workflow is pinned to the calibration found now (:func:`calibration_pin`; ``pin=False``: the
@@ -373,11 +406,14 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
     batch : str, optional
         Count only this batch (``OUT/work/<batch>``) in the progress display: a ``smiles:`` partner's
         computation is one molecule, not the whole run folder.
+    explain : bool
+        On a failure (not verbose), print one line with the cause and the log's path; ``False``: the caller
+        says it (``dascreen run`` ends with its own one line, :func:`screen.cli._why_stopped`).
 
     Raises
     ------
     ConfigError
-        Another ``dascreen`` holds the folder's lock, or ``out`` cannot be created (the path and the system's
+        Another ``dascreen`` holds the folder's lock (:class:`FolderInUse`), or ``out`` cannot be created (the path and the system's
         reason; before, a traceback).
     """
     from screen.preflight import make_out_folder
@@ -408,30 +444,93 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
         if verbose or dry_run:
             print("dascreen: snakemake --cores", cores, "in", out, flush=True)
             return _wait(_start(cmd, env, pass_fds=hold))
-        return _quiet(cmd, env, out, out / "logs" / f"{log_name}.log", label, hold, batch)
+        return _quiet(cmd, env, out, out / "logs" / f"{log_name}.log", label, hold, batch, explain=explain)
     finally:
         lock.close()
 
 
-def _quiet(cmd: list[str], env: dict, out: Path, log_path: Path, label: str, hold=(), batch: str | None = None) -> int:
-    """Snakemake with its log in a file and a progress display; the error part printed on failure.
+def rotate_log(log_path: Path, keep: int = KEEP_LOGS) -> Path | None:
+    """Keep the log of the earlier attempt: ``name.log`` → ``name.1.log`` → ``name.2.log`` ... (``keep`` of
+    them, the oldest dropped); return where the earlier log went (``None``: there was none).
 
-    ``hold``: file descriptors the engine inherits (the run folder's lock)."""
+    An overnight operator's report: every attempt overwrote ``logs/workflow.log``, so the night's
+    interruptions were not recorded.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> log = Path(tempfile.mkdtemp()) / "workflow.log"
+    >>> for attempt in "abc":
+    ...     _ = rotate_log(log, keep=1)
+    ...     _ = log.write_text(attempt)
+    >>> sorted(p.name for p in log.parent.iterdir()), log.with_name("workflow.1.log").read_text()
+    (['workflow.1.log', 'workflow.log'], 'b')
+    """
+    if not log_path.exists():
+        return None
+
+    def nth(k: int) -> Path:
+        return log_path.with_name(f"{log_path.stem}.{k}{log_path.suffix}")
+
+    try:
+        nth(keep).unlink(missing_ok=True)
+        for k in range(keep - 1, 0, -1):
+            if nth(k).exists():
+                os.replace(nth(k), nth(k + 1))
+        if keep >= 1:
+            os.replace(log_path, nth(1))
+        return nth(1) if keep >= 1 else None
+    except OSError:  # a full disk or a read-only log folder must not stop the run: the log is overwritten
+        return None
+
+
+def _stamp() -> str:
+    import time
+
+    return time.strftime("%Y-%m-%d %H:%M:%S %z")
+
+
+def _quiet(cmd: list[str], env: dict, out: Path, log_path: Path, label: str, hold=(), batch: str | None = None,
+           explain: bool = True) -> int:
+    """Snakemake with its log in a file and a progress display; on failure one line (cause and log path).
+
+    The log of an earlier attempt is kept (:func:`rotate_log`); the log starts and ends with a dated ``# dascreen:``
+    line (started; ended with exit code N, or stopped by a signal). ``hold``: file descriptors the engine inherits
+    (the run folder's lock). ``explain``: print the failure line (``False``: the caller does)."""
     log_path.parent.mkdir(parents=True, exist_ok=True)
+    earlier = rotate_log(log_path)
     stop = threading.Event()
-    with open(log_path, "w", encoding="utf-8") as log:
+    with open(log_path, "a", encoding="utf-8") as log:  # append: the engine writes at the end too
+        log.write(f"# dascreen: attempt started {_stamp()} (pid {os.getpid()})"
+                  f"{f'; the earlier attempt: {earlier.name}' if earlier else ''}\n")
+        log.flush()
         proc = _start(cmd, env, stdout=log, stderr=subprocess.STDOUT, pass_fds=tuple(hold))
         watcher = threading.Thread(target=_watch, args=(out, stop, label), kwargs={"batch": batch}, daemon=True)
         watcher.start()
+        ended = "ended abnormally"
         try:
             rc = _wait(proc)
+            ended = f"ended with exit code {rc}"
+        except SystemExit as exc:  # stopped by a signal: the workflow was stopped too
+            code = exc.code if isinstance(exc.code, int) else 1
+            ended = (f"stopped by {signal.Signals(code - 128).name}" if 128 < code < 128 + signal.NSIG
+                     else f"stopped (exit code {code})")
+            raise
         finally:
             stop.set()
             watcher.join(timeout=5)
-    if rc != 0:
-        text = log_path.read_text(encoding="utf-8", errors="replace")
-        print(error_excerpt(text), file=sys.stderr)
-        print(f"dascreen: the workflow's whole log: {log_path}", file=sys.stderr)
+            try:
+                log.write(f"# dascreen: attempt {ended} {_stamp()}\n")
+                log.flush()
+            except OSError:  # a full disk
+                pass
+    if rc != 0 and explain:
+        try:
+            cause = failure_cause(log_path.read_text(encoding="utf-8", errors="replace"))
+        except OSError:
+            cause = None
+        print(f"dascreen: the workflow failed{': ' + cause if cause else ''}; its whole log: {log_path}",
+              file=sys.stderr)
     return rc
 
 

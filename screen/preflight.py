@@ -393,6 +393,51 @@ def _near_files(path: Path) -> list[str]:
     return [str(folder / n) for n in suggest(path.name, names, n=2)]
 
 
+#: how alike a missing candidate file's name (without extensions) and a file's must be to be suggested
+#: (:class:`difflib.SequenceMatcher` ratio)
+NEAR_NAME_RATIO = 0.6
+
+
+def _near_candidate_files(path: Path, n: int = 2) -> list[str]:
+    """Files next to a missing candidate file whose names, without their extensions, are close to its name.
+
+    Whole names were compared before, so the common ``.csv`` made ``nosuch.csv`` suggest ``batch.csv or
+    cv_bad.csv`` (an overnight operator's report); a typo of the name itself, or another extension, still finds
+    the file.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> folder = Path(tempfile.mkdtemp())
+    >>> for name in ("batch.csv", "cv_bad.csv", "half1.csv"):
+    ...     _ = (folder / name).write_text("id,smiles\\n")
+    >>> [Path(p).name for p in _near_candidate_files(folder / "bacth.csv")]
+    ['batch.csv']
+    >>> [Path(p).name for p in _near_candidate_files(folder / "batch.smi")]
+    ['batch.csv']
+    >>> _near_candidate_files(folder / "nosuch.csv")
+    []
+    """
+    import difflib
+
+    def stem(name: str) -> str:
+        return name.lower().split(".")[0] or name.lower()
+
+    folder = path.parent if path.parent.is_dir() else Path(".")
+    try:
+        names = [p.name for p in folder.iterdir() if p.is_file()] if folder.is_dir() else []
+    except OSError:
+        return []
+    want = stem(path.name)
+    scored = []
+    for name in names:
+        close = difflib.SequenceMatcher(None, want, stem(name)).ratio()
+        if close >= NEAR_NAME_RATIO:
+            whole = difflib.SequenceMatcher(None, path.name.lower(), name.lower()).ratio()
+            scored.append((-close, -whole, name))
+    return [str(folder / name) for *_, name in sorted(scored)[:n]]
+
+
 def check_candidates(path) -> int:
     """Check a candidate file before a run; return its number of records.
 
@@ -405,7 +450,7 @@ def check_candidates(path) -> int:
     """
     path = Path(path)
     if not path.exists():
-        near = _near_files(path)
+        near = _near_candidate_files(path)
         hint = f"; did you mean {' or '.join(near)}?" if near else ""
         raise InputError(f"candidates file {str(path)!r} does not exist{hint}")
     if path.is_dir():
@@ -430,7 +475,15 @@ def _check_sdf(path: Path) -> int:
     try:
         with opener(path, "rt", encoding="utf-8") as fh:
             records = sum(1 for line in fh if line.startswith("M  END"))
-    except (OSError, EOFError, UnicodeDecodeError) as exc:  # EOFError: a truncated .sdf.gz
+    except UnicodeDecodeError:  # the line of the first byte that is not UTF-8, not its offset in the data
+        from screen.prepare.readers import _not_utf8
+
+        try:
+            raw = gzip.decompress(path.read_bytes()) if opener is gzip.open else path.read_bytes()
+        except (OSError, EOFError) as exc:
+            raise InputError(f"candidates file {path} cannot be read as UTF-8 SD file: {exc}") from None
+        raise _not_utf8(path, raw[3:] if raw.startswith(b"\xef\xbb\xbf") else raw, "sdf") from None
+    except (OSError, EOFError) as exc:  # EOFError: a truncated .sdf.gz
         raise InputError(f"candidates file {path} cannot be read as UTF-8 SD file: {exc}") from None
     if not records:
         raise InputError(f"candidates file {path} holds no SD record (no 'M  END' line): nothing to screen")
@@ -679,7 +732,10 @@ def check_out(out, candidates=None, overwrite: bool = False, given: str | None =
         raise ConfigError(f"--out {out} is not empty and holds no dascreen run ({len(entries)} other entries); "
                           "choose a new or empty folder")
     if run_active(out):
-        raise ConfigError(f"another dascreen run is using {out}; wait for it or choose another --out")
+        from screen.errors import FolderInUse  # not a configuration problem; exit code 2 like one
+
+        raise FolderInUse(f"another dascreen run is using {out}; wait for it to finish (`dascreen status --out "
+                          f"{out}`) or choose another --out")
     if not overwrite and (out / "config.yaml").is_file():
         try:
             recorded = yaml.safe_load((out / "config.yaml").read_text(encoding="utf-8")) or {}

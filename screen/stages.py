@@ -161,7 +161,7 @@ def _levels(args, cfg):
     elif side_path.is_file():
         side_path.unlink()
     meta = {**provenance(cfg), "counts": summarise(levels), "input": args.input or cfg["candidates"],
-            "scale": cfg["levels"]["scale"], "models": args.models or None, "calibration": calibration,
+            "scale": cfg["levels"]["scale"], "models": args.models or None, "calibration_models": calibration,
             "polymer": cfg["polymer"],
             "oligomers": str(side_path) if len(sidecar) else None}
     write_json(meta, f"{args.out}.meta.json" if not args.meta else args.meta)

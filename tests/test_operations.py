@@ -175,8 +175,14 @@ def test_a_calibration_changed_during_a_run_stops_it_and_the_same_command_then_r
     rc, _, err = _cli(capsys, *command)  # the fix the message names: the same command again
     assert rc == 0, err[-3000:]
     meta = json.loads((out / "levels.csv.meta.json").read_text(encoding="utf-8"))
-    assert meta["calibration"]["folder"] == str(folder.resolve())
-    assert meta["calibration"]["models_sha256"] == _models_sha256(folder) != first
+    assert meta["calibration_models"]["folder"] == str(folder.resolve())
+    assert meta["calibration_models"]["models_sha256"] == _models_sha256(folder) != first
+    # the report's calibration table reads the ranking sidecar's levels_meta["calibration"]: the models' statistics,
+    # which the provenance record (first named "calibration" too) had displaced ("not recorded" in every row)
+    ranked = sorted((out / "rankings").glob("*/ranking.meta.json"))
+    assert ranked
+    stats = json.loads(ranked[0].read_text(encoding="utf-8"))["levels_meta"]["calibration"]
+    assert "loo_mae_ev" in stats["ip"] and "models_sha256" not in stats
 
 
 def _models_sha256(folder: Path) -> str:
@@ -316,3 +322,172 @@ def test_the_failure_cause_prefers_a_full_disk_and_else_a_jobs_own_message():
     assert failure_cause("RuntimeError: the report failed: OSError: [Errno 122] Disk quota exceeded").startswith(
         "Disk quota exceeded (errno 122, EDQUOT)")
     assert failure_cause("Error in rule x:\n  boom") is None
+
+
+# --------------------------------------------------------------------------- 6. one console line on a failure
+
+_JOB_COMMAND = ("/v/bin/python -m screen.stages --config '" + json.dumps({"calibration": {"models": "/m"},
+                "structures": {f"option_{i}": i for i in range(120)}}) + "' levels --out /r/levels.csv")
+#: what the engine printed for the operator's E2 run (a levels job's traceback), the command line twice
+E2_LOG = f"""RuleException:
+CalledProcessError in file "/w/rules/levels.smk", line 21:
+Command 'set -euo pipefail;  {_JOB_COMMAND} > /r/logs/levels.log 2>&1' returned non-zero exit status 1.
+Error in rule levels:
+    message: None
+    jobid: 1
+    log: /r/logs/levels.log (check log file(s) for error details)
+    shell:
+        {_JOB_COMMAND} > /r/logs/levels.log 2>&1
+        (command exited with non-zero exit code)
+Logfile /r/logs/levels.log:
+================================================================================
+Traceback (most recent call last):
+  File "/w/screen/calibrate.py", line 282, in load_models
+screen.calibrate.CalibrationMismatchError: calibration model /m/p/ip.json does not belong to this run's protocol
+================================================================================
+Shutting down, this might take some time.
+WorkflowError:
+At least one job did not complete successfully.
+"""
+
+
+def _engine(tmp_path: Path, text: str, rc: int) -> list[str]:
+    """A command that stands for the workflow engine: prints ``text`` (its log) and exits with ``rc``."""
+    import sys
+
+    script = tmp_path / f"engine-{rc}.py"
+    script.write_text(f"import sys\nsys.stdout.write({text!r})\nsys.exit({rc})\n", encoding="utf-8")
+    return [sys.executable, str(script)]
+
+
+def test_a_failed_run_prints_one_line_with_the_cause_and_the_engine_text_stays_in_the_log(
+        tmp_path, calibration, capsys, monkeypatch):
+    # the operator's E2.err: the engine's whole error text, ~2 kB of JSON command line printed twice
+    import screen.launch
+
+    cfg, folder, reference = calibration
+    start = screen.launch._start
+    monkeypatch.setattr(screen.launch, "_start", lambda cmd, env, **kw: start(_engine(tmp_path, E2_LOG, 1), env, **kw))
+    candidates = tmp_path / "c.csv"
+    candidates.write_text("id,smiles\nT1,c1ccsc1\n", encoding="utf-8")
+    out = tmp_path / "out"
+    rc, _, err = _cli(capsys, "run", str(candidates), "--out", str(out), *_sets(folder, reference))
+    assert rc == 1
+    assert "set -euo pipefail" not in err and "option_7" not in err and "Traceback" not in err, err
+    failure = [line for line in err.splitlines() if "workflow" in line and "progress" not in line]
+    assert len(failure) == 1, err
+    assert failure[0] == (f"dascreen: the workflow stopped with exit code 1: CalibrationMismatchError: calibration "
+                          f"model /m/p/ip.json does not belong to this run's protocol (job levels); job logs in "
+                          f"{out}/logs/; the engine's whole log: {out / 'logs' / 'workflow.log'}"), err
+    assert err.count("CalibrationMismatchError") == 1  # said once
+    assert "set -euo pipefail" in (out / "logs" / "workflow.log").read_text(encoding="utf-8")  # all kept there
+
+
+def test_the_other_commands_get_one_failure_line_from_the_launcher(tmp_path, capsys):
+    from screen.launch import _quiet
+
+    log = tmp_path / "logs" / "workflow.log"
+    assert _quiet(_engine(tmp_path, E2_LOG, 1), {}, tmp_path, log, "dascreen") == 1
+    err = capsys.readouterr().err.strip()
+    assert err == (f"dascreen: the workflow failed: CalibrationMismatchError: calibration model /m/p/ip.json does "
+                   f"not belong to this run's protocol (job levels); its whole log: {log}"), err
+    assert _quiet(_engine(tmp_path, E2_LOG, 1), {}, tmp_path, log, "dascreen", explain=False) == 1
+    assert capsys.readouterr().err == ""  # dascreen run says it in its own line
+
+
+# --------------------------------------------------------------------------- 8. a non-UTF-8 file names the line
+
+def test_a_latin1_candidate_file_is_refused_naming_the_line_and_id_not_a_byte_offset(tmp_path, capsys):
+    path = tmp_path / "batch.csv"
+    path.write_bytes("name,id,smiles\nok,A,CCO\n\nlatin,café-3,c1ccsc1\nok,B,CC\nagain,é,C\n".encode("latin-1"))
+    rc, _, err = _cli(capsys, "run", str(path), "--out", str(tmp_path / "out"))
+    assert rc == 2 and err.count("\n") == 1, err
+    assert f"{path}: not UTF-8 text: line 4 (id 'caf\ufffd-3') holds byte 0xe9, which is not UTF-8" in err, err
+    assert "2 lines have such bytes: 4, 6" in err and "offset" not in err and "position" not in err, err
+    assert not (tmp_path / "out").exists()
+
+    smi = tmp_path / "batch.smi"
+    smi.write_bytes("# list\nCCO A\nc1ccsc1 caf\xe9\n".encode("latin-1"))
+    rc, _, err = _cli(capsys, "run", str(smi), "--out", str(tmp_path / "out"))
+    assert rc == 2 and "line 3 (id 'caf\ufffd') holds byte 0xe9" in err, err
+
+
+# --------------------------------------------------------------------------- 10. the night's attempts are kept
+
+def test_each_attempt_keeps_the_earlier_workflow_logs_with_dated_lines(tmp_path, capsys):
+    from screen.launch import _quiet
+
+    log = tmp_path / "logs" / "workflow.log"
+    for attempt, rc in (("first attempt\n", 1), ("second attempt\n", 0), ("third attempt\n", 0)):
+        assert _quiet(_engine(tmp_path, attempt, rc), {}, tmp_path, log, "dascreen") == rc
+    capsys.readouterr()
+    logs = {p.name: p.read_text(encoding="utf-8") for p in log.parent.iterdir()}
+    assert sorted(logs) == ["workflow.1.log", "workflow.2.log", "workflow.log"], sorted(logs)
+    assert "third attempt" in logs["workflow.log"] and "second attempt" in logs["workflow.1.log"]
+    first = logs["workflow.2.log"].splitlines()
+    assert re.fullmatch(r"# dascreen: attempt started \d{4}-\d\d-\d\d \d\d:\d\d:\d\d [+-]\d{4} \(pid \d+\)", first[0])
+    assert first[1] == "first attempt" and re.fullmatch(r"# dascreen: attempt ended with exit code 1 \S+ \S+ \S+",
+                                                        first[2]), first
+    assert "the earlier attempt: workflow.1.log" in logs["workflow.log"].splitlines()[0]
+
+
+def test_a_job_log_says_how_many_molecules_were_resumed_stored_and_computed(tmp_path):
+    import io
+
+    from screen.batch import run_journalled
+    from screen.io import Journal, Progress
+
+    class Store:  # the results store holds one of the three molecules left to do
+        hits = 0
+
+        def lookup(self, item):
+            if item == 4:
+                self.hits += 1
+                return {"key": "4", "sq": 16}
+            return None
+
+        def remember(self, item, record):
+            pass
+
+        def keep(self, item, record):
+            pass
+
+    journal = Journal(tmp_path / "j.jsonl")
+    for i in (1, 2):  # an interrupted attempt finished two molecules
+        journal.append({"key": str(i), "sq": i * i})
+    progress = Progress("electronic shard-000", stream=io.StringIO(), every_s=0)
+    done = run_journalled([1, 2, 3, 4, 5], str, lambda i: {"key": str(i), "sq": i * i}, journal, progress, Store())
+    assert sorted(done) == ["1", "2", "3", "4", "5"]
+    last = progress.stream.getvalue().strip().splitlines()[-1]
+    assert last == ("electronic shard-000: 1 of 3 molecules from the results store, 2 computed; 2 more resumed from "
+                    "the journal (an interrupted attempt finished them)"), last
+
+
+# --------------------------------------------------------------------------- 11. messages that say what happened
+
+def test_a_folder_in_use_is_not_called_a_configuration_error(tmp_path, capsys):
+    import fcntl
+
+    from screen.errors import FolderInUse
+    from screen.launch import _lock
+
+    candidates = tmp_path / "c.csv"
+    candidates.write_text("id,smiles\nT1,c1ccsc1\n", encoding="utf-8")
+    out = tmp_path / "out"
+    out.mkdir()
+    with open(out / ".dascreen.lock", "w") as held:  # another run holds the folder
+        fcntl.flock(held, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        rc, _, err = _cli(capsys, "run", str(candidates), "--out", str(out))
+        with pytest.raises(FolderInUse, match="another dascreen run is using"):
+            _lock(out)  # the launcher's own check (a run started between the pre-flight check and the lock)
+    assert rc == 2 and err.startswith(f"dascreen: folder in use: another dascreen run is using {out}; "), err
+    assert "configuration error" not in err and err.count("\n") == 1, err
+
+
+def test_a_missing_candidate_file_suggests_only_files_with_a_close_name(tmp_path, capsys):
+    for name in ("batch.csv", "cv_bad.csv", "half1.csv"):
+        (tmp_path / name).write_text("id,smiles\nA,CCO\n", encoding="utf-8")
+    rc, _, err = _cli(capsys, "run", str(tmp_path / "nosuch.csv"), "--out", str(tmp_path / "out"))
+    assert rc == 2 and "does not exist" in err and "did you mean" not in err, err  # before: batch.csv or cv_bad.csv
+    rc, _, err = _cli(capsys, "run", str(tmp_path / "bacth.csv"), "--out", str(tmp_path / "out"))
+    assert rc == 2 and err.strip().endswith(f"does not exist; did you mean {tmp_path / 'batch.csv'}?"), err
