@@ -275,7 +275,7 @@ def load_fitted(path: str | None = None) -> FittedParameters:
 VALIDATION_PATH = FITTED_PATH.parent / "computed_validation.json"
 #: the metrics a test record carries
 _TEST_KEYS = ("n", "n_pce", "voc_mae_v", "voc_bias_v", "spearman_voc", "spearman_pce", "spearman_voc_ci95",
-              "spearman_pce_ci95")
+              "spearman_pce_ci95", "not_viable")
 
 
 def _pick(record, key: str) -> dict | None:
@@ -348,7 +348,8 @@ def device_tests(model: str, protocol: str | None = None, fitted_path: str | Non
     by_class = (meta.get("cv") or {}).get("by_class") if isinstance(meta.get("cv"), dict) else None
     if film is not None and key == "fitted" and isinstance(by_class, dict):  # a device-physics audit: the pooled
         film["by_class"] = {c: {"n": v.get("n"), "voc_mae_v": v.get("fitted_voc_mae_v"),  # MAE hid a -0.12 V class
-                                "baseline_voc_mae_v": v.get("mean_voc_baseline_mae_v")}
+                                "baseline_voc_mae_v": v.get("mean_voc_baseline_mae_v"),
+                                "spearman_pce": v.get("fitted_spearman_pce"), "n_pce": v.get("n_pce")}
                             for c, v in sorted(by_class.items()) if isinstance(v, dict)}
     computed = None
     path = Path(validation_path) if validation_path else VALIDATION_PATH

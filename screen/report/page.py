@@ -51,7 +51,9 @@ _CAUTION = (
     "samples that stay viable, and P(aligned) how likely the pair stays viable. An estimate above the target "
     "with P(PCE &gt; target) below one half comes from samples that are not viable (counted as 0 %) or from "
     "viable samples lying mostly below the estimate (the model saturates: the smaller gap caps E<sub>CT</sub> "
-    "and the charge-generation yield cannot exceed one, so samples lose more than they gain). Making and handling any "
+    "and the charge-generation yield cannot exceed one, so samples lose more than they gain). Chemical stability "
+    "(e.g. of long acenes in air and light), solubility, film morphology and synthetic accessibility are not "
+    "assessed. Making and handling any "
     "candidate follows your lab\u2019s chemical-safety rules, the safety data sheets of every reagent and "
     "local regulations.</p>"
 )
@@ -97,7 +99,8 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass, sort_by: s
     >>> print(_summary_sentence(r, "y6", 3))  # doctest: +NORMALIZE_WHITESPACE
     3 candidate(s) ranked against <strong>y6</strong>; 3 pass every check (1 of them repeats an earlier row's
     structure and stays out of the shortlist). Best estimate: <strong>A</strong> at 13.4 ± 1.7 % PCE (± from the
-    levels' σ alone, not the device model's own error), viable in 79 % of samples; first in the ranking's order:
+    levels' σ alone, not the device model's own error; so are P(PCE &gt; target) and P(aligned)), viable in 79 % of
+    samples; first in the ranking's order:
     <strong>B</strong> (12.5 % PCE, P(PCE &gt; target) 83 %).
     """
     if not len(ranking):
@@ -115,7 +118,8 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass, sort_by: s
     sentence = (f"{len(ranking)} candidate(s) ranked against <strong>{esc(partner_id) or 'the partner'}</strong>"
                 f"{passing}. Best estimate: <strong>{esc(best.get('id'))}</strong> at "
                 f"{fmt_pm(best.get('pce_pct'), best.get('pce_sigma_pct'), 1)} % PCE"
-                + (" (± from the levels' σ alone, not the device model's own error)"
+                + (" (± from the levels' σ alone, not the device model's own error; so are P(PCE &gt; target) and "
+                   "P(aligned))"
                    if not math.isnan(num(best.get("pce_sigma_pct"))) else "")
                 + (f", viable in {num(best.get('p_aligned')) * 100:.0f} % of samples"
                    if not math.isnan(num(best.get("p_aligned"))) else ""))
