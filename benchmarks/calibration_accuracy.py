@@ -48,7 +48,8 @@ TARGETS = {"ip": 0.12, "ea": 0.15, "homo_film": 0.12, "lumo_film": 0.15, "gap_op
 FILM = ("homo_film", "lumo_film", "gap_opt_film")
 
 
-def _folder(arg: str | None) -> Path:
+def model_folder(arg: str | None) -> Path:
+    """The model folder ``arg``, or the shipped one of the default protocol (exits when none matches)."""
     if arg:
         return Path(arg)
     cfg = load_config(REPO / "config" / "config.yaml", {"calibration": {"models": str(REPO / "models"),
@@ -191,7 +192,7 @@ def main() -> None:
     parser.add_argument("--models", default=None, help="model folder (default: the shipped default-protocol one)")
     parser.add_argument("--folds", type=int, default=10, help="outer folds of the nested CV (0: skip it)")
     args = parser.parse_args()
-    folder = _folder(args.models)
+    folder = model_folder(args.models)
     models = load_models(folder)
     print(f"models: {folder}")
     print(f"{'model':14s} {'n':>4s} {'LOO':>7s} {'mol':>7s} {'poly':>7s} {'family':>7s} {'target':>7s}  met")

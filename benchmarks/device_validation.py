@@ -15,9 +15,11 @@ a PCE, also those without a Voc), how many working devices each model calls not
 viable, Scharber's rule on the papers' own levels for context, two naive
 references (training mean Voc; training mean Voc of the acceptor class), the
 same by acceptor class, and the targets (Voc MAE ≤ 0.10 V, Spearman(Voc) ≥ 0.7,
-Spearman(PCE) ≥ 0.4) with met / not met and, for the rank correlations, their 95 % acceptor-group bootstrap interval (:func:`screen.devicefit.group_bootstrap_rho`; "met by the point estimate only" when the interval reaches below the target).  Beside each, the same nested CV offering
-only the constant-loss variants (what the E_CT-dependent loss option adds, chosen
-the same nested way).
+Spearman(PCE) ≥ 0.4) with met / not met and, for the rank correlations, their
+95 % acceptor-group bootstrap interval (:func:`screen.devicefit.group_bootstrap_rho`;
+"met by the point estimate only" when the interval reaches below the target).
+Beside each, the same nested CV offering only the constant-loss variants (what
+the E_CT-dependent loss option adds, chosen the same nested way).
 
 Then what limits Spearman(Voc) (:func:`screen.devicevalidation.rank_limits`:
 spread of measured Voc within a blend, E_CT alone per class, held-out figures on

@@ -52,12 +52,12 @@ from scipy.stats import spearmanr
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
 
-from calibration_accuracy import NESTED, nested_targets, structure_folds  # noqa: E402
+from calibration_accuracy import NESTED, model_folder, nested_targets, structure_folds  # noqa: E402
 
-from screen.calibrate import apply_models, find_models, fit_all, read_reference  # noqa: E402
-from screen.calibration.domain import domain_variance, fit_domain, nearest_similarity, reference_similarity  # noqa: E402
+from screen.calibrate import apply_models, fit_all, read_reference  # noqa: E402
+from screen.calibration.domain import (domain_variance, fit_domain, nearest_similarity,  # noqa: E402
+                                      reference_similarity)
 from screen.calibration.reference import canonical  # noqa: E402
-from screen.config import load_config  # noqa: E402
 
 #: σ variants scored: a fingerprint kind, or the plain prediction interval
 VARIANTS = ("bit", "count", "constant")
@@ -69,17 +69,6 @@ PAIRS = (("count", "bit"), ("bit", "constant"), ("count", "constant"))
 PENTACENE = "c1ccc2cc3cc4cc5ccccc5cc4cc3cc2c1"
 HEXACENE = "c1ccc2cc3cc4cc5cc6ccccc6cc5cc4cc3cc2c1"
 HEPTACENE = "c1ccc2cc3cc4cc5cc6cc7ccccc7cc6cc5cc4cc3cc2c1"
-
-
-def _folder(arg: str | None) -> Path:
-    if arg:
-        return Path(arg)
-    cfg = load_config(REPO / "config" / "config.yaml", {"calibration": {"models": str(REPO / "models"),
-                                                                        "reference": str(REPO / "models/reference")}})
-    folder = find_models(cfg)
-    if folder is None:
-        sys.exit("no shipped model matches the default protocol: run `dascreen calibrate --install models`")
-    return folder
 
 
 def oligothiophene(n: int) -> str:
@@ -109,7 +98,8 @@ def nlpd(err, sigma) -> np.ndarray:
 def out_of_fold(sets: dict, raw: pd.DataFrame, folds: int, seed: int = 0) -> tuple[pd.DataFrame, dict]:
     """Held-out rows with error and σ per variant, and per model and variant the folds that kept the term.
 
-    Folds as :func:`calibration_accuracy.nested_cv` deals them (distinct canonical structures, seeded shuffle).
+    Folds as :func:`calibration_accuracy.nested_cv` deals them (:func:`calibration_accuracy.structure_folds`:
+    distinct canonical structures, seeded shuffle).
     """
     targets = nested_targets(sets, raw)
     fold_of, fold = structure_folds(targets, folds, seed)
@@ -151,7 +141,7 @@ def main(argv=None) -> int:
     if args.folds < 2:
         parser.error("--folds must be at least 2")
     start = time.perf_counter()
-    folder = _folder(args.models)
+    folder = model_folder(args.models)
     raw = pd.read_csv(folder / "reference_raw.csv", keep_default_na=False, na_values=[""])
     sets = read_reference(REPO / "models" / "reference")
     print(f"models: {folder}; {args.folds} folds by structure; σ variants: {', '.join(VARIANTS)}")

@@ -110,14 +110,11 @@ def _why_stopped(out: Path, args) -> str:
     A full disk was said only in a job log while the console said "Please ensure write permissions" (an
     overnight operator's report): :func:`screen.launch.failure_cause` reads the engine's log. This line is all the
     console gets of a failure: the engine's error text (each failed job's command line twice) stays in the log."""
-    from screen.launch import failure_cause
+    from screen.launch import failure_cause_in
 
     if args.verbose or args.dry_run:  # the engine's log went to the terminal
         return ""
-    try:
-        cause = failure_cause((out / "logs" / "workflow.log").read_text(encoding="utf-8", errors="replace"))
-    except OSError:
-        return ""
+    cause = failure_cause_in(out / "logs" / "workflow.log")
     return f": {cause}" if cause else ""
 
 

@@ -305,8 +305,8 @@ def run_compute(shard_csv, out_sdf, out_csv, out_electronic, structures: Structu
             progress.report(i, len(todo), key)
     resumed = len(shard) - len(todo)  # finished by an earlier, interrupted attempt (journal)
     if todo:
-        for cache, what in zip(state.caches, ("structures", "electronic")):
-            report_store_hits(progress, cache, len(todo), what, resumed=resumed)
+        for k, (cache, what) in enumerate(zip(state.caches, ("structures", "electronic"))):
+            report_store_hits(progress, cache, len(todo), what, resumed=resumed if k == 0 else 0)
     elif resumed:
         report_store_hits(progress, None, 0, resumed=resumed)
     tables = (write_structures(shard["key"], state.done[0], out_sdf, out_csv),

@@ -343,3 +343,20 @@ def changed_calibration_settings(config: Mapping | None) -> dict:
     return {field: value for field, value in run.items()
             if field != "electronic.threads" and value != default.get(field)}
 
+
+def setting_text(value) -> str:
+    """A setting's value as a ``--set`` writes it (YAML: ``null``, ``true``, ``[a, b]``).
+
+    Examples
+    --------
+    >>> setting_text(None), setting_text(True), setting_text([1, 2]), setting_text(3.5)
+    ('null', 'true', '[1, 2]', '3.5')
+    """
+    if value is None:
+        return "null"
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (list, dict)):
+        return yaml.safe_dump(value, default_flow_style=True, width=1000).strip()
+    return str(value)
+

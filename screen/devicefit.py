@@ -403,7 +403,8 @@ def group_bootstrap_rho(pred, measured, groups, resamples: int = BOOTSTRAP_RESAM
 
 
 def rank_intervals(d: pd.DataFrame, pred: pd.DataFrame) -> dict:
-    """95 % acceptor-group bootstrap intervals of the held-out Spearman ρ of Voc and PCE (:func:`group_bootstrap_rho`)."""
+    """95 % acceptor-group bootstrap intervals of the held-out Spearman ρ of Voc and PCE
+    (:func:`group_bootstrap_rho`), as ``spearman_voc_ci95`` and ``spearman_pce_ci95``."""
     has_voc, has_pce = d["voc_v"].notna(), d["pce_pct"].notna() & pred["pce_pct"].notna()
     group = GROUPINGS["acceptor"]
     return {"spearman_voc_ci95": group_bootstrap_rho(pred.loc[has_voc, "voc_v"], d.loc[has_voc, "voc_v"],

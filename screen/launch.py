@@ -46,7 +46,7 @@ from screen.config import Config
 from screen.errors import ConfigError, FolderInUse
 
 __all__ = ["WORKFLOW", "STOP_GRACE_S", "PIN_ENV", "KEEP_LOGS", "run_workflow", "error_excerpt",
-           "calibration_pin", "pinned_calibration", "failure_cause", "rotate_log"]
+           "calibration_pin", "pinned_calibration", "failure_cause", "failure_cause_in", "rotate_log"]
 
 WORKFLOW = Path(__file__).parent / "workflow" / "Snakefile"
 #: environment variable that hands the workflow the calibration the ``dascreen`` command pinned (JSON of
@@ -56,8 +56,6 @@ PIN_ENV = "DASCREEN_CALIBRATION_PIN"
 STOP_GRACE_S = 30.0
 #: logs of earlier attempts kept next to the workflow log (``workflow.1.log`` the last one ... ``workflow.9.log``)
 KEEP_LOGS = 9
-
-
 
 _ERROR_START = re.compile(r"^(Error in rule|Error:|WorkflowError|RuleException|MissingInputException|"
                           r"Traceback|.*Exception( in rule|:))")
@@ -103,9 +101,9 @@ def failure_cause(log_text: str) -> str | None:
 
     Examples
     --------
-    >>> failure_cause("WorkflowError:\\nError recording metadata for finished job ([Errno 28] No space left on device). "
-    ...               "Please ensure write permissions for the directory /r/.snakemake")  # doctest: +ELLIPSIS
-    'No space left on device (errno 28, ENOSPC): the disk ... is full; free space ... and run the same command again ...'
+    >>> failure_cause("WorkflowError:\\nError recording metadata for finished job ([Errno 28] No space left on "
+    ...               "device). Please ensure write permissions for the directory /r/.snakemake")  # doctest: +ELLIPSIS
+    'No space left on device (errno 28, ENOSPC): the disk ... is full; free space ... and run the same command ...'
     >>> failure_cause("Traceback ...\\nPermissionError: [Errno 13] Permission denied: '/r/x'")
     'Permission denied (errno 13, EACCES)'
     >>> failure_cause("Error in rule levels:\\n  jobid: 1\\nTraceback (most recent call last):\\n"
@@ -127,7 +125,8 @@ def failure_cause(log_text: str) -> str | None:
     stage = _STAGE_ERROR.search(log_text)
     if stage:
         return stage.group(1).strip()
-    for number, text in found.items():
+    if found:  # the first system error the log names
+        number, text = next(iter(found.items()))
         return f"{text} (errno {number}, {errno.errorcode.get(number, '?')})"
     rules = list(dict.fromkeys(_FAILED_RULE.findall(log_text)))
     jobs = f" (job{'s' if len(rules) > 1 else ''} {', '.join(rules)})" if rules else ""
@@ -139,6 +138,14 @@ def failure_cause(log_text: str) -> str | None:
     if rules and logs:
         return f"job{'s' if len(rules) > 1 else ''} {', '.join(rules)} failed; its log: {logs[0]}"
     return None
+
+
+def failure_cause_in(log_path: Path) -> str | None:
+    """:func:`failure_cause` of the engine's log file ``log_path`` (``None`` when it cannot be read)."""
+    try:
+        return failure_cause(Path(log_path).read_text(encoding="utf-8", errors="replace"))
+    except OSError:
+        return None
 
 
 def calibration_pin(cfg: Config, out: Path) -> dict | None:
@@ -372,11 +379,11 @@ def _command(out: Path, cfg_file: Path, cores: int, targets, extra, dry_run: boo
 def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, dry_run: bool = False,
                  profile: str | None = None, cfg_file: Path | None = None, verbose: bool = False,
                  log_name: str = "workflow", label: str = "dascreen", batch: str | None = None,
-                 pin: bool = True, explain: bool = True) -> int:
+                 explain: bool = True) -> int:
     """Run the packaged workflow on ``cfg`` in ``out``; return Snakemake's exit code.
 
-    The workflow is pinned to the calibration found now (:func:`calibration_pin`; ``pin=False``: the
-    workflow decides by itself, as a bare snakemake run does).
+    The workflow is pinned to the calibration found now (:func:`calibration_pin`; not pinned with
+    ``calibration.refit: always``, which fits one).
 
     Parameters
     ----------
@@ -413,8 +420,8 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
     Raises
     ------
     ConfigError
-        Another ``dascreen`` holds the folder's lock (:class:`FolderInUse`), or ``out`` cannot be created (the path and the system's
-        reason; before, a traceback).
+        Another ``dascreen`` holds the folder's lock (:class:`FolderInUse`), or ``out`` cannot be created (the
+        path and the system's reason; before, a traceback).
     """
     from screen.preflight import make_out_folder
     from screen.store import STORE_ENV, store_location
@@ -430,7 +437,7 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
         cmd = _command(out, cfg_file, cores, targets, extra, dry_run, profile)
         env = {**os.environ, STORE_ENV: str(store_location(cfg) or "")}
         env.pop(PIN_ENV, None)
-        pinned = calibration_pin(cfg, out) if pin else None
+        pinned = calibration_pin(cfg, out)
         if pinned is not None:  # the workflow uses this calibration and never fits one by itself
             env[PIN_ENV] = json.dumps(pinned, sort_keys=True)
         locks = out / ".snakemake" / "locks"
@@ -525,10 +532,7 @@ def _quiet(cmd: list[str], env: dict, out: Path, log_path: Path, label: str, hol
             except OSError:  # a full disk
                 pass
     if rc != 0 and explain:
-        try:
-            cause = failure_cause(log_path.read_text(encoding="utf-8", errors="replace"))
-        except OSError:
-            cause = None
+        cause = failure_cause_in(log_path)
         print(f"dascreen: the workflow failed{': ' + cause if cause else ''}; its whole log: {log_path}",
               file=sys.stderr)
     return rc

@@ -35,6 +35,7 @@ from pathlib import Path
 import yaml
 
 from screen.config import changed_calibration_settings, read_problem
+from screen.config import setting_text as _show
 from screen.config import flat_settings as _flat
 from screen.errors import ConfigError, InputError
 
@@ -165,14 +166,6 @@ def allowed_text(schema: dict) -> str:
     return text
 
 
-def _show(value) -> str:
-    if value is None:
-        return "null"
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, (list, dict)):
-        return yaml.safe_dump(value, default_flow_style=True, width=1000).strip()
-    return str(value)
 
 
 def config_text(width: int = 100, cli_defaults: dict | None = None) -> str:
@@ -476,13 +469,13 @@ def _check_sdf(path: Path) -> int:
         with opener(path, "rt", encoding="utf-8") as fh:
             records = sum(1 for line in fh if line.startswith("M  END"))
     except UnicodeDecodeError:  # the line of the first byte that is not UTF-8, not its offset in the data
-        from screen.prepare.readers import _not_utf8
+        from screen.prepare.readers import not_utf8_error
 
         try:
             raw = gzip.decompress(path.read_bytes()) if opener is gzip.open else path.read_bytes()
         except (OSError, EOFError) as exc:
             raise InputError(f"candidates file {path} cannot be read as UTF-8 SD file: {exc}") from None
-        raise _not_utf8(path, raw[3:] if raw.startswith(b"\xef\xbb\xbf") else raw, "sdf") from None
+        raise not_utf8_error(path, raw, "sdf") from None
     except (OSError, EOFError) as exc:  # EOFError: a truncated .sdf.gz
         raise InputError(f"candidates file {path} cannot be read as UTF-8 SD file: {exc}") from None
     if not records:
@@ -1098,7 +1091,8 @@ def _calibrate_command(cfg, diffs, config_file=None) -> str:
     words = ["dascreen calibrate"]
     if config_file:
         words.append(f"--config {shlex.quote(str(config_file))}")
-    words += [f"--set {shlex.quote(f'{field}={_show(value)}')}" for field, value in changed_calibration_settings(cfg).items()]
+    words += [f"--set {shlex.quote(f'{field}={_show(value)}')}"
+              for field, value in changed_calibration_settings(cfg).items()]
     if any(d.field == "calibration.reference" for d in diffs):
         words.append(f"--reference {shlex.quote(str(cfg['calibration']['reference']))}")
     words.append(f"--install {shlex.quote(str(_install_folder(cfg)))}")

@@ -85,7 +85,7 @@ CALIBRATION_FILES = ("ip.json", "ea.json", "gap_opt.json", "homo_film.json", "lu
 
 
 def calibration_record(folder: str | Path) -> dict:
-    """Which calibration a levels file was scored with, for its sidecar (``calibration``).
+    """Which calibration a levels file was scored with, for its sidecar (``calibration_models``).
 
     Two runs scored with different calibrations had identical ``levels.csv.meta.json`` files (only the models'
     path; an overnight operator's report). The record tells them apart:
@@ -110,8 +110,9 @@ def calibration_record(folder: str | Path) -> dict:
     --------
     >>> import json, tempfile
     >>> folder = Path(tempfile.mkdtemp())
+    >>> fp = {"fingerprint": {"protocol_id": "p-1", "reference_sha256": "ab"}}
     >>> for name in CALIBRATION_FILES:
-    ...     _ = (folder / name).write_text(json.dumps({"fingerprint": {"protocol_id": "p-1", "reference_sha256": "ab"}}))
+    ...     _ = (folder / name).write_text(json.dumps(fp))
     >>> record = calibration_record(folder)
     >>> record["protocol_id"], record["reference_sha256"], len(record["models_sha256"]), record["statistics_sha256"]
     ('p-1', 'ab', 64, None)

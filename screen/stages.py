@@ -119,8 +119,8 @@ def _pinned_models(folder, cfg, pinned: str):
     if pin and pin.get("models_sha256") != record["models_sha256"]:
         now = (f"{record['models_sha256'][:12]}\u2026 now" if record["models_sha256"] else
                "now a model file is missing")
-        changed.append(f"{record['folder']} holds other model files than at the start (SHA-256 {str(pin.get('models_sha256'))[:12]}"
-                       f"\u2026 when the run was started, {now})")
+        changed.append(f"{record['folder']} holds other model files than at the start (SHA-256 "
+                       f"{str(pin.get('models_sha256'))[:12]}\u2026 when the run was started, {now})")
     try:
         models = load_models(folder, cfg, check=False)
     except CalibrationError as exc:  # a model file missing or unreadable

@@ -229,7 +229,7 @@ def test_killed_job_resumes_from_its_journals_to_the_same_numbers(tmp_path, monk
     assert any(line.startswith("compute shard-000: 1/1 molecules (100%)") for line in lines)
     # an overnight operator's report: the job's log says what the interruption cost
     assert lines[-1] == ("compute shard-000: 1 molecules computed; 3 more resumed from the journal (an interrupted "
-                         "attempt finished them) (electronic)")
+                         "attempt finished them) (structures)")
     for name, out in zip(("s.sdf", "s.csv", "e.csv"), outs):
         out.rename(tmp_path / "run" / name)
     _same_files(tmp_path / "ref", tmp_path / "run")

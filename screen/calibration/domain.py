@@ -30,14 +30,14 @@ each atom environment occurs; Tanimoto on counts): the 2048-bit form only record
 whether an environment occurs, so it cannot tell a longer homologue from a shorter
 one (hexacene and heptacene against pentacene, C70 against C60, 8T against 6T: all
 1.0), and a candidate beyond the longest reference homologue got the smallest σ. With
-counts hexacene and heptacene sit at 0.85 and 0.73 to pentacene, C70 at 0.86 to C60, 8T at 0.75 to 6T. A statistician's
-check, out of fold (10 folds by structure, the whole calibration and the σ model
-fitted inside each), found the count form's log predictive density better for the
-film optical gap (by 0.08 ± 0.03 nats per row) and level with the bit form for the
-other models (``benchmarks/sigma_out_of_fold.py``). A polymer query is compared on bits (a repeat unit
-written twice would otherwise count double and lose similarity to itself). The levels
-column ``reference_similarity`` and the ``far_from_reference`` flag stay on bits (their
-0.30 threshold was set on them).
+counts hexacene and heptacene sit at 0.85 and 0.73 to pentacene, C70 at 0.86 to C60,
+8T at 0.75 to 6T. A statistician's check, out of fold (10 folds by structure, the
+whole calibration and the σ model fitted inside each), found the count form's log
+predictive density better for the film optical gap (by 0.08 ± 0.03 nats per row) and
+level with the bit form for the other models (``benchmarks/sigma_out_of_fold.py``).
+A polymer query is compared on bits (a repeat unit written twice would otherwise
+count double and lose similarity to itself). The levels column ``reference_similarity``
+and the ``far_from_reference`` flag stay on bits (their 0.30 threshold was set on them).
 
 References
 ----------
@@ -70,8 +70,6 @@ MIN_NLPD_GAIN = 0.01
 #: the fingerprints by kind, as recorded in a model's ``domain`` entry
 FINGERPRINTS = {"bit": "morgan r=2, 2048 bits, alkyl groups cut to methyl",
                 "count": "morgan r=2, counts (Tanimoto on counts; a polymer query on bits), alkyl groups cut to methyl"}
-#: the bit fingerprint's description (the levels column ``reference_similarity``)
-FINGERPRINT = FINGERPRINTS["bit"]
 
 
 @lru_cache(maxsize=100_000)
@@ -191,8 +189,10 @@ def nearest_similarity(query, reference, kind: str = "bit") -> np.ndarray:
     --------
     >>> acenes = ["c1ccc2cc3cc4cc5ccccc5cc4cc3cc2c1"]  # pentacene
     >>> hexacene = "c1ccc2cc3cc4cc5cc6ccccc6cc5cc4cc3cc2c1"
-    >>> float(nearest_similarity([hexacene], acenes)[0]), round(float(nearest_similarity([hexacene], acenes, "count")[0]), 2)
-    (1.0, 0.85)
+    >>> float(nearest_similarity([hexacene], acenes)[0])
+    1.0
+    >>> round(float(nearest_similarity([hexacene], acenes, "count")[0]), 2)
+    0.85
     """
     from rdkit import DataStructs
 
@@ -209,7 +209,11 @@ def nearest_similarity(query, reference, kind: str = "bit") -> np.ndarray:
 
 
 def reference_similarity(smiles, kind: str = "bit") -> np.ndarray:
-    """Each reference row's nearest-neighbour similarity to the rows with another structure (LOO-style)."""
+    """Each reference row's nearest-neighbour similarity to the rows with another structure (LOO-style).
+
+    ``kind`` is the fingerprint, ``bit`` or ``count`` (:data:`FINGERPRINTS`; with ``count`` a polymer row is
+    compared on bits, as in :func:`nearest_similarity`); one value in [0, 1] per row.
+    """
     from rdkit import DataStructs
 
     smiles = list(smiles)

@@ -21,11 +21,11 @@ from __future__ import annotations
 
 import csv
 import gzip
-from array import array
 import io
 import os
 import re
 import zlib
+from array import array
 from pathlib import Path
 from typing import Any
 
@@ -39,7 +39,7 @@ from screen.io import separator_problem
 from screen.prepare.checks import snippet as _snippet
 from screen.prepare.shards import MANIFEST_COLUMNS
 
-__all__ = ["read_candidates", "assign_missing_ids", "INPUT_LINES", "input_line"]
+__all__ = ["read_candidates", "assign_missing_ids", "INPUT_LINES", "input_line", "not_utf8_error"]
 
 #: key of ``frame.attrs`` where :func:`read_candidates` records each row's place in the file: ``{"file": name,
 #: "format": "csv"|"smi"|"sdf", "lines": array of the first file line of row 0, of row 1, ...}`` (1-based, counting
@@ -62,6 +62,7 @@ def input_line(frame: pd.DataFrame, row: int) -> int | None:
     """
     lines = (frame.attrs.get(INPUT_LINES) or {}).get("lines") or []
     return lines[row] if 0 <= row < len(lines) else None
+
 
 #: Names a passthrough column may not take (it would clash with a column this stage writes).
 #: names the tool writes into levels.csv or ranking.csv: an input column of such a name is passed through as
@@ -119,18 +120,21 @@ def _line_id(lines: list[bytes], number: int, fmt: str | None) -> str:
     return ""
 
 
-def _not_utf8(path: Path, raw: bytes, fmt: str | None = None) -> InputError:
+def not_utf8_error(path: Path, raw: bytes, fmt: str | None = None) -> InputError:
     """The error of a candidate file that is not UTF-8: the line (and the id on it) of the first undecodable byte,
     how many lines have one, and the fix (before: "undecodable byte at offset 4737", an overnight operator's report).
+
+    ``raw`` is the file's whole (decompressed) content, a leading byte-order mark allowed; ``fmt`` its format
+    (``"csv"``, ``"smi"`` or ``"sdf"``: which id the line shows).
 
     Examples
     --------
     >>> raw = "id,smiles\\nA,CCO\\ncaf\\xe9,c1ccsc1\\nB,CC\\xe9\\n".encode("latin-1")
-    >>> print(_not_utf8(Path("c.csv"), raw, "csv"))  # doctest: +NORMALIZE_WHITESPACE
+    >>> print(not_utf8_error(Path("c.csv"), raw, "csv"))  # doctest: +NORMALIZE_WHITESPACE
     c.csv: not UTF-8 text: line 3 (id 'caf\uFFFD') holds byte 0xe9, which is not UTF-8 (2 lines have such bytes:
     3, 4); save the file as UTF-8 (a spreadsheet's "CSV UTF-8"; from Latin-1: `iconv -f latin1 -t utf-8`)
     """
-    lines = raw.split(b"\n")
+    lines = (raw[3:] if raw.startswith(b"\xef\xbb\xbf") else raw).split(b"\n")
     bad: list[tuple[int, int]] = []  # (line, the first undecodable byte on it)
     for number, line in enumerate(lines, start=1):
         try:
@@ -156,7 +160,7 @@ def _read_text(path: Path, gz: bool, fmt: str | None = None) -> str:
     """Read the whole file as UTF-8 text (a byte-order mark is ignored).
 
     Text that is not UTF-8 raises :class:`InputError` naming the line (and the id on it, for ``fmt`` ``"csv"`` or
-    ``"smi"``) of the first byte that is not UTF-8 (:func:`_not_utf8`).
+    ``"smi"``; the SD record for ``"sdf"``) of the first byte that is not UTF-8 (:func:`not_utf8_error`).
 
     A ``.gz`` file that is not gzip data, or is truncated or corrupt, raises :class:`InputError`:
 
@@ -180,7 +184,7 @@ def _read_text(path: Path, gz: bool, fmt: str | None = None) -> str:
     try:
         return raw.decode("utf-8-sig")
     except UnicodeDecodeError:
-        raise _not_utf8(path, raw[3:] if raw.startswith(b"\xef\xbb\xbf") else raw, fmt) from None
+        raise not_utf8_error(path, raw, fmt) from None
 
 
 def _unique_column(name: str, taken: set[str]) -> str:

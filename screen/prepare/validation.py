@@ -23,7 +23,7 @@ from screen.io import cell_text as _text
 from screen.prepare.checks import REASON_CODES, _check_structure, _Checked
 from screen.prepare.checks import snippet as _snippet
 from screen.prepare.options import PrepareOptions
-from screen.prepare.readers import INPUT_LINES
+from screen.prepare.readers import INPUT_LINES, input_line
 from screen.prepare.readers import assign_missing_ids as _assign_missing_ids
 from screen.prepare.shards import MANIFEST_COLUMNS
 
@@ -144,16 +144,17 @@ def _places(frame: pd.DataFrame, rows: list[int]) -> list[tuple[str, str]]:
     ('the row on line 6 of c.csv', 'line 6')
     """
     found = frame.attrs.get(INPUT_LINES) or {}
-    lines, name = found.get("lines") or [], found.get("file") or "the candidate file"
+    name = found.get("file") or "the candidate file"
     out = []
     for row in rows:
-        if not 0 <= row < len(lines):  # a frame built in code: where the row would be in a file
+        line = input_line(frame, row)
+        if line is None:  # a frame built in code: where the row would be in a file
             out.append((f"row {row} (0-based; line {row + 2} of a CSV file with its header and no blank line, "
                         f"SD record {row + 1})", f"row {row}"))
         elif found.get("format") == "sdf":
-            out.append((f"SD record {row + 1} (line {lines[row]}) of {name}", f"SD record {row + 1}, line {lines[row]}"))
+            out.append((f"SD record {row + 1} (line {line}) of {name}", f"SD record {row + 1}, line {line}"))
         else:
-            out.append((f"the row on line {lines[row]} of {name}", f"line {lines[row]}"))
+            out.append((f"the row on line {line} of {name}", f"line {line}"))
     return out
 
 

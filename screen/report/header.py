@@ -406,7 +406,8 @@ def _not_viable_words(rec) -> str:
 
 
 def _interval(ci) -> str:
-    """`` [lo to hi]`` of a 95 % acceptor-group bootstrap interval, or '' without one.
+    """`` [95 % range lo to hi, resampling whole acceptors]`` of a 95 % acceptor-group bootstrap interval
+    ``[lo, hi]``, or '' without one.
 
     Examples
     --------
@@ -419,15 +420,17 @@ def _interval(ci) -> str:
 
 
 def _class_words(film) -> str:
-    """The film-level held-out Voc MAE per acceptor class, with the mean-Voc baseline where the class is no better.
+    """The film-level held-out Voc MAE per acceptor class, with the mean-Voc baseline where the class is no better
+    and the PCE rank correlation within the class where it is known.
 
     Examples
     --------
     >>> words = _class_words({"by_class": {
     ...     "nfa-fused": {"n": 66, "voc_mae_v": 0.037, "baseline_voc_mae_v": 0.066, "spearman_pce": 0.25},
     ...     "nfa-other": {"n": 7, "voc_mae_v": 0.134, "baseline_voc_mae_v": 0.152}}})
-    >>> words.split("holds): ")[1]
-    'nfa-fused 0.037 V (fused-ring non-fullerene; 66; PCE rank correlation within the class 0.25), nfa-other 0.134 V (other non-fullerene; 7; predicting the mean: 0.152 V)'
+    >>> print(words.split("holds): ")[1])  # doctest: +NORMALIZE_WHITESPACE
+    nfa-fused 0.037 V (fused-ring non-fullerene; 66; PCE rank correlation within the class 0.25), nfa-other 0.134 V
+    (other non-fullerene; 7; predicting the mean: 0.152 V)
     """
     classes = film.get("by_class") if isinstance(film, dict) else None
     if not isinstance(classes, dict) or not classes:

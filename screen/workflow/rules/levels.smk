@@ -19,4 +19,5 @@ rule levels:
         "../envs/dascreen.yaml"
     shell:
         "{params.py} -m screen.stages --config {params.cfg:q} levels --manifest {input.outdir:q}/manifest.csv"
-        " --electronic {input.electronic:q} --models {input.models:q} --out {output.levels:q} --meta {output.meta:q} --pinned={params.pinned:q} > {log:q} 2>&1"
+        " --electronic {input.electronic:q} --models {input.models:q} --out {output.levels:q} --meta {output.meta:q}"
+        " --pinned={params.pinned:q} > {log:q} 2>&1"

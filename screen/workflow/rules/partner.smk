@@ -42,7 +42,7 @@ rule partner_levels:
         batch=r"partner-m[0-9a-f]{16}",
     params:
         py=PY,
-        cfg=sections("structures", "electronic", "levels", "calibration"),
+        cfg=sections("structures", "electronic", "polymer", "levels", "calibration"),
         pinned=PIN_TEXT,
         made_from=lambda wildcards: f"{WORK}/{wildcards.batch}/input.csv",
     log:
