@@ -136,7 +136,35 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass, sort_by: s
         said = "" if math.isnan(prob) else f", P(PCE &gt; target) {prob * 100:.0f} %"
         sentence += (f"; first in the ranking's order: <strong>{esc(first.get('id'))}</strong> "
                      f"({fmt(first.get('pce_pct'), 1)} % PCE{said})")
-    return sentence + "."
+    return sentence + "." + _close_top_words(pce, num(best.get("pce_sigma_pct")), sort_by)
+
+
+#: how many of the best estimates :func:`_close_top_words` compares
+_TOP = 5
+
+
+def _close_top_words(pce: pd.Series, sigma: float, sort_by: str) -> str:
+    """A sentence when the best estimates lie closer together than the best one's ± (a group leader choosing five
+    synthesis targets: the top five within 0.3 points under a ± of 1.7, ordered by PCE, which favours the smallest
+    HOMO offset, the least likely to work); '' for fewer than three estimates, otherwise, or when the ranking is
+    already by P(PCE > target).
+
+    Examples
+    --------
+    >>> _close_top_words(pd.Series([13.4, 13.3, 13.2, 13.2, 13.1, 9.0]), 1.7, "pce_pct")[:47]
+    ' The best 5 estimates lie within 0.3 PCE points'
+    >>> _close_top_words(pd.Series([13.4, 11.0, 9.0]), 1.7, "pce_pct")
+    ''
+    >>> _close_top_words(pd.Series([13.4, 13.3, 13.2]), 1.7, "p_above_target")  # already ordered by the chance
+    ''
+
+    """
+    top = pce.dropna().sort_values(ascending=False).head(_TOP)
+    if sort_by != "pce_pct" or len(top) < 3 or math.isnan(sigma) or top.iloc[0] - top.iloc[-1] >= sigma:
+        return ""
+    return (f" The best {len(top)} estimates lie within {top.iloc[0] - top.iloc[-1]:.1f} PCE points, less than the "
+            f"± of {sigma:.1f}: their order by the estimate says little; P(aligned) and P(PCE &gt; target) tell them "
+            "apart, and <code>--set rank.sort_by=p_above_target</code> orders by the chance of clearing the target.")
 
 
 def _sort_by(meta: dict) -> str:
