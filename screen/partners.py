@@ -303,13 +303,18 @@ def _canonical_key(smiles: str) -> tuple[str, str]:
 
     text = smiles.strip()
     with rdBase.BlockLogs():
-        mol = Chem.MolFromSmiles(text) if text else None
-    if mol is None:
-        raise PartnerError(f"partner smiles:{text!r} does not parse as SMILES")
+        if not text or Chem.MolFromSmiles(text, sanitize=False) is None:
+            raise PartnerError(f"partner smiles:{text!r} does not parse as SMILES")
+    # the prepare checks first: they sanitise a ring system fused to a macrocycle in a worker with a time limit,
+    # where RDKit's own parse below could take hours (a large nanohoop) and hold up the run before it starts
     problem = _prepare_problem(text)
     if problem:
         raise PartnerError(f"partner smiles:{text!r} cannot be computed: {problem}; a smiles: partner is one neutral, "
                            "closed-shell molecule (or a polymer repeat unit with two attachment points [*])")
+    with rdBase.BlockLogs():
+        mol = Chem.MolFromSmiles(text)
+    if mol is None:
+        raise PartnerError(f"partner smiles:{text!r} does not parse as SMILES")
     canonical, _ = canonical_form(mol)
     charge = Chem.GetFormalCharge(mol)
     electrons = sum(a.GetAtomicNum() + a.GetTotalNumHs() for a in mol.GetAtoms()) - charge

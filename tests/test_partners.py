@@ -353,3 +353,16 @@ def test_a_huge_partner_name_is_not_echoed_in_full():
     with pytest.raises(PartnerError) as err:
         partner_kind("z" * 100_000)
     assert len(str(err.value)) < 1500 and "(100000 characters)" in str(err.value)
+
+
+def test_a_macrocycle_partner_is_refused_within_the_time_limit(monkeypatch):
+    # RDKit's aromaticity perception of a [16]cycloparaphenylene takes ~20 s here and grows tenfold per two rings;
+    # a smiles: partner is checked by the prepare stage's guard before RDKit's own parse, so the run is refused in
+    # about the time limit instead of hanging before it starts
+    from screen.partners import _canonical_key
+    from screen.prepare import checks
+
+    monkeypatch.setattr(checks, "RING_PERCEPTION_LIMIT_S", 2.0)
+    hoop = "c1cc2ccc1" + "-c1ccc(cc1)" * 14 + "-c1ccc-2cc1"
+    with pytest.raises(PartnerError, match="ring_perception_time"):
+        _canonical_key(hoop)
