@@ -56,7 +56,7 @@ REPO = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(REPO))
 
 from screen.devicefit import (CONSTANT_VARIANTS, DEVICES_PATH, FILM_PATH, GROUPINGS, cross_validate,  # noqa: E402
-                              level_table, read_devices, table)
+                              interval_text, level_table, read_devices, table)
 from screen.devicevalidation import (RAW_PATH, computed_validation, coverage, levels_for, rank_limits,  # noqa: E402
                                      read_raw)
 from screen.devicepars import FITTED_PATH, VALIDATION_PATH  # noqa: E402
@@ -150,11 +150,9 @@ def computed(d, devices, film, raw_path) -> dict:
         for key, label, lv in (("fitted", "fitted", "computed"), ("scharber", "scharber", "computed"),
                                ("fitted_published_levels", "fitted", "published")):
             m = r[key]
-            ci = {k: (f" [{_f(m[k][0], '.2f')}, {_f(m[k][1], '.2f')}]" if m.get(k) else "")
-                  for k in ("spearman_voc_ci95", "spearman_pce_ci95")}
             rows.append((label, lv, str(m["n"]), _f(m["voc_mae_v"]), _f(m["voc_bias_v"], "+.3f"),
-                         _f(m["spearman_voc"], ".2f") + ci["spearman_voc_ci95"],
-                         f"{_f(m['spearman_pce'], '.2f')}{ci['spearman_pce_ci95']} (n={m['n_pce']})"))
+                         _f(m["spearman_voc"], ".2f") + interval_text(m.get("spearman_voc_ci95")),
+                         f"{_f(m['spearman_pce'], '.2f')}{interval_text(m.get('spearman_pce_ci95'))} (n={m['n_pce']})"))
         base = r["mean_voc_baseline"]
         rows.append(("training mean Voc", "-", str(r["fitted"]["n"]), _f(base["voc_mae_v"]),
                      _f(base["voc_bias_v"], "+.3f"), "-", "-"))

@@ -241,9 +241,13 @@ def save_calibration(models: dict[str, dict], computed: pd.DataFrame, oligomers:
 MODEL_NAMES = ("ip", "ea", "gap_opt", "homo_film", "lumo_film", "gap_opt_film")
 
 
+#: the fingerprint keys a calibration must share with a run (:func:`load_models`)
+FINGERPRINT_KEYS = ("protocol_id", "engine_version", "polymer", "reference_sha256")
+
+
 def _compare(found: dict, expected: dict) -> list[str]:
     return [f"{k}: model has {found.get(k)!r}, run has {expected.get(k)!r}"
-            for k in ("protocol_id", "engine_version", "polymer", "reference_sha256") if found.get(k) != expected.get(k)]
+            for k in FINGERPRINT_KEYS if found.get(k) != expected.get(k)]
 
 
 def load_models(model_dir: str | Path, config=None, reference_dir: str | Path | None = None,

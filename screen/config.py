@@ -344,6 +344,19 @@ def changed_calibration_settings(config: Mapping | None) -> dict:
             if field != "electronic.threads" and value != default.get(field)}
 
 
+def calibration_set_args(config: Mapping | None) -> list[str]:
+    """``--set FIELD=VALUE`` words (shell-quoted) of :func:`changed_calibration_settings`.
+
+    Examples
+    --------
+    >>> calibration_set_args({"structures": {"geometry": "xtb"}})
+    ['--set structures.geometry=xtb']
+    """
+    import shlex
+
+    return [f"--set {shlex.quote(f'{k}={setting_text(v)}')}" for k, v in changed_calibration_settings(config).items()]
+
+
 def setting_text(value) -> str:
     """A setting's value as a ``--set`` writes it (YAML: ``null``, ``true``, ``[a, b]``).
 

@@ -598,7 +598,8 @@ def _fmt(x, spec) -> str:
     return "n/a" if x is None or not np.isfinite(x) else format(x, spec)
 
 
-def _interval(ci) -> str:
+def interval_text(ci) -> str:
+    """`` [lo, hi]`` of a 95 % interval for the text tables ('' without one)."""
     return "" if not ci else f" [{_fmt(ci[0], '.2f')}, {_fmt(ci[1], '.2f')}]"
 
 
@@ -609,8 +610,8 @@ def table(metrics: dict) -> str:
                         ("scharber_paper_levels", "scharber (papers' levels)")):
         m = metrics[name]
         rows.append((label, str(m["n"]), _fmt(m["voc_mae_v"], ".3f"), _fmt(m["voc_bias_v"], "+.3f"),
-                     _fmt(m["spearman_voc"], ".2f") + _interval(m.get("spearman_voc_ci95")),
-                     f"{_fmt(m['spearman_pce'], '.2f')}{_interval(m.get('spearman_pce_ci95'))} (n={m['n_pce']})",
+                     _fmt(m["spearman_voc"], ".2f") + interval_text(m.get("spearman_voc_ci95")),
+                     f"{_fmt(m['spearman_pce'], '.2f')}{interval_text(m.get('spearman_pce_ci95'))} (n={m['n_pce']})",
                      str(m["not_viable"])))
     for name, label in (("mean_voc_baseline", "training mean Voc"),
                         ("class_mean_voc_baseline", "training class-mean Voc")):

@@ -53,6 +53,12 @@ class FolderInUse(ConfigError):
 
     console_kind = "folder in use"
 
+    @classmethod
+    def of(cls, out) -> FolderInUse:
+        """The refusal for run folder ``out``."""
+        return cls(f"another dascreen run is using {out}; wait for it to finish (`dascreen status --out {out}`) "
+                   "or choose another --out")
+
 
 class InputError(DascreenError, ValueError):
     """A bad input: candidates file, levels file or partner (names the file, row and column)."""

@@ -317,8 +317,7 @@ def _lock(out: Path):
         fcntl.flock(lock, fcntl.LOCK_EX | fcntl.LOCK_NB)
     except BlockingIOError:
         lock.close()
-        raise FolderInUse(f"another dascreen run is using {out}; wait for it to finish (`dascreen status --out "
-                          f"{out}`) or choose another --out") from None
+        raise FolderInUse.of(out) from None
     return lock
 
 

@@ -34,7 +34,7 @@ from pathlib import Path
 
 import yaml
 
-from screen.config import changed_calibration_settings, read_problem
+from screen.config import calibration_set_args, read_problem
 from screen.config import setting_text as _show
 from screen.config import flat_settings as _flat
 from screen.errors import ConfigError, InputError
@@ -727,8 +727,7 @@ def check_out(out, candidates=None, overwrite: bool = False, given: str | None =
     if run_active(out):
         from screen.errors import FolderInUse  # not a configuration problem; exit code 2 like one
 
-        raise FolderInUse(f"another dascreen run is using {out}; wait for it to finish (`dascreen status --out "
-                          f"{out}`) or choose another --out")
+        raise FolderInUse.of(out)
     if not overwrite and (out / "config.yaml").is_file():
         try:
             recorded = yaml.safe_load((out / "config.yaml").read_text(encoding="utf-8")) or {}
@@ -1091,8 +1090,7 @@ def _calibrate_command(cfg, diffs, config_file=None) -> str:
     words = ["dascreen calibrate"]
     if config_file:
         words.append(f"--config {shlex.quote(str(config_file))}")
-    words += [f"--set {shlex.quote(f'{field}={_show(value)}')}"
-              for field, value in changed_calibration_settings(cfg).items()]
+    words += calibration_set_args(cfg)
     if any(d.field == "calibration.reference" for d in diffs):
         words.append(f"--reference {shlex.quote(str(cfg['calibration']['reference']))}")
     words.append(f"--install {shlex.quote(str(_install_folder(cfg)))}")

@@ -23,7 +23,7 @@ values would calibrate the wrong numbers).
 Examples
 --------
 >>> import screen
->>> from screen.config import Config, changed_calibration_settings, setting_text
+>>> from screen.config import Config
 >>> cfg = Config.of({})
 >>> folder = Path(screen.__file__).resolve().parents[1] / "models" / cfg.protocol_id  # the shipped models
 >>> raw, sidecar = read_raw_source(folder, cfg.protocol_id)
@@ -33,7 +33,6 @@ Examples
 
 from __future__ import annotations
 
-import shlex
 from pathlib import Path
 
 import numpy as np
@@ -41,7 +40,7 @@ import pandas as pd
 
 from screen.calibrate import fingerprint, fit_all, read_reference, save_calibration
 from screen.calibration.reference import canonical, reference_inputs
-from screen.config import Config, changed_calibration_settings, setting_text
+from screen.config import Config, calibration_set_args
 from screen.errors import ConfigError
 from screen.io import read_csv_checked, read_json, write_csv
 
@@ -208,8 +207,7 @@ def refit_from_raw(config, sources, out_root: str | Path) -> tuple[Path, pd.Data
         listing = Path(out_root) / "missing_reference.csv"
         write_csv(missing, listing)
         names = ", ".join(missing["name"].head(8)) + (" …" if len(missing) > 8 else "")
-        settings = "".join(f" --set {shlex.quote(f'{k}={setting_text(v)}')}"
-                           for k, v in changed_calibration_settings(cfg).items())
+        settings = "".join(f" {word}" for word in calibration_set_args(cfg))
         raise ConfigError(f"--from-raw: {len(missing)} reference structure(s) have no raw values ({names}); "
                           f"compute them with `dascreen run {listing} --out DIR{settings}` and add `--from-raw DIR` "
                           "(that run needs a calibration of these settings fitted on its reference data: when the "

@@ -83,12 +83,12 @@ def _calibration_fix(folder) -> str:
 
 def _fingerprint_changes(models: dict, cfg, folder) -> list[str]:
     """How the models' fingerprint differs from the run's (the keys :func:`screen.calibrate.load_models` checks)."""
-    from screen.calibrate import fingerprint
+    from screen.calibrate import FINGERPRINT_KEYS, fingerprint
 
     ref = cfg["calibration"]["reference"]
     expected = fingerprint(cfg, ref)
     out = []
-    for key in ("protocol_id", "engine_version", "polymer", "reference_sha256"):
+    for key in FINGERPRINT_KEYS:
         found = {json.dumps(m.get("fingerprint", {}).get(key), sort_keys=True) for m in models.values()}
         if found == {json.dumps(expected[key], sort_keys=True)}:
             continue
