@@ -27,6 +27,14 @@ slope is never extrapolated; photons between the two gaps are absorbed by the
 lower-gap material only, those above both are shared; the charge-generation
 yield of donor excitons falls as ΔLUMO → 0, that of acceptor excitons as
 ΔHOMO → 0 — with the shipped Δ0 = 0.01 eV in effect a step at zero offset).
+Where the fitted parameters say a fullerene acceptor does not count as an
+absorber (:attr:`screen.devicepars.FittedParameters.fullerene_absorbs`,
+chosen by a grouped cross-validation of the measured Jsc), a fullerene blend's
+current is :math:`\\mathrm{EQE}_{max}\\, q\\, \\eta_D \\int_{E_g^{D}}^{\\infty}
+\\Phi\\,dE` (the donor's gap, as in [1]_): the lowest singlet transitions of
+C60 are symmetry-forbidden and C70's are weak [6]_, so a fullerene film
+absorbs little near its optical gap.  E_CT and the Voc caps keep the smaller
+optical gap of the pair.
 
 ``scharber`` — the published donor-only rule [1]_ with its own parameters:
 :math:`V_{oc} = (E_{LUMO}^{A} - E_{HOMO}^{D})/e - 0.3` V, EQE = FF = 0.65,
@@ -62,6 +70,12 @@ References
    W. F. Holmgren et al., J. Open Source Softw. 3 (2018) 884.
    :doi:`10.21105/joss.00884`
 .. [5] S. Rühle, Sol. Energy 130 (2016) 139. :doi:`10.1016/j.solener.2016.02.015`
+.. [6] S. Leach, M. Vervloet, A. Desprès, E. Bréheret, J. P. Hare, T. J. Dennis,
+   H. W. Kroto, R. Taylor, D. R. M. Walton, "Electronic spectra and transitions
+   of the fullerene C60", Chem. Phys. 160 (1992) 451 (from memory); the parity
+   of the C60 frontier orbitals (h_u HOMO, t_1u LUMO: HOMO→LUMO dipole-forbidden
+   in I_h): M. S. Dresselhaus, G. Dresselhaus, R. Saito, Mater. Sci. Eng. B 19
+   (1993) 122 (from memory).
 """
 
 from __future__ import annotations
@@ -148,7 +162,10 @@ class DeviceModel:
         'scharber': the published donor-only design rule (parameters of [1]_).
     absorber : {'both', 'donor'}, default 'both'
         'both': both materials absorb; photons above the smaller optical gap
-        count and both offsets are checked.  'donor': only the donor absorbs
+        count and both offsets are checked — except, in the fitted model whose
+        parameters say so (``fullerene_absorbs`` False), a fullerene acceptor,
+        whose weak absorption near its gap is not counted: the donor's gap
+        sets Jsc (:meth:`acceptor_absorbs`).  'donor': only the donor absorbs
         (the published model); ΔHOMO must still be > 0 for type II.
     eqe, ff : float or None
         Override the model's maximum EQE and fill factor. [dimensionless]
@@ -297,11 +314,15 @@ class DeviceModel:
         >>> d = DeviceModel(model="scharber").as_dict()
         >>> d["model"], d["absorber"], d["loss_v"], d["min_delta_lumo_ev"]
         ('scharber', 'both', 0.3, 0.3)
+        >>> DeviceModel(model="scharber", absorber="donor").as_dict()["min_delta_homo_ev"] is None  # not applied
+        True
         """
         d = {"model": self.model, "absorber": self.absorber, "label": self.label}
         for name in ("eqe", "ff", "loss_v", "min_delta_lumo_ev", "min_delta_homo_ev"):
             d[name] = self.value(name)
             d[f"{name}_set"] = getattr(self, name) is not None
+        if not self.check_homo_offset:  # the donor-only model checks the LUMO offset alone: no threshold applied
+            d["min_delta_homo_ev"] = None
         d["pin_w_m2"] = self.pin_w_m2
         d["offset_scale_ev"] = self.offset_scale_ev
         if self.model == "fitted":
@@ -383,11 +404,87 @@ class DeviceModel:
             return np.full(classes.shape, self.value("loss_v")), np.zeros(classes.shape, dtype=bool)
         return self.parameters.loss_for(classes), self.parameters.pooled_mask(classes)
 
-    def absorber_gap_ev(self, donor_gap, acceptor_gap):
-        """Gap that sets Jsc: the donor's, or the smaller of the pair for ``absorber='both'``. [eV]"""
+    def acceptor_absorbs(self, acceptor_class=None) -> np.ndarray:
+        """Per pair: whether the acceptor counts as an absorber for Jsc.
+
+        False only in the fitted model with ``absorber='both'`` whose parameters do
+        not count a fullerene (:attr:`screen.devicepars.FittedParameters.fullerene_absorbs`
+        False, chosen by :mod:`screen.devicefit` on the measured Jsc of published
+        devices), for an acceptor of class ``'fullerene'``; there the donor's gap sets Jsc and the
+        detailed-balance PCE cap.  Fullerene films absorb weakly near their
+        optical gap — the lowest singlet transitions of C60 are symmetry-forbidden,
+        C70's are weak — so counting every photon above the fullerene's gap
+        overstates the current; Scharber's model, built for fullerene blends,
+        counts the donor's absorption only [1]_.  Scharber's rule and
+        ``absorber='donor'`` are unchanged (True everywhere; the donor-only model
+        ignores the acceptor's gap anyway).
+
+        Parameters
+        ----------
+        acceptor_class : array_like of str or None
+            Acceptor class per pair (:func:`screen.viability.acceptor_class_of`); None or '' is unknown
+            (counts as an absorber).
+
+        Returns
+        -------
+        numpy.ndarray of bool
+            Shape of ``acceptor_class``.
+
+        References
+        ----------
+        .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789. :doi:`10.1002/adma.200501717`
+        .. [2] S. Leach et al., Chem. Phys. 160 (1992) 451 (electronic spectra of C60; from memory).
+
+        Examples
+        --------
+        >>> from screen.devicepars import FittedParameters
+        >>> p = FittedParameters(loss_ev={"pooled": 0.5}, eqe_max=0.7, offset_scale_ev=0.01, ff=0.65,
+        ...                      fullerene_absorbs=False)
+        >>> DeviceModel(parameters=p).acceptor_absorbs(["fullerene", "nfa-fused"]).tolist()
+        [False, True]
+        >>> DeviceModel(model="scharber").acceptor_absorbs(["fullerene"]).tolist()
+        [True]
+        """
+        classes = np.asarray("" if acceptor_class is None else acceptor_class, dtype=object)
+        if self.model != "fitted" or self.absorber != "both" or self.parameters.fullerene_absorbs:
+            return np.ones(classes.shape, dtype=bool)
+        return self.parameters.acceptor_absorbs(classes)
+
+    @property
+    def _donor_absorber_view(self) -> "DeviceModel":
+        """The same model with ``absorber='donor'``: its Jsc and absorber gap are those of a pair whose acceptor
+        does not count as an absorber (E_CT and the Voc caps use the smaller gap of the pair in both)."""
+        return dataclasses.replace(self, absorber="donor")
+
+    def absorber_gap_ev(self, donor_gap, acceptor_gap, acceptor_class=None):
+        """Gap that sets Jsc and the detailed-balance PCE cap: the donor's, or the smaller of the pair for
+        ``absorber='both'`` — the donor's again for an acceptor that does not count as an absorber
+        (:meth:`acceptor_absorbs`) unless the acceptor's gap is not positive (then that invalid gap, which
+        makes the pair not viable, as it does for an absorbing acceptor). [eV]
+
+        Examples
+        --------
+        >>> from screen.devicepars import FittedParameters
+        >>> p = FittedParameters(loss_ev={"pooled": 0.5}, eqe_max=0.7, offset_scale_ev=0.01, ff=0.65,
+        ...                      fullerene_absorbs=False)
+        >>> DeviceModel(parameters=p).absorber_gap_ev(1.9, 1.65, ["fullerene", "nfa-fused"]).tolist()
+        [1.9, 1.65]
+        """
+        d_gap = np.asarray(donor_gap, dtype=float)
         if self.absorber == "donor":
-            return np.asarray(donor_gap, dtype=float)
-        return np.minimum(np.asarray(donor_gap, float), np.asarray(acceptor_gap, float))
+            return d_gap
+        return self._absorber_gap(d_gap, np.asarray(acceptor_gap, float),
+                                  np.minimum(d_gap, np.asarray(acceptor_gap, float)),
+                                  self.acceptor_absorbs(acceptor_class))
+
+    @staticmethod
+    def _absorber_gap(d_gap, a_gap, g_both, absorbs):
+        """The absorber gap of :meth:`absorber_gap_ev` from the pair's smaller gap ``g_both`` [eV]."""
+        if np.all(absorbs):
+            return g_both
+        with np.errstate(invalid="ignore"):
+            donor_only = ~np.asarray(absorbs, dtype=bool) & ~(a_gap <= 0)
+        return np.where(donor_only, d_gap, g_both)
 
     def check_inputs(self, acceptor_homo_ev, acceptor_lumo_ev, acceptor_gap_ev, caller: str) -> None:
         """Refuse a call without the acceptor levels the model needs.
@@ -444,7 +541,7 @@ class DeviceModel:
 
     # ------------------------------------------------------------ the physics
     def figures(self, levels, loss_ev, *, ff=None, jsc_unit=None, sq_pct=None, sq_voc=None,
-                keep_model_values=False) -> dict:
+                keep_model_values=False, acceptor_absorbs=None) -> dict:
         """Classification, Voc, Jsc and PCE of pairs from their six levels (the one formula).
 
         Parameters
@@ -461,11 +558,15 @@ class DeviceModel:
             :func:`screen.spectrum.sq_pce_pct` (the sampler passes tables).
         sq_voc : callable or None
             Detailed-balance Voc [V] of a gap; None uses :func:`screen.spectrum.sq_voc_v`.
+        acceptor_absorbs : numpy.ndarray of bool or None
+            Per pair (broadcastable), from :meth:`acceptor_absorbs`: False where the acceptor's absorption
+            is not counted (the donor's gap sets Jsc and the PCE cap; E_CT and the Voc caps unchanged);
+            None: every acceptor counts.
 
         Returns
         -------
         dict of numpy.ndarray
-            ``delta_lumo_ev``, ``delta_homo_ev``, ``absorber_gap_ev``,
+            ``delta_lumo_ev``, ``delta_homo_ev``, ``absorber_gap_ev`` (the gap that set Jsc),
             ``voc_v``, ``jsc_ma_cm2``, ``pce_pct`` (0 where not viable: callers
             blank them), the masks of :func:`screen.viability.classify`,
             ``viable``, ``voc_capped``, ``pce_capped`` and ``loss_ev`` (the loss applied [eV]); with
@@ -476,6 +577,13 @@ class DeviceModel:
         shape = np.broadcast_shapes(*(np.shape(x) for x in levels), np.shape(loss_ev))
         t = pair_terms(self, levels, loss_ev, jsc_unit, sq_voc)
         delta_lumo, delta_homo, g_lo, voc_raw, jsc = t.delta_lumo, t.delta_homo, t.absorber_gap, t.voc_raw, t.jsc
+        if self.absorber == "both" and acceptor_absorbs is not None and not np.all(acceptor_absorbs):
+            # the donor-absorber formula for Jsc (one formula: the kernel's); Voc, E_CT and caps from t
+            t_d = pair_terms(self._donor_absorber_view, levels, loss_ev, jsc_unit, sq_voc)
+            absorbs = np.asarray(acceptor_absorbs, dtype=bool)
+            g_lo = self._absorber_gap(np.asarray(levels[2], float), np.asarray(levels[5], float), g_lo, absorbs)
+            jsc = np.where(absorbs, jsc, t_d.jsc)
+            shape = np.broadcast_shapes(shape, absorbs.shape)
         missing = self.needed_missing(levels, shape)
         masks = classify(delta_lumo, delta_homo, g_lo, voc_raw, missing, min_lumo=self.value("min_delta_lumo_ev"),
                          min_homo=self.value("min_delta_homo_ev"), check_homo_offset=self.check_homo_offset)
@@ -503,12 +611,16 @@ class DeviceModel:
         return {k: np.broadcast_to(v, shape) for k, v in out.items()}
 
     def pce_from_levels(self, levels, loss_ev, *, ff=None, jsc_unit=None, sq_pct=None, sq_voc=None,
-                        sq_below_ev=np.inf) -> np.ndarray:
+                        sq_below_ev=np.inf, acceptor_absorbs=None) -> np.ndarray:
         """Efficiency of (sampled) pair levels; 0 where a sample is not viable. [%]
 
         The vectorised kernel of :func:`screen.sampling.sample_pce`: the same
         formula as :meth:`evaluate` (:func:`screen.devicekernel.pair_terms`),
-        the classification as plain comparisons, no flags.
+        the classification as plain comparisons, no flags.  ``acceptor_absorbs``
+        (from :meth:`acceptor_absorbs`, broadcastable; None: every acceptor
+        counts) as in :meth:`figures`: where it is False the efficiency is the
+        donor-absorber one (the same classification, Voc and Voc caps), so such
+        rows cost the kernel twice.
 
         Examples
         --------
@@ -519,8 +631,14 @@ class DeviceModel:
         [9.79, 0.0]
         """
         jsc_unit = (lambda g: jsc_ma_cm2(g, 1.0)) if jsc_unit is None else jsc_unit
-        return pce_samples(self, levels, np.asarray(loss_ev, dtype=float), jsc_unit,
-                           self._sq_pct(sq_pct), sq_below_ev, ff=ff, sq_voc=sq_voc)
+        loss = np.asarray(loss_ev, dtype=float)
+        out = pce_samples(self, levels, loss, jsc_unit, self._sq_pct(sq_pct), sq_below_ev, ff=ff, sq_voc=sq_voc)
+        if self.absorber != "both" or acceptor_absorbs is None or np.all(acceptor_absorbs):
+            return out
+        # viable in the both-absorb kernel (its offset checks) → the donor-absorber efficiency of that sample
+        donor = pce_samples(self._donor_absorber_view, levels, loss, jsc_unit, self._sq_pct(sq_pct), sq_below_ev,
+                            ff=ff, sq_voc=sq_voc)
+        return np.where(np.asarray(acceptor_absorbs, dtype=bool), out, np.where(out > 0, donor, 0.0))
 
     def pce_pct(self, donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev=None, acceptor_lumo_ev=None,
                 acceptor_gap_ev=None, *, acceptor_class=None, caller: str = "pce_pct()") -> np.ndarray:
@@ -542,7 +660,8 @@ class DeviceModel:
         levels, _ = self.pair_arrays(donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev,
                                      acceptor_lumo_ev, acceptor_gap_ev, caller)
         loss, _ = self.loss_ev(acceptor_class)
-        fig = self.figures(levels, loss, ff=self.ff_of(acceptor_class))
+        fig = self.figures(levels, loss, ff=self.ff_of(acceptor_class),
+                           acceptor_absorbs=self.acceptor_absorbs(acceptor_class))
         return np.where(fig["viable"], fig["pce_pct"], np.nan).astype(float)
 
     def evaluate(self, donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev=None, acceptor_lumo_ev=None,
@@ -564,7 +683,8 @@ class DeviceModel:
             Acceptor optical gap; needed for ``absorber='both'``. [eV]
         acceptor_class : array_like of str or None
             Acceptor class per pair (``fullerene``, ``nfa-fused`` …) for the
-            fitted loss; None or '' uses the pooled loss.
+            fitted loss, fill factor and whether the acceptor counts as an
+            absorber (:meth:`acceptor_absorbs`); None or '' uses the pooled loss.
 
         Returns
         -------
@@ -572,8 +692,8 @@ class DeviceModel:
             With the broadcast shape of the inputs: ``delta_lumo_ev``,
             ``delta_homo_ev`` [eV]; ``voc_v`` [V], ``jsc_ma_cm2`` [mA cm⁻²],
             ``ff``, ``pce_pct`` [%] — NaN where the pair is not viable;
-            ``absorber_gap_ev`` [eV], ``loss_ev`` (the loss applied: the class loss, grown with
-            E_CT when the fitted model has a loss slope) [eV]; one boolean mask per
+            ``absorber_gap_ev`` (the gap that set Jsc and the PCE cap) [eV], ``loss_ev`` (the loss
+            applied: the class loss, grown with E_CT when the fitted model has a loss slope) [eV]; one boolean mask per
             device flag of :data:`screen.flags.DEVICE_FLAGS`; ``viable`` (and
             its old name ``device_ok``); ``flags`` (';'-joined codes).
 
@@ -605,7 +725,7 @@ class DeviceModel:
                                          acceptor_lumo_ev, acceptor_gap_ev, "evaluate()")
         loss, pooled = self.loss_ev(acceptor_class)
         ff = self.ff_of(acceptor_class)
-        fig = self.figures(levels, loss, ff=ff)
+        fig = self.figures(levels, loss, ff=ff, acceptor_absorbs=self.acceptor_absorbs(acceptor_class))
         shape = fig["viable"].shape
         viable = fig["viable"]
 

@@ -24,6 +24,16 @@ The fitted model of :mod:`screen.device` has four kinds of parameter:
 - the maximum EQE and the offset scale Δ0 of the charge-generation yield
   1 − exp(−Δ/Δ0): least squares on the measured Jsc of every training device
   with a Jsc (whether or not its Voc is known);
+- whether a fullerene acceptor counts as an absorber for Jsc
+  (:attr:`screen.devicepars.FittedParameters.fullerene_absorbs`): fullerene
+  films absorb weakly near their optical gap (the lowest singlet transitions of
+  C60 are symmetry-forbidden, C70's are weak; Leach et al. [5]_, from memory),
+  and Scharber's model [2]_, built for fullerene blends, counts the donor's
+  absorption only.  Counted or not (the donor's gap then sets the current) is
+  chosen *inside each training fold* by an inner grouped cross-validation of the
+  measured Jsc, the EQE and Δ0 refitted in each inner fold
+  (:func:`choose_fullerene_absorber`); a tie keeps the fullerene as an absorber
+  (the rule of every other acceptor);
 - the fill factor: the median measured FF of the training devices with an FF,
   pooled, per family or per acceptor class (a class or family needs
   :data:`MIN_CLASS_ROWS` devices with an FF, else the next coarser value) — the
@@ -62,6 +72,9 @@ References
 .. [3] K. Vandewal et al., Nat. Mater. 8 (2009) 904. :doi:`10.1038/nmat2548`
 .. [4] C. M. Cardona, W. Li, A. E. Kaifer, D. Stockdale, G. C. Bazan, Adv. Mater. 23 (2011) 2367
    (ferrocene reference values in CV level estimates). :doi:`10.1002/adma.201004554`
+.. [5] S. Leach, M. Vervloet, A. Desprès, E. Bréheret, J. P. Hare, T. J. Dennis, H. W. Kroto, R. Taylor,
+   D. R. M. Walton, "Electronic spectra and transitions of the fullerene C60", Chem. Phys. 160 (1992) 451
+   (from memory).
 """
 
 from __future__ import annotations
@@ -80,15 +93,16 @@ from screen.device import DeviceModel
 from screen.devicelevels import (DEVICES_PATH, FC_SCALE_EV, FILM_PATH, LEVELS, MIN_SHARED_MATERIALS, level_table,
                                  read_devices, resolve_levels)
 from screen.devicekernel import voc_limit
-from screen.devicepars import (FITTED_PATH, NON_FULLERENE, POOLED, FittedParameters, class_values, family_of,
-                               slope_loss)
+from screen.devicepars import (FITTED_PATH, FULLERENE, NON_FULLERENE, POOLED, FittedParameters, class_values,
+                               family_of, slope_loss)
 from screen.errors import InputError
 from screen.spectrum import jsc_ma_cm2
 
 __all__ = ["DEVICES_PATH", "FILM_PATH", "LEVELS_TABLE_PATH", "read_devices", "level_table", "resolve_levels",
            "fit", "cross_validate", "predict", "write_fitted", "main", "MIN_CLASS_ROWS", "OFFSET_SCALE_GRID_EV",
            "FC_SCALE_EV", "MIN_SHARED_MATERIALS", "LOSS_SPLITS", "LOSS_VARIANTS", "GROUPINGS", "choose_split",
-           "fold_model", "CONSTANT_VARIANTS", "FF_SPLITS", "choose_ff_split"]
+           "fold_model", "CONSTANT_VARIANTS", "FF_SPLITS", "choose_ff_split", "choose_fullerene_absorber",
+           "FULLERENE_ABSORBER_CHOICES"]
 
 _REPO = Path(__file__).resolve().parent.parent
 #: resolved levels of every device row (written by ``--write``)
@@ -105,6 +119,9 @@ FF_SPLITS = LOSS_SPLITS
 CONSTANT_VARIANTS = tuple(v for v in LOSS_VARIANTS if "+slope" not in v)
 #: grouping name -> column of the group key
 GROUPINGS = {"acceptor": "group", "donor": "donor_group"}
+#: whether a fullerene acceptor counts as an absorber for Jsc, as tried by :func:`choose_fullerene_absorber`
+#: (the current rule first: a tie keeps it), with the names of their scores
+FULLERENE_ABSORBER_CHOICES = {True: "fullerene_absorbs", False: "donor_gap_only"}
 #: offset scales Δ0 tried for the charge-generation yield [eV]
 OFFSET_SCALE_GRID_EV = np.round(np.arange(0.01, 0.401, 0.01), 3)
 _LEVELS = LEVELS
@@ -209,27 +226,98 @@ def _fit_losses(d: pd.DataFrame, split="class", free_slope: bool = False) -> tup
     return _loss_core(*_loss_arrays(d), split, free_slope)
 
 
-def _fit_eqe(d: pd.DataFrame) -> tuple[float, float]:
-    """``(eqe_max, offset_scale_ev)``: least squares on measured Jsc (EQE closed form per Δ0)."""
+@dataclass(frozen=True)
+class _JscArrays:
+    """What the Jsc fit needs of the devices with a measured Jsc: Jsc at EQE = 1 above the smaller, the larger
+    and the donor's gap [mA cm⁻²], the offsets ΔLUMO, ΔHOMO [eV], which gap is the donor's, fullerene rows, Jsc."""
+
+    j_lo: np.ndarray
+    j_hi: np.ndarray
+    j_donor: np.ndarray
+    d_l: np.ndarray
+    d_h: np.ndarray
+    donor_lower: np.ndarray
+    fullerene: np.ndarray
+    meas: np.ndarray
+
+    def take(self, idx) -> "_JscArrays":
+        return _JscArrays(*(getattr(self, f.name)[idx] for f in self.__dataclass_fields__.values()))
+
+
+def _jsc_arrays(d: pd.DataFrame) -> _JscArrays:
     rows = d[d["jsc_ma_cm2"].notna()]
-    if len(rows) < 3:
-        raise InputError(f"device fit: {len(rows)} devices with Jsc; need at least 3")
     g_d, g_a = rows["donor_gap_opt_ev"].to_numpy(float), rows["acceptor_gap_opt_ev"].to_numpy(float)
-    j_lo, j_hi = jsc_ma_cm2(np.minimum(g_d, g_a), 1.0), jsc_ma_cm2(np.maximum(g_d, g_a), 1.0)
-    d_l = rows["donor_lumo_ev"].to_numpy(float) - rows["acceptor_lumo_ev"].to_numpy(float)
-    d_h = rows["donor_homo_ev"].to_numpy(float) - rows["acceptor_homo_ev"].to_numpy(float)
-    meas = rows["jsc_ma_cm2"].to_numpy(float)
+    return _JscArrays(j_lo=jsc_ma_cm2(np.minimum(g_d, g_a), 1.0), j_hi=jsc_ma_cm2(np.maximum(g_d, g_a), 1.0),
+                      j_donor=jsc_ma_cm2(g_d, 1.0),
+                      d_l=rows["donor_lumo_ev"].to_numpy(float) - rows["acceptor_lumo_ev"].to_numpy(float),
+                      d_h=rows["donor_homo_ev"].to_numpy(float) - rows["acceptor_homo_ev"].to_numpy(float),
+                      donor_lower=g_d <= g_a, fullerene=rows["acceptor_class"].astype(str).eq(FULLERENE).to_numpy(),
+                      meas=rows["jsc_ma_cm2"].to_numpy(float))
+
+
+def _jsc_basis(a: _JscArrays, scale: float, fullerene_absorbs: bool = True) -> np.ndarray:
+    """Jsc at EQE = 1 [mA cm⁻²] of the model (:func:`screen.devicekernel.pair_terms`, ``absorber='both'``) with
+    offset scale Δ0 = ``scale``; without ``fullerene_absorbs`` a fullerene blend's is the donor-absorber one."""
+    eta_d = np.where(a.d_l > 0, -np.expm1(-np.maximum(a.d_l, 0) / scale), 0.0)
+    eta_a = np.where(a.d_h > 0, -np.expm1(-np.maximum(a.d_h, 0) / scale), 0.0)
+    eta_lo = np.where(a.donor_lower, eta_d, eta_a)
+    basis = (a.j_lo - a.j_hi) * eta_lo + a.j_hi * 0.5 * (eta_d + eta_a)
+    if not fullerene_absorbs:
+        basis = np.where(a.fullerene, a.j_donor * eta_d, basis)
+    return basis
+
+
+def _eqe_core(a: _JscArrays, fullerene_absorbs: bool = True) -> tuple[float, float]:
+    """``(eqe_max, offset_scale_ev)`` of :func:`_fit_eqe` on arrays."""
     best = (np.inf, 1.0, 0.1)
     for scale in OFFSET_SCALE_GRID_EV:
-        eta_d = np.where(d_l > 0, -np.expm1(-np.maximum(d_l, 0) / scale), 0.0)
-        eta_a = np.where(d_h > 0, -np.expm1(-np.maximum(d_h, 0) / scale), 0.0)
-        eta_lo = np.where(g_d <= g_a, eta_d, eta_a)
-        basis = (j_lo - j_hi) * eta_lo + j_hi * 0.5 * (eta_d + eta_a)
-        eqe = float(np.clip(basis @ meas / max(basis @ basis, 1e-12), 0.01, 1.0))
-        sse = float(np.sum((eqe * basis - meas) ** 2))
+        basis = _jsc_basis(a, scale, fullerene_absorbs)
+        eqe = float(np.clip(basis @ a.meas / max(basis @ basis, 1e-12), 0.01, 1.0))
+        sse = float(np.sum((eqe * basis - a.meas) ** 2))
         if sse < best[0] - 1e-12:
             best = (sse, eqe, float(scale))
     return best[1], best[2]
+
+
+def _fit_eqe(d: pd.DataFrame, fullerene_absorbs: bool = True) -> tuple[float, float]:
+    """``(eqe_max, offset_scale_ev)``: least squares on measured Jsc (EQE closed form per Δ0); without
+    ``fullerene_absorbs`` the Jsc of a fullerene blend is that of its donor's gap alone."""
+    rows = d[d["jsc_ma_cm2"].notna()]
+    if len(rows) < 3:
+        raise InputError(f"device fit: {len(rows)} devices with Jsc; need at least 3")
+    return _eqe_core(_jsc_arrays(rows), fullerene_absorbs)
+
+
+def choose_fullerene_absorber(d: pd.DataFrame, key: str = "group",
+                              choices: tuple = tuple(FULLERENE_ABSORBER_CHOICES)) -> tuple[bool, dict]:
+    """Whether a fullerene acceptor counts as an absorber for Jsc: the choice with the least grouped-CV Jsc MAE
+    [mA cm⁻²] on the devices of ``d`` with a measured Jsc (EQE and Δ0 refitted without each group; ties keep
+    the first choice, the fullerene as an absorber), and each choice's MAE keyed by
+    :data:`FULLERENE_ABSORBER_CHOICES`.  Only ``d`` is used: called on a training fold, held-out devices never
+    choose it.
+
+    Examples
+    --------
+    >>> absorbs, scores = choose_fullerene_absorber(resolve_levels())
+    >>> isinstance(absorbs, bool) and set(scores) == {"fullerene_absorbs", "donor_gap_only"}
+    True
+    """
+    rows = d[d["jsc_ma_cm2"].notna()]
+    arrays = _jsc_arrays(rows)
+    groups = rows[key].to_numpy(object)
+    folds = [groups == g for g in pd.unique(groups)]
+    folds = [test for test in folds if not test.all() and (~test).sum() >= 3]
+    scores = {}
+    for choice in choices:
+        pred = np.full(len(rows), np.nan)
+        for test in folds:
+            eqe, scale = _eqe_core(arrays.take(~test), choice)
+            pred[test] = eqe * _jsc_basis(arrays.take(test), scale, choice)
+        ok = np.isfinite(pred)
+        scores[FULLERENE_ABSORBER_CHOICES[choice]] = (float(np.mean(np.abs(pred[ok] - arrays.meas[ok])))
+                                                      if ok.any() else np.inf)
+    best = min(choices, key=lambda c: (round(scores[FULLERENE_ABSORBER_CHOICES[c]], 6), choices.index(c)))
+    return bool(best), scores
 
 
 def _ff_arrays(d: pd.DataFrame):
@@ -303,24 +391,31 @@ def choose_split(d: pd.DataFrame, key: str = "group", variants: tuple = LOSS_VAR
     return best, scores
 
 
-def fold_model(train: pd.DataFrame, key: str, per_class=None, variants: tuple = LOSS_VARIANTS, ff_split=None):
-    """``(DeviceModel, variant)`` fitted on one training fold; with ``per_class`` (``ff_split``) None the loss
-    variant (the fill-factor split) is chosen by :func:`choose_split` (:func:`choose_ff_split`) on ``train`` alone,
-    grouped by ``key``, so held-out devices never choose it.  ``variant`` reads e.g. ``'pooled+slope, ff class'``."""
+def fold_model(train: pd.DataFrame, key: str, per_class=None, variants: tuple = LOSS_VARIANTS, ff_split=None,
+               fullerene_absorbs=None):
+    """``(DeviceModel, variant)`` fitted on one training fold; with ``per_class`` (``ff_split``,
+    ``fullerene_absorbs``) None the loss variant (the fill-factor split, whether a fullerene counts as an absorber)
+    is chosen by :func:`choose_split` (:func:`choose_ff_split`, :func:`choose_fullerene_absorber`) on ``train``
+    alone, grouped by ``key``, so held-out devices never choose it.  ``variant`` reads e.g.
+    ``'pooled+slope, ff class, fullerene_absorbs'``."""
     choice = per_class if per_class is not None else choose_split(train, key, tuple(variants))[0]
     ff_choice = ff_split if ff_split is not None else choose_ff_split(train, key)[0]
+    absorbs = (bool(fullerene_absorbs) if fullerene_absorbs is not None
+               else choose_fullerene_absorber(train, key)[0])
     split = _variant_name(*_variant(choice))
-    model = DeviceModel(model="fitted", absorber="both", parameters=fit(train, split, ff_choice))
-    return model, f"{split}, ff {ff_choice}"
+    model = DeviceModel(model="fitted", absorber="both", parameters=fit(train, split, ff_choice, absorbs))
+    return model, f"{split}, ff {ff_choice}, {FULLERENE_ABSORBER_CHOICES[absorbs]}"
 
 
-def fit(d: pd.DataFrame, per_class="class", ff_split="pooled") -> FittedParameters:
+def fit(d: pd.DataFrame, per_class="class", ff_split="pooled", fullerene_absorbs: bool = True) -> FittedParameters:
     """Fitted parameters from a device table (see the module docstring).
 
     ``per_class`` is the loss variant: a split (``'pooled'``, ``'family'``,
     ``'class'``; ``True``/``False`` mean class/pooled), optionally with
     ``'+slope'`` for a loss that grows with E_CT.  ``ff_split`` is the
-    fill-factor split (:data:`FF_SPLITS`).
+    fill-factor split (:data:`FF_SPLITS`).  ``fullerene_absorbs`` False fits
+    the EQE with a fullerene blend's Jsc from its donor's gap alone, and the
+    parameters say so (:attr:`FittedParameters.fullerene_absorbs`).
 
     Examples
     --------
@@ -328,13 +423,13 @@ def fit(d: pd.DataFrame, per_class="class", ff_split="pooled") -> FittedParamete
     >>> 0 < p.eqe_max <= 1 and 0 < p.ff <= 1 and "pooled" in p.loss_ev
     True
     """
-    eqe, scale = _fit_eqe(d)
+    eqe, scale = _fit_eqe(d, fullerene_absorbs)
     split, free = _variant(per_class)
     loss, slope, ref, (lo, hi) = _fit_losses(d, split, free)
     ff, by_class = _ff_core(*_ff_arrays(d), ff_split) if d["ff"].notna().any() else (0.65, {})
     return FittedParameters(loss_ev=loss, eqe_max=eqe, offset_scale_ev=scale, ff=ff, ff_by_class=by_class,
                             loss_slope=slope, ect_ref_ev=ref, ect_min_ev=lo, ect_max_ev=hi,
-                            gap_loss_min_ev=_gap_loss_min(d))
+                            gap_loss_min_ev=_gap_loss_min(d), fullerene_absorbs=bool(fullerene_absorbs))
 
 
 def _gap_loss_min(d: pd.DataFrame) -> float:
@@ -351,7 +446,8 @@ def predict(model: DeviceModel, d: pd.DataFrame) -> pd.DataFrame:
     """Formula Voc [V] and PCE [%] of every device (viable or not) and whether the model calls it viable."""
     classes = d["acceptor_class"].to_numpy(object)
     loss, _ = model.loss_ev(classes)
-    fig = model.figures(_levels(d), loss, ff=model.ff_of(classes), keep_model_values=True)
+    fig = model.figures(_levels(d), loss, ff=model.ff_of(classes), keep_model_values=True,
+                        acceptor_absorbs=model.acceptor_absorbs(classes))
     return pd.DataFrame({"voc_v": fig["voc_model_v"], "pce_pct": fig["pce_model_pct"], "viable": fig["viable"]},
                         index=d.index)
 
@@ -464,7 +560,7 @@ def _paper_levels(d: pd.DataFrame) -> pd.DataFrame:
 
 
 def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor",
-                   variants: tuple = LOSS_VARIANTS, ff_split=None) -> CrossValidation:
+                   variants: tuple = LOSS_VARIANTS, ff_split=None, fullerene_absorbs=None) -> CrossValidation:
     """Grouped cross-validation of the fitted model beside Scharber's rule.
 
     Parameters
@@ -482,6 +578,9 @@ def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor",
     ff_split : str or None
         The fill-factor split (:data:`FF_SPLITS`); None (default) chooses it inside each training fold
         (:func:`choose_ff_split`).
+    fullerene_absorbs : bool or None
+        Whether a fullerene acceptor counts as an absorber for Jsc; None (default) chooses it inside each
+        training fold (:func:`choose_fullerene_absorber`).
 
     Returns
     -------
@@ -497,7 +596,7 @@ def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor",
     chosen: dict[str, int] = {}
     for _group, idx in d.groupby(key).indices.items():
         train = d.drop(index=d.index[idx])
-        model, split = fold_model(train, key, per_class, variants, ff_split)
+        model, split = fold_model(train, key, per_class, variants, ff_split, fullerene_absorbs)
         chosen[split] = chosen.get(split, 0) + 1
         fitted.iloc[idx] = predict(model, d.iloc[idx]).to_numpy(object)
         baseline.iloc[idx] = train["voc_v"].mean()
@@ -550,7 +649,8 @@ def write_fitted(path=FITTED_PATH, devices=DEVICES_PATH, film=FILM_PATH, levels_
     cvs = {by: cross_validate(d, None, by) for by in GROUPINGS}
     split, split_scores = choose_split(d, "group")
     ff_split, ff_scores = choose_ff_split(d, "group")
-    params = fit(d, split, ff_split)
+    absorbs, absorb_scores = choose_fullerene_absorber(d, "group")
+    params = fit(d, split, ff_split, absorbs)
     beats = all(cv.metrics["fitted"]["voc_mae_v"] < cv.metrics["scharber"]["voc_mae_v"] for cv in cvs.values())
     cols = ["device_id", "donor", "acceptor", "acceptor_class", *_LEVELS, "donor_level_source",
             "acceptor_level_source", "levels_converted", "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "drop_reason",
@@ -564,6 +664,11 @@ def write_fitted(path=FITTED_PATH, devices=DEVICES_PATH, film=FILM_PATH, levels_
         "loss_variant_cv_mae_v": split_scores,
         "ff_split": ff_split,
         "ff_split_cv_mae": ff_scores,
+        "fullerene_absorber": FULLERENE_ABSORBER_CHOICES[absorbs],
+        "fullerene_absorber_cv_jsc_mae_ma_cm2": absorb_scores,
+        "fullerene_absorber_devices_with_jsc": {"all": int(d["jsc_ma_cm2"].notna().sum()),
+                                                "fullerene": int((d["jsc_ma_cm2"].notna()
+                                                                  & d["acceptor_class"].eq(FULLERENE)).sum())},
         "per_class_loss": not split.startswith("pooled"),
         "cv": cvs["acceptor"].metrics,
         "cv_leave_donor_out": cvs["donor"].metrics,
@@ -649,7 +754,8 @@ def main(argv=None) -> int:
         d = read_devices(args.devices, args.film)
         all_metrics = [cross_validate(d, None, by).metrics for by in GROUPINGS]
     for metrics in all_metrics:
-        print(f"held-out ({metrics['grouping']}, {metrics['n_groups']} groups; loss and FF split per fold "
+        print(f"held-out ({metrics['grouping']}, {metrics['n_groups']} groups; loss, FF split and fullerene "
+              "absorber per fold "
               f"{metrics['variants_per_fold']}):")
         print(table(metrics))
     return 0

@@ -31,7 +31,7 @@ from screen.errors import ConfigError
 
 __all__ = ["FittedParameters", "slope_loss", "FITTED_PATH", "VALIDATION_PATH", "load_fitted", "device_tests", "POOLED",
            "voc_unranked_classes", "UNRANKED_SPEARMAN",
-           "NON_FULLERENE", "family_of", "class_values"]
+           "NON_FULLERENE", "FULLERENE", "family_of", "class_values"]
 
 #: the fitted default device model shipped with the repository
 FITTED_PATH = Path(__file__).resolve().parent.parent / "models" / "device" / "fitted.json"
@@ -39,6 +39,8 @@ FITTED_PATH = Path(__file__).resolve().parent.parent / "models" / "device" / "fi
 POOLED = "pooled"
 #: key of the loss of every non-fullerene class without a value of its own
 NON_FULLERENE = "non-fullerene"
+#: the fullerene acceptor class (:func:`screen.viability.acceptor_class_of`), also a family of its own
+FULLERENE = "fullerene"
 
 
 @dataclass(frozen=True)
@@ -83,6 +85,14 @@ class FittedParameters:
         Path the parameters were read from ('' if built in Python).
     meta : dict
         Everything else in the file (cross-validation statistics, data hash …).
+
+    References
+    ----------
+    .. [1] M. C. Scharber et al., Adv. Mater. 18 (2006) 789. :doi:`10.1002/adma.200501717`
+    .. [2] S. Leach, M. Vervloet, A. Desprès, E. Bréheret, J. P. Hare, T. J. Dennis, H. W. Kroto,
+       R. Taylor, D. R. M. Walton, "Electronic spectra and transitions of the fullerene C60",
+       Chem. Phys. 160 (1992) 451–466 (from memory: the weak, symmetry-forbidden lowest singlet
+       transitions of C60 near 1.8–2.0 eV and their vibronically induced absorption).
     """
 
     loss_ev: dict
@@ -95,6 +105,7 @@ class FittedParameters:
     ect_min_ev: float = -math.inf
     ect_max_ev: float = math.inf
     gap_loss_min_ev: float = 0.0
+    fullerene_absorbs: bool = True
     source: str = ""
     meta: dict = field(default_factory=dict, compare=False)
 
@@ -113,6 +124,10 @@ class FittedParameters:
                               "ect_ref_ev finite")
         if not (math.isfinite(float(self.gap_loss_min_ev)) and float(self.gap_loss_min_ev) >= 0.0):
             raise ConfigError(f"fitted device parameters {self.source}: gap_loss_min_ev must be finite and >= 0")
+        if not isinstance(self.fullerene_absorbs, (bool, np.bool_)):
+            raise ConfigError(f"fitted device parameters {self.source}: fullerene_absorbs = "
+                              f"{self.fullerene_absorbs!r}; need true or false")
+        object.__setattr__(self, "fullerene_absorbs", bool(self.fullerene_absorbs))
         if not float(self.ect_min_ev) <= float(self.ect_max_ev):
             raise ConfigError(f"fitted device parameters {self.source}: ect_min_ev must not exceed ect_max_ev")
         for key, val in self.loss_ev.items():
@@ -172,6 +187,22 @@ class FittedParameters:
             known |= (classes != "") & (classes != "fullerene") & (classes != "nan")
         return ~known
 
+    def acceptor_absorbs(self, acceptor_class) -> np.ndarray:
+        """Per element of ``acceptor_class``: whether the acceptor counts as an absorber for Jsc (False only
+        for a fullerene when :attr:`fullerene_absorbs` is False; an unknown class absorbs).
+
+        Examples
+        --------
+        >>> p = FittedParameters(loss_ev={"pooled": 0.5}, eqe_max=0.7, offset_scale_ev=0.05, ff=0.7,
+        ...                      fullerene_absorbs=False)
+        >>> p.acceptor_absorbs(["fullerene", "nfa-fused", ""]).tolist()
+        [False, True, True]
+        """
+        classes = self._classes(acceptor_class)
+        if self.fullerene_absorbs:
+            return np.ones(np.shape(classes), dtype=bool)
+        return np.asarray(classes.astype(str) != FULLERENE, dtype=bool)
+
     def loss_at(self, loss_ev, e_ct_ev):
         """Loss of pairs with class loss ``loss_ev`` and CT energy ``e_ct_ev`` (see :func:`slope_loss`). [eV]
 
@@ -189,7 +220,8 @@ class FittedParameters:
         return {"loss_ev": dict(self.loss_ev), "eqe_max": self.eqe_max, "offset_scale_ev": self.offset_scale_ev,
                 "ff": self.ff, "ff_by_class": dict(self.ff_by_class), "loss_slope": self.loss_slope,
                 "ect_ref_ev": self.ect_ref_ev, "ect_min_ev": self.ect_min_ev, "ect_max_ev": self.ect_max_ev,
-                "gap_loss_min_ev": self.gap_loss_min_ev, "source": self.source}
+                "gap_loss_min_ev": self.gap_loss_min_ev, "fullerene_absorbs": self.fullerene_absorbs,
+                "source": self.source}
 
 
 def slope_loss(loss_ev, e_ct_ev, slope: float, ref_ev: float, lo_ev: float = -math.inf, hi_ev: float = math.inf):
@@ -262,6 +294,7 @@ def load_fitted(path: str | None = None) -> FittedParameters:
                                 ect_min_ev=float(params.get("ect_min_ev", -math.inf)),
                                 ect_max_ev=float(params.get("ect_max_ev", math.inf)),
                                 gap_loss_min_ev=float(params.get("gap_loss_min_ev", 0.0)),
+                                fullerene_absorbs=params.get("fullerene_absorbs", True),
                                 ff_by_class={str(k): float(v) for k, v in params.get("ff_by_class", {}).items()},
                                 source=str(target),
                                 meta={k: v for k, v in data.items() if k != "parameters"})

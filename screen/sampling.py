@@ -144,13 +144,14 @@ def _sigma(name, value, shape):
 @dataclass(frozen=True)
 class _FlatPair:
     """Flattened pair levels and σ [eV] in :data:`screen.device.PAIR_LEVELS` order, losses [eV], fill factors,
-    missing rows."""
+    missing rows, whether the acceptor counts as an absorber (:meth:`screen.device.DeviceModel.acceptor_absorbs`)."""
 
     levels: tuple
     sigmas: tuple
     loss: np.ndarray
     ff: np.ndarray
     missing: np.ndarray
+    absorbs: np.ndarray
 
 
 _SIGMA_NAMES = ("donor_homo_sigma_ev", "donor_lumo_sigma_ev", "donor_gap_sigma_ev", "acceptor_homo_sigma_ev",
@@ -168,14 +169,15 @@ def _flat_pair(model: DeviceModel, levels, shape, sigmas: dict, acceptor_class=N
     loss = np.ascontiguousarray(np.broadcast_to(loss, shape).ravel())
     ff = np.ascontiguousarray(np.broadcast_to(model.ff_of(acceptor_class), shape).ravel())
     missing = model.needed_missing(flat, flat[0].shape)
-    return _FlatPair(flat, checked, loss, ff, missing)
+    absorbs = np.ascontiguousarray(np.broadcast_to(model.acceptor_absorbs(acceptor_class), shape).ravel())
+    return _FlatPair(flat, checked, loss, ff, missing, absorbs)
 
 
 def _anchors(model: DeviceModel, pair: _FlatPair):
     """Exact-minus-tabulated efficiency at the mean levels [%], the viable rows and the exact efficiency [%]."""
-    exact = model.figures(pair.levels, pair.loss, ff=pair.ff)
+    exact = model.figures(pair.levels, pair.loss, ff=pair.ff, acceptor_absorbs=pair.absorbs)
     tab = model.pce_from_levels(pair.levels, pair.loss, ff=pair.ff, jsc_unit=_jsc_fast, sq_pct=_sq_fast,
-                                sq_voc=_voc_fast)
+                                sq_voc=_voc_fast, acceptor_absorbs=pair.absorbs)
     corr = np.where(np.isfinite(exact["pce_pct"]) & np.isfinite(tab), exact["pce_pct"] - tab, 0.0)
     return np.asarray(corr, dtype=float), np.asarray(exact["viable"], dtype=bool), np.asarray(exact["pce_pct"])
 
@@ -202,7 +204,8 @@ def _pce_samples(model: DeviceModel, pair: _FlatPair, a: int, b: int, z, corr, s
         else:
             sampled.append(level[a:b, None])
     v = np.array(model.pce_from_levels(sampled, pair.loss[a:b, None], ff=pair.ff[a:b, None], jsc_unit=_jsc_fast,
-                                       sq_pct=_sq_fast, sq_voc=_voc_fast, sq_below_ev=sq_below), dtype=float)
+                                       sq_pct=_sq_fast, sq_voc=_voc_fast, sq_below_ev=sq_below,
+                                       acceptor_absorbs=pair.absorbs[a:b, None]), dtype=float)
     if v.shape[1] != z.shape[1]:
         v = np.repeat(v, z.shape[1], axis=1)
     v += np.where(v > 0, corr[a:b, None], 0.0)
@@ -369,7 +372,7 @@ def sample_pce(
     for start in range(0, idx.size, rows):
         sel = idx[start:start + rows]
         sub = _FlatPair(tuple(x[sel] for x in pair.levels), tuple(x[sel] for x in pair.sigmas), pair.loss[sel],
-                        pair.ff[sel], pair.missing[sel])
+                        pair.ff[sel], pair.missing[sel], pair.absorbs[sel])
         v = _pce_samples(model, sub, 0, sel.size, z, corr[sel], sq_below)
         out_mean[sel], out_sigma[sel], out_p[sel] = _block_moments(v, target, n_samples)
     return {

@@ -478,3 +478,85 @@ def test_a_narrow_gap_pair_loses_at_least_what_every_fitted_device_lost():
     assert out["loss_floor"][0] and not out["loss_floor"][-1]
     assert "loss_floor" in out["flags"][0]
     assert np.nanargmax(out["pce_pct"]) > 0  # the narrowest gap is no longer the best
+
+
+# --------------------------------------------------------------------------- #
+# A fullerene acceptor that does not count as an absorber
+# --------------------------------------------------------------------------- #
+def _no_fullerene_absorber(**kw):
+    from screen.devicepars import FittedParameters
+
+    return FittedParameters(loss_ev={"pooled": 0.55}, eqe_max=0.7, offset_scale_ev=0.01, ff=0.62,
+                            fullerene_absorbs=False, **kw)
+
+
+def test_fullerene_gap_below_the_donor_gap_is_not_the_absorber_gap():
+    # a donor with a 1.90 eV gap against an acceptor whose gap (1.65 eV, the C70 film Tauc gap of
+    # models/reference/levels_film.csv) is the smaller one: with fullerene_absorbs False the fullerene blend's Jsc
+    # and PCE cap come from the donor's gap (Scharber et al., Adv. Mater. 18 (2006) 789, donor-only absorption),
+    # the same levels with a fused-ring acceptor from the smaller gap; E_CT and Voc (caps included) are the same
+    m = DeviceModel(parameters=_no_fullerene_absorber())
+    levels = (-5.45, -3.35, 1.90, -6.05, -3.85, 1.65)
+    out = m.evaluate(*levels, acceptor_class=np.array(["fullerene", "nfa-fused", ""]))
+    assert out["absorber_gap_ev"].tolist() == [1.90, 1.65, 1.65]
+    assert out["viable"].all()
+    assert out["jsc_ma_cm2"][0] == pytest.approx(0.7 * jsc_ma_cm2(1.90, 1.0), rel=1e-9)  # ΔLUMO 0.5 eV: yield 1
+    assert out["jsc_ma_cm2"][1] == pytest.approx(0.7 * jsc_ma_cm2(1.65, 1.0), rel=1e-9)
+    assert out["voc_v"][0] == out["voc_v"][1] == out["voc_v"][2]
+    e_ct = min(-3.85 + 5.45, 1.65)
+    assert out["voc_v"][0] == pytest.approx(e_ct - 0.55)
+    # the PCE cap is the detailed-balance limit of the gap actually used
+    assert out["pce_pct"][0] <= float(spectrum.sq_pce_pct(1.90))
+    ideal = DeviceModel(parameters=_no_fullerene_absorber(), eqe=1.0, ff=1.0, loss_v=0.0)
+    close = (-5.45, -3.75, 1.70, -6.05, -3.85, 1.65)  # EQE = FF = 1, no loss: would beat the 1.70 eV limit
+    cap = ideal.evaluate(*close, acceptor_class="fullerene")
+    assert cap["absorber_gap_ev"] == 1.70 and cap["voc_capped"] and cap["pce_capped"]
+    assert cap["pce_pct"] == pytest.approx(float(spectrum.sq_pce_pct(1.70)), rel=1e-12)
+    # the same pair when fullerenes absorb (the shipped rule unless the fit says otherwise)
+    both = DeviceModel(parameters=dataclasses.replace(_no_fullerene_absorber(), fullerene_absorbs=True))
+    assert both.evaluate(*levels, acceptor_class="fullerene")["absorber_gap_ev"] == 1.65
+    # Scharber's rule and absorber='donor' are unchanged by the parameter
+    for other in (DeviceModel(model="scharber", absorber="both"), DeviceModel(absorber="donor",
+                                                                            parameters=_no_fullerene_absorber())):
+        a = other.evaluate(*levels, acceptor_class="fullerene")
+        b = other.evaluate(*levels, acceptor_class="nfa-fused")
+        assert a["absorber_gap_ev"] == b["absorber_gap_ev"] and a["jsc_ma_cm2"] == b["jsc_ma_cm2"]
+    # the efficiency map and pce_pct follow evaluate
+    np.testing.assert_allclose(m.pce_pct(*levels, acceptor_class="fullerene"), out["pce_pct"][0], rtol=1e-12)
+    # the absorber gap on its own
+    assert m.absorber_gap_ev(1.90, 1.65, "fullerene") == 1.90 and m.absorber_gap_ev(1.90, 1.65, "") == 1.65
+
+
+def test_fullerene_not_absorbing_keeps_every_cap_and_the_sampler_kernel_agrees():
+    # generated levels of every kind (fixed seed): PCE never above the detailed-balance limit of the gap used,
+    # which for a non-absorbing fullerene is the donor's; Voc never above the detailed-balance Voc of the pair's
+    # smallest gap; not viable → NaN; the sampler kernel with the same mask gives the same efficiency
+    rng = np.random.default_rng(21)
+    n = 600
+    d_homo = rng.uniform(-6.2, -4.6, n)
+    d_lumo = d_homo + rng.uniform(0.8, 3.0, n)
+    a_homo, a_lumo = d_homo - rng.uniform(-0.3, 0.8, n), d_lumo - rng.uniform(-0.3, 0.8, n)  # some inverted
+    d_gap = rng.choice([0.0, -0.3, 0.9, 1.34, 1.7, 2.1, 3.4, 5.0], n) * rng.uniform(0.9, 1.1, n)
+    a_gap = rng.choice([0.0, -0.2, 1.1, 1.65, 1.75, 2.0, 5.0], n) * rng.uniform(0.9, 1.1, n)
+    d_gap[::23] = np.nan
+    levels = (d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap)
+    classes = np.array(["fullerene", "nfa-fused", "", "fullerene"] * (n // 4))
+    for params in (_no_fullerene_absorber(), _no_fullerene_absorber(loss_slope=0.5, ect_ref_ev=1.4,
+                                                                   gap_loss_min_ev=0.45)):
+        m = DeviceModel(parameters=params)
+        out = m.evaluate(*levels, acceptor_class=classes)
+        ok = out["viable"]
+        ful = classes == "fullerene"
+        assert (ok & ful).sum() > 10 and (ok & ~ful).sum() > 10
+        np.testing.assert_array_equal(out["absorber_gap_ev"][ok & ful], d_gap[ok & ful])
+        assert np.all(out["pce_pct"][ok] <= spectrum.sq_pce_pct(out["absorber_gap_ev"][ok]) + 1e-9)
+        smallest = np.fmin(*(np.where(g > 0, g, np.nan) for g in (d_gap, a_gap)))[ok]
+        assert np.all(out["voc_v"][ok] <= spectrum.sq_voc_v(smallest) + 1e-12)
+        assert np.all(out["voc_v"][ok] > 0) and np.all(out["pce_pct"][ok] >= 0)
+        for key in ("voc_v", "jsc_ma_cm2", "pce_pct"):
+            assert np.isnan(out[key][~ok]).all()
+        # a fullerene gap that is not positive still makes the pair not viable, as for an absorbing acceptor
+        assert not np.any(ok & ful & (a_gap <= 0))
+        loss, _ = m.loss_ev(classes)
+        fast = m.pce_from_levels(levels, loss, ff=m.ff_of(classes), acceptor_absorbs=m.acceptor_absorbs(classes))
+        np.testing.assert_allclose(fast, np.where(ok, out["pce_pct"], 0.0), rtol=1e-12, atol=1e-12)
