@@ -6,3 +6,11 @@ configfile: "config/config.yaml"
 
 
 include: "screen/workflow/Snakefile"
+
+
+# The included workflow's `all` is not the default target of an including Snakefile, so `snakemake --cores N`
+# here would do nothing; name it.
+rule default:
+    input:
+        rules.all.input,
+    default_target: True

@@ -42,7 +42,8 @@ RANKING_COLUMNS = ["rank", "id", "smiles", "role", "homo_ev", "lumo_ev", "gap_op
 #: columns after the contract ones in ``ranking.csv``: name, σ [eV], whether the pair is viable and why not
 #: (plain words), the device model used, the acceptor class that chose its loss, the absorber gap [eV], the
 #: candidate's representation (``molecule`` or ``polymer``: a repeat unit computed at the chain limit) and the
-#: probability that both offsets clear their thresholds given the levels' σ (``p_aligned``)
+#: probability that both offsets clear their thresholds given the levels' σ (``p_aligned``), what a polymer's
+#: levels rest on, and the energy scale of the row's levels (``film`` or ``gas``)
 RANKING_EXTRA_COLUMNS = ["name", "homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev", "viable", "reason", "model",
                          "acceptor_class", "absorber_gap_ev", "representation", "p_aligned", "chain_n_max",
-                         "chain_fit_quality", "truncated_groups"]
+                         "chain_fit_quality", "truncated_groups", "scale"]

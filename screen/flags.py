@@ -97,6 +97,9 @@ _REGISTRY = (
                             "interface gap)", _NV),
     Flag("gap_out_of_window", "optical gap outside the screening window{window}", _NV),
     Flag("too_many_heavy_atoms", "larger than the heavy-atom limit of this screen{limit}"),
+    Flag("gas_scale_levels", "levels on the gas (isolated-molecule) scale: both device models are fitted or defined "
+                             "on film (solid-state / electrochemical) levels, so this Voc, Jsc and PCE are not an "
+                             "estimate of a device; rank film-scale levels (levels.scale=film) for one"),
     Flag("voc_capped", "open-circuit voltage limited to the detailed-balance voltage of the pair's smallest "
                        "optical gap (the model's value was above it)", "info"),
     Flag("loss_floor", "open-circuit voltage limited to the smaller optical gap minus the smallest energy loss "

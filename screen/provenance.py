@@ -12,7 +12,8 @@ import platform
 from functools import lru_cache
 from pathlib import Path
 
-__all__ = ["provenance", "package_version", "library_versions", "sha256_file", "change_notice", "CALIBRATION_FILES",
+__all__ = ["provenance", "package_version", "code_revision",
+           "library_versions", "sha256_file", "change_notice", "CALIBRATION_FILES",
            "calibration_record"]
 
 #: libraries whose versions are recorded
@@ -36,6 +37,35 @@ def package_version(name: str) -> str:
         return "absent"
 
 
+@lru_cache(maxsize=1)
+def code_revision() -> str:
+    """The git commit of dascreen's own source tree (``+changes`` when it has uncommitted edits), or ``""``.
+
+    The package version stays the same over many commits that change numbers (a reproducibility audit), so
+    the sidecars record the commit as well. Empty when the code does not sit in a git checkout (an installed
+    wheel) or git is not available.
+
+    Examples
+    --------
+    >>> rev = code_revision()
+    >>> rev == "" or len(rev.split("+")[0]) == 40
+    True
+    """
+    import subprocess
+
+    root = Path(__file__).resolve().parent.parent
+    if not (root / ".git").exists():
+        return ""
+    try:
+        head = subprocess.run(["git", "-C", str(root), "rev-parse", "HEAD"], capture_output=True, text=True,
+                              timeout=10, check=True).stdout.strip()
+        changed = subprocess.run(["git", "-C", str(root), "status", "--porcelain", "--untracked-files=no", "--",
+                                  "screen"], capture_output=True, text=True, timeout=10, check=True).stdout.strip()
+    except (OSError, subprocess.SubprocessError):
+        return ""
+    return f"{head}+changes" if changed else head
+
+
 def library_versions() -> dict[str, str]:
     """Python and the scientific libraries' versions."""
     return {"python": platform.python_version(), **{p: package_version(p) for p in LIBRARIES}}
@@ -54,6 +84,7 @@ def provenance(config) -> dict:
 
     return {
         "dascreen": __version__,
+        "code_revision": code_revision(),
         "protocol_id": config.protocol_id,
         "protocol": config.protocol,
         "versions": library_versions(),

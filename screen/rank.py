@@ -513,6 +513,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         **device,
         "gap_out_of_window": gap_out,
         "too_many_heavy_atoms": heavy_out,
+        "gas_scale_levels": pair_ok & (_scale(lv) == "gas"),
         "heavy_atoms_unknown": heavy_unknown,
         "alignment_uncertain": pair_ok & (aligned > ALIGNMENT_UNCERTAIN[0]) & (aligned < ALIGNMENT_UNCERTAIN[1]),
         "acceptor_class_unknown": (pair_ok & np.asarray(dev["viable"], bool) & ff_follows_class
@@ -522,7 +523,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "same_structure": same,
         "same_computed_structure": _same_computed(lv, roles) & ~same,
         "far_from_reference": _far_from_reference(lv),
-        "known_family_bias": _text(lv, "known_bias") == "dpp",
+        "known_family_bias": _known_bias(lv) == "dpp",
         "chain_fit_poor": _text(lv, "chain_fit_quality") == "poor",
         "lone_pair_homo": _lone_pair_homo(lv),
         "role_from_levels": roles.role_from_levels,
@@ -626,6 +627,51 @@ def _lone_pair_homo(levels: pd.DataFrame) -> np.ndarray:
         return shift > 0
 
 
+def _scale(levels: pd.DataFrame) -> np.ndarray:
+    """Each row's energy scale (``film`` or ``gas``, lower case; :func:`check_scales` has made them one).
+
+    Examples
+    --------
+    >>> _scale(pd.DataFrame({"scale": [" Film", "gas"]})).tolist()
+    ['film', 'gas']
+    """
+    return np.array([s.strip().lower() for s in _text(levels, "scale")], dtype=object)
+
+
+def _known_bias(levels: pd.DataFrame) -> np.ndarray:
+    """The ``known_bias`` column; for a run's own levels.csv written before that column existed, the family
+    code from each row's SMILES (:func:`screen.knownbias.known_bias`). A levels file not computed by dascreen
+    (measured values) has no computed bias to warn about.
+
+    Examples
+    --------
+    >>> lv = pd.DataFrame({"xtb_ip_ev": [6.0, 6.0], "smiles": ["CN1C(=O)C2=C(c3cccs3)N(C)C(=O)C2=C1c1cccs1",
+    ...                                                          "c1ccsc1"]})
+    >>> _known_bias(lv).tolist()
+    ['dpp', '']
+    >>> _known_bias(lv.drop(columns="xtb_ip_ev")).tolist()
+    ['', '']
+    """
+    if "known_bias" in levels.columns or not _computed_by_dascreen(levels):
+        return _text(levels, "known_bias")
+    from screen.knownbias import known_bias
+
+    return np.array([known_bias(s) if s else "" for s in _text(levels, "smiles")], dtype=object)
+
+
+def _count_text(levels: pd.DataFrame, col: str) -> np.ndarray:
+    """A count column as text without a decimal point (a CSV read gives ``4.0`` for 4), empty where missing.
+
+    Examples
+    --------
+    >>> _count_text(pd.DataFrame({"n": [4.0, None, 3]}), "n").tolist()
+    ['4', '', '3']
+    """
+    values = _numeric(levels, col)
+    return np.array(["" if not np.isfinite(v) else str(int(v)) if float(v).is_integer() else str(v) for v in values],
+                    dtype=object)
+
+
 def _computed_by_dascreen(levels: pd.DataFrame) -> bool:
     """A run's own levels.csv (raw engine columns present): problems are row flags, not file errors."""
     return "xtb_ip_ev" in levels.columns
@@ -694,9 +740,10 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
         "p_aligned": dev["p_aligned"],
         # what a polymer's levels rest on (a polymer audit: the ranking did not say that PM6 rested on two
         # oligomers, nor that side chains were cut); empty for molecules of files without these columns
-        "chain_n_max": _text(lv, "chain_n_max"),
+        "chain_n_max": _count_text(lv, "chain_n_max"),
         "chain_fit_quality": _text(lv, "chain_fit_quality"),
         "truncated_groups": _text(lv, "truncated_groups"),
+        "scale": _scale(lv),
     })
     for col in _ROUNDED:
         out[col] = out[col].round(_ROUND)

@@ -90,8 +90,10 @@ def levels_suffix(levels_path, out_dir) -> str:
     ``rankings/<partner>--<settings>/`` as the ranking of ``OUT/levels.csv``, so a
     ranking of another file (measured CV levels, an older run) written there would
     later be shown by ``dascreen run`` as the run's result.  Such a ranking gets
-    ``--levels-<file stem>-<6 hex of the file's absolute path>``; a folder without a
-    run's ``levels.csv`` keeps the plain names.
+    ``--levels-<file stem>-<6 hex of the file's absolute path>``. A folder with a
+    prepared batch (``work/candidates/prepared``) is a run folder before its
+    ``levels.csv`` exists too (an interrupted run would otherwise replace the ranking when
+    it goes on); a folder without a run keeps the plain names.
 
     Examples
     --------
@@ -103,11 +105,15 @@ def levels_suffix(levels_path, out_dir) -> str:
     '--levels-my-cv-'
     >>> levels_suffix("/data/my cv.csv", run / "empty")
     ''
+    >>> (run / "empty" / "work" / "candidates" / "prepared").mkdir(parents=True)
+    >>> levels_suffix("/data/my cv.csv", run / "empty")[:15]  # an unfinished run
+    '--levels-my-cv-'
     """
     from screen.partners import file_tag
 
     own = Path(out_dir) / "levels.csv"
-    if not own.is_file() or Path(levels_path).resolve() == own.resolve():
+    run = own.is_file() or (Path(out_dir) / "work" / "candidates" / "prepared").is_dir()
+    if not run or Path(levels_path).resolve() == own.resolve():
         return ""
     return "--" + file_tag(levels_path, limit=24)
 
@@ -595,6 +601,7 @@ def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, mo
                options: RankOptions, short: dict, levels_sha: str) -> dict:
     """The content of ``ranking.meta.json`` (``levels_sha``: the levels file's SHA-256)."""
     from screen import __version__
+    from screen.provenance import code_revision
 
     flags = pd.Series([f for s in ranking["flags"] for f in str(s).split(";") if f]).value_counts()
     status = (levels["status"].fillna("").astype(str).str.strip().str.lower() if "status" in levels
@@ -606,6 +613,7 @@ def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, mo
             levels_meta["calibration"] = cal
     return {
         "dascreen": __version__,
+        "code_revision": code_revision(),
         "stage": "rank",
         "partner": partner.as_dict(),
         "partner_role": ranking.attrs["partner_role"],

@@ -668,3 +668,43 @@ def test_an_acceptor_class_without_held_out_voc_skill_is_said():
     assert r.loc["ic", "acceptor_class"] == "nfa-fused" and "class_voc_unranked" not in r.loc["ic", "flags"]
     published = rank_candidates(lv, donor, DeviceModel(model="scharber"), RankOptions(partner_sigma=False))
     assert not published["flags"].str.contains("class_voc_unranked").any()
+
+
+def test_gas_scale_levels_are_ranked_but_never_pass_and_say_why():
+    # a referee's audit: gas-scale levels against a gas-scale partner got a PCE from the film-fitted device model
+    # with no caution. The ranking keeps the numbers (offsets are still informative) but every pair fails the
+    # screen with a plain-words flag, and the row's scale is a ranking column.
+    gas = Partner(id="gas-acceptor", name="gas acceptor", role="acceptor", homo_ev=-8.0, lumo_ev=-2.4,
+                  gap_opt_ev=2.0, scale="gas")
+    lv = _levels([{"id": "g", "homo_ev": -6.5, "lumo_ev": -2.0, "gap_opt_ev": 2.0, "role": "donor"}], scale="gas")
+    r = rank_candidates(lv, gas)
+    assert r.loc[0, "scale"] == "gas" and "gas_scale_levels" in r.loc[0, "flags"]
+    assert not r.loc[0, "passes"] and flags.FLAGS["gas_scale_levels"].severity == "fail"
+    film = rank_candidates(_levels([{"id": "f", "homo_ev": -5.4, "lumo_ev": -3.9, "gap_opt_ev": 1.5,
+                                     "role": "donor"}]), resolve_partner("y6"))
+    assert film.loc[0, "scale"] == "film" and "gas_scale_levels" not in film.loc[0, "flags"]
+
+
+def test_known_family_bias_from_smiles_when_a_runs_levels_lack_the_column():
+    # a run's levels.csv written before the known_bias column existed still gets the DPP caution on re-ranking
+    # (found re-ranking an older demo); a measured-levels file (no raw engine columns) never does
+    dpp = "CN1C(=O)C2=C(c3ccc(C)s3)N(C)C(=O)C2=C1c1ccc(C)s1"
+    rows = [{"id": "d", "smiles": dpp, "homo_ev": -5.3, "lumo_ev": -3.5, "gap_opt_ev": 1.7, "role": "donor",
+             "xtb_ip_ev": 6.1}]
+    r = rank_candidates(_levels(rows), resolve_partner("y6"))
+    assert "known_family_bias" in r.loc[0, "flags"]
+    measured = rank_candidates(_levels([{k: v for k, v in rows[0].items() if k != "xtb_ip_ev"}]),
+                               resolve_partner("y6"))
+    assert "known_family_bias" not in measured.loc[0, "flags"]
+
+
+def test_chain_length_is_written_as_a_count(partner):
+    lv = _levels([{"id": "p", "smiles": "[*]c1ccc([*])s1", "homo_ev": -5.3, "lumo_ev": -3.3, "gap_opt_ev": 1.9,
+                   "role": "donor", "chain_n_max": 4.0}])
+    assert rank_candidates(lv, resolve_partner("y6")).loc[0, "chain_n_max"] == "4"
+
+
+def test_donor_only_model_records_no_homo_threshold():
+    # the published donor-only model checks the LUMO offset alone; its provenance must not list a HOMO threshold
+    assert PUBLISHED.as_dict()["min_delta_homo_ev"] is None
+    assert DeviceModel(model="scharber").as_dict()["min_delta_homo_ev"] == 0.3

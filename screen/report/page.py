@@ -167,6 +167,39 @@ def _close_top_words(pce: pd.Series, sigma: float, sort_by: str) -> str:
             "apart, and <code>--set rank.sort_by=p_above_target</code> orders by the chance of clearing the target.")
 
 
+def _revision(meta: dict) -> str:
+    """`` (commit 0123abc)`` from the ranking sidecar's ``code_revision``; empty when not recorded.
+
+    Examples
+    --------
+    >>> _revision({"code_revision": "0e1117f188b0bc1853e27969e47628714ce4c908+changes"})
+    ' (commit 0e1117f, with uncommitted changes)'
+    >>> _revision({})
+    ''
+    """
+    rev = str(meta.get("code_revision") or "") if isinstance(meta, dict) else ""
+    if not rev:
+        return ""
+    head, _, changed = rev.partition("+")
+    return f" (commit {esc(head[:7])}{', with uncommitted changes' if changed else ''})"
+
+
+def _scale_words(meta: dict) -> str:
+    """What the ranking's energy scale means, for the table captions.
+
+    Examples
+    --------
+    >>> _scale_words({"scale": "film"})
+    'film: solid-state / CV levels'
+    >>> _scale_words({"scale": "gas"})[:30]
+    'gas: isolated-molecule levels '
+    """
+    if str(meta.get("scale", "film")).lower() == "gas":
+        return ("gas: isolated-molecule levels (HOMO = \u2212IP, LUMO = \u2212EA of the free molecule); the device "
+                "models are fitted on film levels, so the Voc, Jsc and PCE shown are not device estimates")
+    return "film: solid-state / CV levels"
+
+
 def _sort_by(meta: dict) -> str:
     """The ranking's sort key from ``meta["rank"]["sort_by"]`` (``pce_pct`` when not recorded)."""
     rank = meta.get("rank") if isinstance(meta, dict) and isinstance(meta.get("rank"), dict) else {}
@@ -212,7 +245,7 @@ def _head(partner: dict, meta: dict) -> list[str]:
         f'<p class="sub">Candidate {_candidates_word(partner)}'
         f' against partner <strong>{esc(pid) or NOT_RECORDED}</strong>'
         + (f" ({esc(partner.get('name'))})" if text(partner.get("name")) else "") + "</p>",
-        f'<p class="stamp">Generated {esc(_created(meta))} \u00b7 dascreen {esc(__version__)}</p>',
+        f'<p class="stamp">Generated {esc(_created(meta))} \u00b7 dascreen {esc(__version__)}{_revision(meta)}</p>',
         "</header>",
     ]
 
@@ -225,7 +258,7 @@ def _shortlist_section(ranking: pd.DataFrame, short: pd.DataFrame, how: str, pid
         f'<p class="summary">{_summary_sentence(ranking, pid, n_pass, _sort_by(meta))}</p>',
         *([f'<p class="caution">{caution}</p>'] if (caution := device_tests_html(meta.get("device_tests"))[1])
           else []),
-        f'<p class="quiet">Shown: {esc(how)}. Levels in eV relative to the vacuum level (HOMO = \u2212IP), on the energy scale of the header (film: solid-state / CV levels), value \u00b1 1\u03c3. '
+        f'<p class="quiet">Shown: {esc(how)}. Levels in eV relative to the vacuum level (HOMO = \u2212IP), on the energy scale of the header ({_scale_words(meta)}), value \u00b1 1\u03c3. '
         "\u0394LUMO = LUMO(donor) \u2212 LUMO(acceptor), \u0394HOMO = HOMO(donor) \u2212 HOMO(acceptor). "
         "P(aligned), in the table of every row, is the probability at the levels\u2019 \u03c3 that both offsets "
         "clear their thresholds; rows with equal estimates, and the not-viable rows, are ordered by P(aligned), "
