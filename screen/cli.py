@@ -22,6 +22,7 @@ import atexit
 import gc
 import os
 import re
+import signal
 import sys
 from pathlib import Path
 
@@ -33,7 +34,8 @@ from screen.errors import CalculationError, ConfigError, DascreenError, InputErr
 from screen.cli_shared import (EXIT_ERROR, EXIT_OK, EXIT_STRICT, _at_least_one, _days, _load, _percent,  # noqa: F401
                                cut_cell, fixed_decimals,
                                _print_summary, data_path)
-from screen.launch import WORKFLOW, run_workflow
+from screen.launch import WORKFLOW, check_engine_args, run_workflow
+from screen.preflight import GivenOnce
 
 __all__ = ["main", "build_parser", "WORKFLOW", "DEFAULT_OUT"]
 
@@ -47,6 +49,7 @@ def cmd_run(args) -> int:
     from screen.preflight import (check_calibration, check_candidates, check_out, check_partner_scales,
                                   check_partners, check_profile, check_run_partners)
 
+    check_engine_args(args.snakemake_args)  # before anything is read: the engine's own usage text came at the end
     candidates = Path(args.candidates)
     check_candidates(candidates)
     check_profile(args.profile)  # a missing folder was ignored, a broken one stopped the engine with its usage text
@@ -95,6 +98,10 @@ def cmd_run(args) -> int:
         return EXIT_ERROR
     if args.dry_run:
         return EXIT_OK
+    if not (out / "levels.csv").is_file() and args.snakemake_args:  # e.g. a target of an earlier stage after --
+        print(f"dascreen: the workflow stopped before levels.csv, as the arguments after -- asked "
+              f"({' '.join(args.snakemake_args)}); the same command without them goes on from there", file=sys.stderr)
+        return EXIT_OK
     counts = _print_summary(out / "levels.csv")
     _print_ranking_of_run(cfg, out)
     _refresh_matrices_of_run(cfg, out)
@@ -135,16 +142,22 @@ def cmd_calibrate(args) -> int:
     import pandas as pd
 
     from screen.calibrate import load_models, stats_table
-    from screen.preflight import check_out_folder
+    from screen.preflight import check_out_folder, check_reference
 
     out = Path(args.out).resolve()
     check_out_folder(out, args.out)
     overrides = {"out": str(out), "calibration": {"refit": "always"}}
-    if args.reference:
+    if args.reference is not None:
+        if not args.reference.strip():
+            raise ConfigError("--reference '' names no folder; give a copy of models/reference with your own values, "
+                              "or leave --reference out for the shipped reference data")
         overrides["calibration"]["reference"] = str(Path(args.reference).resolve())
     cfg = _load(args, overrides)
+    check_reference(cfg["calibration"]["reference"], args.reference, from_raw=bool(args.from_raw))  # before the work
     pid = cfg.protocol_id
     target = out / "models" / pid
+    if args.install is not None:  # a file as --install ended in a traceback after the fit (a careless user's audit)
+        _check_install_folder(args.install, pid)
     if args.install and not args.replace_installed:  # refused before anything is computed
         _check_install(Path(args.install).resolve() / pid, cfg, args.install)
     new = _made_out_folder(out, args.out)  # --out /sys/x gave a traceback
@@ -170,12 +183,54 @@ def cmd_calibrate(args) -> int:
         print(f"{len(failures)} reference molecule(s) could not be computed: see {target / 'reference_failures.csv'}")
     if args.install:
         dest = Path(args.install).resolve() / pid
-        if dest.exists():
-            shutil.rmtree(dest)
-        shutil.copytree(target, dest, ignore=shutil.ignore_patterns(".snakemake*"))
+        try:
+            if dest.exists():
+                shutil.rmtree(dest)
+            shutil.copytree(target, dest, ignore=shutil.ignore_patterns(".snakemake*"))
+        except OSError as exc:  # checked before the fit; a disk that filled up since is said in one line
+            from screen.config import read_problem
+
+            raise InputError(f"--install {args.install}: the models were fitted into {target}, but copying them to "
+                             f"{dest} failed: {read_problem(exc)}; copy that folder by hand") from None
         print(f"dascreen: models copied to {dest}")
     print(f"dascreen: models in {target}")
     return EXIT_OK
+
+
+def _check_install_folder(given: str, pid: str | None) -> None:
+    """Refuse an ``--install`` that is not a folder and cannot become one, before anything is computed.
+
+    ``pid``: the protocol id, whose sub-folder must not be a file either (None: the folder alone).
+
+    Raises
+    ------
+    ConfigError
+        ``--install ''``, a file, a path inside a file or a folder that cannot be written, with the fix.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> f = Path(tempfile.mkdtemp()) / "good.csv"; _ = f.write_text("id")
+    >>> try:
+    ...     _check_install_folder(str(f), None)
+    ... except ConfigError as exc:
+    ...     print(str(exc).split("; ", 1)[0].endswith("good.csv is a file, not a folder"))
+    True
+    """
+    about = "give the models folder the calibration goes into, e.g. --install models (it gets a <protocol-id> folder)"
+    if not given.strip():
+        raise ConfigError(f"--install '' names no folder; {about}")
+    folder = Path(given).expanduser().absolute()
+    if folder.exists() and not folder.is_dir():
+        raise ConfigError(f"--install {given} is a file, not a folder; {about}")
+    parent = next((p for p in folder.parents if p.exists()), None)
+    if not folder.exists() and parent is not None and not parent.is_dir():
+        raise ConfigError(f"--install {given}: {parent} is a file, not a folder; {about}")
+    existing = folder if folder.exists() else parent
+    if existing is not None and not os.access(existing, os.W_OK | os.X_OK):
+        raise ConfigError(f"--install {given}: {existing} cannot be written to; {about} that you can write to")
+    if pid is not None and (folder / pid).exists() and not (folder / pid).is_dir():
+        raise ConfigError(f"--install {given}: {folder / pid} is a file, not a folder; move it away or {about}")
 
 
 def _check_install(dest: Path, cfg: Config, given: str) -> None:
@@ -271,7 +326,7 @@ def _ranked_with(ranking_csv: Path) -> str:
         words.append(f"{device['model']} device model" + (f", absorber {device['absorber']}"
                                                           if device.get("absorber") else ""))
     if rank.get("target_pce_pct") is not None:
-        words.append(f"target {rank['target_pce_pct']:g} % PCE")
+        words.append(f"target {_pct_text(rank['target_pce_pct'])} % PCE")
     sort_by = rank.get("sort_by")
     if sort_by and sort_by != "pce_pct":
         words.append(f"sorted by {SORT_WORDS.get(sort_by, sort_by)} ({sort_by})")
@@ -285,6 +340,38 @@ def _ranked_with(ranking_csv: Path) -> str:
     return "; ".join(words)
 
 
+def _pct_text(value) -> str:
+    """A percentage as the console echoes it: four significant digits, no negative zero (``--target-pce -0`` was
+    echoed as "-0 %", ``1e-320`` as "9.99989e-321 %", a careless user's audit).
+
+    Examples
+    --------
+    >>> _pct_text(10.0), _pct_text(12.25), _pct_text(-0.0), _pct_text(1e-320)
+    ('10', '12.25', '0', '1e-320')
+    """
+    return f"{float(value) + 0.0:.4g}"
+
+
+def _not_ranked_text(ranking_csv: Path) -> str:
+    """``" (1 row not ranked: 1 failed)"`` from the ranking's sidecar (``counts.not_ranked``), ``""`` when every row
+    was ranked.
+
+    A levels file with a failed row printed "1 donors ranked" and nothing about the other row, while ``dyecell``
+    said "1 row(s) not ranked" (a careless user's audit)."""
+    import json
+
+    try:
+        meta = json.loads((Path(ranking_csv).parent / "ranking.meta.json").read_text(encoding="utf-8"))
+        counts = {str(k): int(v) for k, v in ((meta.get("counts") or {}).get("not_ranked") or {}).items() if v}
+    except (OSError, ValueError, AttributeError, TypeError):
+        return ""
+    total = sum(counts.values())
+    if not total:
+        return ""
+    return (f" ({total} row{'s' if total > 1 else ''} not ranked: "
+            f"{', '.join(f'{n} {status}' for status, n in sorted(counts.items()))}; the reasons are in the levels file)")
+
+
 def _ranked_count(table) -> tuple[str, str]:
     """``20 donors ranked against`` … ``(12 not paired: same role as the partner)`` of a ranking table: rows of the
     partner's own role cannot pair and are not counted as ranked (a meeting-day audit read "32 ranked against y6"
@@ -296,6 +383,7 @@ def _ranked_count(table) -> tuple[str, str]:
     roles = set(paired["role"].astype(str)) if "role" in paired else set()
     noun = {"donor": "donors", "acceptor": "acceptors"}.get(roles.pop(), "candidates") if len(roles) == 1 else \
         "candidates"
+    noun = noun[:-1] if len(paired) == 1 else noun  # "1 donor", not "1 donors"
     return f"{len(paired)} {noun}", (f" ({n_same} not paired: same role as the partner)" if n_same else "")
 
 
@@ -321,8 +409,8 @@ def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
     partner = table["partner"].iloc[0]
     ranked, not_paired = _ranked_count(table)
     settings = _ranked_with(ranking_csv)
-    print(f"dascreen: {ranked} ranked against {partner}{not_paired}{'; ' + settings if settings else ''}; {passing} "
-          f"pass the filters; top {min(top, len(table))}:")
+    print(f"dascreen: {ranked} ranked against {partner}{not_paired}{_not_ranked_text(ranking_csv)}"
+          f"{'; ' + settings if settings else ''}; {passing} pass the filters; top {min(top, len(table))}:")
     with pd.option_context("display.width", 250, "display.max_columns", 30):
         print(show[cols].to_string(index=False, na_rep="-"))
     print(f"dascreen: ranking -> {ranking_csv}")
@@ -341,7 +429,13 @@ def _print_ranking_of_run(cfg: Config, out: Path) -> None:
 
 
 def _set_aside_foreign_ranking(cfg: Config, out: Path) -> None:
-    """Move the ranking of another levels file out of the run's own ranking folder (before the workflow)."""
+    """Move the ranking of another levels file out of the run's own ranking folder (before the workflow).
+
+    :func:`screen.rank_io.set_aside_foreign` moves it once the run has its ``levels.csv``; a run that resumes before
+    it has one (interrupted while computing) replaced a ranking of measured levels made in its folder meanwhile
+    without a word (a careless user's audit): here it is moved to the name
+    :func:`screen.rank_io.levels_suffix` gives such a ranking, and said on stderr either way.
+    """
     from screen.partners import PartnerError, partner_slug
     from screen.rank_io import ranking_folder, set_aside_foreign
 
@@ -350,9 +444,51 @@ def _set_aside_foreign_ranking(cfg: Config, out: Path) -> None:
     except PartnerError:
         return
     moved = set_aside_foreign(out, folder)
+    ranked = None if moved or (out / "levels.csv").is_file() else _foreign_levels_of(out / "rankings" / folder, out)
+    if ranked is not None:
+        moved = _move_aside(out / "rankings" / folder, ranked)
+        if moved is None:
+            print(f"dascreen: rankings/{folder} holds the ranking of another levels file ({ranked}); this run "
+                  f"replaces it with the ranking of its own levels (`dascreen rank --out {out} --levels {ranked}` "
+                  "makes it again in a folder of its own)", file=sys.stderr)
+            return
     if moved:
         print(f"dascreen: rankings/{folder} held the ranking of another levels file; moved to rankings/{moved}, "
               "and this run's levels are ranked again", file=sys.stderr)
+        from screen.rank_index import write_ranking_index
+
+        try:
+            write_ranking_index(out)
+        except (OSError, ValueError):
+            pass  # the run's ranking job writes it again
+
+
+def _foreign_levels_of(folder: Path, out: Path) -> str | None:
+    """The levels file a ranking folder ranked when it is not the run's own ``OUT/levels.csv`` (else None)."""
+    from screen.io import read_json
+
+    try:
+        ranked = (read_json(folder / "ranking.meta.json").get("levels") or {}).get("path")
+    except (OSError, ValueError, AttributeError):
+        return None
+    if not ranked or Path(ranked).resolve() == (out / "levels.csv").resolve():
+        return None
+    return str(ranked)
+
+
+def _move_aside(folder: Path, ranked: str) -> str | None:
+    """Rename a run's ranking folder that holds the ranking of ``ranked`` to the name a ranking of that file gets
+    in a run folder (``<folder>--levels-<file>-<hash>``, :func:`screen.partners.file_tag`); the new name, or None
+    when both it and its ``-earlier`` variant are taken."""
+    from screen.partners import file_tag
+
+    new = folder.with_name(f"{folder.name}--{file_tag(ranked, limit=24)}")
+    if new.exists():
+        new = new.with_name(new.name + "-earlier")
+    if new.exists():
+        return None
+    folder.rename(new)
+    return new.name
 
 
 def _refresh_matrices_of_run(cfg: Config, out: Path) -> None:
@@ -420,6 +556,9 @@ def cmd_rank(args) -> int:
     partners = split_partners(args.partner or [])
     if not any(spec.strip().lower().startswith("smiles:") for spec in partners):  # computed: they apply
         check_rank_sets(args.set, "rank")
+    if args.levels is not None and not args.levels.strip():  # fell back to OUT/levels.csv without a word
+        raise ConfigError("--levels '' names no file; give a levels file (id,homo_ev,lumo_ev,gap_opt_ev,scale), or "
+                          "leave --levels out to rank OUT/levels.csv of a run")
     levels = Path(args.levels) if args.levels else out / "levels.csv"
     if levels.is_dir():
         raise InputError(f"levels file {str(levels)!r} is a folder; give a levels file with --levels FILE (a CSV "
@@ -571,12 +710,42 @@ def _print_rankings(out: Path, limit: int = 12) -> None:
     for r in rows:
         levels = "" if Path(str(r.levels)).resolve() == (out / "levels.csv").resolve() else f", levels {r.levels}"
         missing = r.target_pce_pct is None or r.target_pce_pct != r.target_pce_pct  # None or NaN
-        target = "" if missing else f", target {r.target_pce_pct:g} %"
+        target = "" if missing else f", target {_pct_text(r.target_pce_pct)} %"
         settings = r.settings if isinstance(r.settings, str) and r.settings else ""
         settings = f"; set {settings}" if settings else ""
         print(f"  {r.written_utc}  {r.folder}: against {r.partner}, {r.model} model{target}, sorted by {r.sort_by}"
-              f"{settings}{levels}; {r.passing} of {r.ranked} pass")
+              f"{settings}{levels}; {r.passing} of {r.ranked} pass{_stale_text(out, r)}")
     _more(len(index) - len(rows), out / "rankings-index.csv", out / "rankings")
+
+
+def _stale_text(out: Path, row) -> str:
+    """What ``status`` adds to a ranking whose levels file changed since it was ranked (``levels_state`` of
+    :mod:`screen.rank_index`): that it is stale and the command that ranks it again; or that the file is gone;
+    ``""`` for a current one.
+
+    After a run went on or ran again, ``status`` listed the rankings made from its earlier ``levels.csv`` as if they
+    were current (a careless user's audit)."""
+    import shlex
+
+    from screen.io import read_json
+
+    state = getattr(row, "levels_state", "current")
+    if state not in ("changed", "missing"):
+        return ""
+    if state == "missing":
+        return f"; its levels file {row.levels} is gone"
+    try:
+        spec = (read_json(out / "rankings" / row.folder / "ranking.meta.json").get("partner") or {}).get("spec")
+    except (OSError, ValueError, AttributeError):
+        spec = None
+    words = ["dascreen", "rank", "--out", str(out), "--partner", str(spec or row.partner)]
+    if Path(str(row.levels)).resolve() != (out / "levels.csv").resolve():
+        words += ["--levels", str(row.levels)]
+    settings = row.settings if isinstance(row.settings, str) else ""
+    for item in (part.strip() for part in settings.split(";")):
+        if item:
+            words += ["--set", item]
+    return f"; ranked from an earlier version of its levels file; re-rank with `{shlex.join(words)}`"
 
 
 def _print_dye_rankings(out: Path, limit: int = 12) -> None:
@@ -728,10 +897,10 @@ def _add_run(sub) -> None:
                        description="Run the whole pipeline through Snakemake: prepare, structures, electronic "
                                    "(xTB), levels (calibrated) and the ranking against the partner.")
     p.add_argument("candidates", help="candidate list: .csv (id,smiles[,name,role,...]), .smi or .sdf")
-    p.add_argument("--partner", default=None,
+    p.add_argument("--partner", default=None, action=GivenOnce,
                    help="partner material: library name (see `dascreen partners`), a one-row levels CSV, "
                         "smiles:<SMILES> or id:<ID> (default: the config's partner, {default:partner})")
-    p.add_argument("--role", choices=["donor", "acceptor"], default=None,
+    p.add_argument("--role", choices=["donor", "acceptor"], default=None, action=GivenOnce,
                    help="role of candidates without a role column value; a smiles: or id: partner takes the other "
                         "role (config rank.role; needed when such a partner meets candidates of both roles)")
     p.add_argument("--out", default=DEFAULT_OUT, help="output folder (default: ./%(default)s)")
@@ -755,7 +924,9 @@ def _add_run(sub) -> None:
                    help="accept an --out folder that holds the run of another candidate file (its results are "
                         "replaced)")
     p.set_defaults(func=cmd_run)
-    p.epilog = "Arguments after a bare `--` are passed to Snakemake unchanged (e.g. -- --keep-going)."
+    p.epilog = ("Arguments after a bare `--` are passed to Snakemake (e.g. -- --keep-going), checked first by its own "
+                "parser; the options dascreen sets itself (--cores, --directory, --snakefile, --configfile, --config, "
+                "--workflow-profile, --dry-run, --until, --omit-from) are refused: use dascreen's own.")
 
 
 def _add_calibrate(sub) -> None:
@@ -802,16 +973,16 @@ def _add_rank(sub) -> None:
                         "id:<ID> of a levels row (default: the partner of OUT/config.yaml or --config, else "
                         "{default:partner}). Repeat it or give a comma list for "
                         "several partners: one ranking each plus a candidates x partners matrix and overview")
-    p.add_argument("--levels", default=None,
+    p.add_argument("--levels", default=None, action=GivenOnce,
                    help="levels file to rank (default OUT/levels.csv); any CSV with id,homo_ev,lumo_ev,gap_opt_ev,"
                         "scale works, e.g. your own cyclic-voltammetry levels")
     p.add_argument("--out", default=DEFAULT_OUT, help="output folder (default: ./%(default)s)")
-    p.add_argument("--role", choices=["donor", "acceptor"], default=None,
+    p.add_argument("--role", choices=["donor", "acceptor"], default=None, action=GivenOnce,
                    help="role of rows without a role column value (default: the partner's complement; such a row is "
                         "flagged role_from_levels or role_unsupported by what its levels support)")
-    p.add_argument("--sort-by", choices=["pce_pct", "p_above_target"], default=None,
+    p.add_argument("--sort-by", choices=["pce_pct", "p_above_target"], default=None, action=GivenOnce,
                    help="ranking key after the pass/fail split (default {default:rank.sort_by})")
-    p.add_argument("--target-pce", type=_percent, default=None, metavar="PCT",
+    p.add_argument("--target-pce", type=_percent, default=None, metavar="PCT", action=GivenOnce,
                    help="efficiency threshold for p_above_target, in %%, from 0 to 100 (default "
                         "{default:rank.target_pce_pct})")
     p.add_argument("--config", default=None,
@@ -974,7 +1145,19 @@ def main(argv: list[str] | None = None) -> int:
             f"unrecognized arguments: {' '.join(unknown)}")
     args.snakemake_args = passthrough
     try:
-        return args.func(args)
+        if passthrough and args.command != "run":  # were dropped without a word
+            raise ConfigError(f"arguments after -- ({' '.join(passthrough)}) go to the workflow engine of `dascreen "
+                              f"run` only; `dascreen {args.command}` takes none")
+        rc = args.func(args)
+        sys.stdout.flush()  # a closed pipe is found here, not while Python shuts down
+        return rc
+    except BrokenPipeError:  # `dascreen status | head -1`: the reader has gone, which is no error of ours
+        # the recipe of the Python docs (signal, "Note on SIGPIPE"): no output goes anywhere after this
+        try:
+            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        except (OSError, ValueError, AttributeError):  # a stdout without a file descriptor (a test's capture)
+            pass
+        return 128 + signal.SIGPIPE  # what a program stopped by SIGPIPE returns (141), as the shells expect
     except DascreenError as exc:  # refused input or a failed calculation: one message, no traceback
         # a class may name itself (errors.FolderInUse: "folder in use", not a configuration problem)
         kind = getattr(exc, "console_kind", None) or ("configuration error" if isinstance(exc, ConfigError)

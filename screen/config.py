@@ -234,13 +234,40 @@ def read_problem(exc: Exception) -> str:
     return " ".join(str(exc).split())
 
 
+class _RepeatedKey(Exception):
+    """A mapping of a YAML file names one key twice (raised by :class:`_UniqueKeyLoader`)."""
+
+
+class _UniqueKeyLoader(yaml.SafeLoader):
+    """The safe YAML loader, refusing a mapping that names a key twice.
+
+    YAML keeps the last of two equal keys without a word: a config file with ``device:`` twice (a copy-paste slip)
+    ran with the second section's ``eqe`` (a careless user's audit). Merge keys (``<<``) may still override.
+    """
+
+    def construct_mapping(self, node, deep=False):
+        if isinstance(node, yaml.MappingNode):
+            seen: dict = {}
+            for key_node, _ in node.value:
+                if not isinstance(key_node, yaml.ScalarNode) or key_node.tag == "tag:yaml.org,2002:merge":
+                    continue
+                key = self.construct_object(key_node, deep=True)
+                line = key_node.start_mark.line + 1
+                if key in seen:
+                    raise _RepeatedKey(f"key {key!r} appears twice (lines {seen[key]} and {line}); "
+                                       "keep one (YAML would use the second without a word)")
+                seen[key] = line
+        return super().construct_mapping(node, deep=deep)
+
+
 def read_config_file(path: str | Path | None) -> dict:
     """The mapping of a YAML config file (not yet validated); ``{}`` for ``None``.
 
     Raises
     ------
     ConfigError
-        Unreadable file, text that is not UTF-8, invalid YAML or not a mapping (the message names the file).
+        Unreadable file, text that is not UTF-8, invalid YAML, a key given twice in one mapping or not a mapping
+        (the message names the file).
 
     Examples
     --------
@@ -251,11 +278,19 @@ def read_config_file(path: str | Path | None) -> dict:
     ... except ConfigError as exc:
     ...     print(str(exc).split(": ", 1)[1])
     the config file is not UTF-8 text (byte 0xff at position 14); save it as UTF-8 (a YAML file of fields, see `dascreen config --yaml`)
+    >>> twice = binary.with_name("twice.yaml"); _ = twice.write_text("device:\\n  eqe: 0.7\\ndevice:\\n  eqe: 0.8\\n")
+    >>> try:
+    ...     read_config_file(twice)
+    ... except ConfigError as exc:
+    ...     print(str(exc).split(": ", 1)[1])
+    key 'device' appears twice (lines 1 and 3); keep one (YAML would use the second without a word)
     """
     if path is None:
         return {}
     try:
-        cfg = yaml.safe_load(Path(path).read_text(encoding="utf-8")) or {}
+        cfg = yaml.load(Path(path).read_text(encoding="utf-8"), Loader=_UniqueKeyLoader) or {}  # noqa: S506 - safe
+    except _RepeatedKey as exc:
+        raise ConfigError(f"{path}: {exc}") from None
     except UnicodeDecodeError as exc:  # a binary or Latin-1 file gave a traceback (a new user's audit)
         raise ConfigError(f"{path}: the config file is {read_problem(exc)}; save it as UTF-8 (a YAML file of fields, "
                           "see `dascreen config --yaml`)") from None

@@ -31,8 +31,8 @@ import pandas as pd
 
 from screen.errors import InputError
 
-__all__ = ["cell_text", "field_count_lines", "atomic_path", "csv_text", "write_csv", "write_json", "read_json", "read_csv_checked",
-           "separator_problem",
+__all__ = ["cell_text", "field_count_lines", "repeated_column", "atomic_path", "csv_text", "write_csv", "write_json",
+           "read_json", "read_csv_checked", "separator_problem",
            "Journal", "Progress"]
 
 
@@ -303,6 +303,40 @@ def _field_count_problem(path: Path) -> str | None:
     return f"line {lines[0][0]} has {lines[0][1]} fields but the header has {len(header)}" if lines else None
 
 
+def repeated_column(path: str | os.PathLike) -> str | None:
+    """``"column 'x' appears twice (columns 2 and 6); keep one"`` when the header of a CSV file names a column twice
+    (None when every name is unique, or the file cannot be read: its reader says why).
+
+    pandas renames the second ``x`` to ``x.1``, so the first one was used without a word and the other value was
+    never mentioned (a careless user's audit); the candidates reader refuses such a header in the same words
+    (:func:`screen.prepare.readers._check_repeated_columns`). Names are compared without surrounding blanks; blank
+    names (empty cells after the last column of a spreadsheet export) are not compared.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> f = Path(tempfile.mkdtemp()) / "l.csv"; _ = f.write_text("id,homo_ev,lumo_ev,,homo_ev\\nD1,-5.2,-3,,-5\\n")
+    >>> repeated_column(f)
+    "column 'homo_ev' appears twice (columns 2 and 5); keep one"
+    >>> _ = f.write_text("id,homo_ev,,\\n"); repeated_column(f) is None
+    True
+    """
+    try:
+        with open(path, encoding="utf-8-sig", errors="replace", newline="") as handle:
+            header = next(csv.reader(handle), [])
+    except (OSError, csv.Error):
+        return None
+    first: dict[str, int] = {}
+    for i, name in enumerate(header, start=1):
+        name = name.strip()
+        if not name:
+            continue
+        if name in first:
+            return f"column {name!r} appears twice (columns {first[name]} and {i}); keep one"
+        first[name] = i
+    return None
+
+
 def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", error=InputError,
                      **read_kwargs) -> pd.DataFrame:
     """Read a CSV file and check that it has the ``required`` columns: the one home of that check.
@@ -323,8 +357,8 @@ def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", 
     Raises
     ------
     InputError
-        (or ``error``) The file is missing or unreadable as CSV, or lacks a
-        column; the message names the file, the missing and the found columns.
+        (or ``error``) The file is missing or unreadable as CSV, names a column twice (:func:`repeated_column`)
+        or lacks a column; the message names the file, the missing and the found columns.
 
     Examples
     --------
@@ -341,6 +375,9 @@ def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", 
     path = Path(path)
     if not path.is_file():
         raise error(f"{what} {path} is missing")
+    repeated = repeated_column(path)
+    if repeated:
+        raise error(f"{path}: {repeated}")
     try:
         frame = pd.read_csv(path, **read_kwargs)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
@@ -562,6 +599,27 @@ def _duration(seconds: float) -> str:
     return f"{seconds / 3600:.1f} h"
 
 
+def _records(path: Path) -> int:
+    """Data records of a CSV file (its header not counted); a quoted field may span lines.
+
+    Lines were counted before, so an id with a quoted line break counted twice and ``dascreen status`` called a
+    finished run "not running: 18/19" (a careless user's audit).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> f = Path(tempfile.mkdtemp()) / "shard-000.csv"; _ = f.write_text('key,id\\nm1,"two\\nlines"\\nm2,b\\n')
+    >>> _records(f)
+    2
+    """
+    with open(path, encoding="utf-8", newline="") as handle:
+        try:
+            return max(0, sum(1 for _ in csv.reader(handle)) - 1)
+        except csv.Error:  # a field beyond the csv module's size limit (a pasted 5 MB id): count lines instead
+            handle.seek(0)
+            return max(0, sum(1 for _ in handle) - 1)
+
+
 def batch_progress(out_dir: str | os.PathLike, batch: str = "candidates", stage: str = "electronic") -> dict:
     """Molecules done / total of a run folder, with an ETA, from shard outputs and journals.
 
@@ -584,13 +642,13 @@ def batch_progress(out_dir: str | os.PathLike, batch: str = "candidates", stage:
 
     work = Path(out_dir) / "work" / batch
     shards = sorted((work / "prepared").glob("shard-*.csv"))
-    total = sum(max(0, sum(1 for _ in open(p, encoding="utf-8")) - 1) for p in shards)
+    total = sum(_records(p) for p in shards)
     done, first = 0, None
     for shard in shards:
         final = work / stage / shard.name
         journal = Path(f"{final}.journal.jsonl")
         if final.exists():
-            done += max(0, sum(1 for _ in open(final, encoding="utf-8")) - 1)
+            done += _records(final)
         elif journal.exists():
             done += len(Journal(journal).load())
     starts = [p.stat().st_mtime for p in shards]

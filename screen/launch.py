@@ -45,8 +45,9 @@ import yaml
 from screen.config import Config
 from screen.errors import ConfigError, FolderInUse
 
-__all__ = ["WORKFLOW", "STOP_GRACE_S", "PIN_ENV", "KEEP_LOGS", "run_workflow", "error_excerpt",
-           "calibration_pin", "pinned_calibration", "failure_cause", "failure_cause_in", "rotate_log"]
+__all__ = ["WORKFLOW", "STOP_GRACE_S", "PIN_ENV", "KEEP_LOGS", "ENGINE_OPTIONS_SET", "run_workflow", "error_excerpt",
+           "calibration_pin", "pinned_calibration", "failure_cause", "failure_cause_in", "rotate_log",
+           "check_engine_args"]
 
 WORKFLOW = Path(__file__).parent / "workflow" / "Snakefile"
 #: environment variable that hands the workflow the calibration the ``dascreen`` command pinned (JSON of
@@ -363,6 +364,90 @@ def forget_other_input(out: Path, candidates: Path) -> list[str]:
                      f"({', '.join(old[:4])}{', …' if len(old) > 4 else ''}); `dascreen rank --out {out} --partner …` "
                      "makes them again for the new list")
     return notes
+
+
+#: the workflow engine's options that ``dascreen run`` sets itself or that stop the run before its levels, by the
+#: engine's name for them (its ``dest``), each with what to do instead: given after ``--`` they won (the engine
+#: takes the last ``--cores``), moved the engine's state out of the run folder (``--directory``) or ended the run
+#: without levels.csv and with a bare "[Errno 2]" line (``--until``), a careless user's audit
+ENGINE_OPTIONS_SET = {
+    "cores": "is set by dascreen: give `dascreen run ... --cores N` before the --",
+    "directory": "is set by dascreen: the workflow runs in the --out folder; give --out instead",
+    "snakefile": "is set by dascreen: it runs its packaged workflow",
+    "configfile": "is set by dascreen: it writes the run's configuration from --config and --set; give those "
+                  "before the --",
+    "config": "would bypass dascreen's checks of the settings; give --set SECTION.KEY=VALUE or --config FILE "
+              "before the --",
+    "workflow_profile": "is set by dascreen: give `dascreen run ... --profile FOLDER` before the --",
+    "dryrun": "is dascreen's own option: give `dascreen run ... --dry-run`",
+    "until": "stops the run before its levels.csv and ranking, which `dascreen run` then reports on; run the whole "
+             "pipeline (molecules already computed are not computed again) or see the jobs with --dry-run",
+    "omit_from": "stops the run before its levels.csv and ranking, which `dascreen run` then reports on; run the "
+                 "whole pipeline (molecules already computed are not computed again) or see the jobs with --dry-run",
+}
+
+
+def check_engine_args(extra) -> None:
+    """Refuse arguments for the workflow engine (after a bare ``--``) that it does not know or that dascreen sets.
+
+    The arguments are parsed by the engine's own parser without running anything; an unknown option or a bad value
+    gave about 100 lines of the engine's usage text and exit code 1 after the run had started, and an option of
+    :data:`ENGINE_OPTIONS_SET` overrode dascreen's own (a careless user's audit).
+
+    Raises
+    ------
+    ConfigError
+        One line naming the argument and what to do instead (exit code 2).
+
+    Examples
+    --------
+    >>> check_engine_args([])
+    >>> check_engine_args(["--keep-going"])
+    >>> try:
+    ...     check_engine_args(["--cores", "5"])
+    ... except ConfigError as exc:
+    ...     print(str(exc))
+    arguments after -- (passed to the workflow engine): --cores/-c is set by dascreen: give `dascreen run ... --cores N` before the --
+    """
+    extra = [str(a) for a in (extra or [])]
+    if not extra:
+        return
+    import argparse
+
+    head = "arguments after -- (passed to the workflow engine)"
+    if any(a in ("-h", "--help", "--version", "-v") for a in extra):
+        raise ConfigError(f"{head}: {' '.join(extra)} asks the engine to print its help or version and stop; "
+                          "`python -m snakemake --help` prints the engine's options")
+    try:
+        from snakemake.cli import get_argument_parser
+
+        parser, blank = get_argument_parser(), get_argument_parser()
+    except Exception:  # noqa: BLE001 - an engine without this API checks its arguments itself
+        return
+
+    class _Refused(Exception):
+        pass
+
+    def refuse(message):
+        raise _Refused(message)
+
+    for p in (parser, blank):
+        p.error = refuse  # argparse calls self.error: one line here instead of the usage text and SystemExit
+    try:  # argparse's own parsing: the engine's parser subclass also reads profiles and environment variables
+        given, unknown = argparse.ArgumentParser.parse_known_args(parser, extra, argparse.Namespace())
+        default, _ = argparse.ArgumentParser.parse_known_args(blank, [], argparse.Namespace())
+    except _Refused as exc:
+        raise ConfigError(f"{head}: {' '.join(extra)}: the engine refuses it: {exc}; `python -m snakemake --help` "
+                          "lists its options") from None
+    except SystemExit:
+        raise ConfigError(f"{head}: {' '.join(extra)} asks the engine to print something and stop") from None
+    if unknown:
+        raise ConfigError(f"{head}: the engine has no option {' '.join(unknown)}; `python -m snakemake --help` "
+                          "lists its options")
+    names = {a.dest: "/".join(a.option_strings) for a in parser._actions if a.option_strings}
+    for dest, instead in ENGINE_OPTIONS_SET.items():
+        if getattr(given, dest, None) != getattr(default, dest, None):
+            raise ConfigError(f"{head}: {names.get(dest, dest)} {instead}")
 
 
 def _command(out: Path, cfg_file: Path, cores: int, targets, extra, dry_run: bool, profile) -> list[str]:

@@ -5,9 +5,9 @@ LUMO = −EA), a positive optical gap that is not much larger than its
 LUMO − HOMO gap (the optical gap is the transport gap minus the exciton binding
 energy, which is ≥ 0; :data:`GAP_EXCESS_TOL_EV` allows for the spread between
 CV and absorption onsets), on the film scale not far below it either
-(:data:`GAP_DEFICIT_MAX_EV`), and σ ≥ 0.  A violation is almost always a typing or
+(:data:`GAP_DEFICIT_MAX_EV`), and 0 ≤ σ ≤ :data:`SIGMA_MAX_EV`.  A violation is almost always a typing or
 convention slip (an ionisation energy written as a positive HOMO, HOMO and LUMO
-swapped or equal, a gap in nm): it stops the ranking with an :class:`InputError` (exit
+swapped or equal, a gap in nm, a σ in meV): it stops the ranking with an :class:`InputError` (exit
 code 2) that names the file, the line, the column, the value and the fix.
 A levels file is also refused for a number that is not finite (``inf``), an
 empty or repeated id, a scale other than ``film`` or ``gas`` and a role other
@@ -35,7 +35,7 @@ import pandas as pd
 from screen.errors import InputError
 
 __all__ = ["check_levels", "check_partner", "row_problems", "inconsistent_rows", "quoted", "GAP_EXCESS_TOL_EV",
-           "GAP_DEFICIT_MAX_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV", "QUOTE_MAX"]
+           "GAP_DEFICIT_MAX_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV", "QUOTE_MAX", "SIGMA_MAX_EV"]
 
 #: how much the optical gap may exceed LUMO − HOMO (CV and absorption onsets scatter by ~0.1–0.3 eV;
 #: common practice) [eV]
@@ -53,6 +53,12 @@ _ROLES = ("donor", "acceptor", "")
 LEVEL_MIN_EV = -15.0
 #: optical gaps above this are taken as a wavelength in nm [eV]
 GAP_MAX_INPUT_EV = 15.0
+#: largest accepted one-σ uncertainty of a level or gap (``*_sigma_ev``): measured values carry ~0.01–0.1 eV and
+#: calibrated ones ~0.1–0.3 eV (common practice); a σ of 1 eV already spans every organic semiconductor's levels, so
+#: a larger one is a unit slip (meV), as in the dye mode (:data:`screen.dyecell.checks.SIGMA_MAX`) [eV]
+SIGMA_MAX_EV = 1.0
+#: a σ from this value up is taken as given in meV (50 meV is a common CV uncertainty) [eV]
+_SIGMA_MEV_FROM = 10.0
 #: problems listed in one message at most
 _MAX_LISTED = 5
 _SIGMAS = ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")
@@ -97,6 +103,8 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
     'an optical gap of 650 eV looks like a wavelength in nm; write 1240/650 = 1.91 eV'
     >>> row_problems(-5.0, -5.0, 1.5, "film")[0][2][:39]
     'HOMO and LUMO are equal (-5): that is a'
+    >>> row_problems(-5.4, -3.6, 1.6, "film", {"homo_sigma_ev": 50.0})[0][2]
+    'an uncertainty must lie in 0-1 eV (measured values carry about 0.01-0.1 eV); 50 looks like millielectronvolts: write 0.05 eV'
     """
     out = []
     film = str(scale).strip().lower() != "gas"
@@ -140,6 +148,11 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
             continue
         if not math.isfinite(val) or val < 0:
             out.append((col, val, "an uncertainty must be a finite number >= 0 (empty = 0)"))
+        elif val > SIGMA_MAX_EV:
+            hint = (f"{val:g} looks like millielectronvolts: write {val / 1000:.3g} eV" if val >= _SIGMA_MEV_FROM
+                    else "give the one-sigma uncertainty in eV, e.g. 0.1")
+            out.append((col, val, f"an uncertainty must lie in 0-{SIGMA_MAX_EV:g} eV (measured values carry about "
+                                  f"0.01-0.1 eV); {hint}"))
     return out
 
 
@@ -260,7 +273,11 @@ def check_partner(partner) -> None:
     InputError
         e.g. ``partner 'mine' (file acc.csv), column homo_ev = 5.9: HOMO is given as …``.
     """
-    sig = {c: float(getattr(partner, c, 0.0) or 0.0) for c in _SIGMAS}
+    # σ typed by a person (a file or the library) is checked; a computed partner's σ (smiles:, id:) comes from the
+    # calibration, which may exceed SIGMA_MAX_EV for an exotic molecule on the gas scale (EA σ ≈ 1.07 eV at zero
+    # similarity) and is not a unit slip
+    typed = getattr(partner, "kind", "file") in ("file", "library")
+    sig = {c: float(getattr(partner, c, 0.0) or 0.0) for c in _SIGMAS} if typed else {}
     problems = row_problems(float(partner.homo_ev), float(partner.lumo_ev), float(partner.gap_opt_ev), partner.scale,
                             sig)
     if problems:

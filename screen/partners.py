@@ -181,6 +181,11 @@ def unknown_partner(spec: str, path: Path | None = None, role: str | None = None
     True
     """
     ids = _library_ids(path)
+    if spec.strip() and _is_folder(spec):  # "not an existing file" of a folder sent the user looking for a typo
+        return PartnerError(
+            f"partner {quoted(spec)} is a folder, not a file; give the one-row levels CSV in it (id,homo_ev,lumo_ev,"
+            f"gap_opt_ev,scale[,role]), a library id ({', '.join(ids[:6]) if ids else 'see `dascreen partners`'}"
+            f"{', …' if len(ids) > 6 else ''}), smiles:<SMILES> or id:<ID of a levels row>")
     close = did_you_mean(spec, path, role) if spec.strip() else []
     if close and role is not None:
         hint = f" Did you mean {' or '.join(close)}? (only {role}s are named: the candidates are {complement(role)}s)"
@@ -247,6 +252,14 @@ def _is_file(text: str) -> bool:
     """
     try:
         return Path(text).expanduser().is_file()
+    except (OSError, ValueError):
+        return False
+
+
+def _is_folder(text: str) -> bool:
+    """Whether ``text`` names an existing folder (False for a text no path can be, as :func:`_is_file`)."""
+    try:
+        return Path(text).expanduser().is_dir()
     except (OSError, ValueError):
         return False
 

@@ -27,6 +27,7 @@ screen.errors.ConfigError: --set device.eqee=0.7: no field device.eqee; did you 
 
 from __future__ import annotations
 
+import argparse
 import re
 from dataclasses import dataclass
 from functools import lru_cache
@@ -44,7 +45,81 @@ __all__ = ["SchemaField", "schema_fields", "allowed_text", "unit_of", "check_set
            "check_out_folder", "check_partners", "check_partner_scales", "check_out", "config_text",
            "check_profile", "check_run_partners", "make_out_folder",
            "CalibrationDifference", "calibration_differences", "calibration_text", "check_calibration", "fitted_in",
-           "reference_count"]
+           "reference_count", "check_reference", "GivenOnce"]
+
+
+class GivenOnce(argparse.Action):
+    """An option that may be given once: the same option again with another value is refused (exit code 2).
+
+    ``--target-pce 8 --target-pce 12`` ranked with 12 without a word, while ``--target-pce 8 --set
+    rank.target_pce_pct=12`` was refused as a conflict (a careless user's audit). The same value twice is
+    accepted. For options whose default is None (the first value given replaces it).
+
+    Examples
+    --------
+    >>> p = argparse.ArgumentParser(prog="x", exit_on_error=False)
+    >>> _ = p.add_argument("--role", action=GivenOnce, default=None)
+    >>> p.parse_args(["--role", "donor", "--role", "donor"]).role
+    'donor'
+    >>> try:
+    ...     p.parse_args(["--role", "donor", "--role", "acceptor"])
+    ... except argparse.ArgumentError as exc:
+    ...     print(exc)
+    argument --role: given twice, as 'donor' and 'acceptor'; give it once
+    """
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        before = getattr(namespace, self.dest, None)
+        if before is not None and before != values:
+            raise argparse.ArgumentError(self, f"given twice, as {_given_text(before)} and {_given_text(values)}; "
+                                               "give it once")
+        setattr(namespace, self.dest, values)
+
+
+def _given_text(value) -> str:
+    """An option's value as the user typed it, near enough (``8.0`` → ``8``)."""
+    return f"{value:g}" if isinstance(value, float) else repr(value)
+
+
+#: reference sets a refit from raw values needs (``screen.calibration.reference``: the others are optional there)
+_REFERENCE_REQUIRED = ("ip", "ea", "gap_opt", "film")
+
+
+def check_reference(folder, given: str | None, from_raw: bool = False) -> None:
+    """Refuse a reference folder that is missing or lacks reference files, before anything is computed.
+
+    A missing or empty ``--reference`` started the calibration workflow, which stopped with exit code 1 and the
+    reason only in its log (a careless user's audit). The workflow reads every file of
+    :data:`screen.calibration.reference.FILES`; a refit from raw values (``from_raw``) only the required sets.
+
+    Parameters
+    ----------
+    folder : path-like
+        ``calibration.reference`` of the configuration.
+    given : str or None
+        ``--reference`` as the user wrote it (None: the folder came from the configuration).
+
+    Raises
+    ------
+    ConfigError
+        Naming the folder, the missing files and the fix (exit code 2).
+    """
+    from screen.calibration.reference import FILES
+
+    name = f"--reference {given}" if given is not None else f"calibration.reference {folder}"
+    about = ("a reference folder holds " + ", ".join(FILES.values()) + " (a copy of models/reference with your "
+             "own values is expected)")
+    path = Path(str(folder))
+    if not path.exists():
+        raise ConfigError(f"{name}: no such folder; {about}")
+    if not path.is_dir():
+        raise ConfigError(f"{name} is a file, not a folder; {about}")
+    needed = list(FILES.values()) if not from_raw else [FILES[k] for k in _REFERENCE_REQUIRED]
+    missing = [f for f in needed if not (path / f).is_file()]
+    if len(missing) == len(needed):
+        raise ConfigError(f"{name} holds none of the reference files; {about}")
+    if missing:
+        raise ConfigError(f"{name} lacks {', '.join(missing)}; {about}")
 
 
 # --------------------------------------------------------------------------- the schema, field by field

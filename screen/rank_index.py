@@ -6,7 +6,8 @@ folders whose names do not say what sets them apart (a meeting-day audit counted
 from every folder's ``ranking.meta.json`` — partner, device model, absorber, target,
 sort order, the settings changed from the defaults (``settings``, e.g.
 ``device.min_delta_homo_ev=0.1``: two folders that differed only in their counts
-were the audit of a later meeting), the levels file ranked, counts and when — after
+were the audit of a later meeting), the levels file ranked and whether it is still
+as it was ranked (``levels_state``, :func:`levels_state`), counts and when — after
 each ranking, and ``dascreen status`` prints it.
 
 Examples
@@ -35,11 +36,16 @@ from pathlib import Path
 
 import pandas as pd
 
-__all__ = ["INDEX_COLUMNS", "ranking_index", "write_ranking_index", "non_default_settings", "settings_text"]
+__all__ = ["INDEX_COLUMNS", "LEVELS_STATES", "ranking_index", "levels_state", "write_ranking_index",
+           "non_default_settings", "settings_text"]
 
 #: columns of ``OUT/rankings-index.csv``
-INDEX_COLUMNS = ["folder", "partner", "model", "absorber", "target_pce_pct", "sort_by", "settings", "levels", "ranked",
-                 "passing", "shortlisted", "written_utc"]
+INDEX_COLUMNS = ["folder", "partner", "model", "absorber", "target_pce_pct", "sort_by", "settings", "levels",
+                 "levels_state", "ranked", "passing", "shortlisted", "written_utc"]
+#: ``levels_state`` of a ranking: its levels file is as it was ranked (SHA-256 of ``levels.path`` as recorded in
+#: ``levels.sha256`` of the sidecar), was changed since (a resumed or repeated run rewrote it), is gone, or not known
+#: (a sidecar without the hash)
+LEVELS_STATES = ("current", "changed", "missing", "unknown")
 
 #: device settings whose default (None) means "the fitted value"; the sidecar says with ``<key>_set`` whether one
 #: was given
@@ -86,7 +92,46 @@ def settings_text(meta: dict, skip=()) -> str:
     return "; ".join(non_default_settings(meta, skip))
 
 
-def _row(folder: Path) -> dict | None:
+def levels_state(levels: dict, hashes: dict | None = None) -> str:
+    """Whether the levels file a ranking was made from is still as it was (:data:`LEVELS_STATES`).
+
+    A run that resumed or ran again rewrote ``levels.csv``, and the rankings made from the earlier one were listed
+    by ``dascreen status`` as if they were current (a careless user's audit).
+
+    Parameters
+    ----------
+    levels : dict
+        ``levels`` of a ``ranking.meta.json`` (``path``, ``sha256``).
+    hashes : dict, optional
+        SHA-256 by path, filled and reused across the folders of one index (a file is hashed once).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> f = Path(tempfile.mkdtemp()) / "levels.csv"; _ = f.write_text("id\\n")
+    >>> from screen.provenance import sha256_file
+    >>> levels_state({"path": str(f), "sha256": sha256_file(f)}), levels_state({"path": str(f), "sha256": "ab"})
+    ('current', 'changed')
+    >>> levels_state({"path": str(f.with_name("gone.csv")), "sha256": "ab"}), levels_state({"path": str(f)})
+    ('missing', 'unknown')
+    """
+    from screen.provenance import sha256_file
+
+    path, recorded = levels.get("path"), levels.get("sha256")
+    if not path or not recorded:
+        return "unknown"
+    hashes = {} if hashes is None else hashes
+    if path not in hashes:
+        try:
+            hashes[path] = sha256_file(path) if Path(path).is_file() else None
+        except OSError:
+            hashes[path] = None
+    if hashes[path] is None:
+        return "missing"
+    return "current" if hashes[path] == recorded else "changed"
+
+
+def _row(folder: Path, hashes: dict | None = None) -> dict | None:
     from screen.io import read_json
 
     try:
@@ -104,7 +149,8 @@ def _row(folder: Path) -> dict | None:
     counts = part("counts")
     return {"folder": folder.name, "partner": part("partner").get("id", ""), "model": part("device").get("model", ""),
             "absorber": part("device").get("absorber", ""), "target_pce_pct": part("rank").get("target_pce_pct"),
-            "sort_by": part("rank").get("sort_by", ""), "settings": settings_text(meta), "levels": part("levels").get("path", ""),
+            "sort_by": part("rank").get("sort_by", ""), "settings": settings_text(meta),
+            "levels": part("levels").get("path", ""), "levels_state": levels_state(part("levels"), hashes),
             "ranked": counts.get("ranked"), "passing": counts.get("passing"),
             "shortlisted": counts.get("shortlisted_rows", counts.get("shortlist")),  # rows, with or without an SDF
             "written_utc": datetime.fromtimestamp(written, timezone.utc).strftime("%Y-%m-%d %H:%M")}
@@ -114,7 +160,8 @@ def ranking_index(out_dir) -> pd.DataFrame:
     """One row per ranking folder of ``OUT/rankings`` (partner matrices and unreadable folders left out),
     the most recently written first."""
     root = Path(out_dir) / "rankings"
-    rows = [r for f in sorted(root.iterdir()) if f.is_dir() and (r := _row(f))] if root.is_dir() else []
+    hashes: dict = {}  # the levels file of many rankings is hashed once
+    rows = [r for f in sorted(root.iterdir()) if f.is_dir() and (r := _row(f, hashes))] if root.is_dir() else []
     frame = pd.DataFrame(rows, columns=INDEX_COLUMNS)
     return frame.sort_values(["written_utc", "folder"], ascending=[False, True], kind="stable").reset_index(drop=True)
 

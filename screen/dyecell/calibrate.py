@@ -386,7 +386,8 @@ def load_models(protocol_id: str | None, root: str | Path | None = None, *, fold
                               "reference set with this protocol)")
         if reference is not None and fp.get("reference_sha256") != sha256_file(reference):
             raise ConfigError(f"dye model {path} was fitted on other reference data than {reference}; refit with "
-                              "`dascreen dyecell --refit`")
+                              "`dascreen dyecell --refit --replace-installed` (or --models DIR for a folder of "
+                              "your own)")
     return out
 
 

@@ -481,13 +481,21 @@ def extra_fields_problem(path) -> str | None:
 
 
 def check_field_counts(path, what: str) -> None:
-    """Refuse a CSV file with a row that has more fields than its header (:func:`extra_fields_problem`).
+    """Refuse a CSV file with a row that has more fields than its header (:func:`extra_fields_problem`), or whose
+    header names a column twice (:func:`screen.io.repeated_column`: pandas used the first of two ``e00_ev`` columns
+    without a word, a careless user's audit).
 
     Raises
     ------
     InputError
-        Naming the file, the line(s) and the likely slip (an unquoted comma or a decimal comma).
+        Naming the file, the line(s) and the likely slip (an unquoted comma or a decimal comma), or the repeated
+        column and both its positions.
     """
+    from screen.io import repeated_column
+
+    repeated = repeated_column(path)
+    if repeated:
+        raise InputError(f"{what} {path}: {repeated}")
     problem = extra_fields_problem(path)
     if problem:
         import csv

@@ -12,7 +12,8 @@ is not the run's own levels goes to a folder of its own
 not become the default input; without either it re-ranks the input ranked
 last in ``OUT`` (recorded in ``OUT/dyecell/inputs.json``); ``--list`` prints the
 oxide and mediator libraries; ``--refit`` computes the dye reference set with
-the run's protocol and installs the dye models.
+the run's protocol and installs the dye models (replacing installed ones only
+with ``--replace-installed``; never with a ``--levels`` file of measured values).
 """
 
 from __future__ import annotations
@@ -23,6 +24,7 @@ from pathlib import Path
 
 from screen.cli_shared import _at_least_one, _percent, cut_cell, fixed_decimals
 from screen.errors import ConfigError, InputError
+from screen.preflight import GivenOnce
 
 __all__ = ["add_dyecell", "cmd_dyecell"]
 
@@ -106,9 +108,53 @@ def _not_ok(levels_csv: Path) -> frozenset:
     return frozenset(zip(bad["id"], bad["error"]))
 
 
+def _models_root(args, cfg) -> Path:
+    """Where the dye models of this command are read from and ``--refit`` installs them: ``--models DIR``, else
+    ``<calibration.models>/dyecell`` (the shipped ``models/dyecell`` by default)."""
+    from screen.dyecell.calibrate import MODELS_DIR
+
+    if args.models:
+        return Path(args.models).expanduser().resolve()
+    return Path(cfg["calibration"]["models"]) / "dyecell" if cfg["calibration"]["models"] else MODELS_DIR
+
+
+def _check_refit(args, cfg) -> None:
+    """Refuse a ``--refit`` that has nothing to fit for, or would replace installed dye models without being asked.
+
+    ``dascreen dyecell --levels measured.csv --refit`` computed the 30 reference dyes and rewrote the shipped models
+    in ``models/dyecell`` without a word, although measured values use no model (a careless user's audit).  As
+    ``dascreen calibrate --install`` (:func:`screen.cli._check_install`), replacing installed models takes
+    ``--replace-installed``; ``--models DIR`` fits into a folder of one's own.
+
+    Raises
+    ------
+    ConfigError
+        ``--refit`` with a ``--levels`` file of measured values (no ``xtb_ip_ev`` column), or a model folder of
+        this protocol that holds dye models already, without ``--replace-installed`` (exit code 2).
+    """
+    import csv
+
+    from screen.dyecell.calibrate import TARGETS, model_folder
+
+    if args.levels:
+        with open(args.levels, encoding="utf-8-sig", errors="replace", newline="") as handle:
+            header = [c.strip() for c in next(csv.reader(handle), [])]
+        if "xtb_ip_ev" not in header:  # screen.dyecell.stage.read_input: a dye file of measured values
+            raise ConfigError(f"--refit fits the dye models that compute E(S+/S) and E0-0 from xTB levels; --levels "
+                              f"{args.levels} gives measured values (it has no xtb_ip_ev column), which need no "
+                              "model: leave --refit out")
+    folder = model_folder(cfg.protocol_id, _models_root(args, cfg))
+    held = [f"{name}.json" for name in TARGETS if (folder / f"{name}.json").is_file()]
+    if held and not args.replace_installed:
+        raise ConfigError(f"--refit would replace the dye models installed in {folder} ({', '.join(held)}), which "
+                          "every dye ranking of this protocol uses. Pass --replace-installed to replace them, or "
+                          "--models DIR to fit into a folder of your own (and rank with --models DIR later)")
+
+
 def _refit(args, cfg, out: Path) -> Path:
-    """Compute the dye reference set with this protocol (workflow batch of its own) and install the models."""
-    from screen.dyecell.calibrate import MODELS_DIR, reference_input, refit
+    """Compute the dye reference set with this protocol (workflow batch of its own) and install the models
+    (:func:`_models_root`; checked by :func:`_check_refit` before anything was computed)."""
+    from screen.dyecell.calibrate import reference_input, refit
     from screen.io import write_csv
     from screen.launch import run_workflow
 
@@ -120,9 +166,32 @@ def _refit(args, cfg, out: Path) -> Path:
                       log_name="dyecell-reference-workflow")
     if rc != 0:
         raise ConfigError(f"computing the dye reference set stopped with exit code {rc}; see {work}/logs/")
-    folder = refit(work / "levels.csv", root=args.models or MODELS_DIR)
+    folder = refit(work / "levels.csv", root=_models_root(args, cfg))
     print(f"dascreen: dye models installed in {folder}")
     return folder
+
+
+def _check_levels_file(given: str, out_text: str) -> None:
+    """Refuse a ``--levels`` that names no file: empty, a folder or missing (exit code 2, before any work).
+
+    ``--levels ''`` ranked the input ranked last in ``OUT`` without a word, while ``--partner ''`` and ``--out ''``
+    were refused (a careless user's audit).
+    """
+    if not given.strip():
+        raise ConfigError("--levels '' names no file; give a run's levels.csv or id,e_ox_v_nhe,e00_ev[,smiles] "
+                          "measured values, or leave --levels out to re-rank the input ranked last in --out")
+    levels = Path(given)
+    if levels.is_dir():
+        inside = [str(p) for p in (levels / "dyecell" / "levels_raw.csv", levels / "levels.csv") if p.is_file()]
+        hint = f" (it holds {' and '.join(inside)})" if inside else ""
+        raise InputError(f"--levels {given!r} is a directory, not a file{hint}; give the file itself: a "
+                         f"run's levels.csv (or OUT/dyecell/levels_raw.csv of a dye run), or "
+                         "id,e_ox_v_nhe,e00_ev[,smiles] measured values; to re-rank a run folder, give it as "
+                         "--out without --levels")
+    if not levels.is_file():
+        raise InputError(f"--levels {given!r} does not exist; give a run's levels.csv "
+                         f"(or {out_text}/dyecell/levels_raw.csv of a dye run), or id,e_ox_v_nhe,e00_ev[,smiles] "
+                         "measured values")
 
 
 def _default_levels(out: Path, out_text: str) -> Path:
@@ -347,6 +416,8 @@ def cmd_dyecell(args) -> int:
                           "existing levels or dye file")
     out = Path(args.out).resolve()
     check_out_folder(out, args.out)
+    if args.levels is not None:  # before anything is computed: a typo was found after the dye reference set
+        _check_levels_file(args.levels, args.out)
     if not (args.candidates or args.refit):  # a re-ranking: settings of how levels are computed cannot apply
         check_rank_sets(args.set, "dyecell")
     extra = {"dyecell": {"oxide": args.oxide, "mediator": args.mediator, "target_pce_pct": args.target_pce}}
@@ -363,6 +434,11 @@ def cmd_dyecell(args) -> int:
     cfg = _load(args, extra)
     for role in ("oxide", "mediator"):  # a typo stops the command before anything is computed or written
         resolve_material(role, cfg["dyecell"][role])
+    if args.refit:  # before the calibration check: a --refit that has nothing to fit is the first thing to say
+        _check_refit(args, cfg)
+    elif args.replace_installed:
+        raise ConfigError("--replace-installed goes with --refit (it lets the refit replace installed dye models); "
+                          "leave it out, or add --refit")
     if args.candidates or args.refit:  # both compute levels: hours of reference computation only when asked for
         check_calibration(cfg, out, args.config)
     make_out_folder(out, args.out)  # the first write: --out /proc/x gave a bare "[Errno 2]" line
@@ -380,17 +456,6 @@ def cmd_dyecell(args) -> int:
         listed = _not_ok(computed)
     if args.levels:
         levels = Path(args.levels)
-        if levels.is_dir():
-            inside = [str(p) for p in (levels / "dyecell" / "levels_raw.csv", levels / "levels.csv") if p.is_file()]
-            hint = f" (it holds {' and '.join(inside)})" if inside else ""
-            raise InputError(f"--levels {str(levels)!r} is a directory, not a file{hint}; give the file itself: a "
-                             f"run's levels.csv (or OUT/dyecell/levels_raw.csv of a dye run), or "
-                             "id,e_ox_v_nhe,e00_ev[,smiles] measured values; to re-rank a run folder, give it as "
-                             "--out without --levels")
-        if not levels.is_file():
-            raise InputError(f"--levels {str(levels)!r} does not exist; give a run's levels.csv "
-                             f"(or {args.out}/dyecell/levels_raw.csv of a dye run), or id,e_ox_v_nhe,e00_ev[,smiles] "
-                             "measured values")
     elif computed is not None:
         levels = computed
     elif args.refit and not (out / "dyecell" / "levels_raw.csv").is_file() and not (out / "levels.csv").is_file():
@@ -399,7 +464,7 @@ def cmd_dyecell(args) -> int:
         levels = _default_levels(out, args.out)
     if not (args.candidates or args.refit):
         check_rank_config(args.config, levels, "dyecell")
-    models_root = args.models or (cfg["calibration"]["models"] and Path(cfg["calibration"]["models"]) / "dyecell")
+    models_root = _models_root(args, cfg)
     path = run_dyecell(levels, out, settings=cfg["dyecell"], models_root=models_root,
                        current_protocol=cfg.protocol_id)
     tag = levels_tag(levels, out)
@@ -428,21 +493,21 @@ def add_dyecell(sub) -> None:
                                    "takes seconds.")
     p.add_argument("candidates", nargs="?", default=None,
                    help="dye list (.csv id,smiles[,name]; .smi; .sdf): runs the shared stages first")
-    p.add_argument("--levels", default=None,
+    p.add_argument("--levels", default=None, action=GivenOnce,
                    help="rank this file instead of computing (not with CANDIDATES): a run's levels.csv or your own "
                         "id,e_ox_v_nhe (or e_ox_v + e_ox_reference (or reference) + solvent),e00_ev[,smiles] file. In "
                         "an OUT that holds a run, another file than the run's own levels is ranked into "
                         "<oxide>--<mediator>--<settings hash>--levels-<file>-<hash>/ and the run's ranking stays. "
                         "Without CANDIDATES and --levels: the input ranked last in OUT (OUT/dyecell/levels_raw.csv of "
                         "a computing run, or the last --levels file), else OUT/levels.csv")
-    p.add_argument("--oxide", default=None,
+    p.add_argument("--oxide", default=None, action=GivenOnce,
                    help="semiconductor: library id (see --list) or a one-row CSV (default tio2-anatase)")
-    p.add_argument("--mediator", default=None,
+    p.add_argument("--mediator", default=None, action=GivenOnce,
                    help="redox mediator: library id (see --list) or a one-row CSV (default co-bpy3)")
     p.add_argument("--out", default="results", help="output folder (default: ./results)")
     p.add_argument("--cores", type=_at_least_one, default=os.cpu_count() or 1,
                    help="CPU cores to use, 1 or more (default: all)")
-    p.add_argument("--target-pce", type=_percent, default=None, metavar="PCT",
+    p.add_argument("--target-pce", type=_percent, default=None, metavar="PCT", action=GivenOnce,
                    help="efficiency threshold for p_above_target, in %% (default 8)")
     p.add_argument("--config", default=None, help="YAML config file (see `dascreen config`, section dyecell)")
     p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
@@ -451,7 +516,11 @@ def add_dyecell(sub) -> None:
                    help="root of the dye models (DIR/<protocol-id>/e_ox.json, e00.json; default models/dyecell)")
     p.add_argument("--refit", action="store_true",
                    help="compute the dye reference set (models/reference/dyes.csv) with this protocol and install "
-                        "the fitted dye models first")
+                        "the fitted dye models first, into --models DIR (default models/dyecell/<protocol-id>); "
+                        "refused where dye models of this protocol are installed already (see --replace-installed) "
+                        "and with a --levels file of measured values, which uses no model")
+    p.add_argument("--replace-installed", action="store_true",
+                   help="with --refit: replace the dye models installed for this protocol (e.g. the shipped ones)")
     p.add_argument("--list", action="store_true", help="print the oxide and mediator libraries and stop")
     p.add_argument("--overwrite", action="store_true",
                    help="accept an output folder that holds the run of another candidate file (compared by "

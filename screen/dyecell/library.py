@@ -280,6 +280,9 @@ def _library_or_file(spec: str, table: pd.DataFrame, what: str, columns: str) ->
     if row is not None:
         return row, None
     path = Path(spec).expanduser() if spec else None
+    if path is not None and path.is_dir():  # "not a file" of a folder sent the user looking for a typo
+        raise InputError(f"{what} {spec!r} is a folder, not a file; give the one-row CSV in it ({columns}) or a "
+                         f"library id: {', '.join(table['id'])}")
     if path is None or not path.is_file():
         close = close_ids(spec, table) if spec else []
         hint = f" Did you mean {' or '.join(close)}?" if close else ""

@@ -469,11 +469,13 @@ def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int) -> dic
 
 def _meta(ranking, table, info, oxide, mediator, model, options, short) -> dict:
     from screen import __version__
+    from screen.provenance import code_revision
 
     flags = pd.Series([f for s in ranking["flags"] for f in str(s).split(";") if f]).value_counts()
     status = table["status"].astype(str)
     return {
-        "dascreen": __version__, "stage": "dyecell", "scale": "electrochemical (potentials in V vs NHE)",
+        "dascreen": __version__, "code_revision": code_revision(), "stage": "dyecell",
+        "scale": "electrochemical (potentials in V vs NHE)",
         "oxide": oxide.as_dict(), "mediator": mediator.as_dict(), "model": model.as_dict(),
         "regeneration_threshold_ev": model.reg_threshold_ev(mediator), "rank": asdict(options),
         "sign_convention": ("drive_inj_ev = E(S+/S) - E_VB and drive_reg_ev = E_redox - E(S/S-) (p-type), in eV; "
