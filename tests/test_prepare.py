@@ -610,7 +610,7 @@ def test_unknown_extension_and_non_utf8(tmp_path: Path) -> None:
 
 def test_read_smi() -> None:
     frame = read_candidates(DATA / "sample.smi")
-    assert list(frame.id) == ["KF-S01", "Kestrel sample 2", "row-2"]
+    assert list(frame.id) == ["KF-S01", "Kestrel sample 2", "line-5"]  # named after its file line
     assert list(frame.smiles_input) == ["c1ccsc1", "c1ccc2nsnc2c1", "Cc1ccc(s1)-c1cccs1"]
     assert frame.note[2].startswith("missing_id")
     out = validate(frame)

@@ -120,9 +120,14 @@ A rejected row carries exactly one reason (the first problem found, in this orde
 Rows that are accepted may carry informative notes in the ``note`` column, as ``code: text``
 items separated by ``"; "``:
 
-``missing_id``          the id was empty; ``row-<row>`` (``row`` = 0-based input position) was
-                        assigned (with a ``-2``, ``-3`` ... suffix if that text is already an id
-                        in the file).  Auto-assignment is friendlier than rejection.
+``missing_id``          the id was empty; an id named after the row's place in the file was
+                        assigned: ``line-<L>`` for a CSV or SMILES row (``L`` = 1-based file line,
+                        counting the header and blank lines), ``record-<N>`` for an SD record
+                        (1-based), ``row-<row>`` (0-based position) for a frame built in code;
+                        with a ``-2``, ``-3`` ... suffix if that text is already an id in the file
+                        (:func:`screen.prepare.readers.generated_id`).  Auto-assignment is
+                        friendlier than rejection; :func:`prepare` says on stderr how many ids it
+                        gave and records them in ``manifest.meta.json`` (``generated_ids``).
 ``isotopes_removed``    isotope labels were stripped (unless ``keep_isotopes``).
 ``atom_maps_removed``   atom-map numbers on real atoms were stripped (labels of attachment
                         points are removed silently).
@@ -165,6 +170,7 @@ is kept; tautomers and resonance forms other than those RDKit normalises are *no
 from __future__ import annotations
 
 import os
+import sys
 from pathlib import Path
 
 from screen.chem import structure_key
@@ -175,6 +181,7 @@ from screen.prepare.readers import read_candidates
 from screen.prepare.shards import (
     MANIFEST_COLUMNS,
     SHARD_COLUMNS,
+    generated_ids,
     read_manifest,
     shard,
     write_prepared,
@@ -252,6 +259,20 @@ def prepare(
     path = Path(path)
     frame = read_candidates(path)
     manifest = validate(frame, options)
+    _say_generated_ids(manifest, path)
     manifest, oligomers = build_oligomers(manifest, polymer, truncate_min_carbons)  # unbuildable: that row rejected
     shards = shard(compute_rows(manifest, oligomers), options)
     return write_prepared(manifest, shards, path, Path(out_dir), options, oligomers=oligomers, polymer=polymer)
+
+
+def _say_generated_ids(manifest, path: Path) -> None:
+    """One stderr line when rows without an id were given one (before, only the manifest's ``note`` said so; in a
+    workflow run the line is in the prepare job's log, ``OUT/logs/<batch>/prepare.log``)."""
+    given = generated_ids(manifest)
+    if not given["count"]:
+        return
+    shown = ", ".join(repr(i) for i in given["ids"][:5]) + (", ..." if given["count"] > 5 else "")
+    rows = "1 row" if given["count"] == 1 else f"{given['count']} rows"
+    print(f"dascreen: {rows} of {path.name} had no id; each got one named after its place in the file (line-N: "
+          f"file line N; record-N: SD record N): {shown} (note 'missing_id' in levels.csv, 'generated_ids' in "
+          f"manifest.meta.json)", file=sys.stderr)

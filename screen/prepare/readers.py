@@ -14,7 +14,7 @@ Examples
 >>> _ = path.write_text("c1ccsc1 thiophene\\nCCO\\n", encoding="utf-8")
 >>> frame = read_candidates(path)
 >>> list(frame.id), list(frame.smiles_input)
-(['thiophene', 'row-1'], ['c1ccsc1', 'CCO'])
+(['thiophene', 'line-2'], ['c1ccsc1', 'CCO'])
 """
 
 from __future__ import annotations
@@ -39,7 +39,8 @@ from screen.io import separator_problem
 from screen.prepare.checks import snippet as _snippet
 from screen.prepare.shards import MANIFEST_COLUMNS
 
-__all__ = ["read_candidates", "assign_missing_ids", "INPUT_LINES", "input_line", "not_utf8_error"]
+__all__ = ["read_candidates", "assign_missing_ids", "generated_id", "generated_id_names", "INPUT_LINES", "input_line",
+           "not_utf8_error"]
 
 #: key of ``frame.attrs`` where :func:`read_candidates` records each row's place in the file: ``{"file": name,
 #: "format": "csv"|"smi"|"sdf", "lines": array of the first file line of row 0, of row 1, ...}`` (1-based, counting
@@ -522,25 +523,67 @@ def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], l
     return records, passthrough, _sdf_starts(text)
 
 
-def assign_missing_ids(ids: list[str], rows: list[int]) -> tuple[list[str], list[str]]:
-    """Fill empty (or blank) ids with ``row-<row>``; return the ids and per-row notes."""
+def generated_id(fmt: str | None, line: int | None, row: int) -> str:
+    """The id given to a row without one: named after where the row is in the file, so a user can find it.
+
+    ``line-<L>`` for a CSV or SMILES row (``L`` = the 1-based file line the row starts on, counting the header,
+    blank and comment lines: the line a text editor shows), ``record-<N>`` for an SD record (``N`` = 1-based record
+    number, the "SD record N" of the messages; its title line is the empty id); ``row-<row>`` (0-based position)
+    only for a frame built in code, which has no file line.  (Before, every format got ``row-<row>``, so an empty id
+    on line 12 of a CSV became ``row-10``.)
+
+    Examples
+    --------
+    >>> generated_id("csv", 12, 10), generated_id("smi", 5, 2), generated_id("sdf", 40, 2), generated_id(None, None, 2)
+    ('line-12', 'line-5', 'record-3', 'row-2')
+    """
+    if fmt == "sdf":
+        return f"record-{row + 1}"
+    if line is not None and fmt in ("csv", "smi"):
+        return f"line-{line}"
+    return f"row-{row}"
+
+
+def assign_missing_ids(ids: list[str], rows: list[int],
+                       names: list[str] | None = None) -> tuple[list[str], list[str]]:
+    """Fill empty (or blank) ids; return the ids and per-row notes.
+
+    ``names`` are the ids to give, one per row (:func:`generated_id`: ``line-12``, ``record-3``); without them
+    ``row-<row>``.  A name that is already an id of the file gets a ``-2``, ``-3`` ... suffix.  Given ids are kept
+    as they are.
+
+    Examples
+    --------
+    >>> assign_missing_ids(["a", "", "line-4"], [0, 1, 2], ["line-2", "line-4", "line-5"])
+    (['a', 'line-4-2', 'line-4'], ['', "missing_id: no id given, assigned 'line-4-2'", ''])
+    """
     explicit = {i for i in ids if i.strip()}
     out: list[str] = []
     notes: list[str] = []
-    for ident, row in zip(ids, rows):
+    for k, (ident, row) in enumerate(zip(ids, rows)):
         if ident.strip():
             out.append(ident)
             notes.append("")
             continue
-        candidate = f"row-{row}"
+        base = names[k] if names is not None else f"row-{row}"
+        candidate = base
         suffix = 2
         while candidate in explicit:
-            candidate = f"row-{row}-{suffix}"
+            candidate = f"{base}-{suffix}"
             suffix += 1
         explicit.add(candidate)
         out.append(candidate)
         notes.append(f"missing_id: no id given, assigned {candidate!r}")
     return out, notes
+
+
+def generated_id_names(frame: pd.DataFrame, rows: list[int]) -> list[str] | None:
+    """:func:`generated_id` of each row of a frame read by :func:`read_candidates` (its file lines in
+    ``frame.attrs``); ``None`` for a frame that does not record them (built in code: ``row-<row>``)."""
+    found = frame.attrs.get(INPUT_LINES) or {}
+    if not found.get("lines") and found.get("format") != "sdf":
+        return None
+    return [generated_id(found.get("format"), input_line(frame, row), row) for row in rows]
 
 
 def read_candidates(path: str | os.PathLike[str]) -> pd.DataFrame:
@@ -559,8 +602,9 @@ def read_candidates(path: str | os.PathLike[str]) -> pd.DataFrame:
         position, int), ``id``, ``smiles_input``, ``name``, ``role``, ``note``, ``read_error``
         and then the passthrough columns (all text).  ``read_error`` is ``''`` unless the
         record itself could not be read; it has the form ``"<reason>:<message>"`` and is
-        turned into a rejection by :func:`validate`.  Empty ids are replaced by ``row-<row>``
-        and noted in ``note``.  Passthrough columns whose names clash with a column of the
+        turned into a rejection by :func:`validate`.  Empty ids are replaced by an id named after
+        the row's place in the file (``line-<file line>`` for CSV and SMILES, ``record-<SD record number>`` for
+        SDF; :func:`generated_id`) and noted in ``note``.  Passthrough columns whose names clash with a column of the
         manifest are renamed with an ``input_`` prefix.
 
     Raises
@@ -583,7 +627,9 @@ def read_candidates(path: str | os.PathLike[str]) -> pd.DataFrame:
     else:
         records, passthrough, lines = _read_sdf(path, text)
     rows = list(range(len(records)))
-    ids, notes = assign_missing_ids([r["id"] for r in records], rows)
+    places = lines if len(lines) == len(records) else [None] * len(records)
+    ids, notes = assign_missing_ids([r["id"] for r in records], rows,
+                                    [generated_id(fmt, line, row) for row, line in zip(rows, places)])
     columns: dict[str, list[Any]] = {
         "row": rows,
         "id": ids,

@@ -149,6 +149,26 @@ def _summary(manifest: pd.DataFrame, shards: list[pd.DataFrame]) -> dict[str, in
     }
 
 
+#: how many generated ids ``manifest.meta.json`` lists by name (all are counted)
+GENERATED_IDS_LISTED = 20
+
+
+def generated_ids(manifest: pd.DataFrame) -> dict:
+    """The ids prepare gave to rows without one (note ``missing_id``; :func:`screen.prepare.readers.generated_id`):
+    ``{"count": n, "ids": the first GENERATED_IDS_LISTED}``, recorded in ``manifest.meta.json``.
+
+    Examples
+    --------
+    >>> generated_ids(pd.DataFrame({"id": ["a", "line-3"], "note": ["", "missing_id: no id given, assigned 'line-3'"]}))
+    {'count': 1, 'ids': ['line-3']}
+    """
+    if "note" not in manifest.columns or not len(manifest):
+        return {"count": 0, "ids": []}
+    given = manifest["note"].astype(str).str.contains("missing_id:", regex=False)
+    ids = [str(i) for i in manifest.loc[given, "id"]]
+    return {"count": len(ids), "ids": ids[:GENERATED_IDS_LISTED]}
+
+
 def write_prepared(
     manifest: pd.DataFrame,
     shards: list[pd.DataFrame],
@@ -207,6 +227,7 @@ def write_prepared(
         "polymer": dataclasses.asdict(polymer) if polymer is not None else None,
         "oligomers": int(len(oligomers)) if oligomers is not None else 0,
         "counts": summary,
+        "generated_ids": generated_ids(manifest),
         "shards": [{"file": n, "structures": len(s)} for n, s in zip(names, shards)],
         "manifest_columns": list(manifest.columns),
         "key": KEY_RECIPE,

@@ -23,7 +23,7 @@ from screen.io import cell_text as _text
 from screen.prepare.checks import REASON_CODES, _check_structure, _Checked
 from screen.prepare.checks import snippet as _snippet
 from screen.prepare.options import PrepareOptions
-from screen.prepare.readers import INPUT_LINES, input_line
+from screen.prepare.readers import INPUT_LINES, generated_id_names, input_line
 from screen.prepare.readers import assign_missing_ids as _assign_missing_ids
 from screen.prepare.shards import MANIFEST_COLUMNS
 
@@ -86,7 +86,9 @@ def validate(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) ->
     where = _places(frame, rows)
     smiles_in = column(smiles_col)
     # ids without surrounding blanks (as roles): " dup " is the id dup, so a repeat of it is a duplicate_id
-    ids, id_notes = _assign_missing_ids([ident.strip() for ident in column("id")], rows)
+    # an empty id is named after the row's place in the file (line-12, record-3), as read_candidates names it
+    ids, id_notes = _assign_missing_ids([ident.strip() for ident in column("id")], rows,
+                                        generated_id_names(frame, rows))
     prior_notes = column("note")
     roles_raw = column("role")
     read_errors = column("read_error")
