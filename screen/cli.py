@@ -159,7 +159,7 @@ def cmd_calibrate(args) -> int:
     if args.install is not None:  # a file as --install ended in a traceback after the fit (a careless user's audit)
         _check_install_folder(args.install, pid)
     if args.install and not args.replace_installed:  # refused before anything is computed
-        _check_install(Path(args.install).resolve() / pid, cfg, args.install)
+        _check_install(Path(args.install).expanduser().resolve() / pid, cfg, args.install)
     new = _made_out_folder(out, args.out)  # --out /sys/x gave a traceback
     if args.from_raw:
         from screen.refit import refit_from_raw
@@ -182,14 +182,19 @@ def cmd_calibrate(args) -> int:
     if len(failures):
         print(f"{len(failures)} reference molecule(s) could not be computed: see {target / 'reference_failures.csv'}")
     if args.install:
-        dest = Path(args.install).resolve() / pid
-        try:
+        dest = Path(args.install).expanduser().resolve() / pid
+        staged = dest.with_name(f".{pid}.installing")
+        try:  # copied beside it first: a failed copy leaves the installed calibration as it was
+            if staged.exists():
+                shutil.rmtree(staged)
+            shutil.copytree(target, staged, ignore=shutil.ignore_patterns(".snakemake*"))
             if dest.exists():
                 shutil.rmtree(dest)
-            shutil.copytree(target, dest, ignore=shutil.ignore_patterns(".snakemake*"))
+            staged.rename(dest)
         except OSError as exc:  # checked before the fit; a disk that filled up since is said in one line
             from screen.config import read_problem
 
+            shutil.rmtree(staged, ignore_errors=True)
             raise InputError(f"--install {args.install}: the models were fitted into {target}, but copying them to "
                              f"{dest} failed: {read_problem(exc)}; copy that folder by hand") from None
         print(f"dascreen: models copied to {dest}")
@@ -369,7 +374,8 @@ def _not_ranked_text(ranking_csv: Path) -> str:
     if not total:
         return ""
     return (f" ({total} row{'s' if total > 1 else ''} not ranked: "
-            f"{', '.join(f'{n} {status}' for status, n in sorted(counts.items()))}; the reasons are in the levels file)")
+            f"{', '.join(f'{n} {status}' for status, n in sorted(counts.items()))}; "
+            "the reasons are in the levels file)")
 
 
 def _ranked_count(table) -> tuple[str, str]:
@@ -429,13 +435,10 @@ def _print_ranking_of_run(cfg: Config, out: Path) -> None:
 
 
 def _set_aside_foreign_ranking(cfg: Config, out: Path) -> None:
-    """Move the ranking of another levels file out of the run's own ranking folder (before the workflow).
-
-    :func:`screen.rank_io.set_aside_foreign` moves it once the run has its ``levels.csv``; a run that resumes before
-    it has one (interrupted while computing) replaced a ranking of measured levels made in its folder meanwhile
-    without a word (a careless user's audit): here it is moved to the name
-    :func:`screen.rank_io.levels_suffix` gives such a ranking, and said on stderr either way.
-    """
+    """Move the ranking of another levels file out of the run's own ranking folder before the workflow ranks
+    (:func:`screen.rank_io.set_aside_foreign`, also for a run that resumes before it has its ``levels.csv``: it
+    replaced a ranking of measured levels made in its folder meanwhile without a word, a careless user's audit),
+    and say so on stderr."""
     from screen.partners import PartnerError, partner_slug
     from screen.rank_io import ranking_folder, set_aside_foreign
 
@@ -444,14 +447,6 @@ def _set_aside_foreign_ranking(cfg: Config, out: Path) -> None:
     except PartnerError:
         return
     moved = set_aside_foreign(out, folder)
-    ranked = None if moved or (out / "levels.csv").is_file() else _foreign_levels_of(out / "rankings" / folder, out)
-    if ranked is not None:
-        moved = _move_aside(out / "rankings" / folder, ranked)
-        if moved is None:
-            print(f"dascreen: rankings/{folder} holds the ranking of another levels file ({ranked}); this run "
-                  f"replaces it with the ranking of its own levels (`dascreen rank --out {out} --levels {ranked}` "
-                  "makes it again in a folder of its own)", file=sys.stderr)
-            return
     if moved:
         print(f"dascreen: rankings/{folder} held the ranking of another levels file; moved to rankings/{moved}, "
               "and this run's levels are ranked again", file=sys.stderr)
@@ -461,34 +456,6 @@ def _set_aside_foreign_ranking(cfg: Config, out: Path) -> None:
             write_ranking_index(out)
         except (OSError, ValueError):
             pass  # the run's ranking job writes it again
-
-
-def _foreign_levels_of(folder: Path, out: Path) -> str | None:
-    """The levels file a ranking folder ranked when it is not the run's own ``OUT/levels.csv`` (else None)."""
-    from screen.io import read_json
-
-    try:
-        ranked = (read_json(folder / "ranking.meta.json").get("levels") or {}).get("path")
-    except (OSError, ValueError, AttributeError):
-        return None
-    if not ranked or Path(ranked).resolve() == (out / "levels.csv").resolve():
-        return None
-    return str(ranked)
-
-
-def _move_aside(folder: Path, ranked: str) -> str | None:
-    """Rename a run's ranking folder that holds the ranking of ``ranked`` to the name a ranking of that file gets
-    in a run folder (``<folder>--levels-<file>-<hash>``, :func:`screen.partners.file_tag`); the new name, or None
-    when both it and its ``-earlier`` variant are taken."""
-    from screen.partners import file_tag
-
-    new = folder.with_name(f"{folder.name}--{file_tag(ranked, limit=24)}")
-    if new.exists():
-        new = new.with_name(new.name + "-earlier")
-    if new.exists():
-        return None
-    folder.rename(new)
-    return new.name
 
 
 def _refresh_matrices_of_run(cfg: Config, out: Path) -> None:

@@ -31,7 +31,7 @@ import pandas as pd
 
 from screen.errors import InputError
 
-__all__ = ["cell_text", "field_count_lines", "repeated_column", "atomic_path", "csv_text", "write_csv", "write_json",
+__all__ = ["cell_text", "field_count_lines", "repeated_column", "repeated_in_header", "atomic_path", "csv_text", "write_csv", "write_json",
            "read_json", "read_csv_checked", "separator_problem",
            "Journal", "Progress"]
 
@@ -309,7 +309,7 @@ def repeated_column(path: str | os.PathLike) -> str | None:
 
     pandas renames the second ``x`` to ``x.1``, so the first one was used without a word and the other value was
     never mentioned (a careless user's audit); the candidates reader refuses such a header in the same words
-    (:func:`screen.prepare.readers._check_repeated_columns`). Names are compared without surrounding blanks; blank
+    (:func:`repeated_in_header`). Names are compared without surrounding blanks; blank
     names (empty cells after the last column of a spreadsheet export) are not compared.
 
     Examples
@@ -326,14 +326,29 @@ def repeated_column(path: str | os.PathLike) -> str | None:
             header = next(csv.reader(handle), [])
     except (OSError, csv.Error):
         return None
+    return repeated_in_header(header)
+
+
+def repeated_in_header(header, case_blind=frozenset()) -> str | None:
+    """The :func:`repeated_column` message for a header given as a list of names (None when unique).
+
+    ``case_blind``: names compared ignoring case (the candidates reader's interpreted columns: ``SMILES`` and
+    ``smiles`` are one column); any other is compared by its exact name, blank names not at all.
+
+    Examples
+    --------
+    >>> repeated_in_header(["id", "smiles", "note", "Note", "SMILES"], case_blind={"smiles"})
+    "column 'smiles' appears twice (columns 2 and 5); keep one"
+    """
     first: dict[str, int] = {}
     for i, name in enumerate(header, start=1):
-        name = name.strip()
+        name = str(name).strip()
         if not name:
             continue
-        if name in first:
-            return f"column {name!r} appears twice (columns {first[name]} and {i}); keep one"
-        first[name] = i
+        same = name.lower() if name.lower() in case_blind else name
+        if same in first:
+            return f"column {same!r} appears twice (columns {first[same]} and {i}); keep one"
+        first[same] = i
     return None
 
 

@@ -384,6 +384,14 @@ ENGINE_OPTIONS_SET = {
              "pipeline (molecules already computed are not computed again) or see the jobs with --dry-run",
     "omit_from": "stops the run before its levels.csv and ranking, which `dascreen run` then reports on; run the "
                  "whole pipeline (molecules already computed are not computed again) or see the jobs with --dry-run",
+    # a review: a target after -- ran part of the workflow, and `dascreen run` then reported an earlier levels.csv
+    # and ranking as this run's result; --touch and the delete options change the folder without running it
+    "targets": "(a target file or rule) runs part of the workflow, after which `dascreen run` would report the "
+               "folder's earlier results as this run's; run the whole pipeline (molecules already computed are not "
+               "computed again)",
+    "touch": "marks outputs up to date without computing them; run the pipeline instead",
+    "delete_all_output": "deletes the run's results; remove the --out folder instead",
+    "delete_temp_output": "deletes files the run resumes from; leave it out",
 }
 
 
@@ -422,7 +430,7 @@ def check_engine_args(extra) -> None:
         from snakemake.cli import get_argument_parser
 
         parser, blank = get_argument_parser(), get_argument_parser()
-    except Exception:  # noqa: BLE001 - an engine without this API checks its arguments itself
+    except ImportError:  # an engine without this API checks its arguments itself
         return
 
     class _Refused(Exception):

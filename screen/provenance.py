@@ -57,10 +57,11 @@ def code_revision() -> str:
     if not (root / ".git").exists():
         return ""
     try:
-        head = subprocess.run(["git", "-C", str(root), "rev-parse", "HEAD"], capture_output=True, text=True,
-                              timeout=10, check=True).stdout.strip()
-        changed = subprocess.run(["git", "-C", str(root), "status", "--porcelain", "--untracked-files=no", "--",
-                                  "screen"], capture_output=True, text=True, timeout=10, check=True).stdout.strip()
+        git = ["git", "--no-optional-locks", "-C", str(root)]  # never takes the index lock of the user's git
+        head = subprocess.run([*git, "rev-parse", "HEAD"], capture_output=True, text=True, timeout=10,
+                              check=True).stdout.strip()
+        changed = subprocess.run([*git, "status", "--porcelain", "--", "screen"], capture_output=True, text=True,
+                                 timeout=10, check=True).stdout.strip()
     except (OSError, subprocess.SubprocessError):
         return ""
     return f"{head}+changes" if changed else head

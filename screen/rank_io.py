@@ -121,15 +121,17 @@ def levels_suffix(levels_path, out_dir) -> str:
 def set_aside_foreign(out_dir, folder: str) -> str | None:
     """Move a run's ranking folder that holds the ranking of another levels file to its own name.
 
-    Rankings written before :func:`levels_suffix` existed sit under the run's own
-    folder name; ``dascreen run`` calls this first, so that its workflow ranks the
-    run's levels again instead of presenting the other file's ranking as its own.
+    Rankings written before :func:`levels_suffix` existed, or while the run had no
+    ``levels.csv`` yet (interrupted), sit under the run's own folder name; ``dascreen run``
+    calls this first, so that its workflow ranks the run's levels again instead of
+    presenting the other file's ranking as its own (or replacing it). The new name is
+    always a free one (``-earlier``, ``-earlier-2``, …), so no ranking is lost.
     Returns the new folder name, or None when nothing was moved.
     """
     out_dir = Path(out_dir)
     target = out_dir / "rankings" / folder
     meta = target / "ranking.meta.json"
-    if not meta.is_file() or not (out_dir / "levels.csv").is_file():
+    if not meta.is_file():
         return None
     from screen.io import read_json
 
@@ -137,13 +139,14 @@ def set_aside_foreign(out_dir, folder: str) -> str | None:
         ranked = (read_json(meta).get("levels") or {}).get("path")
     except (OSError, ValueError, AttributeError):
         return None
-    if not ranked or Path(ranked).resolve() == (out_dir / "levels.csv").resolve():
+    suffix = levels_suffix(ranked, out_dir) if ranked else ""
+    if not suffix:  # the run's own levels, or not a run folder
         return None
-    new = target.with_name(folder + levels_suffix(ranked, out_dir))
-    if new.exists():  # a later ranking of that file already has the name: keep both
-        new = new.with_name(new.name + "-earlier")
-    if new.exists():
-        return None
+    new = target.with_name(folder + suffix)
+    n = 1
+    while new.exists():  # later rankings of that file already have the name: keep every one
+        new = target.with_name(f"{folder}{suffix}-earlier" + (f"-{n}" if n > 1 else ""))
+        n += 1
     target.rename(new)
     return new.name
 

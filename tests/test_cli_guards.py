@@ -113,6 +113,8 @@ def test_output_into_a_closed_pipe_ends_without_a_traceback():
     (["-d", "/tmp"], "--directory/-d is set by dascreen"),
     (["--until", "prepare"], "--until/-U stops the run before its levels.csv"),
     (["--bogus-flag"], "the engine has no option --bogus-flag"),
+    (["all"], "runs part of the workflow"),  # a target: the earlier results were reported as this run's
+    (["--touch"], "marks outputs up to date"),
 ])
 def test_engine_arguments_that_clash_or_do_not_exist_are_refused(tmp_path, capsys, no_workflow, extra, said):
     candidates = _write(tmp_path / "c.csv", "id,smiles\nK1,c1ccsc1\n")
@@ -120,6 +122,16 @@ def test_engine_arguments_that_clash_or_do_not_exist_are_refused(tmp_path, capsy
                       "--", *extra)
     assert rc == 2 and said in err, err
     _one_line(err)
+
+
+def test_every_refused_engine_option_exists_in_the_installed_engine():
+    # the check compares parsed values by the engine's names for them: a renamed option would switch it off silently
+    from snakemake.cli import get_argument_parser
+
+    from screen.launch import ENGINE_OPTIONS_SET
+
+    dests = {a.dest for a in get_argument_parser()._actions}
+    assert set(ENGINE_OPTIONS_SET) <= dests, set(ENGINE_OPTIONS_SET) - dests
 
 
 def test_arguments_after_a_bare_dash_dash_are_for_run_only(tmp_path, capsys):
@@ -217,6 +229,14 @@ def test_a_resuming_run_moves_a_ranking_of_another_file_aside(tmp_path, capsys):
     assert not folder.exists() and "held the ranking of another levels file; moved to rankings/" in err, err
     moved = [p.name for p in (out / "rankings").iterdir()]
     assert len(moved) == 1 and moved[0].startswith(folder.name + "--levels-measured-"), moved
+    # a review: when that name (and its -earlier variant) were taken, the ranking was replaced; now a free name
+    for _ in range(2):
+        folder.mkdir()
+        _write(folder / "ranking.meta.json", json.dumps({"levels": {"path": str(tmp_path / "measured.csv")}}))
+        _set_aside_foreign_ranking(cfg, out)
+    names = sorted(p.name for p in (out / "rankings").iterdir())
+    assert len(names) == 3 and not folder.exists(), names
+    assert names[1].endswith("-earlier") and names[2].endswith("-earlier-2"), names
 
 
 def test_status_marks_a_ranking_of_an_earlier_version_of_its_levels(tmp_path, capsys):

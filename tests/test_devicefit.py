@@ -255,7 +255,8 @@ def test_fill_factor_per_acceptor_class_ranks_held_out_devices_better(devices, c
         pooled = devicefit.cross_validate(devices, None, by, ff_split="pooled").metrics["fitted"]
         nested = cv.metrics["fitted"]
         assert nested["spearman_pce"] >= pooled["spearman_pce"], by
-        assert nested["spearman_pce"] >= 0.3 > cv.metrics["scharber"]["spearman_pce"] + 0.3, by
+        assert nested["spearman_pce"] >= 0.3, by
+        assert nested["spearman_pce"] >= cv.metrics["scharber"]["spearman_pce"] + 0.3, by
         # the FF does not touch Voc
         assert nested["voc_mae_v"] == pytest.approx(pooled["voc_mae_v"], abs=1e-12)
         assert any(", ff class" in k or ", ff family" in k for k in cv.metrics["variants_per_fold"])
@@ -309,7 +310,7 @@ def _fullerene_frame(absorbs: bool, seed=11, noise=0.2):
     frame = _synthetic(n=48, seed=seed)
     rng = np.random.default_rng(seed + 1)
     n = len(frame)
-    ful = (np.arange(n) // 6) % 2 == 0  # whole acceptor groups (a0..a7 repeat every 8 rows) mix; class per row
+    ful = (np.arange(n) // 6) % 2 == 0  # whole acceptor groups mix; class per row
     frame["acceptor"] = [f"{'f' if f else 'n'}{i % 6}" for i, f in enumerate(ful)]
     frame["group"] = frame["acceptor"]
     frame["acceptor_class"] = np.where(ful, "fullerene", "nfa-fused")

@@ -130,7 +130,8 @@ def test_snakemake_from_the_clone_plans_the_workflow(repo_dir, tmp_path):
                            f"out={tmp_path / 'out'}"], capture_output=True, text=True, cwd=repo_dir)
     text = proc.stdout + proc.stderr
     assert proc.returncode == 0, text[-2000:]
-    assert "Nothing to be done" not in text and all(f"{k} {r}:" in text for k, r in (("checkpoint", "prepare"), ("rule", "levels"), ("rule", "rank")))
+    planned = (("checkpoint", "prepare"), ("rule", "levels"), ("rule", "rank"))
+    assert "Nothing to be done" not in text and all(f"{k} {r}:" in text for k, r in planned), text[-2000:]
     assert not (tmp_path / "out").exists()  # a dry run
 
 

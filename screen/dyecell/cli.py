@@ -513,10 +513,11 @@ def add_dyecell(sub) -> None:
     p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
                    help="override one config field, e.g. --set dyecell.voc_loss_v=0.25 (repeatable)")
     p.add_argument("--models", default=None, metavar="DIR",
-                   help="root of the dye models (DIR/<protocol-id>/e_ox.json, e00.json; default models/dyecell)")
+                   help="root of the dye models (DIR/<protocol-id>/e_ox.json, e00.json; default <calibration.models>/dyecell, "
+                        "i.e. models/dyecell with the default settings)")
     p.add_argument("--refit", action="store_true",
                    help="compute the dye reference set (models/reference/dyes.csv) with this protocol and install "
-                        "the fitted dye models first, into --models DIR (default models/dyecell/<protocol-id>); "
+                        "the fitted dye models first, into --models DIR/<protocol-id> (default: see --models); "
                         "refused where dye models of this protocol are installed already (see --replace-installed) "
                         "and with a --levels file of measured values, which uses no model")
     p.add_argument("--replace-installed", action="store_true",

@@ -35,7 +35,7 @@ from rdkit import Chem, rdBase
 from screen.columns import (CALIBRATED_COLUMNS, ELECTRONIC_COLUMNS, LEVELS_CONTRACT_COLUMNS, RANKING_COLUMNS,
                             RANKING_EXTRA_COLUMNS)
 from screen.errors import InputError
-from screen.io import separator_problem
+from screen.io import repeated_in_header, separator_problem
 from screen.prepare.checks import snippet as _snippet
 from screen.prepare.shards import MANIFEST_COLUMNS
 
@@ -219,15 +219,9 @@ def _check_repeated_columns(path: Path, header: list[str]) -> None:
     screen.errors.InputError: c.csv: column 'smiles' appears twice (columns 2 and 5); keep one
     >>> _check_repeated_columns(Path("c.csv"), ["id", "smiles", "", ""])
     """
-    first: dict[str, int] = {}
-    for i, name in enumerate(header, start=1):
-        name = name.strip()
-        if not name:
-            continue
-        same = name.lower() if name.lower() in _INTERPRETED else name
-        if same in first:
-            raise InputError(f"{path}: column {same!r} appears twice (columns {first[same]} and {i}); keep one")
-        first[same] = i
+    repeated = repeated_in_header(header, case_blind=frozenset(_INTERPRETED))
+    if repeated:
+        raise InputError(f"{path}: {repeated}")
 
 
 def _read_csv(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], list[int]]:

@@ -194,7 +194,7 @@ def _scale_words(meta: dict) -> str:
     >>> _scale_words({"scale": "gas"})[:30]
     'gas: isolated-molecule levels '
     """
-    if str(meta.get("scale", "film")).lower() == "gas":
+    if isinstance(meta, dict) and str(meta.get("scale", "film")).lower() == "gas":
         return ("gas: isolated-molecule levels (HOMO = \u2212IP, LUMO = \u2212EA of the free molecule); the device "
                 "models are fitted on film levels, so the Voc, Jsc and PCE shown are not device estimates")
     return "film: solid-state / CV levels"
