@@ -167,8 +167,9 @@ def report_store_hits(progress: Progress, cache, n_items: int, what: str = "", r
     if cache is None and not resumed:
         return
     suffix = f" ({what})" if what else ""
-    counts = (f"{cache.hits} of {n_items} molecules from the results store, {n_items - cache.hits} computed"
-              if cache is not None else f"{n_items} molecules computed")
+    molecules = f"{n_items} molecule{'' if n_items == 1 else 's'}"
+    counts = (f"{cache.hits} of {molecules} from the results store, {n_items - cache.hits} computed"
+              if cache is not None else f"{molecules} computed")
     if resumed:
         counts += f"; {resumed} more resumed from the journal (an interrupted attempt finished them)"
     print(f"{progress.label}: {counts}{suffix}", file=progress.stream, flush=True)

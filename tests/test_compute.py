@@ -228,7 +228,7 @@ def test_killed_job_resumes_from_its_journals_to_the_same_numbers(tmp_path, monk
     lines = log.getvalue().splitlines()
     assert any(line.startswith("compute shard-000: 1/1 molecules (100%)") for line in lines)
     # an overnight operator's report: the job's log says what the interruption cost
-    assert lines[-1] == ("compute shard-000: 1 molecules computed; 3 more resumed from the journal (an interrupted "
+    assert lines[-1] == ("compute shard-000: 1 molecule computed; 3 more resumed from the journal (an interrupted "
                          "attempt finished them) (structures)")
     for name, out in zip(("s.sdf", "s.csv", "e.csv"), outs):
         out.rename(tmp_path / "run" / name)

@@ -485,7 +485,7 @@ def test_rerank_without_levels_uses_the_last_levels_input(tmp_path, capsys):
     assert main(["dyecell", "--out", str(out), "--mediator", "iodide-triiodide", "--set",
                  "dyecell.n_samples=100"]) == 0
     text = capsys.readouterr().out
-    assert f"re-ranking {f}" in text and "1 dyes ranked on tio2-anatase with iodide-triiodide" in text
+    assert f"re-ranking {f}" in text and "1 dye ranked on tio2-anatase with iodide-triiodide" in text
     assert (_rfolder(out, "iodide-triiodide", {"n_samples": 100}) / "ranking.csv").is_file()
     # an empty folder: the message names the file the dye mode re-ranks from, not only OUT/levels.csv
     assert main(["dyecell", "--out", str(tmp_path / "empty")]) == 2

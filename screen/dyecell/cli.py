@@ -80,7 +80,8 @@ def _print_ranking(path: Path, top: int, listed: frozenset = frozenset()) -> Non
     ox, med = meta["oxide"]["id"], meta["mediator"]["id"]
     not_ranked = meta["counts"]["rows"] - len(table)
     rest = f"; {not_ranked} row(s) not ranked (rejected or failed)" if not_ranked else ""
-    print(f"dascreen: {len(table)} dyes ranked on {ox} with {med}; {viable} viable{rest}; top {min(top, len(table))} "
+    dyes = f"{len(table)} dye{'' if len(table) == 1 else 's'}"
+    print(f"dascreen: {dyes} ranked on {ox} with {med}; {viable} viable{rest}; top {min(top, len(table))} "
           "(potentials in V vs NHE, driving forces in eV):")
     if len(show):
         with pd.option_context("display.width", 250, "display.max_columns", 30):
