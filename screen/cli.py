@@ -363,10 +363,10 @@ def _not_ranked_text(ranking_csv: Path) -> str:
 
     A levels file with a failed row printed "1 donors ranked" and nothing about the other row, while ``dyecell``
     said "1 row(s) not ranked" (a careless user's audit)."""
-    import json
+    from screen.io import read_json
 
     try:
-        meta = json.loads((Path(ranking_csv).parent / "ranking.meta.json").read_text(encoding="utf-8"))
+        meta = read_json(Path(ranking_csv).parent / "ranking.meta.json")
         counts = {str(k): int(v) for k, v in ((meta.get("counts") or {}).get("not_ranked") or {}).items() if v}
     except (OSError, ValueError, AttributeError, TypeError):
         return ""

@@ -31,8 +31,8 @@ import pandas as pd
 
 from screen.errors import InputError
 
-__all__ = ["cell_text", "field_count_lines", "repeated_column", "repeated_in_header", "atomic_path", "csv_text", "write_csv", "write_json",
-           "read_json", "read_csv_checked", "separator_problem",
+__all__ = ["cell_text", "count_text", "field_count_lines", "csv_header", "repeated_column", "repeated_in_header",
+           "atomic_path", "csv_text", "write_csv", "write_json", "read_json", "read_csv_checked", "separator_problem",
            "Journal", "Progress"]
 
 
@@ -88,6 +88,20 @@ def cell_text(value) -> str:
     except (TypeError, ValueError):
         pass
     return str(value)
+
+
+def count_text(value) -> str:
+    """A count cell as text: a whole number without ``.0`` (a CSV read gives ``4.0`` for 4 in a column with empty
+    cells), anything else as :func:`cell_text`.
+
+    Examples
+    --------
+    >>> count_text(4.0), count_text(float("nan")), count_text("3"), count_text(2.5)
+    ('4', '', '3', '2.5')
+    """
+    if isinstance(value, (float, np.floating)) and np.isfinite(value) and float(value).is_integer():
+        return str(int(value))
+    return cell_text(value)
 
 
 def cell_number(value) -> float:
@@ -321,12 +335,25 @@ def repeated_column(path: str | os.PathLike) -> str | None:
     >>> _ = f.write_text("id,homo_ev,,\\n"); repeated_column(f) is None
     True
     """
+    header = csv_header(path)
+    return None if header is None else repeated_in_header(header)
+
+
+def csv_header(path: str | os.PathLike) -> list[str] | None:
+    """The column names of a CSV file's first line, blanks stripped (None when it cannot be read).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> f = Path(tempfile.mkdtemp()) / "h.csv"; _ = f.write_text("id, e00_ev\\nA,2.1\\n")
+    >>> csv_header(f), csv_header(f.with_name("none.csv"))
+    (['id', 'e00_ev'], None)
+    """
     try:
         with open(path, encoding="utf-8-sig", errors="replace", newline="") as handle:
-            header = next(csv.reader(handle), [])
+            return [name.strip() for name in next(csv.reader(handle), [])]
     except (OSError, csv.Error):
         return None
-    return repeated_in_header(header)
 
 
 def repeated_in_header(header, case_blind=frozenset()) -> str | None:

@@ -81,10 +81,6 @@ def _given_text(value) -> str:
     return f"{value:g}" if isinstance(value, float) else repr(value)
 
 
-#: reference sets a refit from raw values needs (``screen.calibration.reference``: the others are optional there)
-_REFERENCE_REQUIRED = ("ip", "ea", "gap_opt", "film")
-
-
 def check_reference(folder, given: str | None, from_raw: bool = False) -> None:
     """Refuse a reference folder that is missing or lacks reference files, before anything is computed.
 
@@ -104,7 +100,7 @@ def check_reference(folder, given: str | None, from_raw: bool = False) -> None:
     ConfigError
         Naming the folder, the missing files and the fix (exit code 2).
     """
-    from screen.calibration.reference import FILES
+    from screen.calibration.reference import FILES, REQUIRED_SETS
 
     name = f"--reference {given}" if given is not None else f"calibration.reference {folder}"
     about = ("a reference folder holds " + ", ".join(FILES.values()) + " (a copy of models/reference with your "
@@ -114,7 +110,7 @@ def check_reference(folder, given: str | None, from_raw: bool = False) -> None:
         raise ConfigError(f"{name}: no such folder; {about}")
     if not path.is_dir():
         raise ConfigError(f"{name} is a file, not a folder; {about}")
-    needed = list(FILES.values()) if not from_raw else [FILES[k] for k in _REFERENCE_REQUIRED]
+    needed = list(FILES.values()) if not from_raw else [FILES[k] for k in REQUIRED_SETS]
     missing = [f for f in needed if not (path / f).is_file()]
     if len(missing) == len(needed):
         raise ConfigError(f"{name} holds none of the reference files; {about}")

@@ -66,6 +66,7 @@ from screen.flags import (
     join_flags,
     reason_of,
 )
+from screen.io import count_text
 from screen.levels_check import check_levels, check_partner, inconsistent_rows
 from screen.partners import ROLES, Partner, PartnerError, complement
 from screen.rank_rows import heavy_atoms as _heavy_atoms
@@ -660,16 +661,14 @@ def _known_bias(levels: pd.DataFrame) -> np.ndarray:
 
 
 def _count_text(levels: pd.DataFrame, col: str) -> np.ndarray:
-    """A count column as text without a decimal point (a CSV read gives ``4.0`` for 4), empty where missing.
+    """A count column as text without a decimal point (:func:`screen.io.count_text`), empty where missing.
 
     Examples
     --------
     >>> _count_text(pd.DataFrame({"n": [4.0, None, 3]}), "n").tolist()
     ['4', '', '3']
     """
-    values = _numeric(levels, col)
-    return np.array(["" if not np.isfinite(v) else str(int(v)) if float(v).is_integer() else str(v) for v in values],
-                    dtype=object)
+    return np.array([count_text(v) for v in _numeric(levels, col)], dtype=object)
 
 
 def _computed_by_dascreen(levels: pd.DataFrame) -> bool:

@@ -46,7 +46,7 @@ from rdkit import Chem, RDLogger
 from screen.errors import InputError
 from screen.io import read_csv_checked
 
-__all__ = ["FILES", "FC_REFERENCE_EV", "read_reference", "reference_inputs", "reference_files", "reference_hash",
+__all__ = ["FILES", "REQUIRED_SETS", "FC_REFERENCE_EV", "read_reference", "reference_inputs", "reference_files", "reference_hash",
            "canonical", "joined", "normalised_film", "measured_film", "DERIVED_LEVELS", "family", "ACENES"]
 
 #: reference file of each set
@@ -58,7 +58,7 @@ _NEEDED = {"ip": ["name", "smiles", "value_ev", "source"], "ea": ["name", "smile
            "series": ["series", "n", "name", "smiles", "value_ev", "kind", "phase"],
            "dyes": ["name", "smiles", "e00_ev"]}
 #: sets without which no model can be fitted (the others are optional)
-_REQUIRED = ("ip", "ea", "gap_opt", "film")
+REQUIRED_SETS = ("ip", "ea", "gap_opt", "film")
 #: ferrocene/ferrocenium level assumed when normalising electrochemical data [eV]
 FC_REFERENCE_EV = -4.8
 #: values of the film set's ``derived_level`` column besides empty (both levels measured)
@@ -90,7 +90,7 @@ def read_reference(reference_dir: str | Path) -> dict[str, pd.DataFrame]:
     sets = {}
     for name, file in FILES.items():
         path = reference_dir / file
-        if name not in _REQUIRED and not path.is_file():
+        if name not in REQUIRED_SETS and not path.is_file():
             sets[name] = pd.DataFrame(columns=_NEEDED[name] + ["exclude_reason"])
             continue
         frame = read_csv_checked(path, _NEEDED[name], what="reference file", dtype=str, keep_default_na=False)

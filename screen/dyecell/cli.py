@@ -133,14 +133,11 @@ def _check_refit(args, cfg) -> None:
         ``--refit`` with a ``--levels`` file of measured values (no ``xtb_ip_ev`` column), or a model folder of
         this protocol that holds dye models already, without ``--replace-installed`` (exit code 2).
     """
-    import csv
-
     from screen.dyecell.calibrate import TARGETS, model_folder
+    from screen.io import csv_header
 
     if args.levels:
-        with open(args.levels, encoding="utf-8-sig", errors="replace", newline="") as handle:
-            header = [c.strip() for c in next(csv.reader(handle), [])]
-        if "xtb_ip_ev" not in header:  # screen.dyecell.stage.read_input: a dye file of measured values
+        if "xtb_ip_ev" not in (csv_header(args.levels) or []):  # screen.dyecell.stage.read_input: a dye file of measured values
             raise ConfigError(f"--refit fits the dye models that compute E(S+/S) and E0-0 from xTB levels; --levels "
                               f"{args.levels} gives measured values (it has no xtb_ip_ev column), which need no "
                               "model: leave --refit out")

@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from screen.flags import FLAGS, INFO_FLAGS, codes_of, describe
+from screen.io import count_text
 from screen.rank_rows import shortlist_mask
 from screen.report.drawings import molecule_svg
 from screen.report.format import (data_values, esc, fmts, get, has_text, num, percent, pm_htmls, shorten, text,
@@ -181,9 +182,7 @@ def _extra_text(value, column: str) -> str:
     ('4', '', '0.5')
     """
     if column in _INTEGER_EXTRAS:
-        x = num(value)
-        if not math.isnan(x) and float(x).is_integer():
-            return str(int(x))
+        return count_text(num(value)) if not math.isnan(num(value)) else text(value)
     return text(value)
 
 
