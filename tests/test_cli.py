@@ -214,7 +214,10 @@ def test_watch_prints_plain_lines_when_not_a_terminal(tmp_path):
     stream, stop = io.StringIO(), threading.Event()
     watcher = threading.Thread(target=_watch, args=(tmp_path, stop, "dascreen", stream, 0.01))
     watcher.start()
-    time.sleep(0.3)
+    deadline = time.monotonic() + 60
+    while "\n" not in stream.getvalue() and time.monotonic() < deadline:  # a bound on the wait, no timing check
+        time.sleep(0.01)
+    time.sleep(0.3)  # some 30 more ticks: a watcher that redrew or printed every tick would add lines here
     stop.set()
     watcher.join()
     text = stream.getvalue()

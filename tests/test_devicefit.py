@@ -12,6 +12,7 @@ import pytest
 from screen import devicefit
 from screen.device import DeviceModel
 from screen.devicepars import FITTED_PATH, FittedParameters, load_fitted
+from screen.errors import ConfigError
 from screen.provenance import sha256_file
 
 
@@ -52,15 +53,17 @@ def test_held_out_means_held_out(devices, cvs, by):
 
 
 def test_fullerene_rows_use_the_film_scale():
-    # levels_film.csv, C60 row (Xie, Arias, Echegoyen, J. Am. Chem. Soc. 115 (1993) 9818, Fc = -4.8 eV):
-    # LUMO -3.82 eV; the device table quotes vacuum-diagram values (-4.5 eV) for the same material
+    # levels_film.csv, C60 row: E1/2(red) -0.98 V vs Fc/Fc+ (Yang, Arias, Echegoyen et al., J. Am. Chem. Soc. 117
+    # (1995) 7801, as quoted on a vendor page; read), Fc = -4.8 eV: LUMO -3.82 eV; the device table quotes
+    # vacuum-diagram values (-4.5 eV, UPS/IPES-type, devices.csv rows, from memory) for the same material
     table = devicefit.level_table()
     c60 = table[table["acceptor"].eq("C60")]
     assert len(c60) >= 10
     assert (c60["paper_acceptor_lumo_ev"] == -4.5).all()
     np.testing.assert_allclose(c60["acceptor_lumo_ev"], -3.82)
     assert c60["acceptor_level_source"].eq("film:C60").all()
-    # nothing usable keeps a diagram-style fullerene LUMO
+    # nothing usable keeps a diagram-style fullerene LUMO: -4.25 eV lies between the diagram values (-4.5 eV) and
+    # every CV fullerene LUMO of levels_film.csv (-3.72 to -3.86 eV)
     used = table[table["drop_reason"].eq("")]
     assert not used["acceptor_lumo_ev"].le(-4.25).any()
 
@@ -294,7 +297,7 @@ def test_fill_factor_per_class_reaches_every_path():
     np.testing.assert_allclose(s["pce_mean_pct"], out["pce_pct"], rtol=1e-9)
     fixed = DeviceModel(parameters=p, absorber="both", ff=0.6).evaluate(*levels, acceptor_class=classes)
     assert fixed["ff"].tolist() == [0.6, 0.6, 0.6]
-    with pytest.raises(Exception, match="ff_by_class"):
+    with pytest.raises(ConfigError, match="ff_by_class"):
         FittedParameters(loss_ev={"pooled": 0.5}, eqe_max=0.7, offset_scale_ev=0.05, ff=0.65,
                          ff_by_class={"fullerene": 1.4})
     from screen.report.header import _device_items
@@ -398,6 +401,6 @@ def test_fullerene_absorber_round_trips_through_the_parameter_file(tmp_path):
         path.write_text(json.dumps({**data, "parameters": params}))
         p = load_fitted(str(path))
         assert p.fullerene_absorbs is expected and p.as_dict()["fullerene_absorbs"] is expected
-    with pytest.raises(Exception, match="fullerene_absorbs"):
+    with pytest.raises(ConfigError, match="fullerene_absorbs"):
         FittedParameters(loss_ev={"pooled": 0.5}, eqe_max=0.7, offset_scale_ev=0.05, ff=0.65,
                          fullerene_absorbs="no")

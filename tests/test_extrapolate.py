@@ -58,9 +58,9 @@ def test_inverse_fit_is_a_bound_not_a_choice():
     inv, _ = inverse_fit(n, e)
     assert inv == pytest.approx(2.0, abs=1e-9)
     fit = extrapolate(n, e, per_unit=2)
-    assert fit.method in ("kuhn", "exponential", "longest")
-    if fit.quality == "good":
-        assert inv - 1e-4 <= fit.limit_ev <= e[-1] + 1e-4  # never beyond the 1/n limit
+    assert fit.method in ("kuhn", "exponential", "longest") and fit.candidates["inverse"] == pytest.approx(inv)
+    # never beyond the 1/n limit, whatever the label (before, checked only for a "good" fit)
+    assert inv - 1e-4 <= fit.limit_ev <= e[-1] + 1e-4
 
 
 def test_short_or_broken_series_are_poor():
@@ -189,6 +189,8 @@ def test_a_limit_that_stops_short_of_the_series_own_steps_is_poor():
 
 @pytest.mark.parametrize("series", [[3.0, 2.6, 2.45, 2.42], [4.0, 3.5, 3.3, 3.25, 3.24]])
 def test_a_series_whose_steps_collapse_is_not_called_short(series):
-    # the steps shrink four- to five-fold per oligomer: their geometric continuation adds < 0.025 eV
+    # the steps shrink four- to five-fold per oligomer: their geometric continuation adds < 0.025 eV, so no
+    # short_reason (nor any other): a saturated series keeps its fit, the label good
     fit = extrapolate(np.arange(1, len(series) + 1), series)
     assert "continued geometrically the steps go" not in fit.reason
+    assert (fit.quality, fit.reason) == ("good", "") and fit.method not in ("longest", "inverse")

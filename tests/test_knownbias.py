@@ -38,6 +38,16 @@ def test_the_flag_states_what_every_shipped_calibration_does_to_them(extra):
     assert all(HOMO_DEEPEST_EV <= round(v, 2) < 0 for v in homos), homos
 
 
+def test_the_flag_text_states_the_figures_checked_above():
+    # the figures of this file are the flag's own words (the check value: what the residuals above must show)
+    from screen.flags import FLAGS
+
+    flag = FLAGS["known_family_bias"]
+    assert flag.severity == "info"
+    assert f"{GAP_RANGE_EV[0]:.2f}–{GAP_RANGE_EV[1]:.2f} eV too wide" in flag.text, flag.text
+    assert f"up to {-HOMO_DEEPEST_EV:.2f} eV too deep" in flag.text, flag.text
+
+
 def test_levels_carry_the_family_and_the_ranking_flags_it(cfg):
     import pandas as pd
 

@@ -150,7 +150,8 @@ def test_a_polymer_with_its_real_side_chains_gets_the_reference_polymers_oligome
     # a polymer audit: PM6 entered with its 2-ethylhexyl chains was cut to 2-methylpropyl stubs (the molecules'
     # rule), a structure the calibration never saw (its reference polymers are written with methyl stubs,
     # models/reference/levels_film.csv), and its series stopped at the dimer within polymer.max_atoms; the
-    # HOMO came out -5.68 eV against -5.49 eV published (from memory) and PM6:Y6 was called not viable
+    # HOMO came out -5.68 eV against -5.49 eV published (levels_film.csv PM6 row: Zhang et al., Adv. Mater. 27 (2015)
+    # 4655, doi:10.1002/adma.201502110, value read in the OPV2D data set) and PM6:Y6 was called not viable
     from screen.prepare.polymers import oligomer_table
 
     film = pd.read_csv("models/reference/levels_film.csv")

@@ -514,7 +514,9 @@ def test_run_rank_makes_no_engine_call(cv_file, tmp_path, monkeypatch):
         raise AssertionError("re-ranking called the xTB engine")
 
     monkeypatch.setattr(engines.Engine, "singlepoint", forbidden)
-    run_rank(cv_file, "itic", tmp_path, {"rank": {"role": "donor"}}, report=False)
+    path = run_rank(cv_file, "itic", tmp_path, {"rank": {"role": "donor"}}, report=False)
+    # the re-ranking did its work (every row of the levels file ranked), without the engine
+    assert pd.read_csv(path)["id"].nunique() == 3
 
 
 def test_cli_rank_does_not_import_the_engine(cv_file, tmp_path):

@@ -94,7 +94,8 @@ def as_float(text: str, where: str) -> float:
 
 
 GAS_SETS = {
-    # file: (allowed kinds, allowed phases, value range [eV], minimum rows)
+    # file: (allowed kinds, allowed phases, value range [eV], minimum rows); the ranges are plausibility windows for
+    # organic molecules (common practice), not published values; the minimum rows are the project's own floors
     IP: ({"vertical", "adiabatic"}, {"gas"}, (5.0, 11.0), 35),
     EA: ({"vertical", "adiabatic"}, {"gas"}, (-2.0, 3.5), 22),
     GAP: ({"onset", "maximum", "0-0"}, {"gas", "solution", "film"}, (1.0, 6.0), 22),
@@ -143,6 +144,7 @@ def test_acene_trends_are_monotonic() -> None:
 
 
 def check_levels(homo: float, lumo: float, where: str) -> None:
+    # plausibility windows of film (CV-scale, Fc = -4.8 to -5.1 eV) frontier levels of OPV materials, common practice
     assert -7.0 <= homo <= -4.5, f"{where}: HOMO {homo} outside [-7, -4.5]"
     assert -4.5 <= lumo <= -2.5, f"{where}: LUMO {lumo} outside [-4.5, -2.5]"
     assert lumo > homo, f"{where}: LUMO {lumo} not above HOMO {homo}"

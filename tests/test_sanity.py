@@ -131,7 +131,8 @@ def test_near_zero_orbital_gap_fails_the_row(monkeypatch):
 
 def test_a_stretched_bond_to_a_heavy_atom_is_caught():
     # a referee's audit: thiophene with its C-S bond at 2.2 A (normal 1.71-1.72 A, CRC Handbook bond lengths, from
-    # memory) passed the 1.3 x sum-of-radii limit (2.35 A for C-S, Cordero et al. 2008 radii 0.76 + 1.05 A) and got
+    # memory) passed the 1.3 x sum-of-radii limit (2.35 A for C-S, covalent radii C(sp3) 0.76 + S 1.05 A of Cordero
+    # et al., Dalton Trans. (2008) 2832, doi:10.1039/B801115J, the reference of screen/sanity.py) and got
     # an EA 1.0 eV too high; the limit is now the sum of radii + 0.35 A where that is tighter
     mol = Chem.AddHs(Chem.MolFromSmiles("c1ccsc1"))
     AllChem.EmbedMolecule(mol, randomSeed=7)
