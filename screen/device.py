@@ -116,6 +116,7 @@ __all__ = [
     "MODELS",
     "ABSORBERS",
     "SCHARBER_PARAMETERS",
+    "homo_threshold_problem",
     # re-exported from screen.spectrum
     "SPECTRUM_STANDARD",
     "SPECTRUM_COLUMN",
@@ -148,6 +149,30 @@ def _config_error(field: str, value, allowed: str) -> ConfigError:
     return ConfigError(f"DeviceModel.{field} = {value!r} is not allowed; allowed: {allowed}")
 
 
+def homo_threshold_problem(absorber, min_delta_homo_ev) -> str:
+    """Why ``device.min_delta_homo_ev`` cannot be set with this ``device.absorber`` ('' if it can).
+
+    With ``absorber='donor'`` (the published donor-only model of Scharber et al. 2006) only the donor absorbs
+    and only the LUMO offset is held to a threshold; ΔHOMO must still be > 0 (type II). A HOMO threshold there
+    was dropped without a word (the console said ``set device.min_delta_homo_ev=none`` and a pair with
+    ΔHOMO = 1e-9 eV passed), so the combination is refused; applying it would make a model that is not the
+    published one.
+
+    Examples
+    --------
+    >>> homo_threshold_problem("both", 0.3), homo_threshold_problem("donor", None)
+    ('', '')
+    >>> homo_threshold_problem("donor", 0.3)[:72]
+    'device.min_delta_homo_ev = 0.3 does not apply with device.absorber=donor'
+    """
+    if absorber != "donor" or min_delta_homo_ev is None:
+        return ""
+    return (f"device.min_delta_homo_ev = {min_delta_homo_ev:g} does not apply with device.absorber=donor: the "
+            "published donor-only model (Scharber et al. 2006) lets only the donor absorb and holds only the LUMO "
+            "offset to a threshold (ΔHOMO must still be > 0); leave device.min_delta_homo_ev unset (null), or set "
+            "device.absorber=both to hold ΔHOMO to it")
+
+
 @dataclass(frozen=True)
 class DeviceModel:
     """Device model: the fitted energy-loss model or the published Scharber rule.
@@ -174,6 +199,8 @@ class DeviceModel:
     min_delta_lumo_ev, min_delta_homo_ev : float or None
         Override the smallest offsets that allow charge separation (Scharber:
         0.3 eV; fitted: 0, type II, the yield doing the rest). [eV]
+        ``min_delta_homo_ev`` must stay None with ``absorber='donor'``
+        (:func:`homo_threshold_problem`).
     pin_w_m2 : float or None
         Incident power; None uses the spectrum's integral. [W m⁻²] Not a config key.
     parameters : FittedParameters or None
@@ -232,6 +259,9 @@ class DeviceModel:
                 raise _config_error(name, val, f"null or {name} >= 0")
         if self.pin_w_m2 is not None and self.pin_w_m2 <= 0:
             raise _config_error("pin_w_m2", self.pin_w_m2, "None or a positive number [W m-2]")
+        problem = homo_threshold_problem(self.absorber, self.min_delta_homo_ev)
+        if problem:
+            raise ConfigError(problem)
         if self.model == "fitted" and self.parameters is None:
             object.__setattr__(self, "parameters", load_fitted())
 
@@ -454,7 +484,7 @@ class DeviceModel:
     def _donor_absorber_view(self) -> "DeviceModel":
         """The same model with ``absorber='donor'``: its Jsc and absorber gap are those of a pair whose acceptor
         does not count as an absorber (E_CT and the Voc caps use the smaller gap of the pair in both)."""
-        return dataclasses.replace(self, absorber="donor")
+        return dataclasses.replace(self, absorber="donor", min_delta_homo_ev=None)  # the both-absorb view held ΔHOMO
 
     def absorber_gap_ev(self, donor_gap, acceptor_gap, acceptor_class=None):
         """Gap that sets Jsc and the detailed-balance PCE cap: the donor's, or the smaller of the pair for

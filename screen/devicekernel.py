@@ -32,9 +32,9 @@ import numpy as np
 
 from screen.devicepars import slope_loss
 from screen.spectrum import as_output, jsc_ma_cm2, sq_voc_v
-from screen.viability import GAP_MAX_EV, OFFSET_TOL_EV
+from screen.viability import GAP_MAX_EV, OFFSET_TOL_EV, gap_valid, offset_clears
 
-__all__ = ["PairTerms", "pair_terms", "pce_samples", "generation_yield", "voc_v"]
+__all__ = ["PairTerms", "pair_terms", "pce_samples", "generation_yield", "voc_v", "offset_clears", "gap_valid"]
 
 
 def generation_yield(delta, scale: float):
@@ -201,7 +201,8 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     -----
     Same formula as :func:`pair_terms` and the same rules as
     :func:`screen.viability.classify` (type II with ΔHOMO unchecked when NaN,
-    offsets at their thresholds, a gap inside the spectrum, Voc > 0), written
+    offsets at their thresholds: :func:`offset_clears`; an absorber gap inside
+    the spectrum: :func:`gap_valid`; Voc > 0), written
     with in-place operations for the sampler.  Voc is capped at the
     detailed-balance Voc of the smallest gap of the pair (:func:`voc_limit`);
     a sample whose efficiency is not a number (a level the model needs is
@@ -211,19 +212,18 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap = (np.asarray(x, dtype=float) for x in levels)
     shape = np.broadcast_shapes(*(x.shape for x in (d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap)),
                                 np.shape(loss_ev))
-    thr_l = max(model.value("min_delta_lumo_ev") - OFFSET_TOL_EV, OFFSET_TOL_EV)
-    thr_h = max(model.value("min_delta_homo_ev") - OFFSET_TOL_EV, OFFSET_TOL_EV) if model.check_homo_offset \
-        else OFFSET_TOL_EV
+    min_l = model.value("min_delta_lumo_ev")
+    min_h = model.value("min_delta_homo_ev") if model.check_homo_offset else 0.0  # type II is always required
     both = model.absorber == "both"
     dl = np.subtract(d_lumo, a_lumo, out=np.empty(shape))
-    ok = dl >= thr_l
+    ok = offset_clears(dl, min_l)
     dh = None
     if both or not np.all(np.isnan(a_homo)):
         dh = np.subtract(d_homo, a_homo, out=np.empty(shape))
-        with np.errstate(invalid="ignore"):
-            ok &= ~(dh < thr_h)
+        ok &= offset_clears(dh, min_h) | np.isnan(dh)  # an unknown acceptor HOMO is not checked (classify)
     cap = np.fmin(_positive(d_gap), _positive(a_gap), out=np.empty(shape))  # smallest valid gap of the pair
     g_lo = np.broadcast_to(np.minimum(d_gap, a_gap) if both else d_gap, shape)  # absorber gap (may be invalid)
+    ok &= gap_valid(g_lo)  # a gap sampled at or below 0 or beyond the spectrum absorbs nothing (classify)
     voc = np.subtract(a_lumo, d_homo, out=np.empty(shape))  # interface gap
     slope, ref, lo, hi = (0.0, 0.0, -np.inf, np.inf)
     if np.isnan(voc).any():  # a missing HOMO_D or LUMO_A: not viable (fmin below would hide it)

@@ -27,11 +27,12 @@ from pathlib import Path
 
 import numpy as np
 
-from screen.errors import ConfigError
+from screen.errors import ConfigError, InputError
 
 __all__ = ["FittedParameters", "slope_loss", "FITTED_PATH", "VALIDATION_PATH", "load_fitted", "device_tests", "POOLED",
            "voc_unranked_classes", "UNRANKED_SPEARMAN",
-           "NON_FULLERENE", "FULLERENE", "family_of", "class_values"]
+           "NON_FULLERENE", "FULLERENE", "family_of", "class_values", "ACCEPTOR_CLASSES", "acceptor_class_key",
+           "ACCEPTOR_CLASSES_TEXT"]
 
 #: the fitted default device model shipped with the repository
 FITTED_PATH = Path(__file__).resolve().parent.parent / "models" / "device" / "fitted.json"
@@ -41,6 +42,48 @@ POOLED = "pooled"
 NON_FULLERENE = "non-fullerene"
 #: the fullerene acceptor class (:func:`screen.viability.acceptor_class_of`), also a family of its own
 FULLERENE = "fullerene"
+#: the acceptor classes: those :func:`screen.viability.acceptor_class_of` gives and the device set
+#: (``models/reference/devices.csv``) is labelled with; '' is unknown (the pooled values)
+ACCEPTOR_CLASSES = (FULLERENE, "nfa-fused", "nfa-other", "polymer")
+#: the classes in words, for messages
+ACCEPTOR_CLASSES_TEXT = (", ".join(ACCEPTOR_CLASSES) + " (case, blanks and '_' for '-' do not matter) or empty "
+                         "(unknown: the class of the SMILES where there is one, else the pooled values)")
+
+
+@lru_cache(maxsize=64)
+def _class_key(text: str) -> str | None:
+    key = "-".join(text.strip().lower().replace("_", "-").split())
+    if key in ("", "nan", "none", "<na>"):
+        return ""
+    return key if key in ACCEPTOR_CLASSES else None
+
+
+def acceptor_class_key(value) -> str:
+    """The acceptor class a given value names: one of :data:`ACCEPTOR_CLASSES`, or '' (None, NaN, empty).
+
+    Case, surrounding blanks and ``_`` for ``-`` do not matter: ``'Fullerene'`` and ``'nfa_other'`` took the
+    non-fullerene loss and fill factor without a word (an adversarial review).
+
+    Raises
+    ------
+    screen.errors.InputError
+        Any other value, naming it and the allowed classes.
+
+    Examples
+    --------
+    >>> acceptor_class_key("Fullerene"), acceptor_class_key(" nfa_other "), acceptor_class_key(None)
+    ('fullerene', 'nfa-other', '')
+    >>> acceptor_class_key("banana")
+    Traceback (most recent call last):
+    ...
+    screen.errors.InputError: acceptor class 'banana' is not known; allowed: fullerene, nfa-fused, nfa-other, polymer (case, blanks and '_' for '-' do not matter) or empty (unknown: the class of the SMILES where there is one, else the pooled values)
+    """
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return ""
+    key = _class_key(str(value))
+    if key is None:
+        raise InputError(f"acceptor class {str(value)!r} is not known; allowed: {ACCEPTOR_CLASSES_TEXT}")
+    return key
 
 
 @dataclass(frozen=True)
@@ -139,12 +182,18 @@ class FittedParameters:
                                   "need 0 < ff <= 1")
 
     def _classes(self, acceptor_class) -> np.ndarray:
-        """Classes as a str array; None and NaN become '' (unknown)."""
+        """Classes as a str array of :data:`ACCEPTOR_CLASSES` (:func:`acceptor_class_key`: case and ``_`` for
+        ``-`` do not matter); None and NaN become '' (unknown).
+
+        Raises
+        ------
+        screen.errors.InputError
+            A class that is not one of :data:`ACCEPTOR_CLASSES` (it took the pooled values without a word).
+        """
         if acceptor_class is None:
             return np.array("", dtype=object)
         classes = np.asarray(acceptor_class, dtype=object)
-        return np.vectorize(lambda c: "" if c is None or str(c) in ("nan", "None") else str(c),
-                            otypes=[object])(classes) if classes.size else classes
+        return np.vectorize(acceptor_class_key, otypes=[object])(classes) if classes.size else classes
 
     def loss_for(self, acceptor_class) -> np.ndarray:
         """Energy loss per element of ``acceptor_class``: its own value, else its family's, else pooled. [eV]"""

@@ -110,6 +110,16 @@ _REGISTRY = (
     Flag("alignment_uncertain", "an offset to the partner lies so close to its threshold, for the levels' σ, that the "
                                 "verdict on the alignment has a one-in-four chance or more of being the other "
                                 "way (p_aligned between 0.25 and 0.75)", "info"),
+    Flag("estimate_on_edge", "the efficiency estimate sits on a steep edge of the model: at the estimated levels "
+                             "it lies outside the middle 90 % (5th–95th percentile) of the efficiencies of the "
+                             "Monte-Carlo samples that stay viable (by more than a quarter of their σ), so a small "
+                             "change of a level moves it a lot and the samples mostly land elsewhere (e.g. a HOMO or "
+                             "LUMO offset of a few meV, where the charge-generation yield drops to zero); the ± and "
+                             "P(PCE > target) describe those samples, not a spread around this estimate", "info"),
+    Flag("few_viable_samples", "fewer than two of the Monte-Carlo samples of the levels' σ stay viable: the pair "
+                               "works at its estimated levels but almost nowhere around them, so the spread of its "
+                               "efficiency is not known (pce_sigma_pct left empty, not 0); P(PCE > target) and "
+                               "p_aligned say how rarely it works", "info"),
     Flag("same_structure", "the same structure, in the same role, as an earlier row of the list (duplicate_of in "
                            "levels.csv names it): ranked like it, and kept out of the shortlist", "info"),
     Flag("same_computed_structure", "computed as the same structure as another row of the same role once long side "

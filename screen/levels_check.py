@@ -10,8 +10,13 @@ convention slip (an ionisation energy written as a positive HOMO, HOMO and LUMO
 swapped or equal, a gap in nm, a σ in meV): it stops the ranking with an :class:`InputError` (exit
 code 2) that names the file, the line, the column, the value and the fix.
 A levels file is also refused for a number that is not finite (``inf``), an
-empty or repeated id, a scale other than ``film`` or ``gas`` and a role other
-than ``donor``, ``acceptor`` or empty.
+empty or repeated id, a scale other than ``film`` or ``gas``, an acceptor class
+that is none of the device model's classes and a role other than ``donor``,
+``acceptor`` or empty.  Rows of a run's own levels (a raw ``xtb_ip_ev`` value)
+are held to the checks that protect the numbers (ids, finite numbers, scale,
+acceptor class, a σ that is ≥ 0 and not in meV); what a calibration may give
+for a molecule outside its domain (levels that fail the checks above, a σ above
+1 eV) is a not-viable row of the ranking instead (:func:`check_levels`).
 
 On the ``gas`` scale a positive LUMO is allowed (an unbound anion, EA < 0).
 
@@ -34,7 +39,8 @@ import pandas as pd
 
 from screen.errors import InputError
 
-__all__ = ["check_levels", "check_partner", "row_problems", "inconsistent_rows", "quoted", "GAP_EXCESS_TOL_EV",
+__all__ = ["check_levels", "check_partner", "row_problems", "sigma_problem", "inconsistent_rows", "quoted",
+           "GAP_EXCESS_TOL_EV",
            "GAP_DEFICIT_MAX_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV", "QUOTE_MAX", "SIGMA_MAX_EV"]
 
 #: how much the optical gap may exceed LUMO − HOMO (CV and absorption onsets scatter by ~0.1–0.3 eV;
@@ -144,16 +150,41 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
                                                "more than an exciton binding energy in a film; check the gap "
                                                "(absorption onset in eV) or the levels"))
     for col, val in (sigmas or {}).items():
-        if math.isnan(val):
-            continue
-        if not math.isfinite(val) or val < 0:
-            out.append((col, val, "an uncertainty must be a finite number >= 0 (empty = 0)"))
-        elif val > SIGMA_MAX_EV:
-            hint = (f"{val:g} looks like millielectronvolts: write {val / 1000:.3g} eV" if val >= _SIGMA_MEV_FROM
-                    else "give the one-sigma uncertainty in eV, e.g. 0.1")
-            out.append((col, val, f"an uncertainty must lie in 0-{SIGMA_MAX_EV:g} eV (measured values carry about "
-                                  f"0.01-0.1 eV); {hint}"))
+        problem = sigma_problem(val)
+        if problem:
+            out.append((col, val, problem))
     return out
+
+
+def sigma_problem(val: float, computed: bool = False) -> str:
+    """Why a one-σ uncertainty [eV] cannot be used ('' if it can; NaN is empty = 0).
+
+    A typed σ lies in 0–:data:`SIGMA_MAX_EV`. A run's own σ (``computed``) may exceed that far from the
+    calibration's reference rows (the gas-scale EA model's σ is about 1.07 eV at zero similarity), so only a
+    negative or non-finite one and one from :data:`_SIGMA_MEV_FROM` up (no calibration gives 10 eV; a σ in meV
+    does) are refused there.
+
+    Examples
+    --------
+    >>> sigma_problem(0.1), sigma_problem(1.07, computed=True), sigma_problem(float("nan"))
+    ('', '', '')
+    >>> sigma_problem(1.07)
+    'an uncertainty must lie in 0-1 eV (measured values carry about 0.01-0.1 eV); give the one-sigma uncertainty in eV, e.g. 0.1'
+    >>> print(sigma_problem(50.0, computed=True))
+    a σ of 50 eV is no calibration's (a run's own σ stays below 10 eV); 50 looks like millielectronvolts: write 0.05 eV
+    """
+    if math.isnan(val):
+        return ""
+    if not math.isfinite(val) or val < 0:
+        return "an uncertainty must be a finite number >= 0 (empty = 0)"
+    mev = f"{val:g} looks like millielectronvolts: write {val / 1000:.3g} eV"
+    if computed:
+        return (f"a σ of {val:g} eV is no calibration's (a run's own σ stays below {_SIGMA_MEV_FROM:g} eV); {mev}"
+                if val >= _SIGMA_MEV_FROM else "")
+    if val > SIGMA_MAX_EV:
+        hint = mev if val >= _SIGMA_MEV_FROM else "give the one-sigma uncertainty in eV, e.g. 0.1"
+        return f"an uncertainty must lie in 0-{SIGMA_MAX_EV:g} eV (measured values carry about 0.01-0.1 eV); {hint}"
+    return ""
 
 
 def _number(frame: pd.DataFrame, col: str, source: str, ids, finite: bool = False) -> np.ndarray:
@@ -174,8 +205,9 @@ def _number(frame: pd.DataFrame, col: str, source: str, ids, finite: bool = Fals
     return num.to_numpy(dtype=float)
 
 
-def _text_problems(frame: pd.DataFrame, ids) -> list:
-    """``(row, column, value, message)`` of the text columns: empty or repeated ids, scales, roles."""
+def _text_problems(frame: pd.DataFrame, ids, computed) -> list:
+    """``(row, column, value, message)`` of the text columns: empty or repeated ids, scales, acceptor classes and,
+    on a user's rows (not ``computed``), roles."""
     out = []
     first: dict[str, int] = {}
     for i, ident in enumerate(ids if "id" in frame else []):
@@ -191,8 +223,18 @@ def _text_problems(frame: pd.DataFrame, ids) -> list:
         for i, value in enumerate(frame["scale"].fillna("").astype(str)):
             if value.strip().lower() not in _SCALES:
                 out.append((i, "scale", value, "allowed: film or gas (CV levels are film)"))
+    if "acceptor_class" in frame:
+        from screen.devicepars import ACCEPTOR_CLASSES_TEXT, acceptor_class_key
+
+        for i, value in enumerate(frame["acceptor_class"].fillna("").astype(str)):
+            try:
+                acceptor_class_key(value)
+            except InputError:
+                out.append((i, "acceptor_class", value, f"allowed: {ACCEPTOR_CLASSES_TEXT}"))
     if "role" in frame:
         for i, value in enumerate(frame["role"].fillna("").astype(str)):
+            if computed[i]:  # a run's own row: a dye of a mixed batch, or a role the ranking flags (role_invalid)
+                continue
             role = value.strip().lower()
             if role == "dye":
                 out.append((i, "role", value, "a sensitiser dye is screened with `dascreen dyecell`; the "
@@ -209,7 +251,7 @@ def _line(frame: pd.DataFrame, i: int) -> int:
     return int(idx) + 2 if isinstance(idx, (int, np.integer)) else i + 2
 
 
-def check_levels(frame: pd.DataFrame, source: str = "levels table") -> None:
+def check_levels(frame: pd.DataFrame, source: str = "levels table", computed=None) -> None:
     """Refuse a levels table with impossible levels (see the module docstring).
 
     Parameters
@@ -218,22 +260,48 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table") -> None:
         The rows to be ranked (their index = row number in the file, as read).
     source : str
         File name for the message.
+    computed : array_like of bool, optional
+        Rows of a run's own levels (a raw ``xtb_ip_ev`` value; default none). Every row is refused for what
+        would corrupt its numbers: an empty or repeated id, a number that is not finite, a scale other than film
+        or gas, an acceptor class that is none of the classes, a negative σ or one in meV. A run's own row may
+        hold what the calibration legitimately gives: levels outside its domain (the ranking marks the row
+        ``levels_inconsistent``, not viable, instead of refusing the run's output), a σ above
+        :data:`SIGMA_MAX_EV` (:func:`sigma_problem`), a role ``dye`` of a mixed batch (or another role the
+        ranking flags ``role_invalid``).
 
     Raises
     ------
     InputError
         Naming the file, line, id, column, value and the fix; the number of
         problems and the first five of them in one message.
+
+    Examples
+    --------
+    >>> lv = pd.DataFrame({"id": ["a", "a"], "homo_ev": [-5.4, -6.2], "lumo_ev": [-3.6, -1.8],
+    ...                    "gap_opt_ev": [1.6, 4.9], "scale": "film", "homo_sigma_ev": [0.1, 50.0]})
+    >>> check_levels(lv, "levels.csv", computed=[True, True])
+    Traceback (most recent call last):
+    ...
+    screen.errors.InputError: levels.csv: 2 problems:
+      line 3, column id = 'a': the same id as line 2; give every row its own id (it names the row in the ranking)
+      line 3 (id 'a'), column homo_sigma_ev = 50: a σ of 50 eV is no calibration's (a run's own σ stays below 10 eV); 50 looks like millielectronvolts: write 0.05 eV
     """
     ids = (frame["id"].fillna("").astype(str).to_numpy() if "id" in frame
            else np.array([str(i) for i in range(len(frame))]))
+    computed = (np.zeros(len(frame), dtype=bool) if computed is None
+                else np.broadcast_to(np.asarray(computed, dtype=bool), (len(frame),)))
     homo, lumo, gap = (_number(frame, c, source, ids, finite=True) for c in ("homo_ev", "lumo_ev", "gap_opt_ev"))
     sig = {c: _number(frame, c, source, ids) for c in _SIGMAS if c in frame}
     scale = frame["scale"].astype(str).to_numpy() if "scale" in frame else np.full(len(frame), "film")
     found = [(i, f"line {_line(frame, i)}" + (f" (id {quoted(ids[i])})" if col != "id" else "") + f", column {col} "
-                 f"= {quoted(value)}: {msg}") for i, col, value, msg in _text_problems(frame, ids)]
+                 f"= {quoted(value)}: {msg}") for i, col, value, msg in _text_problems(frame, ids, computed)]
     for i in range(len(frame)):
-        for col, val, msg in row_problems(homo[i], lumo[i], gap[i], scale[i], {c: s[i] for c, s in sig.items()}):
+        if computed[i]:  # levels outside the calibration's domain: the ranking's flag levels_inconsistent
+            problems = [(c, s[i], sigma_problem(s[i], computed=True)) for c, s in sig.items()]
+            problems = [p for p in problems if p[2]]
+        else:
+            problems = row_problems(homo[i], lumo[i], gap[i], scale[i], {c: s[i] for c, s in sig.items()})
+        for col, val, msg in problems:
             found.append((i, f"line {_line(frame, i)} (id {quoted(ids[i])}), column {col} = {val:g}: {msg}"))
     problems = [text for _, text in sorted(found, key=lambda p: p[0])]
     if problems:

@@ -314,6 +314,7 @@ def check_sets(items) -> dict:
     schema = _schema()
     fields = [f.path for f in schema_fields(schema)]
     out: dict = {}
+    given: dict = {}
     for item in items or []:
         if "=" not in item:
             raise ConfigError(f"--set {item!r}: expected SECTION.KEY=VALUE, e.g. --set device.eqe=0.7")
@@ -338,7 +339,23 @@ def check_sets(items) -> dict:
         for part in parts[:-1]:
             target = target.setdefault(part, {})
         target[parts[-1]] = value
+        given[path] = item
+    _check_set_combinations(out, given)
     return out
+
+
+def _check_set_combinations(sets: dict, given: dict) -> None:
+    """Refuse ``--set`` items that each pass the schema but not together (``given``: the item of each path).
+
+    Today: a HOMO threshold with the donor-only model (:func:`screen.device.homo_threshold_problem`); a config
+    file's value is refused by the schema's rule on the ``device`` section."""
+    from screen.device import homo_threshold_problem
+
+    device = sets.get("device") or {}
+    problem = homo_threshold_problem(device.get("absorber"), device.get("min_delta_homo_ev"))
+    if problem:
+        items = [given[p] for p in ("device.min_delta_homo_ev", "device.absorber") if p in given]
+        raise ConfigError(f"--set {', '.join(items)}: {problem}")
 
 
 # --------------------------------------------------------------------------- inputs

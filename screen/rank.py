@@ -55,7 +55,7 @@ import pandas as pd
 
 from screen.columns import RANKING_COLUMNS, RANKING_EXTRA_COLUMNS, SIGMA_COLUMNS
 from screen.device import DeviceModel
-from screen.devicepars import voc_unranked_classes
+from screen.devicepars import acceptor_class_key, voc_unranked_classes
 from screen.errors import ConfigError, ScaleMismatchError
 from screen.flags import (
     DEVICE_FLAGS,
@@ -74,9 +74,9 @@ from screen.rank_rows import numeric as _numeric
 from screen.rank_rows import ranked_mask as _ranked_mask
 from screen.rank_rows import split_ranked as _split_ranked
 from screen.rank_rows import text as _text
-from screen.sampling import sample_pce
+from screen.sampling import MAX_N_SAMPLES, sample_pce
 from screen.schema import resolve, section_defaults
-from screen.viability import acceptor_class_of, role_from_levels
+from screen.viability import acceptor_class_of, offset_clears, role_from_levels
 
 __all__ = [
     "p_aligned", "ALIGNMENT_UNCERTAIN",
@@ -87,6 +87,7 @@ __all__ = [
     "RankOptions",
     "ScaleMismatchError",
     "check_scales",
+    "check_input_levels",
     "partner_role",
     "rank_candidates",
     "device_model",
@@ -121,7 +122,7 @@ class RankOptions:
     shortlist_size : int
         Passing rows written to ``shortlist.sdf``.
     n_samples : int
-        Monte-Carlo samples per candidate for σ propagation.
+        Monte-Carlo samples per candidate for σ propagation (2 to :data:`screen.sampling.MAX_N_SAMPLES`).
     seed : int
         Seed of the sampler (same input → same numbers).
     gap_min_ev, gap_max_ev : float
@@ -167,6 +168,10 @@ class RankOptions:
             raise ConfigError(f"rank.sort_by must be 'pce_pct' or 'p_above_target', not {self.sort_by!r}")
         if self.n_samples < 2:
             raise ConfigError(f"rank.n_samples must be at least 2, not {self.n_samples}")
+        if self.n_samples > MAX_N_SAMPLES:
+            raise ConfigError(f"rank.n_samples = {self.n_samples} is above its maximum {MAX_N_SAMPLES:,} (one "
+                              "candidate's samples are held in memory at once); the default 2000 gives P(PCE > "
+                              "target) to about ±0.01")
         if self.gap_min_ev > self.gap_max_ev:
             raise ConfigError(f"rank.gap_min_ev ({self.gap_min_ev}) is above rank.gap_max_ev ({self.gap_max_ev})")
 
@@ -316,14 +321,22 @@ class _Candidates:
 
 
 def _acceptor_classes(lv: pd.DataFrame, needed: np.ndarray) -> np.ndarray:
-    """The ``acceptor_class`` column where given, else the class of the SMILES ('' if unknown); only for the
-    ``needed`` rows (acceptor candidates), each distinct SMILES classified once."""
+    """The ``acceptor_class`` column where given (:func:`screen.devicepars.acceptor_class_key`: ``Fullerene`` and
+    ``nfa_other`` are ``fullerene`` and ``nfa-other``; another value was refused by :func:`check_input_levels`),
+    else the class of the SMILES ('' if unknown); only for the ``needed`` rows (acceptor candidates), each
+    distinct SMILES classified once.
+
+    Examples
+    --------
+    >>> _acceptor_classes(pd.DataFrame({"acceptor_class": ["Fullerene", "nfa_other", ""]}), np.ones(3, bool)).tolist()
+    ['fullerene', 'nfa-other', '']
+    """
     given = _text(lv, "acceptor_class")
     smiles = _text(lv, "smiles")
     out = np.full(len(lv), "", dtype=object)
     seen: dict = {}
     for i in np.flatnonzero(needed):
-        cls = given[i].strip()
+        cls = acceptor_class_key(given[i])
         if not cls:
             if smiles[i] not in seen:
                 seen[smiles[i]] = acceptor_class_of(smiles[i])
@@ -413,10 +426,22 @@ def _pair(cand: _Candidates, is_donor: np.ndarray, partner: Partner, partner_sig
                  (s_d_homo, s_d_lumo, s_d_gap, s_a_homo, s_a_lumo, s_a_gap), acc_class)
 
 
+#: the sampler's outputs the ranking keeps: the two columns and the central range of the viable samples
+_SPREAD_KEYS = ("pce_sigma_pct", "p_above_target", "pce_q05_pct", "pce_q95_pct")
+#: how far the point estimate may lie outside the viable samples' central range before ``estimate_on_edge``: a
+#: quarter of their σ, and at least 0.05 percentage points (half the one decimal the console and the report show).
+#: An estimate at a cap or plateau its samples share (the loss floor, the detailed-balance cap) lies a few
+#: hundredths above their 95th percentile (5 of 1722 viable random pairs of an adversarial review against y6, by
+#: 0.003–0.09 points): no edge. A yield cliff puts it about a σ away (ΔHOMO 0.003 eV against y6: 6.3 %, 2.0
+#: points or 1.1 σ below the 5th percentile, 8.3 %); 12 of those 1722 pairs, each with an offset below 0.014 eV
+_EDGE_TOL_SIGMA, _EDGE_TOL_PCT = 0.25, 0.05
+
+
 def _spread(model: DeviceModel, pair: _Pair, pair_ok: np.ndarray, options: RankOptions) -> dict:
-    """``pce_sigma_pct`` [%] and ``p_above_target`` of the viable rows (NaN elsewhere); each row's own σ."""
+    """``pce_sigma_pct`` [%], ``p_above_target`` and the 5th/95th percentiles of the viable samples
+    (``pce_q05_pct``, ``pce_q95_pct`` [%]) of the viable rows (NaN elsewhere); each row's own σ."""
     n = pair_ok.size
-    mc = {"pce_sigma_pct": np.full(n, np.nan), "p_above_target": np.full(n, np.nan)}
+    mc = {key: np.full(n, np.nan) for key in _SPREAD_KEYS}
     idx = np.flatnonzero(pair_ok)
     if idx.size:
         levels = [arr[idx] for arr in pair.levels]
@@ -427,9 +452,37 @@ def _spread(model: DeviceModel, pair: _Pair, pair_ok: np.ndarray, options: RankO
                        acceptor_lumo_sigma_ev=s_a_lumo, acceptor_gap_sigma_ev=s_a_gap,
                        n_samples=options.n_samples, seed=options.seed, target_pct=options.target_pce_pct,
                        acceptor_class=pair.acceptor_class[idx])
-        mc["pce_sigma_pct"][idx] = s["pce_sigma_pct"]
-        mc["p_above_target"][idx] = s["p_above_target"]
+        for key in _SPREAD_KEYS:
+            mc[key][idx] = s[key]
     return mc
+
+
+def _spread_masks(pce, spread: dict, sampled: np.ndarray) -> dict[str, np.ndarray]:
+    """The flags of the Monte-Carlo spread of the ``sampled`` rows (viable, paired):
+
+    - ``few_viable_samples``: fewer than two samples stay viable, so ``pce_sigma_pct`` is not known (left
+      empty; a row without σ has a true 0);
+    - ``estimate_on_edge``: the point estimate (at the estimated levels, unchanged) lies outside the 5–95 %
+      range of the viable samples' efficiencies (:data:`screen.sampling.CENTRAL_RANGE`) by more than a quarter
+      of their σ and 0.05 percentage points (:data:`_EDGE_TOL_SIGMA`, :data:`_EDGE_TOL_PCT`): it sits on a
+      steep edge of the model, and the ± and P(PCE > target) describe samples that mostly land elsewhere (the
+      review's case: ΔHOMO 0.003 eV on the fitted yield 1 − exp(−Δ/0.01 eV) gave "6.3 ± 1.8 %" beside
+      P(PCE > 10 %) = 49 %, the viable samples' mean 12.3 %).
+
+    Examples
+    --------
+    >>> m = _spread_masks(np.array([6.3, 13.3, 13.62, 9.0]), {"pce_sigma_pct": np.array([1.8, 1.4, 2.8, np.nan]),
+    ...                   "pce_q05_pct": np.array([9.6, 11.0, 4.8, np.nan]),
+    ...                   "pce_q95_pct": np.array([14.9, 15.4, 13.61, np.nan])}, np.ones(4, bool))
+    >>> m["estimate_on_edge"].tolist(), m["few_viable_samples"].tolist()
+    ([True, False, False, False], [False, False, False, True])
+    """
+    pce = np.asarray(pce, dtype=float)
+    tol = np.fmax(_EDGE_TOL_SIGMA * spread["pce_sigma_pct"], _EDGE_TOL_PCT)
+    with np.errstate(invalid="ignore"):
+        outside = (pce < spread["pce_q05_pct"] - tol) | (pce > spread["pce_q95_pct"] + tol)
+    return {"estimate_on_edge": sampled & outside,
+            "few_viable_samples": sampled & np.isnan(spread["pce_sigma_pct"])}
 
 
 #: ``p_aligned`` strictly between these: the verdict on the alignment has a one-in-four chance or more of being the
@@ -443,7 +496,9 @@ def p_aligned(pair_levels, pair_sigmas, min_lumo: float, min_homo: float, check_
 
     ΔLUMO = LUMO_D − LUMO_A must exceed ``min_lumo`` and ΔHOMO = HOMO_D − HOMO_A must exceed ``min_homo`` when
     the model checks it, else 0 (type II is always required); each offset's σ is the root sum of squares of its
-    two levels' σ. With σ = 0 the probability is 1 or 0. NaN where a level is missing.
+    two levels' σ. With σ = 0 the probability is 1 or 0, by the rule of the classification and the sampler
+    (:func:`screen.viability.offset_clears`: an offset within 1e-9 eV below its threshold meets it). NaN where
+    a level is missing.
 
     Parameters
     ----------
@@ -462,6 +517,9 @@ def p_aligned(pair_levels, pair_sigmas, min_lumo: float, min_homo: float, check_
     >>> s = ([0.2], [0.2], [0.1], [0.2], [0.2], [0.1])  # ΔHOMO 0.3, ΔLUMO 0.5 eV, each σ 0.28 eV: 0.855 × 0.961
     >>> round(float(p_aligned(lv, s, 0.0, 0.0, True)[0]), 2)
     0.82
+    >>> lv = ([-5.45], [-3.7], [1.5], [-5.9], [-4.0], [1.6])  # ΔLUMO 0.29999999999999982 eV meets 0.3 eV
+    >>> p_aligned(lv, ([0.0] * 6), 0.3, 0.3, True).tolist()
+    [1.0]
     """
     from scipy.special import ndtr
 
@@ -469,9 +527,10 @@ def p_aligned(pair_levels, pair_sigmas, min_lumo: float, min_homo: float, check_
     s_d_homo, s_d_lumo, _, s_a_homo, s_a_lumo, _ = (np.nan_to_num(np.asarray(v, dtype=float)) for v in pair_sigmas)
 
     def prob(delta, threshold, sigma):
+        # σ = 0: the verdict of the classification itself (offset_clears: type II, the threshold less 1e-9 eV)
         with np.errstate(divide="ignore", invalid="ignore"):
             z = np.where(sigma > 0, (delta - threshold) / np.where(sigma > 0, sigma, 1.0),
-                         np.where(delta > threshold, np.inf, -np.inf))
+                         np.where(offset_clears(delta, threshold), np.inf, -np.inf))
         return np.where(np.isnan(delta), np.nan, ndtr(z))
 
     p_lumo = prob(d_lumo - a_lumo, min_lumo, np.hypot(s_d_lumo, s_a_lumo))
@@ -510,7 +569,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "no_type_ii_role": roles.no_type_ii_role,
         "role_invalid": roles.role_invalid,
         "is_partner": is_partner,
-        "levels_inconsistent": (inconsistent_rows(lv) if _computed_by_dascreen(lv) else np.zeros(n, dtype=bool)),
+        "levels_inconsistent": inconsistent_rows(lv) & _computed_rows(lv),  # a user's row was refused before
         **device,
         "gap_out_of_window": gap_out,
         "too_many_heavy_atoms": heavy_out,
@@ -653,11 +712,13 @@ def _known_bias(levels: pd.DataFrame) -> np.ndarray:
     >>> _known_bias(lv.drop(columns="xtb_ip_ev")).tolist()
     ['', '']
     """
-    if "known_bias" in levels.columns or not _computed_by_dascreen(levels):
+    computed = _computed_rows(levels)
+    if "known_bias" in levels.columns or not computed.any():
         return _text(levels, "known_bias")
     from screen.knownbias import known_bias
 
-    return np.array([known_bias(s) if s else "" for s in _text(levels, "smiles")], dtype=object)
+    return np.array([known_bias(s) if s and c else "" for s, c in zip(_text(levels, "smiles"), computed)],
+                    dtype=object)
 
 
 def _count_text(levels: pd.DataFrame, col: str) -> np.ndarray:
@@ -671,9 +732,36 @@ def _count_text(levels: pd.DataFrame, col: str) -> np.ndarray:
     return np.array([count_text(v) for v in _numeric(levels, col)], dtype=object)
 
 
-def _computed_by_dascreen(levels: pd.DataFrame) -> bool:
-    """A run's own levels.csv (raw engine columns present): problems are row flags, not file errors."""
-    return "xtb_ip_ev" in levels.columns
+def _computed_rows(levels: pd.DataFrame) -> np.ndarray:
+    """Rows of a run's own levels: a raw ``xtb_ip_ev`` value (an empty column, or a user's row beside them, is not).
+
+    Examples
+    --------
+    >>> _computed_rows(pd.DataFrame({"xtb_ip_ev": [7.1, None, "x"]})).tolist(), _computed_rows(pd.DataFrame(
+    ...     {"id": ["a"]})).tolist()
+    ([True, False, False], [False])
+    """
+    with np.errstate(invalid="ignore"):
+        return np.isfinite(_numeric(levels, "xtb_ip_ev"))
+
+
+def check_input_levels(levels: pd.DataFrame) -> None:
+    """Refuse a levels table whose ranked rows would give numbers that cannot be right (exit code 2).
+
+    Every ranked row, whatever the file came from, is held to the checks that protect the numbers (a unique id,
+    finite levels, film or gas, a known acceptor class, a σ ≥ 0 and not in meV); a user's row also to
+    HOMO < LUMO < 0, a positive gap, 0 ≤ σ ≤ 1 eV and a known role; a run's own row (:func:`_computed_rows`)
+    turns those into the not-viable flag ``levels_inconsistent`` instead (a molecule outside what the calibration
+    covers: the run's own output is never refused for it), and may be a dye or have a σ above 1 eV
+    (:func:`screen.levels_check.check_levels`).
+
+    Raises
+    ------
+    InputError
+        Naming the file (``levels.attrs["source"]``), line, id, column, value and the fix.
+    """
+    ranked = _ranked_mask(levels)
+    check_levels(levels[ranked], str(levels.attrs.get("source", "levels table")), _computed_rows(levels)[ranked])
 
 
 def _viable(masks: dict[str, np.ndarray]) -> np.ndarray:
@@ -809,7 +897,8 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     PartnerError
         The partner's role is unknown and cannot be inferred.
     InputError
-        A σ column holds a negative or infinite value (a :class:`ValueError`).
+        A ranked row the ranking cannot use (:func:`check_input_levels`: a repeated id, a σ below 0, infinite or
+        in meV, an unknown acceptor class, and in a user's rows impossible levels; a :class:`ValueError`).
 
     Notes
     -----
@@ -853,8 +942,7 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     model = DeviceModel() if model is None else model
     options = RankOptions() if options is None else options
     lv, not_ranked = _split_ranked(levels_df)
-    if not _computed_by_dascreen(levels_df):  # a user's own file: refuse impossible levels (exit 2)
-        check_levels(levels_df[_ranked_mask(levels_df)], str(levels_df.attrs.get("source", "levels table")))
+    check_input_levels(levels_df)  # impossible levels, ids, σ, classes: refused before any work (exit 2)
     p_role, p_role_assumed = partner_role(lv, partner, options)
     attrs = {"partner_role": p_role, "partner_role_assumed": p_role_assumed, "not_ranked": not_ranked}
     if len(lv) == 0:
@@ -875,7 +963,9 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
                                 np.nan)
     unranked = voc_unranked_classes() if model.model == "fitted" else frozenset()
     masks = _flag_masks(lv, cand, roles, dev, partner, options, model.ff_follows_class, unranked)
-    spread = _spread(model, pair, roles.paired & _viable(masks), options)
+    sampled = roles.paired & _viable(masks)
+    spread = _spread(model, pair, sampled, options)
+    masks.update(_spread_masks(dev["pce_pct"], spread, sampled))  # info flags: viability and passes unchanged
     out = _sort_ranking(_ranking_frame(lv, cand, roles, partner, dev, spread, masks, model, options),
                         options.sort_by)
     out.attrs.update(attrs)

@@ -786,8 +786,8 @@ def check_before_computing(levels_path, partner_specs, config=None, *, out_dir=N
                            partner_levels: dict | None = None) -> None:
     """Refuse what the ranking would refuse, before a ``smiles:`` partner is computed or any ranking is written.
 
-    The levels file (no rows; a user's own file with impossible levels, ids, scales or roles:
-    :func:`screen.levels_check.check_levels`); for every ``smiles:`` partner not yet computed, whether the
+    The levels file (no rows; impossible levels, ids, σ, scales, acceptor classes or roles:
+    :func:`screen.rank.check_input_levels`); for every ``smiles:`` partner not yet computed, whether the
     candidates' roles or ``rank.role`` give it a role (it has none of its own) and whether ``config``'s
     protocol is the one the levels were computed with (their sidecar); every other partner (and a ``smiles:``
     partner whose levels file ``partner_levels`` names) is resolved and checked as :func:`run_rank` would:
@@ -802,14 +802,13 @@ def check_before_computing(levels_path, partner_specs, config=None, *, out_dir=N
     InputError, PartnerError, ScaleMismatchError, ConfigError
         As :func:`run_rank` would.
     """
-    from screen.levels_check import check_levels, check_partner
+    from screen.levels_check import check_partner
     from screen.partners import partner_kind
-    from screen.rank import _computed_by_dascreen, check_scales
-    from screen.rank_rows import ranked_mask, split_ranked
+    from screen.rank import check_input_levels, check_scales
+    from screen.rank_rows import split_ranked
 
     levels = read_ranked_levels(levels_path)
-    if not _computed_by_dascreen(levels):  # a user's own file: the checks of rank_candidates
-        check_levels(levels[ranked_mask(levels)], levels.attrs["source"])
+    check_input_levels(levels)  # the checks of rank_candidates, whatever the file came from
     cfg = Config.of(config)
     options = RankOptions.from_mapping(cfg["rank"])
     ranked, _ = split_ranked(levels)

@@ -2,16 +2,20 @@
 
 :func:`sample_pce` draws independent normal errors on the six pair levels
 (donor and acceptor HOMO, LUMO, optical gap) and returns, per pair, the mean and
-standard deviation of the sampled efficiency and the probability that it beats a
-target.  The sampler uses common random numbers: one table of standard normal
+standard deviation of the sampled efficiency, the probability that it beats a
+target and the 5th/95th percentiles of the samples that stay viable.  The
+sampler uses common random numbers: one table of standard normal
 deviates (fixed seed) is shared by every pair, so a pair's result does not
 depend on the other pairs, their order or the block size, and differences
 between pairs carry less sampling noise.
 
 The efficiency of every sample comes from the device model itself
-(:meth:`screen.device.DeviceModel.pce_from_levels`: classification, Voc and gap
-caps, detailed-balance cap), so the spread is that of the chosen model; a
-sample that is not viable counts as 0 %.  The work is cut into the steps of
+(:meth:`screen.device.DeviceModel.pce_from_levels`: classification by the
+rules of the point estimate — the offsets (:func:`screen.viability.offset_clears`)
+and an absorber gap inside the spectrum, 0 < E_g ≤ 4.428 eV
+(:func:`screen.viability.gap_valid`) —, Voc and gap caps, detailed-balance
+cap of each sample's own gap, exact below the tables' 0.25 eV), so the spread is
+that of the chosen model; a sample that is not viable counts as 0 %.  The work is cut into the steps of
 :func:`sample_pce`:
 
 1. :func:`_block_rows` — block size (pairs per block, cache-sized);
@@ -19,7 +23,7 @@ sample that is not viable counts as 0 %.  The work is cut into the steps of
 3. :func:`_anchors` — per pair, the exact efficiency at the mean levels minus the
    tabulated one (so that σ = 0 reproduces :meth:`DeviceModel.evaluate`);
 4. :func:`_pce_samples` — the efficiency samples of one block;
-5. :func:`_block_moments` — mean, σ and exceedance probability of one block.
+5. :func:`_block_moments` — mean, σ, exceedance probability and central range of one block.
 
 References
 ----------
@@ -38,12 +42,19 @@ import numpy as np
 from screen.device import DeviceModel
 from screen.spectrum import as_output, jsc_ma_cm2, sq_limit
 
-__all__ = ["sample_pce", "DEFAULT_SEED", "DEFAULT_N_SAMPLES"]
+__all__ = ["sample_pce", "DEFAULT_SEED", "DEFAULT_N_SAMPLES", "MAX_N_SAMPLES", "CENTRAL_RANGE"]
 
 #: default seed of the sampler (same input → same numbers)
 DEFAULT_SEED = 20240601
 #: default samples per pair
 DEFAULT_N_SAMPLES = 2000
+#: most samples per pair a ranking takes (schema ``rank.n_samples`` maximum): one pair's samples sit in memory at
+#: once, about ten float arrays of this length in the device kernel plus the 6-row deviate table (~130 MB at 1e6;
+#: 1e8 ended in a MemoryError), and 1e6 samples already put a probability within ±0.0005 (1σ), far inside the
+#: two decimals written and the level σ's own uncertainty
+MAX_N_SAMPLES = 1_000_000
+#: what :func:`sample_pce` returns, in the order of :func:`_block_moments`
+_OUTPUTS = ("pce_mean_pct", "pce_sigma_pct", "p_above_target", "pce_q05_pct", "pce_q95_pct")
 #: rows of the normal-deviate table: donor HOMO, donor LUMO, donor gap, acceptor HOMO, acceptor LUMO, acceptor gap
 _Z_ROWS = 6
 
@@ -88,16 +99,36 @@ def _jsc_table():
     return _tables()[0]
 
 
-def _lookup(table, gap_ev) -> np.ndarray:
-    """Linear interpolation of a ``(values, steps)`` table at ``gap_ev`` (clipped to the grid)."""
+def _lookup(table, gap_ev, exact=None) -> np.ndarray:
+    """Linear interpolation of a ``(values, steps)`` table at ``gap_ev`` (clipped to the grid); with ``exact``
+    (the function the table tabulates), the exact value at a positive gap below the grid.
+
+    Below :data:`_TABLE_E_MIN_EV` the detailed-balance efficiency and Voc fall to zero with the gap (0.13 % at
+    0.08 eV against 3.05 % at 0.25 eV), so clipping them there let a sampled narrow gap beat its own limit; such
+    samples are few, and their exact values cost little.
+    """
     tab, step = table
-    x = (np.asarray(gap_ev, dtype=float) - _TABLE_E_MIN_EV) * (1.0 / _TABLE_STEP_EV)
+    gap = np.asarray(gap_ev, dtype=float)
+    x = (gap - _TABLE_E_MIN_EV) * (1.0 / _TABLE_STEP_EV)
     np.clip(x, 0.0, tab.size - 1 - 1e-9, out=x)
     i = x.astype(np.intp)
     x -= i
     x *= step[i]
     x += tab[i]
+    if exact is not None:
+        with np.errstate(invalid="ignore"):
+            low = (gap > 0) & (gap < _TABLE_E_MIN_EV)
+        if low.any():
+            x[low] = exact(gap[low])
     return x
+
+
+def _sq_pct_exact(gap_ev):
+    return np.asarray(sq_limit(gap_ev)["pce_pct"], dtype=float)
+
+
+def _voc_exact(gap_ev):
+    return np.asarray(sq_limit(gap_ev)["voc_v"], dtype=float)
 
 
 def _jsc_lookup_unit_eqe(gap_ev: np.ndarray, ibuf=None, tmp=None) -> np.ndarray:
@@ -106,15 +137,19 @@ def _jsc_lookup_unit_eqe(gap_ev: np.ndarray, ibuf=None, tmp=None) -> np.ndarray:
 
 
 def _jsc_fast(gap_ev):
+    """Jsc at EQE = 1 [mA cm⁻²]; below the grid the table's first value is exact (the spectrum starts at
+    0.31 eV, so every gap below it absorbs every photon)."""
     return _lookup(_tables()[0], gap_ev)
 
 
 def _sq_fast(gap_ev):
-    return _lookup(_tables()[1], gap_ev)
+    """Detailed-balance efficiency [%]: the table, exact below its grid."""
+    return _lookup(_tables()[1], gap_ev, _sq_pct_exact)
 
 
 def _voc_fast(gap_ev):
-    return _lookup(_tables()[2], gap_ev)
+    """Detailed-balance Voc [V]: the table, exact below its grid."""
+    return _lookup(_tables()[2], gap_ev, _voc_exact)
 
 
 # --------------------------------------------------------------------------- #
@@ -189,7 +224,8 @@ def _sq_below_ev(model: DeviceModel) -> float:
     grid = _TABLE_E_MIN_EV + _TABLE_STEP_EV * np.arange(jt.size)
     bound = grid * model.value("eqe") * jt * model.pce_factor_pct(model.ff_max)
     binds = np.flatnonzero(bound > st * model.sq_scale * (1 - 1e-9) + 1e-12)
-    return float(grid[binds[-1]] + 2 * _TABLE_STEP_EV) if binds.size else 0.0
+    # below the grid the bound is not checked: the cap applies to every such gap
+    return max(float(grid[binds[-1]] + 2 * _TABLE_STEP_EV) if binds.size else 0.0, _TABLE_E_MIN_EV)
 
 
 def _pce_samples(model: DeviceModel, pair: _FlatPair, a: int, b: int, z, corr, sq_below=np.inf) -> np.ndarray:
@@ -213,24 +249,50 @@ def _pce_samples(model: DeviceModel, pair: _FlatPair, a: int, b: int, z, corr, s
     return v
 
 
+#: percentiles of the viable samples' efficiencies returned by :func:`sample_pce` (``pce_q05_pct``,
+#: ``pce_q95_pct``): their central 90 %, the range the ranking holds the point estimate to (flag
+#: ``estimate_on_edge``)
+CENTRAL_RANGE = (0.05, 0.95)
+
+
+def _viable_quantiles(v: np.ndarray, ok: np.ndarray, count: np.ndarray, qs=CENTRAL_RANGE) -> list:
+    """Per row, the quantiles ``qs`` of the viable samples (linear interpolation between order statistics, as
+    :func:`numpy.quantile`); NaN for a row with fewer than two viable samples."""
+    order = np.sort(np.where(ok, v, np.inf), axis=1)  # the viable samples first, ascending
+    rows = np.arange(v.shape[0])
+    last = np.maximum(count - 1, 0)
+    out = []
+    for q in qs:
+        pos = q * last
+        lo = np.floor(pos).astype(np.intp)
+        hi = np.minimum(lo + 1, last)
+        a, b = order[rows, lo], order[rows, hi]
+        with np.errstate(invalid="ignore"):
+            val = a + (b - a) * (pos - lo)
+        out.append(np.where(count >= 2, val, np.nan))
+    return out
+
+
 def _block_moments(v: np.ndarray, target: float, n_samples: int):
-    """``(mean, sigma, p_above)`` per row of a block of samples; ``v`` is overwritten.
+    """``(mean, sigma, p_above, q05, q95)`` per row of a block of samples; ``v`` is overwritten.
 
     ``mean`` is over all samples (a sample that is not viable counts 0 %); ``sigma`` is the spread of the
-    viable samples only (efficiency > 0; every viable sample has Voc, Jsc and FF > 0), ddof = 1, and 0 when
-    fewer than two are viable; ``p_above`` counts all samples.  Moments are taken about the row's mean, so
-    a constant row gives exactly 0.
+    viable samples only (efficiency > 0; every viable sample has Voc, Jsc and FF > 0), ddof = 1, and NaN (not
+    known, never 0) when fewer than two are viable; ``p_above`` counts all samples; ``q05``, ``q95`` are the
+    5th and 95th percentiles of the viable samples (:data:`CENTRAL_RANGE`; NaN with fewer than two).  Moments are
+    taken about the row's mean, so a constant row gives exactly 0.
     """
     p_above = np.count_nonzero(v > target, axis=1) / n_samples
     ok = v > 0.0
     count = np.count_nonzero(ok, axis=1)
+    q05, q95 = _viable_quantiles(v, ok, count)
     total = v.sum(axis=1)  # a sample that is not viable is exactly 0
     mean = total / n_samples
     v -= (total / np.maximum(count, 1))[:, None]
     v *= ok
     s2 = np.einsum("ij,ij->i", v, v)
-    sigma = np.where(count >= 2, np.sqrt(s2 / np.maximum(count - 1, 1)), 0.0)
-    return mean, sigma, p_above
+    sigma = np.where(count >= 2, np.sqrt(s2 / np.maximum(count - 1, 1)), np.nan)
+    return mean, sigma, p_above, q05, q95
 
 
 # --------------------------------------------------------------------------- #
@@ -293,8 +355,12 @@ def sample_pce(
 
         - ``pce_mean_pct`` : mean of the sampled efficiencies, a sample that is not viable counting 0 [%]
         - ``pce_sigma_pct`` : standard deviation (ddof=1) of the samples that stay viable -- the spread of
-          the estimate if the pair works; how likely it works is ``p_aligned`` of the ranking [%]
+          the estimate if the pair works; how likely it works is ``p_aligned`` of the ranking; NaN (not
+          known) when fewer than two samples stay viable, 0 when no σ is given (every sample is the
+          estimate) [%]
         - ``p_above_target`` : fraction of all samples with PCE > ``target_pct``
+        - ``pce_q05_pct``, ``pce_q95_pct`` : 5th and 95th percentiles of the samples that stay viable
+          (:data:`CENTRAL_RANGE`; NaN when fewer than two do) [%]
 
         NaN where an input level the model needs is NaN or the pair is not
         viable at its mean levels (no efficiency, so no spread either).
@@ -314,7 +380,8 @@ def sample_pce(
     therefore independent of the other candidates, their order and the chunk
     size, and differences between candidates carry less sampling noise.
     Samples use 0.25 meV-step tables of Jsc and of the detailed-balance
-    limit; each pair's samples are shifted by the exact-minus-tabulated
+    limit (exact values for a gap below the tables' 0.25 eV); each pair's
+    samples are shifted by the exact-minus-tabulated
     efficiency at its mean levels, so σ = 0 reproduces
     :meth:`DeviceModel.evaluate` to rounding error.
 
@@ -363,10 +430,11 @@ def sample_pce(
     target = float(target_pct)
 
     n = pair.loss.size
-    out_mean, out_sigma, out_p = np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan)
+    out = {key: np.full(n, np.nan) for key in _OUTPUTS}
     todo = viable & ~pair.missing
-    fixed = todo & ~np.any(np.vstack(pair.sigmas) > 0, axis=0)  # no uncertainty: nothing to sample
-    out_mean[fixed], out_sigma[fixed], out_p[fixed] = exact[fixed], 0.0, (exact[fixed] > target).astype(float)
+    fixed = todo & ~np.any(np.vstack(pair.sigmas) > 0, axis=0)  # no uncertainty: every sample is the estimate
+    for key, value in zip(_OUTPUTS, (exact, 0.0, (exact > target).astype(float), exact, exact)):
+        out[key][fixed] = np.broadcast_to(value, exact.shape)[fixed]
     idx = np.flatnonzero(todo & ~fixed)
     sq_below = _sq_below_ev(model)
     for start in range(0, idx.size, rows):
@@ -374,9 +442,6 @@ def sample_pce(
         sub = _FlatPair(tuple(x[sel] for x in pair.levels), tuple(x[sel] for x in pair.sigmas), pair.loss[sel],
                         pair.ff[sel], pair.missing[sel], pair.absorbs[sel])
         v = _pce_samples(model, sub, 0, sel.size, z, corr[sel], sq_below)
-        out_mean[sel], out_sigma[sel], out_p[sel] = _block_moments(v, target, n_samples)
-    return {
-        "pce_mean_pct": as_output(out_mean.reshape(shape)),
-        "pce_sigma_pct": as_output(out_sigma.reshape(shape)),
-        "p_above_target": as_output(out_p.reshape(shape)),
-    }
+        for key, value in zip(_OUTPUTS, _block_moments(v, target, n_samples)):
+            out[key][sel] = value
+    return {key: as_output(value.reshape(shape)) for key, value in out.items()}

@@ -71,6 +71,9 @@ def _describe(error: jsonschema.ValidationError) -> str:
     elif error.validator == "additionalProperties":
         props = sorted(error.schema.get("properties", {}))
         allowed = f"; allowed fields: {', '.join(props)}"
+    elif "then" in error.schema_path and schema.get("description"):
+        # a rule between two fields (an if/then of the schema): its own words say why, not only "not of type 'null'"
+        allowed = f": {schema['description']}"
     return f"field {field}: {error.message}{allowed}"
 
 

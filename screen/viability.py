@@ -37,7 +37,7 @@ from functools import lru_cache
 import numpy as np
 
 __all__ = ["classify", "VIABILITY_MASKS", "role_from_levels", "acceptor_class_of", "GAP_MAX_EV",
-           "OFFSET_TOL_EV"]
+           "OFFSET_TOL_EV", "offset_clears", "gap_valid"]
 
 #: Offsets within this of a threshold count as meeting it (−4.0 − (−4.3) is 0.2999999999999998). [eV]
 OFFSET_TOL_EV = 1e-9
@@ -46,6 +46,39 @@ GAP_MAX_EV = 4.428
 #: masks returned by :func:`classify`, in flag-registry order
 VIABILITY_MASKS = ("input_missing", "absorber_gap_invalid", "lumo_inverted", "homo_inverted", "lumo_offset_low",
                    "homo_offset_low", "voc_nonpositive")
+
+
+def offset_clears(delta, minimum: float) -> np.ndarray:
+    """Whether an offset allows charge transfer: type II (Δ > :data:`OFFSET_TOL_EV`) and at
+    least ``minimum`` less that tolerance (−3.7 − (−4.0) is 0.29999999999999982 and meets 0.3 eV); NaN → False.
+
+    The one offset rule: :func:`classify` (its inverted and below-threshold masks), the sampler
+    (:func:`screen.devicekernel.pce_samples`) and ``p_aligned`` (:mod:`screen.rank`).
+
+    Examples
+    --------
+    >>> offset_clears(np.array([-4.0 + 4.3, 0.0, 1e-9, 2e-9, np.nan]), 0.3).tolist()
+    [True, False, False, False, False]
+    >>> offset_clears(np.array([0.0, 1e-9, 2e-9]), 0.0).tolist()
+    [False, False, True]
+    """
+    delta = np.asarray(delta, dtype=float)
+    with np.errstate(invalid="ignore"):
+        return (delta > OFFSET_TOL_EV) & (delta >= minimum - OFFSET_TOL_EV)
+
+
+def gap_valid(gap) -> np.ndarray:
+    """Whether an absorber gap absorbs anything: 0 < gap <= :data:`GAP_MAX_EV` (the rule of
+    :func:`classify`, flag ``absorber_gap_invalid``); NaN → False.
+
+    Examples
+    --------
+    >>> gap_valid(np.array([-0.1, 0.0, 0.08, 1.5, 4.5, np.nan])).tolist()
+    [False, False, True, True, False, False]
+    """
+    gap = np.asarray(gap, dtype=float)
+    with np.errstate(invalid="ignore"):
+        return (gap > 0) & (gap <= GAP_MAX_EV)
 
 
 def classify(delta_lumo, delta_homo, absorber_gap, voc_raw, missing, *, min_lumo: float, min_homo: float,
@@ -81,12 +114,13 @@ def classify(delta_lumo, delta_homo, absorber_gap, voc_raw, missing, *, min_lumo
     *offset below threshold*; a model Voc ≤ 0 is *no positive Voc*.
     """
     with np.errstate(invalid="ignore"):
-        lumo_inv = delta_lumo <= OFFSET_TOL_EV
+        lumo_inv = delta_lumo <= OFFSET_TOL_EV  # not type II (offset_clears: its first condition)
         homo_inv = delta_homo <= OFFSET_TOL_EV
-        lumo_low = ~lumo_inv & (delta_lumo < min_lumo - OFFSET_TOL_EV)
-        homo_low = (~homo_inv & (delta_homo < min_homo - OFFSET_TOL_EV)) if check_homo_offset \
+        # type II, below its threshold (a missing offset is input_missing, not low)
+        lumo_low = np.isfinite(delta_lumo) & ~lumo_inv & ~offset_clears(delta_lumo, min_lumo)
+        homo_low = (np.isfinite(delta_homo) & ~homo_inv & ~offset_clears(delta_homo, min_homo)) if check_homo_offset \
             else np.zeros(np.shape(homo_inv), dtype=bool)
-        gap_bad = np.isfinite(absorber_gap) & ((absorber_gap <= 0) | (absorber_gap > GAP_MAX_EV))
+        gap_bad = np.isfinite(absorber_gap) & ~gap_valid(absorber_gap)
         voc_bad = voc_raw <= 0
     masks = {"input_missing": missing, "absorber_gap_invalid": gap_bad, "lumo_inverted": lumo_inv,
              "homo_inverted": homo_inv, "lumo_offset_low": lumo_low, "homo_offset_low": homo_low,

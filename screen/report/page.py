@@ -99,9 +99,14 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass, sort_by: s
     >>> print(_summary_sentence(r, "y6", 3))  # doctest: +NORMALIZE_WHITESPACE
     3 candidate(s) ranked against <strong>y6</strong>; 3 pass every check (1 of them repeats an earlier row's
     structure and stays out of the shortlist). Best estimate: <strong>A</strong> at 13.4 ± 1.7 % PCE (± from the
-    levels' σ alone, not the device model's own error; so are P(PCE &gt; target) and P(aligned)), viable in 79 % of
-    samples; first in the ranking's order:
+    levels' σ alone, not the device model's own error; so are P(PCE &gt; target) and P(aligned)), both offsets
+    aligned in 79 % of samples; first in the ranking's order:
     <strong>B</strong> (12.5 % PCE, P(PCE &gt; target) 83 %).
+    >>> nv = pd.DataFrame({"id": ["X"], "pce_pct": [float("nan")], "p_aligned": [0.03], "passes": [False],
+    ...                    "flags": ["delta_lumo_low"]})
+    >>> print(_summary_sentence(nv, "y6", 0))  # doctest: +NORMALIZE_WHITESPACE
+    1 candidate(s) ranked against <strong>y6</strong>; 0 pass every check. No pair is viable, so there is no PCE
+    estimate; the most nearly aligned: <strong>X</strong>, both offsets aligned in 3 % of samples.
     """
     if not len(ranking):
         return f"No candidate was ranked against {esc(partner_id) or 'the partner'}."
@@ -115,14 +120,28 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass, sort_by: s
     if passing and repeats:
         passing += (f" ({repeats} of them {'repeats' if repeats == 1 else 'repeat'} an earlier row's structure and "
                     f"{'stays' if repeats == 1 else 'stay'} out of the shortlist)")
-    sentence = (f"{len(ranking)} candidate(s) ranked against <strong>{esc(partner_id) or 'the partner'}</strong>"
-                f"{passing}. Best estimate: <strong>{esc(best.get('id'))}</strong> at "
+    # P(aligned) is the chance that both offsets clear their thresholds, not that the pair is viable (Voc > 0 and
+    # the gap window are not sampled into it): an adversarial referee's audit found "viable in 100 % of samples"
+    # beside a 31 % chance of Voc <= 0
+    aligned = (f", both offsets aligned in {num(best.get('p_aligned')) * 100:.0f} % of samples"
+               if not math.isnan(num(best.get("p_aligned"))) else "")
+    head = f"{len(ranking)} candidate(s) ranked against <strong>{esc(partner_id) or 'the partner'}</strong>{passing}."
+    if math.isnan(num(best.get("pce_pct"))):  # no viable row: no "best estimate at — % PCE"
+        p_al = pd.to_numeric(ranking.get("p_aligned", pd.Series(index=ranking.index, dtype=float)), errors="coerce")
+        best = ranking.loc[p_al.idxmax()] if p_al.notna().any() else ranking.iloc[0]
+        aligned = (f", both offsets aligned in {num(best.get('p_aligned')) * 100:.0f} % of samples"
+                   if not math.isnan(num(best.get("p_aligned"))) else "")
+        return (f"{head} No pair is viable, so there is no PCE estimate; the most nearly aligned: "
+                f"<strong>{esc(best.get('id'))}</strong>{aligned}.")
+    gas = str(best.get("scale", "")).strip().lower() == "gas"
+    sentence = (f"{head} Best estimate: <strong>{esc(best.get('id'))}</strong> at "
                 f"{fmt_pm(best.get('pce_pct'), best.get('pce_sigma_pct'), 1)} % PCE"
                 + (" (± from the levels' σ alone, not the device model's own error; so are P(PCE &gt; target) and "
                    "P(aligned))"
                    if not math.isnan(num(best.get("pce_sigma_pct"))) else "")
-                + (f", viable in {num(best.get('p_aligned')) * 100:.0f} % of samples"
-                   if not math.isnan(num(best.get("p_aligned"))) else ""))
+                + (" from gas-scale (isolated-molecule) levels, on which neither device model was fitted or defined"
+                   if gas else "")
+                + aligned)
     ties = int((pce.round(1) == round(num(best.get("pce_pct")), 1)).sum()) - 1 if pce.notna().any() else 0
     if ties > 0:  # a device-physics audit: against a narrow-gap partner most donors tie and the order is by id
         order = ("; ties are ordered by P(aligned), then id" if sort_by == "pce_pct" else "")
