@@ -96,7 +96,11 @@ def cmd_run(args) -> int:
         print(f"dascreen: the workflow stopped with exit code {rc}{_why_stopped(out, args)}; job logs in {out}/logs/"
               f"{whole}", file=sys.stderr)
         return EXIT_ERROR
-    if args.dry_run:
+    if args.dry_run:  # last, after the jobs: how the file will be read, which rows are taken as what, which not
+        from screen.prepare import options_from_config, preview, preview_lines
+
+        for line in preview_lines(candidates.name, preview(candidates, *options_from_config(cfg))):
+            print(line, file=sys.stderr)
         return EXIT_OK
     if not (out / "levels.csv").is_file() and args.snakemake_args:  # e.g. a target of an earlier stage after --
         print(f"dascreen: the workflow stopped before levels.csv, as the arguments after -- asked "
@@ -879,7 +883,9 @@ def _add_run(sub) -> None:
     p.add_argument("--strict", action="store_true",
                    help="exit with code 3 if any row is rejected or fails (default: report them, exit 0)")
     p.add_argument("--dry-run", action="store_true",
-                   help="show the jobs Snakemake would run and compute nothing; writes only OUT/config.dry-run.yaml "
+                   help="show the jobs Snakemake would run, then say how CANDIDATES will be read (rows accepted as "
+                        "molecules or polymers, rows rejected and why); computes nothing, writes only "
+                        "OUT/config.dry-run.yaml "
                         "(the configuration it would run with) and the engine's OUT/.snakemake folder")
     p.add_argument("--profile", default=None,
                    help="Snakemake workflow profile: a folder holding config.yaml with the engine's options (e.g. "

@@ -253,7 +253,11 @@ def separator_problem(header) -> str | None:
 
     A spreadsheet in a European locale saves "CSV" with ``;`` between fields (and
     decimal commas); a copy from a table may hold tabs. Read with commas, such a
-    header is one field, and every column looks missing.
+    header is one field, and every column looks missing.  A header with more ``;``
+    (or tabs) than commas is taken as separated by them: a column name may hold a
+    comma (``ID;SMILES;HOMO (eV, CV)`` was read as the columns ``'ID;SMILES;HOMO (eV'``
+    and ``'CV)'``, an input-file audit).  A first line ``sep=,`` (a spreadsheet's note
+    of the separator, read as the columns ``sep=`` and an empty one) is named too.
 
     Parameters
     ----------
@@ -266,19 +270,22 @@ def separator_problem(header) -> str | None:
     "the file seems to be separated by ';' (header 'id;e_ox_v_nhe;e00_ev'), not by commas: save it as comma-separated CSV, with a point as the decimal mark (1.1, not 1,1)"
     >>> separator_problem(["id\\tsmiles"])[:42]
     'the file seems to be separated by tabs (he'
+    >>> separator_problem(["ID;SMILES;HOMO (eV", "CV)"])[:41]
+    "the file seems to be separated by ';' (he"
     >>> separator_problem("id,smiles;x") is None, separator_problem(["id", "a;b"]) is None
     (True, True)
+    >>> separator_problem(["sep=", "Unnamed: 1"])[:57]
+    "its first line 'sep=,' is a spreadsheet's note of the sep"
     """
     if not isinstance(header, str):
         names = [str(c) for c in header]
-        if len(names) != 1:
-            return None
-        header = names[0]
+        if names and names[0].strip().lower() == "sep=":  # "sep=," read with commas: 'sep=' and an empty column
+            return ("its first line 'sep=,' is a spreadsheet's note of the separator, not the header: delete that "
+                    "line (the header must be the first line)")
+        header = ",".join(names)
     header = header.strip("\r\n")
-    if "," in header:
-        return None
     for sep, name in _SEPARATORS:
-        if sep in header:
+        if header.count(sep) > header.count(","):
             shown = header if len(header) <= 80 else header[:77] + "..."
             return (f"the file seems to be separated by {name} (header {shown!r}), not by commas: save it as "
                     "comma-separated CSV, with a point as the decimal mark (1.1, not 1,1)")
@@ -300,7 +307,7 @@ def field_count_lines(path, longer_only: bool = False, first_only: bool = False)
     import csv
 
     lines = []
-    with open(path, newline="", encoding="utf-8", errors="replace") as handle:
+    with open(path, newline="", encoding="utf-8-sig", errors="replace") as handle:  # a BOM is no part of a name
         rows = csv.reader(handle)
         header = next(rows, None) or []
         for fields in rows if header else ():

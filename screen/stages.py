@@ -13,7 +13,7 @@ import json
 import math
 import os
 import sys
-from dataclasses import fields, replace
+from dataclasses import replace
 
 from screen.config import Config
 from screen.provenance import provenance
@@ -22,17 +22,13 @@ __all__ = ["main"]
 
 
 def _prepare(args, cfg):
-    from screen.prepare import PolymerOptions, PrepareOptions, prepare
-    from screen.prepare.polymers import truncation_min_carbons
+    from screen.prepare import options_from_config, prepare
 
-    known = {f.name for f in fields(PrepareOptions)}
-    opts = PrepareOptions(**{k: tuple(v) if isinstance(v, list) else v for k, v in cfg["prepare"].items()
-                             if k in known})
+    opts, polymer, truncate = options_from_config(cfg)
     if args.max_shards:
         n_rows = _count_rows(args.input)
         opts = replace(opts, shard_size=max(opts.shard_size, math.ceil(n_rows / args.max_shards)))
-    summary = prepare(args.input, args.outdir, opts, PolymerOptions.from_mapping(cfg["polymer"]),
-                      truncation_min_carbons(cfg["structures"]))
+    summary = prepare(args.input, args.outdir, opts, polymer, truncate)
     print(json.dumps(summary))
 
 

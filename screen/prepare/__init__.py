@@ -26,31 +26,59 @@ The format is chosen from the file extension (a trailing ``.gz`` is accepted for
 ``.csv``
     Header row with at least a ``smiles`` column; ``id``, ``name`` and ``role`` are recognised
     (header matching ignores case and surrounding blanks); every other column is passed
-    through verbatim.  A header that names a column twice (``smiles`` and ``SMILES``, two ``id``
-    columns, or any other name exactly repeated) is refused: which one is meant cannot be
-    guessed.  All fields are read as text, so ids such as ``007`` or ``NA`` survive
-    unchanged (the equivalent of ``pandas.read_csv(dtype=str, keep_default_na=False)``; the
+    through verbatim.  Without an ``id`` column, a column named ``Compound ID``, ``compound_id``,
+    ``Mol-ID``, ``Identifier``, ``Molecule ID``, ``Sample ID``, ``Structure ID``, ``Cmpd ID`` or
+    ``Compound No`` (compared in lower case, letters and digits only:
+    :data:`screen.prepare.readers.ID_ALIASES`) is the id column; two such columns are refused.
+    A first line ``sep=,`` (a spreadsheet's separator note) is skipped; ``sep=;`` or a header
+    separated by ``;`` or tabs (more of them than commas) is refused naming the separator.
+    Unnamed columns empty on every row (a spreadsheet's trailing ``,,``) are dropped, and empty
+    fields after the last column are not a ``malformed_row``.  A header that names a column
+    twice (``smiles`` and ``SMILES``, two ``id`` columns, or any other name exactly repeated) is
+    refused: which one is meant cannot be guessed.  All fields are read as text, so ids such as
+    ``007`` or ``NA`` survive unchanged (the equivalent of ``pandas.read_csv(dtype=str, keep_default_na=False)``; the
     :mod:`csv` module is used so that a malformed line becomes a rejected row in its place
     instead of aborting the read or being dropped).  Lines that are empty, or whose fields are
     all blank (spreadsheet exports often end with ``,,,`` lines), are not rows.
 ``.smi``, ``.smiles``, ``.txt``
-    ``SMILES<whitespace>id`` per line; the id is the rest of the line (it may contain blanks).
-    Blank lines and lines starting with ``#`` are skipped, as is a first line whose first token
-    is literally ``smiles`` (a header).  A first line with a comma in its first token (no SMILES
-    contains one: a CSV saved as ``.smi``) refuses the file with a hint to rename it ``.csv``.
+    ``SMILES<whitespace>id`` per line; the id is the rest of the line (it may contain blanks, not
+    tabs: a line whose id is followed by more tab-separated fields is a ``malformed_row`` naming
+    them).  Blank lines and lines starting with ``#`` are skipped, as is a first line whose first token
+    is literally ``smiles`` (a header; with a tab, ``SMILES<TAB>anything``).  A first line with a
+    comma in its first token (no SMILES contains one: a CSV saved as ``.smi``) refuses the file with
+    a hint to rename it ``.csv``.  A first line that is a tab-separated header naming a ``smiles``
+    column anywhere (and is not ``SMILES<TAB>one other column``) makes the file a table (a
+    spreadsheet's "Text (Tab delimited)" export, ``ID<TAB>SMILES<TAB>Name``): it is read by its
+    header as a CSV file is (comment lines only before the header).  A first line that looks like a
+    header but cannot be read (an id, name or role column and no ``smiles`` column; ``smiles`` not
+    first in a header separated by blanks) refuses the file.
 ``.sdf``, ``.sd``
-    The title line of each record is the id; the data items ``name`` and ``role`` (any case)
+    The title line of each record is the id; with an empty title, the first non-empty data item
+    named ``ID`` or another id spelling (as for CSV).  The data items ``name`` and ``role`` (any case)
     fill those columns, other data items are passed through.  A record that RDKit cannot read
-    becomes a rejected row (reason ``unparsable``), never a crash.
+    becomes a rejected row (reason ``unparsable``), never a crash.  Polymer ends drawn by a drawing
+    program become the repeat unit's attachment points: attachment points (``M  APO``, V3000
+    ``ATTCHPT=``; exactly two, on different atoms that each carry a hydrogen) and an SRU polymer
+    bracket (``M  STY ... SRU``: its two crossing bonds, each ending in ``*``, ``R#`` or a one-atom
+    stub); anything else of theirs rejects the record with an ``attachment_*`` reason or
+    ``unparsable`` and says how to mark the ends (:func:`screen.prepare.readers._drawn_ends`).
+
+A CSV or SMILES file in UTF-16 with its byte-order mark (a spreadsheet's "Unicode text") is read
+as such; an SD file in UTF-16 is refused naming ``iconv -f utf-16 -t utf-8``.
 
 Reason codes
 ------------
 A rejected row carries exactly one reason (the first problem found, in this order):
 
-``malformed_row``       CSV line with more fields than the header (fields may be misassigned).
+``malformed_row``       CSV line with more (non-empty) fields than the header (fields may be
+                        misassigned); a SMILES-file line with tab-separated fields after its id.
 ``empty``               blank or whitespace-only SMILES.
-``unparsable``          SMILES syntax error (message gives RDKit's complaint in short form),
-                        SMILES with embedded whitespace, unreadable SDF record, or another
+``unparsable``          SMILES syntax error (message gives RDKit's complaint in short form, or
+                        names the first character that is not ASCII -- a look-alike hyphen or an
+                        invisible character copied from a document -- by code point and name),
+                        SMILES with embedded whitespace, unreadable SDF record, an SD polymer
+                        drawn without usable ends (an SRU bracket no bond crosses, an end group
+                        outside it, another polymer S-group type), or another
                         sanitisation failure.  Element symbols unknown to RDKit (``[Xx]``)
                         and R-groups (``[R]``) make the SMILES unparsable for RDKit; they are
                         recognised and reported as ``unsupported_element`` / ``dummy_atom``.
@@ -126,8 +154,11 @@ items separated by ``"; "``:
                         (1-based), ``row-<row>`` (0-based position) for a frame built in code;
                         with a ``-2``, ``-3`` ... suffix if that text is already an id in the file
                         (:func:`screen.prepare.readers.generated_id`).  Auto-assignment is
-                        friendlier than rejection; :func:`prepare` says on stderr how many ids it
-                        gave and records them in ``manifest.meta.json`` (``generated_ids``).
+                        friendlier than rejection; :func:`read_candidates` says on stderr how many
+                        ids it gave (once per file and process: on the console of ``dascreen
+                        run``, in the prepare job's log), naming a column that holds a different
+                        value on every row and whose name suggests ids; :func:`prepare` records
+                        them in ``manifest.meta.json`` (``generated_ids``).
 ``isotopes_removed``    isotope labels were stripped (unless ``keep_isotopes``).
 ``atom_maps_removed``   atom-map numbers on real atoms were stripped (labels of attachment
                         points are removed silently).
@@ -170,13 +201,19 @@ is kept; tautomers and resonance forms other than those RDKit normalises are *no
 from __future__ import annotations
 
 import os
-import sys
 from pathlib import Path
 
 from screen.chem import structure_key
 from screen.prepare.checks import REASON_CODES
 from screen.prepare.options import PrepareOptions
-from screen.prepare.polymers import OLIGOMER_COLUMNS, PolymerOptions, build_oligomers, compute_rows, read_oligomers
+from screen.prepare.polymers import (
+    OLIGOMER_COLUMNS,
+    PolymerOptions,
+    build_oligomers,
+    compute_rows,
+    read_oligomers,
+    truncation_min_carbons,
+)
 from screen.prepare.readers import read_candidates
 from screen.prepare.shards import (
     MANIFEST_COLUMNS,
@@ -200,6 +237,9 @@ __all__ = [
     "validate",
     "shard",
     "prepare",
+    "preview",
+    "preview_lines",
+    "options_from_config",
     "structure_key",
     "read_manifest",
 ]
@@ -259,20 +299,99 @@ def prepare(
     path = Path(path)
     frame = read_candidates(path)
     manifest = validate(frame, options)
-    _say_generated_ids(manifest, path)
     manifest, oligomers = build_oligomers(manifest, polymer, truncate_min_carbons)  # unbuildable: that row rejected
     shards = shard(compute_rows(manifest, oligomers), options)
     return write_prepared(manifest, shards, path, Path(out_dir), options, oligomers=oligomers, polymer=polymer)
 
+def options_from_config(cfg) -> tuple[PrepareOptions, PolymerOptions, int | None]:
+    """The prepare stage's options from a run configuration (its ``prepare``, ``polymer`` and ``structures``
+    sections): :class:`PrepareOptions`, :class:`PolymerOptions` and the side-chain truncation the oligomer atom limit
+    counts with (:func:`screen.prepare.polymers.truncation_min_carbons`). One home for the workflow's prepare job
+    and the dry run's preview."""
+    from dataclasses import fields
 
-def _say_generated_ids(manifest, path: Path) -> None:
-    """One stderr line when rows without an id were given one (before, only the manifest's ``note`` said so; in a
-    workflow run the line is in the prepare job's log, ``OUT/logs/<batch>/prepare.log``)."""
-    given = generated_ids(manifest)
-    if not given["count"]:
-        return
-    shown = ", ".join(repr(i) for i in given["ids"][:5]) + (", ..." if given["count"] > 5 else "")
-    rows = "1 row" if given["count"] == 1 else f"{given['count']} rows"
-    print(f"dascreen: {rows} of {path.name} had no id; each got one named after its place in the file (line-N: "
-          f"file line N; record-N: SD record N): {shown} (note 'missing_id' in levels.csv, 'generated_ids' in "
-          f"manifest.meta.json)", file=sys.stderr)
+    known = {f.name for f in fields(PrepareOptions)}
+    opts = PrepareOptions(**{k: tuple(v) if isinstance(v, list) else v for k, v in cfg["prepare"].items()
+                             if k in known})
+    return opts, PolymerOptions.from_mapping(cfg["polymer"]), truncation_min_carbons(cfg["structures"])
+
+
+def preview(path: str | os.PathLike[str], options: PrepareOptions = PrepareOptions(),
+            polymer: PolymerOptions = PolymerOptions(), truncate_min_carbons: int | None = None) -> dict:
+    """How the prepare stage will read a candidate file, without writing anything (``dascreen run --dry-run``).
+
+    The same reading, validation and oligomer building as :func:`prepare`: a chemist sees before an overnight
+    batch which rows are taken as what, and which are rejected and why (an input-file audit: the dry run listed
+    the workflow's jobs but no row).
+
+    Returns
+    -------
+    dict
+        ``rows``, ``ok``, ``molecules``, ``polymers`` (accepted rows of each kind), ``oligomers`` (distinct
+        oligomer structures the polymers add), ``structures`` (distinct structures to compute), ``rejected``
+        (count) and ``rejections``: a frame of the rejected rows (``row`` 0-based, ``id``, ``reason``, ``error``).
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> work = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (work / "c.csv").write_text("id,smiles\\na,c1ccsc1\\nb,C1CC\\np,[*]c1ccc([*])s1\\n", encoding="utf-8")
+    >>> out = preview(work / "c.csv")
+    >>> {k: out[k] for k in ("rows", "ok", "molecules", "polymers", "oligomers", "rejected")}
+    {'rows': 3, 'ok': 2, 'molecules': 1, 'polymers': 1, 'oligomers': 4, 'rejected': 1}
+    >>> out["rejections"][["id", "reason"]].values.tolist()
+    [['b', 'unparsable']]
+    >>> sorted(p.name for p in work.iterdir())
+    ['c.csv']
+    """
+    frame = read_candidates(Path(path))
+    manifest = validate(frame, options)
+    manifest, oligomers = build_oligomers(manifest, polymer, truncate_min_carbons)
+    ok = manifest["status"].eq("ok")
+    kinds = manifest["representation"] if "representation" in manifest.columns else None
+    polymers = int((ok & kinds.eq("polymer")).sum()) if kinds is not None else 0
+    computed = compute_rows(manifest, oligomers)
+    rejected = manifest.loc[~ok, ["row", "id", "reason", "error"]].reset_index(drop=True)
+    return {"rows": int(len(manifest)), "ok": int(ok.sum()), "molecules": int(ok.sum()) - polymers,
+            "polymers": polymers, "oligomers": int(oligomers["key"].nunique()) if len(oligomers) else 0,
+            "structures": int(computed["key"].nunique()) if len(computed) else 0,
+            "rejected": int(len(rejected)), "rejections": rejected}
+
+
+#: rejected rows the dry run's preview lists one by one (the rest are counted by reason)
+PREVIEW_LISTED = 10
+
+
+def preview_lines(name: str, summary: dict) -> list[str]:
+    """The console lines of :func:`preview`: one line of counts, then up to :data:`PREVIEW_LISTED` rejected rows
+    with their reason and message, then the others counted by reason.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> rej = pd.DataFrame({"row": [1], "id": ["b"], "reason": ["unparsable"], "error": ["SMILES syntax error"]})
+    >>> for line in preview_lines("c.csv", {"rows": 3, "ok": 2, "molecules": 1, "polymers": 1, "oligomers": 4,
+    ...                                     "structures": 5, "rejected": 1, "rejections": rej}):
+    ...     print(line)
+    dascreen: c.csv reads as 3 rows: 2 accepted (1 molecule, 1 polymer repeat unit as 4 oligomers), 1 rejected; 5 distinct structures to compute or take from the results store
+      rejected: input row 2, id 'b': unparsable: SMILES syntax error
+    """
+    def count(n: int, word: str, plural: str | None = None) -> str:
+        return f"{n} {word if n == 1 else (plural or word + 's')}"
+
+    kinds = [count(summary["molecules"], "molecule")]
+    if summary["polymers"]:
+        kinds.append(f"{count(summary['polymers'], 'polymer repeat unit')} as "
+                     f"{count(summary['oligomers'], 'oligomer')}")
+    lines = [f"dascreen: {name} reads as {count(summary['rows'], 'row')}: {summary['ok']} accepted "
+             f"({', '.join(kinds)}), {summary['rejected']} rejected; "
+             f"{count(summary['structures'], 'distinct structure')} to compute or take from the results store"]
+    rej = summary["rejections"]
+    for _, r in rej.head(PREVIEW_LISTED).iterrows():
+        lines.append(f"  rejected: input row {int(r['row']) + 1}, id {str(r['id'])!r}: {r['reason']}: {r['error']}")
+    if len(rej) > PREVIEW_LISTED:
+        rest = rej.iloc[PREVIEW_LISTED:]["reason"].value_counts()
+        lines.append("  and " + ", ".join(f"{n} more {reason}" for reason, n in rest.items()))
+    return lines
+
+

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import dataclasses
 import re
+import unicodedata
 from dataclasses import dataclass
 
 from rdkit import Chem, rdBase
@@ -190,16 +191,68 @@ def _scan_failed_smiles(smiles: str, options: PrepareOptions) -> _Reject | None:
     return None
 
 
+#: look-alikes of SMILES characters that word processors and web pages put in copied text, and the character meant
+_LOOK_ALIKES = {"\u2010": "-", "\u2011": "-", "\u2012": "-", "\u2013": "-", "\u2014": "-", "\u2212": "-",
+                "\ufe63": "-", "\u00ad": "", "\u2261": "#", "\u2215": "/", "\u2044": "/", "\u29f5": "\\",
+                "\u201c": "", "\u201d": "", "\u2018": "", "\u2019": ""}
+
+
+def character_name(ch: str) -> str:
+    """A character as a message names it: ``U+2011 (NON-BREAKING HYPHEN)``.
+
+    >>> character_name("\u2011"), character_name("\u200b")
+    ('U+2011 (NON-BREAKING HYPHEN)', 'U+200B (ZERO WIDTH SPACE)')
+    """
+    name = unicodedata.name(ch, "")
+    return f"U+{ord(ch):04X}" + (f" ({name})" if name else "")
+
+
+def _foreign_character(smiles: str) -> str:
+    """Why a SMILES that does not parse holds a character outside SMILES ('' when it holds none): the first
+    character that is not ASCII, named by code point and name, and what to type instead (an input-file audit: a
+    non-breaking hyphen copied from a document gave "syntax error around position 5" without naming it).
+
+    Examples
+    --------
+    >>> _foreign_character("c1cc\u2011sc1")  # doctest: +ELLIPSIS
+    "character 5 is U+2011 (NON-BREAKING HYPHEN), not a SMILES character (...); type '-' instead"
+    >>> _foreign_character("CC\u200bO")[:56]
+    'character 3 is U+200B (ZERO WIDTH SPACE), not a SMILES c'
+    >>> _foreign_character("CC(")
+    ''
+    """
+    for position, ch in enumerate(smiles, start=1):
+        if ord(ch) < 128:
+            continue
+        meant = _LOOK_ALIKES.get(ch)
+        if meant is None:
+            folded = unicodedata.normalize("NFKC", ch)
+            meant = folded if folded.isascii() and folded.strip() else None
+        invisible = unicodedata.category(ch) in ("Cf", "Zs", "Zl", "Zp", "Cc")
+        if meant:
+            fix = f"type {meant!r} instead"
+        elif invisible or meant == "":
+            fix = "delete it (it may be invisible)"
+        else:
+            fix = "replace it by the SMILES character meant"
+        return (f"character {position} is {character_name(ch)}, not a SMILES character (SMILES is plain ASCII; "
+                f"text copied from a document or a web page?); {fix}")
+    return ""
+
+
 def _parse_unsanitized(smiles: str, options: PrepareOptions) -> Chem.Mol:
     """Parse ``smiles`` without sanitisation; raise :class:`_Reject` with a specific message."""
     stripped = smiles.strip()
     if not stripped:
         raise _Reject("empty", "SMILES is empty")
     if re.search(r"\s", stripped) and not _CXSMILES.match(stripped):
-        pos = re.search(r"\s", stripped).start()  # type: ignore[union-attr]
+        found = re.search(r"\s", stripped)
+        pos = found.start()  # type: ignore[union-attr]
+        space = stripped[pos]
+        what = "whitespace" if space in " \t" else f"whitespace {character_name(space)}"
         raise _Reject(
             "unparsable",
-            f"SMILES contains whitespace at position {pos} (a SMILES is one token; "
+            f"SMILES contains {what} at position {pos} (a SMILES is one token; "
             "put names in a separate column)",
         )
     with rdBase.BlockLogs():
@@ -210,6 +263,9 @@ def _parse_unsanitized(smiles: str, options: PrepareOptions) -> Chem.Mol:
         explained = _scan_failed_smiles(stripped, options)
         if explained is not None:
             raise explained
+        foreign = _foreign_character(stripped)
+        if foreign:
+            raise _Reject("unparsable", f"SMILES syntax error: {foreign}")
         raise _Reject("unparsable", f"SMILES syntax error: {_short_rdkit_message(log, stripped)}")
     if mol.GetNumAtoms() == 0:
         raise _Reject("unparsable", "SMILES contains no atoms")

@@ -19,11 +19,13 @@ Examples
 
 from __future__ import annotations
 
+import codecs
 import csv
 import gzip
 import io
 import os
 import re
+import sys
 import zlib
 from array import array
 from pathlib import Path
@@ -40,7 +42,7 @@ from screen.prepare.checks import snippet as _snippet
 from screen.prepare.shards import MANIFEST_COLUMNS
 
 __all__ = ["read_candidates", "assign_missing_ids", "generated_id", "generated_id_names", "INPUT_LINES", "input_line",
-           "not_utf8_error"]
+           "not_utf8_error", "utf16_error", "ID_ALIASES", "id_columns"]
 
 #: key of ``frame.attrs`` where :func:`read_candidates` records each row's place in the file: ``{"file": name,
 #: "format": "csv"|"smi"|"sdf", "lines": array of the first file line of row 0, of row 1, ...}`` (1-based, counting
@@ -107,9 +109,10 @@ def _line_id(lines: list[bytes], number: int, fmt: str | None) -> str:
             header = next((text(raw) for raw in lines[:number - 1] if text(raw).strip()), None)
             if header is None:
                 return ""
-            names = [h.strip().lower() for h in next(csv.reader([header]))]
+            names = [h.strip() for h in next(csv.reader([header]))]
             fields = next(csv.reader([line]), [])
-            at = names.index("id") if "id" in names else -1
+            found = id_columns(names)
+            at = found[0] if len(found) == 1 else -1
             return fields[at].strip() if 0 <= at < len(fields) else ""
         if fmt == "smi":
             parts = line.strip().split(None, 1)
@@ -135,6 +138,8 @@ def not_utf8_error(path: Path, raw: bytes, fmt: str | None = None) -> InputError
     c.csv: not UTF-8 text: line 3 (id 'caf\uFFFD') holds byte 0xe9, which is not UTF-8 (2 lines have such bytes:
     3, 4); save the file as UTF-8 (a spreadsheet's "CSV UTF-8"; from Latin-1: `iconv -f latin1 -t utf-8`)
     """
+    if raw.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+        return utf16_error(path, raw, fmt)
     lines = (raw[3:] if raw.startswith(b"\xef\xbb\xbf") else raw).split(b"\n")
     bad: list[tuple[int, int]] = []  # (line, the first undecodable byte on it)
     for number, line in enumerate(lines, start=1):
@@ -157,8 +162,34 @@ def not_utf8_error(path: Path, raw: bytes, fmt: str | None = None) -> InputError
                       f"file as UTF-8 ({sheet}from Latin-1: `iconv -f latin1 -t utf-8`)")
 
 
+def utf16_error(path: Path, raw: bytes, fmt: str | None = None) -> InputError:
+    """The error of a UTF-16 file (a byte-order mark FF FE or FE FF: a spreadsheet's "Unicode text") that is not
+    read as such: an SD file, or UTF-16 that does not decode. Before, it got "not UTF-8 ... from Latin-1: `iconv -f
+    latin1`" with an id of NUL characters (an input-file audit), which sent the user to the wrong conversion.
+
+    Examples
+    --------
+    >>> print(utf16_error(Path("c.sdf"), codecs.BOM_UTF16_LE + "x".encode("utf-16-le"), "sdf"))  # doctest: +ELLIPSIS
+    c.sdf: UTF-16 text (byte-order mark FF FE), not UTF-8: convert it with `iconv -f utf-16 -t utf-8 c.sdf > ...
+    """
+    mark = "FF FE" if raw.startswith(codecs.BOM_UTF16_LE) else "FE FF"
+    sheet = ' or save it from the spreadsheet as "CSV UTF-8"' if fmt in (None, "csv", "smi") else ""
+    try:
+        raw.decode("utf-16")
+        broken = ""
+    except UnicodeDecodeError:
+        broken = " (and it does not decode as UTF-16 either: check the file)"
+    out = f"{path.stem}-utf8{path.suffix}"
+    return InputError(f"{path}: UTF-16 text (byte-order mark {mark}), not UTF-8{broken}: convert it with "
+                      f"`iconv -f utf-16 -t utf-8 {path.name} > {out}`{sheet}")
+
+
 def _read_text(path: Path, gz: bool, fmt: str | None = None) -> str:
     """Read the whole file as UTF-8 text (a byte-order mark is ignored).
+
+    A CSV or SMILES file that starts with a UTF-16 byte-order mark (FF FE or FE FF: a spreadsheet's "Unicode
+    text" export) is read as UTF-16; an SD file in UTF-16 is refused saying so (:func:`utf16_error`: convert it
+    with ``iconv -f utf-16 -t utf-8``).
 
     Text that is not UTF-8 raises :class:`InputError` naming the line (and the id on it, for ``fmt`` ``"csv"`` or
     ``"smi"``; the SD record for ``"sdf"``) of the first byte that is not UTF-8 (:func:`not_utf8_error`).
@@ -182,6 +213,13 @@ def _read_text(path: Path, gz: bool, fmt: str | None = None) -> str:
                 f"not a readable gzip file: {path} ({exc}); check that it was copied whole, or give the "
                 "uncompressed file"
             ) from None
+    if raw.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+        if fmt == "sdf":
+            raise utf16_error(path, raw, fmt)
+        try:
+            return raw.decode("utf-16")  # the byte-order mark gives the byte order and is dropped
+        except UnicodeDecodeError:
+            raise utf16_error(path, raw, fmt) from None
     try:
         return raw.decode("utf-8-sig")
     except UnicodeDecodeError:
@@ -205,6 +243,40 @@ def _unique_column(name: str, taken: set[str]) -> str:
 #: CSV columns the reader interprets (matched ignoring case and surrounding blanks)
 _INTERPRETED = ("id", "smiles", "name", "role")
 
+#: header spellings of the id column besides ``id``, compared after :func:`_header_key` (lower case, letters and digits
+#: only: ``Compound ID``, ``compound_id``, ``Mol-ID``, ``ID`` with blanks around are all id); a column named ``id``
+#: wins over them, and two of them without an ``id`` column are refused (which one is meant cannot be guessed)
+ID_ALIASES: tuple[str, ...] = ("id", "identifier", "compoundid", "cmpdid", "compoundno", "compoundnumber", "molid",
+                               "moleculeid", "structureid", "sampleid")
+#: words in a column name that suggest it may hold ids (named in the console line when ids are generated)
+_ID_WORDS = re.compile(r"id|name|code|label|title|compound|cmpd|mol|sample|entry|number|no\b|#", re.IGNORECASE)
+
+
+def _header_key(name: str) -> str:
+    """A column name as the id spellings are compared: lower case, letters and digits only.
+
+    >>> _header_key(" Compound ID "), _header_key("compound_id"), _header_key("Mol-ID")
+    ('compoundid', 'compoundid', 'molid')
+    """
+    return "".join(ch for ch in str(name).lower() if ch.isalnum())
+
+
+def id_columns(header: list[str]) -> list[int]:
+    """The positions of the header's id column: the column named ``id`` (any case, blanks around), else every column
+    named one of the :data:`ID_ALIASES` spellings (more than one is ambiguous; :func:`_read_csv` refuses it).
+
+    Examples
+    --------
+    >>> id_columns(["Compound ID", "SMILES"]), id_columns(["compound_id", " ID ", "smiles"]), id_columns(["x"])
+    ([0], [1], [])
+    >>> id_columns(["Compound ID", "Mol ID", "smiles"])
+    [0, 1]
+    """
+    exact = [i for i, name in enumerate(header) if str(name).strip().lower() == "id"]
+    if exact:
+        return exact[:1]
+    return [i for i, name in enumerate(header) if _header_key(name) in ID_ALIASES]
+
 
 def _check_repeated_columns(path: Path, header: list[str]) -> None:
     """Refuse a header that names a column twice: which of the two is meant cannot be guessed.
@@ -224,14 +296,38 @@ def _check_repeated_columns(path: Path, header: list[str]) -> None:
         raise InputError(f"{path}: {repeated}")
 
 
-def _read_csv(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], list[int]]:
-    """Parse candidate CSV text into row dicts, the passthrough column names and each row's first file line."""
-    reader = csv.reader(io.StringIO(text, newline=""))
+def _smiles_like_hint(header: list[str]) -> str:
+    """``"; column 'Canonical SMILES' looks like it: name it 'smiles'"`` when exactly one column name holds the word
+    smiles ('' otherwise)."""
+    like = [h for h in header if "smiles" in str(h).lower() and str(h).strip().lower() != "smiles"]
+    return f"; column {like[0]!r} looks like it: name it 'smiles'" if len(like) == 1 else ""
+
+
+#: Excel's first line naming the field separator (``sep=,``), written by some exports and macros
+_SEP_LINE = re.compile(r"sep=(.)", re.IGNORECASE)
+_SEPARATOR_NAMES = {",": "commas", ";": "';'", "\t": "tabs"}
+
+
+def _read_csv(path: Path, text: str, delimiter: str = ",") -> tuple[list[dict[str, str]], list[str], list[int], str]:
+    """Parse candidate CSV text into row dicts, the passthrough column names and each row's first file line.
+
+    ``delimiter``: ``","`` for a ``.csv`` file, a tab for a SMILES-file that is a table with a header
+    (:func:`_read_smi`).  Besides the interpreted columns, the id may be under another common name
+    (:func:`id_columns`); a first line ``sep=,`` (a spreadsheet's note of the separator) is skipped when it names
+    ``delimiter`` and refuses the file otherwise; unnamed columns that are empty on every row (a spreadsheet's
+    trailing empty columns) are dropped; empty fields after the last column are ignored.  Also returned: the column
+    that may hold ids when the header has no id column (``"column 'Name'"``; '' otherwise), for the console line
+    about generated ids.
+    """
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     header: list[str] | None = None
     records: list[dict[str, str]] = []
     mapping: dict[int, str] = {}
     passthrough: list[str] = []
+    unnamed: list[str] = []
+    shown: dict[str, str] = {}  # internal column -> its header text
     lines: list[int] = []
+    has_id = False
     try:
         before = 0  # lines read before this record: it starts on the next one
         for fields in reader:
@@ -239,26 +335,49 @@ def _read_csv(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], l
             if header is None:
                 if not fields or all(not f.strip() for f in fields):
                     continue
+                note = _SEP_LINE.fullmatch(delimiter.join(fields).strip(" "))
+                if note and not records and not mapping:
+                    if note.group(1) == delimiter:
+                        continue  # "sep=," says what the file is: nothing to read on it
+                    name = _SEPARATOR_NAMES.get(note.group(1), repr(note.group(1)))
+                    raise InputError(
+                        f"{path}: the file seems to be separated by {name} (its line {start} is "
+                        f"{delimiter.join(fields).strip()!r}, a spreadsheet's note of the separator), not by "
+                        f"{_SEPARATOR_NAMES.get(delimiter, repr(delimiter))}: save it as comma-separated CSV, with a "
+                        "point as the decimal mark (1.1, not 1,1)")
                 header = [f.strip() for f in fields]
                 lowered = [h.lower() for h in header]
                 if "smiles" not in lowered:
-                    problem = separator_problem(header)
+                    problem = separator_problem(delimiter.join(fields))  # the line as written, blanks kept
                     if problem:
                         raise InputError(f"{path}: {problem}")
                     raise InputError(
                         f"{path}: no 'smiles' column; columns found: {header}. "
                         "A candidate CSV needs a header with at least 'smiles' (and usually 'id')"
+                        + _smiles_like_hint(header)
                     )
                 _check_repeated_columns(path, header)
+                ids = id_columns(header)
+                if len(ids) > 1:
+                    names = " and ".join(repr(header[i]) for i in ids)
+                    raise InputError(f"{path}: columns {names} both look like the id column; name the one that "
+                                     "holds the ids 'id'")
+                has_id = bool(ids)
                 taken: set[str] = set()
                 for i, (h, low) in enumerate(zip(header, lowered)):
-                    if low in _INTERPRETED:
+                    if ids and i == ids[0]:
+                        mapping[i] = "id"
+                    elif low in _INTERPRETED and low != "id":
                         mapping[i] = "smiles_input" if low == "smiles" else low
+                        shown[mapping[i]] = h
                     else:
                         out = _unique_column(h or f"column_{i + 1}", taken)
                         taken.add(out)
                         mapping[i] = out
                         passthrough.append(out)
+                        shown[out] = h
+                        if not h:
+                            unnamed.append(out)
                 continue
             if not fields or all(not f.strip() for f in fields):
                 continue
@@ -266,17 +385,37 @@ def _read_csv(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], l
             record.update({col: "" for col in passthrough})
             for i, value in enumerate(fields[: len(header)]):
                 record[mapping[i]] = value
-            if len(fields) > len(header):
+            extra = fields[len(header):]
+            if any(f.strip() for f in extra):  # empty fields after the last column (a spreadsheet's ",,") are no data
                 record["read_error"] = (
                     f"malformed_row:line {reader.line_num} has {len(fields)} fields but the "
-                    f"header has {len(header)} (unquoted comma inside a field?); "
+                    f"header has {len(header)} ({'unquoted comma' if delimiter == ',' else 'a tab'} inside a field?); "
                     "the row is not trusted"
                 )
             records.append(record)
             lines.append(start)
     except csv.Error as exc:
         raise InputError(f"{path}: CSV error near line {reader.line_num}: {exc}") from None
-    return records, passthrough, lines
+    empty = [col for col in unnamed if not any(r.get(col, "").strip() for r in records)]
+    if empty:  # a spreadsheet's trailing empty columns: nothing in them to carry through
+        passthrough = [col for col in passthrough if col not in empty]
+        for record in records:
+            for col in empty:
+                record.pop(col, None)
+    hint = "" if has_id else _id_like_column(records, [(c, shown.get(c, c)) for c in ["name"] + passthrough])
+    return records, passthrough, lines, (f"column {hint!r}" if hint else "")
+
+
+def _id_like_column(records: list[dict[str, str]], columns: list[tuple[str, str]]) -> str:
+    """The header text of the first column whose name suggests ids (:data:`_ID_WORDS`) and that holds a distinct,
+    non-empty value on every row ('' when none): what the console line about generated ids names."""
+    for col, text in columns:
+        if not text or not _ID_WORDS.search(text):
+            continue
+        values = [r.get(col, "").strip() for r in records]
+        if values and all(values) and len(set(values)) == len(values):
+            return text
+    return ""
 
 
 def _refuse_csv_as_smi(path: Path, line: str) -> None:
@@ -299,37 +438,102 @@ not SMILES<whitespace>id); rename it to .csv
     raise InputError(f"{path} looks like comma-separated CSV (its first line {_snippet(line)} {what}); {hint}")
 
 
-def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], list[int]]:
-    """Parse a SMILES file (``SMILES<whitespace>id`` per line); also each record's file line."""
+def _is_smiles(token: str) -> bool:
+    """Whether RDKit reads ``token`` as a SMILES (unsanitised, quietly): tells a data line from a header line."""
+    with rdBase.BlockLogs():
+        return Chem.MolFromSmiles(token, sanitize=False) is not None
+
+
+def _smi_header(path: Path, number: int, line: str) -> str:
+    """What the first line of a SMILES file is: ``"table"`` (a tab-separated header naming a ``smiles`` column that
+    is not the documented two-column ``SMILES<TAB>id`` header: the file is read by its header), ``"header"`` (the
+    documented header, first field ``smiles``: skipped, the id is the rest of each line) or ``""`` (a data line).
+
+    A first line that is plainly a header but cannot be read as one is refused (:class:`InputError`): a header
+    separated by blanks whose ``smiles`` column is not the first, or one naming an id, name or role column and no
+    ``smiles`` column (an input-file audit: a tab-separated ``ID<TAB>SMILES`` export was read with the ids as the
+    SMILES, the id ``CCO`` computed as ethanol).
+
+    Examples
+    --------
+    >>> [_smi_header(Path("c.smi"), 1, t) for t in ("SMILES\\tName", "ID\\tSMILES", "smiles id", "c1ccsc1\\tA")]
+    ['header', 'table', 'header', '']
+    """
+    stripped = line.strip()
+    tabbed = "\t" in stripped
+    fields = [f.strip() for f in (stripped.split("\t") if tabbed else stripped.split())]
+    low = [f.lower() for f in fields]
+    where = f"{path}: line {number} {_snippet(stripped)}"
+    if "smiles" in low:
+        if tabbed and not (len(fields) == 2 and low[0] == "smiles"):
+            return "table"
+        if low[0] == "smiles":
+            return "header"
+        raise InputError(
+            f"{where} looks like a header naming 'smiles' as column {low.index('smiles') + 1}, its columns "
+            "separated by blanks; a SMILES file line is SMILES<whitespace>id, SMILES first: separate the header and "
+            "the rows with tabs (the file is then read by its header), or save the table as CSV")
+    named = [f for f in fields if _header_key(f) in ID_ALIASES or f.lower() in ("name", "role", "title")]
+    if named and not _is_smiles(fields[0]):
+        raise InputError(
+            f"{where} looks like a header (column {named[0]!r}) but names no 'smiles' column; a SMILES file is "
+            "SMILES<whitespace>id per line, or a tab-separated table whose header names a 'smiles' column: name the "
+            f"SMILES column 'smiles' in the header, or save the table as CSV{_smiles_like_hint(fields)}")
+    return ""
+
+
+def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], list[int], str]:
+    """Parse a SMILES file (``SMILES<whitespace>id`` per line); also each record's file line.
+
+    A file whose first line is a tab-separated header naming a ``smiles`` column (anywhere), other than the
+    documented ``SMILES<TAB>id`` header, is a table (a spreadsheet's "Text (Tab delimited)" export): it is read by its
+    header like a CSV file (:func:`_read_csv`; comment lines before the header are skipped, after it every line is
+    a row).  Otherwise the id is the rest of the line, blanks included; a line whose id is followed by further
+    tab-separated fields is rejected (``malformed_row``, naming them) instead of folding them into the id.
+    """
+    all_lines = text.splitlines()
+    first = next(((n, ln) for n, ln in enumerate(all_lines, start=1)
+                  if ln.strip() and not ln.strip().startswith("#")), None)
+    if first is not None and "," in first[1].strip().split(None, 1)[0]:
+        _refuse_csv_as_smi(path, first[1].strip())
+    kind = _smi_header(path, *first) if first is not None else ""
+    if kind == "table":
+        table = "\n".join("" if n < first[0] else ln for n, ln in enumerate(all_lines, start=1))
+        return _read_csv(path, table, delimiter="\t")
     records: list[dict[str, str]] = []
     lines: list[int] = []
-    first_data = True
-    for number, line in enumerate(text.splitlines(), start=1):
+    for number, line in enumerate(all_lines, start=1):
         stripped = line.strip()
         if not stripped or stripped.startswith("#"):
             continue
-        parts = stripped.split(None, 1)
-        if first_data and "," in parts[0]:
-            _refuse_csv_as_smi(path, stripped)
-        if first_data and parts[0].lower() == "smiles":
-            first_data = False
+        if kind == "header" and number == first[0]:
             continue
-        first_data = False
+        parts = stripped.split(None, 1)
         smiles, rest = parts[0], (parts[1].strip() if len(parts) > 1 else "")
         if rest.startswith("|") and "|" in rest[1:]:  # a CXSMILES extension (|$_R1;;_R2$|) belongs to the SMILES
             end = rest.index("|", 1) + 1
             smiles, rest = f"{smiles} {rest[:end]}", rest[end:].strip()
+        error = ""
+        if "\t" in rest:  # SMILES, id and more columns: the id is not the rest of the line
+            fields = [f.strip() for f in rest.split("\t")]
+            rest, extra = fields[0], [f for f in fields[1:] if f]
+            if extra:
+                shown = ", ".join(_snippet(f) for f in extra[:5]) + (", ..." if len(extra) > 5 else "")
+                error = (f"malformed_row:line {number} has tab-separated fields after the id {_snippet(rest)}: "
+                         f"{shown}; a SMILES file line is SMILES<whitespace>id (an id may hold blanks, not tabs): "
+                         "name the columns in a tab-separated header line (e.g. SMILES<TAB>id<TAB>role) or save "
+                         "the file as CSV")
         records.append(
             {
                 "id": rest,
                 "smiles_input": smiles,
                 "name": "",
                 "role": "",
-                "read_error": "",
+                "read_error": error,
             }
         )
         lines.append(number)
-    return records, [], lines
+    return records, [], lines, ""
 
 
 def _sdf_records(text: str) -> list[str]:
@@ -411,6 +615,8 @@ def _molblock_to_smiles(molblock: str) -> tuple[str | None, str]:
     The block is first read with sanitisation (so stereochemistry is perceived from wedges or
     3D coordinates); if that fails it is read without, so that e.g. a pentavalent carbon
     reaches :func:`validate` and is reported as ``valence`` rather than as unreadable.
+    Polymer ends drawn the way drawing programs write them become attachment points
+    (:func:`_drawn_ends`).
 
     Parameters
     ----------
@@ -420,9 +626,25 @@ def _molblock_to_smiles(molblock: str) -> tuple[str | None, str]:
     Returns
     -------
     tuple of (str or None, str)
-        The SMILES (None if RDKit cannot read the block at all) and RDKit's exception text,
-        if any.
+        The SMILES (None if RDKit cannot read the block at all, or the record is no screenable
+        structure) and the reason (RDKit's exception text, or why), if any.
     """
+    smiles, detail, _ = _read_molblock(molblock)
+    return smiles, detail
+
+
+class _RecordProblem(Exception):
+    """An SD record that is not screened as drawn: ``code`` (a reason code) and ``message``."""
+
+    def __init__(self, code: str, message: str) -> None:
+        super().__init__(message)
+        self.code = code
+        self.message = message
+
+
+def _read_molblock(molblock: str) -> tuple[str | None, str, str]:
+    """:func:`_molblock_to_smiles` with the reason code of a record that is read but refused (``''`` when read, or
+    unreadable: ``unparsable``)."""
     with rdBase.BlockLogs():
         with rdBase.CaptureErrorLog():
             try:
@@ -430,16 +652,176 @@ def _molblock_to_smiles(molblock: str) -> tuple[str | None, str]:
                 if mol is not None:
                     repeated = _repeated_r_labels(mol)
                     if repeated:
-                        return None, repeated
-                    return Chem.MolToSmiles(Chem.RemoveHs(mol)), ""
+                        return None, repeated, ""
+                    drawn = _drawn_ends(mol)
+                    if drawn is not mol:  # ends made attachment points: sanitised already where it could be
+                        return Chem.MolToSmiles(Chem.RemoveHs(drawn, sanitize=False)), "", ""
+                    return Chem.MolToSmiles(Chem.RemoveHs(mol)), "", ""
                 mol = Chem.MolFromMolBlock(molblock, sanitize=False, removeHs=False)
                 if mol is None:
-                    return None, ""
+                    return None, "", ""
                 mol.UpdatePropertyCache(strict=False)
-                return Chem.MolToSmiles(mol), ""
+                mol = _drawn_ends(mol)
+                return Chem.MolToSmiles(mol), "", ""
+            except _RecordProblem as problem:
+                return None, problem.message, problem.code
             except Exception as exc:  # RDKit raises several exception types on bad blocks
                 text = str(exc).strip()
-                return None, text.splitlines()[0] if text else type(exc).__name__
+                return None, text.splitlines()[0] if text else type(exc).__name__, ""
+
+
+#: how a record's ends can be marked, for the messages of :func:`_drawn_ends`
+_MARK_ENDS = "mark the two ends of the repeat unit with R1 and R2 (R#) or * atoms"
+#: polymer S-group types other than SRU (CTfile formats ``from memory``): not one repeat unit with two ends
+_OTHER_POLYMER_SGROUPS = {"COP": "copolymer", "CRO": "crosslink", "GRA": "graft", "MER": "mer", "MON": "monomer",
+                          "MOD": "modification", "ANY": "any polymer"}
+
+
+def _drawn_ends(mol: Chem.Mol) -> Chem.Mol:
+    """The record with the polymer ends a drawing program wrote made attachment points (``*``); raise
+    :class:`_RecordProblem` when they give no clean repeat unit.  An input-file audit: both forms below were
+    screened as the small molecule inside (a thiophene unit as thiophene).
+
+    * A polymer bracket (``M  STY ... SRU``, V3000 ``SRU`` S-group): the bonds crossing it are the ends.  An end
+      already drawn as ``*`` or ``R#`` stays; a one-atom stub outside the bracket (the drawn end of a crossing bond)
+      becomes ``*``.  No crossing bond, one, more than two, an end group of more than one atom outside the bracket,
+      two brackets, or another polymer S-group type (copolymer, graft, ...) reject the record.
+    * Attachment points (``M  APO`` in V2000, ``ATTCHPT=1``/``2``/``-1`` in V3000; RDKit's atom property
+      ``molAttchpt``): exactly two, on two different atoms that each carry a hydrogen (a single bond's worth of free
+      valence, which the bond to the next unit replaces), become ``[1*]`` and ``[2*]`` bonded there, as R1 and R2
+      would; one, more, both on one atom, or one on an atom without a hydrogen reject the record with the
+      attachment-point reason code of :mod:`screen.prepare.attachments`.
+
+    The result is judged like any repeat unit by :func:`screen.prepare.validate` (bond, partner, conjugation).
+    """
+    groups = [g for g in Chem.GetMolSubstanceGroups(mol) if g.HasProp("TYPE")]
+    other = sorted({g.GetProp("TYPE") for g in groups if g.GetProp("TYPE") in _OTHER_POLYMER_SGROUPS})
+    if other:
+        raise _RecordProblem("unparsable", (
+            f"a polymer S-group of type {other[0]} ({_OTHER_POLYMER_SGROUPS[other[0]]}) is not one repeat unit with "
+            f"two ends: draw one repeat unit in an SRU bracket, or {_MARK_ENDS}"))
+    brackets = [g for g in groups if g.GetProp("TYPE") == "SRU"]
+    if len(brackets) > 1:
+        raise _RecordProblem("unparsable", (
+            f"{len(brackets)} polymer brackets (SRU): one repeat unit is screened per record; draw one bracket, or "
+            f"{_MARK_ENDS}"))
+    if brackets:
+        mol = _bracket_ends(mol, brackets[0])
+    return _attachment_point_ends(mol)
+
+
+def _atom_text(mol: Chem.Mol, index: int) -> str:
+    """``atom 5 (S) of the atom block``: 1-based, as the record numbers its atoms."""
+    return f"atom {index + 1} ({mol.GetAtomWithIdx(index).GetSymbol()}) of the atom block"
+
+
+def _bracket_ends(mol: Chem.Mol, bracket) -> Chem.Mol:
+    """The ends of an SRU bracket made ``*`` atoms (:func:`_drawn_ends`)."""
+    inside = set(bracket.GetAtoms())
+    crossing = []
+    for bond in mol.GetBonds():
+        a, b = bond.GetBeginAtomIdx(), bond.GetEndAtomIdx()
+        if (a in inside) != (b in inside):
+            outer = b if a in inside else a
+            if mol.GetAtomWithIdx(outer).GetAtomicNum() != 1:  # a drawn hydrogen of the unit is no end
+                crossing.append((a if a in inside else b, outer))
+    if not crossing:
+        raise _RecordProblem("unparsable", (
+            "a polymer bracket (SRU) that no bond crosses: the ends of the repeat unit are not drawn; draw each end "
+            f"as a bond crossing the bracket to a * atom, or {_MARK_ENDS}"))
+    if len(crossing) != 2:
+        code = "attachment_single" if len(crossing) == 1 else "attachment_too_many"
+        raise _RecordProblem(code, (
+            f"a polymer bracket (SRU) crossed by {len(crossing)} bond{'s' if len(crossing) > 1 else ''}: a repeat "
+            f"unit has exactly two ends (branched units and networks are not screened); {_MARK_ENDS}"))
+    stubs = []
+    for _, outer in crossing:
+        atom = mol.GetAtomWithIdx(outer)
+        if atom.GetAtomicNum() == 0:
+            continue  # drawn as * or R#: already an attachment point
+        heavy = [n.GetIdx() for n in atom.GetNeighbors() if n.GetAtomicNum() != 1]
+        if len(heavy) > 1:
+            raise _RecordProblem("unparsable", (
+                f"a polymer bracket (SRU) with an end group outside it ({_atom_text(mol, outer)} and what hangs on "
+                "it): the repeat unit is screened alone, and the end group would be lost without a word; end each "
+                f"bond crossing the bracket in a * atom (or {_MARK_ENDS}) and leave the end groups out"))
+        stubs.append(outer)
+    if not stubs:
+        return mol
+    edit = Chem.RWMol(mol)
+    hydrogens = []
+    for index in stubs:
+        atom = edit.GetAtomWithIdx(index)
+        hydrogens += [n.GetIdx() for n in atom.GetNeighbors() if n.GetAtomicNum() == 1]
+        atom.SetAtomicNum(0)
+        atom.SetIsotope(0)
+        atom.SetFormalCharge(0)
+        atom.SetNumExplicitHs(0)
+        atom.SetNoImplicit(True)
+        atom.SetIsAromatic(False)
+    for index in sorted(hydrogens, reverse=True):
+        edit.RemoveAtom(index)
+    return _settled(edit)
+
+
+def _settled(edit: Chem.RWMol) -> Chem.Mol:
+    """An edited record, sanitised when it can be (else with its valences computed leniently: validation says
+    what is wrong)."""
+    mol = edit.GetMol()
+    try:
+        Chem.SanitizeMol(mol)
+    except Exception:  # noqa: BLE001 - the checks of validate() name the problem
+        mol.UpdatePropertyCache(strict=False)
+    return mol
+
+
+def _attachment_point_ends(mol: Chem.Mol) -> Chem.Mol:
+    """The attachment points of a record (``M  APO``, ``ATTCHPT=``) made ``[1*]``/``[2*]`` atoms
+    (:func:`_drawn_ends`)."""
+    points: list[tuple[int, int]] = []
+    for atom in mol.GetAtoms():
+        if atom.HasProp("molAttchpt"):
+            value = atom.GetIntProp("molAttchpt")
+            points += [(atom.GetIdx(), 1), (atom.GetIdx(), 2)] if value == -1 else [(atom.GetIdx(), value)]
+    if not points:
+        return mol
+    where = ", ".join(_atom_text(mol, i) for i in dict.fromkeys(i for i, _ in points))
+    if len(points) == 1:
+        raise _RecordProblem("attachment_single", (
+            f"one attachment point (M  APO / ATTCHPT on {where}): a polymer repeat unit needs two, a molecule "
+            f"none; {_MARK_ENDS}, or remove the attachment point of a molecule"))
+    if len(points) > 2:
+        raise _RecordProblem("attachment_too_many", (
+            f"{len(points)} attachment points (M  APO / ATTCHPT on {where}): a polymer repeat unit has exactly two; "
+            f"{_MARK_ENDS}"))
+    if points[0][0] == points[1][0]:
+        raise _RecordProblem("attachment_same_atom", (
+            f"both attachment points (M  APO / ATTCHPT) are on {where}: the two ends of a repeat unit must be "
+            f"different atoms; {_MARK_ENDS} on the two backbone atoms that bond to the next units"))
+    for index, label in points:
+        atom = mol.GetAtomWithIdx(index)
+        if atom.GetTotalNumHs(includeNeighbors=True) < 1:
+            raise _RecordProblem("attachment_no_hydrogen", (
+                f"attachment point {label} (M  APO / ATTCHPT) sits on {_atom_text(mol, index)}, which has no "
+                "hydrogen to replace (no free valence for the bond to the next unit); "
+                f"{_MARK_ENDS} on backbone atoms that carry a hydrogen in the monomer"))
+    edit = Chem.RWMol(mol)
+    hydrogens = []
+    for index, label in points:
+        atom = edit.GetAtomWithIdx(index)
+        drawn = [n.GetIdx() for n in atom.GetNeighbors() if n.GetAtomicNum() == 1 and n.GetIdx() not in hydrogens]
+        if drawn and not atom.GetNumImplicitHs():
+            hydrogens.append(drawn[0])  # a hydrogen drawn as an atom: the attachment point replaces it
+        elif atom.GetNumExplicitHs() and not atom.GetNumImplicitHs():
+            atom.SetNumExplicitHs(atom.GetNumExplicitHs() - 1)
+        atom.ClearProp("molAttchpt")
+        end = edit.AddAtom(Chem.Atom(0))
+        edit.GetAtomWithIdx(end).SetIsotope(label)
+        edit.GetAtomWithIdx(end).SetNoImplicit(True)
+        edit.AddBond(index, end, Chem.BondType.SINGLE)
+    for index in sorted(hydrogens, reverse=True):
+        edit.RemoveAtom(index)
+    return _settled(edit)
 
 
 def _repeated_r_labels(mol) -> str:
@@ -473,17 +855,37 @@ def _sdf_starts(text: str) -> list[int]:
     return starts
 
 
-def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], list[int]]:
-    """Parse an SD file; unreadable records become rows with a read error. Also each record's first file line."""
+def _sdf_title_id(title: str, data: dict[str, str]) -> str:
+    """The id of an SD record: its title line, else (an empty title, as many exports write it) the first non-empty
+    data item named ``ID`` or another id spelling (:data:`ID_ALIASES`, exact ``id`` first); '' when neither.
+
+    Examples
+    --------
+    >>> _sdf_title_id("", {"Name": "x", "Compound ID": "C-7", "ID": "007"}), _sdf_title_id("T1", {"ID": "007"})
+    ('007', 'T1')
+    """
+    if title:
+        return title
+    keys = sorted((k for k in data if _header_key(k) in ID_ALIASES and data[k].strip()),
+                  key=lambda k: k.strip().lower() != "id")
+    return data[keys[0]].strip() if keys else ""
+
+
+def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], list[int], str]:
+    """Parse an SD file; unreadable records become rows with a read error. Also each record's first file line, and
+    the data item that may hold ids (``"data item 'Catalog'"``, for the console line about generated ids)."""
     records: list[dict[str, str]] = []
     passthrough: list[str] = []
     column_of: dict[str, str] = {}
+    untitled: list[dict[str, str]] = []  # the data items of the records without any id
     for number, block in enumerate(_sdf_records(text), start=1):
         lines = block.split("\n")
         title = lines[0].strip() if lines else ""
         end = next((i for i, ln in enumerate(lines) if ln.startswith("M  END")), None)
         data = _sdf_data_items(lines[end + 1 :]) if end is not None else {}
-        record = {"id": title, "smiles_input": "", "name": "", "role": "", "read_error": ""}
+        record = {"id": _sdf_title_id(title, data), "smiles_input": "", "name": "", "role": "", "read_error": ""}
+        if not record["id"]:
+            untitled.append(data)
         for key, value in data.items():
             low = key.strip().lower()
             if low in ("name", "role") and not record[low]:
@@ -499,8 +901,10 @@ def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], l
                 "no 'M  END' line"
             )
         else:
-            smiles, detail = _molblock_to_smiles("\n".join(lines[: end + 1]) + "\n")
-            if smiles is None:
+            smiles, detail, code = _read_molblock("\n".join(lines[: end + 1]) + "\n")
+            if smiles is None and code:
+                record["read_error"] = f"{code}:SDF record {number} (title {_snippet(title)}): {detail}"
+            elif smiles is None:
                 detail = detail or _molblock_problem(lines[: end + 1]) or (
                     "RDKit rejected the connection table"
                 )
@@ -514,7 +918,8 @@ def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], l
     for record in records:
         for col in passthrough:
             record.setdefault(col, "")
-    return records, passthrough, _sdf_starts(text)
+    hint = _id_like_column(untitled, [(k, k) for k in dict.fromkeys(k for d in untitled for k in d)])
+    return records, passthrough, _sdf_starts(text), (f"data item {hint!r}" if hint else "")
 
 
 def generated_id(fmt: str | None, line: int | None, row: int) -> str:
@@ -571,6 +976,52 @@ def assign_missing_ids(ids: list[str], rows: list[int],
     return out, notes
 
 
+#: console lines already said by this process: (file, size, modification time, text). The dry run reads the
+#: candidate file several times (its checks, the partners' role), and each read would say the same
+_SAID: set[tuple[str, int, int, str]] = set()
+
+
+def _say_once(path: Path, text: str) -> None:
+    """Print ``text`` on stderr unless this process said it already of this file as it is now."""
+    try:
+        stat = path.stat()
+        key = (str(path.resolve()), stat.st_size, stat.st_mtime_ns, text)
+    except OSError:
+        key = (str(path), -1, -1, text)
+    if key in _SAID:
+        return
+    _SAID.add(key)
+    print(text, file=sys.stderr)
+
+
+def generated_ids_line(name: str, ids: list[str], hint: str = "") -> str:
+    """The one console line about the ids given to rows without one (``hint``: a column that looks like ids,
+    ``"column 'Name'"``, from the reader).
+
+    :func:`read_candidates` says it on stderr, once per file and process: on the console when ``dascreen run`` checks
+    the file, in the prepare job's log (``OUT/logs/<batch>/prepare.log``) in the workflow.  Before, only the log said
+    it, and a file whose ids were under another column name was screened under ``line-N`` ids without a word on the
+    console (an input-file audit).
+
+    Examples
+    --------
+    >>> print(generated_ids_line("c.csv", ["line-2", "line-3"], "column 'Compound #'"))  # doctest: +ELLIPSIS
+    dascreen: 2 rows of c.csv had no id; each got one ...: 'line-2', 'line-3' (...); column 'Compound #' holds a \
+different value on every row: to use it as the id, name it 'id'
+    """
+    shown = ", ".join(repr(i) for i in ids[:5]) + (", ..." if len(ids) > 5 else "")
+    rows = "1 row" if len(ids) == 1 else f"{len(ids)} rows"
+    text = (f"dascreen: {rows} of {name} had no id; each got one named after its place in the file (line-N: file "
+            f"line N; record-N: SD record N): {shown} (note 'missing_id' in levels.csv, 'generated_ids' in "
+            "manifest.meta.json)")
+    if hint.startswith("data item"):
+        text += (f"; {hint} holds a different value on every record without a title: to use it as the id, put it "
+                 "in the title line or name the data item 'ID'")
+    elif hint:
+        text += f"; {hint} holds a different value on every row: to use it as the id, name it 'id'"
+    return text
+
+
 def generated_id_names(frame: pd.DataFrame, rows: list[int]) -> list[str] | None:
     """:func:`generated_id` of each row of a frame read by :func:`read_candidates` (its file lines in
     ``frame.attrs``); ``None`` for a frame that does not record them (built in code: ``row-<row>``)."""
@@ -615,15 +1066,18 @@ def read_candidates(path: str | os.PathLike[str]) -> pd.DataFrame:
     fmt, gz = _format_of(path)
     text = _read_text(path, gz, fmt)
     if fmt == "csv":
-        records, passthrough, lines = _read_csv(path, text)
+        records, passthrough, lines, hint = _read_csv(path, text)
     elif fmt == "smi":
-        records, passthrough, lines = _read_smi(path, text)
+        records, passthrough, lines, hint = _read_smi(path, text)
     else:
-        records, passthrough, lines = _read_sdf(path, text)
+        records, passthrough, lines, hint = _read_sdf(path, text)
     rows = list(range(len(records)))
     places = lines if len(lines) == len(records) else [None] * len(records)
     ids, notes = assign_missing_ids([r["id"] for r in records], rows,
                                     [generated_id(fmt, line, row) for row, line in zip(rows, places)])
+    given = [ident for ident, note in zip(ids, notes) if note]
+    if given:
+        _say_once(path, generated_ids_line(path.name, given, hint))
     columns: dict[str, list[Any]] = {
         "row": rows,
         "id": ids,

@@ -15,7 +15,12 @@ import pandas as pd
 
 from screen.io import csv_text as _csv_text
 
-__all__ = ["safe_csv_frame", "safe_csv_text"]
+__all__ = ["safe_csv_frame", "safe_csv_text", "safe_csv_bytes", "SAFE_CSV_ENCODING"]
+
+#: encoding of ``ranking.safe.csv``: UTF-8 with a byte-order mark, which a spreadsheet program on Windows needs to
+#: read the text as UTF-8 (without it, accented ids showed as mojibake: an input-file audit); pandas, the
+#: :mod:`csv` readers of :mod:`screen.io` (``utf-8-sig``) and the candidate reader skip the mark
+SAFE_CSV_ENCODING = "utf-8-sig"
 
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 _PLAIN_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
@@ -143,3 +148,16 @@ def safe_csv_text(ranking: pd.DataFrame, csv_text: str | None = None) -> str:
     if csv_text is not None and not _needs_neutralising(ranking):
         return csv_text
     return _csv_text(safe_csv_frame(ranking), "\n")
+
+
+def safe_csv_bytes(ranking: pd.DataFrame, csv_text: str | None = None) -> bytes:
+    r"""The bytes of ``ranking.safe.csv``: :func:`safe_csv_text` encoded as :data:`SAFE_CSV_ENCODING` (a UTF-8
+    byte-order mark first).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> safe_csv_bytes(pd.DataFrame({"id": ["P\u00e9r"], "homo_ev": [-5.4]}))
+    b'\xef\xbb\xbfid,homo_ev\nP\xc3\xa9r,-5.4\n'
+    """
+    return safe_csv_text(ranking, csv_text).encode(SAFE_CSV_ENCODING)

@@ -8,7 +8,7 @@ from pathlib import Path
 import pandas as pd
 
 from screen.io import atomic_path
-from screen.report.export import safe_csv_text
+from screen.report.export import safe_csv_bytes
 from screen.report.page import render_report
 
 __all__ = ["write_report"]
@@ -90,7 +90,6 @@ def write_report(ranking: pd.DataFrame, levels: pd.DataFrame, partner: dict, met
         os.chmod(tmp, _FILE_MODE)
     with atomic_path(out_dir / "ranking.safe.csv") as tmp:
         source = ranking if ranking is not None else pd.DataFrame()
-        with open(tmp, "w", encoding="utf-8", newline="") as fh:
-            fh.write(safe_csv_text(source, ranking_csv))
+        tmp.write_bytes(safe_csv_bytes(source, ranking_csv))  # UTF-8 with a BOM: what a spreadsheet needs
         os.chmod(tmp, _FILE_MODE)
     return target
