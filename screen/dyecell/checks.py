@@ -27,17 +27,19 @@ screen.errors.InputError: my_dyes.csv: line 2 (id 'd1'), column e00_ev = 590: E0
 from __future__ import annotations
 
 import math
+import re
 
 import numpy as np
 import pandas as pd
 
-from screen.dyecell.scales import ABSOLUTE_NHE_V, needs_solvent, to_nhe
+from screen.dyecell.scales import ABSOLUTE_NHE_V, needs_solvent, solvent_conflict, to_nhe
 from screen.errors import InputError
 
 __all__ = ["E_OX_RANGE_V_NHE", "E00_RANGE_EV", "POTENTIAL_RANGE_V_NHE", "THRESHOLD_RANGE_EV", "SIGMA_MAX",
            "NO_ANCHOR_WORDS", "e_ox_problem", "e00_problem", "potential_problem", "vacuum_problem",
            "threshold_problem", "check_dye_file", "smiles_problem", "unreadable_smiles", "reference_conflict",
-           "merge_reference_alias", "extra_fields_problem", "check_field_counts", "anchor_column"]
+           "merge_reference_alias", "extra_fields_problem", "check_field_counts", "anchor_column",
+           "decimal_comma_hint"]
 
 #: accepted E(S⁺/S) of a dye [V vs NHE]: organic sensitisers lie roughly in −0.5…+2.5 V (common practice);
 #: 0.5 V of margin each side so that an unusual dye is ranked (and marked not viable) rather than refused
@@ -185,6 +187,20 @@ def threshold_problem(value: float) -> str | None:
     return _mv_hint(value, "eV") or f"{_g(value)} eV is above {hi:g} eV: no dye could meet it; give it in eV, e.g. 0.2"
 
 
+def decimal_comma_hint(text: str) -> str | None:
+    """The number a text written with a decimal comma means (``"0,56"`` → ``"0.56"``), None for any other text.
+
+    Examples
+    --------
+    >>> decimal_comma_hint("-0,5"), decimal_comma_hint("abc")
+    ('-0.5', None)
+    """
+    text = str(text).strip()
+    if not re.fullmatch(r"[+\-\u2212]?\d*,\d+", text):
+        return None
+    return text.replace(",", ".").replace("\u2212", "-")
+
+
 def _line(frame: pd.DataFrame, i: int) -> int:
     """File line of row ``i`` (header = line 1) when the index is the file's row number."""
     idx = frame.index[i]
@@ -260,7 +276,10 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
     Checks every row: an id that is present and unique; ``e_ox_v_nhe`` (or
     ``e_ox_v`` with ``e_ox_reference``, and ``solvent`` for a ferrocene
     reference) and ``e00_ev`` present, numbers, finite and within
-    :data:`E_OX_RANGE_V_NHE` and :data:`E00_RANGE_EV`; σ columns empty or ≥ 0.
+    :data:`E_OX_RANGE_V_NHE` and :data:`E00_RANGE_EV`; σ columns empty or ≥ 0;
+    a reference id that carries its solvent (``fc-mecn``) and a ``solvent`` that
+    names another one (:func:`screen.dyecell.scales.solvent_conflict`).  A number
+    written with a decimal comma is named as such (:func:`decimal_comma_hint`).
 
     Parameters
     ----------
@@ -314,7 +333,10 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
             try:
                 out[i] = float(text)
             except ValueError:
-                problems.append(f"{at(i, col, text)}: not a number; write the value in {unit}, e.g. {example}")
+                comma = decimal_comma_hint(text)
+                problems.append(f"{at(i, col, text)}: not a number; "
+                                + (f"a decimal comma? write {comma} ({unit}, with a decimal point)" if comma else
+                                   f"write the value in {unit}, e.g. {example}"))
                 bad.add((i, col))
                 continue
             if not math.isfinite(out[i]):
@@ -346,7 +368,11 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
 
     for i in range(len(frame)):
         col = "e_ox_v_nhe"
-        if math.isfinite(e_ox[i]) and math.isfinite(raw[i]) and refs[i] \
+        clash = solvent_conflict(refs[i], solv[i], "e_ox_reference") if refs[i] else None
+        if clash:  # a reference id with its own solvent (fc-mecn) and a solvent column naming another one
+            problems.append(f"line {_line(frame, i)} (id {ids[i]!r}): {clash}")
+            bad.update({(i, "e_ox_v"), (i, "e_ox_v_nhe")})
+        if math.isfinite(e_ox[i]) and math.isfinite(raw[i]) and refs[i] and not clash \
                 and not (needs_solvent(refs[i]) and not solv[i]):  # both given: they must say the same
             try:
                 other = float(to_nhe(raw[i], refs[i], solv[i]))
@@ -358,7 +384,7 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
                                 "of them")
                 bad.add((i, col))
                 continue
-        if math.isnan(e_ox[i]) and math.isfinite(raw[i]):
+        if math.isnan(e_ox[i]) and math.isfinite(raw[i]) and not clash:
             col = "e_ox_v"
             msg = convert(i)
             if msg:

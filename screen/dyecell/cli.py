@@ -11,7 +11,7 @@ is not the run's own levels goes to a folder of its own
 (``…--levels-<file>-<hash>``, :func:`screen.dyecell.stage.levels_tag`) and does
 not become the default input; without either it re-ranks the input ranked
 last in ``OUT`` (recorded in ``OUT/dyecell/inputs.json``); ``--list`` prints the
-oxide and mediator libraries; ``--refit`` computes the dye reference set with
+oxide and mediator libraries and the reference electrodes; ``--refit`` computes the dye reference set with
 the run's protocol and installs the dye models (replacing installed ones only
 with ``--replace-installed``; never with a ``--levels`` file of measured values).
 """
@@ -46,6 +46,15 @@ def _print_libraries() -> None:
         med = load_mediators()[["id", "e_redox_v_nhe", "min_drive_reg_ev", "from_memory", "name"]]
         print(med.to_string(index=False, na_rep="-"))
         print(f"({MEDIATORS_FILE}; potentials in V vs NHE; min_drive_reg_ev '-' = the configured threshold)")
+        from screen.dyecell.scales import ELECTRODES_FILE, electrodes
+
+        ref = electrodes().reset_index()
+        ref = ref[ref["id"].ne("vacuum")][["id", "e_vs_nhe_v", "solvent", "from_memory", "name"]]
+        print()
+        print(ref.to_string(index=False, na_rep="-"))
+        print(f"({ELECTRODES_FILE}; reference electrodes: E vs NHE = E vs the reference + e_vs_nhe_v; column "
+              "reference takes an id, or NHE, SCE, Ag/AgCl, or Fc with the solvent in column solvent: acetonitrile "
+              "(MeCN), dichloromethane (CH2Cl2), DMF or THF)")
     print("Own values: a one-row CSV (id,band_edge_v_nhe[,type] or id,e_redox_v_nhe; or band_edge_v/e_redox_v with a "
           "column reference, and solvent for Fc) passed as --oxide/--mediator.")
 
@@ -86,6 +95,9 @@ def _print_ranking(path: Path, top: int, listed: frozenset = frozenset()) -> Non
     if len(show):
         with pd.option_context("display.width", 250, "display.max_columns", 30):
             print(show[cols].to_string(index=False, na_rep="-"))
+        if str(meta["oxide"].get("type", "")).strip().lower() == "p":
+            print("  (p-type oxide: e_ox_excited_v_nhe is the dye's estimated reduction potential E(S/S-) ~ "
+                  "E(S+/S) - E00/e)")
     for _, row in table[~table["viable"].astype(str).str.lower().eq("true")].head(top).iterrows():
         print(f"  {str(row['id'])[:24]}: {row['viability']}")
     if not_ranked:
@@ -318,7 +330,8 @@ def _set_aside(candidates: Path):
     Returns
     -------
     (pandas.DataFrame or None, pandas.DataFrame)
-        The file as read (None when it holds no ``*`` or ``R#`` at all) and the
+        The file as read (None when it holds no ``*``, ``R#``, drawn attachment point (``M  APO``,
+        ``ATTCHPT``) or polymer bracket (``SRU``) at all) and the
         rows set aside: ``row`` (0-based input position), ``id``, ``smiles``,
         ``smiles_input``, ``name``, ``status``, ``reason``, ``error``, ``representation``.
     """
@@ -331,7 +344,9 @@ def _set_aside(candidates: Path):
                                   "representation"])
     if candidates.suffix.lower() != ".gz":
         data = candidates.read_bytes()
-        if b"*" not in data and b"R#" not in data:
+        # the marks the reader turns into attachment points (screen.prepare.readers: R-group atoms, a drawing
+        # program's attachment points, an SRU bracket)
+        if not any(mark in data for mark in (b"*", b"R#", b"M  APO", b"ATTCHPT", b"SRU")):
             return None, aside
     frame = read_candidates(candidates)
     maybe = frame["smiles_input"].str.contains("*", regex=False) | frame["read_error"].ne("")
@@ -520,7 +535,8 @@ def add_dyecell(sub) -> None:
                         "and with a --levels file of measured values, which uses no model")
     p.add_argument("--replace-installed", action="store_true",
                    help="with --refit: replace the dye models installed for this protocol (e.g. the shipped ones)")
-    p.add_argument("--list", action="store_true", help="print the oxide and mediator libraries and stop")
+    p.add_argument("--list", action="store_true",
+                   help="print the oxide and mediator libraries and the reference electrodes, and stop")
     p.add_argument("--overwrite", action="store_true",
                    help="accept an output folder that holds the run of another candidate file (compared by "
                         "path and content of the file you give)")

@@ -3,7 +3,9 @@
 Potentials in V vs NHE on the left axis, drawn the way electrochemists draw
 them (more negative potentials — higher electron energies — at the top); the
 right axis gives the same levels on the vacuum scale, −e(E + 4.44 V)
-(Trasatti 1986).
+(Trasatti 1986).  That absolute scale puts ferrocene in acetonitrile at
+−5.07 eV; the film scale of the donor/acceptor reports puts it at −4.8 eV, so
+the same couple reads 0.27 eV lower here (the report's caption says so).
 
 References
 ----------
@@ -62,7 +64,7 @@ def _drive_label(value: float, thr: float, low: bool) -> str:
 
 
 def _thresholds(meta: dict) -> tuple[float, float]:
-    """Injection and regeneration thresholds of the run [eV] (the mediator's own regeneration one if set)."""
+    """Injection and regeneration thresholds of the run [eV] (``regeneration_threshold_ev``: the one that applied)."""
     thr_inj = num(get(meta, "model", "min_drive_inj_ev"))
     thr_reg = num(meta.get("regeneration_threshold_ev"))
     if math.isnan(thr_reg):
@@ -242,7 +244,7 @@ def dyecell_figure(rows: pd.DataFrame, meta: dict):
     ax.set_axisbelow(True)
     sec = ax.secondary_yaxis("right", functions=(lambda v: -(v + ABSOLUTE_NHE_V),
                                                  lambda e: -e - ABSOLUTE_NHE_V))
-    sec.set_ylabel("Energy vs vacuum [eV]")
+    sec.set_ylabel("Energy vs vacuum, \u2212e(E + 4.44 V) [eV]")
     if n == 0:
         ax.text(0.5, 0.5, "no dye to draw", transform=ax.transAxes, ha="center", color=_SLATE)
     from matplotlib.lines import Line2D

@@ -77,10 +77,16 @@ _REGISTRY = (
                                  "and E₀₋₀ are extrapolations", "info"),
     Flag("outside_calibration", "E(S⁺/S) or E₀₋₀ more than 0.1 V / 0.1 eV outside the range of the calibration "
                                 "dyes: an extrapolation", "info"),
-    Flag("p_type_estimate", "p-type cell: the dye's reduction potential is estimated as E(S⁺/S) − E₀₋₀ (exciton "
-                            "binding neglected), so the driving forces are rough", "info"),
+    Flag("p_type_estimate", "p-type cell: the dye's reduction potential E(S/S⁻) (column e_ox_excited_v_nhe) is "
+                            "estimated as E(S⁺/S) − E₀₋₀/e, neglecting exciton binding; the electrochemical gap is "
+                            "usually larger than E₀₋₀, so the estimate overstates the hole-injection driving force and "
+                            "understates the regeneration driving force, each by the difference", "info"),
     Flag("detailed_balance_cap", "the estimate reached the detailed-balance limit for E₀₋₀ and was capped there",
          "info"),
+    Flag("few_viable_samples", "fewer than two of the Monte-Carlo samples of the σ of E(S⁺/S) and E₀₋₀ stay viable: "
+                               "the dye works at its estimated potentials but almost nowhere around them, so the "
+                               "spread of its efficiency is not known (pce_sigma_pct left empty, not 0); p_viable says "
+                               "how rarely it works", "info"),
 )
 
 #: every flag by code

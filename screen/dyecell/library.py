@@ -28,6 +28,12 @@ than the header is refused with its line (:func:`screen.dyecell.checks.check_fie
 Values are checked (:mod:`screen.dyecell.checks`): a potential outside
 −1.5…+2 V vs NHE, a positive vacuum-scale energy or a negative threshold is
 refused with the likely slip (vacuum-scale eV, mV, a dropped sign) and the fix.
+A plausible value that still lies outside the range of the built-in library by
+more than :data:`LIBRARY_MARGIN_V` (iodide typed as −0.35 V, an n-type edge of
++0.5 V) is ranked, with a notice naming the likely sign slip
+(:func:`plausibility_notice`, on stderr and in the report).  A reference id that
+carries its solvent (``fc-mecn``) and a ``solvent`` column naming another one
+are refused (:func:`screen.dyecell.scales.solvent_conflict`).
 
 The band edge is a flat-band / conduction-band reference that moves with pH
 and electrolyte (about −59 mV per pH unit, and Li⁺ or bases shift it); the
@@ -62,23 +68,29 @@ import pandas as pd
 
 from screen.dyecell.checks import (
     check_field_counts,
+    decimal_comma_hint,
     potential_problem,
     reference_conflict,
     threshold_problem,
     vacuum_problem,
 )
-from screen.dyecell.scales import needs_solvent, nhe_from_vacuum_ev, to_nhe
+from screen.dyecell.scales import needs_solvent, nhe_from_vacuum_ev, reference_entry, solvent_conflict
 from screen.errors import InputError
 from screen.io import separator_problem
 
-__all__ = ["Material", "OXIDES_FILE", "MEDIATORS_FILE", "load_oxides", "load_mediators", "resolve_oxide",
-           "resolve_mediator", "resolve_material", "close_ids", "type_assumed_notice"]
+__all__ = ["Material", "OXIDES_FILE", "MEDIATORS_FILE", "LIBRARY_MARGIN_V", "load_oxides", "load_mediators",
+           "resolve_oxide", "resolve_mediator", "resolve_material", "close_ids", "type_assumed_notice",
+           "plausibility_notice"]
 
 _DATA = Path(__file__).resolve().parent.parent / "data"
 #: built-in semiconductor table
 OXIDES_FILE = _DATA / "semiconductors.csv"
 #: built-in mediator table
 MEDIATORS_FILE = _DATA / "mediators.csv"
+#: a file's band edge or mediator potential further than this outside the range of the library's (of that role
+#: and oxide type) gets a notice (:func:`plausibility_notice`): band edges move by about ±0.2 V with pH and
+#: additives, and reported couples reach a little beyond the library's (common practice) [V]
+LIBRARY_MARGIN_V = 0.3
 
 
 @dataclass(frozen=True)
@@ -218,23 +230,47 @@ def _one_row(path: Path, what: str) -> dict:
     return {k.strip(): v for k, v in frame.iloc[0].to_dict().items()}
 
 
+def _columns_read(row: dict, base: str) -> str:
+    """The columns of a one-row file, and a rename for one that looks like a wanted column (other case, a unit)."""
+    wanted = (f"{base}_v_nhe", f"{base}_v", f"{base}_ev")
+    hints = []
+    for col in row:
+        plain = re.sub(r"[\(\[].*?[\)\]]", " ", str(col)).strip().lower()  # units in brackets dropped
+        plain = re.sub(r"[\s\-]+", "_", plain).strip("_")
+        unit = str(col).lower()
+        if plain == base and "nhe" in unit:
+            plain = f"{base}_v_nhe"
+        if plain in wanted and col != plain:
+            hints.append(f"rename {col!r} to {plain}")
+    shown = f"the file's columns are {list(row)}"
+    if hints:
+        return f"{shown}; column names are read exactly, lower case and without units: {'; '.join(hints)}"
+    return f"{shown} (column names are read exactly, lower case and without units)"
+
+
 def _potential_from_row(row: dict, base: str, where: str) -> tuple[float, str]:
     """``<base>_v_nhe``, or ``<base>_v`` + ``reference`` (+ ``solvent``), or ``<base>_ev`` (vacuum).
 
     The value must be plausible for an oxide or a mediator
     (:data:`screen.dyecell.checks.POTENTIAL_RANGE_V_NHE`); a slip of units or
-    sign is refused with the fix.
+    sign is refused with the fix.  A converted value records the reference, the
+    offset added, its ``electrodes.csv`` id and whether it is recalled
+    (``from_memory``) in the conversion text.
     """
     given = [c for c in (f"{base}_v_nhe", f"{base}_v", f"{base}_ev") if _text(row.get(c))]
     if len(given) != 1:
+        found = f"found {given}" if given else f"found none; {_columns_read(row, base)}"
         raise InputError(f"{where}: give exactly one of {base}_v_nhe [V vs NHE], {base}_v with a column named "
                          f"'reference' (NHE, SCE, Ag/AgCl, or Fc with a column named 'solvent'), or {base}_ev "
-                         f"[eV, vacuum scale]; found {given or 'none'}")
+                         f"[eV, vacuum scale]; {found}")
     col = given[0]
     value = _float(row[col])
     if not math.isfinite(value):
         unit = "eV on the vacuum scale, e.g. -4.0" if col.endswith("_ev") else "V, e.g. 0.5"
-        raise InputError(f"{where}: {col} = {row[col]!r} is not a finite number; write it in {unit}")
+        comma = decimal_comma_hint(_text(row[col]))
+        raise InputError(f"{where}: {col} = {row[col]!r} is not a finite number; "
+                         + (f"a decimal comma? write {comma} (with a decimal point)" if comma else
+                            f"write it in {unit}"))
     if col.endswith("_v_nhe"):
         problem = potential_problem(value, col, f"{base}_ev")
         if problem:
@@ -256,13 +292,20 @@ def _potential_from_row(row: dict, base: str, where: str) -> tuple[float, str]:
     reference, solvent = _text(row[ref_col]), _text(row.get("solvent"))
     if needs_solvent(reference) and not solvent:
         raise InputError(f"{where}: {ref_col} = {reference!r} needs a column named 'solvent': Fc+/Fc vs NHE "
-                         "depends on it (acetonitrile +0.63 V, dichloromethane +0.70 V; see dascreen dyecell "
-                         "--list and screen/data/electrodes.csv)")
-    out = float(to_nhe(value, reference, solvent))
+                         "depends on it (acetonitrile +0.63 V, dichloromethane +0.70 V; `dascreen dyecell --list` "
+                         "prints every reference electrode and solvent of screen/data/electrodes.csv)")
+    clash = solvent_conflict(reference, solvent, ref_col)
+    if clash:
+        raise InputError(f"{where}: {clash}")
+    entry = reference_entry(reference, solvent)
+    out = value + entry["offset_v"]
     problem = potential_problem(out, f"{base}_v_nhe", f"{base}_ev")
     if problem:
         raise InputError(f"{where}, column {col} = {value:g} V vs {reference} (= {out:.2f} V vs NHE): {problem}")
-    return out, f"{col} = {value} V vs {reference}{f' ({solvent})' if solvent else ''} → {out:.3f} V vs NHE"
+    recalled = ", from memory" if entry["from_memory"] else ""
+    return out, (f"{col} = {value} V vs {reference}{f' ({solvent})' if solvent else ''} "
+                 f"{entry['offset_v']:+.3f} V ({entry['reference']} in electrodes.csv{recalled}) → "
+                 f"{out:.3f} V vs NHE")
 
 
 def _lookup(frame: pd.DataFrame, spec: str) -> dict | None:
@@ -379,6 +422,67 @@ def type_assumed_notice(oxide: Material) -> str:
     return (f"oxide {oxide.id} has no type (column type missing or empty): taken as n-type (its band edge "
             f"{oxide.potential_v_nhe:+.2f} V vs NHE takes electrons from the excited dye); add a column type with n "
             "or p to the file to say so, e.g. type = p for NiO")
+
+
+def _library_range(material: Material) -> tuple[float, float, str, pd.DataFrame] | None:
+    """(low, high, what, rows) of the library potentials a material is compared with (None: nothing to compare)."""
+    if material.role == "oxide":
+        table = load_oxides()
+        rows = table[table["type"].str.strip().str.lower().eq(material.type or "n")]
+        col, what = "band_edge_v_nhe", f"{material.type or 'n'}-type oxides ({OXIDES_FILE.name})"
+    else:
+        rows = load_mediators()
+        col, what = "e_redox_v_nhe", f"mediators ({MEDIATORS_FILE.name})"
+    values = pd.to_numeric(rows[col], errors="coerce").dropna()
+    if values.empty:
+        return None
+    rows = rows.assign(_v=pd.to_numeric(rows[col], errors="coerce"))
+    return float(values.min()), float(values.max()), what, rows
+
+
+def plausibility_notice(material: Material) -> str:
+    """A notice for an oxide band edge or mediator potential outside the library's range ± :data:`LIBRARY_MARGIN_V`
+    (``""`` when inside): ranked anyway, but a dropped or added minus sign is the likely slip, which it names.
+
+    Examples
+    --------
+    >>> plausibility_notice(resolve_mediator("co-bpy3"))
+    ''
+    >>> print(plausibility_notice(Material("m", "m", "mediator", -0.35)))  # doctest: +ELLIPSIS
+    mediator m: E_redox = -0.35 V vs NHE lies outside the +0.35...+0.97 V of the built-in mediators ...
+    """
+    found = _library_range(material)
+    if found is None or not math.isfinite(material.potential_v_nhe):
+        return ""
+    lo, hi, what, rows = found
+    value, margin = float(material.potential_v_nhe), LIBRARY_MARGIN_V
+    if lo - margin <= value <= hi + margin:
+        return ""
+    if material.role == "oxide":
+        label = f"oxide {material.id}: its {'valence' if material.type == 'p' else 'conduction'}-band edge"
+    else:
+        label = f"mediator {material.id}: E_redox"
+    span = f"{lo:+.2f} V" if lo == hi else f"{lo:+.2f}...{hi:+.2f} V"
+    text = (f"{label} = {value:+.2f} V vs NHE lies outside the {span} of the built-in {what} by more than "
+            f"{margin:.1f} V (common-practice margin); it is ranked as given")
+    hints = []
+    flipped = -value
+    if lo - margin <= flipped <= hi + margin:
+        close = rows[(rows["_v"] - flipped).abs() <= 0.02]["id"].tolist()
+        named = f", as {' and '.join(close)}" if close else ""
+        hints.append(f"a sign slip? {flipped:+.2f} V would lie in the library's range{named}")
+    if material.role == "oxide":
+        other = "p" if material.type == "n" else "n"
+        swap = _library_range(Material(material.id, material.name, "oxide", value, other))
+        if swap is not None and swap[0] - margin <= value <= swap[1] + margin:
+            article = "an" if other == "n" else "a"
+            hints.append(f"or {article} {other}-type oxide? {value:+.2f} V fits the library's {other}-type oxides: "
+                         f"give type = {other} in the file")
+        elif material.type == "n":
+            hints.append("conduction-band edges of the library's n-type oxides lie at or negative of 0 V vs NHE")
+    if hints:
+        text += "; " + "; ".join(hints)
+    return text + "; check the value, its sign and its reference electrode"
 
 
 def resolve_mediator(spec: str, library: str | Path | None = None) -> Material:

@@ -57,6 +57,12 @@ Thresholds: 0.2 eV for injection and regeneration are rules of thumb of the
 field (common practice, e.g. discussed in [1]_); the iodide/triiodide couple
 needs ~0.5 eV because the dye is regenerated through the I₂•⁻/I⁻ couple [3]_ —
 the mediator table carries such couple-specific thresholds (``min_drive_reg_ev``).
+Those are stated for the n-type step, the regeneration of the *oxidised* dye
+(``mediators.csv`` notes: I₂•⁻/I⁻ for iodide, the small reorganisation energy of
+Cu(I) for the copper couples); the p-type step, the reduced dye giving its
+electron to the mediator (triiodide reduction on NiO), is another reaction, so
+on a p-type oxide the general :data:`DEFAULT_REG_THRESHOLD_EV` applies unless
+``dyecell.min_drive_reg_ev`` is set (:meth:`DyeCellModel.reg_threshold_ev`).
 
 References
 ----------
@@ -99,7 +105,8 @@ from screen.spectrum import (
     sq_limit,
 )
 
-__all__ = ["DyeCellModel", "evaluate", "sample_pce", "TOL_EV", "JSC_MIN_MA_CM2", "sunlight_edge_ev"]
+__all__ = ["DyeCellModel", "evaluate", "sample_pce", "TOL_EV", "JSC_MIN_MA_CM2", "sunlight_edge_ev",
+           "p_type_threshold_note", "DEFAULT_REG_THRESHOLD_EV"]
 
 #: driving forces within this of a threshold meet it (binary floating point) [eV]
 TOL_EV = 1e-9
@@ -150,9 +157,9 @@ class DyeCellModel:
         Smallest injection driving force, 0–2 eV (the bounds of a mediator
         file's threshold, :data:`screen.dyecell.checks.THRESHOLD_RANGE_EV`). [eV]
     min_drive_reg_ev : float or None, default None
-        Smallest regeneration driving force for every mediator (0–2 eV); None: the
-        mediator's own threshold when it has one, else
-        :data:`DEFAULT_REG_THRESHOLD_EV`. [eV]
+        Smallest regeneration driving force for every mediator and oxide (0–2 eV); None:
+        the mediator's own threshold when it has one and the oxide is n-type (the
+        step it is stated for), else :data:`DEFAULT_REG_THRESHOLD_EV`. [eV]
     require_anchor : bool, default True
         A dye without an anchoring group is not viable. False: it stays viable
         and keeps the information flag ``anchor_missing_allowed``.
@@ -237,21 +244,55 @@ class DyeCellModel:
         """
         return float(getattr(self, self.voc_loss_name(oxide)))
 
-    def reg_threshold_ev(self, mediator: Material) -> float:
-        """Regeneration threshold [eV]: :attr:`min_drive_reg_ev` when set (it applies to every mediator), else the
-        mediator's own when it has one, else :data:`DEFAULT_REG_THRESHOLD_EV`.
+    def reg_threshold_ev(self, mediator: Material, oxide: Material | None = None) -> float:
+        """Regeneration threshold [eV]: :attr:`min_drive_reg_ev` when set (it applies to every mediator and oxide),
+        else the mediator's own when it has one and the oxide is n-type (the step those thresholds were stated
+        for: regeneration of the oxidised dye), else :data:`DEFAULT_REG_THRESHOLD_EV`.
 
         Examples
         --------
-        >>> from screen.dyecell.library import resolve_mediator
-        >>> iodide = resolve_mediator("iodide-triiodide")
+        >>> from screen.dyecell.library import resolve_mediator, resolve_oxide
+        >>> iodide, nio = resolve_mediator("iodide-triiodide"), resolve_oxide("nio")
         >>> DyeCellModel().reg_threshold_ev(iodide), DyeCellModel(min_drive_reg_ev=0.7).reg_threshold_ev(iodide)
         (0.5, 0.7)
+        >>> DyeCellModel().reg_threshold_ev(iodide, nio)
+        0.2
+        """
+        return self.reg_threshold_source(mediator, oxide)[0]
+
+    def reg_threshold_source(self, mediator: Material, oxide: Material | None = None) -> tuple[float, str]:
+        """The regeneration threshold [eV] and where it comes from: ``set`` (``dyecell.min_drive_reg_ev``),
+        ``mediator`` (the mediator's own, n-type), ``default`` (the mediator has none) or ``default_p_type`` (the
+        mediator's own is for the n-type step; a p-type oxide takes the default).
+
+        Examples
+        --------
+        >>> from screen.dyecell.library import resolve_mediator, resolve_oxide
+        >>> DyeCellModel().reg_threshold_source(resolve_mediator("iodide-triiodide"), resolve_oxide("nio"))
+        (0.2, 'default_p_type')
         """
         if self.min_drive_reg_ev is not None:
-            return float(self.min_drive_reg_ev)
+            return float(self.min_drive_reg_ev), "set"
         own = mediator.min_drive_reg_ev
-        return float(own) if own is not None and math.isfinite(own) else DEFAULT_REG_THRESHOLD_EV
+        if own is None or not math.isfinite(own):
+            return DEFAULT_REG_THRESHOLD_EV, "default"
+        if oxide is not None and oxide.type == "p":
+            return DEFAULT_REG_THRESHOLD_EV, "default_p_type"
+        return float(own), "mediator"
+
+
+def p_type_threshold_note(mediator: Material) -> str:
+    """Why a p-type ranking does not use the mediator's own regeneration threshold (plain words).
+
+    Examples
+    --------
+    >>> from screen.dyecell.library import resolve_mediator
+    >>> p_type_threshold_note(resolve_mediator("iodide-triiodide"))[:62]
+    "the general 0.20 eV: iodide-triiodide's own 0.50 eV is stated "
+    """
+    return (f"the general {DEFAULT_REG_THRESHOLD_EV:.2f} eV: {mediator.id}'s own {mediator.min_drive_reg_ev:.2f} eV "
+            "is stated for regenerating an oxidised dye on an n-type oxide, not for the p-type step (the reduced "
+            "dye reducing the mediator); set dyecell.min_drive_reg_ev to use another value")
 
 
 def _energetics(e_ox, e00, oxide: Material, mediator: Material):
@@ -306,8 +347,13 @@ def _no_light_words(e00: float) -> str:
             "photocurrent")
 
 
+def _zero(d: float, digits: int) -> bool:
+    """A driving force that is written as zero with ``digits`` decimals (the dye level sits on the other one)."""
+    return round(float(d), digits) == 0.0
+
+
 def _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, thr_reg, voc_raw, loss,
-            loss_name, voc_cap=math.nan) -> str:
+            loss_name, voc_cap=math.nan, thr_source: str = "") -> str:
     """Plain-words reason why dye ``i`` is not viable (every failing check, ';'-joined).
 
     Potentials are given in V vs NHE, driving forces in eV; a driving force is
@@ -315,7 +361,9 @@ def _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, 
     "below" are those of the energy diagram: more negative potentials (higher
     electron energies) are above.  ``voc_cap``: the detailed-balance Voc of the
     dye's E₀₋₀ [V].  An oxide file without a ``type`` adds "type n assumed"
-    wherever the band edge is named.
+    wherever the band edge is named.  A driving force written as 0 reads "at the
+    same potential as"; ``thr_source`` ``default_p_type`` adds why the mediator's
+    own regeneration threshold is not used (:func:`p_type_threshold_note`).
     """
     words = []
     p_type = oxide.type == "p"
@@ -341,9 +389,13 @@ def _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, 
         need = (f"driving force {d_inj[i]:.{d}f} eV; {'hole ' if p_type else ''}injection needs "
                 f"\u2265 {_thr_txt(thr_inj)} eV")
         if p_type:
-            where = ("lies above (more negative than)" if d_inj[i] < 0 else "is only slightly more positive than")
+            where = ("lies at the same potential as" if _zero(d_inj[i], d) else
+                     "lies above (more negative than)" if d_inj[i] < 0 else "is only slightly more positive than")
             words.append(f"excited state E(S*/S\u207b) \u2248 E(S\u207a/S) = {_fmt(e_ox[i], d)} V vs NHE {where} "
                          f"{ox_txt(d)}, so hole injection is not assured ({need})")
+        elif _zero(d_inj[i], d):
+            words.append(f"excited state E(S\u207a/S*) = {_fmt(e_exc[i], d)} V vs NHE lies at the same potential as "
+                         f"{ox_txt(d)}, so injection has no driving force ({need})")
         elif d_inj[i] < 0:
             words.append(f"excited state E(S\u207a/S*) = {_fmt(e_exc[i], d)} V vs NHE lies {abs(d_inj[i]):.{d}f} eV "
                          f"below (more positive than) {ox_txt(d)}, so it cannot inject ({need})")
@@ -352,12 +404,17 @@ def _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, 
                          f"negative than {ox_txt(d)} ({need})")
     if masks["regeneration_low"][i]:
         d = _digits(d_reg[i], thr_reg)
-        need = f"driving force {d_reg[i]:.{d}f} eV; regeneration needs \u2265 {_thr_txt(thr_reg)} eV"
+        note = f"; {p_type_threshold_note(mediator)}" if thr_source == "default_p_type" else ""
+        need = f"driving force {d_reg[i]:.{d}f} eV; regeneration needs \u2265 {_thr_txt(thr_reg)} eV{note}"
         if p_type:
-            where = ("lies below (more positive than)" if d_reg[i] < 0 else "is only slightly more negative than")
+            where = ("lies at the same potential as" if _zero(d_reg[i], d) else
+                     "lies below (more positive than)" if d_reg[i] < 0 else "is only slightly more negative than")
             words.append(f"reduced dye E(S/S\u207b) \u2248 E(S\u207a/S) \u2212 E\u2080\u208b\u2080/e = "
                          f"{_fmt(e_exc[i], d)} V vs NHE {where} {med_txt(d)}, so the reduced dye cannot be "
                          f"regenerated reliably ({need})")
+        elif _zero(d_reg[i], d):
+            words.append(f"ground state E(S\u207a/S) = {_fmt(e_ox[i], d)} V vs NHE lies at the same potential as "
+                         f"{med_txt(d)}, so regeneration has no driving force ({need})")
         elif d_reg[i] < 0:
             words.append(f"ground state E(S\u207a/S) = {_fmt(e_ox[i], d)} V vs NHE lies above (more negative "
                          f"than) {med_txt(d)}, so the oxidised dye cannot be regenerated ({need})")
@@ -429,7 +486,7 @@ def evaluate(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator:
     n = e_ox.size
     anchored = np.ones(n, dtype=bool) if anchored is None else np.broadcast_to(np.asarray(anchored, bool), (n,))
     e_exc, d_inj, d_reg, voc_raw = _energetics(e_ox, e00, oxide, mediator)
-    thr_inj, thr_reg = model.min_drive_inj_ev, model.reg_threshold_ev(mediator)
+    thr_inj, (thr_reg, thr_src) = model.min_drive_inj_ev, model.reg_threshold_source(mediator, oxide)
     loss = model.voc_loss_for(oxide)
     missing = ~(np.isfinite(e_ox) & np.isfinite(e00) & (e00 > 0))
     g_all = np.where(missing, np.nan, e00)
@@ -465,7 +522,7 @@ def evaluate(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediator:
     viability = np.full(n, "viable", dtype=object)
     for i in np.flatnonzero(~viable):
         viability[i] = _reason(i, e_ox, e00, e_exc, d_inj, d_reg, masks, oxide, mediator, thr_inj, thr_reg,
-                               voc_raw, loss, model.voc_loss_name(oxide), float(voc_cap[i]))
+                               voc_raw, loss, model.voc_loss_name(oxide), float(voc_cap[i]), thr_src)
     return {
         "e_ox_excited_v_nhe": e_exc, "drive_inj_ev": d_inj, "drive_reg_ev": d_reg,
         "voc_v": voc, "jsc_ma_cm2": np.where(viable, jsc, np.nan), "ff": np.where(viable, model.ff, np.nan),
@@ -500,7 +557,7 @@ def _block_samples(model: DyeCellModel, eo: np.ndarray, eg: np.ndarray, oxide: M
     absorbed (Jsc ≥ :data:`JSC_MIN_MA_CM2`) and a positive capped Voc.
     """
     jsc_t, jsc_d, sq_t, sq_d, voc_t, voc_d = _tables()
-    thr_inj, thr_reg = model.min_drive_inj_ev - TOL_EV, model.reg_threshold_ev(mediator) - TOL_EV
+    thr_inj, thr_reg = model.min_drive_inj_ev - TOL_EV, model.reg_threshold_ev(mediator, oxide) - TOL_EV
     e_edge, e_med = oxide.potential_v_nhe, mediator.potential_v_nhe
     if oxide.type == "p":
         ok = (eo - e_edge >= thr_inj) & (e_med - (eo - eg) >= thr_reg)
@@ -561,7 +618,8 @@ def sample_pce(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediato
     dict of numpy.ndarray
         ``pce_mean_pct`` (over all samples, a sample that is not viable
         counting 0) [%], ``pce_sigma_pct`` (standard deviation, ddof = 1, of
-        the viable samples only; 0 when fewer than two are viable) [%],
+        the viable samples only; NaN when fewer than two are viable: the
+        spread is not known, and 0 would read as a certain estimate) [%],
         ``p_above_target`` (fraction of all samples above the target) and
         ``p_viable`` (fraction of samples that are viable); NaN where an input
         is missing.  The oxide and mediator potentials are taken as exact.
@@ -610,7 +668,7 @@ def sample_pce(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediato
         pce -= centre[:, None]
         pce *= ok
         s2 = np.einsum("ij,ij->i", pce, pce)
-        out_sigma[a:b] = np.where(count >= 2, np.sqrt(s2 / np.maximum(count - 1, 1)), 0.0)
+        out_sigma[a:b] = np.where(count >= 2, np.sqrt(s2 / np.maximum(count - 1, 1)), np.nan)
     for arr in (out_mean, out_sigma, out_p, out_v):
         arr[missing] = np.nan
     return {"pce_mean_pct": out_mean, "pce_sigma_pct": out_sigma, "p_above_target": out_p, "p_viable": out_v}

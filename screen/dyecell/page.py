@@ -10,7 +10,11 @@ PCE is shown as value ± σ, σ being the spread of the Monte-Carlo samples that
 stay viable, with ``p_viable`` beside it ("7.2 ± 1.4 % · works in 67 % of
 samples").  The caution at the top follows the oxide's type (the ideal voltage
 E_redox − E_CB or E_VB − E_redox) and, for a p-type oxide, says that its PCEs
-are optimistic.
+are optimistic; where the potentials come from is worded by what the dye file
+says (its ``source`` column), a potential converted from another reference
+electrode is named with the offset used and whether it is recalled, and a band
+edge or mediator potential far outside the library's range gets a notice (a
+likely sign slip).
 Styles and the sorting script are those of the bulk-heterojunction report
 (``static/``); every user text is HTML-escaped; nothing is fetched from the
 network.
@@ -32,11 +36,12 @@ import pandas as pd
 
 from screen import __version__
 from screen.dyecell.flags import INFO_FLAGS, describe
+from screen.dyecell.scales import ABSOLUTE_NHE_V, FILM_FC_EV, fc_vs_nhe_v
 from screen.flags import codes_of
 from screen.io import atomic_path
 from screen.report.drawings import molecule_svg
 from screen.dyecell.figure import DIAGRAM_MAX, diagram_rows, dyecell_diagram_svg
-from screen.report.export import safe_csv_frame
+from screen.report.export import safe_csv_bytes
 from screen.report.format import (
     NOT_RECORDED,
     data_value,
@@ -61,10 +66,12 @@ EXPORTS = (
     ("ranking.safe.csv", "the ranking for spreadsheet programs (formula-like text cells neutralised)"),
     ("ranking.meta.json", "oxide, mediator, model parameters, calibration and provenance"),
 )
+#: what the CSV's ``e_ox_excited_v_nhe`` holds on a p-type oxide (added to the ranking.csv line of the file list)
+_P_TYPE_CSV_NOTE = ("; on this p-type oxide the column e_ox_excited_v_nhe holds the dye\u2019s estimated reduction "
+                    "potential E(S/S\u207b) \u2248 E(S\u207a/S) \u2212 E\u2080\u208b\u2080/e, not E(S\u207a/S*)")
 _CAUTION_SOURCE = {
     "computed": ("Potentials come from a semi-empirical quantum-chemistry method with an empirical calibration on a "
                  "small set of recalled literature values"),
-    "measured": "Potentials are the measured values of the input file",
 }
 _CAUTION_REST = (
     ", and the cell model is idealised (sharp absorption edge, fixed photon-to-current efficiency, fill factor "
@@ -89,13 +96,37 @@ NOT_VIABLE_SHOWN = 20
 WEAK_MODEL_RATIO = 0.8
 
 
+def _file_source_words(meta: dict) -> str:
+    """Where a dye file's potentials come from, by what the file says (its ``source`` column), in HTML.
+
+    Examples
+    --------
+    >>> _file_source_words({})
+    'Potentials are taken from the input file as given (no source column: whether they were measured is not recorded)'
+    >>> _file_source_words({"e_ox_sources": {"calibrated from xTB": 2}})
+    'Potentials are taken from the input file, whose source column says: \u201ccalibrated from xTB\u201d'
+    """
+    sources = get(meta, "e_ox_sources", default={}) or {}
+    said = {str(k): v for k, v in sources.items() if str(k).strip() and str(k) != "user file"}
+    if not said:
+        return ("Potentials are taken from the input file as given (no source column: whether they were measured is "
+                "not recorded)")
+    many = len(sources) > 1
+    items = [f"\u201c{esc(shorten(k, 80))}\u201d" + (f" ({esc(v)} dye{'' if v == 1 else 's'})" if many else "")
+             for k, v in list(said.items())[:4]]
+    rest = f" and {len(said) - 4} more" if len(said) > 4 else ""
+    blank = sources.get("user file")
+    none = f", and nothing for {esc(blank)} dye{'' if blank == 1 else 's'}" if blank else ""
+    return f"Potentials are taken from the input file, whose source column says: {', '.join(items)}{rest}{none}"
+
+
 def _caution(meta: dict) -> str:
     """The page's caution: where the potentials come from, the idealised cell for the oxide's type, the p-type
     caveat, and a weak E(S⁺/S) model (HTML).
 
     Examples
     --------
-    >>> "measured values" in _caution({})
+    >>> "as given (no source column" in _caution({})
     True
     >>> "E<sub>redox</sub> \u2212 E<sub>CB</sub>" in _caution({}), "optimistic" in _caution({})
     (True, False)
@@ -107,12 +138,17 @@ def _caution(meta: dict) -> str:
     True
     """
     cal = get(meta, "calibration", default=None)
-    source = "computed" if isinstance(cal, dict) and cal else "measured"
+    source = "computed" if isinstance(cal, dict) and cal else "file"
     p_type = _p_type(meta)
-    out = ('<p class="caution" id="caution"><strong>Screening estimates.</strong> ' + _CAUTION_SOURCE[source]
+    lead = _CAUTION_SOURCE["computed"] if source == "computed" else _file_source_words(meta)
+    out = ('<p class="caution" id="caution"><strong>Screening estimates.</strong> ' + lead
            + _CAUTION_REST.format(ideal=_IDEAL_VOLTAGE["p" if p_type else "n"]) + "</p>")
     if p_type:
         out += _CAUTION_P_TYPE
+    notices = [text(n) for n in (get(meta, "notices", default=[]) or []) if text(n)]
+    if notices:
+        out += ('<p class="caution" id="caution-values"><strong>Check these values.</strong> '
+                + " ".join(esc(n[0].upper() + n[1:]) + "." for n in notices) + "</p>")
     e_ox = (cal or {}).get("e_ox") if source == "computed" else None
     mae, base = num((e_ox or {}).get("loo_mae")), num((e_ox or {}).get("baseline_loo_mae"))
     if e_ox and base > 0 and mae > WEAK_MODEL_RATIO * base:
@@ -122,6 +158,36 @@ def _caution(meta: dict) -> str:
                 "a regeneration verdict within about 0.1 V of its threshold is a coin toss (P(viable) in the table "
                 "says how close), and a dye unlike the reference set can be off by several tenths of a volt.</p>")
     return out
+
+
+def _conversions_html(meta: dict) -> str:
+    """The reference conversions behind the dyes' E(S⁺/S) (``ranking.meta.json`` ``e_ox_conversions``), HTML;
+    ``""`` when no potential was converted.
+
+    Examples
+    --------
+    >>> html = _conversions_html({"e_ox_conversions": [{"reference": "fc-dcm", "name": "Fc+/Fc in dichloromethane",
+    ...                           "offset_v": 0.7, "from_memory": True, "rows": 2}]})
+    >>> "+0.70 V" in html, "recalled" in html, "2 dyes" in html
+    (True, True, True)
+    """
+    conv = [c for c in (get(meta, "e_ox_conversions", default=[]) or []) if isinstance(c, dict)]
+    if not conv:
+        return ""
+    items = []
+    for c in conv:
+        rows = int(num(c.get("rows")) or 0)
+        recalled = (" \u2014 a recalled value (<code>from_memory</code>), check it before relying on absolute "
+                    "numbers" if c.get("from_memory") is True else "")
+        offset = f"{num(c.get('offset_v')):+.3f}"
+        offset = offset[:-1] if offset.endswith("0") else offset
+        against = esc(c.get("name")) or esc(c.get("reference"))
+        items.append(f"<li>{rows} dye{'' if rows == 1 else 's'} given against {against} "
+                     f"(<code>{esc(c.get('reference'))}</code>): {offset} V added{recalled}</li>")
+    return ('<p class="quiet" id="e-ox-conversions">E(S\u207a/S) of these dyes was given against another '
+            "reference electrode and converted to V vs NHE with <code>screen/data/electrodes.csv</code> (per dye: "
+            "columns <code>e_ox_reference</code> and <code>e_ox_offset_v</code> of ranking.csv):</p>"
+            f'<ul class="small">{"".join(items)}</ul>')
 
 
 def _dl(items) -> str:
@@ -173,7 +239,7 @@ def _voc_loss_html(m: dict, p_type: bool) -> str:
 
 
 def _own_threshold(meta: dict) -> str:
-    """Whose regeneration threshold applies: the mediator's own, or a set value beside the mediator's own.
+    """Whose regeneration threshold applies: the mediator's own, a set value, or the default on a p-type oxide.
 
     Examples
     --------
@@ -181,11 +247,21 @@ def _own_threshold(meta: dict) -> str:
     ' (this mediator’s own)'
     >>> _own_threshold({"regeneration_threshold_ev": 0.2, "mediator": {"min_drive_reg_ev": 0.1}})
     ' (set; this mediator’s own 0.10 eV)'
+    >>> _own_threshold({"regeneration_threshold_ev": 0.2, "regeneration_threshold_source": "default_p_type",
+    ...                 "mediator": {"min_drive_reg_ev": 0.5}})[:40]
+    ' (the general default: this mediator’s o'
     """
     own, used = num(get(meta, "mediator", "min_drive_reg_ev")), num(meta.get("regeneration_threshold_ev"))
+    source = text(meta.get("regeneration_threshold_source"))
     if math.isnan(own):
-        return ""
-    return " (this mediator\u2019s own)" if own == used else f" (set; this mediator\u2019s own {fmt(own, 2)} eV)"
+        return " (set with dyecell.min_drive_reg_ev)" if source == "set" else ""
+    if source == "default_p_type":
+        return (f" (the general default: this mediator\u2019s own {fmt(own, 2)} eV is stated for regenerating an "
+                "oxidised dye on an n-type oxide, not for the p-type step, the reduced dye reducing the mediator; "
+                "<code>dyecell.min_drive_reg_ev</code> sets another value)")
+    if source == "set" or (not source and own != used):
+        return f" (set; this mediator\u2019s own {fmt(own, 2)} eV)"
+    return " (this mediator\u2019s own)"
 
 
 def _model_card(meta: dict) -> str:
@@ -211,7 +287,7 @@ def _model_card(meta: dict) -> str:
                                      f"nested leave-one-out MAE {fmt(c.get('loo_mae'), 3)} {esc(unit)} (constant model "
                                      f"{fmt(c.get('baseline_loo_mae'), 3)} {esc(unit)})"))
     else:
-        items.append(("Calibration", "measured potentials from the input file (no dye model)"))
+        items.append(("Calibration", "potentials from the input file (no dye model)"))
     return '<section class="card" id="card-model"><h3>Cell model and calibration</h3>' + _dl(items) + "</section>"
 
 
@@ -420,6 +496,22 @@ def _not_ranked(table: pd.DataFrame) -> tuple[str, int]:
             f"<th>SMILES</th></tr></thead><tbody>{body}</tbody></table>", len(rows))
 
 
+def _axis_note() -> str:
+    """How the diagram's vacuum axis relates to the film scale of the donor/acceptor reports (plain text).
+
+    Examples
+    --------
+    >>> _axis_note()[:60]
+    'This is the absolute scale (Trasatti 1986): ferrocene in ace'
+    """
+    fc = fc_vs_nhe_v("acetonitrile")
+    here = -(fc + ABSOLUTE_NHE_V)
+    return (f"This is the absolute scale (Trasatti 1986): ferrocene in acetonitrile (+{fc:.2f} V vs NHE) sits at "
+            f"\u2212{abs(here):.2f} eV on it, while the film scale of dascreen\u2019s donor/acceptor reports puts "
+            f"ferrocene at \u2212{abs(FILM_FC_EV):.1f} eV: the same couple reads {FILM_FC_EV - here:.2f} eV higher "
+            "(less negative) there, so compare levels across the two reports only after that shift.")
+
+
 def _figure_caption(meta: dict, n_drawn: int, n_failing: int, any_viable: bool = True) -> str:
     """Caption of the energy diagram for the oxide's type, the drawn dyes and the ±1σ boxes (HTML)."""
     if _p_type(meta):
@@ -444,11 +536,11 @@ def _figure_caption(meta: dict, n_drawn: int, n_failing: int, any_viable: bool =
     return ("<strong>Dye-cell energy diagram.</strong> "
             f"{levels} of the {who}, numbered by rank, against the oxide\u2019s band edge and the mediator\u2019s "
             "potential. More negative potentials (higher electron energies) are at the top; the right axis gives "
-            "the vacuum scale, \u2212e(E + 4.44 V). "
+            f"the vacuum scale, \u2212e(E + 4.44 V). {_axis_note()} "
             f"{arrows}, in eV (brick red: below the threshold). Shaded boxes, where the levels carry an "
             "uncertainty, span \u00b11\u03c3: of E(S\u207a/S) for the ground state and, for "
-            f"{sigma}, the σ of E(S\u207a/S) and of E\u2080\u208b\u2080 combined in quadrature; measured "
-            "values without \u03c3 have no box.")
+            f"{sigma}, the σ of E(S\u207a/S) and of E\u2080\u208b\u2080 combined in quadrature; values "
+            "from a dye file without \u03c3 have no box.")
 
 
 def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict) -> str:
@@ -497,7 +589,9 @@ def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict
     strip = "".join(f'<div class="count"><span class="n">{esc(v)}</span><span class="what">{w}</span></div>'
                     for v, w in ((counts.get("rows", len(table) if table is not None else 0), "input rows"),
                                  (len(ranking), "ranked"), (n_pass, "viable"), (n_unranked, "not ranked")))
-    exports = "".join(f'<li><a href="{esc(f)}">{esc(f)}</a> \u2014 {esc(d)}</li>' for f, d in EXPORTS)
+    p_note = _P_TYPE_CSV_NOTE if _p_type(meta) else ""
+    exports = "".join(f'<li><a href="{esc(f)}">{esc(f)}</a> \u2014 {esc(d)}'
+                      f'{esc(p_note) if f in ("ranking.csv", "ranking.safe.csv") else ""}</li>' for f, d in EXPORTS)
     parts = [
         "<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
         '<meta name="viewport" content="width=device-width, initial-scale=1">',
@@ -511,6 +605,7 @@ def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict
         '<h2 id="run"><span class="num">1</span>Run at a glance</h2>', '<div class="cards">',
         _material_card(ox, "Oxide", "card-oxide", "Band edge"),
         _material_card(med, "Mediator", "card-mediator", "Redox potential"), _model_card(meta), "</div>",
+        _conversions_html(meta),
         '<h2 id="shortlist"><span class="num">2</span>Shortlist for discussion</h2>',
         f'<p class="summary">{summary}</p>',
         f'<p class="quiet">Shown: {esc(how)}. Potentials in V vs NHE, value \u00b1 1\u03c3; driving forces in '
@@ -556,7 +651,6 @@ def write_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict,
             fh.write(page)
         os.chmod(tmp, 0o644)
     with atomic_path(out_dir / "ranking.safe.csv") as tmp:
-        safe_csv_frame(ranking if ranking is not None else pd.DataFrame()).to_csv(tmp, index=False,
-                                                                                 lineterminator="\n")
+        tmp.write_bytes(safe_csv_bytes(ranking if ranking is not None else pd.DataFrame()))
         os.chmod(tmp, 0o644)
     return target

@@ -16,7 +16,12 @@ Fc⁺/Fc vs NHE depends on it), plus ``e00_ev``; optional ``smiles``, ``name``,
 ``e_ox_sigma_v``, ``e00_sigma_ev``, ``anchor`` and ``scale`` (which must be
 ``electrochemical`` when given).  Every row must have a unique id and plausible
 values (:mod:`screen.dyecell.checks`); otherwise the file is refused, naming
-the line, the column and the fix.
+the line, the column and the fix.  A potential converted from another
+reference keeps its trace: ``e_ox_reference`` (the ``electrodes.csv`` id it was
+converted from; ``nhe`` for a value given vs NHE, empty for a computed one) and
+``e_ox_offset_v`` (the potential of that reference vs NHE that was added) go
+into the dye table and the ranking, and :func:`conversion_summary` (with the
+offsets' sources and ``from_memory``) into ``ranking.meta.json`` and the report.
 
 The ``anchor`` column takes a closed vocabulary
 (:func:`screen.dyecell.checks.anchor_column`): anchor names of
@@ -50,26 +55,27 @@ from screen.dyecell.flags import INFO_FLAGS, join_flags, viability_uncertain
 from screen.dyecell.library import Material
 from screen.dyecell.model import DyeCellModel, evaluate, sample_pce
 from screen.dyecell.options import RankOptions
-from screen.dyecell.scales import ELECTROCHEMICAL, conversion_hint, require_scale
+from screen.dyecell.scales import ELECTROCHEMICAL, conversion_hint, electrodes, reference_entry, require_scale
 from screen.errors import InputError, ScaleMismatchError
 from screen.io import separator_problem
 from screen.prepare.checks import NONMETALS
 from screen.spectrum import gap_to_wavelength_nm
 
 __all__ = ["DYE_COLUMNS", "RANKING_COLUMNS", "EXTRA_COLUMNS", "NONMETALS", "NOT_A_DYE", "dye_table",
-           "dyes_from_file", "rank_dyes"]
+           "dyes_from_file", "rank_dyes", "conversion_summary", "value_sources"]
 
 #: columns of the dye table (``OUT/dyecell/dyes.csv``)
 DYE_COLUMNS = ["id", "smiles", "name", "status", "error", "e_ox_v_nhe", "e_ox_sigma_v", "e00_ev", "e00_sigma_ev",
                "scale", "anchors", "anchored", "anchor_known", "uncalibrated_elements", "outside_calibration",
-               "source"]
+               "source", "e_ox_reference", "e_ox_offset_v"]
 #: columns of ``ranking.csv``, in order
 RANKING_COLUMNS = ["rank", "id", "smiles", "e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "oxide", "mediator",
                    "band_edge_v_nhe", "e_redox_v_nhe", "drive_inj_ev", "drive_reg_ev", "anchors", "viable",
                    "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "pce_sigma_pct", "p_above_target", "p_viable",
                    "passes", "flags", "viability"]
 #: columns after the contract ones
-EXTRA_COLUMNS = ["name", "e_ox_sigma_v", "e00_sigma_ev", "edge_nm", "uncalibrated_elements"]
+EXTRA_COLUMNS = ["name", "e_ox_sigma_v", "e00_sigma_ev", "edge_nm", "uncalibrated_elements", "e_ox_reference",
+                 "e_ox_offset_v"]
 #: reason of a polymer repeat unit in the dye-cell mode (status ``rejected``)
 NOT_A_DYE = ("a polymer repeat unit is not a sensitiser dye; dye mode takes molecules (give the dye itself, "
              "without attachment points *)")
@@ -145,7 +151,7 @@ def dye_table(levels: pd.DataFrame, models: dict[str, dict]) -> pd.DataFrame:
         "e00_ev": np.where(ok, cal["e00_ev"], np.nan), "e00_sigma_ev": np.where(ok, cal["e00_sigma_ev"], np.nan),
         "scale": np.where(ok, cal["scale"], ""), "anchors": anchors, "anchored": anchored, "anchor_known": known,
         "uncalibrated_elements": uncal, "outside_calibration": cal["outside_calibration"].to_numpy(bool) & ok,
-        "source": "calibrated from xTB (dye models)",
+        "source": "calibrated from xTB (dye models)", "e_ox_reference": "", "e_ox_offset_v": np.nan,
     })
     return out[DYE_COLUMNS]
 
@@ -181,17 +187,18 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
     has_nhe, has_ref = "e_ox_v_nhe" in frame, "e_ox_v" in frame
     if "e00_ev" not in frame or not (has_nhe or has_ref):
         if "homo_ev" in frame:
-            scales = sorted(set(_text_col(frame, "scale")) - {""}) or ["(none given)"]
+            scales = sorted(set(_text_col(frame, "scale").str.strip()) - {""}) or ["(none given)"]
             raise ScaleMismatchError(
                 f"{where} holds vacuum-scale levels (homo_ev, scale {', '.join(scales)}) without raw xTB values; "
                 "the dye-cell mode needs E(S+/S) in V vs NHE and E00: give e_ox_v_nhe (or e_ox_v with "
-                f"e_ox_reference) and e00_ev, or pass a dascreen run's levels.csv. {conversion_hint()}")
+                f"e_ox_reference) and e00_ev, or pass a dascreen run's levels.csv. {conversion_hint(scales)}")
         raise InputError(f"{where}: a dye file needs id, e_ox_v_nhe (or e_ox_v + e_ox_reference, also named reference) and e00_ev; "
                          f"found {list(frame.columns)}")
     if "scale" in frame:
         given = _text_col(frame, "scale").str.strip()
         require_scale(given[given.ne("")], f"{where} (column scale)")
     e_ox = check_dye_file(frame, where)
+    ref_ids, offsets = _conversions(frame)
     stated = anchor_column(frame, where)
     smiles = _text_col(frame, "smiles")
     anchors, anchored, known, _, _ = _structure_checks(smiles, set())
@@ -209,9 +216,74 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
         "e00_ev": e00, "e00_sigma_ev": np.nan_to_num(_num_col(frame, "e00_sigma_ev"), nan=0.0),
         "scale": np.where(ok, ELECTROCHEMICAL, ""), "anchors": anchors, "anchored": anchored,
         "anchor_known": known, "uncalibrated_elements": "", "outside_calibration": False,
-        "source": _text_col(frame, "source").where(lambda s: s.ne(""), "user file"),
+        "source": _text_col(frame, "source").str.strip().where(lambda s: s.ne(""), "user file"),
+        "e_ox_reference": ref_ids, "e_ox_offset_v": offsets,
     })
     return out[DYE_COLUMNS]
+
+
+def _conversions(frame: pd.DataFrame) -> tuple[list[str], np.ndarray]:
+    """Per row of a checked dye file: the ``electrodes.csv`` id its E(S⁺/S) was converted from (``nhe`` when given
+    as ``e_ox_v_nhe``, which wins where both are given) and the offset added [V]; ``""``/NaN without a value."""
+    direct = _num_col(frame, "e_ox_v_nhe")
+    raw = _num_col(frame, "e_ox_v")
+    refs, solv = _text_col(frame, "e_ox_reference").str.strip(), _text_col(frame, "solvent").str.strip()
+    kept = _num_col(frame, "e_ox_offset_v")  # a dye table fed back in keeps the trace of its conversions
+    ids, offsets = [], np.full(len(frame), np.nan)
+    for i in range(len(frame)):
+        if np.isfinite(direct[i]) and np.isfinite(kept[i]) and refs.iloc[i] and not np.isfinite(raw[i]):
+            ids.append(reference_entry(refs.iloc[i])["reference"])
+            offsets[i] = kept[i]
+        elif np.isfinite(direct[i]):
+            ids.append("nhe")
+            offsets[i] = 0.0
+        elif np.isfinite(raw[i]) and refs.iloc[i]:
+            entry = reference_entry(refs.iloc[i], solv.iloc[i])  # checked by check_dye_file: it converts
+            ids.append(entry["reference"])
+            offsets[i] = entry["offset_v"]
+        else:
+            ids.append("")
+    return ids, offsets
+
+
+def conversion_summary(rows: pd.DataFrame) -> list[dict]:
+    """The reference conversions behind the E(S⁺/S) of ``rows`` (a dye table or a ranking), one entry per
+    ``electrodes.csv`` id other than ``nhe``: ``reference``, ``name``, ``solvent``, ``offset_v`` [V vs NHE],
+    ``from_memory``, ``source`` and ``rows`` (how many rows were converted with it).
+
+    Examples
+    --------
+    >>> t = dyes_from_file(pd.DataFrame({"id": ["a", "b"], "e_ox_v": [0.40, 0.40], "e_ox_reference": ["Fc", "SCE"],
+    ...                                  "solvent": ["DMF", ""], "e00_ev": [2.0, 2.0]}))
+    >>> [(c["reference"], c["offset_v"], c["from_memory"], c["rows"]) for c in conversion_summary(t)]
+    [('fc-dmf', 0.69, True, 1), ('sce', 0.241, False, 1)]
+    """
+    if "e_ox_reference" not in rows:
+        return []
+    ids = _text_col(rows, "e_ox_reference").str.strip()
+    counts = ids[ids.ne("") & ids.ne("nhe")].value_counts()
+    table = electrodes()
+    out = []
+    for ident in sorted(counts.index):
+        entry = reference_entry(ident)
+        known = ident in table.index
+        out.append({"reference": ident, "name": str(table.loc[ident, "name"]) if known else "",
+                    "solvent": str(table.loc[ident, "solvent"]) if known else "", "offset_v": entry["offset_v"],
+                    "from_memory": entry["from_memory"], "source": entry["source"], "rows": int(counts[ident])})
+    return out
+
+
+def value_sources(rows: pd.DataFrame) -> dict[str, int]:
+    """How many rows of a dye table or ranking have each ``source`` text (where their E(S⁺/S) and E₀₋₀ come from).
+
+    Examples
+    --------
+    >>> value_sources(pd.DataFrame({"source": ["user file", "CV in MeCN", "user file"]}))
+    {'user file': 2, 'CV in MeCN': 1}
+    """
+    if "source" not in rows:
+        return {}
+    return {str(k): int(v) for k, v in _text_col(rows, "source").str.strip().value_counts().items()}
 
 
 def _apply_anchor_column(frame: pd.DataFrame, stated: list, anchors: list, anchored: list, known: list,
@@ -249,13 +321,16 @@ def _bool_col(frame: pd.DataFrame, col: str, default: bool) -> np.ndarray:
                           in ("true", "1", "yes")).to_numpy(bool)
 
 
-def _flag_masks(d: pd.DataFrame, dev: dict, known: np.ndarray, p_viable: np.ndarray) -> dict[str, np.ndarray]:
-    """One boolean mask per flag code: the model's, the Monte-Carlo spread's (``viability_uncertain``, from
-    ``p_viable``), the anchor check's and the calibration's."""
+def _flag_masks(d: pd.DataFrame, dev: dict, known: np.ndarray, mc: dict) -> dict[str, np.ndarray]:
+    """One boolean mask per flag code: the model's, the Monte-Carlo spread's (``viability_uncertain`` from
+    ``p_viable``; ``few_viable_samples``: a viable dye whose spread is not known), the anchor check's and the
+    calibration's."""
     masks = {k: np.asarray(dev[k], bool) for k in ("input_missing", "no_anchor", "no_sunlight", "injection_low",
                                                     "regeneration_low", "voc_nonpositive", "p_type_estimate",
                                                     "detailed_balance_cap", "anchor_missing_allowed")}
-    masks["viability_uncertain"] = viability_uncertain(p_viable)
+    masks["viability_uncertain"] = viability_uncertain(mc["p_viable"])
+    masks["few_viable_samples"] = (np.asarray(dev["viable"], bool) & np.isnan(np.asarray(mc["pce_sigma_pct"], float))
+                                   & np.isfinite(np.asarray(mc["p_viable"], float)))
     masks["anchor_unknown"] = ~known
     masks["element_uncalibrated"] = _text_col(d, "uncalibrated_elements").str.strip().ne("").to_numpy()
     masks["outside_calibration"] = _bool_col(d, "outside_calibration", False)
@@ -312,7 +387,7 @@ def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: Dy
     dev = evaluate(model, e_ox, e00, oxide, mediator, anchored)
     mc = sample_pce(model, e_ox, e00, oxide, mediator, e_ox_sigma_v=s_ox, e00_sigma_ev=s_gap, anchored=anchored,
                     n_samples=options.n_samples, seed=options.seed, target_pct=options.target_pce_pct)
-    masks = _flag_masks(d, dev, known, mc["p_viable"])
+    masks = _flag_masks(d, dev, known, mc)
     failing = np.zeros(len(d), bool)
     for code, m in masks.items():
         if code not in INFO_FLAGS:
@@ -329,10 +404,11 @@ def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: Dy
         "flags": join_flags(masks), "viability": dev["viability"], "name": _text_col(d, "name"),
         "e_ox_sigma_v": s_ox, "e00_sigma_ev": s_gap, "edge_nm": np.asarray(gap_to_wavelength_nm(e00), float),
         "uncalibrated_elements": _text_col(d, "uncalibrated_elements"),
+        "e_ox_reference": _text_col(d, "e_ox_reference"), "e_ox_offset_v": _num_col(d, "e_ox_offset_v"),
     })
     num = ["e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "band_edge_v_nhe", "e_redox_v_nhe", "drive_inj_ev",
            "drive_reg_ev", "voc_v", "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "p_viable",
-           "e_ox_sigma_v", "e00_sigma_ev"]
+           "e_ox_sigma_v", "e00_sigma_ev", "e_ox_offset_v"]
     out[num] = out[num].round(_ROUND)
     out["edge_nm"] = out["edge_nm"].round(1)
     keys = ["passes", options.sort_by] + (["p_above_target"] if options.sort_by != "p_above_target" else

@@ -19,7 +19,11 @@ the dye-cell convention [2]_, [3]_).
 The dye-cell tables carry ``scale = "electrochemical"`` (potentials in V vs
 NHE); :func:`require_scale` refuses a table on any other scale
 (:class:`screen.errors.ScaleMismatchError`), as ranking does for ``film`` and
-``gas`` levels (``docs/contracts.md``, energy scales).
+``gas`` levels (``docs/contracts.md``, energy scales), with a conversion hint
+for the scale refused (:func:`conversion_hint`).  The vacuum scale here is the
+absolute one (Fc⁺/Fc in acetonitrile at −(0.63 + 4.44) = −5.07 eV); dascreen's
+``film`` scale puts ferrocene at −4.8 eV (:data:`FILM_FC_EV`), so a couple
+reads 0.27 eV higher (less negative) on the film scale than here.
 
 References
 ----------
@@ -55,12 +59,16 @@ import pandas as pd
 
 from screen.errors import InputError, ScaleMismatchError
 
-__all__ = ["ABSOLUTE_NHE_V", "ELECTROCHEMICAL", "ELECTRODES_FILE", "vacuum_ev_from_nhe", "nhe_from_vacuum_ev",
-           "electrodes", "solvent_key", "needs_solvent", "fc_vs_nhe_v", "reference_vs_nhe_v", "to_nhe", "from_nhe",
-           "require_scale", "conversion_hint"]
+__all__ = ["ABSOLUTE_NHE_V", "FILM_FC_EV", "ELECTROCHEMICAL", "ELECTRODES_FILE", "vacuum_ev_from_nhe",
+           "nhe_from_vacuum_ev", "electrodes", "solvent_key", "needs_solvent", "fc_vs_nhe_v", "reference_entry",
+           "solvent_conflict", "reference_vs_nhe_v", "to_nhe", "from_nhe", "require_scale", "conversion_hint",
+           "film_scale_offset_ev"]
 
 #: absolute potential of the standard hydrogen electrode (Trasatti 1986, IUPAC) [V]
 ABSOLUTE_NHE_V = 4.44
+#: vacuum-scale energy of ferrocene on dascreen's ``film`` scale (CV levels; docs/contracts.md section 6, the
+#: convention of Pommerehne et al. 1995, from memory; :data:`screen.calibration.reference.FC_REFERENCE_EV`) [eV]
+FILM_FC_EV = -4.8
 #: scale name of every dye-cell potential table (V vs NHE)
 ELECTROCHEMICAL = "electrochemical"
 #: the sourced reference-electrode table
@@ -191,34 +199,103 @@ def needs_solvent(reference: str) -> bool:
     return re.sub(r"\s+", " ", str(reference).strip().lower()) in _FERROCENE
 
 
-def reference_vs_nhe_v(reference: str, solvent: str = "acetonitrile") -> float:
-    """Potential of a reference electrode vs NHE. [V]
+def reference_entry(reference: str, solvent: str | None = None) -> dict:
+    """The ``electrodes.csv`` row a reference electrode is converted with.
 
     Parameters
     ----------
     reference : str
         ``NHE``/``SHE``, ``SCE``, ``Ag/AgCl``, ``Ag/AgCl (3 M KCl)``, ``Fc`` (ferrocene,
         needs ``solvent``) or an id of ``electrodes.csv`` (e.g. ``fc-dcm``).
-    solvent : str
-        Solvent of a ferrocene reference.
+    solvent : str, optional
+        Solvent of a ferrocene reference (None: acetonitrile for a bare ``Fc``).  Given with an id that names
+        another solvent (``fc-mecn`` with dichloromethane), it is refused (:func:`solvent_conflict`).
+
+    Returns
+    -------
+    dict
+        ``reference`` (the ``electrodes.csv`` id), ``offset_v`` (its potential vs NHE [V], added to convert),
+        ``from_memory`` (bool) and ``source``.
+
+    Raises
+    ------
+    InputError
+        Unknown reference, a ferrocene solvent without a recorded offset, or a reference id and a solvent that
+        disagree.
+
+    Examples
+    --------
+    >>> e = reference_entry("Fc", "CH2Cl2")
+    >>> e["reference"], e["offset_v"], e["from_memory"]
+    ('fc-dcm', 0.7, True)
+    """
+    ref = re.sub(r"\s+", " ", str(reference).strip().lower())
+    table = electrodes()
+    if ref in _FERROCENE:
+        solvent = "acetonitrile" if solvent is None else solvent
+        fc_vs_nhe_v(solvent)  # refuses a solvent without a recorded offset, listing those with one
+        ident = f"fc-{solvent_key(solvent)}"
+    else:
+        clash = solvent_conflict(reference, solvent)
+        if clash:
+            raise InputError(clash)
+        ident = _REFERENCE_ALIASES.get(ref, ref)
+        if ident not in table.index or ident == "vacuum" or not math.isfinite(table.loc[ident, "e_vs_nhe_v"]):
+            raise InputError(f"unknown reference electrode {reference!r}; known: NHE, SHE, SCE, Ag/AgCl, Fc (with a "
+                             f"solvent) or an id of {ELECTRODES_FILE.name}")
+    row = table.loc[ident]
+    memory = str(row.get("from_memory", "")).strip().lower() in ("true", "1", "yes")
+    return {"reference": ident, "offset_v": float(row["e_vs_nhe_v"]), "from_memory": memory,
+            "source": str(row.get("source", ""))}
+
+
+def solvent_conflict(reference: str, solvent: str | None, column: str = "reference") -> str | None:
+    """A reference id that carries its solvent (``fc-mecn``) given with a ``solvent`` that names another one.
+
+    An unknown solvent name, an empty one, a bare ``Fc`` and electrodes without a solvent of their own (SCE,
+    Ag/AgCl, NHE) never clash.
+
+    Examples
+    --------
+    >>> solvent_conflict("fc-mecn", "MeCN") is None, solvent_conflict("SCE", "dichloromethane") is None
+    (True, True)
+    >>> solvent_conflict("fc-mecn", "dichloromethane")  # doctest: +ELLIPSIS
+    "columns reference = 'fc-mecn' (Fc+/Fc in acetonitrile) and solvent = 'dichloromethane' disagree; ..."
+    """
+    if solvent is None or not str(solvent).strip():
+        return None
+    ident = re.sub(r"\s+", " ", str(reference).strip().lower())
+    ident = _REFERENCE_ALIASES.get(ident, ident)
+    table = electrodes()
+    key = solvent_key(solvent)
+    if not ident.startswith("fc-") or ident not in table.index or not key or ident == f"fc-{key}":
+        return None
+    return (f"columns {column} = {reference!r} (Fc+/Fc in {table.loc[ident, 'solvent']}) and solvent = "
+            f"{str(solvent).strip()!r} disagree; keep one: {column} = Fc with the solvent of the measurement in "
+            f"column solvent, or {column} = fc-{key} for Fc+/Fc in {str(solvent).strip()}")
+
+
+def reference_vs_nhe_v(reference: str, solvent: str | None = None) -> float:
+    """Potential of a reference electrode vs NHE (:func:`reference_entry`). [V]
+
+    Parameters
+    ----------
+    reference : str
+        ``NHE``/``SHE``, ``SCE``, ``Ag/AgCl``, ``Ag/AgCl (3 M KCl)``, ``Fc`` (ferrocene,
+        needs ``solvent``) or an id of ``electrodes.csv`` (e.g. ``fc-dcm``).
+    solvent : str, optional
+        Solvent of a ferrocene reference (None: acetonitrile); refused when it contradicts an id such as
+        ``fc-mecn``.
 
     Examples
     --------
     >>> reference_vs_nhe_v("SCE"), reference_vs_nhe_v("Fc+/Fc", "dichloromethane")
     (0.241, 0.7)
     """
-    ref = re.sub(r"\s+", " ", str(reference).strip().lower())
-    if ref in _FERROCENE:
-        return fc_vs_nhe_v(solvent)
-    table = electrodes()
-    ident = _REFERENCE_ALIASES.get(ref, ref)
-    if ident not in table.index or ident == "vacuum" or not math.isfinite(table.loc[ident, "e_vs_nhe_v"]):
-        raise InputError(f"unknown reference electrode {reference!r}; known: NHE, SHE, SCE, Ag/AgCl, Fc (with a "
-                         f"solvent) or an id of {ELECTRODES_FILE.name}")
-    return float(table.loc[ident, "e_vs_nhe_v"])
+    return reference_entry(reference, solvent)["offset_v"]
 
 
-def to_nhe(e_v, reference: str, solvent: str = "acetonitrile"):
+def to_nhe(e_v, reference: str, solvent: str | None = None):
     """A potential measured vs ``reference`` converted to V vs NHE: ``E + E_ref(vs NHE)``.
 
     Examples
@@ -229,7 +306,7 @@ def to_nhe(e_v, reference: str, solvent: str = "acetonitrile"):
     return np.asarray(e_v, dtype=float) + reference_vs_nhe_v(reference, solvent)
 
 
-def from_nhe(e_v_nhe, reference: str, solvent: str = "acetonitrile"):
+def from_nhe(e_v_nhe, reference: str, solvent: str | None = None):
     """A potential vs NHE expressed vs ``reference`` (inverse of :func:`to_nhe`). [V]
 
     Examples
@@ -255,7 +332,8 @@ def require_scale(scales, where: str, expected: str = ELECTROCHEMICAL) -> None:
     Raises
     ------
     ScaleMismatchError
-        Any label differs from ``expected`` (empty labels included).
+        Any label differs from ``expected`` (empty labels included); the message carries the conversion for the
+        scales found (:func:`conversion_hint`).
 
     Examples
     --------
@@ -271,20 +349,23 @@ def require_scale(scales, where: str, expected: str = ELECTROCHEMICAL) -> None:
         shown = ", ".join(repr(s) for s in found)
         raise ScaleMismatchError(
             f"{where} is on the {shown} scale; the dye-cell mode needs {expected!r} (potentials in V vs NHE). "
-            f"{conversion_hint()}")
+            f"{conversion_hint(found)}")
 
 
-def conversion_hint() -> str:
-    """How a chemist turns a vacuum-scale level or a CV measurement into the dye file's ``e_ox_v_nhe``.
-
-    The constants are the module's: :data:`ABSOLUTE_NHE_V` (Trasatti 1986) and
-    the Fc⁺/Fc offsets of ``electrodes.csv``.
+def film_scale_offset_ev(solvent: str = "acetonitrile") -> float:
+    """How much higher (less negative) a couple reads on dascreen's film scale than on the absolute vacuum scale
+    of the dye-cell mode: ``−4.8 − (−(E(Fc⁺/Fc vs NHE) + 4.44))``. [eV]
 
     Examples
     --------
-    >>> print(conversion_hint())  # doctest: +ELLIPSIS
-    Give each dye's oxidation potential as e_ox_v_nhe [V vs NHE] (and scale = electrochemical, or no scale column): from an energy on the vacuum scale, E vs NHE [V] = -E_vacuum [eV] - 4.44 (absolute potential of the hydrogen electrode, Trasatti 1986), e.g. a HOMO of -5.30 eV gives 0.86 V; for a HOMO derived from cyclic voltammetry vs Fc+/Fc, give the measured oxidation potential instead, as e_ox_v with e_ox_reference = Fc and the solvent in column solvent (Fc+/Fc vs NHE: +0.63 V in acetonitrile, +0.70 V in dichloromethane, +0.69 V in DMF, +0.80 V in THF), not the HOMO...
+    >>> round(film_scale_offset_ev(), 2)
+    0.27
     """
+    return FILM_FC_EV + fc_vs_nhe_v(solvent) + ABSOLUTE_NHE_V
+
+
+def _fc_offsets_text() -> str:
+    """``+0.63 V in acetonitrile, +0.70 V in dichloromethane, …`` from ``electrodes.csv`` ('' if none)."""
     offsets = []
     for solvent, shown in (("acetonitrile", "acetonitrile"), ("dichloromethane", "dichloromethane"),
                            ("dmf", "DMF"), ("thf", "THF")):
@@ -292,12 +373,77 @@ def conversion_hint() -> str:
             offsets.append(f"{fc_vs_nhe_v(solvent):+.2f} V in {shown}")
         except InputError:  # a table without that solvent: leave it out of the hint
             continue
-    fc = f" (Fc+/Fc vs NHE: {', '.join(offsets)})" if offsets else ""
+    return ", ".join(offsets)
+
+
+def _scale_kind(label: str) -> str:
+    """``film``, ``gas`` or ``vacuum`` (any other label: a vacuum-scale value of unknown origin)."""
+    low = str(label).strip().lower()
+    return low if low in ("film", "gas") else "vacuum"
+
+
+def conversion_hint(scale=None) -> str:
+    """How a chemist turns a refused level into the dye file's ``e_ox_v_nhe``, for the scale that was refused.
+
+    - ``film`` (dascreen's film/CV scale, ferrocene at :data:`FILM_FC_EV` = −4.8 eV):
+      E vs NHE = −E_film − 4.8 + E(Fc⁺/Fc vs NHE in the solvent);
+    - ``gas`` (isolated molecules): no honest conversion, the solvation is missing; compute the dye from its
+      SMILES or give the measured potential;
+    - anything else (``vacuum``, no label): the absolute scale, E vs NHE = −E_vacuum − 4.44 (Trasatti 1986),
+      with the caveat that a CV-derived HOMO or a gas-phase IP is not on that scale.
+
+    Parameters
+    ----------
+    scale : str or iterable of str, optional
+        The refused scale label(s); None: a vacuum-scale value of unknown origin.
+
+    Examples
+    --------
+    >>> print(conversion_hint("film"))  # doctest: +ELLIPSIS
+    Give each dye's oxidation potential as e_ox_v_nhe [V vs NHE] (and scale = electrochemical, or no scale column). Film-scale levels (dascreen's film scale: CV levels with ferrocene at -4.8 eV, docs/contracts.md section 6): E vs NHE [V] = -E_film [eV] - 4.8 + E(Fc+/Fc vs NHE in the solvent) (...), e.g. a film HOMO of -5.30 eV is +0.50 V vs Fc+/Fc = 1.13 V vs NHE in acetonitrile; ...
+    """
+    labels = [scale] if scale is None or isinstance(scale, str) else list(scale)
+    kinds = []
+    for label in labels:
+        kind = _scale_kind("" if label is None else label)
+        if kind not in kinds:
+            kinds.append(kind)
+    fc = _fc_offsets_text()
+    fc_list = f"Fc+/Fc vs NHE: {fc}" if fc else f"Fc+/Fc vs NHE from {ELECTRODES_FILE.name}"
+    measured = ("give the measured oxidation potential as e_ox_v with e_ox_reference = Fc and the solvent in column "
+                "solvent")
     example = -5.30
-    return (f"Give each dye's oxidation potential as e_ox_v_nhe [V vs NHE] (and scale = {ELECTROCHEMICAL}, or no "
-            f"scale column): from an energy on the vacuum scale, E vs NHE [V] = -E_vacuum [eV] - {ABSOLUTE_NHE_V:g} "
-            f"(absolute potential of the hydrogen electrode, Trasatti 1986), e.g. a HOMO of {example:.2f} eV gives "
-            f"{float(nhe_from_vacuum_ev(example)):.2f} V; for a HOMO derived from cyclic voltammetry vs Fc+/Fc, give "
-            f"the measured oxidation potential instead, as e_ox_v with e_ox_reference = Fc and the solvent in column "
-            f"solvent{fc}, not the HOMO: that HOMO already holds a vacuum level of ferrocene assumed by the paper, "
-            "and papers assume different ones")
+    parts = []
+    for kind in ("film", "gas", "vacuum"):
+        if kind not in kinds:
+            continue
+        if kind == "film":
+            try:
+                mecn = fc_vs_nhe_v("acetonitrile")
+                vs_fc = -example + FILM_FC_EV
+                worked = (f", e.g. a film HOMO of {example:.2f} eV is {vs_fc:+.2f} V vs Fc+/Fc = "
+                          f"{vs_fc + mecn:.2f} V vs NHE in acetonitrile")
+            except InputError:
+                worked = ""
+            parts.append(
+                f"Film-scale levels (dascreen's film scale: CV levels with ferrocene at {FILM_FC_EV:g} eV, "
+                f"docs/contracts.md section 6): E vs NHE [V] = -E_film [eV] - {-FILM_FC_EV:g} + E(Fc+/Fc vs NHE in "
+                f"the solvent) ({fc_list}){worked}; a level from a paper that put ferrocene elsewhere (e.g. -5.1 eV) "
+                f"takes that value instead of {-FILM_FC_EV:g}; better, {measured}, not the HOMO.")
+        elif kind == "gas":
+            parts.append(
+                f"Gas-scale levels (isolated molecules) have no honest conversion to a potential in solution: "
+                f"-IP - {ABSOLUTE_NHE_V:g} leaves out the solvation of the dye and its cation. Compute the dye from "
+                "its SMILES with `dascreen dyecell CANDIDATES` (dye models calibrated on measured potentials), or "
+                f"give the measured potential (e_ox_v_nhe, or e_ox_v with e_ox_reference and solvent).")
+        else:
+            parts.append(
+                f"From an energy on the absolute (vacuum) scale: E vs NHE [V] = -E_vacuum [eV] - {ABSOLUTE_NHE_V:g} "
+                f"(absolute potential of the hydrogen electrode, Trasatti 1986), e.g. {example:.2f} eV gives "
+                f"{float(nhe_from_vacuum_ev(example)):.2f} V. This holds only for an energy on the absolute "
+                "electrochemical scale: a HOMO derived from cyclic voltammetry holds the vacuum level of ferrocene "
+                f"its paper assumed (dascreen's film scale: {FILM_FC_EV:g} eV, giving E vs NHE = -E - "
+                f"{-FILM_FC_EV:g} + E(Fc+/Fc vs NHE)), and a computed gas-phase IP lacks solvation; for a HOMO "
+                f"from cyclic voltammetry vs Fc+/Fc, {measured} ({fc_list}) instead.")
+    return ("Give each dye's oxidation potential as e_ox_v_nhe [V vs NHE] (and scale = "
+            f"{ELECTROCHEMICAL}, or no scale column). " + " ".join(parts))

@@ -39,23 +39,26 @@ import pandas as pd
 from screen import __version__
 from screen.dyecell.calibrate import MODELS_DIR, load_models
 from screen.dyecell.flags import describe
-from screen.dyecell.library import Material, resolve_material, type_assumed_notice
+from screen.dyecell.library import Material, plausibility_notice, resolve_material, type_assumed_notice
 from screen.dyecell.model import DyeCellModel
 from screen.dyecell.options import RankOptions, option_defaults
 from screen.dyecell.rank import (
     DYE_COLUMNS,
     EXTRA_COLUMNS,
     RANKING_COLUMNS,
+    conversion_summary,
     dye_table,
     dyes_from_file,
     rank_dyes,
+    value_sources,
 )
 from screen.errors import ConfigError, InputError
 from screen.io import read_json, write_csv, write_json
 from screen.partners import file_tag
 from screen.provenance import change_notice, library_versions, sha256_file
 
-__all__ = ["read_input", "build_dye_table", "write_shortlist", "run_dyecell", "ranking_folder", "raw_levels",
+__all__ = ["read_input", "build_dye_table", "sign_convention", "EXCITED_COLUMN_MEANING", "write_shortlist",
+           "run_dyecell", "ranking_folder", "raw_levels",
            "settings_hash", "shipped_protocols", "INPUTS_FILE", "read_inputs", "record_inputs", "OWN_LEVELS",
            "own_levels", "levels_tag", "replacing_notice"]
 
@@ -147,7 +150,8 @@ def read_input(path: str | Path) -> tuple[str, pd.DataFrame, dict | None]:
     A file with raw ``xtb_ip_ev`` values is a run's levels; anything else is a
     user's dye file (:func:`screen.dyecell.rank.dyes_from_file`).  A row with
     more fields than the header is refused with its line
-    (:func:`screen.dyecell.checks.check_field_counts`).
+    (:func:`screen.dyecell.checks.check_field_counts`).  Blanks after the commas
+    (``id, e_ox_v_nhe, e00_ev``) and around the column names are dropped.
     """
     from screen.dyecell.checks import check_field_counts
 
@@ -158,9 +162,12 @@ def read_input(path: str | Path) -> tuple[str, pd.DataFrame, dict | None]:
         raise InputError(f"dye-cell input {path} does not exist")
     check_field_counts(path, "dye-cell input")
     try:
-        frame = pd.read_csv(path, dtype={"id": str}, keep_default_na=False, na_values=[""])
+        header = pd.read_csv(path, nrows=0).columns  # blanks around the names ("id, e_ox_v_nhe") are dropped,
+        ids = {c: str for c in header if str(c).strip() == "id"}  # as one-row oxide and mediator files drop them
+        frame = pd.read_csv(path, dtype=ids, keep_default_na=False, na_values=[""], skipinitialspace=True)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise InputError(f"{path} cannot be read as CSV: {exc}") from exc
+    frame.columns = [str(c).strip() for c in frame.columns]
     if frame.empty:
         raise InputError(f"{path}: no rows (only a header); give one dye per line: id,e_ox_v_nhe,e00_ev "
                          "(or a dascreen run's levels.csv)")
@@ -357,7 +364,7 @@ def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str
 
 #: version of the rules that build a dye table other than the anchor patterns (rounding, the anchor column's
 #: vocabulary): a change here or in :data:`screen.dyecell.anchors.ANCHORS` rebuilds a cached ``dyes.csv``
-_TABLE_RULES = "2"
+_TABLE_RULES = "3"
 
 
 def table_rules_hash() -> str:
@@ -467,25 +474,49 @@ def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int) -> dic
     return {"written": written, "skipped": skipped}
 
 
-def _meta(ranking, table, info, oxide, mediator, model, options, short) -> dict:
+#: what ``e_ox_excited_v_nhe`` holds, by oxide type (``ranking.meta.json`` ``sign_convention``, the report)
+EXCITED_COLUMN_MEANING = {
+    "n": "e_ox_excited_v_nhe holds E(S+/S*) = E(S+/S) - E00/e, the excited-state oxidation potential",
+    "p": ("e_ox_excited_v_nhe holds E(S/S-) ~ E(S+/S) - E00/e, the dye's estimated reduction potential (not "
+          "E(S+/S*)); the injecting state E(S*/S-) is taken as E(S+/S)"),
+}
+
+
+def sign_convention(oxide_type: str) -> str:
+    """The driving forces' definitions and what ``e_ox_excited_v_nhe`` holds, by oxide type (``ranking.meta.json``).
+
+    Examples
+    --------
+    >>> print(sign_convention("p").split("; ")[-2])
+    e_ox_excited_v_nhe holds E(S/S-) ~ E(S+/S) - E00/e, the dye's estimated reduction potential (not E(S+/S*))
+    """
+    p_type = oxide_type == "p"
+    return (("drive_inj_ev = E(S+/S) - E_VB and drive_reg_ev = E_redox - E(S/S-) (p-type), in eV; " if p_type else
+             "drive_inj_ev = E_CB - E(S+/S*) and drive_reg_ev = E(S+/S) - E_redox (n-type), in eV; ")
+            + "both > 0 when the step is downhill (dG = -drive); " + EXCITED_COLUMN_MEANING["p" if p_type else "n"])
+
+
+def _meta(ranking, table, info, oxide, mediator, model, options, short, notices=()) -> dict:
     from screen import __version__
     from screen.provenance import code_revision
 
     flags = pd.Series([f for s in ranking["flags"] for f in str(s).split(";") if f]).value_counts()
     status = table["status"].astype(str)
+    threshold, threshold_source = model.reg_threshold_source(mediator, oxide)
     return {
         "dascreen": __version__, "code_revision": code_revision(), "stage": "dyecell",
         "scale": "electrochemical (potentials in V vs NHE)",
         "oxide": oxide.as_dict(), "mediator": mediator.as_dict(), "model": model.as_dict(),
-        "regeneration_threshold_ev": model.reg_threshold_ev(mediator), "rank": asdict(options),
-        "sign_convention": ("drive_inj_ev = E(S+/S) - E_VB and drive_reg_ev = E_redox - E(S/S-) (p-type), in eV; "
-                            if oxide.type == "p" else
-                            "drive_inj_ev = E_CB - E(S+/S*) and drive_reg_ev = E(S+/S) - E_redox (n-type), in eV; ")
-                           + "both > 0 when the step is downhill (dG = -drive)",
+        "regeneration_threshold_ev": threshold, "regeneration_threshold_source": threshold_source,
+        "rank": asdict(options),
+        "sign_convention": sign_convention(oxide.type),
+        "e_ox_sources": value_sources(table[status.str.strip().str.lower().eq("ok")]),
+        "e_ox_conversions": conversion_summary(ranking),
+        "notices": list(notices),
         "dyes": {k: v for k, v in info.items() if k != "levels_meta"}, "levels_meta": info.get("levels_meta"),
         "calibration": info.get("calibration"),
         "flag_text": {code: describe(code, {"model": model.as_dict(),
-                                            "regeneration_threshold_ev": model.reg_threshold_ev(mediator),
+                                            "regeneration_threshold_ev": threshold,
                                             "calibration": info.get("calibration") or {},
                                             "oxide": oxide.as_dict()})
                       for code in flags.index},
@@ -543,6 +574,9 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
     med = resolve_material("mediator", mediator or section["mediator"])
     if ox.type_assumed:  # an oxide file without a type: said once per ranking, and in every reason naming the edge
         print(f"dascreen dyecell: {type_assumed_notice(ox)}", file=sys.stderr)
+    notices = [n for n in (plausibility_notice(ox), plausibility_notice(med)) if n]
+    for notice in notices:  # outside the library's range: ranked, but a sign slip is likely (also in the report)
+        print(f"dascreen dyecell: {notice}", file=sys.stderr)
     model = DyeCellModel.from_mapping(section)
     options = RankOptions.from_mapping(section)
     tag = levels_tag(input_path, out_dir)
@@ -554,7 +588,7 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
     _tell_replacing(target, info)
     write_csv(ranking, target / "ranking.csv")
     short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size)
-    meta = _meta(ranking, table, info, ox, med, model, options, short)
+    meta = _meta(ranking, table, info, ox, med, model, options, short, notices)
     meta["settings_hash"] = settings_hash(section)
     meta["levels_tag"] = tag or None
     meta["dye_table"] = str(cache.resolve())
