@@ -168,8 +168,8 @@ def homo_threshold_problem(absorber, min_delta_homo_ev) -> str:
     if absorber != "donor" or min_delta_homo_ev is None:
         return ""
     return (f"device.min_delta_homo_ev = {min_delta_homo_ev:g} does not apply with device.absorber=donor: the "
-            "published donor-only model (Scharber et al. 2006) lets only the donor absorb and holds only the LUMO "
-            "offset to a threshold (ΔHOMO must still be > 0); leave device.min_delta_homo_ev unset (null), or set "
+            "donor-only view (the published model of Scharber et al. 2006, with either Voc rule) lets only the donor "
+            "absorb and holds only the LUMO offset to a threshold (ΔHOMO must still be > 0); leave device.min_delta_homo_ev unset (null), or set "
             "device.absorber=both to hold ΔHOMO to it")
 
 

@@ -32,9 +32,9 @@ import numpy as np
 
 from screen.devicepars import slope_loss
 from screen.spectrum import as_output, jsc_ma_cm2, sq_voc_v
-from screen.viability import GAP_MAX_EV, OFFSET_TOL_EV, gap_valid, offset_clears
+from screen.viability import gap_valid, offset_clears
 
-__all__ = ["PairTerms", "pair_terms", "pce_samples", "generation_yield", "voc_v", "offset_clears", "gap_valid"]
+__all__ = ["PairTerms", "pair_terms", "pce_samples", "generation_yield", "voc_v"]
 
 
 def generation_yield(delta, scale: float):
@@ -201,8 +201,8 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     -----
     Same formula as :func:`pair_terms` and the same rules as
     :func:`screen.viability.classify` (type II with ΔHOMO unchecked when NaN,
-    offsets at their thresholds: :func:`offset_clears`; an absorber gap inside
-    the spectrum: :func:`gap_valid`; Voc > 0), written
+    offsets at their thresholds: :func:`screen.viability.offset_clears`; an absorber gap inside
+    the spectrum: :func:`screen.viability.gap_valid`; Voc > 0), written
     with in-place operations for the sampler.  Voc is capped at the
     detailed-balance Voc of the smallest gap of the pair (:func:`voc_limit`);
     a sample whose efficiency is not a number (a level the model needs is

@@ -57,6 +57,7 @@ import numpy as np
 import pandas as pd
 
 from screen.chem import canonical_smiles
+from screen.constants import FC_FILM_EV
 from screen.errors import InputError
 
 __all__ = ["DEVICES_PATH", "FILM_PATH", "FC_SCALE_EV", "MIN_SHARED_MATERIALS", "LEVELS", "NOT_BLEND", "level_table",
@@ -69,8 +70,8 @@ _REPO = Path(__file__).resolve().parent.parent
 DEVICES_PATH = _REPO / "models" / "reference" / "devices.csv"
 #: the film/CV reference set that defines the calibration's level scale
 FILM_PATH = _REPO / "models" / "reference" / "levels_film.csv"
-#: ferrocene level of the film scale [eV]
-FC_SCALE_EV = -4.8
+#: ferrocene level of the film scale (:data:`screen.constants.FC_FILM_EV`) [eV]
+FC_SCALE_EV = FC_FILM_EV
 #: distinct shared materials needed to estimate the shift of values without a ferrocene reference
 MIN_SHARED_MATERIALS = 3
 #: the six level columns of a device row, in :data:`screen.device.PAIR_LEVELS` order [eV]

@@ -112,7 +112,8 @@ _REGISTRY = (
                                 "way (p_aligned between 0.25 and 0.75)", "info"),
     Flag("estimate_on_edge", "the efficiency estimate sits on a steep edge of the model: at the estimated levels "
                              "it lies outside the middle 90 % (5th–95th percentile) of the efficiencies of the "
-                             "Monte-Carlo samples that stay viable (by more than a quarter of their σ), so a small "
+                             "Monte-Carlo samples that stay viable (more than 95 % of them lie above it, or below, by "
+                             "more than a quarter of their σ and at least 0.05 PCE points), so a small "
                              "change of a level moves it a lot and the samples mostly land elsewhere (e.g. a HOMO or "
                              "LUMO offset of a few meV, where the charge-generation yield drops to zero); the ± and "
                              "P(PCE > target) describe those samples, not a spread around this estimate", "info"),

@@ -13,6 +13,7 @@ that:
 
 from __future__ import annotations
 
+import codecs
 import contextlib
 import csv
 import io
@@ -386,6 +387,34 @@ def repeated_in_header(header, case_blind=frozenset()) -> str | None:
     return None
 
 
+def utf16_error(path: Path, raw: bytes, fmt: str | None = None) -> InputError:
+    """The error of a UTF-16 file (a byte-order mark FF FE or FE FF: a spreadsheet's "Unicode text") that is not
+    read as such: an SD file, or UTF-16 that does not decode. Before, it got "not UTF-8 ... from Latin-1: `iconv -f
+    latin1`" with an id of NUL characters (an input-file audit), which sent the user to the wrong conversion.
+
+    Examples
+    --------
+    >>> print(utf16_error(Path("c.sdf"), codecs.BOM_UTF16_LE + "x".encode("utf-16-le"), "sdf"))  # doctest: +ELLIPSIS
+    c.sdf: UTF-16 text (byte-order mark FF FE), not UTF-8: convert it with `iconv -f utf-16 -t utf-8 c.sdf > ...
+    >>> str(utf16_error(Path("c.sdf.gz"), codecs.BOM_UTF16_LE, "sdf")).split("`")[1]
+    'gunzip -c c.sdf.gz | iconv -f utf-16 -t utf-8 > c-utf8.sdf'
+    """
+    mark = "FF FE" if raw.startswith(codecs.BOM_UTF16_LE) else "FE FF"
+    sheet = ' or save it from the spreadsheet as "CSV UTF-8"' if fmt in (None, "csv", "smi") else ""
+    try:
+        raw.decode("utf-16")
+        broken = ""
+    except UnicodeDecodeError:
+        broken = " (and it does not decode as UTF-16 either: check the file)"
+    if path.name.lower().endswith(".gz"):  # iconv reads text, not gzip data: decompress first
+        plain = Path(path.name[:-3])
+        command = f"gunzip -c {path.name} | iconv -f utf-16 -t utf-8 > {plain.stem}-utf8{plain.suffix}"
+    else:
+        command = f"iconv -f utf-16 -t utf-8 {path.name} > {path.stem}-utf8{path.suffix}"
+    return InputError(f"{path}: UTF-16 text (byte-order mark {mark}), not UTF-8{broken}: convert it with "
+                      f"`{command}`{sheet}")
+
+
 def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", error=InputError,
                      **read_kwargs) -> pd.DataFrame:
     """Read a CSV file and check that it has the ``required`` columns: the one home of that check.
@@ -429,7 +458,13 @@ def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", 
         raise error(f"{path}: {repeated}")
     try:
         frame = pd.read_csv(path, **read_kwargs)
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+    except UnicodeDecodeError as exc:
+        with open(path, "rb") as fh:
+            head = fh.read(2)
+        if head in (codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE):  # a spreadsheet's "Unicode text": say how to convert
+            raise error(str(utf16_error(path, head))) from None
+        raise error(f"{path}: {what} is not a readable CSV file: {exc}") from None
+    except (pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
         raise error(f"{path}: {what} is not a readable CSV file: {exc}") from None
     if "index_col" not in read_kwargs and not isinstance(frame.index, pd.RangeIndex):
         # every data row has more fields than the header: pandas took the first column as the index and shifted

@@ -14,9 +14,11 @@ empty or repeated id, a scale other than ``film`` or ``gas``, an acceptor class
 that is none of the device model's classes and a role other than ``donor``,
 ``acceptor`` or empty.  Rows of a run's own levels (a raw ``xtb_ip_ev`` value)
 are held to the checks that protect the numbers (ids, finite numbers, scale,
-acceptor class, a σ that is ≥ 0 and not in meV); what a calibration may give
-for a molecule outside its domain (levels that fail the checks above, a σ above
-1 eV) is a not-viable row of the ranking instead (:func:`check_levels`).
+acceptor class, a σ that is ≥ 0 and not in meV); levels that fail the checks
+above, which a calibration may give for a molecule outside its domain, make a
+not-viable row of the ranking instead (flag ``levels_inconsistent``), and a σ
+above 1 eV, which the calibration's own σ can reach far from its reference
+data, is kept as it is (:func:`check_levels`).
 
 On the ``gas`` scale a positive LUMO is allowed (an unbound anion, EA < 0).
 

@@ -426,20 +426,13 @@ def _pair(cand: _Candidates, is_donor: np.ndarray, partner: Partner, partner_sig
                  (s_d_homo, s_d_lumo, s_d_gap, s_a_homo, s_a_lumo, s_a_gap), acc_class)
 
 
-#: the sampler's outputs the ranking keeps: the two columns and the central range of the viable samples
-_SPREAD_KEYS = ("pce_sigma_pct", "p_above_target", "pce_q05_pct", "pce_q95_pct")
-#: how far the point estimate may lie outside the viable samples' central range before ``estimate_on_edge``: a
-#: quarter of their σ, and at least 0.05 percentage points (half the one decimal the console and the report show).
-#: An estimate at a cap or plateau its samples share (the loss floor, the detailed-balance cap) lies a few
-#: hundredths above their 95th percentile (5 of 1722 viable random pairs of an adversarial review against y6, by
-#: 0.003–0.09 points): no edge. A yield cliff puts it about a σ away (ΔHOMO 0.003 eV against y6: 6.3 %, 2.0
-#: points or 1.1 σ below the 5th percentile, 8.3 %); 12 of those 1722 pairs, each with an offset below 0.014 eV
-_EDGE_TOL_SIGMA, _EDGE_TOL_PCT = 0.25, 0.05
+#: the sampler's outputs the ranking keeps: the two columns and the steep-edge verdict
+_SPREAD_KEYS = ("pce_sigma_pct", "p_above_target", "estimate_on_edge")
 
 
 def _spread(model: DeviceModel, pair: _Pair, pair_ok: np.ndarray, options: RankOptions) -> dict:
-    """``pce_sigma_pct`` [%], ``p_above_target`` and the 5th/95th percentiles of the viable samples
-    (``pce_q05_pct``, ``pce_q95_pct`` [%]) of the viable rows (NaN elsewhere); each row's own σ."""
+    """``pce_sigma_pct`` [%], ``p_above_target`` and ``estimate_on_edge`` (:func:`screen.sampling.sample_pce`) of
+    the viable rows (NaN elsewhere); each row's own σ."""
     n = pair_ok.size
     mc = {key: np.full(n, np.nan) for key in _SPREAD_KEYS}
     idx = np.flatnonzero(pair_ok)
@@ -457,31 +450,25 @@ def _spread(model: DeviceModel, pair: _Pair, pair_ok: np.ndarray, options: RankO
     return mc
 
 
-def _spread_masks(pce, spread: dict, sampled: np.ndarray) -> dict[str, np.ndarray]:
+def _spread_masks(spread: dict, sampled: np.ndarray) -> dict[str, np.ndarray]:
     """The flags of the Monte-Carlo spread of the ``sampled`` rows (viable, paired):
 
     - ``few_viable_samples``: fewer than two samples stay viable, so ``pce_sigma_pct`` is not known (left
       empty; a row without σ has a true 0);
     - ``estimate_on_edge``: the point estimate (at the estimated levels, unchanged) lies outside the 5–95 %
-      range of the viable samples' efficiencies (:data:`screen.sampling.CENTRAL_RANGE`) by more than a quarter
-      of their σ and 0.05 percentage points (:data:`_EDGE_TOL_SIGMA`, :data:`_EDGE_TOL_PCT`): it sits on a
-      steep edge of the model, and the ± and P(PCE > target) describe samples that mostly land elsewhere (the
-      review's case: ΔHOMO 0.003 eV on the fitted yield 1 − exp(−Δ/0.01 eV) gave "6.3 ± 1.8 %" beside
-      P(PCE > 10 %) = 49 %, the viable samples' mean 12.3 %).
+      range of the viable samples' efficiencies by more than a quarter of their σ and 0.05 percentage points
+      (:func:`screen.sampling.sample_pce`): it sits on a steep edge of the model, and the ± and P(PCE > target)
+      describe samples that mostly land elsewhere (the review's case: ΔHOMO 0.003 eV on the fitted yield
+      1 − exp(−Δ/0.01 eV) gave "6.3 ± 1.8 %" beside P(PCE > 10 %) = 49 %, the viable samples' mean 12.3 %).
 
     Examples
     --------
-    >>> m = _spread_masks(np.array([6.3, 13.3, 13.62, 9.0]), {"pce_sigma_pct": np.array([1.8, 1.4, 2.8, np.nan]),
-    ...                   "pce_q05_pct": np.array([9.6, 11.0, 4.8, np.nan]),
-    ...                   "pce_q95_pct": np.array([14.9, 15.4, 13.61, np.nan])}, np.ones(4, bool))
+    >>> m = _spread_masks({"pce_sigma_pct": np.array([1.8, 1.4, np.nan]),
+    ...                    "estimate_on_edge": np.array([1.0, 0.0, 0.0])}, np.ones(3, bool))
     >>> m["estimate_on_edge"].tolist(), m["few_viable_samples"].tolist()
-    ([True, False, False, False], [False, False, False, True])
+    ([True, False, False], [False, False, True])
     """
-    pce = np.asarray(pce, dtype=float)
-    tol = np.fmax(_EDGE_TOL_SIGMA * spread["pce_sigma_pct"], _EDGE_TOL_PCT)
-    with np.errstate(invalid="ignore"):
-        outside = (pce < spread["pce_q05_pct"] - tol) | (pce > spread["pce_q95_pct"] + tol)
-    return {"estimate_on_edge": sampled & outside,
+    return {"estimate_on_edge": sampled & (np.asarray(spread["estimate_on_edge"], dtype=float) == 1.0),
             "few_viable_samples": sampled & np.isnan(spread["pce_sigma_pct"])}
 
 
@@ -965,7 +952,7 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     masks = _flag_masks(lv, cand, roles, dev, partner, options, model.ff_follows_class, unranked)
     sampled = roles.paired & _viable(masks)
     spread = _spread(model, pair, sampled, options)
-    masks.update(_spread_masks(dev["pce_pct"], spread, sampled))  # info flags: viability and passes unchanged
+    masks.update(_spread_masks(spread, sampled))  # info flags: viability and passes unchanged
     out = _sort_ranking(_ranking_frame(lv, cand, roles, partner, dev, spread, masks, model, options),
                         options.sort_by)
     out.attrs.update(attrs)

@@ -235,6 +235,10 @@ def test_dye_file_header_blanks_are_stripped(tmp_path):
     _, frame, _ = read_input(f)
     assert list(frame.columns) == ["id", "e_ox_v_nhe", "e00_ev"]
     assert dyes_from_file(frame)["e_ox_v_nhe"][0] == pytest.approx(1.03)
+    # ids that look like numbers stay the text given (a maintainer's review: '007' and '1e3' became 7.0 and 1000.0)
+    f = _write(tmp_path / "n.csv", "name, id, e_ox_v_nhe, e00_ev\nbond, 007, 1.03, 2.0\nkilo, 1e3, 1.05, 2.1\n")
+    _, frame, _ = read_input(f)
+    assert frame["id"].tolist() == ["007", "1e3"] and frame["name"].tolist() == ["bond", "kilo"]
 
 
 def test_decimal_comma_is_named(tmp_path):
@@ -253,3 +257,15 @@ def test_zero_driving_force_is_worded_as_zero():
     assert "only slightly" not in why and why.count("at the same potential as") == 2
     p = evaluate(DyeCellModel(), [0.50], [1.00], _oxide(0.50, "p"), _mediator(-0.50))
     assert "only slightly" not in p["viability"][0] and p["viability"][0].count("at the same potential as") == 2
+
+
+def test_a_fed_back_conversion_trace_is_read_with_its_solvent():
+    # a maintainer's review: a row given vs NHE with its trace Fc in DMF (+0.69 V vs NHE, electrodes.csv, from memory)
+    # was recorded as fc-mecn (+0.63 V, acetonitrile); a trace that matches no electrode counts as given vs NHE
+    from screen.dyecell.rank import _conversions
+
+    frame = pd.DataFrame({"id": ["dmf", "none", "mecn"], "e_ox_v_nhe": [1.09, 1.09, 1.03],
+                          "e_ox_reference": ["Fc", "Fc", "fc-mecn"], "solvent": ["DMF", "", "acetonitrile"],
+                          "e_ox_offset_v": [0.69, 0.69, 0.63], "e00_ev": [2.0, 2.0, 2.0]})
+    ids, offsets = _conversions(frame)
+    assert ids == ["fc-dmf", "nhe", "fc-mecn"] and offsets.tolist() == [0.69, 0.0, 0.63]

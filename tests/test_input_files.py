@@ -418,3 +418,15 @@ def test_the_dry_run_says_how_the_file_is_read_and_computes_nothing(tmp_path, ca
             "4 distinct structures") in err  # d repeats a's thiophene, and so does p's hydrogen-capped monomer
     assert "rejected: input row 2, id 'b': unparsable:" in err
     assert not (tmp_path / "out" / "levels.csv").exists() and not (tmp_path / "out" / "work").exists()
+
+
+def test_a_utf16_levels_file_gets_the_conversion_not_a_codec_error(tmp_path):
+    # a maintainer's review: candidate files in UTF-16 were read, a levels/partner/dye file got "'utf-8' codec can't
+    # decode byte 0xff", naming no fix; every CSV reader now says how to convert it
+    from screen.errors import InputError
+    from screen.io import read_csv_checked
+
+    path = tmp_path / "lv.csv"
+    path.write_bytes("id,homo_ev\nx,-5.3\n".encode("utf-16"))
+    with pytest.raises(InputError, match=r"UTF-16 text \(byte-order mark FF FE\).*iconv -f utf-16 -t utf-8 lv.csv"):
+        read_csv_checked(path, ["id", "homo_ev"], what="a levels file")

@@ -43,6 +43,7 @@ import numpy as np
 import pandas as pd
 from rdkit import Chem, RDLogger
 
+from screen.constants import FC_FILM_EV
 from screen.errors import InputError
 from screen.io import read_csv_checked
 
@@ -59,8 +60,8 @@ _NEEDED = {"ip": ["name", "smiles", "value_ev", "source"], "ea": ["name", "smile
            "dyes": ["name", "smiles", "e00_ev"]}
 #: sets without which no model can be fitted (the others are optional)
 REQUIRED_SETS = ("ip", "ea", "gap_opt", "film")
-#: ferrocene/ferrocenium level assumed when normalising electrochemical data [eV]
-FC_REFERENCE_EV = -4.8
+#: ferrocene/ferrocenium level assumed when normalising electrochemical data (:data:`screen.constants.FC_FILM_EV`) [eV]
+FC_REFERENCE_EV = FC_FILM_EV
 #: values of the film set's ``derived_level`` column besides empty (both levels measured)
 DERIVED_LEVELS = ("homo", "lumo")
 #: the dye columns this calibration uses (and hashes)

@@ -224,15 +224,22 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
 
 def _conversions(frame: pd.DataFrame) -> tuple[list[str], np.ndarray]:
     """Per row of a checked dye file: the ``electrodes.csv`` id its E(S⁺/S) was converted from (``nhe`` when given
-    as ``e_ox_v_nhe``, which wins where both are given) and the offset added [V]; ``""``/NaN without a value."""
+    as ``e_ox_v_nhe``, which wins where both are given) and the offset added [V]; ``""``/NaN without a value.
+
+    A dye table fed back in keeps its trace (``e_ox_reference``, ``e_ox_offset_v``) where the reference, read with
+    the row's solvent, has that offset in ``electrodes.csv``; otherwise the value counts as given vs NHE (a
+    maintainer's review: ``Fc`` in DMF with 0.69 V was recorded as ``fc-mecn``, whose offset is 0.63 V)."""
     direct = _num_col(frame, "e_ox_v_nhe")
     raw = _num_col(frame, "e_ox_v")
     refs, solv = _text_col(frame, "e_ox_reference").str.strip(), _text_col(frame, "solvent").str.strip()
     kept = _num_col(frame, "e_ox_offset_v")  # a dye table fed back in keeps the trace of its conversions
     ids, offsets = [], np.full(len(frame), np.nan)
     for i in range(len(frame)):
-        if np.isfinite(direct[i]) and np.isfinite(kept[i]) and refs.iloc[i] and not np.isfinite(raw[i]):
-            ids.append(reference_entry(refs.iloc[i])["reference"])
+        entry = (reference_entry(refs.iloc[i], solv.iloc[i] or None)
+                 if np.isfinite(direct[i]) and np.isfinite(kept[i]) and refs.iloc[i] and not np.isfinite(raw[i])
+                 else None)
+        if entry is not None and abs(entry["offset_v"] - kept[i]) < 1e-6:
+            ids.append(entry["reference"])
             offsets[i] = kept[i]
         elif np.isfinite(direct[i]):
             ids.append("nhe")

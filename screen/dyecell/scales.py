@@ -57,6 +57,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from screen.constants import FC_FILM_EV
 from screen.errors import InputError, ScaleMismatchError
 
 __all__ = ["ABSOLUTE_NHE_V", "FILM_FC_EV", "ELECTROCHEMICAL", "ELECTRODES_FILE", "vacuum_ev_from_nhe",
@@ -66,9 +67,8 @@ __all__ = ["ABSOLUTE_NHE_V", "FILM_FC_EV", "ELECTROCHEMICAL", "ELECTRODES_FILE",
 
 #: absolute potential of the standard hydrogen electrode (Trasatti 1986, IUPAC) [V]
 ABSOLUTE_NHE_V = 4.44
-#: vacuum-scale energy of ferrocene on dascreen's ``film`` scale (CV levels; docs/contracts.md section 6, the
-#: convention of Pommerehne et al. 1995, from memory; :data:`screen.calibration.reference.FC_REFERENCE_EV`) [eV]
-FILM_FC_EV = -4.8
+#: vacuum-scale energy of ferrocene on dascreen's ``film`` scale (:data:`screen.constants.FC_FILM_EV`) [eV]
+FILM_FC_EV = FC_FILM_EV
 #: scale name of every dye-cell potential table (V vs NHE)
 ELECTROCHEMICAL = "electrochemical"
 #: the sourced reference-electrode table

@@ -162,8 +162,11 @@ def read_input(path: str | Path) -> tuple[str, pd.DataFrame, dict | None]:
         raise InputError(f"dye-cell input {path} does not exist")
     check_field_counts(path, "dye-cell input")
     try:
-        header = pd.read_csv(path, nrows=0).columns  # blanks around the names ("id, e_ox_v_nhe") are dropped,
-        ids = {c: str for c in header if str(c).strip() == "id"}  # as one-row oxide and mediator files drop them
+        # blanks around the names ("id, e_ox_v_nhe") are dropped, as one-row oxide and mediator files drop them;
+        # the header is read as the rows are (skipinitialspace), so the id column is text under the name pandas
+        # gives it: a maintainer's review found " id" missed and the ids 007 and 1e3 ranked as 7.0 and 1000.0
+        header = pd.read_csv(path, nrows=0, skipinitialspace=True).columns
+        ids = {c: str for c in header if str(c).strip() in ("id", "name")}
         frame = pd.read_csv(path, dtype=ids, keep_default_na=False, na_values=[""], skipinitialspace=True)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise InputError(f"{path} cannot be read as CSV: {exc}") from exc

@@ -37,7 +37,7 @@ from rdkit import Chem, rdBase
 from screen.columns import (CALIBRATED_COLUMNS, ELECTRONIC_COLUMNS, LEVELS_CONTRACT_COLUMNS, RANKING_COLUMNS,
                             RANKING_EXTRA_COLUMNS)
 from screen.errors import InputError
-from screen.io import repeated_in_header, separator_problem
+from screen.io import repeated_in_header, separator_problem, utf16_error
 from screen.prepare.checks import snippet as _snippet
 from screen.prepare.shards import MANIFEST_COLUMNS
 
@@ -160,28 +160,6 @@ def not_utf8_error(path: Path, raw: bytes, fmt: str | None = None) -> InputError
     sheet = 'a spreadsheet\'s "CSV UTF-8"; ' if fmt == "csv" else ""
     return InputError(f"{path}: not UTF-8 text: {where} holds byte 0x{byte:02x}, which is not UTF-8{more}; save the "
                       f"file as UTF-8 ({sheet}from Latin-1: `iconv -f latin1 -t utf-8`)")
-
-
-def utf16_error(path: Path, raw: bytes, fmt: str | None = None) -> InputError:
-    """The error of a UTF-16 file (a byte-order mark FF FE or FE FF: a spreadsheet's "Unicode text") that is not
-    read as such: an SD file, or UTF-16 that does not decode. Before, it got "not UTF-8 ... from Latin-1: `iconv -f
-    latin1`" with an id of NUL characters (an input-file audit), which sent the user to the wrong conversion.
-
-    Examples
-    --------
-    >>> print(utf16_error(Path("c.sdf"), codecs.BOM_UTF16_LE + "x".encode("utf-16-le"), "sdf"))  # doctest: +ELLIPSIS
-    c.sdf: UTF-16 text (byte-order mark FF FE), not UTF-8: convert it with `iconv -f utf-16 -t utf-8 c.sdf > ...
-    """
-    mark = "FF FE" if raw.startswith(codecs.BOM_UTF16_LE) else "FE FF"
-    sheet = ' or save it from the spreadsheet as "CSV UTF-8"' if fmt in (None, "csv", "smi") else ""
-    try:
-        raw.decode("utf-16")
-        broken = ""
-    except UnicodeDecodeError:
-        broken = " (and it does not decode as UTF-16 either: check the file)"
-    out = f"{path.stem}-utf8{path.suffix}"
-    return InputError(f"{path}: UTF-16 text (byte-order mark {mark}), not UTF-8{broken}: convert it with "
-                      f"`iconv -f utf-16 -t utf-8 {path.name} > {out}`{sheet}")
 
 
 def _read_text(path: Path, gz: bool, fmt: str | None = None) -> str:
