@@ -561,7 +561,7 @@ def test_diagram_draws_the_nearest_not_viable_dyes_and_explains_the_boxes(tmp_pa
     page = (path.parent / "report.html").read_text()
     svg = page[page.index('<svg id="fig-dyecell"'):page.index("</svg>", page.index('<svg id="fig-dyecell"'))]
     assert ">N1<" in svg and ">N2<" in svg and ">G1<" in svg and ">N3<" not in svg
-    assert ">not viable<" in svg and ">not-viable dye<" in svg and ">below threshold<" in svg
+    assert ">not viable<" in svg and ">not-viable dye<" in svg and ">below threshold (dashed, \u2717)<" in svg
     # the arrow label shows the miss (0.198, not 0.20); labels are drawn as outlined paths, so read the figure
     import json
 
@@ -575,7 +575,7 @@ def test_diagram_draws_the_nearest_not_viable_dyes_and_explains_the_boxes(tmp_pa
     with matplotlib.rc_context(_RC):
         fig = dyecell_figure(diagram_rows(r, r[r["passes"].map(str).eq("True")], meta), meta)
     labels = {t.get_text() for t in fig.axes[0].texts}
-    assert "0.198" in labels and "0.20" not in labels
+    assert "0.198 \u2717" in labels and "0.20" not in labels and "0.20 \u2717" not in labels
     caption = page[page.index("<figcaption>"):page.index("</figcaption>")]
     assert "the 2 not-viable dye(s) that come closest to a driving-force threshold" in caption
     assert "Shaded boxes" in caption and "\u00b11\u03c3" in caption

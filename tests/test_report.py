@@ -760,5 +760,6 @@ def test_the_level_diagram_draws_both_offsets():
     ax = Figure().add_subplot()
     _draw_levels(ax, rows, {"id": "acc", "homo_ev": -5.65, "lumo_ev": -4.09}, 0.0, 0.3, thr_homo=0.0)
     labels = {t.get_text(): t.get_color() for t in ax.texts if t.get_text()}
-    assert set(labels) == {"0.59", "0.49", "0.25", "\u22120.05"}
-    assert labels["\u22120.05"] == _BRICK and labels["0.25"] != _BRICK and labels["0.59"] != _BRICK
+    # a value below its threshold is also marked \u2717 (and its arrow dashed): not told by colour alone
+    assert set(labels) == {"0.59", "0.49", "0.25", "\u22120.05 \u2717"}
+    assert labels["\u22120.05 \u2717"] == _BRICK and labels["0.25"] != _BRICK and labels["0.59"] != _BRICK

@@ -21,10 +21,10 @@ import math
 import pandas as pd
 
 from screen.dyecell.scales import ABSOLUTE_NHE_V
-from screen.report.figures import _RC, _figure_svg
+from screen.report.figures import _RC, BELOW_LS, BELOW_MARK, _figure_svg
 from screen.report.format import fmt, get, num, shorten, text
 
-__all__ = ["dyecell_diagram_svg", "dyecell_figure", "diagram_rows", "DIAGRAM_MAX", "DIAGRAM_FAILING"]
+__all__ = ["dyecell_diagram_svg", "dyecell_figure", "diagram_rows", "DIAGRAM_MAX", "DIAGRAM_FAILING", "BELOW_MARK"]
 
 #: dyes drawn at most
 DIAGRAM_MAX = 10
@@ -37,14 +37,20 @@ _SLATE, _SLATE_LIGHT, _BRICK = "#3e4c59", "#9aa5b1", "#a4362b"
 _LABEL_X = -1.5
 
 
-def _arrow(ax, x, y_from, y_to, colour, label, stroke):
+
+
+def _arrow(ax, x, y_from, y_to, colour, label, stroke, low=False):
+    """A driving-force arrow with its value beside it; ``low`` (below the threshold): dashed, the label marked ✗
+    (an accessibility audit: brick red alone told the failing arrows apart, lost to colour-blind readers and in
+    greyscale prints)."""
     if math.isnan(y_from) or math.isnan(y_to):
         return
     if abs(y_to - y_from) > 0.015:
         ax.annotate("", xy=(x, y_to), xytext=(x, y_from),
-                    arrowprops=dict(arrowstyle="-|>", color=colour, lw=1.1, shrinkA=0, shrinkB=0, mutation_scale=8))
-    ax.text(x + 0.05, 0.5 * (y_from + y_to), label, color=colour, fontsize=8, va="center", ha="left",
-            path_effects=stroke)
+                    arrowprops=dict(arrowstyle="-|>", color=colour, lw=1.1, shrinkA=0, shrinkB=0, mutation_scale=8,
+                                    ls=BELOW_LS if low else "-"))
+    ax.text(x + 0.05, 0.5 * (y_from + y_to), f"{label} {BELOW_MARK}" if low else label, color=colour, fontsize=8,
+            va="center", ha="left", fontweight="bold" if low else "normal", path_effects=stroke)
 
 
 def _truthy(value) -> bool:
@@ -146,7 +152,7 @@ def dyecell_diagram_svg(rows: pd.DataFrame, meta: dict) -> str:
         ground-state E(S⁺/S) (slate) and excited-state E(S⁺/S*) (teal) levels
         with ±1σ boxes, an injection arrow from E(S⁺/S*) to the band edge and a
         regeneration arrow from the mediator to E(S⁺/S), each labelled with its
-        driving force in eV (brick red when below the threshold).  For a
+        driving force in eV (brick red, dashed and marked ✗ when below the threshold).  For a
         p-type oxide the teal level is the estimated reduced-dye potential
         E(S/S⁻) ≈ E(S⁺/S) − E₀₋₀/e and the arrows run from the valence band to
         E(S*/S⁻) ≈ E(S⁺/S) and from E(S/S⁻) to the mediator.  Not-viable rows
@@ -220,8 +226,8 @@ def dyecell_figure(rows: pd.DataFrame, meta: dict):
         d_inj, d_reg = num(row.get("drive_inj_ev")), num(row.get("drive_reg_ev"))
         low_inj = not math.isnan(thr_inj) and not math.isnan(d_inj) and d_inj < thr_inj - 1e-9
         low_reg = not math.isnan(thr_reg) and not math.isnan(d_reg) and d_reg < thr_reg - 1e-9
-        inj = (_BRICK if low_inj else _AMBER_DARK, _drive_label(d_inj, thr_inj, low_inj), stroke)
-        reg = (_BRICK if low_reg else _TEAL_DARK, _drive_label(d_reg, thr_reg, low_reg), stroke)
+        inj = (_BRICK if low_inj else _AMBER_DARK, _drive_label(d_inj, thr_inj, low_inj), stroke, low_inj)
+        reg = (_BRICK if low_reg else _TEAL_DARK, _drive_label(d_reg, thr_reg, low_reg), stroke, low_reg)
         if p_type:
             _arrow(ax, x - half - 0.05, e_edge, g, *inj)
             _arrow(ax, x + half + 0.05, e, e_med, *reg)
@@ -258,7 +264,8 @@ def dyecell_figure(rows: pd.DataFrame, meta: dict):
                       label="injection driving force [eV]"),
                Line2D([], [], color=_TEAL_DARK, lw=1.1, marker=">", markersize=4,
                       label="regeneration driving force [eV]"),
-               Line2D([], [], color=_BRICK, lw=1.1, marker=">", markersize=4, label="below threshold")]
+               Line2D([], [], color=_BRICK, lw=1.1, ls=BELOW_LS, marker=">", markersize=4,
+                      label=f"below threshold (dashed, {BELOW_MARK})")]
     if any_box:
         handles.append(Patch(facecolor=_SLATE, alpha=0.16, lw=0, label="\u00b11\u03c3 of the level"))
     if not all(viable):

@@ -433,26 +433,34 @@ def _decimals(col: str, value, thresholds: dict) -> int:
     return 3 if not (math.isnan(limit) or math.isnan(v)) and abs(v - limit) < 0.01 else 2
 
 
+#: a sortable header whose first click sorts largest first
+_FIRST_DOWN = ' data-first="descending"'
+
+
 def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
     target = fmt(get(meta, "rank", "target_pce_pct"), 1)
-    head = ['<th class="js-sort num-h" data-type="num">Rank</th>']
+    # the report's sortable markup (report.js arms th[data-sort] of table.sortable: click, Enter, Space); an
+    # accessibility audit found "Click a column header to sort" here with headers the script never armed
+    head = ['<th scope="col" class="num-h" data-sort="num" data-key="rank" aria-sort="ascending">Rank</th>']
     if drawings:
-        head.append("<th>Structure</th>")
-    head.append('<th class="js-sort">Dye</th>')
+        head.append('<th scope="col">Structure</th>')
+    head.append('<th scope="col" data-sort="text" data-key="id">Dye</th>')
     headers = _headers(meta)
-    head += [f'<th class="js-sort num-h" data-type="num">{h}</th>' for h, _ in headers]
-    head += [f'<th class="js-sort num-h" data-type="num">P(PCE &gt; {target} %)</th>',
-             '<th class="js-sort num-h" data-type="num" title="fraction of samples of E(S\u207a/S) and '
-             'E\u2080\u208b\u2080 within their \u03c3 that inject and regenerate">P(viable)</th>',
-             "<th>Anchor</th>", "<th>Viability and flags</th>"]
+    first = {"drive_inj_ev", "drive_reg_ev", "voc_v", "jsc_ma_cm2", "pce_pct"}  # larger is better: first descending
+    head += [f'<th scope="col" class="num-h" data-sort="num"{_FIRST_DOWN if col in first else ""}'
+             f' data-key="{col}">{h}</th>' for h, col in headers]
+    head += [f'<th scope="col" class="num-h" data-sort="num" data-first="descending" data-key="p_above_target">'
+             f'P(PCE &gt; {target} %)</th>',
+             '<th scope="col" class="num-h" data-sort="num" data-first="descending" data-key="p_viable">P(viable)</th>',
+             '<th scope="col">Anchor</th>', '<th scope="col">Viability and flags</th>']
     body = []
     for _, r in rows.iterrows():
         cells = [f'<td class="rank" data-value="{data_value(r.get("rank"))}">{esc(r.get("rank"))}</td>']
         if drawings:
-            svg = molecule_svg(text(r.get("smiles")), text(r.get("id")))
+            svg = molecule_svg(text(r.get("smiles")), f"structure of {text(r.get('id'))}")
             cells.append(f'<td class="struct">{svg or "<span class=nostruct>no drawing</span>"}</td>')
         name = text(r.get("name"))
-        cells.append(f'<td class="cand"><span class="cid">{esc(r.get("id"))}</span>'
+        cells.append(f'<td class="cand" data-value="{esc(r.get("id"))}"><span class="cid">{esc(r.get("id"))}</span>'
                      + (f'<span class="cname">{esc(name)}</span>' if name else "") + "</td>")
         sig = {"e_ox_v_nhe": "e_ox_sigma_v", "e00_ev": "e00_sigma_ev", "pce_pct": "pce_sigma_pct"}
         thresholds = {"drive_inj_ev": num(get(meta, "model", "min_drive_inj_ev")),
@@ -474,11 +482,11 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
         own = text(r.get("uncalibrated_elements")).strip()
         extra = {"element_uncalibrated": f"; this dye: {', '.join(own.split())}"} if own else {}
         cells.append(f"<td>{why}{_flags_html(r.get('flags'), meta, extra, said=bool(why))}</td>")
-        body.append("<tr>" + "".join(cells) + "</tr>")
+        body.append(f'<tr data-id="{esc(r.get("id"))}">' + "".join(cells) + "</tr>")
     if not body:
         span = len(head)
         body.append(f'<tr><td class="empty" colspan="{span}">no dye</td></tr>')
-    return (f'<table id="{ident}" class="{"short" if drawings else "full"}"><thead><tr>{"".join(head)}</tr>'
+    return (f'<table id="{ident}" class="sortable {"short" if drawings else "full"}"><thead><tr>{"".join(head)}</tr>'
             f'</thead><tbody>{"".join(body)}</tbody></table>')
 
 
@@ -492,8 +500,9 @@ def _not_ranked(table: pd.DataFrame) -> tuple[str, int]:
                    f'<td class="notes-compact">{esc(r.get("error")) or NOT_RECORDED}</td>'
                    f'<td><code class="smi">{esc(shorten(text(r.get("smiles")), 120))}</code></td></tr>'
                    for _, r in rows.iterrows())
-    return ('<table id="not-ranked-table" class="full"><thead><tr><th>Id</th><th>Status</th><th>Reason</th>'
-            f"<th>SMILES</th></tr></thead><tbody>{body}</tbody></table>", len(rows))
+    return ('<table id="not-ranked-table" class="full"><thead><tr><th scope="col">Id</th><th scope="col">Status</th>'
+            '<th scope="col">Reason</th><th scope="col">SMILES</th></tr></thead>'
+            f"<tbody>{body}</tbody></table>", len(rows))
 
 
 def _axis_note() -> str:
@@ -537,7 +546,8 @@ def _figure_caption(meta: dict, n_drawn: int, n_failing: int, any_viable: bool =
             f"{levels} of the {who}, numbered by rank, against the oxide\u2019s band edge and the mediator\u2019s "
             "potential. More negative potentials (higher electron energies) are at the top; the right axis gives "
             f"the vacuum scale, \u2212e(E + 4.44 V). {_axis_note()} "
-            f"{arrows}, in eV (brick red: below the threshold). Shaded boxes, where the levels carry an "
+            f"{arrows}, in eV (below the threshold: brick red, dashed and marked \u2717). Shaded boxes, where the "
+            "levels carry an "
             "uncertainty, span \u00b11\u03c3: of E(S\u207a/S) for the ground state and, for "
             f"{sigma}, the σ of E(S\u207a/S) and of E\u2080\u208b\u2080 combined in quadrature; values "
             "from a dye file without \u03c3 have no box.")
@@ -602,26 +612,27 @@ def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict
         f'<strong>{esc(med.get("id")) or NOT_RECORDED}</strong></p>',
         f'<p class="stamp">Generated {esc(created)} \u00b7 dascreen {esc(__version__)}</p>', "</header>", "<main>",
         _caution(meta), f'<div class="counts">{strip}</div>',
-        '<h2 id="run"><span class="num">1</span>Run at a glance</h2>', '<div class="cards">',
+        '<h2 id="run"><span class="num">1</span> Run at a glance</h2>', '<div class="cards">',
         _material_card(ox, "Oxide", "card-oxide", "Band edge"),
         _material_card(med, "Mediator", "card-mediator", "Redox potential"), _model_card(meta), "</div>",
         _conversions_html(meta),
-        '<h2 id="shortlist"><span class="num">2</span>Shortlist for discussion</h2>',
+        '<h2 id="shortlist"><span class="num">2</span> Shortlist for discussion</h2>',
         f'<p class="summary">{summary}</p>',
         f'<p class="quiet">Shown: {esc(how)}. Potentials in V vs NHE, value \u00b1 1\u03c3; driving forces in '
         "eV; PCE \u00b1 1\u03c3 of the Monte-Carlo samples that stay viable (the spread if the dye works), with "
-        "\u201cworks in \u2026 % of samples\u201d, P(viable), beside it. "
+        "\u201cworks in \u2026 % of samples\u201d, P(viable), beside it: the fraction of samples of E(S\u207a/S) "
+        "and E\u2080\u208b\u2080 within their \u03c3 that inject and regenerate. "
         f"{_definitions(meta)}. Viable dyes are ordered by estimated PCE; with one oxide, one mediator and the "
         "same photon-to-current efficiency, fill factor and V<sub>oc</sub> loss for every dye, that is in effect the "
         "order of E\u2080\u208b\u2080 (smallest first): E(S\u207a/S) enters only through the injection and "
         "regeneration checks. Not-viable dyes follow, by id. Click a column header to sort.</p>",
-        f'<div class="tablewrap">{_table(short, meta, True, "shortlist-table")}</div>', _not_viable(ranking),
+        f'<div class="tablewrap wide">{_table(short, meta, True, "shortlist-table")}</div>', _not_viable(ranking),
         '<details id="all-ranked">', f"<summary>Every ranked dye ({len(ranking)} rows)</summary>",
-        f'<div class="tablewrap">{_table(ranking, meta, False, "full-table")}</div>', "</details>",
-        '<h2 id="figures"><span class="num">3</span>Energy diagram</h2>',
+        f'<div class="tablewrap wide">{_table(ranking, meta, False, "full-table")}</div>', "</details>",
+        '<h2 id="figures"><span class="num">3</span> Energy diagram</h2>',
         f'<figure class="levels" id="figure-dyecell">{figure}<figcaption>'
         f"{_figure_caption(meta, len(drawn), n_extra, n_pass > 0)}</figcaption></figure>",
-        f'<h2 id="not-ranked"><span class="num">4</span>Not ranked ({n_unranked})</h2>',
+        f'<h2 id="not-ranked"><span class="num">4</span> Not ranked ({n_unranked})</h2>',
         '<p class="quiet">Input rows that were rejected or whose computation failed, with the reason.</p>',
         f'<div class="tablewrap">{unranked}</div>', "</main>", '<footer id="files">',
         "<h3>Files beside this report</h3>", f"<ul>{exports}</ul>",

@@ -22,10 +22,14 @@ import pandas as pd
 
 from screen.report.format import esc, fmt, get, num, shorten, text, texts
 
-__all__ = ["level_diagram_svg", "design_map_svg", "DIAGRAM_MAX"]
+__all__ = ["level_diagram_svg", "design_map_svg", "DIAGRAM_MAX", "BELOW_MARK"]
 
 #: Candidates drawn in the level-alignment figure at most.
 DIAGRAM_MAX = 12
+#: Mark after an offset (or a dye's driving force) below its threshold; such arrows are also dashed
+BELOW_MARK = "\u2717"
+#: Line style of an arrow below its threshold
+BELOW_LS = (0, (3, 2))
 _DECIMAL = re.compile(r"(-?\d+\.\d+)")  # captured: re.split keeps the numbers
 _GEOMETRY_ATTRIBUTE = re.compile(r'\s(d|x|y|transform|points)="([^"]*)"')
 _ID_ATTRIBUTE = re.compile(r'id="([^"]+)"')
@@ -241,9 +245,12 @@ def _offset_arrow(ax, x: float, y: float, y_partner: float, value: float, low: b
     if abs(y - y_partner) > 0.02:
         ax.annotate("", xy=(x, y), xytext=(x, y_partner),
                     arrowprops=dict(arrowstyle="<|-|>", color=colour, lw=1.0, shrinkA=0, shrinkB=0,
-                                    mutation_scale=7))
-    ax.text(x + (0.04 if right else -0.04), 0.5 * (y + y_partner), fmt(value, 2), color=colour, fontsize=8.5,
-            va="center", ha="left" if right else "right", path_effects=stroke)
+                                    mutation_scale=7, ls=BELOW_LS if low else "-"))
+    # below the threshold: dashed and marked, not told by colour alone (an accessibility audit)
+    label = f"{fmt(value, 2)} {BELOW_MARK}" if low else fmt(value, 2)
+    ax.text(x + (0.04 if right else -0.04), 0.5 * (y + y_partner), label, color=colour, fontsize=8.5,
+            va="center", ha="left" if right else "right", fontweight="bold" if low else "normal",
+            path_effects=stroke)
 
 
 def _draw_levels(ax, rows: pd.DataFrame, partner: dict, thr: float, half: float,
@@ -323,11 +330,14 @@ def _level_legend(ax, thr: float, thr_homo: float = math.nan) -> None:
         Patch(facecolor=_SLATE, alpha=0.16, label="\u00b11\u03c3 band"),
         Line2D([], [], color=_TEAL_DARK, lw=1.0, marker=">", markersize=4,
                label="\u0394LUMO [eV], right" + ("" if math.isnan(thr) else
-                                                 f" (brick red: below {fmt(thr)} eV)")),
+                                                 f" (below {fmt(thr)} eV: {BELOW_MARK})")),
         Line2D([], [], color=_SLATE, lw=1.0, marker="<", markersize=4,
                label="\u0394HOMO [eV], left" + ("" if math.isnan(thr_homo) else
-                                                f" (brick red: below {fmt(max(thr_homo, 0.0))} eV)")),
+                                                f" (below {fmt(max(thr_homo, 0.0))} eV: {BELOW_MARK})")),
     ]
+    if not (math.isnan(thr) and math.isnan(thr_homo)):
+        handles.append(Line2D([], [], color=_BRICK, lw=1.0, ls=BELOW_LS, marker=">", markersize=4,
+                              label=f"below its threshold: brick red, dashed, {BELOW_MARK}"))
     ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=3, fontsize=8.5,
               frameon=False, handlelength=1.6, columnspacing=1.2)
 
@@ -352,7 +362,7 @@ def level_diagram_svg(shortlist: pd.DataFrame, partner: dict, meta: dict) -> str
         (teal) of each candidate with ±σ bands, the partner's levels in amber
         as a column of their own and as dashed guides across the plot, and a
         double arrow with the value of ΔLUMO right of every candidate and of ΔHOMO
-        left of it (brick red when below the threshold).  Vacuum scale, eV.
+        left of it (brick red, dashed and marked \u2717 when below the threshold).  Vacuum scale, eV.
 
     Examples
     --------
@@ -494,12 +504,23 @@ def _map_contours(ax, gaps, offsets, pce, target: float):
     levels = np.arange(0.0, math.ceil(top / step) * step + step, step)
     # x = gap, y = offset; contourf(X, Y, Z) wants Z[y, x], the map is Z[gap, offset]
     filled = ax.contourf(gaps, offsets, pce.T, levels=levels, cmap=cmap)
+    from matplotlib import patheffects
+
+    halo = [patheffects.withStroke(linewidth=2.2, foreground="white")]
     lines = ax.contour(gaps, offsets, pce.T, levels=levels[1::2], colors=[_TEAL_DARK],
                        linewidths=0.5, alpha=0.55)
-    ax.clabel(lines, fmt=lambda v: f"{v:.0f}", fontsize=7.5, colors=[_TEAL_DARK], inline_spacing=2)
+    # labels with a white outline: dark teal on the dark end of the map was unreadable (an accessibility audit)
+    for label in ax.clabel(lines, fmt=lambda v: f"{v:.0f}", fontsize=7.5, colors=[_TEAL_DARK], inline_spacing=2):
+        label.set_path_effects(halo)
+        label.set_alpha(1.0)  # not the lines' 0.55: pale text on its white outline
     if not math.isnan(target) and 0 < target < top:
+        # a double line (dark edges, amber core) that stays apart from the map's colours in greyscale
         tline = ax.contour(gaps, offsets, pce.T, levels=[target], colors=[_AMBER], linewidths=1.8)
-        ax.clabel(tline, fmt=lambda v: f"target {v:g} %", fontsize=7.5, colors=[_AMBER_DARK])
+        tline.set_path_effects([patheffects.Stroke(linewidth=4.2, foreground=_TEAL_DARK),
+                                patheffects.Stroke(linewidth=2.6, foreground="white"), patheffects.Normal()])
+        for label in ax.clabel(tline, fmt=lambda v: f"target {v:g} %", fontsize=7.5, colors=[_AMBER_DARK]):
+            label.set_path_effects(halo)
+            label.set_fontweight("bold")
     return filled
 
 
@@ -564,8 +585,10 @@ def _map_candidates(ax, pts: pd.DataFrame, finite: pd.Series, shortlist_index, e
     ax.plot(pts.loc[rest & pts["viable"], "x"], pts.loc[rest & pts["viable"], "y"], ls="none", marker="o", ms=4.0,
             color=_SLATE, alpha=0.75, mec="white", mew=0.4, label="ranked candidate", zorder=3, rasterized=many)
     if (rest & ~pts["viable"]).any():
+        # larger and white-edged: a small brick cross vanished on the dark end of the map (an accessibility audit)
         ax.plot(pts.loc[rest & ~pts["viable"], "x"], pts.loc[rest & ~pts["viable"], "y"], ls="none", marker="x",
-                ms=4.5, color=_BRICK, alpha=0.8, label="candidate, not viable", zorder=3, rasterized=many)
+                ms=6.5, mew=1.6, color=_BRICK, label="candidate, not viable", zorder=3, rasterized=many,
+                path_effects=[patheffects.Stroke(linewidth=3.2, foreground="white"), patheffects.Normal()])
     sl = finite & short
     ax.scatter(pts.loc[sl, "x"], pts.loc[sl, "y"], s=46, marker="D", c=_AMBER, edgecolors=_TEAL_DARK,
                linewidths=0.9, label="shortlisted (label = id)", zorder=4)

@@ -59,8 +59,8 @@ body{font:14px/1.4 system-ui,-apple-system,"Segoe UI",sans-serif;margin:24px;col
 h1{font-size:20px;margin:0 0 4px}p.sub{color:#555;margin:0 0 16px;max-width:70em}
 p.caution{background:#fff4e0;border-left:5px solid #d9822b;padding:8px 14px;margin:0 0 16px;max-width:70em}
 table{border-collapse:collapse}th,td{border:1px solid #ddd;padding:4px 6px;text-align:center}
-th.cand,td.cand{text-align:left}td.na{background:#eee;color:#888}
-td.np{background:repeating-linear-gradient(45deg,#fff 0 4px,#e4e4e4 4px 8px);color:#666;font-size:11px;font-style:italic}
+th.cand,td.cand{text-align:left}td.na{background:#eee;color:#555}tr{break-inside:avoid}
+td.np{background:repeating-linear-gradient(45deg,#fff 0 4px,#e4e4e4 4px 8px);color:#444;font-size:11px;font-style:italic}
 td.unc{outline:2px dashed #d9822b;outline-offset:-3px}td sup.unc{font-weight:700;margin-left:1px}
 .legend span.np{background:repeating-linear-gradient(45deg,#fff 0 4px,#e4e4e4 4px 8px)}
 .legend span.unc{outline:2px dashed #d9822b;outline-offset:-3px;background:#fff}
@@ -70,6 +70,11 @@ svg.mol{display:block}.legend{display:flex;align-items:center;gap:6px;margin:8px
 .legend span.sw{display:inline-block;width:28px;height:14px}footer{color:#666;margin-top:16px;font-size:12px}
 p.stale{background:#fde8e4;border-left:5px solid #b03a2e;padding:8px 14px;margin:0 0 16px;max-width:70em}
 p.stale code{word-break:break-all}th small.stale{color:#b03a2e;font-weight:600}td.stale{font-style:italic;opacity:.75}
+div.tablewrap{overflow-x:auto;max-width:100%}
+td,.legend span.sw{-webkit-print-color-adjust:exact;print-color-adjust:exact}
+@media (max-width:700px){body{margin:10px}}
+@media print{@page{margin:12mm}body{margin:0}div.tablewrap{overflow:visible}thead{display:table-header-group}
+h1,.legend{break-after:avoid}}
 """
 
 
@@ -88,8 +93,35 @@ def heat_colour(value: float, low: float, high: float) -> tuple[str, str]:
     i = min(int(pos), len(_SCALE) - 2)
     f = pos - i
     rgb = [round(a + (b - a) * f) for a, b in zip(_SCALE[i], _SCALE[i + 1])]
-    luminance = 0.2126 * rgb[0] + 0.7152 * rgb[1] + 0.0722 * rgb[2]
-    return "#{:02x}{:02x}{:02x}".format(*rgb), ("#ffffff" if luminance < 128 else "#1b1b1b")
+    background = "#{:02x}{:02x}{:02x}".format(*rgb)
+    # the text colour with the higher WCAG contrast ratio on this background (an accessibility audit: the
+    # old rule, unweighted sRGB luminance below 128, chose white where dark text reads better)
+    on_white, on_dark = _contrast(background, "#ffffff"), _contrast(background, _DARK_TEXT)
+    return background, ("#ffffff" if on_white > on_dark else _DARK_TEXT)
+
+
+#: the dark text colour of the page and of light heat cells
+_DARK_TEXT = "#1b1b1b"
+
+
+def _luminance(colour: str) -> float:
+    """WCAG 2 relative luminance of ``#rrggbb`` (linearised sRGB, Rec. 709 weights)."""
+    def lin(c: float) -> float:
+        return c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4
+    r, g, b = (lin(int(colour[i:i + 2], 16) / 255.0) for i in (1, 3, 5))
+    return 0.2126 * r + 0.7152 * g + 0.0722 * b
+
+
+def _contrast(a: str, b: str) -> float:
+    """WCAG 2 contrast ratio of two ``#rrggbb`` colours (1 to 21).
+
+    Examples
+    --------
+    >>> round(_contrast("#ffffff", "#000000"), 1)
+    21.0
+    """
+    hi, lo = sorted((_luminance(a), _luminance(b)), reverse=True)
+    return (hi + 0.05) / (lo + 0.05)
 
 
 #: title of a cell whose partner's ranking read other levels than the newest ranking of the matrix
@@ -105,7 +137,7 @@ def _head_cell(p: dict, stale: bool = False) -> str:
     paired = p.get("paired", p.get("ranked"))  # candidates of the partner's own role do not count
     viable = f"{p['viable']}/{paired} viable" if "viable" in p and paired is not None else ""
     mark = '<small class="stale">stale: earlier levels</small>' if stale else ""
-    return f"<th>{title}<small>{role}</small><small>{levels}</small><small>{viable}</small>{mark}</th>"
+    return f"<th scope=\"col\">{title}<small>{role}</small><small>{levels}</small><small>{viable}</small>{mark}</th>"
 
 
 def _cell(value, low: float, high: float, stale: bool = False, note: str = "") -> str:
@@ -190,6 +222,7 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
     caution = device_tests_html(meta.get("device_tests"))[1]
     return (
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+        '<meta name="viewport" content="width=device-width, initial-scale=1">'
         f"<title>Partner matrix: {len(matrix)} candidates x {len(ids)} partners</title>"
         f"<style>{_STYLE}</style></head><body>\n"
         f"<h1>Partner matrix: {len(matrix)} candidates \u00d7 {len(ids)} partners</h1>\n"
@@ -202,8 +235,9 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
         + _stale_banner(meta.get("stale"))
         + (f'<p class="caution">{caution}</p>\n' if caution else "")
         + f"{_legend(low, high)}"
-        f"<table><thead><tr><th class=\"cand\">candidate</th>{head}<th>best partner</th></tr></thead>\n"
-        f"<tbody>{''.join(rows)}</tbody></table>\n{more}"
+        f"<div class=\"tablewrap\"><table><thead><tr><th class=\"cand\" scope=\"col\">candidate</th>{head}"
+        f"<th scope=\"col\">best partner</th></tr></thead>\n"
+        f"<tbody>{''.join(rows)}</tbody></table></div>\n{more}"
         f"<footer>dascreen {esc(__version__)} \u00b7 {esc(when)} \u00b7 matrix.csv holds every row</footer>"
         "\n</body></html>\n"
     )

@@ -273,7 +273,7 @@ def _shortlist_section(ranking: pd.DataFrame, short: pd.DataFrame, how: str, pid
                        meta: dict) -> list[str]:
     """Section 2: summary, shortlist table and the collapsible table of every ranked row."""
     return [
-        '<h2 id="shortlist"><span class="num">2</span>Shortlist for discussion</h2>',
+        '<h2 id="shortlist"><span class="num">2</span> Shortlist for discussion</h2>',
         f'<p class="summary">{_summary_sentence(ranking, pid, n_pass, _sort_by(meta))}</p>',
         *([f'<p class="caution">{caution}</p>'] if (caution := device_tests_html(meta.get("device_tests"))[1])
           else []),
@@ -283,10 +283,10 @@ def _shortlist_section(ranking: pd.DataFrame, short: pd.DataFrame, how: str, pid
         "clear their thresholds; rows with equal estimates, and the not-viable rows, are ordered by P(aligned), "
         "then id. "
         "Click a column header to sort.</p>",
-        f'<div class="tablewrap">{shortlist_table(short, meta)}</div>',
+        f'<div class="tablewrap wide">{shortlist_table(short, meta)}</div>',
         '<details id="all-ranked">',
         _all_ranked_summary(len(ranking)),
-        f'<div class="tablewrap">{full_table(ranking.head(FULL_TABLE_MAX_ROWS), meta)}</div>',
+        f'<div class="tablewrap wide">{full_table(ranking.head(FULL_TABLE_MAX_ROWS), meta)}</div>',
         "</details>",
         *([f'<p class="quiet" id="pce-capped-note">{note}</p>'] if (note := capped_note(ranking, meta)) else []),
     ]
@@ -317,18 +317,20 @@ def _figures_section(levels_fig: str, map_fig: str, map_note: str, n_short: int,
     thr = num(get(meta, "device", "min_delta_lumo_ev"))
     n_diag = min(n_short, DIAGRAM_MAX)
     return [
-        '<h2 id="figures"><span class="num">3</span>Level alignment and gap\u2013offset map</h2>',
+        '<h2 id="figures"><span class="num">3</span> Level alignment and gap\u2013offset map</h2>',
         '<div class="figs">',
         f'<figure class="levels" id="figure-levels">{levels_fig}<figcaption><strong>Level alignment.</strong> '
         f"HOMO and LUMO of the {'first ' + str(n_diag) + ' ' if n_diag else ''}shortlisted candidates "
         "(numbered by rank) beside the partner, on the vacuum scale; shaded bands are \u00b11\u03c3. "
-        "Arrows give \u0394LUMO in eV"
-        + (f"; brick red marks offsets below {fmt(thr)} eV" if not math.isnan(thr) else "")
+        "Arrows give \u0394LUMO (right of each candidate) and \u0394HOMO (left) in eV"
+        + (f"; an offset below its threshold ({fmt(thr)} eV for \u0394LUMO) is drawn brick red and dashed, its "
+           "value marked \u2717" if not math.isnan(thr) else "")
         + ".</figcaption></figure>",
         f'<figure class="map" id="figure-map">{map_fig}<figcaption><strong>Gap\u2013offset map.</strong> '
         "Estimated PCE of this run\u2019s device model against the chosen partner, as a function of the "
         "candidate\u2019s optical gap and LUMO offset (its HOMO taken as LUMO \u2212 optical gap); the hatched "
-        "region is not viable (no working alignment) and has no PCE. Dots: ranked candidates, labelled by id. "
+        "region is not viable (no working alignment) and has no PCE. Dots: ranked candidates; crosses: ranked "
+        "candidates that are not viable; diamonds: the shortlist, labelled by id. "
         "A candidate\u2019s own estimate (tables) uses its computed HOMO and can differ from the colour under "
         "its marker. "
         f"{esc(map_note)}</figcaption></figure>",
@@ -342,7 +344,7 @@ def _set_aside_section(levels: pd.DataFrame, ranking: pd.DataFrame, meta: dict) 
     bad_html, n_bad, ranks = not_viable_table(ranking, meta)
     where = f" ({ranks}, below every viable pair)" if ranks else ""
     return [
-        '<h2 id="set-aside"><span class="num">4</span>Not ranked and not viable</h2>',
+        '<h2 id="set-aside"><span class="num">4</span> Not ranked and not viable</h2>',
         f'<h3 id="not-ranked">Not ranked ({n_unranked})</h3>',
         '<p class="quiet">Input rows that were rejected while reading the input, whose computation '
         "failed, or that the ranking settings left out \u2014 listed so that nothing disappears.</p>",
@@ -421,7 +423,7 @@ def render_report(ranking: pd.DataFrame, levels: pd.DataFrame, partner: dict, me
         "<main>",
         _CAUTION,
         counts_strip(meta, levels, ranking, n_short, n_pass),
-        '<h2 id="run"><span class="num">1</span>Run at a glance</h2>',
+        '<h2 id="run"><span class="num">1</span> Run at a glance</h2>',
         '<div class="cards">',
         partner_card(partner, meta),
         protocol_card(meta),

@@ -345,9 +345,22 @@ def capped_note(ranking: pd.DataFrame, meta: dict | None = None) -> str:
     n = sum(_capped(ranking)) if ranking is not None and len(ranking) else 0
     if not n:
         return ""
+    # the products, visible and printed (an accessibility audit: they were in the cells' tooltips only)
+    products = [f"{esc(text(ident))} {_product_pct(voc, jsc, ff, meta or {}):.1f} %"
+                for capped, ident, voc, jsc, ff in zip(_capped(ranking), _cells(ranking, "id"),
+                                                       _cells(ranking, "voc_v"), _cells(ranking, "jsc_ma_cm2"),
+                                                       _cells(ranking, "ff"))
+                if capped and not math.isnan(_product_pct(voc, jsc, ff, meta or {}))]
+    listed = (f" V<sub>oc</sub> \u00d7 J<sub>sc</sub> \u00d7 FF would give: {', '.join(products[:_CAPPED_LISTED])}"
+              + (f" and {len(products) - _CAPPED_LISTED} more" if len(products) > _CAPPED_LISTED else "") + "."
+              if products else "")
     return (f"{CAPPED_MARK} PCE capped ({n} row{'s' if n > 1 else ''}): {esc(describe('pce_capped', meta))}. "
             "The PCE shown is that limit, so it is smaller than V<sub>oc</sub> \u00d7 J<sub>sc</sub> \u00d7 FF of "
-            "the same row; the product is in the cell's tooltip.")
+            "the same row; the product is also in the cell's tooltip." + listed)
+
+
+#: capped rows whose V_oc × J_sc × FF :func:`capped_note` lists
+_CAPPED_LISTED = 20
 
 
 def _prob_cells(frame: pd.DataFrame, column: str = "p_above_target") -> list[str]:
@@ -415,7 +428,7 @@ def full_table(ranking: pd.DataFrame, meta: dict) -> str:
                    + [(target_label(meta), "num", "descending", "p_above_target"),
                       ("P(aligned)", "num", "descending", "p_aligned"),
                       ("Passes", "num", "descending", "passes"), ("Notes", "", "", "flags")]
-                   + [(esc(c), "text", "", "") for c in extra])
+                   + [(esc(c).replace("_", "_<wbr>"), "text", "", "") for c in extra])  # breakable when printed
     ids = [text(i) for i in _cells(ranking, "id")]
     extras = [[f'<td class="extra">{esc(shorten(_extra_text(v, c), 120))}</td>' for v in _cells(ranking, c)]
               for c in extra]

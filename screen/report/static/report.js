@@ -47,4 +47,16 @@
       });
     });
   });
+  // collapsed <details> (the table of every ranked row) would not print: open them for printing, then restore
+  var opened = [];
+  window.addEventListener("beforeprint", function () {
+    Array.prototype.forEach.call(document.querySelectorAll("details:not([open])"), function (d) {
+      d.open = true;
+      opened.push(d);
+    });
+  });
+  window.addEventListener("afterprint", function () {
+    opened.forEach(function (d) { d.open = false; });
+    opened = [];
+  });
 })();
