@@ -38,7 +38,7 @@ def synthetic_dyes(n: int, seed: int = 1) -> pd.DataFrame:
         "e_ox_v_nhe": rng.uniform(0.8, 1.4, n), "e_ox_sigma_v": 0.09, "e00_ev": rng.uniform(1.7, 2.8, n),
         "e00_sigma_ev": 0.14, "scale": "electrochemical", "anchors": "cyanoacrylic acid",
         "anchored": rng.random(n) > 0.05, "anchor_known": True, "uncalibrated_elements": "",
-        "outside_calibration": False, "source": "synthetic",
+        "outside_calibration": False, "source": "synthetic", "e_ox_reference": "nhe", "e_ox_offset_v": 0.0,
     })
     return frame[DYE_COLUMNS]
 

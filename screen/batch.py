@@ -148,6 +148,10 @@ def report_store_hits(progress: Progress, cache, n_items: int, what: str = "", r
     the journal ...][ (<what>)]`` for the ``n_items`` molecules a job had to do (nothing without a store, unless
     ``resumed``).
 
+    A store the job could not read says so instead (``<n> molecules computed; the results store was not usable:
+    <why>``, the cache's ``read_problem``), and one it could not write adds ``; new results were not stored: <why>``
+    (``write_problem``).
+
     ``resumed``: molecules of the shard an earlier, interrupted attempt finished (read from the journal, not
     counted in ``n_items``): an overnight operator could not tell from the logs what the night's interruptions
     cost.
@@ -168,8 +172,16 @@ def report_store_hits(progress: Progress, cache, n_items: int, what: str = "", r
         return
     suffix = f" ({what})" if what else ""
     molecules = f"{n_items} molecule{'' if n_items == 1 else 's'}"
-    counts = (f"{cache.hits} of {molecules} from the results store, {n_items - cache.hits} computed"
-              if cache is not None else f"{molecules} computed")
+    read, write = getattr(cache, "read_problem", None), getattr(cache, "write_problem", None)
+    if cache is None:
+        counts = f"{molecules} computed"
+    elif read:  # a concurrency audit: "0 of 3 molecules from the results store" read as if the store had been asked
+        counts = (f"{cache.hits} of {molecules} from the results store, then {n_items - cache.hits} computed"
+                  if cache.hits else f"{molecules} computed") + f"; the results store was not usable: {read}"
+    else:
+        counts = f"{cache.hits} of {molecules} from the results store, {n_items - cache.hits} computed"
+        if write:
+            counts += f"; new results were not stored: {write}"
     if resumed:
         counts += f"; {resumed} more resumed from the journal (an interrupted attempt finished them)"
     print(f"{progress.label}: {counts}{suffix}", file=progress.stream, flush=True)

@@ -783,8 +783,9 @@ _CLI_DEFAULTS = {
 
 def cmd_store(args) -> int:
     """List, export or prune the results store."""
-    from screen.config import read_problem
-    from screen.store import ResultStore, export_store, store_location, store_text
+    import sqlite3
+
+    from screen.store import ResultStore, damaged_store_text, store_location, store_text
 
     if args.action == "export":  # --to x.xyz wrote SD records under another name
         _check_export_target(args.to)
@@ -810,32 +811,48 @@ def cmd_store(args) -> int:
         if args.action == "list":
             print(store_text(store, keys=args.keys, used=_store_ids_in_use(_load(args, {}))), end="")
         elif args.action == "export":
-            try:
-                n = export_store(store, args.to, protocol=args.protocol)
-            except OSError as exc:  # /sys/x.sdf gave a traceback
-                raise InputError(f"--to {args.to}: cannot write {Path(args.to).absolute()}: {read_problem(exc)}; "
-                                 "choose a file in a folder you can write to") from None
-            print(f"dascreen: {n} records of {path} -> {args.to}")
+            _store_export(args, path, store)
         else:
             if not args.dry_run:  # checked read-only above; now opened to delete
                 store.close()
                 store = ResultStore(path)
-            days = args.older_than
-            read = _store_ids_in_use(_load(args, {}))
-            for pid in dict.fromkeys(args.protocol or ()):
-                if pid in read:  # an upgrade audit: the earlier rule's structures id was pruned without a word
-                    which = read[pid].removeprefix("yes").removeprefix(", ")
-                    print(f"dascreen: note: {pid} is read by the current settings{' ' + which if which else ''}; "
-                          "its molecules will be computed again when a run needs them", file=sys.stderr)
-            gone = store.prune(protocols=args.protocol or (), dry_run=args.dry_run,
-                               older_than_s=None if days is None else days * 86400.0)
-            verb = "would delete" if args.dry_run else "deleted"
-            age = f"{gone['old']} older than {days:g} days" if days is not None else "no age limit given"
-            print(f"dascreen: {verb} {sum(gone.values())} rows of {path} ({gone['protocol']} of the given "
-                  f"protocols, {age}, {gone['corrupt']} that do not check out)")
+            _store_prune(args, path, store)
+    except sqlite3.DatabaseError as exc:  # a damaged page met while reading ended in a traceback (an audit)
+        raise InputError(damaged_store_text(path, exc)) from None
     finally:
         store.close()
     return EXIT_OK
+
+
+def _store_export(args, path: Path, store) -> None:
+    """``dascreen store export``."""
+    from screen.config import read_problem
+    from screen.store import export_store
+
+    try:
+        n = export_store(store, args.to, protocol=args.protocol)
+    except OSError as exc:  # /sys/x.sdf gave a traceback
+        raise InputError(f"--to {args.to}: cannot write {Path(args.to).absolute()}: {read_problem(exc)}; "
+                         "choose a file in a folder you can write to") from None
+    print(f"dascreen: {n} records of {path} -> {args.to}")
+
+
+def _store_prune(args, path: Path, store) -> None:
+    """``dascreen store prune`` (``store`` opened for writing unless ``--dry-run``; a read-only store refuses
+    to delete with one message, exit code 2)."""
+    days = args.older_than
+    read = _store_ids_in_use(_load(args, {}))
+    for pid in dict.fromkeys(args.protocol or ()):
+        if pid in read:  # an upgrade audit: the earlier rule's structures id was pruned without a word
+            which = read[pid].removeprefix("yes").removeprefix(", ")
+            print(f"dascreen: note: {pid} is read by the current settings{' ' + which if which else ''}; "
+                  "its molecules will be computed again when a run needs them", file=sys.stderr)
+    gone = store.prune(protocols=args.protocol or (), dry_run=args.dry_run,
+                       older_than_s=None if days is None else days * 86400.0)
+    verb = "would delete" if args.dry_run else "deleted"
+    age = f"{gone['old']} older than {days:g} days" if days is not None else "no age limit given"
+    print(f"dascreen: {verb} {sum(gone.values())} rows of {path} ({gone['protocol']} of the given "
+          f"protocols, {age}, {gone['corrupt']} that do not check out)")
 
 
 def _store_ids_in_use(cfg) -> dict[str, str]:

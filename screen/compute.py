@@ -174,6 +174,14 @@ class _Later:
     def hits(self) -> int:
         return self.cache.hits
 
+    @property
+    def read_problem(self) -> str | None:
+        return self.cache.read_problem
+
+    @property
+    def write_problem(self) -> str | None:
+        return self.cache.write_problem
+
     def lookup(self, item):
         return self.cache.lookup(item)
 
@@ -231,7 +239,10 @@ class _Shard:
         """Write the fresh results of the last molecule(s) to the store in one transaction."""
         if self.caches[0] is None:
             return
-        self.caches[0].cache.write([*self.caches[0].rows, *self.caches[1].rows])
+        writer, other = self.caches[0].cache, self.caches[1].cache
+        writer.write([*self.caches[0].rows, *self.caches[1].rows])
+        if writer.write_problem and other.write_problem is None:  # both stages' rows went in that one write
+            other.write_problem = writer.write_problem
         for later in self.caches:
             later.rows.clear()
 

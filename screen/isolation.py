@@ -4,8 +4,8 @@ The xTB and RDKit back ends are compiled code; a segmentation fault or an
 abort there would kill a Python process outright, and with it a whole shard.
 :class:`IsolatedWorker` runs a function in a long-lived child process (started
 with ``spawn``, so no native state is shared) and talks to it over a pipe. If
-the child dies, the call raises :class:`WorkerCrash` naming the signal, a fresh
-child is started, and the caller records that one molecule as failed.
+the child dies, the call raises :class:`WorkerCrash` naming the signal (a native crash, or SIGKILL: out of
+memory or killed from outside), a fresh child is started, and the caller records that one molecule as failed.
 """
 
 from __future__ import annotations
@@ -38,14 +38,21 @@ def _serve(conn, func) -> None:  # pragma: no cover - runs in the child process
             conn.send(("error", (type(exc).__name__, str(exc))))
 
 
+#: the signals a crash of the native code itself raises (a bad access, an abort, an arithmetic fault)
+_CRASHES = {signal.SIGSEGV, signal.SIGBUS, signal.SIGABRT, signal.SIGFPE, signal.SIGILL}
+
+
 def _describe_exit(code: int | None) -> str:
     if code is None:
         return "did not exit"
+    if code == -signal.SIGKILL:  # no crash of the native code: the kernel (out of memory) or someone killed it
+        return "was killed by signal SIGKILL (out of memory or killed from outside)"
     if code < 0:
         try:
-            return f"was killed by signal {signal.Signals(-code).name}"
+            name = signal.Signals(-code).name
         except ValueError:
             return f"was killed by signal {-code}"
+        return f"was killed by signal {name} ({'native crash' if -code in _CRASHES else 'killed from outside'})"
     return f"exited with code {code}"
 
 
@@ -121,7 +128,7 @@ class IsolatedWorker:
             self._proc.join(5)
             reason = _describe_exit(self._proc.exitcode)
             self._discard()
-            raise WorkerCrash(f"worker process {reason} (native crash); this molecule is skipped") from None
+            raise WorkerCrash(f"worker process {reason}; this molecule is recorded as failed") from None
         if status == "error":
             raise RuntimeError(f"{value[0]}: {value[1]}")
         return value

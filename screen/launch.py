@@ -1,7 +1,8 @@
 """Starting the packaged workflow from the ``dascreen`` command: quiet, with one progress display.
 
-:func:`run_workflow` writes the run's resolved configuration, takes the run
-folder's lock, tells the jobs where the results store is (environment variable
+:func:`run_workflow` writes the run's resolved configuration (its ``store.path`` the store the jobs use), takes
+the run folder's lock, checks the results store once and says on the console which one the run uses (or one
+warning why it cannot: the run computes every molecule), tells the jobs where it is (environment variable
 :data:`screen.store.STORE_ENV`) and runs Snakemake in a subprocess.  By
 default the workflow engine's own log goes to ``OUT/logs/<name>.log`` and the
 terminal shows one progress bar (molecules done / total, rate, ETA), or plain
@@ -97,8 +98,10 @@ def failure_cause(log_text: str) -> str | None:
 
     A full disk first (the system's text, e.g. ``No space left on device``: the engine's own line about it said
     "Please ensure write permissions", an overnight operator's report), then a job's own ``dascreen: error:``
-    message (a calibration that changed during the run), then any other system error, then the last Python
-    exception a job log ends with (``CalibrationMismatchError: ...``), then the failed job and its log.
+    message (a calibration that changed during the run), then a job killed by a signal (exit status 137:
+    ``killed (signal 9: out of memory?)``) with its own log, then any other system error, then the last Python
+    exception a job log ends with (``CalibrationMismatchError: ...``), then the failed job and its own log (that of
+    its ``Error in rule`` block).
 
     Examples
     --------
@@ -126,6 +129,11 @@ def failure_cause(log_text: str) -> str | None:
     stage = _STAGE_ERROR.search(log_text)
     if stage:
         return stage.group(1).strip()
+    failed = _failed_jobs(log_text)
+    killed = [(rule, log, how) for rule, log, how in failed if how]
+    if killed:  # a job killed by a signal (the kernel's out-of-memory killer, a scheduler): no exception to show
+        rule, log, how = killed[0]
+        return f"job {rule} was {how}" + (f"; its log: {log}" if log else "")
     if found:  # the first system error the log names
         number, text = next(iter(found.items()))
         return f"{text} (errno {number}, {errno.errorcode.get(number, '?')})"
@@ -135,10 +143,51 @@ def failure_cause(log_text: str) -> str | None:
     if raised:
         text = f"{raised[-1].group(1)}: {raised[-1].group(2).strip()}"
         return (text if len(text) <= _CAUSE_MAX else text[:_CAUSE_MAX - 1] + "…") + jobs
-    logs = _RULE_LOG.findall(log_text)
+    # the failed jobs' own logs (a concurrency audit: the first log the engine's log named, that of the prepare job
+    # which had finished, was given for a failed compute job)
+    logs = list(dict.fromkeys(log for _, log, _ in failed if log))
     if rules and logs:
-        return f"job{'s' if len(rules) > 1 else ''} {', '.join(rules)} failed; its log: {logs[0]}"
+        which = "its log" if len(logs) == 1 else "their logs"
+        return f"job{'s' if len(rules) > 1 else ''} {', '.join(rules)} failed; {which}: {', '.join(logs)}"
     return None
+
+
+#: the exit status of a job's command as the engine quotes it (``returned non-zero exit status 137``, or a Python
+#: ``died with <Signals.SIGKILL: 9>``)
+_EXIT_STATUS = re.compile(r"returned non-zero exit status (-?\d+)|died with <Signals\.\w+: (\d+)>")
+
+
+def _killed(status: int) -> str | None:
+    """``killed (signal 9: out of memory?)`` for a job's exit status that means a signal (128 + N from the shell,
+    -N from Python), else None."""
+    number = -status if status < 0 else status - 128 if 128 < status < 128 + 65 else None
+    if number is None:
+        return None
+    if number == signal.SIGKILL:
+        return "killed (signal 9: out of memory?)"
+    try:
+        return f"killed by signal {number} ({signal.Signals(number).name})"
+    except ValueError:
+        return f"killed by signal {number}"
+
+
+def _failed_jobs(log_text: str) -> list[tuple[str, str | None, str | None]]:
+    """``(rule, log, killed)`` of each ``Error in rule`` block of the engine's log: the rule, the log its own block
+    names (None: none), and how it was killed when the exit status the engine quoted before the block is a
+    signal's (None: it was not)."""
+    out = []
+    start = 0
+    for match in _FAILED_RULE.finditer(log_text):
+        block = []
+        for line in log_text[match.end():match.end() + 20000].lstrip("\n").splitlines():
+            if line.strip() and not line[:1].isspace():
+                break
+            block.append(line)
+        log = _RULE_LOG.search("\n".join(block))
+        statuses = [int(a or b) * (1 if a else -1) for a, b in _EXIT_STATUS.findall(log_text[start:match.start()])]
+        out.append((match.group(1), log.group(1) if log else None, _killed(statuses[-1]) if statuses else None))
+        start = match.end()
+    return out
 
 
 def failure_cause_in(log_path: Path) -> str | None:
@@ -516,7 +565,7 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
         path and the system's reason; before, a traceback).
     """
     from screen.preflight import make_out_folder
-    from screen.store import STORE_ENV, store_location
+    from screen.store import STORE_ENV, run_store
 
     make_out_folder(out)
     lock = _lock(out)
@@ -525,9 +574,12 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
         # another file made the real run of it refused as 'holds the run of ...', a batch user's audit)
         cfg_file = cfg_file or out / ("config.dry-run.yaml" if dry_run else "config.yaml")
         cfg_file.parent.mkdir(parents=True, exist_ok=True)
-        cfg_file.write_text(yaml.safe_dump(cfg.to_dict(), sort_keys=False), encoding="utf-8")
+        # the store is checked once here: which file the jobs use, or one warning why they cannot (they compute)
+        store, notes = run_store(cfg, cfg_file)
+        _say_store(out, notes)
+        cfg_file.write_text(yaml.safe_dump(_recorded(cfg, store), sort_keys=False), encoding="utf-8")
         cmd = _command(out, cfg_file, cores, targets, extra, dry_run, profile)
-        env = {**os.environ, STORE_ENV: str(store_location(cfg) or "")}
+        env = {**os.environ, STORE_ENV: str(store or "")}
         env.pop(PIN_ENV, None)
         pinned = calibration_pin(cfg, out)
         if pinned is not None:  # the workflow uses this calibration and never fits one by itself
@@ -546,6 +598,32 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
         return _quiet(cmd, env, out, out / "logs" / f"{log_name}.log", label, hold, batch, explain=explain)
     finally:
         lock.close()
+
+
+#: the store lines said last per run folder: a command that starts the workflow twice in one folder says them once
+_STORE_SAID: dict[str, list[str]] = {}
+
+
+def _say_store(out: Path, notes: list[str]) -> None:
+    """Print the console lines about the run's results store (:func:`screen.store.run_store`), unless this process
+    said the same ones for ``out`` already."""
+    if _STORE_SAID.get(str(out)) == notes:
+        return
+    _STORE_SAID[str(out)] = notes
+    for line in notes:
+        print(line, file=sys.stderr, flush=True)
+
+
+def _recorded(cfg: Config, store: Path | None) -> dict:
+    """The configuration written for the run, its ``store.path`` the store the jobs use (a concurrency audit:
+    with ``DASCREEN_STORE`` set, ``config.yaml`` recorded the ``--set store.path`` the run did not use). Left as
+    given when the environment does not override it and the store can be used."""
+    from screen.store import STORE_ENV, store_location
+
+    data = cfg.to_dict()
+    if STORE_ENV in os.environ or (store is None and store_location(cfg) is not None):
+        data["store"] = {**(data.get("store") or {}), "path": str(store) if store else None}
+    return data
 
 
 def rotate_log(log_path: Path, keep: int = KEEP_LOGS) -> Path | None:

@@ -54,9 +54,11 @@ from screen.errors import InputError
 from screen.options import EARLIER_PROTOCOL_VALUES, EARLIER_ROUTE_VALUES, route_structures
 from screen.provenance import package_version
 
-__all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "stage_protocol", "stage_protocol_id",
-           "geometry_hash", "earlier_structures_id", "store_location", "open_store", "resolve_store", "store_text",
-           "export_store", "structures_cache", "electronic_cache", "store_row"]
+__all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "StoreProblem", "StoreReadOnly", "library_versions",
+           "other_library_versions", "damaged_store_text", "run_store", "run_store_check", "run_store_lines",
+           "store_override_note", "stage_protocol", "stage_protocol_id", "geometry_hash", "earlier_structures_id",
+           "store_location", "open_store", "resolve_store", "store_text", "export_store", "structures_cache",
+           "electronic_cache", "store_row"]
 
 #: environment variable naming the store file (overrides ``store.path``; empty disables the store)
 STORE_ENV = "DASCREEN_STORE"
@@ -145,9 +147,39 @@ def stage_protocol_id(stage: str, options) -> str:
     >>> a.startswith("structures-"), a == stage_protocol_id("structures", {"seed": 2})
     (True, False)
     """
-    text = json.dumps({"format": FORMAT, "stage": stage, "options": stage_protocol(stage, options)},
-                      sort_keys=True, default=str)
+    return _protocol_hash(stage, stage_protocol(stage, options))
+
+
+def _protocol_hash(stage: str, protocol: Mapping) -> str:
+    """The id of a stage protocol as it is (no option or library version re-derived): what a row's stored
+    protocol must hash to (:func:`_checked`), whichever library versions the reading environment has."""
+    text = json.dumps({"format": FORMAT, "stage": stage, "options": dict(protocol)}, sort_keys=True, default=str)
     return f"{stage}-{hashlib.sha256(text.encode()).hexdigest()[:16]}"
+
+
+def library_versions(stage: str, protocol: Mapping) -> dict[str, str]:
+    """The library versions (major.minor) a stage protocol was computed with: its ``<library>_version`` entries,
+    :data:`BASE_LIBRARY_VERSIONS` for those it leaves out.
+
+    Examples
+    --------
+    >>> library_versions("structures", {"seed": 1, "rdkit_version": "2027.3"})
+    {'rdkit': '2027.3', 'tblite': '0.8'}
+    """
+    libraries = STAGE_LIBRARIES.get(stage, ()) + ((str(protocol.get("engine") or "tblite"),)
+                                                  if stage == "electronic" else ())
+    return {lib: str(protocol.get(f"{lib}_version", BASE_LIBRARY_VERSIONS.get(lib, "?"))) for lib in libraries}
+
+
+def other_library_versions(stage: str, protocol: Mapping) -> str:
+    """``"rdkit 2026.9 (installed 2027.3)"`` for the libraries a stored protocol was computed with at other
+    versions than the installed ones (``""``: none): rows another environment wrote, kept as another protocol."""
+    out = []
+    for lib, version in library_versions(stage, protocol).items():
+        installed = ".".join(package_version(lib).split(".")[:2])
+        if version != installed:
+            out.append(f"{lib} {version} (installed {installed})")
+    return ", ".join(out)
 
 
 def geometry_hash(numbers, positions_a) -> str:
@@ -167,6 +199,64 @@ def geometry_hash(numbers, positions_a) -> str:
     text = ";".join(f"{int(z)}:{float(x) + 0.0:.4f},{float(y) + 0.0:.4f},{float(w) + 0.0:.4f}"
                     for z, (x, y, w) in zip(numbers, positions_a))
     return hashlib.sha256(text.replace("-0.0000", "0.0000").encode()).hexdigest()[:24]
+
+
+class StoreProblem(InputError):
+    """The results store cannot be used (no SQLite database, damaged, another program's, cannot be opened);
+    ``why`` is the reason without the path (the run's console warning, a job log's line)."""
+
+    def __init__(self, message: str, why: str = ""):
+        super().__init__(message)
+        self.why = why or message
+
+
+class StoreReadOnly(StoreProblem):
+    """The store can be read but not written (a read-only file, folder or file system)."""
+
+
+def _damage(exc: sqlite3.DatabaseError) -> str:
+    """The reason of an SQLite error that is no passing condition: ``is damaged (...)`` or ``not a usable SQLite
+    database (...)``."""
+    name = getattr(exc, "sqlite_errorname", "") or ""
+    if name.startswith("SQLITE_CORRUPT") or "malformed" in str(exc):
+        return f"is damaged ({exc})"
+    return f"not a usable SQLite database ({exc})"
+
+
+def _read_only_file_system(folder: Path) -> bool:
+    try:
+        return bool(os.statvfs(folder).f_flag & os.ST_RDONLY)
+    except (OSError, AttributeError):  # a folder that does not exist, or no statvfs on this system
+        return False
+
+
+def _full_disk_error(exc: sqlite3.OperationalError) -> bool:
+    """An SQLite error of a full disk (no room for a write, or for the -shm file a WAL store is read through)."""
+    name = getattr(exc, "sqlite_errorname", "") or ""
+    return name.startswith(("SQLITE_FULL", "SQLITE_IOERR_SHM")) or "database or disk is full" in str(exc)
+
+
+def _said(path, why: str) -> str:
+    """``results store PATH is damaged (...)`` / ``results store PATH: not ...``."""
+    return f"results store {path} {why}" if why.startswith("is ") else f"results store {path}: {why}"
+
+
+def _read_only_error(exc: sqlite3.OperationalError) -> bool:
+    """An SQLite error that says the file (or its folder, for the -wal and -shm files) cannot be written."""
+    name = getattr(exc, "sqlite_errorname", "") or ""
+    text = str(exc)
+    return name.startswith(("SQLITE_READONLY", "SQLITE_CANTOPEN", "SQLITE_PERM")) or \
+        "readonly database" in text or "unable to open database file" in text
+
+
+def damaged_store_text(path, exc: Exception) -> str:
+    """The one message of a store file SQLite cannot read through (``dascreen store``; exit code 2)."""
+    why = _damage(exc) if isinstance(exc, sqlite3.DatabaseError) and \
+        not isinstance(exc, sqlite3.OperationalError) else f"could not be read ({exc})"
+    if why.startswith("is damaged"):
+        return (f"results store {path} {why}: move it away (e.g. `mv {path} {path}.damaged`); runs then start a "
+                "new store and the molecules it held are computed again")
+    return f"results store {path}: {why}"
 
 
 def _digest(text: str) -> str:
@@ -201,44 +291,83 @@ class ResultStore:
         self.read_only = bool(read_only)
         self._conn: sqlite3.Connection | None = None
         self._pid = None
+        #: why the store can only be read (a read-only file, folder or file system), None when it can be written
+        self.read_only_reason: str | None = None
 
     # ------------------------------------------------------------------ connection
-    def _connect_read_only(self) -> sqlite3.Connection:
-        """A connection that never writes the file; refuses a file that is not a dascreen store."""
-        from urllib.parse import quote
+    def _refusal(self, why: str) -> StoreProblem:
+        return StoreProblem(f"{_said(self.path, why)}; give the store file of a run (store.path, default "
+                            "~/.cache/dascreen/store.sqlite); the file was not changed", why=why)
 
-        def refuse(why: str) -> InputError:
-            return InputError(f"results store {self.path}: {why}; give the store file of a run (store.path, default "
-                              "~/.cache/dascreen/store.sqlite); the file was not changed")
+    def _open_read_only(self, modes=("rw", "ro", "immutable")) -> sqlite3.Connection:
+        """A connection that never writes the file (not even the schema), opened the first of ``modes`` that can
+        read it: ``rw`` (told never to write: the connection that closes last removes the -wal and -shm side
+        files, which one of mode=ro leaves behind), ``ro`` (a file the user may only read), ``immutable`` (a WAL
+        store in a folder nobody may write, where not even the -shm file can be made: read as it is on disk).
+
+        Raises
+        ------
+        StoreProblem
+            The file is no SQLite database, is damaged, or holds no dascreen results store.
+        """
+        from urllib.parse import quote
 
         try:
             with open(self.path, "rb") as fh:
                 head = fh.read(16)
         except OSError as exc:
-            raise refuse(f"cannot be read ({exc.strerror or exc})") from None
+            raise self._refusal(f"cannot be read ({exc.strerror or exc})") from None
         if not head:
-            raise refuse("an empty file, not a results store")
+            raise self._refusal("an empty file, not a results store")
         if head != b"SQLite format 3\x00":
-            raise refuse("not a results store (not an SQLite database)")
+            raise self._refusal("not a results store (not an SQLite database)")
         uri = f"file:{quote(str(self.path.absolute()))}"
-        try:
-            try:  # opened for writing but told never to write: a connection that closes last then removes the
-                # -wal and -shm side files, which a connection of mode=ro leaves behind
-                conn = sqlite3.connect(f"{uri}?mode=rw", uri=True, timeout=self.timeout_s, isolation_level=None)
-            except sqlite3.OperationalError:  # a store the user may only read
-                conn = sqlite3.connect(f"{uri}?mode=ro", uri=True, timeout=self.timeout_s, isolation_level=None)
-            conn.execute("PRAGMA query_only = ON")
-            conn.execute(f"PRAGMA busy_timeout = {int(self.timeout_s * 1000)}")
-            tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
-            app = (conn.execute("SELECT value FROM info WHERE name = 'application'").fetchone() or [None])[0] \
-                if "info" in tables else None
-        except sqlite3.DatabaseError as exc:
-            raise refuse(f"not a usable SQLite database ({exc})") from None
+        query = {"rw": "?mode=rw", "ro": "?mode=ro", "immutable": "?mode=ro&immutable=1"}
+        last: Exception | None = None
+        for mode in modes:
+            conn = None
+            try:
+                conn = sqlite3.connect(uri + query[mode], uri=True, timeout=self.timeout_s, isolation_level=None)
+                conn.execute("PRAGMA query_only = ON")
+                conn.execute(f"PRAGMA busy_timeout = {int(self.timeout_s * 1000)}")
+                tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+                app = (conn.execute("SELECT value FROM info WHERE name = 'application'").fetchone() or [None])[0] \
+                    if "info" in tables else None
+                break
+            except sqlite3.OperationalError as exc:  # cannot be opened this way (read-only file or folder): next
+                if conn is not None:
+                    conn.close()
+                if not (_read_only_error(exc) or _full_disk_error(exc)):  # e.g. locked: no reading without locks
+                    raise self._refusal(f"cannot be read ({exc})") from None
+                last = exc
+            except sqlite3.DatabaseError as exc:  # damaged or not a database: no other mode reads it either
+                if conn is not None:
+                    conn.close()
+                raise self._refusal(f"{_damage(exc)}") from None
+        else:
+            raise self._refusal(f"cannot be read ({last})") from None
         if app != _APPLICATION or "results" not in tables:
             conn.close()
             owner = f"belongs to {app!r}" if app else "holds no dascreen results (an SQLite database of another kind)"
-            raise refuse(f"the database {owner}, not a dascreen results store")
+            raise self._refusal(f"the database {owner}, not a dascreen results store")
         return conn
+
+    def _connect_read_only(self) -> sqlite3.Connection:
+        """A connection that never writes the file; refuses a file that is not a dascreen store."""
+        return self._open_read_only()
+
+    def write_problem(self) -> str | None:
+        """Why this process cannot write the store file, as far as the system says before trying (None: it can;
+        a file that does not exist yet: whether it can be created is not checked here)."""
+        folder = self.path.parent
+        if _read_only_file_system(folder):
+            return "on a read-only file system"
+        if self.path.exists() and not os.access(self.path, os.W_OK):
+            return "the file cannot be written: read-only permissions or an immutable file"
+        if folder.is_dir() and not os.access(folder, os.W_OK):
+            return (f"its folder cannot be written, and SQLite keeps {self.path.name}-wal and {self.path.name}-shm "
+                    "beside it")
+        return None
 
     def _connect(self) -> sqlite3.Connection:
         if self._conn is not None and self._pid == os.getpid():
@@ -246,25 +375,61 @@ class ResultStore:
         if self.read_only:
             self._conn, self._pid = self._connect_read_only(), os.getpid()
             return self._conn
+        reason = self.write_problem() if self.path.is_file() else None
+        if reason is not None:  # read where the system allows it; nothing written, not even the schema
+            self._conn, self._pid = self._open_read_only(("ro", "immutable")), os.getpid()
+            self.read_only_reason = reason
+            return self._conn
         self.path.parent.mkdir(parents=True, exist_ok=True)
+        conn = None
         try:
             conn = sqlite3.connect(str(self.path), timeout=self.timeout_s, isolation_level=None)
             conn.execute(f"PRAGMA busy_timeout = {int(self.timeout_s * 1000)}")
-            conn.execute("PRAGMA journal_mode = WAL")
+            tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+            if conn.execute("PRAGMA journal_mode").fetchone()[0] != "wal":
+                conn.execute("PRAGMA journal_mode = WAL")
             conn.execute("PRAGMA synchronous = NORMAL")
-            with _transaction(conn):
-                for statement in filter(str.strip, _SCHEMA.split(";")):
-                    conn.execute(statement)
-                conn.execute("INSERT OR IGNORE INTO info VALUES ('application', ?)", (_APPLICATION,))
-                conn.execute("INSERT OR IGNORE INTO info VALUES ('format', ?)", (str(FORMAT),))
-                app = conn.execute("SELECT value FROM info WHERE name = 'application'").fetchone()[0]
+            if not {"info", "results"} <= tables:  # a new store: its schema (a filled one is never written here)
+                with _transaction(conn):
+                    for statement in filter(str.strip, _SCHEMA.split(";")):
+                        conn.execute(statement)
+                    conn.execute("INSERT OR IGNORE INTO info VALUES ('application', ?)", (_APPLICATION,))
+                    conn.execute("INSERT OR IGNORE INTO info VALUES ('format', ?)", (str(FORMAT),))
+            app = (conn.execute("SELECT value FROM info WHERE name = 'application'").fetchone() or [None])[0]
+        except sqlite3.OperationalError as exc:
+            if conn is not None:
+                conn.close()
+            full = _full_disk_error(exc)
+            if (_read_only_error(exc) or full) and self.path.is_file():  # a write the system refused unannounced
+                self._conn, self._pid = self._open_read_only(("ro", "immutable")), os.getpid()
+                self.read_only_reason = f"its disk is full: {exc}" if full else str(exc)
+                return self._conn
+            raise StoreProblem(f"results store {self.path}: cannot be used ({exc}); move it away or set store.path "
+                               "to another file", why=f"cannot be used ({exc})") from None
         except sqlite3.DatabaseError as exc:
-            raise InputError(f"results store {self.path}: not a usable SQLite database ({exc}); move it away or "
-                             "set store.path to another file") from None
+            if conn is not None:
+                conn.close()
+            why = _damage(exc)
+            raise StoreProblem(f"{_said(self.path, why)}; move it away or set store.path to another file",
+                               why=why) from None
         if app != _APPLICATION:
             conn.close()
-            raise InputError(f"results store {self.path}: the database belongs to {app!r}, not dascreen")
+            raise StoreProblem(f"results store {self.path}: the database belongs to {app!r}, not dascreen",
+                               why=f"the database belongs to {app!r}, not dascreen")
         self._conn, self._pid = conn, os.getpid()
+        return conn
+
+    def writable(self) -> bool:
+        """Whether new rows can be written (opens the store; False for ``read_only`` or a read-only store)."""
+        self._connect()
+        return not self.read_only and self.read_only_reason is None
+
+    def _writing(self, what: str) -> sqlite3.Connection:
+        conn = self._connect()
+        if self.read_only_reason is not None:
+            state = "cannot be written" if self.read_only_reason.startswith("its disk is full") else "is read-only"
+            raise StoreReadOnly(f"results store {self.path} {state} ({self.read_only_reason}): {what}",
+                                why=f"{self.path} {state} ({self.read_only_reason})")
         return conn
 
     def close(self) -> None:
@@ -292,8 +457,14 @@ class ResultStore:
         self.put_rows([store_row(stage, key, options, record, geometry)])
 
     def put_rows(self, rows) -> None:
-        """Store several rows (:func:`store_row`) in one transaction: another run sees all of them or none."""
-        conn = self._connect()
+        """Store several rows (:func:`store_row`) in one transaction: another run sees all of them or none.
+
+        Raises
+        ------
+        StoreReadOnly
+            The store can only be read (:attr:`read_only_reason`).
+        """
+        conn = self._writing("new results are not stored")
         with _transaction(conn):
             conn.executemany("INSERT OR REPLACE INTO results VALUES (?, ?, ?, ?, ?, ?, ?)", rows)
 
@@ -325,6 +496,14 @@ class ResultStore:
         self._connect()
         return self
 
+    def stored_protocol(self, stage: str, protocol_id: str) -> dict | None:
+        """The protocol (options and library versions) one row of ``stage`` / ``protocol_id`` was computed with
+        (None when there is no row or its protocol does not hash to the id)."""
+        row = self._connect().execute("SELECT payload FROM results WHERE stage = ? AND protocol_id = ? LIMIT 1",
+                                      (stage, protocol_id)).fetchone()
+        protocol = (_loads(row[0]) or {}).get("protocol") if row else None
+        return protocol if isinstance(protocol, dict) and _protocol_hash(stage, protocol) == protocol_id else None
+
     def protocols(self) -> list[str]:
         """The stage protocol ids the store holds rows of, sorted."""
         return sorted({row["protocol_id"] for row in self.summary()})
@@ -344,6 +523,8 @@ class ResultStore:
         dict
             ``{'protocol': n, 'old': n, 'corrupt': n}`` rows deleted (or that would be, with ``dry_run``).
         """
+        if not dry_run:  # refused before anything is counted: a read-only store deletes nothing
+            self._writing("nothing can be deleted; `dascreen store prune --dry-run` counts what would be")
         now = time.time()
         doomed: dict[str, list] = {"protocol": [], "old": [], "corrupt": []}
         for row in self.rows():
@@ -413,7 +594,9 @@ def _checked(payload: str, sha: str, stage: str, key: str, protocol_id: str, geo
     if (data.get("stage"), data.get("key"), data.get("protocol_id"), data.get("geometry")) != \
             (stage, key, protocol_id, geometry):
         return None
-    if not isinstance(data.get("protocol"), dict) or stage_protocol_id(stage, data["protocol"]) != protocol_id:
+    # the row's own protocol, hashed as stored: re-deriving it (stage_protocol) put the installed library versions
+    # in, so a prune from an environment with another RDKit or tblite deleted every row of the other version
+    if not isinstance(data.get("protocol"), dict) or _protocol_hash(stage, data["protocol"]) != protocol_id:
         return None
     return data["record"]
 
@@ -447,7 +630,9 @@ class StoreCache:
     Notes
     -----
     A store that cannot be read or written never stops a stage: the molecule is
-    computed and a warning goes to the job's log.
+    computed, a warning goes to the job's log and the log's last lines say the store
+    was not usable (:attr:`read_problem`) or new results were not stored
+    (:attr:`write_problem`).
     """
 
     def __init__(self, store: ResultStore, stage: str, options, key: Callable, geometry: Callable | None = None,
@@ -459,7 +644,10 @@ class StoreCache:
         self._key, self._geometry = key, geometry or (lambda item: "")
         self._base, self._valid = base or (lambda item: {}), valid or (lambda rec: True)
         self.hits = self.misses = 0
-        self._warned = False
+        #: why the store could not be read (its molecules were computed) / written (new results not kept); the
+        #: job log's last lines say so instead of counting "0 of N molecules from the results store"
+        self.read_problem: str | None = None
+        self.write_problem: str | None = None
 
     def lookup(self, item) -> dict | None:
         """The journal record of ``item`` rebuilt from the store, or None (compute it)."""
@@ -469,7 +657,7 @@ class StoreCache:
         try:
             rec = self.store.get(self.stage, self._key(item), self.protocol_of(item)[1], geometry)
         except (sqlite3.Error, InputError, OSError) as exc:
-            self._warn(exc)
+            self._warn(exc, reading=True)
             rec = None
         if rec is None or rec.get("status") != "ok" or not self._valid(rec):
             self.misses += 1
@@ -512,10 +700,15 @@ class StoreCache:
         if row is None:
             return
         try:
-            if self.store.get(self.stage, self._key(item), self.protocol_of(item)[1], self._geometry(item)) is None:
+            held = self.store.get(self.stage, self._key(item), self.protocol_of(item)[1], self._geometry(item))
+        except (sqlite3.Error, InputError, OSError) as exc:
+            self._warn(exc, reading=True)
+            return
+        try:
+            if held is None:
                 self.store.put_rows([row])
         except (sqlite3.Error, InputError, OSError) as exc:
-            self._warn(exc)
+            self._warn(exc, reading=False)
 
     def write(self, rows) -> None:
         """Store rows of :meth:`row` (of this or another stage's cache; Nones skipped) in one transaction."""
@@ -525,12 +718,19 @@ class StoreCache:
         try:
             self.store.put_rows(rows)
         except (sqlite3.Error, InputError, OSError) as exc:
-            self._warn(exc)
+            self._warn(exc, reading=False)
 
-    def _warn(self, exc: Exception) -> None:
-        if not self._warned:
-            print(f"dascreen: results store {self.store.path} not used: {exc}", file=sys.stderr, flush=True)
-            self._warned = True
+    def _warn(self, exc: Exception, reading: bool) -> None:
+        """Say the first problem of each kind in the job's log (standard error) and keep it for the last lines."""
+        text = getattr(exc, "why", None) or str(exc) or type(exc).__name__
+        if reading and self.read_problem is None:
+            self.read_problem = text
+            print(f"dascreen: results store {self.store.path} was not usable: {text}; the molecules are computed",
+                  file=sys.stderr, flush=True)
+        elif not reading and self.write_problem is None and self.read_problem is None:
+            self.write_problem = text
+            print(f"dascreen: results store {self.store.path}: new results were not stored: {text}",
+                  file=sys.stderr, flush=True)
 
 
 def _molblock_ok(record: Mapping) -> bool:
@@ -613,6 +813,142 @@ def open_store(config=None) -> ResultStore | None:
     return ResultStore(path, timeout_s=timeout)
 
 
+#: below this much free space on the store's disk [MB], a run's check of the store warns that new results may not be
+#: stored (a row is a few kB: 64 MB keep some ten thousand molecules)
+LOW_SPACE_MB = 64
+#: a store file up to this size [MB] is checked for damage before a run (``PRAGMA quick_check`` reads every page:
+#: well under a second for this size on a local disk); a larger one is left to the jobs, which say a damaged page in
+#: their logs
+CHECK_MAX_MB = 512
+
+
+def run_store_lines(path: Path | None, why_none: str = "store.path is null") -> list[str]:
+    """The console lines of a run about its store: which file it uses, and one warning when it cannot be used
+    (:func:`run_store_check`)."""
+    return run_store_check(path, why_none)[0]
+
+
+def run_store_check(path: Path | None, why_none: str = "store.path is null") -> tuple[list[str], bool]:
+    """Check the store a run is to use, without changing it; return the console lines and whether the jobs use it.
+
+    A concurrency audit: a store that could not be used (a folder, a path under a file, not a database, damaged,
+    read-only, a full disk) was said only in the job logs. Now one line says which store the run uses (a new one:
+    that the run creates it, with its folder), or one warning why it cannot be used: not a refusal, the run computes
+    every molecule (and the jobs get no store, so the console and the logs agree). A read-only store is read (new
+    results are not stored), and a nearly full disk is said. Damage is looked for in files up to
+    :data:`CHECK_MAX_MB`.
+
+    Examples
+    --------
+    >>> run_store_lines(None, "DASCREEN_STORE is empty")
+    ['dascreen: results store: none (DASCREEN_STORE is empty): every molecule is computed and nothing is kept']
+    """
+    if path is None:
+        return [f"dascreen: results store: none ({why_none}): every molecule is computed and nothing is kept"], False
+    path = Path(path)
+    elsewhere = f"set {STORE_ENV} or store.path to another file"
+
+    def unusable(why: str, fix: str = "") -> tuple[list[str], bool]:
+        return [f"dascreen: warning: {_said(path, why)}: this run does not use it, every molecule is computed and "
+                f"nothing is kept; {fix or elsewhere}"], False
+
+    if path.is_dir():
+        return unusable("is a folder, not a store file", f"give a file, e.g. {STORE_ENV}={path / 'store.sqlite'}")
+    if not path.exists():
+        folder = path.parent
+        while not folder.exists() and folder != folder.parent:
+            folder = folder.parent
+        if not folder.is_dir():
+            return unusable(f"cannot be created: {folder} is a file")
+        if _read_only_file_system(folder) or not os.access(folder, os.W_OK | os.X_OK):
+            why = "is on a read-only file system" if _read_only_file_system(folder) else "cannot be written"
+            return unusable(f"cannot be created: {folder} {why}")
+        made = f", with the folder {path.parent}" if folder != path.parent else ""
+        return [f"dascreen: results store {path} (new: this run creates it{made})"] + _low_space(path, folder), True
+    if not path.is_file():
+        return unusable("is not a regular file")
+    if path.stat().st_size == 0:
+        return [f"dascreen: results store {path} (an empty file: this run makes it a results store)"], True
+    store = ResultStore(path, read_only=True)
+    try:
+        conn = store._connect()
+        if path.stat().st_size <= CHECK_MAX_MB * 1e6:
+            try:
+                verdict = conn.execute("PRAGMA quick_check").fetchone()[0]
+            except sqlite3.OperationalError as exc:
+                return unusable(f"cannot be read ({exc})")
+            except sqlite3.DatabaseError as exc:
+                verdict = str(exc)
+            if verdict != "ok":
+                return unusable(f"is damaged ({verdict})", f"move it away (e.g. `mv {path} {path}.damaged`): runs "
+                                "then start a new store")
+    except StoreProblem as exc:
+        return unusable(exc.why, f"move it away or {elsewhere}")
+    finally:
+        store.close()
+    problem = ResultStore(path).write_problem()
+    if problem:
+        return [f"dascreen: warning: results store {path} is read-only ({problem}): the molecules it holds are read, "
+                "new results will not be stored"], True
+    return [f"dascreen: results store {path}"] + _low_space(path, path.parent), True
+
+
+def _low_space(path: Path, folder: Path) -> list[str]:
+    import shutil
+
+    try:
+        free = shutil.disk_usage(folder).free
+    except OSError:
+        return []
+    if free >= LOW_SPACE_MB * 1e6:
+        return []
+    left = f"{free / 1e6:.0f} MB" if free >= 1e6 else f"{free / 1e3:.0f} kB"
+    return [f"dascreen: warning: results store {path}: only {left} free on its disk; new results may not be stored"]
+
+
+def run_store(config, record_in=None) -> tuple[Path | None, list[str]]:
+    """The store a run's jobs use (None: none) and the console lines about it (:func:`run_store_check`, and
+    :func:`store_override_note`)."""
+    path = store_location(config)
+    why_none = f"{STORE_ENV} is empty" if STORE_ENV in os.environ else "store.path is null"
+    lines, usable = run_store_check(path, why_none)
+    note = store_override_note(config, record_in)
+    return (path if usable else None), ([note] if note else []) + lines
+
+
+def store_override_note(config, record_in=None) -> str | None:
+    """The note when :data:`STORE_ENV` overrides a ``store.path`` the settings give (``--set``, ``--config``): the
+    run uses the environment's store, as documented, and records it (a concurrency audit: the run's config.yaml
+    recorded the ``--set`` path while the jobs used another store). None when nothing is overridden.
+
+    Examples
+    --------
+    >>> import os
+    >>> saved = os.environ.pop(STORE_ENV, None)
+    >>> store_override_note({"store": {"path": "/tmp/b.sqlite"}}) is None
+    True
+    >>> os.environ[STORE_ENV] = "/tmp/a.sqlite"
+    >>> store_override_note({"store": {"path": "/tmp/b.sqlite"}})
+    'dascreen: note: DASCREEN_STORE=/tmp/a.sqlite overrides store.path /tmp/b.sqlite: this run uses /tmp/a.sqlite'
+    >>> _ = os.environ.pop(STORE_ENV) if saved is None else os.environ.update({STORE_ENV: saved})
+    """
+    if STORE_ENV not in os.environ:
+        return None
+    given = ((config or {}).get("store") or {}).get("path")
+    if not given or str(given) == _DEFAULT_PATH:  # the default is no choice the environment overrides
+        return None
+    used = store_location(config)
+    if used == Path(str(given)).expanduser().absolute():
+        return None
+    where = f" (recorded in {record_in})" if record_in else ""
+    return (f"dascreen: note: {STORE_ENV}={os.environ[STORE_ENV]} overrides store.path {given}: this run uses "
+            f"{used or 'no results store'}{where}")
+
+
+#: ``store.path`` of the configuration schema's default
+_DEFAULT_PATH = "~/.cache/dascreen/store.sqlite"
+
+
 def resolve_store(store) -> ResultStore | None:
     """A stage's ``store`` argument: a :class:`ResultStore` or path as given, ``None`` → from the
     environment (:data:`STORE_ENV`, set by ``dascreen run`` for its jobs), ``False`` → no store.
@@ -653,8 +989,13 @@ def store_text(store: ResultStore, keys: bool = False, used: Mapping[str, str] |
     lines.append(f"  {'stage':11s} {'protocol id':28s} {'rows':>7s}  {'first':16s}  {'last':16s}"
                  + ("  read by these settings" if used else ""))
     for row in summary:
+        note = used.get(row["protocol_id"], "")
+        if used and not note:  # rows another environment wrote: kept as a protocol of their own, said which
+            protocol = store.stored_protocol(row["stage"], row["protocol_id"])
+            other = other_library_versions(row["stage"], protocol) if protocol is not None else ""
+            note = f"no: other library versions: {other}" if other else ""
         lines.append((f"  {row['stage']:11s} {row['protocol_id']:28s} {row['entries']:7d}  {when(row['first']):16s}  "
-                      f"{when(row['last']):16s}  {used.get(row['protocol_id'], '')}").rstrip())
+                      f"{when(row['last']):16s}  {note}").rstrip())
     if keys:
         lines.append("")
         for row in store.rows():
