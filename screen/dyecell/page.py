@@ -36,7 +36,7 @@ import pandas as pd
 
 from screen import __version__
 from screen.dyecell.flags import INFO_FLAGS, describe
-from screen.dyecell.scales import ABSOLUTE_NHE_V, FILM_FC_EV, fc_vs_nhe_v
+from screen.dyecell.scales import ABSOLUTE_NHE_V, FILM_FC_EV, fc_vs_nhe_v, film_scale_offset_ev
 from screen.flags import codes_of
 from screen.io import atomic_path
 from screen.report.drawings import molecule_svg
@@ -517,7 +517,7 @@ def _axis_note() -> str:
     here = -(fc + ABSOLUTE_NHE_V)
     return (f"This is the absolute scale (Trasatti 1986): ferrocene in acetonitrile (+{fc:.2f} V vs NHE) sits at "
             f"\u2212{abs(here):.2f} eV on it, while the film scale of dascreen\u2019s donor/acceptor reports puts "
-            f"ferrocene at \u2212{abs(FILM_FC_EV):.1f} eV: the same couple reads {FILM_FC_EV - here:.2f} eV higher "
+            f"ferrocene at \u2212{abs(FILM_FC_EV):.1f} eV: the same couple reads {film_scale_offset_ev():.2f} eV higher "
             "(less negative) there, so compare levels across the two reports only after that shift.")
 
 

@@ -120,19 +120,12 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass, sort_by: s
     if passing and repeats:
         passing += (f" ({repeats} of them {'repeats' if repeats == 1 else 'repeat'} an earlier row's structure and "
                     f"{'stays' if repeats == 1 else 'stay'} out of the shortlist)")
-    # P(aligned) is the chance that both offsets clear their thresholds, not that the pair is viable (Voc > 0 and
-    # the gap window are not sampled into it): an adversarial referee's audit found "viable in 100 % of samples"
-    # beside a 31 % chance of Voc <= 0
-    aligned = (f", both offsets aligned in {num(best.get('p_aligned')) * 100:.0f} % of samples"
-               if not math.isnan(num(best.get("p_aligned"))) else "")
     head = f"{len(ranking)} candidate(s) ranked against <strong>{esc(partner_id) or 'the partner'}</strong>{passing}."
     if math.isnan(num(best.get("pce_pct"))):  # no viable row: no "best estimate at — % PCE"
         p_al = pd.to_numeric(ranking.get("p_aligned", pd.Series(index=ranking.index, dtype=float)), errors="coerce")
         best = ranking.loc[p_al.idxmax()] if p_al.notna().any() else ranking.iloc[0]
-        aligned = (f", both offsets aligned in {num(best.get('p_aligned')) * 100:.0f} % of samples"
-                   if not math.isnan(num(best.get("p_aligned"))) else "")
         return (f"{head} No pair is viable, so there is no PCE estimate; the most nearly aligned: "
-                f"<strong>{esc(best.get('id'))}</strong>{aligned}.")
+                f"<strong>{esc(best.get('id'))}</strong>{_aligned_words(best)}.")
     gas = str(best.get("scale", "")).strip().lower() == "gas"
     sentence = (f"{head} Best estimate: <strong>{esc(best.get('id'))}</strong> at "
                 f"{fmt_pm(best.get('pce_pct'), best.get('pce_sigma_pct'), 1)} % PCE"
@@ -141,7 +134,7 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass, sort_by: s
                    if not math.isnan(num(best.get("pce_sigma_pct"))) else "")
                 + (" from gas-scale (isolated-molecule) levels, on which neither device model was fitted or defined"
                    if gas else "")
-                + aligned)
+                + _aligned_words(best))
     ties = int((pce.round(1) == round(num(best.get("pce_pct")), 1)).sum()) - 1 if pce.notna().any() else 0
     if ties > 0:  # a device-physics audit: against a narrow-gap partner most donors tie and the order is by id
         order = ("; ties are ordered by P(aligned), then id" if sort_by == "pce_pct" else "")
@@ -156,6 +149,20 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass, sort_by: s
         sentence += (f"; first in the ranking's order: <strong>{esc(first.get('id'))}</strong> "
                      f"({fmt(first.get('pce_pct'), 1)} % PCE{said})")
     return sentence + "." + _close_top_words(pce, num(best.get("pce_sigma_pct")), sort_by)
+
+
+def _aligned_words(row) -> str:
+    """``", both offsets aligned in N % of samples"`` for a row's P(aligned) ('' without one).
+
+    P(aligned) is the chance that both offsets clear their thresholds, not that the pair is viable (Voc > 0 and the
+    gap window are not part of it): an adversarial referee's audit found "viable in 100 % of samples" beside a 31 %
+    chance of Voc <= 0.
+
+    >>> _aligned_words({"p_aligned": 0.784}), _aligned_words({"p_aligned": float("nan")})
+    (', both offsets aligned in 78 % of samples', '')
+    """
+    p = num(row.get("p_aligned"))
+    return "" if math.isnan(p) else f", both offsets aligned in {p * 100:.0f} % of samples"
 
 
 #: how many of the best estimates :func:`_close_top_words` compares
