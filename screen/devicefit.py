@@ -468,8 +468,8 @@ BOOTSTRAP_RESAMPLES = 2000
 def group_bootstrap_rho(pred, measured, groups, resamples: int = BOOTSTRAP_RESAMPLES, seed: int = 0) -> list[float]:
     """95 % percentile interval of Spearman's ρ, resampling whole groups with replacement.
 
-    Devices that share an acceptor are not independent (88 of the 98 devices with a PCE share their acceptor
-    with another device, 71 of them one of 19 fused-ring acceptors), so the interval resamples acceptor
+    Devices that share an acceptor are not independent (93 of the 98 devices with a PCE share their acceptor
+    structure with another device, 71 of them one of 14 fused-ring acceptor structures), so the interval resamples acceptor
     structures, each with all its devices
     (a cluster bootstrap; Davison and Hinkley, *Bootstrap Methods and their Application*, Cambridge
     University Press (1997), §3.8). Resamples whose ρ is undefined are skipped.

@@ -52,7 +52,7 @@ POLYMER_ONSET_EV = {"[*]c1ccc([*])s1": 1.95, "[*]/C=C/c1ccc([*])cc1": 2.2,
 # oligomers' orbital gaps are not monotonic in n (2.63, 2.77, 2.66 eV for n = 2–4: twisted force-field
 # geometries), so the fit falls back to the tetramer and lands 0.55 eV above the long-chain onset (0.3 eV above
 # ordinary films; 0.60 eV since the structures.rigid_embedding recalibration, which left PPV's oligomers as they were
-# but raised the optical-gap model's orbital-gap slope 0.420 -> 0.444, hence 0.65); polyfluorene lands 0.4 eV low
+# but raised the optical-gap model's orbital-gap slope 0.420 -> 0.444, hence 0.65); polyfluorene lands 0.33 eV low (0.4 eV with an earlier round's models)
 # (its conjugation saturates early, which an n ≤ 4 series with a steadily falling fundamental gap does not see).
 POLYMER_TOL_EV = {"[*]c1ccc([*])s1": 0.3, "[*]/C=C/c1ccc([*])cc1": 0.65, "[*]c1ccc2c(c1)C(C)(C)c1cc([*])ccc1-2": 0.5}
 
