@@ -296,6 +296,10 @@ class ResultStore:
 
     # ------------------------------------------------------------------ connection
     def _refusal(self, why: str) -> StoreProblem:
+        if why.startswith("is damaged"):  # a fact-check: damage found on opening pointed to another file, not the fix
+            return StoreProblem(f"{_said(self.path, why)}: move it away (e.g. `mv {self.path} {self.path}.damaged`); "
+                                "runs then start a new store and the molecules it held are computed again; the file "
+                                "was not changed", why=why)
         return StoreProblem(f"{_said(self.path, why)}; give the store file of a run (store.path, default "
                             "~/.cache/dascreen/store.sqlite); the file was not changed", why=why)
 
@@ -879,7 +883,8 @@ def run_store_check(path: Path | None, why_none: str = "store.path is null") -> 
                 return unusable(f"cannot be read ({exc})")
             except sqlite3.DatabaseError as exc:
                 verdict = str(exc)
-            if verdict != "ok":
+            if verdict != "ok":  # quick_check lists one problem per line: the first, on the warning's one line
+                verdict = str(verdict).strip().splitlines()[0] if str(verdict).strip() else "quick_check failed"
                 return unusable(f"is damaged ({verdict})", f"move it away (e.g. `mv {path} {path}.damaged`): runs "
                                 "then start a new store")
     except StoreProblem as exc:

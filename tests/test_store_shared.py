@@ -141,6 +141,19 @@ def test_a_damaged_store_file_is_one_message_and_exit_2(tmp_path, capsys, action
     assert path.read_bytes() == before
 
 
+def test_a_store_damaged_where_it_is_opened_also_says_move_it_away(tmp_path, capsys):
+    # a fact-check of the docs: a store truncated to 100 bytes was refused with "give the store file of a run",
+    # which points to another file, not to the fix
+    from screen.cli import main
+
+    path = _damaged(tmp_path / "s.sqlite")
+    path.write_bytes(path.read_bytes()[:100])
+    rc = main(["store", "list", "--store", str(path)])
+    err = capsys.readouterr().err
+    assert rc == 2 and len(err.strip().splitlines()) == 1, err
+    assert " is damaged (" in err and "move it away" in err and "give the store file" not in err, err
+
+
 # --------------------------------------------------------------------------- F3: a read-only store
 
 @contextlib.contextmanager
