@@ -683,11 +683,17 @@ def _duration(seconds: float) -> str:
     return f"{seconds / 3600:.1f} h"
 
 
+#: :func:`_records` of files already counted, by (path, mtime, size): the progress display asks every second for
+#: shard files that do not change (every stage output is written atomically, so a change shows in mtime and size)
+_RECORDS_SEEN: dict[tuple[str, int, int], int] = {}
+
+
 def _records(path: Path) -> int:
     """Data records of a CSV file (its header not counted); a quoted field may span lines.
 
     Lines were counted before, so an id with a quoted line break counted twice and ``dascreen status`` called a
-    finished run "not running: 18/19" (a careless user's audit).
+    finished run "not running: 18/19" (a careless user's audit). Each file version is parsed once per process
+    (:data:`_RECORDS_SEEN`).
 
     Examples
     --------
@@ -696,12 +702,18 @@ def _records(path: Path) -> int:
     >>> _records(f)
     2
     """
-    with open(path, encoding="utf-8", newline="") as handle:
-        try:
-            return max(0, sum(1 for _ in csv.reader(handle)) - 1)
-        except csv.Error:  # a field beyond the csv module's size limit (a pasted 5 MB id): count lines instead
-            handle.seek(0)
-            return max(0, sum(1 for _ in handle) - 1)
+    stat = os.stat(path)
+    seen = (str(path), stat.st_mtime_ns, stat.st_size)
+    if seen not in _RECORDS_SEEN:
+        if len(_RECORDS_SEEN) > 4096:  # a long-lived process: forget, do not grow
+            _RECORDS_SEEN.clear()
+        with open(path, encoding="utf-8", newline="") as handle:
+            try:
+                _RECORDS_SEEN[seen] = max(0, sum(1 for _ in csv.reader(handle)) - 1)
+            except csv.Error:  # a field beyond the csv module's size limit (a pasted 5 MB id): count lines instead
+                handle.seek(0)
+                _RECORDS_SEEN[seen] = max(0, sum(1 for _ in handle) - 1)
+    return _RECORDS_SEEN[seen]
 
 
 def batch_progress(out_dir: str | os.PathLike, batch: str = "candidates", stage: str = "electronic") -> dict:

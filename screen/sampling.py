@@ -3,7 +3,8 @@
 :func:`sample_pce` draws independent normal errors on the six pair levels
 (donor and acceptor HOMO, LUMO, optical gap) and returns, per pair, the mean and
 standard deviation of the sampled efficiency, the probability that it beats a
-target and the 5th/95th percentiles of the samples that stay viable.  The
+target and whether the point estimate lies outside the central 90 % of the
+samples that stay viable (``estimate_on_edge``).  The
 sampler uses common random numbers: one table of standard normal
 deviates (fixed seed) is shared by every pair, so a pair's result does not
 depend on the other pairs, their order or the block size, and differences
@@ -23,7 +24,7 @@ that of the chosen model; a sample that is not viable counts as 0 %.  The work i
 3. :func:`_anchors` — per pair, the exact efficiency at the mean levels minus the
    tabulated one (so that σ = 0 reproduces :meth:`DeviceModel.evaluate`);
 4. :func:`_pce_samples` — the efficiency samples of one block;
-5. :func:`_block_moments` — mean, σ, exceedance probability and central range of one block.
+5. :func:`_block_moments` — mean, σ, exceedance probability and the steep-edge verdict of one block.
 
 References
 ----------

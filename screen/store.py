@@ -249,13 +249,21 @@ def _read_only_error(exc: sqlite3.OperationalError) -> bool:
         "readonly database" in text or "unable to open database file" in text
 
 
+def _move_away(path) -> str:
+    """The fix of a damaged store file, one wording for every message that gives it."""
+    return f"move it away (e.g. `mv {path} {path}.damaged`)"
+
+
+#: what moving a damaged store away means for the runs
+_AFTER_MOVE = "runs then start a new store and the molecules it held are computed again"
+
+
 def damaged_store_text(path, exc: Exception) -> str:
     """The one message of a store file SQLite cannot read through (``dascreen store``; exit code 2)."""
     why = _damage(exc) if isinstance(exc, sqlite3.DatabaseError) and \
         not isinstance(exc, sqlite3.OperationalError) else f"could not be read ({exc})"
     if why.startswith("is damaged"):
-        return (f"results store {path} {why}: move it away (e.g. `mv {path} {path}.damaged`); runs then start a "
-                "new store and the molecules it held are computed again")
+        return f"results store {path} {why}: {_move_away(path)}; {_AFTER_MOVE}"
     return f"results store {path}: {why}"
 
 
@@ -297,9 +305,8 @@ class ResultStore:
     # ------------------------------------------------------------------ connection
     def _refusal(self, why: str) -> StoreProblem:
         if why.startswith("is damaged"):  # a fact-check: damage found on opening pointed to another file, not the fix
-            return StoreProblem(f"{_said(self.path, why)}: move it away (e.g. `mv {self.path} {self.path}.damaged`); "
-                                "runs then start a new store and the molecules it held are computed again; the file "
-                                "was not changed", why=why)
+            return StoreProblem(f"{_said(self.path, why)}: {_move_away(self.path)}; {_AFTER_MOVE}; the file was not "
+                                "changed", why=why)
         return StoreProblem(f"{_said(self.path, why)}; give the store file of a run (store.path, default "
                             "~/.cache/dascreen/store.sqlite); the file was not changed", why=why)
 
@@ -356,10 +363,6 @@ class ResultStore:
             raise self._refusal(f"the database {owner}, not a dascreen results store")
         return conn
 
-    def _connect_read_only(self) -> sqlite3.Connection:
-        """A connection that never writes the file; refuses a file that is not a dascreen store."""
-        return self._open_read_only()
-
     def write_problem(self) -> str | None:
         """Why this process cannot write the store file, as far as the system says before trying (None: it can;
         a file that does not exist yet: whether it can be created is not checked here)."""
@@ -377,7 +380,7 @@ class ResultStore:
         if self._conn is not None and self._pid == os.getpid():
             return self._conn
         if self.read_only:
-            self._conn, self._pid = self._connect_read_only(), os.getpid()
+            self._conn, self._pid = self._open_read_only(), os.getpid()
             return self._conn
         reason = self.write_problem() if self.path.is_file() else None
         if reason is not None:  # read where the system allows it; nothing written, not even the schema
@@ -864,8 +867,9 @@ def run_store_check(path: Path | None, why_none: str = "store.path is null") -> 
             folder = folder.parent
         if not folder.is_dir():
             return unusable(f"cannot be created: {folder} is a file")
-        if _read_only_file_system(folder) or not os.access(folder, os.W_OK | os.X_OK):
-            why = "is on a read-only file system" if _read_only_file_system(folder) else "cannot be written"
+        read_only_fs = _read_only_file_system(folder)
+        if read_only_fs or not os.access(folder, os.W_OK | os.X_OK):
+            why = "is on a read-only file system" if read_only_fs else "cannot be written"
             return unusable(f"cannot be created: {folder} {why}")
         made = f", with the folder {path.parent}" if folder != path.parent else ""
         return [f"dascreen: results store {path} (new: this run creates it{made})"] + _low_space(path, folder), True
@@ -885,8 +889,7 @@ def run_store_check(path: Path | None, why_none: str = "store.path is null") -> 
                 verdict = str(exc)
             if verdict != "ok":  # quick_check lists one problem per line: the first, on the warning's one line
                 verdict = str(verdict).strip().splitlines()[0] if str(verdict).strip() else "quick_check failed"
-                return unusable(f"is damaged ({verdict})", f"move it away (e.g. `mv {path} {path}.damaged`): runs "
-                                "then start a new store")
+                return unusable(f"is damaged ({verdict})", f"{_move_away(path)}: runs then start a new store")
     except StoreProblem as exc:
         return unusable(exc.why, f"move it away or {elsewhere}")
     finally:
@@ -911,12 +914,22 @@ def _low_space(path: Path, folder: Path) -> list[str]:
     return [f"dascreen: warning: results store {path}: only {left} free on its disk; new results may not be stored"]
 
 
+#: :func:`run_store_check` verdicts of this process, by store path and whether the file exists: a command that
+#: starts the workflow twice for one run (``dascreen dyecell``: compute, then rank) checks an existing store once,
+#: not twice (its quick_check reads every page of a file up to CHECK_MAX_MB); between the two, only this run's own
+#: jobs have written to it. A store the first check found missing is checked again once it exists.
+_CHECKED: dict[tuple[str, str, bool], tuple[list[str], bool]] = {}
+
+
 def run_store(config, record_in=None) -> tuple[Path | None, list[str]]:
-    """The store a run's jobs use (None: none) and the console lines about it (:func:`run_store_check`, and
-    :func:`store_override_note`)."""
+    """The store a run's jobs use (None: none) and the console lines about it (:func:`run_store_check`, once per
+    store and process, and :func:`store_override_note`)."""
     path = store_location(config)
     why_none = f"{STORE_ENV} is empty" if STORE_ENV in os.environ else "store.path is null"
-    lines, usable = run_store_check(path, why_none)
+    seen = (str(path), why_none, path is not None and Path(path).exists())
+    if seen not in _CHECKED:
+        _CHECKED[seen] = run_store_check(path, why_none)
+    lines, usable = _CHECKED[seen]
     note = store_override_note(config, record_in)
     return (path if usable else None), ([note] if note else []) + lines
 

@@ -91,6 +91,11 @@ _REFERENCE_ALIASES = {
 }
 
 
+def _normalised(text) -> str:
+    """A solvent or reference name as the tables key it: lower case, blanks collapsed (``" Fc+/Fc "`` → ``fc+/fc``)."""
+    return re.sub(r"\s+", " ", str(text).strip().lower())
+
+
 def vacuum_ev_from_nhe(e_v_nhe):
     """Vacuum-scale energy of a couple at a potential vs NHE: ``−e (E + 4.44 V)``.
 
@@ -158,7 +163,7 @@ def solvent_key(solvent: str) -> str:
     >>> solvent_key("CH2Cl2"), solvent_key(" Acetonitrile "), solvent_key("water")
     ('dcm', 'mecn', '')
     """
-    return _SOLVENT_ALIASES.get(re.sub(r"\s+", " ", str(solvent).strip().lower()), "")
+    return _SOLVENT_ALIASES.get(_normalised(solvent), "")
 
 
 def fc_vs_nhe_v(solvent: str = "acetonitrile") -> float:
@@ -196,7 +201,7 @@ def needs_solvent(reference: str) -> bool:
     >>> needs_solvent("Fc+/Fc"), needs_solvent("fc-dcm"), needs_solvent("SCE")
     (True, False, False)
     """
-    return re.sub(r"\s+", " ", str(reference).strip().lower()) in _FERROCENE
+    return _normalised(reference) in _FERROCENE
 
 
 def reference_entry(reference: str, solvent: str | None = None) -> dict:
@@ -229,7 +234,7 @@ def reference_entry(reference: str, solvent: str | None = None) -> dict:
     >>> e["reference"], e["offset_v"], e["from_memory"]
     ('fc-dcm', 0.7, True)
     """
-    ref = re.sub(r"\s+", " ", str(reference).strip().lower())
+    ref = _normalised(reference)
     table = electrodes()
     if ref in _FERROCENE:
         solvent = "acetonitrile" if solvent is None else solvent
@@ -264,7 +269,7 @@ def solvent_conflict(reference: str, solvent: str | None, column: str = "referen
     """
     if solvent is None or not str(solvent).strip():
         return None
-    ident = re.sub(r"\s+", " ", str(reference).strip().lower())
+    ident = _normalised(reference)
     ident = _REFERENCE_ALIASES.get(ident, ident)
     table = electrodes()
     key = solvent_key(solvent)
@@ -278,14 +283,8 @@ def solvent_conflict(reference: str, solvent: str | None, column: str = "referen
 def reference_vs_nhe_v(reference: str, solvent: str | None = None) -> float:
     """Potential of a reference electrode vs NHE (:func:`reference_entry`). [V]
 
-    Parameters
-    ----------
-    reference : str
-        ``NHE``/``SHE``, ``SCE``, ``Ag/AgCl``, ``Ag/AgCl (3 M KCl)``, ``Fc`` (ferrocene,
-        needs ``solvent``) or an id of ``electrodes.csv`` (e.g. ``fc-dcm``).
-    solvent : str, optional
-        Solvent of a ferrocene reference (None: acetonitrile); refused when it contradicts an id such as
-        ``fc-mecn``.
+    Parameters as :func:`reference_entry` (an unknown reference, or a solvent that contradicts an id such as
+    ``fc-mecn``, is refused there).
 
     Examples
     --------

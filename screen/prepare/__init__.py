@@ -297,11 +297,18 @@ def prepare(
     ['manifest.csv', 'manifest.meta.json', 'shard-000.csv']
     """
     path = Path(path)
-    frame = read_candidates(path)
-    manifest = validate(frame, options)
-    manifest, oligomers = build_oligomers(manifest, polymer, truncate_min_carbons)  # unbuildable: that row rejected
-    shards = shard(compute_rows(manifest, oligomers), options)
+    manifest, oligomers, computed = _read_and_check(path, options, polymer, truncate_min_carbons)
+    shards = shard(computed, options)
     return write_prepared(manifest, shards, path, Path(out_dir), options, oligomers=oligomers, polymer=polymer)
+
+
+def _read_and_check(path: Path, options: PrepareOptions, polymer: PolymerOptions, truncate_min_carbons: int | None):
+    """The stage's reading of a candidate file, shared by :func:`prepare` and :func:`preview`: the manifest (every
+    row with its status), the oligomer table and the structures to compute (polymers replaced by their oligomers;
+    a polymer whose series cannot be built is rejected)."""
+    manifest = validate(read_candidates(path), options)
+    manifest, oligomers = build_oligomers(manifest, polymer, truncate_min_carbons)
+    return manifest, oligomers, compute_rows(manifest, oligomers)
 
 def options_from_config(cfg) -> tuple[PrepareOptions, PolymerOptions, int | None]:
     """The prepare stage's options from a run configuration (its ``prepare``, ``polymer`` and ``structures``
@@ -344,13 +351,10 @@ def preview(path: str | os.PathLike[str], options: PrepareOptions = PrepareOptio
     >>> sorted(p.name for p in work.iterdir())
     ['c.csv']
     """
-    frame = read_candidates(Path(path))
-    manifest = validate(frame, options)
-    manifest, oligomers = build_oligomers(manifest, polymer, truncate_min_carbons)
+    manifest, oligomers, computed = _read_and_check(Path(path), options, polymer, truncate_min_carbons)
     ok = manifest["status"].eq("ok")
     kinds = manifest["representation"] if "representation" in manifest.columns else None
     polymers = int((ok & kinds.eq("polymer")).sum()) if kinds is not None else 0
-    computed = compute_rows(manifest, oligomers)
     rejected = manifest.loc[~ok, ["row", "id", "reason", "error"]].reset_index(drop=True)
     return {"rows": int(len(manifest)), "ok": int(ok.sum()), "molecules": int(ok.sum()) - polymers,
             "polymers": polymers, "oligomers": int(oligomers["key"].nunique()) if len(oligomers) else 0,

@@ -587,30 +587,6 @@ def _molblock_problem(lines: list[str]) -> str | None:
     return None
 
 
-def _molblock_to_smiles(molblock: str) -> tuple[str | None, str]:
-    """Convert a connection table to SMILES, keeping what validation must still judge.
-
-    The block is first read with sanitisation (so stereochemistry is perceived from wedges or
-    3D coordinates); if that fails it is read without, so that e.g. a pentavalent carbon
-    reaches :func:`validate` and is reported as ``valence`` rather than as unreadable.
-    Polymer ends drawn the way drawing programs write them become attachment points
-    (:func:`_drawn_ends`).
-
-    Parameters
-    ----------
-    molblock : str
-        One record up to and including ``M  END``.
-
-    Returns
-    -------
-    tuple of (str or None, str)
-        The SMILES (None if RDKit cannot read the block at all, or the record is no screenable
-        structure) and the reason (RDKit's exception text, or why), if any.
-    """
-    smiles, detail, _ = _read_molblock(molblock)
-    return smiles, detail
-
-
 class _RecordProblem(Exception):
     """An SD record that is not screened as drawn: ``code`` (a reason code) and ``message``."""
 
@@ -621,8 +597,20 @@ class _RecordProblem(Exception):
 
 
 def _read_molblock(molblock: str) -> tuple[str | None, str, str]:
-    """:func:`_molblock_to_smiles` with the reason code of a record that is read but refused (``''`` when read, or
-    unreadable: ``unparsable``)."""
+    """Convert a connection table to SMILES, keeping what validation must still judge.
+
+    The block is first read with sanitisation (so stereochemistry is perceived from wedges or 3D coordinates); if
+    that fails it is read without, so that e.g. a pentavalent carbon reaches :func:`validate` and is reported as
+    ``valence`` rather than as unreadable. Polymer ends drawn the way drawing programs write them become attachment
+    points (:func:`_drawn_ends`).
+
+    Returns
+    -------
+    tuple of (str or None, str, str)
+        The SMILES (None if RDKit cannot read the block at all, or the record is no screenable structure), the
+        reason (RDKit's exception text, or why) and the reason code of a record that is read but refused (``''``
+        when read, or unreadable: ``unparsable``).
+    """
     with rdBase.BlockLogs():
         with rdBase.CaptureErrorLog():
             try:
