@@ -1,7 +1,7 @@
 """Benchmark: how twisted are the force-field backbones of the reference polymers, and does it cost accuracy?
 
 A one-chain force-field geometry can twist a conjugated backbone where the film chain is near planar
-(README, "Real materials"). This script measures that twist on the structures the default protocol
+(docs/method.md, "Still wrong by family"). This script measures that twist on the structures the default protocol
 computes and sets it beside the calibration's own held-out errors:
 
 * for every polymer of the film reference set (``models/reference/levels_film.csv``) the longest

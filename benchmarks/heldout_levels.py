@@ -4,7 +4,7 @@ For every named material of ``models/reference/levels_film.csv`` the whole
 calibration is refitted on the shipped raw values with that structure left out of
 every reference set (:func:`screen.devicevalidation.out_of_sample_levels`), and its
 film HOMO, LUMO and optical gap are printed beside the reference values. These are
-the README's "held-out checks on materials we know well".
+docs/method.md's "held-out checks on materials we know well".
 
 Usage::
 

@@ -29,7 +29,7 @@ while the ITIC-type IC acceptors came out too narrow (−0.04 to −0.13 eV): th
 films red-shift more on packing (Y6 ≈ 90 nm from chloroform to film [1]_, ITIC-type
 ≈ 30–40 nm, from memory). The optical-gap model carries a term for it too; with three
 members in the film set it is the smallest class the model has, and its worth is measured
-on devices held out (README, ``benchmarks/device_validation.py``).
+on devices held out (docs/method.md, ``benchmarks/device_validation.py``).
 
 References
 ----------

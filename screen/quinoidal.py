@@ -6,7 +6,7 @@ the PBDTTT series) have low optical gaps (Liang and Yu [1]_, from memory). A one
 calculation of short oligomers extrapolated to the chain limit does not reach that
 delocalisation: on both shipped protocols all five such polymers of the film set came out
 with film HOMOs 0.14–0.40 eV too deep and optical gaps up to 0.2 eV too wide (leave-one-out;
-README), a family off together, while the other benzodithiophene copolymers sat within
+docs/method.md), a family off together, while the other benzodithiophene copolymers sat within
 ±0.1 eV. The calibration carries a class term for TT *polymers*
 (:data:`screen.calibration.linear.CLASS_TERMS`, ``tt_polymer``), like the fullerenes'
 ``cage`` term; a small molecule with a TT unit is not in the class (no such reference row).

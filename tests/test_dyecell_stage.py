@@ -783,7 +783,7 @@ def test_report_caution_follows_the_oxide_type_and_warns_that_p_type_pces_are_op
     caution = p_page[p_page.index('id="caution"'):p_page.index('<div class="counts">')]
     assert "V<sub>oc</sub> loss below the ideal E<sub>VB</sub> \u2212 E<sub>redox</sub>" in caution
     assert "E<sub>CB</sub>" not in caution
-    # README (Dye-cell mode, Limits): η and FF are n-type values, measured NiO cells ~0.1-0.2 %  # from memory
+    # docs/dyecell.md (Limits): η and FF are n-type values, measured NiO cells ~0.1-0.2 %  # from memory
     assert 'id="caution-p-type"' in caution and "PCEs here are optimistic" in caution
     assert "0.1\u20130.2 %" in caution
     n_page = (run_dyecell(f, tmp_path / "n", oxide="tio2-anatase", mediator="co-bpy3",
@@ -910,7 +910,7 @@ def test_the_dye_console_table_has_fixed_decimals_per_column(tmp_path, capsys):
 
 def test_a_not_viable_dyes_reason_is_said_once_and_mediator_comparisons_are_cautioned():
     # a meeting audit: LD-12's missing anchor appeared as its viability text and again as its flag text; the page did
-    # not say that the one fixed Voc loss favours high-potential mediators (README, dye-cell limits)
+    # not say that the one fixed Voc loss favours high-potential mediators (docs/dyecell.md, Limits)
     from screen.dyecell.page import _caution, _flags_html
 
     assert "no anchoring group" in _flags_html("no_anchor", {})

@@ -83,7 +83,7 @@ _CAUTION_REST = (
     "the safety data sheets of every reagent.")
 #: the ideal photovoltage the Voc loss is taken from, by oxide type (HTML)
 _IDEAL_VOLTAGE = {"n": "E<sub>redox</sub> \u2212 E<sub>CB</sub>", "p": "E<sub>VB</sub> \u2212 E<sub>redox</sub>"}
-#: the p-type caveat (README, *Dye-cell mode*, Limits): n-type η and FF, an estimated reduction potential
+#: the p-type caveat (docs/dyecell.md, Limits): n-type η and FF, an estimated reduction potential
 _CAUTION_P_TYPE = (
     '<p class="caution" id="caution-p-type"><strong>p-type cell: optimistic PCEs.</strong> On a p-type oxide such '
     "as NiO the photon-to-current efficiency and fill factor of the model are n-type values, and the dye\u2019s "

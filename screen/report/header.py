@@ -365,7 +365,7 @@ def model_label(meta: dict) -> str:
 
 
 #: below this held-out rank correlation of PCE on computed levels the card says the PCE does not order good pairs
-#: (the target of the device model's validation, Spearman(PCE) ≥ 0.4; README)
+#: (the target of the device model's validation, Spearman(PCE) ≥ 0.4; README, "Tested on published devices")
 PCE_RANK_SKILL = 0.4
 
 
