@@ -140,7 +140,8 @@ _REGISTRY = (
                              "checked", "info"),
     Flag("heavy_atoms_unknown", "heavy-atom count unknown, so the size limit could not be checked", "info"),
     Flag("far_from_reference", "unlike every reference material of the calibration (fingerprint similarity "
-                               "below 0.30): its levels are extrapolated and carry a wide σ", "info"),
+                               "below 0.30, or an element that no reference material contains): its levels are "
+                               "extrapolated and carry a wide σ", "info"),
     Flag("known_family_bias", "diketopyrrolopyrrole core: held out, this family's film gaps come out 0.15–0.54 eV "
                               "too wide and its HOMOs up to 0.34 eV too deep (the force field twists the bonds to "
                               "the flanking rings; benchmarks/dpp_geometry.py), so its Voc and rank lean high",

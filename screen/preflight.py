@@ -217,7 +217,11 @@ def allowed_text(schema: dict) -> str:
     'one of ff, xtb'
     >>> allowed_text({"type": ["number", "null"], "exclusiveMinimum": 0, "maximum": 1})
     'number > 0 and <= 1, or null'
+    >>> allowed_text({"enum": [False], "description": "must stay false: why"})
+    'False only (must stay false: why)'
     """
+    if "enum" in schema and len(schema["enum"]) == 1 and schema.get("description"):
+        return f"{schema['enum'][0]} only ({schema['description']})"  # a fixed setting says why it is fixed
     if "enum" in schema:
         return "one of " + ", ".join("null" if v is None else str(v) for v in schema["enum"])
     types = schema.get("type", [])

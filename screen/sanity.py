@@ -145,11 +145,13 @@ def gap_problem(gap_ev: float, min_gap_ev: float = MIN_GAP_EV) -> str | None:
 
     Examples
     --------
-    >>> gap_problem(0.02)
-    'orbital gap 0.02 eV is below 0.25 eV: the electronic structure is broken or metallic'
+    >>> gap_problem(0.02)  # doctest: +ELLIPSIS
+    'orbital gap 0.02 eV is below 0.25 eV: the structure is broken (e.g. a double bond twisted ...'
     >>> gap_problem(1.9) is None
     True
     """
     if gap_ev is None or not np.isfinite(gap_ev) or gap_ev >= min_gap_ev:
         return None
-    return f"orbital gap {gap_ev:.2f} eV is below {min_gap_ev:.2f} eV: the electronic structure is broken or metallic"
+    return (f"orbital gap {gap_ev:.2f} eV is below {min_gap_ev:.2f} eV: the structure is broken (e.g. a double bond "
+            "twisted by the force field, as in a cumulene), or the molecule is not a closed-shell singlet (a "
+            "triplet or diradical ground state, as in O2) or is metallic; levels are not computed")

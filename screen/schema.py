@@ -66,7 +66,9 @@ def _describe(error: jsonschema.ValidationError) -> str:
     field = ".".join(str(p) for p in error.absolute_path) or "(top level)"
     schema = error.schema if isinstance(error.schema, dict) else {}
     allowed = ""
-    if "enum" in schema:
+    if "enum" in schema and len(schema["enum"]) == 1 and schema.get("description"):
+        allowed = f"; {schema['description']}"  # a fixed setting says why it is fixed
+    elif "enum" in schema:
         allowed = f"; allowed values: {', '.join(map(str, schema['enum']))}"
     elif error.validator == "additionalProperties":
         props = sorted(error.schema.get("properties", {}))

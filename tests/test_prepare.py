@@ -174,8 +174,17 @@ ATTACHMENT_CASES = [
      "attachment point must sit on a heavy atom of the repeat unit"),
     ("*[Si](C)(C)*", "attachment_same_atom",
      "both attachment points (* at atom 0, * at atom 4) are bonded to atom 1 (Si): the two ends "
-     "of a repeat unit must be different atoms (write at least two backbone atoms, e.g. *CC* "
-     "rather than *C*)"),
+     "of a repeat unit must be different atoms of a conjugated backbone (e.g. [*]c1ccc([*])s1 for a "
+     "thiophene unit)"),
+    # a structure audit: the copolymer written with a dot and the attachment point inside a ring bond
+    ("[*]c1ccc([*])s1.[*]c1ccc([*])cc1", "attachment_too_many",
+     "4 attachment points in 2 dot-separated units (* at atom 0, * at atom 5, * at atom 7, * at atom 12): a "
+     "copolymer is written as one repeat unit that holds its monomers bonded to each other, head first and tail "
+     "last (e.g. [*]c1ccc(-c2ccc([*])cc2)s1 for alternating thiophene and phenylene)"),
+    ("C1=CC=C[*]1", "attachment_single",
+     "one attachment point (* at atom 4): a polymer repeat unit needs exactly two attachment points ([*] at each "
+     "end of the backbone) and a molecule none (cap the open valence, e.g. with hydrogen or methyl); it has 2 "
+     "bonds, as if written inside a ring (C1=CC=C[*]1), where an attachment point hangs off the unit by one bond"),
     # a polymer audit: these were blamed on the aromatic notation ("a pyrrole-type nitrogen needs [nH]")
     ("[*]c12sc(-c3ccc([*])s3)cc1scc2", "attachment_no_hydrogen",
      "the attachment point * at atom 0 sits on atom 1 (c), which has no hydrogen to replace (a ring-fusion "

@@ -128,6 +128,9 @@ A rejected row carries exactly one reason (the first problem found, in this orde
                         heteroatoms, conjugated zwitterions) are accepted, with a
                         ``charge_separated`` note.
 ``open_shell``          any atom with radical electrons, or an odd number of electrons.
+``hypercoordinate``     an atom with more than four bonded neighbours, hydrogens counted (SF5,
+                        PF5, SF6): the embedding and force fields of the geometry step build no
+                        five- or six-coordinate centre.
 ``too_many_atoms``      more heavy atoms than ``PrepareOptions.max_heavy_atoms``.
 ``ring_perception_time`` a ring system of many rings fused to a macrocycle (a large
                         cycloparaphenylene nanohoop) whose RDKit aromaticity perception did not

@@ -94,16 +94,27 @@ def _partner_problem(atom: Chem.Atom) -> str | None:
 def _count_problem(dummies: list[Chem.Atom]) -> tuple[str, str] | None:
     """Reason and message if there are not exactly two attachment points (and at least one)."""
     if len(dummies) == 1:
+        bonds = dummies[0].GetDegree()
+        inside = (f"; it has {bonds} bonds, as if written inside a ring (C1=CC=C[*]1), where an attachment point "
+                  "hangs off the unit by one bond") if bonds > 1 else ""
         return (
             "attachment_single",
             f"one attachment point ({describe(dummies[0])}): a polymer repeat unit needs "
             "exactly two attachment points ([*] at each end of the backbone) and a molecule "
-            "none (cap the open valence, e.g. with hydrogen or methyl)",
+            f"none (cap the open valence, e.g. with hydrogen or methyl){inside}",
         )
     if len(dummies) > 2:
         shown = ", ".join(describe(a) for a in dummies[:_MAX_SHOWN])
         if len(dummies) > _MAX_SHOWN:
             shown += f" and {len(dummies) - _MAX_SHOWN} more"
+        units = Chem.GetMolFrags(dummies[0].GetOwningMol(), asMols=False, sanitizeFrags=False)
+        if len(units) > 1 and len(dummies) == 2 * len(units):
+            return (
+                "attachment_too_many",
+                f"{len(dummies)} attachment points in {len(units)} dot-separated units ({shown}): a copolymer is "
+                "written as one repeat unit that holds its monomers bonded to each other, head first and tail "
+                "last (e.g. [*]c1ccc(-c2ccc([*])cc2)s1 for alternating thiophene and phenylene)",
+            )
         return (
             "attachment_too_many",
             f"{len(dummies)} attachment points ({shown}): a polymer repeat unit has exactly "
@@ -156,7 +167,7 @@ def classify(mol: Chem.Mol) -> tuple[str, tuple[str, str] | None]:
             "attachment_same_atom",
             f"both attachment points ({describe(dummies[0])}, {describe(dummies[1])}) are bonded "
             f"to atom {first.GetIdx()} ({first.GetSymbol()}): the two ends of a repeat unit must "
-            "be different atoms (write at least two backbone atoms, e.g. *CC* rather than *C*)",
+            "be different atoms of a conjugated backbone (e.g. [*]c1ccc([*])s1 for a thiophene unit)",
         )
     for atom in dummies:
         why = _no_hydrogen(atom)

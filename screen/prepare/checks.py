@@ -51,6 +51,7 @@ REASON_CODES: tuple[str, ...] = (
     "charged",
     "charge_separated_sp3",
     "open_shell",
+    "hypercoordinate",
     "too_many_atoms",
     "ring_perception_time",
     "bad_role",
@@ -580,6 +581,26 @@ def _strip_labels(mol: Chem.Mol, options: PrepareOptions, notes: list[str]) -> N
         notes.append(f"atom_maps_removed: {len(mapped)} atom(s)")
 
 
+#: most bonded neighbours (hydrogens counted) an atom may have: the geometry step (ETKDG embedding, MMFF94/UFF)
+#: builds no five- or six-coordinate centre (a structure audit: an SF5 arene embedded with fluorines 1.0 Å apart
+#: and UFF, which has no type for it, pulled them 4.3 Å from the sulfur, so it failed as "7 rings where the input has 1")
+MAX_NEIGHBOURS = 4
+
+
+def _check_coordination(mol: Chem.Mol) -> None:
+    """Reject an atom with more than :data:`MAX_NEIGHBOURS` bonded neighbours (SF5, PF5, SF6), naming it."""
+    for atom in mol.GetAtoms():
+        degree = atom.GetDegree() + atom.GetTotalNumHs()
+        if degree > MAX_NEIGHBOURS:
+            raise _Reject(
+                "hypercoordinate",
+                f"atom {atom.GetIdx()} ({atom.GetSymbol()}) has {degree} bonded neighbours (a five- or "
+                "six-coordinate centre such as SF5): the geometry step (ETKDG embedding, MMFF94/UFF force "
+                "fields) cannot build it, so its structure would come out broken; not supported (0-based atom "
+                "index in the order of smiles_input)",
+            )
+
+
 def _check_structure(smiles: str, options: PrepareOptions) -> _Checked:
     """Run every structure check on one SMILES and return the canonical form or the problem."""
     result = _Checked()
@@ -597,6 +618,7 @@ def _check_structure(smiles: str, options: PrepareOptions) -> _Checked:
         _check_hydrogen_allowed(mol, options)
         charge = _check_charge(mol, options, result.notes)
         _check_open_shell(mol, options, charge)
+        _check_coordination(mol)
         _strip_labels(mol, options, result.notes)
         if result.representation == "polymer":
             note = attachment_stereo_note(mol)
