@@ -78,6 +78,9 @@ class Partner:
         source (None when not stated).
     notes : str
         Free text (library notes, how a value was obtained).
+    acceptor_class : str
+        The class a partner file's ``acceptor_class`` column gives (:data:`screen.devicepars.ACCEPTOR_CLASSES`);
+        '' when not given: the ranking then takes the class of the SMILES, else the pooled values.
     """
 
     id: str
@@ -98,6 +101,7 @@ class Partner:
     doi: str = ""
     from_memory: bool | None = None
     notes: str = ""
+    acceptor_class: str = ""
 
     def as_dict(self) -> dict:
         """Plain dict (NaN written as None) for JSON sidecars and the report.

@@ -50,6 +50,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from screen.devicepars import acceptor_class_key
 from screen.errors import InputError
 from screen.levels_check import check_levels, quoted
 from screen.partner_library import (LIBRARY_COLUMNS, LIBRARY_PATH, ROLES, SCALES, Partner, PartnerError,
@@ -507,9 +508,14 @@ def _row_partner(row: dict, *, kind: str, spec: str, slug: str, where: str, sour
     if role not in ROLES + ("",):
         raise PartnerError(f"{where}: row {quoted(pid)} has role {quoted(role)}; allowed: donor, acceptor or empty")
     sig = {c: _sigma_value(row.get(c), f"{where}: {c} of {quoted(pid)}") for c in _SIGMA}
+    try:  # a partner file's own class is used like a candidate file's (an all-polymer audit: it was checked, then
+        # ignored, and the pooled fill factor taken with the flag acceptor_class_unknown)
+        given_class = acceptor_class_key(_text(row.get("acceptor_class")))
+    except InputError as exc:
+        raise PartnerError(f"{where}: row {quoted(pid)}: {exc}") from None
     return Partner(id=pid, name=_text(row.get("name")) or pid, role=role, **vals, **sig, scale=scale,
                    source=_text(row.get("source")) or source, slug=slug, kind=kind, spec=spec,
-                   smiles=_text(row.get("smiles")), notes=_text(row.get("notes")))
+                   smiles=_text(row.get("smiles")), notes=_text(row.get("notes")), acceptor_class=given_class)
 
 
 def _from_file(spec: str, slug: str) -> Partner:
@@ -602,11 +608,15 @@ def _from_computed(spec: str, slug: str, partner_levels) -> Partner:
     meta = read_json(side) if side.is_file() else {}
     computed = _row_partner(row, kind="smiles", spec=spec, slug=slug, where=f"partner levels file {path}",
                             source="")
+    polymer = ""
+    if _text(row.get("representation")) == "polymer":  # said on the partner card (an all-polymer audit)
+        polymer = (f"; polymer repeat unit: levels at the chain limit of oligomers up to n = "
+                   f"{_text(row.get('chain_n_max')) or '?'}, chain fit {_text(row.get('chain_fit_quality')) or '?'}")
     return dataclasses.replace(
         computed, id=f"smiles:{canonical}", name=canonical, role="", smiles=canonical,
         source=f"computed: protocol {meta.get('protocol_id')}, calibration {meta.get('models')}",
         notes=f"structure key {key}; raw xTB IP {float(row['xtb_ip_ev']):.3f} eV, "
-              f"EA {float(row['xtb_ea_ev']):.3f} eV")
+              f"EA {float(row['xtb_ea_ev']):.3f} eV{polymer}")
 
 
 def resolve_partner(spec: str, *, levels=None, partner_levels=None,

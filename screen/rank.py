@@ -420,7 +420,7 @@ def _pair(cand: _Candidates, is_donor: np.ndarray, partner: Partner, partner_sig
     s_d_homo, s_a_homo = split(cand.sigma["homo_sigma_ev"], k * partner.homo_sigma_ev)
     s_d_lumo, s_a_lumo = split(cand.sigma["lumo_sigma_ev"], k * partner.lumo_sigma_ev)
     s_d_gap, s_a_gap = split(cand.sigma["gap_opt_sigma_ev"], k * partner.gap_opt_sigma_ev)
-    p_class = acceptor_class_of(partner.smiles) if partner.role != "donor" else ""
+    p_class = (partner.acceptor_class or acceptor_class_of(partner.smiles)) if partner.role != "donor" else ""
     acc_class = np.where(is_donor, p_class, cand_class).astype(object)
     return _Pair((d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap),
                  (s_d_homo, s_d_lumo, s_d_gap, s_a_homo, s_a_lumo, s_a_gap), acc_class)
@@ -545,6 +545,8 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
     is_partner = np.zeros(n, dtype=bool)
     if partner.kind == "id":
         is_partner = cand.ids == partner.id
+    elif partner.kind == "smiles" and partner.smiles:  # the same structure as the computed partner (canonical SMILES)
+        is_partner = _text(lv, "smiles") == partner.smiles
     aligned = dev["p_aligned"]
     same = _same_structure(lv, cand, roles)
     device = {code: np.asarray(dev[code], bool) & pair_ok for code in DEVICE_FLAGS}

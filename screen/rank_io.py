@@ -302,7 +302,8 @@ _GEOMETRY_WORDS = {"computed": "computed by the structures stage: the geometry t
                    "embedded": "no computed geometry found: embedded here with ETKDG and MMFF94, hydrogens added",
                    "2d": "2-D depiction: no 3-D geometry could be made",
                    "2d_polymer": "polymer repeat unit: 2-D drawing with * at its attachment points (no computed "
-                                 "oligomer geometry was found beside the levels file or in the results store)"}
+                                 "oligomer geometry was found beside the levels file, nor in the results store "
+                                 "under the protocol of the levels file's .meta.json sidecar, where there is one)"}
 
 
 def _shortlist_mol(row: dict, geometries: dict, keys: dict, oligomers: dict):

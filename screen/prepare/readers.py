@@ -837,6 +837,27 @@ def _sdf_title_id(title: str, data: dict[str, str]) -> str:
     return data[keys[0]].strip() if keys else ""
 
 
+def _shortlist_repeat_unit(data: dict[str, str]) -> str:
+    """The repeat unit of a polymer record of a dascreen shortlist SDF (``representation`` = polymer, ``smiles`` with
+    two ``*``), '' for any other record.
+
+    The shortlist holds a polymer's longest computed oligomer, hydrogen-capped, whose connection table reads as one
+    molecule: read back, it was screened as that oligomer (an all-polymer audit). Its ``smiles`` data item is the
+    repeat unit the levels belong to.
+
+    Examples
+    --------
+    >>> _shortlist_repeat_unit({"representation": "polymer", "smiles": "*c1ccc(*)s1"})
+    '*c1ccc(*)s1'
+    >>> _shortlist_repeat_unit({"smiles": "*c1ccc(*)s1"}), _shortlist_repeat_unit({"representation": "polymer"})
+    ('', '')
+    """
+    smiles = data.get("smiles", "").strip()
+    if data.get("representation", "").strip().lower() == "polymer" and smiles.count("*") == 2:
+        return smiles
+    return ""
+
+
 def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], list[int], str]:
     """Parse an SD file; unreadable records become rows with a read error. Also each record's first file line, and
     the data item that may hold ids (``"data item 'Catalog'"``, for the console line about generated ids)."""
@@ -879,7 +900,7 @@ def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], l
                     f"{detail}"
                 )
             else:
-                record["smiles_input"] = smiles
+                record["smiles_input"] = _shortlist_repeat_unit(data) or smiles
         records.append(record)
     for record in records:
         for col in passthrough:
