@@ -58,7 +58,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from screen.calibration.domain import domain_std, fit_domain, nearest_similarity, reference_similarity
+from screen.calibration.domain import domain_std, elements, fit_domain, nearest_similarity, reference_similarity
 from screen.calibration.film import fit_film_level
 from screen.calibration.linear import (MIN_GAIN_EV, CalibrationError, FilmShift, LinearLevelModel, feature_matrix,
                                        raw_weights)
@@ -316,25 +316,36 @@ def _chain_sigma(frame: pd.DataFrame, features: list[str], coef) -> np.ndarray:
     return np.sqrt(total)
 
 
-def _predict(frame: pd.DataFrame, record: dict, **indicators) -> tuple[np.ndarray, np.ndarray]:
-    """Mean and σ of a linear/joint model record: prediction interval ⊕ chain-limit spread ⊕ conformer spread."""
+def _predict(frame: pd.DataFrame, record: dict, covered=None, **indicators) -> tuple[np.ndarray, np.ndarray]:
+    """Mean and σ of a linear/joint model record: prediction interval ⊕ chain-limit spread ⊕ conformer spread
+    (``covered``: the elements of the calibration's reference rows, :func:`covered_elements`)."""
     model = LinearLevelModel.from_dict(record["model"])
     data = frame.assign(**{k: float(v) for k, v in indicators.items()})
     mean, std = model.predict(feature_matrix(data, model.features), return_std=True)
     if "smiles" in frame:
         std = domain_std(record.get("domain"), model.sigma_, std, frame["smiles"],
-                         [r["smiles"] for r in record["residuals"]])
+                         [r["smiles"] for r in record["residuals"]], covered)
     own = np.hypot(_chain_sigma(frame, model.features, model.coef_),
                    conformer_sigma(frame, raw_weights(model.features, model.coef_)))
     return mean, np.hypot(std, own)
 
 
-def _film_level(frame: pd.DataFrame, record: dict, gas: tuple[np.ndarray, np.ndarray]) -> tuple:
+def _film_level(frame: pd.DataFrame, record: dict, gas: tuple[np.ndarray, np.ndarray], covered=None) -> tuple:
     if record["kind"] == "shift":  # gas model + constant: level = −gas + shift
         return -gas[0] + record["shift_ev"], np.hypot(gas[1], record["sigma_ev"])
     film = {"phase_film": 1} if "phase_film" in record["model"]["features"] else {}
-    mean, std = _predict(frame, record, **film)
+    mean, std = _predict(frame, record, covered, **film)
     return record.get("sign", -1.0) * mean, std
+
+
+def covered_elements(models: dict[str, dict]) -> frozenset:
+    """Element symbols of every reference row of a calibration's models (hydrogen and attachment points left out).
+
+    A candidate with any other element is unlike every reference material: its similarity counts as 0, for the
+    σ of each level and for ``reference_similarity`` (:func:`screen.calibration.domain.nearest_similarity`).
+    """
+    return frozenset().union(*(elements(r["smiles"]) for m in models.values() if isinstance(m, dict)
+                               for r in m.get("residuals", []) if isinstance(r, dict) and r.get("smiles")))
 
 
 #: the models whose reference rows ``reference_similarity`` is measured against, per scale of the levels
@@ -368,15 +379,16 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "fi
     out = levels.copy()
     ok = out["status"].eq("ok") & pd.to_numeric(out["xtb_ip_ev"], errors="coerce").notna()
     sub = out[ok]
-    ip, ip_s = _predict(sub, models["ip"])
-    ea, ea_s = _predict(sub, models["ea"])
+    covered = covered_elements(models)
+    ip, ip_s = _predict(sub, models["ip"], covered)
+    ea, ea_s = _predict(sub, models["ea"], covered)
     if scale == "film":
-        homo, homo_s = _film_level(sub, models["homo_film"], (ip, ip_s))
-        lumo, lumo_s = _film_level(sub, models["lumo_film"], (ea, ea_s))
-        gap, gap_s = _gap(sub, models["gap_opt_film"], phase_film=1)
+        homo, homo_s = _film_level(sub, models["homo_film"], (ip, ip_s), covered)
+        lumo, lumo_s = _film_level(sub, models["lumo_film"], (ea, ea_s), covered)
+        gap, gap_s = _gap(sub, models["gap_opt_film"], phase_film=1, covered=covered)
     else:
         homo, homo_s, lumo, lumo_s = -ip, ip_s, -ea, ea_s
-        gap, gap_s = _gap(sub, models["gap_opt"], phase_film=0)
+        gap, gap_s = _gap(sub, models["gap_opt"], phase_film=0, covered=covered)
     values = {"ip_ev": ip, "ea_ev": ea, "gap_fund_ev": ip - ea, "homo_ev": homo, "lumo_ev": lumo,
               "gap_opt_ev": gap, "ip_sigma_ev": ip_s, "ea_sigma_ev": ea_s, "homo_sigma_ev": homo_s,
               "lumo_sigma_ev": lumo_s, "gap_opt_sigma_ev": gap_s}
@@ -390,20 +402,21 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "fi
         # check found a triarylamine 0.27 like the film set but 0.41 like a gas-phase IP row, and so unflagged)
         names = SCALE_MODELS[scale]
         refs = sorted({r["smiles"] for name, m in models.items() if name in names for r in m.get("residuals", [])})
-        out.loc[ok, "reference_similarity"] = np.round(nearest_similarity(list(sub["smiles"]), refs), 3)
+        out.loc[ok, "reference_similarity"] = np.round(nearest_similarity(list(sub["smiles"]), refs,
+                                                                          covered=covered), 3)
     out["known_bias"] = ""
     if "smiles" in out:  # a family whose levels are known to be off held out (screen.knownbias): flagged in ranking
         out.loc[ok, "known_bias"] = [known_bias(s) for s in sub["smiles"].astype(str)]
     return out
 
 
-def _gap(frame: pd.DataFrame, record: dict, phase_film: int) -> tuple[np.ndarray, np.ndarray]:
+def _gap(frame: pd.DataFrame, record: dict, phase_film: int, covered=None) -> tuple[np.ndarray, np.ndarray]:
     if record["kind"] != "joint":
-        return _predict(frame, record)
+        return _predict(frame, record, covered)
     # onset / 0-0 energy in the requested phase: the [film] term, or δ when it was fixed
     if "phase_film" in record["model"]["features"]:
-        return _predict(frame, record, phase_film=phase_film, kind_maximum=0)
-    mean, std = _predict(frame, record, kind_maximum=0)
+        return _predict(frame, record, covered, phase_film=phase_film, kind_maximum=0)
+    mean, std = _predict(frame, record, covered, kind_maximum=0)
     return mean - phase_film * record["red_shift_ev"], std
 
 

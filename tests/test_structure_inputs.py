@@ -17,6 +17,7 @@ import pandas as pd
 import pytest
 
 from screen import schema
+from screen.calibrate import covered_elements
 from screen.calibration.domain import nearest_similarity
 from screen.errors import ConfigError
 from screen.flags import FLAGS
@@ -64,15 +65,23 @@ def test_four_coordinate_sulfur_phosphorus_and_silicon_pass(smiles: str) -> None
 
 
 def test_an_element_no_reference_row_contains_is_far_from_the_reference() -> None:
-    refs = [r["smiles"] for r in json.loads((MODELS / "homo_film.json").read_text())["residuals"]]
+    models = {name: json.loads((MODELS / f"{name}.json").read_text())
+              for name in ("ip", "ea", "gap_opt", "homo_film", "lumo_film", "gap_opt_film")}
+    covered = covered_elements(models)
+    # the reference sets hold chlorinated and selenium-containing materials, a brominated gas-phase EA row and no
+    # boron, phosphorus or iodine compound (models/reference/*.csv)
+    assert {"C", "N", "O", "S", "F", "Cl", "Br", "Si", "Se"} <= covered and not {"B", "P", "I"} & covered
+    refs = [r["smiles"] for r in models["homo_film"]["residuals"]]
     boron, iodine, chlorine = "c1ccc(cc1)B(c1ccccc1)c1ccccc1", "Ic1ccccc1", "Clc1ccccc1"
-    sim = nearest_similarity([boron, iodine, chlorine], refs)
-    # the film set holds chlorinated acceptors but no boron or iodine compound
+    sim = nearest_similarity([boron, iodine, chlorine], refs, covered=covered)
     assert sim[0] == 0.0 and sim[1] == 0.0
     assert sim[2] > 0.0
     # without the element rule the phenyl rings alone made them look covered (the audit saw 0.32-0.38)
     plain = nearest_similarity(["c1ccc(cc1)C(c1ccccc1)c1ccccc1", "Cc1ccccc1"], refs)
     assert np.all(plain > 0.0)
+    # one model's set without an element (the gas-phase EAs hold no sulfur) does not make a thiophene unlike it
+    ea_refs = [r["smiles"] for r in models["ea"]["residuals"]]
+    assert nearest_similarity(["Cc1ccc(C)s1"], ea_refs, covered=covered)[0] > 0.0
     assert "element that no reference material contains" in FLAGS["far_from_reference"].text
 
 

@@ -185,13 +185,13 @@ def _query_kind(smiles: str, kind: str) -> str:
     return "bit" if kind == "count" and _is_polymer(smiles) else kind
 
 
-def nearest_similarity(query, reference, kind: str = "bit") -> np.ndarray:
+def nearest_similarity(query, reference, kind: str = "bit", covered=None) -> np.ndarray:
     """Largest Tanimoto similarity of each query SMILES to the reference SMILES (0 if unparsable).
 
-    A query that contains an element no reference SMILES contains gets 0: the fingerprint of its phenyl rings
-    can make a triphenylborane or an iodobenzene look 0.3–0.4 like the reference rows, but the calibration has
-    never seen boron or iodine, so nothing of it is covered (a structure audit found such rows with the σ of
-    a well-covered molecule and no flag).
+    A query that contains an element outside ``covered`` gets 0: the fingerprint of its phenyl rings can make a
+    triphenylborane or an iodobenzene look 0.3–0.4 like the reference rows, but the calibration has never seen
+    boron or iodine, so nothing of it is covered (a structure audit found such rows with the σ of a well-covered
+    molecule and no flag).
 
     Parameters
     ----------
@@ -199,6 +199,10 @@ def nearest_similarity(query, reference, kind: str = "bit") -> np.ndarray:
         SMILES (polymer repeat units allowed).
     kind : {'bit', 'count'}
         The fingerprint (:data:`FINGERPRINTS`); with ``count`` a polymer query is compared on bits.
+    covered : set of str, optional
+        Element symbols the calibration has seen (:func:`elements`); default: those of ``reference``. A
+        calibration passes the elements of all its reference sets, so that one model's set without sulfur (the
+        gas-phase EAs) does not make every thiophene look unlike it.
 
     Returns
     -------
@@ -222,7 +226,8 @@ def nearest_similarity(query, reference, kind: str = "bit") -> np.ndarray:
     out = np.zeros(len(query))
     if not refs["bit"]:
         return out
-    covered = frozenset().union(*(elements(s) for s in reference))
+    if covered is None:
+        covered = frozenset().union(*(elements(s) for s in reference))
     for i, s in enumerate(query):
         k = _query_kind(s, kind) if isinstance(s, str) and s else kind
         fp = fingerprint(s, k) if isinstance(s, str) and s else None
@@ -331,7 +336,7 @@ def domain_variance(domain: dict, similarity) -> np.ndarray:
 
 
 def domain_std(domain: dict | None, residual_sigma: float, std: np.ndarray, query_smiles,
-               reference_smiles) -> np.ndarray:
+               reference_smiles, covered=None) -> np.ndarray:
     """A linear model's σ with the applicability-domain variance in place of its constant residual variance.
 
     Parameters
@@ -345,6 +350,8 @@ def domain_std(domain: dict | None, residual_sigma: float, std: np.ndarray, quer
         Its prediction-interval σ, ``residual_sigma·sqrt(1 + h)`` with h the leverage.
     query_smiles, reference_smiles : sequence of str
         The predicted rows' structures and the model's reference rows.
+    covered : set of str, optional
+        Element symbols the calibration has seen (:func:`nearest_similarity`).
 
     Returns
     -------
@@ -354,5 +361,6 @@ def domain_std(domain: dict | None, residual_sigma: float, std: np.ndarray, quer
     if not domain or domain.get("kind") != "similarity":
         return std
     leverage = (np.asarray(std, float) / residual_sigma) ** 2 - 1.0
-    similarity = nearest_similarity(list(query_smiles), list(reference_smiles), domain.get("similarity", "bit"))
+    similarity = nearest_similarity(list(query_smiles), list(reference_smiles), domain.get("similarity", "bit"),
+                                    covered)
     return np.sqrt(domain_variance(domain, similarity) + residual_sigma**2 * leverage)
