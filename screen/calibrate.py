@@ -66,7 +66,7 @@ from screen.calibration.optical import fit_gap
 from screen.calibration.reference import (FC_REFERENCE_EV, family, joined, read_reference, reference_files,
                                           reference_hash, reference_inputs)
 from screen.calibration.validation import select
-from screen.config import Config
+from screen.config import Config, data_path
 from screen.conformer_spread import conformer_sigma
 from screen.errors import ConfigError
 from screen.io import write_csv, write_json
@@ -127,13 +127,32 @@ def fingerprint(config, reference_dir: str | Path) -> dict:
     config : Config or mapping
         The run configuration (its protocol and polymer sections matter).
     reference_dir : path-like
-        Folder of the reference sets.
+        Folder of the reference sets; a relative path is found as the ``dascreen`` command finds it
+        (:func:`screen.config.data_path`: under the working directory, else beside the package).
+
+    Raises
+    ------
+    ConfigError
+        ``reference_dir`` does not exist or is not a folder (its hash would be that of no data, and every
+        calibration would look fitted on other reference data).
     """
     cfg = Config.of(config)
+    reference = _reference_folder(reference_dir)
     prov = provenance(cfg)
     ver = prov["versions"].get(cfg.electronic.engine, "absent")
     return {"protocol_id": cfg.protocol_id, "protocol": cfg.protocol, "polymer": dict(cfg["polymer"]),
-            "engine_version": ".".join(ver.split(".")[:2]), "reference_sha256": reference_hash(reference_dir)}
+            "engine_version": ".".join(ver.split(".")[:2]), "reference_sha256": reference_hash(reference)}
+
+
+def _reference_folder(reference_dir: str | Path) -> Path:
+    """The reference folder as an absolute path (:func:`screen.config.data_path`), refused when it is no folder."""
+    folder = data_path(reference_dir)
+    if not folder.is_dir():
+        what = "is a file, not a folder" if folder.exists() else "does not exist"
+        raise ConfigError(f"calibration.reference: the reference folder {folder} {what}; give the folder of the "
+                          f"reference CSV sets (the shipped one is {data_path('models/reference')}), or leave "
+                          "calibration.reference out for the shipped one")
+    return folder
 
 
 # --------------------------------------------------------------------------- fitting
@@ -257,18 +276,33 @@ def load_models(model_dir: str | Path, config=None, reference_dir: str | Path | 
     Parameters
     ----------
     model_dir : path-like
-        ``models/<protocol-id>`` folder.
+        ``models/<protocol-id>`` folder (:func:`find_models`).
     config : Config or mapping, optional
         Run configuration; with ``check`` the fingerprint must match it.
     reference_dir : path-like, optional
-        Reference data whose hash must match (default: the config's).
+        Reference data whose hash must match (default: the config's ``calibration.reference``, found as the
+        ``dascreen`` command finds it: :func:`screen.config.data_path`).
 
     Raises
     ------
     CalibrationError
-        Missing file, or a fingerprint that belongs to another protocol (the
-        message lists every difference).
+        ``model_dir`` is None (the message says why :func:`find_models` found no folder), a missing file, or a
+        fingerprint that belongs to another protocol (:class:`CalibrationMismatchError`; the message lists every
+        difference).
+    ConfigError
+        The reference folder does not exist (:func:`fingerprint`).
+
+    Examples
+    --------
+    >>> from screen.config import Config
+    >>> cfg = Config.of({})
+    >>> sorted(load_models(find_models(cfg), cfg)) == sorted(MODEL_NAMES)
+    True
     """
+    if model_dir is None:
+        why = _no_models_reason(Config.of(config)) if config is not None else (
+            "give the models/<protocol-id> folder, e.g. what find_models(config) returns")
+        raise CalibrationError(f"load_models: no calibration folder given (model_dir is None); {why}")
     model_dir = Path(model_dir)
     models = {}
     for name in MODEL_NAMES:
@@ -281,23 +315,80 @@ def load_models(model_dir: str | Path, config=None, reference_dir: str | Path | 
         ref = reference_dir or cfg["calibration"]["reference"]
         expected = fingerprint(cfg, ref)
         for name, model in models.items():
-            diffs = _compare(model.get("fingerprint", {}), expected)
+            found = model.get("fingerprint", {})
+            diffs = _compare(found, expected)
             if diffs:
                 raise CalibrationMismatchError(f"calibration model {model_dir / (name + '.json')} does not belong to "
-                                       f"this run's protocol ({'; '.join(diffs)}); refit with `dascreen calibrate`")
+                                               f"this run's protocol ({'; '.join(diffs)}); "
+                                               f"{_mismatch_fix(found, expected, model_dir, ref)}")
     return models
+
+
+def _mismatch_fix(found: dict, expected: dict, model_dir: Path, reference) -> str:
+    """What to do about a calibration of other settings: a refit from the stored raw values (seconds) when only the
+    reference data differ, else a calibration of these settings (``dascreen calibrate``: every reference molecule is
+    computed, hours) or the folder of a matching one."""
+    import shlex
+
+    if [k for k in FINGERPRINT_KEYS if found.get(k) != expected.get(k)] == ["reference_sha256"] and \
+            (model_dir / "reference_raw.csv").is_file():
+        return (f"the reference data in {data_path(reference)} differ from those it was fitted on: refit from its "
+                f"stored raw values in seconds (`dascreen calibrate --from-raw {shlex.quote(str(model_dir))} "
+                f"--reference {shlex.quote(str(data_path(reference)))} --install <a models folder of your own>`), "
+                "or give the reference folder it was fitted on")
+    return ("point calibration.models at a folder holding a calibration of these settings, or fit one with "
+            "`dascreen calibrate` (it computes every reference molecule: hours)")
+
+
+def _no_models_reason(cfg: Config) -> str:
+    """Why :func:`find_models` finds no calibration for ``cfg``, with the fix (one sentence)."""
+    root = cfg.models_folder
+    pid = cfg.protocol_id
+    if not root.is_dir():
+        what = "is a file, not a folder" if root.exists() else "does not exist"
+        return (f"calibration.models {root} {what}; give the folder that holds the models/<protocol-id>/ folders "
+                f"(the shipped one is {data_path('models')}), or leave calibration.models out for the shipped one")
+    if not (root / pid).is_dir():
+        held = sorted(p.name for p in root.iterdir() if (p / "ip.json").is_file())
+        return (f"{root} holds no calibration of this protocol ({pid}; it holds {', '.join(held) or 'none'}); "
+                "use the settings of a shipped calibration (`dascreen run --dry-run` names the differences) or "
+                "fit one with `dascreen calibrate` (hours)")
+    try:
+        load_models(root / pid, cfg)
+    except CalibrationError as exc:
+        return str(exc)
+    return f"{root / pid} matches these settings: pass it (find_models(config) returns it)"
 
 
 def find_models(config) -> Path | None:
     """The shipped model folder matching ``config``, or ``None`` when a refit is needed.
 
+    ``calibration.models`` and ``calibration.reference`` are found as the ``dascreen`` command finds them
+    (:func:`screen.config.data_path`), so the shipped calibration is found from any working directory.
+    ``load_models(None, config)`` says why none matches.
+
     Parameters
     ----------
     config : Config or mapping
         The run configuration (``calibration.models`` and the protocol).
+
+    Raises
+    ------
+    ConfigError
+        The reference folder does not exist (:func:`fingerprint`).
+
+    Examples
+    --------
+    >>> from screen.config import Config
+    >>> find_models(Config.of({})).name == Config.of({}).protocol_id
+    True
     """
     cfg = Config.of(config)
-    folder = Path(cfg["calibration"]["models"]) / cfg.protocol_id
+    given = Path(cfg["calibration"]["models"])
+    folder = (given if given.exists() else cfg.models_folder) / cfg.protocol_id  # as given where it is found there
+    if not (folder / "ip.json").is_file():
+        _reference_folder(cfg["calibration"]["reference"])  # a missing reference folder is said all the same
+        return None
     try:
         load_models(folder, cfg)
     except CalibrationError:

@@ -9,7 +9,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from screen.config import Config, merge
+from screen.config import Config, data_path, merge
 from screen.errors import ConfigError
 
 __all__ = ["EXIT_OK", "EXIT_ERROR", "EXIT_STRICT", "data_path", "_load", "_print_summary", "_parse_set", "_at_least_one", "_percent"]
@@ -98,15 +98,6 @@ def _print_summary(levels_csv: Path) -> dict:
     if len(bad) > 20:
         print(f"  ... and {len(bad) - 20} more (see levels.csv)")
     return counts
-
-
-def data_path(path: str | Path) -> Path:
-    """Absolute path of a data folder: as given if absolute or present under the
-    working directory, else the copy shipped beside the package (``models/``)."""
-    path = Path(path)
-    if path.is_absolute() or path.exists():
-        return path.resolve()
-    return Path(__file__).resolve().parent.parent / path
 
 
 def _at_least_one(text: str) -> int:

@@ -28,8 +28,34 @@ from screen.options import (EARLIER_PROTOCOL_VALUES, ElectronicOptions, Executio
 from screen.schema import SCHEMA_PATH, defaults, resolve, section_defaults
 
 __all__ = ["SCHEMA_PATH", "ConfigError", "Config", "load_config", "read_config_file", "read_problem", "merge",
-           "resolve", "defaults", "section_defaults",
+           "resolve", "defaults", "section_defaults", "data_path", "PACKAGE_ROOT",
            "protocol", "protocol_id"]
+
+#: the folder that holds the ``screen`` package and, in an installation from the repository, the shipped data
+#: folders (``models/``, ``models/reference/``)
+PACKAGE_ROOT = Path(__file__).resolve().parent.parent
+
+
+def data_path(path: str | Path) -> Path:
+    """Absolute path of a data folder: as given if absolute or present under the working directory, else the copy
+    shipped beside the package (``models/``, ``models/reference/``).
+
+    The rule the ``dascreen`` command applies to ``calibration.models`` and ``calibration.reference``
+    (:meth:`Config.located`), so that a Python session started in any folder finds the shipped calibration as the
+    command does (before, outside the repository the default ``models`` named a folder of the working directory:
+    no calibration was found, and the reference data hashed as those of an empty folder).
+
+    Examples
+    --------
+    >>> data_path("models/reference") == PACKAGE_ROOT / "models" / "reference" or Path("models/reference").exists()
+    True
+    >>> data_path("/abs/x").as_posix()
+    '/abs/x'
+    """
+    path = Path(path)
+    if path.is_absolute() or path.exists():
+        return path.resolve()
+    return PACKAGE_ROOT / path
 
 
 class Config(Mapping):
@@ -126,6 +152,32 @@ class Config(Mapping):
         new = Config.__new__(Config)
         new._data, new.source = data, self.source
         return new
+
+    def located(self) -> Config:
+        """A copy whose data folders are absolute, found as the ``dascreen`` command finds them (:func:`data_path`).
+
+        A relative ``calibration.models`` or ``calibration.reference`` (the defaults ``models`` and
+        ``models/reference``) is taken under the working directory when it exists there, else beside the
+        package; protocol ids and calibration fingerprints do not depend on where the folders are.
+
+        Examples
+        --------
+        >>> cfg = Config.of({}).located()
+        >>> Path(cfg["calibration"]["reference"]).is_absolute(), cfg.protocol_id == Config.of({}).protocol_id
+        (True, True)
+        """
+        return self.with_paths(data_path)
+
+    @property
+    def models_folder(self) -> Path:
+        """``calibration.models`` as an absolute path (:func:`data_path`; read at each call: it follows the working
+        directory)."""
+        return data_path(self._data["calibration"]["models"])
+
+    @property
+    def reference_folder(self) -> Path:
+        """``calibration.reference`` as an absolute path (:func:`data_path`)."""
+        return data_path(self._data["calibration"]["reference"])
 
     # ------------------------------------------------------------------ mapping protocol
     def __getitem__(self, name: str):

@@ -157,7 +157,7 @@ def level_table(devices=DEVICES_PATH, film=FILM_PATH) -> pd.DataFrame:
         frame[col] = pd.to_numeric(frame[col], errors="coerce")
     index = _film_index(pd.read_csv(film))
     film_rows = index[0]
-    frame["acceptor_class"] = frame["acceptor_class"].fillna("").astype(str)
+    frame["acceptor_class"] = frame["acceptor_class"].astype(object).fillna("").astype(str)
     out = frame.copy()
     for col in _LEVELS:
         out[f"paper_{col}"] = frame[col]

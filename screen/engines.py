@@ -49,7 +49,7 @@ from __future__ import annotations
 import os
 import time
 from abc import ABC, abstractmethod
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field, fields, replace
 
 import numpy as np
 
@@ -73,6 +73,7 @@ __all__ = [
     "TbliteEngine",
     "XtbEngine",
     "make_engine",
+    "check_scf_settings",
 ]
 
 
@@ -265,8 +266,7 @@ class Engine(ABC):
             Invalid input (for example an electron count incompatible with ``uhf``), or a backend result with
             a non-finite energy, orbital energy or occupation.
         """
-        numbers = np.ascontiguousarray(numbers, dtype=np.int32)
-        positions = np.ascontiguousarray(positions_bohr, dtype=np.float64)
+        numbers, positions = _checked_geometry(numbers, positions_bohr)
         n_electrons = int(numbers.sum()) - int(charge)  # all-electron count; parity is what matters
         if (n_electrons - uhf) % 2:
             raise EngineError(f"charge {charge} with {uhf} unpaired electrons is impossible for this molecule")
@@ -295,6 +295,36 @@ class Engine(ABC):
                 orbitals=out.get("orbitals"), handle=out.get("handle"),
             )
         raise ScfError("SCF did not converge (" + "; ".join(errors) + ")")
+
+
+def _checked_geometry(numbers, positions_bohr) -> tuple[np.ndarray, np.ndarray]:
+    """Atomic numbers and positions as the backends take them, refused with the reason when they do not fit.
+
+    Before, three atomic numbers with two positions ended in "charge 0 with 0 unpaired electrons is impossible",
+    and positions of shape (2,) in "tblite setup failed: Expected tripels".
+
+    Raises
+    ------
+    EngineError
+        No atoms, atomic numbers that are not whole numbers from 1 to 118, positions that are not one row of x, y, z
+        per atom, or positions that are not finite.
+    """
+    try:
+        z = np.asarray(numbers)
+        pos = np.asarray(positions_bohr, dtype=np.float64)
+    except (TypeError, ValueError) as exc:
+        raise EngineError(f"atomic numbers and positions must be arrays of numbers ({exc})") from None
+    if z.ndim != 1 or z.size == 0:
+        raise EngineError(f"atomic numbers must be a list of one number per atom, not shape {z.shape}")
+    if not (np.issubdtype(z.dtype, np.integer) or (np.issubdtype(z.dtype, np.floating) and np.all(z == np.round(z)))) \
+            or z.min() < 1 or z.max() > 118:
+        raise EngineError(f"atomic numbers must be whole numbers from 1 to 118, not {z.tolist()[:8]}")
+    if pos.shape != (z.size, 3):
+        raise EngineError(f"positions have shape {pos.shape} for {z.size} atomic numbers; give one row of x, y, z "
+                          f"[bohr] per atom, shape ({z.size}, 3)")
+    if not np.all(np.isfinite(pos)):
+        raise EngineError("positions hold a value that is not finite (NaN or infinity)")
+    return np.ascontiguousarray(z, dtype=np.int32), np.ascontiguousarray(pos)
 
 
 class TbliteEngine(Engine):
@@ -426,9 +456,67 @@ class XtbEngine(Engine):
 ENGINES: dict[str, type[Engine]] = {"tblite": TbliteEngine, "xtb": XtbEngine}
 
 
+#: what each SCF setting of :func:`make_engine` must be: (test, the allowed values in words)
+_SCF_CHECKS = {
+    "accuracy": (lambda v: 0.0 < v < float("inf"), "a number above 0 (1 is the library default, smaller is tighter)"),
+    "max_iter": (lambda v: float(v).is_integer() and v >= 1, "a whole number of SCF cycles of 1 or more"),
+    "mixer_damping": (lambda v: 0.0 < v <= 1.0, "a number above 0 and at most 1"),
+    "electronic_temperature_k": (lambda v: 0.0 <= v < float("inf"), "a temperature of 0 K or more [K]"),
+}
+
+#: the keywords a caller may expect of make_engine that are set elsewhere, and where
+_THREADS = ("the OpenMP threads of the engine are set by the environment variable OMP_NUM_THREADS before the "
+            "engine's library is loaded (`import screen.engines` sets it to 1 unless it is set already; see "
+            "docs/python.md)")
+_SET_ELSEWHERE = {
+    "threads": _THREADS,
+    "omp_threads": _THREADS,
+    "n_threads": _THREADS,
+    "epsilon": "a dielectric continuum is an argument of each single point: engine.singlepoint(..., epsilon=3.5)",
+    "charge": "the charge is an argument of each single point: engine.singlepoint(..., charge=1, uhf=1)",
+    "uhf": "unpaired electrons are an argument of each single point: engine.singlepoint(..., charge=1, uhf=1)",
+}
+
+
+def check_scf_settings(scf: dict) -> None:
+    """Refuse SCF settings a single point cannot use, naming the setting, the value and what is allowed.
+
+    Before, ``accuracy=-1`` ran until the fallback ladder said "SCF did not converge" (or did not return),
+    ``electronic_temperature_k=-300`` and ``max_iter=0`` were taken, and an unknown keyword was a ``TypeError``.
+
+    Raises
+    ------
+    EngineError
+        An unknown keyword (with the known ones), a value that is not a number, or one outside its range.
+
+    Examples
+    --------
+    >>> check_scf_settings({"accuracy": 0.1, "max_iter": 500})
+    >>> try:
+    ...     check_scf_settings({"accuracy": -1})
+    ... except EngineError as exc:
+    ...     print(exc)
+    accuracy=-1 is not allowed; give a number above 0 (1 is the library default, smaller is tighter)
+    """
+    known = [f.name for f in fields(ScfSettings)]
+    for key, value in scf.items():
+        if key not in _SCF_CHECKS:
+            why = _SET_ELSEWHERE.get(key)
+            raise EngineError(f"make_engine has no setting {key!r}" + (f": {why}" if why else "") +
+                              f"; its settings are name, method, solvent and {', '.join(known)}")
+        test, allowed = _SCF_CHECKS[key]
+        number = isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool)
+        if not number or not np.isfinite(value) or not test(value):
+            raise EngineError(f"{key}={value!r} is not allowed; give {allowed}")
+
+
 def make_engine(name: str = "tblite", method: str = "GFN2-xTB", *, solvent: str | None = None,
                 **scf) -> Engine:
     """Build an engine by backend name.
+
+    Every argument is checked before the engine is built (:func:`check_scf_settings`). The engine has no
+    thread setting: the OpenMP threads are set by ``OMP_NUM_THREADS``, which ``import screen.engines`` sets to 1
+    unless it is set already (``docs/python.md``).
 
     Parameters
     ----------
@@ -439,15 +527,31 @@ def make_engine(name: str = "tblite", method: str = "GFN2-xTB", *, solvent: str 
     solvent : str, optional
         ALPB solvent name (tblite only).
     **scf
-        Fields of :class:`ScfSettings`.
+        Fields of :class:`ScfSettings`: ``accuracy`` (> 0), ``max_iter`` (≥ 1), ``mixer_damping`` (0 … 1],
+        ``electronic_temperature_k`` (≥ 0) [K].
 
     Raises
     ------
     EngineError
-        Unknown backend or method, or the backend's package is missing.
+        Unknown backend, method or keyword, an SCF setting out of its range, a solvent that is not a name, or the
+        backend's package is missing.
+
+    Examples
+    --------
+    >>> make_engine(accuracy=0.5).scf.accuracy
+    0.5
+    >>> try:
+    ...     make_engine(threads=4)
+    ... except EngineError as exc:
+    ...     print(str(exc).split(":")[0])
+    make_engine has no setting 'threads'
     """
-    try:
-        cls = ENGINES[name]
-    except KeyError:
-        raise EngineError(f"unknown engine {name!r}; choose one of {', '.join(ENGINES)}") from None
-    return cls(method, ScfSettings(**scf), solvent)
+    if not isinstance(name, str) or name not in ENGINES:
+        raise EngineError(f"unknown engine {name!r}; choose one of {', '.join(ENGINES)}")
+    if not isinstance(method, str):
+        raise EngineError(f"method {method!r} is not a method name; choose one of {', '.join(ENGINES[name].methods)}")
+    if solvent is not None and (not isinstance(solvent, str) or not solvent.strip()):
+        raise EngineError(f"solvent={solvent!r} is not a solvent name; give one such as 'chloroform', or None for "
+                          "the isolated molecule")
+    check_scf_settings(scf)
+    return ENGINES[name](method, ScfSettings(**scf), solvent)

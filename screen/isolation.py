@@ -6,21 +6,151 @@ abort there would kill a Python process outright, and with it a whole shard.
 with ``spawn``, so no native state is shared) and talks to it over a pipe. If
 the child dies, the call raises :class:`WorkerCrash` naming the signal (a native crash, or SIGKILL: out of
 memory or killed from outside), a fresh child is started, and the caller records that one molecule as failed.
+
+A ``spawn`` child imports the main script again before it starts (as ``__mp_main__``). A script that calls
+the compute functions at its top level, not under ``if __name__ == "__main__":``, therefore ran the same
+call again in every child: the child's molecule failed with multiprocessing's bootstrapping error and both
+processes wrote the same files (a Python user's audit). :class:`IsolatedWorker` now refuses to start a child
+from such a call with :class:`MainGuardMissing`, one message that says to add the guard: before spawning when
+the main script's top-level statement that is running is not under the guard (:func:`unguarded_call_site`),
+and, where that cannot be seen (a call from a thread), when the child finds itself starting a worker while it
+re-imports the script (it then exits at once, writes nothing, and the parent raises the error). A notebook or
+an interactive session has no main script to re-import and is not affected; nor is ``python - < script.py``
+(``__file__`` ``<stdin>``, which multiprocessing would have every child run and fail on: it is hidden while a
+child starts, :func:`_no_script_to_import`).
 """
 
 from __future__ import annotations
 
+import ast
+import contextlib
 import multiprocessing as mp
+import os
 import signal
+import sys
 from collections.abc import Callable
 
-from screen.errors import CalculationError
+from screen.errors import EXIT_USAGE, CalculationError, DascreenError
 
-__all__ = ["WorkerCrash", "IsolatedWorker"]
+__all__ = ["WorkerCrash", "MainGuardMissing", "IsolatedWorker", "unguarded_call_site"]
 
 
 class WorkerCrash(CalculationError):
     """The child process died or timed out while working on one item."""
+
+
+class MainGuardMissing(DascreenError):
+    """A script starts worker processes from code that runs again when a ``spawn`` child imports it.
+
+    Deliberately neither a :class:`ValueError` nor a :class:`RuntimeError`: the per-molecule handlers, which
+    record those as one failed molecule, let it through, so the whole call stops with this one message.
+    """
+
+    exit_code = EXIT_USAGE
+
+
+#: exit status of a worker that found itself starting a worker while its bootstrap re-imports the main script
+#: (:meth:`IsolatedWorker._start`); the parent turns it into :class:`MainGuardMissing`
+_NO_GUARD_EXIT = 86
+
+_GUARD_FIX = ('put the script\'s work under `if __name__ == "__main__":` (every worker process imports the script '
+              'again and would run it too; see docs/python.md), or compute in this process (execution.isolate: '
+              'false, or isolate=False), where a native crash then stops the script')
+
+
+def _is_main_test(test: ast.expr) -> str | None:
+    """``"=="`` or ``"!="`` when ``test`` compares ``__name__`` with ``"__main__"`` (either order), else None."""
+    if not (isinstance(test, ast.Compare) and len(test.ops) == 1 and isinstance(test.ops[0], (ast.Eq, ast.NotEq))):
+        return None
+    sides = [test.left, test.comparators[0]]
+    named = any(isinstance(x, ast.Name) and x.id == "__name__" for x in sides)
+    main = any(isinstance(x, ast.Constant) and x.value == "__main__" for x in sides)
+    return ("==" if isinstance(test.ops[0], ast.Eq) else "!=") if named and main else None
+
+
+def _guarded_lines(source: str) -> list[tuple[int, int]]:
+    """Line ranges of a script that run only when it is the main program (the ``if __name__ == "__main__":``
+    body, or the ``else`` of ``!=``)."""
+    ranges = []
+    for node in ast.walk(ast.parse(source)):
+        if isinstance(node, ast.If):
+            kind = _is_main_test(node.test)
+            block = node.body if kind == "==" else node.orelse if kind == "!=" else []
+            if block:
+                ranges.append((block[0].lineno, block[-1].end_lineno or block[-1].lineno))
+    return ranges
+
+
+def unguarded_call_site() -> str | None:
+    """``"<script>, line N"`` when a ``spawn`` child would run the current call again, else None.
+
+    A ``spawn`` child re-imports the main script (multiprocessing's rule: a module run with ``-m`` by its
+    name, a script by its path; none for an interactive session, a notebook, ``python -c`` or a
+    ``__main__`` module of a package). The call is run again when the script's top-level statement that is
+    executing now (the main module's frame on this thread's stack) is not in the body of an
+    ``if __name__ == "__main__":``. None as well when that cannot be seen: no main-module frame on the stack
+    (a thread, a callback after the script ended) or a source that cannot be read.
+
+    Examples
+    --------
+    >>> unguarded_call_site() is None  # under pytest, doctest or the console script: a guarded main program
+    True
+    >>> _guarded_lines("import x\\nif __name__ == '__main__':\\n    x.run()\\n    x.end()\\n")
+    [(3, 4)]
+    """
+    main = sys.modules.get("__main__")
+    if main is None:
+        return None
+    name = getattr(getattr(main, "__spec__", None), "name", None)
+    path = getattr(main, "__file__", None)
+    if name is not None and (name == "__main__" or name.endswith(".__main__")):
+        return None  # multiprocessing does not re-import these
+    if not path or (name is None and os.path.splitext(os.path.basename(path))[0] == "ipython"):
+        return None
+    frame = sys._getframe(1)
+    while frame is not None and not (frame.f_globals is main.__dict__ and frame.f_code.co_name == "<module>"):
+        frame = frame.f_back
+    if frame is None:
+        return None
+    line = frame.f_lineno
+    try:
+        with open(frame.f_code.co_filename, encoding="utf-8") as fh:
+            ranges = _guarded_lines(fh.read())
+    except (OSError, SyntaxError, ValueError, UnicodeDecodeError):
+        return None
+    if any(first <= line <= last for first, last in ranges):
+        return None
+    return f"{frame.f_code.co_filename}, line {line}"
+
+
+@contextlib.contextmanager
+def _no_script_to_import():
+    """Hide the main module's ``__file__`` from ``spawn`` while a child starts, when it names no script a child
+    could import (``<stdin>`` of ``python -``, a missing file, a notebook's ``.ipynb`` that some front ends set).
+
+    multiprocessing would have the child run that path and fail before it starts (``FileNotFoundError:
+    .../<stdin>``: every molecule of a ``python -`` session failed); without it the child starts as it does from
+    a notebook or an interactive session.
+    """
+    main = sys.modules.get("__main__")
+    path = getattr(main, "__file__", None) if main is not None else None
+    hide = False
+    if path and getattr(getattr(main, "__spec__", None), "name", None) is None:
+        full = path if os.path.isabs(path) else os.path.join(mp.process.ORIGINAL_DIR or os.getcwd(), path)
+        hide = not os.path.isfile(full) or full.endswith(".ipynb")
+    if not hide:
+        yield
+        return
+    del main.__file__
+    try:
+        yield
+    finally:
+        main.__file__ = path
+
+
+def _bootstrapping() -> bool:
+    """True in a ``spawn`` child while it re-imports the main script (before it runs its own target)."""
+    return bool(getattr(mp.process.current_process(), "_inheriting", False))
 
 
 def _serve(conn, func) -> None:  # pragma: no cover - runs in the child process
@@ -83,17 +213,37 @@ class IsolatedWorker:
         self._conn = None
 
     def _start(self) -> None:
+        """Start the child; refuse a call that every child would run again (:class:`MainGuardMissing`).
+
+        Raises
+        ------
+        MainGuardMissing
+            The main script starts the worker from a statement outside ``if __name__ == "__main__":``.
+        WorkerCrash
+            The child died while starting.
+        """
+        if _bootstrapping():  # a worker re-importing the main script got here: it stops before it writes anything,
+            os._exit(_NO_GUARD_EXIT)  # and its parent says why (MainGuardMissing, one message)
+        site = unguarded_call_site()
+        if site is not None:
+            raise MainGuardMissing(f"{site} starts worker processes at the script's top level; {_GUARD_FIX}")
         parent, child = self._ctx.Pipe()
         self._proc = self._ctx.Process(target=_serve, args=(child, self.func), daemon=True)
-        self._proc.start()
+        with _no_script_to_import():
+            self._proc.start()
         child.close()
         self._conn = parent
         try:
             parent.recv()  # the "ready" handshake
         except EOFError:
             self._proc.join(5)
-            reason = _describe_exit(self._proc.exitcode)
+            code = self._proc.exitcode
+            reason = _describe_exit(code)
             self._discard()
+            if code == _NO_GUARD_EXIT:
+                raise MainGuardMissing(f"the main script {getattr(sys.modules.get('__main__'), '__file__', '')} "
+                                       f"starts worker processes from code that its workers run again; "
+                                       f"{_GUARD_FIX}") from None
             raise WorkerCrash(f"worker process {reason} while starting") from None
 
     def _discard(self) -> None:

@@ -7,7 +7,9 @@ energy, which is ≥ 0; :data:`GAP_EXCESS_TOL_EV` allows for the spread between
 CV and absorption onsets), on the film scale not far below it either
 (:data:`GAP_DEFICIT_MAX_EV`), and 0 ≤ σ ≤ :data:`SIGMA_MAX_EV`.  A violation is almost always a typing or
 convention slip (an ionisation energy written as a positive HOMO, HOMO and LUMO
-swapped or equal, a gap in nm, a σ in meV): it stops the ranking with an :class:`InputError` (exit
+swapped or equal, a gap in nm, a σ in meV, a HOMO above :data:`HOMO_MAX_EV` or a
+film LUMO above :data:`FILM_LUMO_MAX_EV`, which no material has and which hartree
+give: 1 Eh = 27.2114 eV): it stops the ranking with an :class:`InputError` (exit
 code 2) that names the file, the line, the column, the value and the fix.
 A levels file is also refused for a number that is not finite (``inf``), an
 empty or repeated id, a scale other than ``film`` or ``gas``, an acceptor class
@@ -43,7 +45,8 @@ from screen.errors import InputError
 
 __all__ = ["check_levels", "check_partner", "row_problems", "sigma_problem", "inconsistent_rows", "quoted",
            "GAP_EXCESS_TOL_EV",
-           "GAP_DEFICIT_MAX_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV", "QUOTE_MAX", "SIGMA_MAX_EV"]
+           "GAP_DEFICIT_MAX_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV", "QUOTE_MAX", "SIGMA_MAX_EV", "HOMO_MAX_EV",
+           "FILM_LUMO_MAX_EV", "HARTREE_GAP_MAX_EV"]
 
 #: how much the optical gap may exceed LUMO − HOMO (CV and absorption onsets scatter by ~0.1–0.3 eV;
 #: common practice) [eV]
@@ -59,6 +62,17 @@ _SCALES = ("film", "gas")
 _ROLES = ("donor", "acceptor", "")
 #: levels deeper than this are taken as a unit slip (meV, kJ/mol) [eV]
 LEVEL_MIN_EV = -15.0
+#: a HOMO above this is no material's and is taken as a unit slip, most often hartree (−0.2 Eh for −5.44 eV):
+#: HOMO = −IP, and film HOMOs of organic semiconductors lie at about −4.5…−7 eV, gas-phase ionisation energies
+#: of organic molecules above 5 eV (from memory); −2 eV keeps a wide margin below the shallowest [eV]
+HOMO_MAX_EV = -2.0
+#: a film-scale LUMO above this is no organic semiconductor's and is taken as a unit slip (hartree): film LUMOs lie
+#: at about −2…−4.5 eV (from memory). On the gas scale a LUMO between −1 and 0 eV is real (electron affinities of
+#: 0–1 eV) and is only taken as hartree beside a HOMO that is [eV]
+FILM_LUMO_MAX_EV = -1.0
+#: an optical gap below this beside levels that look like hartree is taken as hartree too (0.05 Eh = 1.36 eV):
+#: the narrowest-gap organic absorbers have gaps of about 0.6–1 eV (common practice) [eV]
+HARTREE_GAP_MAX_EV = 0.3
 #: optical gaps above this are taken as a wavelength in nm [eV]
 GAP_MAX_INPUT_EV = 15.0
 #: largest accepted one-σ uncertainty of a level or gap (``*_sigma_ev``): measured values carry ~0.01–0.1 eV and
@@ -96,6 +110,58 @@ def quoted(value, limit: int = QUOTE_MAX) -> str:
     return f"{text[:limit]!r}… ({len(text)} characters)"
 
 
+def _hartree_hint(value: float, low: float, high: float) -> str:
+    """How to write ``value`` if it was given in hartree: when ``value`` × 1 Eh lies in (``low``, ``high``) eV,
+    where the level or gap it stands for lies ('' otherwise).
+
+    Examples
+    --------
+    >>> _hartree_hint(-0.2, LEVEL_MIN_EV, HOMO_MAX_EV)
+    '-0.2 looks like hartree: write -0.2 × 27.2114 = -5.44 eV (1 Eh = 27.2114 eV, CODATA)'
+    >>> _hartree_hint(-1.5, LEVEL_MIN_EV, HOMO_MAX_EV)
+    ''
+    """
+    from screen.constants import HARTREE_EV  # CODATA through scipy.constants; loaded only for this message
+
+    ev = value * HARTREE_EV
+    if not low < ev < high:
+        return ""
+    return (f"{_fmt(value)} looks like hartree: write {_fmt(value)} × {HARTREE_EV:.4f} = {ev:.2f} eV "
+            f"(1 Eh = {HARTREE_EV:.4f} eV, CODATA)")
+
+
+def _unit_slip_levels(homo: float, lumo: float, gap: float, film: bool) -> list:
+    """Levels no material has, between the vacuum level and :data:`HOMO_MAX_EV` (HOMO) or :data:`FILM_LUMO_MAX_EV`
+    (film LUMO): a unit slip, most often hartree (an API audit: HOMO −0.2, LUMO −0.14 and gap 0.05 passed every
+    check and were ranked); then a gap below :data:`HARTREE_GAP_MAX_EV` too. ``(column, value, message)`` triples.
+
+    Examples
+    --------
+    >>> [p[0] for p in _unit_slip_levels(-0.2, -0.14, 0.05, True)]
+    ['homo_ev', 'lumo_ev', 'gap_opt_ev']
+    >>> _unit_slip_levels(-5.8, -0.5, 2.9, False)  # a gas-scale LUMO of -0.5 eV is real (EA 0.5 eV)
+    []
+    >>> print(_unit_slip_levels(-5.4, -0.14, 1.5, True)[0][2])
+    a film LUMO of -0.14 eV is no organic semiconductor's (film LUMOs lie at about -2...-4.5 eV); -0.14 looks like hartree: write -0.14 × 27.2114 = -3.81 eV (1 Eh = 27.2114 eV, CODATA)
+    """
+    out = []
+    homo_slip = math.isfinite(homo) and HOMO_MAX_EV < homo <= 0
+    if homo_slip:
+        hint = _hartree_hint(homo, LEVEL_MIN_EV, HOMO_MAX_EV) or "check the units (eV) and the sign"
+        out.append(("homo_ev", homo, f"a HOMO of {_fmt(homo)} eV is no material's (HOMO = -IP: film HOMOs of organic "
+                                     f"semiconductors lie at about -4.5...-7 eV); {hint}"))
+    if math.isfinite(lumo) and HOMO_MAX_EV < lumo <= 0 and (homo_slip or (film and lumo > FILM_LUMO_MAX_EV)):
+        hint = _hartree_hint(lumo, LEVEL_MIN_EV, FILM_LUMO_MAX_EV) or "check the units (eV) and the sign"
+        said = "beside this HOMO" if homo_slip else "(film LUMOs lie at about -2...-4.5 eV)"
+        out.append(("lumo_ev", lumo, f"a {'film ' if film else ''}LUMO of {_fmt(lumo)} eV is no organic "
+                                     f"semiconductor's {said}; {hint}"))
+    if out and math.isfinite(gap) and 0 < gap < HARTREE_GAP_MAX_EV:
+        hint = _hartree_hint(gap, 0.0, GAP_MAX_INPUT_EV) or "check the units (eV)"
+        out.append(("gap_opt_ev", gap, f"an optical gap of {_fmt(gap)} eV is no organic absorber's (about 0.6 eV "
+                                       f"and up); {hint}"))
+    return out
+
+
 def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict | None = None,
                  deficit: bool = True) -> list:
     """Problems of one material's levels: ``(column, value, message)`` triples ([] if sane).
@@ -126,6 +192,8 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
         if math.isfinite(val) and val < LEVEL_MIN_EV:
             out.append((col, val, f"{val:g} eV is not a frontier level; levels are in eV (not meV or kJ/mol), "
                                   "e.g. -5.3"))
+    if not out:
+        out += _unit_slip_levels(homo, lumo, gap, film)
     if math.isfinite(homo) and math.isfinite(lumo) and not out and abs(homo - lumo) <= _ROUND_EV:
         out.append(("homo_ev", homo, f"HOMO and LUMO are equal ({_fmt(homo)}): that is a zero transport gap, which "
                                      "no organic semiconductor has, so one value was probably copied into both "
@@ -134,7 +202,7 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
     elif math.isfinite(homo) and math.isfinite(lumo) and not out and homo > lumo:
         out.append(("homo_ev", homo, f"HOMO ({_fmt(homo)}) is above LUMO ({_fmt(lumo)}): the two columns look "
                                      "swapped; write the deeper (more negative) level as HOMO"))
-    if math.isfinite(gap):
+    if math.isfinite(gap) and not any(col == "gap_opt_ev" for col, _, _ in out):
         if gap <= 0:
             out.append(("gap_opt_ev", gap, "the optical gap must be positive; write the absorption onset energy in "
                                            "eV, e.g. 1.6"))
@@ -222,19 +290,19 @@ def _text_problems(frame: pd.DataFrame, ids, computed) -> list:
         else:
             first[key] = i
     if "scale" in frame:
-        for i, value in enumerate(frame["scale"].fillna("").astype(str)):
+        for i, value in enumerate(frame["scale"].astype(object).fillna("").astype(str)):
             if value.strip().lower() not in _SCALES:
                 out.append((i, "scale", value, "allowed: film or gas (CV levels are film)"))
     if "acceptor_class" in frame:
         from screen.devicepars import ACCEPTOR_CLASSES_TEXT, acceptor_class_key
 
-        for i, value in enumerate(frame["acceptor_class"].fillna("").astype(str)):
+        for i, value in enumerate(frame["acceptor_class"].astype(object).fillna("").astype(str)):
             try:
                 acceptor_class_key(value)
             except InputError:
                 out.append((i, "acceptor_class", value, f"allowed: {ACCEPTOR_CLASSES_TEXT}"))
     if "role" in frame:
-        for i, value in enumerate(frame["role"].fillna("").astype(str)):
+        for i, value in enumerate(frame["role"].astype(object).fillna("").astype(str)):
             if computed[i]:  # a run's own row: a dye of a mixed batch, or a role the ranking flags (role_invalid)
                 continue
             role = value.strip().lower()
@@ -288,7 +356,7 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table", computed=Non
       line 3, column id = 'a': the same id as line 2; give every row its own id (it names the row in the ranking)
       line 3 (id 'a'), column homo_sigma_ev = 50: a σ of 50 eV is no calibration's (a run's own σ stays below 10 eV); 50 looks like millielectronvolts: write 0.05 eV
     """
-    ids = (frame["id"].fillna("").astype(str).to_numpy() if "id" in frame
+    ids = (frame["id"].astype(object).fillna("").astype(str).to_numpy() if "id" in frame
            else np.array([str(i) for i in range(len(frame))]))
     computed = (np.zeros(len(frame), dtype=bool) if computed is None
                 else np.broadcast_to(np.asarray(computed, dtype=bool), (len(frame),)))

@@ -95,10 +95,11 @@ def partner_matrix(rankings) -> pd.DataFrame:
     order: list[tuple] = []
     for partner, ranking in rankings:
         frame = ranking.copy()
-        frame["smiles"] = frame.get("smiles", pd.Series("", index=frame.index)).fillna("").astype(str)
+        frame["smiles"] = frame.get("smiles", pd.Series("", index=frame.index)).astype(object).fillna("").astype(str)
         frame["id"] = frame["id"].astype(str)
         idx = list(zip(frame["id"], frame["smiles"]))
-        for ident, name in zip(idx, frame.get("name", pd.Series("", index=frame.index)).fillna("").astype(str)):
+        given = frame.get("name", pd.Series("", index=frame.index)).astype(object).fillna("").astype(str)
+        for ident, name in zip(idx, given):
             if ident not in names:
                 names[ident] = name
                 order.append(ident)

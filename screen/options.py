@@ -3,7 +3,10 @@
 Each dataclass mirrors one section of
 ``screen/workflow/schemas/config.schema.yaml``; its field defaults are read
 from :func:`screen.schema.section_defaults`, so the schema stays the single
-source of every default (``tests/test_config.py`` checks that they agree).
+source of every default (``tests/test_config.py`` checks that they agree), and
+its values are held to the same section (:func:`screen.schema.check_options`:
+types, allowed values, bounds, NaN and infinity), so Python is refused what a
+config file and ``--set`` are refused.
 :class:`screen.config.Config` hands them out as ``cfg.structures``,
 ``cfg.electronic`` and ``cfg.execution``.
 """
@@ -13,7 +16,7 @@ from __future__ import annotations
 from dataclasses import dataclass, fields
 
 from screen.errors import ConfigError
-from screen.schema import section_defaults
+from screen.schema import check_options, section_defaults
 
 __all__ = ["StructureOptions", "ElectronicOptions", "ExecutionOptions", "EARLIER_ROUTE_VALUES", "IDLE_WHEN",
            "options_from_mapping", "route_structures"]
@@ -214,22 +217,10 @@ class StructureOptions:
     planar_tolerances_deg: tuple[float, ...] = tuple(_S["planar_tolerances_deg"])
 
     def __post_init__(self):
-        if self.geometry not in ("ff", "xtb"):
-            raise ConfigError(f"structures.geometry must be 'ff' or 'xtb', not {self.geometry!r}")
-        if self.cage_geometry not in ("ff", "xtb"):
-            raise ConfigError(f"structures.cage_geometry must be 'xtb' or 'ff', not {self.cage_geometry!r}")
-        if self.rigid_embedding not in RIGID_RULES:
-            raise ConfigError(f"structures.rigid_embedding must be one of {', '.join(RIGID_RULES)}, "
-                              f"not {self.rigid_embedding!r}")
-        if self.forcefield not in ("mmff", "uff"):
-            raise ConfigError(f"structures.forcefield must be 'mmff' or 'uff', not {self.forcefield!r}")
-        if not self.planar_tolerances_deg or not all(0.0 < float(t) <= 45.0 for t in self.planar_tolerances_deg):
-            raise ConfigError(f"structures.planar_tolerances_deg must be one or more widths in (0, 45] degrees, "
-                              f"not {self.planar_tolerances_deg!r}")
+        # the schema's section: geometry, cage_geometry, rigid_embedding (RIGID_RULES), forcefield, the widths of
+        # planar_tolerances_deg in (0, 45] degrees, rank_scf_accuracy in [1, 30] or null, every count and bound
+        check_options(self, "structures")
         object.__setattr__(self, "planar_tolerances_deg", tuple(float(t) for t in self.planar_tolerances_deg))
-        if self.rank_scf_accuracy is not None and not 1.0 <= float(self.rank_scf_accuracy) <= 30.0:
-            raise ConfigError(f"structures.rank_scf_accuracy must be between 1 and 30 (or null), "
-                              f"not {self.rank_scf_accuracy!r}")
 
     @classmethod
     def from_mapping(cls, mapping: dict | None) -> StructureOptions:
@@ -285,6 +276,7 @@ class ElectronicOptions:
     lone_pair_homo: str = _E["lone_pair_homo"]
 
     def __post_init__(self):
+        check_options(self, "electronic")  # engine, method, accuracy > 0, threads >= 1, film_epsilon > 1 ...
         if self.engine != "xtb":
             return
         # xtb-python offers no dielectric continuum, no implicit solvent here and no AO overlap (so no lone-pair
@@ -339,3 +331,6 @@ class ExecutionOptions:
 
     isolate: bool = _X["isolate"]
     molecule_timeout_s: float | None = _X["molecule_timeout_s"]
+
+    def __post_init__(self):
+        check_options(self, "execution")

@@ -566,7 +566,7 @@ def _from_levels(spec: str, slug: str, levels) -> Partner:
         raise PartnerError(f"partner {spec!r} names a row of the levels table, but no levels table was given")
     frame = levels if isinstance(levels, pd.DataFrame) else read_levels(levels)
     where = "levels table" if isinstance(levels, pd.DataFrame) else f"levels file {levels}"
-    ids = frame["id"].fillna("").astype(str)
+    ids = frame["id"].astype(object).fillna("").astype(str)
     rows = frame[ids.eq(ident)]
     if rows.empty:
         sample = ", ".join(quoted(i) for i in ids.head(8))

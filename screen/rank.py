@@ -74,8 +74,8 @@ from screen.rank_rows import numeric as _numeric
 from screen.rank_rows import ranked_mask as _ranked_mask
 from screen.rank_rows import split_ranked as _split_ranked
 from screen.rank_rows import text as _text
-from screen.sampling import MAX_N_SAMPLES, sample_pce
-from screen.schema import resolve, section_defaults
+from screen.sampling import sample_pce
+from screen.schema import check_options, check_section, resolve, section_defaults
 from screen.viability import acceptor_class_of, offset_clears, role_from_levels
 
 __all__ = [
@@ -122,7 +122,8 @@ class RankOptions:
     shortlist_size : int
         Passing rows written to ``shortlist.sdf``.
     n_samples : int
-        Monte-Carlo samples per candidate for σ propagation (2 to :data:`screen.sampling.MAX_N_SAMPLES`).
+        Monte-Carlo samples per candidate for σ propagation (10 to :data:`screen.sampling.MAX_N_SAMPLES`, the
+        schema's bounds).
     seed : int
         Seed of the sampler (same input → same numbers).
     gap_min_ev, gap_max_ev : float
@@ -136,7 +137,9 @@ class RankOptions:
     Raises
     ------
     ConfigError
-        A value outside the allowed set or range (names the ``rank.`` field).
+        A value of another type, outside the allowed set or range, NaN or infinite (names the ``rank.`` field;
+        the schema's ``rank`` section, :func:`screen.schema.check_options`), or ``gap_min_ev`` above
+        ``gap_max_ev``.
 
     Notes
     -----
@@ -162,16 +165,11 @@ class RankOptions:
     partner_sigma: bool = _DEFAULTS["partner_sigma"]
 
     def __post_init__(self):
-        if self.role not in ROLES + (None,):
-            raise ConfigError(f"rank.role must be 'donor', 'acceptor' or null, not {self.role!r}")
-        if self.sort_by not in ("pce_pct", "p_above_target"):
-            raise ConfigError(f"rank.sort_by must be 'pce_pct' or 'p_above_target', not {self.sort_by!r}")
-        if self.n_samples < 2:
-            raise ConfigError(f"rank.n_samples must be at least 2, not {self.n_samples}")
-        if self.n_samples > MAX_N_SAMPLES:
-            raise ConfigError(f"rank.n_samples = {self.n_samples} is above its maximum {MAX_N_SAMPLES:,} (one "
-                              "candidate's samples are held in memory at once); the default 2000 gives P(PCE > "
-                              "target) to about ±0.01")
+        # the schema's ``rank`` section, as a config file and --set: role, sort_by, 0 <= target_pce_pct <= 100,
+        # 10 <= n_samples <= MAX_N_SAMPLES (one candidate's samples are held in memory at once), an integer seed,
+        # a boolean partner_sigma, NaN and infinity refused (an API audit: target nan gave P(PCE > target) = 0
+        # for every row, n_samples=3 a P of 1.0 or 0.667, partner_sigma="no" counted as True)
+        check_options(self, "rank")
         if self.gap_min_ev > self.gap_max_ev:
             raise ConfigError(f"rank.gap_min_ev ({self.gap_min_ev}) is above rank.gap_max_ev ({self.gap_max_ev})")
 
@@ -188,6 +186,10 @@ class RankOptions:
         --------
         >>> RankOptions.from_mapping({"sort_by": "p_above_target"}).sort_by
         'p_above_target'
+        >>> RankOptions.from_mapping({"target_pce_pct": -5})
+        Traceback (most recent call last):
+        ...
+        screen.errors.ConfigError: RankOptions: field rank.target_pce_pct: -5 is less than the minimum of 0 (rank.target_pce_pct is in %)
         """
         mapping = dict(mapping or {})
         known = set(asdict(cls()))
@@ -251,7 +253,7 @@ def check_scales(levels: pd.DataFrame, partner: Partner) -> None:
     """
     if "scale" not in levels:
         raise ScaleMismatchError("the levels have no 'scale' column; every level must name its scale (film or gas)")
-    scales = levels["scale"].fillna("").astype(str).str.strip().str.lower()
+    scales = levels["scale"].astype(object).fillna("").astype(str).str.strip().str.lower()
     bad = scales[scales.ne(partner.scale)]
     if bad.empty:
         return
@@ -284,27 +286,33 @@ def partner_role(levels: pd.DataFrame, partner: Partner, options: RankOptions) -
     Raises
     ------
     PartnerError
-        The role cannot be inferred (no default role, candidates of both roles
-        or none).
+        A role other than donor, acceptor or empty (case and spaces ignored), or a role that cannot be inferred
+        (no default role, candidates of both roles or none).
     """
-    if partner.role in ROLES:
-        return partner.role, False
+    role = str(partner.role or "").strip().lower()
+    if role in ROLES:
+        return role, False
+    if role:  # a hand-built Partner(role="dye") was paired as an acceptor (an API audit); a file's role is checked
+        raise PartnerError(f"partner {partner.id!r} has role {partner.role!r}; a partner is a donor or an acceptor "
+                           "(a sensitiser dye is screened with `dascreen dyecell`): give role='donor', 'acceptor' "
+                           "or '' (the ranking then takes the complement of the candidates' role)")
     if options.role is not None:
         return complement(options.role), True
     if "role" in levels:
-        given = set(levels["role"].fillna("").astype(str).str.strip().str.lower()) & set(ROLES)
+        given = set(levels["role"].astype(object).fillna("").astype(str).str.strip().str.lower()) & set(ROLES)
         if len(given) == 1:
             return complement(given.pop()), True
     if partner.kind == "smiles":
         raise PartnerError(f"partner {partner.id!r} is computed from its SMILES and has no role of its own, and the "
                            "candidates do not imply one (no role column, or both roles in it); set the candidates' "
-                           "role with --role donor|acceptor (config rank.role; the partner takes the other role) or "
+                           "role (dascreen's --role donor|acceptor, rank.role in a configuration; the partner takes the "
+                           "other role) or "
                            "fill the role column of the levels file. A smiles: partner cannot carry a role of its "
                            "own; for a fixed role, copy its computed levels (OUT/work/partner-<key>/levels.csv, made "
                            "by a ranking with --role) to a one-row partner file with a role column")
     raise PartnerError(f"partner {partner.id!r} has no role and the candidates do not imply one; set the "
-                       "candidates' role with --role donor|acceptor (config rank.role) or give the partner a "
-                       "role column")
+                       "candidates' role (dascreen's --role donor|acceptor, rank.role in a configuration) or give the "
+                       "partner a role column")
 
 
 # --------------------------------------------------------------------------- reading the levels
@@ -572,7 +580,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "same_structure": same,
         "same_computed_structure": _same_computed(lv, roles) & ~same,
         "far_from_reference": _far_from_reference(lv),
-        "known_family_bias": _known_bias(lv) == "dpp",
+        "known_family_bias": _known_bias(lv) != "",
         "chain_fit_poor": _text(lv, "chain_fit_quality") == "poor",
         "lone_pair_homo": _lone_pair_homo(lv),
         "role_from_levels": roles.role_from_levels,
@@ -753,6 +761,44 @@ def check_input_levels(levels: pd.DataFrame) -> None:
     check_levels(levels[ranked], str(levels.attrs.get("source", "levels table")), _computed_rows(levels)[ranked])
 
 
+#: config fields of :class:`screen.device.DeviceModel` (the schema's ``device`` section)
+_DEVICE_FIELDS = tuple(section_defaults("device"))
+
+
+def _check_arguments(levels_df, partner, model: DeviceModel) -> None:
+    """Refuse what a Python caller can pass and the command line cannot (an API audit): a levels table that is no
+    DataFrame or lacks a column a levels file must have (without ``id`` every row was ranked as id '', without
+    ``gap_opt_ev`` every row came out ``input_missing``), a partner that is no :class:`Partner` (a name: resolve
+    it first) and a device model outside the schema's ``device`` section (``loss_v=300``: millivolts).
+
+    Examples
+    --------
+    >>> _check_arguments(pd.DataFrame({"id": ["a"], "homo_ev": [-5.4], "lumo_ev": [-3.6], "scale": ["film"]}),
+    ...                  None, DeviceModel())
+    Traceback (most recent call last):
+    ...
+    screen.errors.InputError: levels table: a levels table needs columns ['id', 'homo_ev', 'lumo_ev', 'gap_opt_ev', 'scale']; missing ['gap_opt_ev']; found ['id', 'homo_ev', 'lumo_ev', 'scale']
+    """
+    from screen.columns import LEVELS_MIN_COLUMNS
+    from screen.errors import InputError
+
+    source = "levels table"
+    if not isinstance(levels_df, pd.DataFrame):
+        raise InputError(f"{source}: expected a pandas DataFrame (e.g. screen.levels.read_levels(path)), not "
+                         f"{type(levels_df).__name__}")
+    source = str(levels_df.attrs.get("source", source))
+    # without a scale column check_scales says so in its own words (ScaleMismatchError)
+    missing = [c for c in LEVELS_MIN_COLUMNS if c not in levels_df.columns and c != "scale"]
+    if missing:
+        raise InputError(f"{source}: a levels table needs columns {LEVELS_MIN_COLUMNS}; missing {missing}; found "
+                         f"{[str(c) for c in levels_df.columns]}")
+    if not isinstance(partner, Partner):
+        raise PartnerError(f"partner must be a screen.partners.Partner, not {type(partner).__name__} "
+                           f"{partner!r:.60}; resolve a name, file or smiles: spec first, e.g. "
+                           "screen.partners.resolve_partner('y6')")
+    check_section("device", {k: getattr(model, k) for k in _DEVICE_FIELDS}, "DeviceModel")
+
+
 def _viable(masks: dict[str, np.ndarray]) -> np.ndarray:
     """True where no flag of severity ``not_viable`` is raised."""
     bad = np.zeros(next(iter(masks.values())).shape, dtype=bool)
@@ -863,7 +909,10 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     partner : Partner
         The partner material; its scale must equal every ranked row's scale.
     model : DeviceModel, optional
-        Device model (default: Scharber parameters).
+        Device model (default ``DeviceModel()``: the fitted energy-loss model with its shipped parameters,
+        ``models/device/fitted.json``, and ``absorber='both'``; pass ``DeviceModel(model="scharber",
+        absorber="donor")`` for the published Scharber rule). Its config fields are held to the schema's
+        ``device`` section (a ``loss_v`` of 300 is millivolts).
     options : RankOptions, optional
         Filters, sort key, sampling settings (default :class:`RankOptions`).
 
@@ -882,9 +931,14 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     Raises
     ------
     ScaleMismatchError
-        A ranked row is on another scale than the partner.
+        A ranked row is on another scale than the partner, or the table has no ``scale`` column.
     PartnerError
-        The partner's role is unknown and cannot be inferred.
+        ``partner`` is not a :class:`Partner`, its role is none of donor, acceptor or empty, or it is unknown
+        and cannot be inferred.
+    ConfigError
+        ``model`` holds a value the schema's ``device`` section does not allow.
+    InputError
+        ``levels_df`` is not a DataFrame or lacks one of ``id, homo_ev, lumo_ev, gap_opt_ev`` (as a levels file).
     InputError
         A ranked row the ranking cannot use (:func:`check_input_levels`: a repeated id, a σ below 0, infinite or
         in meV, an unknown acceptor class, and in a user's rows impossible levels; a :class:`ValueError`).
@@ -930,6 +984,7 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     """
     model = DeviceModel() if model is None else model
     options = RankOptions() if options is None else options
+    _check_arguments(levels_df, partner, model)
     lv, not_ranked = _split_ranked(levels_df)
     check_input_levels(levels_df)  # impossible levels, ids, σ, classes: refused before any work (exit 2)
     p_role, p_role_assumed = partner_role(lv, partner, options)

@@ -11,6 +11,9 @@ object is :class:`screen.config.Config`, and the options dataclasses
 from __future__ import annotations
 
 import copy
+import dataclasses
+import re
+from collections.abc import Mapping
 from functools import lru_cache
 from pathlib import Path
 
@@ -19,7 +22,8 @@ import yaml
 
 from screen.errors import ConfigError
 
-__all__ = ["SCHEMA_PATH", "ConfigError", "resolve", "defaults", "section_defaults", "non_finite", "non_finite_text"]
+__all__ = ["SCHEMA_PATH", "ConfigError", "resolve", "defaults", "section_defaults", "non_finite", "non_finite_text",
+           "check_section", "check_options"]
 
 SCHEMA_PATH = Path(__file__).parent / "workflow" / "schemas" / "config.schema.yaml"
 
@@ -62,9 +66,29 @@ def _like_defaults(node: dict, schema: dict) -> None:
             _like_defaults(node[name], sub)
 
 
-def _describe(error: jsonschema.ValidationError) -> str:
-    field = ".".join(str(p) for p in error.absolute_path) or "(top level)"
+#: units of a field's description (its first ``[...]``) that a bound error names, so that a value in mV or meV
+#: reads as the slip it is ("300 is greater than the maximum of 2 (device.loss_v is in V)")
+_BOUND_UNITS = ("V", "eV", "%", "K", "s", "eV/Å", "kcal/mol", "Å", "degrees")
+_BOUNDS = ("minimum", "maximum", "exclusiveMinimum", "exclusiveMaximum")
+
+
+def _unit(schema: dict) -> str:
+    """The physical unit of a field (the first ``[...]`` of its description, when one of :data:`_BOUND_UNITS`)."""
+    found = re.search(r"\[([^\]]+)\]", str(schema.get("description", "")))
+    return found.group(1) if found and found.group(1) in _BOUND_UNITS else ""
+
+
+def _describe(error: jsonschema.ValidationError, section: str = "") -> str:
+    field = ".".join([section] * bool(section) + [str(p) for p in error.absolute_path]) or "(top level)"
     schema = error.schema if isinstance(error.schema, dict) else {}
+    if error.validator in _BOUNDS and error.absolute_path:
+        # the bound's own schema node has no description: the field's node (the parent of the bound) has it
+        node = _schema()
+        for part in ([section] if section else []) + [str(p) for p in error.absolute_path]:
+            node = node.get("properties", {}).get(part, {})
+        unit = _unit(node)
+        if unit:
+            return f"field {field}: {error.message} ({field} is in {unit})"
     allowed = ""
     if "enum" in schema and len(schema["enum"]) == 1 and schema.get("description"):
         allowed = f"; {schema['description']}"  # a fixed setting says why it is fixed
@@ -159,6 +183,96 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     if errors:  # a default that breaks the schema is a bug here, still say it clearly
         raise ConfigError(f"{source} (after defaults): " + "; ".join(_describe(e) for e in errors))
     return cfg
+
+
+def _plain(value):
+    """A value as the schema and JSON know it: numpy scalars as Python numbers, tuples as lists."""
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if type(value).__module__ == "numpy" and hasattr(value, "item"):
+        return value.item()
+    return value
+
+
+@lru_cache(maxsize=None)
+def _section_validator(section: str) -> jsonschema.Draft202012Validator:
+    return jsonschema.Draft202012Validator(_schema()["properties"][section])
+
+
+def check_section(section: str, values: Mapping, source: str) -> dict:
+    """Hold the values of one config section to the schema, as :func:`resolve` holds a whole configuration.
+
+    The checks of :func:`resolve` for one section, with the same messages: types, allowed values, bounds,
+    unknown keys (the section's ``additionalProperties``) and the non-finite rule (:func:`non_finite`). The
+    values given are checked, nothing is filled in; the options dataclasses (:func:`check_options`), the
+    ranking's device model and a dye-cell ranking's settings use it, so that Python is refused what the
+    command line and a config file are refused (an API audit: ``RankOptions(target_pce_pct=nan)`` gave
+    P(PCE > target) = 0 for every row, ``n_samples=3`` a P of 1.0 or 0.667).
+
+    Parameters
+    ----------
+    section : str
+        A section of the schema (``rank``, ``device``, ``dyecell`` ...).
+    values : mapping
+        Some or all of its fields.
+    source : str
+        Who gave them, for the message (a class or function name).
+
+    Returns
+    -------
+    dict
+        The values, numpy scalars as Python numbers and every number written as its schema default is (10.0 → 10
+        where the default is an integer, 6 → 6.0 where it is a float), tuples as lists.
+
+    Raises
+    ------
+    ConfigError
+        Naming ``source``, the field and the allowed values.
+
+    Examples
+    --------
+    >>> check_section("rank", {"n_samples": 500.0, "target_pce_pct": 9}, "RankOptions")
+    {'n_samples': 500, 'target_pce_pct': 9.0}
+    >>> check_section("rank", {"n_samples": 3}, "RankOptions")
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: RankOptions: field rank.n_samples: 3 is less than the minimum of 10
+    >>> check_section("device", {"loss_v": 300}, "DeviceModel")
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: DeviceModel: field device.loss_v: 300 is greater than the maximum of 2 (device.loss_v is in V)
+    >>> check_section("rank", {"target_pce_pct": float("nan")}, "RankOptions")
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: RankOptions: field rank.target_pce_pct: nan is not a finite number; give a number (NaN and infinity are not allowed)
+    """
+    data = {key: _plain(value) for key, value in dict(values).items()}
+    errors = sorted(_section_validator(section).iter_errors(data), key=lambda e: [str(p) for p in e.absolute_path])
+    if errors:
+        raise ConfigError(f"{source}: " + "; ".join(_describe(e, section) for e in errors))
+    bad = non_finite(data, section)
+    if bad:
+        raise ConfigError(f"{source}: " + "; ".join(f"field {field}: {non_finite_text(value)}" for field, value in bad))
+    _like_defaults(data, _schema()["properties"][section])
+    return data
+
+
+def check_options(options, section: str) -> None:
+    """Hold an options dataclass to its schema section (:func:`check_section`); call it from ``__post_init__``.
+
+    Every field of ``options`` must be a field of ``section``. A number is stored as the schema writes it
+    (``n_samples=500.0`` → 500; a numpy scalar → a Python number), a tuple as a list (the caller turns it back).
+
+    Raises
+    ------
+    ConfigError
+        Naming the class, the field and the allowed values.
+    """
+    values = {f.name: getattr(options, f.name) for f in dataclasses.fields(options)}
+    checked = check_section(section, values, type(options).__name__)
+    for name, value in checked.items():
+        if value is not values[name]:
+            object.__setattr__(options, name, value)
 
 
 @lru_cache(maxsize=1)

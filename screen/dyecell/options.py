@@ -16,8 +16,6 @@ from __future__ import annotations
 import dataclasses
 from dataclasses import dataclass
 
-from screen.errors import ConfigError
-
 __all__ = ["option_defaults", "RankOptions"]
 
 def option_defaults() -> dict:
@@ -39,7 +37,24 @@ _D = option_defaults()
 
 @dataclass(frozen=True)
 class RankOptions:
-    """Ranking settings of the dye-cell mode (sampling, target, shortlist, sort key)."""
+    """Ranking settings of the dye-cell mode (sampling, target, shortlist, sort key).
+
+    Every field is held to the schema's ``dyecell`` section, as a config file and ``--set`` are
+    (:func:`screen.schema.check_options`: 0 ≤ ``target_pce_pct`` ≤ 100, 10 ≤ ``n_samples`` ≤ 1e6, an integer
+    ``seed``, NaN and infinity refused; an API audit: ``n_samples=3`` and ``target_pce_pct=-5`` were ranked).
+
+    Raises
+    ------
+    ConfigError
+        Naming the ``dyecell.`` field and the allowed values.
+
+    Examples
+    --------
+    >>> RankOptions(n_samples=3)
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: RankOptions: field dyecell.n_samples: 3 is less than the minimum of 10
+    """
 
     target_pce_pct: float = _D["target_pce_pct"]
     n_samples: int = _D["n_samples"]
@@ -48,16 +63,13 @@ class RankOptions:
     sort_by: str = _D["sort_by"]
 
     def __post_init__(self):
-        object.__setattr__(self, "target_pce_pct", float(self.target_pce_pct))
-        if self.sort_by not in ("pce_pct", "p_above_target"):
-            raise ConfigError(f"dyecell.sort_by = {self.sort_by!r}; allowed: pce_pct, p_above_target")
-        if int(self.n_samples) < 2:
-            raise ConfigError(f"dyecell.n_samples = {self.n_samples!r}; allowed: an integer >= 2")
-        if int(self.shortlist_size) < 1:
-            raise ConfigError(f"dyecell.shortlist_size = {self.shortlist_size!r}; allowed: an integer >= 1")
+        from screen.schema import check_options
+
+        check_options(self, "dyecell")  # target 6 → 6.0, as the schema's default is written
 
     @classmethod
     def from_mapping(cls, section: dict | None) -> RankOptions:
-        """From a ``dyecell`` config section (other keys ignored)."""
+        """From a ``dyecell`` config section (the model's keys ignored: :class:`screen.dyecell.model.DyeCellModel`
+        takes them; :func:`screen.dyecell.stage.run_dyecell` refuses a key the section does not have)."""
         names = {f.name for f in dataclasses.fields(cls)}
         return cls(**{k: v for k, v in (section or {}).items() if k in names})

@@ -42,6 +42,7 @@ reference dyes: a dye with a metal outside them is not ranked (status
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import sys
 
@@ -50,7 +51,18 @@ import pandas as pd
 
 from screen.dyecell.anchors import find_anchors
 from screen.dyecell.calibrate import apply_models, elements_of
-from screen.dyecell.checks import _line, anchor_column, check_dye_file, merge_reference_alias, unreadable_smiles
+from screen.dyecell.checks import (
+    E00_RANGE_EV,
+    E_OX_RANGE_V_NHE,
+    SIGMA_MAX,
+    _line,
+    anchor_column,
+    check_dye_file,
+    merge_reference_alias,
+    potential_problem,
+    threshold_problem,
+    unreadable_smiles,
+)
 from screen.dyecell.flags import INFO_FLAGS, join_flags, viability_uncertain
 from screen.dyecell.library import Material
 from screen.dyecell.model import DyeCellModel, evaluate, sample_pce
@@ -58,7 +70,9 @@ from screen.dyecell.options import RankOptions
 from screen.dyecell.scales import ELECTROCHEMICAL, conversion_hint, electrodes, reference_entry, require_scale
 from screen.errors import InputError, ScaleMismatchError
 from screen.io import separator_problem
+from screen.levels_check import GAP_MAX_INPUT_EV
 from screen.prepare.checks import NONMETALS
+from screen.schema import check_section
 from screen.spectrum import gap_to_wavelength_nm
 
 __all__ = ["DYE_COLUMNS", "RANKING_COLUMNS", "EXTRA_COLUMNS", "NONMETALS", "NOT_A_DYE", "dye_table",
@@ -80,6 +94,10 @@ EXTRA_COLUMNS = ["name", "e_ox_sigma_v", "e00_sigma_ev", "edge_nm", "uncalibrate
 NOT_A_DYE = ("a polymer repeat unit is not a sensitiser dye; dye mode takes molecules (give the dye itself, "
              "without attachment points *)")
 _ROUND = 4
+#: ``source`` of a dye-table row calibrated from a run's raw xTB values (:func:`dye_table`): a molecule outside
+#: the calibration may get values outside a typed file's plausible ranges, which the model then marks not viable;
+#: every other row is held to the dye file's checks (:func:`_check_inputs`)
+CALIBRATED_SOURCE = "calibrated from xTB (dye models)"
 
 
 def _text_col(frame: pd.DataFrame, col: str) -> pd.Series:
@@ -151,7 +169,7 @@ def dye_table(levels: pd.DataFrame, models: dict[str, dict]) -> pd.DataFrame:
         "e00_ev": np.where(ok, cal["e00_ev"], np.nan), "e00_sigma_ev": np.where(ok, cal["e00_sigma_ev"], np.nan),
         "scale": np.where(ok, cal["scale"], ""), "anchors": anchors, "anchored": anchored, "anchor_known": known,
         "uncalibrated_elements": uncal, "outside_calibration": cal["outside_calibration"].to_numpy(bool) & ok,
-        "source": "calibrated from xTB (dye models)", "e_ox_reference": "", "e_ox_offset_v": np.nan,
+        "source": CALIBRATED_SOURCE, "e_ox_reference": "", "e_ox_offset_v": np.nan,
     })
     return out[DYE_COLUMNS]
 
@@ -344,6 +362,70 @@ def _flag_masks(d: pd.DataFrame, dev: dict, known: np.ndarray, mc: dict) -> dict
     return masks
 
 
+def _check_inputs(dyes: pd.DataFrame, ranked: np.ndarray, oxide: Material, mediator: Material,
+                  model: DyeCellModel) -> None:
+    """Hold what :func:`rank_dyes` is given from Python to the checks of the files it would come from (an API
+    audit: ``e_ox_v_nhe`` = 1050, millivolts, gave "E(S⁺/S*) = +1047.90 V"; an oxide at −500 "498.95 eV").
+
+    - the ranked rows that were not calibrated from a run (``source`` other than :data:`CALIBRATED_SOURCE`): the
+      dye file's ranges (:func:`screen.dyecell.checks.check_dye_file`, which names the row and the fix; it runs
+      only when a vectorised test of the same ranges finds a row outside them, so re-ranking stays numpy-fast),
+      except an E₀₋₀ between the file's 4 eV and :data:`screen.levels_check.GAP_MAX_INPUT_EV` (above it: a
+      wavelength in nm), which the model marks not viable as a transparent molecule;
+    - the oxide and the mediator: their roles, an oxide type ``n``, ``p`` or '' (taken as ``n``), the
+      potential range of an oxide or mediator file (:func:`screen.dyecell.checks.potential_problem`) and a
+      mediator's own regeneration threshold (:func:`screen.dyecell.checks.threshold_problem`);
+    - the model: the schema's ``dyecell`` section (a ``voc_loss_v`` of 200 is millivolts).
+
+    Examples
+    --------
+    >>> from screen.dyecell.library import resolve_mediator
+    >>> ox = Material("mine", "mine", "oxide", -500.0, "n", kind="file")
+    >>> _check_inputs(pd.DataFrame(), np.zeros(0, bool), ox, resolve_mediator("co-bpy3"), DyeCellModel())
+    Traceback (most recent call last):
+    ...
+    screen.errors.InputError: oxide 'mine', potential_v_nhe = -500.0: band edges of oxides and redox potentials of mediators lie roughly in -1.5...+2 V vs NHE; -500 looks like millivolts: write -0.5 V
+    """
+    for material, role in ((oxide, "oxide"), (mediator, "mediator")):
+        if not isinstance(material, Material) or material.role != role:
+            what = (f"a Material of role {material.role!r} ({material.id!r})" if isinstance(material, Material)
+                    else type(material).__name__)
+            raise InputError(f"rank_dyes: the {role} is {what}; pass screen.dyecell.library.resolve_{role}(...) "
+                             f"(library ids: `dascreen dyecell --list`) or a Material with role {role!r}")
+        try:
+            value = float(material.potential_v_nhe)
+        except (TypeError, ValueError):
+            value = math.nan
+        problem = (potential_problem(value, "potential_v_nhe") if math.isfinite(value)
+                   else "not a finite number; give the potential in V vs NHE, e.g. -0.5")
+        if problem:
+            raise InputError(f"{role} {material.id!r}, potential_v_nhe = {material.potential_v_nhe!r}: {problem}")
+    if oxide.type not in ("n", "p", ""):  # '' is n, as an oxide file without a type; the model read "P" as n
+        raise InputError(f"oxide {oxide.id!r}: type = {oxide.type!r}; allowed: 'n' (electrons injected into the "
+                         "conduction band, TiO2), 'p' (holes into the valence band, NiO) or '' (taken as n)")
+    own = math.nan if mediator.min_drive_reg_ev is None else float(mediator.min_drive_reg_ev)
+    problem = threshold_problem(own) if math.isfinite(own) else None
+    if problem:
+        raise InputError(f"mediator {mediator.id!r}, min_drive_reg_ev = {own:g}: {problem}")
+    check_section("dyecell", {f.name: getattr(model, f.name) for f in dataclasses.fields(model)}, "DyeCellModel")
+    typed = ranked & _text_col(dyes, "source").str.strip().ne(CALIBRATED_SOURCE).to_numpy()
+    if not typed.any():
+        return
+    e_ox, e00 = _num_col(dyes, "e_ox_v_nhe"), _num_col(dyes, "e00_ev")
+    with np.errstate(invalid="ignore"):
+        out = (e_ox < E_OX_RANGE_V_NHE[0]) | (e_ox > E_OX_RANGE_V_NHE[1]) | np.isinf(e_ox)
+        # E00 above the file's 4 eV but below a wavelength in nm is kept: a transparent molecule the model marks
+        # not viable ("absorbs no sunlight"), as a calibration gives for acetic acid (4.91 eV)
+        out |= (e00 < E00_RANGE_EV[0]) | (e00 > GAP_MAX_INPUT_EV) | np.isinf(e00)
+        for col in ("e_ox_sigma_v", "e00_sigma_ev"):
+            sig = _num_col(dyes, col)
+            out |= (sig < 0) | (sig > SIGMA_MAX) | np.isinf(sig)
+    bad = typed & out
+    if bad.any():
+        columns = [c for c in ("id", "e_ox_v_nhe", "e00_ev", "e_ox_sigma_v", "e00_sigma_ev") if c in dyes]
+        check_dye_file(dyes.loc[bad, columns], "dye table")
+
+
 def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: DyeCellModel | None = None,
               options: RankOptions | None = None) -> pd.DataFrame:
     """Rank the ``ok`` dyes of a dye table for one oxide and one mediator (vectorised).
@@ -368,6 +450,12 @@ def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: Dy
     ------
     ScaleMismatchError
         A ranked row is not on the electrochemical scale.
+    InputError
+        A ranked row not calibrated from a run with a value a dye file may not hold (E(S⁺/S) in mV, E₀₋₀ in nm,
+        a σ below 0 …), an oxide or mediator of the wrong role, an implausible potential (mV, vacuum scale) or
+        threshold, or an oxide type other than ``n``, ``p`` and '' (:func:`_check_inputs`).
+    ConfigError
+        A model value outside the schema's ``dyecell`` section.
 
     Examples
     --------
@@ -382,6 +470,7 @@ def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: Dy
     options = options or RankOptions()
     st = _text_col(dyes, "status").str.strip().str.lower()
     ranked = st.eq("ok").to_numpy()
+    _check_inputs(dyes, ranked, oxide, mediator, model)
     not_ranked = {str(k): int(v) for k, v in st[~ranked].value_counts().items()}
     d = dyes[ranked].reset_index(drop=True)
     require_scale(_text_col(d, "scale"), "dye table (column scale)")

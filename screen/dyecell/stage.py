@@ -56,6 +56,7 @@ from screen.errors import ConfigError, InputError
 from screen.io import read_json, write_csv, write_json
 from screen.partners import file_tag
 from screen.provenance import change_notice, library_versions, sha256_file
+from screen.schema import check_section
 
 __all__ = ["read_input", "build_dye_table", "sign_convention", "EXCITED_COLUMN_MEANING", "write_shortlist",
            "run_dyecell", "ranking_folder", "raw_levels",
@@ -552,7 +553,9 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
         Library ids or one-row CSV files (default: ``settings`` or the
         ``dyecell`` defaults).
     settings : dict, optional
-        The ``dyecell`` config section (model parameters and ranking options).
+        The ``dyecell`` config section (model parameters and ranking options); missing keys take the defaults,
+        an unknown key or a value the schema does not allow is refused (:class:`screen.errors.ConfigError`
+        naming the field and the allowed ones).
     models_folder, models_root : path-like, optional
         Dye models (default ``models/dyecell/<protocol-id>``).
     report : bool
@@ -573,6 +576,8 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
     before its content changed, is replaced with a notice on stderr.
     """
     section = {**option_defaults(), **(settings or {})}
+    # the schema's dyecell section, as the command's config: a misspelt key (n_sample) was ignored without a word
+    check_section("dyecell", section, "run_dyecell settings")
     ox = resolve_material("oxide", oxide or section["oxide"])
     med = resolve_material("mediator", mediator or section["mediator"])
     if ox.type_assumed:  # an oxide file without a type: said once per ranking, and in every reason naming the edge

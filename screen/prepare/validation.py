@@ -20,6 +20,7 @@ import pandas as pd
 
 from screen.chem import structure_key
 from screen.io import cell_text as _text
+from screen.isolation import MainGuardMissing
 from screen.prepare.checks import REASON_CODES, _check_structure, _Checked
 from screen.prepare.checks import snippet as _snippet
 from screen.prepare.options import PrepareOptions
@@ -217,6 +218,8 @@ def _check_row(
                 f"id {_snippet(ident)} is already used by {first_place_of_id[ident][0]}; ids must be unique, so "
                 f"this row{this} is not screened (the first one keeps the id in levels.csv); give it another id"
             )
+    except MainGuardMissing:  # a script without its main guard: the whole call stops with that one message
+        raise
     except Exception as exc:  # the batch goes on whatever happens to one row
         reason = "internal_error"
         error = f"unexpected {type(exc).__name__} while checking this row: {exc}"
