@@ -23,7 +23,7 @@ test-all: $(BIN)/dascreen   ## also the slow tests (today: two dyes end to end t
 	$(BIN)/python -m pytest -m ''
 
 lint: $(BIN)/dascreen
-	$(BIN)/snakemake --lint
+	$(BIN)/python -m pytest -q -p no:cacheprovider tests/test_workflow_direct.py -k lint
 
 bench: $(BIN)/dascreen
 	$(BIN)/python benchmarks/rerank.py

@@ -56,7 +56,7 @@ class FolderInUse(ConfigError):
     @classmethod
     def of(cls, out) -> FolderInUse:
         """The refusal for run folder ``out``."""
-        return cls(f"another dascreen run is using {out}; wait for it to finish (`dascreen status --out {out}`) "
+        return cls(f"another run (dascreen or snakemake) is using {out}; wait for it to finish (`dascreen status --out {out}`) "
                    "or choose another --out")
 
 

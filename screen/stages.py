@@ -16,9 +16,17 @@ import sys
 from dataclasses import replace
 
 from screen.config import Config
+from screen.errors import DascreenError, exit_code
 from screen.provenance import provenance
 
-__all__ = ["main"]
+__all__ = ["main", "EXECUTION_ENV", "EXIT_STRICT"]
+
+#: environment variable with the ``execution`` section (JSON) the workflow hands its jobs
+#: (``rules/common.smk``): it changes no number, so it is no param of a rule (a change would re-run the jobs); a
+#: job's own ``--config`` section ``execution`` wins
+EXECUTION_ENV = "DASCREEN_EXECUTION"
+#: exit code of the ``strict`` job when a row was rejected or failed (that of ``dascreen run --strict``)
+EXIT_STRICT = 3
 
 
 def _prepare(args, cfg):
@@ -156,8 +164,10 @@ def _levels(args, cfg):
         write_csv(sidecar, side_path)
     elif side_path.is_file():
         side_path.unlink()
-    meta = {**provenance(cfg), "counts": summarise(levels), "input": args.input or cfg["candidates"],
-            "scale": cfg["levels"]["scale"], "models": args.models or None, "calibration_models": calibration,
+    # absolute paths (a direct snakemake run gives them relative to its working directory)
+    meta = {**provenance(cfg), "counts": summarise(levels), "input": os.path.abspath(args.input or cfg["candidates"]),
+            "scale": cfg["levels"]["scale"], "models": os.path.abspath(args.models) if args.models else None,
+            "calibration_models": calibration,
             "polymer": cfg["polymer"],
             "oligomers": str(side_path) if len(sidecar) else None}
     write_json(meta, f"{args.out}.meta.json" if not args.meta else args.meta)
@@ -211,6 +221,27 @@ def _rank(args, cfg):
 
     path = run_rank(args.levels, args.partner, args.out, cfg, partner_levels=args.partner_levels or None)
     print(f"ranking -> {path}")
+
+
+def _strict(args, cfg):
+    """``strict: true`` of a direct snakemake run: fail when a row of the levels file was rejected or failed."""
+    import pandas as pd
+
+    from screen.levels import summarise
+
+    counts = summarise(pd.read_csv(args.levels, dtype=str, keep_default_na=False))
+    line = (f"{counts['rows']} rows: {counts['ok']} ok, {counts['rejected']} rejected, {counts['failed']} failed "
+            f"({args.levels})")
+    print(f"strict: {line}")
+    if counts["rejected"] or counts["failed"]:
+        print(f"dascreen: error: strict: {line}; their status and error columns say why; levels.csv and the "
+              "ranking are written; set strict: false to accept them", file=sys.stderr)
+        return EXIT_STRICT
+    from screen.io import atomic_path
+
+    with atomic_path(args.out) as tmp:
+        tmp.write_text(line + "\n", encoding="utf-8")
+    return 0
 
 
 def _partner_input(args, cfg):
@@ -270,22 +301,59 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--partner", required=True)
     p.add_argument("--out", required=True, help="output folder; the ranking goes to OUT/rankings/<slug>/")
     p.add_argument("--partner-levels", default="", help="levels file of a smiles: partner's batch")
+    p = sub.add_parser("strict", help="exit code 3 when a row of the levels file was rejected or failed")
+    p.add_argument("--levels", required=True)
+    p.add_argument("--out", required=True, help="one line with the counts, written when every row is ok")
     p = sub.add_parser("partner-input")
     p.add_argument("--partner", required=True, help="smiles:<SMILES>")
     p.add_argument("--out", required=True, help="one-row candidate CSV of the partner's batch")
     args = parser.parse_args(argv)
 
-    cfg = Config.from_json(args.config, "workflow configuration")
-    os.environ["OMP_NUM_THREADS"] = str(cfg.electronic.threads)
+    try:
+        cfg = _job_config(args.config)
+    except DascreenError as exc:
+        print(f"dascreen: error: {exc}", file=sys.stderr)
+        return exit_code(exc)
+    # the thread count the rule set (OMP_NUM_THREADS={threads} of the compute rule: electronic.threads, or a
+    # profile's set-threads) is kept; electronic.threads only when nothing set it (a job started by hand)
+    os.environ.setdefault("OMP_NUM_THREADS", str(cfg.electronic.threads))
     handler = {"prepare": _prepare, "structures": _structures, "electronic": _electronic, "compute": _compute,
                "levels": _levels, "reference-input": _reference_input, "calibrate": _calibrate, "rank": _rank,
-               "partner-input": _partner_input}
+               "partner-input": _partner_input, "strict": _strict}
     try:
-        handler[args.stage](args, cfg)
+        return handler[args.stage](args, cfg) or 0
     except CalibrationChanged as exc:  # one message in the job's log, no traceback (the dascreen command repeats it)
         print(f"dascreen: error: {exc}", file=sys.stderr)
         return 2
-    return 0
+    except DascreenError as exc:  # a partner or scale refused, a bad input: one line, no traceback
+        print(f"dascreen: error: {exc}", file=sys.stderr)
+        return exit_code(exc)
+
+
+def _job_config(text: str) -> Config:
+    """The job's configuration: its ``--config`` sections, and ``execution`` from :data:`EXECUTION_ENV` when they
+    have none.
+
+    Examples
+    --------
+    >>> import os
+    >>> os.environ[EXECUTION_ENV] = '{"isolate": false}'
+    >>> _job_config('{"structures": {}}').execution.isolate, _job_config('{"execution": {}}').execution.isolate
+    (False, True)
+    >>> del os.environ[EXECUTION_ENV]
+    """
+    cfg = Config.from_json(text, "workflow configuration")
+    given = os.environ.get(EXECUTION_ENV, "").strip()
+    if given and "execution" not in json.loads(text):
+        try:
+            execution = json.loads(given)
+        except ValueError:
+            from screen.errors import ConfigError
+
+            raise ConfigError(f"the environment variable {EXECUTION_ENV} is not the JSON the workflow writes: "
+                              f"{given[:80]!r}; unset it") from None
+        cfg = cfg.with_overrides({"execution": execution}, f"{EXECUTION_ENV} and workflow configuration")
+    return cfg
 
 
 if __name__ == "__main__":

@@ -478,9 +478,9 @@ def test_a_folder_in_use_is_not_called_a_configuration_error(tmp_path, capsys):
     with open(out / ".dascreen.lock", "w") as held:  # another run holds the folder
         fcntl.flock(held, fcntl.LOCK_EX | fcntl.LOCK_NB)
         rc, _, err = _cli(capsys, "run", str(candidates), "--out", str(out))
-        with pytest.raises(FolderInUse, match="another dascreen run is using"):
+        with pytest.raises(FolderInUse, match=r"another run \(dascreen or snakemake\) is using"):
             _lock(out)  # the launcher's own check (a run started between the pre-flight check and the lock)
-    assert rc == 2 and err.startswith(f"dascreen: folder in use: another dascreen run is using {out}; "), err
+    assert rc == 2 and err.startswith(f"dascreen: folder in use: another run (dascreen or snakemake) is using {out}; "), err
     assert "configuration error" not in err and err.count("\n") == 1, err
 
 

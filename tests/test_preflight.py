@@ -142,7 +142,7 @@ def test_out_in_use_by_a_running_dascreen(capsys, tmp_path, good):
     out.mkdir()
     with open(out / ".dascreen.lock", "w") as lock:
         fcntl.flock(lock, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        _refused(capsys, "run", str(good), "--out", str(out), message="another dascreen run is using")
+        _refused(capsys, "run", str(good), "--out", str(out), message="another run (dascreen or snakemake) is using")
 
 
 def test_several_partners_for_run_are_refused_with_a_hint(capsys, tmp_path, good):

@@ -14,10 +14,11 @@ if PIN is None:
             py=PY,
             cfg=sections("calibration"),
             reference=lambda wildcards, input: Path(input[0]).parent,
+        resources:
+            mem_mb=1000,
+            runtime=10,
         log:
             f"{LOGS}/reference/input.log",
-        conda:
-            "../envs/dascreen.yaml"
         shell:
             "{params.py} -m screen.stages --config {params.cfg:q} reference-input --reference {params.reference:q}"
             " --out {output:q} > {log:q} 2>&1"
@@ -35,10 +36,11 @@ if PIN is None:
             cfg=sections("structures", "electronic", "polymer", "calibration"),
             root=lambda wildcards, output: Path(output[0]).parent,
             reference=lambda wildcards, input: Path(input.reference[0]).parent,
+        resources:
+            mem_mb=2000,
+            runtime=20,
         log:
             f"{LOGS}/calibrate.log",
-        conda:
-            "../envs/dascreen.yaml"
         shell:
             "{params.py} -m screen.stages --config {params.cfg:q} calibrate --reference {params.reference:q}"
             " --manifest {input.outdir:q}/manifest.csv --electronic {input.electronic:q}"

@@ -4,11 +4,16 @@
 # The rank rule then reads only its levels file.
 from screen.partners import partner_key, partner_kind
 
-PARTNER = CFG["partner"]
-PARTNER_KIND = partner_kind(PARTNER)  # cheap: no quantum chemistry at parse time
-# canonical, so that another spelling of the same molecule reuses the batch
-PARTNER_SMILES = f"smiles:{partner_key(PARTNER)[0]}" if PARTNER_KIND == "smiles" else None
-PARTNER_BATCH = f"partner-{partner_key(PARTNER)[1]}" if PARTNER_KIND == "smiles" else None
+# cheap: no quantum chemistry at parse time; a partner that cannot work stops here with one line (rules/rank.smk
+# checks the rest before any job)
+try:
+    PARTNER = CFG["partner"]
+    PARTNER_KIND = partner_kind(PARTNER)
+    # canonical, so that another spelling of the same molecule reuses the batch
+    PARTNER_SMILES = f"smiles:{partner_key(PARTNER)[0]}" if PARTNER_KIND == "smiles" else None
+    PARTNER_BATCH = f"partner-{partner_key(PARTNER)[1]}" if PARTNER_KIND == "smiles" else None
+except DascreenError as exc:
+    refuse(exc)
 PARTNER_LEVELS = f"{WORK}/{PARTNER_BATCH}/levels.csv" if PARTNER_BATCH else None
 
 
@@ -21,10 +26,11 @@ if PARTNER_BATCH:
             py=PY,
             cfg=sections(),
             partner=PARTNER_SMILES,
+        resources:
+            mem_mb=1000,
+            runtime=10,
         log:
             f"{LOGS}/{PARTNER_BATCH}/input.log",
-        conda:
-            "../envs/dascreen.yaml"
         shell:
             "{params.py} -m screen.stages --config {params.cfg:q} partner-input --partner {params.partner:q}"
             " --out {output:q} > {log:q} 2>&1"
@@ -35,6 +41,8 @@ rule partner_levels:
         outdir=f"{WORK}/{{batch}}/prepared",
         electronic=batch_electronic_tables,
         models=MODELS,
+        # what the batch was made from (recorded in the levels sidecar)
+        made_from=f"{WORK}/{{batch}}/input.csv",
     output:
         levels=f"{WORK}/{{batch}}/levels.csv",
         meta=f"{WORK}/{{batch}}/levels.csv.meta.json",
@@ -44,12 +52,12 @@ rule partner_levels:
         py=PY,
         cfg=sections("structures", "electronic", "polymer", "levels", "calibration"),
         pinned=PIN_TEXT,
-        made_from=lambda wildcards: f"{WORK}/{wildcards.batch}/input.csv",
+    resources:
+        mem_mb=2000,
+        runtime=15,
     log:
         f"{LOGS}/{{batch}}/levels.log",
-    conda:
-        "../envs/dascreen.yaml"
     shell:
         "{params.py} -m screen.stages --config {params.cfg:q} levels --manifest {input.outdir:q}/manifest.csv"
         " --electronic {input.electronic:q} --models {input.models:q} --out {output.levels:q}"
-        " --meta {output.meta:q} --pinned={params.pinned:q} --input {params.made_from:q} > {log:q} 2>&1"
+        " --meta {output.meta:q} --pinned={params.pinned:q} --input {input.made_from:q} > {log:q} 2>&1"
