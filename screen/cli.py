@@ -19,23 +19,75 @@ from __future__ import annotations
 
 import argparse
 import atexit
+import codecs
 import gc
 import os
 import re
 import signal
 import sys
+import threading
 from pathlib import Path
 
-import yaml
 
-from screen import __version__
-from screen.config import Config
-from screen.errors import CalculationError, ConfigError, DascreenError, InputError, exit_code
-from screen.cli_shared import (EXIT_ERROR, EXIT_OK, EXIT_STRICT, _at_least_one, _days, _load, _percent,  # noqa: F401
+class _Stopped(BaseException):
+    """SIGTERM or SIGHUP arrived while a command ran (raised by :func:`_raise_stopped`; a BaseException, so no
+    ``except Exception`` of a command takes it for an error of its own)."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum
+
+
+def _raise_stopped(signum, frame) -> None:
+    raise _Stopped(signum)
+
+
+#: signals that stop a command with one line and exit code 128 + N (SIGINT arrives as KeyboardInterrupt)
+_STOP_SIGNALS = (signal.SIGTERM, signal.SIGHUP)
+
+
+def _stopped_line(signum: int) -> str:
+    """The one line a command stopped by a signal prints.
+
+    Examples
+    --------
+    >>> _stopped_line(signal.SIGINT)
+    'dascreen: stopped by SIGINT (Ctrl-C); nothing more was done: run the same command again to finish'
+    """
+    name = signal.Signals(signum).name + (" (Ctrl-C)" if signum == signal.SIGINT else "")
+    return f"dascreen: stopped by {name}; nothing more was done: run the same command again to finish"
+
+
+def _interrupted_while_loading(kind, value, tb, _previous=sys.excepthook) -> None:
+    """``sys.excepthook`` of the ``dascreen`` script while its modules load: Ctrl-C (or SIGTERM) then gave a
+    traceback of whatever module was being imported (an audit of unusual environments); one line and exit code
+    128 + N instead. Any other exception goes to the usual hook."""
+    if issubclass(kind, (KeyboardInterrupt, _Stopped)):
+        signum = value.signum if isinstance(value, _Stopped) else signal.SIGINT
+        try:
+            print(_stopped_line(signum), file=sys.stderr, flush=True)
+        finally:
+            os._exit(128 + signum)
+    _previous(kind, value, tb)
+
+
+if os.path.basename(sys.argv[0] if sys.argv else "") == "dascreen":  # the console script only, not an importer
+    sys.excepthook = _interrupted_while_loading
+    for _sig in _STOP_SIGNALS:
+        if signal.getsignal(_sig) == signal.SIG_DFL:  # an ignored one (nohup) stays ignored
+            signal.signal(_sig, _raise_stopped)
+
+import yaml  # noqa: E402
+
+from screen import __version__  # noqa: E402
+from screen.config import Config  # noqa: E402
+from screen.errors import CalculationError, ConfigError, DascreenError, InputError, exit_code  # noqa: E402
+from screen.cli_shared import (EXIT_ERROR, EXIT_OK, EXIT_STRICT, _at_least_one, _days, _load,  # noqa: F401,E402
+                               _percent,
                                cut_cell, fixed_decimals,
                                _print_summary, data_path)
-from screen.launch import WORKFLOW, check_engine_args, run_workflow
-from screen.preflight import GivenOnce
+from screen.launch import WORKFLOW, check_engine_args, run_workflow  # noqa: E402
+from screen.preflight import GivenOnce  # noqa: E402
 
 __all__ = ["main", "build_parser", "WORKFLOW", "DEFAULT_OUT"]
 
@@ -146,10 +198,11 @@ def cmd_calibrate(args) -> int:
     import pandas as pd
 
     from screen.calibrate import load_models, stats_table
-    from screen.preflight import check_out_folder, check_reference
+    from screen.preflight import check_out_folder, check_out_writable, check_reference
 
     out = Path(args.out).resolve()
     check_out_folder(out, args.out)
+    check_out_writable(out, args.out)
     overrides = {"out": str(out), "calibration": {"refit": "always"}}
     if args.reference is not None:
         if not args.reference.strip():
@@ -515,11 +568,15 @@ def cmd_rank(args) -> int:
     """Rank a levels file against one or more partners (a partner matrix for several); a new smiles:
     partner is computed by the workflow first."""
     from screen.partners import partner_kind, split_partners
-    from screen.preflight import check_out_folder, check_partners, check_rank_config, check_rank_sets
+    from screen.preflight import (check_out_folder, check_out_writable, check_partners, check_rank_config,
+                                  check_rank_sets)
     from screen.rank_io import check_before_computing, run_rank
 
     out = Path(args.out).resolve()
     check_out_folder(out, args.out)
+    # before any work: a read-only folder said "…/rankings: Permission denied" after the ranking
+    check_out_writable(out, args.out, f" (the ranking goes to {out / 'rankings'}; a read-only run's levels are ranked "
+                                      f"with --levels {out / 'levels.csv'} --out NEW_FOLDER)")
     if args.partner is not None and not split_partners(args.partner):
         raise ConfigError(f"--partner {' '.join(repr(p) for p in args.partner)} names no partner; give a library name "
                           "(`dascreen partners`), a one-row levels CSV, smiles:<SMILES> or id:<ID>, or leave "
@@ -1068,11 +1125,15 @@ class _HelpFormatter(argparse.HelpFormatter):
 
 
 class _Parser(argparse.ArgumentParser):
-    """An argument parser with :class:`_HelpFormatter` (its sub-command parsers are of this class too)."""
+    """An argument parser with :class:`_HelpFormatter` (its sub-command parsers are of this class too); its errors
+    add a hint when a name starting with ``-`` was read as an option (:func:`_dash_hint`)."""
 
     def __init__(self, *args, **kwargs):
         kwargs.setdefault("formatter_class", _HelpFormatter)
         super().__init__(*args, **kwargs)
+
+    def error(self, message):
+        super().error(message + _dash_hint(self, message))
 
 
 def _parser_of(parser: argparse.ArgumentParser, args) -> argparse.ArgumentParser:
@@ -1121,12 +1182,250 @@ def _freeze_at_exit() -> None:
 def main(argv: list[str] | None = None) -> int:
     """Entry point of the ``dascreen`` console script."""
     _freeze_at_exit()
+    _console_streams()
+    handlers = _catch_stop_signals()
+    try:
+        return _main(argv)
+    except (KeyboardInterrupt, _Stopped) as exc:  # Ctrl-C, SIGTERM or SIGHUP: one line, 128 + N, no traceback
+        signum = exc.signum if isinstance(exc, _Stopped) else signal.SIGINT
+        if threading.current_thread() is threading.main_thread():
+            for sig in (signal.SIGINT, *_STOP_SIGNALS):  # a second Ctrl-C must not cut this line short
+                signal.signal(sig, signal.SIG_IGN)
+        try:
+            print(_stopped_line(signum), file=sys.stderr, flush=True)
+        except (OSError, ValueError):  # the terminal has gone (SIGHUP)
+            pass
+        return 128 + signum
+    finally:
+        for sig, handler in handlers.items():
+            signal.signal(sig, handler if handler is not None else signal.SIG_DFL)
+
+
+def _console_errors(exc: UnicodeError):
+    """The error handler of the console streams (:func:`_console_streams`): a character the stream's encoding
+    lacks is written as its escape (``\\u0130``, as ``backslashreplace``), a byte of a file name that is not
+    UTF-8 as that byte (as ``surrogateescape``, the rule under the C locale).
+
+    Examples
+    --------
+    >>> print("BTD-İı lat\\udce9".encode("latin-1", "dascreen-console"))
+    b'BTD-\\\\u0130\\\\u0131 lat\\xe9'
+    """
+    if not isinstance(exc, UnicodeEncodeError):
+        raise exc
+    out = bytearray()
+    for char in exc.object[exc.start:exc.end]:
+        code = ord(char)
+        if 0xDC80 <= code <= 0xDCFF:
+            out.append(code - 0xDC00)
+        else:
+            out += (f"\\x{code:02x}" if code <= 0xFF else f"\\u{code:04x}" if code <= 0xFFFF
+                    else f"\\U{code:08x}").encode("ascii")
+    return bytes(out), exc.end
+
+
+codecs.register_error("dascreen-console", _console_errors)
+
+
+def _console_streams() -> None:
+    """Let the console streams write any text: a character the terminal's encoding lacks (an id "BTD-İı" under
+    ``LC_ALL=de_DE.ISO-8859-1`` or ``LC_ALL=C PYTHONUTF8=0``) is written as ``\\u0130`` instead of stopping the
+    command with a traceback after its work was done (an audit of unusual environments); a file name's byte
+    that is not UTF-8 is written as that byte, as the C locale's ``surrogateescape`` does
+    (:func:`_console_errors`). A stream with another handler (``backslashreplace``, standard error's) or one that
+    replaced the console's is left as it is."""
+    for stream, console in ((sys.stdout, sys.__stdout__), (sys.stderr, sys.__stderr__)):
+        if stream is not console:  # replaced (a test's capture, a program that calls main): left as it is
+            continue
+        if getattr(stream, "errors", None) in ("strict", "surrogateescape") and hasattr(stream, "reconfigure"):
+            try:
+                stream.reconfigure(errors="dascreen-console")
+            except (AttributeError, ValueError, OSError):
+                pass
+
+
+def _catch_stop_signals() -> dict:
+    """Make SIGTERM and SIGHUP raise :class:`_Stopped` in the main thread (their default ended ``dascreen rank``
+    with exit code 143 and no word); a signal the caller ignores (``nohup``) stays ignored. Returns the handlers
+    to restore."""
+    if threading.current_thread() is not threading.main_thread():
+        return {}
+    previous = {signal.SIGINT: signal.getsignal(signal.SIGINT)}  # unchanged; restored after a Ctrl-C's line
+    for sig in _STOP_SIGNALS:
+        current = signal.getsignal(sig)
+        if current != signal.SIG_IGN:
+            previous[sig] = signal.signal(sig, _raise_stopped)
+    return previous
+
+
+#: options and arguments that name a file or folder: ``~`` is expanded in each (``--out '~/x'`` made a folder
+#: named ``~`` in the current one, and ``run '~/c.csv'``, ``--levels '~/l.csv'``, ``--config '~/c.yaml'`` said
+#: "does not exist", while ``--partner`` and ``--install`` expanded it; an audit of unusual environments)
+PATH_OPTIONS = ("candidates", "out", "levels", "config", "profile", "reference", "install", "from_raw", "models",
+                "store", "to", "oxide", "mediator")
+
+#: path options whose name a command records in its outputs (the report, the sidecars) as UTF-8 text
+_RECORDED_PATHS = {"candidates": "CANDIDATES", "levels": "--levels"}
+
+
+def _expand_user(args) -> None:
+    """``~`` and ``~user`` at the start of every path option (:data:`PATH_OPTIONS`) expanded, as a shell does.
+
+    Examples
+    --------
+    >>> ns = argparse.Namespace(out="~/x", levels=None, from_raw=["~/m", "n"], oxide="tio2")
+    >>> _expand_user(ns)
+    >>> ns.out == os.path.expanduser("~/x"), ns.from_raw[1], ns.oxide
+    (True, 'n', 'tio2')
+    """
+    def expand(value):
+        return os.path.expanduser(value) if isinstance(value, str) and value.startswith("~") else value
+
+    for dest in PATH_OPTIONS:
+        value = getattr(args, dest, None)
+        if isinstance(value, list):
+            setattr(args, dest, [expand(v) for v in value])
+        elif value is not None:
+            setattr(args, dest, expand(value))
+
+
+def _check_path_names(args) -> None:
+    """Refuse an input file whose path is not UTF-8 text (a name made on a Latin-1 system: ``lev\\xe9.csv``).
+
+    Its path is recorded in the report and sidecars as text, and writing them stopped with "report failed:
+    UnicodeEncodeError" after the ranking was written (an audit of unusual environments).
+
+    Raises
+    ------
+    InputError
+        Naming the option, the byte and the fix.
+    """
+    for dest, option in _RECORDED_PATHS.items():
+        value = getattr(args, dest, None)
+        if not isinstance(value, str) or not value:
+            continue
+        try:
+            full = os.path.abspath(value)
+        except OSError:  # no current folder: said by _check_current_folder
+            full = value
+        try:
+            full.encode("utf-8")
+        except UnicodeEncodeError as exc:
+            byte = ord(full[exc.start]) - 0xDC00 if 0xDC80 <= ord(full[exc.start]) <= 0xDCFF else None
+            shown = os.fsencode(full).decode("utf-8", "backslashreplace")
+            which = f" (byte 0x{byte:02x})" if byte is not None else ""
+            raise InputError(f"{option} {shown}: this path is not UTF-8 text{which}, and the report records it as "
+                             "text; rename the file or its folder to a UTF-8 name (or copy it to one)") from None
+
+
+def _check_current_folder(args) -> None:
+    """Refuse relative paths when the current folder no longer exists (deleted or moved under the shell): the
+    system's "[Errno 2] No such file or directory" named no path (an audit of unusual environments)."""
+    try:
+        os.getcwd()
+        return
+    except FileNotFoundError:
+        pass
+    relative = []
+    for dest in PATH_OPTIONS:
+        if dest == "to" and getattr(args, "action", None) != "export":
+            continue
+        values = getattr(args, dest, None)
+        for value in values if isinstance(values, list) else [values]:
+            if isinstance(value, str) and value and not os.path.isabs(value):
+                relative.append(f"{'--' + dest.replace('_', '-') if dest != 'candidates' else 'CANDIDATES'} {value}")
+    if relative:
+        where = os.environ.get("PWD") or "the current folder"
+        raise InputError(f"the current folder {where} no longer exists (deleted or moved), and {', '.join(relative)} "
+                         "is relative to it; cd to an existing folder, or give absolute paths")
+
+
+def _matplotlib_fallback() -> None:
+    """Point matplotlib at a folder of its own when HOME's folders cannot be written (a read-only HOME): it printed
+    a two-line warning on every ranking and rebuilt its font cache each time. A per-user folder in the temporary
+    folder (created ``rwx------``, used only when it is this user's and not writable by others), else a new
+    temporary one; nothing when ``MPLCONFIGDIR`` is set or matplotlib's folders can be written."""
+    import stat
+    import tempfile
+
+    from screen.launch import matplotlib_unwritable
+
+    if not matplotlib_unwritable():
+        return
+    try:
+        folder = Path(tempfile.gettempdir()) / f"dascreen-matplotlib-{os.getuid()}"
+        folder.mkdir(mode=0o700, exist_ok=True)
+        info = folder.lstat()
+        if not stat.S_ISDIR(info.st_mode) or info.st_uid != os.getuid() or info.st_mode & 0o022:
+            folder = Path(tempfile.mkdtemp(prefix="dascreen-matplotlib-"))
+    except (OSError, AttributeError):  # no writable temporary folder either: matplotlib says so itself
+        return
+    os.environ["MPLCONFIGDIR"] = str(folder)
+
+
+#: the command line :func:`main` parses: before a bare ``--`` and after it (for :meth:`_Parser.error`'s hints)
+_COMMAND_LINE: list[list[str]] = [[], []]
+
+
+def _dash_hint(parser: argparse.ArgumentParser, message: str) -> str:
+    """``"; a file name starting with '-' is read as an option: write ./-two.csv"`` for an argparse error that a
+    name starting with ``-`` caused (``dascreen run -two.csv`` said "the following arguments are required:
+    candidates"; ``dascreen run -- -two.csv`` handed the file to the workflow engine), else ``""``.
+
+    Examples
+    --------
+    >>> p = build_parser()
+    >>> run = p._subparsers._group_actions[0].choices["run"]
+    >>> _COMMAND_LINE[:] = ["run", "-two.csv"], []
+    >>> _dash_hint(run, "the following arguments are required: candidates")
+    "; a file name starting with '-' is read as an option: write ./-two.csv"
+    >>> _COMMAND_LINE[:] = ["rank", "--out", "-x"], []
+    >>> _dash_hint(run, "argument --out: expected one argument")
+    "; a value starting with '-' is read as an option: write --out ./-x (or --out=-x)"
+    >>> _COMMAND_LINE[:] = [], []
+    """
+    argv, after = _COMMAND_LINE
+    known = set(getattr(parser, "_option_string_actions", {}))
+    expected = re.match(r"argument (\S+?)(?:/\S+)?: expected one argument", message)
+    if expected:
+        action = parser._option_string_actions.get(expected.group(1)) if known else None
+        strings = set(action.option_strings) if action is not None else {expected.group(1)}
+        for option, value in zip(argv, argv[1:]):
+            if option in strings and value.startswith("-") and value not in known:
+                return (f"; a value starting with '-' is read as an option: write {option} ./{value} "
+                        f"(or {option}={value})")
+        return ""
+    if not ("required" in message or "unrecognized arguments" in message):
+        return ""
+
+    def file_like(token: str) -> bool:
+        try:
+            float(token)
+            return False  # a negative number
+        except ValueError:
+            pass
+        return (len(token) > 1 and token.startswith("-") and not token.startswith("--") and token not in known
+                and (os.path.exists(token) or "." in token or "/" in token))
+
+    named = [t for t in argv if file_like(t)]
+    if named:
+        return f"; a file name starting with '-' is read as an option: write ./{named[0]}"
+    named = [t for t in after if file_like(t)]
+    if named and "required" in message:
+        return (f"; everything after a bare -- goes to the workflow engine, so {named[0]} was not read as a file: "
+                f"write ./{named[0]} (without the --)")
+    return ""
+
+
+def _main(argv: list[str] | None = None) -> int:
+    """:func:`main` without its signal handling."""
     parser = build_parser()
     argv = list(sys.argv[1:] if argv is None else argv)
     passthrough: list[str] = []
     if "--" in argv:  # everything after a bare -- goes to Snakemake unchanged (run only)
         cut = argv.index("--")
         argv, passthrough = argv[:cut], argv[cut + 1:]
+    _COMMAND_LINE[:] = argv, passthrough
     args, unknown = parser.parse_known_args(argv)
     if unknown:  # an unknown option after the sub-command gets the sub-command's usage, not the top level's
         command = argv.index(args.command) if args.command in argv else len(argv)
@@ -1138,6 +1437,10 @@ def main(argv: list[str] | None = None) -> int:
         if passthrough and args.command != "run":  # were dropped without a word
             raise ConfigError(f"arguments after -- ({' '.join(passthrough)}) go to the workflow engine of `dascreen "
                               f"run` only; `dascreen {args.command}` takes none")
+        _expand_user(args)
+        _check_current_folder(args)
+        _check_path_names(args)
+        _matplotlib_fallback()
         rc = args.func(args)
         sys.stdout.flush()  # a closed pipe is found here, not while Python shuts down
         return rc

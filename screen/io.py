@@ -513,14 +513,21 @@ class Journal:
 
     #: field of a journal line holding its tag (removed on :meth:`load`)
     TAG_FIELD = "_journal_tag"
+    #: field of a journal line whose record came from the results store (a record with a true ``from_store``
+    #: attribute, :class:`screen.store.StoredRecord`); removed on :meth:`load`, which lists such keys in
+    #: :attr:`from_store`: the progress display leaves them out of the rate
+    STORE_FIELD = "_journal_from_store"
 
     def __init__(self, path: str | os.PathLike, tag: str | None = None):
         self.path = Path(path)
         self.tag = tag
+        #: keys whose last record :meth:`load` read came from the results store
+        self.from_store: set[str] = set()
 
     def load(self) -> dict[str, dict]:
         """Records by ``key``; the last record of a key wins, torn lines are skipped."""
         done: dict[str, dict] = {}
+        self.from_store = set()
         if not self.path.exists():
             return done
         with open(self.path, encoding="utf-8") as fh:
@@ -533,13 +540,17 @@ class Journal:
                     continue
                 if isinstance(rec, dict) and "key" in rec:
                     tag = rec.pop(self.TAG_FIELD, None)
+                    stored = rec.pop(self.STORE_FIELD, False)
                     if self.tag is None or tag == self.tag:
                         done[rec["key"]] = rec
+                        (self.from_store.add if stored else self.from_store.discard)(rec["key"])
         return done
 
     def append(self, record: dict) -> None:
         """Append one record durably (flush + fsync)."""
         self.path.parent.mkdir(parents=True, exist_ok=True)
+        if getattr(record, "from_store", False):  # the line says so; the record read back is the same
+            record = {**record, self.STORE_FIELD: True}
         if self.tag is not None:
             record = {**record, self.TAG_FIELD: self.tag}
         line = json.dumps(record, sort_keys=True, default=_json_default) + "\n"
@@ -571,14 +582,20 @@ class Progress:
     """Progress of a long per-molecule loop: count, rate and ETA, as a bar or as plain lines.
 
     On a terminal (``bar=True``, the default when ``stream`` is a TTY) one line
-    is redrawn in place with a bar; otherwise a plain line is printed at most
-    every ``every_s`` seconds and always for the last item (a job's log under
+    is redrawn in place with a bar, cut to the terminal's width (``COLUMNS``, else
+    the terminal's own; a longer line wrapped and left a stale row per redraw on
+    a narrow terminal) and without the erase-line control sequence on
+    ``TERM=dumb`` (spaces overwrite the rest instead); otherwise a plain line is
+    printed at most every ``every_s`` seconds and when all items are done (once:
+    the same line is not repeated within ``every_s``; a job's log under
     Snakemake, a redirected ``dascreen``).  The rate counts only the items done
     since the first report (or :meth:`rebase`), so work finished earlier (a
-    resumed run, molecules from the results store) does not inflate it.  When
-    no molecule has finished for ``stall_s`` seconds, the line says for how long
-    (one 200-atom oligomer on xTB geometries can take most of an hour), so a
-    busy run is not mistaken for a hung one.
+    resumed run) does not inflate it, nor do items served by the results store
+    (``stored`` of :meth:`report`); once all items are done the rate and ETA stay
+    as they were (the run's levels and ranking follow), instead of growing with
+    the time that passes.  When no molecule has finished for ``stall_s`` seconds,
+    the line says for how long (one 200-atom oligomer on xTB geometries can take
+    most of an hour), so a busy run is not mistaken for a hung one.
 
     Examples
     --------
@@ -596,6 +613,9 @@ class Progress:
     True
     """
 
+    #: narrowest bar a narrow terminal gets before the text is cut [characters]
+    MIN_BAR = 5
+
     def __init__(self, label: str, stream=None, every_s: float = 10.0, bar: bool | None = None,
                  width: int = 24, stall_s: float = 300.0):
         self.label = label
@@ -610,19 +630,27 @@ class Progress:
         self.stall_s = stall_s
         self._seen: int | None = None     # the count at the last report
         self._seen_t = self.start         # when that count was first reported
+        self._stored = self._stored_base = 0  # items served by the results store (now / at the rebase)
+        self._ended: float | None = None  # when every item was first reported done (the rate stops there)
+        self._printed: tuple | None = None  # the last plain line's content
+        self._drawn_len = 0               # characters of the bar line drawn last
 
-    def rebase(self, done: int) -> None:
-        """Count the rate from now and from ``done`` items on (items done before are not this run's work)."""
+    def rebase(self, done: int, stored: int = 0) -> None:
+        """Count the rate from now and from ``done`` items on (items done before are not this run's work);
+        ``stored``: how many of them the results store served (:meth:`report` counts later ones from there)."""
         self.start, self.base = time.monotonic(), done
+        self._stored = self._stored_base = stored
+        self._ended = None
 
     def _rate_eta(self, done: int, total: int) -> tuple[float, float]:
-        elapsed = time.monotonic() - self.start
-        new = done - self.base
+        finished = bool(total) and done >= total and self._ended is not None
+        elapsed = (self._ended if finished else time.monotonic()) - self.start
+        new = done - self.base - max(0, self._stored - self._stored_base)  # computed, not served by the store
         per_item = elapsed / new if new > 0 else float("nan")
         return per_item, per_item * (total - done)
 
-    def line(self, done: int, total: int, key: str = "", note: str = "") -> str:
-        """The progress text of ``done`` of ``total``."""
+    def line(self, done: int, total: int, key: str = "", note: str = "", bar_width: int | None = None) -> str:
+        """The progress text of ``done`` of ``total`` (``bar_width``: the bar's characters, default ``width``)."""
         per_item, eta = self._rate_eta(done, total)
         pct = 100.0 * done / total if total else 100.0
         rate = "rate unknown" if per_item != per_item else f"{per_item:.2f} s/molecule"
@@ -631,33 +659,60 @@ class Progress:
         if self._seen == done and done < total and stalled >= self.stall_s:
             eta_text += f" (no molecule finished for {_duration(stalled)}, still computing)"
         if self.bar:
-            filled = int(round(self.width * done / total)) if total else self.width
-            return (f"{self.label} [{'#' * filled}{'.' * (self.width - filled)}] {done}/{total} molecules "
+            width = self.width if bar_width is None else bar_width
+            filled = int(round(width * done / total)) if total else width
+            return (f"{self.label} [{'#' * filled}{'.' * (width - filled)}] {done}/{total} molecules "
                     f"({pct:.0f}%), {rate}, {eta_text}{'  ' + note if note else ''}")
         return (f"{self.label}: {done}/{total} molecules ({pct:.0f}%), {rate}, {eta_text}"
                 f"{' (last ' + key + ')' if key else ''}{'; ' + note if note else ''}")
 
-    def report(self, done: int, total: int, key: str = "", note: str = "") -> None:
-        """Show ``done / total`` (a bar redraw, or a line when ``every_s`` has passed or all is done)."""
+    def report(self, done: int, total: int, key: str = "", note: str = "", stored: int | None = None) -> None:
+        """Show ``done / total`` (a bar redraw, or a line when ``every_s`` has passed or all is done);
+        ``stored``: how many of the ``done`` items the results store served so far (left out of the rate)."""
         now = time.monotonic()
         if done != self._seen:
             self._seen, self._seen_t = done, now
+        if stored is not None:
+            self._stored = stored
+        if total and done >= total:
+            self._ended = now if self._ended is None else self._ended
+        else:
+            self._ended = None
         if self.bar:
-            self.stream.write("\r\033[K" + self.line(done, total, key, note))
-            self.stream.flush()
-            self._drawn = True
+            line = self.line(done, total, key, note)
+            room = self._room()
+            if len(line) > room:  # a narrower bar first, then the text cut to the terminal's width
+                width = max(self.MIN_BAR, self.width - (len(line) - room))
+                line = self.line(done, total, key, note, bar_width=width)
+            self._draw(line)
             return
-        if done < total and now - self._last < self.every_s:
+        shown = (done, total, key, note, self.line(done, total, key, note))
+        if now - self._last < self.every_s and (done < total or shown == self._printed):
             return
-        self._last = now
-        print(self.line(done, total, key, note), file=self.stream, flush=True)
+        self._last, self._printed = now, shown
+        print(shown[-1], file=self.stream, flush=True)
 
     def message(self, text: str) -> None:
         """A status text in place of the counts (e.g. while preparing)."""
         if self.bar:
-            self.stream.write("\r\033[K" + f"{self.label}: {text}")
-            self.stream.flush()
-            self._drawn = True
+            self._draw(f"{self.label}: {text}")
+
+    def _room(self) -> int:
+        """Characters a bar line may take: the terminal's width less one (the cursor), at least 20."""
+        return max(20, _columns(self.stream) - 1)
+
+    def _draw(self, text: str) -> None:
+        """Redraw the bar line: cut to the terminal's width; erased with ESC[K, or overwritten with spaces on a
+        terminal that has no such sequence (``TERM=dumb``)."""
+        room = self._room()
+        if len(text) > room:
+            text = text[:room - 3] + "..."
+        if os.environ.get("TERM", "") == "dumb":
+            self.stream.write("\r" + text + " " * max(0, min(self._drawn_len, room) - len(text)))
+        else:
+            self.stream.write("\r\033[K" + text)
+        self.stream.flush()
+        self._drawn, self._drawn_len = True, len(text)
 
     def close(self) -> None:
         """End the bar's line (nothing for plain lines)."""
@@ -665,6 +720,29 @@ class Progress:
             self.stream.write("\n")
             self.stream.flush()
             self._drawn = False
+            self._drawn_len = 0
+
+
+def _columns(stream) -> int:
+    """The width of the terminal ``stream`` writes to: ``COLUMNS`` when set (a positive integer), else the
+    terminal's own, else 80.
+
+    Examples
+    --------
+    >>> import io
+    >>> _columns(io.StringIO()) > 0
+    True
+    """
+    try:
+        given = int(os.environ.get("COLUMNS", ""))
+        if given > 0:
+            return given
+    except ValueError:
+        pass
+    try:
+        return os.get_terminal_size(stream.fileno()).columns or 80
+    except (AttributeError, ValueError, OSError, io.UnsupportedOperation):
+        return 80
 
 
 def _isatty(stream) -> bool:
@@ -732,27 +810,68 @@ def batch_progress(out_dir: str | os.PathLike, batch: str = "candidates", stage:
     -------
     dict
         ``total`` unique structures, ``done``, ``elapsed_s`` since the first shard started,
-        ``eta_s`` (NaN until something is done).
+        ``eta_s`` (NaN until something is done), ``stored`` (of ``done``, the molecules the results store
+        served: marked in a running shard's journal, said by a finished shard's job log; the progress display
+        leaves them out of its rate).
     """
     import math
 
     work = Path(out_dir) / "work" / batch
     shards = sorted((work / "prepared").glob("shard-*.csv"))
     total = sum(_records(p) for p in shards)
-    done, first = 0, None
+    done, first, stored = 0, None, 0
     for shard in shards:
         final = work / stage / shard.name
         journal = Path(f"{final}.journal.jsonl")
         if final.exists():
             done += _records(final)
+            stored += _stored_in_log(Path(out_dir) / "logs" / batch / "compute" / f"{shard.stem}.log", stage)
         elif journal.exists():
-            done += len(Journal(journal).load())
+            read = Journal(journal)
+            done += len(read.load())
+            stored += len(read.from_store)
     starts = [p.stat().st_mtime for p in shards]
     if starts:
         first = min(starts)
     elapsed = time.time() - first if first else 0.0
     eta = elapsed / done * (total - done) if done else math.nan
-    return {"total": total, "done": done, "elapsed_s": elapsed, "eta_s": eta}
+    return {"total": total, "done": done, "elapsed_s": elapsed, "eta_s": eta, "stored": stored}
+
+
+#: a compute job's log line that says how many molecules of a stage the results store served
+#: (:func:`screen.batch.report_store_hits`)
+_STORE_HITS = re.compile(r"^.*: (\d+) of \d+ molecules? from the results store\b.*\((\w+)\)\s*$", re.M)
+#: :func:`_stored_in_log` of log files already read, by (path, mtime, size)
+_STORED_SEEN: dict[tuple[str, int, int, str], int] = {}
+
+
+def _stored_in_log(log: Path, stage: str) -> int:
+    """Molecules of ``stage`` the results store served, as a finished compute job's log says (0 when it does
+    not say, or there is no log).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> log = Path(tempfile.mkdtemp()) / "shard-000.log"
+    >>> _ = log.write_text("compute shard-000: 3 of 5 molecules from the results store, 2 computed (electronic)\\n")
+    >>> _stored_in_log(log, "electronic"), _stored_in_log(log, "structures"), _stored_in_log(log.with_name("x"), "")
+    (3, 0, 0)
+    """
+    try:
+        stat = os.stat(log)
+    except OSError:
+        return 0
+    seen = (str(log), stat.st_mtime_ns, stat.st_size, stage)
+    if seen not in _STORED_SEEN:
+        if len(_STORED_SEEN) > 4096:
+            _STORED_SEEN.clear()
+        try:
+            text = log.read_text(encoding="utf-8", errors="replace")
+        except OSError:
+            return 0
+        hits = [int(m.group(1)) for m in _STORE_HITS.finditer(text) if m.group(2) == stage]
+        _STORED_SEEN[seen] = hits[-1] if hits else 0
+    return _STORED_SEEN[seen]
 
 
 def _oligomer_count(path: Path) -> tuple[int, int]:
@@ -773,7 +892,8 @@ def run_progress(out_dir: str | os.PathLike, batch: str | None = None) -> dict:
     dict
         ``total`` unique structures of all prepared batches, ``structures`` and
         ``electronic`` (molecules finished by each stage), ``done`` (=
-        ``electronic``), ``steps`` (structures + electronic, out of ``2 × total``),
+        ``electronic``), ``stored`` (of ``done``, served by the results store), ``steps`` (structures +
+        electronic, out of ``2 × total``),
         ``prepared`` (whether any batch is prepared), ``started`` (Unix time of
         the first prepared shard, NaN without one), ``oligomers`` and ``polymers``
         (oligomer structures among ``total`` and the polymers they belong to, from
@@ -790,7 +910,7 @@ def run_progress(out_dir: str | os.PathLike, batch: str | None = None) -> dict:
     if batch is not None:
         batches = [b for b in batches if b == batch]
     out = {"total": 0, "structures": 0, "electronic": 0, "prepared": bool(batches), "started": float("nan"),
-           "oligomers": 0, "polymers": 0}
+           "oligomers": 0, "polymers": 0, "stored": 0}
     for batch in batches:
         olig, poly = _oligomer_count(work / batch / "prepared" / "oligomers.csv")
         out["oligomers"] += olig
@@ -798,6 +918,7 @@ def run_progress(out_dir: str | os.PathLike, batch: str | None = None) -> dict:
         for stage in ("structures", "electronic"):
             p = batch_progress(out_dir, batch, stage)
             out[stage] += p["done"]
+        out["stored"] += p["stored"]  # of the electronic stage, whose count is ``done``
         out["total"] += p["total"]
         shards = list((work / batch / "prepared").glob("shard-*.csv"))
         if shards:

@@ -48,7 +48,7 @@ from screen.errors import ConfigError, FolderInUse
 
 __all__ = ["WORKFLOW", "STOP_GRACE_S", "PIN_ENV", "KEEP_LOGS", "ENGINE_OPTIONS_SET", "run_workflow", "error_excerpt",
            "calibration_pin", "pinned_calibration", "failure_cause", "failure_cause_in", "rotate_log",
-           "check_engine_args"]
+           "check_engine_args", "check_engine_path", "can_write", "fallback_folders", "matplotlib_unwritable"]
 
 WORKFLOW = Path(__file__).parent / "workflow" / "Snakefile"
 #: environment variable that hands the workflow the calibration the ``dascreen`` command pinned (JSON of
@@ -80,7 +80,8 @@ def error_excerpt(log_text: str, tail: int = 80) -> str:
     return "\n".join(lines[-tail:])
 
 
-_ERRNO = re.compile(r"\[Errno (\d+)\] ([A-Za-z][^:\]\)\n'\"]*)")
+#: a system error as Python words it (``[Errno 13] Permission denied: '/r/x'``): number, text and the path it names
+_ERRNO = re.compile(r"\[Errno (\d+)\] ([A-Za-z][^:\]\)\n'\"]*)(?:: '([^'\n]+)'|: \"([^\"\n]+)\")?")
 _STAGE_ERROR = re.compile(r"^dascreen: error: (.+)$", re.M)
 #: a Python exception's last line in a job log the engine quotes (``module.SomeError: text``)
 _EXCEPTION = re.compile(r"^(?:[A-Za-z_][\w]*\.)*([A-Za-z_]\w*(?:Error|Exception)): (\S.*)$", re.M)
@@ -109,7 +110,7 @@ def failure_cause(log_text: str) -> str | None:
     ...               "device). Please ensure write permissions for the directory /r/.snakemake")  # doctest: +ELLIPSIS
     'No space left on device (errno 28, ENOSPC): the disk ... is full; free space ... and run the same command ...'
     >>> failure_cause("Traceback ...\\nPermissionError: [Errno 13] Permission denied: '/r/x'")
-    'Permission denied (errno 13, EACCES)'
+    'Permission denied (errno 13, EACCES): /r/x'
     >>> failure_cause("Error in rule levels:\\n  jobid: 1\\nTraceback (most recent call last):\\n"
     ...               "screen.calibrate.CalibrationMismatchError: model x does not belong to this run")
     'CalibrationMismatchError: model x does not belong to this run (job levels)'
@@ -119,8 +120,11 @@ def failure_cause(log_text: str) -> str | None:
     True
     """
     found: dict[int, str] = {}
+    paths: dict[int, str] = {}  # the file a system error names (a path the user can act on: make it writable)
     for match in _ERRNO.finditer(log_text):
         found.setdefault(int(match.group(1)), match.group(2).strip().rstrip("."))
+        if match.group(3) or match.group(4):
+            paths.setdefault(int(match.group(1)), match.group(3) or match.group(4))
     for number in (errno.ENOSPC, errno.EDQUOT):
         if number in found:
             return (f"{found[number]} (errno {number}, {errno.errorcode[number]}): the disk (or quota) of the run "
@@ -136,7 +140,8 @@ def failure_cause(log_text: str) -> str | None:
         return f"job {rule} was {how}" + (f"; its log: {log}" if log else "")
     if found:  # the first system error the log names
         number, text = next(iter(found.items()))
-        return f"{text} (errno {number}, {errno.errorcode.get(number, '?')})"
+        where = f": {paths[number]}" if number in paths else ""
+        return f"{text} (errno {number}, {errno.errorcode.get(number, '?')}){where}"
     rules = list(dict.fromkeys(_FAILED_RULE.findall(log_text)))
     jobs = f" (job{'s' if len(rules) > 1 else ''} {', '.join(rules)})" if rules else ""
     raised = [m for m in _EXCEPTION.finditer(log_text) if m.group(1) not in _ENGINE_EXCEPTIONS]
@@ -247,6 +252,9 @@ def pinned_calibration(environ=None) -> dict | None:
 
 #: signals that stop a running workflow like Ctrl-C does (SIGHUP: the terminal was closed)
 _STOP_SIGNALS = (signal.SIGTERM, signal.SIGHUP)
+#: signals ignored while the workflow is being stopped: a second Ctrl-C (or SIGTERM) gave a traceback from
+#: the middle of the clean-up and left the jobs running
+_IGNORED_WHILE_STOPPING = (signal.SIGINT, *_STOP_SIGNALS)
 
 
 class _Signalled(Exception):
@@ -342,13 +350,18 @@ def _wait(proc: subprocess.Popen) -> int:
         130 after Ctrl-C (SIGINT), 143 after SIGTERM (129 after SIGHUP), once the workflow has stopped.
     """
     main_thread = threading.current_thread() is threading.main_thread()
-    previous = {sig: signal.signal(sig, _raise_signalled) for sig in _STOP_SIGNALS} if main_thread else {}
+    # a signal the caller ignores stays ignored (`nohup dascreen run ...`: closing the terminal stopped the run)
+    previous = {sig: signal.signal(sig, _raise_signalled) for sig in _STOP_SIGNALS
+                if signal.getsignal(sig) != signal.SIG_IGN} if main_thread else {}
+    if main_thread:
+        previous[signal.SIGINT] = signal.getsignal(signal.SIGINT)  # restored below; ignored while stopping
     try:
         return proc.wait()
     except (KeyboardInterrupt, _Signalled) as exc:
         signum = exc.signum if isinstance(exc, _Signalled) else signal.SIGINT
-        for sig in previous:  # a second signal must not cut the clean-up short
-            signal.signal(sig, signal.SIG_IGN)
+        if main_thread:  # a second signal (Ctrl-C pressed again) must not cut the clean-up short
+            for sig in _IGNORED_WHILE_STOPPING:
+                signal.signal(sig, signal.SIG_IGN)
         _stop_tree(proc, signum)
         print(f"dascreen: stopped by {signal.Signals(signum).name}; the workflow was stopped too (the same command "
               "resumes it)", file=sys.stderr, flush=True)
@@ -507,9 +520,38 @@ def check_engine_args(extra) -> None:
             raise ConfigError(f"{head}: {names.get(dest, dest)} {instead}")
 
 
+def check_engine_path(out: Path) -> None:
+    """Refuse a run folder whose path is not UTF-8 text (a name made on a Latin-1 system, ``lat\\xe9``), before
+    anything is created: the workflow engine stopped with "UnicodeEncodeError: … surrogates not allowed" (an audit
+    of unusual environments).
+
+    Raises
+    ------
+    ConfigError
+        Naming the path (its bytes escaped) and the fix.
+
+    Examples
+    --------
+    >>> try:
+    ...     check_engine_path(Path("/r/lat\\udce9"))
+    ... except ConfigError as exc:
+    ...     print(str(exc).split(";")[0])
+    --out /r/lat\\xe9: the workflow engine cannot work in a folder whose path is not UTF-8 text
+    """
+    try:
+        str(out).encode("utf-8")
+    except UnicodeEncodeError:
+        shown = os.fsencode(str(out)).decode("utf-8", "backslashreplace")
+        raise ConfigError(f"--out {shown}: the workflow engine cannot work in a folder whose path is not UTF-8 text; "
+                          "rename it (or the folder above it that is not) to a UTF-8 name, or choose another --out"
+                          ) from None
+
+
 def _command(out: Path, cfg_file: Path, cores: int, targets, extra, dry_run: bool, profile) -> list[str]:
     cmd = [sys.executable, "-m", "snakemake", "--snakefile", str(WORKFLOW), "--directory", str(out),
            "--configfile", str(cfg_file), "--cores", str(cores), "--rerun-incomplete", "--show-failed-logs"]
+    if os.environ.get("NO_COLOR") and "--nocolor" not in (extra or []):  # https://no-color.org: any non-empty value
+        cmd.append("--nocolor")  # `--verbose` showed the engine's colour codes
     if dry_run:
         cmd.append("--dry-run")
     if profile:
@@ -567,6 +609,7 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
     from screen.preflight import make_out_folder
     from screen.store import STORE_ENV, run_store
 
+    check_engine_path(out)
     make_out_folder(out)
     lock = _lock(out)
     try:
@@ -579,19 +622,21 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
         _say_store(out, notes)
         cfg_file.write_text(yaml.safe_dump(_recorded(cfg, store), sort_keys=False), encoding="utf-8")
         cmd = _command(out, cfg_file, cores, targets, extra, dry_run, profile)
-        env = {**os.environ, STORE_ENV: str(store or "")}
+        env = {**os.environ, STORE_ENV: str(store or ""), **fallback_folders(out)}
         env.pop(PIN_ENV, None)
         pinned = calibration_pin(cfg, out)
         if pinned is not None:  # the workflow uses this calibration and never fits one by itself
             env[PIN_ENV] = json.dumps(pinned, sort_keys=True)
-        locks = out / ".snakemake" / "locks"
-        if locks.is_dir() and any(locks.iterdir()):  # we hold our lock, so Snakemake's is stale
-            subprocess.call(cmd + ["--unlock"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env)
-            print("dascreen: removed the lock left by an interrupted run; resuming", flush=True)
         # the workflow engine inherits the lock's file descriptor: the folder stays locked while it runs, even if
         # this process is killed on its own (before, `kill -9` of dascreen left Snakemake running while
-        # `dascreen status` said "not running" and a second run started in the same folder)
+        # `dascreen status` said "not running" and a second run started in the same folder); the workflow tells
+        # a run started here from a direct one by that descriptor (common.smk), the --unlock call included
         hold = (lock.fileno(),)
+        locks = out / ".snakemake" / "locks"
+        if locks.is_dir() and any(locks.iterdir()):  # we hold our lock, so Snakemake's is stale
+            subprocess.call(cmd + ["--unlock"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env,
+                            pass_fds=hold)
+            print("dascreen: removed the lock left by an interrupted run; resuming", file=sys.stderr, flush=True)
         if verbose or dry_run:
             print("dascreen: snakemake --cores", cores, "in", out, flush=True)
             return _wait(_start(cmd, env, pass_fds=hold))
@@ -602,6 +647,82 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
 
 #: the store lines said last per run folder: a command that starts the workflow twice in one folder says them once
 _STORE_SAID: dict[str, list[str]] = {}
+
+
+def can_write(folder) -> bool:
+    """Whether this process can write in ``folder``, or create it (its nearest existing parent is a folder it can
+    write in).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> can_write(Path(tempfile.mkdtemp()) / "new" / "sub")
+    True
+    """
+    folder = Path(folder).absolute()
+    while not os.path.lexists(folder):
+        if folder.parent == folder:
+            return False
+        folder = folder.parent
+    return folder.is_dir() and os.access(folder, os.W_OK | os.X_OK)
+
+
+def user_folder(xdg: str, fallback: str, environ=None) -> Path:
+    """A user folder as the XDG base-directory rules give it: ``$XDG_CACHE_HOME`` (``xdg``) when set and not blank,
+    else ``~/.cache`` (``fallback``); what Snakemake (through platformdirs) and matplotlib use on Linux.
+
+    Examples
+    --------
+    >>> user_folder("XDG_CACHE_HOME", "~/.cache", {"XDG_CACHE_HOME": "/c"})
+    PosixPath('/c')
+    """
+    given = (os.environ if environ is None else environ).get(xdg, "")
+    return Path(given) if given.strip() else Path(fallback).expanduser()
+
+
+def matplotlib_folders(environ=None) -> tuple[Path, Path]:
+    """matplotlib's configuration and cache folders when ``MPLCONFIGDIR`` is not set (Linux: the XDG folders;
+    elsewhere ``~/.matplotlib``)."""
+    if not sys.platform.startswith(("linux", "freebsd")):
+        return (Path("~/.matplotlib").expanduser(),) * 2
+    return (user_folder("XDG_CONFIG_HOME", "~/.config", environ) / "matplotlib",
+            user_folder("XDG_CACHE_HOME", "~/.cache", environ) / "matplotlib")
+
+
+def matplotlib_unwritable(environ=None) -> bool:
+    """True when ``MPLCONFIGDIR`` is not set and matplotlib's own folders cannot be written (a read-only HOME):
+    matplotlib then prints a two-line warning on each start and rebuilds its font cache every time."""
+    environ = os.environ if environ is None else environ
+    return not environ.get("MPLCONFIGDIR") and not all(map(can_write, matplotlib_folders(environ)))
+
+
+def fallback_folders(out: Path, environ=None) -> dict[str, str]:
+    """Environment variables for the workflow engine when the user's cache folders cannot be written (a read-only
+    HOME); ``{}`` otherwise, so nothing changes for an ordinary user.
+
+    Snakemake creates its source cache in ``$XDG_CACHE_HOME`` (default ``~/.cache``) before it runs anything, and
+    stopped with "Permission denied" (an audit of unusual environments): ``XDG_CACHE_HOME`` becomes
+    ``OUT/.snakemake/cache``. matplotlib (the report's figures) gets ``MPLCONFIGDIR=OUT/.snakemake/matplotlib``
+    when its folders cannot be written. The results store is not affected: its place is handed to the jobs
+    (:data:`screen.store.STORE_ENV`).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> home = tempfile.mkdtemp()
+    >>> fallback_folders(Path("/r"), {"XDG_CACHE_HOME": home, "XDG_CONFIG_HOME": home})
+    {}
+    >>> blocked = tempfile.mkstemp()[1]  # a file: nothing can be created below it
+    >>> fallback_folders(Path("/r"), {"XDG_CACHE_HOME": blocked, "XDG_CONFIG_HOME": home})
+    {'XDG_CACHE_HOME': '/r/.snakemake/cache', 'MPLCONFIGDIR': '/r/.snakemake/matplotlib'}
+    """
+    environ = os.environ if environ is None else environ
+    extra = {}
+    if not can_write(user_folder("XDG_CACHE_HOME", "~/.cache", environ) / "snakemake" / "source-cache"):
+        extra["XDG_CACHE_HOME"] = str(Path(out) / ".snakemake" / "cache")
+    if matplotlib_unwritable(environ):
+        extra["MPLCONFIGDIR"] = str(Path(out) / ".snakemake" / "matplotlib")
+    return extra
 
 
 def _say_store(out: Path, notes: list[str]) -> None:
@@ -726,17 +847,17 @@ def _watch(out: Path, stop: threading.Event, label: str, stream=None, tick: floa
             progress.message("preparing the candidates ...")
             continue
         if not based:
-            progress.rebase(p["done"])
+            progress.rebase(p["done"], p.get("stored", 0))
             based = True
         note = "levels, ranking and report ..." if p["total"] and p["done"] >= p["total"] else \
             f"structures {p['structures']}/{p['total']}"
         if p.get("polymers"):  # the count is of structures: a polymer is several oligomers
             note += f"; {p['oligomers']} of them oligomers of {p['polymers']} polymer(s)"
-        progress.report(p["done"], p["total"], note=note)
+        progress.report(p["done"], p["total"], note=note, stored=p.get("stored", 0))
     try:
         p = run_progress(out, batch)
         if p["prepared"] and progress.bar:
-            progress.report(p["done"], p["total"], note="done")
+            progress.report(p["done"], p["total"], note="done", stored=p.get("stored", 0))
     except OSError:
         pass
     progress.close()

@@ -28,6 +28,7 @@ screen.errors.ConfigError: --set device.eqee=0.7: no field device.eqee; did you 
 from __future__ import annotations
 
 import argparse
+import os
 import re
 from dataclasses import dataclass
 from functools import lru_cache
@@ -699,7 +700,7 @@ def check_run_partners(specs, candidates, rank_options) -> None:
     from screen.rank import RankOptions, partner_role
 
     frame = read_candidates(candidates)
-    roles = frame["role"].fillna("").astype(str).str.strip().str.lower()
+    roles = frame["role"].astype(object).fillna("").astype(str).str.strip().str.lower()
     options = RankOptions.from_mapping(rank_options)
     nan = float("nan")
     for spec in roleless:
@@ -721,8 +722,8 @@ def check_run_partners(specs, candidates, rank_options) -> None:
                                                     f"the role column of {candidates}")) from None
             raise PartnerError(f"partner {quoted(spec.strip())}: its row in {candidates} has no role, and the "
                                "candidates do not imply one (no role column, or both roles in it); set the "
-                               "candidates' role with --role donor|acceptor (config rank.role; the partner takes "
-                               "the other role) or fill the role column of the candidate file") from None
+                               "candidates' role (dascreen's --role donor|acceptor, rank.role in a configuration; the "
+                               "partner takes the other role) or fill the role column of the candidate file") from None
 
 
 # --------------------------------------------------------------------------- the output folder
@@ -754,6 +755,30 @@ def check_out_folder(out, given: str | None = None) -> None:
     parent = next((p for p in out.absolute().parents if p.exists()), None)
     if parent is not None and not parent.is_dir():
         raise ConfigError(f"--out {given}: {parent} is a file, not a folder; choose an --out folder outside it")
+
+
+def check_out_writable(out, given: str | None = None, what: str = "") -> None:
+    """Refuse an ``--out`` this process cannot write in (or create), before any work (one message, exit code 2).
+
+    ``what``: what goes there, said when the folder exists (e.g. ``" (the ranking goes to OUT/rankings)"``).
+    ``dascreen rank`` into a read-only folder said "…/rankings: Permission denied" after ranking, while ``dascreen
+    run`` said "--out … is not writable" (an audit of unusual environments).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> check_out_writable(Path(tempfile.mkdtemp()) / "new")
+    """
+    out = Path(out)
+    given = str(out) if given is None else given
+    if out.is_dir():
+        if not os.access(out, os.W_OK | os.X_OK):
+            raise ConfigError(f"--out {given} is not writable{what}; choose a folder you can write to")
+        return
+    parent = next((p for p in out.absolute().parents if p.exists()), None)
+    if parent is not None and parent.is_dir() and not os.access(parent, os.W_OK | os.X_OK):
+        raise ConfigError(f"--out {given}: cannot create it, {parent} is not writable; choose a folder you can "
+                          "write to")
 
 
 def make_out_folder(out, given: str | None = None) -> None:
@@ -943,15 +968,28 @@ def _writable(folder: Path) -> bool:
 
 
 def run_active(out) -> bool:
-    """True while a ``dascreen`` process holds the run lock of ``out`` (``.dascreen.lock``)."""
+    """True while a ``dascreen`` process holds the run lock of ``out`` (``.dascreen.lock``).
+
+    Only looks: no lock file is created, and one this process may not write (a run folder shared read-only) is
+    opened for reading and tested with a shared lock, which a running ``dascreen``'s exclusive lock refuses
+    (before, ``dascreen status`` of such a folder stopped with "Permission denied").
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> folder = Path(tempfile.mkdtemp())
+    >>> run_active(folder), (folder / ".dascreen.lock").exists()
+    (False, False)
+    """
     import fcntl
 
     lock = Path(out) / ".dascreen.lock"
     if not lock.is_file():
         return False
-    with open(lock, "a") as fh:
+    writable = os.access(lock, os.W_OK)
+    with open(lock, "a" if writable else "r") as fh:
         try:
-            fcntl.flock(fh, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            fcntl.flock(fh, (fcntl.LOCK_EX if writable else fcntl.LOCK_SH) | fcntl.LOCK_NB)
         except BlockingIOError:
             return True
         fcntl.flock(fh, fcntl.LOCK_UN)

@@ -30,13 +30,14 @@ from screen.columns import SIGMA_COLUMNS
 from screen.config import Config
 from screen.device import DeviceModel
 from screen.devicepars import device_tests
+from screen.errors import InputError
 from screen.partners import Partner, PartnerError, resolve_partner
 from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, partner_role, rank_candidates)
 from screen.rank_rows import shortlist_mask
 
 __all__ = ["write_shortlist", "shortlist_notice", "longest_oligomers", "computed_geometries", "settings_hash",
            "ranking_folder", "levels_suffix", "set_aside_foreign", "read_ranked_levels", "check_before_computing",
-           "run_rank"]
+           "run_rank", "check_writable"]
 
 
 # --------------------------------------------------------------------------- outputs
@@ -417,8 +418,10 @@ def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int, scale:
             records.append(mol)
             sources[source.removesuffix("_polymer")] += 1
     if records:
-        with atomic_path(target) as tmp:
-            writer = Chem.SDWriter(str(tmp))
+        # through a file object: RDKit takes a file name as UTF-8 text, which a folder name that is not UTF-8
+        # (``--out $'lat\\xe9'``) is not (a traceback, "surrogates not allowed")
+        with atomic_path(target) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
+            writer = Chem.SDWriter(fh)
             for mol in records:
                 writer.write(mol)
             writer.close()
@@ -608,7 +611,7 @@ def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, mo
     from screen.provenance import code_revision
 
     flags = pd.Series([f for s in ranking["flags"] for f in str(s).split(";") if f]).value_counts()
-    status = (levels["status"].fillna("").astype(str).str.strip().str.lower() if "status" in levels
+    status = (levels["status"].astype(object).fillna("").astype(str).str.strip().str.lower() if "status" in levels
               else pd.Series("ok", index=levels.index))
     levels_meta = dict(meta_in) if isinstance(meta_in, dict) else {}
     if levels_meta and "calibration" not in levels_meta:
@@ -654,7 +657,7 @@ def _structure_keys(levels: pd.DataFrame) -> dict:
     """Structure key by SMILES of the computed rows of a levels table (empty without a key column)."""
     if "key" not in levels or "smiles" not in levels:
         return {}
-    rows = levels[levels["key"].fillna("").astype(str).str.len() > 0]
+    rows = levels[levels["key"].astype(object).fillna("").astype(str).str.len() > 0]
     return dict(zip(rows["smiles"].astype(str), rows["key"].astype(str)))
 
 
@@ -663,6 +666,31 @@ def _shortlist_keys(ranking: pd.DataFrame, keys: dict, options: RankOptions, oli
     top = ranking[shortlist_mask(ranking)].head(int(options.shortlist_size))
     own = [keys.get(s, "") for s in top["smiles"]]
     return own + [oligomers[k][1] for k in own if k in oligomers]
+
+
+def check_writable(target: Path, levels_path) -> None:
+    """Refuse a ranking folder this process cannot write (or create), before anything is ranked or said.
+
+    A read-only ranking folder got "replacing the ranking in …" and then "….ranking.csv.<x>.tmp: Permission
+    denied" (an audit of unusual environments).
+
+    Raises
+    ------
+    InputError
+        Naming the folder that cannot be written and the fix.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> check_writable(Path(tempfile.mkdtemp()) / "rankings" / "y6--0", "levels.csv")
+    """
+    folder = Path(target)
+    while not folder.exists() and folder.parent != folder:
+        folder = folder.parent
+    if folder.is_dir() and not os.access(folder, os.W_OK | os.X_OK):
+        what = "its folder" if folder == Path(target) else f"{folder}, where it would be created,"
+        raise InputError(f"cannot write the ranking {target}: {what} is not writable; make it writable, or rank "
+                         f"into a folder of your own (--out NEW_FOLDER --levels {levels_path})")
 
 
 def _check_target(target: Path, partner: Partner, levels_path: Path, levels_sha: str) -> bool:
@@ -923,6 +951,8 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     levels = read_ranked_levels(levels_path)
     meta_in = _levels_meta(levels_path)
     partner = _partner(partner_spec, levels, levels_path, meta_in, out_dir, partner_levels)
+    check_writable(out_dir / "rankings" / (ranking_folder(partner.slug, cfg) + levels_suffix(levels_path, out_dir)),
+                   levels_path)
     model = DeviceModel(**cfg["device"])
     options = RankOptions.from_mapping(cfg["rank"])
     lap("read_s")

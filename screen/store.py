@@ -54,11 +54,11 @@ from screen.errors import InputError
 from screen.options import EARLIER_PROTOCOL_VALUES, EARLIER_ROUTE_VALUES, route_structures
 from screen.provenance import package_version
 
-__all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "StoreProblem", "StoreReadOnly", "library_versions",
-           "other_library_versions", "damaged_store_text", "run_store", "run_store_check", "run_store_lines",
-           "store_override_note", "stage_protocol", "stage_protocol_id", "geometry_hash", "earlier_structures_id",
-           "store_location", "open_store", "resolve_store", "store_text", "export_store", "structures_cache",
-           "electronic_cache", "store_row"]
+__all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "StoredRecord", "StoreProblem", "StoreReadOnly",
+           "library_versions", "other_library_versions", "damaged_store_text", "run_store", "run_store_check",
+           "run_store_lines", "store_override_note", "stage_protocol", "stage_protocol_id", "geometry_hash",
+           "earlier_structures_id", "store_location", "open_store", "resolve_store", "store_text", "export_store",
+           "structures_cache", "electronic_cache", "store_row"]
 
 #: environment variable naming the store file (overrides ``store.path``; empty disables the store)
 STORE_ENV = "DASCREEN_STORE"
@@ -388,6 +388,7 @@ class ResultStore:
             self.read_only_reason = reason
             return self._conn
         self.path.parent.mkdir(parents=True, exist_ok=True)
+        _create_empty(self.path)
         conn = None
         try:
             conn = sqlite3.connect(str(self.path), timeout=self.timeout_s, isolation_level=None)
@@ -610,6 +611,32 @@ def _checked(payload: str, sha: str, stage: str, key: str, protocol_id: str, geo
 
 # --------------------------------------------------------------------------- the stages' side
 
+def _create_empty(path: Path) -> None:
+    """Create a new store file empty with the permissions the umask gives (``0o666 & ~umask``; SQLite then makes
+    it a database, and its ``-wal`` and ``-shm`` files take its permissions). SQLite creates a file itself with
+    ``rw-r--r--`` at most, so a group sharing a store under umask 002 could not write it (an audit of unusual
+    environments). Nothing happens when the file exists or cannot be created (SQLite says why)."""
+    try:
+        os.close(os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666))
+    except OSError:
+        pass
+
+
+class StoredRecord(dict):
+    """A journal record rebuilt from the results store: a dict like any record, whose journal line is marked
+    (:attr:`screen.io.Journal.STORE_FIELD`) so the progress display leaves it out of the rate; the record read
+    back from the journal is the same plain dict.
+
+    Examples
+    --------
+    >>> rec = StoredRecord({"key": "m1"})
+    >>> rec == {"key": "m1"}, rec.from_store
+    (True, True)
+    """
+
+    from_store = True
+
+
 class StoreCache:
     """What a compute stage's per-molecule loop asks the store (:func:`screen.batch.run_journalled`).
 
@@ -670,7 +697,7 @@ class StoreCache:
             self.misses += 1
             return None
         self.hits += 1
-        return {**rec, **self._base(item), "key": self._key(item)}
+        return StoredRecord({**rec, **self._base(item), "key": self._key(item)})
 
     def protocol_of(self, item) -> tuple[dict, str]:
         """The stage protocol of ``item`` and its id (:attr:`options` unless ``idle(item)`` names values)."""

@@ -418,7 +418,7 @@ def cmd_dyecell(args) -> int:
     from screen.dyecell.library import resolve_material
     from screen.dyecell.stage import levels_tag, own_levels, record_inputs, run_dyecell
     from screen.preflight import (check_calibration, check_candidates, check_out, check_out_folder,
-                                  check_rank_config, check_rank_sets, make_out_folder)
+                                  check_out_writable, check_rank_config, check_rank_sets, make_out_folder)
 
     if args.list:
         _print_libraries()
@@ -429,6 +429,7 @@ def cmd_dyecell(args) -> int:
                           "existing levels or dye file")
     out = Path(args.out).resolve()
     check_out_folder(out, args.out)
+    check_out_writable(out, args.out)  # before any work, as `dascreen rank` and `run` do
     if args.levels is not None:  # before anything is computed: a typo was found after the dye reference set
         _check_levels_file(args.levels, args.out)
     if not (args.candidates or args.refit):  # a re-ranking: settings of how levels are computed cannot apply

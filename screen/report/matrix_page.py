@@ -26,7 +26,6 @@ True
 from __future__ import annotations
 
 import math
-import os
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -244,9 +243,10 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
 
 
 def write_overview(matrix: pd.DataFrame, meta: dict, target) -> Path:
-    """Write :func:`render_overview` to ``target`` atomically (readable by all)."""
+    """Write :func:`render_overview` to ``target`` atomically, with the permissions the umask gives like every
+    other output (:func:`screen.io.atomic_path`; a fixed ``rw-r--r--`` kept a group sharing the folder under
+    umask 002 from replacing it)."""
     target = Path(target)
     with atomic_path(target) as tmp:
         tmp.write_text(render_overview(matrix, meta), encoding="utf-8")
-    os.chmod(target, 0o644)
     return target
