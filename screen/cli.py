@@ -1234,6 +1234,10 @@ def _console_streams() -> None:
     that is not UTF-8 is written as that byte, as the C locale's ``surrogateescape`` does
     (:func:`_console_errors`). A stream with another handler (``backslashreplace``, standard error's) or one that
     replaced the console's is left as it is."""
+    if sys.stdout is None:  # started with standard output closed (`dascreen partners >&-`): print nowhere (a review:
+        sys.stdout = open(os.devnull, "w", encoding="utf-8")  # noqa: SIM115 - an AttributeError traceback before)
+    if sys.stderr is None:
+        sys.stderr = open(os.devnull, "w", encoding="utf-8")  # noqa: SIM115
     for stream, console in ((sys.stdout, sys.__stdout__), (sys.stderr, sys.__stderr__)):
         if stream is not console:  # replaced (a test's capture, a program that calls main): left as it is
             continue

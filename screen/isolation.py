@@ -28,6 +28,7 @@ import multiprocessing as mp
 import os
 import signal
 import sys
+import threading
 from collections.abc import Callable
 
 from screen.errors import EXIT_USAGE, CalculationError, DascreenError
@@ -54,18 +55,30 @@ class MainGuardMissing(DascreenError):
 _NO_GUARD_EXIT = 86
 
 _GUARD_FIX = ('put the script\'s work under `if __name__ == "__main__":` (every worker process imports the script '
-              'again and would run it too; see docs/python.md), or compute in this process (execution.isolate: '
-              'false, or isolate=False), where a native crash then stops the script')
+              'again and would run it too; see docs/python.md); the molecules\' own workers can also be avoided with '
+              'execution.isolate: false (isolate=False), where a native crash then stops the script, but the '
+              'time-limited ring-perception check of large macrocycles always uses a worker')
 
 
 def _is_main_test(test: ast.expr) -> str | None:
-    """``"=="`` or ``"!="`` when ``test`` compares ``__name__`` with ``"__main__"`` (either order), else None."""
-    if not (isinstance(test, ast.Compare) and len(test.ops) == 1 and isinstance(test.ops[0], (ast.Eq, ast.NotEq))):
+    """``"!="`` when ``test`` is ``__name__ != "__main__"`` (either order), ``"=="`` for any other test that
+    involves ``__name__`` and ``"__main__"`` (``==``, ``in ("__main__",)``, ``... and len(sys.argv) > 1``), else None.
+
+    A test the rule reads as a guard although it is not one is caught in the child instead (:func:`_bootstrapping`);
+    a real guard read as none would refuse a correct script (a review: ``and`` and ``in`` forms were refused).
+
+    Examples
+    --------
+    >>> [_is_main_test(ast.parse(t, mode="eval").body) for t in ('__name__ == "__main__"', '"__main__" != __name__',
+    ...  '__name__ in ("__main__",)', '__name__ == "__main__" and x', 'x > 1')]
+    ['==', '!=', '==', '==', None]
+    """
+    names = [n for n in ast.walk(test) if isinstance(n, ast.Name) and n.id == "__name__"]
+    mains = [n for n in ast.walk(test) if isinstance(n, ast.Constant) and n.value == "__main__"]
+    if not names or not mains:
         return None
-    sides = [test.left, test.comparators[0]]
-    named = any(isinstance(x, ast.Name) and x.id == "__name__" for x in sides)
-    main = any(isinstance(x, ast.Constant) and x.value == "__main__" for x in sides)
-    return ("==" if isinstance(test.ops[0], ast.Eq) else "!=") if named and main else None
+    plain_not_equal = (isinstance(test, ast.Compare) and len(test.ops) == 1 and isinstance(test.ops[0], ast.NotEq))
+    return "!=" if plain_not_equal else "=="
 
 
 def _guarded_lines(source: str) -> list[tuple[int, int]]:
@@ -132,20 +145,25 @@ def _no_script_to_import():
     .../<stdin>``: every molecule of a ``python -`` session failed); without it the child starts as it does from
     a notebook or an interactive session.
     """
-    main = sys.modules.get("__main__")
-    path = getattr(main, "__file__", None) if main is not None else None
-    hide = False
-    if path and getattr(getattr(main, "__spec__", None), "name", None) is None:
-        full = path if os.path.isabs(path) else os.path.join(mp.process.ORIGINAL_DIR or os.getcwd(), path)
-        hide = not os.path.isfile(full) or full.endswith(".ipynb")
-    if not hide:
-        yield
-        return
-    del main.__file__
-    try:
-        yield
-    finally:
-        main.__file__ = path
+    with _HIDE_LOCK:  # threads starting workers at once must not hide and restore it under each other (a review)
+        main = sys.modules.get("__main__")
+        path = getattr(main, "__file__", None) if main is not None else None
+        hide = False
+        if path and getattr(getattr(main, "__spec__", None), "name", None) is None:
+            full = path if os.path.isabs(path) else os.path.join(mp.process.ORIGINAL_DIR or os.getcwd(), path)
+            hide = not os.path.isfile(full) or full.endswith(".ipynb")
+        if not hide:
+            yield
+            return
+        del main.__file__
+        try:
+            yield
+        finally:
+            main.__file__ = path
+
+
+#: held while a worker starts with the main module's ``__file__`` hidden (:func:`_no_script_to_import`)
+_HIDE_LOCK = threading.Lock()
 
 
 def _bootstrapping() -> bool:

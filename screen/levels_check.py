@@ -142,17 +142,17 @@ def _unit_slip_levels(homo: float, lumo: float, gap: float, film: bool) -> list:
     >>> _unit_slip_levels(-5.8, -0.5, 2.9, False)  # a gas-scale LUMO of -0.5 eV is real (EA 0.5 eV)
     []
     >>> print(_unit_slip_levels(-5.4, -0.14, 1.5, True)[0][2])
-    a film LUMO of -0.14 eV is no organic semiconductor's (film LUMOs lie at about -2...-4.5 eV); -0.14 looks like hartree: write -0.14 × 27.2114 = -3.81 eV (1 Eh = 27.2114 eV, CODATA)
+    a film LUMO of -0.14 eV is no organic semiconductor's (film LUMOs lie below about -1.5 eV, wide-gap hosts included); -0.14 looks like hartree: write -0.14 × 27.2114 = -3.81 eV (1 Eh = 27.2114 eV, CODATA)
     """
     out = []
     homo_slip = math.isfinite(homo) and HOMO_MAX_EV < homo <= 0
     if homo_slip:
         hint = _hartree_hint(homo, LEVEL_MIN_EV, HOMO_MAX_EV) or "check the units (eV) and the sign"
         out.append(("homo_ev", homo, f"a HOMO of {_fmt(homo)} eV is no material's (HOMO = -IP: film HOMOs of organic "
-                                     f"semiconductors lie at about -4.5...-7 eV); {hint}"))
+                                     f"semiconductors lie at about -4.5...-7 eV, deep acceptors lower); {hint}"))
     if math.isfinite(lumo) and HOMO_MAX_EV < lumo <= 0 and (homo_slip or (film and lumo > FILM_LUMO_MAX_EV)):
         hint = _hartree_hint(lumo, LEVEL_MIN_EV, FILM_LUMO_MAX_EV) or "check the units (eV) and the sign"
-        said = "beside this HOMO" if homo_slip else "(film LUMOs lie at about -2...-4.5 eV)"
+        said = "beside this HOMO" if homo_slip else "(film LUMOs lie below about -1.5 eV, wide-gap hosts included)"
         out.append(("lumo_ev", lumo, f"a {'film ' if film else ''}LUMO of {_fmt(lumo)} eV is no organic "
                                      f"semiconductor's {said}; {hint}"))
     if out and math.isfinite(gap) and 0 < gap < HARTREE_GAP_MAX_EV:
@@ -163,11 +163,14 @@ def _unit_slip_levels(homo: float, lumo: float, gap: float, film: bool) -> list:
 
 
 def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict | None = None,
-                 deficit: bool = True) -> list:
+                 deficit: bool = True, typed: bool = True) -> list:
     """Problems of one material's levels: ``(column, value, message)`` triples ([] if sane).
 
     NaN values are not problems here (the ranking marks them ``input_missing``).
-    ``deficit=False`` skips the film-scale check of an optical gap far below LUMO − HOMO.
+    ``deficit=False`` skips the film-scale check of an optical gap far below LUMO − HOMO. ``typed=False`` (levels
+    computed by dascreen) skips the unit-slip check of levels in hartree: a computed film LUMO of −0.8 eV (furan)
+    is a small molecule outside the screen, not a slip (a review: it was called inconsistent, a computed partner
+    refused).
 
     Examples
     --------
@@ -192,7 +195,7 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
         if math.isfinite(val) and val < LEVEL_MIN_EV:
             out.append((col, val, f"{val:g} eV is not a frontier level; levels are in eV (not meV or kJ/mol), "
                                   "e.g. -5.3"))
-    if not out:
+    if not out and typed:
         out += _unit_slip_levels(homo, lumo, gap, film)
     if math.isfinite(homo) and math.isfinite(lumo) and not out and abs(homo - lumo) <= _ROUND_EV:
         out.append(("homo_ev", homo, f"HOMO and LUMO are equal ({_fmt(homo)}): that is a zero transport gap, which "
@@ -400,7 +403,7 @@ def inconsistent_rows(frame: pd.DataFrame) -> np.ndarray:
                else np.full(len(frame), np.nan)) for c in ("homo_ev", "lumo_ev", "gap_opt_ev")}
     scale = frame["scale"].astype(str).to_numpy() if "scale" in frame else np.full(len(frame), "film")
     return np.array([bool(row_problems(num["homo_ev"][i], num["lumo_ev"][i], num["gap_opt_ev"][i], scale[i],
-                                       deficit=False)) for i in range(len(frame))], dtype=bool)
+                                       deficit=False, typed=False)) for i in range(len(frame))], dtype=bool)
 
 
 def check_partner(partner) -> None:
@@ -417,7 +420,7 @@ def check_partner(partner) -> None:
     typed = getattr(partner, "kind", "file") in ("file", "library")
     sig = {c: float(getattr(partner, c, 0.0) or 0.0) for c in _SIGMAS} if typed else {}
     problems = row_problems(float(partner.homo_ev), float(partner.lumo_ev), float(partner.gap_opt_ev), partner.scale,
-                            sig)
+                            sig, typed=typed)
     if problems:
         where = f"{partner.kind} {partner.spec}" if getattr(partner, "spec", "") else partner.kind
         col, val, msg = problems[0]

@@ -345,6 +345,32 @@ def _xtb_optimise(numbers: np.ndarray, positions_a: np.ndarray, engine: Engine,
     return atoms.get_positions(), converged
 
 
+def _neutral_closed_shell(mol: Chem.Mol) -> None:
+    """Refuse a molecule the electronic stage would compute in a state it is not in.
+
+    The engine computes the neutral as a closed-shell singlet and the ions as doublets; a dication given through
+    the Python stage functions (``PrepareOptions(allow_charged=True)``) came out as its neutral reduced form
+    (a referee's check: methyl viologen, xTB IP 8.9 eV). The prepare stage refuses these rows already; this is the
+    last guard for every route.
+
+    Examples
+    --------
+    >>> _neutral_closed_shell(Chem.MolFromSmiles("c1ccsc1"))
+    >>> _neutral_closed_shell(Chem.MolFromSmiles("C[n+]1ccc(-c2cc[n+](C)cc2)cc1"))
+    Traceback (most recent call last):
+    ...
+    ValueError: net charge +2: levels are computed for neutral closed-shell molecules only (the engine would compute the neutral form)
+    """
+    charge = Chem.GetFormalCharge(mol)
+    if charge:
+        raise ValueError(f"net charge {charge:+d}: levels are computed for neutral closed-shell molecules only (the "
+                         "engine would compute the neutral form)")
+    electrons = sum(a.GetAtomicNum() + a.GetTotalNumHs() for a in mol.GetAtoms())
+    if electrons % 2 or any(a.GetNumRadicalElectrons() for a in mol.GetAtoms()):
+        raise ValueError("radical or odd-electron species: levels are computed for neutral closed-shell molecules "
+                         "only (the engine would compute a singlet)")
+
+
 def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
                     engine: Engine | None = None, *, return_singlepoint: bool = False):
     """Make the screening geometry of one molecule.
@@ -389,6 +415,7 @@ def build_structure(smiles: str, options: StructureOptions = StructureOptions(),
     mol = Chem.MolFromSmiles(smiles)
     if mol is None:
         raise ValueError(f"SMILES does not parse: {smiles!r}")
+    _neutral_closed_shell(mol)
     cuts: list[str] = []
     if options.truncate_side_chains:
         mol, cuts = truncate_side_chains(mol, options.truncate_min_carbons)

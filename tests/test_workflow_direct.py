@@ -248,3 +248,23 @@ def test_out_is_normalised_and_the_sidecars_record_absolute_paths(run):
     rank_meta = json.loads((run["ranking"].parent / "ranking.meta.json").read_text())
     assert str(run["out"]) in json.dumps(rank_meta) and "res//" not in json.dumps(rank_meta)
 
+
+
+# --------------------------------------------------------------------------- a review of the direct-run changes
+
+def test_a_missing_candidate_file_is_refused_in_a_direct_run(run, tmp_path):
+    # a finished run re-ran levels and rank from its old batch and recorded the missing file as its input
+    proc = _smk(run, "--config", f"candidates={tmp_path / 'nonexist.csv'}")
+    assert proc.returncode == 2, _text(proc)[-2000:]
+    assert "nonexist.csv is not a file" in proc.stderr
+
+
+def test_an_open_but_unlocked_descriptor_is_no_held_lock(run):
+    # `9<OUT/.dascreen.lock` while another process holds the lock passed as "started by dascreen" (a review)
+    lock = run["out"] / ".dascreen.lock"
+    lock.touch()
+    with open(lock) as held:  # another run's lock: its own open file description
+        fcntl.flock(held, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        with open(lock) as fd:  # the same file opened again and handed down, not locked
+            proc = _smk(run, "--forcerun", "rank", pass_fds=(fd.fileno(),))
+    assert proc.returncode != 0 and "another run is using" in _text(proc), _text(proc)[-2000:]

@@ -1,5 +1,6 @@
 # Shared definitions: resolved configuration, output locations, helpers.
 import copy
+import fcntl
 import json
 import os
 import sys
@@ -86,6 +87,12 @@ def inherited_run_lock(out):
         except OSError:
             continue
         if (st.st_dev, st.st_ino) == (lock.st_dev, lock.st_ino):
+            # an open descriptor is not yet a held lock (a review: `9<OUT/.dascreen.lock` passed while another run
+            # held it): this succeeds on the descriptor that holds the lock, or on a free one (then it holds it)
+            try:
+                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except OSError:
+                return False
             return True
     return False
 
@@ -118,6 +125,9 @@ HOLDS_LOCK = inherited_run_lock(OUT)
 # they hold the lock and always set DASCREEN_STORE for the workflow. Neither alone tells: users set DASCREEN_STORE
 # for direct runs too, and may hold the lock with flock(1)
 LAUNCHED = HOLDS_LOCK and STORE_ENV in os.environ
+if MAIN and not LAUNCHED and not os.path.isfile(CFG["candidates"]):
+    # a finished run re-ran levels and rank from its old batch and recorded the missing file as its input (a review)
+    refuse(f"candidates: {INPUTS['candidates']} is not a file; give the candidate file (--config candidates=FILE)")
 
 # Settings that change no number reach the jobs through the environment, never through params (a change of a
 # param re-runs the job): execution.* (screen.stages reads DASCREEN_EXECUTION) and the results store

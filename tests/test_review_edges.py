@@ -1,0 +1,68 @@
+"""Edges a review of the round's changes found: the hartree check on computed levels, script guards written with
+``and``/``in``, a closed standard output, and the known-bias note naming only the row's own family."""
+
+from __future__ import annotations
+
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from screen.isolation import _guarded_lines
+from screen.levels_check import inconsistent_rows, row_problems
+
+
+def test_a_computed_shallow_lumo_is_no_unit_slip() -> None:
+    # dascreen's film levels of furan (computed, 2026-12-05): LUMO -0.789 eV, a small molecule outside the screen;
+    # typed by a person the same numbers look like hartree and are refused with the conversion
+    homo, lumo, gap = -6.27, -0.789, 4.9
+    assert not inconsistent_rows(pd.DataFrame({"homo_ev": [homo], "lumo_ev": [lumo], "gap_opt_ev": [gap],
+                                               "scale": ["film"]})).any()
+    assert not row_problems(homo, lumo, gap, "film", deficit=False, typed=False)
+    typed = row_problems(homo, lumo, gap, "film")
+    assert typed and typed[0][0] == "lumo_ev" and "check the units" in typed[0][2]
+
+
+def test_guards_written_with_and_or_in_are_guards() -> None:
+    source = ('import sys\n'
+              'if __name__ == "__main__" and len(sys.argv) >= 1:\n    run()\n'
+              'if __name__ in ("__main__",):\n    run()\n'
+              'if "__main__" != __name__:\n    pass\nelse:\n    run()\n'
+              'if len(sys.argv) > 1:\n    run()\n')
+    assert _guarded_lines(source) == [(3, 3), (5, 5), (9, 9)]
+
+
+def test_a_closed_standard_output_is_no_traceback(tmp_path: Path) -> None:
+    exe = shutil.which("dascreen", path=str(Path(sys.executable).parent))
+    assert exe
+    done = subprocess.run(["sh", "-c", f'exec "{exe}" partners >&-'], capture_output=False, stderr=subprocess.PIPE,
+                          text=True, cwd=tmp_path, timeout=120)
+    assert done.returncode == 0 and "Traceback" not in done.stderr, done.stderr
+
+
+def test_each_known_family_has_its_own_note() -> None:
+    from screen.flags import FLAGS
+    from screen.rank import _has_family
+
+    codes = np.array(["dpp", "ndi_polymer", "dpp+ndi_polymer", ""], dtype=object)
+    assert _has_family(codes, "dpp").tolist() == [True, False, True, False]
+    assert _has_family(codes, "ndi_polymer").tolist() == [False, True, True, False]
+    # a new user's audit: the DPP donors' note told them what an NDI acceptor's bias does
+    assert "naphthalene" not in FLAGS["known_family_bias"].text
+    assert "diketopyrrolopyrrole" not in FLAGS["known_family_bias_ndi"].text
+
+
+def test_the_geometry_step_refuses_a_charged_molecule_from_any_route() -> None:
+    # a referee's check: PrepareOptions(allow_charged=True) through the Python stage functions still computed methyl
+    # viologen's dication as its neutral (xTB IP 8.9 eV; a dication's gas-phase IP lies well above 10 eV, from memory)
+    import pytest
+
+    from screen.structures import build_structure
+
+    with pytest.raises(ValueError, match=r"net charge \+2: levels are computed for neutral closed-shell"):
+        build_structure("C[n+]1ccc(-c2cc[n+](C)cc2)cc1")
+    with pytest.raises(ValueError, match="radical or odd-electron"):
+        build_structure("CC(C)(C)c1cc(C(C)(C)C)c([O])c(C(C)(C)C)c1")
