@@ -142,16 +142,16 @@ _REGISTRY = (
     Flag("far_from_reference", "unlike every reference material of the calibration (fingerprint similarity "
                                "below 0.30, or an element that no reference material contains): its levels are "
                                "extrapolated and carry a wide σ", "info"),
-    Flag("known_family_bias", "a structure family whose calibrated levels are off held out (levels.csv column "
-                              "known_bias names it; nothing is corrected). dpp, a diketopyrrolopyrrole core: this "
-                              "family's film gaps come out 0.15–0.54 eV too wide and its HOMOs up to 0.34 eV too "
-                              "deep (the force field twists the bonds to the flanking rings; "
-                              "benchmarks/dpp_geometry.py), so its Voc and rank lean high. ndi_polymer, a "
-                              "naphthalene diimide on a polymer backbone: this family's film gaps come out "
-                              "0.24–0.25 eV too narrow and its LUMOs 0.28–0.31 eV too deep on the default protocol "
-                              "(0.04–0.15 and 0.15 eV on xTB geometries; benchmarks/known_bias.py), so as an "
-                              "acceptor its Jsc and PCE lean high and its Voc can sit on the loss floor of its own gap",
-         "info"),
+    Flag("known_family_bias", "diketopyrrolopyrrole core (levels.csv known_bias dpp): held out, this family's film "
+                              "gaps come out 0.36–0.53 eV too wide and its HOMOs 0.16–0.34 eV too deep on the default "
+                              "protocol (0.25–0.26 and 0.08–0.23 eV on xTB geometries; the force field twists the "
+                              "bonds to the flanking rings, benchmarks/dpp_geometry.py), so its Voc and rank lean high; "
+                              "nothing is corrected", "info"),
+    Flag("known_family_bias_ndi", "naphthalene diimide on a polymer backbone (levels.csv known_bias ndi_polymer): held "
+                                  "out, this family's film gaps come out 0.24–0.25 eV too narrow and its LUMOs "
+                                  "0.28–0.31 eV too deep on the default protocol (0.04–0.15 and 0.15 eV on xTB "
+                                  "geometries; benchmarks/known_bias.py), so as an acceptor its Jsc and PCE lean high "
+                                  "and its Voc can sit on the loss floor of its own gap; nothing is corrected", "info"),
     Flag("chain_fit_poor", "polymer: the chain-limit extrapolation of its oligomers is poor for a level or the gap "
                            "(no saturating fit accepted, or a series that has not started to saturate; levels.csv "
                            "note says which); its σ carries the extrapolation spread", "info"),

@@ -580,7 +580,8 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "same_structure": same,
         "same_computed_structure": _same_computed(lv, roles) & ~same,
         "far_from_reference": _far_from_reference(lv),
-        "known_family_bias": _known_bias(lv) != "",
+        "known_family_bias": _has_family(_known_bias(lv), "dpp"),
+        "known_family_bias_ndi": _has_family(_known_bias(lv), "ndi_polymer"),
         "chain_fit_poor": _text(lv, "chain_fit_quality") == "poor",
         "lone_pair_homo": _lone_pair_homo(lv),
         "role_from_levels": roles.role_from_levels,
@@ -693,6 +694,19 @@ def _scale(levels: pd.DataFrame) -> np.ndarray:
     ['film', 'gas']
     """
     return np.array([s.strip().lower() for s in _text(levels, "scale")], dtype=object)
+
+
+def _has_family(codes: np.ndarray, family: str) -> np.ndarray:
+    """Rows whose ``known_bias`` codes (``+``-joined, :data:`screen.knownbias.FAMILIES`) include ``family``; each
+    family has its own flag, so a row's note names only its own family (a new user's audit: the DPP donors were told
+    what an NDI acceptor's bias does).
+
+    Examples
+    --------
+    >>> _has_family(np.array(["dpp", "dpp+ndi_polymer", "", "ndi_polymer"], dtype=object), "dpp").tolist()
+    [True, True, False, False]
+    """
+    return np.array([family in str(c).split("+") for c in codes], dtype=bool)
 
 
 def _known_bias(levels: pd.DataFrame) -> np.ndarray:
