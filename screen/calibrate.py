@@ -70,7 +70,7 @@ from screen.config import Config, data_path
 from screen.conformer_spread import conformer_sigma
 from screen.errors import ConfigError
 from screen.io import write_csv, write_json
-from screen.knownbias import known_bias
+from screen.knownbias import ct_polymer, known_bias
 from screen.provenance import provenance
 
 __all__ = [
@@ -497,7 +497,15 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "fi
                                                                           covered=covered), 3)
     out["known_bias"] = ""
     if "smiles" in out:  # a family whose levels are known to be off held out (screen.knownbias): flagged in ranking
-        out.loc[ok, "known_bias"] = [known_bias(s) for s in sub["smiles"].astype(str)]
+        codes = [known_bias(s) for s in sub["smiles"].astype(str)]
+        rep = sub["representation"] if "representation" in sub else pd.Series("", index=sub.index)
+        gap = sub["xtb_gap_ev"] if "xtb_gap_ev" in sub else pd.Series(np.nan, index=sub.index)
+        ovl = sub["xtb_overlap_hl"] if "xtb_overlap_hl" in sub else pd.Series(np.nan, index=sub.index)
+        for i, (r, g, o) in enumerate(zip(rep, gap, ovl)):
+            # a charge-transfer polymer (screen.knownbias.ct_polymer); an NDI polymer's own flag says it already
+            if ct_polymer(r, g, o) and "ndi_polymer" not in codes[i]:
+                codes[i] = "+".join(c for c in (codes[i], "ct_polymer") if c)
+        out.loc[ok, "known_bias"] = codes
     return out
 
 

@@ -582,6 +582,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "far_from_reference": _far_from_reference(lv),
         "known_family_bias": _has_family(_known_bias(lv), "dpp"),
         "known_family_bias_ndi": _has_family(_known_bias(lv), "ndi_polymer"),
+        "known_family_bias_ct": _has_family(_known_bias(lv), "ct_polymer"),
         "chain_fit_poor": _text(lv, "chain_fit_quality") == "poor",
         "lone_pair_homo": _lone_pair_homo(lv),
         "role_from_levels": roles.role_from_levels,

@@ -55,7 +55,7 @@ def test_what_is_not_the_ndi_polymer_family(name):
 def test_a_dpp_ndi_copolymer_names_both_families_and_dpp_stays_dpp():
     dpp_ndi = ("[*]c1cc2c3c(c(-c4ccc(C5=C6C(=O)N(C)C(c7ccc([*])s7)=C6C(=O)N5C)s4)cc4c3c1C(=O)N(C)C4=O)"
                "C(=O)N(C)C2=O")
-    assert known_bias(dpp_ndi) == "dpp+ndi_polymer" and FAMILIES == ("dpp", "ndi_polymer")
+    assert known_bias(dpp_ndi) == "dpp+ndi_polymer" and FAMILIES == ("dpp", "ndi_polymer", "ct_polymer")
     assert known_bias("[*]c1ccc(C2=C3C(=O)N(C)C(c4ccc(-c5ccc([*])s5)s4)=C3C(=O)N2C)s1") == "dpp"  # PDPP3T
 
 
@@ -121,3 +121,51 @@ def test_the_ranking_flags_an_ndi_polymer_acceptor(cfg):
     flags = ranked.loc["N2200 (P(NDI2OD-T2))", "flags"].split(";")
     # its own family's flag only: the DPP sentence is not told to an NDI polymer (a new user's audit)
     assert "known_family_bias_ndi" in flags and "known_family_bias" not in flags
+
+
+# --------------------------------------------------------------------------- charge-transfer polymers
+
+#: the reference polymers whose tight-binding HOMO and LUMO sit on different units (orbital gap < 1 eV, overlap <
+#: 0.05) on the default protocol, and the flag's range of their held-out film-gap errors [eV] (its own words)
+CT_ROWS = {"PffBT4T-2OD (PCE11)", "PBDTFBT (alkoxy-BDT / thienyl-fluorobenzothiadiazole)"}
+CT_NDI_ROWS = {"N2200 (P(NDI2OD-T2))", "p(gNDI-T2)"}
+CT_GAP_EV = (-0.39, -0.24)
+
+
+def test_charge_transfer_polymers_are_told_by_their_computed_levels(cfg):
+    import pandas as pd
+
+    from screen.knownbias import ct_polymer
+
+    folder = find_models(cfg)
+    raw = pd.read_csv(folder / "reference_raw.csv", keep_default_na=False, na_values=[""])
+    out = apply_models(raw.assign(status="ok"), load_models(folder, cfg))
+    flagged = set(out.loc[out["known_bias"].str.contains("ct_polymer"), "name"])
+    assert flagged == CT_ROWS
+    signature = {n for n, r, g, o in zip(raw["name"], raw["representation"], raw["xtb_gap_ev"], raw["xtb_overlap_hl"])
+                 if ct_polymer(r, g, o)}
+    assert signature == CT_ROWS | CT_NDI_ROWS  # the NDI polymers keep their own family's flag only
+    # the flag's figures: the film-gap model's leave-one-out residuals of the four (models/<protocol>/gap_opt_film.json)
+    residuals = json.loads((folder / "gap_opt_film.json").read_text())["residuals"]
+    errors = [r["loo_ev"] - r["measured_ev"] for r in residuals
+              if r["name"] in signature and r.get("phase_film", 1) == 1]
+    assert len(errors) == 4
+    assert abs(min(errors) - CT_GAP_EV[0]) <= 0.006 and abs(max(errors) - CT_GAP_EV[1]) <= 0.006, errors
+    from screen.flags import FLAGS
+
+    assert f"{-CT_GAP_EV[1]:.2f}–{-CT_GAP_EV[0]:.2f} eV too narrow" in FLAGS["known_family_bias_ct"].text
+
+
+def test_the_ranking_flags_a_charge_transfer_polymer(cfg):
+    import pandas as pd
+
+    from screen.partners import resolve_partner
+    from screen.rank import rank_candidates
+
+    folder = find_models(cfg)
+    raw = pd.read_csv(folder / "reference_raw.csv", keep_default_na=False, na_values=[""])
+    rows = raw[raw["name"].isin(["PffBT4T-2OD (PCE11)", "PM6 (PBDB-T-2F)"])].assign(status="ok", role="donor")
+    out = apply_models(rows.reset_index(drop=True), load_models(folder, cfg))
+    flags = rank_candidates(out, resolve_partner("y6")).set_index("name")["flags"]
+    assert "known_family_bias_ct" in flags["PffBT4T-2OD (PCE11)"].split(";")
+    assert "known_family_bias_ct" not in flags["PM6 (PBDB-T-2F)"].split(";")
