@@ -476,7 +476,9 @@ def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
           f"{'; ' + settings if settings else ''}; {passing} pass the filters; top {min(top, len(table))}:")
     with pd.option_context("display.width", 250, "display.max_columns", 30):
         print(show[cols].to_string(index=False, na_rep="-"))
-    print(f"dascreen: ranking -> {ranking_csv}")
+    report = Path(ranking_csv).parent / "report.html"
+    # the file a reader wants is the report (a new user's audit: the last line named only the CSV)
+    print(f"dascreen: ranking -> {ranking_csv}" + (f"; report -> {report}" if report.is_file() else ""))
 
 
 def _print_ranking_of_run(cfg: Config, out: Path) -> None:

@@ -637,9 +637,11 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
             subprocess.call(cmd + ["--unlock"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env,
                             pass_fds=hold)
             print("dascreen: removed the lock left by an interrupted run; resuming", file=sys.stderr, flush=True)
-        if verbose or dry_run:
+        if verbose:
             print("dascreen: snakemake --cores", cores, "in", out, flush=True)
             return _wait(_start(cmd, env, pass_fds=hold))
+        if dry_run:
+            return _dry_run(cmd, env, out / "logs" / f"{log_name}.dry-run.log", hold)
         return _quiet(cmd, env, out, out / "logs" / f"{log_name}.log", label, hold, batch, explain=explain)
     finally:
         lock.close()
@@ -786,6 +788,40 @@ def _stamp() -> str:
     import time
 
     return time.strftime("%Y-%m-%d %H:%M:%S %z")
+
+
+def job_table(text: str) -> list[str]:
+    r"""The lines of the engine's table of planned jobs (``job  count`` … ``total  N``) in its output, [] if none.
+
+    Examples
+    --------
+    >>> job_table("Building DAG\njob      count\n-------  -----\nprepare      1\ntotal        1\nReasons: ...")
+    ['job      count', '-------  -----', 'prepare      1', 'total        1']
+    """
+    lines = text.splitlines()
+    start = next((i for i, ln in enumerate(lines) if ln.split()[:2] == ["job", "count"]), None)
+    if start is None:
+        return []
+    end = next((i for i in range(start, len(lines)) if lines[i].split()[:1] == ["total"]), len(lines) - 1)
+    return lines[start:end + 1]
+
+
+def _dry_run(cmd: list[str], env: dict, log_path: Path, hold=()) -> int:
+    """A dry run with the engine's whole plan in ``log_path``: the console gets its table of jobs and the log's
+    path (a new user's audit: about 80 lines of the engine's reasons came before the summary of how the
+    candidate file is read)."""
+    log_path.parent.mkdir(parents=True, exist_ok=True)
+    with open(log_path, "w", encoding="utf-8") as log:
+        rc = _wait(_start(cmd, env, stdout=log, stderr=subprocess.STDOUT, pass_fds=tuple(hold)))
+    if rc != 0:
+        cause = failure_cause_in(log_path)
+        print(f"dascreen: the dry run failed{': ' + cause if cause else ''}; its whole log: {log_path}",
+              file=sys.stderr)
+        return rc
+    table = job_table(log_path.read_text(encoding="utf-8", errors="replace"))
+    print("\n".join(["dascreen: dry run: the jobs the workflow would run" if table else
+                      "dascreen: dry run: nothing to run", *table, f"the engine's whole plan: {log_path}"]), flush=True)
+    return rc
 
 
 def _quiet(cmd: list[str], env: dict, out: Path, log_path: Path, label: str, hold=(), batch: str | None = None,

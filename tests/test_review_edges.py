@@ -66,3 +66,18 @@ def test_the_geometry_step_refuses_a_charged_molecule_from_any_route() -> None:
         build_structure("C[n+]1ccc(-c2cc[n+](C)cc2)cc1")
     with pytest.raises(ValueError, match="radical or odd-electron"):
         build_structure("CC(C)(C)c1cc(C(C)(C)C)c([O])c(C(C)(C)C)c1")
+
+
+def test_a_dry_run_prints_the_job_table_and_leaves_the_plan_in_a_log(tmp_path: Path, capfd) -> None:
+    # a new user's audit: about 80 lines of the engine's reasons came before the summary of how the file is read
+    from screen.cli import main
+
+    candidates = tmp_path / "c.csv"
+    candidates.write_text("id,smiles\nT1,c1ccsc1\n", encoding="utf-8")
+    assert main(["run", str(candidates), "--out", str(tmp_path / "out"), "--cores", "1", "--dry-run"]) == 0
+    out, err = capfd.readouterr()
+    assert len(out.splitlines()) < 20, out
+    assert "dry run: the jobs the workflow would run" in out and "prepare" in out
+    plan = tmp_path / "out" / "logs" / "workflow.dry-run.log"
+    assert plan.is_file() and str(plan) in out and "Reasons" in plan.read_text()
+    assert "reads as 1 row" in err
