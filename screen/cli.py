@@ -576,9 +576,13 @@ def cmd_rank(args) -> int:
 
     out = Path(args.out).resolve()
     check_out_folder(out, args.out)
-    # before any work: a read-only folder said "…/rankings: Permission denied" after the ranking
-    check_out_writable(out, args.out, f" (the ranking goes to {out / 'rankings'}; a read-only run's levels are ranked "
-                                      f"with --levels {out / 'levels.csv'} --out NEW_FOLDER)")
+    # before any work: a read-only folder said "…/rankings: Permission denied" after the ranking; the folder the
+    # ranking goes to is what must be writable (a read-only run folder with a writable rankings/ was ranked before)
+    # (a rankings/ folder that exists is checked where the ranking is written, rank_io.check_writable)
+    rankings = out / "rankings"
+    if not rankings.is_dir():
+        check_out_writable(out, args.out, f" (the ranking goes to {rankings}; a read-only run's levels are ranked "
+                                          f"with --levels {out / 'levels.csv'} --out NEW_FOLDER)")
     if args.partner is not None and not split_partners(args.partner):
         raise ConfigError(f"--partner {' '.join(repr(p) for p in args.partner)} names no partner; give a library name "
                           "(`dascreen partners`), a one-row levels CSV, smiles:<SMILES> or id:<ID>, or leave "

@@ -43,7 +43,7 @@ from pathlib import Path
 
 import yaml
 
-from screen.config import Config
+from screen.config import Config, read_problem
 from screen.errors import ConfigError, FolderInUse
 
 __all__ = ["WORKFLOW", "STOP_GRACE_S", "PIN_ENV", "KEEP_LOGS", "ENGINE_OPTIONS_SET", "run_workflow", "error_excerpt",
@@ -381,6 +381,11 @@ def _lock(out: Path):
     except BlockingIOError:
         lock.close()
         raise FolderInUse.of(out) from None
+    except OSError as exc:  # a file system without flock (a cluster's Lustre mounted without -o flock; a review)
+        lock.close()
+        raise ConfigError(f"--out {out}: its file system does not lock files ({read_problem(exc)}), so two runs in "
+                          "it could not be kept apart; choose a folder on a file system with flock (a local disk, "
+                          "or ask for the mount option flock)") from None
     return lock
 
 

@@ -552,3 +552,18 @@ def test_a_deleted_current_folder_is_named(tmp_path):
     assert done.returncode == 2
     line = _one_line(done.stderr)
     assert f"the current folder {gone} no longer exists" in line and "--out results" in line, line
+
+
+def test_a_read_only_run_folder_with_a_writable_rankings_folder_is_ranked(tmp_path):
+    # a review: `rank` refused a read-only OUT although the ranking goes to OUT/rankings, which could be written
+    prefix = _as_user()
+    levels = _levels(tmp_path)
+    assert _run(["rank", "--levels", str(levels), "--out", "out"], tmp_path).returncode == 0
+    out = tmp_path / "out"
+    out.chmod(out.stat().st_mode & ~0o222)  # the run folder alone read-only; rankings/ stays writable
+    try:
+        done = _run(["rank", "--levels", str(levels), "--out", "out", "--partner", "c60"], tmp_path, prefix)
+    finally:
+        out.chmod(out.stat().st_mode | 0o200)
+    assert done.returncode == 0, done.stderr.decode()
+    assert list((out / "rankings").glob("c60--*/ranking.csv"))

@@ -81,3 +81,21 @@ def test_a_dry_run_prints_the_job_table_and_leaves_the_plan_in_a_log(tmp_path: P
     plan = tmp_path / "out" / "logs" / "workflow.dry-run.log"
     assert plan.is_file() and str(plan) in out and "Reasons" in plan.read_text()
     assert "reads as 1 row" in err
+
+
+def test_a_file_system_without_flock_is_refused_in_one_line(tmp_path: Path, monkeypatch) -> None:
+    # a review: Lustre mounted without `-o flock` raises OSError (not BlockingIOError) and gave a traceback
+    import errno
+    import fcntl
+
+    import pytest
+
+    from screen import launch
+    from screen.errors import ConfigError
+
+    def no_flock(*_args):
+        raise OSError(errno.ENOLCK, "No locks available")
+
+    monkeypatch.setattr(fcntl, "flock", no_flock)
+    with pytest.raises(ConfigError, match="does not lock files"):
+        launch._lock(tmp_path)
