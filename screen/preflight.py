@@ -1200,6 +1200,13 @@ def _calibration_gap(cfg, out=None) -> tuple[str, Path | None, list[CalibrationD
         why = f"{models} does not exist" if not models.exists() else f"{models} is a file, not a folder"
     elif folder is None:
         why = f"{models} holds no calibration"
+        from screen.config import PACKAGE_ROOT
+
+        shipped = PACKAGE_ROOT / "models"
+        if models.name == "models" and models.resolve() != shipped.resolve() and shipped.is_dir():
+            # a folder of the working directory named like the default hides the shipped calibration (a review)
+            why += (f"; a models folder of the working directory is used before the shipped one, {shipped}: to use "
+                    f"that, run elsewhere or give --set calibration.models={shipped}")
     elif not diffs:
         why = f"{folder} has this run's settings but its model files are incomplete or unreadable"
     elif folder.name == pid:

@@ -99,3 +99,17 @@ def test_a_file_system_without_flock_is_refused_in_one_line(tmp_path: Path, monk
     monkeypatch.setattr(fcntl, "flock", no_flock)
     with pytest.raises(ConfigError, match="does not lock files"):
         launch._lock(tmp_path)
+
+
+def test_a_models_folder_in_the_working_directory_is_named_as_hiding_the_shipped_one(tmp_path: Path, monkeypatch,
+                                                                                      capsys) -> None:
+    # a review: an empty ./models (a machine-learning project's) hid the shipped calibration and the message only
+    # suggested fitting one (hours)
+    from screen.cli import main
+
+    (tmp_path / "models").mkdir()
+    (tmp_path / "c.csv").write_text("id,smiles\nT,c1ccsc1\n", encoding="utf-8")
+    monkeypatch.chdir(tmp_path)
+    assert main(["run", "c.csv", "--out", "o", "--dry-run"]) == 2
+    err = capsys.readouterr().err
+    assert "used before the shipped one" in err and "--set calibration.models=" in err and "Traceback" not in err

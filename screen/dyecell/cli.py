@@ -109,7 +109,8 @@ def _print_ranking(path: Path, top: int, listed: frozenset = frozenset()) -> Non
             print(f"  {row['status']:8s} {ident}: {row['error'][:160]}")
         if len(bad) > 20:
             print(f"  ... and {len(bad) - 20} more (see report.html)")
-    print(f"dascreen: ranking -> {path}")
+    report = Path(path).parent / "report.html"
+    print(f"dascreen: ranking -> {path}" + (f"; report -> {report}" if report.is_file() else ""))
 
 
 def _not_ok(levels_csv: Path) -> frozenset:
