@@ -187,7 +187,23 @@ def _run(candidates: Path, work: Path, cfg: Config, folder: Path, verbose: bool)
     write_csv(levels, path)
     if len(sidecar):
         write_csv(sidecar, sidecar_path(path))
+    elif sidecar_path(path).is_file():  # an earlier call's per-n values in a reused workdir (as the levels job)
+        sidecar_path(path).unlink()
     return read_levels(path), store
+
+
+#: the file that marks a folder as a ``levels_of`` work folder, which a later call may write over
+WORKDIR_MARK = ".dascreen-levels-of"
+
+
+def _check_workdir(work: Path) -> None:
+    """Refuse a ``workdir`` that holds files ``levels_of`` did not write (a second API pass: a run folder's
+    ``levels.csv`` and a user's ``candidates.csv`` were overwritten without a word)."""
+    if work.exists() and not work.is_dir():
+        raise InputError(f"levels_of: workdir {work} is a file; give a folder")
+    if work.is_dir() and any(work.iterdir()) and not (work / WORKDIR_MARK).is_file():
+        raise InputError(f"levels_of: workdir {work} already holds files that levels_of did not write (a run folder, "
+                         "a project folder); give an empty or new folder, or one an earlier levels_of call used")
 
 
 def levels_of(smiles, ids=None, config=None, *, roles=None, workdir=None, verbose: bool = False):
@@ -215,8 +231,10 @@ def levels_of(smiles, ids=None, config=None, *, roles=None, workdir=None, verbos
     roles : str or sequence of str, optional
         ``"donor"``, ``"acceptor"``, ``"dye"`` or ``""`` for every row, or one per SMILES (the ``role`` column).
     workdir : path-like, optional
-        Keep the run's files here (``prepared/``, ``structures/``, ``electronic/``, ``levels.csv`` and, with
-        polymers, ``levels.oligomers.csv``: the per-n values); default: a temporary folder, removed after.
+        Keep the run's files here (``candidates.csv``, ``prepared/``, ``structures/``, ``electronic/``,
+        ``levels.csv`` and, with polymers, ``levels.oligomers.csv``: the per-n values); default: a temporary folder,
+        removed after. It must be new, empty or one an earlier call used (marked by a ``.dascreen-levels-of``
+        file): a folder with other files (a run folder) is refused.
     verbose : bool
         Print the results store line and each shard's progress on standard error (warnings are always printed).
 
@@ -267,7 +285,9 @@ def levels_of(smiles, ids=None, config=None, *, roles=None, workdir=None, verbos
     folder = _calibration(cfg)
     with tempfile.TemporaryDirectory(prefix="dascreen-levels-") as tmp:
         work = Path(workdir).expanduser().absolute() if workdir is not None else Path(tmp)
+        _check_workdir(work)
         work.mkdir(parents=True, exist_ok=True)
+        (work / WORKDIR_MARK).touch()
         candidates = _write_candidates(smiles, ids, roles, work)
         from screen.preflight import check_candidates
 

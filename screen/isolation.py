@@ -56,8 +56,9 @@ _NO_GUARD_EXIT = 86
 
 _GUARD_FIX = ('put the script\'s work under `if __name__ == "__main__":` (every worker process imports the script '
               'again and would run it too; see docs/python.md); the molecules\' own workers can also be avoided with '
-              'execution.isolate: false (isolate=False), where a native crash then stops the script, but the '
-              'time-limited ring-perception check of large macrocycles always uses a worker')
+              'the setting execution.isolate: false (levels_of(..., config={"execution": {"isolate": False}}), '
+              'run_compute(..., isolate=False)), where a native crash then stops the script, but the time-limited '
+              'ring-perception check of large macrocycles always uses a worker')
 
 
 def _is_main_test(test: ast.expr) -> str | None:

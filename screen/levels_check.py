@@ -110,16 +110,22 @@ def quoted(value, limit: int = QUOTE_MAX) -> str:
     return f"{text[:limit]!r}… ({len(text)} characters)"
 
 
+#: where a level or gap read as hartree must land for the hint to be offered [eV]: real film HOMOs, LUMOs and optical
+#: gaps of organic semiconductors (from memory; an adversarial check: LUMO −0.45 beside a HOMO of −5.4 eV was told to
+#: be −12.25 eV)
+HARTREE_HOMO_EV, HARTREE_LUMO_EV, HARTREE_GAP_EV = (-9.0, -4.0), (-5.5, -1.5), (0.5, 5.0)
+
+
 def _hartree_hint(value: float, low: float, high: float) -> str:
     """How to write ``value`` if it was given in hartree: when ``value`` × 1 Eh lies in (``low``, ``high``) eV,
     where the level or gap it stands for lies ('' otherwise).
 
     Examples
     --------
-    >>> _hartree_hint(-0.2, LEVEL_MIN_EV, HOMO_MAX_EV)
+    >>> _hartree_hint(-0.2, *HARTREE_HOMO_EV)
     '-0.2 looks like hartree: write -0.2 × 27.2114 = -5.44 eV (1 Eh = 27.2114 eV, CODATA)'
-    >>> _hartree_hint(-1.5, LEVEL_MIN_EV, HOMO_MAX_EV)
-    ''
+    >>> _hartree_hint(-1.5, *HARTREE_HOMO_EV), _hartree_hint(-0.45, *HARTREE_LUMO_EV)
+    ('', '')
     """
     from screen.constants import HARTREE_EV  # CODATA through scipy.constants; loaded only for this message
 
@@ -142,21 +148,22 @@ def _unit_slip_levels(homo: float, lumo: float, gap: float, film: bool) -> list:
     >>> _unit_slip_levels(-5.8, -0.5, 2.9, False)  # a gas-scale LUMO of -0.5 eV is real (EA 0.5 eV)
     []
     >>> print(_unit_slip_levels(-5.4, -0.14, 1.5, True)[0][2])
-    a film LUMO of -0.14 eV is no organic semiconductor's (film LUMOs lie below about -1.5 eV, wide-gap hosts included); -0.14 looks like hartree: write -0.14 × 27.2114 = -3.81 eV (1 Eh = 27.2114 eV, CODATA)
+    a film LUMO of -0.14 eV is no organic semiconductor's (no organic semiconductor's film LUMO lies above -1 eV; wide-gap hosts reach about -1.5 eV); -0.14 looks like hartree: write -0.14 × 27.2114 = -3.81 eV (1 Eh = 27.2114 eV, CODATA)
     """
     out = []
     homo_slip = math.isfinite(homo) and HOMO_MAX_EV < homo <= 0
     if homo_slip:
-        hint = _hartree_hint(homo, LEVEL_MIN_EV, HOMO_MAX_EV) or "check the units (eV) and the sign"
+        hint = _hartree_hint(homo, *HARTREE_HOMO_EV) or "check the units (eV) and the sign"
         out.append(("homo_ev", homo, f"a HOMO of {_fmt(homo)} eV is no material's (HOMO = -IP: film HOMOs of organic "
                                      f"semiconductors lie at about -4.5...-7 eV, deep acceptors lower); {hint}"))
     if math.isfinite(lumo) and HOMO_MAX_EV < lumo <= 0 and (homo_slip or (film and lumo > FILM_LUMO_MAX_EV)):
-        hint = _hartree_hint(lumo, LEVEL_MIN_EV, FILM_LUMO_MAX_EV) or "check the units (eV) and the sign"
-        said = "beside this HOMO" if homo_slip else "(film LUMOs lie below about -1.5 eV, wide-gap hosts included)"
+        hint = _hartree_hint(lumo, *HARTREE_LUMO_EV) or "check the units (eV) and the sign"
+        said = ("beside this HOMO" if homo_slip else
+                "(no organic semiconductor's film LUMO lies above -1 eV; wide-gap hosts reach about -1.5 eV)")
         out.append(("lumo_ev", lumo, f"a {'film ' if film else ''}LUMO of {_fmt(lumo)} eV is no organic "
                                      f"semiconductor's {said}; {hint}"))
     if out and math.isfinite(gap) and 0 < gap < HARTREE_GAP_MAX_EV:
-        hint = _hartree_hint(gap, 0.0, GAP_MAX_INPUT_EV) or "check the units (eV)"
+        hint = _hartree_hint(gap, *HARTREE_GAP_EV) or "check the units (eV)"
         out.append(("gap_opt_ev", gap, f"an optical gap of {_fmt(gap)} eV is no organic absorber's (about 0.6 eV "
                                        f"and up); {hint}"))
     return out

@@ -314,7 +314,7 @@ def check_sets(items) -> dict:
     """
     import jsonschema
 
-    from screen.schema import non_finite, non_finite_text
+    from screen.schema import non_finite, non_finite_text, read_as_written
 
     schema = _schema()
     fields = [f.path for f in schema_fields(schema)]
@@ -333,6 +333,16 @@ def check_sets(items) -> dict:
             value = yaml.safe_load(raw) if raw else None
         except yaml.YAMLError as exc:
             raise ConfigError(f"--set {item}: the value is not valid YAML ({exc})") from None
+        if isinstance(value, str):  # 1e3 and ~/x as the user meant them (screen.schema.read_as_written)
+            holder = wrapped = {}
+            for part in path.split(".")[:-1]:
+                holder = holder.setdefault(part, {})
+            holder[path.split(".")[-1]] = value
+            read_as_written(wrapped, schema)
+            holder = wrapped
+            for part in path.split("."):
+                holder = holder[part]
+            value = holder
         errors = list(jsonschema.Draft202012Validator(node).iter_errors(value))
         if errors:
             raise ConfigError(f"--set {item}: {errors[0].message}; allowed for {path}: {allowed_text(node)}")

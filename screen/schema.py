@@ -61,7 +61,13 @@ def _like_defaults(node: dict, schema: dict) -> None:
         if name not in node:
             continue
         if "default" in sub:
-            node[name] = _number(node[name], sub["default"])
+            default = sub["default"]
+            kinds = sub.get("type", [])
+            kinds = {kinds} if isinstance(kinds, str) else set(kinds)
+            if default is None and "number" in kinds and "integer" not in kinds:
+                default = 0.0  # a number field that defaults to null: 1 and 1.0 name one setting (an adversarial
+                # check: device.eqe=1 and =1.0 ranked into two folders)
+            node[name] = _number(node[name], default)
         if isinstance(node[name], dict) and sub.get("type") == "object":
             _like_defaults(node[name], sub)
 
@@ -170,6 +176,7 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     """
     cfg = copy.deepcopy(dict(config or {}))
     schema = _schema()
+    read_as_written(cfg, schema)
     validator = jsonschema.Draft202012Validator(schema)
     errors = sorted(validator.iter_errors(cfg), key=lambda e: list(e.absolute_path))
     if errors:
@@ -185,12 +192,74 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     return cfg
 
 
+#: a number as JSON and YAML 1.2 write it; YAML 1.1 (PyYAML) reads ``1e1`` and ``1.2e1`` as text
+_NUMBER_TEXT = re.compile(r"[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?")
+#: settings that hold a path: a leading ``~`` is the home folder, as in a path option
+PATH_FIELDS = (("candidates",), ("out",), ("partner",), ("calibration", "models"), ("calibration", "reference"),
+               ("store", "path"))
+
+
+def read_as_written(node: dict, schema: dict) -> None:
+    """Read what YAML 1.1 leaves as text the way the user meant it, in place: a number written with an exponent
+    (``1e3``, ``1.2e1``) where the schema wants a number, and a leading ``~`` in a path setting (an adversarial
+    check: ``--set rank.n_samples=1e3`` was told "not of type 'number'", ``partner: ~/acc.csv`` in a config file
+    passed the checks and failed in the workflow).
+
+    Examples
+    --------
+    >>> cfg = {"rank": {"n_samples": "1e3", "target_pce_pct": "1.2e1"}, "out": "~/x", "partner": "y6"}
+    >>> read_as_written(cfg, _schema()); cfg["rank"], cfg["out"].startswith("~"), cfg["partner"]
+    ({'n_samples': 1000, 'target_pce_pct': 12.0}, False, 'y6')
+    """
+    import os
+
+    for path in PATH_FIELDS:
+        holder = node
+        for key in path[:-1]:
+            holder = holder.get(key) if isinstance(holder, dict) else None
+        if isinstance(holder, dict) and isinstance(holder.get(path[-1]), str) and holder[path[-1]].startswith("~"):
+            holder[path[-1]] = os.path.expanduser(holder[path[-1]])
+
+    def walk(values: dict, props: dict) -> None:
+        for key, value in values.items():
+            sub = props.get(key)
+            if not isinstance(sub, dict):
+                continue
+            if isinstance(value, dict) and sub.get("type") == "object":
+                walk(value, sub.get("properties", {}))
+                continue
+            kinds = sub.get("type", [])
+            kinds = {kinds} if isinstance(kinds, str) else set(kinds)
+            if isinstance(value, str) and "string" not in kinds and kinds & {"number", "integer"} \
+                    and _NUMBER_TEXT.fullmatch(value.strip()):
+                number = float(value)
+                values[key] = int(number) if "integer" in kinds and number.is_integer() else number
+
+    walk(node, schema.get("properties", {}))
+
+
 def _plain(value):
-    """A value as the schema and JSON know it: numpy scalars as Python numbers, tuples as lists."""
+    """A value as the schema and JSON know it: numpy scalars and arrays as Python numbers and lists, tuples as
+    lists, other real numbers (``Decimal``, ``Fraction``) as floats (an adversarial check: ``Decimal('NaN')`` raised
+    from inside the schema check, ``Decimal('Infinity')`` passed it, an array raised ValueError).
+
+    Examples
+    --------
+    >>> from decimal import Decimal
+    >>> import numpy as np
+    >>> _plain(np.array([5.0, 25.0])), _plain(Decimal("12.5")), _plain(np.int64(3)), _plain(True)
+    ([5.0, 25.0], 12.5, 3, True)
+    """
+    import numbers
+
     if isinstance(value, (list, tuple)):
         return [_plain(v) for v in value]
+    if type(value).__module__ == "numpy" and hasattr(value, "tolist"):
+        return value.tolist()
     if type(value).__module__ == "numpy" and hasattr(value, "item"):
         return value.item()
+    if isinstance(value, numbers.Number) and not isinstance(value, (bool, int, float, complex)):
+        return float(value)  # Decimal is a Number but not a Real
     return value
 
 

@@ -113,3 +113,68 @@ def test_a_models_folder_in_the_working_directory_is_named_as_hiding_the_shipped
     assert main(["run", "c.csv", "--out", "o", "--dry-run"]) == 2
     err = capsys.readouterr().err
     assert "used before the shipped one" in err and "--set calibration.models=" in err and "Traceback" not in err
+
+
+def test_options_take_decimals_and_arrays_and_refuse_bad_seeds() -> None:
+    # an adversarial check: Decimal('NaN') raised from inside the schema check, an array raised ValueError, a
+    # negative Monte-Carlo seed crashed numpy after the ranking had started, RDKit takes seed -1 as "random"
+    from decimal import Decimal
+
+    import pytest
+
+    from screen.errors import ConfigError
+    from screen.options import StructureOptions
+    from screen.rank import RankOptions
+
+    with pytest.raises(ConfigError, match="not a finite number"):
+        RankOptions(target_pce_pct=Decimal("NaN"))
+    assert RankOptions(target_pce_pct=Decimal("12.5")).target_pce_pct == 12.5
+    assert StructureOptions(planar_tolerances_deg=np.array([5.0, 25.0])).planar_tolerances_deg == (5.0, 25.0)
+    for bad in ({"seed": -1}, {"seed": 2**31}):
+        with pytest.raises(ConfigError, match="seed"):
+            StructureOptions(**bad)
+    with pytest.raises(ConfigError, match="minimum of 0"):
+        RankOptions(seed=-1)
+
+
+def test_numbers_with_an_exponent_and_home_paths_are_read_as_meant(tmp_path: Path, monkeypatch) -> None:
+    # YAML 1.1 reads 1e3 as text ("'1e3' is not of type 'integer'"); a ~ in a config path reached the workflow
+    from screen.preflight import check_sets
+    from screen.schema import resolve
+
+    monkeypatch.setenv("HOME", str(tmp_path))
+    cfg = resolve({"rank": {"n_samples": "1e3", "target_pce_pct": "1.2e1"}, "partner": "~/acc.csv"})
+    assert cfg["rank"]["n_samples"] == 1000 and cfg["rank"]["target_pce_pct"] == 12.0
+    assert cfg["partner"] == str(tmp_path / "acc.csv")
+    assert check_sets(["rank.n_samples=1e3", "out=~/res"]) == {"rank": {"n_samples": 1000}, "out": str(tmp_path / "res")}
+    # 1 and 1.0 of a number setting that defaults to null are one setting (one ranking folder)
+    assert resolve({"device": {"eqe": 1}})["device"] == resolve({"device": {"eqe": 1.0}})["device"]
+
+
+def test_a_hartree_hint_only_where_the_conversion_lands_on_a_real_level() -> None:
+    # LUMO -0.45 eV beside a HOMO of -5.40 eV was told to be -12.25 eV
+    problems = row_problems(-5.40, -0.45, 3.2, "film")
+    assert problems and "hartree" not in problems[0][2] and "lies above -1 eV" in problems[0][2]
+    assert "-5.44 eV" in row_problems(-0.2, -0.14, 0.05, "film")[0][2]
+
+
+def test_a_levels_of_workdir_must_not_hold_other_files(tmp_path: Path) -> None:
+    # a second API pass: a run folder's levels.csv and a user's candidates.csv were overwritten
+    import pytest
+
+    from screen.api import _check_workdir
+    from screen.errors import InputError
+
+    (tmp_path / "levels.csv").write_text("id\nmine\n")
+    with pytest.raises(InputError, match="already holds files"):
+        _check_workdir(tmp_path)
+    _check_workdir(tmp_path / "new")  # a new folder is fine
+
+
+def test_an_sd_file_counts_its_records_for_the_shard_cap(tmp_path: Path) -> None:
+    from screen.stages import _count_rows
+
+    record = "x\n  RDKit\n\n  0  0  0  0  0  0  0  0  0  0999 V2000\nM  END\n$$$$\n"
+    (tmp_path / "c.sdf").write_text(record * 3)
+    (tmp_path / "c.csv").write_text("id,smiles\na,C\nb,CC\n")
+    assert _count_rows(tmp_path / "c.sdf") == 3 and _count_rows(tmp_path / "c.csv") == 3
