@@ -150,10 +150,11 @@ def _run(candidates: Path, work: Path, cfg: Config, folder: Path, verbose: bool)
 
     from screen.calibrate import apply_models, load_models
     from screen.compute import run_compute
-    from screen.io import Progress, write_csv
-    from screen.levels import read_levels, sidecar_path
+    from screen.io import Progress
+    from screen.levels import read_levels
     from screen.prepare import options_from_config, prepare
-    from screen.stages import _count_rows, _read_computed
+    from screen.levels import read_computed, write_levels
+    from screen.stages import _count_rows
 
     models = load_models(folder, cfg)  # checked before any work, as the levels job checks its pinned calibration
     store = _store(cfg, verbose)
@@ -181,14 +182,10 @@ def _run(candidates: Path, work: Path, cfg: Config, folder: Path, verbose: bool)
                 os.environ.pop("OMP_NUM_THREADS", None)
             else:
                 os.environ["OMP_NUM_THREADS"] = saved
-    levels, sidecar = _read_computed(prepared / "manifest.csv", tables, cfg)
+    levels, sidecar = read_computed(prepared / "manifest.csv", tables, cfg)
     levels = apply_models(levels, models, scale=cfg["levels"]["scale"])
     path = work / "levels.csv"
-    write_csv(levels, path)
-    if len(sidecar):
-        write_csv(sidecar, sidecar_path(path))
-    elif sidecar_path(path).is_file():  # an earlier call's per-n values in a reused workdir (as the levels job)
-        sidecar_path(path).unlink()
+    write_levels(levels, sidecar, path)  # as the levels job: an earlier call's per-n file in a reused workdir goes
     return read_levels(path), store
 
 

@@ -66,7 +66,7 @@ CONTRACT_COLUMNS = LEVELS_CONTRACT_COLUMNS
 
 __all__ = ["CONTRACT_COLUMNS", "CALIBRATED_COLUMNS", "CHAIN_QUANTITIES", "CHAIN_COLUMNS", "SIDECAR_COLUMNS",
            "sidecar_path",
-           "assemble", "chain_limits", "summarise", "read_levels", "LEVELS_MIN_COLUMNS"]
+           "assemble", "chain_limits", "read_computed", "write_levels", "summarise", "read_levels", "LEVELS_MIN_COLUMNS"]
 
 _EXTRA = ["name", "role", "key", "duplicate_of", "heavy_atoms", "reason"]
 
@@ -326,6 +326,43 @@ def _chain_columns(out: pd.DataFrame, sub: pd.DataFrame, limits: pd.DataFrame | 
     chain_note = out["key"].map(limits["note"]).where(polymer, "").astype(object).fillna("").astype(str)
     note = out["note"].astype(object).fillna("").astype(str) if "note" in out else pd.Series("", index=out.index)
     out["note"] = [("; ".join(p for p in (a, b) if p)) for a, b in zip(note, chain_note)]
+
+
+def read_computed(manifest_path, electronic_paths, cfg):
+    """Levels rows of a prepared batch (polymers at the chain limit) and the per-n sidecar table: what the levels
+    job, the calibration job, the dye-cell mode and :func:`screen.api.levels_of` read from computed shards.
+
+    ``cfg``: the configuration (its ``polymer.fit_rms_tol_ev``).
+    """
+    from screen.prepare import read_oligomers
+
+    manifest = pd.read_csv(manifest_path, dtype=str, keep_default_na=False)
+    manifest["row"] = manifest["row"].astype(int)
+    tables = [pd.read_csv(p, dtype={"key": str, "status": str, "error": str}, keep_default_na=False,
+                          na_values=[""]) for p in electronic_paths]
+    oligomers = read_oligomers(Path(manifest_path).with_name("oligomers.csv"))
+    limits, sidecar = None, pd.DataFrame()
+    if len(oligomers):
+        parts = [t for t in tables if len(t)]
+        elec = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=["key", "status", "error"])
+        limits, sidecar = chain_limits(elec, oligomers, cfg["polymer"]["fit_rms_tol_ev"])
+    return assemble(manifest, tables, limits), sidecar
+
+
+
+def write_levels(levels: pd.DataFrame, sidecar: pd.DataFrame, path) -> Path | None:
+    """Write ``levels.csv`` and, with polymers, its per-n sidecar; remove an earlier sidecar otherwise (a folder used
+    again: its old per-n values no longer belong to the file). Returns the sidecar's path, or None."""
+    from screen.io import write_csv
+
+    write_csv(levels, path)
+    side = sidecar_path(path)
+    if len(sidecar):
+        write_csv(sidecar, side)
+        return side
+    if side.is_file():
+        side.unlink()
+    return None
 
 
 def summarise(levels: pd.DataFrame) -> dict:

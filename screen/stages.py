@@ -154,53 +154,26 @@ def _pinned_models(folder, cfg, pinned: str):
 
 
 def _levels(args, cfg):
-    from screen.io import write_csv, write_json
-    from screen.levels import sidecar_path, summarise
+    from screen.io import write_json
+    from screen.levels import read_computed, summarise, write_levels
 
     models = calibration = None
     if args.models:  # checked before anything is read: a changed calibration stops the job at once
         models, calibration = _pinned_models(args.models, cfg, args.pinned)
-    levels, sidecar = _read_computed(args.manifest, args.electronic, cfg)
+    levels, sidecar = read_computed(args.manifest, args.electronic, cfg)
     if models is not None:
         from screen.calibrate import apply_models
 
         levels = apply_models(levels, models, scale=cfg["levels"]["scale"])
-    write_csv(levels, args.out)
-    side_path = sidecar_path(args.out)
-    if len(sidecar):
-        write_csv(sidecar, side_path)
-    elif side_path.is_file():
-        side_path.unlink()
+    side_path = write_levels(levels, sidecar, args.out)
     # absolute paths (a direct snakemake run gives them relative to its working directory)
     meta = {**provenance(cfg), "counts": summarise(levels), "input": os.path.abspath(args.input or cfg["candidates"]),
             "scale": cfg["levels"]["scale"], "models": os.path.abspath(args.models) if args.models else None,
             "calibration_models": calibration,
             "polymer": cfg["polymer"],
-            "oligomers": str(side_path) if len(sidecar) else None}
+            "oligomers": str(side_path) if side_path else None}
     write_json(meta, f"{args.out}.meta.json" if not args.meta else args.meta)
     print(json.dumps(summarise(levels)))
-
-
-def _read_computed(manifest_path, electronic_paths, cfg):
-    """Levels rows of a prepared batch (polymers at the chain limit) and the per-n sidecar table."""
-    from pathlib import Path
-
-    import pandas as pd
-
-    from screen.levels import assemble, chain_limits
-    from screen.prepare import read_oligomers
-
-    manifest = pd.read_csv(manifest_path, dtype=str, keep_default_na=False)
-    manifest["row"] = manifest["row"].astype(int)
-    tables = [pd.read_csv(p, dtype={"key": str, "status": str, "error": str}, keep_default_na=False,
-                          na_values=[""]) for p in electronic_paths]
-    oligomers = read_oligomers(Path(manifest_path).with_name("oligomers.csv"))
-    limits, sidecar = None, pd.DataFrame()
-    if len(oligomers):
-        parts = [t for t in tables if len(t)]
-        elec = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=["key", "status", "error"])
-        limits, sidecar = chain_limits(elec, oligomers, cfg["polymer"]["fit_rms_tol_ev"])
-    return assemble(manifest, tables, limits), sidecar
 
 
 def _reference_input(args, cfg):
@@ -214,8 +187,9 @@ def _reference_input(args, cfg):
 
 def _calibrate(args, cfg):
     from screen.calibrate import fingerprint, fit_all, read_reference, save_calibration
+    from screen.levels import read_computed
 
-    computed, sidecar = _read_computed(args.manifest, args.electronic, cfg)
+    computed, sidecar = read_computed(args.manifest, args.electronic, cfg)
     models = fit_all(read_reference(args.reference), computed)
     # with the raw values fitted on and the per-n values of the reference polymers: hold-out tests and
     # refits (`dascreen calibrate --from-raw`) need no recomputation

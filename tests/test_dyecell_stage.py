@@ -337,7 +337,7 @@ def test_cli_lists_rows_that_are_not_ranked(tmp_path, capsys):
 def _fake_stages(tmp_path: Path, monkeypatch) -> tuple[Path, list]:
     """Dye models for the default protocol and shared stages that only prepare (no engine); (models root, calls)."""
     import screen.launch
-    import screen.stages
+    import screen.levels
     from screen.config import Config
     from screen.prepare import prepare, read_manifest
 
@@ -363,7 +363,7 @@ def _fake_stages(tmp_path: Path, monkeypatch) -> tuple[Path, list]:
         return pd.DataFrame(rows), pd.DataFrame()
 
     monkeypatch.setattr(screen.launch, "run_workflow", fake_workflow)
-    monkeypatch.setattr(screen.stages, "_read_computed", fake_computed)
+    monkeypatch.setattr(screen.levels, "read_computed", fake_computed)
     return root, calls
 
 

@@ -105,7 +105,7 @@ def raw_levels(out_dir: str | Path, config, batch: str = "candidates", set_aside
     """
     from screen.config import Config
     from screen.provenance import provenance
-    from screen.stages import _read_computed
+    from screen.levels import read_computed
 
     cfg = Config.of(config)
     work = Path(out_dir) / "work" / batch
@@ -113,8 +113,8 @@ def raw_levels(out_dir: str | Path, config, batch: str = "candidates", set_aside
     missing = [str(work / "electronic" / s.name) for s in shards if not (work / "electronic" / s.name).is_file()]
     if missing:
         raise InputError(f"the batch {batch} in {out_dir} is not computed yet (missing {missing[0]})")
-    levels, _ = _read_computed(work / "prepared" / "manifest.csv", [work / "electronic" / s.name for s in shards],
-                               cfg)
+    levels, _ = read_computed(work / "prepared" / "manifest.csv", [work / "electronic" / s.name for s in shards],
+                              cfg)
     if set_aside is not None and len(set_aside):
         levels = _put_back(levels, set_aside)
     target = Path(out_dir) / "dyecell" / "levels_raw.csv"
