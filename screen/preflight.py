@@ -343,12 +343,13 @@ def check_sets(items) -> dict:
             for part in path.split("."):
                 holder = holder[part]
             value = holder
+        bad = non_finite(value, path)
+        if bad:  # the schema's bounds let NaN through (--set rank.target_pce_pct=.nan ranked with "target nan %"); and
+            # said first, so that .inf is "not a finite number", not "greater than the maximum"
+            raise ConfigError(f"--set {item}: {non_finite_text(bad[0][1])}; allowed for {path}: {allowed_text(node)}")
         errors = list(jsonschema.Draft202012Validator(node).iter_errors(value))
         if errors:
             raise ConfigError(f"--set {item}: {errors[0].message}; allowed for {path}: {allowed_text(node)}")
-        bad = non_finite(value, path)
-        if bad:  # the schema's bounds let NaN through: --set rank.target_pce_pct=.nan ranked with "target nan %"
-            raise ConfigError(f"--set {item}: {non_finite_text(bad[0][1])}; allowed for {path}: {allowed_text(node)}")
         target = out
         parts = path.split(".")
         for part in parts[:-1]:

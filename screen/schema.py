@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import copy
 import dataclasses
+import math
 import re
 from collections.abc import Mapping
 from functools import lru_cache
@@ -179,6 +180,8 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     read_as_written(cfg, schema)
     validator = jsonschema.Draft202012Validator(schema)
     errors = sorted(validator.iter_errors(cfg), key=lambda e: list(e.absolute_path))
+    # a bound broken by .inf is said as "not a finite number" below, as --set says it
+    errors = [e for e in errors if not (isinstance(e.instance, float) and not math.isfinite(e.instance))]
     if errors:
         raise ConfigError(f"{source}: " + "; ".join(_describe(e) for e in errors))
     bad = non_finite(cfg)

@@ -178,3 +178,17 @@ def test_an_sd_file_counts_its_records_for_the_shard_cap(tmp_path: Path) -> None
     (tmp_path / "c.sdf").write_text(record * 3)
     (tmp_path / "c.csv").write_text("id,smiles\na,C\nb,CC\n")
     assert _count_rows(tmp_path / "c.sdf") == 3 and _count_rows(tmp_path / "c.csv") == 3
+
+
+def test_the_gap_window_is_bounded_and_infinity_is_named_as_such() -> None:
+    # an API pass: rank.gap_max_ev=1500 (a wavelength) was accepted; a bound must not hide the non-finite message
+    import pytest
+
+    from screen.errors import ConfigError
+    from screen.preflight import check_sets
+
+    with pytest.raises(ConfigError, match="greater than the maximum of 15"):
+        check_sets(["rank.gap_max_ev=1500"])
+    with pytest.raises(ConfigError, match="not a finite number"):
+        check_sets(["rank.gap_max_ev=.inf"])
+    assert check_sets(["rank.gap_max_ev=3.2"]) == {"rank": {"gap_max_ev": 3.2}}
