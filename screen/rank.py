@@ -557,6 +557,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         is_partner = _text(lv, "smiles") == partner.smiles
     aligned = dev["p_aligned"]
     same = _same_structure(lv, cand, roles)
+    families = _known_bias(lv)  # once: without the column it matches every row's SMILES
     device = {code: np.asarray(dev[code], bool) & pair_ok for code in DEVICE_FLAGS}
     device["input_missing"] = device["input_missing"] | cand_missing
     return {
@@ -580,9 +581,9 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "same_structure": same,
         "same_computed_structure": _same_computed(lv, roles) & ~same,
         "far_from_reference": _far_from_reference(lv),
-        "known_family_bias": _has_family(_known_bias(lv), "dpp"),
-        "known_family_bias_ndi": _has_family(_known_bias(lv), "ndi_polymer"),
-        "known_family_bias_ct": _has_family(_known_bias(lv), "ct_polymer"),
+        "known_family_bias": _has_family(families, "dpp"),
+        "known_family_bias_ndi": _has_family(families, "ndi_polymer"),
+        "known_family_bias_ct": _has_family(families, "ct_polymer"),
         "chain_fit_poor": _text(lv, "chain_fit_quality") == "poor",
         "lone_pair_homo": _lone_pair_homo(lv),
         "role_from_levels": roles.role_from_levels,
