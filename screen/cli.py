@@ -439,7 +439,9 @@ def _ranked_count(table) -> tuple[str, str]:
     """``20 donors ranked against`` … ``(12 not paired: same role as the partner)`` of a ranking table: rows of the
     partner's own role cannot pair and are not counted as ranked (a meeting-day audit read "32 ranked against y6"
     of 20 donors and 12 acceptors)."""
-    flags = table["flags"].astype(object).fillna("").astype(str) if "flags" in table else None
+    from screen.io import text_cells
+
+    flags = table["flags"].pipe(text_cells) if "flags" in table else None
     same = flags.str.split(";").map(lambda f: "same_role_as_partner" in f) if flags is not None else None
     n_same = int(same.sum()) if same is not None else 0
     paired = table[~same] if same is not None else table
@@ -454,10 +456,12 @@ def _print_ranking(ranking_csv: Path, top: int = 10) -> None:
     """Print the best ``top`` rows of a ranking.csv and its path."""
     import pandas as pd
 
+    from screen.io import text_cells
+
     table = pd.read_csv(ranking_csv, dtype={"id": str}, keep_default_na=False, na_values=[""])
     show = table.head(top).copy()
     show["id"] = [cut_cell(str(i).replace("\n", "\\n").replace("\r", "\\r"), 28) for i in show["id"]]
-    show["flags"] = [cut_cell(v, 40) for v in show["flags"].astype(object).fillna("").astype(str)]
+    show["flags"] = [cut_cell(v, 40) for v in show["flags"].pipe(text_cells)]
     cols = ["rank", "id", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "delta_lumo_ev", "delta_homo_ev", "voc_v",
             "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "p_aligned", "passes", "flags"]
     if not len(table):

@@ -16,6 +16,7 @@ from __future__ import annotations
 import copy
 import hashlib
 import json
+import os
 from collections.abc import Callable, Iterator, Mapping
 from functools import cached_property
 from pathlib import Path
@@ -56,6 +57,23 @@ def data_path(path: str | Path) -> Path:
     if path.is_absolute() or path.exists():
         return path.resolve()
     return PACKAGE_ROOT / path
+
+
+def nearest_existing(path: str | Path) -> Path:
+    """``path`` (made absolute) if it exists, a dangling link included, else its nearest existing parent: the
+    folder a new ``path`` would be created in, whose permissions decide whether it can be.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> top = Path(tempfile.mkdtemp())
+    >>> nearest_existing(top / "new" / "sub") == top
+    True
+    """
+    path = Path(path).absolute()
+    while not os.path.lexists(path) and path.parent != path:
+        path = path.parent
+    return path
 
 
 class Config(Mapping):

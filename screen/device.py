@@ -90,7 +90,7 @@ from screen.devicekernel import pair_terms, pce_samples, voc_v
 from screen.devicepars import FittedParameters, load_fitted
 from screen.errors import ConfigError
 from screen.flags import join_flags
-from screen.schema import section_defaults
+from screen.schema import check_section, section_defaults
 from screen.spectrum import (
     A_M2_TO_MA_CM2,
     SPECTRUM_COLUMN,
@@ -130,6 +130,8 @@ __all__ = [
 
 #: Schema defaults of the ``device`` config section (the one source of the defaults below).
 _DEFAULTS = section_defaults("device")
+#: config fields of :class:`DeviceModel` (the schema's ``device`` section)
+DEVICE_FIELDS = tuple(_DEFAULTS)
 #: Input order of the six pair levels used by :meth:`DeviceModel.pair_arrays`.
 PAIR_LEVELS = ("donor_homo_ev", "donor_lumo_ev", "donor_gap_ev", "acceptor_homo_ev", "acceptor_lumo_ev",
                "acceptor_gap_ev")
@@ -242,26 +244,21 @@ class DeviceModel:
     parameters: FittedParameters | None = dataclasses.field(default=None, repr=False, compare=False)
 
     def __post_init__(self):
-        if self.model not in MODELS:
-            raise _config_error("model", self.model, " or ".join(repr(m) for m in MODELS))
-        if self.absorber not in ABSORBERS:
-            raise _config_error("absorber", self.absorber, " or ".join(repr(a) for a in ABSORBERS))
-        for name in ("eqe", "ff", "loss_v", "min_delta_lumo_ev", "min_delta_homo_ev", "pin_w_m2"):
-            if getattr(self, name) is not None:
-                self._set_finite(name)
-        for name in ("eqe", "ff"):
-            val = getattr(self, name)
-            if val is not None and not 0.0 < val <= 1.0:
-                raise _config_error(name, val, f"null or 0 < {name} <= 1")
-        for name in ("loss_v", "min_delta_lumo_ev", "min_delta_homo_ev"):
-            val = getattr(self, name)
-            if val is not None and val < 0:
-                raise _config_error(name, val, f"null or {name} >= 0")
+        homo = self.min_delta_homo_ev  # the rule's own words before the schema's "is not of type 'null'"
+        if isinstance(homo, (int, float, np.integer, np.floating)) and not isinstance(homo, bool):
+            problem = homo_threshold_problem(self.absorber, float(homo))
+            if problem:
+                raise ConfigError(problem)
+        # the schema's device section, as a config file and --set are held to it (types, allowed values, finite
+        # numbers, bounds with their units): a Python caller's loss_v=300, millivolts, was accepted here and refused
+        # only by a ranking
+        checked = check_section("device", {name: getattr(self, name) for name in DEVICE_FIELDS}, "DeviceModel")
+        for name, value in checked.items():
+            object.__setattr__(self, name, float(value) if isinstance(value, int) else value)
+        if self.pin_w_m2 is not None:
+            self._set_finite("pin_w_m2")
         if self.pin_w_m2 is not None and self.pin_w_m2 <= 0:
             raise _config_error("pin_w_m2", self.pin_w_m2, "None or a positive number [W m-2]")
-        problem = homo_threshold_problem(self.absorber, self.min_delta_homo_ev)
-        if problem:
-            raise ConfigError(problem)
         if self.model == "fitted" and self.parameters is None:
             object.__setattr__(self, "parameters", load_fitted())
 

@@ -59,6 +59,7 @@ import pandas as pd
 from screen.chem import canonical_smiles
 from screen.constants import FC_FILM_EV
 from screen.errors import InputError
+from screen.io import text_cells
 
 __all__ = ["DEVICES_PATH", "FILM_PATH", "FC_SCALE_EV", "MIN_SHARED_MATERIALS", "LEVELS", "NOT_BLEND", "level_table",
            "resolve_levels", "read_devices"]
@@ -157,7 +158,7 @@ def level_table(devices=DEVICES_PATH, film=FILM_PATH) -> pd.DataFrame:
         frame[col] = pd.to_numeric(frame[col], errors="coerce")
     index = _film_index(pd.read_csv(film))
     film_rows = index[0]
-    frame["acceptor_class"] = frame["acceptor_class"].astype(object).fillna("").astype(str)
+    frame["acceptor_class"] = frame["acceptor_class"].pipe(text_cells)
     out = frame.copy()
     for col in _LEVELS:
         out[f"paper_{col}"] = frame[col]

@@ -91,6 +91,18 @@ def cell_text(value) -> str:
     return str(value)
 
 
+def text_cells(series: pd.Series) -> pd.Series:
+    """A column as text: ``''`` for None, NaN and pandas NA (``astype(str)`` alone writes 'nan', 'None', '<NA>');
+    use it as ``frame[col].pipe(text_cells)``.
+
+    Examples
+    --------
+    >>> text_cells(pd.Series(["a", None, float("nan"), pd.NA, 3])).tolist()
+    ['a', '', '', '', '3']
+    """
+    return series.astype(object).fillna("").astype(str)
+
+
 def count_text(value) -> str:
     """A count cell as text: a whole number without ``.0`` (a CSV read gives ``4.0`` for 4 in a column with empty
     cells), anything else as :func:`cell_text`.

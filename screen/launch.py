@@ -43,7 +43,7 @@ from pathlib import Path
 
 import yaml
 
-from screen.config import Config, read_problem
+from screen.config import Config, nearest_existing, read_problem
 from screen.errors import ConfigError, FolderInUse
 
 __all__ = ["WORKFLOW", "STOP_GRACE_S", "PIN_ENV", "KEEP_LOGS", "ENGINE_OPTIONS_SET", "run_workflow", "error_excerpt",
@@ -666,11 +666,7 @@ def can_write(folder) -> bool:
     >>> can_write(Path(tempfile.mkdtemp()) / "new" / "sub")
     True
     """
-    folder = Path(folder).absolute()
-    while not os.path.lexists(folder):
-        if folder.parent == folder:
-            return False
-        folder = folder.parent
+    folder = nearest_existing(folder)
     return folder.is_dir() and os.access(folder, os.W_OK | os.X_OK)
 
 

@@ -59,7 +59,7 @@ import pandas as pd
 
 from screen.columns import (CALIBRATED_COLUMNS, CONFORMER_SPREAD_COLUMNS, ELECTRONIC_COLUMNS, LEVELS_CONTRACT_COLUMNS,
                             LEVELS_MIN_COLUMNS, RAW_COLUMNS)
-from screen.io import read_csv_checked
+from screen.io import read_csv_checked, text_cells
 
 #: leading columns of levels.csv, in order (:data:`screen.columns.LEVELS_CONTRACT_COLUMNS`)
 CONTRACT_COLUMNS = LEVELS_CONTRACT_COLUMNS
@@ -275,7 +275,7 @@ def assemble(manifest: pd.DataFrame, electronic: Iterable[pd.DataFrame],
     keys = out["key"].where(ok, "")
     found = keys.isin(elec.index)
     status = out["status"].copy()
-    error = out["error"].astype(object).fillna("").astype(str).copy()
+    error = out["error"].pipe(text_cells).copy()
     missing = ok & ~found
     status[missing] = "failed"
     error[missing] = "not computed: the structure has no electronic result (was its shard run?)"
@@ -283,7 +283,7 @@ def assemble(manifest: pd.DataFrame, electronic: Iterable[pd.DataFrame],
     sub.index = out.index
     computed = ok & found
     status[computed] = sub.loc[computed, "status"].astype(str)
-    error[computed] = sub.loc[computed, "error"].astype(object).fillna("").astype(str)
+    error[computed] = sub.loc[computed, "error"].pipe(text_cells)
     out["status"], out["error"] = status, error
     extra_raw = [c for c in CHAIN_QUANTITIES if c not in RAW_COLUMNS and c in elec.columns]
     for col in list(ELECTRONIC_COLUMNS) + extra_raw:
@@ -298,7 +298,7 @@ def assemble(manifest: pd.DataFrame, electronic: Iterable[pd.DataFrame],
     if "smiles" not in out:
         out["smiles"] = ""
     if "smiles_input" in out:  # rows that never got a canonical SMILES show what the user wrote
-        out["smiles"] = (out["smiles"].astype(object).fillna("").astype(str)
+        out["smiles"] = (out["smiles"].pipe(text_cells)
                          .mask(lambda s: s.eq(""), out["smiles_input"]))
     for col in ("n_atoms", "n_conformers", "conf_spread_n", "truncated_chains", "chain_n_max"):
         out[col] = pd.to_numeric(out[col], errors="coerce").astype("Int64")
@@ -313,18 +313,18 @@ def _chain_columns(out: pd.DataFrame, sub: pd.DataFrame, limits: pd.DataFrame | 
     """Fill :data:`CHAIN_COLUMNS`, the spreads and the chain notes in place."""
     if "representation" not in out:
         out["representation"] = "molecule"
-    out["representation"] = out["representation"].astype(object).fillna("").astype(str)
+    out["representation"] = out["representation"].pipe(text_cells)
     polymer = computed & out["representation"].eq("polymer")
     for col in ("chain_n_max", "chain_fit", "chain_fit_quality"):
         out[col] = sub[col].where(polymer) if col in sub else np.nan
     for col in [c for c in sub.columns if c.startswith("chain_spread_")]:
         out[col] = pd.to_numeric(sub[col].where(polymer), errors="coerce")
     for col in ("chain_fit", "chain_fit_quality"):
-        out[col] = out[col].where(out[col].notna(), "").astype(str)
+        out[col] = out[col].pipe(text_cells)
     if limits is None or "note" not in getattr(limits, "columns", []):
         return
-    chain_note = out["key"].map(limits["note"]).where(polymer, "").astype(object).fillna("").astype(str)
-    note = out["note"].astype(object).fillna("").astype(str) if "note" in out else pd.Series("", index=out.index)
+    chain_note = out["key"].map(limits["note"]).where(polymer, "").pipe(text_cells)
+    note = out["note"].pipe(text_cells) if "note" in out else pd.Series("", index=out.index)
     out["note"] = [("; ".join(p for p in (a, b) if p)) for a, b in zip(note, chain_note)]
 
 
@@ -382,6 +382,6 @@ def read_levels(path) -> pd.DataFrame:
     """
     frame = read_csv_checked(path, LEVELS_MIN_COLUMNS, what="a levels file", dtype={"id": str},
                              keep_default_na=False, na_values=[""])
-    frame["id"] = frame["id"].astype(object).fillna("").astype(str)
-    frame["scale"] = frame["scale"].astype(object).where(frame["scale"].notna(), "").astype(str)
+    frame["id"] = frame["id"].pipe(text_cells)
+    frame["scale"] = frame["scale"].pipe(text_cells)
     return frame

@@ -42,6 +42,7 @@ import numpy as np
 import pandas as pd
 
 from screen.errors import InputError
+from screen.io import text_cells
 
 __all__ = ["check_levels", "check_partner", "row_problems", "sigma_problem", "inconsistent_rows", "quoted",
            "GAP_EXCESS_TOL_EV",
@@ -300,19 +301,19 @@ def _text_problems(frame: pd.DataFrame, ids, computed) -> list:
         else:
             first[key] = i
     if "scale" in frame:
-        for i, value in enumerate(frame["scale"].astype(object).fillna("").astype(str)):
+        for i, value in enumerate(frame["scale"].pipe(text_cells)):
             if value.strip().lower() not in _SCALES:
                 out.append((i, "scale", value, "allowed: film or gas (CV levels are film)"))
     if "acceptor_class" in frame:
         from screen.devicepars import ACCEPTOR_CLASSES_TEXT, acceptor_class_key
 
-        for i, value in enumerate(frame["acceptor_class"].astype(object).fillna("").astype(str)):
+        for i, value in enumerate(frame["acceptor_class"].pipe(text_cells)):
             try:
                 acceptor_class_key(value)
             except InputError:
                 out.append((i, "acceptor_class", value, f"allowed: {ACCEPTOR_CLASSES_TEXT}"))
     if "role" in frame:
-        for i, value in enumerate(frame["role"].astype(object).fillna("").astype(str)):
+        for i, value in enumerate(frame["role"].pipe(text_cells)):
             if computed[i]:  # a run's own row: a dye of a mixed batch, or a role the ranking flags (role_invalid)
                 continue
             role = value.strip().lower()
@@ -366,7 +367,7 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table", computed=Non
       line 3, column id = 'a': the same id as line 2; give every row its own id (it names the row in the ranking)
       line 3 (id 'a'), column homo_sigma_ev = 50: a σ of 50 eV is no calibration's (a run's own σ stays below 10 eV); 50 looks like millielectronvolts: write 0.05 eV
     """
-    ids = (frame["id"].astype(object).fillna("").astype(str).to_numpy() if "id" in frame
+    ids = (frame["id"].pipe(text_cells).to_numpy() if "id" in frame
            else np.array([str(i) for i in range(len(frame))]))
     computed = (np.zeros(len(frame), dtype=bool) if computed is None
                 else np.broadcast_to(np.asarray(computed, dtype=bool), (len(frame),)))

@@ -31,6 +31,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from screen.io import text_cells
+
 __all__ = ["MATRIX_LEAD", "cell_notes", "partner_matrix", "matrix_folder", "run_matrix", "refresh_matrices", "refresh_after_run",
            "matrices_joining", "stale_columns"]
 
@@ -50,7 +52,7 @@ def _has_flag(ranking: pd.DataFrame, code: str) -> pd.Series:
     """Rows whose ``flags`` (``;``-separated codes) hold ``code`` (all False without a flags column)."""
     if "flags" not in ranking:
         return pd.Series(False, index=ranking.index)
-    return ranking["flags"].astype(object).fillna("").astype(str).str.split(";").map(lambda f: code in f)
+    return ranking["flags"].pipe(text_cells).str.split(";").map(lambda f: code in f)
 
 
 def cell_notes(ranking: pd.DataFrame) -> dict:
@@ -95,10 +97,10 @@ def partner_matrix(rankings) -> pd.DataFrame:
     order: list[tuple] = []
     for partner, ranking in rankings:
         frame = ranking.copy()
-        frame["smiles"] = frame.get("smiles", pd.Series("", index=frame.index)).astype(object).fillna("").astype(str)
+        frame["smiles"] = frame.get("smiles", pd.Series("", index=frame.index)).pipe(text_cells)
         frame["id"] = frame["id"].astype(str)
         idx = list(zip(frame["id"], frame["smiles"]))
-        given = frame.get("name", pd.Series("", index=frame.index)).astype(object).fillna("").astype(str)
+        given = frame.get("name", pd.Series("", index=frame.index)).pipe(text_cells)
         for ident, name in zip(idx, given):
             if ident not in names:
                 names[ident] = name

@@ -52,6 +52,7 @@ import pandas as pd
 
 from screen.devicepars import acceptor_class_key
 from screen.errors import InputError
+from screen.io import text_cells
 from screen.levels_check import check_levels, quoted
 from screen.partner_library import (LIBRARY_COLUMNS, LIBRARY_PATH, ROLES, SCALES, Partner, PartnerError,
                                    _float, _sigma_value, _text, complement, library_partners, library_table,
@@ -566,7 +567,7 @@ def _from_levels(spec: str, slug: str, levels) -> Partner:
         raise PartnerError(f"partner {spec!r} names a row of the levels table, but no levels table was given")
     frame = levels if isinstance(levels, pd.DataFrame) else read_levels(levels)
     where = "levels table" if isinstance(levels, pd.DataFrame) else f"levels file {levels}"
-    ids = frame["id"].astype(object).fillna("").astype(str)
+    ids = frame["id"].pipe(text_cells)
     rows = frame[ids.eq(ident)]
     if rows.empty:
         sample = ", ".join(quoted(i) for i in ids.head(8))

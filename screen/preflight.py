@@ -36,7 +36,7 @@ from pathlib import Path
 
 import yaml
 
-from screen.config import calibration_set_args, read_problem
+from screen.config import calibration_set_args, nearest_existing, read_problem
 from screen.config import setting_text as _show
 from screen.config import flat_settings as _flat
 from screen.errors import ConfigError, InputError
@@ -706,12 +706,13 @@ def check_run_partners(specs, candidates, rank_options) -> None:
     roleless = [s for s, k in kinds.items() if k in ("smiles", "id") or (k == "file" and not resolve_partner(s).role)]
     if not roleless:
         return
+    from screen.io import text_cells
     from screen.levels_check import quoted
     from screen.prepare.readers import read_candidates
     from screen.rank import RankOptions, partner_role
 
     frame = read_candidates(candidates)
-    roles = frame["role"].astype(object).fillna("").astype(str).str.strip().str.lower()
+    roles = frame["role"].pipe(text_cells).str.strip().str.lower()
     options = RankOptions.from_mapping(rank_options)
     nan = float("nan")
     for spec in roleless:
@@ -786,8 +787,8 @@ def check_out_writable(out, given: str | None = None, what: str = "") -> None:
         if not os.access(out, os.W_OK | os.X_OK):
             raise ConfigError(f"--out {given} is not writable{what}; choose a folder you can write to")
         return
-    parent = next((p for p in out.absolute().parents if p.exists()), None)
-    if parent is not None and parent.is_dir() and not os.access(parent, os.W_OK | os.X_OK):
+    parent = nearest_existing(out.absolute().parent)
+    if parent.is_dir() and not os.access(parent, os.W_OK | os.X_OK):
         raise ConfigError(f"--out {given}: cannot create it, {parent} is not writable; choose a folder you can "
                           "write to")
 

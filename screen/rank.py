@@ -66,7 +66,7 @@ from screen.flags import (
     join_flags,
     reason_of,
 )
-from screen.io import count_text
+from screen.io import count_text, text_cells
 from screen.levels_check import check_levels, check_partner, inconsistent_rows
 from screen.partners import ROLES, Partner, PartnerError, complement
 from screen.rank_rows import heavy_atoms as _heavy_atoms
@@ -75,7 +75,7 @@ from screen.rank_rows import ranked_mask as _ranked_mask
 from screen.rank_rows import split_ranked as _split_ranked
 from screen.rank_rows import text as _text
 from screen.sampling import sample_pce
-from screen.schema import check_options, check_section, resolve, section_defaults
+from screen.schema import check_options, resolve, section_defaults
 from screen.viability import acceptor_class_of, offset_clears, role_from_levels
 
 __all__ = [
@@ -253,7 +253,7 @@ def check_scales(levels: pd.DataFrame, partner: Partner) -> None:
     """
     if "scale" not in levels:
         raise ScaleMismatchError("the levels have no 'scale' column; every level must name its scale (film or gas)")
-    scales = levels["scale"].astype(object).fillna("").astype(str).str.strip().str.lower()
+    scales = levels["scale"].pipe(text_cells).str.strip().str.lower()
     bad = scales[scales.ne(partner.scale)]
     if bad.empty:
         return
@@ -299,7 +299,7 @@ def partner_role(levels: pd.DataFrame, partner: Partner, options: RankOptions) -
     if options.role is not None:
         return complement(options.role), True
     if "role" in levels:
-        given = set(levels["role"].astype(object).fillna("").astype(str).str.strip().str.lower()) & set(ROLES)
+        given = set(levels["role"].pipe(text_cells).str.strip().str.lower()) & set(ROLES)
         if len(given) == 1:
             return complement(given.pop()), True
     if partner.kind == "smiles":
@@ -777,15 +777,12 @@ def check_input_levels(levels: pd.DataFrame) -> None:
     check_levels(levels[ranked], str(levels.attrs.get("source", "levels table")), _computed_rows(levels)[ranked])
 
 
-#: config fields of :class:`screen.device.DeviceModel` (the schema's ``device`` section)
-_DEVICE_FIELDS = tuple(section_defaults("device"))
-
-
 def _check_arguments(levels_df, partner, model: DeviceModel) -> None:
     """Refuse what a Python caller can pass and the command line cannot (an API audit): a levels table that is no
     DataFrame or lacks a column a levels file must have (without ``id`` every row was ranked as id '', without
     ``gap_opt_ev`` every row came out ``input_missing``), a partner that is no :class:`Partner` (a name: resolve
-    it first) and a device model outside the schema's ``device`` section (``loss_v=300``: millivolts).
+    it first) and a model that is no :class:`~screen.device.DeviceModel` (which holds its own fields to the
+    schema's ``device`` section: ``loss_v=300``, millivolts, is refused when it is made).
 
     Examples
     --------
@@ -812,7 +809,8 @@ def _check_arguments(levels_df, partner, model: DeviceModel) -> None:
         raise PartnerError(f"partner must be a screen.partners.Partner, not {type(partner).__name__} "
                            f"{partner!r:.60}; resolve a name, file or smiles: spec first, e.g. "
                            "screen.partners.resolve_partner('y6')")
-    check_section("device", {k: getattr(model, k) for k in _DEVICE_FIELDS}, "DeviceModel")
+    if not isinstance(model, DeviceModel):
+        raise ConfigError(f"model must be a screen.device.DeviceModel, not {type(model).__name__}")
 
 
 def _viable(masks: dict[str, np.ndarray]) -> np.ndarray:

@@ -27,10 +27,11 @@ import numpy as np
 import pandas as pd
 
 from screen.columns import SIGMA_COLUMNS
-from screen.config import Config
+from screen.config import Config, nearest_existing
 from screen.device import DeviceModel
 from screen.devicepars import device_tests
 from screen.errors import InputError
+from screen.io import text_cells
 from screen.partners import Partner, PartnerError, resolve_partner
 from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, partner_role, rank_candidates)
 from screen.rank_rows import shortlist_mask
@@ -611,7 +612,7 @@ def _rank_meta(ranking, levels, levels_path: Path, meta_in, partner: Partner, mo
     from screen.provenance import code_revision
 
     flags = pd.Series([f for s in ranking["flags"] for f in str(s).split(";") if f]).value_counts()
-    status = (levels["status"].astype(object).fillna("").astype(str).str.strip().str.lower() if "status" in levels
+    status = (levels["status"].pipe(text_cells).str.strip().str.lower() if "status" in levels
               else pd.Series("ok", index=levels.index))
     levels_meta = dict(meta_in) if isinstance(meta_in, dict) else {}
     if levels_meta and "calibration" not in levels_meta:
@@ -657,7 +658,7 @@ def _structure_keys(levels: pd.DataFrame) -> dict:
     """Structure key by SMILES of the computed rows of a levels table (empty without a key column)."""
     if "key" not in levels or "smiles" not in levels:
         return {}
-    rows = levels[levels["key"].astype(object).fillna("").astype(str).str.len() > 0]
+    rows = levels[levels["key"].pipe(text_cells).str.len() > 0]
     return dict(zip(rows["smiles"].astype(str), rows["key"].astype(str)))
 
 
@@ -684,11 +685,9 @@ def check_writable(target: Path, levels_path) -> None:
     >>> import tempfile
     >>> check_writable(Path(tempfile.mkdtemp()) / "rankings" / "y6--0", "levels.csv")
     """
-    folder = Path(target)
-    while not folder.exists() and folder.parent != folder:
-        folder = folder.parent
+    folder = nearest_existing(target)
     if folder.is_dir() and not os.access(folder, os.W_OK | os.X_OK):
-        what = "its folder" if folder == Path(target) else f"{folder}, where it would be created,"
+        what = "its folder" if folder == Path(target).absolute() else f"{folder}, where it would be created,"
         raise InputError(f"cannot write the ranking {target}: {what} is not writable; make it writable, or rank "
                          f"into a folder of your own (--out NEW_FOLDER --levels {levels_path})")
 

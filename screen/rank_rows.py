@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from screen.flags import codes_of
+from screen.io import text_cells
 
 __all__ = ["ranked_mask", "split_ranked", "numeric", "text", "heavy_atoms", "shortlist_mask"]
 
@@ -40,7 +41,7 @@ def ranked_mask(levels: pd.DataFrame) -> np.ndarray:
     """Rows that are ranked: status ok (files without a status column: every row)."""
     if "status" not in levels:
         return np.ones(len(levels), dtype=bool)
-    return levels["status"].astype(object).fillna("").astype(str).str.strip().str.lower().eq("ok").to_numpy()
+    return levels["status"].pipe(text_cells).str.strip().str.lower().eq("ok").to_numpy()
 
 
 def split_ranked(levels_df: pd.DataFrame) -> tuple[pd.DataFrame, dict]:
@@ -48,7 +49,7 @@ def split_ranked(levels_df: pd.DataFrame) -> tuple[pd.DataFrame, dict]:
     ranked = ranked_mask(levels_df)
     not_ranked = {}
     if "status" in levels_df:
-        st = levels_df.loc[~ranked, "status"].astype(object).fillna("").astype(str)
+        st = levels_df.loc[~ranked, "status"].pipe(text_cells)
         not_ranked = {str(k): int(v) for k, v in st.value_counts().items()}
     return levels_df[ranked].reset_index(drop=True), not_ranked
 
@@ -62,7 +63,7 @@ def numeric(levels: pd.DataFrame, col: str) -> np.ndarray:
 def text(levels: pd.DataFrame, col: str) -> np.ndarray:
     if col not in levels:
         return np.full(len(levels), "", dtype=object)
-    return levels[col].astype(object).fillna("").astype(str).to_numpy(dtype=object)
+    return levels[col].pipe(text_cells).to_numpy(dtype=object)
 
 
 def heavy_atoms(levels: pd.DataFrame) -> np.ndarray:

@@ -220,9 +220,11 @@ def test_rank_dyes_holds_oxide_mediator_and_model_to_the_file_checks(dye_cell):
     assert rank_dyes(good, dataclasses.replace(ox, type=""), med)["passes"].tolist() == [True]  # n, as a file
     with pytest.raises(errors.InputError, match="min_drive_reg_ev = 5: 5 eV is above 2 eV"):
         rank_dyes(good, ox, dataclasses.replace(med, min_drive_reg_ev=5.0))
-    with pytest.raises(errors.ConfigError, match=r"field dyecell.voc_loss_v: 200.0 is greater than the maximum of 2 "
+    with pytest.raises(errors.ConfigError, match=r"field dyecell.voc_loss_v: 200 is greater than the maximum of 2 "
                                                  r"\(dyecell.voc_loss_v is in V\)"):
-        rank_dyes(good, ox, med, DyeCellModel(voc_loss_v=200))
+        DyeCellModel(voc_loss_v=200)  # millivolts: refused when the model is made, not only by a ranking
+    with pytest.raises(errors.ConfigError, match="the model must be a screen.dyecell.model.DyeCellModel, not dict"):
+        rank_dyes(good, ox, med, {"voc_loss_v": 0.2})
 
 
 # --------------------------------------------------------------------------- 5. the default model, documented
@@ -260,12 +262,16 @@ def test_a_loss_or_offset_in_millivolts_is_refused_naming_the_unit(field, value)
         assert Config.of({section: {key: ok}})[section][key] == ok
 
 
-def test_a_device_model_in_millivolts_is_refused_by_the_ranking():
-    with pytest.raises(errors.ConfigError, match=r"DeviceModel: field device.loss_v: 300.0 is greater than the "
+def test_a_device_model_in_millivolts_is_refused_when_it_is_made():
+    """The model held only a lower bound; a ranking alone refused loss_v=300 (millivolts), so a Python caller of
+    DeviceModel.evaluate got Voc = E_CT - 300 V, not viable for every pair, without a word."""
+    with pytest.raises(errors.ConfigError, match=r"DeviceModel: field device.loss_v: 300 is greater than the "
                                                  r"maximum of 2 \(device.loss_v is in V\)"):
-        rank_candidates(_levels(), resolve_partner("y6"), DeviceModel(loss_v=300))
+        DeviceModel(loss_v=300)
     with pytest.raises(errors.ConfigError, match="device.min_delta_lumo_ev"):
-        rank_candidates(_levels(), resolve_partner("y6"), DeviceModel(min_delta_lumo_ev=300))
+        DeviceModel(min_delta_lumo_ev=300)
+    with pytest.raises(errors.ConfigError, match="model must be a screen.device.DeviceModel, not dict"):
+        rank_candidates(_levels(), resolve_partner("y6"), {"loss_v": 0.3})
 
 
 def test_levels_in_hartree_are_refused_with_the_conversion():

@@ -42,7 +42,6 @@ reference dyes: a dye with a metal outside them is not ranked (status
 
 from __future__ import annotations
 
-import dataclasses
 import math
 import sys
 
@@ -68,11 +67,10 @@ from screen.dyecell.library import Material
 from screen.dyecell.model import DyeCellModel, evaluate, sample_pce
 from screen.dyecell.options import RankOptions
 from screen.dyecell.scales import ELECTROCHEMICAL, conversion_hint, electrodes, reference_entry, require_scale
-from screen.errors import InputError, ScaleMismatchError
-from screen.io import separator_problem
+from screen.errors import ConfigError, InputError, ScaleMismatchError
+from screen.io import separator_problem, text_cells
 from screen.levels_check import GAP_MAX_INPUT_EV
 from screen.prepare.checks import NONMETALS
-from screen.schema import check_section
 from screen.spectrum import gap_to_wavelength_nm
 
 __all__ = ["DYE_COLUMNS", "RANKING_COLUMNS", "EXTRA_COLUMNS", "NONMETALS", "NOT_A_DYE", "dye_table",
@@ -103,7 +101,7 @@ CALIBRATED_SOURCE = "calibrated from xTB (dye models)"
 def _text_col(frame: pd.DataFrame, col: str) -> pd.Series:
     if col not in frame:
         return pd.Series([""] * len(frame), index=frame.index, dtype=object)
-    return frame[col].map(lambda v: "" if v is None or (isinstance(v, float) and math.isnan(v)) else str(v))
+    return frame[col].pipe(text_cells)
 
 
 def _num_col(frame: pd.DataFrame, col: str) -> np.ndarray:
@@ -375,7 +373,8 @@ def _check_inputs(dyes: pd.DataFrame, ranked: np.ndarray, oxide: Material, media
     - the oxide and the mediator: their roles, an oxide type ``n``, ``p`` or '' (taken as ``n``), the
       potential range of an oxide or mediator file (:func:`screen.dyecell.checks.potential_problem`) and a
       mediator's own regeneration threshold (:func:`screen.dyecell.checks.threshold_problem`);
-    - the model: the schema's ``dyecell`` section (a ``voc_loss_v`` of 200 is millivolts).
+    - the model: a :class:`~screen.dyecell.model.DyeCellModel` (which holds its own fields to the schema's
+      ``dyecell`` section: a ``voc_loss_v`` of 200, millivolts, is refused when it is made).
 
     Examples
     --------
@@ -403,11 +402,13 @@ def _check_inputs(dyes: pd.DataFrame, ranked: np.ndarray, oxide: Material, media
     if oxide.type not in ("n", "p", ""):  # '' is n, as an oxide file without a type; the model read "P" as n
         raise InputError(f"oxide {oxide.id!r}: type = {oxide.type!r}; allowed: 'n' (electrons injected into the "
                          "conduction band, TiO2), 'p' (holes into the valence band, NiO) or '' (taken as n)")
+    if not isinstance(model, DyeCellModel):
+        raise ConfigError(f"rank_dyes: the model must be a screen.dyecell.model.DyeCellModel, not "
+                          f"{type(model).__name__}")
     own = math.nan if mediator.min_drive_reg_ev is None else float(mediator.min_drive_reg_ev)
     problem = threshold_problem(own) if math.isfinite(own) else None
     if problem:
         raise InputError(f"mediator {mediator.id!r}, min_drive_reg_ev = {own:g}: {problem}")
-    check_section("dyecell", {f.name: getattr(model, f.name) for f in dataclasses.fields(model)}, "DyeCellModel")
     typed = ranked & _text_col(dyes, "source").str.strip().ne(CALIBRATED_SOURCE).to_numpy()
     if not typed.any():
         return
