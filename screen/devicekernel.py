@@ -205,8 +205,9 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     the spectrum: :func:`screen.viability.gap_valid`; Voc > 0), written
     with in-place operations for the sampler.  Voc is capped at the
     detailed-balance Voc of the smallest gap of the pair (:func:`voc_limit`);
-    a sample whose efficiency is not a number (a level the model needs is
-    missing) is not viable.
+    a sample with a level the model needs missing (:meth:`screen.device.DeviceModel.needed_missing`: with
+    both absorbing also the acceptor HOMO and gap) or whose efficiency is not a number is not viable (0,
+    never the detailed-balance limit that caps it).
     """
     sq_voc = sq_voc_v if sq_voc is None else sq_voc
     d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap = (np.asarray(x, dtype=float) for x in levels)
@@ -217,6 +218,11 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     both = model.absorber == "both"
     dl = np.subtract(d_lumo, a_lumo, out=np.empty(shape))
     ok = offset_clears(dl, min_l)
+    # a level the model needs is missing: not viable (as DeviceModel.needed_missing; with both absorbing the
+    # acceptor HOMO and gap are needed, so a NaN ΔHOMO is unchecked only where the model does not need it)
+    for level in (d_homo, d_lumo, d_gap, a_lumo) + ((a_homo, a_gap) if both else ()):
+        if np.isnan(level).any():
+            ok &= ~np.isnan(level)
     dh = None
     if both or not np.all(np.isnan(a_homo)):
         dh = np.subtract(d_homo, a_homo, out=np.empty(shape))
@@ -276,15 +282,16 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
         jsc *= -1.0
     voc *= jsc
     voc *= model.value("eqe") * model.pce_factor_pct(ff)
+    # before the detailed-balance cap: np.fmin would put the limit in place of a NaN efficiency
+    if not np.isfinite(voc).all():  # not a number: not viable, 0 (NaN × 0 would stay NaN)
+        ok &= np.isfinite(voc)
+        np.nan_to_num(voc, copy=False, nan=0.0, posinf=0.0, neginf=0.0)
     if np.isfinite(sq_below_ev):
         low = ok & (safe_lo < sq_below_ev)
         if low.any():
             voc[low] = np.fmin(voc[low], sq_pct(safe_lo[low]))
     else:
         np.fmin(voc, sq_pct(safe_lo), out=voc)
-    if not np.isfinite(voc).all():  # a level the model needs is missing (e.g. HOMO_A with both absorbing)
-        ok &= np.isfinite(voc)
-        np.nan_to_num(voc, copy=False, nan=0.0)
     voc *= ok
     return voc
 

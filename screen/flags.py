@@ -35,10 +35,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from screen.io import cell_number
+from screen.viability import GAP_MAX_EV, JSC_MIN_MA_CM2
 
 __all__ = ["Flag", "FLAGS", "FLAG_ORDER", "INFO_FLAGS", "NOT_VIABLE_FLAGS", "DEVICE_FLAGS", "describe", "is_info",
            "is_not_viable", "codes_of", "reason_of", "join_flags", "SEVERITIES",
-           "FAR_FROM_REFERENCE_SIMILARITY"]
+           "FAR_FROM_REFERENCE_SIMILARITY", "WINDOW_DECIMALS", "window_bound"]
 
 SEVERITIES = ("not_viable", "fail", "info")
 #: ``far_from_reference`` below this nearest-neighbour similarity to the calibration's reference rows
@@ -83,8 +84,10 @@ _REGISTRY = (
     Flag("levels_inconsistent", "the computed levels are inconsistent (e.g. an optical gap above the transport "
                                 "gap): the molecule lies outside what the calibration covers", _NV),
     Flag("input_missing", "a level the device model needs is missing, so no efficiency could be estimated", _NV),
-    Flag("absorber_gap_invalid", "the absorber's optical gap is not positive or lies beyond the solar spectrum "
-                                 "(above 4.4 eV), so nothing is absorbed", _NV),
+    Flag("absorber_gap_invalid", "the absorber's optical gap is not positive or lies above "
+                                 f"{GAP_MAX_EV:.2f} eV, where the AM1.5G spectrum (it ends at 280 nm = 4.43 eV) "
+                                 f"leaves so few photons that even at EQE = 1 Jsc is below {JSC_MIN_MA_CM2:.5f} mA cm⁻² "
+                                 "(written as 0), so nothing is absorbed", _NV),
     Flag("lumo_inverted", "inverted alignment at the estimated levels: the acceptor's LUMO is not below the "
                           "donor's, so electrons would not move from donor to acceptor", _NV),
     Flag("homo_inverted", "inverted alignment at the estimated levels: the donor's HOMO is not above the "
@@ -218,11 +221,37 @@ def _get(mapping, *keys):
     return node
 
 
-def _fmt(x: float) -> str:
-    out = f"{x:.2f}"
+def _fmt(x: float, digits: int = 2) -> str:
+    out = f"{x:.{digits}f}"
     if out.lstrip("+-").strip("0.") == "":
-        out = "0.00"
+        out = f"{0:.{digits}f}"
     return out.replace("-", "\u2212")
+
+
+#: decimals of a gap-window limit as a reason quotes it and :func:`screen.rank.rank_candidates` compares the written
+#: gaps with it: those of the numbers written to a ranking (``screen.rank._ROUND``)
+WINDOW_DECIMALS = 4
+
+
+def window_bound(x: float) -> float:
+    """A gap-window limit as the reason quotes it: its value to :data:`WINDOW_DECIMALS` decimals. [eV]
+
+    Examples
+    --------
+    >>> window_bound(1.0), window_bound(2.123456)
+    (1.0, 2.1235)
+    """
+    return float(f"{float(x):.{WINDOW_DECIMALS}f}")
+
+
+def _fmt_bound(x: float) -> str:
+    """A gap-window limit with 2 decimals, or as many (up to :data:`WINDOW_DECIMALS`) as :func:`window_bound`
+    keeps, so a written gap is never on the other side of the limit quoted."""
+    v = window_bound(x)
+    for d in range(2, WINDOW_DECIMALS):
+        if float(f"{v:.{d}f}") == v:
+            return _fmt(v, d)
+    return _fmt(v, WINDOW_DECIMALS)
 
 
 def _setting(settings: dict, key: str) -> float:
@@ -255,7 +284,7 @@ def describe(code: str, settings: dict | None = None) -> str:
     min_homo = cell_number(_get(settings, "device", "min_delta_homo_ev"))
     g_lo, g_hi = _setting(settings, "gap_min_ev"), _setting(settings, "gap_max_ev")
     limit = _setting(settings, "max_heavy_atoms")
-    window = "" if math.isnan(g_lo) or math.isnan(g_hi) else f" ({_fmt(g_lo)}\u2013{_fmt(g_hi)} eV)"
+    window = "" if math.isnan(g_lo) or math.isnan(g_hi) else f" ({_fmt_bound(g_lo)}\u2013{_fmt_bound(g_hi)} eV)"
     return FLAGS[code].text.format(
         min_lumo="the required minimum" if math.isnan(min_lumo) else f"{_fmt(min_lumo)} eV",
         min_homo="the required minimum" if math.isnan(min_homo) else f"{_fmt(min_homo)} eV",

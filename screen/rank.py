@@ -65,6 +65,7 @@ from screen.flags import (
     NOT_VIABLE_FLAGS,
     join_flags,
     reason_of,
+    window_bound,
 )
 from screen.io import count_text, text_cells
 from screen.levels_check import check_levels, check_partner, inconsistent_rows
@@ -76,7 +77,7 @@ from screen.rank_rows import split_ranked as _split_ranked
 from screen.rank_rows import text as _text
 from screen.sampling import sample_pce
 from screen.schema import check_options, resolve, section_defaults
-from screen.viability import acceptor_class_of, offset_clears, role_from_levels
+from screen.viability import OFFSET_TOL_EV, acceptor_class_of, offset_clears, role_from_levels
 
 __all__ = [
     "p_aligned", "ALIGNMENT_UNCERTAIN",
@@ -537,12 +538,19 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
                 options: RankOptions, ff_follows_class: bool, unranked=frozenset()) -> dict[str, np.ndarray]:
     """One boolean mask per flag code (:data:`screen.flags.FLAG_ORDER`): device flags of the rows with a
     pair, the gap window, the heavy-atom limit and the role flags (``dev`` with ``p_aligned`` and
-    ``acceptor_class``); ``unranked``: acceptor classes without held-out Voc ranking skill."""
+    ``acceptor_class``); ``unranked``: acceptor classes without held-out Voc ranking skill.
+
+    The gap window is judged on the gap as written (``gap_opt_ev``, :data:`_ROUND` decimals) against its limits
+    as the reason quotes them (:func:`screen.flags.window_bound`, the same decimals), within
+    :data:`screen.viability.OFFSET_TOL_EV`: a gap of 0.99999 eV, written 1.0, lies inside 1.00–3.00 eV, and a row
+    never reads "outside the window" beside a gap written inside it."""
     n = cand.ids.size
     pair_ok = roles.paired
     cand_missing = np.isnan(cand.homo) | np.isnan(cand.lumo) | np.isnan(cand.gap)
+    written = np.round(cand.gap, _ROUND)  # as _ranking_frame writes it
+    lo, hi = window_bound(options.gap_min_ev), window_bound(options.gap_max_ev)
     with np.errstate(invalid="ignore"):
-        gap_out = (cand.gap < options.gap_min_ev) | (cand.gap > options.gap_max_ev)
+        gap_out = (written < lo - OFFSET_TOL_EV) | (written > hi + OFFSET_TOL_EV)
     heavy_out = np.zeros(n, dtype=bool)
     heavy_unknown = np.zeros(n, dtype=bool)
     if options.max_heavy_atoms is not None:

@@ -13,8 +13,8 @@ between pairs carry less sampling noise.
 The efficiency of every sample comes from the device model itself
 (:meth:`screen.device.DeviceModel.pce_from_levels`: classification by the
 rules of the point estimate — the offsets (:func:`screen.viability.offset_clears`)
-and an absorber gap inside the spectrum, 0 < E_g ≤ 4.428 eV
-(:func:`screen.viability.gap_valid`) —, Voc and gap caps, detailed-balance
+and an absorber gap inside the spectrum, 0 < E_g ≤ :data:`screen.viability.GAP_MAX_EV` (4.12 eV: above it
+even EQE = 1 gives a Jsc written as 0; :func:`screen.viability.gap_valid`) —, Voc and gap caps, detailed-balance
 cap of each sample's own gap, exact below the tables' 0.25 eV), so the spread is
 that of the chosen model; a sample that is not viable counts as 0 %.  The work is cut into the steps of
 :func:`sample_pce`:

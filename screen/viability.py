@@ -37,12 +37,18 @@ from functools import lru_cache
 import numpy as np
 
 __all__ = ["classify", "VIABILITY_MASKS", "role_from_levels", "acceptor_class_of", "GAP_MAX_EV",
-           "OFFSET_TOL_EV", "offset_clears", "gap_valid"]
+           "JSC_MIN_MA_CM2", "OFFSET_TOL_EV", "offset_clears", "gap_valid"]
 
 #: Offsets within this of a threshold count as meeting it (−4.0 − (−4.3) is 0.2999999999999998). [eV]
 OFFSET_TOL_EV = 1e-9
-#: Largest absorber gap with photons in the ASTM G173-03 table (hc / 280 nm). [eV]
-GAP_MAX_EV = 4.428
+#: A Jsc below this is written as 0 with the rankings' 4 decimals (the dye-cell mode's ``no_sunlight`` limit too,
+#: :data:`screen.dyecell.model.JSC_MIN_MA_CM2`). [mA cm⁻²]
+JSC_MIN_MA_CM2 = 5e-5
+#: Largest absorber gap, in hundredths of an eV, whose AM1.5G photons above it give at least
+#: :data:`JSC_MIN_MA_CM2` at EQE = 1 (ASTM G173-03: 6.6e-5 mA cm⁻² at 4.12 eV, 4.1e-5 at 4.13 eV; the table ends at
+#: hc/280 nm = 4.428 eV). A wider absorber gap gets no photocurrent that a ranking could write (it was viable with
+#: Jsc 2.5e-21 mA cm⁻² and PCE written 0.0 at 4.40 eV); checked against the spectrum in the tests. [eV]
+GAP_MAX_EV = 4.12
 #: masks returned by :func:`classify`, in flag-registry order
 VIABILITY_MASKS = ("input_missing", "absorber_gap_invalid", "lumo_inverted", "homo_inverted", "lumo_offset_low",
                    "homo_offset_low", "voc_nonpositive")
@@ -68,13 +74,13 @@ def offset_clears(delta, minimum: float) -> np.ndarray:
 
 
 def gap_valid(gap) -> np.ndarray:
-    """Whether an absorber gap absorbs anything: 0 < gap <= :data:`GAP_MAX_EV` (the rule of
-    :func:`classify`, flag ``absorber_gap_invalid``); NaN → False.
+    """Whether an absorber gap absorbs enough sunlight to write a current: 0 < gap <= :data:`GAP_MAX_EV` (the rule
+    of :func:`classify`, flag ``absorber_gap_invalid``, and of the sampler); NaN → False.
 
     Examples
     --------
-    >>> gap_valid(np.array([-0.1, 0.0, 0.08, 1.5, 4.5, np.nan])).tolist()
-    [False, False, True, True, False, False]
+    >>> gap_valid(np.array([-0.1, 0.0, 0.08, 1.5, 4.12, 4.2, 4.5, np.nan])).tolist()
+    [False, False, True, True, True, False, False, False]
     """
     gap = np.asarray(gap, dtype=float)
     with np.errstate(invalid="ignore"):

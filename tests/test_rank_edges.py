@@ -186,7 +186,7 @@ def test_no_sample_lies_above_the_detailed_balance_limit_of_its_own_gap():
                               sq_pct=_sq_fast, sq_voc=_voc_fast, sq_below_ev=_sq_below_ev(model))
     limit = np.where(gaps > 0, sq_limit(np.where(gaps > 0, gaps, 1.0))["pce_pct"], 0.0)
     assert np.all(v <= limit + 1e-6), (v, limit)
-    assert v[0] == v[1] == v[-1] == 0.0  # gap <= 0 or beyond the spectrum (4.428 eV): not viable
+    assert v[0] == v[1] == v[-1] == 0.0  # gap <= 0 or beyond GAP_MAX_EV (4.12 eV): not viable
 
 
 # --------------------------------------------------------------------------- 4. an estimate on a steep edge

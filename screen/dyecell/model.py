@@ -98,6 +98,7 @@ from screen.dyecell.library import Material
 from screen.dyecell.options import option_defaults
 from screen.errors import ConfigError
 from screen.schema import check_section
+from screen.sampling import _sq_fast, _voc_fast
 from screen.spectrum import (
     gap_to_wavelength_nm,
     incident_power_w_m2,
@@ -105,6 +106,7 @@ from screen.spectrum import (
     reference_spectrum,
     sq_limit,
 )
+from screen.viability import JSC_MIN_MA_CM2
 
 __all__ = ["DyeCellModel", "evaluate", "sample_pce", "TOL_EV", "JSC_MIN_MA_CM2", "sunlight_edge_ev",
            "p_type_threshold_note", "DEFAULT_REG_THRESHOLD_EV"]
@@ -112,12 +114,12 @@ __all__ = ["DyeCellModel", "evaluate", "sample_pce", "TOL_EV", "JSC_MIN_MA_CM2",
 #: driving forces within this of a threshold meet it (binary floating point) [eV]
 TOL_EV = 1e-9
 _D = option_defaults()
-#: a Jsc below this is written as 0 in ``ranking.csv`` (4 decimals): such a dye absorbs no sunlight, and is not
-#: viable (flag ``no_sunlight``) [mA cm⁻²]
-JSC_MIN_MA_CM2 = 5e-5
+# JSC_MIN_MA_CM2 (screen.viability, one value for both modes): a Jsc below it is written as 0 in ``ranking.csv``
+# (4 decimals): such a dye absorbs no sunlight, and is not viable (flag ``no_sunlight``) [mA cm⁻²]
 #: regeneration threshold of a mediator without its own, unless ``dyecell.min_drive_reg_ev`` is set [eV]
 #: (common practice for one-electron couples: Hagfeldt et al., Chem. Rev. 110 (2010) 6595)
 DEFAULT_REG_THRESHOLD_EV = 0.2
+
 
 def sunlight_edge_ev() -> float:
     """Photon energy of the shortest wavelength of the AM1.5G table, hc/280 nm: no sunlight above it. [eV]
@@ -544,7 +546,10 @@ def _block_samples(model: DyeCellModel, eo: np.ndarray, eg: np.ndarray, oxide: M
 
     ``eo`` and ``eg`` hold the sampled E(S⁺/S) [V vs NHE] and E₀₋₀ [eV]; ``dead``
     marks dyes whose every sample is 0 (missing input or no anchor).  Jsc and the
-    detailed-balance cap come from one uniform E₀₋₀ table (shared index).  A
+    detailed-balance cap come from one uniform E₀₋₀ table (shared index); below
+    its 0.30 eV the caps are those of the donor/acceptor sampler, exact below its
+    tables' 0.25 eV (:func:`screen.sampling._voc_fast`, :func:`screen.sampling._sq_fast`),
+    so a narrow sampled E₀₋₀ never gets the limits of 0.30 eV.  A
     sample is viable as in :func:`evaluate`: both thresholds met, sunlight
     absorbed (Jsc ≥ :data:`JSC_MIN_MA_CM2`) and a positive capped Voc.
     """
@@ -562,12 +567,17 @@ def _block_samples(model: DyeCellModel, eo: np.ndarray, eg: np.ndarray, oxide: M
     np.clip(x, 0.0, jsc_t.size - 1 - 1e-9, out=x)
     idx = x.astype(np.intp)
     x -= idx
-    voc_s = np.minimum(voc_t[idx] + x * voc_d[idx], max(voc, 0.0))  # Voc at most the detailed-balance Voc of E₀₋₀
+    voc_lim, sq_lim = voc_t[idx] + x * voc_d[idx], sq_t[idx] + x * sq_d[idx]
+    below = (eg > 0) & (eg < _GRID_MIN_EV)  # the limits fall to 0 with E₀₋₀ there: never the grid's first value
+    if below.any():
+        voc_lim[below], sq_lim[below] = _voc_fast(eg[below]), _sq_fast(eg[below])
+    voc_s = np.minimum(voc_lim, max(voc, 0.0))  # Voc at most the detailed-balance Voc of E₀₋₀
+    # Jsc: the grid's first value is exact below it (every photon of the spectrum, which starts at 0.31 eV)
     jsc_s = (jsc_t[idx] + x * jsc_d[idx]) * model.photon_to_current
     ok &= (jsc_s >= JSC_MIN_MA_CM2) & (eg < _GRID_MAX_EV) & (voc_s > 0)  # absorbs sunlight, capped Voc > 0
     pce = jsc_s * model.pce_factor_pct()
     pce *= voc_s
-    np.minimum(pce, sq_t[idx] + x * sq_d[idx], out=pce)
+    np.minimum(pce, sq_lim, out=pce)
     pce *= ok
     return pce, ok
 
@@ -586,7 +596,9 @@ def sample_pce(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediato
     same rule as the donor/acceptor ranking, :func:`screen.sampling.sample_pce`);
     each sample is capped at the detailed-balance limit of its E₀₋₀.  One table of standard normal deviates (fixed seed) is shared by
     every dye (common random numbers): a dye's result does not depend on the
-    others, their order or the block size — as in :func:`screen.sampling.sample_pce`.
+    others, their order or the block size — as in :func:`screen.sampling.sample_pce`.  A dye without
+    uncertainty (both σ = 0) gets the point estimate of :func:`evaluate` itself (mean, ``p_viable`` 0 or 1,
+    σ 0 when viable), not its tabulated value.
 
     Parameters
     ----------
@@ -647,20 +659,28 @@ def sample_pce(model: DyeCellModel, e_ox_v_nhe, e00_ev, oxide: Material, mediato
     out_mean, out_sigma = np.full(n, np.nan), np.full(n, np.nan)
     out_p, out_v = np.full(n, np.nan), np.full(n, np.nan)
     rows = max(1, _BLOCK_ELEMENTS // n_samples)
-    for a in range(0, n, rows):
-        b = min(a + rows, n)
-        eo = np.where(missing[a:b], 1.0, e_ox[a:b])[:, None] + s_ox[a:b, None] * z[0]
-        eg = np.where(missing[a:b], 2.0, e00[a:b])[:, None] + s_gap[a:b, None] * z[1]
-        pce, ok = _block_samples(model, eo, eg, oxide, mediator, dead[a:b])
+    fixed = ~missing & (s_ox == 0) & (s_gap == 0)
+    todo = np.flatnonzero(~missing & ~fixed)  # a dye's samples depend on its own row only (common random numbers)
+    for start in range(0, todo.size, rows):
+        sel = todo[start:start + rows]
+        eo = e_ox[sel, None] + s_ox[sel, None] * z[0]
+        eg = e00[sel, None] + s_gap[sel, None] * z[1]
+        pce, ok = _block_samples(model, eo, eg, oxide, mediator, dead[sel])
         count = np.count_nonzero(ok, axis=1)
-        out_v[a:b] = count / n_samples
-        out_p[a:b] = np.count_nonzero(pce > target_pct, axis=1) / n_samples
-        out_mean[a:b] = pce.mean(axis=1)
+        out_v[sel] = count / n_samples
+        out_p[sel] = np.count_nonzero(pce > target_pct, axis=1) / n_samples
+        out_mean[sel] = pce.mean(axis=1)
         centre = pce.sum(axis=1) / np.maximum(count, 1)                 # mean of the viable samples
         pce -= centre[:, None]
         pce *= ok
         s2 = np.einsum("ij,ij->i", pce, pce)
-        out_sigma[a:b] = np.where(count >= 2, np.sqrt(s2 / np.maximum(count - 1, 1)), np.nan)
+        out_sigma[sel] = np.where(count >= 2, np.sqrt(s2 / np.maximum(count - 1, 1)), np.nan)
+    if fixed.any():  # no uncertainty: every sample is the point estimate, exact (the tables differ by ~1e-4 %)
+        point = evaluate(model, e_ox[fixed], e00[fixed], oxide, mediator, anchored[fixed])
+        works = np.asarray(point["viable"], bool)
+        pce = np.where(works, point["pce_pct"], 0.0)
+        out_mean[fixed], out_sigma[fixed] = pce, np.where(works, 0.0, np.nan)
+        out_p[fixed], out_v[fixed] = (pce > target_pct).astype(float), works.astype(float)
     for arr in (out_mean, out_sigma, out_p, out_v):
         arr[missing] = np.nan
     return {"pce_mean_pct": out_mean, "pce_sigma_pct": out_sigma, "p_above_target": out_p, "p_viable": out_v}
