@@ -68,6 +68,8 @@ def _write_candidates(smiles, ids, roles, folder: Path) -> Path:
     """The candidate file of the call in ``folder`` (a file given as a path is used as it is)."""
     import pandas as pd
 
+    from screen.io import write_csv
+
     if isinstance(smiles, os.PathLike):
         if ids is not None or roles is not None:
             raise InputError("levels_of: ids and roles come from the candidate file itself; leave them out")
@@ -79,7 +81,7 @@ def _write_candidates(smiles, ids, roles, folder: Path) -> Path:
             raise InputError(f"levels_of: the DataFrame has no 'smiles' column (columns: "
                              f"{', '.join(map(str, smiles.columns)) or 'none'}); give one SMILES per row in it")
         target = folder / "candidates.csv"
-        smiles.astype(object).where(smiles.notna(), "").to_csv(target, index=False)
+        write_csv(smiles.astype(object).where(smiles.notna(), ""), target)  # a CR in a cell quoted (screen.io)
         return target
     if isinstance(smiles, str):
         smiles = [smiles]

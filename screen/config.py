@@ -26,10 +26,10 @@ import yaml
 from screen.errors import ConfigError
 from screen.options import (EARLIER_PROTOCOL_VALUES, ElectronicOptions, ExecutionOptions, StructureOptions,
                             route_structures)
-from screen.schema import SCHEMA_PATH, defaults, resolve, section_defaults
+from screen.schema import MAX_NESTING, SCHEMA_PATH, defaults, resolve, section_defaults
 
-__all__ = ["SCHEMA_PATH", "ConfigError", "Config", "load_config", "read_config_file", "read_problem", "merge",
-           "resolve", "defaults", "section_defaults", "data_path", "PACKAGE_ROOT",
+__all__ = ["SCHEMA_PATH", "ConfigError", "Config", "load_config", "read_config_file", "load_yaml", "read_problem",
+           "merge", "resolve", "defaults", "section_defaults", "data_path", "PACKAGE_ROOT",
            "protocol", "protocol_id"]
 
 #: the folder that holds the ``screen`` package and, in an installation from the repository, the shipped data
@@ -125,6 +125,9 @@ class Config(Mapping):
             data = json.loads(text)
         except json.JSONDecodeError as exc:
             raise ConfigError(f"{source}: not valid JSON: {exc}") from exc
+        except RecursionError:
+            raise ConfigError(f"{source}: nested too deeply (more than {MAX_NESTING} levels of mappings and "
+                              "lists)") from None
         return cls(data, source)
 
     @classmethod
@@ -294,6 +297,8 @@ def read_problem(exc: Exception) -> str:
     """
     if isinstance(exc, UnicodeDecodeError):
         return f"not UTF-8 text (byte 0x{exc.object[exc.start]:02x} at position {exc.start})"
+    if isinstance(exc, _Refused):  # valid YAML, refused in a config file: its own words
+        return str(exc)
     if isinstance(exc, yaml.YAMLError):
         mark = getattr(exc, "problem_mark", None)
         where = f" at line {mark.line + 1}, column {mark.column + 1}" if mark is not None else ""
@@ -304,16 +309,47 @@ def read_problem(exc: Exception) -> str:
     return " ".join(str(exc).split())
 
 
-class _RepeatedKey(Exception):
+class _Refused(yaml.YAMLError):
+    """A config file written in a way a config file may not be (raised by :class:`_UniqueKeyLoader`); a
+    ``yaml.YAMLError``, so that a reader of :func:`load_yaml` that catches those catches it."""
+
+
+class _RepeatedKey(_Refused):
     """A mapping of a YAML file names one key twice (raised by :class:`_UniqueKeyLoader`)."""
 
 
 class _UniqueKeyLoader(yaml.SafeLoader):
-    """The safe YAML loader, refusing a mapping that names a key twice.
+    """The safe YAML loader, refusing a mapping that names a key twice, aliases and deep nesting.
 
     YAML keeps the last of two equal keys without a word: a config file with ``device:`` twice (a copy-paste slip)
-    ran with the second section's ``eqe`` (a careless user's audit). Merge keys (``<<``) may still override.
+    ran with the second section's ``eqe`` (a careless user's audit).
+
+    An alias (``*name``, merge keys ``<<: *name`` included) is refused: nine levels of aliases in 380 bytes are
+    9**9 values once written out, which the schema's message wrote out (2.9 GB and a MemoryError after 32 s, a
+    security audit), and no config file the project ships or a run writes uses one (a run writes its
+    ``config.yaml`` without shared values, :func:`screen.schema.resolve`). An anchor without an alias does
+    nothing and is left alone. Mappings and lists nested more than :data:`screen.schema.MAX_NESTING` deep are
+    refused where the nesting goes too deep (3 000 nested mappings gave a RecursionError of 3 000 lines).
     """
+
+    _depth = 0
+
+    def compose_node(self, parent, index):
+        if self.check_event(yaml.AliasEvent):
+            event = self.peek_event()
+            raise _Refused(f"line {event.start_mark.line + 1}: the YAML alias *{event.anchor}: a config file takes "
+                           "no aliases (*name, <<: *name); write the value out where it is used")
+        if self.check_event(yaml.SequenceStartEvent, yaml.MappingStartEvent):
+            if self._depth >= MAX_NESTING:
+                raise _Refused(f"line {self.peek_event().start_mark.line + 1}: nested too deeply (more than "
+                               f"{MAX_NESTING} levels of mappings and lists; a config file holds sections of fields: "
+                               "`section:` then `  field: value` lines, see `dascreen config --yaml`)")
+            self._depth += 1
+            try:
+                return super().compose_node(parent, index)
+            finally:
+                self._depth -= 1
+        return super().compose_node(parent, index)
 
     def construct_mapping(self, node, deep=False):
         if isinstance(node, yaml.MappingNode):
@@ -330,14 +366,45 @@ class _UniqueKeyLoader(yaml.SafeLoader):
         return super().construct_mapping(node, deep=deep)
 
 
+def load_yaml(text: str):
+    """YAML text read as a config file is read (:class:`_UniqueKeyLoader`): the safe loader, refusing a key given
+    twice in one mapping, a YAML alias and mappings and lists nested more than :data:`screen.schema.MAX_NESTING`
+    deep.
+
+    For every reader of a file a user may be sent, such as a run folder's ``config.yaml``: ``yaml.safe_load``
+    shares an aliased value, so nine levels of aliases in 380 bytes are 9**9 values for whatever writes the value
+    out (``str``, ``json.dumps``, a message), and it recurses once per level of nesting (a security audit).
+
+    Raises
+    ------
+    yaml.YAMLError
+        Not valid YAML, or refused (:func:`read_problem` says which, in one line).
+
+    Examples
+    --------
+    >>> load_yaml("rank: {seed: 3}")
+    {'rank': {'seed': 3}}
+    >>> try:
+    ...     load_yaml("[" * 100 + "]" * 100)
+    ... except yaml.YAMLError as exc:
+    ...     print(read_problem(exc))
+    line 1: nested too deeply (more than 32 levels of mappings and lists; a config file holds sections of fields: `section:` then `  field: value` lines, see `dascreen config --yaml`)
+    """
+    try:
+        return yaml.load(text, Loader=_UniqueKeyLoader)  # noqa: S506 - a SafeLoader
+    except RecursionError:  # a last guard: the loader refuses deep nesting well before Python's limit
+        raise _Refused(f"nested too deeply (more than {MAX_NESTING} levels of mappings and lists)") from None
+
+
 def read_config_file(path: str | Path | None) -> dict:
     """The mapping of a YAML config file (not yet validated); ``{}`` for ``None``.
 
     Raises
     ------
     ConfigError
-        Unreadable file, text that is not UTF-8, invalid YAML, a key given twice in one mapping or not a mapping
-        (the message names the file).
+        Unreadable file, text that is not UTF-8, invalid YAML, a key given twice in one mapping, a YAML alias,
+        mappings and lists nested more than :data:`screen.schema.MAX_NESTING` deep or not a mapping (the message
+        names the file).
 
     Examples
     --------
@@ -354,12 +421,18 @@ def read_config_file(path: str | Path | None) -> dict:
     ... except ConfigError as exc:
     ...     print(str(exc).split(": ", 1)[1])
     key 'device' appears twice (lines 1 and 3); keep one (YAML would use the second without a word)
+    >>> alias = binary.with_name("alias.yaml"); _ = alias.write_text("x: &a [1, 2]\\nrank:\\n  seed: *a\\n")
+    >>> try:
+    ...     read_config_file(alias)
+    ... except ConfigError as exc:
+    ...     print(str(exc).split(": ", 1)[1])
+    line 3: the YAML alias *a: a config file takes no aliases (*name, <<: *name); write the value out where it is used
     """
     if path is None:
         return {}
     try:
-        cfg = yaml.load(Path(path).read_text(encoding="utf-8"), Loader=_UniqueKeyLoader) or {}  # noqa: S506 - safe
-    except _RepeatedKey as exc:
+        cfg = load_yaml(Path(path).read_text(encoding="utf-8")) or {}
+    except _Refused as exc:
         raise ConfigError(f"{path}: {exc}") from None
     except UnicodeDecodeError as exc:  # a binary or Latin-1 file gave a traceback (a new user's audit)
         raise ConfigError(f"{path}: the config file is {read_problem(exc)}; save it as UTF-8 (a YAML file of fields, "

@@ -641,7 +641,7 @@ def write_fitted(path=FITTED_PATH, devices=DEVICES_PATH, film=FILM_PATH, levels_
     dict
         What was written to ``path``.
     """
-    from screen.io import write_json
+    from screen.io import write_csv, write_json
     from screen.provenance import sha256_file
 
     table = level_table(devices, film)
@@ -656,7 +656,7 @@ def write_fitted(path=FITTED_PATH, devices=DEVICES_PATH, film=FILM_PATH, levels_
             "acceptor_level_source", "levels_converted", "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "drop_reason",
             *[f"paper_{c}" for c in _LEVELS]]
     Path(levels_path).parent.mkdir(parents=True, exist_ok=True)
-    table[cols].to_csv(levels_path, index=False, float_format="%.4g", lineterminator="\n")
+    write_csv(table[cols], levels_path, lineterminator="\n", float_format="%.4g")  # a CR in a text cell quoted
     data = {
         "model": "fitted energy-loss model (Voc = E_CT - loss; EQE with a smooth offset yield)",
         "parameters": params.as_dict() | {"source": None},

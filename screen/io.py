@@ -103,6 +103,24 @@ def text_cells(series: pd.Series) -> pd.Series:
     return series.astype(object).fillna("").astype(str)
 
 
+#: longest data line of an SD record that a reader must accept (CTfile formats, V2000: 200 characters)
+SD_LINE_MAX = 200
+
+
+def sd_text(value, limit: int | None = SD_LINE_MAX) -> str:
+    r"""SD title or property text: one line (a CR or LF becomes a space), no record separator ``$$$$``, at most
+    ``limit`` characters (the last three ``...`` when cut; None: not cut, for a SMILES that is read back).
+
+    Examples
+    --------
+    >>> sd_text("a\r\nb$$$$"), sd_text(float("nan")), len(sd_text("x" * 5000)), sd_text("x" * 5000)[-4:]
+    ('a  b$ $ $ $', '', 200, 'x...')
+    """
+    text = "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)
+    text = " ".join(text.replace("\r", "\n").split("\n")).replace("$$$$", "$ $ $ $")
+    return text if limit is None or len(text) <= limit else text[:limit - 3] + "..."
+
+
 def count_text(value) -> str:
     """A count cell as text: a whole number without ``.0`` (a CSV read gives ``4.0`` for 4 in a column with empty
     cells), anything else as :func:`cell_text`.
@@ -141,16 +159,27 @@ def _umask() -> int:
 
 
 def _csv_field(value: str, lineterminator: str) -> str:
-    """One text field as :mod:`csv` writes it in a row (quoted when it holds a delimiter, quote or line end).
+    """One text field as :mod:`csv` writes it in a row (quoted when it holds a delimiter, quote or line end), and
+    quoted too when it holds a carriage return or line feed that ``lineterminator`` lacks.
+
+    Python's :mod:`csv` (3.11) quotes a field for the characters of the line terminator only, so with ``"\\n"`` a
+    lone carriage return was written bare; pandas, a spreadsheet and :mod:`csv` itself read it back as a line
+    break, which split the row in two (a candidate named ``"ok\\r=1+1"`` lost a run's whole batch at the levels
+    stage, and put a formula at the start of a new row of ``ranking.safe.csv``: a security audit).
 
     Examples
     --------
     >>> print(_csv_field('a,b"c', "\\n"), _csv_field("plain", "\\n"))
     "a,b""c" plain
+    >>> _csv_field("ok\\r=1+1", "\\n"), _csv_field("a\\nb", "\\r")
+    ('"ok\\r=1+1"', '"a\\nb"')
     """
     buf = io.StringIO()
     csv.writer(buf, lineterminator=lineterminator).writerow([value, ""])  # two fields: no lone-field rule
-    return buf.getvalue()[:-1 - len(lineterminator)]
+    out = buf.getvalue()[:-1 - len(lineterminator)]
+    if not out.startswith('"') and ("\r" in value or "\n" in value):
+        out = '"' + value + '"'  # unquoted, so it holds no quote character to double
+    return out
 
 
 def _csv_texts(values: list[str], lineterminator: str) -> list[str]:
@@ -160,7 +189,12 @@ def _csv_texts(values: list[str], lineterminator: str) -> list[str]:
     terminator) are a superset of what makes :mod:`csv` quote a field, and a
     field without any is written as it is; one search over the joined column
     rules them out in the usual case; each distinct field that needs it is
-    quoted once.
+    quoted once (:func:`_csv_field`: a field holding CR or LF always is).
+
+    Examples
+    --------
+    >>> _csv_texts(["a", "b\\rc", "d,e"], "\\n")
+    ['a', '"b\\rc"', '"d,e"']
     """
     special = re.compile("[" + re.escape(',"\r\n\0' + lineterminator) + "]")
     if not special.search("".join(values)):
@@ -194,14 +228,51 @@ def _csv_column(series: pd.Series, lineterminator: str) -> list[str] | None:
     return None
 
 
-def csv_text(frame: pd.DataFrame, lineterminator: str = os.linesep) -> str:
-    """``frame.to_csv(index=False, lineterminator=lineterminator)``, the same text made column by column.
+def _pandas_csv(frame: pd.DataFrame, lineterminator: str, **options) -> str:
+    """``frame.to_csv(index=False, lineterminator=lineterminator, **options)``, with a text cell that holds a
+    carriage return or line feed quoted whatever the line terminator (:func:`_csv_field`).
+
+    pandas hands the cells to :mod:`csv`, which quotes a field for the characters of the line terminator only: with
+    ``"\\n"`` a lone CR was written bare and read back as a line break.  When the text holds such a character
+    outside the terminator, the frame is written again with ``"\\r\\n"`` (:mod:`csv` then quotes every field
+    holding CR or LF), read back into fields by :mod:`csv` and joined again with ``lineterminator``; the fields are
+    pandas' own, so numbers, dates and missing values are written as pandas writes them.
+
+    Examples
+    --------
+    >>> _pandas_csv(pd.DataFrame({"id": ["ok\\r=1", None], "d": pd.to_datetime(["2024-01-02", None])}), "\\n")
+    'id,d\\n"ok\\r=1",2024-01-02\\n,\\n'
+    >>> _pandas_csv(pd.DataFrame({"x": [1.23456, float("nan")]}), "\\n", float_format="%.3g")
+    'x\\n1.23\\n""\\n'
+    """
+    text = frame.to_csv(index=False, lineterminator=lineterminator, **options)
+    loose = {"\r", "\n"} - set(lineterminator)
+    if not any(c in text for c in loose):
+        return text
+    rows = csv.reader(io.StringIO(frame.to_csv(index=False, lineterminator="\r\n", **options), newline=""))
+    lines = []
+    for row in rows:
+        # a lone empty field is written '""' (a bare empty line would be skipped on reading), as csv writes it
+        lines.append('""' if row == [""] else ",".join(_csv_texts(row, lineterminator)))
+    return "".join(line + lineterminator for line in lines)
+
+
+def csv_text(frame: pd.DataFrame, lineterminator: str = os.linesep, float_format: str | None = None) -> str:
+    """``frame.to_csv(index=False, lineterminator=lineterminator)``, the same text made column by column, except
+    that a text field holding a carriage return or line feed is always quoted.
 
     pandas hands every cell to :mod:`csv`; here each column is converted
     once (:func:`_csv_column`), only the text fields that need quoting go
     through :mod:`csv`, and the rows are joined with ``","``.  A frame with a
     column of another dtype, a column label that is not a string, or fewer
-    than two columns is written by pandas itself.
+    than two columns is written by pandas itself (:func:`_pandas_csv`), as is
+    one with a ``float_format``.
+
+    :mod:`csv` (and so pandas) quotes a field only for a delimiter, a quote or a character of the line
+    terminator: with ``"\\n"`` a lone carriage return in an id or name was written bare, and every later
+    reading (pandas, :mod:`csv`, a spreadsheet) took it for a line break, splitting the row (a security audit).
+    Every CSV file the project writes goes through here (or :func:`write_csv`), so each quotes such a field; the
+    text of ordinary tables is pandas' own, byte for byte.
 
     Parameters
     ----------
@@ -209,6 +280,8 @@ def csv_text(frame: pd.DataFrame, lineterminator: str = os.linesep) -> str:
         The table.
     lineterminator : str
         Line end (pandas' default is ``os.linesep``).
+    float_format : str, optional
+        ``DataFrame.to_csv``'s ``float_format`` (``"%.4g"``).
 
     Returns
     -------
@@ -222,25 +295,34 @@ def csv_text(frame: pd.DataFrame, lineterminator: str = os.linesep) -> str:
     'id,x,ok\\n"a,b",1.5,True\\n,,False\\n'
     >>> csv_text(t, "\\n") == t.to_csv(index=False, lineterminator="\\n")
     True
+    >>> cr = pd.DataFrame({"id": ["ok\\r=1+1", "b"], "x": [1.0, 2.0]})
+    >>> csv_text(cr, "\\n")
+    'id,x\\n"ok\\r=1+1",1.0\\nb,2.0\\n'
+    >>> pd.read_csv(io.StringIO(csv_text(cr, "\\n"), newline=""))["id"].tolist()
+    ['ok\\r=1+1', 'b']
     """
+    if float_format is not None:
+        return _pandas_csv(frame, lineterminator, float_format=float_format)
     names = list(frame.columns)
     columns = [None]
     if len(names) > 1 and all(type(c) is str for c in names):
         columns = [_csv_column(frame.iloc[:, i], lineterminator) for i in range(len(names))]
     if any(c is None for c in columns):
-        return frame.to_csv(index=False, lineterminator=lineterminator)
+        return _pandas_csv(frame, lineterminator)
     lines = [",".join(_csv_texts(names, lineterminator))]
     lines += map(",".join, zip(*columns))
     return lineterminator.join(lines) + lineterminator
 
 
-def write_csv(frame: pd.DataFrame, target: str | os.PathLike) -> str:
+def write_csv(frame: pd.DataFrame, target: str | os.PathLike, lineterminator: str = os.linesep,
+              float_format: str | None = None) -> str:
     """Write ``frame`` as CSV (no index, UTF-8, line ends ``os.linesep``) atomically; return the text written.
 
-    The text is ``frame.to_csv(index=False)`` (:func:`csv_text`), line ends ``os.linesep`` as
-    ``DataFrame.to_csv(path)`` writes them.
+    The text is ``frame.to_csv(index=False)`` (:func:`csv_text`: a field holding CR or LF quoted), line ends
+    ``os.linesep`` as ``DataFrame.to_csv(path)`` writes them unless ``lineterminator`` is given;
+    ``float_format`` as ``DataFrame.to_csv``'s.
     """
-    text = csv_text(frame)
+    text = csv_text(frame, lineterminator, float_format)
     with atomic_path(target) as tmp:
         with open(tmp, "w", encoding="utf-8", newline="") as fh:
             fh.write(text)
@@ -399,10 +481,35 @@ def repeated_in_header(header, case_blind=frozenset()) -> str | None:
     return None
 
 
+def looks_utf16(raw: bytes) -> str:
+    r"""``"le"`` or ``"be"`` when ``raw`` (without a byte-order mark) looks like UTF-16 text: a NUL byte beside
+    nearly every character of its start (ASCII text in UTF-16); ``""`` otherwise.
+
+    Examples
+    --------
+    >>> looks_utf16("id,smiles".encode("utf-16-le")), looks_utf16("id,smiles".encode("utf-16-be"))
+    ('le', 'be')
+    >>> looks_utf16(b"id,smiles\nX\x001,C\n"), looks_utf16(b"")
+    ('', '')
+    """
+    sample = raw[:4096]
+    if len(sample) < 4 or b"\x00" not in sample:
+        return ""
+    half = len(sample) // 2
+    odd, even = sample[1::2].count(0), sample[0::2].count(0)
+    if odd >= 0.4 * half and even <= 0.1 * half:
+        return "le"
+    if even >= 0.4 * half and odd <= 0.1 * half:
+        return "be"
+    return ""
+
+
 def utf16_error(path: Path, raw: bytes, fmt: str | None = None) -> InputError:
-    """The error of a UTF-16 file (a byte-order mark FF FE or FE FF: a spreadsheet's "Unicode text") that is not
-    read as such: an SD file, or UTF-16 that does not decode. Before, it got "not UTF-8 ... from Latin-1: `iconv -f
-    latin1`" with an id of NUL characters (an input-file audit), which sent the user to the wrong conversion.
+    """The error of a UTF-16 file that is not read as such: with a byte-order mark (FF FE or FE FF: a spreadsheet's
+    "Unicode text") an SD file, or UTF-16 that does not decode; without one (a NUL byte beside every ASCII character,
+    :func:`looks_utf16`) any file. Before, the first got "not UTF-8 ... from Latin-1: `iconv -f latin1`" with an id
+    of NUL characters (an input-file audit), and a CSV without the mark "no 'smiles' column; columns found:
+    ['i\\x00d\\x00', ...]" (a security audit).
 
     Examples
     --------
@@ -410,21 +517,31 @@ def utf16_error(path: Path, raw: bytes, fmt: str | None = None) -> InputError:
     c.sdf: UTF-16 text (byte-order mark FF FE), not UTF-8: convert it with `iconv -f utf-16 -t utf-8 c.sdf > ...
     >>> str(utf16_error(Path("c.sdf.gz"), codecs.BOM_UTF16_LE, "sdf")).split("`")[1]
     'gunzip -c c.sdf.gz | iconv -f utf-16 -t utf-8 > c-utf8.sdf'
+    >>> print(utf16_error(Path("c.csv"), "id,smiles".encode("utf-16-le"), "csv"))  # doctest: +NORMALIZE_WHITESPACE
+    c.csv: looks like UTF-16 text without a byte-order mark (a NUL byte after every character), not UTF-8: convert
+    it with `iconv -f utf-16le -t utf-8 c.csv > c-utf8.csv` or save it from the spreadsheet as "CSV UTF-8"
     """
-    mark = "FF FE" if raw.startswith(codecs.BOM_UTF16_LE) else "FE FF"
     sheet = ' or save it from the spreadsheet as "CSV UTF-8"' if fmt in (None, "csv", "smi") else ""
-    try:
-        raw.decode("utf-16")
-        broken = ""
-    except UnicodeDecodeError:
-        broken = " (and it does not decode as UTF-16 either: check the file)"
+    if raw.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+        mark = "FF FE" if raw.startswith(codecs.BOM_UTF16_LE) else "FE FF"
+        encoding = "utf-16"  # the mark gives the byte order
+        try:
+            raw.decode("utf-16")
+            broken = ""
+        except UnicodeDecodeError:
+            broken = " (and it does not decode as UTF-16 either: check the file)"
+        what = f"UTF-16 text (byte-order mark {mark}), not UTF-8{broken}"
+    else:
+        order = looks_utf16(raw) or "le"
+        encoding = f"utf-16{order}"
+        what = (f"looks like UTF-16 text without a byte-order mark (a NUL byte {'after' if order == 'le' else 'before'}"
+                " every character), not UTF-8")
     if path.name.lower().endswith(".gz"):  # iconv reads text, not gzip data: decompress first
         plain = Path(path.name[:-3])
-        command = f"gunzip -c {path.name} | iconv -f utf-16 -t utf-8 > {plain.stem}-utf8{plain.suffix}"
+        command = f"gunzip -c {path.name} | iconv -f {encoding} -t utf-8 > {plain.stem}-utf8{plain.suffix}"
     else:
-        command = f"iconv -f utf-16 -t utf-8 {path.name} > {path.stem}-utf8{path.suffix}"
-    return InputError(f"{path}: UTF-16 text (byte-order mark {mark}), not UTF-8{broken}: convert it with "
-                      f"`{command}`{sheet}")
+        command = f"iconv -f {encoding} -t utf-8 {path.name} > {path.stem}-utf8{path.suffix}"
+    return InputError(f"{path}: {what}: convert it with `{command}`{sheet}")
 
 
 def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", error=InputError,
@@ -465,15 +582,17 @@ def read_csv_checked(path: str | os.PathLike, required, *, what: str = "table", 
     path = Path(path)
     if not path.is_file():
         raise error(f"{what} {path} is missing")
+    with open(path, "rb") as fh:
+        head = fh.read(4096)
+    if looks_utf16(head):  # UTF-16 without a byte-order mark reads as UTF-8 text with NULs: "found ['i\x00d\x00']"
+        raise error(str(utf16_error(path, head)))
     repeated = repeated_column(path)
     if repeated:
         raise error(f"{path}: {repeated}")
     try:
         frame = pd.read_csv(path, **read_kwargs)
     except UnicodeDecodeError as exc:
-        with open(path, "rb") as fh:
-            head = fh.read(2)
-        if head in (codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE):  # a spreadsheet's "Unicode text": say how to convert
+        if head.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):  # a spreadsheet's "Unicode text"
             raise error(str(utf16_error(path, head))) from None
         raise error(f"{path}: {what} is not a readable CSV file: {exc}") from None
     except (pd.errors.ParserError, pd.errors.EmptyDataError) as exc:

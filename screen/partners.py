@@ -303,9 +303,25 @@ def file_tag(path, prefix: str = "levels", limit: int = 40) -> str:
 
 
 def _readable_slug(prefix: str, text: str, always_hash: bool = False) -> str:
-    """``prefix-<slugified text>``, plus a short hash when the slug does not spell ``text`` exactly."""
+    """``prefix-<slugified text>``, plus a short hash of ``text`` when the slug does not spell ``text`` exactly or
+    ``text`` has a lower-case letter.
+
+    Folder names must differ on a file system that ignores case (macOS, Windows): ``id:KF-a08`` and
+    ``id:kf-A08`` ranked into one folder there (a security audit). A name without a hash is the text itself with
+    no lower-case letter, so two of them differ in any case; a hash (lower-case hex) tells apart texts that differ
+    only in case. Ids written in capitals and digits, as the project's (``KF-D01``, ``LD-01``), keep the folder
+    names they had; an id with a lower-case letter gets a hash where it had none (an earlier ranking of it stays
+    in its folder, a new one goes to the new name).
+
+    Examples
+    --------
+    >>> _readable_slug("id", "KF-D01"), _readable_slug("id", "KF D01")
+    ('id-KF-D01', 'id-KF-D01-ab575c')
+    >>> [_readable_slug("id", t).lower() for t in ("KF-a08", "kf-A08", "KF-A08")]
+    ['id-kf-a08-372df7', 'id-kf-a08-d76a8d', 'id-kf-a08']
+    """
     slug = slugify(text, 40)
-    if always_hash or slug != text:
+    if always_hash or slug != text or re.search("[a-z]", text):
         slug = f"{slug}-{_short_hash(text, 6)}"
     return f"{prefix}-{slug}"
 
@@ -417,7 +433,8 @@ def partner_slug(spec: str, library_path: str | Path | None = None) -> str:
         ``smiles-<slugified canonical SMILES>-<6 hex digits of the structure key>``;
         ``file-<slugified file stem>-<hash of the absolute path and the file's content>`` (an edited
         partner file ranks into a folder of its own; the earlier ranking stays); ``id-<the id>`` when the id is
-        path-safe (40 characters at most), else ``id-<slugified id>-<hash of the id>``.
+        path-safe (40 characters at most) and has no lower-case letter, else ``id-<slugified id>-<hash of the id>``
+        (so that no two folders differ only in case on macOS or Windows).
 
     Raises
     ------

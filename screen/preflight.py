@@ -36,7 +36,7 @@ from pathlib import Path
 
 import yaml
 
-from screen.config import calibration_set_args, nearest_existing, read_problem
+from screen.config import calibration_set_args, load_yaml, nearest_existing, read_problem
 from screen.config import setting_text as _show
 from screen.config import flat_settings as _flat
 from screen.errors import ConfigError, InputError
@@ -330,7 +330,7 @@ def check_sets(items) -> dict:
             hint = f"; did you mean {' or '.join(close)}?" if close else ""
             raise ConfigError(f"--set {item}: no field {path or '(empty)'}{hint} (`dascreen config` lists every field)")
         try:
-            value = yaml.safe_load(raw) if raw else None
+            value = load_yaml(raw) if raw else None
         except yaml.YAMLError as exc:
             raise ConfigError(f"--set {item}: the value is not valid YAML ({exc})") from None
         if isinstance(value, str):  # 1e3 and ~/x as the user meant them (screen.schema.read_as_written)
@@ -583,6 +583,15 @@ def _check_sdf(path: Path) -> int:
     except (OSError, EOFError) as exc:  # EOFError: a truncated .sdf.gz
         raise InputError(f"candidates file {path} cannot be read as UTF-8 SD file: {exc}") from None
     if not records:
+        from screen.io import looks_utf16, utf16_error
+
+        try:
+            with opener(path, "rb") as fh:
+                head = fh.read(4096)
+        except (OSError, EOFError):
+            head = b""
+        if looks_utf16(head):  # UTF-16 without a byte-order mark decodes as UTF-8 with NULs: no 'M  END' line
+            raise utf16_error(path, head, "sdf")
         raise InputError(f"candidates file {path} holds no SD record (no 'M  END' line): nothing to screen")
     return records
 
@@ -859,7 +868,7 @@ def check_out(out, candidates=None, overwrite: bool = False, given: str | None =
         raise FolderInUse.of(out)
     if not overwrite and (out / "config.yaml").is_file():
         try:
-            recorded = yaml.safe_load((out / "config.yaml").read_text(encoding="utf-8")) or {}
+            recorded = load_yaml((out / "config.yaml").read_text(encoding="utf-8")) or {}
         except (OSError, UnicodeDecodeError, yaml.YAMLError) as exc:  # a binary file gave a traceback
             raise ConfigError(f"--out {out}: its config.yaml, the record of the folder's run, cannot be read "
                               f"({read_problem(exc)}: {out / 'config.yaml'}); choose another --out, or pass "
@@ -946,9 +955,10 @@ def check_profile(profile) -> None:
         raise ConfigError(f"--profile {given}: the folder holds no config.yaml; {about}")
     path = files[0]
     try:
-        data = yaml.safe_load(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, yaml.YAMLError) as exc:
-        raise ConfigError(f"--profile {given}: {path} cannot be read: {read_problem(exc)}") from None
+        data = yaml.safe_load(path.read_text(encoding="utf-8"))  # a workflow-engine profile may use anchors
+    except (OSError, UnicodeDecodeError, yaml.YAMLError, RecursionError) as exc:
+        raise ConfigError(f"--profile {given}: {path} cannot be read: "
+                          f"{'nested too deeply' if isinstance(exc, RecursionError) else read_problem(exc)}") from None
     if not isinstance(data, dict) or not data:
         what = "is empty" if data is None else f"holds {type(data).__name__}, not a mapping"
         raise ConfigError(f"--profile {given}: {path} {what}; write the workflow engine's options as `name: value` "
@@ -958,6 +968,9 @@ def check_profile(profile) -> None:
         return
     known, executors = engine
     executor = data.get("executor")
+    if executor is not None and not isinstance(executor, str):
+        raise ConfigError(f"--profile {given}: {path}: executor is a {type(executor).__name__}; write its name, e.g. "
+                          "`executor: slurm`")
     if executor is not None and executors and str(executor) not in executors:
         raise ConfigError(f"--profile {given}: {path} asks for executor {str(executor)!r}, which is not installed "
                           f"(installed: {', '.join(executors)}); install its plugin (for SLURM: pip install -e "

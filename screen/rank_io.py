@@ -31,7 +31,7 @@ from screen.config import Config, nearest_existing
 from screen.device import DeviceModel
 from screen.devicepars import device_tests
 from screen.errors import InputError
-from screen.io import text_cells
+from screen.io import SD_LINE_MAX, sd_text, text_cells
 from screen.partners import Partner, PartnerError, resolve_partner
 from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, partner_role, rank_candidates)
 from screen.rank_rows import shortlist_mask
@@ -42,13 +42,6 @@ __all__ = ["write_shortlist", "shortlist_notice", "longest_oligomers", "computed
 
 
 # --------------------------------------------------------------------------- outputs
-
-def _sd_text(value) -> str:
-    """SD property/title text: one line, no record separators."""
-    text = "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)
-    text = " ".join(text.replace("\r", "\n").split("\n"))
-    return text.replace("$$$$", "$ $ $ $")
-
 
 _SD_PROPS = ["rank", "id", "name", "role", "partner", "homo_ev", "lumo_ev", "gap_opt_ev", "homo_sigma_ev",
              "lumo_sigma_ev", "gap_opt_sigma_ev", "delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff",
@@ -339,11 +332,11 @@ def _shortlist_mol(row: dict, geometries: dict, keys: dict, oligomers: dict):
 
 def _set_sd_props(mol, row: dict, scale: str, key: str, source: str, oligomer, context=None) -> None:
     """The SD properties of one shortlist record (title: the id cut to 80 characters)."""
-    mol.SetProp("_Name", _sd_text(row["id"])[:80])
-    for prop in _SD_PROPS:
-        mol.SetProp(prop, _sd_text(row.get(prop)))
+    mol.SetProp("_Name", sd_text(row["id"], 80))  # the title line: 80 characters
+    for prop in _SD_PROPS:  # data lines cut at 200 characters; the SMILES whole (a polymer is read back from it)
+        mol.SetProp(prop, sd_text(row.get(prop), None if prop == "smiles" else SD_LINE_MAX))
     for prop, value in (context or {}).items():  # what the ranking was made with (p_above_target: above what)
-        mol.SetProp(prop, _sd_text(value))
+        mol.SetProp(prop, sd_text(value))
     if scale:
         mol.SetProp("scale", scale)
     mol.SetProp("structure_key", key)

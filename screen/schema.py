@@ -24,7 +24,7 @@ import yaml
 from screen.errors import ConfigError
 
 __all__ = ["SCHEMA_PATH", "ConfigError", "resolve", "defaults", "section_defaults", "non_finite", "non_finite_text",
-           "check_section", "check_options"]
+           "check_section", "check_options", "shape_problem", "MAX_NESTING", "MAX_VALUES"]
 
 SCHEMA_PATH = Path(__file__).parent / "workflow" / "schemas" / "config.schema.yaml"
 
@@ -85,8 +85,32 @@ def _unit(schema: dict) -> str:
     return found.group(1) if found and found.group(1) in _BOUND_UNITS else ""
 
 
+#: the longest schema message (jsonschema's own words) shown as it is; a longer one shows its value shortened
+_LONGEST_MESSAGE = 300
+
+
+def _message(error: jsonschema.ValidationError) -> str:
+    """jsonschema's message of ``error``, the value in it shortened when the message is long (a list of 10 000
+    values in a number field was said in full).
+
+    Examples
+    --------
+    >>> error = next(jsonschema.Draft202012Validator({"type": "number"}).iter_errors(["lol"] * 5000))
+    >>> _message(error)
+    "['lol', 'lol', 'lol', 'lol', 'lol', 'lol', ...] is not of type 'number'"
+    """
+    import reprlib
+
+    message = error.message
+    if len(message) <= _LONGEST_MESSAGE:
+        return message
+    message = message.replace(repr(error.instance), reprlib.repr(error.instance), 1)  # bounded: shape_problem
+    return message if len(message) <= _LONGEST_MESSAGE else message[:_LONGEST_MESSAGE - 3] + "..."
+
+
 def _describe(error: jsonschema.ValidationError, section: str = "") -> str:
     field = ".".join([section] * bool(section) + [str(p) for p in error.absolute_path]) or "(top level)"
+    message = _message(error)
     schema = error.schema if isinstance(error.schema, dict) else {}
     if error.validator in _BOUNDS and error.absolute_path:
         # the bound's own schema node has no description: the field's node (the parent of the bound) has it
@@ -95,7 +119,7 @@ def _describe(error: jsonschema.ValidationError, section: str = "") -> str:
             node = node.get("properties", {}).get(part, {})
         unit = _unit(node)
         if unit:
-            return f"field {field}: {error.message} ({field} is in {unit})"
+            return f"field {field}: {message} ({field} is in {unit})"
     allowed = ""
     if "enum" in schema and len(schema["enum"]) == 1 and schema.get("description"):
         allowed = f"; {schema['description']}"  # a fixed setting says why it is fixed
@@ -107,7 +131,7 @@ def _describe(error: jsonschema.ValidationError, section: str = "") -> str:
     elif "then" in error.schema_path and schema.get("description"):
         # a rule between two fields (an if/then of the schema): its own words say why, not only "not of type 'null'"
         allowed = f": {schema['description']}"
-    return f"field {field}: {error.message}{allowed}"
+    return f"field {field}: {message}{allowed}"
 
 
 def non_finite(node, prefix: str = "") -> list[tuple[str, float]]:
@@ -174,8 +198,19 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     Traceback (most recent call last):
     ...
     screen.errors.ConfigError: configuration: field rank.target_pce_pct: nan is not a finite number; give a number (NaN and infinity are not allowed)
+    >>> lol = ["lol"] * 9
+    >>> for _ in range(8):
+    ...     lol = [lol] * 9  # 9**9 values once written out, a few hundred in memory (a YAML alias bomb)
+    >>> resolve({"rank": {"seed": lol}})
+    Traceback (most recent call last):
+    ...
+    screen.errors.ConfigError: configuration: field rank.seed: too large a value (more than 100000 values once written out; a setting is a number, a word or a short list)
     """
-    cfg = copy.deepcopy(dict(config or {}))
+    cfg = dict(config or {})
+    problem = shape_problem(cfg)
+    if problem:  # before anything walks it: a copy, the schema's messages and non_finite would write it out
+        raise ConfigError(f"{source}: {problem}")
+    cfg = _unshared(cfg)
     schema = _schema()
     read_as_written(cfg, schema)
     validator = jsonschema.Draft202012Validator(schema)
@@ -193,6 +228,114 @@ def resolve(config: dict | None, source: str = "configuration") -> dict:
     if errors:  # a default that breaks the schema is a bug here, still say it clearly
         raise ConfigError(f"{source} (after defaults): " + "; ".join(_describe(e) for e in errors))
     return cfg
+
+
+#: how deeply a configuration may nest mappings and lists (one needs 3: sections, their fields, a list of values)
+MAX_NESTING = 32
+#: how many values a configuration may hold, counted as written out (a value reached twice counts twice); a full
+#: configuration holds a few hundred
+MAX_VALUES = 100_000
+
+
+def shape_problem(config, prefix: str = "") -> str | None:
+    """Why ``config`` cannot be a configuration by its shape alone, in words; ``None`` when it can.
+
+    Nested more than :data:`MAX_NESTING` mappings and lists deep, more than :data:`MAX_VALUES` values once written
+    out, or a value that holds itself. Checked before anything walks the configuration: a YAML alias bomb (nine
+    levels of aliases: 9**9 values that share nine lists) was written out by the schema's message, 2.9 GB
+    and a MemoryError after 32 s, and 3 000 nested mappings gave a RecursionError (a security audit). Iterative,
+    and each object is visited once, however often it is reached.
+
+    Parameters
+    ----------
+    config : mapping
+        A configuration (or one section, then ``prefix`` is its name).
+    prefix : str
+        Field name that the paths in the message start with.
+
+    Examples
+    --------
+    >>> deep = {}
+    >>> node = deep.setdefault("rank", {})
+    >>> for i in range(40):
+    ...     node = node.setdefault(f"k{i}", {})
+    >>> shape_problem(deep)
+    'field rank.k0.k1...: nested too deeply (more than 32 levels of mappings and lists; a configuration holds sections of fields: `section: {field: value}`)'
+    >>> loop = []; loop.append(loop)
+    >>> shape_problem({"x": loop}, "rank")
+    'field rank.x: the value holds itself'
+    >>> shape_problem({"rank": {"seed": 1}, "prepare": {"allowed_elements": ["C", "H"]}}) is None
+    True
+    """
+    def where(path: list) -> str:
+        keys = []
+        for step in path:
+            if not isinstance(step, str):
+                break
+            keys.append(step)
+        return ".".join([prefix] * bool(prefix) + keys[:3]) + "..." * (len(keys) > 3) or "(top level)"
+
+    def nested(path: list) -> str:
+        return (f"field {where(path)}: nested too deeply (more than {MAX_NESTING} levels of mappings and lists; a "
+                "configuration holds sections of fields: `section: {field: value}`)")
+
+    def too_large(path: list) -> str:
+        return (f"field {where(path)}: too large a value (more than {MAX_VALUES} values once written out; a setting "
+                "is a number, a word or a short list)")
+
+    def items(node):
+        return iter(node.items()) if isinstance(node, dict) else iter(enumerate(node))
+
+    kinds = (dict, list, tuple)
+    if not isinstance(config, kinds):
+        return None
+    size: dict[int, int] = {}  # id → values in it, itself included, written out (objects walked to the end)
+    height: dict[int, int] = {}  # id → levels of mappings and lists, itself included
+    stack = [[config, [], items(config), 1, 0]]  # [object, path, its items, values so far, levels below it]
+    walking = {id(config)}
+    while stack:
+        frame = stack[-1]
+        for key, child in frame[2]:
+            if not isinstance(child, kinds):
+                frame[3] += 1
+                continue
+            path = frame[1] + [str(key) if isinstance(frame[0], dict) else int(key)]
+            if id(child) in walking:
+                return f"field {where(path)}: the value holds itself"
+            if id(child) in size:  # reached before: its counts, not another walk
+                frame[3] += size[id(child)]
+                frame[4] = max(frame[4], height[id(child)])
+                if len(stack) + height[id(child)] > MAX_NESTING:
+                    return nested(path)
+                if frame[3] > MAX_VALUES:
+                    return too_large(frame[1])
+                continue
+            if len(stack) + 1 > MAX_NESTING:
+                return nested(path)
+            walking.add(id(child))
+            stack.append([child, path, items(child), 1, 0])
+            break
+        else:
+            stack.pop()
+            walking.discard(id(frame[0]))
+            size[id(frame[0])], height[id(frame[0])] = frame[3], frame[4] + 1
+            if frame[3] > MAX_VALUES:
+                return too_large(frame[1])
+            if stack:
+                stack[-1][3] += frame[3]
+                stack[-1][4] = max(stack[-1][4], frame[4] + 1)
+    return None
+
+
+def _unshared(node):
+    """A deep copy in which no mapping or list is reached twice (``copy.deepcopy`` keeps an object given for two
+    settings one object, which ``yaml.safe_dump`` writes as an anchor and an alias: a run folder's ``config.yaml``
+    must read back, and config files take no aliases, :func:`screen.config.read_config_file`)."""
+    if isinstance(node, dict):
+        return {key: _unshared(value) for key, value in node.items()}
+    if isinstance(node, list):
+        return [_unshared(value) for value in node]
+    return copy.deepcopy(node)
 
 
 #: a number as JSON and YAML 1.2 write it; YAML 1.1 (PyYAML) reads ``1e1`` and ``1.2e1`` as text
@@ -318,6 +461,9 @@ def check_section(section: str, values: Mapping, source: str) -> dict:
     ...
     screen.errors.ConfigError: RankOptions: field rank.target_pce_pct: nan is not a finite number; give a number (NaN and infinity are not allowed)
     """
+    problem = shape_problem(dict(values), section)
+    if problem:  # before _plain and the schema's messages write it out
+        raise ConfigError(f"{source}: {problem}")
     data = {key: _plain(value) for key, value in dict(values).items()}
     errors = sorted(_section_validator(section).iter_errors(data), key=lambda e: [str(p) for p in e.absolute_path])
     if errors:

@@ -67,6 +67,12 @@ def test_csv_text_is_what_pandas_writes(lineterminator, columns):
 
     frame = _tricky_frame()
     frame = frame if columns is None else frame[columns]
+    if lineterminator == "\n":
+        # pandas leaves a CR unquoted under a "\n" line end, which csv_text quotes (a line break in a cell split rows
+        # when read back): those rows are tests/test_csv_line_breaks.py's; every other row is pandas' text exactly
+        has_cr = np.array(["\r" in _TRICKY_TEXT[i % len(_TRICKY_TEXT)] for i in range(len(frame))])
+        assert has_cr.any()
+        frame = frame[~has_cr]
     assert all(_csv_column(frame[c], lineterminator) is not None for c in frame)  # made here, not by pandas
     for part in (frame, frame.iloc[:0], frame.iloc[::-1]):
         assert csv_text(part, lineterminator) == part.to_csv(index=False, lineterminator=lineterminator)

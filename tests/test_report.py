@@ -431,11 +431,12 @@ def test_safe_csv(written):
 
 
 def test_safe_csv_frame_cells():
-    t = pd.DataFrame({"a": ["=x", "\tcmd", "\rcmd", "-5.4", "-2+3", "plain", None],
+    # a cell with a CR or LF: tests/test_csv_line_breaks.py
+    t = pd.DataFrame({"a": ["=x", "\tcmd", "@cmd", "-5.4", "-2+3", "plain", None],
                       "b": [-5.4, -1.0, 0.0, 1.0, 2.0, 3.0, 4.0],
                       "c": [-1, "=mixed", 2.5, "@x", "x", "", "+1"]})
     out = safe_csv_frame(t)
-    assert out["a"].tolist()[:6] == ["'=x", "'\tcmd", "'\rcmd", "-5.4", "'-2+3", "plain"]
+    assert out["a"].tolist()[:6] == ["'=x", "'\tcmd", "'@cmd", "-5.4", "'-2+3", "plain"]
     assert out["b"].tolist() == t["b"].tolist() and out["b"].dtype == t["b"].dtype
     assert out["c"].tolist() == [-1, "'=mixed", 2.5, "'@x", "x", "", "+1"]
     assert t["a"][0] == "=x"  # input untouched

@@ -266,6 +266,7 @@ def _check_same_candidates(out: Path, given: Path, overwrite: bool) -> dict:
     """
     import yaml
 
+    from screen.config import load_yaml
     from screen.dyecell.stage import read_inputs
     from screen.provenance import sha256_file
 
@@ -273,7 +274,8 @@ def _check_same_candidates(out: Path, given: Path, overwrite: bool) -> dict:
     before = read_inputs(out).get("candidates") or {}
     if not before and (out / "config.yaml").is_file():
         try:
-            named = (yaml.safe_load((out / "config.yaml").read_text(encoding="utf-8")) or {}).get("candidates")
+            recorded = load_yaml((out / "config.yaml").read_text(encoding="utf-8"))  # a folder may come from others
+            named = recorded.get("candidates") if isinstance(recorded, dict) else None
         except (OSError, UnicodeDecodeError, yaml.YAMLError):
             named = None
         internal = (out / "dyecell" / "candidates.csv").resolve()

@@ -29,7 +29,6 @@ the run's own ranking and dye table are never replaced by another input's.
 
 from __future__ import annotations
 
-import math
 import sys
 from dataclasses import asdict
 from pathlib import Path
@@ -53,7 +52,7 @@ from screen.dyecell.rank import (
     value_sources,
 )
 from screen.errors import ConfigError, InputError
-from screen.io import read_json, write_csv, write_json
+from screen.io import SD_LINE_MAX, read_json, sd_text, write_csv, write_json
 from screen.partners import file_tag
 from screen.provenance import change_notice, library_versions, sha256_file
 from screen.schema import check_section
@@ -439,11 +438,6 @@ def ranking_folder(out_dir: str | Path, oxide: Material, mediator: Material, set
     return Path(out_dir) / "dyecell" / (f"{name}--{tag}" if tag else name)
 
 
-def _sd_text(value) -> str:
-    text = "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)
-    return " ".join(text.replace("\r", "\n").split("\n")).replace("$$$$", "$ $ $ $")
-
-
 def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int) -> dict:
     """The top passing dyes as an SD file (2-D depictions, estimates as properties).
 
@@ -468,9 +462,9 @@ def write_shortlist(ranking: pd.DataFrame, target: str | Path, size: int) -> dic
                     skipped.append(row["id"])
                     continue
                 rdDepictor.Compute2DCoords(mol)
-                mol.SetProp("_Name", _sd_text(row["id"])[:80])
-                for prop in _SD_PROPS:
-                    mol.SetProp(prop, _sd_text(row.get(prop)))
+                mol.SetProp("_Name", sd_text(row["id"], 80))  # the title line: 80 characters
+                for prop in _SD_PROPS:  # data lines cut at 200 characters, the SMILES whole
+                    mol.SetProp(prop, sd_text(row.get(prop), None if prop == "smiles" else SD_LINE_MAX))
                 mol.SetProp("potential_scale", "V vs NHE")
                 writer.write(mol)
                 written += 1

@@ -64,14 +64,26 @@ The format is chosen from the file extension (a trailing ``.gz`` is accepted for
     ``unparsable`` and says how to mark the ends (:func:`screen.prepare.readers._drawn_ends`).
 
 A CSV or SMILES file in UTF-16 with its byte-order mark (a spreadsheet's "Unicode text") is read
-as such; an SD file in UTF-16 is refused naming ``iconv -f utf-16 -t utf-8``.
+as such; an SD file in UTF-16 is refused naming ``iconv -f utf-16 -t utf-8``, and a file in UTF-16
+without a byte-order mark (a NUL byte beside every character) naming ``iconv -f utf-16le -t utf-8``.
+
+Every format: an id, name or role that holds a control character (NUL, CR, LF or another C0
+control; TAB is allowed) rejects its row (``malformed_row``, naming the line, the column and the
+character; :func:`validate` checks it, so a frame built in code too), and a line longer than
+``readers.MAX_LINE_BYTES`` (128 KiB; 16 MiB in an SD file) is not read: its row is rejected
+(``too_many_atoms`` for a SMILES-file line that is all SMILES, else ``malformed_row``), or the file
+refused when it is a CSV header line.  A header line repeated later in a CSV or SMILES file (two
+files joined) is a ``malformed_row`` saying so.
 
 Reason codes
 ------------
-A rejected row carries exactly one reason (the first problem found, in this order):
+A rejected row carries exactly one reason (the first problem found, in this order; a structure far
+over the size limit is ``too_many_atoms`` right after the attachment-point reasons, see there):
 
 ``malformed_row``       CSV line with more (non-empty) fields than the header (fields may be
-                        misassigned); a SMILES-file line with tab-separated fields after its id.
+                        misassigned); a SMILES-file line with tab-separated fields after its id;
+                        a repeated header line; a control character in an id, name or role; a
+                        line too long to read.
 ``empty``               blank or whitespace-only SMILES.
 ``unparsable``          SMILES syntax error (message gives RDKit's complaint in short form, or
                         names the first character that is not ASCII -- a look-alike hyphen or an
@@ -131,7 +143,15 @@ A rejected row carries exactly one reason (the first problem found, in this orde
 ``hypercoordinate``     an atom with more than four bonded neighbours, hydrogens counted (SF5,
                         PF5, SF6): the embedding and force fields of the geometry step build no
                         five- or six-coordinate centre.
-``too_many_atoms``      more heavy atoms than ``PrepareOptions.max_heavy_atoms``.
+``too_many_atoms``      more heavy atoms than ``PrepareOptions.max_heavy_atoms``.  A structure far
+                        over it is refused before RDKit sanitises or writes it (RDKit crashed on a
+                        chain of 20 000 atoms), right after the attachment points, without a
+                        canonical ``smiles``: a SMILES text longer than 50 characters per heavy
+                        atom of the limit (10 000 for 200;
+                        :func:`screen.prepare.checks.smiles_length_limit`) is not read at all, and a
+                        structure of more than 2000 heavy atoms (or the limit, if larger;
+                        :func:`screen.prepare.checks.full_check_limit`), counted on the
+                        unsanitised parse or an SD record's atom block, is refused on that count.
 ``ring_perception_time`` a ring system of many rings fused to a macrocycle (a large
                         cycloparaphenylene nanohoop) whose RDKit aromaticity perception did not
                         finish within ``checks.RING_PERCEPTION_LIMIT_S`` (10 s) in an isolated
@@ -309,7 +329,7 @@ def _read_and_check(path: Path, options: PrepareOptions, polymer: PolymerOptions
     """The stage's reading of a candidate file, shared by :func:`prepare` and :func:`preview`: the manifest (every
     row with its status), the oligomer table and the structures to compute (polymers replaced by their oligomers;
     a polymer whose series cannot be built is rejected)."""
-    manifest = validate(read_candidates(path), options)
+    manifest = validate(read_candidates(path, max_heavy_atoms=options.max_heavy_atoms), options)
     manifest, oligomers = build_oligomers(manifest, polymer, truncate_min_carbons)
     return manifest, oligomers, compute_rows(manifest, oligomers)
 

@@ -2,7 +2,11 @@
 
 :func:`_check_structure` runs every check on one SMILES, in the order of the reason codes
 listed in the :mod:`screen.prepare` docstring, and returns the canonical form or the first
-problem found (a reason code from :data:`REASON_CODES` and a specific message).
+problem found (a reason code from :data:`REASON_CODES` and a specific message).  A structure far
+over the size limit (``too_many_atoms``) is refused before RDKit sanitises or writes it: a text
+longer than :func:`smiles_length_limit` is not read, and one of more heavy atoms than
+:func:`full_check_limit` (counted on the unsanitised parse, right after the attachment points are
+judged) is refused on that count.
 
 Examples
 --------
@@ -34,7 +38,8 @@ from screen.prepare.charges import localised_carbon_charge, overbonded_charged_c
 from screen.prepare.options import KNOWN_ELEMENTS as _KNOWN_ELEMENTS
 from screen.prepare.options import PrepareOptions
 
-__all__ = ["REASON_CODES", "NONMETALS", "snippet"]
+__all__ = ["REASON_CODES", "NONMETALS", "snippet", "smiles_length_limit", "full_check_limit", "control_name",
+           "cell_control_problem", "visible_controls"]
 
 #: Every reason code a manifest row can carry (``''`` for ``ok`` rows): those of :func:`screen.prepare.validate`,
 #: and ``oligomer_build_failed`` of :func:`screen.prepare.polymers.build_oligomers`.
@@ -198,6 +203,73 @@ _LOOK_ALIKES = {"\u2010": "-", "\u2011": "-", "\u2012": "-", "\u2013": "-", "\u2
                 "\u201c": "", "\u201d": "", "\u2018": "", "\u2019": ""}
 
 
+#: characters an id, name or role may not hold: the C0 controls except TAB. A NUL ends the text in programs written in
+#: C, an ESC starts a terminal escape sequence, a CR or LF splits a line of the outputs that are not quoted CSV; a
+#: security audit found an id "X<NUL> 1" in levels.csv, the rankings, the report and the SD titles
+_CELL_CONTROL = re.compile(r"[\x00-\x08\x0a-\x1f]")
+#: the C0 controls a rejected row's cells show as their Control Pictures symbol (U+2400 + code: NUL as ␀, ESC as ␛),
+#: so that none reaches an output or the console; TAB, LF and CR stay (the CSV writers quote them)
+_SHOWN = "".join(chr(c) for c in range(32) if c not in (9, 10, 13))
+_TO_PICTURE = {ord(c): 0x2400 + ord(c) for c in _SHOWN}
+_FROM_PICTURE = {picture: code for code, picture in _TO_PICTURE.items()}
+
+
+def visible_controls(text: str) -> str:
+    r"""``text`` with its control characters other than TAB, LF and CR shown by their Control Pictures symbol.
+
+    >>> visible_controls("X\x00 1\x1b[31m\tA")
+    'X␀ 1␛[31m\tA'
+    """
+    return text.translate(_TO_PICTURE)
+
+
+def cell_control_problem(cells: dict[str, str]) -> str:
+    r"""Why a row's id, name or role is refused: the first of ``cells`` (``{"id": ..., "name": ..., "role": ...}``)
+    that holds a control character, named with the character and the fix; '' when none does. TAB is allowed. A
+    control's symbol as :func:`visible_controls` writes it (``␀``) counts as the control, so that validating a
+    manifest again refuses the row with the same message.
+
+    Examples
+    --------
+    >>> print(cell_control_problem({"id": "X\x00 1", "name": "a\rb"}))
+    the id 'X\x00 1' contains U+0000 (NUL), a character that ends the text in many programs; delete it
+    >>> cell_control_problem({"id": visible_controls("X\x00 1")}) == cell_control_problem({"id": "X\x00 1"})
+    True
+    >>> print(cell_control_problem({"id": "X1", "name": "a\rb"}))
+    the name 'a\rb' contains U+000D (CR), a line break; write it on one line
+    >>> cell_control_problem({"id": "X\t1", "name": "", "role": "donor"})
+    ''
+    """
+    for key, value in cells.items():
+        value = value.translate(_FROM_PICTURE)
+        found = _CELL_CONTROL.search(value)
+        if found is None:
+            continue
+        char = found.group(0)
+        if char in "\r\n":
+            what = "a line break; write it on one line"
+        elif char == "\x00":
+            what = "a character that ends the text in many programs; delete it"
+        else:
+            what = "a control character; delete it"
+        return f"the {key} {snippet(value)} contains {control_name(char)}, {what}"
+    return ""
+
+
+def control_name(ch: str) -> str:
+    r"""A control character as a message names it: ``U+0000 (NUL)``, ``U+000D (CR)``.
+
+    >>> control_name("\x00"), control_name("\r"), control_name("\x1b"), control_name("a")
+    ('U+0000 (NUL)', 'U+000D (CR)', 'U+001B (ESC)', 'U+0061 (LATIN SMALL LETTER A)')
+    """
+    names = {0: "NUL", 7: "BEL", 8: "BS", 9: "TAB", 10: "LF", 11: "VT", 12: "FF", 13: "CR", 27: "ESC", 127: "DEL"}
+    if ord(ch) in names:
+        return f"U+{ord(ch):04X} ({names[ord(ch)]})"
+    if ord(ch) < 32:
+        return f"U+{ord(ch):04X} (control character)"
+    return character_name(ch)
+
+
 def character_name(ch: str) -> str:
     """A character as a message names it: ``U+2011 (NON-BREAKING HYPHEN)``.
 
@@ -241,11 +313,90 @@ def _foreign_character(smiles: str) -> str:
     return ""
 
 
+#: most characters a SMILES may have per heavy atom of ``PrepareOptions.max_heavy_atoms`` before it is read
+#: (:func:`smiles_length_limit`): a SMILES of 130 000 characters kept the dry run inside RDKit for minutes and one of
+#: 200 MB exhausted the memory (a security audit), so longer text is refused unread. Generous: the shipped SMILES
+#: (models/reference, candidates/, tests/data: 3517) take at most 1.9 characters per heavy atom in a molecule of
+#: more than ten heavy atoms (the longest, 395 characters for 216 heavy atoms) and 21 in the worst small one
+#: (``[2H]C([2H])([2H])[2H]``); a fully bracketed stereo SMILES with every hydrogen written out takes about 15,
+#: CXSMILES atom coordinates about 20 more
+SMILES_CHARS_PER_HEAVY_ATOM = 50
+
+
+def smiles_length_limit(max_heavy_atoms: int) -> int:
+    """The longest SMILES text (characters, CXSMILES extension included) read for ``max_heavy_atoms``.
+
+    >>> smiles_length_limit(200)
+    10000
+    """
+    return SMILES_CHARS_PER_HEAVY_ATOM * max_heavy_atoms
+
+
+#: most heavy atoms a structure over ``PrepareOptions.max_heavy_atoms`` may have to be checked in full (every check,
+#: then ``too_many_atoms`` with its canonical SMILES, as for any structure over the limit); a larger one is refused on
+#: its count before RDKit sanitises it or writes its SMILES (:func:`full_check_limit`). RDKit (2024-2025, on this
+#: project's machine) writes the SMILES of a 2000-carbon chain in about 0.1 s, of a 10 000-carbon one in 3.4 s, and
+#: crashes (segmentation fault) on one of 20 000
+FULL_CHECK_ATOMS = 2000
+
+
+def full_check_limit(max_heavy_atoms: int) -> int:
+    """The most heavy atoms of a structure that is checked in full: the limit, or :data:`FULL_CHECK_ATOMS` if larger.
+
+    >>> full_check_limit(200), full_check_limit(5000)
+    (2000, 5000)
+    """
+    return max(max_heavy_atoms, FULL_CHECK_ATOMS)
+
+
+#: C0 control characters that are not whitespace (NUL, BEL, ESC, ...) and DEL: never part of a SMILES
+_CONTROL = re.compile(r"[\x00-\x08\x0e-\x1b\x7f]")
+#: their symbols as :func:`visible_controls` shows them in a rejected row's ``smiles_input``
+_CONTROL_PICTURES = {chr(0x2400 + c): chr(c) for c in (*range(0, 9), *range(14, 28))}
+
+
+def _check_length(smiles: str, options: PrepareOptions) -> None:
+    """Refuse a SMILES text too long for ``options.max_heavy_atoms`` before RDKit reads it (``too_many_atoms``)."""
+    limit = smiles_length_limit(options.max_heavy_atoms)
+    if len(smiles) > limit and len(smiles.strip()) > limit:
+        raise _Reject(
+            "too_many_atoms",
+            f"SMILES text too long: {len(smiles.strip())} characters, more than the {limit} read "
+            f"({SMILES_CHARS_PER_HEAVY_ATOM} per heavy atom of the limit of {options.max_heavy_atoms}, "
+            "PrepareOptions.max_heavy_atoms); not read: a structure that large is not screened",
+        )
+
+
+def _check_heavy_atoms(heavy: int, options: PrepareOptions) -> None:
+    """Refuse more heavy atoms than ``options.max_heavy_atoms`` (``too_many_atoms``)."""
+    if heavy > options.max_heavy_atoms:
+        raise _Reject(
+            "too_many_atoms",
+            f"{heavy} heavy atoms, more than the limit of {options.max_heavy_atoms} (PrepareOptions.max_heavy_atoms)",
+        )
+
+
 def _parse_unsanitized(smiles: str, options: PrepareOptions) -> Chem.Mol:
-    """Parse ``smiles`` without sanitisation; raise :class:`_Reject` with a specific message."""
+    r"""Parse ``smiles`` without sanitisation; raise :class:`_Reject` with a specific message.
+
+    A control character (NUL, ...) is refused naming it (before, a NUL at the end of a SMILES was accepted and
+    carried into every output: a security audit):
+
+    >>> try:
+    ...     _parse_unsanitized("CCO\x00", PrepareOptions())
+    ... except _Reject as rej:
+    ...     print(rej.reason, "|", rej.message[:76])
+    unparsable | SMILES contains the control character U+0000 (NUL) as character 4: delete it
+    """
     stripped = smiles.strip()
     if not stripped:
         raise _Reject("empty", "SMILES is empty")
+    control = _CONTROL.search(stripped) or re.search(f"[{''.join(_CONTROL_PICTURES)}]", stripped)
+    if control:
+        char = _CONTROL_PICTURES.get(control.group(0), control.group(0))
+        nul = " (a NUL byte: was the file saved as UTF-16, or is it binary?)" if char == "\x00" else ""
+        raise _Reject("unparsable", f"SMILES contains the control character {control_name(char)} as character "
+                                    f"{control.start() + 1}: delete it{nul}")
     if re.search(r"\s", stripped) and not _CXSMILES.match(stripped):
         found = re.search(r"\s", stripped)
         pos = found.start()  # type: ignore[union-attr]
@@ -605,8 +756,16 @@ def _check_structure(smiles: str, options: PrepareOptions) -> _Checked:
     """Run every structure check on one SMILES and return the canonical form or the problem."""
     result = _Checked()
     try:
+        _check_length(smiles, options)
         mol = _parse_unsanitized(smiles, options)
         result.representation = _check_attachments(mol)
+        # a structure far over the limit is refused on its count on the unsanitised parse, before RDKit sanitises
+        # and writes it (seconds for thousands of atoms, a segmentation fault for a chain of 20 000: a security
+        # audit); one just over it is checked in full, as any other, and refused at the end with its canonical SMILES
+        heavy = mol.GetNumHeavyAtoms()
+        if heavy > full_check_limit(options.max_heavy_atoms):
+            result.heavy_atoms = heavy
+            _check_heavy_atoms(heavy, options)
         _check_elements_and_fragments(mol, options)
         if not options.allow_charge_separation:
             message = overbonded_charged_carbon(mol)
@@ -628,12 +787,7 @@ def _check_structure(smiles: str, options: PrepareOptions) -> _Checked:
         # RDKit's default parser makes of it (stereo flags made meaningless by isotope
         # stripping are dropped, and re-validating the canonical SMILES gives the same key).
         result.smiles, result.heavy_atoms = canonical_form(mol)
-        if result.heavy_atoms > options.max_heavy_atoms:
-            raise _Reject(
-                "too_many_atoms",
-                f"{result.heavy_atoms} heavy atoms, more than the limit of "
-                f"{options.max_heavy_atoms} (PrepareOptions.max_heavy_atoms)",
-            )
+        _check_heavy_atoms(result.heavy_atoms, options)
     except _Reject as rej:
         result.reason = rej.reason
         result.error = rej.message

@@ -28,6 +28,8 @@ import re
 import sys
 import zlib
 from array import array
+from bisect import bisect_right
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -37,12 +39,15 @@ from rdkit import Chem, rdBase
 from screen.columns import (CALIBRATED_COLUMNS, ELECTRONIC_COLUMNS, LEVELS_CONTRACT_COLUMNS, RANKING_COLUMNS,
                             RANKING_EXTRA_COLUMNS)
 from screen.errors import InputError
-from screen.io import repeated_in_header, separator_problem, utf16_error
+from screen.io import looks_utf16, repeated_in_header, separator_problem, utf16_error
+from screen.prepare.checks import full_check_limit
 from screen.prepare.checks import snippet as _snippet
+from screen.prepare.options import KNOWN_ELEMENTS, PrepareOptions
 from screen.prepare.shards import MANIFEST_COLUMNS
 
 __all__ = ["read_candidates", "assign_missing_ids", "generated_id", "generated_id_names", "INPUT_LINES", "input_line",
-           "not_utf8_error", "utf16_error", "ID_ALIASES", "id_columns"]
+           "not_utf8_error", "utf16_error", "looks_utf16", "ID_ALIASES", "id_columns",
+           "MAX_LINE_BYTES", "MAX_SDF_LINE_BYTES"]
 
 #: key of ``frame.attrs`` where :func:`read_candidates` records each row's place in the file: ``{"file": name,
 #: "format": "csv"|"smi"|"sdf", "lines": array of the first file line of row 0, of row 1, ...}`` (1-based, counting
@@ -162,15 +167,136 @@ def not_utf8_error(path: Path, raw: bytes, fmt: str | None = None) -> InputError
                       f"file as UTF-8 ({sheet}from Latin-1: `iconv -f latin1 -t utf-8`)")
 
 
+#: longest line a candidate file may have (bytes): a longer one is not read (:func:`_read_raw`), so that a 200 MB
+#: SMILES line cannot exhaust the memory (a security audit: the machine's whole memory, then the OOM killer). A
+#: SMILES within ``PrepareOptions.max_heavy_atoms`` takes a few thousand characters
+#: (:func:`screen.prepare.checks.smiles_length_limit`); 128 KiB is also the largest field Python's CSV reader takes
+#: (``csv.field_size_limit()``), which refused a whole CSV file for one longer field
+MAX_LINE_BYTES = 131_072
+#: longest line an SD file may have (bytes): its connection table's lines are short, but a data item may hold a long
+#: value (an exported image, a fingerprint), which is only text passed through; a longer line rejects its record
+MAX_SDF_LINE_BYTES = 16 * 1024 * 1024
+#: bytes of a file read at a time
+_CHUNK = 1 << 16
+#: bytes kept of the start and of the end of a line that is too long, for its message and id
+_KEEP = 120
+
+
+@dataclass
+class _LongLine:
+    """A line of a candidate file longer than :data:`MAX_LINE_BYTES`: its length and its first and last bytes."""
+
+    length: int
+    head: bytes
+    tail: bytes
+
+    def text(self, part: bytes) -> str:
+        return part.decode("utf-8", errors="replace")
+
+    def describe(self, number: int) -> str:
+        """``line 3 is 209715201 bytes long ('CCCC...')``."""
+        return f"line {number} is {self.length} bytes long ({_snippet(self.text(self.head))})"
+
+    def advice(self, limit: int = MAX_LINE_BYTES) -> str:
+        return (f"more than the {limit} a candidate file line may have (a SMILES within "
+                "PrepareOptions.max_heavy_atoms takes a few thousand characters); not read: shorten or remove it")
+
+
+def _first_break(chunk: bytes, start: int = 0) -> int:
+    """The position of the first CR or LF in ``chunk`` from ``start``; -1 when none."""
+    cr, lf = chunk.find(b"\r", start), chunk.find(b"\n", start)
+    return min(cr, lf) if cr >= 0 and lf >= 0 else max(cr, lf)
+
+
+def _last_break(chunk: bytes) -> int:
+    """The position of the last CR or LF in ``chunk``; -1 when none."""
+    return max(chunk.rfind(b"\r"), chunk.rfind(b"\n"))
+
+
+def _line_count(data: bytes | bytearray) -> int:
+    """The number of line breaks in ``data`` (CR LF, CR and LF each one, as :meth:`str.splitlines` counts them)."""
+    return data.count(b"\n") + data.count(b"\r") - data.count(b"\r\n")
+
+
+def _read_capped(chunks, limit: int) -> tuple[bytes, dict[int, _LongLine]]:
+    """Join the byte ``chunks`` of a file except the lines longer than ``limit`` bytes, which are left blank (one
+    space; their line break kept, so the line numbers stay), and return those by line number (1-based; CR LF, CR and
+    LF end a line). At most about ``limit`` bytes of such a line are ever held.
+
+    Examples
+    --------
+    >>> data, long = _read_capped([b"a\\r\\nBBBBBBBBBB x\\ncc\\n"], 5)
+    >>> data, {n: (x.length, x.head, x.tail) for n, x in long.items()}
+    (b'a\\r\\n \\ncc\\n', {2: (12, b'BBBBBBBBBB x', b'BBBBBBBBBB x')})
+    """
+    out = bytearray()
+    found: dict[int, _LongLine] = {}
+    current = 0  # bytes of the line being read that are in ``out`` (it starts at len(out) - current)
+    dropping: _LongLine | None = None  # the long line being skipped, and its number
+    number = 0
+    for big in chunks:
+        for at in range(0, len(big), limit):  # pieces of at most ``limit`` bytes: a line within one is short
+            chunk = big[at:at + limit]
+            first = _first_break(chunk)
+            piece = chunk if first < 0 else chunk[:first]  # the rest of the line being read
+            if dropping is None and current + len(piece) > limit:
+                start = len(out) - current
+                dropping = _LongLine(length=current, head=bytes(out[start:start + _KEEP]),
+                                     tail=bytes(out[start:])[-_KEEP:])
+                del out[start:]
+                number = 1 + _line_count(out)
+                out += b" "  # the line left blank: left empty, its CR and the LF after it would make one break
+                current = 0
+            if dropping is not None:
+                dropping.length += len(piece)
+                dropping.head = (dropping.head + piece[:_KEEP])[:_KEEP]
+                dropping.tail = (dropping.tail + piece)[-_KEEP:]
+            else:
+                out += piece
+                current += len(piece)
+            if first < 0:
+                continue
+            if dropping is not None:
+                found[number] = dropping
+                dropping = None
+            last = _last_break(chunk)
+            out += chunk[first:]  # whole lines, each shorter than ``limit``, and the start of the next
+            current = len(chunk) - last - 1
+    if dropping is not None:
+        found[number] = dropping
+    return bytes(out), found
+
+
+def _read_raw(path: Path, gz: bool, limit: int = MAX_LINE_BYTES) -> tuple[bytes, dict[int, _LongLine]]:
+    """The file's bytes (decompressed), without the lines longer than ``limit`` (:func:`_read_capped`); a UTF-16
+    file (byte-order mark, or NUL bytes between the characters) is read whole, its lines uncut."""
+    try:
+        with (gzip.open(path, "rb") if gz else open(path, "rb")) as stream:
+            start = stream.read(_CHUNK)
+            if start.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)) or looks_utf16(start):
+                return start + stream.read(), {}
+            return _read_capped(_chunks(start, stream), limit)
+    except (OSError, EOFError, zlib.error) as exc:  # gzip.BadGzipFile is an OSError
+        if not gz or isinstance(exc, FileNotFoundError):
+            raise
+        raise InputError(
+            f"not a readable gzip file: {path} ({exc}); check that it was copied whole, or give the "
+            "uncompressed file"
+        ) from None
+
+
+def _chunks(start: bytes, stream):
+    """``start``, then the rest of ``stream`` in chunks of :data:`_CHUNK` bytes."""
+    yield start
+    while True:
+        chunk = stream.read(_CHUNK)
+        if not chunk:
+            return
+        yield chunk
+
+
 def _read_text(path: Path, gz: bool, fmt: str | None = None) -> str:
-    """Read the whole file as UTF-8 text (a byte-order mark is ignored).
-
-    A CSV or SMILES file that starts with a UTF-16 byte-order mark (FF FE or FE FF: a spreadsheet's "Unicode
-    text" export) is read as UTF-16; an SD file in UTF-16 is refused saying so (:func:`utf16_error`: convert it
-    with ``iconv -f utf-16 -t utf-8``).
-
-    Text that is not UTF-8 raises :class:`InputError` naming the line (and the id on it, for ``fmt`` ``"csv"`` or
-    ``"smi"``; the SD record for ``"sdf"``) of the first byte that is not UTF-8 (:func:`not_utf8_error`).
+    """Read the whole file as UTF-8 text (a byte-order mark is ignored); see :func:`_read_file`.
 
     A ``.gz`` file that is not gzip data, or is truncated or corrupt, raises :class:`InputError`:
 
@@ -182,24 +308,35 @@ def _read_text(path: Path, gz: bool, fmt: str | None = None) -> str:
     ...
     screen.errors.InputError: not a readable gzip file: ...c.csv.gz (...); ...
     """
-    raw = path.read_bytes()
-    if gz:
-        try:
-            raw = gzip.decompress(raw)
-        except (OSError, EOFError, zlib.error) as exc:  # gzip.BadGzipFile is an OSError
-            raise InputError(
-                f"not a readable gzip file: {path} ({exc}); check that it was copied whole, or give the "
-                "uncompressed file"
-            ) from None
+    return _read_file(path, gz, fmt)[0]
+
+
+def _read_file(path: Path, gz: bool, fmt: str | None = None) -> tuple[str, dict[int, _LongLine]]:
+    """Read the whole file as UTF-8 text (a byte-order mark is ignored), and its lines that are too long.
+
+    A line longer than :data:`MAX_LINE_BYTES` (:data:`MAX_SDF_LINE_BYTES` in an SD file) is not read: it is blank
+    in the text, and returned by its line number (1-based) for the readers to report (:func:`_read_raw`).
+
+    A CSV or SMILES file that starts with a UTF-16 byte-order mark (FF FE or FE FF: a spreadsheet's "Unicode
+    text" export) is read as UTF-16; an SD file in UTF-16 is refused saying so (:func:`utf16_error`: convert it
+    with ``iconv -f utf-16 -t utf-8``). A file in UTF-16 without a byte-order mark (a NUL byte beside every ASCII
+    character) is refused saying so (:func:`screen.io.utf16_error`).
+
+    Text that is not UTF-8 raises :class:`InputError` naming the line (and the id on it, for ``fmt`` ``"csv"`` or
+    ``"smi"``; the SD record for ``"sdf"``) of the first byte that is not UTF-8 (:func:`not_utf8_error`).
+    """
+    raw, long = _read_raw(path, gz, MAX_SDF_LINE_BYTES if fmt == "sdf" else MAX_LINE_BYTES)
     if raw.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
         if fmt == "sdf":
             raise utf16_error(path, raw, fmt)
         try:
-            return raw.decode("utf-16")  # the byte-order mark gives the byte order and is dropped
+            return raw.decode("utf-16"), {}  # the byte-order mark gives the byte order and is dropped
         except UnicodeDecodeError:
             raise utf16_error(path, raw, fmt) from None
+    if looks_utf16(raw):
+        raise utf16_error(path, raw, fmt)
     try:
-        return raw.decode("utf-8-sig")
+        return raw.decode("utf-8-sig"), long
     except UnicodeDecodeError:
         raise not_utf8_error(path, raw, fmt) from None
 
@@ -281,12 +418,36 @@ def _smiles_like_hint(header: list[str]) -> str:
     return f"; column {like[0]!r} looks like it: name it 'smiles'" if len(like) == 1 else ""
 
 
+def _long_line_csv_id(long: _LongLine, delimiter: str, at: int | None) -> str:
+    """The id of a CSV line too long to read, when its start shows it (column ``at``, 0-based); '' otherwise."""
+    if at is None:
+        return ""
+    try:
+        fields = next(csv.reader([long.text(long.head)], delimiter=delimiter), [])
+    except csv.Error:
+        return ""
+    return fields[at].strip() if at < len(fields) - 1 else ""  # the last field may be cut
+
+
+def _is_repeated_header(fields: list[str], lowered: list[str]) -> bool:
+    """Whether a CSV row's ``fields`` repeat the header (``lowered``: its names in lower case), ignoring case,
+    blanks around the names and empty trailing fields."""
+    def trimmed(names: list[str]) -> list[str]:
+        names = [n.strip().lower() for n in names]
+        while names and not names[-1]:
+            names.pop()
+        return names
+
+    return bool(fields) and trimmed(fields) == trimmed(lowered)
+
+
 #: Excel's first line naming the field separator (``sep=,``), written by some exports and macros
 _SEP_LINE = re.compile(r"sep=(.)", re.IGNORECASE)
 _SEPARATOR_NAMES = {",": "commas", ";": "';'", "\t": "tabs"}
 
 
-def _read_csv(path: Path, text: str, delimiter: str = ",") -> tuple[list[dict[str, str]], list[str], list[int], str]:
+def _read_csv(path: Path, text: str, delimiter: str = ",",
+              long_lines: dict[int, _LongLine] | None = None) -> tuple[list[dict[str, str]], list[str], list[int], str]:
     """Parse candidate CSV text into row dicts, the passthrough column names and each row's first file line.
 
     ``delimiter``: ``","`` for a ``.csv`` file, a tab for a SMILES-file that is a table with a header
@@ -296,7 +457,14 @@ def _read_csv(path: Path, text: str, delimiter: str = ",") -> tuple[list[dict[st
     trailing empty columns) are dropped; empty fields after the last column are ignored.  Also returned: the column
     that may hold ids when the header has no id column (``"column 'Name'"``; '' otherwise), for the console line
     about generated ids.
+
+    A row is rejected (``malformed_row``, its ``read_error``) when it repeats the header line (two files joined), or
+    when one of its lines is too long to read (``long_lines``, :func:`_read_file`; a header line that long refuses
+    the file).
     """
+    long_lines = long_lines or {}
+    seen_long: set[int] = set()
+    ends: list[int] = []
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     header: list[str] | None = None
     records: list[dict[str, str]] = []
@@ -306,10 +474,23 @@ def _read_csv(path: Path, text: str, delimiter: str = ",") -> tuple[list[dict[st
     shown: dict[str, str] = {}  # internal column -> its header text
     lines: list[int] = []
     has_id = False
+    id_at: int | None = None
     try:
         before = 0  # lines read before this record: it starts on the next one
         for fields in reader:
             start, before = before + 1, reader.line_num
+            if start in long_lines and all(not f.strip() for f in fields):  # too long to read (blank: _read_file)
+                long = long_lines[start]
+                seen_long.add(start)
+                if header is None:
+                    raise InputError(f"{path}: {long.describe(start)}, before any row: {long.advice()}")
+                record = {"id": _long_line_csv_id(long, delimiter, id_at), "smiles_input": "", "name": "",
+                          "role": "", "read_error": f"malformed_row:{long.describe(start)}, {long.advice()}"}
+                record.update({col: "" for col in passthrough})
+                records.append(record)
+                lines.append(start)
+                ends.append(start)
+                continue
             if header is None:
                 if not fields or all(not f.strip() for f in fields):
                     continue
@@ -341,6 +522,7 @@ def _read_csv(path: Path, text: str, delimiter: str = ",") -> tuple[list[dict[st
                     raise InputError(f"{path}: columns {names} both look like the id column; name the one that "
                                      "holds the ids 'id'")
                 has_id = bool(ids)
+                id_at = ids[0] if ids else None
                 taken: set[str] = set()
                 for i, (h, low) in enumerate(zip(header, lowered)):
                     if ids and i == ids[0]:
@@ -364,7 +546,12 @@ def _read_csv(path: Path, text: str, delimiter: str = ",") -> tuple[list[dict[st
             for i, value in enumerate(fields[: len(header)]):
                 record[mapping[i]] = value
             extra = fields[len(header):]
-            if any(f.strip() for f in extra):  # empty fields after the last column (a spreadsheet's ",,") are no data
+            if _is_repeated_header(fields, lowered):
+                record["read_error"] = (
+                    f"malformed_row:line {start} repeats the header line {_snippet(delimiter.join(fields))} (two files "
+                    "joined into one?); it is no candidate: remove it"
+                )
+            elif any(f.strip() for f in extra):  # empty fields after the last column (a spreadsheet's ",,") are no data
                 record["read_error"] = (
                     f"malformed_row:line {reader.line_num} has {len(fields)} fields but the "
                     f"header has {len(header)} ({'unquoted comma' if delimiter == ',' else 'a tab'} inside a field?); "
@@ -372,8 +559,14 @@ def _read_csv(path: Path, text: str, delimiter: str = ",") -> tuple[list[dict[st
                 )
             records.append(record)
             lines.append(start)
+            ends.append(reader.line_num)
     except csv.Error as exc:
         raise InputError(f"{path}: CSV error near line {reader.line_num}: {exc}") from None
+    for number in sorted(set(long_lines) - seen_long):  # a long line inside a quoted field of several lines
+        at = bisect_right(lines, number) - 1
+        if at >= 0 and number <= ends[at]:
+            records[at]["read_error"] = (f"malformed_row:line {lines[at]}: its {long_lines[number].describe(number)}, "
+                                         f"{long_lines[number].advice()}")
     empty = [col for col in unnamed if not any(r.get(col, "").strip() for r in records)]
     if empty:  # a spreadsheet's trailing empty columns: nothing in them to carry through
         passthrough = [col for col in passthrough if col not in empty]
@@ -460,7 +653,23 @@ def _smi_header(path: Path, number: int, line: str) -> str:
     return ""
 
 
-def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], list[int], str]:
+def _long_line_smi_id(long: _LongLine) -> str:
+    """The id of a SMILES-file line too long to read: what follows the SMILES at its end, when its start is all
+    SMILES (no blank in it) and its end shows where the SMILES stops; '' otherwise.
+
+    >>> _long_line_smi_id(_LongLine(10**6, b"CCCCCCCC", b"CCCCCC X 12"))
+    'X 12'
+    >>> _long_line_smi_id(_LongLine(10**6, b"C x", b"x"))  # the id is what is too long: not shown whole
+    ''
+    """
+    head, tail = long.text(long.head), long.text(long.tail)
+    if re.search(r"\s", head.strip()) or not re.search(r"\s", tail.strip()):
+        return ""
+    return tail.strip().split(None, 1)[1].split("\t")[0].strip()
+
+
+def _read_smi(path: Path, text: str,
+              long_lines: dict[int, _LongLine] | None = None) -> tuple[list[dict[str, str]], list[str], list[int], str]:
     """Parse a SMILES file (``SMILES<whitespace>id`` per line); also each record's file line.
 
     A file whose first line is a tab-separated header naming a ``smiles`` column (anywhere), other than the
@@ -468,7 +677,12 @@ def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], l
     header like a CSV file (:func:`_read_csv`; comment lines before the header are skipped, after it every line is
     a row).  Otherwise the id is the rest of the line, blanks included; a line whose id is followed by further
     tab-separated fields is rejected (``malformed_row``, naming them) instead of folding them into the id.
+
+    A line is also rejected when it is a header line after the first line (``malformed_row``: two files joined), or
+    when it is too long to read (``long_lines``, :func:`_read_file`; ``too_many_atoms`` when its start is all
+    SMILES).
     """
+    long_lines = long_lines or {}
     all_lines = text.splitlines()
     first = next(((n, ln) for n, ln in enumerate(all_lines, start=1)
                   if ln.strip() and not ln.strip().startswith("#")), None)
@@ -477,11 +691,18 @@ def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], l
     kind = _smi_header(path, *first) if first is not None else ""
     if kind == "table":
         table = "\n".join("" if n < first[0] else ln for n, ln in enumerate(all_lines, start=1))
-        return _read_csv(path, table, delimiter="\t")
+        return _read_csv(path, table, delimiter="\t", long_lines=long_lines)
     records: list[dict[str, str]] = []
     lines: list[int] = []
     for number, line in enumerate(all_lines, start=1):
         stripped = line.strip()
+        if number in long_lines and not stripped:  # a line too long to read (left blank by _read_file)
+            long = long_lines[number]
+            code = "malformed_row" if re.search(r"\s", long.text(long.head).strip()) else "too_many_atoms"
+            records.append({"id": _long_line_smi_id(long), "smiles_input": "", "name": "",
+                            "role": "", "read_error": f"{code}:{long.describe(number)}, {long.advice()}"})
+            lines.append(number)
+            continue
         if not stripped or stripped.startswith("#"):
             continue
         if kind == "header" and number == first[0]:
@@ -501,15 +722,11 @@ def _read_smi(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], l
                          f"{shown}; a SMILES file line is SMILES<whitespace>id (an id may hold blanks, not tabs): "
                          "name the columns in a tab-separated header line (e.g. SMILES<TAB>id<TAB>role) or save "
                          "the file as CSV")
-        records.append(
-            {
-                "id": rest,
-                "smiles_input": smiles,
-                "name": "",
-                "role": "",
-                "read_error": error,
-            }
-        )
+        if smiles.strip().lower() == "smiles":  # no SMILES: a header line in the middle of the file
+            what = "repeats the header line" if kind == "header" else "is a header line"
+            error = (f"malformed_row:line {number} {what} {_snippet(stripped)} after the first line (two files joined "
+                     "into one?); it is no candidate: remove it")
+        records.append({"id": rest, "smiles_input": smiles, "name": "", "role": "", "read_error": error})
         lines.append(number)
     return records, [], lines, ""
 
@@ -858,9 +1075,95 @@ def _shortlist_repeat_unit(data: dict[str, str]) -> str:
     return ""
 
 
-def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], list[int], str]:
+def _molblock_heavy_atoms(lines: list[str]) -> int | None:
+    """The heavy atoms of a connection table as its atom block lists them (V2000 or V3000), counted without RDKit:
+    atoms of an element other than hydrogen (``H``, ``D``, ``T``); attachment points, R-groups and query atoms are
+    not counted. ``None`` when a V2000 counts line cannot be read.
+
+    Examples
+    --------
+    >>> block = ["t", "", "", "  3  2  0  0  0  0  0  0  0  0999 V2000"] + [
+    ...     f"    0.0000    0.0000    0.0000 {e:<3} 0  0" for e in ("C", "H", "S")] + ["M  END"]
+    >>> _molblock_heavy_atoms(block)
+    2
+    >>> v3000 = ["t", "", "", "  0  0  0  0  0  0  0  0  0  0999 V3000", "M  V30 BEGIN CTAB",
+    ...          "M  V30 COUNTS 3 2 0 0 0", "M  V30 BEGIN ATOM", "M  V30 1 C 0 0 0 0", "M  V30 2 R# 0 0 0 0 -",
+    ...          "M  V30 RGROUPS=(1 1)", "M  V30 3 Cl 0 0 0 0", "M  V30 END ATOM", "M  END"]
+    >>> _molblock_heavy_atoms(v3000)
+    2
+    """
+    if len(lines) < 4:
+        return None
+    counts = lines[3]
+    if "V3000" not in counts:
+        try:
+            n_atoms = int(counts[0:3])
+        except ValueError:
+            return None
+        return sum(_is_heavy(line[31:34].strip()) for line in lines[4:4 + n_atoms])
+    heavy, inside, entry = 0, False, ""
+    for line in lines[4:]:
+        body = line[7:] if line.startswith("M  V30 ") else None
+        if body is None:
+            continue
+        if body.strip() == "BEGIN ATOM":
+            inside = True
+            continue
+        if body.strip() == "END ATOM":
+            break
+        if not inside:
+            continue
+        if entry:  # the continuation of an atom line
+            entry += body
+        else:
+            entry = body
+        if entry.rstrip().endswith("-"):
+            entry = entry.rstrip()[:-1]
+            continue
+        fields = entry.split()
+        heavy += len(fields) > 1 and _is_heavy(fields[1])
+        entry = ""
+    return heavy
+
+
+def _is_heavy(symbol: str) -> bool:
+    """Whether an atom block's atom type is an element other than hydrogen."""
+    return symbol in KNOWN_ELEMENTS and symbol != "H"
+
+
+def _sdf_too_many_atoms(lines: list[str], max_heavy_atoms: int) -> str:
+    """Why a record's connection table (its lines up to ``M  END``) is too large to convert ('' when it is not): more
+    heavy atoms in its atom block than :func:`screen.prepare.checks.full_check_limit` of ``max_heavy_atoms`` (two
+    more with a polymer bracket, whose end stubs become attachment points); a record over ``max_heavy_atoms`` within
+    that is converted and refused by the checks, with its canonical SMILES. Counted before RDKit reads the block:
+    RDKit's SMILES writer crashed (segmentation fault) on a record of 25 000 atoms (a security audit)."""
+    max_heavy_atoms_checked = full_check_limit(max_heavy_atoms)
+    counts = lines[3] if len(lines) > 3 else ""
+    if "V3000" in counts:
+        found = next((ln.split() for ln in lines[4:40] if ln.startswith("M  V30 COUNTS")), [])
+        announced = int(found[3]) if len(found) > 3 and found[3].isdigit() else None
+    else:
+        announced = int(counts[0:3]) if counts[0:3].strip().isdigit() else None
+    if announced is not None and announced <= max_heavy_atoms_checked:
+        return ""
+    heavy = _molblock_heavy_atoms(lines)
+    slack = 2 if any("SRU" in ln for ln in lines) else 0
+    if heavy is None or heavy <= max_heavy_atoms_checked + slack:
+        return ""
+    return (f"its atom block holds {heavy} heavy atoms, more than the limit of {max_heavy_atoms} "
+            "(PrepareOptions.max_heavy_atoms); not converted")
+
+
+def _read_sdf(path: Path, text: str, long_lines: dict[int, _LongLine] | None = None,
+              max_heavy_atoms: int | None = None) -> tuple[list[dict[str, str]], list[str], list[int], str]:
     """Parse an SD file; unreadable records become rows with a read error. Also each record's first file line, and
-    the data item that may hold ids (``"data item 'Catalog'"``, for the console line about generated ids)."""
+    the data item that may hold ids (``"data item 'Catalog'"``, for the console line about generated ids).
+
+    A record is also rejected, before RDKit reads it, when its atom block holds far more heavy atoms than
+    ``max_heavy_atoms`` (``too_many_atoms``, :func:`_sdf_too_many_atoms`; default ``PrepareOptions.max_heavy_atoms``),
+    or when one of its lines is too long to read (``long_lines``, :func:`_read_file`).
+    """
+    limit = PrepareOptions().max_heavy_atoms if max_heavy_atoms is None else max_heavy_atoms
     records: list[dict[str, str]] = []
     passthrough: list[str] = []
     column_of: dict[str, str] = {}
@@ -887,6 +1190,8 @@ def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], l
                 f"unparsable:SDF record {number} (title {_snippet(title)}) could not be read: "
                 "no 'M  END' line"
             )
+        elif too_large := _sdf_too_many_atoms(lines[: end + 1], limit):
+            record["read_error"] = f"too_many_atoms:SD record {number} (title {_snippet(title)}): {too_large}"
         else:
             smiles, detail, code = _read_molblock("\n".join(lines[: end + 1]) + "\n")
             if smiles is None and code:
@@ -902,11 +1207,17 @@ def _read_sdf(path: Path, text: str) -> tuple[list[dict[str, str]], list[str], l
             else:
                 record["smiles_input"] = _shortlist_repeat_unit(data) or smiles
         records.append(record)
+    starts = _sdf_starts(text)
+    for line_number, long in (long_lines or {}).items():
+        at = bisect_right(starts, line_number) - 1
+        if 0 <= at < len(records):
+            records[at]["read_error"] = (f"malformed_row:SD record {at + 1}: its {long.describe(line_number)}, "
+                                         f"{long.advice(MAX_SDF_LINE_BYTES)}")
     for record in records:
         for col in passthrough:
             record.setdefault(col, "")
     hint = _id_like_column(untitled, [(k, k) for k in dict.fromkeys(k for d in untitled for k in d)])
-    return records, passthrough, _sdf_starts(text), (f"data item {hint!r}" if hint else "")
+    return records, passthrough, starts, (f"data item {hint!r}" if hint else "")
 
 
 def generated_id(fmt: str | None, line: int | None, row: int) -> str:
@@ -1018,7 +1329,7 @@ def generated_id_names(frame: pd.DataFrame, rows: list[int]) -> list[str] | None
     return [generated_id(found.get("format"), input_line(frame, row), row) for row in rows]
 
 
-def read_candidates(path: str | os.PathLike[str]) -> pd.DataFrame:
+def read_candidates(path: str | os.PathLike[str], max_heavy_atoms: int | None = None) -> pd.DataFrame:
     """Read a candidate file (CSV, SMILES or SDF) into a frame of text columns.
 
     Parameters
@@ -1026,6 +1337,10 @@ def read_candidates(path: str | os.PathLike[str]) -> pd.DataFrame:
     path : str or os.PathLike
         Candidate file; the format is chosen by extension (``.csv``, ``.smi``/``.smiles``/
         ``.txt``, ``.sdf``/``.sd``, each optionally ``.gz``).
+    max_heavy_atoms : int, optional
+        An SD record whose atom block holds more heavy atoms than
+        :func:`screen.prepare.checks.full_check_limit` of it is not converted (a ``too_many_atoms`` read error);
+        default ``PrepareOptions.max_heavy_atoms``.
 
     Returns
     -------
@@ -1044,20 +1359,21 @@ def read_candidates(path: str | os.PathLike[str]) -> pd.DataFrame:
     screen.errors.InputError
         Unknown extension, a ``.gz`` file that is not readable gzip data, text that is not UTF-8,
         a CSV without a ``smiles`` column (the message names the file and the columns found) or
-        with a column named twice, a SMILES file that is comma-separated text, or an
-        unrecoverable CSV syntax error.
+        with a column named twice, a SMILES file that is comma-separated text, a file in UTF-16 without a
+        byte-order mark, a CSV header line longer than :data:`MAX_LINE_BYTES`, or an unrecoverable CSV syntax
+        error.  (A longer line of a row does not stop the read: its row gets a read error.)
     FileNotFoundError
         If ``path`` does not exist.
     """
     path = Path(path)
     fmt, gz = _format_of(path)
-    text = _read_text(path, gz, fmt)
+    text, long_lines = _read_file(path, gz, fmt)
     if fmt == "csv":
-        records, passthrough, lines, hint = _read_csv(path, text)
+        records, passthrough, lines, hint = _read_csv(path, text, long_lines=long_lines)
     elif fmt == "smi":
-        records, passthrough, lines, hint = _read_smi(path, text)
+        records, passthrough, lines, hint = _read_smi(path, text, long_lines)
     else:
-        records, passthrough, lines, hint = _read_sdf(path, text)
+        records, passthrough, lines, hint = _read_sdf(path, text, long_lines, max_heavy_atoms)
     rows = list(range(len(records)))
     places = lines if len(lines) == len(records) else [None] * len(records)
     ids, notes = assign_missing_ids([r["id"] for r in records], rows,

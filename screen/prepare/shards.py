@@ -24,6 +24,7 @@ from rdkit import rdBase
 from screen.chem import KEY_RECIPE
 from screen.io import atomic_path
 from screen.io import cell_text as _text
+from screen.io import csv_text as _io_csv_text
 from screen.prepare.options import PrepareOptions
 from screen.provenance import sha256_file
 
@@ -133,8 +134,16 @@ def _write_text(path: Path, text: str) -> None:
 
 
 def _csv_text(frame: pd.DataFrame) -> str:
-    """Render a frame as CSV text (no index, ``\\n`` line ends, missing values empty)."""
-    return frame.to_csv(index=False, lineterminator="\n", na_rep="")
+    """Render a frame as CSV text (no index, ``\\n`` line ends, missing values empty): :func:`screen.io.csv_text`,
+    which quotes a field holding a carriage return (pandas wrote it bare, and the levels stage read the manifest
+    back with a candidate's name split over two rows: a security audit).
+
+    Examples
+    --------
+    >>> _csv_text(pd.DataFrame({"id": ["a\\r=1", None], "row": [1, 2]}))
+    'id,row\\n"a\\r=1",1\\n,2\\n'
+    """
+    return _io_csv_text(frame, "\n")
 
 
 def _summary(manifest: pd.DataFrame, shards: list[pd.DataFrame]) -> dict[str, int]:

@@ -21,7 +21,7 @@ import pandas as pd
 from screen.chem import structure_key
 from screen.io import cell_text as _text
 from screen.isolation import MainGuardMissing
-from screen.prepare.checks import REASON_CODES, _check_structure, _Checked
+from screen.prepare.checks import REASON_CODES, _check_structure, _Checked, cell_control_problem, visible_controls
 from screen.prepare.checks import snippet as _snippet
 from screen.prepare.options import PrepareOptions
 from screen.prepare.readers import INPUT_LINES, generated_id_names, input_line
@@ -62,7 +62,8 @@ def validate(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) ->
         A new frame, same rows in the same order, with the columns of
         :data:`MANIFEST_COLUMNS` followed by the passthrough columns: ``key`` (``''`` unless
         ``ok``), ``smiles`` (canonical isomeric SMILES, filled whenever the structure could be
-        canonicalised, also for ``too_many_atoms`` and id/role rejections), ``heavy_atoms``
+        canonicalised, also for ``too_many_atoms`` and id/role rejections; not for a structure far over the size
+        limit, refused before it is canonicalised: :func:`screen.prepare.checks.full_check_limit`), ``heavy_atoms``
         (nullable int), ``status`` (``'ok'`` or ``'rejected'``), ``reason`` (see the module
         docstring), ``error`` (specific message, ``''`` if ok), ``duplicate_of`` (id of the
         first ``ok`` row with the same key, ``''`` otherwise), ``note`` and
@@ -92,6 +93,7 @@ def validate(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) ->
                                         generated_id_names(frame, rows))
     prior_notes = column("note")
     roles_raw = column("role")
+    names = column("name")
     read_errors = column("read_error")
     out: dict[str, list] = {name: [] for name in _OUTPUT_COLUMNS}
     first_place_of_id: dict[str, tuple[str, str]] = {}
@@ -99,9 +101,13 @@ def validate(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) ->
     for i in range(n):
         ident = ids[i]
         role = roles_raw[i].strip().lower()
+        controls = cell_control_problem({"id": ident, "name": names[i], "role": roles_raw[i]})
         checked, reason, error = _check_row(
-            smiles_in[i], read_errors[i], roles_raw[i], ident, first_place_of_id, options, where[i]
+            smiles_in[i], read_errors[i], roles_raw[i], ident, first_place_of_id, options, where[i], controls
         )
+        if reason:  # a rejected row's text shows a NUL, an ESC, ... by its symbol (␀, ␛): none reaches an output
+            ids[i], names[i], smiles_in[i] = (visible_controls(t) for t in (ident, names[i], smiles_in[i]))
+            roles_raw[i] = visible_controls(roles_raw[i])
         first_place_of_id.setdefault(ident, where[i])
         key = ""
         duplicate_of = ""
@@ -121,7 +127,7 @@ def validate(frame: pd.DataFrame, options: PrepareOptions = PrepareOptions()) ->
         out["heavy_atoms"].append(checked.heavy_atoms)
         out["representation"].append(checked.representation)
         out["note"].append(_join_notes(_join_notes(prior_notes[i], [id_notes[i]]), checked.notes))
-    return _assemble(frame, smiles_col, rows, ids, smiles_in, column("name"), out)
+    return _assemble(frame, smiles_col, rows, ids, smiles_in, names, out)
 
 
 #: Columns :func:`validate` computes row by row.
@@ -187,8 +193,11 @@ def _check_row(
     first_place_of_id: dict[str, tuple[str, str]],
     options: PrepareOptions,
     here: tuple[str, str] = ("", ""),
+    controls: str = "",
 ) -> tuple[_Checked, str, str]:
-    """Check one row: read error, structure, role, repeated id (``here``: where the row is, :func:`_places`).
+    """Check one row: read error, control characters in its id, name or role (``controls``:
+    :func:`screen.prepare.checks.cell_control_problem`), structure, role, repeated id (``here``: where the row is,
+    :func:`_places`).
 
     Returns the structure check result and the row's reason code and message (``''`` if ok).
     Any unexpected exception becomes ``internal_error``: the batch goes on.
@@ -203,6 +212,8 @@ def _check_row(
                 "unparsable",
                 read_error,
             )
+        elif controls:  # a NUL cuts an id short in C programs, a line break splits an SD title (a security audit)
+            reason, error = "malformed_row", f"{here[1]}: {controls}" if here[1] else controls
         else:
             checked = _check_structure(smiles, options)
             reason, error = checked.reason, checked.error

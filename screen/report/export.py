@@ -1,4 +1,9 @@
-"""Spreadsheet-safe copy of a table: text cells that a spreadsheet would run as a formula are neutralised.
+"""Spreadsheet-safe copy of a table: text cells that a spreadsheet would run as a formula are neutralised, and
+line breaks inside text cells are replaced by spaces.
+
+``ranking.safe.csv`` is the copy meant for people (opened in a spreadsheet); ``ranking.csv`` and every other CSV
+file the project writes are the raw data, their text exactly as given (a field holding a line break is quoted:
+:func:`screen.io.csv_text`).
 
 References
 ----------
@@ -22,10 +27,13 @@ __all__ = ["safe_csv_frame", "safe_csv_text", "safe_csv_bytes", "SAFE_CSV_ENCODI
 #: :mod:`csv` readers of :mod:`screen.io` (``utf-8-sig``) and the candidate reader skip the mark
 SAFE_CSV_ENCODING = "utf-8-sig"
 
-_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r", "\n")
 _PLAIN_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
-#: a text cell that begins with a formula character, in the cells joined after NUL characters
-_FORMULA_AFTER_NUL = re.compile("\0[" + re.escape("".join(_FORMULA_START)) + "]")
+#: a text cell that begins with a formula character, in the cells joined after NUL characters, or a line break
+#: anywhere in a cell
+_FORMULA_AFTER_NUL = re.compile("\0[" + re.escape("".join(_FORMULA_START)) + "]|[\r\n]")
+#: a line break inside a text cell (CR LF, a lone CR or a lone LF): one space in the safe copy
+_LINE_BREAK = re.compile("\r\n|[\r\n]")
 
 
 def _text_columns(frame: pd.DataFrame) -> list:
@@ -55,7 +63,8 @@ def _formula_cells(values: np.ndarray) -> np.ndarray:
 
 
 def _may_hold_formulas(values: np.ndarray) -> bool:
-    """False when no text cell of an object array begins with a formula character (one search).
+    """False when no text cell of an object array begins with a formula character or holds a line break (one
+    search).
 
     The text cells are joined, each after a NUL character; a NUL inside a cell
     can only add a false alarm, which :func:`_formula_cells` then settles.
@@ -65,22 +74,37 @@ def _may_hold_formulas(values: np.ndarray) -> bool:
     >>> import numpy as np
     >>> _may_hold_formulas(np.array(["ok", None, 3.0], dtype=object)), _may_hold_formulas(np.array(["a", "-1"]))
     (False, True)
+    >>> _may_hold_formulas(np.array(["ok\\r=1+1"], dtype=object))
+    True
     """
     texts = [v for v in values.tolist() if isinstance(v, str)]
     return _FORMULA_AFTER_NUL.search("\0" + "\0".join(texts)) is not None
 
 
+def _broken_cells(values: np.ndarray) -> np.ndarray:
+    """Boolean mask of the text cells of an object array that hold a carriage return or line feed.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> _broken_cells(np.array(["ok\\r=1", "a\\nb", "ok", None], dtype=object)).tolist()
+    [True, True, False, False]
+    """
+    return np.fromiter((isinstance(v, str) and ("\r" in v or "\n" in v) for v in values), dtype=bool,
+                       count=len(values))
+
+
 def _needs_neutralising(frame: pd.DataFrame) -> bool:
-    """True when a text cell of ``frame`` would be neutralised by :func:`safe_csv_frame`."""
+    """True when a text cell of ``frame`` would be changed by :func:`safe_csv_frame`."""
     for col in _text_columns(frame):
         values = frame[col].to_numpy(dtype=object)
-        if _may_hold_formulas(values) and _formula_cells(values).any():
+        if _may_hold_formulas(values) and (_formula_cells(values).any() or _broken_cells(values).any()):
             return True
     return False
 
 
 def safe_csv_frame(ranking: pd.DataFrame) -> pd.DataFrame:
-    """Copy of a table with formula-like text cells neutralised.
+    """Copy of a table with formula-like text cells neutralised and line breaks in text cells made spaces.
 
     Parameters
     ----------
@@ -91,10 +115,23 @@ def safe_csv_frame(ranking: pd.DataFrame) -> pd.DataFrame:
     -------
     pandas.DataFrame
         Same shape and columns.  Every *text* cell that begins with ``=``,
-        ``+``, ``-``, ``@``, a tab or a carriage return gets a leading
-        apostrophe, unless it is a plain decimal number such as ``"-5.4"``.
-        Numeric cells (and numeric columns) are unchanged, so negative levels
-        stay numbers.
+        ``+``, ``-``, ``@``, a tab, a carriage return or a line feed gets a
+        leading apostrophe, unless it is a plain decimal number such as
+        ``"-5.4"``; then every line break inside a text cell (CR LF, a lone CR,
+        a lone LF) becomes one space.  Numeric cells (and numeric columns) are
+        unchanged, so negative levels stay numbers.
+
+    Notes
+    -----
+    Line breaks become spaces rather than staying (quoted) in the cell with the
+    formula character after them neutralised: this copy is for people, and a
+    quoted line break is honoured by some spreadsheet imports and not by others
+    (a lone CR, an import set to another line end, a text editor, ``grep``);
+    where it is not, the rest of the cell starts a new row, and whatever
+    follows the break starts a cell, a formula too.  With a space the cell is
+    one line everywhere, and its start is the only place a formula can begin,
+    which the apostrophe covers.  Nothing is lost: ``ranking.csv`` keeps the
+    text exactly as given, its line breaks quoted (:func:`screen.io.csv_text`).
 
     References
     ----------
@@ -106,18 +143,23 @@ def safe_csv_frame(ranking: pd.DataFrame) -> pd.DataFrame:
     >>> t = pd.DataFrame({"id": ["=1+1", "ok", "-cmd"], "homo_ev": [-5.4, -5.1, -5.0]})
     >>> safe_csv_frame(t)["id"].tolist(), safe_csv_frame(t)["homo_ev"].tolist()
     (["'=1+1", 'ok', "'-cmd"], [-5.4, -5.1, -5.0])
+    >>> safe_csv_frame(pd.DataFrame({"name": ["ok\\r=cmd|' /C calc'!A0", "\\r=1", "a\\r\\nb"]}))["name"].tolist()
+    ["ok =cmd|' /C calc'!A0", "' =1", 'a b']
     """
     out = ranking.copy()
     for col in _text_columns(out):
         values = out[col].to_numpy(dtype=object, copy=True)
         mask = _formula_cells(values)
         values[mask] = ["'" + v for v in values[mask]]
+        broken = _broken_cells(values)
+        values[broken] = [_LINE_BREAK.sub(" ", v) for v in values[broken]]
         out[col] = pd.Series(values, index=out.index, dtype=object)
     return out
 
 
 def safe_csv_text(ranking: pd.DataFrame, csv_text: str | None = None) -> str:
-    """The spreadsheet-safe CSV of a table: ``safe_csv_frame(ranking).to_csv(index=False, lineterminator="\\n")``.
+    """The spreadsheet-safe CSV of a table: ``safe_csv_frame(ranking).to_csv(index=False, lineterminator="\\n")``
+    (formula-like cells neutralised, line breaks in cells made spaces).
 
     The text is made by :func:`screen.io.csv_text` (the same text as pandas').
 
@@ -128,8 +170,8 @@ def safe_csv_text(ranking: pd.DataFrame, csv_text: str | None = None) -> str:
     csv_text : str, optional
         ``ranking.to_csv(index=False, lineterminator="\\n")`` when the caller
         has made it already (the ranking stage writes it as ``ranking.csv``):
-        returned as it is when no cell needs neutralising, which saves
-        formatting every number a second time.
+        returned as it is when no cell needs neutralising and none holds a
+        line break, which saves formatting every number a second time.
 
     Returns
     -------
