@@ -87,6 +87,10 @@ __all__ = [
     "reference_files",
     "reference_hash",
     "fingerprint",
+    "fingerprint_differences",
+    "REFERENCE_RECORD",
+    "fitted_reference",
+    "reference_ways",
     "fit_property",
     "fit_all",
     "raw_table",
@@ -140,8 +144,75 @@ def fingerprint(config, reference_dir: str | Path) -> dict:
     reference = _reference_folder(reference_dir)
     prov = provenance(cfg)
     ver = prov["versions"].get(cfg.electronic.engine, "absent")
+    sha = reference_hash(reference)
+    _FOLDER_OF_HASH[sha] = reference  # for the record beside the models (:func:`save_calibration`)
     return {"protocol_id": cfg.protocol_id, "protocol": cfg.protocol, "polymer": dict(cfg["polymer"]),
-            "engine_version": ".".join(ver.split(".")[:2]), "reference_sha256": reference_hash(reference)}
+            "engine_version": ".".join(ver.split(".")[:2]), "reference_sha256": sha}
+
+
+#: reference folders whose data :func:`fingerprint` hashed in this process, by hash: a calibration saved with that
+#: fingerprint records the folder beside its models (:data:`REFERENCE_RECORD`); folders of equal hash hold equal data
+_FOLDER_OF_HASH: dict[str, Path] = {}
+#: the file beside a calibration's models that names the reference folder it was fitted on (written from now on;
+#: not one of the model files, so no number or hash of a calibration depends on it; the shipped calibration, fitted
+#: on the shipped reference data, has none)
+REFERENCE_RECORD = "reference_folder.json"
+
+
+def _shipped_reference() -> Path:
+    from screen.config import PACKAGE_ROOT
+
+    return PACKAGE_ROOT / "models" / "reference"
+
+
+def fitted_reference(model_dir: str | Path) -> dict:
+    """The reference data a calibration folder was fitted on: their hash and, where known, their folder.
+
+    The folder is the one recorded beside the models (:data:`REFERENCE_RECORD`), else the shipped reference folder
+    when its data have the calibration's hash (older model files record only the hash).
+
+    Returns
+    -------
+    dict
+        ``sha256`` (of the fingerprint; None without a readable ``ip.json``), ``folder`` (Path or None) and
+        ``current`` (True when that folder holds those very data today).
+
+    Examples
+    --------
+    >>> from screen.config import Config
+    >>> got = fitted_reference(find_models(Config.of({})))
+    >>> got["folder"] == _shipped_reference(), got["current"]
+    (True, True)
+    """
+    from screen.io import read_json
+
+    model_dir = Path(model_dir)
+    try:
+        sha = (read_json(model_dir / "ip.json").get("fingerprint") or {}).get("reference_sha256")
+    except (OSError, ValueError, AttributeError):
+        sha = None
+    folder = None
+    try:
+        record = read_json(model_dir / REFERENCE_RECORD)
+        if record.get("reference_sha256") == sha and record.get("reference_folder"):
+            folder = Path(record["reference_folder"])
+    except (OSError, ValueError, AttributeError):
+        pass
+    shipped = _shipped_reference()
+    if folder is None and sha and shipped.is_dir() and reference_hash(shipped) == sha:
+        folder = shipped
+    current = bool(folder is not None and sha and folder.is_dir() and reference_hash(folder) == sha)
+    return {"sha256": sha, "folder": folder, "current": current}
+
+
+def _fitted_on_text(got: dict) -> str:
+    """Where a calibration's reference data are, in words (:func:`fitted_reference`)."""
+    if got["folder"] is not None and got["current"]:
+        return f"the reference data in {got['folder']}"
+    short = f"SHA-256 {str(got['sha256'])[:12]}\u2026"
+    if got["folder"] is not None:
+        return f"the reference data then in {got['folder']} ({short}; that folder holds other data now)"
+    return f"reference data of {short} (older model files do not record their folder)"
 
 
 def _reference_folder(reference_dir: str | Path) -> Path:
@@ -245,6 +316,7 @@ def save_calibration(models: dict[str, dict], computed: pd.DataFrame, oligomers:
     statistics table.
     """
     target = save_models(models, out_dir, fp)
+    _record_reference(target, fp)
     table = stats_table(models)
     write_csv(table, target / "statistics.csv")
     failed = computed[computed["status"] != "ok"]
@@ -253,6 +325,18 @@ def save_calibration(models: dict[str, dict], computed: pd.DataFrame, oligomers:
     if len(oligomers):  # in polymer-key order, as a refit from these files writes them (same bytes either way)
         write_csv(oligomers.sort_values("polymer_key", kind="mergesort"), target / "reference_oligomers.csv")
     return target, table
+
+
+def _record_reference(target: Path, fp: dict) -> None:
+    """Name the reference folder the models were fitted on beside them (:data:`REFERENCE_RECORD`), when it was
+    hashed in this process and is not the shipped one (which is found by its hash, and whose calibration must not
+    carry the path of one machine); a record of other data is removed."""
+    folder = _FOLDER_OF_HASH.get(fp.get("reference_sha256"))
+    path = Path(target) / REFERENCE_RECORD
+    if folder is None or folder.resolve() == _shipped_reference().resolve():
+        path.unlink(missing_ok=True)
+        return
+    write_json({"reference_folder": str(folder), "reference_sha256": fp["reference_sha256"]}, path)
 
 
 # --------------------------------------------------------------------------- using models
@@ -325,19 +409,115 @@ def load_models(model_dir: str | Path, config=None, reference_dir: str | Path | 
 
 
 def _mismatch_fix(found: dict, expected: dict, model_dir: Path, reference) -> str:
-    """What to do about a calibration of other settings: a refit from the stored raw values (seconds) when only the
-    reference data differ, else a calibration of these settings (``dascreen calibrate``: every reference molecule is
-    computed, hours) or the folder of a matching one."""
-    import shlex
-
-    if [k for k in FINGERPRINT_KEYS if found.get(k) != expected.get(k)] == ["reference_sha256"] and \
-            (model_dir / "reference_raw.csv").is_file():
-        return (f"the reference data in {data_path(reference)} differ from those it was fitted on: refit from its "
-                f"stored raw values in seconds (`dascreen calibrate --from-raw {shlex.quote(str(model_dir))} "
-                f"--reference {shlex.quote(str(data_path(reference)))} --install <a models folder of your own>`), "
-                "or give the reference folder it was fitted on")
+    """What to do about a calibration of other settings: when only the reference data differ, the reference folder
+    it was fitted on (:func:`reference_ways`), else a calibration of these settings (``dascreen calibrate``: every
+    reference molecule is computed, hours) or the folder of a matching one."""
+    if [k for k in FINGERPRINT_KEYS if found.get(k) != expected.get(k)] == ["reference_sha256"]:
+        return "; or ".join(reference_ways(model_dir, reference))
     return ("point calibration.models at a folder holding a calibration of these settings, or fit one with "
             "`dascreen calibrate` (it computes every reference molecule: hours)")
+
+
+def reference_ways(model_dir: str | Path, reference, install: str | None = None, run_with: str = "") -> list[str]:
+    """The ways on when the calibration in ``model_dir`` was fitted on other reference data than ``reference`` (the
+    run's ``calibration.reference``), first the one that keeps its numbers.
+
+    1. the reference data it was fitted on (:func:`fitted_reference`): ``--set calibration.reference=<folder>``,
+       or, for older model files that record only their hash, the folder of those data;
+    2. when ``reference`` holds the data of the shipped calibration and ``model_dir`` is another calibration: the
+       shipped calibration (leave ``calibration.models`` out); a refit of ``model_dir``'s raw values on these data
+       would be that calibration again under another name;
+    3. otherwise, when ``model_dir`` stores its raw values: a refit on ``reference`` in seconds, installed into
+       ``install`` (default: a models folder of one's own), ``run_with`` appended.
+
+    A lab that set ``calibration.models`` and forgot ``calibration.reference`` was offered a refit on the shipped
+    reference data installed under a custom name: the shipped numbers under a custom name (a second lab's audit).
+
+    Examples
+    --------
+    >>> from screen.config import Config
+    >>> shipped = find_models(Config.of({}))
+    >>> reference_ways(shipped, "models/reference")[0].startswith("use the reference data it was fitted on, in ")
+    True
+    """
+    import shlex
+
+    model_dir = Path(model_dir)
+    got = fitted_reference(model_dir)
+    ref = data_path(reference)
+    if got["folder"] is not None and got["current"]:
+        ways = [f"use the reference data it was fitted on, in {got['folder']}: add "
+                f"--set calibration.reference={shlex.quote(str(got['folder']))}"]
+    else:
+        ways = [f"use the reference data it was fitted on, {_fitted_on_text(got)}: set calibration.reference to "
+                "their folder"]
+    shipped = _shipped_reference()
+    shipped_models = shipped.parent / model_dir.name
+    if ref.is_dir() and (shipped_models / "ip.json").is_file() and model_dir.resolve() != shipped_models.resolve() \
+            and fitted_reference(shipped_models)["sha256"] == reference_hash(ref):
+        ways.append(f"keep the reference data in {ref}: leave calibration.models out, the shipped calibration "
+                    f"({shipped_models}) was fitted on them (the calibration in {model_dir} refitted on them would "
+                    "be that one again)")
+    elif (model_dir / "reference_raw.csv").is_file():
+        into = shlex.quote(install) if install else "<a models folder of your own>"
+        ways.append(f"keep the reference data in {ref}: refit the calibration in {model_dir} on them from its stored "
+                    f"raw values in seconds: dascreen calibrate --from-raw {shlex.quote(str(model_dir))} --reference "
+                    f"{shlex.quote(str(ref))} --install {into}{run_with}")
+    return ways
+
+
+def fingerprint_differences(found: dict, expected: dict, found_name: str = "the installed calibration",
+                            model_dir: str | Path | None = None, reference=None) -> list[str]:
+    """Every way a calibration's fingerprint ``found`` differs from ``expected`` that changes its numbers, in words.
+
+    Compared: the protocol id, every setting of the protocol and polymer sections (a setting a fingerprint lacks
+    counts at the value that reproduces the route from before it existed, else at its default, as
+    :func:`screen.preflight.calibration_differences` counts it), the engine version and the reference data.
+
+    Parameters
+    ----------
+    found, expected : dict
+        Fingerprints (:func:`fingerprint`); ``expected`` is this run's or this fit's.
+    found_name : str
+        What ``found`` belongs to, in the texts.
+    model_dir, reference : optional
+        The folder of ``found`` and the reference folder of ``expected``, to name the data in words.
+
+    Examples
+    --------
+    >>> from screen.config import Config
+    >>> base = fingerprint(Config.of({}), "models/reference")
+    >>> fingerprint_differences({**base, "polymer": {**base["polymer"], "fit_rms_tol_ev": 0.2}}, base)
+    ['polymer.fit_rms_tol_ev: 0.05 here, 0.2 in the installed calibration']
+    >>> fingerprint_differences(base, base)
+    []
+    """
+    from screen.config import defaults, flat_settings
+    from screen.options import EARLIER_ROUTE_VALUES
+
+    def settings(fp: dict) -> dict:
+        return {**flat_settings(fp.get("protocol") or {}), **flat_settings({"polymer": fp.get("polymer") or {}})}
+
+    fallback = {**flat_settings(defaults()), **flat_settings({"structures": EARLIER_ROUTE_VALUES["structures"]})}
+    out = []
+    if found.get("protocol_id") != expected.get("protocol_id"):
+        out.append(f"protocol {expected.get('protocol_id')} here, {found.get('protocol_id')} in {found_name}")
+    here, there = settings(expected), settings(found)
+    for key in sorted(set(here) | set(there)):
+        a, b = here.get(key, fallback.get(key)), there.get(key, fallback.get(key))
+        if a != b:
+            out.append(f"{key}: {a} here, {b} in {found_name}")
+    if found.get("engine_version") != expected.get("engine_version"):
+        out.append(f"engine version {expected.get('engine_version')} here, {found.get('engine_version')} in "
+                   f"{found_name}")
+    if found.get("reference_sha256") != expected.get("reference_sha256"):
+        if model_dir is not None:
+            theirs = _fitted_on_text(fitted_reference(model_dir))
+        else:
+            theirs = f"reference data of SHA-256 {str(found.get('reference_sha256'))[:12]}\u2026"
+        ours = f" (here: those in {data_path(reference)})" if reference is not None else ""
+        out.append(f"fitted on other reference data: {found_name} on {theirs}{ours}")
+    return out
 
 
 def _no_models_reason(cfg: Config) -> str:

@@ -27,13 +27,14 @@ True
 
 from __future__ import annotations
 
+import functools
 import hashlib
 
-from rdkit import Chem, rdBase
+from rdkit import Chem, RDLogger, rdBase
 
 from screen.errors import InputError
 
-__all__ = ["canonical_form", "canonical_smiles", "structure_key", "smiles_has", "KEY_RECIPE"]
+__all__ = ["canonical_form", "canonical_smiles", "canonical", "structure_key", "smiles_has", "KEY_RECIPE"]
 
 #: How :func:`structure_key` is computed (recorded in sidecar files).
 KEY_RECIPE = "m + sha1(canonical isomeric SMILES, UTF-8)[:16]"
@@ -104,6 +105,28 @@ def canonical_smiles(smiles: str) -> str:
     if mol is None:
         raise InputError(f"SMILES {text!r} cannot be read by RDKit")
     return canonical_form(mol)[0]
+
+
+@functools.lru_cache(maxsize=16384)  # the same reference structures are canonicalised on every read and join
+def canonical(smiles: str) -> str:
+    """Canonical SMILES with attachment points as bare ``*`` (map numbers and isotopes of dummy atoms dropped), ''
+    when RDKit cannot read it: the key that joins reference rows with computed values
+    (:mod:`screen.calibration.reference`) and finds a material given twice (:mod:`screen.calibration.refcheck`).
+
+    Examples
+    --------
+    >>> canonical("[*:1]c1ccc([*:2])s1"), canonical("C1CC")
+    ('*c1ccc(*)s1', '')
+    """
+    RDLogger.DisableLog("rdApp.*")
+    mol = Chem.MolFromSmiles(smiles)
+    if mol is None:
+        return ""
+    for atom in mol.GetAtoms():
+        if atom.GetAtomicNum() == 0:
+            atom.SetAtomMapNum(0)
+            atom.SetIsotope(0)
+    return Chem.MolToSmiles(mol)
 
 
 def structure_key(canonical_smiles: str) -> str:

@@ -197,7 +197,7 @@ def cmd_calibrate(args) -> int:
 
     import pandas as pd
 
-    from screen.calibrate import load_models, stats_table
+    from screen.calibrate import fingerprint, load_models, stats_table
     from screen.preflight import check_out_folder, check_out_writable, check_reference
 
     out = Path(args.out).resolve()
@@ -213,10 +213,13 @@ def cmd_calibrate(args) -> int:
     check_reference(cfg["calibration"]["reference"], args.reference, from_raw=bool(args.from_raw))  # before the work
     pid = cfg.protocol_id
     target = out / "models" / pid
+    expected = fingerprint(cfg, cfg["calibration"]["reference"])  # what the new models will record
+    _check_out_models(out, args.out, cfg, expected)  # --out <repository> replaced the shipped calibration in place
     if args.install is not None:  # a file as --install ended in a traceback after the fit (a careless user's audit)
         _check_install_folder(args.install, pid)
     if args.install and not args.replace_installed:  # refused before anything is computed
-        _check_install(Path(args.install).expanduser().resolve() / pid, cfg, args.install)
+        _check_install(Path(args.install).expanduser().resolve() / pid, cfg, args.install, expected)
+    mark = _is_calibrate_out(out) or not (target / "ip.json").is_file()  # not a calibration installed there
     new = _made_out_folder(out, args.out)  # --out /sys/x gave a traceback
     if args.from_raw:
         from screen.refit import refit_from_raw
@@ -231,15 +234,20 @@ def cmd_calibrate(args) -> int:
         if rc != 0:
             print(f"dascreen: calibration stopped with exit code {rc}; see {out}/logs/", file=sys.stderr)
             return EXIT_ERROR
+    if mark:
+        _mark_calibrate_out(out, target)
     models = load_models(target, cfg)
     pd.set_option("display.width", 200)
     print(f"\ncalibration models for protocol {pid} (reference: {cfg['calibration']['reference']})")
     print(stats_table(models).to_string(index=False))
+    _print_beside_shipped(models, cfg, target)
     failures = pd.read_csv(target / "reference_failures.csv")
     if len(failures):
         print(f"{len(failures)} reference molecule(s) could not be computed: see {target / 'reference_failures.csv'}")
     if args.install:
         dest = Path(args.install).expanduser().resolve() / pid
+        if not args.replace_installed:  # same settings and data, yet other numbers (other raw values)
+            _check_install_numbers(dest, target, models, cfg, args.install)
         staged = dest.with_name(f".{pid}.installing")
         try:  # copied beside it first: a failed copy leaves the installed calibration as it was
             if staged.exists():
@@ -257,6 +265,76 @@ def cmd_calibrate(args) -> int:
         print(f"dascreen: models copied to {dest}")
     print(f"dascreen: models in {target}")
     return EXIT_OK
+
+
+#: the file that marks an ``--out`` folder as the work folder of ``dascreen calibrate`` (its ``models/<protocol-id>``
+#: is that command's output, which a later calibration there may replace; :func:`_check_out_models`)
+CALIBRATE_MARK = ".dascreen-calibrate.json"
+
+
+def _mark_calibrate_out(out: Path, target: Path) -> None:
+    """Record that ``out`` is the work folder of ``dascreen calibrate`` (:data:`CALIBRATE_MARK`)."""
+    from screen.io import write_json
+
+    try:
+        write_json({"written_by": "dascreen calibrate", "models": str(target)}, out / CALIBRATE_MARK)
+    except OSError:
+        pass  # only a later calibration into this --out is checked more strictly without it
+
+
+def _is_calibrate_out(out: Path) -> bool:
+    """True for an ``--out`` that an earlier ``dascreen calibrate`` (:data:`CALIBRATE_MARK`) or a dascreen run or
+    calibration workflow (``config.yaml`` and ``logs/``, :func:`screen.launch.run_workflow`) worked in."""
+    return (out / CALIBRATE_MARK).is_file() or ((out / "config.yaml").is_file() and (out / "logs").is_dir())
+
+
+def _same_folder(a: Path, b: Path) -> bool:
+    try:
+        return a.exists() and b.exists() and os.path.samefile(a, b)
+    except OSError:
+        return False
+
+
+def _check_out_models(out: Path, given: str, cfg: Config, expected: dict) -> None:
+    """Refuse an ``--out`` whose ``models/<protocol-id>`` is an installed calibration, before anything is computed.
+
+    ``dascreen calibrate --out <repository>`` fitted straight into ``<repository>/models/<protocol-id>``: the shipped
+    calibration was replaced in place, past the check of ``--install`` (a second lab's audit). Refused: the shipped
+    calibration, always; any other calibration there that was fitted with other settings or data
+    (:func:`screen.calibrate.fingerprint_differences`), unless ``--out`` is the work folder of an earlier
+    calibration (:func:`_is_calibrate_out`), whose output a new one replaces as before.
+
+    Raises
+    ------
+    ConfigError
+        Naming the folder and the fix: a new ``--out``, and ``--install DIR`` to install (exit code 2).
+    """
+    from screen.calibrate import fingerprint_differences
+    from screen.config import PACKAGE_ROOT, data_path
+    from screen.io import read_json
+
+    pid = cfg.protocol_id
+    target = out / "models" / pid
+    if not (target / "ip.json").is_file():
+        return
+    fix = ("choose a new --out for the work (a folder of its own, e.g. --out results/mycal) and add --install DIR to "
+           "copy the models where runs find them (a folder of your own; --install's check keeps an installed "
+           "calibration unless --replace-installed)")
+    shipped = PACKAGE_ROOT / "models" / pid
+    if _same_folder(target, shipped) or _same_folder(target, data_path("models") / pid):
+        raise ConfigError(f"--out {given}: {target} is the shipped calibration of protocol {pid}, which "
+                          f"calibrating into --out {given} would replace in place; {fix}")
+    if _is_calibrate_out(out):
+        return
+    try:
+        found = read_json(target / "ip.json").get("fingerprint") or {}
+    except (OSError, ValueError, AttributeError):
+        found = {}
+    diffs = fingerprint_differences(found, expected, "the calibration there", target, cfg["calibration"]["reference"])
+    if diffs:
+        raise ConfigError(f"--out {given}: {target} holds an installed calibration of protocol {pid}, not the work of "
+                          f"an earlier dascreen calibrate, fitted with other settings or data ({'; '.join(diffs)}), "
+                          f"which calibrating into --out {given} would replace in place; {fix}")
 
 
 def _check_install_folder(given: str, pid: str | None) -> None:
@@ -295,27 +373,120 @@ def _check_install_folder(given: str, pid: str | None) -> None:
         raise ConfigError(f"--install {given}: {folder / pid} is a file, not a folder; move it away or {about}")
 
 
-def _check_install(dest: Path, cfg: Config, given: str) -> None:
-    """Refuse to install over a calibration of this protocol fitted on other reference data.
+def _check_install(dest: Path, cfg: Config, given: str, expected: dict | None = None) -> None:
+    """Refuse to install over a calibration of this protocol fitted with other settings or data.
 
     Installing into the shipped ``models`` folder with your own reference data replaced the shipped calibration,
-    and every default run was then refused with a message about the reference data (a new user's audit).
+    and every default run was then refused with a message about the reference data (a new user's audit); with the
+    same reference data but ``--set polymer.fit_rms_tol_ev=0.2`` it was replaced without a word, as only the
+    reference hash was compared (a second lab's audit). Every setting and datum of the fingerprint counts
+    (:func:`screen.calibrate.fingerprint_differences`); ``--replace-installed`` replaces deliberately, in the words of
+    ``dascreen dyecell --refit``.
+
+    ``expected``: the fingerprint of the new models (default: :func:`screen.calibrate.fingerprint` of ``cfg``).
     """
-    from screen.calibration.reference import reference_hash
+    from screen.calibrate import fingerprint, fingerprint_differences
     from screen.io import read_json
 
     try:
         found = read_json(dest / "ip.json").get("fingerprint") or {}
     except (OSError, ValueError, AttributeError):
         return  # nothing installed there yet
-    ref = Path(cfg["calibration"]["reference"])
-    if found.get("reference_sha256") in (None, reference_hash(ref)):
+    if not isinstance(found, dict) or not found:
         return
-    raise ConfigError(
-        f"--install {given}: {dest} holds this protocol's calibration fitted on other reference data; installing "
-        f"the one fitted on {ref} would replace it, and runs that expect it would be refused. Install into a folder "
-        f"of its own (e.g. --install {Path(given).name}-mine, then run with --set calibration.models=<that folder> "
-        f"--set calibration.reference={ref}) or pass --replace-installed")
+    ref = cfg["calibration"]["reference"]
+    expected = expected or fingerprint(cfg, ref)
+    diffs = fingerprint_differences(found, expected, "the installed one", dest, ref)
+    if diffs:
+        raise ConfigError(_replace_text(given, dest, cfg, "; ".join(diffs)))
+
+
+def _replace_text(given: str, dest: Path, cfg: Config, why: str) -> str:
+    """The refusal of an ``--install`` over an installed calibration, in the words of ``dascreen dyecell --refit``
+    (:func:`screen.dyecell.cli._check_refit`)."""
+    import shlex
+
+    from screen.config import PACKAGE_ROOT, calibration_set_args, data_path
+
+    shipped = _same_folder(dest.parent, PACKAGE_ROOT / "models") or _same_folder(dest.parent, data_path("models"))
+    users = ("every run with the default calibration.models" if shipped else
+             f"every run with --set calibration.models={shlex.quote(str(dest.parent))}")
+    own = f"{Path(given).name or 'models'}-mine"
+    ref = cfg["calibration"]["reference"]
+    run = [f"--set calibration.models={own}"]
+    if not _same_folder(Path(ref), PACKAGE_ROOT / "models" / "reference"):
+        run.append(f"--set calibration.reference={shlex.quote(str(ref))}")
+    run += calibration_set_args(cfg)
+    return (f"--install {given} would replace the calibration of protocol {cfg.protocol_id} installed in {dest}, "
+            f"which {users} of this protocol uses; it differs from this one in what changes the numbers ({why}). "
+            f"Pass --replace-installed to replace it, or install into a folder of your own (--install {own}, then "
+            f"run with {' '.join(run)})")
+
+
+def _check_install_numbers(dest: Path, target: Path, models: dict, cfg: Config, given: str) -> None:
+    """After the fit: refuse to install over a calibration of the same settings and data whose numbers differ.
+
+    The fingerprint (:func:`_check_install`) does not cover the raw values a refit reads (``--from-raw`` of another
+    computation): models of equal fingerprints but other coefficients or statistics are not installed over each
+    other without ``--replace-installed``. The new models stay in ``target``.
+    """
+    from screen.calibrate import MODEL_NAMES
+    from screen.io import read_json
+
+    if not (dest / "ip.json").is_file():
+        return
+    changed = []
+    for name in MODEL_NAMES:
+        try:
+            old = read_json(dest / f"{name}.json")
+        except (OSError, ValueError):
+            old = None
+        if not isinstance(old, dict) or _numbers(old) != _numbers(models[name]):
+            changed.append(name)
+    if changed:
+        raise ConfigError(_replace_text(given, dest, cfg, "same settings and reference data, but the models "
+                                        f"{', '.join(changed)} have other numbers: fitted on other raw values")
+                          + f"; the new models stay in {target}")
+
+
+def _numbers(model: dict) -> dict:
+    """A model record without its fingerprint: what its numbers depend on and are."""
+    return {k: v for k, v in model.items() if k != "fingerprint"}
+
+
+def _print_beside_shipped(models: dict, cfg: Config, target: Path) -> None:
+    """The new leave-one-out figures beside those of the shipped calibration of the same protocol, one line per model:
+    how much a lab's own reference rows (or settings) moved the fit (a second lab's audit)."""
+    import math
+
+    from screen.calibrate import CalibrationError, MODEL_NAMES, fingerprint_differences, load_models
+    from screen.config import PACKAGE_ROOT
+
+    shipped = PACKAGE_ROOT / "models" / cfg.protocol_id
+    if not (shipped / "ip.json").is_file() or _same_folder(shipped, target):
+        return
+    try:
+        old = load_models(shipped, check=False)
+    except (CalibrationError, OSError, ValueError):
+        return
+    same = all(_numbers(models[n]) == _numbers(old[n]) for n in MODEL_NAMES)
+    if same:
+        print(f"dascreen: these are the numbers of the shipped calibration of this protocol ({shipped})")
+        return
+    diffs = fingerprint_differences(old[MODEL_NAMES[0]].get("fingerprint") or {},
+                                    models[MODEL_NAMES[0]].get("fingerprint") or {}, "the shipped one", shipped,
+                                    cfg["calibration"]["reference"])
+
+    def ev(value) -> str:
+        return "-" if value is None or not math.isfinite(float(value)) else f"{float(value):.3f}"
+
+    print(f"beside the shipped calibration of this protocol ({shipped}"
+          + (f"; {'; '.join(diffs)}" if diffs else "") + "): leave-one-out and grouped MAE in eV, here vs shipped")
+    for name in MODEL_NAMES:
+        a, b = models[name], old[name]
+        change = round(float(a["loo_mae_ev"]) - float(b["loo_mae_ev"]), 3) or 0.0  # no "-0.000"
+        print(f"  {name:>12s}: n {a['n']} vs {b['n']}; LOO MAE {ev(a['loo_mae_ev'])} vs {ev(b['loo_mae_ev'])} "
+              f"({change:+.3f}); grouped MAE {ev(a.get('grouped_mae_ev'))} vs {ev(b.get('grouped_mae_ev'))}")
 
 
 def _partner_arg(spec: str | None) -> str | None:
@@ -991,21 +1162,27 @@ def _add_calibrate(sub) -> None:
     p = sub.add_parser("calibrate", help="fit calibration models on the reference sets and print statistics",
                        description="Compute the reference molecules with this run's protocol (same conformer "
                                    "route, engine and method as the candidates), fit the linear models and print "
-                                   "n, slope, intercept, R², leave-one-out MAE/RMSE, max error and σ.")
+                                   "n, slope, intercept, R², leave-one-out MAE/RMSE, max error and σ, and beside "
+                                   "them the leave-one-out and grouped MAE of the shipped calibration of the same "
+                                   "protocol, one line per model.")
     p.add_argument("--config", default=None, help="YAML config file (protocol settings are what matter)")
     p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
                    help="override one config field, e.g. --set electronic.method=IPEA1-xTB (repeatable)")
     p.add_argument("--reference", default=None,
                    help="reference folder with ip_gas.csv, ea_gas.csv, gap_optical.csv, levels_film.csv "
                         "(default: the shipped models/reference); e.g. a copy with your own measured film levels")
-    p.add_argument("--out", default="results/calibration", help="work and output folder")
+    p.add_argument("--out", default="results/calibration",
+                   help="work and output folder (the models go to OUT/models/<protocol-id>/); refused when that "
+                        "folder is the shipped calibration, or an installed one fitted with other settings or data "
+                        "(use --install for that)")
     p.add_argument("--cores", type=_at_least_one, default=os.cpu_count() or 1, help="CPU cores to use, 1 or more")
     p.add_argument("--install", default=None, metavar="MODELS_DIR",
                    help="also copy the fitted models to MODELS_DIR/<protocol-id>/ (e.g. models) so later runs "
                         "use them without refitting; refused when that folder holds this protocol's calibration "
-                        "fitted on other reference data (see --replace-installed)")
+                        "fitted with other settings or data: other reference data, polymer or protocol settings, "
+                        "engine version, or other numbers from other raw values (see --replace-installed)")
     p.add_argument("--replace-installed", action="store_true",
-                   help="with --install: replace a calibration of this protocol fitted on other reference data")
+                   help="with --install: replace a calibration of this protocol fitted with other settings or data")
     p.add_argument("--from-raw", action="append", default=[], metavar="FOLDER",
                    help="refit from stored raw values instead of computing: a model folder (models/<protocol-id>, "
                         "its reference_raw.csv) or a run folder whose levels.csv holds new reference structures "

@@ -37,6 +37,7 @@ screen.errors.InputError: my_cv.csv: line 2 (id 'd1'), column homo_ev = 5.3: HOM
 from __future__ import annotations
 
 import math
+import re
 
 import numpy as np
 import pandas as pd
@@ -44,7 +45,8 @@ import pandas as pd
 from screen.errors import InputError
 from screen.io import text_cells
 
-__all__ = ["check_levels", "check_partner", "row_problems", "sigma_problem", "inconsistent_rows", "quoted",
+__all__ = ["check_levels", "check_partner", "raise_problems", "row_problems", "sigma_problem", "inconsistent_rows", "quoted",
+           "scoring_calibration",
            "GAP_EXCESS_TOL_EV",
            "GAP_DEFICIT_MAX_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV", "QUOTE_MAX", "SIGMA_MAX_EV", "HOMO_MAX_EV",
            "FILM_LUMO_MAX_EV", "HARTREE_GAP_MAX_EV"]
@@ -91,8 +93,61 @@ _SIGMAS = ("homo_sigma_ev", "lumo_sigma_ev", "gap_opt_sigma_ev")
 QUOTE_MAX = 60
 
 
+#: accepted E₀₋₀ of a dye [eV]: sensitisers absorb in the visible and near infrared, typically 1.2–3.5 eV
+#: (common practice); 1.0 eV = 1240 nm, 4.0 eV = 310 nm (the AM1.5G spectrum ends near 280 nm)
+E00_RANGE_EV = (1.0, 4.0)
+
+
 def _fmt(x: float) -> str:
     return f"{x:.6g}"
+
+
+def mv_hint(value: float, unit: str = "V") -> str | None:
+    """The likely slip when a value in V or eV is 100 or more: millivolts or millielectronvolts (None otherwise).
+
+    Examples
+    --------
+    >>> mv_hint(-5350, "eV"), mv_hint(0.5)
+    ('-5350 looks like millielectronvolts: write -5.35 eV', None)
+    """
+    if abs(value) >= 100.0:
+        name = "millivolts" if unit == "V" else "millielectronvolts"
+        return f"{_fmt(value)} looks like {name}: write {value / 1000:.3g} {unit}"
+    return None
+
+
+def e00_problem(value: float) -> str | None:
+    """What is wrong with a dye's E₀₋₀ [eV] (None if it is plausible; NaN is not checked here).
+
+    Examples
+    --------
+    >>> e00_problem(2.1) is None, e00_problem(-2.1)
+    (True, 'E00 is a positive excitation energy in eV (typically 1.2-3.5 eV for a sensitiser); write 2.1')
+    """
+    lo, hi = E00_RANGE_EV
+    if not math.isfinite(value) or lo <= value <= hi:
+        return None
+    if value <= 0 and lo <= -value <= hi:
+        return f"E00 is a positive excitation energy in eV (typically 1.2-3.5 eV for a sensitiser); write {_fmt(-value)}"
+    if value >= 100.0:
+        return (f"E00 must be in eV; {_fmt(value)} looks like a wavelength in nm: write 1239.84/{_fmt(value)} = "
+                f"{1239.84 / value:.3g} eV")
+    return (f"E00 must be in eV and lie in {lo:g}-{hi:g} eV (typically 1.2-3.5 eV for a sensitiser, "
+            f"E00 = 1239.84/lambda[nm]); check the units")
+
+
+def decimal_comma_hint(text: str) -> str | None:
+    """The number a text written with a decimal comma means (``"0,56"`` → ``"0.56"``), None for any other text.
+
+    Examples
+    --------
+    >>> decimal_comma_hint("-0,5"), decimal_comma_hint("abc")
+    ('-0.5', None)
+    """
+    text = str(text).strip()
+    if not re.fullmatch(r"[+\-\u2212]?\d*,\d+", text):
+        return None
+    return text.replace(",", ".").replace("\u2212", "-")
 
 
 def quoted(value, limit: int = QUOTE_MAX) -> str:
@@ -237,13 +292,15 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
     return out
 
 
-def sigma_problem(val: float, computed: bool = False) -> str:
+def sigma_problem(val: float, computed: bool = False, calibration: str = "") -> str:
     """Why a one-σ uncertainty [eV] cannot be used ('' if it can; NaN is empty = 0).
 
     A typed σ lies in 0–:data:`SIGMA_MAX_EV`. A run's own σ (``computed``) may exceed that far from the
     calibration's reference rows (the gas-scale EA model's σ is about 1.07 eV at zero similarity), so only a
     negative or non-finite one and one from :data:`_SIGMA_MEV_FROM` up (no calibration gives 10 eV; a σ in meV
-    does) are refused there.
+    does) are refused there. Such a σ comes from a broken calibration (``calibration``: its folder, when known)
+    or a hand edit: the message names the calibration first (a custom-calibration audit: "write 0.653 eV" was the
+    only advice for a value the calibration had computed).
 
     Examples
     --------
@@ -251,21 +308,50 @@ def sigma_problem(val: float, computed: bool = False) -> str:
     ('', '', '')
     >>> sigma_problem(1.07)
     'an uncertainty must lie in 0-1 eV (measured values carry about 0.01-0.1 eV); give the one-sigma uncertainty in eV, e.g. 0.1'
-    >>> print(sigma_problem(50.0, computed=True))
-    a σ of 50 eV is no calibration's (a run's own σ stays below 10 eV); 50 looks like millielectronvolts: write 0.05 eV
+    >>> print(sigma_problem(50.0, computed=True, calibration="/lab/models/p-1"))  # doctest: +NORMALIZE_WHITESPACE
+    a σ of 50 eV is no calibration's (a run's own σ stays below 10 eV): the calibration in /lab/models/p-1 gave an
+    implausible value; refit it (`dascreen calibrate`, reference levels in eV) or run with the shipped calibration
+    (edited by hand? 50 looks like millielectronvolts: 0.05 eV)
     """
     if math.isnan(val):
         return ""
     if not math.isfinite(val) or val < 0:
         return "an uncertainty must be a finite number >= 0 (empty = 0)"
-    mev = f"{val:g} looks like millielectronvolts: write {val / 1000:.3g} eV"
     if computed:
-        return (f"a σ of {val:g} eV is no calibration's (a run's own σ stays below {_SIGMA_MEV_FROM:g} eV); {mev}"
-                if val >= _SIGMA_MEV_FROM else "")
+        if val < _SIGMA_MEV_FROM:
+            return ""
+        which = f"the calibration in {calibration}" if calibration else "the calibration that scored these levels"
+        return (f"a σ of {val:g} eV is no calibration's (a run's own σ stays below {_SIGMA_MEV_FROM:g} eV): {which} "
+                "gave an implausible value; refit it (`dascreen calibrate`, reference levels in eV) or run with the "
+                f"shipped calibration (edited by hand? {val:g} looks like millielectronvolts: {val / 1000:.3g} eV)")
     if val > SIGMA_MAX_EV:
-        hint = mev if val >= _SIGMA_MEV_FROM else "give the one-sigma uncertainty in eV, e.g. 0.1"
+        hint = (f"{val:g} looks like millielectronvolts: write {val / 1000:.3g} eV" if val >= _SIGMA_MEV_FROM
+                else "give the one-sigma uncertainty in eV, e.g. 0.1")
         return f"an uncertainty must lie in 0-{SIGMA_MAX_EV:g} eV (measured values carry about 0.01-0.1 eV); {hint}"
     return ""
+
+
+def scoring_calibration(source) -> str:
+    """The calibration folder a run's levels file ``source`` records in its sidecar (``<source>.meta.json``:
+    ``calibration_models.folder``, else ``models``); '' when there is none to read.
+
+    Examples
+    --------
+    >>> scoring_calibration("/no/such/levels.csv")
+    ''
+    """
+    import json
+    from pathlib import Path
+
+    try:
+        meta = json.loads(Path(f"{source}.meta.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return ""
+    if not isinstance(meta, dict):
+        return ""
+    cal = meta.get("calibration_models")
+    folder = cal.get("folder") if isinstance(cal, dict) else None
+    return str(folder or meta.get("models") or "")
 
 
 def _number(frame: pd.DataFrame, col: str, source: str, ids, finite: bool = False) -> np.ndarray:
@@ -332,7 +418,8 @@ def _line(frame: pd.DataFrame, i: int) -> int:
     return int(idx) + 2 if isinstance(idx, (int, np.integer)) else i + 2
 
 
-def check_levels(frame: pd.DataFrame, source: str = "levels table", computed=None) -> None:
+def check_levels(frame: pd.DataFrame, source: str = "levels table", computed=None, calibration: str | None = None
+                 ) -> None:
     """Refuse a levels table with impossible levels (see the module docstring).
 
     Parameters
@@ -349,6 +436,9 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table", computed=Non
         ``levels_inconsistent``, not viable, instead of refusing the run's output), a σ above
         :data:`SIGMA_MAX_EV` (:func:`sigma_problem`), a role ``dye`` of a mixed batch (or another role the
         ranking flags ``role_invalid``).
+    calibration : str, optional
+        The calibration folder that scored the computed rows, named in the message of a σ no calibration gives
+        (default: the one ``source``'s sidecar records, :func:`scoring_calibration`).
 
     Raises
     ------
@@ -365,7 +455,7 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table", computed=Non
     ...
     screen.errors.InputError: levels.csv: 2 problems:
       line 3, column id = 'a': the same id as line 2; give every row its own id (it names the row in the ranking)
-      line 3 (id 'a'), column homo_sigma_ev = 50: a σ of 50 eV is no calibration's (a run's own σ stays below 10 eV); 50 looks like millielectronvolts: write 0.05 eV
+      line 3 (id 'a'), column homo_sigma_ev = 50: a σ of 50 eV is no calibration's (a run's own σ stays below 10 eV): the calibration that scored these levels gave an implausible value; refit it (`dascreen calibrate`, reference levels in eV) or run with the shipped calibration (edited by hand? 50 looks like millielectronvolts: 0.05 eV)
     """
     ids = (frame["id"].pipe(text_cells).to_numpy() if "id" in frame
            else np.array([str(i) for i in range(len(frame))]))
@@ -379,17 +469,40 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table", computed=Non
     for i in range(len(frame)):
         if computed[i]:  # levels outside the calibration's domain: the ranking's flag levels_inconsistent
             problems = [(c, s[i], sigma_problem(s[i], computed=True)) for c, s in sig.items()]
+            if any(p[2] for p in problems):  # a σ no calibration gives: name the one that scored the file
+                calibration = scoring_calibration(source) if calibration is None else calibration
+                problems = [(c, v, sigma_problem(v, computed=True, calibration=calibration)) for c, v, _ in problems]
             problems = [p for p in problems if p[2]]
         else:
             problems = row_problems(homo[i], lumo[i], gap[i], scale[i], {c: s[i] for c, s in sig.items()})
         for col, val, msg in problems:
             found.append((i, f"line {_line(frame, i)} (id {quoted(ids[i])}), column {col} = {val:g}: {msg}"))
-    problems = [text for _, text in sorted(found, key=lambda p: p[0])]
-    if problems:
-        more = f" (first {_MAX_LISTED} shown)" if len(problems) > _MAX_LISTED else ""
-        head = problems[0] if len(problems) == 1 else f"{len(problems)} problems{more}:\n  " + "\n  ".join(
-            problems[:_MAX_LISTED])
-        raise InputError(f"{source}: {head}")
+    raise_problems(source, [text for _, text in sorted(found, key=lambda p: p[0])])
+
+
+def raise_problems(where: str, problems: list[str]) -> None:
+    """Raise one :class:`InputError` for the problems of a file: ``WHERE: the problem``, or ``WHERE: N problems
+    (first 5 shown):`` and one problem a line (:func:`screen.launch.failure_cause` reads that head); nothing when
+    ``problems`` is empty. The one message of the levels, dye and reference-file checks.
+
+    Examples
+    --------
+    >>> raise_problems("f.csv", [f"line {n}: bad" for n in range(2, 9)])
+    Traceback (most recent call last):
+    ...
+    screen.errors.InputError: f.csv: 7 problems (first 5 shown):
+      line 2: bad
+      line 3: bad
+      line 4: bad
+      line 5: bad
+      line 6: bad
+    """
+    if not problems:
+        return
+    more = f" (first {_MAX_LISTED} shown)" if len(problems) > _MAX_LISTED else ""
+    head = problems[0] if len(problems) == 1 else f"{len(problems)} problems{more}:\n  " + "\n  ".join(
+        problems[:_MAX_LISTED])
+    raise InputError(f"{where}: {head}")
 
 
 def inconsistent_rows(frame: pd.DataFrame) -> np.ndarray:

@@ -1109,9 +1109,10 @@ class CalibrationDifference:
         """The difference in words, e.g. ``polymer.n_max: 2 here, 4 in the shipped calibration``."""
         if self.field == "engine_version":
             return f"{engine} version {self.here} here, {self.shipped} in the shipped calibration"
-        if self.field == "calibration.reference":
-            return (f"calibration.reference: the reference data in {self.here} are not the ones the shipped "
-                    "calibration was fitted on")
+        if self.field == "calibration.reference":  # shipped: where the calibration's data are, in words
+            fitted = f" ({self.shipped})" if self.shipped else ""
+            return (f"calibration.reference: the reference data in {self.here} are not the ones the calibration "
+                    f"was fitted on{fitted}")
         default = "" if self.chosen else " (the default)"
         return f"{self.field}: {_show(self.here)}{default} here, {_show(self.shipped)} in the shipped calibration"
 
@@ -1169,7 +1170,10 @@ def calibration_differences(cfg) -> tuple[Path | None, list[CalibrationDifferenc
             diffs.append(CalibrationDifference("engine_version", expected["engine_version"],
                                                found.get("engine_version")))
         if found.get("reference_sha256") != expected["reference_sha256"]:
-            diffs.append(CalibrationDifference("calibration.reference", cfg["calibration"]["reference"], None))
+            from screen.calibrate import _fitted_on_text, fitted_reference
+
+            diffs.append(CalibrationDifference("calibration.reference", cfg["calibration"]["reference"],
+                                               _fitted_on_text(fitted_reference(folder))))
         # closest: fewest differences in settings the run chose (not at their defaults), then fewest in all: with
         # `--set structures.geometry=xtb` the xTB-geometry calibration (one default differs), not the default one
         rank = (found.get("protocol_id") != expected["protocol_id"], sum(d.chosen for d in diffs), len(diffs))
@@ -1235,7 +1239,11 @@ def _calibration_gap(cfg, out=None) -> tuple[str, Path | None, list[CalibrationD
     elif not diffs:
         why = f"{folder} has this run's settings but its model files are incomplete or unreadable"
     elif folder.name == pid:
-        why = f"the shipped calibration of protocol {pid} was fitted with other settings: {listed}"
+        from screen.config import PACKAGE_ROOT
+
+        whose = ("the shipped calibration" if folder.resolve() == (PACKAGE_ROOT / "models" / pid).resolve() else
+                 f"the calibration in {folder}")
+        why = f"{whose} of protocol {pid} was fitted with other settings: {listed}"
     else:
         why = f"protocol {pid} has no shipped calibration; the closest, {folder.name}, differs: {listed}"
     return (f"no calibration in {models} matches this run's settings ({why}). Calibrating them computes the "
@@ -1331,13 +1339,17 @@ def check_calibration(cfg, out, config_file=None) -> None:
     if any(d.field == "engine_version" for d in diffs):
         shipped = next(d.shipped for d in diffs if d.field == "engine_version")
         ways.append(f"use the shipped calibration: install {cfg['electronic']['engine']} {shipped}.x")
-    if folder is not None and folder.name == cfg.protocol_id and not settings and \
-            any(d.field == "calibration.reference" for d in diffs):
-        ways.append(f"refit from the stored raw values in seconds: dascreen calibrate --from-raw "
-                    f"{shlex.quote(str(folder))} --reference {shlex.quote(str(cfg['calibration']['reference']))} "
-                    f"--install {shlex.quote(str(_install_folder(cfg)))}{_run_with(cfg)}")
-    ways.append(f"calibrate these settings once, then run again: {_calibrate_command(cfg, diffs, config_file)}"
-                f"{_run_with(cfg)}")
+    reference_only = folder is not None and folder.name == cfg.protocol_id and [d.field for d in diffs] == [
+        "calibration.reference"]
+    if reference_only:  # the reference data it was fitted on first; no refit that gives the shipped numbers again
+        from screen.calibrate import reference_ways
+
+        found = reference_ways(folder, cfg["calibration"]["reference"], install=str(_install_folder(cfg)),
+                               run_with=_run_with(cfg))
+        ways += found
+    if not (reference_only and any("leave calibration.models out" in w for w in found)):
+        ways.append(f"calibrate these settings once, then run again: {_calibrate_command(cfg, diffs, config_file)}"
+                    f"{_run_with(cfg)}")
     ways.append("calibrate within this run: add --set calibration.refit=always")
     stop = "calibration.refit is 'never'" if refit == "never" else "nothing was computed"
     raise ConfigError(f"{text}; {stop}. Either\n" + "\n".join(f"  - {w}" for w in ways))

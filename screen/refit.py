@@ -163,6 +163,23 @@ def missing_structures(sets: dict[str, pd.DataFrame], raw: pd.DataFrame) -> pd.D
     return wanted[keep].reset_index(drop=True)
 
 
+def _refuse_unscreenable(missing: pd.DataFrame, cfg: Config) -> None:
+    """Refuse reference structures that a run with these settings rejects, naming each one's reason: "compute them
+    with `dascreen run`" sent a charged molecule's row (``C[n+]1ccccc1``) to a run that rejects it."""
+    if not len(missing):
+        return
+    from screen.prepare import options_from_config, validate
+
+    checked = validate(pd.DataFrame({"id": missing["name"].astype(str), "smiles": missing["smiles"].astype(str)}),
+                       options_from_config(cfg)[0])
+    bad = checked[checked["status"].ne("ok")]
+    if len(bad):
+        said = "; ".join(f"{row.id} ({row.smiles_input}): {row.error}" for row in bad.head(3).itertuples())
+        more = f" (and {len(bad) - 3} more)" if len(bad) > 3 else ""
+        raise ConfigError(f"--from-raw: {len(bad)} reference structure(s) cannot be computed with these settings: "
+                          f"{said}{more}; correct or remove those rows of the reference files")
+
+
 def refit_from_raw(config, sources, out_root: str | Path) -> tuple[Path, pd.DataFrame]:
     """Fit every calibration model on the reference data and stored raw values.
 
@@ -202,6 +219,7 @@ def refit_from_raw(config, sources, out_root: str | Path) -> tuple[Path, pd.Data
     computed["_can"] = [canonical(s) for s in computed["smiles"].astype(str)]
     computed = computed.drop_duplicates("_can").drop(columns="_can").reset_index(drop=True)
     missing = missing_structures(sets, computed)
+    _refuse_unscreenable(missing, cfg)
     if len(missing):
         Path(out_root).mkdir(parents=True, exist_ok=True)
         listing = Path(out_root) / "missing_reference.csv"

@@ -40,6 +40,16 @@ def raw_levels(smiles: str, engine: str = "tblite", method: str = "GFN2-xTB") ->
     return vertical_levels(z, pos, make_engine(engine, method))
 
 
+@pytest.fixture
+def no_workflow(monkeypatch):
+    """A refusal must come before the workflow starts: starting the workflow engine fails the test."""
+    def started(*args, **kwargs):
+        pytest.fail("the workflow was started; the command line should have been refused first")
+
+    monkeypatch.setattr("screen.launch.run_workflow", started)
+    monkeypatch.setattr("screen.cli.run_workflow", started)
+
+
 @pytest.fixture(scope="session")
 def data_dir() -> Path:
     return DATA

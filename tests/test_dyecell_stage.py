@@ -918,3 +918,29 @@ def test_a_not_viable_dyes_reason_is_said_once_and_mediator_comparisons_are_caut
     both = _flags_html("no_anchor;outside_calibration", {}, said=True)
     assert both.count("<li") == 1 and "no anchoring group" not in both
     assert "favour them" in _caution({})
+
+
+def test_stage_refuses_dye_models_fitted_on_other_reference_data(tmp_path):
+    # a lab's calibration.reference with its own dyes.csv was ranked with the dye models of the shipped dyes.csv
+    # without a word; the command now passes its calibration.reference and the models must have been fitted on it
+    folder = _install(tmp_path)
+    levels = _levels(tmp_path, _demo_rows())
+    fitted_on = tmp_path / "dyes_ref.csv"  # the file _install fitted the models on
+    build_dye_table(levels, tmp_path / "out", models_root=folder.parent, reference=fitted_on)
+    other = tmp_path / "lab"
+    other.mkdir()
+    (other / "dyes.csv").write_text(fitted_on.read_text() + "lab1,OC(=O)c1ccccc1,,,1.2,2.5,\n")
+    with pytest.raises(ConfigError, match=r"was fitted on other reference data than .*lab/dyes.csv; fit dye models "
+                                          r"on it into a folder of your own \(`dascreen dyecell --refit --models DIR`"):
+        run_dyecell(levels, tmp_path / "out2", models_root=folder.parent, reference=other,
+                    settings={"n_samples": 50})
+
+
+def test_the_command_holds_dye_models_to_a_reference_folder_of_the_users_own_only(tmp_path):
+    # with the shipped reference data any dye models may be ranked with (--models DIR of a test or a lab); with a
+    # reference folder of one's own the models must have been fitted on its dyes.csv
+    from screen.config import Config, data_path
+    from screen.dyecell.cli import _own_reference
+
+    assert _own_reference(Config.of({}).with_paths(data_path)) is None
+    assert _own_reference(Config.of({"calibration": {"reference": str(tmp_path)}})) == tmp_path

@@ -41,10 +41,11 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from rdkit import Chem, RDLogger
+from rdkit import Chem
 
+from screen.calibration.refcheck import DERIVED_LEVELS, check_reference_set
+from screen.chem import canonical
 from screen.constants import FC_FILM_EV
-from screen.errors import InputError
 from screen.io import read_csv_checked
 
 __all__ = ["FILES", "REQUIRED_SETS", "FC_REFERENCE_EV", "read_reference", "reference_inputs", "reference_files", "reference_hash",
@@ -62,8 +63,6 @@ _NEEDED = {"ip": ["name", "smiles", "value_ev", "source"], "ea": ["name", "smile
 REQUIRED_SETS = ("ip", "ea", "gap_opt", "film")
 #: ferrocene/ferrocenium level assumed when normalising electrochemical data (:data:`screen.constants.FC_FILM_EV`) [eV]
 FC_REFERENCE_EV = FC_FILM_EV
-#: values of the film set's ``derived_level`` column besides empty (both levels measured)
-DERIVED_LEVELS = ("homo", "lumo")
 #: the dye columns this calibration uses (and hashes)
 _DYE_COLUMNS = ["name", "smiles", "e00_ev", "exclude_reason"]
 
@@ -84,8 +83,11 @@ def read_reference(reference_dir: str | Path) -> dict[str, pd.DataFrame]:
     Raises
     ------
     InputError
-        A required file is missing, a file lacks the needed columns, or a film row's
-        ``derived_level`` is not ``homo``, ``lumo`` or empty.
+        A required file is missing, a file lacks the needed columns, or a row holds a value,
+        structure, repeat or empty source that cannot be fitted (a film row's ``derived_level``
+        other than ``homo``, ``lumo`` or empty among them; see
+        :func:`screen.calibration.refcheck.check_reference_set`): one message naming the file,
+        the line, the column, the value and the fix.
     """
     reference_dir = Path(reference_dir)
     sets = {}
@@ -95,11 +97,13 @@ def read_reference(reference_dir: str | Path) -> dict[str, pd.DataFrame]:
             sets[name] = pd.DataFrame(columns=_NEEDED[name] + ["exclude_reason"])
             continue
         frame = read_csv_checked(path, _NEEDED[name], what="reference file", dtype=str, keep_default_na=False)
-        frame = frame[frame["smiles"].str.strip().ne("")].copy()
         if "exclude_reason" not in frame.columns:
             frame["exclude_reason"] = ""
         if name == "film":
-            _check_derived(frame, path)
+            _fill_derived(frame)
+        check_reference_set(name, frame, path)  # every value, structure, repeat and source, before any work
+        frame = frame[frame["smiles"].str.strip().ne("")].copy()
+        if name == "film":
             if "gap_opt_ev" not in frame.columns:  # a fact-check: calibrated silently with 3 film gaps instead of 76
                 print(f"dascreen: reference file {path} has no gap_opt_ev column (film absorption onsets): the film "
                       "optical-gap model is fitted without these rows and the film LUMO model may fall back to the "
@@ -108,30 +112,12 @@ def read_reference(reference_dir: str | Path) -> dict[str, pd.DataFrame]:
     return sets
 
 
-def _check_derived(film: pd.DataFrame, path: Path) -> None:
-    """Add an empty ``derived_level`` column when absent (every level measured); refuse other values."""
+def _fill_derived(film: pd.DataFrame) -> None:
+    """Add an empty ``derived_level`` column when absent (every level measured); strip the cells (other values
+    are refused by :func:`screen.calibration.refcheck.check_reference_set`)."""
     if "derived_level" not in film.columns:
         film["derived_level"] = ""
     film["derived_level"] = film["derived_level"].str.strip()
-    bad = film[~film["derived_level"].isin(("",) + DERIVED_LEVELS)]
-    if len(bad):
-        row = bad.iloc[0]
-        raise InputError(f"reference file {path}, row {row['name']!r}, column derived_level: {row['derived_level']!r} "
-                         f"is not one of {', '.join(DERIVED_LEVELS)} or empty (the level computed from the other one "
-                         "and the optical gap; empty when both were measured)")
-
-
-def canonical(smiles: str) -> str:
-    """Canonical SMILES (attachment points as ``*``), '' when unreadable."""
-    RDLogger.DisableLog("rdApp.*")
-    mol = Chem.MolFromSmiles(smiles)
-    if mol is None:
-        return ""
-    for atom in mol.GetAtoms():
-        if atom.GetAtomicNum() == 0:
-            atom.SetAtomMapNum(0)
-            atom.SetIsotope(0)
-    return Chem.MolToSmiles(mol)
 
 
 def reference_inputs(sets: dict[str, pd.DataFrame]) -> pd.DataFrame:

@@ -52,11 +52,12 @@ import pandas as pd
 
 from screen.calibrate import LinearLevelModel
 from screen.calibration.domain import domain_std, fit_domain, reference_similarity
-from screen.errors import CalculationError, ConfigError
+from screen.errors import CalculationError, ConfigError, InputError
 from screen.io import read_json, write_json
 from screen.provenance import library_versions, sha256_file
 
-__all__ = ["REFERENCE_FILE", "MODELS_DIR", "TARGETS", "DERIVED", "MIN_GAIN", "needed_columns", "reference_table", "reference_input",
+__all__ = ["REFERENCE_FILE", "MODELS_DIR", "TARGETS", "DERIVED", "MIN_GAIN", "needed_columns", "reference_file",
+           "reference_table", "reference_input", "fitted_on",
            "join_computed", "feature_matrix", "fit_target", "fit_models", "save_models", "load_models",
            "model_folder", "apply_models", "elements_of"]
 
@@ -135,32 +136,108 @@ def elements_of(smiles: str) -> set[str]:
     return out
 
 
+def reference_file(reference: str | Path | None = None) -> Path:
+    """The dye reference file of ``reference``: a file as given, ``<folder>/dyes.csv`` of a reference folder (as
+    ``calibration.reference`` names it, :mod:`screen.calibration.reference`), :data:`REFERENCE_FILE` for None.
+
+    Examples
+    --------
+    >>> reference_file(REFERENCE_FILE.parent) == reference_file() == REFERENCE_FILE
+    True
+    """
+    if reference is None:
+        return REFERENCE_FILE
+    path = Path(reference).expanduser()
+    return path / "dyes.csv" if path.is_dir() else path
+
+
+#: placeholders that let :func:`screen.dyecell.checks.check_dye_file` check a reference row that gives only one of
+#: its two targets (the other model is fitted without it, :func:`fit_target`); never fitted
+_ONLY_E00, _ONLY_E_OX = "1.0", "2.0"
+
+
 def reference_table(path: str | Path | None = None) -> pd.DataFrame:
     """The fitted rows of the dye reference set (``exclude_reason`` empty), with numeric targets.
+
+    ``path``: the file or its reference folder (:func:`reference_file`). Every fitted row is held to the checks of
+    a user's dye file (:func:`screen.dyecell.checks.check_dye_file`, the name as its id): a potential vs another
+    electrode (``e_ox_v`` with ``e_ox_reference`` or ``reference``, and ``solvent`` for ferrocene) is converted to
+    ``e_ox_v_nhe`` with the table the dye files use (:data:`screen.dyecell.scales.ELECTRODES_FILE`), both given
+    must agree, and a value in millivolts, on the vacuum scale or a wavelength for E0-0 is refused. A row that gives
+    only one target (no potential, or no E0-0) is fitted for that one alone, as before.
 
     Raises
     ------
     ConfigError
         The file is missing or lacks a needed column.
+    InputError
+        A fitted row with an impossible or inconsistent value: the file, line, name, column and the fix.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> f = Path(tempfile.mkdtemp()) / "dyes.csv"
+    >>> head = "name,smiles,e_ox_v,e_ox_reference,e_ox_v_nhe,e00_ev\\n"
+    >>> _ = f.write_text(head + "A,OC(=O)c1ccccc1,0.98,ag-agcl-sat,,2.8\\n")
+    >>> reference_table(f)["e_ox_v_nhe"].round(3).tolist()  # 0.98 V + 0.197 V (screen/data/electrodes.csv)
+    [1.177]
+    >>> _ = f.write_text("name,smiles,e_ox_v_nhe,e00_ev\\nA,OC(=O)c1ccccc1,1180,2.8\\n")
+    >>> reference_table(f)  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    screen.errors.InputError: dye reference file ...dyes.csv: line 2 (name 'A'), column e_ox_v_nhe = 1180: ... 1180 looks like millivolts: write 1.18 V
     """
-    path = Path(path or REFERENCE_FILE)
+    from screen.dyecell.checks import check_dye_file, check_field_counts, merge_reference_alias
+
+    path = reference_file(path)
     if not path.is_file():
         raise ConfigError(f"dye reference file {path} is missing")
+    what = "dye reference file"
+    check_field_counts(path, what)
     frame = pd.read_csv(path, dtype=str, keep_default_na=False)
-    needed = ["name", "smiles", "e_ox_v_nhe", "e00_ev"]
-    missing = [c for c in needed if c not in frame.columns]
+    frame.columns = [str(c).strip() for c in frame.columns]
+    missing = [c for c in ("name", "smiles", "e00_ev") if c not in frame.columns]
+    if not ({"e_ox_v_nhe", "e_ox_v"} & set(frame.columns)):
+        missing.append("e_ox_v_nhe (or e_ox_v with e_ox_reference)")
     if missing:
         raise ConfigError(f"{path}: missing column(s) {missing}; found {list(frame.columns)}")
+    where = f"{what} {path}"
+    frame = merge_reference_alias(frame, where)
     if "exclude_reason" not in frame:
         frame["exclude_reason"] = ""
-    frame = frame[frame["exclude_reason"].str.strip().eq("") & frame["smiles"].str.strip().ne("")].copy()
-    for col in ("e_ox_v_nhe", "e00_ev"):
-        frame[col] = pd.to_numeric(frame[col], errors="coerce")
-    return frame.reset_index(drop=True)
+    fitted = frame[frame["exclude_reason"].str.strip().eq("") & frame["smiles"].str.strip().ne("")].copy()
+    for col in ("e_ox_v_nhe", "e_ox_v"):
+        if col not in fitted:
+            fitted[col] = ""
+    blank = {c: fitted[c].str.strip().eq("") for c in ("e_ox_v_nhe", "e_ox_v", "e00_ev")}
+    only_e00 = blank["e_ox_v_nhe"] & blank["e_ox_v"] & ~blank["e00_ev"]
+    only_e_ox = blank["e00_ev"] & ~(blank["e_ox_v_nhe"] & blank["e_ox_v"])
+    check = fitted.drop(columns=[c for c in ("id",) if c in fitted]).rename(columns={"name": "id"})
+    if "solvent" in check and "e_ox_reference" in check:  # the file's solvent column describes the measurement;
+        # only a ferrocene reference reads it (checks.check_dye_file): elsewhere it would only fill the messages
+        ferrocene = check["e_ox_reference"].str.strip().str.lower().str.startswith(("fc", "ferroc"))
+        check.loc[~ferrocene, "solvent"] = ""
+    check.loc[only_e00, "e_ox_v_nhe"] = _ONLY_E00
+    check.loc[only_e_ox, "e00_ev"] = _ONLY_E_OX
+    try:
+        e_ox = check_dye_file(check, where) if len(check) else np.zeros(0)  # the index is the file's row: its line
+    except InputError as exc:  # in the words of this file, whose dyes are named in column name
+        text = str(exc)
+        for said, meant in ((" (id '", " (name '"), ("column id is empty; give every dye an id",
+                                                      "column name is empty; give every dye a name"),
+                            (": id '", ": name '"), ("\n  id '", "\n  name '"),
+                            ("ids must be unique", "names must be unique")):
+            text = text.replace(said, meant)
+        raise InputError(text) from None
+    fitted["e_ox_v_nhe"] = np.where(only_e00.to_numpy(), np.nan, e_ox)
+    fitted["e00_ev"] = pd.to_numeric(fitted["e00_ev"], errors="coerce")
+    return fitted.reset_index(drop=True)
 
 
 def reference_input(path: str | Path | None = None) -> pd.DataFrame:
     """Candidate list (``id, smiles, name``) of the fitted reference dyes, for a ``dascreen run``.
+
+    ``path``: the dye reference file or its reference folder (:func:`reference_table`).
 
     Examples
     --------
@@ -311,7 +388,8 @@ def fit_models(computed: pd.DataFrame, reference: str | Path | None = None, *, p
     computed : pandas.DataFrame
         ``levels.csv`` of a run of :func:`reference_input` (``smiles, status, xtb_*``).
     reference : path-like, optional
-        The dye reference file (default :data:`REFERENCE_FILE`).
+        The dye reference file, or the reference folder that holds it as ``dyes.csv`` (default
+        :data:`REFERENCE_FILE`; :func:`reference_file`).
     protocol_id, engine_version : str
         Recorded in the fingerprint (from the levels sidecar).
     feature_sets : dict, optional
@@ -322,11 +400,13 @@ def fit_models(computed: pd.DataFrame, reference: str | Path | None = None, *, p
     dict
         ``{"e_ox": {...}, "e00": {...}}``, each with a ``fingerprint``.
     """
-    ref_path = Path(reference or REFERENCE_FILE)
+    ref_path = reference_file(reference)
     data = join_computed(reference_table(ref_path), computed)
     elements = sorted(set().union(*(elements_of(s) for s in data["smiles"]))) if len(data) else []
+    # reference_file: the file's path, so that a dye calibration says which reference folder it was fitted on
     fp = {"protocol_id": protocol_id, "engine_version": engine_version, "reference": ref_path.name,
-          "reference_sha256": sha256_file(ref_path), "versions": library_versions()}
+          "reference_file": str(ref_path.resolve()), "reference_sha256": sha256_file(ref_path),
+          "versions": library_versions()}
     out = {}
     for name in TARGETS:
         model = fit_target(name, data, (feature_sets or {}).get(name))
@@ -334,6 +414,29 @@ def fit_models(computed: pd.DataFrame, reference: str | Path | None = None, *, p
         model["fingerprint"] = fp
         out[name] = model
     return out
+
+
+def fitted_on(folder: str | Path) -> str | None:
+    """The dye reference file the dye models of ``folder`` were fitted on, in words (None without a readable
+    ``e_ox.json``): the file they record (``reference_file``, written from now on) while it holds those data, the
+    shipped :data:`REFERENCE_FILE` when they are its data, else the SHA-256 of the data.
+
+    Examples
+    --------
+    >>> fitted_on(model_folder("tblite-gfn2-ff-eaf1c554")) == str(REFERENCE_FILE)
+    True
+    """
+    try:
+        fp = read_json(Path(folder) / "e_ox.json").get("fingerprint") or {}
+    except (OSError, ValueError, AttributeError):
+        return None
+    sha = fp.get("reference_sha256")
+    for candidate in (fp.get("reference_file"), REFERENCE_FILE):
+        if candidate and Path(candidate).is_file() and sha256_file(candidate) == sha:
+            return str(candidate)
+    if fp.get("reference_file"):
+        return f"{fp['reference_file']} as it was then (SHA-256 {str(sha)[:12]}\u2026; it holds other data now)"
+    return f"a dye reference file of SHA-256 {str(sha)[:12]}\u2026"
 
 
 def model_folder(protocol_id: str, root: str | Path | None = None) -> Path:
@@ -385,9 +488,10 @@ def load_models(protocol_id: str | None, root: str | Path | None = None, *, fold
                               f"were computed with {protocol_id!r}; refit with `dascreen dyecell --refit` (computes the dye "
                               "reference set with this protocol)")
         if reference is not None and fp.get("reference_sha256") != sha256_file(reference):
-            raise ConfigError(f"dye model {path} was fitted on other reference data than {reference}; refit with "
-                              "`dascreen dyecell --refit --replace-installed` (or --models DIR for a folder of "
-                              "your own)")
+            raise ConfigError(f"dye model {path} was fitted on other reference data than {reference}; fit dye models "
+                              "on it into a folder of your own (`dascreen dyecell --refit --models DIR` with the same "
+                              "calibration.reference) and rank with --models DIR, or leave calibration.reference "
+                              "at the shipped data")
     return out
 
 
@@ -457,7 +561,9 @@ def refit(levels_path: str | Path, reference: str | Path | None = None, root: st
         ``levels.csv`` of a ``dascreen run`` of :func:`reference_input` (its
         sidecar names the protocol).
     reference, root, feature_sets
-        See :func:`fit_models` and :func:`save_models`.
+        See :func:`fit_models` (``reference``: the dye reference file or its reference folder, as
+        ``calibration.reference`` names it; its rows are checked and converted by :func:`reference_table`) and
+        :func:`save_models`.
 
     Returns
     -------

@@ -27,13 +27,13 @@ screen.errors.InputError: my_dyes.csv: line 2 (id 'd1'), column e00_ev = 590: E0
 from __future__ import annotations
 
 import math
-import re
 
 import numpy as np
 import pandas as pd
 
 from screen.dyecell.scales import ABSOLUTE_NHE_V, needs_solvent, solvent_conflict, to_nhe
 from screen.errors import InputError
+from screen.levels_check import E00_RANGE_EV, _line, decimal_comma_hint, e00_problem, mv_hint, raise_problems
 
 __all__ = ["E_OX_RANGE_V_NHE", "E00_RANGE_EV", "POTENTIAL_RANGE_V_NHE", "THRESHOLD_RANGE_EV", "SIGMA_MAX",
            "NO_ANCHOR_WORDS", "e_ox_problem", "e00_problem", "potential_problem", "vacuum_problem",
@@ -44,9 +44,6 @@ __all__ = ["E_OX_RANGE_V_NHE", "E00_RANGE_EV", "POTENTIAL_RANGE_V_NHE", "THRESHO
 #: accepted E(S⁺/S) of a dye [V vs NHE]: organic sensitisers lie roughly in −0.5…+2.5 V (common practice);
 #: 0.5 V of margin each side so that an unusual dye is ranked (and marked not viable) rather than refused
 E_OX_RANGE_V_NHE = (-1.0, 3.0)
-#: accepted E₀₋₀ of a dye [eV]: sensitisers absorb in the visible and near infrared, typically 1.2–3.5 eV
-#: (common practice); 1.0 eV = 1240 nm, 4.0 eV = 310 nm (the AM1.5G spectrum ends near 280 nm)
-E00_RANGE_EV = (1.0, 4.0)
 #: accepted band edge of an oxide or redox potential of a mediator [V vs NHE]: they lie roughly in −1.5…+2 V
 #: (common practice; anatase TiO₂ CB ≈ −0.5 V, NiO VB ≈ +0.5 V, cobalt and copper complexes +0.4…+1.1 V)
 POTENTIAL_RANGE_V_NHE = (-1.5, 2.0)
@@ -81,13 +78,6 @@ def _vacuum_hint(value: float, column: str, ev_column: str = "") -> str | None:
     return None
 
 
-def _mv_hint(value: float, unit: str = "V") -> str | None:
-    if abs(value) >= 100.0:
-        name = "millivolts" if unit == "V" else "millielectronvolts"
-        return f"{_g(value)} looks like {name}: write {value / 1000:.3g} {unit}"
-    return None
-
-
 def e_ox_problem(value: float, column: str = "e_ox_v_nhe") -> str | None:
     """What is wrong with a dye's E(S⁺/S) [V vs NHE] (None if it is plausible; NaN is not checked here).
 
@@ -102,30 +92,10 @@ def e_ox_problem(value: float, column: str = "e_ox_v_nhe") -> str | None:
     lo, hi = E_OX_RANGE_V_NHE
     if not math.isfinite(value) or lo <= value <= hi:
         return None
-    hint = _mv_hint(value) or _vacuum_hint(value, column) or (
+    hint = mv_hint(value) or _vacuum_hint(value, column) or (
         "check the sign, the units (V) and the reference electrode")
     return (f"E(S+/S) must be a potential in V vs NHE (organic dyes lie roughly in -0.5...+2.5 V; accepted "
             f"{lo:+g}...{hi:+g} V); {hint}")
-
-
-def e00_problem(value: float) -> str | None:
-    """What is wrong with a dye's E₀₋₀ [eV] (None if it is plausible; NaN is not checked here).
-
-    Examples
-    --------
-    >>> e00_problem(2.1) is None, e00_problem(-2.1)
-    (True, 'E00 is a positive excitation energy in eV (typically 1.2-3.5 eV for a sensitiser); write 2.1')
-    """
-    lo, hi = E00_RANGE_EV
-    if not math.isfinite(value) or lo <= value <= hi:
-        return None
-    if value <= 0 and lo <= -value <= hi:
-        return f"E00 is a positive excitation energy in eV (typically 1.2-3.5 eV for a sensitiser); write {_g(-value)}"
-    if value >= 100.0:
-        return (f"E00 must be in eV; {_g(value)} looks like a wavelength in nm: write 1239.84/{_g(value)} = "
-                f"{1239.84 / value:.3g} eV")
-    return (f"E00 must be in eV and lie in {lo:g}-{hi:g} eV (typically 1.2-3.5 eV for a sensitiser, "
-            f"E00 = 1239.84/lambda[nm]); check the units")
 
 
 def potential_problem(value: float, column: str, ev_column: str = "") -> str | None:
@@ -143,7 +113,7 @@ def potential_problem(value: float, column: str, ev_column: str = "") -> str | N
     lo, hi = POTENTIAL_RANGE_V_NHE
     if lo <= value <= hi:
         return None
-    hint = (_mv_hint(value) or _vacuum_hint(value, column, ev_column) or
+    hint = (mv_hint(value) or _vacuum_hint(value, column, ev_column) or
             "check the sign, the units (V) and the reference electrode")
     return (f"band edges of oxides and redox potentials of mediators lie roughly in {lo:+g}...{hi:+g} V vs NHE; "
             f"{hint}")
@@ -165,7 +135,7 @@ def vacuum_problem(value: float, column: str) -> str | None:
     if value > 0 and lo <= -value <= hi:
         return (f"vacuum-scale energies are negative (about -3 to -6 eV for oxides and mediators): write "
                 f"{column} = {_g(-value)} (= {value - ABSOLUTE_NHE_V:.2f} V vs NHE)")
-    return (_mv_hint(value, "eV") or
+    return (mv_hint(value, "eV") or
             f"{_g(value)} eV is outside {lo:.2f}...{hi:.2f} eV (vacuum scale; {POTENTIAL_RANGE_V_NHE[0]:+g}..."
             f"{POTENTIAL_RANGE_V_NHE[1]:+g} V vs NHE), where oxides and mediators lie; check the sign and units")
 
@@ -184,36 +154,7 @@ def threshold_problem(value: float) -> str | None:
     if value < lo:
         return (f"a driving-force threshold is >= 0 eV (the smallest downhill step that counts, e.g. 0.2)"
                 + (f"; write {_g(-value)}" if -value <= hi else ""))
-    return _mv_hint(value, "eV") or f"{_g(value)} eV is above {hi:g} eV: no dye could meet it; give it in eV, e.g. 0.2"
-
-
-def decimal_comma_hint(text: str) -> str | None:
-    """The number a text written with a decimal comma means (``"0,56"`` → ``"0.56"``), None for any other text.
-
-    Examples
-    --------
-    >>> decimal_comma_hint("-0,5"), decimal_comma_hint("abc")
-    ('-0.5', None)
-    """
-    text = str(text).strip()
-    if not re.fullmatch(r"[+\-\u2212]?\d*,\d+", text):
-        return None
-    return text.replace(",", ".").replace("\u2212", "-")
-
-
-def _line(frame: pd.DataFrame, i: int) -> int:
-    """File line of row ``i`` (header = line 1) when the index is the file's row number."""
-    idx = frame.index[i]
-    return int(idx) + 2 if isinstance(idx, (int, np.integer)) else i + 2
-
-
-def _raise(where: str, problems: list[str]) -> None:
-    if not problems:
-        return
-    more = f" (first {_MAX_LISTED} shown)" if len(problems) > _MAX_LISTED else ""
-    head = problems[0] if len(problems) == 1 else f"{len(problems)} problems{more}:\n  " + "\n  ".join(
-        problems[:_MAX_LISTED])
-    raise InputError(f"{where}: {head}")
+    return mv_hint(value, "eV") or f"{_g(value)} eV is above {hi:g} eV: no dye could meet it; give it in eV, e.g. 0.2"
 
 
 def _cell(value) -> str:
@@ -260,7 +201,7 @@ def merge_reference_alias(frame: pd.DataFrame, where: str = "dye file") -> pd.Da
     ids = [_cell(v) for v in frame["id"]] if "id" in frame else [""] * len(frame)
     problems = [f"line {_line(frame, i)} (id {ids[i]!r}): {why}" for i in range(len(frame))
                 if (why := reference_conflict({"reference": alias[i], "e_ox_reference": main[i]}))]
-    _raise(where, problems)
+    raise_problems(where, problems)
     out = frame.drop(columns="reference")
     out["e_ox_reference"] = [m or a for m, a in zip(main, alias)]
     return out
@@ -414,10 +355,10 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
                 problems.append(f"{at(i, c, float(s[i]))}: an uncertainty must be >= 0 (empty = 0)")
             elif math.isfinite(s[i]) and s[i] > SIGMA_MAX:
                 unit = "V" if c.endswith("_v") else "eV"
-                hint = _mv_hint(float(s[i]), unit) or f"give the one-sigma uncertainty in {unit}, e.g. 0.1"
+                hint = mv_hint(float(s[i]), unit) or f"give the one-sigma uncertainty in {unit}, e.g. 0.1"
                 problems.append(f"{at(i, c, float(s[i]))}: an uncertainty must lie in 0-{SIGMA_MAX:g} {unit} "
                                 f"(measured values carry about 0.01-0.1 {unit}); {hint}")
-    _raise(where, problems)
+    raise_problems(where, problems)
     return e_ox
 
 
@@ -589,5 +530,5 @@ def anchor_column(frame: pd.DataFrame, where: str = "dye file") -> list[list[str
             out.append(None)
             continue
         out.append(list(dict.fromkeys(known[p.lower()] for p in parts)))
-    _raise(where, problems)
+    raise_problems(where, problems)
     return out

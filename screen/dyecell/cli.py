@@ -11,9 +11,11 @@ is not the run's own levels goes to a folder of its own
 (``…--levels-<file>-<hash>``, :func:`screen.dyecell.stage.levels_tag`) and does
 not become the default input; without either it re-ranks the input ranked
 last in ``OUT`` (recorded in ``OUT/dyecell/inputs.json``); ``--list`` prints the
-oxide and mediator libraries and the reference electrodes; ``--refit`` computes the dye reference set with
-the run's protocol and installs the dye models (replacing installed ones only
-with ``--replace-installed``; never with a ``--levels`` file of measured values).
+oxide and mediator libraries and the reference electrodes; ``--refit`` computes
+the dye reference set (``dyes.csv`` of ``calibration.reference``, the file the
+level calibration reads its dye E0-0 from) with the run's protocol and installs
+the dye models (replacing installed ones only with ``--replace-installed``;
+never with a ``--levels`` file of measured values).
 """
 
 from __future__ import annotations
@@ -132,6 +134,19 @@ def _models_root(args, cfg) -> Path:
     return Path(cfg["calibration"]["models"]) / "dyecell" if cfg["calibration"]["models"] else MODELS_DIR
 
 
+def _own_reference(cfg) -> Path | None:
+    """``calibration.reference`` when it is a folder of the user's own (the dye models must then have been fitted on
+    its ``dyes.csv``), None for the shipped reference data (any dye models may be ranked with, e.g. ``--models``)."""
+    from screen.config import PACKAGE_ROOT
+
+    given = Path(cfg["calibration"]["reference"])
+    shipped = PACKAGE_ROOT / "models" / "reference"
+    try:
+        return None if given.resolve() == shipped.resolve() else given
+    except OSError:
+        return given
+
+
 def _check_refit(args, cfg) -> None:
     """Refuse a ``--refit`` that has nothing to fit for, or would replace installed dye models without being asked.
 
@@ -146,7 +161,7 @@ def _check_refit(args, cfg) -> None:
         ``--refit`` with a ``--levels`` file of measured values (no ``xtb_ip_ev`` column), or a model folder of
         this protocol that holds dye models already, without ``--replace-installed`` (exit code 2).
     """
-    from screen.dyecell.calibrate import TARGETS, model_folder
+    from screen.dyecell.calibrate import TARGETS, fitted_on, model_folder, reference_table
     from screen.io import csv_header
 
     if args.levels:
@@ -154,12 +169,40 @@ def _check_refit(args, cfg) -> None:
             raise ConfigError(f"--refit fits the dye models that compute E(S+/S) and E0-0 from xTB levels; --levels "
                               f"{args.levels} gives measured values (it has no xtb_ip_ev column), which need no "
                               "model: leave --refit out")
+    reference = _dye_reference(cfg)
     folder = model_folder(cfg.protocol_id, _models_root(args, cfg))
     held = [f"{name}.json" for name in TARGETS if (folder / f"{name}.json").is_file()]
     if held and not args.replace_installed:
-        raise ConfigError(f"--refit would replace the dye models installed in {folder} ({', '.join(held)}), which "
-                          "every dye ranking of this protocol uses. Pass --replace-installed to replace them, or "
-                          "--models DIR to fit into a folder of your own (and rank with --models DIR later)")
+        then = fitted_on(folder)
+        said = f"; fitted on {then}, this refit fits on {reference}" if then and then != str(reference) else ""
+        raise ConfigError(f"--refit would replace the dye models installed in {folder} ({', '.join(held)}{said}), "
+                          "which every dye ranking of this protocol uses. Pass --replace-installed to replace them, "
+                          "or --models DIR to fit into a folder of your own (and rank with --models DIR later)")
+    reference_table(reference)  # a bad reference row is refused before the dye reference set is computed
+
+
+def _dye_reference(cfg) -> Path:
+    """The dye reference file of the configured reference folder: ``<calibration.reference>/dyes.csv``, the file
+    whose E0-0 values the level calibration reads too (:mod:`screen.calibration.reference`).
+
+    ``dascreen dyecell --refit --set calibration.reference=MINE`` fitted the dye models on the shipped ``dyes.csv``
+    without a word, while the level calibration read ``MINE/dyes.csv`` (a second lab's audit).
+
+    Raises
+    ------
+    ConfigError
+        The folder holds no ``dyes.csv`` (exit code 2), with the fix.
+    """
+    from screen.config import data_path
+
+    folder = data_path(cfg["calibration"]["reference"])
+    path = folder / "dyes.csv"
+    if not path.is_file():
+        raise ConfigError(f"--refit fits the dye models on the dye reference set of calibration.reference, "
+                          f"{path}, which does not exist; copy the shipped one ({data_path('models/reference')}"
+                          "/dyes.csv) there and add your rows, or leave calibration.reference out for the shipped "
+                          "reference data")
+    return path
 
 
 def _refit(args, cfg, out: Path) -> Path:
@@ -169,16 +212,17 @@ def _refit(args, cfg, out: Path) -> Path:
     from screen.io import write_csv
     from screen.launch import run_workflow
 
+    reference = _dye_reference(cfg)  # the configured reference folder's, as the level calibration's E0-0 rows
     work = out / "dyecell" / "reference"
     inp = work / "input.csv"
-    write_csv(reference_input(), inp)
+    write_csv(reference_input(reference), inp)
     ref_cfg = cfg.with_overrides({"candidates": str(inp), "out": str(work)})
     rc = run_workflow(ref_cfg, work, args.cores, [str(work / "levels.csv")], verbose=args.verbose,
                       log_name="dyecell-reference-workflow")
     if rc != 0:
         raise ConfigError(f"computing the dye reference set stopped with exit code {rc}; see {work}/logs/")
-    folder = refit(work / "levels.csv", root=_models_root(args, cfg))
-    print(f"dascreen: dye models installed in {folder}")
+    folder = refit(work / "levels.csv", reference=reference, root=_models_root(args, cfg))
+    print(f"dascreen: dye models installed in {folder} (fitted on {reference})")
     return folder
 
 
@@ -483,7 +527,7 @@ def cmd_dyecell(args) -> int:
         check_rank_config(args.config, levels, "dyecell")
     models_root = _models_root(args, cfg)
     path = run_dyecell(levels, out, settings=cfg["dyecell"], models_root=models_root,
-                       current_protocol=cfg.protocol_id)
+                       current_protocol=cfg.protocol_id, reference=_own_reference(cfg))
     tag = levels_tag(levels, out)
     if tag:  # another file than the run's own levels: ranked aside, never the default
         own_folder = path.parent.with_name(path.parent.name[: -len(tag) - 2])  # the same name without --<tag>
@@ -533,8 +577,10 @@ def add_dyecell(sub) -> None:
                    help="root of the dye models (DIR/<protocol-id>/e_ox.json, e00.json; default <calibration.models>/dyecell, "
                         "i.e. models/dyecell with the default settings)")
     p.add_argument("--refit", action="store_true",
-                   help="compute the dye reference set (models/reference/dyes.csv) with this protocol and install "
-                        "the fitted dye models first, into --models DIR/<protocol-id> (default: see --models); "
+                   help="compute the dye reference set (dyes.csv of calibration.reference: models/reference/dyes.csv "
+                        "by default; rows held to the checks of a dye file, potentials vs other electrodes "
+                        "converted) with this protocol and install the fitted dye models first, into --models "
+                        "DIR/<protocol-id> (default: see --models); "
                         "refused where dye models of this protocol are installed already (see --replace-installed) "
                         "and with a --levels file of measured values, which uses no model")
     p.add_argument("--replace-installed", action="store_true",

@@ -36,7 +36,7 @@ from pathlib import Path
 import pandas as pd
 
 from screen import __version__
-from screen.dyecell.calibrate import MODELS_DIR, load_models
+from screen.dyecell.calibrate import MODELS_DIR, load_models, reference_file
 from screen.dyecell.flags import describe
 from screen.dyecell.library import Material, plausibility_notice, resolve_material, type_assumed_notice
 from screen.dyecell.model import DyeCellModel
@@ -311,11 +311,12 @@ def _no_models_error(path: Path, pid: str, root: Path, out_dir: str | Path, meta
 
 def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str | Path | None = None,
                     models_root: str | Path | None = None, current_protocol: str | None = None,
-                    cache: str | Path | None = None) -> tuple[pd.DataFrame, dict]:
+                    cache: str | Path | None = None, reference: str | Path | None = None) -> tuple[pd.DataFrame, dict]:
     """The dye table of an input file, cached as ``out_dir/dyecell/dyes.csv`` (or ``cache``).
 
     ``current_protocol``: the protocol id of the command's configuration, for
-    the message when the levels' protocol has no dye models.  ``cache``: the
+    the message when the levels' protocol has no dye models.  ``reference``: the dye reference file the models must
+    have been fitted on (``calibration.reference``'s ``dyes.csv``; None: not checked).  ``cache``: the
     table file instead of ``out_dir/dyecell/dyes.csv`` (:func:`run_dyecell`
     keeps another input's table out of the run's own).
 
@@ -345,7 +346,7 @@ def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str
         if models_folder is None and not all((Path(models_root or MODELS_DIR) / pid / f"{n}.json").is_file()
                                              for n in ("e_ox", "e00")):
             raise _no_models_error(path, pid, Path(models_root or MODELS_DIR), out_dir, meta, current_protocol)
-        models = load_models(pid, models_root or MODELS_DIR, folder=models_folder)
+        models = load_models(pid, models_root or MODELS_DIR, folder=models_folder, reference=reference)
         folder = Path(models_folder) if models_folder else Path(models_root or MODELS_DIR) / pid
         info["models"] = {"folder": str(folder), "protocol_id": pid,
                           **{n: sha256_file(folder / f"{n}.json") for n in models}}
@@ -534,7 +535,7 @@ def _meta(ranking, table, info, oxide, mediator, model, options, short, notices=
 def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | None = None,
                 mediator: str | None = None, settings: dict | None = None, models_folder: str | Path | None = None,
                 models_root: str | Path | None = None, report: bool = True,
-                current_protocol: str | None = None) -> Path:
+                current_protocol: str | None = None, reference: str | Path | None = None) -> Path:
     """Rank dyes for one oxide and one mediator and write the ranking folder.
 
     Parameters
@@ -556,6 +557,10 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
         Also write ``report.html`` and ``ranking.safe.csv``.
     current_protocol : str, optional
         Protocol id of the command's configuration (for the message when there are no dye models).
+    reference : path-like, optional
+        The dye reference file (or folder) the dye models must have been fitted on (the command passes
+        ``calibration.reference``: dye models fitted on the shipped ``dyes.csv`` were used without a word for a
+        reference folder of a lab's own dyes); None: not checked.
 
     Returns
     -------
@@ -584,7 +589,8 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
     tag = levels_tag(input_path, out_dir)
     cache = Path(out_dir) / "dyecell" / (f"dyes--{tag}.csv" if tag else "dyes.csv")
     table, info = build_dye_table(input_path, out_dir, models_folder=models_folder, models_root=models_root,
-                                  current_protocol=current_protocol, cache=cache)
+                                  current_protocol=current_protocol, cache=cache,
+                                  reference=None if reference is None else reference_file(reference))
     ranking = rank_dyes(table, ox, med, model, options)
     target = ranking_folder(out_dir, ox, med, section, tag)
     _tell_replacing(target, info)
