@@ -30,6 +30,7 @@ import numpy as np
 from screen.errors import ConfigError, InputError
 
 __all__ = ["FittedParameters", "slope_loss", "FITTED_PATH", "VALIDATION_PATH", "load_fitted", "device_tests", "POOLED",
+           "SHIPPED_MODELS", "shipped_calibration", "computed_levels_apply", "calibration_kind",
            "voc_unranked_classes", "UNRANKED_SPEARMAN",
            "NON_FULLERENE", "FULLERENE", "family_of", "class_values", "ACCEPTOR_CLASSES", "acceptor_class_key",
            "ACCEPTOR_CLASSES_TEXT"]
@@ -397,8 +398,99 @@ def voc_unranked_classes(path: str | None = None) -> frozenset:
     return frozenset(out)
 
 
+#: the shipped calibrations, one ``<protocol id>/`` folder each (beside ``device/``)
+SHIPPED_MODELS = FITTED_PATH.parent.parent
+
+
+def shipped_calibration(protocol: str | None) -> dict | None:
+    """:func:`screen.provenance.calibration_record` of the calibration shipped for ``protocol``
+    (``models/<protocol>/``); ``None`` when none is shipped (or its model files are incomplete).
+
+    Examples
+    --------
+    >>> shipped_calibration("no-such-protocol") is None, shipped_calibration("../device") is None
+    (True, True)
+    """
+    name = str(protocol or "")
+    if not name or Path(name).name != name or name in (".", ".."):
+        return None
+    folder = SHIPPED_MODELS / name
+    if not (folder / "ip.json").is_file():
+        return None
+    from screen.provenance import calibration_record
+
+    record = calibration_record(folder)
+    return record if record.get("models_sha256") else None
+
+
+def _same(a, b, keys=("models_sha256", "statistics_sha256")) -> bool | None:
+    """Whether two calibration records name the same calibration: False when a hash both record differs,
+    True when at least one is recorded by both and none differs, None when none can be compared."""
+    if not (isinstance(a, dict) and isinstance(b, dict)):
+        return None
+    pairs = [(a.get(k), b.get(k)) for k in keys if a.get(k) and b.get(k)]
+    if not pairs:
+        return None
+    return all(x == y for x, y in pairs)
+
+
+def calibration_kind(calibration, shipped) -> str:
+    """``'shipped'`` when the levels' calibration record (``calibration_models`` of a levels sidecar) is the
+    calibration shipped for its protocol (``shipped``: :func:`shipped_calibration`, same model files), else
+    ``'custom'``; ``''`` when the levels record no model hash.
+
+    Examples
+    --------
+    >>> calibration_kind({"models_sha256": "ab"}, {"models_sha256": "ab"})
+    'shipped'
+    >>> calibration_kind({"models_sha256": "cd"}, {"models_sha256": "ab"})
+    'custom'
+    >>> calibration_kind({"models_sha256": "cd"}, None)  # no calibration shipped for the protocol
+    'custom'
+    >>> calibration_kind(None, {"models_sha256": "ab"})
+    ''
+    """
+    if not (isinstance(calibration, dict) and calibration.get("models_sha256")):
+        return ""
+    return "shipped" if _same(calibration, shipped, ("models_sha256",)) else "custom"
+
+
+def computed_levels_apply(tests, calibration=None) -> bool | None:
+    """Whether the held-out figures on computed levels (``tests["computed_levels"]`` of :func:`device_tests`)
+    were measured with the calibration that scored the levels ranked.
+
+    The figures were measured with the calibration shipped for the protocol (``computed_levels["measured_with"]``);
+    levels scored with another calibration of the same protocol id (a group's own reference data, ``dascreen
+    calibrate --install``) got them as their own (a custom-calibration audit). ``calibration`` is the levels'
+    ``calibration_models`` record (default ``tests["levels_calibration"]``).
+
+    Returns
+    -------
+    bool or None
+        True: same model files (and statistics); False: another calibration; None: nothing to compare (no
+        figures on computed levels, or a record without hashes).
+
+    Examples
+    --------
+    >>> tests = {"computed_levels": {"voc_mae_v": 0.06, "measured_with": {"models_sha256": "ab",
+    ...                                                                  "statistics_sha256": "s1"}}}
+    >>> computed_levels_apply(tests, {"models_sha256": "ab", "statistics_sha256": "s1"})
+    True
+    >>> computed_levels_apply(tests, {"models_sha256": "cd", "statistics_sha256": "s2"})
+    False
+    >>> computed_levels_apply(tests) is None, computed_levels_apply({"computed_levels": None}, {"models_sha256": "ab"})
+    (True, None)
+    """
+    tests = tests if isinstance(tests, dict) else {}
+    comp = tests.get("computed_levels")
+    if not isinstance(comp, dict):
+        return None
+    cal = calibration if isinstance(calibration, dict) else tests.get("levels_calibration")
+    return _same(cal, comp.get("measured_with"))
+
+
 def device_tests(model: str, protocol: str | None = None, fitted_path: str | None = None,
-                 validation_path: str | Path | None = None) -> dict:
+                 validation_path: str | Path | None = None, calibration: dict | None = None) -> dict:
     """How well the device ``model`` did on the published device set, held out, for the report.
 
     Two records, each ``None`` when there is nothing to show: ``film_levels``, the
@@ -407,6 +499,10 @@ def device_tests(model: str, protocol: str | None = None, fitted_path: str | Non
     the same devices on levels computed with ``protocol`` and its calibration refitted
     without each material (from :data:`VALIDATION_PATH`; only for a protocol that file
     has, and only while it was written on the device set the fitted model was).
+    ``computed_levels["measured_with"]`` names the calibration those figures were measured with: the one shipped
+    for the protocol (``statistics_sha256`` as the validation recorded it; ``models_sha256`` and ``folder`` of the
+    shipped folder while its statistics are those). ``shipped_calibration`` is
+    :func:`shipped_calibration` of ``protocol``.
 
     Parameters
     ----------
@@ -414,18 +510,22 @@ def device_tests(model: str, protocol: str | None = None, fitted_path: str | Non
         The device model of the ranking.
     protocol : str, optional
         Protocol id of the levels ranked; ``None`` for levels given by the user.
+    calibration : dict, optional
+        The levels' ``calibration_models`` record: kept as ``levels_calibration``, with
+        ``computed_levels_apply`` (:func:`computed_levels_apply`: False when the figures on computed levels were
+        measured with another calibration than the one that scored the levels).
 
     Examples
     --------
     >>> t = device_tests("fitted", "no-such-protocol")
     >>> sorted(t), t["computed_levels"] is None, 0.0 < t["film_levels"]["voc_mae_v"] < 0.2
-    (['computed_levels', 'film_levels'], True, True)
+    (['computed_levels', 'film_levels', 'shipped_calibration'], True, True)
     """
     key = "fitted" if model == "fitted" else "scharber"
     try:
         meta = load_fitted(fitted_path).meta
     except ConfigError:
-        return {"film_levels": None, "computed_levels": None}
+        return {"film_levels": None, "computed_levels": None, "shipped_calibration": shipped_calibration(protocol)}
     film = _pick(meta.get("cv"), key)
     by_class = (meta.get("cv") or {}).get("by_class") if isinstance(meta.get("cv"), dict) else None
     if film is not None and key == "fitted" and isinstance(by_class, dict):  # a device-physics audit: the pooled
@@ -434,6 +534,7 @@ def device_tests(model: str, protocol: str | None = None, fitted_path: str | Non
                                 "spearman_pce": v.get("fitted_spearman_pce"), "n_pce": v.get("n_pce")}
                             for c, v in sorted(by_class.items()) if isinstance(v, dict)}
     computed = None
+    shipped = shipped_calibration(protocol)
     path = Path(validation_path) if validation_path else VALIDATION_PATH
     if protocol and path.is_file():
         try:
@@ -444,4 +545,13 @@ def device_tests(model: str, protocol: str | None = None, fitted_path: str | Non
             computed = _pick(rec.get("acceptor"), key)
             if computed is not None:
                 computed["protocol_id"] = protocol
-    return {"film_levels": film, "computed_levels": computed}
+                stats = rec.get("calibration_statistics_sha256")
+                current = shipped is not None and shipped.get("statistics_sha256") == stats
+                computed["measured_with"] = {"calibration": "shipped", "statistics_sha256": stats,
+                                             "models_sha256": shipped["models_sha256"] if current else None,
+                                             "folder": shipped["folder"] if current else None}
+    out = {"film_levels": film, "computed_levels": computed, "shipped_calibration": shipped}
+    if calibration is not None:
+        out["levels_calibration"] = calibration
+        out["computed_levels_apply"] = computed_levels_apply(out)
+    return out

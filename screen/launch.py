@@ -99,7 +99,8 @@ def failure_cause(log_text: str) -> str | None:
 
     A full disk first (the system's text, e.g. ``No space left on device``: the engine's own line about it said
     "Please ensure write permissions", an overnight operator's report), then a job's own ``dascreen: error:``
-    message (a calibration that changed during the run), then a job killed by a signal (exit status 137:
+    message (a calibration that changed during the run; one that lists problems below it with the first of them,
+    :func:`_stage_message`), then a job killed by a signal (exit status 137:
     ``killed (signal 9: out of memory?)``) with its own log, then any other system error, then the last Python
     exception a job log ends with (``CalibrationMismatchError: ...``), then the failed job and its own log (that of
     its ``Error in rule`` block).
@@ -132,7 +133,7 @@ def failure_cause(log_text: str) -> str | None:
                     "resumes)")
     stage = _STAGE_ERROR.search(log_text)
     if stage:
-        return stage.group(1).strip()
+        return _stage_message(log_text, stage)
     failed = _failed_jobs(log_text)
     killed = [(rule, log, how) for rule, log, how in failed if how]
     if killed:  # a job killed by a signal (the kernel's out-of-memory killer, a scheduler): no exception to show
@@ -193,6 +194,37 @@ def _failed_jobs(log_text: str) -> list[tuple[str, str | None, str | None]]:
         out.append((match.group(1), log.group(1) if log else None, _killed(statuses[-1]) if statuses else None))
         start = match.end()
     return out
+
+
+#: the head of a job's message that lists its problems on the lines below (``… 6 problems (first 5 shown):``)
+_LISTED = re.compile(r"\s*\(first \d+ shown\)\s*:$|\s*:$")
+#: characters of such a message with its first problem at most (a problem names a file, a column, a value and the
+#: fix: 400 cut the fix of a σ from a broken calibration)
+_LISTED_MAX = 700
+
+
+def _stage_message(log_text: str, stage: re.Match) -> str:
+    """A job's ``dascreen: error:`` message as one line: a head that lists problems on the indented lines below
+    it (``levels.csv: 6 problems (first 5 shown):``) gets the first of them; it alone ended the console line (a
+    custom-calibration audit: "…: 6 problems (first 5 shown):;" and nothing after it).
+
+    Examples
+    --------
+    >>> log = "dascreen: error: l.csv: 6 problems (first 5 shown):\\n  line 2 (id 'a'), column x = 5: bad\\n  line 3\\n"
+    >>> _stage_message(log, _STAGE_ERROR.search(log))
+    "l.csv: 6 problems, the first: line 2 (id 'a'), column x = 5: bad"
+    >>> _stage_message("dascreen: error: one thing\\n  x\\n", _STAGE_ERROR.search("dascreen: error: one thing\\n"))
+    'one thing'
+    """
+    head = stage.group(1).strip()
+    if not head.endswith(":"):
+        return head
+    below = log_text[stage.end():].lstrip("\r\n").splitlines()
+    first = below[0].strip() if below and below[0][:1].isspace() else ""
+    if not first:
+        return head
+    text = f"{_LISTED.sub('', head)}, the first: {first}"
+    return text if len(text) <= _LISTED_MAX else text[:_LISTED_MAX - 1] + "\u2026"
 
 
 def failure_cause_in(log_path: Path) -> str | None:

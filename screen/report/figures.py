@@ -34,6 +34,10 @@ _DECIMAL = re.compile(r"(-?\d+\.\d+)")  # captured: re.split keeps the numbers
 _GEOMETRY_ATTRIBUTE = re.compile(r'\s(d|x|y|transform|points)="([^"]*)"')
 _ID_ATTRIBUTE = re.compile(r'id="([^"]+)"')
 _WORD = re.compile(r"\w")
+#: one tag of Matplotlib's SVG (its writer escapes "<" and ">" in attribute values and text alike)
+_TAG = re.compile(r"(<[^<>]*>)")
+#: joins the tags of a drawing for one pass of the rewrites (a character XML 1.0 does not allow)
+_TAG_JOIN = "\x00"
 
 # Palette: deep teal, warm amber, slate, ivory, brick (warnings).
 _TEAL_DARK = "#0b3b45"
@@ -141,6 +145,41 @@ def _prefixed_ids(svg: str, prefix: str) -> str:
     return "".join(parts)
 
 
+def _in_tags(svg: str, edit) -> str:
+    """``svg`` with ``edit`` (a function of text) applied to its tags only, never to text between them.
+
+    The rewrites of ids, references and geometry matched the text of labels as well: an id
+    ``K id="Z" d="1.234567"`` was drawn as ``K id="fig-levels-Z" d="1…`` (a security audit). The tags are
+    rewritten in one pass, joined by a character no XML text holds.
+
+    Examples
+    --------
+    >>> _in_tags('<text x="1.234567">K id="Z" d="1.234567"</text>', _round_geometry)
+    '<text x="1.23">K id="Z" d="1.234567"</text>'
+    """
+    parts = _TAG.split(svg)
+    tags = parts[1::2]
+    if not tags:
+        return svg
+    if any(_TAG_JOIN in tag for tag in tags):
+        parts[1::2] = [edit(tag) for tag in tags]
+    else:
+        parts[1::2] = edit(_TAG_JOIN.join(tags)).split(_TAG_JOIN)
+    return "".join(parts)
+
+
+def _rewrite_tags(svg: str, prefix: str) -> str:
+    """Every ``id`` of a drawing given ``prefix``, with its ``url(#…)`` and ``href`` references, and the geometry
+    rounded (:func:`_round_geometry`): in tags only (:func:`_in_tags`)."""
+    def edit(tags: str) -> str:
+        tags = _prefixed_ids(tags, prefix)
+        tags = re.sub(r"url\(#([^)]+)\)", lambda m: f"url(#{prefix}-{m.group(1)})", tags)
+        tags = re.sub(r'href="#([^"]+)"', lambda m: f'href="#{prefix}-{m.group(1)}"', tags)
+        return _round_geometry(tags)
+
+    return _in_tags(svg, edit)
+
+
 def _figure_svg(fig, prefix: str, css_class: str, label: str) -> str:
     """Serialise a Matplotlib figure as inline SVG for an HTML5 page.
 
@@ -161,10 +200,7 @@ def _figure_svg(fig, prefix: str, css_class: str, label: str) -> str:
     svg = re.sub(r"<metadata>.*?</metadata>\s*", "", svg, flags=re.S)
     svg = re.sub(r'<style type="text/css">[^<]*</style>\s*', "", svg)
     svg = re.sub(r"<defs>\s*</defs>\s*", "", svg)
-    svg = _prefixed_ids(svg, prefix)
-    svg = re.sub(r"url\(#([^)]+)\)", lambda m: f"url(#{prefix}-{m.group(1)})", svg)
-    svg = re.sub(r'href="#([^"]+)"', lambda m: f'href="#{prefix}-{m.group(1)}"', svg)
-    svg = _round_geometry(svg)
+    svg = _rewrite_tags(svg, prefix)
     head_end = svg.find(">")
     head = svg[:head_end]
     width_pt = re.search(r'\swidth="([\d.]+)pt"', head)

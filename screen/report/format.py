@@ -23,7 +23,7 @@ import pandas as pd
 from screen.io import cell_number as num
 from screen.io import cell_text as text
 
-__all__ = ["NOT_RECORDED", "num", "text", "esc", "fmt", "fmt_pm", "pm_html", "data_value", "get", "shorten",
+__all__ = ["NOT_RECORDED", "num", "text", "esc", "isolated", "fmt", "fmt_pm", "pm_html", "data_value", "get", "shorten",
            "truthy", "texts", "truthies", "has_text", "numbers", "fmts", "pm_htmls", "data_values", "percent"]
 
 #: Shown for a value the run did not record.
@@ -35,6 +35,21 @@ _TRUE_WORDS = ("true", "1", "yes")
 def esc(value) -> str:
     """HTML-escaped text of a cell (quotes escaped too, safe in attributes)."""
     return html.escape(text(value), quote=True)
+
+
+def isolated(html_text: str) -> str:
+    """``html_text`` (escaped HTML) in a ``<bdi>`` element, so that no direction mark in it reorders the text
+    around it; '' stays ''.
+
+    An id or name with an unterminated right-to-left override (U+202E) turned the rest of its sentence or table
+    cell around (a security audit); ``.cid`` and ``.cname`` are isolated in the style sheet.
+
+    Examples
+    --------
+    >>> isolated("<strong>A1</strong>"), isolated("")
+    ('<bdi><strong>A1</strong></bdi>', '')
+    """
+    return f"<bdi>{html_text}</bdi>" if html_text else ""
 
 
 def _number(value) -> float:

@@ -11,7 +11,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, shorten, text, texts, truthies
+from screen.devicepars import calibration_kind, computed_levels_apply
+from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, isolated, num, shorten, text, texts, truthies
 
 __all__ = ["partner_card", "protocol_card", "device_card", "counts_strip", "settings_line"]
 
@@ -61,7 +62,7 @@ def partner_card(partner: dict, meta: dict) -> str:
     name = text(p.get("name")).strip()
     items = [
         ("Partner", f'<span class="cid">{esc(p.get("id")) or NOT_RECORDED}</span>'
-                    + (f" \u2014 {esc(name)}" if name else "")),
+                    + (f" \u2014 {isolated(esc(name))}" if name else "")),
         ("Role", (esc(p.get("role")) or NOT_RECORDED)
          + (" (assumed: the complement of the candidates\u2019 role)"
             if get(meta, "partner_role_assumed") is True else "")),
@@ -158,6 +159,45 @@ def _calibration_table(cal) -> str:
             '</tr></thead><tbody>' + "".join(rows) + "</tbody></table>")
 
 
+def _calibration_words(lm: dict, shipped) -> str:
+    """Which calibration scored the levels (HTML): the one shipped for their protocol, or a custom one (its
+    folder), with the first 12 hex digits of the SHA-256 of its model files and of its reference data
+    (``levels_meta["calibration_models"]``; ``shipped``: ``device_tests["shipped_calibration"]``,
+    :func:`screen.devicepars.shipped_calibration`). Levels that record no hashes keep the models folder alone.
+
+    The card named only the models folder: a custom calibration of the shipped protocol id read like the shipped
+    one (a custom-calibration audit).
+
+    Examples
+    --------
+    >>> cal = {"folder": "/m/p-1", "protocol_id": "p-1", "models_sha256": "ab" * 32, "reference_sha256": "cd" * 32}
+    >>> print(_calibration_words({"calibration_models": cal}, cal))
+    shipped with dascreen for <code>p-1</code> (models sha256 abababababab…, reference data sha256 cdcdcdcdcdcd…)
+    >>> print(_calibration_words({"calibration_models": {**cal, "folder": "/lab/p-1", "models_sha256": "ef" * 32}}, cal))
+    custom: <code>/lab/p-1</code>, not the calibration shipped for <code>p-1</code> (models sha256 efefefefefef…, reference data sha256 cdcdcdcdcdcd…)
+    >>> _calibration_words({"models": "/m/p-1", "calibration_models": None}, None)
+    '/m/p-1'
+    """
+    cal = lm.get("calibration_models")
+    kind = calibration_kind(cal, shipped)
+    if not kind:
+        return esc(lm.get("models")) or NOT_RECORDED
+    hashes = ", ".join(f"{what} sha256 {esc(text(cal.get(key))[:12])}\u2026"
+                       for key, what in (("models_sha256", "models"), ("reference_sha256", "reference data"))
+                       if text(cal.get(key)))
+    pid = text(cal.get("protocol_id")) or text(lm.get("protocol_id"))
+    folder = text(cal.get("folder")) or text(lm.get("models"))
+    if kind == "shipped":
+        head = f"shipped with dascreen for <code>{esc(pid)}</code>" if pid else "shipped with dascreen"
+    elif isinstance(shipped, dict) and folder and folder == text(shipped.get("folder")):
+        head = (f"an earlier version of the calibration shipped for <code>{esc(pid)}</code> (<code>{esc(folder)}"
+                "</code>: its model files have changed since these levels were computed)")
+    else:
+        head = (f"custom: <code>{esc(folder) or NOT_RECORDED}</code>"
+                + (f", not the calibration shipped for <code>{esc(pid)}</code>" if pid else ""))
+    return f"{head} ({hashes})" if hashes else head
+
+
 def protocol_card(meta: dict) -> str:
     """Computation and calibration card (from ``meta["levels_meta"]`` and ``meta["levels"]``)."""
     lm = get(meta, "levels_meta", default={}) or {}
@@ -169,7 +209,7 @@ def protocol_card(meta: dict) -> str:
         ("Geometry route", esc(_geometry_words(lm, st)) or NOT_RECORDED),
         ("Protocol id", f"<code>{esc(lm.get('protocol_id'))}</code>" if text(lm.get("protocol_id"))
          else NOT_RECORDED),
-        ("Calibration models", esc(lm.get("models")) or NOT_RECORDED),
+        ("Calibration models", _calibration_words(lm, get(meta, "device_tests", "shipped_calibration"))),
         ("Levels computed by", f"dascreen {esc(lm.get('dascreen'))}" if text(lm.get("dascreen"))
          else NOT_RECORDED),
     ]
@@ -453,10 +493,14 @@ def _class_words(film) -> str:
             + ", ".join(words))
 
 
-def device_tests_html(tests) -> tuple[str, str]:
+def device_tests_html(tests, calibration=None) -> tuple[str, str]:
     """The card's "Tested on published devices" value and, when the PCE has not ranked them, a caution (HTML).
 
-    ``tests`` is ``meta["device_tests"]`` (:func:`screen.devicepars.device_tests`).
+    ``tests`` is ``meta["device_tests"]`` (:func:`screen.devicepars.device_tests`); ``calibration`` the levels'
+    ``calibration_models`` record (``meta["levels_meta"]``). The figures on computed levels are shown only for
+    the calibration they were measured with (:func:`screen.devicepars.computed_levels_apply`): levels scored with
+    another calibration of the protocol got the shipped calibration's figures as their own (a custom-calibration
+    audit); the card says so instead, and the caution is judged on the measured levels.
 
     Examples
     --------
@@ -467,18 +511,32 @@ def device_tests_html(tests) -> tuple[str, str]:
     True
     >>> "not as an order" in caution
     True
+    >>> row, caution = device_tests_html({"film_levels": None, "computed_levels": {
+    ...     "voc_mae_v": 0.055, "spearman_voc": 0.5, "spearman_pce": -0.17, "n": 45, "n_pce": 49,
+    ...     "protocol_id": "p", "measured_with": {"models_sha256": "ab"}}}, {"models_sha256": "cd"})
+    >>> "0.055" in row, caution
+    (False, '')
+    >>> print(row)  # doctest: +NORMALIZE_WHITESPACE
+    held out (one acceptor at a time); levels computed with this ranking's calibration: not tested on published
+    devices (the device figures for levels computed with <code>p</code> were measured with the shipped
+    calibration of that protocol, not with this one)
     """
     tests = tests if isinstance(tests, dict) else {}
     film, comp = tests.get("film_levels"), tests.get("computed_levels")
+    applies = computed_levels_apply(tests, calibration) is not False
     parts = [_test_words(film, "measured film-scale levels")]
-    if isinstance(comp, dict):
+    if isinstance(comp, dict) and applies:
         parts.append(_test_words(comp, f"levels computed with <code>{esc(comp.get('protocol_id'))}</code> "
                                        "(each material left out of the calibration)"))
+    elif isinstance(comp, dict):
+        parts.append("levels computed with this ranking's calibration: not tested on published devices (the "
+                     f"device figures for levels computed with <code>{esc(comp.get('protocol_id'))}</code> were "
+                     "measured with the shipped calibration of that protocol, not with this one)")
     parts = [p for p in parts if p]
     if not parts:
         return "", ""
     row = "held out (one acceptor at a time); " + "; ".join(parts) + _class_words(film)
-    judged = comp if isinstance(comp, dict) else film
+    judged = comp if isinstance(comp, dict) and applies else film
     rho = num(judged.get("spearman_pce")) if isinstance(judged, dict) else math.nan
     caution = ""
     if not math.isnan(rho) and rho < PCE_RANK_SKILL:
@@ -493,7 +551,8 @@ def device_card(meta: dict) -> str:
     dev = get(meta, "device", default={}) or {}
     rank = get(meta, "rank", default={}) or {}
     absorber = ABSORBER_TEXT.get(text(dev.get("absorber")), "")
-    tested, _ = device_tests_html(get(meta, "device_tests", default={}))
+    tested, _ = device_tests_html(get(meta, "device_tests", default={}),
+                                  get(meta, "levels_meta", "calibration_models"))
     items = _device_items(dev) + ([("Tested on published devices", tested)] if tested else [])
     return ('<section class="card" id="card-device"><h3>Device model</h3>'
             f'<p class="quiet">{model_label(meta)}</p>'

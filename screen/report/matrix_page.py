@@ -34,7 +34,7 @@ import pandas as pd
 from screen import __version__
 from screen.io import atomic_path
 from screen.report.drawings import molecule_svg
-from screen.report.format import esc, fmt, num
+from screen.report.format import esc, fmt, isolated, num
 from screen.report.header import device_tests_html
 
 __all__ = ["render_overview", "write_overview", "heat_colour", "MAX_ROWS", "NOT_PAIRED_TITLE", "UNCERTAIN_TITLE"]
@@ -131,7 +131,7 @@ def _head_cell(p: dict, stale: bool = False) -> str:
     levels = f"HOMO {fmt(p.get('homo_ev'))}, LUMO {fmt(p.get('lumo_ev'))} eV"
     link = p.get("report")
     name = esc(p.get("id"))
-    title = f'<a href="{esc(link)}">{name}</a>' if link else name
+    title = isolated(f'<a href="{esc(link)}">{name}</a>' if link else name)
     role = esc(p.get("role") or "")
     paired = p.get("paired", p.get("ranked"))  # candidates of the partner's own role do not count
     viable = f"{p['viable']}/{paired} viable" if "viable" in p and paired is not None else ""
@@ -210,7 +210,9 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
     rows = []
     for n, row in enumerate(shown.to_dict("records")):
         drawing = (molecule_svg(row.get("smiles", ""), str(row["id"]), 120, 80) or "") if n < MAX_DRAWINGS else ""
-        label = esc(row["id"]) + (f"<br><small>{esc(row['name'])}</small>" if row.get("name") else "")
+        # the id ends its cell or comes before the name, which is isolated from it (a direction mark in either
+        # reordered the other)
+        label = esc(row["id"]) + (f"<br><small>{isolated(esc(row['name']))}</small>" if row.get("name") else "")
         cells = "".join(_cell(row.get(p), low, high, p in stale, notes.get(p, {}).get(str(row["id"]), ""))
                         for p in ids)
         rows.append(f'<tr><td class="cand">{drawing}{label}</td>{cells}<td>{esc(row.get("best_partner") or "—")}</td></tr>')

@@ -16,7 +16,7 @@ import pandas as pd
 
 from screen import __version__
 from screen.report.figures import DIAGRAM_MAX, design_map_svg, level_diagram_svg
-from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, num, text, truthies
+from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, isolated, num, text, truthies
 from screen.rank_rows import shortlist_mask
 from screen.report.header import counts_strip, device_card, device_tests_html, partner_card, protocol_card
 from screen.report.tables import (
@@ -89,7 +89,9 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass, sort_by: s
     """One sentence naming the best candidate: the highest PCE estimate among the rows the shortlist may take.
 
     A row that repeats an earlier row's structure (``same_structure``) is never named, and when the
-    ranking is sorted by another column the first row by that order is named beside it.
+    ranking is sorted by another column the first row by that order is named beside it. The ids in bold are
+    isolated from the sentence by the style sheet (``p.summary strong``: a right-to-left override in an id turned
+    the rest of the sentence around, a security audit).
 
     Examples
     --------
@@ -109,7 +111,7 @@ def _summary_sentence(ranking: pd.DataFrame, partner_id: str, n_pass, sort_by: s
     estimate; the most nearly aligned: <strong>X</strong>, both offsets aligned in 3 % of samples.
     """
     if not len(ranking):
-        return f"No candidate was ranked against {esc(partner_id) or 'the partner'}."
+        return f"No candidate was ranked against {isolated(esc(partner_id)) or 'the partner'}."
     may_enter = shortlist_mask(ranking)
     eligible = ranking[may_enter]
     pool = eligible if len(eligible) else ranking
@@ -270,7 +272,7 @@ def _head(partner: dict, meta: dict) -> list[str]:
         '<h1><span class="mark">dascreen</span> \u00b7 screening report</h1>',
         f'<p class="sub">Candidate {_candidates_word(partner)}'
         f' against partner <strong>{esc(pid) or NOT_RECORDED}</strong>'
-        + (f" ({esc(partner.get('name'))})" if text(partner.get("name")) else "") + "</p>",
+        + (f" ({isolated(esc(partner.get('name')))})" if text(partner.get("name")) else "") + "</p>",
         f'<p class="stamp">Generated {esc(_created(meta))} \u00b7 dascreen {esc(__version__)}{_revision(meta)}</p>',
         "</header>",
     ]
@@ -279,11 +281,11 @@ def _head(partner: dict, meta: dict) -> list[str]:
 def _shortlist_section(ranking: pd.DataFrame, short: pd.DataFrame, how: str, pid: str, n_pass,
                        meta: dict) -> list[str]:
     """Section 2: summary, shortlist table and the collapsible table of every ranked row."""
+    caution = device_tests_html(meta.get("device_tests"), get(meta, "levels_meta", "calibration_models"))[1]
     return [
         '<h2 id="shortlist"><span class="num">2</span> Shortlist for discussion</h2>',
         f'<p class="summary">{_summary_sentence(ranking, pid, n_pass, _sort_by(meta))}</p>',
-        *([f'<p class="caution">{caution}</p>'] if (caution := device_tests_html(meta.get("device_tests"))[1])
-          else []),
+        *([f'<p class="caution">{caution}</p>'] if caution else []),
         f'<p class="quiet">Shown: {esc(how)}. Levels in eV relative to the vacuum level (HOMO = \u2212IP), on the energy scale of the header ({_scale_words(meta)}), value \u00b1 1\u03c3. '
         "\u0394LUMO = LUMO(donor) \u2212 LUMO(acceptor), \u0394HOMO = HOMO(donor) \u2212 HOMO(acceptor). "
         "P(aligned), in the table of every row, is the probability at the levels\u2019 \u03c3 that both offsets "

@@ -15,8 +15,8 @@ from screen.flags import FLAGS, INFO_FLAGS, codes_of, describe
 from screen.io import count_text
 from screen.rank_rows import shortlist_mask
 from screen.report.drawings import molecule_svg
-from screen.report.format import (data_values, esc, fmts, get, has_text, num, percent, pm_htmls, shorten, text,
-                                  texts, truthies)
+from screen.report.format import (data_values, esc, fmts, get, has_text, isolated, num, percent, pm_htmls, shorten,
+                                  text, texts, truthies)
 
 __all__ = ["with_level_details", "select_shortlist", "shortlist_table", "full_table", "not_ranked_table",
            "not_viable_table", "capped_note", "target_label", "CAPPED_MARK"]
@@ -346,7 +346,7 @@ def capped_note(ranking: pd.DataFrame, meta: dict | None = None) -> str:
     if not n:
         return ""
     # the products, visible and printed (an accessibility audit: they were in the cells' tooltips only)
-    products = [f"{esc(text(ident))} {_product_pct(voc, jsc, ff, meta or {}):.1f} %"
+    products = [isolated(f"{esc(text(ident))} {_product_pct(voc, jsc, ff, meta or {}):.1f} %")
                 for capped, ident, voc, jsc, ff in zip(_capped(ranking), _cells(ranking, "id"),
                                                        _cells(ranking, "voc_v"), _cells(ranking, "jsc_ma_cm2"),
                                                        _cells(ranking, "ff"))
