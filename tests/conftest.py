@@ -5,6 +5,8 @@ from __future__ import annotations
 import csv
 import functools
 import os
+import shutil
+import tempfile
 from pathlib import Path
 
 import pytest
@@ -91,3 +93,35 @@ def _no_results_store():
         os.environ.pop("DASCREEN_STORE", None)
     else:
         os.environ["DASCREEN_STORE"] = before
+
+
+#: the cache folders of a test session (pytest_configure): variable -> folder under one temporary folder
+_CACHE_VARIABLES = {"XDG_CACHE_HOME": "xdg", "DASCREEN_CACHE": "dascreen"}
+_saved_environment: dict = {}
+
+
+def pytest_configure(config):
+    """Every cache the tests' runs write goes to a temporary folder of this session, never to the user's ~/.cache:
+    Snakemake's source cache and matplotlib's font cache (``XDG_CACHE_HOME``) and dascreen's spectrum cache
+    (``DASCREEN_CACHE``). Set in ``os.environ`` before the test modules are imported, so that this process and every
+    subprocess the tests start (they inherit the environment, or copy ``os.environ``) use it; a test that needs
+    another value sets its own (tests/test_environment.py, tests/test_spectrum_cache.py). Each session starts with
+    empty caches, so no test depends on what an earlier session or the user left there."""
+    root = Path(tempfile.mkdtemp(prefix="dascreen-tests-cache-"))
+    _saved_environment.update({name: os.environ.get(name) for name in _CACHE_VARIABLES})
+    _saved_environment["_root"] = root
+    for name, folder in _CACHE_VARIABLES.items():
+        os.environ[name] = str(root / folder)
+
+
+def pytest_unconfigure(config):
+    root = _saved_environment.pop("_root", None)
+    for name in _CACHE_VARIABLES:
+        if name in _saved_environment:
+            before = _saved_environment.pop(name)
+            if before is None:
+                os.environ.pop(name, None)
+            else:
+                os.environ[name] = before
+    if root is not None:
+        shutil.rmtree(root, ignore_errors=True)

@@ -15,6 +15,7 @@ from pathlib import Path
 import pytest
 
 from screen.cli import main
+from screen.config import Config
 
 GOOD = "id,homo_ev,lumo_ev,gap_opt_ev,scale\nD1,-5.2,-3.0,1.9,film\nD2,-5.4,-3.2,1.8,film\n"
 MEASURED_DYES = "id,e_ox_v_nhe,e00_ev\nX1,1.1,2.0\nX2,1.0,1.9\n"
@@ -27,14 +28,10 @@ def _cli(capsys, *args):
 
 
 @pytest.fixture
-def no_workflow(monkeypatch):
-    """Fail the test if a command starts the workflow engine or a refit (the refusal must come first)."""
-    def started(*args, **kwargs):
-        raise AssertionError("the workflow was started; the command line should have been refused first")
-
-    monkeypatch.setattr("screen.launch.run_workflow", started)
-    monkeypatch.setattr("screen.cli.run_workflow", started)
-    monkeypatch.setattr("screen.refit.refit_from_raw", started)
+def no_workflow(no_workflow, monkeypatch):
+    """The conftest's ``no_workflow``, and a refit fails the test too (the refusal must come first)."""
+    monkeypatch.setattr("screen.refit.refit_from_raw", lambda *a, **k: pytest.fail("a refit was started; the command "
+                                                                               "line should have been refused first"))
 
 
 def _write(path: Path, text: str) -> Path:
@@ -79,7 +76,7 @@ def test_dyecell_empty_levels_is_refused(tmp_path, capsys):
 def test_calibrate_install_into_a_file_is_refused_before_the_fit(tmp_path, capsys, no_workflow, repo_dir):
     target = _write(tmp_path / "good.csv", GOOD)
     rc, _, err = _cli(capsys, "calibrate", "--install", str(target), "--from-raw",
-                      str(repo_dir / "models" / "tblite-gfn2-ff-eaf1c554"), "--out", str(tmp_path / "cal"))
+                      str(repo_dir / "models" / Config.of({}).protocol_id), "--out", str(tmp_path / "cal"))
     assert rc == 2 and f"--install {target} is a file, not a folder" in err, err
     _one_line(err)
 

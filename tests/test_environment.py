@@ -14,7 +14,6 @@ import os
 import signal
 import subprocess
 import sys
-import threading
 from pathlib import Path
 
 import pytest
@@ -257,16 +256,44 @@ def test_the_partner_matrix_overview_follows_a_group_umask(tmp_path):
 
 # --------------------------------------------------------------------------- 6. signals
 
+_RANK_WAITS_TO_WRITE = """
+import sys
+import screen.io
+
+
+def write_csv(*args, **kwargs):  # the ranking is done and about to be written: say so, wait for the signal
+    print("ready", flush=True)
+    sys.stdin.readline()
+    raise AssertionError("the signal did not stop dascreen rank")
+
+
+screen.io.write_csv = write_csv
+from screen.cli import main
+
+sys.exit(main(sys.argv[1:]))
+"""
+
+
 def _signal_when_ranking(tmp_path, signum) -> tuple[int, bytes]:
-    """``dascreen rank`` sent ``signum`` once it has ranked (its first notice on stderr), before it has written."""
+    """``dascreen rank`` (screen.cli.main in a child) sent ``signum`` once it has ranked, before it has written: its
+    write_csv says "ready" and waits on its standard input, so the signal comes at that point however slow the
+    machine is."""
     levels = _levels(tmp_path)
-    proc = subprocess.Popen([DASCREEN, "rank", "--levels", str(levels), "--out", "out"], cwd=tmp_path, env=_env(),
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                            preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
-    first = proc.stderr.readline()
-    proc.send_signal(signum)
-    _, rest = proc.communicate(timeout=60)
-    return proc.returncode, first + rest
+    proc = subprocess.Popen([sys.executable, "-c", _RANK_WAITS_TO_WRITE, "rank", "--levels", str(levels), "--out",
+                             "out"], cwd=tmp_path, env=_env(), stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
+    try:
+        lines = []
+        while not lines or lines[-1] not in (b"ready\n", b""):  # b"": it ended without reaching the writing
+            lines.append(proc.stdout.readline())
+        assert lines[-1] == b"ready\n", b"".join(lines) + proc.stderr.read()
+        proc.send_signal(signum)
+        _, err = proc.communicate(timeout=60)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait()
+    return proc.returncode, err
 
 
 @pytest.mark.parametrize("signum", [signal.SIGINT, signal.SIGTERM], ids=["SIGINT", "SIGTERM"])
@@ -301,11 +328,11 @@ def test_ctrl_c_before_the_workflow_starts_gives_one_line(monkeypatch, capsys):
 _SECOND_CTRL_C = """
 import subprocess, sys
 from screen import launch
+
+# the engine's stand-in: on SIGINT it says "stopping" and takes until the test says so (a line on standard input)
 child = subprocess.Popen([sys.executable, "-c", "import signal, sys, time\\n"
-                          "def slow(*a):\\n    time.sleep(2.0); sys.exit(0)\\n"
-                          "signal.signal(signal.SIGINT, slow)\\nprint('ready', flush=True)\\ntime.sleep(60)"],
-                         stdout=subprocess.PIPE, text=True)
-child.stdout.readline()
+                          "def slow(*a):\\n    print('stopping', flush=True); sys.stdin.readline(); sys.exit(0)\\n"
+                          "signal.signal(signal.SIGINT, slow)\\nprint('ready', flush=True)\\ntime.sleep(600)"])
 wait = child.wait
 
 
@@ -319,16 +346,31 @@ launch._wait(child)
 """
 
 
+def _line(proc) -> bytes:
+    line = proc.stdout.readline()
+    assert line, proc.stderr.read().decode()  # the wrapper ended before the line came
+    return line.strip()
+
+
 def test_a_second_ctrl_c_while_the_workflow_stops_gives_no_traceback(tmp_path):
-    """The engine takes 2 s to stop after the first Ctrl-C; a second one came while dascreen waited for it."""
-    proc = subprocess.Popen([sys.executable, "-c", _SECOND_CTRL_C], cwd=tmp_path, stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
-    proc.stdout.readline()
-    proc.send_signal(signal.SIGINT)
-    stopping = threading.Event()
-    stopping.wait(0.7)  # the clean-up has begun (the engine needs 2 s)
-    proc.send_signal(signal.SIGINT)
-    _, err = proc.communicate(timeout=60)
+    """The engine takes a while to stop after the first Ctrl-C; a second one came while dascreen waited for it.
+
+    The engine's stand-in shares dascreen's standard streams: it says "ready" (its handler is set) and, once dascreen
+    has forwarded the first Ctrl-C, "stopping" (the clean-up has begun); it stops only after the second Ctrl-C was
+    sent, when the test writes a line to it."""
+    proc = subprocess.Popen([sys.executable, "-c", _SECOND_CTRL_C], cwd=tmp_path, stdin=subprocess.PIPE,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                            preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
+    try:
+        assert {_line(proc), _line(proc)} == {b"ready", b"waiting"}
+        proc.send_signal(signal.SIGINT)
+        assert _line(proc) == b"stopping"
+        proc.send_signal(signal.SIGINT)  # dascreen ignores it by now (kill() returns once it is delivered or dropped)
+        _, err = proc.communicate(b"go\n", timeout=60)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait()
     assert proc.returncode == 130, err.decode()
     assert b"Traceback" not in err and err.decode().strip().startswith("dascreen: stopped by SIGINT")
 

@@ -166,14 +166,6 @@ def test_a_real_process_prints_one_line_and_no_traceback(tmp_path):
 
 # --------------------------------------------------------------------------- energy scales and calibration
 
-@pytest.fixture()
-def no_workflow(monkeypatch):
-    """A refusal must come before the workflow starts: starting it fails the test."""
-    import screen.cli
-
-    monkeypatch.setattr(screen.cli, "run_workflow", lambda *a, **k: pytest.fail("the workflow was started"))
-
-
 def test_gas_levels_against_a_film_partner_are_refused_before_any_work(capsys, tmp_path, good, no_workflow):
     # every built-in partner is on the film scale (screen/data/partners.csv); y6 is the default partner
     err = _refused(capsys, "run", str(good), "--out", str(tmp_path / "o"), "--set", "levels.scale=gas",

@@ -1,8 +1,14 @@
-"""Edges a review of the round's changes found: the hartree check on computed levels, script guards written with
-``and``/``in``, a closed standard output, and the known-bias note naming only the row's own family."""
+"""Edges a review of the round's changes found: the hartree check on computed and typed levels, a
+closed standard output, a charged or odd-electron molecule at the geometry step, a dry run's job table, a file system
+without flock, a ./models folder hiding the shipped calibration, option values (Decimal, arrays, seeds, numbers with
+an exponent, ``~`` paths, the gap window), a levels_of work folder holding other files, and the SD-file row count.
+
+(Script guards written with ``and``/``in`` are tested in tests/test_python_api.py, the known-bias notes in
+tests/test_known_bias.py.)"""
 
 from __future__ import annotations
 
+import re
 import shutil
 import subprocess
 import sys
@@ -11,7 +17,6 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from screen.isolation import _guarded_lines
 from screen.levels_check import inconsistent_rows, row_problems
 
 
@@ -26,33 +31,12 @@ def test_a_computed_shallow_lumo_is_no_unit_slip() -> None:
     assert typed and typed[0][0] == "lumo_ev" and "check the units" in typed[0][2]
 
 
-def test_guards_written_with_and_or_in_are_guards() -> None:
-    source = ('import sys\n'
-              'if __name__ == "__main__" and len(sys.argv) >= 1:\n    run()\n'
-              'if __name__ in ("__main__",):\n    run()\n'
-              'if "__main__" != __name__:\n    pass\nelse:\n    run()\n'
-              'if len(sys.argv) > 1:\n    run()\n')
-    assert _guarded_lines(source) == [(3, 3), (5, 5), (9, 9)]
-
-
 def test_a_closed_standard_output_is_no_traceback(tmp_path: Path) -> None:
     exe = shutil.which("dascreen", path=str(Path(sys.executable).parent))
     assert exe
     done = subprocess.run(["sh", "-c", f'exec "{exe}" partners >&-'], capture_output=False, stderr=subprocess.PIPE,
                           text=True, cwd=tmp_path, timeout=120)
     assert done.returncode == 0 and "Traceback" not in done.stderr, done.stderr
-
-
-def test_each_known_family_has_its_own_note() -> None:
-    from screen.flags import FLAGS
-    from screen.rank import _has_family
-
-    codes = np.array(["dpp", "ndi_polymer", "dpp+ndi_polymer", ""], dtype=object)
-    assert _has_family(codes, "dpp").tolist() == [True, False, True, False]
-    assert _has_family(codes, "ndi_polymer").tolist() == [False, True, True, False]
-    # a new user's audit: the DPP donors' note told them what an NDI acceptor's bias does
-    assert "naphthalene" not in FLAGS["known_family_bias"].text
-    assert "diketopyrrolopyrrole" not in FLAGS["known_family_bias_ndi"].text
 
 
 def test_the_geometry_step_refuses_a_charged_molecule_from_any_route() -> None:
@@ -130,10 +114,12 @@ def test_options_take_decimals_and_arrays_and_refuse_bad_seeds() -> None:
         RankOptions(target_pce_pct=Decimal("NaN"))
     assert RankOptions(target_pce_pct=Decimal("12.5")).target_pce_pct == 12.5
     assert StructureOptions(planar_tolerances_deg=np.array([5.0, 25.0])).planar_tolerances_deg == (5.0, 25.0)
-    for bad in ({"seed": -1}, {"seed": 2**31}):
-        with pytest.raises(ConfigError, match="seed"):
-            StructureOptions(**bad)
-    with pytest.raises(ConfigError, match="minimum of 0"):
+    # 2147000000: the schema's bound (screen/workflow/schemas/config.schema.yaml; RDKit refuses 2**31 and more)
+    for bad, said in ((-1, "field structures.seed: -1 is less than the minimum of 0"),
+                      (2**31, "field structures.seed: 2147483648 is greater than the maximum of 2147000000")):
+        with pytest.raises(ConfigError, match=re.escape(said)):
+            StructureOptions(seed=bad)
+    with pytest.raises(ConfigError, match=re.escape("field rank.seed: -1 is less than the minimum of 0")):
         RankOptions(seed=-1)
 
 
@@ -152,10 +138,12 @@ def test_numbers_with_an_exponent_and_home_paths_are_read_as_meant(tmp_path: Pat
 
 
 def test_a_hartree_hint_only_where_the_conversion_lands_on_a_real_level() -> None:
-    # LUMO -0.45 eV beside a HOMO of -5.40 eV was told to be -12.25 eV
+    # LUMO -0.45 eV beside a HOMO of -5.40 eV was told to be -12.25 eV; -0.13 there lands on a film LUMO (-3.54 eV;
+    # 1 Eh = 27.211386 eV, CODATA 2018). A whole row in hartree: tests/test_api_options.py
     problems = row_problems(-5.40, -0.45, 3.2, "film")
     assert problems and "hartree" not in problems[0][2] and "lies above -1 eV" in problems[0][2]
-    assert "-5.44 eV" in row_problems(-0.2, -0.14, 0.05, "film")[0][2]
+    (column, _, text), = row_problems(-5.40, -0.13, 3.2, "film")
+    assert column == "lumo_ev" and "-0.13 looks like hartree: write -0.13 × 27.2114 = -3.54 eV" in text, text
 
 
 def test_a_levels_of_workdir_must_not_hold_other_files(tmp_path: Path) -> None:

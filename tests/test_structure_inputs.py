@@ -19,13 +19,14 @@ import pytest
 from screen import schema
 from screen.calibrate import covered_elements
 from screen.calibration.domain import nearest_similarity
+from screen.config import Config
 from screen.errors import ConfigError
 from screen.flags import FLAGS
 from screen.prepare import PrepareOptions, validate
 from screen.sanity import gap_problem
 
 ROOT = Path(__file__).parent.parent
-MODELS = ROOT / "models" / "tblite-gfn2-ff-eaf1c554"
+MODELS = ROOT / "models" / Config.of({}).protocol_id  # the default protocol's shipped calibration
 
 
 @pytest.mark.parametrize("field", ["allow_charged", "allow_open_shell"])

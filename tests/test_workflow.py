@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import os
+import shutil
 import subprocess
 import sys
 
@@ -122,12 +123,27 @@ def test_bad_config_is_one_clear_message(tmp_path, data_dir):
     assert "bad.yaml" in proc.stderr and "device.absorber" in proc.stderr and "donor, both" in proc.stderr
 
 
+#: the one lint finding the workflow keeps: it runs from the project's virtualenv (its shell lines call that
+#: interpreter), so it defines no conda environment or container (tests/test_workflow_direct.py: other partners)
+CONDA_LINT = "Specify a conda environment or container for each rule."
+
+
+def _snakemake_from_the_clone(repo_dir, work, *args) -> subprocess.CompletedProcess:
+    """`snakemake ARGS` as from a clone (the top-level Snakefile, found in the working directory), with the engine's
+    own folder (.snakemake: logs, metadata) in ``work``, never in the repository: the default configuration copied
+    there (config/config.yaml, read from the engine's folder) with the demo candidates and ``work/out``."""
+    (work / "config").mkdir(parents=True)
+    shutil.copy(repo_dir / "config" / "config.yaml", work / "config" / "config.yaml")
+    return subprocess.run([sys.executable, "-m", "snakemake", "--directory", str(work), *args, "--config",
+                           f"candidates={repo_dir / 'candidates' / 'demo.csv'}", f"out={work / 'out'}"],
+                          capture_output=True, text=True, cwd=repo_dir, timeout=600)
+
+
 def test_snakemake_from_the_clone_plans_the_workflow(repo_dir, tmp_path):
     # README: "From a clone the same workflow runs with Snakemake directly: `snakemake --cores 8`". A
     # reproducibility audit found it planned nothing ("Nothing to be done", exit 0): the included workflow's
     # `all` is not the default target of the top-level Snakefile.
-    proc = subprocess.run([sys.executable, "-m", "snakemake", "-n", "--cores", "1", "--config",
-                           f"out={tmp_path / 'out'}"], capture_output=True, text=True, cwd=repo_dir)
+    proc = _snakemake_from_the_clone(repo_dir, tmp_path, "-n", "--cores", "1")
     text = proc.stdout + proc.stderr
     assert proc.returncode == 0, text[-2000:]
     planned = (("checkpoint", "prepare"), ("rule", "levels"), ("rule", "rank"))
@@ -135,14 +151,14 @@ def test_snakemake_from_the_clone_plans_the_workflow(repo_dir, tmp_path):
     assert not (tmp_path / "out").exists()  # a dry run
 
 
-def test_snakemake_lint_names_only_the_missing_software_definition(repo_dir):
-    # the workflow runs from the project's virtualenv (its shell lines call that interpreter), so it defines no conda
-    # environment or container; every other lint finding must stay away (tests/test_workflow_direct.py: other partners)
-    proc = subprocess.run([sys.executable, "-m", "snakemake", "--lint"], capture_output=True, text=True,
-                          cwd=repo_dir)
+def test_snakemake_lint_names_only_the_missing_software_definition(repo_dir, tmp_path):
+    # every other lint finding must stay away (the default partner; other partners: tests/test_workflow_direct.py)
+    proc = _snakemake_from_the_clone(repo_dir, tmp_path, "--lint")
     text = proc.stdout + proc.stderr
     titles = {line.strip()[2:].rstrip(":") for line in text.splitlines() if line.startswith("    * ")}
-    assert titles <= {"Specify a conda environment or container for each rule."}, text
+    assert titles == {CONDA_LINT}, text[-3000:]
+    assert proc.returncode == 1  # snakemake --lint: 1 when it found something
+    assert not (tmp_path / "out").exists()
 
 
 def test_status_counts_molecules_done(five_run):

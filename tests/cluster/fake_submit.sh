@@ -6,9 +6,12 @@
 #
 # Like sbatch it spools a copy of the jobscript and runs that copy later as a detached process
 # (own session, stdin/stdout closed) in a *fresh* environment: only PATH=/usr/bin:/bin, HOME and
-# LANG survive, so no virtualenv PATH, PYTHONPATH, conda variables or Python state of the
+# LANG are set, so no virtualenv PATH, PYTHONPATH, conda variables or Python state of the
 # submitting process reach the job. A job therefore succeeds only if its jobscript is
 # self-contained (absolute interpreter path, absolute file paths, its own working directory).
+# HOME is the fake node's own, $state/home (empty at first): the caches a job writes (Snakemake's
+# source cache, matplotlib's) stay out of the user's ~/.cache, as the tests' own runs do
+# (tests/conftest.py).
 #
 # State (spooled scripts, exit codes, job output, each job's environment) lives in
 # $DASCREEN_FAKE_CLUSTER (default: ${TMPDIR:-/tmp}/dascreen-fake-cluster-<uid>); fake_status.sh and
@@ -17,7 +20,7 @@ set -euo pipefail
 
 jobscript=${1:?usage: fake_submit.sh JOBSCRIPT}
 state=${DASCREEN_FAKE_CLUSTER:-${TMPDIR:-/tmp}/dascreen-fake-cluster-$(id -u)}
-mkdir -p "$state"
+mkdir -p "$state" "$state/home"
 
 # a unique id: the counter file is only touched under flock, so parallel submissions never clash
 exec 9>>"$state/.counter.lock"
@@ -41,6 +44,6 @@ setsid bash -c '
         > "$state/$id.out" 2>&1
     rc=$?
     echo "$rc" > "$state/$id.rc.tmp" && mv "$state/$id.rc.tmp" "$state/$id.rc"
-' fake-job "$state" "$id" "${HOME:-/}" < /dev/null > /dev/null 2>&1 &
+' fake-job "$state" "$id" "$state/home" < /dev/null > /dev/null 2>&1 &
 
 echo "$id"
