@@ -81,7 +81,7 @@ def test_report_axis_says_it_differs_from_the_film_scale(tmp_path):
     f = _write(tmp_path / "d.csv", f"id,e_ox_v_nhe,e00_ev,smiles\nd1,1.10,2.0,{ANCHORED}\n")
     path = run_dyecell(f, tmp_path / "o", oxide="tio2-anatase", mediator="co-bpy3", settings={"n_samples": 50})
     page = (path.parent / "report.html").read_text(encoding="utf-8")
-    caption = page[page.index("<figcaption>"):page.index("</figcaption>")]
+    caption = page[page.index("<figcaption"):page.index("</figcaption>")]
     assert "0.27 eV" in caption and "\u22124.8 eV" in caption and "\u22125.07 eV" in caption
 
 

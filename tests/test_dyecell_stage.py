@@ -576,7 +576,7 @@ def test_diagram_draws_the_nearest_not_viable_dyes_and_explains_the_boxes(tmp_pa
         fig = dyecell_figure(diagram_rows(r, r[r["passes"].map(str).eq("True")], meta), meta)
     labels = {t.get_text() for t in fig.axes[0].texts}
     assert "0.198 \u2717" in labels and "0.20" not in labels and "0.20 \u2717" not in labels
-    caption = page[page.index("<figcaption>"):page.index("</figcaption>")]
+    caption = page[page.index("<figcaption"):page.index("</figcaption>")]
     assert "the 2 not-viable dye(s) that come closest to a driving-force threshold" in caption
     assert "Shaded boxes" in caption and "\u00b11\u03c3" in caption
 

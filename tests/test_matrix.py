@@ -242,8 +242,9 @@ def test_alignment_uncertain_cells_carry_a_marker_and_a_tooltip():
     assert notes == {"paired": 2, "not_paired": ["A1"], "alignment_uncertain": ["D1"]}
     m = partner_matrix([("y6", ranking)])
     page = render_overview(m, {"partners": [{"id": "y6", "viable": 2, "ranked": 3, **notes}]}, created="2024-01-01")
-    d1 = next(line for line in page.split("<tr>") if "D1</td>" in line)
-    assert 'class="unc"' in d1 and f'title="{UNCERTAIN_TITLE}"' in d1 and '<sup class="unc">?</sup>' in d1
-    d2 = next(line for line in page.split("<tr>") if "D2</td>" in line)
+    d1 = next(line for line in page.split("<tr>") if "D1</th>" in line)
+    assert 'class="unc"' in d1 and f'title="{UNCERTAIN_TITLE}"' in d1
+    assert '<sup class="unc" aria-hidden="true">?</sup>' in d1
+    d2 = next(line for line in page.split("<tr>") if "D2</th>" in line)
     assert "unc" not in d2
     assert "P(aligned) between 0.25 and 0.75" in UNCERTAIN_TITLE and "2/2 viable" in page

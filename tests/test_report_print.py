@@ -99,7 +99,7 @@ def test_print_rules_fit_tables_on_a4_and_keep_rows_whole():
     assert "9pt" in PRINT["table"]
     assert "min-width:0" in PRINT["ul.flags"] and "max-width:none" in PRINT["ul.flags"]
     assert "max-width:none" in PRINT["td.notes-compact"]
-    assert "display:none" in PRINT["td.cand code.smi"]          # the SMILES is in ranking.csv and shortlist.sdf
+    assert "display:none" in PRINT[".cand code.smi"]          # the SMILES is in ranking.csv and shortlist.sdf
     assert "width:76px" in PRINT["svg.mol"]                      # smaller drawings
     for sel in ("tr", "figure", ".card"):
         assert "break-inside:avoid" in PRINT[sel], sel
@@ -109,7 +109,8 @@ def test_print_rules_fit_tables_on_a4_and_keep_rows_whole():
 
 
 def test_shortlist_and_full_table_are_printed_on_wide_pages(page):
-    assert '<div class="tablewrap wide"><table class="sortable shortlist"' in page
+    assert ('<div class="tablewrap wide" role="region" tabindex="0" aria-labelledby="shortlist-table-caption">'
+            '<table class="sortable shortlist"') in page
     assert '<details id="all-ranked">' in page
 
 
@@ -146,7 +147,7 @@ def test_greys_reach_the_wcag_contrast_for_text():
 
 def test_sortable_headers_show_keyboard_focus():
     rules = _rules(CSS)
-    assert "outline:3px solid" in rules["th.js-sort:focus-visible"]
+    assert "outline:3px solid" in rules["th.js-sort button:focus-visible"]
 
 
 def test_headings_have_a_space_after_their_number(page):
@@ -167,8 +168,9 @@ def test_matrix_page_prints_colours_keeps_rows_and_fits_phones():
     assert "break-inside:avoid" in style["tr"]
     assert "print-color-adjust:exact" in style["td"] and "print-color-adjust:exact" in style[".legend span.sw"]
     assert '<meta name="viewport" content="width=device-width, initial-scale=1">' in out
-    assert '<div class="tablewrap"><table>' in out and "overflow-x:auto" in style["div.tablewrap"]
-    assert all('scope="col"' in th for th in re.findall(r"<th(?:\s[^>]*)?>", out))
+    assert ('<div class="tablewrap" role="region" tabindex="0" aria-labelledby="matrix-caption"><table>' in out
+            and "overflow-x:auto" in style["div.tablewrap"])
+    assert all(re.search('scope="(col|row)"', th) for th in re.findall(r"<th(?:\s[^>]*)?>", out))
     na = re.search(r"td\.na\{background:(#[0-9a-f]+);color:(#[0-9a-f]+)\}", _STYLE)
     assert _contrast(na.group(2), na.group(1)) >= 4.5
 
@@ -261,7 +263,7 @@ def test_dye_tables_use_the_sortable_markup():
     for ident in ("shortlist-table", "full-table"):
         table = re.search(rf'<table id="{ident}" class="sortable [^"]*">(.*?)</table>', out, re.S).group(1)
         heads = re.findall(r"<th(?:\s[^>]*)?>", table)
-        assert heads and all('scope="col"' in h for h in heads)
+        assert heads and all(re.search('scope="(col|row)"', h) for h in heads)
         assert sum("data-sort=" in h for h in heads) >= 12
     assert "Click a column header to sort" in out
     assert 'aria-label="structure of D-b"' in out
@@ -304,7 +306,7 @@ _PROBE = """<script>
   }
   var th = document.querySelector("#shortlist-table th[data-key='pce_pct']");
   if (th) {
-    out.armed = th.classList.contains("js-sort") && th.tabIndex === 0;
+    out.armed = th.classList.contains("js-sort") && th.querySelector("button[type=button]") !== null;
     th.click();
     out.by_pce = order("shortlist-table");
     var rank = document.querySelector("#shortlist-table th[data-key='rank']");

@@ -55,7 +55,8 @@ from screen.report.format import (
     text,
     truthy,
 )
-from screen.report.page import static_text
+from screen.report.page import described_svg, static_text
+from screen.report.tables import caption, flag_item, smiles_code, table_region
 
 __all__ = ["render_dyecell_report", "write_dyecell_report", "EXPORTS"]
 
@@ -307,8 +308,8 @@ def _flags_html(cell, meta: dict, extra: dict | None = None, said: bool = False)
                 "calibration": get(meta, "calibration", default={}) or {},
                 "oxide": get(meta, "oxide", default={}) or {}}
     extra = extra or {}
-    items = "".join(f'<li class="flag{" info" if c in INFO_FLAGS else ""}">{esc(describe(c, settings))}'
-                    f'{esc(extra.get(c, ""))}</li>' for c in codes)
+    # each led by "Concern:" or "Note:" (an accessibility audit: the two kinds differed only by colour)
+    items = "".join(flag_item(esc(describe(c, settings)) + esc(extra.get(c, "")), c in INFO_FLAGS) for c in codes)
     return f'<ul class="flags">{items}</ul>'
 
 
@@ -460,8 +461,10 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
             svg = molecule_svg(text(r.get("smiles")), f"structure of {text(r.get('id'))}")
             cells.append(f'<td class="struct">{svg or "<span class=nostruct>no drawing</span>"}</td>')
         name = text(r.get("name"))
-        cells.append(f'<td class="cand" data-value="{esc(r.get("id"))}"><span class="cid">{esc(r.get("id"))}</span>'
-                     + (f'<span class="cname">{esc(name)}</span>' if name else "") + "</td>")
+        # the row's header cell (an accessibility audit: no table had row headers)
+        cells.append(f'<th scope="row" class="cand" data-value="{esc(r.get("id"))}"><span class="cid">'
+                     f'{esc(r.get("id"))}</span>' + (f'<span class="cname">{esc(name)}</span>' if name else "")
+                     + "</th>")
         sig = {"e_ox_v_nhe": "e_ox_sigma_v", "e00_ev": "e00_sigma_ev", "pce_pct": "pce_sigma_pct"}
         thresholds = {"drive_inj_ev": num(get(meta, "model", "min_drive_inj_ev")),
                       "drive_reg_ev": num(meta.get("regeneration_threshold_ev"))}
@@ -486,8 +489,9 @@ def _table(rows: pd.DataFrame, meta: dict, drawings: bool, ident: str) -> str:
     if not body:
         span = len(head)
         body.append(f'<tr><td class="empty" colspan="{span}">no dye</td></tr>')
-    return (f'<table id="{ident}" class="sortable {"short" if drawings else "full"}"><thead><tr>{"".join(head)}</tr>'
-            f'</thead><tbody>{"".join(body)}</tbody></table>')
+    words = "Shortlisted dyes" if drawings else "Every ranked dye"
+    return (f'<table id="{ident}" class="sortable {"short" if drawings else "full"}">{caption(ident, words)}<thead><tr>'
+            f'{"".join(head)}</tr></thead><tbody>{"".join(body)}</tbody></table>')
 
 
 def _not_ranked(table: pd.DataFrame) -> tuple[str, int]:
@@ -496,11 +500,13 @@ def _not_ranked(table: pd.DataFrame) -> tuple[str, int]:
     rows = table[~table["status"].map(text).str.strip().str.lower().eq("ok")]
     if not len(rows):
         return '<p class="quiet">Every input row was ranked.</p>', 0
-    body = "".join(f'<tr><td class="cid">{esc(r.get("id"))}</td><td>{esc(r.get("status"))}</td>'
+    body = "".join(f'<tr><th scope="row"><span class="cid">{esc(r.get("id"))}</span></th>'
+                   f'<td>{esc(r.get("status"))}</td>'
                    f'<td class="notes-compact">{esc(r.get("error")) or NOT_RECORDED}</td>'
-                   f'<td><code class="smi">{esc(shorten(text(r.get("smiles")), 120))}</code></td></tr>'
+                   f'<td>{smiles_code(text(r.get("smiles")), 120)}</td></tr>'
                    for _, r in rows.iterrows())
-    return ('<table id="not-ranked-table" class="full"><thead><tr><th scope="col">Id</th><th scope="col">Status</th>'
+    return ('<table id="not-ranked-table" class="full">' + caption("not-ranked-table", "Input rows not ranked")
+            + '<thead><tr><th scope="col">Id</th><th scope="col">Status</th>'
             '<th scope="col">Reason</th><th scope="col">SMILES</th></tr></thead>'
             f"<tbody>{body}</tbody></table>", len(rows))
 
@@ -542,7 +548,7 @@ def _figure_caption(meta: dict, n_drawn: int, n_failing: int, any_viable: bool =
     if n_failing:
         who += (f" and, dashed and marked \u201cnot viable\u201d, the {n_failing} not-viable dye(s) that come "
                 "closest to a driving-force threshold they miss")
-    return ("<strong>Dye-cell energy diagram.</strong> "
+    return ('<strong id="figure-dyecell-name">Dye-cell energy diagram.</strong> '
             f"{levels} of the {who}, numbered by rank, against the oxide\u2019s band edge and the mediator\u2019s "
             "potential. More negative potentials (higher electron energies) are at the top; the right axis gives "
             f"the vacuum scale, \u2212e(E + 4.44 V). {_axis_note()} "
@@ -550,7 +556,9 @@ def _figure_caption(meta: dict, n_drawn: int, n_failing: int, any_viable: bool =
             "levels carry an "
             "uncertainty, span \u00b11\u03c3: of E(S\u207a/S) for the ground state and, for "
             f"{sigma}, the σ of E(S\u207a/S) and of E\u2080\u208b\u2080 combined in quadrature; values "
-            "from a dye file without \u03c3 have no box.")
+            "from a dye file without \u03c3 have no box. The potentials and driving forces drawn here are in the "
+            "shortlist table and the table of every ranked dye (section 2), the band edge and the mediator\u2019s "
+            "potential in their cards (section 1).")
 
 
 def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict) -> str:
@@ -625,17 +633,19 @@ def render_dyecell_report(ranking: pd.DataFrame, table: pd.DataFrame, meta: dict
         f"{_definitions(meta)}. Viable dyes are ordered by estimated PCE; with one oxide, one mediator and the "
         "same photon-to-current efficiency, fill factor and V<sub>oc</sub> loss for every dye, that is in effect the "
         "order of E\u2080\u208b\u2080 (smallest first): E(S\u207a/S) enters only through the injection and "
-        "regeneration checks. Not-viable dyes follow, by id. Click a column header to sort.</p>",
-        f'<div class="tablewrap wide">{_table(short, meta, True, "shortlist-table")}</div>', _not_viable(ranking),
+        "regeneration checks. Not-viable dyes follow, by id. Click a column header to sort, or press Enter on it.</p>",
+        table_region(_table(short, meta, True, "shortlist-table"), "shortlist-table", wide=True), _not_viable(ranking),
         '<details id="all-ranked">', f"<summary>Every ranked dye ({len(ranking)} rows)</summary>",
-        f'<div class="tablewrap wide">{_table(ranking, meta, False, "full-table")}</div>', "</details>",
+        table_region(_table(ranking, meta, False, "full-table"), "full-table", wide=True), "</details>",
         '<h2 id="figures"><span class="num">3</span> Energy diagram</h2>',
-        f'<figure class="levels" id="figure-dyecell">{figure}<figcaption>'
+        # named by the caption's lead, described by the caption (an accessibility audit)
+        '<figure class="levels" id="figure-dyecell" aria-labelledby="figure-dyecell-name">'
+        f'{described_svg(figure, "figure-dyecell-caption")}<figcaption id="figure-dyecell-caption">'
         f"{_figure_caption(meta, len(drawn), n_extra, n_pass > 0)}</figcaption></figure>",
         f'<h2 id="not-ranked"><span class="num">4</span> Not ranked ({n_unranked})</h2>',
         '<p class="quiet">Input rows that were rejected or whose computation failed, with the reason.</p>',
-        f'<div class="tablewrap">{unranked}</div>', "</main>", '<footer id="files">',
-        "<h3>Files beside this report</h3>", f"<ul>{exports}</ul>",
+        table_region(unranked, "not-ranked-table"), "</main>", '<footer id="files">',
+        '<h2 id="files-heading">Files beside this report</h2>', f"<ul>{exports}</ul>",
         f"<p>Report written by dascreen {esc(__version__)}. The page is self-contained and works offline.</p>",
         "</footer>", f"<script>\n{static_text('report.js')}</script>", "</body>", "</html>",
     ]

@@ -2,7 +2,7 @@
 
 One table: a row per candidate (2-D drawing, id, best partner), a column per
 partner (its levels and a link to its report), each cell the best viable PCE
-estimate coloured on one sequential scale; an empty cell (grey, "—") is a pair
+estimate coloured on one sequential scale; a grey cell with "—" is a pair
 that is not viable, a hatched "same role" cell a candidate of the partner's own
 role (not paired), and a dashed-outlined cell with "?" a pair whose alignment is
 uncertain (P(aligned) between 0.25 and 0.75).  Numbers come from ``matrix.csv`` (:mod:`screen.matrix`);
@@ -58,18 +58,21 @@ body{font:14px/1.4 system-ui,-apple-system,"Segoe UI",sans-serif;margin:24px;col
 h1{font-size:20px;margin:0 0 4px}p.sub{color:#555;margin:0 0 16px;max-width:70em}
 p.caution{background:#fff4e0;border-left:5px solid #d9822b;padding:8px 14px;margin:0 0 16px;max-width:70em}
 table{border-collapse:collapse}th,td{border:1px solid #ddd;padding:4px 6px;text-align:center}
-th.cand,td.cand{text-align:left}td.na{background:#eee;color:#555}tr{break-inside:avoid}
+th.cand,td.cand{text-align:left}tbody th{font-weight:inherit}td.na{background:#eee;color:#555}tr{break-inside:avoid}
 td.np{background:repeating-linear-gradient(45deg,#fff 0 4px,#e4e4e4 4px 8px);color:#444;font-size:11px;font-style:italic}
 td.unc{outline:2px dashed #d9822b;outline-offset:-3px}td sup.unc{font-weight:700;margin-left:1px}
 .legend span.np{background:repeating-linear-gradient(45deg,#fff 0 4px,#e4e4e4 4px 8px)}
 .legend span.unc{outline:2px dashed #d9822b;outline-offset:-3px;background:#fff}
 thead th{background:#f6f6f6;vertical-align:bottom;font-weight:600}
 thead th small{display:block;font-weight:400;color:#555}
-svg.mol{display:block}.legend{display:flex;align-items:center;gap:6px;margin:8px 0 16px}
-.legend span.sw{display:inline-block;width:28px;height:14px}footer{color:#666;margin-top:16px;font-size:12px}
+svg.mol{display:block}.legend{display:flex;flex-wrap:wrap;align-items:center;gap:6px;margin:8px 0 16px}
+.legend span.sw{display:inline-block;width:28px;height:14px;flex:none}footer{color:#666;margin-top:16px;font-size:12px}
 p.stale{background:#fde8e4;border-left:5px solid #b03a2e;padding:8px 14px;margin:0 0 16px;max-width:70em}
 p.stale code{word-break:break-all}th small.stale{color:#b03a2e;font-weight:600}td.stale{font-style:italic;opacity:.75}
-div.tablewrap{overflow-x:auto;max-width:100%}
+div.tablewrap{overflow-x:auto;max-width:100%;position:relative}
+div.tablewrap:focus{outline:none}div.tablewrap:focus-visible{outline:3px solid #0b3b45;outline-offset:2px}
+.vh{position:absolute!important;width:1px;height:1px;padding:0;margin:-1px;overflow:hidden;clip:rect(0 0 0 0);
+clip-path:inset(50%);white-space:nowrap;border:0}
 td,.legend span.sw{-webkit-print-color-adjust:exact;print-color-adjust:exact}
 @media (max-width:700px){body{margin:10px}}
 @media print{@page{margin:12mm}body{margin:0}div.tablewrap{overflow:visible}thead{display:table-header-group}
@@ -80,23 +83,41 @@ h1,.legend{break-after:avoid}}
 def heat_colour(value: float, low: float, high: float) -> tuple[str, str]:
     """Background and text colour of a cell on the sequential scale.
 
+    The text colour is the one of higher WCAG contrast ratio on the background; where neither reaches
+    :data:`MIN_CONTRAST` (the middle blues, near 73 % of the scale) the background is darkened toward the
+    scale's end, #253494, until white text does.
+
     Examples
     --------
     >>> heat_colour(0.0, 0.0, 10.0)
     ('#ffffcc', '#1b1b1b')
     >>> heat_colour(10.0, 0.0, 10.0)
     ('#253494', '#ffffff')
+    >>> heat_colour(7.33, 0.0, 10.0)  # #2d83b9 with white text was 4.15:1
+    ('#2d7bb5', '#ffffff')
+    >>> worst = min(_contrast(*heat_colour(i / 1000, 0.0, 1.0)) for i in range(1001))
+    >>> worst >= MIN_CONTRAST, round(worst, 2)  # over the whole scale
+    (True, 4.5)
     """
     t = 0.0 if high <= low else min(1.0, max(0.0, (value - low) / (high - low)))
     pos = t * (len(_SCALE) - 1)
     i = min(int(pos), len(_SCALE) - 2)
     f = pos - i
-    rgb = [round(a + (b - a) * f) for a, b in zip(_SCALE[i], _SCALE[i + 1])]
-    background = "#{:02x}{:02x}{:02x}".format(*rgb)
-    # the text colour with the higher WCAG contrast ratio on this background (an accessibility audit: the
-    # old rule, unweighted sRGB luminance below 128, chose white where dark text reads better)
-    on_white, on_dark = _contrast(background, "#ffffff"), _contrast(background, _DARK_TEXT)
+    rgb = [a + (b - a) * f for a, b in zip(_SCALE[i], _SCALE[i + 1])]
+    for k in range(51):  # 2 % steps toward the scale's darkest colour; white on it is 10.5:1
+        mixed = [c + (d - c) * k / 50 for c, d in zip(rgb, _SCALE[-1])]
+        background = "#{:02x}{:02x}{:02x}".format(*(round(c) for c in mixed))
+        # the text colour with the higher WCAG contrast ratio on this background (an accessibility audit: the
+        # old rule, unweighted sRGB luminance below 128, chose white where dark text reads better; a second
+        # one: neither reached 4.5:1 on part of the scale)
+        on_white, on_dark = _contrast(background, "#ffffff"), _contrast(background, _DARK_TEXT)
+        if max(on_white, on_dark) >= MIN_CONTRAST:
+            break
     return background, ("#ffffff" if on_white > on_dark else _DARK_TEXT)
+
+
+#: the contrast ratio every heat cell's text reaches: WCAG 2.1 success criterion 1.4.3, normal text
+MIN_CONTRAST = 4.5
 
 
 #: the dark text colour of the page and of light heat cells
@@ -131,7 +152,8 @@ def _head_cell(p: dict, stale: bool = False) -> str:
     levels = f"HOMO {fmt(p.get('homo_ev'))}, LUMO {fmt(p.get('lumo_ev'))} eV"
     link = p.get("report")
     name = esc(p.get("id"))
-    title = isolated(f'<a href="{esc(link)}">{name}</a>' if link else name)
+    # the link's name says where it goes, the id stays what is seen (an accessibility audit: "y6" alone)
+    title = isolated(f'<a href="{esc(link)}"><span class="vh">ranking report for </span>{name}</a>' if link else name)
     role = esc(p.get("role") or "")
     paired = p.get("paired", p.get("ranked"))  # candidates of the partner's own role do not count
     viable = f"{p['viable']}/{paired} viable" if "viable" in p and paired is not None else ""
@@ -146,11 +168,14 @@ def _cell(value, low: float, high: float, stale: bool = False, note: str = "") -
     if note == "not_paired":
         return f'<td class="np{" stale" if stale else ""}" title="{NOT_PAIRED_TITLE}{stale_title}">same role</td>'
     uncertain = note == "uncertain"
-    mark = '<sup class="unc">?</sup>' if uncertain else ""
+    # what the grey, the dash and the "?" mean in words as well (an accessibility audit: a screen reader heard
+    # "dash" and "question mark", the meaning was in the colour and the tooltip)
+    mark = ('<sup class="unc" aria-hidden="true">?</sup><span class="vh">, alignment uncertain</span>' if uncertain
+            else "")
     if math.isnan(x):
         title = "not viable" + (f"; {UNCERTAIN_TITLE}" if uncertain else "") + stale_title
         classes = " ".join(c for c in ("na", "unc" if uncertain else "", "stale" if stale else "") if c)
-        return f'<td class="{classes}" title="{title}">\u2014{mark}</td>'
+        return f'<td class="{classes}" title="{title}">\u2014<span class="vh"> not viable</span>{mark}</td>'
     bg, fg = heat_colour(x, low, high)
     classes = " ".join(c for c in ("unc" if uncertain else "", "stale" if stale else "") if c)
     titles = "; ".join(t for t in (UNCERTAIN_TITLE if uncertain else "", _STALE_TITLE if stale else "") if t)
@@ -209,13 +234,16 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
     notes = _notes(partners)
     rows = []
     for n, row in enumerate(shown.to_dict("records")):
-        drawing = (molecule_svg(row.get("smiles", ""), str(row["id"]), 120, 80) or "") if n < MAX_DRAWINGS else ""
+        drawing = ((molecule_svg(row.get("smiles", ""), f"structure of {row['id']}", 120, 80) or "")
+                   if n < MAX_DRAWINGS else "")
         # the id ends its cell or comes before the name, which is isolated from it (a direction mark in either
         # reordered the other)
         label = esc(row["id"]) + (f"<br><small>{isolated(esc(row['name']))}</small>" if row.get("name") else "")
         cells = "".join(_cell(row.get(p), low, high, p in stale, notes.get(p, {}).get(str(row["id"]), ""))
                         for p in ids)
-        rows.append(f'<tr><td class="cand">{drawing}{label}</td>{cells}<td>{esc(row.get("best_partner") or "—")}</td></tr>')
+        # the candidate cell is the row's header (an accessibility audit: no row headers)
+        rows.append(f'<tr><th scope="row" class="cand">{drawing}{label}</th>{cells}'
+                    f'<td>{esc(row.get("best_partner") or "—")}</td></tr>')
     more = (f"<p>{len(matrix) - len(shown)} more rows are in matrix.csv.</p>" if len(matrix) > len(shown) else "")
     model = esc((meta.get("device") or {}).get("model", "not recorded"))
     when = created or datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
@@ -226,19 +254,23 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
         '<meta name="viewport" content="width=device-width, initial-scale=1">'
         f"<title>Partner matrix: {len(matrix)} candidates x {len(ids)} partners</title>"
         f"<style>{_STYLE}</style></head><body>\n"
-        f"<h1>Partner matrix: {len(matrix)} candidates \u00d7 {len(ids)} partners</h1>\n"
+        f"<header><h1>Partner matrix: {len(matrix)} candidates \u00d7 {len(ids)} partners</h1></header>\n<main>\n"
         "<p class=\"sub\">Each cell is the candidate's best estimated power-conversion efficiency against that "
         f"partner (device model: {model}), among its pairs that pass the filters and are viable; a grey cell "
-        "is a pair that is not viable, a hatched \u201csame role\u201d cell a candidate of the partner's own role "
-        "(not paired), and a cell marked ? a pair whose alignment is uncertain (P(aligned) between 0.25 and 0.75). "
+        "with \u2014 is a pair that is not viable, a hatched \u201csame role\u201d cell a candidate of the "
+        "partner's own role (not paired), and a cell marked ? a pair whose alignment is uncertain (P(aligned) "
+        "between 0.25 and 0.75). "
         "A column head counts the viable pairs among the candidates that pair with that partner. Estimates for screening, not measurements: follow a partner's link for "
         "its ranking, uncertainties and flags.</p>\n"
         + _stale_banner(meta.get("stale"))
         + (f'<p class="caution">{caution}</p>\n' if caution else "")
         + f"{_legend(low, high)}"
-        f"<div class=\"tablewrap\"><table><thead><tr><th class=\"cand\" scope=\"col\">candidate</th>{head}"
+        # a named region the keyboard can scroll, a named table (an accessibility audit)
+        '<div class="tablewrap" role="region" tabindex="0" aria-labelledby="matrix-caption"><table>'
+        f'<caption class="vh" id="matrix-caption">Best PCE estimate of each candidate against each partner</caption>'
+        f"<thead><tr><th class=\"cand\" scope=\"col\">candidate</th>{head}"
         f"<th scope=\"col\">best partner</th></tr></thead>\n"
-        f"<tbody>{''.join(rows)}</tbody></table></div>\n{more}"
+        f"<tbody>{''.join(rows)}</tbody></table></div>\n{more}</main>\n"
         f"<footer>dascreen {esc(__version__)} \u00b7 {esc(when)} \u00b7 matrix.csv holds every row</footer>"
         "\n</body></html>\n"
     )

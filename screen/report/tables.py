@@ -19,7 +19,8 @@ from screen.report.format import (data_values, esc, fmts, get, has_text, isolate
                                   text, texts, truthies)
 
 __all__ = ["with_level_details", "select_shortlist", "shortlist_table", "full_table", "not_ranked_table",
-           "not_viable_table", "capped_note", "target_label", "CAPPED_MARK"]
+           "not_viable_table", "capped_note", "target_label", "table_region", "caption", "smiles_code", "flag_item",
+           "CAPPED_MARK"]
 
 _KNOWN_RANKING = {
     "rank", "id", "name", "smiles", "role", "homo_ev", "lumo_ev", "gap_opt_ev", "partner",
@@ -112,16 +113,27 @@ def _flag_codes(value) -> list[str]:
     return codes_of(text(value))
 
 
+def flag_item(words_html: str, info: bool, attrs: str = "", known: bool = True) -> str:
+    """One flag as a list item led by a visible word: "Concern:" for a concern, "Note:" for information, "Flag:" for
+    a code the vocabulary does not know (an accessibility audit: the two kinds differed only by colour).
+
+    Examples
+    --------
+    >>> flag_item("no anchoring group", False)
+    '<li class="flag"><span class="flag-kind">Concern:</span> no anchoring group</li>'
+    >>> flag_item("role assumed", True, ' data-code="role_assumed"')
+    '<li class="flag info" data-code="role_assumed"><span class="flag-kind">Note:</span> role assumed</li>'
+    """
+    cls, word = ("flag info", "Note") if info else ("flag", "Concern") if known else ("flag unknown", "Flag")
+    return f'<li class="{cls}"{attrs}><span class="flag-kind">{word}:</span> {words_html}</li>'
+
+
 def _flags_html(value, meta: dict) -> str:
-    """Bulleted plain-language flags, or a quiet "no concerns" note."""
+    """Bulleted plain-language flags, each led by "Concern:" or "Note:", or a quiet "no concerns" note."""
     codes = _flag_codes(value)
     if not codes:
         return '<span class="ok-note">no concerns flagged</span>'
-
-    def cls(code):
-        return "flag info" if code in INFO_FLAGS else "flag" if code in FLAGS else "flag unknown"
-
-    items = "".join(f'<li class="{cls(c)}" data-code="{esc(c)}">{esc(describe(c, meta))}</li>'
+    items = "".join(flag_item(esc(describe(c, meta)), c in INFO_FLAGS, f' data-code="{esc(c)}"', c in FLAGS)
                     for c in codes)
     return f'<ul class="flags">{items}</ul>'
 
@@ -250,12 +262,66 @@ def _candidate_cell(ident: str, name, role, smiles=None, representation="", chai
             title += f"; no chain limit: the atom limit left {n_max} oligomer(s), so the levels are those of n = {n_max}"
         label = "polymer" + (f" n\u2264{n_max}" if n_max else "") + (
             " \u00b7 no chain limit" if short else " \u00b7 fit poor" if quality == "poor" else "")
-        parts.append(f'<span class="role role-other" title="{esc(title)}">{esc(label)}</span>')
+        # the details in words too, not in the tooltip only (an accessibility audit; printed by the style sheet)
+        parts.append(f'<span class="role role-other" title="{esc(title)}">{esc(label)}'
+                     f'<span class="vh"> \u2014 {esc(title)}</span></span>')
     if smiles is not None:
         smi = text(smiles)
         if smi:
-            parts.append(f'<code class="smi" title="{esc(smi)}">{esc(shorten(smi, 48))}</code>')
-    return f'<td class="cand" data-value="{esc(ident)}">' + "".join(parts) + "</td>"
+            # hidden from screen readers here, where it would lengthen the row header read with every cell of the
+            # row; the whole SMILES is read in the structure cell (:func:`_structure_cell`)
+            parts.append(f'<code class="smi" title="{esc(smi)}" aria-hidden="true">{esc(shorten(smi, 48))}</code>')
+    # the row's header cell (an accessibility audit: no table had row headers)
+    return f'<th scope="row" class="cand" data-value="{esc(ident)}">' + "".join(parts) + "</th>"
+
+
+def smiles_code(smiles: str, width: int) -> str:
+    """``<code class="smi">`` with a SMILES shortened to ``width`` characters, the whole of it in the tooltip and, when
+    shortened, for screen readers (an accessibility audit: the full SMILES was in the tooltip only).
+
+    Examples
+    --------
+    >>> smiles_code("CCO", 48)
+    '<code class="smi" title="CCO">CCO</code>'
+    >>> print(smiles_code("C" * 10, 6))  # doctest: +NORMALIZE_WHITESPACE
+    <code class="smi" title="CCCCCCCCCC"><span aria-hidden="true">CCCCC…</span><span
+    class="vh">CCCCCCCCCC</span></code>
+    """
+    short = shorten(smiles, width)
+    if short == smiles:
+        return f'<code class="smi" title="{esc(smiles)}">{esc(short)}</code>'
+    return (f'<code class="smi" title="{esc(smiles)}"><span aria-hidden="true">{esc(short)}</span>'
+            f'<span class="vh">{esc(smiles)}</span></code>')
+
+
+def caption(table_id: str, words: str) -> str:
+    """A table's visually hidden caption, ``id="<table id>-caption"`` (an accessibility audit: no table had a name;
+    the heading above it names it on screen).
+
+    Examples
+    --------
+    >>> caption("full-table", "Every ranked candidate")
+    '<caption class="vh" id="full-table-caption">Every ranked candidate</caption>'
+    """
+    return f'<caption class="vh" id="{table_id}-caption">{words}</caption>'
+
+
+def table_region(html: str, table_id: str, wide: bool = False) -> str:
+    """``<div class="tablewrap">`` around a table: a region named by the table's caption that the keyboard can focus
+    and scroll (an accessibility audit: at 200 % zoom the columns right of the screen were out of the keyboard's
+    reach); a plain wrapper around a note that stands in for an empty table.
+
+    Examples
+    --------
+    >>> table_region('<table id="t"></table>', "t", wide=True)
+    '<div class="tablewrap wide" role="region" tabindex="0" aria-labelledby="t-caption"><table id="t"></table></div>'
+    >>> table_region('<p class="quiet">Every ranked pair is viable.</p>', "t")
+    '<div class="tablewrap"><p class="quiet">Every ranked pair is viable.</p></div>'
+    """
+    cls = "tablewrap wide" if wide else "tablewrap"
+    if not html.startswith("<table"):
+        return f'<div class="{cls}">{html}</div>'
+    return f'<div class="{cls}" role="region" tabindex="0" aria-labelledby="{table_id}-caption">{html}</div>'
 
 
 def _candidate_cells(frame: pd.DataFrame, ids: list[str], with_smiles: bool) -> list[str]:
@@ -394,18 +460,30 @@ def shortlist_table(rows: pd.DataFrame, meta: dict) -> str:
                    + [(target_label(meta), "num", "descending", "p_above_target"),
                       ("Notes", "", "", "flags")])
     ids = [text(i) for i in _cells(rows, "id")]
-    drawings = []
-    for ident, smiles in zip(ids, _cells(rows, "smiles")):
-        svg = molecule_svg(text(smiles), f"structure of {ident}")
-        drawing = svg if svg is not None else '<span class="nostruct">no structure available</span>'
-        drawings.append(f'<td class="struct">{drawing}</td>')
+    drawings = [_structure_cell(ident, text(smiles)) for ident, smiles in zip(ids, _cells(rows, "smiles"))]
     notes = [f'<td class="notes">{_flags_html(flags, meta)}</td>' for flags in _cells(rows, "flags")]
     body = _table_rows(ids, [_rank_cells(rows), drawings, _candidate_cells(rows, ids, with_smiles=True),
                              *_level_columns(rows), _pce_cells(rows, meta), _prob_cells(rows), notes])
     if not body:
         body.append('<tr><td colspan="13" class="empty">no candidates to show</td></tr>')
-    return (f'<table class="sortable shortlist" id="shortlist-table">{head}<tbody>'
+    return ('<table class="sortable shortlist" id="shortlist-table">'
+            + caption("shortlist-table", "Shortlisted candidates") + f'{head}<tbody>'
             + "\n".join(body) + "</tbody></table>")
+
+
+def _structure_cell(ident: str, smiles: str) -> str:
+    """The drawing of one shortlisted structure and, for screen readers, its whole SMILES (an accessibility audit: the
+    SMILES was whole in a tooltip only; the candidate cell shows it shortened).
+
+    Examples
+    --------
+    >>> _structure_cell("X", "")
+    '<td class="struct"><span class="nostruct">no structure available</span></td>'
+    """
+    svg = molecule_svg(smiles, f"structure of {ident}")
+    drawing = svg if svg is not None else '<span class="nostruct">no structure available</span>'
+    said = f'<span class="vh">SMILES {esc(smiles)}</span>' if smiles else ""
+    return f'<td class="struct">{drawing}{said}</td>'
 
 
 def _compact_notes(flag_cells: list, meta: dict) -> list[str]:
@@ -438,7 +516,8 @@ def full_table(ranking: pd.DataFrame, meta: dict) -> str:
                              _compact_notes(_cells(ranking, "flags"), meta), *extras])
     if not body:
         body.append('<tr><td colspan="15" class="empty">the ranking is empty</td></tr>')
-    return (f'<table class="sortable full" id="full-table">{head}<tbody>'
+    return ('<table class="sortable full" id="full-table">' + caption("full-table", "Every ranked candidate")
+            + f'{head}<tbody>'
             + "\n".join(body) + "</tbody></table>")
 
 
@@ -483,7 +562,8 @@ def not_ranked_table(levels: pd.DataFrame, ranking: pd.DataFrame) -> tuple[str, 
     body = _unranked_rows(levels, ranking)
     if not body:
         return '<p class="quiet">Every input row was ranked.</p>', 0
-    table = ('<table class="unranked" id="not-ranked-table"><thead><tr><th scope="col">Id</th>'
+    table = ('<table class="unranked" id="not-ranked-table">' + caption("not-ranked-table", "Input rows not ranked")
+             + '<thead><tr><th scope="col">Id</th>'
              '<th scope="col">Name</th><th scope="col">Status</th><th scope="col">Reason</th>'
              '<th scope="col">SMILES as given</th></tr></thead><tbody>' + "\n".join(body)
              + "</tbody></table>")
@@ -514,7 +594,8 @@ def not_viable_table(ranking: pd.DataFrame, meta: dict | None = None) -> tuple[s
     ranks = [int(r) for r in (num(x) for x in _cells(bad, "rank")) if not math.isnan(r)]
     words = "" if not ranks else (f"rank {ranks[0]}" if min(ranks) == max(ranks)
                                   else f"ranks {min(ranks)}\u2013{max(ranks)}")
-    table = ('<table class="unranked" id="not-viable-table"><thead><tr><th scope="col">Rank</th>'
+    table = ('<table class="unranked" id="not-viable-table">'
+             + caption("not-viable-table", "Ranked pairs that are not viable") + '<thead><tr><th scope="col">Rank</th>'
              '<th scope="col">Id</th><th scope="col">Name</th><th scope="col">Reason</th>'
              '<th scope="col">SMILES as given</th></tr></thead><tbody>' + "\n".join(_not_viable_body(bad, meta))
              + "</tbody></table>")
@@ -529,7 +610,7 @@ def _smiles_cells(values: list) -> list[str]:
         smi = text(value)
         cell = done.get(smi)
         if cell is None:
-            cell = done[smi] = f'<td><code class="smi" title="{esc(smi)}">{esc(shorten(smi, 60))}</code></td>'
+            cell = done[smi] = f"<td>{smiles_code(smi, 60)}</td>"
         out.append(cell)
     return out
 
@@ -537,7 +618,8 @@ def _smiles_cells(values: list) -> list[str]:
 def _unranked_row(ident, name, status_html: str, why_html: str, smiles_cell: str) -> str:
     """One row of the not-ranked table: id, name, status badge, reason and SMILES cells."""
     shown = esc(ident)
-    return (f'<tr data-id="{shown}"><td class="cid">{shown}</td><td>{esc(text(name))}</td>'
+    return (f'<tr data-id="{shown}"><th scope="row"><span class="cid">{shown}</span></th>'
+            f'<td>{isolated(esc(text(name)))}</td>'
             f'<td>{status_html}</td><td class="reason">{why_html}</td>{smiles_cell}</tr>')
 
 
@@ -555,7 +637,8 @@ def _not_viable_body(bad: pd.DataFrame, meta: dict | None = None) -> list[str]:
             why = whys[key] = esc(key[0] or "; ".join(describe(c, meta) for c in _flag_codes(key[1]))
                                   or "no reason recorded")
         shown = esc(ident)
-        body.append(f'<tr data-id="{shown}">{rank}<td class="cid">{shown}</td><td>{esc(text(name))}</td>'
+        body.append(f'<tr data-id="{shown}">{rank}<th scope="row"><span class="cid">{shown}</span></th>'
+                    f'<td>{isolated(esc(text(name)))}</td>'
                     f'<td class="reason">{why}</td>{cell}</tr>')
     return body
 

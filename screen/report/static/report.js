@@ -11,6 +11,18 @@
     return raw === "" ? null : raw;
   }
   var collator = new Intl.Collator(undefined, {numeric: true, sensitivity: "base"});
+  // the words a screen reader hears after a sort (an accessibility audit: nothing was announced)
+  var status = null;
+  function headerName(th) {
+    var copy = th.cloneNode(true);
+    Array.prototype.forEach.call(copy.querySelectorAll(".unit, .vh"), function (e) { e.parentNode.removeChild(e); });
+    return copy.textContent.replace(/\s+/g, " ").trim();
+  }
+  function announce(table, th, dir) {
+    if (!status) { return; }
+    var name = table.caption ? table.caption.textContent.replace(/\s+/g, " ").trim() : "";
+    status.textContent = (name ? name + " sorted by " : "Sorted by ") + headerName(th) + ", " + dir;
+  }
   function sortBy(table, th, col) {
     var kind = th.getAttribute("data-sort");
     var current = th.getAttribute("aria-sort");
@@ -33,16 +45,33 @@
     body.appendChild(frag);
     Array.prototype.forEach.call(th.parentNode.cells, function (h) { h.removeAttribute("aria-sort"); });
     th.setAttribute("aria-sort", dir);
+    announce(table, th, dir);
   }
-  Array.prototype.forEach.call(document.querySelectorAll("table.sortable"), function (table) {
+  var sortable = document.querySelectorAll("table.sortable");
+  if (sortable.length) {
+    status = document.createElement("p");
+    status.className = "vh";
+    status.id = "sort-status";
+    status.setAttribute("aria-live", "polite");
+    (document.querySelector("main") || document.body).appendChild(status);
+  }
+  Array.prototype.forEach.call(sortable, function (table) {
     if (!table.tHead || !table.tBodies.length) { return; }
     Array.prototype.forEach.call(table.tHead.rows[0].cells, function (th, col) {
       if (!th.hasAttribute("data-sort")) { return; }
       th.classList.add("js-sort");
-      th.tabIndex = 0;
-      th.title = "Sort by this column";
+      // the header's content in a button: a control with a role and a name, reached by Tab, pressed with Enter or
+      // Space; aria-sort stays on the th (an accessibility audit: a focusable th had no role and its name took the
+      // arrow glyph)
+      var button = document.createElement("button");
+      button.type = "button";
+      button.title = "Sort by this column";
+      if (th.querySelector(".unit")) { button.className = "stack"; }  // the unit's line, then the arrow's
+      while (th.firstChild) { button.appendChild(th.firstChild); }
+      th.appendChild(button);
       th.addEventListener("click", function () { sortBy(table, th, col); });
       th.addEventListener("keydown", function (ev) {
+        if (ev.target !== th) { return; }  // Enter or Space on the button arrives as its click
         if (ev.key === "Enter" || ev.key === " ") { ev.preventDefault(); sortBy(table, th, col); }
       });
     });
