@@ -30,7 +30,7 @@ from __future__ import annotations
 import functools
 import hashlib
 
-from rdkit import Chem, RDLogger, rdBase
+from rdkit import Chem, rdBase
 
 from screen.errors import InputError
 
@@ -118,8 +118,8 @@ def canonical(smiles: str) -> str:
     >>> canonical("[*:1]c1ccc([*:2])s1"), canonical("C1CC")
     ('*c1ccc(*)s1', '')
     """
-    RDLogger.DisableLog("rdApp.*")
-    mol = Chem.MolFromSmiles(smiles)
+    with rdBase.BlockLogs():  # an unreadable SMILES is '' here; the scoped block leaves RDKit's logging as it was
+        mol = Chem.MolFromSmiles(smiles)
     if mol is None:
         return ""
     for atom in mol.GetAtoms():

@@ -41,7 +41,12 @@ optical gap of the pair.
 ΔLUMO ≥ 0.3 eV (with ``absorber='both'`` also ΔHOMO ≥ 0.3 eV and the smaller
 gap sets the current).
 
-Both: :math:`\\mathrm{PCE} = V_{oc} J_{sc}\\, \\mathrm{FF} / P_{in}`; Voc is
+Both: a pair whose model Jsc (at the model's EQE and charge-generation yields) is below
+:data:`screen.viability.JSC_MIN_MA_CM2` — written as 0 — is not viable, flagged by the factor that makes it vanish
+(:func:`screen.viability.dark_current`: the absorber gap, ``absorber_gap_invalid``, or an offset whose yield
+1 − exp(−Δ/Δ0) leaves no current — with the shipped Δ0 = 0.01 eV an offset below 0.02–0.4 µeV at gaps of 1–3 eV —,
+``lumo_offset_low``/``homo_offset_low``), in :meth:`DeviceModel.evaluate` and in the sampler's kernel alike.
+:math:`\\mathrm{PCE} = V_{oc} J_{sc}\\, \\mathrm{FF} / P_{in}`; Voc is
 capped at the detailed-balance Voc of the smallest optical gap of the pair
 (below that gap) and PCE at the detailed-balance limit for the absorber gap
 (:func:`screen.spectrum.sq_limit`), each flagged.
@@ -104,7 +109,7 @@ from screen.spectrum import (
     reference_spectrum,
     sq_pce_pct,
 )
-from screen.viability import OFFSET_TOL_EV, classify
+from screen.viability import OFFSET_TOL_EV, CurrentTerms, classify
 
 __all__ = [
     "DeviceModel",
@@ -555,7 +560,15 @@ class DeviceModel:
         """True where a level the model needs is NaN, broadcast to ``shape``.
 
         Needed: donor HOMO, LUMO and gap and acceptor LUMO; with
-        ``absorber='both'`` also the acceptor HOMO and gap.
+        ``absorber='both'`` also the acceptor HOMO and gap.  The one list of the
+        flagged path (:meth:`figures`), the sampler and its kernel
+        (:func:`screen.devicekernel.pce_samples`).
+
+        Examples
+        --------
+        >>> lv = [np.array([-5.4, -5.4]), -3.9, 1.5, np.array([np.nan, -6.0]), -4.3, 2.0]
+        >>> DeviceModel().needed_missing(lv, (2,)).tolist(), DeviceModel(absorber="donor").needed_missing(lv, (2,)).tolist()
+        ([True, False], [False, False])
         """
         d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap = levels
         needed = [d_homo, d_lumo, d_gap, a_lumo]
@@ -563,7 +576,9 @@ class DeviceModel:
             needed += [a_homo, a_gap]
         missing = np.zeros(shape, dtype=bool)
         for arr in needed:
-            missing |= np.broadcast_to(np.isnan(arr), shape)
+            nan = np.isnan(arr)
+            if nan.any():  # the sampler's kernel calls this for every block: most have no hole
+                missing |= np.broadcast_to(nan, shape)
         return missing
 
     # ------------------------------------------------------------ the physics
@@ -610,10 +625,14 @@ class DeviceModel:
             absorbs = np.asarray(acceptor_absorbs, dtype=bool)
             g_lo = self._absorber_gap(np.asarray(levels[2], float), np.asarray(levels[5], float), g_lo, absorbs)
             jsc = np.where(absorbs, jsc, t_d.jsc)
+            current = CurrentTerms(*(np.where(absorbs, b, d) for b, d in zip(t.current, t_d.current)))
             shape = np.broadcast_shapes(shape, absorbs.shape)
+        else:
+            current = t.current
         missing = self.needed_missing(levels, shape)
         masks = classify(delta_lumo, delta_homo, g_lo, voc_raw, missing, min_lumo=self.value("min_delta_lumo_ev"),
-                         min_homo=self.value("min_delta_homo_ev"), check_homo_offset=self.check_homo_offset)
+                         min_homo=self.value("min_delta_homo_ev"), check_homo_offset=self.check_homo_offset,
+                         current=current)
         viable = masks["viable"]
         with np.errstate(invalid="ignore"):
             safe_lo = np.where(np.isfinite(g_lo) & (g_lo > 0), g_lo, 2.0)  # placeholder keeps NaN out
@@ -659,13 +678,15 @@ class DeviceModel:
         """
         jsc_unit = (lambda g: jsc_ma_cm2(g, 1.0)) if jsc_unit is None else jsc_unit
         loss = np.asarray(loss_ev, dtype=float)
-        out = pce_samples(self, levels, loss, jsc_unit, self._sq_pct(sq_pct), sq_below_ev, ff=ff, sq_voc=sq_voc)
         if self.absorber != "both" or acceptor_absorbs is None or np.all(acceptor_absorbs):
-            return out
-        # viable in the both-absorb kernel (its offset checks) → the donor-absorber efficiency of that sample
+            return pce_samples(self, levels, loss, jsc_unit, self._sq_pct(sq_pct), sq_below_ev, ff=ff, sq_voc=sq_voc)
+        out, aligned = pce_samples(self, levels, loss, jsc_unit, self._sq_pct(sq_pct), sq_below_ev, ff=ff,
+                                   sq_voc=sq_voc, return_aligned=True)
+        # viable in the both-absorb kernel but for its current (its offset checks) → the donor-absorber efficiency
+        # of that sample, held to the donor-absorber current as figures() holds it
         donor = pce_samples(self._donor_absorber_view, levels, loss, jsc_unit, self._sq_pct(sq_pct), sq_below_ev,
                             ff=ff, sq_voc=sq_voc)
-        return np.where(np.asarray(acceptor_absorbs, dtype=bool), out, np.where(out > 0, donor, 0.0))
+        return np.where(np.asarray(acceptor_absorbs, dtype=bool), out, np.where(aligned, donor, 0.0))
 
     def pce_pct(self, donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev=None, acceptor_lumo_ev=None,
                 acceptor_gap_ev=None, *, acceptor_class=None, caller: str = "pce_pct()") -> np.ndarray:
@@ -730,7 +751,10 @@ class DeviceModel:
         the pair (``voc_capped``), nor, in the fitted model, that gap less the smallest
         total loss E_g − qVoc of the fitted devices (``loss_floor``), and PCE never
         exceeds the detailed-balance limit for the absorber gap (``pce_capped``).  An offset counts as meeting its
-        threshold if it is at most 1e-9 eV below it.
+        threshold if it is at most 1e-9 eV below it.  A Jsc below :data:`screen.viability.JSC_MIN_MA_CM2`
+        (written as 0) makes the pair not viable: ``absorber_gap_invalid`` where the photons above the absorber gap
+        fall short even with every charge-generation yield 1, else ``lumo_offset_low``/``homo_offset_low`` for the
+        offset whose yield makes it vanish (:func:`screen.viability.dark_current`).
 
         References
         ----------

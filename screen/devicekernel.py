@@ -32,7 +32,7 @@ import numpy as np
 
 from screen.devicepars import slope_loss
 from screen.spectrum import as_output, jsc_ma_cm2, sq_voc_v
-from screen.viability import gap_valid, offset_clears
+from screen.viability import CurrentTerms, gap_valid, jsc_written, offset_clears
 
 __all__ = ["PairTerms", "pair_terms", "pce_samples", "generation_yield", "voc_v"]
 
@@ -54,7 +54,8 @@ def generation_yield(delta, scale: float):
 @dataclass(frozen=True)
 class PairTerms:
     """Offsets, gaps [eV], Voc before caps [V], Jsc [mA cm⁻²] and the voltage loss applied [eV] of pairs
-    (see :func:`pair_terms`)."""
+    (see :func:`pair_terms`); ``current``: the Jsc with its factors for the current rule
+    (:class:`screen.viability.CurrentTerms`)."""
 
     delta_lumo: np.ndarray
     delta_homo: np.ndarray
@@ -65,6 +66,7 @@ class PairTerms:
     loss: np.ndarray | float = 0.0
     voc_cap: np.ndarray | float = np.nan
     floored: np.ndarray | bool = False
+    current: CurrentTerms | None = None
 
 
 def _slope(model) -> tuple[float, float, float, float]:
@@ -138,7 +140,9 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None, sq_voc=None) -> PairTerms:
         (fitted); ``jsc`` is the model's current whether the pair is viable or
         not (callers apply the classification); ``loss`` is the loss actually applied (the class loss,
         grown with E_CT when the fitted model has a loss slope); ``voc_cap`` is :func:`voc_limit` of the
-        smallest optical gap of the pair.
+        smallest optical gap of the pair; ``current`` the same Jsc with every yield 1, with the LUMO
+        offset's yield 1 and with the HOMO offset's yield 1 (:func:`screen.viability.dark_current` names the
+        factor that leaves a pair no written current).
     """
     jsc_unit = (lambda g: jsc_ma_cm2(g, 1.0)) if jsc_unit is None else jsc_unit
     d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap = levels
@@ -168,16 +172,25 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None, sq_voc=None) -> PairTerms:
         j_lo, j_hi = jsc_unit(_safe_gap(g_lo)), jsc_unit(_safe_gap(np.maximum(d_gap, a_gap)))
         if scale <= 0:
             jsc = eqe * j_lo
+            current = CurrentTerms(jsc, jsc, jsc, jsc)
         else:
-            eta_lo = np.where(d_gap <= a_gap, eta_d, eta_a)
-            jsc = eqe * ((j_lo - j_hi) * eta_lo + j_hi * 0.5 * (eta_d + eta_a))
+            donor_lower = d_gap <= a_gap
+
+            def both_jsc(e_d, e_a):
+                return eqe * ((j_lo - j_hi) * np.where(donor_lower, e_d, e_a) + j_hi * 0.5 * (e_d + e_a))
+
+            jsc = both_jsc(eta_d, eta_a)
+            current = CurrentTerms(jsc, eqe * j_lo, both_jsc(1.0, eta_a), both_jsc(eta_d, 1.0))
     else:
-        jsc = eqe * jsc_unit(_safe_gap(g_lo)) * eta_d
-    return PairTerms(delta_lumo, delta_homo, g_lo, gap_cap, voc_raw, jsc, loss_ev, voc_limit(gap_cap, sq_voc), floored)
+        photons = eqe * jsc_unit(_safe_gap(g_lo))
+        jsc = photons * eta_d
+        current = CurrentTerms(jsc, photons, photons, jsc)  # the acceptor's excitons do not count
+    return PairTerms(delta_lumo, delta_homo, g_lo, gap_cap, voc_raw, jsc, loss_ev, voc_limit(gap_cap, sq_voc), floored,
+                     current)
 
 
 def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = np.inf, *, ff=None,
-                sq_voc=None) -> np.ndarray:
+                sq_voc=None, return_aligned: bool = False):
     """Efficiency [%] of (sampled) pair levels, 0 where a sample is not viable (no flags).
 
     Parameters
@@ -196,13 +209,21 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
         Fill factor per pair (broadcastable); None uses ``model.value('ff')``.
     sq_voc : callable or None
         Detailed-balance Voc of a gap [V]; None: exact (:func:`screen.spectrum.sq_voc_v`).
+    return_aligned : bool
+        Also return the mask of the samples that pass every rule but the current one (for the donor-absorber
+        view of a pair whose acceptor does not count as an absorber, :meth:`screen.device.DeviceModel.pce_from_levels`).
+
+    Returns
+    -------
+    numpy.ndarray, or (numpy.ndarray, numpy.ndarray of bool) with ``return_aligned``
 
     Notes
     -----
     Same formula as :func:`pair_terms` and the same rules as
     :func:`screen.viability.classify` (type II with ΔHOMO unchecked when NaN,
     offsets at their thresholds: :func:`screen.viability.offset_clears`; an absorber gap inside
-    the spectrum: :func:`screen.viability.gap_valid`; Voc > 0), written
+    the spectrum: :func:`screen.viability.gap_valid`; Voc > 0; the model's Jsc written above 0:
+    :func:`screen.viability.jsc_written`), written
     with in-place operations for the sampler.  Voc is capped at the
     detailed-balance Voc of the smallest gap of the pair (:func:`voc_limit`);
     a sample with a level the model needs missing (:meth:`screen.device.DeviceModel.needed_missing`: with
@@ -218,11 +239,9 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     both = model.absorber == "both"
     dl = np.subtract(d_lumo, a_lumo, out=np.empty(shape))
     ok = offset_clears(dl, min_l)
-    # a level the model needs is missing: not viable (as DeviceModel.needed_missing; with both absorbing the
-    # acceptor HOMO and gap are needed, so a NaN ΔHOMO is unchecked only where the model does not need it)
-    for level in (d_homo, d_lumo, d_gap, a_lumo) + ((a_homo, a_gap) if both else ()):
-        if np.isnan(level).any():
-            ok &= ~np.isnan(level)
+    # a level the model needs is missing: not viable (with both absorbing the acceptor HOMO and gap are needed, so
+    # a NaN ΔHOMO is unchecked only where the model does not need it)
+    ok &= ~model.needed_missing((d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap), shape)
     dh = None
     if both or not np.all(np.isnan(a_homo)):
         dh = np.subtract(d_homo, a_homo, out=np.empty(shape))
@@ -280,12 +299,16 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     elif scale > 0:
         jsc *= dl
         jsc *= -1.0
+    eqe = model.value("eqe")
+    written = jsc_written(np.multiply(jsc, eqe))  # the model's Jsc written above 0 (classify: dark_current)
     voc *= jsc
-    voc *= model.value("eqe") * model.pce_factor_pct(ff)
+    voc *= eqe * model.pce_factor_pct(ff)
     # before the detailed-balance cap: np.fmin would put the limit in place of a NaN efficiency
     if not np.isfinite(voc).all():  # not a number: not viable, 0 (NaN × 0 would stay NaN)
         ok &= np.isfinite(voc)
         np.nan_to_num(voc, copy=False, nan=0.0, posinf=0.0, neginf=0.0)
+    aligned = ok.copy() if return_aligned else None
+    ok &= written
     if np.isfinite(sq_below_ev):
         low = ok & (safe_lo < sq_below_ev)
         if low.any():
@@ -293,7 +316,7 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     else:
         np.fmin(voc, sq_pct(safe_lo), out=voc)
     voc *= ok
-    return voc
+    return (voc, aligned) if return_aligned else voc
 
 
 def voc_v(homo_donor_ev, lumo_acceptor_ev, loss_v=0.3, *, return_mask=False):

@@ -84,10 +84,10 @@ _REGISTRY = (
     Flag("levels_inconsistent", "the computed levels are inconsistent (e.g. an optical gap above the transport "
                                 "gap): the molecule lies outside what the calibration covers", _NV),
     Flag("input_missing", "a level the device model needs is missing, so no efficiency could be estimated", _NV),
-    Flag("absorber_gap_invalid", "the absorber's optical gap is not positive or lies above "
-                                 f"{GAP_MAX_EV:.2f} eV, where the AM1.5G spectrum (it ends at 280 nm = 4.43 eV) "
-                                 f"leaves so few photons that even at EQE = 1 Jsc is below {JSC_MIN_MA_CM2:.5f} mA cm⁻² "
-                                 "(written as 0), so nothing is absorbed", _NV),
+    Flag("absorber_gap_invalid", "the absorber's optical gap is not positive, or lies so high that the AM1.5G "
+                                 "photons above it (the spectrum ends at 280 nm = 4.43 eV) give, at the model's EQE, a "
+                                 f"Jsc below {JSC_MIN_MA_CM2:.5f} mA cm⁻², what a ranking writes as 0 (from "
+                                 f"{GAP_MAX_EV:.2f} eV on even at EQE = 1), so nothing is absorbed", _NV),
     Flag("lumo_inverted", "inverted alignment at the estimated levels: the acceptor's LUMO is not below the "
                           "donor's, so electrons would not move from donor to acceptor", _NV),
     Flag("homo_inverted", "inverted alignment at the estimated levels: the donor's HOMO is not above the "
@@ -259,6 +259,26 @@ def _setting(settings: dict, key: str) -> float:
     return cell_number(_get(settings, "filters", key)) if math.isnan(x) else x
 
 
+#: how an offset threshold that rounds to 0.00 eV is quoted: the fitted model's (type II, the charge-generation
+#: yield 1 − exp(−Δ/Δ0) doing the rest), where an offset is low when its yield leaves no written current
+#: (:func:`screen.viability.dark_current`)
+_NO_THRESHOLD = ("what separates charges (so small an offset that its charge-generation yield leaves a Jsc below "
+                 f"{JSC_MIN_MA_CM2:.5f} mA cm⁻², written as 0)")
+
+
+def _min_offset(x: float) -> str:
+    """An offset threshold as a reason quotes it.
+
+    Examples
+    --------
+    >>> _min_offset(0.3), _min_offset(float("nan")), _min_offset(0.0)[:22]
+    ('0.30 eV', 'the required minimum', 'what separates charges')
+    """
+    if math.isnan(x):
+        return "the required minimum"
+    return _NO_THRESHOLD if _fmt(x) == _fmt(0.0) else f"{_fmt(x)} eV"
+
+
 def describe(code: str, settings: dict | None = None) -> str:
     """Plain-words meaning of one flag, with the run's thresholds quoted.
 
@@ -286,8 +306,8 @@ def describe(code: str, settings: dict | None = None) -> str:
     limit = _setting(settings, "max_heavy_atoms")
     window = "" if math.isnan(g_lo) or math.isnan(g_hi) else f" ({_fmt_bound(g_lo)}\u2013{_fmt_bound(g_hi)} eV)"
     return FLAGS[code].text.format(
-        min_lumo="the required minimum" if math.isnan(min_lumo) else f"{_fmt(min_lumo)} eV",
-        min_homo="the required minimum" if math.isnan(min_homo) else f"{_fmt(min_homo)} eV",
+        min_lumo=_min_offset(min_lumo),
+        min_homo=_min_offset(min_homo),
         window=window,
         limit="" if math.isnan(limit) else f" ({int(limit)})",
     )

@@ -116,8 +116,7 @@ def sd_text(value, limit: int | None = SD_LINE_MAX) -> str:
     >>> sd_text("a\r\nb$$$$"), sd_text(float("nan")), len(sd_text("x" * 5000)), sd_text("x" * 5000)[-4:]
     ('a  b$ $ $ $', '', 200, 'x...')
     """
-    text = "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)
-    text = " ".join(text.replace("\r", "\n").split("\n")).replace("$$$$", "$ $ $ $")
+    text = " ".join(cell_text(value).replace("\r", "\n").split("\n")).replace("$$$$", "$ $ $ $")
     return text if limit is None or len(text) <= limit else text[:limit - 3] + "..."
 
 

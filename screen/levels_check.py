@@ -46,7 +46,7 @@ from screen.errors import InputError
 from screen.io import text_cells
 
 __all__ = ["check_levels", "check_partner", "raise_problems", "row_problems", "sigma_problem", "inconsistent_rows", "quoted",
-           "scoring_calibration",
+           "scoring_calibration", "file_line", "fmt_value", "hartree_hint", "text_row_problems",
            "GAP_EXCESS_TOL_EV",
            "GAP_DEFICIT_MAX_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV", "QUOTE_MAX", "SIGMA_MAX_EV", "HOMO_MAX_EV",
            "FILM_LUMO_MAX_EV", "HARTREE_GAP_MAX_EV"]
@@ -98,7 +98,12 @@ QUOTE_MAX = 60
 E00_RANGE_EV = (1.0, 4.0)
 
 
-def _fmt(x: float) -> str:
+def fmt_value(x: float) -> str:
+    """A number as messages show it: six significant digits, no trailing zeros.
+
+    >>> fmt_value(-5.30), fmt_value(1239.84 / 650)
+    ('-5.3', '1.90745')
+    """
     return f"{x:.6g}"
 
 
@@ -112,7 +117,7 @@ def mv_hint(value: float, unit: str = "V") -> str | None:
     """
     if abs(value) >= 100.0:
         name = "millivolts" if unit == "V" else "millielectronvolts"
-        return f"{_fmt(value)} looks like {name}: write {value / 1000:.3g} {unit}"
+        return f"{fmt_value(value)} looks like {name}: write {value / 1000:.3g} {unit}"
     return None
 
 
@@ -128,9 +133,9 @@ def e00_problem(value: float) -> str | None:
     if not math.isfinite(value) or lo <= value <= hi:
         return None
     if value <= 0 and lo <= -value <= hi:
-        return f"E00 is a positive excitation energy in eV (typically 1.2-3.5 eV for a sensitiser); write {_fmt(-value)}"
+        return f"E00 is a positive excitation energy in eV (typically 1.2-3.5 eV for a sensitiser); write {fmt_value(-value)}"
     if value >= 100.0:
-        return (f"E00 must be in eV; {_fmt(value)} looks like a wavelength in nm: write 1239.84/{_fmt(value)} = "
+        return (f"E00 must be in eV; {fmt_value(value)} looks like a wavelength in nm: write 1239.84/{fmt_value(value)} = "
                 f"{1239.84 / value:.3g} eV")
     return (f"E00 must be in eV and lie in {lo:g}-{hi:g} eV (typically 1.2-3.5 eV for a sensitiser, "
             f"E00 = 1239.84/lambda[nm]); check the units")
@@ -172,15 +177,15 @@ def quoted(value, limit: int = QUOTE_MAX) -> str:
 HARTREE_HOMO_EV, HARTREE_LUMO_EV, HARTREE_GAP_EV = (-9.0, -4.0), (-5.5, -1.5), (0.5, 5.0)
 
 
-def _hartree_hint(value: float, low: float, high: float) -> str:
+def hartree_hint(value: float, low: float, high: float) -> str:
     """How to write ``value`` if it was given in hartree: when ``value`` × 1 Eh lies in (``low``, ``high``) eV,
     where the level or gap it stands for lies ('' otherwise).
 
     Examples
     --------
-    >>> _hartree_hint(-0.2, *HARTREE_HOMO_EV)
+    >>> hartree_hint(-0.2, *HARTREE_HOMO_EV)
     '-0.2 looks like hartree: write -0.2 × 27.2114 = -5.44 eV (1 Eh = 27.2114 eV, CODATA)'
-    >>> _hartree_hint(-1.5, *HARTREE_HOMO_EV), _hartree_hint(-0.45, *HARTREE_LUMO_EV)
+    >>> hartree_hint(-1.5, *HARTREE_HOMO_EV), hartree_hint(-0.45, *HARTREE_LUMO_EV)
     ('', '')
     """
     from screen.constants import HARTREE_EV  # CODATA through scipy.constants; loaded only for this message
@@ -188,7 +193,7 @@ def _hartree_hint(value: float, low: float, high: float) -> str:
     ev = value * HARTREE_EV
     if not low < ev < high:
         return ""
-    return (f"{_fmt(value)} looks like hartree: write {_fmt(value)} × {HARTREE_EV:.4f} = {ev:.2f} eV "
+    return (f"{fmt_value(value)} looks like hartree: write {fmt_value(value)} × {HARTREE_EV:.4f} = {ev:.2f} eV "
             f"(1 Eh = {HARTREE_EV:.4f} eV, CODATA)")
 
 
@@ -209,18 +214,18 @@ def _unit_slip_levels(homo: float, lumo: float, gap: float, film: bool) -> list:
     out = []
     homo_slip = math.isfinite(homo) and HOMO_MAX_EV < homo <= 0
     if homo_slip:
-        hint = _hartree_hint(homo, *HARTREE_HOMO_EV) or "check the units (eV) and the sign"
-        out.append(("homo_ev", homo, f"a HOMO of {_fmt(homo)} eV is no material's (HOMO = -IP: film HOMOs of organic "
+        hint = hartree_hint(homo, *HARTREE_HOMO_EV) or "check the units (eV) and the sign"
+        out.append(("homo_ev", homo, f"a HOMO of {fmt_value(homo)} eV is no material's (HOMO = -IP: film HOMOs of organic "
                                      f"semiconductors lie at about -4.5...-7 eV, deep acceptors lower); {hint}"))
     if math.isfinite(lumo) and HOMO_MAX_EV < lumo <= 0 and (homo_slip or (film and lumo > FILM_LUMO_MAX_EV)):
-        hint = _hartree_hint(lumo, *HARTREE_LUMO_EV) or "check the units (eV) and the sign"
+        hint = hartree_hint(lumo, *HARTREE_LUMO_EV) or "check the units (eV) and the sign"
         said = ("beside this HOMO" if homo_slip else
                 "(no organic semiconductor's film LUMO lies above -1 eV; wide-gap hosts reach about -1.5 eV)")
-        out.append(("lumo_ev", lumo, f"a {'film ' if film else ''}LUMO of {_fmt(lumo)} eV is no organic "
+        out.append(("lumo_ev", lumo, f"a {'film ' if film else ''}LUMO of {fmt_value(lumo)} eV is no organic "
                                      f"semiconductor's {said}; {hint}"))
     if out and math.isfinite(gap) and 0 < gap < HARTREE_GAP_MAX_EV:
-        hint = _hartree_hint(gap, *HARTREE_GAP_EV) or "check the units (eV)"
-        out.append(("gap_opt_ev", gap, f"an optical gap of {_fmt(gap)} eV is no organic absorber's (about 0.6 eV "
+        hint = hartree_hint(gap, *HARTREE_GAP_EV) or "check the units (eV)"
+        out.append(("gap_opt_ev", gap, f"an optical gap of {fmt_value(gap)} eV is no organic absorber's (about 0.6 eV "
                                        f"and up); {hint}"))
     return out
 
@@ -249,10 +254,10 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
     out = []
     film = str(scale).strip().lower() != "gas"
     if math.isfinite(homo) and homo > 0:
-        out.append(("homo_ev", homo, f"HOMO is given as a positive ionisation energy; write it as {_fmt(-homo)} "
+        out.append(("homo_ev", homo, f"HOMO is given as a positive ionisation energy; write it as {fmt_value(-homo)} "
                                      "(vacuum scale, HOMO = -IP < 0)"))
     if math.isfinite(lumo) and lumo > 0 and film:
-        out.append(("lumo_ev", lumo, f"LUMO is given as a positive electron affinity; write it as {_fmt(-lumo)} "
+        out.append(("lumo_ev", lumo, f"LUMO is given as a positive electron affinity; write it as {fmt_value(-lumo)} "
                                      "(vacuum scale, LUMO = -EA < 0 on the film scale)"))
     for col, val in (("homo_ev", homo), ("lumo_ev", lumo)):
         if math.isfinite(val) and val < LEVEL_MIN_EV:
@@ -261,12 +266,12 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
     if not out and typed:
         out += _unit_slip_levels(homo, lumo, gap, film)
     if math.isfinite(homo) and math.isfinite(lumo) and not out and abs(homo - lumo) <= _ROUND_EV:
-        out.append(("homo_ev", homo, f"HOMO and LUMO are equal ({_fmt(homo)}): that is a zero transport gap, which "
+        out.append(("homo_ev", homo, f"HOMO and LUMO are equal ({fmt_value(homo)}): that is a zero transport gap, which "
                                      "no organic semiconductor has, so one value was probably copied into both "
                                      "columns; write HOMO = -IP and LUMO = -EA, the LUMO above the HOMO (e.g. "
                                      "-5.3 and -3.6)"))
     elif math.isfinite(homo) and math.isfinite(lumo) and not out and homo > lumo:
-        out.append(("homo_ev", homo, f"HOMO ({_fmt(homo)}) is above LUMO ({_fmt(lumo)}): the two columns look "
+        out.append(("homo_ev", homo, f"HOMO ({fmt_value(homo)}) is above LUMO ({fmt_value(lumo)}): the two columns look "
                                      "swapped; write the deeper (more negative) level as HOMO"))
     if math.isfinite(gap) and not any(col == "gap_opt_ev" for col, _, _ in out):
         if gap <= 0:
@@ -277,12 +282,12 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
                                            f"1240/{gap:g} = {1239.84 / gap:.2f} eV"))
         elif math.isfinite(homo) and math.isfinite(lumo) and not out:
             if gap > lumo - homo + GAP_EXCESS_TOL_EV + _ROUND_EV:
-                out.append(("gap_opt_ev", gap, f"the optical gap ({_fmt(gap)} eV) exceeds LUMO - HOMO "
-                                               f"({_fmt(lumo - homo)} eV) by more than {GAP_EXCESS_TOL_EV} eV; check "
+                out.append(("gap_opt_ev", gap, f"the optical gap ({fmt_value(gap)} eV) exceeds LUMO - HOMO "
+                                               f"({fmt_value(lumo - homo)} eV) by more than {GAP_EXCESS_TOL_EV} eV; check "
                                                "the gap (absorption onset in eV) or the levels"))
             elif deficit and film and gap < lumo - homo - GAP_DEFICIT_MAX_EV - _ROUND_EV:
-                out.append(("gap_opt_ev", gap, f"the optical gap ({_fmt(gap)} eV) is more than "
-                                               f"{GAP_DEFICIT_MAX_EV} eV below LUMO - HOMO ({_fmt(lumo - homo)} eV), "
+                out.append(("gap_opt_ev", gap, f"the optical gap ({fmt_value(gap)} eV) is more than "
+                                               f"{GAP_DEFICIT_MAX_EV} eV below LUMO - HOMO ({fmt_value(lumo - homo)} eV), "
                                                "more than an exciton binding energy in a film; check the gap "
                                                "(absorption onset in eV) or the levels"))
     for col, val in (sigmas or {}).items():
@@ -367,7 +372,7 @@ def _number(frame: pd.DataFrame, col: str, source: str, ids, finite: bool = Fals
         i = int(np.flatnonzero(bad)[0])
         what = "not a number" if text[i] else "not a finite number"
         shown = quoted(raw.iloc[i]) if text[i] else f"{float(num.iloc[i]):g}"
-        raise InputError(f"{source}: line {_line(frame, i)} (id {quoted(ids[i])}), column {col} = {shown}: {what}; "
+        raise InputError(f"{source}: line {file_line(frame, i)} (id {quoted(ids[i])}), column {col} = {shown}: {what}; "
                          "write the value in eV, e.g. -5.3 (leave the cell empty if unknown)")
     return num.to_numpy(dtype=float)
 
@@ -382,7 +387,7 @@ def _text_problems(frame: pd.DataFrame, ids, computed) -> list:
         if not key:
             out.append((i, "id", ident, "empty; give every row its own id (it names the row in the ranking)"))
         elif key in first:
-            out.append((i, "id", ident, f"the same id as line {_line(frame, first[key])}; give every row its own "
+            out.append((i, "id", ident, f"the same id as line {file_line(frame, first[key])}; give every row its own "
                                         "id (it names the row in the ranking)"))
         else:
             first[key] = i
@@ -412,10 +417,54 @@ def _text_problems(frame: pd.DataFrame, ids, computed) -> list:
     return sorted(out, key=lambda p: p[0])
 
 
-def _line(frame: pd.DataFrame, i: int) -> int:
-    """File line of row ``i`` (header = line 1), from the frame's index when it is the file's row number."""
+def file_line(frame: pd.DataFrame, i: int) -> int:
+    """File line of row ``i`` (header = line 1), from the frame's index when it is the file's row number.
+
+    >>> file_line(pd.DataFrame({"id": ["a", "b"]}, index=[3, 7]), 1)
+    9
+    """
     idx = frame.index[i]
     return int(idx) + 2 if isinstance(idx, (int, np.integer)) else i + 2
+
+
+#: the text cells of a row that :func:`text_row_problems` holds to :func:`screen.prepare.checks.text_row_problem`
+_ROW_TEXT = ("id", "name", "role")
+
+
+def text_row_problems(frame: pd.DataFrame, ids=None, cells=_ROW_TEXT) -> list:
+    r"""``(row, message)`` of the rows of an input table that may not be read at all
+    (:func:`screen.prepare.checks.text_row_problem`, the admission rule of the candidate files): a control character
+    other than TAB, CR and LF (the outputs quote or replace those) in an id, name or role (a NUL went into the rankings and the SD titles, an ESC sequence to the console), a SMILES
+    text longer than the prepare stage reads or of far more heavy atoms than it screens (a 20 000-carbon SMILES in a
+    dye file ran for minutes to 14 GB; a 3000-carbon one stalled the report's drawing and the shortlist's 3-D
+    embedding). The message names the line, the column and the value (cut to :data:`QUOTE_MAX` characters, its
+    control characters escaped) and the fix. Used by :func:`check_levels` and
+    :func:`screen.dyecell.checks.check_dye_file`, so that such a file is refused whole.
+
+    Examples
+    --------
+    >>> f = pd.DataFrame({"id": ["a", "E\x1b[31mRED"], "smiles": ["CCO", "CC"]})
+    >>> print(text_row_problems(f)[0][1])  # doctest: +ELLIPSIS
+    line 3, column id = 'E\x1b[31mRED': the id 'E\x1b[31mRED' contains U+001B (ESC), a control character; delete it
+    >>> text_row_problems(pd.DataFrame({"id": ["big"], "smiles": ["C" * 12000]}))[0][1][:60]
+    "line 2 (id 'big'), column smiles = 'CCCCCCCCCCCCCCCCCCCCCCCC"
+    """
+    from screen.prepare.checks import text_row_problem
+
+    if ids is None:
+        ids = frame["id"].pipe(text_cells).to_numpy() if "id" in frame else [""] * len(frame)
+    texts = {c: frame[c].pipe(text_cells).to_numpy() for c in cells if c in frame}
+    smiles = frame["smiles"].pipe(text_cells).to_numpy() if "smiles" in frame else [""] * len(frame)
+    out = []
+    for i in range(len(frame)):
+        col, why = text_row_problem({c: v[i] for c, v in texts.items()}, smiles[i], line_breaks=True)
+        if not col:
+            continue
+        value = texts[col][i] if col in texts else smiles[i]
+        named = f" (id {quoted(ids[i])})" if col != "id" else ""
+        fix = "; give the structure meant, or leave the smiles cell empty" if col == "smiles" else ""
+        out.append((i, f"line {file_line(frame, i)}{named}, column {col} = {quoted(value)}: {why}{fix}"))
+    return out
 
 
 def check_levels(frame: pd.DataFrame, source: str = "levels table", computed=None, calibration: str | None = None
@@ -464,8 +513,10 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table", computed=Non
     homo, lumo, gap = (_number(frame, c, source, ids, finite=True) for c in ("homo_ev", "lumo_ev", "gap_opt_ev"))
     sig = {c: _number(frame, c, source, ids) for c in _SIGMAS if c in frame}
     scale = frame["scale"].astype(str).to_numpy() if "scale" in frame else np.full(len(frame), "film")
-    found = [(i, f"line {_line(frame, i)}" + (f" (id {quoted(ids[i])})" if col != "id" else "") + f", column {col} "
+    found = [(i, f"line {file_line(frame, i)}" + (f" (id {quoted(ids[i])})" if col != "id" else "") + f", column {col} "
                  f"= {quoted(value)}: {msg}") for i, col, value, msg in _text_problems(frame, ids, computed)]
+    # a row with a control character or a structure too large to read: refused as the candidate files refuse it
+    found += text_row_problems(frame, ids)
     for i in range(len(frame)):
         if computed[i]:  # levels outside the calibration's domain: the ranking's flag levels_inconsistent
             problems = [(c, s[i], sigma_problem(s[i], computed=True)) for c, s in sig.items()]
@@ -476,7 +527,7 @@ def check_levels(frame: pd.DataFrame, source: str = "levels table", computed=Non
         else:
             problems = row_problems(homo[i], lumo[i], gap[i], scale[i], {c: s[i] for c, s in sig.items()})
         for col, val, msg in problems:
-            found.append((i, f"line {_line(frame, i)} (id {quoted(ids[i])}), column {col} = {val:g}: {msg}"))
+            found.append((i, f"line {file_line(frame, i)} (id {quoted(ids[i])}), column {col} = {val:g}: {msg}"))
     raise_problems(source, [text for _, text in sorted(found, key=lambda p: p[0])])
 
 

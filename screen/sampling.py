@@ -13,8 +13,8 @@ between pairs carry less sampling noise.
 The efficiency of every sample comes from the device model itself
 (:meth:`screen.device.DeviceModel.pce_from_levels`: classification by the
 rules of the point estimate — the offsets (:func:`screen.viability.offset_clears`)
-and an absorber gap inside the spectrum, 0 < E_g ≤ :data:`screen.viability.GAP_MAX_EV` (4.12 eV: above it
-even EQE = 1 gives a Jsc written as 0; :func:`screen.viability.gap_valid`) —, Voc and gap caps, detailed-balance
+and an absorber gap inside the spectrum, 0 < E_g < :data:`screen.viability.GAP_MAX_EV` (4.13 eV, a pre-filter)
+with the model's own Jsc written above 0 (:func:`screen.viability.jsc_written`) —, Voc and gap caps, detailed-balance
 cap of each sample's own gap, exact below the tables' 0.25 eV), so the spread is
 that of the chosen model; a sample that is not viable counts as 0 %.  The work is cut into the steps of
 :func:`sample_pce`:
@@ -44,7 +44,7 @@ from screen.device import DeviceModel
 from screen.spectrum import as_output, jsc_ma_cm2, sq_limit
 
 __all__ = ["sample_pce", "DEFAULT_SEED", "DEFAULT_N_SAMPLES", "MAX_N_SAMPLES", "CENTRAL_RANGE", "EDGE_TOL_SIGMA",
-           "EDGE_TOL_PCT"]
+           "EDGE_TOL_PCT", "jsc_fast", "sq_fast", "voc_fast"]
 
 #: default seed of the sampler (same input → same numbers)
 DEFAULT_SEED = 20240601
@@ -138,18 +138,18 @@ def _jsc_lookup_unit_eqe(gap_ev: np.ndarray, ibuf=None, tmp=None) -> np.ndarray:
     return _lookup(_tables()[0], gap_ev)
 
 
-def _jsc_fast(gap_ev):
+def jsc_fast(gap_ev):
     """Jsc at EQE = 1 [mA cm⁻²]; below the grid the table's first value is exact (the spectrum starts at
     0.31 eV, so every gap below it absorbs every photon)."""
     return _lookup(_tables()[0], gap_ev)
 
 
-def _sq_fast(gap_ev):
+def sq_fast(gap_ev):
     """Detailed-balance efficiency [%]: the table, exact below its grid."""
     return _lookup(_tables()[1], gap_ev, _sq_pct_exact)
 
 
-def _voc_fast(gap_ev):
+def voc_fast(gap_ev):
     """Detailed-balance Voc [V]: the table, exact below its grid."""
     return _lookup(_tables()[2], gap_ev, _voc_exact)
 
@@ -213,8 +213,8 @@ def _flat_pair(model: DeviceModel, levels, shape, sigmas: dict, acceptor_class=N
 def _anchors(model: DeviceModel, pair: _FlatPair):
     """Exact-minus-tabulated efficiency at the mean levels [%], the viable rows and the exact efficiency [%]."""
     exact = model.figures(pair.levels, pair.loss, ff=pair.ff, acceptor_absorbs=pair.absorbs)
-    tab = model.pce_from_levels(pair.levels, pair.loss, ff=pair.ff, jsc_unit=_jsc_fast, sq_pct=_sq_fast,
-                                sq_voc=_voc_fast, acceptor_absorbs=pair.absorbs)
+    tab = model.pce_from_levels(pair.levels, pair.loss, ff=pair.ff, jsc_unit=jsc_fast, sq_pct=sq_fast,
+                                sq_voc=voc_fast, acceptor_absorbs=pair.absorbs)
     corr = np.where(np.isfinite(exact["pce_pct"]) & np.isfinite(tab), exact["pce_pct"] - tab, 0.0)
     return np.asarray(corr, dtype=float), np.asarray(exact["viable"], dtype=bool), np.asarray(exact["pce_pct"])
 
@@ -241,8 +241,8 @@ def _pce_samples(model: DeviceModel, pair: _FlatPair, a: int, b: int, z, corr, s
             sampled.append(x)
         else:
             sampled.append(level[a:b, None])
-    v = np.array(model.pce_from_levels(sampled, pair.loss[a:b, None], ff=pair.ff[a:b, None], jsc_unit=_jsc_fast,
-                                       sq_pct=_sq_fast, sq_voc=_voc_fast, sq_below_ev=sq_below,
+    v = np.array(model.pce_from_levels(sampled, pair.loss[a:b, None], ff=pair.ff[a:b, None], jsc_unit=jsc_fast,
+                                       sq_pct=sq_fast, sq_voc=voc_fast, sq_below_ev=sq_below,
                                        acceptor_absorbs=pair.absorbs[a:b, None]), dtype=float)
     if v.shape[1] != z.shape[1]:
         v = np.repeat(v, z.shape[1], axis=1)

@@ -33,22 +33,26 @@ Examples
 from __future__ import annotations
 
 from functools import lru_cache
+from typing import NamedTuple
 
 import numpy as np
 
 __all__ = ["classify", "VIABILITY_MASKS", "role_from_levels", "acceptor_class_of", "GAP_MAX_EV",
-           "JSC_MIN_MA_CM2", "OFFSET_TOL_EV", "offset_clears", "gap_valid"]
+           "JSC_MIN_MA_CM2", "OFFSET_TOL_EV", "offset_clears", "gap_valid", "jsc_written", "CurrentTerms",
+           "dark_current"]
 
 #: Offsets within this of a threshold count as meeting it (−4.0 − (−4.3) is 0.2999999999999998). [eV]
 OFFSET_TOL_EV = 1e-9
 #: A Jsc below this is written as 0 with the rankings' 4 decimals (the dye-cell mode's ``no_sunlight`` limit too,
 #: :data:`screen.dyecell.model.JSC_MIN_MA_CM2`). [mA cm⁻²]
 JSC_MIN_MA_CM2 = 5e-5
-#: Largest absorber gap, in hundredths of an eV, whose AM1.5G photons above it give at least
-#: :data:`JSC_MIN_MA_CM2` at EQE = 1 (ASTM G173-03: 6.6e-5 mA cm⁻² at 4.12 eV, 4.1e-5 at 4.13 eV; the table ends at
-#: hc/280 nm = 4.428 eV). A wider absorber gap gets no photocurrent that a ranking could write (it was viable with
-#: Jsc 2.5e-21 mA cm⁻² and PCE written 0.0 at 4.40 eV); checked against the spectrum in the tests. [eV]
-GAP_MAX_EV = 4.12
+#: Absorber gap, in hundredths of an eV, from which on the AM1.5G photons above it give less than
+#: :data:`JSC_MIN_MA_CM2` even at EQE = 1 (ASTM G173-03: 4.1e-5 mA cm⁻² at 4.13 eV, 6.6e-5 at 4.12 eV, the crossing
+#: near 4.126 eV; the table ends at hc/280 nm = 4.428 eV); checked against the spectrum in the tests.  Not a rule of
+#: its own: the rule is the model's own Jsc (:func:`dark_current`, an EQE ≤ 1 and yields ≤ 1 give no more than the
+#: photons at EQE = 1, which fall with the gap), and :func:`gap_valid` uses this bound as a cheap pre-filter that can
+#: never refuse a pair the Jsc rule would keep. [eV]
+GAP_MAX_EV = 4.13
 #: masks returned by :func:`classify`, in flag-registry order
 VIABILITY_MASKS = ("input_missing", "absorber_gap_invalid", "lumo_inverted", "homo_inverted", "lumo_offset_low",
                    "homo_offset_low", "voc_nonpositive")
@@ -74,21 +78,74 @@ def offset_clears(delta, minimum: float) -> np.ndarray:
 
 
 def gap_valid(gap) -> np.ndarray:
-    """Whether an absorber gap absorbs enough sunlight to write a current: 0 < gap <= :data:`GAP_MAX_EV` (the rule
-    of :func:`classify`, flag ``absorber_gap_invalid``, and of the sampler); NaN → False.
+    """Whether an absorber gap can give a written current at all: 0 < gap < :data:`GAP_MAX_EV` (the pre-filter of
+    :func:`classify`, flag ``absorber_gap_invalid``, and of the sampler; the verdict on a gap below it is the
+    model's Jsc, :func:`dark_current`); NaN → False.
 
     Examples
     --------
-    >>> gap_valid(np.array([-0.1, 0.0, 0.08, 1.5, 4.12, 4.2, 4.5, np.nan])).tolist()
+    >>> gap_valid(np.array([-0.1, 0.0, 0.08, 1.5, 4.12, 4.13, 4.5, np.nan])).tolist()
     [False, False, True, True, True, False, False, False]
     """
     gap = np.asarray(gap, dtype=float)
     with np.errstate(invalid="ignore"):
-        return (gap > 0) & (gap <= GAP_MAX_EV)
+        return (gap > 0) & (gap < GAP_MAX_EV)
+
+
+def jsc_written(jsc) -> np.ndarray:
+    """Whether a short-circuit current [mA cm⁻²] is at least :data:`JSC_MIN_MA_CM2`, what a ranking writes above 0
+    (the one current rule of :func:`classify` and of the sampler, :func:`screen.devicekernel.pce_samples`); NaN →
+    False.
+
+    Examples
+    --------
+    >>> jsc_written(np.array([4.99e-5, 5e-5, 12.0, np.nan])).tolist()
+    [False, True, True, False]
+    """
+    with np.errstate(invalid="ignore"):
+        return np.asarray(jsc, dtype=float) >= JSC_MIN_MA_CM2
+
+
+class CurrentTerms(NamedTuple):
+    """A model's short-circuit current of pairs and the same current with charge-generation yields set to 1
+    (:func:`screen.devicekernel.pair_terms`), all at the model's EQE. [mA cm⁻²]
+
+    ``jsc``: the model's Jsc; ``photons``: every yield 1 (the photons above the absorber gap); ``lumo_full``: the
+    yield of the LUMO offset (donor excitons) 1, the other as it is; ``homo_full``: the yield of the HOMO offset
+    (acceptor excitons) 1, the other as it is.
+    """
+
+    jsc: np.ndarray
+    photons: np.ndarray
+    lumo_full: np.ndarray
+    homo_full: np.ndarray
+
+
+def dark_current(current: CurrentTerms) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Which factor leaves a pair a Jsc below :data:`JSC_MIN_MA_CM2`: ``(gap, lumo, homo)`` masks.
+
+    A pair whose model Jsc (at the model's EQE and charge-generation yields) is not written above 0 is not viable.
+    ``gap``: even with every yield 1 the photons above the absorber gap give too little (flag
+    ``absorber_gap_invalid``); otherwise the yields make it vanish, and an offset is named (``lumo_offset_low``,
+    ``homo_offset_low``) when its yield set to 1 would give a written current — or when neither alone would (then
+    both are).  A yield that does not enter the current (the donor-only model's ΔHOMO) is never named.
+
+    Examples
+    --------
+    >>> t = CurrentTerms(jsc=np.array([12.0, 1e-6, 1e-6, 1e-6]), photons=np.array([15.0, 2e-5, 15.0, 15.0]),
+    ...                  lumo_full=np.array([15.0, 2e-5, 15.0, 1e-6]), homo_full=np.array([15.0, 2e-5, 1e-6, 1e-6]))
+    >>> [m.tolist() for m in dark_current(t)]
+    [[False, True, False, False], [False, False, True, True], [False, False, False, True]]
+    """
+    dark = ~jsc_written(current.jsc)
+    gap = dark & ~jsc_written(current.photons)
+    yields = dark & ~gap
+    lumo_rescues, homo_rescues = jsc_written(current.lumo_full), jsc_written(current.homo_full)
+    return gap, yields & (lumo_rescues | ~homo_rescues), yields & (homo_rescues | ~lumo_rescues)
 
 
 def classify(delta_lumo, delta_homo, absorber_gap, voc_raw, missing, *, min_lumo: float, min_homo: float,
-             check_homo_offset: bool = True) -> dict:
+             check_homo_offset: bool = True, current: CurrentTerms | None = None) -> dict:
     """Viability masks of donor/acceptor pairs.
 
     Parameters
@@ -106,6 +163,9 @@ def classify(delta_lumo, delta_homo, absorber_gap, voc_raw, missing, *, min_lumo
         Smallest offsets that allow charge separation. [eV]
     check_homo_offset : bool
         Check ΔHOMO against ``min_homo`` (type II is always required).
+    current : CurrentTerms or None
+        The model's Jsc and its factors (:func:`screen.devicekernel.pair_terms`); None: no current rule (only
+        for callers that classify offsets alone).
 
     Returns
     -------
@@ -117,7 +177,13 @@ def classify(delta_lumo, delta_homo, absorber_gap, voc_raw, missing, *, min_lumo
     -----
     Type II needs ΔLUMO > 0 and ΔHOMO > 0 (otherwise one carrier has nowhere to
     go: *inverted alignment*); a positive offset below its threshold is
-    *offset below threshold*; a model Voc ≤ 0 is *no positive Voc*.
+    *offset below threshold*; a model Voc ≤ 0 is *no positive Voc*; an absorber
+    gap not positive or from :data:`GAP_MAX_EV` on is *absorber gap invalid*.
+    With ``current``, a pair whose model Jsc is below :data:`JSC_MIN_MA_CM2`
+    (written as 0) is not viable, with the flag of the factor that makes it
+    vanish (:func:`dark_current`): the gap (*absorber gap invalid*) or a
+    type-II offset so small that its charge-generation yield leaves no current
+    (*offset below threshold*).
     """
     with np.errstate(invalid="ignore"):
         lumo_inv = delta_lumo <= OFFSET_TOL_EV  # not type II (offset_clears: its first condition)
@@ -128,6 +194,12 @@ def classify(delta_lumo, delta_homo, absorber_gap, voc_raw, missing, *, min_lumo
             else np.zeros(np.shape(homo_inv), dtype=bool)
         gap_bad = np.isfinite(absorber_gap) & ~gap_valid(absorber_gap)
         voc_bad = voc_raw <= 0
+        if current is not None:  # the model's own Jsc (a missing level is input_missing alone)
+            dark_gap, dark_lumo, dark_homo = dark_current(current)
+            known = ~np.asarray(missing, dtype=bool) & np.isfinite(absorber_gap)
+            gap_bad = gap_bad | (dark_gap & known)
+            lumo_low = lumo_low | (dark_lumo & known & np.isfinite(delta_lumo) & ~lumo_inv)
+            homo_low = homo_low | (dark_homo & known & np.isfinite(delta_homo) & ~homo_inv)
     masks = {"input_missing": missing, "absorber_gap_invalid": gap_bad, "lumo_inverted": lumo_inv,
              "homo_inverted": homo_inv, "lumo_offset_low": lumo_low, "homo_offset_low": homo_low,
              "voc_nonpositive": voc_bad}

@@ -7,7 +7,11 @@ F2  the dye-cell sampler gave an E₀₋₀ below its 0.30 eV table the limits o
     tabulated, not the exact, estimate;
 F4  the gap window had no tolerance: a gap written 1.0 was "outside the screening window (1.00–3.00 eV)";
 F6  a pair whose absorber gap lay just inside the end of the spectrum was viable with Jsc 2.5e-21 mA cm⁻² and PCE
-    written 0.0.
+    written 0.0;
+F7  (review of F6) the gap limit held only at EQE = 1: at the models' own EQE a 4.12 eV absorber was viable with
+    Jsc 4.27e-5 mA cm⁻² (written 0.0000), and the fitted yield 1 − exp(−Δ/Δ0) gave offsets of a few neV a Jsc of
+    6.7e-6; now the model's own Jsc is held to JSC_MIN_MA_CM2, in evaluate() and in the sampler's kernel, flagged by
+    the factor that makes it vanish; the kernel takes the needed levels from DeviceModel.needed_missing.
 
 Every expected number is a rule of the model itself (the classification, :meth:`DeviceModel.evaluate`,
 :func:`screen.dyecell.model.evaluate`, the detailed-balance limit and Jsc of :mod:`screen.spectrum` on the
@@ -30,7 +34,7 @@ from screen.dyecell.model import sample_pce as dye_sample_pce
 from screen.flags import describe
 from screen.partners import resolve_partner
 from screen.rank import _ROUND, RankOptions, rank_candidates
-from screen.sampling import _jsc_fast, _sq_below_ev, _sq_fast, _voc_fast
+from screen.sampling import jsc_fast, _sq_below_ev, sq_fast, voc_fast
 from screen.spectrum import jsc_ma_cm2, sq_pce_pct
 from screen.viability import GAP_MAX_EV, gap_valid
 
@@ -52,7 +56,7 @@ def _kernel(model, levels, tables=False):
     ff = model.ff_of() if model.model != "scharber" else None
     if not tables:
         return float(model.pce_from_levels(lv, loss, ff=ff)[0])
-    return float(model.pce_from_levels(lv, loss, ff=ff, jsc_unit=_jsc_fast, sq_pct=_sq_fast, sq_voc=_voc_fast,
+    return float(model.pce_from_levels(lv, loss, ff=ff, jsc_unit=jsc_fast, sq_pct=sq_fast, sq_voc=voc_fast,
                                        sq_below_ev=_sq_below_ev(model))[0])
 
 
@@ -205,15 +209,16 @@ def test_the_window_is_quoted_with_the_decimals_gaps_are_written_with():
 # --------------------------------------------------------------------------- F6 a gap at the end of the spectrum
 
 def test_gap_max_is_where_sunlight_gives_no_written_current():
-    # ASTM G173-03 AM1.5G (the project's spectrum): at EQE = 1 the photons above GAP_MAX_EV give a Jsc that is
-    # written (≥ 5e-5 mA cm⁻², 4 decimals), those above the next hundredth of an eV one that is written as 0
+    # ASTM G173-03 AM1.5G (the project's spectrum): from GAP_MAX_EV on even EQE = 1 gives a Jsc written as 0
+    # (< 5e-5 mA cm⁻², 4 decimals), a hundredth of an eV below it one that is written: the pre-filter gap_valid can
+    # never refuse a pair the Jsc rule would keep (EQE ≤ 1, the yields ≤ 1, the photon current falls with the gap)
     from screen.dyecell.model import JSC_MIN_MA_CM2 as DYE_JSC_MIN
     from screen.viability import JSC_MIN_MA_CM2
 
-    assert float(jsc_ma_cm2(GAP_MAX_EV, 1.0)) >= JSC_MIN_MA_CM2
-    assert float(jsc_ma_cm2(GAP_MAX_EV + 0.01, 1.0)) < JSC_MIN_MA_CM2
+    assert float(jsc_ma_cm2(GAP_MAX_EV, 1.0)) < JSC_MIN_MA_CM2
+    assert float(jsc_ma_cm2(GAP_MAX_EV - 0.01, 1.0)) >= JSC_MIN_MA_CM2
     assert DYE_JSC_MIN == JSC_MIN_MA_CM2  # one limit for both modes
-    assert gap_valid(np.array([GAP_MAX_EV, GAP_MAX_EV + 1e-6])).tolist() == [True, False]
+    assert gap_valid(np.array([GAP_MAX_EV - 1e-6, GAP_MAX_EV])).tolist() == [True, False]
 
 
 def test_no_viable_pair_with_an_absorber_gap_beyond_the_written_current():
@@ -221,19 +226,135 @@ def test_no_viable_pair_with_an_absorber_gap_beyond_the_written_current():
     m = DeviceModel()
     out = m.evaluate(-7.0, -2.5, 4.40, -7.5, -3.0, 4.40)
     assert not _one(out["viable"]) and _one(out["flags"]) == "absorber_gap_invalid"
-    assert f"above {GAP_MAX_EV:.2f} eV" in describe("absorber_gap_invalid")
-    # property: along the edge of the spectrum every viable pair gets an efficiency written above 0 (4 decimals),
-    # and the kernel agrees with evaluate() on which are viable
+    assert f"from {GAP_MAX_EV:.2f} eV on even at EQE = 1" in describe("absorber_gap_invalid")
+    # property: along the edge of the spectrum every viable pair gets a Jsc and an efficiency written above 0
+    # (4 decimals), and the kernel agrees with evaluate() on which are viable
     gaps = np.linspace(3.9, 4.5, 601)
-    for spec in ({}, {"model": "scharber"}, {"model": "scharber", "absorber": "donor"}):
+    for spec in ({}, {"model": "scharber"}, {"model": "scharber", "absorber": "donor"}, {"eqe": 1.0}):
         mm = DeviceModel(**spec)
         levels = [-7.0, -7.0 + gaps + 0.1, gaps, -7.5, -7.0 + gaps - 0.4, gaps + 0.05]
         ev = mm.evaluate(*levels)
         viable = np.asarray(ev["viable"], bool)
         assert viable.any() and not viable.all()
         assert np.all(np.round(ev["pce_pct"][viable], 4) > 0)
-        assert np.all(gaps[viable] <= GAP_MAX_EV)
+        assert np.all(np.round(ev["jsc_ma_cm2"][viable], 4) > 0)
+        assert np.all(gaps[viable] < GAP_MAX_EV)
+        assert set(ev["flags"][~viable]) <= {"absorber_gap_invalid", "absorber_gap_invalid;donor_only_model"}
         loss = mm.loss_ev()[0] if mm.model != "scharber" else np.array(mm.value("loss_v"))
         kernel = mm.pce_from_levels([np.asarray(x, float) for x in levels], loss,
                                     ff=mm.ff_of() if mm.model != "scharber" else None)
         np.testing.assert_array_equal(kernel > 0, viable)
+
+
+# --------------------------------------------------------------------------- F7 the model's own current
+
+#: the review's pair: a 4.12 eV donor gap inside GAP_MAX_EV's old 4.12 eV (levels made up for the test) [eV]
+EDGE_412 = (-7.0, -2.88, 4.12, -8.0, -3.3, 4.5)
+#: the review's pair with both offsets 3e-9 eV (the fitted yield 1 − exp(−Δ/0.01 eV) ≈ 3e-7) [eV]
+NEV_OFFSETS = (-5.65 + 3e-9, -4.09 + 3e-9, 1.36, -5.65, -4.09, 1.36)
+
+
+def _kernel_of(model, levels, classes=None, tables=False):
+    """``pce_from_levels`` of levels (arrays) with the model's own loss, fill factor and absorbers."""
+    lv = [np.asarray(x, dtype=float) for x in levels]
+    loss, _ = model.loss_ev(classes)
+    kw = {"ff": model.ff_of(classes), "acceptor_absorbs": model.acceptor_absorbs(classes)}
+    if tables:
+        kw.update(jsc_unit=jsc_fast, sq_pct=sq_fast, sq_voc=voc_fast, sq_below_ev=_sq_below_ev(model))
+    return model.pce_from_levels(lv, loss, **kw)
+
+
+@pytest.mark.parametrize("spec", [{"model": "scharber", "absorber": "donor"}, {}, {"absorber": "donor"},
+                                  {"model": "scharber"}])
+@pytest.mark.parametrize("tables", [False, True])
+def test_an_absorber_whose_current_is_written_as_zero_at_the_models_eqe_is_not_viable(spec, tables):
+    # the review: Scharber donor-only (EQE 0.65) was viable with Jsc 4.27e-5 mA cm⁻² (written 0.0000), PCE 9e-5 %;
+    # the fitted model (EQE 0.649) the same; at EQE = 1 the photons above 4.12 eV give 6.6e-5
+    from screen.viability import JSC_MIN_MA_CM2
+
+    m = DeviceModel(**spec)
+    assert m.value("eqe") * float(jsc_ma_cm2(4.12, 1.0)) < JSC_MIN_MA_CM2 <= float(jsc_ma_cm2(4.12, 1.0))
+    out = m.evaluate(*EDGE_412)
+    assert not _one(out["viable"]) and "absorber_gap_invalid" in _one(out["flags"]).split(";")
+    assert np.isnan(_one(out["jsc_ma_cm2"])) and np.isnan(_one(out["pce_pct"]))
+    assert _kernel_of(m, [np.array([x]) for x in EDGE_412], tables=tables)[0] == 0.0
+    # the same levels at EQE = 1 are viable, with a Jsc written above 0 (the rule is the model's current, not a gap)
+    one = DeviceModel(**spec, eqe=1.0).evaluate(*EDGE_412)
+    assert _one(one["viable"]) and round(float(_one(one["jsc_ma_cm2"])), 4) > 0
+
+
+@pytest.mark.parametrize("tables", [False, True])
+def test_an_offset_of_a_few_nev_is_an_offset_too_small_not_a_dark_gap(tables):
+    # the review: both offsets 3e-9 eV, the fitted model: viable, Jsc 6.7e-6 mA cm⁻², PCE written 0.0; the photons
+    # above 1.36 eV are plenty (EQE × Jsc at EQE = 1 ≈ 22 mA cm⁻²): the yields make the current vanish
+    m = DeviceModel()
+    out = m.evaluate(*NEV_OFFSETS)
+    assert not _one(out["viable"]) and _one(out["flags"]) == "lumo_offset_low;homo_offset_low"
+    assert _kernel_of(m, [np.array([x]) for x in NEV_OFFSETS], tables=tables)[0] == 0.0
+    # donor-only: only the LUMO offset's yield enters the current
+    d = DeviceModel(absorber="donor")
+    assert _one(d.evaluate(*NEV_OFFSETS)["flags"]) == "lumo_offset_low"
+    # the acceptor absorbs below the donor's 4.3 eV gap (whose photons give ~1e-5 mA cm⁻²): ΔHOMO's yield alone
+    # makes the current vanish, ΔLUMO = 0.3 eV is not named
+    lone = (-5.65 + 3e-9, -3.79, 4.3, -5.65, -4.09, 1.36)
+    assert _one(m.evaluate(*lone)["flags"]) == "homo_offset_low"
+    assert _kernel_of(m, [np.array([x]) for x in lone], tables=tables)[0] == 0.0
+    # the reason says so, not "below 0.00 eV" (the fitted model's threshold is type II)
+    settings = {"device": {"min_delta_lumo_ev": 0.0, "min_delta_homo_ev": 0.0}}
+    for code in ("lumo_offset_low", "homo_offset_low"):
+        text = describe(code, settings)
+        assert "0.00 eV" not in text and "charge-generation yield" in text and "0.00005 mA cm⁻²" in text
+    assert describe("lumo_offset_low", {"device": {"min_delta_lumo_ev": 0.3}}).startswith(
+        "LUMO offset to the partner below 0.30 eV")  # a threshold is quoted as before
+
+
+@pytest.mark.parametrize("spec", [{}, {"absorber": "donor"}, {"model": "scharber"}, {"fullerene_absorbs": False}])
+def test_every_viable_pair_writes_a_current_and_the_kernel_agrees(spec):
+    # property: offsets from 0 to 1e-6 eV and absorber gaps 3.9–4.2 eV (and ordinary ones), the model's own EQE and
+    # yields: evaluate() keeps exactly the pairs whose Jsc is written above 0; the kernel (exact and tabulated) gives
+    # 0 where evaluate() is not viable and its efficiency elsewhere, also where a fullerene acceptor does not count
+    # as an absorber (a made-up parameter set: the donor-absorber current decides, not the both-absorb one)
+    import dataclasses
+
+    from screen.devicepars import load_fitted
+    from screen.viability import JSC_MIN_MA_CM2
+
+    if "fullerene_absorbs" in spec:
+        m = DeviceModel(parameters=dataclasses.replace(load_fitted(), fullerene_absorbs=False))
+    else:
+        m = DeviceModel(**spec)
+    rng = np.random.default_rng(7)
+    n = 3000
+    small = rng.random((2, n)) < 0.5
+    d_l = np.where(small[0], rng.uniform(0, 1e-6, n), rng.uniform(0.01, 0.5, n))
+    d_h = np.where(small[1], rng.uniform(0, 1e-6, n), rng.uniform(0.01, 0.5, n))
+    g_d = np.where(rng.random(n) < 0.5, rng.uniform(3.9, 4.2, n), rng.uniform(1.2, 2.5, n))
+    g_a = np.where(rng.random(n) < 0.5, rng.uniform(3.9, 4.2, n), rng.uniform(1.2, 2.5, n))
+    h_d = rng.uniform(-7.5, -5.0, n)
+    levels = [h_d, -3.0 + d_l, g_d, h_d - d_h, np.full(n, -3.0), g_a]
+    classes = rng.choice(np.array(["fullerene", "nfa-fused"], dtype=object), n)
+    ev = m.evaluate(*levels, acceptor_class=classes)
+    viable = np.asarray(ev["viable"], bool)
+    assert 50 < viable.sum() < n - 50
+    assert np.all(ev["jsc_ma_cm2"][viable] >= JSC_MIN_MA_CM2)
+    reasons = {"absorber_gap_invalid", "lumo_offset_low", "homo_offset_low", "voc_nonpositive", "lumo_inverted",
+               "homo_inverted"}
+    for cell in ev["flags"][~viable]:  # every pair that is not viable says why, with a reason of this list
+        assert set(cell.split(";")) & reasons and set(cell.split(";")) <= reasons | {"donor_only_model"}, cell
+    expected = np.where(viable, ev["pce_pct"], 0.0)
+    np.testing.assert_allclose(_kernel_of(m, levels, classes), expected, rtol=1e-9, atol=1e-12)
+    tab = _kernel_of(m, levels, classes, tables=True)
+    # the tables (0.25 meV steps) may differ from the exact integrals only within a hair of the current limit
+    near = np.abs(np.asarray(ev["jsc_ma_cm2"], float) / JSC_MIN_MA_CM2 - 1) < 1e-3
+    np.testing.assert_array_equal((tab > 0)[~near], viable[~near])
+
+
+def test_the_kernel_takes_the_needed_levels_from_the_model(monkeypatch):
+    # the review: the kernel's loop copied DeviceModel.needed_missing's list of needed levels; one list now
+    m = DeviceModel(model="scharber", absorber="donor")
+    lv = [np.array([-5.4, -5.4]), np.array([-3.9, -3.9]), 1.5, -6.0, -4.3, 2.0]
+    assert _kernel_of(m, lv).tolist() == pytest.approx([9.79, 9.79], abs=5e-3)
+    monkeypatch.setattr(DeviceModel, "needed_missing",
+                        lambda self, levels, shape: np.broadcast_to(np.array([True, False]), shape))
+    got = _kernel_of(m, lv)
+    assert got[0] == 0.0 and got[1] == pytest.approx(9.79, abs=5e-3)

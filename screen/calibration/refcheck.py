@@ -42,9 +42,9 @@ import numpy as np
 import pandas as pd
 
 from screen.chem import canonical
-from screen.levels_check import _fmt as _g
-from screen.levels_check import (_hartree_hint, _line, decimal_comma_hint, e00_problem, mv_hint, quoted, raise_problems,
-                                 row_problems)
+from screen.levels_check import fmt_value as _g
+from screen.levels_check import (decimal_comma_hint, e00_problem, file_line, hartree_hint, mv_hint, quoted,
+                                 raise_problems, row_problems)
 
 __all__ = ["DERIVED_LEVELS", "IP_GAS_RANGE_EV", "EA_GAS_RANGE_EV", "OPTICAL_GAP_RANGE_EV", "FILM_HOMO_RANGE_EV", "FILM_LUMO_RANGE_EV",
            "FC_REFERENCE_RANGE_EV", "KINDS", "PHASES", "check_reference_set", "reference_problems",
@@ -132,7 +132,7 @@ def gas_value_problem(what: str, value: float) -> str | None:
     elif what == "ea" and value < lo and -value <= hi:
         hint = f"EA = -LUMO: if {_g(value)} is a LUMO, write {_g(-value)}"
     elif what == "ip" and 0 < value < lo:
-        hint = _hartree_hint(value, lo, hi) or None
+        hint = hartree_hint(value, lo, hi) or None
     return f"{said.format(f'{lo:g}...{hi:g}')}; {hint or 'check the units (eV) and the sign'}"
 
 
@@ -298,7 +298,7 @@ def _duplicates(name: str, frame: pd.DataFrame, keys: list[str], rows, problems:
             groups.setdefault((keys[i],) + tuple(c[i] for c in cells), []).append(i)
     for members in groups.values():
         if len(members) > 1:
-            lines = [f"{_line(frame, i)} ({quoted(names[i])})" for i in members]
+            lines = [f"{file_line(frame, i)} ({quoted(names[i])})" for i in members]
             said = " and ".join(filter(None, [", ".join(conditions[:-1]), conditions[-1]])) if conditions else ""
             same = "the same structure" + (f" with the same {said}" if said else "")
             problems.append((members[-1], f"lines {', '.join(lines[:-1])} and {lines[-1]}, column smiles: {same}; "
@@ -363,7 +363,7 @@ def reference_problems(name: str, frame: pd.DataFrame) -> list[str]:
 
     def where(i: int) -> str:
         label = cell["name"][i] if "name" in cell else ""
-        return f"line {_line(frame, i)}" + (f" (name {quoted(label)})" if label else "")
+        return f"line {file_line(frame, i)}" + (f" (name {quoted(label)})" if label else "")
 
     return [f"{where(i)}, {text}" if text.startswith("column") else f"{text}"
             for i, text in sorted(problems, key=lambda p: p[0])]

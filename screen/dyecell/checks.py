@@ -33,7 +33,8 @@ import pandas as pd
 
 from screen.dyecell.scales import ABSOLUTE_NHE_V, needs_solvent, solvent_conflict, to_nhe
 from screen.errors import InputError
-from screen.levels_check import E00_RANGE_EV, _line, decimal_comma_hint, e00_problem, mv_hint, raise_problems
+from screen.levels_check import (E00_RANGE_EV, decimal_comma_hint, e00_problem, file_line, mv_hint, raise_problems,
+                                 text_row_problems)
 
 __all__ = ["E_OX_RANGE_V_NHE", "E00_RANGE_EV", "POTENTIAL_RANGE_V_NHE", "THRESHOLD_RANGE_EV", "SIGMA_MAX",
            "NO_ANCHOR_WORDS", "e_ox_problem", "e00_problem", "potential_problem", "vacuum_problem",
@@ -199,7 +200,7 @@ def merge_reference_alias(frame: pd.DataFrame, where: str = "dye file") -> pd.Da
     alias = [_cell(v) for v in frame["reference"]]
     main = [_cell(v) for v in frame["e_ox_reference"]] if "e_ox_reference" in frame else [""] * len(frame)
     ids = [_cell(v) for v in frame["id"]] if "id" in frame else [""] * len(frame)
-    problems = [f"line {_line(frame, i)} (id {ids[i]!r}): {why}" for i in range(len(frame))
+    problems = [f"line {file_line(frame, i)} (id {ids[i]!r}): {why}" for i in range(len(frame))
                 if (why := reference_conflict({"reference": alias[i], "e_ox_reference": main[i]}))]
     raise_problems(where, problems)
     out = frame.drop(columns="reference")
@@ -211,10 +212,13 @@ def merge_reference_alias(frame: pd.DataFrame, where: str = "dye file") -> pd.Da
 SAME_POTENTIAL_TOL_V = 0.02
 
 
-def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
+def check_dye_file(frame: pd.DataFrame, where: str = "dye file", *, label: str = "id",
+                   one_target: bool = False) -> np.ndarray:
     """Refuse a user's dye file with a missing, duplicated or impossible value; E(S⁺/S) of every row.
 
-    Checks every row: an id that is present and unique; ``e_ox_v_nhe`` (or
+    Checks every row: no control character in its id or name and a SMILES the prepare stage would read
+    (:func:`screen.levels_check.text_row_problems`, checked first: such a file is refused whole); an id that is
+    present and unique; ``e_ox_v_nhe`` (or
     ``e_ox_v`` with ``e_ox_reference``, and ``solvent`` for a ferrocene
     reference) and ``e00_ev`` present, numbers, finite and within
     :data:`E_OX_RANGE_V_NHE` and :data:`E00_RANGE_EV`; σ columns empty or ≥ 0;
@@ -229,6 +233,11 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
         potential columns (checked by the caller).
     where : str
         File name for the message.
+    label : str
+        The column that names each dye (``id`` in a dye file; ``name`` in the dye reference set).
+    one_target : bool
+        A row may give only one of E(S⁺/S) and E₀₋₀ (the reference set: each model is fitted on the rows that
+        give its target); a row with neither is still refused.
 
     Returns
     -------
@@ -243,25 +252,28 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
     """
     if len(frame) == 0:
         raise InputError(f"{where}: no rows (only a header); give one dye per line: id,e_ox_v_nhe,e00_ev")
-    ids = [_cell(v) for v in (frame["id"] if "id" in frame else [""] * len(frame))]
+    # a control character in an id or name, a SMILES too large to read: the admission rule of every input table
+    # (screen.prepare.checks.text_row_problem), checked before anything reads a structure
+    raise_problems(where, [text for _, text in text_row_problems(frame, cells=tuple(dict.fromkeys((label, "name"))))])
+    ids = [_cell(v) for v in (frame[label] if label in frame else [""] * len(frame))]
     problems: list[str] = []
     bad: set[tuple[int, str]] = set()  # cells already reported
-    empty = [_line(frame, i) for i, v in enumerate(ids) if not v]
+    empty = [file_line(frame, i) for i, v in enumerate(ids) if not v]
     if empty:
-        problems.append(f"line{'s' if len(empty) > 1 else ''} {', '.join(map(str, empty))}: column id is empty; "
-                        "give every dye an id")
+        problems.append(f"line{'s' if len(empty) > 1 else ''} {', '.join(map(str, empty))}: column {label} is empty; "
+                        f"give every dye {'an' if label[0] in 'aeiou' else 'a'} {label}")
     seen: dict[str, list[int]] = {}
     for i, v in enumerate(ids):
         if v:
-            seen.setdefault(v, []).append(_line(frame, i))
+            seen.setdefault(v, []).append(file_line(frame, i))
     for v, lines in seen.items():
         if len(lines) > 1:
-            problems.append(f"id {v!r} is on lines {', '.join(map(str, lines))}: ids must be unique; rename or "
+            problems.append(f"{label} {v!r} is on lines {', '.join(map(str, lines))}: {label}s must be unique; rename or "
                             "remove the repeated rows")
 
     def at(i: int, col: str, value) -> str:
         shown = _g(value) if isinstance(value, float) else repr(value)
-        return f"line {_line(frame, i)} (id {ids[i]!r}), column {col} = {shown}"
+        return f"line {file_line(frame, i)} ({label} {ids[i]!r}), column {col} = {shown}"
 
     def number(col: str, unit: str, example: str) -> np.ndarray:
         if col not in frame:
@@ -311,7 +323,7 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
         col = "e_ox_v_nhe"
         clash = solvent_conflict(refs[i], solv[i], "e_ox_reference") if refs[i] else None
         if clash:  # a reference id with its own solvent (fc-mecn) and a solvent column naming another one
-            problems.append(f"line {_line(frame, i)} (id {ids[i]!r}): {clash}")
+            problems.append(f"line {file_line(frame, i)} ({label} {ids[i]!r}): {clash}")
             bad.update({(i, "e_ox_v"), (i, "e_ox_v_nhe")})
         if math.isfinite(e_ox[i]) and math.isfinite(raw[i]) and refs[i] and not clash \
                 and not (needs_solvent(refs[i]) and not solv[i]):  # both given: they must say the same
@@ -332,9 +344,9 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
                 problems.append(msg)
                 bad.add((i, col))
         if math.isnan(e_ox[i]):
-            if not {(i, "e_ox_v_nhe"), (i, "e_ox_v")} & bad:
+            if not {(i, "e_ox_v_nhe"), (i, "e_ox_v")} & bad and not (one_target and math.isfinite(e00[i])):
                 given = "e_ox_v_nhe" + (" and e_ox_v are" if "e_ox_v" in frame else " is")
-                problems.append(f"line {_line(frame, i)} (id {ids[i]!r}): {given} empty; give E(S+/S) in V vs NHE "
+                problems.append(f"line {file_line(frame, i)} ({label} {ids[i]!r}): {given} empty; give E(S+/S) in V vs NHE "
                                 "(or leave the dye out)")
         else:
             msg = e_ox_problem(float(e_ox[i]), "e_ox_v_nhe")
@@ -343,8 +355,8 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file") -> np.ndarray:
                 conv = f" (= {e_ox[i]:.2f} V vs NHE with {refs[i]})" if col == "e_ox_v" else ""
                 problems.append(f"{at(i, col, float(shown))}{conv}: {msg}")
         if math.isnan(e00[i]):
-            if (i, "e00_ev") not in bad:
-                problems.append(f"line {_line(frame, i)} (id {ids[i]!r}): e00_ev is empty; give E00 in eV "
+            if (i, "e00_ev") not in bad and not (one_target and math.isfinite(e_ox[i])):
+                problems.append(f"line {file_line(frame, i)} ({label} {ids[i]!r}): e00_ev is empty; give E00 in eV "
                                 "(or leave the dye out)")
         else:
             msg = e00_problem(float(e00[i]))
@@ -414,7 +426,7 @@ def unreadable_smiles(frame: pd.DataFrame) -> dict[int, str]:
         smiles = _cell(raw)
         why = smiles_problem(smiles)
         if why:
-            out[i] = (f"line {_line(frame, i)} (id {ids[i]!r}): the SMILES cannot be parsed ({why}); correct it, "
+            out[i] = (f"line {file_line(frame, i)} (id {ids[i]!r}): the SMILES cannot be parsed ({why}); correct it, "
                       "or leave it empty to skip the anchor check")
     return out
 
@@ -525,7 +537,7 @@ def anchor_column(frame: pd.DataFrame, where: str = "dye file") -> list[list[str
         parts = [p.strip() for p in text.split(";") if p.strip()]
         bad = [p for p in parts if p.lower() not in known]
         if bad or not parts:
-            problems.append(f"line {_line(frame, i)} (id {ids[i]!r}), column anchor = {text!r}: not an anchoring "
+            problems.append(f"line {file_line(frame, i)} (id {ids[i]!r}), column anchor = {text!r}: not an anchoring "
                             f"group the dye-cell mode knows; allowed: {_allowed_anchor_text()}")
             out.append(None)
             continue

@@ -98,7 +98,7 @@ from screen.dyecell.library import Material
 from screen.dyecell.options import option_defaults
 from screen.errors import ConfigError
 from screen.schema import check_section
-from screen.sampling import _sq_fast, _voc_fast
+from screen.sampling import sq_fast, voc_fast
 from screen.spectrum import (
     gap_to_wavelength_nm,
     incident_power_w_m2,
@@ -548,7 +548,7 @@ def _block_samples(model: DyeCellModel, eo: np.ndarray, eg: np.ndarray, oxide: M
     marks dyes whose every sample is 0 (missing input or no anchor).  Jsc and the
     detailed-balance cap come from one uniform E₀₋₀ table (shared index); below
     its 0.30 eV the caps are those of the donor/acceptor sampler, exact below its
-    tables' 0.25 eV (:func:`screen.sampling._voc_fast`, :func:`screen.sampling._sq_fast`),
+    tables' 0.25 eV (:func:`screen.sampling.voc_fast`, :func:`screen.sampling.sq_fast`),
     so a narrow sampled E₀₋₀ never gets the limits of 0.30 eV.  A
     sample is viable as in :func:`evaluate`: both thresholds met, sunlight
     absorbed (Jsc ≥ :data:`JSC_MIN_MA_CM2`) and a positive capped Voc.
@@ -570,7 +570,7 @@ def _block_samples(model: DyeCellModel, eo: np.ndarray, eg: np.ndarray, oxide: M
     voc_lim, sq_lim = voc_t[idx] + x * voc_d[idx], sq_t[idx] + x * sq_d[idx]
     below = (eg > 0) & (eg < _GRID_MIN_EV)  # the limits fall to 0 with E₀₋₀ there: never the grid's first value
     if below.any():
-        voc_lim[below], sq_lim[below] = _voc_fast(eg[below]), _sq_fast(eg[below])
+        voc_lim[below], sq_lim[below] = voc_fast(eg[below]), sq_fast(eg[below])
     voc_s = np.minimum(voc_lim, max(voc, 0.0))  # Voc at most the detailed-balance Voc of E₀₋₀
     # Jsc: the grid's first value is exact below it (every photon of the spectrum, which starts at 0.31 eV)
     jsc_s = (jsc_t[idx] + x * jsc_d[idx]) * model.photon_to_current

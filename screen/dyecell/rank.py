@@ -54,7 +54,6 @@ from screen.dyecell.checks import (
     E00_RANGE_EV,
     E_OX_RANGE_V_NHE,
     SIGMA_MAX,
-    _line,
     anchor_column,
     check_dye_file,
     merge_reference_alias,
@@ -69,7 +68,7 @@ from screen.dyecell.options import RankOptions
 from screen.dyecell.scales import ELECTROCHEMICAL, conversion_hint, electrodes, reference_entry, require_scale
 from screen.errors import ConfigError, InputError, ScaleMismatchError
 from screen.io import separator_problem, text_cells
-from screen.levels_check import GAP_MAX_INPUT_EV
+from screen.levels_check import GAP_MAX_INPUT_EV, file_line
 from screen.prepare.checks import NONMETALS
 from screen.spectrum import gap_to_wavelength_nm
 
@@ -329,7 +328,7 @@ def _apply_anchor_column(frame: pd.DataFrame, stated: list, anchors: list, ancho
         if bool(names) != bool(found) or not set(names) <= set(found):
             said = "; ".join(names) if names else "no anchoring group"
             has = ("has " + "; ".join(found)) if found else "has no anchoring group"
-            clashes.append(f"line {_line(frame, i)} (id {ids[i]!r}): column anchor says {said}, but the SMILES {has}")
+            clashes.append(f"line {file_line(frame, i)} (id {ids[i]!r}): column anchor says {said}, but the SMILES {has}")
     if clashes:
         more = f"\n  ... and {len(clashes) - 5} more" if len(clashes) > 5 else ""
         print(f"dascreen dyecell: {where}: the anchor column disagrees with the SMILES in {len(clashes)} row(s); the "

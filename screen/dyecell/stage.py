@@ -148,18 +148,26 @@ def read_input(path: str | Path) -> tuple[str, pd.DataFrame, dict | None]:
     """Read a levels file or a dye file: ``("levels" | "dyes", frame, sidecar or None)``.
 
     A file with raw ``xtb_ip_ev`` values is a run's levels; anything else is a
-    user's dye file (:func:`screen.dyecell.rank.dyes_from_file`).  A row with
+    user's dye file (:func:`screen.dyecell.rank.dyes_from_file`).  A UTF-16 file is refused with the command that
+    converts it (:func:`screen.io.utf16_error`, as :func:`screen.io.read_csv_checked` refuses one).  A row with
     more fields than the header is refused with its line
     (:func:`screen.dyecell.checks.check_field_counts`).  Blanks after the commas
     (``id, e_ox_v_nhe, e00_ev``) and around the column names are dropped.
     """
+    import codecs
+
     from screen.dyecell.checks import check_field_counts
+    from screen.io import looks_utf16, utf16_error
 
     path = Path(path)
     if path.is_dir():
         raise InputError(f"dye-cell input {path} is a directory, not a file; give the levels or dye file in it")
     if not path.is_file():
         raise InputError(f"dye-cell input {path} does not exist")
+    with open(path, "rb") as handle:
+        head = handle.read(4096)
+    if looks_utf16(head):  # UTF-16 without a byte-order mark: "needs an id column" for a header of 'i\x00d\x00'
+        raise utf16_error(path, head)
     check_field_counts(path, "dye-cell input")
     try:
         # blanks around the names ("id, e_ox_v_nhe") are dropped, as one-row oxide and mediator files drop them;
@@ -169,6 +177,8 @@ def read_input(path: str | Path) -> tuple[str, pd.DataFrame, dict | None]:
         ids = {c: str for c in header if str(c).strip() in ("id", "name")}
         frame = pd.read_csv(path, dtype=ids, keep_default_na=False, na_values=[""], skipinitialspace=True)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        if isinstance(exc, UnicodeDecodeError) and head.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+            raise utf16_error(path, head) from None  # a spreadsheet's "Unicode text", as read_csv_checked says
         raise InputError(f"{path} cannot be read as CSV: {exc}") from exc
     frame.columns = [str(c).strip() for c in frame.columns]
     if frame.empty:

@@ -39,7 +39,7 @@ from screen.prepare.options import KNOWN_ELEMENTS as _KNOWN_ELEMENTS
 from screen.prepare.options import PrepareOptions
 
 __all__ = ["REASON_CODES", "NONMETALS", "snippet", "smiles_length_limit", "full_check_limit", "control_name",
-           "cell_control_problem", "visible_controls"]
+           "cell_control_problem", "visible_controls", "smiles_length_problem", "text_row_problem"]
 
 #: Every reason code a manifest row can carry (``''`` for ``ok`` rows): those of :func:`screen.prepare.validate`,
 #: and ``oligomer_build_failed`` of :func:`screen.prepare.polymers.build_oligomers`.
@@ -355,16 +355,72 @@ _CONTROL = re.compile(r"[\x00-\x08\x0e-\x1b\x7f]")
 _CONTROL_PICTURES = {chr(0x2400 + c): chr(c) for c in (*range(0, 9), *range(14, 28))}
 
 
+def smiles_length_problem(smiles: str, max_heavy_atoms: int) -> str:
+    """Why a SMILES text is too long to be read for ``max_heavy_atoms`` (:func:`smiles_length_limit`; '' if it is not).
+
+    >>> smiles_length_problem("C" * 10001, 200)[:52]
+    'SMILES text too long: 10001 characters, more than th'
+    >>> smiles_length_problem("CCO", 200)
+    ''
+    """
+    limit = smiles_length_limit(max_heavy_atoms)
+    if len(smiles) <= limit or len(smiles.strip()) <= limit:
+        return ""
+    return (f"SMILES text too long: {len(smiles.strip())} characters, more than the {limit} read "
+            f"({SMILES_CHARS_PER_HEAVY_ATOM} per heavy atom of the limit of {max_heavy_atoms}, "
+            "PrepareOptions.max_heavy_atoms); not read: a structure that large is not screened")
+
+
 def _check_length(smiles: str, options: PrepareOptions) -> None:
     """Refuse a SMILES text too long for ``options.max_heavy_atoms`` before RDKit reads it (``too_many_atoms``)."""
-    limit = smiles_length_limit(options.max_heavy_atoms)
-    if len(smiles) > limit and len(smiles.strip()) > limit:
-        raise _Reject(
-            "too_many_atoms",
-            f"SMILES text too long: {len(smiles.strip())} characters, more than the {limit} read "
-            f"({SMILES_CHARS_PER_HEAVY_ATOM} per heavy atom of the limit of {options.max_heavy_atoms}, "
-            "PrepareOptions.max_heavy_atoms); not read: a structure that large is not screened",
-        )
+    problem = smiles_length_problem(smiles, options.max_heavy_atoms)
+    if problem:
+        raise _Reject("too_many_atoms", problem)
+
+
+def text_row_problem(cells: dict[str, str], smiles: str = "", max_heavy_atoms: int | None = None,
+                     line_breaks: bool = False) -> tuple[str, str]:
+    r"""Whether one text row of an input table may be read at all: ``(column, why)``, ``("", "")`` when it may.
+
+    The one admission rule of every input table's rows (candidate files, levels and partner files, dye files):
+    a control character in an id, name or role (``cells``, :func:`cell_control_problem`); a SMILES text longer than
+    :func:`smiles_length_limit` of ``max_heavy_atoms`` (default: ``PrepareOptions.max_heavy_atoms``), which is not
+    read; a SMILES of more heavy atoms than :func:`full_check_limit`, counted on RDKit's unsanitised parse (a SMILES
+    that does not parse is no admission problem: the table's own checks name it). The candidate validation applies
+    the same two primitives (:func:`cell_control_problem`, :func:`smiles_length_problem` and the count of
+    :func:`full_check_limit`) row by row with its reason codes; a levels or dye file is refused whole for such a row.
+    ``line_breaks=True`` lets a CR or LF through (the levels and dye files: their outputs quote the CSV cells and
+    write SD titles and console tables with the line break replaced, which tests/test_rank.py relies on).
+
+    Examples
+    --------
+    >>> text_row_problem({"id": "A\x00B"}, "CCO")[0]
+    'id'
+    >>> column, why = text_row_problem({"id": "big"}, "C" * 3000)
+    >>> column, why[:48]
+    ('smiles', '3000 heavy atoms, far more than the limit of 200')
+    >>> text_row_problem({"id": "ok", "name": "thio\tphene"}, "c1ccsc1")
+    ('', '')
+    """
+    texts = {k: "" if v is None else str(v) for k, v in cells.items()}
+    if line_breaks:
+        texts = {k: re.sub(r"[\r\n\u240a\u240d]", " ", v) for k, v in texts.items()}
+    controls = cell_control_problem(texts)
+    if controls:
+        return next(k for k, v in texts.items() if cell_control_problem({k: v})), controls
+    if not smiles or not smiles.strip():
+        return "", ""
+    limit = PrepareOptions().max_heavy_atoms if max_heavy_atoms is None else max_heavy_atoms
+    problem = smiles_length_problem(smiles, limit)
+    if problem:
+        return "smiles", problem
+    with rdBase.BlockLogs():
+        mol = Chem.MolFromSmiles(smiles.strip(), sanitize=False)
+    heavy = mol.GetNumHeavyAtoms() if mol is not None else 0
+    if heavy > full_check_limit(limit):
+        return "smiles", (f"{heavy} heavy atoms, far more than the limit of {limit} (PrepareOptions.max_heavy_atoms; "
+                          f"more than {full_check_limit(limit)} are not read): a structure that large is not screened")
+    return "", ""
 
 
 def _check_heavy_atoms(heavy: int, options: PrepareOptions) -> None:
