@@ -53,6 +53,7 @@ References
 from __future__ import annotations
 
 import json
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -87,10 +88,13 @@ __all__ = [
     "reference_files",
     "reference_hash",
     "fingerprint",
+    "fingerprint_fields",
     "fingerprint_differences",
+    "installed_fingerprint",
     "REFERENCE_RECORD",
     "fitted_reference",
     "reference_ways",
+    "ReferenceWays",
     "fit_property",
     "fit_all",
     "raw_table",
@@ -144,15 +148,10 @@ def fingerprint(config, reference_dir: str | Path) -> dict:
     reference = _reference_folder(reference_dir)
     prov = provenance(cfg)
     ver = prov["versions"].get(cfg.electronic.engine, "absent")
-    sha = reference_hash(reference)
-    _FOLDER_OF_HASH[sha] = reference  # for the record beside the models (:func:`save_calibration`)
     return {"protocol_id": cfg.protocol_id, "protocol": cfg.protocol, "polymer": dict(cfg["polymer"]),
-            "engine_version": ".".join(ver.split(".")[:2]), "reference_sha256": sha}
+            "engine_version": ".".join(ver.split(".")[:2]), "reference_sha256": reference_hash(reference)}
 
 
-#: reference folders whose data :func:`fingerprint` hashed in this process, by hash: a calibration saved with that
-#: fingerprint records the folder beside its models (:data:`REFERENCE_RECORD`); folders of equal hash hold equal data
-_FOLDER_OF_HASH: dict[str, Path] = {}
 #: the file beside a calibration's models that names the reference folder it was fitted on (written from now on;
 #: not one of the model files, so no number or hash of a calibration depends on it; the shipped calibration, fitted
 #: on the shipped reference data, has none)
@@ -163,6 +162,27 @@ def _shipped_reference() -> Path:
     from screen.config import PACKAGE_ROOT
 
     return PACKAGE_ROOT / "models" / "reference"
+
+
+def installed_fingerprint(model_dir: str | Path) -> dict:
+    """The fingerprint a calibration folder records (in its ``ip.json``; :func:`fingerprint`), ``{}`` when the file
+    is missing, unreadable or records none.
+
+    Examples
+    --------
+    >>> from screen.config import Config
+    >>> installed_fingerprint(find_models(Config.of({})))["protocol_id"] == Config.of({}).protocol_id
+    True
+    >>> installed_fingerprint("no/such/folder")
+    {}
+    """
+    from screen.io import read_json
+
+    try:
+        found = read_json(Path(model_dir) / "ip.json").get("fingerprint") or {}
+    except (OSError, ValueError, AttributeError):
+        return {}
+    return found if isinstance(found, dict) else {}
 
 
 def fitted_reference(model_dir: str | Path) -> dict:
@@ -187,10 +207,7 @@ def fitted_reference(model_dir: str | Path) -> dict:
     from screen.io import read_json
 
     model_dir = Path(model_dir)
-    try:
-        sha = (read_json(model_dir / "ip.json").get("fingerprint") or {}).get("reference_sha256")
-    except (OSError, ValueError, AttributeError):
-        sha = None
+    sha = installed_fingerprint(model_dir).get("reference_sha256")
     folder = None
     try:
         record = read_json(model_dir / REFERENCE_RECORD)
@@ -307,16 +324,17 @@ def save_models(models: dict[str, dict], out_dir: str | Path, fp: dict) -> Path:
 
 
 def save_calibration(models: dict[str, dict], computed: pd.DataFrame, oligomers: pd.DataFrame, out_dir: str | Path,
-                     fp: dict) -> tuple[Path, pd.DataFrame]:
+                     fp: dict, reference_dir: str | Path | None = None) -> tuple[Path, pd.DataFrame]:
     """The model files plus what a later refit or hold-out test needs, in ``<out_dir>/<protocol-id>/``.
 
     Besides the models (:func:`save_models`): ``statistics.csv``, ``reference_failures.csv``,
     ``reference_raw.csv`` (the raw values fitted on, polymers at the chain limit) and, when there
-    are polymers, ``reference_oligomers.csv`` (their per-n values). Returns the folder and the
-    statistics table.
+    are polymers, ``reference_oligomers.csv`` (their per-n values). ``reference_dir``: the reference folder ``fp``
+    was computed on (:func:`fingerprint`), named beside the models (:data:`REFERENCE_RECORD`) unless it is the
+    shipped one; without it no folder is recorded. Returns the folder and the statistics table.
     """
     target = save_models(models, out_dir, fp)
-    _record_reference(target, fp)
+    _record_reference(target, fp, reference_dir)
     table = stats_table(models)
     write_csv(table, target / "statistics.csv")
     failed = computed[computed["status"] != "ok"]
@@ -327,11 +345,11 @@ def save_calibration(models: dict[str, dict], computed: pd.DataFrame, oligomers:
     return target, table
 
 
-def _record_reference(target: Path, fp: dict) -> None:
-    """Name the reference folder the models were fitted on beside them (:data:`REFERENCE_RECORD`), when it was
-    hashed in this process and is not the shipped one (which is found by its hash, and whose calibration must not
-    carry the path of one machine); a record of other data is removed."""
-    folder = _FOLDER_OF_HASH.get(fp.get("reference_sha256"))
+def _record_reference(target: Path, fp: dict, reference_dir: str | Path | None) -> None:
+    """Name the reference folder the models were fitted on beside them (:data:`REFERENCE_RECORD`), when the caller
+    gives it and it is not the shipped one (which is found by its hash, and whose calibration must not carry the
+    path of one machine); a record of other data is removed."""
+    folder = None if reference_dir is None else _reference_folder(reference_dir)
     path = Path(target) / REFERENCE_RECORD
     if folder is None or folder.resolve() == _shipped_reference().resolve():
         path.unlink(missing_ok=True)
@@ -413,12 +431,23 @@ def _mismatch_fix(found: dict, expected: dict, model_dir: Path, reference) -> st
     it was fitted on (:func:`reference_ways`), else a calibration of these settings (``dascreen calibrate``: every
     reference molecule is computed, hours) or the folder of a matching one."""
     if [k for k in FINGERPRINT_KEYS if found.get(k) != expected.get(k)] == ["reference_sha256"]:
-        return "; or ".join(reference_ways(model_dir, reference))
+        return "; or ".join(reference_ways(model_dir, reference).texts)
     return ("point calibration.models at a folder holding a calibration of these settings, or fit one with "
             "`dascreen calibrate` (it computes every reference molecule: hours)")
 
 
-def reference_ways(model_dir: str | Path, reference, install: str | None = None, run_with: str = "") -> list[str]:
+@dataclass(frozen=True)
+class ReferenceWays:
+    """What :func:`reference_ways` found: the ways in words, and whether the shipped calibration serves the run's
+    reference data (way 2: then no calibration of one's own is worth fitting; callers branch on this flag, never on
+    the words)."""
+
+    texts: tuple[str, ...]
+    shipped_serves: bool
+
+
+def reference_ways(model_dir: str | Path, reference, install: str | None = None,
+                   run_with: str = "") -> ReferenceWays:
     """The ways on when the calibration in ``model_dir`` was fitted on other reference data than ``reference`` (the
     run's ``calibration.reference``), first the one that keeps its numbers.
 
@@ -437,8 +466,9 @@ def reference_ways(model_dir: str | Path, reference, install: str | None = None,
     --------
     >>> from screen.config import Config
     >>> shipped = find_models(Config.of({}))
-    >>> reference_ways(shipped, "models/reference")[0].startswith("use the reference data it was fitted on, in ")
-    True
+    >>> got = reference_ways(shipped, "models/reference")
+    >>> got.texts[0].startswith("use the reference data it was fitted on, in "), got.shipped_serves
+    (True, False)
     """
     import shlex
 
@@ -453,8 +483,10 @@ def reference_ways(model_dir: str | Path, reference, install: str | None = None,
                 "their folder"]
     shipped = _shipped_reference()
     shipped_models = shipped.parent / model_dir.name
-    if ref.is_dir() and (shipped_models / "ip.json").is_file() and model_dir.resolve() != shipped_models.resolve() \
-            and fitted_reference(shipped_models)["sha256"] == reference_hash(ref):
+    shipped_serves = bool(ref.is_dir() and (shipped_models / "ip.json").is_file()
+                          and model_dir.resolve() != shipped_models.resolve()
+                          and fitted_reference(shipped_models)["sha256"] == reference_hash(ref))
+    if shipped_serves:
         ways.append(f"keep the reference data in {ref}: leave calibration.models out, the shipped calibration "
                     f"({shipped_models}) was fitted on them (the calibration in {model_dir} refitted on them would "
                     "be that one again)")
@@ -463,16 +495,59 @@ def reference_ways(model_dir: str | Path, reference, install: str | None = None,
         ways.append(f"keep the reference data in {ref}: refit the calibration in {model_dir} on them from its stored "
                     f"raw values in seconds: dascreen calibrate --from-raw {shlex.quote(str(model_dir))} --reference "
                     f"{shlex.quote(str(ref))} --install {into}{run_with}")
-    return ways
+    return ReferenceWays(tuple(ways), shipped_serves)
+
+
+def fingerprint_fields(found: dict, expected: dict) -> list[tuple[str, object, object]]:
+    """Every field in which a calibration's fingerprint ``found`` differs from ``expected`` (this run's or this
+    fit's), as ``(field, here, there)``: here from ``expected``, there from ``found``.
+
+    In this order: ``protocol_id``; every setting of the protocol and polymer sections (``section.key``; a setting a
+    fingerprint lacks counts at the value that reproduces the route from before it existed, else at its default);
+    ``engine_version``, only when both use the same engine (versions of two engines do not compare; the engine
+    itself is a setting); ``reference_sha256``. The one comparison of :func:`fingerprint_differences` and
+    :func:`screen.preflight.calibration_differences`.
+
+    Examples
+    --------
+    >>> from screen.config import Config
+    >>> base = fingerprint(Config.of({}), "models/reference")
+    >>> fingerprint_fields({**base, "engine_version": "0.1", "reference_sha256": "x"}, base)[0][0]
+    'engine_version'
+    >>> other = {**base, "engine_version": "0.1", "protocol": {**base["protocol"],
+    ...          "electronic": {**base["protocol"]["electronic"], "engine": "xtb"}}}
+    >>> [f for f, _, _ in fingerprint_fields(other, base)]
+    ['electronic.engine']
+    """
+    from screen.config import defaults, flat_settings
+    from screen.options import EARLIER_ROUTE_VALUES
+
+    def settings(fp: dict) -> dict:
+        return {**flat_settings(fp.get("protocol") or {}), **flat_settings({"polymer": fp.get("polymer") or {}})}
+
+    fallback = {**flat_settings(defaults()), **flat_settings({"structures": EARLIER_ROUTE_VALUES["structures"]})}
+    out: list[tuple[str, object, object]] = []
+    if found.get("protocol_id") != expected.get("protocol_id"):
+        out.append(("protocol_id", expected.get("protocol_id"), found.get("protocol_id")))
+    here, there = settings(expected), settings(found)
+    for key in sorted(set(here) | set(there)):
+        a, b = here.get(key, fallback.get(key)), there.get(key, fallback.get(key))
+        if a != b:
+            out.append((key, a, b))
+    engine = "electronic.engine"
+    same_engine = here.get(engine, fallback.get(engine)) == there.get(engine, fallback.get(engine))
+    if same_engine and found.get("engine_version") != expected.get("engine_version"):
+        out.append(("engine_version", expected.get("engine_version"), found.get("engine_version")))
+    if found.get("reference_sha256") != expected.get("reference_sha256"):
+        out.append(("reference_sha256", expected.get("reference_sha256"), found.get("reference_sha256")))
+    return out
 
 
 def fingerprint_differences(found: dict, expected: dict, found_name: str = "the installed calibration",
                             model_dir: str | Path | None = None, reference=None) -> list[str]:
-    """Every way a calibration's fingerprint ``found`` differs from ``expected`` that changes its numbers, in words.
-
-    Compared: the protocol id, every setting of the protocol and polymer sections (a setting a fingerprint lacks
-    counts at the value that reproduces the route from before it existed, else at its default, as
-    :func:`screen.preflight.calibration_differences` counts it), the engine version and the reference data.
+    """Every way a calibration's fingerprint ``found`` differs from ``expected`` that changes its numbers, in words
+    (:func:`fingerprint_fields`): the protocol id, the settings of the protocol and polymer sections, the engine
+    version (of the same engine) and the reference data.
 
     Parameters
     ----------
@@ -492,31 +567,21 @@ def fingerprint_differences(found: dict, expected: dict, found_name: str = "the 
     >>> fingerprint_differences(base, base)
     []
     """
-    from screen.config import defaults, flat_settings
-    from screen.options import EARLIER_ROUTE_VALUES
-
-    def settings(fp: dict) -> dict:
-        return {**flat_settings(fp.get("protocol") or {}), **flat_settings({"polymer": fp.get("polymer") or {}})}
-
-    fallback = {**flat_settings(defaults()), **flat_settings({"structures": EARLIER_ROUTE_VALUES["structures"]})}
     out = []
-    if found.get("protocol_id") != expected.get("protocol_id"):
-        out.append(f"protocol {expected.get('protocol_id')} here, {found.get('protocol_id')} in {found_name}")
-    here, there = settings(expected), settings(found)
-    for key in sorted(set(here) | set(there)):
-        a, b = here.get(key, fallback.get(key)), there.get(key, fallback.get(key))
-        if a != b:
-            out.append(f"{key}: {a} here, {b} in {found_name}")
-    if found.get("engine_version") != expected.get("engine_version"):
-        out.append(f"engine version {expected.get('engine_version')} here, {found.get('engine_version')} in "
-                   f"{found_name}")
-    if found.get("reference_sha256") != expected.get("reference_sha256"):
-        if model_dir is not None:
-            theirs = _fitted_on_text(fitted_reference(model_dir))
+    for field, a, b in fingerprint_fields(found, expected):
+        if field == "protocol_id":
+            out.append(f"protocol {a} here, {b} in {found_name}")
+        elif field == "engine_version":
+            out.append(f"engine version {a} here, {b} in {found_name}")
+        elif field == "reference_sha256":
+            if model_dir is not None:
+                theirs = _fitted_on_text(fitted_reference(model_dir))
+            else:
+                theirs = f"reference data of SHA-256 {str(b)[:12]}\u2026"
+            ours = f" (here: those in {data_path(reference)})" if reference is not None else ""
+            out.append(f"fitted on other reference data: {found_name} on {theirs}{ours}")
         else:
-            theirs = f"reference data of SHA-256 {str(found.get('reference_sha256'))[:12]}\u2026"
-        ours = f" (here: those in {data_path(reference)})" if reference is not None else ""
-        out.append(f"fitted on other reference data: {found_name} on {theirs}{ours}")
+            out.append(f"{field}: {a} here, {b} in {found_name}")
     return out
 
 

@@ -309,9 +309,8 @@ def _check_out_models(out: Path, given: str, cfg: Config, expected: dict) -> Non
     ConfigError
         Naming the folder and the fix: a new ``--out``, and ``--install DIR`` to install (exit code 2).
     """
-    from screen.calibrate import fingerprint_differences
+    from screen.calibrate import fingerprint_differences, installed_fingerprint
     from screen.config import PACKAGE_ROOT, data_path
-    from screen.io import read_json
 
     pid = cfg.protocol_id
     target = out / "models" / pid
@@ -326,10 +325,7 @@ def _check_out_models(out: Path, given: str, cfg: Config, expected: dict) -> Non
                           f"calibrating into --out {given} would replace in place; {fix}")
     if _is_calibrate_out(out):
         return
-    try:
-        found = read_json(target / "ip.json").get("fingerprint") or {}
-    except (OSError, ValueError, AttributeError):
-        found = {}
+    found = installed_fingerprint(target)
     diffs = fingerprint_differences(found, expected, "the calibration there", target, cfg["calibration"]["reference"])
     if diffs:
         raise ConfigError(f"--out {given}: {target} holds an installed calibration of protocol {pid}, not the work of "
@@ -385,14 +381,10 @@ def _check_install(dest: Path, cfg: Config, given: str, expected: dict | None = 
 
     ``expected``: the fingerprint of the new models (default: :func:`screen.calibrate.fingerprint` of ``cfg``).
     """
-    from screen.calibrate import fingerprint, fingerprint_differences
-    from screen.io import read_json
+    from screen.calibrate import fingerprint, fingerprint_differences, installed_fingerprint
 
-    try:
-        found = read_json(dest / "ip.json").get("fingerprint") or {}
-    except (OSError, ValueError, AttributeError):
-        return  # nothing installed there yet
-    if not isinstance(found, dict) or not found:
+    found = installed_fingerprint(dest)
+    if not found:  # nothing installed there yet
         return
     ref = cfg["calibration"]["reference"]
     expected = expected or fingerprint(cfg, ref)

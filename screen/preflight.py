@@ -1082,11 +1082,6 @@ def _flat_defaults() -> dict:
     return _flat(defaults())
 
 
-def _fingerprint_settings(fp: dict) -> dict:
-    """The settings of a calibration fingerprint as ``{"section.key": value}`` (config field names)."""
-    return {**_flat(fp.get("protocol", {})), **_flat({"polymer": fp.get("polymer", {})})}
-
-
 @dataclass(frozen=True)
 class CalibrationDifference:
     """One way a run's settings differ from a shipped calibration's."""
@@ -1141,39 +1136,23 @@ def calibration_differences(cfg) -> tuple[Path | None, list[CalibrationDifferenc
     >>> folder.name == Config.of({}).protocol_id, [d.text() for d in diffs]
     (True, ['polymer.n_max: 2 here, 4 in the shipped calibration'])
     """
-    import json
-
-    from screen.calibrate import fingerprint
-    from screen.options import EARLIER_ROUTE_VALUES
+    from screen.calibrate import _fitted_on_text, fingerprint, fingerprint_fields, fitted_reference, \
+        installed_fingerprint
 
     expected = fingerprint(cfg, cfg["calibration"]["reference"])
-    here = _fingerprint_settings(expected)
-    # a setting missing from a fingerprint is at its default, or, for a structures option that a protocol leaves
-    # out at the value reproducing the route from before it existed, at that value
-    fallback = {**_flat_defaults(), **_flat({"structures": EARLIER_ROUTE_VALUES["structures"]})}
     models = Path(cfg["calibration"]["models"])
     best: tuple | None = None
     for folder in sorted(models.iterdir()) if models.is_dir() else []:
-        try:
-            found = json.loads((folder / "ip.json").read_text(encoding="utf-8")).get("fingerprint") or {}
-        except (OSError, ValueError):
-            continue
+        found = installed_fingerprint(folder)
         if not found:
             continue
-        shipped = _fingerprint_settings(found)
-        diffs = [CalibrationDifference(key, here.get(key, fallback.get(key)), shipped.get(key, fallback.get(key)))
-                 for key in sorted(set(here) | set(shipped))
-                 if here.get(key, fallback.get(key)) != shipped.get(key, fallback.get(key))]
-        same_engine = here.get("electronic.engine", fallback.get("electronic.engine")) == shipped.get(
-            "electronic.engine", fallback.get("electronic.engine"))  # versions of two engines do not compare
-        if same_engine and found.get("engine_version") != expected["engine_version"]:
-            diffs.append(CalibrationDifference("engine_version", expected["engine_version"],
-                                               found.get("engine_version")))
-        if found.get("reference_sha256") != expected["reference_sha256"]:
-            from screen.calibrate import _fitted_on_text, fitted_reference
-
-            diffs.append(CalibrationDifference("calibration.reference", cfg["calibration"]["reference"],
-                                               _fitted_on_text(fitted_reference(folder))))
+        diffs = []
+        for field, here, there in fingerprint_fields(found, expected):  # the protocol id ranks, below
+            if field == "reference_sha256":
+                diffs.append(CalibrationDifference("calibration.reference", cfg["calibration"]["reference"],
+                                                   _fitted_on_text(fitted_reference(folder))))
+            elif field != "protocol_id":
+                diffs.append(CalibrationDifference(field, here, there))
         # closest: fewest differences in settings the run chose (not at their defaults), then fewest in all: with
         # `--set structures.geometry=xtb` the xTB-geometry calibration (one default differs), not the default one
         rank = (found.get("protocol_id") != expected["protocol_id"], sum(d.chosen for d in diffs), len(diffs))
@@ -1346,8 +1325,8 @@ def check_calibration(cfg, out, config_file=None) -> None:
 
         found = reference_ways(folder, cfg["calibration"]["reference"], install=str(_install_folder(cfg)),
                                run_with=_run_with(cfg))
-        ways += found
-    if not (reference_only and any("leave calibration.models out" in w for w in found)):
+        ways += found.texts
+    if not (reference_only and found.shipped_serves):
         ways.append(f"calibrate these settings once, then run again: {_calibrate_command(cfg, diffs, config_file)}"
                     f"{_run_with(cfg)}")
     ways.append("calibrate within this run: add --set calibration.refit=always")

@@ -234,4 +234,5 @@ def refit_from_raw(config, sources, out_root: str | Path) -> tuple[Path, pd.Data
     parts = [s for s in sides if len(s)]
     oligomers = pd.concat(parts, ignore_index=True).drop_duplicates() if parts else pd.DataFrame()
     computed, oligomers = rechain(computed, oligomers, cfg["polymer"]["fit_rms_tol_ev"])
-    return save_calibration(fit_all(sets, computed), computed, oligomers, out_root, fingerprint(cfg, reference))
+    return save_calibration(fit_all(sets, computed), computed, oligomers, out_root, fingerprint(cfg, reference),
+                            reference_dir=reference)

@@ -193,7 +193,8 @@ def _calibrate(args, cfg):
     models = fit_all(read_reference(args.reference), computed)
     # with the raw values fitted on and the per-n values of the reference polymers: hold-out tests and
     # refits (`dascreen calibrate --from-raw`) need no recomputation
-    _, table = save_calibration(models, computed, sidecar, args.models_root, fingerprint(cfg, args.reference))
+    _, table = save_calibration(models, computed, sidecar, args.models_root, fingerprint(cfg, args.reference),
+                                reference_dir=args.reference)
     print(table.to_string(index=False))
 
 

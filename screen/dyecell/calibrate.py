@@ -57,7 +57,7 @@ from screen.io import read_json, write_json
 from screen.provenance import library_versions, sha256_file
 
 __all__ = ["REFERENCE_FILE", "MODELS_DIR", "TARGETS", "DERIVED", "MIN_GAIN", "needed_columns", "reference_file",
-           "reference_table", "reference_input", "fitted_on",
+           "reference_table", "reference_input", "fitted_on", "REFERENCE_RECORD",
            "join_computed", "feature_matrix", "fit_target", "fit_models", "save_models", "load_models",
            "model_folder", "apply_models", "elements_of"]
 
@@ -151,9 +151,15 @@ def reference_file(reference: str | Path | None = None) -> Path:
     return path / "dyes.csv" if path.is_dir() else path
 
 
-#: placeholders that let :func:`screen.dyecell.checks.check_dye_file` check a reference row that gives only one of
-#: its two targets (the other model is fitted without it, :func:`fit_target`); never fitted
-_ONLY_E00, _ONLY_E_OX = "1.0", "2.0"
+def _check_reference_rows(check: pd.DataFrame, where: str) -> np.ndarray:
+    """E(S+/S) of the fitted reference rows, held to :func:`screen.dyecell.checks.check_dye_file` with each dye named
+    by its column ``name`` and a row that gives only one of its two targets checked for that one (the other model is
+    fitted without it, :func:`fit_target`); the index is the file's row, for its line in the messages."""
+    from screen.dyecell.checks import check_dye_file
+
+    if not len(check):
+        return np.zeros(0)
+    return check_dye_file(check, where, label="name", one_target=True)
 
 
 def reference_table(path: str | Path | None = None) -> pd.DataFrame:
@@ -187,7 +193,7 @@ def reference_table(path: str | Path | None = None) -> pd.DataFrame:
     ...
     screen.errors.InputError: dye reference file ...dyes.csv: line 2 (name 'A'), column e_ox_v_nhe = 1180: ... 1180 looks like millivolts: write 1.18 V
     """
-    from screen.dyecell.checks import check_dye_file, check_field_counts, merge_reference_alias
+    from screen.dyecell.checks import check_field_counts, merge_reference_alias
 
     path = reference_file(path)
     if not path.is_file():
@@ -209,27 +215,12 @@ def reference_table(path: str | Path | None = None) -> pd.DataFrame:
     for col in ("e_ox_v_nhe", "e_ox_v"):
         if col not in fitted:
             fitted[col] = ""
-    blank = {c: fitted[c].str.strip().eq("") for c in ("e_ox_v_nhe", "e_ox_v", "e00_ev")}
-    only_e00 = blank["e_ox_v_nhe"] & blank["e_ox_v"] & ~blank["e00_ev"]
-    only_e_ox = blank["e00_ev"] & ~(blank["e_ox_v_nhe"] & blank["e_ox_v"])
-    check = fitted.drop(columns=[c for c in ("id",) if c in fitted]).rename(columns={"name": "id"})
+    check = fitted.drop(columns=[c for c in ("id",) if c in fitted])
     if "solvent" in check and "e_ox_reference" in check:  # the file's solvent column describes the measurement;
         # only a ferrocene reference reads it (checks.check_dye_file): elsewhere it would only fill the messages
         ferrocene = check["e_ox_reference"].str.strip().str.lower().str.startswith(("fc", "ferroc"))
         check.loc[~ferrocene, "solvent"] = ""
-    check.loc[only_e00, "e_ox_v_nhe"] = _ONLY_E00
-    check.loc[only_e_ox, "e00_ev"] = _ONLY_E_OX
-    try:
-        e_ox = check_dye_file(check, where) if len(check) else np.zeros(0)  # the index is the file's row: its line
-    except InputError as exc:  # in the words of this file, whose dyes are named in column name
-        text = str(exc)
-        for said, meant in ((" (id '", " (name '"), ("column id is empty; give every dye an id",
-                                                      "column name is empty; give every dye a name"),
-                            (": id '", ": name '"), ("\n  id '", "\n  name '"),
-                            ("ids must be unique", "names must be unique")):
-            text = text.replace(said, meant)
-        raise InputError(text) from None
-    fitted["e_ox_v_nhe"] = np.where(only_e00.to_numpy(), np.nan, e_ox)
+    fitted["e_ox_v_nhe"] = _check_reference_rows(check, where)  # NaN for a row that gives only E00
     fitted["e00_ev"] = pd.to_numeric(fitted["e00_ev"], errors="coerce")
     return fitted.reset_index(drop=True)
 
@@ -403,10 +394,10 @@ def fit_models(computed: pd.DataFrame, reference: str | Path | None = None, *, p
     ref_path = reference_file(reference)
     data = join_computed(reference_table(ref_path), computed)
     elements = sorted(set().union(*(elements_of(s) for s in data["smiles"]))) if len(data) else []
-    # reference_file: the file's path, so that a dye calibration says which reference folder it was fitted on
+    # the data by their hash only: a model file carries no path of one machine (the file is named beside the models,
+    # REFERENCE_RECORD, by save_models)
     fp = {"protocol_id": protocol_id, "engine_version": engine_version, "reference": ref_path.name,
-          "reference_file": str(ref_path.resolve()), "reference_sha256": sha256_file(ref_path),
-          "versions": library_versions()}
+          "reference_sha256": sha256_file(ref_path), "versions": library_versions()}
     out = {}
     for name in TARGETS:
         model = fit_target(name, data, (feature_sets or {}).get(name))
@@ -416,10 +407,30 @@ def fit_models(computed: pd.DataFrame, reference: str | Path | None = None, *, p
     return out
 
 
+#: the file beside a folder's dye models that names the dye reference file they were fitted on (:func:`save_models`;
+#: not a model file, so no model carries one machine's path; models fitted on the shipped file have none)
+REFERENCE_RECORD = "reference_file.json"
+
+
+def _recorded_file(folder: Path, sha) -> str | None:
+    """The dye reference file named beside the models of ``folder`` (:data:`REFERENCE_RECORD`) for data of ``sha``;
+    else the ``reference_file`` of their fingerprint (model files written before the record existed)."""
+    try:
+        record = read_json(folder / REFERENCE_RECORD)
+        if record.get("reference_sha256") == sha and record.get("reference_file"):
+            return str(record["reference_file"])
+    except (OSError, ValueError, AttributeError):
+        pass
+    try:
+        return (read_json(folder / "e_ox.json").get("fingerprint") or {}).get("reference_file") or None
+    except (OSError, ValueError, AttributeError):
+        return None
+
+
 def fitted_on(folder: str | Path) -> str | None:
     """The dye reference file the dye models of ``folder`` were fitted on, in words (None without a readable
-    ``e_ox.json``): the file they record (``reference_file``, written from now on) while it holds those data, the
-    shipped :data:`REFERENCE_FILE` when they are its data, else the SHA-256 of the data.
+    ``e_ox.json``): the file named beside them (:data:`REFERENCE_RECORD`) while it holds those data, the shipped
+    :data:`REFERENCE_FILE` when they are its data, else the SHA-256 of the data.
 
     Examples
     --------
@@ -431,11 +442,12 @@ def fitted_on(folder: str | Path) -> str | None:
     except (OSError, ValueError, AttributeError):
         return None
     sha = fp.get("reference_sha256")
-    for candidate in (fp.get("reference_file"), REFERENCE_FILE):
+    recorded = _recorded_file(Path(folder), sha)
+    for candidate in (recorded, REFERENCE_FILE):
         if candidate and Path(candidate).is_file() and sha256_file(candidate) == sha:
             return str(candidate)
-    if fp.get("reference_file"):
-        return f"{fp['reference_file']} as it was then (SHA-256 {str(sha)[:12]}\u2026; it holds other data now)"
+    if recorded:
+        return f"{recorded} as it was then (SHA-256 {str(sha)[:12]}\u2026; it holds other data now)"
     return f"a dye reference file of SHA-256 {str(sha)[:12]}\u2026"
 
 
@@ -444,12 +456,26 @@ def model_folder(protocol_id: str, root: str | Path | None = None) -> Path:
     return Path(root or MODELS_DIR) / protocol_id
 
 
-def save_models(models: dict[str, dict], root: str | Path | None = None) -> Path:
-    """Write ``<root>/<protocol-id>/e_ox.json`` and ``e00.json``; return the folder."""
-    pid = models["e_ox"]["fingerprint"]["protocol_id"] or "unknown-protocol"
+def save_models(models: dict[str, dict], root: str | Path | None = None,
+                reference: str | Path | None = None) -> Path:
+    """Write ``<root>/<protocol-id>/e_ox.json`` and ``e00.json``; return the folder.
+
+    ``reference``: the dye reference file (or its folder, :func:`reference_file`) the models were fitted on, named
+    beside them (:data:`REFERENCE_RECORD`) when it holds their data and is not the shipped :data:`REFERENCE_FILE`
+    (found by its hash); a record of other data is removed.
+    """
+    fp = models["e_ox"]["fingerprint"]
+    pid = fp["protocol_id"] or "unknown-protocol"
     folder = model_folder(pid, root)
     for name, model in models.items():
         write_json(model, folder / f"{name}.json")
+    record = folder / REFERENCE_RECORD
+    path = None if reference is None else reference_file(reference)
+    if path is None or not path.is_file() or path.resolve() == REFERENCE_FILE.resolve() \
+            or sha256_file(path) != fp.get("reference_sha256"):
+        record.unlink(missing_ok=True)
+    else:
+        write_json({"reference_file": str(path.resolve()), "reference_sha256": fp["reference_sha256"]}, record)
     return folder
 
 
@@ -581,4 +607,4 @@ def refit(levels_path: str | Path, reference: str | Path | None = None, root: st
     computed = pd.read_csv(levels_path, keep_default_na=False, na_values=[""])
     models = fit_models(computed, reference, protocol_id=pid, engine_version=".".join(str(version).split(".")[:2]),
                         feature_sets=feature_sets)
-    return save_models(models, root)
+    return save_models(models, root, reference=reference_file(reference))
