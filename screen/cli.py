@@ -80,7 +80,7 @@ if os.path.basename(sys.argv[0] if sys.argv else "") == "dascreen":  # the conso
 import yaml  # noqa: E402
 
 from screen import __version__  # noqa: E402
-from screen.config import Config  # noqa: E402
+from screen.config import Config, nearest_existing  # noqa: E402
 from screen.errors import CalculationError, ConfigError, DascreenError, InputError, exit_code  # noqa: E402
 from screen.cli_shared import (EXIT_ERROR, EXIT_OK, EXIT_STRICT, _at_least_one, _days, _load,  # noqa: F401,E402
                                _percent,
@@ -359,11 +359,11 @@ def _check_install_folder(given: str, pid: str | None) -> None:
     folder = Path(given).expanduser().absolute()
     if folder.exists() and not folder.is_dir():
         raise ConfigError(f"--install {given} is a file, not a folder; {about}")
-    parent = next((p for p in folder.parents if p.exists()), None)
-    if not folder.exists() and parent is not None and not parent.is_dir():
+    parent = nearest_existing(folder.parent)
+    if not folder.exists() and not parent.is_dir():
         raise ConfigError(f"--install {given}: {parent} is a file, not a folder; {about}")
     existing = folder if folder.exists() else parent
-    if existing is not None and not os.access(existing, os.W_OK | os.X_OK):
+    if not os.access(existing, os.W_OK | os.X_OK):
         raise ConfigError(f"--install {given}: {existing} cannot be written to; {about} that you can write to")
     if pid is not None and (folder / pid).exists() and not (folder / pid).is_dir():
         raise ConfigError(f"--install {given}: {folder / pid} is a file, not a folder; move it away or {about}")

@@ -113,6 +113,7 @@ from screen.viability import OFFSET_TOL_EV, CurrentTerms, classify
 
 __all__ = [
     "DeviceModel",
+    "DEVICE_FIELDS",
     "voc_v",
     "efficiency_map",
     "join_flags",

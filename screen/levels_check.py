@@ -46,7 +46,8 @@ from screen.errors import InputError
 from screen.io import text_cells
 
 __all__ = ["check_levels", "check_partner", "raise_problems", "row_problems", "sigma_problem", "inconsistent_rows", "quoted",
-           "scoring_calibration", "file_line", "fmt_value", "hartree_hint", "text_row_problems",
+           "scoring_calibration", "file_line", "fmt_value", "hartree_hint", "text_row_problems", "nm_hint", "mv_hint",
+           "decimal_comma_hint", "e00_problem", "HC_EV_NM", "E00_RANGE_EV",
            "GAP_EXCESS_TOL_EV",
            "GAP_DEFICIT_MAX_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV", "QUOTE_MAX", "SIGMA_MAX_EV", "HOMO_MAX_EV",
            "FILM_LUMO_MAX_EV", "HARTREE_GAP_MAX_EV"]
@@ -121,6 +122,22 @@ def mv_hint(value: float, unit: str = "V") -> str | None:
     return None
 
 
+#: hc in eV nm (CODATA 2018: 1239.841984 eV nm), for an energy written as a wavelength
+HC_EV_NM = 1239.84
+
+
+def nm_hint(value: float) -> str:
+    """The hint for an energy [eV] written as a wavelength [nm]: E = hc/λ.
+
+    Examples
+    --------
+    >>> nm_hint(650)
+    '650 looks like a wavelength in nm: write 1239.84/650 = 1.91 eV'
+    """
+    return f"{fmt_value(value)} looks like a wavelength in nm: write {HC_EV_NM:g}/{fmt_value(value)} = " \
+           f"{HC_EV_NM / value:.3g} eV"
+
+
 def e00_problem(value: float) -> str | None:
     """What is wrong with a dye's E₀₋₀ [eV] (None if it is plausible; NaN is not checked here).
 
@@ -135,8 +152,7 @@ def e00_problem(value: float) -> str | None:
     if value <= 0 and lo <= -value <= hi:
         return f"E00 is a positive excitation energy in eV (typically 1.2-3.5 eV for a sensitiser); write {fmt_value(-value)}"
     if value >= 100.0:
-        return (f"E00 must be in eV; {fmt_value(value)} looks like a wavelength in nm: write 1239.84/{fmt_value(value)} = "
-                f"{1239.84 / value:.3g} eV")
+        return f"E00 must be in eV; {nm_hint(value)}"
     return (f"E00 must be in eV and lie in {lo:g}-{hi:g} eV (typically 1.2-3.5 eV for a sensitiser, "
             f"E00 = 1239.84/lambda[nm]); check the units")
 
@@ -245,7 +261,7 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
     >>> [p[0] for p in row_problems(-3.9, -5.4, 1.5, "film")]
     ['homo_ev']
     >>> row_problems(-5.4, -3.9, 650.0, "film")[0][2]
-    'an optical gap of 650 eV looks like a wavelength in nm; write 1240/650 = 1.91 eV'
+    'an optical gap must be in eV; 650 looks like a wavelength in nm: write 1239.84/650 = 1.91 eV'
     >>> row_problems(-5.0, -5.0, 1.5, "film")[0][2][:39]
     'HOMO and LUMO are equal (-5): that is a'
     >>> row_problems(-5.4, -3.6, 1.6, "film", {"homo_sigma_ev": 50.0})[0][2]
@@ -278,8 +294,7 @@ def row_problems(homo: float, lumo: float, gap: float, scale: str, sigmas: dict 
             out.append(("gap_opt_ev", gap, "the optical gap must be positive; write the absorption onset energy in "
                                            "eV, e.g. 1.6"))
         elif gap > GAP_MAX_INPUT_EV:
-            out.append(("gap_opt_ev", gap, f"an optical gap of {gap:g} eV looks like a wavelength in nm; write "
-                                           f"1240/{gap:g} = {1239.84 / gap:.2f} eV"))
+            out.append(("gap_opt_ev", gap, f"an optical gap must be in eV; {nm_hint(gap)}"))
         elif math.isfinite(homo) and math.isfinite(lumo) and not out:
             if gap > lumo - homo + GAP_EXCESS_TOL_EV + _ROUND_EV:
                 out.append(("gap_opt_ev", gap, f"the optical gap ({fmt_value(gap)} eV) exceeds LUMO - HOMO "

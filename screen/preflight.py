@@ -773,8 +773,8 @@ def check_out_folder(out, given: str | None = None) -> None:
     given = str(out) if given is None else given
     if out.exists() and not out.is_dir():
         raise ConfigError(f"--out {given} is a file, not a folder; choose a folder (a new one is created)")
-    parent = next((p for p in out.absolute().parents if p.exists()), None)
-    if parent is not None and not parent.is_dir():
+    parent = nearest_existing(out.absolute().parent)
+    if not parent.is_dir():
         raise ConfigError(f"--out {given}: {parent} is a file, not a folder; choose an --out folder outside it")
 
 
@@ -851,8 +851,8 @@ def check_out(out, candidates=None, overwrite: bool = False, given: str | None =
     out = Path(out)
     check_out_folder(out, given)
     if not out.exists():
-        parent = next((p for p in out.absolute().parents if p.exists()), None)
-        if parent is not None and not _writable(parent):
+        parent = nearest_existing(out.absolute().parent)
+        if not _writable(parent):
             raise ConfigError(f"--out {out}: cannot create it, {parent} is not writable")
         return
     if not _writable(out):

@@ -133,11 +133,6 @@ def _voc_exact(gap_ev):
     return np.asarray(sq_limit(gap_ev)["voc_v"], dtype=float)
 
 
-def _jsc_lookup_unit_eqe(gap_ev: np.ndarray, ibuf=None, tmp=None) -> np.ndarray:
-    """Table interpolation of Jsc(EQE=1) [mA cm⁻²] (``ibuf``, ``tmp`` kept for old callers, unused)."""
-    return _lookup(_tables()[0], gap_ev)
-
-
 def jsc_fast(gap_ev):
     """Jsc at EQE = 1 [mA cm⁻²]; below the grid the table's first value is exact (the spectrum starts at
     0.31 eV, so every gap below it absorbs every photon)."""

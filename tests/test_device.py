@@ -132,7 +132,7 @@ def test_jsc_decreases_with_gap():
 
 def test_sampler_table_tracks_exact_jsc():
     gaps = np.random.default_rng(0).uniform(0.4, 4.3, 20000)
-    approx = sampling._jsc_lookup_unit_eqe(gaps.copy())
+    approx = sampling.jsc_fast(gaps.copy())
     assert np.max(np.abs(approx - jsc_ma_cm2(gaps, eqe=1.0))) < 1e-3  # mA cm-2
 
 

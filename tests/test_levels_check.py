@@ -23,7 +23,7 @@ def _frame(**cols):
     (dict(homo_ev=-3.5, lumo_ev=-5.3), "homo_ev", "look swapped"),
     (dict(gap_opt_ev=0.0), "gap_opt_ev", "must be positive"),
     (dict(gap_opt_ev=-1.2), "gap_opt_ev", "must be positive"),
-    (dict(gap_opt_ev=730.0), "gap_opt_ev", "1240/730 = 1.70 eV"),
+    (dict(gap_opt_ev=730.0), "gap_opt_ev", "1239.84/730 = 1.7 eV"),
     (dict(gap_opt_ev=1.8 + GAP_EXCESS_TOL_EV + 0.05), "gap_opt_ev", "exceeds LUMO - HOMO"),
     (dict(homo_sigma_ev=-0.1), "homo_sigma_ev", ">= 0"),
     (dict(lumo_sigma_ev=np.inf), "lumo_sigma_ev", ">= 0"),

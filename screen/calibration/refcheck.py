@@ -43,8 +43,8 @@ import pandas as pd
 
 from screen.chem import canonical
 from screen.levels_check import fmt_value as _g
-from screen.levels_check import (decimal_comma_hint, e00_problem, file_line, hartree_hint, mv_hint, quoted,
-                                 raise_problems, row_problems)
+from screen.levels_check import (HC_EV_NM, decimal_comma_hint, e00_problem, file_line, hartree_hint, mv_hint,
+                                 nm_hint, quoted, raise_problems, row_problems)
 
 __all__ = ["DERIVED_LEVELS", "IP_GAS_RANGE_EV", "EA_GAS_RANGE_EV", "OPTICAL_GAP_RANGE_EV", "FILM_HOMO_RANGE_EV", "FILM_LUMO_RANGE_EV",
            "FC_REFERENCE_RANGE_EV", "KINDS", "PHASES", "check_reference_set", "reference_problems",
@@ -125,8 +125,8 @@ def gas_value_problem(what: str, value: float) -> str | None:
         return ("an ionisation energy is positive (IP = -HOMO); write " if what == "ip" else
                 "an excitation energy is positive; write ") + _g(-value)
     hint = None
-    if what == "gap" and value >= 100.0 and lo <= 1239.84 / value <= hi:
-        hint = f"{_g(value)} looks like a wavelength in nm: write 1239.84/{_g(value)} = {1239.84 / value:.3g} eV"
+    if what == "gap" and value >= 100.0 and lo <= HC_EV_NM / value <= hi:
+        hint = nm_hint(value)
     elif abs(value) >= 100.0:
         hint = mv_hint(value, "eV")
     elif what == "ea" and value < lo and -value <= hi:
