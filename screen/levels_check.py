@@ -46,7 +46,7 @@ from screen.errors import InputError
 from screen.io import text_cells
 
 __all__ = ["check_levels", "check_partner", "raise_problems", "row_problems", "sigma_problem", "inconsistent_rows", "quoted",
-           "scoring_calibration", "file_line", "fmt_value", "hartree_hint", "text_row_problems", "nm_hint", "mv_hint",
+           "scoring_calibration", "file_line", "fmt_value", "hartree_hint", "text_row_problems", "nm_hint", "mv_hint", "not_a_number",
            "decimal_comma_hint", "e00_problem", "HC_EV_NM", "E00_RANGE_EV",
            "GAP_EXCESS_TOL_EV",
            "GAP_DEFICIT_MAX_EV", "LEVEL_MIN_EV", "GAP_MAX_INPUT_EV", "QUOTE_MAX", "SIGMA_MAX_EV", "HOMO_MAX_EV",
@@ -120,6 +120,27 @@ def mv_hint(value: float, unit: str = "V") -> str | None:
         name = "millivolts" if unit == "V" else "millielectronvolts"
         return f"{fmt_value(value)} looks like {name}: write {value / 1000:.3g} {unit}"
     return None
+
+
+def not_a_number(text: str, unit: str = "eV", example: str = "-5.3", optional: bool = False) -> str:
+    """The message for a cell that is not a number: a decimal comma or a typographic minus named as such (the
+    levels, dye and reference-file checks).
+
+    Examples
+    --------
+    >>> not_a_number("-5,35"), not_a_number("\u22125.35")
+    ('not a number; a decimal comma? write -5.35 (eV, with a decimal point)', 'not a number; a typographic minus sign (\u2212)? write -5.35')
+    >>> not_a_number("n/a", "V", "1.1", optional=True)
+    'not a number; write the value in V, e.g. 1.1 (leave the cell empty if unknown)'
+    """
+    comma = decimal_comma_hint(text)
+    if comma:
+        return f"not a number; a decimal comma? write {comma} ({unit}, with a decimal point)"
+    plain = str(text).strip().replace("\u2212", "-")
+    if plain != str(text).strip() and pd.notna(pd.to_numeric(plain, errors="coerce")):
+        return f"not a number; a typographic minus sign (\u2212)? write {plain}"
+    return f"not a number; write the value in {unit}, e.g. {example}" + (" (leave the cell empty if unknown)"
+                                                                        if optional else "")
 
 
 #: hc in eV nm (CODATA 2018: 1239.841984 eV nm), for an energy written as a wavelength
@@ -385,10 +406,10 @@ def _number(frame: pd.DataFrame, col: str, source: str, ids, finite: bool = Fals
     bad = text | (np.isinf(num.to_numpy(dtype=float)) if finite else False)
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
-        what = "not a number" if text[i] else "not a finite number"
+        what = not_a_number(str(raw.iloc[i]), optional=True) if text[i] else \
+            "not a finite number; write the value in eV, e.g. -5.3 (leave the cell empty if unknown)"
         shown = quoted(raw.iloc[i]) if text[i] else f"{float(num.iloc[i]):g}"
-        raise InputError(f"{source}: line {file_line(frame, i)} (id {quoted(ids[i])}), column {col} = {shown}: {what}; "
-                         "write the value in eV, e.g. -5.3 (leave the cell empty if unknown)")
+        raise InputError(f"{source}: line {file_line(frame, i)} (id {quoted(ids[i])}), column {col} = {shown}: {what}")
     return num.to_numpy(dtype=float)
 
 

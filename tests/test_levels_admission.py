@@ -145,3 +145,17 @@ def test_renamed_helpers_are_public():
     assert fmt_value(-5.30) == "-5.3"
     # 1 Eh = 27.2114 eV (CODATA): -0.2 Eh is a HOMO of -5.44 eV
     assert hartree_hint(-0.2, -9.0, -4.0).startswith("-0.2 looks like hartree")
+
+
+def test_a_levels_file_names_a_decimal_comma_as_the_dye_and_reference_checks_do(tmp_path):
+    # the three numeric-column checks wrote their own "not a number" message; a levels file's said only "write the
+    # value in eV", where a dye file and a reference file named the decimal comma or the typographic minus
+    from screen.errors import InputError
+    from screen.levels import read_levels
+    from screen.levels_check import check_levels
+
+    path = tmp_path / "lv.csv"
+    path.write_text('id,homo_ev,lumo_ev,gap_opt_ev,scale\nD1,"-5,35",-3.4,1.9,film\n', encoding="utf-8")
+    with pytest.raises(InputError, match=r"line 2 \(id 'D1'\), column homo_ev = '-5,35': not a number; a decimal "
+                                         r"comma\? write -5.35 \(eV, with a decimal point\)"):
+        check_levels(read_levels(path), str(path))

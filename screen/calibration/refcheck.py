@@ -44,7 +44,7 @@ import pandas as pd
 from screen.chem import canonical
 from screen.levels_check import fmt_value as _g
 from screen.levels_check import (HC_EV_NM, decimal_comma_hint, e00_problem, file_line, hartree_hint, mv_hint,
-                                 nm_hint, quoted, raise_problems, row_problems)
+                                 nm_hint, not_a_number, quoted, raise_problems, row_problems)
 
 __all__ = ["DERIVED_LEVELS", "IP_GAS_RANGE_EV", "EA_GAS_RANGE_EV", "OPTICAL_GAP_RANGE_EV", "FILM_HOMO_RANGE_EV", "FILM_LUMO_RANGE_EV",
            "FC_REFERENCE_RANGE_EV", "KINDS", "PHASES", "check_reference_set", "reference_problems",
@@ -209,18 +209,6 @@ def film_level_problems(homo: float, lumo: float, gap: float, fc: float = float(
     return out
 
 
-def _not_a_number(text: str, example: str, optional: bool) -> str:
-    """The message for a cell that is not a number: a decimal comma or a typographic minus named as such."""
-    comma = decimal_comma_hint(text)
-    if comma:
-        return f"not a number; a decimal comma? write {comma} (eV, with a decimal point)"
-    plain = text.strip().replace("\u2212", "-")
-    if plain != text.strip() and pd.notna(pd.to_numeric(plain, errors="coerce")):
-        return f"not a number; a typographic minus sign (\u2212)? write {plain}"
-    return f"not a number; write the value in eV, e.g. {example}" + (" (leave the cell empty if unknown)"
-                                                                    if optional else "")
-
-
 def _numbers(frame: pd.DataFrame, col: str, example: str, optional: bool, rows, problems: list) -> np.ndarray:
     """A column of ``frame`` as floats (NaN where empty or bad); a problem for each of ``rows`` that is not a
     finite number or, unless ``optional``, is empty."""
@@ -237,7 +225,7 @@ def _numbers(frame: pd.DataFrame, col: str, example: str, optional: bool, rows, 
                 problems.append((i, f"column {col} is empty; give the value in eV (e.g. {example}), or give the row "
                                     "an exclude_reason"))
         elif math.isnan(num[i]) and t.lower() != "nan":
-            problems.append((i, f"column {col} = {quoted(t)}: {_not_a_number(t, example, optional)}"))
+            problems.append((i, f"column {col} = {quoted(t)}: {not_a_number(t, 'eV', example, optional)}"))
         elif not math.isfinite(num[i]):
             problems.append((i, f"column {col} = {quoted(t)}: not a finite number; write the value in eV, e.g. "
                                 f"{example}"))

@@ -33,8 +33,8 @@ import pandas as pd
 
 from screen.dyecell.scales import ABSOLUTE_NHE_V, needs_solvent, solvent_conflict, to_nhe
 from screen.errors import InputError
-from screen.levels_check import (E00_RANGE_EV, decimal_comma_hint, e00_problem, file_line, mv_hint, raise_problems,
-                                 text_row_problems)
+from screen.levels_check import (E00_RANGE_EV, decimal_comma_hint, e00_problem, file_line, mv_hint, not_a_number,
+                                 raise_problems, text_row_problems)
 
 __all__ = ["E_OX_RANGE_V_NHE", "E00_RANGE_EV", "POTENTIAL_RANGE_V_NHE", "THRESHOLD_RANGE_EV", "SIGMA_MAX",
            "NO_ANCHOR_WORDS", "e_ox_problem", "e00_problem", "potential_problem", "vacuum_problem",
@@ -286,10 +286,7 @@ def check_dye_file(frame: pd.DataFrame, where: str = "dye file", *, label: str =
             try:
                 out[i] = float(text)
             except ValueError:
-                comma = decimal_comma_hint(text)
-                problems.append(f"{at(i, col, text)}: not a number; "
-                                + (f"a decimal comma? write {comma} ({unit}, with a decimal point)" if comma else
-                                   f"write the value in {unit}, e.g. {example}"))
+                problems.append(f"{at(i, col, text)}: {not_a_number(text, unit, example)}")
                 bad.add((i, col))
                 continue
             if not math.isfinite(out[i]):
