@@ -44,6 +44,7 @@ import pandas as pd
 
 from screen.errors import InputError
 from screen.io import text_cells
+from screen.spectrum import gap_to_wavelength_nm
 
 __all__ = ["check_levels", "check_partner", "raise_problems", "row_problems", "sigma_problem", "inconsistent_rows", "quoted",
            "scoring_calibration", "file_line", "fmt_value", "hartree_hint", "text_row_problems", "nm_hint", "mv_hint", "not_a_number",
@@ -143,8 +144,8 @@ def not_a_number(text: str, unit: str = "eV", example: str = "-5.3", optional: b
                                                                         if optional else "")
 
 
-#: hc in eV nm (CODATA 2018: 1239.841984 eV nm), for an energy written as a wavelength
-HC_EV_NM = 1239.84
+#: hc in eV nm (CODATA, :func:`screen.spectrum.gap_to_wavelength_nm` of 1 eV), for an energy written as a wavelength
+HC_EV_NM = float(gap_to_wavelength_nm(1.0))
 
 
 def nm_hint(value: float) -> str:
@@ -467,6 +468,10 @@ def file_line(frame: pd.DataFrame, i: int) -> int:
 _ROW_TEXT = ("id", "name", "role")
 
 
+#: a C0 control character, or its Control Pictures symbol (U+2400–U+241F), which the admission rule reads as one
+_CONTROL_OR_PICTURE = re.compile("[\x00-\x1f\u2400-\u241f]")
+
+
 def text_row_problems(frame: pd.DataFrame, ids=None, cells=_ROW_TEXT) -> list:
     r"""``(row, message)`` of the rows of an input table that may not be read at all
     (:func:`screen.prepare.checks.text_row_problem`, the admission rule of the candidate files): a control character
@@ -485,14 +490,21 @@ def text_row_problems(frame: pd.DataFrame, ids=None, cells=_ROW_TEXT) -> list:
     >>> text_row_problems(pd.DataFrame({"id": ["big"], "smiles": ["C" * 12000]}))[0][1][:60]
     "line 2 (id 'big'), column smiles = 'CCCCCCCCCCCCCCCCCCCCCCCC"
     """
-    from screen.prepare.checks import text_row_problem
+    from screen.prepare.checks import FULL_CHECK_ATOMS, text_row_problem
 
     if ids is None:
         ids = frame["id"].pipe(text_cells).to_numpy() if "id" in frame else [""] * len(frame)
-    texts = {c: frame[c].pipe(text_cells).to_numpy() for c in cells if c in frame}
-    smiles = frame["smiles"].pipe(text_cells).to_numpy() if "smiles" in frame else [""] * len(frame)
+    texts = {c: frame[c].pipe(text_cells) for c in cells if c in frame}
+    smiles = frame["smiles"].pipe(text_cells) if "smiles" in frame else pd.Series([""] * len(frame), dtype=object)
+    # only a row with a control character (or its picture symbol) or a SMILES long enough to hold more heavy atoms
+    # than are read in full can fail the rule: the others are not looked at one by one (a re-rank of 10 000 rows)
+    suspect = smiles.str.len().to_numpy() > FULL_CHECK_ATOMS
+    for column in texts.values():
+        suspect |= column.str.contains(_CONTROL_OR_PICTURE).to_numpy()
+    texts = {c: v.to_numpy() for c, v in texts.items()}
+    smiles = smiles.to_numpy()
     out = []
-    for i in range(len(frame)):
+    for i in np.flatnonzero(suspect):
         col, why = text_row_problem({c: v[i] for c, v in texts.items()}, smiles[i], line_breaks=True)
         if not col:
             continue

@@ -414,6 +414,8 @@ def text_row_problem(cells: dict[str, str], smiles: str = "", max_heavy_atoms: i
     problem = smiles_length_problem(smiles, limit)
     if problem:
         return "smiles", problem
+    if len(smiles) <= full_check_limit(limit):  # every heavy atom takes a character: no parse on a re-rank's rows
+        return "", ""
     with rdBase.BlockLogs():
         mol = Chem.MolFromSmiles(smiles.strip(), sanitize=False)
     heavy = mol.GetNumHeavyAtoms() if mol is not None else 0
