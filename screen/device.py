@@ -44,8 +44,9 @@ gap sets the current).
 Both: a pair whose model Jsc (at the model's EQE and charge-generation yields) is below
 :data:`screen.viability.JSC_MIN_MA_CM2` — written as 0 — is not viable, flagged by the factor that makes it vanish
 (:func:`screen.viability.dark_current`: the absorber gap, ``absorber_gap_invalid``, or an offset whose yield
-1 − exp(−Δ/Δ0) leaves no current — with the shipped Δ0 = 0.01 eV an offset below 0.02–0.4 µeV at gaps of 1–3 eV —,
-``lumo_offset_low``/``homo_offset_low``), in :meth:`DeviceModel.evaluate` and in the sampler's kernel alike.
+1 − exp(−Δ/Δ0) leaves no current, ``lumo_offset_low``/``homo_offset_low`` — with the shipped Δ0 = 0.01 eV only an
+offset below 0.02–0.4 µeV at gaps of 1–3 eV would, and such an offset is no type-II offset at all: below
+:data:`screen.viability.OFFSET_TOL_EV`, it is written 0.0), in :meth:`DeviceModel.evaluate` and in the sampler's kernel alike.
 :math:`\\mathrm{PCE} = V_{oc} J_{sc}\\, \\mathrm{FF} / P_{in}`; Voc is
 capped at the detailed-balance Voc of the smallest optical gap of the pair
 (below that gap) and PCE at the detailed-balance limit for the absorber gap
@@ -752,7 +753,7 @@ class DeviceModel:
         the pair (``voc_capped``), nor, in the fitted model, that gap less the smallest
         total loss E_g − qVoc of the fitted devices (``loss_floor``), and PCE never
         exceeds the detailed-balance limit for the absorber gap (``pce_capped``).  An offset counts as meeting its
-        threshold if it is at most 1e-9 eV below it.  A Jsc below :data:`screen.viability.JSC_MIN_MA_CM2`
+        threshold if it is at most :data:`screen.viability.OFFSET_TOL_EV` (half of the last written decimal) below it.  A Jsc below :data:`screen.viability.JSC_MIN_MA_CM2`
         (written as 0) makes the pair not viable: ``absorber_gap_invalid`` where the photons above the absorber gap
         fall short even with every charge-generation yield 1, else ``lumo_offset_low``/``homo_offset_low`` for the
         offset whose yield makes it vanish (:func:`screen.viability.dark_current`).

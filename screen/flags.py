@@ -35,7 +35,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from screen.io import cell_number
-from screen.viability import GAP_MAX_EV, JSC_MIN_MA_CM2
+from screen.viability import GAP_MAX_EV, JSC_MIN_MA_CM2, WRITTEN_DECIMALS
 
 __all__ = ["Flag", "FLAGS", "FLAG_ORDER", "INFO_FLAGS", "NOT_VIABLE_FLAGS", "DEVICE_FLAGS", "describe", "is_info",
            "is_not_viable", "codes_of", "reason_of", "join_flags", "SEVERITIES",
@@ -229,8 +229,8 @@ def _fmt(x: float, digits: int = 2) -> str:
 
 
 #: decimals of a gap-window limit as a reason quotes it and :func:`screen.rank.rank_candidates` compares the written
-#: gaps with it: those of the numbers written to a ranking (``screen.rank._ROUND``)
-WINDOW_DECIMALS = 4
+#: gaps with it: those of the numbers written to a ranking (:data:`screen.viability.WRITTEN_DECIMALS`)
+WINDOW_DECIMALS = WRITTEN_DECIMALS
 
 
 def window_bound(x: float) -> float:
@@ -240,8 +240,14 @@ def window_bound(x: float) -> float:
     --------
     >>> window_bound(1.0), window_bound(2.123456)
     (1.0, 2.1235)
+
+    Rounded as the ranking rounds the gaps it compares (numpy): 4.06635 is 4.0664 in both, where correct decimal
+    rounding of its binary value gives 4.0663.
+
+    >>> window_bound(4.06635)
+    4.0664
     """
-    return float(f"{float(x):.{WINDOW_DECIMALS}f}")
+    return float(np.round(float(x), WINDOW_DECIMALS))
 
 
 def _fmt_bound(x: float) -> str:

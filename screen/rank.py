@@ -77,7 +77,7 @@ from screen.rank_rows import split_ranked as _split_ranked
 from screen.rank_rows import text as _text
 from screen.sampling import sample_pce
 from screen.schema import check_options, resolve, section_defaults
-from screen.viability import OFFSET_TOL_EV, acceptor_class_of, offset_clears, role_from_levels
+from screen.viability import OFFSET_TOL_EV, WRITTEN_DECIMALS, acceptor_class_of, offset_clears, role_from_levels
 
 __all__ = [
     "p_aligned", "ALIGNMENT_UNCERTAIN",
@@ -99,10 +99,15 @@ EXTRA_COLUMNS = RANKING_EXTRA_COLUMNS
 #: schema defaults of the ``rank`` config section (the one source of :class:`RankOptions`' defaults)
 _DEFAULTS = section_defaults("rank")
 #: decimals of the numbers written to the ranking
-_ROUND = 4
+_ROUND = WRITTEN_DECIMALS
 #: columns rounded to :data:`_ROUND` decimals
 _ROUNDED = ("homo_ev", "lumo_ev", "gap_opt_ev", "delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff",
-            "pce_pct", "pce_sigma_pct", "p_above_target", "p_aligned", *SIGMA_COLUMNS)
+            "pce_pct", "p_aligned", *SIGMA_COLUMNS)
+#: decimals of the Monte-Carlo figures: with the default 2000 samples P(PCE > target) scatters by up to ±0.011
+#: between seeds (binomial, p = 0.5) and the ± by 0.01–0.05 points (a numerical reviewer, 60 seeds; they were
+#: written to 4 decimals, 100 times finer than they are known)
+_MC_ROUND = 2
+_MC_ROUNDED = ("pce_sigma_pct", "p_above_target")
 #: device numbers copied from :meth:`DeviceModel.evaluate` (empty where there is no pair)
 _DEVICE_NUMBERS = ("delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct")
 
@@ -493,7 +498,8 @@ def p_aligned(pair_levels, pair_sigmas, min_lumo: float, min_homo: float, check_
     ΔLUMO = LUMO_D − LUMO_A must exceed ``min_lumo`` and ΔHOMO = HOMO_D − HOMO_A must exceed ``min_homo`` when
     the model checks it, else 0 (type II is always required); each offset's σ is the root sum of squares of its
     two levels' σ. With σ = 0 the probability is 1 or 0, by the rule of the classification and the sampler
-    (:func:`screen.viability.offset_clears`: an offset within 1e-9 eV below its threshold meets it). NaN where
+    (:func:`screen.viability.offset_clears`: an offset within half of the last written decimal below its threshold
+    meets it). NaN where
     a level is missing.
 
     Parameters
@@ -523,7 +529,7 @@ def p_aligned(pair_levels, pair_sigmas, min_lumo: float, min_homo: float, check_
     s_d_homo, s_d_lumo, _, s_a_homo, s_a_lumo, _ = (np.nan_to_num(np.asarray(v, dtype=float)) for v in pair_sigmas)
 
     def prob(delta, threshold, sigma):
-        # σ = 0: the verdict of the classification itself (offset_clears: type II, the threshold less 1e-9 eV)
+        # σ = 0: the verdict of the classification itself (offset_clears: type II, the threshold less OFFSET_TOL_EV)
         with np.errstate(divide="ignore", invalid="ignore"):
             z = np.where(sigma > 0, (delta - threshold) / np.where(sigma > 0, sigma, 1.0),
                          np.where(offset_clears(delta, threshold), np.inf, -np.inf))
@@ -841,7 +847,8 @@ def _passes(masks: dict[str, np.ndarray]) -> np.ndarray:
 
 def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: Partner, dev: dict,
                    spread: dict, masks: dict, model: DeviceModel, options: RankOptions) -> pd.DataFrame:
-    """The unsorted ranking: contract columns then extras, numbers rounded to :data:`_ROUND` decimals.
+    """The unsorted ranking: contract columns then extras, numbers rounded to :data:`_ROUND` decimals (the
+    Monte-Carlo figures to :data:`_MC_ROUND`).
 
     Offsets are kept for every row with a pair; Voc, Jsc, FF and PCE only for viable rows (empty otherwise)."""
     n = cand.ids.size
@@ -889,8 +896,9 @@ def _ranking_frame(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, partner: 
         "truncated_groups": _text(lv, "truncated_groups"),
         "scale": _scale(lv),
     })
-    for col in _ROUNDED:
-        out[col] = out[col].round(_ROUND)
+    for cols, decimals in ((_ROUNDED, _ROUND), (_MC_ROUNDED, _MC_ROUND)):
+        for col in cols:
+            out[col] = out[col].round(decimals) + 0.0  # + 0.0: an offset of −0.00004 eV is written 0.0, not −0.0
     return out
 
 

@@ -29,12 +29,13 @@ import pandas as pd
 from screen.columns import SIGMA_COLUMNS
 from screen.config import Config, nearest_existing
 from screen.device import DeviceModel
-from screen.devicepars import device_tests
+from screen.devicepars import ACCEPTOR_CLASSES, device_tests
 from screen.errors import InputError
 from screen.io import SD_LINE_MAX, sd_text, text_cells
 from screen.partners import Partner, PartnerError, resolve_partner
 from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, partner_role, rank_candidates)
 from screen.rank_rows import shortlist_mask
+from screen.viability import acceptor_class_of
 
 __all__ = ["write_shortlist", "shortlist_notice", "longest_oligomers", "computed_geometries", "settings_hash",
            "ranking_folder", "levels_suffix", "set_aside_foreign", "read_ranked_levels", "check_before_computing",
@@ -1013,6 +1014,12 @@ def _say_assumptions(levels: pd.DataFrame, levels_path: Path, partner: Partner, 
     if partner.kind == "file" and not any(getattr(partner, c) > 0 for c in SIGMA_COLUMNS):
         print(f"dascreen rank: partner file {partner.spec} gives no σ: its levels are taken as exact (the built-in "
               "partners carry ±0.1–0.3 eV); add homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev to include it",
+              file=sys.stderr)
+    if (partner.role == "acceptor" and model.ff_follows_class and not partner.acceptor_class
+            and not acceptor_class_of(partner.smiles)):  # a metamorphic tester: y6 by file, not name, lost 0.4 points
+        print(f"dascreen rank: partner {partner.spec or partner.id} gives neither a SMILES nor an acceptor_class, so "
+              "the fitted model takes its pooled values (fill factor), not those of the acceptor's class (flag "
+              f"acceptor_class_unknown); add a smiles or an acceptor_class column ({', '.join(ACCEPTOR_CLASSES)})",
               file=sys.stderr)
     if model.model == "scharber" and not partner.notes.startswith("NOT a measured material"):
         print(f"dascreen rank: device.model=scharber against {partner.id}: the published rule's 0.3 V loss goes "

@@ -107,11 +107,19 @@ def _lookup(table, gap_ev, exact=None) -> np.ndarray:
 
     Below :data:`_TABLE_E_MIN_EV` the detailed-balance efficiency and Voc fall to zero with the gap (0.13 % at
     0.08 eV against 3.05 % at 0.25 eV), so clipping them there let a sampled narrow gap beat its own limit; such
-    samples are few, and their exact values cost little.
+    samples are few, and their exact values cost little. A gap that is not positive, or NaN, gives NaN, as the exact
+    functions do (NaN was an IndexError; a gap ≤ 0 got the table's first value, 68.98 mA cm⁻²).
     """
     tab, step = table
     gap = np.asarray(gap_ev, dtype=float)
+    if gap.ndim == 0:  # one gap: a 0-d array cannot take the in-place steps
+        return _lookup(table, gap.reshape(1), exact)[0]
     x = (gap - _TABLE_E_MIN_EV) * (1.0 / _TABLE_STEP_EV)
+    with np.errstate(invalid="ignore"):
+        bad = ~(gap > 0)
+    undefined = bool(bad.any())
+    if undefined:
+        x = np.where(bad, 0.0, x)
     np.clip(x, 0.0, tab.size - 1 - 1e-9, out=x)
     i = x.astype(np.intp)
     x -= i
@@ -119,9 +127,11 @@ def _lookup(table, gap_ev, exact=None) -> np.ndarray:
     x += tab[i]
     if exact is not None:
         with np.errstate(invalid="ignore"):
-            low = (gap > 0) & (gap < _TABLE_E_MIN_EV)
+            low = ~bad & (gap < _TABLE_E_MIN_EV)
         if low.any():
             x[low] = exact(gap[low])
+    if undefined:
+        x[bad] = np.nan
     return x
 
 
@@ -135,7 +145,13 @@ def _voc_exact(gap_ev):
 
 def jsc_fast(gap_ev):
     """Jsc at EQE = 1 [mA cm⁻²]; below the grid the table's first value is exact (the spectrum starts at
-    0.31 eV, so every gap below it absorbs every photon)."""
+    0.31 eV, so every gap below it absorbs every photon); NaN for a gap that is not positive.
+
+    Examples
+    --------
+    >>> [round(float(v), 2) for v in jsc_fast(np.array([1.34, 0.1]))], np.isnan(jsc_fast(np.array([0.0, np.nan]))).tolist()
+    ([35.03, 68.98], [True, True])
+    """
     return _lookup(_tables()[0], gap_ev)
 
 

@@ -38,11 +38,17 @@ from typing import NamedTuple
 import numpy as np
 
 __all__ = ["classify", "VIABILITY_MASKS", "role_from_levels", "acceptor_class_of", "GAP_MAX_EV",
-           "JSC_MIN_MA_CM2", "OFFSET_TOL_EV", "offset_clears", "gap_valid", "jsc_written", "CurrentTerms",
+           "JSC_MIN_MA_CM2", "OFFSET_TOL_EV", "WRITTEN_DECIMALS", "offset_clears", "gap_valid", "jsc_written", "CurrentTerms",
            "dark_current"]
 
-#: Offsets within this of a threshold count as meeting it (−4.0 − (−4.3) is 0.2999999999999998). [eV]
-OFFSET_TOL_EV = 1e-9
+#: Decimals of the energies, offsets and potentials a ranking writes (both modes; ``screen.rank``,
+#: ``screen.dyecell.rank``).
+WRITTEN_DECIMALS = 4
+#: Offsets and driving forces within this of a threshold count as meeting it: half of the last written decimal, so
+#: the verdict agrees with the value as written (ties aside) — ΔLUMO 0.29996 eV, written 0.3, meets 0.3 eV, and
+#: 0.00004 eV, written 0.0, is no type-II offset (with 1e-9 eV a numerical reviewer found rows written 0.30 "below
+#: 0.30 eV"); −4.0 − (−4.3) = 0.2999999999999998 meets 0.3 eV too. [eV]
+OFFSET_TOL_EV = 0.5 * 10.0 ** -WRITTEN_DECIMALS
 #: A Jsc below this is written as 0 with the rankings' 4 decimals (the dye-cell mode's ``no_sunlight`` limit too,
 #: :data:`screen.dyecell.model.JSC_MIN_MA_CM2`). [mA cm⁻²]
 JSC_MIN_MA_CM2 = 5e-5
@@ -60,16 +66,17 @@ VIABILITY_MASKS = ("input_missing", "absorber_gap_invalid", "lumo_inverted", "ho
 
 def offset_clears(delta, minimum: float) -> np.ndarray:
     """Whether an offset allows charge transfer: type II (Δ > :data:`OFFSET_TOL_EV`) and at
-    least ``minimum`` less that tolerance (−3.7 − (−4.0) is 0.29999999999999982 and meets 0.3 eV); NaN → False.
+    least ``minimum`` less that tolerance, half of the last decimal a ranking writes (−3.7 − (−4.0) is
+    0.29999999999999982 and meets 0.3 eV; 0.29996, written 0.3, too); NaN → False.
 
     The one offset rule: :func:`classify` (its inverted and below-threshold masks), the sampler
     (:func:`screen.devicekernel.pce_samples`) and ``p_aligned`` (:mod:`screen.rank`).
 
     Examples
     --------
-    >>> offset_clears(np.array([-4.0 + 4.3, 0.0, 1e-9, 2e-9, np.nan]), 0.3).tolist()
-    [True, False, False, False, False]
-    >>> offset_clears(np.array([0.0, 1e-9, 2e-9]), 0.0).tolist()
+    >>> offset_clears(np.array([-4.0 + 4.3, 0.29996, 0.29994, 0.0, np.nan]), 0.3).tolist()
+    [True, True, False, False, False]
+    >>> offset_clears(np.array([0.0, 4e-5, 6e-5]), 0.0).tolist()  # written 0.0, 0.0, 0.0001
     [False, False, True]
     """
     delta = np.asarray(delta, dtype=float)

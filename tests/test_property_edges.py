@@ -284,20 +284,20 @@ def test_an_absorber_whose_current_is_written_as_zero_at_the_models_eqe_is_not_v
 
 
 @pytest.mark.parametrize("tables", [False, True])
-def test_an_offset_of_a_few_nev_is_an_offset_too_small_not_a_dark_gap(tables):
-    # the review: both offsets 3e-9 eV, the fitted model: viable, Jsc 6.7e-6 mA cm⁻², PCE written 0.0; the photons
-    # above 1.36 eV are plenty (EQE × Jsc at EQE = 1 ≈ 22 mA cm⁻²): the yields make the current vanish
+def test_an_offset_of_a_few_nev_is_no_offset(tables):
+    # the review: both offsets 3e-9 eV, the fitted model: viable, Jsc 6.7e-6 mA cm⁻², PCE written 0.0. Offsets are
+    # judged as written (4 decimals, screen.viability.OFFSET_TOL_EV): 3e-9 eV is written 0.0, no type-II offset
+    # (before that the yields made the current vanish and the flags were lumo_offset_low;homo_offset_low)
     m = DeviceModel()
     out = m.evaluate(*NEV_OFFSETS)
-    assert not _one(out["viable"]) and _one(out["flags"]) == "lumo_offset_low;homo_offset_low"
+    assert not _one(out["viable"]) and _one(out["flags"]) == "lumo_inverted;homo_inverted"
+    assert np.isnan(_one(out["pce_pct"]))
     assert _kernel_of(m, [np.array([x]) for x in NEV_OFFSETS], tables=tables)[0] == 0.0
-    # donor-only: only the LUMO offset's yield enters the current
     d = DeviceModel(absorber="donor")
-    assert _one(d.evaluate(*NEV_OFFSETS)["flags"]) == "lumo_offset_low"
-    # the acceptor absorbs below the donor's 4.3 eV gap (whose photons give ~1e-5 mA cm⁻²): ΔHOMO's yield alone
-    # makes the current vanish, ΔLUMO = 0.3 eV is not named
+    assert _one(d.evaluate(*NEV_OFFSETS)["flags"]) == "lumo_inverted;homo_inverted"
+    # ΔHOMO of a few neV beside a 0.3 eV ΔLUMO: only the HOMO offset is named
     lone = (-5.65 + 3e-9, -3.79, 4.3, -5.65, -4.09, 1.36)
-    assert _one(m.evaluate(*lone)["flags"]) == "homo_offset_low"
+    assert _one(m.evaluate(*lone)["flags"]) == "homo_inverted"
     assert _kernel_of(m, [np.array([x]) for x in lone], tables=tables)[0] == 0.0
     # the reason says so, not "below 0.00 eV" (the fitted model's threshold is type II)
     settings = {"device": {"min_delta_lumo_ev": 0.0, "min_delta_homo_ev": 0.0}}

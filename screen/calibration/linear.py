@@ -158,12 +158,21 @@ class LinearLevelModel:
         n, p = X.shape
         if n < p + 2:
             raise CalibrationError(f"{n} reference points are too few for {p} feature(s)")
+        # a feature with one value other than 0 on every reference point (an indicator set on every row) has no
+        # slope to fit: it keeps 0 and the fit uses the others (lstsq's minimum-norm answer split the intercept with
+        # it); a column of zeros (a class the data lack, as in a leave-family-out fold) gets 0 from lstsq itself
+        constant = np.ptp(X, axis=0) == 0.0
+        keep = ~(constant & (np.abs(X).max(axis=0) > 0.0))
+        cols = np.concatenate([[True], keep])
         Xt = np.column_stack([np.ones(n), X])
-        beta, *_ = np.linalg.lstsq(Xt, y, rcond=None)
+        used = Xt if cols.all() else Xt[:, cols]  # Xt itself when every column is used: the same bits as before
+        beta = np.zeros(p + 1)
+        beta[cols] = np.linalg.lstsq(used, y, rcond=None)[0]
         self.intercept_, self.coef_ = float(beta[0]), beta[1:].astype(float)
         resid = y - Xt @ beta
-        self.sigma_ = float(np.sqrt(np.sum(resid**2) / (n - p - 1)))
-        self.xtx_inv_ = np.linalg.pinv(Xt.T @ Xt)
+        self.sigma_ = float(np.sqrt(np.sum(resid**2) / (n - int(cols.sum()))))
+        self.xtx_inv_ = np.zeros((p + 1, p + 1))
+        self.xtx_inv_[np.ix_(cols, cols)] = np.linalg.pinv(used.T @ used)
         return self
 
     def predict(self, X: np.ndarray, return_std: bool = False):

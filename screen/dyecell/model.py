@@ -106,13 +106,14 @@ from screen.spectrum import (
     reference_spectrum,
     sq_limit,
 )
-from screen.viability import JSC_MIN_MA_CM2
+from screen.viability import JSC_MIN_MA_CM2, OFFSET_TOL_EV
 
 __all__ = ["DyeCellModel", "evaluate", "sample_pce", "TOL_EV", "JSC_MIN_MA_CM2", "sunlight_edge_ev",
            "p_type_threshold_note", "DEFAULT_REG_THRESHOLD_EV"]
 
-#: driving forces within this of a threshold meet it (binary floating point) [eV]
-TOL_EV = 1e-9
+#: driving forces within this of a threshold meet it: half of the last decimal a ranking writes, as the offsets of
+#: the bulk-heterojunction mode (:data:`screen.viability.OFFSET_TOL_EV`) [eV]
+TOL_EV = OFFSET_TOL_EV
 _D = option_defaults()
 # JSC_MIN_MA_CM2 (screen.viability, one value for both modes): a Jsc below it is written as 0 in ``ranking.csv``
 # (4 decimals): such a dye absorbs no sunlight, and is not viable (flag ``no_sunlight``) [mA cm⁻²]

@@ -71,6 +71,7 @@ from screen.io import separator_problem, text_cells
 from screen.levels_check import GAP_MAX_INPUT_EV, file_line
 from screen.prepare.checks import NONMETALS
 from screen.spectrum import gap_to_wavelength_nm
+from screen.viability import WRITTEN_DECIMALS
 
 __all__ = ["DYE_COLUMNS", "RANKING_COLUMNS", "EXTRA_COLUMNS", "NONMETALS", "NOT_A_DYE", "dye_table",
            "dyes_from_file", "rank_dyes", "conversion_summary", "value_sources"]
@@ -90,7 +91,10 @@ EXTRA_COLUMNS = ["name", "e_ox_sigma_v", "e00_sigma_ev", "edge_nm", "uncalibrate
 #: reason of a polymer repeat unit in the dye-cell mode (status ``rejected``)
 NOT_A_DYE = ("a polymer repeat unit is not a sensitiser dye; dye mode takes molecules (give the dye itself, "
              "without attachment points *)")
-_ROUND = 4
+_ROUND = WRITTEN_DECIMALS
+#: decimals of the Monte-Carlo figures (``pce_sigma_pct``, ``p_above_target``, ``p_viable``): with the default 2000
+#: samples they scatter by about ±0.013 and ±0.02 points between seeds (a numerical reviewer, 50 seeds)
+_MC_ROUND = 2
 #: ``source`` of a dye-table row calibrated from a run's raw xTB values (:func:`dye_table`): a molecule outside
 #: the calibration may get values outside a typed file's plausible ranges, which the model then marks not viable;
 #: every other row is held to the dye file's checks (:func:`_check_inputs`)
@@ -195,6 +199,9 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
     >>> float(t.loc[0, "e_ox_v_nhe"]), t.loc[0, "scale"]
     (1.03, 'electrochemical')
     """
+    if not isinstance(frame, pd.DataFrame):  # a path gave "AttributeError: 'str' object has no attribute 'columns'"
+        raise TypeError(f"dyes_from_file takes the rows as a pandas DataFrame, not {type(frame).__name__}; read a "
+                        "file with screen.dyecell.stage.read_input(path), which checks it as the command does")
     if "id" not in frame:
         problem = separator_problem(frame.columns)
         raise InputError(f"{where}: {problem}" if problem else f"{where}: needs an id column")
@@ -503,9 +510,10 @@ def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: Dy
         "e_ox_reference": _text_col(d, "e_ox_reference"), "e_ox_offset_v": _num_col(d, "e_ox_offset_v"),
     })
     num = ["e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "band_edge_v_nhe", "e_redox_v_nhe", "drive_inj_ev",
-           "drive_reg_ev", "voc_v", "jsc_ma_cm2", "pce_pct", "pce_sigma_pct", "p_above_target", "p_viable",
-           "e_ox_sigma_v", "e00_sigma_ev", "e_ox_offset_v"]
-    out[num] = out[num].round(_ROUND)
+           "drive_reg_ev", "voc_v", "jsc_ma_cm2", "pce_pct", "e_ox_sigma_v", "e00_sigma_ev", "e_ox_offset_v"]
+    mc = ["pce_sigma_pct", "p_above_target", "p_viable"]
+    out[num] = out[num].round(_ROUND) + 0.0  # + 0.0: a driving force of −0.00004 eV is written 0.0, not −0.0
+    out[mc] = out[mc].round(_MC_ROUND) + 0.0
     out["edge_nm"] = out["edge_nm"].round(1)
     keys = ["passes", options.sort_by] + (["p_above_target"] if options.sort_by != "p_above_target" else
                                           ["pce_pct"]) + ["id", "_order"]

@@ -379,10 +379,15 @@ def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str
 #: version of the rules that build a dye table other than the anchor patterns (rounding, the anchor column's
 #: vocabulary): a change here or in :data:`screen.dyecell.anchors.ANCHORS` rebuilds a cached ``dyes.csv``
 _TABLE_RULES = "3"
+#: modules of this package whose code builds a dye table (:func:`screen.dyecell.rank.dye_table` and what it calls):
+#: their text is part of the rule key, so a change of a rule nobody remembered to version rebuilds the table (a
+#: metamorphic tester found a run folder's re-rank keeping the σ of an earlier rule, 0.125 V against 0.183 V fresh)
+_TABLE_CODE = ("anchors.py", "calibrate.py", "checks.py", "rank.py", "stage.py")
 
 
 def table_rules_hash() -> str:
-    """Short hash of the anchor patterns and :data:`_TABLE_RULES` (the cached dye table's rule key).
+    """Short hash of the anchor patterns, :data:`_TABLE_RULES` and the code of :data:`_TABLE_CODE` (the cached dye
+    table's rule key).
 
     Examples
     --------
@@ -394,7 +399,9 @@ def table_rules_hash() -> str:
     from screen.dyecell.anchors import ANCHORS
 
     text = _TABLE_RULES + "\n" + "\n".join(f"{a.name}\t{a.smarts}" for a in ANCHORS)
-    return hashlib.sha256(text.encode("utf-8")).hexdigest()[:12]
+    here = Path(__file__).resolve().parent
+    code = "\n".join(hashlib.sha256((here / name).read_bytes()).hexdigest() for name in _TABLE_CODE)
+    return hashlib.sha256((text + "\n" + code).encode("utf-8")).hexdigest()[:12]
 
 
 def _cached(target: Path, info: dict) -> pd.DataFrame | None:
@@ -595,6 +602,12 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
     for notice in notices:  # outside the library's range: ranked, but a sign slip is likely (also in the report)
         print(f"dascreen dyecell: {notice}", file=sys.stderr)
     model = DyeCellModel.from_mapping(section)
+    thr, where = model.reg_threshold_source(med, ox)
+    if med.kind == "file" and where == "default":  # a metamorphic tester: cu-tmby2 by file lost its own 0.10 eV
+        print(f"dascreen dyecell: mediator file {mediator or section['mediator']} gives no min_drive_reg_ev, so the "
+              f"general regeneration threshold {thr:.2f} eV applies (built-in couples may carry their own: 0.50 eV "
+              "for iodide/triiodide, 0.10 eV for the copper ones); add a column min_drive_reg_ev to give this "
+              "couple's", file=sys.stderr)
     options = RankOptions.from_mapping(section)
     tag = levels_tag(input_path, out_dir)
     cache = Path(out_dir) / "dyecell" / (f"dyes--{tag}.csv" if tag else "dyes.csv")
