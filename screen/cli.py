@@ -20,6 +20,7 @@ from __future__ import annotations
 import argparse
 import atexit
 import codecs
+import errno
 import gc
 import os
 import re
@@ -80,7 +81,7 @@ if os.path.basename(sys.argv[0] if sys.argv else "") == "dascreen":  # the conso
 import yaml  # noqa: E402
 
 from screen import __version__  # noqa: E402
-from screen.config import Config, nearest_existing  # noqa: E402
+from screen.config import Config, install_problem, nearest_existing  # noqa: E402
 from screen.errors import CalculationError, ConfigError, DascreenError, InputError, exit_code  # noqa: E402
 from screen.cli_shared import (EXIT_ERROR, EXIT_OK, EXIT_STRICT, _at_least_one, _days, _load,  # noqa: F401,E402
                                _percent,
@@ -94,6 +95,22 @@ __all__ = ["main", "build_parser", "WORKFLOW", "DEFAULT_OUT"]
 #: the output folder of ``run``, ``rank`` and ``status`` without --out (the schema's ``out`` default serves a
 #: snakemake run started without this command)
 DEFAULT_OUT = "results"
+
+def _resolved_out(given: str, option: str = "--out") -> Path:
+    """``Path(given).resolve()``, refusing a symbolic-link loop in one line (it gave a "RuntimeError: Symlink loop"
+    traceback, an audit of hostile file systems).
+
+    Raises
+    ------
+    InputError
+        Naming the option, the path and the fix.
+    """
+    try:
+        return Path(given).resolve()
+    except (RuntimeError, OSError) as exc:  # Python 3.11: RuntimeError("Symlink loop from ..."); later: ELOOP
+        raise InputError(f"{option} {given}: a symbolic link in this path points back to itself ({exc}); fix the "
+                         f"link, or choose another {option}") from None
+
 
 def cmd_run(args) -> int:
     """Check the inputs, then run the workflow through Snakemake in a subprocess."""
@@ -113,7 +130,7 @@ def cmd_run(args) -> int:
         raise ConfigError(f"--partner {args.partner!r}: `dascreen run` ranks against one partner; run with one and "
                           "then `dascreen rank --partner a,b,...` for the partner matrix")
     check_partners(partners, role=args.role, roles_of=candidates)
-    out = Path(args.out).resolve()
+    out = _resolved_out(args.out)
     check_out(out, candidates, overwrite=args.overwrite, given=args.out)
     cfg = _load(args, {"candidates": str(candidates.resolve()), "out": str(out),
                        "partner": _partner_arg(partners[0] if partners else None),
@@ -741,7 +758,7 @@ def cmd_rank(args) -> int:
                                   check_rank_sets)
     from screen.rank_io import check_before_computing, run_rank
 
-    out = Path(args.out).resolve()
+    out = _resolved_out(args.out)
     check_out_folder(out, args.out)
     # before any work: a read-only folder said "…/rankings: Permission denied" after the ranking; the folder the
     # ranking goes to is what must be writable (a read-only run folder with a writable rankings/ was ranked before)
@@ -770,6 +787,9 @@ def cmd_rank(args) -> int:
         if run_active(out):  # the run is still computing: its levels.csv comes at the end
             raise InputError(f"{out} holds a run that is still computing (no levels.csv yet); wait for it "
                              f"(`dascreen status --out {args.out}`) or pass --levels FILE")
+    if not levels.is_file() and levels.exists():  # <(cat f.csv), a FIFO or /dev/null: read once, or nothing
+        raise InputError(f"levels file {str(levels)!r} is not a regular file (a pipe or device): save it to a file "
+                         "first and give that with --levels FILE (its SHA-256 is recorded, so it is read twice)")
     if not levels.is_file():
         raise InputError(f"levels file {str(levels)!r} does not exist; run `dascreen run` first or pass "
                          "--levels FILE (columns id,homo_ev,lumo_ev,gap_opt_ev,scale)")
@@ -887,6 +907,10 @@ def cmd_status(args) -> int:
         eta = elapsed / p["done"] * (p["total"] - p["done"]) if p["done"] else float("nan")
         print(f"dascreen: running: {counts}, structures {p['structures']}/{p['total']}, {_minutes(elapsed)} "
               f"elapsed, ETA {'unknown' if eta != eta else _minutes(eta)}")
+    elif (levels.is_file() and p["done"] >= p["total"] and levels.stat().st_mtime >= p["started"]
+          and levels != dye and (unranked := _run_ranking_problem(out))):  # a full disk or a kill at the ranking
+        print(f"dascreen: not finished: {counts}, but its ranking rankings/{unranked[0]} is incomplete "
+              f"({unranked[1]}); `dascreen run` with the same --out finishes it")
     elif levels.is_file() and p["done"] >= p["total"] and levels.stat().st_mtime >= p["started"]:
         took = _minutes(levels.stat().st_mtime - p["started"])
         print(f"dascreen: finished: {counts} in {took}; results in {levels}")
@@ -898,12 +922,51 @@ def cmd_status(args) -> int:
     return EXIT_OK
 
 
+def _ranking_problem(folder: Path) -> str | None:
+    """Why a ranking folder is incomplete (a full disk or a kill while it was written), None when complete:
+    ``ranking.meta.json`` is written last (:func:`screen.rank_io.run_rank`), and the report goes with it."""
+    if not (folder / "ranking.meta.json").is_file():
+        return "no ranking.meta.json: it stopped before it was finished"
+    if not (folder / "report.html").is_file():
+        return "its report.html is missing"
+    return None
+
+
+def _run_ranking_problem(out: Path) -> tuple[str, str] | None:
+    """``(folder, why)`` when the run's own ranking (its config.yaml's partner) is missing or incomplete."""
+    from screen.partners import partner_slug
+    from screen.rank_io import ranking_folder
+
+    try:
+        cfg = Config.load(out / "config.yaml")
+        folder = ranking_folder(partner_slug(cfg["partner"]), cfg)
+    except (DascreenError, OSError, ValueError, KeyError):
+        return None  # no readable configuration: nothing to say about its ranking
+    if not (out / "rankings" / folder).is_dir():
+        return folder, "not written yet"
+    why = _ranking_problem(out / "rankings" / folder)
+    return (folder, why) if why else None
+
+
+def _incomplete_folders(out: Path) -> list[str]:
+    """The ranking folders of ``OUT/rankings`` without ``ranking.meta.json`` (partner matrices left out)."""
+    root = out / "rankings"
+    if not root.is_dir():
+        return []
+    return [f.name for f in sorted(root.iterdir()) if f.is_dir() and not f.name.startswith("matrix--")
+            and not (f / "ranking.meta.json").is_file()]
+
+
 def _print_rankings(out: Path, limit: int = 12) -> None:
     """The folder's rankings, most recent first (:mod:`screen.rank_index`; a meeting-day audit found eight
-    ``y6--<hash>`` folders and nothing that said what set them apart)."""
+    ``y6--<hash>`` folders and nothing that said what set them apart); then the incomplete ones."""
     from screen.rank_index import ranking_index
 
     index = ranking_index(out)
+    incomplete = _incomplete_folders(out)
+    for name in incomplete:  # left out of the index: a ranking.csv there may be beside nothing else
+        print(f"dascreen: ranking {out / 'rankings' / name} is incomplete ({_ranking_problem(out / 'rankings' / name)}); "
+              "rank again (the same `dascreen rank` or `dascreen run`) to finish it")
     if not len(index):
         return
     print(f"dascreen: {len(index)} ranking(s) in {out / 'rankings'}, most recent first:")
@@ -915,8 +978,15 @@ def _print_rankings(out: Path, limit: int = 12) -> None:
         settings = r.settings if isinstance(r.settings, str) and r.settings else ""
         settings = f"; set {settings}" if settings else ""
         print(f"  {r.written_utc}  {r.folder}: against {r.partner}, {r.model} model{target}, sorted by {r.sort_by}"
-              f"{settings}{levels}; {r.passing} of {r.ranked} pass{_stale_text(out, r)}")
+              f"{settings}{levels}; {r.passing} of {r.ranked} pass{_stale_text(out, r)}{_report_text(out, r)}")
     _more(len(index) - len(rows), out / "rankings-index.csv", out / "rankings")
+
+
+def _report_text(out: Path, row) -> str:
+    """What ``status`` adds to a ranking whose report.html is missing (a full disk while it was written)."""
+    if (out / "rankings" / row.folder / "report.html").is_file():
+        return ""
+    return "; incomplete: its report.html is missing (rank again to write it)"
 
 
 def _stale_text(out: Path, row) -> str:
@@ -1600,6 +1670,100 @@ def _dash_hint(parser: argparse.ArgumentParser, message: str) -> str:
     return ""
 
 
+def _needs_models(args) -> bool:
+    """Whether this command reads the shipped ``models/`` folder (the calibration, the reference data or the fitted
+    device model; :func:`screen.config.install_problem`): ``run`` and ``calibrate`` always, ``dyecell`` when it
+    computes levels (CANDIDATES or ``--refit``), ``rank`` with the fitted device model or a ``smiles:`` partner.
+    ``partners``, ``config``, ``status``, ``store``, ``dyecell --list`` and re-rankings of a dye file do not."""
+    command = args.command
+    if command in ("run", "calibrate"):
+        return True
+    if command == "dyecell":
+        return not args.list and bool(args.candidates or args.refit)
+    if command != "rank":
+        return False
+    from screen.partners import split_partners
+
+    ns = argparse.Namespace(**vars(args))
+    implied = Path(args.out) / "config.yaml"
+    if ns.config is None and implied.is_file():  # the run's own settings, as cmd_rank reads them
+        ns.config = str(implied)
+    try:
+        partners = split_partners(args.partner or [])
+        cfg = _load(ns, {"rank": {"role": args.role}})
+        partners = partners or [cfg["partner"]]
+    except DascreenError:  # refused by the command itself, after this line
+        return True
+    smiles = any(str(spec).strip().lower().startswith("smiles:") for spec in partners)
+    return smiles or cfg["device"]["model"] == "fitted"
+
+
+#: errno values of a path the user gave that cannot be used as given (exit 2), with the fix; any other OSError is a
+#: failure while writing or reading (exit 1: a full disk, a quota, a read-only file system, an I/O error)
+_PATH_ERRORS = {errno.ENOTDIR: "a part of this path is a file where a folder is needed; move it away or choose "
+                               "another path",
+                errno.EISDIR: "this is a folder where a file is needed; move it away or choose another path",
+                errno.EEXIST: "a file is in the way where a folder is needed; move it away or choose another path",
+                errno.ELOOP: "a symbolic link in this path points back to itself; fix the link or choose another path",
+                errno.ENAMETOOLONG: "the name is too long for the file system; choose a shorter path"}
+_WRITE_ERRORS = {errno.ENOSPC: "free some space there (or choose another --out), then run the command again",
+                 errno.EDQUOT: "your disk quota is used up; free some space (or choose another --out), then run the "
+                               "command again",
+                 errno.EFBIG: "the file is larger than the file system or your limits allow (ulimit -f); choose "
+                              "another --out, then run the command again",
+                 errno.EROFS: "the file system is read-only; choose another --out"}
+
+
+def _shown_path(filename) -> str:
+    """The file an OSError names, with a temporary file of :func:`screen.io.atomic_path` (``.name.x1y2.tmp``)
+    shown as the file it was to become.
+
+    Examples
+    --------
+    >>> _shown_path("/r/y6--0/.ranking.meta.json.ab_12x.tmp"), _shown_path("/r/a.csv"), _shown_path(None)
+    ('/r/y6--0/ranking.meta.json', '/r/a.csv', 'a file')
+    """
+    if filename is None:
+        return "a file"
+    path = Path(os.fsdecode(filename))
+    name = path.name
+    if name.startswith(".") and name.endswith(".tmp") and name.count(".") >= 3:
+        return str(path.with_name(name[1:-4].rsplit(".", 1)[0]))
+    return str(path)
+
+
+def _is_input_path(filename, args) -> bool:
+    """Whether ``filename`` is (or lies in) a path the command reads: an input option other than --out / --to /
+    --install (compared as absolute paths)."""
+    if filename is None:
+        return False
+    try:
+        name = os.path.abspath(os.fsdecode(filename))
+    except (OSError, ValueError):
+        return False
+    for dest in PATH_OPTIONS:
+        if dest in ("out", "to", "install", "store"):
+            continue
+        values = getattr(args, dest, None)
+        for value in values if isinstance(values, list) else [values]:
+            if isinstance(value, str) and value:
+                given = os.path.abspath(value)
+                if name == given or name.startswith(given.rstrip(os.sep) + os.sep):
+                    return True
+    return False
+
+
+def _os_error_text(exc: OSError, args) -> tuple[str, int]:
+    """The one line and exit code of an OSError no command handled itself (see :data:`_PATH_ERRORS`)."""
+    path = _shown_path(exc.filename)
+    cause = exc.strerror or str(exc)
+    if exc.errno in _PATH_ERRORS:
+        return f"{path}: {cause}; {_PATH_ERRORS[exc.errno]}", exit_code(InputError(cause))
+    verb = "cannot read" if _is_input_path(exc.filename, args) else "cannot write"
+    fix = _WRITE_ERRORS.get(exc.errno, "check the disk and the path, then run the command again")
+    return f"{verb} {path}: {cause}; {fix}", EXIT_ERROR
+
+
 def _main(argv: list[str] | None = None) -> int:
     """:func:`main` without its signal handling."""
     parser = build_parser()
@@ -1623,6 +1787,10 @@ def _main(argv: list[str] | None = None) -> int:
         _expand_user(args)
         _check_current_folder(args)
         _check_path_names(args)
+        problem = install_problem()  # a non-editable install has no models/ folder (a packaging audit)
+        if problem and _needs_models(args):  # before any work, one line (a run stopped after its checks before)
+            print(f"dascreen: {problem}", file=sys.stderr)
+            return exit_code(ConfigError(problem))
         _matplotlib_fallback()
         rc = args.func(args)
         sys.stdout.flush()  # a closed pipe is found here, not while Python shuts down
@@ -1644,8 +1812,17 @@ def _main(argv: list[str] | None = None) -> int:
         print(f"dascreen: error: {exc}", file=sys.stderr)
         return exit_code(InputError(str(exc)))
     except PermissionError as exc:  # a path the user may not write or read (the commands check theirs first)
-        print(f"dascreen: error: {exc.filename}: {exc.strerror}; choose a path you can write to", file=sys.stderr)
+        if _is_input_path(exc.filename, args):  # "choose a path you can write to" was said of an unreadable input
+            print(f"dascreen: error: cannot read {exc.filename}: {exc.strerror}; make it readable (chmod u+r), or "
+                  "give a copy you can read", file=sys.stderr)
+        else:
+            print(f"dascreen: error: cannot write {_shown_path(exc.filename)}: {exc.strerror}; choose a path you can "
+                  "write to", file=sys.stderr)
         return exit_code(InputError(str(exc)))
+    except OSError as exc:  # a full disk, a file where a folder goes, ...: one line naming the path, no traceback
+        text, code = _os_error_text(exc, args)
+        print(f"dascreen: error: {text}", file=sys.stderr)
+        return code
     except UnicodeDecodeError as exc:  # a file read as text that is not UTF-8 (the readers name theirs first)
         print(f"dascreen: error: a file given is not UTF-8 text ({exc}); save it as UTF-8", file=sys.stderr)
         return exit_code(InputError(str(exc)))

@@ -30,11 +30,34 @@ from screen.schema import MAX_NESTING, SCHEMA_PATH, defaults, resolve, section_d
 
 __all__ = ["SCHEMA_PATH", "ConfigError", "Config", "load_config", "read_config_file", "load_yaml", "read_problem",
            "merge", "resolve", "defaults", "section_defaults", "data_path", "PACKAGE_ROOT",
-           "protocol", "protocol_id"]
+           "install_problem", "protocol", "protocol_id"]
 
 #: the folder that holds the ``screen`` package and, in an installation from the repository, the shipped data
 #: folders (``models/``, ``models/reference/``)
 PACKAGE_ROOT = Path(__file__).resolve().parent.parent
+
+
+def install_problem() -> str:
+    """``""`` when the shipped data folders are beside the package (a checkout, or ``pip install -e <clone>``), else
+    the one line that says what is wrong and the fix.
+
+    ``models/`` (the calibration, ``models/device/fitted.json``, ``models/reference/``) lives at the top of the
+    repository and is not in the wheel: after ``pip install .`` :data:`PACKAGE_ROOT` is site-packages, and the
+    commands that need those data stopped after their checks with a message that named a site-packages path and a
+    fix that could not work (a packaging audit). A checkout that lacks only ``fitted.json`` (removed to be written
+    again by ``python -m screen.devicefit --write``) is no installation problem: ``models/reference/`` is there.
+
+    Examples
+    --------
+    >>> install_problem() == "" or not (PACKAGE_ROOT / "models" / "reference").is_dir()
+    True
+    """
+    models = PACKAGE_ROOT / "models"
+    if (models / "device" / "fitted.json").is_file() or (models / "reference").is_dir():
+        return ""
+    return (f"this installation has no models folder ({models}): dascreen runs from a clone of its repository "
+            "installed with `pip install -e <clone>` (the calibration and reference data live in the repository's "
+            "models/ folder)")
 
 
 def data_path(path: str | Path) -> Path:

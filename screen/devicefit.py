@@ -746,6 +746,12 @@ def main(argv=None) -> int:
     parser.add_argument("--film", default=str(FILM_PATH))
     parser.add_argument("--write", action="store_true", help=f"write {FITTED_PATH} and {LEVELS_TABLE_PATH}")
     args = parser.parse_args(argv)
+    from screen.config import install_problem
+
+    problem = install_problem()  # a non-editable install: no models/ folder, and a FileNotFoundError traceback
+    if problem and (args.write or args.devices == str(DEVICES_PATH) or args.film == str(FILM_PATH)):
+        print(f"python -m screen.devicefit: {problem}", file=sys.stderr)
+        return 2
     if args.write:
         data = write_fitted(FITTED_PATH, args.devices, args.film)
         all_metrics = [data["cv"], data["cv_leave_donor_out"]]

@@ -39,6 +39,7 @@ import signal
 import subprocess
 import sys
 import threading
+import time
 from pathlib import Path
 
 import yaml
@@ -529,8 +530,8 @@ def check_engine_args(extra) -> None:
         from snakemake.cli import get_argument_parser
 
         parser, blank = get_argument_parser(), get_argument_parser()
-    except ImportError:  # an engine without this API checks its arguments itself
-        return
+    except Exception:  # noqa: BLE001 - an engine without this (private) API checks its arguments itself, as
+        return  # preflight._engine_options does (only ImportError was caught: an upgrade that changed it crashed)
 
     class _Refused(Exception):
         pass
@@ -674,14 +675,83 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
             subprocess.call(cmd + ["--unlock"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env,
                             pass_fds=hold)
             print("dascreen: removed the lock left by an interrupted run; resuming", file=sys.stderr, flush=True)
-        if verbose:
-            print("dascreen: snakemake --cores", cores, "in", out, flush=True)
-            return _wait(_start(cmd, env, pass_fds=hold))
-        if dry_run:
-            return _dry_run(cmd, env, out / "logs" / f"{log_name}.dry-run.log", hold)
-        return _quiet(cmd, env, out, out / "logs" / f"{log_name}.log", label, hold, batch, explain=explain)
+        started = time.time()
+        try:
+            if verbose:
+                print("dascreen: snakemake --cores", cores, "in", out, flush=True)
+                return _wait(_start(cmd, env, pass_fds=hold))
+            if dry_run:
+                return _dry_run(cmd, env, out / "logs" / f"{log_name}.dry-run.log", hold)
+            return _quiet(cmd, env, out, out / "logs" / f"{log_name}.log", label, hold, batch, explain=explain)
+        finally:  # the jobs' store problems reach the console, not only their logs (a filesystem audit)
+            unstored = None if dry_run else unstored_results(out, started, store)
+            if unstored:
+                print(unstored, file=sys.stderr, flush=True)
     finally:
         lock.close()
+
+
+#: the job log lines of :func:`screen.batch.report_store_hits` that say new results were not stored / the store
+#: could not be read (the cache's write_problem / read_problem); ``N computed`` / ``N molecules computed`` counts the
+#: molecules
+_UNSTORED = re.compile(r"; (?:new results were not stored|the results store was not usable): (?P<why>.*?)"
+                       r"(?:; \d+ more resumed from the journal.*?)?(?: \([a-z_ -]+\))?$")
+
+
+def unstored_results(out: Path, since: float, store: Path | None = None) -> str | None:
+    """One console line when jobs of this attempt (logs under ``out/logs`` written since ``since``, a Unix time)
+    could not store their new results; None when they all could (or had no store).
+
+    A filesystem audit: a store locked during a run lost the run's new results with exit code 0 and a normal
+    summary; "new results were not stored" was only in a compute job's log, and the next run silently computed
+    the molecules again.
+
+    Examples
+    --------
+    >>> import tempfile, time
+    >>> out = Path(tempfile.mkdtemp())
+    >>> (out / "logs" / "c").mkdir(parents=True)
+    >>> _ = (out / "logs" / "c" / "shard-000.log").write_text(
+    ...     "compute shard-000: 0 of 2 molecules from the results store, 2 computed; new results were not stored: "
+    ...     "database is locked (electronic)\\n")
+    >>> print(unstored_results(out, time.time() - 60, Path("/s/store.sqlite")))
+    dascreen: warning: new results were not stored in the results store /s/store.sqlite (database is locked; see logs/c/shard-000.log): the next run computes up to 2 molecules again
+    >>> unstored_results(out, time.time() + 60) is None  # a log of an earlier attempt
+    True
+    """
+    logs = Path(out) / "logs"
+    molecules, why, where = 0, [], []
+    try:
+        found = sorted(logs.rglob("*.log")) if logs.is_dir() else []
+    except OSError:
+        return None
+    for log in found:
+        try:
+            if log.stat().st_mtime < since - 1:  # an earlier attempt's log (1 s: coarse file-system clocks)
+                continue
+            text = log.read_text(encoding="utf-8", errors="replace")
+        except OSError:
+            continue
+        if text.startswith("# dascreen: attempt"):  # the engine's own log (it may repeat a job's lines)
+            continue
+        most = None
+        for line in text.splitlines():
+            hit = _UNSTORED.search(line)
+            if hit is None or line.startswith("dascreen: "):
+                continue
+            counts = re.findall(r"(\d+) (?:molecules? )?computed", line)
+            most = max(most or 0, int(counts[0]) if counts else 0)
+            why.append(hit["why"])
+        if most is not None:
+            molecules += most
+            where.append(str(log.relative_to(out)))
+    if not where:
+        return None
+    reasons = "; ".join(dict.fromkeys(why))
+    shown = ", ".join(where[:3]) + (f" and {len(where) - 3} more" if len(where) > 3 else "")
+    named = f" {store}" if store else ""
+    return (f"dascreen: warning: new results were not stored in the results store{named} ({reasons}; see {shown}): "
+            f"the next run computes up to {molecules} molecule{'' if molecules == 1 else 's'} again")
 
 
 #: the store lines said last per run folder: a command that starts the workflow twice in one folder says them once

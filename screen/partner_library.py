@@ -222,7 +222,7 @@ def _read_library(path: Path) -> pd.DataFrame:
     if bad_scale:
         raise PartnerError(f"{path}: partner(s) {bad_scale} have a scale other than 'film' or 'gas'")
     for col in ("homo_ev", "lumo_ev", "gap_opt_ev", "fc_reference_ev", *_SIGMA):
-        values = pd.to_numeric(frame[col].replace("", float("nan")), errors="coerce")
+        values = pd.to_numeric(frame[col].mask(frame[col].eq("")), errors="coerce")  # replace() warned (pandas 2.2)
         bad = frame.loc[values.isna() & frame[col].str.strip().ne(""), "id"].tolist()
         if bad:
             raise PartnerError(f"{path}: column {col} of partner(s) {bad} is not a number")

@@ -30,6 +30,7 @@ from __future__ import annotations
 import argparse
 import os
 import re
+import stat
 from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
@@ -541,7 +542,7 @@ def check_candidates(path) -> int:
     Raises
     ------
     InputError
-        Missing file (with close file names), a folder, an empty file or one
+        Missing file (with close file names), a folder, a pipe or device, an empty file or one
         without records, an unknown file type, a CSV without a ``smiles``
         column, text that is not UTF-8.
     """
@@ -552,7 +553,12 @@ def check_candidates(path) -> int:
         raise InputError(f"candidates file {str(path)!r} does not exist{hint}")
     if path.is_dir():
         raise InputError(f"candidates {str(path)!r} is a folder; give a .csv, .smi or .sdf file")
-    if path.stat().st_size == 0:
+    info = path.stat()
+    if not stat.S_ISREG(info.st_mode):  # a pipe (<(cat x.csv), /dev/stdin) has size 0 and is read once only: the
+        # run reads the file more than once (an audit: "is empty" for a process substitution that was not)
+        raise InputError(f"candidates file {path} is not a regular file (a pipe or device): save it to a file "
+                         "first, e.g. `cat ... > candidates.csv`, and give that file")
+    if info.st_size == 0:
         raise InputError(f"candidates file {path} is empty: nothing to screen")
     if path.name.lower().endswith(_SDF):
         return _check_sdf(path)

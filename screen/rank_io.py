@@ -693,10 +693,41 @@ def check_writable(target: Path, levels_path) -> None:
     >>> check_writable(Path(tempfile.mkdtemp()) / "rankings" / "y6--0", "levels.csv")
     """
     folder = nearest_existing(target)
+    if not folder.is_dir():  # a file where a folder is needed gave NotADirectoryError/FileExistsError tracebacks
+        raise InputError(f"cannot write the ranking {target}: {folder} is a file where a folder is needed; move it "
+                         f"away, or rank into another folder (--out NEW_FOLDER --levels {levels_path})")
+    for name in RANKING_FILES:  # a folder named ranking.csv gave an IsADirectoryError traceback
+        path = Path(target) / name
+        if path.is_dir():
+            raise InputError(f"cannot write the ranking {target}: {path} is a folder where the file {name} goes; "
+                             f"move it away, or rank into another folder (--out NEW_FOLDER --levels {levels_path})")
     if folder.is_dir() and not os.access(folder, os.W_OK | os.X_OK):
         what = "its folder" if folder == Path(target).absolute() else f"{folder}, where it would be created,"
         raise InputError(f"cannot write the ranking {target}: {what} is not writable; make it writable, or rank "
                          f"into a folder of your own (--out NEW_FOLDER --levels {levels_path})")
+
+
+#: the files of a ranking folder, in the order :func:`run_rank` removes an earlier ranking's before it writes the
+#: new one (``ranking.meta.json`` first, and written last: its presence means the ranking is complete)
+RANKING_FILES = ("ranking.meta.json", "ranking.safe.csv", "report.html", "shortlist.sdf", "ranking.csv")
+
+
+def _clear_previous(target: Path) -> None:
+    """Remove the earlier ranking's files from ``target`` (not ``ranking.csv``: replaced atomically), so that a
+    ranking stopped half way (a full disk) never leaves the old meta, safe CSV or report beside the new
+    ``ranking.csv`` (an audit of full disks).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> d = Path(tempfile.mkdtemp())
+    >>> for name in RANKING_FILES: _ = (d / name).write_text("old")
+    >>> _clear_previous(d)
+    >>> sorted(p.name for p in d.iterdir())
+    ['ranking.csv']
+    """
+    for name in RANKING_FILES[:-1]:
+        (target / name).unlink(missing_ok=True)
 
 
 def _check_target(target: Path, partner: Partner, levels_path: Path, levels_sha: str) -> bool:
@@ -728,6 +759,10 @@ def _check_target(target: Path, partner: Partner, levels_path: Path, levels_sha:
     """
     meta_path = target / "ranking.meta.json"
     if not meta_path.is_file():
+        if (target / "ranking.csv").is_file():  # an earlier ranking that stopped half way: its levels are unknown
+            print(f"dascreen rank: replacing the incomplete ranking in {target} (it has no ranking.meta.json)",
+                  file=sys.stderr)
+            return True
         return False
     old = _folder_meta(target)
     _refuse_other_partner(target, partner, old)
@@ -899,8 +934,8 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
         Filled with the wall seconds of each phase (for ``benchmarks/rerank.py``):
         ``read_s`` (levels file, checks, partner), ``rank_s``
         (:func:`rank_candidates`), ``export_s`` (``ranking.csv``, geometries,
-        ``shortlist.sdf``, ``ranking.meta.json``) and ``report_s`` (0 without
-        the report).
+        ``shortlist.sdf``) and ``report_s`` (0 without the report); ``ranking.meta.json``, written last, is in
+        none of them.
     replaced : list, optional
         When the folder's ranking of other levels is replaced, its name is appended here and the partner
         matrices that join it are left to the caller (``dascreen rank`` with several partners refreshes them
@@ -929,6 +964,10 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     -----
     Only levels files are read: no quantum-chemistry engine is imported.
 
+    The earlier ranking's files are removed before the new ``ranking.csv`` is written, and ``ranking.meta.json``
+    is written last: a folder without it holds a ranking that stopped half way (``dascreen status`` says so).
+    The levels file is hashed before and after it is read; a file that changed meanwhile is refused.
+
     A folder that holds this partner's ranking of other levels (another
     file, or this file before an edit: compared by SHA-256) is replaced with a
     notice on stderr, and every partner matrix that joins it is rebuilt
@@ -954,7 +993,11 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     cfg = Config.of(config)
     levels_path = Path(levels_path)
     out_dir = Path(out_dir)
+    levels_sha = sha256_file(levels_path) if levels_path.is_file() else None  # missing: read_ranked_levels says so
     levels = read_ranked_levels(levels_path)
+    if sha256_file(levels_path) != levels_sha:  # the hash recorded must be that of the content ranked
+        raise InputError(f"levels file {levels_path} changed while it was read (another program is writing it); "
+                         "wait until it is finished, then rank again")
     meta_in = _levels_meta(levels_path)
     partner = _partner(partner_spec, levels, levels_path, meta_in, out_dir, partner_levels)
     check_writable(out_dir / "rankings" / (ranking_folder(partner.slug, cfg) + levels_suffix(levels_path, out_dir)),
@@ -971,8 +1014,8 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     if suffix and not target.exists():
         print(f"dascreen rank: {levels_path} is not this run's levels.csv: its ranking goes to "
               f"{target.relative_to(out_dir)} (the run's own rankings are untouched)", file=sys.stderr)
-    levels_sha = sha256_file(levels_path)
     was_replaced = _check_target(target, partner, levels_path, levels_sha)
+    _clear_previous(target)  # a ranking stopped half way leaves no earlier file beside the new ones
     csv_text = write_csv(ranking, target / "ranking.csv")
     csv_text = csv_text if os.linesep == "\n" else None  # the safe copy's text has "\n" line ends
     keys = _structure_keys(levels)
@@ -985,13 +1028,19 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
         print(f"dascreen rank: {shortlist_notice(short, levels_path)}", file=sys.stderr)
     meta = _rank_meta(ranking, levels, levels_path, meta_in, partner, model, options, short, levels_sha)
     meta["settings_hash"] = settings_hash(cfg)
-    write_json(meta, target / "ranking.meta.json")
     lap("export_s")
+    failed = None
     if report:
-        status = _write_report(ranking, levels, partner.as_dict(), meta, target, csv_text)
+        try:
+            status = _write_report(ranking, levels, partner.as_dict(), meta, target, csv_text)
+        except RuntimeError as exc:  # the ranking itself is complete: its meta is still written, then this is said
+            failed, status = exc, "written"
         if status != "written":
             print(f"dascreen rank: report {status}", file=sys.stderr)
     lap("report_s")
+    write_json(meta, target / "ranking.meta.json")  # last: its presence means the ranking is complete
+    if failed is not None:
+        raise failed
     if was_replaced and replaced is not None:  # the caller refreshes the matrices once all partners are ranked
         replaced.append(target.name)
     elif was_replaced:

@@ -210,6 +210,10 @@ class StoreProblem(InputError):
         self.why = why or message
 
 
+class StoreLocked(StoreProblem):
+    """Another process holds a lock on the store longer than the timeout: the store is busy, not broken."""
+
+
 class StoreReadOnly(StoreProblem):
     """The store can be read but not written (a read-only file, folder or file system)."""
 
@@ -234,6 +238,36 @@ def _full_disk_error(exc: sqlite3.OperationalError) -> bool:
     """An SQLite error of a full disk (no room for a write, or for the -shm file a WAL store is read through)."""
     name = getattr(exc, "sqlite_errorname", "") or ""
     return name.startswith(("SQLITE_FULL", "SQLITE_IOERR_SHM")) or "database or disk is full" in str(exc)
+
+
+#: how long a run or ``dascreen store`` waits for another process's lock on the store [s] (a run's jobs:
+#: ``store.timeout_s``); said on standard error as soon as the wait begins (:meth:`ResultStore._patiently`)
+LOCK_TIMEOUT_S = 60.0
+
+
+def _locked_error(exc: Exception) -> bool:
+    """An SQLite error of a lock another connection holds (busy), not of a broken file.
+
+    Examples
+    --------
+    >>> _locked_error(sqlite3.OperationalError("database is locked"))
+    True
+    >>> _locked_error(sqlite3.OperationalError("disk I/O error"))
+    False
+    """
+    name = getattr(exc, "sqlite_errorname", "") or ""
+    return name.startswith(("SQLITE_BUSY", "SQLITE_LOCKED")) or "database is locked" in str(exc) or \
+        "database table is locked" in str(exc)
+
+
+def _locked_why(timeout_s: float) -> str:
+    """The reason of a store another process kept locked for the whole wait (one wording for every message)."""
+    return f"is locked by another process (busy, not broken; waited {timeout_s:g} s)"
+
+
+#: the fix of a locked store for ``dascreen store`` (a run says its own: it computes without the store)
+_LOCKED_FIX = ("wait for that process to finish and run the command again (moving the file away could lose that "
+               "process's results)")
 
 
 def _said(path, why: str) -> str:
@@ -264,6 +298,8 @@ def damaged_store_text(path, exc: Exception) -> str:
         not isinstance(exc, sqlite3.OperationalError) else f"could not be read ({exc})"
     if why.startswith("is damaged"):
         return f"results store {path} {why}: {_move_away(path)}; {_AFTER_MOVE}"
+    if _locked_error(exc):  # another process took a lock while the store was read: busy, not broken
+        return f"results store {path} is locked by another process (busy, not broken): {_LOCKED_FIX}"
     return f"results store {path}: {why}"
 
 
@@ -279,7 +315,7 @@ class ResultStore:
     path : path-like
         The database file; created (with its folder) on first use.
     timeout_s : float
-        How long a writer waits for another process's transaction [s].
+        How long a reader or writer waits for another process's lock [s] (default :data:`LOCK_TIMEOUT_S`).
     read_only : bool
         Open an existing store without changing it (``dascreen store list|export``): nothing is created, no
         table is added, and a file that is not a dascreen store (an empty file, another program's database) is
@@ -293,9 +329,10 @@ class ResultStore:
         exist or holds no dascreen store.
     """
 
-    def __init__(self, path: str | os.PathLike, timeout_s: float = 60.0, read_only: bool = False):
+    def __init__(self, path: str | os.PathLike, timeout_s: float | None = None, read_only: bool = False):
         self.path = Path(path).expanduser()
-        self.timeout_s = float(timeout_s)
+        self.timeout_s = float(LOCK_TIMEOUT_S if timeout_s is None else timeout_s)
+        self._said_wait = False
         self.read_only = bool(read_only)
         self._conn: sqlite3.Connection | None = None
         self._pid = None
@@ -303,6 +340,28 @@ class ResultStore:
         self.read_only_reason: str | None = None
 
     # ------------------------------------------------------------------ connection
+    def _patiently(self, conn: sqlite3.Connection, run: Callable):
+        """``run()`` at once; when another process holds a lock on the store, say so on standard error (once per
+        store) and run it again, waiting up to :attr:`timeout_s` (a filesystem audit: a locked store was waited for
+        60 s in silence)."""
+        conn.execute("PRAGMA busy_timeout = 0")
+        try:
+            return run()
+        except sqlite3.OperationalError as exc:
+            if not _locked_error(exc) or self.timeout_s <= 0:
+                raise
+            if not self._said_wait:
+                self._said_wait = True
+                print(f"dascreen: results store {self.path} is locked by another process; waiting up to "
+                      f"{self.timeout_s:g} s", file=sys.stderr, flush=True)
+        finally:
+            conn.execute(f"PRAGMA busy_timeout = {int(self.timeout_s * 1000)}")
+        return run()
+
+    def _locked(self) -> StoreLocked:
+        why = _locked_why(self.timeout_s)
+        return StoreLocked(f"{_said(self.path, why)}: {_LOCKED_FIX}; the file was not changed", why=why)
+
     def _refusal(self, why: str) -> StoreProblem:
         if why.startswith("is damaged"):  # a fact-check: damage found on opening pointed to another file, not the fix
             return StoreProblem(f"{_said(self.path, why)}: {_move_away(self.path)}; {_AFTER_MOVE}; the file was not "
@@ -340,14 +399,20 @@ class ResultStore:
             try:
                 conn = sqlite3.connect(uri + query[mode], uri=True, timeout=self.timeout_s, isolation_level=None)
                 conn.execute("PRAGMA query_only = ON")
-                conn.execute(f"PRAGMA busy_timeout = {int(self.timeout_s * 1000)}")
-                tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
-                app = (conn.execute("SELECT value FROM info WHERE name = 'application'").fetchone() or [None])[0] \
-                    if "info" in tables else None
+
+                def opened(conn=conn):
+                    tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+                    app = (conn.execute("SELECT value FROM info WHERE name = 'application'").fetchone() or [None])[0] \
+                        if "info" in tables else None
+                    return tables, app
+
+                tables, app = self._patiently(conn, opened)
                 break
             except sqlite3.OperationalError as exc:  # cannot be opened this way (read-only file or folder): next
                 if conn is not None:
                     conn.close()
+                if _locked_error(exc):  # busy, not broken: no advice to move a file another process writes
+                    raise self._locked() from None
                 if not (_read_only_error(exc) or _full_disk_error(exc)):  # e.g. locked: no reading without locks
                     raise self._refusal(f"cannot be read ({exc})") from None
                 last = exc
@@ -392,21 +457,29 @@ class ResultStore:
         conn = None
         try:
             conn = sqlite3.connect(str(self.path), timeout=self.timeout_s, isolation_level=None)
-            conn.execute(f"PRAGMA busy_timeout = {int(self.timeout_s * 1000)}")
-            tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
-            if conn.execute("PRAGMA journal_mode").fetchone()[0] != "wal":
-                conn.execute("PRAGMA journal_mode = WAL")
-            conn.execute("PRAGMA synchronous = NORMAL")
-            if not {"info", "results"} <= tables:  # a new store: its schema (a filled one is never written here)
-                with _transaction(conn):
-                    for statement in filter(str.strip, _SCHEMA.split(";")):
-                        conn.execute(statement)
-                    conn.execute("INSERT OR IGNORE INTO info VALUES ('application', ?)", (_APPLICATION,))
-                    conn.execute("INSERT OR IGNORE INTO info VALUES ('format', ?)", (str(FORMAT),))
-            app = (conn.execute("SELECT value FROM info WHERE name = 'application'").fetchone() or [None])[0]
+
+            def opened(conn=conn):
+                tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+                if conn.execute("PRAGMA journal_mode").fetchone()[0] != "wal":
+                    conn.execute("PRAGMA journal_mode = WAL")
+                conn.execute("PRAGMA synchronous = NORMAL")
+                if not {"info", "results"} <= tables:  # a new store: its schema (a filled one is never written here)
+                    with _transaction(conn):
+                        for statement in filter(str.strip, _SCHEMA.split(";")):
+                            conn.execute(statement)
+                        conn.execute("INSERT OR IGNORE INTO info VALUES ('application', ?)", (_APPLICATION,))
+                        conn.execute("INSERT OR IGNORE INTO info VALUES ('format', ?)", (str(FORMAT),))
+                return (conn.execute("SELECT value FROM info WHERE name = 'application'").fetchone() or [None])[0]
+
+            app = self._patiently(conn, opened)
         except sqlite3.OperationalError as exc:
             if conn is not None:
                 conn.close()
+            if _locked_error(exc):  # busy, not broken: no advice to move a file another process writes
+                why = f"{exc} by another process, waited {self.timeout_s:g} s"
+                raise StoreLocked(f"results store {self.path} is locked by another process (busy, not broken; "
+                                  f"waited {self.timeout_s:g} s): {_LOCKED_FIX}, or set store.path to another file",
+                                  why=why) from None
             full = _full_disk_error(exc)
             if (_read_only_error(exc) or full) and self.path.is_file():  # a write the system refused unannounced
                 self._conn, self._pid = self._open_read_only(("ro", "immutable")), os.getpid()
@@ -473,7 +546,7 @@ class ResultStore:
             The store can only be read (:attr:`read_only_reason`).
         """
         conn = self._writing("new results are not stored")
-        with _transaction(conn):
+        with _transaction(conn, self):
             conn.executemany("INSERT OR REPLACE INTO results VALUES (?, ?, ?, ?, ?, ?, ?)", rows)
 
     def get(self, stage: str, key: str, protocol_id: str, geometry: str = "") -> dict | None:
@@ -564,8 +637,13 @@ def store_row(stage: str, key: str, options, record: Mapping, geometry: str = ""
 
 
 @contextlib.contextmanager
-def _transaction(conn: sqlite3.Connection) -> Iterator[None]:
-    conn.execute("BEGIN IMMEDIATE")
+def _transaction(conn: sqlite3.Connection, store: ResultStore | None = None) -> Iterator[None]:
+    """One write transaction; with ``store``, a wait for another process's lock is said first
+    (:meth:`ResultStore._patiently`)."""
+    if store is not None:
+        store._patiently(conn, lambda: conn.execute("BEGIN IMMEDIATE"))
+    else:
+        conn.execute("BEGIN IMMEDIATE")
     try:
         yield
     except BaseException:
@@ -843,7 +921,7 @@ def open_store(config=None) -> ResultStore | None:
     path = store_location(config)
     if path is None:
         return None
-    timeout = ((config or {}).get("store") or {}).get("timeout_s", 60.0)
+    timeout = ((config or {}).get("store") or {}).get("timeout_s", LOCK_TIMEOUT_S)
     return ResultStore(path, timeout_s=timeout)
 
 
@@ -881,6 +959,8 @@ def run_store_check(path: Path | None, why_none: str = "store.path is null") -> 
         return [f"dascreen: results store: none ({why_none}): every molecule is computed and nothing is kept"], False
     path = Path(path)
     elsewhere = f"set {STORE_ENV} or store.path to another file"
+    # busy, not broken: moving it away could lose the results the other process is writing
+    locked_fix = f"wait for that process to finish and run again to use it, or set {STORE_ENV} to another file"
 
     def unusable(why: str, fix: str = "") -> tuple[list[str], bool]:
         return [f"dascreen: warning: {_said(path, why)}: this run does not use it, every molecule is computed and "
@@ -909,14 +989,18 @@ def run_store_check(path: Path | None, why_none: str = "store.path is null") -> 
         conn = store._connect()
         if path.stat().st_size <= CHECK_MAX_MB * 1e6:
             try:
-                verdict = conn.execute("PRAGMA quick_check").fetchone()[0]
+                verdict = store._patiently(conn, lambda: conn.execute("PRAGMA quick_check").fetchone()[0])
             except sqlite3.OperationalError as exc:
+                if _locked_error(exc):
+                    return unusable(_locked_why(store.timeout_s), locked_fix)
                 return unusable(f"cannot be read ({exc})")
             except sqlite3.DatabaseError as exc:
                 verdict = str(exc)
             if verdict != "ok":  # quick_check lists one problem per line: the first, on the warning's one line
                 verdict = str(verdict).strip().splitlines()[0] if str(verdict).strip() else "quick_check failed"
                 return unusable(f"is damaged ({verdict})", f"{_move_away(path)}: runs then start a new store")
+    except StoreLocked as exc:
+        return unusable(exc.why, locked_fix)
     except StoreProblem as exc:
         return unusable(exc.why, f"move it away or {elsewhere}")
     finally:
