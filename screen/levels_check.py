@@ -455,13 +455,15 @@ def _text_problems(frame: pd.DataFrame, ids, computed) -> list:
 
 
 def file_line(frame: pd.DataFrame, i: int) -> int:
-    """File line of row ``i`` (header = line 1), from the frame's index when it is the file's row number.
+    """File line of row ``i`` (header = line 1), from the frame's index when it is the file's row number (an
+    integer index without repeats; a repeated index, as ``pd.concat([a, a])`` gives, said "line 2 … the same id as
+    line 2").
 
-    >>> file_line(pd.DataFrame({"id": ["a", "b"]}, index=[3, 7]), 1)
-    9
+    >>> file_line(pd.DataFrame({"id": ["a", "b"]}, index=[3, 7]), 1), file_line(pd.DataFrame({"id": ["a", "a"]}, index=[0, 0]), 1)
+    (9, 3)
     """
     idx = frame.index[i]
-    return int(idx) + 2 if isinstance(idx, (int, np.integer)) else i + 2
+    return int(idx) + 2 if isinstance(idx, (int, np.integer)) and frame.index.is_unique else i + 2
 
 
 #: the text cells of a row that :func:`text_row_problems` holds to :func:`screen.prepare.checks.text_row_problem`

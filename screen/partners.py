@@ -666,6 +666,9 @@ def resolve_partner(spec: str, *, levels=None, partner_levels=None,
         Unknown name (the message lists the library ids), a file with other
         than one row, a row without scale or levels, or a ``smiles:`` partner
         that has not been computed or whose calculation failed.
+    InputError
+        A partner file that cannot be read as a levels table (missing columns, impossible values: the checks of a
+        levels file); :class:`PartnerError` is a subclass, so ``except InputError`` catches both.
 
     Notes
     -----

@@ -950,8 +950,9 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
     -------
     pandas.DataFrame
         :data:`RANKING_COLUMNS` then :data:`EXTRA_COLUMNS`, best first:
-        passing rows first, then ``options.sort_by`` descending (NaN last;
-        with ``p_above_target`` ties are broken by ``pce_pct``), then ``id``;
+        in the order of :func:`_sort_ranking`: passing rows first, then viable ones, then ``options.sort_by``
+        descending (NaN last; with ``p_above_target`` ties are broken by ``pce_pct``), then ``p_aligned``
+        descending, then a repeat of an earlier row's structure after it, then ``id``, then input order;
         ``rank`` is 1..n.  Energies [eV], ``voc_v`` [V], ``jsc_ma_cm2``
         [mA cm⁻²], ``pce_pct`` and ``pce_sigma_pct`` [%], ``p_above_target``
         the sampled probability that PCE > ``options.target_pce_pct``.

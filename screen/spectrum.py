@@ -461,8 +461,13 @@ def sq_limit(gap_ev, temperature_k: float = SQ_TEMPERATURE_K) -> dict:
     dict of numpy.ndarray
         ``jsc_ma_cm2`` [mA cm⁻²], ``voc_v`` [V], ``ff`` [dimensionless] and
         ``pce_pct`` [%] at the maximum power point; NaN for non-finite or
-        non-positive gaps, 0 current and efficiency above 4.43 eV (no
-        photons in the table).
+        non-positive gaps; above 4.43 eV (no photons in the table) current,
+        Voc and efficiency 0 and ``ff`` NaN.
+
+    Raises
+    ------
+    ValueError
+        A temperature that is not finite and above 0 K.
 
     Notes
     -----
@@ -488,6 +493,8 @@ def sq_limit(gap_ev, temperature_k: float = SQ_TEMPERATURE_K) -> dict:
     >>> out["pce_pct"].round(1).tolist(), out["voc_v"].round(2).tolist()
     ([33.7, 25.0], [1.08, 1.61])
     """
+    if not (np.isfinite(float(temperature_k)) and float(temperature_k) > 0):
+        raise ValueError(f"sq_limit: temperature_k = {temperature_k}; give the cell temperature in kelvin, above 0")
     gap = np.asarray(gap_ev, dtype=float)
     valid = np.isfinite(gap) & (gap > 0)
     g = np.where(valid, gap, 1.0)

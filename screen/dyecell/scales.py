@@ -211,7 +211,7 @@ def reference_entry(reference: str, solvent: str | None = None) -> dict:
     ----------
     reference : str
         ``NHE``/``SHE``, ``SCE``, ``Ag/AgCl``, ``Ag/AgCl (3 M KCl)``, ``Fc`` (ferrocene,
-        needs ``solvent``) or an id of ``electrodes.csv`` (e.g. ``fc-dcm``).
+        in the ``solvent`` given) or an id of ``electrodes.csv`` (e.g. ``fc-dcm``).
     solvent : str, optional
         Solvent of a ferrocene reference (None: acetonitrile for a bare ``Fc``).  Given with an id that names
         another solvent (``fc-mecn`` with dichloromethane), it is refused (:func:`solvent_conflict`).

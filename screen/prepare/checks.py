@@ -595,10 +595,16 @@ def _check_chemistry(mol: Chem.Mol) -> None:
         atom = mol.GetAtomWithIdx(idx)
         match = re.search(r"valence for atom # \d+ \w+, (\d+), is greater", first.Message())
         valence = f" has valence {match.group(1)}," if match else ""
+        hint = ""
+        if atom.GetSymbol() == "B" and atom.GetFormalCharge() == 0 and any(
+                b.GetBondType() == Chem.BondType.DATIVE for b in atom.GetBonds()):
+            # a B←N coordination written as a dative bond (n->B) was refused with no way out
+            hint = ("; write the N→B coordination as a charge-separated pair, e.g. [n+]…[B-](F)F for n->B(F)F: "
+                    "formal charges that cancel are fine")
         raise _Reject(
             "valence",
             f"atom {idx} ({atom.GetSymbol()}){valence} more bonds than {atom.GetSymbol()} "
-            f"allows (0-based atom index in the order of smiles_input; RDKit: {first.Message()}){more}",
+            f"allows (0-based atom index in the order of smiles_input; RDKit: {first.Message()}){more}{hint}",
         )
     if kind in ("KekulizeException", "AtomKekulizeException"):
         if kind == "KekulizeException":
