@@ -92,7 +92,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from screen.devicekernel import pair_terms, pce_samples, voc_v
+from screen.devicekernel import gap_floor, pair_terms, pce_samples, voc_v
 from screen.devicepars import FittedParameters, load_fitted
 from screen.errors import ConfigError
 from screen.flags import join_flags
@@ -109,8 +109,9 @@ from screen.spectrum import (
     photon_flux_above_gap_m2_s,
     reference_spectrum,
     sq_pce_pct,
+    sq_voc_v,
 )
-from screen.viability import OFFSET_TOL_EV, CurrentTerms, classify
+from screen.viability import GAP_MAX_EV, OFFSET_TOL_EV, CurrentTerms, classify
 
 __all__ = [
     "DeviceModel",
@@ -417,6 +418,34 @@ class DeviceModel:
         (False, False)
         """
         return self._fitted_ff and bool(self.parameters.ff_by_class)
+
+    def pce_bound_pct(self) -> float:
+        """An upper bound of the PCE any pair can get from this model [%].
+
+        Over absorber gaps g up to :data:`screen.viability.GAP_MAX_EV`: Voc no more than the detailed-balance Voc of
+        g, g less the fitted floor on E_g − qVoc, and (Scharber's rule) g less the smallest offset threshold and
+        the loss; Jsc the photons above g at the model's EQE (yields ≤ 1); the largest fill factor of any class; and
+        never above the detailed-balance limit. A target above it is one no pair can reach: P(PCE > target) is 0
+        for every row (a device physicist's audit: the fitted model stops near 13.7 %, and a target of 15 % gave 0
+        everywhere without a word).
+
+        Examples
+        --------
+        >>> round(DeviceModel(model="scharber").pce_bound_pct(), 1)  # the published rule's own ceiling
+        11.1
+        >>> round(DeviceModel(model="scharber", eqe=1.0, ff=1.0, loss_v=0.0, min_delta_lumo_ev=0.0,
+        ...                   min_delta_homo_ev=0.0).pce_bound_pct(), 1)  # detailed balance (Rühle 2016: 33.7 %)
+        33.7
+        """
+        g = np.arange(0.3, GAP_MAX_EV, 0.001)
+        voc = np.minimum(np.asarray(sq_voc_v(g), float), g - gap_floor(self))
+        if self.model == "scharber":
+            offsets = [self.value("min_delta_lumo_ev")] + ([self.value("min_delta_homo_ev")]
+                                                           if self.absorber == "both" else [])
+            voc = np.minimum(voc, g - min(offsets) - self.value("loss_v"))
+        pce = (np.clip(voc, 0.0, None) * self.value("eqe") * np.asarray(jsc_ma_cm2(g, 1.0), float) * self.ff_max
+               * 1000.0 / self.incident_power_w_m2)
+        return float(np.max(np.minimum(pce, self._sq_pct(sq_pce_pct(g)))))
 
     @property
     def ff_max(self) -> float:

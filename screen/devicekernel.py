@@ -34,7 +34,7 @@ from screen.devicepars import slope_loss
 from screen.spectrum import as_output, jsc_ma_cm2, sq_voc_v
 from screen.viability import CurrentTerms, gap_valid, jsc_written, offset_clears
 
-__all__ = ["PairTerms", "pair_terms", "pce_samples", "generation_yield", "voc_v"]
+__all__ = ["PairTerms", "pair_terms", "pce_samples", "generation_yield", "voc_v", "gap_floor"]
 
 
 def generation_yield(delta, scale: float):
@@ -79,7 +79,7 @@ def _slope(model) -> tuple[float, float, float, float]:
             float(getattr(p, "ect_min_ev", -np.inf)), float(getattr(p, "ect_max_ev", np.inf)))
 
 
-def _gap_floor(model) -> float:
+def gap_floor(model) -> float:
     """The fitted model's floor on E_g − qVoc [eV] (:attr:`FittedParameters.gap_loss_min_ev`); 0 for Scharber's rule
     or a fixed ``loss_v``."""
     p = model.parameters
@@ -159,7 +159,7 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None, sq_voc=None) -> PairTerms:
         slope, ref, lo, hi = _slope(model)
         loss_ev = slope_loss(loss_ev, e_ct, slope, ref, lo, hi)  # grows with E_CT in the fitted range, ≥ 0
         voc_raw = e_ct - loss_ev  # E_CT - loss (Veldman et al. 2009)
-        floor = _gap_floor(model)
+        floor = gap_floor(model)
         if floor > 0:  # never less total loss against the gap than any fitted device
             with np.errstate(invalid="ignore"):
                 floored = voc_raw > gap_cap - floor
@@ -265,7 +265,7 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
         del lowered
     else:
         voc -= loss_ev
-    floor = _gap_floor(model)
+    floor = gap_floor(model)
     if floor > 0:
         np.fmin(voc, cap - floor, out=voc)
     np.fmin(voc, cap, out=voc)

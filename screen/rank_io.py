@@ -1008,7 +1008,7 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     ranking = rank_candidates(levels, partner, model, options)
     lap("rank_s")
 
-    _say_assumptions(levels, levels_path, partner, model)
+    _say_assumptions(levels, levels_path, partner, model, options)
     suffix = levels_suffix(levels_path, out_dir)
     target = out_dir / "rankings" / (ranking_folder(partner.slug, cfg) + suffix)
     if suffix and not target.exists():
@@ -1054,8 +1054,16 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     return target / "ranking.csv"
 
 
-def _say_assumptions(levels: pd.DataFrame, levels_path: Path, partner: Partner, model: DeviceModel) -> None:
-    """On stderr: inputs taken as exact for want of σ, and a partner that is no measured material."""
+def _say_assumptions(levels: pd.DataFrame, levels_path: Path, partner: Partner, model: DeviceModel,
+                     options: RankOptions | None = None) -> None:
+    """On stderr: inputs taken as exact for want of σ, a partner that is no measured material, and a target PCE
+    no pair can reach under the model."""
+    if options is not None and options.target_pce_pct >= (bound := model.pce_bound_pct()):
+        print(f"dascreen rank: target {options.target_pce_pct:g} % PCE is above what the {model.model} device model "
+              f"can give any pair (at most {bound:.1f} %: its EQE {model.value('eqe'):.2f} and fill factor up to "
+              f"{model.ff_max:.2f} are averages of published devices, so its estimates run below the best measured "
+              "cells), so P(PCE > target) is 0 for every row; give a lower --target-pce to compare candidates, or set "
+              "device.eqe and device.ff to the values of your own best cells", file=sys.stderr)
     given = [c for c in SIGMA_COLUMNS if c in levels.columns]
     if len(levels) and not any((pd.to_numeric(levels[c], errors="coerce") > 0).any() for c in given):
         print(f"dascreen rank: {levels_path} gives no σ (homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev): its levels "

@@ -362,7 +362,7 @@ MODEL_TEXT = {
                '\u0394E<sub>loss</sub> (per acceptor class where the cross-validation keeps one), an EQE '
                'times a charge-generation yield 1 \u2212 exp(\u2212\u0394/\u0394<sub>0</sub>) of each offset '
                '(\u0394<sub>0</sub> below; fitted at the smallest value tried, so in effect a step at zero offset: '
-               'the devices show no loss of current at small offsets) and a fill factor per acceptor class, all fitted on published '
+               'with level errors of ~0.1 eV the devices could not show a loss of current at small offsets) and a fill factor per acceptor class, all fitted on published '
                'devices; V<sub>oc</sub> '
                'never above the gap and '
                'PCE never above the detailed-balance limit.'),
