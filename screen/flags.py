@@ -143,7 +143,7 @@ _REGISTRY = (
                              "checked", "info"),
     Flag("heavy_atoms_unknown", "heavy-atom count unknown, so the size limit could not be checked", "info"),
     Flag("far_from_reference", "unlike every reference material of the calibration (fingerprint similarity "
-                               "below 0.30, or an element that no reference material contains): its levels are "
+                               "below 0.30, or an element that fewer than two reference materials contain): its levels are "
                                "extrapolated and carry a wide σ", "info"),
     Flag("known_family_bias", "diketopyrrolopyrrole core (levels.csv known_bias dpp): held out, this family's film "
                               "gaps come out 0.36–0.53 eV too wide and its HOMOs 0.16–0.34 eV too deep on the default "

@@ -29,3 +29,32 @@ def test_the_charge_separated_form_is_accepted():
 def test_another_valence_error_gets_no_boron_hint():
     row = _row("CC(C)(C)(C)C")  # a five-bonded carbon
     assert row.reason == "valence" and "N→B" not in row.error
+
+
+def test_a_neutral_four_coordinate_boron_gets_the_same_hint():
+    # a BODIPY core written with a neutral N-B(F)F (a heteroatom chemist's audit)
+    row = _row("FB1(F)N2C=CC=C2C(c2ccccc2)=C2C=CC=N12")
+    assert row.reason == "valence" and "[n+]…[B-](F)F" in row.error
+
+
+def test_an_element_outside_the_allowed_list_names_the_setting():
+    row = _row("c1cc[te]c1-c1ccc[te]1")  # 2,2'-bitellurophene
+    assert row.reason == "unsupported_element"
+    assert row.error.endswith("(setting prepare.allowed_elements; an element outside the calibration's reference "
+                              "materials gets extrapolated levels, flagged far_from_reference with the widest σ)")
+
+
+def test_an_element_in_one_reference_structure_is_not_covered():
+    # selenium is in one reference polymer's side groups only, bromine in one gas-phase row (models/reference):
+    # a biselenophene is as unlike the reference as a boron compound (similarity 0)
+    import json
+    from pathlib import Path
+
+    from screen.calibrate import covered_elements
+    from screen.calibration.domain import nearest_similarity
+
+    folder = Path(__file__).resolve().parents[1] / "models" / "tblite-gfn2-ff-eaf1c554"
+    models = {n: json.loads((folder / f"{n}.json").read_text()) for n in ("homo_film", "lumo_film", "gap_opt_film")}
+    refs = [r["smiles"] for r in models["homo_film"]["residuals"]]
+    sim = nearest_similarity(["c1cc[se]c1-c1ccc[se]1", "c1ccsc1-c1cccs1"], refs, covered=covered_elements(models))
+    assert sim[0] == 0.0 and sim[1] > 0.0

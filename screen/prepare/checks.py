@@ -554,7 +554,9 @@ def _check_elements(mol: Chem.Mol, options: PrepareOptions) -> None:
         raise _Reject(
             "unsupported_element",
             f"{head}element(s) not allowed: {', '.join(bad)}; "
-            f"allowed elements: {', '.join(options.allowed_elements)}",
+            f"allowed elements: {', '.join(options.allowed_elements)}"
+            + ("" if metals else " (setting prepare.allowed_elements; an element outside the calibration's reference "
+                                 "materials gets extrapolated levels, flagged far_from_reference with the widest σ)"),
         )
 
 
@@ -596,9 +598,9 @@ def _check_chemistry(mol: Chem.Mol) -> None:
         match = re.search(r"valence for atom # \d+ \w+, (\d+), is greater", first.Message())
         valence = f" has valence {match.group(1)}," if match else ""
         hint = ""
-        if atom.GetSymbol() == "B" and atom.GetFormalCharge() == 0 and any(
-                b.GetBondType() == Chem.BondType.DATIVE for b in atom.GetBonds()):
-            # a B←N coordination written as a dative bond (n->B) was refused with no way out
+        if atom.GetSymbol() == "B" and atom.GetFormalCharge() == 0:
+            # a four-coordinate boron written neutral (a dative n->B, or a BODIPY-type N-B(F)F) was refused with no
+            # way out
             hint = ("; write the N→B coordination as a charge-separated pair, e.g. [n+]…[B-](F)F for n->B(F)F: "
                     "formal charges that cancel are fine")
         raise _Reject(
