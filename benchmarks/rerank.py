@@ -21,8 +21,8 @@ structures, e.g. a user's own measurements).  :func:`run_rank` reports the
 seconds of its phases; the benchmark prints the best of each:
 
 * ``rank_s``: :func:`screen.rank.rank_candidates` inside ``run_rank``;
-* ``export_s``: ``ranking.csv``, reading the shortlist's stored geometries,
-  ``shortlist.sdf`` and ``ranking.meta.json``;
+* ``export_s``: ``ranking.csv``, reading the shortlist's stored geometries and
+  ``shortlist.sdf`` (``ranking.meta.json`` is written last, after the report, in no phase);
 * ``report_s``: ``report.html`` and ``ranking.safe.csv``.
 
 The first ``run_rank`` of the process is printed apart (``first_rerank_s``): it

@@ -16,7 +16,14 @@ from collections.abc import Callable, Iterable, Iterator
 from screen.io import Journal, Progress
 from screen.isolation import IsolatedWorker
 
-__all__ = ["molecule_caller", "run_journalled", "journalled", "report_store_hits"]
+__all__ = ["molecule_caller", "run_journalled", "journalled", "report_store_hits", "STORE_NOT_USABLE",
+           "STORE_NOT_WRITTEN", "RESUMED_FROM_JOURNAL"]
+
+#: the phrases of :func:`report_store_hits`' log line that :func:`screen.launch.unstored_results` looks for (one
+#: source: a rewording here is a rewording there): ``; <phrase>: <why>`` and ``; <n> <resumed phrase> ...``
+STORE_NOT_USABLE = "the results store was not usable"
+STORE_NOT_WRITTEN = "new results were not stored"
+RESUMED_FROM_JOURNAL = "more resumed from the journal"
 
 
 @contextlib.contextmanager
@@ -177,11 +184,11 @@ def report_store_hits(progress: Progress, cache, n_items: int, what: str = "", r
         counts = f"{molecules} computed"
     elif read:  # a concurrency audit: "0 of 3 molecules from the results store" read as if the store had been asked
         counts = (f"{cache.hits} of {molecules} from the results store, then {n_items - cache.hits} computed"
-                  if cache.hits else f"{molecules} computed") + f"; the results store was not usable: {read}"
+                  if cache.hits else f"{molecules} computed") + f"; {STORE_NOT_USABLE}: {read}"
     else:
         counts = f"{cache.hits} of {molecules} from the results store, {n_items - cache.hits} computed"
         if write:
-            counts += f"; new results were not stored: {write}"
+            counts += f"; {STORE_NOT_WRITTEN}: {write}"
     if resumed:
-        counts += f"; {resumed} more resumed from the journal (an interrupted attempt finished them)"
+        counts += f"; {resumed} {RESUMED_FROM_JOURNAL} (an interrupted attempt finished them)"
     print(f"{progress.label}: {counts}{suffix}", file=progress.stream, flush=True)

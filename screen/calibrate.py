@@ -73,6 +73,7 @@ from screen.errors import ConfigError
 from screen.io import write_csv, write_json
 from screen.knownbias import ct_polymer, known_bias
 from screen.provenance import provenance
+from screen.viability import WRITTEN_DECIMALS
 
 __all__ = [
     "PROPERTIES",
@@ -743,7 +744,7 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict], scale: str = "fi
               "lumo_sigma_ev": lumo_s, "gap_opt_sigma_ev": gap_s}
     for col, arr in values.items():
         out[col] = np.nan
-        out.loc[ok, col] = np.round(arr, 4)
+        out.loc[ok, col] = np.round(arr, WRITTEN_DECIMALS)
     out["scale"] = ""
     out.loc[ok, "scale"] = scale
     out["reference_similarity"] = np.nan

@@ -85,7 +85,7 @@ from screen.config import Config, install_problem, nearest_existing  # noqa: E40
 from screen.errors import CalculationError, ConfigError, DascreenError, InputError, exit_code  # noqa: E402
 from screen.cli_shared import (EXIT_ERROR, EXIT_OK, EXIT_STRICT, _at_least_one, _days, _load,  # noqa: F401,E402
                                _percent,
-                               cut_cell, fixed_decimals,
+                               cut_cell, fixed_decimals, not_regular_levels,
                                _print_summary, data_path)
 from screen.launch import WORKFLOW, check_engine_args, run_workflow  # noqa: E402
 from screen.preflight import GivenOnce  # noqa: E402
@@ -108,6 +108,8 @@ def _resolved_out(given: str, option: str = "--out") -> Path:
     try:
         return Path(given).resolve()
     except (RuntimeError, OSError) as exc:  # Python 3.11: RuntimeError("Symlink loop from ..."); later: ELOOP
+        if isinstance(exc, OSError) and exc.errno != errno.ELOOP:  # any other OSError is no loop: said as itself
+            raise
         raise InputError(f"{option} {given}: a symbolic link in this path points back to itself ({exc}); fix the "
                          f"link, or choose another {option}") from None
 
@@ -788,8 +790,7 @@ def cmd_rank(args) -> int:
             raise InputError(f"{out} holds a run that is still computing (no levels.csv yet); wait for it "
                              f"(`dascreen status --out {args.out}`) or pass --levels FILE")
     if not levels.is_file() and levels.exists():  # <(cat f.csv), a FIFO or /dev/null: read once, or nothing
-        raise InputError(f"levels file {str(levels)!r} is not a regular file (a pipe or device): save it to a file "
-                         "first and give that with --levels FILE (its SHA-256 is recorded, so it is read twice)")
+        raise InputError(not_regular_levels(levels))
     if not levels.is_file():
         raise InputError(f"levels file {str(levels)!r} does not exist; run `dascreen run` first or pass "
                          "--levels FILE (columns id,homo_ev,lumo_ev,gap_opt_ev,scale)")
@@ -924,12 +925,29 @@ def cmd_status(args) -> int:
 
 def _ranking_problem(folder: Path) -> str | None:
     """Why a ranking folder is incomplete (a full disk or a kill while it was written), None when complete:
-    ``ranking.meta.json`` is written last (:func:`screen.rank_io.run_rank`), and the report goes with it."""
-    if not (folder / "ranking.meta.json").is_file():
-        return "no ranking.meta.json: it stopped before it was finished"
-    if not (folder / "report.html").is_file():
-        return "its report.html is missing"
+    ``ranking.meta.json`` is written last (:func:`screen.rank_io.run_rank`), and the report goes with it when the
+    meta says one was to be written (not with ``run_rank(report=False)`` or a report module that is not there)."""
+    from screen.rank_io import RANKING_META, RANKING_REPORT
+
+    if not (folder / RANKING_META).is_file():
+        return f"no {RANKING_META}: it stopped before it was finished"
+    if _report_expected(folder) and not (folder / RANKING_REPORT).is_file():
+        return f"its {RANKING_REPORT} is missing"
     return None
+
+
+def _report_expected(folder: Path) -> bool:
+    """Whether a ranking folder's report.html was to be written: its ``ranking.meta.json`` says ``"report":
+    "written"`` or ``"failed: ..."`` (:func:`screen.rank_io.run_rank`), or has no such key (written before it was
+    recorded); not ``"off"`` or ``"skipped: ..."``. A meta that cannot be read expects it."""
+    from screen.io import read_json
+    from screen.rank_io import RANKING_META
+
+    try:
+        said = read_json(folder / RANKING_META).get("report")
+    except (OSError, ValueError, AttributeError, DascreenError):
+        return True
+    return not (isinstance(said, str) and (said == "off" or said.startswith("skipped")))
 
 
 def _run_ranking_problem(out: Path) -> tuple[str, str] | None:
@@ -950,11 +968,13 @@ def _run_ranking_problem(out: Path) -> tuple[str, str] | None:
 
 def _incomplete_folders(out: Path) -> list[str]:
     """The ranking folders of ``OUT/rankings`` without ``ranking.meta.json`` (partner matrices left out)."""
+    from screen.rank_io import RANKING_META
+
     root = out / "rankings"
     if not root.is_dir():
         return []
     return [f.name for f in sorted(root.iterdir()) if f.is_dir() and not f.name.startswith("matrix--")
-            and not (f / "ranking.meta.json").is_file()]
+            and not (f / RANKING_META).is_file()]
 
 
 def _print_rankings(out: Path, limit: int = 12) -> None:
@@ -983,10 +1003,14 @@ def _print_rankings(out: Path, limit: int = 12) -> None:
 
 
 def _report_text(out: Path, row) -> str:
-    """What ``status`` adds to a ranking whose report.html is missing (a full disk while it was written)."""
-    if (out / "rankings" / row.folder / "report.html").is_file():
+    """What ``status`` adds to a ranking whose report.html is missing (a full disk while it was written); nothing
+    when it was written without a report on purpose (:func:`_report_expected`)."""
+    from screen.rank_io import RANKING_REPORT
+
+    folder = out / "rankings" / row.folder
+    if (folder / RANKING_REPORT).is_file() or not _report_expected(folder):
         return ""
-    return "; incomplete: its report.html is missing (rank again to write it)"
+    return f"; incomplete: its {RANKING_REPORT} is missing (rank again to write it)"
 
 
 def _stale_text(out: Path, row) -> str:
@@ -1542,8 +1566,39 @@ def _expand_user(args) -> None:
             setattr(args, dest, expand(value))
 
 
+def _option_name(dest: str) -> str:
+    """The command-line spelling of a path option's ``dest`` (``from_raw`` -> ``--from-raw``; ``CANDIDATES``)."""
+    return "CANDIDATES" if dest == "candidates" else "--" + dest.replace("_", "-")
+
+
+def _check_symlink_loops(args) -> None:
+    """Refuse a path option in which a symbolic link points back to itself, for every command (``dyecell --levels``
+    and ``calibrate --out`` gave a "RuntimeError: Symlink loop" traceback, a maintainer's review).
+
+    Raises
+    ------
+    InputError
+        Naming the option, the path and the fix.
+    """
+    for dest in PATH_OPTIONS:
+        values = getattr(args, dest, None)
+        for value in values if isinstance(values, list) else [values]:
+            if not isinstance(value, str) or not value:
+                continue
+            try:
+                os.stat(value)
+            except OSError as exc:
+                if exc.errno == errno.ELOOP:
+                    option = _option_name(dest)
+                    raise InputError(f"{option} {value}: a symbolic link in this path points back to itself; fix "
+                                     f"the link, or choose another {option}") from None
+            except ValueError:  # a NUL byte: said by the command that uses it
+                continue
+
+
 def _check_path_names(args) -> None:
-    """Refuse an input file whose path is not UTF-8 text (a name made on a Latin-1 system: ``lev\\xe9.csv``).
+    """Refuse an input file whose path is not UTF-8 text (a name made on a Latin-1 system: ``lev\\xe9.csv``), and
+    a path option with a symbolic-link loop (:func:`_check_symlink_loops`).
 
     Its path is recorded in the report and sidecars as text, and writing them stopped with "report failed:
     UnicodeEncodeError" after the ranking was written (an audit of unusual environments).
@@ -1553,6 +1608,7 @@ def _check_path_names(args) -> None:
     InputError
         Naming the option, the byte and the fix.
     """
+    _check_symlink_loops(args)
     for dest, option in _RECORDED_PATHS.items():
         value = getattr(args, dest, None)
         if not isinstance(value, str) or not value:
@@ -1753,15 +1809,43 @@ def _is_input_path(filename, args) -> bool:
     return False
 
 
+#: files a command reads from its --out folder without an option naming them (``rank`` without --levels reads
+#: OUT/levels.csv): an error there is one of reading (they are written by the workflow's own processes)
+_OUT_INPUTS = ("levels.csv", "levels.csv.meta.json", "config.yaml", "levels.oligomers.csv")
+
+
+def _is_out_input(filename, args) -> bool:
+    """Whether ``filename`` is one of :data:`_OUT_INPUTS` in the command's --out folder.
+
+    Examples
+    --------
+    >>> ns = argparse.Namespace(out="/r")
+    >>> _is_out_input("/r/levels.csv", ns), _is_out_input("/r/rankings/y6--0/ranking.csv", ns)
+    (True, False)
+    """
+    out = getattr(args, "out", None)
+    if filename is None or not isinstance(out, str) or not out:
+        return False
+    try:
+        name, folder = os.path.abspath(os.fsdecode(filename)), os.path.abspath(out)
+    except (OSError, ValueError):
+        return False
+    return any(name == os.path.join(folder, inside) for inside in _OUT_INPUTS)
+
+
 def _os_error_text(exc: OSError, args) -> tuple[str, int]:
-    """The one line and exit code of an OSError no command handled itself (see :data:`_PATH_ERRORS`)."""
+    """The one line and exit code of an OSError no command handled itself (see :data:`_PATH_ERRORS`): "cannot
+    write" only for the errors of writing (:data:`_WRITE_ERRORS`), "cannot read" for an input, else "cannot use"
+    (an I/O error on OUT/levels.csv was said as "cannot write", a maintainer's review)."""
     path = _shown_path(exc.filename)
     cause = exc.strerror or str(exc)
     if exc.errno in _PATH_ERRORS:
         return f"{path}: {cause}; {_PATH_ERRORS[exc.errno]}", exit_code(InputError(cause))
-    verb = "cannot read" if _is_input_path(exc.filename, args) else "cannot write"
-    fix = _WRITE_ERRORS.get(exc.errno, "check the disk and the path, then run the command again")
-    return f"{verb} {path}: {cause}; {fix}", EXIT_ERROR
+    if exc.errno in _WRITE_ERRORS:
+        return f"cannot write {path}: {cause}; {_WRITE_ERRORS[exc.errno]}", EXIT_ERROR
+    read = _is_input_path(exc.filename, args) or _is_out_input(exc.filename, args)
+    return (f"{'cannot read' if read else 'cannot use'} {path}: {cause}; check the disk and the path, then run the "
+            "command again"), EXIT_ERROR
 
 
 def _main(argv: list[str] | None = None) -> int:
@@ -1812,7 +1896,10 @@ def _main(argv: list[str] | None = None) -> int:
         print(f"dascreen: error: {exc}", file=sys.stderr)
         return exit_code(InputError(str(exc)))
     except PermissionError as exc:  # a path the user may not write or read (the commands check theirs first)
-        if _is_input_path(exc.filename, args):  # "choose a path you can write to" was said of an unreadable input
+        if exc.filename is None:  # raised inside a library, naming no path: a real bug shows its traceback
+            raise
+        if _is_input_path(exc.filename, args) or _is_out_input(exc.filename, args):  # "choose a path you can write
+            # to" was said of an unreadable input (also OUT/levels.csv, read when --levels is not given)
             print(f"dascreen: error: cannot read {exc.filename}: {exc.strerror}; make it readable (chmod u+r), or "
                   "give a copy you can read", file=sys.stderr)
         else:
@@ -1820,6 +1907,8 @@ def _main(argv: list[str] | None = None) -> int:
                   "write to", file=sys.stderr)
         return exit_code(InputError(str(exc)))
     except OSError as exc:  # a full disk, a file where a folder goes, ...: one line naming the path, no traceback
+        if exc.filename is None:  # ENOMEM, or one raised inside a library: a real bug shows its traceback
+            raise
         text, code = _os_error_text(exc, args)
         print(f"dascreen: error: {text}", file=sys.stderr)
         return code

@@ -12,7 +12,7 @@ from pathlib import Path
 from screen.config import Config, data_path, merge
 from screen.errors import ConfigError
 
-__all__ = ["EXIT_OK", "EXIT_ERROR", "EXIT_STRICT", "data_path", "_load", "_print_summary", "_parse_set", "_at_least_one", "_percent"]
+__all__ = ["EXIT_OK", "EXIT_ERROR", "EXIT_STRICT", "data_path", "_load", "_print_summary", "_parse_set", "_at_least_one", "_percent", "not_regular_levels"]
 
 EXIT_OK, EXIT_ERROR, EXIT_STRICT = 0, 1, 3
 
@@ -165,3 +165,16 @@ def fixed_decimals(value, decimals: int) -> str:
         return "-"
     text = f"{number:.{decimals}f}"
     return text[1:] if text.startswith("-") and not text.strip("-0.") else text
+
+
+def not_regular_levels(levels, option: str = "--levels FILE") -> str:
+    """The refusal of a levels file that exists but is no regular file (a FIFO, ``<(cat f.csv)``, a device), said
+    alike by ``rank`` and ``dyecell`` (``dyecell`` called a pipe missing, a maintainer's review).
+
+    Examples
+    --------
+    >>> not_regular_levels("/dev/fd/63")  # doctest: +ELLIPSIS
+    "levels file '/dev/fd/63' is not a regular file (a pipe or device): save it to a file first and give that ..."
+    """
+    return (f"levels file {str(levels)!r} is not a regular file (a pipe or device): save it to a file first and give "
+            f"that with {option} (it is read more than once: its SHA-256 is recorded and checked)")

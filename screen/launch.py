@@ -530,8 +530,8 @@ def check_engine_args(extra) -> None:
         from snakemake.cli import get_argument_parser
 
         parser, blank = get_argument_parser(), get_argument_parser()
-    except Exception:  # noqa: BLE001 - an engine without this (private) API checks its arguments itself, as
-        return  # preflight._engine_options does (only ImportError was caught: an upgrade that changed it crashed)
+    except (ImportError, AttributeError, TypeError):  # an engine without this (private) API or with another
+        return  # signature checks its arguments itself (only ImportError was caught: a changed API crashed)
 
     class _Refused(Exception):
         pass
@@ -691,11 +691,15 @@ def run_workflow(cfg: Config, out: Path, cores: int, targets=(), *, extra=None, 
         lock.close()
 
 
-#: the job log lines of :func:`screen.batch.report_store_hits` that say new results were not stored / the store
-#: could not be read (the cache's write_problem / read_problem); ``N computed`` / ``N molecules computed`` counts the
-#: molecules
-_UNSTORED = re.compile(r"; (?:new results were not stored|the results store was not usable): (?P<why>.*?)"
-                       r"(?:; \d+ more resumed from the journal.*?)?(?: \([a-z_ -]+\))?$")
+def _unstored_pattern() -> re.Pattern:
+    """The job log lines of :func:`screen.batch.report_store_hits` that say new results were not stored / the store
+    could not be read (the cache's write_problem / read_problem), built from the phrases the writer uses
+    (:data:`screen.batch.STORE_NOT_WRITTEN` and the others: a rewording there cannot lose the warning here);
+    ``N computed`` / ``N molecules computed`` counts the molecules."""
+    from screen.batch import RESUMED_FROM_JOURNAL, STORE_NOT_USABLE, STORE_NOT_WRITTEN
+
+    return re.compile(rf"; (?:{re.escape(STORE_NOT_WRITTEN)}|{re.escape(STORE_NOT_USABLE)}): (?P<why>.*?)"
+                      rf"(?:; \d+ {re.escape(RESUMED_FROM_JOURNAL)}.*?)?(?: \([a-z_ -]+\))?$")
 
 
 def unstored_results(out: Path, since: float, store: Path | None = None) -> str | None:
@@ -720,6 +724,7 @@ def unstored_results(out: Path, since: float, store: Path | None = None) -> str 
     True
     """
     logs = Path(out) / "logs"
+    unstored = _unstored_pattern()
     molecules, why, where = 0, [], []
     try:
         found = sorted(logs.rglob("*.log")) if logs.is_dir() else []
@@ -736,7 +741,7 @@ def unstored_results(out: Path, since: float, store: Path | None = None) -> str 
             continue
         most = None
         for line in text.splitlines():
-            hit = _UNSTORED.search(line)
+            hit = unstored.search(line)
             if hit is None or line.startswith("dascreen: "):
                 continue
             counts = re.findall(r"(\d+) (?:molecules? )?computed", line)

@@ -77,7 +77,8 @@ from screen.rank_rows import split_ranked as _split_ranked
 from screen.rank_rows import text as _text
 from screen.sampling import sample_pce
 from screen.schema import check_options, resolve, section_defaults
-from screen.viability import OFFSET_TOL_EV, WRITTEN_DECIMALS, acceptor_class_of, offset_clears, role_from_levels
+from screen.viability import (MC_DECIMALS, OFFSET_TOL_EV, WRITTEN_DECIMALS, acceptor_class_of, offset_clears,
+                              role_from_levels)
 
 __all__ = [
     "p_aligned", "ALIGNMENT_UNCERTAIN",
@@ -103,10 +104,8 @@ _ROUND = WRITTEN_DECIMALS
 #: columns rounded to :data:`_ROUND` decimals
 _ROUNDED = ("homo_ev", "lumo_ev", "gap_opt_ev", "delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff",
             "pce_pct", "p_aligned", *SIGMA_COLUMNS)
-#: decimals of the Monte-Carlo figures: with the default 2000 samples P(PCE > target) scatters by up to ±0.011
-#: between seeds (binomial, p = 0.5) and the ± by 0.01–0.05 points (a numerical reviewer, 60 seeds; they were
-#: written to 4 decimals, 100 times finer than they are known)
-_MC_ROUND = 2
+#: decimals of the Monte-Carlo figures (:data:`screen.viability.MC_DECIMALS`)
+_MC_ROUND = MC_DECIMALS
 _MC_ROUNDED = ("pce_sigma_pct", "p_above_target")
 #: device numbers copied from :meth:`DeviceModel.evaluate` (empty where there is no pair)
 _DEVICE_NUMBERS = ("delta_lumo_ev", "delta_homo_ev", "voc_v", "jsc_ma_cm2", "ff", "pce_pct")

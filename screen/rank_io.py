@@ -709,7 +709,8 @@ def check_writable(target: Path, levels_path) -> None:
 
 #: the files of a ranking folder, in the order :func:`run_rank` removes an earlier ranking's before it writes the
 #: new one (``ranking.meta.json`` first, and written last: its presence means the ranking is complete)
-RANKING_FILES = ("ranking.meta.json", "ranking.safe.csv", "report.html", "shortlist.sdf", "ranking.csv")
+RANKING_META, RANKING_REPORT = "ranking.meta.json", "report.html"
+RANKING_FILES = (RANKING_META, "ranking.safe.csv", RANKING_REPORT, "shortlist.sdf", "ranking.csv")
 
 
 def _clear_previous(target: Path) -> None:
@@ -1029,18 +1030,22 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     meta = _rank_meta(ranking, levels, levels_path, meta_in, partner, model, options, short, levels_sha)
     meta["settings_hash"] = settings_hash(cfg)
     lap("export_s")
-    failed = None
+    failed, status = None, "off"
     if report:
         try:
             status = _write_report(ranking, levels, partner.as_dict(), meta, target, csv_text)
         except RuntimeError as exc:  # the ranking itself is complete: its meta is still written, then this is said
-            failed, status = exc, "written"
-        if status != "written":
+            cause = exc.__cause__
+            failed = exc
+            status = f"failed: {type(cause).__name__}: {cause}" if cause is not None else f"failed: {exc}"
+        if status != "written" and failed is None:
             print(f"dascreen rank: report {status}", file=sys.stderr)
     lap("report_s")
-    write_json(meta, target / "ranking.meta.json")  # last: its presence means the ranking is complete
-    if failed is not None:
-        raise failed
+    # what became of report.html ("written", "skipped: ...", "failed: ...", "off"): `dascreen status` calls a
+    # folder without it incomplete only when it was to be there (a ranking written without a report on purpose
+    # was called incomplete, a maintainer's review)
+    meta["report"] = status
+    write_json(meta, target / RANKING_META)  # last: its presence means the ranking is complete
     if was_replaced and replaced is not None:  # the caller refreshes the matrices once all partners are ranked
         replaced.append(target.name)
     elif was_replaced:
@@ -1051,6 +1056,8 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
         write_ranking_index(out_dir)
     except (OSError, ValueError) as exc:
         print(f"dascreen rank: rankings-index.csv not written: {exc}", file=sys.stderr)
+    if failed is not None:  # at the very end: the index and the partner matrices were left out before
+        raise failed
     return target / "ranking.csv"
 
 
@@ -1060,10 +1067,9 @@ def _say_assumptions(levels: pd.DataFrame, levels_path: Path, partner: Partner, 
     no pair can reach under the model."""
     if options is not None and options.target_pce_pct >= (bound := model.pce_bound_pct()):
         print(f"dascreen rank: target {options.target_pce_pct:g} % PCE is above what the {model.model} device model "
-              f"can give any pair (at most {bound:.1f} %: its EQE {model.value('eqe'):.2f} and fill factor up to "
-              f"{model.ff_max:.2f} are averages of published devices, so its estimates run below the best measured "
-              "cells), so P(PCE > target) is 0 for every row; give a lower --target-pce to compare candidates, or set "
-              "device.eqe and device.ff to the values of your own best cells", file=sys.stderr)
+              f"can give any pair (at most {bound:.1f} %, an upper bound, {_ceiling_why(model)}), so P(PCE > target) "
+              "is 0 for every row; give a lower --target-pce to compare candidates, or set device.eqe and device.ff "
+              "to the values of your own best cells", file=sys.stderr)
     given = [c for c in SIGMA_COLUMNS if c in levels.columns]
     if len(levels) and not any((pd.to_numeric(levels[c], errors="coerce") > 0).any() for c in given):
         print(f"dascreen rank: {levels_path} gives no σ (homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev): its levels "
@@ -1088,6 +1094,35 @@ def _say_assumptions(levels: pd.DataFrame, levels_path: Path, partner: Partner, 
             and model.model != "scharber"):  # reproducing the published model with its own reference is fine
         print(f"dascreen rank: partner {partner.id}: {'; '.join(partner.notes.split('; ')[:2]).rstrip('.')}",
               file=sys.stderr)  # the published model's reference level, on its own convention
+
+
+def _ceiling_why(model: DeviceModel) -> str:
+    """Why the device model's PCE ceiling is where it is, naming whose EQE and fill factor it uses: the user's
+    (``device.eqe`` / ``device.ff`` set), the published rule's own constants (Scharber), or the fitted averages of
+    published devices (a maintainer's review: "averages of published devices" was said of all three).
+
+    Examples
+    --------
+    >>> _ceiling_why(DeviceModel(model="scharber"))
+    "with the published rule's EQE 0.65 and fill factor 0.65"
+    >>> _ceiling_why(DeviceModel(model="scharber", eqe=0.8))
+    "with the EQE 0.80 you set and the published rule's fill factor 0.65"
+    >>> _ceiling_why(DeviceModel(eqe=0.8, ff=0.7))
+    'with the EQE 0.80 and fill factor 0.70 you set'
+    """
+    eqe, ff = f"EQE {model.value('eqe'):.2f}", f"fill factor {model.ff_max:.2f}"
+    if model.model != "scharber" and model.ff is None:
+        ff = f"fill factor up to {model.ff_max:.2f}"  # the largest of the acceptor classes' fitted values
+    source = "the published rule's" if model.model == "scharber" else "the fitted"
+    mine = {"eqe": model.eqe is not None, "ff": model.ff is not None}
+    if mine["eqe"] and mine["ff"]:
+        return f"with the {eqe} and {ff} you set"
+    if mine["eqe"] or mine["ff"]:
+        (set_, other) = (eqe, ff) if mine["eqe"] else (ff, eqe)
+        return f"with the {set_} you set and {source} {other}"
+    if model.model == "scharber":
+        return f"with the published rule's {eqe} and {ff}"
+    return f"with its {eqe} and {ff}, averages of published devices, so its estimates run below the best measured cells"
 
 
 def _scharber_bias() -> str:

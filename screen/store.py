@@ -53,6 +53,7 @@ from pathlib import Path
 from screen.errors import InputError
 from screen.options import EARLIER_PROTOCOL_VALUES, EARLIER_ROUTE_VALUES, route_structures
 from screen.provenance import package_version
+from screen.schema import section_defaults
 
 __all__ = ["STORE_ENV", "FORMAT", "ResultStore", "StoreCache", "StoredRecord", "StoreProblem", "StoreReadOnly",
            "library_versions", "other_library_versions", "damaged_store_text", "run_store", "run_store_check",
@@ -240,9 +241,10 @@ def _full_disk_error(exc: sqlite3.OperationalError) -> bool:
     return name.startswith(("SQLITE_FULL", "SQLITE_IOERR_SHM")) or "database or disk is full" in str(exc)
 
 
-#: how long a run or ``dascreen store`` waits for another process's lock on the store [s] (a run's jobs:
-#: ``store.timeout_s``); said on standard error as soon as the wait begins (:meth:`ResultStore._patiently`)
-LOCK_TIMEOUT_S = 60.0
+#: how long a run or ``dascreen store`` waits for another process's lock on the store [s]: the schema's default of
+#: ``store.timeout_s`` (one source; a run's jobs take the configured value); said on standard error as soon as the
+#: wait begins (:meth:`ResultStore._patiently`)
+LOCK_TIMEOUT_S = float(section_defaults("store")["timeout_s"])
 
 
 def _locked_error(exc: Exception) -> bool:
@@ -261,13 +263,33 @@ def _locked_error(exc: Exception) -> bool:
 
 
 def _locked_why(timeout_s: float) -> str:
-    """The reason of a store another process kept locked for the whole wait (one wording for every message)."""
-    return f"is locked by another process (busy, not broken; waited {timeout_s:g} s)"
+    """The reason of a store another process kept locked for the whole wait, without the path (an exception's
+    ``why``, a job log's line); every message of a locked store says it (:func:`_locked_text`, :func:`run_store_check`).
+
+    Examples
+    --------
+    >>> _locked_why(60.0)
+    'is locked by another process (busy, not broken) after 60 s of waiting'
+    """
+    return f"is locked by another process (busy, not broken) after {timeout_s:g} s of waiting"
 
 
 #: the fix of a locked store for ``dascreen store`` (a run says its own: it computes without the store)
 _LOCKED_FIX = ("wait for that process to finish and run the command again (moving the file away could lose that "
                "process's results)")
+#: the fix of a locked store in a run's warning (:func:`run_store_check`: the run computes without the store)
+_LOCKED_RUN_FIX = f"wait for that process to finish and run again to use it, or set {STORE_ENV} to another file"
+
+
+def _locked_text(path, timeout_s: float, fix: str = _LOCKED_FIX) -> str:
+    """The one message of a store another process kept locked: ``results store PATH`` + :func:`_locked_why` + ``fix``.
+
+    Examples
+    --------
+    >>> _locked_text("/s.sqlite", 0.5, "wait")
+    'results store /s.sqlite is locked by another process (busy, not broken) after 0.5 s of waiting: wait'
+    """
+    return f"{_said(path, _locked_why(timeout_s))}: {fix}"
 
 
 def _said(path, why: str) -> str:
@@ -292,14 +314,15 @@ def _move_away(path) -> str:
 _AFTER_MOVE = "runs then start a new store and the molecules it held are computed again"
 
 
-def damaged_store_text(path, exc: Exception) -> str:
-    """The one message of a store file SQLite cannot read through (``dascreen store``; exit code 2)."""
+def damaged_store_text(path, exc: Exception, timeout_s: float | None = None) -> str:
+    """The one message of a store file SQLite cannot read through (``dascreen store``; exit code 2); ``timeout_s``:
+    how long the store waited for a lock (default :data:`LOCK_TIMEOUT_S`)."""
     why = _damage(exc) if isinstance(exc, sqlite3.DatabaseError) and \
         not isinstance(exc, sqlite3.OperationalError) else f"could not be read ({exc})"
     if why.startswith("is damaged"):
         return f"results store {path} {why}: {_move_away(path)}; {_AFTER_MOVE}"
     if _locked_error(exc):  # another process took a lock while the store was read: busy, not broken
-        return f"results store {path} is locked by another process (busy, not broken): {_LOCKED_FIX}"
+        return _locked_text(path, LOCK_TIMEOUT_S if timeout_s is None else timeout_s)
     return f"results store {path}: {why}"
 
 
@@ -333,6 +356,7 @@ class ResultStore:
         self.path = Path(path).expanduser()
         self.timeout_s = float(LOCK_TIMEOUT_S if timeout_s is None else timeout_s)
         self._said_wait = False
+        self._waiting = False  # inside _patiently: an inner call (a transaction while opening) leaves the wait to it
         self.read_only = bool(read_only)
         self._conn: sqlite3.Connection | None = None
         self._pid = None
@@ -343,24 +367,48 @@ class ResultStore:
     def _patiently(self, conn: sqlite3.Connection, run: Callable):
         """``run()`` at once; when another process holds a lock on the store, say so on standard error (once per
         store) and run it again, waiting up to :attr:`timeout_s` (a filesystem audit: a locked store was waited for
-        60 s in silence)."""
-        conn.execute("PRAGMA busy_timeout = 0")
-        try:
+        60 s in silence). Inside another ``_patiently`` (a transaction while opening) ``run()`` only: the outer
+        call says the wait and runs it all again."""
+        if self._waiting:
             return run()
-        except sqlite3.OperationalError as exc:
-            if not _locked_error(exc) or self.timeout_s <= 0:
-                raise
-            if not self._said_wait:
-                self._said_wait = True
-                print(f"dascreen: results store {self.path} is locked by another process; waiting up to "
-                      f"{self.timeout_s:g} s", file=sys.stderr, flush=True)
+        self._waiting = True
+        try:
+            conn.execute("PRAGMA busy_timeout = 0")
+            try:
+                return run()
+            except sqlite3.OperationalError as exc:
+                if not _locked_error(exc) or self.timeout_s <= 0:
+                    raise
+                if not self._said_wait:
+                    self._said_wait = True
+                    print(f"dascreen: results store {self.path} is locked by another process; waiting up to "
+                          f"{self.timeout_s:g} s", file=sys.stderr, flush=True)
+            finally:
+                conn.execute(f"PRAGMA busy_timeout = {int(self.timeout_s * 1000)}")
+            return run()
         finally:
-            conn.execute(f"PRAGMA busy_timeout = {int(self.timeout_s * 1000)}")
-        return run()
+            self._waiting = False
 
-    def _locked(self) -> StoreLocked:
-        why = _locked_why(self.timeout_s)
-        return StoreLocked(f"{_said(self.path, why)}: {_LOCKED_FIX}; the file was not changed", why=why)
+    def _locked(self, fix: str = f"{_LOCKED_FIX}; the file was not changed") -> StoreLocked:
+        """The exception of a store another process kept locked for the whole wait (:func:`_locked_text`)."""
+        return StoreLocked(_locked_text(self.path, self.timeout_s, fix), why=_locked_why(self.timeout_s))
+
+    @contextlib.contextmanager
+    def _transaction(self, conn: sqlite3.Connection) -> Iterator[None]:
+        """One write transaction; a wait for another process's lock is said as it begins (:meth:`_patiently`), and
+        a lock held for the whole wait raises :class:`StoreLocked` (the file was not changed)."""
+        try:
+            self._patiently(conn, lambda: conn.execute("BEGIN IMMEDIATE"))
+        except sqlite3.OperationalError as exc:
+            if _locked_error(exc) and not self._waiting:
+                raise self._locked() from None
+            raise
+        try:
+            yield
+        except BaseException:
+            conn.execute("ROLLBACK")
+            raise
+        conn.execute("COMMIT")
 
     def _refusal(self, why: str) -> StoreProblem:
         if why.startswith("is damaged"):  # a fact-check: damage found on opening pointed to another file, not the fix
@@ -464,7 +512,7 @@ class ResultStore:
                     conn.execute("PRAGMA journal_mode = WAL")
                 conn.execute("PRAGMA synchronous = NORMAL")
                 if not {"info", "results"} <= tables:  # a new store: its schema (a filled one is never written here)
-                    with _transaction(conn):
+                    with self._transaction(conn):
                         for statement in filter(str.strip, _SCHEMA.split(";")):
                             conn.execute(statement)
                         conn.execute("INSERT OR IGNORE INTO info VALUES ('application', ?)", (_APPLICATION,))
@@ -476,10 +524,7 @@ class ResultStore:
             if conn is not None:
                 conn.close()
             if _locked_error(exc):  # busy, not broken: no advice to move a file another process writes
-                why = f"{exc} by another process, waited {self.timeout_s:g} s"
-                raise StoreLocked(f"results store {self.path} is locked by another process (busy, not broken; "
-                                  f"waited {self.timeout_s:g} s): {_LOCKED_FIX}, or set store.path to another file",
-                                  why=why) from None
+                raise self._locked(f"{_LOCKED_FIX}, or set store.path to another file") from None
             full = _full_disk_error(exc)
             if (_read_only_error(exc) or full) and self.path.is_file():  # a write the system refused unannounced
                 self._conn, self._pid = self._open_read_only(("ro", "immutable")), os.getpid()
@@ -546,7 +591,7 @@ class ResultStore:
             The store can only be read (:attr:`read_only_reason`).
         """
         conn = self._writing("new results are not stored")
-        with _transaction(conn, self):
+        with self._transaction(conn):
             conn.executemany("INSERT OR REPLACE INTO results VALUES (?, ?, ?, ?, ?, ?, ?)", rows)
 
     def get(self, stage: str, key: str, protocol_id: str, geometry: str = "") -> dict | None:
@@ -618,11 +663,11 @@ class ResultStore:
                 doomed["old"].append(ident)
         if not dry_run:
             conn = self._connect()
-            with _transaction(conn):
+            with self._transaction(conn):
                 for idents in doomed.values():
                     conn.executemany("DELETE FROM results WHERE stage = ? AND key = ? AND protocol_id = ? AND "
                                      "geometry = ?", idents)
-            conn.execute("VACUUM")
+            self._patiently(conn, lambda: conn.execute("VACUUM"))
         return {k: len(v) for k, v in doomed.items()}
 
 
@@ -634,22 +679,6 @@ def store_row(stage: str, key: str, options, record: Mapping, geometry: str = ""
     payload = json.dumps({"stage": stage, "key": key, "protocol_id": pid, "protocol": protocol,
                           "geometry": geometry, "record": dict(record)}, sort_keys=True, default=_plain)
     return stage, key, pid, geometry, payload, _digest(payload), time.time()
-
-
-@contextlib.contextmanager
-def _transaction(conn: sqlite3.Connection, store: ResultStore | None = None) -> Iterator[None]:
-    """One write transaction; with ``store``, a wait for another process's lock is said first
-    (:meth:`ResultStore._patiently`)."""
-    if store is not None:
-        store._patiently(conn, lambda: conn.execute("BEGIN IMMEDIATE"))
-    else:
-        conn.execute("BEGIN IMMEDIATE")
-    try:
-        yield
-    except BaseException:
-        conn.execute("ROLLBACK")
-        raise
-    conn.execute("COMMIT")
 
 
 def _plain(obj):
@@ -960,7 +989,7 @@ def run_store_check(path: Path | None, why_none: str = "store.path is null") -> 
     path = Path(path)
     elsewhere = f"set {STORE_ENV} or store.path to another file"
     # busy, not broken: moving it away could lose the results the other process is writing
-    locked_fix = f"wait for that process to finish and run again to use it, or set {STORE_ENV} to another file"
+    locked_fix = _LOCKED_RUN_FIX
 
     def unusable(why: str, fix: str = "") -> tuple[list[str], bool]:
         return [f"dascreen: warning: {_said(path, why)}: this run does not use it, every molecule is computed and "

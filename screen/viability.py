@@ -38,7 +38,7 @@ from typing import NamedTuple
 import numpy as np
 
 __all__ = ["classify", "VIABILITY_MASKS", "role_from_levels", "acceptor_class_of", "GAP_MAX_EV",
-           "JSC_MIN_MA_CM2", "OFFSET_TOL_EV", "WRITTEN_DECIMALS", "offset_clears", "gap_valid", "jsc_written", "CurrentTerms",
+           "JSC_MIN_MA_CM2", "OFFSET_TOL_EV", "WRITTEN_DECIMALS", "MC_DECIMALS", "offset_clears", "gap_valid", "jsc_written", "CurrentTerms",
            "dark_current"]
 
 #: Decimals of the energies, offsets and potentials a ranking writes (both modes; ``screen.rank``,
@@ -49,9 +49,13 @@ WRITTEN_DECIMALS = 4
 #: 0.00004 eV, written 0.0, is no type-II offset (with 1e-9 eV a numerical reviewer found rows written 0.30 "below
 #: 0.30 eV"); −4.0 − (−4.3) = 0.2999999999999998 meets 0.3 eV too. [eV]
 OFFSET_TOL_EV = 0.5 * 10.0 ** -WRITTEN_DECIMALS
-#: A Jsc below this is written as 0 with the rankings' 4 decimals (the dye-cell mode's ``no_sunlight`` limit too,
-#: :data:`screen.dyecell.model.JSC_MIN_MA_CM2`). [mA cm⁻²]
-JSC_MIN_MA_CM2 = 5e-5
+#: Decimals of the Monte-Carlo figures a ranking writes (P(PCE > target), ``p_viable``, the PCE ±): with the default
+#: 2000 samples they scatter by up to ±0.011 (probability) and 0.01–0.05 points (±) between seeds (a numerical
+#: reviewer, 60 seeds; they were written to 4 decimals, 100 times finer than they are known).
+MC_DECIMALS = 2
+#: A Jsc below this is written as 0 with the rankings' :data:`WRITTEN_DECIMALS` decimals (the dye-cell mode's
+#: ``no_sunlight`` limit too, :data:`screen.dyecell.model.JSC_MIN_MA_CM2`): 5e-5. [mA cm⁻²]
+JSC_MIN_MA_CM2 = 0.5 * 10.0 ** -WRITTEN_DECIMALS
 #: Absorber gap, in hundredths of an eV, from which on the AM1.5G photons above it give less than
 #: :data:`JSC_MIN_MA_CM2` even at EQE = 1 (ASTM G173-03: 4.1e-5 mA cm⁻² at 4.13 eV, 6.6e-5 at 4.12 eV, the crossing
 #: near 4.126 eV; the table ends at hc/280 nm = 4.428 eV); checked against the spectrum in the tests.  Not a rule of

@@ -26,6 +26,12 @@ def test_the_charge_separated_form_is_accepted():
     assert row.status == "ok", row.error
 
 
+def test_a_four_bonded_nitrogen_on_boron_gets_the_hint_too():
+    # an amine-borane written neutral: RDKit names the nitrogen, not the boron (a reviewer's case)
+    row = _row("CN(C)(C)B(F)(F)F")
+    assert row.reason == "valence" and row.error.startswith("atom 1 (N)") and "[n+]…[B-](F)F" in row.error
+
+
 def test_another_valence_error_gets_no_boron_hint():
     row = _row("CC(C)(C)(C)C")  # a five-bonded carbon
     assert row.reason == "valence" and "N→B" not in row.error

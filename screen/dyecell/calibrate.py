@@ -55,6 +55,7 @@ from screen.calibration.domain import domain_std, fit_domain, reference_similari
 from screen.errors import CalculationError, ConfigError, InputError
 from screen.io import read_json, write_json
 from screen.provenance import library_versions, sha256_file
+from screen.viability import WRITTEN_DECIMALS
 
 __all__ = ["REFERENCE_FILE", "MODELS_DIR", "TARGETS", "DERIVED", "MIN_GAIN", "needed_columns", "reference_file",
            "reference_table", "reference_input", "fitted_on", "REFERENCE_RECORD",
@@ -570,8 +571,8 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict]) -> pd.DataFrame:
         lo, hi = m.get("target_range", [-np.inf, np.inf])
         with np.errstate(invalid="ignore"):
             outside |= (mean < lo - 0.1) | (mean > hi + 0.1)
-        out[spec["column"]] = np.round(mean, 4)
-        out[spec["sigma"]] = np.round(std, 4)
+        out[spec["column"]] = np.round(mean, WRITTEN_DECIMALS)
+        out[spec["sigma"]] = np.round(std, WRITTEN_DECIMALS)
     out["outside_calibration"] = outside
     out["scale"] = np.where(np.isfinite(out["e_ox_v_nhe"]) & np.isfinite(out["e00_ev"]), "electrochemical", "")
     return out

@@ -243,6 +243,10 @@ def _check_levels_file(given: str, out_text: str) -> None:
                          f"run's levels.csv (or OUT/dyecell/levels_raw.csv of a dye run), or "
                          "id,e_ox_v_nhe,e00_ev[,smiles] measured values; to re-rank a run folder, give it as "
                          "--out without --levels")
+    if not levels.is_file() and levels.exists():  # a FIFO or <(cat f.csv) was called missing (a maintainer's review)
+        from screen.cli_shared import not_regular_levels
+
+        raise InputError(not_regular_levels(given))
     if not levels.is_file():
         raise InputError(f"--levels {given!r} does not exist; give a run's levels.csv "
                          f"(or {out_text}/dyecell/levels_raw.csv of a dye run), or id,e_ox_v_nhe,e00_ev[,smiles] "

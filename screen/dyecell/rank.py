@@ -71,7 +71,7 @@ from screen.io import separator_problem, text_cells
 from screen.levels_check import GAP_MAX_INPUT_EV, file_line
 from screen.prepare.checks import NONMETALS
 from screen.spectrum import gap_to_wavelength_nm
-from screen.viability import WRITTEN_DECIMALS
+from screen.viability import MC_DECIMALS, WRITTEN_DECIMALS
 
 __all__ = ["DYE_COLUMNS", "RANKING_COLUMNS", "EXTRA_COLUMNS", "NONMETALS", "NOT_A_DYE", "dye_table",
            "dyes_from_file", "rank_dyes", "conversion_summary", "value_sources"]
@@ -92,9 +92,9 @@ EXTRA_COLUMNS = ["name", "e_ox_sigma_v", "e00_sigma_ev", "edge_nm", "uncalibrate
 NOT_A_DYE = ("a polymer repeat unit is not a sensitiser dye; dye mode takes molecules (give the dye itself, "
              "without attachment points *)")
 _ROUND = WRITTEN_DECIMALS
-#: decimals of the Monte-Carlo figures (``pce_sigma_pct``, ``p_above_target``, ``p_viable``): with the default 2000
-#: samples they scatter by about ±0.013 and ±0.02 points between seeds (a numerical reviewer, 50 seeds)
-_MC_ROUND = 2
+#: decimals of the Monte-Carlo figures (``pce_sigma_pct``, ``p_above_target``, ``p_viable``; with the default 2000
+#: samples they scatter by about ±0.013 and ±0.02 points between seeds, a numerical reviewer, 50 seeds)
+_MC_ROUND = MC_DECIMALS
 #: ``source`` of a dye-table row calibrated from a run's raw xTB values (:func:`dye_table`): a molecule outside
 #: the calibration may get values outside a typed file's plausible ranges, which the model then marks not viable;
 #: every other row is held to the dye file's checks (:func:`_check_inputs`)

@@ -379,10 +379,12 @@ def build_dye_table(path: str | Path, out_dir: str | Path, *, models_folder: str
 #: version of the rules that build a dye table other than the anchor patterns (rounding, the anchor column's
 #: vocabulary): a change here or in :data:`screen.dyecell.anchors.ANCHORS` rebuilds a cached ``dyes.csv``
 _TABLE_RULES = "3"
-#: modules of this package whose code builds a dye table (:func:`screen.dyecell.rank.dye_table` and what it calls):
-#: their text is part of the rule key, so a change of a rule nobody remembered to version rebuilds the table (a
-#: metamorphic tester found a run folder's re-rank keeping the σ of an earlier rule, 0.125 V against 0.183 V fresh)
-_TABLE_CODE = ("anchors.py", "calibrate.py", "checks.py", "rank.py", "stage.py")
+#: modules (paths under ``screen/``) whose code builds a dye table (:func:`screen.dyecell.rank.dye_table` and the
+#: model code it calls): their text is part of the rule key, so a change of a rule nobody remembered to version
+#: rebuilds the table (a metamorphic tester found a run folder's re-rank keeping the σ of an earlier rule, 0.125 V
+#: against 0.183 V fresh); a rebuild costs only the models' application to the levels
+_TABLE_CODE = ("dyecell/anchors.py", "dyecell/calibrate.py", "dyecell/checks.py", "dyecell/rank.py", "dyecell/stage.py",
+               "calibration/linear.py", "calibration/domain.py", "viability.py")
 
 
 def table_rules_hash() -> str:
@@ -399,8 +401,8 @@ def table_rules_hash() -> str:
     from screen.dyecell.anchors import ANCHORS
 
     text = _TABLE_RULES + "\n" + "\n".join(f"{a.name}\t{a.smarts}" for a in ANCHORS)
-    here = Path(__file__).resolve().parent
-    code = "\n".join(hashlib.sha256((here / name).read_bytes()).hexdigest() for name in _TABLE_CODE)
+    package = Path(__file__).resolve().parents[1]
+    code = "\n".join(hashlib.sha256((package / name).read_bytes()).hexdigest() for name in _TABLE_CODE)
     return hashlib.sha256((text + "\n" + code).encode("utf-8")).hexdigest()[:12]
 
 

@@ -598,7 +598,8 @@ def _check_chemistry(mol: Chem.Mol) -> None:
         match = re.search(r"valence for atom # \d+ \w+, (\d+), is greater", first.Message())
         valence = f" has valence {match.group(1)}," if match else ""
         hint = ""
-        if atom.GetSymbol() == "B" and atom.GetFormalCharge() == 0:
+        boron_n = atom.GetSymbol() == "N" and any(n.GetSymbol() == "B" for n in atom.GetNeighbors())
+        if (atom.GetSymbol() == "B" or boron_n) and atom.GetFormalCharge() == 0:
             # a four-coordinate boron written neutral (a dative n->B, or a BODIPY-type N-B(F)F) was refused with no
             # way out
             hint = ("; write the N→B coordination as a charge-separated pair, e.g. [n+]…[B-](F)F for n->B(F)F: "
