@@ -193,7 +193,9 @@ def _write_matrix(ranking_paths, out_dir, device: dict, rank: dict) -> tuple[Pat
                          "spec": partner.get("spec") or partner["id"],
                          "homo_ev": partner.get("homo_ev"), "lumo_ev": partner.get("lumo_ev"),
                          "gap_opt_ev": partner.get("gap_opt_ev"), "scale": partner.get("scale"),
-                         "folder": path.parent.name, "report": f"../{path.parent.name}/report.html",
+                         "folder": path.parent.name,  # a link only to a report that was written (report=False)
+                         "report": (f"../{path.parent.name}/report.html" if (path.parent / "report.html").is_file()
+                                    else None),
                          "levels": {k: (meta.get("levels") or {}).get(k) for k in ("path", "sha256")},
                          "viable": int(_viable(table).sum()), "ranked": int(len(table)), **cell_notes(table)})
     matrix = partner_matrix(rankings)

@@ -51,10 +51,11 @@ from screen.dyecell.rank import (
     rank_dyes,
     value_sources,
 )
-from screen.errors import ConfigError, InputError
+from screen.errors import ConfigError, DascreenError, InputError
 from screen.io import SD_LINE_MAX, read_json, sd_text, write_csv, write_json
 from screen.partners import file_tag
 from screen.provenance import change_notice, library_versions, sha256_file
+from screen.rank_io import RANKING_META, _clear_previous
 from screen.schema import check_section
 
 __all__ = ["read_input", "build_dye_table", "sign_convention", "EXCITED_COLUMN_MEANING", "write_shortlist",
@@ -551,6 +552,14 @@ def _meta(ranking, table, info, oxide, mediator, model, options, short, notices=
     }
 
 
+class DyeReportError(DascreenError, RuntimeError):
+    """The dye-cell ranking is written (``ranking.meta.json`` records ``report: failed: ...``) but its report is not.
+
+    A :class:`RuntimeError`, as :func:`screen.rank_io.run_rank`'s for a failed report, and a
+    :class:`screen.errors.DascreenError` (exit 1), so that ``dascreen dyecell`` says it in one line.
+    """
+
+
 def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | None = None,
                 mediator: str | None = None, settings: dict | None = None, models_folder: str | Path | None = None,
                 models_root: str | Path | None = None, report: bool = True,
@@ -588,10 +597,20 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
         ``…--levels-<file>-<hash>/`` when ``OUT`` holds a run and ``input_path`` is not its own levels
         (:func:`levels_tag`: the run's ranking and dye table stay as they are).
 
+    Raises
+    ------
+    DyeReportError
+        The report failed; the ranking files are written, ``ranking.meta.json`` last, with ``report``
+        ``failed: <error>``.
+
     Notes
     -----
     A ranking folder that held a ranking of another input, or of this file
-    before its content changed, is replaced with a notice on stderr.
+    before its content changed, is replaced with a notice on stderr.  The earlier
+    ranking's files are removed before the new ones are written, and
+    ``ranking.meta.json`` is written last (its presence means the ranking is
+    complete); its ``report`` records what became of the report (``written``,
+    ``failed: <error>``, ``off``), as in ``dascreen rank``.
     """
     section = {**option_defaults(), **(settings or {})}
     # the schema's dyecell section, as the command's config: a misspelt key (n_sample) was ignored without a word
@@ -619,20 +638,30 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
     ranking = rank_dyes(table, ox, med, model, options)
     target = ranking_folder(out_dir, ox, med, section, tag)
     _tell_replacing(target, info)
+    # as `dascreen rank` (screen.rank_io.run_rank): the earlier ranking's meta, safe CSV, report and shortlist go
+    # first, so a ranking stopped half way (a full disk, a kill) never leaves the old report beside the new ranking
+    _clear_previous(target)
     write_csv(ranking, target / "ranking.csv")
     short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size)
     meta = _meta(ranking, table, info, ox, med, model, options, short, notices)
     meta["settings_hash"] = settings_hash(section)
     meta["levels_tag"] = tag or None
     meta["dye_table"] = str(cache.resolve())
-    write_json(meta, target / "ranking.meta.json")
+    failed, status = None, "off"
     if report:
         from screen.dyecell.page import write_dyecell_report
 
         try:
             write_dyecell_report(ranking, table, meta, target)
-        except Exception as exc:  # the ranking files are written; say what failed
-            print(f"dascreen dyecell: the ranking is written to {target}, but the report failed: "
-                  f"{type(exc).__name__}: {exc}", file=sys.stderr)
-            raise
+            status = "written"
+        except Exception as exc:  # the ranking itself is complete: its meta is still written, then this is raised
+            status = f"failed: {type(exc).__name__}: {exc}"
+            failed = DyeReportError(f"the ranking is written to {target}, but the report failed: "
+                                    f"{type(exc).__name__}: {exc}; fix that and run the same `dascreen dyecell` "
+                                    "command again")
+            failed.__cause__ = exc
+    meta["report"] = status  # what became of report.html: "written", "failed: ..." or "off"
+    write_json(meta, target / RANKING_META)  # last: its presence means the ranking is complete
+    if failed is not None:
+        raise failed
     return target / "ranking.csv"
