@@ -110,8 +110,14 @@ def _resolved_out(given: str, option: str = "--out") -> Path:
     except (RuntimeError, OSError) as exc:  # Python 3.11: RuntimeError("Symlink loop from ..."); later: ELOOP
         if isinstance(exc, OSError) and exc.errno != errno.ELOOP:  # any other OSError is no loop: said as itself
             raise
-        raise InputError(f"{option} {given}: a symbolic link in this path points back to itself ({exc}); fix the "
-                         f"link, or choose another {option}") from None
+        raise _loop_error(option, given, exc) from None
+
+
+def _loop_error(option: str, value, exc=None) -> InputError:
+    """The refusal of a path option in which a symbolic link points back to itself (``exc``: what found it)."""
+    found = f" ({exc})" if exc is not None else ""
+    return InputError(f"{option} {value}: a symbolic link in this path points back to itself{found}; fix the link, "
+                      f"or choose another {option}")
 
 
 def cmd_run(args) -> int:
@@ -1589,9 +1595,7 @@ def _check_symlink_loops(args) -> None:
                 os.stat(value)
             except OSError as exc:
                 if exc.errno == errno.ELOOP:
-                    option = _option_name(dest)
-                    raise InputError(f"{option} {value}: a symbolic link in this path points back to itself; fix "
-                                     f"the link, or choose another {option}") from None
+                    raise _loop_error(_option_name(dest), value) from None
             except ValueError:  # a NUL byte: said by the command that uses it
                 continue
 

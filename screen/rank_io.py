@@ -18,6 +18,7 @@ import importlib.util
 import json
 import math
 import os
+import stat
 import sys
 import time
 from dataclasses import asdict
@@ -39,7 +40,7 @@ from screen.viability import acceptor_class_of
 
 __all__ = ["write_shortlist", "shortlist_notice", "longest_oligomers", "computed_geometries", "settings_hash",
            "ranking_folder", "levels_suffix", "set_aside_foreign", "read_ranked_levels", "check_before_computing",
-           "run_rank", "check_writable"]
+           "run_rank", "check_writable", "clear_previous_ranking", "RANKING_FILES", "RANKING_META", "RANKING_REPORT"]
 
 
 # --------------------------------------------------------------------------- outputs
@@ -713,7 +714,17 @@ RANKING_META, RANKING_REPORT = "ranking.meta.json", "report.html"
 RANKING_FILES = (RANKING_META, "ranking.safe.csv", RANKING_REPORT, "shortlist.sdf", "ranking.csv")
 
 
-def _clear_previous(target: Path) -> None:
+def _signature(path: Path) -> tuple | None:
+    """Size and modification time [ns] of a file, None when it is no file: what changes when another program writes
+    it while it is read (cheaper than hashing the file a second time)."""
+    try:
+        st = path.stat()
+    except OSError:
+        return None
+    return (st.st_size, st.st_mtime_ns) if stat.S_ISREG(st.st_mode) else None
+
+
+def clear_previous_ranking(target: Path) -> None:
     """Remove the earlier ranking's files from ``target`` (not ``ranking.csv``: replaced atomically), so that a
     ranking stopped half way (a full disk) never leaves the old meta, safe CSV or report beside the new
     ``ranking.csv`` (an audit of full disks).
@@ -723,7 +734,7 @@ def _clear_previous(target: Path) -> None:
     >>> import tempfile
     >>> d = Path(tempfile.mkdtemp())
     >>> for name in RANKING_FILES: _ = (d / name).write_text("old")
-    >>> _clear_previous(d)
+    >>> clear_previous_ranking(d)
     >>> sorted(p.name for p in d.iterdir())
     ['ranking.csv']
     """
@@ -994,9 +1005,10 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
     cfg = Config.of(config)
     levels_path = Path(levels_path)
     out_dir = Path(out_dir)
-    levels_sha = sha256_file(levels_path) if levels_path.is_file() else None  # missing: read_ranked_levels says so
+    before = _signature(levels_path)  # missing: read_ranked_levels says so
+    levels_sha = sha256_file(levels_path) if before else None
     levels = read_ranked_levels(levels_path)
-    if sha256_file(levels_path) != levels_sha:  # the hash recorded must be that of the content ranked
+    if _signature(levels_path) != before:  # the hash recorded must be that of the content ranked
         raise InputError(f"levels file {levels_path} changed while it was read (another program is writing it); "
                          "wait until it is finished, then rank again")
     meta_in = _levels_meta(levels_path)
@@ -1016,7 +1028,7 @@ def run_rank(levels_path, partner_spec: str, out_dir, config=None, *, partner_le
         print(f"dascreen rank: {levels_path} is not this run's levels.csv: its ranking goes to "
               f"{target.relative_to(out_dir)} (the run's own rankings are untouched)", file=sys.stderr)
     was_replaced = _check_target(target, partner, levels_path, levels_sha)
-    _clear_previous(target)  # a ranking stopped half way leaves no earlier file beside the new ones
+    clear_previous_ranking(target)  # a ranking stopped half way leaves no earlier file beside the new ones
     csv_text = write_csv(ranking, target / "ranking.csv")
     csv_text = csv_text if os.linesep == "\n" else None  # the safe copy's text has "\n" line ends
     keys = _structure_keys(levels)

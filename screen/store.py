@@ -988,8 +988,6 @@ def run_store_check(path: Path | None, why_none: str = "store.path is null") -> 
         return [f"dascreen: results store: none ({why_none}): every molecule is computed and nothing is kept"], False
     path = Path(path)
     elsewhere = f"set {STORE_ENV} or store.path to another file"
-    # busy, not broken: moving it away could lose the results the other process is writing
-    locked_fix = _LOCKED_RUN_FIX
 
     def unusable(why: str, fix: str = "") -> tuple[list[str], bool]:
         return [f"dascreen: warning: {_said(path, why)}: this run does not use it, every molecule is computed and "
@@ -1021,7 +1019,7 @@ def run_store_check(path: Path | None, why_none: str = "store.path is null") -> 
                 verdict = store._patiently(conn, lambda: conn.execute("PRAGMA quick_check").fetchone()[0])
             except sqlite3.OperationalError as exc:
                 if _locked_error(exc):
-                    return unusable(_locked_why(store.timeout_s), locked_fix)
+                    return unusable(_locked_why(store.timeout_s), _LOCKED_RUN_FIX)  # busy: never "move it away"
                 return unusable(f"cannot be read ({exc})")
             except sqlite3.DatabaseError as exc:
                 verdict = str(exc)
@@ -1029,7 +1027,7 @@ def run_store_check(path: Path | None, why_none: str = "store.path is null") -> 
                 verdict = str(verdict).strip().splitlines()[0] if str(verdict).strip() else "quick_check failed"
                 return unusable(f"is damaged ({verdict})", f"{_move_away(path)}: runs then start a new store")
     except StoreLocked as exc:
-        return unusable(exc.why, locked_fix)
+        return unusable(exc.why, _LOCKED_RUN_FIX)  # busy: never "move it away"
     except StoreProblem as exc:
         return unusable(exc.why, f"move it away or {elsewhere}")
     finally:

@@ -24,6 +24,35 @@ ACENES = {
 }
 
 
+#: one made-up donor row of a levels file for command-line tests (no measurement)
+LEVELS_HEADER = "id,smiles,homo_ev,lumo_ev,gap_opt_ev,scale,role\n"
+LEVELS_ROW = "KF-D01,c1ccc(-c2cccs2)s1,-5.55,-3.60,1.95,film,donor\n"
+
+
+def cli_run(capsys, *args):
+    """``screen.cli.main`` on ``args`` (made text): ``(exit code, stdout, stderr)``."""
+    from screen.cli import main
+
+    rc = main([str(a) for a in args])
+    captured = capsys.readouterr()
+    return rc, captured.out, captured.err
+
+
+def one_error_line(err: str) -> str:
+    """The one ``dascreen: error`` line of ``err``, asserting there is exactly one and no traceback."""
+    lines = [line for line in err.splitlines() if line.startswith("dascreen: error")]
+    assert "Traceback" not in err and len(lines) == 1, err
+    return lines[0]
+
+
+@pytest.fixture()
+def one_row_levels(tmp_path):
+    """A levels file of :data:`LEVELS_ROW` in ``tmp_path``."""
+    path = tmp_path / "lv.csv"
+    path.write_text(LEVELS_HEADER + LEVELS_ROW, encoding="utf-8")
+    return path
+
+
 @functools.lru_cache(maxsize=None)
 def structure(smiles: str):
     """Default-route geometry of a molecule (cached across tests)."""

@@ -15,35 +15,21 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
+from conftest import LEVELS_HEADER, LEVELS_ROW, cli_run, one_error_line
 
 import screen.io
-from screen.cli import main
 from screen.config import Config
 from screen.partners import partner_slug
 from screen.rank_io import ranking_folder
 
-#: one donor row, the levels of the CLI tests (tests/test_cli.py, fixture ``levels``)
-ROW = "KF-D01,c1ccc(-c2cccs2)s1,-5.55,-3.60,1.95,film,donor\n"
-HEADER = "id,smiles,homo_ev,lumo_ev,gap_opt_ev,scale,role\n"
-
-
-def _cli(capsys, *args):
-    rc = main([str(a) for a in args])
-    captured = capsys.readouterr()
-    return rc, captured.out, captured.err
-
-
-def _one_line(err: str) -> str:
-    lines = [line for line in err.splitlines() if line.startswith("dascreen: error")]
-    assert "Traceback" not in err and len(lines) == 1, err
-    return lines[0]
+#: one made-up donor row (conftest), the levels of the CLI tests
+ROW, HEADER = LEVELS_ROW, LEVELS_HEADER
+_cli, _one_line = cli_run, one_error_line
 
 
 @pytest.fixture()
-def levels(tmp_path):
-    path = tmp_path / "lv.csv"
-    path.write_text(HEADER + ROW, encoding="utf-8")
-    return path
+def levels(one_row_levels):
+    return one_row_levels
 
 
 @pytest.fixture()

@@ -3,7 +3,7 @@ of an error ("cannot write" of a read), symbolic-link loops in every command, a 
 ``status`` of a ranking written without a report on purpose, whose EQE and fill factor a target warning names, and
 the rankings index after a failed report.
 
-The levels row is that of tests/test_hostile_fs.py (a made-up donor, no measurement). The device constants named
+The levels row is conftest's ``LEVELS_ROW`` (a made-up donor, no measurement). The device constants named
 in the warnings are the published rule's (Scharber et al., Adv. Mater. 18 (2006) 789: EQE 0.65, FF 0.65) and values
 a test sets itself.
 """
@@ -17,31 +17,17 @@ import os
 from pathlib import Path
 
 import pytest
+from conftest import cli_run, one_error_line
 
 import screen.cli
 from screen.cli import main
 
-ROW = "KF-D01,c1ccc(-c2cccs2)s1,-5.55,-3.60,1.95,film,donor\n"
-HEADER = "id,smiles,homo_ev,lumo_ev,gap_opt_ev,scale,role\n"
-
-
-def _cli(capsys, *args):
-    rc = main([str(a) for a in args])
-    captured = capsys.readouterr()
-    return rc, captured.out, captured.err
-
-
-def _one_line(err: str) -> str:
-    lines = [line for line in err.splitlines() if line.startswith("dascreen: error")]
-    assert "Traceback" not in err and len(lines) == 1, err
-    return lines[0]
+_cli, _one_line = cli_run, one_error_line
 
 
 @pytest.fixture()
-def levels(tmp_path):
-    path = tmp_path / "lv.csv"
-    path.write_text(HEADER + ROW, encoding="utf-8")
-    return path
+def levels(one_row_levels):
+    return one_row_levels
 
 
 @pytest.fixture()

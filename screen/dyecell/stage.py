@@ -55,7 +55,7 @@ from screen.errors import ConfigError, DascreenError, InputError
 from screen.io import SD_LINE_MAX, read_json, sd_text, write_csv, write_json
 from screen.partners import file_tag
 from screen.provenance import change_notice, library_versions, sha256_file
-from screen.rank_io import RANKING_META, _clear_previous
+from screen.rank_io import RANKING_META, clear_previous_ranking
 from screen.schema import check_section
 
 __all__ = ["read_input", "build_dye_table", "sign_convention", "EXCITED_COLUMN_MEANING", "write_shortlist",
@@ -640,7 +640,7 @@ def run_dyecell(input_path: str | Path, out_dir: str | Path, *, oxide: str | Non
     _tell_replacing(target, info)
     # as `dascreen rank` (screen.rank_io.run_rank): the earlier ranking's meta, safe CSV, report and shortlist go
     # first, so a ranking stopped half way (a full disk, a kill) never leaves the old report beside the new ranking
-    _clear_previous(target)
+    clear_previous_ranking(target)
     write_csv(ranking, target / "ranking.csv")
     short = write_shortlist(ranking, target / "shortlist.sdf", options.shortlist_size)
     meta = _meta(ranking, table, info, ox, med, model, options, short, notices)
