@@ -398,15 +398,46 @@ class DeviceModel:
         >>> DeviceModel(model="scharber").ff_of(["fullerene", ""]).tolist()
         [0.65, 0.65]
         """
+        return self._per_class("ff", acceptor_class)
+
+    def _per_class(self, name: str, acceptor_class) -> np.ndarray:
+        """``name`` ('ff' or 'eqe') per pair: the fitted class values (:meth:`FittedParameters.ff_for`,
+        :meth:`FittedParameters.eqe_for`), or the effective value for every pair when set or Scharber's."""
         classes = np.asarray("" if acceptor_class is None else acceptor_class, dtype=object)
-        if not self._fitted_ff:
-            return np.full(classes.shape, self.value("ff"))
-        return self.parameters.ff_for(classes)
+        if not self._fitted(name):
+            return np.full(classes.shape, self.value(name))
+        return getattr(self.parameters, f"{name}_for")(classes)
+
+    def _fitted(self, name: str) -> bool:
+        """Whether ``name`` ('ff' or 'eqe') comes from the fitted parameters (no override, not Scharber's rule)."""
+        return self.model != "scharber" and getattr(self, name) is None
+
+    def eqe_of(self, acceptor_class=None) -> np.ndarray:
+        """EQE at large offsets per pair: the fitted value of the acceptor's class (else its family's, else
+        pooled); the override ``eqe`` or Scharber's 0.65 for every pair when set or chosen. [dimensionless]
+
+        Examples
+        --------
+        >>> DeviceModel(model="scharber").eqe_of(["fullerene", ""]).tolist()
+        [0.65, 0.65]
+        """
+        return self._per_class("eqe", acceptor_class)
 
     @property
-    def _fitted_ff(self) -> bool:
-        """Whether the fill factor comes from the fitted parameters (no override, not Scharber's rule)."""
-        return self.model != "scharber" and self.ff is None
+    def eqe_follows_class(self) -> bool:
+        """Whether the EQE depends on the acceptor class (fitted values per class are in use).
+
+        Examples
+        --------
+        >>> DeviceModel(model="scharber").eqe_follows_class, DeviceModel(eqe=0.7).eqe_follows_class
+        (False, False)
+        """
+        return self._fitted("eqe") and bool(self.parameters.eqe_by_class)
+
+    @property
+    def eqe_bound(self) -> float:
+        """Largest EQE any pair can get (a bound for the sampler and :meth:`pce_bound_pct`). [dimensionless]"""
+        return self.parameters.eqe_bound if self._fitted("eqe") else self.value("eqe")
 
     @property
     def ff_follows_class(self) -> bool:
@@ -417,14 +448,15 @@ class DeviceModel:
         >>> DeviceModel(model="scharber").ff_follows_class, DeviceModel(ff=0.7).ff_follows_class
         (False, False)
         """
-        return self._fitted_ff and bool(self.parameters.ff_by_class)
+        return self._fitted("ff") and bool(self.parameters.ff_by_class)
 
     def pce_bound_pct(self) -> float:
         """An upper bound of the PCE any pair can get from this model [%].
 
         Over absorber gaps g up to :data:`screen.viability.GAP_MAX_EV`: Voc no more than the detailed-balance Voc of
         g, g less the fitted floor on E_g − qVoc, and (Scharber's rule) g less the smallest offset threshold and
-        the loss; Jsc the photons above g at the model's EQE (yields ≤ 1); the largest fill factor of any class; and
+        the loss; Jsc the photons above g at the largest EQE of any class (yields ≤ 1); the largest fill factor of
+        any class; and
         never above the detailed-balance limit. A target above it is one no pair can reach: P(PCE > target) is 0
         for every row (a device physicist's audit: the fitted model stops near 13.7 %, and a target of 15 % gave 0
         everywhere without a word).
@@ -443,16 +475,14 @@ class DeviceModel:
             offsets = [self.value("min_delta_lumo_ev")] + ([self.value("min_delta_homo_ev")]
                                                            if self.absorber == "both" else [])
             voc = np.minimum(voc, g - min(offsets) - self.value("loss_v"))
-        pce = (np.clip(voc, 0.0, None) * self.value("eqe") * np.asarray(jsc_ma_cm2(g, 1.0), float) * self.ff_max
+        pce = (np.clip(voc, 0.0, None) * self.eqe_bound * np.asarray(jsc_ma_cm2(g, 1.0), float) * self.ff_max
                * 1000.0 / self.incident_power_w_m2)
         return float(np.max(np.minimum(pce, self._sq_pct(sq_pce_pct(g)))))
 
     @property
     def ff_max(self) -> float:
         """Largest fill factor any pair can get (a bound for the sampler). [dimensionless]"""
-        if not self._fitted_ff:
-            return self.value("ff")
-        return self.parameters.ff_max
+        return self.parameters.ff_max if self._fitted("ff") else self.value("ff")
 
     def loss_ev(self, acceptor_class=None) -> tuple[np.ndarray, np.ndarray]:
         """Voltage loss per pair [eV] and the mask of pairs that got the pooled (class-free) value.
@@ -614,7 +644,7 @@ class DeviceModel:
 
     # ------------------------------------------------------------ the physics
     def figures(self, levels, loss_ev, *, ff=None, jsc_unit=None, sq_pct=None, sq_voc=None,
-                keep_model_values=False, acceptor_absorbs=None) -> dict:
+                keep_model_values=False, acceptor_absorbs=None, eqe=None) -> dict:
         """Classification, Voc, Jsc and PCE of pairs from their six levels (the one formula).
 
         Parameters
@@ -625,6 +655,8 @@ class DeviceModel:
             Voltage loss per pair (broadcastable), from :meth:`loss_ev`. [eV]
         ff : numpy.ndarray or None
             Fill factor per pair (broadcastable), from :meth:`ff_of`; None uses ``value('ff')``.
+        eqe : numpy.ndarray or None
+            EQE at large offsets per pair (broadcastable), from :meth:`eqe_of`; None uses ``value('eqe')``.
         jsc_unit, sq_pct : callable or None
             Jsc at EQE = 1 [mA cm⁻²] and detailed-balance PCE [%] as functions of
             the gap; None uses the exact :func:`screen.spectrum.jsc_ma_cm2` and
@@ -643,16 +675,16 @@ class DeviceModel:
             ``voc_v``, ``jsc_ma_cm2``, ``pce_pct`` (0 where not viable: callers
             blank them), the masks of :func:`screen.viability.classify`,
             ``viable``, ``voc_capped``, ``pce_capped`` and ``loss_ev`` (the loss applied [eV]); with
-            ``keep_model_values`` also ``voc_model_v`` and ``pce_model_pct``, the
+            ``keep_model_values`` also ``voc_model_v``, ``jsc_model_ma_cm2`` and ``pce_model_pct``, the
             formula's values whether viable or not (for validation on devices).
         """
         sq_pct = self._sq_pct(sq_pct)
         shape = np.broadcast_shapes(*(np.shape(x) for x in levels), np.shape(loss_ev))
-        t = pair_terms(self, levels, loss_ev, jsc_unit, sq_voc)
+        t = pair_terms(self, levels, loss_ev, jsc_unit, sq_voc, eqe=eqe)
         delta_lumo, delta_homo, g_lo, voc_raw, jsc = t.delta_lumo, t.delta_homo, t.absorber_gap, t.voc_raw, t.jsc
         if self.absorber == "both" and acceptor_absorbs is not None and not np.all(acceptor_absorbs):
             # the donor-absorber formula for Jsc (one formula: the kernel's); Voc, E_CT and caps from t
-            t_d = pair_terms(self._donor_absorber_view, levels, loss_ev, jsc_unit, sq_voc)
+            t_d = pair_terms(self._donor_absorber_view, levels, loss_ev, jsc_unit, sq_voc, eqe=eqe)
             absorbs = np.asarray(acceptor_absorbs, dtype=bool)
             g_lo = self._absorber_gap(np.asarray(levels[2], float), np.asarray(levels[5], float), g_lo, absorbs)
             jsc = np.where(absorbs, jsc, t_d.jsc)
@@ -683,17 +715,19 @@ class DeviceModel:
                "pce_capped": pce_capped, "loss_ev": t.loss, "loss_floor": viable & t.floored & ~voc_capped}
         if keep_model_values:
             out["voc_model_v"] = voc_model
+            out["jsc_model_ma_cm2"] = jsc_model
             with np.errstate(invalid="ignore"):
                 out["pce_model_pct"] = np.fmin(np.maximum(voc_model, 0.0) * jsc_model * factor, limit)
         return {k: np.broadcast_to(v, shape) for k, v in out.items()}
 
     def pce_from_levels(self, levels, loss_ev, *, ff=None, jsc_unit=None, sq_pct=None, sq_voc=None,
-                        sq_below_ev=np.inf, acceptor_absorbs=None) -> np.ndarray:
+                        sq_below_ev=np.inf, acceptor_absorbs=None, eqe=None) -> np.ndarray:
         """Efficiency of (sampled) pair levels; 0 where a sample is not viable. [%]
 
         The vectorised kernel of :func:`screen.sampling.sample_pce`: the same
         formula as :meth:`evaluate` (:func:`screen.devicekernel.pair_terms`),
-        the classification as plain comparisons, no flags.  ``acceptor_absorbs``
+        the classification as plain comparisons, no flags (``ff`` and ``eqe`` per pair as in :meth:`figures`).
+        ``acceptor_absorbs``
         (from :meth:`acceptor_absorbs`, broadcastable; None: every acceptor
         counts) as in :meth:`figures`: where it is False the efficiency is the
         donor-absorber one (the same classification, Voc and Voc caps), so such
@@ -710,13 +744,14 @@ class DeviceModel:
         jsc_unit = (lambda g: jsc_ma_cm2(g, 1.0)) if jsc_unit is None else jsc_unit
         loss = np.asarray(loss_ev, dtype=float)
         if self.absorber != "both" or acceptor_absorbs is None or np.all(acceptor_absorbs):
-            return pce_samples(self, levels, loss, jsc_unit, self._sq_pct(sq_pct), sq_below_ev, ff=ff, sq_voc=sq_voc)
+            return pce_samples(self, levels, loss, jsc_unit, self._sq_pct(sq_pct), sq_below_ev, ff=ff, sq_voc=sq_voc,
+                               eqe=eqe)
         out, aligned = pce_samples(self, levels, loss, jsc_unit, self._sq_pct(sq_pct), sq_below_ev, ff=ff,
-                                   sq_voc=sq_voc, return_aligned=True)
+                                   sq_voc=sq_voc, return_aligned=True, eqe=eqe)
         # viable in the both-absorb kernel but for its current (its offset checks) → the donor-absorber efficiency
         # of that sample, held to the donor-absorber current as figures() holds it
         donor = pce_samples(self._donor_absorber_view, levels, loss, jsc_unit, self._sq_pct(sq_pct), sq_below_ev,
-                            ff=ff, sq_voc=sq_voc)
+                            ff=ff, sq_voc=sq_voc, eqe=eqe)
         return np.where(np.asarray(acceptor_absorbs, dtype=bool), out, np.where(aligned, donor, 0.0))
 
     def pce_pct(self, donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev=None, acceptor_lumo_ev=None,
@@ -739,7 +774,7 @@ class DeviceModel:
         levels, _ = self.pair_arrays(donor_homo_ev, donor_lumo_ev, donor_gap_ev, acceptor_homo_ev,
                                      acceptor_lumo_ev, acceptor_gap_ev, caller)
         loss, _ = self.loss_ev(acceptor_class)
-        fig = self.figures(levels, loss, ff=self.ff_of(acceptor_class),
+        fig = self.figures(levels, loss, ff=self.ff_of(acceptor_class), eqe=self.eqe_of(acceptor_class),
                            acceptor_absorbs=self.acceptor_absorbs(acceptor_class))
         return np.where(fig["viable"], fig["pce_pct"], np.nan).astype(float)
 
@@ -762,7 +797,7 @@ class DeviceModel:
             Acceptor optical gap; needed for ``absorber='both'``. [eV]
         acceptor_class : array_like of str or None
             Acceptor class per pair (``fullerene``, ``nfa-fused`` …) for the
-            fitted loss, fill factor and whether the acceptor counts as an
+            fitted loss, EQE, fill factor and whether the acceptor counts as an
             absorber (:meth:`acceptor_absorbs`); None or '' uses the pooled loss.
 
         Returns
@@ -807,7 +842,8 @@ class DeviceModel:
                                          acceptor_lumo_ev, acceptor_gap_ev, "evaluate()")
         loss, pooled = self.loss_ev(acceptor_class)
         ff = self.ff_of(acceptor_class)
-        fig = self.figures(levels, loss, ff=ff, acceptor_absorbs=self.acceptor_absorbs(acceptor_class))
+        fig = self.figures(levels, loss, ff=ff, eqe=self.eqe_of(acceptor_class),
+                           acceptor_absorbs=self.acceptor_absorbs(acceptor_class))
         shape = fig["viable"].shape
         viable = fig["viable"]
 

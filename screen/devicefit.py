@@ -23,7 +23,14 @@ The fitted model of :mod:`screen.device` has four kinds of parameter:
   held-out devices never choose it;
 - the maximum EQE and the offset scale Δ0 of the charge-generation yield
   1 − exp(−Δ/Δ0): least squares on the measured Jsc of every training device
-  with a Jsc (whether or not its Voc is known);
+  with a Jsc (whether or not its Voc is known); the EQE pooled, per family or
+  per acceptor class (a class or family needs :data:`MIN_CLASS_ROWS` devices
+  with a Jsc, else the next coarser value; Δ0 is shared) — the split chosen
+  *inside each training fold* by an inner grouped cross-validation of the
+  measured Jsc (:func:`choose_eqe_split`).  One pooled EQE put the fullerene
+  blends' Jsc about 3 mA cm⁻² above their measured values and the fused-ring
+  non-fullerene blends' about 1.5 mA cm⁻² below (held out, leave one acceptor
+  out);
 - whether a fullerene acceptor counts as an absorber for Jsc
   (:attr:`screen.devicepars.FittedParameters.fullerene_absorbs`): fullerene
   films absorb weakly near their optical gap (the lowest singlet transitions of
@@ -48,7 +55,8 @@ Validation
 Grouped cross-validation, two groupings: leave one *acceptor structure* out
 and leave one *donor structure* out (all devices sharing the held-out
 structure leave together; the parameters, and the loss split, are refitted on
-the rest).  Held out are Voc MAE and mean signed error [V], Spearman rank
+the rest).  Held out are Voc MAE and mean signed error [V], Jsc MAE and mean
+signed error [mA cm⁻²] (devices with a Jsc), Spearman rank
 correlation of Voc (devices with a Voc) and of PCE (every device with levels
 and a PCE — the rows without a Voc count here), the same by acceptor class,
 and two naive references: the training mean Voc, and the training mean Voc of
@@ -102,7 +110,7 @@ __all__ = ["DEVICES_PATH", "FILM_PATH", "LEVELS_TABLE_PATH", "read_devices", "le
            "fit", "cross_validate", "predict", "write_fitted", "main", "MIN_CLASS_ROWS", "OFFSET_SCALE_GRID_EV",
            "FC_SCALE_EV", "MIN_SHARED_MATERIALS", "LOSS_SPLITS", "LOSS_VARIANTS", "GROUPINGS", "choose_split",
            "fold_model", "CONSTANT_VARIANTS", "FF_SPLITS", "choose_ff_split", "choose_fullerene_absorber",
-           "FULLERENE_ABSORBER_CHOICES"]
+           "FULLERENE_ABSORBER_CHOICES", "EQE_SPLITS", "choose_eqe_split"]
 
 _REPO = Path(__file__).resolve().parent.parent
 #: resolved levels of every device row (written by ``--write``)
@@ -115,6 +123,8 @@ LOSS_SPLITS = ("pooled", "family", "class")
 LOSS_VARIANTS = tuple(_s + _f for _f in ("", "+slope") for _s in LOSS_SPLITS)
 #: how the fill factor may be split, chosen per training fold by inner grouped CV (simplest first)
 FF_SPLITS = LOSS_SPLITS
+#: how the EQE may be split, chosen per training fold by inner grouped CV of the measured Jsc (simplest first)
+EQE_SPLITS = LOSS_SPLITS
 #: the constant-loss variants alone (Veldman's constant loss per split)
 CONSTANT_VARIANTS = tuple(v for v in LOSS_VARIANTS if "+slope" not in v)
 #: grouping name -> column of the group key
@@ -229,7 +239,8 @@ def _fit_losses(d: pd.DataFrame, split="class", free_slope: bool = False) -> tup
 @dataclass(frozen=True)
 class _JscArrays:
     """What the Jsc fit needs of the devices with a measured Jsc: Jsc at EQE = 1 above the smaller, the larger
-    and the donor's gap [mA cm⁻²], the offsets ΔLUMO, ΔHOMO [eV], which gap is the donor's, fullerene rows, Jsc."""
+    and the donor's gap [mA cm⁻²], the offsets ΔLUMO, ΔHOMO [eV], which gap is the donor's, fullerene rows, Jsc,
+    acceptor classes and their families."""
 
     j_lo: np.ndarray
     j_hi: np.ndarray
@@ -239,6 +250,8 @@ class _JscArrays:
     donor_lower: np.ndarray
     fullerene: np.ndarray
     meas: np.ndarray
+    classes: np.ndarray
+    families: np.ndarray
 
     def take(self, idx) -> "_JscArrays":
         return _JscArrays(*(getattr(self, f.name)[idx] for f in self.__dataclass_fields__.values()))
@@ -247,12 +260,14 @@ class _JscArrays:
 def _jsc_arrays(d: pd.DataFrame) -> _JscArrays:
     rows = d[d["jsc_ma_cm2"].notna()]
     g_d, g_a = rows["donor_gap_opt_ev"].to_numpy(float), rows["acceptor_gap_opt_ev"].to_numpy(float)
+    classes = rows["acceptor_class"].astype(str).to_numpy(object)
     return _JscArrays(j_lo=jsc_ma_cm2(np.minimum(g_d, g_a), 1.0), j_hi=jsc_ma_cm2(np.maximum(g_d, g_a), 1.0),
                       j_donor=jsc_ma_cm2(g_d, 1.0),
                       d_l=rows["donor_lumo_ev"].to_numpy(float) - rows["acceptor_lumo_ev"].to_numpy(float),
                       d_h=rows["donor_homo_ev"].to_numpy(float) - rows["acceptor_homo_ev"].to_numpy(float),
                       donor_lower=g_d <= g_a, fullerene=rows["acceptor_class"].astype(str).eq(FULLERENE).to_numpy(),
-                      meas=rows["jsc_ma_cm2"].to_numpy(float))
+                      meas=rows["jsc_ma_cm2"].to_numpy(float), classes=classes,
+                      families=np.array([family_of(c) for c in classes], dtype=object))
 
 
 def _jsc_basis(a: _JscArrays, scale: float, fullerene_absorbs: bool = True) -> np.ndarray:
@@ -267,25 +282,74 @@ def _jsc_basis(a: _JscArrays, scale: float, fullerene_absorbs: bool = True) -> n
     return basis
 
 
-def _eqe_core(a: _JscArrays, fullerene_absorbs: bool = True) -> tuple[float, float]:
-    """``(eqe_max, offset_scale_ev)`` of :func:`_fit_eqe` on arrays."""
-    best = (np.inf, 1.0, 0.1)
+def _eqe_ls(basis: np.ndarray, meas: np.ndarray) -> float:
+    """Least-squares EQE of ``meas ≈ EQE · basis``, kept in [0.01, 1]. [dimensionless]"""
+    return float(np.clip(basis @ meas / max(basis @ basis, 1e-12), 0.01, 1.0))
+
+
+def _eqe_core(a: _JscArrays, fullerene_absorbs: bool = True, split: str = "pooled") -> tuple[float, float, dict]:
+    """``(eqe_max, offset_scale_ev, eqe_by_class)`` of :func:`_fit_eqe` on arrays: for each Δ0 of the grid the
+    EQE in closed form, pooled over every device and per family/class as ``split`` allows; the Δ0 with the least
+    squared Jsc error of the split model."""
+    groups = _split_groups(split, a.classes, a.families) if split != "pooled" else {}
+    best = (np.inf, 1.0, 0.1, {})
     for scale in OFFSET_SCALE_GRID_EV:
         basis = _jsc_basis(a, scale, fullerene_absorbs)
-        eqe = float(np.clip(basis @ a.meas / max(basis @ basis, 1e-12), 0.01, 1.0))
-        sse = float(np.sum((eqe * basis - a.meas) ** 2))
+        eqe = _eqe_ls(basis, a.meas)
+        by_class = {key: _eqe_ls(basis[m], a.meas[m]) for key, m in groups.items()}
+        per_row = class_values(by_class, eqe, a.classes) if by_class else eqe
+        sse = float(np.sum((per_row * basis - a.meas) ** 2))
         if sse < best[0] - 1e-12:
-            best = (sse, eqe, float(scale))
-    return best[1], best[2]
+            best = (sse, eqe, float(scale), by_class)
+    return best[1], best[2], best[3]
 
 
-def _fit_eqe(d: pd.DataFrame, fullerene_absorbs: bool = True) -> tuple[float, float]:
-    """``(eqe_max, offset_scale_ev)``: least squares on measured Jsc (EQE closed form per Δ0); without
-    ``fullerene_absorbs`` the Jsc of a fullerene blend is that of its donor's gap alone."""
+def _fit_eqe(d: pd.DataFrame, fullerene_absorbs: bool = True, split: str = "pooled") -> tuple[float, float, dict]:
+    """``(eqe_max, offset_scale_ev, eqe_by_class)``: least squares on measured Jsc (EQE closed form per Δ0 and
+    per family/class as ``split`` allows, Δ0 shared); without ``fullerene_absorbs`` the Jsc of a fullerene blend
+    is that of its donor's gap alone."""
     rows = d[d["jsc_ma_cm2"].notna()]
     if len(rows) < 3:
         raise InputError(f"device fit: {len(rows)} devices with Jsc; need at least 3")
-    return _eqe_core(_jsc_arrays(rows), fullerene_absorbs)
+    return _eqe_core(_jsc_arrays(rows), fullerene_absorbs, split)
+
+
+def _jsc_folds(d: pd.DataFrame, key: str) -> tuple[_JscArrays, list[np.ndarray]]:
+    """The Jsc arrays of the devices of ``d`` with a measured Jsc and the held-out masks of their groups
+    (groups whose training part keeps at least 3 devices)."""
+    rows = d[d["jsc_ma_cm2"].notna()]
+    groups = rows[key].to_numpy(object)
+    folds = [groups == g for g in pd.unique(groups)]
+    return _jsc_arrays(rows), [test for test in folds if not test.all() and (~test).sum() >= 3]
+
+
+def _jsc_cv_mae(a: _JscArrays, folds: list[np.ndarray], fullerene_absorbs: bool, split: str) -> float:
+    """Grouped-CV Jsc MAE [mA cm⁻²]: EQE (pooled or split) and Δ0 refitted without each group."""
+    pred = np.full(len(a.meas), np.nan)
+    for test in folds:
+        held = a.take(test)
+        eqe, scale, by_class = _eqe_core(a.take(~test), fullerene_absorbs, split)
+        pred[test] = class_values(by_class, eqe, held.classes) * _jsc_basis(held, scale, fullerene_absorbs)
+    ok = np.isfinite(pred)
+    return float(np.mean(np.abs(pred[ok] - a.meas[ok]))) if ok.any() else np.inf
+
+
+def choose_eqe_split(d: pd.DataFrame, key: str = "group", splits: tuple = EQE_SPLITS,
+                     fullerene_absorbs: bool = True) -> tuple[str, dict]:
+    """The EQE split (:data:`EQE_SPLITS`) with the least grouped-CV Jsc MAE [mA cm⁻²] on the devices of ``d``
+    with a measured Jsc (ties: the simpler), and each split's MAE.  Only ``d`` is used: called on a training
+    fold, held-out devices never choose it.
+
+    Examples
+    --------
+    >>> best, scores = choose_eqe_split(resolve_levels())
+    >>> best in EQE_SPLITS and set(scores) == set(EQE_SPLITS)
+    True
+    """
+    a, folds = _jsc_folds(d, key)
+    scores = {split: _jsc_cv_mae(a, folds, fullerene_absorbs, split) for split in splits}
+    best = min(splits, key=lambda s: (round(scores[s], 6), splits.index(s)))
+    return best, scores
 
 
 def choose_fullerene_absorber(d: pd.DataFrame, key: str = "group",
@@ -302,20 +366,8 @@ def choose_fullerene_absorber(d: pd.DataFrame, key: str = "group",
     >>> isinstance(absorbs, bool) and set(scores) == {"fullerene_absorbs", "donor_gap_only"}
     True
     """
-    rows = d[d["jsc_ma_cm2"].notna()]
-    arrays = _jsc_arrays(rows)
-    groups = rows[key].to_numpy(object)
-    folds = [groups == g for g in pd.unique(groups)]
-    folds = [test for test in folds if not test.all() and (~test).sum() >= 3]
-    scores = {}
-    for choice in choices:
-        pred = np.full(len(rows), np.nan)
-        for test in folds:
-            eqe, scale = _eqe_core(arrays.take(~test), choice)
-            pred[test] = eqe * _jsc_basis(arrays.take(test), scale, choice)
-        ok = np.isfinite(pred)
-        scores[FULLERENE_ABSORBER_CHOICES[choice]] = (float(np.mean(np.abs(pred[ok] - arrays.meas[ok])))
-                                                      if ok.any() else np.inf)
+    arrays, folds = _jsc_folds(d, key)
+    scores = {FULLERENE_ABSORBER_CHOICES[choice]: _jsc_cv_mae(arrays, folds, choice, "pooled") for choice in choices}
     best = min(choices, key=lambda c: (round(scores[FULLERENE_ABSORBER_CHOICES[c]], 6), choices.index(c)))
     return bool(best), scores
 
@@ -392,22 +444,26 @@ def choose_split(d: pd.DataFrame, key: str = "group", variants: tuple = LOSS_VAR
 
 
 def fold_model(train: pd.DataFrame, key: str, per_class=None, variants: tuple = LOSS_VARIANTS, ff_split=None,
-               fullerene_absorbs=None):
+               fullerene_absorbs=None, eqe_split=None):
     """``(DeviceModel, variant)`` fitted on one training fold; with ``per_class`` (``ff_split``,
-    ``fullerene_absorbs``) None the loss variant (the fill-factor split, whether a fullerene counts as an absorber)
-    is chosen by :func:`choose_split` (:func:`choose_ff_split`, :func:`choose_fullerene_absorber`) on ``train``
-    alone, grouped by ``key``, so held-out devices never choose it.  ``variant`` reads e.g.
-    ``'pooled+slope, ff class, fullerene_absorbs'``."""
+    ``fullerene_absorbs``, ``eqe_split``) None the loss variant (the fill-factor split, whether a fullerene counts
+    as an absorber, the EQE split) is chosen by :func:`choose_split` (:func:`choose_ff_split`,
+    :func:`choose_fullerene_absorber`, :func:`choose_eqe_split`) on ``train`` alone, grouped by ``key``, so
+    held-out devices never choose it.  ``variant`` reads e.g.
+    ``'pooled+slope, ff class, fullerene_absorbs, eqe class'``."""
     choice = per_class if per_class is not None else choose_split(train, key, tuple(variants))[0]
     ff_choice = ff_split if ff_split is not None else choose_ff_split(train, key)[0]
     absorbs = (bool(fullerene_absorbs) if fullerene_absorbs is not None
                else choose_fullerene_absorber(train, key)[0])
+    eqe_choice = eqe_split if eqe_split is not None else choose_eqe_split(train, key, fullerene_absorbs=absorbs)[0]
     split = _variant_name(*_variant(choice))
-    model = DeviceModel(model="fitted", absorber="both", parameters=fit(train, split, ff_choice, absorbs))
-    return model, f"{split}, ff {ff_choice}, {FULLERENE_ABSORBER_CHOICES[absorbs]}"
+    model = DeviceModel(model="fitted", absorber="both",
+                        parameters=fit(train, split, ff_choice, absorbs, eqe_choice))
+    return model, f"{split}, ff {ff_choice}, {FULLERENE_ABSORBER_CHOICES[absorbs]}, eqe {eqe_choice}"
 
 
-def fit(d: pd.DataFrame, per_class="class", ff_split="pooled", fullerene_absorbs: bool = True) -> FittedParameters:
+def fit(d: pd.DataFrame, per_class="class", ff_split="pooled", fullerene_absorbs: bool = True,
+        eqe_split: str = "pooled") -> FittedParameters:
     """Fitted parameters from a device table (see the module docstring).
 
     ``per_class`` is the loss variant: a split (``'pooled'``, ``'family'``,
@@ -415,7 +471,8 @@ def fit(d: pd.DataFrame, per_class="class", ff_split="pooled", fullerene_absorbs
     ``'+slope'`` for a loss that grows with E_CT.  ``ff_split`` is the
     fill-factor split (:data:`FF_SPLITS`).  ``fullerene_absorbs`` False fits
     the EQE with a fullerene blend's Jsc from its donor's gap alone, and the
-    parameters say so (:attr:`FittedParameters.fullerene_absorbs`).
+    parameters say so (:attr:`FittedParameters.fullerene_absorbs`).  ``eqe_split``
+    is the EQE split (:data:`EQE_SPLITS`).
 
     Examples
     --------
@@ -423,13 +480,14 @@ def fit(d: pd.DataFrame, per_class="class", ff_split="pooled", fullerene_absorbs
     >>> 0 < p.eqe_max <= 1 and 0 < p.ff <= 1 and "pooled" in p.loss_ev
     True
     """
-    eqe, scale = _fit_eqe(d, fullerene_absorbs)
+    eqe, scale, eqe_by_class = _fit_eqe(d, fullerene_absorbs, eqe_split)
     split, free = _variant(per_class)
     loss, slope, ref, (lo, hi) = _fit_losses(d, split, free)
     ff, by_class = _ff_core(*_ff_arrays(d), ff_split) if d["ff"].notna().any() else (0.65, {})
     return FittedParameters(loss_ev=loss, eqe_max=eqe, offset_scale_ev=scale, ff=ff, ff_by_class=by_class,
                             loss_slope=slope, ect_ref_ev=ref, ect_min_ev=lo, ect_max_ev=hi,
-                            gap_loss_min_ev=_gap_loss_min(d), fullerene_absorbs=bool(fullerene_absorbs))
+                            gap_loss_min_ev=_gap_loss_min(d), fullerene_absorbs=bool(fullerene_absorbs),
+                            eqe_by_class=eqe_by_class)
 
 
 def _gap_loss_min(d: pd.DataFrame) -> float:
@@ -443,13 +501,14 @@ def _gap_loss_min(d: pd.DataFrame) -> float:
 
 
 def predict(model: DeviceModel, d: pd.DataFrame) -> pd.DataFrame:
-    """Formula Voc [V] and PCE [%] of every device (viable or not) and whether the model calls it viable."""
+    """Formula Voc [V], Jsc [mA cm⁻²] and PCE [%] of every device (viable or not) and whether the model calls
+    it viable."""
     classes = d["acceptor_class"].to_numpy(object)
     loss, _ = model.loss_ev(classes)
     fig = model.figures(_levels(d), loss, ff=model.ff_of(classes), keep_model_values=True,
-                        acceptor_absorbs=model.acceptor_absorbs(classes))
-    return pd.DataFrame({"voc_v": fig["voc_model_v"], "pce_pct": fig["pce_model_pct"], "viable": fig["viable"]},
-                        index=d.index)
+                        acceptor_absorbs=model.acceptor_absorbs(classes), eqe=model.eqe_of(classes))
+    return pd.DataFrame({"voc_v": fig["voc_model_v"], "jsc_ma_cm2": fig["jsc_model_ma_cm2"],
+                         "pce_pct": fig["pce_model_pct"], "viable": fig["viable"]}, index=d.index)
 
 
 # --------------------------------------------------------------------------- validation
@@ -513,7 +572,10 @@ def _metrics(d: pd.DataFrame, pred: pd.DataFrame) -> dict:
     has_voc = d["voc_v"].notna()
     err = (pred["voc_v"] - d["voc_v"])[has_voc]
     has_pce = d["pce_pct"].notna() & pred["pce_pct"].notna()
+    jsc_err = (pred["jsc_ma_cm2"] - d["jsc_ma_cm2"]).dropna()
     return {"n": int(has_voc.sum()), "voc_mae_v": float(err.abs().mean()), "voc_bias_v": float(err.mean()),
+            "n_jsc": int(jsc_err.size), "jsc_mae_ma_cm2": float(jsc_err.abs().mean()),
+            "jsc_bias_ma_cm2": float(jsc_err.mean()),
             "spearman_voc": _rho(pred.loc[has_voc, "voc_v"], d.loc[has_voc, "voc_v"]),
             "n_pce": int(has_pce.sum()), "n_pce_without_voc": int((has_pce & ~has_voc).sum()),
             "spearman_pce": _rho(pred.loc[has_pce, "pce_pct"], d.loc[has_pce, "pce_pct"]),
@@ -529,7 +591,10 @@ def _by_class(d, fitted, scharber, baseline, class_baseline) -> dict:
             continue
         meas = d.loc[m, "voc_v"]
         has_pce = d["acceptor_class"].eq(cls) & d["pce_pct"].notna()
+        jsc_err = (fitted["jsc_ma_cm2"] - d["jsc_ma_cm2"])[d["acceptor_class"].eq(cls)].dropna()
         out[cls] = {"n": int(m.sum()),
+                    "fitted_jsc_bias_ma_cm2": float(jsc_err.mean()) if jsc_err.size else float("nan"),
+                    "n_jsc": int(jsc_err.size),
                     "fitted_voc_mae_v": float((fitted.loc[m, "voc_v"] - meas).abs().mean()),
                     "fitted_voc_bias_v": float((fitted.loc[m, "voc_v"] - meas).mean()),
                     "fitted_spearman_voc": _rho(fitted.loc[m, "voc_v"], meas),
@@ -560,7 +625,8 @@ def _paper_levels(d: pd.DataFrame) -> pd.DataFrame:
 
 
 def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor",
-                   variants: tuple = LOSS_VARIANTS, ff_split=None, fullerene_absorbs=None) -> CrossValidation:
+                   variants: tuple = LOSS_VARIANTS, ff_split=None, fullerene_absorbs=None,
+                   eqe_split=None) -> CrossValidation:
     """Grouped cross-validation of the fitted model beside Scharber's rule.
 
     Parameters
@@ -581,6 +647,9 @@ def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor",
     fullerene_absorbs : bool or None
         Whether a fullerene acceptor counts as an absorber for Jsc; None (default) chooses it inside each
         training fold (:func:`choose_fullerene_absorber`).
+    eqe_split : str or None
+        The EQE split (:data:`EQE_SPLITS`); None (default) chooses it inside each training fold
+        (:func:`choose_eqe_split`).
 
     Returns
     -------
@@ -590,19 +659,19 @@ def cross_validate(d: pd.DataFrame, per_class=None, by: str = "acceptor",
         ``class_mean_voc_baseline``, ``by_class``, the splits chosen per fold and the grouping.
     """
     key = GROUPINGS[by]
-    fitted = pd.DataFrame(index=d.index, columns=["voc_v", "pce_pct", "viable"], dtype=object)
+    fitted = pd.DataFrame(index=d.index, columns=["voc_v", "jsc_ma_cm2", "pce_pct", "viable"], dtype=object)
     baseline = pd.Series(np.nan, index=d.index)
     class_baseline = pd.Series(np.nan, index=d.index)
     chosen: dict[str, int] = {}
     for _group, idx in d.groupby(key).indices.items():
         train = d.drop(index=d.index[idx])
-        model, split = fold_model(train, key, per_class, variants, ff_split, fullerene_absorbs)
+        model, split = fold_model(train, key, per_class, variants, ff_split, fullerene_absorbs, eqe_split)
         chosen[split] = chosen.get(split, 0) + 1
         fitted.iloc[idx] = predict(model, d.iloc[idx]).to_numpy(object)
         baseline.iloc[idx] = train["voc_v"].mean()
         cls_mean = train.groupby("acceptor_class")["voc_v"].mean()
         class_baseline.iloc[idx] = d["acceptor_class"].iloc[idx].map(cls_mean).fillna(train["voc_v"].mean()).to_numpy()
-    fitted = fitted.astype({"voc_v": float, "pce_pct": float, "viable": bool})
+    fitted = fitted.astype({"voc_v": float, "jsc_ma_cm2": float, "pce_pct": float, "viable": bool})
     scharber_model = DeviceModel(model="scharber", absorber="donor")
     scharber = predict(scharber_model, d)
     paper = _paper_levels(d)
@@ -650,7 +719,8 @@ def write_fitted(path=FITTED_PATH, devices=DEVICES_PATH, film=FILM_PATH, levels_
     split, split_scores = choose_split(d, "group")
     ff_split, ff_scores = choose_ff_split(d, "group")
     absorbs, absorb_scores = choose_fullerene_absorber(d, "group")
-    params = fit(d, split, ff_split, absorbs)
+    eqe_split, eqe_scores = choose_eqe_split(d, "group", fullerene_absorbs=absorbs)
+    params = fit(d, split, ff_split, absorbs, eqe_split)
     beats = all(cv.metrics["fitted"]["voc_mae_v"] < cv.metrics["scharber"]["voc_mae_v"] for cv in cvs.values())
     cols = ["device_id", "donor", "acceptor", "acceptor_class", *_LEVELS, "donor_level_source",
             "acceptor_level_source", "levels_converted", "voc_v", "jsc_ma_cm2", "ff", "pce_pct", "drop_reason",
@@ -666,6 +736,8 @@ def write_fitted(path=FITTED_PATH, devices=DEVICES_PATH, film=FILM_PATH, levels_
         "ff_split_cv_mae": ff_scores,
         "fullerene_absorber": FULLERENE_ABSORBER_CHOICES[absorbs],
         "fullerene_absorber_cv_jsc_mae_ma_cm2": absorb_scores,
+        "eqe_split": eqe_split,
+        "eqe_split_cv_jsc_mae_ma_cm2": eqe_scores,
         "fullerene_absorber_devices_with_jsc": {"all": int(d["jsc_ma_cm2"].notna().sum()),
                                                 "fullerene": int((d["jsc_ma_cm2"].notna()
                                                                   & d["acceptor_class"].eq(FULLERENE)).sum())},
@@ -710,27 +782,29 @@ def interval_text(ci) -> str:
 
 def table(metrics: dict) -> str:
     """The held-out table of one grouping as text; [lo, hi] is the 95 % acceptor-group bootstrap interval."""
-    rows = [("model", "n", "Voc MAE [V]", "signed [V]", "Spearman Voc", "Spearman PCE", "not viable")]
+    rows = [("model", "n", "Voc MAE [V]", "signed [V]", "Spearman Voc", "Spearman PCE", "Jsc MAE (signed) [mA/cm2]",
+             "not viable")]
     for name, label in (("fitted", "fitted"), ("scharber", "scharber"),
                         ("scharber_paper_levels", "scharber (papers' levels)")):
         m = metrics[name]
         rows.append((label, str(m["n"]), _fmt(m["voc_mae_v"], ".3f"), _fmt(m["voc_bias_v"], "+.3f"),
                      _fmt(m["spearman_voc"], ".2f") + interval_text(m.get("spearman_voc_ci95")),
                      f"{_fmt(m['spearman_pce'], '.2f')}{interval_text(m.get('spearman_pce_ci95'))} (n={m['n_pce']})",
+                     f"{_fmt(m.get('jsc_mae_ma_cm2'), '.2f')} ({_fmt(m.get('jsc_bias_ma_cm2'), '+.2f')})",
                      str(m["not_viable"])))
     for name, label in (("mean_voc_baseline", "training mean Voc"),
                         ("class_mean_voc_baseline", "training class-mean Voc")):
         m = metrics[name]
         rows.append((label, str(metrics["fitted"]["n"]), _fmt(m["voc_mae_v"], ".3f"), _fmt(m["voc_bias_v"], "+.3f"),
-                     "-", "-", "-"))
+                     "-", "-", "-", "-"))
     widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
     text = "\n".join("  ".join(c.ljust(w) for c, w in zip(r, widths)) for r in rows)
-    cls_rows = [("acceptor class", "n", "fitted MAE", "signed", "rho Voc", "rho PCE", "scharber MAE",
+    cls_rows = [("acceptor class", "n", "fitted MAE", "signed", "rho Voc", "rho PCE", "Jsc signed", "scharber MAE",
                  "mean-Voc MAE", "class-mean MAE")]
     for cls, m in metrics["by_class"].items():
         cls_rows.append((cls, str(m["n"]), _fmt(m["fitted_voc_mae_v"], ".3f"), _fmt(m["fitted_voc_bias_v"], "+.3f"),
                          _fmt(m["fitted_spearman_voc"], ".2f"), f"{_fmt(m['fitted_spearman_pce'], '.2f')}",
-                         _fmt(m["scharber_voc_mae_v"], ".3f"), _fmt(m["mean_voc_baseline_mae_v"], ".3f"),
+                         _fmt(m.get("fitted_jsc_bias_ma_cm2"), "+.2f"), _fmt(m["scharber_voc_mae_v"], ".3f"), _fmt(m["mean_voc_baseline_mae_v"], ".3f"),
                          _fmt(m["class_mean_voc_baseline_mae_v"], ".3f")))
     widths = [max(len(r[i]) for r in cls_rows) for i in range(len(cls_rows[0]))]
     return text + "\n" + "\n".join("  ".join(c.ljust(w) for c, w in zip(r, widths)) for r in cls_rows)

@@ -117,7 +117,7 @@ def _safe_gap(gap):
         return np.where(np.isfinite(gap) & (gap > 0), gap, 2.0)
 
 
-def pair_terms(model, levels, loss_ev, jsc_unit=None, sq_voc=None) -> PairTerms:
+def pair_terms(model, levels, loss_ev, jsc_unit=None, sq_voc=None, *, eqe=None) -> PairTerms:
     """Offsets, absorber gap, uncapped Voc and Jsc of pairs for ``model`` (a :class:`~screen.device.DeviceModel`).
 
     Parameters
@@ -131,6 +131,8 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None, sq_voc=None) -> PairTerms:
         Jsc at EQE = 1 as a function of the gap [mA cm⁻²]; None: exact.
     sq_voc : callable or None
         Detailed-balance Voc of a gap [V]; None: exact (:func:`screen.spectrum.sq_voc_v`).
+    eqe : numpy.ndarray or None
+        EQE at large offsets per pair (broadcastable); None uses ``model.value('eqe')``.
 
     Returns
     -------
@@ -165,7 +167,7 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None, sq_voc=None) -> PairTerms:
                 floored = voc_raw > gap_cap - floor
             voc_raw = np.where(floored, gap_cap - floor, voc_raw)
     scale = model.offset_scale_ev
-    eqe = model.value("eqe")
+    eqe = model.value("eqe") if eqe is None else np.asarray(eqe, dtype=float)
     eta_d = generation_yield(delta_lumo, scale)
     if both:
         eta_a = generation_yield(delta_homo, scale)
@@ -190,7 +192,7 @@ def pair_terms(model, levels, loss_ev, jsc_unit=None, sq_voc=None) -> PairTerms:
 
 
 def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = np.inf, *, ff=None,
-                sq_voc=None, return_aligned: bool = False):
+                sq_voc=None, return_aligned: bool = False, eqe=None):
     """Efficiency [%] of (sampled) pair levels, 0 where a sample is not viable (no flags).
 
     Parameters
@@ -207,6 +209,8 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
         caller has shown that it cannot bind above); ``inf`` = everywhere. [eV]
     ff : numpy.ndarray or None
         Fill factor per pair (broadcastable); None uses ``model.value('ff')``.
+    eqe : numpy.ndarray or None
+        EQE at large offsets per pair (broadcastable); None uses ``model.value('eqe')``.
     sq_voc : callable or None
         Detailed-balance Voc of a gap [V]; None: exact (:func:`screen.spectrum.sq_voc_v`).
     return_aligned : bool
@@ -299,7 +303,7 @@ def pce_samples(model, levels, loss_ev, jsc_unit, sq_pct, sq_below_ev: float = n
     elif scale > 0:
         jsc *= dl
         jsc *= -1.0
-    eqe = model.value("eqe")
+    eqe = model.value("eqe") if eqe is None else np.asarray(eqe, dtype=float)
     written = jsc_written(np.multiply(jsc, eqe))  # the model's Jsc written above 0 (classify: dark_current)
     voc *= jsc
     voc *= eqe * model.pce_factor_pct(ff)

@@ -1122,9 +1122,11 @@ def _ceiling_why(model: DeviceModel) -> str:
     >>> _ceiling_why(DeviceModel(eqe=0.8, ff=0.7))
     'with the EQE 0.80 and fill factor 0.70 you set'
     """
-    eqe, ff = f"EQE {model.value('eqe'):.2f}", f"fill factor {model.ff_max:.2f}"
+    eqe, ff = f"EQE {model.eqe_bound:.2f}", f"fill factor {model.ff_max:.2f}"
     if model.model != "scharber" and model.ff is None:
         ff = f"fill factor up to {model.ff_max:.2f}"  # the largest of the acceptor classes' fitted values
+    if model.eqe_follows_class:
+        eqe = f"EQE up to {model.eqe_bound:.2f}"
     source = "the published rule's" if model.model == "scharber" else "the fitted"
     mine = {"eqe": model.eqe is not None, "ff": model.ff is not None}
     if mine["eqe"] and mine["ff"]:

@@ -205,6 +205,7 @@ class _FlatPair:
     ff: np.ndarray
     missing: np.ndarray
     absorbs: np.ndarray
+    eqe: np.ndarray
 
 
 _SIGMA_NAMES = ("donor_homo_sigma_ev", "donor_lumo_sigma_ev", "donor_gap_sigma_ev", "acceptor_homo_sigma_ev",
@@ -223,14 +224,15 @@ def _flat_pair(model: DeviceModel, levels, shape, sigmas: dict, acceptor_class=N
     ff = np.ascontiguousarray(np.broadcast_to(model.ff_of(acceptor_class), shape).ravel())
     missing = model.needed_missing(flat, flat[0].shape)
     absorbs = np.ascontiguousarray(np.broadcast_to(model.acceptor_absorbs(acceptor_class), shape).ravel())
-    return _FlatPair(flat, checked, loss, ff, missing, absorbs)
+    eqe = np.ascontiguousarray(np.broadcast_to(model.eqe_of(acceptor_class), shape).ravel())
+    return _FlatPair(flat, checked, loss, ff, missing, absorbs, eqe)
 
 
 def _anchors(model: DeviceModel, pair: _FlatPair):
     """Exact-minus-tabulated efficiency at the mean levels [%], the viable rows and the exact efficiency [%]."""
-    exact = model.figures(pair.levels, pair.loss, ff=pair.ff, acceptor_absorbs=pair.absorbs)
+    exact = model.figures(pair.levels, pair.loss, ff=pair.ff, acceptor_absorbs=pair.absorbs, eqe=pair.eqe)
     tab = model.pce_from_levels(pair.levels, pair.loss, ff=pair.ff, jsc_unit=jsc_fast, sq_pct=sq_fast,
-                                sq_voc=voc_fast, acceptor_absorbs=pair.absorbs)
+                                sq_voc=voc_fast, acceptor_absorbs=pair.absorbs, eqe=pair.eqe)
     corr = np.where(np.isfinite(exact["pce_pct"]) & np.isfinite(tab), exact["pce_pct"] - tab, 0.0)
     return np.asarray(corr, dtype=float), np.asarray(exact["viable"], dtype=bool), np.asarray(exact["pce_pct"])
 
@@ -240,7 +242,7 @@ def _sq_below_ev(model: DeviceModel) -> float:
     (Voc ≤ the smallest gap ≤ the absorber gap, Jsc ≤ EQE · Jsc at EQE = 1) is below the limit on the whole table."""
     (jt, _), (st, _), _ = _tables()
     grid = _TABLE_E_MIN_EV + _TABLE_STEP_EV * np.arange(jt.size)
-    bound = grid * model.value("eqe") * jt * model.pce_factor_pct(model.ff_max)
+    bound = grid * model.eqe_bound * jt * model.pce_factor_pct(model.ff_max)
     binds = np.flatnonzero(bound > st * model.sq_scale * (1 - 1e-9) + 1e-12)
     # below the grid the bound is not checked: the cap applies to every such gap
     return max(float(grid[binds[-1]] + 2 * _TABLE_STEP_EV) if binds.size else 0.0, _TABLE_E_MIN_EV)
@@ -259,7 +261,8 @@ def _pce_samples(model: DeviceModel, pair: _FlatPair, a: int, b: int, z, corr, s
             sampled.append(level[a:b, None])
     v = np.array(model.pce_from_levels(sampled, pair.loss[a:b, None], ff=pair.ff[a:b, None], jsc_unit=jsc_fast,
                                        sq_pct=sq_fast, sq_voc=voc_fast, sq_below_ev=sq_below,
-                                       acceptor_absorbs=pair.absorbs[a:b, None]), dtype=float)
+                                       acceptor_absorbs=pair.absorbs[a:b, None], eqe=pair.eqe[a:b, None]),
+                 dtype=float)
     if v.shape[1] != z.shape[1]:
         v = np.repeat(v, z.shape[1], axis=1)
     v += np.where(v > 0, corr[a:b, None], 0.0)
@@ -463,7 +466,7 @@ def sample_pce(
     for start in range(0, idx.size, rows):
         sel = idx[start:start + rows]
         sub = _FlatPair(tuple(x[sel] for x in pair.levels), tuple(x[sel] for x in pair.sigmas), pair.loss[sel],
-                        pair.ff[sel], pair.missing[sel], pair.absorbs[sel])
+                        pair.ff[sel], pair.missing[sel], pair.absorbs[sel], pair.eqe[sel])
         v = _pce_samples(model, sub, 0, sel.size, z, corr[sel], sq_below)
         for key, value in zip(_OUTPUTS, _block_moments(v, target, n_samples, exact[sel])):
             out[key][sel] = value

@@ -58,7 +58,7 @@ def test_no_efficiency_above_the_detailed_balance_limit_nor_voc_above_the_gap(mo
     # the sampler's kernel agrees with the flagged path on the same levels (0 where not viable)
     classes = np.array(["", "fullerene", "nfa-fused", "polymer"] * 100)
     loss, _ = model.loss_ev(classes)
-    fast = model.pce_from_levels(levels, loss, ff=model.ff_of(classes),
+    fast = model.pce_from_levels(levels, loss, ff=model.ff_of(classes), eqe=model.eqe_of(classes),
                                  acceptor_absorbs=model.acceptor_absorbs(classes))
     np.testing.assert_allclose(fast, np.where(ok, out["pce_pct"], 0.0), rtol=1e-12, atol=1e-12)
 

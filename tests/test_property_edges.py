@@ -255,10 +255,10 @@ NEV_OFFSETS = (-5.65 + 3e-9, -4.09 + 3e-9, 1.36, -5.65, -4.09, 1.36)
 
 
 def _kernel_of(model, levels, classes=None, tables=False):
-    """``pce_from_levels`` of levels (arrays) with the model's own loss, fill factor and absorbers."""
+    """``pce_from_levels`` of levels (arrays) with the model's own loss, EQE, fill factor and absorbers."""
     lv = [np.asarray(x, dtype=float) for x in levels]
     loss, _ = model.loss_ev(classes)
-    kw = {"ff": model.ff_of(classes), "acceptor_absorbs": model.acceptor_absorbs(classes)}
+    kw = {"ff": model.ff_of(classes), "eqe": model.eqe_of(classes), "acceptor_absorbs": model.acceptor_absorbs(classes)}
     if tables:
         kw.update(jsc_unit=jsc_fast, sq_pct=sq_fast, sq_voc=voc_fast, sq_below_ev=_sq_below_ev(model))
     return model.pce_from_levels(lv, loss, **kw)

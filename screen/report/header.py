@@ -274,26 +274,30 @@ def _class_name(code) -> str:
     return f" ({esc(words)})" if words and words != text(code) else ""
 
 
-def _ff_words(dev: dict) -> str:
-    """Fill factor: the value, and for a fitted model with class values each class's.
+def _per_class_words(dev: dict, name: str = "ff") -> str:
+    """Fill factor (``name='eqe'``: the EQE at large offsets): the value, and for a fitted model with class values
+    each class's.
 
     Examples
     --------
-    >>> _ff_words({"ff": 0.6755, "ff_set": False, "fitted": {"ff_by_class": {"fullerene": 0.58, "nfa-fused": 0.698}}})
+    >>> _per_class_words({"ff": 0.6755, "ff_set": False, "fitted": {"ff_by_class": {"fullerene": 0.58, "nfa-fused": 0.698}}})
     '0.68 pooled (pairs whose acceptor class cannot be told); per acceptor class: fullerene 0.58, nfa-fused 0.70 (fused-ring non-fullerene)'
 
     A family value that no candidate can receive (``non-fullerene`` beside both of its classes) is not listed:
 
-    >>> _ff_words({"ff": 0.6755, "ff_set": False, "fitted": {"ff_by_class": {"nfa-fused": 0.698, "nfa-other": 0.61,
+    >>> _per_class_words({"ff": 0.6755, "ff_set": False, "fitted": {"ff_by_class": {"nfa-fused": 0.698, "nfa-other": 0.61,
     ...                                                                   "non-fullerene": 0.6885}}})
     '0.68 pooled (pairs whose acceptor class cannot be told); per acceptor class: nfa-fused 0.70 (fused-ring non-fullerene), nfa-other 0.61 (other non-fullerene)'
+    >>> _per_class_words({"eqe": 0.649, "eqe_set": False, "fitted": {"eqe_by_class": {"fullerene": 0.483}}}, "eqe")
+    '0.65 pooled (pairs whose acceptor class cannot be told); per acceptor class: fullerene 0.48'
     """
-    base = _value(dev, "ff")
+    base = _value(dev, name)
     fitted = dev.get("fitted") if isinstance(dev.get("fitted"), dict) else {}
-    classes = dict(fitted.get("ff_by_class")) if isinstance(fitted.get("ff_by_class"), dict) else {}
+    by_class = fitted.get(f"{name}_by_class")
+    classes = dict(by_class) if isinstance(by_class, dict) else {}
     if {"nfa-fused", "nfa-other"} <= set(classes):  # every non-fullerene candidate gets one of the two
         classes.pop("non-fullerene", None)
-    if dev.get("ff_set") or not classes:
+    if dev.get(f"{name}_set") or not classes:
         return base
     parts = ", ".join(f"{esc(k)} {fmt(num(v))}{_class_name(k)}" for k, v in sorted(classes.items()))
     # a meeting-day audit read "0.68 for other acceptors" beside "nfa-other 0.61"
@@ -313,9 +317,9 @@ def _device_items(dev: dict) -> list[tuple[str, str]]:
                    f"{fmt(scale)} eV (charge-generation yield 1 \u2212 exp(\u2212\u0394/\u0394<sub>0</sub>))")]
                  if text(dev.get("model")) == "fitted" and not math.isnan(scale) else [])
     return [
-        ("EQE", _value(dev, "eqe")),
+        ("EQE", _per_class_words(dev, "eqe")),
         *yield_row,
-        ("Fill factor", _ff_words(dev)),
+        ("Fill factor", _per_class_words(dev)),
         ("Voltage loss", _loss_words(dev)),
         ("Min. \u0394LUMO", _value(dev, "min_delta_lumo_ev", "eV")),
         ("Min. \u0394HOMO", _value(dev, "min_delta_homo_ev", "eV")
