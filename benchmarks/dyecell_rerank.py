@@ -39,6 +39,7 @@ def synthetic_dyes(n: int, seed: int = 1) -> pd.DataFrame:
         "e00_sigma_ev": 0.14, "scale": "electrochemical", "anchors": "cyanoacrylic acid",
         "anchored": rng.random(n) > 0.05, "anchor_known": True, "uncalibrated_elements": "",
         "outside_calibration": False, "source": "synthetic", "e_ox_reference": "nhe", "e_ox_offset_v": 0.0,
+        "reference_similarity": np.nan, "unlike_reference_dyes": False,
     })
     return frame[DYE_COLUMNS]
 

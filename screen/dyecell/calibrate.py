@@ -51,8 +51,9 @@ import numpy as np
 import pandas as pd
 
 from screen.calibrate import LinearLevelModel
-from screen.calibration.domain import domain_std, fit_domain, reference_similarity
+from screen.calibration.domain import domain_std, fingerprint, fit_domain, nearest_similarity, reference_similarity
 from screen.errors import CalculationError, ConfigError, InputError
+from screen.flags import FAR_FROM_REFERENCE_SIMILARITY
 from screen.io import read_json, write_json
 from screen.provenance import library_versions, sha256_file
 from screen.viability import WRITTEN_DECIMALS
@@ -60,7 +61,7 @@ from screen.viability import WRITTEN_DECIMALS
 __all__ = ["REFERENCE_FILE", "MODELS_DIR", "TARGETS", "DERIVED", "MIN_GAIN", "needed_columns", "reference_file",
            "reference_table", "reference_input", "fitted_on", "REFERENCE_RECORD",
            "join_computed", "feature_matrix", "fit_target", "fit_models", "save_models", "load_models",
-           "model_folder", "apply_models", "elements_of"]
+           "model_folder", "apply_models", "elements_of", "SIMILARITY_DECIMALS", "dye_reference_similarity"]
 
 _ROOT = Path(__file__).resolve().parent.parent.parent
 #: the dye reference set
@@ -83,6 +84,8 @@ DERIVED = {
     # single-configuration singlet estimate Δε + 2K (Grimme, J. Chem. Phys. 138 (2013) 244104)
     "xtb_s1_ev": (["xtb_gap_ev", "xtb_k_hl_ev"], lambda f: _num(f, "xtb_gap_ev") + 2.0 * _num(f, "xtb_k_hl_ev")),
 }
+#: decimals of the ``reference_similarity`` column of the dye table (:func:`dye_reference_similarity`)
+SIMILARITY_DECIMALS = 2
 _RAW = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev"]
 _OPTIONAL_RAW = ["xtb_k_hl_ev", "xtb_j_hl_ev", "xtb_ip_film_ev", "xtb_ea_film_ev"]
 
@@ -539,8 +542,9 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict]) -> pd.DataFrame:
     pandas.DataFrame
         Same rows: ``e_ox_v_nhe`` [V vs NHE], ``e_ox_sigma_v`` [V], ``e00_ev``
         [eV], ``e00_sigma_ev`` [eV] (NaN where not computed), ``outside_calibration``
-        (bool: more than 0.1 V/eV outside the fitted range) and ``scale``
-        (``electrochemical`` on computed rows).
+        (bool: more than 0.1 V/eV outside the fitted range), ``scale``
+        (``electrochemical`` on computed rows), ``reference_similarity`` [0–1] and
+        ``unlike_reference_dyes`` (bool; :func:`dye_reference_similarity`).
 
     Raises
     ------
@@ -575,7 +579,56 @@ def apply_models(levels: pd.DataFrame, models: dict[str, dict]) -> pd.DataFrame:
         out[spec["sigma"]] = np.round(std, WRITTEN_DECIMALS)
     out["outside_calibration"] = outside
     out["scale"] = np.where(np.isfinite(out["e_ox_v_nhe"]) & np.isfinite(out["e00_ev"]), "electrochemical", "")
+    smiles = levels["smiles"] if "smiles" in levels else pd.Series("", index=levels.index)
+    computed = ok.to_numpy() & np.isfinite(out["e_ox_v_nhe"].to_numpy(float))
+    out["reference_similarity"], out["unlike_reference_dyes"] = dye_reference_similarity(
+        smiles, [r["smiles"] for r in models["e_ox"].get("residuals", []) if r.get("smiles")], computed)
     return out
+
+
+def dye_reference_similarity(smiles, reference_smiles, computed=None) -> tuple[np.ndarray, np.ndarray]:
+    """Nearest-neighbour similarity of each dye to the calibration dyes, and whether it is below the threshold.
+
+    The similarity is :func:`screen.calibration.domain.nearest_similarity` on bits (2048-bit Morgan r = 2, alkyl
+    groups cut to methyl), the one behind the bulk-heterojunction column ``reference_similarity``; an element that
+    no calibration dye contains gives 0, as in the σ of the ``e_ox`` model. A dye is unlike the calibration dyes
+    below :data:`screen.flags.FAR_FROM_REFERENCE_SIMILARITY` (0.30, judged on the written value): its E(S⁺/S) and
+    E₀₋₀ are extrapolations whose σ may understate the error (an audit found a BODIPY dye predicted 1.37 V vs NHE
+    against about 1.75 V measured, from memory; the E₀₋₀ model's σ does not grow with dissimilarity at all).
+
+    Parameters
+    ----------
+    smiles : sequence of str
+        The dyes' structures (empty or unreadable: not judged).
+    reference_smiles : sequence of str
+        The dyes the ``e_ox`` model was fitted on (the ``smiles`` of its ``residuals``).
+    computed : array_like of bool, optional
+        Rows to judge (default: all); the others get NaN and False.
+
+    Returns
+    -------
+    (numpy.ndarray, numpy.ndarray)
+        ``reference_similarity`` [0–1, :data:`SIMILARITY_DECIMALS` decimals; NaN where not judged] and
+        ``unlike_reference_dyes`` (bool).
+
+    Examples
+    --------
+    >>> sim, far = dye_reference_similarity(["OC(=O)c1ccccc1", "c1ccc2ccccc2c1", "OC(=O)c1ccc(B(O)O)cc1", "", "C1CC"],
+    ...                                     ["OC(=O)c1ccccc1", "OC(=O)c1ccc(O)cc1"])
+    >>> sim.tolist(), far.tolist()
+    ([1.0, 0.29, 0.0, nan, nan], [False, True, True, False, False])
+    """
+    cells = ["" if not isinstance(s, str) else s.strip() for s in smiles]
+    judge = np.ones(len(cells), bool) if computed is None else np.asarray(computed, bool).copy()
+    judge &= np.array([bool(s) and fingerprint(s) is not None for s in cells], dtype=bool)
+    sim = np.full(len(cells), np.nan)
+    refs = [s for s in reference_smiles if isinstance(s, str) and s.strip()]
+    if judge.any() and refs:
+        sim[judge] = np.round(nearest_similarity([cells[i] for i in np.flatnonzero(judge)], refs),
+                              SIMILARITY_DECIMALS) + 0.0
+    with np.errstate(invalid="ignore"):
+        far = sim < FAR_FROM_REFERENCE_SIMILARITY
+    return sim, far
 
 
 def refit(levels_path: str | Path, reference: str | Path | None = None, root: str | Path | None = None,

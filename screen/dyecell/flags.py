@@ -33,6 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from screen.device import join_flags as _join_flags_any
+from screen.flags import FAR_FROM_REFERENCE_SIMILARITY
 
 __all__ = ["Flag", "FLAGS", "FLAG_ORDER", "INFO_FLAGS", "VIABILITY_UNCERTAIN", "describe", "is_info", "join_flags",
            "viability_uncertain"]
@@ -77,6 +78,10 @@ _REGISTRY = (
                                  "and E₀₋₀ are extrapolations", "info"),
     Flag("outside_calibration", "E(S⁺/S) or E₀₋₀ more than 0.1 V / 0.1 eV outside the range of the calibration "
                                 "dyes: an extrapolation", "info"),
+    Flag("unlike_reference_dyes", "structure unlike every dye of the calibration set (nearest fingerprint "
+                                  f"similarity below {FAR_FROM_REFERENCE_SIMILARITY:.2f}, column reference_similarity; "
+                                  "0 with an element no calibration dye has): E(S⁺/S) and E₀₋₀ are extrapolations, "
+                                  "and their σ may understate the error", "info"),
     Flag("p_type_estimate", "p-type cell: the dye's reduction potential E(S/S⁻) (column e_ox_excited_v_nhe) is "
                             "estimated as E(S⁺/S) − E₀₋₀/e, neglecting exciton binding; the electrochemical gap is "
                             "usually larger than E₀₋₀, so the estimate overstates the hole-injection driving force and "

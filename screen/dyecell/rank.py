@@ -79,7 +79,7 @@ __all__ = ["DYE_COLUMNS", "RANKING_COLUMNS", "EXTRA_COLUMNS", "NONMETALS", "NOT_
 #: columns of the dye table (``OUT/dyecell/dyes.csv``)
 DYE_COLUMNS = ["id", "smiles", "name", "status", "error", "e_ox_v_nhe", "e_ox_sigma_v", "e00_ev", "e00_sigma_ev",
                "scale", "anchors", "anchored", "anchor_known", "uncalibrated_elements", "outside_calibration",
-               "source", "e_ox_reference", "e_ox_offset_v"]
+               "source", "e_ox_reference", "e_ox_offset_v", "reference_similarity", "unlike_reference_dyes"]
 #: columns of ``ranking.csv``, in order
 RANKING_COLUMNS = ["rank", "id", "smiles", "e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "oxide", "mediator",
                    "band_edge_v_nhe", "e_redox_v_nhe", "drive_inj_ev", "drive_reg_ev", "anchors", "viable",
@@ -87,7 +87,7 @@ RANKING_COLUMNS = ["rank", "id", "smiles", "e_ox_v_nhe", "e00_ev", "e_ox_excited
                    "passes", "flags", "viability"]
 #: columns after the contract ones
 EXTRA_COLUMNS = ["name", "e_ox_sigma_v", "e00_sigma_ev", "edge_nm", "uncalibrated_elements", "e_ox_reference",
-                 "e_ox_offset_v"]
+                 "e_ox_offset_v", "reference_similarity"]
 #: reason of a polymer repeat unit in the dye-cell mode (status ``rejected``)
 NOT_A_DYE = ("a polymer repeat unit is not a sensitiser dye; dye mode takes molecules (give the dye itself, "
              "without attachment points *)")
@@ -171,6 +171,8 @@ def dye_table(levels: pd.DataFrame, models: dict[str, dict]) -> pd.DataFrame:
         "scale": np.where(ok, cal["scale"], ""), "anchors": anchors, "anchored": anchored, "anchor_known": known,
         "uncalibrated_elements": uncal, "outside_calibration": cal["outside_calibration"].to_numpy(bool) & ok,
         "source": CALIBRATED_SOURCE, "e_ox_reference": "", "e_ox_offset_v": np.nan,
+        "reference_similarity": np.where(ok, cal["reference_similarity"], np.nan),
+        "unlike_reference_dyes": cal["unlike_reference_dyes"].to_numpy(bool) & ok,
     })
     return out[DYE_COLUMNS]
 
@@ -240,6 +242,8 @@ def dyes_from_file(frame: pd.DataFrame, where: str = "dye file") -> pd.DataFrame
         "anchor_known": known, "uncalibrated_elements": "", "outside_calibration": False,
         "source": _text_col(frame, "source").str.strip().where(lambda s: s.ne(""), "user file"),
         "e_ox_reference": ref_ids, "e_ox_offset_v": offsets,
+        # measured potentials: no computed structure was calibrated, so no similarity and no flag
+        "reference_similarity": np.nan, "unlike_reference_dyes": False,
     })
     return out[DYE_COLUMNS]
 
@@ -363,6 +367,7 @@ def _flag_masks(d: pd.DataFrame, dev: dict, known: np.ndarray, mc: dict) -> dict
     masks["anchor_unknown"] = ~known
     masks["element_uncalibrated"] = _text_col(d, "uncalibrated_elements").str.strip().ne("").to_numpy()
     masks["outside_calibration"] = _bool_col(d, "outside_calibration", False)
+    masks["unlike_reference_dyes"] = _bool_col(d, "unlike_reference_dyes", False)
     return masks
 
 
@@ -508,6 +513,7 @@ def rank_dyes(dyes: pd.DataFrame, oxide: Material, mediator: Material, model: Dy
         "e_ox_sigma_v": s_ox, "e00_sigma_ev": s_gap, "edge_nm": np.asarray(gap_to_wavelength_nm(e00), float),
         "uncalibrated_elements": _text_col(d, "uncalibrated_elements"),
         "e_ox_reference": _text_col(d, "e_ox_reference"), "e_ox_offset_v": _num_col(d, "e_ox_offset_v"),
+        "reference_similarity": _num_col(d, "reference_similarity"),
     })
     num = ["e_ox_v_nhe", "e00_ev", "e_ox_excited_v_nhe", "band_edge_v_nhe", "e_redox_v_nhe", "drive_inj_ev",
            "drive_reg_ev", "voc_v", "jsc_ma_cm2", "pce_pct", "e_ox_sigma_v", "e00_sigma_ev", "e_ox_offset_v"]
