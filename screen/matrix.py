@@ -19,12 +19,19 @@ Examples
 >>> m = partner_matrix([("y6", a), ("c60", b)])
 >>> m[["id", "y6", "c60", "best_partner"]].values.tolist()
 [['D1', 9.0, 3.0, 'y6'], ['D2', nan, 7.5, 'c60']]
+
+Whether the best partner is told apart from the others (:func:`best_partner_verdict`) needs the
+rankings' ``pce_sigma_pct``; without it the matrix says it cannot tell:
+
+>>> m[["id", "best_partner_resolved"]].values.tolist()
+[['D1', <NA>], ['D2', True]]
 """
 
 from __future__ import annotations
 
 import hashlib
 import json
+import math
 import sys
 from pathlib import Path
 
@@ -32,12 +39,25 @@ import numpy as np
 import pandas as pd
 
 from screen.io import text_cells
+from screen.viability import WRITTEN_DECIMALS
 
-__all__ = ["MATRIX_LEAD", "cell_notes", "partner_matrix", "matrix_folder", "run_matrix", "refresh_matrices", "refresh_after_run",
+__all__ = ["MATRIX_LEAD", "TIE_SEPARATOR", "BEST_PARTNER_RULE", "cell_notes", "partner_matrix", "best_partner_verdict",
+           "matrix_folder", "run_matrix", "refresh_matrices", "refresh_after_run",
            "matrices_joining", "stale_columns"]
 
 #: the leading columns of ``matrix.csv``; one column per partner follows, named by the partner id
-MATRIX_LEAD = ["id", "name", "smiles", "best_partner", "best_pce_pct", "viable_partners"]
+MATRIX_LEAD = ["id", "name", "smiles", "best_partner", "best_pce_pct", "viable_partners", "best_partner_resolved",
+               "best_partner_note"]
+
+#: separator of the partner ids in ``best_partner`` on an exact tie (as the codes in a ranking's ``flags``)
+TIE_SEPARATOR = ";"
+#: how ``best_partner`` and ``best_partner_resolved`` are decided (recorded in ``matrix.meta.json``)
+BEST_PARTNER_RULE = ("every partner of the largest cell (equal pce_pct as written, 4 decimals: a tie), joined by ';'; "
+                     "resolved = false on a tie or when another viable partner k has PCE_best - PCE_k < "
+                     "sqrt(sigma_best^2 + sigma_k^2) (pce_sigma_pct of the two ranking rows, taken as independent), "
+                     "empty when a sigma needed is not known")
+#: decimals at which two cells count as one exact tie: those ``ranking.csv`` writes ``pce_pct`` with
+_TIE_DECIMALS = WRITTEN_DECIMALS
 
 
 def _viable(ranking: pd.DataFrame) -> pd.Series:
@@ -91,8 +111,11 @@ def partner_matrix(rankings) -> pd.DataFrame:
     pandas.DataFrame
         :data:`MATRIX_LEAD` then one column per partner (NaN: not viable); rows in order of the
         best estimate, best first, candidates without any viable partner last (input order).
+        ``best_partner``, ``best_partner_resolved`` (nullable boolean) and ``best_partner_note`` are those of
+        :func:`best_partner_verdict`, from the cells and the ``pce_sigma_pct`` [%] of the rows that hold them.
     """
     cells: dict[str, pd.Series] = {}
+    sigmas: dict[str, pd.Series] = {}
     names: dict[tuple, str] = {}
     order: list[tuple] = []
     for partner, ranking in rankings:
@@ -105,25 +128,169 @@ def partner_matrix(rankings) -> pd.DataFrame:
             if ident not in names:
                 names[ident] = name
                 order.append(ident)
-        pce = pd.to_numeric(frame["pce_pct"], errors="coerce").where(_viable(frame))
-        cells[partner] = pd.Series(pce.to_numpy(), index=pd.MultiIndex.from_tuples(idx)).groupby(level=[0, 1]).max()
+        cells[partner], sigmas[partner] = _best_cells(frame)
     index = pd.MultiIndex.from_tuples(order)
     table = pd.DataFrame({p: s.reindex(index) for p, s in cells.items()}, index=index)
+    spread = pd.DataFrame({p: s.reindex(index) for p, s in sigmas.items()}, index=index)
     partners = list(cells)
     values = table[partners].to_numpy(dtype=float).reshape(len(table), len(partners))
+    sigma = spread[partners].to_numpy(dtype=float).reshape(len(table), len(partners))
     filled = np.where(np.isnan(values), -np.inf, values)
     best_at = filled.argmax(axis=1) if len(partners) else np.zeros(len(table), dtype=int)
     best = np.array([values[i, j] if np.isfinite(filled[i, j]) else np.nan for i, j in enumerate(best_at)])
+    verdicts = [best_partner_verdict(partners, v, s) for v, s in zip(values, sigma)]
     out = pd.DataFrame({
         "id": [i for i, _ in order], "name": [names[k] for k in order], "smiles": [s for _, s in order],
-        "best_partner": ["" if np.isnan(b) else partners[j] for b, j in zip(best, best_at)],
+        "best_partner": [v[0] for v in verdicts],
         "best_pce_pct": best, "viable_partners": (~np.isnan(values)).sum(axis=1),
+        "best_partner_resolved": pd.array([v[1] for v in verdicts], dtype="boolean"),
+        "best_partner_note": [v[2] for v in verdicts],
     })
     for p in partners:
         out[p] = table[p].to_numpy()
     out["_order"] = range(len(out))
     out = out.sort_values(["best_pce_pct", "_order"], ascending=[False, True], na_position="last")
     return out.drop(columns="_order").reset_index(drop=True)
+
+
+def _best_cells(frame: pd.DataFrame) -> tuple[pd.Series, pd.Series]:
+    """One partner's cells: the best viable ``pce_pct`` [%] per (id, smiles) and the ``pce_sigma_pct`` [%] of the
+    row that holds it (the larger one when two rows hold it; NaN when the ranking has no such column or left it
+    empty)."""
+    pce = pd.to_numeric(frame["pce_pct"], errors="coerce").where(_viable(frame))
+    sig = pd.to_numeric(frame["pce_sigma_pct"], errors="coerce") if "pce_sigma_pct" in frame else np.nan
+    rows = pd.DataFrame({"id": frame["id"], "smiles": frame["smiles"], "pce": pce, "sigma": sig})
+    rows = rows.dropna(subset=["pce"]).sort_values(["pce", "sigma"], ascending=False, na_position="last")
+    top = rows.drop_duplicates(["id", "smiles"]).set_index(["id", "smiles"])
+    return top["pce"], top["sigma"]
+
+
+def _within(best: float, best_sigmas: list, other: float, other_sigma: float) -> float | None:
+    """The ± [PCE points] of the difference ``best - other`` when ``other`` lies within it, NaN when it lies outside,
+    None when that cannot be told (a σ is unknown).
+
+    ``best_sigmas`` holds the σ of every partner tied at ``best``: ``other`` is within when it is within the ±
+    of its difference from any of them (the largest such ± is returned).
+    """
+    combined = [math.hypot(s, other_sigma) for s in best_sigmas]
+    inside = [c for c in combined if not math.isnan(c) and best - other < c]
+    if inside:
+        return max(inside)
+    return None if any(math.isnan(c) for c in combined) else math.nan
+
+
+def best_partner_verdict(partners, values, sigmas) -> tuple[str, bool | None, str]:
+    """The best partner of one matrix row, and whether the estimates tell it apart from the other partners.
+
+    Parameters
+    ----------
+    partners : sequence of str
+        The partner ids (column order).
+    values : sequence of float
+        The row's cells: best viable PCE estimate [%] per partner (NaN: no viable pair).
+    sigmas : sequence of float
+        ``pce_sigma_pct`` [%] of each cell's ranking row: the Monte-Carlo spread of the PCE over the levels'
+        uncertainties (NaN: not known).
+
+    Returns
+    -------
+    best_partner : str
+        The partner of the largest cell; on an exact tie (equal ``pce_pct`` as ``ranking.csv`` writes it, 4
+        decimals) every tied partner, in column order, joined by :data:`TIE_SEPARATOR`; "" without a viable cell.
+    resolved : bool or None
+        True when no other viable partner comes within the uncertainty of the difference (so also with one viable
+        partner); False on an exact tie or when one does; None when it cannot be told (no viable cell, or a σ
+        needed for the comparison is not known and no other partner is already within).
+    note : str
+        Plain words for a row that is not resolved (the tied partners, or each partner within the uncertainty with
+        its estimate, the difference [PCE points] and the ± of the difference); "" when resolved or no cell.
+
+    Notes
+    -----
+    The rule: another viable partner k is *within the uncertainty* of the best partner b when
+    ``PCE_b - PCE_k < sqrt(sigma_b**2 + sigma_k**2)``, the ± of the difference of two independent estimates
+    (one standard deviation); on a tie, when that holds for any of the tied partners. Reasons and limits:
+
+    - the σ are what the rankings already carry per pair (``pce_sigma_pct``); the paired Monte-Carlo samples are
+      not kept, so the covariance of the two estimates is not known;
+    - the two estimates share the candidate's own level errors (its HOMO, LUMO and gap are drawn in both), which
+      correlate them positively; the true ± of the difference is then smaller than the independent sum, so the
+      rule calls some differences unresolved that a paired comparison would resolve: it errs on the side of not
+      recommending a partner, the safe side for a synthesis or purchase decision;
+    - one σ is a low bar: a difference just outside it still leaves the other order a chance of about
+      Φ(−1) ≈ 0.16 (normal errors), so "resolved" means "not inside the ±", not "significant"; the σ scatter
+      by 0.01–0.05 points between Monte-Carlo seeds (:data:`screen.viability.MC_DECIMALS`), so a difference
+      that close to the ± can flip between runs;
+    - σ covers the levels' uncertainties only, not the device model's own error.
+
+    Examples
+    --------
+    >>> nan = float("nan")
+    >>> best_partner_verdict(["pm6", "d18", "pbdb-t"], [13.54, 13.54, 13.54], [3.6, 3.6, 3.6])[:2]
+    ('pm6;d18;pbdb-t', False)
+    >>> label, resolved, note = best_partner_verdict(["pm6", "d18"], [12.79, 12.81], [3.6, 3.6])
+    >>> label, resolved
+    ('d18', False)
+    >>> note
+    'not resolved: pm6 12.79 ± 3.60 % lies 0.02 points below d18 12.81 ± 3.60 %, within the ± 5.09 of the \
+difference'
+    >>> best_partner_verdict(["pm6", "d18", "pbdb-t"], [13.54, 13.54, 11.0], [3.6, 3.6, 0.1])[2]
+    'not resolved: pm6 and d18 tie at 13.54 %; pbdb-t 11.00 ± 0.10 % lies 2.54 points below the tie at 13.54 %, \
+within the ± 3.60 of the difference'
+    >>> best_partner_verdict(["pm6", "d18"], [9.0, 8.9], [0.5, nan])[1:]
+    (None, 'cannot tell: the PCE spread (pce_sigma_pct) of d18 is not known, so whether d18 lies within the \
+uncertainty is not tested')
+    >>> best_partner_verdict(["pm6", "d18"], [9.0, 3.0], [0.5, 0.6])
+    ('pm6', True, '')
+    >>> best_partner_verdict(["pm6", "d18"], [9.0, nan], [nan, nan])  # one viable partner: nothing to tell apart
+    ('pm6', True, '')
+    >>> best_partner_verdict(["pm6", "d18"], [nan, nan], [nan, nan])
+    ('', None, '')
+    """
+    values = np.asarray(values, dtype=float)
+    sigmas = np.asarray(sigmas, dtype=float)
+    if values.size == 0 or np.isnan(values).all():
+        return "", None, ""
+    written = np.round(values, _TIE_DECIMALS)
+    top = np.nanmax(written)
+    tied = [j for j in range(len(partners)) if written[j] == top]
+    ref = tied[0]
+    close, unknown = {}, []
+    for k in range(len(partners)):
+        if k in tied or np.isnan(values[k]):
+            continue
+        pm = _within(values[ref], [sigmas[j] for j in tied], values[k], sigmas[k])
+        if pm is None:
+            unknown.append(k)
+        elif not math.isnan(pm):
+            close[k] = pm
+    label = TIE_SEPARATOR.join(str(partners[j]) for j in tied)
+    names = [str(partners[j]) for j in tied]
+    best = f"{names[0]} {_pm(values[ref], sigmas[ref])}" if len(tied) == 1 else f"the tie at {values[ref]:.2f} %"
+    parts = [f"{_and(names)} tie at {values[ref]:.2f} %"] if len(tied) > 1 else []
+    groups: dict[tuple, list] = {}  # partners of one estimate, ± and difference said once (two of equal levels)
+    for k, pm in close.items():
+        groups.setdefault((_pm(values[k], sigmas[k]), f"{values[ref] - values[k]:.2f}", f"{pm:.2f}"), []).append(k)
+    parts += [f"{_and([str(partners[k]) for k in ks])} {pce} {'lies' if len(ks) == 1 else 'lie'} {gap} points below "
+              f"{best}, within the ± {pm} of the difference" for (pce, gap, pm), ks in groups.items()]
+    if parts:
+        return label, False, "not resolved: " + "; ".join(parts)
+    if unknown:
+        missing = _and([str(partners[j]) for j in [*tied, *unknown] if np.isnan(sigmas[j])])
+        return label, None, (f"cannot tell: the PCE spread (pce_sigma_pct) of {missing} is not known, so whether "
+                             f"{_and([str(partners[k]) for k in unknown])} lie{'s' if len(unknown) == 1 else ''} "
+                             f"within the uncertainty is not tested")
+    return label, True, ""
+
+
+def _pm(value: float, sigma: float) -> str:
+    """``12.81 ± 3.60 %`` (no ± when σ is not known)."""
+    return f"{value:.2f} %" if math.isnan(sigma) else f"{value:.2f} ± {sigma:.2f} %"
+
+
+def _and(words: list) -> str:
+    """``a``, ``a and b``, ``a, b and c``."""
+    return words[0] if len(words) == 1 else ", ".join(words[:-1]) + " and " + words[-1]
 
 
 def matrix_folder(ranking_dirs) -> str:
@@ -205,6 +372,7 @@ def _write_matrix(ranking_paths, out_dir, device: dict, rank: dict) -> tuple[Pat
             "cell": "best PCE estimate [%] of the candidate's viable rows against the partner; empty = not viable, or "
                     "not paired when the candidate is listed in the partner's not_paired (same role as the partner); "
                     "a partner's alignment_uncertain lists the candidates whose P(aligned) is between 0.25 and 0.75",
+            "best_partner": BEST_PARTNER_RULE,
             "device": device, "device_tests": tests, "rank": rank, "rows": int(len(matrix)),
             "stale": stale_columns(partners, [p.parent / "ranking.meta.json" for p in paths], Path(out_dir)),
             "outputs": {"matrix": "matrix.csv", "overview": "overview.html", "meta": "matrix.meta.json"}}

@@ -5,7 +5,9 @@ partner (its levels and a link to its report), each cell the best viable PCE
 estimate coloured on one sequential scale; a grey cell with "—" is a pair
 that is not viable, a hatched "same role" cell a candidate of the partner's own
 role (not paired), and a dashed-outlined cell with "?" a pair whose alignment is
-uncertain (P(aligned) between 0.25 and 0.75).  Numbers come from ``matrix.csv`` (:mod:`screen.matrix`);
+uncertain (P(aligned) between 0.25 and 0.75).  The best-partner cell names every partner of an exact
+tie and says in words when the best estimate is not told apart from another partner's
+(:func:`screen.matrix.best_partner_verdict`).  Numbers come from ``matrix.csv`` (:mod:`screen.matrix`);
 formatting and drawings are those of the ranking report
 (:mod:`screen.report.format`, :mod:`screen.report.drawings`).
 
@@ -33,11 +35,21 @@ import pandas as pd
 
 from screen import __version__
 from screen.io import atomic_path
+from screen.matrix import TIE_SEPARATOR
 from screen.report.drawings import molecule_svg
 from screen.report.format import esc, fmt, isolated, num
 from screen.report.header import device_tests_html
 
-__all__ = ["render_overview", "write_overview", "heat_colour", "MAX_ROWS", "NOT_PAIRED_TITLE", "UNCERTAIN_TITLE"]
+__all__ = ["render_overview", "write_overview", "heat_colour", "MAX_ROWS", "NOT_PAIRED_TITLE", "UNCERTAIN_TITLE",
+           "BEST_PARTNER_WORDS"]
+
+#: what the best-partner column means, on the page (the rule of :func:`screen.matrix.best_partner_verdict`; an
+#: audit: "best partner: pm6" on an exact tie of three partners, and on 0.02 points under a ± of 3.6 each, read as
+#: a recommendation)
+BEST_PARTNER_WORDS = ("The best partner is the one of the largest estimate; on an exact tie every tied partner is "
+                      "named, and “not resolved” says that another partner's estimate lies within the "
+                      "uncertainty of the difference (less than √(σ₁² + σ₂²) "
+                      "below it, from the rankings' ± of the PCE): the estimates do not choose between them.")
 
 #: tooltip of a cell whose candidate has the partner's own role (a meeting-day audit: it looked like "not viable")
 NOT_PAIRED_TITLE = "not paired (same role): the candidate has the partner's own role, so the pair is no device"
@@ -61,6 +73,7 @@ table{border-collapse:collapse}th,td{border:1px solid #ddd;padding:4px 6px;text-
 th.cand,td.cand{text-align:left}tbody th{font-weight:inherit}td.na{background:#eee;color:#555}tr{break-inside:avoid}
 td.np{background:repeating-linear-gradient(45deg,#fff 0 4px,#e4e4e4 4px 8px);color:#444;font-size:11px;font-style:italic}
 td.unc{outline:2px dashed #d9822b;outline-offset:-3px}td sup.unc{font-weight:700;margin-left:1px}
+td.best small{display:block;color:#555;max-width:24em;text-align:left}td.nr{background:#fff4e0}
 .legend span.np{background:repeating-linear-gradient(45deg,#fff 0 4px,#e4e4e4 4px 8px)}
 .legend span.unc{outline:2px dashed #d9822b;outline-offset:-3px;background:#fff}
 thead th{background:#f6f6f6;vertical-align:bottom;font-weight:600}
@@ -183,6 +196,41 @@ def _cell(value, low: float, high: float, stale: bool = False, note: str = "") -
     return f'<td style="background:{bg};color:{fg}"{extra} data-value="{x:.6g}">{fmt(x, 1)}{mark}</td>'
 
 
+def _text(value) -> str:
+    """A cell of ``matrix.csv`` as text ("" for an empty one, read as NaN)."""
+    return "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)
+
+
+def _resolved(value) -> bool | None:
+    """``best_partner_resolved`` as read (True/False, "True"/"False", empty or missing: None)."""
+    text = _text(value).strip().lower()
+    return True if text in ("true", "1") else False if text in ("false", "0") else None
+
+
+def _best_cell(row: dict) -> str:
+    """The best-partner cell: every tied partner, and the note in words when the choice is not resolved.
+
+    A matrix written before these columns existed shows ``best_partner`` alone.
+
+    Examples
+    --------
+    >>> _best_cell({"best_partner": "pm6;d18", "best_partner_resolved": False,
+    ...             "best_partner_note": "not resolved: pm6 and d18 tie at 13.54 %"})
+    '<td class="best nr">pm6, d18<small>not resolved: pm6 and d18 tie at 13.54 %</small></td>'
+    >>> _best_cell({"best_partner": "pm6", "best_partner_resolved": True, "best_partner_note": ""})
+    '<td class="best">pm6</td>'
+    >>> _best_cell({"best_partner": float("nan")})
+    '<td class="best">—</td>'
+    """
+    names = [esc(p) for p in _text(row.get("best_partner")).split(TIE_SEPARATOR) if p]
+    if not names:
+        return '<td class="best">—</td>'
+    note = _text(row.get("best_partner_note"))
+    resolved = _resolved(row.get("best_partner_resolved"))
+    classes = "best nr" if resolved is False else "best"
+    return f'<td class="{classes}">{", ".join(names)}' + (f"<small>{esc(note)}</small>" if note else "") + "</td>"
+
+
 def _notes(partners: list[dict]) -> dict:
     """``{partner id: {candidate id: note}}`` from the partners' ``not_paired`` and ``alignment_uncertain`` lists."""
     notes = {}
@@ -243,7 +291,7 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
                         for p in ids)
         # the candidate cell is the row's header (an accessibility audit: no row headers)
         rows.append(f'<tr><th scope="row" class="cand">{drawing}{label}</th>{cells}'
-                    f'<td>{esc(row.get("best_partner") or "—")}</td></tr>')
+                    f'{_best_cell(row)}</tr>')
     more = (f"<p>{len(matrix) - len(shown)} more rows are in matrix.csv.</p>" if len(matrix) > len(shown) else "")
     model = esc((meta.get("device") or {}).get("model", "not recorded"))
     when = created or datetime.now(timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
@@ -260,7 +308,8 @@ def render_overview(matrix: pd.DataFrame, meta: dict, created: str | None = None
         "with \u2014 is a pair that is not viable, a hatched \u201csame role\u201d cell a candidate of the "
         "partner's own role (not paired), and a cell marked ? a pair whose alignment is uncertain (P(aligned) "
         "between 0.25 and 0.75). "
-        "A column head counts the viable pairs among the candidates that pair with that partner. Estimates for screening, not measurements: follow a partner's link for "
+        "A column head counts the viable pairs among the candidates that pair with that partner. "
+        f"{BEST_PARTNER_WORDS} Estimates for screening, not measurements: follow a partner's link for "
         "its ranking, uncertainties and flags.</p>\n"
         + _stale_banner(meta.get("stale"))
         + (f'<p class="caution">{caution}</p>\n' if caution else "")
