@@ -450,6 +450,30 @@ class DeviceModel:
         """
         return self._fitted("ff") and bool(self.parameters.ff_by_class)
 
+    def ect_outside_fit(self, interface_ev, gap_cap_ev) -> np.ndarray:
+        """Where the pair's E_CT = min(LUMO_A − HOMO_D, smaller optical gap) lies outside the E_CT range of the
+        published devices the fitted model was fitted on (by more than :data:`screen.viability.OFFSET_TOL_EV`);
+        all False for Scharber's rule, which is not fitted.
+
+        Outside that range the fitted loss stays at the value of the nearest fitted device (its E_CT slope is not
+        extrapolated), so Voc follows E_CT one to one there: an extrapolation of the device data, not a fit
+        (a device physicist's audit, 2026-12-05).
+
+        Examples
+        --------
+        >>> p = FittedParameters(loss_ev={"pooled": 0.5}, eqe_max=0.65, offset_scale_ev=0.01, ff=0.65,
+        ...                      ect_min_ev=1.01, ect_max_ev=1.75)
+        >>> DeviceModel(parameters=p).ect_outside_fit(np.array([0.9, 1.3, 1.9]), np.array([1.4, 1.4, 2.0])).tolist()
+        [True, False, True]
+        """
+        interface, cap = np.asarray(interface_ev, dtype=float), np.asarray(gap_cap_ev, dtype=float)
+        if self.model == "scharber":
+            return np.zeros(np.broadcast_shapes(interface.shape, cap.shape), dtype=bool)
+        e_ct = np.fmin(interface, cap)
+        p = self.parameters
+        with np.errstate(invalid="ignore"):
+            return (e_ct < p.ect_min_ev - OFFSET_TOL_EV) | (e_ct > p.ect_max_ev + OFFSET_TOL_EV)
+
     def pce_bound_pct(self) -> float:
         """An upper bound of the PCE any pair can get from this model [%].
 
@@ -712,7 +736,8 @@ class DeviceModel:
         pce = np.where(pce_capped, limit, pce)
         out = {"delta_lumo_ev": delta_lumo, "delta_homo_ev": delta_homo, "absorber_gap_ev": g_lo,
                "voc_v": voc, "jsc_ma_cm2": jsc, "pce_pct": pce, **masks, "voc_capped": voc_capped,
-               "pce_capped": pce_capped, "loss_ev": t.loss, "loss_floor": viable & t.floored & ~voc_capped}
+               "pce_capped": pce_capped, "loss_ev": t.loss, "loss_floor": viable & t.floored & ~voc_capped,
+               "ect_outside_fit": viable & self.ect_outside_fit(levels[4] - levels[0], t.gap_cap)}
         if keep_model_values:
             out["voc_model_v"] = voc_model
             out["jsc_model_ma_cm2"] = jsc_model
@@ -852,7 +877,7 @@ class DeviceModel:
 
         masks = {code: np.array(fig[code], dtype=bool) for code in
                  ("input_missing", "absorber_gap_invalid", "lumo_inverted", "homo_inverted", "lumo_offset_low",
-                  "homo_offset_low", "voc_nonpositive", "voc_capped", "loss_floor", "pce_capped")}
+                  "homo_offset_low", "voc_nonpositive", "voc_capped", "loss_floor", "pce_capped", "ect_outside_fit")}
         masks["loss_class_pooled"] = np.broadcast_to(pooled, shape) & viable
         masks["donor_only_model"] = np.full(shape, self.model == "scharber" and self.absorber == "donor")
         result = {

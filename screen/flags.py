@@ -110,6 +110,10 @@ _REGISTRY = (
                        "extrapolate beyond any measured blend (typically a narrow-gap pair)", "info"),
     Flag("pce_capped", "efficiency limited to the detailed-balance (Shockley–Queisser) limit for the absorber "
                        "gap", "info"),
+    Flag("ect_outside_fit", "charge-transfer energy E_CT (the smaller of LUMO_A − HOMO_D and the smaller optical gap) "
+                            "outside the range of the published devices the model was fitted on{ect_range}: the "
+                            "voltage loss is held at the nearest fitted device's, so this Voc is an extrapolation",
+         "info"),
     Flag("alignment_uncertain", "an offset to the partner lies so close to its threshold, for the levels' σ, that the "
                                 "verdict on the alignment has a one-in-four chance or more of being the other "
                                 "way (p_aligned between 0.25 and 0.75)", "info"),
@@ -183,8 +187,8 @@ INFO_FLAGS = frozenset(f.code for f in _REGISTRY if f.severity == "info")
 NOT_VIABLE_FLAGS = frozenset(f.code for f in _REGISTRY if f.severity == _NV)
 #: the flags the device model itself raises (the rest come from ranking filters), in registry order
 DEVICE_FLAGS = ("input_missing", "absorber_gap_invalid", "lumo_inverted", "homo_inverted", "lumo_offset_low",
-                "homo_offset_low", "voc_nonpositive", "voc_capped", "loss_floor", "pce_capped", "loss_class_pooled",
-                "donor_only_model")
+                "homo_offset_low", "voc_nonpositive", "voc_capped", "loss_floor", "pce_capped", "ect_outside_fit",
+                "loss_class_pooled", "donor_only_model")
 
 
 def is_not_viable(code: str) -> bool:
@@ -311,7 +315,11 @@ def describe(code: str, settings: dict | None = None) -> str:
     g_lo, g_hi = _setting(settings, "gap_min_ev"), _setting(settings, "gap_max_ev")
     limit = _setting(settings, "max_heavy_atoms")
     window = "" if math.isnan(g_lo) or math.isnan(g_hi) else f" ({_fmt_bound(g_lo)}\u2013{_fmt_bound(g_hi)} eV)"
+    e_lo = cell_number(_get(settings, "device", "fitted", "ect_min_ev"))
+    e_hi = cell_number(_get(settings, "device", "fitted", "ect_max_ev"))
+    ect_range = "" if not (math.isfinite(e_lo) and math.isfinite(e_hi)) else f" ({e_lo:.2f}\u2013{e_hi:.2f} eV)"
     return FLAGS[code].text.format(
+        ect_range=ect_range,
         min_lumo=_min_offset(min_lumo),
         min_homo=_min_offset(min_homo),
         window=window,
