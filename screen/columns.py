@@ -6,7 +6,12 @@ See ``docs/contracts.md`` for what each column means, its unit and its scale.
 from __future__ import annotations
 
 __all__ = ["RAW_COLUMNS", "EXTRA_RAW_COLUMNS", "CONFORMER_SPREAD_COLUMNS", "ELECTRONIC_COLUMNS", "CALIBRATED_COLUMNS",
-           "LEVELS_CONTRACT_COLUMNS", "LEVELS_MIN_COLUMNS", "SIGMA_COLUMNS", "RANKING_COLUMNS", "RANKING_EXTRA_COLUMNS"]
+           "LEVELS_CONTRACT_COLUMNS", "LEVELS_MIN_COLUMNS", "SIGMA_COLUMNS", "RANKING_COLUMNS", "RANKING_EXTRA_COLUMNS",
+           "TIE_SEPARATOR"]
+
+#: separator of the partner ids in the partner matrix's ``best_partner`` on an exact tie (as the codes in a
+#: ranking's ``flags``; :mod:`screen.matrix`, read back by :mod:`screen.report.matrix_page`)
+TIE_SEPARATOR = ";"
 
 #: raw engine values of ``levels.csv`` (ΔSCF IP/EA and orbital energies of the neutral) [eV]
 RAW_COLUMNS = ["xtb_ip_ev", "xtb_ea_ev", "xtb_homo_ev", "xtb_lumo_ev", "xtb_gap_ev"]

@@ -38,6 +38,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from screen.columns import TIE_SEPARATOR
 from screen.io import text_cells
 from screen.viability import WRITTEN_DECIMALS
 
@@ -49,8 +50,6 @@ __all__ = ["MATRIX_LEAD", "TIE_SEPARATOR", "BEST_PARTNER_RULE", "cell_notes", "p
 MATRIX_LEAD = ["id", "name", "smiles", "best_partner", "best_pce_pct", "viable_partners", "best_partner_resolved",
                "best_partner_note"]
 
-#: separator of the partner ids in ``best_partner`` on an exact tie (as the codes in a ranking's ``flags``)
-TIE_SEPARATOR = ";"
 #: how ``best_partner`` and ``best_partner_resolved`` are decided (recorded in ``matrix.meta.json``)
 BEST_PARTNER_RULE = ("every partner of the largest cell (equal pce_pct as written, 4 decimals: a tie), joined by ';'; "
                      "resolved = false on a tie or when another viable partner k has PCE_best - PCE_k < "

@@ -35,7 +35,7 @@ import pandas as pd
 
 from screen import __version__
 from screen.io import atomic_path
-from screen.matrix import TIE_SEPARATOR
+from screen.columns import TIE_SEPARATOR
 from screen.report.drawings import molecule_svg
 from screen.report.format import esc, fmt, isolated, num
 from screen.report.header import device_tests_html
