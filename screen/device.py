@@ -474,8 +474,10 @@ class DeviceModel:
         with np.errstate(invalid="ignore"):
             return (e_ct < p.ect_min_ev - OFFSET_TOL_EV) | (e_ct > p.ect_max_ev + OFFSET_TOL_EV)
 
-    def pce_bound_pct(self) -> float:
-        """An upper bound of the PCE any pair can get from this model [%].
+    def pce_bound_pct(self, acceptor_class: str | None = None) -> float:
+        """An upper bound of the PCE any pair can get from this model [%]; with ``acceptor_class``, any pair whose
+        acceptor is of that class (its EQE and fill factor; a referee's check: against a fullerene partner no pair
+        could reach a 10 % target, and the warning, held to the bound of every class, said nothing).
 
         Over absorber gaps g up to :data:`screen.viability.GAP_MAX_EV`: Voc no more than the detailed-balance Voc of
         g, g less the fitted floor on E_g − qVoc, and (Scharber's rule) g less the smallest offset threshold and
@@ -492,6 +494,9 @@ class DeviceModel:
         >>> round(DeviceModel(model="scharber", eqe=1.0, ff=1.0, loss_v=0.0, min_delta_lumo_ev=0.0,
         ...                   min_delta_homo_ev=0.0).pce_bound_pct(), 1)  # detailed balance (Rühle 2016: 33.7 %)
         33.7
+        >>> m = DeviceModel()
+        >>> m.pce_bound_pct("fullerene") < m.pce_bound_pct() == m.pce_bound_pct("")
+        True
         """
         g = np.arange(0.3, GAP_MAX_EV, 0.001)
         voc = np.minimum(np.asarray(sq_voc_v(g), float), g - gap_floor(self))
@@ -499,7 +504,10 @@ class DeviceModel:
             offsets = [self.value("min_delta_lumo_ev")] + ([self.value("min_delta_homo_ev")]
                                                            if self.absorber == "both" else [])
             voc = np.minimum(voc, g - min(offsets) - self.value("loss_v"))
-        pce = (np.clip(voc, 0.0, None) * self.eqe_bound * np.asarray(jsc_ma_cm2(g, 1.0), float) * self.ff_max
+        eqe, ff = self.eqe_bound, self.ff_max
+        if acceptor_class:
+            eqe, ff = float(self.eqe_of([acceptor_class])[0]), float(self.ff_of([acceptor_class])[0])
+        pce = (np.clip(voc, 0.0, None) * eqe * np.asarray(jsc_ma_cm2(g, 1.0), float) * ff
                * 1000.0 / self.incident_power_w_m2)
         return float(np.max(np.minimum(pce, self._sq_pct(sq_pce_pct(g)))))
 

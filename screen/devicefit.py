@@ -101,8 +101,8 @@ from screen.device import DeviceModel
 from screen.devicelevels import (DEVICES_PATH, FC_SCALE_EV, FILM_PATH, LEVELS, MIN_SHARED_MATERIALS, level_table,
                                  read_devices, resolve_levels)
 from screen.devicekernel import voc_limit
-from screen.devicepars import (FITTED_PATH, FULLERENE, NON_FULLERENE, POOLED, FittedParameters, class_values,
-                               family_of, slope_loss)
+from screen.devicepars import (FITTED_PATH, FULLERENE, NON_FULLERENE, OFFSET_SCALE_MIN_EV, POOLED, FittedParameters,
+                               class_values, family_of, slope_loss)
 from screen.errors import InputError
 from screen.spectrum import jsc_ma_cm2
 
@@ -133,7 +133,7 @@ GROUPINGS = {"acceptor": "group", "donor": "donor_group"}
 #: (the current rule first: a tie keeps it), with the names of their scores
 FULLERENE_ABSORBER_CHOICES = {True: "fullerene_absorbs", False: "donor_gap_only"}
 #: offset scales Δ0 tried for the charge-generation yield [eV]
-OFFSET_SCALE_GRID_EV = np.round(np.arange(0.01, 0.401, 0.01), 3)
+OFFSET_SCALE_GRID_EV = np.round(np.arange(OFFSET_SCALE_MIN_EV, 0.401, 0.01), 3)
 _LEVELS = LEVELS
 
 

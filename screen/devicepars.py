@@ -30,6 +30,7 @@ import numpy as np
 from screen.errors import ConfigError, InputError
 
 __all__ = ["FittedParameters", "slope_loss", "FITTED_PATH", "VALIDATION_PATH", "load_fitted", "device_tests", "POOLED",
+           "OFFSET_SCALE_MIN_EV",
            "SHIPPED_MODELS", "shipped_calibration", "computed_levels_apply", "calibration_kind",
            "voc_unranked_classes", "UNRANKED_SPEARMAN",
            "NON_FULLERENE", "FULLERENE", "family_of", "class_values", "ACCEPTOR_CLASSES", "acceptor_class_key",
@@ -39,6 +40,9 @@ __all__ = ["FittedParameters", "slope_loss", "FITTED_PATH", "VALIDATION_PATH", "
 FITTED_PATH = Path(__file__).resolve().parent.parent / "models" / "device" / "fitted.json"
 #: key of the loss used for acceptor classes the fit has no value for
 POOLED = "pooled"
+#: the smallest offset scale Δ0 the device fit tries [eV]: a fitted Δ0 there is the grid's edge, in effect a step
+#: of the charge-generation yield at zero offset (:data:`screen.devicefit.OFFSET_SCALE_GRID_EV`)
+OFFSET_SCALE_MIN_EV = 0.01
 #: key of the loss of every non-fullerene class without a value of its own
 NON_FULLERENE = "non-fullerene"
 #: the fullerene acceptor class (:func:`screen.viability.acceptor_class_of`), also a family of its own

@@ -1077,11 +1077,14 @@ def _say_assumptions(levels: pd.DataFrame, levels_path: Path, partner: Partner, 
                      options: RankOptions | None = None) -> None:
     """On stderr: inputs taken as exact for want of σ, a partner that is no measured material, and a target PCE
     no pair can reach under the model."""
-    if options is not None and options.target_pce_pct >= (bound := model.pce_bound_pct()):
+    # against an acceptor partner every pair has the partner's class: the bound of that class
+    cls = (partner.acceptor_class or acceptor_class_of(partner.smiles)) if partner.role == "acceptor" else ""
+    if options is not None and options.target_pce_pct >= (bound := model.pce_bound_pct(cls or None)):
+        pairs = f"any pair with {partner.id} (acceptor class {cls})" if cls else "any pair"
         print(f"dascreen rank: target {options.target_pce_pct:g} % PCE is above what the {model.model} device model "
-              f"can give any pair (at most {bound:.1f} %, an upper bound, {_ceiling_why(model)}), so P(PCE > target) "
-              "is 0 for every row; give a lower --target-pce to compare candidates, or set device.eqe and device.ff "
-              "to the values of your own best cells", file=sys.stderr)
+              f"can give {pairs} (at most {bound:.1f} %, an upper bound, {_ceiling_why(model, cls)}), so "
+              "P(PCE > target) is 0 for every row; give a lower --target-pce to compare candidates, or set device.eqe "
+              "and device.ff to the values of your own best cells", file=sys.stderr)
     given = [c for c in SIGMA_COLUMNS if c in levels.columns]
     if len(levels) and not any((pd.to_numeric(levels[c], errors="coerce") > 0).any() for c in given):
         print(f"dascreen rank: {levels_path} gives no σ (homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev): its levels "
@@ -1108,7 +1111,7 @@ def _say_assumptions(levels: pd.DataFrame, levels_path: Path, partner: Partner, 
               file=sys.stderr)  # the published model's reference level, on its own convention
 
 
-def _ceiling_why(model: DeviceModel) -> str:
+def _ceiling_why(model: DeviceModel, acceptor_class: str = "") -> str:
     """Why the device model's PCE ceiling is where it is, naming whose EQE and fill factor it uses: the user's
     (``device.eqe`` / ``device.ff`` set), the published rule's own constants (Scharber), or the fitted averages of
     published devices (a maintainer's review: "averages of published devices" was said of all three).
@@ -1121,12 +1124,17 @@ def _ceiling_why(model: DeviceModel) -> str:
     "with the EQE 0.80 you set and the published rule's fill factor 0.65"
     >>> _ceiling_why(DeviceModel(eqe=0.8, ff=0.7))
     'with the EQE 0.80 and fill factor 0.70 you set'
+    >>> _ceiling_why(DeviceModel(), "fullerene")
+    "with its fullerene acceptors' EQE 0.48 and fill factor 0.58, averages of published devices, so its estimates run below the best measured cells"
     """
     eqe, ff = f"EQE {model.eqe_bound:.2f}", f"fill factor {model.ff_max:.2f}"
     if model.model != "scharber" and model.ff is None:
         ff = f"fill factor up to {model.ff_max:.2f}"  # the largest of the acceptor classes' fitted values
     if model.eqe_follows_class:
         eqe = f"EQE up to {model.eqe_bound:.2f}"
+    if acceptor_class and (model.eqe_follows_class or model.ff_follows_class):
+        eqe = f"{acceptor_class} acceptors' EQE {float(model.eqe_of([acceptor_class])[0]):.2f}"
+        ff = f"fill factor {float(model.ff_of([acceptor_class])[0]):.2f}"
     source = "the published rule's" if model.model == "scharber" else "the fitted"
     mine = {"eqe": model.eqe is not None, "ff": model.ff is not None}
     if mine["eqe"] and mine["ff"]:

@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from screen.devicepars import calibration_kind, computed_levels_apply
+from screen.devicepars import OFFSET_SCALE_MIN_EV, calibration_kind, computed_levels_apply
 from screen.report.format import NOT_RECORDED, esc, fmt, fmt_pm, get, isolated, num, shorten, text, texts, truthies
 
 __all__ = ["partner_card", "protocol_card", "device_card", "counts_strip", "settings_line"]
@@ -313,8 +313,10 @@ def _device_items(dev: dict) -> list[tuple[str, str]]:
     fitted = dev.get("fitted") if isinstance(dev.get("fitted"), dict) else {}
     scale = num(dev.get("offset_scale_ev"))
     scale = num(fitted.get("offset_scale_ev")) if math.isnan(scale) else scale
+    edge = ("; the smallest value the fit tries, so in effect a step at zero offset"
+            if abs(scale - OFFSET_SCALE_MIN_EV) < 1e-9 else "")
     yield_row = ([("EQE offset scale \u0394<sub>0</sub>",
-                   f"{fmt(scale)} eV (charge-generation yield 1 \u2212 exp(\u2212\u0394/\u0394<sub>0</sub>))")]
+                   f"{fmt(scale)} eV (charge-generation yield 1 \u2212 exp(\u2212\u0394/\u0394<sub>0</sub>){edge})")]
                  if text(dev.get("model")) == "fitted" and not math.isnan(scale) else [])
     return [
         ("EQE", _per_class_words(dev, "eqe")),
