@@ -189,7 +189,15 @@ class FittedParameters:
             if not (math.isfinite(float(val)) and float(val) >= 0):
                 raise ConfigError(f"fitted device parameters {self.source}: loss_ev[{key!r}] must be >= 0")
         for name in ("ff_by_class", "eqe_by_class"):
-            for key, val in getattr(self, name).items():
+            values = getattr(self, name)
+            if not isinstance(values, dict):
+                raise ConfigError(f"fitted device parameters {self.source}: {name} must be a mapping of acceptor "
+                                  f"class to value, not {type(values).__name__}")
+            unknown = sorted(str(k) for k in values if k not in (*ACCEPTOR_CLASSES, NON_FULLERENE))
+            if unknown:  # a key no pair can have would only lift the ceiling (an adversarial tester: 19.7 %)
+                raise ConfigError(f"fitted device parameters {self.source}: {name} has {', '.join(unknown)}; the keys "
+                                  f"are acceptor classes ({', '.join(ACCEPTOR_CLASSES)}) or {NON_FULLERENE!r}")
+            for key, val in values.items():
                 if not (math.isfinite(float(val)) and 0.0 < float(val) <= 1.0):
                     raise ConfigError(f"fitted device parameters {self.source}: {name}[{key!r}] = {val}; "
                                       f"need 0 < {name.split('_')[0]} <= 1")
@@ -379,7 +387,7 @@ def load_fitted(path: str | None = None) -> FittedParameters:
                                 eqe_by_class={str(k): float(v) for k, v in params.get("eqe_by_class", {}).items()},
                                 source=str(target),
                                 meta={k: v for k, v in data.items() if k != "parameters"})
-    except (KeyError, TypeError, ValueError) as exc:
+    except (KeyError, TypeError, ValueError, AttributeError) as exc:  # AttributeError: a list where a mapping goes
         raise ConfigError(f"{target}: not a fitted device model ({type(exc).__name__}: {exc}); rewrite it with "
                           "`python -m screen.devicefit --write`") from exc
 

@@ -30,13 +30,15 @@ films red-shift more on packing (Y6 ≈ 90 nm from chloroform to film [1]_, ITIC
 ≈ 30–40 nm, from memory). The optical-gap model carries a term for it too; with three
 members in the film set it is the smallest class the model has, and its worth is measured
 on devices held out (docs/method.md, ``benchmarks/device_validation.py``). The same ladder core with a
-benzoselenadiazole or a 2H-benzotriazole in place of the benzothiadiazole is counted in the class too (since
+benzoselenadiazole or an N-substituted benzotriazole (1H or 2H) in place of the benzothiadiazole is counted in the
+class too (since
 2026-12-05): the cause named above is the shape and packing of the A–DA′D–A molecule, which such an exchange keeps,
 and without the term an acceptor chemist's benzoselenadiazole analogue of Y6 came out 0.17 eV wider in gap than Y6
 (a chalcogen exchange that narrows the gap a little, from memory); with it, 1.43 eV against Y6's 1.39. No
 acceptor with either core is in the calibration sets, so the fit does not move; one is in the device set, the
 benzotriazole-core Y1 (film optical gap 1.44 eV, recalled in ``models/reference/devices.csv``): computed with the
-default protocol 1.45 eV with the term, 1.58 eV without. A quinoxaline (six-membered) core is not counted.
+default protocol 1.45 eV with the term, 1.58 eV without. A quinoxaline (six-membered) core and the oxygen analogue
+(benzoxadiazole) are not counted: no such acceptor was at hand to check.
 
 References
 ----------

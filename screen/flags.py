@@ -112,7 +112,8 @@ _REGISTRY = (
                        "gap", "info"),
     Flag("ect_outside_fit", "charge-transfer energy E_CT (the smaller of LUMO_A − HOMO_D and the smaller optical gap) "
                             "outside the range of the published devices the model was fitted on{ect_range}: the "
-                            "voltage loss is held at the nearest fitted device's, so this Voc is an extrapolation",
+                            "fitted voltage loss is held at the nearest fitted device's, so this Voc is an "
+                            "extrapolation",
          "info"),
     Flag("alignment_uncertain", "an offset to the partner lies so close to its threshold, for the levels' σ, that the "
                                 "verdict on the alignment has a one-in-four chance or more of being the other "
@@ -134,8 +135,8 @@ _REGISTRY = (
                                     "chains were cut (smiles_computed): the same numbers, which do not resolve "
                                     "the side chains beyond their first branch point", "info"),
     Flag("acceptor_class_unknown", "the acceptor's class (fullerene, fused-ring or other non-fullerene, polymer) "
-                                   "could not be told without its SMILES: the pooled fill factor of all classes "
-                                   "is used, which moves the PCE by up to about a fifth", "info"),
+                                   "could not be told without its SMILES: the pooled EQE and fill factor of all "
+                                   "classes are used, which moves the PCE by up to about a third", "info"),
     Flag("class_voc_unranked", "device model: in this pair's acceptor class the fitted Voc did not rank the "
                                "published devices held out (Spearman below 0.3 in models/device/fitted.json; "
                                "today the other non-fullerene acceptors: rylene diimides, rhodanine-ended and "

@@ -166,16 +166,29 @@ def _best_cells(frame: pd.DataFrame) -> tuple[pd.Series, pd.Series]:
 
 def _within(best: float, best_sigmas: list, other: float, other_sigma: float) -> float | None:
     """The ± [PCE points] of the difference ``best - other`` when ``other`` lies within it, NaN when it lies outside,
-    None when that cannot be told (a σ is unknown).
+    None when that cannot be told (a σ is unknown, or both are 0: levels given without σ).
 
     ``best_sigmas`` holds the σ of every partner tied at ``best``: ``other`` is within when it is within the ±
-    of its difference from any of them (the largest such ± is returned).
+    of its difference from any of them (the largest such ± is returned). With one σ unknown the ± is at least that
+    of the known one: a difference inside that is within already (an adversarial tester: a rival 0.07 points
+    behind, with a σ of 1.58, was left unnamed because the other σ was missing).
+
+    Examples
+    --------
+    >>> nan = float("nan")
+    >>> _within(9.0, [nan], 8.93, 1.58), _within(9.0, [nan], 5.0, 1.58), _within(9.0, [0.0], 8.9, 0.0)
+    (1.58, None, None)
     """
+    def known(s: float) -> float:
+        return 0.0 if math.isnan(s) else s
+
     combined = [math.hypot(s, other_sigma) for s in best_sigmas]
-    inside = [c for c in combined if not math.isnan(c) and best - other < c]
+    inside = [c for c in combined if not math.isnan(c) and c > 0 and best - other < c]
+    inside += [math.hypot(known(s), known(other_sigma)) for s, c in zip(best_sigmas, combined)
+               if math.isnan(c) and best - other < math.hypot(known(s), known(other_sigma))]
     if inside:
         return max(inside)
-    return None if any(math.isnan(c) for c in combined) else math.nan
+    return None if any(math.isnan(c) or c == 0 for c in combined) else math.nan
 
 
 def best_partner_verdict(partners, values, sigmas) -> tuple[str, bool | None, str]:
@@ -236,8 +249,13 @@ difference'
     >>> best_partner_verdict(["pm6", "d18", "pbdb-t"], [13.54, 13.54, 11.0], [3.6, 3.6, 0.1])[2]
     'not resolved: pm6 and d18 tie at 13.54 %; pbdb-t 11.00 ± 0.10 % lies 2.54 points below the tie at 13.54 %, \
 within the ± 3.60 of the difference'
-    >>> best_partner_verdict(["pm6", "d18"], [9.0, 8.9], [0.5, nan])[1:]
+    >>> best_partner_verdict(["pm6", "d18"], [9.0, 7.0], [0.5, nan])[1:]
     (None, 'cannot tell: the PCE spread (pce_sigma_pct) of d18 is not known, so whether d18 lies within the \
+uncertainty is not tested')
+    >>> best_partner_verdict(["pm6", "d18"], [9.0, 8.9], [0.5, nan])[1]  # within the known σ alone already
+    False
+    >>> best_partner_verdict(["pm6", "d18"], [9.0, 8.9], [0.0, 0.0])[1:]
+    (None, 'cannot tell: the levels were given without σ (pce_sigma_pct 0), so whether d18 lies within the \
 uncertainty is not tested')
     >>> best_partner_verdict(["pm6", "d18"], [9.0, 3.0], [0.5, 0.6])
     ('pm6', True, '')
@@ -275,8 +293,10 @@ uncertainty is not tested')
     if parts:
         return label, False, "not resolved: " + "; ".join(parts)
     if unknown:
-        missing = _and([str(partners[j]) for j in [*tied, *unknown] if np.isnan(sigmas[j])])
-        return label, None, (f"cannot tell: the PCE spread (pce_sigma_pct) of {missing} is not known, so whether "
+        missing = [str(partners[j]) for j in [*tied, *unknown] if np.isnan(sigmas[j])]
+        why = (f"the PCE spread (pce_sigma_pct) of {_and(missing)} is not known" if missing else
+               "the levels were given without σ (pce_sigma_pct 0)")
+        return label, None, (f"cannot tell: {why}, so whether "
                              f"{_and([str(partners[k]) for k in unknown])} lie{'s' if len(unknown) == 1 else ''} "
                              f"within the uncertainty is not tested")
     return label, True, ""

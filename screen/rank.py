@@ -540,7 +540,7 @@ def p_aligned(pair_levels, pair_sigmas, min_lumo: float, min_homo: float, check_
 
 
 def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, partner: Partner,
-                options: RankOptions, ff_follows_class: bool, unranked=frozenset()) -> dict[str, np.ndarray]:
+                options: RankOptions, follows_class: bool, unranked=frozenset()) -> dict[str, np.ndarray]:
     """One boolean mask per flag code (:data:`screen.flags.FLAG_ORDER`): device flags of the rows with a
     pair, the gap window, the heavy-atom limit and the role flags (``dev`` with ``p_aligned`` and
     ``acceptor_class``); ``unranked``: acceptor classes without held-out Voc ranking skill.
@@ -587,7 +587,7 @@ def _flag_masks(lv: pd.DataFrame, cand: _Candidates, roles: _Roles, dev: dict, p
         "gas_scale_levels": pair_ok & (_scale(lv) == "gas"),
         "heavy_atoms_unknown": heavy_unknown,
         "alignment_uncertain": pair_ok & (aligned > ALIGNMENT_UNCERTAIN[0]) & (aligned < ALIGNMENT_UNCERTAIN[1]),
-        "acceptor_class_unknown": (pair_ok & np.asarray(dev["viable"], bool) & ff_follows_class
+        "acceptor_class_unknown": (pair_ok & np.asarray(dev["viable"], bool) & follows_class
                                    & (np.asarray(dev["acceptor_class"], dtype=object).astype(str) == "")),
         "class_voc_unranked": (pair_ok & np.asarray(dev["viable"], bool)
                                & np.isin(np.asarray(dev["acceptor_class"], dtype=object).astype(str), list(unranked))),
@@ -1036,7 +1036,7 @@ def rank_candidates(levels_df: pd.DataFrame, partner: Partner, model: DeviceMode
                                                          model.value("min_delta_homo_ev"), model.check_homo_offset),
                                 np.nan)
     unranked = voc_unranked_classes() if model.model == "fitted" else frozenset()
-    masks = _flag_masks(lv, cand, roles, dev, partner, options, model.ff_follows_class, unranked)
+    masks = _flag_masks(lv, cand, roles, dev, partner, options, model.follows_class, unranked)
     sampled = roles.paired & _viable(masks)
     spread = _spread(model, pair, sampled, options)
     masks.update(_spread_masks(spread, sampled))  # info flags: viability and passes unchanged

@@ -1093,10 +1093,10 @@ def _say_assumptions(levels: pd.DataFrame, levels_path: Path, partner: Partner, 
         print(f"dascreen rank: partner file {partner.spec} gives no σ: its levels are taken as exact (the built-in "
               "partners carry ±0.1–0.3 eV); add homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev to include it",
               file=sys.stderr)
-    if (partner.role == "acceptor" and model.ff_follows_class and not partner.acceptor_class
+    if (partner.role == "acceptor" and model.follows_class and not partner.acceptor_class
             and not acceptor_class_of(partner.smiles)):  # a metamorphic tester: y6 by file, not name, lost 0.4 points
         print(f"dascreen rank: partner {partner.spec or partner.id} gives neither a SMILES nor an acceptor_class, so "
-              "the fitted model takes its pooled values (fill factor), not those of the acceptor's class (flag "
+              "the fitted model takes its pooled values (EQE and fill factor), not those of the acceptor's class (flag "
               f"acceptor_class_unknown); add a smiles or an acceptor_class column ({', '.join(ACCEPTOR_CLASSES)})",
               file=sys.stderr)
     if model.model == "scharber" and not partner.notes.startswith("NOT a measured material"):
@@ -1126,15 +1126,20 @@ def _ceiling_why(model: DeviceModel, acceptor_class: str = "") -> str:
     'with the EQE 0.80 and fill factor 0.70 you set'
     >>> _ceiling_why(DeviceModel(), "fullerene")
     "with its fullerene acceptors' EQE 0.48 and fill factor 0.58, averages of published devices, so its estimates run below the best measured cells"
+    >>> _ceiling_why(DeviceModel(eqe=0.8), "fullerene")
+    "with the EQE 0.80 you set and the fitted fullerene acceptors' fill factor 0.58"
     """
     eqe, ff = f"EQE {model.eqe_bound:.2f}", f"fill factor {model.ff_max:.2f}"
     if model.model != "scharber" and model.ff is None:
         ff = f"fill factor up to {model.ff_max:.2f}"  # the largest of the acceptor classes' fitted values
     if model.eqe_follows_class:
         eqe = f"EQE up to {model.eqe_bound:.2f}"
-    if acceptor_class and (model.eqe_follows_class or model.ff_follows_class):
-        eqe = f"{acceptor_class} acceptors' EQE {float(model.eqe_of([acceptor_class])[0]):.2f}"
-        ff = f"fill factor {float(model.ff_of([acceptor_class])[0]):.2f}"
+    whose = f"{acceptor_class} acceptors' " if acceptor_class else ""
+    if whose and model.eqe_follows_class:  # the class's own values, each only where it is the class's
+        eqe = f"{whose}EQE {float(model.eqe_of([acceptor_class])[0]):.2f}"
+        whose = ""
+    if acceptor_class and model.ff_follows_class:
+        ff = f"{whose}fill factor {float(model.ff_of([acceptor_class])[0]):.2f}"
     source = "the published rule's" if model.model == "scharber" else "the fitted"
     mine = {"eqe": model.eqe is not None, "ff": model.ff is not None}
     if mine["eqe"] and mine["ff"]:

@@ -25,7 +25,7 @@ def test_the_shipped_range_is_the_fitted_devices():
 
 
 @pytest.mark.parametrize("donor, acceptor, outside", [
-    (PM6, (-5.65, -4.09, 1.36), False),                # Y6 film levels: E_CT 1.36 eV
+    (PM6, (-5.65, -4.09, 1.36), False),                # Y6, film set (OPV2D, Joule 3 (2019) 1140): E_CT 1.36 eV
     (PM6, (-5.60, -4.60, 0.95), True),                 # E_CT 0.89 eV (LUMO_A − HOMO_D), below every device
     ((-5.90, -3.00, 2.60), (-6.40, -3.90, 2.20), True)])  # a wide-gap pair: E_CT 2.00 eV, above every device
 def test_a_pair_outside_the_fitted_range_is_told(donor, acceptor, outside):

@@ -17,7 +17,7 @@ from screen.devicepars import FittedParameters, load_fitted
 from screen.errors import ConfigError
 from screen.sampling import sample_pce
 
-#: a fused-ring acceptor against a wide-gap polymer donor (film-scale levels of the kind of PM6:Y6, eV)
+#: a fused-ring acceptor against a wide-gap polymer donor (illustrative film-scale levels, eV; not a check value)
 PAIR = (-5.50, -3.50, 1.80, -5.65, -4.09, 1.36)
 
 

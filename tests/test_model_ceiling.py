@@ -25,7 +25,8 @@ def test_no_pair_beats_the_bound(model):
     a_lumo = rng.uniform(-4.4, -3.6, n)
     a_gap, d_gap = rng.uniform(0.9, 2.4, n), rng.uniform(0.9, 2.4, n)
     d_lumo = a_lumo + rng.uniform(0.0, 0.6, n)
-    a_homo, d_homo = a_lumo - a_gap, d_lumo - d_gap
+    # film-scale levels: a HOMO–LUMO difference up to 1 eV above the optical gap (Scharber's Voc follows the levels)
+    a_homo, d_homo = a_lumo - a_gap - rng.uniform(0.0, 1.0, n), d_lumo - d_gap - rng.uniform(0.0, 1.0, n)
     classes = rng.choice(np.array(("",) + ACCEPTOR_CLASSES, dtype=object), n)
     out = model.evaluate(d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap, acceptor_class=classes)
     best = float(np.nanmax(out["pce_pct"]))
@@ -34,7 +35,10 @@ def test_no_pair_beats_the_bound(model):
 
 
 def test_the_published_rule_and_detailed_balance():
-    assert DeviceModel(model="scharber").pce_bound_pct() == pytest.approx(11.1, abs=0.05)
+    # on the published map's own levels (HOMO–LUMO difference = optical gap) the rule peaks at 11.1 %
+    from screen.device import efficiency_map
+    assert np.nanmax(efficiency_map(np.arange(0.8, 3.0, 0.01), np.arange(0.0, 1.5, 0.01))) == pytest.approx(11.1,
+                                                                                                        abs=0.05)
     ideal = DeviceModel(model="scharber", eqe=1.0, ff=1.0, loss_v=0.0, min_delta_lumo_ev=0.0, min_delta_homo_ev=0.0)
     assert ideal.pce_bound_pct() == pytest.approx(33.7, abs=0.05)
 

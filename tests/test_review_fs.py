@@ -138,9 +138,10 @@ def test_status_still_calls_a_missing_written_report_incomplete(levels, tmp_path
 # --------------------------------------------------------------------------- 5. whose EQE and fill factor
 
 @pytest.mark.parametrize("sets, said, target", [
-    (["device.model=scharber"], "(at most 11.1 %, an upper bound, with the published rule's EQE 0.65 and fill "
-                                "factor 0.65)", "12"),
-    (["device.eqe=0.8"], "an upper bound, with the EQE 0.80 you set and the fitted fill factor up to", "30")])
+    (["device.model=scharber"], "(at most 16.3 %, an upper bound, with the published rule's EQE 0.65 and fill "
+                                "factor 0.65)", "17"),
+    (["device.eqe=0.8"], "an upper bound, with the EQE 0.80 you set and the fitted nfa-fused acceptors' fill factor 0.70",
+     "30")])
 def test_the_target_warning_names_whose_eqe_and_ff(sets, said, target, levels, tmp_path, capsys):
     argv = ["rank", "--levels", levels, "--out", tmp_path / "o", "--partner", "y6", "--target-pce", target]
     for s in sets:

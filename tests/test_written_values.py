@@ -152,7 +152,7 @@ def test_a_partner_file_without_structure_or_class_is_named(tmp_path, capsys, mo
     assert main(["rank", "--levels", "own.csv", "--out", "o", "--partner", "p.csv"]) == 0
     err = capsys.readouterr().err
     assert ("dascreen rank: partner p.csv gives neither a SMILES nor an acceptor_class, so the fitted model takes "
-            "its pooled values (fill factor)") in err
+            "its pooled values (EQE and fill factor)") in err
     assert main(["rank", "--levels", "own.csv", "--out", "o", "--partner", "q.csv"]) == 0
     assert "acceptor_class, so" not in capsys.readouterr().err
 

@@ -1,5 +1,5 @@
-"""The Y6/BTP optical-gap class (``y_core``) counts the benzoselenadiazole and 2H-benzotriazole analogues of the
-benzothiadiazole ladder core (an acceptor chemist's audit, 2026-12-05: a benzoselenadiazole analogue of Y6 came out
+"""The Y6/BTP optical-gap class (``y_core``) counts the benzoselenadiazole and N-substituted benzotriazole analogues
+of the benzothiadiazole ladder core (an acceptor chemist's audit, 2026-12-05: a benzoselenadiazole analogue of Y6 came out
 0.17 eV wider in gap than Y6, without the class term).
 
 Check value: the benzotriazole-core acceptor Y1 (film optical gap 1.44 eV, recalled, ``models/reference/devices.csv``
