@@ -50,6 +50,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from screen.columns import TIE_SEPARATOR
 from screen.devicepars import acceptor_class_key
 from screen.errors import InputError
 from screen.io import text_cells
@@ -510,6 +511,9 @@ def _row_partner(row: dict, *, kind: str, spec: str, slug: str, where: str, sour
     if not pid:
         raise PartnerError(f"{where}: the partner's id is empty; write its name in the id column (it names the "
                            "partner in the ranking)")
+    if TIE_SEPARATOR in pid:  # an adversarial tester: 'x;y' read as two partners in best_partner
+        raise PartnerError(f"{where}: the partner's id {quoted(pid)} contains {TIE_SEPARATOR!r}, which separates tied "
+                           "partners in the partner matrix (best_partner); rename it in the id column")
     vals = {c: _float(row.get(c), f"{where}: {c} of {quoted(pid)}") for c in ("homo_ev", "lumo_ev", "gap_opt_ev")}
     for c in ("homo_ev", "lumo_ev", "gap_opt_ev"):
         if math.isinf(vals[c]):

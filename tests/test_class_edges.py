@@ -66,3 +66,13 @@ def test_a_malformed_class_table_is_refused_naming_the_file(tmp_path, bad, said)
     with pytest.raises(ConfigError, match=said) as err:
         load_fitted(str(path))
     assert str(path) in str(err.value)
+
+
+def test_a_partner_id_with_the_tie_separator_is_refused(tmp_path, capsys, monkeypatch):
+    # the partner matrix joins tied partners' ids with ';': 'x;y' would read as two partners
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "d.csv").write_text("id,role,homo_ev,lumo_ev,gap_opt_ev,scale\nD1,donor,-5.3,-3.5,1.7,film\n")
+    (tmp_path / "p.csv").write_text("id,role,homo_ev,lumo_ev,gap_opt_ev,scale\nx;y,acceptor,-5.7,-4.0,1.4,film\n")
+    assert main(["rank", "--levels", "d.csv", "--partner", "p.csv", "--out", "o"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "the partner's id 'x;y' contains ';'" in err[0] and "rename it" in err[0]
