@@ -412,6 +412,10 @@ class DeviceModel:
         """Whether ``name`` ('ff' or 'eqe') comes from the fitted parameters (no override, not Scharber's rule)."""
         return self.model != "scharber" and getattr(self, name) is None
 
+    def _follows(self, name: str) -> bool:
+        """Whether ``name`` ('ff' or 'eqe') depends on the acceptor class: fitted, with values per class."""
+        return self._fitted(name) and bool(getattr(self.parameters, f"{name}_by_class"))
+
     def eqe_of(self, acceptor_class=None) -> np.ndarray:
         """EQE at large offsets per pair: the fitted value of the acceptor's class (else its family's, else
         pooled); the override ``eqe`` or Scharber's 0.65 for every pair when set or chosen. [dimensionless]
@@ -432,7 +436,7 @@ class DeviceModel:
         >>> DeviceModel(model="scharber").eqe_follows_class, DeviceModel(eqe=0.7).eqe_follows_class
         (False, False)
         """
-        return self._fitted("eqe") and bool(self.parameters.eqe_by_class)
+        return self._follows("eqe")
 
     @property
     def follows_class(self) -> bool:
@@ -454,7 +458,7 @@ class DeviceModel:
         >>> DeviceModel(model="scharber").ff_follows_class, DeviceModel(ff=0.7).ff_follows_class
         (False, False)
         """
-        return self._fitted("ff") and bool(self.parameters.ff_by_class)
+        return self._follows("ff")
 
     def ect_outside_fit(self, interface_ev, gap_cap_ev) -> np.ndarray:
         """Where the pair's E_CT = min(LUMO_A − HOMO_D, smaller optical gap) lies outside the E_CT range of the

@@ -81,7 +81,7 @@ from screen.viability import (MC_DECIMALS, OFFSET_TOL_EV, WRITTEN_DECIMALS, acce
                               role_from_levels)
 
 __all__ = [
-    "p_aligned", "ALIGNMENT_UNCERTAIN",
+    "p_aligned", "ALIGNMENT_UNCERTAIN", "partner_acceptor_class",
     "RANKING_COLUMNS",
     "EXTRA_COLUMNS",
     "FLAG_ORDER",
@@ -333,6 +333,12 @@ class _Candidates:
     sigma: dict
 
 
+def partner_acceptor_class(partner: Partner) -> str:
+    """A partner's acceptor class: the one its file gives, else the one its SMILES shows
+    (:func:`screen.viability.acceptor_class_of`); '' when neither tells it."""
+    return partner.acceptor_class or acceptor_class_of(partner.smiles)
+
+
 def _acceptor_classes(lv: pd.DataFrame, needed: np.ndarray) -> np.ndarray:
     """The ``acceptor_class`` column where given (:func:`screen.devicepars.acceptor_class_key`: ``Fullerene`` and
     ``nfa_other`` are ``fullerene`` and ``nfa-other``; another value was refused by :func:`check_input_levels`),
@@ -433,7 +439,7 @@ def _pair(cand: _Candidates, is_donor: np.ndarray, partner: Partner, partner_sig
     s_d_homo, s_a_homo = split(cand.sigma["homo_sigma_ev"], k * partner.homo_sigma_ev)
     s_d_lumo, s_a_lumo = split(cand.sigma["lumo_sigma_ev"], k * partner.lumo_sigma_ev)
     s_d_gap, s_a_gap = split(cand.sigma["gap_opt_sigma_ev"], k * partner.gap_opt_sigma_ev)
-    p_class = (partner.acceptor_class or acceptor_class_of(partner.smiles)) if partner.role != "donor" else ""
+    p_class = partner_acceptor_class(partner) if partner.role != "donor" else ""
     acc_class = np.where(is_donor, p_class, cand_class).astype(object)
     return _Pair((d_homo, d_lumo, d_gap, a_homo, a_lumo, a_gap),
                  (s_d_homo, s_d_lumo, s_d_gap, s_a_homo, s_a_lumo, s_a_gap), acc_class)

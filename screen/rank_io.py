@@ -34,9 +34,9 @@ from screen.devicepars import ACCEPTOR_CLASSES, device_tests
 from screen.errors import InputError
 from screen.io import SD_LINE_MAX, sd_text, text_cells
 from screen.partners import Partner, PartnerError, resolve_partner
-from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, partner_role, rank_candidates)
+from screen.rank import (EXTRA_COLUMNS, RANKING_COLUMNS, RankOptions, partner_acceptor_class, partner_role,
+                         rank_candidates)
 from screen.rank_rows import shortlist_mask
-from screen.viability import acceptor_class_of
 
 __all__ = ["write_shortlist", "shortlist_notice", "longest_oligomers", "computed_geometries", "settings_hash",
            "ranking_folder", "levels_suffix", "set_aside_foreign", "read_ranked_levels", "check_before_computing",
@@ -1078,7 +1078,7 @@ def _say_assumptions(levels: pd.DataFrame, levels_path: Path, partner: Partner, 
     """On stderr: inputs taken as exact for want of σ, a partner that is no measured material, and a target PCE
     no pair can reach under the model."""
     # against an acceptor partner every pair has the partner's class: the bound of that class
-    cls = (partner.acceptor_class or acceptor_class_of(partner.smiles)) if partner.role == "acceptor" else ""
+    cls = partner_acceptor_class(partner) if partner.role == "acceptor" else ""
     if options is not None and options.target_pce_pct >= (bound := model.pce_bound_pct(cls or None)):
         pairs = f"any pair with {partner.id} (acceptor class {cls})" if cls else "any pair"
         print(f"dascreen rank: target {options.target_pce_pct:g} % PCE is above what the {model.model} device model "
@@ -1093,8 +1093,7 @@ def _say_assumptions(levels: pd.DataFrame, levels_path: Path, partner: Partner, 
         print(f"dascreen rank: partner file {partner.spec} gives no σ: its levels are taken as exact (the built-in "
               "partners carry ±0.1–0.3 eV); add homo_sigma_ev, lumo_sigma_ev, gap_opt_sigma_ev to include it",
               file=sys.stderr)
-    if (partner.role == "acceptor" and model.follows_class and not partner.acceptor_class
-            and not acceptor_class_of(partner.smiles)):  # a metamorphic tester: y6 by file, not name, lost 0.4 points
+    if partner.role == "acceptor" and model.follows_class and not cls:  # a metamorphic tester: y6 by file, lost 0.4
         print(f"dascreen rank: partner {partner.spec or partner.id} gives neither a SMILES nor an acceptor_class, so "
               "the fitted model takes its pooled values (EQE and fill factor), not those of the acceptor's class (flag "
               f"acceptor_class_unknown); add a smiles or an acceptor_class column ({', '.join(ACCEPTOR_CLASSES)})",
@@ -1132,14 +1131,12 @@ def _ceiling_why(model: DeviceModel, acceptor_class: str = "") -> str:
     eqe, ff = f"EQE {model.eqe_bound:.2f}", f"fill factor {model.ff_max:.2f}"
     if model.model != "scharber" and model.ff is None:
         ff = f"fill factor up to {model.ff_max:.2f}"  # the largest of the acceptor classes' fitted values
+    whose = f"{acceptor_class} acceptors' " if acceptor_class else ""  # each value the class's only where it is
     if model.eqe_follows_class:
-        eqe = f"EQE up to {model.eqe_bound:.2f}"
-    whose = f"{acceptor_class} acceptors' " if acceptor_class else ""
-    if whose and model.eqe_follows_class:  # the class's own values, each only where it is the class's
-        eqe = f"{whose}EQE {float(model.eqe_of([acceptor_class])[0]):.2f}"
-        whose = ""
-    if acceptor_class and model.ff_follows_class:
-        ff = f"{whose}fill factor {float(model.ff_of([acceptor_class])[0]):.2f}"
+        eqe = (f"{whose}EQE {float(model.eqe_of([acceptor_class])[0]):.2f}" if whose
+               else f"EQE up to {model.eqe_bound:.2f}")
+    if whose and model.ff_follows_class:
+        ff = f"{'' if model.eqe_follows_class else whose}fill factor {float(model.ff_of([acceptor_class])[0]):.2f}"
     source = "the published rule's" if model.model == "scharber" else "the fitted"
     mine = {"eqe": model.eqe is not None, "ff": model.ff is not None}
     if mine["eqe"] and mine["ff"]:

@@ -711,7 +711,7 @@ def _map_note(pts: pd.DataFrame, finite: pd.Series, model, partner: dict, model_
         parts.append(f"{n_same} ranked row(s) with the partner's own role are not drawn.")
     if n_missing:
         parts.append(f"{n_missing} ranked row(s) lack a gap or offset and are not drawn.")
-    if _partner_role(partner) == "donor" and (model.eqe_follows_class or model.ff_follows_class):
+    if _partner_role(partner) == "donor" and model.follows_class:
         # a referee's check: the table's rows had their class's EQE, the map the pooled one, unsaid
         parts.append("The map's acceptors are levels without a structure, so it takes the fitted model's pooled EQE, "
                      "fill factor and voltage loss; each candidate's own estimate (the table) uses its acceptor "
